@@ -1,0 +1,77 @@
+/**
+ * The estimator registry: the only way the harness and the CLI reach estimators.
+ */
+import type { Estimator, Sample, Settings, SettingValue } from '../src/contracts.js';
+import { UsageError } from '../src/errors.js';
+import { formatSpec, parseSpec, validateSettings } from '../src/spec.js';
+import { histogramEstimators } from './histogram.js';
+import { spacingEstimators } from './spacing.js';
+import { nearestNeighbourEstimators } from './nearest-neighbour.js';
+import { kernelEstimators } from './kernel.js';
+import { parametricEstimators } from './parametric.js';
+
+const builtIn: Estimator[] = [
+  ...histogramEstimators,
+  ...spacingEstimators,
+  ...nearestNeighbourEstimators,
+  ...kernelEstimators,
+  ...parametricEstimators,
+];
+
+const registry = new Map<string, Estimator>();
+for (const estimator of builtIn) registerEstimator(estimator);
+
+export function registerEstimator(estimator: Estimator): void {
+  if (registry.has(estimator.id)) throw new UsageError(`estimator id "${estimator.id}" is already registered`);
+  registry.set(estimator.id, estimator);
+}
+
+export function listEstimators(): Estimator[] {
+  return [...registry.values()];
+}
+
+export function getEstimator(id: string): Estimator {
+  const estimator = registry.get(id);
+  if (!estimator) {
+    throw new UsageError(`unknown estimator "${id}"; known: ${[...registry.keys()].join(', ')}`);
+  }
+  return estimator;
+}
+
+/** An estimator with validated settings (sample-dependent keywords such as 'auto' still unresolved). */
+export interface ConfiguredEstimator {
+  estimator: Estimator;
+  settings: Settings;
+  /** Canonical `id:key=value,...` with every setting spelled out. */
+  spec: string;
+}
+
+export function configureEstimator(id: string, given: Record<string, SettingValue> = {}): ConfiguredEstimator {
+  const estimator = getEstimator(id);
+  const settings = validateSettings(estimator.id, estimator.settings, given);
+  return { estimator, settings, spec: formatSpec(estimator.id, settings, estimator.settings.map((s) => s.name)) };
+}
+
+/** Parses `id:key=value,...` as typed on the command line. */
+export function parseEstimatorSpec(text: string): ConfiguredEstimator {
+  const { id, values } = parseSpec(text, 'estimator');
+  return configureEstimator(id, values);
+}
+
+/** Settings with per-sample defaults filled in: what the estimate actually used. */
+export function resolveSettings(configured: ConfiguredEstimator, sample: Sample): Settings {
+  return configured.estimator.resolve ? configured.estimator.resolve(sample, configured.settings) : { ...configured.settings };
+}
+
+/** Runs an estimator on a sample after checking the dimension; returns the value and the settings used. */
+export function runEstimator(configured: ConfiguredEstimator, sample: Sample): { value: number; settings: Settings } {
+  const { estimator } = configured;
+  const [minDim, maxDim] = estimator.dims;
+  if (sample.dim < minDim || sample.dim > maxDim) {
+    const range = maxDim === Infinity ? `d ≥ ${minDim}` : minDim === maxDim ? `d = ${minDim}` : `${minDim} ≤ d ≤ ${maxDim}`;
+    throw new UsageError(`${estimator.id} does not support d = ${sample.dim}; it needs ${range}`);
+  }
+  const settings = resolveSettings(configured, sample);
+  const value = estimator.estimate(sample, settings);
+  return { value, settings };
+}

@@ -1,0 +1,3 @@
+import type { Estimator } from '../src/contracts.js';
+
+export const parametricEstimators: Estimator[] = [];

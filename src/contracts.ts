@@ -1,0 +1,123 @@
+/**
+ * The contracts shared by scenarios, estimators and the harness. Estimators and scenarios depend only on
+ * this file and the math helpers; the harness reaches them only through their registries.
+ */
+
+export type Quantity = 'entropy' | 'mutual-information' | 'divergence';
+export type Support = 'bounded' | 'half' | 'unbounded';
+export type Tails = 'light' | 'exponential' | 'heavy';
+
+/** n points in `dim` dimensions, row-major: point i is data[i*dim .. i*dim+dim-1]. */
+export interface Sample {
+  n: number;
+  dim: number;
+  data: Float64Array;
+  /** For mutual information: the first `xDim` columns are X, the rest are Y. */
+  xDim?: number;
+}
+
+/** Two samples, from P and from Q, for a divergence D(P || Q). */
+export interface SamplePair {
+  p: Sample;
+  q: Sample;
+}
+
+/** A uniform stream on [0, 1) with 53-bit resolution. */
+export type Rng = () => number;
+
+/** A tuning value: a number, or a keyword such as a bin rule. */
+export type SettingValue = number | string;
+export type Settings = Record<string, SettingValue>;
+
+export interface SettingSpec {
+  name: string;
+  /** One line: what the setting does. */
+  meaning: string;
+  /** The default; a keyword such as 'auto' is resolved per sample by the estimator's `resolve`. */
+  default: SettingValue;
+  /** integer / number: numeric with optional bounds; choice: one of `choices`; the or-forms take either. */
+  kind: 'integer' | 'number' | 'choice' | 'choice-or-integer' | 'choice-or-number';
+  choices?: readonly string[];
+  min?: number;
+  max?: number;
+  /** When true, `min` itself is not allowed (a strict lower bound). */
+  minExclusive?: boolean;
+}
+
+export interface Estimator {
+  id: string;
+  family: string;
+  quantity: Quantity;
+  /** One line for catalogs. */
+  summary: string;
+  settings: readonly SettingSpec[];
+  /** Smallest and largest dimension supported (Infinity for any). */
+  dims: readonly [number, number];
+  /** The paper or book that defines the method. */
+  reference: string;
+  /** Replace sample-dependent defaults (keywords such as 'auto') with the values actually used. */
+  resolve?(sample: Sample, settings: Settings): Settings;
+  /** The estimate in nats. Throws an EstimateError on input the method cannot handle. */
+  estimate(sample: Sample, settings: Settings): number;
+}
+
+export interface ParamSpec {
+  name: string;
+  meaning: string;
+  default: number;
+  min?: number;
+  max?: number;
+  minExclusive?: boolean;
+  maxExclusive?: boolean;
+  integer?: boolean;
+}
+
+/** What a univariate scenario exposes for quadrature and goodness-of-fit checks. */
+export interface UnivariateDensity {
+  /** Support endpoints (may be infinite). */
+  lower: number;
+  upper: number;
+  logDensity(x: number): number;
+  cdf(x: number): number;
+  /** Points where the density has kinks or peaks, to help quadrature. */
+  breakpoints?: readonly number[];
+}
+
+export interface Scenario {
+  /** Canonical spec, e.g. `gamma:shape=2,scale=1`; the same string always names the same distribution. */
+  id: string;
+  family: string;
+  quantity: Quantity;
+  dim: number;
+  params: Record<string, number>;
+  /** Draws n independent points. Consumes `rng` only. */
+  sample(rng: Rng, n: number): Sample;
+  /** The true value in nats. */
+  truth: number;
+  /** Where the true value comes from: a book or paper for closed forms, "numeric: method, error bound" otherwise. */
+  truthSource: string;
+  /** Var(log f(X)) when known, for the efficiency bound Var(log f)/n. */
+  logDensityVariance?: number;
+  /** Where Var(log f(X)) comes from. */
+  logDensityVarianceSource?: string;
+  support: Support;
+  tails: Tails;
+  /** Present on one-dimensional scenarios. */
+  univariate?: UnivariateDensity;
+  /** Log density at one point (length dim), when it has a closed form. */
+  logDensity?(x: ArrayLike<number>): number;
+  /** Exact mean and covariance when finite, for sampler checks. */
+  moments?: { mean: number[]; covariance: number[][] };
+}
+
+export interface ScenarioFamily {
+  id: string;
+  quantity: Quantity;
+  /** One line for catalogs. */
+  summary: string;
+  params: readonly ParamSpec[];
+  /** Builds a scenario from validated parameters (every spec'd name present). */
+  create(params: Record<string, number>): Scenario;
+  /** Parameter sets listed in the catalog besides the defaults. */
+  examples?: readonly Record<string, number>[];
+}

@@ -1,0 +1,21 @@
+/** Special functions, from the @stdlib/math-base-special-* packages, behind one import. */
+import digammaImpl from '@stdlib/math-base-special-digamma';
+import trigammaImpl from '@stdlib/math-base-special-trigamma';
+import gammalnImpl from '@stdlib/math-base-special-gammaln';
+import betalnImpl from '@stdlib/math-base-special-betaln';
+import gammaincImpl from '@stdlib/math-base-special-gammainc';
+
+export const digamma: (x: number) => number = digammaImpl;
+export const trigamma: (x: number) => number = trigammaImpl;
+export const logGamma: (x: number) => number = gammalnImpl;
+export const logBeta: (a: number, b: number) => number = betalnImpl;
+/** Regularized lower incomplete gamma P(a, x). */
+export const regularizedGammaP = (a: number, x: number): number => gammaincImpl(x, a);
+
+/** The Euler–Mascheroni constant. */
+export const EULER_GAMMA = 0.5772156649015329;
+
+/** log of the volume of the d-dimensional Euclidean unit ball: (d/2) log π − log Γ(d/2 + 1). */
+export function logUnitBallVolume(d: number): number {
+  return (d / 2) * Math.log(Math.PI) - logGamma(d / 2 + 1);
+}
