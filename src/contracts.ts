@@ -81,6 +81,11 @@ export interface UnivariateDensity {
   cdf(x: number): number;
   /** Points where the density has kinks or peaks, to help quadrature. */
   breakpoints?: readonly number[];
+  /**
+   * log f(upper − u) computed from the distance u itself, for densities with a pole at a finite upper end:
+   * x = upper − u rounds u away once u < 1e-16, which loses mass that such a pole still carries.
+   */
+  logDensityNearUpper?(u: number): number;
 }
 
 export interface Scenario {

@@ -3,9 +3,9 @@
  *
  * Each panel is integrated by the 15-point rule on the whole panel and on its two halves; the difference is
  * the panel's error estimate (conservative: the halves are far more accurate than the difference says). The
- * panel with the largest estimate is split until the summed estimate meets the tolerance. Infinite ranges
- * are mapped to finite ones (x = t/(1-t) on half-lines, x = t/(1-t²) on the line), and the 15-point rule
- * never evaluates an endpoint, so integrable endpoint singularities are handled by repeated splitting.
+ * panel with the largest estimate is split until the summed estimate meets the tolerance. Half-lines are
+ * integrated in the logarithm of the distance from their end (see halfLine), the line as two half-lines,
+ * and the 15-point rule never evaluates an endpoint, so integrable endpoint poles are handled by splitting.
  */
 
 export interface QuadratureOptions {
@@ -14,6 +14,8 @@ export interface QuadratureOptions {
   maxPanels?: number;
   /** Interior points where the integrand has kinks or peaks; panels start split there. */
   breakpoints?: readonly number[];
+  /** For a finite range: the integrand as a function of the distance u = b − x from the upper end. */
+  upperDistance?: (u: number) => number;
 }
 
 export interface QuadratureResult {
@@ -150,45 +152,57 @@ export function integrate(f: (x: number) => number, a: number, b: number, option
   }
   const inside = (options.breakpoints ?? []).filter((x) => x > a && x < b).sort((x, y) => x - y);
   if (Number.isFinite(a) && Number.isFinite(b)) {
-    const cuts = [a, ...inside, b];
-    return adaptive(f, refine(cuts, 4), options);
+    if (!options.upperDistance) return adaptive(f, refine([a, ...inside, b], 4), options);
+    // Near a finite upper end, x = b − u rounds away the distance u; the caller's function of u keeps it,
+    // which matters for integrable poles at b (a beta law with β < 1).
+    const mid = a + (b - a) / 2;
+    const upper = options.upperDistance;
+    const lowerPart = adaptive(f, refine([a, ...inside.filter((x) => x < mid), mid], 4), options);
+    const upperCuts = [0, ...inside.filter((x) => x > mid).map((x) => b - x).reverse(), b - mid];
+    const upperPart = adaptive(upper, refine(upperCuts, 4), options);
+    return combine(lowerPart, upperPart);
   }
-  if (Number.isFinite(a)) {
-    // x = a + s·t/(1-t), t in [0, 1); s sets where the bulk of the mass lands in t.
-    const s = scaleFor(inside, a);
-    const g = (t: number) => {
-      const u = 1 - t;
-      const v = f(a + (s * t) / u);
-      return v === 0 ? 0 : (v * s) / (u * u);
-    };
-    const tCuts = [0, ...inside.map((x) => (x - a) / (x - a + s)), 1];
-    return adaptive(g, refine(tCuts, 8), options);
-  }
-  if (Number.isFinite(b)) {
-    const r = integrate((x) => f(-x), -b, Infinity, { ...options, breakpoints: inside.map((x) => -x) });
-    return r;
-  }
-  // x = c + s·t/(1-t²), t in (-1, 1).
-  const c = inside.length ? (inside[0] + inside[inside.length - 1]) / 2 : 0;
-  const s = inside.length > 1 ? Math.max(1, (inside[inside.length - 1] - inside[0]) / 2) : 1;
-  const g = (t: number) => {
-    const u = 1 - t * t;
-    const v = f(c + (s * t) / u);
-    return v === 0 ? 0 : (v * s * (1 + t * t)) / (u * u);
-  };
-  const toT = (x: number) => {
-    const y = (x - c) / s;
-    if (y === 0) return 0;
-    return (-1 + Math.sqrt(1 + 4 * y * y)) / (2 * y);
-  };
-  const tCuts = [-1, ...inside.map(toT), 1];
-  return adaptive(g, refine(tCuts, 8), options);
+  if (Number.isFinite(a)) return halfLine(f, a, 1, inside.map((x) => x - a), options);
+  if (Number.isFinite(b)) return halfLine(f, b, -1, inside.map((x) => b - x).reverse(), options);
+  const centre = inside.length ? inside[Math.floor(inside.length / 2)] : 0;
+  const right = halfLine(f, centre, 1, inside.filter((x) => x > centre).map((x) => x - centre), options);
+  const left = halfLine(f, centre, -1, inside.filter((x) => x < centre).map((x) => centre - x).reverse(), options);
+  return combine(left, right);
 }
 
-function scaleFor(inside: number[], a: number): number {
-  if (!inside.length) return 1;
-  const span = inside[inside.length - 1] - a;
-  return span > 0 ? span : 1;
+function combine(p: QuadratureResult, q: QuadratureResult): QuadratureResult {
+  return { value: p.value + q.value, errorEstimate: p.errorEstimate + q.errorEstimate, panels: p.panels + q.panels };
+}
+
+/**
+ * ∫ over the half-line from `origin` in direction `sign`, in the variable y = log(distance): x = origin ± e^y.
+ * Power-law tails become exponentially decaying in y and integrable poles at the origin become smooth, so
+ * the Gauss–Legendre error estimates stay honest for heavy tails (a Lévy law) and poles alike. The infinite
+ * y-range is then mapped to (−1, 1) by y = c + s·t/(1 − t²).
+ */
+function halfLine(f: (x: number) => number, origin: number, sign: 1 | -1, distances: number[], options: QuadratureOptions): QuadratureResult {
+  const logDistances = distances.filter((d) => d > 0).map(Math.log);
+  const c = logDistances.length ? (logDistances[0] + logDistances[logDistances.length - 1]) / 2 : 0;
+  const s = Math.max(1, logDistances.length > 1 ? (logDistances[logDistances.length - 1] - logDistances[0]) / 2 : 1);
+  const g = (t: number) => {
+    const u = 1 - t * t;
+    const y = c + (s * t) / u;
+    const distance = Math.exp(y);
+    if (distance === 0 || distance === Infinity) return 0;
+    const x = origin + sign * distance;
+    // Below the resolution of the origin the point is the origin itself; that sliver carries no mass
+    // unless the density has a pole at a nonzero origin, which no scenario here has.
+    if (x === origin) return 0;
+    const v = f(x);
+    return v === 0 ? 0 : (v * distance * s * (1 + t * t)) / (u * u);
+  };
+  const toT = (y: number) => {
+    const z = (y - c) / s;
+    if (z === 0) return 0;
+    return (-1 + Math.sqrt(1 + 4 * z * z)) / (2 * z);
+  };
+  const tCuts = [-1, ...logDistances.map(toT), 1];
+  return adaptive(g, refine(tCuts, 8), options);
 }
 
 /** Splits every interval into `parts` equal pieces so narrow features are seen by the first pass. */

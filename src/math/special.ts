@@ -19,3 +19,17 @@ export const EULER_GAMMA = 0.5772156649015329;
 export function logUnitBallVolume(d: number): number {
   return (d / 2) * Math.log(Math.PI) - logGamma(d / 2 + 1);
 }
+
+import erfImpl from '@stdlib/math-base-special-erf';
+import erfcImpl from '@stdlib/math-base-special-erfc';
+import betaincImpl from '@stdlib/math-base-special-betainc';
+
+export const erf: (x: number) => number = erfImpl;
+export const erfc: (x: number) => number = erfcImpl;
+/** Regularized incomplete beta I_x(a, b). */
+export const regularizedBeta = (x: number, a: number, b: number): number => betaincImpl(x, a, b);
+
+/** Standard normal CDF Φ(z), accurate in both tails. */
+export function normalCdf(z: number): number {
+  return 0.5 * erfc(-z / Math.SQRT2);
+}

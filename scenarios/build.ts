@@ -1,0 +1,111 @@
+/**
+ * Shared construction of scenarios: canonical ids, lazily computed Var(log f), and the univariate builder.
+ */
+import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily, Support, Tails, UnivariateDensity } from '../src/contracts.js';
+import { integrate } from '../src/math/quadrature.js';
+import { formatSpec } from '../src/spec.js';
+
+export function scenarioId(family: string, params: Record<string, number>, specs: readonly ParamSpec[]): string {
+  return formatSpec(family, params, specs.map((s) => s.name));
+}
+
+/** Quadrature tolerances used for every numeric truth; the achieved error is reported in truthSource. */
+export const TRUTH_TOLERANCE = { absTol: 1e-11, relTol: 1e-13, maxPanels: 40000 } as const;
+
+/** E[g(X)] = ∫ f(x) g(x, log f(x)) dx over the support of a univariate density, with its error estimate. */
+export function expectation(density: UnivariateDensity, g: (x: number, logF: number) => number): { value: number; error: number } {
+  const term = (x: number, logF: number) => {
+    // Where the density underflows the term is zero, even if g overflows there.
+    const f = Math.exp(logF);
+    if (f === 0) return 0;
+    const gx = g(x, logF);
+    return gx === 0 ? 0 : f * gx;
+  };
+  const nearUpper = density.logDensityNearUpper;
+  const result = integrate((x) => term(x, density.logDensity(x)), density.lower, density.upper, {
+    ...TRUTH_TOLERANCE,
+    breakpoints: density.breakpoints,
+    upperDistance: nearUpper && Number.isFinite(density.upper) ? (u) => term(density.upper - u, nearUpper(u)) : undefined,
+  });
+  return { value: result.value, error: result.errorEstimate };
+}
+
+/** Differential entropy −∫ f log f by quadrature. */
+export function entropyByQuadrature(density: UnivariateDensity): { value: number; error: number } {
+  return expectation(density, (_x, logF) => -logF);
+}
+
+/** Var(log f(X)) by quadrature, centred at the known entropy for accuracy. */
+export function logDensityVarianceByQuadrature(density: UnivariateDensity, entropy: number): { value: number; error: number } {
+  return expectation(density, (_x, logF) => (logF + entropy) * (logF + entropy));
+}
+
+export function formatError(error: number): string {
+  return error.toExponential(1);
+}
+
+export interface UnivariateDefinition {
+  family: string;
+  specs: readonly ParamSpec[];
+  params: Record<string, number>;
+  truth: number;
+  truthSource: string;
+  support: Support;
+  tails: Tails;
+  density: UnivariateDensity;
+  /** Returns a function that draws one value from the stream. */
+  sampler(rng: Rng): () => number;
+  /** Closed-form Var(log f(X)) with its source; otherwise computed by quadrature on first use. */
+  logDensityVariance?: { value: number; source: string };
+  mean?: number;
+  variance?: number;
+}
+
+export function univariateScenario(def: UnivariateDefinition): Scenario {
+  let varianceCache: { value: number; source: string } | undefined = def.logDensityVariance;
+  const scenario: Scenario = {
+    id: scenarioId(def.family, def.params, def.specs),
+    family: def.family,
+    quantity: 'entropy',
+    dim: 1,
+    params: { ...def.params },
+    truth: def.truth,
+    truthSource: def.truthSource,
+    support: def.support,
+    tails: def.tails,
+    univariate: def.density,
+    sample(rng: Rng, n: number): Sample {
+      const draw = def.sampler(rng);
+      const data = new Float64Array(n);
+      for (let i = 0; i < n; i++) data[i] = draw();
+      return { n, dim: 1, data };
+    },
+    logDensity: (x) => def.density.logDensity(x[0]),
+    get logDensityVariance() {
+      if (!varianceCache) {
+        const q = logDensityVarianceByQuadrature(def.density, def.truth);
+        varianceCache = { value: q.value, source: `numeric: adaptive Gauss–Legendre quadrature, error estimate ${formatError(q.error)}` };
+      }
+      return varianceCache.value;
+    },
+    get logDensityVarianceSource() {
+      void scenario.logDensityVariance;
+      return varianceCache?.source;
+    },
+  };
+  if (def.mean !== undefined && def.variance !== undefined && Number.isFinite(def.mean) && Number.isFinite(def.variance)) {
+    scenario.moments = { mean: [def.mean], covariance: [[def.variance]] };
+  }
+  return scenario;
+}
+
+/** A family whose create() builds a univariate scenario from validated params. */
+export function family(
+  id: string,
+  summary: string,
+  params: readonly ParamSpec[],
+  create: (p: Record<string, number>) => Scenario,
+  examples?: readonly Record<string, number>[],
+): ScenarioFamily {
+  return { id, quantity: 'entropy', summary, params, create, examples };
+}

@@ -1,0 +1,57 @@
+import { Command, CommanderError } from 'commander';
+import { createRequire } from 'node:module';
+import { EstimateError, UsageError } from './errors.js';
+import { registerScenariosCommand } from './commands/scenarios.js';
+
+const require = createRequire(import.meta.url);
+const { version } = require('../../package.json') as { version: string };
+
+export interface CliIo {
+  out: (text: string) => void;
+  err: (text: string) => void;
+}
+
+const defaultIo: CliIo = {
+  out: (text) => process.stdout.write(text.endsWith('\n') ? text : `${text}\n`),
+  err: (text) => process.stderr.write(text.endsWith('\n') ? text : `${text}\n`),
+};
+
+export function buildProgram(io: CliIo): Command {
+  const program = new Command();
+  program
+    .name('hhat')
+    .description(
+      'Benchmark estimators of differential entropy on seeded samples whose true value is known.\nValues are in nats unless --bits is given.',
+    )
+    .version(version, '-V, --version')
+    .option('--debug', 'print stack traces on errors')
+    .showHelpAfterError('(run with --help for usage)')
+    .configureOutput({ writeOut: io.out, writeErr: io.err })
+    .exitOverride();
+  registerScenariosCommand(program, io.out);
+  for (const command of program.commands) command.exitOverride().configureOutput({ writeOut: io.out, writeErr: io.err });
+  return program;
+}
+
+/** Runs the CLI; returns the exit code (0 ok, 1 internal error, 2 usage error). */
+export async function main(argv: string[], io: CliIo = defaultIo): Promise<number> {
+  const program = buildProgram(io);
+  const debug = argv.includes('--debug');
+  try {
+    await program.parseAsync(argv, { from: 'user' });
+    return 0;
+  } catch (error) {
+    if (error instanceof CommanderError) {
+      // Commander has already printed its one-line message; help and version exit 0.
+      return error.exitCode === 0 ? 0 : 2;
+    }
+    if (error instanceof UsageError || error instanceof EstimateError) {
+      io.err(`hhat: ${error.message}`);
+      if (debug) io.err(String(error.stack));
+      return 2;
+    }
+    io.err(`hhat: internal error: ${error instanceof Error ? error.message : String(error)}`);
+    io.err(debug && error instanceof Error ? String(error.stack) : 'run again with --debug for the stack trace, and please report it');
+    return 1;
+  }
+}

@@ -1,0 +1,100 @@
+import type { Command } from 'commander';
+import type { Scenario } from '../contracts.js';
+import { UsageError } from '../errors.js';
+import { formatValue, renderTable, shorten, toBase, type Base } from '../format.js';
+import { catalog, parseScenario } from '../../scenarios/index.js';
+
+export interface ScenarioRecord {
+  id: string;
+  family: string;
+  dim: number;
+  params: Record<string, number>;
+  quantity: string;
+  truth: number;
+  unit: Base;
+  truthSource: string;
+  numericTruth: boolean;
+  support: string;
+  tails: string;
+  logDensityVariance: number | null;
+  logDensityVarianceSource: string | null;
+}
+
+export function scenarioRecord(s: Scenario, base: Base): ScenarioRecord {
+  const variance = s.logDensityVariance;
+  return {
+    id: s.id,
+    family: s.family,
+    dim: s.dim,
+    params: s.params,
+    quantity: s.quantity,
+    truth: toBase(s.truth, base),
+    unit: base,
+    truthSource: s.truthSource,
+    numericTruth: s.truthSource.startsWith('numeric'),
+    support: s.support,
+    tails: s.tails,
+    // Var(log f) scales with the base squared.
+    logDensityVariance: variance === undefined ? null : base === 'bits' ? variance / (Math.LN2 * Math.LN2) : variance,
+    logDensityVarianceSource: s.logDensityVarianceSource ?? null,
+  };
+}
+
+const TAILS = ['light', 'exponential', 'heavy'];
+const SUPPORTS = ['bounded', 'half', 'unbounded'];
+
+export function registerScenariosCommand(program: Command, print: (text: string) => void): void {
+  program
+    .command('scenarios')
+    .description('list scenarios: distributions with a known true value, their sources and facts')
+    .argument('[spec...]', 'show these scenarios (e.g. gamma:shape=3 "product[normal;laplace]") instead of the catalog')
+    .option('--json', 'print a JSON array instead of a table')
+    .option('--bits', 'true values in bits instead of nats')
+    .option('--dim <d>', 'only scenarios of this dimension')
+    .option('--tails <class>', `only this tail class: ${TAILS.join(' | ')}`)
+    .option('--support <kind>', `only this support: ${SUPPORTS.join(' | ')}`)
+    .option('--family <id>', 'only this family')
+    .addHelpText(
+      'after',
+      `
+Spec syntax:
+  family[:key=value,...]            gamma:shape=2,scale=1 (omitted keys take defaults)
+  product[SPEC;SPEC;...]            independent coordinates, e.g. "product[normal;exponential:rate=2]"
+  transformed[MAP;SPEC]             monotone map of a 1-D scenario, e.g. "transformed[sinh;normal]"
+  gaussian-covariance[ROW;ROW;...]  any covariance, e.g. "gaussian-covariance[1,0.5;0.5,2]"
+Quote specs with brackets or semicolons in the shell.`,
+    )
+    .action((specs: string[], options: { json?: boolean; bits?: boolean; dim?: string; tails?: string; support?: string; family?: string }) => {
+      const base: Base = options.bits ? 'bits' : 'nats';
+      let list = specs.length ? specs.map(parseScenario) : catalog();
+      if (options.dim !== undefined) {
+        const dim = Number(options.dim);
+        if (!Number.isInteger(dim) || dim < 1) throw new UsageError(`--dim ${options.dim} is not allowed; it must be an integer ≥ 1`);
+        list = list.filter((s) => s.dim === dim);
+      }
+      if (options.tails !== undefined) {
+        if (!TAILS.includes(options.tails)) throw new UsageError(`--tails ${options.tails} is not allowed; use one of ${TAILS.join(', ')}`);
+        list = list.filter((s) => s.tails === options.tails);
+      }
+      if (options.support !== undefined) {
+        if (!SUPPORTS.includes(options.support)) throw new UsageError(`--support ${options.support} is not allowed; use one of ${SUPPORTS.join(', ')}`);
+        list = list.filter((s) => s.support === options.support);
+      }
+      if (options.family !== undefined) list = list.filter((s) => s.family === options.family);
+      const records = list.map((s) => scenarioRecord(s, base));
+      if (options.json) {
+        print(JSON.stringify(records, null, 2));
+        return;
+      }
+      const rows = records.map((r) => [
+        shorten(r.id, 52),
+        r.dim,
+        formatValue(r.truth, 7),
+        r.support,
+        r.tails,
+        shorten(r.truthSource, 48),
+      ]);
+      print(renderTable(['scenario', 'd', `truth (${base})`, 'support', 'tails', 'source of the truth'], rows, { align: ['left', 'right', 'right', 'left', 'left', 'left'] }));
+      print(`${records.length} scenarios. Details of one: hhat scenarios --json SPEC`);
+    });
+}
