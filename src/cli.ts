@@ -1,10 +1,9 @@
 import { Command, CommanderError } from 'commander';
-import { createRequire } from 'node:module';
 import { EstimateError, UsageError } from './errors.js';
 import { registerScenariosCommand } from './commands/scenarios.js';
+import { hhatVersion } from './provenance.js';
+import { registerBenchCommand } from './commands/bench.js';
 
-const require = createRequire(import.meta.url);
-const { version } = require('../../package.json') as { version: string };
 
 export interface CliIo {
   out: (text: string) => void;
@@ -23,11 +22,12 @@ export function buildProgram(io: CliIo): Command {
     .description(
       'Benchmark estimators of differential entropy on seeded samples whose true value is known.\nValues are in nats unless --bits is given.',
     )
-    .version(version, '-V, --version')
+    .version(hhatVersion(), '-V, --version')
     .option('--debug', 'print stack traces on errors')
     .showHelpAfterError('(run with --help for usage)')
     .configureOutput({ writeOut: io.out, writeErr: io.err })
     .exitOverride();
+  registerBenchCommand(program, io.out, io.err);
   registerScenariosCommand(program, io.out);
   for (const command of program.commands) command.exitOverride().configureOutput({ writeOut: io.out, writeErr: io.err });
   return program;

@@ -1,0 +1,172 @@
+import { existsSync, readdirSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { join, resolve } from 'node:path';
+import type { Command } from 'commander';
+import { UsageError } from '../errors.js';
+import type { Base } from '../format.js';
+import { defaultPlan } from '../default-plan.js';
+import { parseIntegerOption, parseSampleSizes, readPlanFile, resolvePlan, type PlanInput } from '../plan.js';
+import { progressReporter } from '../progress.js';
+import { assembleRun, readRunFile, writeRunFile, type RunFile } from '../results.js';
+import { defaultWorkers, runPlan, type Shard } from '../runner.js';
+import { parseShard } from '../shard.js';
+import { detailTable, overallTable, scenarioTables, scoresCsv } from '../tables.js';
+import { mergeShards } from '../merge.js';
+
+interface BenchOptions {
+  plan?: string;
+  scenario?: string[];
+  estimator?: string[];
+  n?: string;
+  replicates?: string;
+  seed?: string;
+  workers?: string;
+  shard?: string;
+  out?: string;
+  resume?: boolean;
+  csv?: string;
+  bits?: boolean;
+  detail?: boolean;
+  quiet?: boolean;
+}
+
+const collect = (value: string, previous: string[] = []) => [...previous, value];
+
+function timestamp(): string {
+  return new Date().toISOString().replace(/[-:]/g, '').replace('T', '-').slice(0, 15);
+}
+
+function checkpointFor(out: string): string {
+  return `${out}.checkpoint.jsonl`;
+}
+
+/** With --resume and no --out: the newest interrupted run under results/. */
+function latestCheckpoint(dir: string): string | undefined {
+  if (!existsSync(dir)) return undefined;
+  const candidates = readdirSync(dir)
+    .filter((f) => f.endsWith('.json.checkpoint.jsonl'))
+    .map((f) => join(dir, f))
+    .sort((a, b) => statSync(b).mtimeMs - statSync(a).mtimeMs);
+  return candidates[0];
+}
+
+export function planInputFromOptions(options: BenchOptions): PlanInput {
+  let input: PlanInput;
+  if (options.plan) {
+    if (options.scenario?.length || options.estimator?.length) {
+      throw new UsageError('--plan cannot be combined with --scenario or --estimator; put them in the plan file');
+    }
+    input = readPlanFile(options.plan);
+  } else {
+    const base = defaultPlan();
+    input = {
+      ...base,
+      name: options.scenario?.length || options.estimator?.length ? 'custom' : base.name,
+      scenarios: options.scenario?.length ? options.scenario : base.scenarios,
+      estimators: options.estimator?.length ? options.estimator : base.estimators,
+    };
+  }
+  if (options.n !== undefined) input.sampleSizes = parseSampleSizes(options.n);
+  if (options.replicates !== undefined) input.replicates = parseIntegerOption('--replicates', options.replicates, 2, 1_000_000);
+  if (options.seed !== undefined) input.seed = parseIntegerOption('--seed', options.seed, 0);
+  return input;
+}
+
+export function printRun(run: RunFile, base: Base, print: (text: string) => void, detail: boolean): void {
+  print(scenarioTables(run, base));
+  const overall = overallTable(run);
+  if (overall) print(overall);
+  if (detail) print(detailTable(run, base));
+  if (run.skipped.length) {
+    print(`Skipped ${run.skipped.length} estimator–scenario pair${run.skipped.length === 1 ? '' : 's'}:`);
+    const reasons = new Map<string, number>();
+    for (const s of run.skipped) reasons.set(s.reason, (reasons.get(s.reason) ?? 0) + 1);
+    for (const [reason, count] of reasons) print(`  ${reason}${count > 1 ? ` (${count} scenarios)` : ''}`);
+  }
+  const failed = run.cells.reduce((s, c) => s + c.scores.failures, 0);
+  if (failed) print(`${failed} estimate${failed === 1 ? '' : 's'} failed; the run file lists each with its reason (cells[].failures).`);
+  print('RMSE ± Monte-Carlo SE; "=" marks ranks a paired test on squared errors cannot separate (|z| < 2).');
+}
+
+export function registerBenchCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
+  program
+    .command('bench')
+    .description('run a benchmark plan (the built-in default plan without arguments) and write a run file')
+    .option('--plan <file>', 'a JSON plan file (schema: src/schemas/plan.schema.json)')
+    .option('--scenario <spec>', 'a scenario to include (repeatable; see `hhat scenarios`)', collect)
+    .option('--estimator <spec>', 'an estimator with settings, ID[:key=value,...] (repeatable; see `hhat estimators`)', collect)
+    .option('--n <sizes>', 'sample sizes, comma-separated (e.g. 100,1000,10000)')
+    .option('--replicates <r>', 'independent draws per cell')
+    .option('--seed <s>', 'base seed; a replicate\'s sample depends only on it, the scenario, n and the replicate index')
+    .option('--workers <w>', `worker threads (default: ${defaultWorkers()}, the number of cores)`)
+    .option('--shard <i/N|auto>', 'run only slice i of N (1-based), or read it from a batch scheduler (auto)')
+    .option('--out <file>', 'run file to write (default: results/run-TIMESTAMP.json)')
+    .option('--resume', 'continue an interrupted run from its checkpoint (the same --out, or the newest under results/)')
+    .option('--csv <file>', 'also write the score table as CSV')
+    .option('--bits', 'print values in bits instead of nats (the run file is always in nats)')
+    .option('--detail', 'also print every score of every cell')
+    .option('--quiet', 'print only the run file path')
+    .action(async (options: BenchOptions) => {
+      const base: Base = options.bits ? 'bits' : 'nats';
+      const shard: Shard | undefined = options.shard ? parseShard(options.shard) : undefined;
+      const workers = options.workers === undefined ? defaultWorkers() : parseIntegerOption('--workers', options.workers, 1, 256);
+      let out = options.out;
+      if (!out && options.resume) {
+        const checkpoint = latestCheckpoint('results');
+        if (!checkpoint) throw new UsageError('--resume found no interrupted run under results/; give its --out');
+        out = checkpoint.slice(0, -'.checkpoint.jsonl'.length);
+      }
+      out ??= join('results', `run-${timestamp()}${shard ? `.shard-${shard.index}-of-${shard.count}` : ''}.json`);
+      out = resolve(out);
+      const { plan } = resolvePlan(planInputFromOptions(options), options.plan ?? 'plan');
+      const checkpoint = checkpointFor(out);
+      const controller = new AbortController();
+      const onSignal = () => controller.abort();
+      process.once('SIGINT', onSignal);
+      process.once('SIGTERM', onSignal);
+      const progress = options.quiet ? undefined : progressReporter(process.stderr);
+      let outcome;
+      try {
+        outcome = await runPlan(plan, {
+          workers,
+          shard,
+          checkpointPath: checkpoint,
+          resume: options.resume,
+          onProgress: progress?.update,
+          signal: controller.signal,
+        });
+      } finally {
+        progress?.done();
+        process.off('SIGINT', onSignal);
+        process.off('SIGTERM', onSignal);
+      }
+      if (outcome.interrupted) {
+        printErr(`interrupted: ${outcome.results.size} of ${outcome.owned.length} units are saved in ${checkpoint}`);
+        printErr(`continue with the same command plus: --resume --out ${out}`);
+        process.exitCode = 130;
+        return;
+      }
+      const run = assembleRun(outcome, shard ?? null);
+      writeRunFile(out, run);
+      rmSync(checkpoint, { force: true });
+      if (options.csv) writeFileSync(options.csv, scoresCsv(run, base));
+      if (!options.quiet && !shard) printRun(run, base, print, Boolean(options.detail));
+      const resumed = outcome.resumedUnits ? `, ${outcome.resumedUnits} units from the checkpoint` : '';
+      print(`${shard ? `shard ${shard.index}/${shard.count}: ` : ''}${run.cells.length} cells in ${run.wallSeconds.toFixed(1)} s on ${outcome.workers} worker${outcome.workers === 1 ? '' : 's'}${resumed}`);
+      print(`run file: ${out}`);
+    });
+
+  program
+    .command('merge')
+    .description('join the shard run files of one plan into the run file an unsharded run writes')
+    .argument('<shards...>', 'shard run files (all N of them)')
+    .requiredOption('--out <file>', 'the merged run file')
+    .option('--bits', 'print values in bits instead of nats')
+    .option('--quiet', 'print only the run file path')
+    .action((files: string[], options: { out: string; bits?: boolean; quiet?: boolean }) => {
+      const run = mergeShards(files.map((path) => ({ path, run: readRunFile(path) })));
+      writeRunFile(options.out, run);
+      if (!options.quiet) printRun(run, options.bits ? 'bits' : 'nats', print, false);
+      print(`merged ${files.length} shards: ${run.cells.length} cells`);
+      print(`run file: ${resolve(options.out)}`);
+    });
+}

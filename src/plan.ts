@@ -1,0 +1,191 @@
+/**
+ * Plans: scenarios × estimators-with-settings × sample sizes × replicates × base seed, from flags or a JSON
+ * plan file. A plan is normalised (canonical scenario ids and estimator specs with every setting spelled out)
+ * so that its fingerprint names the draws and the work exactly.
+ */
+import { createHash } from 'node:crypto';
+import { readFileSync } from 'node:fs';
+import { Ajv2020, type ErrorObject } from 'ajv/dist/2020.js';
+import type { Quantity, Scenario } from './contracts.js';
+import { UsageError } from './errors.js';
+import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from '../estimators/index.js';
+import { parseScenario } from '../scenarios/index.js';
+import planSchema from './schemas/plan.schema.json' with { type: 'json' };
+
+export interface Plan {
+  name: string;
+  quantity: Quantity;
+  /** Canonical scenario ids. */
+  scenarios: string[];
+  /** Canonical estimator specs, every setting spelled out. */
+  estimators: string[];
+  sampleSizes: number[];
+  replicates: number;
+  seed: number;
+  /** Perturbation specs (empty: unperturbed only). */
+  perturbations: string[];
+}
+
+export const DEFAULT_REPLICATES = 50;
+export const DEFAULT_SEED = 20261201;
+export const DEFAULT_SAMPLE_SIZES = [100, 1000, 10000];
+
+export interface ResolvedPlan {
+  plan: Plan;
+  scenarios: Scenario[];
+  estimators: ConfiguredEstimator[];
+}
+
+/** What the flags or the plan file give, before normalisation. */
+export interface PlanInput {
+  name?: string;
+  quantity?: Quantity;
+  scenarios: string[];
+  estimators: (string | { id: string; settings?: Record<string, number | string> })[];
+  sampleSizes?: number[];
+  replicates?: number;
+  seed?: number;
+  perturbations?: string[];
+}
+
+/** `instancePath` /estimators/2/settings/k → estimators[2].settings.k */
+export function jsonPath(pointer: string): string {
+  if (!pointer) return '(plan)';
+  return pointer
+    .split('/')
+    .slice(1)
+    .map((part) => part.replace(/~1/g, '/').replace(/~0/g, '~'))
+    .reduce((path, part) => (/^\d+$/.test(part) ? `${path}[${part}]` : path ? `${path}.${part}` : part), '');
+}
+
+function describeSchemaError(error: ErrorObject): string {
+  const path = jsonPath(error.instancePath);
+  switch (error.keyword) {
+    case 'additionalProperties':
+      return `${path === '(plan)' ? '' : `${path}.`}${(error.params as { additionalProperty: string }).additionalProperty}: unknown key`;
+    case 'required':
+      return `${path === '(plan)' ? '' : `${path}.`}${(error.params as { missingProperty: string }).missingProperty}: is required`;
+    case 'enum':
+      return `${path}: must be one of ${(error.params as { allowedValues: unknown[] }).allowedValues.join(', ')}`;
+    case 'minimum':
+      return `${path}: must be ≥ ${(error.params as { limit: number }).limit}`;
+    case 'maximum':
+      return `${path}: must be ≤ ${(error.params as { limit: number }).limit}`;
+    case 'type':
+      return `${path}: must be ${(error.params as { type: string }).type === 'integer' ? 'an integer' : `a ${(error.params as { type: string }).type}`}`;
+    case 'minItems':
+      return `${path}: must list at least ${(error.params as { limit: number }).limit} item(s)`;
+    default:
+      return `${path}: ${error.message ?? 'is not valid'}`;
+  }
+}
+
+const ajv = new Ajv2020({ allErrors: false, strict: true, allowUnionTypes: true });
+const validatePlanShape = ajv.compile(planSchema);
+
+/** Checks a parsed plan file against the shipped schema; errors name the path. */
+export function checkPlanShape(value: unknown, source: string): PlanInput {
+  if (!validatePlanShape(value)) {
+    const errors = validatePlanShape.errors ?? [];
+    // oneOf failures report every branch; the most specific error is the deepest path.
+    const deepest = [...errors].sort((a, b) => b.instancePath.length - a.instancePath.length)[0];
+    throw new UsageError(`${source}: ${deepest ? describeSchemaError(deepest) : 'is not a valid plan'}`);
+  }
+  return value as unknown as PlanInput;
+}
+
+export function readPlanFile(path: string): PlanInput {
+  let text: string;
+  try {
+    text = readFileSync(path, 'utf8');
+  } catch (error) {
+    throw new UsageError(`cannot read plan file ${path}: ${(error as NodeJS.ErrnoException).code ?? String(error)}`);
+  }
+  let value: unknown;
+  try {
+    value = JSON.parse(text);
+  } catch (error) {
+    throw new UsageError(`${path} is not valid JSON: ${(error as Error).message}`);
+  }
+  return checkPlanShape(value, path);
+}
+
+/** Normalises a plan input: canonical ids, settings validated with their paths, sizes sorted. */
+export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
+  const quantity = input.quantity ?? 'entropy';
+  const scenarios = input.scenarios.map((spec, i) => {
+    try {
+      return parseScenario(spec);
+    } catch (error) {
+      if (error instanceof UsageError) throw new UsageError(`${source}: scenarios[${i}]: ${error.message}`);
+      throw error;
+    }
+  });
+  const estimators = input.estimators.map((entry, i) => {
+    try {
+      return typeof entry === 'string' ? parseEstimatorSpec(entry) : configureEstimator(entry.id, entry.settings ?? {});
+    } catch (error) {
+      if (!(error instanceof UsageError)) throw error;
+      // "kozachenko-leonenko: k=0 is not allowed; ..." → "estimators[2].settings.k: must be ..."
+      const match = /^[^:]+: (\w+)=.* is not allowed; \1 (must be .*)$/.exec(error.message);
+      const detail = match ? `.settings.${match[1]}: ${match[2]}` : `: ${error.message}`;
+      throw new UsageError(`${source}: estimators[${i}]${detail}`);
+    }
+  });
+  const mismatched = [...scenarios.filter((s) => s.quantity !== quantity).map((s) => s.id), ...estimators.filter((e) => e.estimator.quantity !== quantity).map((e) => e.spec)];
+  if (mismatched.length) throw new UsageError(`${source}: ${mismatched[0]} is not a ${quantity} ${scenarios.some((s) => s.id === mismatched[0]) ? 'scenario' : 'estimator'}; the plan's quantity is ${quantity}`);
+  const sampleSizes = [...new Set(input.sampleSizes ?? DEFAULT_SAMPLE_SIZES)].sort((a, b) => a - b);
+  const plan: Plan = {
+    name: input.name ?? 'custom',
+    quantity,
+    scenarios: dedupe(scenarios.map((s) => s.id)),
+    estimators: dedupe(estimators.map((e) => e.spec)),
+    sampleSizes,
+    replicates: input.replicates ?? DEFAULT_REPLICATES,
+    seed: input.seed ?? DEFAULT_SEED,
+    perturbations: dedupe(input.perturbations ?? []),
+  };
+  return {
+    plan,
+    scenarios: plan.scenarios.map((id) => parseScenario(id)),
+    estimators: plan.estimators.map((spec) => parseEstimatorSpec(spec)),
+  };
+}
+
+function dedupe(list: string[]): string[] {
+  return [...new Set(list)];
+}
+
+/** sha256 of the canonical plan: two runs with the same fingerprint saw the same draws and did the same work. */
+export function planFingerprint(plan: Plan): string {
+  const canonical = JSON.stringify({
+    quantity: plan.quantity,
+    scenarios: plan.scenarios,
+    estimators: plan.estimators,
+    sampleSizes: plan.sampleSizes,
+    replicates: plan.replicates,
+    seed: plan.seed,
+    perturbations: plan.perturbations,
+  });
+  return createHash('sha256').update(canonical).digest('hex');
+}
+
+/** Parses "100,1000,1e4" for --n. */
+export function parseSampleSizes(text: string): number[] {
+  const sizes = text.split(',').map((part) => {
+    const value = Number(part.trim());
+    if (part.trim() === '' || !Number.isInteger(value) || value < 2) {
+      throw new UsageError(`--n: "${part.trim()}" is not allowed; sample sizes must be integers ≥ 2, comma-separated (e.g. 100,1000,10000)`);
+    }
+    return value;
+  });
+  return sizes;
+}
+
+export function parseIntegerOption(flag: string, text: string, min: number, max = Number.MAX_SAFE_INTEGER): number {
+  const value = Number(text);
+  if (text.trim() === '' || !Number.isInteger(value) || value < min || value > max) {
+    throw new UsageError(`${flag} ${text} is not allowed; it must be an integer from ${min} to ${max}`);
+  }
+  return value;
+}

@@ -1,0 +1,338 @@
+/**
+ * Run files: the versioned JSON record of a plan's results, with the raw per-replicate estimates (so later
+ * comparisons can be paired), scores, rates, rankings and provenance. Written to a temporary name and
+ * renamed, so a crash never leaves half a file.
+ */
+import { mkdirSync, readFileSync, renameSync, writeFileSync } from 'node:fs';
+import { dirname } from 'node:path';
+import { Ajv2020 } from 'ajv/dist/2020.js';
+import type { Scenario } from './contracts.js';
+import { UsageError } from './errors.js';
+import type { Plan } from './plan.js';
+import { environment, type Environment } from './provenance.js';
+import type { RunOutcome, Shard } from './runner.js';
+import { fitRate, pairedSquaredErrorDifference, scoreCell, type CellScores, type Estimate, type RateFit } from './score.js';
+import type { Skip } from './work.js';
+import { buildContext } from './context.js';
+import runSchema from './schemas/run.schema.json' with { type: 'json' };
+
+export const SCHEMA_VERSION = 1;
+
+export interface ScenarioInfo {
+  id: string;
+  family: string;
+  dim: number;
+  truth: number;
+  truthSource: string;
+  support: string;
+  tails: string;
+  logDensityVariance: number | null;
+}
+
+export interface CellFailure {
+  replicate: number;
+  message: string;
+}
+
+export interface Cell {
+  scenario: string;
+  estimator: string;
+  estimatorId: string;
+  family: string;
+  n: number;
+  perturbation: string | null;
+  /** One entry per replicate: the estimate in nats, or null (failed, or not run in this shard). */
+  estimates: (number | null)[];
+  failures: CellFailure[];
+  scores: CellScores;
+  timing: { totalMs: number; meanMs: number };
+}
+
+export interface RankEntry {
+  estimator: string;
+  rank: number;
+  /** True when the paired test cannot separate it from the entry above (|z| < 2). */
+  tiedWithAbove: boolean;
+  rmse: number;
+  rmseSe: number;
+  failures: number;
+}
+
+export interface Ranking {
+  scenario: string;
+  n: number;
+  perturbation: string | null;
+  entries: RankEntry[];
+}
+
+export interface Rate {
+  scenario: string;
+  estimator: string;
+  bias: RateFit | null;
+  rmse: RateFit | null;
+}
+
+export interface OverallRank {
+  estimator: string;
+  /** Average rank per group "d=1/light" etc., with the number of rankings averaged. */
+  groups: Record<string, { meanRank: number; rankings: number }>;
+}
+
+export interface RunFile {
+  schemaVersion: number;
+  kind: 'hhat-run';
+  createdAt: string;
+  environment: Environment;
+  plan: Plan;
+  fingerprint: string;
+  shard: Shard | null;
+  complete: boolean;
+  workers: number;
+  wallSeconds: number;
+  scenarios: ScenarioInfo[];
+  skipped: Skip[];
+  cells: Cell[];
+  rates: Rate[];
+  rankings: Ranking[];
+  overall: OverallRank[];
+}
+
+/** z beyond which a paired difference of squared errors separates two estimators. */
+export const TIE_Z = 2;
+
+function scenarioInfo(s: Scenario): ScenarioInfo {
+  return {
+    id: s.id,
+    family: s.family,
+    dim: s.dim,
+    truth: s.truth,
+    truthSource: s.truthSource,
+    support: s.support,
+    tails: s.tails,
+    logDensityVariance: s.logDensityVariance ?? null,
+  };
+}
+
+/** Assembles cells from unit results (a shard holds only its own replicates; the rest stay null). */
+export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
+  const { plan } = outcome;
+  const context = buildContext(plan);
+  const variants: (string | null)[] = [null, ...plan.perturbations];
+  const cellIndex = new Map<string, Cell>();
+  const cells: Cell[] = [];
+  const key = (s: number, e: number, n: number, v: number) => `${s}|${e}|${n}|${v}`;
+  for (const unit of outcome.units) {
+    for (let v = 0; v < variants.length; v++) {
+      for (const e of unit.estimators) {
+        const k = key(unit.scenario, e, unit.n, v);
+        if (cellIndex.has(k)) continue;
+        const configured = context.estimators[e];
+        const cell: Cell = {
+          scenario: context.scenarios[unit.scenario].id,
+          estimator: configured.spec,
+          estimatorId: configured.estimator.id,
+          family: configured.estimator.family,
+          n: unit.n,
+          perturbation: variants[v],
+          estimates: Array(plan.replicates).fill(null),
+          failures: [],
+          scores: undefined as unknown as CellScores,
+          timing: { totalMs: 0, meanMs: 0 },
+        };
+        cellIndex.set(k, cell);
+        cells.push(cell);
+      }
+    }
+  }
+  const ran = new Map<Cell, number>();
+  for (const [unitIndex, result] of outcome.results) {
+    const unit = outcome.units[unitIndex];
+    for (let v = 0; v < variants.length; v++) {
+      unit.estimators.forEach((e, k) => {
+        const cell = cellIndex.get(key(unit.scenario, e, unit.n, v))!;
+        const values = result.estimates[v][k];
+        for (let r = 0; r < values.length; r++) {
+          const value = values[r];
+          cell.estimates[unit.repStart + r] = Number.isNaN(value) ? null : value;
+        }
+        cell.timing.totalMs += result.timeMs[v][k];
+        ran.set(cell, (ran.get(cell) ?? 0) + values.length);
+      });
+    }
+    for (const f of result.failures) {
+      const cell = cellIndex.get(key(unit.scenario, f.estimator, unit.n, f.perturbation))!;
+      cell.failures.push({ replicate: f.replicate, message: f.message });
+    }
+  }
+  for (const cell of cells) {
+    cell.failures.sort((a, b) => a.replicate - b.replicate);
+    const count = ran.get(cell) ?? 0;
+    cell.timing.meanMs = count ? cell.timing.totalMs / count : 0;
+  }
+  // Cells with no replicate in this shard are dropped from a shard file; merge brings them back.
+  const present = shard ? cells.filter((c) => (ran.get(c) ?? 0) > 0) : cells;
+  return finishRun({
+    plan,
+    fingerprint: outcome.fingerprint,
+    shard,
+    complete: shard === null && !outcome.interrupted,
+    workers: outcome.workers,
+    wallSeconds: outcome.wallMs / 1000,
+    scenarios: context.scenarios.map(scenarioInfo),
+    skipped: outcome.skipped,
+    cells: present,
+  });
+}
+
+/** Scores, rates and rankings from cells; shared by fresh runs and merges. */
+export function finishRun(base: Omit<RunFile, 'schemaVersion' | 'kind' | 'createdAt' | 'environment' | 'rates' | 'rankings' | 'overall'>): RunFile {
+  const truth = new Map(base.scenarios.map((s) => [s.id, s]));
+  for (const cell of base.cells) {
+    const info = truth.get(cell.scenario)!;
+    const failed = new Set(cell.failures.map((f) => f.replicate));
+    // In a shard, replicates not run here are neither estimates nor failures: leave them out.
+    const values = cell.estimates.flatMap((v, r) => (v !== null ? [v] : failed.has(r) ? [NaN] : []));
+    cell.scores = scoreCell(values, info.truth, cell.n, info.logDensityVariance ?? undefined);
+  }
+  const rankings = base.complete ? rank(base.cells, truth) : [];
+  return {
+    schemaVersion: SCHEMA_VERSION,
+    kind: 'hhat-run',
+    createdAt: new Date().toISOString(),
+    environment: environment(),
+    ...base,
+    rates: rates(base.cells),
+    rankings,
+    overall: overall(rankings, truth),
+  };
+}
+
+function asNaN(values: (number | null)[]): number[] {
+  return values.map((v) => (v === null ? NaN : v));
+}
+
+function rank(cells: Cell[], scenarios: Map<string, ScenarioInfo>): Ranking[] {
+  const groups = new Map<string, Cell[]>();
+  for (const c of cells) {
+    const k = `${c.scenario}|${c.n}|${c.perturbation ?? ''}`;
+    if (!groups.has(k)) groups.set(k, []);
+    groups.get(k)!.push(c);
+  }
+  const out: Ranking[] = [];
+  for (const group of groups.values()) {
+    const truth = scenarios.get(group[0].scenario)!.truth;
+    const usable = group.filter((c) => Number.isFinite(c.scores.rmse.value));
+    usable.sort((a, b) => a.scores.rmse.value - b.scores.rmse.value || a.estimator.localeCompare(b.estimator));
+    const entries: RankEntry[] = [];
+    usable.forEach((c, i) => {
+      let tied = false;
+      if (i > 0) {
+        const d = pairedSquaredErrorDifference(asNaN(c.estimates), asNaN(usable[i - 1].estimates), truth);
+        tied = !(Math.abs(d.value) > TIE_Z * d.se);
+      }
+      entries.push({
+        estimator: c.estimator,
+        rank: tied ? entries[i - 1].rank : i + 1,
+        tiedWithAbove: tied,
+        rmse: c.scores.rmse.value,
+        rmseSe: c.scores.rmse.se,
+        failures: c.scores.failures,
+      });
+    });
+    out.push({ scenario: group[0].scenario, n: group[0].n, perturbation: group[0].perturbation, entries });
+  }
+  return out;
+}
+
+function rates(cells: Cell[]): Rate[] {
+  const groups = new Map<string, Cell[]>();
+  for (const c of cells) {
+    if (c.perturbation !== null) continue;
+    const k = `${c.scenario}|${c.estimator}`;
+    if (!groups.has(k)) groups.set(k, []);
+    groups.get(k)!.push(c);
+  }
+  return [...groups.values()]
+    .filter((g) => g.length >= 2)
+    .map((g) => ({
+      scenario: g[0].scenario,
+      estimator: g[0].estimator,
+      bias: fitRate(g.map((c) => ({ n: c.n, value: Math.abs(c.scores.bias.value), se: c.scores.bias.se }))),
+      rmse: fitRate(g.map((c) => ({ n: c.n, value: c.scores.rmse.value, se: c.scores.rmse.se }))),
+    }));
+}
+
+export function groupName(info: ScenarioInfo): string {
+  return `d=${info.dim}/${info.tails}`;
+}
+
+function overall(rankings: Ranking[], scenarios: Map<string, ScenarioInfo>): OverallRank[] {
+  const table = new Map<string, Map<string, { sum: number; count: number }>>();
+  for (const ranking of rankings) {
+    if (ranking.perturbation !== null) continue;
+    const group = groupName(scenarios.get(ranking.scenario)!);
+    for (const entry of ranking.entries) {
+      if (!table.has(entry.estimator)) table.set(entry.estimator, new Map());
+      const row = table.get(entry.estimator)!;
+      const cell = row.get(group) ?? { sum: 0, count: 0 };
+      cell.sum += entry.rank;
+      cell.count += 1;
+      row.set(group, cell);
+    }
+  }
+  return [...table.entries()].map(([estimator, row]) => ({
+    estimator,
+    groups: Object.fromEntries([...row.entries()].map(([g, { sum, count }]) => [g, { meanRank: sum / count, rankings: count }])),
+  }));
+}
+
+/** JSON with NaN and ±Infinity written as null (JSON has no such numbers). */
+export function toJson(value: unknown): string {
+  return JSON.stringify(value, (_k, v: unknown) => (typeof v === 'number' && !Number.isFinite(v) ? null : v), 1);
+}
+
+/** Writes to a temporary name in the same directory, then renames: readers never see half a file. */
+export function writeFileAtomic(path: string, text: string): void {
+  mkdirSync(dirname(path), { recursive: true });
+  const temporary = `${path}.${process.pid}.tmp`;
+  writeFileSync(temporary, text);
+  renameSync(temporary, path);
+}
+
+export function writeRunFile(path: string, run: RunFile): void {
+  writeFileAtomic(path, `${toJson(run)}\n`);
+}
+
+const ajv = new Ajv2020({ allErrors: false, strict: false });
+const validateRun = ajv.compile(runSchema);
+
+export function runFileErrors(value: unknown): string | null {
+  if (validateRun(value)) return null;
+  const e = validateRun.errors?.[0];
+  return e ? `${e.instancePath || '(root)'} ${e.message ?? 'is not valid'}` : 'is not valid';
+}
+
+/** Reads and checks a run file: wrong kind, another schema version, or a broken file is a clear usage error. */
+export function readRunFile(path: string): RunFile {
+  let text: string;
+  try {
+    text = readFileSync(path, 'utf8');
+  } catch (error) {
+    throw new UsageError(`cannot read run file ${path}: ${(error as NodeJS.ErrnoException).code ?? String(error)}`);
+  }
+  let value: { kind?: unknown; schemaVersion?: unknown };
+  try {
+    value = JSON.parse(text) as typeof value;
+  } catch (error) {
+    throw new UsageError(`${path} is not valid JSON (${(error as Error).message}); is it a complete hhat run file?`);
+  }
+  if (typeof value !== 'object' || value === null || value.kind !== 'hhat-run') throw new UsageError(`${path} is not an hhat run file (no "kind": "hhat-run")`);
+  if (value.schemaVersion !== SCHEMA_VERSION) {
+    throw new UsageError(`${path} has schemaVersion ${String(value.schemaVersion)}; this hhat reads version ${SCHEMA_VERSION}; rerun its plan with this version`);
+  }
+  const problem = runFileErrors(value);
+  if (problem) throw new UsageError(`${path} does not match the run file schema: ${problem}`);
+  return value as unknown as RunFile;
+}
+
+export type { Estimate };

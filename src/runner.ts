@@ -1,0 +1,273 @@
+/**
+ * Runs a plan's units on worker threads, appending each finished unit to a checkpoint so an interrupted run
+ * resumes without recomputing anything, and reporting progress as it goes.
+ */
+import { appendFileSync, existsSync, readFileSync, writeFileSync } from 'node:fs';
+import { availableParallelism } from 'node:os';
+import { Worker } from 'node:worker_threads';
+import { UsageError } from './errors.js';
+import { buildContext } from './context.js';
+import { planFingerprint, type Plan } from './plan.js';
+import { executeUnit, planUnits, type Skip, type Unit, type UnitResult } from './work.js';
+
+export interface Shard {
+  /** 1-based. */
+  index: number;
+  count: number;
+}
+
+export interface Progress {
+  unitsDone: number;
+  unitsTotal: number;
+  cellsDone: number;
+  cellsTotal: number;
+  failures: number;
+  elapsedMs: number;
+  /** Estimated from the cost of the units done so far; null until something has finished. */
+  remainingMs: number | null;
+}
+
+export interface RunOptions {
+  workers?: number;
+  shard?: Shard;
+  /** Append-only record of finished units; required for --resume. */
+  checkpointPath?: string;
+  resume?: boolean;
+  onProgress?: (progress: Progress) => void;
+  signal?: AbortSignal;
+}
+
+export interface RunOutcome {
+  plan: Plan;
+  fingerprint: string;
+  units: Unit[];
+  /** Indices of the units this run (or shard) owns. */
+  owned: number[];
+  results: Map<number, UnitResult>;
+  skipped: Skip[];
+  wallMs: number;
+  workers: number;
+  resumedUnits: number;
+  interrupted: boolean;
+}
+
+export function defaultWorkers(): number {
+  return Math.max(1, availableParallelism());
+}
+
+/** Units owned by shard i of N: round-robin over the plan's units ordered by cost, so shards balance. */
+export function shardUnits(units: Unit[], shard?: Shard): number[] {
+  const all = units.map((u) => u.index);
+  if (!shard) return all;
+  const byCost = [...units].sort((a, b) => b.cost - a.cost || a.index - b.index);
+  return byCost.filter((_, i) => i % shard.count === shard.index - 1).map((u) => u.index).sort((a, b) => a - b);
+}
+
+interface CheckpointHeader {
+  kind: 'hhat-checkpoint';
+  version: 1;
+  fingerprint: string;
+  shard: Shard | null;
+}
+
+function serialiseResult(result: UnitResult): string {
+  return JSON.stringify({
+    unit: result.unit,
+    estimates: result.estimates.map((variant) => variant.map((values) => Array.from(values, (v) => (Number.isNaN(v) ? null : v)))),
+    timeMs: result.timeMs,
+    failures: result.failures,
+  });
+}
+
+function parseResult(line: string): UnitResult {
+  const raw = JSON.parse(line) as { unit: number; estimates: (number | null)[][][]; timeMs: number[][]; failures: UnitResult['failures'] };
+  return {
+    unit: raw.unit,
+    estimates: raw.estimates.map((variant) => variant.map((values) => Float64Array.from(values, (v) => (v === null ? NaN : v)))),
+    timeMs: raw.timeMs,
+    failures: raw.failures,
+  };
+}
+
+function sameShard(a: Shard | null, b: Shard | null): boolean {
+  return (a === null && b === null) || (a !== null && b !== null && a.index === b.index && a.count === b.count);
+}
+
+/** Loads finished units from a checkpoint; a torn last line (a crash mid-write) is ignored. */
+function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null): Map<number, UnitResult> {
+  const lines = readFileSync(path, 'utf8').split('\n').filter((l) => l.trim() !== '');
+  const done = new Map<number, UnitResult>();
+  if (!lines.length) return done;
+  let header: CheckpointHeader;
+  try {
+    header = JSON.parse(lines[0]) as CheckpointHeader;
+  } catch {
+    throw new UsageError(`${path} is not an hhat checkpoint; delete it or choose another --out`);
+  }
+  if (header.kind !== 'hhat-checkpoint') throw new UsageError(`${path} is not an hhat checkpoint; delete it or choose another --out`);
+  if (header.fingerprint !== fingerprint || !sameShard(header.shard, shard)) {
+    throw new UsageError(`${path} belongs to a different plan or shard; run without --resume after deleting it, or resume with the plan that made it`);
+  }
+  for (const line of lines.slice(1)) {
+    try {
+      const result = parseResult(line);
+      done.set(result.unit, result);
+    } catch {
+      // An interrupted write leaves at most one partial line; that unit simply runs again.
+    }
+  }
+  return done;
+}
+
+function workerEntry(): URL {
+  // From the TypeScript sources (tests, tsx) the worker needs the TypeScript loader; built code runs as is.
+  return import.meta.url.endsWith('.ts') ? new URL('./dev-worker.mjs', import.meta.url) : new URL('./worker.js', import.meta.url);
+}
+
+export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<RunOutcome> {
+  const started = performance.now();
+  const context = buildContext(plan);
+  const fingerprint = planFingerprint(context.plan);
+  const { units, skipped } = planUnits(context.plan, context.scenarios, context.estimators);
+  const owned = shardUnits(units, options.shard);
+  const shard = options.shard ?? null;
+
+  const results = new Map<number, UnitResult>();
+  if (options.checkpointPath) {
+    const exists = existsSync(options.checkpointPath);
+    if (options.resume && exists) {
+      for (const [k, v] of loadCheckpoint(options.checkpointPath, fingerprint, shard)) if (owned.includes(k)) results.set(k, v);
+    } else if (!options.resume && exists) {
+      throw new UsageError(`${options.checkpointPath} exists from an interrupted run; add --resume to continue it, or delete it to start over`);
+    }
+    if (!exists || !options.resume) {
+      const header: CheckpointHeader = { kind: 'hhat-checkpoint', version: 1, fingerprint, shard };
+      writeFileSync(options.checkpointPath, `${JSON.stringify(header)}\n`);
+    }
+  }
+  const resumedUnits = results.size;
+
+  // Cells are (scenario, n) groups × estimators; a group is done when all its owned units are.
+  const groupOf = (u: Unit) => `${u.scenario}|${u.n}`;
+  const groupUnits = new Map<string, number>();
+  const groupEstimators = new Map<string, number>();
+  for (const i of owned) {
+    const u = units[i];
+    groupUnits.set(groupOf(u), (groupUnits.get(groupOf(u)) ?? 0) + 1);
+    groupEstimators.set(groupOf(u), u.estimators.length * (1 + context.plan.perturbations.length));
+  }
+  const groupDone = new Map<string, number>();
+  let cellsDone = 0;
+  let failures = 0;
+  let costDone = 0;
+  const costTotal = owned.reduce((s, i) => s + units[i].cost, 0);
+  let costDoneThisRun = 0;
+  const cellsTotal = [...groupEstimators.values()].reduce((a, b) => a + b, 0);
+  const record = (result: UnitResult, fresh: boolean) => {
+    results.set(result.unit, result);
+    const u = units[result.unit];
+    const g = groupOf(u);
+    const count = (groupDone.get(g) ?? 0) + 1;
+    groupDone.set(g, count);
+    if (count === groupUnits.get(g)) cellsDone += groupEstimators.get(g)!;
+    failures += result.failures.length;
+    costDone += u.cost;
+    if (fresh) {
+      costDoneThisRun += u.cost;
+      if (options.checkpointPath) appendFileSync(options.checkpointPath, `${serialiseResult(result)}\n`);
+    }
+    const elapsedMs = performance.now() - started;
+    options.onProgress?.({
+      unitsDone: results.size,
+      unitsTotal: owned.length,
+      cellsDone,
+      cellsTotal,
+      failures,
+      elapsedMs,
+      remainingMs: costDoneThisRun > 0 ? (elapsedMs * (costTotal - costDone)) / costDoneThisRun : null,
+    });
+  };
+  for (const r of [...results.values()]) {
+    results.delete(r.unit);
+    record(r, false);
+  }
+
+  const pending = owned.filter((i) => !results.has(i)).map((i) => units[i]);
+  // Largest first, so the last units to finish are small ones and workers idle least.
+  pending.sort((a, b) => b.cost - a.cost || a.index - b.index);
+  const workers = Math.max(1, Math.min(options.workers ?? defaultWorkers(), pending.length || 1));
+  let interrupted = false;
+
+  if (workers === 1 || pending.length <= 1) {
+    for (const unit of pending) {
+      if (options.signal?.aborted) {
+        interrupted = true;
+        break;
+      }
+      record(executeUnit(unit, context), true);
+      // Yield so a signal handler can run between units.
+      await new Promise((resolve) => setImmediate(resolve));
+    }
+  } else {
+    interrupted = await runOnThreads(context.plan, pending, workers, (r) => record(r, true), options.signal);
+  }
+  return {
+    plan: context.plan,
+    fingerprint,
+    units,
+    owned,
+    results,
+    skipped,
+    wallMs: performance.now() - started,
+    workers,
+    resumedUnits,
+    interrupted,
+  };
+}
+
+function runOnThreads(plan: Plan, queue: Unit[], count: number, onResult: (r: UnitResult) => void, signal?: AbortSignal): Promise<boolean> {
+  return new Promise((resolve, reject) => {
+    const threads: Worker[] = [];
+    let next = 0;
+    let active = 0;
+    let finished = false;
+    const stopAll = () => {
+      for (const t of threads) void t.terminate();
+    };
+    const finish = (interrupted: boolean, error?: unknown) => {
+      if (finished) return;
+      finished = true;
+      stopAll();
+      if (error) reject(error);
+      else resolve(interrupted);
+    };
+    signal?.addEventListener('abort', () => finish(true), { once: true });
+    const feed = (thread: Worker) => {
+      if (signal?.aborted) return finish(true);
+      if (next < queue.length) {
+        active++;
+        thread.postMessage(queue[next++]);
+      } else if (active === 0) {
+        finish(false);
+      }
+    };
+    for (let i = 0; i < count; i++) {
+      const thread = new Worker(workerEntry(), { workerData: { plan } });
+      threads.push(thread);
+      thread.on('message', (message: UnitResult | { ready: true }) => {
+        if ('ready' in message) return feed(thread);
+        active--;
+        try {
+          onResult(message);
+        } catch (error) {
+          return finish(false, error);
+        }
+        feed(thread);
+      });
+      thread.on('error', (error) => finish(false, error));
+      thread.on('exit', (code) => {
+        if (!finished && code !== 0) finish(false, new Error(`a worker thread stopped with exit code ${code}`));
+      });
+    }
+  });
+}

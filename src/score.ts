@@ -1,0 +1,156 @@
+/**
+ * Scores of a cell's replicate estimates against the true value, each with its Monte-Carlo standard error.
+ *
+ * Standard errors use the delta method on replicate moments (no resampling, so they are deterministic):
+ *   bias:  SD/√m;
+ *   SD:    √Var(s²)/(2s) with Var(s²) ≈ (μ₄ − σ⁴(m−3)/(m−1))/m (the large-sample variance of the sample variance);
+ *   RMSE:  SE(MSE)/(2·RMSE) with SE(MSE) = SD of the squared errors/√m;
+ *   MAE:   SD of the absolute errors/√m;
+ *   failure rate: √(p(1−p)/R).
+ * m counts successful replicates, R all replicates.
+ */
+
+export interface Estimate {
+  value: number;
+  se: number;
+}
+
+export interface CellScores {
+  replicates: number;
+  successes: number;
+  failures: number;
+  failureRate: Estimate;
+  mean: Estimate;
+  bias: Estimate;
+  sd: Estimate;
+  rmse: Estimate;
+  mae: Estimate;
+  /** n·Var(Ĥ)/Var(log f(X)): 1 is the asymptotic best any estimator can do. Null when Var(log f) is unknown or 0. */
+  efficiency: Estimate | null;
+}
+
+const NONE: Estimate = { value: NaN, se: NaN };
+
+/** Scores from replicate estimates (NaN marks a failed replicate). */
+export function scoreCell(estimates: ArrayLike<number>, truth: number, n: number, logDensityVariance?: number): CellScores {
+  const replicates = estimates.length;
+  const values: number[] = [];
+  for (let i = 0; i < replicates; i++) if (Number.isFinite(estimates[i])) values.push(estimates[i]);
+  const m = values.length;
+  const failures = replicates - m;
+  const p = replicates ? failures / replicates : 0;
+  const failureRate = { value: p, se: replicates ? Math.sqrt((p * (1 - p)) / replicates) : NaN };
+  if (m < 2) {
+    const single = m === 1 ? { value: values[0], se: NaN } : NONE;
+    return {
+      replicates,
+      successes: m,
+      failures,
+      failureRate,
+      mean: single,
+      bias: m === 1 ? { value: values[0] - truth, se: NaN } : NONE,
+      sd: NONE,
+      rmse: m === 1 ? { value: Math.abs(values[0] - truth), se: NaN } : NONE,
+      mae: m === 1 ? { value: Math.abs(values[0] - truth), se: NaN } : NONE,
+      efficiency: null,
+    };
+  }
+  // Centre at the truth first: errors are small numbers even when the truth is large, which keeps the sums exact-ish.
+  let sumError = 0;
+  for (const v of values) sumError += v - truth;
+  const meanError = sumError / m;
+  let m2 = 0;
+  let m4 = 0;
+  let sumSq = 0;
+  let sumSq2 = 0;
+  let sumAbs = 0;
+  for (const v of values) {
+    const e = v - truth;
+    const c = e - meanError;
+    m2 += c * c;
+    m4 += c * c * c * c;
+    sumSq += e * e;
+    sumSq2 += e * e * e * e;
+    sumAbs += Math.abs(e);
+  }
+  const variance = m2 / (m - 1);
+  const sd = Math.sqrt(variance);
+  const centralFourth = m4 / m;
+  const populationVariance = m2 / m;
+  const varianceOfVariance = Math.max(0, (centralFourth - (populationVariance * populationVariance * (m - 3)) / (m - 1)) / m);
+  const sdSe = sd > 0 ? Math.sqrt(varianceOfVariance) / (2 * sd) : 0;
+  const mse = sumSq / m;
+  const squaredErrorVariance = Math.max(0, (sumSq2 / m - mse * mse) * (m / (m - 1)));
+  const rmse = Math.sqrt(mse);
+  const rmseSe = rmse > 0 ? Math.sqrt(squaredErrorVariance / m) / (2 * rmse) : 0;
+  const mae = sumAbs / m;
+  const absVariance = Math.max(0, (sumSq / m - mae * mae) * (m / (m - 1)));
+  let efficiency: Estimate | null = null;
+  if (logDensityVariance !== undefined && logDensityVariance > 0) {
+    const scale = n / logDensityVariance;
+    efficiency = { value: scale * variance, se: scale * Math.sqrt(varianceOfVariance) };
+  }
+  return {
+    replicates,
+    successes: m,
+    failures,
+    failureRate,
+    mean: { value: truth + meanError, se: sd / Math.sqrt(m) },
+    bias: { value: meanError, se: sd / Math.sqrt(m) },
+    sd: { value: sd, se: sdSe },
+    rmse: { value: rmse, se: rmseSe },
+    mae: { value: mae, se: Math.sqrt(absVariance / m) },
+    efficiency,
+  };
+}
+
+export interface RateFit {
+  /** Slope of log(metric) on log n: −½ is the parametric rate. */
+  slope: number;
+  /** Standard error from the metric's own Monte-Carlo errors (weighted least squares with known variances). */
+  se: number;
+  sizes: number;
+}
+
+/**
+ * Fits log(metric) = a + slope·log n by weighted least squares, with weights 1/Var(log metric) from the delta
+ * method (Var(log x) ≈ (SE/x)²). Points whose metric is not clearly above zero (value < 2·SE) are left out,
+ * since their logarithm is noise; null when fewer than two points remain.
+ */
+export function fitRate(points: { n: number; value: number; se: number }[]): RateFit | null {
+  const usable = points.filter((p) => p.value > 0 && Number.isFinite(p.se) && p.value > 2 * p.se);
+  if (usable.length < 2) return null;
+  const xs = usable.map((p) => Math.log(p.n));
+  const ys = usable.map((p) => Math.log(p.value));
+  const ws = usable.map((p) => {
+    const rel = p.se / p.value;
+    return rel > 0 ? 1 / (rel * rel) : 1e12;
+  });
+  const sw = ws.reduce((a, b) => a + b, 0);
+  const mx = ws.reduce((s, w, i) => s + w * xs[i], 0) / sw;
+  const my = ws.reduce((s, w, i) => s + w * ys[i], 0) / sw;
+  let sxx = 0;
+  let sxy = 0;
+  for (let i = 0; i < xs.length; i++) {
+    sxx += ws[i] * (xs[i] - mx) ** 2;
+    sxy += ws[i] * (xs[i] - mx) * (ys[i] - my);
+  }
+  if (sxx === 0) return null;
+  return { slope: sxy / sxx, se: Math.sqrt(1 / sxx), sizes: usable.length };
+}
+
+/**
+ * Paired comparison of two estimators on the same draws: the mean difference of squared errors and its SE.
+ * Replicates where either failed are left out. Positive: the first has the larger squared error.
+ */
+export function pairedSquaredErrorDifference(a: ArrayLike<number>, b: ArrayLike<number>, truth: number): Estimate & { pairs: number } {
+  const diffs: number[] = [];
+  for (let i = 0; i < Math.min(a.length, b.length); i++) {
+    if (Number.isFinite(a[i]) && Number.isFinite(b[i])) diffs.push((a[i] - truth) ** 2 - (b[i] - truth) ** 2);
+  }
+  const m = diffs.length;
+  if (m < 2) return { value: NaN, se: NaN, pairs: m };
+  const mean = diffs.reduce((s, d) => s + d, 0) / m;
+  const variance = diffs.reduce((s, d) => s + (d - mean) ** 2, 0) / (m - 1);
+  return { value: mean, se: Math.sqrt(variance / m), pairs: m };
+}

@@ -1,0 +1,147 @@
+/**
+ * Terminal tables of a run: per scenario, RMSE ± Monte-Carlo SE and rank at each n; the overall average
+ * ranks by dimension and tail class; optionally every score of every cell.
+ */
+import { formatValue, renderTable, toBase, type Base } from './format.js';
+import { getEstimator } from '../estimators/index.js';
+import { parseSpec } from './spec.js';
+import { groupName, type Cell, type RunFile } from './results.js';
+
+/** The estimator's id plus only the settings that differ from their defaults. */
+export function estimatorLabel(spec: string): string {
+  const { id, values } = parseSpec(spec, 'estimator');
+  let defaults: Record<string, string> = {};
+  try {
+    defaults = Object.fromEntries(getEstimator(id).settings.map((s) => [s.name, String(s.default)]));
+  } catch {
+    return spec;
+  }
+  const changed = Object.entries(values).filter(([k, v]) => defaults[k] !== v);
+  return changed.length ? `${id}:${changed.map(([k, v]) => `${k}=${v}`).join(',')}` : id;
+}
+
+function pm(value: number, se: number, base: Base, digits = 3): string {
+  if (!Number.isFinite(value)) return '–';
+  return `${formatValue(toBase(value, base), digits)} ± ${Number.isFinite(se) ? formatValue(toBase(se, base), 2) : '?'}`;
+}
+
+export function scenarioTables(run: RunFile, base: Base): string {
+  const out: string[] = [];
+  for (const info of run.scenarios) {
+    const cells = run.cells.filter((c) => c.scenario === info.id && c.perturbation === null);
+    if (!cells.length) continue;
+    const sizes = [...new Set(cells.map((c) => c.n))].sort((a, b) => a - b);
+    const estimators = [...new Set(cells.map((c) => c.estimator))];
+    const rankOf = new Map<string, string>();
+    for (const ranking of run.rankings.filter((r) => r.scenario === info.id && r.perturbation === null)) {
+      const tiedBelow = new Set<number>();
+      ranking.entries.forEach((_e, i) => {
+        if (i + 1 < ranking.entries.length && ranking.entries[i + 1].tiedWithAbove) tiedBelow.add(i);
+      });
+      ranking.entries.forEach((e, i) => rankOf.set(`${e.estimator}|${ranking.n}`, `${e.rank}${e.tiedWithAbove || tiedBelow.has(i) ? '=' : ''}`));
+    }
+    const largest = sizes[sizes.length - 1];
+    const finalRank = (spec: string) => {
+      const ranking = run.rankings.find((r) => r.scenario === info.id && r.perturbation === null && r.n === largest);
+      return ranking?.entries.find((e) => e.estimator === spec)?.rank ?? Number.MAX_SAFE_INTEGER;
+    };
+    estimators.sort((a, b) => finalRank(a) - finalRank(b));
+    const rows = estimators.map((spec) => {
+      const row: string[] = [estimatorLabel(spec)];
+      for (const n of sizes) {
+        const cell = cells.find((c) => c.estimator === spec && c.n === n);
+        if (!cell) {
+          row.push('');
+          continue;
+        }
+        const fail = cell.scores.failures ? ` (${cell.scores.failures} failed)` : '';
+        row.push(`${pm(cell.scores.rmse.value, cell.scores.rmse.se, base)}  ${rankOf.get(`${spec}|${n}`) ?? '–'}${fail}`);
+      }
+      const atLargest = cells.find((c) => c.estimator === spec && c.n === largest);
+      row.push(atLargest ? pm(atLargest.scores.bias.value, atLargest.scores.bias.se, base) : '');
+      const rate = run.rates.find((r) => r.scenario === info.id && r.estimator === spec)?.rmse;
+      row.push(rate ? `${rate.slope.toFixed(2)} ± ${rate.se.toFixed(2)}` : '–');
+      return row;
+    });
+    const heading = `${info.id}  (d=${info.dim}, ${info.support} support, ${info.tails} tails; truth ${formatValue(toBase(info.truth, base), 7)} ${base})`;
+    out.push(heading);
+    out.push(
+      renderTable(
+        ['estimator', ...sizes.map((n) => `RMSE ± SE  rank, n=${n}`), `bias ± SE, n=${largest}`, 'RMSE slope vs n'],
+        rows,
+        { align: ['left', ...sizes.map(() => 'right' as const), 'right', 'right'] },
+      ),
+    );
+  }
+  return out.join('\n');
+}
+
+export function overallTable(run: RunFile): string {
+  if (!run.overall.length) return '';
+  const groups = [...new Set(run.scenarios.map(groupName))].filter((g) => run.overall.some((o) => o.groups[g]));
+  const rows = run.overall.map((o) => {
+    const ranks = groups.map((g) => o.groups[g]);
+    const all = ranks.filter(Boolean) as { meanRank: number; rankings: number }[];
+    const mean = all.reduce((s, r) => s + r.meanRank * r.rankings, 0) / Math.max(1, all.reduce((s, r) => s + r.rankings, 0));
+    return { label: estimatorLabel(o.estimator), mean, cells: ranks.map((r) => (r ? r.meanRank.toFixed(1) : '')) };
+  });
+  rows.sort((a, b) => a.mean - b.mean);
+  return [
+    'Average rank by RMSE (1 = best) per dimension and tail class, over scenarios and sample sizes:',
+    renderTable(['estimator', ...groups, 'all'], rows.map((r) => [r.label, ...r.cells, r.mean.toFixed(1)]), {
+      align: ['left', ...groups.map(() => 'right' as const), 'right'],
+    }),
+  ].join('\n');
+}
+
+export function detailTable(run: RunFile, base: Base): string {
+  const rows = run.cells.map((c: Cell) => [
+    c.scenario.length > 40 ? `${c.scenario.slice(0, 39)}…` : c.scenario,
+    estimatorLabel(c.estimator),
+    c.n,
+    pm(c.scores.bias.value, c.scores.bias.se, base),
+    pm(c.scores.sd.value, c.scores.sd.se, base),
+    pm(c.scores.rmse.value, c.scores.rmse.se, base),
+    pm(c.scores.mae.value, c.scores.mae.se, base),
+    c.scores.efficiency ? pm(c.scores.efficiency.value, c.scores.efficiency.se, 'nats', 2) : '–',
+    `${c.scores.failures}/${c.scores.replicates}`,
+    formatValue(c.timing.meanMs, 3),
+  ]);
+  return renderTable(['scenario', 'estimator', 'n', 'bias', 'SD', 'RMSE', 'MAE', 'efficiency', 'failed', 'ms/estimate'], rows, {
+    align: ['left', 'left', 'right', 'right', 'right', 'right', 'right', 'right', 'right', 'right'],
+  });
+}
+
+/** The score table as CSV (nats or bits), one row per cell. */
+export function scoresCsv(run: RunFile, base: Base): string {
+  const header = ['scenario', 'estimator', 'n', 'perturbation', 'truth', 'replicates', 'failures', 'mean', 'mean_se', 'bias', 'bias_se', 'sd', 'sd_se', 'rmse', 'rmse_se', 'mae', 'mae_se', 'efficiency', 'efficiency_se', 'ms_per_estimate', 'unit'];
+  const truth = new Map(run.scenarios.map((s) => [s.id, s.truth]));
+  const q = (s: string) => (/[",\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s);
+  const num = (x: number | undefined | null, convert = true) => (x === undefined || x === null || !Number.isFinite(x) ? '' : String(convert ? toBase(x, base) : x));
+  const lines = run.cells.map((c) =>
+    [
+      q(c.scenario),
+      q(c.estimator),
+      c.n,
+      q(c.perturbation ?? ''),
+      num(truth.get(c.scenario)),
+      c.scores.replicates,
+      c.scores.failures,
+      num(c.scores.mean.value),
+      num(c.scores.mean.se),
+      num(c.scores.bias.value),
+      num(c.scores.bias.se),
+      num(c.scores.sd.value),
+      num(c.scores.sd.se),
+      num(c.scores.rmse.value),
+      num(c.scores.rmse.se),
+      num(c.scores.mae.value),
+      num(c.scores.mae.se),
+      num(c.scores.efficiency?.value, false),
+      num(c.scores.efficiency?.se, false),
+      num(c.timing.meanMs, false),
+      base,
+    ].join(','),
+  );
+  return `${header.join(',')}\n${lines.join('\n')}\n`;
+}

@@ -1,0 +1,243 @@
+/**
+ * The benchmark harness: determinism across workers, shards and resumes; scores against independent
+ * computations; plan validation; failures counted without stopping the run.
+ */
+import { mkdtempSync, existsSync, readFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { describe, expect, it } from 'vitest';
+import { Ajv2020 } from 'ajv/dist/2020.js';
+import normalRandom from '@stdlib/random-base-normal';
+import { checkPlanShape, planFingerprint, resolvePlan, type Plan } from '../src/plan.js';
+import { runPlan } from '../src/runner.js';
+import { assembleRun, readRunFile, writeRunFile, type RunFile } from '../src/results.js';
+import { mergeShards } from '../src/merge.js';
+import { fitRate, scoreCell } from '../src/score.js';
+import { registerEstimator } from '../estimators/index.js';
+import { EstimateError, UsageError } from '../src/errors.js';
+import { rngFromSeed } from '../src/rng.js';
+import { parseShard } from '../src/shard.js';
+import runSchema from '../src/schemas/run.schema.json' with { type: 'json' };
+
+const dir = mkdtempSync(join(tmpdir(), 'hhat-harness-'));
+
+function smallPlan(): Plan {
+  return resolvePlan({
+    scenarios: ['normal', 'exponential', 'gaussian:dim=2'],
+    estimators: ['kozachenko-leonenko', 'vasicek', 'gaussian', 'histogram:bins=sturges'],
+    sampleSizes: [50, 400],
+    replicates: 12,
+    seed: 4242,
+  }).plan;
+}
+
+const estimatesOf = (run: RunFile) => run.cells.map((c) => `${c.scenario}|${c.estimator}|${c.n}|${JSON.stringify(c.estimates)}`);
+
+describe('determinism', () => {
+  it('1 and 2 workers, 3 shards merged, and an interrupted-then-resumed run give identical estimates', async () => {
+    const plan = smallPlan();
+    const one = assembleRun(await runPlan(plan, { workers: 1 }), null);
+    const two = assembleRun(await runPlan(plan, { workers: 2 }), null);
+
+    const shards = [];
+    for (let i = 1; i <= 3; i++) {
+      const shard = { index: i, count: 3 };
+      const path = join(dir, `shard-${i}.json`);
+      writeRunFile(path, assembleRun(await runPlan(plan, { workers: 1, shard }), shard));
+      shards.push({ path, run: readRunFile(path) });
+    }
+    const merged = mergeShards(shards);
+
+    const checkpointPath = join(dir, 'resume.checkpoint.jsonl');
+    const controller = new AbortController();
+    const first = await runPlan(plan, {
+      workers: 1,
+      checkpointPath,
+      signal: controller.signal,
+      onProgress: (p) => {
+        if (p.unitsDone >= 3) controller.abort();
+      },
+    });
+    expect(first.interrupted).toBe(true);
+    expect(first.results.size).toBeLessThan(first.units.length);
+    const resumed = await runPlan(plan, { workers: 2, checkpointPath, resume: true });
+    expect(resumed.resumedUnits).toBe(first.results.size);
+    const resumedRun = assembleRun(resumed, null);
+
+    const reference = estimatesOf(one);
+    expect(reference.length).toBe(3 * 2 * 4 - 2 /* vasicek skips the 2-D scenario at both n */);
+    expect(estimatesOf(two)).toEqual(reference);
+    expect(estimatesOf(merged)).toEqual(reference);
+    expect(estimatesOf(resumedRun)).toEqual(reference);
+    // Scores follow from the estimates, so they agree too.
+    expect(merged.cells.map((c) => c.scores.rmse.value)).toEqual(one.cells.map((c) => c.scores.rmse.value));
+    expect(merged.rankings).toEqual(one.rankings);
+  });
+
+  it('a checkpoint from another plan is refused on resume, and an existing one is never overwritten silently', async () => {
+    const plan = smallPlan();
+    const checkpointPath = join(dir, 'other.checkpoint.jsonl');
+    const controller = new AbortController();
+    await runPlan(plan, { workers: 1, checkpointPath, signal: controller.signal, onProgress: () => controller.abort() });
+    await expect(runPlan({ ...plan, seed: 1 }, { workers: 1, checkpointPath, resume: true })).rejects.toThrow(/belongs to a different plan/);
+    await expect(runPlan(plan, { workers: 1, checkpointPath })).rejects.toThrow(/exists from an interrupted run; add --resume/);
+  });
+
+  it('merge refuses incomplete or mixed shard sets', async () => {
+    const plan = smallPlan();
+    const path1 = join(dir, 'm1.json');
+    writeRunFile(path1, assembleRun(await runPlan(plan, { workers: 1, shard: { index: 1, count: 2 } }), { index: 1, count: 2 }));
+    const run1 = readRunFile(path1);
+    expect(() => mergeShards([{ path: path1, run: run1 }])).toThrow(/shard 2\/2 missing/);
+    expect(() => mergeShards([{ path: path1, run: run1 }, { path: path1, run: run1 }])).toThrow(/given twice/);
+  });
+});
+
+describe('run files', () => {
+  it('validate against the shipped JSON Schema and keep raw estimates and provenance', async () => {
+    const run = assembleRun(await runPlan(smallPlan(), { workers: 1 }), null);
+    const path = join(dir, 'run.json');
+    writeRunFile(path, run);
+    const parsed = JSON.parse(readFileSync(path, 'utf8'));
+    const validate = new Ajv2020({ strict: false }).compile(runSchema);
+    expect(validate(parsed), JSON.stringify(validate.errors)).toBe(true);
+    expect(parsed.schemaVersion).toBe(1);
+    expect(parsed.environment.node).toBe(process.version);
+    expect(parsed.fingerprint).toBe(planFingerprint(run.plan));
+    expect(parsed.cells[0].estimates).toHaveLength(12);
+    expect(existsSync(`${path}.${process.pid}.tmp`)).toBe(false);
+  });
+
+  it('an older schema version or a broken file is a clear error', () => {
+    const old = join(dir, 'old.json');
+    writeRunFile(old, { kind: 'hhat-run', schemaVersion: 0 } as unknown as RunFile);
+    expect(() => readRunFile(old)).toThrow(/schemaVersion 0; this hhat reads version 1/);
+    const broken = join(dir, 'broken.json');
+    writeRunFile(broken, { kind: 'hhat-run' } as unknown as RunFile);
+    expect(() => readRunFile(broken)).toThrow(UsageError);
+  });
+});
+
+describe('scores', () => {
+  // Estimates drawn from N(truth + 0.3, 0.5²): the true bias is 0.3, SD 0.5, RMSE √(0.09 + 0.25).
+  const draw = normalRandom.factory(0, 1, { prng: rngFromSeed('scores') });
+  const truth = 2;
+  const make = (m: number) => Float64Array.from({ length: m }, () => truth + 0.3 + 0.5 * draw());
+
+  it('match a direct two-pass computation on a synthetic set', () => {
+    const values = make(40);
+    const s = scoreCell(values, truth, 1000, 0.5);
+    // Independent computation: textbook formulas, written out separately.
+    const m = values.length;
+    const mean = values.reduce((a, b) => a + b, 0) / m;
+    const sd = Math.sqrt(values.reduce((a, v) => a + (v - mean) ** 2, 0) / (m - 1));
+    const rmse = Math.sqrt(values.reduce((a, v) => a + (v - truth) ** 2, 0) / m);
+    const mae = values.reduce((a, v) => a + Math.abs(v - truth), 0) / m;
+    expect(s.mean.value).toBeCloseTo(mean, 12);
+    expect(s.bias.value).toBeCloseTo(mean - truth, 12);
+    expect(s.bias.se).toBeCloseTo(sd / Math.sqrt(m), 12);
+    expect(s.sd.value).toBeCloseTo(sd, 12);
+    expect(s.rmse.value).toBeCloseTo(rmse, 12);
+    expect(s.mae.value).toBeCloseTo(mae, 12);
+    expect(s.efficiency!.value).toBeCloseTo((1000 * sd * sd) / 0.5, 9);
+  });
+
+  it('standard errors match the spread of each score over many independent synthetic sets (Monte Carlo)', () => {
+    const sets = 4000;
+    const m = 50;
+    const bias: number[] = [];
+    const sd: number[] = [];
+    const rmse: number[] = [];
+    const mae: number[] = [];
+    const reported = { bias: 0, sd: 0, rmse: 0, mae: 0 };
+    for (let k = 0; k < sets; k++) {
+      const s = scoreCell(make(m), truth, 100);
+      bias.push(s.bias.value);
+      sd.push(s.sd.value);
+      rmse.push(s.rmse.value);
+      mae.push(s.mae.value);
+      reported.bias += s.bias.se / sets;
+      reported.sd += s.sd.se / sets;
+      reported.rmse += s.rmse.se / sets;
+      reported.mae += s.mae.se / sets;
+    }
+    const spread = (xs: number[]) => {
+      const mu = xs.reduce((a, b) => a + b, 0) / xs.length;
+      return Math.sqrt(xs.reduce((a, x) => a + (x - mu) ** 2, 0) / (xs.length - 1));
+    };
+    // The average reported SE should match the actual SD of the score across sets within ~5%
+    // (the delta method is first-order; at m = 50 its error is a few percent).
+    expect(reported.bias / spread(bias)).toBeGreaterThan(0.95);
+    expect(reported.bias / spread(bias)).toBeLessThan(1.05);
+    for (const [name, xs] of [['sd', sd], ['rmse', rmse], ['mae', mae]] as const) {
+      const ratio = reported[name] / spread(xs);
+      expect(ratio, name).toBeGreaterThan(0.9);
+      expect(ratio, name).toBeLessThan(1.1);
+    }
+    // Sanity against the true values of the generating law.
+    expect(bias.reduce((a, b) => a + b, 0) / sets).toBeCloseTo(0.3, 2);
+    expect(rmse.reduce((a, b) => a + b, 0) / sets).toBeCloseTo(Math.sqrt(0.34), 1);
+  });
+
+  it('failed replicates count as failures and are left out of the other scores', () => {
+    const s = scoreCell([1, NaN, 3, NaN, 2], 2, 10);
+    expect(s.failures).toBe(2);
+    expect(s.successes).toBe(3);
+    expect(s.failureRate.value).toBeCloseTo(0.4, 15);
+    expect(s.bias.value).toBeCloseTo(0, 15);
+  });
+
+  it('fits the RMSE rate: exact power laws give their slope', () => {
+    const points = [100, 1000, 10000].map((n) => ({ n, value: 3 * n ** -0.5, se: 0.05 * 3 * n ** -0.5 }));
+    const fit = fitRate(points)!;
+    expect(fit.slope).toBeCloseTo(-0.5, 12);
+    // With known relative SE 5% per point, WLS gives SE = 0.05/√Σ(x − x̄)²; x = ln n at 3 equally spaced points.
+    const spacing = Math.log(10);
+    expect(fit.se).toBeCloseTo(0.05 / Math.sqrt(2 * spacing * spacing), 12);
+  });
+});
+
+describe('bad input', () => {
+  it('plan files: unknown keys and bad values name the path', () => {
+    expect(() => checkPlanShape({ scenarios: ['normal'], estimators: ['gaussian'], colour: 1 }, 'p.json')).toThrow('p.json: colour: unknown key');
+    expect(() => checkPlanShape({ scenarios: ['normal'], estimators: ['gaussian'], replicates: 1.5 }, 'p.json')).toThrow('p.json: replicates: must be an integer');
+    expect(() => checkPlanShape({ scenarios: [], estimators: ['gaussian'] }, 'p.json')).toThrow('p.json: scenarios: must list at least 1 item(s)');
+    expect(() =>
+      resolvePlan({ scenarios: ['normal'], estimators: ['gaussian', 'vasicek', { id: 'kozachenko-leonenko', settings: { k: 0 } }] }, 'p.json'),
+    ).toThrow('p.json: estimators[2].settings.k: must be an integer ≥ 1');
+    expect(() => resolvePlan({ scenarios: ['normal', 'nope'], estimators: ['gaussian'] }, 'p.json')).toThrow(/p.json: scenarios\[1\]: unknown scenario "nope"/);
+  });
+
+  it('shards: i/N, auto from Slurm, Kubernetes indexed Jobs and CI variables; bad values are errors', () => {
+    expect(parseShard('2/5')).toEqual({ index: 2, count: 5 });
+    expect(parseShard('auto', { SLURM_ARRAY_TASK_ID: '3', SLURM_ARRAY_TASK_MIN: '0', SLURM_ARRAY_TASK_COUNT: '4' })).toEqual({ index: 4, count: 4 });
+    expect(parseShard('auto', { JOB_COMPLETION_INDEX: '0', HHAT_SHARD_COUNT: '3' })).toEqual({ index: 1, count: 3 });
+    expect(parseShard('auto/6', { HHAT_SHARD_INDEX: '6' })).toEqual({ index: 6, count: 6 });
+    expect(() => parseShard('0/3')).toThrow(/out of range/);
+    expect(() => parseShard('auto', {})).toThrow(/found no array-job variables/);
+    expect(() => parseShard('half')).toThrow(/write i\/N/);
+  });
+
+  it('an estimator that throws on one replicate is counted as a failure in its cell and the run goes on', async () => {
+    registerEstimator({
+      id: 'test-fails-on-negative-first-point',
+      family: 'test',
+      quantity: 'entropy',
+      summary: 'fails when the first point is negative',
+      settings: [],
+      dims: [1, 1],
+      reference: 'a test double',
+      estimate: (sample) => {
+        if (sample.data[0] < 0) throw new EstimateError('numeric', 'first point negative');
+        return 1;
+      },
+    });
+    const plan = resolvePlan({ scenarios: ['normal'], estimators: ['test-fails-on-negative-first-point', 'gaussian'], sampleSizes: [20], replicates: 20, seed: 9 }).plan;
+    const run = assembleRun(await runPlan(plan, { workers: 1 }), null);
+    const failing = run.cells.find((c) => c.estimatorId === 'test-fails-on-negative-first-point')!;
+    expect(failing.scores.failures).toBeGreaterThan(0);
+    expect(failing.scores.failures).toBeLessThan(20);
+    expect(failing.failures[0].message).toBe('numeric: first point negative');
+    expect(run.cells.find((c) => c.estimatorId === 'gaussian')!.scores.failures).toBe(0);
+  });
+});
