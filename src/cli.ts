@@ -3,6 +3,8 @@ import { EstimateError, UsageError } from './errors.js';
 import { registerScenariosCommand } from './commands/scenarios.js';
 import { hhatVersion } from './provenance.js';
 import { registerBenchCommand } from './commands/bench.js';
+import { registerEstimatorsCommand } from './commands/estimators.js';
+import { registerEstimateCommand } from './commands/estimate.js';
 
 
 export interface CliIo {
@@ -29,6 +31,8 @@ export function buildProgram(io: CliIo): Command {
     .exitOverride();
   registerBenchCommand(program, io.out, io.err);
   registerScenariosCommand(program, io.out);
+  registerEstimatorsCommand(program, io.out);
+  registerEstimateCommand(program, io.out, io.err);
   for (const command of program.commands) command.exitOverride().configureOutput({ writeOut: io.out, writeErr: io.err });
   return program;
 }
@@ -37,9 +41,13 @@ export function buildProgram(io: CliIo): Command {
 export async function main(argv: string[], io: CliIo = defaultIo): Promise<number> {
   const program = buildProgram(io);
   const debug = argv.includes('--debug');
+  // Commands that finish but report a problem (a failed estimate among several) set process.exitCode.
+  process.exitCode = undefined;
   try {
     await program.parseAsync(argv, { from: 'user' });
-    return 0;
+    const code = typeof process.exitCode === 'number' ? process.exitCode : 0;
+    process.exitCode = undefined;
+    return code;
   } catch (error) {
     if (error instanceof CommanderError) {
       // Commander has already printed its one-line message; help and version exit 0.

@@ -1,0 +1,118 @@
+/**
+ * The command line as a user meets it: catalogs as JSON, estimates of files, one-line errors with exit 2.
+ */
+import { execFileSync, spawnSync } from 'node:child_process';
+import { mkdtempSync, writeFileSync, readFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { describe, expect, it } from 'vitest';
+import normalEntropy from '@stdlib/stats-base-dists-normal-entropy';
+import { main } from '../src/cli.js';
+import { parseScenario } from '../scenarios/index.js';
+import { replicateRng } from '../src/rng.js';
+
+const dir = mkdtempSync(join(tmpdir(), 'hhat-cli-'));
+const bin = join(__dirname, '..', 'bin', 'hhat.js');
+
+async function run(args: string[]): Promise<{ code: number; out: string; err: string }> {
+  let out = '';
+  let err = '';
+  const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
+  return { code, out, err };
+}
+
+describe('hhat scenarios', () => {
+  it('--json lists the catalog with the documented keys', async () => {
+    const { code, out } = await run(['scenarios', '--json']);
+    expect(code).toBe(0);
+    const list = JSON.parse(out) as Record<string, unknown>[];
+    expect(list.length).toBeGreaterThanOrEqual(26);
+    for (const key of ['id', 'family', 'dim', 'params', 'quantity', 'truth', 'truthSource', 'support', 'tails']) expect(list[0]).toHaveProperty(key);
+  });
+
+  it('--bits divides by log 2', async () => {
+    const nats = JSON.parse((await run(['scenarios', '--json', 'normal'])).out)[0].truth;
+    const bits = JSON.parse((await run(['scenarios', '--json', '--bits', 'normal'])).out)[0].truth;
+    expect(nats).toBeCloseTo(normalEntropy(0, 1), 14);
+    expect(bits).toBeCloseTo(nats / Math.LN2, 14);
+  });
+});
+
+describe('hhat estimators', () => {
+  it('--json gives settings, defaults, dimensions and a reference for every estimator', async () => {
+    const list = JSON.parse((await run(['estimators', '--json'])).out) as { id: string; reference: string; settings: unknown[]; dims: unknown[] }[];
+    const ids = list.map((e) => e.id);
+    for (const id of ['histogram', 'vasicek', 'van-es', 'ebrahimi', 'correa', 'kozachenko-leonenko', 'kozachenko-leonenko-weighted', 'kernel', 'gaussian']) expect(ids).toContain(id);
+    for (const e of list) expect(e.reference.length).toBeGreaterThan(20);
+  });
+});
+
+describe('hhat estimate', () => {
+  const scenario = parseScenario('normal:mu=3,sigma=2');
+  const sample = scenario.sample(replicateRng(1, scenario.id, 3000, 0), 3000);
+  const csv = join(dir, 'signal.csv');
+  writeFileSync(csv, `voltage\n${Array.from(sample.data).join('\n')}\n`);
+
+  it('--json has the documented shape with the settings actually used', async () => {
+    const { code, out } = await run(['estimate', csv, '--json', '--estimator', 'kozachenko-leonenko:k=4', '--estimator', 'vasicek']);
+    expect(code).toBe(0);
+    const result = JSON.parse(out);
+    expect(result).toMatchObject({ n: 3000, dim: 1, base: 'nats' });
+    expect(result.estimates[0]).toMatchObject({ estimator: 'kozachenko-leonenko', settings: { k: 4, norm: 'euclidean' } });
+    // m resolved from 'auto' to floor(√3000 + 0.5) = 55.
+    expect(result.estimates[1].settings.m).toBe(55);
+    for (const e of result.estimates) expect(Math.abs(e.value - scenario.truth)).toBeLessThan(0.1);
+  });
+
+  it('bad input is one line and exit code 2', async () => {
+    const cases: [string[], RegExp][] = [
+      [['estimate', join(dir, 'missing.csv')], /cannot read data file .*missing\.csv/],
+      [['estimate', csv, '--estimator', 'nope'], /unknown estimator "nope"; known: /],
+      [['estimate', csv, '--estimator', 'kozachenko-leonenko:k=-1'], /k=-1 is not allowed; k must be an integer ≥ 1/],
+      [['estimate', csv, '--estimator', 'kozachenko-leonenko:q=1'], /unknown setting "q"; allowed: k, norm/],
+      [['estimate', csv, '--columns', '3'], /column 3 does not exist/],
+      [['scenarios', 'gamma:shape=0'], /shape=0 is not allowed; shape must be a number > 0/],
+      [['bench', '--n', '10,x'], /--n: "x" is not allowed/],
+      [['bench', '--workers', '0'], /--workers 0 is not allowed/],
+      [['bench', '--shard', '4/3'], /shard 4 of 3/],
+    ];
+    for (const [args, message] of cases) {
+      const { code, err } = await run(args);
+      expect(code, args.join(' ')).toBe(2);
+      expect(err.trim().split('\n')).toHaveLength(1);
+      expect(err, args.join(' ')).toMatch(message);
+    }
+  });
+
+  it('ties are reported with the repeats found, never as -Infinity', async () => {
+    const tied = join(dir, 'tied.csv');
+    writeFileSync(tied, Array.from({ length: 200 }, (_, i) => String(i % 7)).join('\n'));
+    const { code, out, err } = await run(['estimate', tied, '--json', '--estimator', 'kozachenko-leonenko']);
+    expect(code).toBe(2);
+    const result = JSON.parse(out);
+    expect(result.estimates[0].value).toBeNull();
+    expect(err).toMatch(/193 of 200 rows repeat an earlier row/);
+    // The message may explain that log-distances would be −∞; no value is ever printed as one.
+    expect(out).not.toMatch(/"value": *-?Infinity/);
+  });
+});
+
+describe('the installed command', () => {
+  it('prints help, exits 0; an unknown option exits 2 with one line', () => {
+    const help = execFileSync('node', [bin, '--help']).toString();
+    expect(help).toMatch(/Usage: hhat/);
+    const bad = spawnSync('node', [bin, 'bench', '--frobnicate']);
+    expect(bad.status).toBe(2);
+    expect(bad.stderr.toString()).toMatch(/unknown option '--frobnicate'/);
+  });
+
+  it('runs a small bench end to end and writes a run file', () => {
+    const out = join(dir, 'cli-run.json');
+    const res = spawnSync('node', [bin, 'bench', '--scenario', 'uniform', '--estimator', 'vasicek', '--n', '200', '--replicates', '5', '--out', out, '--workers', '1'], { encoding: 'utf8' });
+    expect(res.status, res.stderr).toBe(0);
+    expect(res.stdout).toMatch(/run file: /);
+    const runFile = JSON.parse(readFileSync(out, 'utf8'));
+    expect(runFile.cells).toHaveLength(1);
+    expect(runFile.cells[0].estimates).toHaveLength(5);
+  });
+});
