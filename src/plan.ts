@@ -170,6 +170,15 @@ export function planFingerprint(plan: Plan): string {
   return createHash('sha256').update(canonical).digest('hex');
 }
 
+/**
+ * sha256 of what determines the samples alone (seed, scenarios, sizes, replicates): two runs with the same
+ * draws fingerprint saw identical draws, so their estimates can be compared pairwise.
+ */
+export function drawsFingerprint(plan: Plan): string {
+  const canonical = JSON.stringify({ scenarios: plan.scenarios, sampleSizes: plan.sampleSizes, replicates: plan.replicates, seed: plan.seed });
+  return createHash('sha256').update(canonical).digest('hex');
+}
+
 /** Parses "100,1000,1e4" for --n. */
 export function parseSampleSizes(text: string): number[] {
   const sizes = text.split(',').map((part) => {

@@ -8,7 +8,7 @@ import { dirname } from 'node:path';
 import { Ajv2020 } from 'ajv/dist/2020.js';
 import type { Scenario } from './contracts.js';
 import { UsageError } from './errors.js';
-import type { Plan } from './plan.js';
+import { drawsFingerprint, type Plan } from './plan.js';
 import { environment, type Environment } from './provenance.js';
 import type { RunOutcome, Shard } from './runner.js';
 import { fitRate, pairedSquaredErrorDifference, scoreCell, type CellScores, type Estimate, type RateFit } from './score.js';
@@ -84,7 +84,10 @@ export interface RunFile {
   createdAt: string;
   environment: Environment;
   plan: Plan;
+  /** Identifies the whole plan (draws and work): shards and checkpoints must share it. */
   fingerprint: string;
+  /** Identifies the draws only (seed, scenarios, sizes, replicates): equal values mean paired comparisons are valid. */
+  drawsFingerprint: string;
   shard: Shard | null;
   complete: boolean;
   workers: number;
@@ -185,7 +188,7 @@ export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
 }
 
 /** Scores, rates and rankings from cells; shared by fresh runs and merges. */
-export function finishRun(base: Omit<RunFile, 'schemaVersion' | 'kind' | 'createdAt' | 'environment' | 'rates' | 'rankings' | 'overall'>): RunFile {
+export function finishRun(base: Omit<RunFile, 'schemaVersion' | 'kind' | 'createdAt' | 'environment' | 'drawsFingerprint' | 'rates' | 'rankings' | 'overall'>): RunFile {
   const truth = new Map(base.scenarios.map((s) => [s.id, s]));
   for (const cell of base.cells) {
     const info = truth.get(cell.scenario)!;
@@ -201,6 +204,7 @@ export function finishRun(base: Omit<RunFile, 'schemaVersion' | 'kind' | 'create
     createdAt: new Date().toISOString(),
     environment: environment(),
     ...base,
+    drawsFingerprint: drawsFingerprint(base.plan),
     rates: rates(base.cells),
     rankings,
     overall: overall(rankings, truth),
