@@ -13,7 +13,7 @@ for (const workers of [1, 2]) {
   const started = performance.now();
   const outcome = await runPlan(plan, { workers });
   times[workers] = (performance.now() - started) / 1000;
-  const estimates = JSON.stringify([...outcome.results.entries()].sort((a, b) => a[0] - b[0]).map(([, r]) => r.estimates.map((v) => v.map((a) => Array.from(a)))));
+  const estimates = JSON.stringify([...outcome.results.entries()].sort((a, b) => a[0] - b[0]).map(([, r]) => r.estimates.map((values) => Array.from(values))));
   if (reference === undefined) reference = estimates;
   console.log(`workers=${workers}: ${times[workers].toFixed(1)} s wall${estimates === reference ? '' : ' (ESTIMATES DIFFER)'}`);
 }

@@ -60,6 +60,14 @@ const HISTOGRAM_SETTINGS: readonly SettingSpec[] = [
     min: 1,
   },
   {
+    name: 'scale',
+    meaning: "multiplies the bin count a rule gives (rounded, at least 1); ignored with a numeric bins or a width",
+    default: 1,
+    kind: 'number',
+    min: 0,
+    minExclusive: true,
+  },
+  {
     name: 'width',
     meaning: "bin width in data units, the same along every coordinate; 'none' = use bins",
     default: 'none',
@@ -96,6 +104,7 @@ export function histogramGrid(sample: Sample, settings: Settings): AxisBins[] {
   checkFinite(id, sample);
   const width = settings.width ?? 'none';
   const bins = settings.bins ?? 'freedman-diaconis';
+  const scale = typeof settings.scale === 'number' ? settings.scale : 1;
   if (width !== 'none' && !(typeof width === 'number' && width > 0 && Number.isFinite(width))) {
     throw new EstimateError('invalid-input', `${id}: width=${String(width)} is not allowed; width must be 'none' or a number > 0`);
   }
@@ -131,7 +140,8 @@ export function histogramGrid(sample: Sample, settings: Settings): AxisBins[] {
     if (!Number.isFinite(range)) {
       throw new EstimateError('numeric', `${id}: the range of coordinate ${k + 1} overflows the double range; rescale the data`);
     }
-    const binCount = isRule ? ruleBinCount(bins as BinRule, column, range, dim, k) : (bins as number);
+    // A scaled rule keeps its scale-free count ratio, so rescaling the data still shifts by exactly d·log c.
+    const binCount = isRule ? Math.max(1, Math.round(ruleBinCount(bins as BinRule, column, range, dim, k) * scale)) : (bins as number);
     if (!(binCount < MAX_EXACT_INTEGER)) {
       throw new EstimateError('numeric', `${id}: coordinate ${k + 1} would need 2^53 or more bins; use a bin count or width=W`);
     }

@@ -26,6 +26,17 @@ export function registerEstimator(estimator: Estimator): void {
   registry.set(estimator.id, estimator);
 }
 
+/**
+ * Registers an estimator, replacing any with the same id, and returns the one it replaced (undefined when the
+ * id is new). Replacing keeps a built-in's cell names, so an edited copy can be compared with the original;
+ * passing the returned estimator back restores it.
+ */
+export function replaceEstimator(estimator: Estimator): Estimator | undefined {
+  const previous = registry.get(estimator.id);
+  registry.set(estimator.id, estimator);
+  return previous;
+}
+
 export function listEstimators(): Estimator[] {
   return [...registry.values()];
 }

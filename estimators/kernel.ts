@@ -37,7 +37,22 @@ const kernelSettings: readonly SettingSpec[] = [
     min: 0,
     minExclusive: true,
   },
+  {
+    name: 'scale',
+    meaning: 'multiplies the bandwidth a rule or cross-validation gives (for tuning studies); ignored with a numeric bandwidth',
+    default: 1,
+    kind: 'number',
+    min: 0,
+    minExclusive: true,
+  },
 ];
+
+/** The bandwidth used: a numeric setting as given, a rule's (or cross-validation's) value times `scale`. */
+function usedBandwidth(data: ReturnType<typeof prepareKernelData>, settings: Settings): number {
+  const setting = bandwidthSetting(settings.bandwidth);
+  const chosen = chooseBandwidth(data, setting);
+  return typeof setting === 'number' ? chosen : chosen * (typeof settings.scale === 'number' ? settings.scale : 1);
+}
 
 function bandwidthSetting(value: SettingValue | undefined): BandwidthSetting {
   if (value === undefined) return 'silverman';
@@ -58,12 +73,12 @@ export const kernelEstimator: Estimator = {
   reference:
     'Ahmad & Lin, IEEE Trans. Inf. Theory 22(3):372–375, 1976 (resubstitution estimate); leave-one-out form: Joe, Ann. Inst. Statist. Math. 41:683–697, 1989, and Hall & Morton, Ann. Inst. Statist. Math. 45:69–88, 1993; bandwidth rules: Silverman 1986 (eq. 3.31), Scott 1992; binned FFT sums: Wand, J. Comput. Graph. Statist. 3:433–445, 1994',
   resolve(sample: Sample, settings: Settings): Settings {
-    const data = prepareKernelData(sample);
-    return { ...settings, bandwidth: chooseBandwidth(data, bandwidthSetting(settings.bandwidth)) };
+    // The numeric bandwidth reported already includes the scale, so the settings used reproduce the estimate.
+    return { ...settings, bandwidth: usedBandwidth(prepareKernelData(sample), settings), scale: 1 };
   },
   estimate(sample: Sample, settings: Settings): number {
     const data = prepareKernelData(sample);
-    return kernelEntropy(data, chooseBandwidth(data, bandwidthSetting(settings.bandwidth)));
+    return kernelEntropy(data, usedBandwidth(data, settings));
   },
 };
 

@@ -74,6 +74,7 @@ export function univariateScenario(def: UnivariateDefinition): Scenario {
     support: def.support,
     tails: def.tails,
     univariate: def.density,
+    marginals: [def.density],
     sample(rng: Rng, n: number): Sample {
       const draw = def.sampler(rng);
       const data = new Float64Array(n);

@@ -88,6 +88,7 @@ export function gaussianMixtureScenario(weights: number[], means: number[], sds:
     support: 'unbounded',
     tails: 'light',
     univariate: density,
+    marginals: [density],
     sample: (rng: Rng, n: number): Sample => {
       const draw = normalRandom.factory(0, 1, { prng: rng });
       const cumulative = weights.map((_, j) => weights.slice(0, j + 1).reduce((s, w) => s + w, 0));

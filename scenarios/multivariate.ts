@@ -9,7 +9,13 @@ import { cholesky, lowerTimes, solveLower, type CholeskyFactor } from '../src/ma
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { formatNumber } from '../src/spec.js';
 import { scenarioId } from './build.js';
-import { studentLogDensityVariance } from './univariate.js';
+import { studentLogDensityVariance, univariateFamilies } from './univariate.js';
+
+/** The univariate density of a family at given params (marginals of multivariate laws). */
+function univariateDensity(familyId: string, params: Record<string, number>) {
+  const family = univariateFamilies.find((f) => f.id === familyId)!;
+  return family.create(params).univariate!;
+}
 
 const LOG_2PI_E = Math.log(2 * Math.PI * Math.E);
 const CT = 'Cover & Thomas, Elements of Information Theory, 2nd ed. (2006)';
@@ -88,6 +94,7 @@ export function gaussianScenario(
     sample: (rng, n) => gaussianDraws(rng, n, mean, chol),
     logDensity: (x) => gaussianLogDensity(chol, mean, x),
     moments: { mean: [...mean], covariance: covariance.map((r) => [...r]) },
+    marginals: mean.map((m, j) => univariateDensity('normal', { mu: m, sigma: Math.sqrt(covariance[j][j]) })),
   };
 }
 
@@ -176,6 +183,7 @@ const uniformBox: ScenarioFamily = {
         for (let j = 0; j < p.dim; j++) if (x[j] < 0 || x[j] > sides[j]) return -Infinity;
         return -logVolume;
       },
+      marginals: sides.map((w) => univariateDensity('uniform', { a: 0, b: w })),
       moments: {
         mean: sides.map((w) => w / 2),
         covariance: sides.map((wi, i) => sides.map((_, j) => (i === j ? (wi * wi) / 12 : 0))),
@@ -279,6 +287,7 @@ const studentTMv: ScenarioFamily = {
         for (let j = 0; j < d; j++) q += r[j] * r[j];
         return logNormaliser - half * Math.log1p(q / nu);
       },
+      marginals: Array.from({ length: d }, () => univariateDensity('student-t', { nu, mu: 0, sigma: p.sigma })),
       moments:
         nu > 2
           ? { mean: Array(d).fill(0), covariance: shape.map((row) => row.map((v) => (v * nu) / (nu - 2))) }
@@ -334,6 +343,7 @@ const lognormalMv: ScenarioFamily = {
         }
         return gaussianLogDensity(chol, mean, x) - sumLog;
       },
+      marginals: Array.from({ length: d }, () => univariateDensity('lognormal', { mu: p.mu, sigma: p.sigma })),
       moments: {
         mean: Array(d).fill(m),
         covariance: covariance.map((row) => row.map((v) => Math.exp(2 * p.mu + p.sigma * p.sigma) * Math.expm1(v))),
@@ -396,6 +406,7 @@ export function productScenario(components: Scenario[]): Scenario {
   if (components.every((c) => c.logDensity)) {
     scenario.logDensity = (x) => components.reduce((s, c, k) => s + c.logDensity!(Array.from({ length: c.dim }, (_, j) => x[offsets[k] + j])), 0);
   }
+  if (components.every((c) => c.marginals)) scenario.marginals = components.flatMap((c) => c.marginals!);
   if (components.every((c) => c.moments)) {
     const mean = components.flatMap((c) => c.moments!.mean);
     const covariance = Array.from({ length: dim }, () => Array(dim).fill(0) as number[]);

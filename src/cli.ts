@@ -5,6 +5,9 @@ import { hhatVersion } from './provenance.js';
 import { registerBenchCommand } from './commands/bench.js';
 import { registerEstimatorsCommand } from './commands/estimators.js';
 import { registerEstimateCommand } from './commands/estimate.js';
+import { registerConvertCommand } from './commands/convert.js';
+import { registerReportCommand } from './commands/report.js';
+import { registerCompareCommand } from './commands/compare.js';
 
 
 export interface CliIo {
@@ -33,6 +36,9 @@ export function buildProgram(io: CliIo): Command {
   registerScenariosCommand(program, io.out);
   registerEstimatorsCommand(program, io.out);
   registerEstimateCommand(program, io.out, io.err);
+  registerConvertCommand(program, io.out);
+  registerReportCommand(program, io.out);
+  registerCompareCommand(program, io.out, io.err);
   for (const command of program.commands) command.exitOverride().configureOutput({ writeOut: io.out, writeErr: io.err });
   return program;
 }

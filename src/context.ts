@@ -4,8 +4,9 @@
  */
 import type { Plan } from './plan.js';
 import { resolvePlan } from './plan.js';
+import { parsePerturbation } from './perturb.js';
+import { tuningGrid } from './tuning.js';
 import type { WorkContext } from './work.js';
-import { UsageError } from './errors.js';
 
 export function buildContext(plan: Plan): WorkContext {
   const resolved = resolvePlan({
@@ -16,7 +17,24 @@ export function buildContext(plan: Plan): WorkContext {
     sampleSizes: plan.sampleSizes,
     replicates: plan.replicates,
     seed: plan.seed,
+    robustness: plan.robustness,
+    modules: plan.modules,
   });
-  if (plan.perturbations.length) throw new UsageError('this plan lists perturbations, which this version of hhat cannot run');
-  return { plan: resolved.plan, scenarios: resolved.scenarios, estimators: resolved.estimators, perturbations: [] };
+  const { scenarios, estimators } = resolved;
+  const robustness = resolved.plan.robustness;
+  const mainSpecs = new Set(estimators.map((e) => e.spec));
+  const tuning =
+    robustness?.tuning === true
+      ? estimators.flatMap((e, i) => tuningGrid(e, i, robustness.sampleSize)).filter((t, i, list) => !mainSpecs.has(t.configured.spec) && list.findIndex((u) => u.configured.spec === t.configured.spec) === i)
+      : [];
+  const perturbations = (robustness?.perturbations ?? []).map(parsePerturbation);
+  return {
+    plan: resolved.plan,
+    scenarios,
+    estimators,
+    tuning,
+    all: [...estimators, ...tuning.map((t) => t.configured)],
+    perturbations,
+    prepared: scenarios.map((s) => perturbations.map((p) => p.prepare(s))),
+  };
 }

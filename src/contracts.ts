@@ -109,6 +109,8 @@ export interface Scenario {
   tails: Tails;
   /** Present on one-dimensional scenarios. */
   univariate?: UnivariateDensity;
+  /** The marginal law of each coordinate, when known (needed for coordinate-wise monotone perturbations). */
+  marginals?: UnivariateDensity[];
   /** Log density at one point (length dim), when it has a closed form. */
   logDensity?(x: ArrayLike<number>): number;
   /** Exact mean and covariance when finite, for sampler checks. */

@@ -27,8 +27,9 @@ export function defaultPlan(): PlanInput {
     estimators: listEstimators()
       .filter((e) => e.quantity === 'entropy')
       .map((e) => e.id),
-    sampleSizes: [100, 1000, 4000],
+    sampleSizes: [100, 500, 2000],
     replicates: 30,
     seed: 20261201,
+    robustness: { sampleSize: 500 },
   };
 }

@@ -63,13 +63,15 @@ export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
   });
   // Present cells in the order an unsharded run writes them: scenario, estimator, n, perturbation as planned.
   const rankOf = (list: readonly (string | number | null)[], value: string | number | null) => list.indexOf(value);
-  const variants: (string | null)[] = [null, ...plan.perturbations];
+  const variants: (string | null)[] = [null, ...(plan.robustness?.perturbations ?? [])];
+  const roles = ['main', 'tuning', 'perturbed'];
   merged.sort(
     (a, b) =>
       rankOf(plan.scenarios, a.scenario) - rankOf(plan.scenarios, b.scenario) ||
       rankOf(plan.sampleSizes, a.n) - rankOf(plan.sampleSizes, b.n) ||
+      rankOf(roles, a.role) - rankOf(roles, b.role) ||
       rankOf(variants, a.perturbation) - rankOf(variants, b.perturbation) ||
-      rankOf(plan.estimators, a.estimator) - rankOf(plan.estimators, b.estimator),
+      order.indexOf(key(a)) - order.indexOf(key(b)),
   );
   return finishRun({
     plan,

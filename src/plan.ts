@@ -10,6 +10,8 @@ import type { Quantity, Scenario } from './contracts.js';
 import { UsageError } from './errors.js';
 import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from '../estimators/index.js';
 import { parseScenario } from '../scenarios/index.js';
+import { parsePerturbation } from './perturb.js';
+import { moduleDigest } from './modules.js';
 import planSchema from './schemas/plan.schema.json' with { type: 'json' };
 
 export interface Plan {
@@ -22,9 +24,33 @@ export interface Plan {
   sampleSizes: number[];
   replicates: number;
   seed: number;
-  /** Perturbation specs (empty: unperturbed only). */
-  perturbations: string[];
+  /** Perturbations and tuning grids, run at one sample size on the same draws; null: none. */
+  robustness: RobustnessPlan | null;
+  /** Absolute paths of the user's estimator modules, loaded before the plan resolves (and in every worker). */
+  modules: string[];
 }
+
+export interface RobustnessPlan {
+  /** One of the plan's sample sizes. */
+  sampleSize: number;
+  /** Canonical perturbation specs. */
+  perturbations: string[];
+  /** Whether each estimator's tuning grid runs too. */
+  tuning: boolean;
+}
+
+/** What `--robustness` (or `"robustness": {}`) runs when it names no perturbations. */
+export const DEFAULT_PERTURBATIONS = [
+  'rescale:c=0.001',
+  'rescale:c=1000',
+  'monotone:map=asinh',
+  'affine:condition=10,scale=1',
+  'quantize:step=0.001',
+  'quantize:step=0.01',
+  'quantize:step=0.1',
+  'quantize:step=0.3',
+  'contaminate:fraction=0.01',
+];
 
 export const DEFAULT_REPLICATES = 50;
 export const DEFAULT_SEED = 20261201;
@@ -45,7 +71,8 @@ export interface PlanInput {
   sampleSizes?: number[];
   replicates?: number;
   seed?: number;
-  perturbations?: string[];
+  robustness?: { sampleSize?: number; perturbations?: string[]; tuning?: boolean } | null;
+  modules?: string[];
 }
 
 /** `instancePath` /estimators/2/settings/k → estimators[2].settings.k */
@@ -135,6 +162,24 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
   const mismatched = [...scenarios.filter((s) => s.quantity !== quantity).map((s) => s.id), ...estimators.filter((e) => e.estimator.quantity !== quantity).map((e) => e.spec)];
   if (mismatched.length) throw new UsageError(`${source}: ${mismatched[0]} is not a ${quantity} ${scenarios.some((s) => s.id === mismatched[0]) ? 'scenario' : 'estimator'}; the plan's quantity is ${quantity}`);
   const sampleSizes = [...new Set(input.sampleSizes ?? DEFAULT_SAMPLE_SIZES)].sort((a, b) => a - b);
+  let robustness: RobustnessPlan | null = null;
+  if (input.robustness) {
+    // Default size: the largest planned n up to 1000, where perturbation effects are measured well and cheaply.
+    const upTo1000 = sampleSizes.filter((n) => n <= 1000);
+    const sampleSize = input.robustness.sampleSize ?? (upTo1000.length ? upTo1000[upTo1000.length - 1] : sampleSizes[0]);
+    if (!sampleSizes.includes(sampleSize)) {
+      throw new UsageError(`${source}: robustness.sampleSize: must be one of the plan's sample sizes (${sampleSizes.join(', ')}); got ${sampleSize}`);
+    }
+    const perturbations = (input.robustness.perturbations ?? DEFAULT_PERTURBATIONS).map((spec, i) => {
+      try {
+        return parsePerturbation(spec).spec;
+      } catch (error) {
+        if (error instanceof UsageError) throw new UsageError(`${source}: robustness.perturbations[${i}]: ${error.message}`);
+        throw error;
+      }
+    });
+    robustness = { sampleSize, perturbations: dedupe(perturbations), tuning: input.robustness.tuning ?? true };
+  }
   const plan: Plan = {
     name: input.name ?? 'custom',
     quantity,
@@ -143,7 +188,8 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
     sampleSizes,
     replicates: input.replicates ?? DEFAULT_REPLICATES,
     seed: input.seed ?? DEFAULT_SEED,
-    perturbations: dedupe(input.perturbations ?? []),
+    robustness,
+    modules: input.modules ?? [],
   };
   return {
     plan,
@@ -165,7 +211,9 @@ export function planFingerprint(plan: Plan): string {
     sampleSizes: plan.sampleSizes,
     replicates: plan.replicates,
     seed: plan.seed,
-    perturbations: plan.perturbations,
+    robustness: plan.robustness,
+    // An edited module changes the work under the same estimator names: its content is part of the plan.
+    modules: plan.modules.map((path) => ({ path, sha256: moduleDigest(path) })),
   });
   return createHash('sha256').update(canonical).digest('hex');
 }

@@ -15,6 +15,7 @@ import { fitRate, pairedSquaredErrorDifference, scoreCell, type CellScores, type
 import type { Skip } from './work.js';
 import { buildContext } from './context.js';
 import runSchema from './schemas/run.schema.json' with { type: 'json' };
+import { robustnessSection, type RobustnessSection } from './robustness.js';
 
 export const SCHEMA_VERSION = 1;
 
@@ -40,7 +41,13 @@ export interface Cell {
   estimatorId: string;
   family: string;
   n: number;
+  /** main: a plan estimator on the sample as drawn; tuning: a grid point of a plan estimator; perturbed: a plan estimator on a perturbed copy. */
+  role: 'main' | 'tuning' | 'perturbed';
   perturbation: string | null;
+  /** For perturbed cells: the exact change of the true value (null: the truth does not move). */
+  shift: number | null;
+  /** For tuning cells: the plan estimator varied, the setting and its value here. */
+  tuning: { base: string; setting: string; value: number | string } | null;
   /** One entry per replicate: the estimate in nats, or null (failed, or not run in this shard). */
   estimates: (number | null)[];
   failures: CellFailure[];
@@ -98,6 +105,7 @@ export interface RunFile {
   rates: Rate[];
   rankings: Ranking[];
   overall: OverallRank[];
+  robustness: RobustnessSection | null;
 }
 
 /** z beyond which a paired difference of squared errors separates two estimators. */
@@ -120,51 +128,52 @@ function scenarioInfo(s: Scenario): ScenarioInfo {
 export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
   const { plan } = outcome;
   const context = buildContext(plan);
-  const variants: (string | null)[] = [null, ...plan.perturbations];
   const cellIndex = new Map<string, Cell>();
   const cells: Cell[] = [];
   const key = (s: number, e: number, n: number, v: number) => `${s}|${e}|${n}|${v}`;
+  const tuningOf = (e: number): Cell['tuning'] => {
+    if (e < context.estimators.length) return null;
+    const point = context.tuning[e - context.estimators.length];
+    return { base: context.estimators[point.base].spec, setting: point.setting, value: point.value };
+  };
   for (const unit of outcome.units) {
-    for (let v = 0; v < variants.length; v++) {
-      for (const e of unit.estimators) {
-        const k = key(unit.scenario, e, unit.n, v);
-        if (cellIndex.has(k)) continue;
-        const configured = context.estimators[e];
-        const cell: Cell = {
-          scenario: context.scenarios[unit.scenario].id,
-          estimator: configured.spec,
-          estimatorId: configured.estimator.id,
-          family: configured.estimator.family,
-          n: unit.n,
-          perturbation: variants[v],
-          estimates: Array(plan.replicates).fill(null),
-          failures: [],
-          scores: undefined as unknown as CellScores,
-          timing: { totalMs: 0, meanMs: 0 },
-        };
-        cellIndex.set(k, cell);
-        cells.push(cell);
-      }
+    for (const series of unit.series) {
+      const k = key(unit.scenario, series.estimator, unit.n, series.variant);
+      if (cellIndex.has(k)) continue;
+      const configured = context.all[series.estimator];
+      const prepared = series.variant > 0 ? context.prepared[unit.scenario][series.variant - 1] : null;
+      const cell: Cell = {
+        scenario: context.scenarios[unit.scenario].id,
+        estimator: configured.spec,
+        estimatorId: configured.estimator.id,
+        family: configured.estimator.family,
+        n: unit.n,
+        role: series.variant > 0 ? 'perturbed' : series.estimator < context.estimators.length ? 'main' : 'tuning',
+        perturbation: series.variant > 0 ? context.perturbations[series.variant - 1].spec : null,
+        shift: prepared && 'shift' in prepared ? prepared.shift : null,
+        tuning: tuningOf(series.estimator),
+        estimates: Array(plan.replicates).fill(null),
+        failures: [],
+        scores: undefined as unknown as CellScores,
+        timing: { totalMs: 0, meanMs: 0 },
+      };
+      cellIndex.set(k, cell);
+      cells.push(cell);
     }
   }
   const ran = new Map<Cell, number>();
   for (const [unitIndex, result] of outcome.results) {
     const unit = outcome.units[unitIndex];
-    for (let v = 0; v < variants.length; v++) {
-      unit.estimators.forEach((e, k) => {
-        const cell = cellIndex.get(key(unit.scenario, e, unit.n, v))!;
-        const values = result.estimates[v][k];
-        for (let r = 0; r < values.length; r++) {
-          const value = values[r];
-          cell.estimates[unit.repStart + r] = Number.isNaN(value) ? null : value;
-        }
-        cell.timing.totalMs += result.timeMs[v][k];
-        ran.set(cell, (ran.get(cell) ?? 0) + values.length);
-      });
-    }
+    unit.series.forEach((series, k) => {
+      const cell = cellIndex.get(key(unit.scenario, series.estimator, unit.n, series.variant))!;
+      const values = result.estimates[k];
+      for (let r = 0; r < values.length; r++) cell.estimates[unit.repStart + r] = Number.isNaN(values[r]) ? null : values[r];
+      cell.timing.totalMs += result.timeMs[k];
+      ran.set(cell, (ran.get(cell) ?? 0) + values.length);
+    });
     for (const f of result.failures) {
-      const cell = cellIndex.get(key(unit.scenario, f.estimator, unit.n, f.perturbation))!;
-      cell.failures.push({ replicate: f.replicate, message: f.message });
+      const series = unit.series[f.series];
+      cellIndex.get(key(unit.scenario, series.estimator, unit.n, series.variant))!.failures.push({ replicate: f.replicate, message: f.message });
     }
   }
   for (const cell of cells) {
@@ -188,16 +197,18 @@ export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
 }
 
 /** Scores, rates and rankings from cells; shared by fresh runs and merges. */
-export function finishRun(base: Omit<RunFile, 'schemaVersion' | 'kind' | 'createdAt' | 'environment' | 'drawsFingerprint' | 'rates' | 'rankings' | 'overall'>): RunFile {
+export function finishRun(base: Omit<RunFile, 'schemaVersion' | 'kind' | 'createdAt' | 'environment' | 'drawsFingerprint' | 'rates' | 'rankings' | 'overall' | 'robustness'>): RunFile {
   const truth = new Map(base.scenarios.map((s) => [s.id, s]));
   for (const cell of base.cells) {
     const info = truth.get(cell.scenario)!;
     const failed = new Set(cell.failures.map((f) => f.replicate));
     // In a shard, replicates not run here are neither estimates nor failures: leave them out.
     const values = cell.estimates.flatMap((v, r) => (v !== null ? [v] : failed.has(r) ? [NaN] : []));
-    cell.scores = scoreCell(values, info.truth, cell.n, info.logDensityVariance ?? undefined);
+    // A perturbed cell is scored against the moved truth; its efficiency bound is the unperturbed one's only for shifts.
+    cell.scores = scoreCell(values, info.truth + (cell.shift ?? 0), cell.n, cell.role === 'main' ? (info.logDensityVariance ?? undefined) : undefined);
   }
-  const rankings = base.complete ? rank(base.cells, truth) : [];
+  const main = base.cells.filter((c) => c.role === 'main');
+  const rankings = base.complete ? rank(main, truth) : [];
   return {
     schemaVersion: SCHEMA_VERSION,
     kind: 'hhat-run',
@@ -205,9 +216,10 @@ export function finishRun(base: Omit<RunFile, 'schemaVersion' | 'kind' | 'create
     environment: environment(),
     ...base,
     drawsFingerprint: drawsFingerprint(base.plan),
-    rates: rates(base.cells),
+    rates: rates(main),
     rankings,
     overall: overall(rankings, truth),
+    robustness: base.complete && base.plan.robustness ? robustnessSection(base.plan, base.cells, truth) : null,
   };
 }
 

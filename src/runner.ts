@@ -73,17 +73,17 @@ interface CheckpointHeader {
 function serialiseResult(result: UnitResult): string {
   return JSON.stringify({
     unit: result.unit,
-    estimates: result.estimates.map((variant) => variant.map((values) => Array.from(values, (v) => (Number.isNaN(v) ? null : v)))),
+    estimates: result.estimates.map((values) => Array.from(values, (v) => (Number.isNaN(v) ? null : v))),
     timeMs: result.timeMs,
     failures: result.failures,
   });
 }
 
 function parseResult(line: string): UnitResult {
-  const raw = JSON.parse(line) as { unit: number; estimates: (number | null)[][][]; timeMs: number[][]; failures: UnitResult['failures'] };
+  const raw = JSON.parse(line) as { unit: number; estimates: (number | null)[][]; timeMs: number[]; failures: UnitResult['failures'] };
   return {
     unit: raw.unit,
-    estimates: raw.estimates.map((variant) => variant.map((values) => Float64Array.from(values, (v) => (v === null ? NaN : v)))),
+    estimates: raw.estimates.map((values) => Float64Array.from(values, (v) => (v === null ? NaN : v))),
     timeMs: raw.timeMs,
     failures: raw.failures,
   };
@@ -128,7 +128,7 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   const started = performance.now();
   const context = buildContext(plan);
   const fingerprint = planFingerprint(context.plan);
-  const { units, skipped } = planUnits(context.plan, context.scenarios, context.estimators);
+  const { units, skipped } = planUnits(context);
   const owned = shardUnits(units, options.shard);
   const shard = options.shard ?? null;
 
@@ -154,7 +154,7 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   for (const i of owned) {
     const u = units[i];
     groupUnits.set(groupOf(u), (groupUnits.get(groupOf(u)) ?? 0) + 1);
-    groupEstimators.set(groupOf(u), u.estimators.length * (1 + context.plan.perturbations.length));
+    groupEstimators.set(groupOf(u), u.series.length);
   }
   const groupDone = new Map<string, number>();
   let cellsDone = 0;

@@ -145,3 +145,45 @@ export function scoresCsv(run: RunFile, base: Base): string {
   );
   return `${header.join(',')}\n${lines.join('\n')}\n`;
 }
+
+const COLUMN_TITLES: Record<string, string> = {
+  rescale: 'rescale: unit drift',
+  monotone: 'monotone: Δbias',
+  affine: 'affine: Δbias',
+  quantize: 'quantize: safe δ/σ',
+  contaminate: 'outliers: per 1%',
+  tuning: 'tuning spread',
+};
+
+function shortValue(column: string, value: number | null): string {
+  if (value === null || !Number.isFinite(value)) return '';
+  switch (column) {
+    case 'rescale':
+      return value === 0 ? '0' : value.toExponential(0);
+    case 'quantize':
+      return value === 0 ? '<min' : `${value}`;
+    case 'contaminate':
+      return `${formatValue(value, 2)} nats`;
+    default:
+      return `${formatValue(value, 2)} SD`;
+  }
+}
+
+/** One row per estimator, one column per perturbation kind and tuning: verdict and the worst value. */
+export function robustnessTable(run: RunFile): string {
+  const section = run.robustness;
+  if (!section) return '';
+  const columns = ['rescale', 'monotone', 'affine', 'quantize', 'contaminate', 'tuning'].filter((c) => section.table.some((r) => r.columns[c]?.verdict !== 'n/a'));
+  const rows = section.table.map((row) => [
+    estimatorLabel(row.estimator),
+    ...columns.map((c) => {
+      const cell = row.columns[c];
+      return cell.verdict === 'n/a' ? '–' : `${cell.verdict} ${shortValue(c, cell.value)}`.trim();
+    }),
+  ]);
+  return [
+    `Robustness at n = ${section.sampleSize} (${section.replicates} paired replicates; worst scenario per column):`,
+    renderTable(['estimator', ...columns.map((c) => COLUMN_TITLES[c])], rows, { align: ['left', ...columns.map(() => 'right' as const)] }),
+    'How to read it: README, "Reading the robustness table". Per-scenario values: the run file\'s robustness.measures and robustness.tuning.',
+  ].join('\n');
+}

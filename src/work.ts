@@ -1,15 +1,25 @@
 /**
  * The unit of work: one scenario at one sample size for a block of replicates. Each replicate's sample is
- * drawn once (from its own seed) and every estimator of the plan runs on it, so estimators are compared on
- * identical draws. Units depend only on the plan, never on the worker count, so results are bit-identical
- * for any worker count, shard split or resume point.
+ * drawn once (from its own seed); every estimator runs on it, tuning variants too at the robustness size, and
+ * every applicable perturbation is applied to a copy of it, so all comparisons are paired. Units depend only
+ * on the plan, never on the worker count, so results are bit-identical for any worker count, shard split or
+ * resume point.
  */
 import type { Sample, Scenario } from './contracts.js';
 import { EstimateError } from './errors.js';
 import type { ConfiguredEstimator } from '../estimators/index.js';
 import { runEstimator } from '../estimators/index.js';
 import type { Plan } from './plan.js';
+import type { Perturbation, PreparedPerturbation } from './perturb.js';
 import { replicateRng } from './rng.js';
+import type { TuningPoint } from './tuning.js';
+
+/** A series of estimates: one estimator (index into the context's `all` list) on one variant of the sample. */
+export interface Series {
+  /** 0 = the sample as drawn; p + 1 = perturbation p of the plan. */
+  variant: number;
+  estimator: number;
+}
 
 export interface Unit {
   index: number;
@@ -17,8 +27,7 @@ export interface Unit {
   n: number;
   repStart: number;
   repEnd: number;
-  /** Estimators (indices into the plan) that can run on this scenario. */
-  estimators: number[];
+  series: Series[];
   /** Relative cost, for scheduling the largest units first. */
   cost: number;
 }
@@ -27,6 +36,20 @@ export interface Skip {
   scenario: string;
   estimator: string;
   reason: string;
+}
+
+export interface WorkContext {
+  plan: Plan;
+  scenarios: Scenario[];
+  /** The plan's estimators. */
+  estimators: ConfiguredEstimator[];
+  /** Tuning points that are not already a plan estimator (run at the robustness size only). */
+  tuning: TuningPoint[];
+  /** Plan estimators followed by the tuning points' estimators: what Series.estimator indexes. */
+  all: ConfiguredEstimator[];
+  perturbations: Perturbation[];
+  /** Per scenario and perturbation: the prepared perturbation, or why it does not apply. */
+  prepared: (PreparedPerturbation | { skip: string })[][];
 }
 
 /** About this many sample points per unit: small enough to balance two workers, large enough to amortise messages. */
@@ -45,9 +68,11 @@ export function incompatibility(estimator: ConfiguredEstimator, scenario: Scenar
   return null;
 }
 
-export function planUnits(plan: Plan, scenarios: Scenario[], estimators: ConfiguredEstimator[]): { units: Unit[]; skipped: Skip[] } {
+export function planUnits(context: WorkContext): { units: Unit[]; skipped: Skip[] } {
+  const { plan, scenarios, estimators, tuning } = context;
   const units: Unit[] = [];
   const skipped: Skip[] = [];
+  const robustnessN = plan.robustness?.sampleSize;
   scenarios.forEach((scenario, s) => {
     const runnable: number[] = [];
     estimators.forEach((estimator, e) => {
@@ -56,19 +81,23 @@ export function planUnits(plan: Plan, scenarios: Scenario[], estimators: Configu
       else runnable.push(e);
     });
     if (!runnable.length) return;
+    const tuned = tuning.map((t, i) => ({ t, i })).filter(({ t }) => runnable.includes(t.base)).map(({ i }) => estimators.length + i);
+    const perturbed: Series[] = [];
+    context.perturbations.forEach((p, k) => {
+      const prepared = context.prepared[s][k];
+      if ('skip' in prepared) {
+        skipped.push({ scenario: scenario.id, estimator: `(all, under ${p.spec})`, reason: prepared.skip });
+        return;
+      }
+      for (const e of runnable) perturbed.push({ variant: k + 1, estimator: e });
+    });
     for (const n of plan.sampleSizes) {
+      const series: Series[] = runnable.map((e) => ({ variant: 0, estimator: e }));
+      if (n === robustnessN) series.push(...tuned.map((e) => ({ variant: 0, estimator: e })), ...perturbed);
       const block = Math.max(1, Math.min(plan.replicates, Math.floor(POINTS_PER_UNIT / n)));
       for (let start = 0; start < plan.replicates; start += block) {
         const end = Math.min(plan.replicates, start + block);
-        units.push({
-          index: units.length,
-          scenario: s,
-          n,
-          repStart: start,
-          repEnd: end,
-          estimators: runnable,
-          cost: (end - start) * n * scenario.dim * runnable.length * Math.max(1, plan.perturbations.length + 1),
-        });
+        units.push({ index: units.length, scenario: s, n, repStart: start, repEnd: end, series, cost: (end - start) * n * scenario.dim * series.length });
       }
     }
   });
@@ -76,30 +105,18 @@ export function planUnits(plan: Plan, scenarios: Scenario[], estimators: Configu
 }
 
 export interface UnitFailure {
-  perturbation: number;
-  estimator: number;
+  series: number;
   replicate: number;
   message: string;
 }
 
 export interface UnitResult {
   unit: number;
-  /** estimates[perturbation][k][r]: perturbation 0 is the unperturbed sample; k indexes unit.estimators. NaN = failure. */
-  estimates: Float64Array[][];
-  /** Total milliseconds per [perturbation][k]. */
-  timeMs: number[][];
+  /** estimates[k][r] for unit.series[k] and replicate repStart + r; NaN = failure. */
+  estimates: Float64Array[];
+  /** Total milliseconds per series. */
+  timeMs: number[];
   failures: UnitFailure[];
-}
-
-/** Applies a perturbation to a sample; filled in by the perturbation module (index 0 = none). */
-export type PerturbationRunner = (sample: Sample, scenario: Scenario, replicate: number) => Sample;
-
-export interface WorkContext {
-  plan: Plan;
-  scenarios: Scenario[];
-  estimators: ConfiguredEstimator[];
-  /** One per plan perturbation, in order (the unperturbed sample is always run first). */
-  perturbations: PerturbationRunner[];
 }
 
 function describeFailure(error: unknown): string {
@@ -109,33 +126,38 @@ function describeFailure(error: unknown): string {
 }
 
 export function executeUnit(unit: Unit, context: WorkContext): UnitResult {
-  const { plan, scenarios, estimators, perturbations } = context;
+  const { plan, scenarios, all } = context;
   const scenario = scenarios[unit.scenario];
   const reps = unit.repEnd - unit.repStart;
-  const variants = 1 + perturbations.length;
-  const estimates = Array.from({ length: variants }, () => unit.estimators.map(() => new Float64Array(reps)));
-  const timeMs = Array.from({ length: variants }, () => unit.estimators.map(() => 0));
+  const estimates = unit.series.map(() => new Float64Array(reps));
+  const timeMs = unit.series.map(() => 0);
   const failures: UnitFailure[] = [];
+  const variants = [...new Set(unit.series.map((s) => s.variant))];
   for (let r = 0; r < reps; r++) {
     const replicate = unit.repStart + r;
     const original = scenario.sample(replicateRng(plan.seed, scenario.id, unit.n, replicate), unit.n);
-    for (let v = 0; v < variants; v++) {
-      const sample = v === 0 ? original : perturbations[v - 1]({ ...original, data: Float64Array.from(original.data) }, scenario, replicate);
-      unit.estimators.forEach((e, k) => {
+    for (const v of variants) {
+      let sample: Sample = original;
+      if (v > 0) {
+        sample = { ...original, data: Float64Array.from(original.data) };
+        (context.prepared[unit.scenario][v - 1] as PreparedPerturbation).apply(sample, replicate, plan.seed);
+      }
+      unit.series.forEach((series, k) => {
+        if (series.variant !== v) return;
         const started = performance.now();
         let value = NaN;
         try {
-          value = runEstimator(estimators[e], sample).value;
+          value = runEstimator(all[series.estimator], sample).value;
           if (!Number.isFinite(value)) {
-            failures.push({ perturbation: v, estimator: e, replicate, message: `numeric: the estimate is ${value}` });
+            failures.push({ series: k, replicate, message: `numeric: the estimate is ${value}` });
             value = NaN;
           }
         } catch (error) {
-          failures.push({ perturbation: v, estimator: e, replicate, message: describeFailure(error) });
+          failures.push({ series: k, replicate, message: describeFailure(error) });
           value = NaN;
         }
-        timeMs[v][k] += performance.now() - started;
-        estimates[v][k][r] = value;
+        timeMs[k] += performance.now() - started;
+        estimates[k][r] = value;
       });
     }
   }

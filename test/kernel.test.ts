@@ -181,10 +181,10 @@ describe('kernel sums: every fast path against the direct O(n²) sum', () => {
   const BINNED_MEAN_TOLERANCE = 5e-5;
 
   it('1-D exact path (used for small n) agrees to 1e-10', () => {
-    const x = sorted(normalDraws('exact-1d', 1000));
+    const x = sorted(normalDraws('exact-1d', 300));
     const h = univariateRuleBandwidth('silverman', x);
     const result = univariateLogKernelSums(x, h);
-    expect(result.exactPoints).toBe(1000); // auto picks the exact path at this n
+    expect(result.exactPoints).toBe(300); // auto picks the exact path at this n
     expect(maxAbsDifference(result.logSums, bruteLogSums1d(x, h))).toBeLessThan(EXACT_TOLERANCE);
   });
 

@@ -1,5 +1,6 @@
 import { existsSync, readdirSync, rmSync, statSync, writeFileSync } from 'node:fs';
-import { join, resolve } from 'node:path';
+import { dirname, join, resolve } from 'node:path';
+import { describeRegistration, resolveModulePath, useEstimatorModules } from '../modules.js';
 import type { Command } from 'commander';
 import { UsageError } from '../errors.js';
 import type { Base } from '../format.js';
@@ -9,7 +10,7 @@ import { progressReporter } from '../progress.js';
 import { assembleRun, readRunFile, writeRunFile, type RunFile } from '../results.js';
 import { defaultWorkers, runPlan, type Shard } from '../runner.js';
 import { parseShard } from '../shard.js';
-import { detailTable, overallTable, scenarioTables, scoresCsv } from '../tables.js';
+import { detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../tables.js';
 import { mergeShards } from '../merge.js';
 
 interface BenchOptions {
@@ -24,6 +25,11 @@ interface BenchOptions {
   out?: string;
   resume?: boolean;
   csv?: string;
+  robustness?: boolean;
+  perturb?: string[];
+  robustnessN?: string;
+  tuning?: boolean;
+  estimatorModule?: string[];
   bits?: boolean;
   detail?: boolean;
   quiet?: boolean;
@@ -56,18 +62,35 @@ export function planInputFromOptions(options: BenchOptions): PlanInput {
       throw new UsageError('--plan cannot be combined with --scenario or --estimator; put them in the plan file');
     }
     input = readPlanFile(options.plan);
+    // Module paths in a plan file are relative to the file.
+    if (input.modules) input.modules = input.modules.map((m) => resolveModulePath(m, dirname(resolve(options.plan!))));
   } else {
     const base = defaultPlan();
+    const custom = Boolean(options.scenario?.length || options.estimator?.length);
     input = {
       ...base,
-      name: options.scenario?.length || options.estimator?.length ? 'custom' : base.name,
+      name: custom ? 'custom' : base.name,
       scenarios: options.scenario?.length ? options.scenario : base.scenarios,
       estimators: options.estimator?.length ? options.estimator : base.estimators,
+      // A plan built from flags measures robustness only when asked (--robustness, --perturb, ...).
+      robustness: custom ? null : base.robustness,
     };
   }
+  // New sample sizes: let the robustness size be chosen among them again.
+  if (options.n !== undefined && input.robustness) input.robustness = { ...input.robustness, sampleSize: undefined };
   if (options.n !== undefined) input.sampleSizes = parseSampleSizes(options.n);
   if (options.replicates !== undefined) input.replicates = parseIntegerOption('--replicates', options.replicates, 2, 1_000_000);
   if (options.seed !== undefined) input.seed = parseIntegerOption('--seed', options.seed, 0);
+  if (options.estimatorModule?.length) input.modules = [...(input.modules ?? []), ...options.estimatorModule.map((m) => resolveModulePath(m))];
+  const wantsRobustness = options.robustness || options.perturb?.length || options.robustnessN !== undefined || options.tuning === false;
+  if (wantsRobustness) {
+    input.robustness = {
+      ...(input.robustness ?? {}),
+      ...(options.perturb?.length ? { perturbations: options.perturb } : {}),
+      ...(options.robustnessN !== undefined ? { sampleSize: parseIntegerOption('--robustness-n', options.robustnessN, 2) } : {}),
+      ...(options.tuning === false ? { tuning: false } : {}),
+    };
+  }
   return input;
 }
 
@@ -75,6 +98,8 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
   print(scenarioTables(run, base));
   const overall = overallTable(run);
   if (overall) print(overall);
+  const robustness = robustnessTable(run);
+  if (robustness) print(robustness);
   if (detail) print(detailTable(run, base));
   if (run.skipped.length) {
     print(`Skipped ${run.skipped.length} estimator–scenario pair${run.skipped.length === 1 ? '' : 's'}:`);
@@ -82,8 +107,10 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
     for (const s of run.skipped) reasons.set(s.reason, (reasons.get(s.reason) ?? 0) + 1);
     for (const [reason, count] of reasons) print(`  ${reason}${count > 1 ? ` (${count} scenarios)` : ''}`);
   }
-  const failed = run.cells.reduce((s, c) => s + c.scores.failures, 0);
-  if (failed) print(`${failed} estimate${failed === 1 ? '' : 's'} failed; the run file lists each with its reason (cells[].failures).`);
+  const failedMain = run.cells.filter((c) => c.role === 'main').reduce((s, c) => s + c.scores.failures, 0);
+  const failedOther = run.cells.filter((c) => c.role !== 'main').reduce((s, c) => s + c.scores.failures, 0);
+  if (failedMain) print(`${failedMain} estimate${failedMain === 1 ? '' : 's'} failed in the benchmark cells; the run file lists each with its reason (cells[].failures).`);
+  if (failedOther) print(`${failedOther} estimate${failedOther === 1 ? '' : 's'} failed on perturbed samples or tuning variants (ties after rounding, mostly); the robustness table counts them.`);
   print('RMSE ± Monte-Carlo SE; "=" marks ranks a paired test on squared errors cannot separate (|z| < 2).');
 }
 
@@ -101,6 +128,11 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
     .option('--shard <i/N|auto>', 'run only slice i of N (1-based), or read it from a batch scheduler (auto)')
     .option('--out <file>', 'run file to write (default: results/run-TIMESTAMP.json)')
     .option('--resume', 'continue an interrupted run from its checkpoint (the same --out, or the newest under results/)')
+    .option('--robustness', 'also measure perturbations and tuning grids at one sample size (the default plan does)')
+    .option('--perturb <spec>', 'a perturbation for the robustness section (repeatable): rescale:c=1000, monotone:map=asinh, affine:condition=10, quantize:step=0.1, contaminate:fraction=0.01', collect)
+    .option('--robustness-n <n>', 'the sample size of the robustness section (one of --n; default: the largest up to 1000)')
+    .option('--no-tuning', 'leave the tuning grids out of the robustness section')
+    .option('--estimator-module <file>', 'load estimators from a JavaScript module (repeatable); an id matching a built-in replaces it', collect)
     .option('--csv <file>', 'also write the score table as CSV')
     .option('--bits', 'print values in bits instead of nats (the run file is always in nats)')
     .option('--detail', 'also print every score of every cell')
@@ -117,7 +149,11 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
       }
       out ??= join('results', `run-${timestamp()}${shard ? `.shard-${shard.index}-of-${shard.count}` : ''}.json`);
       out = resolve(out);
-      const { plan } = resolvePlan(planInputFromOptions(options), options.plan ?? 'plan');
+      const input = planInputFromOptions(options);
+      const registration = await useEstimatorModules(input.modules ?? []);
+      const note = describeRegistration(registration);
+      if (note && !options.quiet) printErr(note);
+      const { plan } = resolvePlan(input, options.plan ?? 'plan');
       const checkpoint = checkpointFor(out);
       const controller = new AbortController();
       const onSignal = () => controller.abort();

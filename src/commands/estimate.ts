@@ -2,6 +2,9 @@ import type { Command } from 'commander';
 import { UsageError, EstimateError } from '../errors.js';
 import { formatValue, renderTable, toBase, type Base } from '../format.js';
 import { readSample, findRepeats, describeRepeats } from '../data.js';
+import { describeReference, meanLogReference, parseReference } from '../reference.js';
+import { unitLabel } from '../units.js';
+import { describeRegistration, resolveModulePath, useEstimatorModules } from '../modules.js';
 import type { Sample, Settings } from '../contracts.js';
 import { parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
 
@@ -44,20 +47,48 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     .option('--columns <list>', 'columns to use: positions from 1 ("1,3", "2-4") or header names ("x,y")')
     .option('--estimator <spec>', 'ID[:key=value,...] (repeatable; default: a set suited to the dimension)', collect)
     .option('--bits', 'values in bits instead of nats')
+    .option('--unit <name>', 'the unit the data are recorded in, for labelling: values are relative to 1 unit^d (see hhat convert)')
+    .option('--reference <m>', 'also give the entropy relative to a reference density m: unit:W, uniform:a,b or gaussian (minus the negentropy)')
+    .option('--estimator-module <file>', 'load estimators from a JavaScript module (repeatable)', collect)
     .option('--json', 'print {"n", "dim", "base", "estimates": [...]} with the settings actually used')
-    .action((file: string, options: { columns?: string; estimator?: string[]; bits?: boolean; json?: boolean }) => {
+    .action(async (file: string, options: { columns?: string; estimator?: string[]; bits?: boolean; json?: boolean; unit?: string; reference?: string; estimatorModule?: string[] }) => {
       const base: Base = options.bits ? 'bits' : 'nats';
+      const reference = options.reference === undefined ? undefined : parseReference(options.reference);
+      if (options.estimatorModule?.length) {
+        const note = describeRegistration(await useEstimatorModules(options.estimatorModule.map((m) => resolveModulePath(m))));
+        if (note && !options.json) printErr(note);
+      }
       const loaded = readSample(file, { columns: options.columns });
       const { sample } = loaded;
+      const offset = reference ? meanLogReference(reference, sample) : 0;
       const specs = options.estimator?.length ? options.estimator : defaultEstimatorsFor(sample.dim);
       const configured = specs.map(parseEstimatorSpec);
       // With the user's own choice of estimators, a dimension mismatch is their error; in the default set it cannot happen.
-      const records = estimateAll(sample, configured, base);
+      const records = estimateAll(sample, configured, base).map((r) => ({
+        ...r,
+        ...(reference ? { relative: r.value === null ? null : r.value + toBase(offset, base) } : {}),
+      }));
+      const label = unitLabel(base, options.unit, sample.dim);
       const failed = records.filter((r) => r.error);
       const tieFailure = failed.some((r) => /tie|repeat|zero (distance|spacing)|duplicate/i.test(r.error ?? ''));
       const hints = tieFailure ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
       if (options.json) {
-        print(JSON.stringify({ n: sample.n, dim: sample.dim, base, columns: loaded.columnNames, estimates: records, ...(hints.length ? { repeats: hints } : {}) }, null, 2));
+        print(
+          JSON.stringify(
+            {
+              n: sample.n,
+              dim: sample.dim,
+              base,
+              ...(options.unit ? { unit: options.unit, label } : {}),
+              ...(reference ? { reference: describeReference(reference), meanLogReference: toBase(offset, base) } : {}),
+              columns: loaded.columnNames,
+              estimates: records,
+              ...(hints.length ? { repeats: hints } : {}),
+            },
+            null,
+            2,
+          ),
+        );
       } else {
         print(`${file}: n = ${sample.n}, d = ${sample.dim}${loaded.columnNames.length ? ` (columns ${loaded.columnNames.join(', ')})` : ''}`);
         const rows = records.map((r) => [
@@ -66,8 +97,10 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
             .map(([k, v]) => `${k}=${v}`)
             .join(', ') || '–',
           r.value === null ? 'failed' : formatValue(r.value, 7),
+          ...(reference ? [r.relative === null || r.relative === undefined ? 'failed' : formatValue(r.relative, 7)] : []),
         ]);
-        print(renderTable(['estimator', 'settings used', `entropy (${base})`], rows, { align: ['left', 'left', 'right'] }));
+        const head = ['estimator', 'settings used', `entropy (${label})`, ...(reference ? [`relative to ${describeReference(reference)} (${base})`] : [])];
+        print(renderTable(head, rows, { align: ['left', 'left', 'right', 'right'] }));
       }
       for (const r of failed) printErr(`hhat: ${r.error!.startsWith(r.estimator) ? '' : `${r.estimator}: `}${r.error}`);
       for (const h of hints) printErr(`  ${h}`);

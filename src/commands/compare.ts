@@ -1,0 +1,48 @@
+import type { Command } from 'commander';
+import { UsageError } from '../errors.js';
+import { compareRuns, failingCells, failsPolicy, parseFailOn, parseLevel, parseTolerance, type FailOn } from '../compare.js';
+import { formatComparisonJson, formatComparisonJunit, formatComparisonMarkdown, formatComparisonText } from '../compare-format.js';
+import { readRunFile, writeFileAtomic } from '../results.js';
+
+interface CompareOptions {
+  tolerance?: string;
+  level?: string;
+  failOn?: string;
+  unpaired?: boolean;
+  markdown?: boolean;
+  json?: boolean;
+  junit?: string;
+}
+
+export function registerCompareCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
+  program
+    .command('compare')
+    .description('compare two run files cell by cell: paired on the same draws, so small changes in estimator code show')
+    .argument('<base>', 'the run file to compare against (e.g. results/baseline.json)')
+    .argument('<new>', 'the run file with the changed code')
+    .option('--tolerance <t>', 'smallest |ΔRMSE| that counts as worse or improved: nats (0.01) or a percentage of the base RMSE (5%)', '0')
+    .option('--level <c>', 'confidence level of the intervals', '0.95')
+    .option('--fail-on <what>', 'exit 1 when a cell is worse beyond the tolerance (worse), or when any cell differs at all (changed)')
+    .option('--unpaired', "compare with Welch's t test even when both runs drew the same samples")
+    .option('--markdown', 'print Markdown for a pull-request comment')
+    .option('--json', 'print the comparison as JSON')
+    .option('--junit <file>', 'also write JUnit XML: one testcase per cell, failing cells as failures')
+    .action((basePath: string, nextPath: string, options: CompareOptions) => {
+      if (options.markdown && options.json) throw new UsageError('--markdown and --json cannot be combined; choose one output format');
+      const failOn: FailOn | undefined = options.failOn === undefined ? undefined : parseFailOn(options.failOn);
+      const tolerance = parseTolerance(options.tolerance ?? '0');
+      const level = parseLevel(options.level ?? '0.95');
+      const comparison = compareRuns(readRunFile(basePath), readRunFile(nextPath), { tolerance, level, pairing: options.unpaired ? 'unpaired' : 'auto' }, { base: basePath, next: nextPath });
+      if (options.json) print(formatComparisonJson(comparison));
+      else if (options.markdown) print(formatComparisonMarkdown(comparison));
+      else print(formatComparisonText(comparison, { base: basePath, next: nextPath }));
+      if (options.junit) writeFileAtomic(options.junit, formatComparisonJunit(comparison, failOn ?? 'worse'));
+      if (failOn && failsPolicy(comparison, failOn)) {
+        const failing = failingCells(comparison, failOn).length;
+        const only = comparison.added.length + comparison.removed.length;
+        const what = failOn === 'worse' ? `${failing} cell${failing === 1 ? ' is' : 's are'} worse beyond the tolerance` : `${failing} cell${failing === 1 ? '' : 's'} changed${only ? ` and ${only} are in only one run` : ''}`;
+        printErr(`hhat compare: ${what} (--fail-on ${failOn})`);
+        process.exitCode = 1;
+      }
+    });
+}

@@ -1,0 +1,38 @@
+import type { Command } from 'commander';
+import { UsageError } from '../errors.js';
+import { formatValue } from '../format.js';
+import { parseNumber } from '../spec.js';
+import { convertEntropy, unitFactor, KNOWN_UNITS } from '../units.js';
+
+export function registerConvertCommand(program: Command, print: (text: string) => void): void {
+  program
+    .command('convert')
+    .description('move a differential entropy to another unit of the data: h + d·log(old unit / new unit)')
+    .argument('<value>', 'the entropy in nats (or bits with --bits)')
+    .option('--from <unit>', `the unit the data were in (${KNOWN_UNITS.join(', ')})`)
+    .option('--to <unit>', 'the unit to express it in')
+    .option('--factor <c>', 'instead of units: the data are multiplied by c')
+    .option('--dim <d>', 'the dimension of the data', '1')
+    .option('--bits', 'the value is in bits (and so is the answer)')
+    .action((valueText: string, options: { from?: string; to?: string; factor?: string; dim: string; bits?: boolean }) => {
+      const value = parseNumber(valueText);
+      if (value === undefined || !Number.isFinite(value)) throw new UsageError(`${valueText} is not a number; give the entropy value to convert`);
+      const dim = Number(options.dim);
+      if (!Number.isInteger(dim) || dim < 1) throw new UsageError(`--dim ${options.dim} is not allowed; it must be an integer ≥ 1`);
+      let factor: number;
+      if (options.factor !== undefined) {
+        if (options.from || options.to) throw new UsageError('give either --factor or --from and --to, not both');
+        const c = parseNumber(options.factor);
+        if (c === undefined) throw new UsageError(`--factor ${options.factor} is not a number`);
+        factor = c;
+      } else {
+        if (!options.from || !options.to) throw new UsageError('give --from and --to units (e.g. --from mm --to m), or --factor c');
+        factor = unitFactor(options.from, options.to);
+      }
+      const scale = options.bits ? Math.LN2 : 1;
+      const converted = convertEntropy(value * scale, dim, factor) / scale;
+      const unit = options.bits ? 'bits' : 'nats';
+      const what = options.factor !== undefined ? `data × ${options.factor}` : `${options.from} → ${options.to}`;
+      print(`${formatValue(converted, 10)} ${unit}  (${what}, d = ${dim}: ${value} ${converted >= value ? '+' : '−'} ${formatValue(Math.abs(converted - value), 10)})`);
+    });
+}

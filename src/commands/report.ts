@@ -1,0 +1,35 @@
+import { resolve } from 'node:path';
+import type { Command } from 'commander';
+import type { Base } from '../format.js';
+import { readRunFile } from '../results.js';
+import { writeReport } from '../report/report.js';
+
+interface ReportCommandOptions {
+  out?: string;
+  svgDir?: string;
+  bits?: boolean;
+}
+
+/** RUN.json → RUN.html beside it, unless --out says otherwise. */
+export function defaultReportPath(runPath: string): string {
+  return resolve(runPath.replace(/\.json$/i, '') + '.html');
+}
+
+export function registerReportCommand(program: Command, print: (text: string) => void): void {
+  program
+    .command('report')
+    .description('write a self-contained HTML report (charts and sortable tables) of a run file')
+    .argument('<run>', 'a run file written by `hhat bench` or `hhat merge`')
+    .option('--out <file>', 'the HTML file to write (default: the run file name with .html)')
+    .option('--svg-dir <dir>', 'also write each chart as a standalone SVG file in this folder')
+    .option('--bits', 'show entropy values in bits instead of nats (the run file is always in nats)')
+    .action(async (runPath: string, options: ReportCommandOptions) => {
+      // readRunFile rejects other schema versions and broken files before anything is rendered or written.
+      const run = readRunFile(runPath);
+      const base: Base = options.bits ? 'bits' : 'nats';
+      const out = options.out ? resolve(options.out) : defaultReportPath(runPath);
+      const report = await writeReport(run, { base, out, svgDir: options.svgDir ? resolve(options.svgDir) : undefined });
+      print(`report: ${out} (${report.svgs.length} charts, rendered in ${(report.renderMs / 1000).toFixed(1)} s)`);
+      if (options.svgDir) print(`charts: ${report.svgs.length} SVG files in ${resolve(options.svgDir)}`);
+    });
+}

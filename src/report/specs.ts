@@ -1,0 +1,197 @@
+/**
+ * Vega-Lite specifications of the benchmark charts, pure functions of the rows in data.ts. Every axis title
+ * names its unit; estimators keep their colour and shape from palette.ts through explicit scale ranges, so a
+ * chart that shows only some estimators still colours them like the others.
+ */
+import type { TopLevelSpec } from 'vega-lite';
+import { formatValue, type Base } from '../format.js';
+import type { ConvergenceData, DistributionData, EfficiencyData, RankGrid, Series } from './data.js';
+import { RANK_SCHEME, REFERENCE_COLOUR } from './palette.js';
+
+/** System fonts only: the report must render offline, with nothing fetched. */
+export const CHART_FONT = 'system-ui, -apple-system, "Segoe UI", Roboto, "Helvetica Neue", Arial, sans-serif';
+
+export const CHART_CONFIG = {
+  font: CHART_FONT,
+  background: 'white',
+  padding: 8,
+  view: { stroke: '#bbbbbb' },
+  axis: { labelFontSize: 11, titleFontSize: 12, titleFontWeight: 'normal' as const, gridColor: '#e6e6e6' },
+  legend: { labelFontSize: 11, titleFontSize: 11, labelLimit: 420, titleLimit: 420, symbolSize: 70 },
+  title: { fontSize: 14, subtitleFontSize: 11, subtitleColor: '#555555', anchor: 'start' as const, offset: 10 },
+};
+
+const WIDTH = 340;
+
+function colourScale(series: Series[]) {
+  return { domain: series.map((s) => s.name), range: series.map((s) => s.colour) };
+}
+
+function shapeScale(series: Series[]) {
+  return { domain: series.map((s) => s.name), range: series.map((s) => s.shape) };
+}
+
+function bottomLegend(title: string | null = null) {
+  return { orient: 'bottom' as const, direction: 'vertical' as const, columns: 1, title, labelLimit: 420 };
+}
+
+/** Sample sizes as plain integers: these are counts, and "4k" reads worse than 4000 here. */
+function sizeAxis(sizes: number[]) {
+  return { values: sizes, format: 'd', title: 'sample size n', grid: true };
+}
+
+export function convergenceSpec(chart: ConvergenceData, base: Base): TopLevelSpec {
+  const { sizes, series } = chart;
+  const yTitle = chart.metric === 'bias' ? `|bias| (${base})` : `RMSE (${base})`;
+  const x = {
+    field: 'x',
+    type: 'quantitative' as const,
+    scale: { type: 'log' as const, domain: [sizes[0] / 1.6, sizes[sizes.length - 1] * 1.6], nice: false },
+    axis: sizeAxis(sizes),
+  };
+  const y = { field: 'value', type: 'quantitative' as const, scale: { type: 'log' as const }, title: yTitle };
+  const what = chart.metric === 'bias' ? '|bias|' : 'RMSE';
+  const legend = bottomLegend(`fitted slope of log ${what} on log n`);
+  const colour = { field: 'series', type: 'nominal' as const, scale: colourScale(series), legend };
+  return {
+    title: {
+      text: `${what} against n (log–log)`,
+      subtitle: [chart.scenario.id, `bars: ±1 Monte-Carlo SE${chart.metric === 'bias' ? '; open marks: |bias| < 2 SE' : ''}`],
+    },
+    width: WIDTH,
+    height: 240,
+    data: { values: chart.points },
+    layer: [
+      {
+        mark: { type: 'rule', strokeWidth: 1.2, opacity: 0.8 },
+        encoding: { x, y: { ...y, field: 'lower' }, y2: { field: 'upper' }, color: colour },
+      },
+      { mark: { type: 'line', strokeWidth: 1.4, opacity: 0.85 }, encoding: { x, y, color: colour } },
+      {
+        mark: { type: 'point', size: 55, strokeWidth: 1.6, opacity: 1 },
+        encoding: {
+          x,
+          y,
+          color: colour,
+          shape: { field: 'series', type: 'nominal', scale: shapeScale(series), legend },
+          fill: { condition: { test: 'datum.clear', value: 'white' }, field: 'series', type: 'nominal', scale: colourScale(series), legend: null },
+        },
+      },
+    ],
+    config: CHART_CONFIG,
+  };
+}
+
+export function distributionSpec(chart: DistributionData, base: Base): TopLevelSpec {
+  const names = chart.series.map((s) => s.name);
+  const y = { field: 'series', type: 'nominal' as const, sort: names, title: null, axis: { labelLimit: 260 } };
+  const x = { field: 'value', type: 'quantitative' as const, scale: { zero: false }, title: `estimate (${base})` };
+  const colour = { field: 'series', type: 'nominal' as const, scale: colourScale(chart.series), legend: null };
+  return {
+    title: {
+      text: `Estimates at n = ${chart.n}`,
+      subtitle: [chart.scenario.id, 'boxes: quartiles, whiskers 1.5 IQR; ticks: replicates', `dashed line: true value ${formatValue(chart.truth, 6)} ${base}`],
+    },
+    width: WIDTH,
+    height: { step: 26 },
+    layer: [
+      {
+        data: { values: chart.values },
+        mark: { type: 'boxplot', extent: 1.5, size: 16, opacity: 0.45, median: { color: 'black', opacity: 1 }, outliers: { size: 18, opacity: 0.9 } },
+        encoding: { x, y, color: colour },
+      },
+      {
+        data: { values: chart.values },
+        mark: { type: 'tick', thickness: 1, size: 20, opacity: 0.6 },
+        encoding: { x, y, color: colour },
+      },
+      {
+        data: { values: [{ truth: chart.truth }] },
+        mark: { type: 'rule', strokeDash: [5, 3], strokeWidth: 1.5, color: REFERENCE_COLOUR },
+        encoding: { x: { field: 'truth', type: 'quantitative' } },
+      },
+    ],
+    config: CHART_CONFIG,
+  };
+}
+
+export function efficiencySpec(chart: EfficiencyData): TopLevelSpec {
+  const names = chart.series.map((s) => s.name);
+  const band = Math.max(36, names.length * 9);
+  const x = { field: 'value', type: 'quantitative' as const, scale: { type: 'log' as const }, title: 'efficiency n·Var(Ĥ)/Var(log f(X)) (ratio, no unit)' };
+  const y = { field: 'scenario', type: 'nominal' as const, sort: chart.scenarios, title: null, axis: { labelLimit: 320 } };
+  const yOffset = { field: 'series', type: 'nominal' as const, sort: names };
+  const colour = { field: 'series', type: 'nominal' as const, scale: colourScale(chart.series), legend: bottomLegend() };
+  const sizes = [...new Set(chart.rows.map((r) => r.n))];
+  return {
+    title: {
+      text: `Efficiency at the largest n (${sizes.join(', ')})`,
+      subtitle: ['dashed line at 1: the asymptotic bound Var(log f)/n', 'for the variance of an unbiased estimator', 'bars: ±1 Monte-Carlo SE'],
+    },
+    width: 460,
+    height: chart.scenarios.length * band,
+    layer: [
+      {
+        data: { values: [{ bound: 1 }] },
+        mark: { type: 'rule', strokeDash: [5, 3], strokeWidth: 1.5, color: REFERENCE_COLOUR },
+        encoding: { x: { field: 'bound', type: 'quantitative' } },
+      },
+      {
+        data: { values: chart.rows },
+        layer: [
+          { mark: { type: 'rule', strokeWidth: 1.2 }, encoding: { x: { ...x, field: 'lower' }, x2: { field: 'upper' }, y, yOffset, color: colour } },
+          {
+            mark: { type: 'point', filled: true, size: 40, opacity: 1 },
+            encoding: { x, y, yOffset, color: colour, shape: { field: 'series', type: 'nominal', scale: shapeScale(chart.series), legend: bottomLegend() } },
+          },
+        ],
+      },
+    ],
+    config: CHART_CONFIG,
+  };
+}
+
+export function rankHeatmapSpec(grid: RankGrid): TopLevelSpec {
+  // "d=1/exponential" on two lines keeps the columns narrow enough for a phone.
+  const x = {
+    field: 'group',
+    type: 'nominal' as const,
+    sort: grid.groups,
+    title: 'dimension / tail class',
+    axis: { labelAngle: 0, labelExpr: "split(datum.label, '/')" },
+  };
+  const y = { field: 'estimator', type: 'nominal' as const, sort: grid.estimators, title: null, axis: { labelLimit: 260 } };
+  const middle = (1 + grid.maxRank) / 2;
+  return {
+    title: { text: 'Average rank by RMSE (1 = best)', subtitle: ['over the scenarios and sample sizes of each group', 'rows sorted by the average over all groups'] },
+    width: { step: 76 },
+    height: { step: 28 },
+    data: { values: grid.rows },
+    layer: [
+      {
+        mark: { type: 'rect', stroke: 'white', strokeWidth: 1 },
+        encoding: {
+          x,
+          y,
+          color: {
+            field: 'meanRank',
+            type: 'quantitative',
+            scale: { scheme: RANK_SCHEME, domain: [1, grid.maxRank], reverse: true },
+            legend: { title: 'mean rank', orient: 'bottom', direction: 'horizontal', gradientLength: 200 },
+          },
+        },
+      },
+      {
+        mark: { type: 'text', fontSize: 12 },
+        encoding: {
+          x,
+          y,
+          text: { field: 'meanRank', type: 'quantitative', format: '.1f' },
+          // Reversed viridis is dark at high ranks: white text there, black on the light end.
+          color: { condition: { test: `datum.meanRank > ${middle}`, value: 'white' }, value: 'black' },
+        },
+      },
+    ],
+    config: CHART_CONFIG,
+  };
+}

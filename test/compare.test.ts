@@ -1,0 +1,286 @@
+/**
+ * `hhat compare`: the t tests against SciPy, classification of cells, paired versus unpaired power, and the
+ * CLI's outputs (exit codes, Markdown, JSON, JUnit XML read back with an XML parser).
+ */
+import { mkdtempSync, readFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { XMLParser } from 'fast-xml-parser';
+import { main } from '../src/cli.js';
+import { compareRuns, failsPolicy, pairedTTest, parseTolerance, welchTTest, type Comparison } from '../src/compare.js';
+import { escapeXml, formatComparisonJunit, formatComparisonMarkdown, formatP } from '../src/compare-format.js';
+import { resolvePlan, type PlanInput } from '../src/plan.js';
+import { runPlan } from '../src/runner.js';
+import { assembleRun, writeRunFile, type RunFile } from '../src/results.js';
+import { scoreCell } from '../src/score.js';
+import { UsageError } from '../src/errors.js';
+import { getEstimator, replaceEstimator } from '../estimators/index.js';
+import { useEstimatorModules } from '../src/modules.js';
+import { shiftedKozachenkoLeonenko } from './fixtures/shifted-kozachenko-leonenko.js';
+import scipy from './fixtures/compare.json' with { type: 'json' };
+
+const dir = mkdtempSync(join(tmpdir(), 'hhat-compare-'));
+const shiftedModule = join(__dirname, 'fixtures', 'shifted-kozachenko-leonenko.ts');
+const builtInKl = getEstimator('kozachenko-leonenko');
+
+async function run(args: string[]): Promise<{ code: number; out: string; err: string }> {
+  let out = '';
+  let err = '';
+  const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
+  return { code, out, err };
+}
+
+async function runInProcess(input: PlanInput): Promise<RunFile> {
+  const { plan } = resolvePlan(input);
+  return assembleRun(await runPlan(plan, { workers: 1 }), null);
+}
+
+function save(name: string, value: RunFile): string {
+  const path = join(dir, name);
+  writeRunFile(path, value);
+  return path;
+}
+
+/** Relative difference, for p-values spanning many orders of magnitude. */
+const relative = (a: number, b: number) => Math.abs(a - b) / Math.abs(b);
+
+describe('t tests (reference: SciPy, test/fixtures/make_compare_fixture.py)', () => {
+  it.each(Object.entries(scipy.paired))('paired (one-sample t on differences): %s', (_name, ref) => {
+    const test = pairedTTest(ref.d)!;
+    expect(test.t).toBeCloseTo(ref.statistic, 9);
+    expect(test.df).toBe(ref.df);
+    expect(relative(test.p, ref.p)).toBeLessThan(1e-7);
+    expect(test.interval[0]).toBeCloseTo(ref.ci95[0], 10);
+    expect(test.interval[1]).toBeCloseTo(ref.ci95[1], 10);
+    const ninety = pairedTTest(ref.d, 0.9)!;
+    expect(ninety.interval[0]).toBeCloseTo(ref.ci90[0], 10);
+    expect(ninety.interval[1]).toBeCloseTo(ref.ci90[1], 10);
+  });
+
+  it.each(Object.entries(scipy.welch))("Welch's unequal-variance t: %s", (_name, ref) => {
+    const test = welchTTest(ref.a, ref.b)!;
+    expect(test.t).toBeCloseTo(ref.statistic, 9);
+    expect(test.df).toBeCloseTo(ref.df, 8);
+    expect(relative(test.p, ref.p)).toBeLessThan(1e-7);
+    expect(test.interval[0]).toBeCloseTo(ref.ci95[0], 10);
+    expect(test.interval[1]).toBeCloseTo(ref.ci95[1], 10);
+  });
+
+  it('the t quantile behind the intervals matches a printed table (from memory: t(0.975; 10) = 2.228, t(0.95; 4) = 2.132)', () => {
+    // An odd-sized sample of 0 and (m − 1)/2 pairs ±√m has mean 0 and SE 1, so the interval's upper end is the quantile.
+    const unitSe = (m: number) => [0, ...Array.from({ length: m - 1 }, (_, i) => (i % 2 ? 1 : -1) * Math.sqrt(m))];
+    expect(pairedTTest(unitSe(11))!.interval[1]).toBeCloseTo(2.228, 3);
+    expect(pairedTTest(unitSe(5), 0.9)!.interval[1]).toBeCloseTo(2.132, 3);
+  });
+
+  it('too few values give no test rather than NaN', () => {
+    expect(pairedTTest([1])).toBeNull();
+    expect(welchTTest([1, 2], [3])).toBeNull();
+  });
+});
+
+describe('--tolerance', () => {
+  it('reads nats and percentages of the base RMSE; anything else is a one-line usage error', () => {
+    expect(parseTolerance('0.01')).toEqual({ kind: 'nats', value: 0.01 });
+    expect(parseTolerance('1e-3')).toEqual({ kind: 'nats', value: 0.001 });
+    expect(parseTolerance('5%')).toEqual({ kind: 'ratio', value: 0.05 });
+    for (const bad of ['-0.1', 'five', '5%%', '']) {
+      expect(() => parseTolerance(bad)).toThrow(UsageError);
+      expect(() => parseTolerance(bad)).toThrow(/^--tolerance .* is not allowed; give a change in RMSE in nats \(e\.g\. 0\.01\) or a percentage of the base RMSE \(e\.g\. 5%\)/);
+    }
+  });
+});
+
+describe('comparing runs', () => {
+  // Plan A: the 0.05-nat regression. Kozachenko–Leonenko's bias here is near 0, so adding 0.05 nats raises
+  // every KL cell's MSE by about 0.05² (paired t ≥ 3.8 at this seed), while vasicek and gaussian are untouched.
+  const planA: PlanInput = {
+    scenarios: ['normal', 'uniform', 'exponential'],
+    estimators: ['kozachenko-leonenko', 'kozachenko-leonenko:k=5', 'vasicek', 'gaussian'],
+    sampleSizes: [200, 1000],
+    replicates: 200,
+    seed: 99,
+  };
+  // Plan B: the 0.005-nat change, far below the Monte-Carlo error of either run. KL is biased by about
+  // −0.033 nats here, so a shift δ changes the MSE by δ(2·bias + δ), which the paired test resolves.
+  const planB: PlanInput = { scenarios: ['gaussian:dim=3'], estimators: ['kozachenko-leonenko'], sampleSizes: [1000], replicates: 200, seed: 99 };
+
+  let base: RunFile;
+  let shifted: RunFile;
+  let basePath: string;
+  let shiftedPath: string;
+
+  beforeAll(async () => {
+    base = await runInProcess(planA);
+    basePath = save('base.json', base);
+    const registration = await useEstimatorModules([shiftedModule]);
+    expect(registration.replaced).toEqual(['kozachenko-leonenko']);
+    shifted = await runInProcess(planA);
+    replaceEstimator(builtInKl);
+    shiftedPath = save('shifted.json', shifted);
+  });
+
+  afterAll(() => {
+    replaceEstimator(builtInKl);
+  });
+
+  it('a run compared with itself: every cell unchanged, paired, exit 0 (also under --fail-on changed)', async () => {
+    const comparison = compareRuns(base, base);
+    expect(comparison.pairing.paired).toBe(true);
+    expect(comparison.cells).toHaveLength(24);
+    expect(comparison.cells.every((c) => c.status === 'unchanged')).toBe(true);
+    expect(comparison.counts).toMatchObject({ unchanged: 24, worse: 0, improved: 0, 'changed-within-noise': 0, added: 0, removed: 0 });
+
+    const text = await run(['compare', basePath, basePath, '--fail-on', 'changed']);
+    expect(text.code).toBe(0);
+    expect(text.out).toMatch(/^Paired: both runs drew the same samples/m);
+    expect(text.out).toContain('0 worse, 0 improved, 0 changed within noise, 24 unchanged');
+    const json = await run(['compare', basePath, basePath, '--json']);
+    expect(json.code).toBe(0);
+    const parsed = JSON.parse(json.out) as Comparison;
+    expect(parsed.pairing.paired).toBe(true);
+    expect(new Set(parsed.cells.map((c) => c.status))).toEqual(new Set(['unchanged']));
+  });
+
+  it('a module adding 0.05 nats to kozachenko-leonenko: exactly its cells are worse, and every output says so', async () => {
+    const comparison = compareRuns(base, shifted);
+    const worse = comparison.cells.filter((c) => c.status === 'worse');
+    const others = comparison.cells.filter((c) => c.status !== 'worse');
+    expect(worse.map((c) => `${c.scenario} ${c.estimator} ${c.n}`).sort()).toEqual(
+      comparison.cells.filter((c) => c.estimator.startsWith('kozachenko-leonenko:')).map((c) => `${c.scenario} ${c.estimator} ${c.n}`).sort(),
+    );
+    expect(worse).toHaveLength(12);
+    expect(others.every((c) => c.status === 'unchanged')).toBe(true);
+    for (const c of worse) {
+      // Independent of the test: every paired estimate moved by exactly the module's 0.05 (to rounding).
+      expect(c.shift!.value).toBeCloseTo(0.05, 12);
+      expect(c.rmse.change).toBeGreaterThan(0);
+      expect(c.test!.interval[0]).toBeGreaterThan(0);
+    }
+
+    const cli = await run(['compare', basePath, shiftedPath, '--fail-on', 'worse', '--markdown', '--junit', join(dir, 'junit.xml')]);
+    expect(cli.code).toBe(1);
+    expect(cli.err.trim()).toBe('hhat compare: 12 cells are worse beyond the tolerance (--fail-on worse)');
+
+    // Markdown: the summary line first, then the changed cells, all of them KL and all worse.
+    const lines = cli.out.split('\n');
+    expect(lines[0]).toBe('**hhat compare: 12 worse, 0 improved, 0 changed within noise, 12 unchanged** (paired, tolerance 0 nats)');
+    const changedRows = lines.filter((l) => l.startsWith('| **worse**'));
+    expect(changedRows).toHaveLength(12);
+    expect(changedRows.every((l) => l.includes('`kozachenko-leonenko:'))).toBe(true);
+    expect(cli.out).toContain('<details><summary>12 unchanged cells</summary>');
+
+    // JUnit: read back with an XML parser; one testcase per cell, a <failure> for each worse cell.
+    const xml = new XMLParser({ ignoreAttributes: false, attributeNamePrefix: '', isArray: (name) => name === 'testcase' || name === 'failure' }).parse(readFileSync(join(dir, 'junit.xml'), 'utf8'));
+    const suite = xml.testsuites.testsuite;
+    const cases = suite.testcase as { classname: string; name: string; failure?: { type: string; '#text': string }[] }[];
+    expect(cases).toHaveLength(24);
+    const failed = cases.filter((c) => c.failure);
+    expect(failed.flatMap((c) => c.failure)).toHaveLength(12);
+    expect(Number(suite.failures)).toBe(12);
+    expect(failed.every((c) => c.name.startsWith('kozachenko-leonenko:') && /@(200|1000)$/.test(c.name))).toBe(true);
+    expect(new Set(failed.map((c) => c.classname))).toEqual(new Set(['normal:mu=0,sigma=1', 'uniform:a=0,b=1', 'exponential:rate=1']));
+    expect(failed[0].failure![0]['#text']).toMatch(/paired t test on squared errors: difference \+/);
+
+    // With a tolerance above every ΔRMSE (at most about 0.05 nats) the same cells are only changed within noise, and CI passes.
+    const lenient = await run(['compare', basePath, shiftedPath, '--fail-on', 'worse', '--tolerance', '0.05']);
+    expect(lenient.code).toBe(0);
+    expect(lenient.out).toContain('0 worse, 0 improved, 12 changed within noise, 12 unchanged');
+    // --fail-on changed fails on the same cells.
+    expect((await run(['compare', basePath, shiftedPath, '--fail-on', 'changed', '--tolerance', '0.05'])).code).toBe(1);
+  });
+
+  it('a cell whose failures rise is worse regardless of the tolerance; cells in one run only are listed', () => {
+    const next = structuredClone(base);
+    const cell = next.cells.find((c) => c.estimator.startsWith('vasicek') && c.n === 200)!;
+    const truth = next.scenarios.find((s) => s.id === cell.scenario)!.truth;
+    cell.estimates[3] = null;
+    cell.failures.push({ replicate: 3, message: 'numeric: test' });
+    cell.scores = scoreCell(cell.estimates.map((v) => (v === null ? NaN : v)), truth, cell.n);
+    const removed = next.cells.pop()!;
+    next.cells.push({ ...removed, estimator: 'gaussian:correction=none' });
+
+    const comparison = compareRuns(base, next, { tolerance: parseTolerance('1000%') });
+    const changed = comparison.cells.filter((c) => c.status !== 'unchanged');
+    expect(changed).toHaveLength(1);
+    expect(changed[0]).toMatchObject({ scenario: cell.scenario, estimator: cell.estimator, n: 200, status: 'worse', failures: { base: 0, next: 1 } });
+    expect(changed[0].reasons[0]).toBe('failures rose from 0 to 1 of 200');
+    expect(comparison.removed).toEqual([{ scenario: removed.scenario, estimator: removed.estimator, n: removed.n, perturbation: null }]);
+    expect(comparison.added).toEqual([{ scenario: removed.scenario, estimator: 'gaussian:correction=none', n: removed.n, perturbation: null }]);
+    expect(failsPolicy(comparison, 'worse')).toBe(true);
+  });
+
+  it('shard files are refused with one line', () => {
+    const shard = { ...structuredClone(base), shard: { index: 1, count: 2 }, complete: false };
+    expect(() => compareRuns(shard, base, {}, { base: 'a.json', next: 'b.json' })).toThrow('a.json is shard 1/2 of a run; merge the shards (hhat merge) and compare the merged file');
+  });
+
+  it('a change of 0.005 nats at 200 replicates: the paired test finds it, an unpaired comparison cannot', async () => {
+    const b = await runInProcess(planB);
+    const results: Record<string, { pairedP: number; unpairedP: number; paired: string; unpaired: string }> = {};
+    for (const shift of [0.005, -0.005]) {
+      replaceEstimator(shiftedKozachenkoLeonenko(shift));
+      const next = await runInProcess(planB);
+      replaceEstimator(builtInKl);
+      const [paired] = compareRuns(b, next).cells;
+      const [unpaired] = compareRuns(b, next, { pairing: 'unpaired' }).cells;
+      expect(paired.paired).toBe(true);
+      expect(unpaired.paired).toBe(false);
+      expect(unpaired.test!.kind).toBe('welch-t');
+      results[String(shift)] = { pairedP: paired.test!.p, unpairedP: unpaired.test!.p, paired: paired.status, unpaired: unpaired.status };
+      // The change in RMSE is below the Monte-Carlo SE that the two runs' own scores give it.
+      expect(Math.abs(paired.rmse.change)).toBeLessThan(paired.rmse.changeSe);
+      expect(paired.test!.p).toBeLessThan(1e-8);
+      expect(unpaired.test!.p).toBeGreaterThan(0.05);
+      expect(unpaired.status).toBe('changed-within-noise');
+    }
+    // KL is biased low here, so moving it up helps and moving it down hurts.
+    expect(results['0.005'].paired).toBe('improved');
+    expect(results['-0.005'].paired).toBe('worse');
+    console.info(`0.005-nat change on gaussian:dim=3, n=1000, 200 replicates: ${JSON.stringify(results)}`);
+  });
+
+  it('different seeds fall back to an unpaired comparison and say why', async () => {
+    const b = await runInProcess(planB);
+    const other = await runInProcess({ ...planB, seed: 100 });
+    const comparison = compareRuns(b, other);
+    expect(comparison.pairing.paired).toBe(false);
+    expect(comparison.pairing.reason).toBe("the runs drew different samples (seed 99 vs 100); Welch's t test on the squared errors");
+    expect(comparison.cells[0].test!.kind).toBe('welch-t');
+    expect(comparison.cells[0].status).not.toBe('unchanged');
+    expect(formatComparisonMarkdown(comparison).split('\n')[0]).toMatch(/\(unpaired, tolerance 0 nats\)$/);
+  });
+});
+
+describe('output details', () => {
+  it('JUnit text survives any characters in names: a real parser reads back what was written', async () => {
+    const { plan } = resolvePlan({ scenarios: ['normal'], estimators: ['gaussian'], sampleSizes: [20], replicates: 3, seed: 1 });
+    const r = assembleRun(await runPlan(plan, { workers: 1 }), null);
+    const comparison = compareRuns(r, r);
+    const awkward = `odd <scenario> & "quotes" 'apostrophes' ]]> \u0001bell`;
+    comparison.cells[0].scenario = awkward;
+    const xml = new XMLParser({ ignoreAttributes: false, attributeNamePrefix: '' }).parse(formatComparisonJunit(comparison));
+    // The control character is not allowed in XML 1.0 at all, so it is dropped; everything else round-trips.
+    expect(xml.testsuites.testsuite.testcase.classname).toBe(awkward.replace('\u0001', ''));
+    expect(escapeXml('a<b')).toBe('a&lt;b');
+  });
+
+  it('p-values keep their magnitude', () => {
+    expect(formatP(0.04321)).toBe('0.043');
+    expect(formatP(2.4e-88)).toBe('2.4e-88');
+    expect(formatP(NaN)).toBe('–');
+  });
+
+  it('usage errors: unknown --fail-on, --markdown with --json, a file that is not a run file', async () => {
+    const path = join(dir, 'not-a-run.json');
+    writeRunFile(path, {} as RunFile);
+    const bad = await run(['compare', path, path]);
+    expect(bad.code).toBe(2);
+    expect(bad.err.trim()).toBe(`hhat: ${path} is not an hhat run file (no "kind": "hhat-run")`);
+    const failOn = await run(['compare', path, path, '--fail-on', 'slower']);
+    expect(failOn.code).toBe(2);
+    expect(failOn.err.trim()).toBe('hhat: --fail-on slower is not allowed; it must be worse (a cell got worse beyond the tolerance) or changed (any cell differs)');
+    expect((await run(['compare', path, path, '--markdown', '--json'])).code).toBe(2);
+  });
+});

@@ -1,0 +1,251 @@
+/**
+ * `hhat report`: every chart is a well-formed standalone SVG (checked by an independent XML parser,
+ * fast-xml-parser), names itself and its units; a bad run file writes nothing; the optional robustness
+ * section draws its charts; the terminal chart puts each |bias| on the right decade.
+ */
+import { existsSync, mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { beforeAll, describe, expect, it } from 'vitest';
+import { XMLParser, XMLValidator } from 'fast-xml-parser';
+import normalEntropy from '@stdlib/stats-base-dists-normal-entropy';
+import { resolvePlan } from '../src/plan.js';
+import { runPlan } from '../src/runner.js';
+import { assembleRun, readRunFile, writeRunFile, type Cell, type RunFile } from '../src/results.js';
+import type { RobustnessSection } from '../src/robustness.js';
+import { UsageError } from '../src/errors.js';
+import { main } from '../src/cli.js';
+import { formatValue } from '../src/format.js';
+import { renderReport, writeReport } from '../src/report/report.js';
+import { biasTextChart } from '../src/report/text-chart.js';
+
+const dir = mkdtempSync(join(tmpdir(), 'hhat-report-'));
+let run: RunFile;
+let runPath: string;
+
+async function cli(args: string[]): Promise<{ code: number; out: string; err: string }> {
+  let out = '';
+  let err = '';
+  const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
+  return { code, out, err };
+}
+
+beforeAll(async () => {
+  const { plan } = resolvePlan({
+    name: 'report test',
+    scenarios: ['normal', 'gaussian:dim=2,rho=0.5'],
+    estimators: ['kozachenko-leonenko', 'gaussian', 'histogram', 'vasicek'],
+    sampleSizes: [60, 240, 960],
+    replicates: 8,
+    seed: 11,
+  });
+  run = assembleRun(await runPlan(plan, { workers: 1 }), null);
+  runPath = join(dir, 'run.json');
+  writeRunFile(runPath, run);
+});
+
+const xml = new XMLParser({ ignoreAttributes: false, attributeNamePrefix: '@', textNodeName: '#text' });
+
+/** Every string inside <text> elements (vega draws axis titles, labels and legends as <text>). */
+function texts(node: unknown, inside = false, out: string[] = []): string[] {
+  if (typeof node === 'string' || typeof node === 'number') {
+    if (inside) out.push(String(node));
+  } else if (Array.isArray(node)) {
+    for (const child of node) texts(child, inside, out);
+  } else if (node && typeof node === 'object') {
+    for (const [key, child] of Object.entries(node)) {
+      if (key.startsWith('@')) continue;
+      texts(child, inside || key === 'text', out);
+    }
+  }
+  return out;
+}
+
+function parseSvg(text: string): { root: Record<string, unknown>; strings: string[] } {
+  // fast-xml-parser's validator: a real XML well-formedness check, independent of how vega wrote the file.
+  expect(XMLValidator.validate(text)).toBe(true);
+  const doc = xml.parse(text) as { svg: Record<string, unknown> };
+  expect(doc.svg).toBeDefined();
+  return { root: doc.svg, strings: texts(doc.svg) };
+}
+
+/** The unit words each kind of chart must show in its axis titles. */
+const UNIT_TEXT: [RegExp, (unit: string) => string[]][] = [
+  [/^bias-/, (u) => [`|bias| (${u})`, 'sample size n']],
+  [/^rmse-/, (u) => [`RMSE (${u})`, 'sample size n']],
+  [/^estimates-/, (u) => [`estimate (${u})`]],
+  [/^tuning-/, (u) => [`mean estimate (${u})`]],
+  [/^efficiency$/, () => ['efficiency n·Var(Ĥ)/Var(log f(X)) (ratio, no unit)']],
+  [/^average-rank$/, () => ['mean rank', 'dimension / tail class']],
+  [/^robustness$/, () => ['check', 'verdict']],
+];
+
+describe('hhat report on a small run', () => {
+  it('writes the page and one standalone SVG per chart, each valid XML with a title and unit-naming axes', async () => {
+    const out = join(dir, 'page.html');
+    const svgDir = join(dir, 'svg');
+    const { code, out: printed } = await cli(['report', runPath, '--out', out, '--svg-dir', svgDir]);
+    expect(code).toBe(0);
+    expect(printed).toMatch(/report: .*page\.html \(\d+ charts/);
+    const files = readdirSync(svgDir).filter((f) => f.endsWith('.svg'));
+    // 2 scenarios × (|bias|, RMSE, estimates) + average rank + efficiency.
+    expect(files.length).toBe(8);
+    for (const file of files) {
+      const { root, strings } = parseSvg(readFileSync(join(svgDir, file), 'utf8'));
+      expect(root['@xmlns']).toBe('http://www.w3.org/2000/svg');
+      expect(typeof root.title === 'string' && root.title.length > 10, `${file} has a <title>`).toBe(true);
+      const rule = UNIT_TEXT.find(([pattern]) => pattern.test(file.replace(/\.svg$/, '')));
+      expect(rule, `${file} is a known kind of chart`).toBeDefined();
+      for (const expected of rule![1]('nats')) expect(strings, `${file} shows "${expected}"`).toContain(expected);
+    }
+    const html = readFileSync(out, 'utf8');
+    expect((html.match(/<figure class="chart/g) ?? []).length).toBe(8);
+    expect(html).toContain(run.environment.hhatVersion);
+    expect(html).toContain(String(run.plan.seed));
+  });
+
+  it('--bits converts every entropy axis and the true value (normal truth from @stdlib)', async () => {
+    const report = await renderReport(run, { base: 'bits' });
+    expect(report.warnings).toEqual([]);
+    for (const chart of report.svgs) {
+      const { strings } = parseSvg(chart.svg);
+      expect(strings.join('\n')).not.toMatch(/\(nats\)/);
+      const rule = UNIT_TEXT.find(([pattern]) => pattern.test(chart.name))!;
+      for (const expected of rule[1]('bits')) expect(strings, `${chart.name} shows "${expected}"`).toContain(expected);
+    }
+    const normal = report.svgs.find((c) => c.name.startsWith('estimates-normal'))!;
+    const bits = normalEntropy(0, 1) / Math.LN2;
+    expect(parseSvg(normal.svg).strings).toContain(`dashed line: true value ${formatValue(bits, 6)} bits`);
+  });
+
+  it('a run file of schema version 0 is a usage error and writes nothing', async () => {
+    const old = join(dir, 'old.json');
+    writeFileSync(old, JSON.stringify({ ...run, schemaVersion: 0 }));
+    expect(() => readRunFile(old)).toThrow(UsageError);
+    const out = join(dir, 'old.html');
+    const svgDir = join(dir, 'old-svg');
+    const { code, err } = await cli(['report', old, '--out', out, '--svg-dir', svgDir]);
+    expect(code).toBe(2);
+    expect(err.trim().split('\n')).toHaveLength(1);
+    expect(err).toMatch(/schemaVersion 0/);
+    expect(existsSync(out)).toBe(false);
+    expect(existsSync(svgDir)).toBe(false);
+  });
+
+  it('a truncated run file is a usage error and writes nothing', async () => {
+    const truncated = join(dir, 'truncated.json');
+    const text = readFileSync(runPath, 'utf8');
+    writeFileSync(truncated, text.slice(0, Math.floor(text.length / 2)));
+    expect(() => readRunFile(truncated)).toThrow(UsageError);
+    const out = join(dir, 'truncated.html');
+    const { code, err } = await cli(['report', truncated, '--out', out, '--svg-dir', join(dir, 'truncated-svg')]);
+    expect(code).toBe(2);
+    expect(err).toMatch(/not valid JSON/);
+    expect(existsSync(out)).toBe(false);
+    expect(existsSync(join(dir, 'truncated-svg'))).toBe(false);
+  });
+});
+
+/** A robustness section as the runner writes it, made by hand so that the verdicts and settings are known. */
+function withRobustness(base: RunFile): RunFile {
+  const estimators = base.plan.estimators;
+  const [knn, gaussian, histogram] = estimators;
+  const estimate = (value: number | null) => ({ value: value as number, se: 0.01 });
+  const verdicts: ('pass' | 'warn' | 'fail' | 'n/a')[] = ['pass', 'warn', 'fail', 'n/a', 'pass', 'fail'];
+  const columns = ['rescale', 'monotone', 'affine', 'quantize', 'contaminate', 'tuning'];
+  const section: RobustnessSection = {
+    sampleSize: 240,
+    replicates: 8,
+    perturbations: ['rescale:c=1000', 'quantize:step=0.1'],
+    measures: [
+      { scenario: 'normal:mu=0,sigma=1', estimator: knn, perturbation: 'rescale:c=1000', kind: 'rescale', level: null, shift: Math.log(1000), drift: estimate(1e-12), change: estimate(1e-13), discreteEntropy: null, sd: 0.1, failures: 0 },
+      { scenario: 'normal:mu=0,sigma=1', estimator: gaussian, perturbation: 'quantize:step=0.1', kind: 'quantize', level: 0.1, shift: null, drift: estimate(null), change: estimate(0.02), discreteEntropy: 3.7, sd: 0.05, failures: 1 },
+    ],
+    tuning: [
+      {
+        scenario: 'normal:mu=0,sigma=1',
+        estimator: knn,
+        setting: 'k',
+        // Out of order on purpose: numeric settings are drawn in numeric order.
+        points: [10, 1, 3].map((k) => ({ value: k, spec: `kozachenko-leonenko:k=${k},norm=euclidean`, mean: estimate(1.4 + k / 100), sd: 0.05, failures: 0 })),
+        spread: 1.8,
+      },
+      {
+        scenario: 'normal:mu=0,sigma=1',
+        estimator: histogram,
+        setting: 'bins',
+        points: ['sturges', 'scott', 'freedman-diaconis'].map((rule, i) => ({ value: rule, spec: `histogram:bins=${rule}`, mean: estimate(1.38 + i / 100), sd: 0.06, failures: 0 })),
+        spread: 0.4,
+      },
+    ],
+    table: [knn, gaussian].map((estimator, row) => ({
+      estimator,
+      columns: Object.fromEntries(columns.map((c, i) => [c, { value: i === 3 ? null : i / 10, verdict: verdicts[(i + row) % verdicts.length], detail: `${c} detail` }])),
+    })),
+  };
+  return { ...base, robustness: section };
+}
+
+describe('the robustness section', () => {
+  it('draws the verdict grid and one tuning panel per scenario × family, and is left out without one', async () => {
+    const synthetic = withRobustness(run);
+    const report = await renderReport(synthetic);
+    expect(report.warnings).toEqual([]);
+    const names = report.svgs.map((c) => c.name);
+    expect(names).toContain('robustness');
+    expect(names.filter((n) => n.startsWith('tuning-'))).toEqual(['tuning-nearest-neighbour-normal-mu-0-sigma-1', 'tuning-histogram-normal-mu-0-sigma-1']);
+    const grid = parseSvg(report.svgs.find((c) => c.name === 'robustness')!.svg).strings;
+    // Counted from the section above: each verdict's cells, plus its legend entry.
+    const table = synthetic.robustness!.table.flatMap((r) => Object.values(r.columns).map((c) => c.verdict));
+    for (const verdict of ['pass', 'warn', 'fail']) expect(grid.filter((t) => t === verdict).length).toBe(table.filter((v) => v === verdict).length + 1);
+    const tuning = parseSvg(report.svgs.find((c) => c.name.startsWith('tuning-nearest'))!.svg).strings;
+    const ticks = tuning.filter((t) => ['1', '3', '10'].includes(t));
+    expect(ticks).toEqual(['1', '3', '10']);
+    expect(report.html).toContain('id="robustness"');
+
+    const plain = await renderReport({ ...run, robustness: null });
+    expect(plain.svgs.some((c) => c.name === 'robustness' || c.name.startsWith('tuning-'))).toBe(false);
+    expect(plain.html).not.toContain('id="robustness"');
+  });
+
+  it('writeReport writes nothing when rendering fails', async () => {
+    const broken = { ...run, cells: run.cells.map((c, i) => (i === 0 ? ({ ...c, scores: undefined } as unknown as Cell) : c)) };
+    const out = join(dir, 'broken.html');
+    await expect(writeReport(broken, { out, svgDir: join(dir, 'broken-svg') })).rejects.toThrow();
+    expect(existsSync(out)).toBe(false);
+    expect(existsSync(join(dir, 'broken-svg'))).toBe(false);
+  });
+});
+
+describe('biasTextChart', () => {
+  /** Two estimators with |bias| chosen by hand: A falls two decades over 100 → 10000, B stays at 0.01. */
+  function handMade(): RunFile {
+    const scores = (bias: number, se: number) => ({ bias: { value: bias, se } }) as unknown as Cell['scores'];
+    const cell = (estimator: string, n: number, bias: number, se: number) => ({ scenario: 's', estimator, n, role: 'main', perturbation: null, scores: scores(bias, se) }) as unknown as Cell;
+    return {
+      scenarios: [{ id: 's' }],
+      cells: [cell('gaussian', 100, 0.1, 0.001), cell('gaussian', 10000, -0.001, 0.0001), cell('kernel', 100, 0.01, 0.001), cell('kernel', 10000, 0.01, 0.02)],
+      rankings: [{ scenario: 's', n: 10000, perturbation: null, entries: [{ estimator: 'gaussian' }, { estimator: 'kernel' }] }],
+    } as unknown as RunFile;
+  }
+
+  it('puts each |bias| on its decade (log10 worked out by hand) and lower-cases those within 2 SE of zero', () => {
+    const lines = biasTextChart(handMade(), 'nats').split('\n');
+    const rowOf = (label: string) => lines.find((l) => l.trimStart().startsWith(`${label} ┤`))!;
+    expect(lines[0]).toBe('s: |bias| (nats) against n, log–log, best 2 at n=10000');
+    expect(rowOf('0.1').match(/[A-Za-z]/g)).toEqual(['A']);
+    // B at n=100 is 0.01 ± 0.001 (clear of zero); at n=10000, 0.01 ± 0.02 is within 2 SE: lower case.
+    expect(rowOf('0.01').match(/[A-Za-z]/g)).toEqual(['B', 'b']);
+    expect(rowOf('0.001').match(/[A-Za-z]/g)).toEqual(['A']);
+    const a100 = rowOf('0.1').indexOf('A');
+    const a10000 = rowOf('0.001').indexOf('A');
+    expect(a10000).toBeGreaterThan(a100);
+    expect(lines.some((l) => l.includes('A gaussian') && l.includes('B kernel'))).toBe(true);
+  });
+
+  it('converts to bits and draws every scenario of a real run', () => {
+    const text = biasTextChart(run, 'bits');
+    expect(text).toContain('|bias| (bits)');
+    for (const info of run.scenarios) expect(text).toContain(`${info.id}: |bias|`);
+  });
+});
