@@ -14,6 +14,8 @@ export interface Sample {
   data: Float64Array;
   /** For mutual information: the first `xDim` columns are X, the rest are Y. */
   xDim?: number;
+  /** For a divergence D(P || Q): this sample is from P and `q` is the sample from Q (same dim, own size). */
+  q?: Sample;
 }
 
 /** Two samples, from P and from Q, for a divergence D(P || Q). */
