@@ -40,6 +40,7 @@ export interface RobustnessMeasure {
   sd: number;
   /** Monte-Carlo SE of the unperturbed bias (SD/√m): the yardstick of the quantization threshold. */
   biasSe: number;
+  /** Replicates that fail only on the perturbed sample (the estimator's own failures are not counted). */
   failures: number;
 }
 
@@ -102,7 +103,7 @@ function pairedMeasure(perturbed: Cell, original: Cell, scenario: ScenarioInfo):
     discreteEntropy,
     sd: original.scores.sd.value,
     biasSe: original.scores.bias.se,
-    failures: perturbed.scores.failures,
+    failures: perturbed.estimates.filter((v, r) => v === null && original.estimates[r] !== null).length,
   };
 }
 
@@ -147,7 +148,8 @@ function columnFor(kind: string, measures: RobustnessMeasure[], curves: TuningCu
       const ratio = Math.max(...mine.map((m) => m.drift.value / m.sd));
       const failed = mine.some((m) => m.failures > 0);
       const verdict: Verdict = failed ? 'fail' : drift <= EXACT_DRIFT ? 'pass' : ratio < 0.1 ? 'warn' : 'fail';
-      return { value: drift, verdict, detail: `max unit drift ${fmt(drift)} nats (${fmt(ratio)} SD)` };
+      const broken = mine.reduce((sum, m) => sum + m.failures, 0);
+      return { value: drift, verdict, detail: `max unit drift ${fmt(drift)} nats (${fmt(ratio)} SD)${broken ? `; ${broken} estimates fail only after rescaling` : ''}` };
     }
     case 'monotone':
     case 'affine': {
