@@ -67,16 +67,13 @@ export function convergenceSpec(chart: ConvergenceData, base: Base): TopLevelSpe
         encoding: { x, y: { ...y, field: 'lower' }, y2: { field: 'upper' }, color: colour },
       },
       { mark: { type: 'line', strokeWidth: 1.4, opacity: 0.85 }, encoding: { x, y, color: colour } },
-      {
-        mark: { type: 'point', size: 55, strokeWidth: 1.6, opacity: 1 },
-        encoding: {
-          x,
-          y,
-          color: colour,
-          shape: { field: 'series', type: 'nominal', scale: shapeScale(series), legend },
-          fill: { condition: { test: 'datum.clear', value: 'white' }, field: 'series', type: 'nominal', scale: colourScale(series), legend: null },
-        },
-      },
+      // Two point layers rather than a conditional fill, which would need a second legend to be silenced;
+      // an empty layer would make vega warn about an empty extent, so only those with points are drawn.
+      ...[false, true].filter((clear) => chart.points.some((p) => p.clear === clear)).map((clear) => ({
+        transform: [{ filter: clear ? 'datum.clear' : '!datum.clear' }],
+        mark: { type: 'point' as const, size: 55, strokeWidth: 1.6, opacity: 1, filled: !clear, ...(clear ? { fill: 'white' } : {}) },
+        encoding: { x, y, color: colour, shape: { field: 'series', type: 'nominal' as const, scale: shapeScale(series), legend } },
+      })),
     ],
     config: CHART_CONFIG,
   };
@@ -90,14 +87,15 @@ export function distributionSpec(chart: DistributionData, base: Base): TopLevelS
   return {
     title: {
       text: `Estimates at n = ${chart.n}`,
-      subtitle: [chart.scenario.id, 'boxes: quartiles, whiskers 1.5 IQR; ticks: replicates', `dashed line: true value ${formatValue(chart.truth, 6)} ${base}`],
+      subtitle: [chart.scenario.id, 'boxes: quartiles, whiskers: extremes; ticks: replicates', `dashed line: true value ${formatValue(chart.truth, 6)} ${base}`],
     },
     width: WIDTH,
     height: { step: 26 },
     layer: [
       {
         data: { values: chart.values },
-        mark: { type: 'boxplot', extent: 1.5, size: 16, opacity: 0.45, median: { color: 'black', opacity: 1 }, outliers: { size: 18, opacity: 0.9 } },
+        // Whiskers to the extremes: the ticks already show every replicate, so separate outlier marks would repeat them.
+        mark: { type: 'boxplot', extent: 'min-max', size: 16, opacity: 0.45, median: { color: 'black', opacity: 1 } },
         encoding: { x, y, color: colour },
       },
       {

@@ -17,8 +17,8 @@ export function escapeXml(text: string): string {
   return text.replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/"/g, '&quot;');
 }
 
-/** Collects warnings instead of printing them: a report should not chatter, and tests can read them. */
-function collectingLogger(warnings: string[]): LoggerInterface {
+/** Collects warnings (prefixed with the chart) instead of printing them: a report should not chatter, and tests can read them. */
+function collectingLogger(warnings: string[], chart: string): LoggerInterface {
   let level = 2;
   const logger: LoggerInterface = {
     level(value?: number) {
@@ -27,11 +27,11 @@ function collectingLogger(warnings: string[]): LoggerInterface {
       return logger;
     },
     error(...args: readonly unknown[]) {
-      warnings.push(`error: ${args.map(String).join(' ')}`);
+      warnings.push(`${chart}: error: ${args.map(String).join(' ')}`);
       return logger;
     },
     warn(...args: readonly unknown[]) {
-      warnings.push(args.map(String).join(' '));
+      warnings.push(`${chart}: ${args.map(String).join(' ')}`);
       return logger;
     },
     info: () => logger,
@@ -49,7 +49,7 @@ export function addTitle(svg: string, title: string, description: string): strin
 
 export async function renderChart(name: string, spec: TopLevelSpec, title: string, description: string, warnings: string[] = []): Promise<RenderedChart> {
   useFontMetrics();
-  const logger = collectingLogger(warnings);
+  const logger = collectingLogger(warnings, name);
   const compiled = compile(spec, { logger }).spec;
   const view = new View(parse(compiled), { renderer: 'none', logger });
   try {
