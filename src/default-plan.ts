@@ -4,7 +4,9 @@
  * a bimodal law, d = 1, 2, 3, 5), sized to finish within a minute on two cores.
  */
 import { listEstimators } from '../estimators/index.js';
+import type { Quantity } from './contracts.js';
 import type { PlanInput } from './plan.js';
+import { catalog } from '../scenarios/index.js';
 
 export const DEFAULT_PLAN_SCENARIOS = [
   'normal',
@@ -19,7 +21,35 @@ export const DEFAULT_PLAN_SCENARIOS = [
   'gaussian:dim=5,rho=0.3,spread=10',
 ];
 
-export function defaultPlan(): PlanInput {
+/**
+ * The default plan of a quantity. Mutual information and divergence: every catalog scenario of that quantity
+ * and every estimator of it at default settings, with robustness at n = 500 (MI: monotone maps of X and of Y,
+ * where the true value must not move).
+ */
+export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
+  if (quantity !== 'entropy') {
+    return {
+      name: `default ${quantity}`,
+      quantity,
+      scenarios: catalog()
+        .filter((s) => s.quantity === quantity)
+        .map((s) => s.id),
+      estimators: listEstimators()
+        .filter((e) => e.quantity === quantity)
+        .map((e) => e.id),
+      sampleSizes: [100, 500, 2000],
+      replicates: 30,
+      seed: 20261201,
+      robustness: {
+        sampleSize: 500,
+        perturbations:
+          quantity === 'mutual-information'
+            ? ['rescale:c=1000', 'monotone:map=asinh,part=x', 'monotone:map=cubic,part=y', 'quantize:step=0.01', 'quantize:step=0.1']
+            : ['rescale:c=1000', 'monotone:map=asinh', 'affine:condition=10,scale=1', 'quantize:step=0.01', 'quantize:step=0.1'],
+        tuning: false,
+      },
+    };
+  }
   return {
     name: 'default',
     quantity: 'entropy',

@@ -45,7 +45,7 @@ export interface Perturbation {
   /** quantize: step; contaminate: fraction; otherwise null. */
   level: number | null;
   /** The perturbation for one scenario, or why it cannot apply there. */
-  prepare(scenario: Scenario): PreparedPerturbation | { skip: string };
+  prepare(scenario: Scenario, options?: { shiftNeeded?: boolean }): PreparedPerturbation | { skip: string };
 }
 
 function numberParam(spec: string, values: Record<string, string>, name: string, fallback: number, check: (x: number) => boolean, allowed: string): number {
@@ -116,8 +116,7 @@ function randomRotation(dim: number, seed: string): Float64Array {
   return q;
 }
 
-export function parsePerturbation(text: string): Perturbation {
-  const { id, values } = parseSpec(text, 'perturbation');
+function parseEntropyPerturbation(text: string, id: string, values: Record<string, string>): Perturbation {
   switch (id) {
     case 'rescale': {
       onlyKeys(text, values, ['c']);
@@ -144,12 +143,14 @@ export function parsePerturbation(text: string): Perturbation {
         spec: formatSpec('monotone', { map: mapId }),
         kind: 'monotone',
         level: null,
-        prepare: (scenario) => {
-          if (!scenario.marginals) return { skip: `monotone:map=${mapId} needs the coordinates' marginal laws, which ${scenario.family} does not state` };
+        prepare: (scenario, options = {}) => {
+          const needShift = options.shiftNeeded !== false;
+          if (!scenario.marginals && needShift) return { skip: `monotone:map=${mapId} needs the coordinates' marginal laws, which ${scenario.family} does not state` };
           let shift = 0;
           let error = 0;
           const appliers: ((x: number) => number)[] = [];
-          for (const marginal of scenario.marginals) {
+          const marginals = scenario.marginals ?? Array.from({ length: scenario.dim }, () => undefined);
+          for (const marginal of marginals) {
             const base = { id: scenario.id, tails: scenario.tails, support: scenario.support, univariate: marginal } as Scenario;
             let built;
             try {
@@ -158,9 +159,11 @@ export function parsePerturbation(text: string): Perturbation {
               if (e instanceof UsageError) return { skip: e.message.replace(/^transformed\[[^\]]*\]: /, `monotone:map=${mapId}: `) };
               throw e;
             }
-            const part = expectation(marginal, (x) => built.logAbsDerivative(x));
-            shift += part.value;
-            error += part.error;
+            if (needShift && marginal) {
+              const part = expectation(marginal, (x) => built.logAbsDerivative(x));
+              shift += part.value;
+              error += part.error;
+            }
             appliers.push(built.apply);
           }
           return {
@@ -282,3 +285,83 @@ export function parsePerturbation(text: string): Perturbation {
   }
 }
 
+
+/** Which columns a perturbation touches in a mutual-information sample. */
+export type Part = 'x' | 'y' | 'all';
+
+/**
+ * Perturbations of mutual-information and divergence samples. MI is unchanged by an invertible map of X alone
+ * or of Y alone, and a divergence by one invertible map applied to both samples, so for these quantities the
+ * true value does not move (shift 0) under rescale and monotone maps (and affine maps for divergences);
+ * `part=x` / `part=y` picks the variable an MI perturbation touches (monotone maps default to X).
+ */
+export function parsePerturbation(text: string): Perturbation {
+  const { id, values } = parseSpec(text, 'perturbation');
+  const { part: partText, ...rest } = values;
+  if (partText !== undefined && !['x', 'y', 'all'].includes(partText)) {
+    throw new UsageError(`perturbation ${text}: part=${partText} is not allowed; part must be x, y or all (mutual-information samples only)`);
+  }
+  const inner = parseEntropyPerturbation(text, id, rest);
+  const part = partText as Part | undefined;
+  const spec = part ? `${inner.spec}${inner.spec.includes(':') ? ',' : ':'}part=${part}` : inner.spec;
+  return {
+    spec,
+    kind: inner.kind,
+    level: inner.level,
+    prepare: (scenario, options) => {
+      if (scenario.quantity === 'entropy') {
+        if (part && part !== 'all') return { skip: `${spec}: part=${part} applies to mutual-information samples` };
+        return inner.prepare(scenario, options);
+      }
+      const invariant = inner.kind === 'rescale' || inner.kind === 'monotone' || inner.kind === 'affine';
+      if (scenario.quantity === 'mutual-information') {
+        if (inner.kind === 'affine') return { skip: `${spec}: an affine map mixes X and Y, and MI is invariant only under maps of each variable` };
+        const xDim = scenario.sample(rngFromSeed('hhat-xdim-probe'), 2).xDim;
+        if (xDim === undefined) return { skip: `${spec}: the scenario does not say which columns are X` };
+        const chosen: Part = part ?? (inner.kind === 'monotone' ? 'x' : 'all');
+        const columns = Array.from({ length: scenario.dim }, (_, j) => j).filter((j) => chosen === 'all' || (chosen === 'x' ? j < xDim : j >= xDim));
+        const prepared = inner.prepare(subScenario(scenario, columns), { shiftNeeded: false });
+        if ('skip' in prepared) return prepared;
+        return {
+          shift: invariant ? 0 : null,
+          shiftSource: invariant ? `exact: MI is invariant under invertible maps of ${chosen === 'all' ? 'each variable' : chosen.toUpperCase()}` : prepared.shiftSource,
+          apply: (sample, replicate, seed) => applyToColumns(prepared, sample, columns, replicate, seed),
+        };
+      }
+      // Divergence: the same map on the P and the Q sample (contamination: P only).
+      const prepared = inner.prepare({ ...scenario, quantity: 'entropy' }, { shiftNeeded: false });
+      if ('skip' in prepared) return prepared;
+      return {
+        shift: invariant ? 0 : null,
+        shiftSource: invariant ? 'exact: a divergence is invariant under one invertible map of both samples' : prepared.shiftSource,
+        apply: (sample, replicate, seed) => {
+          prepared.apply(sample, replicate, seed);
+          if (sample.q && inner.kind !== 'contaminate') prepared.apply(sample.q, replicate, seed);
+        },
+      };
+    },
+  };
+}
+
+function subScenario(scenario: Scenario, columns: number[]): Scenario {
+  return {
+    ...scenario,
+    quantity: 'entropy',
+    dim: columns.length,
+    marginals: scenario.marginals && columns.map((j) => scenario.marginals![j]),
+    moments: scenario.moments && {
+      mean: columns.map((j) => scenario.moments!.mean[j]),
+      covariance: columns.map((i) => columns.map((j) => scenario.moments!.covariance[i][j])),
+    },
+  };
+}
+
+/** Applies a prepared perturbation to some columns of a sample, in place. */
+function applyToColumns(prepared: PreparedPerturbation, sample: Sample, columns: number[], replicate: number, seed: number): void {
+  const { n, dim, data } = sample;
+  const width = columns.length;
+  const part = new Float64Array(n * width);
+  for (let i = 0; i < n; i++) for (let k = 0; k < width; k++) part[i * width + k] = data[i * dim + columns[k]];
+  prepared.apply({ n, dim: width, data: part }, replicate, seed);
+  for (let i = 0; i < n; i++) for (let k = 0; k < width; k++) data[i * dim + columns[k]] = part[i * width + k];
+}

@@ -139,7 +139,8 @@ export function executeUnit(unit: Unit, context: WorkContext): UnitResult {
     for (const v of variants) {
       let sample: Sample = original;
       if (v > 0) {
-        sample = { ...original, data: Float64Array.from(original.data) };
+        // Perturb a deep copy: the Q sample of a divergence is perturbed too, and the original must stay intact.
+        sample = { ...original, data: Float64Array.from(original.data), ...(original.q ? { q: { ...original.q, data: Float64Array.from(original.q.data) } } : {}) };
         (context.prepared[unit.scenario][v - 1] as PreparedPerturbation).apply(sample, replicate, plan.seed);
       }
       unit.series.forEach((series, k) => {

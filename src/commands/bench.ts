@@ -3,6 +3,8 @@ import { dirname, join, resolve } from 'node:path';
 import { describeRegistration, resolveModulePath, useEstimatorModules } from '../modules.js';
 import type { Command } from 'commander';
 import { UsageError } from '../errors.js';
+import type { Quantity } from '../contracts.js';
+import { parseScenario } from '../../scenarios/index.js';
 import type { Base } from '../format.js';
 import { defaultPlan } from '../default-plan.js';
 import { parseIntegerOption, parseSampleSizes, readPlanFile, resolvePlan, type PlanInput } from '../plan.js';
@@ -15,6 +17,7 @@ import { mergeShards } from '../merge.js';
 
 interface BenchOptions {
   plan?: string;
+  quantity?: string;
   scenario?: string[];
   estimator?: string[];
   n?: string;
@@ -58,14 +61,20 @@ function latestCheckpoint(dir: string): string | undefined {
 export function planInputFromOptions(options: BenchOptions): PlanInput {
   let input: PlanInput;
   if (options.plan) {
-    if (options.scenario?.length || options.estimator?.length) {
-      throw new UsageError('--plan cannot be combined with --scenario or --estimator; put them in the plan file');
+    if (options.scenario?.length || options.estimator?.length || options.quantity) {
+      throw new UsageError('--plan cannot be combined with --scenario, --estimator or --quantity; put them in the plan file');
     }
     input = readPlanFile(options.plan);
     // Module paths in a plan file are relative to the file.
     if (input.modules) input.modules = input.modules.map((m) => resolveModulePath(m, dirname(resolve(options.plan!))));
   } else {
-    const base = defaultPlan();
+    const quantities = ['entropy', 'mutual-information', 'divergence'];
+    if (options.quantity !== undefined && !quantities.includes(options.quantity)) {
+      throw new UsageError(`--quantity ${options.quantity} is not allowed; use one of ${quantities.join(', ')}`);
+    }
+    // Without --quantity, scenarios given by flag say which quantity the plan is about.
+    const inferred = !options.quantity && options.scenario?.length ? parseScenario(options.scenario[0]).quantity : undefined;
+    const base = defaultPlan((options.quantity ?? inferred ?? 'entropy') as Quantity);
     const custom = Boolean(options.scenario?.length || options.estimator?.length);
     input = {
       ...base,
@@ -119,6 +128,7 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
     .command('bench')
     .description('run a benchmark plan (the built-in default plan without arguments) and write a run file')
     .option('--plan <file>', 'a JSON plan file (schema: src/schemas/plan.schema.json)')
+    .option('--quantity <q>', 'entropy (default), mutual-information or divergence: the default plan of that quantity')
     .option('--scenario <spec>', 'a scenario to include (repeatable; see `hhat scenarios`)', collect)
     .option('--estimator <spec>', 'an estimator with settings, ID[:key=value,...] (repeatable; see `hhat estimators`)', collect)
     .option('--n <sizes>', 'sample sizes, comma-separated (e.g. 100,1000,10000)')

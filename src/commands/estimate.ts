@@ -5,11 +5,27 @@ import { readSample, findRepeats, describeRepeats } from '../data.js';
 import { describeReference, meanLogReference, parseReference } from '../reference.js';
 import { unitLabel } from '../units.js';
 import { describeRegistration, resolveModulePath, useEstimatorModules } from '../modules.js';
-import type { Sample, Settings } from '../contracts.js';
-import { parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
+import type { Quantity, Sample, Settings } from '../contracts.js';
+import { listEstimators, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
+
+/** Side by side: the columns of `a` then those of `b`, row by row (same n). */
+function joinColumns(a: Sample, b: Sample): Sample {
+  const dim = a.dim + b.dim;
+  const data = new Float64Array(a.n * dim);
+  for (let i = 0; i < a.n; i++) {
+    for (let j = 0; j < a.dim; j++) data[i * dim + j] = a.data[i * a.dim + j];
+    for (let j = 0; j < b.dim; j++) data[i * dim + a.dim + j] = b.data[i * b.dim + j];
+  }
+  return { n: a.n, dim, data, xDim: a.dim };
+}
 
 /** A sensible default set for the data's dimension: the strongest methods of each family that apply. */
-export function defaultEstimatorsFor(dim: number): string[] {
+export function defaultEstimatorsFor(dim: number, quantity: Quantity = 'entropy'): string[] {
+  if (quantity !== 'entropy') {
+    return listEstimators()
+      .filter((e) => e.quantity === quantity && dim >= e.dims[0] && dim <= e.dims[1])
+      .map((e) => e.id);
+  }
   if (dim === 1) return ['kozachenko-leonenko', 'ebrahimi', 'vasicek', 'kernel', 'histogram', 'gaussian'];
   if (dim <= 3) return ['kozachenko-leonenko', 'kozachenko-leonenko-weighted', 'kernel', 'histogram', 'gaussian'];
   return ['kozachenko-leonenko-weighted', 'kozachenko-leonenko', 'kernel', 'gaussian'];
@@ -50,19 +66,47 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     .option('--unit <name>', 'the unit the data are recorded in, for labelling: values are relative to 1 unit^d (see hhat convert)')
     .option('--reference <m>', 'also give the entropy relative to a reference density m: unit:W, uniform:a,b or gaussian (minus the negentropy)')
     .option('--estimator-module <file>', 'load estimators from a JavaScript module (repeatable)', collect)
+    .option('--x-columns <list>', 'mutual information between these columns (X) ...')
+    .option('--y-columns <list>', '... and these (Y)')
+    .option('--against <file>', 'a divergence D(P || Q): FILE holds the sample from P, this file the sample from Q')
     .option('--json', 'print {"n", "dim", "base", "estimates": [...]} with the settings actually used')
-    .action(async (file: string, options: { columns?: string; estimator?: string[]; bits?: boolean; json?: boolean; unit?: string; reference?: string; estimatorModule?: string[] }) => {
+    .action(async (file: string, options: { columns?: string; estimator?: string[]; bits?: boolean; json?: boolean; unit?: string; reference?: string; estimatorModule?: string[]; xColumns?: string; yColumns?: string; against?: string }) => {
       const base: Base = options.bits ? 'bits' : 'nats';
       const reference = options.reference === undefined ? undefined : parseReference(options.reference);
       if (options.estimatorModule?.length) {
         const note = describeRegistration(await useEstimatorModules(options.estimatorModule.map((m) => resolveModulePath(m))));
         if (note && !options.json) printErr(note);
       }
-      const loaded = readSample(file, { columns: options.columns });
-      const { sample } = loaded;
+      let quantity: Quantity = 'entropy';
+      let loaded = readSample(file, { columns: options.columns });
+      let sample = loaded.sample;
+      if (options.xColumns !== undefined || options.yColumns !== undefined) {
+        if (options.xColumns === undefined || options.yColumns === undefined) throw new UsageError('mutual information needs both --x-columns and --y-columns');
+        if (options.columns !== undefined) throw new UsageError('--columns cannot be combined with --x-columns/--y-columns');
+        if (options.against !== undefined) throw new UsageError('--against (a divergence) cannot be combined with --x-columns/--y-columns (mutual information)');
+        const x = readSample(file, { columns: options.xColumns });
+        const y = readSample(file, { columns: options.yColumns });
+        const overlap = x.columnNumbers.filter((c) => y.columnNumbers.includes(c));
+        if (overlap.length) throw new UsageError(`--x-columns and --y-columns both name column ${overlap[0]}; X and Y must be different columns`);
+        sample = joinColumns(x.sample, y.sample);
+        loaded = { ...x, sample, columnNames: [...x.columnNames, ...y.columnNames], columnNumbers: [...x.columnNumbers, ...y.columnNumbers] };
+        quantity = 'mutual-information';
+      } else if (options.against !== undefined) {
+        const q = readSample(options.against, { columns: options.columns });
+        if (q.sample.dim !== sample.dim) throw new UsageError(`${options.against} has ${q.sample.dim} columns and ${file} has ${sample.dim}; a divergence compares samples of the same dimension`);
+        sample = { ...sample, q: q.sample };
+        quantity = 'divergence';
+      }
+      if (reference && quantity !== 'entropy') throw new UsageError('--reference applies to entropy; mutual information and divergences are already unit-free');
       const offset = reference ? meanLogReference(reference, sample) : 0;
-      const specs = options.estimator?.length ? options.estimator : defaultEstimatorsFor(sample.dim);
+      const specs = options.estimator?.length ? options.estimator : defaultEstimatorsFor(sample.dim, quantity);
+      if (!specs.length) throw new UsageError(`no ${quantity} estimator supports d = ${sample.dim}; see hhat estimators`);
       const configured = specs.map(parseEstimatorSpec);
+      for (const c of configured) {
+        if (c.estimator.quantity !== quantity) {
+          throw new UsageError(`${c.estimator.id} estimates ${c.estimator.quantity}, but this call asks for ${quantity}${quantity === 'entropy' ? '' : ` (given by ${quantity === 'divergence' ? '--against' : '--x-columns/--y-columns'})`}`);
+        }
+      }
       // With the user's own choice of estimators, a dimension mismatch is their error; in the default set it cannot happen.
       const records = estimateAll(sample, configured, base).map((r) => ({
         ...r,
@@ -78,6 +122,9 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
             {
               n: sample.n,
               dim: sample.dim,
+              ...(quantity !== 'entropy' ? { quantity } : {}),
+              ...(sample.xDim !== undefined ? { xDim: sample.xDim } : {}),
+              ...(sample.q ? { qN: sample.q.n } : {}),
               base,
               ...(options.unit ? { unit: options.unit, label } : {}),
               ...(reference ? { reference: describeReference(reference), meanLogReference: toBase(offset, base) } : {}),
@@ -99,7 +146,7 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
           r.value === null ? 'failed' : formatValue(r.value, 7),
           ...(reference ? [r.relative === null || r.relative === undefined ? 'failed' : formatValue(r.relative, 7)] : []),
         ]);
-        const head = ['estimator', 'settings used', `entropy (${label})`, ...(reference ? [`relative to ${describeReference(reference)} (${base})`] : [])];
+        const head = ['estimator', 'settings used', `${quantity === 'entropy' ? 'entropy' : quantity} (${quantity === 'entropy' ? label : base})`, ...(reference ? [`relative to ${describeReference(reference)} (${base})`] : [])];
         print(renderTable(head, rows, { align: ['left', 'left', 'right', 'right'] }));
       }
       for (const r of failed) printErr(`hhat: ${r.error!.startsWith(r.estimator) ? '' : `${r.estimator}: `}${r.error}`);

@@ -81,7 +81,8 @@ dl.facts { display: grid; grid-template-columns: repeat(auto-fill, minmax(min(10
 dl.facts div { min-width: 0; }
 dt { font-size: 0.75rem; text-transform: uppercase; letter-spacing: 0.04em; color: var(--muted); }
 dd { margin: 0; overflow-wrap: anywhere; }
-nav ol { columns: 16rem; margin: 0.4rem 0; padding-left: 1.3rem; }
+nav ol { margin: 0.4rem 0; padding-left: 1.3rem; }
+nav ol ol { columns: 20rem; column-gap: 2rem; }
 nav li { overflow-wrap: anywhere; }
 .charts { display: flex; flex-wrap: wrap; gap: 1rem 1.5rem; align-items: flex-start; }
 figure.chart { margin: 0; min-width: 0; max-width: 100%; }
