@@ -9,6 +9,8 @@ import { spacingEstimators } from './spacing.js';
 import { nearestNeighbourEstimators } from './nearest-neighbour.js';
 import { kernelEstimators } from './kernel.js';
 import { parametricEstimators } from './parametric.js';
+import { mutualInformationEstimators } from './mutual-information.js';
+import { divergenceEstimators } from './divergence.js';
 
 const builtIn: Estimator[] = [
   ...histogramEstimators,
@@ -16,6 +18,8 @@ const builtIn: Estimator[] = [
   ...nearestNeighbourEstimators,
   ...kernelEstimators,
   ...parametricEstimators,
+  ...mutualInformationEstimators,
+  ...divergenceEstimators,
 ];
 
 const registry = new Map<string, Estimator>();

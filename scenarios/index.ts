@@ -18,15 +18,19 @@ import {
 } from './mixtures-and-transforms.js';
 import { gaussianCovarianceScenario, multivariateFamilies, parseCovarianceArgument, productScenario } from './multivariate.js';
 import { univariateFamilies } from './univariate.js';
+import { LOOKALIKE_FAMILY, LOOKALIKE_SUMMARY, LOOKALIKE_USAGE, lookalikeScenario, parseLookalikeArgument } from './lookalike.js';
+import { dependenceFamilies } from './dependence.js';
+import { divergenceFamilies } from './divergence-pairs.js';
 
 const families = new Map<string, ScenarioFamily>();
-for (const f of [...univariateFamilies, ...multivariateFamilies, gaussianMixtureFamily]) families.set(f.id, f);
+for (const f of [...univariateFamilies, ...multivariateFamilies, gaussianMixtureFamily, ...dependenceFamilies, ...divergenceFamilies]) families.set(f.id, f);
 
 /** Families written with a bracketed argument rather than key=value parameters. */
 export const bracketFamilies = [
   { id: 'product', usage: 'product[SPEC;SPEC;...]', summary: 'independent product of scenarios; entropies add' },
   { id: 'transformed', usage: `transformed[MAP;SPEC], MAP one of ${monotoneMaps.map((m) => m.id).join(', ')}`, summary: 'monotone map of a 1-D scenario; numeric truth h + E[log|g′|]' },
   { id: 'gaussian-covariance', usage: 'gaussian-covariance[ROW;ROW;...], entries comma-separated', summary: 'Gaussian with any covariance' },
+  { id: LOOKALIKE_FAMILY, usage: LOOKALIKE_USAGE, summary: LOOKALIKE_SUMMARY },
 ] as const;
 
 export function listFamilies(): ScenarioFamily[] {
@@ -90,6 +94,8 @@ function buildScenario(text: string): Scenario {
       }
       case 'gaussian-covariance':
         return gaussianCovarianceScenario(parseCovarianceArgument(inner));
+      case LOOKALIKE_FAMILY:
+        return lookalikeScenario(parseLookalikeArgument(args));
       default:
         throw unknownScenario(name);
     }

@@ -14,6 +14,8 @@ import { defaultWorkers, runPlan, type Shard } from '../runner.js';
 import { parseShard } from '../shard.js';
 import { detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../tables.js';
 import { mergeShards } from '../merge.js';
+import { writeReport } from '../report/report.js';
+import { biasTextChart } from '../report/text-chart.js';
 
 interface BenchOptions {
   plan?: string;
@@ -36,6 +38,9 @@ interface BenchOptions {
   bits?: boolean;
   detail?: boolean;
   quiet?: boolean;
+  report?: string | boolean;
+  svgDir?: string;
+  chart?: boolean;
 }
 
 const collect = (value: string, previous: string[] = []) => [...previous, value];
@@ -146,6 +151,9 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
     .option('--csv <file>', 'also write the score table as CSV')
     .option('--bits', 'print values in bits instead of nats (the run file is always in nats)')
     .option('--detail', 'also print every score of every cell')
+    .option('--report [file]', 'also write the HTML report (default: next to the run file, .html)')
+    .option('--svg-dir <dir>', 'with --report: also write every chart as an SVG file')
+    .option('--no-chart', 'leave out the text chart of |bias| against n')
     .option('--quiet', 'print only the run file path')
     .action(async (options: BenchOptions) => {
       const base: Base = options.bits ? 'bits' : 'nats';
@@ -195,7 +203,15 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
       writeRunFile(out, run);
       rmSync(checkpoint, { force: true });
       if (options.csv) writeFileSync(options.csv, scoresCsv(run, base));
-      if (!options.quiet && !shard) printRun(run, base, print, Boolean(options.detail));
+      if (!options.quiet && !shard) {
+        printRun(run, base, print, Boolean(options.detail));
+        if (options.chart !== false) print(biasTextChart(run, base));
+      }
+      if (options.report && !shard) {
+        const reportPath = resolve(typeof options.report === 'string' ? options.report : out.replace(/\.json$/, '') + '.html');
+        await writeReport(run, { base, out: reportPath, svgDir: options.svgDir });
+        print(`report: ${reportPath}`);
+      }
       const resumed = outcome.resumedUnits ? `, ${outcome.resumedUnits} units from the checkpoint` : '';
       print(`${shard ? `shard ${shard.index}/${shard.count}: ` : ''}${run.cells.length} cells in ${run.wallSeconds.toFixed(1)} s on ${outcome.workers} worker${outcome.workers === 1 ? '' : 's'}${resumed}`);
       print(`run file: ${out}`);

@@ -29,6 +29,8 @@ export function registerReportCommand(program: Command, print: (text: string) =>
       const base: Base = options.bits ? 'bits' : 'nats';
       const out = options.out ? resolve(options.out) : defaultReportPath(runPath);
       const report = await writeReport(run, { base, out, svgDir: options.svgDir ? resolve(options.svgDir) : undefined });
+      // None are expected: a warning from the chart compiler means a chart may be missing a mark.
+      for (const warning of report.warnings) print(`warning: chart ${warning}`);
       print(`report: ${out} (${report.svgs.length} charts, rendered in ${(report.renderMs / 1000).toFixed(1)} s)`);
       if (options.svgDir) print(`charts: ${report.svgs.length} SVG files in ${resolve(options.svgDir)}`);
     });

@@ -53,7 +53,7 @@ export function sortableTable(caption: string, head: string[], rows: CellInput[]
 }
 
 /** Charts wider than this keep their size on a phone and scroll sideways; shrunk to fit, their text would be too small to read. */
-const WIDE_CHART = 560;
+const WIDE_CHART = 450;
 
 /** An inline chart; the SVG's own <title> labels it for screen readers. */
 export function figure(chart: RenderedChart): string {
@@ -98,7 +98,7 @@ th button { all: inherit; cursor: pointer; padding: 0; }
 th button::after { content: " ↕"; color: #999; }
 th[aria-sort="ascending"] button::after { content: " ↑"; color: var(--fg); }
 th[aria-sort="descending"] button::after { content: " ↓"; color: var(--fg); }
-@media (max-width: 700px) {
+@media screen and (max-width: 700px) {
   figure.chart.wide { overflow-x: auto; }
   figure.chart.wide svg { max-width: none; }
 }
@@ -110,6 +110,8 @@ td.pass { background: #d8f0e7; } td.warn { background: #fbebc6; } td.fail { back
   main { max-width: none; padding: 0; }
   .table-wrap, .table-wrap.tall { overflow: visible; max-height: none; }
   thead th { position: static; }
+  table { font-size: 7.5pt; }
+  th, td { padding: 1px 4px; white-space: normal; }
   th button::after { content: ""; }
   figure.chart, tr, dl.facts { break-inside: avoid; }
   h2, h3 { break-after: avoid; }

@@ -108,11 +108,18 @@ function provenance(run: RunFile, data: ReportData): string {
   return definitionList(facts);
 }
 
+const QUANTITY_NAMES: Record<string, string> = {
+  entropy: 'Differential-entropy',
+  'mutual-information': 'Mutual-information',
+  divergence: 'Divergence',
+};
+
 function header(run: RunFile, data: ReportData): string {
   const unit = data.base === 'bits' ? 'bits' : 'nats (natural logarithm)';
+  const quantity = QUANTITY_NAMES[run.plan.quantity] ?? run.plan.quantity;
   return [
     `<header><h1>hhat report: plan “${escapeHtml(run.plan.name)}”</h1>`,
-    `<p class="lead">Differential-entropy estimators on seeded samples with known true values. Values in ${unit}; every score carries its Monte-Carlo standard error.</p>`,
+    `<p class="lead">${escapeHtml(quantity)} estimators on seeded samples with known true values. Values in ${unit}; every score carries its Monte-Carlo standard error.</p>`,
     provenance(run, data),
     '</header>',
   ].join('\n');

@@ -1,0 +1,457 @@
+/**
+ * Estimators of the mutual information I(X; Y) in nats. The sample's first `xDim` columns are X, the rest Y.
+ *
+ *   const ksg = getEstimator('ksg1');
+ *   ksg.estimate({ n, dim: 3, data, xDim: 1 }, { k: 3, copula: 'none' });
+ *
+ * - ksg1, ksg2: Kraskov, Stögbauer & Grassberger (2004), estimators (8) and (9), max norm, neighbour order k.
+ * - mi-histogram: plug-in H(X) + H(Y) − H(X,Y) of one product grid (the joint grid and its projections).
+ * - mi-kernel: Ĥ(X) + Ĥ(Y) − Ĥ(X,Y) with the leave-one-out Gaussian-kernel entropy estimator.
+ * - mi-gaussian: ½ log(det Σ̂x det Σ̂y / det Σ̂), optionally exactly unbiased for Gaussian data.
+ * - mi-from-entropies: Ĥ(X) + Ĥ(Y) − Ĥ(X,Y) with any registered entropy estimator.
+ *
+ * Every one has `copula`: none, or rank, which first replaces each coordinate by rank/(n + 1) (ties broken
+ * by row order). Ranks do not change under any increasing map of a coordinate, so with copula=rank the
+ * estimate is exactly invariant to such maps (and MI itself is: it is the MI of the copula).
+ *
+ * This module reaches the estimator registry (for mi-from-entropies) and the registry lists this module's
+ * estimators, so import estimators through estimators/index.ts before (or instead of) this file.
+ */
+import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
+import { EstimateError, UsageError } from '../src/errors.js';
+import { KnnIndex } from '../src/knn.js';
+import { digamma } from '../src/math/special.js';
+import { type AxisBins, BIN_RULES, histogramCells, histogramGrid } from './histogram.js';
+import { BANDWIDTH_RULES, kernelEstimator } from './kernel.js';
+import { logDeterminantSpd, scatterMatrix, wishartLogDetShift } from './parametric.js';
+import { getEstimator, listEstimators } from './index.js';
+
+const KSG_REFERENCE = 'Kraskov, A., Stögbauer, H. & Grassberger, P. (2004). Estimating mutual information. Physical Review E 69, 066138';
+
+export const COPULA_SETTING: SettingSpec = {
+  name: 'copula',
+  meaning: 'none, or rank: replace each coordinate by rank/(n+1) first (ties by row order), making the estimate invariant to increasing maps of any coordinate',
+  default: 'none',
+  kind: 'choice',
+  choices: ['none', 'rank'],
+};
+
+// ---------------------------------------------------------------------------------------------------------
+// Shared checks and transforms
+
+/** The X/Y split of a mutual-information sample, after checking it and its values. */
+export function checkedSplit(id: string, sample: Sample): { n: number; xDim: number; yDim: number } {
+  const { n, dim, data, xDim } = sample;
+  if (xDim === undefined) {
+    throw new EstimateError('invalid-input', `${id}: the sample does not say which columns are X (xDim is missing); mutual information needs xDim between 1 and dim − 1 = ${dim - 1}`);
+  }
+  if (!Number.isInteger(xDim) || xDim < 1 || xDim > dim - 1) {
+    throw new EstimateError('dimension', `${id}: xDim = ${xDim} is not allowed for d = ${dim}; X takes the first xDim columns and Y the rest, so 1 ≤ xDim ≤ ${dim - 1}`);
+  }
+  for (let p = 0; p < n * dim; p++) {
+    if (!Number.isFinite(data[p])) {
+      throw new EstimateError('invalid-input', `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`);
+    }
+  }
+  return { n, xDim, yDim: dim - xDim };
+}
+
+/** Columns [from, to) of a row-major n × dim array, as a new row-major array. */
+export function columns(data: Float64Array, n: number, dim: number, from: number, to: number): Float64Array {
+  const width = to - from;
+  const out = new Float64Array(n * width);
+  for (let i = 0, p = 0; i < n; i++) {
+    const row = i * dim + from;
+    for (let j = 0; j < width; j++) out[p++] = data[row + j];
+  }
+  return out;
+}
+
+/**
+ * Each coordinate replaced by rank/(n + 1), rank 1..n, equal values ranked by row order: the empirical
+ * copula. A new array; the input is not changed.
+ */
+export function rankTransform(data: Float64Array, n: number, dim: number): Float64Array {
+  const out = new Float64Array(n * dim);
+  const column = new Float64Array(n);
+  const order = new Uint32Array(n);
+  const byValueThenRow = (a: number, b: number): number => column[a] - column[b] || a - b;
+  for (let j = 0; j < dim; j++) {
+    for (let i = 0; i < n; i++) {
+      column[i] = data[i * dim + j];
+      order[i] = i;
+    }
+    order.sort(byValueThenRow);
+    for (let r = 0; r < n; r++) out[order[r] * dim + j] = (r + 1) / (n + 1);
+  }
+  return out;
+}
+
+function copulaOf(id: string, settings: Settings): 'none' | 'rank' {
+  const copula = settings.copula ?? 'none';
+  if (copula !== 'none' && copula !== 'rank') throw new EstimateError('invalid-input', `${id}: copula=${String(copula)} is not allowed; copula must be none or rank`);
+  return copula;
+}
+
+/** The sample to estimate from: checked, split, and rank-transformed when copula=rank. */
+function prepared(id: string, sample: Sample, settings: Settings): { data: Float64Array; n: number; xDim: number; yDim: number } {
+  const { n, xDim, yDim } = checkedSplit(id, sample);
+  const raw = sample.data.subarray(0, n * sample.dim);
+  const data = copulaOf(id, settings) === 'rank' ? rankTransform(raw, n, sample.dim) : raw;
+  return { data, n, xDim, yDim };
+}
+
+function kOf(id: string, settings: Settings, fallback: number): number {
+  const k = settings.k ?? fallback;
+  if (typeof k !== 'number' || !Number.isInteger(k) || k < 1) throw new EstimateError('invalid-input', `${id}: k=${String(k)} is not allowed; k must be an integer ≥ 1`);
+  return k;
+}
+
+/** Rethrows a histogram/kernel error under this estimator's id. */
+function renamed(id: string, from: string, error: unknown): never {
+  if (error instanceof EstimateError) throw new EstimateError(error.code, error.message.startsWith(from) ? id + error.message.slice(from.length) : `${id}: ${error.message}`);
+  throw error;
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// Kraskov–Stögbauer–Grassberger
+
+/** ψ(m) for integer m ≥ 1, computed once per distinct m (the counts repeat). */
+function digammaTable(size: number): (m: number) => number {
+  const table = new Float64Array(size + 1).fill(Number.NaN);
+  return (m) => {
+    let value = table[m];
+    if (value !== value) {
+      value = digamma(m);
+      table[m] = value;
+    }
+    return value;
+  };
+}
+
+/**
+ * The KSG estimates with the max norm in X, in Y and in the joint space (‖z‖ = max(‖x‖, ‖y‖)).
+ * For each point i let ε_i/2 be the distance to its k-th nearest other point in the joint space.
+ *
+ *   variant 1, eq. (8): I = ψ(k) + ψ(N) − ⟨ψ(n_x + 1) + ψ(n_y + 1)⟩, n_x(i) = #{j ≠ i: ‖x_i − x_j‖ < ε_i/2}
+ *                       (strict), likewise n_y.
+ *   variant 2, eq. (9): I = ψ(k) − 1/k + ψ(N) − ⟨ψ(n_x) + ψ(n_y)⟩, where ε_x,i/2 and ε_y,i/2 are the largest
+ *                       X- and Y-distances from i to its k joint neighbours and n_x(i) = #{j ≠ i:
+ *                       ‖x_i − x_j‖ ≤ ε_x,i/2} (inclusive; at least k).
+ *
+ * Radius counts come from kd-trees on X and on Y (exact: src/knn.ts). Points whose k-th joint neighbour is
+ * at distance 0 (repeated rows) are a 'ties' error.
+ */
+export function ksgMutualInformation(data: Float64Array, n: number, xDim: number, yDim: number, k: number, variant: 1 | 2, id = `ksg${variant}`): number {
+  const dim = xDim + yDim;
+  if (n <= k) throw new EstimateError('too-few-points', `${id} needs n > k; got n = ${n} with k = ${k}`);
+  const joint = new KnnIndex(data.subarray(0, n * dim), dim, { norm: 'max' });
+  const { distances, indices } = joint.nearestOthers(k, { indices: variant === 2 });
+  let zeroCount = 0;
+  for (let i = 0; i < n; i++) if (distances[i * k + k - 1] === 0) zeroCount++;
+  if (zeroCount > 0) {
+    const copies = joint.countOthersWithin(new Float64Array(n), { inclusive: true });
+    let mostCopies = 0;
+    for (let i = 0; i < n; i++) if (copies[i] > mostCopies) mostCopies = copies[i];
+    throw new EstimateError(
+      'ties',
+      `${id}: ${zeroCount} of ${n} points have their k-th (k = ${k}) nearest neighbour in (X, Y) at distance 0 (repeated rows; the largest group is ${mostCopies + 1} identical rows); ` +
+        `add jitter below the recording resolution, use copula=rank (ties broken by row order), or k ≥ ${mostCopies + 1} if the repeats are genuine`,
+    );
+  }
+  const xData = columns(data, n, dim, 0, xDim);
+  const yData = columns(data, n, dim, xDim, dim);
+  const radiusX = new Float64Array(n);
+  const radiusY = new Float64Array(n);
+  if (variant === 1) {
+    for (let i = 0; i < n; i++) radiusX[i] = distances[i * k + k - 1];
+    radiusY.set(radiusX);
+  } else {
+    const neighbours = indices!;
+    for (let i = 0; i < n; i++) {
+      let largestX = 0;
+      let largestY = 0;
+      const row = i * dim;
+      for (let t = 0; t < k; t++) {
+        const other = neighbours[i * k + t] * dim;
+        for (let a = 0; a < xDim; a++) {
+          const gap = Math.abs(data[row + a] - data[other + a]);
+          if (gap > largestX) largestX = gap;
+        }
+        for (let a = xDim; a < dim; a++) {
+          const gap = Math.abs(data[row + a] - data[other + a]);
+          if (gap > largestY) largestY = gap;
+        }
+      }
+      radiusX[i] = largestX;
+      radiusY[i] = largestY;
+    }
+  }
+  const inclusive = variant === 2;
+  const countX = new KnnIndex(xData, xDim, { norm: 'max' }).countOthersWithin(radiusX, { inclusive });
+  const countY = new KnnIndex(yData, yDim, { norm: 'max' }).countOthersWithin(radiusY, { inclusive });
+  const psi = digammaTable(n);
+  const offset = variant === 1 ? 1 : 0;
+  let sum = 0;
+  for (let i = 0; i < n; i++) sum += psi(countX[i] + offset) + psi(countY[i] + offset);
+  const constant = digamma(k) + digamma(n) - (variant === 2 ? 1 / k : 0);
+  return constant - sum / n;
+}
+
+const KSG_DEFAULT_K = 3;
+
+function ksgEstimator(variant: 1 | 2): Estimator {
+  const id = `ksg${variant}`;
+  return {
+    id,
+    family: 'mutual-information',
+    quantity: 'mutual-information',
+    summary:
+      variant === 1
+        ? 'Kraskov–Stögbauer–Grassberger estimator (8): k-th joint neighbour distance, strict marginal counts, max norm'
+        : 'Kraskov–Stögbauer–Grassberger estimator (9): per-space neighbour extents, inclusive marginal counts, max norm',
+    settings: [
+      { name: 'k', meaning: 'neighbour order in the joint (X, Y) space', default: KSG_DEFAULT_K, kind: 'integer', min: 1 },
+      COPULA_SETTING,
+    ],
+    dims: [2, Infinity],
+    reference: `${KSG_REFERENCE}, estimator (${variant === 1 ? 8 : 9}).`,
+    estimate(sample: Sample, settings: Settings): number {
+      const { data, n, xDim, yDim } = prepared(id, sample, settings);
+      return ksgMutualInformation(data, n, xDim, yDim, kOf(id, settings, KSG_DEFAULT_K), variant, id);
+    },
+  };
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// Histogram
+
+/**
+ * Plug-in MI on one product grid: the histogram estimator's grid for the joint sample (its bin rule with the
+ * joint dimension, or a bin count per coordinate), and the projections of that grid for X and Y. With
+ * S = Σ c log c over occupied cells, H_plug = log n − S/n (bin volumes cancel in the difference), so
+ *   Î = log n + (S_xy − S_x − S_y)/n,
+ * and Miller–Madow adds (B − 1)/(2n) to each entropy: (B_x + B_y − B_xy − 1)/(2n) in total.
+ */
+function histogramMutualInformation(sample: Sample, settings: Settings): number {
+  const id = 'mi-histogram';
+  const correction = settings.correction ?? 'none';
+  if (correction !== 'none' && correction !== 'miller-madow') {
+    throw new EstimateError('invalid-input', `${id}: correction=${String(correction)} is not allowed; correction must be none or miller-madow`);
+  }
+  const { data, n, xDim, yDim } = prepared(id, sample, settings);
+  const dim = xDim + yDim;
+  if (n < 2) throw new EstimateError('too-few-points', `${id} needs at least 2 points, got ${n}`);
+  const joint: Sample = { n, dim, data };
+  let grid: AxisBins[];
+  try {
+    grid = histogramGrid(joint, { bins: settings.bins ?? 'freedman-diaconis', scale: settings.scale ?? 1, width: 'none' });
+  } catch (error) {
+    renamed(id, 'histogram', error);
+  }
+  const cellsXY = histogramCells(joint, grid);
+  const cellsX = histogramCells({ n, dim: xDim, data: columns(data, n, dim, 0, xDim) }, grid.slice(0, xDim));
+  const cellsY = histogramCells({ n, dim: yDim, data: columns(data, n, dim, xDim, dim) }, grid.slice(xDim));
+  const plugIn = Math.log(n) + (cellsXY.sumCountLogCount - cellsX.sumCountLogCount - cellsY.sumCountLogCount) / n;
+  return correction === 'miller-madow' ? plugIn + (cellsX.occupied + cellsY.occupied - cellsXY.occupied - 1) / (2 * n) : plugIn;
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// Kernel
+
+function kernelMutualInformation(sample: Sample, settings: Settings): number {
+  const id = 'mi-kernel';
+  const { data, n, xDim, yDim } = prepared(id, sample, settings);
+  const dim = xDim + yDim;
+  const kernelSettings: Settings = { bandwidth: settings.bandwidth ?? 'silverman', scale: settings.scale ?? 1 };
+  const entropyOf = (part: Sample): number => {
+    try {
+      return kernelEstimator.estimate(part, kernelSettings);
+    } catch (error) {
+      return renamed(id, 'kernel', error);
+    }
+  };
+  const hx = entropyOf({ n, dim: xDim, data: columns(data, n, dim, 0, xDim) });
+  const hy = entropyOf({ n, dim: yDim, data: columns(data, n, dim, xDim, dim) });
+  const hxy = entropyOf({ n, dim, data });
+  return hx + hy - hxy;
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// Gaussian
+
+/**
+ * ½ log(det S_x det S_y / det S) with S the scatter matrix (the factors n and the column scales cancel).
+ * correction = ahmed-gokhale subtracts its exact Gaussian bias ½[W(d_x) + W(d_y) − W(d)], W(m) =
+ * Σ_{i=1}^{m} ψ((n − i)/2) (E log det of a Wishart_m(n − 1, Σ) scatter is log det Σ + m log 2 + W(m);
+ * Ahmed & Gokhale 1989): it is then the difference of three unbiased entropy estimates, so unbiased.
+ */
+function gaussianMutualInformationEstimate(sample: Sample, settings: Settings): number {
+  const id = 'mi-gaussian';
+  const correction = settings.correction ?? 'ahmed-gokhale';
+  if (correction !== 'none' && correction !== 'ahmed-gokhale') {
+    throw new EstimateError('invalid-input', `${id}: correction=${String(correction)} is not allowed; correction must be ahmed-gokhale or none`);
+  }
+  const { data, n, xDim, yDim } = prepared(id, sample, settings);
+  const dim = xDim + yDim;
+  if (n <= dim) throw new EstimateError('too-few-points', `${id}: a ${dim}-dimensional covariance needs n ≥ ${dim + 1} points, but n = ${n}`);
+  const scatter = scatterMatrix({ n, dim, data }, new Float64Array(dim));
+  // The joint first: when it is positive definite, so are its diagonal blocks, so errors name joint columns.
+  const logDetJoint = logDeterminantSpd(scatter, dim, n, id);
+  const block = (from: number, to: number): Float64Array => {
+    const width = to - from;
+    const out = new Float64Array(width * width);
+    for (let r = 0; r < width; r++) for (let c = 0; c < width; c++) out[r * width + c] = scatter[(from + r) * dim + from + c];
+    return out;
+  };
+  const logDetX = logDeterminantSpd(block(0, xDim), xDim, n, id);
+  const logDetY = logDeterminantSpd(block(xDim, dim), yDim, n, id);
+  const plugIn = 0.5 * (logDetX + logDetY - logDetJoint);
+  if (correction === 'none') return plugIn;
+  return plugIn - 0.5 * (wishartLogDetShift(n, xDim) + wishartLogDetShift(n, yDim) - wishartLogDetShift(n, dim));
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// From any entropy estimator
+
+const ENTROPY_DEFAULT = 'kozachenko-leonenko';
+
+/** The registered entropy estimators (read when asked, so estimators registered later are included). */
+function entropyEstimatorIds(): string[] {
+  return listEstimators()
+    .filter((e) => e.quantity === 'entropy')
+    .map((e) => e.id);
+}
+
+const entropySetting: SettingSpec = {
+  name: 'entropy',
+  meaning: 'the entropy estimator used for H(X), H(Y) and H(X,Y): any registered entropy estimator id, with its default settings',
+  default: ENTROPY_DEFAULT,
+  kind: 'choice',
+  get choices() {
+    return entropyEstimatorIds();
+  },
+};
+
+function fromEntropies(sample: Sample, settings: Settings): number {
+  const id = 'mi-from-entropies';
+  const entropyId = settings.entropy ?? ENTROPY_DEFAULT;
+  let inner: Estimator;
+  try {
+    inner = getEstimator(String(entropyId));
+  } catch (error) {
+    if (error instanceof UsageError) {
+      throw new EstimateError('invalid-input', `${id}: entropy=${String(entropyId)} is not allowed; it must be one of ${entropyEstimatorIds().join(', ')}`);
+    }
+    throw error;
+  }
+  if (inner.quantity !== 'entropy') {
+    throw new EstimateError('invalid-input', `${id}: entropy=${inner.id} estimates ${inner.quantity}; it must be one of ${entropyEstimatorIds().join(', ')}`);
+  }
+  const { data, n, xDim, yDim } = prepared(id, sample, settings);
+  const dim = xDim + yDim;
+  const [minDim, maxDim] = inner.dims;
+  for (const [part, d] of [['X', xDim], ['Y', yDim], ['(X, Y)', dim]] as const) {
+    if (d < minDim || d > maxDim) {
+      const range = maxDim === Infinity ? `d ≥ ${minDim}` : minDim === maxDim ? `d = ${minDim}` : `${minDim} ≤ d ≤ ${maxDim}`;
+      throw new EstimateError('dimension', `${id}: entropy=${inner.id} supports ${range}, but ${part} has d = ${d}; choose an entropy estimator for any dimension`);
+    }
+  }
+  const base: Settings = Object.fromEntries(inner.settings.map((s) => [s.name, s.default]));
+  if (inner.settings.some((s) => s.name === 'k')) base.k = kOf(id, settings, KSG_DEFAULT_K);
+  const entropyOf = (part: Sample): number => inner.estimate(part, inner.resolve ? inner.resolve(part, base) : base);
+  const hx = entropyOf({ n, dim: xDim, data: columns(data, n, dim, 0, xDim) });
+  const hy = entropyOf({ n, dim: yDim, data: columns(data, n, dim, xDim, dim) });
+  const hxy = entropyOf({ n, dim, data });
+  return hx + hy - hxy;
+}
+
+// ---------------------------------------------------------------------------------------------------------
+
+export const mutualInformationEstimators: Estimator[] = [
+  ksgEstimator(1),
+  ksgEstimator(2),
+  {
+    id: 'mi-histogram',
+    family: 'mutual-information',
+    quantity: 'mutual-information',
+    summary: 'plug-in H(X) + H(Y) − H(X,Y) on one product grid of equal-width bins, optional Miller–Madow terms',
+    settings: [
+      {
+        name: 'bins',
+        meaning: 'bin rule (applied with the joint dimension), or a number of bins per coordinate',
+        default: 'freedman-diaconis',
+        kind: 'choice-or-integer',
+        choices: BIN_RULES,
+        min: 1,
+      },
+      { name: 'scale', meaning: 'multiplies the bin count a rule gives (rounded, at least 1); ignored with a numeric bins', default: 1, kind: 'number', min: 0, minExclusive: true },
+      { name: 'correction', meaning: 'none, or miller-madow: add (occupied bins − 1)/(2n) to each of the three entropies', default: 'none', kind: 'choice', choices: ['none', 'miller-madow'] },
+      COPULA_SETTING,
+    ],
+    dims: [2, Infinity],
+    reference:
+      'Plug-in estimate on a partition, e.g. Moddemeijer, R. (1989). On estimation of entropy and mutual information of continuous distributions. Signal Processing 16(3), 233–248; ' +
+      'Miller, G. A. (1955), Note on the bias of information estimates; bin rules as in the histogram entropy estimator.',
+    estimate: histogramMutualInformation,
+  },
+  {
+    id: 'mi-kernel',
+    family: 'mutual-information',
+    quantity: 'mutual-information',
+    summary: 'Ĥ(X) + Ĥ(Y) − Ĥ(X,Y) with the leave-one-out Gaussian-kernel entropy estimator',
+    settings: [
+      {
+        name: 'bandwidth',
+        meaning: 'bandwidth rule for each of the three kernel estimates, or a number (data units for a 1-D part, whitened units otherwise)',
+        default: 'silverman',
+        kind: 'choice-or-number',
+        choices: BANDWIDTH_RULES,
+        min: 0,
+        minExclusive: true,
+      },
+      { name: 'scale', meaning: 'multiplies each bandwidth a rule gives; ignored with a numeric bandwidth', default: 1, kind: 'number', min: 0, minExclusive: true },
+      COPULA_SETTING,
+    ],
+    dims: [2, Infinity],
+    reference:
+      'Moon, Y.-I., Rajagopalan, B. & Lall, U. (1995). Estimation of mutual information using kernel density estimators. Physical Review E 52(3), 2318–2321; ' +
+      `entropy estimates as in the kernel estimator (${kernelEstimator.reference.split(';')[0]}).`,
+    estimate: kernelMutualInformation,
+  },
+  {
+    id: 'mi-gaussian',
+    family: 'mutual-information',
+    quantity: 'mutual-information',
+    summary: 'MI of the fitted normal law, ½ log(det Σ̂x det Σ̂y / det Σ̂), unbiased under normality by default',
+    settings: [
+      {
+        name: 'correction',
+        meaning: 'ahmed-gokhale: subtract the exact Gaussian bias (unbiased for normal data); none: the plug-in',
+        default: 'ahmed-gokhale',
+        kind: 'choice',
+        choices: ['ahmed-gokhale', 'none'],
+      },
+      COPULA_SETTING,
+    ],
+    dims: [2, Infinity],
+    reference:
+      'Cover, T. M. & Thomas, J. A. (2006). Elements of Information Theory, 2nd ed., Sec. 8.5 (Gaussian MI); bias term from Ahmed, N. A. & Gokhale, D. V. (1989), IEEE Trans. Inf. Theory 35(3), 688–692.',
+    estimate: gaussianMutualInformationEstimate,
+  },
+  {
+    id: 'mi-from-entropies',
+    family: 'mutual-information',
+    quantity: 'mutual-information',
+    summary: 'Ĥ(X) + Ĥ(Y) − Ĥ(X,Y) with any registered entropy estimator (default Kozachenko–Leonenko)',
+    settings: [
+      entropySetting,
+      { name: 'k', meaning: 'neighbour order, passed to the entropy estimator when it has a k setting', default: KSG_DEFAULT_K, kind: 'integer', min: 1 },
+      COPULA_SETTING,
+    ],
+    dims: [2, Infinity],
+    reference:
+      'Cover, T. M. & Thomas, J. A. (2006). Elements of Information Theory, 2nd ed., Secs. 8.5–8.6: I(X;Y) = h(X) + h(Y) − h(X,Y); entropies by the chosen estimator (see its own reference).',
+    estimate: fromEntropies,
+  },
+];
