@@ -33,8 +33,10 @@ export const LOOKALIKE_SUMMARY = 'Gaussian mixture in any dimension with full co
 
 /** Draws for the Monte-Carlo truth in d ≥ 3. */
 export const MONTE_CARLO_DRAWS = 1_000_000;
-/** Inner tolerance of the 2-D nested quadrature, relative to the marginal density f₁(x₁). */
-const INNER_RELATIVE_TOLERANCE = 1e-8;
+/** Absolute tolerance of the inner integrals of the 2-D nested quadrature (each is weighted by φ(z₁) ≤ 0.4). */
+const INNER_RELATIVE_TOLERANCE = 1e-10;
+/** Half-width of the whitened square: outside it a standard Gaussian holds below 4Φ(−12) ≈ 7e-33. */
+const WHITENED_LIMIT = 12;
 /** Beyond this many SDs of every component the mass is below 2Φ(−20) ≈ 5.5e-89: ranges stop there. */
 const RANGE_SDS = 20;
 /** A nested-quadrature error above this falls back to Monte Carlo. */
@@ -238,55 +240,48 @@ export function monteCarloEntropy(p: Prepared, seedText: string, draws: number):
 }
 
 /**
- * h = −∫∫ f log f by nested adaptive quadrature over x₁ (outer) and x₂ | x₁ (inner). The inner range and
- * breakpoints come from the conditional laws x₂ | x₁ of the components that carry any weight at x₁.
+ * h = −Σ_k w_k E_k[log f(X)], each E_k an integral against component k's own Gaussian: in its whitened
+ * coordinates z (x = μ_k + L_k z) it is ∫∫ φ(z₁)φ(z₂) log f(μ_k + L_k z) dz, computed by nested adaptive
+ * Gauss–Legendre quadrature on [−Z, Z]² (the mass outside is below 2·2Φ(−Z) and log f grows only like
+ * |z|²). The inner integral over z₂ runs to an absolute tolerance τ·φ(z₁), so the inner errors add up to at
+ * most τ times the worst achieved ratio; the outer error estimate is added to it.
  */
-function nestedQuadratureEntropy(components: readonly MixtureComponent[], p: Prepared, marginal: UnivariateDensity): { value: number; error: number } {
-  const count = components.length;
-  const conditionalSlope = components.map((c) => c.covariance[0][1] / c.covariance[0][0]);
-  const conditionalSd = components.map((c) => Math.sqrt(c.covariance[1][1] - (c.covariance[0][1] * c.covariance[0][1]) / c.covariance[0][0]));
-  const marginalSd = components.map((c) => Math.sqrt(c.covariance[0][0]));
+function nestedQuadratureEntropy(p: Prepared): { value: number; error: number } {
+  const limit = WHITENED_LIMIT;
   const point = new Float64Array(2);
   const residual = new Float64Array(2);
-  const terms = new Float64Array(count);
-  let worstInnerRatio = 0;
-  const inner = (x1: number): number => {
-    const logMarginal = marginal.logDensity(x1);
-    const f1 = Math.exp(logMarginal);
-    if (f1 === 0) return 0;
-    let lower = Infinity;
-    let upper = -Infinity;
-    const breakpoints: number[] = [];
-    for (let k = 0; k < count; k++) {
-      const z = (x1 - components[k].mean[0]) / marginalSd[k];
-      const logShare = Math.log(p.weights[k]) - Math.log(marginalSd[k]) - 0.5 * LOG_2PI - 0.5 * z * z - logMarginal;
-      // A component holding less than 1e-18 of the density at x₁ adds below 1e-18·f₁ to the inner integral.
-      if (logShare < -41.4) continue;
-      const centre = components[k].mean[1] + conditionalSlope[k] * (x1 - components[k].mean[0]);
-      const sd = conditionalSd[k];
-      lower = Math.min(lower, centre - RANGE_SDS * sd);
-      upper = Math.max(upper, centre + RANGE_SDS * sd);
-      breakpoints.push(centre - 2 * sd, centre, centre + 2 * sd);
-    }
-    point[0] = x1;
-    const result = integrate(
-      (x2) => {
-        point[1] = x2;
-        const logF = logDensityAt(p, point, 0, residual, terms);
-        const f = Math.exp(logF);
-        return f === 0 ? 0 : -f * logF;
-      },
-      lower,
-      upper,
-      { absTol: INNER_RELATIVE_TOLERANCE * f1, relTol: 1e-12, maxPanels: 4000, breakpoints },
-    );
-    worstInnerRatio = Math.max(worstInnerRatio, result.errorEstimate / f1);
-    return result.value;
-  };
-  const outerBreakpoints = components.flatMap((c, k) => [c.mean[0] - 2 * marginalSd[k], c.mean[0], c.mean[0] + 2 * marginalSd[k]]);
-  const outer = integrate(inner, marginal.lower, marginal.upper, { absTol: 1e-8, relTol: 1e-12, maxPanels: 4000, breakpoints: outerBreakpoints });
-  // ∫ inner error dx₁ ≤ (worst error / f₁ ratio) · ∫ f₁ = that ratio.
-  return { value: outer.value, error: outer.errorEstimate + worstInnerRatio };
+  const terms = new Float64Array(p.count);
+  const logPhi = (z: number) => -0.5 * z * z - 0.5 * LOG_2PI;
+  let value = 0;
+  let error = 0;
+  for (let k = 0; k < p.count; k++) {
+    const m0 = p.means[2 * k];
+    const m1 = p.means[2 * k + 1];
+    const l00 = p.lowers[4 * k];
+    const l10 = p.lowers[4 * k + 2];
+    const l11 = p.lowers[4 * k + 3];
+    let worstInnerRatio = 0;
+    const inner = (z1: number): number => {
+      const outerWeight = Math.exp(logPhi(z1));
+      point[0] = m0 + l00 * z1;
+      const result = integrate(
+        (z2) => {
+          point[1] = m1 + l10 * z1 + l11 * z2;
+          return Math.exp(logPhi(z2)) * logDensityAt(p, point, 0, residual, terms);
+        },
+        -limit,
+        limit,
+        { absTol: INNER_RELATIVE_TOLERANCE, relTol: 1e-13, maxPanels: 4000, breakpoints: [0] },
+      );
+      worstInnerRatio = Math.max(worstInnerRatio, result.errorEstimate);
+      return outerWeight * result.value;
+    };
+    const outer = integrate(inner, -limit, limit, { absTol: 1e-9, relTol: 1e-13, maxPanels: 4000, breakpoints: [0] });
+    value -= p.weights[k] * outer.value;
+    // ∫ φ(z₁)·(inner error) dz₁ ≤ worst inner error, since φ integrates to at most 1.
+    error += p.weights[k] * (outer.errorEstimate + worstInnerRatio);
+  }
+  return { value, error };
 }
 
 function computeTruth(id: string, components: readonly MixtureComponent[], p: Prepared, marginals: UnivariateDensity[]): NumericTruth {
@@ -303,7 +298,7 @@ function computeTruth(id: string, components: readonly MixtureComponent[], p: Pr
     };
   }
   if (p.dim === 2) {
-    const nested = nestedQuadratureEntropy(components, p, marginals[0]);
+    const nested = nestedQuadratureEntropy(p);
     // Var(log f) only feeds the efficiency score: a smaller Monte-Carlo run is enough for it.
     const mc = monteCarloEntropy(p, `${id}\nvariance`, 200_000);
     if (nested.error < QUADRATURE_ACCEPT) {
@@ -311,7 +306,7 @@ function computeTruth(id: string, components: readonly MixtureComponent[], p: Pr
         value: nested.value,
         error: nested.error,
         method: 'nested-quadrature',
-        source: `numeric: −∫∫ f log f by nested adaptive Gauss–Legendre quadrature (inner over x₂ | x₁ to ${INNER_RELATIVE_TOLERANCE}·f₁(x₁)), error bound ${formatError(nested.error)} (outer estimate + summed inner tolerance)`,
+        source: `numeric: −Σ w_k E_k[log f] by nested adaptive Gauss–Legendre quadrature in each component's whitened coordinates on [−${WHITENED_LIMIT}, ${WHITENED_LIMIT}]², error bound ${formatError(nested.error)} (outer estimates + inner errors)`,
         logDensityVariance: mc.variance,
         logDensityVarianceSource: 'numeric: Monte-Carlo variance of log f over 200000 seeded draws',
       };
