@@ -36,6 +36,17 @@ export function checkedPair(id: string, sample: Sample): { n: number; m: number;
   return { n, m: other.n, dim, p, q };
 }
 
+/** A coordinate with a single value carries no information and has no bin width: say so before gridding. */
+export function checkNotConstant(id: string, data: Float64Array, n: number, dim: number, what = 'the sample'): void {
+  for (let j = 0; j < dim; j++) {
+    let constant = true;
+    for (let p = j + dim; p < n * dim && constant; p += dim) constant = data[p] === data[j];
+    if (constant && n > 0) {
+      throw new EstimateError('ties', `${id}: all ${n} values of coordinate ${j + 1} of ${what} are equal (${data[j]}), so bins spanning it have zero width; drop that coordinate (it carries no information)`);
+    }
+  }
+}
+
 // ---------------------------------------------------------------------------------------------------------
 // Wang–Kulkarni–Verdú
 
@@ -154,11 +165,12 @@ function histogramDivergence(sample: Sample, settings: Settings): number {
   const pooled = new Float64Array((n + m) * dim);
   pooled.set(p, 0);
   pooled.set(q, n * dim);
+  checkNotConstant(id, pooled, n + m, dim, 'the pooled P and Q points');
   let grid: AxisBins[];
   try {
     grid = histogramGrid({ n: n + m, dim, data: pooled }, { bins: settings.bins ?? 'freedman-diaconis', scale: settings.scale ?? 1, width: 'none' });
   } catch (error) {
-    if (error instanceof EstimateError) throw new EstimateError(error.code, error.message.replace(/^histogram/, `${id} (pooled P and Q)`));
+    if (error instanceof EstimateError) throw new EstimateError(error.code, error.message.replace(/^histogram/, `${id} (pooled P and Q)`).replace(', a bin count, or width=W', ' or a bin count').replace(', or width=W', ''));
     throw error;
   }
   const keys = cellKeys(p, n, q, m, dim, grid);

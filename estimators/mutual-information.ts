@@ -1,30 +1,35 @@
 /**
  * Estimators of the mutual information I(X; Y) in nats. The sample's first `xDim` columns are X, the rest Y.
  *
- *   const ksg = getEstimator('ksg1');
+ *   const ksg = getEstimator('ksg1');              // from estimators/index.ts
  *   ksg.estimate({ n, dim: 3, data, xDim: 1 }, { k: 3, copula: 'none' });
  *
  * - ksg1, ksg2: Kraskov, Stögbauer & Grassberger (2004), estimators (8) and (9), max norm, neighbour order k.
  * - mi-histogram: plug-in H(X) + H(Y) − H(X,Y) of one product grid (the joint grid and its projections).
  * - mi-kernel: Ĥ(X) + Ĥ(Y) − Ĥ(X,Y) with the leave-one-out Gaussian-kernel entropy estimator.
  * - mi-gaussian: ½ log(det Σ̂x det Σ̂y / det Σ̂), optionally exactly unbiased for Gaussian data.
- * - mi-from-entropies: Ĥ(X) + Ĥ(Y) − Ĥ(X,Y) with any registered entropy estimator.
+ * - mi-from-entropies: Ĥ(X) + Ĥ(Y) − Ĥ(X,Y) with any built-in entropy estimator.
  *
  * Every one has `copula`: none, or rank, which first replaces each coordinate by rank/(n + 1) (ties broken
  * by row order). Ranks do not change under any increasing map of a coordinate, so with copula=rank the
- * estimate is exactly invariant to such maps (and MI itself is: it is the MI of the copula).
+ * estimate is exactly invariant to such maps (and MI itself is: it is the MI of the copula). One caution:
+ * ranks make each 1-D marginal an exact lattice, on which nearest-neighbour entropy estimates are biased
+ * (Kozachenko–Leonenko with k = 3 gives about +0.46 nats for U(0,1), whose entropy is 0), so
+ * mi-from-entropies with copula=rank overstates I by about that much per 1-D part; KSG, whose marginal
+ * counts use the joint neighbourhoods, does not have this problem.
  *
- * This module reaches the estimator registry (for mi-from-entropies) and the registry lists this module's
- * estimators, so import estimators through estimators/index.ts before (or instead of) this file.
+ * The catalog and the harness reach these through estimators/index.ts; importing this file directly is fine.
  */
 import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
-import { EstimateError, UsageError } from '../src/errors.js';
+import { EstimateError } from '../src/errors.js';
 import { KnnIndex } from '../src/knn.js';
 import { digamma } from '../src/math/special.js';
-import { type AxisBins, BIN_RULES, histogramCells, histogramGrid } from './histogram.js';
-import { BANDWIDTH_RULES, kernelEstimator } from './kernel.js';
-import { logDeterminantSpd, scatterMatrix, wishartLogDetShift } from './parametric.js';
-import { getEstimator, listEstimators } from './index.js';
+import { checkNotConstant } from './divergence.js';
+import { type AxisBins, BIN_RULES, histogramCells, histogramEstimators, histogramGrid } from './histogram.js';
+import { BANDWIDTH_RULES, kernelEstimator, kernelEstimators } from './kernel.js';
+import { nearestNeighbourEstimators } from './nearest-neighbour.js';
+import { logDeterminantSpd, parametricEstimators, scatterMatrix, wishartLogDetShift } from './parametric.js';
+import { spacingEstimators } from './spacing.js';
 
 const KSG_REFERENCE = 'Kraskov, A., Stögbauer, H. & Grassberger, P. (2004). Estimating mutual information. Physical Review E 69, 066138';
 
@@ -107,9 +112,12 @@ function kOf(id: string, settings: Settings, fallback: number): number {
   return k;
 }
 
-/** Rethrows a histogram/kernel error under this estimator's id. */
+/** Rethrows a histogram/kernel error under this estimator's id, without advice on settings it does not have. */
 function renamed(id: string, from: string, error: unknown): never {
-  if (error instanceof EstimateError) throw new EstimateError(error.code, error.message.startsWith(from) ? id + error.message.slice(from.length) : `${id}: ${error.message}`);
+  if (error instanceof EstimateError) {
+    const message = (error.message.startsWith(from) ? id + error.message.slice(from.length) : `${id}: ${error.message}`).replace(', a bin count, or width=W', ' or a bin count').replace(', or width=W', '');
+    throw new EstimateError(error.code, message);
+  }
   throw error;
 }
 
@@ -243,6 +251,7 @@ function histogramMutualInformation(sample: Sample, settings: Settings): number 
   const dim = xDim + yDim;
   if (n < 2) throw new EstimateError('too-few-points', `${id} needs at least 2 points, got ${n}`);
   const joint: Sample = { n, dim, data };
+  checkNotConstant(id, data, n, dim);
   let grid: AxisBins[];
   try {
     grid = histogramGrid(joint, { bins: settings.bins ?? 'freedman-diaconis', scale: settings.scale ?? 1, width: 'none' });
@@ -316,37 +325,34 @@ function gaussianMutualInformationEstimate(sample: Sample, settings: Settings): 
 
 const ENTROPY_DEFAULT = 'kozachenko-leonenko';
 
-/** The registered entropy estimators (read when asked, so estimators registered later are included). */
+/**
+ * The entropy estimators mi-from-entropies can use: every built-in one, taken from the family modules the
+ * registry (estimators/index.ts) is built from. Not from the registry itself: the registry lists this
+ * module's estimators, and importing it here would make an import cycle that fails whenever this file is
+ * loaded first. So estimators added at run time (user modules) are not offered here.
+ */
+const entropyEstimatorList: readonly Estimator[] = [...histogramEstimators, ...spacingEstimators, ...nearestNeighbourEstimators, ...kernelEstimators, ...parametricEstimators].filter(
+  (e) => e.quantity === 'entropy',
+);
+
 function entropyEstimatorIds(): string[] {
-  return listEstimators()
-    .filter((e) => e.quantity === 'entropy')
-    .map((e) => e.id);
+  return entropyEstimatorList.map((e) => e.id);
 }
 
 const entropySetting: SettingSpec = {
   name: 'entropy',
-  meaning: 'the entropy estimator used for H(X), H(Y) and H(X,Y): any registered entropy estimator id, with its default settings',
+  meaning: 'the entropy estimator used for H(X), H(Y) and H(X,Y): any built-in entropy estimator id, with its default settings',
   default: ENTROPY_DEFAULT,
   kind: 'choice',
-  get choices() {
-    return entropyEstimatorIds();
-  },
+  choices: entropyEstimatorIds(),
 };
 
 function fromEntropies(sample: Sample, settings: Settings): number {
   const id = 'mi-from-entropies';
   const entropyId = settings.entropy ?? ENTROPY_DEFAULT;
-  let inner: Estimator;
-  try {
-    inner = getEstimator(String(entropyId));
-  } catch (error) {
-    if (error instanceof UsageError) {
-      throw new EstimateError('invalid-input', `${id}: entropy=${String(entropyId)} is not allowed; it must be one of ${entropyEstimatorIds().join(', ')}`);
-    }
-    throw error;
-  }
-  if (inner.quantity !== 'entropy') {
-    throw new EstimateError('invalid-input', `${id}: entropy=${inner.id} estimates ${inner.quantity}; it must be one of ${entropyEstimatorIds().join(', ')}`);
+  const inner = entropyEstimatorList.find((e) => e.id === entropyId);
+  if (!inner) {
+    throw new EstimateError('invalid-input', `${id}: entropy=${String(entropyId)} is not allowed; it must be a built-in entropy estimator: ${entropyEstimatorIds().join(', ')}`);
   }
   const { data, n, xDim, yDim } = prepared(id, sample, settings);
   const dim = xDim + yDim;
@@ -443,7 +449,7 @@ export const mutualInformationEstimators: Estimator[] = [
     id: 'mi-from-entropies',
     family: 'mutual-information',
     quantity: 'mutual-information',
-    summary: 'Ĥ(X) + Ĥ(Y) − Ĥ(X,Y) with any registered entropy estimator (default Kozachenko–Leonenko)',
+    summary: 'Ĥ(X) + Ĥ(Y) − Ĥ(X,Y) with any built-in entropy estimator (default Kozachenko–Leonenko)',
     settings: [
       entropySetting,
       { name: 'k', meaning: 'neighbour order, passed to the entropy estimator when it has a k setting', default: KSG_DEFAULT_K, kind: 'integer', min: 1 },

@@ -236,6 +236,24 @@ const miGaussian: ScenarioFamily = {
   ],
 };
 
+/**
+ * Mean and covariance of (exp X, Y³) for a standard-marginal Gaussian (X, Y) with correlations c:
+ * E e^X = e^{1/2}, cov(e^{X_i}, e^{X_j}) = e(e^c − 1) (lognormal); E Y³ = 0, cov(Y_i³, Y_j³) = 9c + 6c³
+ * (Isserlis); cov(e^{X_i}, Y_j³) = e^{1/2} E(Y_j + c)³ = e^{1/2}(3c + c³) (the e^X-tilted law shifts Y_j by c).
+ */
+function transformedMoments(correlation: number[][], xDim: number): { mean: number[]; covariance: number[][] } {
+  const isX = (i: number) => i < xDim;
+  const mean = correlation.map((_, i) => (isX(i) ? Math.exp(0.5) : 0));
+  const covariance = correlation.map((row, i) =>
+    row.map((c, j) => {
+      if (isX(i) && isX(j)) return Math.E * Math.expm1(c);
+      if (!isX(i) && !isX(j)) return 9 * c + 6 * c * c * c;
+      return Math.exp(0.5) * (3 * c + c * c * c);
+    }),
+  );
+  return { mean, covariance };
+}
+
 const miTransformedGaussian: ScenarioFamily = {
   id: 'mi-transformed-gaussian',
   quantity: 'mutual-information',
@@ -265,6 +283,7 @@ const miTransformedGaussian: ScenarioFamily = {
           }
         }),
       informationDensityVariance: { value: law.variance.value, source: `unchanged by the maps; ${law.variance.source}` },
+      moments: transformedMoments(law.covariance, p.dimX),
     });
   },
   examples: [{ dimX: 2, dimY: 2, rho: 0.6, within: 0 }],
@@ -356,6 +375,34 @@ export function uniformNoiseInformation(a: number): { truth: number; variance: n
   return { truth: a <= 1 ? a / 2 - Math.log(a) : 1 / (2 * a), variance: s / 2 - (s * s) / 4 };
 }
 
+/** The law of Y = X + W, X ~ U(0,1), W ~ U(0,a): the trapezoid U(0,1) ∗ U(0,a). */
+function trapezoidDensity(a: number): UnivariateDensity {
+  const low = Math.min(a, 1);
+  const high = Math.max(a, 1);
+  // Density: rises linearly to 1/high on [0, low], flat on [low, high], falls to 0 on [high, 1 + a].
+  const height = 1 / high;
+  const rampMass = (low * height) / 2;
+  return {
+    lower: 0,
+    upper: 1 + a,
+    breakpoints: [low, high],
+    logDensity: (y) => {
+      if (!(y > 0 && y < 1 + a)) return -Infinity;
+      if (y < low) return Math.log((y / low) * height);
+      if (y <= high) return Math.log(height);
+      return Math.log(((1 + a - y) / low) * height);
+    },
+    cdf: (y) => {
+      if (y <= 0) return 0;
+      if (y >= 1 + a) return 1;
+      if (y < low) return (y * y * height) / (2 * low);
+      if (y <= high) return rampMass + (y - low) * height;
+      const rest = 1 + a - y;
+      return 1 - (rest * rest * height) / (2 * low);
+    },
+  };
+}
+
 const miUniformNoise: ScenarioFamily = {
   id: 'mi-uniform-noise',
   quantity: 'mutual-information',
@@ -383,6 +430,9 @@ const miUniformNoise: ScenarioFamily = {
         return data;
       },
       informationDensityVariance: { value: variance, source: 'exact: s/2 − s²/4 with s = min(a, 1/a) (derived in scenarios/dependence.ts)' },
+      // Var X = 1/12, Var Y = (1 + a²)/12, cov(X, Y) = Var X.
+      moments: { mean: [0.5, (1 + p.a) / 2], covariance: [[1 / 12, 1 / 12], [1 / 12, (1 + p.a * p.a) / 12]] },
+      marginals: [univariateDensity('uniform', { a: 0, b: 1 }), trapezoidDensity(p.a)],
     });
   },
   examples: [{ a: 0.1 }, { a: 2 }],

@@ -21,7 +21,7 @@ import { scenarioId } from './build.js';
 import { gaussianRows } from './dependence.js';
 import { univariateFamilies } from './univariate.js';
 
-const PENNY = 'Penny, KL-divergences of Normal, Gamma, Dirichlet and Wishart densities, tech. report, Wellcome Dept. of Imaging Neuroscience, UCL (2001)';
+const PENNY = 'Penny, KL-divergences of Normal, Gamma, Dirichlet and Wishart densities, tech. report, Wellcome Department of Cognitive Neurology, University College London (2001)';
 
 export interface DivergenceDefinition {
   family: string;

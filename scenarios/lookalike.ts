@@ -284,7 +284,7 @@ function nestedQuadratureEntropy(p: Prepared): { value: number; error: number } 
   return { value, error };
 }
 
-function computeTruth(id: string, components: readonly MixtureComponent[], p: Prepared, marginals: UnivariateDensity[]): NumericTruth {
+function computeTruth(id: string, p: Prepared, marginals: UnivariateDensity[]): NumericTruth {
   if (p.dim === 1) {
     const entropy = entropyByQuadrature(marginals[0]);
     const variance = logDensityVarianceByQuadrature(marginals[0], entropy.value);
@@ -336,7 +336,7 @@ export function lookalikeScenario(components: readonly MixtureComponent[]): Scen
     Array.from({ length: dim }, (_, j) => components.reduce((s, c, k) => s + prepared.weights[k] * (c.covariance[i][j] + c.mean[i] * c.mean[j]), 0) - overallMean[i] * overallMean[j]),
   );
   let truth: NumericTruth | undefined;
-  const ensureTruth = () => (truth ??= computeTruth(id, components, prepared, marginals));
+  const ensureTruth = () => (truth ??= computeTruth(id, prepared, marginals));
   const residual = new Float64Array(dim);
   const terms = new Float64Array(prepared.count);
   const params: Record<string, number> = { dim, components: prepared.count };

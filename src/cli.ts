@@ -8,6 +8,7 @@ import { registerEstimateCommand } from './commands/estimate.js';
 import { registerConvertCommand } from './commands/convert.js';
 import { registerReportCommand } from './commands/report.js';
 import { registerCompareCommand } from './commands/compare.js';
+import { registerAdviseCommand } from './commands/advise.js';
 
 
 export interface CliIo {
@@ -39,6 +40,7 @@ export function buildProgram(io: CliIo): Command {
   registerConvertCommand(program, io.out);
   registerReportCommand(program, io.out);
   registerCompareCommand(program, io.out, io.err);
+  registerAdviseCommand(program, io.out, io.err);
   for (const command of program.commands) command.exitOverride().configureOutput({ writeOut: io.out, writeErr: io.err });
   return program;
 }

@@ -34,14 +34,19 @@ export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
       scenarios: catalog()
         .filter((s) => s.quantity === quantity)
         .map((s) => s.id),
-      estimators: listEstimators()
-        .filter((e) => e.quantity === quantity)
-        .map((e) => e.id),
-      sampleSizes: [100, 500, 2000],
+      estimators: [
+        ...listEstimators()
+          .filter((e) => e.quantity === quantity)
+          .map((e) => e.id),
+        // With Freedman–Diaconis bins most replicates leave P mass in bins Q never reaches; coarser bins run.
+        ...(quantity === 'divergence' ? ['histogram-divergence:bins=sturges'] : []),
+      ],
+      // The kernel MI estimator is quadratic in n in several dimensions: 1000 keeps the plan within a minute.
+      sampleSizes: quantity === 'mutual-information' ? [100, 300, 1000] : [100, 500, 2000],
       replicates: 30,
       seed: 20261201,
       robustness: {
-        sampleSize: 500,
+        sampleSize: quantity === 'mutual-information' ? 300 : 500,
         perturbations:
           quantity === 'mutual-information'
             ? ['rescale:c=1000', 'monotone:map=asinh,part=x', 'monotone:map=cubic,part=y', 'quantize:step=0.01', 'quantize:step=0.1']

@@ -1,0 +1,206 @@
+/**
+ * `hhat advise --n N --dim D [--tails T] [--support S]`: which estimator to use in a described setting.
+ *
+ *   const advice = await adviseSetting({ n: 800, dim: 2, tails: 'heavy', budgetSeconds: 20 });
+ *   advice.match.scenarios, advice.estimators (by mean RMSE), advice.recommendation.reason
+ *
+ * Scenario choice. Catalog scenarios of dimension exactly D, with the tail class and support when given.
+ * When the catalog has nothing at d = D, the catalog's families with a dimension parameter (Gaussian, uniform
+ * box and ball, multivariate Student t and lognormal) are rebuilt at d = D with the catalog's other values.
+ * When the tail class or support still matches nothing, the nearest are used, fewest differences first, and
+ * the advice says so. More than `maxScenarios` matches are thinned to one per family, spread round-robin
+ * over the (tails, support) classes in catalog order.
+ *
+ * Then a benchmark at n with as many replicates as the budget allows, including a small robustness section
+ * at n (a unit change, recording to 0.01 and 0.1 SD, 1% of far outliers).
+ */
+import type { Scenario, Support, Tails } from '../contracts.js';
+import { UsageError } from '../errors.js';
+import { catalog, listFamilies, parseScenario } from '../../scenarios/index.js';
+import { applicableEstimators, DEFAULT_BUDGET_SECONDS, runTargeted } from './benchmark.js';
+import { recommend, summarise, type EstimatorSummary, type Recommendation } from './recommend.js';
+
+export interface SettingAdviceOptions {
+  n: number;
+  dim: number;
+  tails?: Tails;
+  support?: Support;
+  budgetSeconds?: number;
+  seed?: number;
+  workers?: number;
+  maxScenarios?: number;
+  minReplicates?: number;
+  onStage?: (stage: string) => void;
+}
+
+export interface ScenarioMatch {
+  /** Scenarios benchmarked. */
+  scenarios: { id: string; dim: number; tails: Tails; support: Support }[];
+  /** How many scenarios matched before thinning. */
+  matched: number;
+  /** True when every benchmarked scenario has d = D and the tails and support asked for. */
+  exact: boolean;
+  /** Scenarios were rebuilt at d = D from families with a dimension parameter. */
+  rebuilt: boolean;
+  /** A plain sentence on how the scenarios were chosen. */
+  note: string;
+}
+
+export interface SettingAdvice {
+  n: number;
+  dim: number;
+  tails: Tails | null;
+  support: Support | null;
+  budgetSeconds: number;
+  match: ScenarioMatch;
+  benchmark: { replicates: number; seconds: number; minimumForced: boolean; workers: number; perturbations: string[] };
+  estimators: EstimatorSummary[];
+  recommendation: Recommendation;
+  warnings: string[];
+  seconds: number;
+}
+
+/** The robustness section of setting advice: a unit change, rounding at two steps, far outliers. */
+export const ADVICE_PERTURBATIONS = ['rescale:c=1000', 'quantize:step=0.01', 'quantize:step=0.1', 'contaminate:fraction=0.01'];
+export const DEFAULT_MAX_SCENARIOS = 6;
+
+function entropyCatalog(): Scenario[] {
+  return catalog().filter((s) => s.quantity === 'entropy');
+}
+
+/** Catalog scenarios of families with a `dim` parameter, rebuilt at dimension d (duplicates dropped). */
+function rebuiltAt(dim: number, from: Scenario[]): Scenario[] {
+  const out = new Map<string, Scenario>();
+  for (const s of from) {
+    const family = listFamilies().find((f) => f.id === s.family && f.params.some((p) => p.name === 'dim'));
+    if (!family) continue;
+    try {
+      const rebuilt = family.create({ ...s.params, dim });
+      out.set(rebuilt.id, parseScenario(rebuilt.id));
+    } catch (error) {
+      // A parameter set that is invalid at this dimension (an equicorrelation too negative) is simply skipped.
+      if (!(error instanceof UsageError)) throw error;
+    }
+  }
+  return [...out.values()];
+}
+
+function describe(tails?: Tails, support?: Support): string {
+  const parts = [tails ? `${tails} tails` : '', support ? `${support === 'half' ? 'half-bounded' : support} support` : ''].filter(Boolean);
+  return parts.length ? ` with ${parts.join(' and ')}` : '';
+}
+
+/** Thins to at most `max` scenarios: one per family, round-robin over (tails, support) classes. */
+export function thinScenarios(scenarios: Scenario[], max: number): Scenario[] {
+  if (scenarios.length <= max) return scenarios;
+  const classes = new Map<string, Scenario[]>();
+  for (const s of scenarios) {
+    const key = `${s.tails}/${s.support}`;
+    if (!classes.has(key)) classes.set(key, []);
+    classes.get(key)!.push(s);
+  }
+  const chosen: Scenario[] = [];
+  const families = new Set<string>();
+  const queues = [...classes.values()].map((list) => [...list]);
+  // First pass: new families only; later passes allow repeats, so the cap is always reached.
+  for (const allowRepeat of [false, true]) {
+    let progress = true;
+    while (chosen.length < max && progress) {
+      progress = false;
+      for (const queue of queues) {
+        if (chosen.length >= max) break;
+        const index = queue.findIndex((s) => allowRepeat || !families.has(s.family));
+        if (index < 0) continue;
+        const [s] = queue.splice(index, 1);
+        chosen.push(s);
+        families.add(s.family);
+        progress = true;
+      }
+    }
+  }
+  return chosen;
+}
+
+export function matchScenarios(dim: number, tails: Tails | undefined, support: Support | undefined, max: number): ScenarioMatch {
+  const all = entropyCatalog();
+  let pool = all.filter((s) => s.dim === dim);
+  let rebuilt = false;
+  if (!pool.length) {
+    pool = rebuiltAt(dim, all);
+    rebuilt = pool.length > 0;
+  }
+  const mismatches = (s: Scenario) => Number(tails !== undefined && s.tails !== tails) + Number(support !== undefined && s.support !== support);
+  let notes: string[] = [];
+  let exact = true;
+  if (!pool.length) {
+    // Nothing at this dimension and no family to rebuild: the nearest dimension.
+    const nearest = Math.min(...all.map((s) => Math.abs(s.dim - dim)));
+    pool = all.filter((s) => Math.abs(s.dim - dim) === nearest);
+    exact = false;
+    notes.push(`the catalog has nothing at d = ${dim}; using the nearest dimension, d = ${[...new Set(pool.map((s) => s.dim))].join(' and ')}`);
+  } else if (rebuilt) {
+    notes.push(`the catalog lists nothing at d = ${dim}; its families with a dimension parameter were rebuilt at d = ${dim}`);
+  }
+  const best = Math.min(...pool.map(mismatches));
+  const matched = pool.filter((s) => mismatches(s) === best);
+  if (best > 0) {
+    exact = false;
+    const have = [...new Set(matched.map((s) => `${s.tails} tails, ${s.support === 'half' ? 'half-bounded' : s.support} support`))].join('; ');
+    notes.push(`no scenario${rebuilt ? '' : ' in the catalog'} at d = ${dim} has${describe(tails, support).replace(/^ with/, '')}; the nearest differ in ${best === 2 ? 'both' : 'one'} of them (${have})`);
+  }
+  const chosen = thinScenarios(matched, max);
+  const count = `${chosen.length === matched.length ? `all ${matched.length}` : `${chosen.length} of ${matched.length}`} matching scenario${matched.length === 1 ? '' : 's'}`;
+  const thinned = chosen.length < matched.length ? ' (one per family, spread over tail and support classes)' : '';
+  notes = notes.length ? [...notes, `benchmarking ${count}${thinned}`] : [`benchmarking ${count} at d = ${dim}${describe(tails, support)}${thinned}`];
+  return {
+    scenarios: chosen.map((s) => ({ id: s.id, dim: s.dim, tails: s.tails, support: s.support })),
+    matched: matched.length,
+    exact,
+    rebuilt,
+    note: `${notes.join('; ')}.`.replace(/^./, (c) => c.toUpperCase()),
+  };
+}
+
+export async function adviseSetting(options: SettingAdviceOptions): Promise<SettingAdvice> {
+  const started = performance.now();
+  const { n, dim } = options;
+  if (!Number.isInteger(n) || n < 10) throw new UsageError(`--n ${n} is not allowed; it must be an integer ≥ 10`);
+  if (!Number.isInteger(dim) || dim < 1) throw new UsageError(`--dim ${dim} is not allowed; it must be an integer ≥ 1`);
+  const budget = options.budgetSeconds ?? DEFAULT_BUDGET_SECONDS;
+  const stage = options.onStage ?? (() => {});
+  stage('choosing scenarios');
+  const match = matchScenarios(dim, options.tails, options.support, options.maxScenarios ?? DEFAULT_MAX_SCENARIOS);
+  const estimators = applicableEstimators(dim);
+  if (!estimators.length) throw new UsageError(`no entropy estimator supports d = ${dim}`);
+  stage('benchmarking');
+  const bench = await runTargeted({
+    scenarios: match.scenarios.map((s) => s.id),
+    estimators,
+    n,
+    budgetSeconds: Math.max(0, budget - (performance.now() - started) / 1000),
+    seed: options.seed,
+    perturbations: ADVICE_PERTURBATIONS,
+    workers: options.workers,
+    minReplicates: options.minReplicates ?? 10,
+  });
+  const summaries = summarise(bench.run);
+  const recommendation = recommend(bench.run, summaries);
+  const warnings: string[] = [];
+  if (!match.exact) warnings.push(match.note);
+  if (bench.minimumForced) warnings.push(`the time budget covered fewer than ${bench.replicates} replicates; ${bench.replicates} ran anyway (${bench.wallSeconds.toFixed(1)} s). Raise --budget for smaller Monte-Carlo errors.`);
+  const skippedPerturbations = bench.run.skipped.filter((s) => s.estimator.startsWith('(all, under'));
+  if (skippedPerturbations.length) warnings.push(`some perturbations could not be applied: ${[...new Set(skippedPerturbations.map((s) => s.reason))].join('; ')}.`);
+  return {
+    n,
+    dim,
+    tails: options.tails ?? null,
+    support: options.support ?? null,
+    budgetSeconds: budget,
+    match,
+    benchmark: { replicates: bench.replicates, seconds: bench.wallSeconds, minimumForced: bench.minimumForced, workers: bench.workers, perturbations: ADVICE_PERTURBATIONS },
+    estimators: summaries,
+    recommendation,
+    warnings,
+    seconds: (performance.now() - started) / 1000,
+  };
+}

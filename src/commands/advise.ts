@@ -1,0 +1,105 @@
+import type { Command } from 'commander';
+import type { Support, Tails } from '../contracts.js';
+import { UsageError } from '../errors.js';
+import { readSample } from '../data.js';
+import { parseIntegerOption } from '../plan.js';
+import { toJson } from '../results.js';
+import { parseNumber } from '../spec.js';
+import { adviseFile } from '../advise/file.js';
+import { adviseSetting } from '../advise/setting.js';
+import { fileAdviceJson, renderFileAdvice, renderSettingAdvice, settingAdviceJson } from '../advise/render.js';
+import { DEFAULT_BUDGET_SECONDS } from '../advise/benchmark.js';
+
+interface AdviseOptions {
+  n?: string;
+  dim?: string;
+  tails?: string;
+  support?: string;
+  columns?: string;
+  interval?: string;
+  budget?: string;
+  seed?: string;
+  workers?: string;
+  json?: boolean;
+}
+
+const TAILS: readonly Tails[] = ['light', 'exponential', 'heavy'];
+const SUPPORTS: readonly Support[] = ['bounded', 'half', 'unbounded'];
+
+function parseBudget(text: string | undefined): number {
+  if (text === undefined) return DEFAULT_BUDGET_SECONDS;
+  const value = parseNumber(text);
+  if (value === undefined || !(value > 0) || value > 86400) throw new UsageError(`--budget ${text} is not allowed; it must be a number of seconds > 0 and ≤ 86400`);
+  return value;
+}
+
+function parseLevel(text: string | undefined): number | null {
+  if (text === undefined) return 0.95;
+  if (text === 'none') return null;
+  const value = parseNumber(text);
+  if (value === undefined || !(value > 0 && value < 1)) throw new UsageError(`--interval ${text} is not allowed; it must be a coverage between 0 and 1 (e.g. 0.95), or none`);
+  return value;
+}
+
+function choice<T extends string>(flag: string, text: string | undefined, allowed: readonly T[]): T | undefined {
+  if (text === undefined) return undefined;
+  if (!allowed.includes(text as T)) throw new UsageError(`${flag} ${text} is not allowed; it must be one of ${allowed.join(', ')}`);
+  return text as T;
+}
+
+export function registerAdviseCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
+  program
+    .command('advise')
+    .description('which estimator to use: for a described setting (--n, --dim), or for a data file, with an estimate, a bootstrap interval and a look-alike bias correction')
+    .argument('[file]', 'a data file (CSV/TSV/TXT, JSON, NumPy .npy); rows are points, columns are coordinates')
+    .option('--n <n>', 'sample size of the setting (without a file)')
+    .option('--dim <d>', 'dimension of the setting (without a file)')
+    .option('--tails <class>', `tail class of the setting: ${TAILS.join(', ')}`)
+    .option('--support <class>', `support of the setting: ${SUPPORTS.join(', ')}`)
+    .option('--columns <list>', 'with a file: columns to use, positions from 1 ("1,3", "2-4") or header names ("x,y")')
+    .option('--interval <level>', 'with a file: coverage of the bootstrap interval (default 0.95; none for no interval)')
+    .option('--budget <seconds>', `time budget in seconds (default ${DEFAULT_BUDGET_SECONDS})`)
+    .option('--seed <s>', 'base seed of the benchmark draws, the EM starts and the bootstrap')
+    .option('--workers <w>', 'worker threads for the benchmark (default: the number of cores)')
+    .option('--json', 'print the advice as JSON (values in nats)')
+    .action(async (file: string | undefined, options: AdviseOptions) => {
+      const budgetSeconds = parseBudget(options.budget);
+      const seed = options.seed === undefined ? undefined : parseIntegerOption('--seed', options.seed, 0);
+      const workers = options.workers === undefined ? undefined : parseIntegerOption('--workers', options.workers, 1, 256);
+      const stage = !options.json && process.stderr.isTTY ? (text: string) => printErr(`hhat advise: ${text}…`) : undefined;
+      if (file !== undefined) {
+        const setting = (['n', 'dim', 'tails', 'support'] as const).filter((k) => options[k] !== undefined);
+        if (setting.length) {
+          throw new UsageError(`--${setting[0]} describes a setting; with a data file the data describe themselves (drop --${setting[0]}, or drop the file for setting advice)`);
+        }
+        const loaded = readSample(file, { columns: options.columns });
+        const advice = await adviseFile(loaded.sample, {
+          budgetSeconds,
+          level: parseLevel(options.interval),
+          seed,
+          workers,
+          columnNames: loaded.columnNames,
+          onStage: stage,
+        });
+        print(options.json ? toJson(fileAdviceJson(advice, file)) : renderFileAdvice(advice, file));
+        return;
+      }
+      if (options.columns !== undefined || options.interval !== undefined) {
+        throw new UsageError(`--${options.columns !== undefined ? 'columns' : 'interval'} applies to a data file: hhat advise FILE ${options.columns !== undefined ? '--columns LIST' : '--interval 0.95'}`);
+      }
+      if (options.n === undefined || options.dim === undefined) {
+        throw new UsageError('give a data file (hhat advise data.csv) or describe the setting with --n and --dim (hhat advise --n 500 --dim 2 [--tails heavy] [--support bounded])');
+      }
+      const advice = await adviseSetting({
+        n: parseIntegerOption('--n', options.n, 10),
+        dim: parseIntegerOption('--dim', options.dim, 1, 1000),
+        tails: choice('--tails', options.tails, TAILS),
+        support: choice('--support', options.support, SUPPORTS),
+        budgetSeconds,
+        seed,
+        workers,
+        onStage: stage,
+      });
+      print(options.json ? toJson(settingAdviceJson(advice)) : renderSettingAdvice(advice));
+    });
+}
