@@ -28,7 +28,7 @@ function pm(value: number, se: number, base: Base, digits = 3): string {
 export function scenarioTables(run: RunFile, base: Base): string {
   const out: string[] = [];
   for (const info of run.scenarios) {
-    const cells = run.cells.filter((c) => c.scenario === info.id && c.perturbation === null);
+    const cells = run.cells.filter((c) => c.scenario === info.id && c.role === 'main');
     if (!cells.length) continue;
     const sizes = [...new Set(cells.map((c) => c.n))].sort((a, b) => a - b);
     const estimators = [...new Set(cells.map((c) => c.estimator))];
@@ -97,7 +97,7 @@ export function overallTable(run: RunFile): string {
 export function detailTable(run: RunFile, base: Base): string {
   const rows = run.cells.map((c: Cell) => [
     c.scenario.length > 40 ? `${c.scenario.slice(0, 39)}…` : c.scenario,
-    estimatorLabel(c.estimator),
+    `${estimatorLabel(c.estimator)}${c.perturbation ? ` after ${c.perturbation}` : ''}`,
     c.n,
     pm(c.scores.bias.value, c.scores.bias.se, base),
     pm(c.scores.sd.value, c.scores.sd.se, base),
@@ -114,7 +114,7 @@ export function detailTable(run: RunFile, base: Base): string {
 
 /** The score table as CSV (nats or bits), one row per cell. */
 export function scoresCsv(run: RunFile, base: Base): string {
-  const header = ['scenario', 'estimator', 'n', 'perturbation', 'truth', 'replicates', 'failures', 'mean', 'mean_se', 'bias', 'bias_se', 'sd', 'sd_se', 'rmse', 'rmse_se', 'mae', 'mae_se', 'efficiency', 'efficiency_se', 'ms_per_estimate', 'unit'];
+  const header = ['scenario', 'estimator', 'n', 'role', 'perturbation', 'truth', 'replicates', 'failures', 'mean', 'mean_se', 'bias', 'bias_se', 'sd', 'sd_se', 'rmse', 'rmse_se', 'mae', 'mae_se', 'efficiency', 'efficiency_se', 'ms_per_estimate', 'unit'];
   const truth = new Map(run.scenarios.map((s) => [s.id, s.truth]));
   const q = (s: string) => (/[",\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s);
   const num = (x: number | undefined | null, convert = true) => (x === undefined || x === null || !Number.isFinite(x) ? '' : String(convert ? toBase(x, base) : x));
@@ -123,8 +123,9 @@ export function scoresCsv(run: RunFile, base: Base): string {
       q(c.scenario),
       q(c.estimator),
       c.n,
+      c.role,
       q(c.perturbation ?? ''),
-      num(truth.get(c.scenario)),
+      num((truth.get(c.scenario) ?? NaN) + (c.shift ?? 0)),
       c.scores.replicates,
       c.scores.failures,
       num(c.scores.mean.value),
