@@ -2,7 +2,9 @@
  * Shared construction of scenarios: canonical ids, lazily computed Var(log f), and the univariate builder.
  */
 import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily, Support, Tails, UnivariateDensity } from '../src/contracts.js';
+import normalRandom from '@stdlib/random-base-normal';
 import { integrate } from '../src/math/quadrature.js';
+import { lowerTimes, type CholeskyFactor } from '../src/math/linalg.js';
 import { formatSpec } from '../src/spec.js';
 
 export function scenarioId(family: string, params: Record<string, number>, specs: readonly ParamSpec[]): string {
@@ -109,4 +111,18 @@ export function family(
   examples?: readonly Record<string, number>[],
 ): ScenarioFamily {
   return { id, quantity: 'entropy', summary, params, create, examples };
+}
+
+/** n rows of N(0, LLᵀ) into a new row-major array; `eachRow` may rewrite a row in place. */
+export function gaussianRows(rng: Rng, n: number, chol: CholeskyFactor, eachRow?: (data: Float64Array, offset: number) => void): Float64Array {
+  const dim = chol.dim;
+  const draw = normalRandom.factory(0, 1, { prng: rng });
+  const z = new Float64Array(dim);
+  const data = new Float64Array(n * dim);
+  for (let i = 0; i < n; i++) {
+    for (let j = 0; j < dim; j++) z[j] = draw();
+    lowerTimes(chol.lower, dim, z, data, i * dim);
+    if (eachRow) eachRow(data, i * dim);
+  }
+  return data;
 }

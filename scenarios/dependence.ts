@@ -25,10 +25,10 @@ import normalRandom from '@stdlib/random-base-normal';
 import chisquareRandom from '@stdlib/random-base-chisquare';
 import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily, Support, Tails, UnivariateDensity } from '../src/contracts.js';
 import { UsageError } from '../src/errors.js';
-import { cholesky, lowerTimes, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
+import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
 import { digamma, logGamma } from '../src/math/special.js';
 import { formatNumber } from '../src/spec.js';
-import { scenarioId } from './build.js';
+import { gaussianRows, scenarioId } from './build.js';
 import { univariateFamilies } from './univariate.js';
 
 const CT = 'Cover & Thomas, Elements of Information Theory, 2nd ed. (2006)';
@@ -174,20 +174,6 @@ export function gaussianInformationDensityVariance(covariance: number[][], xDim:
     for (let c = 0; c < yDim; c++) sumSquares += row[c] * row[c];
   }
   return sumSquares;
-}
-
-/** n rows of N(0, LLᵀ) into a new row-major array; `eachRow` may rewrite a row in place. */
-export function gaussianRows(rng: Rng, n: number, chol: CholeskyFactor, eachRow?: (data: Float64Array, offset: number) => void): Float64Array {
-  const dim = chol.dim;
-  const draw = normalRandom.factory(0, 1, { prng: rng });
-  const z = new Float64Array(dim);
-  const data = new Float64Array(n * dim);
-  for (let i = 0; i < n; i++) {
-    for (let j = 0; j < dim; j++) z[j] = draw();
-    lowerTimes(chol.lower, dim, z, data, i * dim);
-    if (eachRow) eachRow(data, i * dim);
-  }
-  return data;
 }
 
 function gaussianGroupLaw(owner: string, p: Record<string, number>) {

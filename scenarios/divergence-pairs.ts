@@ -18,7 +18,7 @@ import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js
 import { digamma, logGamma } from '../src/math/special.js';
 import { formatNumber } from '../src/spec.js';
 import { scenarioId } from './build.js';
-import { gaussianRows } from './dependence.js';
+import { gaussianRows } from './build.js';
 import { univariateFamilies } from './univariate.js';
 
 const PENNY = 'Penny, KL-divergences of Normal, Gamma, Dirichlet and Wishart densities, tech. report, Wellcome Department of Cognitive Neurology, University College London (2001)';

@@ -5,10 +5,10 @@ import chisquareRandom from '@stdlib/random-base-chisquare';
 import normalRandom from '@stdlib/random-base-normal';
 import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily } from '../src/contracts.js';
 import { UsageError } from '../src/errors.js';
-import { cholesky, lowerTimes, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
+import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { formatNumber } from '../src/spec.js';
-import { scenarioId } from './build.js';
+import { gaussianRows, scenarioId } from './build.js';
 import { studentLogDensityVariance, univariateFamilies } from './univariate.js';
 
 /** The univariate density of a family at given params (marginals of multivariate laws). */
@@ -46,15 +46,10 @@ function factor(owner: string, covariance: number[][]): CholeskyFactor {
 /** Draws n points of N(mean, LLᵀ) into a row-major array, then maps each point in place if asked. */
 function gaussianDraws(rng: Rng, n: number, mean: readonly number[], chol: CholeskyFactor, eachPoint?: (row: Float64Array, offset: number) => void): Sample {
   const dim = chol.dim;
-  const draw = normalRandom.factory(0, 1, { prng: rng });
-  const z = new Float64Array(dim);
-  const data = new Float64Array(n * dim);
-  for (let i = 0; i < n; i++) {
-    for (let j = 0; j < dim; j++) z[j] = draw();
-    lowerTimes(chol.lower, dim, z, data, i * dim);
-    for (let j = 0; j < dim; j++) data[i * dim + j] += mean[j];
-    if (eachPoint) eachPoint(data, i * dim);
-  }
+  const data = gaussianRows(rng, n, chol, (rows, offset) => {
+    for (let j = 0; j < dim; j++) rows[offset + j] += mean[j];
+    if (eachPoint) eachPoint(rows, offset);
+  });
   return { n, dim, data };
 }
 
