@@ -39,7 +39,7 @@ export interface TargetedBenchmark {
   /** Replicates per cell over both rounds. */
   replicates: number;
   rounds: { seed: number; replicates: number; wallSeconds: number }[];
-  /** Measured on the pilot: estimator seconds per replicate, all scenarios, before perturbations. */
+  /** Measured on the pilot: estimator seconds per replicate, all scenarios, before perturbations (NaN: no pilot). */
   secondsPerReplicate: number;
   /** The budget asked for fewer than minReplicates; the minimum ran anyway. */
   minimumForced: boolean;
@@ -113,16 +113,21 @@ export async function runTargeted(options: TargetedOptions): Promise<TargetedBen
       robustness: withRobustness && perturbations.length ? { sampleSize: options.n, perturbations, tuning: false } : null,
     }).plan;
 
-  await runPlan(planFor(1, seed, false), { workers: 1 });
-  const pilot = await runPlan(planFor(PILOT_REPLICATES, seed, false), { workers: 1 });
-  let estimatorMs = 0;
-  for (const result of pilot.results.values()) for (const ms of result.timeMs) estimatorMs += ms;
-  const secondsPerReplicate = (estimatorMs / 1000 / PILOT_REPLICATES) * OVERHEAD_FACTOR;
-  const costPerReplicate = secondsPerReplicate * (1 + perturbations.length);
   const workers = Math.max(1, options.workers ?? defaultWorkers());
-
   const remaining = () => Math.max(0, options.budgetSeconds - elapsed());
-  const affordable = costPerReplicate > 0 ? Math.floor((remaining() * FIRST_ROUND_SHARE * workers) / costPerReplicate) : maxReplicates;
+  // A fixed replicate count (min = max) needs no pilot: the budget sizes nothing.
+  const fixed = minReplicates >= maxReplicates;
+  let secondsPerReplicate = NaN;
+  let affordable = maxReplicates;
+  if (!fixed) {
+    await runPlan(planFor(1, seed, false), { workers: 1 });
+    const pilot = await runPlan(planFor(PILOT_REPLICATES, seed, false), { workers: 1 });
+    let estimatorMs = 0;
+    for (const result of pilot.results.values()) for (const ms of result.timeMs) estimatorMs += ms;
+    secondsPerReplicate = (estimatorMs / 1000 / PILOT_REPLICATES) * OVERHEAD_FACTOR;
+    const costPerReplicate = secondsPerReplicate * (1 + perturbations.length);
+    affordable = costPerReplicate > 0 ? Math.floor((remaining() * FIRST_ROUND_SHARE * workers) / costPerReplicate) : maxReplicates;
+  }
   const firstReplicates = Math.min(maxReplicates, Math.max(minReplicates, affordable));
   const rounds: TargetedBenchmark['rounds'] = [];
   const roundStarted = performance.now();
@@ -133,7 +138,7 @@ export async function runTargeted(options: TargetedOptions): Promise<TargetedBen
   let usedWorkers = firstOutcome.workers;
 
   const throughput = firstReplicates / Math.max(firstWall, 1e-3);
-  const more = Math.min(maxReplicates - firstReplicates, Math.floor(remaining() * SECOND_ROUND_SHARE * throughput));
+  const more = fixed ? 0 : Math.min(maxReplicates - firstReplicates, Math.floor(remaining() * SECOND_ROUND_SHARE * throughput));
   // A second round smaller than a fifth of the first would add little precision for its start-up cost.
   if (more >= Math.max(5, Math.ceil(firstReplicates / 5))) {
     const secondStarted = performance.now();

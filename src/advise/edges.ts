@@ -8,7 +8,7 @@
  * sample: the outermost gaps D₁, D₂, … (D_i = x_(n−i+1) − x_(n−i)) are i.i.d. exponential, so the mean of the
  * m outermost gaps over the mean of the next m is about 1. In a tail the points thin out: for an exponential
  * tail the Rényi representation makes i·D_i i.i.d., so the ratio is about H_m/(H_{2m} − H_m) (harmonic
- * numbers; 3.3 for m = 5, 6.0 for m = 35), and Gaussian tails behave the same to first order; power-law
+ * numbers; 3.5 for m = 5, 6.0 for m = 35), and Gaussian tails behave the same to first order; power-law
  * tails give more. A density that falls to zero at the bound like (b − x)^{β−1} gives 1/(2^{1/β} − 1) for large m
  * (2.4 for β = 2), between the two. We call an end an edge when the ratio is below both the geometric mean of
  * the two reference values, √(tail reference) (closer to a flat end than to a tail on the log scale), and

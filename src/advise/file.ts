@@ -35,6 +35,10 @@ export interface FileAdviceOptions {
   minReplicates?: number;
   /** Least bootstrap resamples, whatever the budget (default 100). */
   minResamples?: number;
+  /** Exactly this many look-alike replicates (the budget no longer sizes them): reproducible advice. */
+  replicates?: number;
+  /** Exactly this many bootstrap resamples. */
+  resamples?: number;
   onStage?: (stage: string) => void;
 }
 
@@ -84,9 +88,10 @@ function fmt(x: number, digits = 3): string {
 function profileWarnings(profile: DataProfile, lookalike: Lookalike, command: string): string[] {
   const warnings: string[] = [];
   const jitter = `add uniform noise one recording step wide to each value (the jittered data's entropy is the discrete entropy plus the log of the step, close to the underlying h when the step is small against the spread), or ask for advice on the setting instead: ${command}`;
+  const coarse = profile.columns.some((c) => c.relativeStep !== null && c.relativeStep >= COARSE_STEP);
   if (profile.repeats.repeatedRows > 0) {
     warnings.push(
-      `${profile.repeats.repeatedRows} of ${profile.n} rows repeat an earlier row exactly: repeats are zero distances, on which nearest-neighbour${profile.dim === 1 ? ' and spacing' : ''} estimators break down (they fail once a point has as many copies as the neighbour order), and a Gaussian mixture cannot imitate them. Remove pasted duplicates if that is what they are; if the values were rounded when recorded, ${jitter}.`,
+      `${profile.repeats.repeatedRows} of ${profile.n} rows repeat an earlier row exactly: repeats are zero distances, on which nearest-neighbour${profile.dim === 1 ? ' and spacing' : ''} estimators break down (they fail once a point has as many copies as the neighbour order), and a Gaussian mixture cannot imitate them. Remove pasted duplicates if that is what they are; if the values were rounded when recorded, ${coarse ? 'see the next note' : jitter}.`,
     );
   }
   for (const c of profile.columns) {
@@ -152,10 +157,11 @@ export async function adviseFile(sample: Sample, options: FileAdviceOptions = {}
     budgetSeconds: Math.max(0, budget - elapsed()) * (level === null ? 0.9 : BENCHMARK_SHARE),
     seed,
     workers: options.workers,
-    minReplicates: options.minReplicates ?? 20,
+    minReplicates: options.replicates ?? options.minReplicates ?? 20,
+    maxReplicates: options.replicates,
   });
   const summaries = summarise(bench.run);
-  const recommendation = recommend(bench.run, summaries);
+  const recommendation = recommend(bench.run, summaries, 'look-alike');
   lap('benchmark');
 
   stage('estimating your data');
@@ -194,13 +200,13 @@ export async function adviseFile(sample: Sample, options: FileAdviceOptions = {}
       stage('bootstrapping the interval');
       // As many resamples as the rest of the budget allows, measured as they run: 100 at least, 2000 at most.
       const remainingMs = Math.max(0, (budget - elapsed()) * 1000);
-      const minResamples = options.minResamples ?? 100;
+      const minResamples = options.resamples ?? options.minResamples ?? 100;
       interval = smoothedBootstrap(sample, parseEstimatorSpec(usable.estimator), value, {
-        resamples: Math.max(minResamples, MAX_RESAMPLES),
+        resamples: options.resamples ?? Math.max(minResamples, MAX_RESAMPLES),
         level,
         seed: `${seed}`,
         minResamples,
-        deadlineMs: remainingMs,
+        deadlineMs: options.resamples === undefined ? remainingMs : undefined,
       });
       lap('bootstrap');
       if (interval.failures > 0.05 * (interval.resamples + interval.failures)) {

@@ -181,7 +181,11 @@ function describeSubset(subset: string[], all: ScenarioInfo[]): string {
   return `${subset.length} of ${all.length}`;
 }
 
-export function recommend(run: RunFile, summaries: EstimatorSummary[]): Recommendation {
+/**
+ * `subject` names what the scores were measured on, for the sentence: 'look-alike' (file advice, one
+ * scenario) or 'matching scenarios' (setting advice).
+ */
+export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 'look-alike' | 'matching scenarios' = 'matching scenarios'): Recommendation {
   if (!summaries.length) throw new Error('recommend: no estimator ran');
   const eligible = summaries.filter((s) => Number.isFinite(s.meanRmse.value) && s.failureRate <= MAX_RECOMMENDED_FAILURE_RATE);
   const recommended = eligible[0] ?? summaries[0];
@@ -192,7 +196,7 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[]): Recommen
     recommended.failures === 0 ? 'never fails' : `fails on ${recommended.failures} of ${recommended.replicates} draws (${(100 * recommended.failureRate).toFixed(1)}%)`;
   const lead =
     count === 1
-      ? `${recommended.label} has the lowest RMSE on the look-alike (${formatNats(recommended.meanRmse.value)} ± ${formatNats(recommended.meanRmse.se)} nats) and ${failurePart}`
+      ? `${recommended.label} has the lowest RMSE on the ${subject === 'look-alike' ? 'look-alike' : 'matching scenario'} (${formatNats(recommended.meanRmse.value)} ± ${formatNats(recommended.meanRmse.se)} nats) and ${failurePart}`
       : `${recommended.label} has the lowest mean RMSE (${formatNats(recommended.meanRmse.value)} ± ${formatNats(recommended.meanRmse.se)} nats), is best on ${recommended.wins} of ${plural(count, 'matching scenario')} and ${failurePart}`;
   let tail = '';
   let runnerUpTiedOn: string[] = [];

@@ -127,7 +127,7 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
   );
   lines.push(`  its entropy: ${num(lookalike.truth.value, 6)} nats (${lookalike.truth.source})`);
   lines.push('');
-  lines.push(`Expected error at n = ${advice.n}: ${advice.benchmark.replicates} look-alike draws, ${seconds(advice.benchmark.seconds)} on ${advice.benchmark.workers} worker${advice.benchmark.workers === 1 ? '' : 's'}`);
+  lines.push(`Expected error at n = ${advice.n}, from ${advice.benchmark.replicates} look-alike samples of that size (${seconds(advice.benchmark.seconds)} on ${advice.benchmark.workers} worker${advice.benchmark.workers === 1 ? '' : 's'}):`);
   const user = new Map(advice.userEstimates.map((u) => [u.estimator, u]));
   lines.push(
     renderTable(
@@ -156,7 +156,9 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
       ),
     );
     lines.push(`Bias-corrected = estimate − the look-alike bias (${pm(e.bias.value, e.bias.se)} nats); it is only as good as the look-alike's likeness.`);
-    if (e.interval) lines.push(`Interval: ${e.interval.method}; ${e.interval.resamples} resamples, shift removed ${num(e.interval.shift, 2)} nats.`);
+    if (e.interval) {
+      lines.push(`Interval: ${e.interval.method}; ${e.interval.resamples} resamples, whose median estimate sat ${num(e.interval.shift, 2)} nats from the estimate (the shift removed).`);
+    }
   }
   for (const w of advice.warnings) lines.push(`Note: ${w}`);
   const stages = Object.entries(advice.timings).map(([k, v]) => `${k} ${v.toFixed(1)}`).join(', ');

@@ -30,6 +30,8 @@ export interface SettingAdviceOptions {
   workers?: number;
   maxScenarios?: number;
   minReplicates?: number;
+  /** Exactly this many replicates per scenario (the budget no longer sizes them). */
+  replicates?: number;
   onStage?: (stage: string) => void;
 }
 
@@ -181,7 +183,8 @@ export async function adviseSetting(options: SettingAdviceOptions): Promise<Sett
     seed: options.seed,
     perturbations: ADVICE_PERTURBATIONS,
     workers: options.workers,
-    minReplicates: options.minReplicates ?? 10,
+    minReplicates: options.replicates ?? options.minReplicates ?? 10,
+    maxReplicates: options.replicates,
   });
   const summaries = summarise(bench.run);
   const recommendation = recommend(bench.run, summaries);

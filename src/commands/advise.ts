@@ -20,6 +20,8 @@ interface AdviseOptions {
   budget?: string;
   seed?: string;
   workers?: string;
+  replicates?: string;
+  resamples?: string;
   json?: boolean;
 }
 
@@ -61,11 +63,14 @@ export function registerAdviseCommand(program: Command, print: (text: string) =>
     .option('--budget <seconds>', `time budget in seconds (default ${DEFAULT_BUDGET_SECONDS})`)
     .option('--seed <s>', 'base seed of the benchmark draws, the EM starts and the bootstrap')
     .option('--workers <w>', 'worker threads for the benchmark (default: the number of cores)')
+    .option('--replicates <r>', 'exactly this many benchmark replicates instead of as many as the budget allows (reproducible advice)')
+    .option('--resamples <b>', 'with a file: exactly this many bootstrap resamples instead of as many as the budget allows')
     .option('--json', 'print the advice as JSON (values in nats)')
     .action(async (file: string | undefined, options: AdviseOptions) => {
       const budgetSeconds = parseBudget(options.budget);
       const seed = options.seed === undefined ? undefined : parseIntegerOption('--seed', options.seed, 0);
       const workers = options.workers === undefined ? undefined : parseIntegerOption('--workers', options.workers, 1, 256);
+      const replicates = options.replicates === undefined ? undefined : parseIntegerOption('--replicates', options.replicates, 2, 100_000);
       const stage = !options.json && process.stderr.isTTY ? (text: string) => printErr(`hhat advise: ${text}…`) : undefined;
       if (file !== undefined) {
         const setting = (['n', 'dim', 'tails', 'support'] as const).filter((k) => options[k] !== undefined);
@@ -78,15 +83,16 @@ export function registerAdviseCommand(program: Command, print: (text: string) =>
           level: parseLevel(options.interval),
           seed,
           workers,
+          replicates,
+          resamples: options.resamples === undefined ? undefined : parseIntegerOption('--resamples', options.resamples, 20, 1_000_000),
           columnNames: loaded.columnNames,
           onStage: stage,
         });
         print(options.json ? toJson(fileAdviceJson(advice, file)) : renderFileAdvice(advice, file));
         return;
       }
-      if (options.columns !== undefined || options.interval !== undefined) {
-        throw new UsageError(`--${options.columns !== undefined ? 'columns' : 'interval'} applies to a data file: hhat advise FILE ${options.columns !== undefined ? '--columns LIST' : '--interval 0.95'}`);
-      }
+      const fileOnly = (['columns', 'interval', 'resamples'] as const).find((k) => options[k] !== undefined);
+      if (fileOnly) throw new UsageError(`--${fileOnly} applies to a data file: hhat advise FILE --${fileOnly} ${fileOnly === 'columns' ? 'LIST' : fileOnly === 'interval' ? '0.95' : 'B'}`);
       if (options.n === undefined || options.dim === undefined) {
         throw new UsageError('give a data file (hhat advise data.csv) or describe the setting with --n and --dim (hhat advise --n 500 --dim 2 [--tails heavy] [--support bounded])');
       }
@@ -98,6 +104,7 @@ export function registerAdviseCommand(program: Command, print: (text: string) =>
         budgetSeconds,
         seed,
         workers,
+        replicates,
         onStage: stage,
       });
       print(options.json ? toJson(settingAdviceJson(advice)) : renderSettingAdvice(advice));

@@ -62,6 +62,8 @@ Spec syntax:
   product[SPEC;SPEC;...]            independent coordinates, e.g. "product[normal;exponential:rate=2]"
   transformed[MAP;SPEC]             monotone map of a 1-D scenario, e.g. "transformed[sinh;normal]"
   gaussian-covariance[ROW;ROW;...]  any covariance, e.g. "gaussian-covariance[1,0.5;0.5,2]"
+  gaussian-mixture-mv[W:MEAN:COV;...] a d-dimensional Gaussian mixture (what hhat advise fits), e.g.
+                                    "gaussian-mixture-mv[0.4:0,0:1,0.5,0.5,1;0.6:3,3:1,0,0,2]"
 Quote specs with brackets or semicolons in the shell.`,
     )
     .action((specs: string[], options: { json?: boolean; bits?: boolean; dim?: string; tails?: string; support?: string; family?: string }) => {
