@@ -126,7 +126,8 @@ export function readPlanFile(path: string): PlanInput {
   try {
     text = readFileSync(path, 'utf8');
   } catch (error) {
-    throw new UsageError(`cannot read plan file ${path}: ${(error as NodeJS.ErrnoException).code ?? String(error)}`);
+    const code = (error as NodeJS.ErrnoException).code;
+    throw new UsageError(`cannot read plan file ${path}: ${code === 'ENOENT' ? 'no such file' : (code ?? String(error))}`);
   }
   let value: unknown;
   try {

@@ -334,7 +334,9 @@ export function readRunFile(path: string): RunFile {
   try {
     text = readFileSync(path, 'utf8');
   } catch (error) {
-    throw new UsageError(`cannot read run file ${path}: ${(error as NodeJS.ErrnoException).code ?? String(error)}`);
+    const code = (error as NodeJS.ErrnoException).code;
+    const why = code === 'ENOENT' ? 'no such file' : code === 'EISDIR' ? 'it is a directory' : code === 'EACCES' ? 'permission denied' : (code ?? String(error));
+    throw new UsageError(`cannot read run file ${path}: ${why}`);
   }
   let value: { kind?: unknown; schemaVersion?: unknown };
   try {
