@@ -11,7 +11,7 @@
 import type { Estimator, Sample, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { KnnIndex } from '../src/knn.js';
-import { type AxisBins, BIN_RULES, histogramGrid } from './histogram.js';
+import { type AxisBins, BIN_RULES, axisIndices, histogramGrid } from './histogram.js';
 import { sortAscending } from './spacing.js';
 
 /** The P and Q samples after checking both; returns their sizes. */
@@ -90,25 +90,6 @@ export function knnDivergence(p: Float64Array, n: number, q: Float64Array, m: nu
 // ---------------------------------------------------------------------------------------------------------
 // Histogram
 
-/**
- * Bin index along one coordinate for every point: floor((x − origin)/width) checked against the edges
- * origin + i·width, points on an edge going right and the maximum into the last bin (numpy.histogram's
- * layout, the same as the histogram entropy estimator).
- */
-function axisIndices(values: Float64Array, count: number, dim: number, axis: number, bins: AxisBins, out: Float64Array): void {
-  const { origin, binWidth, binCount, lastEdge } = bins;
-  const perUnit = binCount / (lastEdge - origin);
-  const last = binCount - 1;
-  for (let i = 0, p = axis; i < count; i++, p += dim) {
-    const x = values[p];
-    let index = Math.floor((x - origin) * perUnit);
-    if (index > last) index = last;
-    if (index < 0) index = 0;
-    if (x < origin + index * binWidth) index--;
-    else if (index < last && x >= origin + (index + 1) * binWidth) index++;
-    out[i] = index;
-  }
-}
 
 const MAX_EXACT_INTEGER = 2 ** 53;
 

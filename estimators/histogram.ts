@@ -232,13 +232,12 @@ function checkFinite(id: string, sample: Sample): void {
  * corrected against the actual edges origin + i·width, so a point on an edge goes to the bin on its right
  * and the maximum to the last bin, as numpy.histogram does.
  */
-function axisIndices(sample: Sample, k: number, axis: AxisBins, out: Float64Array): void {
-  const { n, dim, data } = sample;
-  const { origin, binWidth, binCount, lastEdge } = axis;
+export function axisIndices(values: Float64Array, count: number, dim: number, axis: number, bins: AxisBins, out: Float64Array): void {
+  const { origin, binWidth, binCount, lastEdge } = bins;
   const perUnit = binCount / (lastEdge - origin);
   const last = binCount - 1;
-  for (let i = 0, p = k; i < n; i++, p += dim) {
-    const x = data[p];
+  for (let i = 0, p = axis; i < count; i++, p += dim) {
+    const x = values[p];
     let index = Math.floor((x - origin) * perUnit);
     if (index > last) index = last;
     if (index < 0) index = 0;
@@ -307,7 +306,7 @@ export function histogramCells(sample: Sample, grid: readonly AxisBins[]): { sum
   for (let k = 0; k < dim; k++) {
     const bins = grid[k];
     logBinVolume += Math.log(bins.binWidth);
-    axisIndices(sample, k, bins, axis);
+    axisIndices(sample.data, sample.n, sample.dim, k, bins, axis);
     let axisSpace = bins.binCount;
     if (keySpace * axisSpace >= MAX_EXACT_INTEGER) {
       keySpace = rankKeys(keys);
