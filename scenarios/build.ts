@@ -1,7 +1,8 @@
 /**
- * Shared construction of scenarios: canonical ids, lazily computed Var(log f), and the univariate builder.
+ * Shared construction of scenarios: canonical ids, lazily computed Var(log f), the univariate builder, and the
+ * common part of the mutual-information and divergence builders.
  */
-import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily, Support, Tails, UnivariateDensity } from '../src/contracts.js';
+import type { ParamSpec, Quantity, Rng, Sample, Scenario, ScenarioFamily, Support, Tails, UnivariateDensity } from '../src/contracts.js';
 import normalRandom from '@stdlib/random-base-normal';
 import { integrate } from '../src/math/quadrature.js';
 import { lowerTimes, type CholeskyFactor } from '../src/math/linalg.js';
@@ -46,14 +47,7 @@ export function formatError(error: number): string {
   return error.toExponential(1);
 }
 
-export interface UnivariateDefinition {
-  family: string;
-  specs: readonly ParamSpec[];
-  params: Record<string, number>;
-  truth: number;
-  truthSource: string;
-  support: Support;
-  tails: Tails;
+export interface UnivariateDefinition extends Omit<ScenarioFacts, 'marginals' | 'moments'> {
   density: UnivariateDensity;
   /** Returns a function that draws one value from the stream. */
   sampler(rng: Rng): () => number;
@@ -99,6 +93,38 @@ export function univariateScenario(def: UnivariateDefinition): Scenario {
   if (def.mean !== undefined && def.variance !== undefined && Number.isFinite(def.mean) && Number.isFinite(def.variance)) {
     scenario.moments = { mean: [def.mean], covariance: [[def.variance]] };
   }
+  return scenario;
+}
+
+/** What every scenario definition states besides its sampler; `specs` order the params in the canonical id. */
+export interface ScenarioFacts {
+  family: string;
+  specs: readonly ParamSpec[];
+  params: Record<string, number>;
+  truth: number;
+  truthSource: string;
+  support: Support;
+  tails: Tails;
+  marginals?: UnivariateDensity[];
+  moments?: { mean: number[]; covariance: number[][] };
+}
+
+/** A scenario from its facts and sampler; the optional facts are set only when given. */
+export function scenarioFromFacts(facts: ScenarioFacts, quantity: Quantity, dim: number, sample: (rng: Rng, n: number) => Sample): Scenario {
+  const scenario: Scenario = {
+    id: scenarioId(facts.family, facts.params, facts.specs),
+    family: facts.family,
+    quantity,
+    dim,
+    params: { ...facts.params },
+    truth: facts.truth,
+    truthSource: facts.truthSource,
+    support: facts.support,
+    tails: facts.tails,
+    sample,
+  };
+  if (facts.marginals) scenario.marginals = facts.marginals;
+  if (facts.moments) scenario.moments = facts.moments;
   return scenario;
 }
 

@@ -23,13 +23,13 @@
 import exponentialRandom from '@stdlib/random-base-exponential';
 import normalRandom from '@stdlib/random-base-normal';
 import chisquareRandom from '@stdlib/random-base-chisquare';
-import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily, Support, Tails, UnivariateDensity } from '../src/contracts.js';
+import type { ParamSpec, Rng, Scenario, ScenarioFamily, UnivariateDensity } from '../src/contracts.js';
 import { UsageError } from '../src/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
 import { digamma, logGamma } from '../src/math/special.js';
 import { formatNumber } from '../src/spec.js';
-import { gaussianRows, scenarioId } from './build.js';
-import { univariateFamilies } from './univariate.js';
+import { gaussianRows, scenarioFromFacts, type ScenarioFacts } from './build.js';
+import { univariateDensity } from './univariate.js';
 
 const CT = 'Cover & Thomas, Elements of Information Theory, 2nd ed. (2006)';
 
@@ -52,52 +52,23 @@ const groupSpecs: ParamSpec[] = [
 ];
 
 /** What a mutual-information scenario needs beyond its sampler. */
-export interface MutualInformationDefinition {
-  family: string;
-  specs: readonly ParamSpec[];
-  params: Record<string, number>;
+export interface MutualInformationDefinition extends ScenarioFacts {
   xDim: number;
   yDim: number;
-  truth: number;
-  truthSource: string;
-  support: Support;
-  tails: Tails;
   /** Writes n rows of xDim + yDim values, row-major, consuming only `rng`. */
   draw(rng: Rng, n: number): Float64Array;
   informationDensityVariance?: { value: number; source: string };
-  marginals?: UnivariateDensity[];
-  moments?: { mean: number[]; covariance: number[][] };
 }
 
 export function mutualInformationScenario(def: MutualInformationDefinition): Scenario {
   const dim = def.xDim + def.yDim;
-  const scenario: Scenario = {
-    id: scenarioId(def.family, def.params, def.specs),
-    family: def.family,
-    quantity: 'mutual-information',
-    dim,
-    params: { ...def.params },
-    truth: def.truth,
-    truthSource: def.truthSource,
-    support: def.support,
-    tails: def.tails,
-    sample(rng: Rng, n: number): Sample {
-      return { n, dim, data: def.draw(rng, n), xDim: def.xDim };
-    },
-  };
+  const scenario = scenarioFromFacts(def, 'mutual-information', dim, (rng, n) => ({ n, dim, data: def.draw(rng, n), xDim: def.xDim }));
+  scenario.xDim = def.xDim;
   if (def.informationDensityVariance) {
     scenario.logDensityVariance = def.informationDensityVariance.value;
     scenario.logDensityVarianceSource = `Var of the information density log f(x,y)/(f(x)f(y)) (the bound for MI): ${def.informationDensityVariance.source}`;
   }
-  if (def.marginals) scenario.marginals = def.marginals;
-  if (def.moments) scenario.moments = def.moments;
   return scenario;
-}
-
-/** The univariate density of a family at given params (marginals). */
-function univariateDensity(familyId: string, params: Record<string, number>): UnivariateDensity {
-  const family = univariateFamilies.find((f) => f.id === familyId)!;
-  return family.create(params).univariate!;
 }
 
 /**

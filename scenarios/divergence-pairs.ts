@@ -12,58 +12,31 @@ import exponentialRandom from '@stdlib/random-base-exponential';
 import gammaRandom from '@stdlib/random-base-gamma';
 import laplaceRandom from '@stdlib/random-base-laplace';
 import normalRandom from '@stdlib/random-base-normal';
-import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily, Support, Tails, UnivariateDensity } from '../src/contracts.js';
+import type { ParamSpec, Rng, Scenario, ScenarioFamily } from '../src/contracts.js';
 import { UsageError } from '../src/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
 import { digamma, logGamma } from '../src/math/special.js';
 import { formatNumber } from '../src/spec.js';
-import { scenarioId } from './build.js';
-import { gaussianRows } from './build.js';
-import { univariateFamilies } from './univariate.js';
+import { gaussianRows, scenarioFromFacts, type ScenarioFacts } from './build.js';
+import { equicorrelated } from './multivariate.js';
+import { univariateDensity } from './univariate.js';
 
 const PENNY = 'Penny, KL-divergences of Normal, Gamma, Dirichlet and Wishart densities, tech. report, Wellcome Department of Cognitive Neurology, University College London (2001)';
 
-export interface DivergenceDefinition {
-  family: string;
-  specs: readonly ParamSpec[];
-  params: Record<string, number>;
+export interface DivergenceDefinition extends ScenarioFacts {
   dim: number;
-  truth: number;
-  truthSource: string;
-  support: Support;
-  tails: Tails;
   /** n rows from P, row-major; then `drawQ` is called on the same stream. */
   drawP(rng: Rng, n: number): Float64Array;
   drawQ(rng: Rng, n: number): Float64Array;
-  marginals?: UnivariateDensity[];
-  moments?: { mean: number[]; covariance: number[][] };
 }
 
 export function divergenceScenario(def: DivergenceDefinition): Scenario {
   const { dim } = def;
-  const scenario: Scenario = {
-    id: scenarioId(def.family, def.params, def.specs),
-    family: def.family,
-    quantity: 'divergence',
-    dim,
-    params: { ...def.params },
-    truth: def.truth,
-    truthSource: def.truthSource,
-    support: def.support,
-    tails: def.tails,
-    sample(rng: Rng, n: number): Sample {
-      const p = def.drawP(rng, n);
-      const q = def.drawQ(rng, n);
-      return { n, dim, data: p, q: { n, dim, data: q } };
-    },
-  };
-  if (def.marginals) scenario.marginals = def.marginals;
-  if (def.moments) scenario.moments = def.moments;
-  return scenario;
-}
-
-function univariateDensity(familyId: string, params: Record<string, number>): UnivariateDensity {
-  return univariateFamilies.find((f) => f.id === familyId)!.create(params).univariate!;
+  return scenarioFromFacts(def, 'divergence', dim, (rng, n) => {
+    const p = def.drawP(rng, n);
+    const q = def.drawQ(rng, n);
+    return { n, dim, data: p, q: { n, dim, data: q } };
+  });
 }
 
 /** n draws of a univariate sampler. */
@@ -111,10 +84,7 @@ const gaussianSource = `½[tr(Σq⁻¹Σp) + (μq−μp)ᵀΣq⁻¹(μq−μp) �
 /** P = N(0, R_ρ) equicorrelated, Q = N(shift·1, σ² I): the two laws and D(P‖Q). */
 function gaussianPair(owner: string, p: Record<string, number>) {
   const d = p.dim;
-  if (d > 1 && !(p.rho > -1 / (d - 1))) {
-    throw new UsageError(`${owner}: rho=${formatNumber(p.rho)} is not allowed for dim=${d}; rho must be > ${formatNumber(-1 / (d - 1))} and < 1`);
-  }
-  const covarianceP = Array.from({ length: d }, (_, i) => Array.from({ length: d }, (_, j) => (i === j ? 1 : p.rho)));
+  const covarianceP = equicorrelated(owner, d, p.rho, new Array<number>(d).fill(1));
   const cholP = cholesky(covarianceP);
   if (!cholP) throw new UsageError(`${owner}: the covariance of P is not positive definite for rho=${formatNumber(p.rho)}, dim=${d}`);
   const diagonalQ = new Float64Array(d * d);

@@ -6,7 +6,7 @@
 import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily, Tails, UnivariateDensity } from '../src/contracts.js';
 import { UsageError } from '../src/errors.js';
 import { normalCdf } from '../src/math/special.js';
-import { formatNumber, formatSpec, parseNumber } from '../src/spec.js';
+import { formatNumber, formatSpec, parseNumber, validateParams } from '../src/spec.js';
 import normalRandom from '@stdlib/random-base-normal';
 import { entropyByQuadrature, expectation, formatError, logDensityVarianceByQuadrature } from './build.js';
 
@@ -283,17 +283,7 @@ export function transformedScenario(mapId: string, mapValues: Record<string, str
   if (!base.univariate || base.quantity !== 'entropy') {
     throw new UsageError(`transformed[${mapId};${base.id}]: the base must be a one-dimensional entropy scenario`);
   }
-  const mapParams: Record<string, number> = {};
-  const known = new Set(map.params.map((s) => s.name));
-  for (const key of Object.keys(mapValues)) {
-    if (!known.has(key)) throw new UsageError(`transformed[...]: map ${mapId} has no parameter "${key}"; allowed: ${map.params.map((s) => s.name).join(', ') || 'none'}`);
-  }
-  for (const spec of map.params) {
-    const text = mapValues[spec.name];
-    const value = text === undefined ? spec.default : parseNumber(text);
-    if (value === undefined || !Number.isFinite(value)) throw new UsageError(`transformed[...]: ${spec.name}=${text} is not a number`);
-    mapParams[spec.name] = value;
-  }
+  const mapParams = validateParams(`transformed[...]: map ${mapId}`, map.params, mapValues);
   const built = map.build(mapParams, base);
   // A smooth map of a bounded base stays bounded, so its tails stay light whatever the map does to a line.
   const g = base.support === 'bounded' ? { ...built, support: 'bounded' as const, tails: 'light' as const } : built;

@@ -9,13 +9,7 @@ import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { formatNumber } from '../src/spec.js';
 import { gaussianRows, scenarioId } from './build.js';
-import { studentLogDensityVariance, univariateFamilies } from './univariate.js';
-
-/** The univariate density of a family at given params (marginals of multivariate laws). */
-function univariateDensity(familyId: string, params: Record<string, number>) {
-  const family = univariateFamilies.find((f) => f.id === familyId)!;
-  return family.create(params).univariate!;
-}
+import { studentLogDensityVariance, univariateDensity } from './univariate.js';
 
 const LOG_2PI_E = Math.log(2 * Math.PI * Math.E);
 const CT = 'Cover & Thomas, Elements of Information Theory, 2nd ed. (2006)';
@@ -30,7 +24,7 @@ function spreadScales(dim: number, sigma: number, spread: number): number[] {
 }
 
 /** Equicorrelated covariance D R D; R is positive definite iff −1/(d−1) < ρ < 1. */
-function equicorrelated(owner: string, dim: number, rho: number, scales: number[]): number[][] {
+export function equicorrelated(owner: string, dim: number, rho: number, scales: number[]): number[][] {
   if (dim > 1 && !(rho > -1 / (dim - 1))) {
     throw new UsageError(`${owner}: rho=${formatNumber(rho)} is not allowed for dim=${dim}; rho must be > ${formatNumber(-1 / (dim - 1))} and < 1`);
   }

@@ -28,7 +28,7 @@ import tRandom from '@stdlib/random-base-t';
 import triangularRandom from '@stdlib/random-base-triangular';
 import uniformRandom from '@stdlib/random-base-uniform';
 import weibullRandom from '@stdlib/random-base-weibull';
-import type { ParamSpec, ScenarioFamily } from '../src/contracts.js';
+import type { ParamSpec, ScenarioFamily, UnivariateDensity } from '../src/contracts.js';
 import { UsageError } from '../src/errors.js';
 import {
   EULER_GAMMA,
@@ -770,3 +770,8 @@ export const univariateFamilies: ScenarioFamily[] = [
   inverseGamma,
   kumaraswamy,
 ];
+
+/** The density of a univariate family at given params, e.g. the marginals of multivariate, MI and divergence laws. */
+export function univariateDensity(familyId: string, params: Record<string, number>): UnivariateDensity {
+  return univariateFamilies.find((f) => f.id === familyId)!.create(params).univariate!;
+}

@@ -97,6 +97,8 @@ export interface Scenario {
   quantity: Quantity;
   dim: number;
   params: Record<string, number>;
+  /** For mutual information: the first `xDim` columns are X, the rest are Y (as on each drawn sample). */
+  xDim?: number;
   /** Draws n independent points. Consumes `rng` only. */
   sample(rng: Rng, n: number): Sample;
   /** The true value in nats. */

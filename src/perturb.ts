@@ -316,7 +316,7 @@ export function parsePerturbation(text: string): Perturbation {
       const invariant = inner.kind === 'rescale' || inner.kind === 'monotone' || inner.kind === 'affine';
       if (scenario.quantity === 'mutual-information') {
         if (inner.kind === 'affine') return { skip: `${spec}: an affine map mixes X and Y, and MI is invariant only under maps of each variable` };
-        const xDim = scenario.sample(rngFromSeed('hhat-xdim-probe'), 2).xDim;
+        const { xDim } = scenario;
         if (xDim === undefined) return { skip: `${spec}: the scenario does not say which columns are X` };
         const chosen: Part = part ?? (inner.kind === 'monotone' ? 'x' : 'all');
         const columns = Array.from({ length: scenario.dim }, (_, j) => j).filter((j) => chosen === 'all' || (chosen === 'x' ? j < xDim : j >= xDim));
@@ -348,6 +348,7 @@ function subScenario(scenario: Scenario, columns: number[]): Scenario {
     ...scenario,
     quantity: 'entropy',
     dim: columns.length,
+    xDim: undefined,
     marginals: scenario.marginals && columns.map((j) => scenario.marginals![j]),
     moments: scenario.moments && {
       mean: columns.map((j) => scenario.moments!.mean[j]),

@@ -390,6 +390,7 @@ describe('mutual-information scenarios', () => {
     const s = parseScenario('mi-student-t:dimX=2,dimY=2,nu=5,rho=0.3');
     const sample = s.sample(rngFromSeed('xdim'), 10);
     expect(sample).toMatchObject({ n: 10, dim: 4, xDim: 2 });
+    expect(s.xDim).toBe(2);
     expect(sample.data.length).toBe(40);
   });
 

@@ -74,6 +74,15 @@ describe('exact shifts of the true value', () => {
     expect(() => parsePerturbation('rescale:c=0')).toThrow(/c=0 is not allowed; c must be a nonzero number/);
     expect(() => parsePerturbation('blur')).toThrow(/unknown perturbation "blur"/);
   });
+
+  it('mutual information: part=y touches only the columns after the scenario\'s xDim, and the truth stays', () => {
+    const p = prepared('rescale:c=10,part=y', 'mi-gaussian:dimX=2,dimY=1');
+    expect(p.shift).toBe(0);
+    const data = new Float64Array([1, 2, 3, 4, 5, 6]);
+    p.apply({ n: 2, dim: 3, data, xDim: 2 }, 0, 0);
+    expect(Array.from(data)).toEqual([1, 2, 30, 4, 5, 60]);
+    expect(parsePerturbation('affine').prepare(parseScenario('mi-gaussian'))).toEqual({ skip: expect.stringMatching(/mixes X and Y/) });
+  });
 });
 
 describe('unit drift under rescale', () => {

@@ -400,6 +400,9 @@ describe('parameters', () => {
     expect(() => parseScenario('nope')).toThrow(UsageError);
     expect(() => parseScenario('gaussian-mixture:w1=0.5,mu1=0,w2=0.2,mu2=1')).toThrow(/weights sum to 0.7/);
     expect(() => parseScenario('transformed[exp;cauchy]')).toThrow(/heavy-tailed base/);
+    expect(() => parseScenario('transformed[affine:c=1;normal]')).toThrow(/^transformed\[\.\.\.\]: map affine: unknown parameter "c"; allowed: a, b$/);
+    expect(() => parseScenario('transformed[affine:a=x;normal]')).toThrow(/a=x is not a number/);
+    expect(() => parseScenario('kl-gaussian:dim=3,rho=-0.6')).toThrow(/^kl-gaussian: rho=-0.6 is not allowed for dim=3; rho must be > -0.5/);
     expect(() => parseScenario('gaussian-covariance[1,2;2,1]')).toThrow(/not positive definite/);
   });
 
