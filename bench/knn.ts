@@ -34,7 +34,8 @@ function points(shape: Shape, n: number, dim: number, seed: string): Float64Arra
   return Float64Array.from({ length: n * dim }, () => draw());
 }
 
-function bestOf3<T>(run: () => T): { seconds: number; result: T } {
+/** Best wall time of three runs, and the last run's result. */
+export function bestOf3<T>(run: () => T): { seconds: number; result: T } {
   let best = Infinity;
   let result!: T;
   for (let r = 0; r < 3; r++) {

@@ -10,20 +10,10 @@ import { getEstimator } from '../estimators/index.js';
 import { KnnIndex } from '../src/knn.js';
 import { replicateRng } from '../src/rng.js';
 import { parseScenario } from '../scenarios/index.js';
+import { bestOf3 } from './knn.js';
 
 const N = 100_000;
 const K = 3;
-
-function bestOf3<T>(run: () => T): { seconds: number; result: T } {
-  let best = Infinity;
-  let result!: T;
-  for (let r = 0; r < 3; r++) {
-    const start = process.hrtime.bigint();
-    result = run();
-    best = Math.min(best, Number(process.hrtime.bigint() - start) / 1e9);
-  }
-  return { seconds: best, result };
-}
 
 const ms = (seconds: number): string => `${(seconds * 1000).toFixed(0)} ms`;
 

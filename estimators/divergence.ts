@@ -11,6 +11,7 @@
 import type { Estimator, Sample, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { KnnIndex } from '../src/knn.js';
+import { solveLower } from '../src/math/linalg.js';
 import { type AxisBins, BIN_RULES, axisIndices, histogramGrid } from './histogram.js';
 import { sortAscending } from './spacing.js';
 
@@ -89,7 +90,6 @@ export function knnDivergence(p: Float64Array, n: number, q: Float64Array, m: nu
 
 // ---------------------------------------------------------------------------------------------------------
 // Histogram
-
 
 const MAX_EXACT_INTEGER = 2 ** 53;
 
@@ -239,14 +239,6 @@ function choleskyOf(id: string, which: string, covariance: Float64Array, dim: nu
   return lower;
 }
 
-function forwardSolve(lower: Float64Array, dim: number, b: Float64Array): void {
-  for (let i = 0; i < dim; i++) {
-    let sum = b[i];
-    for (let j = 0; j < i; j++) sum -= lower[i * dim + j] * b[j];
-    b[i] = sum / lower[i * dim + i];
-  }
-}
-
 /**
  * ½[tr(Σ̂q⁻¹Σ̂p) + (μ̂q − μ̂p)ᵀ Σ̂q⁻¹ (μ̂q − μ̂p) − d + log(det Σ̂q / det Σ̂p)] with sample means and covariances
  * (divisor count − 1). Both samples are first centred and divided by the pooled per-coordinate SD: the
@@ -278,12 +270,12 @@ function gaussianDivergenceEstimate(sample: Sample): number {
   const column = new Float64Array(dim);
   for (let c = 0; c < dim; c++) {
     for (let r = 0; r < dim; r++) column[r] = lowerP[r * dim + c];
-    forwardSolve(lowerQ, dim, column);
+    solveLower(lowerQ, dim, column);
     for (let r = 0; r < dim; r++) trace += column[r] * column[r];
   }
   const shift = new Float64Array(dim);
   for (let a = 0; a < dim; a++) shift[a] = fitQ.mean[a] - fitP.mean[a];
-  forwardSolve(lowerQ, dim, shift);
+  solveLower(lowerQ, dim, shift);
   let quadratic = 0;
   for (let a = 0; a < dim; a++) quadratic += shift[a] * shift[a];
   let logDetRatio = 0;

@@ -180,7 +180,7 @@ describe('EM with BIC', () => {
     expect(best.bic).toBeCloseTo(-2 * logLikelihood + 11 * Math.log(n), 4);
   });
 
-  it('eigenvalues by Jacobi rotations match the closed form for 2 × 2 matrices', () => {
+  it('symmetric eigenvalues match the closed form for 2 × 2 matrices', () => {
     const [a, b, c] = [2, 0.7, 0.5];
     const mid = (a + c) / 2;
     const radius = Math.sqrt(((a - c) / 2) ** 2 + b * b);
@@ -266,7 +266,8 @@ describe('the smoothed bootstrap', () => {
   });
 
   it('gives an interval as wide as the known sampling spread of the Gaussian estimator', () => {
-    // For ½ log(2πe σ̂²) on N(0, 1) data, SD ≈ √(1/(2n)) (delta method on the sample variance; from memory),
+    // For ½ log(2πe σ̂²) on N(0, 1) data, SD ≈ √(1/(2n)): (n − 1)σ̂² ~ χ²_{n−1} and Var(log χ²_ν) = ψ′(ν/2) ≈ 2/ν
+    // (Bartlett & Kendall 1946, J. R. Statist. Soc. Suppl. 8(2), 128–138, the log-variance transformation),
     // so a 95% interval is about 2 · 1.96 · √(1/(2n)) wide.
     const n = 1000;
     const sample: Sample = { n, dim: 1, data: normals('advise test: bootstrap', n) };

@@ -15,6 +15,7 @@
  * The caller passes standardised data (each coordinate centred and divided by its SD), so the ridge and the
  * k-means++ distances mean the same thing in every coordinate.
  */
+import { EigenvalueDecomposition, Matrix } from 'ml-matrix';
 import type { Rng } from '../contracts.js';
 import { rngFromSeed } from '../rng.js';
 
@@ -316,35 +317,8 @@ export function selectMixture(data: Float64Array, n: number, dim: number, option
   return { best: best!, fits, limit };
 }
 
-/** Eigenvalues of a small symmetric matrix (row-major d × d) by cyclic Jacobi rotations, ascending. */
+/** Eigenvalues of a small symmetric matrix (row-major d × d), ascending (ml-matrix's symmetric decomposition). */
 export function symmetricEigenvalues(matrix: ArrayLike<number>, dim: number): number[] {
-  const a = Float64Array.from({ length: dim * dim }, (_, i) => matrix[i]);
-  for (let sweep = 0; sweep < 100; sweep++) {
-    let off = 0;
-    for (let p = 0; p < dim; p++) for (let q = p + 1; q < dim; q++) off += a[p * dim + q] ** 2;
-    if (off < 1e-30) break;
-    for (let p = 0; p < dim; p++) {
-      for (let q = p + 1; q < dim; q++) {
-        const apq = a[p * dim + q];
-        if (apq === 0) continue;
-        const theta = (a[q * dim + q] - a[p * dim + p]) / (2 * apq);
-        const t = Math.sign(theta || 1) / (Math.abs(theta) + Math.sqrt(theta * theta + 1));
-        const c = 1 / Math.sqrt(t * t + 1);
-        const s = t * c;
-        for (let k = 0; k < dim; k++) {
-          const akp = a[k * dim + p];
-          const akq = a[k * dim + q];
-          a[k * dim + p] = c * akp - s * akq;
-          a[k * dim + q] = s * akp + c * akq;
-        }
-        for (let k = 0; k < dim; k++) {
-          const apk = a[p * dim + k];
-          const aqk = a[q * dim + k];
-          a[p * dim + k] = c * apk - s * aqk;
-          a[q * dim + k] = s * apk + c * aqk;
-        }
-      }
-    }
-  }
-  return Array.from({ length: dim }, (_, i) => a[i * dim + i]).sort((x, y) => x - y);
+  const rows = Array.from({ length: dim }, (_, r) => Array.from({ length: dim }, (_, c) => matrix[r * dim + c]));
+  return new EigenvalueDecomposition(new Matrix(rows), { assumeSymmetric: true }).realEigenvalues.sort((x, y) => x - y);
 }

@@ -112,25 +112,24 @@ export function profileSample(sample: Sample, columnNames: readonly string[] = [
     mean /= n;
     let sumSquares = 0;
     for (let i = 0; i < n; i++) sumSquares += (column[i] - mean) ** 2;
+    const sd = n > 1 ? Math.sqrt(sumSquares / (n - 1)) : 0;
     const edges = edgeEvidence(column);
+    const columnRepeats = repeats.columns[j];
+    const tiedFraction = columnRepeats.tiedValues / n;
+    const step = tiedFraction > DISCRETE_TIED_FRACTION && Number.isFinite(columnRepeats.smallestGap) ? columnRepeats.smallestGap : null;
     columns.push({
       name: columnNames[j] ?? `column ${j + 1}`,
       mean,
-      sd: n > 1 ? Math.sqrt(sumSquares / (n - 1)) : 0,
+      sd,
       skewness: skewness(column),
       tail: hillTail(column),
       edges,
       support: supportFromEdges(edges),
-      repeats: repeats.columns[j],
-      tiedFraction: repeats.columns[j].tiedValues / n,
-      step: null,
-      relativeStep: null,
+      repeats: columnRepeats,
+      tiedFraction,
+      step,
+      relativeStep: step !== null && sd > 0 ? step / sd : null,
     });
-    const last = columns[columns.length - 1];
-    if (last.tiedFraction > DISCRETE_TIED_FRACTION && Number.isFinite(last.repeats.smallestGap)) {
-      last.step = last.repeats.smallestGap;
-      last.relativeStep = last.sd > 0 ? last.step / last.sd : null;
-    }
   }
   const correlation = correlationMatrix(sample);
   let maxAbsCorrelation = 0;

@@ -20,10 +20,6 @@ const LOWER_E = 101;
 const UPPER_E = 69;
 
 /**
- * The number written in bytes[start, end) (surrounding spaces and tabs allowed), or NaN when the text is not
- * a plain decimal number: `[+-]digits[.digits][(e|E)[+-]digits]`, also `.5` and `5.`. Overflow gives ±Infinity.
- */
-/**
  * Whether appending digit d keeps the mantissa an exact integer double (at most 2^53). Fifteen digits
  * always fit; a sixteenth fits when the result stays at or below 2^53. `mantissa * 10` is exact because it
  * is an even integer below 2^54.
@@ -59,6 +55,10 @@ export class DecimalReader {
 /** Stays well under V8's largest string (2^29 - 24 characters on 64-bit builds). */
 const maxWholeText = 2 ** 28;
 
+/**
+ * The number written in bytes[start, end) (surrounding spaces and tabs allowed), or NaN when the text is not
+ * a plain decimal number: `[+-]digits[.digits][(e|E)[+-]digits]`, also `.5` and `5.`. Overflow gives ±Infinity.
+ */
 export function parseDecimalBytes(bytes: Buffer, start: number, end: number, reader?: DecimalReader): number {
   while (start < end && (bytes[start] === SPACE || bytes[start] === TAB)) start++;
   while (end > start && (bytes[end - 1] === SPACE || bytes[end - 1] === TAB)) end--;
