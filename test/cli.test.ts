@@ -116,3 +116,16 @@ describe('the installed command', () => {
     expect(runFile.cells[0].estimates).toHaveLength(5);
   });
 });
+
+describe('the package entry', () => {
+  it('the built library loads from package.json "main" and runs a plan end to end', async () => {
+    // The published entry point (dist/, built by npm's prepare step): what `import ... from 'hhat'` loads.
+    const pkg = JSON.parse(readFileSync(join(__dirname, '..', 'package.json'), 'utf8')) as { main: string };
+    const lib = await import(join(__dirname, '..', pkg.main));
+    const { plan } = lib.resolvePlan({ scenarios: ['uniform'], estimators: ['vasicek'], sampleSizes: [100], replicates: 3, seed: 1 });
+    const run = lib.assembleRun(await lib.runPlan(plan, { workers: 1 }), null);
+    expect(run.cells).toHaveLength(1);
+    expect(run.cells[0].estimates.every((v: number | null) => typeof v === 'number')).toBe(true);
+    expect(lib.parseScenario('uniform').truth).toBe(0);
+  });
+});
