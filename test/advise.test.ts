@@ -267,7 +267,7 @@ describe('the smoothed bootstrap', () => {
 
   it('gives an interval as wide as the known sampling spread of the Gaussian estimator', () => {
     // For ½ log(2πe σ̂²) on N(0, 1) data, SD ≈ √(1/(2n)): (n − 1)σ̂² ~ χ²_{n−1} and Var(log χ²_ν) = ψ′(ν/2) ≈ 2/ν
-    // (Bartlett & Kendall 1946, J. R. Statist. Soc. Suppl. 8(2), 128–138, the log-variance transformation),
+    // (Bartlett & Kendall 1946, J. R. Statist. Soc. Suppl. 8(2), 128–138, the log-variance transformation; reference from memory),
     // so a 95% interval is about 2 · 1.96 · √(1/(2n)) wide.
     const n = 1000;
     const sample: Sample = { n, dim: 1, data: normals('advise test: bootstrap', n) };
