@@ -45,6 +45,8 @@
  */
 import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
+import { quantileOfSorted, squaredDeviations } from '../src/math/moments.js';
+import { checkFiniteValues, column } from '../src/sample.js';
 import { sortAscending } from './spacing.js';
 
 export const BIN_RULES = ['sturges', 'scott', 'freedman-diaconis', 'doane', 'sqrt'] as const;
@@ -101,7 +103,7 @@ export function histogramGrid(sample: Sample, settings: Settings): AxisBins[] {
   const { n, dim } = sample;
   const id = 'histogram';
   if (n < 1) throw new EstimateError('too-few-points', `${id}: the sample is empty`);
-  checkFinite(id, sample);
+  checkFiniteValues(id, sample);
   const width = settings.width ?? 'none';
   const bins = settings.bins ?? 'freedman-diaconis';
   const scale = typeof settings.scale === 'number' ? settings.scale : 1;
@@ -112,15 +114,14 @@ export function histogramGrid(sample: Sample, settings: Settings): AxisBins[] {
   if (!isRule && !(typeof bins === 'number' && Number.isInteger(bins) && bins >= 1)) {
     throw new EstimateError('invalid-input', `${id}: bins=${String(bins)} is not allowed; bins must be one of ${BIN_RULES.join(', ')}, or an integer ≥ 1`);
   }
-  const column = new Float64Array(n);
   const grid: AxisBins[] = [];
   for (let k = 0; k < dim; k++) {
-    for (let i = 0, p = k; i < n; i++, p += dim) column[i] = sample.data[p];
+    const values = column(sample, k);
     let minimum = Infinity;
     let maximum = -Infinity;
     for (let i = 0; i < n; i++) {
-      if (column[i] < minimum) minimum = column[i];
-      if (column[i] > maximum) maximum = column[i];
+      if (values[i] < minimum) minimum = values[i];
+      if (values[i] > maximum) maximum = values[i];
     }
     const range = maximum - minimum;
     if (typeof width === 'number') {
@@ -141,7 +142,7 @@ export function histogramGrid(sample: Sample, settings: Settings): AxisBins[] {
       throw new EstimateError('numeric', `${id}: the range of coordinate ${k + 1} overflows the double range; rescale the data`);
     }
     // A scaled rule keeps its scale-free count ratio, so rescaling the data still shifts by exactly d·log c.
-    const binCount = isRule ? Math.max(1, Math.round(ruleBinCount(bins as BinRule, column, range, dim, k) * scale)) : (bins as number);
+    const binCount = isRule ? Math.max(1, Math.round(ruleBinCount(bins as BinRule, values, range, dim, k) * scale)) : (bins as number);
     if (!(binCount < MAX_EXACT_INTEGER)) {
       throw new EstimateError('numeric', `${id}: coordinate ${k + 1} would need 2^53 or more bins; use a bin count or width=W`);
     }
@@ -178,7 +179,7 @@ export function ruleBinCount(rule: BinRule, values: Float64Array, range: number,
     }
     case 'freedman-diaconis': {
       const sorted = sortAscending(values);
-      const iqr = quantile(sorted, 0.75) - quantile(sorted, 0.25);
+      const iqr = quantileOfSorted(sorted, 0.75) - quantileOfSorted(sorted, 0.25);
       if (!(iqr > 0)) {
         throw new EstimateError('ties', `${id}: coordinate ${coordinate + 1} has interquartile range 0 (at least half of its ${n} values are equal); use bins=scott, a bin count, or width=W`);
       }
@@ -187,18 +188,11 @@ export function ruleBinCount(rule: BinRule, values: Float64Array, range: number,
   }
 }
 
-/** Population SD (ddof 0), two-pass; with `withSkewness`, also the skewness mean(((x − mean)/SD)^3). */
+/** Population SD (ddof 0); with `withSkewness`, also the skewness mean(((x − mean)/SD)^3). */
 function moments(values: Float64Array, withSkewness = false): { sd: number; skewness: number } {
   const n = values.length;
-  let sum = 0;
-  for (let i = 0; i < n; i++) sum += values[i];
-  const mean = sum / n;
-  let squares = 0;
-  for (let i = 0; i < n; i++) {
-    const deviation = values[i] - mean;
-    squares += deviation * deviation;
-  }
-  const sd = Math.sqrt(squares / n);
+  const { mean, sumOfSquares } = squaredDeviations(values);
+  const sd = Math.sqrt(sumOfSquares / n);
   let cubes = 0;
   if (withSkewness) {
     for (let i = 0; i < n; i++) {
@@ -207,24 +201,6 @@ function moments(values: Float64Array, withSkewness = false): { sd: number; skew
     }
   }
   return { sd, skewness: cubes / n };
-}
-
-/** Linear interpolation between order statistics at position p·(n − 1) (numpy's default, Hyndman–Fan type 7). */
-function quantile(sorted: Float64Array, p: number): number {
-  const position = p * (sorted.length - 1);
-  const below = Math.floor(position);
-  const fraction = position - below;
-  if (fraction === 0) return sorted[below];
-  return sorted[below] + (sorted[below + 1] - sorted[below]) * fraction;
-}
-
-function checkFinite(id: string, sample: Sample): void {
-  const { data, n, dim } = sample;
-  for (let p = 0; p < n * dim; p++) {
-    if (!Number.isFinite(data[p])) {
-      throw new EstimateError('invalid-input', `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`);
-    }
-  }
 }
 
 /**

@@ -13,6 +13,7 @@ import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.
 import { EstimateError } from '../src/errors.js';
 import { KnnIndex, type KnnNorm } from '../src/knn.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
+import { checkFiniteValues } from '../src/sample.js';
 
 const NORMS = ['euclidean', 'max'] as const;
 
@@ -237,11 +238,7 @@ export function weightedKozachenkoLeonenkoEntropy(
 function checkedPointCount(id: string, data: Float64Array, dim: number, k: number): number {
   if (!Number.isInteger(k) || k < 1) throw new EstimateError('invalid-input', `${id}: k=${k} is not allowed; k must be an integer ≥ 1`);
   const n = Math.floor(data.length / dim);
-  for (let i = 0; i < n * dim; i++) {
-    if (!Number.isFinite(data[i])) {
-      throw new EstimateError('invalid-input', `${id}: value ${data[i]} in row ${Math.floor(i / dim) + 1}, column ${(i % dim) + 1}; only finite numbers are allowed`);
-    }
-  }
+  checkFiniteValues(id, { n, dim, data });
   if (n <= k) throw new EstimateError('too-few-points', `${id} needs n > k; got n = ${n} with k = ${k}`);
   return n;
 }

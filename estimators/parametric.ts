@@ -22,6 +22,7 @@
 import type { Estimator, Sample, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { digamma } from '../src/math/special.js';
+import { checkFiniteValues } from '../src/sample.js';
 
 /**
  * Sum of squares and cross-products about the mean, of the data divided column-wise by `columnScale`
@@ -104,11 +105,7 @@ function gaussianEntropy(sample: Sample, settings: Settings): number {
   if (n <= dim) {
     throw new EstimateError('too-few-points', `${id}: a ${dim}-dimensional covariance needs n ≥ ${dim + 1} points, but n = ${n}`);
   }
-  for (let p = 0; p < n * dim; p++) {
-    if (!Number.isFinite(data[p])) {
-      throw new EstimateError('invalid-input', `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`);
-    }
-  }
+  checkFiniteValues(id, sample);
   for (let j = 0; j < dim; j++) {
     let equal = true;
     for (let p = j + dim; p < n * dim && equal; p += dim) equal = data[p] === data[j];

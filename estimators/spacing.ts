@@ -15,6 +15,7 @@
  */
 import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
+import { checkFiniteValues } from '../src/sample.js';
 
 /** Below this size the engine's typed-array sort is as fast as the radix sort and allocates nothing. */
 const RADIX_SORT_MIN_LENGTH = 1 << 15;
@@ -116,13 +117,8 @@ function windowFromSettings(id: string, n: number, settings: Settings): number {
 /** The sample's values, checked finite, sorted ascending, in a new array. */
 function sortedFiniteValues(id: string, sample: Sample): Float64Array {
   if (sample.dim !== 1) throw new EstimateError('dimension', `${id} is one-dimensional; the sample has d = ${sample.dim}`);
-  const values = Float64Array.from(sample.data.subarray(0, sample.n));
-  for (let i = 0; i < values.length; i++) {
-    if (!Number.isFinite(values[i])) {
-      throw new EstimateError('invalid-input', `${id}: value ${values[i]} at row ${i + 1}; only finite numbers are allowed`);
-    }
-  }
-  return sortAscending(values);
+  checkFiniteValues(id, sample);
+  return sortAscending(Float64Array.from(sample.data.subarray(0, sample.n)));
 }
 
 /**

@@ -1,4 +1,5 @@
 import type { Sample } from './contracts.js';
+import { EstimateError } from './errors.js';
 
 /** Wraps row-major values as a sample; checks the length. */
 export function makeSample(data: Float64Array, dim: number): Sample {
@@ -28,4 +29,14 @@ export function selectColumns(sample: Sample, columns: readonly number[]): Sampl
     for (let j = 0; j < dim; j++) data[i * dim + j] = sample.data[i * sample.dim + columns[j]];
   }
   return { n: sample.n, dim, data };
+}
+
+/** Throws EstimateError('invalid-input'), naming estimator `id` and the row and column, at the first non-finite value. */
+export function checkFiniteValues(id: string, sample: Sample): void {
+  const { data, n, dim } = sample;
+  for (let p = 0; p < n * dim; p++) {
+    if (!Number.isFinite(data[p])) {
+      throw new EstimateError('invalid-input', `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`);
+    }
+  }
 }

@@ -290,7 +290,9 @@ describe('bad input', () => {
   it('non-finite values are invalid input', () => {
     const sample = gaussianSample('nan', 20, 2);
     sample.data[7] = NaN;
-    expect(errorOf(() => klEstimator.estimate(sample, { k: 3, norm: 'euclidean' })).code).toBe('invalid-input');
+    const error = errorOf(() => klEstimator.estimate(sample, { k: 3, norm: 'euclidean' }));
+    expect(error.code).toBe('invalid-input');
+    expect(error.message).toBe('kozachenko-leonenko: value NaN at row 4, column 2; only finite numbers are allowed');
   });
 
   it('each estimator names its paper', () => {

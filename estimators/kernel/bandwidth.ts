@@ -8,31 +8,9 @@
  * uses linearly interpolated quantiles (Hyndman & Fan 1996, type 7).
  */
 import { EstimateError } from '../../src/errors.js';
+import { quantileOfSorted, squaredDeviations } from '../../src/math/moments.js';
 
 export type BandwidthRule = 'silverman' | 'scott';
-
-/** Sample standard deviation (divisor n − 1), two passes for accuracy. */
-export function sampleStandardDeviation(values: Float64Array): number {
-  const n = values.length;
-  let sum = 0;
-  for (let i = 0; i < n; i++) sum += values[i];
-  const mean = sum / n;
-  let squares = 0;
-  for (let i = 0; i < n; i++) {
-    const deviation = values[i] - mean;
-    squares += deviation * deviation;
-  }
-  return Math.sqrt(squares / (n - 1));
-}
-
-/** Quantile p of sorted values by linear interpolation between order statistics (type 7). */
-export function quantileOfSorted(sorted: Float64Array, p: number): number {
-  const position = (sorted.length - 1) * p;
-  const below = Math.floor(position);
-  const above = Math.min(below + 1, sorted.length - 1);
-  const fraction = position - below;
-  return sorted[below] + fraction * (sorted[above] - sorted[below]);
-}
 
 /**
  * A one-dimensional rule's bandwidth in data units, from sorted values. When the IQR is 0 but σ̂ is not
@@ -40,7 +18,7 @@ export function quantileOfSorted(sorted: Float64Array, p: number): number {
  */
 export function univariateRuleBandwidth(rule: BandwidthRule, sorted: Float64Array): number {
   const n = sorted.length;
-  const sd = sampleStandardDeviation(sorted);
+  const sd = Math.sqrt(squaredDeviations(sorted).sumOfSquares / (n - 1));
   if (!(sd > 0)) {
     throw new EstimateError('ties', `kernel: all ${n} values are equal, so the ${rule} bandwidth is 0; the kernel estimate needs spread data`);
   }

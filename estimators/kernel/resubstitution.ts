@@ -9,6 +9,7 @@
  */
 import type { Sample } from '../../src/contracts.js';
 import { EstimateError } from '../../src/errors.js';
+import { checkFiniteValues, sortedValues } from '../../src/sample.js';
 import { type BandwidthRule, univariateRuleBandwidth, whitenedRuleBandwidth } from './bandwidth.js';
 import { minimizeBounded } from './minimize.js';
 import { multivariateLogKernelSums } from './multivariate.js';
@@ -41,17 +42,13 @@ export function minimumSampleSize(dim: number): number {
 
 /** Checks the sample and sorts (d = 1) or whitens (d > 1) it. */
 export function prepareKernelData(sample: Sample): KernelData {
-  const { n, dim, data } = sample;
+  const { n, dim } = sample;
   const needed = minimumSampleSize(dim);
   if (n < needed) {
     throw new EstimateError('too-few-points', `kernel: needs at least ${needed} points in ${dim} dimension${dim === 1 ? '' : 's'}, got ${n}`);
   }
-  for (let p = 0; p < n * dim; p++) {
-    if (!Number.isFinite(data[p])) {
-      throw new EstimateError('invalid-input', `kernel: value ${data[p]} at point ${Math.floor(p / dim) + 1}; all values must be finite`);
-    }
-  }
-  if (dim === 1) return { n, dim, points: Float64Array.from(data).sort(), halfLogDet: 0 };
+  checkFiniteValues('kernel', sample);
+  if (dim === 1) return { n, dim, points: sortedValues(sample), halfLogDet: 0 };
   const { z, halfLogDet } = whiten(sample);
   return { n, dim, points: z, halfLogDet };
 }
