@@ -23,7 +23,7 @@
 import type { Estimator, Sample, SettingSpec, Settings, SettingValue } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { parseNumber } from '../src/spec.js';
-import { type BandwidthSetting, chooseBandwidth, kernelEntropy, prepareKernelData } from './kernel/resubstitution.js';
+import { type BandwidthSetting, chooseBandwidth, type KernelData, kernelEntropy, prepareKernelData } from './kernel/resubstitution.js';
 
 export const BANDWIDTH_RULES = ['silverman', 'scott', 'likelihood-cv'] as const;
 
@@ -48,7 +48,7 @@ const kernelSettings: readonly SettingSpec[] = [
 ];
 
 /** The bandwidth used: a numeric setting as given, a rule's (or cross-validation's) value times `scale`. */
-function usedBandwidth(data: ReturnType<typeof prepareKernelData>, settings: Settings): number {
+function usedBandwidth(data: KernelData, settings: Settings): number {
   const setting = bandwidthSetting(settings.bandwidth);
   const chosen = chooseBandwidth(data, setting);
   return typeof setting === 'number' ? chosen : chosen * (typeof settings.scale === 'number' ? settings.scale : 1);

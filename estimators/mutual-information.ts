@@ -365,7 +365,7 @@ function fromEntropies(sample: Sample, settings: Settings): number {
   }
   const base: Settings = Object.fromEntries(inner.settings.map((s) => [s.name, s.default]));
   if (inner.settings.some((s) => s.name === 'k')) base.k = kOf(id, settings, KSG_DEFAULT_K);
-  const entropyOf = (part: Sample): number => inner.estimate(part, inner.resolve ? inner.resolve(part, base) : base);
+  const entropyOf = (part: Sample): number => inner.estimate(part, base);
   const hx = entropyOf({ n, dim: xDim, data: columns(data, n, dim, 0, xDim) });
   const hy = entropyOf({ n, dim: yDim, data: columns(data, n, dim, xDim, dim) });
   const hxy = entropyOf({ n, dim, data });

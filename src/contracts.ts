@@ -57,9 +57,12 @@ export interface Estimator {
   dims: readonly [number, number];
   /** The paper or book that defines the method. */
   reference: string;
-  /** Replace sample-dependent defaults (keywords such as 'auto') with the values actually used. */
+  /** Replace sample-dependent defaults (keywords such as 'auto') with the values actually used, for reports. */
   resolve?(sample: Sample, settings: Settings): Settings;
-  /** The estimate in nats. Throws an EstimateError on input the method cannot handle. */
+  /**
+   * The estimate in nats, from the settings as configured (keywords included) or as `resolve` returned them:
+   * both must give the same value. Throws an EstimateError on input the method cannot handle.
+   */
   estimate(sample: Sample, settings: Settings): number;
 }
 

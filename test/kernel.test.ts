@@ -540,7 +540,7 @@ describe('bad input and numeric trouble', () => {
     expectEstimateError(() => kernelEstimator.estimate({ n: 100, dim: 2, data: constant }, { bandwidth: 'scott' }), 'invalid-input', /column 2 is constant/);
     expectEstimateError(() => kernelEstimator.estimate(sample1d(Float64Array.of(1, 2)), {}), 'too-few-points', /at least 3/);
     expectEstimateError(() => kernelEstimator.estimate({ n: 4, dim: 3, data: normalDraws('few', 12) }, {}), 'too-few-points', /at least 5/);
-    expectEstimateError(() => kernelEstimator.estimate(sample1d(Float64Array.of(1, NaN, 3, 4)), {}), 'invalid-input', /finite/);
+    expectEstimateError(() => kernelEstimator.estimate(sample1d(Float64Array.of(1, NaN, 3, 4)), {}), 'invalid-input', /value NaN at row 2, column 1; only finite/);
     expectEstimateError(() => kernelEstimator.estimate(sample1d(new Float64Array(50).fill(2)), {}), 'ties', /equal/);
   });
 
@@ -573,12 +573,23 @@ describe('registry and resolve', () => {
   it('kernel:bandwidth=scott runs through the registry and resolves to the number it used', () => {
     const sample = sample1d(normalDraws('registry', 500));
     const configured = parseEstimatorSpec('kernel:bandwidth=scott');
-    const { value, settings } = runEstimator(configured, sample);
+    const { value, settings } = runEstimator(configured, sample, { report: true });
     expect(typeof settings.bandwidth).toBe('number');
     expect(kernelEstimator.estimate(sample, settings)).toBe(value);
     // Scott's rule from its formula, with σ̂ computed here directly.
     const m = mean(sample.data);
     const sd = Math.sqrt(sample.data.reduce((s, v) => s + (v - m) ** 2, 0) / (sample.n - 1));
     expect(Math.abs((settings.bandwidth as number) / (1.06 * sd * Math.pow(500, -0.2)) - 1)).toBeLessThan(1e-12);
+  });
+  it('gives the same value from the settings as configured and as resolved (the contract runEstimator relies on)', () => {
+    for (const dim of [1, 3]) {
+      const sample: Sample = { n: 300, dim, data: normalDraws(`contract-${dim}`, 300 * dim) };
+      for (const bandwidth of ['silverman', 'scott', 'likelihood-cv']) {
+        const configured = { bandwidth, scale: 1.41 };
+        const resolved = kernelEstimator.resolve!(sample, configured);
+        expect(typeof resolved.bandwidth).toBe('number');
+        expect(kernelEstimator.estimate(sample, resolved), `${bandwidth}, d = ${dim}`).toBe(kernelEstimator.estimate(sample, configured));
+      }
+    }
   });
 });

@@ -6,6 +6,7 @@ import { describeReference, meanLogReference, parseReference } from '../referenc
 import { unitLabel } from '../units.js';
 import { describeRegistration, resolveModulePath, useEstimatorModules } from '../modules.js';
 import type { Quantity, Sample, Settings } from '../contracts.js';
+import { collect } from '../plan.js';
 import { listEstimators, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
 
 /** Side by side: the columns of `a` then those of `b`, row by row (same n). */
@@ -38,12 +39,10 @@ interface EstimateRecord {
   error?: string;
 }
 
-const collect = (value: string, previous: string[] = []) => [...previous, value];
-
 export function estimateAll(sample: Sample, configured: ConfiguredEstimator[], base: Base): EstimateRecord[] {
   return configured.map((c) => {
     try {
-      const { value, settings } = runEstimator(c, sample);
+      const { value, settings } = runEstimator(c, sample, { report: true });
       if (!Number.isFinite(value)) throw new EstimateError('numeric', `${c.estimator.id} gave ${value} on this sample`);
       return { estimator: c.estimator.id, settings, value: toBase(value, base) };
     } catch (error) {
@@ -58,7 +57,7 @@ export function estimateAll(sample: Sample, configured: ConfiguredEstimator[], b
 export function registerEstimateCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
   program
     .command('estimate')
-    .description('estimate the differential entropy of a data file (CSV/TSV/TXT, JSON, NumPy .npy) with one or more estimators')
+    .description('estimate the differential entropy of a data file (CSV/TSV/TXT, JSON, NumPy .npy) with one or more estimators; the mutual information with --x-columns and --y-columns, a divergence with --against')
     .argument('<file>', 'rows are points, columns are coordinates')
     .option('--columns <list>', 'columns to use: positions from 1 ("1,3", "2-4") or header names ("x,y")')
     .option('--estimator <spec>', 'ID[:key=value,...] (repeatable; default: a set suited to the dimension)', collect)
