@@ -26,9 +26,12 @@ export function buildProgram(io: CliIo): Command {
   program
     .name('hhat')
     .description(
-      'Benchmark estimators of differential entropy on seeded samples whose true value is known.\nValues are in nats unless --bits is given.',
+      'Benchmark estimators of differential entropy, mutual information and divergence on seeded samples whose true value is known.\nValues are in nats unless --bits is given.',
     )
-    .version(hhatVersion(), '-V, --version')
+    .version(hhatVersion(), '-V, --version', 'print the hhat version')
+    // Set before the commands are added, so every command inherits the wording.
+    .helpOption('-h, --help', 'show this help')
+    .helpCommand('help [command]', 'show the help of a command')
     .option('--debug', 'print stack traces on errors')
     .showHelpAfterError('(run with --help for usage)')
     .configureOutput({ writeOut: io.out, writeErr: io.err })

@@ -9,23 +9,15 @@ import { tuningGrid } from './tuning.js';
 import type { WorkContext } from './work.js';
 
 export function buildContext(plan: Plan): WorkContext {
-  const resolved = resolvePlan({
-    name: plan.name,
-    quantity: plan.quantity,
-    scenarios: plan.scenarios,
-    estimators: plan.estimators,
-    sampleSizes: plan.sampleSizes,
-    replicates: plan.replicates,
-    seed: plan.seed,
-    robustness: plan.robustness,
-    modules: plan.modules,
-  });
+  // A Plan is a valid PlanInput: resolving it again yields the same plan, with its scenarios and estimators.
+  const resolved = resolvePlan(plan);
   const { scenarios, estimators } = resolved;
   const robustness = resolved.plan.robustness;
-  const mainSpecs = new Set(estimators.map((e) => e.spec));
+  // Tuning points that are not a plan estimator, each spec once (the first grid that reaches it keeps it).
+  const seen = new Set(estimators.map((e) => e.spec));
   const tuning =
     robustness?.tuning === true
-      ? estimators.flatMap((e, i) => tuningGrid(e, i, robustness.sampleSize)).filter((t, i, list) => !mainSpecs.has(t.configured.spec) && list.findIndex((u) => u.configured.spec === t.configured.spec) === i)
+      ? estimators.flatMap((e, i) => tuningGrid(e, i, robustness.sampleSize)).filter((t) => !seen.has(t.configured.spec) && Boolean(seen.add(t.configured.spec)))
       : [];
   const perturbations = (robustness?.perturbations ?? []).map(parsePerturbation);
   return {

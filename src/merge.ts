@@ -61,7 +61,8 @@ export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
     cell.timing.meanMs = cell.timing.totalMs / plan.replicates;
     return cell;
   });
-  // Present cells in the order an unsharded run writes them: scenario, estimator, n, perturbation as planned.
+  // Present cells in the order an unsharded run writes them: scenario, n, role, perturbation as planned; the sort
+  // is stable, so ties keep the order in which the shards first list them.
   const rankOf = (list: readonly (string | number | null)[], value: string | number | null) => list.indexOf(value);
   const variants: (string | null)[] = [null, ...(plan.robustness?.perturbations ?? [])];
   const roles = ['main', 'tuning', 'perturbed'];
@@ -70,8 +71,7 @@ export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
       rankOf(plan.scenarios, a.scenario) - rankOf(plan.scenarios, b.scenario) ||
       rankOf(plan.sampleSizes, a.n) - rankOf(plan.sampleSizes, b.n) ||
       rankOf(roles, a.role) - rankOf(roles, b.role) ||
-      rankOf(variants, a.perturbation) - rankOf(variants, b.perturbation) ||
-      order.indexOf(key(a)) - order.indexOf(key(b)),
+      rankOf(variants, a.perturbation) - rankOf(variants, b.perturbation),
   );
   return finishRun({
     plan,

@@ -17,7 +17,7 @@ import { UsageError } from './errors.js';
 import { describeSetting } from './spec.js';
 import { listEstimators, replaceEstimator } from '../estimators/index.js';
 
-const QUANTITIES = ['entropy', 'mutual-information', 'divergence'] as const;
+export const QUANTITIES = ['entropy', 'mutual-information', 'divergence'] as const;
 const SETTING_KINDS = ['integer', 'number', 'choice', 'choice-or-integer', 'choice-or-number'] as const;
 const JAVASCRIPT = new Set(['.js', '.mjs', '.cjs']);
 const TYPESCRIPT = new Set(['.ts', '.mts']);

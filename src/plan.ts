@@ -121,14 +121,19 @@ export function checkPlanShape(value: unknown, source: string): PlanInput {
   return value as unknown as PlanInput;
 }
 
-export function readPlanFile(path: string): PlanInput {
-  let text: string;
+/** Reads a user-named text file; failing that, a usage error "cannot read <what> <path>: <why>". */
+export function readTextFile(path: string, what: string): string {
   try {
-    text = readFileSync(path, 'utf8');
+    return readFileSync(path, 'utf8');
   } catch (error) {
     const code = (error as NodeJS.ErrnoException).code;
-    throw new UsageError(`cannot read plan file ${path}: ${code === 'ENOENT' ? 'no such file' : (code ?? String(error))}`);
+    const why = code === 'ENOENT' ? 'no such file' : code === 'EISDIR' ? 'it is a directory' : code === 'EACCES' || code === 'EPERM' ? 'permission denied' : (code ?? String(error));
+    throw new UsageError(`cannot read ${what} ${path}: ${why}`);
   }
+}
+
+export function readPlanFile(path: string): PlanInput {
+  const text = readTextFile(path, 'plan file');
   let value: unknown;
   try {
     value = JSON.parse(text);
@@ -243,7 +248,13 @@ export function parseSampleSizes(text: string): number[] {
 export function parseIntegerOption(flag: string, text: string, min: number, max = Number.MAX_SAFE_INTEGER): number {
   const value = Number(text);
   if (text.trim() === '' || !Number.isInteger(value) || value < min || value > max) {
-    throw new UsageError(`${flag} ${text} is not allowed; it must be an integer from ${min} to ${max}`);
+    const range = max === Number.MAX_SAFE_INTEGER ? `≥ ${min}` : `from ${min} to ${max}`;
+    throw new UsageError(`${flag} ${text} is not allowed; it must be an integer ${range}`);
   }
   return value;
+}
+
+/** For a repeatable flag (--scenario, --estimator, ...): each use adds its value to the list. */
+export function collect(value: string, previous: string[] = []): string[] {
+  return [...previous, value];
 }

@@ -39,7 +39,7 @@ export function progressReporter(stream: NodeJS.WriteStream | { isTTY?: boolean;
     },
     done() {
       if (tty && lastLength) stream.write('\n');
-      else if (!tty && last && last.elapsedMs - lastPrinted > 0 && lastPrinted !== -Infinity) stream.write(`progress: ${describe(last)}\n`);
+      else if (!tty && last && last.elapsedMs > lastPrinted) stream.write(`progress: ${describe(last)}\n`);
     },
   };
 }

@@ -3,12 +3,12 @@
  * comparisons can be paired), scores, rates, rankings and provenance. Written to a temporary name and
  * renamed, so a crash never leaves half a file.
  */
-import { mkdirSync, readFileSync, renameSync, writeFileSync } from 'node:fs';
+import { mkdirSync, renameSync, writeFileSync } from 'node:fs';
 import { dirname } from 'node:path';
 import { Ajv2020 } from 'ajv/dist/2020.js';
 import type { Scenario } from './contracts.js';
 import { UsageError } from './errors.js';
-import { drawsFingerprint, type Plan } from './plan.js';
+import { drawsFingerprint, readTextFile, type Plan } from './plan.js';
 import { environment, type Environment } from './provenance.js';
 import type { RunOutcome, Shard } from './runner.js';
 import { fitRate, pairedSquaredErrorDifference, scoreCell, type CellScores, type Estimate, type RateFit } from './score.js';
@@ -282,6 +282,11 @@ export function groupName(info: ScenarioInfo): string {
   return `d=${info.dim}/${info.tails}`;
 }
 
+/** The groups (dimension / tail class) that hold an overall rank, in the order of the run's scenarios. */
+export function rankedGroups(run: Pick<RunFile, 'scenarios' | 'overall'>): string[] {
+  return [...new Set(run.scenarios.map(groupName))].filter((g) => run.overall.some((o) => o.groups[g]));
+}
+
 function overall(rankings: Ranking[], scenarios: Map<string, ScenarioInfo>): OverallRank[] {
   const table = new Map<string, Map<string, { sum: number; count: number }>>();
   for (const ranking of rankings) {
@@ -330,14 +335,7 @@ export function runFileErrors(value: unknown): string | null {
 
 /** Reads and checks a run file: wrong kind, another schema version, or a broken file is a clear usage error. */
 export function readRunFile(path: string): RunFile {
-  let text: string;
-  try {
-    text = readFileSync(path, 'utf8');
-  } catch (error) {
-    const code = (error as NodeJS.ErrnoException).code;
-    const why = code === 'ENOENT' ? 'no such file' : code === 'EISDIR' ? 'it is a directory' : code === 'EACCES' ? 'permission denied' : (code ?? String(error));
-    throw new UsageError(`cannot read run file ${path}: ${why}`);
-  }
+  const text = readTextFile(path, 'run file');
   let value: { kind?: unknown; schemaVersion?: unknown };
   try {
     value = JSON.parse(text) as typeof value;

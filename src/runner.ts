@@ -136,7 +136,8 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   if (options.checkpointPath) {
     const exists = existsSync(options.checkpointPath);
     if (options.resume && exists) {
-      for (const [k, v] of loadCheckpoint(options.checkpointPath, fingerprint, shard)) if (owned.includes(k)) results.set(k, v);
+      const ownedSet = new Set(owned);
+      for (const [k, v] of loadCheckpoint(options.checkpointPath, fingerprint, shard)) if (ownedSet.has(k)) results.set(k, v);
     } else if (!options.resume && exists) {
       throw new UsageError(`${options.checkpointPath} exists from an interrupted run; add --resume to continue it, or delete it to start over`);
     }

@@ -2,10 +2,10 @@
  * Terminal tables of a run: per scenario, RMSE ± Monte-Carlo SE and rank at each n; the overall average
  * ranks by dimension and tail class; optionally every score of every cell.
  */
-import { formatValue, renderTable, toBase, type Base } from './format.js';
+import { formatValue, renderTable, shorten, toBase, type Base } from './format.js';
 import { getEstimator } from '../estimators/index.js';
 import { parseSpec } from './spec.js';
-import { groupName, type Cell, type RunFile } from './results.js';
+import { rankedGroups, type Cell, type RunFile } from './results.js';
 
 /** The estimator's id plus only the settings that differ from their defaults. */
 export function estimatorLabel(spec: string): string {
@@ -41,10 +41,8 @@ export function scenarioTables(run: RunFile, base: Base): string {
       ranking.entries.forEach((e, i) => rankOf.set(`${e.estimator}|${ranking.n}`, `${e.rank}${e.tiedWithAbove || tiedBelow.has(i) ? '=' : ''}`));
     }
     const largest = sizes[sizes.length - 1];
-    const finalRank = (spec: string) => {
-      const ranking = run.rankings.find((r) => r.scenario === info.id && r.perturbation === null && r.n === largest);
-      return ranking?.entries.find((e) => e.estimator === spec)?.rank ?? Number.MAX_SAFE_INTEGER;
-    };
+    const finalRanking = run.rankings.find((r) => r.scenario === info.id && r.perturbation === null && r.n === largest);
+    const finalRank = (spec: string) => finalRanking?.entries.find((e) => e.estimator === spec)?.rank ?? Number.MAX_SAFE_INTEGER;
     estimators.sort((a, b) => finalRank(a) - finalRank(b));
     const rows = estimators.map((spec) => {
       const row: string[] = [estimatorLabel(spec)];
@@ -78,7 +76,7 @@ export function scenarioTables(run: RunFile, base: Base): string {
 
 export function overallTable(run: RunFile): string {
   if (!run.overall.length) return '';
-  const groups = [...new Set(run.scenarios.map(groupName))].filter((g) => run.overall.some((o) => o.groups[g]));
+  const groups = rankedGroups(run);
   const rows = run.overall.map((o) => {
     const ranks = groups.map((g) => o.groups[g]);
     const all = ranks.filter(Boolean) as { meanRank: number; rankings: number }[];
@@ -96,7 +94,7 @@ export function overallTable(run: RunFile): string {
 
 export function detailTable(run: RunFile, base: Base): string {
   const rows = run.cells.map((c: Cell) => [
-    c.scenario.length > 40 ? `${c.scenario.slice(0, 39)}…` : c.scenario,
+    shorten(c.scenario, 40),
     `${estimatorLabel(c.estimator)}${c.perturbation ? ` after ${c.perturbation}` : ''}`,
     c.n,
     pm(c.scores.bias.value, c.scores.bias.se, base),

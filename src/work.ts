@@ -8,7 +8,7 @@
 import type { Sample, Scenario } from './contracts.js';
 import { EstimateError } from './errors.js';
 import type { ConfiguredEstimator } from '../estimators/index.js';
-import { runEstimator } from '../estimators/index.js';
+import { dimsRange, runEstimator } from '../estimators/index.js';
 import type { Plan } from './plan.js';
 import type { Perturbation, PreparedPerturbation } from './perturb.js';
 import { replicateRng } from './rng.js';
@@ -59,8 +59,7 @@ const POINTS_PER_UNIT = 20000;
 export function incompatibility(estimator: ConfiguredEstimator, scenario: Scenario): string | null {
   const [minDim, maxDim] = estimator.estimator.dims;
   if (scenario.dim < minDim || scenario.dim > maxDim) {
-    const range = maxDim === Infinity ? `d ≥ ${minDim}` : minDim === maxDim ? `d = ${minDim}` : `${minDim} ≤ d ≤ ${maxDim}`;
-    return `${estimator.estimator.id} needs ${range}; the scenario has d = ${scenario.dim}`;
+    return `${estimator.estimator.id} needs ${dimsRange(estimator.estimator.dims)}; the scenario has d = ${scenario.dim}`;
   }
   if (estimator.estimator.quantity !== scenario.quantity) {
     return `${estimator.estimator.id} estimates ${estimator.estimator.quantity}; the scenario's quantity is ${scenario.quantity}`;

@@ -1,13 +1,13 @@
 import { existsSync, readdirSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
-import { describeRegistration, resolveModulePath, useEstimatorModules } from '../modules.js';
+import { describeRegistration, QUANTITIES, resolveModulePath, useEstimatorModules } from '../modules.js';
 import type { Command } from 'commander';
 import { UsageError } from '../errors.js';
 import type { Quantity } from '../contracts.js';
 import { parseScenario } from '../../scenarios/index.js';
 import type { Base } from '../format.js';
 import { defaultPlan } from '../default-plan.js';
-import { parseIntegerOption, parseSampleSizes, readPlanFile, resolvePlan, type PlanInput } from '../plan.js';
+import { collect, parseIntegerOption, parseSampleSizes, readPlanFile, resolvePlan, type PlanInput } from '../plan.js';
 import { progressReporter } from '../progress.js';
 import { assembleRun, readRunFile, writeRunFile, type RunFile } from '../results.js';
 import { defaultWorkers, runPlan, type Shard } from '../runner.js';
@@ -43,8 +43,6 @@ interface BenchOptions {
   chart?: boolean;
 }
 
-const collect = (value: string, previous: string[] = []) => [...previous, value];
-
 function timestamp(): string {
   return new Date().toISOString().replace(/[-:]/g, '').replace('T', '-').slice(0, 15);
 }
@@ -73,9 +71,8 @@ export function planInputFromOptions(options: BenchOptions): PlanInput {
     // Module paths in a plan file are relative to the file.
     if (input.modules) input.modules = input.modules.map((m) => resolveModulePath(m, dirname(resolve(options.plan!))));
   } else {
-    const quantities = ['entropy', 'mutual-information', 'divergence'];
-    if (options.quantity !== undefined && !quantities.includes(options.quantity)) {
-      throw new UsageError(`--quantity ${options.quantity} is not allowed; use one of ${quantities.join(', ')}`);
+    if (options.quantity !== undefined && !(QUANTITIES as readonly string[]).includes(options.quantity)) {
+      throw new UsageError(`--quantity ${options.quantity} is not allowed; use one of ${QUANTITIES.join(', ')}`);
     }
     // Without --quantity, scenarios given by flag say which quantity the plan is about.
     const inferred = !options.quantity && options.scenario?.length ? parseScenario(options.scenario[0]).quantity : undefined;
@@ -171,7 +168,8 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
       const registration = await useEstimatorModules(input.modules ?? []);
       const note = describeRegistration(registration);
       if (note && !options.quiet) printErr(note);
-      const { plan } = resolvePlan(input, options.plan ?? 'plan');
+      // Errors name where the plan came from: the plan file, or the flags.
+      const { plan } = resolvePlan(input, options.plan ?? 'command line');
       const checkpoint = checkpointFor(out);
       const controller = new AbortController();
       const onSignal = () => controller.abort();

@@ -1,5 +1,6 @@
 import type { Command } from 'commander';
 import { UsageError } from '../errors.js';
+import { parseIntegerOption } from '../plan.js';
 import { formatValue } from '../format.js';
 import { parseNumber } from '../spec.js';
 import { convertEntropy, unitFactor, KNOWN_UNITS } from '../units.js';
@@ -17,8 +18,7 @@ export function registerConvertCommand(program: Command, print: (text: string) =
     .action((valueText: string, options: { from?: string; to?: string; factor?: string; dim: string; bits?: boolean }) => {
       const value = parseNumber(valueText);
       if (value === undefined || !Number.isFinite(value)) throw new UsageError(`${valueText} is not a number; give the entropy value to convert`);
-      const dim = Number(options.dim);
-      if (!Number.isInteger(dim) || dim < 1) throw new UsageError(`--dim ${options.dim} is not allowed; it must be an integer ≥ 1`);
+      const dim = parseIntegerOption('--dim', options.dim, 1);
       let factor: number;
       if (options.factor !== undefined) {
         if (options.from || options.to) throw new UsageError('give either --factor or --from and --to, not both');

@@ -1,6 +1,7 @@
 import type { Command } from 'commander';
 import type { Scenario } from '../contracts.js';
 import { UsageError } from '../errors.js';
+import { parseIntegerOption } from '../plan.js';
 import { formatValue, renderTable, shorten, toBase, type Base } from '../format.js';
 import { catalog, parseScenario } from '../../scenarios/index.js';
 
@@ -70,8 +71,7 @@ Quote specs with brackets or semicolons in the shell.`,
       const base: Base = options.bits ? 'bits' : 'nats';
       let list = specs.length ? specs.map(parseScenario) : catalog();
       if (options.dim !== undefined) {
-        const dim = Number(options.dim);
-        if (!Number.isInteger(dim) || dim < 1) throw new UsageError(`--dim ${options.dim} is not allowed; it must be an integer ≥ 1`);
+        const dim = parseIntegerOption('--dim', options.dim, 1);
         list = list.filter((s) => s.dim === dim);
       }
       if (options.tails !== undefined) {

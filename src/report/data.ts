@@ -4,7 +4,7 @@
  * charts: their position in the plan picks both.
  */
 import { toBase, type Base } from '../format.js';
-import { groupName, type Cell, type RunFile, type ScenarioInfo } from '../results.js';
+import { rankedGroups, type Cell, type RunFile, type ScenarioInfo } from '../results.js';
 import { estimatorLabel } from '../tables.js';
 import { estimatorColour, estimatorShape } from './palette.js';
 
@@ -189,7 +189,7 @@ export interface RankGrid {
 export function rankGrid(data: ReportData): RankGrid | null {
   const { run } = data;
   if (!run.overall.length) return null;
-  const groups = [...new Set(run.scenarios.map(groupName))].filter((g) => run.overall.some((o) => o.groups[g]));
+  const groups = rankedGroups(run);
   const rows: RankGrid['rows'] = [];
   const totals: { estimator: string; mean: number }[] = [];
   for (const o of run.overall) {

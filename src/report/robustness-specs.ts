@@ -5,7 +5,7 @@
 import type { TopLevelSpec } from 'vega-lite';
 import { formatValue, type Base } from '../format.js';
 import type { RobustnessGrid, TuningPanel } from './robustness-data.js';
-import { CHART_CONFIG } from './specs.js';
+import { CHART_CONFIG, estimatorHeatmapSpec } from './specs.js';
 import { REFERENCE_COLOUR, VERDICT_COLOURS } from './palette.js';
 
 export function tuningSpec(panel: TuningPanel, base: Base): TopLevelSpec {
@@ -57,30 +57,21 @@ export function tuningSpec(panel: TuningPanel, base: Base): TopLevelSpec {
 }
 
 export function robustnessGridSpec(grid: RobustnessGrid): TopLevelSpec {
-  const x = { field: 'column', type: 'nominal' as const, sort: grid.columns, title: 'check', axis: { orient: 'top' as const, labelAngle: 0 } };
-  const y = { field: 'estimator', type: 'nominal' as const, sort: grid.estimators, title: null, axis: { labelLimit: 260 } };
   const verdicts = Object.keys(VERDICT_COLOURS);
-  return {
-    title: { text: 'Robustness checks', subtitle: ['unit drift per perturbation and tuning spread', 'details in the table below'] },
-    width: { step: 84 },
-    height: { step: 28 },
-    data: { values: grid.rows },
-    layer: [
-      {
-        mark: { type: 'rect', stroke: 'white', strokeWidth: 1 },
-        encoding: {
-          x,
-          y,
-          color: {
-            field: 'verdict',
-            type: 'nominal',
-            scale: { domain: verdicts, range: verdicts.map((v) => VERDICT_COLOURS[v]) },
-            legend: { title: 'verdict', orient: 'bottom', direction: 'horizontal' },
-          },
-        },
-      },
-      { mark: { type: 'text', fontSize: 12, color: 'black' }, encoding: { x, y, text: { field: 'text', type: 'nominal' } } },
-    ],
-    config: CHART_CONFIG,
-  };
+  return estimatorHeatmapSpec({
+    title: 'Robustness checks',
+    subtitle: ['unit drift per perturbation and tuning spread', 'details in the table below'],
+    columnStep: 84,
+    x: { field: 'column', type: 'nominal', sort: grid.columns, title: 'check', axis: { orient: 'top', labelAngle: 0 } },
+    estimators: grid.estimators,
+    rows: grid.rows,
+    colour: {
+      field: 'verdict',
+      type: 'nominal',
+      scale: { domain: verdicts, range: verdicts.map((v) => VERDICT_COLOURS[v]) },
+      legend: { title: 'verdict', orient: 'bottom', direction: 'horizontal' },
+    },
+    label: { text: { field: 'text', type: 'nominal' } },
+    labelColour: 'black',
+  });
 }

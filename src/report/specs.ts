@@ -4,6 +4,7 @@
  * chart that shows only some estimators still colours them like the others.
  */
 import type { TopLevelSpec } from 'vega-lite';
+import type { Encoding } from 'vega-lite/types_unstable/encoding.js';
 import { formatValue, type Base } from '../format.js';
 import type { ConvergenceData, DistributionData, EfficiencyData, RankGrid, Series } from './data.js';
 import { RANK_SCHEME, REFERENCE_COLOUR } from './palette.js';
@@ -22,6 +23,8 @@ export const CHART_CONFIG = {
 };
 
 const WIDTH = 340;
+
+type Channels = Encoding<string>;
 
 function colourScale(series: Series[]) {
   return { domain: series.map((s) => s.name), range: series.map((s) => s.colour) };
@@ -149,47 +152,56 @@ export function efficiencySpec(chart: EfficiencyData): TopLevelSpec {
   };
 }
 
-export function rankHeatmapSpec(grid: RankGrid): TopLevelSpec {
-  // "d=1/exponential" on two lines keeps the columns narrow enough for a phone.
-  const x = {
-    field: 'group',
-    type: 'nominal' as const,
-    sort: grid.groups,
-    title: 'dimension / tail class',
-    axis: { labelAngle: 0, labelExpr: "split(datum.label, '/')" },
-  };
-  const y = { field: 'estimator', type: 'nominal' as const, sort: grid.estimators, title: null, axis: { labelLimit: 260 } };
-  const middle = (1 + grid.maxRank) / 2;
+/**
+ * Estimators down, `x` across: a coloured cell with a text label in each. The report's two heatmaps (average
+ * rank, robustness verdicts) share this layout.
+ */
+export function estimatorHeatmapSpec(chart: {
+  title: string;
+  subtitle: string[];
+  columnStep: number;
+  x: Channels['x'];
+  estimators: string[];
+  rows: object[];
+  colour: Channels['color'];
+  label: Pick<Channels, 'text' | 'color'>;
+  labelColour?: string;
+}): TopLevelSpec {
+  const { x } = chart;
+  const y = { field: 'estimator', type: 'nominal' as const, sort: chart.estimators, title: null, axis: { labelLimit: 260 } };
   return {
-    title: { text: 'Average rank by RMSE (1 = best)', subtitle: ['over the scenarios and sample sizes of each group', 'rows sorted by the average over all groups'] },
-    width: { step: 76 },
+    title: { text: chart.title, subtitle: chart.subtitle },
+    width: { step: chart.columnStep },
     height: { step: 28 },
-    data: { values: grid.rows },
+    data: { values: chart.rows },
     layer: [
-      {
-        mark: { type: 'rect', stroke: 'white', strokeWidth: 1 },
-        encoding: {
-          x,
-          y,
-          color: {
-            field: 'meanRank',
-            type: 'quantitative',
-            scale: { scheme: RANK_SCHEME, domain: [1, grid.maxRank], reverse: true },
-            legend: { title: 'mean rank', orient: 'bottom', direction: 'horizontal', gradientLength: 200 },
-          },
-        },
-      },
-      {
-        mark: { type: 'text', fontSize: 12 },
-        encoding: {
-          x,
-          y,
-          text: { field: 'meanRank', type: 'quantitative', format: '.1f' },
-          // Reversed viridis is dark at high ranks: white text there, black on the light end.
-          color: { condition: { test: `datum.meanRank > ${middle}`, value: 'white' }, value: 'black' },
-        },
-      },
+      { mark: { type: 'rect', stroke: 'white', strokeWidth: 1 }, encoding: { x, y, color: chart.colour } },
+      { mark: { type: 'text', fontSize: 12, ...(chart.labelColour ? { color: chart.labelColour } : {}) }, encoding: { x, y, ...chart.label } },
     ],
     config: CHART_CONFIG,
   };
+}
+
+export function rankHeatmapSpec(grid: RankGrid): TopLevelSpec {
+  const middle = (1 + grid.maxRank) / 2;
+  return estimatorHeatmapSpec({
+    title: 'Average rank by RMSE (1 = best)',
+    subtitle: ['over the scenarios and sample sizes of each group', 'rows sorted by the average over all groups'],
+    columnStep: 76,
+    // "d=1/exponential" on two lines keeps the columns narrow enough for a phone.
+    x: { field: 'group', type: 'nominal', sort: grid.groups, title: 'dimension / tail class', axis: { labelAngle: 0, labelExpr: "split(datum.label, '/')" } },
+    estimators: grid.estimators,
+    rows: grid.rows,
+    colour: {
+      field: 'meanRank',
+      type: 'quantitative',
+      scale: { scheme: RANK_SCHEME, domain: [1, grid.maxRank], reverse: true },
+      legend: { title: 'mean rank', orient: 'bottom', direction: 'horizontal', gradientLength: 200 },
+    },
+    label: {
+      text: { field: 'meanRank', type: 'quantitative', format: '.1f' },
+      // Reversed viridis is dark at high ranks: white text there, black on the light end.
+      color: { condition: { test: `datum.meanRank > ${middle}`, value: 'white' }, value: 'black' },
+    },
+  });
 }
