@@ -19,6 +19,12 @@
  * Computation (estimators/kernel/): d = 1 sorts and sums exactly over neighbours within a truncation radius,
  * or for large n bins onto a grid and convolves by FFT; d > 1 whitens and sums within the radius with a
  * cell list or blocked brute force. All paths agree with the direct O(n²) sum (test/kernel.test.ts).
+ *
+ * Heavy tails and outliers: a point many bandwidths from all others has f̂₋ᵢ(x_i) far below the smallest
+ * double, but every path takes log f̂₋ᵢ(x_i) in log space, relative to the nearest neighbour, so the
+ * estimate is the exact leave-one-out value, large as it may be (about (gap/h)²/(2n) nats from such a
+ * point), not a refusal. The estimator fails ('numeric') only where that value does not fit in a double:
+ * a point over ~1.3e154 bandwidths from its nearest neighbour, or data whose range overflows.
  */
 import type { Estimator, Sample, SettingSpec, Settings, SettingValue } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';

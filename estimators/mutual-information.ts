@@ -10,18 +10,25 @@
  * - mi-gaussian: ½ log(det Σ̂x det Σ̂y / det Σ̂), optionally exactly unbiased for Gaussian data.
  * - mi-from-entropies: Ĥ(X) + Ĥ(Y) − Ĥ(X,Y) with any built-in entropy estimator.
  *
- * Every one has `copula`: none, or rank, which first replaces each coordinate by rank/(n + 1) (ties broken
- * by row order). Ranks do not change under any increasing map of a coordinate, so with copula=rank the
- * estimate is exactly invariant to such maps (and MI itself is: it is the MI of the copula). One caution:
- * ranks make each 1-D marginal an exact lattice, on which nearest-neighbour entropy estimates are biased
- * (Kozachenko–Leonenko with k = 3 gives about +0.46 nats for U(0,1), whose entropy is 0), so
- * mi-from-entropies with copula=rank overstates I by about that much per 1-D part; KSG, whose marginal
- * counts use the joint neighbourhoods, does not have this problem.
+ * Every one has `copula`: none, or rank, which first replaces each coordinate by its rank 1..n (equal values
+ * ranked by row order, so no two ranks in a column are equal). That is the empirical copula rank/(n + 1)
+ * times the common factor n + 1, which none of these estimates depends on (each is invariant to one scale
+ * of all coordinates; mi-kernel reads a numeric 1-D bandwidth on the rank/(n + 1) scale), and integer ranks
+ * are exact: max-norm distances between ranked points are exact integers, so equal distances are equal as
+ * doubles and KSG's strict (variant 1) and inclusive (variant 2) counts, and its neighbour ties, are
+ * decided on exact values, never by rounding. Ranks do not change under any increasing map of a coordinate,
+ * so with copula=rank the estimate is exactly invariant to such maps (and MI itself is: it is the MI of the
+ * copula). One caution: ranks make each 1-D marginal an exact lattice, on which nearest-neighbour entropy
+ * estimates are biased (Kozachenko–Leonenko with k = 3 overstates the entropy of the evenly spaced ranks,
+ * against the uniform law they stand for, by about 0.46 nats), so mi-from-entropies with copula=rank
+ * overstates I by about that much per 1-D part; KSG, whose marginal counts use the joint neighbourhoods,
+ * does not have this problem.
  *
  * The catalog and the harness reach these through estimators/index.ts; importing this file directly is fine.
  */
 import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
+import { parseNumber } from '../src/spec.js';
 import { KnnIndex } from '../src/knn.js';
 import { digamma } from '../src/math/special.js';
 import { checkNotConstant } from './divergence.js';
@@ -35,7 +42,8 @@ const KSG_REFERENCE = 'Kraskov, A., Stögbauer, H. & Grassberger, P. (2004). Est
 
 export const COPULA_SETTING: SettingSpec = {
   name: 'copula',
-  meaning: 'none, or rank: replace each coordinate by rank/(n+1) first (ties by row order), making the estimate invariant to increasing maps of any coordinate',
+  meaning:
+    'none, or rank: replace each coordinate by its integer rank 1..n first (equal values by row order), making the estimate invariant to increasing maps of any coordinate; distances between ranks are exact, so KSG ties are decided exactly, not by rounding',
   default: 'none',
   kind: 'choice',
   choices: ['none', 'rank'],
@@ -73,8 +81,13 @@ export function columns(data: Float64Array, n: number, dim: number, from: number
 }
 
 /**
- * Each coordinate replaced by rank/(n + 1), rank 1..n, equal values ranked by row order: the empirical
- * copula. A new array; the input is not changed.
+ * Each coordinate replaced by its rank 1..n, equal values ranked by row order, so no two values of a column
+ * are equal: the empirical copula, up to the common factor 1/(n + 1), which every MI estimator here is
+ * invariant to (max-norm neighbour counts, bin rules, kernel bandwidth rules and covariance ratios all scale
+ * with the data; mi-kernel rescales a numeric 1-D bandwidth to match). Integer ranks are exact doubles and so are their differences: max-norm distances between
+ * ranked points are exact integers, and two distances equal in exact arithmetic are equal as doubles,
+ * which rank/(n + 1) does not guarantee (its rounding decided some KSG counts). A new array; the input is not
+ * changed.
  */
 export function rankTransform(data: Float64Array, n: number, dim: number): Float64Array {
   const out = new Float64Array(n * dim);
@@ -87,7 +100,7 @@ export function rankTransform(data: Float64Array, n: number, dim: number): Float
       order[i] = i;
     }
     order.sort(byValueThenRow);
-    for (let r = 0; r < n; r++) out[order[r] * dim + j] = (r + 1) / (n + 1);
+    for (let r = 0; r < n; r++) out[order[r] * dim + j] = r + 1;
   }
   return out;
 }
@@ -147,6 +160,13 @@ function digammaTable(size: number): (m: number) => number {
  *                       X- and Y-distances from i to its k joint neighbours and n_x(i) = #{j ≠ i:
  *                       ‖x_i − x_j‖ ≤ ε_x,i/2} (inclusive; at least k).
  *
+ * Ties in distances. Variant 1 uses only the k-th distance ε_i/2, which ties do not change. Variant 2 needs
+ * the k neighbours themselves, which are not defined when several points lie at exactly the k-th distance:
+ * they are then every point strictly closer and the tied points of lowest row index (a k-NN search would
+ * report an arbitrary choice). Distances are compared as computed, so equality is decided by the doubles:
+ * on data whose differences are exact, as the integer ranks of copula=rank, equal distances are genuinely
+ * equal, and the strict count of variant 1 and the inclusive counts of variant 2 apply to exact values.
+ *
  * Radius counts come from kd-trees on X and on Y (exact: src/knn.ts). Points whose k-th joint neighbour is
  * at distance 0 (repeated rows) are a 'ties' error.
  */
@@ -154,9 +174,13 @@ export function ksgMutualInformation(data: Float64Array, n: number, xDim: number
   const dim = xDim + yDim;
   if (n <= k) throw new EstimateError('too-few-points', `${id} needs n > k; got n = ${n} with k = ${k}`);
   const joint = new KnnIndex(data.subarray(0, n * dim), dim, { norm: 'max' });
-  const { distances, indices } = joint.nearestOthers(k, { indices: variant === 2 });
+  // Variant 2 also asks for the (k+1)-th neighbour: where it is as near as the k-th, the k are tied.
+  const stride = variant === 2 ? Math.min(k + 1, n - 1) : k;
+  const { distances, indices } = joint.nearestOthers(stride, { indices: variant === 2 });
+  const kth = new Float64Array(n);
+  for (let i = 0; i < n; i++) kth[i] = distances[i * stride + k - 1];
   let zeroCount = 0;
-  for (let i = 0; i < n; i++) if (distances[i * k + k - 1] === 0) zeroCount++;
+  for (let i = 0; i < n; i++) if (kth[i] === 0) zeroCount++;
   if (zeroCount > 0) {
     const copies = joint.countOthersWithin(new Float64Array(n), { inclusive: true });
     let mostCopies = 0;
@@ -172,28 +196,10 @@ export function ksgMutualInformation(data: Float64Array, n: number, xDim: number
   const radiusX = new Float64Array(n);
   const radiusY = new Float64Array(n);
   if (variant === 1) {
-    for (let i = 0; i < n; i++) radiusX[i] = distances[i * k + k - 1];
-    radiusY.set(radiusX);
+    radiusX.set(kth);
+    radiusY.set(kth);
   } else {
-    const neighbours = indices!;
-    for (let i = 0; i < n; i++) {
-      let largestX = 0;
-      let largestY = 0;
-      const row = i * dim;
-      for (let t = 0; t < k; t++) {
-        const other = neighbours[i * k + t] * dim;
-        for (let a = 0; a < xDim; a++) {
-          const gap = Math.abs(data[row + a] - data[other + a]);
-          if (gap > largestX) largestX = gap;
-        }
-        for (let a = xDim; a < dim; a++) {
-          const gap = Math.abs(data[row + a] - data[other + a]);
-          if (gap > largestY) largestY = gap;
-        }
-      }
-      radiusX[i] = largestX;
-      radiusY[i] = largestY;
-    }
+    neighbourExtents(joint, data, n, xDim, yDim, k, kth, distances, indices!, stride, radiusX, radiusY);
   }
   const inclusive = variant === 2;
   const countX = new KnnIndex(xData, xDim, { norm: 'max' }).countOthersWithin(radiusX, { inclusive });
@@ -204,6 +210,104 @@ export function ksgMutualInformation(data: Float64Array, n: number, xDim: number
   for (let i = 0; i < n; i++) sum += psi(countX[i] + offset) + psi(countY[i] + offset);
   const constant = digamma(k) + digamma(n) - (variant === 2 ? 1 / k : 0);
   return constant - sum / n;
+}
+
+/** Neighbour lists of tied points are fetched in batches of at most this many entries. */
+const TIED_BATCH_ENTRIES = 1 << 20;
+
+/**
+ * KSG variant 2's ε_x,i/2 and ε_y,i/2: the largest X- and Y-distances from x_i to its k nearest joint
+ * neighbours. Where other points tie at the k-th distance ε_i/2 (the (k+1)-th neighbour, `stride` = k + 1
+ * columns of `distances`, is as near), the k are every point strictly closer and then the tied ones of lowest
+ * row index, the order copula=rank breaks value ties in. Those points fill the closed joint ball of radius
+ * ε_i/2; it is counted, then fetched as the nearest points to x_i (itself included, at distance 0), for the
+ * tied points only.
+ */
+function neighbourExtents(
+  joint: KnnIndex,
+  data: Float64Array,
+  n: number,
+  xDim: number,
+  yDim: number,
+  k: number,
+  kth: Float64Array,
+  distances: Float64Array,
+  neighbours: Int32Array,
+  stride: number,
+  radiusX: Float64Array,
+  radiusY: Float64Array,
+): void {
+  const dim = xDim + yDim;
+  const tied: number[] = [];
+  const members = new Int32Array(k);
+  for (let i = 0; i < n; i++) {
+    if (stride > k && distances[i * stride + k] === kth[i]) tied.push(i);
+    else {
+      members.set(neighbours.subarray(i * stride, i * stride + k));
+      extentsOver(data, dim, xDim, i, members, k, radiusX, radiusY);
+    }
+  }
+  if (tied.length === 0) return;
+  const tiedPoints = new Float64Array(tied.length * dim);
+  const tiedRadii = new Float64Array(tied.length);
+  for (let q = 0; q < tied.length; q++) {
+    tiedPoints.set(data.subarray(tied[q] * dim, tied[q] * dim + dim), q * dim);
+    tiedRadii[q] = kth[tied[q]];
+  }
+  const ballSize = joint.countWithin(tiedPoints, tiedRadii, { inclusive: true });
+  // Ball points at exactly ε_i/2, sorted by row; the strictly closer ones all belong to the k.
+  const atEdge = new Int32Array(n);
+  let start = 0;
+  while (start < tied.length) {
+    let widest = ballSize[start];
+    let stop = start + 1;
+    while (stop < tied.length && Math.max(widest, ballSize[stop]) * (stop + 1 - start) <= TIED_BATCH_ENTRIES) {
+      widest = Math.max(widest, ballSize[stop]);
+      stop++;
+    }
+    const ball = joint.nearest(tiedPoints.subarray(start * dim, stop * dim), widest, { indices: true }).indices!;
+    for (let q = start; q < stop; q++) {
+      const i = tied[q];
+      const row = i * dim;
+      let inside = 0;
+      let edge = 0;
+      for (let t = (q - start) * widest, end = t + ballSize[q]; t < end; t++) {
+        const j = ball[t];
+        if (j === i) continue;
+        let distance = 0;
+        for (let a = 0; a < dim; a++) {
+          const gap = Math.abs(data[row + a] - data[j * dim + a]);
+          if (gap > distance) distance = gap;
+        }
+        if (distance < kth[i]) members[inside++] = j;
+        else atEdge[edge++] = j;
+      }
+      atEdge.subarray(0, edge).sort();
+      for (let e = 0; inside < k; e++) members[inside++] = atEdge[e];
+      extentsOver(data, dim, xDim, i, members, k, radiusX, radiusY);
+    }
+    start = stop;
+  }
+}
+
+/** Largest X- and Y-distances from point i to the k points in `members`. */
+function extentsOver(data: Float64Array, dim: number, xDim: number, i: number, members: Int32Array, k: number, radiusX: Float64Array, radiusY: Float64Array): void {
+  const row = i * dim;
+  let largestX = 0;
+  let largestY = 0;
+  for (let t = 0; t < k; t++) {
+    const other = members[t] * dim;
+    for (let a = 0; a < xDim; a++) {
+      const gap = Math.abs(data[row + a] - data[other + a]);
+      if (gap > largestX) largestX = gap;
+    }
+    for (let a = xDim; a < dim; a++) {
+      const gap = Math.abs(data[row + a] - data[other + a]);
+      if (gap > largestY) largestY = gap;
+    }
+  }
+  radiusX[i] = largestX;
+  radiusY[i] = largestY;
 }
 
 const KSG_DEFAULT_K = 3;
@@ -268,14 +372,24 @@ function histogramMutualInformation(sample: Sample, settings: Settings): number 
 // ---------------------------------------------------------------------------------------------------------
 // Kernel
 
+/**
+ * Ĥ(X) + Ĥ(Y) − Ĥ(X,Y). Rule bandwidths scale with the data, so the three entropies shift by d·log c under a
+ * common scale c and I does not move. A numeric bandwidth of a 1-D part is in data units, which does not
+ * scale: with copula=rank it is read on the rank/(n + 1) scale of (0, 1) the copula lives on, so it is
+ * multiplied by n + 1 for the integer ranks (a numeric bandwidth of a d > 1 part is in whitened units,
+ * unaffected).
+ */
 function kernelMutualInformation(sample: Sample, settings: Settings): number {
   const id = 'mi-kernel';
   const { data, n, xDim, yDim } = prepared(id, sample, settings);
   const dim = xDim + yDim;
-  const kernelSettings: Settings = { bandwidth: settings.bandwidth ?? 'silverman', scale: settings.scale ?? 1 };
+  const bandwidth = settings.bandwidth ?? 'silverman';
+  const numericBandwidth = typeof bandwidth === 'number' ? bandwidth : typeof bandwidth === 'string' ? parseNumber(bandwidth) : undefined;
+  const rankUnit = copulaOf(id, settings) === 'rank' ? n + 1 : 1;
   const entropyOf = (part: Sample): number => {
+    const partBandwidth = numericBandwidth !== undefined && part.dim === 1 ? numericBandwidth * rankUnit : bandwidth;
     try {
-      return kernelEstimator.estimate(part, kernelSettings);
+      return kernelEstimator.estimate(part, { bandwidth: partBandwidth, scale: settings.scale ?? 1 });
     } catch (error) {
       return renamed(id, 'kernel', error);
     }
@@ -409,7 +523,7 @@ export const mutualInformationEstimators: Estimator[] = [
     settings: [
       {
         name: 'bandwidth',
-        meaning: 'bandwidth rule for each of the three kernel estimates, or a number (data units for a 1-D part, whitened units otherwise)',
+        meaning: 'bandwidth rule for each of the three kernel estimates, or a number (data units for a 1-D part, on the (0, 1) scale rank/(n+1) with copula=rank; whitened units otherwise)',
         default: 'silverman',
         kind: 'choice-or-number',
         choices: BANDWIDTH_RULES,

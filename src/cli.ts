@@ -48,17 +48,19 @@ export function buildProgram(io: CliIo): Command {
   return program;
 }
 
-/** Runs the CLI; returns the exit code (0 ok, 1 internal error, 2 usage error). */
+/**
+ * Runs the CLI; returns the exit code: 0 ok, 1 a computation that failed (an estimate that could not be made,
+ * a comparison that found a regression) or an internal error, 2 a usage mistake.
+ */
 export async function main(argv: string[], io: CliIo = defaultIo): Promise<number> {
   const program = buildProgram(io);
   const debug = argv.includes('--debug');
-  // Commands that finish but report a problem (a failed estimate among several) set process.exitCode.
+  // Commands that finish but report a problem (an estimate that failed beside others) set process.exitCode;
+  // it is read here and cleared, so the caller (bin/hhat.js, or a test calling main again) owns the code.
   process.exitCode = undefined;
   try {
     await program.parseAsync(argv, { from: 'user' });
-    const code = typeof process.exitCode === 'number' ? process.exitCode : 0;
-    process.exitCode = undefined;
-    return code;
+    return typeof process.exitCode === 'number' ? process.exitCode : 0;
   } catch (error) {
     if (error instanceof CommanderError) {
       // Commander has already printed its one-line message; help and version exit 0.
@@ -67,10 +69,13 @@ export async function main(argv: string[], io: CliIo = defaultIo): Promise<numbe
     if (error instanceof UsageError || error instanceof EstimateError) {
       io.err(`hhat: ${error.message}`);
       if (debug) io.err(String(error.stack));
-      return 2;
+      // An estimator that cannot run on the data is a failure of the computation, not of the command line.
+      return error instanceof UsageError ? 2 : 1;
     }
     io.err(`hhat: internal error: ${error instanceof Error ? error.message : String(error)}`);
     io.err(debug && error instanceof Error ? String(error.stack) : 'run again with --debug for the stack trace, and please report it');
     return 1;
+  } finally {
+    process.exitCode = undefined;
   }
 }

@@ -4,7 +4,7 @@
  */
 import { formatValue, renderTable } from './format.js';
 import { toJson } from './results.js';
-import { failingCells, STATUS_ORDER, type CellComparison, type CellRef, type CellStatus, type Comparison, type FailOn, type RunSummary } from './compare.js';
+import { failingCells, STATUS_ORDER, WILD_FACTOR, type CellComparison, type CellRef, type CellStatus, type Comparison, type FailOn, type RunSummary } from './compare.js';
 
 const STATUS_LABEL: Record<CellStatus, string> = {
   worse: 'worse',
@@ -76,7 +76,14 @@ function ordered(cells: CellComparison[]): CellComparison[] {
   );
 }
 
-const HEAD = ['status', 'scenario', 'estimator', 'n', 'RMSE base → new', 'ΔRMSE ± SE', 'Δbias ± SE', 'ΔSD ± SE', 'Δ squared error [CI]', 'p', 'failures'];
+const HEAD = ['status', 'scenario', 'estimator', 'n', 'RMSE base → new', 'ΔRMSE ± SE', 'Δbias ± SE', 'ΔSD ± SE', 'Δ squared error [CI]', 'p', 'draws worse/better', 'failures'];
+
+function failuresText(c: CellComparison): string {
+  const f = c.failures;
+  if (f.base === f.next && !f.onlyNext) return String(f.next);
+  const detail = f.onlyNext !== null ? ` (${f.onlyNext} new, ${f.onlyBase} fixed${f.p !== null ? `, p ${formatP(f.p)}` : ''})` : f.p !== null ? ` (p ${formatP(f.p)})` : '';
+  return `${f.base} → ${f.next}${detail}`;
+}
 
 function row(c: CellComparison): string[] {
   const t = c.test;
@@ -91,8 +98,15 @@ function row(c: CellComparison): string[] {
     plusMinus(c.sd.change, c.sd.changeSe),
     t ? `${toSePrecision(t.difference, t.se)} [${toSePrecision(t.interval[0], t.se)}, ${toSePrecision(t.interval[1], t.se)}]` : '–',
     t ? formatP(t.p) : '–',
-    c.failures.base === c.failures.next ? String(c.failures.next) : `${c.failures.base} → ${c.failures.next}`,
+    c.sign ? `${c.sign.above}/${c.sign.below} (p ${formatP(c.sign.p)})` : '–',
+    failuresText(c),
   ];
+}
+
+/** The level of the intervals shown: each test runs at α split over the tests (Bonferroni). */
+function intervalLevel(comparison: Comparison): string {
+  const tests = comparison.pairing.paired ? 3 : 2;
+  return `${+((1 - (1 - comparison.level) / tests) * 100).toPrecision(4)}%`;
 }
 
 function countsLine(comparison: Comparison): string {
@@ -111,8 +125,11 @@ function pairingLine(comparison: Comparison): string {
 }
 
 function policyLine(comparison: Comparison): string {
-  const pct = `${+(comparison.level * 100).toPrecision(6)}%`;
-  return `A cell is worse or improved when the ${pct} interval of its difference in squared error excludes 0 and |ΔRMSE| exceeds the tolerance (${comparison.tolerance.text}); a cell whose failures rise is worse.`;
+  const alpha = +(1 - comparison.level).toPrecision(6);
+  const tests = comparison.pairing.paired
+    ? `any of three paired tests at level ${+(alpha / 3).toPrecision(3)} each (α = ${alpha} split by Bonferroni) says so: the t test on the squared-error differences (and |ΔRMSE| exceeds the tolerance, ${comparison.tolerance.text}), the exact sign test on them (and the median change of |error| exceeds the tolerance), or the exact McNemar test on failures`
+    : `Welch's t test on the squared errors (and |ΔRMSE| exceeds the tolerance, ${comparison.tolerance.text}) or Fisher's exact test on failures says so at level ${+(alpha / 2).toPrecision(3)} each (α = ${alpha} split by Bonferroni)`;
+  return `A cell is worse (or improved) when ${tests}; worse wins over improved. A new estimate more than ${WILD_FACTOR} times the base run's largest error away from the truth makes a cell worse on its own. Changes ± SE are ${comparison.pairing.paired ? 'paired, over the replicates where both runs succeeded' : 'unpaired'}.`;
 }
 
 function refLines(title: string, refs: CellRef[]): string[] {
@@ -129,7 +146,7 @@ export function formatComparisonText(comparison: Comparison, labels = { base: 'b
   ];
   const changed = ordered(comparison.cells).filter((c) => c.status !== 'unchanged');
   if (changed.length) {
-    const pct = `${+(comparison.level * 100).toPrecision(6)}%`;
+    const pct = intervalLevel(comparison);
     const head = HEAD.map((h) => (h === 'Δ squared error [CI]' ? `Δ sq. error [${pct} CI]` : h));
     // The failures column only when some cell has failures: it is the column most often all zeros.
     const keep = changed.some((c) => c.failures.base || c.failures.next) ? HEAD.length : HEAD.length - 1;
@@ -169,7 +186,7 @@ export function formatComparisonMarkdown(comparison: Comparison): string {
   const sorted = ordered(comparison.cells);
   const changed = sorted.filter((c) => c.status !== 'unchanged');
   if (changed.length) {
-    const pct = `${+(comparison.level * 100).toPrecision(6)}%`;
+    const pct = intervalLevel(comparison);
     const head = HEAD.map((h) => (h === 'Δ squared error [CI]' ? `Δ squared error [${pct} CI]` : h));
     const rows = changed.map((c) => {
       const r = row(c).map(md);
@@ -229,8 +246,10 @@ function cellDetails(c: CellComparison): string {
     `RMSE ${formatValue(c.rmse.base.value)} → ${formatValue(c.rmse.next.value)} (${plusMinus(c.rmse.change, c.rmse.changeSe)})`,
     `bias ${formatValue(c.bias.base.value)} → ${formatValue(c.bias.next.value)} (${plusMinus(c.bias.change, c.bias.changeSe)})`,
     `SD ${formatValue(c.sd.base.value)} → ${formatValue(c.sd.next.value)} (${plusMinus(c.sd.change, c.sd.changeSe)})`,
-    `failures ${c.failures.base} → ${c.failures.next} of ${c.replicates.next}`,
+    `failures ${failuresText(c)} of ${c.replicates.next}`,
   ];
+  if (c.sign) lines.push(`sign test on squared-error differences: ${c.sign.above} replicates worse, ${c.sign.below} better, ${c.sign.ties} equal, p = ${formatP(c.sign.p)}; median change of |error| ${signed(c.medianChange ?? NaN, 3)} nats`);
+  for (const w of c.wild) lines.push(`wild estimate at replicate ${w.replicate}: ${w.next} (base ${w.base ?? 'failed'})`);
   if (t) {
     lines.push(
       `${t.kind === 'paired-t' ? 'paired t test' : "Welch's t test"} on squared errors: difference ${signed(t.difference, 4)}, SE ${formatValue(t.se, 3)}, ` +
@@ -246,12 +265,14 @@ function cellDetails(c: CellComparison): string {
  * cells failing the policy carry a <failure> with the numbers, the others a <system-out> with them, and
  * cells in only one run are <skipped>.
  */
-export function formatComparisonJunit(comparison: Comparison, failOn: FailOn = 'worse'): string {
+export function formatComparisonJunit(comparison: Comparison, failOn: FailOn = 'worse', allowMissing = false): string {
   const failing = new Set(failingCells(comparison, failOn));
-  const refsOnly = [...comparison.removed.map((r) => ({ r, where: 'only in the base run' })), ...comparison.added.map((r) => ({ r, where: 'only in the new run' }))];
-  const onlyFails = failOn === 'changed';
-  const failures = failing.size + (onlyFails ? refsOnly.length : 0);
-  const skipped = onlyFails ? 0 : refsOnly.length;
+  const refsOnly = [
+    ...comparison.removed.map((r) => ({ r, where: 'only in the base run (missing from the new run)', fails: !allowMissing })),
+    ...comparison.added.map((r) => ({ r, where: 'only in the new run', fails: failOn === 'changed' })),
+  ];
+  const failures = failing.size + refsOnly.filter((x) => x.fails).length;
+  const skipped = refsOnly.length - refsOnly.filter((x) => x.fails).length;
   const tests = comparison.cells.length + refsOnly.length;
   const suite = { name: 'hhat compare', tests, failures, errors: 0, skipped, time: 0 };
   const out = ['<?xml version="1.0" encoding="UTF-8"?>', `<testsuites${attributes(suite)}>`, `  <testsuite${attributes(suite)}>`, '    <properties>'];
@@ -275,9 +296,9 @@ export function formatComparisonJunit(comparison: Comparison, failOn: FailOn = '
       out.push(open, `      <system-out>${STATUS_LABEL[c.status]}: ${details}</system-out>`, '    </testcase>');
     }
   }
-  for (const { r, where } of refsOnly) {
+  for (const { r, where, fails } of refsOnly) {
     const open = `    <testcase${attributes({ classname: cellLabel(r), name: testcaseName(r), time: 0 })}>`;
-    const body = onlyFails ? `<failure${attributes({ type: 'changed', message: `cell ${where}` })}/>` : `<skipped${attributes({ message: `cell ${where}` })}/>`;
+    const body = fails ? `<failure${attributes({ type: 'missing', message: `cell ${where}` })}/>` : `<skipped${attributes({ message: `cell ${where}` })}/>`;
     out.push(open, `      ${body}`, '    </testcase>');
   }
   out.push('  </testsuite>', '</testsuites>', '');

@@ -2,11 +2,21 @@
  * Comparing two run files cell by cell, to track changes in estimator code as regressions.
  *
  * When both runs drew the same samples (equal draws fingerprints), each replicate of a cell is the same
- * sample in both runs, so the comparison is paired: per replicate, d_r = (Ĥ_new,r − H)² − (Ĥ_base,r − H)²,
- * and a one-sample t test on the d_r. The draw-to-draw noise that dominates either run's RMSE cancels in
- * d_r, so a paired test detects changes far below the Monte-Carlo error of either run (bench/paired-power.ts
- * shows how far). When the draws differ, the squared errors of the two runs are independent samples and
- * Welch's unequal-variance t test compares their means (the two MSEs).
+ * sample in both runs, so the comparison is paired. Per replicate where both succeeded,
+ * d_r = (Ĥ_new,r − H)² − (Ĥ_base,r − H)², and three paired tests, each at level α/3 (Bonferroni, so a cell
+ * whose code did not change its behaviour is called worse or improved with probability at most α = 1 − level):
+ *   - a t test on the mean of d_r: the change in mean squared error, the quantity RMSE measures; the
+ *     draw-to-draw noise that dominates either run's RMSE cancels in d_r, so it detects changes far below
+ *     the Monte-Carlo error of either run (bench/paired-power.ts shows how far);
+ *   - an exact sign test on the d_r: how many draws got worse against how many got better, which one huge
+ *     value cannot sway (it moves the mean and inflates its SE, hiding a change on every other draw);
+ *   - an exact McNemar test on failures: draws where only the new run failed against draws where only the
+ *     base run failed.
+ * A new estimate far outside anything the base run produced in that cell (a "wild" value: more than
+ * WILD_FACTOR times the base's largest error away from the truth, or a squared error that overflows) is
+ * worse on its own: no mean over the other draws should dilute it.
+ * When the draws differ, the squared errors are independent samples: Welch's t test on them and Fisher's
+ * exact test on the failure counts, each at α/2.
  *
  *   const comparison = compareRuns(readRunFile('base.json'), readRunFile('new.json'), { tolerance: parseTolerance('5%') });
  */
@@ -15,6 +25,7 @@ import tQuantile from '@stdlib/stats-base-dists-t-quantile';
 import { UsageError } from './errors.js';
 import type { Cell, RunFile, ScenarioInfo } from './results.js';
 import type { Estimate } from './score.js';
+import { fisherExact, signTest, signTestOf, type SignTest } from './exact-tests.js';
 
 export type CellStatus = 'worse' | 'improved' | 'changed-within-noise' | 'unchanged';
 export const STATUS_ORDER: readonly CellStatus[] = ['worse', 'improved', 'changed-within-noise', 'unchanged'];
@@ -40,12 +51,6 @@ export function describeTolerance(tolerance: Tolerance): string {
   return tolerance.kind === 'nats' ? `${tolerance.value} nats` : `${+(tolerance.value * 100).toPrecision(12)}% of the base RMSE`;
 }
 
-export function parseLevel(text: string): number {
-  const value = Number(text);
-  if (text.trim() === '' || !(value > 0 && value < 1)) throw new UsageError(`--level ${text} is not allowed; the confidence level is a number between 0 and 1 (e.g. 0.95)`);
-  return value;
-}
-
 export interface CompareOptions {
   tolerance?: Tolerance;
   /** Confidence level of the intervals (default 0.95): a cell is improved or worse when its interval excludes 0. */
@@ -69,12 +74,39 @@ export interface TTest {
   count: number | { next: number; base: number };
 }
 
-/** A score in both runs and its change; changeSe combines the two scores' SEs as if independent (conservative when paired). */
+/**
+ * A score in both runs and its change. Paired: the change and its SE over the replicates where both runs
+ * succeeded, from the per-replicate differences (delta method). Unpaired: the scores' difference with the
+ * two SEs combined as independent.
+ */
 export interface ScoreChange {
   base: Estimate;
   next: Estimate;
   change: number;
   changeSe: number;
+  paired: boolean;
+}
+
+/** A replicate whose new estimate lies far outside what the base run produced in the cell. */
+export interface WildEstimate {
+  replicate: number;
+  base: number | null;
+  next: number;
+  /** |Ĥ_new − H| divided by the base cell's largest |Ĥ_base − H|. */
+  ratio: number;
+}
+
+/** A new estimate more than this many times the base cell's largest error away from the truth is wild. */
+export const WILD_FACTOR = 100;
+
+export interface FailureChange {
+  base: number;
+  next: number;
+  /** Paired: replicates that fail only in the new run, and only in the base run. */
+  onlyNext: number | null;
+  onlyBase: number | null;
+  /** Exact McNemar (paired) or Fisher (unpaired) two-sided p; null when neither run failed. */
+  p: number | null;
 }
 
 export interface CellRef {
@@ -91,14 +123,22 @@ export interface CellComparison extends CellRef {
   paired: boolean;
   truth: { base: number; next: number };
   replicates: { base: number; next: number };
-  failures: { base: number; next: number };
+  failures: FailureChange;
   bias: ScoreChange;
   sd: ScoreChange;
   rmse: ScoreChange;
   /** Paired only: mean and SE of Ĥ_new,r − Ĥ_base,r over replicates where both succeeded. */
   shift: Estimate | null;
-  /** The test on squared errors; null when either side has fewer than two usable replicates. */
+  /** The t test on squared errors; null when either side has fewer than two usable replicates. */
   test: TTest | null;
+  /** Paired only: the sign test on the per-replicate differences of squared errors. */
+  sign: SignTest | null;
+  /** Paired only: the median change of the absolute error |Ĥ − H|, nats (the sign test's magnitude). */
+  medianChange: number | null;
+  /** New estimates far outside the base run's range in this cell. */
+  wild: WildEstimate[];
+  /** Level of each test (α split by Bonferroni over the tests run); intervals are shown at 1 − this. */
+  testLevel: number;
   /** The tolerance in nats for this cell (a ratio tolerance times the base RMSE). */
   toleranceNats: number;
 }
@@ -158,11 +198,11 @@ function drawsDifference(base: RunFile, next: RunFile): string {
 }
 
 function decidePairing(base: RunFile, next: RunFile, pairing: CompareOptions['pairing']): { paired: boolean; reason: string } {
-  if (pairing === 'unpaired') return { paired: false, reason: "unpaired on request; Welch's t test on the squared errors" };
+  if (pairing === 'unpaired') return { paired: false, reason: "unpaired on request; Welch's t test on the squared errors, Fisher's exact test on failures" };
   if (base.drawsFingerprint === next.drawsFingerprint) {
-    return { paired: true, reason: `both runs drew the same samples (draws fingerprint ${base.drawsFingerprint.slice(0, 12)}); paired t test on per-replicate differences of squared errors` };
+    return { paired: true, reason: `both runs drew the same samples (draws fingerprint ${base.drawsFingerprint.slice(0, 12)}); paired tests on per-replicate differences of squared errors and on failures` };
   }
-  return { paired: false, reason: `the runs drew different samples (${drawsDifference(base, next)}); Welch's t test on the squared errors` };
+  return { paired: false, reason: `the runs drew different samples (${drawsDifference(base, next)}); Welch's t test on the squared errors, Fisher's exact test on failures` };
 }
 
 function finishTest(kind: TTest['kind'], difference: number, se: number, df: number, level: number, count: TTest['count']): TTest {
@@ -202,8 +242,67 @@ export function welchTTest(next: ArrayLike<number>, base: ArrayLike<number>, lev
   return finishTest('welch-t', ma - mb, se, df, level, { next: a.length, base: b.length });
 }
 
-function scoreChange(base: Estimate, next: Estimate): ScoreChange {
-  return { base, next, change: next.value - base.value, changeSe: Math.hypot(base.se, next.se) };
+function unpairedChange(base: Estimate, next: Estimate): ScoreChange {
+  return { base, next, change: next.value - base.value, changeSe: Math.hypot(base.se, next.se), paired: false };
+}
+
+function meanAndVariance(values: number[]): { mean: number; variance: number } {
+  const m = values.length;
+  const mean = values.reduce((s, v) => s + v, 0) / m;
+  const variance = m > 1 ? values.reduce((s, v) => s + (v - mean) ** 2, 0) / (m - 1) : NaN;
+  return { mean, variance };
+}
+
+/**
+ * Changes of bias, SD and RMSE on the replicates where both runs succeeded, with SEs from the paired
+ * per-replicate quantities (delta method):
+ *   Δbias = mean(new − base), SE = SD(new − base)/√m;
+ *   ΔSD   = Δ(s²)/(s_new + s_base) with Δ(s²) = Σ u_r/(m − 1), u_r = (new_r − mean new)² − (base_r − mean base)²,
+ *           SE = SD(u)/√m · m/(m − 1) / (s_new + s_base);
+ *   ΔRMSE = ΔMSE/(RMSE_new + RMSE_base) with ΔMSE = mean d_r, SE = SD(d)/√m / (RMSE_new + RMSE_base).
+ */
+function pairedChanges(next: number[], base: number[], truthNext: number, truthBase: number): { bias: ScoreChange; sd: ScoreChange; rmse: ScoreChange } | null {
+  const m = next.length;
+  if (m < 2) return null;
+  const shifts = next.map((v, r) => v - truthNext - (base[r] - truthBase));
+  const shift = meanAndVariance(shifts);
+  const a = meanAndVariance(next);
+  const b = meanAndVariance(base);
+  const biasNext = a.mean - truthNext;
+  const biasBase = b.mean - truthBase;
+  const u = next.map((v, r) => (v - a.mean) ** 2 - (base[r] - b.mean) ** 2);
+  const uStats = meanAndVariance(u);
+  const sdNext = Math.sqrt(a.variance);
+  const sdBase = Math.sqrt(b.variance);
+  const sdSum = sdNext + sdBase;
+  const d = next.map((v, r) => (v - truthNext) ** 2 - (base[r] - truthBase) ** 2);
+  const dStats = meanAndVariance(d);
+  const mseNext = next.reduce((s, v) => s + (v - truthNext) ** 2, 0) / m;
+  const mseBase = base.reduce((s, v) => s + (v - truthBase) ** 2, 0) / m;
+  const rmseSum = Math.sqrt(mseNext) + Math.sqrt(mseBase);
+  const estimate = (value: number, se: number): Estimate => ({ value, se });
+  return {
+    bias: { base: estimate(biasBase, Math.sqrt(b.variance / m)), next: estimate(biasNext, Math.sqrt(a.variance / m)), change: shift.mean, changeSe: Math.sqrt(shift.variance / m), paired: true },
+    sd: {
+      base: estimate(sdBase, NaN),
+      next: estimate(sdNext, NaN),
+      change: sdNext - sdBase,
+      changeSe: sdSum > 0 ? (Math.sqrt(uStats.variance / m) * (m / (m - 1))) / sdSum : 0,
+      paired: true,
+    },
+    rmse: {
+      base: estimate(Math.sqrt(mseBase), NaN),
+      next: estimate(Math.sqrt(mseNext), NaN),
+      change: Math.sqrt(mseNext) - Math.sqrt(mseBase),
+      changeSe: rmseSum > 0 ? Math.sqrt(dStats.variance / m) / rmseSum : 0,
+      paired: true,
+    },
+  };
+}
+
+/** x > tolerance beyond rounding: a shift of exactly the tolerance, computed as (e + t) − e, must not count. */
+function exceeds(x: number, tolerance: number): boolean {
+  return x - tolerance > 1e-12 * Math.max(1, Math.abs(x), tolerance);
 }
 
 function bitIdentical(a: (number | null)[], b: (number | null)[]): boolean {
@@ -218,61 +317,126 @@ function formatNumber(x: number): string {
   return Number.isFinite(x) ? String(+x.toPrecision(3)) : String(x);
 }
 
+/** New estimates more than WILD_FACTOR times the base's largest error from the truth, or whose squared error overflows. */
+function wildEstimates(base: Cell, next: Cell, truthBase: number, truthNext: number, toleranceNats: number): WildEstimate[] {
+  let largest = 0;
+  for (const v of base.estimates) if (v !== null) largest = Math.max(largest, Math.abs(v - truthBase));
+  const out: WildEstimate[] = [];
+  next.estimates.forEach((v, r) => {
+    if (v === null) return;
+    const error = Math.abs(v - truthNext);
+    const overflows = !Number.isFinite(error * error);
+    if (overflows || (error > WILD_FACTOR * largest && error - largest > toleranceNats)) {
+      out.push({ replicate: r, base: base.estimates[r] ?? null, next: v, ratio: largest > 0 ? error / largest : Infinity });
+    }
+  });
+  return out;
+}
+
+function failureChange(base: Cell, next: Cell, paired: boolean): FailureChange {
+  const failedBase = base.scores.failures;
+  const failedNext = next.scores.failures;
+  if (!paired) {
+    const p = failedBase + failedNext === 0 ? null : fisherExact(failedNext, next.estimates.length - failedNext, failedBase, base.estimates.length - failedBase);
+    return { base: failedBase, next: failedNext, onlyNext: null, onlyBase: null, p };
+  }
+  let onlyNext = 0;
+  let onlyBase = 0;
+  base.estimates.forEach((b, r) => {
+    const a = next.estimates[r];
+    if (a === null && b !== null) onlyNext++;
+    if (b === null && a !== null) onlyBase++;
+  });
+  return { base: failedBase, next: failedNext, onlyNext, onlyBase, p: failedBase + failedNext === 0 ? null : signTest(onlyNext, onlyBase).p };
+}
+
 function compareCell(base: Cell, next: Cell, truthBase: number, truthNext: number, pairedRuns: boolean, tolerance: Tolerance, level: number): CellComparison {
   const reasons: string[] = [];
   const paired = pairedRuns && base.estimates.length === next.estimates.length;
   if (pairedRuns && !paired) reasons.push(`unpaired: ${base.estimates.length} vs ${next.estimates.length} replicates`);
   if (truthBase !== truthNext) reasons.push(`the true value changed (${truthBase} → ${truthNext}); each run is scored against its own`);
+  const alpha = 1 - level;
+  const testLevel = alpha / (paired ? 3 : 2);
 
   let test: TTest | null;
   let shift: Estimate | null = null;
+  let sign: SignTest | null = null;
+  let medianChange: number | null = null;
+  let changes = { bias: unpairedChange(base.scores.bias, next.scores.bias), sd: unpairedChange(base.scores.sd, next.scores.sd), rmse: unpairedChange(base.scores.rmse, next.scores.rmse) };
+  let common = 0;
   if (paired) {
-    const differences: number[] = [];
-    const shifts: number[] = [];
+    const nextValues: number[] = [];
+    const baseValues: number[] = [];
     base.estimates.forEach((b, r) => {
       const a = next.estimates[r];
       if (a === null || b === null) return;
-      differences.push((a - truthNext) ** 2 - (b - truthBase) ** 2);
-      shifts.push(a - b);
+      nextValues.push(a);
+      baseValues.push(b);
     });
-    test = pairedTTest(differences, level);
-    const shiftTest = pairedTTest(shifts, level);
+    common = nextValues.length;
+    const differences = nextValues.map((a, r) => (a - truthNext) ** 2 - (baseValues[r] - truthBase) ** 2);
+    test = pairedTTest(differences, 1 - testLevel);
+    sign = signTestOf(differences);
+    const errorChanges = nextValues.map((a, r) => Math.abs(a - truthNext) - Math.abs(baseValues[r] - truthBase)).sort((x, y) => x - y);
+    medianChange = errorChanges.length ? (errorChanges[(errorChanges.length - 1) >> 1] + errorChanges[errorChanges.length >> 1]) / 2 : null;
+    const shiftTest = pairedTTest(nextValues.map((a, r) => a - baseValues[r]), level);
     shift = shiftTest ? { value: shiftTest.difference, se: shiftTest.se } : null;
+    const paired = pairedChanges(nextValues, baseValues, truthNext, truthBase);
+    if (paired) changes = paired;
+    if (common < Math.min(base.scores.successes, next.scores.successes)) reasons.push(`changes are over the ${common} replicates where both runs succeeded`);
   } else {
-    test = welchTTest(squaredErrors(next, truthNext), squaredErrors(base, truthBase), level);
+    test = welchTTest(squaredErrors(next, truthNext), squaredErrors(base, truthBase), 1 - testLevel);
   }
 
-  const rmse = scoreChange(base.scores.rmse, next.scores.rmse);
+  const rmse = changes.rmse;
   const toleranceNats = tolerance.kind === 'nats' ? tolerance.value : tolerance.value * base.scores.rmse.value;
-  const failureRate = (c: Cell) => (c.estimates.length ? c.scores.failures / c.estimates.length : 0);
-  const failuresRose = failureRate(next) > failureRate(base);
-  const failuresFell = failureRate(next) < failureRate(base);
-  const significant = test !== null && (test.interval[0] > 0 || test.interval[1] < 0);
-  const beyondTolerance = Math.abs(rmse.change) > toleranceNats;
-  const pct = `${+(level * 100).toPrecision(6)}%`;
+  const wild = wildEstimates(base, next, truthBase, truthNext, toleranceNats);
+  const failures = failureChange(base, next, paired);
+  const pct = (x: number) => `${+(x * 100).toPrecision(4)}%`;
   const testName = paired ? 'mean paired difference of squared errors' : 'difference of mean squared errors';
+  const significant = test !== null && (test.interval[0] > 0 || test.interval[1] < 0);
+  const beyondTolerance = exceeds(Math.abs(rmse.change), toleranceNats);
+  const meanVerdict = significant && beyondTolerance ? (test!.difference > 0 ? 'worse' : 'improved') : null;
+  const signVerdict = sign && sign.p <= testLevel && medianChange !== null && exceeds(Math.abs(medianChange), toleranceNats) ? (sign.above > sign.below ? 'worse' : 'improved') : null;
+  const failureVerdict = failures.p !== null && failures.p <= testLevel ? (failures.next > failures.base ? 'worse' : 'improved') : null;
+
+  const meanReason = () => `the ${pct(1 - testLevel)} interval of the ${testName} excludes 0 (p = ${formatNumber(test!.p)}) and |ΔRMSE| = ${formatNumber(Math.abs(rmse.change))} exceeds the tolerance ${formatNumber(toleranceNats)} nats`;
+  const signReason = () => `${sign!.above > sign!.below ? sign!.above : sign!.below} of ${sign!.above + sign!.below} changed replicates got ${sign!.above > sign!.below ? 'worse' : 'better'} (sign test p = ${formatNumber(sign!.p)} ≤ ${formatNumber(testLevel)}; median change of |error| ${formatNumber(medianChange!)} nats)`;
+  const failureReason = () =>
+    paired
+      ? `failures ${failures.base} → ${failures.next} of ${next.estimates.length}: ${failures.onlyNext} replicates fail only in the new run, ${failures.onlyBase} only in the base (exact McNemar p = ${formatNumber(failures.p!)})`
+      : `failures ${failures.base} of ${base.estimates.length} → ${failures.next} of ${next.estimates.length} (Fisher exact p = ${formatNumber(failures.p!)})`;
 
   let status: CellStatus;
   if (bitIdentical(base.estimates, next.estimates)) {
     status = 'unchanged';
     reasons.unshift('every estimate is bit-identical');
-  } else if (failuresRose) {
+  } else if (wild.length) {
     status = 'worse';
-    reasons.unshift(`failures rose from ${base.scores.failures} to ${next.scores.failures} of ${next.estimates.length}`);
-  } else if (significant && beyondTolerance) {
-    status = test!.difference > 0 ? 'worse' : 'improved';
-    reasons.unshift(`the ${pct} interval of the ${testName} excludes 0 (p = ${formatNumber(test!.p)}) and |ΔRMSE| = ${formatNumber(Math.abs(rmse.change))} exceeds the tolerance ${formatNumber(toleranceNats)} nats`);
-  } else if (failuresFell) {
+    const w = wild[0];
+    const where = w.base === null ? 'where the base run failed' : `where the base gave ${formatNumber(w.base)}`;
+    reasons.unshift(
+      `${wild.length} wild estimate${wild.length === 1 ? '' : 's'}: replicate ${w.replicate} gave ${formatNumber(w.next)} ${where}, ${Number.isFinite(w.ratio) ? `${formatNumber(w.ratio)} times` : 'far beyond'} the base run's largest error in this cell${Number.isFinite((w.next - truthNext) ** 2) ? '' : ' (its squared error overflows)'}`,
+    );
+  } else if (meanVerdict === 'worse' || signVerdict === 'worse' || failureVerdict === 'worse') {
+    status = 'worse';
+    if (failureVerdict === 'worse') reasons.unshift(failureReason());
+    if (signVerdict === 'worse') reasons.unshift(signReason());
+    if (meanVerdict === 'worse') reasons.unshift(meanReason());
+  } else if (meanVerdict === 'improved' || signVerdict === 'improved' || failureVerdict === 'improved') {
     status = 'improved';
-    reasons.unshift(`failures fell from ${base.scores.failures} to ${next.scores.failures} of ${next.estimates.length}`);
-  } else if (paired && test !== null && test.difference === 0) {
+    if (failureVerdict === 'improved') reasons.unshift(failureReason());
+    if (signVerdict === 'improved') reasons.unshift(signReason());
+    if (meanVerdict === 'improved') reasons.unshift(meanReason());
+  } else if (paired && test !== null && test.difference === 0 && failures.base === failures.next && failures.onlyNext === 0) {
     status = 'unchanged';
     reasons.unshift('the mean paired difference of squared errors is exactly 0');
   } else {
     status = 'changed-within-noise';
+    if (failures.next !== failures.base) reasons.unshift(`${failureReason()}, not significant at ${formatNumber(testLevel)}`);
     if (test === null) reasons.unshift('too few successful replicates for a test');
     else if (significant) reasons.unshift(`significant (p = ${formatNumber(test.p)}) but |ΔRMSE| = ${formatNumber(Math.abs(rmse.change))} is within the tolerance ${formatNumber(toleranceNats)} nats`);
-    else reasons.unshift(`the ${pct} interval of the ${testName} includes 0 (p = ${formatNumber(test.p)})`);
+    else reasons.unshift(`the ${pct(1 - testLevel)} interval of the ${testName} includes 0 (p = ${formatNumber(test.p)})${sign ? `; sign test ${sign.above} worse, ${sign.below} better (p = ${formatNumber(sign.p)})` : ''}`);
   }
 
   return {
@@ -285,12 +449,16 @@ function compareCell(base: Cell, next: Cell, truthBase: number, truthNext: numbe
     paired,
     truth: { base: truthBase, next: truthNext },
     replicates: { base: base.estimates.length, next: next.estimates.length },
-    failures: { base: base.scores.failures, next: next.scores.failures },
-    bias: scoreChange(base.scores.bias, next.scores.bias),
-    sd: scoreChange(base.scores.sd, next.scores.sd),
+    failures,
+    bias: changes.bias,
+    sd: changes.sd,
     rmse,
     shift,
     test,
+    sign,
+    medianChange,
+    wild,
+    testLevel,
     toleranceNats,
   };
 }
@@ -350,17 +518,23 @@ export function compareRuns(base: RunFile, next: RunFile, options: CompareOption
 }
 
 /**
- * Cells that fail a CI policy: 'worse' fails worse cells (failures rising, or significantly larger squared
- * errors beyond the tolerance); 'changed' fails every cell that is not bit-identical (or exactly equal in
- * mean squared error), which guards refactorings that should not move any number.
+ * Cells that fail a CI policy: 'worse' fails worse cells (see the file comment for the tests and the wild
+ * rule); 'changed' fails every cell that is not bit-identical (or exactly equal in mean squared error), which
+ * guards refactorings that should not move any number.
  */
 export function failingCells(comparison: Comparison, failOn: FailOn): CellComparison[] {
   return comparison.cells.filter((c) => (failOn === 'worse' ? c.status === 'worse' : c.status !== 'unchanged'));
 }
 
-/** Whether the comparison fails the policy; under 'changed' a cell added or removed fails too. */
-export function failsPolicy(comparison: Comparison, failOn: FailOn): boolean {
-  return failingCells(comparison, failOn).length > 0 || (failOn === 'changed' && comparison.added.length + comparison.removed.length > 0);
+/**
+ * Whether the comparison fails the policy. A cell of the base run missing from the new one fails either
+ * policy (a regression that removes its own evidence must not pass) unless `allowMissing`; a cell only in
+ * the new run fails 'changed'.
+ */
+export function failsPolicy(comparison: Comparison, failOn: FailOn, allowMissing = false): boolean {
+  const missing = allowMissing ? 0 : comparison.removed.length;
+  const added = failOn === 'changed' ? comparison.added.length : 0;
+  return failingCells(comparison, failOn).length > 0 || missing + added > 0;
 }
 
 export function parseFailOn(text: string): FailOn {

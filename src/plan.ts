@@ -12,6 +12,7 @@ import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from
 import { parseScenario } from '../scenarios/index.js';
 import { parsePerturbation } from './perturb.js';
 import { moduleDigest } from './modules.js';
+import { DEFAULT_VERDICTS, type VerdictSettings } from './ranking.js';
 import planSchema from './schemas/plan.schema.json' with { type: 'json' };
 
 export interface Plan {
@@ -28,6 +29,8 @@ export interface Plan {
   robustness: RobustnessPlan | null;
   /** Absolute paths of the user's estimator modules, loaded before the plan resolves (and in every worker). */
   modules: string[];
+  /** How ranks and best sets are decided; not part of the fingerprint, since they change no estimate. */
+  verdicts: VerdictSettings;
 }
 
 export interface RobustnessPlan {
@@ -73,6 +76,7 @@ export interface PlanInput {
   seed?: number;
   robustness?: { sampleSize?: number; perturbations?: string[]; tuning?: boolean } | null;
   modules?: string[];
+  verdicts?: Partial<VerdictSettings>;
 }
 
 /** `instancePath` /estimators/2/settings/k → estimators[2].settings.k */
@@ -196,6 +200,7 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
     seed: input.seed ?? DEFAULT_SEED,
     robustness,
     modules: input.modules ?? [],
+    verdicts: { ...DEFAULT_VERDICTS, ...input.verdicts },
   };
   return {
     plan,
@@ -251,6 +256,20 @@ export function parseIntegerOption(flag: string, text: string, min: number, max 
     const range = max === Number.MAX_SAFE_INTEGER ? `≥ ${min}` : `from ${min} to ${max}`;
     throw new UsageError(`${flag} ${text} is not allowed; it must be an integer ${range}`);
   }
+  return value;
+}
+
+/** A confidence level strictly between 0 and 1 (e.g. 0.95), for --level. */
+export function parseLevel(text: string, flag = '--level'): number {
+  const value = Number(text);
+  if (text.trim() === '' || !(value > 0 && value < 1)) throw new UsageError(`${flag} ${text} is not allowed; the confidence level is a number between 0 and 1 (e.g. 0.95)`);
+  return value;
+}
+
+/** A share from 0 to 1 inclusive (e.g. 0.05). */
+export function parseFraction(flag: string, text: string): number {
+  const value = Number(text);
+  if (text.trim() === '' || !(value >= 0 && value <= 1)) throw new UsageError(`${flag} ${text} is not allowed; it must be a number from 0 to 1 (e.g. 0.05 for 5%)`);
   return value;
 }
 

@@ -11,13 +11,14 @@ import { UsageError } from './errors.js';
 import { drawsFingerprint, readTextFile, type Plan } from './plan.js';
 import { environment, type Environment } from './provenance.js';
 import type { RunOutcome, Shard } from './runner.js';
-import { fitRate, pairedSquaredErrorDifference, scoreCell, type CellScores, type Estimate, type RateFit } from './score.js';
+import { fitRate, scoreCell, type CellScores, type Estimate, type RateFit } from './score.js';
+import { overallRanks, rankCells, type OverallRank, type Ranking } from './ranking.js';
 import type { Skip } from './work.js';
 import { buildContext } from './context.js';
 import runSchema from './schemas/run.schema.json' with { type: 'json' };
 import { robustnessSection, type RobustnessSection } from './robustness.js';
 
-export const SCHEMA_VERSION = 1;
+export const SCHEMA_VERSION = 2;
 
 export interface ScenarioInfo {
   id: string;
@@ -55,34 +56,11 @@ export interface Cell {
   timing: { totalMs: number; meanMs: number };
 }
 
-export interface RankEntry {
-  estimator: string;
-  rank: number;
-  /** True when the paired test cannot separate it from the entry above (|z| < 2). */
-  tiedWithAbove: boolean;
-  rmse: number;
-  rmseSe: number;
-  failures: number;
-}
-
-export interface Ranking {
-  scenario: string;
-  n: number;
-  perturbation: string | null;
-  entries: RankEntry[];
-}
-
 export interface Rate {
   scenario: string;
   estimator: string;
   bias: RateFit | null;
   rmse: RateFit | null;
-}
-
-export interface OverallRank {
-  estimator: string;
-  /** Average rank per group "d=1/light" etc., with the number of rankings averaged. */
-  groups: Record<string, { meanRank: number; rankings: number }>;
 }
 
 export interface RunFile {
@@ -107,9 +85,6 @@ export interface RunFile {
   overall: OverallRank[];
   robustness: RobustnessSection | null;
 }
-
-/** z beyond which a paired difference of squared errors separates two estimators. */
-export const TIE_Z = 2;
 
 function scenarioInfo(s: Scenario): ScenarioInfo {
   return {
@@ -208,7 +183,9 @@ export function finishRun(base: Omit<RunFile, 'schemaVersion' | 'kind' | 'create
     cell.scores = scoreCell(values, info.truth + (cell.shift ?? 0), cell.n, cell.role === 'main' ? (info.logDensityVariance ?? undefined) : undefined);
   }
   const main = base.cells.filter((c) => c.role === 'main');
-  const rankings = base.complete ? rank(main, truth) : [];
+  const rankings = base.complete
+    ? rankCells(main, (id) => truth.get(id)!.truth, base.plan.verdicts, (scenario, n) => `seed=${base.plan.seed}\nscenario=${scenario}\nn=${n}`)
+    : [];
   return {
     schemaVersion: SCHEMA_VERSION,
     kind: 'hhat-run',
@@ -218,46 +195,9 @@ export function finishRun(base: Omit<RunFile, 'schemaVersion' | 'kind' | 'create
     drawsFingerprint: drawsFingerprint(base.plan),
     rates: rates(main),
     rankings,
-    overall: overall(rankings, truth),
+    overall: overallRanks(rankings, (id) => groupName(truth.get(id)!)),
     robustness: base.complete && base.plan.robustness ? robustnessSection(base.plan, base.cells, truth) : null,
   };
-}
-
-function asNaN(values: (number | null)[]): number[] {
-  return values.map((v) => (v === null ? NaN : v));
-}
-
-function rank(cells: Cell[], scenarios: Map<string, ScenarioInfo>): Ranking[] {
-  const groups = new Map<string, Cell[]>();
-  for (const c of cells) {
-    const k = `${c.scenario}|${c.n}|${c.perturbation ?? ''}`;
-    if (!groups.has(k)) groups.set(k, []);
-    groups.get(k)!.push(c);
-  }
-  const out: Ranking[] = [];
-  for (const group of groups.values()) {
-    const truth = scenarios.get(group[0].scenario)!.truth;
-    const usable = group.filter((c) => Number.isFinite(c.scores.rmse.value));
-    usable.sort((a, b) => a.scores.rmse.value - b.scores.rmse.value || a.estimator.localeCompare(b.estimator));
-    const entries: RankEntry[] = [];
-    usable.forEach((c, i) => {
-      let tied = false;
-      if (i > 0) {
-        const d = pairedSquaredErrorDifference(asNaN(c.estimates), asNaN(usable[i - 1].estimates), truth);
-        tied = !(Math.abs(d.value) > TIE_Z * d.se);
-      }
-      entries.push({
-        estimator: c.estimator,
-        rank: tied ? entries[i - 1].rank : i + 1,
-        tiedWithAbove: tied,
-        rmse: c.scores.rmse.value,
-        rmseSe: c.scores.rmse.se,
-        failures: c.scores.failures,
-      });
-    });
-    out.push({ scenario: group[0].scenario, n: group[0].n, perturbation: group[0].perturbation, entries });
-  }
-  return out;
 }
 
 function rates(cells: Cell[]): Rate[] {
@@ -285,26 +225,6 @@ export function groupName(info: ScenarioInfo): string {
 /** The groups (dimension / tail class) that hold an overall rank, in the order of the run's scenarios. */
 export function rankedGroups(run: Pick<RunFile, 'scenarios' | 'overall'>): string[] {
   return [...new Set(run.scenarios.map(groupName))].filter((g) => run.overall.some((o) => o.groups[g]));
-}
-
-function overall(rankings: Ranking[], scenarios: Map<string, ScenarioInfo>): OverallRank[] {
-  const table = new Map<string, Map<string, { sum: number; count: number }>>();
-  for (const ranking of rankings) {
-    if (ranking.perturbation !== null) continue;
-    const group = groupName(scenarios.get(ranking.scenario)!);
-    for (const entry of ranking.entries) {
-      if (!table.has(entry.estimator)) table.set(entry.estimator, new Map());
-      const row = table.get(entry.estimator)!;
-      const cell = row.get(group) ?? { sum: 0, count: 0 };
-      cell.sum += entry.rank;
-      cell.count += 1;
-      row.set(group, cell);
-    }
-  }
-  return [...table.entries()].map(([estimator, row]) => ({
-    estimator,
-    groups: Object.fromEntries([...row.entries()].map(([g, { sum, count }]) => [g, { meanRank: sum / count, rankings: count }])),
-  }));
 }
 
 /** JSON with NaN and ±Infinity written as null (JSON has no such numbers). */
@@ -351,4 +271,5 @@ export function readRunFile(path: string): RunFile {
   return value as unknown as RunFile;
 }
 
-export type { Estimate };
+export type { Estimate, OverallRank, Ranking };
+export type { RankEntry } from './ranking.js';

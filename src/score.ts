@@ -140,19 +140,3 @@ export function fitRate(points: { n: number; value: number; se: number }[]): Rat
   if (sxx === 0) return null;
   return { slope: sxy / sxx, se: Math.sqrt(1 / sxx), sizes: usable.length };
 }
-
-/**
- * Paired comparison of two estimators on the same draws: the mean difference of squared errors and its SE.
- * Replicates where either failed are left out. Positive: the first has the larger squared error.
- */
-export function pairedSquaredErrorDifference(a: ArrayLike<number>, b: ArrayLike<number>, truth: number): Estimate & { pairs: number } {
-  const diffs: number[] = [];
-  for (let i = 0; i < Math.min(a.length, b.length); i++) {
-    if (Number.isFinite(a[i]) && Number.isFinite(b[i])) diffs.push((a[i] - truth) ** 2 - (b[i] - truth) ** 2);
-  }
-  const m = diffs.length;
-  if (m < 2) return { value: NaN, se: NaN, pairs: m };
-  const mean = diffs.reduce((s, d) => s + d, 0) / m;
-  const variance = diffs.reduce((s, d) => s + (d - mean) ** 2, 0) / (m - 1);
-  return { value: mean, se: Math.sqrt(variance / m), pairs: m };
-}

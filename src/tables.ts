@@ -6,6 +6,7 @@ import { formatValue, renderTable, shorten, toBase, type Base } from './format.j
 import { getEstimator } from '../estimators/index.js';
 import { parseSpec } from './spec.js';
 import { rankedGroups, type Cell, type RunFile } from './results.js';
+import { COLUMN_TITLES, rankText, robustnessText, smallestQuantizeStep } from './verdict-text.js';
 
 /** The estimator's id plus only the settings that differ from their defaults. */
 export function estimatorLabel(spec: string): string {
@@ -34,16 +35,13 @@ export function scenarioTables(run: RunFile, base: Base): string {
     const estimators = [...new Set(cells.map((c) => c.estimator))];
     const rankOf = new Map<string, string>();
     for (const ranking of run.rankings.filter((r) => r.scenario === info.id && r.perturbation === null)) {
-      const tiedBelow = new Set<number>();
-      ranking.entries.forEach((_e, i) => {
-        if (i + 1 < ranking.entries.length && ranking.entries[i + 1].tiedWithAbove) tiedBelow.add(i);
-      });
-      ranking.entries.forEach((e, i) => rankOf.set(`${e.estimator}|${ranking.n}`, `${e.rank}${e.tiedWithAbove || tiedBelow.has(i) ? '=' : ''}`));
+      for (const e of ranking.entries) rankOf.set(`${e.estimator}|${ranking.n}`, rankText(e, ranking));
     }
     const largest = sizes[sizes.length - 1];
+    // Rows in the printed order of the ranking at the largest n: best set, the rest by RMSE, then failed.
     const finalRanking = run.rankings.find((r) => r.scenario === info.id && r.perturbation === null && r.n === largest);
-    const finalRank = (spec: string) => finalRanking?.entries.find((e) => e.estimator === spec)?.rank ?? Number.MAX_SAFE_INTEGER;
-    estimators.sort((a, b) => finalRank(a) - finalRank(b));
+    const position = new Map(finalRanking?.entries.map((e, i) => [e.estimator, i]) ?? []);
+    estimators.sort((a, b) => (position.get(a) ?? Number.MAX_SAFE_INTEGER) - (position.get(b) ?? Number.MAX_SAFE_INTEGER));
     const rows = estimators.map((spec) => {
       const row: string[] = [estimatorLabel(spec)];
       for (const n of sizes) {
@@ -52,8 +50,7 @@ export function scenarioTables(run: RunFile, base: Base): string {
           row.push('');
           continue;
         }
-        const fail = cell.scores.failures ? ` (${cell.scores.failures} failed)` : '';
-        row.push(`${pm(cell.scores.rmse.value, cell.scores.rmse.se, base)}  ${rankOf.get(`${spec}|${n}`) ?? '–'}${fail}`);
+        row.push(`${pm(cell.scores.rmse.value, cell.scores.rmse.se, base)}  ${rankOf.get(`${spec}|${n}`) ?? '–'}`);
       }
       const atLargest = cells.find((c) => c.estimator === spec && c.n === largest);
       row.push(atLargest ? pm(atLargest.scores.bias.value, atLargest.scores.bias.se, base) : '');
@@ -74,19 +71,23 @@ export function scenarioTables(run: RunFile, base: Base): string {
   return out.join('\n');
 }
 
+/** Average ranks per dimension/tail group and over all cells, with how many cells each average holds. */
 export function overallTable(run: RunFile): string {
   if (!run.overall.length) return '';
   const groups = rankedGroups(run);
-  const rows = run.overall.map((o) => {
-    const ranks = groups.map((g) => o.groups[g]);
-    const all = ranks.filter(Boolean) as { meanRank: number; rankings: number }[];
-    const mean = all.reduce((s, r) => s + r.meanRank * r.rankings, 0) / Math.max(1, all.reduce((s, r) => s + r.rankings, 0));
-    return { label: estimatorLabel(o.estimator), mean, cells: ranks.map((r) => (r ? r.meanRank.toFixed(1) : '')) };
-  });
-  rows.sort((a, b) => a.mean - b.mean);
+  const rows = run.overall.map((o) => ({
+    label: estimatorLabel(o.estimator),
+    mean: o.all.meanRank,
+    cells: groups.map((g) => {
+      const r = o.groups[g];
+      return r ? `${r.meanRank.toFixed(1)} (${r.cells}${r.failedCells ? `, ${r.failedCells} failed` : ''})` : 'n/a';
+    }),
+    all: `${o.all.meanRank.toFixed(1)} (${o.all.cells}${o.all.failedCells ? `, ${o.all.failedCells} failed` : ''})`,
+  }));
+  rows.sort((a, b) => a.mean - b.mean || a.label.localeCompare(b.label));
   return [
-    'Average rank by RMSE (1 = best) per dimension and tail class, over scenarios and sample sizes:',
-    renderTable(['estimator', ...groups, 'all'], rows.map((r) => [r.label, ...r.cells, r.mean.toFixed(1)]), {
+    'Average rank (1 = best) per dimension and tail class, over scenarios and sample sizes; in brackets the cells averaged and how many of them it failed (ranked last). n/a: cannot run there by design.',
+    renderTable(['estimator', ...groups, 'all'], rows.map((r) => [r.label, ...r.cells, r.all]), {
       align: ['left', ...groups.map(() => 'right' as const), 'right'],
     }),
   ].join('\n');
@@ -145,39 +146,17 @@ export function scoresCsv(run: RunFile, base: Base): string {
   return `${header.join(',')}\n${lines.join('\n')}\n`;
 }
 
-const COLUMN_TITLES: Record<string, string> = {
-  rescale: 'rescale: unit drift',
-  monotone: 'monotone: Δbias',
-  affine: 'affine: Δbias',
-  quantize: 'quantize: safe δ/σ',
-  contaminate: 'outliers: per 1%',
-  tuning: 'tuning spread',
-};
-
-function shortValue(column: string, value: number | null): string {
-  if (value === null || !Number.isFinite(value)) return '';
-  switch (column) {
-    case 'rescale':
-      return value === 0 ? '0' : value.toExponential(0);
-    case 'quantize':
-      return value === 0 ? '<min' : `${value}`;
-    case 'contaminate':
-      return `${formatValue(value, 2)} nats`;
-    default:
-      return `${formatValue(value, 2)} SD`;
-  }
-}
-
 /** One row per estimator, one column per perturbation kind and tuning: verdict and the worst value. */
 export function robustnessTable(run: RunFile): string {
   const section = run.robustness;
   if (!section) return '';
   const columns = ['rescale', 'monotone', 'affine', 'quantize', 'contaminate', 'tuning'].filter((c) => section.table.some((r) => r.columns[c]?.verdict !== 'n/a'));
+  const finest = smallestQuantizeStep(section);
   const rows = section.table.map((row) => [
     estimatorLabel(row.estimator),
     ...columns.map((c) => {
       const cell = row.columns[c];
-      return cell.verdict === 'n/a' ? '–' : `${cell.verdict} ${shortValue(c, cell.value)}`.trim();
+      return robustnessText(c, cell.verdict, cell.value, finest);
     }),
   ]);
   return [

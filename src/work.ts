@@ -52,8 +52,17 @@ export interface WorkContext {
   prepared: (PreparedPerturbation | { skip: string })[][];
 }
 
-/** About this many sample points per unit: small enough to balance two workers, large enough to amortise messages. */
-const POINTS_PER_UNIT = 20000;
+/**
+ * About this many coordinates (points × dimension) per unit: small enough to balance two workers, large
+ * enough to amortise messages. Estimator cost grows with both n and d, so high-dimensional cells get smaller
+ * blocks of replicates and still spread over the workers.
+ */
+const COORDINATES_PER_UNIT = 20000;
+
+/** Replicates per unit of a cell with n points in dim dimensions. */
+export function replicatesPerUnit(n: number, dim: number, replicates: number): number {
+  return Math.max(1, Math.min(replicates, Math.floor(COORDINATES_PER_UNIT / (n * dim))));
+}
 
 /** Why an estimator cannot run on a scenario, or null when it can. */
 export function incompatibility(estimator: ConfiguredEstimator, scenario: Scenario): string | null {
@@ -93,7 +102,7 @@ export function planUnits(context: WorkContext): { units: Unit[]; skipped: Skip[
     for (const n of plan.sampleSizes) {
       const series: Series[] = runnable.map((e) => ({ variant: 0, estimator: e }));
       if (n === robustnessN) series.push(...tuned.map((e) => ({ variant: 0, estimator: e })), ...perturbed);
-      const block = Math.max(1, Math.min(plan.replicates, Math.floor(POINTS_PER_UNIT / n)));
+      const block = replicatesPerUnit(n, scenario.dim, plan.replicates);
       for (let start = 0; start < plan.replicates; start += block) {
         const end = Math.min(plan.replicates, start + block);
         units.push({ index: units.length, scenario: s, n, repStart: start, repEnd: end, series, cost: (end - start) * n * scenario.dim * series.length });

@@ -13,6 +13,8 @@ import { describe, expect, it } from 'vitest';
 import { rngFromSeed } from '../src/rng.js';
 import { parseScenario } from '../scenarios/index.js';
 import { adviseFile } from '../src/advise/file.js';
+import { adviseSetting } from '../src/advise/setting.js';
+import { UsageError } from '../src/errors.js';
 
 const cases: { spec: string; n: number; trials: number }[] = [
   { spec: 'gaussian-mixture:w1=0.7,mu1=0,sigma1=1,w2=0.3,mu2=6,sigma2=0.5', n: 400, trials: 200 },
@@ -40,3 +42,29 @@ describe('bootstrap intervals of hhat advise FILE', () => {
     }, 1_800_000);
   }
 });
+
+describe('hhat advise keeps to its time budget', () => {
+  // Setting advice at growing cost: its wall time must stay within 20% of --budget, or the budget is refused
+  // (a usage error that names the budget it would need) before it is spent.
+  const settings = [
+    { n: 2000, dim: 3, budget: 6 },
+    { n: 600, dim: 200, budget: 8 },
+    { n: 600, dim: 500, budget: 5 },
+    { n: 600, dim: 500, budget: 15 },
+  ];
+  for (const { n, dim, budget } of settings) {
+    it.skipIf(!process.env.HHAT_SLOW)(`--n ${n} --dim ${dim} --budget ${budget}`, async () => {
+      const started = performance.now();
+      try {
+        const advice = await adviseSetting({ n, dim, budgetSeconds: budget });
+        console.log(`advise --n ${n} --dim ${dim} --budget ${budget}: ${advice.seconds.toFixed(1)} s, ${advice.benchmark.replicates} replicates, warnings: ${advice.warnings.length}`);
+      } catch (error) {
+        expect(error).toBeInstanceOf(UsageError);
+        expect((error as Error).message).toMatch(new RegExp(`^--budget ${budget} is too small here: .* give --budget \\d+ or more$`));
+        console.log(`advise --n ${n} --dim ${dim} --budget ${budget}: refused after ${((performance.now() - started) / 1000).toFixed(1)} s: ${(error as Error).message}`);
+      }
+      expect((performance.now() - started) / 1000).toBeLessThanOrEqual(budget * 1.2);
+    }, 120_000);
+  }
+});
+

@@ -302,7 +302,7 @@ describe('advise FILE on held-out scenarios', () => {
       const run = assembleRun(await runPlan(plan), null);
       const rmse = new Map(run.cells.filter((c) => c.role === 'main').map((c) => [c.estimator, c.scores.rmse.value]));
       const best = Math.min(...[...rmse.values()].filter(Number.isFinite));
-      const chosen = rmse.get(advice.recommendation.recommended.estimator)!;
+      const chosen = rmse.get(advice.recommendation.recommended!.estimator)!;
       expect(chosen / best).toBeLessThan(1.5);
     });
   }
@@ -318,8 +318,8 @@ describe('advise FILE on data a Gaussian mixture cannot imitate', () => {
     // Whatever is recommended, the value reported is one that the chosen estimator really gave on these data.
     const used = advice.userEstimates.find((u) => u.estimator === advice.estimate!.estimator)!;
     expect(used.value).toBe(advice.estimate!.value);
-    if (advice.estimate!.estimator !== advice.recommendation.recommended.estimator) {
-      expect(advice.warnings.some((w) => w.startsWith(`${advice.recommendation.recommended.label} fails on your data`))).toBe(true);
+    if (advice.estimate!.estimator !== advice.recommendation.recommended!.estimator) {
+      expect(advice.warnings.some((w) => w.startsWith(`${advice.recommendation.recommended!.label} fails on your data`))).toBe(true);
     }
   });
 });
@@ -350,10 +350,54 @@ describe('advise for a setting', () => {
     }
     const sorted = advice.estimators.map((s) => s.meanRmse.value).filter(Number.isFinite);
     expect(sorted).toEqual([...sorted].sort((a, b) => a - b));
-    const eligible = advice.estimators.filter((s) => s.failureRate <= 0.01 && Number.isFinite(s.meanRmse.value));
+    // The run's failure rule (maxFailureRate 0): an estimator that failed any draw of a scenario is not recommended.
+    const eligible = advice.estimators.filter((s) => s.scenarios.every((c) => c.failures === 0) && Number.isFinite(s.meanRmse.value));
     expect(advice.recommendation.recommended).toBe(eligible[0]);
     expect(advice.recommendation.reason).toMatch(new RegExp(`^${eligible[0].label} has the lowest mean RMSE`));
     expect(truths.size).toBe(3);
+  });
+});
+
+describe('advice that no estimator is usable', () => {
+  it('n ≤ d: says so at once, without a benchmark, well within the budget (advise --n 100 --dim 500)', async () => {
+    let out = '';
+    const started = performance.now();
+    const code = await main(['advise', '--n', '100', '--dim', '500', '--budget', '5'], { out: (t) => (out += `${t}\n`), err: () => {} });
+    const seconds = (performance.now() - started) / 1000;
+    expect(code).toBe(0);
+    expect(seconds).toBeLessThan(5);
+    expect(out).toMatch(/No estimator is usable here: n = 100 points in d = 500 dimensions lie in a flat of at most 99 dimensions/);
+    expect(out).not.toMatch(/Recommended:/);
+    let json = '';
+    await main(['advise', '--n', '100', '--dim', '500', '--json'], { out: (t) => (json += t), err: () => {} });
+    expect(JSON.parse(json)).toMatchObject({ recommended: null, replicates: 0, estimators: [] });
+  });
+
+  it('every RMSE above the spread of the true values: no recommendation, and the reason names both numbers', async () => {
+    // Two normal laws whose entropies differ by log(1.01) (closed form ½·log(2πeσ²)): an SD of log(1.01)/2 = 0.004975
+    // nats. At n = 50 every estimator's RMSE is far above that.
+    const { runTargeted } = await import('../src/advise/benchmark.js');
+    const { summarise, recommend } = await import('../src/advise/recommend.js');
+    const bench = await runTargeted({ scenarios: ['normal', 'normal:sigma=1.01'], estimators: applicableEstimators(1), n: 50, budgetSeconds: 30, minReplicates: 10, maxReplicates: 10, workers: 1 });
+    const summaries = summarise(bench.run);
+    const recommendation = recommend(bench.run, summaries);
+    expect(recommendation.recommended).toBeNull();
+    const spread = Math.log(1.01) / 2;
+    expect(recommendation.reason).toMatch(new RegExp(`larger than the spread of the true values over the matching scenarios \\(SD ${spread.toPrecision(2)} nats\\)`));
+    expect(Math.min(...summaries.map((x) => x.meanRmse.value).filter(Number.isFinite))).toBeGreaterThan(spread);
+  });
+
+  it('advise FILE with n ≤ d: one line, exit 1, no look-alike attempted', async () => {
+    const { mkdtempSync, writeFileSync } = await import('node:fs');
+    const { tmpdir } = await import('node:os');
+    const file = join(mkdtempSync(join(tmpdir(), 'hhat-advise-')), 'wide.csv');
+    const z = normals('wide', 20 * 30);
+    writeFileSync(file, Array.from({ length: 20 }, (_, i) => Array.from(z.subarray(i * 30, i * 30 + 30)).join(',')).join('\n'));
+    let err = '';
+    const code = await main(['advise', file], { out: () => {}, err: (t) => (err += `${t}\n`) });
+    expect(code).toBe(1);
+    expect(err.trim().split('\n')).toHaveLength(1);
+    expect(err).toMatch(/no estimator is usable on this file: n = 20 points in d = 30 dimensions/);
   });
 });
 

@@ -9,7 +9,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { XMLParser } from 'fast-xml-parser';
 import { main } from '../src/cli.js';
 import { compareRuns, failsPolicy, pairedTTest, parseTolerance, welchTTest, type Comparison } from '../src/compare.js';
-import { escapeXml, formatComparisonJunit, formatComparisonMarkdown, formatP } from '../src/compare-format.js';
+import { escapeXml, formatComparisonJson, formatComparisonJunit, formatComparisonMarkdown, formatP } from '../src/compare-format.js';
 import { resolvePlan, type PlanInput } from '../src/plan.js';
 import { runPlan } from '../src/runner.js';
 import { assembleRun, writeRunFile, type RunFile } from '../src/results.js';
@@ -18,6 +18,8 @@ import { UsageError } from '../src/errors.js';
 import { getEstimator, replaceEstimator } from '../estimators/index.js';
 import { useEstimatorModules } from '../src/modules.js';
 import { shiftedKozachenkoLeonenko } from './fixtures/shifted-kozachenko-leonenko.js';
+import { wildKozachenkoLeonenko } from './fixtures/wild-kozachenko-leonenko.js';
+import { fisherExact, signTest } from '../src/exact-tests.js';
 import scipy from './fixtures/compare.json' with { type: 'json' };
 
 const dir = mkdtempSync(join(tmpdir(), 'hhat-compare-'));
@@ -72,6 +74,15 @@ describe('t tests (reference: SciPy, test/fixtures/make_compare_fixture.py)', ()
     const unitSe = (m: number) => [0, ...Array.from({ length: m - 1 }, (_, i) => (i % 2 ? 1 : -1) * Math.sqrt(m))];
     expect(pairedTTest(unitSe(11))!.interval[1]).toBeCloseTo(2.228, 3);
     expect(pairedTTest(unitSe(5), 0.9)!.interval[1]).toBeCloseTo(2.132, 3);
+  });
+
+  it.each(scipy.sign.map((r) => [r.above, r.below, r] as const))('sign test %i worse against %i better (scipy.stats.binomtest, p = ½)', (_a, _b, ref) => {
+    expect(relative(signTest(ref.above, ref.below).p, ref.p)).toBeLessThan(1e-10);
+  });
+
+  it.each(scipy.fisher.map((r) => [JSON.stringify(r.table), r] as const))("Fisher's exact test on %s (scipy.stats.fisher_exact)", (_t, ref) => {
+    const [[a, b], [c, d]] = ref.table;
+    expect(relative(fisherExact(a, b, c, d), ref.p)).toBeLessThan(1e-10);
   });
 
   it('too few values give no test rather than NaN', () => {
@@ -161,7 +172,7 @@ describe('comparing runs', () => {
 
     const cli = await run(['compare', basePath, shiftedPath, '--fail-on', 'worse', '--markdown', '--junit', join(dir, 'junit.xml')]);
     expect(cli.code).toBe(1);
-    expect(cli.err.trim()).toBe('hhat compare: 12 cells are worse beyond the tolerance (--fail-on worse)');
+    expect(cli.err.trim()).toBe('hhat compare: 12 cells are worse (--fail-on worse)');
 
     // Markdown: the summary line first, then the changed cells, all of them KL and all worse.
     const lines = cli.out.split('\n');
@@ -191,24 +202,120 @@ describe('comparing runs', () => {
     expect((await run(['compare', basePath, shiftedPath, '--fail-on', 'changed', '--tolerance', '0.05'])).code).toBe(1);
   });
 
-  it('a cell whose failures rise is worse regardless of the tolerance; cells in one run only are listed', () => {
-    const next = structuredClone(base);
-    const cell = next.cells.find((c) => c.estimator.startsWith('vasicek') && c.n === 200)!;
-    const truth = next.scenarios.find((s) => s.id === cell.scenario)!.truth;
-    cell.estimates[3] = null;
-    cell.failures.push({ replicate: 3, message: 'numeric: test' });
-    cell.scores = scoreCell(cell.estimates.map((v) => (v === null ? NaN : v)), truth, cell.n);
+  it('failures: one new failure is within noise, a significant rise is worse whatever the tolerance; cells in one run only are listed and missing ones fail', () => {
+    const withFailures = (replicates: number[]) => {
+      const next = structuredClone(base);
+      const cell = next.cells.find((c) => c.estimator.startsWith('vasicek') && c.n === 200)!;
+      const truth = next.scenarios.find((s) => s.id === cell.scenario)!.truth;
+      for (const r of replicates) {
+        cell.estimates[r] = null;
+        cell.failures.push({ replicate: r, message: 'numeric: test' });
+      }
+      cell.scores = scoreCell(cell.estimates.map((v) => (v === null ? NaN : v)), truth, cell.n);
+      return { next, cell };
+    };
+    // One new failure in 200: exact McNemar p = 1 (1 discordant pair), so not evidence of a higher failure rate.
+    const one = withFailures([3]);
+    const single = compareRuns(base, one.next, { tolerance: parseTolerance('1000%') }).cells.filter((c) => c.status !== 'unchanged');
+    expect(single).toHaveLength(1);
+    expect(single[0]).toMatchObject({ status: 'changed-within-noise', failures: { base: 0, next: 1, onlyNext: 1, onlyBase: 0, p: 1 } });
+    // Eight new failures and none fixed: p = 2·2⁻⁸ = 0.0078 (the binomial tail, computed here by hand) ≤ 0.05/3.
+    const eight = withFailures([1, 3, 5, 7, 9, 11, 13, 15]);
+    const next = eight.next;
     const removed = next.cells.pop()!;
     next.cells.push({ ...removed, estimator: 'gaussian:correction=none' });
-
     const comparison = compareRuns(base, next, { tolerance: parseTolerance('1000%') });
     const changed = comparison.cells.filter((c) => c.status !== 'unchanged');
     expect(changed).toHaveLength(1);
-    expect(changed[0]).toMatchObject({ scenario: cell.scenario, estimator: cell.estimator, n: 200, status: 'worse', failures: { base: 0, next: 1 } });
-    expect(changed[0].reasons[0]).toBe('failures rose from 0 to 1 of 200');
+    expect(changed[0]).toMatchObject({ scenario: eight.cell.scenario, estimator: eight.cell.estimator, n: 200, status: 'worse', failures: { base: 0, next: 8, onlyNext: 8, onlyBase: 0 } });
+    expect(changed[0].failures.p).toBeCloseTo(2 * 2 ** -8, 12);
+    expect(changed[0].reasons[0]).toMatch(/^failures 0 → 8 of 200: 8 replicates fail only in the new run, 0 only in the base \(exact McNemar p = 0.00781\)$/);
     expect(comparison.removed).toEqual([{ scenario: removed.scenario, estimator: removed.estimator, n: removed.n, perturbation: null }]);
     expect(comparison.added).toEqual([{ scenario: removed.scenario, estimator: 'gaussian:correction=none', n: removed.n, perturbation: null }]);
     expect(failsPolicy(comparison, 'worse')).toBe(true);
+    // A run that only lost a cell fails --fail-on worse unless missing cells are allowed.
+    const lost = structuredClone(base);
+    lost.cells.pop();
+    const lostComparison = compareRuns(base, lost);
+    expect(lostComparison.counts.worse).toBe(0);
+    expect(failsPolicy(lostComparison, 'worse')).toBe(true);
+    expect(failsPolicy(lostComparison, 'worse', true)).toBe(false);
+  });
+
+  it('a module returning 1e200 (or 1e150) on 1 draw in 20 is worse, and fails --fail-on worse; so does a run missing cells', async () => {
+    for (const value of [1e200, 1e150]) {
+      replaceEstimator(wildKozachenkoLeonenko(value));
+      const wild = await runInProcess(planA);
+      replaceEstimator(builtInKl);
+      const wildPath = save(`wild-${value}.json`, wild);
+      const comparison = compareRuns(base, wild);
+      const klCells = comparison.cells.filter((c) => c.estimator.startsWith('kozachenko-leonenko:'));
+      // Independently of the comparison: which KL cells hold a value of exactly `value`.
+      const touched = wild.cells.filter((c) => c.estimator.startsWith('kozachenko-leonenko:') && c.estimates.includes(value));
+      expect(touched.length).toBeGreaterThan(0);
+      for (const c of klCells) {
+        const hit = touched.some((t) => t.scenario === c.scenario && t.estimator === c.estimator && t.n === c.n && t.perturbation === c.perturbation);
+        expect(c.status).toBe(hit ? 'worse' : 'unchanged');
+        if (hit) expect(c.reasons[0]).toMatch(/wild estimate/);
+      }
+      expect(comparison.cells.filter((c) => !c.estimator.startsWith('kozachenko-leonenko:')).every((c) => c.status === 'unchanged')).toBe(true);
+      const cli = await run(['compare', basePath, wildPath, '--fail-on', 'worse']);
+      expect(cli.code).toBe(1);
+      expect((await run(['compare', basePath, wildPath, '--fail-on', 'changed'])).code).toBe(1);
+    }
+    // A new run with cells missing: exit 1 under --fail-on worse, 0 with --allow-missing.
+    const partial = structuredClone(base);
+    partial.cells = partial.cells.filter((c) => c.n !== 1000);
+    const partialPath = save('partial.json', partial);
+    const missing = await run(['compare', basePath, partialPath, '--fail-on', 'worse']);
+    expect(missing.code).toBe(1);
+    expect(missing.err).toMatch(/12 cells of the base run are missing from the new run \(--allow-missing to accept\)/);
+    expect((await run(['compare', basePath, partialPath, '--fail-on', 'worse', '--allow-missing'])).code).toBe(0);
+  });
+
+  it('one huge value cannot hide a change on every other draw: the sign test sees it', () => {
+    // The base had one wild estimate on replicate 0; the new code fixes it but is 0.02 nats further from the
+    // truth on every other draw. The mean of the squared-error differences is dominated by the fix.
+    const next = structuredClone(base);
+    const edited = structuredClone(base);
+    const cell = edited.cells.find((c) => c.estimator.startsWith('vasicek') && c.n === 1000)!;
+    const newCell = next.cells.find((c) => c.estimator.startsWith('vasicek') && c.n === 1000)!;
+    const truth = edited.scenarios.find((s) => s.id === cell.scenario)!.truth;
+    cell.estimates[0] = truth + 50;
+    newCell.estimates = newCell.estimates.map((v, r) => (r === 0 ? v : v! + Math.sign(v! - truth) * 0.02));
+    for (const [c, t] of [[cell, truth], [newCell, truth]] as const) c.scores = scoreCell(c.estimates.map((v) => (v === null ? NaN : v)), t, c.n);
+    const [comparison] = compareRuns(edited, next).cells.filter((c) => c.status !== 'unchanged');
+    // Direct check of the premise: the t test alone does not separate (its interval at α/3 includes 0).
+    expect(comparison.test!.interval[0]).toBeLessThan(0);
+    expect(comparison.test!.interval[1]).toBeGreaterThan(0);
+    expect(comparison.sign).toMatchObject({ above: 199, below: 1 });
+    expect(comparison.status).toBe('worse');
+    expect(comparison.reasons[0]).toMatch(/^199 of 200 changed replicates got worse \(sign test p = /);
+    expect(comparison.medianChange).toBeCloseTo(0.02, 10);
+  });
+
+  it('changes carry paired standard errors: a constant shift moves the bias exactly, with an SE at rounding level', () => {
+    const comparison = compareRuns(base, shifted);
+    const c = comparison.cells.find((x) => x.status === 'worse')!;
+    expect(c.bias.paired).toBe(true);
+    expect(c.bias.change).toBeCloseTo(0.05, 12);
+    expect(c.bias.changeSe).toBeLessThan(1e-12);
+    expect(Math.abs(c.sd.change)).toBeLessThan(1e-12);
+    expect(c.sd.changeSe).toBeLessThan(1e-12);
+    // ΔRMSE = ΔMSE/(RMSE_new + RMSE_base), with the paired SE scaled the same way: recomputed here from the estimates.
+    const baseCell = base.cells.find((x) => x.scenario === c.scenario && x.estimator === c.estimator && x.n === c.n)!;
+    const truth = base.scenarios.find((s) => s.id === c.scenario)!.truth;
+    const d = baseCell.estimates.map((v) => (v! + 0.05 - truth) ** 2 - (v! - truth) ** 2);
+    const mean = d.reduce((s, x) => s + x, 0) / d.length;
+    const sd = Math.sqrt(d.reduce((s, x) => s + (x - mean) ** 2, 0) / (d.length - 1));
+    const rmse = (shift: number) => Math.sqrt(baseCell.estimates.reduce((sum: number, v) => sum + (v! + shift - truth) ** 2, 0) / d.length);
+    expect(c.rmse.change).toBeCloseTo(rmse(0.05) - rmse(0), 10);
+    expect(c.rmse.changeSe).toBeCloseTo(sd / Math.sqrt(d.length) / (rmse(0.05) + rmse(0)), 10);
+    // Every output format carries them.
+    const row = formatComparisonMarkdown(comparison).split('\n').find((l) => l.includes(`| ${c.n} |`) && l.includes(c.scenario))!;
+    expect(row).toMatch(/\| \+0\.0500 ± [0-9.e-]+ \|/);
+    expect(formatComparisonJunit(comparison)).toMatch(/bias [^\n]* \(\+0\.0500 ± [0-9.e-]+\)/);
+    expect(JSON.parse(formatComparisonJson(comparison)).cells[0].bias).toHaveProperty('changeSe');
   });
 
   it('shard files are refused with one line', () => {
@@ -229,8 +336,9 @@ describe('comparing runs', () => {
       expect(unpaired.paired).toBe(false);
       expect(unpaired.test!.kind).toBe('welch-t');
       results[String(shift)] = { pairedP: paired.test!.p, unpairedP: unpaired.test!.p, paired: paired.status, unpaired: unpaired.status };
-      // The change in RMSE is below the Monte-Carlo SE that the two runs' own scores give it.
-      expect(Math.abs(paired.rmse.change)).toBeLessThan(paired.rmse.changeSe);
+      // The change in RMSE is below the Monte-Carlo SE that the two runs' own scores give it (unpaired), far above its paired SE.
+      expect(Math.abs(paired.rmse.change)).toBeLessThan(unpaired.rmse.changeSe);
+      expect(Math.abs(paired.rmse.change)).toBeGreaterThan(5 * paired.rmse.changeSe);
       expect(paired.test!.p).toBeLessThan(1e-8);
       expect(unpaired.test!.p).toBeGreaterThan(0.05);
       expect(unpaired.status).toBe('changed-within-noise');
@@ -246,7 +354,7 @@ describe('comparing runs', () => {
     const other = await runInProcess({ ...planB, seed: 100 });
     const comparison = compareRuns(b, other);
     expect(comparison.pairing.paired).toBe(false);
-    expect(comparison.pairing.reason).toBe("the runs drew different samples (seed 99 vs 100); Welch's t test on the squared errors");
+    expect(comparison.pairing.reason).toBe("the runs drew different samples (seed 99 vs 100); Welch's t test on the squared errors, Fisher's exact test on failures");
     expect(comparison.cells[0].test!.kind).toBe('welch-t');
     expect(comparison.cells[0].status).not.toBe('unchanged');
     expect(formatComparisonMarkdown(comparison).split('\n')[0]).toMatch(/\(unpaired, tolerance 0 nats\)$/);

@@ -101,7 +101,7 @@ describe('run files', () => {
     const parsed = JSON.parse(readFileSync(path, 'utf8'));
     const validate = new Ajv2020({ strict: false }).compile(runSchema);
     expect(validate(parsed), JSON.stringify(validate.errors)).toBe(true);
-    expect(parsed.schemaVersion).toBe(1);
+    expect(parsed.schemaVersion).toBe(2);
     expect(parsed.environment.node).toBe(process.version);
     expect(parsed.fingerprint).toBe(planFingerprint(run.plan));
     expect(parsed.cells[0].estimates).toHaveLength(12);
@@ -111,7 +111,7 @@ describe('run files', () => {
   it('an older schema version or a broken file is a clear error', () => {
     const old = join(dir, 'old.json');
     writeRunFile(old, { kind: 'hhat-run', schemaVersion: 0 } as unknown as RunFile);
-    expect(() => readRunFile(old)).toThrow(/schemaVersion 0; this hhat reads version 1/);
+    expect(() => readRunFile(old)).toThrow(/schemaVersion 0; this hhat reads version 2/);
     const broken = join(dir, 'broken.json');
     writeRunFile(broken, { kind: 'hhat-run' } as unknown as RunFile);
     expect(() => readRunFile(broken)).toThrow(UsageError);

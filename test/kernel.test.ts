@@ -7,7 +7,8 @@ import tFactory from '@stdlib/random-base-t';
 import normalCdf from '@stdlib/stats-base-dists-normal-cdf';
 import type { Sample } from '../src/contracts.js';
 import { EstimateError, UsageError } from '../src/errors.js';
-import { rngFromSeed } from '../src/rng.js';
+import { replicateRng, rngFromSeed } from '../src/rng.js';
+import { parseScenario } from '../scenarios/index.js';
 import { integrate } from '../src/math/quadrature.js';
 import { circularConvolveReal, fftInPlace } from '../src/math/fft.js';
 import { kernelEstimator } from '../estimators/kernel.js';
@@ -15,7 +16,7 @@ import { parseEstimatorSpec, runEstimator } from '../estimators/index.js';
 import { univariateRuleBandwidth, whitenedRuleBandwidth } from '../estimators/kernel/bandwidth.js';
 import { minimizeBounded } from '../estimators/kernel/minimize.js';
 import { multivariateLogKernelSums } from '../estimators/kernel/multivariate.js';
-import { leaveOneOutLogDensities, prepareKernelData } from '../estimators/kernel/resubstitution.js';
+import { kernelEntropy, leaveOneOutLogDensities, prepareKernelData } from '../estimators/kernel/resubstitution.js';
 import { univariateLogKernelSums } from '../estimators/kernel/univariate.js';
 
 // ---------------------------------------------------------------------------------------------------------
@@ -48,10 +49,11 @@ function correlatedGaussian(seed: string, n: number, lower: number[][], shift: n
 }
 
 /** log Σ_j exp(terms_j), shifted by the largest term so far-apart points do not underflow. */
-function logSumExp(terms: number[]): number {
-  const top = Math.max(...terms);
+function logSumExp(terms: ArrayLike<number>): number {
+  let top = -Infinity;
+  for (let j = 0; j < terms.length; j++) if (terms[j] > top) top = terms[j];
   let sum = 0;
-  for (const t of terms) sum += Math.exp(t - top);
+  for (let j = 0; j < terms.length; j++) sum += Math.exp(terms[j] - top);
   return top + Math.log(sum);
 }
 
@@ -132,6 +134,72 @@ function expectEstimateError(run: () => unknown, code: string, message: RegExp):
   expect((caught as EstimateError).code).toBe(code);
   expect((caught as EstimateError).message).toMatch(message);
 }
+
+/**
+ * Ĥ for d = 1 written directly from the definition, in plain O(n²) loops with no project code:
+ *   log f̂₋ᵢ(x_i) = logsumexp_{j≠i}(−(x_i − x_j)²/(2h²)) − log((n − 1) h √(2π)),   Ĥ = −mean log f̂₋ᵢ(x_i),
+ * the log-sum-exp shifted by its largest term. Also returns the smallest log f̂₋ᵢ(x_i).
+ */
+function independentEntropy1d(x: ArrayLike<number>, h: number): { entropy: number; minLogDensity: number } {
+  const n = x.length;
+  const terms = new Float64Array(n);
+  const logNormaliser = Math.log((n - 1) * h * Math.sqrt(2 * Math.PI));
+  let total = 0;
+  let minLogDensity = Infinity;
+  for (let i = 0; i < n; i++) {
+    for (let j = 0; j < n; j++) terms[j] = j === i ? -Infinity : -((x[i] - x[j]) ** 2) / (2 * h * h);
+    const logDensity = logSumExp(terms) - logNormaliser;
+    total += logDensity;
+    if (logDensity < minLogDensity) minLogDensity = logDensity;
+  }
+  return { entropy: -total / n, minLogDensity };
+}
+
+/**
+ * The same for d > 1 with the kernel N(0, h²Σ̂) on the raw data, Σ̂ the sample covariance with divisor n − 1
+ * (as estimators/kernel/whiten.ts documents), Σ̂⁻¹ and det Σ̂ from ml-matrix, no whitening:
+ *   log f̂₋ᵢ(x_i) = logsumexp_{j≠i}(−u²/2) − log(n − 1) − (d/2) log 2π − d log h − ½ log det Σ̂,
+ *   u = √(vᵀΣ̂⁻¹v)/h,  v = x_i − x_j.
+ */
+function independentEntropyMd(sample: Sample, h: number): { entropy: number; minLogDensity: number } {
+  const { n, dim, data } = sample;
+  const centre = new Float64Array(dim);
+  for (let i = 0; i < n; i++) for (let a = 0; a < dim; a++) centre[a] += data[i * dim + a] / n;
+  const cov = Matrix.zeros(dim, dim);
+  for (let i = 0; i < n; i++) {
+    for (let a = 0; a < dim; a++) {
+      for (let b = 0; b < dim; b++) cov.set(a, b, cov.get(a, b) + ((data[i * dim + a] - centre[a]) * (data[i * dim + b] - centre[b])) / (n - 1));
+    }
+  }
+  const inverseCov = inverse(cov);
+  const precision = new Float64Array(dim * dim);
+  for (let a = 0; a < dim; a++) for (let b = 0; b < dim; b++) precision[a * dim + b] = inverseCov.get(a, b);
+  const logNormaliser = Math.log(n - 1) + (dim / 2) * Math.log(2 * Math.PI) + dim * Math.log(h) + 0.5 * Math.log(determinant(cov));
+  const terms = new Float64Array(n);
+  const v = new Float64Array(dim);
+  let total = 0;
+  let minLogDensity = Infinity;
+  for (let i = 0; i < n; i++) {
+    for (let j = 0; j < n; j++) {
+      if (j === i) {
+        terms[j] = -Infinity;
+        continue;
+      }
+      for (let a = 0; a < dim; a++) v[a] = data[i * dim + a] - data[j * dim + a];
+      let quadratic = 0;
+      for (let a = 0; a < dim; a++) for (let b = 0; b < dim; b++) quadratic += v[a] * precision[a * dim + b] * v[b];
+      const inBandwidths = Math.sqrt(quadratic) / h; // not quadratic/h², which is 0/0 for twins once h² underflows
+      terms[j] = -0.5 * inBandwidths * inBandwidths;
+    }
+    const logDensity = logSumExp(terms) - logNormaliser;
+    total += logDensity;
+    if (logDensity < minLogDensity) minLogDensity = logDensity;
+  }
+  return { entropy: -total / n, minLogDensity };
+}
+
+/** log of the smallest normal double, 2^−1022: below it f̂₋ᵢ(x_i) itself is not a normal double. */
+const LOG_SMALLEST_NORMAL = -1022 * Math.LN2;
 
 // ---------------------------------------------------------------------------------------------------------
 
@@ -507,14 +575,122 @@ describe('likelihood-cv and the bounded minimiser', () => {
   });
 });
 
+describe('heavy tails and far outliers: the exact leave-one-out value on every path, no refusal', () => {
+  // Tolerances. Exact paths (1-D exact, cell list, blocked): truncation ≤ 1e-11 per log density
+  // (truncation.ts), so 1e-9 on Ĥ leaves room for rounding. Where Ĥ is huge (a far outlier contributes
+  // (gap/h)²/(2n) nats) the two computations of that one term differ by a few ulps of it, so 1e-12·|Ĥ| is
+  // added. Binned 1-D path: the documented 5e-5 on Ĥ (univariate.ts; the far points are redone exactly).
+  const EXACT = 1e-9;
+  const BINNED = 5e-5;
+  const bound = (tolerance: number, reference: number): number => tolerance + 1e-12 * Math.abs(reference);
+
+  it('Student t (ν = 3), n = 1000, 5 replicates: every path equals the plain log-sum-exp, former refusals included', () => {
+    const scenario = parseScenario('student-t:nu=3');
+    let belowNormal = 0;
+    for (let r = 0; r < 5; r++) {
+      const sample = scenario.sample(replicateRng(1, scenario.id, 1000, r), 1000) as Sample;
+      const h = kernelEstimator.resolve!(sample, {}).bandwidth as number;
+      const reference = independentEntropy1d(sample.data, h); // plain O(n²) log-sum-exp above
+      if (reference.minLogDensity < LOG_SMALLEST_NORMAL) belowNormal++;
+      const data = prepareKernelData(sample);
+      const exact = kernelEntropy(data, h, { univariate: 'exact' });
+      expect(Math.abs(exact - reference.entropy), `replicate ${r}, exact`).toBeLessThan(EXACT);
+      expect(Math.abs(kernelEntropy(data, h, { univariate: 'binned' }) - reference.entropy), `replicate ${r}, binned`).toBeLessThan(BINNED);
+      expect(Math.abs(kernelEstimator.estimate(sample, {}) - reference.entropy), `replicate ${r}, estimator`).toBeLessThan(BINNED);
+    }
+    // The replicates include samples the estimator used to refuse (f̂₋ᵢ below 2^−1022 somewhere).
+    expect(belowNormal).toBeGreaterThanOrEqual(1);
+  });
+
+  it('3-D Student t (ν = 4), n = 1000, 3 replicates: cell list, blocked and auto equal the plain Mahalanobis sum', () => {
+    const scenario = parseScenario('student-t-mv:dim=3,nu=4');
+    let belowNormal = 0;
+    for (let r = 0; r < 3; r++) {
+      const sample = scenario.sample(replicateRng(1, scenario.id, 1000, r), 1000) as Sample;
+      const h = kernelEstimator.resolve!(sample, {}).bandwidth as number;
+      const reference = independentEntropyMd(sample, h); // plain O(n²) log-sum-exp with ml-matrix Σ̂⁻¹ above
+      if (reference.minLogDensity < LOG_SMALLEST_NORMAL) belowNormal++;
+      const data = prepareKernelData(sample);
+      for (const path of ['cells', 'blocked'] as const) {
+        expect(Math.abs(kernelEntropy(data, h, { multivariate: path }) - reference.entropy), `replicate ${r}, ${path}`).toBeLessThan(EXACT);
+      }
+      expect(Math.abs(kernelEstimator.estimate(sample, {}) - reference.entropy), `replicate ${r}, estimator`).toBeLessThan(EXACT);
+    }
+    expect(belowNormal).toBeGreaterThanOrEqual(1);
+  });
+
+  it('999 N(0,1) values and one at 1e4: exact, binned and auto agree with the plain sum', () => {
+    const values = Float64Array.of(...normalDraws('far-outlier', 999), 1e4);
+    const sample = sample1d(values);
+    const h = kernelEstimator.resolve!(sample, {}).bandwidth as number;
+    const reference = independentEntropy1d(values, h);
+    expect(reference.minLogDensity).toBeLessThan(LOG_SMALLEST_NORMAL); // about −(1e4/h)²/2: once refused
+    const data = prepareKernelData(sample);
+    expect(Math.abs(kernelEntropy(data, h, { univariate: 'exact' }) - reference.entropy)).toBeLessThan(bound(EXACT, reference.entropy));
+    expect(Math.abs(kernelEntropy(data, h, { univariate: 'binned' }) - reference.entropy)).toBeLessThan(bound(BINNED, reference.entropy));
+    expect(Math.abs(kernelEstimator.estimate(sample, {}) - reference.entropy)).toBeLessThan(bound(BINNED, reference.entropy));
+  });
+
+  it('the same outlier at n = 3000: the binned path redoes it exactly and stays within its bound', () => {
+    const values = Float64Array.of(...normalDraws('far-outlier-large', 2999), 1e4);
+    const ascending = sorted(values);
+    const h = kernelEstimator.resolve!(sample1d(values), {}).bandwidth as number;
+    const sums = univariateLogKernelSums(ascending, h, 'binned');
+    expect(sums.binnedPoints).toBeGreaterThan(2900);
+    expect(sums.exactPoints).toBeGreaterThanOrEqual(1); // the outlier's sum is below ISOLATED_SUM: redone exactly
+    expect(Number.isFinite(sums.logSums[2999])).toBe(true);
+    const reference = independentEntropy1d(values, h).entropy;
+    const binned = kernelEntropy(prepareKernelData(sample1d(values)), h, { univariate: 'binned' });
+    expect(Math.abs(binned - reference)).toBeLessThan(bound(BINNED, reference));
+  });
+
+  it('3-D: 999 N(0, I) points and one at (1e4, 0, 0): cell list and blocked paths equal the plain sum', () => {
+    const base = normalDraws('far-outlier-3d', 999 * 3);
+    const sample: Sample = { n: 1000, dim: 3, data: Float64Array.of(...base, 1e4, 0, 0) };
+    const h = kernelEstimator.resolve!(sample, {}).bandwidth as number;
+    const reference = independentEntropyMd(sample, h);
+    expect(reference.minLogDensity).toBeLessThan(LOG_SMALLEST_NORMAL); // the outlier is ~85 bandwidths out once whitened
+    const data = prepareKernelData(sample);
+    for (const path of ['cells', 'blocked'] as const) {
+      expect(Math.abs(kernelEntropy(data, h, { multivariate: path }) - reference.entropy), path).toBeLessThan(bound(EXACT, reference.entropy));
+    }
+    expect(Math.abs(kernelEstimator.estimate(sample, {}) - reference.entropy)).toBeLessThan(bound(EXACT, reference.entropy));
+  });
+});
+
 describe('bad input and numeric trouble', () => {
-  it('an underflowing leave-one-out density throws numeric with the count and a way forward', () => {
+  it('a leave-one-out density below 2^-1022 is taken in log space: the exact value, no refusal', () => {
     const sample = sample1d(Float64Array.of(...normalDraws('underflow', 200), 9));
-    // The point at 9 lies ~500h from the rest at h = 0.01 (as may any tail point > 38h from its
-    // neighbours), so f̂₋ᵢ < 2^−1022 there.
-    expectEstimateError(() => kernelEstimator.estimate(sample, { bandwidth: 0.01 }), 'numeric', /at \d+ of 201 points.*larger bandwidth/);
-    // The same sample with the rule's bandwidth is fine (the point is then ~20h away).
-    expect(Number.isFinite(kernelEstimator.estimate(sample, { bandwidth: 'silverman' }))).toBe(true);
+    // The point at 9 lies ~500h from the rest at h = 0.01, so f̂₋ᵢ < 2^−1022 there; this used to be refused.
+    const reference = independentEntropy1d(sample.data, 0.01); // plain O(n²) log-sum-exp above
+    expect(reference.minLogDensity).toBeLessThan(LOG_SMALLEST_NORMAL);
+    const estimate = kernelEstimator.estimate(sample, { bandwidth: 0.01 });
+    // Truncation costs ≤ 1e-11 per log density (truncation.ts); the far point's term, ~2e5, differs between
+    // the two computations by a few of its ulps, hence 1e-12 relative on top.
+    expect(Math.abs(estimate - reference.entropy)).toBeLessThan(1e-9 + 1e-12 * Math.abs(reference.entropy));
+  });
+
+  it('the one refusal left: a log density that overflows double precision (numeric, one line)', () => {
+    // 1e160 is ~1e161 bandwidths from the rest, so −(gap/h)²/2 is below every double: d = 1, rule bandwidth.
+    const far = sample1d(Float64Array.of(...normalDraws('overflow', 99), 1e160));
+    expectEstimateError(() => kernelEstimator.estimate(far, {}), 'numeric', /^kernel: the estimate overflows double precision \(Infinity\) with bandwidth .* \(data units\): .*; rescale the data or use a larger bandwidth$/);
+    // d = 3: whitened distances are O(1), so only a bandwidth of 1e-160 whitened units puts points that far apart.
+    const cloud = correlatedGaussian('overflow-3d', 100, [[1, 0, 0], [0.5, 1, 0], [0.2, -0.4, 1]], [0, 0, 0]);
+    expectEstimateError(() => kernelEstimator.estimate(cloud, { bandwidth: 1e-160 }), 'numeric', /overflows double precision.*\(whitened units\)/);
+  });
+
+  it('d = 3, bandwidths whose square is not a normal double: every point summed in log space, still exact', () => {
+    // Each row twice: at h = 1e-200 (h² underflows to 0) a point's only non-negligible term is its twin,
+    // so log S_i = 0 exactly; at h = 1e200 (h² overflows) every term is 1, log S_i = log(n − 1). Compared
+    // with the plain O(n²) sum above, whose terms −u²/2 are then −∞ or 0 as the doubles give.
+    const base = correlatedGaussian('tiny-h', 60, [[1, 0, 0], [0.5, 1, 0], [0.2, -0.4, 1]], [0, 0, 0]);
+    const twice: Sample = { n: 120, dim: 3, data: Float64Array.of(...base.data, ...base.data) };
+    for (const h of [1e-200, 1e200]) {
+      const estimate = kernelEstimator.estimate(twice, { bandwidth: h });
+      const reference = independentEntropyMd(twice, h).entropy;
+      expect(Number.isFinite(estimate), `h = ${h}`).toBe(true);
+      expect(Math.abs(estimate - reference), `h = ${h}`).toBeLessThan(1e-9 + 1e-12 * Math.abs(reference));
+    }
   });
 
   it('an isolated point whose density is tiny but representable is computed exactly in log space', () => {

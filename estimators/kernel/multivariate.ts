@@ -5,9 +5,13 @@
  * Pairs farther apart than r = c·h (c from truncation.ts) are skipped, found either with a cell list (a
  * uniform grid of cells of side r/k; a pair within r lies in cells at most k apart along every axis) or by
  * blocked brute force when cells would not prune (large d, or data spanning few cells). Each unordered pair
- * is visited once and added to both points. A point whose kept sum is below 1 is recomputed over all n points
- * in log space (relative to its nearest neighbour), which keeps the truncation bound n·exp(−c²/2) valid
- * for it and keeps far outliers from underflowing.
+ * is visited once and added to both points. A point whose kept sum is below 1 (including 0: nothing within
+ * r) is recomputed over all n points in log space, relative to its nearest neighbour, which keeps the
+ * truncation bound n·exp(−c²/2) valid for it and gives a far outlier its exact log S_i however far below the
+ * double range S_i lies. Whitened coordinates are at most about √n, so squared distances cannot overflow;
+ * only a bandwidth so small that (distance/h)² overflows leaves no double, and log S_i is then −∞. When h²
+ * is not a normal double (h < 1.5e-154 or h > 1.3e154) the truncated pass's radius and exponent scale
+ * would be rounded to 0 or ∞, so every point takes the full log-space sum instead.
  */
 import { kernelCutoff } from './truncation.js';
 
@@ -33,6 +37,9 @@ const CELL_LIST_MAX_PAIR_FRACTION = 0.9;
 
 /** Points per block in the brute-force loop: two blocks of coordinates stay in L1/L2 cache. */
 const BLOCK_SIZE = 256;
+
+/** The smallest normal double, 2^−1022: below it h² has lost precision. */
+const MIN_NORMAL = 2 ** -1022;
 
 export interface MultivariateKernelSums {
   /** log S_i, in the input order. */
@@ -259,7 +266,11 @@ function buildCellList(z: Float64Array, n: number, dim: number, radius: number, 
   return { ordered, order, cellStart, neighbourPairs: Int32Array.from(pairs), examinedPairs };
 }
 
-/** log S_i over all j ≠ i, without truncation, relative to the nearest neighbour (scratch: length n). */
+/**
+ * log S_i over all j ≠ i, without truncation, relative to the nearest neighbour (scratch: length n). In
+ * bandwidths, u_j = |z_i − z_j|/h, log S_i = −u_min²/2 + log Σ_j exp(−(u_j − u_min)(u_j + u_min)/2): the
+ * nearest term is exactly 1, so the sum is ≥ 1, and no h² is formed, so any h > 0 works.
+ */
 export function fullLogKernelSum(z: Float64Array, n: number, dim: number, i: number, bandwidth: number, scratch: Float64Array): number {
   let nearestSquared = Infinity;
   const rowI = i * dim;
@@ -273,10 +284,16 @@ export function fullLogKernelSum(z: Float64Array, n: number, dim: number, i: num
     scratch[j] = distanceSquared;
     if (distanceSquared < nearestSquared) nearestSquared = distanceSquared;
   }
-  const exponentScale = -0.5 / (bandwidth * bandwidth);
+  const nearest = Math.sqrt(nearestSquared) / bandwidth;
+  // −u_min²/2 is below every double: nothing finite to return, and ∞ − ∞ below would make NaN.
+  if (nearest * nearest === Infinity) return -Infinity;
   let sum = 0;
-  for (let j = 0; j < n; j++) if (j !== i) sum += Math.exp(exponentScale * (scratch[j] - nearestSquared));
-  return Math.log(sum) + exponentScale * nearestSquared;
+  for (let j = 0; j < n; j++) {
+    if (j === i) continue;
+    const u = Math.sqrt(scratch[j]) / bandwidth;
+    sum += Math.exp(-0.5 * (u - nearest) * (u + nearest));
+  }
+  return Math.log(sum) - 0.5 * nearest * nearest;
 }
 
 /** log S_i for every whitened point (see the file comment). */
@@ -292,6 +309,13 @@ export function multivariateLogKernelSums(
   const exponentScale = -0.5 / (bandwidth * bandwidth);
   const sums = new Float64Array(n);
   let used: 'cells' | 'blocked' = 'blocked';
+  const logSums = new Float64Array(n);
+  const bandwidthSquared = bandwidth * bandwidth;
+  if (!(bandwidthSquared >= MIN_NORMAL && bandwidthSquared < Infinity)) {
+    const scratch = new Float64Array(n);
+    for (let i = 0; i < n; i++) logSums[i] = fullLogKernelSum(z, n, dim, i, bandwidth, scratch);
+    return { logSums, path: used, fallbackPoints: n };
+  }
 
   const tryCells = path === 'cells' || (path === 'auto' && dim <= MAX_CELL_LIST_DIM);
   const cells = tryCells ? buildCellList(z, n, dim, radius, cellsPerRadius(dim)) : undefined;
@@ -317,7 +341,6 @@ export function multivariateLogKernelSums(
     blockedSums(z, n, dim, radiusSquared, exponentScale, sums);
   }
 
-  const logSums = new Float64Array(n);
   let fallbackPoints = 0;
   let scratch: Float64Array | undefined;
   for (let i = 0; i < n; i++) {

@@ -6,14 +6,18 @@
  * d = 1: K_H is the N(0, h²) density, h in data units.
  * d > 1: K_H is the N(0, h²Σ̂) density. On whitened points z = L⁻¹(x − x̄) this is a spherical kernel of
  *   width h, and Ĥ(x) = Ĥ(z) + ½ log det Σ̂ exactly, so h is in whitened units.
+ *
+ * Every path takes log f̂₋ᵢ(x_i) in log space, relative to the point's nearest neighbour, so a point many
+ * bandwidths from all others (a heavy tail, an outlier) gets its true log density, however far below the
+ * double range f̂₋ᵢ(x_i) itself is; Ĥ is then large, as the definition makes it, rather than refused.
  */
 import type { Sample } from '../../src/contracts.js';
 import { EstimateError } from '../../src/errors.js';
 import { checkFiniteValues, sortedValues } from '../../src/sample.js';
 import { type BandwidthRule, univariateRuleBandwidth, whitenedRuleBandwidth } from './bandwidth.js';
 import { minimizeBounded } from './minimize.js';
-import { multivariateLogKernelSums } from './multivariate.js';
-import { univariateLogKernelSums } from './univariate.js';
+import { type MultivariatePath, multivariateLogKernelSums } from './multivariate.js';
+import { type UnivariatePath, univariateLogKernelSums } from './univariate.js';
 import { whiten } from './whiten.js';
 
 export type BandwidthSetting = BandwidthRule | 'likelihood-cv' | number;
@@ -27,9 +31,6 @@ export interface KernelData {
   /** ½ log det Σ̂ for d > 1; 0 for d = 1. */
   halfLogDet: number;
 }
-
-/** Below this log density (the smallest normal double, 2^−1022) f̂₋ᵢ(x_i) counts as having underflowed. */
-export const LOG_DENSITY_FLOOR = -1022 * Math.LN2;
 
 /** likelihood-cv searches log h over [rule − log 16, rule + log 4], to about 0.1% in h. */
 export const CV_SEARCH_BELOW = Math.log(16);
@@ -53,34 +54,34 @@ export function prepareKernelData(sample: Sample): KernelData {
   return { n, dim, points: z, halfLogDet };
 }
 
+/**
+ * Which way the kernel sums are computed; 'auto' (the default) picks by estimated cost. Forcing a path is for
+ * tests and benchmarks: every path computes the same sums, within the error bounds in univariate.ts and
+ * multivariate.ts.
+ */
+export interface KernelPaths {
+  univariate?: UnivariatePath;
+  multivariate?: MultivariatePath;
+}
+
 /** log f̂₋ᵢ(x_i) for every point: in sorted order for d = 1, input order for d > 1. Data units. */
-export function leaveOneOutLogDensities(data: KernelData, bandwidth: number): Float64Array {
+export function leaveOneOutLogDensities(data: KernelData, bandwidth: number, paths: KernelPaths = {}): Float64Array {
   const { n, dim, points, halfLogDet } = data;
-  const logSums = dim === 1 ? univariateLogKernelSums(points, bandwidth).logSums : multivariateLogKernelSums(points, n, dim, bandwidth).logSums;
+  const logSums =
+    dim === 1
+      ? univariateLogKernelSums(points, bandwidth, paths.univariate).logSums
+      : multivariateLogKernelSums(points, n, dim, bandwidth, paths.multivariate).logSums;
   const logNormaliser = Math.log(n - 1) + dim * Math.log(bandwidth) + (dim / 2) * Math.log(2 * Math.PI) + halfLogDet;
   for (let i = 0; i < n; i++) logSums[i] -= logNormaliser;
   return logSums;
 }
 
-export interface KernelEntropy {
-  entropy: number;
-  /** Points whose f̂₋ᵢ(x_i) is below LOG_DENSITY_FLOOR. */
-  underflowCount: number;
-  /** The smallest log f̂₋ᵢ(x_i). */
-  minLogDensity: number;
-}
-
-export function kernelEntropyAt(data: KernelData, bandwidth: number): KernelEntropy {
-  const logDensities = leaveOneOutLogDensities(data, bandwidth);
+/** Ĥ at a bandwidth, unchecked: +∞ or NaN where a log density or their sum overflows (see kernelEntropy). */
+export function kernelEntropyAt(data: KernelData, bandwidth: number, paths: KernelPaths = {}): number {
+  const logDensities = leaveOneOutLogDensities(data, bandwidth, paths);
   let sum = 0;
-  let underflowCount = 0;
-  let minLogDensity = Infinity;
-  for (let i = 0; i < data.n; i++) {
-    sum += logDensities[i];
-    if (logDensities[i] < LOG_DENSITY_FLOOR) underflowCount++;
-    if (logDensities[i] < minLogDensity) minLogDensity = logDensities[i];
-  }
-  return { entropy: -sum / data.n, underflowCount, minLogDensity };
+  for (let i = 0; i < data.n; i++) sum += logDensities[i];
+  return -sum / data.n;
 }
 
 export function ruleBandwidth(data: KernelData, rule: BandwidthRule): number {
@@ -95,7 +96,7 @@ export function ruleBandwidth(data: KernelData, rule: BandwidthRule): number {
  */
 export function likelihoodCrossValidatedBandwidth(data: KernelData): number {
   const reference = ruleBandwidth(data, 'silverman');
-  const objective = (t: number): number => kernelEntropyAt(data, reference * Math.exp(t)).entropy;
+  const objective = (t: number): number => kernelEntropyAt(data, reference * Math.exp(t));
   const best = minimizeBounded(objective, -CV_SEARCH_BELOW, CV_SEARCH_ABOVE, CV_SEARCH_TOLERANCE);
   return reference * Math.exp(best.x);
 }
@@ -120,23 +121,20 @@ export function chooseBandwidth(data: KernelData, setting: BandwidthSetting): nu
 }
 
 /**
- * Ĥ at a bandwidth, refusing samples where some f̂₋ᵢ(x_i) is below the double range. The sums are taken in
- * log space, so such a value could be computed, but it comes from a point many bandwidths from all others
- * and would dominate Ĥ with hundreds of nats; it is reported as a failure instead, with the bandwidth that
- * would avoid it: log f̂ ≈ −(distance/h)²/2 there, so scaling h by sqrt(min log f̂ / floor) suffices.
+ * Ĥ at a bandwidth. It is finite whenever every log f̂₋ᵢ(x_i) and their sum fit in a double; it is not only
+ * when some point's squared distance to its nearest neighbour, in bandwidths, exceeds the double range
+ * (about 1.3e154 bandwidths away: the data span more than double precision can difference, or the
+ * bandwidth is that small against a gap), or when the rule's bandwidth itself overflows. That is reported
+ * as a 'numeric' failure.
  */
-export function kernelEntropy(data: KernelData, bandwidth: number): number {
-  const { entropy, underflowCount, minLogDensity } = kernelEntropyAt(data, bandwidth);
-  if (underflowCount > 0) {
+export function kernelEntropy(data: KernelData, bandwidth: number, paths: KernelPaths = {}): number {
+  const entropy = kernelEntropyAt(data, bandwidth, paths);
+  if (!Number.isFinite(entropy)) {
     const units = data.dim === 1 ? 'data units' : 'whitened units';
-    const enough = bandwidth * Math.sqrt(minLogDensity / LOG_DENSITY_FLOOR);
     throw new EstimateError(
       'numeric',
-      `kernel: the leave-one-out density underflows (below 2^-1022) at ${underflowCount} of ${data.n} points with bandwidth ${formatBandwidth(bandwidth)} (${units}): they lie too far from every other point (outliers or heavy tails); use a larger bandwidth, about ${formatBandwidth(enough)} or more`,
+      `kernel: the estimate overflows double precision (${entropy}) with bandwidth ${formatBandwidth(bandwidth)} (${units}): some point is too many bandwidths from its nearest neighbour for (distance/bandwidth)² to be a double, or the data's range overflows; rescale the data or use a larger bandwidth`,
     );
-  }
-  if (!Number.isFinite(entropy)) {
-    throw new EstimateError('numeric', `kernel: the estimate is not finite (${entropy}) with bandwidth ${bandwidth}; the data's range may overflow double precision, so rescale it`);
   }
   return entropy;
 }

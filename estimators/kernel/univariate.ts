@@ -5,14 +5,19 @@
  *
  * exact: for each point, walk outwards from it in the sorted array. The nearest neighbour is adjacent, so
  *   the sum is taken relative to it, log S_i = −u_min²/2 + log Σ_j exp(−(u_j² − u_min²)/2), over
- *   u_j² ≤ u_min² + c² (c from truncation.ts). The kept sum is ≥ 1 (the nearest term), so the truncation
- *   bound n·exp(−c²/2) holds for every point, and an isolated point's sum never underflows.
+ *   u_j² ≤ u_min² + c² (c from truncation.ts). The kept sum is ≥ 1 (the nearest term is exactly 1), so the
+ *   truncation bound n·exp(−c²/2) holds for every point, and an isolated point's log S_i is its exact value
+ *   however far below the double range S_i lies. Only u_min² overflowing (a gap over ~1.3e154 bandwidths,
+ *   or a gap that itself overflows) leaves no double to return: log S_i is then −∞.
  *
  * binned: linear binning onto a regular grid of spacing h/GRID_POINTS_PER_BANDWIDTH, FFT convolution with
  *   the Gaussian kernel truncated at c·h, linear interpolation back to each x_i, and removal of the point's
  *   own binned contribution (Silverman, Appl. Statist. 31, 1982; Wand, J. Comput. Graph. Statist. 3, 1994).
  *   Points whose remaining sum is below ISOLATED_SUM are recomputed exactly: there the subtraction of the
- *   self term cancels digits and the binning error, relative to the sum, is largest.
+ *   self term cancels digits and the binning error, relative to the sum, is largest. Far outliers thus
+ *   always take the exact path. The grid is used only where its coordinates are finite doubles (not for a
+ *   bandwidth so large, or data so near the double limit, that the grid's span overflows); elsewhere every
+ *   point is done exactly.
  */
 import { circularConvolveReal, nextPowerOfTwo } from '../../src/math/fft.js';
 import { kernelCutoff } from './truncation.js';
@@ -66,6 +71,8 @@ export function exactLogKernelSum(sorted: Float64Array, i: number, bandwidth: nu
   const rightGap = i < n - 1 ? sorted[i + 1] - xi : Infinity;
   const nearest = Math.min(leftGap, rightGap) / bandwidth;
   const nearestSquared = nearest * nearest;
+  // −u_min²/2 is below every double: nothing finite to return, and ∞ − ∞ below would make NaN.
+  if (nearestSquared === Infinity) return -Infinity;
   const limitSquared = nearestSquared + cutoff * cutoff;
   let sum = 0;
   for (let j = i - 1; j >= 0; j--) {
@@ -167,16 +174,20 @@ export function univariateLogKernelSums(
     totalWork += hi - lo;
   }
 
-  let exactPoints = 0;
-  let binnedPoints = 0;
-  if (path === 'exact' || (path === 'auto' && totalWork <= EXACT_WORK_BUDGET)) {
+  const spacing = bandwidth / GRID_POINTS_PER_BANDWIDTH;
+  const kernelHalfWidth = Math.ceil(cutoff * GRID_POINTS_PER_BANDWIDTH);
+  const maxRunSpan = Math.max(maxGridLength / 2 - 2 * kernelHalfWidth - 8, 1) * spacing;
+  // The grid's origin and end lie up to maxRunSpan + (kernelHalfWidth + 1)·spacing beyond the data.
+  const gridMargin = maxRunSpan + 2 * (kernelHalfWidth + 1) * spacing;
+  const gridFits = spacing > 0 && Number.isFinite(Math.max(Math.abs(sorted[0]), Math.abs(sorted[n - 1])) + gridMargin);
+
+  if (path === 'exact' || !gridFits || (path === 'auto' && totalWork <= EXACT_WORK_BUDGET)) {
     for (let i = 0; i < n; i++) logSums[i] = exactLogKernelSum(sorted, i, bandwidth, cutoff);
     return { logSums, exactPoints: n, binnedPoints: 0 };
   }
 
-  const spacing = bandwidth / GRID_POINTS_PER_BANDWIDTH;
-  const kernelHalfWidth = Math.ceil(cutoff * GRID_POINTS_PER_BANDWIDTH);
-  const maxRunSpan = Math.max(maxGridLength / 2 - 2 * kernelHalfWidth - 8, 1) * spacing;
+  let exactPoints = 0;
+  let binnedPoints = 0;
   let start = 0;
   while (start < n) {
     // A run ends at a gap wider than c·h (nothing crosses it within the cutoff) or when its grid is full.

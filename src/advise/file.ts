@@ -11,7 +11,8 @@
  * correction Ĥ − bias, shown beside the raw value, never instead of it.
  */
 import type { Sample } from '../contracts.js';
-import { UsageError } from '../errors.js';
+import { EstimateError, UsageError } from '../errors.js';
+import { tooFewPoints } from './setting.js';
 import { parseEstimatorSpec, runEstimator } from '../../estimators/index.js';
 import type { Estimate } from '../score.js';
 import { ADVICE_SEED, applicableEstimators, DEFAULT_BUDGET_SECONDS, runTargeted } from './benchmark.js';
@@ -131,6 +132,8 @@ export async function adviseFile(sample: Sample, options: FileAdviceOptions = {}
   const seed = options.seed ?? ADVICE_SEED;
   const { n, dim } = sample;
   if (n < 20) throw new UsageError(`the sample has ${n} rows; advice needs at least 20 (a benchmark at smaller n says little)`);
+  const degenerate = tooFewPoints(n, dim);
+  if (degenerate) throw new EstimateError('too-few-points', `no estimator is usable on this file: ${degenerate}`);
   const names = options.columnNames ?? [];
   const stage = options.onStage ?? (() => {});
 
@@ -159,6 +162,8 @@ export async function adviseFile(sample: Sample, options: FileAdviceOptions = {}
     workers: options.workers,
     minReplicates: options.replicates ?? options.minReplicates ?? 20,
     maxReplicates: options.replicates,
+    budget: { total: budget, spent: elapsed() },
+    dim,
   });
   const summaries = summarise(bench.run);
   const recommendation = recommend(bench.run, summaries, 'look-alike');
@@ -177,21 +182,23 @@ export async function adviseFile(sample: Sample, options: FileAdviceOptions = {}
   lap('estimates');
   const command = `hhat advise --n ${n} --dim ${dim}`;
   const warnings = profileWarnings(profile, lookalike, command);
+  for (const cut of bench.cuts) warnings.push(`to fit the ${budget} s budget, left out ${cut}. Raise --budget to include them.`);
   if (bench.minimumForced) {
-    warnings.push(`the time budget covered fewer than ${bench.replicates} look-alike replicates; ${bench.replicates} ran anyway (${bench.wallSeconds.toFixed(1)} s). Raise --budget for smaller Monte-Carlo errors.`);
+    warnings.push(`the time budget covered fewer look-alike replicates than advice wants; ${bench.replicates} ran (${bench.wallSeconds.toFixed(1)} s), so the Monte-Carlo errors are large. Raise --budget for smaller ones.`);
   }
   if (lookalike.fittedPoints < n) warnings.push(`the look-alike was fitted on a random ${lookalike.fittedPoints} of the ${n} rows (EM time grows with n); the benchmark still runs at n = ${n}.`);
 
-  // The recommended estimator, or the next by look-alike RMSE that works on these data.
-  const order = [recommendation.recommended, ...summaries.filter((s) => s !== recommendation.recommended)];
-  const usable = order.find((s) => userEstimates.find((u) => u.estimator === s.estimator)?.value !== null && s.failureRate <= 0.01);
+  // The recommended estimator, or the next by look-alike RMSE that works on these data; none when nothing is usable.
+  const recommended = recommendation.recommended;
+  const order = recommended ? [recommended, ...summaries.filter((s) => s !== recommended)] : [];
+  const usable = order.find((s) => userEstimates.find((u) => u.estimator === s.estimator)?.value !== null && s.failedScenarios === 0);
   let estimate: FileAdvice['estimate'] = null;
   if (!usable) {
-    warnings.push('no estimator that works on the look-alike works on your data; see the errors beside each estimate.');
+    if (recommended) warnings.push('no estimator that works on the look-alike works on your data; see the errors beside each estimate.');
   } else {
-    if (usable !== recommendation.recommended) {
-      const failed = userEstimates.find((u) => u.estimator === recommendation.recommended.estimator);
-      warnings.push(`${recommendation.recommended.label} fails on your data (${failed?.error ?? 'no value'}); the estimate below uses ${usable.label}, next by look-alike RMSE.`);
+    if (recommended && usable !== recommended) {
+      const failed = userEstimates.find((u) => u.estimator === recommended.estimator);
+      warnings.push(`${recommended.label} fails on your data (${failed?.error ?? 'no value'}); the estimate below uses ${usable.label}, next by look-alike RMSE.`);
     }
     const value = userEstimates.find((u) => u.estimator === usable.estimator)!.value!;
     const bias = usable.scenarios[0].bias;

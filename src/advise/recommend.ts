@@ -6,12 +6,12 @@
  *   const summaries = summarise(run);          // sorted by mean RMSE, unusable ones last
  *   const choice = recommend(run, summaries);  // { recommended, runnerUp, reason }
  *
- * The recommended estimator is the first by mean RMSE among those failing on at most 1% of replicates; a
- * rank shared under the run's paired test (|z| < 2 on squared errors) counts as best on that scenario.
+ * The recommended estimator is the first by mean RMSE among those that did not fail any scenario (the run's
+ * failure rule: README, "Ranks and the best set"); "best on" counts the scenarios where it is in the best set
+ * (the model confidence set at the run's level).
  */
 import type { Estimate } from '../score.js';
-import { pairedSquaredErrorDifference } from '../score.js';
-import type { Cell, RunFile, ScenarioInfo } from '../results.js';
+import type { Cell, RankEntry, RunFile, ScenarioInfo } from '../results.js';
 import type { Verdict } from '../robustness.js';
 import { estimatorLabel } from '../tables.js';
 
@@ -24,8 +24,12 @@ export interface ScenarioScore {
   rmse: Estimate;
   failures: number;
   replicates: number;
-  /** Rank among the estimators on this scenario (shared ranks when the paired test cannot separate). */
+  /** Rank among the estimators on this scenario (1 for every member of the best set). */
   rank: number | null;
+  /** In the scenario's best set. */
+  best: boolean;
+  /** Failed the scenario under the run's failure rule (ranked last). */
+  failed: boolean;
   meanMs: number;
 }
 
@@ -52,21 +56,22 @@ export interface EstimatorSummary {
   replicates: number;
   failureRate: number;
   msPerEstimate: number;
-  /** Scenarios where it has rank 1 (shared ranks included). */
+  /** Scenarios where it is in the best set. */
   wins: number;
+  /** Scenarios it failed under the run's failure rule. */
+  failedScenarios: number;
   robustness: Record<string, RobustnessFlag> | null;
 }
 
 export interface Recommendation {
-  recommended: EstimatorSummary;
+  /** Null when no estimator is usable here; `reason` says why. */
+  recommended: EstimatorSummary | null;
   runnerUp: EstimatorSummary | null;
-  /** Scenarios where the paired test cannot separate the runner-up from the recommended estimator. */
+  /** Scenarios where the runner-up is in the best set too (cannot be told apart from the best). */
   runnerUpTiedOn: string[];
   reason: string;
 }
 
-/** Failure rate above which an estimator is not recommended. */
-export const MAX_RECOMMENDED_FAILURE_RATE = 0.01;
 export const ROBUSTNESS_FLAGS = ['rescale', 'quantize', 'contaminate'] as const;
 
 function meanOf(values: Estimate[]): Estimate {
@@ -82,10 +87,10 @@ function mainCells(run: RunFile): Cell[] {
 
 export function summarise(run: RunFile): EstimatorSummary[] {
   const info = new Map(run.scenarios.map((s) => [s.id, s]));
-  const ranks = new Map<string, number>();
+  const ranks = new Map<string, RankEntry>();
   for (const ranking of run.rankings) {
     if (ranking.perturbation !== null) continue;
-    for (const entry of ranking.entries) ranks.set(`${ranking.scenario}|${entry.estimator}`, entry.rank);
+    for (const entry of ranking.entries) ranks.set(`${ranking.scenario}|${entry.estimator}`, entry);
   }
   const byEstimator = new Map<string, Cell[]>();
   for (const cell of mainCells(run)) {
@@ -104,7 +109,9 @@ export function summarise(run: RunFile): EstimatorSummary[] {
         rmse: c.scores.rmse,
         failures: c.scores.failures,
         replicates: c.scores.replicates,
-        rank: ranks.get(`${c.scenario}|${estimator}`) ?? null,
+        rank: ranks.get(`${c.scenario}|${estimator}`)?.rank ?? null,
+        best: ranks.get(`${c.scenario}|${estimator}`)?.best ?? false,
+        failed: ranks.get(`${c.scenario}|${estimator}`)?.status === 'failed',
         meanMs: c.timing.meanMs,
       };
     });
@@ -123,7 +130,8 @@ export function summarise(run: RunFile): EstimatorSummary[] {
       replicates,
       failureRate: replicates ? failures / replicates : 0,
       msPerEstimate: scenarios.reduce((s, c) => s + c.meanMs, 0) / Math.max(1, scenarios.length),
-      wins: scenarios.filter((s) => s.rank === 1).length,
+      wins: scenarios.filter((s) => s.best).length,
+      failedScenarios: scenarios.filter((s) => s.failed).length,
       robustness: row ? Object.fromEntries(ROBUSTNESS_FLAGS.map((k) => [k, { verdict: row.columns[k]?.verdict ?? 'n/a', value: row.columns[k]?.value ?? null, detail: row.columns[k]?.detail ?? '' }])) : null,
     };
   });
@@ -134,23 +142,9 @@ export function summarise(run: RunFile): EstimatorSummary[] {
   });
 }
 
-/** Scenarios where the paired test on squared errors cannot separate a and b (|z| < 2). */
-export function tiedScenarios(run: RunFile, a: string, b: string): string[] {
-  const truth = new Map(run.scenarios.map((s) => [s.id, s.truth]));
-  const cells = mainCells(run);
-  const out: string[] = [];
-  for (const scenario of new Set(cells.map((c) => c.scenario))) {
-    const x = cells.find((c) => c.scenario === scenario && c.estimator === a);
-    const y = cells.find((c) => c.scenario === scenario && c.estimator === b);
-    if (!x || !y) continue;
-    const d = pairedSquaredErrorDifference(
-      x.estimates.map((v) => v ?? NaN),
-      y.estimates.map((v) => v ?? NaN),
-      truth.get(scenario)!,
-    );
-    if (!(Math.abs(d.value) > 2 * d.se)) out.push(scenario);
-  }
-  return out;
+/** Scenarios where `estimator` is in the best set. */
+export function bestSetScenarios(run: RunFile, estimator: string): string[] {
+  return run.rankings.filter((r) => r.perturbation === null && r.entries.some((e) => e.estimator === estimator && e.best)).map((r) => r.scenario);
 }
 
 function plural(count: number, word: string): string {
@@ -181,17 +175,35 @@ function describeSubset(subset: string[], all: ScenarioInfo[]): string {
   return `${subset.length} of ${all.length}`;
 }
 
+/** SD of the true values over the scenarios (NaN for fewer than two): how far apart the plausible answers lie. */
+function truthSpread(scenarios: ScenarioInfo[]): number {
+  if (scenarios.length < 2) return NaN;
+  const mean = scenarios.reduce((s, x) => s + x.truth, 0) / scenarios.length;
+  return Math.sqrt(scenarios.reduce((s, x) => s + (x.truth - mean) ** 2, 0) / scenarios.length);
+}
+
 /**
  * `subject` names what the scores were measured on, for the sentence: 'look-alike' (file advice, one
  * scenario) or 'matching scenarios' (setting advice).
  */
 export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 'look-alike' | 'matching scenarios' = 'matching scenarios'): Recommendation {
   if (!summaries.length) throw new Error('recommend: no estimator ran');
-  const eligible = summaries.filter((s) => Number.isFinite(s.meanRmse.value) && s.failureRate <= MAX_RECOMMENDED_FAILURE_RATE);
-  const recommended = eligible[0] ?? summaries[0];
-  const runnerUp = summaries.find((s) => s !== recommended && Number.isFinite(s.meanRmse.value)) ?? null;
+  const eligible = summaries.filter((s) => Number.isFinite(s.meanRmse.value) && s.failedScenarios === 0);
   const scenarios = run.scenarios;
   const count = scenarios.length;
+  const none = (reason: string): Recommendation => ({ recommended: null, runnerUp: null, runnerUpTiedOn: [], reason: `No estimator is usable here: ${reason}` });
+  if (!eligible.length) {
+    const fewest = [...summaries].sort((a, b) => a.failedScenarios - b.failedScenarios || a.failures - b.failures)[0];
+    return none(`every one failed on some draws of ${count === 1 ? `the ${subject === 'look-alike' ? 'look-alike' : 'matching scenario'}` : 'the matching scenarios'} (the fewest failures: ${fewest.label}, ${fewest.failures} of ${fewest.replicates} draws).`);
+  }
+  const spread = truthSpread(scenarios);
+  if (Number.isFinite(spread) && eligible.every((s) => s.meanRmse.value > spread)) {
+    return none(
+      `the smallest mean RMSE, ${formatNats(eligible[0].meanRmse.value)} nats (${eligible[0].label}), is larger than the spread of the true values over the matching scenarios (SD ${formatNats(spread)} nats), so an estimate would tell less about the distribution than knowing the setting does.`,
+    );
+  }
+  const recommended = eligible[0];
+  const runnerUp = summaries.find((s) => s !== recommended && Number.isFinite(s.meanRmse.value)) ?? null;
   const failurePart =
     recommended.failures === 0 ? 'never fails' : `fails on ${recommended.failures} of ${recommended.replicates} draws (${(100 * recommended.failureRate).toFixed(1)}%)`;
   const lead =
@@ -201,15 +213,15 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 
   let tail = '';
   let runnerUpTiedOn: string[] = [];
   if (runnerUp) {
-    runnerUpTiedOn = tiedScenarios(run, recommended.estimator, runnerUp.estimator);
+    runnerUpTiedOn = bestSetScenarios(run, runnerUp.estimator);
     if (count === 1) {
       tail = runnerUpTiedOn.length
-        ? `; the runner-up ${runnerUp.label} (${formatNats(runnerUp.meanRmse.value)}) is within noise of it`
+        ? `; the runner-up ${runnerUp.label} (${formatNats(runnerUp.meanRmse.value)}) cannot be told apart from it on the same draws`
         : `; the runner-up ${runnerUp.label} (${formatNats(runnerUp.meanRmse.value)}) is clearly worse on the same draws`;
     } else {
       tail = runnerUpTiedOn.length
-        ? `; the runner-up ${runnerUp.label} is within noise on ${describeSubset(runnerUpTiedOn, scenarios)}`
-        : `; the paired test separates it from the runner-up ${runnerUp.label} on every scenario`;
+        ? `; the runner-up ${runnerUp.label} is in the best set too on ${describeSubset(runnerUpTiedOn, scenarios)}`
+        : `; the runner-up ${runnerUp.label} is outside the best set on every scenario`;
     }
   }
   const skipped = eligible[0] && eligible[0] !== summaries[0] ? ` (${summaries[0].label} has a lower RMSE but fails on ${(100 * summaries[0].failureRate).toFixed(1)}% of draws)` : '';

@@ -4,8 +4,9 @@
 import { formatValue, renderTable } from '../format.js';
 import type { FileAdvice } from './file.js';
 import type { ColumnProfile } from './profile.js';
-import type { EstimatorSummary, RobustnessFlag } from './recommend.js';
-import type { SettingAdvice } from './setting.js';
+import type { EstimatorSummary, Recommendation, RobustnessFlag } from './recommend.js';
+import { ADVICE_QUANTIZE_STEPS, type SettingAdvice } from './setting.js';
+import { robustnessText } from '../verdict-text.js';
 
 function num(x: number | null | undefined, digits = 3): string {
   if (x === null || x === undefined || !Number.isFinite(x)) return '–';
@@ -25,16 +26,13 @@ function msCell(ms: number): string {
   return ms >= 100 ? ms.toFixed(0) : ms >= 1 ? ms.toFixed(1) : ms.toFixed(2);
 }
 
-function flagCell(kind: string, flag: RobustnessFlag | undefined): string {
-  if (!flag || flag.verdict === 'n/a') return '–';
-  const v = flag.value;
-  let shown = '';
-  if (v !== null && Number.isFinite(v)) {
-    if (kind === 'rescale') shown = v === 0 ? '0' : v.toExponential(0);
-    else if (kind === 'quantize') shown = v === 0 ? '<0.01 SD' : `${v} SD`;
-    else shown = `${num(v, 2)} nats`;
-  }
-  return `${flag.verdict} ${shown}`.trim();
+function flagCell(kind: string, flag: RobustnessFlag | undefined, finest?: number): string {
+  if (!flag) return '–';
+  return robustnessText(kind, flag.verdict, flag.value, finest);
+}
+
+function recommendationLine(recommendation: Recommendation): string {
+  return recommendation.recommended ? `Recommended: ${recommendation.recommended.label}. ${recommendation.reason}` : recommendation.reason;
 }
 
 function failureCell(s: EstimatorSummary): string {
@@ -45,6 +43,10 @@ export function renderSettingAdvice(advice: SettingAdvice): string {
   const lines: string[] = [];
   const described = [advice.tails ? `${advice.tails} tails` : 'any tails', advice.support ? `${advice.support === 'half' ? 'half-bounded' : advice.support} support` : 'any support'];
   lines.push(`Advice for n = ${advice.n}, d = ${advice.dim} (${described.join(', ')})`);
+  if (!advice.estimators.length) {
+    lines.push(advice.recommendation.reason, `Done in ${seconds(advice.seconds)} (budget ${advice.budgetSeconds} s).`);
+    return lines.join('\n');
+  }
   lines.push(advice.match.note);
   for (const s of advice.match.scenarios) lines.push(`  ${s.id}  (d = ${s.dim}, ${s.tails} tails, ${s.support === 'half' ? 'half-bounded' : s.support} support)`);
   lines.push(`${advice.benchmark.replicates} replicates per scenario at n = ${advice.n}, ${seconds(advice.benchmark.seconds)} on ${advice.benchmark.workers} worker${advice.benchmark.workers === 1 ? '' : 's'}.`);
@@ -59,7 +61,7 @@ export function renderSettingAdvice(advice: SettingAdvice): string {
     failureCell(s),
     msCell(s.msPerEstimate),
     flagCell('rescale', s.robustness?.rescale),
-    flagCell('quantize', s.robustness?.quantize),
+    flagCell('quantize', s.robustness?.quantize, ADVICE_QUANTIZE_STEPS[0]),
     flagCell('contaminate', s.robustness?.contaminate),
   ]);
   lines.push(
@@ -69,7 +71,7 @@ export function renderSettingAdvice(advice: SettingAdvice): string {
       { align: ['right', 'left', 'right', 'right', 'right', 'right', 'right', 'right', 'right', 'right'] },
     ),
   );
-  lines.push(`Recommended: ${advice.recommendation.recommended.label}. ${advice.recommendation.reason}`);
+  lines.push(recommendationLine(advice.recommendation));
   lines.push('');
   lines.push(
     `Mean RMSE: the average over the scenarios, its SE from their Monte-Carlo errors; "best on": scenarios where it ranks first (ties under a paired test included). Robustness at n = ${advice.n}, worst scenario: rescale = unit drift beyond the exact d·log c shift (pass: exact to rounding); quantize = the coarsest recording step, in SDs, that leaves the bias within noise (pass ≥ 0.1, warn ≥ 0.01); outliers = shift per 1% of far outliers (pass < 1 SD, warn < 5 SD). See README, "Reading the robustness table".`,
@@ -139,7 +141,7 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
       { align: ['right', 'left', 'right', 'right', 'right', 'right', 'right'] },
     ),
   );
-  lines.push(`Recommended: ${advice.recommendation.recommended.label}. ${advice.recommendation.reason}`);
+  lines.push(recommendationLine(advice.recommendation));
   lines.push('');
   const e = advice.estimate;
   if (e) {
@@ -208,7 +210,7 @@ export function settingAdviceJson(advice: SettingAdvice) {
     replicates: advice.benchmark.replicates,
     perturbations: advice.benchmark.perturbations,
     estimators: advice.estimators.map(summaryJson),
-    recommended: advice.recommendation.recommended.estimator,
+    recommended: advice.recommendation.recommended?.estimator ?? null,
     reason: advice.recommendation.reason,
     warnings: advice.warnings,
     seconds: advice.seconds,
@@ -261,7 +263,7 @@ export function fileAdviceJson(advice: FileAdvice, file: string) {
     },
     replicates: advice.benchmark.replicates,
     estimators: advice.benchmark.estimators.map(summaryJson),
-    recommended: advice.recommendation.recommended.estimator,
+    recommended: advice.recommendation.recommended?.estimator ?? null,
     reason: advice.recommendation.reason,
     estimates: advice.userEstimates,
     estimate: advice.estimate && {

@@ -63,7 +63,8 @@ export interface SettingAdvice {
 }
 
 /** The robustness section of setting advice: a unit change, rounding at two steps, far outliers. */
-export const ADVICE_PERTURBATIONS = ['rescale:c=1000', 'quantize:step=0.01', 'quantize:step=0.1', 'contaminate:fraction=0.01'];
+export const ADVICE_QUANTIZE_STEPS = [0.01, 0.1];
+export const ADVICE_PERTURBATIONS = ['rescale:c=1000', ...ADVICE_QUANTIZE_STEPS.map((step) => `quantize:step=${step}`), 'contaminate:fraction=0.01'];
 export const DEFAULT_MAX_SCENARIOS = 6;
 
 function entropyCatalog(): Scenario[] {
@@ -163,6 +164,20 @@ export function matchScenarios(dim: number, tails: Tails | undefined, support: S
   };
 }
 
+/**
+ * Why no estimator can work with n points in d dimensions, or null when n > d. n points span an affine flat
+ * of dimension at most n − 1, so with n ≤ d the sample says nothing about the spread in the other directions:
+ * any value an estimator returns comes from its assumptions, not from the data.
+ */
+export function tooFewPoints(n: number, dim: number): string | null {
+  if (n > dim) return null;
+  return (
+    `n = ${n} points in d = ${dim} dimensions lie in a flat of at most ${n - 1} dimension${n - 1 === 1 ? '' : 's'}, so they say nothing about the spread in the other ` +
+    `${dim - n + 1} direction${dim - n + 1 === 1 ? '' : 's'} and no estimator can recover it: the sample covariance is singular (the Gaussian and kernel estimators cannot run) and ` +
+    `nearest-neighbour and histogram values would come from their assumptions, not the data. Collect more than d points (common practice asks for many times d), or reduce the dimension first.`
+  );
+}
+
 export async function adviseSetting(options: SettingAdviceOptions): Promise<SettingAdvice> {
   const started = performance.now();
   const { n, dim } = options;
@@ -170,6 +185,22 @@ export async function adviseSetting(options: SettingAdviceOptions): Promise<Sett
   if (!Number.isInteger(dim) || dim < 1) throw new UsageError(`--dim ${dim} is not allowed; it must be an integer ≥ 1`);
   const budget = options.budgetSeconds ?? DEFAULT_BUDGET_SECONDS;
   const stage = options.onStage ?? (() => {});
+  const degenerate = tooFewPoints(n, dim);
+  if (degenerate) {
+    return {
+      n,
+      dim,
+      tails: options.tails ?? null,
+      support: options.support ?? null,
+      budgetSeconds: budget,
+      match: { scenarios: [], matched: 0, exact: true, rebuilt: false, note: 'No benchmark was run: its answer is known without one.' },
+      benchmark: { replicates: 0, seconds: 0, minimumForced: false, workers: 0, perturbations: [] },
+      estimators: [],
+      recommendation: { recommended: null, runnerUp: null, runnerUpTiedOn: [], reason: `No estimator is usable here: ${degenerate}` },
+      warnings: [],
+      seconds: (performance.now() - started) / 1000,
+    };
+  }
   stage('choosing scenarios');
   const match = matchScenarios(dim, options.tails, options.support, options.maxScenarios ?? DEFAULT_MAX_SCENARIOS);
   const estimators = applicableEstimators(dim);
@@ -185,12 +216,15 @@ export async function adviseSetting(options: SettingAdviceOptions): Promise<Sett
     workers: options.workers,
     minReplicates: options.replicates ?? options.minReplicates ?? 10,
     maxReplicates: options.replicates,
+    budget: { total: budget, spent: (performance.now() - started) / 1000 },
+    dim,
   });
   const summaries = summarise(bench.run);
   const recommendation = recommend(bench.run, summaries);
   const warnings: string[] = [];
   if (!match.exact) warnings.push(match.note);
-  if (bench.minimumForced) warnings.push(`the time budget covered fewer than ${bench.replicates} replicates; ${bench.replicates} ran anyway (${bench.wallSeconds.toFixed(1)} s). Raise --budget for smaller Monte-Carlo errors.`);
+  for (const cut of bench.cuts) warnings.push(`to fit the ${budget} s budget, left out ${cut}. Raise --budget to include them.`);
+  if (bench.minimumForced) warnings.push(`the time budget covered fewer replicates than advice wants; ${bench.replicates} ran (${bench.wallSeconds.toFixed(1)} s), so the Monte-Carlo errors are large. Raise --budget for smaller ones.`);
   const skippedPerturbations = bench.run.skipped.filter((s) => s.estimator.startsWith('(all, under'));
   if (skippedPerturbations.length) warnings.push(`some perturbations could not be applied: ${[...new Set(skippedPerturbations.map((s) => s.reason))].join('; ')}.`);
   return {
@@ -199,8 +233,8 @@ export async function adviseSetting(options: SettingAdviceOptions): Promise<Sett
     tails: options.tails ?? null,
     support: options.support ?? null,
     budgetSeconds: budget,
-    match,
-    benchmark: { replicates: bench.replicates, seconds: bench.wallSeconds, minimumForced: bench.minimumForced, workers: bench.workers, perturbations: ADVICE_PERTURBATIONS },
+    match: { ...match, scenarios: match.scenarios.filter((m) => bench.scenarios.includes(m.id)) },
+    benchmark: { replicates: bench.replicates, seconds: bench.wallSeconds, minimumForced: bench.minimumForced, workers: bench.workers, perturbations: bench.perturbed ? ADVICE_PERTURBATIONS : [] },
     estimators: summaries,
     recommendation,
     warnings,

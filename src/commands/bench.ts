@@ -7,12 +7,13 @@ import type { Quantity } from '../contracts.js';
 import { parseScenario } from '../../scenarios/index.js';
 import type { Base } from '../format.js';
 import { defaultPlan } from '../default-plan.js';
-import { collect, parseIntegerOption, parseSampleSizes, readPlanFile, resolvePlan, type PlanInput } from '../plan.js';
+import { collect, parseFraction, parseIntegerOption, parseLevel, parseSampleSizes, readPlanFile, resolvePlan, type PlanInput } from '../plan.js';
 import { progressReporter } from '../progress.js';
 import { assembleRun, readRunFile, writeRunFile, type RunFile } from '../results.js';
 import { defaultWorkers, runPlan, type Shard } from '../runner.js';
 import { parseShard } from '../shard.js';
 import { detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../tables.js';
+import { rankLegend } from '../verdict-text.js';
 import { mergeShards } from '../merge.js';
 import { writeReport } from '../report/report.js';
 import { biasTextChart } from '../report/text-chart.js';
@@ -41,6 +42,8 @@ interface BenchOptions {
   report?: string | boolean;
   svgDir?: string;
   chart?: boolean;
+  level?: string;
+  maxFailureRate?: string;
 }
 
 function timestamp(): string {
@@ -92,6 +95,8 @@ export function planInputFromOptions(options: BenchOptions): PlanInput {
   if (options.n !== undefined) input.sampleSizes = parseSampleSizes(options.n);
   if (options.replicates !== undefined) input.replicates = parseIntegerOption('--replicates', options.replicates, 2, 1_000_000);
   if (options.seed !== undefined) input.seed = parseIntegerOption('--seed', options.seed, 0);
+  if (options.level !== undefined) input.verdicts = { ...input.verdicts, level: parseLevel(options.level) };
+  if (options.maxFailureRate !== undefined) input.verdicts = { ...input.verdicts, maxFailureRate: parseFraction('--max-failure-rate', options.maxFailureRate) };
   if (options.estimatorModule?.length) input.modules = [...(input.modules ?? []), ...options.estimatorModule.map((m) => resolveModulePath(m))];
   const wantsRobustness = options.robustness || options.perturb?.length || options.robustnessN !== undefined || options.tuning === false;
   if (wantsRobustness) {
@@ -122,7 +127,7 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
   const failedOther = run.cells.filter((c) => c.role !== 'main').reduce((s, c) => s + c.scores.failures, 0);
   if (failedMain) print(`${failedMain} estimate${failedMain === 1 ? '' : 's'} failed in the benchmark cells; the run file lists each with its reason (cells[].failures).`);
   if (failedOther) print(`${failedOther} estimate${failedOther === 1 ? '' : 's'} failed on perturbed samples or tuning variants (ties after rounding, mostly); the robustness table counts them.`);
-  print('RMSE ± Monte-Carlo SE; "=" marks ranks a paired test on squared errors cannot separate (|z| < 2).');
+  print(`RMSE ± Monte-Carlo SE. ${rankLegend(run.plan.verdicts.level, run.plan.verdicts.maxFailureRate)}`);
 }
 
 export function registerBenchCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
@@ -145,6 +150,8 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
     .option('--robustness-n <n>', 'the sample size of the robustness section (one of --n; default: the largest up to 1000)')
     .option('--no-tuning', 'leave the tuning grids out of the robustness section')
     .option('--estimator-module <file>', 'load estimators from a JavaScript module (repeatable); an id matching a built-in replaces it', collect)
+    .option('--level <c>', 'confidence level of each cell\'s best set (default 0.95; README, "Ranks and the best set")')
+    .option('--max-failure-rate <p>', 'an estimator failing on a larger share of a cell\'s replicates is ranked last there (default 0: any failure)')
     .option('--csv <file>', 'also write the score table as CSV')
     .option('--bits', 'print values in bits instead of nats (the run file is always in nats)')
     .option('--detail', 'also print every score of every cell')

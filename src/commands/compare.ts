@@ -1,6 +1,7 @@
 import type { Command } from 'commander';
 import { UsageError } from '../errors.js';
-import { compareRuns, failingCells, failsPolicy, parseFailOn, parseLevel, parseTolerance, type FailOn } from '../compare.js';
+import { compareRuns, failingCells, failsPolicy, parseFailOn, parseTolerance, type FailOn } from '../compare.js';
+import { parseLevel } from '../plan.js';
 import { formatComparisonJson, formatComparisonJunit, formatComparisonMarkdown, formatComparisonText } from '../compare-format.js';
 import { readRunFile, writeFileAtomic } from '../results.js';
 
@@ -12,6 +13,7 @@ interface CompareOptions {
   markdown?: boolean;
   json?: boolean;
   junit?: string;
+  allowMissing?: boolean;
 }
 
 export function registerCompareCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
@@ -21,8 +23,9 @@ export function registerCompareCommand(program: Command, print: (text: string) =
     .argument('<base>', 'the run file to compare against (e.g. results/baseline.json)')
     .argument('<new>', 'the run file with the changed code')
     .option('--tolerance <t>', 'smallest |ΔRMSE| that counts as worse or improved: nats (0.01) or a percentage of the base RMSE (5%)', '0')
-    .option('--level <c>', 'confidence level of the intervals', '0.95')
+    .option('--level <c>', 'per cell, 1 − the chance of calling an unchanged cell worse or improved (split over the paired tests by Bonferroni)', '0.95')
     .option('--fail-on <what>', 'exit 1 when a cell is worse beyond the tolerance (worse), or when any cell differs at all (changed)')
+    .option('--allow-missing', 'with --fail-on: do not fail because cells of the base run are missing from the new one')
     .option('--unpaired', "compare with Welch's t test even when both runs drew the same samples")
     .option('--markdown', 'print Markdown for a pull-request comment')
     .option('--json', 'print the comparison as JSON')
@@ -36,12 +39,15 @@ export function registerCompareCommand(program: Command, print: (text: string) =
       if (options.json) print(formatComparisonJson(comparison));
       else if (options.markdown) print(formatComparisonMarkdown(comparison));
       else print(formatComparisonText(comparison, { base: basePath, next: nextPath }));
-      if (options.junit) writeFileAtomic(options.junit, formatComparisonJunit(comparison, failOn ?? 'worse'));
-      if (failOn && failsPolicy(comparison, failOn)) {
+      const allowMissing = Boolean(options.allowMissing);
+      if (options.junit) writeFileAtomic(options.junit, formatComparisonJunit(comparison, failOn ?? 'worse', allowMissing));
+      if (failOn && failsPolicy(comparison, failOn, allowMissing)) {
         const failing = failingCells(comparison, failOn).length;
-        const only = comparison.added.length + comparison.removed.length;
-        const what = failOn === 'worse' ? `${failing} cell${failing === 1 ? ' is' : 's are'} worse beyond the tolerance` : `${failing} cell${failing === 1 ? '' : 's'} changed${only ? ` and ${only} are in only one run` : ''}`;
-        printErr(`hhat compare: ${what} (--fail-on ${failOn})`);
+        const parts: string[] = [];
+        if (failing) parts.push(failOn === 'worse' ? `${failing} cell${failing === 1 ? ' is' : 's are'} worse` : `${failing} cell${failing === 1 ? '' : 's'} changed`);
+        if (!allowMissing && comparison.removed.length) parts.push(`${comparison.removed.length} cell${comparison.removed.length === 1 ? ' of the base run is' : 's of the base run are'} missing from the new run (--allow-missing to accept)`);
+        if (failOn === 'changed' && comparison.added.length) parts.push(`${comparison.added.length} cell${comparison.added.length === 1 ? ' is' : 's are'} only in the new run`);
+        printErr(`hhat compare: ${parts.join('; ')} (--fail-on ${failOn})`);
         process.exitCode = 1;
       }
     });

@@ -1,5 +1,5 @@
 import type { Command } from 'commander';
-import { UsageError, EstimateError } from '../errors.js';
+import { UsageError, EstimateError, type EstimateErrorCode } from '../errors.js';
 import { formatValue, renderTable, toBase, type Base } from '../format.js';
 import { readSample, findRepeats, describeRepeats } from '../data.js';
 import { describeReference, meanLogReference, parseReference } from '../reference.js';
@@ -7,7 +7,7 @@ import { unitLabel } from '../units.js';
 import { describeRegistration, resolveModulePath, useEstimatorModules } from '../modules.js';
 import type { Quantity, Sample, Settings } from '../contracts.js';
 import { collect } from '../plan.js';
-import { listEstimators, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
+import { dimsRange, listEstimators, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
 
 /** Side by side: the columns of `a` then those of `b`, row by row (same n). */
 function joinColumns(a: Sample, b: Sample): Sample {
@@ -37,8 +37,14 @@ interface EstimateRecord {
   settings: Settings;
   value: number | null;
   error?: string;
+  /** Why the estimator could not run, as the estimator classified it (`ties` selects the repeated-value report). */
+  code?: EstimateErrorCode;
 }
 
+/**
+ * Every estimator on the sample; one that cannot run on these data becomes a record with its reason instead
+ * of stopping the others. Usage mistakes still throw: they are checked before any estimate is made.
+ */
 export function estimateAll(sample: Sample, configured: ConfiguredEstimator[], base: Base): EstimateRecord[] {
   return configured.map((c) => {
     try {
@@ -46,13 +52,31 @@ export function estimateAll(sample: Sample, configured: ConfiguredEstimator[], b
       if (!Number.isFinite(value)) throw new EstimateError('numeric', `${c.estimator.id} gave ${value} on this sample`);
       return { estimator: c.estimator.id, settings, value: toBase(value, base) };
     } catch (error) {
-      if (error instanceof UsageError || error instanceof EstimateError) {
-        return { estimator: c.estimator.id, settings: c.settings, value: null, error: error.message };
+      if (error instanceof EstimateError) {
+        return { estimator: c.estimator.id, settings: c.settings, value: null, error: error.message, code: error.code };
       }
       throw error;
     }
   });
 }
+
+/** The reason as one line that names the estimator once, whether or not the message already starts with it. */
+function failureLine(record: EstimateRecord): string {
+  const message = record.error ?? '';
+  return message.startsWith(record.estimator) ? message : `${record.estimator}: ${message}`;
+}
+
+const exitCodesHelp = `
+Exit codes:
+  0  every estimate was made; or only estimators of the default set (no
+     --estimator) could not run on these data: their rows say "failed" with
+     the reason, and one note on stderr counts them
+  1  an estimator named with --estimator could not run on these data (its
+     reason is on stderr; the other values are still printed), or no
+     estimator of the default set could
+  2  a mistake in the command: an unknown option, estimator or setting, a
+     value that is not allowed, a file that cannot be read, an estimator for
+     another quantity or dimension; nothing is estimated`;
 
 export function registerEstimateCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
   program
@@ -68,7 +92,8 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     .option('--x-columns <list>', 'mutual information between these columns (X) ...')
     .option('--y-columns <list>', '... and these (Y)')
     .option('--against <file>', 'a divergence D(P || Q): FILE holds the sample from P, this file the sample from Q')
-    .option('--json', 'print {"n", "dim", "base", "estimates": [...]} with the settings actually used')
+    .option('--json', 'print {"n", "dim", "base", "estimates": [...]} with the settings actually used; an estimate that failed has value null, its error and its code')
+    .addHelpText('after', exitCodesHelp)
     .action(async (file: string, options: { columns?: string; estimator?: string[]; bits?: boolean; json?: boolean; unit?: string; reference?: string; estimatorModule?: string[]; xColumns?: string; yColumns?: string; against?: string }) => {
       const base: Base = options.bits ? 'bits' : 'nats';
       const reference = options.reference === undefined ? undefined : parseReference(options.reference);
@@ -98,23 +123,29 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
       }
       if (reference && quantity !== 'entropy') throw new UsageError('--reference applies to entropy; mutual information and divergences are already unit-free');
       const offset = reference ? meanLogReference(reference, sample) : 0;
-      const specs = options.estimator?.length ? options.estimator : defaultEstimatorsFor(sample.dim, quantity);
+      const named = Boolean(options.estimator?.length);
+      const specs = named ? options.estimator! : defaultEstimatorsFor(sample.dim, quantity);
       if (!specs.length) throw new UsageError(`no ${quantity} estimator supports d = ${sample.dim}; see hhat estimators`);
       const configured = specs.map(parseEstimatorSpec);
       for (const c of configured) {
         if (c.estimator.quantity !== quantity) {
           throw new UsageError(`${c.estimator.id} estimates ${c.estimator.quantity}, but this call asks for ${quantity}${quantity === 'entropy' ? '' : ` (given by ${quantity === 'divergence' ? '--against' : '--x-columns/--y-columns'})`}`);
         }
+        // Checked before estimating so that asking for the wrong dimension is a usage mistake (exit 2), not
+        // a failure on the data; the default set only holds estimators that support the dimension.
+        const [minDim, maxDim] = c.estimator.dims;
+        if (sample.dim < minDim || sample.dim > maxDim) throw new UsageError(`${c.estimator.id} does not support d = ${sample.dim}; it needs ${dimsRange(c.estimator.dims)}`);
       }
-      // With the user's own choice of estimators, a dimension mismatch is their error; in the default set it cannot happen.
       const records = estimateAll(sample, configured, base).map((r) => ({
         ...r,
         ...(reference ? { relative: r.value === null ? null : r.value + toBase(offset, base) } : {}),
       }));
       const label = unitLabel(base, options.unit, sample.dim);
       const failed = records.filter((r) => r.error);
-      const tieFailure = failed.some((r) => /tie|repeat|zero (distance|spacing)|duplicate/i.test(r.error ?? ''));
-      const hints = tieFailure ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
+      const hints = failed.some((r) => r.code === 'ties') ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
+      // A default-set estimator that cannot run on these data is information about the data, not an error the
+      // user made or asked to hear about; one the user named, or a default set with no value at all, is.
+      const failedAsError = failed.length > 0 && (named || failed.length === records.length);
       if (options.json) {
         print(
           JSON.stringify(
@@ -142,14 +173,29 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
           Object.entries(r.settings)
             .map(([k, v]) => `${k}=${v}`)
             .join(', ') || '–',
-          r.value === null ? 'failed' : formatValue(r.value, 7),
+          r.value === null ? `failed (${r.code})` : formatValue(r.value, 7),
           ...(reference ? [r.relative === null || r.relative === undefined ? 'failed' : formatValue(r.relative, 7)] : []),
         ]);
         const head = ['estimator', 'settings used', `${quantity === 'entropy' ? 'entropy' : quantity} (${quantity === 'entropy' ? label : base})`, ...(reference ? [`relative to ${describeReference(reference)} (${base})`] : [])];
         print(renderTable(head, rows, { align: ['left', 'left', 'right', 'right'] }));
+        // Failures that are not errors go with the table, so saved output explains its own "failed" rows;
+        // errors go to stderr alone, so a terminal does not show each reason twice.
+        if (!failedAsError) {
+          for (const r of failed) print(`failed: ${failureLine(r)}`);
+          if (hints.length) print(['repeated values in the data:', ...hints.map((h) => `  ${h}`)].join('\n'));
+        }
       }
-      for (const r of failed) printErr(`hhat: ${r.error!.startsWith(r.estimator) ? '' : `${r.estimator}: `}${r.error}`);
-      for (const h of hints) printErr(`  ${h}`);
-      if (failed.length) process.exitCode = 2;
+      if (!failed.length) return;
+      if (failedAsError) {
+        for (const r of failed) printErr(`hhat: ${failureLine(r)}`);
+        for (const h of hints) printErr(`  ${h}`);
+        if (!named) printErr(`hhat: none of the ${records.length} default estimators could run on this data`);
+        process.exitCode = 1;
+      } else {
+        printErr(
+          `hhat: note: ${failed.length} of the ${records.length} default estimators could not run on this data (${failed.map((r) => r.estimator).join(', ')}), ` +
+            'which leaves the exit code at 0; name an estimator with --estimator to make its failure an error',
+        );
+      }
     });
 }

@@ -179,13 +179,13 @@ export function efficiencyData(data: ReportData): EfficiencyData {
 }
 
 export interface RankGrid {
-  rows: { estimator: string; group: string; meanRank: number; rankings: number }[];
+  rows: { estimator: string; group: string; meanRank: number; cells: number; failedCells: number }[];
   estimators: string[];
   groups: string[];
   maxRank: number;
 }
 
-/** run.overall as a grid, rows sorted by the rank over all groups (weighted by how many rankings each holds). */
+/** run.overall as a grid, rows sorted by the average rank over all cells. */
 export function rankGrid(data: ReportData): RankGrid | null {
   const { run } = data;
   if (!run.overall.length) return null;
@@ -194,21 +194,15 @@ export function rankGrid(data: ReportData): RankGrid | null {
   const totals: { estimator: string; mean: number }[] = [];
   for (const o of run.overall) {
     const estimator = data.label(o.estimator);
-    let sum = 0;
-    let count = 0;
     for (const g of groups) {
       const cell = o.groups[g];
       if (!cell || !finite(cell.meanRank)) continue;
-      rows.push({ estimator, group: g, meanRank: cell.meanRank, rankings: cell.rankings });
-      sum += cell.meanRank * cell.rankings;
-      count += cell.rankings;
+      rows.push({ estimator, group: g, meanRank: cell.meanRank, cells: cell.cells, failedCells: cell.failedCells });
     }
-    if (count) {
-      rows.push({ estimator, group: 'all', meanRank: sum / count, rankings: count });
-      totals.push({ estimator, mean: sum / count });
-    }
+    rows.push({ estimator, group: 'all', meanRank: o.all.meanRank, cells: o.all.cells, failedCells: o.all.failedCells });
+    totals.push({ estimator, mean: o.all.meanRank });
   }
-  totals.sort((a, b) => a.mean - b.mean);
+  totals.sort((a, b) => a.mean - b.mean || a.estimator.localeCompare(b.estimator));
   const maxRank = Math.max(2, ...run.rankings.map((r) => r.entries.length));
   return { rows, estimators: totals.map((t) => t.estimator), groups: [...groups, 'all'], maxRank };
 }

@@ -7,6 +7,7 @@ import type { RunFile, ScenarioInfo } from '../results.js';
 import { finite, sampleSizes, scenarioCells, slopeText, type RankGrid, type ReportData } from './data.js';
 import { sortableTable, type CellInput, type TableCell } from './html.js';
 import type { RobustnessSection } from './robustness-data.js';
+import { rankText, robustnessText, smallestQuantizeStep } from '../verdict-text.js';
 
 function pm(value: number | null | undefined, se: number | null | undefined, base: Base | null, digits = 3): TableCell {
   if (!finite(value)) return { text: '–', sort: null };
@@ -15,14 +16,11 @@ function pm(value: number | null | undefined, se: number | null | undefined, bas
   return { text: `${formatValue(v, digits)} ± ${Number.isFinite(s) ? formatValue(s, 2) : '?'}`, sort: v };
 }
 
-/** "3=" marks a rank the paired test cannot separate from a neighbour, as in the terminal tables. */
-function ranksOf(run: RunFile, scenario: string): Map<string, string> {
-  const out = new Map<string, string>();
+/** Ranks as the terminal tables show them ("1=" in the best set, failures ranked last with their count). */
+function ranksOf(run: RunFile, scenario: string): Map<string, { text: string; rank: number }> {
+  const out = new Map<string, { text: string; rank: number }>();
   for (const ranking of run.rankings.filter((r) => r.scenario === scenario && r.perturbation === null)) {
-    ranking.entries.forEach((e, i) => {
-      const tied = e.tiedWithAbove || ranking.entries[i + 1]?.tiedWithAbove;
-      out.set(`${e.estimator}|${ranking.n}`, `${e.rank}${tied ? '=' : ''}`);
-    });
+    for (const e of ranking.entries) out.set(`${e.estimator}|${ranking.n}`, { text: rankText(e, ranking), rank: e.rank });
   }
   return out;
 }
@@ -40,7 +38,7 @@ export function scenarioTable(data: ReportData, info: ScenarioInfo): string {
       const cell = cells.find((c) => c.estimator === spec && c.n === n);
       row.push(cell ? pm(cell.scores.rmse.value, cell.scores.rmse.se, base) : { text: '–', sort: null });
       const rank = ranks.get(`${spec}|${n}`);
-      row.push({ text: rank ?? '–', sort: rank ? Number.parseInt(rank, 10) : null });
+      row.push({ text: rank?.text ?? '–', sort: rank?.rank ?? null });
     }
     const last = cells.find((c) => c.estimator === spec && c.n === largest);
     row.push(last ? pm(last.scores.bias.value, last.scores.bias.se, base) : { text: '–', sort: null });
@@ -52,7 +50,7 @@ export function scenarioTable(data: ReportData, info: ScenarioInfo): string {
     return row;
   });
   const head = ['estimator', ...sizes.flatMap((n) => [`RMSE (${base}), n=${n}`, 'rank']), `bias (${base}), n=${largest}`, '|bias| slope', 'RMSE slope', 'failed'];
-  return sortableTable(`${info.id}: RMSE ± Monte-Carlo SE and rank ("=": a paired test cannot separate it from a neighbour)`, head, rows);
+  return sortableTable(`${info.id}: RMSE ± Monte-Carlo SE and rank ("1=": in the best set at level ${run.plan.verdicts.level}; failed cells rank last)`, head, rows);
 }
 
 export function rankTable(grid: RankGrid): string {
@@ -60,10 +58,12 @@ export function rankTable(grid: RankGrid): string {
     estimator,
     ...grid.groups.map((g): CellInput => {
       const cell = grid.rows.find((r) => r.estimator === estimator && r.group === g);
-      return cell ? { text: cell.meanRank.toFixed(1), sort: cell.meanRank, title: `average of ${cell.rankings} rankings` } : { text: '–', sort: null };
+      return cell
+        ? { text: `${cell.meanRank.toFixed(1)} (${cell.cells})`, sort: cell.meanRank, title: `average over ${cell.cells} cells${cell.failedCells ? `, ${cell.failedCells} of them failed and ranked last` : ''}` }
+        : { text: 'n/a', sort: null, title: 'cannot run in this group by design' };
     }),
   ]);
-  return sortableTable('Average rank by RMSE (1 = best) per dimension / tail class', ['estimator', ...grid.groups], rows);
+  return sortableTable('Average rank (1 = best) per dimension / tail class; in brackets the cells averaged', ['estimator', ...grid.groups], rows);
 }
 
 export function scoresTable(data: ReportData): string {
@@ -87,13 +87,13 @@ export function scoresTable(data: ReportData): string {
 }
 
 export function robustnessTable(data: ReportData, section: RobustnessSection, columns: string[]): string {
+  const finest = smallestQuantizeStep(section);
   const rows = section.table.map((row): CellInput[] => [
     data.label(row.estimator),
     ...columns.map((column): CellInput => {
       const cell = row.columns[column];
       if (!cell) return { text: '–', sort: null };
-      const value = finite(cell.value) ? ` ${formatValue(cell.value, 3)}` : '';
-      return { text: `${cell.verdict}${value}`, sort: finite(cell.value) ? cell.value : null, title: cell.detail, className: cell.verdict === 'n/a' ? undefined : cell.verdict };
+      return { text: robustnessText(column, cell.verdict, cell.value, finest), sort: finite(cell.value) ? cell.value : null, title: cell.detail, className: cell.verdict === 'n/a' ? undefined : cell.verdict };
     }),
   ]);
   return sortableTable('Robustness verdicts (hover a cell for its detail)', ['estimator', ...columns], rows);

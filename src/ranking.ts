@@ -1,0 +1,177 @@
+/**
+ * Ranks of the estimators in each cell (scenario × n) and their averages, with failures counted against the
+ * estimator that failed.
+ *
+ * Per cell (one rule, also in the README, "Ranks and the best set"):
+ * 1. An estimator whose failure rate exceeds the plan's `maxFailureRate` (default 0: any failure) did not run
+ *    the cell: it is listed after every estimator that did, marked with its failure count, and takes the
+ *    cell's last rank (the number of estimators in the cell). Its RMSE over the replicates that succeeded is
+ *    shown but decides nothing, since failures are seldom a random subset of the draws.
+ * 2. An estimator with a finite RMSE whose squared error overflowed is not failed but cannot be compared by
+ *    mean loss either; it comes after the comparable ones, before the failed ones.
+ * 3. The rest are compared on their squared errors over the replicates where all of them succeeded (every
+ *    replicate when maxFailureRate is 0): the best set is their Model Confidence Set at the plan's level
+ *    (src/best-set.ts). Best-set members share rank 1; the others follow by RMSE with ordinal ranks.
+ *
+ * Average ranks per dimension/tail group run over the same cells for every estimator: all the group's cells
+ * it could run by design (a cell exists for it), failed ones counted as last. Cells it cannot run by design
+ * (dimension) hold no cell and do not enter its average.
+ */
+import { modelConfidenceSet } from './best-set.js';
+import type { CellScores } from './score.js';
+
+/** What ranking needs of a cell. */
+export interface RankableCell {
+  scenario: string;
+  estimator: string;
+  n: number;
+  perturbation: string | null;
+  estimates: (number | null)[];
+  scores: CellScores;
+}
+
+export interface VerdictSettings {
+  /** Confidence level of the best set (1 − α). */
+  level: number;
+  /** Failure rate above which an estimator counts as not having run the cell. */
+  maxFailureRate: number;
+}
+
+export const DEFAULT_VERDICTS: VerdictSettings = { level: 0.95, maxFailureRate: 0 };
+
+export type RankStatus = 'ranked' | 'unbounded-error' | 'failed';
+
+export interface RankEntry {
+  estimator: string;
+  rank: number;
+  /** ranked: compared in the best-set procedure; unbounded-error: squared error overflowed; failed: failure rate above maxFailureRate. */
+  status: RankStatus;
+  /** In the best set: cannot be told apart from the best at the ranking's level. */
+  best: boolean;
+  /** The estimator's MCS p-value (null unless ranked). */
+  pValue: number | null;
+  rmse: number;
+  rmseSe: number;
+  failures: number;
+  replicates: number;
+}
+
+export interface Ranking {
+  scenario: string;
+  n: number;
+  perturbation: string | null;
+  level: number;
+  /** Replicates on which the ranked estimators were compared (those where every one of them succeeded). */
+  comparedReplicates: number;
+  /** Entries in printed order: best set, the rest of the ranked by RMSE, unbounded errors, failed. */
+  entries: RankEntry[];
+}
+
+export interface GroupRank {
+  meanRank: number;
+  /** Cells averaged (scenario × n). */
+  cells: number;
+  /** Of those, cells it failed (ranked last). */
+  failedCells: number;
+}
+
+export interface OverallRank {
+  estimator: string;
+  /** Per group "d=1/light" etc.; absent where the estimator has no cell (cannot run by design). */
+  groups: Record<string, GroupRank>;
+  /** Over every cell it could run. */
+  all: GroupRank;
+}
+
+function failed(cell: RankableCell, settings: VerdictSettings): boolean {
+  return cell.scores.replicates > 0 && cell.scores.failures / cell.scores.replicates > settings.maxFailureRate;
+}
+
+function byRmse(a: RankableCell, b: RankableCell): number {
+  return a.scores.rmse.value - b.scores.rmse.value || a.estimator.localeCompare(b.estimator);
+}
+
+/** Ranks one cell's estimators (all on the same scenario, n and perturbation). */
+export function rankCell(group: RankableCell[], truth: number, settings: VerdictSettings, seed: string): Ranking {
+  const last = group.length;
+  const failing = group.filter((c) => failed(c, settings));
+  const running = group.filter((c) => !failed(c, settings));
+  const comparable = running.filter((c) => Number.isFinite(c.scores.rmse.value));
+  const unbounded = running.filter((c) => !Number.isFinite(c.scores.rmse.value));
+
+  // Replicates where every comparable estimator succeeded; their squared errors are the paired losses.
+  const replicates = group[0]?.estimates.length ?? 0;
+  const common: number[] = [];
+  for (let r = 0; r < replicates; r++) if (comparable.every((c) => c.estimates[r] !== null)) common.push(r);
+  const losses = comparable.map((c) => common.map((r) => (c.estimates[r]! - truth) ** 2));
+  const usable = losses.every((l) => l.every(Number.isFinite));
+  const result = usable ? modelConfidenceSet(losses, { level: settings.level, seed }) : null;
+  const pOf = new Map(comparable.map((c, i) => [c, result ? result.pValues[i] : 1]));
+  const inSet = (c: RankableCell) => (result ? result.inSet[comparable.indexOf(c)] : true);
+
+  const best = comparable.filter(inSet).sort(byRmse);
+  const rest = comparable.filter((c) => !inSet(c)).sort(byRmse);
+  const entry = (c: RankableCell, rank: number, status: RankStatus): RankEntry => ({
+    estimator: c.estimator,
+    rank,
+    status,
+    best: status === 'ranked' && inSet(c),
+    pValue: status === 'ranked' ? pOf.get(c)! : null,
+    rmse: c.scores.rmse.value,
+    rmseSe: c.scores.rmse.se,
+    failures: c.scores.failures,
+    replicates: c.scores.replicates,
+  });
+  const entries: RankEntry[] = [
+    ...best.map((c) => entry(c, 1, 'ranked')),
+    ...rest.map((c, i) => entry(c, best.length + i + 1, 'ranked')),
+    ...unbounded.sort((a, b) => a.estimator.localeCompare(b.estimator)).map((c, i) => entry(c, comparable.length + i + 1, 'unbounded-error')),
+    ...failing.sort((a, b) => a.scores.failures - b.scores.failures || byRmseOrLast(a, b)).map((c) => entry(c, last, 'failed')),
+  ];
+  return { scenario: group[0].scenario, n: group[0].n, perturbation: group[0].perturbation, level: settings.level, comparedReplicates: common.length, entries };
+}
+
+function byRmseOrLast(a: RankableCell, b: RankableCell): number {
+  const x = Number.isFinite(a.scores.rmse.value) ? a.scores.rmse.value : Infinity;
+  const y = Number.isFinite(b.scores.rmse.value) ? b.scores.rmse.value : Infinity;
+  return x - y || a.estimator.localeCompare(b.estimator);
+}
+
+/** Rankings of every (scenario, n, perturbation) group of cells; `seedOf` names each group's bootstrap seed. */
+export function rankCells(cells: RankableCell[], truthOf: (scenario: string) => number, settings: VerdictSettings, seedOf: (scenario: string, n: number) => string): Ranking[] {
+  const groups = new Map<string, RankableCell[]>();
+  for (const c of cells) {
+    const k = `${c.scenario}|${c.n}|${c.perturbation ?? ''}`;
+    if (!groups.has(k)) groups.set(k, []);
+    groups.get(k)!.push(c);
+  }
+  return [...groups.values()].map((group) => rankCell(group, truthOf(group[0].scenario), settings, seedOf(group[0].scenario, group[0].n)));
+}
+
+/** Average ranks per group (named by `groupOf(scenario)`) and over all cells. */
+export function overallRanks(rankings: Ranking[], groupOf: (scenario: string) => string): OverallRank[] {
+  const table = new Map<string, Map<string, { sum: number; cells: number; failed: number }>>();
+  const add = (row: Map<string, { sum: number; cells: number; failed: number }>, key: string, entry: RankEntry) => {
+    const cell = row.get(key) ?? { sum: 0, cells: 0, failed: 0 };
+    cell.sum += entry.rank;
+    cell.cells += 1;
+    if (entry.status === 'failed') cell.failed += 1;
+    row.set(key, cell);
+  };
+  for (const ranking of rankings) {
+    if (ranking.perturbation !== null) continue;
+    const group = groupOf(ranking.scenario);
+    for (const entry of ranking.entries) {
+      if (!table.has(entry.estimator)) table.set(entry.estimator, new Map());
+      const row = table.get(entry.estimator)!;
+      add(row, group, entry);
+      add(row, '\u0000all', entry);
+    }
+  }
+  const summary = ({ sum, cells, failed }: { sum: number; cells: number; failed: number }): GroupRank => ({ meanRank: sum / cells, cells, failedCells: failed });
+  return [...table.entries()].map(([estimator, row]) => ({
+    estimator,
+    groups: Object.fromEntries([...row.entries()].filter(([g]) => g !== '\u0000all').map(([g, v]) => [g, summary(v)])),
+    all: summary(row.get('\u0000all')!),
+  }));
+}

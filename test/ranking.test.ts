@@ -1,0 +1,178 @@
+/**
+ * Ranks and best sets: the model confidence set against an independent implementation, the verdict on
+ * constructed cases whose answer is known, and failures counted against the estimator that failed.
+ */
+import { describe, expect, it } from 'vitest';
+import normalRandom from '@stdlib/random-base-normal';
+import normalEntropy from '@stdlib/stats-base-dists-normal-entropy';
+import { bootstrapIndices, modelConfidenceSet } from '../src/best-set.js';
+import { overallRanks, rankCell, type RankableCell, type Ranking } from '../src/ranking.js';
+import { scoreCell } from '../src/score.js';
+import { resolvePlan } from '../src/plan.js';
+import { runPlan } from '../src/runner.js';
+import { assembleRun } from '../src/results.js';
+import { rngFromSeed } from '../src/rng.js';
+import { registerEstimator, listEstimators } from '../estimators/index.js';
+import { rankText } from '../src/verdict-text.js';
+import { flakyExact } from './fixtures/flaky-exact-estimator.js';
+import reference from './fixtures/best-set.json' with { type: 'json' };
+
+describe('model confidence set (reference: NumPy implementation of Hansen, Lunde & Nason 2011, test/fixtures/make_best_set_fixture.py)', () => {
+  it.each(reference.cases.map((c) => [c.name, c] as const))('%s: the same p-values and elimination order on the same resamples', (_name, c) => {
+    const result = modelConfidenceSet(c.losses, { level: 0.95, seed: 'unused', resamples: c.resamples, indices: Uint32Array.from(c.indices) });
+    expect(result.pValues).toEqual(c.pValues);
+    expect(result.eliminationOrder).toEqual(c.eliminationOrder);
+    expect(result.inSet).toEqual(c.pValues.map((p) => p >= 0.05));
+  });
+
+  it('is deterministic: the same seed gives the same indices and set; another seed other indices', () => {
+    expect(bootstrapIndices('cell a', 30, 50)).toEqual(bootstrapIndices('cell a', 30, 50));
+    expect(bootstrapIndices('cell a', 30, 50)).not.toEqual(bootstrapIndices('cell b', 30, 50));
+    const losses = reference.cases[0].losses;
+    expect(modelConfidenceSet(losses, { level: 0.9, seed: 's' })).toEqual(modelConfidenceSet(losses, { level: 0.9, seed: 's' }));
+  });
+
+  it('keeps one estimator, or identical ones, without a test', () => {
+    expect(modelConfidenceSet([[1, 2, 3]], { level: 0.95, seed: 's' }).inSet).toEqual([true]);
+    const same = [0.3, 0.1, 0.7, 0.2];
+    expect(modelConfidenceSet([same, same, same], { level: 0.95, seed: 's' }).inSet).toEqual([true, true, true]);
+    // A constant gap on every replicate is certain, however small.
+    expect(modelConfidenceSet([same, same.map((x) => x + 1e-6)], { level: 0.95, seed: 's' }).inSet).toEqual([true, false]);
+  });
+});
+
+/** A cell of replicate estimates, scored as the harness scores it. */
+function cell(estimator: string, estimates: (number | null)[], truth: number): RankableCell {
+  return {
+    scenario: 's',
+    estimator,
+    n: 100,
+    perturbation: null,
+    estimates,
+    scores: scoreCell(estimates.map((v) => (v === null ? NaN : v)), truth, 100),
+  };
+}
+
+/** Paired z of the squared-error difference a − b (mean over its SE), computed directly. */
+function pairedZ(a: number[], b: number[], truth: number): number {
+  const d = a.map((x, r) => (x - truth) ** 2 - (b[r] - truth) ** 2);
+  const mean = d.reduce((s, x) => s + x, 0) / d.length;
+  const variance = d.reduce((s, x) => s + (x - mean) ** 2, 0) / (d.length - 1);
+  return mean / Math.sqrt(variance / d.length);
+}
+
+describe('best set verdicts on constructed cases', () => {
+  it('an estimator the neighbour chain would rank 1= but whose paired z against the leader is above 3 is not in the best set', () => {
+    // Errors share a draw-to-draw component (the same samples) and a common bias. A and C follow it closely,
+    // C 0.015 nats higher, so their paired comparison is precise; B has no extra bias but noise of its own,
+    // so it cannot be separated from either neighbour. The neighbour chain A – B – C would give C "1=".
+    const normal = normalRandom.factory({ prng: rngFromSeed('chain') });
+    const R = 40;
+    const shared = Array.from({ length: R }, () => 0.05 + normal(0, 0.05));
+    const a = shared.map((s) => s + normal(0, 0.005));
+    const b = shared.map((s) => s + normal(0, 0.02));
+    const c = shared.map((s) => s + 0.015 + normal(0, 0.005));
+    const ranking = rankCell([cell('C', c, 0), cell('B', b, 0), cell('A', a, 0)], 0, { level: 0.95, maxFailureRate: 0 }, 'chain');
+    // The chain's premises, computed directly: RMSE order A < B < C, adjacent pairs within |z| < 2, C against A above 3.
+    expect(ranking.entries.map((e) => e.estimator)).toEqual(['A', 'B', 'C']);
+    expect(Math.abs(pairedZ(b, a, 0))).toBeLessThan(2);
+    expect(Math.abs(pairedZ(c, b, 0))).toBeLessThan(2);
+    expect(pairedZ(c, a, 0)).toBeGreaterThan(3);
+    expect(ranking.entries.map((e) => [e.estimator, e.rank, e.best])).toEqual([
+      ['A', 1, true],
+      ['B', 1, true],
+      ['C', 3, false],
+    ]);
+    expect(ranking.entries[2].pValue).toBeLessThan(0.05);
+  });
+
+  it('misses a best estimator in at most about 5% of simulated benchmarks (two equally good, three worse; 400 simulations)', () => {
+    // Under the null for the two best, the set should miss either of them in at most 5% of simulations; the
+    // binomial 99.9% bound for 400 draws at 5% is 5% + 3.1·√(0.05·0.95/400) ≈ 8.4%, allowed here as 8.5%.
+    const normal = normalRandom.factory({ prng: rngFromSeed('coverage') });
+    const R = 30;
+    let missed = 0;
+    let excludedWorst = 0;
+    const simulations = 400;
+    for (let s = 0; s < simulations; s++) {
+      const shared = Array.from({ length: R }, () => normal(0, 0.1));
+      const losses = [0, 0, 0.02, 0.04, 0.15].map((bias) => shared.map((x) => (x + bias + normal(0, 0.05)) ** 2));
+      const result = modelConfidenceSet(losses, { level: 0.95, seed: `coverage ${s}`, resamples: 500 });
+      if (!result.inSet[0] || !result.inSet[1]) missed++;
+      if (!result.inSet[4]) excludedWorst++;
+    }
+    // Measured when written: 3.75% missed, the worst excluded in 96.25%.
+    expect(missed / simulations).toBeLessThan(0.085);
+    // And it has power: the clearly worse estimator (bias 0.15 against errors of SD 0.11) is excluded nearly always.
+    expect(excludedWorst / simulations).toBeGreaterThan(0.95);
+  });
+
+  it('a failing estimator is listed after every one that ran and takes the last rank; an overflowing error comes before it', () => {
+    const truth = 1;
+    const good = [1.1, 0.9, 1.05, 0.95, 1.02, 0.97];
+    const ranking = rankCell(
+      [cell('flaky', [1, 1, null, 1, 1, 1], truth), cell('good', good, truth), cell('wild', good.map((v, r) => (r === 2 ? 1e200 : v)), truth), cell('fine', good.map((v) => v + 0.01), truth)],
+      truth,
+      { level: 0.95, maxFailureRate: 0 },
+      'x',
+    );
+    expect(ranking.entries.map((e) => [e.estimator, e.rank, e.status])).toEqual([
+      ['good', 1, 'ranked'],
+      ['fine', 1, 'ranked'],
+      ['wild', 3, 'unbounded-error'],
+      ['flaky', 4, 'failed'],
+    ]);
+    expect(rankText(ranking.entries[3], ranking)).toBe('4 (failed 1/6)');
+    expect(rankText(ranking.entries[0], ranking)).toBe('1=');
+    // With a failure allowance the flaky one is compared, on the replicates where every estimator ran.
+    const lenient = rankCell([cell('flaky', [1, 1, null, 1, 1, 1], truth), cell('good', good, truth)], truth, { level: 0.95, maxFailureRate: 0.2 }, 'x');
+    expect(lenient.comparedReplicates).toBe(5);
+    expect(lenient.entries.every((e) => e.status === 'ranked')).toBe(true);
+  });
+
+  it('average ranks run over the same cells for everyone, failed cells last, cells it cannot run by design left out', () => {
+    const entry = (estimator: string, rank: number, status: 'ranked' | 'failed' = 'ranked') => ({ estimator, rank, status, best: rank === 1, pValue: null, rmse: 0, rmseSe: 0, failures: 0, replicates: 10 });
+    const rankings: Ranking[] = [
+      { scenario: 'a', n: 10, perturbation: null, level: 0.95, comparedReplicates: 10, entries: [entry('x', 1), entry('y', 2)] },
+      { scenario: 'b', n: 10, perturbation: null, level: 0.95, comparedReplicates: 10, entries: [entry('x', 1), entry('y', 2, 'failed')] },
+      { scenario: 'c', n: 10, perturbation: null, level: 0.95, comparedReplicates: 10, entries: [entry('x', 1)] },
+    ];
+    const overall = overallRanks(rankings, (s) => (s === 'c' ? 'd=3' : 'd=1'));
+    const y = overall.find((o) => o.estimator === 'y')!;
+    expect(y.groups['d=3']).toBeUndefined();
+    expect(y.groups['d=1']).toEqual({ meanRank: 2, cells: 2, failedCells: 1 });
+    expect(overall.find((o) => o.estimator === 'x')!.all).toEqual({ meanRank: 1, cells: 3, failedCells: 0 });
+  });
+});
+
+describe('a benchmark with an estimator that fails on 40% of draws and is exact otherwise', () => {
+  it('is never in the best set of a cell where it failed, and its average rank is worse than a working estimator', async () => {
+    if (!listEstimators().some((e) => e.id === flakyExact.id)) registerEstimator(flakyExact);
+    const { plan } = resolvePlan({
+      scenarios: ['normal'],
+      estimators: ['flaky-exact', 'kozachenko-leonenko'],
+      sampleSizes: [50, 200, 800],
+      replicates: 20,
+      seed: 11,
+    });
+    const run = assembleRun(await runPlan(plan, { workers: 1 }), null);
+    const flaky = run.cells.filter((c) => c.estimator.startsWith('flaky-exact'));
+    // The fixture really is exact where it runs and fails on roughly 40% (here: every cell has failures).
+    for (const c of flaky) {
+      expect(c.scores.failures).toBeGreaterThan(0);
+      for (const v of c.estimates) if (v !== null) expect(v).toBe(normalEntropy(0, 1));
+    }
+    const total = flaky.reduce((s, c) => s + c.scores.failures, 0);
+    expect(total / (flaky.length * 20)).toBeGreaterThan(0.25);
+    for (const ranking of run.rankings) {
+      const entry = ranking.entries.find((e) => e.estimator.startsWith('flaky-exact'))!;
+      if (entry.failures > 0) {
+        expect(entry.best).toBe(false);
+        expect(entry.rank).toBe(ranking.entries.length);
+      }
+    }
+    const average = (id: string) => run.overall.find((o) => o.estimator.startsWith(id))!.all;
+    expect(average('flaky-exact').meanRank).toBeGreaterThan(average('kozachenko-leonenko').meanRank);
+    expect(average('flaky-exact').cells).toBe(average('kozachenko-leonenko').cells);
+  });
+});
