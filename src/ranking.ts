@@ -10,14 +10,17 @@
  * 2. An estimator with a finite RMSE whose squared error overflowed is not failed but cannot be compared by
  *    mean loss either; it comes after the comparable ones, before the failed ones.
  * 3. The rest are compared on their squared errors over the replicates where all of them succeeded (every
- *    replicate when maxFailureRate is 0): the best set is their Model Confidence Set at the plan's level
- *    (src/best-set.ts). Best-set members share rank 1; the others follow by RMSE with ordinal ranks.
+ *    replicate when maxFailureRate is 0). The best set is their Model Confidence Set (src/best-set.ts), less
+ *    any member that is worse than the leader on significantly more of those draws than it is better (the
+ *    sign-test guard below); the two checks share α = 1 − level by Bonferroni, α/2 each. Best-set members
+ *    share rank 1; the others follow by RMSE with ordinal ranks.
  *
  * Average ranks per dimension/tail group run over the same cells for every estimator: all the group's cells
  * it could run by design (a cell exists for it), failed ones counted as last. Cells it cannot run by design
  * (dimension) hold no cell and do not enter its average.
  */
 import { modelConfidenceSet } from './best-set.js';
+import { signTest } from './exact-tests.js';
 import type { CellScores } from './score.js';
 
 /** What ranking needs of a cell. */
@@ -50,6 +53,8 @@ export interface RankEntry {
   best: boolean;
   /** The estimator's MCS p-value (null unless ranked). */
   pValue: number | null;
+  /** One-sided exact sign-test p that it is worse than the leader on more draws than better (confidence-set members other than the leader). */
+  signP: number | null;
   rmse: number;
   rmseSe: number;
   failures: number;
@@ -105,9 +110,13 @@ export function rankCell(group: RankableCell[], truth: number, settings: Verdict
   for (let r = 0; r < replicates; r++) if (comparable.every((c) => c.estimates[r] !== null)) common.push(r);
   const losses = comparable.map((c) => common.map((r) => (c.estimates[r]! - truth) ** 2));
   const usable = losses.every((l) => l.every(Number.isFinite));
-  const result = usable ? modelConfidenceSet(losses, { level: settings.level, seed }) : null;
+  // Two checks share α by Bonferroni: the confidence set on mean squared error, then the sign-test guard.
+  const alpha = 1 - settings.level;
+  const result = usable ? modelConfidenceSet(losses, { level: 1 - alpha / 2, seed }) : null;
   const pOf = new Map(comparable.map((c, i) => [c, result ? result.pValues[i] : 1]));
-  const inSet = (c: RankableCell) => (result ? result.inSet[comparable.indexOf(c)] : true);
+  const members = comparable.filter((_c, i) => (result ? result.inSet[i] : true));
+  const guard = signGuard(members, comparable, losses, alpha / 2);
+  const inSet = (c: RankableCell) => members.includes(c) && !guard.dropped.has(c);
 
   const best = comparable.filter(inSet).sort(byRmse);
   const rest = comparable.filter((c) => !inSet(c)).sort(byRmse);
@@ -117,6 +126,7 @@ export function rankCell(group: RankableCell[], truth: number, settings: Verdict
     status,
     best: status === 'ranked' && inSet(c),
     pValue: status === 'ranked' ? pOf.get(c)! : null,
+    signP: status === 'ranked' ? (guard.p.get(c) ?? null) : null,
     rmse: c.scores.rmse.value,
     rmseSe: c.scores.rmse.se,
     failures: c.scores.failures,
@@ -129,6 +139,38 @@ export function rankCell(group: RankableCell[], truth: number, settings: Verdict
     ...failing.sort((a, b) => a.scores.failures - b.scores.failures || byRmseOrLast(a, b)).map((c) => entry(c, last, 'failed')),
   ];
   return { scenario: group[0].scenario, n: group[0].n, perturbation: group[0].perturbation, level: settings.level, comparedReplicates: common.length, entries };
+}
+
+/**
+ * The second check on the best set: a member worse than the leader (the member with the smallest RMSE) on
+ * significantly more draws than it is better is dropped. One-sided exact sign tests on the paired squared
+ * errors, Holm's step-down over the members (Holm, Scand. J. Statist. 6:65–70, 1979) at `level`. A mean
+ * cannot separate an estimator whose squared errors are dominated by a few far-off draws (the same draws
+ * inflate the mean's SE), however often it loses; the sign test counts every draw once.
+ */
+function signGuard(members: RankableCell[], comparable: RankableCell[], losses: number[][], level: number): { p: Map<RankableCell, number>; dropped: Set<RankableCell> } {
+  const p = new Map<RankableCell, number>();
+  const dropped = new Set<RankableCell>();
+  if (members.length < 2) return { p, dropped };
+  const leader = [...members].sort(byRmse)[0];
+  const leaderLoss = losses[comparable.indexOf(leader)];
+  for (const c of members) {
+    if (c === leader) continue;
+    const loss = losses[comparable.indexOf(c)];
+    let worse = 0;
+    let better = 0;
+    for (let r = 0; r < loss.length; r++) {
+      if (loss[r] > leaderLoss[r]) worse++;
+      else if (loss[r] < leaderLoss[r]) better++;
+    }
+    p.set(c, worse > better ? signTest(worse, better).p / 2 : 1);
+  }
+  const ordered = [...p.entries()].sort((a, b) => a[1] - b[1]);
+  for (let i = 0; i < ordered.length; i++) {
+    if (ordered[i][1] > level / (ordered.length - i)) break;
+    dropped.add(ordered[i][0]);
+  }
+  return { p, dropped };
 }
 
 function byRmseOrLast(a: RankableCell, b: RankableCell): number {

@@ -6,7 +6,7 @@ import { formatValue, renderTable, shorten, toBase, type Base } from './format.j
 import { getEstimator } from '../estimators/index.js';
 import { parseSpec } from './spec.js';
 import { rankedGroups, type Cell, type RunFile } from './results.js';
-import { COLUMN_TITLES, rankText, robustnessText, smallestQuantizeStep } from './verdict-text.js';
+import { COLUMN_TITLES, rankText, robustnessText, smallestQuantizeStep, wideBestSetNote } from './verdict-text.js';
 
 /** The estimator's id plus only the settings that differ from their defaults. */
 export function estimatorLabel(spec: string): string {
@@ -67,6 +67,11 @@ export function scenarioTables(run: RunFile, base: Base): string {
         { align: ['left', ...sizes.map(() => 'right' as const), 'right', 'right'] },
       ),
     );
+    const note = wideBestSetNote(
+      run.rankings.filter((r) => r.scenario === info.id && r.perturbation === null),
+      estimatorLabel,
+    );
+    if (note) out.push(note);
   }
   return out.join('\n');
 }

@@ -25,11 +25,32 @@ export function rankText(entry: RankEntry, ranking: Ranking): string {
   }
 }
 
+/**
+ * Best-set members whose RMSE is at least twice the leader's: the set keeps them because their squared errors
+ * vary too much across the replicates (a few large ones) to separate them, not because they are as good.
+ * Saying so keeps "1=" from reading as a recommendation.
+ */
+export function wideBestSetMembers(ranking: Ranking): RankEntry[] {
+  const best = ranking.entries.filter((e) => e.best);
+  const leader = Math.min(...best.map((e) => e.rmse));
+  return best.filter((e) => Number.isFinite(e.rmse) && e.rmse >= 2 * leader);
+}
+
+/** A note for a scenario's table naming such members, by estimator and the sample sizes where it happens. */
+export function wideBestSetNote(rankings: Ranking[], label: (spec: string) => string): string | null {
+  const where = new Map<string, number[]>();
+  for (const ranking of rankings) for (const e of wideBestSetMembers(ranking)) where.set(e.estimator, [...(where.get(e.estimator) ?? []), ranking.n]);
+  if (!where.size) return null;
+  const replicates = rankings[0].comparedReplicates;
+  const list = [...where.entries()].map(([spec, sizes]) => `${label(spec)} (n = ${sizes.join(', ')})`).join('; ');
+  return `In the best set with at least twice the leader's RMSE: ${list}. Over ${replicates} replicates their squared errors vary too much to be told apart from the best, and they do not lose to the leader on most draws; more replicates would separate them if they are worse.`;
+}
+
 /** One line under a ranked table: the procedure, its level and the failure rule, as in the README. */
 export function rankLegend(level: number, maxFailureRate: number): string {
   const pct = `${+(level * 100).toPrecision(6)}%`;
   const failures = maxFailureRate === 0 ? 'fails on any replicate' : `fails on more than ${+(maxFailureRate * 100).toPrecision(6)}% of replicates`;
-  return `Rank "1=": in the best set, the estimators that cannot be told apart from the best at level ${pct} (model confidence set on paired squared errors, Hansen, Lunde & Nason 2011). An estimator that ${failures} of a cell is ranked last there.`;
+  return `Rank "1=": in the best set, the estimators that cannot be told apart from the best at level ${pct} (model confidence set on paired squared errors, Hansen, Lunde & Nason 2011, less members the leader beats on most draws by a sign test). An estimator that ${failures} of a cell is ranked last there.`;
 }
 
 export const COLUMN_TITLES: Record<string, string> = {

@@ -86,6 +86,22 @@ describe('best set verdicts on constructed cases', () => {
     expect(ranking.entries[2].pValue).toBeLessThan(0.05);
   });
 
+  it('a member the mean cannot separate, because one far-off draw dominates its squared errors, is dropped when it loses on most draws', () => {
+    const normal = normalRandom.factory({ prng: rngFromSeed('guard') });
+    const a = Array.from({ length: 30 }, () => normal(0, 0.05));
+    // B is 1.5 times further from the truth than A on every draw, and 50 nats off on one of them.
+    const b = a.map((e, r) => (r === 7 ? 50 : 1.5 * e));
+    const squared = (x: number[]) => x.map((e) => e * e);
+    // The confidence set alone keeps B (level 0.975, as in the ranking): its mean loss is too noisy.
+    expect(modelConfidenceSet([squared(a), squared(b)], { level: 0.975, seed: 'guard' }).inSet).toEqual([true, true]);
+    const ranking = rankCell([cell('A', a, 0), cell('B', b, 0)], 0, { level: 0.95, maxFailureRate: 0 }, 'guard');
+    const entry = ranking.entries.find((e) => e.estimator === 'B')!;
+    // B is worse on all 30 draws: one-sided sign-test p = 2^-30 (the binomial tail, by hand).
+    expect(entry.signP).toBeCloseTo(2 ** -30, 20);
+    expect(entry.best).toBe(false);
+    expect(entry.rank).toBe(2);
+  });
+
   it('misses a best estimator in at most about 5% of simulated benchmarks (two equally good, three worse; 400 simulations)', () => {
     // Under the null for the two best, the set should miss either of them in at most 5% of simulations; the
     // binomial 99.9% bound for 400 draws at 5% is 5% + 3.1·√(0.05·0.95/400) ≈ 8.4%, allowed here as 8.5%.
@@ -131,7 +147,7 @@ describe('best set verdicts on constructed cases', () => {
   });
 
   it('average ranks run over the same cells for everyone, failed cells last, cells it cannot run by design left out', () => {
-    const entry = (estimator: string, rank: number, status: 'ranked' | 'failed' = 'ranked') => ({ estimator, rank, status, best: rank === 1, pValue: null, rmse: 0, rmseSe: 0, failures: 0, replicates: 10 });
+    const entry = (estimator: string, rank: number, status: 'ranked' | 'failed' = 'ranked') => ({ estimator, rank, status, best: rank === 1, pValue: null, signP: null, rmse: 0, rmseSe: 0, failures: 0, replicates: 10 });
     const rankings: Ranking[] = [
       { scenario: 'a', n: 10, perturbation: null, level: 0.95, comparedReplicates: 10, entries: [entry('x', 1), entry('y', 2)] },
       { scenario: 'b', n: 10, perturbation: null, level: 0.95, comparedReplicates: 10, entries: [entry('x', 1), entry('y', 2, 'failed')] },

@@ -5,9 +5,9 @@
 import { formatValue, toBase, type Base } from '../format.js';
 import type { RunFile, ScenarioInfo } from '../results.js';
 import { finite, sampleSizes, scenarioCells, slopeText, type RankGrid, type ReportData } from './data.js';
-import { sortableTable, type CellInput, type TableCell } from './html.js';
+import { escapeHtml, sortableTable, type CellInput, type TableCell } from './html.js';
 import type { RobustnessSection } from './robustness-data.js';
-import { rankText, robustnessText, smallestQuantizeStep } from '../verdict-text.js';
+import { rankText, robustnessText, smallestQuantizeStep, wideBestSetNote } from '../verdict-text.js';
 
 function pm(value: number | null | undefined, se: number | null | undefined, base: Base | null, digits = 3): TableCell {
   if (!finite(value)) return { text: '–', sort: null };
@@ -31,7 +31,10 @@ export function scenarioTable(data: ReportData, info: ScenarioInfo): string {
   const sizes = sampleSizes(cells);
   const largest = sizes[sizes.length - 1];
   const ranks = ranksOf(run, info.id);
-  const specs = [...new Set(cells.map((c) => c.estimator))];
+  // Rows in the printed order of the ranking at the largest n, as in the terminal tables.
+  const rankings = run.rankings.filter((r) => r.scenario === info.id && r.perturbation === null);
+  const position = new Map(rankings.find((r) => r.n === largest)?.entries.map((e, i) => [e.estimator, i]) ?? []);
+  const specs = [...new Set(cells.map((c) => c.estimator))].sort((a, b) => (position.get(a) ?? Infinity) - (position.get(b) ?? Infinity));
   const rows = specs.map((spec) => {
     const row: CellInput[] = [data.label(spec)];
     for (const n of sizes) {
@@ -50,7 +53,9 @@ export function scenarioTable(data: ReportData, info: ScenarioInfo): string {
     return row;
   });
   const head = ['estimator', ...sizes.flatMap((n) => [`RMSE (${base}), n=${n}`, 'rank']), `bias (${base}), n=${largest}`, '|bias| slope', 'RMSE slope', 'failed'];
-  return sortableTable(`${info.id}: RMSE ± Monte-Carlo SE and rank ("1=": in the best set at level ${run.plan.verdicts.level}; failed cells rank last)`, head, rows);
+  const note = rankings.length ? wideBestSetNote(rankings, data.label) : null;
+  const table = sortableTable(`${info.id}: RMSE ± Monte-Carlo SE and rank ("1=": in the best set at level ${run.plan.verdicts.level}; failed cells rank last)`, head, rows);
+  return note ? `${table}<p class="note">${escapeHtml(note)}</p>` : table;
 }
 
 export function rankTable(grid: RankGrid): string {
