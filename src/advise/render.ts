@@ -74,7 +74,7 @@ export function renderSettingAdvice(advice: SettingAdvice): string {
   lines.push(recommendationLine(advice.recommendation));
   lines.push('');
   lines.push(
-    `Mean RMSE: the average over the scenarios, its SE from their Monte-Carlo errors; "best on": scenarios where it ranks first (ties under a paired test included). Robustness at n = ${advice.n}, worst scenario: rescale = unit drift beyond the exact d·log c shift (pass: exact to rounding); quantize = the coarsest recording step, in SDs, that leaves the bias within noise (pass ≥ 0.1, warn ≥ 0.01); outliers = shift per 1% of far outliers (pass < 1 SD, warn < 5 SD). See README, "Reading the robustness table".`,
+    `Mean RMSE: the average over the scenarios, its SE from their Monte-Carlo errors; "best on": scenarios where it is in the best set (README, "Ranks and the best set"). Robustness at n = ${advice.n}, worst scenario: rescale = unit drift beyond the exact d·log c shift (pass: exact to rounding); quantize = the coarsest recording step, in SDs, that leaves the bias within noise (pass ≥ 0.1, warn ≥ 0.01); outliers = shift per 1% of far outliers (pass < 1 SD, warn < 5 SD). See README, "Reading the robustness table".`,
   );
   for (const w of advice.warnings) lines.push(`Note: ${w}`);
   lines.push(`Done in ${seconds(advice.seconds)} (budget ${advice.budgetSeconds} s).`);
