@@ -18,6 +18,8 @@ import { main } from '../src/cli.js';
 import { formatValue } from '../src/format.js';
 import { renderReport, writeReport } from '../src/report/report.js';
 import { biasTextChart } from '../src/report/text-chart.js';
+import { robustnessTable } from '../src/tables.js';
+import { rankText } from '../src/verdict-text.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'hhat-report-'));
 let run: RunFile;
@@ -209,6 +211,21 @@ describe('the robustness section', () => {
     const plain = await renderReport({ ...run, robustness: null });
     expect(plain.svgs.some((c) => c.name === 'robustness' || c.name.startsWith('tuning-'))).toBe(false);
     expect(plain.html).not.toContain('id="robustness"');
+  });
+
+  it('the report and the terminal tables show the same verdicts, with units', async () => {
+    const synthetic = withRobustness(run);
+    const report = await renderReport(synthetic);
+    const terminal = robustnessTable(synthetic);
+    // Every verdict text the terminal prints (e.g. "warn 0.1 SD", "pass 0.4 nats") appears as a cell of the page.
+    const shown = terminal.split('\n').flatMap((line) => line.split('│').map((cell) => cell.trim())).filter((cell) => /^(pass|warn|fail)\b/.test(cell));
+    expect(shown.length).toBeGreaterThan(4);
+    for (const cell of shown) expect(report.html).toContain(`>${cell}</td>`);
+    // Each carries its unit: nats for drift and outliers, SD for bias changes and tuning, SD for recording steps.
+    for (const cell of shown.filter((c) => /\d/.test(c))) expect(cell).toMatch(/ (nats|SD)$/);
+    // Ranks read the same too: the scenario table's rank cells equal the terminal's.
+    const ranks = run.rankings.flatMap((r) => r.entries.map((e) => rankText(e, r)));
+    for (const rank of new Set(ranks)) expect(report.html).toContain(`>${rank}</td>`);
   });
 
   it('writeReport writes nothing when rendering fails', async () => {
