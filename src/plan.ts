@@ -31,6 +31,27 @@ export interface Plan {
   modules: string[];
   /** How ranks and best sets are decided; not part of the fingerprint, since they change no estimate. */
   verdicts: VerdictSettings;
+  /** Per-estimate time and per-worker memory limits; an estimate that exceeds one is a failure with its reason. */
+  limits: Limits;
+}
+
+export interface Limits {
+  /** Seconds an estimate may take: estimateSeconds + estimateSecondsPerPoint × n. */
+  estimateSeconds: number;
+  estimateSecondsPerPoint: number;
+  /** Heap limit of each worker thread, MiB. */
+  workerMemoryMiB: number;
+}
+
+/**
+ * A minute plus a millisecond per point: generous for every built-in estimator (the slowest, the kernel
+ * estimator in 3-D, takes about 1 ms per point at n = 1e5), tight enough that a hung estimator costs little.
+ */
+export const DEFAULT_LIMITS: Limits = { estimateSeconds: 60, estimateSecondsPerPoint: 0.001, workerMemoryMiB: 4096 };
+
+/** The time limit of one estimate at sample size n, in seconds. */
+export function estimateTimeLimit(limits: Limits, n: number): number {
+  return limits.estimateSeconds + limits.estimateSecondsPerPoint * n;
 }
 
 export interface RobustnessPlan {
@@ -77,6 +98,7 @@ export interface PlanInput {
   robustness?: { sampleSize?: number; perturbations?: string[]; tuning?: boolean } | null;
   modules?: string[];
   verdicts?: Partial<VerdictSettings>;
+  limits?: Partial<Limits>;
 }
 
 /** `instancePath` /estimators/2/settings/k → estimators[2].settings.k */
@@ -201,6 +223,7 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
     robustness,
     modules: input.modules ?? [],
     verdicts: { ...DEFAULT_VERDICTS, ...input.verdicts },
+    limits: { ...DEFAULT_LIMITS, ...input.limits },
   };
   return {
     plan,
@@ -225,6 +248,8 @@ export function planFingerprint(plan: Plan): string {
     robustness: plan.robustness,
     // An edited module changes the work under the same estimator names: its content is part of the plan.
     modules: plan.modules.map((path) => ({ path, sha256: moduleDigest(path) })),
+    // A limit decides which estimates fail.
+    limits: plan.limits,
   });
   return createHash('sha256').update(canonical).digest('hex');
 }

@@ -4,11 +4,11 @@
  */
 import { appendFileSync, existsSync, readFileSync, writeFileSync } from 'node:fs';
 import { availableParallelism } from 'node:os';
-import { Worker } from 'node:worker_threads';
 import { UsageError } from './errors.js';
 import { buildContext } from './context.js';
 import { planFingerprint, type Plan } from './plan.js';
 import { executeUnit, planUnits, type Skip, type Unit, type UnitResult } from './work.js';
+import { runOnPool } from './pool.js';
 
 export interface Shard {
   /** 1-based. */
@@ -29,6 +29,12 @@ export interface Progress {
 
 export interface RunOptions {
   workers?: number;
+  /**
+   * 'threads' (the default): units run on supervised worker threads, where a hung, crashing or memory-hungry
+   * estimate is a failure with its reason (src/pool.ts). 'in-process': on this thread, unsupervised; for
+   * estimators registered in this process only (not loaded from a module), such as tests use.
+   */
+  isolation?: 'threads' | 'in-process';
   shard?: Shard;
   /** Append-only record of finished units; required for --resume. */
   checkpointPath?: string;
@@ -200,7 +206,7 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   const workers = Math.max(1, Math.min(options.workers ?? defaultWorkers(), pending.length || 1));
   let interrupted = false;
 
-  if (workers === 1 || pending.length <= 1) {
+  if (options.isolation === 'in-process') {
     for (const unit of pending) {
       if (options.signal?.aborted) {
         interrupted = true;
@@ -210,8 +216,8 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
       // Yield so a signal handler can run between units.
       await new Promise((resolve) => setImmediate(resolve));
     }
-  } else {
-    interrupted = await runOnThreads(context.plan, pending, workers, (r) => record(r, true), options.signal);
+  } else if (pending.length) {
+    interrupted = await runOnPool(context.plan, pending, { size: workers, entry: workerEntry(), onResult: (r) => record(r, true), signal: options.signal });
   }
   return {
     plan: context.plan,
@@ -225,51 +231,4 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
     resumedUnits,
     interrupted,
   };
-}
-
-function runOnThreads(plan: Plan, queue: Unit[], count: number, onResult: (r: UnitResult) => void, signal?: AbortSignal): Promise<boolean> {
-  return new Promise((resolve, reject) => {
-    const threads: Worker[] = [];
-    let next = 0;
-    let active = 0;
-    let finished = false;
-    const stopAll = () => {
-      for (const t of threads) void t.terminate();
-    };
-    const finish = (interrupted: boolean, error?: unknown) => {
-      if (finished) return;
-      finished = true;
-      stopAll();
-      if (error) reject(error);
-      else resolve(interrupted);
-    };
-    signal?.addEventListener('abort', () => finish(true), { once: true });
-    const feed = (thread: Worker) => {
-      if (signal?.aborted) return finish(true);
-      if (next < queue.length) {
-        active++;
-        thread.postMessage(queue[next++]);
-      } else if (active === 0) {
-        finish(false);
-      }
-    };
-    for (let i = 0; i < count; i++) {
-      const thread = new Worker(workerEntry(), { workerData: { plan } });
-      threads.push(thread);
-      thread.on('message', (message: UnitResult | { ready: true }) => {
-        if ('ready' in message) return feed(thread);
-        active--;
-        try {
-          onResult(message);
-        } catch (error) {
-          return finish(false, error);
-        }
-        feed(thread);
-      });
-      thread.on('error', (error) => finish(false, error));
-      thread.on('exit', (code) => {
-        if (!finished && code !== 0) finish(false, new Error(`a worker thread stopped with exit code ${code}`));
-      });
-    }
-  });
 }

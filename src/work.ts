@@ -133,42 +133,81 @@ function describeFailure(error: unknown): string {
   return String(error);
 }
 
-export function executeUnit(unit: Unit, context: WorkContext): UnitResult {
+/** One replicate of a unit: every series' estimate, its time, and the failures with their reasons. */
+export interface ReplicateResult {
+  replicate: number;
+  /** values[k] for unit.series[k]; NaN = failure (or skipped). */
+  values: Float64Array;
+  timeMs: Float64Array;
+  failures: UnitFailure[];
+}
+
+export interface ReplicateHooks {
+  /** Series not to run on this replicate (already recorded as failures elsewhere, e.g. a time-out). */
+  skip?: (series: number) => boolean;
+  /** Called just before each estimate, so a supervisor knows which one is running. */
+  onStart?: (series: number, replicate: number) => void;
+  onEnd?: () => void;
+}
+
+/** Runs every series of a unit on one replicate's sample (drawn from its own seed, so any replicate can run alone). */
+export function executeReplicate(unit: Unit, context: WorkContext, replicate: number, hooks: ReplicateHooks = {}): ReplicateResult {
   const { plan, scenarios, all } = context;
   const scenario = scenarios[unit.scenario];
-  const reps = unit.repEnd - unit.repStart;
-  const estimates = unit.series.map(() => new Float64Array(reps));
-  const timeMs = unit.series.map(() => 0);
+  const values = new Float64Array(unit.series.length).fill(NaN);
+  const timeMs = new Float64Array(unit.series.length);
   const failures: UnitFailure[] = [];
   const variants = [...new Set(unit.series.map((s) => s.variant))];
-  for (let r = 0; r < reps; r++) {
-    const replicate = unit.repStart + r;
-    const original = scenario.sample(replicateRng(plan.seed, scenario.id, unit.n, replicate), unit.n);
-    for (const v of variants) {
-      let sample: Sample = original;
-      if (v > 0) {
-        // Perturb a deep copy: the Q sample of a divergence is perturbed too, and the original must stay intact.
-        sample = { ...original, data: Float64Array.from(original.data), ...(original.q ? { q: { ...original.q, data: Float64Array.from(original.q.data) } } : {}) };
-        (context.prepared[unit.scenario][v - 1] as PreparedPerturbation).apply(sample, replicate, plan.seed);
-      }
-      unit.series.forEach((series, k) => {
-        if (series.variant !== v) return;
-        const started = performance.now();
-        let value = NaN;
-        try {
-          value = runEstimator(all[series.estimator], sample).value;
-          if (!Number.isFinite(value)) {
-            failures.push({ series: k, replicate, message: `numeric: the estimate is ${value}` });
-            value = NaN;
-          }
-        } catch (error) {
-          failures.push({ series: k, replicate, message: describeFailure(error) });
+  const original = scenario.sample(replicateRng(plan.seed, scenario.id, unit.n, replicate), unit.n);
+  for (const v of variants) {
+    let sample: Sample = original;
+    if (v > 0) {
+      // Perturb a deep copy: the Q sample of a divergence is perturbed too, and the original must stay intact.
+      sample = { ...original, data: Float64Array.from(original.data), ...(original.q ? { q: { ...original.q, data: Float64Array.from(original.q.data) } } : {}) };
+      (context.prepared[unit.scenario][v - 1] as PreparedPerturbation).apply(sample, replicate, plan.seed);
+    }
+    unit.series.forEach((series, k) => {
+      if (series.variant !== v || hooks.skip?.(k)) return;
+      hooks.onStart?.(k, replicate);
+      const started = performance.now();
+      let value = NaN;
+      try {
+        value = runEstimator(all[series.estimator], sample).value;
+        if (!Number.isFinite(value)) {
+          failures.push({ series: k, replicate, message: `numeric: the estimate is ${value}` });
           value = NaN;
         }
-        timeMs[k] += performance.now() - started;
-        estimates[k][r] = value;
-      });
-    }
+      } catch (error) {
+        failures.push({ series: k, replicate, message: describeFailure(error) });
+        value = NaN;
+      }
+      timeMs[k] = performance.now() - started;
+      hooks.onEnd?.();
+      values[k] = value;
+    });
   }
-  return { unit: unit.index, estimates, timeMs, failures };
+  return { replicate, values, timeMs, failures };
+}
+
+/** An empty result for a unit, to be filled replicate by replicate. */
+export function emptyUnitResult(unit: Unit): UnitResult {
+  const reps = unit.repEnd - unit.repStart;
+  return { unit: unit.index, estimates: unit.series.map(() => new Float64Array(reps).fill(NaN)), timeMs: unit.series.map(() => 0), failures: [] };
+}
+
+/** Adds one replicate's results to a unit's. */
+export function addReplicate(unit: Unit, result: UnitResult, replicate: ReplicateResult): void {
+  const r = replicate.replicate - unit.repStart;
+  for (let k = 0; k < unit.series.length; k++) {
+    result.estimates[k][r] = replicate.values[k];
+    result.timeMs[k] += replicate.timeMs[k];
+  }
+  result.failures.push(...replicate.failures);
+}
+
+/** Runs a whole unit in this thread (no time or memory limits: see src/pool.ts for those). */
+export function executeUnit(unit: Unit, context: WorkContext): UnitResult {
+  const result = emptyUnitResult(unit);
+  for (let replicate = unit.repStart; replicate < unit.repEnd; replicate++) addReplicate(unit, result, executeReplicate(unit, context, replicate));
+  return result;
 }

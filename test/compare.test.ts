@@ -35,7 +35,7 @@ async function run(args: string[]): Promise<{ code: number; out: string; err: st
 
 async function runInProcess(input: PlanInput): Promise<RunFile> {
   const { plan } = resolvePlan(input);
-  return assembleRun(await runPlan(plan, { workers: 1 }), null);
+  return assembleRun(await runPlan(plan, { workers: 1, isolation: 'in-process' }), null);
 }
 
 function save(name: string, value: RunFile): string {

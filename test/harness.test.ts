@@ -233,7 +233,8 @@ describe('bad input', () => {
       },
     });
     const plan = resolvePlan({ scenarios: ['normal'], estimators: ['test-fails-on-negative-first-point', 'gaussian'], sampleSizes: [20], replicates: 20, seed: 9 }).plan;
-    const run = assembleRun(await runPlan(plan, { workers: 1 }), null);
+    // Registered in this process only, so it runs in-process (worker threads know module estimators only).
+    const run = assembleRun(await runPlan(plan, { workers: 1, isolation: 'in-process' }), null);
     const failing = run.cells.find((c) => c.estimatorId === 'test-fails-on-negative-first-point')!;
     expect(failing.scores.failures).toBeGreaterThan(0);
     expect(failing.scores.failures).toBeLessThan(20);

@@ -82,7 +82,10 @@ describe('the worked example module (examples/drift-corrected-estimators.mjs)', 
   it('runs in a plan in-process beside the built-ins', async () => {
     await useEstimatorModules([example]);
     const { plan } = resolvePlan({ scenarios: ['normal'], estimators: ['kozachenko-leonenko', 'detrended-kozachenko-leonenko:drift=none'], sampleSizes: [100], replicates: 4, seed: 3 });
-    const run = assembleRun(await runPlan(plan, { workers: 1 }), null);
+    const run = assembleRun(await runPlan(plan, { workers: 1, isolation: 'in-process' }), null);
+    // On supervised worker threads the module must be named in the plan, which every worker loads.
+    const threaded = assembleRun(await runPlan({ ...plan, modules: [example] }, { workers: 2 }), null);
+    expect(threaded.cells.map((c) => c.estimates)).toEqual(run.cells.map((c) => c.estimates));
     const [builtIn, user] = run.cells;
     expect(user.estimator).toBe('detrended-kozachenko-leonenko:k=3,drift=none');
     expect(user.family).toBe('nearest-neighbour');

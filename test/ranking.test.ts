@@ -171,7 +171,7 @@ describe('a benchmark with an estimator that fails on 40% of draws and is exact 
       replicates: 20,
       seed: 11,
     });
-    const run = assembleRun(await runPlan(plan, { workers: 1 }), null);
+    const run = assembleRun(await runPlan(plan, { workers: 1, isolation: 'in-process' }), null);
     const flaky = run.cells.filter((c) => c.estimator.startsWith('flaky-exact'));
     // The fixture really is exact where it runs and fails on roughly 40% (here: every cell has failures).
     for (const c of flaky) {

@@ -150,7 +150,8 @@ export async function runTargeted(options: TargetedOptions): Promise<TargetedBen
     for (const scenario of scenarios) {
       if (perScenario.length && elapsed() > PILOT_SHARE * options.budgetSeconds) break;
       const pilotStarted = performance.now();
-      await runPlan(planFor(1, seed, false, [scenario]), { workers: 1 });
+      // The pilot measures the estimators' own cost, on this thread; the rounds run supervised on worker threads.
+      await runPlan(planFor(1, seed, false, [scenario]), { workers: 1, isolation: 'in-process' });
       perScenario.push((performance.now() - pilotStarted) / 1000);
     }
     if (perScenario.length < scenarios.length) {

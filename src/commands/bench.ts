@@ -44,6 +44,7 @@ interface BenchOptions {
   chart?: boolean;
   level?: string;
   maxFailureRate?: string;
+  allowPlanModules?: boolean;
 }
 
 function timestamp(): string {
@@ -71,6 +72,12 @@ export function planInputFromOptions(options: BenchOptions): PlanInput {
       throw new UsageError('--plan cannot be combined with --scenario, --estimator or --quantity; put them in the plan file');
     }
     input = readPlanFile(options.plan);
+    // Modules are code that runs with the user's rights: a plan file, which may come from anywhere, names them only with consent.
+    if (input.modules?.length && !options.allowPlanModules) {
+      throw new UsageError(
+        `${options.plan} names estimator modules (${input.modules.join(', ')}), which are JavaScript that runs with your rights; read them, then add --allow-plan-modules to load them (or pass them with --estimator-module)`,
+      );
+    }
     // Module paths in a plan file are relative to the file.
     if (input.modules) input.modules = input.modules.map((m) => resolveModulePath(m, dirname(resolve(options.plan!))));
   } else {
@@ -150,6 +157,7 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
     .option('--robustness-n <n>', 'the sample size of the robustness section (one of --n; default: the largest up to 1000)')
     .option('--no-tuning', 'leave the tuning grids out of the robustness section')
     .option('--estimator-module <file>', 'load estimators from a JavaScript module (repeatable); an id matching a built-in replaces it', collect)
+    .option('--allow-plan-modules', 'load the estimator modules a --plan file names (they are code that runs with your rights)')
     .option('--level <c>', 'confidence level of each cell\'s best set (default 0.95; README, "Ranks and the best set")')
     .option('--max-failure-rate <p>', 'an estimator failing on a larger share of a cell\'s replicates is ranked last there (default 0: any failure)')
     .option('--csv <file>', 'also write the score table as CSV')

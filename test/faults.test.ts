@@ -1,0 +1,104 @@
+/**
+ * Faults contained: estimator modules that hang, spin, exhaust memory, end the process or throw from a timer
+ * run beside built-in estimators. The run finishes; each faulty estimate is a failure with its reason; every
+ * other estimate is bit-identical to a run without the faulty module; a good draw of the faulty module gives
+ * exactly the value computed here independently (the sample mean of the draw).
+ */
+import { mkdtempSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { describe, expect, it } from 'vitest';
+import { main } from '../src/cli.js';
+import { resolvePlan, type PlanInput } from '../src/plan.js';
+import { runPlan } from '../src/runner.js';
+import { assembleRun, readRunFile, type RunFile } from '../src/results.js';
+import { useEstimatorModules } from '../src/modules.js';
+import { parseScenario } from '../scenarios/index.js';
+import { replicateRng } from '../src/rng.js';
+
+const faults = join(__dirname, 'fixtures', 'faults');
+const dir = mkdtempSync(join(tmpdir(), 'hhat-faults-'));
+const REPLICATES = 8;
+const N = 50;
+
+function input(modules: string[], extra: string[]): PlanInput {
+  return {
+    scenarios: ['normal'],
+    estimators: [...extra, 'gaussian', 'kozachenko-leonenko'],
+    sampleSizes: [N],
+    replicates: REPLICATES,
+    seed: 5,
+    modules,
+    // Short limits keep the test quick: a second per estimate, a small heap per worker.
+    limits: { estimateSeconds: 1, estimateSecondsPerPoint: 0, workerMemoryMiB: 256 },
+  };
+}
+
+async function run(modules: string[], extra: string[]): Promise<RunFile> {
+  await useEstimatorModules(modules);
+  return assembleRun(await runPlan(resolvePlan(input(modules, extra)).plan, { workers: 2 }), null);
+}
+
+/** The draws, regenerated here from their seeds, and the two facts the fixtures depend on. */
+const scenario = parseScenario('normal');
+const draws = Array.from({ length: REPLICATES }, (_, r) => scenario.sample(replicateRng(5, scenario.id, N, r), N).data);
+const bad = draws.map((d) => d[0] > 0.674);
+const mean = draws.map((d) => d.reduce((s, x) => s + x, 0) / N);
+
+let reference: RunFile | undefined;
+async function builtIns(): Promise<RunFile> {
+  reference ??= await run([], []);
+  return reference;
+}
+
+const cases: [string, string, RegExp][] = [
+  ['hang.mjs', 'faulty-hang', /^timed out after 1 s \(the limit at n = 50/],
+  ['loop.mjs', 'faulty-loop', /^timed out after 1 s/],
+  ['memory.mjs', 'faulty-memory', /^out of memory: the worker's heap passed its limit of 256 MiB/],
+  ['exit.mjs', 'faulty-exit', /^the estimator ended its worker thread \(exit code 3\)$/],
+  ['async-throw.mjs', 'faulty-async-throw', /^an error escaped the estimator .*: a late failure in a timer$/],
+];
+
+describe('faulty estimator modules beside built-ins', () => {
+  it('the fixtures misbehave on some draws and not on others (checked on the regenerated draws)', () => {
+    expect(bad.filter(Boolean).length).toBeGreaterThan(0);
+    expect(bad.filter((b) => !b).length).toBeGreaterThan(0);
+  });
+
+  it.each(cases)('%s: the run finishes, its faults are failures with the reason, everything else is unchanged', async (file, id, reason) => {
+    const result = await run([join(faults, file)], [id]);
+    const faulty = result.cells.find((c) => c.estimatorId === id)!;
+    faulty.estimates.forEach((value, r) => {
+      if (bad[r]) {
+        expect(value, `replicate ${r}`).toBeNull();
+        expect(faulty.failures.find((f) => f.replicate === r)?.message).toMatch(reason);
+      } else {
+        expect(value, `replicate ${r}`).toBe(mean[r]);
+      }
+    });
+    const others = (x: RunFile) => x.cells.filter((c) => c.estimatorId !== id).map((c) => [c.estimator, c.estimates]);
+    expect(others(result)).toEqual(others(await builtIns()));
+  }, 60_000);
+
+  it('a plan file that names modules is refused without --allow-plan-modules, in one line', async () => {
+    const plan = join(dir, 'modules-plan.json');
+    writeFileSync(plan, JSON.stringify({ ...input([], ['faulty-exit']), modules: [join(faults, 'exit.mjs')] }));
+    let err = '';
+    const code = await main(['bench', '--plan', plan, '--out', join(dir, 'refused.json'), '--quiet'], { out: () => {}, err: (t) => (err += `${t}\n`) });
+    expect(code).toBe(2);
+    expect(err.trim().split('\n')).toHaveLength(1);
+    expect(err).toMatch(/names estimator modules .*exit\.mjs.*runs with your rights; read them, then add --allow-plan-modules/);
+  });
+
+  it('hhat bench with the module that ends its process: exit 0, the failures in the run file', async () => {
+    const out = join(dir, 'exit.json');
+    const plan = join(dir, 'exit-plan.json');
+    writeFileSync(plan, JSON.stringify({ ...input([], ['faulty-exit']), modules: [join(faults, 'exit.mjs')] }));
+    let err = '';
+    const code = await main(['bench', '--plan', plan, '--allow-plan-modules', '--out', out, '--quiet'], { out: () => {}, err: (t) => (err += t) });
+    expect(err).toBe('');
+    expect(code).toBe(0);
+    const cell = readRunFile(out).cells.find((c) => c.estimatorId === 'faulty-exit')!;
+    expect(cell.failures.map((f) => f.replicate)).toEqual(bad.flatMap((b, r) => (b ? [r] : [])));
+  }, 60_000);
+});
