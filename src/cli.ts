@@ -1,5 +1,5 @@
 import { Command, CommanderError } from 'commander';
-import { EstimateError, UsageError } from './errors.js';
+import { EnvironmentError, EstimateError, UsageError } from './errors.js';
 import { registerScenariosCommand } from './commands/scenarios.js';
 import { hhatVersion } from './provenance.js';
 import { registerBenchCommand } from './commands/bench.js';
@@ -66,10 +66,10 @@ export async function main(argv: string[], io: CliIo = defaultIo): Promise<numbe
       // Commander has already printed its one-line message; help and version exit 0.
       return error.exitCode === 0 ? 0 : 2;
     }
-    if (error instanceof UsageError || error instanceof EstimateError) {
+    if (error instanceof UsageError || error instanceof EstimateError || error instanceof EnvironmentError) {
       io.err(`hhat: ${error.message}`);
       if (debug) io.err(String(error.stack));
-      // An estimator that cannot run on the data is a failure of the computation, not of the command line.
+      // An estimator that cannot run on the data, or a disk that is full, is a failure of the computation, not of the command line.
       return error instanceof UsageError ? 2 : 1;
     }
     io.err(`hhat: internal error: ${error instanceof Error ? error.message : String(error)}`);

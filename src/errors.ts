@@ -18,3 +18,11 @@ export class EstimateError extends Error {
     super(message);
   }
 }
+
+/**
+ * The machine would not let a command finish: a full disk, a read-only or missing folder, a file another
+ * process holds. One line saying what happened and what to do (how to resume, where to write instead); exit 1.
+ */
+export class EnvironmentError extends Error {
+  override name = 'EnvironmentError';
+}

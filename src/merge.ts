@@ -3,6 +3,7 @@
  * per-replicate estimates, scores recomputed over all replicates.
  */
 import { UsageError } from './errors.js';
+import { codeDifference } from './plan.js';
 import { finishRun, type Cell, type RunFile } from './results.js';
 
 export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
@@ -10,6 +11,8 @@ export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
   const first = files[0];
   for (const f of files) {
     if (f.run.fingerprint !== first.run.fingerprint) {
+      const difference = codeDifference(first.run.code, f.run.code);
+      if (difference) throw new UsageError(`${f.path} and ${first.path} were computed by different code: comparing ${first.path} with ${f.path}, ${difference}; rerun the shards with one version`);
       throw new UsageError(`${f.path} comes from a different plan than ${first.path} (fingerprints differ); merge only shards of one plan`);
     }
     if (!f.run.shard) throw new UsageError(`${f.path} is a complete run, not a shard; nothing to merge`);
@@ -76,10 +79,13 @@ export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
   return finishRun({
     plan,
     fingerprint: first.run.fingerprint,
+    code: first.run.code,
     shard: null,
     complete: true,
     workers: Math.max(...files.map((f) => f.run.workers)),
+    // Shards may run at once on many machines: the merged wall time is the longest shard's; sessions list them all.
     wallSeconds: Math.max(...files.map((f) => f.run.wallSeconds)),
+    sessions: files.flatMap((f) => f.run.sessions),
     scenarios: first.run.scenarios,
     skipped: first.run.skipped,
     cells: merged,

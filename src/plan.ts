@@ -11,7 +11,7 @@ import { UsageError } from './errors.js';
 import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from '../estimators/index.js';
 import { parseScenario } from '../scenarios/index.js';
 import { parsePerturbation } from './perturb.js';
-import { moduleDigest } from './modules.js';
+import { codeIdentity, moduleGraph, type CodeIdentity } from './code-identity.js';
 import { DEFAULT_VERDICTS, type VerdictSettings } from './ranking.js';
 import planSchema from './schemas/plan.schema.json' with { type: 'json' };
 
@@ -236,8 +236,21 @@ function dedupe(list: string[]): string[] {
   return [...new Set(list)];
 }
 
-/** sha256 of the canonical plan: two runs with the same fingerprint saw the same draws and did the same work. */
-export function planFingerprint(plan: Plan): string {
+/** The code a plan runs: hhat's build, and each estimator module with every file it imports. */
+export interface PlanCode {
+  hhat: CodeIdentity;
+  modules: { path: string; digest: string }[];
+}
+
+export function planCode(plan: Plan): PlanCode {
+  return { hhat: codeIdentity(), modules: plan.modules.map((path) => ({ path, digest: moduleGraph(path).digest })) };
+}
+
+/**
+ * sha256 of the canonical plan and the code that runs it: two runs with the same fingerprint saw the same
+ * draws and did the same work with the same code.
+ */
+export function planFingerprint(plan: Plan, code: PlanCode = planCode(plan)): string {
   const canonical = JSON.stringify({
     quantity: plan.quantity,
     scenarios: plan.scenarios,
@@ -246,12 +259,28 @@ export function planFingerprint(plan: Plan): string {
     replicates: plan.replicates,
     seed: plan.seed,
     robustness: plan.robustness,
-    // An edited module changes the work under the same estimator names: its content is part of the plan.
-    modules: plan.modules.map((path) => ({ path, sha256: moduleDigest(path) })),
     // A limit decides which estimates fail.
     limits: plan.limits,
+    // Edited code (hhat's or a module's, or a file a module imports) changes the work under the same names.
+    code,
   });
   return createHash('sha256').update(canonical).digest('hex');
+}
+
+/** Why two plans' code differs, in words, for refusing to mix their results; null when it does not. */
+export function codeDifference(made: PlanCode, now: PlanCode): string | null {
+  const reasons: string[] = [];
+  if (made.hhat.version !== now.hhat.version || made.hhat.build !== now.hhat.build) {
+    reasons.push(`it was made by hhat ${made.hhat.version} (build ${made.hhat.build.slice(0, 12)}) and this is hhat ${now.hhat.version} (build ${now.hhat.build.slice(0, 12)})`);
+  }
+  const before = new Map(made.modules.map((m) => [m.path, m.digest]));
+  for (const m of now.modules) {
+    const was = before.get(m.path);
+    if (was === undefined) reasons.push(`module ${m.path} was not in it`);
+    else if (was !== m.digest) reasons.push(`module ${m.path} or a file it imports changed since (digest ${was.slice(0, 12)} then, ${m.digest.slice(0, 12)} now)`);
+  }
+  for (const path of before.keys()) if (!now.modules.some((m) => m.path === path)) reasons.push(`it used module ${path}, which this run does not`);
+  return reasons.length ? reasons.join('; ') : null;
 }
 
 /**

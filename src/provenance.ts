@@ -1,5 +1,5 @@
 import { execFileSync } from 'node:child_process';
-import { existsSync, readFileSync } from 'node:fs';
+import { existsSync, readFileSync, realpathSync } from 'node:fs';
 import { cpus, platform, arch, totalmem } from 'node:os';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -38,6 +38,10 @@ export interface Environment {
 function gitInfo(): Environment['git'] {
   try {
     const cwd = packageRoot();
+    // Only hhat's own checkout counts: installed inside another repository (a user's project), git would
+    // otherwise report that repository's commit as hhat's.
+    const top = execFileSync('git', ['rev-parse', '--show-toplevel'], { cwd, stdio: ['ignore', 'pipe', 'ignore'] }).toString().trim();
+    if (realpathSync(top) !== realpathSync(cwd)) return null;
     const commit = execFileSync('git', ['rev-parse', 'HEAD'], { cwd, stdio: ['ignore', 'pipe', 'ignore'] }).toString().trim();
     const status = execFileSync('git', ['status', '--porcelain', '--untracked-files=no'], { cwd, stdio: ['ignore', 'pipe', 'ignore'] }).toString();
     return { commit, dirty: status.trim() !== '' };

@@ -3,14 +3,13 @@
  * comparisons can be paired), scores, rates, rankings and provenance. Written to a temporary name and
  * renamed, so a crash never leaves half a file.
  */
-import { mkdirSync, renameSync, writeFileSync } from 'node:fs';
-import { dirname } from 'node:path';
+import { writeFileAtomic } from './files.js';
 import { Ajv2020 } from 'ajv/dist/2020.js';
 import type { Scenario } from './contracts.js';
 import { UsageError } from './errors.js';
-import { drawsFingerprint, readTextFile, type Plan } from './plan.js';
+import { drawsFingerprint, planCode, readTextFile, type Plan, type PlanCode } from './plan.js';
 import { environment, type Environment } from './provenance.js';
-import type { RunOutcome, Shard } from './runner.js';
+import type { RunOutcome, Session, Shard } from './runner.js';
 import { fitRate, scoreCell, type CellScores, type Estimate, type RateFit } from './score.js';
 import { overallRanks, rankCells, type OverallRank, type Ranking } from './ranking.js';
 import type { Skip } from './work.js';
@@ -69,14 +68,20 @@ export interface RunFile {
   createdAt: string;
   environment: Environment;
   plan: Plan;
-  /** Identifies the whole plan (draws and work): shards and checkpoints must share it. */
+  /** Identifies the whole plan (draws, work and code): shards and checkpoints must share it. */
   fingerprint: string;
+  /** The code that computed the estimates: hhat's version and build, each module's import-graph digest. */
+  code: PlanCode;
   /** Identifies the draws only (seed, scenarios, sizes, replicates): equal values mean paired comparisons are valid. */
   drawsFingerprint: string;
   shard: Shard | null;
   complete: boolean;
+  /** The most worker threads any session used. */
   workers: number;
+  /** Wall time summed over the sessions (a resumed run's parts added up). */
   wallSeconds: number;
+  /** Each stretch of work: the first start and every resume. */
+  sessions: Session[];
   scenarios: ScenarioInfo[];
   skipped: Skip[];
   cells: Cell[];
@@ -161,10 +166,12 @@ export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
   return finishRun({
     plan,
     fingerprint: outcome.fingerprint,
+    code: planCode(plan),
     shard,
     complete: shard === null && !outcome.interrupted,
-    workers: outcome.workers,
-    wallSeconds: outcome.wallMs / 1000,
+    workers: Math.max(...outcome.sessions.map((x) => x.workers)),
+    wallSeconds: outcome.sessions.reduce((sum, x) => sum + x.wallSeconds, 0),
+    sessions: outcome.sessions,
     scenarios: context.scenarios.map(scenarioInfo),
     skipped: outcome.skipped,
     cells: present,
@@ -232,16 +239,8 @@ export function toJson(value: unknown): string {
   return JSON.stringify(value, (_k, v: unknown) => (typeof v === 'number' && !Number.isFinite(v) ? null : v), 1);
 }
 
-/** Writes to a temporary name in the same directory, then renames: readers never see half a file. */
-export function writeFileAtomic(path: string, text: string): void {
-  mkdirSync(dirname(path), { recursive: true });
-  const temporary = `${path}.${process.pid}.tmp`;
-  writeFileSync(temporary, text);
-  renameSync(temporary, path);
-}
-
-export function writeRunFile(path: string, run: RunFile): void {
-  writeFileAtomic(path, `${toJson(run)}\n`);
+export function writeRunFile(path: string, run: RunFile, hint?: string): void {
+  writeFileAtomic(path, `${toJson(run)}\n`, hint);
 }
 
 const ajv = new Ajv2020({ allErrors: false, strict: false });
@@ -272,4 +271,5 @@ export function readRunFile(path: string): RunFile {
 }
 
 export type { Estimate, OverallRank, Ranking };
+export { writeFileAtomic };
 export type { RankEntry } from './ranking.js';

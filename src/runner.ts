@@ -2,11 +2,12 @@
  * Runs a plan's units on worker threads, appending each finished unit to a checkpoint so an interrupted run
  * resumes without recomputing anything, and reporting progress as it goes.
  */
-import { appendFileSync, existsSync, readFileSync, writeFileSync } from 'node:fs';
+import { existsSync, readFileSync, statSync } from 'node:fs';
 import { availableParallelism } from 'node:os';
 import { UsageError } from './errors.js';
 import { buildContext } from './context.js';
-import { planFingerprint, type Plan } from './plan.js';
+import { codeDifference, planCode, planFingerprint, type Plan, type PlanCode } from './plan.js';
+import { openAppender, writeFileAtomic, type Appender } from './files.js';
 import { executeUnit, planUnits, type Skip, type Unit, type UnitResult } from './work.js';
 import { runOnPool } from './pool.js';
 
@@ -41,6 +42,9 @@ export interface RunOptions {
   resume?: boolean;
   onProgress?: (progress: Progress) => void;
   signal?: AbortSignal;
+  /** Added to file-system error messages: how to resume after fixing the problem. */
+  checkpointHint?: string;
+  onWarning?: (text: string) => void;
 }
 
 export interface RunOutcome {
@@ -55,6 +59,8 @@ export interface RunOutcome {
   workers: number;
   resumedUnits: number;
   interrupted: boolean;
+  /** Earlier sessions (from the checkpoint) and this one. */
+  sessions: Session[];
 }
 
 export function defaultWorkers(): number {
@@ -69,11 +75,21 @@ export function shardUnits(units: Unit[], shard?: Shard): number[] {
   return byCost.filter((_, i) => i % shard.count === shard.index - 1).map((u) => u.index).sort((a, b) => a - b);
 }
 
+/** Version 2 names the code that wrote the checkpoint, so a resume can say why it refuses to mix. */
 interface CheckpointHeader {
   kind: 'hhat-checkpoint';
-  version: 1;
+  version: 2;
   fingerprint: string;
   shard: Shard | null;
+  code: PlanCode;
+}
+
+/** One stretch of work on a run: a fresh start or a resume. Runs record them all, so resumed runs report true totals. */
+export interface Session {
+  workers: number;
+  wallSeconds: number;
+  /** Units finished in this session. */
+  units: number;
 }
 
 function serialiseResult(result: UnitResult): string {
@@ -99,11 +115,19 @@ function sameShard(a: Shard | null, b: Shard | null): boolean {
   return (a === null && b === null) || (a !== null && b !== null && a.index === b.index && a.count === b.count);
 }
 
+interface LoadedCheckpoint {
+  done: Map<number, UnitResult>;
+  sessions: Session[];
+  /** False for an empty file (a crash before its header was written): the header must be written again. */
+  hasHeader: boolean;
+}
+
 /** Loads finished units from a checkpoint; a torn last line (a crash mid-write) is ignored. */
-function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null): Map<number, UnitResult> {
+function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null, code: PlanCode): LoadedCheckpoint {
   const lines = readFileSync(path, 'utf8').split('\n').filter((l) => l.trim() !== '');
   const done = new Map<number, UnitResult>();
-  if (!lines.length) return done;
+  const sessions: Session[] = [];
+  if (!lines.length) return { done, sessions, hasHeader: false };
   let header: CheckpointHeader;
   try {
     header = JSON.parse(lines[0]) as CheckpointHeader;
@@ -111,18 +135,34 @@ function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null):
     throw new UsageError(`${path} is not an hhat checkpoint; delete it or choose another --out`);
   }
   if (header.kind !== 'hhat-checkpoint') throw new UsageError(`${path} is not an hhat checkpoint; delete it or choose another --out`);
+  if (header.version !== 2) {
+    throw new UsageError(`${path} was written by an older hhat (checkpoint version ${String(header.version)}), whose estimates must not be mixed with this version's; delete it to start over`);
+  }
   if (header.fingerprint !== fingerprint || !sameShard(header.shard, shard)) {
+    const difference = codeDifference(header.code, code);
+    if (difference) {
+      throw new UsageError(`${path} cannot be resumed: ${difference}; resuming would mix estimates of two versions of the code. Delete it to start over with this code, or resume with the code that made it`);
+    }
     throw new UsageError(`${path} belongs to a different plan or shard; run without --resume after deleting it, or resume with the plan that made it`);
   }
   for (const line of lines.slice(1)) {
     try {
-      const result = parseResult(line);
-      done.set(result.unit, result);
+      const parsed = JSON.parse(line) as { session?: Session };
+      if (parsed.session) sessions.push(parsed.session);
+      else {
+        const result = parseResult(line);
+        done.set(result.unit, result);
+      }
     } catch {
       // An interrupted write leaves at most one partial line; that unit simply runs again.
     }
   }
-  return done;
+  return { done, sessions, hasHeader: true };
+}
+
+/** Whether `path` is a checkpoint of a run (a file with at least a header); false for a missing or empty file. */
+export function checkpointStarted(path: string): boolean {
+  return existsSync(path) && statSync(path).size > 0;
 }
 
 function workerEntry(): URL {
@@ -139,18 +179,29 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   const shard = options.shard ?? null;
 
   const results = new Map<number, UnitResult>();
+  let sessions: Session[] = [];
+  let appender: Appender | null = null;
+  const hint = options.checkpointHint;
   if (options.checkpointPath) {
-    const exists = existsSync(options.checkpointPath);
-    if (options.resume && exists) {
+    const path = options.checkpointPath;
+    const code = planCode(context.plan);
+    const started = checkpointStarted(path);
+    let needsHeader = true;
+    if (options.resume && started) {
       const ownedSet = new Set(owned);
-      for (const [k, v] of loadCheckpoint(options.checkpointPath, fingerprint, shard)) if (ownedSet.has(k)) results.set(k, v);
-    } else if (!options.resume && exists) {
-      throw new UsageError(`${options.checkpointPath} exists from an interrupted run; add --resume to continue it, or delete it to start over`);
+      const loaded = loadCheckpoint(path, fingerprint, shard, code);
+      for (const [k, v] of loaded.done) if (ownedSet.has(k)) results.set(k, v);
+      sessions = loaded.sessions;
+      needsHeader = !loaded.hasHeader;
+    } else if (!options.resume && started) {
+      throw new UsageError(`${path} exists from an interrupted run; add --resume to continue it, or delete it to start over`);
     }
-    if (!exists || !options.resume) {
-      const header: CheckpointHeader = { kind: 'hhat-checkpoint', version: 1, fingerprint, shard };
-      writeFileSync(options.checkpointPath, `${JSON.stringify(header)}\n`);
+    if (needsHeader) {
+      // Written whole and renamed into place: a checkpoint is never empty or headless, even after a crash here.
+      const header: CheckpointHeader = { kind: 'hhat-checkpoint', version: 2, fingerprint, shard, code };
+      writeFileAtomic(path, `${JSON.stringify(header)}\n`, hint);
     }
+    appender = openAppender(path, hint);
   }
   const resumedUnits = results.size;
 
@@ -182,7 +233,7 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
     costDone += u.cost;
     if (fresh) {
       costDoneThisRun += u.cost;
-      if (options.checkpointPath) appendFileSync(options.checkpointPath, `${serialiseResult(result)}\n`);
+      appender?.append(serialiseResult(result));
     }
     const elapsedMs = performance.now() - started;
     options.onProgress?.({
@@ -206,18 +257,30 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   const workers = Math.max(1, Math.min(options.workers ?? defaultWorkers(), pending.length || 1));
   let interrupted = false;
 
-  if (options.isolation === 'in-process') {
-    for (const unit of pending) {
-      if (options.signal?.aborted) {
-        interrupted = true;
-        break;
+  const freshBefore = results.size;
+  try {
+    if (options.isolation === 'in-process') {
+      for (const unit of pending) {
+        if (options.signal?.aborted) {
+          interrupted = true;
+          break;
+        }
+        record(executeUnit(unit, context), true);
+        // Yield so a signal handler can run between units.
+        await new Promise((resolve) => setImmediate(resolve));
       }
-      record(executeUnit(unit, context), true);
-      // Yield so a signal handler can run between units.
-      await new Promise((resolve) => setImmediate(resolve));
+    } else if (pending.length) {
+      interrupted = await runOnPool(context.plan, pending, { size: workers, entry: workerEntry(), onResult: (r) => record(r, true), signal: options.signal, onWarning: options.onWarning });
     }
-  } else if (pending.length) {
-    interrupted = await runOnPool(context.plan, pending, { size: workers, entry: workerEntry(), onResult: (r) => record(r, true), signal: options.signal });
+  } finally {
+    const session: Session = { workers, wallSeconds: (performance.now() - started) / 1000, units: results.size - freshBefore };
+    sessions = [...sessions, session];
+    try {
+      appender?.append(JSON.stringify({ session }));
+    } catch {
+      // The units are saved; a lost session line only makes the reported wall time short.
+    }
+    appender?.close();
   }
   return {
     plan: context.plan,
@@ -230,5 +293,6 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
     workers,
     resumedUnits,
     interrupted,
+    sessions,
   };
 }

@@ -108,10 +108,12 @@ function joinRuns(first: RunFile, second: RunFile): RunFile {
   return finishRun({
     plan: { ...first.plan, replicates: first.plan.replicates + second.plan.replicates },
     fingerprint: first.fingerprint,
+    code: first.code,
     shard: null,
     complete: true,
     workers: Math.max(first.workers, second.workers),
     wallSeconds: first.wallSeconds + second.wallSeconds,
+    sessions: [...first.sessions, ...second.sessions],
     scenarios: first.scenarios,
     skipped: first.skipped,
     cells,

@@ -1,4 +1,4 @@
-import { existsSync, readdirSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { existsSync, readdirSync, readFileSync, rmSync, statSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
 import { describeRegistration, QUANTITIES, resolveModulePath, useEstimatorModules } from '../modules.js';
 import type { Command } from 'commander';
@@ -7,9 +7,11 @@ import type { Quantity } from '../contracts.js';
 import { parseScenario } from '../../scenarios/index.js';
 import type { Base } from '../format.js';
 import { defaultPlan } from '../default-plan.js';
-import { collect, parseFraction, parseIntegerOption, parseLevel, parseSampleSizes, readPlanFile, resolvePlan, type PlanInput } from '../plan.js';
+import { collect, parseFraction, planFingerprint, parseIntegerOption, parseLevel, parseSampleSizes, readPlanFile, resolvePlan, type PlanInput } from '../plan.js';
 import { progressReporter } from '../progress.js';
-import { assembleRun, readRunFile, writeRunFile, type RunFile } from '../results.js';
+import { assembleRun, readRunFile, writeFileAtomic, writeRunFile, type RunFile } from '../results.js';
+import { acquireLock, ensureFolder, removeLeftoverTemporaries } from '../files.js';
+import { checkpointStarted } from '../runner.js';
 import { defaultWorkers, runPlan, type Shard } from '../runner.js';
 import { parseShard } from '../shard.js';
 import { detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../tables.js';
@@ -45,6 +47,7 @@ interface BenchOptions {
   level?: string;
   maxFailureRate?: string;
   allowPlanModules?: boolean;
+  force?: boolean;
 }
 
 function timestamp(): string {
@@ -53,6 +56,18 @@ function timestamp(): string {
 
 function checkpointFor(out: string): string {
   return `${out}.checkpoint.jsonl`;
+}
+
+/** The finished run file at `path`, or null when there is none (a missing, partial or foreign file is not one). */
+function finishedRun(path: string): Pick<RunFile, 'fingerprint' | 'createdAt' | 'plan'> | null {
+  if (!existsSync(path)) return null;
+  try {
+    const value = JSON.parse(readFileSync(path, 'utf8')) as Partial<RunFile>;
+    // Run files are written only when a run (or a shard of it) finishes: whatever is there is finished work.
+    return value.kind === 'hhat-run' && value.fingerprint && value.plan && value.createdAt ? (value as RunFile) : null;
+  } catch {
+    return null;
+  }
 }
 
 /** With --resume and no --out: the newest interrupted run under results/. */
@@ -152,6 +167,7 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
     .option('--shard <i/N|auto>', 'run only slice i of N (1-based), or read it from a batch scheduler (auto)')
     .option('--out <file>', 'run file to write (default: results/run-TIMESTAMP.json)')
     .option('--resume', 'continue an interrupted run from its checkpoint (the same --out, or the newest under results/)')
+    .option('--force', 'replace a finished run file at --out')
     .option('--robustness', 'also measure perturbations and tuning grids at one sample size (the default plan does)')
     .option('--perturb <spec>', 'a perturbation for the robustness section (repeatable): rescale:c=1000, monotone:map=asinh, affine:condition=10, quantize:step=0.1, contaminate:fraction=0.01', collect)
     .option('--robustness-n <n>', 'the sample size of the robustness section (one of --n; default: the largest up to 1000)')
@@ -186,47 +202,73 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
       // Errors name where the plan came from: the plan file, or the flags.
       const { plan } = resolvePlan(input, options.plan ?? 'command line');
       const checkpoint = checkpointFor(out);
-      const controller = new AbortController();
-      const onSignal = () => controller.abort();
-      process.once('SIGINT', onSignal);
-      process.once('SIGTERM', onSignal);
-      const progress = options.quiet ? undefined : progressReporter(process.stderr);
+      const resumeHint = `the finished units are saved in ${checkpoint}; fix that and rerun with --resume --out ${out}`;
+      ensureFolder(dirname(out), 'choose another --out');
+      const release = acquireLock(out, 'choose another --out');
       let outcome;
       try {
-        outcome = await runPlan(plan, {
-          workers,
-          shard,
-          checkpointPath: checkpoint,
-          resume: options.resume,
-          onProgress: progress?.update,
-          signal: controller.signal,
-        });
+        removeLeftoverTemporaries(out);
+        removeLeftoverTemporaries(checkpoint);
+        const finished = finishedRun(out);
+        if (finished && !checkpointStarted(checkpoint)) {
+          if (options.resume && finished.fingerprint === planFingerprint(plan)) {
+            print(`${out} is already a finished run of this plan; nothing to resume`);
+            return;
+          }
+          if (!options.force) {
+            throw new UsageError(
+              `${out} already holds a finished run (${finished.plan.name}, ${finished.createdAt.slice(0, 16).replace('T', ' ')}${options.resume ? ', of another plan' : ''}); add --force to replace it, or choose another --out`,
+            );
+          }
+        }
+        const controller = new AbortController();
+        const onSignal = () => controller.abort();
+        process.once('SIGINT', onSignal);
+        process.once('SIGTERM', onSignal);
+        const progress = options.quiet ? undefined : progressReporter(process.stderr);
+        try {
+          outcome = await runPlan(plan, {
+            workers,
+            shard,
+            checkpointPath: checkpoint,
+            checkpointHint: resumeHint,
+            resume: options.resume,
+            onProgress: progress?.update,
+            onWarning: (text) => printErr(`hhat: ${text}`),
+            signal: controller.signal,
+          });
+        } finally {
+          progress?.done();
+          process.off('SIGINT', onSignal);
+          process.off('SIGTERM', onSignal);
+        }
+        if (outcome.interrupted) {
+          printErr(`interrupted: ${outcome.results.size} of ${outcome.owned.length} units are saved in ${checkpoint}`);
+          printErr(`continue with the same command plus: --resume --out ${out}`);
+          process.exitCode = 130;
+          return;
+        }
+        const run = assembleRun(outcome, shard ?? null);
+        writeRunFile(out, run, `every estimate is saved in ${checkpoint}; fix that and rerun with --resume --out ${out} (nothing is computed again)`);
+        rmSync(checkpoint, { force: true });
+        if (options.csv) writeFileAtomic(options.csv, scoresCsv(run, base));
+        if (!options.quiet && !shard) {
+          printRun(run, base, print, Boolean(options.detail));
+          if (options.chart !== false) print(biasTextChart(run, base));
+        }
+        if (options.report && !shard) {
+          const reportPath = resolve(typeof options.report === 'string' ? options.report : out.replace(/\.json$/, '') + '.html');
+          await writeReport(run, { base, out: reportPath, svgDir: options.svgDir });
+          print(`report: ${reportPath}`);
+        }
       } finally {
-        progress?.done();
-        process.off('SIGINT', onSignal);
-        process.off('SIGTERM', onSignal);
+        release();
       }
-      if (outcome.interrupted) {
-        printErr(`interrupted: ${outcome.results.size} of ${outcome.owned.length} units are saved in ${checkpoint}`);
-        printErr(`continue with the same command plus: --resume --out ${out}`);
-        process.exitCode = 130;
-        return;
-      }
-      const run = assembleRun(outcome, shard ?? null);
-      writeRunFile(out, run);
-      rmSync(checkpoint, { force: true });
-      if (options.csv) writeFileSync(options.csv, scoresCsv(run, base));
-      if (!options.quiet && !shard) {
-        printRun(run, base, print, Boolean(options.detail));
-        if (options.chart !== false) print(biasTextChart(run, base));
-      }
-      if (options.report && !shard) {
-        const reportPath = resolve(typeof options.report === 'string' ? options.report : out.replace(/\.json$/, '') + '.html');
-        await writeReport(run, { base, out: reportPath, svgDir: options.svgDir });
-        print(`report: ${reportPath}`);
-      }
+      if (!outcome || outcome.interrupted) return;
       const resumed = outcome.resumedUnits ? `, ${outcome.resumedUnits} units from the checkpoint` : '';
-      print(`${shard ? `shard ${shard.index}/${shard.count}: ` : ''}${run.cells.length} cells in ${run.wallSeconds.toFixed(1)} s on ${outcome.workers} worker${outcome.workers === 1 ? '' : 's'}${resumed}`);
+      const cellCount = new Set(outcome.units.flatMap((u) => u.series.map((x) => `${u.scenario}|${u.n}|${x.variant}|${x.estimator}`))).size;
+      const wall = outcome.sessions.reduce((sum, x) => sum + x.wallSeconds, 0);
+      print(`${shard ? `shard ${shard.index}/${shard.count}: ` : ''}${cellCount} cells in ${wall.toFixed(1)} s on ${outcome.workers} worker${outcome.workers === 1 ? '' : 's'}${resumed}`);
       print(`run file: ${out}`);
     });
 

@@ -1,0 +1,205 @@
+/**
+ * Writing results safely: whole files through an exclusively created temporary file that is flushed to disk
+ * and renamed over the target (a reader or a crash never sees half a file), checkpoint lines flushed one by
+ * one, a lock that keeps two runs off one output, and file-system failures as one line that says what to do.
+ *
+ *   writeFileAtomic('results/run.json', text);
+ *   const release = acquireLock('results/run.json');   // throws if another live process holds it
+ */
+import { randomBytes } from 'node:crypto';
+import { closeSync, constants, fsyncSync, mkdirSync, openSync, readdirSync, readFileSync, renameSync, rmSync, unlinkSync, writeSync } from 'node:fs';
+import { hostname } from 'node:os';
+import { basename, dirname, join } from 'node:path';
+import { EnvironmentError } from './errors.js';
+
+/** What a failed file operation means for the user, in words. */
+export function describeFileError(error: unknown, action: string, path: string): string {
+  const code = (error as NodeJS.ErrnoException).code;
+  switch (code) {
+    case 'ENOSPC':
+    case 'EDQUOT':
+      return `the disk is full: cannot ${action} ${path}`;
+    case 'EROFS':
+      return `${dirname(path)} is on a read-only file system: cannot ${action} ${path}`;
+    case 'EACCES':
+    case 'EPERM':
+      return `permission denied: cannot ${action} ${path}`;
+    case 'ENOENT':
+      return `cannot ${action} ${path}: its folder does not exist`;
+    case 'ENOTDIR':
+      return `cannot ${action} ${path}: a part of that path is a file, not a folder`;
+    case 'EISDIR':
+      return `cannot ${action} ${path}: it is a folder`;
+    default:
+      return `cannot ${action} ${path}: ${(error as Error).message}`;
+  }
+}
+
+function fail(error: unknown, action: string, path: string, hint?: string): never {
+  throw new EnvironmentError(`${describeFileError(error, action, path)}${hint ? `; ${hint}` : ''}`);
+}
+
+/** Creates a folder and its parents, as one line on failure. */
+export function ensureFolder(folder: string, hint?: string): void {
+  try {
+    mkdirSync(folder, { recursive: true });
+  } catch (error) {
+    fail(error, 'create the folder', folder, hint);
+  }
+}
+
+function fsyncFolder(folder: string): void {
+  // Makes the rename itself durable; some file systems cannot open a folder for that, which is harmless.
+  try {
+    const fd = openSync(folder, 'r');
+    try {
+      fsyncSync(fd);
+    } finally {
+      closeSync(fd);
+    }
+  } catch {
+    /* best effort */
+  }
+}
+
+const TEMPORARY = /\.[0-9a-f]{16}\.tmp$/;
+
+/**
+ * Writes all of `text`: a write may store fewer bytes than asked (a disk filling up does that, without an
+ * error), so it repeats until everything is written or the file system reports why it cannot.
+ */
+function writeAll(fd: number, text: string): void {
+  const bytes = Buffer.from(text, 'utf8');
+  let offset = 0;
+  while (offset < bytes.length) {
+    const written = writeSync(fd, bytes, offset, bytes.length - offset);
+    if (written <= 0) throw Object.assign(new Error('no bytes written'), { code: 'ENOSPC' });
+    offset += written;
+  }
+}
+
+/**
+ * Writes `text` to `path` atomically: a temporary file created exclusively (O_EXCL, random name, so no
+ * existing file or link is followed), flushed to disk, renamed over `path`. On failure nothing is left behind.
+ */
+export function writeFileAtomic(path: string, text: string, hint?: string): void {
+  ensureFolder(dirname(path), hint);
+  const temporary = `${path}.${randomBytes(8).toString('hex')}.tmp`;
+  let fd: number | undefined;
+  try {
+    fd = openSync(temporary, constants.O_WRONLY | constants.O_CREAT | constants.O_EXCL, 0o644);
+    writeAll(fd, text);
+    fsyncSync(fd);
+    closeSync(fd);
+    fd = undefined;
+    renameSync(temporary, path);
+  } catch (error) {
+    if (fd !== undefined) closeSync(fd);
+    rmSync(temporary, { force: true });
+    fail(error, 'write', path, hint);
+  }
+  fsyncFolder(dirname(path));
+}
+
+/** Removes temporaries that an earlier crash left beside `path`. */
+export function removeLeftoverTemporaries(path: string): number {
+  let removed = 0;
+  try {
+    for (const name of readdirSync(dirname(path))) {
+      if (name.startsWith(`${basename(path)}.`) && TEMPORARY.test(name)) {
+        rmSync(join(dirname(path), name), { force: true });
+        removed++;
+      }
+    }
+  } catch {
+    /* a missing folder has nothing to clean */
+  }
+  return removed;
+}
+
+/** Appends lines to a file, each flushed to disk before the next is accepted. */
+export interface Appender {
+  append(line: string): void;
+  close(): void;
+}
+
+export function openAppender(path: string, hint?: string): Appender {
+  let fd: number;
+  try {
+    fd = openSync(path, 'a');
+  } catch (error) {
+    fail(error, 'open', path, hint);
+  }
+  return {
+    append(line: string) {
+      try {
+        writeAll(fd, `${line}\n`);
+        fsyncSync(fd);
+      } catch (error) {
+        fail(error, 'append to', path, hint);
+      }
+    },
+    close() {
+      try {
+        closeSync(fd);
+      } catch {
+        /* already closed */
+      }
+    },
+  };
+}
+
+interface LockHolder {
+  pid: number;
+  host: string;
+  started: string;
+}
+
+function alive(pid: number): boolean {
+  try {
+    process.kill(pid, 0);
+    return true;
+  } catch (error) {
+    // EPERM: the process exists but belongs to someone else.
+    return (error as NodeJS.ErrnoException).code === 'EPERM';
+  }
+}
+
+/**
+ * Takes `<path>.lock` for this process, or refuses while another live process on this machine holds it.
+ * A lock whose process is gone (a crash, a kill) is stale and taken over; a lock from another machine (a
+ * shared folder) is respected, since its process cannot be checked. Returns the release function.
+ */
+export function acquireLock(path: string, hint?: string): () => void {
+  const lock = `${path}.lock`;
+  ensureFolder(dirname(path), hint);
+  const me: LockHolder = { pid: process.pid, host: hostname(), started: new Date().toISOString() };
+  for (let attempt = 0; attempt < 2; attempt++) {
+    try {
+      const fd = openSync(lock, constants.O_WRONLY | constants.O_CREAT | constants.O_EXCL, 0o644);
+      writeAll(fd, JSON.stringify(me));
+      closeSync(fd);
+      return () => rmSync(lock, { force: true });
+    } catch (error) {
+      if ((error as NodeJS.ErrnoException).code !== 'EEXIST') fail(error, 'create the lock', lock, hint);
+    }
+    let holder: LockHolder | null = null;
+    try {
+      holder = JSON.parse(readFileSync(lock, 'utf8')) as LockHolder;
+    } catch {
+      holder = null;
+    }
+    if (holder && (holder.host !== me.host || alive(holder.pid))) {
+      throw new EnvironmentError(
+        `${path} is being written by process ${holder.pid} on ${holder.host} (since ${holder.started}); wait for it to finish, or choose another --out`,
+      );
+    }
+    // Stale (its process is gone) or unreadable (a crash while writing it): take it over.
+    try {
+      unlinkSync(lock);
+    } catch {
+      /* another process may have taken it over first; the next attempt tells */
+    }
+  }
+  throw new EnvironmentError(`${path}.lock keeps reappearing: another process is starting on the same --out; choose another --out`);
+}

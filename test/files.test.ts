@@ -1,0 +1,215 @@
+/**
+ * Results survive what machines and users do: an empty working folder, a missing or read-only output folder,
+ * a disk that fills up mid-run (then resumed once space is freed), two runs on one output, a finished run
+ * that must not be overwritten, and a resume or merge across a change of code, which must be refused.
+ *
+ * The full and read-only disks are real tmpfs mounts; where mounting is not allowed (not root) those two
+ * tests say so and are skipped.
+ */
+import { execFileSync, spawn, spawnSync } from 'node:child_process';
+import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { afterAll, describe, expect, it } from 'vitest';
+import { main } from '../src/cli.js';
+import { readRunFile } from '../src/results.js';
+import { mergeShards } from '../src/merge.js';
+import { removeLeftoverTemporaries, writeFileAtomic, acquireLock } from '../src/files.js';
+import { ensureBuilt } from './helpers/built.js';
+
+const root = join(__dirname, '..');
+const bin = join(root, 'bin', 'hhat.js');
+const dir = mkdtempSync(join(tmpdir(), 'hhat-files-'));
+const PLAN = ['--scenario', 'normal', '--scenario', 'uniform', '--n', '100,1000', '--replicates', '40', '--estimator', 'kozachenko-leonenko', '--estimator', 'vasicek'];
+
+async function cli(args: string[]): Promise<{ code: number; out: string; err: string }> {
+  let out = '';
+  let err = '';
+  const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
+  return { code, out, err };
+}
+
+const estimates = (path: string) => readRunFile(path).cells.map((c) => [c.scenario, c.estimator, c.n, c.estimates]);
+
+let reference: string | undefined;
+async function referenceRun(): Promise<string> {
+  if (!reference) {
+    reference = join(dir, 'reference.json');
+    expect((await cli(['bench', ...PLAN, '--out', reference, '--quiet'])).code).toBe(0);
+  }
+  return reference;
+}
+
+function tryMount(target: string, options: string): boolean {
+  mkdirSync(target, { recursive: true });
+  try {
+    execFileSync('mount', ['-t', 'tmpfs', '-o', options, 'tmpfs', target], { stdio: 'ignore' });
+    return true;
+  } catch {
+    return false;
+  }
+}
+const mounts: string[] = [];
+afterAll(() => {
+  for (const m of mounts) spawnSync('umount', [m]);
+});
+const canMount = tryMount(join(dir, 'probe'), 'size=64k') && (mounts.push(join(dir, 'probe')), true);
+if (!canMount) console.warn('test/files.test.ts: cannot mount tmpfs here (not root?); the full-disk and read-only tests are skipped');
+
+describe('where results go', () => {
+  it('bench from an empty folder writes results/ there; a missing --out folder is created', () => {
+    ensureBuilt(['src/commands/bench.ts', 'src/files.ts', 'src/runner.ts', 'src/pool.ts']);
+    const empty = mkdtempSync(join(tmpdir(), 'hhat-empty-'));
+    const first = spawnSync(process.execPath, [bin, 'bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--quiet'], { cwd: empty, encoding: 'utf8' });
+    expect(first.stderr).toBe('');
+    expect(first.status).toBe(0);
+    expect(readdirSync(join(empty, 'results')).filter((f) => f.endsWith('.json'))).toHaveLength(1);
+    const nested = join(empty, 'a', 'b', 'run.json');
+    const second = spawnSync(process.execPath, [bin, 'bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--out', nested, '--quiet'], { cwd: empty, encoding: 'utf8' });
+    expect(second.status).toBe(0);
+    expect(existsSync(nested)).toBe(true);
+    // Nothing but the run file is left: no lock, no checkpoint, no temporary.
+    expect(readdirSync(join(empty, 'a', 'b'))).toEqual(['run.json']);
+  });
+
+  it('a finished run is not overwritten without --force; --resume of it says so and exits 0', async () => {
+    const out = join(dir, 'finished.json');
+    expect((await cli(['bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--out', out, '--quiet'])).code).toBe(0);
+    const before = readFileSync(out, 'utf8');
+    const again = await cli(['bench', '--scenario', 'normal', '--n', '100', '--replicates', '5', '--out', out, '--quiet']);
+    expect(again.code).toBe(2);
+    expect(again.err).toMatch(/already holds a finished run .*; add --force to replace it, or choose another --out/);
+    expect(readFileSync(out, 'utf8')).toBe(before);
+    const resumed = await cli(['bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--out', out, '--quiet', '--resume']);
+    expect(resumed.code).toBe(0);
+    expect(resumed.out).toMatch(/is already a finished run of this plan; nothing to resume/);
+    expect(readFileSync(out, 'utf8')).toBe(before);
+    const forced = await cli(['bench', '--scenario', 'normal', '--n', '100', '--replicates', '5', '--out', out, '--quiet', '--force']);
+    expect(forced.code).toBe(0);
+    expect(readRunFile(out).plan.replicates).toBe(5);
+  });
+});
+
+describe('full and read-only disks (tmpfs)', () => {
+  it.skipIf(!canMount)('a disk that fills up: one line, exit 1, the checkpoint kept; resumed after space is freed, the same estimates', async () => {
+    const disk = join(dir, 'small-disk');
+    expect(tryMount(disk, 'size=16k')).toBe(true);
+    mounts.push(disk);
+    const out = join(disk, 'run.json');
+    const full = await cli(['bench', ...PLAN, '--out', out, '--quiet']);
+    expect(full.code).toBe(1);
+    expect(full.err.trim().split('\n')).toHaveLength(1);
+    expect(full.err).toMatch(/^hhat: the disk is full: cannot (write|append to) .*; .*rerun with --resume --out /);
+    expect(full.err).not.toMatch(/internal error/);
+    // No partial run file, no temporary, no lock: only the checkpoint, with its header.
+    expect(readdirSync(disk)).toEqual(['run.json.checkpoint.jsonl']);
+    expect(JSON.parse(readFileSync(join(disk, 'run.json.checkpoint.jsonl'), 'utf8').split('\n')[0]).kind).toBe('hhat-checkpoint');
+    execFileSync('mount', ['-o', 'remount,size=4m', disk]);
+    const resumed = await cli(['bench', ...PLAN, '--out', out, '--quiet', '--resume']);
+    expect(resumed.code).toBe(0);
+    expect(estimates(out)).toEqual(estimates(await referenceRun()));
+  }, 60_000);
+
+  it.skipIf(!canMount)('a read-only folder: one line naming it, exit 1', async () => {
+    const disk = join(dir, 'read-only');
+    expect(tryMount(disk, 'size=64k,ro')).toBe(true);
+    mounts.push(disk);
+    const result = await cli(['bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--out', join(disk, 'run.json'), '--quiet']);
+    expect(result.code).toBe(1);
+    expect(result.err.trim().split('\n')).toHaveLength(1);
+    expect(result.err).toMatch(/is on a read-only file system: cannot .*; choose another --out/);
+  });
+});
+
+describe('one output, one process', () => {
+  it('a second run on the same --out is refused while the first lives; a stale lock is taken over', async () => {
+    ensureBuilt(['src/commands/bench.ts', 'src/files.ts']);
+    const out = join(dir, 'shared.json');
+    const first = spawn(process.execPath, [bin, 'bench', '--scenario', 'normal', '--n', '20000', '--replicates', '200', '--estimator', 'kozachenko-leonenko', '--out', out, '--quiet'], { stdio: 'ignore' });
+    // Wait until the first run holds the lock.
+    for (let i = 0; i < 200 && !existsSync(`${out}.lock`); i++) await new Promise((r) => setTimeout(r, 25));
+    expect(existsSync(`${out}.lock`)).toBe(true);
+    const second = await cli(['bench', '--scenario', 'normal', '--n', '20000', '--replicates', '200', '--estimator', 'kozachenko-leonenko', '--out', out, '--quiet', '--resume']);
+    expect(second.code).toBe(1);
+    expect(second.err).toMatch(new RegExp(`is being written by process ${first.pid} on .*; wait for it to finish, or choose another --out`));
+    first.kill('SIGKILL');
+    await new Promise((r) => first.once('exit', r));
+    // The killed run left its lock behind: its process is gone, so the lock is stale and the resume proceeds.
+    expect(existsSync(`${out}.lock`)).toBe(true);
+    const release = acquireLock(out);
+    release();
+    expect(existsSync(`${out}.lock`)).toBe(false);
+    rmSync(`${out}.checkpoint.jsonl`, { force: true });
+  }, 60_000);
+});
+
+describe('atomic writes', () => {
+  it('leave no temporary behind, and leftovers from a crash are removed', () => {
+    const target = join(dir, 'atomic', 'file.txt');
+    writeFileAtomic(target, 'one');
+    writeFileAtomic(target, 'two');
+    expect(readFileSync(target, 'utf8')).toBe('two');
+    expect(readdirSync(join(dir, 'atomic'))).toEqual(['file.txt']);
+    writeFileSync(`${target}.0123456789abcdef.tmp`, 'torn');
+    expect(removeLeftoverTemporaries(target)).toBe(1);
+    expect(readdirSync(join(dir, 'atomic'))).toEqual(['file.txt']);
+  });
+});
+
+describe('code versions are never mixed', () => {
+  it('resume refuses a checkpoint written by another build of hhat, saying which', async () => {
+    const out = join(dir, 'versions.json');
+    const controller = new AbortController();
+    // Interrupt a run after its first unit (the runner's own signal, as Ctrl-C would).
+    const { runPlan } = await import('../src/runner.js');
+    const { resolvePlan } = await import('../src/plan.js');
+    const { plan } = resolvePlan({ scenarios: ['normal', 'uniform'], estimators: ['vasicek'], sampleSizes: [100, 1000], replicates: 40, seed: 3 });
+    await runPlan(plan, { workers: 1, checkpointPath: `${out}.checkpoint.jsonl`, signal: controller.signal, onProgress: () => controller.abort() });
+    const lines = readFileSync(`${out}.checkpoint.jsonl`, 'utf8').split('\n');
+    const header = JSON.parse(lines[0]);
+    header.code.hhat = { version: '0.0.9', build: 'f'.repeat(64) };
+    header.fingerprint = '0'.repeat(64);
+    writeFileSync(`${out}.checkpoint.jsonl`, [JSON.stringify(header), ...lines.slice(1)].join('\n'));
+    await expect(runPlan(plan, { workers: 1, checkpointPath: `${out}.checkpoint.jsonl`, resume: true })).rejects.toThrow(
+      /cannot be resumed: it was made by hhat 0\.0\.9 \(build ffffffffffff\) and this is hhat 0\.1\.0 \(build [0-9a-f]{12}\); resuming would mix estimates of two versions of the code/,
+    );
+  });
+
+  it('resume refuses when a file that a module imports was edited; merge refuses shards of different code', async () => {
+    const moduleDir = join(dir, 'module');
+    mkdirSync(moduleDir, { recursive: true });
+    const helper = join(moduleDir, 'helper.mjs');
+    const estimatorModule = join(moduleDir, 'estimator.mjs');
+    writeFileSync(helper, 'export const offset = 0;\n');
+    writeFileSync(
+      estimatorModule,
+      [
+        "import { offset } from './helper.mjs';",
+        'export const estimators = [{ id: "lab-mean", family: "test", quantity: "entropy", summary: "a test module", settings: [], dims: [1, 1], reference: "test",',
+        '  estimate: (s) => { let m = 0; for (let i = 0; i < s.n; i++) m += s.data[i]; return m / s.n + offset; } }];',
+      ].join('\n'),
+    );
+    const out = join(dir, 'module-run.json');
+    const args = ['bench', '--scenario', 'normal', '--n', '100,1000', '--replicates', '40', '--estimator', 'lab-mean', '--estimator-module', estimatorModule, '--out', out, '--quiet'];
+    // A checkpoint of the same plan, as an interrupted run leaves it: made here by running one shard and
+    // keeping its checkpoint would need a kill; instead, write the header the runner writes and no units.
+    const { resolvePlan, planCode, planFingerprint } = await import('../src/plan.js');
+    const { useEstimatorModules } = await import('../src/modules.js');
+    await useEstimatorModules([estimatorModule]);
+    const { plan } = resolvePlan({ scenarios: ['normal'], estimators: ['lab-mean'], sampleSizes: [100, 1000], replicates: 40, modules: [estimatorModule] });
+    const code = planCode(plan);
+    writeFileSync(`${out}.checkpoint.jsonl`, `${JSON.stringify({ kind: 'hhat-checkpoint', version: 2, fingerprint: planFingerprint(plan, code), shard: null, code })}\n`);
+    writeFileSync(helper, 'export const offset = 0.5;\n');
+    const refused = await cli([...args, '--resume']);
+    expect(refused.code).toBe(2);
+    expect(refused.err).toMatch(/cannot be resumed: module .*estimator\.mjs or a file it imports changed since/);
+
+    // Two shards, one made before and one after an edit of the helper: merge refuses, naming the module.
+    const shard = (i: number) => join(dir, `module-shard-${i}.json`);
+    rmSync(`${out}.checkpoint.jsonl`);
+    expect((await cli([...args.slice(0, -3), '--shard', '1/2', '--out', shard(1), '--quiet'])).code).toBe(0);
+    writeFileSync(helper, 'export const offset = 0.25;\n');
+    expect((await cli([...args.slice(0, -3), '--shard', '2/2', '--out', shard(2), '--quiet'])).code).toBe(0);
+    expect(() => mergeShards([1, 2].map((i) => ({ path: shard(i), run: readRunFile(shard(i)) })))).toThrow(/were computed by different code: .*module .*estimator\.mjs or a file it imports changed since/);
+  }, 60_000);
+});
