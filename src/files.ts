@@ -92,6 +92,7 @@ export function writeFileAtomic(path: string, text: string, hint?: string): void
     fsyncSync(fd);
     closeSync(fd);
     fd = undefined;
+    pauseForKillTest(path);
     renameSync(temporary, path);
   } catch (error) {
     if (fd !== undefined) closeSync(fd);
@@ -99,6 +100,15 @@ export function writeFileAtomic(path: string, text: string, hint?: string): void
     fail(error, 'write', path, hint);
   }
   fsyncFolder(dirname(path));
+}
+
+/**
+ * A test seam for bench/kill-test.ts: HHAT_PAUSE_BEFORE_RENAME_MS holds the write of a run file (not of a
+ * checkpoint) between its flushed temporary and the rename, so the script can kill the process exactly there.
+ */
+function pauseForKillTest(path: string): void {
+  const ms = Number(process.env.HHAT_PAUSE_BEFORE_RENAME_MS);
+  if (ms > 0 && path.endsWith('.json')) Atomics.wait(new Int32Array(new SharedArrayBuffer(4)), 0, 0, ms);
 }
 
 /** Removes temporaries that an earlier crash left beside `path`. */
