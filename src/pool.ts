@@ -11,6 +11,7 @@
  *
  *   const interrupted = await runOnPool(plan, units, { size: 2, entry, onResult, signal });
  */
+import { totalmem } from 'node:os';
 import { Worker } from 'node:worker_threads';
 import { UsageError } from './errors.js';
 import { estimateTimeLimit, type Plan } from './plan.js';
@@ -172,8 +173,19 @@ export function runOnPool(plan: Plan, units: Unit[], options: PoolOptions): Prom
     };
 
     options.signal?.addEventListener('abort', () => finish(true), { once: true });
+    // Typed arrays live outside a worker's heap, so its heap limit cannot stop an estimator that hoards them:
+    // the process as a whole is held to the workers' limits plus room for the supervisor.
+    const processLimitBytes = Math.min((options.size * plan.limits.workerMemoryMiB + 1024) * 2 ** 20, 0.85 * totalmem());
     watchdog = setInterval(() => {
       const now = Date.now();
+      if (process.memoryUsage.rss() > processLimitBytes) {
+        // The estimate running longest is the likeliest hoarder; stopping it frees its thread's memory.
+        const running = [...workers].filter((w) => w.job && w.slots[0] >= 0 && !w.stopReason).sort((a, b) => a.clock[0] - b.clock[0]);
+        if (running.length) {
+          running[0].stopReason = `out of memory: the process passed ${Math.round(processLimitBytes / 2 ** 20)} MiB while this estimate ran (plan limits.workerMemoryMiB per worker; typed arrays count here, outside the worker's heap)`;
+          void running[0].thread.terminate();
+        }
+      }
       for (const slot of workers) {
         if (!slot.job || slot.slots[0] < 0 || slot.stopReason) continue;
         const limit = estimateTimeLimit(plan.limits, slot.job.unit.n);

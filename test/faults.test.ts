@@ -4,7 +4,8 @@
  * other estimate is bit-identical to a run without the faulty module; a good draw of the faulty module gives
  * exactly the value computed here independently (the sample mean of the draw).
  */
-import { mkdtempSync, writeFileSync } from 'node:fs';
+import { spawn } from 'node:child_process';
+import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
@@ -15,13 +16,15 @@ import { assembleRun, readRunFile, type RunFile } from '../src/results.js';
 import { useEstimatorModules } from '../src/modules.js';
 import { parseScenario } from '../scenarios/index.js';
 import { replicateRng } from '../src/rng.js';
+import { ensureBuilt } from './helpers/built.js';
 
 const faults = join(__dirname, 'fixtures', 'faults');
+const bin = join(__dirname, '..', 'bin', 'hhat.js');
 const dir = mkdtempSync(join(tmpdir(), 'hhat-faults-'));
 const REPLICATES = 8;
 const N = 50;
 
-function input(modules: string[], extra: string[]): PlanInput {
+function input(modules: string[], extra: string[], estimateSeconds = 1): PlanInput {
   return {
     scenarios: ['normal'],
     estimators: [...extra, 'gaussian', 'kozachenko-leonenko'],
@@ -30,13 +33,13 @@ function input(modules: string[], extra: string[]): PlanInput {
     seed: 5,
     modules,
     // Short limits keep the test quick: a second per estimate, a small heap per worker.
-    limits: { estimateSeconds: 1, estimateSecondsPerPoint: 0, workerMemoryMiB: 256 },
+    limits: { estimateSeconds, estimateSecondsPerPoint: 0, workerMemoryMiB: 256 },
   };
 }
 
-async function run(modules: string[], extra: string[]): Promise<RunFile> {
+async function run(modules: string[], extra: string[], estimateSeconds = 1): Promise<RunFile> {
   await useEstimatorModules(modules);
-  return assembleRun(await runPlan(resolvePlan(input(modules, extra)).plan, { workers: 2 }), null);
+  return assembleRun(await runPlan(resolvePlan(input(modules, extra, estimateSeconds)).plan, { workers: 2 }), null);
 }
 
 /** The draws, regenerated here from their seeds, and the two facts the fixtures depend on. */
@@ -51,10 +54,12 @@ async function builtIns(): Promise<RunFile> {
   return reference;
 }
 
-const cases: [string, string, RegExp][] = [
+// The fourth entry, when given, is the time limit: memory hoarding must meet the memory limit first.
+const cases: [string, string, RegExp, number?][] = [
   ['hang.mjs', 'faulty-hang', /^timed out after 1 s \(the limit at n = 50/],
   ['loop.mjs', 'faulty-loop', /^timed out after 1 s/],
   ['memory.mjs', 'faulty-memory', /^out of memory: the worker's heap passed its limit of 256 MiB/],
+  ['typed-memory.mjs', 'faulty-typed-memory', /^out of memory: the process passed \d+ MiB while this estimate ran/, 30],
   ['exit.mjs', 'faulty-exit', /^the estimator ended its worker thread \(exit code 3\)$/],
   ['async-throw.mjs', 'faulty-async-throw', /^an error escaped the estimator .*: a late failure in a timer$/],
 ];
@@ -65,8 +70,8 @@ describe('faulty estimator modules beside built-ins', () => {
     expect(bad.filter((b) => !b).length).toBeGreaterThan(0);
   });
 
-  it.each(cases)('%s: the run finishes, its faults are failures with the reason, everything else is unchanged', async (file, id, reason) => {
-    const result = await run([join(faults, file)], [id]);
+  it.each(cases)('%s: the run finishes, its faults are failures with the reason, everything else is unchanged', async (file, id, reason, seconds) => {
+    const result = await run([join(faults, file)], [id], seconds);
     const faulty = result.cells.find((c) => c.estimatorId === id)!;
     faulty.estimates.forEach((value, r) => {
       if (bad[r]) {
@@ -89,6 +94,27 @@ describe('faulty estimator modules beside built-ins', () => {
     expect(err.trim().split('\n')).toHaveLength(1);
     expect(err).toMatch(/names estimator modules .*exit\.mjs.*runs with your rights; read them, then add --allow-plan-modules/);
   });
+
+  it.each(['SIGINT', 'SIGTERM'] as const)('%s stops a run with one worker stuck in a hung estimate within seconds, saving what finished', async (signal) => {
+    ensureBuilt(['src/pool.ts', 'src/runner.ts', 'src/commands/bench.ts', 'src/worker.ts']);
+    const out = join(dir, `signal-${signal}.json`);
+    const plan = join(dir, `signal-${signal}-plan.json`);
+    // Two scenarios: the unit without the hung estimator finishes first and must survive the stop.
+    writeFileSync(plan, JSON.stringify({ ...input([], ['faulty-hang'], 600), scenarios: ['uniform', 'normal'], modules: [join(faults, 'hang.mjs')] }));
+    const child = spawn(process.execPath, [bin, 'bench', '--plan', plan, '--allow-plan-modules', '--workers', '1', '--out', out, '--quiet'], { stdio: ['ignore', 'ignore', 'pipe'] });
+    let stderr = '';
+    child.stderr.on('data', (d) => (stderr += d));
+    const exited = new Promise<number | null>((resolve) => child.once('exit', (code) => resolve(code)));
+    // Wait for the first finished unit in the checkpoint, then stop the run.
+    const checkpoint = `${out}.checkpoint.jsonl`;
+    for (let i = 0; i < 400 && !(existsSync(checkpoint) && readFileSync(checkpoint, 'utf8').split('\n').length > 2); i++) await new Promise((r) => setTimeout(r, 25));
+    const stopped = Date.now();
+    child.kill(signal);
+    const code = await exited;
+    expect((Date.now() - stopped) / 1000).toBeLessThan(3);
+    expect(code).toBe(130);
+    expect(stderr).toMatch(/interrupted: 1 of 2 units are saved in .*\ncontinue with the same command plus: --resume --out /);
+  }, 60_000);
 
   it('hhat bench with the module that ends its process: exit 0, the failures in the run file', async () => {
     const out = join(dir, 'exit.json');
