@@ -292,12 +292,16 @@ export function drawsFingerprint(plan: Plan): string {
   return createHash('sha256').update(canonical).digest('hex');
 }
 
+/** The plan schema's ranges, which the command line shares. */
+export const MAX_SAMPLE_SIZE = planSchema.properties.sampleSizes.items.maximum;
+export const MAX_REPLICATES = planSchema.properties.replicates.maximum;
+
 /** Parses "100,1000,1e4" for --n. */
 export function parseSampleSizes(text: string): number[] {
   const sizes = text.split(',').map((part) => {
     const value = Number(part.trim());
-    if (part.trim() === '' || !Number.isInteger(value) || value < 2) {
-      throw new UsageError(`--n: "${part.trim()}" is not allowed; sample sizes must be integers ≥ 2, comma-separated (e.g. 100,1000,10000)`);
+    if (part.trim() === '' || !Number.isInteger(value) || value < 2 || value > MAX_SAMPLE_SIZE) {
+      throw new UsageError(`--n: "${part.trim()}" is not allowed; sample sizes must be integers from 2 to ${MAX_SAMPLE_SIZE}, comma-separated (e.g. 100,1000,10000)`);
     }
     return value;
   });

@@ -7,7 +7,7 @@ import type { Quantity } from '../contracts.js';
 import { parseScenario } from '../../scenarios/index.js';
 import type { Base } from '../format.js';
 import { defaultPlan } from '../default-plan.js';
-import { collect, parseFraction, planFingerprint, parseIntegerOption, parseLevel, parseSampleSizes, readPlanFile, resolvePlan, type PlanInput } from '../plan.js';
+import { collect, MAX_REPLICATES, parseFraction, planFingerprint, parseIntegerOption, parseLevel, parseSampleSizes, readPlanFile, resolvePlan, type PlanInput } from '../plan.js';
 import { progressReporter } from '../progress.js';
 import { assembleRun, readRunFile, writeFileAtomic, writeRunFile, type RunFile } from '../results.js';
 import { acquireLock, ensureFolder, removeLeftoverTemporaries } from '../files.js';
@@ -115,7 +115,7 @@ export function planInputFromOptions(options: BenchOptions): PlanInput {
   // New sample sizes: let the robustness size be chosen among them again.
   if (options.n !== undefined && input.robustness) input.robustness = { ...input.robustness, sampleSize: undefined };
   if (options.n !== undefined) input.sampleSizes = parseSampleSizes(options.n);
-  if (options.replicates !== undefined) input.replicates = parseIntegerOption('--replicates', options.replicates, 2, 1_000_000);
+  if (options.replicates !== undefined) input.replicates = parseIntegerOption('--replicates', options.replicates, 2, MAX_REPLICATES);
   if (options.seed !== undefined) input.seed = parseIntegerOption('--seed', options.seed, 0);
   if (options.level !== undefined) input.verdicts = { ...input.verdicts, level: parseLevel(options.level) };
   if (options.maxFailureRate !== undefined) input.verdicts = { ...input.verdicts, maxFailureRate: parseFraction('--max-failure-rate', options.maxFailureRate) };
