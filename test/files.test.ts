@@ -143,6 +143,17 @@ describe('one output, one process', () => {
   }, 60_000);
 });
 
+describe('checkpoints', () => {
+  it('an empty checkpoint (a crash before its header) is started afresh by --resume, never refused', async () => {
+    const out = join(dir, 'empty-checkpoint.json');
+    writeFileSync(`${out}.checkpoint.jsonl`, '');
+    const resumed = await cli(['bench', ...PLAN, '--out', out, '--quiet', '--resume']);
+    expect(resumed.err).toBe('');
+    expect(resumed.code).toBe(0);
+    expect(estimates(out)).toEqual(estimates(await referenceRun()));
+  }, 60_000);
+});
+
 describe('atomic writes', () => {
   it('leave no temporary behind, and leftovers from a crash are removed', () => {
     const target = join(dir, 'atomic', 'file.txt');
