@@ -5,7 +5,8 @@
  */
 import { createHash } from 'node:crypto';
 import { readFileSync } from 'node:fs';
-import { Ajv2020, type ErrorObject } from 'ajv/dist/2020.js';
+import type { ErrorObject, ValidateFunction } from 'ajv/dist/2020.js';
+import { loadAjv } from './schema-validator.js';
 import type { Quantity, Scenario } from './contracts.js';
 import { UsageError } from './errors.js';
 import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from '../estimators/index.js';
@@ -133,8 +134,15 @@ function describeSchemaError(error: ErrorObject): string {
   }
 }
 
-const ajv = new Ajv2020({ allErrors: false, strict: true, allowUnionTypes: true });
-const validatePlanShape = ajv.compile(planSchema);
+let planValidator: ValidateFunction | undefined;
+/** Compiled on first use: most commands never read a plan file, and compiling costs start-up time. */
+function validatePlanShape(value: unknown): boolean {
+  planValidator ??= loadAjv({ allErrors: false, strict: true, allowUnionTypes: true }).compile(planSchema);
+  const valid = planValidator(value);
+  validatePlanShape.errors = planValidator.errors;
+  return valid;
+}
+validatePlanShape.errors = undefined as ErrorObject[] | null | undefined;
 
 /** Checks a parsed plan file against the shipped schema; errors name the path. */
 export function checkPlanShape(value: unknown, source: string): PlanInput {

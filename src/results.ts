@@ -4,7 +4,8 @@
  * renamed, so a crash never leaves half a file.
  */
 import { writeFileAtomic } from './files.js';
-import { Ajv2020 } from 'ajv/dist/2020.js';
+import type { ErrorObject, ValidateFunction } from 'ajv/dist/2020.js';
+import { loadAjv } from './schema-validator.js';
 import type { Scenario } from './contracts.js';
 import { UsageError } from './errors.js';
 import { drawsFingerprint, planCode, readTextFile, type Plan, type PlanCode } from './plan.js';
@@ -243,8 +244,15 @@ export function writeRunFile(path: string, run: RunFile, hint?: string): void {
   writeFileAtomic(path, `${toJson(run)}\n`, hint);
 }
 
-const ajv = new Ajv2020({ allErrors: false, strict: false });
-const validateRun = ajv.compile(runSchema);
+let runValidator: ValidateFunction | undefined;
+/** Compiled on first use (reading a run file), not at start-up. */
+function validateRun(value: unknown): boolean {
+  runValidator ??= loadAjv({ allErrors: false, strict: false }).compile(runSchema);
+  const valid = runValidator(value);
+  validateRun.errors = runValidator.errors;
+  return valid;
+}
+validateRun.errors = undefined as ErrorObject[] | null | undefined;
 
 export function runFileErrors(value: unknown): string | null {
   if (validateRun(value)) return null;
