@@ -20,9 +20,7 @@
  * `logDensityVariance` holds Var(i(X; Y)) of the information density i = log f(x, y)/(f(x) f(y)) where it is
  * known: the asymptotic variance bound Var(i)/n for MI estimators, the analogue of Var(log f)/n for entropy.
  */
-import exponentialRandom from '@stdlib/random-base-exponential';
-import normalRandom from '@stdlib/random-base-normal';
-import chisquareRandom from '@stdlib/random-base-chisquare';
+import { chisquareRandom, exponentialRandom, normalRandom } from '../src/math/random.js';
 import type { ParamSpec, Rng, Scenario, ScenarioFamily, UnivariateDensity } from '../src/contracts.js';
 import { UsageError } from '../src/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';

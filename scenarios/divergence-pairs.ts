@@ -8,10 +8,7 @@
  *
  * Facts (`support`, `tails`) describe the harder of the two laws; `moments` and `marginals` describe P.
  */
-import exponentialRandom from '@stdlib/random-base-exponential';
-import gammaRandom from '@stdlib/random-base-gamma';
-import laplaceRandom from '@stdlib/random-base-laplace';
-import normalRandom from '@stdlib/random-base-normal';
+import { exponentialRandom, gammaRandom, laplaceRandom, normalRandom } from '../src/math/random.js';
 import type { ParamSpec, Rng, Scenario, ScenarioFamily } from '../src/contracts.js';
 import { UsageError } from '../src/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';

@@ -3,11 +3,11 @@
  * transforms of a base scenario (h(g(X)) = h(X) + E[log |g′(X)|]). Both use adaptive quadrature whose error
  * estimate is reported in truthSource and checked to be below 1e-8.
  */
+import { normalRandom } from '../src/math/random.js';
 import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily, Tails, UnivariateDensity } from '../src/contracts.js';
 import { UsageError } from '../src/errors.js';
 import { normalCdf } from '../src/math/special.js';
 import { formatNumber, formatSpec, parseNumber, validateParams } from '../src/spec.js';
-import normalRandom from '@stdlib/random-base-normal';
 import { entropyByQuadrature, expectation, formatError, logDensityVarianceByQuadrature } from './build.js';
 
 /** The largest quadrature error estimate accepted for a numeric truth. */

@@ -6,28 +6,7 @@
  * distributions", IEEE Trans. Inf. Theory 24(1), 1978 ("Lazo–Rathie 1978"). Draws come from the
  * @stdlib/random-base-* samplers fed with the replicate's stream.
  */
-import arcsineRandom from '@stdlib/random-base-arcsine';
-import betaRandom from '@stdlib/random-base-beta';
-import cauchyRandom from '@stdlib/random-base-cauchy';
-import chiRandom from '@stdlib/random-base-chi';
-import chisquareRandom from '@stdlib/random-base-chisquare';
-import exponentialRandom from '@stdlib/random-base-exponential';
-import frechetRandom from '@stdlib/random-base-frechet';
-import gammaRandom from '@stdlib/random-base-gamma';
-import gumbelRandom from '@stdlib/random-base-gumbel';
-import invgammaRandom from '@stdlib/random-base-invgamma';
-import kumaraswamyRandom from '@stdlib/random-base-kumaraswamy';
-import laplaceRandom from '@stdlib/random-base-laplace';
-import levyRandom from '@stdlib/random-base-levy';
-import logisticRandom from '@stdlib/random-base-logistic';
-import lognormalRandom from '@stdlib/random-base-lognormal';
-import normalRandom from '@stdlib/random-base-normal';
-import paretoRandom from '@stdlib/random-base-pareto-type1';
-import rayleighRandom from '@stdlib/random-base-rayleigh';
-import tRandom from '@stdlib/random-base-t';
-import triangularRandom from '@stdlib/random-base-triangular';
-import uniformRandom from '@stdlib/random-base-uniform';
-import weibullRandom from '@stdlib/random-base-weibull';
+import { arcsineRandom, betaRandom, cauchyRandom, chiRandom, chisquareRandom, exponentialRandom, frechetRandom, gammaRandom, gumbelRandom, invgammaRandom, kumaraswamyRandom, laplaceRandom, levyRandom, logisticRandom, lognormalRandom, normalRandom, paretoRandom, rayleighRandom, tRandom, triangularRandom, uniformRandom, weibullRandom } from '../src/math/random.js';
 import type { ParamSpec, ScenarioFamily, UnivariateDensity } from '../src/contracts.js';
 import { UsageError } from '../src/errors.js';
 import {

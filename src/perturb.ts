@@ -14,8 +14,8 @@
  * Randomness (the rotation, the outliers) comes from hashes of the plan's own values, so a perturbed sample
  * is as reproducible as the sample itself.
  */
+import { normalRandom } from './math/random.js';
 import { createHash } from 'node:crypto';
-import normalRandom from '@stdlib/random-base-normal';
 import type { Sample, Scenario, UnivariateDensity } from './contracts.js';
 import { UsageError } from './errors.js';
 import { rngFromSeed } from './rng.js';

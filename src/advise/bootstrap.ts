@@ -22,7 +22,7 @@
  * interpolation between order statistics). It describes the estimate's sampling spread; the estimator's own
  * bias is a separate correction (the look-alike's).
  */
-import normalRandom from '@stdlib/random-base-normal';
+import { normalRandom } from '../math/random.js';
 import type { Sample } from '../contracts.js';
 import { cholesky } from '../math/linalg.js';
 import { rngFromSeed } from '../rng.js';
