@@ -1,15 +1,30 @@
 import { Command, CommanderError } from 'commander';
 import { EnvironmentError, EstimateError, UsageError } from './errors.js';
-import { registerScenariosCommand } from './commands/scenarios.js';
 import { hhatVersion } from './provenance.js';
-import { registerBenchCommand } from './commands/bench.js';
-import { registerEstimatorsCommand } from './commands/estimators.js';
-import { registerEstimateCommand } from './commands/estimate.js';
-import { registerConvertCommand } from './commands/convert.js';
-import { registerReportCommand } from './commands/report.js';
-import { registerCompareCommand } from './commands/compare.js';
-import { registerAdviseCommand } from './commands/advise.js';
+import { COMMANDS, type CommandName } from './commands/summaries.js';
 
+type Print = (text: string) => void;
+type Register = (program: Command, print: Print, printErr: Print) => void;
+
+/** Each command's module, loaded only when that command runs (or its help is asked for). */
+const LOADERS: Record<CommandName, () => Promise<Register>> = {
+  bench: async () => (await import('./commands/bench.js')).registerBenchCommand,
+  merge: async () => (await import('./commands/bench.js')).registerBenchCommand,
+  scenarios: async () => (await import('./commands/scenarios.js')).registerScenariosCommand,
+  estimators: async () => (await import('./commands/estimators.js')).registerEstimatorsCommand,
+  estimate: async () => (await import('./commands/estimate.js')).registerEstimateCommand,
+  convert: async () => (await import('./commands/convert.js')).registerConvertCommand,
+  report: async () => (await import('./commands/report.js')).registerReportCommand,
+  compare: async () => (await import('./commands/compare.js')).registerCompareCommand,
+  advise: async () => (await import('./commands/advise.js')).registerAdviseCommand,
+};
+
+/** The command the arguments name (after global options, or after `help`), if it is one of ours. */
+function chosenCommand(argv: string[]): CommandName | undefined {
+  const words = argv.filter((a) => !a.startsWith('-'));
+  const first = words[0] === 'help' ? words[1] : words[0];
+  return first !== undefined && first in COMMANDS ? (first as CommandName) : undefined;
+}
 
 export interface CliIo {
   out: (text: string) => void;
@@ -21,7 +36,11 @@ const defaultIo: CliIo = {
   err: (text) => process.stderr.write(text.endsWith('\n') ? text : `${text}\n`),
 };
 
-export function buildProgram(io: CliIo): Command {
+/**
+ * The program with every command listed; only `chosen` (and a command sharing its module) is defined in full,
+ * the others by name and summary, enough for `hhat --help` and for commander to reject a misspelt command.
+ */
+export async function buildProgram(io: CliIo, chosen?: CommandName): Promise<Command> {
   const program = new Command();
   program
     .name('hhat')
@@ -36,14 +55,17 @@ export function buildProgram(io: CliIo): Command {
     .showHelpAfterError('(run with --help for usage)')
     .configureOutput({ writeOut: io.out, writeErr: io.err })
     .exitOverride();
-  registerBenchCommand(program, io.out, io.err);
-  registerScenariosCommand(program, io.out);
-  registerEstimatorsCommand(program, io.out);
-  registerEstimateCommand(program, io.out, io.err);
-  registerConvertCommand(program, io.out);
-  registerReportCommand(program, io.out);
-  registerCompareCommand(program, io.out, io.err);
-  registerAdviseCommand(program, io.out, io.err);
+  // bench.ts defines bench and merge together; every other module one command.
+  const group = chosen === 'bench' || chosen === 'merge' ? ['bench', 'merge'] : chosen ? [chosen] : [];
+  let loaded = false;
+  for (const name of Object.keys(COMMANDS) as CommandName[]) {
+    if (group.includes(name)) {
+      if (!loaded) (await LOADERS[name]())(program, io.out, io.err);
+      loaded = true;
+    } else {
+      program.command(name).description(COMMANDS[name]).allowUnknownOption().allowExcessArguments();
+    }
+  }
   for (const command of program.commands) command.exitOverride().configureOutput({ writeOut: io.out, writeErr: io.err });
   return program;
 }
@@ -53,12 +75,12 @@ export function buildProgram(io: CliIo): Command {
  * a comparison that found a regression) or an internal error, 2 a usage mistake.
  */
 export async function main(argv: string[], io: CliIo = defaultIo): Promise<number> {
-  const program = buildProgram(io);
   const debug = argv.includes('--debug');
   // Commands that finish but report a problem (an estimate that failed beside others) set process.exitCode;
   // it is read here and cleared, so the caller (bin/hhat.js, or a test calling main again) owns the code.
   process.exitCode = undefined;
   try {
+    const program = await buildProgram(io, chosenCommand(argv));
     await program.parseAsync(argv, { from: 'user' });
     return typeof process.exitCode === 'number' ? process.exitCode : 0;
   } catch (error) {

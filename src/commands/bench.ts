@@ -1,4 +1,5 @@
 import { existsSync, readdirSync, readFileSync, rmSync, statSync } from 'node:fs';
+import { COMMANDS } from './summaries.js';
 import { dirname, join, resolve } from 'node:path';
 import { describeRegistration, QUANTITIES, resolveModulePath, useEstimatorModules } from '../modules.js';
 import type { Command } from 'commander';
@@ -155,7 +156,7 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
 export function registerBenchCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
   program
     .command('bench')
-    .description('run a benchmark plan (the built-in default plan without arguments) and write a run file')
+    .description(COMMANDS.bench)
     .option('--plan <file>', 'a JSON plan file (schema: src/schemas/plan.schema.json)')
     .option('--quantity <q>', 'entropy (default), mutual-information or divergence: the default plan of that quantity')
     .option('--scenario <spec>', 'a scenario to include (repeatable; see `hhat scenarios`)', collect)
@@ -274,7 +275,7 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
 
   program
     .command('merge')
-    .description('join the shard run files of one plan into the run file an unsharded run writes')
+    .description(COMMANDS.merge)
     .argument('<shards...>', 'shard run files (all N of them)')
     .requiredOption('--out <file>', 'the merged run file')
     .option('--bits', 'print values in bits instead of nats')

@@ -1,4 +1,5 @@
 import type { Command } from 'commander';
+import { COMMANDS } from './summaries.js';
 import { UsageError } from '../errors.js';
 import { compareRuns, failingCells, failsPolicy, parseFailOn, parseTolerance, type FailOn } from '../compare.js';
 import { parseLevel } from '../plan.js';
@@ -19,7 +20,7 @@ interface CompareOptions {
 export function registerCompareCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
   program
     .command('compare')
-    .description('compare two run files cell by cell: paired on the same draws, so small changes in estimator code show')
+    .description(COMMANDS.compare)
     .argument('<base>', 'the run file to compare against (e.g. results/baseline.json)')
     .argument('<new>', 'the run file with the changed code')
     .option('--tolerance <t>', 'smallest |ΔRMSE| that counts as worse or improved: nats (0.01) or a percentage of the base RMSE (5%)', '0')

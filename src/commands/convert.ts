@@ -1,4 +1,5 @@
 import type { Command } from 'commander';
+import { COMMANDS } from './summaries.js';
 import { UsageError } from '../errors.js';
 import { parseIntegerOption } from '../plan.js';
 import { formatValue } from '../format.js';
@@ -8,7 +9,7 @@ import { convertEntropy, unitFactor, KNOWN_UNITS } from '../units.js';
 export function registerConvertCommand(program: Command, print: (text: string) => void): void {
   program
     .command('convert')
-    .description('move a differential entropy to another unit of the data: h + d·log(old unit / new unit)')
+    .description(COMMANDS.convert)
     .argument('<value>', 'the entropy in nats (or bits with --bits)')
     .option('--from <unit>', `the unit the data were in (${KNOWN_UNITS.join(', ')})`)
     .option('--to <unit>', 'the unit to express it in')

@@ -1,4 +1,5 @@
 import type { Command } from 'commander';
+import { COMMANDS } from './summaries.js';
 import type { Estimator } from '../contracts.js';
 import { renderTable } from '../format.js';
 import { describeSetting } from '../spec.js';
@@ -29,7 +30,7 @@ function dims(e: Estimator): string {
 export function registerEstimatorsCommand(program: Command, print: (text: string) => void): void {
   program
     .command('estimators')
-    .description('list estimators: settings with defaults and allowed values, supported dimensions, references')
+    .description(COMMANDS.estimators)
     .option('--json', 'print a JSON array instead of a table')
     .action((options: { json?: boolean }) => {
       const list = listEstimators();

@@ -1,4 +1,5 @@
 import { resolve } from 'node:path';
+import { COMMANDS } from './summaries.js';
 import type { Command } from 'commander';
 import type { Base } from '../format.js';
 import { readRunFile } from '../results.js';
@@ -18,7 +19,7 @@ export function defaultReportPath(runPath: string): string {
 export function registerReportCommand(program: Command, print: (text: string) => void): void {
   program
     .command('report')
-    .description('write a self-contained HTML report (charts and sortable tables) of a run file')
+    .description(COMMANDS.report)
     .argument('<run>', 'a run file written by `hhat bench` or `hhat merge`')
     .option('--out <file>', 'the HTML file to write (default: the run file name with .html)')
     .option('--svg-dir <dir>', 'also write each chart as a standalone SVG file in this folder')

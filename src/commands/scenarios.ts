@@ -1,4 +1,5 @@
 import type { Command } from 'commander';
+import { COMMANDS } from './summaries.js';
 import type { Scenario } from '../contracts.js';
 import { UsageError } from '../errors.js';
 import { parseIntegerOption } from '../plan.js';
@@ -47,7 +48,7 @@ const SUPPORTS = ['bounded', 'half', 'unbounded'];
 export function registerScenariosCommand(program: Command, print: (text: string) => void): void {
   program
     .command('scenarios')
-    .description('list scenarios: distributions with a known true value, their sources and facts')
+    .description(COMMANDS.scenarios)
     .argument('[spec...]', 'show these scenarios (e.g. gamma:shape=3 "product[normal;laplace]") instead of the catalog')
     .option('--json', 'print a JSON array instead of a table')
     .option('--bits', 'true values in bits instead of nats')

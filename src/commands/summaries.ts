@@ -1,0 +1,19 @@
+/**
+ * One line per command, shown by `hhat --help`. The CLI lists every command from here without loading any of
+ * them, and loads only the one that runs: start-up then costs what that command needs.
+ */
+export const COMMANDS = {
+  bench: 'run a benchmark plan (the built-in default plan without arguments) and write a run file',
+  merge: 'join the shard run files of one plan into the run file an unsharded run writes',
+  scenarios: 'list scenarios: distributions with a known true value, their sources and facts',
+  estimators: 'list estimators: settings with defaults and allowed values, supported dimensions, references',
+  estimate:
+    'estimate the differential entropy of a data file (CSV/TSV/TXT, JSON, NumPy .npy) with one or more estimators; the mutual information with --x-columns and --y-columns, a divergence with --against',
+  convert: 'move a differential entropy to another unit of the data: h + d·log(old unit / new unit)',
+  report: 'write a self-contained HTML report (charts and sortable tables) of a run file',
+  compare: 'compare two run files cell by cell: paired on the same draws, so small changes in estimator code show',
+  advise:
+    'which estimator to use: for a described setting (--n, --dim), or for a data file, with an estimate, a bootstrap interval and a look-alike bias correction',
+} as const;
+
+export type CommandName = keyof typeof COMMANDS;
