@@ -13,6 +13,7 @@ import { EstimateError } from '../src/errors.js';
 import { KnnIndex } from '../src/knn.js';
 import { solveLower } from '../src/math/linalg.js';
 import { type AxisBins, BIN_RULES, axisIndices, histogramGrid } from './histogram.js';
+import { columnExtremes, type SpreadUnit, spreadUnitOfExtremes, toUnit } from './scaling.js';
 import { sortAscending } from './spacing.js';
 
 /** The P and Q samples after checking both; returns their sizes. */
@@ -48,6 +49,17 @@ export function checkNotConstant(id: string, data: Float64Array, n: number, dim:
   }
 }
 
+/** The unit (estimators/scaling.ts) for P and Q together, from their pooled extremes, or null when none is needed. */
+export function pooledUnit(p: Float64Array, n: number, q: Float64Array, m: number, dim: number, mode: 'column' | 'common'): SpreadUnit | null {
+  const fromP = columnExtremes(p, n, dim);
+  const fromQ = columnExtremes(q, m, dim);
+  for (let j = 0; j < dim; j++) {
+    fromP.minimum[j] = Math.min(fromP.minimum[j], fromQ.minimum[j]);
+    fromP.maximum[j] = Math.max(fromP.maximum[j], fromQ.maximum[j]);
+  }
+  return spreadUnitOfExtremes(fromP.minimum, fromP.maximum, mode);
+}
+
 // ---------------------------------------------------------------------------------------------------------
 // Wang–Kulkarni–Verdú
 
@@ -59,8 +71,14 @@ export function checkNotConstant(id: string, data: Float64Array, n: number, dim:
 export function knnDivergence(p: Float64Array, n: number, q: Float64Array, m: number, dim: number, k: number, id = 'knn-divergence'): number {
   if (n <= k) throw new EstimateError('too-few-points', `${id} needs more than k = ${k} points from P; got ${n}`);
   if (m < k) throw new EstimateError('too-few-points', `${id} needs at least k = ${k} points from Q; got ${m}`);
-  const within = new KnnIndex(p, dim).nearestOthers(k).distances;
-  const across = new KnnIndex(q, dim).nearest(p, k).distances;
+  // One power of two for every coordinate of both samples (a unit for distances; estimators/scaling.ts)
+  // when the spread is subnormal or huge: squared distances then neither underflow nor overflow, and the
+  // ratios ν/ρ are those of the data.
+  const pooled = pooledUnit(p, n, q, m, dim, 'common');
+  const pUnit = pooled ? toUnit(p, n, dim, pooled) : p;
+  const qUnit = pooled ? toUnit(q, m, dim, pooled) : q;
+  const within = new KnnIndex(pUnit, dim).nearestOthers(k).distances;
+  const across = new KnnIndex(qUnit, dim).nearest(pUnit, k).distances;
   let sumLogRatio = 0;
   let zeroWithin = 0;
   let zeroAcross = 0;
@@ -246,10 +264,16 @@ function choleskyOf(id: string, which: string, covariance: Float64Array, dim: nu
  */
 function gaussianDivergenceEstimate(sample: Sample): number {
   const id = 'gaussian-divergence';
-  const { n, m, dim, p, q } = checkedPair(id, sample);
+  const checked = checkedPair(id, sample);
+  const { n, m, dim } = checked;
   if (n <= dim || m <= dim) {
     throw new EstimateError('too-few-points', `${id}: a ${dim}-dimensional covariance needs at least ${dim + 1} points in each sample; got ${n} from P and ${m} from Q`);
   }
+  // A subnormal or huge spread is first brought near 1 per coordinate, for both samples alike (exact,
+  // estimators/scaling.ts; the divergence does not move), so the squares below neither underflow nor overflow.
+  const unit = pooledUnit(checked.p, n, checked.q, m, dim, 'column');
+  const p = unit ? toUnit(checked.p, n, dim, unit) : checked.p;
+  const q = unit ? toUnit(checked.q, m, dim, unit) : checked.q;
   const centre = new Float64Array(dim);
   for (let i = 0; i < n * dim; i++) centre[i % dim] += p[i];
   for (let i = 0; i < m * dim; i++) centre[i % dim] += q[i];

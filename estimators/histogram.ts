@@ -11,7 +11,10 @@
  * alone), so rescaling the data by c rescales every edge by c, leaves every count unchanged, and shifts the
  * estimate by exactly d·log c up to rounding. With a fixed `width` the bins start at each coordinate's
  * minimum and have that width in data units, so the estimate is not scale-equivariant (by design: the
- * width is a unit-bound choice).
+ * width is a unit-bound choice). A coordinate whose spread is subnormal or near the top of the double range
+ * is binned in a power-of-two unit near its spread, and one whose values are near the top of the double range
+ * is moved near 0 (estimators/scaling.ts, both exact; a width setting is converted to the unit exactly), so its bins are the same as in exact arithmetic and the estimate is not thrown off by
+ * widths that underflow or counts per unit that overflow.
  *
  * Bin rules, per coordinate k with n points in d dimensions:
  *   scott              h_k = 2·3^{1/(d+2)}·π^{d/(2(d+2))}·σ_k·n^{−1/(d+2)}: the normal-reference L2-optimal
@@ -47,6 +50,7 @@ import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.
 import { EstimateError } from '../src/errors.js';
 import { quantileOfSorted, squaredDeviations } from '../src/math/moments.js';
 import { checkFiniteValues, column } from '../src/sample.js';
+import { spreadUnitOfExtremes, timesPowerOfTwo, toUnit } from './scaling.js';
 import { sortAscending } from './spacing.js';
 
 export const BIN_RULES = ['sturges', 'scott', 'freedman-diaconis', 'doane', 'sqrt'] as const;
@@ -89,13 +93,21 @@ const HISTOGRAM_SETTINGS: readonly SettingSpec[] = [
 
 const MAX_EXACT_INTEGER = 2 ** 53;
 
-/** Where the bins of one coordinate lie: edge_i = origin + i·binWidth, i = 0..binCount. */
+/**
+ * Where the bins of one coordinate lie: edge_i = origin + i·binWidth, i = 0..binCount, in grid units:
+ * data units divided by 2^unitExponent. The unit is 1 (unitExponent 0) unless the coordinate's spread is
+ * subnormal or near the top of the double range (estimators/scaling.ts), where a width in data units
+ * would underflow or its reciprocal overflow.
+ */
 export interface AxisBins {
   origin: number;
   binWidth: number;
   binCount: number;
   /** The right edge of the last bin: the maximum for rules and counts, origin + binCount·width for widths. */
   lastEdge: number;
+  /** Grid coordinates are (x − unitOffset) / 2^unitExponent for x in data units (exact: estimators/scaling.ts). */
+  unitExponent: number;
+  unitOffset: number;
 }
 
 /** The grid the estimator uses for this sample and these settings, one entry per coordinate. */
@@ -117,26 +129,36 @@ export function histogramGrid(sample: Sample, settings: Settings): AxisBins[] {
   const grid: AxisBins[] = [];
   for (let k = 0; k < dim; k++) {
     const values = column(sample, k);
-    let minimum = Infinity;
-    let maximum = -Infinity;
+    let dataMinimum = Infinity;
+    let dataMaximum = -Infinity;
     for (let i = 0; i < n; i++) {
-      if (values[i] < minimum) minimum = values[i];
-      if (values[i] > maximum) maximum = values[i];
+      if (values[i] < dataMinimum) dataMinimum = values[i];
+      if (values[i] > dataMaximum) dataMaximum = values[i];
     }
+    // A subnormal or huge spread is binned in a power-of-two unit near the spread: every edge, width and
+    // count is then the exact image of the data-unit one, and the bin volume gets the unit's log back.
+    const unit = spreadUnitOfExtremes(Float64Array.of(dataMinimum), Float64Array.of(dataMaximum), 'column');
+    const unitExponent = unit ? unit.exponents[0] : 0;
+    const unitOffset = unit ? unit.offsets[0] : 0;
+    if (unit) values.set(toUnit(values, n, 1, unit));
+    const minimum = timesPowerOfTwo(dataMinimum - unitOffset, -unitExponent);
+    const maximum = timesPowerOfTwo(dataMaximum - unitOffset, -unitExponent);
     const range = maximum - minimum;
     if (typeof width === 'number') {
-      const binCount = Math.floor(range / width) + 1;
+      const gridWidth = timesPowerOfTwo(width, -unitExponent);
+      const binCount = Math.floor(range / gridWidth) + 1;
       if (!(binCount < MAX_EXACT_INTEGER)) {
-        throw new EstimateError('invalid-input', `${id}: width=${width} cuts coordinate ${k + 1} (range ${range}) into 2^53 or more bins; use a larger width`);
+        const dataRange = timesPowerOfTwo(range, unitExponent);
+        throw new EstimateError('invalid-input', `${id}: width=${width} cuts coordinate ${k + 1} (range ${Number.isFinite(dataRange) ? dataRange : `${dataMinimum} .. ${dataMaximum}`}) into 2^53 or more bins; use a larger width`);
       }
-      if (!(minimum + width > minimum)) {
-        throw new EstimateError('numeric', `${id}: width=${width} is below the resolution of the values of coordinate ${k + 1} (near ${minimum}); use a larger width`);
+      if (!(minimum + gridWidth > minimum)) {
+        throw new EstimateError('numeric', `${id}: width=${width} is below the resolution of the values of coordinate ${k + 1} (near ${dataMinimum}); use a larger width`);
       }
-      grid.push({ origin: minimum, binWidth: width, binCount, lastEdge: minimum + binCount * width });
+      grid.push({ origin: minimum, binWidth: gridWidth, binCount, lastEdge: minimum + binCount * gridWidth, unitExponent, unitOffset });
       continue;
     }
     if (!(range > 0)) {
-      throw new EstimateError('ties', `${id}: all ${n} values of coordinate ${k + 1} are equal (${minimum}), so bins spanning the data have zero width; give width=W instead`);
+      throw new EstimateError('ties', `${id}: all ${n} values of coordinate ${k + 1} are equal (${dataMinimum}), so bins spanning the data have zero width; give width=W instead`);
     }
     if (!Number.isFinite(range)) {
       throw new EstimateError('numeric', `${id}: the range of coordinate ${k + 1} overflows the double range; rescale the data`);
@@ -149,9 +171,9 @@ export function histogramGrid(sample: Sample, settings: Settings): AxisBins[] {
     const binWidth = range / binCount;
     // As numpy does, refuse bins so narrow that neighbouring edges cannot be told apart.
     if (!(minimum + binWidth > minimum && maximum - binWidth < maximum)) {
-      throw new EstimateError('numeric', `${id}: ${binCount} bins are too many for the range of coordinate ${k + 1} (${minimum} .. ${maximum}); use fewer bins`);
+      throw new EstimateError('numeric', `${id}: ${binCount} bins are too many for the range of coordinate ${k + 1} (${dataMinimum} .. ${dataMaximum}); use fewer bins`);
     }
-    grid.push({ origin: minimum, binWidth, binCount, lastEdge: maximum });
+    grid.push({ origin: minimum, binWidth, binCount, lastEdge: maximum, unitExponent, unitOffset });
   }
   return grid;
 }
@@ -204,16 +226,21 @@ function moments(values: Float64Array, withSkewness = false): { sd: number; skew
 }
 
 /**
- * Bin index of every point along one coordinate, written into `out`. The index is floor((x − origin)/width)
+ * Bin index of every point along one coordinate (x in data units, brought to grid units here), written
+ * into `out`. The index is floor((x − origin)/width)
  * corrected against the actual edges origin + i·width, so a point on an edge goes to the bin on its right
  * and the maximum to the last bin, as numpy.histogram does.
  */
 export function axisIndices(values: Float64Array, count: number, dim: number, axis: number, bins: AxisBins, out: Float64Array): void {
-  const { origin, binWidth, binCount, lastEdge } = bins;
+  const { origin, binWidth, binCount, lastEdge, unitExponent, unitOffset } = bins;
   const perUnit = binCount / (lastEdge - origin);
   const last = binCount - 1;
+  // Two factors: 2^−unitExponent itself may not be a double (a subnormal spread needs up to 2^1074).
+  const halfExponent = Math.trunc(-unitExponent / 2);
+  const toGridA = 2 ** halfExponent;
+  const toGridB = 2 ** (-unitExponent - halfExponent);
   for (let i = 0, p = axis; i < count; i++, p += dim) {
-    const x = values[p];
+    const x = (values[p] - unitOffset) * toGridA * toGridB;
     let index = Math.floor((x - origin) * perUnit);
     if (index > last) index = last;
     if (index < 0) index = 0;
@@ -281,7 +308,7 @@ export function histogramCells(sample: Sample, grid: readonly AxisBins[]): { sum
   let logBinVolume = 0;
   for (let k = 0; k < dim; k++) {
     const bins = grid[k];
-    logBinVolume += Math.log(bins.binWidth);
+    logBinVolume += Math.log(bins.binWidth) + bins.unitExponent * Math.LN2;
     axisIndices(sample.data, sample.n, sample.dim, k, bins, axis);
     let axisSpace = bins.binCount;
     if (keySpace * axisSpace >= MAX_EXACT_INTEGER) {

@@ -11,7 +11,9 @@
  *   a bounded Brent search on log h from h_silverman/16 to 4·h_silverman.
  * - a number > 0: data units for d = 1, whitened units for d > 1. A fixed number in data units is not
  *   unit-equivariant (like a fixed histogram bin width): rescaling the data by c does not shift Ĥ by log c.
- *   The rules are equivariant: Ĥ shifts by exactly d·log c.
+ *   The rules are equivariant: Ĥ shifts by exactly d·log c. Data whose spread is subnormal or near the top
+ *   of the double range are worked on in a power-of-two unit near the spread (estimators/scaling.ts), with a
+ *   numeric 1-D bandwidth converted exactly, so the estimate is the one exact arithmetic would give.
  *
  * `resolve` reports the numeric bandwidth actually used (in the units above), so a run file records it and
  * re-running with that number gives the same estimate.
@@ -29,7 +31,7 @@
 import type { Estimator, Sample, SettingSpec, Settings, SettingValue } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { parseNumber } from '../src/spec.js';
-import { type BandwidthSetting, chooseBandwidth, type KernelData, kernelEntropy, prepareKernelData } from './kernel/resubstitution.js';
+import { type BandwidthSetting, chooseBandwidth, type KernelData, kernelEntropy, prepareKernelData, toDataUnits } from './kernel/resubstitution.js';
 
 export const BANDWIDTH_RULES = ['silverman', 'scott', 'likelihood-cv'] as const;
 
@@ -53,7 +55,10 @@ const kernelSettings: readonly SettingSpec[] = [
   },
 ];
 
-/** The bandwidth used: a numeric setting as given, a rule's (or cross-validation's) value times `scale`. */
+/**
+ * The bandwidth used, in the prepared points' units: a numeric setting as given, a rule's (or
+ * cross-validation's) value times `scale`.
+ */
 function usedBandwidth(data: KernelData, settings: Settings): number {
   const setting = bandwidthSetting(settings.bandwidth);
   const chosen = chooseBandwidth(data, setting);
@@ -80,7 +85,8 @@ export const kernelEstimator: Estimator = {
     'Ahmad & Lin, IEEE Trans. Inf. Theory 22(3):372–375, 1976 (resubstitution estimate); leave-one-out form: Joe, Ann. Inst. Statist. Math. 41:683–697, 1989, and Hall & Morton, Ann. Inst. Statist. Math. 45:69–88, 1993; bandwidth rules: Silverman 1986 (eq. 3.31), Scott 1992; binned FFT sums: Wand, J. Comput. Graph. Statist. 3:433–445, 1994',
   resolve(sample: Sample, settings: Settings): Settings {
     // The numeric bandwidth reported already includes the scale, so the settings used reproduce the estimate.
-    return { ...settings, bandwidth: usedBandwidth(prepareKernelData(sample), settings), scale: 1 };
+    const data = prepareKernelData(sample);
+    return { ...settings, bandwidth: toDataUnits(data, usedBandwidth(data, settings)), scale: 1 };
   },
   estimate(sample: Sample, settings: Settings): number {
     const data = prepareKernelData(sample);

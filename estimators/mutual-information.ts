@@ -36,6 +36,7 @@ import { type AxisBins, BIN_RULES, histogramCells, histogramEstimators, histogra
 import { BANDWIDTH_RULES, kernelEstimator, kernelEstimators } from './kernel.js';
 import { nearestNeighbourEstimators } from './nearest-neighbour.js';
 import { logDeterminantSpd, parametricEstimators, scatterMatrix, wishartLogDetShift } from './parametric.js';
+import { spreadUnit, toUnit } from './scaling.js';
 import { spacingEstimators } from './spacing.js';
 
 const KSG_REFERENCE = 'Kraskov, A., Stögbauer, H. & Grassberger, P. (2004). Estimating mutual information. Physical Review E 69, 066138';
@@ -173,6 +174,10 @@ function digammaTable(size: number): (m: number) => number {
 export function ksgMutualInformation(data: Float64Array, n: number, xDim: number, yDim: number, k: number, variant: 1 | 2, id = `ksg${variant}`): number {
   const dim = xDim + yDim;
   if (n <= k) throw new EstimateError('too-few-points', `${id} needs n > k; got n = ${n} with k = ${k}`);
+  // Max-norm distances compare every coordinate, so a subnormal or huge spread gets one power of two for
+  // all of them (exact, estimators/scaling.ts): differences then cannot overflow, and I does not move.
+  const unit = spreadUnit(data.subarray(0, n * dim), n, dim, 'common');
+  if (unit) data = toUnit(data, n, dim, unit);
   const joint = new KnnIndex(data.subarray(0, n * dim), dim, { norm: 'max' });
   // Variant 2 also asks for the (k+1)-th neighbour: where it is as near as the k-th, the k are tied.
   const stride = variant === 2 ? Math.min(k + 1, n - 1) : k;

@@ -14,6 +14,7 @@ import { EstimateError } from '../src/errors.js';
 import { KnnIndex, type KnnNorm } from '../src/knn.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { checkFiniteValues } from '../src/sample.js';
+import { rowsDifferingFromPartners, spreadUnit, toUnit } from './scaling.js';
 
 const NORMS = ['euclidean', 'max'] as const;
 
@@ -41,7 +42,8 @@ export function logUnitBallVolumeOf(norm: KnnNorm, dim: number): number {
  */
 export function kozachenkoLeonenkoEntropy(data: Float64Array, dim: number, k: number, norm: KnnNorm, id = 'kozachenko-leonenko'): number {
   const n = checkedPointCount(id, data, dim, k);
-  const index = new KnnIndex(data, dim, { norm });
+  const { points, logJacobian } = inDistanceUnit(data, n, dim);
+  const index = new KnnIndex(points, dim, { norm });
   const { distances } = index.nearestOthers(k);
   let sumLogDistance = 0;
   let zeroCount = 0;
@@ -50,8 +52,19 @@ export function kozachenkoLeonenkoEntropy(data: Float64Array, dim: number, k: nu
     if (kthDistance === 0) zeroCount++;
     else sumLogDistance += Math.log(kthDistance);
   }
-  if (zeroCount > 0) throw tiesError(id, index, zeroCount, n, k, (order) => order);
-  return digamma(n) - digamma(k) + logUnitBallVolumeOf(norm, dim) + (dim * sumLogDistance) / n;
+  if (zeroCount > 0) throw tiesError(id, index, data, distances, k, zeroCount, n, k, (order) => order);
+  return digamma(n) - digamma(k) + logUnitBallVolumeOf(norm, dim) + (dim * sumLogDistance) / n + logJacobian;
+}
+
+/**
+ * The points in a distance unit safe for squared distances: one power of two near the widest column's
+ * spread for all columns (a distance compares coordinates, so they keep one unit), applied only when some
+ * spread is subnormal or near the top of the double range (estimators/scaling.ts). Entropy estimates on
+ * the scaled points get `logJacobian` = d·log of the unit back; ratios of distances need nothing.
+ */
+export function inDistanceUnit(data: Float64Array, n: number, dim: number): { points: Float64Array; logJacobian: number } {
+  const unit = spreadUnit(data, n, dim, 'common');
+  return unit ? { points: toUnit(data, n, dim, unit), logJacobian: unit.logJacobian } : { points: data, logJacobian: 0 };
 }
 
 /** The neighbour orders the weighted estimator may use, and their weights. */
@@ -216,13 +229,14 @@ export function weightedKozachenkoLeonenkoEntropy(
     throw new EstimateError('invalid-input', `${id}: ${(error as Error).message}`);
   }
   const { orders, weights } = orderWeights;
-  const index = new KnnIndex(data, dim, { norm });
+  const { points, logJacobian } = inDistanceUnit(data, n, dim);
+  const index = new KnnIndex(points, dim, { norm });
   const { distances } = index.nearestOthers(k);
   const firstOrder = orders[0];
   let zeroCount = 0;
   for (let i = 0; i < n; i++) if (distances[i * k + firstOrder - 1] === 0) zeroCount++;
   // The smallest order used is ⌊k/d⌋ (when ≥ 1), so it exceeds m - 1 once k ≥ d·m.
-  if (zeroCount > 0) throw tiesError(id, index, zeroCount, n, firstOrder, (order) => dim * order);
+  if (zeroCount > 0) throw tiesError(id, index, data, distances, k, zeroCount, n, firstOrder, (order) => dim * order);
   let weightedLogDistance = 0;
   let weightedDigamma = 0;
   for (const j of orders) {
@@ -231,7 +245,7 @@ export function weightedKozachenkoLeonenkoEntropy(
     weightedLogDistance += weights[j - 1] * (sumLogDistance / n);
     weightedDigamma += weights[j - 1] * digamma(j);
   }
-  return dim * weightedLogDistance + logUnitBallVolumeOf(norm, dim) + Math.log(n - 1) - weightedDigamma;
+  return dim * weightedLogDistance + logUnitBallVolumeOf(norm, dim) + Math.log(n - 1) - weightedDigamma + logJacobian;
 }
 
 /** n, after checking the data are finite and n > k. */
@@ -247,7 +261,19 @@ function checkedPointCount(id: string, data: Float64Array, dim: number, k: numbe
  * The 'ties' error: how many points have a zero j-th neighbour distance, and what would avoid it. `kFor`
  * turns "the smallest neighbour order used must exceed m" into the k setting that achieves it.
  */
-function tiesError(id: string, index: KnnIndex, zeroCount: number, n: number, order: number, kFor: (order: number) => number): EstimateError {
+function tiesError(
+  id: string,
+  index: KnnIndex,
+  data: Float64Array,
+  distances: Float64Array,
+  stride: number,
+  zeroCount: number,
+  n: number,
+  order: number,
+  kFor: (order: number) => number,
+): EstimateError {
+  const artefact = underflowedNeighbours(id, index, data, distances, stride, n, order);
+  if (artefact) return artefact;
   // Exact copies of each point (other points at distance 0): the largest group decides the k that works.
   const copies = index.countOthersWithin(new Float64Array(n), { inclusive: true });
   let mostCopies = 0;
@@ -257,6 +283,32 @@ function tiesError(id: string, index: KnnIndex, zeroCount: number, n: number, or
     `${id}: ${zeroCount} of ${n} points have their ${ordinal(order)} nearest neighbour at distance 0 (repeated values; ` +
       `the largest group is ${mostCopies + 1} identical points), so log-distances would be -Infinity; ` +
       `add jitter below the recording resolution, use k ≥ ${kFor(mostCopies + 1)} if the repeats are genuine, or use a histogram estimator`,
+  );
+}
+
+/**
+ * A zero distance between rows that differ: their squared Euclidean distance underflowed, or the unit
+ * change merged them, because the data span more than double precision resolves. Not ties, so not the
+ * ties advice: an error saying so, or null when every zero distance is between identical rows.
+ */
+function underflowedNeighbours(id: string, index: KnnIndex, data: Float64Array, distances: Float64Array, stride: number, n: number, order: number): EstimateError | null {
+  const dim = index.dim;
+  const neighbours = index.nearestOthers(order, { indices: true }).indices!;
+  const rows = new Int32Array(n * order);
+  const partners = new Int32Array(n * order);
+  let pairs = 0;
+  for (let i = 0; i < n; i++) {
+    if (distances[i * stride + order - 1] !== 0) continue;
+    for (let t = 0; t < order; t++) {
+      rows[pairs] = i;
+      partners[pairs++] = neighbours[i * order + t];
+    }
+  }
+  const differing = rowsDifferingFromPartners(data, dim, rows, partners, pairs);
+  if (differing === 0) return null;
+  return new EstimateError(
+    'numeric',
+    `${id}: ${differing} pairs of distinct points are at a distance that rounds to 0 (below about 1e-154 of the widest column's range for squared Euclidean distances): the values span more orders of magnitude than double precision can hold in one distance; rescale the columns to comparable spreads or transform them (e.g. log)${index.norm === 'euclidean' ? ', or use norm=max' : ''}`,
   );
 }
 

@@ -23,14 +23,21 @@ import type { Estimator, Sample, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { digamma } from '../src/math/special.js';
 import { checkFiniteValues } from '../src/sample.js';
+import { spreadUnit, toUnit } from './scaling.js';
 
 /**
- * Sum of squares and cross-products about the mean, of the data divided column-wise by `columnScale`
- * (d×d row-major). Dividing by each column's largest deviation keeps the squares far from overflow and
- * underflow whatever the data's unit; log det S = log det(scaled S) + 2 Σ_j log columnScale_j.
+ * Sum of squares and cross-products about the mean, of the data divided column-wise by a scale whose log
+ * is written to `logColumnScale` (d×d row-major). Dividing by each column's largest deviation keeps the
+ * squares far from overflow and underflow whatever the data's unit; log det S = log det(scaled S) +
+ * 2 Σ_j logColumnScale_j. A subnormal or huge spread is first brought near 1 by a power of two, and
+ * values near the top of the double range near 0 (estimators/scaling.ts, exact), so the mean neither
+ * overflows nor loses the digits a subnormal has.
  */
-export function scatterMatrix(sample: Sample, columnScale: Float64Array): Float64Array {
-  const { n, dim, data } = sample;
+export function scatterMatrix(sample: Sample, logColumnScale: Float64Array): Float64Array {
+  const { n, dim } = sample;
+  const unit = spreadUnit(sample.data, n, dim, 'column');
+  const data = unit ? toUnit(sample.data, n, dim, unit) : sample.data;
+  const columnScale = new Float64Array(dim);
   const mean = new Float64Array(dim);
   for (let i = 0, p = 0; i < n; i++) for (let j = 0; j < dim; j++, p++) mean[j] += data[p];
   for (let j = 0; j < dim; j++) mean[j] /= n;
@@ -49,6 +56,7 @@ export function scatterMatrix(sample: Sample, columnScale: Float64Array): Float6
     }
   }
   for (let j = 0; j < dim; j++) for (let k = 0; k < j; k++) scatter[k * dim + j] = scatter[j * dim + k];
+  for (let j = 0; j < dim; j++) logColumnScale[j] = Math.log(columnScale[j]) + (unit ? unit.exponents[j] * Math.LN2 : 0);
   return scatter;
 }
 
@@ -113,10 +121,10 @@ function gaussianEntropy(sample: Sample, settings: Settings): number {
       throw new EstimateError('ties', `${id}: all ${n} values of coordinate ${j + 1} are equal (${data[j]}), so the covariance is singular; drop that coordinate or add noise`);
     }
   }
-  const columnScale = new Float64Array(dim);
-  const scatter = scatterMatrix(sample, columnScale);
+  const logColumnScale = new Float64Array(dim);
+  const scatter = scatterMatrix(sample, logColumnScale);
   let logDetScatter = logDeterminantSpd(scatter, dim, n, id);
-  for (let j = 0; j < dim; j++) logDetScatter += 2 * Math.log(columnScale[j]);
+  for (let j = 0; j < dim; j++) logDetScatter += 2 * logColumnScale[j];
   if (!Number.isFinite(logDetScatter)) throw new EstimateError('numeric', `${id}: the covariance overflows the double range; rescale the data`);
   if (correction === 'none') {
     return (dim / 2) * Math.log(2 * Math.PI * Math.E) + 0.5 * (logDetScatter - dim * Math.log(n));

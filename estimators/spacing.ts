@@ -16,6 +16,7 @@
 import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { checkFiniteValues } from '../src/sample.js';
+import { spreadUnitOfExtremes, toUnit } from './scaling.js';
 
 /** Below this size the engine's typed-array sort is as fast as the radix sort and allocates nothing. */
 const RADIX_SORT_MIN_LENGTH = 1 << 15;
@@ -336,6 +337,33 @@ export function correaEntropy(sorted: Float64Array, m: number, id = 'correa'): n
 
 type SortedEntropy = (sorted: Float64Array, m: number, id: string) => number;
 
+/**
+ * The estimate on sorted values whose range is subnormal or near the top of the double range (or whose
+ * values are), computed in a power-of-two unit near the range (exact: estimators/scaling.ts) plus that
+ * unit's log: in data units 1/range would overflow, or squares and spacings leave the double range. Where the unit change itself
+ * merges values (the data span more than the double exponent range, so a spacing is below 2^−1074 of the
+ * range), the failure says so rather than reporting ties the data do not have.
+ */
+function inSafeUnit(id: string, sorted: Float64Array, m: number, fromSorted: SortedEntropy): number {
+  const n = sorted.length;
+  const unit = spreadUnitOfExtremes(Float64Array.of(sorted[0]), Float64Array.of(sorted[n - 1]), 'column');
+  if (!unit) return fromSorted(sorted, m, id);
+  const scaled = toUnit(sorted, n, 1, unit);
+  try {
+    return fromSorted(scaled, m, id) + unit.logJacobian;
+  } catch (error) {
+    let merged = 0;
+    for (let i = 1; i < n; i++) if (scaled[i] === scaled[i - 1] && sorted[i] !== sorted[i - 1]) merged++;
+    if (error instanceof EstimateError && merged > 0) {
+      throw new EstimateError(
+        'numeric',
+        `${id}: the values span more than double precision can resolve (range ${sorted[0]} .. ${sorted[n - 1]}, yet ${merged} neighbouring values differ by less than 2^-1074 of it), so some spacings cannot be represented; transform the data (e.g. log or asinh) to a narrower range`,
+      );
+    }
+    throw error;
+  }
+}
+
 function spacingEstimator(id: string, summary: string, reference: string, fromSorted: SortedEntropy): Estimator {
   return {
     id,
@@ -351,7 +379,7 @@ function spacingEstimator(id: string, summary: string, reference: string, fromSo
     estimate(sample: Sample, settings: Settings): number {
       if (sample.dim !== 1) throw new EstimateError('dimension', `${id} is one-dimensional; the sample has d = ${sample.dim}`);
       const m = windowFromSettings(id, sample.n, settings);
-      return fromSorted(sortedFiniteValues(id, sample), m, id);
+      return inSafeUnit(id, sortedFiniteValues(id, sample), m, fromSorted);
     },
   };
 }

@@ -7,15 +7,15 @@
  * the first lines: tab, semicolon, comma, else runs of spaces), .json, and .npy. The parsers also work on
  * strings and bytes: `parseDelimited`, `parseJson`, `parseNpy`. See each module for the accepted forms.
  */
-import { readFileSync } from 'node:fs';
+import { closeSync, fstatSync, openSync, readFileSync } from 'node:fs';
 import { extname } from 'node:path';
 import { UsageError } from './errors.js';
-import { parseDelimited, type Delimiter } from './data/delimited.js';
+import { readDelimitedFile, type Delimiter } from './data/delimited.js';
 import { parseJson } from './data/json.js';
 import { parseNpy } from './data/npy.js';
 import type { DataTable } from './data/table.js';
 
-export { parseDelimited, type Delimiter, type DelimitedOptions, type DelimitedTable } from './data/delimited.js';
+export { parseDelimited, readDelimitedFile, type Delimiter, type DelimitedOptions, type DelimitedTable } from './data/delimited.js';
 export { parseJson } from './data/json.js';
 export { parseNpy, type NpyTable } from './data/npy.js';
 export { resolveColumns, selectTableColumns } from './data/columns.js';
@@ -29,6 +29,8 @@ export interface ReadOptions {
   columns?: string;
   /** Overrides the format the extension implies. */
   format?: DataFormat;
+  /** Hears the bytes read so far of a delimited text file, after each window (for a progress line). */
+  onProgress?: (bytesRead: number, totalBytes: number) => void;
 }
 
 export interface LoadedSample extends DataTable {
@@ -64,18 +66,40 @@ export function formatOf(path: string): DataFormat {
 /** Reads a data file into a sample; every problem is a UsageError naming the file and the place. */
 export function readSample(path: string, options: ReadOptions = {}): LoadedSample {
   const format = options.format ?? formatOf(path);
-  const bytes = readBytes(path);
   const parseOptions = { source: path, columns: options.columns };
   switch (format) {
     case 'json':
-      return { ...parseJson(bytes, parseOptions), format, source: path };
+      return { ...parseJson(readBytes(path), parseOptions), format, source: path };
     case 'npy':
-      return { ...parseNpy(bytes, parseOptions), format, source: path };
+      return { ...parseNpy(readBytes(path), parseOptions), format, source: path };
     default: {
+      // Delimited text is read through a window straight into the typed array of values, so a file of
+      // hundreds of megabytes is never held as bytes or text in full.
       const delimiter: Delimiter | undefined = format === 'csv' ? 'comma' : format === 'tsv' ? 'tab' : undefined;
-      const table = parseDelimited(bytes, { ...parseOptions, delimiter });
-      return { ...table, format, source: path };
+      const fd = openFile(path);
+      try {
+        const table = readDelimitedFile(fd, fstatSync(fd).size, { ...parseOptions, delimiter, onProgress: options.onProgress });
+        return { ...table, format, source: path };
+      } catch (error) {
+        // A read that fails part way (a device error, a file truncated under us) is about the file.
+        throw error instanceof UsageError || !(error as NodeJS.ErrnoException).code ? error : readError(path, error);
+      } finally {
+        closeSync(fd);
+      }
     }
+  }
+}
+
+function openFile(path: string): number {
+  try {
+    const fd = openSync(path, 'r');
+    if (fstatSync(fd).isDirectory()) {
+      closeSync(fd);
+      throw Object.assign(new Error('directory'), { code: 'EISDIR' });
+    }
+    return fd;
+  } catch (error) {
+    throw readError(path, error);
   }
 }
 
@@ -83,15 +107,19 @@ function readBytes(path: string): Buffer {
   try {
     return readFileSync(path);
   } catch (error) {
-    const code = (error as NodeJS.ErrnoException).code;
-    const reason =
-      code === 'ENOENT'
-        ? 'no such file'
-        : code === 'EISDIR'
-          ? 'it is a directory'
-          : code === 'EACCES' || code === 'EPERM'
-            ? 'permission denied'
-            : ((error as Error).message.split('\n')[0] ?? 'unknown error');
-    throw new UsageError(`cannot read data file ${path}: ${reason}`);
+    throw readError(path, error);
   }
+}
+
+function readError(path: string, error: unknown): UsageError {
+  const code = (error as NodeJS.ErrnoException).code;
+  const reason =
+    code === 'ENOENT'
+      ? 'no such file'
+      : code === 'EISDIR'
+        ? 'it is a directory'
+        : code === 'EACCES' || code === 'EPERM'
+          ? 'permission denied'
+          : ((error as Error).message.split('\n')[0] ?? 'unknown error');
+  return new UsageError(`cannot read data file ${path}: ${reason}`);
 }

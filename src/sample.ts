@@ -1,5 +1,6 @@
 import type { Sample } from './contracts.js';
 import { EstimateError } from './errors.js';
+import { rngFromSeed } from './rng.js';
 
 /** Wraps row-major values as a sample; checks the length. */
 export function makeSample(data: Float64Array, dim: number): Sample {
@@ -39,4 +40,37 @@ export function checkFiniteValues(id: string, sample: Sample): void {
       throw new EstimateError('invalid-input', `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`);
     }
   }
+}
+
+/**
+ * A seeded uniform sample of m of the n rows, without replacement, in their original order: selection
+ * sampling (Knuth, The Art of Computer Programming vol. 2, §3.4.2, Algorithm S), which keeps row i with
+ * probability (m − kept)/(n − i), so every m-subset is equally likely. One pass, no index array: a large
+ * sample costs only the m rows kept. `xDim` carries over; a divergence's Q sample is not touched.
+ */
+export function uniformRowSubsample(sample: Sample, m: number, rng: () => number): Sample {
+  const { n, dim, data } = sample;
+  if (!Number.isInteger(m) || m < 0 || m > n) throw new RangeError(`a subsample of ${m} rows needs 0 ≤ m ≤ n = ${n}`);
+  const out = new Float64Array(m * dim);
+  let kept = 0;
+  for (let i = 0; i < n && kept < m; i++) {
+    if ((n - i) * rng() < m - kept) {
+      for (let j = 0, from = i * dim, to = kept * dim; j < dim; j++) out[to + j] = data[from + j];
+      kept++;
+    }
+  }
+  return { ...sample, n: m, data: out };
+}
+
+/**
+ * `rows` of the sample's rows by uniformRowSubsample, drawn from a stream seeded by `seed` and the size (a
+ * divergence's Q sample cut in proportion, from the same stream); the sample itself when rows ≥ n.
+ */
+export function seededRowSubsample(sample: Sample, rows: number, seed: string): Sample {
+  if (rows >= sample.n) return sample;
+  const rng = rngFromSeed(`hhat-row-subsample\n${seed}\n${rows}`);
+  const cut = uniformRowSubsample(sample, rows, rng);
+  if (!sample.q) return cut;
+  const qRows = Math.min(sample.q.n, Math.max(1, Math.round((sample.q.n * rows) / sample.n)));
+  return { ...cut, q: uniformRowSubsample(sample.q, qRows, rng) };
 }

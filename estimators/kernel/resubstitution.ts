@@ -19,6 +19,7 @@ import { minimizeBounded } from './minimize.js';
 import { type MultivariatePath, multivariateLogKernelSums } from './multivariate.js';
 import { type UnivariatePath, univariateLogKernelSums } from './univariate.js';
 import { whiten } from './whiten.js';
+import { columnExtremes, spreadUnitOfExtremes, timesPowerOfTwo, toUnit } from '../scaling.js';
 
 export type BandwidthSetting = BandwidthRule | 'likelihood-cv' | number;
 
@@ -26,10 +27,33 @@ export type BandwidthSetting = BandwidthRule | 'likelihood-cv' | number;
 export interface KernelData {
   n: number;
   dim: number;
-  /** d = 1: the sorted values. d > 1: the whitened points, row-major. */
+  /**
+   * d = 1: the sorted values, in units of 2^unitExponent data units. d > 1: the whitened points,
+   * row-major.
+   */
   points: Float64Array;
-  /** ½ log det Σ̂ for d > 1; 0 for d = 1. */
+  /**
+   * log of the Jacobian from `points` back to data units: ½ log det Σ̂ for d > 1 (whitening), and
+   * unitExponent·log 2 for d = 1.
+   */
   halfLogDet: number;
+  /**
+   * d = 1: the points are the data divided by 2^unitExponent, a power of two near their spread when that
+   * spread is subnormal or near the top of the double range (estimators/scaling.ts), else 0. Bandwidths
+   * of d = 1 are in these point units inside this module; `toDataUnits` and `fromDataUnits` convert.
+   * Always 0 for d > 1, where the whitened unit already absorbs each column's scale.
+   */
+  unitExponent: number;
+}
+
+/** A bandwidth in the prepared points' units as data units (d = 1; whitened units are unchanged). */
+export function toDataUnits(data: KernelData, bandwidth: number): number {
+  return timesPowerOfTwo(bandwidth, data.unitExponent);
+}
+
+/** A bandwidth in data units (d = 1; whitened units unchanged) as the prepared points' units. */
+export function fromDataUnits(data: KernelData, bandwidth: number): number {
+  return timesPowerOfTwo(bandwidth, -data.unitExponent);
 }
 
 /** likelihood-cv searches log h over [rule − log 16, rule + log 4], to about 0.1% in h. */
@@ -49,9 +73,30 @@ export function prepareKernelData(sample: Sample): KernelData {
     throw new EstimateError('too-few-points', `kernel: needs at least ${needed} points in ${dim} dimension${dim === 1 ? '' : 's'}, got ${n}`);
   }
   checkFiniteValues('kernel', sample);
-  if (dim === 1) return { n, dim, points: sortedValues(sample), halfLogDet: 0 };
-  const { z, halfLogDet } = whiten(sample);
-  return { n, dim, points: z, halfLogDet };
+  const data = sample.data.subarray(0, n * dim);
+  const { minimum, maximum } = columnExtremes(data, n, dim);
+  for (let k = 0; k < dim; k++) {
+    if (minimum[k] === maximum[k]) {
+      throw new EstimateError(
+        dim === 1 ? 'ties' : 'invalid-input',
+        dim === 1
+          ? `kernel: all ${n} values are equal (${minimum[0]}), so the density is a point mass; the kernel estimate needs spread data`
+          : `kernel: column ${k + 1} is constant, so the sample covariance is singular; drop the column (the entropy of a point mass is −∞)`,
+      );
+    }
+  }
+  // Spreads that are subnormal or near the top of the double range are first brought near 1 by a power of
+  // two per column (exact), so variances neither underflow to 0 nor overflow, and values near the top of
+  // the range are moved near 0 so means do not overflow; the unit's log is added back.
+  const unit = spreadUnitOfExtremes(minimum, maximum, 'column');
+  if (dim === 1) {
+    // The unit is an increasing map, so sorting after it gives the same order.
+    const sorted = sortedValues(unit ? { n, dim, data: toUnit(data, n, dim, unit) } : sample);
+    const unitExponent = unit ? unit.exponents[0] : 0;
+    return { n, dim, points: sorted, halfLogDet: unit ? unit.logJacobian : 0, unitExponent };
+  }
+  const { z, halfLogDet } = whiten(unit ? { n, dim, data: toUnit(data, n, dim, unit) } : sample);
+  return { n, dim, points: z, halfLogDet: halfLogDet + (unit ? unit.logJacobian : 0), unitExponent: 0 };
 }
 
 /**
@@ -64,7 +109,10 @@ export interface KernelPaths {
   multivariate?: MultivariatePath;
 }
 
-/** log f̂₋ᵢ(x_i) for every point: in sorted order for d = 1, input order for d > 1. Data units. */
+/**
+ * log f̂₋ᵢ(x_i) for every point: in sorted order for d = 1, input order for d > 1. Densities in data units;
+ * the bandwidth in the prepared points' units (as chooseBandwidth gives it).
+ */
 export function leaveOneOutLogDensities(data: KernelData, bandwidth: number, paths: KernelPaths = {}): Float64Array {
   const { n, dim, points, halfLogDet } = data;
   const logSums =
@@ -101,13 +149,16 @@ export function likelihoodCrossValidatedBandwidth(data: KernelData): number {
   return reference * Math.exp(best.x);
 }
 
-/** The numeric bandwidth a setting stands for on this sample (data units for d = 1, whitened for d > 1). */
+/**
+ * The numeric bandwidth a setting stands for on this sample, in the prepared points' units (data units for
+ * d = 1 unless `unitExponent` says otherwise, whitened for d > 1); a numeric setting is read in data units.
+ */
 export function chooseBandwidth(data: KernelData, setting: BandwidthSetting): number {
   if (typeof setting === 'number') {
     if (!(setting > 0) || !Number.isFinite(setting)) {
       throw new EstimateError('invalid-input', `kernel: bandwidth=${setting} is not allowed; it must be silverman, scott, likelihood-cv or a number > 0`);
     }
-    return setting;
+    return fromDataUnits(data, setting);
   }
   switch (setting) {
     case 'silverman':
@@ -133,7 +184,7 @@ export function kernelEntropy(data: KernelData, bandwidth: number, paths: Kernel
     const units = data.dim === 1 ? 'data units' : 'whitened units';
     throw new EstimateError(
       'numeric',
-      `kernel: the estimate overflows double precision (${entropy}) with bandwidth ${formatBandwidth(bandwidth)} (${units}): some point is too many bandwidths from its nearest neighbour for (distance/bandwidth)² to be a double, or the data's range overflows; rescale the data or use a larger bandwidth`,
+      `kernel: the estimate overflows double precision (${entropy}) with bandwidth ${formatBandwidth(toDataUnits(data, bandwidth))} (${units}): some point is too many bandwidths from its nearest neighbour for (distance/bandwidth)² to be a double, or the data's range overflows; rescale the data or use a larger bandwidth`,
     );
   }
   return entropy;

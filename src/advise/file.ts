@@ -9,11 +9,24 @@
  * draws at the sample's n (about 60% of what is left); estimate the sample with each estimator; a smoothed
  * bootstrap interval for the recommended one (the rest, at least 100 resamples); and the look-alike bias
  * correction Ĥ − bias, shown beside the raw value, never instead of it.
+ *
+ * Large files. A benchmark at the file's n must run every estimator dozens of times at that n, which for
+ * millions of rows no budget covers (a d ≥ 2 kernel estimate alone grows like n²). So when the file has
+ * more rows than the budget can analyse (`analysisRows`: the cost model's prediction of the benchmark's
+ * minimum replicates, src/cost-model.ts), every step above runs on a seeded uniform subsample of that many
+ * rows, and the advice says so: the profile, look-alike, benchmark, estimates, interval and bias correction
+ * are all for those rows, consistently. The chosen estimator is then also run on as many of the file's rows
+ * as ALL_ROWS_SHARE of the budget is predicted to allow (all of them when they fit), a value whose
+ * interval would be narrower than the subsample's. The bootstrap is left out, with a note, when even its
+ * minimum resamples are predicted to overrun the budget.
  */
 import type { Sample } from '../contracts.js';
 import { EstimateError, UsageError } from '../errors.js';
-import { tooFewPoints } from './setting.js';
-import { parseEstimatorSpec, runEstimator } from '../../estimators/index.js';
+import { MAX_BUDGET_SECONDS, tooFewPoints } from './setting.js';
+import { parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
+import { describeSeconds, predictedSeconds, roundRowsDown, rowsWithin } from '../cost-model.js';
+import { defaultWorkers } from '../runner.js';
+import { seededRowSubsample } from '../sample.js';
 import type { Estimate } from '../score.js';
 import { ADVICE_SEED, applicableEstimators, DEFAULT_BUDGET_SECONDS, runTargeted } from './benchmark.js';
 import { smoothedBootstrap, type BootstrapInterval } from './bootstrap.js';
@@ -41,6 +54,28 @@ export interface FileAdviceOptions {
   /** Exactly this many bootstrap resamples. */
   resamples?: number;
   onStage?: (stage: string) => void;
+  /** Seconds already spent on this advice before the call (reading the file): they count against the budget. */
+  elapsedBeforeSeconds?: number;
+}
+
+/** The file's rows, when the advice worked on a subsample of them. */
+export interface AdviceSubsample {
+  rows: number;
+  of: number;
+  seed: number;
+  reason: string;
+}
+
+/** The chosen estimator on (many more of) the file's rows than the advice analysed. */
+export interface AllRowsEstimate {
+  estimator: string;
+  label: string;
+  /** Rows used: all of the file's when they fit ALL_ROWS_SHARE of the budget, else a seeded uniform subsample. */
+  rows: number;
+  of: number;
+  value: number | null;
+  error?: string;
+  seconds: number;
 }
 
 export interface UserEstimate {
@@ -51,8 +86,13 @@ export interface UserEstimate {
 }
 
 export interface FileAdvice {
+  /** Rows analysed: the file's, or the subsample's when `subsample` is set. */
   n: number;
   dim: number;
+  /** Rows in the file. */
+  fileRows: number;
+  subsample: AdviceSubsample | null;
+  allRows: AllRowsEstimate | null;
   budgetSeconds: number;
   profile: DataProfile;
   lookalike: Lookalike;
@@ -80,6 +120,52 @@ export interface FileAdvice {
 
 const BENCHMARK_SHARE = 0.6;
 const MAX_RESAMPLES = 2000;
+/**
+ * Share of the budget for the least useful benchmark (its minimum replicates on all worker threads), by
+ * which `analysisRows` sizes a large file's subsample: the benchmark's share (60%) of what is left after
+ * reading, the profile and look-alike, halved for its first round, with room for the benchmark's pilot,
+ * whose first calls run slower than the cost model predicts (on a 5·10^6-row CSV at the default 20 s
+ * budget, shares of 0.25 and 0.2 left the first round short of the 20 replicates asked for).
+ */
+export const ANALYSIS_SHARE = 0.15;
+/** Share of the budget for the bootstrap's minimum resamples, by which `analysisRows` also sizes the subsample. */
+export const BOOTSTRAP_SHARE = 0.25;
+/** Share of the budget for the chosen estimator on the file's rows beyond the subsample. */
+export const ALL_ROWS_SHARE = 0.1;
+/** Below this many rows (or what a budget allows) the benchmark says too little: the budget is refused instead. */
+export const FEWEST_ANALYSIS_ROWS = 200;
+/** Thread start-up and scheduling on top of the predicted estimator time. */
+const PREDICTION_OVERHEAD = 1.1;
+/** The bootstrap may overrun what is left of the budget by this much before the interval is left out instead. */
+const BOOTSTRAP_SLACK = 0.2;
+
+/**
+ * The most rows advice can analyse within the budget: the largest m ≤ n at which (1) the predicted cost of
+ * `replicates` benchmark replicates on `workers` threads is within ANALYSIS_SHARE of the budget, and (2)
+ * `resamples` bootstrap resamples (on one thread) of the slowest estimator whose cost grows no faster than
+ * about n log n are within BOOTSTRAP_SHARE of it; rounded down to two digits. Estimators whose cost grows
+ * like n² (a d ≥ 2 kernel) are left out of (2): shrinking every analysis to fit their interval would cost
+ * more than it gives, so when one of them is chosen its interval may be left out instead, with a note. A
+ * fixed function of its arguments, so the same command picks the same rows.
+ */
+export function analysisRows(n: number, dim: number, estimators: readonly string[], budgetSeconds: number, workers: number, replicates: number, resamples = 100): number {
+  const configured = estimators.map((spec) => parseEstimatorSpec(spec));
+  const cost = (c: ConfiguredEstimator, m: number): number => predictedSeconds(c, m, dim) ?? 0;
+  // Superlinear: doubling the rows more than (say) 2.5-folds the predicted time, at the sizes that matter here.
+  const nearLinear = configured.filter((c) => cost(c, 20000) <= 2.5 * cost(c, 10000));
+  const fits = (m: number): boolean =>
+    configured.reduce((sum, c) => sum + cost(c, m), 0) * PREDICTION_OVERHEAD * replicates <= ANALYSIS_SHARE * budgetSeconds * workers &&
+    nearLinear.reduce((most, c) => Math.max(most, cost(c, m)), 0) * resamples <= BOOTSTRAP_SHARE * budgetSeconds;
+  if (fits(n)) return n;
+  let lo = 0;
+  let hi = n;
+  while (hi - lo > 1) {
+    const mid = Math.floor((lo + hi) / 2);
+    if (fits(mid)) lo = mid;
+    else hi = mid;
+  }
+  return roundRowsDown(lo);
+}
 
 function fmt(x: number, digits = 3): string {
   return Number.isFinite(x) ? Number(x.toPrecision(digits)).toString() : '–';
@@ -124,18 +210,64 @@ function profileWarnings(profile: DataProfile, lookalike: Lookalike, command: st
   return warnings;
 }
 
-export async function adviseFile(sample: Sample, options: FileAdviceOptions = {}): Promise<FileAdvice> {
+/**
+ * The chosen estimator on as many of the file's rows as ALL_ROWS_SHARE of the budget is predicted to allow
+ * (all when they fit): a seeded uniform subsample otherwise.
+ */
+function allRowsEstimate(fileSample: Sample, chosen: ConfiguredEstimator, label: string, budget: number, seed: string, stage: (text: string) => void): AllRowsEstimate {
+  const { n, dim } = fileSample;
+  const rows = roundRowsDown(rowsWithin(chosen, n, dim, ALL_ROWS_SHARE * budget));
+  const used = rows >= n ? n : rows;
+  stage(`${label} on ${used === n ? 'all' : used} of your ${n} rows`);
   const started = performance.now();
+  try {
+    const value = runEstimator(chosen, seededRowSubsample(fileSample, used, seed)).value;
+    const seconds = (performance.now() - started) / 1000;
+    return Number.isFinite(value)
+      ? { estimator: chosen.spec, label, rows: used, of: n, value, seconds }
+      : { estimator: chosen.spec, label, rows: used, of: n, value: null, error: `the estimate is ${value}`, seconds };
+  } catch (error) {
+    if (!(error instanceof EstimateError)) throw error;
+    return { estimator: chosen.spec, label, rows: used, of: n, value: null, error: error.message, seconds: (performance.now() - started) / 1000 };
+  }
+}
+
+export async function adviseFile(fileSample: Sample, options: FileAdviceOptions = {}): Promise<FileAdvice> {
+  const started = performance.now() - 1000 * (options.elapsedBeforeSeconds ?? 0);
   const elapsed = () => (performance.now() - started) / 1000;
   const budget = options.budgetSeconds ?? DEFAULT_BUDGET_SECONDS;
   const level = options.level === undefined ? 0.95 : options.level;
   const seed = options.seed ?? ADVICE_SEED;
-  const { n, dim } = sample;
-  if (n < 20) throw new UsageError(`the sample has ${n} rows; advice needs at least 20 (a benchmark at smaller n says little)`);
-  const degenerate = tooFewPoints(n, dim);
+  const { dim } = fileSample;
+  const fileRows = fileSample.n;
+  if (fileRows < 20) throw new UsageError(`the sample has ${fileRows} rows; advice needs at least 20 (a benchmark at smaller n says little)`);
+  const degenerate = tooFewPoints(fileRows, dim);
   if (degenerate) throw new EstimateError('too-few-points', `no estimator is usable on this file: ${degenerate}`);
   const names = options.columnNames ?? [];
   const stage = options.onStage ?? (() => {});
+  const estimators = options.estimators?.map((s) => parseEstimatorSpec(s).spec) ?? applicableEstimators(dim);
+  if (!estimators.length) throw new UsageError(`no entropy estimator supports d = ${dim}`);
+
+  // A file larger than the budget can benchmark is analysed on a seeded uniform subsample (see the file comment).
+  const workers = Math.max(1, options.workers ?? defaultWorkers());
+  const minimumReplicates = options.replicates ?? options.minReplicates ?? 20;
+  const rows = Math.min(fileRows, analysisRows(fileRows, dim, estimators, budget, workers, minimumReplicates, level === null ? 0 : options.resamples ?? options.minResamples ?? 100));
+  let subsample: AdviceSubsample | null = null;
+  let sample = fileSample;
+  if (rows < fileRows) {
+    const perReplicate = estimators.reduce((sum, spec) => sum + (predictedSeconds(parseEstimatorSpec(spec), fileRows, dim) ?? 0), 0);
+    const cost = `one replicate of the ${estimators.length} estimators at n = ${fileRows} would take about ${describeSeconds(perReplicate)} by the cost model, and the benchmark needs ${minimumReplicates}; within the ${budget} s budget on ${workers} worker${workers === 1 ? '' : 's'}`;
+    if (rows < FEWEST_ANALYSIS_ROWS) {
+      // Within the rows that matter here the benchmark's cost grows at most like n² (a d ≥ 2 kernel sum).
+      const needed = Math.ceil(budget * Math.pow(FEWEST_ANALYSIS_ROWS / Math.max(rows, 1), 2));
+      const remedy = needed <= MAX_BUDGET_SECONDS ? `give --budget ${needed} or more` : `no --budget up to ${MAX_BUDGET_SECONDS} s covers it; select fewer columns`;
+      throw new UsageError(`--budget ${budget} is too small for this file: ${cost}, not even ${FEWEST_ANALYSIS_ROWS} rows fit; ${remedy}`);
+    }
+    const reason = `${cost}, they and the bootstrap's resamples fit at n = ${rows}`;
+    subsample = { rows, of: fileRows, seed, reason };
+    sample = seededRowSubsample(fileSample, rows, `hhat-advise\n${seed}`);
+  }
+  const { n } = sample;
 
   const timings: Record<string, number> = {};
   let mark = 0;
@@ -143,14 +275,17 @@ export async function adviseFile(sample: Sample, options: FileAdviceOptions = {}
     timings[name] = elapsed() - mark;
     mark = elapsed();
   };
+  if (options.elapsedBeforeSeconds) {
+    timings.read = options.elapsedBeforeSeconds;
+    mark = options.elapsedBeforeSeconds;
+  }
+  if (subsample) lap('subsample');
   stage('profiling the sample');
   const profile = profileSample(sample, names);
   lap('profile');
   stage('fitting the look-alike (EM, K chosen by BIC)');
   const lookalike = buildLookalike(sample, { seed: `${seed}`, maxComponents: options.maxComponents, columnNames: profile.columns.map((c) => c.name) });
   lap('lookalike');
-  const estimators = options.estimators?.map((s) => parseEstimatorSpec(s).spec) ?? applicableEstimators(dim);
-  if (!estimators.length) throw new UsageError(`no entropy estimator supports d = ${dim}`);
 
   stage('benchmarking estimators on look-alike draws');
   const bench = await runTargeted({
@@ -159,8 +294,8 @@ export async function adviseFile(sample: Sample, options: FileAdviceOptions = {}
     n,
     budgetSeconds: Math.max(0, budget - elapsed()) * (level === null ? 0.9 : BENCHMARK_SHARE),
     seed,
-    workers: options.workers,
-    minReplicates: options.replicates ?? options.minReplicates ?? 20,
+    workers,
+    minReplicates: minimumReplicates,
     maxReplicates: options.replicates,
     budget: { total: budget, spent: elapsed() },
     dim,
@@ -182,8 +317,14 @@ export async function adviseFile(sample: Sample, options: FileAdviceOptions = {}
   lap('estimates');
   const command = `hhat advise --n ${n} --dim ${dim}`;
   const warnings = profileWarnings(profile, lookalike, command);
+  if (subsample) {
+    warnings.unshift(
+      `your file has ${fileRows} rows; the advice above works on a seeded uniform subsample of ${rows} of them (seed ${seed}): ${subsample.reason}. The profile, look-alike, benchmark, estimates, interval and bias correction are all at n = ${rows}; raise --budget (or --workers) for a larger subsample.`,
+    );
+  }
   for (const cut of bench.cuts) warnings.push(`to fit the ${budget} s budget, left out ${cut}. Raise --budget to include them.`);
-  if (bench.minimumForced) {
+  // A first round short of the minimum that a second round made up for has cut nothing worth a note.
+  if (bench.minimumForced && bench.replicates < minimumReplicates) {
     warnings.push(`the time budget covered fewer look-alike replicates than advice wants; ${bench.replicates} ran (${bench.wallSeconds.toFixed(1)} s), so the Monte-Carlo errors are large. Raise --budget for smaller ones.`);
   }
   if (lookalike.fittedPoints < n) warnings.push(`the look-alike was fitted on a random ${lookalike.fittedPoints} of the ${n} rows (EM time grows with n); the benchmark still runs at n = ${n}.`);
@@ -193,6 +334,7 @@ export async function adviseFile(sample: Sample, options: FileAdviceOptions = {}
   const order = recommended ? [recommended, ...summaries.filter((s) => s !== recommended)] : [];
   const usable = order.find((s) => userEstimates.find((u) => u.estimator === s.estimator)?.value !== null && s.failedScenarios === 0);
   let estimate: FileAdvice['estimate'] = null;
+  let allRows: AllRowsEstimate | null = null;
   if (!usable) {
     if (recommended) warnings.push('no estimator that works on the look-alike works on your data; see the errors beside each estimate.');
   } else {
@@ -202,13 +344,29 @@ export async function adviseFile(sample: Sample, options: FileAdviceOptions = {}
     }
     const value = userEstimates.find((u) => u.estimator === usable.estimator)!.value!;
     const bias = usable.scenarios[0].bias;
+    const chosen = parseEstimatorSpec(usable.estimator);
+    if (subsample) {
+      allRows = allRowsEstimate(fileSample, chosen, usable.label, budget, `hhat-advise-all\n${seed}`, stage);
+      lap('all rows');
+      const cost = predictedSeconds(chosen, fileRows, dim);
+      if (allRows.rows < fileRows && cost !== null) {
+        warnings.push(`${usable.label} on all ${fileRows} rows would take about ${describeSeconds(cost)} by its cost model; within ${ALL_ROWS_SHARE * 100}% of the budget it ran on a seeded uniform subsample of ${allRows.rows} rows. Raise --budget for more.`);
+      }
+    }
     let interval: BootstrapInterval | null = null;
-    if (level !== null) {
+    const minResamples = options.resamples ?? options.minResamples ?? 100;
+    const bootstrapCost = predictedSeconds(chosen, n, dim);
+    const remaining = Math.max(0, budget - elapsed());
+    if (level !== null && options.resamples === undefined && bootstrapCost !== null && minResamples * bootstrapCost > remaining * (1 + BOOTSTRAP_SLACK)) {
+      const needed = Math.ceil(elapsed() + minResamples * bootstrapCost * 1.3);
+      warnings.push(
+        `no interval: ${minResamples} bootstrap resamples of ${usable.label} at n = ${n} would take about ${describeSeconds(minResamples * bootstrapCost)}, and ${describeSeconds(remaining)} of the budget is left; give --budget ${needed} or more for one.`,
+      );
+    } else if (level !== null) {
       stage('bootstrapping the interval');
       // As many resamples as the rest of the budget allows, measured as they run: 100 at least, 2000 at most.
       const remainingMs = Math.max(0, (budget - elapsed()) * 1000);
-      const minResamples = options.resamples ?? options.minResamples ?? 100;
-      interval = smoothedBootstrap(sample, parseEstimatorSpec(usable.estimator), value, {
+      interval = smoothedBootstrap(sample, chosen, value, {
         resamples: options.resamples ?? Math.max(minResamples, MAX_RESAMPLES),
         level,
         seed: `${seed}`,
@@ -233,6 +391,9 @@ export async function adviseFile(sample: Sample, options: FileAdviceOptions = {}
   return {
     n,
     dim,
+    fileRows,
+    subsample,
+    allRows,
     budgetSeconds: budget,
     profile,
     lookalike,

@@ -100,7 +100,10 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
   const { profile, lookalike } = advice;
   const lines: string[] = [];
   const names = profile.columns.map((c) => c.name);
-  lines.push(`${file}: n = ${advice.n}, d = ${advice.dim}${names.length ? ` (${names.join(', ')})` : ''}`);
+  lines.push(`${file}: n = ${advice.fileRows}, d = ${advice.dim}${names.length ? ` (${names.join(', ')})` : ''}`);
+  if (advice.subsample) {
+    lines.push(`Advice on a seeded uniform subsample of ${advice.subsample.rows} of the ${advice.subsample.of} rows (seed ${advice.subsample.seed}): a benchmark at n = ${advice.subsample.of} does not fit the budget (see the first note).`);
+  }
   lines.push('');
   lines.push('Profile');
   lines.push(
@@ -161,6 +164,15 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
     if (e.interval) {
       lines.push(`Interval: ${e.interval.method}; ${e.interval.resamples} resamples, whose median estimate sat ${num(e.interval.shift, 2)} nats from the estimate (the shift removed).`);
     }
+  }
+  const all = advice.allRows;
+  if (all) {
+    const where = all.rows === all.of ? `On all ${all.of} rows` : `On a seeded uniform subsample of ${all.rows} of the ${all.of} rows`;
+    lines.push(
+      all.value === null
+        ? `${where}, ${all.label} fails: ${all.error}`
+        : `${where}, ${all.label} gives ${num(all.value, 5)} nats (${seconds(all.seconds)}); the interval above is for the ${advice.n} rows analysed, and would be narrower for this value.`,
+    );
   }
   for (const w of advice.warnings) lines.push(`Note: ${w}`);
   const stages = Object.entries(advice.timings).map(([k, v]) => `${k} ${v.toFixed(1)}`).join(', ');
@@ -226,6 +238,9 @@ export function fileAdviceJson(advice: FileAdvice, file: string) {
     file,
     n: advice.n,
     dim: advice.dim,
+    fileRows: advice.fileRows,
+    subsample: advice.subsample,
+    allRows: advice.allRows,
     budgetSeconds: advice.budgetSeconds,
     profile: {
       tails: profile.tails,

@@ -17,7 +17,10 @@
 import type { Scenario, Support, Tails } from '../contracts.js';
 import { UsageError } from '../errors.js';
 import { catalog, listFamilies, parseScenario } from '../../scenarios/index.js';
-import { applicableEstimators, DEFAULT_BUDGET_SECONDS, runTargeted } from './benchmark.js';
+import { applicableEstimators, DEFAULT_BUDGET_SECONDS, FEWEST_USEFUL_REPLICATES, runTargeted } from './benchmark.js';
+import { parseEstimatorSpec } from '../../estimators/index.js';
+import { describeSeconds, predictedSeconds } from '../cost-model.js';
+import { defaultWorkers } from '../runner.js';
 import { recommend, summarise, type EstimatorSummary, type Recommendation } from './recommend.js';
 
 export interface SettingAdviceOptions {
@@ -178,6 +181,28 @@ export function tooFewPoints(n: number, dim: number): string | null {
   );
 }
 
+/** A benchmark may run this much past the budget before the budget is refused instead (as in benchmark.ts). */
+const BUDGET_SLACK = 0.2;
+/** The largest --budget the command accepts (a day). */
+export const MAX_BUDGET_SECONDS = 86400;
+
+/**
+ * Refuses, before any of it is spent, a budget that the fewest useful replicates at n would overrun by the
+ * cost model's prediction (src/cost-model.ts): at large n the benchmark's own pilot (one replicate of every
+ * estimator, on one thread) could otherwise take many times the budget just to find that out.
+ */
+function refuseUnaffordableBudget(n: number, dim: number, estimators: readonly string[], budget: number, workers: number, fewest: number): void {
+  const perReplicate = estimators.reduce((sum, spec) => sum + (predictedSeconds(parseEstimatorSpec(spec), n, dim) ?? 0), 0);
+  // The pilot runs one replicate on one thread; the rounds share the rest over the workers.
+  const needed = perReplicate + (fewest * perReplicate) / Math.max(1, workers);
+  if (needed <= budget * (1 + BUDGET_SLACK)) return;
+  const suggested = Math.ceil(needed * 1.3);
+  const remedy = suggested <= MAX_BUDGET_SECONDS ? `give --budget ${suggested} or more, or a smaller --n` : `no --budget up to ${MAX_BUDGET_SECONDS} s covers that; give a smaller --n`;
+  throw new UsageError(
+    `--budget ${budget} is too small here: one replicate of one matching scenario at n = ${n} is predicted to take about ${describeSeconds(perReplicate)} (the cost model in src/cost-model.ts), and advice needs at least ${fewest} replicates (about ${describeSeconds(needed)} in all on ${workers} worker${workers === 1 ? '' : 's'}); ${remedy}`,
+  );
+}
+
 export async function adviseSetting(options: SettingAdviceOptions): Promise<SettingAdvice> {
   const started = performance.now();
   const { n, dim } = options;
@@ -205,6 +230,7 @@ export async function adviseSetting(options: SettingAdviceOptions): Promise<Sett
   const match = matchScenarios(dim, options.tails, options.support, options.maxScenarios ?? DEFAULT_MAX_SCENARIOS);
   const estimators = applicableEstimators(dim);
   if (!estimators.length) throw new UsageError(`no entropy estimator supports d = ${dim}`);
+  if (options.replicates === undefined) refuseUnaffordableBudget(n, dim, estimators, budget, options.workers ?? defaultWorkers(), Math.min(options.minReplicates ?? 10, FEWEST_USEFUL_REPLICATES));
   stage('benchmarking');
   const bench = await runTargeted({
     scenarios: match.scenarios.map((s) => s.id),

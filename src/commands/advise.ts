@@ -2,13 +2,16 @@ import type { Command } from 'commander';
 import type { Support, Tails } from '../contracts.js';
 import { UsageError } from '../errors.js';
 import { readSample } from '../data.js';
-import { parseIntegerOption } from '../plan.js';
+import { MAX_REPLICATES, MAX_SAMPLE_SIZE, parseIntegerOption } from '../plan.js';
 import { toJson } from '../results.js';
 import { parseNumber } from '../spec.js';
 import { adviseFile } from '../advise/file.js';
-import { adviseSetting } from '../advise/setting.js';
+import { adviseSetting, MAX_BUDGET_SECONDS } from '../advise/setting.js';
 import { fileAdviceJson, renderFileAdvice, renderSettingAdvice, settingAdviceJson } from '../advise/render.js';
 import { DEFAULT_BUDGET_SECONDS } from '../advise/benchmark.js';
+import { checkSampleMemory } from '../memory.js';
+import { defaultWorkers } from '../runner.js';
+import { describeReadProgress, statusLine } from '../status-line.js';
 
 interface AdviseOptions {
   n?: string;
@@ -31,7 +34,7 @@ const SUPPORTS: readonly Support[] = ['bounded', 'half', 'unbounded'];
 function parseBudget(text: string | undefined): number {
   if (text === undefined) return DEFAULT_BUDGET_SECONDS;
   const value = parseNumber(text);
-  if (value === undefined || !(value > 0) || value > 86400) throw new UsageError(`--budget ${text} is not allowed; it must be a number of seconds > 0 and ≤ 86400`);
+  if (value === undefined || !(value > 0) || value > MAX_BUDGET_SECONDS) throw new UsageError(`--budget ${text} is not allowed; it must be a number of seconds > 0 and ≤ ${MAX_BUDGET_SECONDS}`);
   return value;
 }
 
@@ -66,19 +69,44 @@ export function registerAdviseCommand(program: Command, print: (text: string) =>
     .option('--replicates <r>', 'exactly this many benchmark replicates instead of as many as the budget allows (reproducible advice)')
     .option('--resamples <b>', 'with a file: exactly this many bootstrap resamples instead of as many as the budget allows')
     .option('--json', 'print the advice as JSON (values in nats)')
+    .addHelpText(
+      'after',
+      `
+Large files:
+  When a file has more rows than the budget can benchmark (by a fixed cost
+  model of each estimator, src/cost-model.ts), the advice works on a seeded
+  uniform subsample of rows (--seed), and says so: profile, look-alike,
+  benchmark, estimates, interval and bias correction are all for those rows.
+  The chosen estimator then also runs on as many of the file's rows as a
+  tenth of the budget allows, all of them when they fit.
+Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICATES} (as in plan
+  files); an --n whose samples would not fit in this machine's memory, or
+  whose fewest useful replicates the budget cannot cover, is refused before
+  anything runs, with what it would need.`,
+    )
     .action(async (file: string | undefined, options: AdviseOptions) => {
       const budgetSeconds = parseBudget(options.budget);
       const seed = options.seed === undefined ? undefined : parseIntegerOption('--seed', options.seed, 0);
       const workers = options.workers === undefined ? undefined : parseIntegerOption('--workers', options.workers, 1, 256);
-      const replicates = options.replicates === undefined ? undefined : parseIntegerOption('--replicates', options.replicates, 2, 100_000);
+      // The plan schema's ranges (src/schemas/plan.schema.json), so a setting that a plan accepts is accepted here.
+      const replicates = options.replicates === undefined ? undefined : parseIntegerOption('--replicates', options.replicates, 2, MAX_REPLICATES);
       const stage = !options.json && process.stderr.isTTY ? (text: string) => printErr(`hhat advise: ${text}…`) : undefined;
       if (file !== undefined) {
         const setting = (['n', 'dim', 'tails', 'support'] as const).filter((k) => options[k] !== undefined);
         if (setting.length) {
           throw new UsageError(`--${setting[0]} describes a setting; with a data file the data describe themselves (drop --${setting[0]}, or drop the file for setting advice)`);
         }
-        const loaded = readSample(file, { columns: options.columns });
+        const readStarted = performance.now();
+        const status = statusLine(process.stderr, 'hhat advise');
+        let loaded;
+        try {
+          loaded = readSample(file, { columns: options.columns, onProgress: (done, total) => status.show(`reading ${file}: ${describeReadProgress(done, total)}`) });
+        } finally {
+          status.clear();
+        }
         const advice = await adviseFile(loaded.sample, {
+          // Reading a large file takes seconds of the budget too.
+          elapsedBeforeSeconds: (performance.now() - readStarted) / 1000,
           budgetSeconds,
           level: parseLevel(options.interval),
           seed,
@@ -96,9 +124,14 @@ export function registerAdviseCommand(program: Command, print: (text: string) =>
       if (options.n === undefined || options.dim === undefined) {
         throw new UsageError('give a data file (hhat advise data.csv) or describe the setting with --n and --dim (hhat advise --n 500 --dim 2 [--tails heavy] [--support bounded])');
       }
+      // At least 10 points, not the schema's 2: advice on fewer says nothing (adviseSetting refuses them too).
+      const n = parseIntegerOption('--n', options.n, 10, MAX_SAMPLE_SIZE);
+      const dim = parseIntegerOption('--dim', options.dim, 1, 1000);
+      // Before anything runs: a sample that the benchmark's workers could not hold is refused with what it would need.
+      checkSampleMemory(`--n ${options.n}`, n, dim, { workers: workers ?? defaultWorkers() });
       const advice = await adviseSetting({
-        n: parseIntegerOption('--n', options.n, 10),
-        dim: parseIntegerOption('--dim', options.dim, 1, 1000),
+        n,
+        dim,
         tails: choice('--tails', options.tails, TAILS),
         support: choice('--support', options.support, SUPPORTS),
         budgetSeconds,

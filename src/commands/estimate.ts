@@ -6,8 +6,12 @@ import { describeReference, meanLogReference, parseReference } from '../referenc
 import { unitLabel } from '../units.js';
 import { describeRegistration, resolveModulePath, useEstimatorModules } from '../modules.js';
 import type { Quantity, Sample, Settings } from '../contracts.js';
-import { collect } from '../plan.js';
+import { collect, parseIntegerOption } from '../plan.js';
 import { dimsRange, listEstimators, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
+import { describeSeconds, predictedSeconds, roundRowsDown, rowsWithin } from '../cost-model.js';
+import { seededRowSubsample } from '../sample.js';
+import { parseNumber } from '../spec.js';
+import { describeReadProgress, statusLine } from '../status-line.js';
 
 /** Side by side: the columns of `a` then those of `b`, row by row (same n). */
 function joinColumns(a: Sample, b: Sample): Sample {
@@ -39,25 +43,83 @@ interface EstimateRecord {
   error?: string;
   /** Why the estimator could not run, as the estimator classified it (`ties` selects the repeated-value report). */
   code?: EstimateErrorCode;
+  /** Rows the estimate used, when fewer than the file's (a seeded uniform subsample). */
+  subsample?: { rows: number; of: number; seed: number; reason: string };
+  /** Why the estimator was not run at all (predicted time over the limit even on a small subsample). */
+  skipped?: string;
+}
+
+/** Rows every estimate in the default set may be cut to fit: below this a subsample says too little, so the estimator is skipped. */
+export const MIN_SUBSAMPLE_ROWS = 1000;
+/** Predicted seconds per estimator allowed for the default set, unless --max-seconds says otherwise. */
+export const DEFAULT_MAX_SECONDS = 30;
+export const DEFAULT_SUBSAMPLE_SEED = 1;
+
+/** How one estimator is run: on all rows, on `rows` of them (a seeded uniform subsample), or skipped, and why. */
+export interface RowPlan {
+  rows: number;
+  /** Predicted seconds on all rows (null: the cost model does not know the estimator). */
+  predictedSeconds: number | null;
+  reason?: string;
+  skipped?: string;
+}
+
+/**
+ * Which rows each estimator gets under a per-estimator limit on predicted seconds (src/cost-model.ts): all
+ * of them when the prediction is within the limit (or there is no limit, or no prediction), else the
+ * largest subsample predicted to fit, rounded down to two digits; skipped when that is under
+ * MIN_SUBSAMPLE_ROWS.
+ */
+export function planRows(configured: ConfiguredEstimator[], sample: Sample, limitSeconds: number | null): RowPlan[] {
+  const context = { xDim: sample.xDim, qN: sample.q?.n };
+  return configured.map((c) => {
+    const predicted = predictedSeconds(c, sample.n, sample.dim, context);
+    if (limitSeconds === null || predicted === null || predicted <= limitSeconds) return { rows: sample.n, predictedSeconds: predicted };
+    const rows = roundRowsDown(rowsWithin(c, sample.n, sample.dim, limitSeconds, context));
+    const why = `all ${sample.n} rows would take about ${describeSeconds(predicted)} by its cost model, over the ${limitSeconds} s limit (--max-seconds)`;
+    if (rows < MIN_SUBSAMPLE_ROWS) return { rows: 0, predictedSeconds: predicted, skipped: `${why}, and even ${MIN_SUBSAMPLE_ROWS} rows would not fit` };
+    return { rows, predictedSeconds: predicted, reason: why };
+  });
 }
 
 /**
  * Every estimator on the sample; one that cannot run on these data becomes a record with its reason instead
- * of stopping the others. Usage mistakes still throw: they are checked before any estimate is made.
+ * of stopping the others. Usage mistakes still throw: they are checked before any estimate is made. With
+ * `plans` (from planRows), an estimator runs on its seeded subsample or is skipped, and the record says so.
  */
-export function estimateAll(sample: Sample, configured: ConfiguredEstimator[], base: Base): EstimateRecord[] {
-  return configured.map((c) => {
+export function estimateAll(
+  sample: Sample,
+  configured: ConfiguredEstimator[],
+  base: Base,
+  plans?: RowPlan[],
+  options: { seed?: number; onStart?: (configured: ConfiguredEstimator, rows: number) => void } = {},
+): EstimateRecord[] {
+  const seed = options.seed ?? DEFAULT_SUBSAMPLE_SEED;
+  return configured.map((c, index) => {
+    const plan = plans?.[index];
+    if (plan?.skipped) return { estimator: c.estimator.id, settings: c.settings, value: null, skipped: plan.skipped };
+    const rows = plan ? plan.rows : sample.n;
+    const subsample = rows < sample.n ? { rows, of: sample.n, seed, reason: plan?.reason ?? '' } : undefined;
     try {
-      const { value, settings } = runEstimator(c, sample, { report: true });
+      options.onStart?.(c, rows);
+      const { value, settings } = runEstimator(c, seededRowSubsample(sample, rows, String(seed)), { report: true });
       if (!Number.isFinite(value)) throw new EstimateError('numeric', `${c.estimator.id} gave ${value} on this sample`);
-      return { estimator: c.estimator.id, settings, value: toBase(value, base) };
+      return { estimator: c.estimator.id, settings, value: toBase(value, base), ...(subsample ? { subsample } : {}) };
     } catch (error) {
       if (error instanceof EstimateError) {
-        return { estimator: c.estimator.id, settings: c.settings, value: null, error: error.message, code: error.code };
+        return { estimator: c.estimator.id, settings: c.settings, value: null, error: error.message, code: error.code, ...(subsample ? { subsample } : {}) };
       }
       throw error;
     }
   });
+}
+
+/** --max-seconds: a positive number of seconds, or none. */
+function parseMaxSeconds(text: string): number | null {
+  if (text === 'none') return null;
+  const value = parseNumber(text);
+  if (value === undefined || !(value > 0) || !Number.isFinite(value)) throw new UsageError(`--max-seconds ${text} is not allowed; it must be a number of seconds > 0, or none`);
+  return value;
 }
 
 /** The reason as one line that names the estimator once, whether or not the message already starts with it. */
@@ -67,13 +129,25 @@ function failureLine(record: EstimateRecord): string {
 }
 
 const exitCodesHelp = `
+Large files:
+  Without --estimator, each estimator of the default set whose predicted
+  time on all rows is over --max-seconds (default ${DEFAULT_MAX_SECONDS} s per estimator)
+  runs on the largest seeded uniform subsample of rows predicted to fit
+  (--seed, default ${DEFAULT_SUBSAMPLE_SEED}), or is skipped when even ${MIN_SUBSAMPLE_ROWS} rows would not; the
+  output says which and why (the "rows" of the table, "subsample" and
+  "skipped" in --json). Predictions come from a fixed cost model of each
+  method (src/cost-model.ts), so the choice is the same on every machine.
+  Estimators named with --estimator run on all rows unless --max-seconds
+  is given. --max-seconds none turns the limit off.
+
 Exit codes:
   0  every estimate was made; or only estimators of the default set (no
      --estimator) could not run on these data: their rows say "failed" with
      the reason, and one note on stderr counts them
   1  an estimator named with --estimator could not run on these data (its
      reason is on stderr; the other values are still printed), or no
-     estimator of the default set could
+     estimator of the default set could, or every estimator was skipped
+     under --max-seconds
   2  a mistake in the command: an unknown option, estimator or setting, a
      value that is not allowed, a file that cannot be read, an estimator for
      another quantity or dimension; nothing is estimated`;
@@ -93,30 +167,42 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     .option('--y-columns <list>', '... and these (Y)')
     .option('--against <file>', 'a divergence D(P || Q): FILE holds the sample from P, this file the sample from Q')
     .option('--json', 'print {"n", "dim", "base", "estimates": [...]} with the settings actually used; an estimate that failed has value null, its error and its code')
+    .option('--max-seconds <s>', `limit on each estimator's predicted seconds: over it, a seeded uniform subsample of rows (default ${DEFAULT_MAX_SECONDS} for the default set, none for estimators named with --estimator; "none": no limit)`)
+    .option('--seed <s>', `seed of the row subsamples that --max-seconds may call for (default ${DEFAULT_SUBSAMPLE_SEED})`)
     .addHelpText('after', exitCodesHelp)
-    .action(async (file: string, options: { columns?: string; estimator?: string[]; bits?: boolean; json?: boolean; unit?: string; reference?: string; estimatorModule?: string[]; xColumns?: string; yColumns?: string; against?: string }) => {
+    .action(async (file: string, options: { columns?: string; estimator?: string[]; bits?: boolean; json?: boolean; unit?: string; reference?: string; estimatorModule?: string[]; xColumns?: string; yColumns?: string; against?: string; maxSeconds?: string; seed?: string }) => {
       const base: Base = options.bits ? 'bits' : 'nats';
       const reference = options.reference === undefined ? undefined : parseReference(options.reference);
+      const givenLimit = options.maxSeconds === undefined ? undefined : parseMaxSeconds(options.maxSeconds);
+      const seed = options.seed === undefined ? DEFAULT_SUBSAMPLE_SEED : parseIntegerOption('--seed', options.seed, 0);
+      const status = statusLine(process.stderr, 'hhat estimate');
+      const load = (columns: string | undefined, path = file) => {
+        try {
+          return readSample(path, { columns, onProgress: (done, total) => status.show(`reading ${path}: ${describeReadProgress(done, total)}`) });
+        } finally {
+          status.clear();
+        }
+      };
       if (options.estimatorModule?.length) {
         const note = describeRegistration(await useEstimatorModules(options.estimatorModule.map((m) => resolveModulePath(m))));
         if (note && !options.json) printErr(note);
       }
       let quantity: Quantity = 'entropy';
-      let loaded = readSample(file, { columns: options.columns });
+      let loaded = load(options.columns);
       let sample = loaded.sample;
       if (options.xColumns !== undefined || options.yColumns !== undefined) {
         if (options.xColumns === undefined || options.yColumns === undefined) throw new UsageError('mutual information needs both --x-columns and --y-columns');
         if (options.columns !== undefined) throw new UsageError('--columns cannot be combined with --x-columns/--y-columns');
         if (options.against !== undefined) throw new UsageError('--against (a divergence) cannot be combined with --x-columns/--y-columns (mutual information)');
-        const x = readSample(file, { columns: options.xColumns });
-        const y = readSample(file, { columns: options.yColumns });
+        const x = load(options.xColumns);
+        const y = load(options.yColumns);
         const overlap = x.columnNumbers.filter((c) => y.columnNumbers.includes(c));
         if (overlap.length) throw new UsageError(`--x-columns and --y-columns both name column ${overlap[0]}; X and Y must be different columns`);
         sample = joinColumns(x.sample, y.sample);
         loaded = { ...x, sample, columnNames: [...x.columnNames, ...y.columnNames], columnNumbers: [...x.columnNumbers, ...y.columnNumbers] };
         quantity = 'mutual-information';
       } else if (options.against !== undefined) {
-        const q = readSample(options.against, { columns: options.columns });
+        const q = load(options.columns, options.against);
         if (q.sample.dim !== sample.dim) throw new UsageError(`${options.against} has ${q.sample.dim} columns and ${file} has ${sample.dim}; a divergence compares samples of the same dimension`);
         sample = { ...sample, q: q.sample };
         quantity = 'divergence';
@@ -136,16 +222,36 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
         const [minDim, maxDim] = c.estimator.dims;
         if (sample.dim < minDim || sample.dim > maxDim) throw new UsageError(`${c.estimator.id} does not support d = ${sample.dim}; it needs ${dimsRange(c.estimator.dims)}`);
       }
-      const records = estimateAll(sample, configured, base).map((r) => ({
+      // The limit applies to the default set; to named estimators only when the user gives it.
+      const limitSeconds = givenLimit !== undefined ? givenLimit : named ? null : DEFAULT_MAX_SECONDS;
+      const plans = planRows(configured, sample, limitSeconds);
+      let estimated: EstimateRecord[];
+      try {
+        estimated = estimateAll(sample, configured, base, plans, {
+          seed,
+          onStart: (c, rows) => status.show(`${c.estimator.id} on ${rows === sample.n ? 'all' : rows} of ${sample.n} rows`, true),
+        });
+      } finally {
+        status.clear();
+      }
+      const records = estimated.map((r) => ({
         ...r,
         ...(reference ? { relative: r.value === null ? null : r.value + toBase(offset, base) } : {}),
       }));
       const label = unitLabel(base, options.unit, sample.dim);
       const failed = records.filter((r) => r.error);
+      const skipped = records.filter((r) => r.skipped);
+      const cutNotes = records.flatMap((r) =>
+        r.skipped
+          ? [`skipped: ${r.estimator}: ${r.skipped}`]
+          : r.subsample
+            ? [`subsample: ${r.estimator} ran on a seeded uniform subsample of ${r.subsample.rows} of the ${r.subsample.of} rows (seed ${r.subsample.seed}): ${r.subsample.reason}`]
+            : [],
+      );
       const hints = failed.some((r) => r.code === 'ties') ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
       // A default-set estimator that cannot run on these data is information about the data, not an error the
       // user made or asked to hear about; one the user named, or a default set with no value at all, is.
-      const failedAsError = failed.length > 0 && (named || failed.length === records.length);
+      const failedAsError = failed.length > 0 && (named || failed.length + skipped.length === records.length);
       if (options.json) {
         print(
           JSON.stringify(
@@ -159,6 +265,7 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
               ...(options.unit ? { unit: options.unit, label } : {}),
               ...(reference ? { reference: describeReference(reference), meanLogReference: toBase(offset, base) } : {}),
               columns: loaded.columnNames,
+              maxSeconds: limitSeconds,
               estimates: records,
               ...(hints.length ? { repeats: hints } : {}),
             },
@@ -168,22 +275,36 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
         );
       } else {
         print(`${file}: n = ${sample.n}, d = ${sample.dim}${loaded.columnNames.length ? ` (columns ${loaded.columnNames.join(', ')})` : ''}`);
+        const cut = cutNotes.length > 0;
         const rows = records.map((r) => [
           r.estimator,
           Object.entries(r.settings)
             .map(([k, v]) => `${k}=${v}`)
             .join(', ') || '–',
-          r.value === null ? `failed (${r.code})` : formatValue(r.value, 7),
-          ...(reference ? [r.relative === null || r.relative === undefined ? 'failed' : formatValue(r.relative, 7)] : []),
+          ...(cut ? [r.skipped ? '–' : r.subsample ? `${r.subsample.rows} (subsample)` : `${sample.n} (all)`] : []),
+          r.skipped ? 'skipped (time)' : r.value === null ? `failed (${r.code})` : formatValue(r.value, 7),
+          ...(reference ? [r.relative === null || r.relative === undefined ? (r.skipped ? 'skipped' : 'failed') : formatValue(r.relative, 7)] : []),
         ]);
-        const head = ['estimator', 'settings used', `${quantity === 'entropy' ? 'entropy' : quantity} (${quantity === 'entropy' ? label : base})`, ...(reference ? [`relative to ${describeReference(reference)} (${base})`] : [])];
-        print(renderTable(head, rows, { align: ['left', 'left', 'right', 'right'] }));
+        const head = [
+          'estimator',
+          'settings used',
+          ...(cut ? ['rows'] : []),
+          `${quantity === 'entropy' ? 'entropy' : quantity} (${quantity === 'entropy' ? label : base})`,
+          ...(reference ? [`relative to ${describeReference(reference)} (${base})`] : []),
+        ];
+        print(renderTable(head, rows, { align: ['left', 'left', ...(cut ? ['right' as const] : []), 'right', 'right'] }));
+        for (const note of cutNotes) print(note);
         // Failures that are not errors go with the table, so saved output explains its own "failed" rows;
         // errors go to stderr alone, so a terminal does not show each reason twice.
         if (!failedAsError) {
           for (const r of failed) print(`failed: ${failureLine(r)}`);
           if (hints.length) print(['repeated values in the data:', ...hints.map((h) => `  ${h}`)].join('\n'));
         }
+      }
+      if (skipped.length === records.length) {
+        printErr(`hhat: no estimate was made: every estimator was skipped under the ${limitSeconds} s limit; raise --max-seconds or give --max-seconds none`);
+        process.exitCode = 1;
+        return;
       }
       if (!failed.length) return;
       if (failedAsError) {

@@ -11,11 +11,14 @@
  * - Every selected field must be a finite decimal number; columns left out by a selection are not read, so a
  *   text column (subject ids, labels) can sit beside the numbers.
  */
+import { readSync } from 'node:fs';
 import { UsageError } from '../errors.js';
 import { resolveColumns } from './columns.js';
 import { DecimalReader, describeBadNumber, looksLikeMissing, parseDecimalText } from './numbers.js';
 import {
+  type ByteSource,
   RecordScanner,
+  SNIFF_BYTES,
   UNQUOTED,
   delimiterBytes,
   delimiterNames,
@@ -40,8 +43,52 @@ export interface DelimitedTable extends DataTable {
 
 /** Parses delimited text (a string, or bytes holding UTF-8). */
 export function parseDelimited(input: string | Uint8Array, options: DelimitedOptions = {}): DelimitedTable {
-  const source = options.source ?? defaultSource;
   const bytes = typeof input === 'string' ? Buffer.from(input, 'utf8') : Buffer.from(input.buffer, input.byteOffset, input.byteLength);
+  return readDelimited(bytes, options);
+}
+
+/**
+ * Bytes read per step from a file. Large enough that the fixed cost per window is nothing (and above the
+ * 64 KiB the delimiter guess looks at), small enough to stay in cache-friendly sizes: 4 MiB read a 200 MB
+ * CSV as fast as 16 and 64 MiB (bench/large-file.ts).
+ */
+export const FILE_WINDOW_BYTES = 4 << 20;
+
+/**
+ * Parses a delimited text file through a window of FILE_WINDOW_BYTES, so the file is never in memory as a
+ * whole: the values go straight into a typed array, which is all that stays. `onProgress` hears the bytes
+ * read so far after each window.
+ */
+export function readDelimitedFile(
+  fd: number,
+  size: number,
+  options: DelimitedOptions & { onProgress?: (bytesRead: number, totalBytes: number) => void; windowBytes?: number } = {},
+): DelimitedTable {
+  let offset = 0;
+  const more: ByteSource = {
+    fill(target, at) {
+      const read = readSync(fd, target, at, target.length - at, offset);
+      offset += read;
+      options.onProgress?.(offset, size);
+      return read;
+    },
+    remaining: () => Math.max(0, size - offset),
+  };
+  // The delimiter guess looks at the first 64 KiB, so a file whose delimiter is guessed starts with that much.
+  const windowBytes = Math.max(options.windowBytes ?? FILE_WINDOW_BYTES, options.delimiter === undefined ? SNIFF_BYTES : 1);
+  const first = Buffer.allocUnsafe(Math.max(1, Math.min(windowBytes, size)));
+  let filled = 0;
+  while (filled < first.length) {
+    const read = more.fill(first, filled);
+    if (read === 0) break;
+    filled += read;
+  }
+  return readDelimited(first.subarray(0, filled), options, offset < size ? more : undefined, first);
+}
+
+/** The checks on the start of the input, then the reader; `more` continues a file past `bytes`. */
+function readDelimited(bytes: Buffer, options: DelimitedOptions, more?: ByteSource, window?: Buffer): DelimitedTable {
+  const source = options.source ?? defaultSource;
   const start = bytes.length >= 3 && bytes[0] === 0xef && bytes[1] === 0xbb && bytes[2] === 0xbf ? 3 : 0;
   if (bytes.length >= 2 && ((bytes[0] === 0xff && bytes[1] === 0xfe) || (bytes[0] === 0xfe && bytes[1] === 0xff))) {
     throw new UsageError(`${source} is UTF-16 text; save it as UTF-8 (or plain ASCII) text`);
@@ -51,7 +98,8 @@ export function parseDelimited(input: string | Uint8Array, options: DelimitedOpt
     if (bytes[i] === 0) throw new UsageError(`${source} contains zero bytes: it looks like a binary file, not delimited text`);
   }
   const delimiter = options.delimiter ?? sniffDelimiter(bytes, start);
-  const scanner = new RecordScanner(bytes, start, delimiter, source);
+  // A file's first window is scanned in the whole allocated buffer, which later windows reuse.
+  const scanner = new RecordScanner(more && window ? window : bytes, start, delimiter, source, more, bytes.length);
   return new DelimitedReader(scanner, delimiter, source, options.columns).read();
 }
 
@@ -68,6 +116,7 @@ class DelimitedReader {
   private dim = 0;
   private values = new Float64Array(0);
   private rows = 0;
+  private windowMoves = 0;
 
   constructor(
     private readonly scanner: RecordScanner,
@@ -121,10 +170,7 @@ class DelimitedReader {
   }
 
   private nothingToRead(): UsageError {
-    const bytes = this.scanner.bytes;
-    for (let i = 0; i < bytes.length; i++) {
-      if (bytes[i] === 35) return new UsageError(`${this.source} has no data rows, only comment lines; expected rows of numbers`);
-    }
+    if (this.scanner.sawComment) return new UsageError(`${this.source} has no data rows, only comment lines; expected rows of numbers`);
     return new UsageError(`${this.source} is empty; expected rows of numbers, optionally below a header row`);
   }
 
@@ -169,12 +215,16 @@ class DelimitedReader {
     this.selected = selected;
     // Size the output from the first row's width in bytes; doubling covers a bad guess.
     const rowBytes = Math.max(2, scanner.fieldEnd[scanner.fieldCount - 1] - scanner.fieldStart[0] + 1);
-    const expectedRows = Math.ceil((scanner.bytes.length - scanner.fieldStart[0]) / rowBytes);
+    const expectedRows = 1 + Math.ceil(scanner.remainingBytes() / rowBytes);
     this.values = new Float64Array(Math.max(64, Math.ceil(expectedRows * 1.05) + 16) * this.dim);
   }
 
   private readRow(): void {
     const scanner = this.scanner;
+    if (scanner.windowMoves !== this.windowMoves) {
+      this.windowMoves = scanner.windowMoves;
+      this.decimals.reset(scanner.bytes);
+    }
     const fieldCount = scanner.fieldCount;
     if (fieldCount !== this.fieldsPerRow) {
       throw new UsageError(
@@ -239,11 +289,20 @@ class DelimitedReader {
     return '';
   }
 
+  /**
+   * The values read, exactly n·d long: a view of the output array when little of it is unused, so a large
+   * file's values are not held twice at the end; a copy otherwise.
+   */
+  private trimmedValues(): Float64Array {
+    const used = this.rows * this.dim;
+    return used >= 0.875 * this.values.length ? this.values.subarray(0, used) : this.values.slice(0, used);
+  }
+
   private result(): DelimitedTable {
     const names = this.names;
     const inputNames = names ?? positionalNames(this.fieldsPerRow);
     return {
-      sample: { n: this.rows, dim: this.dim, data: this.values.slice(0, this.rows * this.dim) },
+      sample: { n: this.rows, dim: this.dim, data: this.trimmedValues() },
       columnNames: this.selected.map((j) => (inputNames[j] === '' ? `column ${j + 1}` : inputNames[j])),
       columnNumbers: this.selected.map((j) => j + 1),
       namedColumns: names !== null,

@@ -36,7 +36,13 @@ function fitsExactly(mantissa: number, significant: number, d: number): boolean 
 export class DecimalReader {
   private text: string | null = null;
 
-  constructor(private readonly bytes: Buffer) {}
+  constructor(private bytes: Buffer) {}
+
+  /** Reads from new bytes (a window that moved on): the decoded text of the old ones no longer applies. */
+  reset(bytes: Buffer): void {
+    this.bytes = bytes;
+    this.text = null;
+  }
 
   /** As `parseDecimalBytes`, for bytes[start, end) of this reader's buffer. */
   read(start: number, end: number): number {

@@ -4,7 +4,9 @@
  * for one quote. Lines end in LF, CRLF or a lone CR. Whole-line `#` comments are skipped.
  *
  * The scanner keeps field boundaries in reused arrays and never builds a string for a field unless asked,
- * so the numeric hot path touches only bytes.
+ * so the numeric hot path touches only bytes. It reads either one buffer holding the whole input, or a file
+ * through a window (`ByteSource`): a record that runs past the end of the window is scanned again once
+ * the window has moved on, so a large file never has to be in memory at once.
  */
 import { UsageError } from '../errors.js';
 
@@ -32,36 +34,110 @@ export const QUOTED_WITH_ESCAPES = 2;
 
 export type RecordKind = 'record' | 'blank' | 'end';
 
+/**
+ * More of the input, for a scanner reading through a window: `fill` writes up to `target.length − offset`
+ * bytes at `offset` and returns how many it wrote (0 at the end of the input).
+ */
+export interface ByteSource {
+  fill(target: Buffer, offset: number): number;
+  /** Bytes of the input not yet handed to `fill`, for sizing the output. */
+  remaining(): number;
+}
+
+/** Thrown inside a scan that reached the end of a window before the end of its record. */
+const INCOMPLETE = Symbol('incomplete record');
+
 export class RecordScanner {
-  /** Boundaries of the current record's fields (content only, without quotes). */
+  /** Boundaries of the current record's fields (content only, without quotes), in `bytes`. */
   readonly fieldStart: number[] = [];
   readonly fieldEnd: number[] = [];
   readonly fieldQuoting: number[] = [];
   fieldCount = 0;
   /** 1-based line on which the current record (or blank line) starts. */
   recordLine = 0;
+  /** Whether a `#` comment line was skipped (to tell a file of comments from an empty one). */
+  sawComment = false;
+  /** Counts the times the window moved: field positions and decoded text of an earlier window are stale. */
+  windowMoves = 0;
+  /** The window: the whole input, or the part of a file being scanned. Field positions index into it. */
+  bytes: Buffer;
   private pos: number;
   private line = 1;
-  private readonly length: number;
+  private length: number;
   private readonly delimiter: number;
+  /** No more input beyond `bytes`: a record may end at the end of the window. */
+  private final: boolean;
 
   constructor(
-    readonly bytes: Buffer,
+    bytes: Buffer,
     start: number,
     delimiter: Delimiter,
     private readonly source: string,
+    private readonly more?: ByteSource,
+    /** How much of `bytes` holds input (a file's first window may be part filled). */
+    length = bytes.length,
   ) {
+    this.bytes = bytes;
     this.pos = start;
-    this.length = bytes.length;
+    this.length = length;
     this.delimiter = delimiterBytes[delimiter];
+    this.final = more === undefined;
+  }
+
+  /** Bytes from the scan position to the end of the input. */
+  remainingBytes(): number {
+    return this.length - this.pos + (this.more ? this.more.remaining() : 0);
   }
 
   /** Advances to the next record, skipping comment lines; a blank line is reported so callers can place it. */
   next(): RecordKind {
+    for (;;) {
+      const from = this.pos;
+      const line = this.line;
+      try {
+        const kind = this.scanNext();
+        // Before the end of the input, a record is complete only when something follows its line end
+        // (a CR at the end of the window may be the first half of CRLF).
+        if (this.final || this.pos < this.length) return kind;
+      } catch (error) {
+        if (error !== INCOMPLETE) throw error;
+      }
+      this.pos = from;
+      this.line = line;
+      this.slide();
+    }
+  }
+
+  /** Moves the window on: keeps the unfinished record, reads more after it (growing the window for a long record). */
+  private slide(): void {
+    const more = this.more!;
+    const kept = this.length - this.pos;
+    const window = kept > this.bytes.length / 2 ? Buffer.allocUnsafe(this.bytes.length * 2) : this.bytes;
+    // Buffer#copy handles overlapping ranges, so the record can move to the front of its own window.
+    this.bytes.copy(window, 0, this.pos, this.length);
+    let filled = kept;
+    while (filled < window.length) {
+      const read = more.fill(window, filled);
+      if (read === 0) {
+        this.final = true;
+        break;
+      }
+      filled += read;
+    }
+    this.bytes = window;
+    this.pos = 0;
+    this.length = filled;
+    this.windowMoves++;
+  }
+
+  private scanNext(): RecordKind {
     const bytes = this.bytes;
     const length = this.length;
     for (;;) {
-      if (this.pos >= length) return 'end';
+      if (this.pos >= length) {
+        if (this.final) return 'end';
+        throw INCOMPLETE;
+      }
       this.recordLine = this.line;
       let peek = this.pos;
       while (peek < length && (bytes[peek] === SPACE || bytes[peek] === TAB)) peek++;
@@ -79,6 +155,7 @@ export class RecordScanner {
         this.pos = peek;
         while (this.pos < length && bytes[this.pos] !== LF && bytes[this.pos] !== CR) this.pos++;
         this.consumeLineEnd();
+        this.sawComment = true;
         continue;
       }
       this.fieldCount = 0;
@@ -207,6 +284,7 @@ export class RecordScanner {
     let escaped = false;
     for (;;) {
       if (pos >= length) {
+        if (!this.final) throw INCOMPLETE;
         throw new UsageError(
           `${this.source} line ${openLine}, column ${this.fieldCount + 1}: a quoted field is never closed; end it with " (write "" for a literal quote)`,
         );
@@ -239,8 +317,10 @@ export class RecordScanner {
  * appears (outside quotes) the same nonzero number of times on every sampled line; otherwise runs of spaces,
  * which also covers a single column.
  */
+export const SNIFF_BYTES = 65536;
+
 export function sniffDelimiter(bytes: Buffer, start: number): Delimiter {
-  const windowEnd = Math.min(bytes.length, start + 65536);
+  const windowEnd = Math.min(bytes.length, start + SNIFF_BYTES);
   const candidates: Delimiter[] = ['tab', 'semicolon', 'comma'];
   const counts: number[][] = candidates.map(() => []);
   let pos = start;
