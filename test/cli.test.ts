@@ -130,3 +130,17 @@ describe('the package entry', () => {
     expect(lib.parseScenario('uniform').truth).toBe(0);
   });
 });
+
+describe('sizes the machine cannot hold', () => {
+  it('bench refuses them up front, in one line naming what they would need; --n beyond the schema range is refused too', async () => {
+    // 1e8 points in d = 40: 4e9 values, under the typed-array limit, but 8 bytes × (6·40 + 28) per point and
+    // worker is about 214 GB per worker (src/memory.ts), beyond any machine this runs on.
+    const big = await run(['bench', '--scenario', 'gaussian:dim=40', '--n', '100000000', '--replicates', '2', '--workers', '1', '--quiet']);
+    expect(big.code).toBe(2);
+    expect(big.err.trim().split('\n')).toHaveLength(1);
+    expect(big.err).toMatch(/n = 100000000 needs about \d+ GB of memory .*more than this machine's \d+ GB; use n ≤ \d+/);
+    const beyond = await run(['bench', '--scenario', 'normal', '--n', '1e12']);
+    expect(beyond.code).toBe(2);
+    expect(beyond.err).toMatch(/--n: "1e12" is not allowed; sample sizes must be integers from 2 to 100000000/);
+  });
+});

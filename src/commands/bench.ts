@@ -13,6 +13,7 @@ import { progressReporter } from '../progress.js';
 import { assembleRun, readRunFile, writeFileAtomic, writeRunFile, type RunFile } from '../results.js';
 import { acquireLock, ensureFolder, removeLeftoverTemporaries } from '../files.js';
 import { checkpointStarted } from '../runner.js';
+import { checkSampleMemory } from '../memory.js';
 import { defaultWorkers, runPlan, type Shard } from '../runner.js';
 import { parseShard } from '../shard.js';
 import { detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../tables.js';
@@ -201,7 +202,10 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
       const note = describeRegistration(registration);
       if (note && !options.quiet) printErr(note);
       // Errors name where the plan came from: the plan file, or the flags.
-      const { plan } = resolvePlan(input, options.plan ?? 'command line');
+      const { plan, scenarios } = resolvePlan(input, options.plan ?? 'command line');
+      // Refused before any work starts, with what it would need, rather than a crash part way.
+      const largestN = Math.max(...plan.sampleSizes);
+      checkSampleMemory(`n = ${largestN}`, largestN, Math.max(...scenarios.map((x) => x.dim)), { workers: shard ? 1 : workers });
       const checkpoint = checkpointFor(out);
       const resumeHint = `the finished units are saved in ${checkpoint}; fix that and rerun with --resume --out ${out}`;
       ensureFolder(dirname(out), 'choose another --out');
