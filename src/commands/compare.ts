@@ -2,7 +2,7 @@ import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
 import { UsageError } from '../errors.js';
 import { compareRuns, failingCells, failsPolicy, parseFailOn, parseTolerance, type FailOn } from '../compare.js';
-import { parseLevel } from '../plan.js';
+import { parseLevel } from '../options.js';
 import { formatComparisonJson, formatComparisonJunit, formatComparisonMarkdown, formatComparisonText } from '../compare-format.js';
 import { readRunFile, writeFileAtomic } from '../results.js';
 

@@ -1,7 +1,7 @@
 import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
 import { UsageError } from '../errors.js';
-import { parseIntegerOption } from '../plan.js';
+import { parseIntegerOption } from '../options.js';
 import { formatValue } from '../format.js';
 import { parseNumber } from '../spec.js';
 import { convertEntropy, unitFactor, KNOWN_UNITS } from '../units.js';

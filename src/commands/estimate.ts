@@ -6,7 +6,7 @@ import { describeReference, meanLogReference, parseReference } from '../referenc
 import { unitLabel } from '../units.js';
 import { describeRegistration, resolveModulePath, useEstimatorModules } from '../modules.js';
 import type { Quantity, Sample, Settings } from '../contracts.js';
-import { collect, parseIntegerOption } from '../plan.js';
+import { collect, parseIntegerOption } from '../options.js';
 import { dimsRange, listEstimators, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
 import { describeSeconds, predictedSeconds, roundRowsDown, rowsWithin } from '../cost-model.js';
 import { seededRowSubsample } from '../sample.js';

@@ -2,7 +2,7 @@ import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
 import type { Scenario } from '../contracts.js';
 import { UsageError } from '../errors.js';
-import { parseIntegerOption } from '../plan.js';
+import { parseIntegerOption } from '../options.js';
 import { formatValue, renderTable, shorten, toBase, type Base } from '../format.js';
 import { catalog, parseScenario } from '../../scenarios/index.js';
 
