@@ -34,16 +34,22 @@ export function kernelSeconds(n: number, dim: number, settings: Settings): numbe
   const evaluations = settings.bandwidth === 'likelihood-cv' ? 15 : 1;
   const scale = typeof settings.scale === 'number' ? Math.max(1, settings.scale) : 1;
   if (dim === 1) return evaluations * (0.3 * MICROSECOND * n * scale + 0.05 * MICROSECOND * n * Math.log2(Math.max(n, 2)));
-  const perPair = 4.5e-9 * Math.max(1, (dim / 3) ** 2) * Math.min(Math.pow(scale, dim), 1e6);
-  return evaluations * (perPair * n * n + MICROSECOND * n * dim);
+  // A pair's distance costs d operations; whitening is a covariance (n·d²) and its Cholesky factor (d³).
+  const perPair = 4.5e-9 * Math.max(1, dim / 3) * Math.min(Math.pow(scale, dim), 1e6);
+  return evaluations * (perPair * n * n + MICROSECOND * n * dim) + whiteningSeconds(n, dim);
 }
 
 function histogramSeconds(n: number, dim: number): number {
   return 0.12 * MICROSECOND * n * dim + 0.02 * MICROSECOND * n * Math.log2(Math.max(n, 2));
 }
 
+/** A sample covariance (n·d² operations) and its Cholesky factor (d³). */
+function whiteningSeconds(n: number, dim: number): number {
+  return 2e-9 * n * dim * dim + 1e-9 * dim ** 3;
+}
+
 function gaussianSeconds(n: number, dim: number): number {
-  return 0.03 * MICROSECOND * n * dim * Math.max(1, dim / 3);
+  return 0.03 * MICROSECOND * n * dim + whiteningSeconds(n, dim);
 }
 
 function numberSetting(settings: Settings, name: string, fallback: number): number {
