@@ -37,6 +37,8 @@ export interface TargetedOptions {
   /** Perturbations for a robustness section at n (tuning grids off); none by default. */
   perturbations?: string[];
   workers?: number;
+  /** Where the rounds run: supervised worker threads (default), or this thread (built-in estimators only, no limits). */
+  isolation?: 'threads' | 'in-process';
   minReplicates?: number;
   maxReplicates?: number;
   /** The user's whole --budget and what was spent before this benchmark, for messages about the budget. */
@@ -195,7 +197,7 @@ export async function runTargeted(options: TargetedOptions): Promise<TargetedBen
   const firstReplicates = Math.min(maxReplicates, minimumForced ? affordable : Math.max(minReplicates, affordable));
   const rounds: TargetedBenchmark['rounds'] = [];
   const roundStarted = performance.now();
-  const firstOutcome = await runPlan(planFor(firstReplicates, seed, true), { workers });
+  const firstOutcome = await runPlan(planFor(firstReplicates, seed, true), { workers, isolation: options.isolation });
   const firstWall = (performance.now() - roundStarted) / 1000;
   rounds.push({ seed, replicates: firstReplicates, wallSeconds: firstWall });
   let run = assembleRun(firstOutcome, null);
@@ -206,7 +208,7 @@ export async function runTargeted(options: TargetedOptions): Promise<TargetedBen
   // A second round smaller than a fifth of the first would add little precision for its start-up cost.
   if (more >= Math.max(5, Math.ceil(firstReplicates / 5))) {
     const secondStarted = performance.now();
-    const secondOutcome = await runPlan(planFor(more, seed + 1, true), { workers });
+    const secondOutcome = await runPlan(planFor(more, seed + 1, true), { workers, isolation: options.isolation });
     rounds.push({ seed: seed + 1, replicates: more, wallSeconds: (performance.now() - secondStarted) / 1000 });
     run = joinRuns(run, assembleRun(secondOutcome, null));
     usedWorkers = Math.max(usedWorkers, secondOutcome.workers);

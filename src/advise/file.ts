@@ -41,6 +41,8 @@ export interface FileAdviceOptions {
   level?: number | null;
   seed?: number;
   workers?: number;
+  /** Where the look-alike benchmark runs (see TargetedOptions.isolation). */
+  isolation?: 'threads' | 'in-process';
   /** Estimator specs to compare (default: every entropy estimator that supports the dimension, default settings). */
   estimators?: string[];
   columnNames?: readonly string[];
@@ -295,6 +297,7 @@ export async function adviseFile(fileSample: Sample, options: FileAdviceOptions 
     budgetSeconds: Math.max(0, budget - elapsed()) * (level === null ? 0.9 : BENCHMARK_SHARE),
     seed,
     workers,
+    isolation: options.isolation,
     minReplicates: minimumReplicates,
     maxReplicates: options.replicates,
     budget: { total: budget, spent: elapsed() },
