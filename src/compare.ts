@@ -26,6 +26,7 @@ import { UsageError } from './errors.js';
 import type { Cell, RunFile, ScenarioInfo } from './results.js';
 import type { Estimate } from './score.js';
 import { fisherExact, signTest, signTestOf, type SignTest } from './exact-tests.js';
+import { quantileOfSorted, squaredDeviations } from './math/moments.js';
 
 export type CellStatus = 'worse' | 'improved' | 'changed-within-noise' | 'unchanged';
 export const STATUS_ORDER: readonly CellStatus[] = ['worse', 'improved', 'changed-within-noise', 'unchanged'];
@@ -247,10 +248,8 @@ function unpairedChange(base: Estimate, next: Estimate): ScoreChange {
 }
 
 function meanAndVariance(values: number[]): { mean: number; variance: number } {
-  const m = values.length;
-  const mean = values.reduce((s, v) => s + v, 0) / m;
-  const variance = m > 1 ? values.reduce((s, v) => s + (v - mean) ** 2, 0) / (m - 1) : NaN;
-  return { mean, variance };
+  const { mean, sumOfSquares } = squaredDeviations(Float64Array.from(values));
+  return { mean, variance: values.length > 1 ? sumOfSquares / (values.length - 1) : NaN };
 }
 
 /**
@@ -377,12 +376,14 @@ function compareCell(base: Cell, next: Cell, truthBase: number, truthNext: numbe
     const differences = nextValues.map((a, r) => (a - truthNext) ** 2 - (baseValues[r] - truthBase) ** 2);
     test = pairedTTest(differences, 1 - testLevel);
     sign = signTestOf(differences);
-    const errorChanges = nextValues.map((a, r) => Math.abs(a - truthNext) - Math.abs(baseValues[r] - truthBase)).sort((x, y) => x - y);
-    medianChange = errorChanges.length ? (errorChanges[(errorChanges.length - 1) >> 1] + errorChanges[errorChanges.length >> 1]) / 2 : null;
-    const shiftTest = pairedTTest(nextValues.map((a, r) => a - baseValues[r]), level);
-    shift = shiftTest ? { value: shiftTest.difference, se: shiftTest.se } : null;
+    const errorChanges = Float64Array.from(nextValues, (a, r) => Math.abs(a - truthNext) - Math.abs(baseValues[r] - truthBase)).sort();
+    medianChange = errorChanges.length ? quantileOfSorted(errorChanges, 0.5) : null;
     const paired = pairedChanges(nextValues, baseValues, truthNext, truthBase);
-    if (paired) changes = paired;
+    if (paired) {
+      changes = paired;
+      // The raw shift of the estimates is the bias change plus the change of the truth, with the same paired SE.
+      shift = { value: paired.bias.change + (truthNext - truthBase), se: paired.bias.changeSe };
+    }
     if (common < Math.min(base.scores.successes, next.scores.successes)) reasons.push(`changes are over the ${common} replicates where both runs succeeded`);
   } else {
     test = welchTTest(squaredErrors(next, truthNext), squaredErrors(base, truthBase), 1 - testLevel);

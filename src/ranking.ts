@@ -92,8 +92,11 @@ function failed(cell: RankableCell, settings: VerdictSettings): boolean {
   return cell.scores.replicates > 0 && cell.scores.failures / cell.scores.replicates > settings.maxFailureRate;
 }
 
+/** By RMSE, a missing or infinite one last, then by name. */
 function byRmse(a: RankableCell, b: RankableCell): number {
-  return a.scores.rmse.value - b.scores.rmse.value || a.estimator.localeCompare(b.estimator);
+  const x = Number.isFinite(a.scores.rmse.value) ? a.scores.rmse.value : Infinity;
+  const y = Number.isFinite(b.scores.rmse.value) ? b.scores.rmse.value : Infinity;
+  return x - y || a.estimator.localeCompare(b.estimator);
 }
 
 /** Ranks one cell's estimators (all on the same scenario, n and perturbation). */
@@ -136,7 +139,7 @@ export function rankCell(group: RankableCell[], truth: number, settings: Verdict
     ...best.map((c) => entry(c, 1, 'ranked')),
     ...rest.map((c, i) => entry(c, best.length + i + 1, 'ranked')),
     ...unbounded.sort((a, b) => a.estimator.localeCompare(b.estimator)).map((c, i) => entry(c, comparable.length + i + 1, 'unbounded-error')),
-    ...failing.sort((a, b) => a.scores.failures - b.scores.failures || byRmseOrLast(a, b)).map((c) => entry(c, last, 'failed')),
+    ...failing.sort((a, b) => a.scores.failures - b.scores.failures || byRmse(a, b)).map((c) => entry(c, last, 'failed')),
   ];
   return { scenario: group[0].scenario, n: group[0].n, perturbation: group[0].perturbation, level: settings.level, comparedReplicates: common.length, entries };
 }
@@ -173,11 +176,6 @@ function signGuard(members: RankableCell[], comparable: RankableCell[], losses: 
   return { p, dropped };
 }
 
-function byRmseOrLast(a: RankableCell, b: RankableCell): number {
-  const x = Number.isFinite(a.scores.rmse.value) ? a.scores.rmse.value : Infinity;
-  const y = Number.isFinite(b.scores.rmse.value) ? b.scores.rmse.value : Infinity;
-  return x - y || a.estimator.localeCompare(b.estimator);
-}
 
 /** Rankings of every (scenario, n, perturbation) group of cells; `seedOf` names each group's bootstrap seed. */
 export function rankCells(cells: RankableCell[], truthOf: (scenario: string) => number, settings: VerdictSettings, seedOf: (scenario: string, n: number) => string): Ranking[] {

@@ -8,7 +8,7 @@ import type { ErrorObject, ValidateFunction } from 'ajv/dist/2020.js';
 import { loadAjv } from './schema-validator.js';
 import type { Scenario } from './contracts.js';
 import { UsageError } from './errors.js';
-import { drawsFingerprint, planCode, readTextFile, type Plan, type PlanCode } from './plan.js';
+import { drawsFingerprint, readTextFile, type Plan, type PlanCode } from './plan.js';
 import { environment, type Environment } from './provenance.js';
 import type { RunOutcome, Session, Shard } from './runner.js';
 import { fitRate, scoreCell, type CellScores, type Estimate, type RateFit } from './score.js';
@@ -167,7 +167,7 @@ export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
   return finishRun({
     plan,
     fingerprint: outcome.fingerprint,
-    code: planCode(plan),
+    code: outcome.code,
     shard,
     complete: shard === null && !outcome.interrupted,
     workers: Math.max(...outcome.sessions.map((x) => x.workers)),

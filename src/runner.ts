@@ -50,6 +50,8 @@ export interface RunOptions {
 export interface RunOutcome {
   plan: Plan;
   fingerprint: string;
+  /** The code that ran it (what the fingerprint digests). */
+  code: PlanCode;
   units: Unit[];
   /** Indices of the units this run (or shard) owns. */
   owned: number[];
@@ -101,8 +103,14 @@ function serialiseResult(result: UnitResult): string {
   });
 }
 
-function parseResult(line: string): UnitResult {
-  const raw = JSON.parse(line) as { unit: number; estimates: (number | null)[][]; timeMs: number[]; failures: UnitResult['failures'] };
+interface SerialisedResult {
+  unit: number;
+  estimates: (number | null)[][];
+  timeMs: number[];
+  failures: UnitResult['failures'];
+}
+
+function parseResult(raw: SerialisedResult): UnitResult {
   return {
     unit: raw.unit,
     estimates: raw.estimates.map((values) => Float64Array.from(values, (v) => (v === null ? NaN : v))),
@@ -147,12 +155,9 @@ function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null, 
   }
   for (const line of lines.slice(1)) {
     try {
-      const parsed = JSON.parse(line) as { session?: Session };
-      if (parsed.session) sessions.push(parsed.session);
-      else {
-        const result = parseResult(line);
-        done.set(result.unit, result);
-      }
+      const parsed = JSON.parse(line) as SerialisedResult | { session: Session };
+      if ('session' in parsed) sessions.push(parsed.session);
+      else done.set(parsed.unit, parseResult(parsed));
     } catch {
       // An interrupted write leaves at most one partial line; that unit simply runs again.
     }
@@ -173,7 +178,9 @@ function workerEntry(): URL {
 export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<RunOutcome> {
   const started = performance.now();
   const context = buildContext(plan);
-  const fingerprint = planFingerprint(context.plan);
+  // Digesting the code reads every file of hhat and of the modules: once per run.
+  const code = planCode(context.plan);
+  const fingerprint = planFingerprint(context.plan, code);
   const { units, skipped } = planUnits(context);
   const owned = shardUnits(units, options.shard);
   const shard = options.shard ?? null;
@@ -184,7 +191,6 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   const hint = options.checkpointHint;
   if (options.checkpointPath) {
     const path = options.checkpointPath;
-    const code = planCode(context.plan);
     const started = checkpointStarted(path);
     let needsHeader = true;
     if (options.resume && started) {
@@ -285,6 +291,7 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   return {
     plan: context.plan,
     fingerprint,
+    code,
     units,
     owned,
     results,

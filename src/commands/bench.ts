@@ -12,9 +12,8 @@ import { collect, MAX_REPLICATES, parseFraction, planFingerprint, parseIntegerOp
 import { progressReporter } from '../progress.js';
 import { assembleRun, readRunFile, writeFileAtomic, writeRunFile, type RunFile } from '../results.js';
 import { acquireLock, ensureFolder, removeLeftoverTemporaries } from '../files.js';
-import { checkpointStarted } from '../runner.js';
 import { checkSampleMemory } from '../memory.js';
-import { defaultWorkers, runPlan, type Shard } from '../runner.js';
+import { checkpointStarted, defaultWorkers, runPlan, type Shard } from '../runner.js';
 import { parseShard } from '../shard.js';
 import { detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../tables.js';
 import { rankLegend } from '../verdict-text.js';
@@ -210,7 +209,6 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
       const resumeHint = `the finished units are saved in ${checkpoint}; fix that and rerun with --resume --out ${out}`;
       ensureFolder(dirname(out), 'choose another --out');
       const release = acquireLock(out, 'choose another --out');
-      let outcome;
       try {
         removeLeftoverTemporaries(out);
         removeLeftoverTemporaries(checkpoint);
@@ -231,6 +229,7 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
         process.once('SIGINT', onSignal);
         process.once('SIGTERM', onSignal);
         const progress = options.quiet ? undefined : progressReporter(process.stderr);
+        let outcome;
         try {
           outcome = await runPlan(plan, {
             workers,
@@ -266,15 +265,12 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
           await writeReport(run, { base, out: reportPath, svgDir: options.svgDir });
           print(`report: ${reportPath}`);
         }
+        const resumed = outcome.resumedUnits ? `, ${outcome.resumedUnits} units from the checkpoint` : '';
+        print(`${shard ? `shard ${shard.index}/${shard.count}: ` : ''}${run.cells.length} cells in ${run.wallSeconds.toFixed(1)} s on ${run.workers} worker${run.workers === 1 ? '' : 's'}${resumed}`);
+        print(`run file: ${out}`);
       } finally {
         release();
       }
-      if (!outcome || outcome.interrupted) return;
-      const resumed = outcome.resumedUnits ? `, ${outcome.resumedUnits} units from the checkpoint` : '';
-      const cellCount = new Set(outcome.units.flatMap((u) => u.series.map((x) => `${u.scenario}|${u.n}|${x.variant}|${x.estimator}`))).size;
-      const wall = outcome.sessions.reduce((sum, x) => sum + x.wallSeconds, 0);
-      print(`${shard ? `shard ${shard.index}/${shard.count}: ` : ''}${cellCount} cells in ${wall.toFixed(1)} s on ${outcome.workers} worker${outcome.workers === 1 ? '' : 's'}${resumed}`);
-      print(`run file: ${out}`);
     });
 
   program
