@@ -121,10 +121,14 @@ describe('faulty estimator modules beside built-ins', () => {
     const plan = join(dir, 'exit-plan.json');
     writeFileSync(plan, JSON.stringify({ ...input([], ['faulty-exit']), modules: [join(faults, 'exit.mjs')] }));
     let err = '';
-    const code = await main(['bench', '--plan', plan, '--allow-plan-modules', '--out', out, '--quiet'], { out: () => {}, err: (t) => (err += t) });
-    expect(err).toBe('');
+    let printed = '';
+    const code = await main(['bench', '--plan', plan, '--allow-plan-modules', '--out', out, '--no-chart'], { out: (t) => (printed += `${t}\n`), err: (t) => (err += t) });
+    expect(err).toBe('estimator modules: added faulty-exit');
     expect(code).toBe(0);
     const cell = readRunFile(out).cells.find((c) => c.estimatorId === 'faulty-exit')!;
-    expect(cell.failures.map((f) => f.replicate)).toEqual(bad.flatMap((b, r) => (b ? [r] : [])));
+    const expected = bad.flatMap((b, r) => (b ? [r] : []));
+    expect(cell.failures.map((f) => f.replicate)).toEqual(expected);
+    // The tables say why, with the count, not only the run file.
+    expect(printed).toContain(`  faulty-exit: the estimator ended its worker thread (exit code 3)${expected.length > 1 ? ` (${expected.length} times)` : ''}\n`);
   }, 60_000);
 });

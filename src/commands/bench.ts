@@ -15,7 +15,7 @@ import { acquireLock, ensureFolder, removeLeftoverTemporaries } from '../files.j
 import { checkSampleMemory } from '../memory.js';
 import { checkpointStarted, defaultWorkers, runPlan, type Shard } from '../runner.js';
 import { parseShard } from '../shard.js';
-import { detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../tables.js';
+import { detailTable, estimatorLabel, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../tables.js';
 import { rankLegend } from '../verdict-text.js';
 import { mergeShards } from '../merge.js';
 import { writeReport } from '../report/report.js';
@@ -133,6 +133,21 @@ export function planInputFromOptions(options: BenchOptions): PlanInput {
   return input;
 }
 
+const MAX_REASON_LINES = 6;
+
+/** "estimator: reason (count)" for each distinct failure reason, the most frequent first, at most `limit` lines. */
+function failureReasons(cells: RunFile['cells'], limit: number): string[] {
+  const counts = new Map<string, number>();
+  for (const cell of cells) {
+    for (const f of cell.failures) {
+      const key = `${estimatorLabel(cell.estimator)}: ${f.message}`;
+      counts.set(key, (counts.get(key) ?? 0) + 1);
+    }
+  }
+  const lines = [...counts.entries()].sort((a, b) => b[1] - a[1]).map(([key, count]) => `${key}${count > 1 ? ` (${count} times)` : ''}`);
+  return lines.length > limit ? [...lines.slice(0, limit), `… and ${lines.length - limit} other reasons`] : lines;
+}
+
 export function printRun(run: RunFile, base: Base, print: (text: string) => void, detail: boolean): void {
   print(scenarioTables(run, base));
   const overall = overallTable(run);
@@ -148,7 +163,10 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
   }
   const failedMain = run.cells.filter((c) => c.role === 'main').reduce((s, c) => s + c.scores.failures, 0);
   const failedOther = run.cells.filter((c) => c.role !== 'main').reduce((s, c) => s + c.scores.failures, 0);
-  if (failedMain) print(`${failedMain} estimate${failedMain === 1 ? '' : 's'} failed in the benchmark cells; the run file lists each with its reason (cells[].failures).`);
+  if (failedMain) {
+    print(`${failedMain} estimate${failedMain === 1 ? '' : 's'} failed in the benchmark cells; the run file lists each with its reason (cells[].failures). The reasons:`);
+    for (const line of failureReasons(run.cells.filter((c) => c.role === 'main'), MAX_REASON_LINES)) print(`  ${line}`);
+  }
   if (failedOther) print(`${failedOther} estimate${failedOther === 1 ? '' : 's'} failed on perturbed samples or tuning variants (ties after rounding, mostly); the robustness table counts them.`);
   print(`RMSE ± Monte-Carlo SE. ${rankLegend(run.plan.verdicts.level, run.plan.verdicts.maxFailureRate)}`);
 }
