@@ -50,7 +50,7 @@ import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.
 import { EstimateError } from '../src/errors.js';
 import { quantileOfSorted, squaredDeviations } from '../src/math/moments.js';
 import { checkFiniteValues, column } from '../src/sample.js';
-import { spreadUnitOfExtremes, timesPowerOfTwo, toUnit } from './scaling.js';
+import { spreadUnitOfRange, timesPowerOfTwo, toUnit } from './scaling.js';
 import { sortAscending } from './spacing.js';
 
 export const BIN_RULES = ['sturges', 'scott', 'freedman-diaconis', 'doane', 'sqrt'] as const;
@@ -128,7 +128,7 @@ export function histogramGrid(sample: Sample, settings: Settings): AxisBins[] {
   }
   const grid: AxisBins[] = [];
   for (let k = 0; k < dim; k++) {
-    const values = column(sample, k);
+    let values = column(sample, k);
     let dataMinimum = Infinity;
     let dataMaximum = -Infinity;
     for (let i = 0; i < n; i++) {
@@ -137,10 +137,10 @@ export function histogramGrid(sample: Sample, settings: Settings): AxisBins[] {
     }
     // A subnormal or huge spread is binned in a power-of-two unit near the spread: every edge, width and
     // count is then the exact image of the data-unit one, and the bin volume gets the unit's log back.
-    const unit = spreadUnitOfExtremes(Float64Array.of(dataMinimum), Float64Array.of(dataMaximum), 'column');
+    const unit = spreadUnitOfRange(dataMinimum, dataMaximum);
     const unitExponent = unit ? unit.exponents[0] : 0;
     const unitOffset = unit ? unit.offsets[0] : 0;
-    if (unit) values.set(toUnit(values, n, 1, unit));
+    if (unit) values = toUnit(values, n, 1, unit);
     const minimum = timesPowerOfTwo(dataMinimum - unitOffset, -unitExponent);
     const maximum = timesPowerOfTwo(dataMaximum - unitOffset, -unitExponent);
     const range = maximum - minimum;
@@ -239,8 +239,9 @@ export function axisIndices(values: Float64Array, count: number, dim: number, ax
   const halfExponent = Math.trunc(-unitExponent / 2);
   const toGridA = 2 ** halfExponent;
   const toGridB = 2 ** (-unitExponent - halfExponent);
+  const inUnit = unitExponent !== 0 || unitOffset !== 0;
   for (let i = 0, p = axis; i < count; i++, p += dim) {
-    const x = (values[p] - unitOffset) * toGridA * toGridB;
+    const x = inUnit ? (values[p] - unitOffset) * toGridA * toGridB : values[p];
     let index = Math.floor((x - origin) * perUnit);
     if (index > last) index = last;
     if (index < 0) index = 0;

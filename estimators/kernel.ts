@@ -65,7 +65,8 @@ function usedBandwidth(data: KernelData, settings: Settings): number {
   return typeof setting === 'number' ? chosen : chosen * (typeof settings.scale === 'number' ? settings.scale : 1);
 }
 
-function bandwidthSetting(value: SettingValue | undefined): BandwidthSetting {
+/** The bandwidth a setting names: a rule, likelihood-cv, or a number (also when written as text). */
+export function bandwidthSetting(value: SettingValue | undefined): BandwidthSetting {
   if (value === undefined) return 'silverman';
   if (typeof value === 'number') return value;
   if ((BANDWIDTH_RULES as readonly string[]).includes(value)) return value as BandwidthSetting;

@@ -28,15 +28,14 @@
  */
 import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
-import { parseNumber } from '../src/spec.js';
 import { KnnIndex } from '../src/knn.js';
 import { digamma } from '../src/math/special.js';
 import { checkNotConstant } from './divergence.js';
 import { type AxisBins, BIN_RULES, histogramCells, histogramEstimators, histogramGrid } from './histogram.js';
-import { BANDWIDTH_RULES, kernelEstimator, kernelEstimators } from './kernel.js';
+import { BANDWIDTH_RULES, bandwidthSetting, kernelEstimator, kernelEstimators } from './kernel.js';
 import { nearestNeighbourEstimators } from './nearest-neighbour.js';
 import { logDeterminantSpd, parametricEstimators, scatterMatrix, wishartLogDetShift } from './parametric.js';
-import { spreadUnit, toUnit } from './scaling.js';
+import { inSpreadUnit } from './scaling.js';
 import { spacingEstimators } from './spacing.js';
 
 const KSG_REFERENCE = 'Kraskov, A., Stögbauer, H. & Grassberger, P. (2004). Estimating mutual information. Physical Review E 69, 066138';
@@ -176,8 +175,7 @@ export function ksgMutualInformation(data: Float64Array, n: number, xDim: number
   if (n <= k) throw new EstimateError('too-few-points', `${id} needs n > k; got n = ${n} with k = ${k}`);
   // Max-norm distances compare every coordinate, so a subnormal or huge spread gets one power of two for
   // all of them (exact, estimators/scaling.ts): differences then cannot overflow, and I does not move.
-  const unit = spreadUnit(data.subarray(0, n * dim), n, dim, 'common');
-  if (unit) data = toUnit(data, n, dim, unit);
+  data = inSpreadUnit(data.subarray(0, n * dim), n, dim, 'common').data;
   const joint = new KnnIndex(data.subarray(0, n * dim), dim, { norm: 'max' });
   // Variant 2 also asks for the (k+1)-th neighbour: where it is as near as the k-th, the k are tied.
   const stride = variant === 2 ? Math.min(k + 1, n - 1) : k;
@@ -389,7 +387,8 @@ function kernelMutualInformation(sample: Sample, settings: Settings): number {
   const { data, n, xDim, yDim } = prepared(id, sample, settings);
   const dim = xDim + yDim;
   const bandwidth = settings.bandwidth ?? 'silverman';
-  const numericBandwidth = typeof bandwidth === 'number' ? bandwidth : typeof bandwidth === 'string' ? parseNumber(bandwidth) : undefined;
+  const chosen = bandwidthSetting(bandwidth);
+  const numericBandwidth = typeof chosen === 'number' ? chosen : undefined;
   const rankUnit = copulaOf(id, settings) === 'rank' ? n + 1 : 1;
   const entropyOf = (part: Sample): number => {
     const partBandwidth = numericBandwidth !== undefined && part.dim === 1 ? numericBandwidth * rankUnit : bandwidth;

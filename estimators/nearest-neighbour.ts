@@ -14,7 +14,7 @@ import { EstimateError } from '../src/errors.js';
 import { KnnIndex, type KnnNorm } from '../src/knn.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { checkFiniteValues } from '../src/sample.js';
-import { rowsDifferingFromPartners, spreadUnit, toUnit } from './scaling.js';
+import { inSpreadUnit, rowsDifferingFromPartners } from './scaling.js';
 
 const NORMS = ['euclidean', 'max'] as const;
 
@@ -42,7 +42,8 @@ export function logUnitBallVolumeOf(norm: KnnNorm, dim: number): number {
  */
 export function kozachenkoLeonenkoEntropy(data: Float64Array, dim: number, k: number, norm: KnnNorm, id = 'kozachenko-leonenko'): number {
   const n = checkedPointCount(id, data, dim, k);
-  const { points, logJacobian } = inDistanceUnit(data, n, dim);
+  // Distances compare coordinates, so one power of two for all columns (estimators/scaling.ts).
+  const { data: points, logJacobian } = inSpreadUnit(data, n, dim, 'common');
   const index = new KnnIndex(points, dim, { norm });
   const { distances } = index.nearestOthers(k);
   let sumLogDistance = 0;
@@ -54,17 +55,6 @@ export function kozachenkoLeonenkoEntropy(data: Float64Array, dim: number, k: nu
   }
   if (zeroCount > 0) throw tiesError(id, index, data, distances, k, zeroCount, n, k, (order) => order);
   return digamma(n) - digamma(k) + logUnitBallVolumeOf(norm, dim) + (dim * sumLogDistance) / n + logJacobian;
-}
-
-/**
- * The points in a distance unit safe for squared distances: one power of two near the widest column's
- * spread for all columns (a distance compares coordinates, so they keep one unit), applied only when some
- * spread is subnormal or near the top of the double range (estimators/scaling.ts). Entropy estimates on
- * the scaled points get `logJacobian` = d·log of the unit back; ratios of distances need nothing.
- */
-export function inDistanceUnit(data: Float64Array, n: number, dim: number): { points: Float64Array; logJacobian: number } {
-  const unit = spreadUnit(data, n, dim, 'common');
-  return unit ? { points: toUnit(data, n, dim, unit), logJacobian: unit.logJacobian } : { points: data, logJacobian: 0 };
 }
 
 /** The neighbour orders the weighted estimator may use, and their weights. */
@@ -229,7 +219,8 @@ export function weightedKozachenkoLeonenkoEntropy(
     throw new EstimateError('invalid-input', `${id}: ${(error as Error).message}`);
   }
   const { orders, weights } = orderWeights;
-  const { points, logJacobian } = inDistanceUnit(data, n, dim);
+  // Distances compare coordinates, so one power of two for all columns (estimators/scaling.ts).
+  const { data: points, logJacobian } = inSpreadUnit(data, n, dim, 'common');
   const index = new KnnIndex(points, dim, { norm });
   const { distances } = index.nearestOthers(k);
   const firstOrder = orders[0];

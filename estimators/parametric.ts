@@ -35,6 +35,7 @@ import { spreadUnit, toUnit } from './scaling.js';
  */
 export function scatterMatrix(sample: Sample, logColumnScale: Float64Array): Float64Array {
   const { n, dim } = sample;
+  // Per column: the scatter's column scales take each column's own power of two back.
   const unit = spreadUnit(sample.data, n, dim, 'column');
   const data = unit ? toUnit(sample.data, n, dim, unit) : sample.data;
   const columnScale = new Float64Array(dim);

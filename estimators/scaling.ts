@@ -3,9 +3,8 @@
  * of the double range (1e300), or whose values sit so near the top of the range that their sums overflow,
  * without squares, reciprocals, sums or bin counts leaving the double range.
  *
- *   const unit = spreadUnit(data, n, dim, 'common');       // null: the data are fine as they are
- *   const scaled = unit ? toUnit(data, n, dim, unit) : data;
- *   return entropyOf(scaled) + (unit ? unit.logJacobian : 0);
+ *   const { data: scaled, logJacobian } = inSpreadUnit(data, n, dim, 'common');   // data as given when fine
+ *   return entropyOf(scaled) + logJacobian;
  *
  * A coordinate x becomes (x − offset)·2^−e. Multiplying by a power of two only changes a double's exponent,
  * so it is exact as long as the result stays in the double range, which choosing 2^e near the spread
@@ -94,6 +93,11 @@ export function spreadUnit(data: Float64Array, n: number, dim: number, mode: 'co
   return spreadUnitOfExtremes(minimum, maximum, mode);
 }
 
+/** spreadUnit of one column from its extremes (sorted values' ends, say). */
+export function spreadUnitOfRange(minimum: number, maximum: number): SpreadUnit | null {
+  return spreadUnitOfExtremes(Float64Array.of(minimum), Float64Array.of(maximum), 'column');
+}
+
 /** spreadUnit from per-column extremes already at hand (for data held in several arrays). */
 export function spreadUnitOfExtremes(minimum: Float64Array, maximum: Float64Array, mode: 'column' | 'common'): SpreadUnit | null {
   const dim = minimum.length;
@@ -130,6 +134,15 @@ export function toUnit(data: Float64Array, n: number, dim: number, unit: SpreadU
     for (let p = j; p < n * dim; p += dim) out[p] = (data[p] - offset) * factorA * factorB;
   }
   return out;
+}
+
+/**
+ * The data in their spread unit (a new array), or as given when none is needed, with the log-Jacobian to add
+ * to an entropy computed on them (0 as given).
+ */
+export function inSpreadUnit(data: Float64Array, n: number, dim: number, mode: 'column' | 'common'): { data: Float64Array; logJacobian: number } {
+  const unit = spreadUnit(data, n, dim, mode);
+  return unit ? { data: toUnit(data, n, dim, unit), logJacobian: unit.logJacobian } : { data, logJacobian: 0 };
 }
 
 /**

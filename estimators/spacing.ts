@@ -16,7 +16,7 @@
 import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { checkFiniteValues } from '../src/sample.js';
-import { spreadUnitOfExtremes, toUnit } from './scaling.js';
+import { spreadUnitOfRange, toUnit } from './scaling.js';
 
 /** Below this size the engine's typed-array sort is as fast as the radix sort and allocates nothing. */
 const RADIX_SORT_MIN_LENGTH = 1 << 15;
@@ -346,7 +346,7 @@ type SortedEntropy = (sorted: Float64Array, m: number, id: string) => number;
  */
 function inSafeUnit(id: string, sorted: Float64Array, m: number, fromSorted: SortedEntropy): number {
   const n = sorted.length;
-  const unit = spreadUnitOfExtremes(Float64Array.of(sorted[0]), Float64Array.of(sorted[n - 1]), 'column');
+  const unit = spreadUnitOfRange(sorted[0], sorted[n - 1]);
   if (!unit) return fromSorted(sorted, m, id);
   const scaled = toUnit(sorted, n, 1, unit);
   try {
