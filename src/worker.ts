@@ -4,8 +4,12 @@
  *
  * Before each estimate it writes which one is running, and when it started, into memory shared with the
  * supervisor: a hung estimator never returns, so it could never say so itself. Callbacks an estimate schedules
- * (timers, immediates, ticks, microtasks) carry its tag, so an error they throw later is charged to it.
+ * (timers, immediates, ticks, microtasks) and promises it creates carry its tag, so an error they throw or a
+ * rejection nobody handles is charged to it. Before a replicate is reported, the worker lets pending
+ * callbacks run (a macrotask turn, and a short wait while tagged timers are pending), so such an error stops
+ * the worker while that replicate can still be charged with it, not after it was recorded.
  */
+import { createHook } from 'node:async_hooks';
 import { parentPort, workerData } from 'node:worker_threads';
 import { buildContext } from './context.js';
 import type { Plan } from './plan.js';
@@ -25,14 +29,34 @@ function blame(tag: [number, number, number]): void {
   slots[4] = tag[2];
 }
 
+/** Tagged callbacks scheduled and not yet run (a cleared timer stays counted; that only costs a short wait). */
+let pendingTagged = 0;
+
 function tagged<A extends unknown[], R>(callback: (...args: A) => R): (...args: A) => R {
   const tag = running;
   if (!tag || typeof callback !== 'function') return callback;
+  pendingTagged++;
+  let ran = false;
   return function (this: unknown, ...args: A): R {
+    if (!ran) pendingTagged--;
+    ran = true;
     blame(tag);
     return callback.apply(this, args);
   };
 }
+
+// Promises created during an estimate carry its tag, so an unhandled rejection names the estimate.
+const promiseTags = new WeakMap<object, [number, number, number]>();
+createHook({
+  init(_id, type, _trigger, resource) {
+    if (type === 'PROMISE' && running) promiseTags.set(resource as object, running);
+  },
+}).enable();
+process.on('unhandledRejection', (reason, promise) => {
+  const tag = promiseTags.get(promise);
+  if (tag) blame(tag);
+  throw reason instanceof Error ? reason : new Error(`a promise was rejected with ${String(reason)}`);
+});
 
 type Scheduler = (callback: (...args: unknown[]) => unknown, ...rest: unknown[]) => unknown;
 
@@ -57,9 +81,14 @@ function post(message: WorkerMessage, transfer: ArrayBuffer[] = []): void {
   parentPort!.postMessage(message, transfer);
 }
 
-/** Lets callbacks that the unit's estimates scheduled with a short delay run (and fail) before it counts as done. */
-function settle(): Promise<void> {
-  return new Promise((resolve) => setTimeout(resolve, 2));
+/**
+ * Lets what the replicate's estimates left behind run, and fail, before the replicate is reported: one
+ * macrotask turn (microtasks, ticks, immediates, unhandled rejections), and while tagged timers are still
+ * pending a few short waits for them. Timers set further ahead than that are charged when they fire.
+ */
+async function settle(): Promise<void> {
+  await new Promise((resolve) => setImmediate(resolve));
+  for (let wait = 0; pendingTagged > 0 && wait < 3; wait++) await new Promise((resolve) => setTimeout(resolve, 2));
 }
 
 parentPort!.on('message', async (job: WorkerJob) => {
@@ -70,19 +99,21 @@ parentPort!.on('message', async (job: WorkerJob) => {
       skip: (series) => skipped.has(`${series}|${replicate}`),
       onStart: (series, r) => {
         running = [series, r, unit.index];
-        slots[0] = series;
-        slots[1] = r;
-        blame(running);
+        // The start time first: the watchdog reads the running slot, then the clock, and must never pair a
+        // new estimate with the previous one's start.
         clock[0] = Date.now();
+        Atomics.store(slots, 1, r);
+        Atomics.store(slots, 0, series);
+        blame(running);
       },
       onEnd: () => {
         running = null;
-        slots[0] = -1;
+        Atomics.store(slots, 0, -1);
       },
     });
+    await settle();
     post({ kind: 'replicate', unit: unit.index, result }, [result.values.buffer as ArrayBuffer, result.timeMs.buffer as ArrayBuffer]);
   }
-  await settle();
   post({ kind: 'unit-done', unit: unit.index });
 });
 post({ kind: 'ready' });

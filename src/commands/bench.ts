@@ -243,7 +243,11 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
           }
         }
         const controller = new AbortController();
-        const onSignal = () => controller.abort();
+        let stoppedBy: NodeJS.Signals | null = null;
+        const onSignal = (signal: NodeJS.Signals) => {
+          stoppedBy = signal;
+          controller.abort();
+        };
         process.once('SIGINT', onSignal);
         process.once('SIGTERM', onSignal);
         const progress = options.quiet ? undefined : progressReporter(process.stderr);
@@ -267,7 +271,8 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
         if (outcome.interrupted) {
           printErr(`interrupted: ${outcome.results.size} of ${outcome.owned.length} units are saved in ${checkpoint}`);
           printErr(`continue with the same command plus: --resume --out ${out}`);
-          process.exitCode = 130;
+          // 128 + the signal's number, as shells report a process stopped by it.
+          process.exitCode = stoppedBy === 'SIGTERM' ? 143 : 130;
           return;
         }
         const run = assembleRun(outcome, shard ?? null);
