@@ -105,8 +105,7 @@ function row(c: CellComparison): string[] {
 
 /** The level of the intervals shown: each test runs at α split over the tests (Bonferroni). */
 function intervalLevel(comparison: Comparison): string {
-  const tests = comparison.pairing.paired ? 3 : 2;
-  return `${+((1 - (1 - comparison.level) / tests) * 100).toPrecision(4)}%`;
+  return `${+((1 - comparison.testLevel) * 100).toPrecision(4)}%`;
 }
 
 function countsLine(comparison: Comparison): string {
@@ -126,9 +125,10 @@ function pairingLine(comparison: Comparison): string {
 
 function policyLine(comparison: Comparison): string {
   const alpha = +(1 - comparison.level).toPrecision(6);
+  const each = +comparison.testLevel.toPrecision(3);
   const tests = comparison.pairing.paired
-    ? `any of three paired tests at level ${+(alpha / 3).toPrecision(3)} each (α = ${alpha} split by Bonferroni) says so: the t test on the squared-error differences (and |ΔRMSE| exceeds the tolerance, ${comparison.tolerance.text}), the exact sign test on them (and the median change of |error| exceeds the tolerance), or the exact McNemar test on failures`
-    : `Welch's t test on the squared errors (and |ΔRMSE| exceeds the tolerance, ${comparison.tolerance.text}) or Fisher's exact test on failures says so at level ${+(alpha / 2).toPrecision(3)} each (α = ${alpha} split by Bonferroni)`;
+    ? `any of three paired tests at level ${each} each (α = ${alpha} split by Bonferroni) says so: the t test on the squared-error differences (and |ΔRMSE| exceeds the tolerance, ${comparison.tolerance.text}), the exact sign test on them (and the median change of |error| exceeds the tolerance), or the exact McNemar test on failures`
+    : `Welch's t test on the squared errors (and |ΔRMSE| exceeds the tolerance, ${comparison.tolerance.text}) or Fisher's exact test on failures says so at level ${each} each (α = ${alpha} split by Bonferroni)`;
   return `A cell is worse (or improved) when ${tests}; worse wins over improved. A new estimate more than ${WILD_FACTOR} times the base run's largest error away from the truth makes a cell worse on its own. Changes ± SE are ${comparison.pairing.paired ? 'paired, over the replicates where both runs succeeded' : 'unpaired'}.`;
 }
 
@@ -268,8 +268,8 @@ function cellDetails(c: CellComparison): string {
 export function formatComparisonJunit(comparison: Comparison, failOn: FailOn = 'worse', allowMissing = false): string {
   const failing = new Set(failingCells(comparison, failOn));
   const refsOnly = [
-    ...comparison.removed.map((r) => ({ r, where: 'only in the base run (missing from the new run)', fails: !allowMissing })),
-    ...comparison.added.map((r) => ({ r, where: 'only in the new run', fails: failOn === 'changed' })),
+    ...comparison.removed.map((r) => ({ r, type: 'missing', where: 'only in the base run (missing from the new run)', fails: !allowMissing })),
+    ...comparison.added.map((r) => ({ r, type: 'added', where: 'only in the new run', fails: failOn === 'changed' })),
   ];
   const failures = failing.size + refsOnly.filter((x) => x.fails).length;
   const skipped = refsOnly.length - refsOnly.filter((x) => x.fails).length;
@@ -296,9 +296,9 @@ export function formatComparisonJunit(comparison: Comparison, failOn: FailOn = '
       out.push(open, `      <system-out>${STATUS_LABEL[c.status]}: ${details}</system-out>`, '    </testcase>');
     }
   }
-  for (const { r, where, fails } of refsOnly) {
+  for (const { r, type, where, fails } of refsOnly) {
     const open = `    <testcase${attributes({ classname: cellLabel(r), name: testcaseName(r), time: 0 })}>`;
-    const body = fails ? `<failure${attributes({ type: 'missing', message: `cell ${where}` })}/>` : `<skipped${attributes({ message: `cell ${where}` })}/>`;
+    const body = fails ? `<failure${attributes({ type, message: `cell ${where}` })}/>` : `<skipped${attributes({ message: `cell ${where}` })}/>`;
     out.push(open, `      ${body}`, '    </testcase>');
   }
   out.push('  </testsuite>', '</testsuites>', '');

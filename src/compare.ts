@@ -161,6 +161,8 @@ export interface Comparison {
   pairing: { paired: boolean; reason: string };
   tolerance: Tolerance & { text: string };
   level: number;
+  /** The level of each test: α = 1 − level split by Bonferroni over the tests (three paired, two unpaired). */
+  testLevel: number;
   counts: Record<CellStatus, number> & { added: number; removed: number };
   /** Cells in both runs, in the base run's order. */
   cells: CellComparison[];
@@ -258,9 +260,10 @@ function meanAndVariance(values: number[]): { mean: number; variance: number } {
  *   Δbias = mean(new − base), SE = SD(new − base)/√m;
  *   ΔSD   = Δ(s²)/(s_new + s_base) with Δ(s²) = Σ u_r/(m − 1), u_r = (new_r − mean new)² − (base_r − mean base)²,
  *           SE = SD(u)/√m · m/(m − 1) / (s_new + s_base);
- *   ΔRMSE = ΔMSE/(RMSE_new + RMSE_base) with ΔMSE = mean d_r, SE = SD(d)/√m / (RMSE_new + RMSE_base).
+ *   ΔRMSE = ΔMSE/(RMSE_new + RMSE_base) with ΔMSE = mean d_r, SE = SD(d)/√m / (RMSE_new + RMSE_base),
+ * where d holds the squared-error differences d_r the caller already has.
  */
-function pairedChanges(next: number[], base: number[], truthNext: number, truthBase: number): { bias: ScoreChange; sd: ScoreChange; rmse: ScoreChange } | null {
+function pairedChanges(next: number[], base: number[], truthNext: number, truthBase: number, d: number[]): { bias: ScoreChange; sd: ScoreChange; rmse: ScoreChange } | null {
   const m = next.length;
   if (m < 2) return null;
   const shifts = next.map((v, r) => v - truthNext - (base[r] - truthBase));
@@ -274,7 +277,6 @@ function pairedChanges(next: number[], base: number[], truthNext: number, truthB
   const sdNext = Math.sqrt(a.variance);
   const sdBase = Math.sqrt(b.variance);
   const sdSum = sdNext + sdBase;
-  const d = next.map((v, r) => (v - truthNext) ** 2 - (base[r] - truthBase) ** 2);
   const dStats = meanAndVariance(d);
   const mseNext = next.reduce((s, v) => s + (v - truthNext) ** 2, 0) / m;
   const mseBase = base.reduce((s, v) => s + (v - truthBase) ** 2, 0) / m;
@@ -349,13 +351,17 @@ function failureChange(base: Cell, next: Cell, paired: boolean): FailureChange {
   return { base: failedBase, next: failedNext, onlyNext, onlyBase, p: failedBase + failedNext === 0 ? null : signTest(onlyNext, onlyBase).p };
 }
 
+/** α = 1 − level split by Bonferroni over the tests a cell gets: t, sign and McNemar paired; Welch and Fisher unpaired. */
+function testLevelOf(level: number, paired: boolean): number {
+  return (1 - level) / (paired ? 3 : 2);
+}
+
 function compareCell(base: Cell, next: Cell, truthBase: number, truthNext: number, pairedRuns: boolean, tolerance: Tolerance, level: number): CellComparison {
   const reasons: string[] = [];
   const paired = pairedRuns && base.estimates.length === next.estimates.length;
   if (pairedRuns && !paired) reasons.push(`unpaired: ${base.estimates.length} vs ${next.estimates.length} replicates`);
   if (truthBase !== truthNext) reasons.push(`the true value changed (${truthBase} → ${truthNext}); each run is scored against its own`);
-  const alpha = 1 - level;
-  const testLevel = alpha / (paired ? 3 : 2);
+  const testLevel = testLevelOf(level, paired);
 
   let test: TTest | null;
   let shift: Estimate | null = null;
@@ -378,7 +384,7 @@ function compareCell(base: Cell, next: Cell, truthBase: number, truthNext: numbe
     sign = signTestOf(differences);
     const errorChanges = Float64Array.from(nextValues, (a, r) => Math.abs(a - truthNext) - Math.abs(baseValues[r] - truthBase)).sort();
     medianChange = errorChanges.length ? quantileOfSorted(errorChanges, 0.5) : null;
-    const paired = pairedChanges(nextValues, baseValues, truthNext, truthBase);
+    const paired = pairedChanges(nextValues, baseValues, truthNext, truthBase, differences);
     if (paired) {
       changes = paired;
       // The raw shift of the estimates is the bias change plus the change of the truth, with the same paired SE.
@@ -399,7 +405,9 @@ function compareCell(base: Cell, next: Cell, truthBase: number, truthNext: numbe
   const beyondTolerance = exceeds(Math.abs(rmse.change), toleranceNats);
   const meanVerdict = significant && beyondTolerance ? (test!.difference > 0 ? 'worse' : 'improved') : null;
   const signVerdict = sign && sign.p <= testLevel && medianChange !== null && exceeds(Math.abs(medianChange), toleranceNats) ? (sign.above > sign.below ? 'worse' : 'improved') : null;
-  const failureVerdict = failures.p !== null && failures.p <= testLevel ? (failures.next > failures.base ? 'worse' : 'improved') : null;
+  // Paired: which run failed on more of the same draws. Unpaired: which run's failure rate is higher (the runs may differ in size).
+  const failedMore = paired ? failures.onlyNext! > failures.onlyBase! : failures.next / next.estimates.length > failures.base / base.estimates.length;
+  const failureVerdict = failures.p !== null && failures.p <= testLevel ? (failedMore ? 'worse' : 'improved') : null;
 
   const meanReason = () => `the ${pct(1 - testLevel)} interval of the ${testName} excludes 0 (p = ${formatNumber(test!.p)}) and |ΔRMSE| = ${formatNumber(Math.abs(rmse.change))} exceeds the tolerance ${formatNumber(toleranceNats)} nats`;
   const signReason = () => `${sign!.above > sign!.below ? sign!.above : sign!.below} of ${sign!.above + sign!.below} changed replicates got ${sign!.above > sign!.below ? 'worse' : 'better'} (sign test p = ${formatNumber(sign!.p)} ≤ ${formatNumber(testLevel)}; median change of |error| ${formatNumber(medianChange!)} nats)`;
@@ -511,6 +519,7 @@ export function compareRuns(base: RunFile, next: RunFile, options: CompareOption
     pairing,
     tolerance: { ...tolerance, text: describeTolerance(tolerance) },
     level,
+    testLevel: testLevelOf(level, pairing.paired),
     counts,
     cells,
     added,

@@ -35,6 +35,12 @@ export function signTest(above: number, below: number, ties = 0): SignTest {
   return { above, below, ties, p };
 }
 
+/** One-sided exact sign test: P(X ≥ above) for X ~ Binomial(above + below, ½), the chance of so many or more above. */
+export function signTestAbove(above: number, below: number): number {
+  // By symmetry P(X ≥ a) = P(X ≤ m − a): the lower tail keeps its digits where 1 − cdf would lose them.
+  return above + below === 0 ? 1 : binomialHalfCdf(below, above + below);
+}
+
 /** Sign test on differences: positive ones against negative ones, zeros and non-finite values dropped. */
 export function signTestOf(differences: ArrayLike<number>): SignTest {
   let above = 0;

@@ -20,7 +20,7 @@
  * (dimension) hold no cell and do not enter its average.
  */
 import { modelConfidenceSet } from './best-set.js';
-import { signTest } from './exact-tests.js';
+import { signTestAbove } from './exact-tests.js';
 import type { CellScores } from './score.js';
 
 /** What ranking needs of a cell. */
@@ -166,7 +166,7 @@ function signGuard(members: RankableCell[], comparable: RankableCell[], losses: 
       if (loss[r] > leaderLoss[r]) worse++;
       else if (loss[r] < leaderLoss[r]) better++;
     }
-    p.set(c, worse > better ? signTest(worse, better).p / 2 : 1);
+    p.set(c, signTestAbove(worse, better));
   }
   const ordered = [...p.entries()].sort((a, b) => a[1] - b[1]);
   for (let i = 0; i < ordered.length; i++) {
@@ -188,30 +188,36 @@ export function rankCells(cells: RankableCell[], truthOf: (scenario: string) => 
   return [...groups.values()].map((group) => rankCell(group, truthOf(group[0].scenario), settings, seedOf(group[0].scenario, group[0].n)));
 }
 
+interface Tally {
+  sum: number;
+  cells: number;
+  failed: number;
+}
+
+function tally(into: Tally, entry: RankEntry): void {
+  into.sum += entry.rank;
+  into.cells += 1;
+  if (entry.status === 'failed') into.failed += 1;
+}
+
 /** Average ranks per group (named by `groupOf(scenario)`) and over all cells. */
 export function overallRanks(rankings: Ranking[], groupOf: (scenario: string) => string): OverallRank[] {
-  const table = new Map<string, Map<string, { sum: number; cells: number; failed: number }>>();
-  const add = (row: Map<string, { sum: number; cells: number; failed: number }>, key: string, entry: RankEntry) => {
-    const cell = row.get(key) ?? { sum: 0, cells: 0, failed: 0 };
-    cell.sum += entry.rank;
-    cell.cells += 1;
-    if (entry.status === 'failed') cell.failed += 1;
-    row.set(key, cell);
-  };
+  const rows = new Map<string, { groups: Map<string, Tally>; all: Tally }>();
   for (const ranking of rankings) {
     if (ranking.perturbation !== null) continue;
     const group = groupOf(ranking.scenario);
     for (const entry of ranking.entries) {
-      if (!table.has(entry.estimator)) table.set(entry.estimator, new Map());
-      const row = table.get(entry.estimator)!;
-      add(row, group, entry);
-      add(row, '\u0000all', entry);
+      let row = rows.get(entry.estimator);
+      if (!row) rows.set(entry.estimator, (row = { groups: new Map(), all: { sum: 0, cells: 0, failed: 0 } }));
+      if (!row.groups.has(group)) row.groups.set(group, { sum: 0, cells: 0, failed: 0 });
+      tally(row.groups.get(group)!, entry);
+      tally(row.all, entry);
     }
   }
-  const summary = ({ sum, cells, failed }: { sum: number; cells: number; failed: number }): GroupRank => ({ meanRank: sum / cells, cells, failedCells: failed });
-  return [...table.entries()].map(([estimator, row]) => ({
+  const summary = ({ sum, cells, failed }: Tally): GroupRank => ({ meanRank: sum / cells, cells, failedCells: failed });
+  return [...rows.entries()].map(([estimator, row]) => ({
     estimator,
-    groups: Object.fromEntries([...row.entries()].filter(([g]) => g !== '\u0000all').map(([g, v]) => [g, summary(v)])),
-    all: summary(row.get('\u0000all')!),
+    groups: Object.fromEntries([...row.groups.entries()].map(([g, v]) => [g, summary(v)])),
+    all: summary(row.all),
   }));
 }

@@ -41,7 +41,10 @@ export function wideBestSetNote(rankings: Ranking[], label: (spec: string) => st
   const where = new Map<string, number[]>();
   for (const ranking of rankings) for (const e of wideBestSetMembers(ranking)) where.set(e.estimator, [...(where.get(e.estimator) ?? []), ranking.n]);
   if (!where.size) return null;
-  const replicates = rankings[0].comparedReplicates;
+  const counts = rankings.map((r) => r.comparedReplicates);
+  const low = Math.min(...counts);
+  const high = Math.max(...counts);
+  const replicates = low === high ? `${low}` : `${low}–${high}`;
   const list = [...where.entries()].map(([spec, sizes]) => `${label(spec)} (n = ${sizes.join(', ')})`).join('; ');
   return `In the best set with at least twice the leader's RMSE: ${list}. Over ${replicates} replicates their squared errors vary too much to be told apart from the best, and they do not lose to the leader on most draws; more replicates would separate them if they are worse.`;
 }

@@ -8,6 +8,7 @@
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
+import normalEntropy from '@stdlib/stats-base-dists-normal-entropy';
 import { main } from '../src/cli.js';
 import type { Sample } from '../src/contracts.js';
 import { UsageError } from '../src/errors.js';
@@ -374,15 +375,15 @@ describe('advice that no estimator is usable', () => {
   });
 
   it('every RMSE above the spread of the true values: no recommendation, and the reason names both numbers', async () => {
-    // Two normal laws whose entropies differ by log(1.01) (closed form ½·log(2πeσ²)): an SD of log(1.01)/2 = 0.004975
-    // nats. At n = 50 every estimator's RMSE is far above that.
+    // Two normal laws whose entropies differ by log(1.01), from @stdlib's normal entropy: an SD of half that,
+    // 0.004975 nats. At n = 50 every estimator's RMSE is far above it.
     const { runTargeted } = await import('../src/advise/benchmark.js');
     const { summarise, recommend } = await import('../src/advise/recommend.js');
     const bench = await runTargeted({ scenarios: ['normal', 'normal:sigma=1.01'], estimators: applicableEstimators(1), n: 50, budgetSeconds: 30, minReplicates: 10, maxReplicates: 10, workers: 1 });
     const summaries = summarise(bench.run);
     const recommendation = recommend(bench.run, summaries);
     expect(recommendation.recommended).toBeNull();
-    const spread = Math.log(1.01) / 2;
+    const spread = (normalEntropy(0, 1.01) - normalEntropy(0, 1)) / 2;
     expect(recommendation.reason).toMatch(new RegExp(`larger than the spread of the true values over the matching scenarios \\(SD ${spread.toPrecision(2)} nats\\)`));
     expect(Math.min(...summaries.map((x) => x.meanRmse.value).filter(Number.isFinite))).toBeGreaterThan(spread);
   });

@@ -19,7 +19,7 @@ import { getEstimator, replaceEstimator } from '../estimators/index.js';
 import { useEstimatorModules } from '../src/modules.js';
 import { shiftedKozachenkoLeonenko } from './fixtures/shifted-kozachenko-leonenko.js';
 import { wildKozachenkoLeonenko } from './fixtures/wild-kozachenko-leonenko.js';
-import { fisherExact, signTest } from '../src/exact-tests.js';
+import { fisherExact, signTest, signTestAbove } from '../src/exact-tests.js';
 import scipy from './fixtures/compare.json' with { type: 'json' };
 
 const dir = mkdtempSync(join(tmpdir(), 'hhat-compare-'));
@@ -78,6 +78,8 @@ describe('t tests (reference: SciPy, test/fixtures/make_compare_fixture.py)', ()
 
   it.each(scipy.sign.map((r) => [r.above, r.below, r] as const))('sign test %i worse against %i better (scipy.stats.binomtest, p = ½)', (_a, _b, ref) => {
     expect(relative(signTest(ref.above, ref.below).p, ref.p)).toBeLessThan(1e-10);
+    // One-sided, where it has the larger count: half the two-sided p (the tails are symmetric at p = ½).
+    if (ref.above > ref.below) expect(relative(signTestAbove(ref.above, ref.below), ref.p / 2)).toBeLessThan(1e-10);
   });
 
   it.each(scipy.fisher.map((r) => [JSON.stringify(r.table), r] as const))("Fisher's exact test on %s (scipy.stats.fisher_exact)", (_t, ref) => {
@@ -315,7 +317,9 @@ describe('comparing runs', () => {
     const row = formatComparisonMarkdown(comparison).split('\n').find((l) => l.includes(`| ${c.n} |`) && l.includes(c.scenario))!;
     expect(row).toMatch(/\| \+0\.0500 ± [0-9.e-]+ \|/);
     expect(formatComparisonJunit(comparison)).toMatch(/bias [^\n]* \(\+0\.0500 ± [0-9.e-]+\)/);
-    expect(JSON.parse(formatComparisonJson(comparison)).cells[0].bias).toHaveProperty('changeSe');
+    const parsed = JSON.parse(formatComparisonJson(comparison)) as Comparison;
+    const same = parsed.cells.find((x) => x.scenario === c.scenario && x.estimator === c.estimator && x.n === c.n)!;
+    expect(same.bias.changeSe).toBeCloseTo(c.bias.changeSe, 14);
   });
 
   it('shard files are refused with one line', () => {
@@ -358,6 +362,28 @@ describe('comparing runs', () => {
     expect(comparison.cells[0].test!.kind).toBe('welch-t');
     expect(comparison.cells[0].status).not.toBe('unchanged');
     expect(formatComparisonMarkdown(comparison).split('\n')[0]).toMatch(/\(unpaired, tolerance 0 nats\)$/);
+  });
+
+  it('unpaired failures compare rates, not counts: 10 of 200 → 8 of 20 is worse', async () => {
+    const b = await runInProcess({ ...planB, replicates: 200 });
+    const next = await runInProcess({ ...planB, replicates: 20, seed: 100 });
+    const fail = (run: RunFile, replicates: number[]) => {
+      const cell = run.cells[0];
+      const truth = run.scenarios[0].truth;
+      for (const r of replicates) {
+        cell.estimates[r] = null;
+        cell.failures.push({ replicate: r, message: 'numeric: test' });
+      }
+      cell.scores = scoreCell(cell.estimates.map((v) => (v === null ? NaN : v)), truth, cell.n);
+    };
+    fail(b, Array.from({ length: 10 }, (_, i) => i * 20));
+    fail(next, [0, 2, 4, 6, 8, 10, 12, 14]);
+    const [cell] = compareRuns(b, next, { tolerance: parseTolerance('1000%') }).cells;
+    // Fisher's exact test on [[8, 12], [10, 190]]: scipy.stats.fisher_exact(...).pvalue = 2.7254076011028743e-05
+    // (SciPy 1.17.1, run once for this test).
+    expect(cell.failures.p).toBeCloseTo(2.7254076011028743e-5, 15);
+    expect(cell.status).toBe('worse');
+    expect(cell.reasons[0]).toMatch(/^failures 10 of 200 → 8 of 20 \(Fisher exact p = /);
   });
 });
 

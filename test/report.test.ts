@@ -18,8 +18,7 @@ import { main } from '../src/cli.js';
 import { formatValue } from '../src/format.js';
 import { renderReport, writeReport } from '../src/report/report.js';
 import { biasTextChart } from '../src/report/text-chart.js';
-import { robustnessTable } from '../src/tables.js';
-import { rankText } from '../src/verdict-text.js';
+import { robustnessTable, scenarioTables } from '../src/tables.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'hhat-report-'));
 let run: RunFile;
@@ -223,9 +222,27 @@ describe('the robustness section', () => {
     for (const cell of shown) expect(report.html).toContain(`>${cell}</td>`);
     // Each carries its unit: nats for drift and outliers, SD for bias changes and tuning, SD for recording steps.
     for (const cell of shown.filter((c) => /\d/.test(c))) expect(cell).toMatch(/ (nats|SD)$/);
-    // Ranks read the same too: the scenario table's rank cells equal the terminal's.
-    const ranks = run.rankings.flatMap((r) => r.entries.map((e) => rankText(e, r)));
-    for (const rank of new Set(ranks)) expect(report.html).toContain(`>${rank}</td>`);
+    // Ranks read the same too, row by row: each scenario's rows (estimator and its rank at every n) in the page's
+    // table equal the terminal table's, parsed from each independently.
+    const sizes = [...new Set(run.cells.map((c) => c.n))].length;
+    for (const info of run.scenarios) {
+      const terminalRows = scenarioTables(run, 'nats')
+        .split(/\n(?=\S+  \(d=)/)
+        .find((block) => block.startsWith(`${info.id}  (`))!
+        .split('\n')
+        .filter((line) => line.startsWith('│') && !line.includes('estimator'))
+        .map((line) => {
+          const cells = line.split('│').slice(1, -1).map((c) => c.trim());
+          return [cells[0], ...cells.slice(1, 1 + sizes).map((c) => c.split(/ {2}/).pop()!)];
+        });
+      const table = report.html.split('<table').find((t) => t.includes(`<caption>${info.id}: RMSE`))!;
+      const pageRows = [...table.matchAll(/<tr>(.*?)<\/tr>/g)]
+        .map((m) => [...m[1].matchAll(/<td[^>]*>(.*?)<\/td>/g)].map((c) => c[1]))
+        .filter((cells) => cells.length)
+        .map((cells) => [cells[0], ...Array.from({ length: sizes }, (_, i) => cells[2 + 2 * i])]);
+      expect(pageRows.length).toBeGreaterThan(0);
+      expect(pageRows).toEqual(terminalRows);
+    }
   });
 
   it('writeReport writes nothing when rendering fails', async () => {

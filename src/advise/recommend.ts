@@ -67,7 +67,7 @@ export interface Recommendation {
   /** Null when no estimator is usable here; `reason` says why. */
   recommended: EstimatorSummary | null;
   runnerUp: EstimatorSummary | null;
-  /** Scenarios where the runner-up is in the best set too (cannot be told apart from the best). */
+  /** Scenarios where the runner-up and the recommended estimator are both in the best set. */
   runnerUpTiedOn: string[];
   reason: string;
 }
@@ -213,7 +213,9 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 
   let tail = '';
   let runnerUpTiedOn: string[] = [];
   if (runnerUp) {
-    runnerUpTiedOn = bestSetScenarios(run, runnerUp.estimator);
+    // Within noise of the recommended one: scenarios where both are in the best set.
+    const recommendedBest = new Set(bestSetScenarios(run, recommended.estimator));
+    runnerUpTiedOn = bestSetScenarios(run, runnerUp.estimator).filter((s) => recommendedBest.has(s));
     if (count === 1) {
       tail = runnerUpTiedOn.length
         ? `; the runner-up ${runnerUp.label} (${formatNats(runnerUp.meanRmse.value)}) cannot be told apart from it on the same draws`
