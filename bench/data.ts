@@ -40,8 +40,9 @@ function delimitedText(values: Float64Array, dim: number, delimiter: string, for
 }
 
 /** A version 1.0 .npy of little-endian doubles, laid out as NumPy's format description says. */
-function npyBytes(values: Float64Array, dim: number): Buffer {
-  let header = `{'descr': '<f8', 'fortran_order': False, 'shape': (${rows}, ${dim}), }`;
+/** A NumPy .npy file (format 1.0, little-endian float64, C order) of row-major values, `dim` columns. */
+export function npyBytes(values: Float64Array, dim: number): Buffer {
+  let header = `{'descr': '<f8', 'fortran_order': False, 'shape': (${values.length / dim}, ${dim}), }`;
   const total = 10 + header.length + 1;
   header += ' '.repeat((64 - (total % 64)) % 64) + '\n';
   const prefix = Buffer.alloc(10);

@@ -103,7 +103,7 @@ export function writeFileAtomic(path: string, text: string, hint?: string): void
 }
 
 /**
- * A test seam for bench/kill-test.ts: HHAT_PAUSE_BEFORE_RENAME_MS holds the write of a run file (not of a
+ * A test seam for test/scripts/kill-test.ts: HHAT_PAUSE_BEFORE_RENAME_MS holds the write of a run file (not of a
  * checkpoint) between its flushed temporary and the rename, so the script can kill the process exactly there.
  */
 function pauseForKillTest(path: string): void {

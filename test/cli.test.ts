@@ -8,6 +8,7 @@ import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import normalEntropy from '@stdlib/stats-base-dists-normal-entropy';
 import { main } from '../src/cli.js';
+import { checkSampleMemory } from '../src/memory.js';
 import { parseScenario } from '../scenarios/index.js';
 import { replicateRng } from '../src/rng.js';
 
@@ -133,14 +134,20 @@ describe('the package entry', () => {
 
 describe('sizes the machine cannot hold', () => {
   it('bench refuses them up front, in one line naming what they would need; --n beyond the schema range is refused too', async () => {
-    // 1e8 points in d = 40: 4e9 values, under the typed-array limit, but 8 bytes × (6·40 + 28) per point and
-    // worker is about 214 GB per worker (src/memory.ts), beyond any machine this runs on.
-    const big = await run(['bench', '--scenario', 'gaussian:dim=40', '--n', '100000000', '--replicates', '2', '--workers', '1', '--quiet']);
+    // 1e8 points in d = 50 are 5e9 values, past the 2^32 a typed array can hold on any machine.
+    const big = await run(['bench', '--scenario', 'gaussian:dim=50', '--n', '100000000', '--replicates', '2', '--workers', '1', '--quiet']);
     expect(big.code).toBe(2);
     expect(big.err.trim().split('\n')).toHaveLength(1);
-    expect(big.err).toMatch(/n = 100000000 needs about \d+ GB of memory .*more than this machine's \d+ GB; use n ≤ \d+/);
+    expect(big.err).toMatch(/n = 100000000 asks for 100000000 points in d = 50, 5000000000 values in one array, beyond the 4294967296 a JavaScript typed array can hold/);
     const beyond = await run(['bench', '--scenario', 'normal', '--n', '1e12']);
     expect(beyond.code).toBe(2);
     expect(beyond.err).toMatch(/--n: "1e12" is not allowed; sample sizes must be integers from 2 to 100000000/);
+  });
+
+  it('the memory check names what a size needs against the memory given (a 16 GB machine here)', () => {
+    // 1e8 points in d = 5 on 2 workers: 150 MB + 2 × 1e8 × 8 × (6·5 + 28) bytes = 92.95 GB (src/memory.ts's
+    // formula, worked out here by hand).
+    expect(() => checkSampleMemory('n = 100000000', 1e8, 5, { workers: 2, totalBytes: 16e9 })).toThrow(/needs about 93 GB of memory .*more than this machine's 16 GB/);
+    expect(() => checkSampleMemory('n = 1000', 1000, 5, { workers: 2, totalBytes: 16e9 })).not.toThrow();
   });
 });

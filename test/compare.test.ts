@@ -16,6 +16,7 @@ import { assembleRun, writeRunFile, type RunFile } from '../src/results.js';
 import { scoreCell } from '../src/score.js';
 import { UsageError } from '../src/errors.js';
 import { getEstimator, replaceEstimator } from '../estimators/index.js';
+import type { Estimator } from '../src/contracts.js';
 import { useEstimatorModules } from '../src/modules.js';
 import { shiftedKozachenkoLeonenko } from './fixtures/shifted-kozachenko-leonenko.js';
 import { wildKozachenkoLeonenko } from './fixtures/wild-kozachenko-leonenko.js';
@@ -36,6 +37,16 @@ async function run(args: string[]): Promise<{ code: number; out: string; err: st
 async function runInProcess(input: PlanInput): Promise<RunFile> {
   const { plan } = resolvePlan(input);
   return assembleRun(await runPlan(plan, { workers: 1, isolation: 'in-process' }), null);
+}
+
+/** Runs `work` with `estimator` in place of the built-in of its id, putting the built-in back whatever happens. */
+async function withEstimator<T>(estimator: Estimator, work: () => Promise<T>): Promise<T> {
+  replaceEstimator(estimator);
+  try {
+    return await work();
+  } finally {
+    replaceEstimator(builtInKl);
+  }
 }
 
 function save(name: string, value: RunFile): string {
@@ -246,9 +257,7 @@ describe('comparing runs', () => {
 
   it('a module returning 1e200 (or 1e150) on 1 draw in 20 is worse, and fails --fail-on worse; so does a run missing cells', async () => {
     for (const value of [1e200, 1e150]) {
-      replaceEstimator(wildKozachenkoLeonenko(value));
-      const wild = await runInProcess(planA);
-      replaceEstimator(builtInKl);
+      const wild = await withEstimator(wildKozachenkoLeonenko(value), () => runInProcess(planA));
       const wildPath = save(`wild-${value}.json`, wild);
       const comparison = compareRuns(base, wild);
       const klCells = comparison.cells.filter((c) => c.estimator.startsWith('kozachenko-leonenko:'));
@@ -331,9 +340,7 @@ describe('comparing runs', () => {
     const b = await runInProcess(planB);
     const results: Record<string, { pairedP: number; unpairedP: number; paired: string; unpaired: string }> = {};
     for (const shift of [0.005, -0.005]) {
-      replaceEstimator(shiftedKozachenkoLeonenko(shift));
-      const next = await runInProcess(planB);
-      replaceEstimator(builtInKl);
+      const next = await withEstimator(shiftedKozachenkoLeonenko(shift), () => runInProcess(planB));
       const [paired] = compareRuns(b, next).cells;
       const [unpaired] = compareRuns(b, next, { pairing: 'unpaired' }).cells;
       expect(paired.paired).toBe(true);

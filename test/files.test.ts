@@ -127,14 +127,14 @@ describe('one output, one process', () => {
     const out = join(dir, 'shared.json');
     const first = spawn(process.execPath, [bin, 'bench', '--scenario', 'normal', '--n', '20000', '--replicates', '200', '--estimator', 'kozachenko-leonenko', '--out', out, '--quiet'], { stdio: 'ignore' });
     // Wait until the first run holds the lock.
-    for (let i = 0; i < 200 && !existsSync(`${out}.lock`); i++) await new Promise((r) => setTimeout(r, 25));
+    for (let i = 0; i < 1200 && !existsSync(`${out}.lock`); i++) await new Promise((r) => setTimeout(r, 25));
     expect(existsSync(`${out}.lock`)).toBe(true);
     const second = await cli(['bench', '--scenario', 'normal', '--n', '20000', '--replicates', '200', '--estimator', 'kozachenko-leonenko', '--out', out, '--quiet', '--resume']);
     expect(second.code).toBe(1);
     expect(second.err).toMatch(new RegExp(`is being written by process ${first.pid} on .*; wait for it to finish, or choose another --out`));
     first.kill('SIGKILL');
     await new Promise((r) => first.once('exit', r));
-    // The killed run left its lock behind: its process is gone, so the lock is stale and the resume proceeds.
+    // The killed run left its lock behind: its process is gone, so the lock is stale and the next taker gets it.
     expect(existsSync(`${out}.lock`)).toBe(true);
     const release = acquireLock(out);
     release();

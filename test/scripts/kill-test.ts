@@ -4,7 +4,7 @@
  * writes holds exactly the estimates of an uninterrupted run. Then it kills a run inside its final write
  * (between the flushed temporary file and the rename) and checks that the resume finishes from the checkpoint.
  *
- *   npx tsx bench/kill-test.ts [--interruptions 24] [--seed 7]
+ *   npx tsx test/scripts/kill-test.ts [--interruptions 24] [--seed 7]
  *
  * Exits 1 on the first mismatch. CI runs it (.ci/run).
  */
@@ -12,7 +12,7 @@ import { spawn, spawnSync } from 'node:child_process';
 import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
-import { rngFromSeed } from '../src/rng.js';
+import { rngFromSeed } from '../../src/rng.js';
 
 const args = process.argv.slice(2);
 const option = (name: string, fallback: number) => {
