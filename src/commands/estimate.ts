@@ -2,6 +2,7 @@ import type { Command } from 'commander';
 import { UsageError, EstimateError, type EstimateErrorCode } from '../errors.js';
 import { formatValue, renderTable, toBase, type Base } from '../format.js';
 import { readSample, findRepeats, describeRepeats } from '../data.js';
+import { selectTableColumns } from '../data/columns.js';
 import { describeReference, meanLogReference, parseReference } from '../reference.js';
 import { unitLabel } from '../units.js';
 import { describeRegistration, resolveModulePath, useEstimatorModules } from '../modules.js';
@@ -194,12 +195,13 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
         if (options.xColumns === undefined || options.yColumns === undefined) throw new UsageError('mutual information needs both --x-columns and --y-columns');
         if (options.columns !== undefined) throw new UsageError('--columns cannot be combined with --x-columns/--y-columns');
         if (options.against !== undefined) throw new UsageError('--against (a divergence) cannot be combined with --x-columns/--y-columns (mutual information)');
-        const x = load(options.xColumns);
-        const y = load(options.yColumns);
+        // The file is read once, every column: X and Y are selections of it.
+        const x = selectTableColumns(loaded, options.xColumns, file);
+        const y = selectTableColumns(loaded, options.yColumns, file);
         const overlap = x.columnNumbers.filter((c) => y.columnNumbers.includes(c));
         if (overlap.length) throw new UsageError(`--x-columns and --y-columns both name column ${overlap[0]}; X and Y must be different columns`);
         sample = joinColumns(x.sample, y.sample);
-        loaded = { ...x, sample, columnNames: [...x.columnNames, ...y.columnNames], columnNumbers: [...x.columnNumbers, ...y.columnNumbers] };
+        loaded = { ...loaded, sample, columnNames: [...x.columnNames, ...y.columnNames], columnNumbers: [...x.columnNumbers, ...y.columnNumbers] };
         quantity = 'mutual-information';
       } else if (options.against !== undefined) {
         const q = load(options.columns, options.against);
