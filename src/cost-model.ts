@@ -125,21 +125,35 @@ export function predictedSeconds(configured: ConfiguredEstimator, n: number, dim
 }
 
 /**
- * The largest number of rows m ≤ n whose predicted time is within `seconds` (n itself when the estimator is
- * unknown to the model). For a divergence, P and Q shrink together: their ratio is kept.
+ * n when `fits(n)`, else the largest m < n with `fits(m)` (fits must hold for small m and fail beyond some
+ * point), rounded down to two significant digits so a stated subsample size reads as chosen.
  */
-export function rowsWithin(configured: ConfiguredEstimator, n: number, dim: number, seconds: number, context: CostContext = {}): number {
-  const at = (m: number): number | null => predictedSeconds(configured, m, dim, context.qN === undefined ? context : { ...context, qN: Math.round((context.qN * m) / n) });
-  const full = at(n);
-  if (full === null || full <= seconds) return n;
+export function largestRowsWhere(n: number, fits: (m: number) => boolean): number {
+  if (fits(n)) return n;
   let lo = 0;
   let hi = n;
   while (hi - lo > 1) {
     const mid = Math.floor((lo + hi) / 2);
-    if ((at(mid) ?? 0) <= seconds) lo = mid;
+    if (fits(mid)) lo = mid;
     else hi = mid;
   }
-  return lo;
+  return roundRowsDown(lo);
+}
+
+/**
+ * The rows an estimator may use within `seconds`: n when its predicted time fits (or the model does not know
+ * it), else the largest subsample that does (largestRowsWhere). For a divergence, P and Q shrink together:
+ * their ratio is kept.
+ */
+export function rowsWithin(configured: ConfiguredEstimator, n: number, dim: number, seconds: number, context: CostContext = {}): number {
+  const at = (m: number): number | null => predictedSeconds(configured, m, dim, context.qN === undefined ? context : { ...context, qN: Math.round((context.qN * m) / n) });
+  if (at(n) === null) return n;
+  return largestRowsWhere(n, (m) => (at(m) ?? 0) <= seconds);
+}
+
+/** Predicted seconds of one benchmark replicate: every estimator once at n rows (those the model knows). */
+export function predictedReplicateSeconds(configured: readonly ConfiguredEstimator[], n: number, dim: number): number {
+  return configured.reduce((sum, c) => sum + (predictedSeconds(c, n, dim) ?? 0), 0);
 }
 
 /** A row count rounded down to two significant digits, so stated subsample sizes read as chosen, not computed. */

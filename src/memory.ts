@@ -72,9 +72,9 @@ export function checkSampleMemory(what: string, n: number, dim: number, options:
   }
   const needed = sampleMemoryBytes(n, dim, workers);
   if (needed <= total) return;
-  const fitting = Math.floor((total - BASE_BYTES) / (workers * 8 * (SAMPLE_COPIES * dim + PER_POINT_DOUBLES)));
+  const fitting = Math.floor((total - BASE_BYTES) / (workers * bytesPerWorker(1, dim)));
   const fewerWorkers = workers > 1 && sampleMemoryBytes(n, dim, 1) <= total ? `, or fewer workers (--workers ${Math.max(1, Math.floor((total - BASE_BYTES) / bytesPerWorker(n, dim)))})` : '';
   throw new UsageError(
-    `${what} needs about ${formatBytes(needed)} of memory (${workers} worker${workers === 1 ? '' : 's'} × ${n} points in d = ${dim}, about ${8 * (SAMPLE_COPIES * dim + PER_POINT_DOUBLES)} bytes per point for the sample and the estimators' working copies), more than this machine's ${formatBytes(total)}; use n ≤ ${Math.max(0, fitting)}${fewerWorkers}`,
+    `${what} needs about ${formatBytes(needed)} of memory (${workers} worker${workers === 1 ? '' : 's'} × ${n} points in d = ${dim}, about ${bytesPerWorker(1, dim)} bytes per point for the sample and the estimators' working copies), more than this machine's ${formatBytes(total)}; use n ≤ ${Math.max(0, fitting)}${fewerWorkers}`,
   );
 }

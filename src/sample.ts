@@ -43,18 +43,22 @@ export function checkFiniteValues(id: string, sample: Sample): void {
 }
 
 /**
- * A seeded uniform sample of m of the n rows, without replacement, in their original order: selection
- * sampling (Knuth, The Art of Computer Programming vol. 2, §3.4.2, Algorithm S), which keeps row i with
- * probability (m − kept)/(n − i), so every m-subset is equally likely. One pass, no index array: a large
- * sample costs only the m rows kept. `xDim` carries over; a divergence's Q sample is not touched.
+ * A uniform sample of m of the n rows, without replacement, in their original order: each row gets a key
+ * from `rng` and the m rows with the smallest keys are kept. The m smallest of n independent uniform keys
+ * are a uniformly random m-subset, and with the same keys a smaller subsample is part of every larger one,
+ * so estimators cut to different sizes still share rows (their comparison stays paired). `xDim` carries
+ * over; a divergence's Q sample is not touched.
  */
 export function uniformRowSubsample(sample: Sample, m: number, rng: () => number): Sample {
   const { n, dim, data } = sample;
   if (!Number.isInteger(m) || m < 0 || m > n) throw new RangeError(`a subsample of ${m} rows needs 0 ≤ m ≤ n = ${n}`);
+  const keys = new Float64Array(n);
+  for (let i = 0; i < n; i++) keys[i] = rng();
+  // The m-th smallest key (53-bit keys: ties have probability about n²·2⁻⁵³).
+  const threshold = m === 0 ? -1 : Float64Array.from(keys).sort()[m - 1];
   const out = new Float64Array(m * dim);
-  let kept = 0;
-  for (let i = 0; i < n && kept < m; i++) {
-    if ((n - i) * rng() < m - kept) {
+  for (let i = 0, kept = 0; i < n && kept < m; i++) {
+    if (keys[i] <= threshold) {
       for (let j = 0, from = i * dim, to = kept * dim; j < dim; j++) out[to + j] = data[from + j];
       kept++;
     }
@@ -63,14 +67,14 @@ export function uniformRowSubsample(sample: Sample, m: number, rng: () => number
 }
 
 /**
- * `rows` of the sample's rows by uniformRowSubsample, drawn from a stream seeded by `seed` and the size (a
- * divergence's Q sample cut in proportion, from the same stream); the sample itself when rows ≥ n.
+ * `rows` of the sample's rows by uniformRowSubsample, keys drawn from a stream seeded by `seed` alone, so
+ * smaller subsamples of one sample and seed lie inside larger ones (a divergence's Q sample likewise, cut in
+ * proportion, from its own stream); the sample itself when rows ≥ n.
  */
 export function seededRowSubsample(sample: Sample, rows: number, seed: string): Sample {
   if (rows >= sample.n) return sample;
-  const rng = rngFromSeed(`hhat-row-subsample\n${seed}\n${rows}`);
-  const cut = uniformRowSubsample(sample, rows, rng);
+  const cut = uniformRowSubsample(sample, rows, rngFromSeed(`hhat-row-subsample\n${seed}`));
   if (!sample.q) return cut;
   const qRows = Math.min(sample.q.n, Math.max(1, Math.round((sample.q.n * rows) / sample.n)));
-  return { ...cut, q: uniformRowSubsample(sample.q, qRows, rng) };
+  return { ...cut, q: uniformRowSubsample(sample.q, qRows, rngFromSeed(`hhat-row-subsample\n${seed}\nq`)) };
 }

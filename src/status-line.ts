@@ -7,6 +7,8 @@
  *   status.show('reading data.csv: 45% of 202 MB');
  *   status.clear();
  */
+import { formatBytes } from './memory.js';
+
 export interface StatusLine {
   /** Replaces the line (redraws at most every 100 ms unless `force`). */
   show(text: string, force?: boolean): void;
@@ -37,5 +39,5 @@ export function statusLine(stream: { isTTY?: boolean; write(text: string): unkno
 /** "45% of 202 MB" for a reading progress callback. */
 export function describeReadProgress(bytesRead: number, totalBytes: number): string {
   const percent = totalBytes > 0 ? Math.floor((100 * bytesRead) / totalBytes) : 100;
-  return `${percent}% of ${totalBytes >= 1e6 ? `${Math.round(totalBytes / 1e6)} MB` : `${Math.ceil(totalBytes / 1e3)} kB`}`;
+  return `${percent}% of ${formatBytes(totalBytes)}`;
 }

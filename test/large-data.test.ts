@@ -16,7 +16,7 @@ import { checkSampleMemory, MAX_TYPED_ARRAY_LENGTH } from '../src/memory.js';
 import { seededRowSubsample, uniformRowSubsample } from '../src/sample.js';
 import { adviseFile, analysisRows } from '../src/advise/file.js';
 import { applicableEstimators } from '../src/advise/benchmark.js';
-import { parseEstimatorSpec } from '../estimators/index.js';
+import { listEstimators, parseEstimatorSpec } from '../estimators/index.js';
 
 const tempDir = mkdtempSync(join(tmpdir(), 'hhat-large-data-'));
 afterAll(() => rmSync(tempDir, { recursive: true, force: true }));
@@ -159,19 +159,39 @@ describe('uniform row subsamples', () => {
     expect(a.q!.n).toBe(50);
     expect(seededRowSubsample(sample, 1000, 'x')).toBe(sample);
   });
+
+  it('nests: with one seed, a smaller subsample lies inside every larger one, so cut estimators share rows', () => {
+    const sample = { n: 5000, dim: 1, data: Float64Array.from({ length: 5000 }, (_, i) => i) };
+    const sizes = [40, 300, 1200, 4999];
+    const cuts = sizes.map((rows) => new Set(seededRowSubsample(sample, rows, 'nest').data));
+    for (let k = 1; k < cuts.length; k++) for (const row of cuts[k - 1]) expect(cuts[k].has(row)).toBe(true);
+    expect(cuts.map((c) => c.size)).toEqual(sizes);
+  });
 });
 
 describe('the cost model', () => {
-  it('rowsWithin is the largest row count whose prediction fits (brute-force scan)', () => {
+  it('the cost model knows every built-in estimator: none runs unlimited for want of a prediction', () => {
+    for (const estimator of listEstimators()) {
+      const dim = estimator.quantity === 'entropy' ? Math.max(1, estimator.dims[0]) : 2;
+      const context = estimator.quantity === 'mutual-information' ? { xDim: 1 } : estimator.quantity === 'divergence' ? { qN: 1000 } : {};
+      const seconds = predictedSeconds(parseEstimatorSpec(estimator.id), 1000, dim, context);
+      expect(seconds, estimator.id).not.toBeNull();
+      expect(seconds!, estimator.id).toBeGreaterThan(0);
+    }
+  });
+
+  it('rowsWithin is the largest row count whose prediction fits (brute-force scan), rounded down to two digits below n', () => {
     for (const spec of ['kernel', 'kozachenko-leonenko-weighted', 'histogram']) {
       const configured = parseEstimatorSpec(spec);
       for (const seconds of [0.01, 0.3]) {
         const rows = rowsWithin(configured, 40000, 3, seconds);
         let brute = 0;
         for (let m = 1; m <= 40000; m++) if (predictedSeconds(configured, m, 3)! <= seconds) brute = m;
-        expect(rows, `${spec} ${seconds}`).toBe(brute);
+        expect(rows, `${spec} ${seconds}`).toBe(brute === 40000 ? 40000 : roundRowsDown(brute));
       }
     }
+    // All rows, even an unround count, when they fit.
+    expect(rowsWithin(parseEstimatorSpec('histogram'), 3456, 1, 10)).toBe(3456);
     expect(roundRowsDown(81_234)).toBe(81_000);
     expect(roundRowsDown(4_987_654)).toBe(4_900_000);
   });

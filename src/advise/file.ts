@@ -24,7 +24,7 @@ import type { Sample } from '../contracts.js';
 import { EstimateError, UsageError } from '../errors.js';
 import { MAX_BUDGET_SECONDS, tooFewPoints } from './setting.js';
 import { parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
-import { describeSeconds, predictedSeconds, roundRowsDown, rowsWithin } from '../cost-model.js';
+import { describeSeconds, largestRowsWhere, predictedReplicateSeconds, predictedSeconds, rowsWithin } from '../cost-model.js';
 import { defaultWorkers } from '../runner.js';
 import { seededRowSubsample } from '../sample.js';
 import type { Estimate } from '../score.js';
@@ -156,17 +156,9 @@ export function analysisRows(n: number, dim: number, estimators: readonly string
   // Superlinear: doubling the rows more than (say) 2.5-folds the predicted time, at the sizes that matter here.
   const nearLinear = configured.filter((c) => cost(c, 20000) <= 2.5 * cost(c, 10000));
   const fits = (m: number): boolean =>
-    configured.reduce((sum, c) => sum + cost(c, m), 0) * PREDICTION_OVERHEAD * replicates <= ANALYSIS_SHARE * budgetSeconds * workers &&
+    predictedReplicateSeconds(configured, m, dim) * PREDICTION_OVERHEAD * replicates <= ANALYSIS_SHARE * budgetSeconds * workers &&
     nearLinear.reduce((most, c) => Math.max(most, cost(c, m)), 0) * resamples <= BOOTSTRAP_SHARE * budgetSeconds;
-  if (fits(n)) return n;
-  let lo = 0;
-  let hi = n;
-  while (hi - lo > 1) {
-    const mid = Math.floor((lo + hi) / 2);
-    if (fits(mid)) lo = mid;
-    else hi = mid;
-  }
-  return roundRowsDown(lo);
+  return largestRowsWhere(n, fits);
 }
 
 function fmt(x: number, digits = 3): string {
@@ -218,8 +210,7 @@ function profileWarnings(profile: DataProfile, lookalike: Lookalike, command: st
  */
 function allRowsEstimate(fileSample: Sample, chosen: ConfiguredEstimator, label: string, budget: number, seed: string, stage: (text: string) => void): AllRowsEstimate {
   const { n, dim } = fileSample;
-  const rows = roundRowsDown(rowsWithin(chosen, n, dim, ALL_ROWS_SHARE * budget));
-  const used = rows >= n ? n : rows;
+  const used = rowsWithin(chosen, n, dim, ALL_ROWS_SHARE * budget);
   stage(`${label} on ${used === n ? 'all' : used} of your ${n} rows`);
   const started = performance.now();
   try {
@@ -253,11 +244,11 @@ export async function adviseFile(fileSample: Sample, options: FileAdviceOptions 
   // A file larger than the budget can benchmark is analysed on a seeded uniform subsample (see the file comment).
   const workers = Math.max(1, options.workers ?? defaultWorkers());
   const minimumReplicates = options.replicates ?? options.minReplicates ?? 20;
-  const rows = Math.min(fileRows, analysisRows(fileRows, dim, estimators, budget, workers, minimumReplicates, level === null ? 0 : options.resamples ?? options.minResamples ?? 100));
+  const rows = analysisRows(fileRows, dim, estimators, budget, workers, minimumReplicates, level === null ? 0 : options.resamples ?? options.minResamples ?? 100);
   let subsample: AdviceSubsample | null = null;
   let sample = fileSample;
   if (rows < fileRows) {
-    const perReplicate = estimators.reduce((sum, spec) => sum + (predictedSeconds(parseEstimatorSpec(spec), fileRows, dim) ?? 0), 0);
+    const perReplicate = predictedReplicateSeconds(estimators.map((spec) => parseEstimatorSpec(spec)), fileRows, dim);
     const cost = `one replicate of the ${estimators.length} estimators at n = ${fileRows} would take about ${describeSeconds(perReplicate)} by the cost model, and the benchmark needs ${minimumReplicates}; within the ${budget} s budget on ${workers} worker${workers === 1 ? '' : 's'}`;
     if (rows < FEWEST_ANALYSIS_ROWS) {
       // Within the rows that matter here the benchmark's cost grows at most like n² (a d ≥ 2 kernel sum).

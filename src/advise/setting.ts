@@ -19,7 +19,7 @@ import { UsageError } from '../errors.js';
 import { catalog, listFamilies, parseScenario } from '../../scenarios/index.js';
 import { applicableEstimators, DEFAULT_BUDGET_SECONDS, FEWEST_USEFUL_REPLICATES, runTargeted } from './benchmark.js';
 import { parseEstimatorSpec } from '../../estimators/index.js';
-import { describeSeconds, predictedSeconds } from '../cost-model.js';
+import { describeSeconds, predictedReplicateSeconds } from '../cost-model.js';
 import { defaultWorkers } from '../runner.js';
 import { recommend, summarise, type EstimatorSummary, type Recommendation } from './recommend.js';
 
@@ -195,7 +195,7 @@ export const MAX_BUDGET_SECONDS = 86400;
  * calls go to the pilot, which measures (src/advise/benchmark.ts).
  */
 function refuseUnaffordableBudget(n: number, dim: number, estimators: readonly string[], budget: number, workers: number, fewest: number): void {
-  const perReplicate = estimators.reduce((sum, spec) => sum + (predictedSeconds(parseEstimatorSpec(spec), n, dim) ?? 0), 0);
+  const perReplicate = predictedReplicateSeconds(estimators.map((spec) => parseEstimatorSpec(spec)), n, dim);
   // The pilot runs one replicate on one thread; the rounds share the rest over the workers.
   const needed = perReplicate + (fewest * perReplicate) / Math.max(1, workers);
   if (needed <= budget * MODEL_MARGIN) return;

@@ -2,7 +2,7 @@ import type { Command } from 'commander';
 import type { Support, Tails } from '../contracts.js';
 import { UsageError } from '../errors.js';
 import { readSample } from '../data.js';
-import { MAX_REPLICATES, MAX_SAMPLE_SIZE, parseIntegerOption } from '../plan.js';
+import { MAX_REPLICATES, MAX_SAMPLE_SIZE, parseIntegerOption } from '../options.js';
 import { toJson } from '../results.js';
 import { parseNumber } from '../spec.js';
 import { adviseFile } from '../advise/file.js';

@@ -9,7 +9,7 @@ import { describeRegistration, resolveModulePath, useEstimatorModules } from '..
 import type { Quantity, Sample, Settings } from '../contracts.js';
 import { collect, parseIntegerOption } from '../options.js';
 import { dimsRange, listEstimators, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
-import { describeSeconds, predictedSeconds, roundRowsDown, rowsWithin } from '../cost-model.js';
+import { describeSeconds, predictedSeconds, rowsWithin } from '../cost-model.js';
 import { seededRowSubsample } from '../sample.js';
 import { parseNumber } from '../spec.js';
 import { describeReadProgress, statusLine } from '../status-line.js';
@@ -76,7 +76,7 @@ export function planRows(configured: ConfiguredEstimator[], sample: Sample, limi
   return configured.map((c) => {
     const predicted = predictedSeconds(c, sample.n, sample.dim, context);
     if (limitSeconds === null || predicted === null || predicted <= limitSeconds) return { rows: sample.n, predictedSeconds: predicted };
-    const rows = roundRowsDown(rowsWithin(c, sample.n, sample.dim, limitSeconds, context));
+    const rows = rowsWithin(c, sample.n, sample.dim, limitSeconds, context);
     const why = `all ${sample.n} rows would take about ${describeSeconds(predicted)} by its cost model, over the ${limitSeconds} s limit (--max-seconds)`;
     if (rows < MIN_SUBSAMPLE_ROWS) return { rows: 0, predictedSeconds: predicted, skipped: `${why}, and even ${MIN_SUBSAMPLE_ROWS} rows would not fit` };
     return { rows, predictedSeconds: predicted, reason: why };
