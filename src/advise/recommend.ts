@@ -98,6 +98,7 @@ export function summarise(run: RunFile): EstimatorSummary[] {
     byEstimator.get(cell.estimator)!.push(cell);
   }
   const summaries: EstimatorSummary[] = [...byEstimator.entries()].map(([estimator, cells]) => {
+    const entryOf = (c: Cell) => ranks.get(`${c.scenario}|${estimator}`);
     const scenarios: ScenarioScore[] = cells.map((c) => {
       const s = info.get(c.scenario)!;
       return {
@@ -109,9 +110,9 @@ export function summarise(run: RunFile): EstimatorSummary[] {
         rmse: c.scores.rmse,
         failures: c.scores.failures,
         replicates: c.scores.replicates,
-        rank: ranks.get(`${c.scenario}|${estimator}`)?.rank ?? null,
-        best: ranks.get(`${c.scenario}|${estimator}`)?.best ?? false,
-        failed: ranks.get(`${c.scenario}|${estimator}`)?.status === 'failed',
+        rank: entryOf(c)?.rank ?? null,
+        best: entryOf(c)?.best ?? false,
+        failed: entryOf(c)?.status === 'failed',
         meanMs: c.timing.meanMs,
       };
     });
