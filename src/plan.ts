@@ -115,8 +115,12 @@ export function jsonPath(pointer: string): string {
 function describeSchemaError(error: ErrorObject): string {
   const path = jsonPath(error.instancePath);
   switch (error.keyword) {
-    case 'additionalProperties':
-      return `${path === '(plan)' ? '' : `${path}.`}${(error.params as { additionalProperty: string }).additionalProperty}: unknown key`;
+    case 'additionalProperties': {
+      // parentSchema (ajv's verbose mode) holds the object's schema, so the message can list what is allowed.
+      const known = Object.keys((error.parentSchema as { properties?: object } | undefined)?.properties ?? {});
+      const key = (error.params as { additionalProperty: string }).additionalProperty;
+      return `${path === '(plan)' ? '' : `${path}.`}${key}: unknown key${known.length ? ` (allowed: ${known.join(', ')})` : ''}`;
+    }
     case 'required':
       return `${path === '(plan)' ? '' : `${path}.`}${(error.params as { missingProperty: string }).missingProperty}: is required`;
     case 'enum':
@@ -137,7 +141,7 @@ function describeSchemaError(error: ErrorObject): string {
 let planValidator: ValidateFunction | undefined;
 /** Compiled on first use: most commands never read a plan file, and compiling costs start-up time. */
 function validatePlanShape(value: unknown): boolean {
-  planValidator ??= loadAjv({ allErrors: false, strict: true, allowUnionTypes: true }).compile(planSchema);
+  planValidator ??= loadAjv({ allErrors: false, strict: true, allowUnionTypes: true, verbose: true }).compile(planSchema);
   const valid = planValidator(value);
   validatePlanShape.errors = planValidator.errors;
   return valid;
@@ -148,8 +152,10 @@ validatePlanShape.errors = undefined as ErrorObject[] | null | undefined;
 export function checkPlanShape(value: unknown, source: string): PlanInput {
   if (!validatePlanShape(value)) {
     const errors = validatePlanShape.errors ?? [];
-    // oneOf failures report every branch; the most specific error is the deepest path.
-    const deepest = [...errors].sort((a, b) => b.instancePath.length - a.instancePath.length)[0];
+    // oneOf failures report every branch; the most specific error is the deepest path, and at one depth a
+    // type mismatch or the oneOf summary only says that another branch's shape was meant: any other error says more.
+    const vague = (e: ErrorObject) => Number(e.keyword === 'type' || e.keyword === 'oneOf');
+    const deepest = [...errors].sort((a, b) => b.instancePath.length - a.instancePath.length || vague(a) - vague(b))[0];
     throw new UsageError(`${source}: ${deepest ? describeSchemaError(deepest) : 'is not a valid plan'}`);
   }
   return value as unknown as PlanInput;

@@ -182,6 +182,13 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   const code = planCode(context.plan);
   const fingerprint = planFingerprint(context.plan, code);
   const { units, skipped } = planUnits(context);
+  if (!units.length) {
+    // An empty run file would read as a finished benchmark; nothing was measured, so say why.
+    const first = skipped[0];
+    throw new UsageError(
+      `the plan has no cells to run: every estimator–scenario pair is skipped${first ? ` (on ${first.scenario}: ${first.reason})` : ''}; \`hhat scenarios\` and \`hhat estimators\` list dimensions`,
+    );
+  }
   const owned = shardUnits(units, options.shard);
   const shard = options.shard ?? null;
 

@@ -198,10 +198,21 @@ describe('scores', () => {
 });
 
 describe('bad input', () => {
+  it('a plan whose every estimator–scenario pair is skipped is refused, not written as an empty run', async () => {
+    const plan = resolvePlan({ scenarios: ['gaussian:dim=2'], estimators: ['vasicek'], sampleSizes: [50], replicates: 2, seed: 1 }).plan;
+    await expect(runPlan(plan, { workers: 1 })).rejects.toThrow(
+      new UsageError('the plan has no cells to run: every estimator–scenario pair is skipped (on gaussian:dim=2,rho=0.5,spread=1,sigma=1: vasicek needs d = 1; the scenario has d = 2); `hhat scenarios` and `hhat estimators` list dimensions'),
+    );
+  });
+
   it('plan files: unknown keys and bad values name the path', () => {
-    expect(() => checkPlanShape({ scenarios: ['normal'], estimators: ['gaussian'], colour: 1 }, 'p.json')).toThrow('p.json: colour: unknown key');
+    expect(() => checkPlanShape({ scenarios: ['normal'], estimators: ['gaussian'], colour: 1 }, 'p.json')).toThrow(/^p\.json: colour: unknown key \(allowed: name, .*scenarios, .*sampleSizes, .*\)$/);
     expect(() => checkPlanShape({ scenarios: ['normal'], estimators: ['gaussian'], replicates: 1.5 }, 'p.json')).toThrow('p.json: replicates: must be an integer');
     expect(() => checkPlanShape({ scenarios: [], estimators: ['gaussian'] }, 'p.json')).toThrow('p.json: scenarios: must list at least 1 item(s)');
+    // A misspelt key inside an estimator object: the object branch's complaint, not "must be a string".
+    expect(() => checkPlanShape({ scenarios: ['normal'], estimators: [{ id: 'vasicek', setings: {} }] }, 'p.json')).toThrow(
+      'p.json: estimators[0].setings: unknown key (allowed: id, settings)',
+    );
     expect(() =>
       resolvePlan({ scenarios: ['normal'], estimators: ['gaussian', 'vasicek', { id: 'kozachenko-leonenko', settings: { k: 0 } }] }, 'p.json'),
     ).toThrow('p.json: estimators[2].settings.k: must be an integer ≥ 1');
