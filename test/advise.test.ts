@@ -388,6 +388,20 @@ describe('advice that no estimator is usable', () => {
     expect(Math.min(...summaries.map((x) => x.meanRmse.value).filter(Number.isFinite))).toBeGreaterThan(spread);
   });
 
+  it('the runner-up is never an estimator that fails on some draws (constructed: the lowest RMSE marked failing)', async () => {
+    const { runTargeted } = await import('../src/advise/benchmark.js');
+    const { summarise, recommend } = await import('../src/advise/recommend.js');
+    const bench = await runTargeted({ scenarios: ['normal'], estimators: applicableEstimators(1), n: 200, budgetSeconds: 30, minReplicates: 10, maxReplicates: 10, workers: 1 });
+    const ran = summarise(bench.run).filter((s) => Number.isFinite(s.meanRmse.value) && s.failedScenarios === 0);
+    expect(ran.length).toBeGreaterThanOrEqual(3);
+    // The best one now fails a draw of its only scenario: the recommendation and the runner-up skip it.
+    const summaries = [{ ...ran[0], failures: 1, failureRate: 0.1, failedScenarios: 1 }, ...ran.slice(1)];
+    const recommendation = recommend(bench.run, summaries);
+    expect(recommendation.recommended).toBe(summaries[1]);
+    expect(recommendation.runnerUp).toBe(summaries[2]);
+    expect(recommendation.reason).toMatch(new RegExp(`\\(${summaries[0].label.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')} has a lower RMSE but fails on 10\\.0% of draws\\)`));
+  });
+
   it('advise FILE with n ≤ d: one line, exit 1, no look-alike attempted', async () => {
     const { mkdtempSync, writeFileSync } = await import('node:fs');
     const { tmpdir } = await import('node:os');

@@ -14,6 +14,7 @@ import type { Estimate } from '../score.js';
 import type { Cell, RankEntry, RunFile, ScenarioInfo } from '../results.js';
 import type { Verdict } from '../robustness.js';
 import { estimatorLabel } from '../tables.js';
+import { squaredDeviations } from '../math/moments.js';
 
 export interface ScenarioScore {
   scenario: string;
@@ -179,8 +180,8 @@ function describeSubset(subset: string[], all: ScenarioInfo[]): string {
 /** SD of the true values over the scenarios (NaN for fewer than two): how far apart the plausible answers lie. */
 function truthSpread(scenarios: ScenarioInfo[]): number {
   if (scenarios.length < 2) return NaN;
-  const mean = scenarios.reduce((s, x) => s + x.truth, 0) / scenarios.length;
-  return Math.sqrt(scenarios.reduce((s, x) => s + (x.truth - mean) ** 2, 0) / scenarios.length);
+  const { sumOfSquares } = squaredDeviations(Float64Array.from(scenarios, (x) => x.truth));
+  return Math.sqrt(sumOfSquares / scenarios.length);
 }
 
 /**
@@ -204,7 +205,8 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 
     );
   }
   const recommended = eligible[0];
-  const runnerUp = summaries.find((s) => s !== recommended && Number.isFinite(s.meanRmse.value)) ?? null;
+  // From the eligible ones only: a runner-up that fails on some draws would be offered as an equal choice.
+  const runnerUp = eligible[1] ?? null;
   const failurePart =
     recommended.failures === 0 ? 'never fails' : `fails on ${recommended.failures} of ${recommended.replicates} draws (${(100 * recommended.failureRate).toFixed(1)}%)`;
   const lead =
