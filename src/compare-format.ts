@@ -125,11 +125,16 @@ function pairingLine(comparison: Comparison): string {
 
 function policyLine(comparison: Comparison): string {
   const alpha = +(1 - comparison.level).toPrecision(6);
-  const each = +comparison.testLevel.toPrecision(3);
   const tests = comparison.pairing.paired
-    ? `any of three paired tests at level ${each} each (α = ${alpha} split by Bonferroni) says so: the t test on the squared-error differences (and |ΔRMSE| exceeds the tolerance, ${comparison.tolerance.text}), the exact sign test on them (and the median change of |error| exceeds the tolerance), or the exact McNemar test on failures`
-    : `Welch's t test on the squared errors (and |ΔRMSE| exceeds the tolerance, ${comparison.tolerance.text}) or Fisher's exact test on failures says so at level ${each} each (α = ${alpha} split by Bonferroni)`;
-  return `A cell is worse (or improved) when ${tests}; worse wins over improved. A new estimate more than ${WILD_FACTOR} times the base run's largest error away from the truth makes a cell worse on its own. Changes ± SE are ${comparison.pairing.paired ? 'paired, over the replicates where both runs succeeded' : 'unpaired'}.`;
+    ? `any of three paired tests says so: the t test on the squared-error differences (and |ΔRMSE| exceeds the tolerance, ${comparison.tolerance.text}), the exact sign test on them (and the median change of |error| over all draws exceeds the tolerance), or the exact McNemar test on failures`
+    : `Welch's t test on the squared errors (and |ΔRMSE| exceeds the tolerance, ${comparison.tolerance.text}) or Fisher's exact test on failures says so`;
+  const k = comparison.pairing.paired ? 3 : 2;
+  const m = comparison.testedCells;
+  const sharing =
+    m > 1
+      ? `The tests share α = ${alpha} over the ${m} changed cells by Holm's step-down (the cell with the smallest p is held to α/${m}, the next to α/${m - 1}, …), then by Bonferroni over a cell's ${k} tests (the first cell's tests at ${+comparison.testLevel.toPrecision(3)} / ${m} each), so the chance that any cell whose estimates did not change in distribution is called worse or improved is at most α.`
+      : `The tests share α = ${alpha} by Bonferroni (${+comparison.testLevel.toPrecision(3)} each), so a cell whose estimates did not change in distribution is called worse or improved with probability at most α.`;
+  return `A cell is worse (or improved) when ${tests}; worse wins over improved. ${sharing} A new estimate more than ${WILD_FACTOR} times the base run's largest error away from the truth makes a cell worse on its own. Changes ± SE are ${comparison.pairing.paired ? 'paired, over the replicates where both runs succeeded' : 'unpaired'}.`;
 }
 
 function refLines(title: string, refs: CellRef[]): string[] {
@@ -250,6 +255,7 @@ function cellDetails(c: CellComparison): string {
   ];
   if (c.sign) lines.push(`sign test on squared-error differences: ${c.sign.above} replicates worse, ${c.sign.below} better, ${c.sign.ties} equal, p = ${formatP(c.sign.p)}; median change of |error| ${signed(c.medianChange ?? NaN, 3)} nats`);
   for (const w of c.wild) lines.push(`wild estimate at replicate ${w.replicate}: ${w.next} (base ${w.base ?? 'failed'})`);
+  if (c.adjustedP !== null) lines.push(`cell p adjusted (Bonferroni over its tests, Holm over the changed cells): ${formatP(c.adjustedP)}; each test held to ${formatP(c.testLevel)}`);
   if (t) {
     lines.push(
       `${t.kind === 'paired-t' ? 'paired t test' : "Welch's t test"} on squared errors: difference ${signed(t.difference, 4)}, SE ${formatValue(t.se, 3)}, ` +

@@ -3,8 +3,9 @@
  *
  * When both runs drew the same samples (equal draws fingerprints), each replicate of a cell is the same
  * sample in both runs, so the comparison is paired. Per replicate where both succeeded,
- * d_r = (Ĥ_new,r − H)² − (Ĥ_base,r − H)², and three paired tests, each at level α/3 (Bonferroni, so a cell
- * whose code did not change its behaviour is called worse or improved with probability at most α = 1 − level):
+ * d_r = (Ĥ_new,r − H)² − (Ĥ_base,r − H)², and three paired tests, sharing α = 1 − level by Bonferroni within
+ * the cell and by Holm's step-down across the cells whose estimates changed (so the chance that any cell whose
+ * code did not change its behaviour is called worse or improved is at most α, however many cells changed):
  *   - a t test on the mean of d_r: the change in mean squared error, the quantity RMSE measures; the
  *     draw-to-draw noise that dominates either run's RMSE cancels in d_r, so it detects changes far below
  *     the Monte-Carlo error of either run (bench/paired-power.ts shows how far);
@@ -16,7 +17,7 @@
  * WILD_FACTOR times the base's largest error away from the truth, or a squared error that overflows) is
  * worse on its own: no mean over the other draws should dilute it.
  * When the draws differ, the squared errors are independent samples: Welch's t test on them and Fisher's
- * exact test on the failure counts, each at α/2.
+ * exact test on the failure counts (α shared the same way, two tests per cell).
  *
  *   const comparison = compareRuns(readRunFile('base.json'), readRunFile('new.json'), { tolerance: parseTolerance('5%') });
  */
@@ -54,7 +55,7 @@ export function describeTolerance(tolerance: Tolerance): string {
 
 export interface CompareOptions {
   tolerance?: Tolerance;
-  /** Confidence level of the intervals (default 0.95): a cell is improved or worse when its interval excludes 0. */
+  /** 1 − α (default 0.95): the chance that any cell whose estimates did not change in distribution is called worse or improved is at most α. */
   level?: number;
   /** 'unpaired' compares as if the draws differed (Welch's t), even when they are the same. */
   pairing?: 'auto' | 'unpaired';
@@ -138,8 +139,17 @@ export interface CellComparison extends CellRef {
   medianChange: number | null;
   /** New estimates far outside the base run's range in this cell. */
   wild: WildEstimate[];
-  /** Level of each test (α split by Bonferroni over the tests run); intervals are shown at 1 − this. */
+  /**
+   * Level each of this cell's tests is held to: α shared by Holm's step-down over the changed cells, then
+   * split by Bonferroni over the cell's tests (three paired, two unpaired).
+   */
   testLevel: number;
+  /**
+   * Holm-adjusted p of the cell: its smallest p among the tests whose size condition holds, times its number
+   * of tests, adjusted over the changed cells; null for cells that were not tested (bit-identical, or wild).
+   * The cell is worse or improved by a test exactly when this is ≤ α.
+   */
+  adjustedP: number | null;
   /** The tolerance in nats for this cell (a ratio tolerance times the base RMSE). */
   toleranceNats: number;
 }
@@ -161,8 +171,13 @@ export interface Comparison {
   pairing: { paired: boolean; reason: string };
   tolerance: Tolerance & { text: string };
   level: number;
-  /** The level of each test: α = 1 − level split by Bonferroni over the tests (three paired, two unpaired). */
+  /**
+   * α = 1 − level split by Bonferroni over a cell's tests (three paired, two unpaired): the level of the most
+   * significant changed cell's tests, and the level of the intervals shown.
+   */
   testLevel: number;
+  /** Cells whose estimates changed and were tested (not bit-identical, not wild): Holm's step-down runs over these. */
+  testedCells: number;
   counts: Record<CellStatus, number> & { added: number; removed: number };
   /** Cells in both runs, in the base run's order. */
   cells: CellComparison[];
@@ -327,7 +342,7 @@ function wildEstimates(base: Cell, next: Cell, truthBase: number, truthNext: num
     if (v === null) return;
     const error = Math.abs(v - truthNext);
     const overflows = !Number.isFinite(error * error);
-    if (overflows || (error > WILD_FACTOR * largest && error - largest > toleranceNats)) {
+    if (overflows || (error > WILD_FACTOR * largest && exceeds(error - largest, toleranceNats))) {
       out.push({ replicate: r, base: base.estimates[r] ?? null, next: v, ratio: largest > 0 ? error / largest : Infinity });
     }
   });
@@ -351,17 +366,33 @@ function failureChange(base: Cell, next: Cell, paired: boolean): FailureChange {
   return { base: failedBase, next: failedNext, onlyNext, onlyBase, p: failedBase + failedNext === 0 ? null : signTest(onlyNext, onlyBase).p };
 }
 
-/** α = 1 − level split by Bonferroni over the tests a cell gets: t, sign and McNemar paired; Welch and Fisher unpaired. */
-function testLevelOf(level: number, paired: boolean): number {
-  return (1 - level) / (paired ? 3 : 2);
+/** Tests a cell gets: t, sign and McNemar paired; Welch and Fisher unpaired. */
+function testsPerCell(paired: boolean): number {
+  return paired ? 3 : 2;
 }
 
-function compareCell(base: Cell, next: Cell, truthBase: number, truthNext: number, pairedRuns: boolean, tolerance: Tolerance, level: number): CellComparison {
+/**
+ * `holmDivisor` is the number of hypotheses Holm's step-down still holds when it reaches this cell (the
+ * cell's share of α is α/holmDivisor, then split over its tests); 1 before the cells are ordered.
+ */
+function compareCell(
+  base: Cell,
+  next: Cell,
+  truthBase: number,
+  truthNext: number,
+  pairedRuns: boolean,
+  tolerance: Tolerance,
+  level: number,
+  holmDivisor = 1,
+): CellComparison {
   const reasons: string[] = [];
   const paired = pairedRuns && base.estimates.length === next.estimates.length;
   if (pairedRuns && !paired) reasons.push(`unpaired: ${base.estimates.length} vs ${next.estimates.length} replicates`);
   if (truthBase !== truthNext) reasons.push(`the true value changed (${truthBase} → ${truthNext}); each run is scored against its own`);
-  const testLevel = testLevelOf(level, paired);
+  const tests = testsPerCell(paired);
+  // Intervals are shown at the cell's Bonferroni level alone; the verdict also takes Holm's share.
+  const intervalLevel = 1 - (1 - level) / tests;
+  const testLevel = (1 - level) / (tests * holmDivisor);
 
   let test: TTest | null;
   let shift: Estimate | null = null;
@@ -380,7 +411,7 @@ function compareCell(base: Cell, next: Cell, truthBase: number, truthNext: numbe
     });
     common = nextValues.length;
     const differences = nextValues.map((a, r) => (a - truthNext) ** 2 - (baseValues[r] - truthBase) ** 2);
-    test = pairedTTest(differences, 1 - testLevel);
+    test = pairedTTest(differences, intervalLevel);
     sign = signTestOf(differences);
     const errorChanges = Float64Array.from(nextValues, (a, r) => Math.abs(a - truthNext) - Math.abs(baseValues[r] - truthBase)).sort();
     medianChange = errorChanges.length ? quantileOfSorted(errorChanges, 0.5) : null;
@@ -392,24 +423,27 @@ function compareCell(base: Cell, next: Cell, truthBase: number, truthNext: numbe
     }
     if (common < Math.min(base.scores.successes, next.scores.successes)) reasons.push(`changes are over the ${common} replicates where both runs succeeded`);
   } else {
-    test = welchTTest(squaredErrors(next, truthNext), squaredErrors(base, truthBase), 1 - testLevel);
+    test = welchTTest(squaredErrors(next, truthNext), squaredErrors(base, truthBase), intervalLevel);
   }
 
   const rmse = changes.rmse;
   const toleranceNats = tolerance.kind === 'nats' ? tolerance.value : tolerance.value * base.scores.rmse.value;
   const wild = wildEstimates(base, next, truthBase, truthNext, toleranceNats);
   const failures = failureChange(base, next, paired);
-  const pct = (x: number) => `${+(x * 100).toPrecision(4)}%`;
   const testName = paired ? 'mean paired difference of squared errors' : 'difference of mean squared errors';
-  const significant = test !== null && (test.interval[0] > 0 || test.interval[1] < 0);
+  const significant = test !== null && test.p <= testLevel;
   const beyondTolerance = exceeds(Math.abs(rmse.change), toleranceNats);
+  const signBeyondTolerance = medianChange !== null && exceeds(Math.abs(medianChange), toleranceNats);
   const meanVerdict = significant && beyondTolerance ? (test!.difference > 0 ? 'worse' : 'improved') : null;
-  const signVerdict = sign && sign.p <= testLevel && medianChange !== null && exceeds(Math.abs(medianChange), toleranceNats) ? (sign.above > sign.below ? 'worse' : 'improved') : null;
+  const signVerdict = sign && sign.p <= testLevel && signBeyondTolerance ? (sign.above > sign.below ? 'worse' : 'improved') : null;
   // Paired: which run failed on more of the same draws. Unpaired: which run's failure rate is higher (the runs may differ in size).
   const failedMore = paired ? failures.onlyNext! > failures.onlyBase! : failures.next / next.estimates.length > failures.base / base.estimates.length;
   const failureVerdict = failures.p !== null && failures.p <= testLevel ? (failedMore ? 'worse' : 'improved') : null;
+  // The cell's p for Holm: the smallest over the tests whose size condition holds, Bonferroni within the cell.
+  const qualifying = [beyondTolerance && test ? test.p : 1, signBeyondTolerance && sign ? sign.p : 1, failures.p ?? 1];
+  const cellP = Math.min(1, tests * Math.min(...qualifying));
 
-  const meanReason = () => `the ${pct(1 - testLevel)} interval of the ${testName} excludes 0 (p = ${formatNumber(test!.p)}) and |ΔRMSE| = ${formatNumber(Math.abs(rmse.change))} exceeds the tolerance ${formatNumber(toleranceNats)} nats`;
+  const meanReason = () => `the t test on the ${testName} gives p = ${formatNumber(test!.p)} ≤ ${formatNumber(testLevel)} and |ΔRMSE| = ${formatNumber(Math.abs(rmse.change))} exceeds the tolerance ${formatNumber(toleranceNats)} nats`;
   const signReason = () => `${sign!.above > sign!.below ? sign!.above : sign!.below} of ${sign!.above + sign!.below} changed replicates got ${sign!.above > sign!.below ? 'worse' : 'better'} (sign test p = ${formatNumber(sign!.p)} ≤ ${formatNumber(testLevel)}; median change of |error| ${formatNumber(medianChange!)} nats)`;
   const failureReason = () =>
     paired
@@ -417,6 +451,7 @@ function compareCell(base: Cell, next: Cell, truthBase: number, truthNext: numbe
       : `failures ${failures.base} of ${base.estimates.length} → ${failures.next} of ${next.estimates.length} (Fisher exact p = ${formatNumber(failures.p!)})`;
 
   let status: CellStatus;
+  let tested = false;
   if (bitIdentical(base.estimates, next.estimates)) {
     status = 'unchanged';
     reasons.unshift('every estimate is bit-identical');
@@ -428,24 +463,25 @@ function compareCell(base: Cell, next: Cell, truthBase: number, truthNext: numbe
       `${wild.length} wild estimate${wild.length === 1 ? '' : 's'}: replicate ${w.replicate} gave ${formatNumber(w.next)} ${where}, ${Number.isFinite(w.ratio) ? `${formatNumber(w.ratio)} times` : 'far beyond'} the base run's largest error in this cell${Number.isFinite((w.next - truthNext) ** 2) ? '' : ' (its squared error overflows)'}`,
     );
   } else if (meanVerdict === 'worse' || signVerdict === 'worse' || failureVerdict === 'worse') {
+    tested = true;
     status = 'worse';
     if (failureVerdict === 'worse') reasons.unshift(failureReason());
     if (signVerdict === 'worse') reasons.unshift(signReason());
     if (meanVerdict === 'worse') reasons.unshift(meanReason());
   } else if (meanVerdict === 'improved' || signVerdict === 'improved' || failureVerdict === 'improved') {
+    tested = true;
     status = 'improved';
     if (failureVerdict === 'improved') reasons.unshift(failureReason());
     if (signVerdict === 'improved') reasons.unshift(signReason());
     if (meanVerdict === 'improved') reasons.unshift(meanReason());
-  } else if (paired && test !== null && test.difference === 0 && failures.base === failures.next && failures.onlyNext === 0) {
-    status = 'unchanged';
-    reasons.unshift('the mean paired difference of squared errors is exactly 0');
   } else {
+    // Estimates moved (even if every squared error happens to be equal, e.g. reflected about the truth).
+    tested = true;
     status = 'changed-within-noise';
     if (failures.next !== failures.base) reasons.unshift(`${failureReason()}, not significant at ${formatNumber(testLevel)}`);
     if (test === null) reasons.unshift('too few successful replicates for a test');
-    else if (significant) reasons.unshift(`significant (p = ${formatNumber(test.p)}) but |ΔRMSE| = ${formatNumber(Math.abs(rmse.change))} is within the tolerance ${formatNumber(toleranceNats)} nats`);
-    else reasons.unshift(`the ${pct(1 - testLevel)} interval of the ${testName} includes 0 (p = ${formatNumber(test.p)})${sign ? `; sign test ${sign.above} worse, ${sign.below} better (p = ${formatNumber(sign.p)})` : ''}`);
+    else if (significant) reasons.unshift(`significant (p = ${formatNumber(test.p)} ≤ ${formatNumber(testLevel)}) but |ΔRMSE| = ${formatNumber(Math.abs(rmse.change))} is within the tolerance ${formatNumber(toleranceNats)} nats`);
+    else reasons.unshift(`the t test on the ${testName} gives p = ${formatNumber(test.p)} > ${formatNumber(testLevel)}${sign ? `; sign test ${sign.above} worse, ${sign.below} better (p = ${formatNumber(sign.p)})` : ''}`);
   }
 
   return {
@@ -468,8 +504,31 @@ function compareCell(base: Cell, next: Cell, truthBase: number, truthNext: numbe
     medianChange,
     wild,
     testLevel,
+    adjustedP: tested ? cellP : null,
     toleranceNats,
   };
+}
+
+/**
+ * Holm's (1979) step-down over the tested cells' Bonferroni-within-cell p values p_(1) ≤ … ≤ p_(m): the
+ * j-th is held to α/(m − j + 1) until the first that fails, and every later one is held to that one's level.
+ * Returns each tested cell's divisor (m − j + 1, or the failing step's) and its Holm-adjusted p,
+ * max_{i ≤ j} min(1, (m − i + 1)·p_(i)).
+ */
+function holmStepDown(cellPs: number[], alpha: number): { divisor: number[]; adjusted: number[] } {
+  const m = cellPs.length;
+  const order = cellPs.map((_, i) => i).sort((a, b) => cellPs[a] - cellPs[b]);
+  const divisor = new Array<number>(m);
+  const adjusted = new Array<number>(m);
+  let running = 0;
+  let stopped = -1;
+  order.forEach((cell, j) => {
+    running = Math.max(running, Math.min(1, (m - j) * cellPs[cell]));
+    adjusted[cell] = running;
+    if (stopped < 0 && cellPs[cell] > alpha / (m - j)) stopped = m - j;
+    divisor[cell] = stopped < 0 ? m - j : stopped;
+  });
+  return { divisor, adjusted };
 }
 
 function ref(cell: Cell): CellRef {
@@ -498,16 +557,26 @@ export function compareRuns(base: RunFile, next: RunFile, options: CompareOption
   const nextCells = new Map(next.cells.map((c) => [cellKey(c), c]));
   const baseKeys = new Set(base.cells.map(cellKey));
 
-  const cells: CellComparison[] = [];
+  const pairs: [Cell, Cell][] = [];
   const removed: CellRef[] = [];
   for (const cell of base.cells) {
     const other = nextCells.get(cellKey(cell));
-    if (!other) {
-      removed.push(ref(cell));
-      continue;
-    }
-    cells.push(compareCell(cell, other, truthBase.get(cell.scenario)!, truthNext.get(other.scenario)!, pairing.paired, tolerance, level));
+    if (other) pairs.push([cell, other]);
+    else removed.push(ref(cell));
   }
+  const compare = ([cell, other]: [Cell, Cell], holmDivisor?: number) =>
+    compareCell(cell, other, truthBase.get(cell.scenario)!, truthNext.get(other.scenario)!, pairing.paired, tolerance, level, holmDivisor);
+  // First each cell alone, for its p; then again at its place in Holm's step-down over the tested cells.
+  const cells = pairs.map((pair) => compare(pair));
+  const tested = cells.flatMap((c, i) => (c.adjustedP === null ? [] : [i]));
+  const holm = holmStepDown(
+    tested.map((i) => cells[i].adjustedP!),
+    1 - level,
+  );
+  tested.forEach((i, t) => {
+    cells[i] = compare(pairs[i], holm.divisor[t]);
+    cells[i].adjustedP = holm.adjusted[t];
+  });
   const added = next.cells.filter((c) => !baseKeys.has(cellKey(c))).map(ref);
 
   const counts = { worse: 0, improved: 0, 'changed-within-noise': 0, unchanged: 0, added: added.length, removed: removed.length };
@@ -519,7 +588,8 @@ export function compareRuns(base: RunFile, next: RunFile, options: CompareOption
     pairing,
     tolerance: { ...tolerance, text: describeTolerance(tolerance) },
     level,
-    testLevel: testLevelOf(level, pairing.paired),
+    testLevel: (1 - level) / testsPerCell(pairing.paired),
+    testedCells: tested.length,
     counts,
     cells,
     added,
@@ -529,8 +599,8 @@ export function compareRuns(base: RunFile, next: RunFile, options: CompareOption
 
 /**
  * Cells that fail a CI policy: 'worse' fails worse cells (see the file comment for the tests and the wild
- * rule); 'changed' fails every cell that is not bit-identical (or exactly equal in mean squared error), which
- * guards refactorings that should not move any number.
+ * rule); 'changed' fails every cell that is not bit-identical, which guards refactorings that should not move
+ * any number.
  */
 export function failingCells(comparison: Comparison, failOn: FailOn): CellComparison[] {
   return comparison.cells.filter((c) => (failOn === 'worse' ? c.status === 'worse' : c.status !== 'unchanged'));

@@ -305,6 +305,63 @@ describe('comparing runs', () => {
     expect(comparison.medianChange).toBeCloseTo(0.02, 10);
   });
 
+  it("many changed cells share α by Holm's step-down: cells worse alone are within noise together, exactly as Holm (1979) orders them", () => {
+    // Every vasicek and gaussian error grows by 25% on even draws and shrinks by 20% on odd ones: the sign
+    // test sees 100 against 100 (p = 1) and there are no failures, so each cell's p is its t test's, times 3.
+    const next = structuredClone(base);
+    const changed = next.cells.flatMap((c, i) => (c.estimator.startsWith('vasicek') || c.estimator.startsWith('gaussian') ? [i] : []));
+    for (const i of changed) {
+      const cell = next.cells[i];
+      const truth = next.scenarios.find((s) => s.id === cell.scenario)!.truth;
+      cell.estimates = cell.estimates.map((v, r) => truth + (v! - truth) * (r % 2 === 0 ? 1.25 : 0.8));
+      cell.scores = scoreCell(cell.estimates.map((v) => v ?? NaN), truth, cell.n);
+    }
+    const alone = changed.map((i) => {
+      const one = structuredClone(base);
+      one.cells[i] = next.cells[i];
+      return compareRuns(base, one).cells[i];
+    });
+    const joint = compareRuns(base, next);
+    expect(joint.testedCells).toBe(changed.length);
+    // Holm by hand from the cells' own p values: walk up from the smallest while 3p ≤ α/(m − j).
+    const alpha = 0.05;
+    const m = changed.length;
+    const order = alone.map((c, j) => ({ j, p: 3 * c.test!.p })).sort((a, b) => a.p - b.p);
+    const rejected = new Set<number>();
+    for (let step = 0; step < m && order[step].p <= alpha / (m - step); step++) rejected.add(order[step].j);
+    let running = 0;
+    const adjusted = new Map(order.map(({ j, p }, step) => [j, (running = Math.max(running, Math.min(1, (m - step) * p)))]));
+    alone.forEach((_, j) => {
+      const together = joint.cells[changed[j]];
+      expect(together.status).toBe(rejected.has(j) ? 'worse' : 'changed-within-noise');
+      expect(together.adjustedP).toBeCloseTo(adjusted.get(j)!, 12);
+    });
+    // The premise: some cells are worse alone at α/3 yet not together, and some stay worse together.
+    const worseAlone = alone.filter((c) => c.status === 'worse').length;
+    expect(worseAlone).toBeGreaterThan(rejected.size);
+    expect(rejected.size).toBeGreaterThan(0);
+    expect(joint.cells.filter((c) => !changed.includes(joint.cells.indexOf(c))).every((c) => c.status === 'unchanged' && c.adjustedP === null)).toBe(true);
+  });
+
+  it('estimates reflected about the truth keep every squared error, yet they moved: changed within noise, and --fail-on changed fails', () => {
+    // Truth 0 and errors in eighths, so every squared error, and the mean difference, is exactly equal.
+    const before = structuredClone(base);
+    const index = before.cells.findIndex((c) => c.estimator.startsWith('vasicek') && c.n === 200);
+    const cell = before.cells[index];
+    before.scenarios.find((s) => s.id === cell.scenario)!.truth = 0;
+    cell.estimates = cell.estimates.map((_, r) => ((r % 7) - 3) / 8);
+    cell.scores = scoreCell(cell.estimates.map((v) => v ?? NaN), 0, cell.n);
+    const next = structuredClone(before);
+    next.cells[index].estimates = cell.estimates.map((v) => -v!);
+    next.cells[index].scores = scoreCell(next.cells[index].estimates.map((v) => v ?? NaN), 0, cell.n);
+    const comparison = compareRuns(before, next);
+    const [moved] = comparison.cells.filter((c) => c.status !== 'unchanged');
+    expect(moved).toMatchObject({ estimator: cell.estimator, status: 'changed-within-noise' });
+    expect(moved.test!.difference).toBe(0);
+    expect(failsPolicy(comparison, 'changed')).toBe(true);
+    expect(failsPolicy(comparison, 'worse')).toBe(false);
+  });
+
   it('changes carry paired standard errors: a constant shift moves the bias exactly, with an SE at rounding level', () => {
     const comparison = compareRuns(base, shifted);
     const c = comparison.cells.find((x) => x.status === 'worse')!;
