@@ -13,7 +13,7 @@
  */
 import { totalmem } from 'node:os';
 import { Worker } from 'node:worker_threads';
-import { UsageError } from './errors.js';
+import { EnvironmentError, UsageError } from './errors.js';
 import { estimateTimeLimit, type Plan } from './plan.js';
 import { markerViews, newMarker, type WorkerJob, type WorkerMessage } from './pool-protocol.js';
 import { addReplicate, emptyUnitResult, type Unit, type UnitResult } from './work.js';
@@ -118,7 +118,7 @@ export function runOnPool(plan: Plan, units: Unit[], options: PoolOptions): Prom
           job.result.failures.push({ series: f.series, replicate: f.replicate, message: reason });
         }
         if (job.deaths > unit.series.length * (unit.repEnd - unit.repStart) + 1) {
-          finish(false, new Error(`workers kept dying on unit ${unit.index} (last: ${reason})`));
+          finish(false, new EnvironmentError(`worker threads kept dying on the draws of ${plan.scenarios[unit.scenario]} at n = ${unit.n} (last: ${reason}); the finished units are kept in the checkpoint`));
           return;
         }
         pending.unshift(job);

@@ -2,12 +2,12 @@
  * Runs a plan's units on worker threads, appending each finished unit to a checkpoint so an interrupted run
  * resumes without recomputing anything, and reporting progress as it goes.
  */
-import { existsSync, readFileSync, statSync } from 'node:fs';
+import { existsSync, readFileSync, statSync, truncateSync } from 'node:fs';
 import { availableParallelism } from 'node:os';
-import { UsageError } from './errors.js';
+import { EnvironmentError, UsageError } from './errors.js';
 import { buildContext } from './context.js';
 import { codeDifference, planCode, planFingerprint, type Plan, type PlanCode } from './plan.js';
-import { openAppender, writeFileAtomic, type Appender } from './files.js';
+import { describeFileError, openAppender, writeFileAtomic, type Appender } from './files.js';
 import { executeUnit, planUnits, type Skip, type Unit, type UnitResult } from './work.js';
 import { runOnPool } from './pool.js';
 
@@ -130,9 +130,24 @@ interface LoadedCheckpoint {
   hasHeader: boolean;
 }
 
-/** Loads finished units from a checkpoint; a torn last line (a crash mid-write) is ignored. */
+/**
+ * The checkpoint's complete lines. A torn last line (a crash mid-write) is cut off the file, so the lines
+ * appended next start on a line of their own instead of being glued to the fragment and lost with it.
+ */
+function readCheckpointLines(path: string): string[] {
+  try {
+    const bytes = readFileSync(path);
+    const end = bytes.lastIndexOf(0x0a) + 1;
+    if (end < bytes.length) truncateSync(path, end);
+    return bytes.subarray(0, end).toString('utf8').split('\n').filter((l) => l.trim() !== '');
+  } catch (error) {
+    throw new EnvironmentError(describeFileError(error, 'read the checkpoint', path));
+  }
+}
+
+/** Loads finished units from a checkpoint. */
 function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null, code: PlanCode): LoadedCheckpoint {
-  const lines = readFileSync(path, 'utf8').split('\n').filter((l) => l.trim() !== '');
+  const lines = readCheckpointLines(path);
   const done = new Map<number, UnitResult>();
   const sessions: Session[] = [];
   if (!lines.length) return { done, sessions, hasHeader: false };
@@ -159,7 +174,7 @@ function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null, 
       if ('session' in parsed) sessions.push(parsed.session);
       else done.set(parsed.unit, parseResult(parsed));
     } catch {
-      // An interrupted write leaves at most one partial line; that unit simply runs again.
+      // A line spoilt otherwise (edited by hand, a disk error): that unit simply runs again.
     }
   }
   return { done, sessions, hasHeader: true };
@@ -167,7 +182,10 @@ function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null, 
 
 /** Whether `path` is a checkpoint of a run (a file with at least a header); false for a missing or empty file. */
 export function checkpointStarted(path: string): boolean {
-  return existsSync(path) && statSync(path).size > 0;
+  if (!existsSync(path)) return false;
+  const stat = statSync(path);
+  if (stat.isDirectory()) throw new UsageError(`${path} is a folder, where hhat keeps this run's checkpoint; move it away or choose another --out`);
+  return stat.size > 0;
 }
 
 function workerEntry(): URL {

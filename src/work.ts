@@ -157,6 +157,8 @@ export function executeReplicate(unit: Unit, context: WorkContext, replicate: nu
   const values = new Float64Array(unit.series.length).fill(NaN);
   const timeMs = new Float64Array(unit.series.length);
   const failures: UnitFailure[] = [];
+  // Every estimate already failed elsewhere (a worker died drawing this sample, say): do not draw it again.
+  if (hooks.skip && unit.series.every((_, k) => hooks.skip!(k))) return { replicate, values, timeMs, failures };
   const variants = [...new Set(unit.series.map((s) => s.variant))];
   const original = scenario.sample(replicateRng(plan.seed, scenario.id, unit.n, replicate), unit.n);
   for (const v of variants) {

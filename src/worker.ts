@@ -95,6 +95,9 @@ parentPort!.on('message', async (job: WorkerJob) => {
   const unit: Unit = job.unit;
   const skipped = new Set(job.skip.map((s) => `${s.series}|${s.replicate}`));
   for (let replicate = job.from; replicate < unit.repEnd; replicate++) {
+    // A death before this replicate's first estimate (drawing its sample, say) must not fall on the previous
+    // replicate's last estimate, which is already reported.
+    blame([-1, -1, -1]);
     const result = executeReplicate(unit, context, replicate, {
       skip: (series) => skipped.has(`${series}|${replicate}`),
       onStart: (series, r) => {

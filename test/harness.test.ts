@@ -2,7 +2,7 @@
  * The benchmark harness: determinism across workers, shards and resumes; scores against independent
  * computations; plan validation; failures counted without stopping the run.
  */
-import { mkdtempSync, existsSync, readFileSync } from 'node:fs';
+import { appendFileSync, existsSync, mkdirSync, mkdtempSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
@@ -10,6 +10,9 @@ import { Ajv2020 } from 'ajv/dist/2020.js';
 import normalRandom from '@stdlib/random-base-normal';
 import { checkPlanShape, planFingerprint, resolvePlan, type Plan } from '../src/plan.js';
 import { runPlan } from '../src/runner.js';
+import { main } from '../src/cli.js';
+import { buildContext } from '../src/context.js';
+import { executeReplicate, planUnits } from '../src/work.js';
 import { assembleRun, readRunFile, writeRunFile, type RunFile } from '../src/results.js';
 import { mergeShards } from '../src/merge.js';
 import { fitRate, scoreCell } from '../src/score.js';
@@ -81,6 +84,47 @@ describe('determinism', () => {
     await runPlan(plan, { workers: 1, checkpointPath, signal: controller.signal, onProgress: () => controller.abort() });
     await expect(runPlan({ ...plan, seed: 1 }, { workers: 1, checkpointPath, resume: true })).rejects.toThrow(/belongs to a different plan/);
     await expect(runPlan(plan, { workers: 1, checkpointPath })).rejects.toThrow(/exists from an interrupted run; add --resume/);
+  });
+
+  it('a checkpoint whose last line was torn by a crash resumes cleanly: the fragment is cut off, not glued to the next line', async () => {
+    const plan = smallPlan();
+    const reference = estimatesOf(assembleRun(await runPlan(plan, { workers: 1 }), null));
+    const checkpointPath = join(dir, 'torn.checkpoint.jsonl');
+    const controller = new AbortController();
+    await runPlan(plan, { workers: 1, checkpointPath, signal: controller.signal, onProgress: (p) => p.unitsDone >= 2 && controller.abort() });
+    // A crash in the middle of writing the next unit's line.
+    appendFileSync(checkpointPath, '{"unit": 7, "estimates": [1.2');
+    const first = await runPlan(plan, { workers: 1, checkpointPath, resume: true, signal: controller.signal });
+    expect(first.interrupted).toBe(true);
+    const text = readFileSync(checkpointPath, 'utf8');
+    expect(text.endsWith('\n')).toBe(true);
+    for (const line of text.split('\n').filter(Boolean)) expect(() => JSON.parse(line)).not.toThrow();
+    const resumed = await runPlan(plan, { workers: 2, checkpointPath, resume: true });
+    expect(estimatesOf(assembleRun(resumed, null))).toEqual(reference);
+  });
+
+  it('a folder where the checkpoint or the run file goes is refused before any work, with one line and exit code 2', async () => {
+    const plan = smallPlan();
+    const folder = join(dir, 'is-a-folder.checkpoint.jsonl');
+    mkdirSync(folder);
+    await expect(runPlan(plan, { workers: 1, checkpointPath: folder, resume: true })).rejects.toThrow(/is a folder, where hhat keeps this run's checkpoint; move it away or choose another --out/);
+    const out = join(dir, 'out-folder');
+    mkdirSync(out);
+    let err = '';
+    const code = await main(['bench', '--scenario', 'normal', '--estimator', 'vasicek', '--n', '100', '--replicates', '4', '--out', out], { out: () => {}, err: (t) => (err += `${t}\n`) });
+    expect(code).toBe(2);
+    expect(err.trim().split('\n')).toEqual([`hhat: --out ${out} is a folder; give the run file's path, e.g. --out ${join(out, 'run.json')}`]);
+    expect(existsSync(`${out}.checkpoint.jsonl`)).toBe(false);
+  });
+
+  it('a replicate whose every estimate already failed is not drawn again (a worker that died drawing it would die again)', () => {
+    const context = buildContext(smallPlan());
+    const [unit] = planUnits(context).units;
+    context.scenarios[unit.scenario] = { ...context.scenarios[unit.scenario], sample: () => { throw new Error('drawn'); } };
+    const result = executeReplicate(unit, context, unit.repStart, { skip: () => true });
+    expect(Array.from(result.values).every(Number.isNaN)).toBe(true);
+    expect(result.failures).toEqual([]);
+    expect(() => executeReplicate(unit, context, unit.repStart, { skip: (k) => k > 0 })).toThrow('drawn');
   });
 
   it('merge refuses incomplete or mixed shard sets', async () => {

@@ -226,6 +226,8 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
       const checkpoint = checkpointFor(out);
       const resumeHint = `the finished units are saved in ${checkpoint}; fix that and rerun with --resume --out ${out}`;
       ensureFolder(dirname(out), 'choose another --out');
+      // Refused now rather than when the finished run is written.
+      if (existsSync(out) && statSync(out).isDirectory()) throw new UsageError(`--out ${out} is a folder; give the run file's path, e.g. --out ${join(out, 'run.json')}`);
       const release = acquireLock(out, 'choose another --out');
       try {
         removeLeftoverTemporaries(out);
