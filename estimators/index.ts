@@ -23,11 +23,25 @@ const builtIn: Estimator[] = [
 ];
 
 const registry = new Map<string, Estimator>();
+const builtInById = new Map(builtIn.map((e) => [e.id, e]));
+/**
+ * Ids whose estimator exists only in this process's memory (registered or replaced by code, not built in and
+ * not loaded from a module file): a worker thread rebuilds the registry from the built-ins and the plan's
+ * module files, so it would not see them, or would run the built-in in their place.
+ */
+const inProcessOnly = new Set<string>();
+
+function record(estimator: Estimator, fromModule: boolean): void {
+  registry.set(estimator.id, estimator);
+  if (fromModule || builtInById.get(estimator.id) === estimator) inProcessOnly.delete(estimator.id);
+  else inProcessOnly.add(estimator.id);
+}
+
 for (const estimator of builtIn) registerEstimator(estimator);
 
 export function registerEstimator(estimator: Estimator): void {
   if (registry.has(estimator.id)) throw new UsageError(`estimator id "${estimator.id}" is already registered`);
-  registry.set(estimator.id, estimator);
+  record(estimator, false);
 }
 
 /**
@@ -35,10 +49,15 @@ export function registerEstimator(estimator: Estimator): void {
  * id is new). Replacing keeps a built-in's cell names, so an edited copy can be compared with the original;
  * passing the returned estimator back restores it.
  */
-export function replaceEstimator(estimator: Estimator): Estimator | undefined {
+export function replaceEstimator(estimator: Estimator, origin: 'code' | 'module' = 'code'): Estimator | undefined {
   const previous = registry.get(estimator.id);
-  registry.set(estimator.id, estimator);
+  record(estimator, origin === 'module');
   return previous;
+}
+
+/** Those of `ids` whose estimator only this process has (see inProcessOnly): runs on worker threads must refuse them. */
+export function inProcessOnlyIds(ids: Iterable<string>): string[] {
+  return [...new Set(ids)].filter((id) => inProcessOnly.has(id));
 }
 
 export function listEstimators(): Estimator[] {

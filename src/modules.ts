@@ -242,7 +242,7 @@ export function registerUserEstimators(list: Estimator[], options: { replace: bo
   for (const estimator of list) {
     const previous = known.get(estimator.id);
     if (previous === estimator) continue;
-    replaceEstimator(estimator);
+    replaceEstimator(estimator, 'module');
     (previous ? replaced : added).push(estimator.id);
   }
   return { replaced, added };

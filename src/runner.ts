@@ -10,6 +10,7 @@ import { codeDifference, planCode, planFingerprint, type Plan, type PlanCode } f
 import { describeFileError, openAppender, writeFileAtomic, type Appender } from './files.js';
 import { executeUnit, planUnits, type Skip, type Unit, type UnitResult } from './work.js';
 import { runOnPool } from './pool.js';
+import { inProcessOnlyIds } from '../estimators/index.js';
 
 export interface Shard {
   /** 1-based. */
@@ -196,6 +197,14 @@ function workerEntry(): URL {
 export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<RunOutcome> {
   const started = performance.now();
   const context = buildContext(plan);
+  if (options.isolation !== 'in-process') {
+    const unseen = inProcessOnlyIds(context.all.map((c) => c.estimator.id));
+    if (unseen.length) {
+      throw new UsageError(
+        `${unseen.map((id) => `"${id}"`).join(', ')} ${unseen.length === 1 ? 'was' : 'were'} registered in this process by code, which worker threads cannot see (they would fail, or run the built-in of that id); load ${unseen.length === 1 ? 'it' : 'them'} from a module file, or run with isolation 'in-process'`,
+      );
+    }
+  }
   // Digesting the code reads every file of hhat and of the modules: once per run.
   const code = planCode(context.plan);
   const fingerprint = planFingerprint(context.plan, code);

@@ -141,6 +141,9 @@ describe('comparing runs', () => {
     const registration = await useEstimatorModules([shiftedModule]);
     expect(registration.replaced).toEqual(['kozachenko-leonenko']);
     shifted = await runInProcess(planA);
+    // A built-in replaced by code, not by a module file: threads would run the built-in, so they refuse.
+    replaceEstimator({ ...builtInKl });
+    await expect(runPlan(resolvePlan(planB).plan, { workers: 1 })).rejects.toThrow(/^"kozachenko-leonenko" was registered in this process by code/);
     replaceEstimator(builtInKl);
     shiftedPath = save('shifted.json', shifted);
   });

@@ -288,7 +288,9 @@ describe('bad input', () => {
       },
     });
     const plan = resolvePlan({ scenarios: ['normal'], estimators: ['test-fails-on-negative-first-point', 'gaussian'], sampleSizes: [20], replicates: 20, seed: 9 }).plan;
-    // Registered in this process only, so it runs in-process (worker threads know module estimators only).
+    // Registered in this process only, so it runs in-process (worker threads know module estimators only);
+    // on threads the run is refused before any work.
+    await expect(runPlan(plan, { workers: 1 })).rejects.toThrow(/^"test-fails-on-negative-first-point" was registered in this process by code, which worker threads cannot see/);
     const run = assembleRun(await runPlan(plan, { workers: 1, isolation: 'in-process' }), null);
     const failing = run.cells.find((c) => c.estimatorId === 'test-fails-on-negative-first-point')!;
     expect(failing.scores.failures).toBeGreaterThan(0);
