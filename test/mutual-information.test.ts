@@ -7,7 +7,11 @@
  * - the exact Gaussian bias of the plug-in covariance MI (Wishart log-determinant, Ahmed & Gokhale 1989);
  * - the published behaviour of KSG on Gaussians (Kraskov, Stögbauer & Grassberger 2004, from memory).
  */
+import { mkdtempSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
+import { main } from '../src/cli.js';
 import { configureEstimator, getEstimator } from '../estimators/index.js';
 import digammaStdlib from '@stdlib/math-base-special-digamma';
 import gammalnStdlib from '@stdlib/math-base-special-gammaln';
@@ -615,5 +619,49 @@ describe('mutual-information scenarios', () => {
       expect(b.data[4 * i + 3]).toBe(y * y * y);
     }
     expect(mapped.truth).toBe(base.truth);
+  });
+});
+
+describe('hhat estimate FILE --x-columns --y-columns', () => {
+  // A recording with a text label and an unused column beside X and Y: only X's and Y's columns are read.
+  const draw = normalRandom.factory(0, 1, { prng: rngFromSeed('estimate-mi-file') });
+  const rows = Array.from({ length: 400 }, () => {
+    const x = draw();
+    return { x, noise: draw(), y: 0.6 * x + 0.8 * draw() };
+  });
+  const file = join(mkdtempSync(join(tmpdir(), 'hhat-mi-file-')), 'probes.csv');
+  writeFileSync(file, ['label,x,noise,y', ...rows.map((r, i) => `probe-${i % 3},${r.x},${r.noise},${r.y}`)].join('\n'));
+
+  async function run(args: string[]) {
+    let out = '';
+    let err = '';
+    const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
+    return { code, out, err };
+  }
+
+  it('X by name and Y by position beside a text column: the Gaussian plug-in MI is −½ log(1 − r²) with r computed here by brute force', async () => {
+    const { code, out, err } = await run(['estimate', file, '--x-columns', 'x', '--y-columns', '4', '--estimator', 'mi-gaussian:correction=none', '--json']);
+    expect(err).toBe('');
+    expect(code).toBe(0);
+    const mean = (v: number[]) => v.reduce((s, a) => s + a, 0) / v.length;
+    const xs = rows.map((r) => r.x);
+    const ys = rows.map((r) => r.y);
+    const mx = mean(xs);
+    const my = mean(ys);
+    const sxy = xs.reduce((s, x, i) => s + (x - mx) * (ys[i] - my), 0);
+    const sxx = xs.reduce((s, x) => s + (x - mx) ** 2, 0);
+    const syy = ys.reduce((s, y) => s + (y - my) ** 2, 0);
+    const r = sxy / Math.sqrt(sxx * syy);
+    const parsed = JSON.parse(out) as { n: number; dim: number; estimates: { value: number }[] };
+    expect(parsed).toMatchObject({ n: 400, dim: 2 });
+    expect(parsed.estimates[0].value).toBeCloseTo(-0.5 * Math.log(1 - r * r), 12);
+  });
+
+  it('X and Y naming the same column (by name, or by overlapping ranges) is one line, exit code 2', async () => {
+    for (const [x, y, shown] of [['x', 'x,y', '"x"'], ['2-3', '3-4', '"3"']]) {
+      const { code, err } = await run(['estimate', file, '--x-columns', x, '--y-columns', y]);
+      expect(code).toBe(2);
+      expect(err.trim()).toBe(`hhat: --x-columns and --y-columns both name column ${shown}; X and Y must be different columns`);
+    }
   });
 });

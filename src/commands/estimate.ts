@@ -2,7 +2,8 @@ import type { Command } from 'commander';
 import { UsageError, EstimateError, type EstimateErrorCode } from '../errors.js';
 import { formatValue, renderTable, toBase, type Base } from '../format.js';
 import { readSample, findRepeats, describeRepeats } from '../data.js';
-import { selectTableColumns } from '../data/columns.js';
+import { selectionWidth, sharedSelection } from '../data/columns.js';
+import { showText } from '../data/table.js';
 import { describeReference, meanLogReference, parseReference } from '../reference.js';
 import { unitLabel } from '../units.js';
 import { describeRegistration, resolveModulePath, useEstimatorModules } from '../modules.js';
@@ -13,17 +14,6 @@ import { describeSeconds, predictedSeconds, rowsWithin } from '../cost-model.js'
 import { seededRowSubsample } from '../sample.js';
 import { parseNumber } from '../spec.js';
 import { describeReadProgress, statusLine } from '../status-line.js';
-
-/** Side by side: the columns of `a` then those of `b`, row by row (same n). */
-function joinColumns(a: Sample, b: Sample): Sample {
-  const dim = a.dim + b.dim;
-  const data = new Float64Array(a.n * dim);
-  for (let i = 0; i < a.n; i++) {
-    for (let j = 0; j < a.dim; j++) data[i * dim + j] = a.data[i * a.dim + j];
-    for (let j = 0; j < b.dim; j++) data[i * dim + a.dim + j] = b.data[i * b.dim + j];
-  }
-  return { n: a.n, dim, data, xDim: a.dim };
-}
 
 /** A sensible default set for the data's dimension: the strongest methods of each family that apply. */
 export function defaultEstimatorsFor(dim: number, quantity: Quantity = 'entropy'): string[] {
@@ -189,19 +179,20 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
         if (note && !options.json) printErr(note);
       }
       let quantity: Quantity = 'entropy';
-      let loaded = load(options.columns);
-      let sample = loaded.sample;
-      if (options.xColumns !== undefined || options.yColumns !== undefined) {
+      const mutualInformation = options.xColumns !== undefined || options.yColumns !== undefined;
+      if (mutualInformation) {
         if (options.xColumns === undefined || options.yColumns === undefined) throw new UsageError('mutual information needs both --x-columns and --y-columns');
         if (options.columns !== undefined) throw new UsageError('--columns cannot be combined with --x-columns/--y-columns');
         if (options.against !== undefined) throw new UsageError('--against (a divergence) cannot be combined with --x-columns/--y-columns (mutual information)');
-        // The file is read once, every column: X and Y are selections of it.
-        const x = selectTableColumns(loaded, options.xColumns, file);
-        const y = selectTableColumns(loaded, options.yColumns, file);
-        const overlap = x.columnNumbers.filter((c) => y.columnNumbers.includes(c));
-        if (overlap.length) throw new UsageError(`--x-columns and --y-columns both name column ${overlap[0]}; X and Y must be different columns`);
-        sample = joinColumns(x.sample, y.sample);
-        loaded = { ...loaded, sample, columnNames: [...x.columnNames, ...y.columnNames], columnNumbers: [...x.columnNumbers, ...y.columnNumbers] };
+        const shared = sharedSelection(options.xColumns, options.yColumns);
+        if (shared !== undefined) throw new UsageError(`--x-columns and --y-columns both name column ${showText(shared)}; X and Y must be different columns`);
+      }
+      // For mutual information only X's and Y's columns are read, in that order (other columns may hold text).
+      let loaded = load(mutualInformation ? `${options.xColumns},${options.yColumns}` : options.columns);
+      let sample = loaded.sample;
+      if (mutualInformation) {
+        sample = { ...sample, xDim: selectionWidth(options.xColumns!) };
+        loaded = { ...loaded, sample };
         quantity = 'mutual-information';
       } else if (options.against !== undefined) {
         const q = load(options.columns, options.against);

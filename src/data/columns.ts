@@ -61,6 +61,30 @@ export function resolveColumns(spec: string, names: readonly string[] | null, co
   return indices;
 }
 
+/** How many columns a selection spec names (each name one, a range its length); the spec is checked when resolved. */
+export function selectionWidth(spec: string): number {
+  return spec.split(',').reduce((width, part) => {
+    const range = rangePattern.exec(part.trim());
+    return width + (range ? Math.max(1, Number(range[2]) - Number(range[1]) + 1) : 1);
+  }, 0);
+}
+
+/**
+ * A part two selections share, written the same way (the same name, or overlapping positions), or undefined.
+ * A name in one and the position of that column in the other is caught when the joined spec is resolved.
+ */
+export function sharedSelection(a: string, b: string): string | undefined {
+  const expand = (spec: string) =>
+    spec.split(',').flatMap((raw) => {
+      const part = raw.trim();
+      const range = rangePattern.exec(part);
+      if (!range) return [part];
+      return Array.from({ length: Math.max(0, Number(range[2]) - Number(range[1]) + 1) }, (_, i) => String(Number(range[1]) + i));
+    });
+  const first = new Set(expand(a));
+  return expand(b).find((part) => first.has(part));
+}
+
 function findName(name: string, names: readonly string[] | null, source: string): number {
   if (names === null) {
     throw new UsageError(
