@@ -27,6 +27,7 @@ import { applicableEstimators } from '../src/advise/benchmark.js';
 import { adviseFile } from '../src/advise/file.js';
 import { adviseSetting, matchScenarios } from '../src/advise/setting.js';
 import { parseEstimatorSpec, runEstimator } from '../estimators/index.js';
+import { runCli as run } from './helpers/cli.js';
 
 interface Fixture {
   versions: Record<string, string>;
@@ -417,13 +418,6 @@ describe('advice that no estimator is usable', () => {
 });
 
 describe('hhat advise on the command line', () => {
-  async function run(args: string[]) {
-    let out = '';
-    let err = '';
-    const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
-    return { code, out, err };
-  }
-
   it('refuses mixed or missing descriptions with one line and exit code 2', async () => {
     for (const [args, message] of [
       [['advise'], /give a data file .* or describe the setting with --n and --dim/],

@@ -7,20 +7,13 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import normalEntropy from '@stdlib/stats-base-dists-normal-entropy';
-import { main } from '../src/cli.js';
 import { checkSampleMemory } from '../src/memory.js';
 import { parseScenario } from '../scenarios/index.js';
 import { replicateRng } from '../src/rng.js';
+import { runCli as run } from './helpers/cli.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'hhat-cli-'));
 const bin = join(__dirname, '..', 'bin', 'hhat.js');
-
-async function run(args: string[]): Promise<{ code: number; out: string; err: string }> {
-  let out = '';
-  let err = '';
-  const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
-  return { code, out, err };
-}
 
 describe('hhat scenarios', () => {
   it('--json lists the catalog with the documented keys', async () => {

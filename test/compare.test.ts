@@ -7,7 +7,6 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { XMLParser } from 'fast-xml-parser';
-import { main } from '../src/cli.js';
 import { compareRuns, failsPolicy, pairedTTest, parseTolerance, welchTTest, type Comparison } from '../src/compare.js';
 import { escapeXml, formatComparisonJson, formatComparisonJunit, formatComparisonMarkdown, formatP } from '../src/compare-format.js';
 import { resolvePlan, type PlanInput } from '../src/plan.js';
@@ -22,17 +21,11 @@ import { shiftedKozachenkoLeonenko } from './fixtures/shifted-kozachenko-leonenk
 import { wildKozachenkoLeonenko } from './fixtures/wild-kozachenko-leonenko.js';
 import { fisherExact, signTest, signTestAbove } from '../src/exact-tests.js';
 import scipy from './fixtures/compare.json' with { type: 'json' };
+import { runCli as run } from './helpers/cli.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'hhat-compare-'));
 const shiftedModule = join(__dirname, 'fixtures', 'shifted-kozachenko-leonenko.ts');
 const builtInKl = getEstimator('kozachenko-leonenko');
-
-async function run(args: string[]): Promise<{ code: number; out: string; err: string }> {
-  let out = '';
-  let err = '';
-  const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
-  return { code, out, err };
-}
 
 async function runInProcess(input: PlanInput): Promise<RunFile> {
   const { plan } = resolvePlan(input);

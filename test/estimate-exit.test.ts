@@ -8,21 +8,14 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
 import lognormalEntropy from '@stdlib/stats-base-dists-lognormal-entropy';
-import { main } from '../src/cli.js';
 import { parseScenario } from '../scenarios/index.js';
 import { replicateRng } from '../src/rng.js';
 import { ensureBuilt } from './helpers/built.js';
+import { runCli as run } from './helpers/cli.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'hhat-exit-'));
 const bin = join(__dirname, '..', 'bin', 'hhat.js');
 const n = 3000;
-
-async function run(args: string[]): Promise<{ code: number; out: string; err: string }> {
-  let out = '';
-  let err = '';
-  const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
-  return { code, out, err };
-}
 
 function lines(text: string): string[] {
   return text.split('\n').filter((line) => line !== '');

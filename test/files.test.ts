@@ -11,23 +11,16 @@ import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, 
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
-import { main } from '../src/cli.js';
 import { readRunFile } from '../src/results.js';
 import { mergeShards } from '../src/merge.js';
 import { removeLeftoverTemporaries, writeFileAtomic, acquireLock } from '../src/files.js';
 import { ensureBuilt } from './helpers/built.js';
+import { runCli as cli } from './helpers/cli.js';
 
 const root = join(__dirname, '..');
 const bin = join(root, 'bin', 'hhat.js');
 const dir = mkdtempSync(join(tmpdir(), 'hhat-files-'));
 const PLAN = ['--scenario', 'normal', '--scenario', 'uniform', '--n', '100,1000', '--replicates', '40', '--estimator', 'kozachenko-leonenko', '--estimator', 'vasicek'];
-
-async function cli(args: string[]): Promise<{ code: number; out: string; err: string }> {
-  let out = '';
-  let err = '';
-  const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
-  return { code, out, err };
-}
 
 const estimates = (path: string) => readRunFile(path).cells.map((c) => [c.scenario, c.estimator, c.n, c.estimates]);
 

@@ -10,13 +10,13 @@ import chisquareCdf from '@stdlib/stats-base-dists-chisquare-cdf';
 import { parseDelimited, readDelimitedFile, readSample } from '../src/data.js';
 import { UsageError } from '../src/errors.js';
 import { rngFromSeed } from '../src/rng.js';
-import { main } from '../src/cli.js';
 import { predictedSeconds, roundRowsDown, rowsWithin } from '../src/cost-model.js';
 import { checkSampleMemory, MAX_TYPED_ARRAY_LENGTH } from '../src/memory.js';
 import { seededRowSubsample, uniformRowSubsample } from '../src/sample.js';
 import { adviseFile, analysisRows } from '../src/advise/file.js';
 import { applicableEstimators } from '../src/advise/benchmark.js';
 import { listEstimators, parseEstimatorSpec } from '../estimators/index.js';
+import { runCli as run } from './helpers/cli.js';
 
 const tempDir = mkdtempSync(join(tmpdir(), 'hhat-large-data-'));
 afterAll(() => rmSync(tempDir, { recursive: true, force: true }));
@@ -105,13 +105,6 @@ describe('delimited files read through a window', () => {
     expect(table.sample.data.length).toBe(300 * 3);
   });
 });
-
-async function run(args: string[]): Promise<{ code: number; out: string; err: string }> {
-  let out = '';
-  let err = '';
-  const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
-  return { code, out, err };
-}
 
 /** Three correlated gauge columns, seeded, as CSV text and as the values written. */
 function gaugeFile(name: string, rows: number): { path: string; values: Float64Array } {

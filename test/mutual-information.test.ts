@@ -11,7 +11,6 @@ import { mkdtempSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
-import { main } from '../src/cli.js';
 import { configureEstimator, getEstimator } from '../estimators/index.js';
 import digammaStdlib from '@stdlib/math-base-special-digamma';
 import gammalnStdlib from '@stdlib/math-base-special-gammaln';
@@ -27,6 +26,7 @@ import { rankTransform } from '../estimators/mutual-information.js';
 import { catalog, parseScenario } from '../scenarios/index.js';
 import fixture from './fixtures/mi.json' with { type: 'json' };
 import { ksPValue } from './helpers/ks.js';
+import { runCli as run } from './helpers/cli.js';
 
 type Variant = 1 | 2;
 
@@ -631,13 +631,6 @@ describe('hhat estimate FILE --x-columns --y-columns', () => {
   });
   const file = join(mkdtempSync(join(tmpdir(), 'hhat-mi-file-')), 'probes.csv');
   writeFileSync(file, ['label,x,noise,y', ...rows.map((r, i) => `probe-${i % 3},${r.x},${r.noise},${r.y}`)].join('\n'));
-
-  async function run(args: string[]) {
-    let out = '';
-    let err = '';
-    const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
-    return { code, out, err };
-  }
 
   it('X by name and Y by position beside a text column: the Gaussian plug-in MI is −½ log(1 − r²) with r computed here by brute force', async () => {
     const { code, out, err } = await run(['estimate', file, '--x-columns', 'x', '--y-columns', '4', '--estimator', 'mi-gaussian:correction=none', '--json']);

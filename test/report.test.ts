@@ -14,22 +14,15 @@ import { runPlan } from '../src/runner.js';
 import { assembleRun, readRunFile, writeRunFile, type Cell, type RunFile } from '../src/results.js';
 import type { RobustnessSection } from '../src/robustness.js';
 import { UsageError } from '../src/errors.js';
-import { main } from '../src/cli.js';
 import { formatValue } from '../src/format.js';
 import { renderReport, writeReport } from '../src/report/report.js';
 import { biasTextChart } from '../src/report/text-chart.js';
 import { robustnessTable, scenarioTables } from '../src/tables.js';
+import { runCli as cli } from './helpers/cli.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'hhat-report-'));
 let run: RunFile;
 let runPath: string;
-
-async function cli(args: string[]): Promise<{ code: number; out: string; err: string }> {
-  let out = '';
-  let err = '';
-  const code = await main(args, { out: (t) => (out += `${t}\n`), err: (t) => (err += `${t}\n`) });
-  return { code, out, err };
-}
 
 beforeAll(async () => {
   const { plan } = resolvePlan({
