@@ -42,18 +42,15 @@ export function logUnitBallVolumeOf(norm: KnnNorm, dim: number): number {
  */
 export function kozachenkoLeonenkoEntropy(data: Float64Array, dim: number, k: number, norm: KnnNorm, id = 'kozachenko-leonenko'): number {
   const n = checkedPointCount(id, data, dim, k);
-  // Distances compare coordinates, so one power of two for all columns (estimators/scaling.ts).
-  const { data: points, logJacobian } = inSpreadUnit(data, n, dim, 'common');
-  const index = new KnnIndex(points, dim, { norm });
-  const { distances } = index.nearestOthers(k);
+  const { index, distances, stride, logJacobian } = neighbourDistances(data, n, dim, norm, k);
   let sumLogDistance = 0;
   let zeroCount = 0;
   for (let i = 0; i < n; i++) {
-    const kthDistance = distances[i * k + k - 1];
+    const kthDistance = distances[i * stride + k - 1];
     if (kthDistance === 0) zeroCount++;
     else sumLogDistance += Math.log(kthDistance);
   }
-  if (zeroCount > 0) throw tiesError(id, index, data, distances, k, zeroCount, n, k, (order) => order);
+  if (zeroCount > 0) throw tiesError(id, index, data, distances, stride, zeroCount, n, k, (order) => order);
   return digamma(n) - digamma(k) + logUnitBallVolumeOf(norm, dim) + (dim * sumLogDistance) / n + logJacobian;
 }
 
@@ -219,24 +216,76 @@ export function weightedKozachenkoLeonenkoEntropy(
     throw new EstimateError('invalid-input', `${id}: ${(error as Error).message}`);
   }
   const { orders, weights } = orderWeights;
-  // Distances compare coordinates, so one power of two for all columns (estimators/scaling.ts).
-  const { data: points, logJacobian } = inSpreadUnit(data, n, dim, 'common');
-  const index = new KnnIndex(points, dim, { norm });
-  const { distances } = index.nearestOthers(k);
+  const { index, distances, stride, logJacobian } = neighbourDistances(data, n, dim, norm, k);
   const firstOrder = orders[0];
   let zeroCount = 0;
-  for (let i = 0; i < n; i++) if (distances[i * k + firstOrder - 1] === 0) zeroCount++;
+  for (let i = 0; i < n; i++) if (distances[i * stride + firstOrder - 1] === 0) zeroCount++;
   // The smallest order used is ⌊k/d⌋ (when ≥ 1), so it exceeds m - 1 once k ≥ d·m.
-  if (zeroCount > 0) throw tiesError(id, index, data, distances, k, zeroCount, n, firstOrder, (order) => dim * order);
+  if (zeroCount > 0) throw tiesError(id, index, data, distances, stride, zeroCount, n, firstOrder, (order) => dim * order);
   let weightedLogDistance = 0;
   let weightedDigamma = 0;
   for (const j of orders) {
     let sumLogDistance = 0;
-    for (let i = 0; i < n; i++) sumLogDistance += Math.log(distances[i * k + j - 1]);
+    for (let i = 0; i < n; i++) sumLogDistance += Math.log(distances[i * stride + j - 1]);
     weightedLogDistance += weights[j - 1] * (sumLogDistance / n);
     weightedDigamma += weights[j - 1] * digamma(j);
   }
   return dim * weightedLogDistance + logUnitBallVolumeOf(norm, dim) + Math.log(n - 1) - weightedDigamma + logJacobian;
+}
+
+/**
+ * All-points neighbour distances of one sample, kept while the sample's data array lives, so that every k of
+ * a tuning grid and both Kozachenko–Leonenko estimators on the same draw share one tree and one search. A
+ * search for more neighbours than asked is made only when the same data come back for more (the second
+ * request fetches SHARED_NEIGHBOURS at once), so a single estimate never pays for neighbours it does not use.
+ * The j-th distance does not depend on how many neighbours were searched: the estimates are bit-identical.
+ */
+interface NeighbourSearch {
+  /** The data searched, copied: a hit must hold the same values (a caller may refill its array). */
+  values: Float64Array;
+  index: KnnIndex;
+  distances: Float64Array;
+  /** Neighbours per point in `distances`. */
+  stride: number;
+  logJacobian: number;
+}
+
+/** The largest k of the built-in tuning grids (the weighted estimator's 2..20). */
+const SHARED_NEIGHBOURS = 20;
+/** Distances kept per sample at most (8 bytes each): beyond this a second request searches again instead. */
+const SHARED_DISTANCES_MAX = 2 ** 22;
+/** Keyed by the data's buffer: estimators receive a new view of the same draw (subarray) on every call. */
+const searches = new WeakMap<ArrayBufferLike, Map<KnnNorm, NeighbourSearch>>();
+
+function sameValues(a: Float64Array, b: Float64Array): boolean {
+  if (a.length !== b.length) return false;
+  for (let i = 0; i < a.length; i++) if (!Object.is(a[i], b[i])) return false;
+  return true;
+}
+
+function neighbourDistances(data: Float64Array, n: number, dim: number, norm: KnnNorm, k: number): NeighbourSearch {
+  const byNorm = searches.get(data.buffer);
+  let kept = byNorm?.get(norm);
+  if (kept && !(kept.index.dim === dim && sameValues(kept.values, data))) kept = undefined;
+  if (kept && kept.stride >= k) return kept;
+  let index: KnnIndex;
+  let logJacobian: number;
+  let stride = k;
+  if (kept) {
+    ({ index, logJacobian } = kept);
+    stride = Math.min(n - 1, Math.max(k, SHARED_NEIGHBOURS));
+  } else {
+    // Distances compare coordinates, so one power of two for all columns (estimators/scaling.ts).
+    const scaled = inSpreadUnit(data, n, dim, 'common');
+    logJacobian = scaled.logJacobian;
+    index = new KnnIndex(scaled.data, dim, { norm });
+  }
+  const search: NeighbourSearch = { values: kept?.values ?? Float64Array.from(data), index, distances: index.nearestOthers(stride).distances, stride, logJacobian };
+  if (n * stride <= SHARED_DISTANCES_MAX) {
+    if (byNorm) byNorm.set(norm, search);
+    else searches.set(data.buffer, new Map([[norm, search]]));
+  }
+  return search;
 }
 
 /** n, after checking the data are finite and n > k. */

@@ -77,6 +77,30 @@ describe('kozachenko-leonenko', () => {
   });
 });
 
+describe('one neighbour search per draw, shared by every k (a tuning grid) and both estimators', () => {
+  it('a grid of k on one array gives exactly what each k gives on its own copy, and the brute force to 1e-12', () => {
+    const sample = gaussianSample('shared-search', 300, 2);
+    for (const norm of ['euclidean', 'max'] as const) {
+      for (const k of [3, 1, 2, 12, 5, 20, 9]) {
+        const shared = klEstimator.estimate(sample, { k, norm });
+        expect(shared, `k = ${k}`).toBe(klEstimator.estimate({ ...sample, data: Float64Array.from(sample.data) }, { k, norm }));
+        expect(relativeError(shared, bruteKozachenkoLeonenko(sample, k, norm))).toBeLessThan(1e-12);
+        const weighted = weightedEstimator.estimate(sample, { k: Math.max(k, 2), norm });
+        expect(weighted).toBe(weightedEstimator.estimate({ ...sample, data: Float64Array.from(sample.data) }, { k: Math.max(k, 2), norm }));
+      }
+    }
+  });
+
+  it('an array refilled with another draw is searched again, never answered from the previous one', () => {
+    const sample = gaussianSample('shared-refill-a', 300, 2);
+    const other = gaussianSample('shared-refill-b', 300, 2);
+    klEstimator.estimate(sample, { k: 3, norm: 'euclidean' });
+    klEstimator.estimate(sample, { k: 4, norm: 'euclidean' });
+    sample.data.set(other.data);
+    for (const k of [3, 4, 6]) expect(relativeError(klEstimator.estimate(sample, { k, norm: 'euclidean' }), bruteKozachenkoLeonenko(other, k, 'euclidean'))).toBeLessThan(1e-12);
+  });
+});
+
 describe('kozachenko-leonenko-weighted: weights', () => {
   // Γ(j + 2ℓ/d)/Γ(j) straight from @stdlib's gamma (the estimator uses exp of log-gamma differences).
   const gammaRatio = (j: number, shift: number) => gammaStdlib(j + shift) / gammaStdlib(j);
