@@ -50,11 +50,31 @@ export function formatBytes(bytes: number): string {
   return `${Math.round(bytes)} B`;
 }
 
+/** Room for the supervising thread beside its workers, MiB. */
+const SUPERVISOR_MIB = 1024;
+/** The share of the machine's memory a run may take, leaving the rest to the system. */
+const MACHINE_FRACTION = 0.85;
+
+/**
+ * The memory a run on worker threads may use: each worker's heap limit plus the supervisor's room, at most
+ * MACHINE_FRACTION of the machine. Typed arrays live outside a worker's heap, so its heap limit cannot stop an
+ * estimate that hoards them; the pool's watchdog stops the estimate running longest once the process passes
+ * this, and `checkSampleMemory` refuses a plan that would need more before it starts.
+ */
+export function processMemoryLimitBytes(workers: number, workerMemoryMiB: number, totalBytes = totalmem()): number {
+  return Math.min((workers * workerMemoryMiB + SUPERVISOR_MIB) * 2 ** 20, MACHINE_FRACTION * totalBytes);
+}
+
 export interface MemoryCheckOptions {
   /** Worker threads that each hold a sample (default 1). */
   workers?: number;
   /** The machine's memory in bytes (default os.totalmem()); for tests. */
   totalBytes?: number;
+  /**
+   * For runs on worker threads: the plan's limits.workerMemoryMiB. The sample must then fit the run's
+   * process limit (processMemoryLimitBytes), which the pool's watchdog enforces, not just the machine.
+   */
+  workerMemoryMiB?: number;
 }
 
 /**
@@ -71,10 +91,19 @@ export function checkSampleMemory(what: string, n: number, dim: number, options:
     );
   }
   const needed = sampleMemoryBytes(n, dim, workers);
-  if (needed <= total) return;
-  const fitting = Math.floor((total - BASE_BYTES) / (workers * bytesPerWorker(1, dim)));
-  const fewerWorkers = workers > 1 && sampleMemoryBytes(n, dim, 1) <= total ? `, or fewer workers (--workers ${Math.max(1, Math.floor((total - BASE_BYTES) / bytesPerWorker(n, dim)))})` : '';
+  const mib = options.workerMemoryMiB;
+  const limit = mib === undefined ? total : processMemoryLimitBytes(workers, mib, total);
+  if (needed <= limit) return;
+  const fitting = Math.floor((limit - BASE_BYTES) / (workers * bytesPerWorker(1, dim)));
+  const limitOf = (w: number) => (mib === undefined ? total : processMemoryLimitBytes(w, mib, total));
+  let fewer = workers - 1;
+  while (fewer >= 1 && sampleMemoryBytes(n, dim, fewer) > limitOf(fewer)) fewer--;
+  const fewerWorkers = fewer >= 1 ? `, or fewer workers (--workers ${fewer})` : '';
+  const against =
+    mib === undefined || limit >= MACHINE_FRACTION * total
+      ? `this machine's ${formatBytes(total)}${mib === undefined ? '' : ` (a run may use ${Math.round(MACHINE_FRACTION * 100)}% of it)`}`
+      : `the run's limit of ${formatBytes(limit)} (${workers} × limits.workerMemoryMiB ${mib} MiB + ${SUPERVISOR_MIB} MiB; a plan may raise limits.workerMemoryMiB up to ${Math.round(MACHINE_FRACTION * 100)}% of this machine's ${formatBytes(total)})`;
   throw new UsageError(
-    `${what} needs about ${formatBytes(needed)} of memory (${workers} worker${workers === 1 ? '' : 's'} × ${n} points in d = ${dim}, about ${bytesPerWorker(1, dim)} bytes per point for the sample and the estimators' working copies), more than this machine's ${formatBytes(total)}; use n ≤ ${Math.max(0, fitting)}${fewerWorkers}`,
+    `${what} needs about ${formatBytes(needed)} of memory (${workers} worker${workers === 1 ? '' : 's'} × ${n} points in d = ${dim}, about ${bytesPerWorker(1, dim)} bytes per point for the sample and the estimators' working copies), more than ${against}; use n ≤ ${Math.max(0, fitting)}${fewerWorkers}`,
   );
 }

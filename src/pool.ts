@@ -11,10 +11,10 @@
  *
  *   const interrupted = await runOnPool(plan, units, { size: 2, entry, onResult, signal });
  */
-import { totalmem } from 'node:os';
 import { Worker } from 'node:worker_threads';
 import { EnvironmentError, UsageError } from './errors.js';
 import { estimateTimeLimit, type Plan } from './plan.js';
+import { processMemoryLimitBytes } from './memory.js';
 import { markerViews, newMarker, type WorkerJob, type WorkerMessage } from './pool-protocol.js';
 import { addReplicate, emptyUnitResult, type Unit, type UnitResult } from './work.js';
 
@@ -175,7 +175,7 @@ export function runOnPool(plan: Plan, units: Unit[], options: PoolOptions): Prom
     options.signal?.addEventListener('abort', () => finish(true), { once: true });
     // Typed arrays live outside a worker's heap, so its heap limit cannot stop an estimator that hoards them:
     // the process as a whole is held to the workers' limits plus room for the supervisor.
-    const processLimitBytes = Math.min((options.size * plan.limits.workerMemoryMiB + 1024) * 2 ** 20, 0.85 * totalmem());
+    const processLimitBytes = processMemoryLimitBytes(options.size, plan.limits.workerMemoryMiB);
     watchdog = setInterval(() => {
       const now = Date.now();
       if (process.memoryUsage.rss() > processLimitBytes) {

@@ -7,7 +7,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import normalEntropy from '@stdlib/stats-base-dists-normal-entropy';
-import { checkSampleMemory } from '../src/memory.js';
+import { checkSampleMemory, processMemoryLimitBytes } from '../src/memory.js';
 import { parseScenario } from '../scenarios/index.js';
 import { replicateRng } from '../src/rng.js';
 import { runCli as run } from './helpers/cli.js';
@@ -142,5 +142,21 @@ describe('sizes the machine cannot hold', () => {
     // formula, worked out here by hand).
     expect(() => checkSampleMemory('n = 100000000', 1e8, 5, { workers: 2, totalBytes: 16e9 })).toThrow(/needs about 93 GB of memory .*more than this machine's 16 GB/);
     expect(() => checkSampleMemory('n = 1000', 1000, 5, { workers: 2, totalBytes: 16e9 })).not.toThrow();
+  });
+
+  it("a run on workers must fit the limit its watchdog enforces, not just the machine: the plan's workerMemoryMiB names the lever", () => {
+    // 1e7 points in d = 3 on 2 workers: 150 MB + 2 × 1e7 × 8 × (6·3 + 28) bytes = 7.51 GB, by hand. The run's
+    // limit is min((2 × 1024 + 1024) MiB, 85% of 24 GB) = 3 GiB = 3.22 GB: refused, although the machine holds it;
+    // what fits is (3 GiB − 150 MB)/(2 × 368 bytes) = 4172860 points (one worker's 2 GiB would not hold 1e7 either).
+    const machine = 24e9;
+    expect(() => checkSampleMemory('n = 10000000', 1e7, 3, { workers: 2, totalBytes: machine })).not.toThrow();
+    expect(() => checkSampleMemory('n = 10000000', 1e7, 3, { workers: 2, totalBytes: machine, workerMemoryMiB: 1024 })).toThrow(
+      /needs about 7\.5 GB of memory .*more than the run's limit of 3\.2 GB \(2 × limits\.workerMemoryMiB 1024 MiB \+ 1024 MiB; a plan may raise limits\.workerMemoryMiB up to 85% of this machine's 24 GB\); use n ≤ 4172860$/,
+    );
+    // With the default 4096 MiB per worker the limit is 9 GiB = 9.66 GB: it fits.
+    expect(() => checkSampleMemory('n = 10000000', 1e7, 3, { workers: 2, totalBytes: machine, workerMemoryMiB: 4096 })).not.toThrow();
+    // The pool's watchdog uses the same limit.
+    expect(processMemoryLimitBytes(2, 4096, machine)).toBe(9 * 2 ** 30);
+    expect(processMemoryLimitBytes(2, 16384, machine)).toBe(0.85 * machine);
   });
 });

@@ -10,6 +10,7 @@ import { adviseSetting, MAX_BUDGET_SECONDS } from '../advise/setting.js';
 import { fileAdviceJson, renderFileAdvice, renderSettingAdvice, settingAdviceJson } from '../advise/render.js';
 import { DEFAULT_BUDGET_SECONDS } from '../advise/benchmark.js';
 import { checkSampleMemory } from '../memory.js';
+import { DEFAULT_LIMITS } from '../plan.js';
 import { defaultWorkers } from '../runner.js';
 import { describeReadProgress, statusLine } from '../status-line.js';
 
@@ -128,7 +129,7 @@ Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICAT
       const n = parseIntegerOption('--n', options.n, 10, MAX_SAMPLE_SIZE);
       const dim = parseIntegerOption('--dim', options.dim, 1, 1000);
       // Before anything runs: a sample that the benchmark's workers could not hold is refused with what it would need.
-      checkSampleMemory(`--n ${options.n}`, n, dim, { workers: workers ?? defaultWorkers() });
+      checkSampleMemory(`--n ${options.n}`, n, dim, { workers: workers ?? defaultWorkers(), workerMemoryMiB: DEFAULT_LIMITS.workerMemoryMiB });
       const advice = await adviseSetting({
         n,
         dim,

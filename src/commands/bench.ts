@@ -222,7 +222,7 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
       const { plan, scenarios } = resolvePlan(input, options.plan ?? 'command line');
       // Refused before any work starts, with what it would need, rather than a crash part way.
       const largestN = Math.max(...plan.sampleSizes);
-      checkSampleMemory(`n = ${largestN}`, largestN, Math.max(...scenarios.map((x) => x.dim)), { workers });
+      checkSampleMemory(`n = ${largestN}`, largestN, Math.max(...scenarios.map((x) => x.dim)), { workers, workerMemoryMiB: plan.limits.workerMemoryMiB });
       const checkpoint = checkpointFor(out);
       const resumeHint = `the finished units are saved in ${checkpoint}; fix that and rerun with --resume --out ${out}`;
       ensureFolder(dirname(out), 'choose another --out');
