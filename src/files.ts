@@ -7,7 +7,7 @@
  *   const release = acquireLock('results/run.json');   // throws if another live process holds it
  */
 import { randomBytes } from 'node:crypto';
-import { closeSync, constants, fsyncSync, mkdirSync, openSync, readdirSync, readFileSync, renameSync, rmSync, unlinkSync, writeSync } from 'node:fs';
+import { closeSync, constants, fsyncSync, linkSync, mkdirSync, openSync, readdirSync, readFileSync, renameSync, rmSync, unlinkSync, writeSync } from 'node:fs';
 import { hostname } from 'node:os';
 import { basename, dirname, join } from 'node:path';
 import { EnvironmentError } from './errors.js';
@@ -175,6 +175,22 @@ function alive(pid: number): boolean {
   }
 }
 
+/** Links the written draft into place; where the file system has no hard links, creates the lock exclusively instead. */
+function linkLock(draft: string, lock: string, me: LockHolder): void {
+  try {
+    linkSync(draft, lock);
+  } catch (error) {
+    const code = (error as NodeJS.ErrnoException).code;
+    if (code !== 'EPERM' && code !== 'ENOTSUP' && code !== 'ENOSYS' && code !== 'EOPNOTSUPP') throw error;
+    const fd = openSync(lock, constants.O_WRONLY | constants.O_CREAT | constants.O_EXCL, 0o644);
+    try {
+      writeAll(fd, JSON.stringify(me));
+    } finally {
+      closeSync(fd);
+    }
+  }
+}
+
 /**
  * Takes `<path>.lock` for this process, or refuses while another live process on this machine holds it.
  * A lock whose process is gone (a crash, a kill) is stale and taken over; a lock from another machine (a
@@ -185,13 +201,22 @@ export function acquireLock(path: string, hint?: string): () => void {
   ensureFolder(dirname(path), hint);
   const me: LockHolder = { pid: process.pid, host: hostname(), started: new Date().toISOString() };
   for (let attempt = 0; attempt < 2; attempt++) {
+    // Written whole under a private name, then linked into place (which fails if the lock exists): another
+    // process never sees an empty lock, which it would take for a crashed writer's and take over.
+    const draft = `${lock}.${process.pid}.${randomBytes(4).toString('hex')}.tmp`;
     try {
-      const fd = openSync(lock, constants.O_WRONLY | constants.O_CREAT | constants.O_EXCL, 0o644);
-      writeAll(fd, JSON.stringify(me));
-      closeSync(fd);
+      const fd = openSync(draft, constants.O_WRONLY | constants.O_CREAT | constants.O_EXCL, 0o644);
+      try {
+        writeAll(fd, JSON.stringify(me));
+      } finally {
+        closeSync(fd);
+      }
+      linkLock(draft, lock, me);
       return () => rmSync(lock, { force: true });
     } catch (error) {
       if ((error as NodeJS.ErrnoException).code !== 'EEXIST') fail(error, 'create the lock', lock, hint);
+    } finally {
+      rmSync(draft, { force: true });
     }
     let holder: LockHolder | null = null;
     try {

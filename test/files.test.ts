@@ -122,6 +122,8 @@ describe('one output, one process', () => {
     // Wait until the first run holds the lock.
     for (let i = 0; i < 1200 && !existsSync(`${out}.lock`); i++) await new Promise((r) => setTimeout(r, 25));
     expect(existsSync(`${out}.lock`)).toBe(true);
+    // Linked into place whole: the moment it exists it names its holder (never an empty file to take over).
+    expect(JSON.parse(readFileSync(`${out}.lock`, 'utf8'))).toMatchObject({ pid: first.pid });
     const second = await cli(['bench', '--scenario', 'normal', '--n', '20000', '--replicates', '200', '--estimator', 'kozachenko-leonenko', '--out', out, '--quiet', '--resume']);
     expect(second.code).toBe(1);
     expect(second.err).toMatch(new RegExp(`is being written by process ${first.pid} on .*; wait for it to finish, or choose another --out`));
@@ -130,6 +132,7 @@ describe('one output, one process', () => {
     // The killed run left its lock behind: its process is gone, so the lock is stale and the next taker gets it.
     expect(existsSync(`${out}.lock`)).toBe(true);
     const release = acquireLock(out);
+    expect(readdirSync(dir).filter((f) => f.startsWith('shared.json.lock.'))).toEqual([]);
     release();
     expect(existsSync(`${out}.lock`)).toBe(false);
     rmSync(`${out}.checkpoint.jsonl`, { force: true });
