@@ -1,9 +1,9 @@
 /**
- * Which code computed a result: hhat's own build (its version and a digest of every file of its code), and
- * for each estimator module a digest of the module and of every file it imports. Both enter a plan's
+ * Which code computed a result: hhat's own build (its version, a digest of every file of its code and the
+ * installed version of each package it depends on), and for each estimator module a digest of the module and of every file it imports. Both enter a plan's
  * fingerprint, so a checkpoint or a shard made by other code is refused instead of mixed in.
  *
- *   codeIdentity()                       // { version: '0.1.0', build: 'sha256 of dist/ (or the sources)' }
+ *   codeIdentity()                       // { version: '0.1.0', build: 'sha256 of dist/ (or the sources)', dependencies: ['seedrandom@3.0.5', …] }
  *   moduleGraph('/lab/kl-edited.mjs')    // { digest, files: [{ path, sha256 }], packages: ['ml-matrix@6.15.1'] }
  *
  * Imports are followed by reading the source: static `import`/`export ... from`, `import('literal')` and
@@ -22,6 +22,11 @@ export interface CodeIdentity {
   version: string;
   /** sha256 over the paths and contents of hhat's own code files. */
   build: string;
+  /**
+   * name@version of each package hhat depends on, as installed: the samplers and special functions come from
+   * them, so a different version may give other draws or values under the same build.
+   */
+  dependencies: string[];
 }
 
 let identity: CodeIdentity | undefined;
@@ -50,7 +55,12 @@ export function codeIdentity(): CodeIdentity {
   for (const file of codeFolders().flatMap((f) => listFiles(f)).sort()) {
     hash.update(relative(root, file)).update('\0').update(readFileSync(file)).update('\0');
   }
-  identity = { version: hhatVersion(), build: hash.digest('hex') };
+  const manifest = JSON.parse(readFileSync(join(root, 'package.json'), 'utf8')) as { dependencies?: Record<string, string> };
+  const from = join(root, 'package.json');
+  const dependencies = Object.keys(manifest.dependencies ?? {})
+    .sort()
+    .map((name) => packageVersion(name, from));
+  identity = { version: hhatVersion(), build: hash.digest('hex'), dependencies };
   return identity;
 }
 

@@ -287,6 +287,14 @@ export function codeDifference(made: PlanCode, now: PlanCode): string | null {
   if (made.hhat.version !== now.hhat.version || made.hhat.build !== now.hhat.build) {
     reasons.push(`it was made by hhat ${made.hhat.version} (build ${made.hhat.build.slice(0, 12)}) and this is hhat ${now.hhat.version} (build ${now.hhat.build.slice(0, 12)})`);
   }
+  // Checkpoints written before dependencies were recorded have none: that is a difference too.
+  const installed = new Set(now.hhat.dependencies);
+  const changed = (made.hhat.dependencies ?? []).filter((d) => !installed.has(d));
+  if (!made.hhat.dependencies || changed.length || made.hhat.dependencies.length !== now.hhat.dependencies.length) {
+    const was = new Set(made.hhat.dependencies ?? []);
+    const nowOnly = now.hhat.dependencies.filter((d) => !was.has(d));
+    reasons.push(`the packages hhat uses differ (${[...changed.map((d) => `${d} then`), ...nowOnly.map((d) => `${d} now`)].slice(0, 4).join(', ') || 'not recorded then'})`);
+  }
   const before = new Map(made.modules.map((m) => [m.path, m.digest]));
   for (const m of now.modules) {
     const was = before.get(m.path);

@@ -16,6 +16,7 @@ import { mergeShards } from '../src/merge.js';
 import { removeLeftoverTemporaries, writeFileAtomic, acquireLock } from '../src/files.js';
 import { ensureBuilt } from './helpers/built.js';
 import { runCli as cli } from './helpers/cli.js';
+import { hhatVersion } from '../src/provenance.js';
 
 const root = join(__dirname, '..');
 const bin = join(root, 'bin', 'hhat.js');
@@ -174,11 +175,17 @@ describe('code versions are never mixed', () => {
     await runPlan(plan, { workers: 1, checkpointPath: `${out}.checkpoint.jsonl`, signal: controller.signal, onProgress: () => controller.abort() });
     const lines = readFileSync(`${out}.checkpoint.jsonl`, 'utf8').split('\n');
     const header = JSON.parse(lines[0]);
-    header.code.hhat = { version: '0.0.9', build: 'f'.repeat(64) };
-    header.fingerprint = '0'.repeat(64);
-    writeFileSync(`${out}.checkpoint.jsonl`, [JSON.stringify(header), ...lines.slice(1)].join('\n'));
+    const write = (hhat: object) => writeFileSync(`${out}.checkpoint.jsonl`, [JSON.stringify({ ...header, fingerprint: '0'.repeat(64), code: { ...header.code, hhat } }), ...lines.slice(1)].join('\n'));
+    const version = hhatVersion().replace(/\./g, '\\.');
+    write({ ...header.code.hhat, version: '0.0.9', build: 'f'.repeat(64) });
     await expect(runPlan(plan, { workers: 1, checkpointPath: `${out}.checkpoint.jsonl`, resume: true })).rejects.toThrow(
-      /cannot be resumed: it was made by hhat 0\.0\.9 \(build ffffffffffff\) and this is hhat 0\.1\.0 \(build [0-9a-f]{12}\); resuming would mix estimates of two versions of the code/,
+      new RegExp(`cannot be resumed: it was made by hhat 0\\.0\\.9 \\(build ffffffffffff\\) and this is hhat ${version} \\(build [0-9a-f]{12}\\); resuming would mix estimates of two versions of the code`),
+    );
+    // The same build with another version of a package it draws from (the samplers come from @stdlib).
+    const dependencies = header.code.hhat.dependencies.map((d: string) => (d.startsWith('@stdlib/random-base-normal@') ? '@stdlib/random-base-normal@0.0.1' : d));
+    write({ ...header.code.hhat, dependencies });
+    await expect(runPlan(plan, { workers: 1, checkpointPath: `${out}.checkpoint.jsonl`, resume: true })).rejects.toThrow(
+      /cannot be resumed: the packages hhat uses differ \(@stdlib\/random-base-normal@0\.0\.1 then, @stdlib\/random-base-normal@\d+\.\d+\.\d+ now\)/,
     );
   });
 
