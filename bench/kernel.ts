@@ -1,20 +1,25 @@
 /**
  * Speed of the kernel entropy estimator: the 1-D estimate (Silverman bandwidth, standard normal data) at
- * n = 10⁴, 10⁵, 10⁶ with the fitted growth exponent (least-squares slope of log time on log n), the
- * d = 3, n = 20000 estimate, and the binning error of the 1-D FFT path against the exact path.
+ * n = 10⁴, 10⁵, 10⁶ and the d = 2 and d = 3 estimates at n = 10⁴..10⁵, each with its fitted growth exponent
+ * (least-squares slope of log time on log n, medians of repeated runs, the load average beside them); the
+ * d = 2, 3 grid path's error against the exact path at n = 20000; and the binning error of the 1-D FFT path
+ * against its exact path.
  *
  * Run alone: npx tsx bench/kernel.ts
  */
+import { loadavg } from 'node:os';
 import { pathToFileURL } from 'node:url';
 import normalFactory from '@stdlib/random-base-normal';
 import exponentialFactory from '@stdlib/random-base-exponential';
 import type { Sample } from '../src/contracts.js';
 import { rngFromSeed } from '../src/rng.js';
+import { parseScenario } from '../scenarios/index.js';
 import { kernelEstimator } from '../estimators/kernel.js';
 import { univariateLogKernelSums } from '../estimators/kernel/univariate.js';
 import { univariateRuleBandwidth } from '../estimators/kernel/bandwidth.js';
 import { multivariateLogKernelSums } from '../estimators/kernel/multivariate.js';
-import { prepareKernelData, ruleBandwidth } from '../estimators/kernel/resubstitution.js';
+import { kernelEntropy, prepareKernelData, ruleBandwidth } from '../estimators/kernel/resubstitution.js';
+import { GRID_TOLERANCE, planGrid } from '../estimators/kernel/grid.js';
 
 function normalSample(seed: string, n: number, dim: number): Sample {
   const draw = normalFactory.factory(0, 1, { prng: rngFromSeed(seed) });
@@ -66,6 +71,74 @@ function binningError(name: string, draw: () => number, n: number): string {
   return `1-D binned vs exact path, ${name}, n = ${n}: |ΔĤ| = ${Math.abs(binned - exact).toExponential(2)} nats`;
 }
 
+/** The 1-minute load average, as `uptime` prints it: the machine is shared, so figures carry it. */
+function load(): string {
+  return `load ${loadavg()[0].toFixed(2)}`;
+}
+
+/**
+ * d = 2, 3 on standard normal data at the default (rule) bandwidth through the public estimator, so
+ * whitening, the bandwidth and the path choice are included: times, the path auto took, the grid's memory,
+ * and the growth exponent over n = 1e4..1e5.
+ */
+function multivariateGrowth(dim: number): string[] {
+  const lines: string[] = [];
+  const sizes = [1e4, 2e4, 5e4, 1e5];
+  const walls: number[] = [];
+  const cpus: number[] = [];
+  for (const n of sizes) {
+    const sample = normalSample(`bench-kernel-${dim}d-${n}`, n, dim);
+    const data = prepareKernelData(sample);
+    const h = ruleBandwidth(data, 'silverman');
+    const path = multivariateLogKernelSums(data.points, n, dim, h).path;
+    const plan = planGrid(data.points, n, dim, h);
+    const grid = plan ? `grid ${plan.nodes.join('×')} = ${((plan.totalNodes * 8) / 2 ** 20).toFixed(1)} MiB` : 'no grid';
+    const time = medianTime(() => kernelEstimator.estimate(sample, { bandwidth: 'silverman' }), n >= 5e4 ? 3 : 5);
+    walls.push(time.wall);
+    cpus.push(time.cpu);
+    lines.push(`kernel d = ${dim} (silverman, normal) n = ${n.toExponential(0)}: ${time.wall.toFixed(0)} ms wall, ${time.cpu.toFixed(0)} ms CPU (${path} path; ${grid}; ${load()})`);
+  }
+  const logSizes = sizes.map(Math.log);
+  lines.push(
+    `kernel d = ${dim} growth exponent (slope of log time on log n, n = 1e4..1e5): ${slope(logSizes, walls.map(Math.log)).toFixed(2)} wall, ${slope(logSizes, cpus.map(Math.log)).toFixed(2)} CPU`,
+  );
+  return lines;
+}
+
+/** Three tight normal clusters (SD 0.15) a few units apart. */
+function clusteredSample(seed: string, n: number, dim: number): Sample {
+  const sample = normalSample(seed, n, dim);
+  for (let i = 0; i < n; i++) {
+    for (let k = 0; k < dim; k++) sample.data[i * dim + k] = 0.15 * sample.data[i * dim + k] + (i % 3 === 0 ? 0 : i % 3 === 1 ? 4 : k === 0 ? -3 : 2);
+  }
+  return sample;
+}
+
+/** |Ĥ_grid − Ĥ_exact| (the cell list as reference) at the rule's h, h/4 and 4h, against the grid's derived bound. */
+function fastVersusExact(n: number): string[] {
+  const lines: string[] = [];
+  let worst = 0;
+  for (const dim of [2, 3]) {
+    for (const [name, sample] of [
+      ['normal', normalSample(`bench-kernel-error-normal-${dim}`, n, dim)],
+      ['lognormal σ = 1 (skewed)', parseScenario(`lognormal-mv:dim=${dim},sigma=1`).sample(rngFromSeed(`bench-kernel-error-skewed-${dim}`), n) as Sample],
+      ['3 clusters', clusteredSample(`bench-kernel-error-clusters-${dim}`, n, dim)],
+    ] as const) {
+      const data = prepareKernelData(sample);
+      const rule = ruleBandwidth(data, 'silverman');
+      const errors: string[] = [];
+      for (const [label, h] of [['h', rule], ['h/4', rule / 4], ['4h', 4 * rule]] as const) {
+        const error = Math.abs(kernelEntropy(data, h, { multivariate: 'grid' }) - kernelEntropy(data, h, { multivariate: 'cells' }));
+        worst = Math.max(worst, error);
+        errors.push(`${label} ${error.toExponential(1)}`);
+      }
+      lines.push(`kernel d = ${dim} grid vs exact path, ${name}, n = ${n}: |ΔĤ| = ${errors.join(', ')} nats`);
+    }
+  }
+  lines.push(`kernel grid vs exact, largest |ΔĤ| = ${worst.toExponential(1)} nats (derived bound ${(2 * GRID_TOLERANCE).toExponential(0)}; ${load()})`);
+  return lines;
+}
+
 export async function benchKernel(): Promise<string[]> {
   const lines: string[] = [];
   const sizes = [1e4, 1e5, 1e6];
@@ -83,11 +156,8 @@ export async function benchKernel(): Promise<string[]> {
     `kernel 1-D growth exponent (slope of log time on log n, n = 1e4..1e6): ${slope(logSizes, walls.map(Math.log)).toFixed(2)} wall, ${slope(logSizes, cpus.map(Math.log)).toFixed(2)} CPU`,
   );
 
-  const sample3 = normalSample('bench-kernel-3d', 20000, 3);
-  const data3 = prepareKernelData(sample3);
-  const path3 = multivariateLogKernelSums(data3.points, 20000, 3, ruleBandwidth(data3, 'silverman')).path;
-  const time3 = medianTime(() => kernelEstimator.estimate(sample3, { bandwidth: 'silverman' }), 3);
-  lines.push(`kernel d = 3 (silverman, normal) n = 20000: ${time3.wall.toFixed(0)} ms wall, ${time3.cpu.toFixed(0)} ms CPU (${path3} path)`);
+  for (const dim of [2, 3]) lines.push(...multivariateGrowth(dim));
+  lines.push(...fastVersusExact(20000));
 
   lines.push(binningError('normal', normalFactory.factory(0, 1, { prng: rngFromSeed('bench-kernel-bin-normal') }), 20000));
   lines.push(binningError('exponential', exponentialFactory.factory(1, { prng: rngFromSeed('bench-kernel-bin-exp') }), 20000));

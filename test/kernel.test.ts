@@ -16,6 +16,7 @@ import { parseEstimatorSpec, runEstimator } from '../estimators/index.js';
 import { univariateRuleBandwidth, whitenedRuleBandwidth } from '../estimators/kernel/bandwidth.js';
 import { minimizeBounded } from '../estimators/kernel/minimize.js';
 import { multivariateLogKernelSums } from '../estimators/kernel/multivariate.js';
+import { GRID_TOLERANCE, MAX_GRID_NODES, aliasingFactor, planGrid } from '../estimators/kernel/grid.js';
 import { kernelEntropy, leaveOneOutLogDensities, prepareKernelData } from '../estimators/kernel/resubstitution.js';
 import { univariateLogKernelSums } from '../estimators/kernel/univariate.js';
 
@@ -237,6 +238,13 @@ describe('FFT (src/math/fft.ts) against the direct DFT and direct convolution', 
   });
 });
 
+/** Lower-triangular mixing for the correlated 3-D Gaussian samples. */
+const lower3 = [
+  [2, 0, 0],
+  [0.8, 1, 0],
+  [-0.5, 0.3, 0.5],
+];
+
 describe('kernel sums: every fast path against the direct O(n²) sum', () => {
   // Tolerances. Exact paths: truncation costs ≤ 1e-11 per log sum (estimators/kernel/truncation.ts), so
   // |Δ log S_i| ≤ 1e-10 (the 1e-10 relative the design asks for). Binned 1-D path: the binning error is
@@ -302,12 +310,6 @@ describe('kernel sums: every fast path against the direct O(n²) sum', () => {
     expect(Math.abs(mean(chunked.logSums) - mean(whole.logSums))).toBeLessThan(BINNED_MEAN_TOLERANCE);
   });
 
-  const lower3 = [
-    [2, 0, 0],
-    [0.8, 1, 0],
-    [-0.5, 0.3, 0.5],
-  ];
-
   it('d = 3: cell list, blocked brute force and auto agree with the Mahalanobis sum to 1e-10', () => {
     const sample = correlatedGaussian('cells-3d', 1500, lower3, [1, -2, 0.5]);
     const data = prepareKernelData(sample);
@@ -363,6 +365,101 @@ describe('kernel sums: every fast path against the direct O(n²) sum', () => {
     const { logSums, logDetCovariance } = bruteLogSumsMd(sample, h);
     const normaliser = Math.log(sample.n - 1) + 3 * Math.log(h) + 1.5 * Math.log(2 * Math.PI) + 0.5 * logDetCovariance;
     expect(maxAbsDifference(ours, logSums.map((s) => s - normaliser))).toBeLessThan(1e-10);
+  });
+});
+
+describe('d = 2, 3 grid path (split Gaussian) against the direct O(n²) sum and the exact paths', () => {
+  // The grid's derived bound (estimators/kernel/grid.ts): every log S_i it answers is within
+  // 2·GRID_TOLERANCE of exact (discretisation, relative; truncation, absolute over sums ≥ 1); every other
+  // point is summed exactly (1e-11). 1e-9 is added for rounding in the reference's Mahalanobis distances.
+  const GRID_POINT_BOUND = 2 * GRID_TOLERANCE + 1e-9;
+
+  it('the derived bound is within the 1e-5 nats asked of Ĥ', () => {
+    expect(GRID_POINT_BOUND).toBeLessThanOrEqual(1e-5);
+  });
+
+  it('the aliasing factor η(t) bounds the trapezoid sum of a Gaussian, and is attained (direct sums, Poisson summation)', () => {
+    // Reference: δ Σ_m φ(mδ + t0) summed directly over |m| ≤ 400 against ∫φ = 1, no project code.
+    for (const t of [0.5, 0.7, 0.9, 1.1]) {
+      const step = 1 / t; // width 1, step δ: t = width/δ
+      let worst = 0;
+      for (let offset = 0; offset < step; offset += step / 16) {
+        let sum = 0;
+        for (let m = -400; m <= 400; m++) sum += (step * Math.exp(-0.5 * (m * step + offset) ** 2)) / Math.sqrt(2 * Math.PI);
+        worst = Math.max(worst, Math.abs(sum - 1));
+      }
+      expect(worst).toBeLessThanOrEqual(aliasingFactor(t) * (1 + 1e-6) + 4e-16);
+      if (aliasingFactor(t) > 1e-13) expect(worst).toBeGreaterThan(0.99 * aliasingFactor(t)); // offset 0: every alias adds
+    }
+  });
+
+  // Skewed: the multivariate lognormal (heavier right tail than the exponential); heavy-tailed: the 3-D
+  // Student t (ν = 3); clustered: three tight clusters far apart against their width.
+  const fromScenario = (spec: string, seed: string, n: number): Sample => parseScenario(spec).sample(replicateRng(7, seed, n, 0), n) as Sample;
+  function clustered(seed: string, n: number, dim: number): Sample {
+    const g = normalDraws(seed, n * dim, 0, 0.15);
+    const data = new Float64Array(n * dim);
+    for (let i = 0; i < n; i++) for (let k = 0; k < dim; k++) data[i * dim + k] = g[i * dim + k] + (i % 3 === 0 ? 0 : i % 3 === 1 ? 4 : k === 0 ? -3 : 2);
+    return { n, dim, data };
+  }
+  const heavy = (seed: string, n: number): Sample => fromScenario('student-t-mv:dim=3,nu=3', seed, n);
+  const cases: Array<[string, () => Sample]> = [
+    ['normal d = 2', () => correlatedGaussian('grid-normal-2d', 1000, [[1.5, 0], [0.7, 0.5]], [3, -1])],
+    ['normal d = 3', () => correlatedGaussian('grid-normal-3d', 1000, lower3, [1, -2, 0.5])],
+    ['lognormal (σ = 1, skewed) d = 3', () => fromScenario('lognormal-mv:dim=3,sigma=1', 'grid-skewed-3d', 1000)],
+    ['Student t (ν = 3) d = 3', () => heavy('grid-heavy-3d', 1000)],
+    ['three clusters d = 2', () => clustered('grid-clusters-2d', 1000, 2)],
+    ['three clusters d = 3', () => clustered('grid-clusters-3d', 1000, 3)],
+  ];
+  for (const [name, make] of cases) {
+    it(`${name}: every log S_i within the derived bound at the rule's h, h/4 and 4h`, () => {
+      const sample = make();
+      const data = prepareKernelData(sample);
+      const rule = whitenedRuleBandwidth('silverman', sample.n, sample.dim);
+      for (const h of [rule, rule / 4, 4 * rule]) {
+        const grid = multivariateLogKernelSums(data.points, sample.n, sample.dim, h, 'grid');
+        expect(grid.path, `h = ${h}`).toBe('grid');
+        const { logSums: reference } = bruteLogSumsMd(sample, h); // the plain O(n²) Mahalanobis sum above
+        expect(maxAbsDifference(grid.logSums, reference), `h = ${h}`).toBeLessThan(GRID_POINT_BOUND);
+        expect(Math.abs(mean(grid.logSums) - mean(reference)), `h = ${h}`).toBeLessThan(GRID_POINT_BOUND);
+      }
+    });
+  }
+
+  it('a far outlier lies outside the grid box: it and its neighbours are summed exactly from the kd-tree', () => {
+    const base = normalDraws('grid-outlier-3d', 999 * 3);
+    const sample: Sample = { n: 1000, dim: 3, data: Float64Array.of(...base, 1e4, 0, 0) };
+    const data = prepareKernelData(sample);
+    const h = whitenedRuleBandwidth('silverman', sample.n, 3);
+    const grid = multivariateLogKernelSums(data.points, sample.n, 3, h, 'grid');
+    expect(grid.path).toBe('grid');
+    expect(grid.fallbackPoints).toBeGreaterThanOrEqual(1);
+    const { logSums: reference } = bruteLogSumsMd(sample, h);
+    expect(reference[999]).toBeLessThan(-1000); // far below exp's range
+    for (let i = 0; i < sample.n; i++) expect(Math.abs(grid.logSums[i] - reference[i]), `point ${i}`).toBeLessThanOrEqual(GRID_POINT_BOUND * Math.max(1, Math.abs(reference[i]) * 1e-3));
+  });
+
+  it('auto takes the grid for d = 3 at n = 8000 and agrees with the cell list (the exact path) on Ĥ and every log S_i', () => {
+    const sample = correlatedGaussian('grid-auto-3d', 8000, lower3, [0, 0, 0]);
+    const data = prepareKernelData(sample);
+    const h = whitenedRuleBandwidth('silverman', sample.n, 3);
+    const auto = multivariateLogKernelSums(data.points, sample.n, 3, h);
+    const cells = multivariateLogKernelSums(data.points, sample.n, 3, h, 'cells');
+    expect(auto.path).toBe('grid');
+    expect(maxAbsDifference(auto.logSums, cells.logSums)).toBeLessThan(GRID_POINT_BOUND);
+    // Ĥ is −mean(log S_i) plus a normaliser common to both paths.
+    expect(Math.abs(mean(auto.logSums) - mean(cells.logSums))).toBeLessThan(GRID_POINT_BOUND);
+  });
+
+  it('the grid stays within MAX_GRID_NODES, trimming the box when the data spread needs more', () => {
+    const sample = heavy('grid-size', 4000);
+    const data = prepareKernelData(sample);
+    const h = whitenedRuleBandwidth('silverman', sample.n, 3) / 4;
+    const plan = planGrid(data.points, sample.n, 3, h);
+    expect(plan).toBeDefined();
+    expect(plan!.totalNodes).toBeLessThanOrEqual(MAX_GRID_NODES);
+    expect(plan!.insideCount).toBeLessThan(sample.n); // trimmed: outliers of the t sample lie outside
+    expect(plan!.insideCount).toBeGreaterThan(sample.n / 2);
   });
 });
 
