@@ -3,14 +3,14 @@
  * `hhat advise` use to decide, before spending the time, which estimators to run on every row of a large
  * file and which on a subsample.
  *
- *   predictedSeconds(parseEstimatorSpec('kernel'), 5_000_000, 3)        // ≈ 1.1e5: a kernel sum is ~n²
- *   rowsWithin(parseEstimatorSpec('kernel'), 5_000_000, 3, 30)           // ≈ 80 000 rows fit in 30 s
+ *   predictedSeconds(parseEstimatorSpec('kernel'), 5_000_000, 5)        // ≈ 1.9e5: a kernel sum is ~n² in d > 3
+ *   rowsWithin(parseEstimatorSpec('kernel'), 5_000_000, 5, 30)           // ≈ 62 000 rows fit in 30 s
  *
  * The forms follow each method's work: sorting (spacing estimators, histogram keys) and kd-tree searches
  * (nearest-neighbour estimators, KSG) grow like n log n, the kd-tree's cost per point roughly doubling per
  * added dimension until it is no better than comparing every pair; a d = 1 kernel sum is binned and
- * convolved (linear in n); a d ≥ 2 kernel sum visits the pairs within its cutoff radius, nearly all of the
- * n² at the bandwidths the rules give. The constants were measured with Node 20 on the 2-core machine this
+ * convolved (linear in n), and so is a d = 2 or 3 one on a grid once n is large enough; a d ≥ 4 kernel sum
+ * visits the pairs within its cutoff radius, nearly all of the n² at the bandwidths the rules give. The constants were measured with Node 20 on the 2-core machine this
  * project is developed on (bench/large-file.ts --calibrate prints predicted against measured seconds), on
  * Gaussian-mixture data, and round up: a prediction is meant to err on the slow side. Being a fixed
  * function of (estimator, settings, n, d), the same command makes the same choice on every machine, so the
@@ -29,14 +29,26 @@ export function knnSearchSeconds(n: number, dim: number, k: number): number {
   return n * orderFactor * Math.min(treePerPoint, Math.max(allPairsPerPoint, 0.4 * MICROSECOND));
 }
 
-/** Seconds of a leave-one-out kernel estimate: binned FFT sums in d = 1, pair sums within the cutoff otherwise. */
+/**
+ * Per point, the grid path of d = 2 and 3 kernel sums (estimators/kernel/grid.ts: a window of 16^d nodes
+ * written and read per point): measured 3.4 and 16 µs per point at n = 10⁵ (bench/kernel.ts, on a loaded
+ * machine), rounded up.
+ */
+const KERNEL_GRID_PER_POINT: Record<number, number> = { 2: 5 * MICROSECOND, 3: 20 * MICROSECOND };
+
+/**
+ * Seconds of a leave-one-out kernel estimate: binned FFT sums in d = 1; in d = 2 and 3 the cheaper of the
+ * grid (linear in n) and the pair sums within the cutoff, as the estimator itself chooses; pair sums beyond.
+ */
 export function kernelSeconds(n: number, dim: number, settings: Settings): number {
   const evaluations = settings.bandwidth === 'likelihood-cv' ? 15 : 1;
   const scale = typeof settings.scale === 'number' ? Math.max(1, settings.scale) : 1;
   if (dim === 1) return evaluations * (0.3 * MICROSECOND * n * scale + 0.05 * MICROSECOND * n * Math.log2(Math.max(n, 2)));
   // A pair's distance costs d operations; whitening is a covariance (n·d²) and its Cholesky factor (d³).
   const perPair = 4.5e-9 * Math.max(1, dim / 3) * Math.min(Math.pow(scale, dim), 1e6);
-  return evaluations * (perPair * n * n + MICROSECOND * n * dim) + whiteningSeconds(n, dim);
+  const pairs = perPair * n * n;
+  const grid = KERNEL_GRID_PER_POINT[dim] === undefined ? Infinity : KERNEL_GRID_PER_POINT[dim] * n;
+  return evaluations * (Math.min(pairs, grid) + MICROSECOND * n * dim) + whiteningSeconds(n, dim);
 }
 
 function histogramSeconds(n: number, dim: number): number {

@@ -194,14 +194,14 @@ describe('hhat estimate on more rows than its time limit allows', () => {
   const { path, values } = gaugeFile('estimate', 20000);
 
   it('runs a slow default estimator on a stated seeded subsample, the rest on all rows', async () => {
-    const { code, out } = await run(['estimate', path, '--json', '--max-seconds', '0.5']);
+    const { code, out } = await run(['estimate', path, '--json', '--max-seconds', '0.3']);
     expect(code).toBe(0);
     const json = JSON.parse(out) as { maxSeconds: number; estimates: { estimator: string; value: number | null; subsample?: { rows: number; of: number; seed: number; reason: string } }[] };
-    expect(json.maxSeconds).toBe(0.5);
+    expect(json.maxSeconds).toBe(0.3);
     const kernel = json.estimates.find((e) => e.estimator === 'kernel')!;
-    const rows = roundRowsDown(rowsWithin(parseEstimatorSpec('kernel'), 20000, 3, 0.5));
+    const rows = roundRowsDown(rowsWithin(parseEstimatorSpec('kernel'), 20000, 3, 0.3));
     expect(kernel.subsample).toMatchObject({ rows, of: 20000, seed: 1 });
-    expect(kernel.subsample!.reason).toMatch(/^all 20000 rows would take about .* over the 0.5 s limit \(--max-seconds\)$/);
+    expect(kernel.subsample!.reason).toMatch(/^all 20000 rows would take about .* over the 0.3 s limit \(--max-seconds\)$/);
     // The value is the kernel estimate of exactly those rows.
     const sample = { n: 20000, dim: 3, data: values };
     const configured = parseEstimatorSpec('kernel');
@@ -237,7 +237,8 @@ describe('hhat advise FILE with more rows than the budget can analyse', () => {
     const { values } = gaugeFile('advise', 30000);
     const sample = { n: 30000, dim: 3, data: values };
     const estimators = applicableEstimators(3);
-    const rows = analysisRows(30000, 3, estimators, 2, 1, 20);
+    // No interval (level null), so no bootstrap resamples to fit.
+    const rows = analysisRows(30000, 3, estimators, 2, 1, 20, 0);
     expect(rows).toBeLessThan(30000);
     // The analysis rows are a two-digit count whose predicted 20 replicates fit 15% of 2 s on one thread.
     const perReplicate = (m: number) => estimators.reduce((sum, e) => sum + predictedSeconds(parseEstimatorSpec(e), m, 3)!, 0) * 1.1;
@@ -282,8 +283,10 @@ describe('sample sizes the machine cannot hold', () => {
     expect(wide.code).toBe(2);
     expect(wide.err).toMatch(/a JavaScript typed array can hold/);
     expect((await run(['advise', '--n', '500', '--dim', '1', '--replicates', '1000001'])).err).toMatch(/from 2 to 1000000/);
-    const slow = await run(['advise', '--n', '300000', '--dim', '3', '--budget', '10']);
+    // Predicted at about 9 s per replicate (src/cost-model.ts), so 5 replicates on 2 workers need about 33 s:
+    // more than 4 (the model's margin) times a 5 s budget.
+    const slow = await run(['advise', '--n', '300000', '--dim', '3', '--budget', '5']);
     expect(slow.code).toBe(2);
-    expect(slow.err).toMatch(/^hhat: --budget 10 is too small here: one replicate of one matching scenario at n = 300000 is predicted to take about .*; give --budget \d+ or more, or a smaller --n\n$/);
+    expect(slow.err).toMatch(/^hhat: --budget 5 is too small here: one replicate of one matching scenario at n = 300000 is predicted to take about .*; give --budget \d+ or more, or a smaller --n\n$/);
   });
 });
