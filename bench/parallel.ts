@@ -1,20 +1,52 @@
 /**
- * `npm run bench:parallel`: wall time of the built-in default plan with 1 and with 2 workers, in one run.
+ * `npm run bench:parallel`: wall time of the built-in default plan with 1 and with 2 workers, alternating
+ * (1, 2, 1, 2, …) for ROUNDS rounds, with the median speed-up. Beside it, the machine's own ceiling measured in
+ * the same run: a fixed arithmetic loop on 1 and on 2 threads at once, which no code of hhat's can beat. On a
+ * shared machine whose two cores are contended, the plan's speed-up is to be read against that ceiling.
  * Estimates are identical either way (checked here too); only the time may differ.
+ *
+ *   npm run bench:parallel            # 3 rounds
+ *   ROUNDS=5 npm run bench:parallel
  */
+import { execSync } from 'node:child_process';
+import { Worker } from 'node:worker_threads';
 import { defaultPlan } from '../src/default-plan.js';
 import { resolvePlan } from '../src/plan.js';
 import { runPlan } from '../src/runner.js';
 
-const { plan } = resolvePlan(defaultPlan());
-const times: Record<number, number> = {};
-let reference: string | undefined;
-for (const workers of [1, 2]) {
+const ROUNDS = Number(process.env.ROUNDS ?? 3);
+const load = () => execSync('uptime').toString().trim().replace(/.*load average: /, '');
+const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
+
+/** Wall seconds of `threads` threads each running the same fixed loop (about 1 s of arithmetic on one core). */
+async function spin(threads: number): Promise<number> {
+  const source = `let x = 0; for (let i = 0; i < 4e8; i++) x = (x + i * 1e-9) % 1.7; require('node:worker_threads').parentPort.postMessage(x);`;
   const started = performance.now();
-  const outcome = await runPlan(plan, { workers });
-  times[workers] = (performance.now() - started) / 1000;
-  const estimates = JSON.stringify([...outcome.results.entries()].sort((a, b) => a[0] - b[0]).map(([, r]) => r.estimates.map((values) => Array.from(values))));
-  if (reference === undefined) reference = estimates;
-  console.log(`workers=${workers}: ${times[workers].toFixed(1)} s wall${estimates === reference ? '' : ' (ESTIMATES DIFFER)'}`);
+  await Promise.all(Array.from({ length: threads }, () => new Promise((resolve) => new Worker(source, { eval: true }).once('message', resolve))));
+  return (performance.now() - started) / 1000;
 }
-console.log(`speed-up with 2 workers: ${(times[1] / times[2]).toFixed(2)}x`);
+
+const { plan } = resolvePlan(defaultPlan());
+let reference: string | undefined;
+const plan1: number[] = [];
+const plan2: number[] = [];
+const spin1: number[] = [];
+const spin2: number[] = [];
+console.log(`load before: ${load()}`);
+for (let round = 0; round < ROUNDS; round++) {
+  for (const workers of [1, 2]) {
+    const started = performance.now();
+    const outcome = await runPlan(plan, { workers });
+    const seconds = (performance.now() - started) / 1000;
+    (workers === 1 ? plan1 : plan2).push(seconds);
+    const estimates = JSON.stringify([...outcome.results.entries()].sort((a, b) => a[0] - b[0]).map(([, r]) => r.estimates.map((values) => Array.from(values))));
+    reference ??= estimates;
+    if (estimates !== reference) console.log('ESTIMATES DIFFER between runs');
+    (workers === 1 ? spin1 : spin2).push(await spin(workers));
+  }
+  console.log(`round ${round + 1}: plan ${plan1.at(-1)!.toFixed(1)} s on 1 worker, ${plan2.at(-1)!.toFixed(1)} s on 2; fixed loop ${spin1.at(-1)!.toFixed(2)} s on 1 thread, ${spin2.at(-1)!.toFixed(2)} s on 2 (load ${load()})`);
+}
+const ratios = plan1.map((t, i) => t / plan2[i]);
+const ceilings = spin1.map((t, i) => (2 * t) / spin2[i]);
+console.log(`speed-up with 2 workers: ${median(ratios).toFixed(2)}x median (${Math.min(...ratios).toFixed(2)}–${Math.max(...ratios).toFixed(2)}) over ${ROUNDS} rounds`);
+console.log(`the machine's ceiling (twice the work on 2 threads in the time of once on 1): ${median(ceilings).toFixed(2)}x median (${Math.min(...ceilings).toFixed(2)}–${Math.max(...ceilings).toFixed(2)})`);
