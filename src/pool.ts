@@ -66,6 +66,7 @@ export function runOnPool(plan: Plan, units: Unit[], options: PoolOptions): Prom
       else resolve(interrupted);
     };
 
+    let everReady = false;
     const dispatch = (slot: Slot) => {
       if (finished) return;
       if (options.signal?.aborted) return finish(true);
@@ -94,7 +95,9 @@ export function runOnPool(plan: Plan, units: Unit[], options: PoolOptions): Prom
       slot.dead = true;
       workers.delete(slot);
       if (!slot.ready) {
-        finish(false, new UsageError(`a worker thread could not start: ${reason}`));
+        // The first workers fail to start on what the user gave (a module that does not load); a replacement
+        // for a worker that died, after others started fine, fails on the machine (memory, threads).
+        finish(false, everReady ? new EnvironmentError(`a replacement worker thread could not start: ${reason}`) : new UsageError(`a worker thread could not start: ${reason}`));
         return;
       }
       const job = slot.job;
@@ -140,6 +143,7 @@ export function runOnPool(plan: Plan, units: Unit[], options: PoolOptions): Prom
         if (finished || slot.dead) return;
         if (message.kind === 'ready') {
           slot.ready = true;
+          everReady = true;
           dispatch(slot);
         } else if (message.kind === 'replicate') {
           const job = slot.job!;
