@@ -110,7 +110,9 @@ function windowFromSettings(id: string, n: number, settings: Settings): number {
     throw new EstimateError('invalid-input', `${id}: m=${String(given)} is not allowed; m must be 'auto' or an integer ≥ 1`);
   }
   if (2 * m >= n) {
-    throw new EstimateError('too-few-points', `${id}: window m = ${m} needs m < n/2, but n = ${n}; use m ≤ ${Math.max(0, Math.ceil(n / 2) - 1)} or at least ${2 * m + 1} points`);
+    // The smallest window, m = 1, needs 3 points: below that no m helps.
+    const fix = n < 3 ? 'it needs at least 3 points' : `use m ≤ ${Math.ceil(n / 2) - 1} or at least ${2 * m + 1} points`;
+    throw new EstimateError('too-few-points', `${id}: window m = ${m} needs m < n/2, but n = ${n}; ${fix}`);
   }
   return m;
 }

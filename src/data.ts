@@ -7,7 +7,7 @@
  * the first lines: tab, semicolon, comma, else runs of spaces), .json, and .npy. The parsers also work on
  * strings and bytes: `parseDelimited`, `parseJson`, `parseNpy`. See each module for the accepted forms.
  */
-import { closeSync, fstatSync, openSync, readFileSync } from 'node:fs';
+import { closeSync, fstatSync, openSync, readFileSync, statSync } from 'node:fs';
 import { extname } from 'node:path';
 import { UsageError } from './errors.js';
 import { readDelimitedFile, type Delimiter } from './data/delimited.js';
@@ -53,6 +53,14 @@ const formatsByExtension: Record<string, DataFormat> = {
 
 export const allowedExtensions = Object.keys(formatsByExtension);
 
+function isFolder(path: string): boolean {
+  try {
+    return statSync(path).isDirectory();
+  } catch {
+    return false;
+  }
+}
+
 /** The format a path's extension implies (case-insensitive), or a usage error listing the allowed ones. */
 export function formatOf(path: string): DataFormat {
   const extension = extname(path).toLowerCase();
@@ -65,6 +73,8 @@ export function formatOf(path: string): DataFormat {
 
 /** Reads a data file into a sample; every problem is a UsageError naming the file and the place. */
 export function readSample(path: string, options: ReadOptions = {}): LoadedSample {
+  // Before the extension: a folder named without one is a folder, not a file of an unknown format.
+  if (isFolder(path)) throw new UsageError(`cannot read data file ${path}: it is a directory`);
   const format = options.format ?? formatOf(path);
   const parseOptions = { source: path, columns: options.columns };
   switch (format) {

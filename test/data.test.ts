@@ -454,6 +454,7 @@ describe('readSample', () => {
     const directory = join(tempDir, 'folder.csv');
     mkdirSync(directory, { recursive: true });
     expect(usageMessage(() => readSample(directory))).toBe(`cannot read data file ${directory}: it is a directory`);
+    expect(usageMessage(() => readSample(tempDir))).toBe(`cannot read data file ${tempDir}: it is a directory`);
     expect(usageMessage(() => readSample('data.xlsx'))).toBe(
       'data.xlsx has extension ".xlsx"; allowed: .csv, .tsv, .tab, .txt, .dat, .json, .npy',
     );

@@ -113,6 +113,9 @@ describe('spacing estimators: units, ties and bad input', () => {
     for (const id of METHOD_IDS) {
       expect(() => byId(id).estimate(sampleOf([0.1, 0.5, 0.2, 0.9]), { m: 2 })).toThrow(/m = 2.*n = 4/);
       expect(() => byId(id).estimate(sampleOf([0.1, 0.5]), { m: 'auto' })).toThrow(EstimateError);
+      // Two points: no window works, so the advice is more points, never an m below 1.
+      expect(() => byId(id).estimate(sampleOf([0.1, 0.5]), { m: 'auto' })).toThrow(/n = 2; it needs at least 3 points$/);
+      expect(() => byId(id).estimate(sampleOf([0.1, 0.5, 0.2, 0.9]), { m: 2 })).toThrow(/use m ≤ 1 or at least 5 points$/);
       try {
         byId(id).estimate(sampleOf([0.1, 0.5, 0.2, 0.9]), { m: 2 });
       } catch (error) {
