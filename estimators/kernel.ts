@@ -33,6 +33,7 @@
 import type { Estimator, Sample, SettingSpec, Settings, SettingValue } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { parseNumber } from '../src/spec.js';
+import { SampleMemo } from './sample-memo.js';
 import { type BandwidthSetting, chooseBandwidth, type KernelData, kernelEntropy, prepareKernelData, toDataUnits } from './kernel/resubstitution.js';
 
 export const BANDWIDTH_RULES = ['silverman', 'scott', 'likelihood-cv'] as const;
@@ -57,13 +58,16 @@ const kernelSettings: readonly SettingSpec[] = [
   },
 ];
 
+const searchedBandwidths = new SampleMemo<number>();
+
 /**
  * The bandwidth used, in the prepared points' units: a numeric setting as given, a rule's (or
  * cross-validation's) value times `scale`.
  */
-function usedBandwidth(data: KernelData, settings: Settings): number {
+function usedBandwidth(sample: Sample, data: KernelData, settings: Settings): number {
   const setting = bandwidthSetting(settings.bandwidth);
-  const chosen = chooseBandwidth(data, setting);
+  // The search is the costly part, and `hhat estimate` asks for the value and then the bandwidth it used.
+  const chosen = setting === 'likelihood-cv' ? searchedBandwidths.get(sample.data.subarray(0, sample.n * sample.dim), `${sample.dim}`, () => chooseBandwidth(data, setting)) : chooseBandwidth(data, setting);
   return typeof setting === 'number' ? chosen : chosen * (typeof settings.scale === 'number' ? settings.scale : 1);
 }
 
@@ -89,11 +93,11 @@ export const kernelEstimator: Estimator = {
   resolve(sample: Sample, settings: Settings): Settings {
     // The numeric bandwidth reported already includes the scale, so the settings used reproduce the estimate.
     const data = prepareKernelData(sample);
-    return { ...settings, bandwidth: toDataUnits(data, usedBandwidth(data, settings)), scale: 1 };
+    return { ...settings, bandwidth: toDataUnits(data, usedBandwidth(sample, data, settings)), scale: 1 };
   },
   estimate(sample: Sample, settings: Settings): number {
     const data = prepareKernelData(sample);
-    return kernelEntropy(data, usedBandwidth(data, settings));
+    return kernelEntropy(data, usedBandwidth(sample, data, settings));
   },
 };
 

@@ -12,6 +12,7 @@
 import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { KnnIndex, type KnnNorm } from '../src/knn.js';
+import { sameValues } from './sample-memo.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { checkFiniteValues } from '../src/sample.js';
 import { inSpreadUnit, rowsDifferingFromPartners } from './scaling.js';
@@ -256,12 +257,6 @@ const SHARED_NEIGHBOURS = 20;
 const SHARED_DISTANCES_MAX = 2 ** 22;
 /** Keyed by the data's buffer: estimators receive a new view of the same draw (subarray) on every call. */
 const searches = new WeakMap<ArrayBufferLike, Map<KnnNorm, NeighbourSearch>>();
-
-function sameValues(a: Float64Array, b: Float64Array): boolean {
-  if (a.length !== b.length) return false;
-  for (let i = 0; i < a.length; i++) if (!Object.is(a[i], b[i])) return false;
-  return true;
-}
 
 function neighbourDistances(data: Float64Array, n: number, dim: number, norm: KnnNorm, k: number): NeighbourSearch {
   const byNorm = searches.get(data.buffer);

@@ -672,6 +672,21 @@ describe('likelihood-cv and the bounded minimiser', () => {
   });
 });
 
+describe('likelihood-cv searched once per draw', () => {
+  it('the bandwidth resolved after an estimate is the one a fresh search gives; a refilled array is searched again', () => {
+    const a = Float64Array.of(...normalDraws('cv-memo-a', 300, 0, 1));
+    const b = Float64Array.of(...normalDraws('cv-memo-b', 300, 0, 3));
+    const sample = sample1d(Float64Array.from(a));
+    const fresh = (values: Float64Array) => kernelEstimator.resolve!(sample1d(Float64Array.from(values)), { bandwidth: 'likelihood-cv' }).bandwidth;
+    const value = kernelEstimator.estimate(sample, { bandwidth: 'likelihood-cv' });
+    expect(kernelEstimator.resolve!(sample, { bandwidth: 'likelihood-cv' }).bandwidth).toBe(fresh(a));
+    expect(value).toBe(kernelEstimator.estimate(sample1d(Float64Array.from(a)), { bandwidth: 'likelihood-cv' }));
+    sample.data.set(b);
+    expect(kernelEstimator.resolve!(sample, { bandwidth: 'likelihood-cv' }).bandwidth).toBe(fresh(b));
+    expect(fresh(b)).not.toBe(fresh(a));
+  });
+});
+
 describe('heavy tails and far outliers: the exact leave-one-out value on every path, no refusal', () => {
   // Tolerances. Exact paths (1-D exact, cell list, blocked): truncation ≤ 1e-11 per log density
   // (truncation.ts), so 1e-9 on Ĥ leaves room for rounding. Where Ĥ is huge (a far outlier contributes
