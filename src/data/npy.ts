@@ -167,20 +167,30 @@ export function parseNpy(input: Uint8Array, options: ParseOptions = {}): NpyTabl
       ? Array.from({ length: columns }, (_, j) => j)
       : resolveColumns(options.columns, null, columns, source);
   const dim = selected.length;
-  const data = new Float64Array(n * dim);
-  for (let slot = 0; slot < dim; slot++) {
-    const j = selected[slot];
-    for (let i = 0; i < n; i++) {
-      // C order stores row i's elements together; Fortran order stores column j's.
-      const element = header.fortranOrder ? j * n + i : i * columns + j;
-      const value = reader(view, dataStart + element * itemSize);
-      if (value - value !== 0) {
-        const index = shape.length === 2 ? `[${i}, ${j}]` : `[${i}]`;
-        throw new UsageError(
-          `${source} row ${i + 1}${shape.length === 2 ? `, column ${j + 1}` : ''} (index ${index}): ${value} is not a finite number; remove or impute missing and infinite values`,
-        );
+  // NumPy's default, little-endian float64 in C order, every column: one copy of the bytes, then a finiteness scan.
+  const wholeNative =
+    dtypeMatch[2] === 'f' && itemSize === 8 && isHostLittleEndian() && (dtypeMatch[1] === '<' || dtypeMatch[1] === '=') && !header.fortranOrder && selected.every((j, slot) => j === slot) && dim === columns;
+  const notFinite = (i: number, j: number, value: number): UsageError => {
+    const index = shape.length === 2 ? `[${i}, ${j}]` : `[${i}]`;
+    return new UsageError(
+      `${source} row ${i + 1}${shape.length === 2 ? `, column ${j + 1}` : ''} (index ${index}): ${value} is not a finite number; remove or impute missing and infinite values`,
+    );
+  };
+  let data: Float64Array;
+  if (wholeNative) {
+    data = new Float64Array(bytes.buffer.slice(bytes.byteOffset + dataStart, bytes.byteOffset + dataStart + needed));
+    for (let e = 0; e < count; e++) if (data[e] - data[e] !== 0) throw notFinite(Math.floor(e / columns), e % columns, data[e]);
+  } else {
+    data = new Float64Array(n * dim);
+    for (let slot = 0; slot < dim; slot++) {
+      const j = selected[slot];
+      for (let i = 0; i < n; i++) {
+        // C order stores row i's elements together; Fortran order stores column j's.
+        const element = header.fortranOrder ? j * n + i : i * columns + j;
+        const value = reader(view, dataStart + element * itemSize);
+        if (value - value !== 0) throw notFinite(i, j, value);
+        data[i * dim + slot] = value;
       }
-      data[i * dim + slot] = value;
     }
   }
   const names = positionalNames(columns);
