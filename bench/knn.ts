@@ -4,16 +4,20 @@
  * study behind the weighted Kozachenko–Leonenko default k and the Gaussian tolerances in
  * test/nearest-neighbour.test.ts (several minutes).
  *
- * Speed: all-points 4-NN distances at n = 100000, d = 3 (the target: at most 1.5× SciPy's
- * `cKDTree(X).query(X, k=5, workers=1)`, which finds each point itself first, hence k = 5), tree build
- * included on both sides, best of 3 each. Also the max norm, d = 1 and 8, radius counts against
- * `query_ball_point(..., return_length=True)`, and the npm package kd-tree-javascript at a smaller n.
- * Every SciPy result is also compared value by value with ours.
+ * Speed: all-points 4-NN distances at n = 100000, tree build included on both sides, against SciPy's
+ * `cKDTree(X).query(X, k=5, workers=1)` (which finds each point itself first, hence k = 5), best of 3 each
+ * (one run each at d = 16, where a run takes minutes). Targets: at most 1.5× SciPy at d = 3 and at most
+ * 1.3× at d = 8. Also the max norm, d = 1, a table for d = 5, 8, 10, 16 (normal and uniform data), radius
+ * counts against `query_ball_point(..., return_length=True)`, and the npm package kd-tree-javascript at a
+ * smaller n. Every SciPy result is also compared value by value with ours. The machine may be shared, so
+ * every row shows the 1-minute load average when it finished (as `uptime` prints it); ratios are only
+ * meaningful because both sides run in the same process run, one right after the other. `--dims 8` (or
+ * `--dims 5,8`) limits the table to those dimensions; the d = 16 rows alone take several minutes.
  */
 import { spawnSync } from 'node:child_process';
 import { createRequire } from 'node:module';
 import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { loadavg, tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import normalRandom from '@stdlib/random-base-normal';
@@ -34,17 +38,25 @@ function points(shape: Shape, n: number, dim: number, seed: string): Float64Arra
   return Float64Array.from({ length: n * dim }, () => draw());
 }
 
-/** Best wall time of three runs, and the last run's result. */
-export function bestOf3<T>(run: () => T): { seconds: number; result: T } {
+/** Best wall time of `runs` runs, and the last run's result. */
+export function bestOf<T>(runs: number, run: () => T): { seconds: number; result: T } {
   let best = Infinity;
   let result!: T;
-  for (let r = 0; r < 3; r++) {
+  for (let r = 0; r < runs; r++) {
     const start = process.hrtime.bigint();
     result = run();
     best = Math.min(best, Number(process.hrtime.bigint() - start) / 1e9);
   }
   return { seconds: best, result };
 }
+
+/** Best wall time of three runs, and the last run's result. */
+export function bestOf3<T>(run: () => T): { seconds: number; result: T } {
+  return bestOf(3, run);
+}
+
+/** The 1-, 5- and 15-minute load averages, as `uptime` shows them. */
+const load = (): string => loadavg().map((value) => value.toFixed(2)).join(', ');
 
 const ms = (seconds: number): string => `${(seconds * 1000).toFixed(1)} ms`;
 
@@ -55,7 +67,7 @@ interface ScipyRun {
 }
 
 /** Runs bench/scipy_knn.py on data written to a temporary directory; a string on failure. */
-function runScipy(mode: 'knn' | 'count', data: Float64Array, dim: number, norm: KnnNorm, extra: number | Float64Array): ScipyRun | string {
+function runScipy(mode: 'knn' | 'count', data: Float64Array, dim: number, norm: KnnNorm, extra: number | Float64Array, runs = 3): ScipyRun | string {
   const dir = mkdtempSync(join(tmpdir(), 'hhat-bench-knn-'));
   try {
     const pointsPath = join(dir, 'points.f64');
@@ -67,7 +79,7 @@ function runScipy(mode: 'knn' | 'count', data: Float64Array, dim: number, norm: 
       writeFileSync(argument, new Uint8Array(extra.buffer, extra.byteOffset, extra.byteLength));
     }
     const script = fileURLToPath(new URL('./scipy_knn.py', import.meta.url));
-    const run = spawnSync('python3', [script, mode, pointsPath, String(dim), argument, norm, outPath], { encoding: 'utf8', maxBuffer: 1 << 20 });
+    const run = spawnSync('python3', [script, mode, pointsPath, String(dim), argument, norm, outPath, String(runs)], { encoding: 'utf8', maxBuffer: 1 << 20 });
     if (run.status !== 0) return `SciPy run failed: ${(run.stderr || run.error?.message || '').trim().split('\n').pop()}`;
     const parsed = JSON.parse(run.stdout) as { scipy: string; numpy: string; seconds: number };
     return { version: `SciPy ${parsed.scipy}, NumPy ${parsed.numpy}`, seconds: parsed.seconds, output: readFileSync(outPath) };
@@ -89,6 +101,35 @@ function agreement(ours: Float64Array, theirs: Float64Array): string {
     : `${identical} of ${ours.length} distances identical to SciPy's, the rest within ${largest.toExponential(1)} relative`;
 }
 
+/** The dimensions of the higher-dimensional table: 5, 8, 10, 16, or those given as `--dims 8,10`. */
+function highDims(): number[] {
+  const at = process.argv.indexOf('--dims');
+  if (at < 0) return [5, 8, 10, 16];
+  return (process.argv[at + 1] ?? '').split(',').map(Number).filter((dim) => Number.isInteger(dim) && dim >= 1);
+}
+
+interface KnnRow {
+  label: string;
+  /** Our best time, tree build included, and the build alone. */
+  ours: number;
+  build: number;
+  scipy: ScipyRun | string;
+  agreement: string;
+}
+
+/** All-points k-NN on one seeded point set: SciPy first, then ours, `runs` times each. */
+function compareKnn(shape: Shape, dim: number, norm: KnnNorm, runs: number): KnnRow {
+  const data = points(shape, TARGET_N, dim, `bench-knn-${shape}-${dim}`);
+  const scipy = runScipy('knn', data, dim, norm, K, runs);
+  const ours = bestOf(runs, () => new KnnIndex(data, dim, { norm }).nearestOthers(K).distances);
+  const build = bestOf(runs, () => new KnnIndex(data, dim, { norm }));
+  let agreementText = '';
+  if (typeof scipy !== 'string') {
+    agreementText = agreement(ours.result, new Float64Array(scipy.output.buffer, scipy.output.byteOffset, scipy.output.byteLength / 8));
+  }
+  return { label: `${shape} n = ${TARGET_N}, d = ${dim}, ${norm}, ${K}-NN of every point`, ours: ours.seconds, build: build.seconds, scipy, agreement: agreementText };
+}
+
 export async function benchKnn(): Promise<string[]> {
   const lines: string[] = [];
   let versionShown = false;
@@ -98,29 +139,53 @@ export async function benchKnn(): Promise<string[]> {
     ['uniform', 3, 'max'],
     ['normal', 3, 'max'],
     ['normal', 1, 'euclidean'],
-    ['normal', 8, 'euclidean'],
+    ['uniform', 1, 'euclidean'],
   ];
   for (const [shape, dim, norm] of cases) {
-    const data = points(shape, TARGET_N, dim, `bench-knn-${shape}-${dim}`);
-    const scipy = runScipy('knn', data, dim, norm, K);
-    const ours = bestOf3(() => new KnnIndex(data, dim, { norm }).nearestOthers(K).distances);
-    const build = bestOf3(() => new KnnIndex(data, dim, { norm }));
-    const label = `${shape} n = ${TARGET_N}, d = ${dim}, ${norm}, ${K}-NN of every point`;
-    if (typeof scipy === 'string') {
-      lines.push(`${label}: ours ${ms(ours.seconds)} (build ${ms(build.seconds)}); ${scipy}`);
+    const row = compareKnn(shape, dim, norm, 3);
+    if (typeof row.scipy === 'string') {
+      lines.push(`${row.label}: ours ${ms(row.ours)} (build ${ms(row.build)}); ${row.scipy}`);
       continue;
     }
     if (!versionShown) {
-      lines.push(`reference: ${scipy.version}, cKDTree(X).query(X, k=${K + 1}, workers=1), build included; best of 3 on both sides`);
+      lines.push(`reference: ${row.scipy.version}, cKDTree(X).query(X, k=${K + 1}, workers=1), build included; best of 3 on both sides`);
       versionShown = true;
     }
-    const theirs = new Float64Array(scipy.output.buffer, scipy.output.byteOffset, scipy.output.byteLength / 8);
     const target = dim === 3 ? ' (target ≤ 1.5×)' : '';
     lines.push(
-      `${label}: ours ${ms(ours.seconds)} (build ${ms(build.seconds)}), SciPy ${ms(scipy.seconds)}, ` +
-        `ours/SciPy ${(ours.seconds / scipy.seconds).toFixed(2)}×${target}; ${agreement(ours.result, theirs)}`,
+      `${row.label}: ours ${ms(row.ours)} (build ${ms(row.build)}), SciPy ${ms(row.scipy.seconds)}, ` +
+        `ours/SciPy ${(row.ours / row.scipy.seconds).toFixed(2)}×${target}; ${row.agreement}; load ${load()}`,
     );
   }
+
+  // Higher dimensions, as a table.
+  const highCases: [Shape, number, KnnNorm][] = [];
+  for (const dim of highDims()) {
+    for (const shape of ['normal', 'uniform'] as const) {
+      highCases.push([shape, dim, 'euclidean']);
+      if (dim === 8) highCases.push([shape, dim, 'max']);
+    }
+  }
+  lines.push('', `${K}-NN of every point, n = ${TARGET_N}, build included (target at d = 8: ours/SciPy ≤ 1.3×)`);
+  lines.push(' d  data     norm       runs     ours (build)        SciPy  ours/SciPy  load (1, 5, 15 min)  agreement with SciPy');
+  for (const [shape, dim, norm] of highCases) {
+    const runs = dim >= 16 ? 1 : 3;
+    const row = compareKnn(shape, dim, norm, runs);
+    const cells = [
+      String(dim).padStart(2),
+      shape.padEnd(8),
+      norm.padEnd(10),
+      (runs === 1 ? '1 run' : `best/${runs}`).padEnd(6),
+      `${ms(row.ours)} (${ms(row.build)})`.padStart(22),
+    ];
+    if (typeof row.scipy === 'string') {
+      lines.push(`${cells.join(' ')}  ${row.scipy}`);
+      continue;
+    }
+    cells.push(ms(row.scipy.seconds).padStart(12), `${(row.ours / row.scipy.seconds).toFixed(2)}×`.padStart(10), load().padEnd(19), row.agreement);
+    lines.push(cells.join(' '));
+  }
+  lines.push('');
 
   // Radius counts as the KSG estimator uses them: radius = each point's own 4th-neighbour distance.
   for (const norm of ['euclidean', 'max'] as const) {

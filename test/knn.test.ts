@@ -95,8 +95,20 @@ function lattice(rng: Rng, n: number, dim: number): Float64Array {
   return Float64Array.from({ length: n * dim }, () => Math.floor(rng() * 4));
 }
 
-const generators: Record<string, (rng: Rng, n: number, dim: number) => Float64Array> = { uniform, normal, clustered, lattice };
-const dims = [1, 2, 3, 5, 8];
+/**
+ * Each axis on its own scale, from 2^-40 to 2^40: squared differences of very different sizes, so rounded
+ * sums lose the small ones, where a pruning bound computed in another order could exceed a distance.
+ */
+function scales(rng: Rng, n: number, dim: number): Float64Array {
+  const factors = Array.from({ length: dim }, () => 2 ** Math.round(80 * rng() - 40));
+  return Float64Array.from({ length: n * dim }, (_, i) => factors[i % dim] * (rng() - 0.5));
+}
+
+const generators: Record<string, (rng: Rng, n: number, dim: number) => Float64Array> = { uniform, normal, clustered, lattice, scales };
+// 5, 7, 8 and 16: the Euclidean scan sums four axes at a time, then the remaining 0 to 3.
+const dims = [1, 2, 3, 5, 7, 8, 16];
+// undefined: the default leaf size, which depends on the dimension (12 up to d = 5, then 24 and 32).
+const leafSizes = [1, 5, undefined];
 const norms: KnnNorm[] = ['euclidean', 'max'];
 
 describe('KnnIndex.nearestOthers equals brute force exactly', () => {
@@ -107,10 +119,11 @@ describe('KnnIndex.nearestOthers equals brute force exactly', () => {
         const points = generate(rng, 400, dim);
         for (const norm of norms) {
           const want = bruteNearestOthers(points, dim, 11, norm);
-          for (const leafSize of [1, 3, 12]) {
+          for (const leafSize of leafSizes) {
             const index = new KnnIndex(points, dim, { norm, leafSize });
             for (const k of [1, 4, 11]) {
               const { distances, indices } = index.nearestOthers(k, { indices: true });
+              // Reference: bruteNearestOthers, all n² distances sorted (this file).
               const expected = new Float64Array(400 * k);
               for (let i = 0; i < 400; i++) expected.set(want.subarray(i * 11, i * 11 + k), i * k);
               expect(distances).toEqual(expected);
@@ -128,6 +141,36 @@ describe('KnnIndex.nearestOthers equals brute force exactly', () => {
       });
     }
   }
+
+  it('points repeated six times: their 5 nearest others are at distance 0 and the 6th is not (d = 8 and 16)', () => {
+    // A k-th distance of 0 prunes everything else; the next order statistic must still be exact.
+    for (const dim of [8, 16]) {
+      const rng = rngFromSeed(`knn-repeated-${dim}`);
+      const distinct = normal(rng, 60, dim);
+      const points = new Float64Array(360 * dim);
+      for (let i = 0; i < 360; i++) points.set(distinct.subarray((i % 60) * dim, (i % 60) * dim + dim), i * dim);
+      for (const norm of norms) {
+        const { distances } = new KnnIndex(points, dim, { norm }).nearestOthers(6);
+        // Reference: bruteNearestOthers (this file).
+        expect(distances).toEqual(bruteNearestOthers(points, dim, 6, norm));
+        for (let i = 0; i < 360; i++) {
+          expect(distances[i * 6 + 4]).toBe(0);
+          expect(distances[i * 6 + 5]).toBeGreaterThan(0);
+        }
+      }
+    }
+  });
+
+  it('larger n at d = 8 and 16 (many leaves of the default size, deep searches)', () => {
+    for (const dim of [8, 16]) {
+      const rng = rngFromSeed(`knn-larger-${dim}`);
+      const points = normal(rng, 800, dim);
+      for (const norm of norms) {
+        // Reference: bruteNearestOthers (this file).
+        expect(new KnnIndex(points, dim, { norm }).nearestOthers(4).distances).toEqual(bruteNearestOthers(points, dim, 4, norm));
+      }
+    }
+  });
 
   it('duplicates are neighbours at distance 0, and k = n - 1 reaches every other point', () => {
     const points = Float64Array.from([0, 0, 0, 0, 1, 0, 0, 0, 3, 4]);
@@ -153,9 +196,10 @@ describe('KnnIndex.nearest (queries not in the index) equals brute force exactly
         queries.set(outside, fresh.length);
         queries.set(copies, fresh.length + outside.length);
         for (const norm of norms) {
-          for (const leafSize of [2, 12]) {
+          for (const leafSize of [2, undefined]) {
             const index = new KnnIndex(points, dim, { norm, leafSize });
             for (const k of [1, 5, 9]) {
+              // Reference: bruteNearest, all distances from each query sorted (this file).
               expect(index.nearest(queries, k).distances).toEqual(bruteNearest(points, queries, dim, k, norm));
             }
           }
@@ -174,8 +218,9 @@ describe('KnnIndex.nearest (queries not in the index) equals brute force exactly
 });
 
 describe('radius counts equal brute force exactly', () => {
-  for (const [name, generate] of Object.entries(generators)) {
-    for (const dim of [1, 2, 3, 5, 8]) {
+  // Counts prune with tight boxes, not with the k-NN search's cell gaps, so the scales data is left out.
+  for (const [name, generate] of Object.entries(generators).filter(([name]) => name !== 'scales')) {
+    for (const dim of [1, 2, 3, 5, 8, 16]) {
       it(`${name} data, d = ${dim}, both norms, strict and inclusive`, () => {
         const rng = rngFromSeed(`knn-counts-${name}-${dim}`);
         const n = 300;
