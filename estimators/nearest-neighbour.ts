@@ -236,9 +236,10 @@ export function weightedKozachenkoLeonenkoEntropy(
 
 /**
  * All-points neighbour distances of one sample, kept while the sample's data array lives, so that every k of
- * a tuning grid and both Kozachenko–Leonenko estimators on the same draw share one tree and one search. A
- * search for more neighbours than asked is made only when the same data come back for more (the second
- * request fetches SHARED_NEIGHBOURS at once), so a single estimate never pays for neighbours it does not use.
+ * a tuning grid and both Kozachenko–Leonenko estimators on the same draw share one tree and few searches.
+ * Each search is for the k asked until the same draw has been searched twice (the two estimators' defaults,
+ * which is all a draw without a tuning grid sees); a third search, which only a tuning grid asks for, fetches
+ * SHARED_NEIGHBOURS at once. So the defaults never pay for neighbours they do not use.
  * The j-th distance does not depend on how many neighbours were searched: the estimates are bit-identical.
  */
 interface NeighbourSearch {
@@ -249,6 +250,8 @@ interface NeighbourSearch {
   /** Neighbours per point in `distances`. */
   stride: number;
   logJacobian: number;
+  /** Searches made on this draw so far. */
+  searches: number;
 }
 
 /** The largest k of the built-in tuning grids (the weighted estimator's 2..20). */
@@ -268,14 +271,14 @@ function neighbourDistances(data: Float64Array, n: number, dim: number, norm: Kn
   let stride = k;
   if (kept) {
     ({ index, logJacobian } = kept);
-    stride = Math.min(n - 1, Math.max(k, SHARED_NEIGHBOURS));
+    if (kept.searches >= 2) stride = Math.min(n - 1, Math.max(k, SHARED_NEIGHBOURS));
   } else {
     // Distances compare coordinates, so one power of two for all columns (estimators/scaling.ts).
     const scaled = inSpreadUnit(data, n, dim, 'common');
     logJacobian = scaled.logJacobian;
     index = new KnnIndex(scaled.data, dim, { norm });
   }
-  const search: NeighbourSearch = { values: kept?.values ?? Float64Array.from(data), index, distances: index.nearestOthers(stride).distances, stride, logJacobian };
+  const search: NeighbourSearch = { values: kept?.values ?? Float64Array.from(data), index, distances: index.nearestOthers(stride).distances, stride, logJacobian, searches: (kept?.searches ?? 0) + 1 };
   if (n * stride <= SHARED_DISTANCES_MAX) {
     if (byNorm) byNorm.set(norm, search);
     else searches.set(data.buffer, new Map([[norm, search]]));
