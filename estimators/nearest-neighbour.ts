@@ -12,7 +12,7 @@
 import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { KnnIndex, type KnnNorm } from '../src/knn.js';
-import { sameValues } from './sample-memo.js';
+import { SampleMemo } from './sample-memo.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { checkFiniteValues } from '../src/sample.js';
 import { inSpreadUnit, rowsDifferingFromPartners } from './scaling.js';
@@ -243,8 +243,6 @@ export function weightedKozachenkoLeonenkoEntropy(
  * The j-th distance does not depend on how many neighbours were searched: the estimates are bit-identical.
  */
 interface NeighbourSearch {
-  /** The data searched, copied: a hit must hold the same values (a caller may refill its array). */
-  values: Float64Array;
   index: KnnIndex;
   distances: Float64Array;
   /** Neighbours per point in `distances`. */
@@ -256,15 +254,13 @@ interface NeighbourSearch {
 
 /** The largest k of the built-in tuning grids (the weighted estimator's 2..20). */
 const SHARED_NEIGHBOURS = 20;
-/** Distances kept per sample at most (8 bytes each): beyond this a second request searches again instead. */
+/** Distances kept per sample at most (8 bytes each): beyond this each request searches again instead. */
 const SHARED_DISTANCES_MAX = 2 ** 22;
-/** Keyed by the data's buffer: estimators receive a new view of the same draw (subarray) on every call. */
-const searches = new WeakMap<ArrayBufferLike, Map<KnnNorm, NeighbourSearch>>();
+const searches = new SampleMemo<NeighbourSearch>();
 
 function neighbourDistances(data: Float64Array, n: number, dim: number, norm: KnnNorm, k: number): NeighbourSearch {
-  const byNorm = searches.get(data.buffer);
-  let kept = byNorm?.get(norm);
-  if (kept && !(kept.index.dim === dim && sameValues(kept.values, data))) kept = undefined;
+  const key = `${dim}|${norm}`;
+  const kept = searches.peek(data, key);
   if (kept && kept.stride >= k) return kept;
   let index: KnnIndex;
   let logJacobian: number;
@@ -278,11 +274,8 @@ function neighbourDistances(data: Float64Array, n: number, dim: number, norm: Kn
     logJacobian = scaled.logJacobian;
     index = new KnnIndex(scaled.data, dim, { norm });
   }
-  const search: NeighbourSearch = { values: kept?.values ?? Float64Array.from(data), index, distances: index.nearestOthers(stride).distances, stride, logJacobian, searches: (kept?.searches ?? 0) + 1 };
-  if (n * stride <= SHARED_DISTANCES_MAX) {
-    if (byNorm) byNorm.set(norm, search);
-    else searches.set(data.buffer, new Map([[norm, search]]));
-  }
+  const search: NeighbourSearch = { index, distances: index.nearestOthers(stride).distances, stride, logJacobian, searches: (kept?.searches ?? 0) + 1 };
+  if (n * stride <= SHARED_DISTANCES_MAX) searches.set(data, key, search);
   return search;
 }
 

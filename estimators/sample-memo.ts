@@ -15,12 +15,25 @@ export class SampleMemo<T> {
 
   /** The result for these values and key, computed once. */
   get(data: Float64Array, key: string, compute: () => T): T {
-    let byKey = this.kept.get(data.buffer);
-    const hit = byKey?.get(key);
-    if (hit && sameValues(hit.values, data)) return hit.result;
+    const hit = this.peek(data, key);
+    if (hit !== undefined) return hit;
     const result = compute();
-    if (!byKey) this.kept.set(data.buffer, (byKey = new Map()));
-    byKey.set(key, { values: Float64Array.from(data), result });
+    this.set(data, key, result);
     return result;
+  }
+
+  /** What is kept for these values and key, if anything. */
+  peek(data: Float64Array, key: string): T | undefined {
+    const hit = this.kept.get(data.buffer)?.get(key);
+    return hit && sameValues(hit.values, data) ? hit.result : undefined;
+  }
+
+  /** Keeps `result` for these values and key, replacing what was kept. */
+  set(data: Float64Array, key: string, result: T): void {
+    let byKey = this.kept.get(data.buffer);
+    if (!byKey) this.kept.set(data.buffer, (byKey = new Map()));
+    const kept = byKey.get(key);
+    // A replacement for the same values reuses their copy.
+    byKey.set(key, { values: kept && sameValues(kept.values, data) ? kept.values : Float64Array.from(data), result });
   }
 }
