@@ -288,12 +288,11 @@ export function codeDifference(made: PlanCode, now: PlanCode): string | null {
     reasons.push(`it was made by hhat ${made.hhat.version} (build ${made.hhat.build.slice(0, 12)}) and this is hhat ${now.hhat.version} (build ${now.hhat.build.slice(0, 12)})`);
   }
   // Checkpoints written before dependencies were recorded have none: that is a difference too.
-  const installed = new Set(now.hhat.dependencies);
-  const changed = (made.hhat.dependencies ?? []).filter((d) => !installed.has(d));
-  if (!made.hhat.dependencies || changed.length || made.hhat.dependencies.length !== now.hhat.dependencies.length) {
-    const was = new Set(made.hhat.dependencies ?? []);
-    const nowOnly = now.hhat.dependencies.filter((d) => !was.has(d));
-    reasons.push(`the packages hhat uses differ (${[...changed.map((d) => `${d} then`), ...nowOnly.map((d) => `${d} now`)].slice(0, 4).join(', ') || 'not recorded then'})`);
+  const then = made.hhat.dependencies ?? [];
+  const thenOnly = then.filter((d) => !now.hhat.dependencies.includes(d)).map((d) => `${d} then`);
+  const nowOnly = now.hhat.dependencies.filter((d) => !then.includes(d)).map((d) => `${d} now`);
+  if (!made.hhat.dependencies || thenOnly.length || nowOnly.length) {
+    reasons.push(`the packages hhat uses differ (${[...thenOnly, ...nowOnly].slice(0, 4).join(', ') || 'not recorded then'})`);
   }
   const before = new Map(made.modules.map((m) => [m.path, m.digest]));
   for (const m of now.modules) {
