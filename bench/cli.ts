@@ -14,7 +14,7 @@ import { mkdtempSync, writeFileSync } from 'node:fs';
 import { loadavg, tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import normalRandom from '@stdlib/random-base-normal';
-import { rngFromSeed } from '../src/rng.js';
+import { rngFromSeed } from '../src/core/rng.js';
 import { quantileOfSorted } from '../src/math/moments.js';
 import { npyBytes } from './data.js';
 

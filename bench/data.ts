@@ -6,8 +6,8 @@ import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { pathToFileURL } from 'node:url';
-import { findRepeats, readSample } from '../src/data.js';
-import { rngFromSeed } from '../src/rng.js';
+import { findRepeats, readSample } from '../src/data/index.js';
+import { rngFromSeed } from '../src/core/rng.js';
 
 const rows = 1_000_000;
 

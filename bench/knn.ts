@@ -1,5 +1,5 @@
 /**
- * The k-NN index (src/knn.ts) against SciPy's cKDTree on the same seeded data, in the same run.
+ * The k-NN index (src/math/knn.ts) against SciPy's cKDTree on the same seeded data, in the same run.
  * Run alone with `npx tsx bench/knn.ts`; `npx tsx bench/knn.ts --accuracy` instead reruns the Monte-Carlo
  * study behind the weighted Kozachenko–Leonenko default k and the Gaussian tolerances in
  * test/nearest-neighbour.test.ts (several minutes).
@@ -21,8 +21,8 @@ import { loadavg, tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import normalRandom from '@stdlib/random-base-normal';
-import { KnnIndex, type KnnNorm } from '../src/knn.js';
-import { rngFromSeed } from '../src/rng.js';
+import { KnnIndex, type KnnNorm } from '../src/math/knn.js';
+import { rngFromSeed } from '../src/core/rng.js';
 import { kozachenkoLeonenkoEntropy, weightedKozachenkoLeonenkoEntropy } from '../estimators/nearest-neighbour.js';
 
 const TARGET_N = 100_000;

@@ -15,7 +15,7 @@ import { closeSync, existsSync, mkdtempSync, openSync, rmSync, statSync, writeSy
 import { tmpdir } from 'node:os';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
-import { rngFromSeed } from '../src/rng.js';
+import { rngFromSeed } from '../src/core/rng.js';
 
 const root = resolve(dirname(fileURLToPath(import.meta.url)), '..');
 const bin = join(root, 'bin', 'hhat.js');
@@ -79,13 +79,13 @@ function measure(args: string[]): Measured {
 }
 
 /**
- * Predicted (src/cost-model.ts) against measured seconds for each estimator of the default sets, on the
+ * Predicted (src/harness/cost-model.ts) against measured seconds for each estimator of the default sets, on the
  * gauge data's law (d = 3) and its first column (d = 1), at sizes whose prediction is under a minute:
  * the figures behind the model's constants. A ratio measured/predicted above 1 means the model errs fast.
  */
 async function calibrate(): Promise<void> {
   const { parseEstimatorSpec } = await import('../estimators/index.js');
-  const { predictedSeconds } = await import('../src/cost-model.js');
+  const { predictedSeconds } = await import('../src/harness/cost-model.js');
   const { defaultEstimatorsFor } = await import('../src/commands/estimate.js');
   const rng = rngFromSeed('footbridge-calibration');
   const normal = (): number => Math.sqrt(-2 * Math.log(1 - rng())) * Math.cos(2 * Math.PI * rng());

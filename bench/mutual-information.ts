@@ -7,8 +7,8 @@
  */
 import { pathToFileURL } from 'node:url';
 import { getEstimator } from '../estimators/index.js';
-import { KnnIndex } from '../src/knn.js';
-import { replicateRng } from '../src/rng.js';
+import { KnnIndex } from '../src/math/knn.js';
+import { replicateRng } from '../src/core/rng.js';
 import { parseScenario } from '../scenarios/index.js';
 import { bestOf3 } from './knn.js';
 

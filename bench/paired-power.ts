@@ -12,13 +12,13 @@
  * does not move, and no test should flag it (the mean shift column still shows the change itself).
  * Plans run in-process (one worker), with the shifted copy registered under the built-in's id.
  */
-import { compareRuns } from '../src/compare.js';
-import { formatP } from '../src/compare-format.js';
-import { renderTable } from '../src/format.js';
-import { registerUserEstimators } from '../src/modules.js';
-import { resolvePlan } from '../src/plan.js';
-import { runPlan } from '../src/runner.js';
-import { assembleRun, type RunFile } from '../src/results.js';
+import { compareRuns } from '../src/analysis/compare.js';
+import { formatP } from '../src/views/compare-format.js';
+import { renderTable } from '../src/core/format.js';
+import { registerUserEstimators } from '../src/harness/modules.js';
+import { resolvePlan } from '../src/harness/plan.js';
+import { runPlan } from '../src/harness/runner.js';
+import { assembleRun, type RunFile } from '../src/analysis/results.js';
 import { getEstimator, replaceEstimator } from '../estimators/index.js';
 
 const shift = Number(process.argv[2] ?? 0.005);

@@ -9,7 +9,7 @@
  */
 import { execSync } from 'node:child_process';
 import normalFactory from '@stdlib/random-base-normal';
-import { rngFromSeed } from '../src/rng.js';
+import { rngFromSeed } from '../src/core/rng.js';
 import { parseEstimatorSpec, runEstimator } from '../estimators/index.js';
 
 const specs = [

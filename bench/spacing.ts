@@ -10,8 +10,8 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import normalRandom from '@stdlib/random-base-normal';
-import type { Sample } from '../src/contracts.js';
-import { rngFromSeed } from '../src/rng.js';
+import type { Sample } from '../src/core/contracts.js';
+import { rngFromSeed } from '../src/core/rng.js';
 import { sortAscending, spacingEstimators } from '../estimators/spacing.js';
 
 const N = 1_000_000;

@@ -7,11 +7,11 @@
  * `npm run baseline` refreshes the baseline on purpose, after a deliberate change to an estimator or scenario.
  */
 import { resolve } from 'node:path';
-import { defaultPlan } from '../src/default-plan.js';
-import { resolvePlan } from '../src/plan.js';
-import { runPlan } from '../src/runner.js';
-import { assembleRun, readRunFile, writeRunFile } from '../src/results.js';
-import { compareRuns, parseTolerance } from '../src/compare.js';
+import { defaultPlan } from '../src/harness/default-plan.js';
+import { resolvePlan } from '../src/harness/plan.js';
+import { runPlan } from '../src/harness/runner.js';
+import { assembleRun, readRunFile, writeRunFile } from '../src/analysis/results.js';
+import { compareRuns, parseTolerance } from '../src/analysis/compare.js';
 
 const baselinePath = resolve('results/baseline.json');
 const latestPath = resolve('results/latest.json');

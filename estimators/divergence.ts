@@ -8,9 +8,9 @@
  * - histogram-divergence: plug-in Σ p̂ log(p̂/q̂) on one grid laid over both samples.
  * - gaussian-divergence: the closed form for the two fitted normal laws.
  */
-import type { Estimator, Sample, Settings } from '../src/contracts.js';
-import { EstimateError } from '../src/errors.js';
-import { KnnIndex } from '../src/knn.js';
+import type { Estimator, Sample, Settings } from '../src/core/contracts.js';
+import { EstimateError } from '../src/core/errors.js';
+import { KnnIndex } from '../src/math/knn.js';
 import { solveLower } from '../src/math/linalg.js';
 import { type AxisBins, BIN_RULES, axisIndices, histogramGrid } from './histogram.js';
 import { columnExtremes, type SpreadUnit, spreadUnitOfExtremes, toUnit } from './scaling.js';

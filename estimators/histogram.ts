@@ -46,10 +46,10 @@
  * and run-length counted otherwise. When the grid has 2^53 cells or more, the keys of the leading
  * coordinates are first replaced by their ranks among the distinct keys, which keeps every key exact.
  */
-import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
-import { EstimateError } from '../src/errors.js';
+import type { Estimator, Sample, SettingSpec, Settings } from '../src/core/contracts.js';
+import { EstimateError } from '../src/core/errors.js';
 import { quantileOfSorted, squaredDeviations } from '../src/math/moments.js';
-import { checkFiniteValues, column } from '../src/sample.js';
+import { checkFiniteValues, column } from '../src/core/sample.js';
 import { spreadUnitOfRange, timesPowerOfTwo, toUnit } from './scaling.js';
 import { sortAscending } from './spacing.js';
 

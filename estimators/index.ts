@@ -1,9 +1,9 @@
 /**
  * The estimator registry: the only way the harness and the CLI reach estimators.
  */
-import type { Estimator, Sample, Settings, SettingValue } from '../src/contracts.js';
-import { UsageError } from '../src/errors.js';
-import { formatSpec, parseSpec, validateSettings } from '../src/spec.js';
+import type { Estimator, Sample, Settings, SettingValue } from '../src/core/contracts.js';
+import { UsageError } from '../src/core/errors.js';
+import { formatSpec, parseSpec, validateSettings } from '../src/core/spec.js';
 import { histogramEstimators } from './histogram.js';
 import { spacingEstimators } from './spacing.js';
 import { nearestNeighbourEstimators } from './nearest-neighbour.js';
@@ -113,4 +113,17 @@ export function runEstimator(configured: ConfiguredEstimator, sample: Sample, op
   if (sample.dim < minDim || sample.dim > maxDim) throw new UsageError(`${estimator.id} does not support d = ${sample.dim}; it needs ${dimsRange(estimator.dims)}`);
   const value = estimator.estimate(sample, configured.settings);
   return { value, settings: options.report ? resolveSettings(configured, sample) : configured.settings };
+}
+
+/** The estimator's id plus only the settings that differ from their defaults (the spec itself for an unknown id). */
+export function estimatorLabel(spec: string): string {
+  const { id, values } = parseSpec(spec, 'estimator');
+  let defaults: Record<string, string> = {};
+  try {
+    defaults = Object.fromEntries(getEstimator(id).settings.map((s) => [s.name, String(s.default)]));
+  } catch {
+    return spec;
+  }
+  const changed = Object.entries(values).filter(([k, v]) => defaults[k] !== v);
+  return changed.length ? `${id}:${changed.map(([k, v]) => `${k}=${v}`).join(',')}` : id;
 }

@@ -30,9 +30,9 @@
  * point), not a refusal. The estimator fails ('numeric') only where that value does not fit in a double:
  * a point over ~1.3e154 bandwidths from its nearest neighbour, or data whose range overflows.
  */
-import type { Estimator, Sample, SettingSpec, Settings, SettingValue } from '../src/contracts.js';
-import { EstimateError } from '../src/errors.js';
-import { parseNumber } from '../src/spec.js';
+import type { Estimator, Sample, SettingSpec, Settings, SettingValue } from '../src/core/contracts.js';
+import { EstimateError } from '../src/core/errors.js';
+import { parseNumber } from '../src/core/spec.js';
 import { SampleMemo } from './sample-memo.js';
 import { type BandwidthSetting, chooseBandwidth, type KernelData, kernelEntropy, prepareKernelData, toDataUnits } from './kernel/resubstitution.js';
 

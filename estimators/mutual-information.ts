@@ -26,9 +26,9 @@
  *
  * The catalog and the harness reach these through estimators/index.ts; importing this file directly is fine.
  */
-import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
-import { EstimateError } from '../src/errors.js';
-import { KnnIndex } from '../src/knn.js';
+import type { Estimator, Sample, SettingSpec, Settings } from '../src/core/contracts.js';
+import { EstimateError } from '../src/core/errors.js';
+import { KnnIndex } from '../src/math/knn.js';
 import { digamma } from '../src/math/special.js';
 import { checkNotConstant } from './divergence.js';
 import { type AxisBins, BIN_RULES, histogramCells, histogramEstimators, histogramGrid } from './histogram.js';
@@ -167,7 +167,7 @@ function digammaTable(size: number): (m: number) => number {
  * on data whose differences are exact, as the integer ranks of copula=rank, equal distances are genuinely
  * equal, and the strict count of variant 1 and the inclusive counts of variant 2 apply to exact values.
  *
- * Radius counts come from kd-trees on X and on Y (exact: src/knn.ts). Points whose k-th joint neighbour is
+ * Radius counts come from kd-trees on X and on Y (exact: src/math/knn.ts). Points whose k-th joint neighbour is
  * at distance 0 (repeated rows) are a 'ties' error.
  */
 export function ksgMutualInformation(data: Float64Array, n: number, xDim: number, yDim: number, k: number, variant: 1 | 2, id = `ksg${variant}`): number {

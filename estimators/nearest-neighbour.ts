@@ -6,15 +6,15 @@
  *
  *   const h = kozachenkoLeonenkoEntropy(sample.data, sample.dim, 3, 'euclidean');
  *
- * Distances come from the exact kd-tree in src/knn.ts. Repeated points (zero distances) are reported as
+ * Distances come from the exact kd-tree in src/math/knn.ts. Repeated points (zero distances) are reported as
  * EstimateError('ties'), never turned into −Infinity.
  */
-import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
-import { EstimateError } from '../src/errors.js';
-import { KnnIndex, type KnnNorm } from '../src/knn.js';
+import type { Estimator, Sample, SettingSpec, Settings } from '../src/core/contracts.js';
+import { EstimateError } from '../src/core/errors.js';
+import { KnnIndex, type KnnNorm } from '../src/math/knn.js';
 import { SampleMemo } from './sample-memo.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
-import { checkFiniteValues } from '../src/sample.js';
+import { checkFiniteValues } from '../src/core/sample.js';
 import { inSpreadUnit, rowsDifferingFromPartners } from './scaling.js';
 
 const NORMS = ['euclidean', 'max'] as const;

@@ -19,10 +19,10 @@
  * det S by Cholesky (LLᵀ = S, log det S = 2 Σ log L_ii) on mean-centred data, each column divided by its
  * largest deviation, so neither a large common offset nor an extreme unit costs digits.
  */
-import type { Estimator, Sample, Settings } from '../src/contracts.js';
-import { EstimateError } from '../src/errors.js';
+import type { Estimator, Sample, Settings } from '../src/core/contracts.js';
+import { EstimateError } from '../src/core/errors.js';
 import { digamma } from '../src/math/special.js';
-import { checkFiniteValues } from '../src/sample.js';
+import { checkFiniteValues } from '../src/core/sample.js';
 import { spreadUnit, toUnit } from './scaling.js';
 
 /**

@@ -13,9 +13,9 @@
  *
  *   const h = vasicekEntropy(sortAscending(Float64Array.of(...)), 3);
  */
-import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
-import { EstimateError } from '../src/errors.js';
-import { checkFiniteValues } from '../src/sample.js';
+import type { Estimator, Sample, SettingSpec, Settings } from '../src/core/contracts.js';
+import { EstimateError } from '../src/core/errors.js';
+import { checkFiniteValues } from '../src/core/sample.js';
 import { spreadUnitOfRange, toUnit } from './scaling.js';
 
 /** Below this size the engine's typed-array sort is as fast as the radix sort and allocates nothing. */

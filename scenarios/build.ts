@@ -2,11 +2,11 @@
  * Shared construction of scenarios: canonical ids, lazily computed Var(log f), the univariate builder, and the
  * common part of the mutual-information and divergence builders.
  */
-import type { ParamSpec, Quantity, Rng, Sample, Scenario, ScenarioFamily, Support, Tails, UnivariateDensity } from '../src/contracts.js';
+import type { ParamSpec, Quantity, Rng, Sample, Scenario, ScenarioFamily, Support, Tails, UnivariateDensity } from '../src/core/contracts.js';
 import normalRandom from '@stdlib/random-base-normal';
 import { integrate } from '../src/math/quadrature.js';
 import { lowerTimes, type CholeskyFactor } from '../src/math/linalg.js';
-import { formatSpec } from '../src/spec.js';
+import { formatSpec } from '../src/core/spec.js';
 
 export function scenarioId(family: string, params: Record<string, number>, specs: readonly ParamSpec[]): string {
   return formatSpec(family, params, specs.map((s) => s.name));

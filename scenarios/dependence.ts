@@ -21,11 +21,11 @@
  * known: the asymptotic variance bound Var(i)/n for MI estimators, the analogue of Var(log f)/n for entropy.
  */
 import { chisquareRandom, exponentialRandom, normalRandom } from '../src/math/random.js';
-import type { ParamSpec, Rng, Scenario, ScenarioFamily, UnivariateDensity } from '../src/contracts.js';
-import { UsageError } from '../src/errors.js';
+import type { ParamSpec, Rng, Scenario, ScenarioFamily, UnivariateDensity } from '../src/core/contracts.js';
+import { UsageError } from '../src/core/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
 import { digamma, logGamma } from '../src/math/special.js';
-import { formatNumber } from '../src/spec.js';
+import { formatNumber } from '../src/core/spec.js';
 import { gaussianRows, scenarioFromFacts, type ScenarioFacts } from './build.js';
 import { univariateDensity } from './univariate.js';
 

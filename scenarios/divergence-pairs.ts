@@ -9,11 +9,11 @@
  * Facts (`support`, `tails`) describe the harder of the two laws; `moments` and `marginals` describe P.
  */
 import { exponentialRandom, gammaRandom, laplaceRandom, normalRandom } from '../src/math/random.js';
-import type { ParamSpec, Rng, Scenario, ScenarioFamily } from '../src/contracts.js';
-import { UsageError } from '../src/errors.js';
+import type { ParamSpec, Rng, Scenario, ScenarioFamily } from '../src/core/contracts.js';
+import { UsageError } from '../src/core/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
 import { digamma, logGamma } from '../src/math/special.js';
-import { formatNumber } from '../src/spec.js';
+import { formatNumber } from '../src/core/spec.js';
 import { gaussianRows, scenarioFromFacts, type ScenarioFacts } from './build.js';
 import { equicorrelated } from './multivariate.js';
 import { univariateDensity } from './univariate.js';

@@ -7,9 +7,9 @@
  *   transformed[MAP;SPEC]             a monotone map of a 1-D base, e.g. transformed[sinh;normal]
  *   gaussian-covariance[ROW;ROW;...]  any covariance, e.g. gaussian-covariance[1,0.5;0.5,2]
  */
-import type { Scenario, ScenarioFamily } from '../src/contracts.js';
-import { UsageError } from '../src/errors.js';
-import { parseSpec, validateParams } from '../src/spec.js';
+import type { Scenario, ScenarioFamily } from '../src/core/contracts.js';
+import { UsageError } from '../src/core/errors.js';
+import { parseSpec, validateParams } from '../src/core/spec.js';
 import {
   gaussianMixtureFamily,
   monotoneMaps,

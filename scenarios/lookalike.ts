@@ -19,12 +19,12 @@
 import { createHash } from 'node:crypto';
 import normalRandom from '@stdlib/random-base-normal';
 import seedrandom from 'seedrandom';
-import type { Rng, Sample, Scenario, UnivariateDensity } from '../src/contracts.js';
-import { UsageError } from '../src/errors.js';
+import type { Rng, Sample, Scenario, UnivariateDensity } from '../src/core/contracts.js';
+import { UsageError } from '../src/core/errors.js';
 import { cholesky, type CholeskyFactor } from '../src/math/linalg.js';
 import { integrate } from '../src/math/quadrature.js';
 import { normalCdf } from '../src/math/special.js';
-import { formatNumber, parseNumber } from '../src/spec.js';
+import { formatNumber, parseNumber } from '../src/core/spec.js';
 import { entropyByQuadrature, formatError, logDensityVarianceByQuadrature } from './build.js';
 
 export const LOOKALIKE_FAMILY = 'gaussian-mixture-mv';

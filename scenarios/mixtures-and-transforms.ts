@@ -4,10 +4,10 @@
  * estimate is reported in truthSource and checked to be below 1e-8.
  */
 import { normalRandom } from '../src/math/random.js';
-import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily, Tails, UnivariateDensity } from '../src/contracts.js';
-import { UsageError } from '../src/errors.js';
+import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily, Tails, UnivariateDensity } from '../src/core/contracts.js';
+import { UsageError } from '../src/core/errors.js';
 import { normalCdf } from '../src/math/special.js';
-import { formatNumber, formatSpec, parseNumber, validateParams } from '../src/spec.js';
+import { formatNumber, formatSpec, parseNumber, validateParams } from '../src/core/spec.js';
 import { entropyByQuadrature, expectation, formatError, logDensityVarianceByQuadrature } from './build.js';
 
 /** The largest quadrature error estimate accepted for a numeric truth. */

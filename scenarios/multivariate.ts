@@ -3,11 +3,11 @@
  */
 import chisquareRandom from '@stdlib/random-base-chisquare';
 import normalRandom from '@stdlib/random-base-normal';
-import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily } from '../src/contracts.js';
-import { UsageError } from '../src/errors.js';
+import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily } from '../src/core/contracts.js';
+import { UsageError } from '../src/core/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
-import { formatNumber } from '../src/spec.js';
+import { formatNumber } from '../src/core/spec.js';
 import { gaussianRows, scenarioId } from './build.js';
 import { studentLogDensityVariance, univariateDensity } from './univariate.js';
 

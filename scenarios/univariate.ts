@@ -7,8 +7,8 @@
  * @stdlib/random-base-* samplers fed with the replicate's stream.
  */
 import { arcsineRandom, betaRandom, cauchyRandom, chiRandom, chisquareRandom, exponentialRandom, frechetRandom, gammaRandom, gumbelRandom, invgammaRandom, kumaraswamyRandom, laplaceRandom, levyRandom, logisticRandom, lognormalRandom, normalRandom, paretoRandom, rayleighRandom, tRandom, triangularRandom, uniformRandom, weibullRandom } from '../src/math/random.js';
-import type { ParamSpec, ScenarioFamily, UnivariateDensity } from '../src/contracts.js';
-import { UsageError } from '../src/errors.js';
+import type { ParamSpec, ScenarioFamily, UnivariateDensity } from '../src/core/contracts.js';
+import { UsageError } from '../src/core/errors.js';
 import {
   EULER_GAMMA,
   digamma,

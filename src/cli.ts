@@ -1,6 +1,6 @@
 import { Command, CommanderError } from 'commander';
-import { EnvironmentError, EstimateError, UsageError } from './errors.js';
-import { hhatVersion } from './provenance.js';
+import { EnvironmentError, EstimateError, UsageError } from './core/errors.js';
+import { hhatVersion } from './core/provenance.js';
 import { COMMANDS, type CommandName } from './commands/summaries.js';
 
 type Print = (text: string) => void;

@@ -19,9 +19,9 @@ export type {
   Support,
   Tails,
   UnivariateDensity,
-} from './contracts.js';
-export { EstimateError, UsageError } from './errors.js';
-export { replicateRng, replicateSeed, rngFromSeed } from './rng.js';
+} from './core/contracts.js';
+export { EstimateError, UsageError } from './core/errors.js';
+export { replicateRng, replicateSeed, rngFromSeed } from './core/rng.js';
 export { catalog, getFamily, listFamilies, parseScenario } from '../scenarios/index.js';
 export {
   configureEstimator,
@@ -32,19 +32,19 @@ export {
   runEstimator,
   type ConfiguredEstimator,
 } from '../estimators/index.js';
-export { drawsFingerprint, planFingerprint, readPlanFile, resolvePlan, type Plan, type PlanInput } from './plan.js';
-export { defaultPlan } from './default-plan.js';
-export { runPlan, type RunOptions, type RunOutcome, type Shard } from './runner.js';
-export { assembleRun, readRunFile, writeRunFile, type Cell, type RunFile } from './results.js';
-export { mergeShards } from './merge.js';
-export { scoreCell, type CellScores } from './score.js';
-export { compareRuns, type Comparison } from './compare.js';
-export { parsePerturbation, type Perturbation } from './perturb.js';
-export { meanLogReference, parseReference, type Reference } from './reference.js';
-export { convertEntropy, unitFactor } from './units.js';
-export { readSample, findRepeats } from './data.js';
-export { KnnIndex } from './knn.js';
-export { loadEstimatorModules, registerUserEstimators } from './modules.js';
-export { renderReport, writeReport } from './report/report.js';
-export { adviseFile } from './advise/file.js';
-export { adviseSetting } from './advise/setting.js';
+export { drawsFingerprint, planFingerprint, readPlanFile, resolvePlan, type Plan, type PlanInput } from './harness/plan.js';
+export { defaultPlan } from './harness/default-plan.js';
+export { runPlan, type RunOptions, type RunOutcome, type Shard } from './harness/runner.js';
+export { assembleRun, readRunFile, writeRunFile, type Cell, type RunFile } from './analysis/results.js';
+export { mergeShards } from './analysis/merge.js';
+export { scoreCell, type CellScores } from './analysis/score.js';
+export { compareRuns, type Comparison } from './analysis/compare.js';
+export { parsePerturbation, type Perturbation } from './harness/perturb.js';
+export { meanLogReference, parseReference, type Reference } from './analysis/reference.js';
+export { convertEntropy, unitFactor } from './core/units.js';
+export { readSample, findRepeats } from './data/index.js';
+export { KnnIndex } from './math/knn.js';
+export { loadEstimatorModules, registerUserEstimators } from './harness/modules.js';
+export { renderReport, writeReport } from './views/report/report.js';
+export { adviseFile } from './analysis/advise/file.js';
+export { adviseSetting } from './analysis/advise/setting.js';

@@ -10,11 +10,11 @@
  * Nadarajah 2004), and quadrature with an error below 1e-8 for the Gaussian mixture.
  */
 import { describe, expect, it } from 'vitest';
-import { rngFromSeed } from '../src/rng.js';
+import { rngFromSeed } from '../src/core/rng.js';
 import { parseScenario } from '../scenarios/index.js';
-import { adviseFile } from '../src/advise/file.js';
-import { adviseSetting } from '../src/advise/setting.js';
-import { UsageError } from '../src/errors.js';
+import { adviseFile } from '../src/analysis/advise/file.js';
+import { adviseSetting } from '../src/analysis/advise/setting.js';
+import { UsageError } from '../src/core/errors.js';
 
 const cases: { spec: string; n: number; trials: number }[] = [
   { spec: 'gaussian-mixture:w1=0.7,mu1=0,sigma1=1,w2=0.3,mu2=6,sigma2=0.5', n: 400, trials: 200 },

@@ -10,22 +10,22 @@ import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import normalEntropy from '@stdlib/stats-base-dists-normal-entropy';
 import { main } from '../src/cli.js';
-import type { Sample } from '../src/contracts.js';
-import { UsageError } from '../src/errors.js';
-import { rngFromSeed } from '../src/rng.js';
-import { resolvePlan } from '../src/plan.js';
-import { runPlan } from '../src/runner.js';
-import { assembleRun } from '../src/results.js';
+import type { Sample } from '../src/core/contracts.js';
+import { UsageError } from '../src/core/errors.js';
+import { rngFromSeed } from '../src/core/rng.js';
+import { resolvePlan } from '../src/harness/plan.js';
+import { runPlan } from '../src/harness/runner.js';
+import { assembleRun } from '../src/analysis/results.js';
 import { parseScenario } from '../scenarios/index.js';
 import { lookalikeSpec, lookalikeTruth } from '../scenarios/lookalike.js';
-import { correlationMatrix, profileSample, skewness } from '../src/advise/profile.js';
-import { hillK, hillTail, hillXi } from '../src/advise/tails.js';
-import { edgeEvidence, supportFromEdges } from '../src/advise/edges.js';
-import { mixtureParameters, selectMixture, symmetricEigenvalues } from '../src/advise/mixture.js';
-import { quantileSorted, smoothedBootstrap } from '../src/advise/bootstrap.js';
-import { applicableEstimators } from '../src/advise/benchmark.js';
-import { adviseFile } from '../src/advise/file.js';
-import { adviseSetting, matchScenarios } from '../src/advise/setting.js';
+import { correlationMatrix, profileSample, skewness } from '../src/analysis/advise/profile.js';
+import { hillK, hillTail, hillXi } from '../src/analysis/advise/tails.js';
+import { edgeEvidence, supportFromEdges } from '../src/analysis/advise/edges.js';
+import { mixtureParameters, selectMixture, symmetricEigenvalues } from '../src/analysis/advise/mixture.js';
+import { quantileSorted, smoothedBootstrap } from '../src/analysis/advise/bootstrap.js';
+import { applicableEstimators } from '../src/analysis/advise/benchmark.js';
+import { adviseFile } from '../src/analysis/advise/file.js';
+import { adviseSetting, matchScenarios } from '../src/analysis/advise/setting.js';
 import { parseEstimatorSpec, runEstimator } from '../estimators/index.js';
 import { runCli as run } from './helpers/cli.js';
 
@@ -378,8 +378,8 @@ describe('advice that no estimator is usable', () => {
   it('every RMSE above the spread of the true values: no recommendation, and the reason names both numbers', async () => {
     // Two normal laws whose entropies differ by log(1.01), from @stdlib's normal entropy: an SD of half that,
     // 0.004975 nats. At n = 50 every estimator's RMSE is far above it.
-    const { runTargeted } = await import('../src/advise/benchmark.js');
-    const { summarise, recommend } = await import('../src/advise/recommend.js');
+    const { runTargeted } = await import('../src/analysis/advise/benchmark.js');
+    const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');
     const bench = await runTargeted({ scenarios: ['normal', 'normal:sigma=1.01'], estimators: applicableEstimators(1), n: 50, budgetSeconds: 30, minReplicates: 10, maxReplicates: 10, workers: 1 });
     const summaries = summarise(bench.run);
     const recommendation = recommend(bench.run, summaries);
@@ -390,8 +390,8 @@ describe('advice that no estimator is usable', () => {
   });
 
   it('the runner-up is never an estimator that fails on some draws (constructed: the lowest RMSE marked failing)', async () => {
-    const { runTargeted } = await import('../src/advise/benchmark.js');
-    const { summarise, recommend } = await import('../src/advise/recommend.js');
+    const { runTargeted } = await import('../src/analysis/advise/benchmark.js');
+    const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');
     const bench = await runTargeted({ scenarios: ['normal'], estimators: applicableEstimators(1), n: 200, budgetSeconds: 30, minReplicates: 10, maxReplicates: 10, workers: 1 });
     const ran = summarise(bench.run).filter((s) => Number.isFinite(s.meanRmse.value) && s.failedScenarios === 0);
     expect(ran.length).toBeGreaterThanOrEqual(3);

@@ -12,10 +12,10 @@ import { pathToFileURL } from 'node:url';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { chromium, type BrowserContext, type Page } from 'playwright-core';
 import { PNG } from 'pngjs';
-import { resolvePlan } from '../src/plan.js';
-import { runPlan } from '../src/runner.js';
-import { assembleRun } from '../src/results.js';
-import { renderReport } from '../src/report/report.js';
+import { resolvePlan } from '../src/harness/plan.js';
+import { runPlan } from '../src/harness/runner.js';
+import { assembleRun } from '../src/analysis/results.js';
+import { renderReport } from '../src/views/report/report.js';
 
 const CHROMIUM = '/usr/bin/chromium';
 const available = existsSync(CHROMIUM);

@@ -7,9 +7,9 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import normalEntropy from '@stdlib/stats-base-dists-normal-entropy';
-import { checkSampleMemory, processMemoryLimitBytes } from '../src/memory.js';
+import { checkSampleMemory, processMemoryLimitBytes } from '../src/core/memory.js';
 import { parseScenario } from '../scenarios/index.js';
-import { replicateRng } from '../src/rng.js';
+import { replicateRng } from '../src/core/rng.js';
 import { runCli as run } from './helpers/cli.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'hhat-cli-'));
@@ -138,7 +138,7 @@ describe('sizes the machine cannot hold', () => {
   });
 
   it('the memory check names what a size needs against the memory given (a 16 GB machine here)', () => {
-    // 1e8 points in d = 5 on 2 workers: 150 MB + 2 × 1e8 × 8 × (6·5 + 28) bytes = 92.95 GB (src/memory.ts's
+    // 1e8 points in d = 5 on 2 workers: 150 MB + 2 × 1e8 × 8 × (6·5 + 28) bytes = 92.95 GB (src/core/memory.ts's
     // formula, worked out here by hand).
     expect(() => checkSampleMemory('n = 100000000', 1e8, 5, { workers: 2, totalBytes: 16e9 })).toThrow(/needs about 93 GB of memory .*more than this machine's 16 GB/);
     expect(() => checkSampleMemory('n = 1000', 1000, 5, { workers: 2, totalBytes: 16e9 })).not.toThrow();

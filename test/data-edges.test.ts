@@ -6,9 +6,9 @@
  */
 import { describe, expect, it } from 'vitest';
 import normalRandom from '@stdlib/random-base-normal';
-import type { Estimator, Sample, Settings } from '../src/contracts.js';
-import { EstimateError } from '../src/errors.js';
-import { rngFromSeed } from '../src/rng.js';
+import type { Estimator, Sample, Settings } from '../src/core/contracts.js';
+import { EstimateError } from '../src/core/errors.js';
+import { rngFromSeed } from '../src/core/rng.js';
 import { configureEstimator, getEstimator } from '../estimators/index.js';
 
 /** Python 3: math.log(5e-320) (also: 5e-320 == 10120 * 2**-1074 exactly, by fractions.Fraction). */

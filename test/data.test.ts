@@ -13,10 +13,10 @@ import {
   sortedOrder,
   resolveColumns,
   selectTableColumns,
-} from '../src/data.js';
+} from '../src/data/index.js';
 import { parseDecimalBytes } from '../src/data/numbers.js';
-import { UsageError } from '../src/errors.js';
-import { rngFromSeed } from '../src/rng.js';
+import { UsageError } from '../src/core/errors.js';
+import { rngFromSeed } from '../src/core/rng.js';
 
 const fixtureDir = join(import.meta.dirname, 'fixtures', 'npy');
 const tempDir = mkdtempSync(join(tmpdir(), 'hhat-data-'));

@@ -9,7 +9,7 @@ import { join } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
 import lognormalEntropy from '@stdlib/stats-base-dists-lognormal-entropy';
 import { parseScenario } from '../scenarios/index.js';
-import { replicateRng } from '../src/rng.js';
+import { replicateRng } from '../src/core/rng.js';
 import { ensureBuilt } from './helpers/built.js';
 import { runCli as run } from './helpers/cli.js';
 

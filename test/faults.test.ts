@@ -10,12 +10,12 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { main } from '../src/cli.js';
-import { resolvePlan, type PlanInput } from '../src/plan.js';
-import { runPlan } from '../src/runner.js';
-import { assembleRun, readRunFile, type RunFile } from '../src/results.js';
-import { useEstimatorModules } from '../src/modules.js';
+import { resolvePlan, type PlanInput } from '../src/harness/plan.js';
+import { runPlan } from '../src/harness/runner.js';
+import { assembleRun, readRunFile, type RunFile } from '../src/analysis/results.js';
+import { useEstimatorModules } from '../src/harness/modules.js';
 import { parseScenario } from '../scenarios/index.js';
-import { replicateRng } from '../src/rng.js';
+import { replicateRng } from '../src/core/rng.js';
 import { ensureBuilt } from './helpers/built.js';
 
 const faults = join(__dirname, 'fixtures', 'faults');
@@ -98,7 +98,7 @@ describe('faulty estimator modules beside built-ins', () => {
   });
 
   it.each(['SIGINT', 'SIGTERM'] as const)('%s stops a run with one worker stuck in a hung estimate within seconds, saving what finished', async (signal) => {
-    ensureBuilt(['src/pool.ts', 'src/runner.ts', 'src/commands/bench.ts', 'src/worker.ts']);
+    ensureBuilt(['src/harness/pool.ts', 'src/harness/runner.ts', 'src/commands/bench.ts', 'src/harness/worker.ts']);
     const out = join(dir, `signal-${signal}.json`);
     const plan = join(dir, `signal-${signal}-plan.json`);
     // Two scenarios: on the first, all values are negative, so the fixture never hangs (it does for a first

@@ -11,12 +11,12 @@ import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, 
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
-import { readRunFile } from '../src/results.js';
-import { mergeShards } from '../src/merge.js';
-import { removeLeftoverTemporaries, writeFileAtomic, acquireLock } from '../src/files.js';
+import { readRunFile } from '../src/analysis/results.js';
+import { mergeShards } from '../src/analysis/merge.js';
+import { removeLeftoverTemporaries, writeFileAtomic, acquireLock } from '../src/core/files.js';
 import { ensureBuilt } from './helpers/built.js';
 import { runCli as cli } from './helpers/cli.js';
-import { hhatVersion } from '../src/provenance.js';
+import { hhatVersion } from '../src/core/provenance.js';
 
 const root = join(__dirname, '..');
 const bin = join(root, 'bin', 'hhat.js');
@@ -52,7 +52,7 @@ if (!canMount) console.warn('test/files.test.ts: cannot mount tmpfs here (not ro
 
 describe('where results go', () => {
   it('bench from an empty folder writes results/ there; a missing --out folder is created', () => {
-    ensureBuilt(['src/commands/bench.ts', 'src/files.ts', 'src/runner.ts', 'src/pool.ts']);
+    ensureBuilt(['src/commands/bench.ts', 'src/core/files.ts', 'src/harness/runner.ts', 'src/harness/pool.ts']);
     const empty = mkdtempSync(join(tmpdir(), 'hhat-empty-'));
     const first = spawnSync(process.execPath, [bin, 'bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--quiet'], { cwd: empty, encoding: 'utf8' });
     expect(first.stderr).toBe('');
@@ -117,7 +117,7 @@ describe('full and read-only disks (tmpfs)', () => {
 
 describe('one output, one process', () => {
   it('a second run on the same --out is refused while the first lives; a stale lock is taken over', async () => {
-    ensureBuilt(['src/commands/bench.ts', 'src/files.ts']);
+    ensureBuilt(['src/commands/bench.ts', 'src/core/files.ts']);
     const out = join(dir, 'shared.json');
     const first = spawn(process.execPath, [bin, 'bench', '--scenario', 'normal', '--n', '20000', '--replicates', '200', '--estimator', 'kozachenko-leonenko', '--out', out, '--quiet'], { stdio: 'ignore' });
     // Wait until the first run holds the lock.
@@ -169,8 +169,8 @@ describe('code versions are never mixed', () => {
     const out = join(dir, 'versions.json');
     const controller = new AbortController();
     // Interrupt a run after its first unit (the runner's own signal, as Ctrl-C would).
-    const { runPlan } = await import('../src/runner.js');
-    const { resolvePlan } = await import('../src/plan.js');
+    const { runPlan } = await import('../src/harness/runner.js');
+    const { resolvePlan } = await import('../src/harness/plan.js');
     const { plan } = resolvePlan({ scenarios: ['normal', 'uniform'], estimators: ['vasicek'], sampleSizes: [100, 1000], replicates: 40, seed: 3 });
     await runPlan(plan, { workers: 1, checkpointPath: `${out}.checkpoint.jsonl`, signal: controller.signal, onProgress: () => controller.abort() });
     const lines = readFileSync(`${out}.checkpoint.jsonl`, 'utf8').split('\n');
@@ -207,8 +207,8 @@ describe('code versions are never mixed', () => {
     const args = ['bench', '--scenario', 'normal', '--n', '100,1000', '--replicates', '40', '--estimator', 'lab-mean', '--estimator-module', estimatorModule, '--out', out, '--quiet'];
     // A checkpoint of the same plan, as an interrupted run leaves it: made here by running one shard and
     // keeping its checkpoint would need a kill; instead, write the header the runner writes and no units.
-    const { resolvePlan, planCode, planFingerprint } = await import('../src/plan.js');
-    const { useEstimatorModules } = await import('../src/modules.js');
+    const { resolvePlan, planCode, planFingerprint } = await import('../src/harness/plan.js');
+    const { useEstimatorModules } = await import('../src/harness/modules.js');
     await useEstimatorModules([estimatorModule]);
     const { plan } = resolvePlan({ scenarios: ['normal'], estimators: ['lab-mean'], sampleSizes: [100, 1000], replicates: 40, modules: [estimatorModule] });
     const code = planCode(plan);

@@ -2,9 +2,9 @@ import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import normalRandom from '@stdlib/random-base-normal';
 import exponentialRandom from '@stdlib/random-base-exponential';
-import type { Sample, Settings } from '../src/contracts.js';
-import { EstimateError } from '../src/errors.js';
-import { rngFromSeed } from '../src/rng.js';
+import type { Sample, Settings } from '../src/core/contracts.js';
+import { EstimateError } from '../src/core/errors.js';
+import { rngFromSeed } from '../src/core/rng.js';
 import { BIN_RULES, type BinRule, histogramCells, histogramEstimators, histogramGrid } from '../estimators/histogram.js';
 
 interface HistogramFixture {

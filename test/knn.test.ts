@@ -1,8 +1,8 @@
 import { createRequire } from 'node:module';
 import { describe, expect, it } from 'vitest';
 import normalRandom from '@stdlib/random-base-normal';
-import { KnnIndex, nextDown, squaredThreshold, type KnnNorm } from '../src/knn.js';
-import { rngFromSeed } from '../src/rng.js';
+import { KnnIndex, nextDown, squaredThreshold, type KnnNorm } from '../src/math/knn.js';
+import { rngFromSeed } from '../src/core/rng.js';
 
 /*
  * Every check here compares the kd-tree with an independent brute-force computation written in this file

@@ -7,14 +7,14 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import chisquareCdf from '@stdlib/stats-base-dists-chisquare-cdf';
-import { parseDelimited, readDelimitedFile, readSample } from '../src/data.js';
-import { UsageError } from '../src/errors.js';
-import { rngFromSeed } from '../src/rng.js';
-import { predictedSeconds, roundRowsDown, rowsWithin } from '../src/cost-model.js';
-import { checkSampleMemory, MAX_TYPED_ARRAY_LENGTH } from '../src/memory.js';
-import { seededRowSubsample, uniformRowSubsample } from '../src/sample.js';
-import { adviseFile, analysisRows } from '../src/advise/file.js';
-import { applicableEstimators } from '../src/advise/benchmark.js';
+import { parseDelimited, readDelimitedFile, readSample } from '../src/data/index.js';
+import { UsageError } from '../src/core/errors.js';
+import { rngFromSeed } from '../src/core/rng.js';
+import { predictedSeconds, roundRowsDown, rowsWithin } from '../src/harness/cost-model.js';
+import { checkSampleMemory, MAX_TYPED_ARRAY_LENGTH } from '../src/core/memory.js';
+import { seededRowSubsample, uniformRowSubsample } from '../src/core/sample.js';
+import { adviseFile, analysisRows } from '../src/analysis/advise/file.js';
+import { applicableEstimators } from '../src/analysis/advise/benchmark.js';
 import { listEstimators, parseEstimatorSpec } from '../estimators/index.js';
 import { runCli as run } from './helpers/cli.js';
 
@@ -283,7 +283,7 @@ describe('sample sizes the machine cannot hold', () => {
     expect(wide.code).toBe(2);
     expect(wide.err).toMatch(/a JavaScript typed array can hold/);
     expect((await run(['advise', '--n', '500', '--dim', '1', '--replicates', '1000001'])).err).toMatch(/from 2 to 1000000/);
-    // Predicted at about 9 s per replicate (src/cost-model.ts), so 5 replicates on 2 workers need about 33 s:
+    // Predicted at about 9 s per replicate (src/harness/cost-model.ts), so 5 replicates on 2 workers need about 33 s:
     // more than 4 (the model's margin) times a 5 s budget.
     const slow = await run(['advise', '--n', '300000', '--dim', '3', '--budget', '5']);
     expect(slow.code).toBe(2);

@@ -9,14 +9,14 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import digamma from '@stdlib/math-base-special-digamma';
 import { getEstimator, parseEstimatorSpec, replaceEstimator, runEstimator } from '../estimators/index.js';
-import { loadEstimatorModules, registerUserEstimators, useEstimatorModules, describeRegistration } from '../src/modules.js';
-import { UsageError } from '../src/errors.js';
+import { loadEstimatorModules, registerUserEstimators, useEstimatorModules, describeRegistration } from '../src/harness/modules.js';
+import { UsageError } from '../src/core/errors.js';
 import { parseScenario } from '../scenarios/index.js';
-import { replicateRng } from '../src/rng.js';
-import { resolvePlan } from '../src/plan.js';
-import { runPlan } from '../src/runner.js';
-import { assembleRun } from '../src/results.js';
-import type { Sample } from '../src/contracts.js';
+import { replicateRng } from '../src/core/rng.js';
+import { resolvePlan } from '../src/harness/plan.js';
+import { runPlan } from '../src/harness/runner.js';
+import { assembleRun } from '../src/analysis/results.js';
+import type { Sample } from '../src/core/contracts.js';
 
 const root = join(__dirname, '..');
 const example = join(root, 'examples', 'drift-corrected-estimators.mjs');
@@ -176,7 +176,7 @@ describe('bad modules: one line naming the file and the problem', () => {
   });
 
   it('under plain Node (no TypeScript loader): a TypeScript module and a syntax error are clear one-line errors', () => {
-    const built = join(root, 'dist', 'src', 'modules.js');
+    const built = join(root, 'dist', 'src', 'harness', 'modules.js');
     if (!existsSync(built)) throw new Error('dist/ is missing: run npm run build (npm test does) before this test');
     const broken = join(dir, 'plain-node-syntax.mjs');
     writeFileSync(broken, 'export const estimators = [;');

@@ -2,9 +2,9 @@ import { describe, expect, it } from 'vitest';
 import digammaStdlib from '@stdlib/math-base-special-digamma';
 import gammaStdlib from '@stdlib/math-base-special-gamma';
 import normalRandom from '@stdlib/random-base-normal';
-import type { Sample } from '../src/contracts.js';
-import { EstimateError } from '../src/errors.js';
-import { rngFromSeed } from '../src/rng.js';
+import type { Sample } from '../src/core/contracts.js';
+import { EstimateError } from '../src/core/errors.js';
+import { rngFromSeed } from '../src/core/rng.js';
 import {
   kozachenkoLeonenkoEntropy,
   nearestNeighbourEstimators,

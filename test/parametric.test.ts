@@ -3,9 +3,9 @@ import { Matrix, covariance, determinant } from 'ml-matrix';
 import digamma from '@stdlib/math-base-special-digamma';
 import trigamma from '@stdlib/math-base-special-trigamma';
 import normalRandom from '@stdlib/random-base-normal';
-import type { Rng, Sample } from '../src/contracts.js';
-import { EstimateError } from '../src/errors.js';
-import { rngFromSeed } from '../src/rng.js';
+import type { Rng, Sample } from '../src/core/contracts.js';
+import { EstimateError } from '../src/core/errors.js';
+import { rngFromSeed } from '../src/core/rng.js';
 import { parametricEstimators } from '../estimators/parametric.js';
 
 const gaussian = parametricEstimators.find((e) => e.id === 'gaussian')!;

@@ -5,15 +5,15 @@
 import { describe, expect, it } from 'vitest';
 import normalRandom from '@stdlib/random-base-normal';
 import normalEntropy from '@stdlib/stats-base-dists-normal-entropy';
-import { bootstrapIndices, modelConfidenceSet } from '../src/best-set.js';
-import { overallRanks, rankCell, type RankableCell, type Ranking } from '../src/ranking.js';
-import { scoreCell } from '../src/score.js';
-import { resolvePlan } from '../src/plan.js';
-import { runPlan } from '../src/runner.js';
-import { assembleRun } from '../src/results.js';
-import { rngFromSeed } from '../src/rng.js';
+import { bootstrapIndices, modelConfidenceSet } from '../src/analysis/best-set.js';
+import { overallRanks, rankCell, type RankableCell, type Ranking } from '../src/analysis/ranking.js';
+import { scoreCell } from '../src/analysis/score.js';
+import { resolvePlan } from '../src/harness/plan.js';
+import { runPlan } from '../src/harness/runner.js';
+import { assembleRun } from '../src/analysis/results.js';
+import { rngFromSeed } from '../src/core/rng.js';
 import { registerEstimator, listEstimators } from '../estimators/index.js';
-import { rankText } from '../src/verdict-text.js';
+import { rankText } from '../src/views/verdict-text.js';
 import { flakyExact } from './fixtures/flaky-exact-estimator.js';
 import reference from './fixtures/best-set.json' with { type: 'json' };
 

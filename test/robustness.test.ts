@@ -6,18 +6,18 @@
 import { describe, expect, it } from 'vitest';
 import { Matrix, determinant } from 'ml-matrix';
 import digamma from '@stdlib/math-base-special-digamma';
-import { resolvePlan } from '../src/plan.js';
-import { runPlan } from '../src/runner.js';
-import { assembleRun, type RunFile } from '../src/results.js';
-import { parsePerturbation, type PreparedPerturbation } from '../src/perturb.js';
+import { resolvePlan } from '../src/harness/plan.js';
+import { runPlan } from '../src/harness/runner.js';
+import { assembleRun, type RunFile } from '../src/analysis/results.js';
+import { parsePerturbation, type PreparedPerturbation } from '../src/harness/perturb.js';
 import { parseScenario } from '../scenarios/index.js';
-import { replicateRng } from '../src/rng.js';
+import { replicateRng } from '../src/core/rng.js';
 import { parseEstimatorSpec, runEstimator } from '../estimators/index.js';
-import { meanLogReference, parseReference, rescaleReference } from '../src/reference.js';
+import { meanLogReference, parseReference, rescaleReference } from '../src/analysis/reference.js';
 import { integrate } from '../src/math/quadrature.js';
-import { convertEntropy, unitFactor } from '../src/units.js';
-import { quantizationThreshold } from '../src/robustness.js';
-import { robustnessTable } from '../src/tables.js';
+import { convertEntropy, unitFactor } from '../src/core/units.js';
+import { quantizationThreshold } from '../src/analysis/robustness.js';
+import { robustnessTable } from '../src/views/tables.js';
 
 function prepared(spec: string, scenario: string): PreparedPerturbation {
   const p = parsePerturbation(spec).prepare(parseScenario(scenario));

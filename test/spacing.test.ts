@@ -3,9 +3,9 @@ import { describe, expect, it } from 'vitest';
 import digamma from '@stdlib/math-base-special-digamma';
 import normalRandom from '@stdlib/random-base-normal';
 import exponentialRandom from '@stdlib/random-base-exponential';
-import type { Estimator, Sample } from '../src/contracts.js';
-import { EstimateError } from '../src/errors.js';
-import { rngFromSeed } from '../src/rng.js';
+import type { Estimator, Sample } from '../src/core/contracts.js';
+import { EstimateError } from '../src/core/errors.js';
+import { rngFromSeed } from '../src/core/rng.js';
 import { correaEntropy, sortAscending, spacingEstimators } from '../estimators/spacing.js';
 
 interface SpacingFixture {

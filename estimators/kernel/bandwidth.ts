@@ -7,7 +7,7 @@
  * n^(−1/(d+4)) and Scott's n^(−1/(d+4)). σ̂ is the sample standard deviation with divisor n − 1; the IQR
  * uses linearly interpolated quantiles (Hyndman & Fan 1996, type 7).
  */
-import { EstimateError } from '../../src/errors.js';
+import { EstimateError } from '../../src/core/errors.js';
 import { quantileOfSorted, squaredDeviations } from '../../src/math/moments.js';
 
 export type BandwidthRule = 'silverman' | 'scott';

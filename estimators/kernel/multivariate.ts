@@ -20,7 +20,7 @@
  * truncated pass's radius and exponent scale would be rounded to 0 or ∞, so every point takes the full
  * log-space sum over all n instead.
  */
-import { KnnIndex } from '../../src/knn.js';
+import { KnnIndex } from '../../src/math/knn.js';
 import { type GridPlan, gridLogKernelSums, isInside, planGrid } from './grid.js';
 import { type CellIndex, isolatedLogKernelSums, outsidePairSums } from './neighbourhood.js';
 import { kernelCutoff } from './truncation.js';

@@ -1,6 +1,6 @@
 /**
  * Exact Gaussian kernel sums for a few chosen whitened points, from their neighbourhoods in a kd-tree
- * (src/knn.ts) instead of a pass over all n points: the points whose truncated or gridded sum is below 1
+ * (src/math/knn.ts) instead of a pass over all n points: the points whose truncated or gridded sum is below 1
  * (isolated points, far tails, outliers) and the points outside the grid's box.
  *
  * An isolated point's sum is taken relative to its nearest neighbour, as in the 1-D exact path: with
@@ -18,7 +18,7 @@
  * cost more than looking at every point (m² > n: d > 5, where there is no cell list, and the ball holds
  * much of the sample), the points are scanned.
  */
-import { KnnIndex } from '../../src/knn.js';
+import { KnnIndex } from '../../src/math/knn.js';
 import { nextPowerOfTwo } from '../../src/math/fft.js';
 
 /** A uniform grid of cells over the points, keyed in mixed radix (axis 0 fastest), as multivariate.ts builds it. */

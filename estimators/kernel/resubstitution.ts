@@ -11,9 +11,9 @@
  * bandwidths from all others (a heavy tail, an outlier) gets its true log density, however far below the
  * double range f̂₋ᵢ(x_i) itself is; Ĥ is then large, as the definition makes it, rather than refused.
  */
-import type { Sample } from '../../src/contracts.js';
-import { EstimateError } from '../../src/errors.js';
-import { checkFiniteValues, sortedValues } from '../../src/sample.js';
+import type { Sample } from '../../src/core/contracts.js';
+import { EstimateError } from '../../src/core/errors.js';
+import { checkFiniteValues, sortedValues } from '../../src/core/sample.js';
 import { type BandwidthRule, univariateRuleBandwidth, whitenedRuleBandwidth } from './bandwidth.js';
 import { minimizeBounded } from './minimize.js';
 import { type MultivariatePath, multivariateLogKernelSums } from './multivariate.js';

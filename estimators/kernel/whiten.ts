@@ -3,8 +3,8 @@
  * sample covariance (divisor n − 1). A Gaussian kernel with covariance h²Σ̂ on x is a spherical kernel of
  * width h on z, and the entropy moves by exactly ½ log det Σ̂ = Σ_k log L_kk under the linear map.
  */
-import type { Sample } from '../../src/contracts.js';
-import { EstimateError } from '../../src/errors.js';
+import type { Sample } from '../../src/core/contracts.js';
+import { EstimateError } from '../../src/core/errors.js';
 
 /**
  * A column whose variance left after regressing on the earlier columns is below this fraction of its own

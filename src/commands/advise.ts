@@ -1,18 +1,18 @@
 import type { Command } from 'commander';
-import type { Support, Tails } from '../contracts.js';
-import { UsageError } from '../errors.js';
-import { readSample } from '../data.js';
-import { MAX_REPLICATES, MAX_SAMPLE_SIZE, parseIntegerOption } from '../options.js';
-import { toJson } from '../results.js';
-import { parseNumber } from '../spec.js';
-import { adviseFile } from '../advise/file.js';
-import { adviseSetting, MAX_BUDGET_SECONDS } from '../advise/setting.js';
-import { fileAdviceJson, renderFileAdvice, renderSettingAdvice, settingAdviceJson } from '../advise/render.js';
-import { DEFAULT_BUDGET_SECONDS } from '../advise/benchmark.js';
-import { checkSampleMemory } from '../memory.js';
-import { DEFAULT_LIMITS } from '../plan.js';
-import { defaultWorkers } from '../runner.js';
-import { describeReadProgress, statusLine } from '../status-line.js';
+import type { Support, Tails } from '../core/contracts.js';
+import { UsageError } from '../core/errors.js';
+import { readSample } from '../data/index.js';
+import { MAX_REPLICATES, MAX_SAMPLE_SIZE, parseIntegerOption } from '../core/options.js';
+import { toJson } from '../analysis/results.js';
+import { parseNumber } from '../core/spec.js';
+import { adviseFile } from '../analysis/advise/file.js';
+import { adviseSetting, MAX_BUDGET_SECONDS } from '../analysis/advise/setting.js';
+import { fileAdviceJson, renderFileAdvice, renderSettingAdvice, settingAdviceJson } from '../views/advice.js';
+import { DEFAULT_BUDGET_SECONDS } from '../analysis/advise/benchmark.js';
+import { checkSampleMemory } from '../core/memory.js';
+import { DEFAULT_LIMITS } from '../harness/plan.js';
+import { defaultWorkers } from '../harness/runner.js';
+import { describeReadProgress, statusLine } from '../views/status-line.js';
 
 interface AdviseOptions {
   n?: string;
@@ -75,7 +75,7 @@ export function registerAdviseCommand(program: Command, print: (text: string) =>
       `
 Large files:
   When a file has more rows than the budget can benchmark (by a fixed cost
-  model of each estimator, src/cost-model.ts), the advice works on a seeded
+  model of each estimator, src/harness/cost-model.ts), the advice works on a seeded
   uniform subsample of rows (--seed), and says so: profile, look-alike,
   benchmark, estimates, interval and bias correction are all for those rows.
   The chosen estimator then also runs on as many of the file's rows as a

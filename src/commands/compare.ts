@@ -1,10 +1,10 @@
 import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
-import { UsageError } from '../errors.js';
-import { compareRuns, failingCells, failsPolicy, parseFailOn, parseTolerance, type FailOn } from '../compare.js';
-import { parseLevel } from '../options.js';
-import { formatComparisonJson, formatComparisonJunit, formatComparisonMarkdown, formatComparisonText } from '../compare-format.js';
-import { readRunFile, writeFileAtomic } from '../results.js';
+import { UsageError } from '../core/errors.js';
+import { compareRuns, failingCells, failsPolicy, parseFailOn, parseTolerance, type FailOn } from '../analysis/compare.js';
+import { parseLevel } from '../core/options.js';
+import { formatComparisonJson, formatComparisonJunit, formatComparisonMarkdown, formatComparisonText } from '../views/compare-format.js';
+import { readRunFile, writeFileAtomic } from '../analysis/results.js';
 
 interface CompareOptions {
   tolerance?: string;

@@ -1,10 +1,10 @@
 import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
-import { UsageError } from '../errors.js';
-import { parseIntegerOption } from '../options.js';
-import { formatValue } from '../format.js';
-import { parseNumber } from '../spec.js';
-import { convertEntropy, unitFactor, KNOWN_UNITS } from '../units.js';
+import { UsageError } from '../core/errors.js';
+import { parseIntegerOption } from '../core/options.js';
+import { formatValue } from '../core/format.js';
+import { parseNumber } from '../core/spec.js';
+import { convertEntropy, unitFactor, KNOWN_UNITS } from '../core/units.js';
 
 export function registerConvertCommand(program: Command, print: (text: string) => void): void {
   program

@@ -1,19 +1,19 @@
 import type { Command } from 'commander';
-import { UsageError, EstimateError, type EstimateErrorCode } from '../errors.js';
-import { formatValue, renderTable, toBase, type Base } from '../format.js';
-import { readSample, findRepeats, describeRepeats } from '../data.js';
+import { UsageError, EstimateError, type EstimateErrorCode } from '../core/errors.js';
+import { formatValue, renderTable, toBase, type Base } from '../core/format.js';
+import { readSample, findRepeats, describeRepeats } from '../data/index.js';
 import { selectionWidth, sharedSelection } from '../data/columns.js';
 import { showText } from '../data/table.js';
-import { describeReference, meanLogReference, parseReference } from '../reference.js';
-import { unitLabel } from '../units.js';
-import { describeRegistration, resolveModulePath, useEstimatorModules } from '../modules.js';
-import type { Quantity, Sample, Settings } from '../contracts.js';
-import { collect, parseIntegerOption } from '../options.js';
+import { describeReference, meanLogReference, parseReference } from '../analysis/reference.js';
+import { unitLabel } from '../core/units.js';
+import { describeRegistration, resolveModulePath, useEstimatorModules } from '../harness/modules.js';
+import type { Quantity, Sample, Settings } from '../core/contracts.js';
+import { collect, parseIntegerOption } from '../core/options.js';
 import { dimsRange, listEstimators, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
-import { describeSeconds, predictedSeconds, rowsWithin } from '../cost-model.js';
-import { seededRowSubsample } from '../sample.js';
-import { parseNumber } from '../spec.js';
-import { describeReadProgress, statusLine } from '../status-line.js';
+import { describeSeconds, predictedSeconds, rowsWithin } from '../harness/cost-model.js';
+import { seededRowSubsample } from '../core/sample.js';
+import { parseNumber } from '../core/spec.js';
+import { describeReadProgress, statusLine } from '../views/status-line.js';
 
 /** A sensible default set for the data's dimension: the strongest methods of each family that apply. */
 export function defaultEstimatorsFor(dim: number, quantity: Quantity = 'entropy'): string[] {
@@ -56,7 +56,7 @@ export interface RowPlan {
 }
 
 /**
- * Which rows each estimator gets under a per-estimator limit on predicted seconds (src/cost-model.ts): all
+ * Which rows each estimator gets under a per-estimator limit on predicted seconds (src/harness/cost-model.ts): all
  * of them when the prediction is within the limit (or there is no limit, or no prediction), else the
  * largest subsample predicted to fit, rounded down to two digits; skipped when that is under
  * MIN_SUBSAMPLE_ROWS.
@@ -127,7 +127,7 @@ Large files:
   (--seed, default ${DEFAULT_SUBSAMPLE_SEED}), or is skipped when even ${MIN_SUBSAMPLE_ROWS} rows would not; the
   output says which and why (the "rows" of the table, "subsample" and
   "skipped" in --json). Predictions come from a fixed cost model of each
-  method (src/cost-model.ts), so the choice is the same on every machine.
+  method (src/harness/cost-model.ts), so the choice is the same on every machine.
   Estimators named with --estimator run on all rows unless --max-seconds
   is given. --max-seconds none turns the limit off.
 

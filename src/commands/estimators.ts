@@ -1,8 +1,8 @@
 import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
-import type { Estimator } from '../contracts.js';
-import { renderTable } from '../format.js';
-import { describeSetting } from '../spec.js';
+import type { Estimator } from '../core/contracts.js';
+import { renderTable } from '../core/format.js';
+import { describeSetting } from '../core/spec.js';
 import { listEstimators } from '../../estimators/index.js';
 
 export function estimatorRecord(e: Estimator) {

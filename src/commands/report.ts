@@ -1,9 +1,9 @@
 import { resolve } from 'node:path';
 import { COMMANDS } from './summaries.js';
 import type { Command } from 'commander';
-import type { Base } from '../format.js';
-import { readRunFile } from '../results.js';
-import { writeReport } from '../report/report.js';
+import type { Base } from '../core/format.js';
+import { readRunFile } from '../analysis/results.js';
+import { writeReport } from '../views/report/report.js';
 
 interface ReportCommandOptions {
   out?: string;

@@ -1,9 +1,9 @@
 import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
-import type { Scenario } from '../contracts.js';
-import { UsageError } from '../errors.js';
-import { parseIntegerOption } from '../options.js';
-import { formatValue, renderTable, shorten, toBase, type Base } from '../format.js';
+import type { Scenario } from '../core/contracts.js';
+import { UsageError } from '../core/errors.js';
+import { parseIntegerOption } from '../core/options.js';
+import { formatValue, renderTable, shorten, toBase, type Base } from '../core/format.js';
 import { catalog, parseScenario } from '../../scenarios/index.js';
 
 export interface ScenarioRecord {

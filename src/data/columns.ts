@@ -6,8 +6,8 @@
  *   in the spec are ignored. A part made only of digits (or digits-dash-digits) is always a position.
  * - Columns come out in the order written, so `3,1` puts column 3 first; naming a column twice is an error.
  */
-import { selectColumns } from '../sample.js';
-import { UsageError } from '../errors.js';
+import { selectColumns } from '../core/sample.js';
+import { UsageError } from '../core/errors.js';
 import { showText, type DataTable } from './table.js';
 
 const positionPattern = /^\d+$/;

@@ -12,7 +12,7 @@
  *   text column (subject ids, labels) can sit beside the numbers.
  */
 import { readSync } from 'node:fs';
-import { UsageError } from '../errors.js';
+import { UsageError } from '../core/errors.js';
 import { resolveColumns } from './columns.js';
 import { DecimalReader, describeBadNumber, looksLikeMissing, parseDecimalText } from './numbers.js';
 import {

@@ -9,7 +9,7 @@
  * Rows are numbered from 1 in messages, with the 0-based index beside them for those reading the file
  * from code. Only selected columns are checked, so a label column can stay in the file.
  */
-import { UsageError } from '../errors.js';
+import { UsageError } from '../core/errors.js';
 import { resolveColumns } from './columns.js';
 import { locateJsonError } from './json-syntax.js';
 import { defaultSource, describeColumn, positionalNames, showText, type DataTable, type ParseOptions } from './table.js';

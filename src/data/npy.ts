@@ -8,7 +8,7 @@
  * A 1-D array is one column; a 2-D array is rows × columns. Fortran-ordered data is transposed to rows.
  * Floats and integers of any common width and either byte order are read, as doubles.
  */
-import { UsageError } from '../errors.js';
+import { UsageError } from '../core/errors.js';
 import { resolveColumns } from './columns.js';
 import { defaultSource, positionalNames, type DataTable, type ParseOptions } from './table.js';
 

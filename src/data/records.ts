@@ -8,7 +8,7 @@
  * through a window (`ByteSource`): a record that runs past the end of the window is scanned again once
  * the window has moved on, so a large file never has to be in memory at once.
  */
-import { UsageError } from '../errors.js';
+import { UsageError } from '../core/errors.js';
 
 export type Delimiter = 'comma' | 'tab' | 'semicolon' | 'spaces';
 

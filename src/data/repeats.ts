@@ -6,7 +6,7 @@
  *
  * Cost: per column, one radix sort of the values and one of the row codes, each linear in n.
  */
-import type { Sample } from '../contracts.js';
+import type { Sample } from '../core/contracts.js';
 
 export interface ColumnRepeats {
   /** Distinct values in the column. */

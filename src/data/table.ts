@@ -1,4 +1,4 @@
-import type { Sample } from '../contracts.js';
+import type { Sample } from '../core/contracts.js';
 
 /**
  * What every reader returns: the numbers, plus enough about where they came from to name columns in

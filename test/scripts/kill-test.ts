@@ -12,7 +12,7 @@ import { spawn, spawnSync } from 'node:child_process';
 import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
-import { rngFromSeed } from '../../src/rng.js';
+import { rngFromSeed } from '../../src/core/rng.js';
 
 const args = process.argv.slice(2);
 const option = (name: string, fallback: number) => {

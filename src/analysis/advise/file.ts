@@ -1,0 +1,402 @@
+/**
+ * `hhat advise FILE`: which estimator to use on this sample, and what it says.
+ *
+ *   const advice = await adviseFile(sample, { budgetSeconds: 20, level: 0.95, columnNames });
+ *   advice.recommendation.reason, advice.estimate.value, advice.estimate.interval, advice.estimate.corrected
+ *
+ * Steps, each within a share of the time budget: profile the sample (profile.ts); fit its look-alike
+ * (lookalike.ts) and compute the look-alike's entropy; benchmark every applicable estimator on look-alike
+ * draws at the sample's n (about 60% of what is left); estimate the sample with each estimator; a smoothed
+ * bootstrap interval for the recommended one (the rest, at least 100 resamples); and the look-alike bias
+ * correction Ĥ − bias, shown beside the raw value, never instead of it.
+ *
+ * Large files. A benchmark at the file's n must run every estimator dozens of times at that n, which for
+ * millions of rows no budget covers (a d ≥ 2 kernel estimate alone grows like n²). So when the file has
+ * more rows than the budget can analyse (`analysisRows`: the cost model's prediction of the benchmark's
+ * minimum replicates, src/harness/cost-model.ts), every step above runs on a seeded uniform subsample of that many
+ * rows, and the advice says so: the profile, look-alike, benchmark, estimates, interval and bias correction
+ * are all for those rows, consistently. The chosen estimator is then also run on as many of the file's rows
+ * as ALL_ROWS_SHARE of the budget is predicted to allow (all of them when they fit), a value whose
+ * interval would be narrower than the subsample's. The bootstrap is left out, with a note, when even its
+ * minimum resamples are predicted to overrun the budget.
+ */
+import type { Sample } from '../../core/contracts.js';
+import { EstimateError, UsageError } from '../../core/errors.js';
+import { MAX_BUDGET_SECONDS, tooFewPoints } from './setting.js';
+import { parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../../estimators/index.js';
+import { describeSeconds, largestRowsWhere, predictedReplicateSeconds, predictedSeconds, rowsWithin } from '../../harness/cost-model.js';
+import { defaultWorkers } from '../../harness/runner.js';
+import { seededRowSubsample } from '../../core/sample.js';
+import type { Estimate } from '../score.js';
+import { ADVICE_SEED, applicableEstimators, DEFAULT_BUDGET_SECONDS, runTargeted } from './benchmark.js';
+import { smoothedBootstrap, type BootstrapInterval } from './bootstrap.js';
+import { buildLookalike, type Lookalike } from './lookalike.js';
+import { COARSE_STEP, profileSample, type DataProfile } from './profile.js';
+import { recommend, summarise, type EstimatorSummary, type Recommendation } from './recommend.js';
+
+export interface FileAdviceOptions {
+  /** Seconds for the whole advice (default 20). */
+  budgetSeconds?: number;
+  /** Interval coverage (default 0.95); null: no interval. */
+  level?: number | null;
+  seed?: number;
+  workers?: number;
+  /** Where the look-alike benchmark runs (see TargetedOptions.isolation). */
+  isolation?: 'threads' | 'in-process';
+  /** Estimator specs to compare (default: every entropy estimator that supports the dimension, default settings). */
+  estimators?: string[];
+  columnNames?: readonly string[];
+  maxComponents?: number;
+  /** Least look-alike replicates, whatever the budget (default 20). */
+  minReplicates?: number;
+  /** Least bootstrap resamples, whatever the budget (default 100). */
+  minResamples?: number;
+  /** Exactly this many look-alike replicates (the budget no longer sizes them): reproducible advice. */
+  replicates?: number;
+  /** Exactly this many bootstrap resamples. */
+  resamples?: number;
+  onStage?: (stage: string) => void;
+  /** Seconds already spent on this advice before the call (reading the file): they count against the budget. */
+  elapsedBeforeSeconds?: number;
+}
+
+/** The file's rows, when the advice worked on a subsample of them. */
+export interface AdviceSubsample {
+  rows: number;
+  of: number;
+  seed: number;
+  reason: string;
+}
+
+/** The chosen estimator on (many more of) the file's rows than the advice analysed. */
+export interface AllRowsEstimate {
+  estimator: string;
+  label: string;
+  /** Rows used: all of the file's when they fit ALL_ROWS_SHARE of the budget, else a seeded uniform subsample. */
+  rows: number;
+  of: number;
+  value: number | null;
+  error?: string;
+  seconds: number;
+}
+
+export interface UserEstimate {
+  estimator: string;
+  label: string;
+  value: number | null;
+  error?: string;
+}
+
+export interface FileAdvice {
+  /** Rows analysed: the file's, or the subsample's when `subsample` is set. */
+  n: number;
+  dim: number;
+  /** Rows in the file. */
+  fileRows: number;
+  subsample: AdviceSubsample | null;
+  allRows: AllRowsEstimate | null;
+  budgetSeconds: number;
+  profile: DataProfile;
+  lookalike: Lookalike;
+  benchmark: { replicates: number; seconds: number; minimumForced: boolean; workers: number; estimators: EstimatorSummary[] };
+  recommendation: Recommendation;
+  /** Every estimator on the user's sample. */
+  userEstimates: UserEstimate[];
+  /** The estimator actually used for the estimate (the recommended one unless it fails on these data). */
+  estimate: {
+    estimator: string;
+    label: string;
+    value: number;
+    interval: BootstrapInterval | null;
+    /** Expected bias on the look-alike, with its Monte-Carlo SE. */
+    bias: Estimate;
+    /** value − bias */
+    corrected: number;
+    correctedInterval: { lower: number; upper: number } | null;
+  } | null;
+  warnings: string[];
+  seconds: number;
+  /** Seconds per stage: profile, look-alike (EM and its entropy), benchmark, estimates, bootstrap. */
+  timings: Record<string, number>;
+}
+
+const BENCHMARK_SHARE = 0.6;
+const MAX_RESAMPLES = 2000;
+/**
+ * Share of the budget for the least useful benchmark (its minimum replicates on all worker threads), by
+ * which `analysisRows` sizes a large file's subsample: the benchmark's share (60%) of what is left after
+ * reading, the profile and look-alike, halved for its first round, with room for the benchmark's pilot,
+ * whose first calls run slower than the cost model predicts (on a 5·10^6-row CSV at the default 20 s
+ * budget, shares of 0.25 and 0.2 left the first round short of the 20 replicates asked for).
+ */
+export const ANALYSIS_SHARE = 0.15;
+/** Share of the budget for the bootstrap's minimum resamples, by which `analysisRows` also sizes the subsample. */
+export const BOOTSTRAP_SHARE = 0.25;
+/** Share of the budget for the chosen estimator on the file's rows beyond the subsample. */
+export const ALL_ROWS_SHARE = 0.1;
+/** Below this many rows (or what a budget allows) the benchmark says too little: the budget is refused instead. */
+export const FEWEST_ANALYSIS_ROWS = 200;
+/** Thread start-up and scheduling on top of the predicted estimator time. */
+const PREDICTION_OVERHEAD = 1.1;
+/** The bootstrap may overrun what is left of the budget by this much before the interval is left out instead. */
+const BOOTSTRAP_SLACK = 0.2;
+
+/**
+ * The most rows advice can analyse within the budget: the largest m ≤ n at which (1) the predicted cost of
+ * `replicates` benchmark replicates on `workers` threads is within ANALYSIS_SHARE of the budget, and (2)
+ * `resamples` bootstrap resamples (on one thread) of the slowest estimator whose cost grows no faster than
+ * about n log n are within BOOTSTRAP_SHARE of it; rounded down to two digits. Estimators whose cost grows
+ * like n² (a d ≥ 2 kernel) are left out of (2): shrinking every analysis to fit their interval would cost
+ * more than it gives, so when one of them is chosen its interval may be left out instead, with a note. A
+ * fixed function of its arguments, so the same command picks the same rows.
+ */
+export function analysisRows(n: number, dim: number, estimators: readonly string[], budgetSeconds: number, workers: number, replicates: number, resamples = 100): number {
+  const configured = estimators.map((spec) => parseEstimatorSpec(spec));
+  const cost = (c: ConfiguredEstimator, m: number): number => predictedSeconds(c, m, dim) ?? 0;
+  // Superlinear: doubling the rows more than (say) 2.5-folds the predicted time, at the sizes that matter here.
+  const nearLinear = configured.filter((c) => cost(c, 20000) <= 2.5 * cost(c, 10000));
+  const fits = (m: number): boolean =>
+    predictedReplicateSeconds(configured, m, dim) * PREDICTION_OVERHEAD * replicates <= ANALYSIS_SHARE * budgetSeconds * workers &&
+    nearLinear.reduce((most, c) => Math.max(most, cost(c, m)), 0) * resamples <= BOOTSTRAP_SHARE * budgetSeconds;
+  return largestRowsWhere(n, fits);
+}
+
+function fmt(x: number, digits = 3): string {
+  return Number.isFinite(x) ? Number(x.toPrecision(digits)).toString() : '–';
+}
+
+/** Plain warnings for what the look-alike cannot imitate, each with what to do. */
+function profileWarnings(profile: DataProfile, lookalike: Lookalike, command: string): string[] {
+  const warnings: string[] = [];
+  const jitter = `add uniform noise one recording step wide to each value (the jittered data's entropy is the discrete entropy plus the log of the step, close to the underlying h when the step is small against the spread), or ask for advice on the setting instead: ${command}`;
+  const coarse = profile.columns.some((c) => c.relativeStep !== null && c.relativeStep >= COARSE_STEP);
+  if (profile.repeats.repeatedRows > 0) {
+    warnings.push(
+      `${profile.repeats.repeatedRows} of ${profile.n} rows repeat an earlier row exactly: repeats are zero distances, on which nearest-neighbour${profile.dim === 1 ? ' and spacing' : ''} estimators break down (they fail once a point has as many copies as the neighbour order), and a Gaussian mixture cannot imitate them. Remove pasted duplicates if that is what they are; if the values were rounded when recorded, ${coarse ? 'see the next note' : jitter}.`,
+    );
+  }
+  for (const c of profile.columns) {
+    if (c.relativeStep !== null && c.relativeStep >= COARSE_STEP) {
+      warnings.push(
+        `${c.name} looks recorded in steps of ${fmt(c.step!)} (${fmt(100 * c.relativeStep, 2)}% of its SD; ${(100 * c.tiedFraction).toFixed(0)}% of its values are tied): at that resolution rounding moves estimates (the quantize column of ${command} shows by how much for each estimator), and the look-alike has no grid. To remove the grid, ${jitter}.`,
+      );
+    }
+  }
+  if (lookalike.nearSingular) {
+    warnings.push(
+      `a component of the look-alike is nearly flat: its SD along some direction is ${fmt(100 * lookalike.smallestSdRatio, 2)}% of the data's (a near-singular covariance). The data may repeat values or lie near a lower-dimensional set (a column derived from others), where differential entropy heads to −∞ and no estimator is reliable. Look for duplicated or derived columns and drop them, or jitter repeated values.`,
+    );
+  }
+  for (const c of profile.columns) {
+    if (c.tail?.tails === 'heavy') {
+      warnings.push(
+        `${c.name} has heavy tails (Hill tail index ${fmt(c.tail.alpha, 2)} ± ${fmt(c.tail.alphaSe, 1)} on the top ${c.tail.k} distances from the median); a Gaussian mixture's tails are light, so the look-alike understates tail-driven error. Consider a transform such as log or asinh (then h(g(X)) = h(X) + E log|g′(X)|, so the entropy of the original follows), and compare with ${command} --tails heavy.`,
+      );
+    }
+  }
+  const edged = profile.columns.filter((c) => c.edges && (c.edges.lower.edge || c.edges.upper.edge));
+  if (edged.length) {
+    const where = edged.map((c) => `${c.name} (${[c.edges!.lower.edge ? 'lower' : '', c.edges!.upper.edge ? 'upper' : ''].filter(Boolean).join(' and ')} end)`).join(', ');
+    warnings.push(
+      `${where} seem${edged.length === 1 ? 's' : ''} to stop at a hard edge: the outermost gaps are no wider than the ones inside them. The look-alike spills past edges, so boundary bias (largest for nearest-neighbour and kernel estimators) is understated; compare with ${command} --support ${profile.support === 'bounded' ? 'bounded' : 'half'}.`,
+    );
+  }
+  return warnings;
+}
+
+/**
+ * The chosen estimator on as many of the file's rows as ALL_ROWS_SHARE of the budget is predicted to allow
+ * (all when they fit): a seeded uniform subsample otherwise.
+ */
+function allRowsEstimate(fileSample: Sample, chosen: ConfiguredEstimator, label: string, budget: number, seed: string, stage: (text: string) => void): AllRowsEstimate {
+  const { n, dim } = fileSample;
+  const used = rowsWithin(chosen, n, dim, ALL_ROWS_SHARE * budget);
+  stage(`${label} on ${used === n ? 'all' : used} of your ${n} rows`);
+  const started = performance.now();
+  try {
+    const value = runEstimator(chosen, seededRowSubsample(fileSample, used, seed)).value;
+    const seconds = (performance.now() - started) / 1000;
+    return Number.isFinite(value)
+      ? { estimator: chosen.spec, label, rows: used, of: n, value, seconds }
+      : { estimator: chosen.spec, label, rows: used, of: n, value: null, error: `the estimate is ${value}`, seconds };
+  } catch (error) {
+    if (!(error instanceof EstimateError)) throw error;
+    return { estimator: chosen.spec, label, rows: used, of: n, value: null, error: error.message, seconds: (performance.now() - started) / 1000 };
+  }
+}
+
+export async function adviseFile(fileSample: Sample, options: FileAdviceOptions = {}): Promise<FileAdvice> {
+  const started = performance.now() - 1000 * (options.elapsedBeforeSeconds ?? 0);
+  const elapsed = () => (performance.now() - started) / 1000;
+  const budget = options.budgetSeconds ?? DEFAULT_BUDGET_SECONDS;
+  const level = options.level === undefined ? 0.95 : options.level;
+  const seed = options.seed ?? ADVICE_SEED;
+  const { dim } = fileSample;
+  const fileRows = fileSample.n;
+  if (fileRows < 20) throw new UsageError(`the sample has ${fileRows} rows; advice needs at least 20 (a benchmark at smaller n says little)`);
+  const degenerate = tooFewPoints(fileRows, dim);
+  if (degenerate) throw new EstimateError('too-few-points', `no estimator is usable on this file: ${degenerate}`);
+  const names = options.columnNames ?? [];
+  const stage = options.onStage ?? (() => {});
+  const estimators = options.estimators?.map((s) => parseEstimatorSpec(s).spec) ?? applicableEstimators(dim);
+  if (!estimators.length) throw new UsageError(`no entropy estimator supports d = ${dim}`);
+
+  // A file larger than the budget can benchmark is analysed on a seeded uniform subsample (see the file comment).
+  const workers = Math.max(1, options.workers ?? defaultWorkers());
+  const minimumReplicates = options.replicates ?? options.minReplicates ?? 20;
+  const rows = analysisRows(fileRows, dim, estimators, budget, workers, minimumReplicates, level === null ? 0 : options.resamples ?? options.minResamples ?? 100);
+  let subsample: AdviceSubsample | null = null;
+  let sample = fileSample;
+  if (rows < fileRows) {
+    const perReplicate = predictedReplicateSeconds(estimators.map((spec) => parseEstimatorSpec(spec)), fileRows, dim);
+    const cost = `one replicate of the ${estimators.length} estimators at n = ${fileRows} would take about ${describeSeconds(perReplicate)} by the cost model, and the benchmark needs ${minimumReplicates}; within the ${budget} s budget on ${workers} worker${workers === 1 ? '' : 's'}`;
+    if (rows < FEWEST_ANALYSIS_ROWS) {
+      // Within the rows that matter here the benchmark's cost grows at most like n² (a d ≥ 2 kernel sum).
+      const needed = Math.ceil(budget * Math.pow(FEWEST_ANALYSIS_ROWS / Math.max(rows, 1), 2));
+      const remedy = needed <= MAX_BUDGET_SECONDS ? `give --budget ${needed} or more` : `no --budget up to ${MAX_BUDGET_SECONDS} s covers it; select fewer columns`;
+      throw new UsageError(`--budget ${budget} is too small for this file: ${cost}, not even ${FEWEST_ANALYSIS_ROWS} rows fit; ${remedy}`);
+    }
+    const reason = `${cost}, they and the bootstrap's resamples fit at n = ${rows}`;
+    subsample = { rows, of: fileRows, seed, reason };
+    sample = seededRowSubsample(fileSample, rows, `hhat-advise\n${seed}`);
+  }
+  const { n } = sample;
+
+  const timings: Record<string, number> = {};
+  let mark = 0;
+  const lap = (name: string) => {
+    timings[name] = elapsed() - mark;
+    mark = elapsed();
+  };
+  if (options.elapsedBeforeSeconds) {
+    timings.read = options.elapsedBeforeSeconds;
+    mark = options.elapsedBeforeSeconds;
+  }
+  if (subsample) lap('subsample');
+  stage('profiling the sample');
+  const profile = profileSample(sample, names);
+  lap('profile');
+  stage('fitting the look-alike (EM, K chosen by BIC)');
+  const lookalike = buildLookalike(sample, { seed: `${seed}`, maxComponents: options.maxComponents, columnNames: profile.columns.map((c) => c.name) });
+  lap('lookalike');
+
+  stage('benchmarking estimators on look-alike draws');
+  const bench = await runTargeted({
+    scenarios: [lookalike.spec],
+    estimators,
+    n,
+    budgetSeconds: Math.max(0, budget - elapsed()) * (level === null ? 0.9 : BENCHMARK_SHARE),
+    seed,
+    workers,
+    isolation: options.isolation,
+    minReplicates: minimumReplicates,
+    maxReplicates: options.replicates,
+    budget: { total: budget, spent: elapsed() },
+    dim,
+  });
+  const summaries = summarise(bench.run);
+  const recommendation = recommend(bench.run, summaries, 'look-alike');
+  lap('benchmark');
+
+  stage('estimating your data');
+  const userEstimates: UserEstimate[] = summaries.map((s) => {
+    try {
+      const value = runEstimator(parseEstimatorSpec(s.estimator), sample).value;
+      if (!Number.isFinite(value)) return { estimator: s.estimator, label: s.label, value: null, error: `the estimate is ${value}` };
+      return { estimator: s.estimator, label: s.label, value };
+    } catch (error) {
+      return { estimator: s.estimator, label: s.label, value: null, error: error instanceof Error ? error.message : String(error) };
+    }
+  });
+  lap('estimates');
+  const command = `hhat advise --n ${n} --dim ${dim}`;
+  const warnings = profileWarnings(profile, lookalike, command);
+  if (subsample) {
+    warnings.unshift(
+      `your file has ${fileRows} rows; the advice above works on a seeded uniform subsample of ${rows} of them (seed ${seed}): ${subsample.reason}. The profile, look-alike, benchmark, estimates, interval and bias correction are all at n = ${rows}; raise --budget (or --workers) for a larger subsample.`,
+    );
+  }
+  for (const cut of bench.cuts) warnings.push(`to fit the ${budget} s budget, left out ${cut}. Raise --budget to include them.`);
+  // A first round short of the minimum that a second round made up for has cut nothing worth a note.
+  if (bench.minimumForced && bench.replicates < minimumReplicates) {
+    warnings.push(`the time budget covered fewer look-alike replicates than advice wants; ${bench.replicates} ran (${bench.wallSeconds.toFixed(1)} s), so the Monte-Carlo errors are large. Raise --budget for smaller ones.`);
+  }
+  if (lookalike.fittedPoints < n) warnings.push(`the look-alike was fitted on a random ${lookalike.fittedPoints} of the ${n} rows (EM time grows with n); the benchmark still runs at n = ${n}.`);
+
+  // The recommended estimator, or the next by look-alike RMSE that works on these data; none when nothing is usable.
+  const recommended = recommendation.recommended;
+  const order = recommended ? [recommended, ...summaries.filter((s) => s !== recommended)] : [];
+  const usable = order.find((s) => userEstimates.find((u) => u.estimator === s.estimator)?.value !== null && s.failedScenarios === 0);
+  let estimate: FileAdvice['estimate'] = null;
+  let allRows: AllRowsEstimate | null = null;
+  if (!usable) {
+    if (recommended) warnings.push('no estimator that works on the look-alike works on your data; see the errors beside each estimate.');
+  } else {
+    if (recommended && usable !== recommended) {
+      const failed = userEstimates.find((u) => u.estimator === recommended.estimator);
+      warnings.push(`${recommended.label} fails on your data (${failed?.error ?? 'no value'}); the estimate below uses ${usable.label}, next by look-alike RMSE.`);
+    }
+    const value = userEstimates.find((u) => u.estimator === usable.estimator)!.value!;
+    const bias = usable.scenarios[0].bias;
+    const chosen = parseEstimatorSpec(usable.estimator);
+    if (subsample) {
+      allRows = allRowsEstimate(fileSample, chosen, usable.label, budget, `hhat-advise-all\n${seed}`, stage);
+      lap('all rows');
+      const cost = predictedSeconds(chosen, fileRows, dim);
+      if (allRows.rows < fileRows && cost !== null) {
+        warnings.push(`${usable.label} on all ${fileRows} rows would take about ${describeSeconds(cost)} by its cost model; within ${ALL_ROWS_SHARE * 100}% of the budget it ran on a seeded uniform subsample of ${allRows.rows} rows. Raise --budget for more.`);
+      }
+    }
+    let interval: BootstrapInterval | null = null;
+    const minResamples = options.resamples ?? options.minResamples ?? 100;
+    const bootstrapCost = predictedSeconds(chosen, n, dim);
+    const remaining = Math.max(0, budget - elapsed());
+    if (level !== null && options.resamples === undefined && bootstrapCost !== null && minResamples * bootstrapCost > remaining * (1 + BOOTSTRAP_SLACK)) {
+      const needed = Math.ceil(elapsed() + minResamples * bootstrapCost * 1.3);
+      warnings.push(
+        `no interval: ${minResamples} bootstrap resamples of ${usable.label} at n = ${n} would take about ${describeSeconds(minResamples * bootstrapCost)}, and ${describeSeconds(remaining)} of the budget is left; give --budget ${needed} or more for one.`,
+      );
+    } else if (level !== null) {
+      stage('bootstrapping the interval');
+      // As many resamples as the rest of the budget allows, measured as they run: 100 at least, 2000 at most.
+      const remainingMs = Math.max(0, (budget - elapsed()) * 1000);
+      interval = smoothedBootstrap(sample, chosen, value, {
+        resamples: options.resamples ?? Math.max(minResamples, MAX_RESAMPLES),
+        level,
+        seed: `${seed}`,
+        minResamples,
+        deadlineMs: options.resamples === undefined ? remainingMs : undefined,
+      });
+      lap('bootstrap');
+      if (interval.failures > 0.05 * (interval.resamples + interval.failures)) {
+        warnings.push(`${interval.failures} of ${interval.resamples + interval.failures} bootstrap resamples failed; the interval rests on the rest.`);
+      }
+    }
+    estimate = {
+      estimator: usable.estimator,
+      label: usable.label,
+      value,
+      interval,
+      bias,
+      corrected: value - bias.value,
+      correctedInterval: interval ? { lower: interval.lower - bias.value, upper: interval.upper - bias.value } : null,
+    };
+  }
+  return {
+    n,
+    dim,
+    fileRows,
+    subsample,
+    allRows,
+    budgetSeconds: budget,
+    profile,
+    lookalike,
+    benchmark: { replicates: bench.replicates, seconds: bench.wallSeconds, minimumForced: bench.minimumForced, workers: bench.workers, estimators: summaries },
+    recommendation,
+    userEstimates,
+    estimate,
+    warnings,
+    seconds: elapsed(),
+    timings,
+  };
+}

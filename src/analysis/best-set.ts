@@ -1,0 +1,169 @@
+/**
+ * The set of estimators that cannot be told apart from the best: the Model Confidence Set of Hansen, Lunde
+ * and Nason (Econometrica 79(2):453–497, 2011), with their range statistic T_R, on paired losses (here the
+ * squared errors of every estimator on the same replicates).
+ *
+ *   const result = modelConfidenceSet([lossesA, lossesB, lossesC], { level: 0.95, seed: 'cell key' });
+ *   result.inSet    // [true, true, false]: A and B cannot be told apart from the best at level 0.95
+ *   result.pValues  // MCS p-values: an estimator is in the set when its p-value is ≥ 1 − level
+ *
+ * The procedure (HLN 2011, §3.1.2, the T_R statistic and its elimination rule):
+ *   t_ij = (L̄_i − L̄_j)/√v̂_ij, v̂_ij the bootstrap variance of L̄_i − L̄_j.
+ *   M ← every estimator. Repeat:
+ *     T = max_{i,j∈M} |t_ij|, and its bootstrap distribution T*_b = max_{i,j∈M} |ζ_b,i − ζ_b,j|/√v̂_ij, where
+ *       ζ_b,i is resample b's mean loss of i minus the full-sample one: T under "all of M are equally good";
+ *     p = #{b : T*_b ≥ T}/B; the estimator with the largest max_j t_ij leaves M with MCS p-value
+ *       max(p, the p-values of those eliminated before it)
+ *   until |M| = 1 (the last one's p-value is 1). The set at level 1 − α is {i : p_i ≥ α}.
+ * Under its assumptions the set holds every best estimator with probability at least 1 − α as the number
+ * of replicates grows (HLN 2011, Theorem 1). The pairwise statistic is used rather than T_max (each model
+ * against the average of M) because one very noisy estimator would inflate that average and shield every
+ * other estimator from elimination.
+ *
+ * Replicates are independent draws, so the bootstrap resamples single replicates (HLN's block bootstrap
+ * with block length 1). Resampling is seeded: the same losses and seed give the same set on every machine.
+ * p counts T*_b ≥ T (not >) so that estimators with identical losses stay together instead of one being
+ * eliminated by a zero-width comparison.
+ */
+import { rngFromSeed } from '../core/rng.js';
+
+export const DEFAULT_BOOTSTRAP_RESAMPLES = 2000;
+
+export interface BestSetOptions {
+  /** Confidence level 1 − α of the set (e.g. 0.95). */
+  level: number;
+  /** Seed string of the bootstrap resampling. */
+  seed: string;
+  resamples?: number;
+  /**
+   * Replicate indices of the resamples, row-major (resamples × replicates); drawn from `seed` when absent.
+   * Tests pass their own to compare with an independent implementation.
+   */
+  indices?: Uint32Array;
+}
+
+export interface BestSetResult {
+  /** MCS p-value of each estimator, in input order. */
+  pValues: number[];
+  /** Whether each estimator is in the set at the requested level. */
+  inSet: boolean[];
+  /** Input positions in the order they left the set (the survivors last). */
+  eliminationOrder: number[];
+  resamples: number;
+}
+
+/** Uniform replicate indices for `resamples` bootstrap resamples of `replicates` replicates. */
+export function bootstrapIndices(seed: string, replicates: number, resamples: number): Uint32Array {
+  const rng = rngFromSeed(`hhat-best-set-v1\n${seed}`);
+  const indices = new Uint32Array(resamples * replicates);
+  for (let p = 0; p < indices.length; p++) indices[p] = Math.floor(rng() * replicates);
+  return indices;
+}
+
+/**
+ * The Model Confidence Set of `losses` (one array per estimator, all of the same length, every value finite).
+ * Lower loss is better.
+ */
+export function modelConfidenceSet(losses: ArrayLike<number>[], options: BestSetOptions): BestSetResult {
+  const models = losses.length;
+  const replicates = models ? losses[0].length : 0;
+  for (const l of losses) {
+    if (l.length !== replicates) throw new Error('modelConfidenceSet: every estimator needs a loss for the same replicates');
+    for (let r = 0; r < replicates; r++) if (!Number.isFinite(l[r])) throw new Error('modelConfidenceSet: losses must be finite');
+  }
+  const resamples = options.resamples ?? DEFAULT_BOOTSTRAP_RESAMPLES;
+  const alpha = 1 - options.level;
+  if (models === 0) return { pValues: [], inSet: [], eliminationOrder: [], resamples };
+  if (models === 1 || replicates < 2) {
+    // Nothing to compare with, or no spread to compare by: every estimator stays.
+    return { pValues: Array(models).fill(1), inSet: Array(models).fill(true), eliminationOrder: [...Array(models).keys()], resamples };
+  }
+  const indices = options.indices ?? bootstrapIndices(options.seed, replicates, resamples);
+  if (indices.length !== resamples * replicates) throw new Error('modelConfidenceSet: indices must hold resamples × replicates entries');
+
+  const mean = new Float64Array(models);
+  for (let i = 0; i < models; i++) {
+    let sum = 0;
+    for (let r = 0; r < replicates; r++) sum += losses[i][r];
+    mean[i] = sum / replicates;
+  }
+  // zeta[b·models + i]: resample b's mean loss of estimator i minus the full-sample mean, computed once and
+  // reused by every elimination step (HLN use the same resamples throughout).
+  const zeta = new Float64Array(resamples * models);
+  for (let b = 0; b < resamples; b++) {
+    const row = b * replicates;
+    for (let i = 0; i < models; i++) {
+      const l = losses[i];
+      let sum = 0;
+      for (let r = 0; r < replicates; r++) sum += l[indices[row + r]];
+      zeta[b * models + i] = sum / replicates - mean[i];
+    }
+  }
+
+  // v̂_ij does not depend on M: one pass over the resamples serves every elimination step.
+  const pairScale = new Float64Array(models * models);
+  for (let b = 0; b < resamples; b++) {
+    const row = b * models;
+    for (let i = 0; i < models; i++) {
+      for (let j = i + 1; j < models; j++) {
+        const difference = zeta[row + i] - zeta[row + j];
+        pairScale[i * models + j] += difference * difference;
+      }
+    }
+  }
+  for (let i = 0; i < models; i++) {
+    for (let j = i + 1; j < models; j++) {
+      const sd = Math.sqrt(pairScale[i * models + j] / resamples);
+      pairScale[i * models + j] = sd;
+      pairScale[j * models + i] = sd;
+    }
+  }
+  const t = (i: number, j: number) => studentised(mean[i] - mean[j], pairScale[i * models + j]);
+
+  const alive: number[] = [...Array(models).keys()];
+  const pValues = new Array<number>(models).fill(1);
+  const eliminationOrder: number[] = [];
+  let runningP = 0;
+  while (alive.length > 1) {
+    let statistic = 0;
+    let worst = alive[0];
+    let worstScore = -Infinity;
+    for (const i of alive) {
+      let largest = -Infinity;
+      for (const j of alive) if (j !== i) largest = Math.max(largest, t(i, j));
+      statistic = Math.max(statistic, Math.abs(largest));
+      // The estimator most clearly worse than some other leaves; equal scores: the larger mean loss, then the later one.
+      if (largest > worstScore || (largest === worstScore && mean[i] >= mean[worst])) {
+        worstScore = largest;
+        worst = i;
+      }
+    }
+    let atLeast = 0;
+    for (let b = 0; b < resamples; b++) {
+      const row = b * models;
+      let largest = 0;
+      for (let a = 0; a < alive.length && largest < statistic; a++) {
+        const i = alive[a];
+        for (let c = a + 1; c < alive.length; c++) {
+          const j = alive[c];
+          const value = Math.abs(studentised(zeta[row + i] - zeta[row + j], pairScale[i * models + j]));
+          if (value > largest) largest = value;
+        }
+      }
+      if (largest >= statistic) atLeast++;
+    }
+    runningP = Math.max(runningP, atLeast / resamples);
+    pValues[worst] = runningP;
+    eliminationOrder.push(worst);
+    alive.splice(alive.indexOf(worst), 1);
+  }
+  pValues[alive[0]] = 1;
+  eliminationOrder.push(alive[0]);
+  return { pValues, inSet: pValues.map((p) => p >= alpha), eliminationOrder, resamples };
+}
+
+/** d/s, with a zero spread read as certainty: the sign of d decides, and 0/0 is 0. */
+function studentised(deviation: number, spread: number): number {
+  if (spread > 0) return deviation / spread;
+  return deviation > 0 ? Infinity : deviation < 0 ? -Infinity : 0;
+}

@@ -1,0 +1,623 @@
+/**
+ * Comparing two run files cell by cell, to track changes in estimator code as regressions.
+ *
+ * When both runs drew the same samples (equal draws fingerprints), each replicate of a cell is the same
+ * sample in both runs, so the comparison is paired. Per replicate where both succeeded,
+ * d_r = (Ĥ_new,r − H)² − (Ĥ_base,r − H)², and three paired tests, sharing α = 1 − level by Bonferroni within
+ * the cell and by Holm's step-down across the cells whose estimates changed (so the chance that any cell whose
+ * code did not change its behaviour is called worse or improved is at most α, however many cells changed):
+ *   - a t test on the mean of d_r: the change in mean squared error, the quantity RMSE measures; the
+ *     draw-to-draw noise that dominates either run's RMSE cancels in d_r, so it detects changes far below
+ *     the Monte-Carlo error of either run (bench/paired-power.ts shows how far);
+ *   - an exact sign test on the d_r: how many draws got worse against how many got better, which one huge
+ *     value cannot sway (it moves the mean and inflates its SE, hiding a change on every other draw);
+ *   - an exact McNemar test on failures: draws where only the new run failed against draws where only the
+ *     base run failed.
+ * A new estimate far outside anything the base run produced in that cell (a "wild" value: more than
+ * WILD_FACTOR times the base's largest error away from the truth, or a squared error that overflows) is
+ * worse on its own: no mean over the other draws should dilute it.
+ * When the draws differ, the squared errors are independent samples: Welch's t test on them and Fisher's
+ * exact test on the failure counts (α shared the same way, two tests per cell).
+ *
+ *   const comparison = compareRuns(readRunFile('base.json'), readRunFile('new.json'), { tolerance: parseTolerance('5%') });
+ */
+import tCdf from '@stdlib/stats-base-dists-t-cdf';
+import tQuantile from '@stdlib/stats-base-dists-t-quantile';
+import { UsageError } from '../core/errors.js';
+import type { Cell, RunFile, ScenarioInfo } from './results.js';
+import type { Estimate } from './score.js';
+import { fisherExact, signTest, signTestOf, type SignTest } from './exact-tests.js';
+import { quantileOfSorted, squaredDeviations } from '../math/moments.js';
+
+export type CellStatus = 'worse' | 'improved' | 'changed-within-noise' | 'unchanged';
+export const STATUS_ORDER: readonly CellStatus[] = ['worse', 'improved', 'changed-within-noise', 'unchanged'];
+
+/**
+ * The smallest change in RMSE that counts as a change, in nats or as a fraction of the base cell's RMSE.
+ * Written `0.01` (nats) or `5%` (of the base RMSE) on the command line.
+ */
+export type Tolerance = { kind: 'nats'; value: number } | { kind: 'ratio'; value: number };
+
+export const DEFAULT_LEVEL = 0.95;
+
+export function parseTolerance(text: string): Tolerance {
+  const trimmed = text.trim();
+  const percent = /^(\d+(?:\.\d*)?|\.\d+)\s*%$/.exec(trimmed);
+  if (percent) return { kind: 'ratio', value: Number(percent[1]) / 100 };
+  const nats = /^(\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?$/.test(trimmed) ? Number(trimmed) : NaN;
+  if (Number.isFinite(nats)) return { kind: 'nats', value: nats };
+  throw new UsageError(`--tolerance ${text} is not allowed; give a change in RMSE in nats (e.g. 0.01) or a percentage of the base RMSE (e.g. 5%), not negative`);
+}
+
+export function describeTolerance(tolerance: Tolerance): string {
+  return tolerance.kind === 'nats' ? `${tolerance.value} nats` : `${+(tolerance.value * 100).toPrecision(12)}% of the base RMSE`;
+}
+
+export interface CompareOptions {
+  tolerance?: Tolerance;
+  /** 1 − α (default 0.95): the chance that any cell whose estimates did not change in distribution is called worse or improved is at most α. */
+  level?: number;
+  /** 'unpaired' compares as if the draws differed (Welch's t), even when they are the same. */
+  pairing?: 'auto' | 'unpaired';
+}
+
+export interface TTest {
+  kind: 'paired-t' | 'welch-t';
+  /** Paired: mean of d_r. Welch: MSE_new − MSE_base. Positive means the new run has the larger squared error. */
+  difference: number;
+  se: number;
+  df: number;
+  t: number;
+  /** Two-sided. */
+  p: number;
+  interval: [number, number];
+  level: number;
+  /** Paired: pairs used; Welch: successes in the new and base runs. */
+  count: number | { next: number; base: number };
+}
+
+/**
+ * A score in both runs and its change. Paired: the change and its SE over the replicates where both runs
+ * succeeded, from the per-replicate differences (delta method). Unpaired: the scores' difference with the
+ * two SEs combined as independent.
+ */
+export interface ScoreChange {
+  base: Estimate;
+  next: Estimate;
+  change: number;
+  changeSe: number;
+  paired: boolean;
+}
+
+/** A replicate whose new estimate lies far outside what the base run produced in the cell. */
+export interface WildEstimate {
+  replicate: number;
+  base: number | null;
+  next: number;
+  /** |Ĥ_new − H| divided by the base cell's largest |Ĥ_base − H|. */
+  ratio: number;
+}
+
+/** A new estimate more than this many times the base cell's largest error away from the truth is wild. */
+export const WILD_FACTOR = 100;
+
+export interface FailureChange {
+  base: number;
+  next: number;
+  /** Paired: replicates that fail only in the new run, and only in the base run. */
+  onlyNext: number | null;
+  onlyBase: number | null;
+  /** Exact McNemar (paired) or Fisher (unpaired) two-sided p; null when neither run failed. */
+  p: number | null;
+}
+
+export interface CellRef {
+  scenario: string;
+  estimator: string;
+  n: number;
+  perturbation: string | null;
+}
+
+export interface CellComparison extends CellRef {
+  status: CellStatus;
+  /** Why this status, in words, first reason first. */
+  reasons: string[];
+  paired: boolean;
+  truth: { base: number; next: number };
+  replicates: { base: number; next: number };
+  failures: FailureChange;
+  bias: ScoreChange;
+  sd: ScoreChange;
+  rmse: ScoreChange;
+  /** Paired only: mean and SE of Ĥ_new,r − Ĥ_base,r over replicates where both succeeded. */
+  shift: Estimate | null;
+  /** The t test on squared errors; null when either side has fewer than two usable replicates. */
+  test: TTest | null;
+  /** Paired only: the sign test on the per-replicate differences of squared errors. */
+  sign: SignTest | null;
+  /** Paired only: the median change of the absolute error |Ĥ − H|, nats (the sign test's magnitude). */
+  medianChange: number | null;
+  /** New estimates far outside the base run's range in this cell. */
+  wild: WildEstimate[];
+  /**
+   * Level each of this cell's tests is held to: α shared by Holm's step-down over the changed cells, then
+   * split by Bonferroni over the cell's tests (three paired, two unpaired).
+   */
+  testLevel: number;
+  /**
+   * Holm-adjusted p of the cell: its smallest p among the tests whose size condition holds, times its number
+   * of tests, adjusted over the changed cells; null for cells that were not tested (bit-identical, or wild).
+   * The cell is worse or improved by a test exactly when this is ≤ α.
+   */
+  adjustedP: number | null;
+  /** The tolerance in nats for this cell (a ratio tolerance times the base RMSE). */
+  toleranceNats: number;
+}
+
+export interface RunSummary {
+  createdAt: string;
+  hhatVersion: string;
+  commit: string | null;
+  fingerprint: string;
+  drawsFingerprint: string;
+  seed: number;
+  replicates: number;
+}
+
+export interface Comparison {
+  kind: 'hhat-comparison';
+  base: RunSummary;
+  next: RunSummary;
+  pairing: { paired: boolean; reason: string };
+  tolerance: Tolerance & { text: string };
+  level: number;
+  /**
+   * α = 1 − level split by Bonferroni over a cell's tests (three paired, two unpaired): the level of the most
+   * significant changed cell's tests, and the level of the intervals shown.
+   */
+  testLevel: number;
+  /** Cells whose estimates changed and were tested (not bit-identical, not wild): Holm's step-down runs over these. */
+  testedCells: number;
+  counts: Record<CellStatus, number> & { added: number; removed: number };
+  /** Cells in both runs, in the base run's order. */
+  cells: CellComparison[];
+  /** Cells only in the new run. */
+  added: CellRef[];
+  /** Cells only in the base run. */
+  removed: CellRef[];
+}
+
+export type FailOn = 'worse' | 'changed';
+
+export function cellKey(cell: CellRef): string {
+  return `${cell.scenario}|${cell.estimator}|${cell.n}|${cell.perturbation ?? ''}`;
+}
+
+function summary(run: RunFile): RunSummary {
+  return {
+    createdAt: run.createdAt,
+    hhatVersion: run.environment.hhatVersion,
+    commit: run.environment.git ? `${run.environment.git.commit}${run.environment.git.dirty ? ' (with uncommitted changes)' : ''}` : null,
+    fingerprint: run.fingerprint,
+    drawsFingerprint: run.drawsFingerprint,
+    seed: run.plan.seed,
+    replicates: run.plan.replicates,
+  };
+}
+
+/** Why two runs did not draw the same samples, from the plan fields the draws fingerprint covers. */
+function drawsDifference(base: RunFile, next: RunFile): string {
+  const differences: string[] = [];
+  if (base.plan.seed !== next.plan.seed) differences.push(`seed ${base.plan.seed} vs ${next.plan.seed}`);
+  if (base.plan.replicates !== next.plan.replicates) differences.push(`replicates ${base.plan.replicates} vs ${next.plan.replicates}`);
+  if (base.plan.sampleSizes.join() !== next.plan.sampleSizes.join()) differences.push(`sample sizes ${base.plan.sampleSizes.join(',')} vs ${next.plan.sampleSizes.join(',')}`);
+  if (JSON.stringify(base.plan.scenarios) !== JSON.stringify(next.plan.scenarios)) differences.push('different scenario lists');
+  return differences.length ? differences.join(', ') : 'different draws fingerprints';
+}
+
+function decidePairing(base: RunFile, next: RunFile, pairing: CompareOptions['pairing']): { paired: boolean; reason: string } {
+  if (pairing === 'unpaired') return { paired: false, reason: "unpaired on request; Welch's t test on the squared errors, Fisher's exact test on failures" };
+  if (base.drawsFingerprint === next.drawsFingerprint) {
+    return { paired: true, reason: `both runs drew the same samples (draws fingerprint ${base.drawsFingerprint.slice(0, 12)}); paired tests on per-replicate differences of squared errors and on failures` };
+  }
+  return { paired: false, reason: `the runs drew different samples (${drawsDifference(base, next)}); Welch's t test on the squared errors, Fisher's exact test on failures` };
+}
+
+function finishTest(kind: TTest['kind'], difference: number, se: number, df: number, level: number, count: TTest['count']): TTest {
+  if (se === 0) {
+    // Every difference equal: no spread to test against, so the sign alone decides (p 0), or nothing changed (p 1).
+    return { kind, difference, se, df, t: difference === 0 ? 0 : Math.sign(difference) * Infinity, p: difference === 0 ? 1 : 0, interval: [difference, difference], level, count };
+  }
+  const t = difference / se;
+  const p = Math.min(1, 2 * tCdf(-Math.abs(t), df));
+  const half = tQuantile(1 - (1 - level) / 2, df) * se;
+  return { kind, difference, se, df, t, p, interval: [difference - half, difference + half], level, count };
+}
+
+/** One-sample t test on paired differences (NaN entries are left out). Null with fewer than two. */
+export function pairedTTest(differences: ArrayLike<number>, level = DEFAULT_LEVEL): TTest | null {
+  const values = Array.from(differences).filter(Number.isFinite);
+  const m = values.length;
+  if (m < 2) return null;
+  const mean = values.reduce((s, d) => s + d, 0) / m;
+  const variance = values.reduce((s, d) => s + (d - mean) ** 2, 0) / (m - 1);
+  return finishTest('paired-t', mean, Math.sqrt(variance / m), m - 1, level, m);
+}
+
+/** Welch's t test of mean(next) − mean(base) with Welch–Satterthwaite degrees of freedom. Null with fewer than two on a side. */
+export function welchTTest(next: ArrayLike<number>, base: ArrayLike<number>, level = DEFAULT_LEVEL): TTest | null {
+  const a = Array.from(next).filter(Number.isFinite);
+  const b = Array.from(base).filter(Number.isFinite);
+  if (a.length < 2 || b.length < 2) return null;
+  const mean = (xs: number[]) => xs.reduce((s, x) => s + x, 0) / xs.length;
+  const variance = (xs: number[], mu: number) => xs.reduce((s, x) => s + (x - mu) ** 2, 0) / (xs.length - 1);
+  const ma = mean(a);
+  const mb = mean(b);
+  const va = variance(a, ma) / a.length;
+  const vb = variance(b, mb) / b.length;
+  const se = Math.sqrt(va + vb);
+  const df = se === 0 ? Infinity : (va + vb) ** 2 / (va ** 2 / (a.length - 1) + vb ** 2 / (b.length - 1));
+  return finishTest('welch-t', ma - mb, se, df, level, { next: a.length, base: b.length });
+}
+
+function unpairedChange(base: Estimate, next: Estimate): ScoreChange {
+  return { base, next, change: next.value - base.value, changeSe: Math.hypot(base.se, next.se), paired: false };
+}
+
+function meanAndVariance(values: number[]): { mean: number; variance: number } {
+  const { mean, sumOfSquares } = squaredDeviations(Float64Array.from(values));
+  return { mean, variance: values.length > 1 ? sumOfSquares / (values.length - 1) : NaN };
+}
+
+/**
+ * Changes of bias, SD and RMSE on the replicates where both runs succeeded, with SEs from the paired
+ * per-replicate quantities (delta method):
+ *   Δbias = mean(new − base), SE = SD(new − base)/√m;
+ *   ΔSD   = Δ(s²)/(s_new + s_base) with Δ(s²) = Σ u_r/(m − 1), u_r = (new_r − mean new)² − (base_r − mean base)²,
+ *           SE = SD(u)/√m · m/(m − 1) / (s_new + s_base);
+ *   ΔRMSE = ΔMSE/(RMSE_new + RMSE_base) with ΔMSE = mean d_r, SE = SD(d)/√m / (RMSE_new + RMSE_base),
+ * where d holds the squared-error differences d_r the caller already has.
+ */
+function pairedChanges(next: number[], base: number[], truthNext: number, truthBase: number, d: number[]): { bias: ScoreChange; sd: ScoreChange; rmse: ScoreChange } | null {
+  const m = next.length;
+  if (m < 2) return null;
+  const shifts = next.map((v, r) => v - truthNext - (base[r] - truthBase));
+  const shift = meanAndVariance(shifts);
+  const a = meanAndVariance(next);
+  const b = meanAndVariance(base);
+  const biasNext = a.mean - truthNext;
+  const biasBase = b.mean - truthBase;
+  const u = next.map((v, r) => (v - a.mean) ** 2 - (base[r] - b.mean) ** 2);
+  const uStats = meanAndVariance(u);
+  const sdNext = Math.sqrt(a.variance);
+  const sdBase = Math.sqrt(b.variance);
+  const sdSum = sdNext + sdBase;
+  const dStats = meanAndVariance(d);
+  const mseNext = next.reduce((s, v) => s + (v - truthNext) ** 2, 0) / m;
+  const mseBase = base.reduce((s, v) => s + (v - truthBase) ** 2, 0) / m;
+  const rmseSum = Math.sqrt(mseNext) + Math.sqrt(mseBase);
+  const estimate = (value: number, se: number): Estimate => ({ value, se });
+  return {
+    bias: { base: estimate(biasBase, Math.sqrt(b.variance / m)), next: estimate(biasNext, Math.sqrt(a.variance / m)), change: shift.mean, changeSe: Math.sqrt(shift.variance / m), paired: true },
+    sd: {
+      base: estimate(sdBase, NaN),
+      next: estimate(sdNext, NaN),
+      change: sdNext - sdBase,
+      changeSe: sdSum > 0 ? (Math.sqrt(uStats.variance / m) * (m / (m - 1))) / sdSum : 0,
+      paired: true,
+    },
+    rmse: {
+      base: estimate(Math.sqrt(mseBase), NaN),
+      next: estimate(Math.sqrt(mseNext), NaN),
+      change: Math.sqrt(mseNext) - Math.sqrt(mseBase),
+      changeSe: rmseSum > 0 ? Math.sqrt(dStats.variance / m) / rmseSum : 0,
+      paired: true,
+    },
+  };
+}
+
+/** x > tolerance beyond rounding: a shift of exactly the tolerance, computed as (e + t) − e, must not count. */
+function exceeds(x: number, tolerance: number): boolean {
+  return x - tolerance > 1e-12 * Math.max(1, Math.abs(x), tolerance);
+}
+
+function bitIdentical(a: (number | null)[], b: (number | null)[]): boolean {
+  return a.length === b.length && a.every((v, i) => Object.is(v, b[i]));
+}
+
+function squaredErrors(cell: Cell, truth: number): number[] {
+  return cell.estimates.map((v) => (v === null ? NaN : (v - truth) ** 2));
+}
+
+function formatNumber(x: number): string {
+  return Number.isFinite(x) ? String(+x.toPrecision(3)) : String(x);
+}
+
+/** New estimates more than WILD_FACTOR times the base's largest error from the truth, or whose squared error overflows. */
+function wildEstimates(base: Cell, next: Cell, truthBase: number, truthNext: number, toleranceNats: number): WildEstimate[] {
+  let largest = 0;
+  for (const v of base.estimates) if (v !== null) largest = Math.max(largest, Math.abs(v - truthBase));
+  const out: WildEstimate[] = [];
+  next.estimates.forEach((v, r) => {
+    if (v === null) return;
+    const error = Math.abs(v - truthNext);
+    const overflows = !Number.isFinite(error * error);
+    if (overflows || (error > WILD_FACTOR * largest && exceeds(error - largest, toleranceNats))) {
+      out.push({ replicate: r, base: base.estimates[r] ?? null, next: v, ratio: largest > 0 ? error / largest : Infinity });
+    }
+  });
+  return out;
+}
+
+function failureChange(base: Cell, next: Cell, paired: boolean): FailureChange {
+  const failedBase = base.scores.failures;
+  const failedNext = next.scores.failures;
+  if (!paired) {
+    const p = failedBase + failedNext === 0 ? null : fisherExact(failedNext, next.estimates.length - failedNext, failedBase, base.estimates.length - failedBase);
+    return { base: failedBase, next: failedNext, onlyNext: null, onlyBase: null, p };
+  }
+  let onlyNext = 0;
+  let onlyBase = 0;
+  base.estimates.forEach((b, r) => {
+    const a = next.estimates[r];
+    if (a === null && b !== null) onlyNext++;
+    if (b === null && a !== null) onlyBase++;
+  });
+  return { base: failedBase, next: failedNext, onlyNext, onlyBase, p: failedBase + failedNext === 0 ? null : signTest(onlyNext, onlyBase).p };
+}
+
+/** Tests a cell gets: t, sign and McNemar paired; Welch and Fisher unpaired. */
+function testsPerCell(paired: boolean): number {
+  return paired ? 3 : 2;
+}
+
+/**
+ * `holmDivisor` is the number of hypotheses Holm's step-down still holds when it reaches this cell (the
+ * cell's share of α is α/holmDivisor, then split over its tests); 1 before the cells are ordered.
+ */
+function compareCell(
+  base: Cell,
+  next: Cell,
+  truthBase: number,
+  truthNext: number,
+  pairedRuns: boolean,
+  tolerance: Tolerance,
+  level: number,
+  holmDivisor = 1,
+): CellComparison {
+  const reasons: string[] = [];
+  const paired = pairedRuns && base.estimates.length === next.estimates.length;
+  if (pairedRuns && !paired) reasons.push(`unpaired: ${base.estimates.length} vs ${next.estimates.length} replicates`);
+  if (truthBase !== truthNext) reasons.push(`the true value changed (${truthBase} → ${truthNext}); each run is scored against its own`);
+  const tests = testsPerCell(paired);
+  // Intervals are shown at the cell's Bonferroni level alone; the verdict also takes Holm's share.
+  const intervalLevel = 1 - (1 - level) / tests;
+  const testLevel = (1 - level) / (tests * holmDivisor);
+
+  let test: TTest | null;
+  let shift: Estimate | null = null;
+  let sign: SignTest | null = null;
+  let medianChange: number | null = null;
+  let changes = { bias: unpairedChange(base.scores.bias, next.scores.bias), sd: unpairedChange(base.scores.sd, next.scores.sd), rmse: unpairedChange(base.scores.rmse, next.scores.rmse) };
+  let common = 0;
+  if (paired) {
+    const nextValues: number[] = [];
+    const baseValues: number[] = [];
+    base.estimates.forEach((b, r) => {
+      const a = next.estimates[r];
+      if (a === null || b === null) return;
+      nextValues.push(a);
+      baseValues.push(b);
+    });
+    common = nextValues.length;
+    const differences = nextValues.map((a, r) => (a - truthNext) ** 2 - (baseValues[r] - truthBase) ** 2);
+    test = pairedTTest(differences, intervalLevel);
+    sign = signTestOf(differences);
+    const errorChanges = Float64Array.from(nextValues, (a, r) => Math.abs(a - truthNext) - Math.abs(baseValues[r] - truthBase)).sort();
+    medianChange = errorChanges.length ? quantileOfSorted(errorChanges, 0.5) : null;
+    const paired = pairedChanges(nextValues, baseValues, truthNext, truthBase, differences);
+    if (paired) {
+      changes = paired;
+      // The raw shift of the estimates is the bias change plus the change of the truth, with the same paired SE.
+      shift = { value: paired.bias.change + (truthNext - truthBase), se: paired.bias.changeSe };
+    }
+    if (common < Math.min(base.scores.successes, next.scores.successes)) reasons.push(`changes are over the ${common} replicates where both runs succeeded`);
+  } else {
+    test = welchTTest(squaredErrors(next, truthNext), squaredErrors(base, truthBase), intervalLevel);
+  }
+
+  const rmse = changes.rmse;
+  const toleranceNats = tolerance.kind === 'nats' ? tolerance.value : tolerance.value * base.scores.rmse.value;
+  const wild = wildEstimates(base, next, truthBase, truthNext, toleranceNats);
+  const failures = failureChange(base, next, paired);
+  const testName = paired ? 'mean paired difference of squared errors' : 'difference of mean squared errors';
+  const significant = test !== null && test.p <= testLevel;
+  const beyondTolerance = exceeds(Math.abs(rmse.change), toleranceNats);
+  const signBeyondTolerance = medianChange !== null && exceeds(Math.abs(medianChange), toleranceNats);
+  const meanVerdict = significant && beyondTolerance ? (test!.difference > 0 ? 'worse' : 'improved') : null;
+  const signVerdict = sign && sign.p <= testLevel && signBeyondTolerance ? (sign.above > sign.below ? 'worse' : 'improved') : null;
+  // Paired: which run failed on more of the same draws. Unpaired: which run's failure rate is higher (the runs may differ in size).
+  const failedMore = paired ? failures.onlyNext! > failures.onlyBase! : failures.next / next.estimates.length > failures.base / base.estimates.length;
+  const failureVerdict = failures.p !== null && failures.p <= testLevel ? (failedMore ? 'worse' : 'improved') : null;
+  // The cell's p for Holm: the smallest over the tests whose size condition holds, Bonferroni within the cell.
+  const qualifying = [beyondTolerance && test ? test.p : 1, signBeyondTolerance && sign ? sign.p : 1, failures.p ?? 1];
+  const cellP = Math.min(1, tests * Math.min(...qualifying));
+
+  const meanReason = () => `the t test on the ${testName} gives p = ${formatNumber(test!.p)} ≤ ${formatNumber(testLevel)} and |ΔRMSE| = ${formatNumber(Math.abs(rmse.change))} exceeds the tolerance ${formatNumber(toleranceNats)} nats`;
+  const signReason = () => `${sign!.above > sign!.below ? sign!.above : sign!.below} of ${sign!.above + sign!.below} changed replicates got ${sign!.above > sign!.below ? 'worse' : 'better'} (sign test p = ${formatNumber(sign!.p)} ≤ ${formatNumber(testLevel)}; median change of |error| ${formatNumber(medianChange!)} nats)`;
+  const failureReason = () =>
+    paired
+      ? `failures ${failures.base} → ${failures.next} of ${next.estimates.length}: ${failures.onlyNext} replicates fail only in the new run, ${failures.onlyBase} only in the base (exact McNemar p = ${formatNumber(failures.p!)})`
+      : `failures ${failures.base} of ${base.estimates.length} → ${failures.next} of ${next.estimates.length} (Fisher exact p = ${formatNumber(failures.p!)})`;
+
+  let status: CellStatus;
+  let tested = false;
+  if (bitIdentical(base.estimates, next.estimates)) {
+    status = 'unchanged';
+    reasons.unshift('every estimate is bit-identical');
+  } else if (wild.length) {
+    status = 'worse';
+    const w = wild[0];
+    const where = w.base === null ? 'where the base run failed' : `where the base gave ${formatNumber(w.base)}`;
+    reasons.unshift(
+      `${wild.length} wild estimate${wild.length === 1 ? '' : 's'}: replicate ${w.replicate} gave ${formatNumber(w.next)} ${where}, ${Number.isFinite(w.ratio) ? `${formatNumber(w.ratio)} times` : 'far beyond'} the base run's largest error in this cell${Number.isFinite((w.next - truthNext) ** 2) ? '' : ' (its squared error overflows)'}`,
+    );
+  } else if (meanVerdict === 'worse' || signVerdict === 'worse' || failureVerdict === 'worse') {
+    tested = true;
+    status = 'worse';
+    if (failureVerdict === 'worse') reasons.unshift(failureReason());
+    if (signVerdict === 'worse') reasons.unshift(signReason());
+    if (meanVerdict === 'worse') reasons.unshift(meanReason());
+  } else if (meanVerdict === 'improved' || signVerdict === 'improved' || failureVerdict === 'improved') {
+    tested = true;
+    status = 'improved';
+    if (failureVerdict === 'improved') reasons.unshift(failureReason());
+    if (signVerdict === 'improved') reasons.unshift(signReason());
+    if (meanVerdict === 'improved') reasons.unshift(meanReason());
+  } else {
+    // Estimates moved (even if every squared error happens to be equal, e.g. reflected about the truth).
+    tested = true;
+    status = 'changed-within-noise';
+    if (failures.next !== failures.base) reasons.unshift(`${failureReason()}, not significant at ${formatNumber(testLevel)}`);
+    if (test === null) reasons.unshift('too few successful replicates for a test');
+    else if (significant) reasons.unshift(`significant (p = ${formatNumber(test.p)} ≤ ${formatNumber(testLevel)}) but |ΔRMSE| = ${formatNumber(Math.abs(rmse.change))} is within the tolerance ${formatNumber(toleranceNats)} nats`);
+    else reasons.unshift(`the t test on the ${testName} gives p = ${formatNumber(test.p)} > ${formatNumber(testLevel)}${sign ? `; sign test ${sign.above} worse, ${sign.below} better (p = ${formatNumber(sign.p)})` : ''}`);
+  }
+
+  return {
+    scenario: base.scenario,
+    estimator: base.estimator,
+    n: base.n,
+    perturbation: base.perturbation,
+    status,
+    reasons,
+    paired,
+    truth: { base: truthBase, next: truthNext },
+    replicates: { base: base.estimates.length, next: next.estimates.length },
+    failures,
+    bias: changes.bias,
+    sd: changes.sd,
+    rmse,
+    shift,
+    test,
+    sign,
+    medianChange,
+    wild,
+    testLevel,
+    adjustedP: tested ? cellP : null,
+    toleranceNats,
+  };
+}
+
+/**
+ * Holm's (1979) step-down over the tested cells' Bonferroni-within-cell p values p_(1) ≤ … ≤ p_(m): the
+ * j-th is held to α/(m − j + 1) until the first that fails, and every later one is held to that one's level.
+ * Returns each tested cell's divisor (m − j + 1, or the failing step's) and its Holm-adjusted p,
+ * max_{i ≤ j} min(1, (m − i + 1)·p_(i)).
+ */
+function holmStepDown(cellPs: number[], alpha: number): { divisor: number[]; adjusted: number[] } {
+  const m = cellPs.length;
+  const order = cellPs.map((_, i) => i).sort((a, b) => cellPs[a] - cellPs[b]);
+  const divisor = new Array<number>(m);
+  const adjusted = new Array<number>(m);
+  let running = 0;
+  let stopped = -1;
+  order.forEach((cell, j) => {
+    running = Math.max(running, Math.min(1, (m - j) * cellPs[cell]));
+    adjusted[cell] = running;
+    if (stopped < 0 && cellPs[cell] > alpha / (m - j)) stopped = m - j;
+    divisor[cell] = stopped < 0 ? m - j : stopped;
+  });
+  return { divisor, adjusted };
+}
+
+function ref(cell: Cell): CellRef {
+  return { scenario: cell.scenario, estimator: cell.estimator, n: cell.n, perturbation: cell.perturbation };
+}
+
+function truthOf(run: RunFile): Map<string, number> {
+  return new Map(run.scenarios.map((s: ScenarioInfo) => [s.id, s.truth]));
+}
+
+/**
+ * Matches cells by scenario, estimator spec (settings included), n and perturbation, and compares each pair.
+ * Cells in only one run are listed as added or removed. Shard files (incomplete runs) are refused: their
+ * missing replicates would look like failures.
+ */
+export function compareRuns(base: RunFile, next: RunFile, options: CompareOptions = {}, labels = { base: 'BASE', next: 'NEW' }): Comparison {
+  for (const [run, label] of [[base, labels.base], [next, labels.next]] as const) {
+    if (run.shard) throw new UsageError(`${label} is shard ${run.shard.index}/${run.shard.count} of a run; merge the shards (hhat merge) and compare the merged file`);
+    if (!run.complete) throw new UsageError(`${label} is an incomplete run; finish it (bench --resume) before comparing`);
+  }
+  const tolerance = options.tolerance ?? { kind: 'nats', value: 0 };
+  const level = options.level ?? DEFAULT_LEVEL;
+  const pairing = decidePairing(base, next, options.pairing);
+  const truthBase = truthOf(base);
+  const truthNext = truthOf(next);
+  const nextCells = new Map(next.cells.map((c) => [cellKey(c), c]));
+  const baseKeys = new Set(base.cells.map(cellKey));
+
+  const pairs: [Cell, Cell][] = [];
+  const removed: CellRef[] = [];
+  for (const cell of base.cells) {
+    const other = nextCells.get(cellKey(cell));
+    if (other) pairs.push([cell, other]);
+    else removed.push(ref(cell));
+  }
+  const compare = ([cell, other]: [Cell, Cell], holmDivisor?: number) =>
+    compareCell(cell, other, truthBase.get(cell.scenario)!, truthNext.get(other.scenario)!, pairing.paired, tolerance, level, holmDivisor);
+  // First each cell alone, for its p; then again at its place in Holm's step-down over the tested cells.
+  const cells = pairs.map((pair) => compare(pair));
+  const tested = cells.flatMap((c, i) => (c.adjustedP === null ? [] : [i]));
+  const holm = holmStepDown(
+    tested.map((i) => cells[i].adjustedP!),
+    1 - level,
+  );
+  tested.forEach((i, t) => {
+    cells[i] = compare(pairs[i], holm.divisor[t]);
+    cells[i].adjustedP = holm.adjusted[t];
+  });
+  const added = next.cells.filter((c) => !baseKeys.has(cellKey(c))).map(ref);
+
+  const counts = { worse: 0, improved: 0, 'changed-within-noise': 0, unchanged: 0, added: added.length, removed: removed.length };
+  for (const c of cells) counts[c.status]++;
+  return {
+    kind: 'hhat-comparison',
+    base: summary(base),
+    next: summary(next),
+    pairing,
+    tolerance: { ...tolerance, text: describeTolerance(tolerance) },
+    level,
+    testLevel: (1 - level) / testsPerCell(pairing.paired),
+    testedCells: tested.length,
+    counts,
+    cells,
+    added,
+    removed,
+  };
+}
+
+/**
+ * Cells that fail a CI policy: 'worse' fails worse cells (see the file comment for the tests and the wild
+ * rule); 'changed' fails every cell that is not bit-identical, which guards refactorings that should not move
+ * any number.
+ */
+export function failingCells(comparison: Comparison, failOn: FailOn): CellComparison[] {
+  return comparison.cells.filter((c) => (failOn === 'worse' ? c.status === 'worse' : c.status !== 'unchanged'));
+}
+
+/**
+ * Whether the comparison fails the policy. A cell of the base run missing from the new one fails either
+ * policy (a regression that removes its own evidence must not pass) unless `allowMissing`; a cell only in
+ * the new run fails 'changed'.
+ */
+export function failsPolicy(comparison: Comparison, failOn: FailOn, allowMissing = false): boolean {
+  const missing = allowMissing ? 0 : comparison.removed.length;
+  const added = failOn === 'changed' ? comparison.added.length : 0;
+  return failingCells(comparison, failOn).length > 0 || missing + added > 0;
+}
+
+export function parseFailOn(text: string): FailOn {
+  if (text === 'worse' || text === 'changed') return text;
+  throw new UsageError(`--fail-on ${text} is not allowed; it must be worse (a cell got worse beyond the tolerance) or changed (any cell differs)`);
+}

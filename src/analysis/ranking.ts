@@ -1,0 +1,216 @@
+/**
+ * Ranks of the estimators in each cell (scenario × n) and their averages, with failures counted against the
+ * estimator that failed.
+ *
+ * Per cell (one rule, also in the README, "Ranks and the best set"):
+ * 1. An estimator whose failure rate exceeds the plan's `maxFailureRate` (default 0: any failure) did not run
+ *    the cell: it is listed after every estimator that did, marked with its failure count, and takes the
+ *    cell's last rank (the number of estimators in the cell). Its RMSE over the replicates that succeeded is
+ *    shown but decides nothing, since failures are seldom a random subset of the draws.
+ * 2. An estimator with a finite RMSE whose squared error overflowed is not failed but cannot be compared by
+ *    mean loss either; it comes after the comparable ones, before the failed ones.
+ * 3. The rest are compared on their squared errors over the replicates where all of them succeeded (every
+ *    replicate when maxFailureRate is 0). The best set is their Model Confidence Set (src/analysis/best-set.ts), less
+ *    any member that is worse than the leader on significantly more of those draws than it is better (the
+ *    sign-test guard below); the two checks share α = 1 − level by Bonferroni, α/2 each. Best-set members
+ *    share rank 1; the others follow by RMSE with ordinal ranks.
+ *
+ * Average ranks per dimension/tail group run over the same cells for every estimator: all the group's cells
+ * it could run by design (a cell exists for it), failed ones counted as last. Cells it cannot run by design
+ * (dimension) hold no cell and do not enter its average.
+ */
+import { modelConfidenceSet } from './best-set.js';
+import { signTestAbove } from './exact-tests.js';
+import type { CellScores } from './score.js';
+import type { VerdictSettings } from '../harness/plan.js';
+
+/** What ranking needs of a cell. */
+export interface RankableCell {
+  scenario: string;
+  estimator: string;
+  n: number;
+  perturbation: string | null;
+  estimates: (number | null)[];
+  scores: CellScores;
+}
+
+
+export type RankStatus = 'ranked' | 'unbounded-error' | 'failed';
+
+export interface RankEntry {
+  estimator: string;
+  rank: number;
+  /** ranked: compared in the best-set procedure; unbounded-error: squared error overflowed; failed: failure rate above maxFailureRate. */
+  status: RankStatus;
+  /** In the best set: cannot be told apart from the best at the ranking's level. */
+  best: boolean;
+  /** The estimator's MCS p-value (null unless ranked). */
+  pValue: number | null;
+  /** One-sided exact sign-test p that it is worse than the leader on more draws than better (confidence-set members other than the leader). */
+  signP: number | null;
+  rmse: number;
+  rmseSe: number;
+  failures: number;
+  replicates: number;
+}
+
+export interface Ranking {
+  scenario: string;
+  n: number;
+  perturbation: string | null;
+  level: number;
+  /** Replicates on which the ranked estimators were compared (those where every one of them succeeded). */
+  comparedReplicates: number;
+  /** Entries in printed order: best set, the rest of the ranked by RMSE, unbounded errors, failed. */
+  entries: RankEntry[];
+}
+
+export interface GroupRank {
+  meanRank: number;
+  /** Cells averaged (scenario × n). */
+  cells: number;
+  /** Of those, cells it failed (ranked last). */
+  failedCells: number;
+}
+
+export interface OverallRank {
+  estimator: string;
+  /** Per group "d=1/light" etc.; absent where the estimator has no cell (cannot run by design). */
+  groups: Record<string, GroupRank>;
+  /** Over every cell it could run. */
+  all: GroupRank;
+}
+
+function failed(cell: RankableCell, settings: VerdictSettings): boolean {
+  return cell.scores.replicates > 0 && cell.scores.failures / cell.scores.replicates > settings.maxFailureRate;
+}
+
+/** By RMSE, a missing or infinite one last, then by name. */
+function byRmse(a: RankableCell, b: RankableCell): number {
+  const x = Number.isFinite(a.scores.rmse.value) ? a.scores.rmse.value : Infinity;
+  const y = Number.isFinite(b.scores.rmse.value) ? b.scores.rmse.value : Infinity;
+  return x - y || a.estimator.localeCompare(b.estimator);
+}
+
+/** Ranks one cell's estimators (all on the same scenario, n and perturbation). */
+export function rankCell(group: RankableCell[], truth: number, settings: VerdictSettings, seed: string): Ranking {
+  const last = group.length;
+  const failing = group.filter((c) => failed(c, settings));
+  const running = group.filter((c) => !failed(c, settings));
+  const comparable = running.filter((c) => Number.isFinite(c.scores.rmse.value));
+  const unbounded = running.filter((c) => !Number.isFinite(c.scores.rmse.value));
+
+  // Replicates where every comparable estimator succeeded; their squared errors are the paired losses.
+  const replicates = group[0]?.estimates.length ?? 0;
+  const common: number[] = [];
+  for (let r = 0; r < replicates; r++) if (comparable.every((c) => c.estimates[r] !== null)) common.push(r);
+  const losses = comparable.map((c) => common.map((r) => (c.estimates[r]! - truth) ** 2));
+  const usable = losses.every((l) => l.every(Number.isFinite));
+  // Two checks share α by Bonferroni: the confidence set on mean squared error, then the sign-test guard.
+  const alpha = 1 - settings.level;
+  const result = usable ? modelConfidenceSet(losses, { level: 1 - alpha / 2, seed }) : null;
+  const pOf = new Map(comparable.map((c, i) => [c, result ? result.pValues[i] : 1]));
+  const members = comparable.filter((_c, i) => (result ? result.inSet[i] : true));
+  const guard = signGuard(members, comparable, losses, alpha / 2);
+  const inSet = (c: RankableCell) => members.includes(c) && !guard.dropped.has(c);
+
+  const best = comparable.filter(inSet).sort(byRmse);
+  const rest = comparable.filter((c) => !inSet(c)).sort(byRmse);
+  const entry = (c: RankableCell, rank: number, status: RankStatus): RankEntry => ({
+    estimator: c.estimator,
+    rank,
+    status,
+    best: status === 'ranked' && inSet(c),
+    pValue: status === 'ranked' ? pOf.get(c)! : null,
+    signP: status === 'ranked' ? (guard.p.get(c) ?? null) : null,
+    rmse: c.scores.rmse.value,
+    rmseSe: c.scores.rmse.se,
+    failures: c.scores.failures,
+    replicates: c.scores.replicates,
+  });
+  const entries: RankEntry[] = [
+    ...best.map((c) => entry(c, 1, 'ranked')),
+    ...rest.map((c, i) => entry(c, best.length + i + 1, 'ranked')),
+    ...unbounded.sort((a, b) => a.estimator.localeCompare(b.estimator)).map((c, i) => entry(c, comparable.length + i + 1, 'unbounded-error')),
+    ...failing.sort((a, b) => a.scores.failures - b.scores.failures || byRmse(a, b)).map((c) => entry(c, last, 'failed')),
+  ];
+  return { scenario: group[0].scenario, n: group[0].n, perturbation: group[0].perturbation, level: settings.level, comparedReplicates: common.length, entries };
+}
+
+/**
+ * The second check on the best set: a member worse than the leader (the member with the smallest RMSE) on
+ * significantly more draws than it is better is dropped. One-sided exact sign tests on the paired squared
+ * errors, Holm's step-down over the members (Holm, Scand. J. Statist. 6:65–70, 1979) at `level`. A mean
+ * cannot separate an estimator whose squared errors are dominated by a few far-off draws (the same draws
+ * inflate the mean's SE), however often it loses; the sign test counts every draw once.
+ */
+function signGuard(members: RankableCell[], comparable: RankableCell[], losses: number[][], level: number): { p: Map<RankableCell, number>; dropped: Set<RankableCell> } {
+  const p = new Map<RankableCell, number>();
+  const dropped = new Set<RankableCell>();
+  if (members.length < 2) return { p, dropped };
+  const leader = [...members].sort(byRmse)[0];
+  const leaderLoss = losses[comparable.indexOf(leader)];
+  for (const c of members) {
+    if (c === leader) continue;
+    const loss = losses[comparable.indexOf(c)];
+    let worse = 0;
+    let better = 0;
+    for (let r = 0; r < loss.length; r++) {
+      if (loss[r] > leaderLoss[r]) worse++;
+      else if (loss[r] < leaderLoss[r]) better++;
+    }
+    p.set(c, signTestAbove(worse, better));
+  }
+  const ordered = [...p.entries()].sort((a, b) => a[1] - b[1]);
+  for (let i = 0; i < ordered.length; i++) {
+    if (ordered[i][1] > level / (ordered.length - i)) break;
+    dropped.add(ordered[i][0]);
+  }
+  return { p, dropped };
+}
+
+
+/** Rankings of every (scenario, n, perturbation) group of cells; `seedOf` names each group's bootstrap seed. */
+export function rankCells(cells: RankableCell[], truthOf: (scenario: string) => number, settings: VerdictSettings, seedOf: (scenario: string, n: number) => string): Ranking[] {
+  const groups = new Map<string, RankableCell[]>();
+  for (const c of cells) {
+    const k = `${c.scenario}|${c.n}|${c.perturbation ?? ''}`;
+    if (!groups.has(k)) groups.set(k, []);
+    groups.get(k)!.push(c);
+  }
+  return [...groups.values()].map((group) => rankCell(group, truthOf(group[0].scenario), settings, seedOf(group[0].scenario, group[0].n)));
+}
+
+interface Tally {
+  sum: number;
+  cells: number;
+  failed: number;
+}
+
+function tally(into: Tally, entry: RankEntry): void {
+  into.sum += entry.rank;
+  into.cells += 1;
+  if (entry.status === 'failed') into.failed += 1;
+}
+
+/** Average ranks per group (named by `groupOf(scenario)`) and over all cells. */
+export function overallRanks(rankings: Ranking[], groupOf: (scenario: string) => string): OverallRank[] {
+  const rows = new Map<string, { groups: Map<string, Tally>; all: Tally }>();
+  for (const ranking of rankings) {
+    if (ranking.perturbation !== null) continue;
+    const group = groupOf(ranking.scenario);
+    for (const entry of ranking.entries) {
+      let row = rows.get(entry.estimator);
+      if (!row) rows.set(entry.estimator, (row = { groups: new Map(), all: { sum: 0, cells: 0, failed: 0 } }));
+      if (!row.groups.has(group)) row.groups.set(group, { sum: 0, cells: 0, failed: 0 });
+      tally(row.groups.get(group)!, entry);
+      tally(row.all, entry);
+    }
+  }
+  const summary = ({ sum, cells, failed }: Tally): GroupRank => ({ meanRank: sum / cells, cells, failedCells: failed });
+  return [...rows.entries()].map(([estimator, row]) => ({
+    estimator,
+    groups: Object.fromEntries([...row.groups.entries()].map(([g, v]) => [g, summary(v)])),
+    all: summary(row.all),
+  }));
+}

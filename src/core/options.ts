@@ -1,0 +1,50 @@
+/**
+ * Parsing command-line option values, one line per mistake naming the value and what is allowed. Kept apart
+ * from the plan machinery so that commands which only parse options load nothing else.
+ */
+import { UsageError } from './errors.js';
+import planSchema from '../schemas/plan.schema.json' with { type: 'json' };
+
+/** The plan schema's ranges, which the command line shares. */
+export const MAX_SAMPLE_SIZE = planSchema.properties.sampleSizes.items.maximum;
+export const MAX_REPLICATES = planSchema.properties.replicates.maximum;
+
+/** Parses "100,1000,1e4" for --n. */
+export function parseSampleSizes(text: string): number[] {
+  const sizes = text.split(',').map((part) => {
+    const value = Number(part.trim());
+    if (part.trim() === '' || !Number.isInteger(value) || value < 2 || value > MAX_SAMPLE_SIZE) {
+      throw new UsageError(`--n: "${part.trim()}" is not allowed; sample sizes must be integers from 2 to ${MAX_SAMPLE_SIZE}, comma-separated (e.g. 100,1000,10000)`);
+    }
+    return value;
+  });
+  return sizes;
+}
+
+export function parseIntegerOption(flag: string, text: string, min: number, max = Number.MAX_SAFE_INTEGER): number {
+  const value = Number(text);
+  if (text.trim() === '' || !Number.isInteger(value) || value < min || value > max) {
+    const range = max === Number.MAX_SAFE_INTEGER ? `≥ ${min}` : `from ${min} to ${max}`;
+    throw new UsageError(`${flag} ${text} is not allowed; it must be an integer ${range}`);
+  }
+  return value;
+}
+
+/** A confidence level strictly between 0 and 1 (e.g. 0.95), for --level. */
+export function parseLevel(text: string, flag = '--level'): number {
+  const value = Number(text);
+  if (text.trim() === '' || !(value > 0 && value < 1)) throw new UsageError(`${flag} ${text} is not allowed; the confidence level is a number between 0 and 1 (e.g. 0.95)`);
+  return value;
+}
+
+/** A share from 0 to 1 inclusive (e.g. 0.05). */
+export function parseFraction(flag: string, text: string): number {
+  const value = Number(text);
+  if (text.trim() === '' || !(value >= 0 && value <= 1)) throw new UsageError(`${flag} ${text} is not allowed; it must be a number from 0 to 1 (e.g. 0.05 for 5%)`);
+  return value;
+}
+
+/** For a repeatable flag (--scenario, --estimator, ...): each use adds its value to the list. */
+export function collect(value: string, previous: string[] = []): string[] {
+  return [...previous, value];
+}

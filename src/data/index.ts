@@ -1,0 +1,135 @@
+/**
+ * Reading the user's data: a file to a `Sample`, or one line saying what is wrong and what is allowed.
+ *
+ *   const { sample, columnNames } = readSample('trial.csv', { columns: 'x,y' });
+ *
+ * The format comes from the extension: .csv (commas), .tsv (tabs), .txt and .dat (delimiter guessed from
+ * the first lines: tab, semicolon, comma, else runs of spaces), .json, and .npy. The parsers also work on
+ * strings and bytes: `parseDelimited`, `parseJson`, `parseNpy`. See each module for the accepted forms.
+ */
+import { closeSync, fstatSync, openSync, readFileSync, statSync } from 'node:fs';
+import { extname } from 'node:path';
+import { UsageError } from '../core/errors.js';
+import { readDelimitedFile, type Delimiter } from './delimited.js';
+import { parseJson } from './json.js';
+import { parseNpy } from './npy.js';
+import type { DataTable } from './table.js';
+
+export { parseDelimited, readDelimitedFile, type Delimiter, type DelimitedOptions, type DelimitedTable } from './delimited.js';
+export { parseJson } from './json.js';
+export { parseNpy, type NpyTable } from './npy.js';
+export { resolveColumns, selectTableColumns } from './columns.js';
+export { findRepeats, describeRepeats, sortedOrder, type ColumnRepeats, type RepeatReport } from './repeats.js';
+export type { DataTable, ParseOptions } from './table.js';
+
+export type DataFormat = 'csv' | 'tsv' | 'text' | 'json' | 'npy';
+
+export interface ReadOptions {
+  /** A column selection: "1,3", "2-4" or header names "x,y" (positions count from 1). */
+  columns?: string;
+  /** Overrides the format the extension implies. */
+  format?: DataFormat;
+  /** Hears the bytes read so far of a delimited text file, after each window (for a progress line). */
+  onProgress?: (bytesRead: number, totalBytes: number) => void;
+}
+
+export interface LoadedSample extends DataTable {
+  format: DataFormat;
+  /** For delimited text, what fields were split at. */
+  delimiter?: Delimiter;
+  /** The path as given, used in every message. */
+  source: string;
+}
+
+const formatsByExtension: Record<string, DataFormat> = {
+  '.csv': 'csv',
+  '.tsv': 'tsv',
+  '.tab': 'tsv',
+  '.txt': 'text',
+  '.dat': 'text',
+  '.json': 'json',
+  '.npy': 'npy',
+};
+
+export const allowedExtensions = Object.keys(formatsByExtension);
+
+function isFolder(path: string): boolean {
+  try {
+    return statSync(path).isDirectory();
+  } catch {
+    return false;
+  }
+}
+
+/** The format a path's extension implies (case-insensitive), or a usage error listing the allowed ones. */
+export function formatOf(path: string): DataFormat {
+  const extension = extname(path).toLowerCase();
+  const format = formatsByExtension[extension];
+  if (format) return format;
+  const what = extension === '' ? 'has no extension' : `has extension "${extname(path)}"`;
+  const hint = extension === '.npz' ? ' (for an .npz archive, save the array with numpy.save as .npy)' : '';
+  throw new UsageError(`${path} ${what}; allowed: ${allowedExtensions.join(', ')}${hint}`);
+}
+
+/** Reads a data file into a sample; every problem is a UsageError naming the file and the place. */
+export function readSample(path: string, options: ReadOptions = {}): LoadedSample {
+  // Before the extension: a folder named without one is a folder, not a file of an unknown format.
+  if (isFolder(path)) throw new UsageError(`cannot read data file ${path}: it is a directory`);
+  const format = options.format ?? formatOf(path);
+  const parseOptions = { source: path, columns: options.columns };
+  switch (format) {
+    case 'json':
+      return { ...parseJson(readBytes(path), parseOptions), format, source: path };
+    case 'npy':
+      return { ...parseNpy(readBytes(path), parseOptions), format, source: path };
+    default: {
+      // Delimited text is read through a window straight into the typed array of values, so a file of
+      // hundreds of megabytes is never held as bytes or text in full.
+      const delimiter: Delimiter | undefined = format === 'csv' ? 'comma' : format === 'tsv' ? 'tab' : undefined;
+      const fd = openFile(path);
+      try {
+        const table = readDelimitedFile(fd, fstatSync(fd).size, { ...parseOptions, delimiter, onProgress: options.onProgress });
+        return { ...table, format, source: path };
+      } catch (error) {
+        // A read that fails part way (a device error, a file truncated under us) is about the file.
+        throw error instanceof UsageError || !(error as NodeJS.ErrnoException).code ? error : readError(path, error);
+      } finally {
+        closeSync(fd);
+      }
+    }
+  }
+}
+
+function openFile(path: string): number {
+  try {
+    const fd = openSync(path, 'r');
+    if (fstatSync(fd).isDirectory()) {
+      closeSync(fd);
+      throw Object.assign(new Error('directory'), { code: 'EISDIR' });
+    }
+    return fd;
+  } catch (error) {
+    throw readError(path, error);
+  }
+}
+
+function readBytes(path: string): Buffer {
+  try {
+    return readFileSync(path);
+  } catch (error) {
+    throw readError(path, error);
+  }
+}
+
+function readError(path: string, error: unknown): UsageError {
+  const code = (error as NodeJS.ErrnoException).code;
+  const reason =
+    code === 'ENOENT'
+      ? 'no such file'
+      : code === 'EISDIR'
+        ? 'it is a directory'
+        : code === 'EACCES' || code === 'EPERM'
+          ? 'permission denied'
+          : ((error as Error).message.split('\n')[0] ?? 'unknown error');
+  return new UsageError(`cannot read data file ${path}: ${reason}`);
+}

@@ -1,0 +1,70 @@
+/**
+ * The built-in plan `hhat bench` runs with no arguments: every registered entropy estimator at its default
+ * settings on a representative set of scenarios (light and heavy tails, bounded and half-bounded support,
+ * a bimodal law, d = 1, 2, 3, 5), sized to finish within a minute on two cores.
+ */
+import { listEstimators } from '../../estimators/index.js';
+import type { Quantity } from '../core/contracts.js';
+import type { PlanInput } from './plan.js';
+import { catalog } from '../../scenarios/index.js';
+
+export const DEFAULT_PLAN_SCENARIOS = [
+  'normal',
+  'uniform',
+  'exponential',
+  'student-t:nu=3',
+  'gaussian-mixture',
+  'gaussian:dim=2,rho=0.5',
+  'gaussian:dim=3,rho=0.5',
+  'uniform-ball:dim=3',
+  'student-t-mv:dim=3,nu=4',
+  'gaussian:dim=5,rho=0.3,spread=10',
+];
+
+/**
+ * The default plan of a quantity. Mutual information and divergence: every catalog scenario of that quantity
+ * and every estimator of it at default settings, with robustness at n = 500 (MI: monotone maps of X and of Y,
+ * where the true value must not move).
+ */
+export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
+  if (quantity !== 'entropy') {
+    return {
+      name: `default ${quantity}`,
+      quantity,
+      scenarios: catalog()
+        .filter((s) => s.quantity === quantity)
+        .map((s) => s.id),
+      estimators: [
+        ...listEstimators()
+          .filter((e) => e.quantity === quantity)
+          .map((e) => e.id),
+        // With Freedman–Diaconis bins most replicates leave P mass in bins Q never reaches; coarser bins run.
+        ...(quantity === 'divergence' ? ['histogram-divergence:bins=sturges'] : []),
+      ],
+      // The kernel MI estimator is quadratic in n in several dimensions: 1000 keeps the plan within a minute.
+      sampleSizes: quantity === 'mutual-information' ? [100, 300, 1000] : [100, 500, 2000],
+      replicates: 30,
+      seed: 20261201,
+      robustness: {
+        sampleSize: quantity === 'mutual-information' ? 300 : 500,
+        perturbations:
+          quantity === 'mutual-information'
+            ? ['rescale:c=1000', 'monotone:map=asinh,part=x', 'monotone:map=cubic,part=y', 'quantize:step=0.01', 'quantize:step=0.1']
+            : ['rescale:c=1000', 'monotone:map=asinh', 'affine:condition=10,scale=1', 'quantize:step=0.01', 'quantize:step=0.1'],
+        tuning: false,
+      },
+    };
+  }
+  return {
+    name: 'default',
+    quantity: 'entropy',
+    scenarios: DEFAULT_PLAN_SCENARIOS,
+    estimators: listEstimators()
+      .filter((e) => e.quantity === 'entropy')
+      .map((e) => e.id),
+    sampleSizes: [100, 500, 2000],
+    replicates: 30,
+    seed: 20261201,
+    robustness: { sampleSize: 500 },
+  };
+}

@@ -1,0 +1,325 @@
+/**
+ * Plans: scenarios × estimators-with-settings × sample sizes × replicates × base seed, from flags or a JSON
+ * plan file. A plan is normalised (canonical scenario ids and estimator specs with every setting spelled out)
+ * so that its fingerprint names the draws and the work exactly.
+ */
+import { createHash } from 'node:crypto';
+import { readFileSync } from 'node:fs';
+import type { ErrorObject, ValidateFunction } from 'ajv/dist/2020.js';
+import { loadAjv } from '../core/schema-validator.js';
+import type { Quantity, Scenario } from '../core/contracts.js';
+import { UsageError } from '../core/errors.js';
+import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from '../../estimators/index.js';
+import { parseScenario } from '../../scenarios/index.js';
+import { parsePerturbation } from './perturb.js';
+import { codeIdentity, moduleGraph, type CodeIdentity } from './code-identity.js';
+import planSchema from '../schemas/plan.schema.json' with { type: 'json' };
+
+/** How verdicts are reached (README, "Ranks and the best set"): part of a plan, so a run file states them. */
+export interface VerdictSettings {
+  /** Confidence level of the best set (1 − α). */
+  level: number;
+  /** Failure rate above which an estimator counts as not having run the cell. */
+  maxFailureRate: number;
+}
+
+export const DEFAULT_VERDICTS: VerdictSettings = { level: 0.95, maxFailureRate: 0 };
+
+export interface Plan {
+  name: string;
+  quantity: Quantity;
+  /** Canonical scenario ids. */
+  scenarios: string[];
+  /** Canonical estimator specs, every setting spelled out. */
+  estimators: string[];
+  sampleSizes: number[];
+  replicates: number;
+  seed: number;
+  /** Perturbations and tuning grids, run at one sample size on the same draws; null: none. */
+  robustness: RobustnessPlan | null;
+  /** Absolute paths of the user's estimator modules, loaded before the plan resolves (and in every worker). */
+  modules: string[];
+  /** How ranks and best sets are decided; not part of the fingerprint, since they change no estimate. */
+  verdicts: VerdictSettings;
+  /** Per-estimate time and per-worker memory limits; an estimate that exceeds one is a failure with its reason. */
+  limits: Limits;
+}
+
+export interface Limits {
+  /** Seconds an estimate may take: estimateSeconds + estimateSecondsPerPoint × n. */
+  estimateSeconds: number;
+  estimateSecondsPerPoint: number;
+  /** Heap limit of each worker thread, MiB. */
+  workerMemoryMiB: number;
+}
+
+/**
+ * A minute plus a millisecond per point: generous for every built-in estimator (the slowest, the kernel
+ * estimator in 3-D, takes about 1 ms per point at n = 1e5), tight enough that a hung estimator costs little.
+ */
+export const DEFAULT_LIMITS: Limits = { estimateSeconds: 60, estimateSecondsPerPoint: 0.001, workerMemoryMiB: 4096 };
+
+/** The time limit of one estimate at sample size n, in seconds. */
+export function estimateTimeLimit(limits: Limits, n: number): number {
+  return limits.estimateSeconds + limits.estimateSecondsPerPoint * n;
+}
+
+export interface RobustnessPlan {
+  /** One of the plan's sample sizes. */
+  sampleSize: number;
+  /** Canonical perturbation specs. */
+  perturbations: string[];
+  /** Whether each estimator's tuning grid runs too. */
+  tuning: boolean;
+}
+
+/** What `--robustness` (or `"robustness": {}`) runs when it names no perturbations. */
+export const DEFAULT_PERTURBATIONS = [
+  'rescale:c=0.001',
+  'rescale:c=1000',
+  'monotone:map=asinh',
+  'affine:condition=10,scale=1',
+  'quantize:step=0.001',
+  'quantize:step=0.01',
+  'quantize:step=0.1',
+  'quantize:step=0.3',
+  'contaminate:fraction=0.01',
+];
+
+export const DEFAULT_REPLICATES = 50;
+export const DEFAULT_SEED = 20261201;
+export const DEFAULT_SAMPLE_SIZES = [100, 1000, 10000];
+
+export interface ResolvedPlan {
+  plan: Plan;
+  scenarios: Scenario[];
+  estimators: ConfiguredEstimator[];
+}
+
+/** What the flags or the plan file give, before normalisation. */
+export interface PlanInput {
+  name?: string;
+  quantity?: Quantity;
+  scenarios: string[];
+  estimators: (string | { id: string; settings?: Record<string, number | string> })[];
+  sampleSizes?: number[];
+  replicates?: number;
+  seed?: number;
+  robustness?: { sampleSize?: number; perturbations?: string[]; tuning?: boolean } | null;
+  modules?: string[];
+  verdicts?: Partial<VerdictSettings>;
+  limits?: Partial<Limits>;
+}
+
+/** `instancePath` /estimators/2/settings/k → estimators[2].settings.k */
+export function jsonPath(pointer: string): string {
+  if (!pointer) return '(plan)';
+  return pointer
+    .split('/')
+    .slice(1)
+    .map((part) => part.replace(/~1/g, '/').replace(/~0/g, '~'))
+    .reduce((path, part) => (/^\d+$/.test(part) ? `${path}[${part}]` : path ? `${path}.${part}` : part), '');
+}
+
+function describeSchemaError(error: ErrorObject): string {
+  const path = jsonPath(error.instancePath);
+  switch (error.keyword) {
+    case 'additionalProperties': {
+      // parentSchema (ajv's verbose mode) holds the object's schema, so the message can list what is allowed.
+      const known = Object.keys((error.parentSchema as { properties?: object } | undefined)?.properties ?? {});
+      const key = (error.params as { additionalProperty: string }).additionalProperty;
+      return `${path === '(plan)' ? '' : `${path}.`}${key}: unknown key${known.length ? ` (allowed: ${known.join(', ')})` : ''}`;
+    }
+    case 'required':
+      return `${path === '(plan)' ? '' : `${path}.`}${(error.params as { missingProperty: string }).missingProperty}: is required`;
+    case 'enum':
+      return `${path}: must be one of ${(error.params as { allowedValues: unknown[] }).allowedValues.join(', ')}`;
+    case 'minimum':
+      return `${path}: must be ≥ ${(error.params as { limit: number }).limit}`;
+    case 'maximum':
+      return `${path}: must be ≤ ${(error.params as { limit: number }).limit}`;
+    case 'type':
+      return `${path}: must be ${(error.params as { type: string }).type === 'integer' ? 'an integer' : `a ${(error.params as { type: string }).type}`}`;
+    case 'minItems':
+      return `${path}: must list at least ${(error.params as { limit: number }).limit} item(s)`;
+    default:
+      return `${path}: ${error.message ?? 'is not valid'}`;
+  }
+}
+
+let planValidator: ValidateFunction | undefined;
+/** Compiled on first use: most commands never read a plan file, and compiling costs start-up time. */
+function validatePlanShape(value: unknown): boolean {
+  planValidator ??= loadAjv({ allErrors: false, strict: true, allowUnionTypes: true, verbose: true }).compile(planSchema);
+  const valid = planValidator(value);
+  validatePlanShape.errors = planValidator.errors;
+  return valid;
+}
+validatePlanShape.errors = undefined as ErrorObject[] | null | undefined;
+
+/** Checks a parsed plan file against the shipped schema; errors name the path. */
+export function checkPlanShape(value: unknown, source: string): PlanInput {
+  if (!validatePlanShape(value)) {
+    const errors = validatePlanShape.errors ?? [];
+    // oneOf failures report every branch; the most specific error is the deepest path, and at one depth a
+    // type mismatch or the oneOf summary only says that another branch's shape was meant: any other error says more.
+    const vague = (e: ErrorObject) => Number(e.keyword === 'type' || e.keyword === 'oneOf');
+    const deepest = [...errors].sort((a, b) => b.instancePath.length - a.instancePath.length || vague(a) - vague(b))[0];
+    throw new UsageError(`${source}: ${deepest ? describeSchemaError(deepest) : 'is not a valid plan'}`);
+  }
+  return value as unknown as PlanInput;
+}
+
+/** Reads a user-named text file; failing that, a usage error "cannot read <what> <path>: <why>". */
+export function readTextFile(path: string, what: string): string {
+  try {
+    return readFileSync(path, 'utf8');
+  } catch (error) {
+    const code = (error as NodeJS.ErrnoException).code;
+    const why = code === 'ENOENT' ? 'no such file' : code === 'EISDIR' ? 'it is a directory' : code === 'EACCES' || code === 'EPERM' ? 'permission denied' : (code ?? String(error));
+    throw new UsageError(`cannot read ${what} ${path}: ${why}`);
+  }
+}
+
+export function readPlanFile(path: string): PlanInput {
+  const text = readTextFile(path, 'plan file');
+  let value: unknown;
+  try {
+    value = JSON.parse(text);
+  } catch (error) {
+    throw new UsageError(`${path} is not valid JSON: ${(error as Error).message}`);
+  }
+  return checkPlanShape(value, path);
+}
+
+/** Normalises a plan input: canonical ids, settings validated with their paths, sizes sorted. */
+export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
+  const quantity = input.quantity ?? 'entropy';
+  const scenarios = input.scenarios.map((spec, i) => {
+    try {
+      return parseScenario(spec);
+    } catch (error) {
+      if (error instanceof UsageError) throw new UsageError(`${source}: scenarios[${i}]: ${error.message}`);
+      throw error;
+    }
+  });
+  const estimators = input.estimators.map((entry, i) => {
+    try {
+      return typeof entry === 'string' ? parseEstimatorSpec(entry) : configureEstimator(entry.id, entry.settings ?? {});
+    } catch (error) {
+      if (!(error instanceof UsageError)) throw error;
+      // "kozachenko-leonenko: k=0 is not allowed; ..." → "estimators[2].settings.k: must be ..."
+      const match = /^[^:]+: (\w+)=.* is not allowed; \1 (must be .*)$/.exec(error.message);
+      const detail = match ? `.settings.${match[1]}: ${match[2]}` : `: ${error.message}`;
+      throw new UsageError(`${source}: estimators[${i}]${detail}`);
+    }
+  });
+  const mismatched = [...scenarios.filter((s) => s.quantity !== quantity).map((s) => s.id), ...estimators.filter((e) => e.estimator.quantity !== quantity).map((e) => e.spec)];
+  if (mismatched.length) throw new UsageError(`${source}: ${mismatched[0]} is not a ${quantity} ${scenarios.some((s) => s.id === mismatched[0]) ? 'scenario' : 'estimator'}; the plan's quantity is ${quantity}`);
+  const sampleSizes = [...new Set(input.sampleSizes ?? DEFAULT_SAMPLE_SIZES)].sort((a, b) => a - b);
+  let robustness: RobustnessPlan | null = null;
+  if (input.robustness) {
+    // Default size: the largest planned n up to 1000, where perturbation effects are measured well and cheaply.
+    const upTo1000 = sampleSizes.filter((n) => n <= 1000);
+    const sampleSize = input.robustness.sampleSize ?? (upTo1000.length ? upTo1000[upTo1000.length - 1] : sampleSizes[0]);
+    if (!sampleSizes.includes(sampleSize)) {
+      throw new UsageError(`${source}: robustness.sampleSize: must be one of the plan's sample sizes (${sampleSizes.join(', ')}); got ${sampleSize}`);
+    }
+    const perturbations = (input.robustness.perturbations ?? DEFAULT_PERTURBATIONS).map((spec, i) => {
+      try {
+        return parsePerturbation(spec).spec;
+      } catch (error) {
+        if (error instanceof UsageError) throw new UsageError(`${source}: robustness.perturbations[${i}]: ${error.message}`);
+        throw error;
+      }
+    });
+    robustness = { sampleSize, perturbations: dedupe(perturbations), tuning: input.robustness.tuning ?? true };
+  }
+  const plan: Plan = {
+    name: input.name ?? 'custom',
+    quantity,
+    scenarios: dedupe(scenarios.map((s) => s.id)),
+    estimators: dedupe(estimators.map((e) => e.spec)),
+    sampleSizes,
+    replicates: input.replicates ?? DEFAULT_REPLICATES,
+    seed: input.seed ?? DEFAULT_SEED,
+    robustness,
+    modules: input.modules ?? [],
+    verdicts: { ...DEFAULT_VERDICTS, ...input.verdicts },
+    limits: { ...DEFAULT_LIMITS, ...input.limits },
+  };
+  return {
+    plan,
+    scenarios: plan.scenarios.map((id) => parseScenario(id)),
+    estimators: plan.estimators.map((spec) => parseEstimatorSpec(spec)),
+  };
+}
+
+function dedupe(list: string[]): string[] {
+  return [...new Set(list)];
+}
+
+/** The code a plan runs: hhat's build, and each estimator module with every file it imports. */
+export interface PlanCode {
+  hhat: CodeIdentity;
+  modules: { path: string; digest: string }[];
+}
+
+export function planCode(plan: Plan): PlanCode {
+  return { hhat: codeIdentity(), modules: plan.modules.map((path) => ({ path, digest: moduleGraph(path).digest })) };
+}
+
+/**
+ * sha256 of the canonical plan and the code that runs it: two runs with the same fingerprint saw the same
+ * draws and did the same work with the same code.
+ */
+export function planFingerprint(plan: Plan, code: PlanCode = planCode(plan)): string {
+  const canonical = JSON.stringify({
+    quantity: plan.quantity,
+    scenarios: plan.scenarios,
+    estimators: plan.estimators,
+    sampleSizes: plan.sampleSizes,
+    replicates: plan.replicates,
+    seed: plan.seed,
+    robustness: plan.robustness,
+    // A limit decides which estimates fail.
+    limits: plan.limits,
+    // Edited code (hhat's or a module's, or a file a module imports) changes the work under the same names.
+    code,
+  });
+  return createHash('sha256').update(canonical).digest('hex');
+}
+
+/** Why two plans' code differs, in words, for refusing to mix their results; null when it does not. */
+export function codeDifference(made: PlanCode, now: PlanCode): string | null {
+  const reasons: string[] = [];
+  if (made.hhat.version !== now.hhat.version || made.hhat.build !== now.hhat.build) {
+    reasons.push(`it was made by hhat ${made.hhat.version} (build ${made.hhat.build.slice(0, 12)}) and this is hhat ${now.hhat.version} (build ${now.hhat.build.slice(0, 12)})`);
+  }
+  // Checkpoints written before dependencies were recorded have none: that is a difference too.
+  const then = made.hhat.dependencies ?? [];
+  const thenOnly = then.filter((d) => !now.hhat.dependencies.includes(d)).map((d) => `${d} then`);
+  const nowOnly = now.hhat.dependencies.filter((d) => !then.includes(d)).map((d) => `${d} now`);
+  if (!made.hhat.dependencies || thenOnly.length || nowOnly.length) {
+    reasons.push(`the packages hhat uses differ (${[...thenOnly, ...nowOnly].slice(0, 4).join(', ') || 'not recorded then'})`);
+  }
+  const before = new Map(made.modules.map((m) => [m.path, m.digest]));
+  for (const m of now.modules) {
+    const was = before.get(m.path);
+    if (was === undefined) reasons.push(`module ${m.path} was not in it`);
+    else if (was !== m.digest) reasons.push(`module ${m.path} or a file it imports changed since (digest ${was.slice(0, 12)} then, ${m.digest.slice(0, 12)} now)`);
+  }
+  for (const path of before.keys()) if (!now.modules.some((m) => m.path === path)) reasons.push(`it used module ${path}, which this run does not`);
+  return reasons.length ? reasons.join('; ') : null;
+}
+
+/**
+ * sha256 of what determines the samples alone (seed, scenarios, sizes, replicates): two runs with the same
+ * draws fingerprint saw identical draws, so their estimates can be compared pairwise.
+ */
+export function drawsFingerprint(plan: Plan): string {
+  const canonical = JSON.stringify({ scenarios: plan.scenarios, sampleSizes: plan.sampleSizes, replicates: plan.replicates, seed: plan.seed });
+  return createHash('sha256').update(canonical).digest('hex');
+}
+
+export { collect, MAX_REPLICATES, MAX_SAMPLE_SIZE, parseFraction, parseIntegerOption, parseLevel, parseSampleSizes } from '../core/options.js';

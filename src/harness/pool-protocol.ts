@@ -1,0 +1,33 @@
+/**
+ * What the supervisor (src/harness/pool.ts) and its worker threads (src/harness/worker.ts) say to each other, and the shared
+ * memory in which a worker marks the estimate it is running.
+ */
+import type { ReplicateResult, Unit } from './work.js';
+
+/** Run `unit` from replicate `from` on, leaving out estimates already recorded as failures. */
+export interface WorkerJob {
+  unit: Unit;
+  from: number;
+  skip: { series: number; replicate: number }[];
+}
+
+export type WorkerMessage =
+  | { kind: 'ready' }
+  | { kind: 'replicate'; unit: number; result: ReplicateResult }
+  | { kind: 'unit-done'; unit: number };
+
+/**
+ * slots: [running series or −1, its replicate, blamed series or −1, its replicate, its unit];
+ * clock: [when the running estimate started, ms since the epoch].
+ * "Blamed" is the last estimate started, or, while a timer or other callback that an estimate scheduled runs,
+ * that estimate: an error thrown asynchronously is then charged to the estimator that caused it.
+ */
+export function markerViews(buffer: SharedArrayBuffer): { slots: Int32Array; clock: Float64Array } {
+  return { slots: new Int32Array(buffer, 0, 6), clock: new Float64Array(buffer, 24, 1) };
+}
+
+export function newMarker(): SharedArrayBuffer {
+  const buffer = new SharedArrayBuffer(32);
+  new Int32Array(buffer, 0, 6).fill(-1);
+  return buffer;
+}

@@ -1,0 +1,339 @@
+/**
+ * Runs a plan's units on worker threads, appending each finished unit to a checkpoint so an interrupted run
+ * resumes without recomputing anything, and reporting progress as it goes.
+ */
+import { existsSync, readFileSync, statSync, truncateSync } from 'node:fs';
+import { availableParallelism } from 'node:os';
+import { EnvironmentError, UsageError } from '../core/errors.js';
+import { buildContext } from './context.js';
+import { codeDifference, planCode, planFingerprint, type Plan, type PlanCode } from './plan.js';
+import { describeFileError, openAppender, writeFileAtomic, type Appender } from '../core/files.js';
+import { executeUnit, planUnits, type Skip, type Unit, type UnitResult } from './work.js';
+import { runOnPool } from './pool.js';
+import { inProcessOnlyIds } from '../../estimators/index.js';
+
+export interface Shard {
+  /** 1-based. */
+  index: number;
+  count: number;
+}
+
+export interface Progress {
+  unitsDone: number;
+  unitsTotal: number;
+  cellsDone: number;
+  cellsTotal: number;
+  failures: number;
+  elapsedMs: number;
+  /** Estimated from the cost of the units done so far; null until something has finished. */
+  remainingMs: number | null;
+}
+
+export interface RunOptions {
+  workers?: number;
+  /**
+   * 'threads' (the default): units run on supervised worker threads, where a hung, crashing or memory-hungry
+   * estimate is a failure with its reason (src/harness/pool.ts). 'in-process': on this thread, unsupervised; for
+   * estimators registered in this process only (not loaded from a module), such as tests use.
+   */
+  isolation?: 'threads' | 'in-process';
+  shard?: Shard;
+  /** Append-only record of finished units; required for --resume. */
+  checkpointPath?: string;
+  resume?: boolean;
+  onProgress?: (progress: Progress) => void;
+  signal?: AbortSignal;
+  /** Added to file-system error messages: how to resume after fixing the problem. */
+  checkpointHint?: string;
+  onWarning?: (text: string) => void;
+}
+
+export interface RunOutcome {
+  plan: Plan;
+  fingerprint: string;
+  /** The code that ran it (what the fingerprint digests). */
+  code: PlanCode;
+  units: Unit[];
+  /** Indices of the units this run (or shard) owns. */
+  owned: number[];
+  results: Map<number, UnitResult>;
+  skipped: Skip[];
+  wallMs: number;
+  workers: number;
+  resumedUnits: number;
+  interrupted: boolean;
+  /** Earlier sessions (from the checkpoint) and this one. */
+  sessions: Session[];
+}
+
+export function defaultWorkers(): number {
+  return Math.max(1, availableParallelism());
+}
+
+/** Units owned by shard i of N: round-robin over the plan's units ordered by cost, so shards balance. */
+export function shardUnits(units: Unit[], shard?: Shard): number[] {
+  const all = units.map((u) => u.index);
+  if (!shard) return all;
+  const byCost = [...units].sort((a, b) => b.cost - a.cost || a.index - b.index);
+  return byCost.filter((_, i) => i % shard.count === shard.index - 1).map((u) => u.index).sort((a, b) => a - b);
+}
+
+/** Version 2 names the code that wrote the checkpoint, so a resume can say why it refuses to mix. */
+interface CheckpointHeader {
+  kind: 'hhat-checkpoint';
+  version: 2;
+  fingerprint: string;
+  shard: Shard | null;
+  code: PlanCode;
+}
+
+/** One stretch of work on a run: a fresh start or a resume. Runs record them all, so resumed runs report true totals. */
+export interface Session {
+  workers: number;
+  wallSeconds: number;
+  /** Units finished in this session. */
+  units: number;
+}
+
+function serialiseResult(result: UnitResult): string {
+  return JSON.stringify({
+    unit: result.unit,
+    estimates: result.estimates.map((values) => Array.from(values, (v) => (Number.isNaN(v) ? null : v))),
+    timeMs: result.timeMs,
+    failures: result.failures,
+  });
+}
+
+interface SerialisedResult {
+  unit: number;
+  estimates: (number | null)[][];
+  timeMs: number[];
+  failures: UnitResult['failures'];
+}
+
+function parseResult(raw: SerialisedResult): UnitResult {
+  return {
+    unit: raw.unit,
+    estimates: raw.estimates.map((values) => Float64Array.from(values, (v) => (v === null ? NaN : v))),
+    timeMs: raw.timeMs,
+    failures: raw.failures,
+  };
+}
+
+function sameShard(a: Shard | null, b: Shard | null): boolean {
+  return (a === null && b === null) || (a !== null && b !== null && a.index === b.index && a.count === b.count);
+}
+
+interface LoadedCheckpoint {
+  done: Map<number, UnitResult>;
+  sessions: Session[];
+  /** False for an empty file (a crash before its header was written): the header must be written again. */
+  hasHeader: boolean;
+}
+
+/**
+ * The checkpoint's complete lines. A torn last line (a crash mid-write) is cut off the file, so the lines
+ * appended next start on a line of their own instead of being glued to the fragment and lost with it.
+ */
+function readCheckpointLines(path: string): string[] {
+  try {
+    const bytes = readFileSync(path);
+    const end = bytes.lastIndexOf(0x0a) + 1;
+    if (end < bytes.length) truncateSync(path, end);
+    return bytes.subarray(0, end).toString('utf8').split('\n').filter((l) => l.trim() !== '');
+  } catch (error) {
+    throw new EnvironmentError(describeFileError(error, 'read the checkpoint', path));
+  }
+}
+
+/** Loads finished units from a checkpoint. */
+function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null, code: PlanCode): LoadedCheckpoint {
+  const lines = readCheckpointLines(path);
+  const done = new Map<number, UnitResult>();
+  const sessions: Session[] = [];
+  if (!lines.length) return { done, sessions, hasHeader: false };
+  let header: CheckpointHeader;
+  try {
+    header = JSON.parse(lines[0]) as CheckpointHeader;
+  } catch {
+    throw new UsageError(`${path} is not an hhat checkpoint; delete it or choose another --out`);
+  }
+  if (header.kind !== 'hhat-checkpoint') throw new UsageError(`${path} is not an hhat checkpoint; delete it or choose another --out`);
+  if (header.version !== 2) {
+    throw new UsageError(`${path} was written by an older hhat (checkpoint version ${String(header.version)}), whose estimates must not be mixed with this version's; delete it to start over`);
+  }
+  if (header.fingerprint !== fingerprint || !sameShard(header.shard, shard)) {
+    const difference = codeDifference(header.code, code);
+    if (difference) {
+      throw new UsageError(`${path} cannot be resumed: ${difference}; resuming would mix estimates of two versions of the code. Delete it to start over with this code, or resume with the code that made it`);
+    }
+    throw new UsageError(`${path} belongs to a different plan or shard; run without --resume after deleting it, or resume with the plan that made it`);
+  }
+  for (const line of lines.slice(1)) {
+    try {
+      const parsed = JSON.parse(line) as SerialisedResult | { session: Session };
+      if ('session' in parsed) sessions.push(parsed.session);
+      else done.set(parsed.unit, parseResult(parsed));
+    } catch {
+      // A line spoilt otherwise (edited by hand, a disk error): that unit simply runs again.
+    }
+  }
+  return { done, sessions, hasHeader: true };
+}
+
+/** Whether `path` is a checkpoint of a run (a file with at least a header); false for a missing or empty file. */
+export function checkpointStarted(path: string): boolean {
+  if (!existsSync(path)) return false;
+  const stat = statSync(path);
+  if (stat.isDirectory()) throw new UsageError(`${path} is a folder, where hhat keeps this run's checkpoint; move it away or choose another --out`);
+  return stat.size > 0;
+}
+
+function workerEntry(): URL {
+  // From the TypeScript sources (tests, tsx) the worker needs the TypeScript loader; built code runs as is.
+  return import.meta.url.endsWith('.ts') ? new URL('./dev-worker.mjs', import.meta.url) : new URL('./worker.js', import.meta.url);
+}
+
+export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<RunOutcome> {
+  const started = performance.now();
+  const context = buildContext(plan);
+  if (options.isolation !== 'in-process') {
+    const unseen = inProcessOnlyIds(context.all.map((c) => c.estimator.id));
+    if (unseen.length) {
+      throw new UsageError(
+        `${unseen.map((id) => `"${id}"`).join(', ')} ${unseen.length === 1 ? 'was' : 'were'} registered in this process by code, which worker threads cannot see (they would fail, or run the built-in of that id); load ${unseen.length === 1 ? 'it' : 'them'} from a module file, or run with isolation 'in-process'`,
+      );
+    }
+  }
+  // Digesting the code reads every file of hhat and of the modules: once per run.
+  const code = planCode(context.plan);
+  const fingerprint = planFingerprint(context.plan, code);
+  const { units, skipped } = planUnits(context);
+  if (!units.length) {
+    // An empty run file would read as a finished benchmark; nothing was measured, so say why.
+    const first = skipped[0];
+    throw new UsageError(
+      `the plan has no cells to run: every estimator–scenario pair is skipped${first ? ` (on ${first.scenario}: ${first.reason})` : ''}; \`hhat scenarios\` and \`hhat estimators\` list dimensions`,
+    );
+  }
+  const owned = shardUnits(units, options.shard);
+  const shard = options.shard ?? null;
+
+  const results = new Map<number, UnitResult>();
+  let sessions: Session[] = [];
+  let appender: Appender | null = null;
+  const hint = options.checkpointHint;
+  if (options.checkpointPath) {
+    const path = options.checkpointPath;
+    const started = checkpointStarted(path);
+    let needsHeader = true;
+    if (options.resume && started) {
+      const ownedSet = new Set(owned);
+      const loaded = loadCheckpoint(path, fingerprint, shard, code);
+      for (const [k, v] of loaded.done) if (ownedSet.has(k)) results.set(k, v);
+      sessions = loaded.sessions;
+      needsHeader = !loaded.hasHeader;
+    } else if (!options.resume && started) {
+      throw new UsageError(`${path} exists from an interrupted run; add --resume to continue it, or delete it to start over`);
+    }
+    if (needsHeader) {
+      // Written whole and renamed into place: a checkpoint is never empty or headless, even after a crash here.
+      const header: CheckpointHeader = { kind: 'hhat-checkpoint', version: 2, fingerprint, shard, code };
+      writeFileAtomic(path, `${JSON.stringify(header)}\n`, hint);
+    }
+    appender = openAppender(path, hint);
+  }
+  const resumedUnits = results.size;
+
+  // Cells are (scenario, n) groups × estimators; a group is done when all its owned units are.
+  const groupOf = (u: Unit) => `${u.scenario}|${u.n}`;
+  const groupUnits = new Map<string, number>();
+  const groupEstimators = new Map<string, number>();
+  for (const i of owned) {
+    const u = units[i];
+    groupUnits.set(groupOf(u), (groupUnits.get(groupOf(u)) ?? 0) + 1);
+    groupEstimators.set(groupOf(u), u.series.length);
+  }
+  const groupDone = new Map<string, number>();
+  let cellsDone = 0;
+  let failures = 0;
+  let costDone = 0;
+  const costTotal = owned.reduce((s, i) => s + units[i].cost, 0);
+  let costDoneThisRun = 0;
+  const cellsTotal = [...groupEstimators.values()].reduce((a, b) => a + b, 0);
+  const record = (result: UnitResult, fresh: boolean) => {
+    results.set(result.unit, result);
+    const u = units[result.unit];
+    const g = groupOf(u);
+    const count = (groupDone.get(g) ?? 0) + 1;
+    groupDone.set(g, count);
+    if (count === groupUnits.get(g)) cellsDone += groupEstimators.get(g)!;
+    // Progress counts failures of the plan's own estimators; robustness variants fail by design (ties after rounding).
+    failures += result.failures.filter((f) => u.series[f.series].variant === 0 && u.series[f.series].estimator < context.estimators.length).length;
+    costDone += u.cost;
+    if (fresh) {
+      costDoneThisRun += u.cost;
+      appender?.append(serialiseResult(result));
+    }
+    const elapsedMs = performance.now() - started;
+    options.onProgress?.({
+      unitsDone: results.size,
+      unitsTotal: owned.length,
+      cellsDone,
+      cellsTotal,
+      failures,
+      elapsedMs,
+      remainingMs: costDoneThisRun > 0 ? (elapsedMs * (costTotal - costDone)) / costDoneThisRun : null,
+    });
+  };
+  for (const r of [...results.values()]) {
+    results.delete(r.unit);
+    record(r, false);
+  }
+
+  const pending = owned.filter((i) => !results.has(i)).map((i) => units[i]);
+  // Largest first, so the last units to finish are small ones and workers idle least.
+  pending.sort((a, b) => b.cost - a.cost || a.index - b.index);
+  const workers = Math.max(1, Math.min(options.workers ?? defaultWorkers(), pending.length || 1));
+  let interrupted = false;
+
+  const freshBefore = results.size;
+  try {
+    if (options.isolation === 'in-process') {
+      for (const unit of pending) {
+        if (options.signal?.aborted) {
+          interrupted = true;
+          break;
+        }
+        record(executeUnit(unit, context), true);
+        // Yield so a signal handler can run between units.
+        await new Promise((resolve) => setImmediate(resolve));
+      }
+    } else if (pending.length) {
+      interrupted = await runOnPool(context.plan, pending, { size: workers, entry: workerEntry(), onResult: (r) => record(r, true), signal: options.signal, onWarning: options.onWarning });
+    }
+  } finally {
+    const session: Session = { workers, wallSeconds: (performance.now() - started) / 1000, units: results.size - freshBefore };
+    sessions = [...sessions, session];
+    try {
+      appender?.append(JSON.stringify({ session }));
+    } catch {
+      // The units are saved; a lost session line only makes the reported wall time short.
+    }
+    appender?.close();
+  }
+  return {
+    plan: context.plan,
+    fingerprint,
+    code,
+    units,
+    owned,
+    results,
+    skipped,
+    wallMs: performance.now() - started,
+    workers,
+    resumedUnits,
+    interrupted,
+    sessions,
+  };
+}

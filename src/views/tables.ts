@@ -1,0 +1,158 @@
+/**
+ * Terminal tables of a run: per scenario, RMSE ± Monte-Carlo SE and rank at each n; the overall average
+ * ranks by dimension and tail class; optionally every score of every cell.
+ */
+import { formatValue, renderTable, shorten, toBase, type Base } from '../core/format.js';
+import { estimatorLabel } from '../../estimators/index.js';
+import { rankedGroups, type Cell, type RunFile } from '../analysis/results.js';
+import { COLUMN_TITLES, rankText, robustnessText, smallestQuantizeStep, wideBestSetNote } from './verdict-text.js';
+
+function pm(value: number, se: number, base: Base, digits = 3): string {
+  if (!Number.isFinite(value)) return '–';
+  return `${formatValue(toBase(value, base), digits)} ± ${Number.isFinite(se) ? formatValue(toBase(se, base), 2) : '?'}`;
+}
+
+export function scenarioTables(run: RunFile, base: Base): string {
+  const out: string[] = [];
+  for (const info of run.scenarios) {
+    const cells = run.cells.filter((c) => c.scenario === info.id && c.role === 'main');
+    if (!cells.length) continue;
+    const sizes = [...new Set(cells.map((c) => c.n))].sort((a, b) => a - b);
+    const estimators = [...new Set(cells.map((c) => c.estimator))];
+    const rankOf = new Map<string, string>();
+    for (const ranking of run.rankings.filter((r) => r.scenario === info.id && r.perturbation === null)) {
+      for (const e of ranking.entries) rankOf.set(`${e.estimator}|${ranking.n}`, rankText(e, ranking));
+    }
+    const largest = sizes[sizes.length - 1];
+    // Rows in the printed order of the ranking at the largest n: best set, the rest by RMSE, then failed.
+    const finalRanking = run.rankings.find((r) => r.scenario === info.id && r.perturbation === null && r.n === largest);
+    const position = new Map(finalRanking?.entries.map((e, i) => [e.estimator, i]) ?? []);
+    estimators.sort((a, b) => (position.get(a) ?? Number.MAX_SAFE_INTEGER) - (position.get(b) ?? Number.MAX_SAFE_INTEGER));
+    const rows = estimators.map((spec) => {
+      const row: string[] = [estimatorLabel(spec)];
+      for (const n of sizes) {
+        const cell = cells.find((c) => c.estimator === spec && c.n === n);
+        if (!cell) {
+          row.push('');
+          continue;
+        }
+        row.push(`${pm(cell.scores.rmse.value, cell.scores.rmse.se, base)}  ${rankOf.get(`${spec}|${n}`) ?? '–'}`);
+      }
+      const atLargest = cells.find((c) => c.estimator === spec && c.n === largest);
+      row.push(atLargest ? pm(atLargest.scores.bias.value, atLargest.scores.bias.se, base) : '');
+      const rate = run.rates.find((r) => r.scenario === info.id && r.estimator === spec)?.rmse;
+      row.push(rate ? `${rate.slope.toFixed(2)} ± ${rate.se.toFixed(2)}` : '–');
+      return row;
+    });
+    const heading = `${info.id}  (d=${info.dim}, ${info.support} support, ${info.tails} tails; truth ${formatValue(toBase(info.truth, base), 7)} ${base})`;
+    out.push(heading);
+    out.push(
+      renderTable(
+        ['estimator', ...sizes.map((n) => `RMSE ± SE  rank, n=${n}`), `bias ± SE, n=${largest}`, 'RMSE slope vs n'],
+        rows,
+        { align: ['left', ...sizes.map(() => 'right' as const), 'right', 'right'] },
+      ),
+    );
+    const note = wideBestSetNote(
+      run.rankings.filter((r) => r.scenario === info.id && r.perturbation === null),
+      estimatorLabel,
+    );
+    if (note) out.push(note);
+  }
+  return out.join('\n');
+}
+
+/** Average ranks per dimension/tail group and over all cells, with how many cells each average holds. */
+export function overallTable(run: RunFile): string {
+  if (!run.overall.length) return '';
+  const groups = rankedGroups(run);
+  const rows = run.overall.map((o) => ({
+    label: estimatorLabel(o.estimator),
+    mean: o.all.meanRank,
+    cells: groups.map((g) => {
+      const r = o.groups[g];
+      return r ? `${r.meanRank.toFixed(1)} (${r.cells}${r.failedCells ? `, ${r.failedCells} failed` : ''})` : 'n/a';
+    }),
+    all: `${o.all.meanRank.toFixed(1)} (${o.all.cells}${o.all.failedCells ? `, ${o.all.failedCells} failed` : ''})`,
+  }));
+  rows.sort((a, b) => a.mean - b.mean || a.label.localeCompare(b.label));
+  return [
+    'Average rank (1 = best) per dimension and tail class, over scenarios and sample sizes; in brackets the cells averaged and how many of them it failed (ranked last). n/a: cannot run there by design.',
+    renderTable(['estimator', ...groups, 'all'], rows.map((r) => [r.label, ...r.cells, r.all]), {
+      align: ['left', ...groups.map(() => 'right' as const), 'right'],
+    }),
+  ].join('\n');
+}
+
+export function detailTable(run: RunFile, base: Base): string {
+  const rows = run.cells.map((c: Cell) => [
+    shorten(c.scenario, 40),
+    `${estimatorLabel(c.estimator)}${c.perturbation ? ` after ${c.perturbation}` : ''}`,
+    c.n,
+    pm(c.scores.bias.value, c.scores.bias.se, base),
+    pm(c.scores.sd.value, c.scores.sd.se, base),
+    pm(c.scores.rmse.value, c.scores.rmse.se, base),
+    pm(c.scores.mae.value, c.scores.mae.se, base),
+    c.scores.efficiency ? pm(c.scores.efficiency.value, c.scores.efficiency.se, 'nats', 2) : '–',
+    `${c.scores.failures}/${c.scores.replicates}`,
+    formatValue(c.timing.meanMs, 3),
+  ]);
+  return renderTable(['scenario', 'estimator', 'n', 'bias', 'SD', 'RMSE', 'MAE', 'efficiency', 'failed', 'ms/estimate'], rows, {
+    align: ['left', 'left', 'right', 'right', 'right', 'right', 'right', 'right', 'right', 'right'],
+  });
+}
+
+/** The score table as CSV (nats or bits), one row per cell. */
+export function scoresCsv(run: RunFile, base: Base): string {
+  const header = ['scenario', 'estimator', 'n', 'role', 'perturbation', 'truth', 'replicates', 'failures', 'mean', 'mean_se', 'bias', 'bias_se', 'sd', 'sd_se', 'rmse', 'rmse_se', 'mae', 'mae_se', 'efficiency', 'efficiency_se', 'ms_per_estimate', 'unit'];
+  const truth = new Map(run.scenarios.map((s) => [s.id, s.truth]));
+  const q = (s: string) => (/[",\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s);
+  const num = (x: number | undefined | null, convert = true) => (x === undefined || x === null || !Number.isFinite(x) ? '' : String(convert ? toBase(x, base) : x));
+  const lines = run.cells.map((c) =>
+    [
+      q(c.scenario),
+      q(c.estimator),
+      c.n,
+      c.role,
+      q(c.perturbation ?? ''),
+      num((truth.get(c.scenario) ?? NaN) + (c.shift ?? 0)),
+      c.scores.replicates,
+      c.scores.failures,
+      num(c.scores.mean.value),
+      num(c.scores.mean.se),
+      num(c.scores.bias.value),
+      num(c.scores.bias.se),
+      num(c.scores.sd.value),
+      num(c.scores.sd.se),
+      num(c.scores.rmse.value),
+      num(c.scores.rmse.se),
+      num(c.scores.mae.value),
+      num(c.scores.mae.se),
+      num(c.scores.efficiency?.value, false),
+      num(c.scores.efficiency?.se, false),
+      num(c.timing.meanMs, false),
+      base,
+    ].join(','),
+  );
+  return `${header.join(',')}\n${lines.join('\n')}\n`;
+}
+
+/** One row per estimator, one column per perturbation kind and tuning: verdict and the worst value. */
+export function robustnessTable(run: RunFile): string {
+  const section = run.robustness;
+  if (!section) return '';
+  const columns = ['rescale', 'monotone', 'affine', 'quantize', 'contaminate', 'tuning'].filter((c) => section.table.some((r) => r.columns[c]?.verdict !== 'n/a'));
+  const finest = smallestQuantizeStep(section);
+  const rows = section.table.map((row) => [
+    estimatorLabel(row.estimator),
+    ...columns.map((c) => {
+      const cell = row.columns[c];
+      return robustnessText(c, cell.verdict, cell.value, finest);
+    }),
+  ]);
+  return [
+    `Robustness at n = ${section.sampleSize} (${section.replicates} paired replicates; worst scenario per column):`,
+    renderTable(['estimator', ...columns.map((c) => COLUMN_TITLES[c])], rows, { align: ['left', ...columns.map(() => 'right' as const)] }),
+    'How to read it: README, "Reading the robustness table". Per-scenario values: the run file\'s robustness.measures and robustness.tuning.',
+  ].join('\n');
+}
