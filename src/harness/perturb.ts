@@ -97,6 +97,186 @@ function hashSeed(...parts: (string | number)[]): string {
   return createHash('sha256').update(`hhat-perturb-v1\n${parts.join('\n')}`).digest('hex');
 }
 
+/** x → c·x: the truth moves by exactly d·log|c|. */
+function rescalePerturbation(text: string, values: Record<string, string>): Perturbation {
+  onlyKeys(text, values, ['c']);
+  const c = numberParam(text, values, 'c', 1000, (x) => x !== 0, 'a nonzero number');
+  return {
+    spec: formatSpec('rescale', { c }),
+    kind: 'rescale',
+    level: null,
+    prepare: (scenario) => ({
+      shift: scenario.dim * Math.log(Math.abs(c)),
+      shiftSource: 'exact: d·log|c|',
+      apply: (sample) => {
+        for (let i = 0; i < sample.data.length; i++) sample.data[i] *= c;
+      },
+    }),
+  };
+}
+
+/** Each coordinate through a smooth increasing map; the truth moves by Σ_j E[log|g′(X_j)|] (quadrature on the marginal laws). */
+function monotonePerturbation(text: string, values: Record<string, string>): Perturbation {
+  onlyKeys(text, values, ['map']);
+  const mapId = values.map ?? 'asinh';
+  const map = monotoneMaps.find((m) => m.id === mapId && m.id !== 'affine');
+  if (!map) throw new UsageError(`perturbation ${text}: map=${mapId} is not allowed; map must be one of ${MONOTONE_MAP_IDS.join(', ')}`);
+  return {
+    spec: formatSpec('monotone', { map: mapId }),
+    kind: 'monotone',
+    level: null,
+    prepare: (scenario, options = {}) => {
+      const needShift = options.shiftNeeded !== false;
+      if (!scenario.marginals && needShift) return { skip: `monotone:map=${mapId} needs the coordinates' marginal laws, which ${scenario.family} does not state` };
+      let shift = 0;
+      let error = 0;
+      const appliers: ((x: number) => number)[] = [];
+      const marginals = scenario.marginals ?? Array.from({ length: scenario.dim }, () => undefined);
+      for (const marginal of marginals) {
+        const base = { id: scenario.id, tails: scenario.tails, support: scenario.support, univariate: marginal } as Scenario;
+        let built;
+        try {
+          built = map.build({}, base);
+        } catch (e) {
+          if (e instanceof UsageError) return { skip: e.message.replace(/^transformed\[[^\]]*\]: /, `monotone:map=${mapId}: `) };
+          throw e;
+        }
+        if (needShift && marginal) {
+          const part = expectation(marginal, (x) => built.logAbsDerivative(x));
+          shift += part.value;
+          error += part.error;
+        }
+        appliers.push(built.apply);
+      }
+      return {
+        shift,
+        shiftSource: `quadrature: Σ_j E[log|g′(X_j)|], error estimate ${error.toExponential(1)}`,
+        apply: (sample) => {
+          const { dim, data } = sample;
+          for (let i = 0; i < data.length; i++) data[i] = appliers[i % dim](data[i]);
+        },
+      };
+    },
+  };
+}
+
+/** x → A·x + b with A = R·diag(s) of the stated condition number: the truth moves by log|det A|. */
+function affinePerturbation(text: string, values: Record<string, string>): Perturbation {
+  onlyKeys(text, values, ['condition', 'scale']);
+  const condition = numberParam(text, values, 'condition', 10, (x) => x >= 1, 'a number ≥ 1');
+  const scale = numberParam(text, values, 'scale', 1, (x) => x > 0, 'a number > 0');
+  const spec = formatSpec('affine', { condition, scale });
+  return {
+    spec,
+    kind: 'affine',
+    level: null,
+    prepare: (scenario) => {
+      const d = scenario.dim;
+      const singular = Array.from({ length: d }, (_, i) => scale * (d === 1 ? 1 : Math.pow(condition, i / (d - 1) - 0.5)));
+      const rotation = randomRotation(d, hashSeed(spec, d));
+      // A = R·diag(s): columns of R scaled.
+      const a = new Float64Array(d * d);
+      for (let r = 0; r < d; r++) for (let c = 0; c < d; c++) a[r * d + c] = rotation[r * d + c] * singular[c];
+      const offset = Array.from({ length: d }, (_, j) => (j + 1) * 0.5);
+      const logDet = singular.reduce((s, v) => s + Math.log(v), 0);
+      const point = new Float64Array(d);
+      return {
+        shift: logDet,
+        shiftSource: 'exact: log|det A| = Σ log sᵢ (a rotation has |det| = 1)',
+        apply: (sample) => {
+          const { n, data } = sample;
+          for (let i = 0; i < n; i++) {
+            for (let j = 0; j < d; j++) point[j] = data[i * d + j];
+            for (let r = 0; r < d; r++) {
+              let sum = offset[r];
+              for (let c = 0; c < d; c++) sum += a[r * d + c] * point[c];
+              data[i * d + r] = sum;
+            }
+          }
+        },
+      };
+    },
+  };
+}
+
+/** Rounding each coordinate to a grid of step·σ_j: the truth does not move; ties appear. */
+function quantizePerturbation(text: string, values: Record<string, string>): Perturbation {
+  onlyKeys(text, values, ['step']);
+  const step = numberParam(text, values, 'step', 0.1, (x) => x > 0, 'a number > 0 (the resolution in units of each coordinate\'s SD)');
+  return {
+    spec: formatSpec('quantize', { step }),
+    kind: 'quantize',
+    level: step,
+    prepare: (scenario) => {
+      const deltas: number[] = [];
+      for (let j = 0; j < scenario.dim; j++) {
+        const sigma = coordinateScale(scenario, j);
+        if (sigma === undefined) return { skip: `quantize needs each coordinate's scale, which ${scenario.family} does not state` };
+        deltas.push(step * sigma);
+      }
+      return {
+        shift: null,
+        shiftSource: 'the truth does not move; a discretised variable has H ≈ h − Σ log δ_j',
+        logCellVolume: deltas.reduce((s, v) => s + Math.log(v), 0),
+        apply: (sample) => {
+          const { dim, data } = sample;
+          for (let i = 0; i < data.length; i++) {
+            const delta = deltas[i % dim];
+            data[i] = delta * Math.round(data[i] / delta);
+          }
+        },
+      };
+    },
+  };
+}
+
+/** A fraction of the points replaced by far outliers: the truth does not move. */
+function contaminatePerturbation(text: string, values: Record<string, string>): Perturbation {
+  onlyKeys(text, values, ['fraction']);
+  const fraction = numberParam(text, values, 'fraction', 0.01, (x) => x > 0 && x < 0.5, 'a number in (0, 0.5)');
+  const spec = formatSpec('contaminate', { fraction });
+  return {
+    spec,
+    kind: 'contaminate',
+    level: fraction,
+    prepare: (scenario) => {
+      const centres: number[] = [];
+      const scales: number[] = [];
+      for (let j = 0; j < scenario.dim; j++) {
+        const sigma = coordinateScale(scenario, j);
+        const centre = coordinateCentre(scenario, j);
+        if (sigma === undefined || centre === undefined) return { skip: `contaminate needs each coordinate's centre and scale, which ${scenario.family} does not state` };
+        centres.push(centre);
+        scales.push(sigma);
+      }
+      return {
+        shift: null,
+        shiftSource: 'the truth does not move; the change of the estimate is the contamination effect',
+        apply: (sample, replicate, seed) => {
+          const { n, dim, data } = sample;
+          const count = Math.max(1, Math.round(fraction * n));
+          const rng = rngFromSeed(hashSeed(spec, seed, scenario.id, n, replicate));
+          // The sample is i.i.d., so replacing its first points is replacing a random subset.
+          for (let i = 0; i < count; i++) {
+            for (let j = 0; j < dim; j++) {
+              const distance = scales[j] * (25 + 25 * rng());
+              data[i * dim + j] = centres[j] + (rng() < 0.5 ? -distance : distance);
+            }
+          }
+        },
+      };
+    },
+  };
+}
+
+const ENTROPY_PERTURBATIONS: Record<string, (text: string, values: Record<string, string>) => Perturbation> = {
+  rescale: rescalePerturbation,
+  monotone: monotonePerturbation,
+  affine: affinePerturbation,
+  quantize: quantizePerturbation,
+  contaminate: contaminatePerturbation,
+};
+
 /** A Haar-random rotation from a fixed seed: Gram–Schmidt on a Gaussian matrix, signs fixed by the diagonal. */
 function randomRotation(dim: number, seed: string): Float64Array {
   const draw = normalRandom.factory(0, 1, { prng: rngFromSeed(seed) });
@@ -117,172 +297,9 @@ function randomRotation(dim: number, seed: string): Float64Array {
 }
 
 function parseEntropyPerturbation(text: string, id: string, values: Record<string, string>): Perturbation {
-  switch (id) {
-    case 'rescale': {
-      onlyKeys(text, values, ['c']);
-      const c = numberParam(text, values, 'c', 1000, (x) => x !== 0, 'a nonzero number');
-      return {
-        spec: formatSpec('rescale', { c }),
-        kind: 'rescale',
-        level: null,
-        prepare: (scenario) => ({
-          shift: scenario.dim * Math.log(Math.abs(c)),
-          shiftSource: 'exact: d·log|c|',
-          apply: (sample) => {
-            for (let i = 0; i < sample.data.length; i++) sample.data[i] *= c;
-          },
-        }),
-      };
-    }
-    case 'monotone': {
-      onlyKeys(text, values, ['map']);
-      const mapId = values.map ?? 'asinh';
-      const map = monotoneMaps.find((m) => m.id === mapId && m.id !== 'affine');
-      if (!map) throw new UsageError(`perturbation ${text}: map=${mapId} is not allowed; map must be one of ${MONOTONE_MAP_IDS.join(', ')}`);
-      return {
-        spec: formatSpec('monotone', { map: mapId }),
-        kind: 'monotone',
-        level: null,
-        prepare: (scenario, options = {}) => {
-          const needShift = options.shiftNeeded !== false;
-          if (!scenario.marginals && needShift) return { skip: `monotone:map=${mapId} needs the coordinates' marginal laws, which ${scenario.family} does not state` };
-          let shift = 0;
-          let error = 0;
-          const appliers: ((x: number) => number)[] = [];
-          const marginals = scenario.marginals ?? Array.from({ length: scenario.dim }, () => undefined);
-          for (const marginal of marginals) {
-            const base = { id: scenario.id, tails: scenario.tails, support: scenario.support, univariate: marginal } as Scenario;
-            let built;
-            try {
-              built = map.build({}, base);
-            } catch (e) {
-              if (e instanceof UsageError) return { skip: e.message.replace(/^transformed\[[^\]]*\]: /, `monotone:map=${mapId}: `) };
-              throw e;
-            }
-            if (needShift && marginal) {
-              const part = expectation(marginal, (x) => built.logAbsDerivative(x));
-              shift += part.value;
-              error += part.error;
-            }
-            appliers.push(built.apply);
-          }
-          return {
-            shift,
-            shiftSource: `quadrature: Σ_j E[log|g′(X_j)|], error estimate ${error.toExponential(1)}`,
-            apply: (sample) => {
-              const { dim, data } = sample;
-              for (let i = 0; i < data.length; i++) data[i] = appliers[i % dim](data[i]);
-            },
-          };
-        },
-      };
-    }
-    case 'affine': {
-      onlyKeys(text, values, ['condition', 'scale']);
-      const condition = numberParam(text, values, 'condition', 10, (x) => x >= 1, 'a number ≥ 1');
-      const scale = numberParam(text, values, 'scale', 1, (x) => x > 0, 'a number > 0');
-      const spec = formatSpec('affine', { condition, scale });
-      return {
-        spec,
-        kind: 'affine',
-        level: null,
-        prepare: (scenario) => {
-          const d = scenario.dim;
-          const singular = Array.from({ length: d }, (_, i) => scale * (d === 1 ? 1 : Math.pow(condition, i / (d - 1) - 0.5)));
-          const rotation = randomRotation(d, hashSeed(spec, d));
-          // A = R·diag(s): columns of R scaled.
-          const a = new Float64Array(d * d);
-          for (let r = 0; r < d; r++) for (let c = 0; c < d; c++) a[r * d + c] = rotation[r * d + c] * singular[c];
-          const offset = Array.from({ length: d }, (_, j) => (j + 1) * 0.5);
-          const logDet = singular.reduce((s, v) => s + Math.log(v), 0);
-          const point = new Float64Array(d);
-          return {
-            shift: logDet,
-            shiftSource: 'exact: log|det A| = Σ log sᵢ (a rotation has |det| = 1)',
-            apply: (sample) => {
-              const { n, data } = sample;
-              for (let i = 0; i < n; i++) {
-                for (let j = 0; j < d; j++) point[j] = data[i * d + j];
-                for (let r = 0; r < d; r++) {
-                  let sum = offset[r];
-                  for (let c = 0; c < d; c++) sum += a[r * d + c] * point[c];
-                  data[i * d + r] = sum;
-                }
-              }
-            },
-          };
-        },
-      };
-    }
-    case 'quantize': {
-      onlyKeys(text, values, ['step']);
-      const step = numberParam(text, values, 'step', 0.1, (x) => x > 0, 'a number > 0 (the resolution in units of each coordinate\'s SD)');
-      return {
-        spec: formatSpec('quantize', { step }),
-        kind: 'quantize',
-        level: step,
-        prepare: (scenario) => {
-          const deltas: number[] = [];
-          for (let j = 0; j < scenario.dim; j++) {
-            const sigma = coordinateScale(scenario, j);
-            if (sigma === undefined) return { skip: `quantize needs each coordinate's scale, which ${scenario.family} does not state` };
-            deltas.push(step * sigma);
-          }
-          return {
-            shift: null,
-            shiftSource: 'the truth does not move; a discretised variable has H ≈ h − Σ log δ_j',
-            logCellVolume: deltas.reduce((s, v) => s + Math.log(v), 0),
-            apply: (sample) => {
-              const { dim, data } = sample;
-              for (let i = 0; i < data.length; i++) {
-                const delta = deltas[i % dim];
-                data[i] = delta * Math.round(data[i] / delta);
-              }
-            },
-          };
-        },
-      };
-    }
-    case 'contaminate': {
-      onlyKeys(text, values, ['fraction']);
-      const fraction = numberParam(text, values, 'fraction', 0.01, (x) => x > 0 && x < 0.5, 'a number in (0, 0.5)');
-      const spec = formatSpec('contaminate', { fraction });
-      return {
-        spec,
-        kind: 'contaminate',
-        level: fraction,
-        prepare: (scenario) => {
-          const centres: number[] = [];
-          const scales: number[] = [];
-          for (let j = 0; j < scenario.dim; j++) {
-            const sigma = coordinateScale(scenario, j);
-            const centre = coordinateCentre(scenario, j);
-            if (sigma === undefined || centre === undefined) return { skip: `contaminate needs each coordinate's centre and scale, which ${scenario.family} does not state` };
-            centres.push(centre);
-            scales.push(sigma);
-          }
-          return {
-            shift: null,
-            shiftSource: 'the truth does not move; the change of the estimate is the contamination effect',
-            apply: (sample, replicate, seed) => {
-              const { n, dim, data } = sample;
-              const count = Math.max(1, Math.round(fraction * n));
-              const rng = rngFromSeed(hashSeed(spec, seed, scenario.id, n, replicate));
-              // The sample is i.i.d., so replacing its first points is replacing a random subset.
-              for (let i = 0; i < count; i++) {
-                for (let j = 0; j < dim; j++) {
-                  const distance = scales[j] * (25 + 25 * rng());
-                  data[i * dim + j] = centres[j] + (rng() < 0.5 ? -distance : distance);
-                }
-              }
-            },
-          };
-        },
-      };
-    }
-    default:
-      throw new UsageError(`unknown perturbation "${id}"; known: ${PERTURBATION_KINDS.join(', ')} (e.g. rescale:c=1000, monotone:map=asinh, affine:condition=10, quantize:step=0.1, contaminate:fraction=0.01)`);
-  }
+  const build = Object.hasOwn(ENTROPY_PERTURBATIONS, id) ? ENTROPY_PERTURBATIONS[id] : undefined;
+  if (!build) throw new UsageError(`unknown perturbation "${id}"; known: ${PERTURBATION_KINDS.join(', ')} (e.g. rescale:c=1000, monotone:map=asinh, affine:condition=10, quantize:step=0.1, contaminate:fraction=0.01)`);
+  return build(text, values);
 }
 
 
