@@ -25,7 +25,7 @@ import tCdf from '@stdlib/stats-base-dists-t-cdf';
 import tQuantile from '@stdlib/stats-base-dists-t-quantile';
 import { UsageError } from '../core/errors.js';
 import type { Cell, RunFile, ScenarioInfo } from './results.js';
-import type { Estimate } from './score.js';
+import type { ValueWithSe } from './score.js';
 import { fisherExact, signTest, signTestOf, type SignTest } from './exact-tests.js';
 import { quantileOfSorted, squaredDeviations } from '../math/moments.js';
 
@@ -82,8 +82,8 @@ export interface TTest {
  * two SEs combined as independent.
  */
 export interface ScoreChange {
-  base: Estimate;
-  next: Estimate;
+  base: ValueWithSe;
+  next: ValueWithSe;
   change: number;
   changeSe: number;
   paired: boolean;
@@ -130,7 +130,7 @@ export interface CellComparison extends CellRef {
   sd: ScoreChange;
   rmse: ScoreChange;
   /** Paired only: mean and SE of Ĥ_new,r − Ĥ_base,r over replicates where both succeeded. */
-  shift: Estimate | null;
+  shift: ValueWithSe | null;
   /** The t test on squared errors; null when either side has fewer than two usable replicates. */
   test: TTest | null;
   /** Paired only: the sign test on the per-replicate differences of squared errors. */
@@ -260,7 +260,7 @@ export function welchTTest(next: ArrayLike<number>, base: ArrayLike<number>, lev
   return finishTest('welch-t', ma - mb, se, df, level, { next: a.length, base: b.length });
 }
 
-function unpairedChange(base: Estimate, next: Estimate): ScoreChange {
+function unpairedChange(base: ValueWithSe, next: ValueWithSe): ScoreChange {
   return { base, next, change: next.value - base.value, changeSe: Math.hypot(base.se, next.se), paired: false };
 }
 
@@ -296,19 +296,19 @@ function pairedChanges(next: number[], base: number[], truthNext: number, truthB
   const mseNext = next.reduce((s, v) => s + (v - truthNext) ** 2, 0) / m;
   const mseBase = base.reduce((s, v) => s + (v - truthBase) ** 2, 0) / m;
   const rmseSum = Math.sqrt(mseNext) + Math.sqrt(mseBase);
-  const estimate = (value: number, se: number): Estimate => ({ value, se });
+  const withSe = (value: number, se: number): ValueWithSe => ({ value, se });
   return {
-    bias: { base: estimate(biasBase, Math.sqrt(b.variance / m)), next: estimate(biasNext, Math.sqrt(a.variance / m)), change: shift.mean, changeSe: Math.sqrt(shift.variance / m), paired: true },
+    bias: { base: withSe(biasBase, Math.sqrt(b.variance / m)), next: withSe(biasNext, Math.sqrt(a.variance / m)), change: shift.mean, changeSe: Math.sqrt(shift.variance / m), paired: true },
     sd: {
-      base: estimate(sdBase, NaN),
-      next: estimate(sdNext, NaN),
+      base: withSe(sdBase, NaN),
+      next: withSe(sdNext, NaN),
       change: sdNext - sdBase,
       changeSe: sdSum > 0 ? (Math.sqrt(uStats.variance / m) * (m / (m - 1))) / sdSum : 0,
       paired: true,
     },
     rmse: {
-      base: estimate(Math.sqrt(mseBase), NaN),
-      next: estimate(Math.sqrt(mseNext), NaN),
+      base: withSe(Math.sqrt(mseBase), NaN),
+      next: withSe(Math.sqrt(mseNext), NaN),
       change: Math.sqrt(mseNext) - Math.sqrt(mseBase),
       changeSe: rmseSum > 0 ? Math.sqrt(dStats.variance / m) / rmseSum : 0,
       paired: true,
@@ -395,7 +395,7 @@ function compareCell(
   const testLevel = (1 - level) / (tests * holmDivisor);
 
   let test: TTest | null;
-  let shift: Estimate | null = null;
+  let shift: ValueWithSe | null = null;
   let sign: SignTest | null = null;
   let medianChange: number | null = null;
   let changes = { bias: unpairedChange(base.scores.bias, next.scores.bias), sd: unpairedChange(base.scores.sd, next.scores.sd), rmse: unpairedChange(base.scores.rmse, next.scores.rmse) };

@@ -11,7 +11,7 @@ import { UsageError } from '../core/errors.js';
 import { drawsFingerprint, readTextFile, type Plan, type PlanCode } from '../harness/plan.js';
 import { environment, type Environment } from '../core/provenance.js';
 import type { RunOutcome, Session, Shard } from '../harness/runner.js';
-import { fitRate, scoreCell, type CellScores, type Estimate, type RateFit } from './score.js';
+import { fitRate, scoreCell, type CellScores, type ValueWithSe, type RateFit } from './score.js';
 import { overallRanks, rankCells, type OverallRank, type Ranking } from './ranking.js';
 import type { Skip } from '../harness/work.js';
 import { buildContext } from '../harness/context.js';
@@ -243,6 +243,6 @@ export function readRunFile(path: string): RunFile {
   return value as unknown as RunFile;
 }
 
-export type { Cell, CellFailure, Estimate, OverallRank, Ranking, ScenarioInfo };
+export type { Cell, CellFailure, ValueWithSe, OverallRank, Ranking, ScenarioInfo };
 export { writeFileAtomic };
 export type { RankEntry } from './ranking.js';

@@ -16,7 +16,7 @@
  */
 import type { Plan } from '../harness/plan.js';
 import { parsePerturbation, type PerturbationKind } from '../harness/perturb.js';
-import type { Estimate } from './score.js';
+import type { ValueWithSe } from './score.js';
 import type { Cell, ScenarioInfo } from './cells.js';
 import { parseScenario } from '../../scenarios/index.js';
 import { parseEstimatorSpec } from '../../estimators/index.js';
@@ -32,9 +32,9 @@ export interface RobustnessMeasure {
   level: number | null;
   shift: number | null;
   /** mean |Ĥ(perturbed) − Ĥ(original) − shift| */
-  drift: Estimate;
+  drift: ValueWithSe;
   /** mean (Ĥ(perturbed) − Ĥ(original) − shift) */
-  change: Estimate;
+  change: ValueWithSe;
   /** For quantize: h − Σ log δ_j, what a discretised variable's Shannon entropy approaches. */
   discreteEntropy: number | null;
   sd: number;
@@ -48,7 +48,7 @@ export interface TuningCurve {
   scenario: string;
   estimator: string;
   setting: string;
-  points: { value: number | string; spec: string; mean: Estimate; sd: number; failures: number }[];
+  points: { value: number | string; spec: string; mean: ValueWithSe; sd: number; failures: number }[];
   spread: number;
 }
 
@@ -69,7 +69,7 @@ export interface RobustnessSection {
 export const ROBUSTNESS_COLUMNS = ['rescale', 'monotone', 'affine', 'quantize', 'contaminate', 'tuning'] as const;
 const EXACT_DRIFT = 1e-9;
 
-function meanSe(values: number[]): Estimate {
+function meanSe(values: number[]): ValueWithSe {
   const m = values.length;
   if (!m) return { value: NaN, se: NaN };
   const mean = values.reduce((a, b) => a + b, 0) / m;

@@ -12,7 +12,8 @@
  * m counts successful replicates, R all replicates.
  */
 
-export interface Estimate {
+/** A score with its Monte-Carlo standard error (not an estimator's output: that is an estimate, a number). */
+export interface ValueWithSe {
   value: number;
   se: number;
 }
@@ -21,17 +22,17 @@ export interface CellScores {
   replicates: number;
   successes: number;
   failures: number;
-  failureRate: Estimate;
-  mean: Estimate;
-  bias: Estimate;
-  sd: Estimate;
-  rmse: Estimate;
-  mae: Estimate;
+  failureRate: ValueWithSe;
+  mean: ValueWithSe;
+  bias: ValueWithSe;
+  sd: ValueWithSe;
+  rmse: ValueWithSe;
+  mae: ValueWithSe;
   /** n·Var(Ĥ)/Var(log f(X)): 1 is the asymptotic best any estimator can do. Null when Var(log f) is unknown or 0. */
-  efficiency: Estimate | null;
+  efficiency: ValueWithSe | null;
 }
 
-const NONE: Estimate = { value: NaN, se: NaN };
+const NONE: ValueWithSe = { value: NaN, se: NaN };
 
 /** Scores from replicate estimates (NaN marks a failed replicate). */
 export function scoreCell(estimates: ArrayLike<number>, truth: number, n: number, logDensityVariance?: number): CellScores {
@@ -87,7 +88,7 @@ export function scoreCell(estimates: ArrayLike<number>, truth: number, n: number
   const rmseSe = rmse > 0 ? Math.sqrt(squaredErrorVariance / m) / (2 * rmse) : 0;
   const mae = sumAbs / m;
   const absVariance = Math.max(0, (sumSq / m - mae * mae) * (m / (m - 1)));
-  let efficiency: Estimate | null = null;
+  let efficiency: ValueWithSe | null = null;
   if (logDensityVariance !== undefined && logDensityVariance > 0) {
     const scale = n / logDensityVariance;
     efficiency = { value: scale * variance, se: scale * Math.sqrt(varianceOfVariance) };

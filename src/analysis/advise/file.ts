@@ -27,7 +27,7 @@ import { parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../.
 import { describeSeconds, largestRowsWhere, predictedReplicateSeconds, predictedSeconds, rowsWithin } from '../../harness/cost-model.js';
 import { defaultWorkers } from '../../harness/runner.js';
 import { seededRowSubsample } from '../../core/sample.js';
-import type { Estimate } from '../score.js';
+import type { ValueWithSe } from '../score.js';
 import { ADVICE_SEED, applicableEstimators, DEFAULT_BUDGET_SECONDS, runTargeted } from './benchmark.js';
 import { smoothedBootstrap, type BootstrapInterval } from './bootstrap.js';
 import { buildLookalike, type Lookalike } from './lookalike.js';
@@ -109,7 +109,7 @@ export interface FileAdvice {
     value: number;
     interval: BootstrapInterval | null;
     /** Expected bias on the look-alike, with its Monte-Carlo SE. */
-    bias: Estimate;
+    bias: ValueWithSe;
     /** value − bias */
     corrected: number;
     correctedInterval: { lower: number; upper: number } | null;

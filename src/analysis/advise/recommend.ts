@@ -10,7 +10,7 @@
  * failure rule: README, "Ranks and the best set"); "best on" counts the scenarios where it is in the best set
  * (the model confidence set at the run's level).
  */
-import type { Estimate } from '../score.js';
+import type { ValueWithSe } from '../score.js';
 import type { Cell, RankEntry, RunFile, ScenarioInfo } from '../results.js';
 import type { Verdict } from '../robustness.js';
 import { estimatorLabel } from '../../../estimators/index.js';
@@ -20,9 +20,9 @@ export interface ScenarioScore {
   scenario: string;
   tails: string;
   support: string;
-  bias: Estimate;
+  bias: ValueWithSe;
   sd: number;
-  rmse: Estimate;
+  rmse: ValueWithSe;
   failures: number;
   replicates: number;
   /** Rank among the estimators on this scenario (1 for every member of the best set). */
@@ -48,11 +48,11 @@ export interface EstimatorSummary {
   label: string;
   scenarios: ScenarioScore[];
   /** Mean of the per-scenario RMSEs, SE = √(Σ SE²)/S. */
-  meanRmse: Estimate;
+  meanRmse: ValueWithSe;
   /** Smallest and largest per-scenario RMSE. */
   rmseRange: [number, number];
   /** Mean of the per-scenario biases, SE likewise. */
-  meanBias: Estimate;
+  meanBias: ValueWithSe;
   failures: number;
   replicates: number;
   failureRate: number;
@@ -75,7 +75,7 @@ export interface Recommendation {
 
 export const ROBUSTNESS_FLAGS = ['rescale', 'quantize', 'contaminate'] as const;
 
-function meanOf(values: Estimate[]): Estimate {
+function meanOf(values: ValueWithSe[]): ValueWithSe {
   if (!values.length || values.some((v) => !Number.isFinite(v.value))) return { value: NaN, se: NaN };
   const value = values.reduce((s, v) => s + v.value, 0) / values.length;
   const se = Math.sqrt(values.reduce((s, v) => s + (Number.isFinite(v.se) ? v.se * v.se : 0), 0)) / values.length;
