@@ -47,4 +47,4 @@ export { KnnIndex } from './math/knn.js';
 export { loadEstimatorModules, registerUserEstimators } from './harness/modules.js';
 export { renderReport, writeReport } from './views/report/report.js';
 export { adviseFile } from './analysis/advise/file.js';
-export { adviseSetting } from './analysis/advise/setting.js';
+export { adviseSituation } from './analysis/advise/situation.js';

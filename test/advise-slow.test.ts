@@ -13,7 +13,7 @@ import { describe, expect, it } from 'vitest';
 import { rngFromSeed } from '../src/core/rng.js';
 import { parseScenario } from '../scenarios/index.js';
 import { adviseFile } from '../src/analysis/advise/file.js';
-import { adviseSetting } from '../src/analysis/advise/setting.js';
+import { adviseSituation } from '../src/analysis/advise/situation.js';
 import { UsageError } from '../src/core/errors.js';
 
 const cases: { spec: string; n: number; trials: number }[] = [
@@ -45,7 +45,7 @@ describe('bootstrap intervals of hhat advise FILE', () => {
 });
 
 describe('hhat advise keeps to its time budget', () => {
-  // Setting advice at growing cost: its wall time must stay within 20% of --budget, or the budget is refused
+  // Advice for a described situation at growing cost: its wall time must stay within 20% of --budget, or the budget is refused
   // (a usage error that names the budget it would need) before it is spent.
   const settings = [
     { n: 2000, dim: 3, budget: 6 },
@@ -57,7 +57,7 @@ describe('hhat advise keeps to its time budget', () => {
     it.skipIf(!process.env.HHAT_SLOW)(`--n ${n} --dim ${dim} --budget ${budget}`, async () => {
       const started = performance.now();
       try {
-        const advice = await adviseSetting({ n, dim, budgetSeconds: budget });
+        const advice = await adviseSituation({ n, dim, budgetSeconds: budget });
         console.log(`advise --n ${n} --dim ${dim} --budget ${budget}: ${advice.seconds.toFixed(1)} s, ${advice.benchmark.replicates} replicates, warnings: ${advice.warnings.length}`);
       } catch (error) {
         expect(error).toBeInstanceOf(UsageError);

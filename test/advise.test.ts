@@ -1,6 +1,6 @@
 /**
  * hhat advise: the profile, EM and BIC, the look-alike scenario and its entropy, the bootstrap, the
- * recommendation on held-out scenarios, setting advice, and the command line.
+ * recommendation on held-out scenarios, advice for a described situation, and the command line.
  *
  * Outside references: test/fixtures/advise.json (NumPy and SciPy, written by make_advise_fixture.py with the
  * versions recorded in it), closed forms named beside each check, and brute-force computations in this file.
@@ -25,7 +25,7 @@ import { mixtureParameters, selectMixture, symmetricEigenvalues } from '../src/a
 import { quantileSorted, smoothedBootstrap } from '../src/analysis/advise/bootstrap.js';
 import { applicableEstimators } from '../src/analysis/advise/benchmark.js';
 import { adviseFile } from '../src/analysis/advise/file.js';
-import { adviseSetting, matchScenarios } from '../src/analysis/advise/setting.js';
+import { adviseSituation, matchScenarios } from '../src/analysis/advise/situation.js';
 import { parseEstimatorSpec, runEstimator } from '../estimators/index.js';
 import { runCli as run } from './helpers/cli.js';
 
@@ -326,7 +326,7 @@ describe('advise FILE on data a Gaussian mixture cannot imitate', () => {
   });
 });
 
-describe('advise for a setting', () => {
+describe('advise for a described situation', () => {
   it('matches dimension exactly, filters tails and support, and says plainly when it falls back', () => {
     const heavy = matchScenarios(1, 'heavy', undefined, 6);
     expect(heavy.exact).toBe(true);
@@ -342,7 +342,7 @@ describe('advise for a setting', () => {
   });
 
   it('ranks by the mean of per-scenario RMSEs, recomputed here from the raw estimates and true values', async () => {
-    const advice = await adviseSetting({ n: 200, dim: 2, budgetSeconds: 3, minReplicates: 10, maxScenarios: 3 });
+    const advice = await adviseSituation({ n: 200, dim: 2, budgetSeconds: 3, minReplicates: 10, maxScenarios: 3 });
     const truths = new Map(advice.match.scenarios.map((s) => [s.id, parseScenario(s.id).truth]));
     for (const summary of advice.estimators) {
       // Brute force: RMSE per scenario from the cells' estimates, then the plain mean over scenarios.
@@ -421,7 +421,7 @@ describe('hhat advise on the command line', () => {
   it('refuses mixed or missing descriptions with one line and exit code 2', async () => {
     for (const [args, message] of [
       [['advise'], /give a data file .* or describe the setting with --n and --dim/],
-      [['advise', 'examples/oven-probes.csv', '--n', '100'], /--n describes a setting/],
+      [['advise', 'examples/oven-probes.csv', '--n', '100'], /--n describes a situation/],
       [['advise', '--n', '100', '--dim', '2', '--tails', 'fat'], /--tails fat is not allowed; it must be one of light, exponential, heavy/],
       [['advise', '--n', '100', '--dim', '2', '--interval', '0.9'], /--interval applies to a data file/],
       [['advise', 'examples/oven-probes.csv', '--interval', '95'], /--interval 95 is not allowed/],

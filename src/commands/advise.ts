@@ -6,8 +6,8 @@ import { MAX_REPLICATES, MAX_SAMPLE_SIZE, parseIntegerOption } from '../core/opt
 import { toJson } from '../analysis/results.js';
 import { parseNumber } from '../core/spec.js';
 import { adviseFile } from '../analysis/advise/file.js';
-import { adviseSetting, MAX_BUDGET_SECONDS } from '../analysis/advise/setting.js';
-import { fileAdviceJson, renderFileAdvice, renderSettingAdvice, settingAdviceJson } from '../views/advice.js';
+import { adviseSituation, MAX_BUDGET_SECONDS } from '../analysis/advise/situation.js';
+import { fileAdviceJson, renderFileAdvice, renderSituationAdvice, situationAdviceJson } from '../views/advice.js';
 import { DEFAULT_BUDGET_SECONDS } from '../analysis/advise/benchmark.js';
 import { checkSampleMemory } from '../core/memory.js';
 import { DEFAULT_LIMITS } from '../harness/plan.js';
@@ -56,7 +56,7 @@ function choice<T extends string>(flag: string, text: string | undefined, allowe
 export function registerAdviseCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
   program
     .command('advise')
-    .description('which estimator to use: for a described setting (--n, --dim), or for a data file, with an estimate, a bootstrap interval and a look-alike bias correction')
+    .description('which estimator to use: for a described situation (--n, --dim), or for a data file, with an estimate, a bootstrap interval and a look-alike bias correction')
     .argument('[file]', 'a data file (CSV/TSV/TXT, JSON, NumPy .npy); rows are points, columns are coordinates')
     .option('--n <n>', 'sample size of the setting (without a file)')
     .option('--dim <d>', 'dimension of the setting (without a file)')
@@ -95,7 +95,7 @@ Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICAT
       if (file !== undefined) {
         const setting = (['n', 'dim', 'tails', 'support'] as const).filter((k) => options[k] !== undefined);
         if (setting.length) {
-          throw new UsageError(`--${setting[0]} describes a setting; with a data file the data describe themselves (drop --${setting[0]}, or drop the file for setting advice)`);
+          throw new UsageError(`--${setting[0]} describes a situation; with a data file the data describe themselves (drop --${setting[0]}, or drop the file for advice on the described situation)`);
         }
         const readStarted = performance.now();
         const status = statusLine(process.stderr, 'hhat advise');
@@ -125,12 +125,12 @@ Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICAT
       if (options.n === undefined || options.dim === undefined) {
         throw new UsageError('give a data file (hhat advise data.csv) or describe the setting with --n and --dim (hhat advise --n 500 --dim 2 [--tails heavy] [--support bounded])');
       }
-      // At least 10 points, not the schema's 2: advice on fewer says nothing (adviseSetting refuses them too).
+      // At least 10 points, not the schema's 2: advice on fewer says nothing (adviseSituation refuses them too).
       const n = parseIntegerOption('--n', options.n, 10, MAX_SAMPLE_SIZE);
       const dim = parseIntegerOption('--dim', options.dim, 1, 1000);
       // Before anything runs: a sample that the benchmark's workers could not hold is refused with what it would need.
       checkSampleMemory(`--n ${options.n}`, n, dim, { workers: workers ?? defaultWorkers(), workerMemoryMiB: DEFAULT_LIMITS.workerMemoryMiB });
-      const advice = await adviseSetting({
+      const advice = await adviseSituation({
         n,
         dim,
         tails: choice('--tails', options.tails, TAILS),
@@ -141,6 +141,6 @@ Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICAT
         replicates,
         onStage: stage,
       });
-      print(options.json ? toJson(settingAdviceJson(advice)) : renderSettingAdvice(advice));
+      print(options.json ? toJson(situationAdviceJson(advice)) : renderSituationAdvice(advice));
     });
 }

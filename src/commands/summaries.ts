@@ -13,7 +13,7 @@ export const COMMANDS = {
   report: 'write a self-contained HTML report (charts and sortable tables) of a run file',
   compare: 'compare two run files cell by cell: paired on the same draws, so small changes in estimator code show',
   advise:
-    'which estimator to use: for a described setting (--n, --dim), or for a data file, with an estimate, a bootstrap interval and a look-alike bias correction',
+    'which estimator to use: for a described situation (--n, --dim), or for a data file, with an estimate, a bootstrap interval and a look-alike bias correction',
 } as const;
 
 export type CommandName = keyof typeof COMMANDS;

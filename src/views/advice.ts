@@ -5,7 +5,7 @@ import { formatValue, renderTable } from '../core/format.js';
 import type { FileAdvice } from '../analysis/advise/file.js';
 import type { ColumnProfile } from '../analysis/advise/profile.js';
 import type { EstimatorSummary, Recommendation, RobustnessFlag } from '../analysis/advise/recommend.js';
-import { ADVICE_QUANTIZE_STEPS, type SettingAdvice } from '../analysis/advise/setting.js';
+import { ADVICE_QUANTIZE_STEPS, type SituationAdvice } from '../analysis/advise/situation.js';
 import { robustnessText } from './verdict-text.js';
 
 function num(x: number | null | undefined, digits = 3): string {
@@ -39,7 +39,7 @@ function failureCell(s: EstimatorSummary): string {
   return s.failures === 0 ? '0' : `${s.failures}/${s.replicates}`;
 }
 
-export function renderSettingAdvice(advice: SettingAdvice): string {
+export function renderSituationAdvice(advice: SituationAdvice): string {
   const lines: string[] = [];
   const described = [advice.tails ? `${advice.tails} tails` : 'any tails', advice.support ? `${advice.support === 'half' ? 'half-bounded' : advice.support} support` : 'any support'];
   lines.push(`Advice for n = ${advice.n}, d = ${advice.dim} (${described.join(', ')})`);
@@ -208,7 +208,7 @@ function summaryJson(s: EstimatorSummary) {
   };
 }
 
-export function settingAdviceJson(advice: SettingAdvice) {
+export function situationAdviceJson(advice: SituationAdvice) {
   return {
     kind: 'hhat-advice',
     mode: 'setting',

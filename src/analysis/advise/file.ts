@@ -22,7 +22,7 @@
  */
 import type { Sample } from '../../core/contracts.js';
 import { EstimateError, UsageError } from '../../core/errors.js';
-import { MAX_BUDGET_SECONDS, tooFewPoints } from './setting.js';
+import { MAX_BUDGET_SECONDS, tooFewPoints } from './situation.js';
 import { parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../../estimators/index.js';
 import { describeSeconds, largestRowsWhere, predictedReplicateSeconds, predictedSeconds, rowsWithin } from '../../harness/cost-model.js';
 import { defaultWorkers } from '../../harness/runner.js';

@@ -186,7 +186,7 @@ function truthSpread(scenarios: ScenarioInfo[]): number {
 
 /**
  * `subject` names what the scores were measured on, for the sentence: 'look-alike' (file advice, one
- * scenario) or 'matching scenarios' (setting advice).
+ * scenario) or 'matching scenarios' (advice for a described situation).
  */
 export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 'look-alike' | 'matching scenarios' = 'matching scenarios'): Recommendation {
   if (!summaries.length) throw new Error('recommend: no estimator ran');

@@ -1,7 +1,7 @@
 /**
- * `hhat advise --n N --dim D [--tails T] [--support S]`: which estimator to use in a described setting.
+ * `hhat advise --n N --dim D [--tails T] [--support S]`: which estimator to use in a described situation.
  *
- *   const advice = await adviseSetting({ n: 800, dim: 2, tails: 'heavy', budgetSeconds: 20 });
+ *   const advice = await adviseSituation({ n: 800, dim: 2, tails: 'heavy', budgetSeconds: 20 });
  *   advice.match.scenarios, advice.estimators (by mean RMSE), advice.recommendation.reason
  *
  * Scenario choice. Catalog scenarios of dimension exactly D, with the tail class and support when given.
@@ -23,7 +23,7 @@ import { describeSeconds, predictedReplicateSeconds } from '../../harness/cost-m
 import { defaultWorkers } from '../../harness/runner.js';
 import { recommend, summarise, type EstimatorSummary, type Recommendation } from './recommend.js';
 
-export interface SettingAdviceOptions {
+export interface SituationAdviceOptions {
   n: number;
   dim: number;
   tails?: Tails;
@@ -51,7 +51,7 @@ export interface ScenarioMatch {
   note: string;
 }
 
-export interface SettingAdvice {
+export interface SituationAdvice {
   n: number;
   dim: number;
   tails: Tails | null;
@@ -65,7 +65,7 @@ export interface SettingAdvice {
   seconds: number;
 }
 
-/** The robustness section of setting advice: a unit change, rounding at two steps, far outliers. */
+/** The robustness section of the advice for a described situation: a unit change, rounding at two steps, far outliers. */
 export const ADVICE_QUANTIZE_STEPS = [0.01, 0.1];
 export const ADVICE_PERTURBATIONS = ['rescale:c=1000', ...ADVICE_QUANTIZE_STEPS.map((step) => `quantize:step=${step}`), 'contaminate:fraction=0.01'];
 export const DEFAULT_MAX_SCENARIOS = 6;
@@ -206,7 +206,7 @@ function refuseUnaffordableBudget(n: number, dim: number, estimators: readonly s
   );
 }
 
-export async function adviseSetting(options: SettingAdviceOptions): Promise<SettingAdvice> {
+export async function adviseSituation(options: SituationAdviceOptions): Promise<SituationAdvice> {
   const started = performance.now();
   const { n, dim } = options;
   if (!Number.isInteger(n) || n < 10) throw new UsageError(`--n ${n} is not allowed; it must be an integer ≥ 10`);
