@@ -24,6 +24,7 @@ import { KnnIndex } from '../../src/math/knn.js';
 import { type GridPlan, gridLogKernelSums, isInside, planGrid } from './grid.js';
 import { type CellIndex, isolatedLogKernelSums, outsidePairSums } from './neighbourhood.js';
 import { kernelCutoff } from './truncation.js';
+import { expNonPositive } from '../../src/math/exp.js';
 
 export type MultivariatePath = 'auto' | 'cells' | 'blocked' | 'grid';
 
@@ -93,7 +94,7 @@ function accumulatePairs(
         distanceSquared += difference * difference;
       }
       if (distanceSquared <= radiusSquared) {
-        const term = Math.exp(exponentScale * distanceSquared);
+        const term = expNonPositive(exponentScale * distanceSquared);
         sumP += term;
         sums[q] += term;
       }
@@ -128,7 +129,7 @@ function accumulatePairs3(
       const d2 = x2 - z[3 * q + 2];
       const distanceSquared = d0 * d0 + d1 * d1 + d2 * d2;
       if (distanceSquared <= radiusSquared) {
-        const term = Math.exp(exponentScale * distanceSquared);
+        const term = expNonPositive(exponentScale * distanceSquared);
         sumP += term;
         sums[q] += term;
       }
@@ -305,7 +306,7 @@ export function fullLogKernelSum(z: Float64Array, n: number, dim: number, i: num
   for (let j = 0; j < n; j++) {
     if (j === i) continue;
     const u = Math.sqrt(scratch[j]) / bandwidth;
-    sum += Math.exp(-0.5 * (u - nearest) * (u + nearest));
+    sum += expNonPositive(-0.5 * (u - nearest) * (u + nearest));
   }
   return Math.log(sum) - 0.5 * nearest * nearest;
 }

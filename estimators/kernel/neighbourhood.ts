@@ -20,6 +20,7 @@
  */
 import { KnnIndex } from '../../src/math/knn.js';
 import { nextPowerOfTwo } from '../../src/math/fft.js';
+import { expNonPositive } from '../../src/math/exp.js';
 
 /** A uniform grid of cells over the points, keyed in mixed radix (axis 0 fastest), as multivariate.ts builds it. */
 export interface CellIndex {
@@ -241,7 +242,7 @@ export function isolatedLogKernelSums(
     for (let e = start[q]; e < start[q + 1]; e++) {
       if (neighbours[e] === i) continue;
       const v = distances[e] / bandwidth;
-      sum += Math.exp(-0.5 * (v - u) * (v + u));
+      sum += expNonPositive(-0.5 * (v - u) * (v + u));
     }
     logSums[i] = Math.log(sum) - 0.5 * u * u;
   }
@@ -278,7 +279,7 @@ export function outsidePairSums(
         distanceSquared += difference * difference;
       }
       if (distanceSquared > radiusSquared) continue;
-      const term = Math.exp(exponentScale * distanceSquared);
+      const term = expNonPositive(exponentScale * distanceSquared);
       sum += term;
       if (!isOutside[j]) extra[j] += term;
     }

@@ -1,0 +1,39 @@
+/**
+ * exp(x) for x ≤ 0, about twice as fast as Math.exp inside the kernel estimator's pair loops, where the
+ * exponential is three quarters of the time. Tang's table method (P. T. P. Tang, "Table-driven implementation
+ * of the exponential function in IEEE floating-point arithmetic", ACM TOMS 15(2), 1989): x = (64k + j)·ln2/64 + r
+ * with |r| ≤ ln2/128, so exp(x) = 2^k · 2^(j/64) · exp(r), exp(r) by its Taylor polynomial to r⁵ (the first term
+ * left out, r⁶/720 < 3.6e-17, is below half an ulp). ln2/64 is split in two (below), so k·ln2/64 is
+ * subtracted to well beyond double precision for every k this range needs.
+ *
+ * Relative error below 4.5e-16 (about 2 ulp; 3.99e-16 the largest seen over 2e6 random points) against Math.exp wherever the result is a normal double (x ≥ −708.4);
+ * below that, where the result is subnormal, an absolute error of a few 2^−1074 (test/exp.test.ts). Exactly 1 at 0;
+ * 0 below −745.2, where Math.exp also gives 0; NaN for NaN. Only for x ≤ 0: above 0 it is not checked.
+ */
+
+/** Rounds a double to the nearest integer by adding and removing 1.5·2^52 (exact for |v| < 2^51). */
+const ROUND = 6755399441055744;
+const SIXTY_FOUR_OVER_LN2 = 64 / Math.LN2;
+/**
+ * ln 2 / 64 as a high part with its low 21 bits zero (so k·high is exact for every |k| < 2^21 used here) and a
+ * low part: fdlibm's ln2HI and ln2LO (e_exp.c), divided by 64 exactly. Together they hold ln 2 to about 2^−85,
+ * which keeps r accurate even at k ≈ 65 000; the double nearest ln 2 / 64 alone would not (k times its error
+ * reaches 5e-14).
+ */
+const LN2_64_HIGH = 6.93147180369123816490e-1 / 64;
+const LN2_64_LOW = 1.90821492927058770002e-10 / 64;
+/** 2^(j/64), j = 0..63. */
+const TABLE = Float64Array.from({ length: 64 }, (_, j) => 2 ** (j / 64));
+/** 2^(m − 1100) for m = 0..1100: every power the range [−745.2, 0] reaches (2^−1075 underflows to 0). */
+const POWERS = Float64Array.from({ length: 1101 }, (_, m) => 2 ** (m - 1100));
+/** Below this, exp(x) rounds to 0 in double precision. */
+const UNDERFLOW = -745.2;
+
+export function expNonPositive(x: number): number {
+  if (!(x >= UNDERFLOW)) return x < UNDERFLOW ? 0 : NaN;
+  const kFloat = x * SIXTY_FOUR_OVER_LN2 + ROUND - ROUND;
+  const r = x - kFloat * LN2_64_HIGH - kFloat * LN2_64_LOW;
+  const k = kFloat | 0;
+  const polynomial = 1 + r * (1 + r * (0.5 + r * (1 / 6 + r * (1 / 24 + r * (1 / 120)))));
+  return TABLE[k & 63] * POWERS[(k >> 6) + 1100] * polynomial;
+}
