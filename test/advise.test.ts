@@ -348,7 +348,8 @@ describe('advise for a described situation', () => {
       // Brute force: RMSE per scenario from the cells' estimates, then the plain mean over scenarios.
       const perScenario = summary.scenarios.map((c) => c.rmse.value);
       expect(summary.meanRmse.value).toBeCloseTo(perScenario.reduce((a, b) => a + b, 0) / perScenario.length, 12);
-      expect(summary.robustness).not.toBeNull();
+      // The robustness section is the first thing cut when the measured pace does not fit the budget (a loaded machine).
+      expect(summary.robustness === null).toBe(advice.benchmark.perturbations.length === 0);
     }
     const sorted = advice.estimators.map((s) => s.meanRmse.value).filter(Number.isFinite);
     expect(sorted).toEqual([...sorted].sort((a, b) => a - b));
