@@ -399,7 +399,7 @@ function compareCell(
   let sign: SignTest | null = null;
   let medianChange: number | null = null;
   let changes = { bias: unpairedChange(base.scores.bias, next.scores.bias), sd: unpairedChange(base.scores.sd, next.scores.sd), rmse: unpairedChange(base.scores.rmse, next.scores.rmse) };
-  let common = 0;
+  let common: number;
   if (paired) {
     const nextValues: number[] = [];
     const baseValues: number[] = [];

@@ -37,7 +37,7 @@ export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
     for (const cell of f.run.cells) {
       const k = key(cell);
       if (!cells.has(k)) {
-        cells.set(k, { ...cell, estimates: Array(plan.replicates).fill(null), failures: [], timing: { totalMs: 0, meanMs: 0 } });
+        cells.set(k, { ...cell, estimates: new Array<number | null>(plan.replicates).fill(null), failures: [], timing: { totalMs: 0, meanMs: 0 } });
         covered.set(k, new Set());
         order.push(k);
       }

@@ -45,6 +45,7 @@ function show(value: unknown): string {
   if (Array.isArray(value)) return `[${value.map(show).join(', ')}]`;
   if (value === null) return 'null';
   if (typeof value === 'object') return 'an object';
+  // eslint-disable-next-line @typescript-eslint/no-base-to-string -- objects returned above; a boolean, bigint or symbol is left
   return String(value);
 }
 

@@ -158,7 +158,7 @@ export function checkPlanShape(value: unknown, source: string): PlanInput {
     const deepest = [...errors].sort((a, b) => b.instancePath.length - a.instancePath.length || vague(a) - vague(b))[0];
     throw new UsageError(`${source}: ${deepest ? describeSchemaError(deepest) : 'is not a valid plan'}`);
   }
-  return value as unknown as PlanInput;
+  return value as PlanInput;
 }
 
 /** Reads a user-named text file; failing that, a usage error "cannot read <what> <path>: <why>". */

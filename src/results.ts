@@ -133,7 +133,7 @@ export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
         perturbation: series.variant > 0 ? context.perturbations[series.variant - 1].spec : null,
         shift: prepared && 'shift' in prepared ? prepared.shift : null,
         tuning: tuningOf(series.estimator),
-        estimates: Array(plan.replicates).fill(null),
+        estimates: new Array<number | null>(plan.replicates).fill(null),
         failures: [],
         scores: undefined as unknown as CellScores,
         timing: { totalMs: 0, meanMs: 0 },
