@@ -12,9 +12,9 @@ import type { Estimator, Sample, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { KnnIndex } from '../src/knn.js';
 import { solveLower } from '../src/math/linalg.js';
+import { sortAscending } from '../src/math/sort.js';
 import { type AxisBins, BIN_RULES, axisIndices, histogramGrid } from './histogram.js';
 import { columnExtremes, type SpreadUnit, spreadUnitOfExtremes, toUnit } from './scaling.js';
-import { sortAscending } from './spacing.js';
 
 /** The P and Q samples after checking both; returns their sizes. */
 export function checkedPair(id: string, sample: Sample): { n: number; m: number; dim: number; p: Float64Array; q: Float64Array } {

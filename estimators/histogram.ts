@@ -49,9 +49,9 @@
 import type { Estimator, Sample, SettingSpec, Settings } from '../src/contracts.js';
 import { EstimateError } from '../src/errors.js';
 import { quantileOfSorted, squaredDeviations } from '../src/math/moments.js';
+import { sortAscending } from '../src/math/sort.js';
 import { checkFiniteValues, column } from '../src/sample.js';
 import { spreadUnitOfRange, timesPowerOfTwo, toUnit } from './scaling.js';
-import { sortAscending } from './spacing.js';
 
 export const BIN_RULES = ['sturges', 'scott', 'freedman-diaconis', 'doane', 'sqrt'] as const;
 export type BinRule = (typeof BIN_RULES)[number];
