@@ -1,4 +1,4 @@
-/** Sorting of doubles without per-point objects, shared by the estimators. */
+/** Sorting and ranking of doubles without per-point objects, shared by the estimators. */
 
 /** Below this size the engine's typed-array sort is as fast as the radix sort and allocates nothing. */
 const RADIX_SORT_MIN_LENGTH = 1 << 15;
@@ -13,6 +13,25 @@ const RADIX_SORT_MIN_LENGTH = 1 << 15;
 export function sortAscending(values: Float64Array): Float64Array {
   if (values.length < RADIX_SORT_MIN_LENGTH) return values.sort();
   return radixSortFloat64(values);
+}
+
+/** Replaces each key by its rank among the distinct keys; returns the number of distinct keys. */
+export function rankKeys(keys: Float64Array): number {
+  const distinct = sortAscending(Float64Array.from(keys));
+  let unique = 0;
+  for (let i = 0; i < distinct.length; i++) if (i === 0 || distinct[i] !== distinct[i - 1]) distinct[unique++] = distinct[i];
+  for (let i = 0; i < keys.length; i++) {
+    let lo = 0;
+    let hi = unique - 1;
+    const key = keys[i];
+    while (lo < hi) {
+      const mid = (lo + hi) >>> 1;
+      if (distinct[mid] < key) lo = mid + 1;
+      else hi = mid;
+    }
+    keys[i] = lo;
+  }
+  return unique;
 }
 
 function radixSortFloat64(values: Float64Array): Float64Array {
