@@ -18,6 +18,7 @@ import { renderTable } from '../src/format.js';
 import { registerUserEstimators } from '../src/modules.js';
 import { resolvePlan } from '../src/plan.js';
 import { runPlan } from '../src/runner.js';
+import { DEFAULT_SEED } from '../src/rng.js';
 import { assembleRun, type RunFile } from '../src/results.js';
 import { getEstimator, replaceEstimator } from '../estimators/index.js';
 
@@ -30,7 +31,7 @@ const { plan } = resolvePlan({
   estimators: ['kozachenko-leonenko'],
   sampleSizes: [200, 2000],
   replicates,
-  seed: 20261201,
+  seed: DEFAULT_SEED,
 });
 
 async function run(): Promise<RunFile> {

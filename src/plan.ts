@@ -9,6 +9,7 @@ import type { ErrorObject, ValidateFunction } from 'ajv/dist/2020.js';
 import { loadAjv } from './schema-validator.js';
 import type { Quantity, Scenario } from './contracts.js';
 import { UsageError } from './errors.js';
+import { DEFAULT_SEED } from './rng.js';
 import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from '../estimators/index.js';
 import { parseScenario } from '../scenarios/index.js';
 import { parsePerturbation } from './perturb.js';
@@ -78,7 +79,6 @@ export const DEFAULT_PERTURBATIONS = [
 ];
 
 export const DEFAULT_REPLICATES = 50;
-export const DEFAULT_SEED = 20261201;
 export const DEFAULT_SAMPLE_SIZES = [100, 1000, 10000];
 
 export interface ResolvedPlan {

@@ -26,6 +26,7 @@ import { assembleRun, finishRun, type Cell, type RunFile } from '../results.js';
 import { defaultWorkers, runPlan } from '../runner.js';
 import { replicatesPerUnit } from '../work.js';
 import { UsageError } from '../errors.js';
+import { DEFAULT_SEED } from '../rng.js';
 
 export interface TargetedOptions {
   scenarios: string[];
@@ -67,7 +68,6 @@ export interface TargetedBenchmark {
   workers: number;
 }
 
-export const ADVICE_SEED = 20261201;
 export const DEFAULT_BUDGET_SECONDS = 20;
 
 /** Every registered entropy estimator that supports d, at default settings. */
@@ -125,7 +125,7 @@ function joinRuns(first: RunFile, second: RunFile): RunFile {
 export async function runTargeted(options: TargetedOptions): Promise<TargetedBenchmark> {
   const started = performance.now();
   const elapsed = () => (performance.now() - started) / 1000;
-  const seed = options.seed ?? ADVICE_SEED;
+  const seed = options.seed ?? DEFAULT_SEED;
   const minReplicates = options.minReplicates ?? 20;
   const maxReplicates = options.maxReplicates ?? 1000;
   let perturbations = options.perturbations ?? [];
