@@ -24,7 +24,7 @@
 import tCdf from '@stdlib/stats-base-dists-t-cdf';
 import tQuantile from '@stdlib/stats-base-dists-t-quantile';
 import { UsageError } from './errors.js';
-import type { Cell, RunFile, ScenarioInfo } from './results.js';
+import { cellKey, type Cell, type RunFile, type ScenarioInfo } from './results.js';
 import type { Estimate } from './score.js';
 import { fisherExact, signTest, signTestOf, type SignTest } from './exact-tests.js';
 import { quantileOfSorted, squaredDeviations } from './math/moments.js';
@@ -188,10 +188,6 @@ export interface Comparison {
 }
 
 export type FailOn = 'worse' | 'changed';
-
-export function cellKey(cell: CellRef): string {
-  return `${cell.scenario}|${cell.estimator}|${cell.n}|${cell.perturbation ?? ''}`;
-}
 
 function summary(run: RunFile): RunSummary {
   return {

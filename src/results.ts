@@ -56,6 +56,15 @@ export interface Cell {
   timing: { totalMs: number; meanMs: number };
 }
 
+/**
+ * A cell's key: scenario, estimator spec, n and perturbation. The role is left out on purpose: within a run it
+ * follows from these (only perturbed cells have a perturbation; a tuning point's spec is never a plan
+ * estimator's), and `compare` matches the cells of two runs whatever role each plan gave them.
+ */
+export function cellKey(cell: Pick<Cell, 'scenario' | 'estimator' | 'n' | 'perturbation'>): string {
+  return `${cell.scenario}|${cell.estimator}|${cell.n}|${cell.perturbation ?? ''}`;
+}
+
 export interface Rate {
   scenario: string;
   estimator: string;

@@ -22,7 +22,7 @@
 import { listEstimators, parseEstimatorSpec } from '../../estimators/index.js';
 import type { Plan } from '../plan.js';
 import { resolvePlan } from '../plan.js';
-import { assembleRun, finishRun, type Cell, type RunFile } from '../results.js';
+import { assembleRun, cellKey, finishRun, type Cell, type RunFile } from '../results.js';
 import { defaultWorkers, runPlan } from '../runner.js';
 import { replicatesPerUnit } from '../work.js';
 import { UsageError } from '../errors.js';
@@ -91,11 +91,10 @@ const SECOND_ROUND_SHARE = 0.85;
 
 /** Joins the cells of two runs of the same plan with different seeds: estimates and failures concatenated. */
 function joinRuns(first: RunFile, second: RunFile): RunFile {
-  const key = (c: Cell) => `${c.scenario}|${c.estimator}|${c.n}|${c.perturbation ?? ''}|${c.role}`;
-  const later = new Map(second.cells.map((c) => [key(c), c]));
+  const later = new Map(second.cells.map((c) => [cellKey(c), c]));
   const offset = first.plan.replicates;
   const cells: Cell[] = first.cells.map((c) => {
-    const extra = later.get(key(c));
+    const extra = later.get(cellKey(c));
     if (!extra) return c;
     return {
       ...c,
