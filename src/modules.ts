@@ -8,8 +8,7 @@
  *   const list = await loadEstimatorModules(['lab/estimators.mjs']);
  *   const { replaced, added } = registerUserEstimators(list, { replace: true });
  */
-import { createHash } from 'node:crypto';
-import { existsSync, readFileSync, statSync } from 'node:fs';
+import { existsSync, statSync } from 'node:fs';
 import { extname, isAbsolute, resolve } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import type { Estimator, SettingSpec, SettingValue } from './contracts.js';
@@ -29,11 +28,6 @@ const CHOICE_PATTERN = /^[^\s,=:[\];]+$/;
 /** Resolves a module path as written by the user against a base folder (the working folder, or a plan file's). */
 export function resolveModulePath(path: string, baseDir = process.cwd()): string {
   return isAbsolute(path) ? path : resolve(baseDir, path);
-}
-
-/** sha256 of a module's source: put it beside the path in a plan or run file so an edited module is noticed. */
-export function moduleDigest(path: string): string {
-  return createHash('sha256').update(readFileSync(resolveModulePath(path))).digest('hex');
 }
 
 /** A value as a one-line error message shows it. */
