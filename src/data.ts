@@ -15,12 +15,12 @@ import { parseJson } from './data/json.js';
 import { parseNpy } from './data/npy.js';
 import type { DataTable } from './data/table.js';
 
-export { parseDelimited, readDelimitedFile, type Delimiter, type DelimitedOptions, type DelimitedTable } from './data/delimited.js';
+export { parseDelimited, readDelimitedFile, type Delimiter } from './data/delimited.js';
 export { parseJson } from './data/json.js';
-export { parseNpy, type NpyTable } from './data/npy.js';
+export { parseNpy } from './data/npy.js';
 export { resolveColumns, selectTableColumns } from './data/columns.js';
 export { findRepeats, describeRepeats, sortedOrder, type ColumnRepeats, type RepeatReport } from './data/repeats.js';
-export type { DataTable, ParseOptions } from './data/table.js';
+export type { DataTable } from './data/table.js';
 
 export type DataFormat = 'csv' | 'tsv' | 'text' | 'json' | 'npy';
 

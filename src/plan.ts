@@ -313,4 +313,4 @@ export function drawsFingerprint(plan: Plan): string {
   return createHash('sha256').update(canonical).digest('hex');
 }
 
-export { collect, MAX_REPLICATES, MAX_SAMPLE_SIZE, parseFraction, parseIntegerOption, parseLevel, parseSampleSizes } from './options.js';
+export { collect, MAX_REPLICATES, parseFraction, parseIntegerOption, parseLevel, parseSampleSizes } from './options.js';

@@ -11,7 +11,7 @@ import { UsageError } from './errors.js';
 import { drawsFingerprint, readTextFile, type Plan, type PlanCode } from './plan.js';
 import { environment, type Environment } from './provenance.js';
 import type { RunOutcome, Session, Shard } from './runner.js';
-import { fitRate, scoreCell, type CellScores, type Estimate, type RateFit } from './score.js';
+import { fitRate, scoreCell, type CellScores, type RateFit } from './score.js';
 import { overallRanks, rankCells, type OverallRank, type Ranking } from './ranking.js';
 import type { Skip } from './work.js';
 import { buildContext } from './context.js';
@@ -287,6 +287,6 @@ export function readRunFile(path: string): RunFile {
   return value as unknown as RunFile;
 }
 
-export type { Estimate, OverallRank, Ranking };
+export type { OverallRank, Ranking };
 export { writeFileAtomic };
 export type { RankEntry } from './ranking.js';
