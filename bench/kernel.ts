@@ -121,7 +121,7 @@ function fastVersusExact(n: number): string[] {
   for (const dim of [2, 3]) {
     for (const [name, sample] of [
       ['normal', normalSample(`bench-kernel-error-normal-${dim}`, n, dim)],
-      ['lognormal σ = 1 (skewed)', parseScenario(`lognormal-mv:dim=${dim},sigma=1`).sample(rngFromSeed(`bench-kernel-error-skewed-${dim}`), n) as Sample],
+      ['lognormal σ = 1 (skewed)', parseScenario(`lognormal-mv:dim=${dim},sigma=1`).sample(rngFromSeed(`bench-kernel-error-skewed-${dim}`), n)],
       ['3 clusters', clusteredSample(`bench-kernel-error-clusters-${dim}`, n, dim)],
     ] as const) {
       const data = prepareKernelData(sample);

@@ -18,6 +18,7 @@ import { renderTable } from '../src/core/format.js';
 import { registerUserEstimators } from '../src/harness/modules.js';
 import { resolvePlan } from '../src/harness/plan.js';
 import { runPlan } from '../src/harness/runner.js';
+import { DEFAULT_SEED } from '../src/core/rng.js';
 import { assembleRun, type RunFile } from '../src/analysis/results.js';
 import { getEstimator, replaceEstimator } from '../estimators/index.js';
 
@@ -30,7 +31,7 @@ const { plan } = resolvePlan({
   estimators: ['kozachenko-leonenko'],
   sampleSizes: [200, 2000],
   replicates,
-  seed: 20261201,
+  seed: DEFAULT_SEED,
 });
 
 async function run(): Promise<RunFile> {

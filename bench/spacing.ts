@@ -12,7 +12,8 @@ import { fileURLToPath, pathToFileURL } from 'node:url';
 import normalRandom from '@stdlib/random-base-normal';
 import type { Sample } from '../src/core/contracts.js';
 import { rngFromSeed } from '../src/core/rng.js';
-import { sortAscending, spacingEstimators } from '../estimators/spacing.js';
+import { spacingEstimators } from '../estimators/spacing.js';
+import { sortAscending } from '../src/math/sort.js';
 
 const N = 1_000_000;
 const CORREA_SCIPY_N = 100_000;

@@ -12,9 +12,9 @@ import type { Estimator, Sample, Settings } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { KnnIndex } from '../src/math/knn.js';
 import { solveLower } from '../src/math/linalg.js';
+import { rankKeys, sortAscending } from '../src/math/sort.js';
 import { type AxisBins, BIN_RULES, axisIndices, histogramGrid } from './histogram.js';
 import { columnExtremes, type SpreadUnit, spreadUnitOfExtremes, toUnit } from './scaling.js';
-import { sortAscending } from './spacing.js';
 
 /** The P and Q samples after checking both; returns their sizes. */
 export function checkedPair(id: string, sample: Sample): { n: number; m: number; dim: number; p: Float64Array; q: Float64Array } {
@@ -110,24 +110,6 @@ export function knnDivergence(p: Float64Array, n: number, q: Float64Array, m: nu
 // Histogram
 
 const MAX_EXACT_INTEGER = 2 ** 53;
-
-/** Replaces each key by its rank among the distinct keys; returns the number of distinct keys. */
-function rankKeys(keys: Float64Array): number {
-  const distinct = sortAscending(Float64Array.from(keys));
-  let unique = 0;
-  for (let i = 0; i < distinct.length; i++) if (i === 0 || distinct[i] !== distinct[i - 1]) distinct[unique++] = distinct[i];
-  for (let i = 0; i < keys.length; i++) {
-    let lo = 0;
-    let hi = unique - 1;
-    while (lo < hi) {
-      const mid = (lo + hi) >>> 1;
-      if (distinct[mid] < keys[i]) lo = mid + 1;
-      else hi = mid;
-    }
-    keys[i] = lo;
-  }
-  return unique;
-}
 
 /** One integer cell key per point (P rows first, then Q rows) on the grid; keys stay below 2^53. */
 function cellKeys(p: Float64Array, n: number, q: Float64Array, m: number, dim: number, grid: readonly AxisBins[]): Float64Array {

@@ -49,9 +49,9 @@
 import type { Estimator, Sample, SettingSpec, Settings } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { quantileOfSorted, squaredDeviations } from '../src/math/moments.js';
+import { rankKeys, sortAscending } from '../src/math/sort.js';
 import { checkFiniteValues, column } from '../src/core/sample.js';
 import { spreadUnitOfRange, timesPowerOfTwo, toUnit } from './scaling.js';
-import { sortAscending } from './spacing.js';
 
 export const BIN_RULES = ['sturges', 'scott', 'freedman-diaconis', 'doane', 'sqrt'] as const;
 export type BinRule = (typeof BIN_RULES)[number];
@@ -249,25 +249,6 @@ export function axisIndices(values: Float64Array, count: number, dim: number, ax
     else if (index < last && x >= origin + (index + 1) * binWidth) index++;
     out[i] = index;
   }
-}
-
-/** Replaces each key by its rank among the distinct keys; returns the number of distinct keys. */
-function rankKeys(keys: Float64Array): number {
-  const distinct = sortAscending(Float64Array.from(keys));
-  let unique = 0;
-  for (let i = 0; i < distinct.length; i++) if (i === 0 || distinct[i] !== distinct[i - 1]) distinct[unique++] = distinct[i];
-  for (let i = 0; i < keys.length; i++) {
-    let lo = 0;
-    let hi = unique - 1;
-    const key = keys[i];
-    while (lo < hi) {
-      const mid = (lo + hi) >>> 1;
-      if (distinct[mid] < key) lo = mid + 1;
-      else hi = mid;
-    }
-    keys[i] = lo;
-  }
-  return unique;
 }
 
 /** Σ c log c over occupied cells and the number of occupied cells, for integer keys in [0, keySpace). */

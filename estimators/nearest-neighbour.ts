@@ -135,6 +135,9 @@ export function neighbourOrderWeights(k: number, dim: number): NeighbourOrderWei
 /**
  * Minimum-norm solutions of A w = b for a full-row-rank A (rows ≤ cols), by Householder QR of Aᵀ = QR:
  * then A = Rᵀ Qᵀ, so w = Q [R⁻ᵀ b; 0].
+ * Kept by hand rather than ml-matrix's QrDecomposition: that one scales its Householder vectors differently,
+ * and the weights it gives differ in the last bits (for 712 of the 755 valid (d ≤ 20, k ≤ 40) pairs, already
+ * 5.6e-17 at d = 2, k = 2), so every weighted estimate would move off the baseline.
  */
 function minimumNormSolver(matrix: Float64Array, rows: number, cols: number): (rhs: Float64Array) => Float64Array {
   // Work on Aᵀ (cols × rows), column-major by constraint: transposed[r][c] = A[r][c].

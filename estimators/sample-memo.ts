@@ -31,7 +31,7 @@ export class SampleMemo<T> {
   /** Keeps `result` for these values and key, replacing what was kept. */
   set(data: Float64Array, key: string, result: T): void {
     let byKey = this.kept.get(data.buffer);
-    if (!byKey) this.kept.set(data.buffer, (byKey = new Map()));
+    if (!byKey) this.kept.set(data.buffer, (byKey = new Map<string, { values: Float64Array; result: T }>()));
     const kept = byKey.get(key);
     // A replacement for the same values reuses their copy.
     byKey.set(key, { values: kept && sameValues(kept.values, data) ? kept.values : Float64Array.from(data), result });

@@ -224,7 +224,7 @@ const uniformBall: ScenarioFamily = {
         return r2 <= p.radius * p.radius ? -logVolume : -Infinity;
       },
       moments: {
-        mean: Array(p.dim).fill(0),
+        mean: new Array<number>(p.dim).fill(0),
         covariance: Array.from({ length: p.dim }, (_, i) =>
           Array.from({ length: p.dim }, (_, j) => (i === j ? (p.radius * p.radius) / (p.dim + 2) : 0)),
         ),
@@ -241,7 +241,7 @@ const studentTMv: ScenarioFamily = {
   summary: 'multivariate Student t (equicorrelated shape); heavy tails shared by all coordinates',
   params: tSpecs,
   create: (p) => {
-    const shape = equicorrelated('student-t-mv', p.dim, p.rho, Array(p.dim).fill(p.sigma));
+    const shape = equicorrelated('student-t-mv', p.dim, p.rho, new Array<number>(p.dim).fill(p.sigma));
     const chol = factor('student-t-mv', shape);
     const d = p.dim;
     const nu = p.nu;
@@ -279,7 +279,7 @@ const studentTMv: ScenarioFamily = {
       marginals: Array.from({ length: d }, () => univariateDensity('student-t', { nu, mu: 0, sigma: p.sigma })),
       moments:
         nu > 2
-          ? { mean: Array(d).fill(0), covariance: shape.map((row) => row.map((v) => (v * nu) / (nu - 2))) }
+          ? { mean: new Array<number>(d).fill(0), covariance: shape.map((row) => row.map((v) => (v * nu) / (nu - 2))) }
           : undefined,
     };
   },
@@ -299,7 +299,7 @@ const lognormalMv: ScenarioFamily = {
   params: lognormalSpecs,
   create: (p) => {
     const d = p.dim;
-    const covariance = equicorrelated('lognormal-mv', d, p.rho, Array(d).fill(p.sigma));
+    const covariance = equicorrelated('lognormal-mv', d, p.rho, new Array<number>(d).fill(p.sigma));
     const chol = factor('lognormal-mv', covariance);
     const mean = Array(d).fill(p.mu);
     let oneSigmaOne = 0;
@@ -334,7 +334,7 @@ const lognormalMv: ScenarioFamily = {
       },
       marginals: Array.from({ length: d }, () => univariateDensity('lognormal', { mu: p.mu, sigma: p.sigma })),
       moments: {
-        mean: Array(d).fill(m),
+        mean: new Array<number>(d).fill(m),
         covariance: covariance.map((row) => row.map((v) => Math.exp(2 * p.mu + p.sigma * p.sigma) * Math.expm1(v))),
       },
     };

@@ -22,7 +22,8 @@ import { correlationMatrix, profileSample, skewness } from '../src/analysis/advi
 import { hillK, hillTail, hillXi } from '../src/analysis/advise/tails.js';
 import { edgeEvidence, supportFromEdges } from '../src/analysis/advise/edges.js';
 import { mixtureParameters, selectMixture, symmetricEigenvalues } from '../src/analysis/advise/mixture.js';
-import { quantileSorted, smoothedBootstrap } from '../src/analysis/advise/bootstrap.js';
+import { smoothedBootstrap } from '../src/analysis/advise/bootstrap.js';
+import { quantileOfSorted } from '../src/math/moments.js';
 import { applicableEstimators } from '../src/analysis/advise/benchmark.js';
 import { adviseFile } from '../src/analysis/advise/file.js';
 import { adviseSituation, matchScenarios } from '../src/analysis/advise/situation.js';
@@ -264,7 +265,7 @@ describe('the look-alike scenario gaussian-mixture-mv[...]', () => {
 describe('the smoothed bootstrap', () => {
   it('quantiles interpolate like numpy.quantile', () => {
     const sorted = Float64Array.from(fixture.quantiles.values).sort();
-    fixture.quantiles.probabilities.forEach((p, i) => expect(quantileSorted(sorted, p)).toBeCloseTo(fixture.quantiles.quantiles[i], 13));
+    fixture.quantiles.probabilities.forEach((p, i) => expect(quantileOfSorted(sorted, p)).toBeCloseTo(fixture.quantiles.quantiles[i], 13));
   });
 
   it('gives an interval as wide as the known sampling spread of the Gaussian estimator', () => {

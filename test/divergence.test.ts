@@ -66,7 +66,7 @@ function bruteKnnDivergence(sample: Sample, k: number): number {
 
 const fixtureSamples = fixture.divergence_samples.map((c) => ({
   ...c,
-  sample: { n: c.n, dim: c.dim, data: Float64Array.from(c.p), q: { n: c.m, dim: c.dim, data: Float64Array.from(c.q) } } as Sample,
+  sample: { n: c.n, dim: c.dim, data: Float64Array.from(c.p), q: { n: c.m, dim: c.dim, data: Float64Array.from(c.q) } } satisfies Sample,
 }));
 
 function meanAndSe(values: number[]): { mean: number; se: number } {

@@ -395,7 +395,7 @@ describe('d = 2, 3 grid path (split Gaussian) against the direct O(n²) sum and 
 
   // Skewed: the multivariate lognormal (heavier right tail than the exponential); heavy-tailed: the 3-D
   // Student t (ν = 3); clustered: three tight clusters far apart against their width.
-  const fromScenario = (spec: string, seed: string, n: number): Sample => parseScenario(spec).sample(replicateRng(7, seed, n, 0), n) as Sample;
+  const fromScenario = (spec: string, seed: string, n: number): Sample => parseScenario(spec).sample(replicateRng(7, seed, n, 0), n);
   function clustered(seed: string, n: number, dim: number): Sample {
     const g = normalDraws(seed, n * dim, 0, 0.15);
     const data = new Float64Array(n * dim);
@@ -700,7 +700,7 @@ describe('heavy tails and far outliers: the exact leave-one-out value on every p
     const scenario = parseScenario('student-t:nu=3');
     let belowNormal = 0;
     for (let r = 0; r < 5; r++) {
-      const sample = scenario.sample(replicateRng(1, scenario.id, 1000, r), 1000) as Sample;
+      const sample = scenario.sample(replicateRng(1, scenario.id, 1000, r), 1000);
       const h = kernelEstimator.resolve!(sample, {}).bandwidth as number;
       const reference = independentEntropy1d(sample.data, h); // plain O(n²) log-sum-exp above
       if (reference.minLogDensity < LOG_SMALLEST_NORMAL) belowNormal++;
@@ -718,7 +718,7 @@ describe('heavy tails and far outliers: the exact leave-one-out value on every p
     const scenario = parseScenario('student-t-mv:dim=3,nu=4');
     let belowNormal = 0;
     for (let r = 0; r < 3; r++) {
-      const sample = scenario.sample(replicateRng(1, scenario.id, 1000, r), 1000) as Sample;
+      const sample = scenario.sample(replicateRng(1, scenario.id, 1000, r), 1000);
       const h = kernelEstimator.resolve!(sample, {}).bandwidth as number;
       const reference = independentEntropyMd(sample, h); // plain O(n²) log-sum-exp with ml-matrix Σ̂⁻¹ above
       if (reference.minLogDensity < LOG_SMALLEST_NORMAL) belowNormal++;

@@ -128,7 +128,7 @@ function replicates(scenario: Scenario, n: number, count: number, seed: number, 
   return Array.from({ length: count }, (_, r) => run(scenario.sample(replicateRng(seed, scenario.id, n, r), n)));
 }
 
-const fixtureSamples = fixture.mi_samples.map((c) => ({ ...c, sample: { n: c.n, dim: c.dim, xDim: c.xDim, data: Float64Array.from(c.data) } as Sample }));
+const fixtureSamples = fixture.mi_samples.map((c) => ({ ...c, sample: { n: c.n, dim: c.dim, xDim: c.xDim, data: Float64Array.from(c.data) } satisfies Sample }));
 
 describe('ksg1 and ksg2', () => {
   it('agree with an O(n²) brute force (max-norm distances, @stdlib digamma) to 1e-12 relative, d = 1+1 and 2+3', () => {

@@ -220,7 +220,7 @@ describe('the robustness section', () => {
     const sizes = [...new Set(run.cells.map((c) => c.n))].length;
     for (const info of run.scenarios) {
       const terminalRows = scenarioTables(run, 'nats')
-        .split(/\n(?=\S+  \(d=)/)
+        .split(/\n(?=\S+ {2}\(d=)/)
         .find((block) => block.startsWith(`${info.id}  (`))!
         .split('\n')
         .filter((line) => line.startsWith('│') && !line.includes('estimator'))

@@ -8,7 +8,7 @@ import { Matrix, determinant } from 'ml-matrix';
 import digamma from '@stdlib/math-base-special-digamma';
 import { resolvePlan } from '../src/harness/plan.js';
 import { runPlan } from '../src/harness/runner.js';
-import { assembleRun, type RunFile } from '../src/analysis/results.js';
+import { assembleRun, cellKey, type RunFile } from '../src/analysis/results.js';
 import { parsePerturbation, type PreparedPerturbation } from '../src/harness/perturb.js';
 import { parseScenario } from '../scenarios/index.js';
 import { replicateRng } from '../src/core/rng.js';
@@ -156,6 +156,8 @@ describe('quantization and tuning', () => {
       seed: 3,
       robustness: { perturbations: [], tuning: true },
     });
+    // Main and tuning cells share scenario, n and perturbation; their estimator specs alone tell them apart.
+    expect(new Set(result.cells.map(cellKey)).size).toBe(result.cells.length);
     const curves = result.robustness!.tuning;
     const kl = curves.find((c) => c.estimator.startsWith('kozachenko-leonenko') && c.setting === 'k')!;
     expect(kl.points.map((p) => p.value)).toEqual([1, 2, 3, 4, 5, 6, 7, 8, 9, 10]);

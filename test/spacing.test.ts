@@ -6,7 +6,8 @@ import exponentialRandom from '@stdlib/random-base-exponential';
 import type { Estimator, Sample } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { rngFromSeed } from '../src/core/rng.js';
-import { correaEntropy, sortAscending, spacingEstimators } from '../estimators/spacing.js';
+import { correaEntropy, spacingEstimators } from '../estimators/spacing.js';
+import { sortAscending } from '../src/math/sort.js';
 
 interface SpacingFixture {
   versions: { scipy: string; numpy: string };

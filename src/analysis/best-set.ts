@@ -76,7 +76,7 @@ export function modelConfidenceSet(losses: ArrayLike<number>[], options: BestSet
   if (models === 0) return { pValues: [], inSet: [], eliminationOrder: [], resamples };
   if (models === 1 || replicates < 2) {
     // Nothing to compare with, or no spread to compare by: every estimator stays.
-    return { pValues: Array(models).fill(1), inSet: Array(models).fill(true), eliminationOrder: [...Array(models).keys()], resamples };
+    return { pValues: new Array<number>(models).fill(1), inSet: new Array<boolean>(models).fill(true), eliminationOrder: [...Array(models).keys()], resamples };
   }
   const indices = options.indices ?? bootstrapIndices(options.seed, replicates, resamples);
   if (indices.length !== resamples * replicates) throw new Error('modelConfidenceSet: indices must hold resamples × replicates entries');

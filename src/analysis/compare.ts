@@ -24,7 +24,7 @@
 import tCdf from '@stdlib/stats-base-dists-t-cdf';
 import tQuantile from '@stdlib/stats-base-dists-t-quantile';
 import { UsageError } from '../core/errors.js';
-import type { Cell, RunFile, ScenarioInfo } from './results.js';
+import { cellKey, type Cell, type RunFile, type ScenarioInfo } from './results.js';
 import type { ValueWithSe } from './score.js';
 import { fisherExact, signTest, signTestOf, type SignTest } from './exact-tests.js';
 import { quantileOfSorted, squaredDeviations } from '../math/moments.js';
@@ -188,10 +188,6 @@ export interface Comparison {
 }
 
 export type FailOn = 'worse' | 'changed';
-
-export function cellKey(cell: CellRef): string {
-  return `${cell.scenario}|${cell.estimator}|${cell.n}|${cell.perturbation ?? ''}`;
-}
 
 function summary(run: RunFile): RunSummary {
   return {
@@ -399,7 +395,7 @@ function compareCell(
   let sign: SignTest | null = null;
   let medianChange: number | null = null;
   let changes = { bias: unpairedChange(base.scores.bias, next.scores.bias), sd: unpairedChange(base.scores.sd, next.scores.sd), rmse: unpairedChange(base.scores.rmse, next.scores.rmse) };
-  let common = 0;
+  let common: number;
   if (paired) {
     const nextValues: number[] = [];
     const baseValues: number[] = [];

@@ -4,7 +4,7 @@
  */
 import { UsageError } from '../core/errors.js';
 import { codeDifference } from '../harness/plan.js';
-import { finishRun, type Cell, type RunFile } from './results.js';
+import { cellKey, finishRun, type Cell, type RunFile } from './results.js';
 
 export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
   if (!files.length) throw new UsageError('merge needs at least one shard file');
@@ -32,12 +32,11 @@ export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
   const cells = new Map<string, Cell>();
   const covered = new Map<string, Set<number>>();
   const order: string[] = [];
-  const key = (c: Cell) => `${c.scenario}|${c.estimator}|${c.n}|${c.perturbation ?? ''}`;
   for (const f of files) {
     for (const cell of f.run.cells) {
-      const k = key(cell);
+      const k = cellKey(cell);
       if (!cells.has(k)) {
-        cells.set(k, { ...cell, estimates: Array(plan.replicates).fill(null), failures: [], timing: { totalMs: 0, meanMs: 0 } });
+        cells.set(k, { ...cell, estimates: new Array<number | null>(plan.replicates).fill(null), failures: [], timing: { totalMs: 0, meanMs: 0 } });
         covered.set(k, new Set());
         order.push(k);
       }

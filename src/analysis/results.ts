@@ -11,7 +11,7 @@ import { UsageError } from '../core/errors.js';
 import { drawsFingerprint, readTextFile, type Plan, type PlanCode } from '../harness/plan.js';
 import { environment, type Environment } from '../core/provenance.js';
 import type { RunOutcome, Session, Shard } from '../harness/runner.js';
-import { fitRate, scoreCell, type CellScores, type ValueWithSe, type RateFit } from './score.js';
+import { fitRate, scoreCell, type CellScores, type RateFit } from './score.js';
 import { overallRanks, rankCells, type OverallRank, type Ranking } from './ranking.js';
 import type { Skip } from '../harness/work.js';
 import { buildContext } from '../harness/context.js';
@@ -20,6 +20,15 @@ import { robustnessSection, type RobustnessSection } from './robustness.js';
 import type { Cell, CellFailure, ScenarioInfo } from './cells.js';
 
 export const SCHEMA_VERSION = 2;
+
+/**
+ * A cell's key: scenario, estimator spec, n and perturbation. The role is left out on purpose: within a run it
+ * follows from these (only perturbed cells have a perturbation; a tuning point's spec is never a plan
+ * estimator's), and `compare` matches the cells of two runs whatever role each plan gave them.
+ */
+export function cellKey(cell: Pick<Cell, 'scenario' | 'estimator' | 'n' | 'perturbation'>): string {
+  return `${cell.scenario}|${cell.estimator}|${cell.n}|${cell.perturbation ?? ''}`;
+}
 
 export interface Rate {
   scenario: string;
@@ -98,7 +107,7 @@ export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
         perturbation: series.variant > 0 ? context.perturbations[series.variant - 1].spec : null,
         shift: prepared && 'shift' in prepared ? prepared.shift : null,
         tuning: tuningOf(series.estimator),
-        estimates: Array(plan.replicates).fill(null),
+        estimates: new Array<number | null>(plan.replicates).fill(null),
         failures: [],
         scores: undefined as unknown as CellScores,
         timing: { totalMs: 0, meanMs: 0 },
@@ -243,6 +252,6 @@ export function readRunFile(path: string): RunFile {
   return value as unknown as RunFile;
 }
 
-export type { Cell, CellFailure, ValueWithSe, OverallRank, Ranking, ScenarioInfo };
+export type { Cell, CellFailure, OverallRank, Ranking, ScenarioInfo };
 export { writeFileAtomic };
 export type { RankEntry } from './ranking.js';

@@ -18,12 +18,6 @@ export interface Sample {
   q?: Sample;
 }
 
-/** Two samples, from P and from Q, for a divergence D(P || Q). */
-export interface SamplePair {
-  p: Sample;
-  q: Sample;
-}
-
 /** A uniform stream on [0, 1) with 53-bit resolution. */
 export type Rng = () => number;
 

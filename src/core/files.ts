@@ -218,7 +218,7 @@ export function acquireLock(path: string, hint?: string): () => void {
     } finally {
       rmSync(draft, { force: true });
     }
-    let holder: LockHolder | null = null;
+    let holder: LockHolder | null;
     try {
       holder = JSON.parse(readFileSync(lock, 'utf8')) as LockHolder;
     } catch {

@@ -17,12 +17,6 @@ export function formatValue(x: number | undefined, digits = 6): string {
   return x.toFixed(Math.max(0, digits - 1 - Math.floor(Math.log10(magnitude))));
 }
 
-export function formatParams(params: Record<string, number | string>): string {
-  return Object.entries(params)
-    .map(([k, v]) => `${k}=${v}`)
-    .join(', ');
-}
-
 /** A plain bordered table; colours off so output pipes cleanly. */
 export function renderTable(head: string[], rows: (string | number)[][], options: { align?: ('left' | 'right')[]; wrap?: number[] } = {}): string {
   const table = new Table({

@@ -2,6 +2,9 @@ import { createHash } from 'node:crypto';
 import seedrandom from 'seedrandom';
 import type { Rng } from './contracts.js';
 
+/** The base seed when none is given: plans without one, the default plans and the advice's benchmarks. */
+export const DEFAULT_SEED = 20261201;
+
 /**
  * Per-replicate seeds. A replicate's sample depends only on (base seed, scenario id, n, replicate index),
  * through a hash of a canonical string, so any replicate can be regenerated alone and every estimator sees

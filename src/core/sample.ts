@@ -2,13 +2,6 @@ import type { Sample } from './contracts.js';
 import { EstimateError } from './errors.js';
 import { rngFromSeed } from './rng.js';
 
-/** Wraps row-major values as a sample; checks the length. */
-export function makeSample(data: Float64Array, dim: number): Sample {
-  if (dim < 1 || !Number.isInteger(dim)) throw new RangeError(`dim must be a positive integer, got ${dim}`);
-  if (data.length % dim !== 0) throw new RangeError(`data length ${data.length} is not a multiple of dim ${dim}`);
-  return { n: data.length / dim, dim, data };
-}
-
 /** Copy of column j. */
 export function column(sample: Sample, j: number): Float64Array {
   const out = new Float64Array(sample.n);

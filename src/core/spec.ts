@@ -60,10 +60,6 @@ function describeRange(spec: { min?: number; max?: number; minExclusive?: boolea
   return parts.length ? `${kind} ${parts.join(' and ')}` : kind;
 }
 
-export function describeParam(spec: ParamSpec): string {
-  return describeRange(spec);
-}
-
 function inRange(x: number, spec: { min?: number; max?: number; minExclusive?: boolean; maxExclusive?: boolean; integer?: boolean }): boolean {
   if (!Number.isFinite(x)) return false;
   if (spec.integer && !Number.isInteger(x)) return false;

@@ -15,12 +15,12 @@ import { parseJson } from './json.js';
 import { parseNpy } from './npy.js';
 import type { DataTable } from './table.js';
 
-export { parseDelimited, readDelimitedFile, type Delimiter, type DelimitedOptions, type DelimitedTable } from './delimited.js';
+export { parseDelimited, readDelimitedFile, type Delimiter } from './delimited.js';
 export { parseJson } from './json.js';
-export { parseNpy, type NpyTable } from './npy.js';
+export { parseNpy } from './npy.js';
 export { resolveColumns, selectTableColumns } from './columns.js';
 export { findRepeats, describeRepeats, sortedOrder, type ColumnRepeats, type RepeatReport } from './repeats.js';
-export type { DataTable, ParseOptions } from './table.js';
+export type { DataTable } from './table.js';
 
 export type DataFormat = 'csv' | 'tsv' | 'text' | 'json' | 'npy';
 

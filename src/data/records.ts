@@ -136,6 +136,7 @@ export class RecordScanner {
     for (;;) {
       if (this.pos >= length) {
         if (this.final) return 'end';
+        // eslint-disable-next-line @typescript-eslint/only-throw-error -- a sentinel caught at the feed, no stack needed
         throw INCOMPLETE;
       }
       this.recordLine = this.line;
@@ -284,6 +285,7 @@ export class RecordScanner {
     let escaped = false;
     for (;;) {
       if (pos >= length) {
+        // eslint-disable-next-line @typescript-eslint/only-throw-error -- a sentinel caught at the feed, no stack needed
         if (!this.final) throw INCOMPLETE;
         throw new UsageError(
           `${this.source} line ${openLine}, column ${this.fieldCount + 1}: a quoted field is never closed; end it with " (write "" for a literal quote)`,

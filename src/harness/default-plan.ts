@@ -6,6 +6,7 @@
 import { listEstimators } from '../../estimators/index.js';
 import type { Quantity } from '../core/contracts.js';
 import type { PlanInput } from './plan.js';
+import { DEFAULT_SEED } from '../core/rng.js';
 import { catalog } from '../../scenarios/index.js';
 
 export const DEFAULT_PLAN_SCENARIOS = [
@@ -44,7 +45,7 @@ export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
       // The kernel MI estimator is quadratic in n in several dimensions: 1000 keeps the plan within a minute.
       sampleSizes: quantity === 'mutual-information' ? [100, 300, 1000] : [100, 500, 2000],
       replicates: 30,
-      seed: 20261201,
+      seed: DEFAULT_SEED,
       robustness: {
         sampleSize: quantity === 'mutual-information' ? 300 : 500,
         perturbations:
@@ -64,7 +65,7 @@ export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
       .map((e) => e.id),
     sampleSizes: [100, 500, 2000],
     replicates: 30,
-    seed: 20261201,
+    seed: DEFAULT_SEED,
     robustness: { sampleSize: 500 },
   };
 }

@@ -8,8 +8,7 @@
  *   const list = await loadEstimatorModules(['lab/estimators.mjs']);
  *   const { replaced, added } = registerUserEstimators(list, { replace: true });
  */
-import { createHash } from 'node:crypto';
-import { existsSync, readFileSync, statSync } from 'node:fs';
+import { existsSync, statSync } from 'node:fs';
 import { extname, isAbsolute, resolve } from 'node:path';
 import { pathToFileURL } from 'node:url';
 import type { Estimator, SettingSpec, SettingValue } from '../core/contracts.js';
@@ -31,11 +30,6 @@ export function resolveModulePath(path: string, baseDir = process.cwd()): string
   return isAbsolute(path) ? path : resolve(baseDir, path);
 }
 
-/** sha256 of a module's source: put it beside the path in a plan or run file so an edited module is noticed. */
-export function moduleDigest(path: string): string {
-  return createHash('sha256').update(readFileSync(resolveModulePath(path))).digest('hex');
-}
-
 /** A value as a one-line error message shows it. */
 function show(value: unknown): string {
   if (value === undefined) return 'nothing';
@@ -45,6 +39,7 @@ function show(value: unknown): string {
   if (Array.isArray(value)) return `[${value.map(show).join(', ')}]`;
   if (value === null) return 'null';
   if (typeof value === 'object') return 'an object';
+  // eslint-disable-next-line @typescript-eslint/no-base-to-string -- objects returned above; a boolean, bigint or symbol is left
   return String(value);
 }
 

@@ -9,6 +9,7 @@ import type { ErrorObject, ValidateFunction } from 'ajv/dist/2020.js';
 import { loadAjv } from '../core/schema-validator.js';
 import type { Quantity, Scenario } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
+import { DEFAULT_SEED } from '../core/rng.js';
 import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from '../../estimators/index.js';
 import { parseScenario } from '../../scenarios/index.js';
 import { parsePerturbation } from './perturb.js';
@@ -87,7 +88,6 @@ export const DEFAULT_PERTURBATIONS = [
 ];
 
 export const DEFAULT_REPLICATES = 50;
-export const DEFAULT_SEED = 20261201;
 export const DEFAULT_SAMPLE_SIZES = [100, 1000, 10000];
 
 export interface ResolvedPlan {
@@ -167,7 +167,7 @@ export function checkPlanShape(value: unknown, source: string): PlanInput {
     const deepest = [...errors].sort((a, b) => b.instancePath.length - a.instancePath.length || vague(a) - vague(b))[0];
     throw new UsageError(`${source}: ${deepest ? describeSchemaError(deepest) : 'is not a valid plan'}`);
   }
-  return value as unknown as PlanInput;
+  return value as PlanInput;
 }
 
 /** Reads a user-named text file; failing that, a usage error "cannot read <what> <path>: <why>". */
@@ -322,4 +322,4 @@ export function drawsFingerprint(plan: Plan): string {
   return createHash('sha256').update(canonical).digest('hex');
 }
 
-export { collect, MAX_REPLICATES, MAX_SAMPLE_SIZE, parseFraction, parseIntegerOption, parseLevel, parseSampleSizes } from '../core/options.js';
+export { collect, MAX_REPLICATES, parseFraction, parseIntegerOption, parseLevel, parseSampleSizes } from '../core/options.js';

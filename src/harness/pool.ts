@@ -55,6 +55,7 @@ export function runOnPool(plan: Plan, units: Unit[], options: PoolOptions): Prom
     const pending: Job[] = units.map((unit) => ({ unit, from: unit.repStart, skip: [], result: emptyUnitResult(unit), deaths: 0 }));
     const workers = new Set<Slot>();
     let finished = false;
+    // eslint-disable-next-line prefer-const -- finish() below may run before the watchdog is started
     let watchdog: ReturnType<typeof setInterval> | undefined;
 
     const finish = (interrupted: boolean, error?: unknown) => {
@@ -62,6 +63,7 @@ export function runOnPool(plan: Plan, units: Unit[], options: PoolOptions): Prom
       finished = true;
       if (watchdog) clearInterval(watchdog);
       for (const w of workers) void w.thread.terminate();
+      // eslint-disable-next-line @typescript-eslint/prefer-promise-reject-errors -- a worker's error is passed on as it came
       if (error) reject(error);
       else resolve(interrupted);
     };

@@ -172,7 +172,7 @@ export function executeReplicate(unit: Unit, context: WorkContext, replicate: nu
       if (series.variant !== v || hooks.skip?.(k)) return;
       hooks.onStart?.(k, replicate);
       const started = performance.now();
-      let value = NaN;
+      let value: number;
       try {
         value = runEstimator(all[series.estimator], sample).value;
         if (!Number.isFinite(value)) {

@@ -22,10 +22,11 @@
 import { listEstimators, parseEstimatorSpec } from '../../../estimators/index.js';
 import type { Plan } from '../../harness/plan.js';
 import { resolvePlan } from '../../harness/plan.js';
-import { assembleRun, finishRun, type Cell, type RunFile } from '../results.js';
+import { assembleRun, cellKey, finishRun, type Cell, type RunFile } from '../results.js';
 import { defaultWorkers, runPlan } from '../../harness/runner.js';
 import { replicatesPerUnit } from '../../harness/work.js';
 import { UsageError } from '../../core/errors.js';
+import { DEFAULT_SEED } from '../../core/rng.js';
 
 export interface TargetedOptions {
   scenarios: string[];
@@ -67,7 +68,6 @@ export interface TargetedBenchmark {
   workers: number;
 }
 
-export const ADVICE_SEED = 20261201;
 export const DEFAULT_BUDGET_SECONDS = 20;
 
 /** Every registered entropy estimator that supports d, at default settings. */
@@ -91,11 +91,10 @@ const SECOND_ROUND_SHARE = 0.85;
 
 /** Joins the cells of two runs of the same plan with different seeds: estimates and failures concatenated. */
 function joinRuns(first: RunFile, second: RunFile): RunFile {
-  const key = (c: Cell) => `${c.scenario}|${c.estimator}|${c.n}|${c.perturbation ?? ''}|${c.role}`;
-  const later = new Map(second.cells.map((c) => [key(c), c]));
+  const later = new Map(second.cells.map((c) => [cellKey(c), c]));
   const offset = first.plan.replicates;
   const cells: Cell[] = first.cells.map((c) => {
-    const extra = later.get(key(c));
+    const extra = later.get(cellKey(c));
     if (!extra) return c;
     return {
       ...c,
@@ -125,7 +124,7 @@ function joinRuns(first: RunFile, second: RunFile): RunFile {
 export async function runTargeted(options: TargetedOptions): Promise<TargetedBenchmark> {
   const started = performance.now();
   const elapsed = () => (performance.now() - started) / 1000;
-  const seed = options.seed ?? ADVICE_SEED;
+  const seed = options.seed ?? DEFAULT_SEED;
   const minReplicates = options.minReplicates ?? 20;
   const maxReplicates = options.maxReplicates ?? 1000;
   let perturbations = options.perturbations ?? [];

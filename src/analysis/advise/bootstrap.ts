@@ -25,6 +25,7 @@
 import { normalRandom } from '../../math/random.js';
 import type { Sample } from '../../core/contracts.js';
 import { cholesky } from '../../math/linalg.js';
+import { quantileOfSorted } from '../../math/moments.js';
 import { rngFromSeed } from '../../core/rng.js';
 import { runEstimator, type ConfiguredEstimator } from '../../../estimators/index.js';
 
@@ -59,14 +60,6 @@ export const DEFAULT_SMOOTHING = 0.25;
 /** Silverman's rule-of-thumb factor (4/(d + 2))^{1/(d+4)} n^{−1/(d+4)} for a Gaussian kernel. */
 export function silvermanFactor(n: number, dim: number): number {
   return Math.pow(4 / (dim + 2), 1 / (dim + 4)) * Math.pow(n, -1 / (dim + 4));
-}
-
-/** Quantile by linear interpolation between order statistics (type 7) of sorted values. */
-export function quantileSorted(sorted: ArrayLike<number>, p: number): number {
-  const position = (sorted.length - 1) * p;
-  const below = Math.floor(position);
-  const above = Math.min(sorted.length - 1, below + 1);
-  return sorted[below] + (position - below) * (sorted[above] - sorted[below]);
 }
 
 /** Sample mean and a Cholesky factor of the sample covariance (a tiny ridge if it is singular). */
@@ -125,12 +118,12 @@ export function smoothedBootstrap(sample: Sample, configured: ConfiguredEstimato
   }
   const sorted = Float64Array.from(values).sort();
   const alpha = 1 - options.level;
-  const centre = sorted.length ? quantileSorted(sorted, 0.5) : NaN;
+  const centre = sorted.length ? quantileOfSorted(sorted, 0.5) : NaN;
   const shift = centre - estimate;
   return {
     level: options.level,
-    lower: sorted.length ? quantileSorted(sorted, alpha / 2) - shift : NaN,
-    upper: sorted.length ? quantileSorted(sorted, 1 - alpha / 2) - shift : NaN,
+    lower: sorted.length ? quantileOfSorted(sorted, alpha / 2) - shift : NaN,
+    upper: sorted.length ? quantileOfSorted(sorted, 1 - alpha / 2) - shift : NaN,
     resamples: sorted.length,
     failures,
     bandwidth: h,

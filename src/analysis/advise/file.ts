@@ -22,13 +22,14 @@
  */
 import type { Sample } from '../../core/contracts.js';
 import { EstimateError, UsageError } from '../../core/errors.js';
+import { DEFAULT_SEED } from '../../core/rng.js';
 import { MAX_BUDGET_SECONDS, tooFewPoints } from './situation.js';
 import { parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../../estimators/index.js';
 import { describeSeconds, largestRowsWhere, predictedReplicateSeconds, predictedSeconds, rowsWithin } from '../../harness/cost-model.js';
 import { defaultWorkers } from '../../harness/runner.js';
 import { seededRowSubsample } from '../../core/sample.js';
 import type { ValueWithSe } from '../score.js';
-import { ADVICE_SEED, applicableEstimators, DEFAULT_BUDGET_SECONDS, runTargeted } from './benchmark.js';
+import { applicableEstimators, DEFAULT_BUDGET_SECONDS, runTargeted } from './benchmark.js';
 import { smoothedBootstrap, type BootstrapInterval } from './bootstrap.js';
 import { buildLookalike, type Lookalike } from './lookalike.js';
 import { COARSE_STEP, profileSample, type DataProfile } from './profile.js';
@@ -230,7 +231,7 @@ export async function adviseFile(fileSample: Sample, options: FileAdviceOptions 
   const elapsed = () => (performance.now() - started) / 1000;
   const budget = options.budgetSeconds ?? DEFAULT_BUDGET_SECONDS;
   const level = options.level === undefined ? 0.95 : options.level;
-  const seed = options.seed ?? ADVICE_SEED;
+  const seed = options.seed ?? DEFAULT_SEED;
   const { dim } = fileSample;
   const fileRows = fileSample.n;
   if (fileRows < 20) throw new UsageError(`the sample has ${fileRows} rows; advice needs at least 20 (a benchmark at smaller n says little)`);

@@ -36,7 +36,7 @@ function collectingLogger(warnings: string[], chart: string): LoggerInterface {
     },
     info: () => logger,
     debug: () => logger,
-  } as LoggerInterface;
+  };
   return logger;
 }
 

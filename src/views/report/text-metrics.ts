@@ -49,6 +49,7 @@ export function useFontMetrics(): void {
   const width: WidthFunction = (item, text) => {
     const size = item.fontSize != null ? Number(item.fontSize) || 0 : 11;
     const bold = item.fontWeight === 'bold' || Number(item.fontWeight) >= 600;
+    // eslint-disable-next-line @typescript-eslint/no-base-to-string -- vega's text is a string or a number here
     const measured = textWidth(text == null ? '' : String(text).trim(), size, bold);
     // Vega truncates text longer than its limit with an ellipsis; the drawn text is then at most that wide.
     return item.limit && item.limit > 0 ? Math.min(measured, item.limit) : measured;
