@@ -13,6 +13,7 @@
  *   npm run track -- divergence      # one or more plans by quantity
  *   npm run baseline                 # refresh all three baselines on purpose (after a deliberate change)
  */
+import { existsSync } from 'node:fs';
 import { resolve } from 'node:path';
 import { defaultPlan } from '../src/default-plan.js';
 import { resolvePlan } from '../src/plan.js';
@@ -72,7 +73,14 @@ async function main(): Promise<number> {
   const quantities = quantitiesAsked(args.filter((a) => a !== '--refresh'));
   const tolerance = parseTolerance(process.env.HHAT_TRACK_TOLERANCE ?? '0');
   // Read every baseline before the first plan runs: a missing or broken file should not cost a minute first.
-  const baselines = refresh ? null : new Map(quantities.map((q) => [q, comparableBaseline(readBaseline(baselinePath(q)))]));
+  const baselines = refresh
+    ? null
+    : new Map(
+        quantities.map((q) => {
+          if (!existsSync(baselinePath(q))) throw new UsageError(`${baselinePath(q)} is missing; npm run baseline writes it (results/README.md)`);
+          return [q, comparableBaseline(readBaseline(baselinePath(q)))];
+        }),
+      );
   let failed = 0;
   let passed = 0;
   let anyChange = false;
