@@ -25,9 +25,30 @@ import tCdf from '@stdlib/stats-base-dists-t-cdf';
 import tQuantile from '@stdlib/stats-base-dists-t-quantile';
 import { UsageError } from '../core/errors.js';
 import { cellKey, type Cell, type RunFile, type ScenarioInfo } from './results.js';
+import type { Plan } from '../harness/plan.js';
+import type { Environment } from '../core/provenance.js';
 import type { ValueWithSe } from './score.js';
 import { fisherExact, signTest, signTestOf, type SignTest } from './exact-tests.js';
 import { quantileOfSorted, squaredDeviations } from '../math/moments.js';
+
+/** What a comparison reads of a cell. */
+export type ComparedCell = Pick<Cell, 'scenario' | 'estimator' | 'n' | 'perturbation' | 'estimates' | 'scores'>;
+
+/**
+ * What a comparison reads of a run: a run file, or a committed baseline rebuilt from its compact form
+ * (src/baseline-file.ts), which keeps no date, machine or commit, and whose fingerprint leaves the code out.
+ */
+export interface ComparableRun {
+  createdAt: string | null;
+  environment: Pick<Environment, 'hhatVersion' | 'git'>;
+  plan: Pick<Plan, 'seed' | 'replicates' | 'sampleSizes' | 'scenarios'>;
+  fingerprint: string;
+  drawsFingerprint: string;
+  shard: RunFile['shard'];
+  complete: boolean;
+  scenarios: Pick<ScenarioInfo, 'id' | 'truth'>[];
+  cells: ComparedCell[];
+}
 
 export type CellStatus = 'worse' | 'improved' | 'changed-within-noise' | 'unchanged';
 export const STATUS_ORDER: readonly CellStatus[] = ['worse', 'improved', 'changed-within-noise', 'unchanged'];
@@ -155,7 +176,7 @@ export interface CellComparison extends CellRef {
 }
 
 export interface RunSummary {
-  createdAt: string;
+  createdAt: string | null;
   hhatVersion: string;
   commit: string | null;
   fingerprint: string;
@@ -189,7 +210,7 @@ export interface Comparison {
 
 export type FailOn = 'worse' | 'changed';
 
-function summary(run: RunFile): RunSummary {
+function summary(run: ComparableRun): RunSummary {
   return {
     createdAt: run.createdAt,
     hhatVersion: run.environment.hhatVersion,
@@ -202,7 +223,7 @@ function summary(run: RunFile): RunSummary {
 }
 
 /** Why two runs did not draw the same samples, from the plan fields the draws fingerprint covers. */
-function drawsDifference(base: RunFile, next: RunFile): string {
+function drawsDifference(base: ComparableRun, next: ComparableRun): string {
   const differences: string[] = [];
   if (base.plan.seed !== next.plan.seed) differences.push(`seed ${base.plan.seed} vs ${next.plan.seed}`);
   if (base.plan.replicates !== next.plan.replicates) differences.push(`replicates ${base.plan.replicates} vs ${next.plan.replicates}`);
@@ -211,7 +232,7 @@ function drawsDifference(base: RunFile, next: RunFile): string {
   return differences.length ? differences.join(', ') : 'different draws fingerprints';
 }
 
-function decidePairing(base: RunFile, next: RunFile, pairing: CompareOptions['pairing']): { paired: boolean; reason: string } {
+function decidePairing(base: ComparableRun, next: ComparableRun, pairing: CompareOptions['pairing']): { paired: boolean; reason: string } {
   if (pairing === 'unpaired') return { paired: false, reason: "unpaired on request; Welch's t test on the squared errors, Fisher's exact test on failures" };
   if (base.drawsFingerprint === next.drawsFingerprint) {
     return { paired: true, reason: `both runs drew the same samples (draws fingerprint ${base.drawsFingerprint.slice(0, 12)}); paired tests on per-replicate differences of squared errors and on failures` };
@@ -321,7 +342,7 @@ function bitIdentical(a: (number | null)[], b: (number | null)[]): boolean {
   return a.length === b.length && a.every((v, i) => Object.is(v, b[i]));
 }
 
-function squaredErrors(cell: Cell, truth: number): number[] {
+function squaredErrors(cell: ComparedCell, truth: number): number[] {
   return cell.estimates.map((v) => (v === null ? NaN : (v - truth) ** 2));
 }
 
@@ -330,7 +351,7 @@ function formatNumber(x: number): string {
 }
 
 /** New estimates more than WILD_FACTOR times the base's largest error from the truth, or whose squared error overflows. */
-function wildEstimates(base: Cell, next: Cell, truthBase: number, truthNext: number, toleranceNats: number): WildEstimate[] {
+function wildEstimates(base: ComparedCell, next: ComparedCell, truthBase: number, truthNext: number, toleranceNats: number): WildEstimate[] {
   let largest = 0;
   for (const v of base.estimates) if (v !== null) largest = Math.max(largest, Math.abs(v - truthBase));
   const out: WildEstimate[] = [];
@@ -345,7 +366,7 @@ function wildEstimates(base: Cell, next: Cell, truthBase: number, truthNext: num
   return out;
 }
 
-function failureChange(base: Cell, next: Cell, paired: boolean): FailureChange {
+function failureChange(base: ComparedCell, next: ComparedCell, paired: boolean): FailureChange {
   const failedBase = base.scores.failures;
   const failedNext = next.scores.failures;
   if (!paired) {
@@ -372,8 +393,8 @@ function testsPerCell(paired: boolean): number {
  * cell's share of α is α/holmDivisor, then split over its tests); 1 before the cells are ordered.
  */
 function compareCell(
-  base: Cell,
-  next: Cell,
+  base: ComparedCell,
+  next: ComparedCell,
   truthBase: number,
   truthNext: number,
   pairedRuns: boolean,
@@ -527,12 +548,12 @@ function holmStepDown(cellPs: number[], alpha: number): { divisor: number[]; adj
   return { divisor, adjusted };
 }
 
-function ref(cell: Cell): CellRef {
+function ref(cell: ComparedCell): CellRef {
   return { scenario: cell.scenario, estimator: cell.estimator, n: cell.n, perturbation: cell.perturbation };
 }
 
-function truthOf(run: RunFile): Map<string, number> {
-  return new Map(run.scenarios.map((s: ScenarioInfo) => [s.id, s.truth]));
+function truthOf(run: ComparableRun): Map<string, number> {
+  return new Map(run.scenarios.map((s) => [s.id, s.truth]));
 }
 
 /**
@@ -540,7 +561,7 @@ function truthOf(run: RunFile): Map<string, number> {
  * Cells in only one run are listed as added or removed. Shard files (incomplete runs) are refused: their
  * missing replicates would look like failures.
  */
-export function compareRuns(base: RunFile, next: RunFile, options: CompareOptions = {}, labels = { base: 'BASE', next: 'NEW' }): Comparison {
+export function compareRuns(base: ComparableRun, next: ComparableRun, options: CompareOptions = {}, labels = { base: 'BASE', next: 'NEW' }): Comparison {
   for (const [run, label] of [[base, labels.base], [next, labels.next]] as const) {
     if (run.shard) throw new UsageError(`${label} is shard ${run.shard.index}/${run.shard.count} of a run; merge the shards (hhat merge) and compare the merged file`);
     if (!run.complete) throw new UsageError(`${label} is an incomplete run; finish it (bench --resume) before comparing`);
@@ -553,14 +574,14 @@ export function compareRuns(base: RunFile, next: RunFile, options: CompareOption
   const nextCells = new Map(next.cells.map((c) => [cellKey(c), c]));
   const baseKeys = new Set(base.cells.map(cellKey));
 
-  const pairs: [Cell, Cell][] = [];
+  const pairs: [ComparedCell, ComparedCell][] = [];
   const removed: CellRef[] = [];
   for (const cell of base.cells) {
     const other = nextCells.get(cellKey(cell));
     if (other) pairs.push([cell, other]);
     else removed.push(ref(cell));
   }
-  const compare = ([cell, other]: [Cell, Cell], holmDivisor?: number) =>
+  const compare = ([cell, other]: [ComparedCell, ComparedCell], holmDivisor?: number) =>
     compareCell(cell, other, truthBase.get(cell.scenario)!, truthNext.get(other.scenario)!, pairing.paired, tolerance, level, holmDivisor);
   // First each cell alone, for its p; then again at its place in Holm's step-down over the tested cells.
   const cells = pairs.map((pair) => compare(pair));

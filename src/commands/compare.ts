@@ -21,7 +21,7 @@ export function registerCompareCommand(program: Command, print: (text: string) =
   program
     .command('compare')
     .description(COMMANDS.compare)
-    .argument('<base>', 'the run file to compare against (e.g. results/baseline.json)')
+    .argument('<base>', 'the run file to compare against (e.g. results/before.json)')
     .argument('<new>', 'the run file with the changed code')
     .option('--tolerance <t>', 'smallest |ΔRMSE| that counts as worse or improved: nats (0.01) or a percentage of the base RMSE (5%)', '0')
     .option('--level <c>', 'per cell, 1 − the chance of calling an unchanged cell worse or improved (split over the paired tests by Bonferroni)', '0.95')

@@ -116,7 +116,8 @@ function countsLine(comparison: Comparison): string {
 }
 
 function runLine(run: RunSummary): string {
-  return `${run.createdAt.slice(0, 16).replace('T', ' ')}, hhat ${run.hhatVersion}${run.commit ? `, commit ${run.commit.slice(0, 10)}${run.commit.length > 40 ? run.commit.slice(40) : ''}` : ''}, seed ${run.seed}, ${run.replicates} replicates`;
+  // A committed baseline keeps no date.
+  return `${run.createdAt ? `${run.createdAt.slice(0, 16).replace('T', ' ')}, ` : ''}hhat ${run.hhatVersion}${run.commit ? `, commit ${run.commit.slice(0, 10)}${run.commit.length > 40 ? run.commit.slice(40) : ''}` : ''}, seed ${run.seed}, ${run.replicates} replicates`;
 }
 
 function pairingLine(comparison: Comparison): string {
