@@ -19,7 +19,7 @@ import { minimizeBounded } from './minimize.js';
 import { type MultivariatePath, multivariateLogKernelSums } from './multivariate.js';
 import { type UnivariatePath, univariateLogKernelSums } from './univariate.js';
 import { whiten } from './whiten.js';
-import { columnExtremes, spreadUnitOfExtremes, timesPowerOfTwo, toUnit } from '../scaling.js';
+import { columnExtremes, spreadUnitOfExtremes, timesPowerOfTwo, toUnit } from '../shared/scaling.js';
 
 export type BandwidthSetting = BandwidthRule | 'likelihood-cv' | number;
 
@@ -39,7 +39,7 @@ export interface KernelData {
   halfLogDet: number;
   /**
    * d = 1: the points are the data divided by 2^unitExponent, a power of two near their spread when that
-   * spread is subnormal or near the top of the double range (estimators/scaling.ts), else 0. Bandwidths
+   * spread is subnormal or near the top of the double range (estimators/shared/scaling.ts), else 0. Bandwidths
    * of d = 1 are in these point units inside this module; `toDataUnits` and `fromDataUnits` convert.
    * Always 0 for d > 1, where the whitened unit already absorbs each column's scale.
    */
