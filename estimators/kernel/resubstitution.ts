@@ -151,24 +151,12 @@ export function likelihoodCrossValidatedBandwidth(data: KernelData): number {
 
 /**
  * The numeric bandwidth a setting stands for on this sample, in the prepared points' units (data units for
- * d = 1 unless `unitExponent` says otherwise, whitened for d > 1); a numeric setting is read in data units.
+ * d = 1 unless `unitExponent` says otherwise, whitened for d > 1); a numeric setting (> 0 and finite, as the
+ * estimators' `bandwidth` setting declares) is read in data units.
  */
 export function chooseBandwidth(data: KernelData, setting: BandwidthSetting): number {
-  if (typeof setting === 'number') {
-    if (!(setting > 0) || !Number.isFinite(setting)) {
-      throw new EstimateError('invalid-input', `kernel: bandwidth=${setting} is not allowed; it must be silverman, scott, likelihood-cv or a number > 0`);
-    }
-    return fromDataUnits(data, setting);
-  }
-  switch (setting) {
-    case 'silverman':
-    case 'scott':
-      return ruleBandwidth(data, setting);
-    case 'likelihood-cv':
-      return likelihoodCrossValidatedBandwidth(data);
-    default:
-      throw new EstimateError('invalid-input', `kernel: bandwidth=${String(setting)} is not allowed; it must be silverman, scott, likelihood-cv or a number > 0`);
-  }
+  if (typeof setting === 'number') return fromDataUnits(data, setting);
+  return setting === 'likelihood-cv' ? likelihoodCrossValidatedBandwidth(data) : ruleBandwidth(data, setting);
 }
 
 /**
