@@ -89,7 +89,11 @@ export interface EstimateDefaultEntry extends DefaultEntry {
 export interface DefaultSets {
   /** `hhat estimate` without --estimator. */
   estimate?: true | readonly EstimateDefaultEntry[];
-  /** The default plan of the estimator's quantity (`hhat bench` without a plan, `npm run track`). */
+  /**
+   * The default plan of the estimator's quantity (`hhat bench` without a plan, `npm run track`). The plan is
+   * chosen before `--estimator-module` files load, so it holds built-in estimators only (a module replacing
+   * one runs in its place).
+   */
   bench?: true | readonly DefaultEntry[];
 }
 

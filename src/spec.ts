@@ -227,12 +227,16 @@ function checkSettingSpec(where: string, raw: unknown, index: number): SettingSp
   return checked;
 }
 
-/** The rules checkSetting applies to given values, except that a default keyword need not be a choice (it is resolved per sample). */
+/** checkSetting's rules, except that a default keyword need not be a choice (it is resolved per sample). */
 function defaultAllowed(spec: SettingSpec, value: unknown): value is SettingValue {
-  const integer = spec.kind.endsWith('integer');
   if (typeof value === 'string') return spec.kind !== 'integer' && spec.kind !== 'number' && CHOICE_PATTERN.test(value);
-  if (typeof value !== 'number' || !Number.isFinite(value) || spec.kind === 'choice') return false;
-  return inRange(value, { min: spec.min, max: spec.max, minExclusive: spec.minExclusive, integer });
+  if (typeof value !== 'number') return false;
+  try {
+    checkSetting('', spec, value);
+    return true;
+  } catch {
+    return false;
+  }
 }
 
 function isDims(dims: unknown): dims is readonly [number, number] {

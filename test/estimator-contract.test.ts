@@ -9,7 +9,7 @@ import { copyFileSync, cpSync, mkdtempSync, readdirSync, readFileSync, realpathS
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
-import type { Estimator, Sample, Settings } from '../src/contracts.js';
+import { defineEstimator, type Estimator, type Sample, type Settings } from '../src/contracts.js';
 import { UsageError } from '../src/errors.js';
 import { checkEstimator } from '../src/spec.js';
 import { tuningGrid } from '../src/tuning.js';
@@ -165,6 +165,37 @@ describe('one validation, at the boundary', () => {
     ]);
     expect(() => parseEstimatorSpec('settings-spy:k=2.5')).toThrow('settings-spy: k=2.5 is not allowed; k must be an integer ≥ 1');
     expect(seen).toHaveLength(2);
+  });
+
+  it('defineEstimator types the settings from the declaration (checked by tsc in npm test) and they arrive as typed', () => {
+    const seen: unknown[] = [];
+    const typed = defineEstimator({
+      id: 'typed-settings',
+      family: 'test',
+      quantity: 'entropy',
+      summary: 'returns the log of its width setting',
+      settings: [
+        { name: 'width', kind: 'number', min: 0, minExclusive: true, default: 1, meaning: 'a width' },
+        { name: 'rule', kind: 'choice', choices: ['narrow', 'wide'], default: 'narrow', meaning: 'a rule' },
+        { name: 'window', kind: 'choice-or-integer', choices: ['auto'], min: 1, default: 'auto', meaning: 'a window' },
+      ],
+      dims: [1, 1],
+      reference: 'none (a test of types)',
+      tuning: (base) => [{ setting: 'width', values: [base.width / 2, base.width * 2] }],
+      estimate(_sample, settings) {
+        const width: number = settings.width;
+        const rule: 'narrow' | 'wide' = settings.rule;
+        const window: 'auto' | number = settings.window;
+        // @ts-expect-error: not a declared setting
+        seen.push(settings.bandwidth);
+        seen.push(width, rule, window);
+        return Math.log(width);
+      },
+    });
+    registerEstimator(typed);
+    expect(runEstimator(parseEstimatorSpec('typed-settings:width=2,window=7'), sampleOf('normal', 10)).value).toBe(Math.log(2));
+    expect(seen).toEqual([undefined, 2, 'narrow', 7]);
+    expect(gridOf('typed-settings:width=2', 100)).toEqual(['width=1', 'width=4']);
   });
 
   it('the dimension is checked once, by the registry, as a usage error', () => {
