@@ -56,28 +56,23 @@ import { sortAscending } from './spacing.js';
 export const BIN_RULES = ['sturges', 'scott', 'freedman-diaconis', 'doane', 'sqrt'] as const;
 export type BinRule = (typeof BIN_RULES)[number];
 
-/** The bin-count settings the histogram, mutual-information and divergence estimators share. */
-export const BINS_SETTING = {
-  name: 'bins',
-  meaning: 'bin rule, or a number of bins per coordinate; ignored when width is given',
-  default: 'freedman-diaconis',
-  kind: 'choice-or-integer',
-  choices: BIN_RULES,
-  min: 1,
-} as const satisfies SettingSpec;
-
-export const BIN_SCALE_SETTING = {
-  name: 'scale',
-  meaning: 'multiplies the bin count a rule gives (rounded, at least 1); ignored with a numeric bins or a width',
-  default: 1,
-  kind: 'number',
-  min: 0,
-  minExclusive: true,
-} as const satisfies SettingSpec;
-
 const HISTOGRAM_SETTINGS = [
-  BINS_SETTING,
-  BIN_SCALE_SETTING,
+  {
+    name: 'bins',
+    meaning: 'bin rule, or a number of bins per coordinate; ignored when width is given',
+    default: 'freedman-diaconis',
+    kind: 'choice-or-integer',
+    choices: BIN_RULES,
+    min: 1,
+  },
+  {
+    name: 'scale',
+    meaning: "multiplies the bin count a rule gives (rounded, at least 1); ignored with a numeric bins or a width",
+    default: 1,
+    kind: 'number',
+    min: 0,
+    minExclusive: true,
+  },
   {
     name: 'width',
     meaning: "bin width in data units, the same along every coordinate; 'none' = use bins",

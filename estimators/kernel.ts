@@ -36,24 +36,25 @@ import { type BandwidthSetting, chooseBandwidth, type KernelData, kernelEntropy,
 
 export const BANDWIDTH_RULES = ['silverman', 'scott', 'likelihood-cv'] as const;
 
-export const BANDWIDTH_SETTING = {
-  name: 'bandwidth',
-  meaning: 'Gaussian kernel width: silverman, scott, likelihood-cv, or a number (data units if d = 1, whitened units if d > 1)',
-  default: 'silverman',
-  kind: 'choice-or-number',
-  choices: BANDWIDTH_RULES,
-  min: 0,
-  minExclusive: true,
-} as const satisfies SettingSpec;
-
-export const BANDWIDTH_SCALE_SETTING = {
-  name: 'scale',
-  meaning: 'multiplies the bandwidth a rule or cross-validation gives (for tuning studies); ignored with a numeric bandwidth',
-  default: 1,
-  kind: 'number',
-  min: 0,
-  minExclusive: true,
-} as const satisfies SettingSpec;
+const kernelSettings = [
+  {
+    name: 'bandwidth',
+    meaning: 'Gaussian kernel width: silverman, scott, likelihood-cv, or a number (data units if d = 1, whitened units if d > 1)',
+    default: 'silverman',
+    kind: 'choice-or-number',
+    choices: BANDWIDTH_RULES,
+    min: 0,
+    minExclusive: true,
+  },
+  {
+    name: 'scale',
+    meaning: 'multiplies the bandwidth a rule or cross-validation gives (for tuning studies); ignored with a numeric bandwidth',
+    default: 1,
+    kind: 'number',
+    min: 0,
+    minExclusive: true,
+  },
+] as const satisfies readonly SettingSpec[];
 
 /** What the bandwidth depends on: a rule (or cross-validation) times `scale`, or a number. */
 export interface KernelSettings {
@@ -84,7 +85,7 @@ export const kernelEstimator: Estimator = defineEstimator({
   family: 'kernel',
   quantity: 'entropy',
   summary: 'leave-one-out Gaussian kernel density, resubstituted: −mean log f̂₋ᵢ(xᵢ)',
-  settings: [BANDWIDTH_SETTING, BANDWIDTH_SCALE_SETTING],
+  settings: kernelSettings,
   dims: [1, Infinity],
   reference:
     'Ahmad & Lin, IEEE Trans. Inf. Theory 22(3):372–375, 1976 (resubstitution estimate); leave-one-out form: Joe, Ann. Inst. Statist. Math. 41:683–697, 1989, and Hall & Morton, Ann. Inst. Statist. Math. 45:69–88, 1993; bandwidth rules: Silverman 1986 (eq. 3.31), Scott 1992; binned FFT sums: Wand, J. Comput. Graph. Statist. 3:433–445, 1994',
