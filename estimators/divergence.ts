@@ -8,13 +8,13 @@
  * - histogram-divergence: plug-in Σ p̂ log(p̂/q̂) on one grid laid over both samples.
  * - gaussian-divergence: the closed form for the two fitted normal laws.
  */
-import type { Estimator, Sample, Settings } from '../src/core/contracts.js';
+import { defineEstimator, type Estimator, type EstimatorFile, type Sample } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { KnnIndex } from '../src/math/knn.js';
 import { solveLower } from '../src/math/linalg.js';
+import { type AxisBins, BIN_RULES, type BinRule, axisIndices, binGrid, histogramGrid } from './histogram.js';
+import { columnExtremes, type SpreadUnit, spreadUnitOfExtremes, toUnit } from './shared/scaling.js';
 import { rankKeys, sortAscending } from '../src/math/sort.js';
-import { type AxisBins, BIN_RULES, axisIndices, histogramGrid } from './histogram.js';
-import { columnExtremes, type SpreadUnit, spreadUnitOfExtremes, toUnit } from './scaling.js';
 
 /** The P and Q samples after checking both; returns their sizes. */
 export function checkedPair(id: string, sample: Sample): { n: number; m: number; dim: number; p: Float64Array; q: Float64Array } {
@@ -49,7 +49,7 @@ export function checkNotConstant(id: string, data: Float64Array, n: number, dim:
   }
 }
 
-/** The unit (estimators/scaling.ts) for P and Q together, from their pooled extremes, or null when none is needed. */
+/** The unit (estimators/shared/scaling.ts) for P and Q together, from their pooled extremes, or null when none is needed. */
 export function pooledUnit(p: Float64Array, n: number, q: Float64Array, m: number, dim: number, mode: 'column' | 'common'): SpreadUnit | null {
   const fromP = columnExtremes(p, n, dim);
   const fromQ = columnExtremes(q, m, dim);
@@ -71,7 +71,7 @@ export function pooledUnit(p: Float64Array, n: number, q: Float64Array, m: numbe
 export function knnDivergence(p: Float64Array, n: number, q: Float64Array, m: number, dim: number, k: number, id = 'knn-divergence'): number {
   if (n <= k) throw new EstimateError('too-few-points', `${id} needs more than k = ${k} points from P; got ${n}`);
   if (m < k) throw new EstimateError('too-few-points', `${id} needs at least k = ${k} points from Q; got ${m}`);
-  // One power of two for every coordinate of both samples (a unit for distances; estimators/scaling.ts)
+  // One power of two for every coordinate of both samples (a unit for distances; estimators/shared/scaling.ts)
   // when the spread is subnormal or huge: squared distances then neither underflow nor overflow, and the
   // ratios ν/ρ are those of the data.
   const pooled = pooledUnit(p, n, q, m, dim, 'common');
@@ -139,7 +139,7 @@ function cellKeys(p: Float64Array, n: number, q: Float64Array, m: number, dim: n
  * histogram entropy estimator lays over the pooled P and Q points (its rule applied to the pooled sample,
  * or a count per coordinate). A cell holding P points but no Q point makes the plug-in +∞: an error.
  */
-function histogramDivergence(sample: Sample, settings: Settings): number {
+function histogramDivergence(sample: Sample, settings: { bins: BinRule | number; scale: number }): number {
   const id = 'histogram-divergence';
   const { n, m, dim, p, q } = checkedPair(id, sample);
   if (n < 1 || m < 1) throw new EstimateError('too-few-points', `${id}: both samples need at least one point; got ${n} from P and ${m} from Q`);
@@ -149,7 +149,7 @@ function histogramDivergence(sample: Sample, settings: Settings): number {
   checkNotConstant(id, pooled, n + m, dim, 'the pooled P and Q points');
   let grid: AxisBins[];
   try {
-    grid = histogramGrid({ n: n + m, dim, data: pooled }, { bins: settings.bins ?? 'freedman-diaconis', scale: settings.scale ?? 1, width: 'none' });
+    grid = histogramGrid({ n: n + m, dim, data: pooled }, { bins: settings.bins, scale: settings.scale, width: 'none' });
   } catch (error) {
     if (error instanceof EstimateError) throw new EstimateError(error.code, error.message.replace(/^histogram/, `${id} (pooled P and Q)`).replace(', a bin count, or width=W', ' or a bin count').replace(', or width=W', ''));
     throw error;
@@ -252,7 +252,7 @@ function gaussianDivergenceEstimate(sample: Sample): number {
     throw new EstimateError('too-few-points', `${id}: a ${dim}-dimensional covariance needs at least ${dim + 1} points in each sample; got ${n} from P and ${m} from Q`);
   }
   // A subnormal or huge spread is first brought near 1 per coordinate, for both samples alike (exact,
-  // estimators/scaling.ts; the divergence does not move), so the squares below neither underflow nor overflow.
+  // estimators/shared/scaling.ts; the divergence does not move), so the squares below neither underflow nor overflow.
   const unit = pooledUnit(checked.p, n, checked.q, m, dim, 'column');
   const p = unit ? toUnit(checked.p, n, dim, unit) : checked.p;
   const q = unit ? toUnit(checked.q, m, dim, unit) : checked.q;
@@ -290,9 +290,11 @@ function gaussianDivergenceEstimate(sample: Sample): number {
 }
 
 const KNN_DEFAULT_K = 1;
+/** k = 1..10 (k < n), as for the entropy estimator the method extends. */
+const KNN_TUNING_K = [1, 2, 3, 4, 5, 6, 7, 8, 9, 10];
 
 export const divergenceEstimators: Estimator[] = [
-  {
+  defineEstimator({
     id: 'knn-divergence',
     family: 'divergence',
     quantity: 'divergence',
@@ -301,15 +303,15 @@ export const divergenceEstimators: Estimator[] = [
     dims: [1, Infinity],
     reference:
       'Wang, Q., Kulkarni, S. R. & Verdú, S. (2009). Divergence estimation for multidimensional densities via k-nearest-neighbor distances. IEEE Transactions on Information Theory 55(5), 2392–2405, eq. (5).',
-    estimate(sample: Sample, settings: Settings): number {
+    tuning: (_base, n) => [{ setting: 'k', values: KNN_TUNING_K.filter((k) => k < n) }],
+    defaultFor: { estimate: true, bench: true },
+    estimate(sample, { k }) {
       const id = 'knn-divergence';
-      const k = settings.k ?? KNN_DEFAULT_K;
-      if (typeof k !== 'number' || !Number.isInteger(k) || k < 1) throw new EstimateError('invalid-input', `${id}: k=${String(k)} is not allowed; k must be an integer ≥ 1`);
       const { n, m, dim, p, q } = checkedPair(id, sample);
       return knnDivergence(p, n, q, m, dim, k, id);
     },
-  },
-  {
+  }),
+  defineEstimator({
     id: 'histogram-divergence',
     family: 'divergence',
     quantity: 'divergence',
@@ -321,9 +323,13 @@ export const divergenceEstimators: Estimator[] = [
     dims: [1, Infinity],
     reference:
       'Plug-in partition estimate of the divergence, as the equal-width baseline in Wang, Q., Kulkarni, S. R. & Verdú, S. (2005), Divergence estimation of continuous distributions based on data-dependent partitions, IEEE Trans. Inf. Theory 51(9), 3064–3074.',
+    tuning: binGrid,
+    // In the default plan also with Sturges bins, after the others: with Freedman–Diaconis bins most replicates
+    // leave P mass in bins Q never reaches.
+    defaultFor: { estimate: true, bench: [{}, { order: 1, settings: { bins: 'sturges' } }] },
     estimate: histogramDivergence,
-  },
-  {
+  }),
+  defineEstimator({
     id: 'gaussian-divergence',
     family: 'divergence',
     quantity: 'divergence',
@@ -331,6 +337,9 @@ export const divergenceEstimators: Estimator[] = [
     settings: [],
     dims: [1, Infinity],
     reference: 'Kullback, S. (1959). Information Theory and Statistics, Wiley (divergence between normal laws), with the fitted means and covariances plugged in.',
-    estimate: (sample: Sample) => gaussianDivergenceEstimate(sample),
-  },
+    defaultFor: { estimate: true, bench: true },
+    estimate: (sample) => gaussianDivergenceEstimate(sample),
+  }),
 ];
+
+export const registration: EstimatorFile = { catalogOrder: 70, estimators: divergenceEstimators };

@@ -13,7 +13,7 @@
  * minimum and have that width in data units, so the estimate is not scale-equivariant (by design: the
  * width is a unit-bound choice). A coordinate whose spread is subnormal or near the top of the double range
  * is binned in a power-of-two unit near its spread, and one whose values are near the top of the double range
- * is moved near 0 (estimators/scaling.ts, both exact; a width setting is converted to the unit exactly), so its bins are the same as in exact arithmetic and the estimate is not thrown off by
+ * is moved near 0 (estimators/shared/scaling.ts, both exact; a width setting is converted to the unit exactly), so its bins are the same as in exact arithmetic and the estimate is not thrown off by
  * widths that underflow or counts per unit that overflow.
  *
  * Bin rules, per coordinate k with n points in d dimensions:
@@ -46,17 +46,17 @@
  * and run-length counted otherwise. When the grid has 2^53 cells or more, the keys of the leading
  * coordinates are first replaced by their ranks among the distinct keys, which keeps every key exact.
  */
-import type { Estimator, Sample, SettingSpec, Settings } from '../src/core/contracts.js';
+import { defineEstimator, type Estimator, type EstimatorFile, type Sample, SCALE_FACTORS, type SettingSpec, type TuningAxis } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { quantileOfSorted, squaredDeviations } from '../src/math/moments.js';
-import { rankKeys, sortAscending } from '../src/math/sort.js';
 import { checkFiniteValues, column } from '../src/core/sample.js';
-import { spreadUnitOfRange, timesPowerOfTwo, toUnit } from './scaling.js';
+import { spreadUnitOfRange, timesPowerOfTwo, toUnit } from './shared/scaling.js';
+import { rankKeys, sortAscending } from '../src/math/sort.js';
 
 export const BIN_RULES = ['sturges', 'scott', 'freedman-diaconis', 'doane', 'sqrt'] as const;
 export type BinRule = (typeof BIN_RULES)[number];
 
-const HISTOGRAM_SETTINGS: readonly SettingSpec[] = [
+const HISTOGRAM_SETTINGS = [
   {
     name: 'bins',
     meaning: 'bin rule, or a number of bins per coordinate; ignored when width is given',
@@ -89,14 +89,30 @@ const HISTOGRAM_SETTINGS: readonly SettingSpec[] = [
     kind: 'choice',
     choices: ['none', 'miller-madow'],
   },
-];
+] as const satisfies readonly SettingSpec[];
+
+/** What the grid depends on: a bin rule or count scaled by `scale`, or a fixed width ('none': use bins). */
+export interface GridSettings {
+  bins: BinRule | number;
+  scale: number;
+  width: 'none' | number;
+}
+
+/**
+ * The tuning grid of a bin-rule estimator: every rule, and the count of the base's rule ×SCALE_FACTORS (a
+ * count or a width in data units is a choice of its own, not a rule to vary).
+ */
+export function binGrid(base: { bins: BinRule | number }): TuningAxis<{ bins: BinRule | number; scale: number }>[] {
+  const rules = { setting: 'bins', values: BIN_RULES } as const;
+  return typeof base.bins === 'string' ? [rules, { setting: 'scale', values: SCALE_FACTORS }] : [rules];
+}
 
 const MAX_EXACT_INTEGER = 2 ** 53;
 
 /**
  * Where the bins of one coordinate lie: edge_i = origin + i·binWidth, i = 0..binCount, in grid units:
  * data units divided by 2^unitExponent. The unit is 1 (unitExponent 0) unless the coordinate's spread is
- * subnormal or near the top of the double range (estimators/scaling.ts), where a width in data units
+ * subnormal or near the top of the double range (estimators/shared/scaling.ts), where a width in data units
  * would underflow or its reciprocal overflow.
  */
 export interface AxisBins {
@@ -105,27 +121,18 @@ export interface AxisBins {
   binCount: number;
   /** The right edge of the last bin: the maximum for rules and counts, origin + binCount·width for widths. */
   lastEdge: number;
-  /** Grid coordinates are (x − unitOffset) / 2^unitExponent for x in data units (exact: estimators/scaling.ts). */
+  /** Grid coordinates are (x − unitOffset) / 2^unitExponent for x in data units (exact: estimators/shared/scaling.ts). */
   unitExponent: number;
   unitOffset: number;
 }
 
-/** The grid the estimator uses for this sample and these settings, one entry per coordinate. */
-export function histogramGrid(sample: Sample, settings: Settings): AxisBins[] {
+/** The grid the estimator uses for this sample and these (validated) settings, one entry per coordinate. */
+export function histogramGrid(sample: Sample, { bins, scale, width }: GridSettings): AxisBins[] {
   const { n, dim } = sample;
   const id = 'histogram';
   if (n < 1) throw new EstimateError('too-few-points', `${id}: the sample is empty`);
   checkFiniteValues(id, sample);
-  const width = settings.width ?? 'none';
-  const bins = settings.bins ?? 'freedman-diaconis';
-  const scale = typeof settings.scale === 'number' ? settings.scale : 1;
-  if (width !== 'none' && !(typeof width === 'number' && width > 0 && Number.isFinite(width))) {
-    throw new EstimateError('invalid-input', `${id}: width=${String(width)} is not allowed; width must be 'none' or a number > 0`);
-  }
-  const isRule = typeof bins === 'string' && (BIN_RULES as readonly string[]).includes(bins);
-  if (!isRule && !(typeof bins === 'number' && Number.isInteger(bins) && bins >= 1)) {
-    throw new EstimateError('invalid-input', `${id}: bins=${String(bins)} is not allowed; bins must be one of ${BIN_RULES.join(', ')}, or an integer ≥ 1`);
-  }
+  const isRule = typeof bins === 'string';
   const grid: AxisBins[] = [];
   for (let k = 0; k < dim; k++) {
     let values = column(sample, k);
@@ -303,11 +310,8 @@ export function histogramCells(sample: Sample, grid: readonly AxisBins[]): { sum
   return { ...occupiedCellSums(keys, keySpace), logBinVolume };
 }
 
-function histogramEntropy(sample: Sample, settings: Settings): number {
-  const correction = settings.correction ?? 'none';
-  if (correction !== 'none' && correction !== 'miller-madow') {
-    throw new EstimateError('invalid-input', `histogram: correction=${String(correction)} is not allowed; correction must be none or miller-madow`);
-  }
+function histogramEntropy(sample: Sample, settings: GridSettings & { correction: 'none' | 'miller-madow' }): number {
+  const { correction } = settings;
   const grid = histogramGrid(sample, settings);
   const { sumCountLogCount, occupied, logBinVolume } = histogramCells(sample, grid);
   const n = sample.n;
@@ -317,7 +321,7 @@ function histogramEntropy(sample: Sample, settings: Settings): number {
 }
 
 export const histogramEstimators: Estimator[] = [
-  {
+  defineEstimator({
     id: 'histogram',
     family: 'histogram',
     quantity: 'entropy',
@@ -328,6 +332,11 @@ export const histogramEstimators: Estimator[] = [
       'Plug-in histogram estimator, e.g. Beirlant, Dudewicz, Györfi & van der Meulen (1997), Int. J. Math. Stat. Sci. 6(1), 17–39; ' +
       'Miller, G. A. (1955), Note on the bias of information estimates, in Information Theory in Psychology, 95–100; ' +
       'bin rules: Sturges (1926) JASA 21; Scott (1979) Biometrika 66; Freedman & Diaconis (1981) Z. Wahrsch. 57; Doane (1976) Am. Stat. 30.',
+    tuning: (base) => (base.width === 'none' ? binGrid(base) : []),
+    // Beyond d = 3 a product grid has far more cells than points at usual sample sizes.
+    defaultFor: { estimate: [{ dims: [1, 3], order: 50 }], bench: true },
     estimate: histogramEntropy,
-  },
+  }),
 ];
+
+export const registration: EstimatorFile = { catalogOrder: 10, estimators: histogramEstimators };

@@ -1,45 +1,87 @@
 /**
  * The estimator registry: the only way the harness and the CLI reach estimators.
+ *
+ * Every file directly in this folder is an estimator file: it exports `registration` (src/contracts.ts,
+ * EstimatorFile), and the registry imports them all, so a new estimator file needs no edit here. Helpers live
+ * in subfolders (shared/, kernel/). The registry lists the files by their `catalogOrder` and each file's
+ * estimators in their own order; that order is the catalog's, the default plans' and, at equal `order`, the
+ * default sets'. Every estimator passes the declaration check (src/spec.ts, checkEstimator) when registered.
  */
-import type { Estimator, Sample, Settings, SettingValue } from '../src/core/contracts.js';
+import { readdirSync } from 'node:fs';
+import { basename, dirname, extname, join } from 'node:path';
+import { fileURLToPath, pathToFileURL } from 'node:url';
+import type { DefaultEntry, DefaultSets, Estimator, EstimateDefaultEntry, EstimatorFile, Quantity, Sample, Settings, SettingValue } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
-import { formatSpec, parseSpec, validateSettings } from '../src/core/spec.js';
-import { histogramEstimators } from './histogram.js';
-import { spacingEstimators } from './spacing.js';
-import { nearestNeighbourEstimators } from './nearest-neighbour.js';
-import { kernelEstimators } from './kernel.js';
-import { parametricEstimators } from './parametric.js';
-import { mutualInformationEstimators } from './mutual-information.js';
-import { divergenceEstimators } from './divergence.js';
+import { checkEstimator, formatSpec, parseSpec, validateSettings } from '../src/core/spec.js';
 
-const builtIn: Estimator[] = [
-  ...histogramEstimators,
-  ...spacingEstimators,
-  ...nearestNeighbourEstimators,
-  ...kernelEstimators,
-  ...parametricEstimators,
-  ...mutualInformationEstimators,
-  ...divergenceEstimators,
-];
+/**
+ * The estimator files of this folder, imported: `.ts` under a TypeScript loader (tests, tsx), `.js` when built
+ * (dist/ also holds .d.ts and .map files, which are skipped). `npm run build` clears dist/ first, so a file
+ * deleted or moved from the sources does not linger there as a stale estimator file.
+ */
+async function importEstimatorFiles(): Promise<{ file: string; registration: EstimatorFile }[]> {
+  const self = fileURLToPath(import.meta.url);
+  const folder = dirname(self);
+  const extension = extname(self);
+  const names = readdirSync(folder, { withFileTypes: true })
+    .filter((entry) => entry.isFile() && entry.name.endsWith(extension) && !entry.name.endsWith(`.d${extension}`) && entry.name !== basename(self))
+    .map((entry) => entry.name)
+    .sort();
+  const files = await Promise.all(
+    names.map(async (name) => {
+      const namespace = (await import(pathToFileURL(join(folder, name)).href)) as { registration?: Partial<EstimatorFile> };
+      const registration = namespace.registration;
+      const file = `estimators/${name}`;
+      if (!registration || typeof registration.catalogOrder !== 'number' || !Array.isArray(registration.estimators)) {
+        throw new Error(
+          `${file} does not export registration = { catalogOrder, estimators }: every file directly in estimators/ is an estimator file, and helpers go in a subfolder (a stale build output? npm run build clears dist/)`,
+        );
+      }
+      return { file, registration: registration as EstimatorFile };
+    }),
+  );
+  const byOrder = new Map<number, string>();
+  for (const { file, registration } of files) {
+    const other = byOrder.get(registration.catalogOrder);
+    if (other) throw new Error(`${file} and ${other} both have catalogOrder ${registration.catalogOrder}; give each estimator file its own place`);
+    byOrder.set(registration.catalogOrder, file);
+  }
+  return files.sort((a, b) => a.registration.catalogOrder - b.registration.catalogOrder);
+}
+
+const files = await importEstimatorFiles();
+const builtIn: { file: string; estimator: Estimator }[] = files.flatMap(({ file, registration }) => registration.estimators.map((estimator) => ({ file, estimator })));
 
 const registry = new Map<string, Estimator>();
-const builtInById = new Map(builtIn.map((e) => [e.id, e]));
+const builtInById = new Map(builtIn.map(({ estimator }) => [estimator.id, estimator]));
 /**
  * Ids whose estimator exists only in this process's memory (registered or replaced by code, not built in and
  * not loaded from a module file): a worker thread rebuilds the registry from the built-ins and the plan's
  * module files, so it would not see them, or would run the built-in in their place.
  */
 const inProcessOnly = new Set<string>();
+/**
+ * Default-set membership by id. A replacement that declares no `defaultFor` keeps the replaced estimator's:
+ * the sets name slots (a replaced built-in keeps its cell names), and an edited copy should run where the
+ * original did.
+ */
+const membership = new Map<string, DefaultSets>();
 
 function record(estimator: Estimator, fromModule: boolean): void {
   registry.set(estimator.id, estimator);
+  if (estimator.defaultFor) membership.set(estimator.id, estimator.defaultFor);
   if (fromModule || builtInById.get(estimator.id) === estimator) inProcessOnly.delete(estimator.id);
   else inProcessOnly.add(estimator.id);
 }
 
-for (const estimator of builtIn) registerEstimator(estimator);
+for (const { file, estimator } of builtIn) {
+  if (registry.has(estimator.id)) throw new Error(`${file}: estimator id "${estimator.id}" is already registered by another estimator file`);
+  record(checkEstimator(`${file}: estimator`, estimator), false);
+}
 
+/** Registers a new estimator after checking its declaration (src/spec.ts, checkEstimator). */
 export function registerEstimator(estimator: Estimator): void {
+  checkEstimator('registered estimator', estimator);
   if (registry.has(estimator.id)) throw new UsageError(`estimator id "${estimator.id}" is already registered`);
   record(estimator, false);
 }
@@ -50,6 +92,7 @@ export function registerEstimator(estimator: Estimator): void {
  * passing the returned estimator back restores it.
  */
 export function replaceEstimator(estimator: Estimator, origin: 'code' | 'module' = 'code'): Estimator | undefined {
+  checkEstimator(origin === 'module' ? 'module estimator' : 'registered estimator', estimator);
   const previous = registry.get(estimator.id);
   record(estimator, origin === 'module');
   return previous;
@@ -80,6 +123,7 @@ export interface ConfiguredEstimator {
   spec: string;
 }
 
+/** The one place settings are validated: every declared setting present and valid, defaults filled in. */
 export function configureEstimator(id: string, given: Record<string, SettingValue> = {}): ConfiguredEstimator {
   const estimator = getEstimator(id);
   const settings = validateSettings(estimator.id, estimator.settings, given);
@@ -102,16 +146,27 @@ export function dimsRange([minDim, maxDim]: Estimator['dims']): string {
   return maxDim === Infinity ? `d ≥ ${minDim}` : minDim === maxDim ? `d = ${minDim}` : `${minDim} ≤ d ≤ ${maxDim}`;
 }
 
+/** Whether data of dimension `dim` are within the estimator's declared `dims`. */
+export function supportsDimension(estimator: Estimator, dim: number): boolean {
+  return dim >= estimator.dims[0] && dim <= estimator.dims[1];
+}
+
+/**
+ * The one dimension check: asking an estimator for data of a dimension it does not support is a usage mistake
+ * (exit 2), found before any estimate is made. Estimators themselves never check it; plans skip such cells.
+ */
+export function checkDimension(estimator: Estimator, dim: number): void {
+  if (!supportsDimension(estimator, dim)) throw new UsageError(`${estimator.id} does not support d = ${dim}; it needs ${dimsRange(estimator.dims)}`);
+}
+
 /**
  * Runs an estimator on a sample after checking the dimension. Estimators take their settings as configured
  * (keywords such as 'auto' included); with `report`, the settings actually used are resolved too, which costs
  * a second look at the sample, so the harness's hot path leaves it off.
  */
 export function runEstimator(configured: ConfiguredEstimator, sample: Sample, options: { report?: boolean } = {}): { value: number; settings: Settings } {
-  const { estimator } = configured;
-  const [minDim, maxDim] = estimator.dims;
-  if (sample.dim < minDim || sample.dim > maxDim) throw new UsageError(`${estimator.id} does not support d = ${sample.dim}; it needs ${dimsRange(estimator.dims)}`);
-  const value = estimator.estimate(sample, configured.settings);
+  checkDimension(configured.estimator, sample.dim);
+  const value = configured.estimator.estimate(sample, configured.settings);
   return { value, settings: options.report ? resolveSettings(configured, sample) : configured.settings };
 }
 
@@ -126,4 +181,29 @@ export function estimatorLabel(spec: string): string {
   }
   const changed = Object.entries(values).filter(([k, v]) => defaults[k] !== v);
   return changed.length ? `${id}:${changed.map(([k, v]) => `${k}=${v}`).join(',')}` : id;
+}
+
+/**
+ * A default set as the estimators declare it (their `defaultFor`): `estimate` for `hhat estimate` without
+ * --estimator on data of dimension `dim`, `bench` for the default plan of `quantity`. Estimator specs (the bare
+ * id where an entry keeps the default settings), by increasing `order`, equal orders in registry order.
+ */
+export function defaultSet(set: keyof DefaultSets, quantity: Quantity, dim?: number): string[] {
+  const members: { spec: string; order: number; position: number }[] = [];
+  listEstimators().forEach((estimator, position) => {
+    const declared = membership.get(estimator.id)?.[set];
+    if (estimator.quantity !== quantity || !declared) return;
+    const entries: readonly EstimateDefaultEntry[] = declared === true ? [{}] : declared;
+    for (const entry of entries) {
+      const [minDim, maxDim] = entry.dims ?? estimator.dims;
+      if (set === 'estimate' && dim !== undefined && !(supportsDimension(estimator, dim) && dim >= minDim && dim <= maxDim)) continue;
+      members.push({ spec: entrySpec(estimator, entry), order: entry.order ?? 0, position });
+    }
+  });
+  return members.sort((a, b) => a.order - b.order || a.position - b.position).map((m) => m.spec);
+}
+
+function entrySpec(estimator: Estimator, entry: DefaultEntry): string {
+  if (!entry.settings) return estimator.id;
+  return formatSpec(estimator.id, validateSettings(estimator.id, estimator.settings, entry.settings), Object.keys(entry.settings));
 }

@@ -12,7 +12,7 @@
  * - a number > 0: data units for d = 1, whitened units for d > 1. A fixed number in data units is not
  *   unit-equivariant (like a fixed histogram bin width): rescaling the data by c does not shift Ĥ by log c.
  *   The rules are equivariant: Ĥ shifts by exactly d·log c. Data whose spread is subnormal or near the top
- *   of the double range are worked on in a power-of-two unit near the spread (estimators/scaling.ts), with a
+ *   of the double range are worked on in a power-of-two unit near the spread (estimators/shared/scaling.ts), with a
  *   numeric 1-D bandwidth converted exactly, so the estimate is the one exact arithmetic would give.
  *
  * `resolve` reports the numeric bandwidth actually used (in the units above), so a run file records it and
@@ -30,15 +30,13 @@
  * point), not a refusal. The estimator fails ('numeric') only where that value does not fit in a double:
  * a point over ~1.3e154 bandwidths from its nearest neighbour, or data whose range overflows.
  */
-import type { Estimator, Sample, SettingSpec, Settings, SettingValue } from '../src/core/contracts.js';
-import { EstimateError } from '../src/core/errors.js';
-import { parseNumber } from '../src/core/spec.js';
-import { SampleMemo } from './sample-memo.js';
+import { defineEstimator, type Estimator, type EstimatorFile, type Sample, SCALE_FACTORS, type SettingSpec, type TuningAxis } from '../src/core/contracts.js';
+import { SampleMemo } from './shared/sample-memo.js';
 import { type BandwidthSetting, chooseBandwidth, type KernelData, kernelEntropy, prepareKernelData, toDataUnits } from './kernel/resubstitution.js';
 
 export const BANDWIDTH_RULES = ['silverman', 'scott', 'likelihood-cv'] as const;
 
-const kernelSettings: readonly SettingSpec[] = [
+const kernelSettings = [
   {
     name: 'bandwidth',
     meaning: 'Gaussian kernel width: silverman, scott, likelihood-cv, or a number (data units if d = 1, whitened units if d > 1)',
@@ -56,7 +54,18 @@ const kernelSettings: readonly SettingSpec[] = [
     min: 0,
     minExclusive: true,
   },
-];
+] as const satisfies readonly SettingSpec[];
+
+/** What the bandwidth depends on: a rule (or cross-validation) times `scale`, or a number. */
+export interface KernelSettings {
+  bandwidth: BandwidthSetting;
+  scale: number;
+}
+
+/** The tuning grid of a bandwidth rule: its bandwidth ×SCALE_FACTORS (a numeric bandwidth is a choice of its own). */
+export function bandwidthGrid(base: { bandwidth: BandwidthSetting }): TuningAxis<{ scale: number }>[] {
+  return typeof base.bandwidth === 'string' ? [{ setting: 'scale', values: SCALE_FACTORS }] : [];
+}
 
 const searchedBandwidths = new SampleMemo<number>();
 
@@ -64,24 +73,14 @@ const searchedBandwidths = new SampleMemo<number>();
  * The bandwidth used, in the prepared points' units: a numeric setting as given, a rule's (or
  * cross-validation's) value times `scale`.
  */
-function usedBandwidth(sample: Sample, data: KernelData, settings: Settings): number {
-  const setting = bandwidthSetting(settings.bandwidth);
+function usedBandwidth(sample: Sample, data: KernelData, settings: KernelSettings): number {
+  const setting = settings.bandwidth;
   // The search is the costly part, and `hhat estimate` asks for the value and then the bandwidth it used.
   const chosen = setting === 'likelihood-cv' ? searchedBandwidths.get(sample.data.subarray(0, sample.n * sample.dim), `${sample.dim}`, () => chooseBandwidth(data, setting)) : chooseBandwidth(data, setting);
-  return typeof setting === 'number' ? chosen : chosen * (typeof settings.scale === 'number' ? settings.scale : 1);
+  return typeof setting === 'number' ? chosen : chosen * settings.scale;
 }
 
-/** The bandwidth a setting names: a rule, likelihood-cv, or a number (also when written as text). */
-export function bandwidthSetting(value: SettingValue | undefined): BandwidthSetting {
-  if (value === undefined) return 'silverman';
-  if (typeof value === 'number') return value;
-  if ((BANDWIDTH_RULES as readonly string[]).includes(value)) return value as BandwidthSetting;
-  const parsed = parseNumber(value);
-  if (parsed !== undefined) return parsed;
-  throw new EstimateError('invalid-input', `kernel: bandwidth=${value} is not allowed; it must be one of ${BANDWIDTH_RULES.join(', ')}, or a number > 0`);
-}
-
-export const kernelEstimator: Estimator = {
+export const kernelEstimator: Estimator = defineEstimator({
   id: 'kernel',
   family: 'kernel',
   quantity: 'entropy',
@@ -90,15 +89,19 @@ export const kernelEstimator: Estimator = {
   dims: [1, Infinity],
   reference:
     'Ahmad & Lin, IEEE Trans. Inf. Theory 22(3):372–375, 1976 (resubstitution estimate); leave-one-out form: Joe, Ann. Inst. Statist. Math. 41:683–697, 1989, and Hall & Morton, Ann. Inst. Statist. Math. 45:69–88, 1993; bandwidth rules: Silverman 1986 (eq. 3.31), Scott 1992; binned FFT sums: Wand, J. Comput. Graph. Statist. 3:433–445, 1994',
-  resolve(sample: Sample, settings: Settings): Settings {
+  tuning: bandwidthGrid,
+  defaultFor: { estimate: [{ order: 40 }], bench: true },
+  resolve(sample, settings) {
     // The numeric bandwidth reported already includes the scale, so the settings used reproduce the estimate.
     const data = prepareKernelData(sample);
     return { ...settings, bandwidth: toDataUnits(data, usedBandwidth(sample, data, settings)), scale: 1 };
   },
-  estimate(sample: Sample, settings: Settings): number {
+  estimate(sample, settings) {
     const data = prepareKernelData(sample);
     return kernelEntropy(data, usedBandwidth(sample, data, settings));
   },
-};
+});
 
 export const kernelEstimators: Estimator[] = [kernelEstimator];
+
+export const registration: EstimatorFile = { catalogOrder: 40, estimators: kernelEstimators };

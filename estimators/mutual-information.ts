@@ -26,28 +26,34 @@
  *
  * The catalog and the harness reach these through estimators/index.ts; importing this file directly is fine.
  */
-import type { Estimator, Sample, SettingSpec, Settings } from '../src/core/contracts.js';
+import { defineEstimator, type Estimator, type EstimatorFile, type Sample, type SettingSpec, type Settings } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { KnnIndex } from '../src/math/knn.js';
 import { digamma } from '../src/math/special.js';
+import { validateSettings } from '../src/core/spec.js';
 import { checkNotConstant } from './divergence.js';
-import { type AxisBins, BIN_RULES, histogramCells, histogramEstimators, histogramGrid } from './histogram.js';
-import { BANDWIDTH_RULES, bandwidthSetting, kernelEstimator, kernelEstimators } from './kernel.js';
+import { type AxisBins, BIN_RULES, type BinRule, binGrid, histogramCells, histogramEstimators, histogramGrid } from './histogram.js';
+import { BANDWIDTH_RULES, bandwidthGrid, kernelEstimator, kernelEstimators, type KernelSettings } from './kernel.js';
 import { nearestNeighbourEstimators } from './nearest-neighbour.js';
 import { logDeterminantSpd, parametricEstimators, scatterMatrix, wishartLogDetShift } from './parametric.js';
-import { inSpreadUnit } from './scaling.js';
+import { inSpreadUnit } from './shared/scaling.js';
 import { spacingEstimators } from './spacing.js';
 
 const KSG_REFERENCE = 'Kraskov, A., Stögbauer, H. & Grassberger, P. (2004). Estimating mutual information. Physical Review E 69, 066138';
 
-export const COPULA_SETTING: SettingSpec = {
+export const COPULA_SETTING = {
   name: 'copula',
   meaning:
     'none, or rank: replace each coordinate by its integer rank 1..n first (equal values by row order), making the estimate invariant to increasing maps of any coordinate; distances between ranks are exact, so KSG ties are decided exactly, not by rounding',
   default: 'none',
   kind: 'choice',
   choices: ['none', 'rank'],
-};
+} as const satisfies SettingSpec;
+
+type Copula = (typeof COPULA_SETTING.choices)[number];
+
+/** Every MI estimator is in both default sets of mutual information, at order 0: registry order. */
+const IN_DEFAULT_SETS = { estimate: true, bench: true } as const;
 
 // ---------------------------------------------------------------------------------------------------------
 // Shared checks and transforms
@@ -105,24 +111,12 @@ export function rankTransform(data: Float64Array, n: number, dim: number): Float
   return out;
 }
 
-function copulaOf(id: string, settings: Settings): 'none' | 'rank' {
-  const copula = settings.copula ?? 'none';
-  if (copula !== 'none' && copula !== 'rank') throw new EstimateError('invalid-input', `${id}: copula=${String(copula)} is not allowed; copula must be none or rank`);
-  return copula;
-}
-
 /** The sample to estimate from: checked, split, and rank-transformed when copula=rank. */
-function prepared(id: string, sample: Sample, settings: Settings): { data: Float64Array; n: number; xDim: number; yDim: number } {
+function prepared(id: string, sample: Sample, copula: Copula): { data: Float64Array; n: number; xDim: number; yDim: number } {
   const { n, xDim, yDim } = checkedSplit(id, sample);
   const raw = sample.data.subarray(0, n * sample.dim);
-  const data = copulaOf(id, settings) === 'rank' ? rankTransform(raw, n, sample.dim) : raw;
+  const data = copula === 'rank' ? rankTransform(raw, n, sample.dim) : raw;
   return { data, n, xDim, yDim };
-}
-
-function kOf(id: string, settings: Settings, fallback: number): number {
-  const k = settings.k ?? fallback;
-  if (typeof k !== 'number' || !Number.isInteger(k) || k < 1) throw new EstimateError('invalid-input', `${id}: k=${String(k)} is not allowed; k must be an integer ≥ 1`);
-  return k;
 }
 
 /** Rethrows a histogram/kernel error under this estimator's id, without advice on settings it does not have. */
@@ -174,7 +168,7 @@ export function ksgMutualInformation(data: Float64Array, n: number, xDim: number
   const dim = xDim + yDim;
   if (n <= k) throw new EstimateError('too-few-points', `${id} needs n > k; got n = ${n} with k = ${k}`);
   // Max-norm distances compare every coordinate, so a subnormal or huge spread gets one power of two for
-  // all of them (exact, estimators/scaling.ts): differences then cannot overflow, and I does not move.
+  // all of them (exact, estimators/shared/scaling.ts): differences then cannot overflow, and I does not move.
   data = inSpreadUnit(data.subarray(0, n * dim), n, dim, 'common').data;
   const joint = new KnnIndex(data.subarray(0, n * dim), dim, { norm: 'max' });
   // Variant 2 also asks for the (k+1)-th neighbour: where it is as near as the k-th, the k are tied.
@@ -314,10 +308,12 @@ function extentsOver(data: Float64Array, dim: number, xDim: number, i: number, m
 }
 
 const KSG_DEFAULT_K = 3;
+/** k = 1..10 (k < n): Kraskov et al. (2004) use k = 2..4 and show the bias and variance trade over this range. */
+const KSG_TUNING_K = [1, 2, 3, 4, 5, 6, 7, 8, 9, 10];
 
 function ksgEstimator(variant: 1 | 2): Estimator {
   const id = `ksg${variant}`;
-  return {
+  return defineEstimator({
     id,
     family: 'mutual-information',
     quantity: 'mutual-information',
@@ -331,11 +327,13 @@ function ksgEstimator(variant: 1 | 2): Estimator {
     ],
     dims: [2, Infinity],
     reference: `${KSG_REFERENCE}, estimator (${variant === 1 ? 8 : 9}).`,
-    estimate(sample: Sample, settings: Settings): number {
-      const { data, n, xDim, yDim } = prepared(id, sample, settings);
-      return ksgMutualInformation(data, n, xDim, yDim, kOf(id, settings, KSG_DEFAULT_K), variant, id);
+    tuning: (_base, n) => [{ setting: 'k', values: KSG_TUNING_K.filter((k) => k < n) }],
+    defaultFor: IN_DEFAULT_SETS,
+    estimate(sample, { k, copula }) {
+      const { data, n, xDim, yDim } = prepared(id, sample, copula);
+      return ksgMutualInformation(data, n, xDim, yDim, k, variant, id);
     },
-  };
+  });
 }
 
 // ---------------------------------------------------------------------------------------------------------
@@ -348,20 +346,19 @@ function ksgEstimator(variant: 1 | 2): Estimator {
  *   Î = log n + (S_xy − S_x − S_y)/n,
  * and Miller–Madow adds (B − 1)/(2n) to each entropy: (B_x + B_y − B_xy − 1)/(2n) in total.
  */
-function histogramMutualInformation(sample: Sample, settings: Settings): number {
+function histogramMutualInformation(
+  sample: Sample,
+  { bins, scale, correction, copula }: { bins: BinRule | number; scale: number; correction: 'none' | 'miller-madow'; copula: Copula },
+): number {
   const id = 'mi-histogram';
-  const correction = settings.correction ?? 'none';
-  if (correction !== 'none' && correction !== 'miller-madow') {
-    throw new EstimateError('invalid-input', `${id}: correction=${String(correction)} is not allowed; correction must be none or miller-madow`);
-  }
-  const { data, n, xDim, yDim } = prepared(id, sample, settings);
+  const { data, n, xDim, yDim } = prepared(id, sample, copula);
   const dim = xDim + yDim;
   if (n < 2) throw new EstimateError('too-few-points', `${id} needs at least 2 points, got ${n}`);
   const joint: Sample = { n, dim, data };
   checkNotConstant(id, data, n, dim);
   let grid: AxisBins[];
   try {
-    grid = histogramGrid(joint, { bins: settings.bins ?? 'freedman-diaconis', scale: settings.scale ?? 1, width: 'none' });
+    grid = histogramGrid(joint, { bins, scale, width: 'none' });
   } catch (error) {
     renamed(id, 'histogram', error);
   }
@@ -382,18 +379,15 @@ function histogramMutualInformation(sample: Sample, settings: Settings): number 
  * multiplied by n + 1 for the integer ranks (a numeric bandwidth of a d > 1 part is in whitened units,
  * unaffected).
  */
-function kernelMutualInformation(sample: Sample, settings: Settings): number {
+function kernelMutualInformation(sample: Sample, { bandwidth, scale, copula }: KernelSettings & { copula: Copula }): number {
   const id = 'mi-kernel';
-  const { data, n, xDim, yDim } = prepared(id, sample, settings);
+  const { data, n, xDim, yDim } = prepared(id, sample, copula);
   const dim = xDim + yDim;
-  const bandwidth = settings.bandwidth ?? 'silverman';
-  const chosen = bandwidthSetting(bandwidth);
-  const numericBandwidth = typeof chosen === 'number' ? chosen : undefined;
-  const rankUnit = copulaOf(id, settings) === 'rank' ? n + 1 : 1;
+  const rankUnit = copula === 'rank' ? n + 1 : 1;
   const entropyOf = (part: Sample): number => {
-    const partBandwidth = numericBandwidth !== undefined && part.dim === 1 ? numericBandwidth * rankUnit : bandwidth;
+    const partBandwidth = typeof bandwidth === 'number' && part.dim === 1 ? bandwidth * rankUnit : bandwidth;
     try {
-      return kernelEstimator.estimate(part, { bandwidth: partBandwidth, scale: settings.scale ?? 1 });
+      return kernelEstimator.estimate(part, { bandwidth: partBandwidth, scale });
     } catch (error) {
       return renamed(id, 'kernel', error);
     }
@@ -413,13 +407,9 @@ function kernelMutualInformation(sample: Sample, settings: Settings): number {
  * Σ_{i=1}^{m} ψ((n − i)/2) (E log det of a Wishart_m(n − 1, Σ) scatter is log det Σ + m log 2 + W(m);
  * Ahmed & Gokhale 1989): it is then the difference of three unbiased entropy estimates, so unbiased.
  */
-function gaussianMutualInformationEstimate(sample: Sample, settings: Settings): number {
+function gaussianMutualInformationEstimate(sample: Sample, { correction, copula }: { correction: 'ahmed-gokhale' | 'none'; copula: Copula }): number {
   const id = 'mi-gaussian';
-  const correction = settings.correction ?? 'ahmed-gokhale';
-  if (correction !== 'none' && correction !== 'ahmed-gokhale') {
-    throw new EstimateError('invalid-input', `${id}: correction=${String(correction)} is not allowed; correction must be ahmed-gokhale or none`);
-  }
-  const { data, n, xDim, yDim } = prepared(id, sample, settings);
+  const { data, n, xDim, yDim } = prepared(id, sample, copula);
   const dim = xDim + yDim;
   if (n <= dim) throw new EstimateError('too-few-points', `${id}: a ${dim}-dimensional covariance needs n ≥ ${dim + 1} points, but n = ${n}`);
   const scatter = scatterMatrix({ n, dim, data }, new Float64Array(dim));
@@ -457,22 +447,24 @@ function entropyEstimatorIds(): string[] {
   return entropyEstimatorList.map((e) => e.id);
 }
 
-const entropySetting: SettingSpec = {
+const entropySetting = {
   name: 'entropy',
   meaning: 'the entropy estimator used for H(X), H(Y) and H(X,Y): any built-in entropy estimator id, with its default settings',
   default: ENTROPY_DEFAULT,
   kind: 'choice',
   choices: entropyEstimatorIds(),
-};
+} as const satisfies SettingSpec;
 
-function fromEntropies(sample: Sample, settings: Settings): number {
+/** The entropy estimator `entropy` names (one of the setting's choices) and its settings: defaults, and our k where it has one. */
+function innerEstimator(entropy: string, k: number): { inner: Estimator; settings: Settings } {
+  const inner = entropyEstimatorList.find((e) => e.id === entropy)!;
+  return { inner, settings: validateSettings(inner.id, inner.settings, inner.settings.some((s) => s.name === 'k') ? { k } : {}) };
+}
+
+function fromEntropies(sample: Sample, { entropy, k, copula }: { entropy: string; k: number; copula: Copula }): number {
   const id = 'mi-from-entropies';
-  const entropyId = settings.entropy ?? ENTROPY_DEFAULT;
-  const inner = entropyEstimatorList.find((e) => e.id === entropyId);
-  if (!inner) {
-    throw new EstimateError('invalid-input', `${id}: entropy=${String(entropyId)} is not allowed; it must be a built-in entropy estimator: ${entropyEstimatorIds().join(', ')}`);
-  }
-  const { data, n, xDim, yDim } = prepared(id, sample, settings);
+  const { inner, settings } = innerEstimator(entropy, k);
+  const { data, n, xDim, yDim } = prepared(id, sample, copula);
   const dim = xDim + yDim;
   const [minDim, maxDim] = inner.dims;
   for (const [part, d] of [['X', xDim], ['Y', yDim], ['(X, Y)', dim]] as const) {
@@ -481,9 +473,7 @@ function fromEntropies(sample: Sample, settings: Settings): number {
       throw new EstimateError('dimension', `${id}: entropy=${inner.id} supports ${range}, but ${part} has d = ${d}; choose an entropy estimator for any dimension`);
     }
   }
-  const base: Settings = Object.fromEntries(inner.settings.map((s) => [s.name, s.default]));
-  if (inner.settings.some((s) => s.name === 'k')) base.k = kOf(id, settings, KSG_DEFAULT_K);
-  const entropyOf = (part: Sample): number => inner.estimate(part, base);
+  const entropyOf = (part: Sample): number => inner.estimate(part, settings);
   const hx = entropyOf({ n, dim: xDim, data: columns(data, n, dim, 0, xDim) });
   const hy = entropyOf({ n, dim: yDim, data: columns(data, n, dim, xDim, dim) });
   const hxy = entropyOf({ n, dim, data });
@@ -495,7 +485,7 @@ function fromEntropies(sample: Sample, settings: Settings): number {
 export const mutualInformationEstimators: Estimator[] = [
   ksgEstimator(1),
   ksgEstimator(2),
-  {
+  defineEstimator({
     id: 'mi-histogram',
     family: 'mutual-information',
     quantity: 'mutual-information',
@@ -517,9 +507,11 @@ export const mutualInformationEstimators: Estimator[] = [
     reference:
       'Plug-in estimate on a partition, e.g. Moddemeijer, R. (1989). On estimation of entropy and mutual information of continuous distributions. Signal Processing 16(3), 233–248; ' +
       'Miller, G. A. (1955), Note on the bias of information estimates; bin rules as in the histogram entropy estimator.',
+    tuning: binGrid,
+    defaultFor: IN_DEFAULT_SETS,
     estimate: histogramMutualInformation,
-  },
-  {
+  }),
+  defineEstimator({
     id: 'mi-kernel',
     family: 'mutual-information',
     quantity: 'mutual-information',
@@ -541,9 +533,11 @@ export const mutualInformationEstimators: Estimator[] = [
     reference:
       'Moon, Y.-I., Rajagopalan, B. & Lall, U. (1995). Estimation of mutual information using kernel density estimators. Physical Review E 52(3), 2318–2321; ' +
       `entropy estimates as in the kernel estimator (${kernelEstimator.reference.split(';')[0]}).`,
+    tuning: bandwidthGrid,
+    defaultFor: IN_DEFAULT_SETS,
     estimate: kernelMutualInformation,
-  },
-  {
+  }),
+  defineEstimator({
     id: 'mi-gaussian',
     family: 'mutual-information',
     quantity: 'mutual-information',
@@ -561,9 +555,11 @@ export const mutualInformationEstimators: Estimator[] = [
     dims: [2, Infinity],
     reference:
       'Cover, T. M. & Thomas, J. A. (2006). Elements of Information Theory, 2nd ed., Sec. 8.5 (Gaussian MI); bias term from Ahmed, N. A. & Gokhale, D. V. (1989), IEEE Trans. Inf. Theory 35(3), 688–692.',
+    // No tuning grid: nothing to smooth; the correction picks an estimator.
+    defaultFor: IN_DEFAULT_SETS,
     estimate: gaussianMutualInformationEstimate,
-  },
-  {
+  }),
+  defineEstimator({
     id: 'mi-from-entropies',
     family: 'mutual-information',
     quantity: 'mutual-information',
@@ -576,6 +572,14 @@ export const mutualInformationEstimators: Estimator[] = [
     dims: [2, Infinity],
     reference:
       'Cover, T. M. & Thomas, J. A. (2006). Elements of Information Theory, 2nd ed., Secs. 8.5–8.6: I(X;Y) = h(X) + h(Y) − h(X,Y); entropies by the chosen estimator (see its own reference).',
+    // The k grid of the entropy estimator used (none when it has no k): k is all this estimator passes on.
+    tuning(base, n) {
+      const { inner, settings } = innerEstimator(base.entropy, base.k);
+      return (inner.tuning?.(settings, n) ?? []).filter((axis): axis is { setting: 'k'; values: readonly number[] } => axis.setting === 'k');
+    },
+    defaultFor: IN_DEFAULT_SETS,
     estimate: fromEntropies,
-  },
+  }),
 ];
+
+export const registration: EstimatorFile = { catalogOrder: 60, estimators: mutualInformationEstimators };

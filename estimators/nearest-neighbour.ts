@@ -9,23 +9,23 @@
  * Distances come from the exact kd-tree in src/math/knn.ts. Repeated points (zero distances) are reported as
  * EstimateError('ties'), never turned into −Infinity.
  */
-import type { Estimator, Sample, SettingSpec, Settings } from '../src/core/contracts.js';
+import { defineEstimator, type Estimator, type EstimatorFile, type SettingSpec } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { KnnIndex, type KnnNorm } from '../src/math/knn.js';
-import { SampleMemo } from './sample-memo.js';
+import { SampleMemo } from './shared/sample-memo.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { checkFiniteValues } from '../src/core/sample.js';
-import { inSpreadUnit, rowsDifferingFromPartners } from './scaling.js';
+import { inSpreadUnit, rowsDifferingFromPartners } from './shared/scaling.js';
 
 const NORMS = ['euclidean', 'max'] as const;
 
-const NORM_SETTING: SettingSpec = {
+const NORM_SETTING = {
   name: 'norm',
   meaning: 'distance between points: euclidean, or max (Chebyshev, the largest coordinate difference)',
   default: 'euclidean',
   kind: 'choice',
   choices: NORMS,
-};
+} as const satisfies SettingSpec;
 
 /** log of the volume of the unit ball of the norm: Euclidean π^{d/2}/Γ(d/2+1), max norm 2^d (a cube). */
 export function logUnitBallVolumeOf(norm: KnnNorm, dim: number): number {
@@ -272,7 +272,7 @@ function neighbourDistances(data: Float64Array, n: number, dim: number, norm: Kn
     ({ index, logJacobian } = kept);
     if (kept.searches >= 2) stride = Math.min(n - 1, Math.max(k, SHARED_NEIGHBOURS));
   } else {
-    // Distances compare coordinates, so one power of two for all columns (estimators/scaling.ts).
+    // Distances compare coordinates, so one power of two for all columns (estimators/shared/scaling.ts).
     const scaled = inSpreadUnit(data, n, dim, 'common');
     logJacobian = scaled.logJacobian;
     index = new KnnIndex(scaled.data, dim, { norm });
@@ -282,9 +282,8 @@ function neighbourDistances(data: Float64Array, n: number, dim: number, norm: Kn
   return search;
 }
 
-/** n, after checking the data are finite and n > k. */
+/** n, after checking the data are finite and n > k (k is an integer ≥ 1, as its setting declares). */
 function checkedPointCount(id: string, data: Float64Array, dim: number, k: number): number {
-  if (!Number.isInteger(k) || k < 1) throw new EstimateError('invalid-input', `${id}: k=${k} is not allowed; k must be an integer ≥ 1`);
   const n = Math.floor(data.length / dim);
   checkFiniteValues(id, { n, dim, data });
   if (n <= k) throw new EstimateError('too-few-points', `${id} needs n > k; got n = ${n} with k = ${k}`);
@@ -352,22 +351,6 @@ function ordinal(j: number): string {
   return `${j}${['th', 'st', 'nd', 'rd'][j % 10] ?? 'th'}`;
 }
 
-function normOf(id: string, settings: Settings): KnnNorm {
-  const norm = settings.norm ?? 'euclidean';
-  if (norm !== 'euclidean' && norm !== 'max') {
-    throw new EstimateError('invalid-input', `${id}: norm=${String(norm)} is not allowed; norm must be one of euclidean | max`);
-  }
-  return norm;
-}
-
-function kOf(id: string, settings: Settings, fallback: number): number {
-  const k = settings.k ?? fallback;
-  if (typeof k !== 'number' || !Number.isInteger(k) || k < 1) {
-    throw new EstimateError('invalid-input', `${id}: k=${String(k)} is not allowed; k must be an integer ≥ 1`);
-  }
-  return k;
-}
-
 const KL_DEFAULT_K = 3;
 
 /**
@@ -381,8 +364,13 @@ const KL_DEFAULT_K = 3;
  */
 const WEIGHTED_DEFAULT_K = 12;
 
+/** k = 1..10 (k < n): from the least-biased, noisiest order to a smooth one. */
+const KL_TUNING_K = [1, 2, 3, 4, 5, 6, 7, 8, 9, 10];
+/** The weighted estimator's largest order: 2..20, enough orders ⌊ℓk/d⌋ for the weights in the plans' dimensions. */
+const WEIGHTED_TUNING_K = [2, 4, 6, 8, 12, 16, 20];
+
 export const nearestNeighbourEstimators: Estimator[] = [
-  {
+  defineEstimator({
     id: 'kozachenko-leonenko',
     family: 'nearest-neighbour',
     quantity: 'entropy',
@@ -401,12 +389,13 @@ export const nearestNeighbourEstimators: Estimator[] = [
     reference:
       'Kozachenko, L. F. & Leonenko, N. N. (1987). Sample estimate of the entropy of a random vector. Problems of Information Transmission 23(2), 95–101; ' +
       'general k as in Kraskov, A., Stögbauer, H. & Grassberger, P. (2004). Estimating mutual information. Physical Review E 69, 066138, eq. (20).',
-    estimate(sample: Sample, settings: Settings): number {
-      const id = 'kozachenko-leonenko';
-      return kozachenkoLeonenkoEntropy(sample.data.subarray(0, sample.n * sample.dim), sample.dim, kOf(id, settings, KL_DEFAULT_K), normOf(id, settings), id);
+    tuning: (_base, n) => [{ setting: 'k', values: KL_TUNING_K.filter((k) => k < n) }],
+    defaultFor: { estimate: [{ order: 10 }], bench: true },
+    estimate(sample, { k, norm }) {
+      return kozachenkoLeonenkoEntropy(sample.data.subarray(0, sample.n * sample.dim), sample.dim, k, norm, 'kozachenko-leonenko');
     },
-  },
-  {
+  }),
+  defineEstimator({
     id: 'kozachenko-leonenko-weighted',
     family: 'nearest-neighbour',
     quantity: 'entropy',
@@ -424,9 +413,19 @@ export const nearestNeighbourEstimators: Estimator[] = [
     dims: [1, Infinity],
     reference:
       'Berrett, T. B., Samworth, R. J. & Yuan, M. (2019). Efficient multivariate entropy estimation via k-nearest neighbour distances. The Annals of Statistics 47(1), 288–318.',
-    estimate(sample: Sample, settings: Settings): number {
-      const id = 'kozachenko-leonenko-weighted';
-      return weightedKozachenkoLeonenkoEntropy(sample.data.subarray(0, sample.n * sample.dim), sample.dim, kOf(id, settings, WEIGHTED_DEFAULT_K), normOf(id, settings), id);
+    tuning: (_base, n) => [{ setting: 'k', values: WEIGHTED_TUNING_K.filter((k) => k < n) }],
+    // In d = 1 it is the plain estimator at k = 12 (one order); from d = 4 its bias cancellation makes it the first choice.
+    defaultFor: {
+      estimate: [
+        { dims: [2, 3], order: 15 },
+        { dims: [4, Infinity], order: 5 },
+      ],
+      bench: true,
     },
-  },
+    estimate(sample, { k, norm }) {
+      return weightedKozachenkoLeonenkoEntropy(sample.data.subarray(0, sample.n * sample.dim), sample.dim, k, norm, 'kozachenko-leonenko-weighted');
+    },
+  }),
 ];
+
+export const registration: EstimatorFile = { catalogOrder: 30, estimators: nearestNeighbourEstimators };

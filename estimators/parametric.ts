@@ -19,18 +19,18 @@
  * det S by Cholesky (LLᵀ = S, log det S = 2 Σ log L_ii) on mean-centred data, each column divided by its
  * largest deviation, so neither a large common offset nor an extreme unit costs digits.
  */
-import type { Estimator, Sample, Settings } from '../src/core/contracts.js';
+import { defineEstimator, type Estimator, type EstimatorFile, type Sample } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { digamma } from '../src/math/special.js';
 import { checkFiniteValues } from '../src/core/sample.js';
-import { spreadUnit, toUnit } from './scaling.js';
+import { spreadUnit, toUnit } from './shared/scaling.js';
 
 /**
  * Sum of squares and cross-products about the mean, of the data divided column-wise by a scale whose log
  * is written to `logColumnScale` (d×d row-major). Dividing by each column's largest deviation keeps the
  * squares far from overflow and underflow whatever the data's unit; log det S = log det(scaled S) +
  * 2 Σ_j logColumnScale_j. A subnormal or huge spread is first brought near 1 by a power of two, and
- * values near the top of the double range near 0 (estimators/scaling.ts, exact), so the mean neither
+ * values near the top of the double range near 0 (estimators/shared/scaling.ts, exact), so the mean neither
  * overflows nor loses the digits a subnormal has.
  */
 export function scatterMatrix(sample: Sample, logColumnScale: Float64Array): Float64Array {
@@ -104,13 +104,9 @@ export function wishartLogDetShift(n: number, dim: number): number {
   return total;
 }
 
-function gaussianEntropy(sample: Sample, settings: Settings): number {
+function gaussianEntropy(sample: Sample, correction: 'ahmed-gokhale' | 'none'): number {
   const id = 'gaussian';
   const { n, dim, data } = sample;
-  const correction = settings.correction ?? 'ahmed-gokhale';
-  if (correction !== 'none' && correction !== 'ahmed-gokhale') {
-    throw new EstimateError('invalid-input', `${id}: correction=${String(correction)} is not allowed; correction must be none or ahmed-gokhale`);
-  }
   if (n <= dim) {
     throw new EstimateError('too-few-points', `${id}: a ${dim}-dimensional covariance needs n ≥ ${dim + 1} points, but n = ${n}`);
   }
@@ -134,7 +130,7 @@ function gaussianEntropy(sample: Sample, settings: Settings): number {
 }
 
 export const parametricEstimators: Estimator[] = [
-  {
+  defineEstimator({
     id: 'gaussian',
     family: 'parametric',
     quantity: 'entropy',
@@ -151,6 +147,10 @@ export const parametricEstimators: Estimator[] = [
     dims: [1, Infinity],
     reference:
       'Ahmed, N. A. & Gokhale, D. V. (1989). Entropy expressions and their estimators for multivariate distributions. IEEE Trans. Inf. Theory 35(3), 688–692.',
-    estimate: gaussianEntropy,
-  },
+    // No tuning grid: the correction picks an estimator (unbiased or maximum likelihood), not a smoothing level.
+    defaultFor: { estimate: [{ order: 60 }], bench: true },
+    estimate: (sample, { correction }) => gaussianEntropy(sample, correction),
+  }),
 ];
+
+export const registration: EstimatorFile = { catalogOrder: 50, estimators: parametricEstimators };

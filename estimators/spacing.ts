@@ -13,11 +13,11 @@
  *
  *   const h = vasicekEntropy(sortAscending(Float64Array.of(...)), 3);   // sortAscending: src/math/sort.ts
  */
-import type { Estimator, Sample, SettingSpec, Settings } from '../src/core/contracts.js';
+import { defineEstimator, type DefaultSets, type Estimator, type EstimatorFile, type Sample, SCALE_FACTORS, type SettingSpec } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
-import { sortAscending } from '../src/math/sort.js';
 import { checkFiniteValues } from '../src/core/sample.js';
-import { spreadUnitOfRange, toUnit } from './scaling.js';
+import { spreadUnitOfRange, toUnit } from './shared/scaling.js';
+import { sortAscending } from '../src/math/sort.js';
 
 /**
  * Default window m = floor(sqrt(n) + 0.5): the heuristic of Grzegorzewski & Wieczorkowski (1999, Commun.
@@ -27,21 +27,24 @@ export function defaultWindow(n: number): number {
   return Math.floor(Math.sqrt(n) + 0.5);
 }
 
-const WINDOW_SETTING: SettingSpec = {
+const WINDOW_SETTING = {
   name: 'm',
   meaning: "window: spacings span order statistics m apart on each side; 'auto' = floor(sqrt(n) + 0.5)",
   default: 'auto',
   kind: 'choice-or-integer',
   choices: ['auto'],
   min: 1,
-};
+} as const satisfies SettingSpec;
 
-function windowFromSettings(id: string, n: number, settings: Settings): number {
-  const given = settings.m ?? 'auto';
+/** The tuning grid: the default window ×SCALE_FACTORS, rounded, each m once, 1 ≤ m < n/2. */
+function windowGrid(n: number): number[] {
+  const m0 = defaultWindow(n);
+  return [...new Set(SCALE_FACTORS.map((f) => Math.max(1, Math.round(m0 * f))).filter((m) => m < n / 2))];
+}
+
+/** The window for n points: 'auto' resolved, and m < n/2 checked (the setting itself is already an integer ≥ 1). */
+function windowFor(id: string, n: number, given: number | 'auto'): number {
   const m = given === 'auto' ? defaultWindow(n) : given;
-  if (typeof m !== 'number' || !Number.isInteger(m) || m < 1) {
-    throw new EstimateError('invalid-input', `${id}: m=${String(given)} is not allowed; m must be 'auto' or an integer ≥ 1`);
-  }
   if (2 * m >= n) {
     // The smallest window, m = 1, needs 3 points: below that no m helps.
     const fix = n < 3 ? 'it needs at least 3 points' : `use m ≤ ${Math.ceil(n / 2) - 1} or at least ${2 * m + 1} points`;
@@ -50,9 +53,8 @@ function windowFromSettings(id: string, n: number, settings: Settings): number {
   return m;
 }
 
-/** The sample's values, checked finite, sorted ascending, in a new array. */
+/** The sample's values (one-dimensional, as `dims` declares), checked finite, sorted ascending, in a new array. */
 function sortedFiniteValues(id: string, sample: Sample): Float64Array {
-  if (sample.dim !== 1) throw new EstimateError('dimension', `${id} is one-dimensional; the sample has d = ${sample.dim}`);
   checkFiniteValues(id, sample);
   return sortAscending(Float64Array.from(sample.data.subarray(0, sample.n)));
 }
@@ -274,7 +276,7 @@ type SortedEntropy = (sorted: Float64Array, m: number, id: string) => number;
 
 /**
  * The estimate on sorted values whose range is subnormal or near the top of the double range (or whose
- * values are), computed in a power-of-two unit near the range (exact: estimators/scaling.ts) plus that
+ * values are), computed in a power-of-two unit near the range (exact: estimators/shared/scaling.ts) plus that
  * unit's log: in data units 1/range would overflow, or squares and spacings leave the double range. Where the unit change itself
  * merges values (the data span more than the double exponent range, so a spacing is below 2^−1074 of the
  * range), the failure says so rather than reporting ties the data do not have.
@@ -299,8 +301,8 @@ function inSafeUnit(id: string, sorted: Float64Array, m: number, fromSorted: Sor
   }
 }
 
-function spacingEstimator(id: string, summary: string, reference: string, fromSorted: SortedEntropy): Estimator {
-  return {
+function spacingEstimator(id: string, summary: string, reference: string, fromSorted: SortedEntropy, defaultFor: DefaultSets): Estimator {
+  return defineEstimator({
     id,
     family: 'spacing',
     quantity: 'entropy',
@@ -308,15 +310,16 @@ function spacingEstimator(id: string, summary: string, reference: string, fromSo
     settings: [WINDOW_SETTING],
     dims: [1, 1],
     reference,
-    resolve(sample: Sample, settings: Settings): Settings {
-      return { ...settings, m: settings.m === 'auto' || settings.m === undefined ? defaultWindow(sample.n) : settings.m };
+    tuning: (_base, n) => [{ setting: 'm', values: windowGrid(n) }],
+    defaultFor,
+    resolve(sample, settings) {
+      return { ...settings, m: settings.m === 'auto' ? defaultWindow(sample.n) : settings.m };
     },
-    estimate(sample: Sample, settings: Settings): number {
-      if (sample.dim !== 1) throw new EstimateError('dimension', `${id} is one-dimensional; the sample has d = ${sample.dim}`);
-      const m = windowFromSettings(id, sample.n, settings);
+    estimate(sample, settings) {
+      const m = windowFor(id, sample.n, settings.m);
       return inSafeUnit(id, sortedFiniteValues(id, sample), m, fromSorted);
     },
-  };
+  });
 }
 
 export const spacingEstimators: Estimator[] = [
@@ -325,23 +328,29 @@ export const spacingEstimators: Estimator[] = [
     'mean log of 2m-spacings of the order statistics (clamped at the ends)',
     'Vasicek, O. (1976). A test for normality based on sample entropy. J. R. Statist. Soc. B 38(1), 54–59.',
     vasicekEntropy,
+    { estimate: [{ order: 30 }], bench: true },
   ),
   spacingEstimator(
     'van-es',
     'mean log of one-sided m-spacings plus a harmonic-sum bias correction',
     'van Es, B. (1992). Estimating functionals related to a density by a class of statistics based on spacings. Scand. J. Statist. 19(1), 61–72.',
     vanEsEntropy,
+    { bench: true },
   ),
   spacingEstimator(
     'ebrahimi',
     'Vasicek with end windows weighted by the number of spacings they hold',
     'Ebrahimi, N., Pflughoeft, K. & Soofi, E. S. (1994). Two measures of sample entropy. Statist. Probab. Lett. 20(3), 225–234.',
     ebrahimiEntropy,
+    { estimate: [{ order: 20 }], bench: true },
   ),
   spacingEstimator(
     'correa',
     'local linear regression of order statistics on their ranks over a 2m+1 window',
     'Correa, J. C. (1995). A new estimator of entropy. Commun. Statist. Theory Methods 24(10), 2439–2449.',
     correaEntropy,
+    { bench: true },
   ),
 ];
+
+export const registration: EstimatorFile = { catalogOrder: 20, estimators: spacingEstimators };

@@ -24,6 +24,10 @@
  *              at data[i*dim .. i*dim+dim-1], in recording order. Throw an Error on input the method cannot
  *              handle: hhat counts it as a failed replicate, keeps the message and goes on.
  *   resolve(sample, settings)   optional: replace keywords such as 'auto' with the values actually used
+ *   tuning(settings, n)         optional: the tuning grid a robustness run measures at sample size n,
+ *              [{ setting: 'k', values: [...] }]; each value is validated like a typed one
+ *   defaultFor optional: { estimate: true } joins the set `hhat estimate` runs without --estimator
+ * Settings reach estimate() validated and complete: every declared name, numbers as numbers.
  */
 
 const EULER_GAMMA = 0.5772156649015329;
@@ -116,6 +120,8 @@ export const detrendedKozachenkoLeonenko = {
   reference:
     'Kozachenko, L. F. & Leonenko, N. N. (1987). Sample estimate of the entropy of a random vector. Problems of Information Transmission 23(2), 95–101; ' +
     'drift removal: least-squares polynomial in the sample index, as in the lab’s recording protocol.',
+  // What a robustness run (--robustness) varies: k from 1 to 10, each below n; drift is a choice, not a tuning.
+  tuning: (settings, n) => [{ setting: 'k', values: [1, 2, 3, 4, 5, 6, 7, 8, 9, 10].filter((k) => k < n) }],
   estimate(sample, settings) {
     const k = settings.k;
     const { n, dim } = sample;

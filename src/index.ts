@@ -6,25 +6,37 @@
  *   const run = assembleRun(await runPlan(plan), null);   // cells with per-replicate estimates and scores
  */
 export type {
+  DefaultEntry,
+  DefaultSets,
+  EstimateDefaultEntry,
   Estimator,
+  EstimatorDefinition,
+  EstimatorFile,
   ParamSpec,
   Quantity,
   Rng,
   Sample,
   Scenario,
   ScenarioFamily,
+  SettingKind,
   SettingSpec,
+  SettingsOf,
   SettingValue,
+  SettingValueOf,
   Settings,
   Support,
   Tails,
+  TuningAxis,
   UnivariateDensity,
 } from './core/contracts.js';
+export { defineEstimator, SCALE_FACTORS } from './core/contracts.js';
 export { EstimateError, UsageError } from './core/errors.js';
 export { replicateRng, replicateSeed, rngFromSeed } from './core/rng.js';
 export { catalog, getFamily, listFamilies, parseScenario } from '../scenarios/index.js';
 export {
+  checkDimension,
   configureEstimator,
+  defaultSet,
   getEstimator,
   listEstimators,
   parseEstimatorSpec,

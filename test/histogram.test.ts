@@ -3,9 +3,10 @@ import { describe, expect, it } from 'vitest';
 import normalRandom from '@stdlib/random-base-normal';
 import exponentialRandom from '@stdlib/random-base-exponential';
 import type { Sample, Settings } from '../src/core/contracts.js';
-import { EstimateError } from '../src/core/errors.js';
+import { EstimateError, UsageError } from '../src/core/errors.js';
 import { rngFromSeed } from '../src/core/rng.js';
-import { BIN_RULES, type BinRule, histogramCells, histogramEstimators, histogramGrid } from '../estimators/histogram.js';
+import { BIN_RULES, type BinRule, type GridSettings, histogramCells, histogramEstimators, histogramGrid } from '../estimators/histogram.js';
+import { validated, withValidation } from './helpers/settings.js';
 
 interface HistogramFixture {
   versions: { numpy: string };
@@ -21,7 +22,9 @@ interface HistogramFixture {
 const fixture = JSON.parse(readFileSync(new URL('./fixtures/histogram.json', import.meta.url), 'utf8')) as HistogramFixture;
 const spacingSamples = (JSON.parse(readFileSync(new URL('./fixtures/spacing.json', import.meta.url), 'utf8')) as { samples: Record<string, number[]> }).samples;
 
-const histogram = histogramEstimators[0];
+const histogram = withValidation(histogramEstimators[0]);
+/** The grid for settings as a user writes them. */
+const gridOf = (sample: Sample, given: Settings) => histogramGrid(sample, validated<GridSettings>(histogramEstimators[0], given));
 const NUMPY_NAME: Record<BinRule, string> = { sturges: 'sturges', scott: 'scott', 'freedman-diaconis': 'fd', doane: 'doane', sqrt: 'sqrt' };
 
 function normalSample(seed: string, n: number, dim: number): Sample {
@@ -124,7 +127,7 @@ describe('histogram bin rules against NumPy', () => {
         // Source: len(numpy.histogram_bin_edges(x, bins=RULE)) − 1. NumPy computes ceil(range / width) with
         // the width from the rule, we compute ceil of the scale-free ratio; the two could differ only when
         // that ratio is an exact integer up to rounding, which none of these samples hits.
-        expect(histogramGrid(sample, { bins: rule })[0].binCount, rule).toBe(numpy.binCount);
+        expect(gridOf(sample, { bins: rule })[0].binCount, rule).toBe(numpy.binCount);
         // Source: −Σ (c/n) log(c/(n w)) from numpy.histogram's counts and edges (same bin convention).
         close(histogram.estimate(sample, { bins: rule, correction: 'none' }), numpy.plugInEntropy);
         // Miller (1955): + (B − 1)/(2n), B = occupied bins as counted by numpy.
@@ -146,7 +149,7 @@ describe('histogram against a brute-force computation', () => {
       const columns = Array.from({ length: dim }, (_, k) => points(sample).map((r) => r[k]));
       for (const rule of BIN_RULES) {
         const counts = columns.map((c) => bruteForceBinCount(rule, c, dim));
-        expect(histogramGrid(sample, { bins: rule }).map((a) => a.binCount), `${rule} d=${dim}`).toEqual(counts);
+        expect(gridOf(sample, { bins: rule }).map((a) => a.binCount), `${rule} d=${dim}`).toEqual(counts);
         close(histogram.estimate(sample, { bins: rule }), bruteForceEntropy(sample, counts, null));
         close(histogram.estimate(sample, { bins: rule, correction: 'miller-madow' }), bruteForceEntropy(sample, counts, null, true));
       }
@@ -174,7 +177,7 @@ describe('histogram against a brute-force computation', () => {
       const sample = normalSample(`histogram-sparse-${dim}`, 150, dim);
       const expected = bruteForceEntropy(sample, Array(dim).fill(bins), null, true);
       close(histogram.estimate(sample, { bins, correction: 'miller-madow' }), expected);
-      const occupied = histogramCells(sample, histogramGrid(sample, { bins })).occupied;
+      const occupied = histogramCells(sample, gridOf(sample, { bins })).occupied;
       expect(occupied).toBeLessThanOrEqual(150);
     }
   });
@@ -234,8 +237,9 @@ describe('histogram errors', () => {
     expect(codeOf(oneD([0.1, NaN, 0.3]), {})).toBe('invalid-input');
     expect(codeOf(oneD([0.1, 0.4]), { bins: 'doane' })).toBe('too-few-points');
     expect(codeOf(oneD([]), { bins: 5 })).toBe('too-few-points');
-    expect(codeOf(oneD([0.1, 0.4, 0.5]), { bins: 0 })).toBe('invalid-input');
-    expect(codeOf(oneD([0.1, 0.4, 0.5]), { width: -1 })).toBe('invalid-input');
+    // Settings outside the declaration never reach the estimator: the registry's validation refuses them.
+    expect(() => histogram.estimate(oneD([0.1, 0.4, 0.5]), { bins: 0 })).toThrow(UsageError);
+    expect(() => histogram.estimate(oneD([0.1, 0.4, 0.5]), { width: -1 })).toThrow(/width=-1 is not allowed; width must be one of none, or a number > 0/);
     // Edges that doubles cannot separate would give zero-width bins and a log of 0.
     expect(codeOf(oneD([1e6, 1e6 + 1e-9, 1e6 + 2e-9]), { bins: 1e6 })).toBe('numeric');
     expect(codeOf(oneD([1e6, 1e6 + 1e-9]), { width: 1e-12 })).toBe('numeric');
@@ -261,7 +265,7 @@ describe('histogram converges at n = 20000 (default freedman-diaconis)', () => {
   for (const { name, draw, truth, fisher, logDensityVariance } of cases) {
     it(name, () => {
       const sample: Sample = { n, dim: 1, data: Float64Array.from({ length: n }, draw) };
-      const grid = histogramGrid(sample, {});
+      const grid = gridOf(sample, {});
       const { occupied } = histogramCells(sample, grid);
       const bias = -(occupied - 1) / (2 * n) + (grid[0].binWidth ** 2 / 24) * fisher;
       const sd = Math.sqrt(logDensityVariance / n + (occupied - 1) / (2 * n * n));

@@ -11,7 +11,8 @@ import { replicateRng, rngFromSeed } from '../src/core/rng.js';
 import { parseScenario } from '../scenarios/index.js';
 import { integrate } from '../src/math/quadrature.js';
 import { circularConvolveReal, fftInPlace } from '../src/math/fft.js';
-import { kernelEstimator } from '../estimators/kernel.js';
+import { kernelEstimator as declaredKernel } from '../estimators/kernel.js';
+import { withValidation } from './helpers/settings.js';
 import { parseEstimatorSpec, runEstimator } from '../estimators/index.js';
 import { univariateRuleBandwidth, whitenedRuleBandwidth } from '../estimators/kernel/bandwidth.js';
 import { minimizeBounded } from '../estimators/kernel/minimize.js';
@@ -19,6 +20,9 @@ import { multivariateLogKernelSums } from '../estimators/kernel/multivariate.js'
 import { GRID_TOLERANCE, MAX_GRID_NODES, aliasingFactor, planGrid } from '../estimators/kernel/grid.js';
 import { kernelEntropy, leaveOneOutLogDensities, prepareKernelData } from '../estimators/kernel/resubstitution.js';
 import { univariateLogKernelSums } from '../estimators/kernel/univariate.js';
+
+/** Settings as a user writes them, validated and completed as the registry does before any estimate. */
+const kernelEstimator = withValidation(declaredKernel);
 
 // ---------------------------------------------------------------------------------------------------------
 // Seeded samples and an independent brute-force kernel sum.
@@ -834,8 +838,9 @@ describe('bad input and numeric trouble', () => {
 
   it('bad bandwidth settings are refused', () => {
     const sample = sample1d(normalDraws('bad-setting', 50));
-    expectEstimateError(() => kernelEstimator.estimate(sample, { bandwidth: 'wide' }), 'invalid-input', /silverman, scott, likelihood-cv/);
-    expectEstimateError(() => kernelEstimator.estimate(sample, { bandwidth: -1 }), 'invalid-input', /> 0/);
+    // By the declaration, before the estimator runs: the estimator itself never sees them.
+    expect(() => kernelEstimator.estimate(sample, { bandwidth: 'wide' })).toThrow(/bandwidth=wide is not allowed; bandwidth must be one of silverman \| scott \| likelihood-cv, or a number > 0/);
+    expect(() => kernelEstimator.estimate(sample, { bandwidth: -1 })).toThrow(UsageError);
     expect(() => parseEstimatorSpec('kernel:bandwidth=0')).toThrow(UsageError);
     expect(() => parseEstimatorSpec('kernel:bandwidth=narrow')).toThrow(UsageError);
   });

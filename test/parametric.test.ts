@@ -7,8 +7,9 @@ import type { Rng, Sample } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { rngFromSeed } from '../src/core/rng.js';
 import { parametricEstimators } from '../estimators/parametric.js';
+import { withValidation } from './helpers/settings.js';
 
-const gaussian = parametricEstimators.find((e) => e.id === 'gaussian')!;
+const gaussian = withValidation(parametricEstimators.find((e) => e.id === 'gaussian')!);
 const LOG_2_PI_E = Math.log(2 * Math.PI * Math.E);
 
 /** A non-diagonal covariance through its Cholesky factor L (row-major, lower): Σ = L Lᵀ. */

@@ -4,10 +4,11 @@ import digamma from '@stdlib/math-base-special-digamma';
 import normalRandom from '@stdlib/random-base-normal';
 import exponentialRandom from '@stdlib/random-base-exponential';
 import type { Estimator, Sample } from '../src/core/contracts.js';
-import { EstimateError } from '../src/core/errors.js';
+import { EstimateError, UsageError } from '../src/core/errors.js';
 import { rngFromSeed } from '../src/core/rng.js';
 import { correaEntropy, spacingEstimators } from '../estimators/spacing.js';
 import { sortAscending } from '../src/math/sort.js';
+import { parseEstimatorSpec, runEstimator } from '../estimators/index.js';
 
 interface SpacingFixture {
   versions: { scipy: string; numpy: string };
@@ -131,7 +132,10 @@ describe('spacing estimators: units, ties and bad input', () => {
     for (const id of METHOD_IDS) {
       expect(() => byId(id).estimate(sampleOf([0.1, NaN, 0.3, 0.4, 0.7]), { m: 1 })).toThrow(/row 2/);
       expect(() => byId(id).estimate(sampleOf([0.1, 0.2, Infinity, 0.4, 0.7]), { m: 1 })).toThrow(EstimateError);
-      expect(() => byId(id).estimate({ n: 3, dim: 2, data: new Float64Array(6) }, { m: 1 })).toThrow(/d = 2/);
+      // The dimension is the registry's check (its `dims` declare d = 1), made before the estimator runs.
+      const twoColumns = { n: 3, dim: 2, data: new Float64Array(6) };
+      expect(() => runEstimator(parseEstimatorSpec(`${id}:m=1`), twoColumns)).toThrow(UsageError);
+      expect(() => runEstimator(parseEstimatorSpec(`${id}:m=1`), twoColumns)).toThrow(`${id} does not support d = 2; it needs d = 1`);
     }
   });
 });

@@ -19,7 +19,7 @@ import { minimizeBounded } from './minimize.js';
 import { type MultivariatePath, multivariateLogKernelSums } from './multivariate.js';
 import { type UnivariatePath, univariateLogKernelSums } from './univariate.js';
 import { whiten } from './whiten.js';
-import { columnExtremes, spreadUnitOfExtremes, timesPowerOfTwo, toUnit } from '../scaling.js';
+import { columnExtremes, spreadUnitOfExtremes, timesPowerOfTwo, toUnit } from '../shared/scaling.js';
 
 export type BandwidthSetting = BandwidthRule | 'likelihood-cv' | number;
 
@@ -39,7 +39,7 @@ export interface KernelData {
   halfLogDet: number;
   /**
    * d = 1: the points are the data divided by 2^unitExponent, a power of two near their spread when that
-   * spread is subnormal or near the top of the double range (estimators/scaling.ts), else 0. Bandwidths
+   * spread is subnormal or near the top of the double range (estimators/shared/scaling.ts), else 0. Bandwidths
    * of d = 1 are in these point units inside this module; `toDataUnits` and `fromDataUnits` convert.
    * Always 0 for d > 1, where the whitened unit already absorbs each column's scale.
    */
@@ -151,24 +151,12 @@ export function likelihoodCrossValidatedBandwidth(data: KernelData): number {
 
 /**
  * The numeric bandwidth a setting stands for on this sample, in the prepared points' units (data units for
- * d = 1 unless `unitExponent` says otherwise, whitened for d > 1); a numeric setting is read in data units.
+ * d = 1 unless `unitExponent` says otherwise, whitened for d > 1); a numeric setting (> 0 and finite, as the
+ * estimators' `bandwidth` setting declares) is read in data units.
  */
 export function chooseBandwidth(data: KernelData, setting: BandwidthSetting): number {
-  if (typeof setting === 'number') {
-    if (!(setting > 0) || !Number.isFinite(setting)) {
-      throw new EstimateError('invalid-input', `kernel: bandwidth=${setting} is not allowed; it must be silverman, scott, likelihood-cv or a number > 0`);
-    }
-    return fromDataUnits(data, setting);
-  }
-  switch (setting) {
-    case 'silverman':
-    case 'scott':
-      return ruleBandwidth(data, setting);
-    case 'likelihood-cv':
-      return likelihoodCrossValidatedBandwidth(data);
-    default:
-      throw new EstimateError('invalid-input', `kernel: bandwidth=${String(setting)} is not allowed; it must be silverman, scott, likelihood-cv or a number > 0`);
-  }
+  if (typeof setting === 'number') return fromDataUnits(data, setting);
+  return setting === 'likelihood-cv' ? likelihoodCrossValidatedBandwidth(data) : ruleBandwidth(data, setting);
 }
 
 /**

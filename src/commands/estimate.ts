@@ -9,22 +9,18 @@ import { unitLabel } from '../core/units.js';
 import { describeRegistration, resolveModulePath, useEstimatorModules } from '../harness/modules.js';
 import type { Quantity, Sample, Settings } from '../core/contracts.js';
 import { collect, parseIntegerOption } from '../core/options.js';
-import { dimsRange, listEstimators, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
+import { checkDimension, defaultSet, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
 import { describeSeconds, predictedSeconds, rowsWithin } from '../harness/cost-model.js';
 import { seededRowSubsample } from '../core/sample.js';
 import { parseNumber } from '../core/spec.js';
 import { describeReadProgress, statusLine } from '../views/status-line.js';
 
-/** A sensible default set for the data's dimension: the strongest methods of each family that apply. */
+/**
+ * The default set for the data's dimension: the strongest methods of each family that apply, as the estimators
+ * declare it (`defaultFor.estimate`; estimators/index.ts, defaultSet).
+ */
 export function defaultEstimatorsFor(dim: number, quantity: Quantity = 'entropy'): string[] {
-  if (quantity !== 'entropy') {
-    return listEstimators()
-      .filter((e) => e.quantity === quantity && dim >= e.dims[0] && dim <= e.dims[1])
-      .map((e) => e.id);
-  }
-  if (dim === 1) return ['kozachenko-leonenko', 'ebrahimi', 'vasicek', 'kernel', 'histogram', 'gaussian'];
-  if (dim <= 3) return ['kozachenko-leonenko', 'kozachenko-leonenko-weighted', 'kernel', 'histogram', 'gaussian'];
-  return ['kozachenko-leonenko-weighted', 'kozachenko-leonenko', 'kernel', 'gaussian'];
+  return defaultSet('estimate', quantity, dim);
 }
 
 interface EstimateRecord {
@@ -210,10 +206,9 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
         if (c.estimator.quantity !== quantity) {
           throw new UsageError(`${c.estimator.id} estimates ${c.estimator.quantity}, but this call asks for ${quantity}${quantity === 'entropy' ? '' : ` (given by ${quantity === 'divergence' ? '--against' : '--x-columns/--y-columns'})`}`);
         }
-        // Checked before estimating so that asking for the wrong dimension is a usage mistake (exit 2), not
-        // a failure on the data; the default set only holds estimators that support the dimension.
-        const [minDim, maxDim] = c.estimator.dims;
-        if (sample.dim < minDim || sample.dim > maxDim) throw new UsageError(`${c.estimator.id} does not support d = ${sample.dim}; it needs ${dimsRange(c.estimator.dims)}`);
+        // Checked before estimating, so that asking for the wrong dimension stops the command before any estimate
+        // is made; the default set only holds estimators that support the dimension.
+        checkDimension(c.estimator, sample.dim);
       }
       // The limit applies to the default set; to named estimators only when the user gives it.
       const limitSeconds = givenLimit !== undefined ? givenLimit : named ? null : DEFAULT_MAX_SECONDS;

@@ -25,6 +25,13 @@ export type Rng = () => number;
 export type SettingValue = number | string;
 export type Settings = Record<string, SettingValue>;
 
+export type SettingKind = 'integer' | 'number' | 'choice' | 'choice-or-integer' | 'choice-or-number';
+
+/**
+ * One setting of an estimator, declared once: the registry validates every value against it (src/spec.ts,
+ * validateSettings) before the estimator sees it, whether it comes from the command line, a plan, a tuning
+ * grid or a default set, so `estimate` never re-checks what the declaration says.
+ */
 export interface SettingSpec {
   name: string;
   /** One line: what the setting does. */
@@ -32,7 +39,7 @@ export interface SettingSpec {
   /** The default; a keyword such as 'auto' is resolved per sample by the estimator's `resolve`. */
   default: SettingValue;
   /** integer / number: numeric with optional bounds; choice: one of `choices`; the or-forms take either. */
-  kind: 'integer' | 'number' | 'choice' | 'choice-or-integer' | 'choice-or-number';
+  kind: SettingKind;
   choices?: readonly string[];
   min?: number;
   max?: number;
@@ -40,25 +47,109 @@ export interface SettingSpec {
   minExclusive?: boolean;
 }
 
-export interface Estimator {
+/** The keywords a setting accepts: its choices, and its default when that is a keyword. */
+type KeywordOf<S extends SettingSpec> = (S extends { choices: readonly (infer C extends string)[] } ? C : never) | (S['default'] extends string ? S['default'] : never);
+
+/** The type of a validated value of setting S: a number, one of its keywords, or either, as its kind says. */
+export type SettingValueOf<S extends SettingSpec> = S['kind'] extends 'integer' | 'number' ? number : S['kind'] extends 'choice' ? KeywordOf<S> : KeywordOf<S> | number;
+
+/** Validated settings of a declaration: every declared name present, each with its value's type. */
+export type SettingsOf<L extends readonly SettingSpec[]> = { [S in L[number] as S['name']]: SettingValueOf<S> };
+
+/** One axis of a tuning grid: a setting and the values it takes, every other setting kept as in the base. */
+export type TuningAxis<S extends Settings = Settings> = { [K in keyof S & string]: { setting: K; values: readonly S[K][] } }[keyof S & string];
+
+/** Where an estimator stands in a default set (see DefaultSets). */
+export interface DefaultEntry {
+  /** Place in the set: lower first; equal places keep registry order. Default 0. */
+  order?: number;
+  /** Settings other than the defaults, validated like any others (e.g. { bins: 'sturges' }). */
+  settings?: Settings;
+}
+
+/** An entry of the `hhat estimate` default set, which is chosen per dimension of the data. */
+export interface EstimateDefaultEntry extends DefaultEntry {
+  /** Only for data of these dimensions (within the estimator's own `dims`; default: all of those). */
+  dims?: readonly [min: number, max: number];
+}
+
+/**
+ * The default sets an estimator belongs to, declared by the estimator itself: `true` for "with default settings,
+ * at order 0" (every dimension it supports, for `estimate`), or entries saying where, for which dimensions and
+ * with which settings. Sets are per quantity: an estimator joins those of its own quantity.
+ * Orders of the built-in entropy `estimate` set: 5 weighted k-NN (d ≥ 4), 10 k-NN, 15 weighted k-NN (d = 2, 3),
+ * 20 Ebrahimi, 30 Vasicek, 40 kernel, 50 histogram, 60 Gaussian.
+ */
+export interface DefaultSets {
+  /** `hhat estimate` without --estimator. */
+  estimate?: true | readonly EstimateDefaultEntry[];
+  /**
+   * The default plan of the estimator's quantity (`hhat bench` without a plan, `npm run track`). The plan is
+   * chosen before `--estimator-module` files load, so it holds built-in estimators only (a module replacing
+   * one runs in its place).
+   */
+  bench?: true | readonly DefaultEntry[];
+}
+
+/**
+ * An estimator. `S` types its validated settings; the registry holds them as `Estimator` (plain Settings), and
+ * `defineEstimator` infers `S` from the `settings` declaration.
+ */
+export interface Estimator<S extends Settings = Settings> {
   id: string;
   family: string;
   quantity: Quantity;
   /** One line for catalogs. */
   summary: string;
   settings: readonly SettingSpec[];
-  /** Smallest and largest dimension supported (Infinity for any). */
+  /** Smallest and largest dimension supported (Infinity for any); the registry checks it before `estimate`. */
   dims: readonly [number, number];
   /** The paper or book that defines the method. */
   reference: string;
-  /** Replace sample-dependent defaults (keywords such as 'auto') with the values actually used, for reports. */
-  resolve?(sample: Sample, settings: Settings): Settings;
   /**
-   * The estimate in nats, from the settings as configured (keywords included) or as `resolve` returned them:
-   * both must give the same value. Throws an EstimateError on input the method cannot handle.
+   * The reasonable settings around `base` at sample size n, which a robustness run measures the estimate's
+   * spread over (the tuning spread): one axis per setting varied, each value validated like any setting. Values
+   * that cannot work at this n (k ≥ n) are left out here. Absent or []: no tuning grid.
    */
-  estimate(sample: Sample, settings: Settings): number;
+  tuning?(base: S, n: number): readonly TuningAxis<S>[];
+  /** Which default sets list this estimator. Absent: none. */
+  defaultFor?: DefaultSets;
+  /** Replace sample-dependent defaults (keywords such as 'auto') with the values actually used, for reports. */
+  resolve?(sample: Sample, settings: S): Settings;
+  /**
+   * The estimate in nats, from validated settings as configured (keywords included) or as `resolve` returned
+   * them: both must give the same value. Throws an EstimateError on data the method cannot handle (too few
+   * points for k, ties, ...); the settings themselves are already valid and the dimension within `dims`.
+   */
+  estimate(sample: Sample, settings: S): number;
 }
+
+/** An estimator declaration whose settings' types are inferred from `settings`. */
+export type EstimatorDefinition<L extends readonly SettingSpec[]> = Omit<Estimator<SettingsOf<L>>, 'settings'> & { settings: L };
+
+/**
+ * Declares an estimator: `estimate`, `resolve` and `tuning` get settings typed from the declaration (k a number,
+ * norm 'euclidean' | 'max', ...), which the registry has validated.
+ *
+ *   export const mine = defineEstimator({ id: 'my-method', settings: [{ name: 'k', kind: 'integer', min: 1, default: 3, meaning: '...' }], ...,
+ *     estimate(sample, { k }) { ... } });
+ */
+export function defineEstimator<const L extends readonly SettingSpec[]>(definition: EstimatorDefinition<L>): Estimator {
+  return definition as unknown as Estimator;
+}
+
+/**
+ * What every file directly in estimators/ exports as `registration`: its estimators, and where they go in the
+ * registry (files by increasing `catalogOrder`, each file's estimators in their own order). The registry order
+ * is the order of catalogs, of the default plans and of the default sets at equal `order`.
+ */
+export interface EstimatorFile {
+  catalogOrder: number;
+  estimators: readonly Estimator[];
+}
+
+/** Multipliers of a `scale` setting in tuning grids: a factor of 2 either way, in steps of about √2. */
+export const SCALE_FACTORS: readonly number[] = [0.5, 0.71, 1, 1.41, 2];
 
 export interface ParamSpec {
   name: string;

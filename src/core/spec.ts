@@ -1,4 +1,4 @@
-import type { ParamSpec, SettingSpec, SettingValue, Settings } from './contracts.js';
+import type { DefaultEntry, Estimator, EstimateDefaultEntry, ParamSpec, SettingSpec, SettingValue, Settings } from './contracts.js';
 import { UsageError } from './errors.js';
 
 /** A parsed `id:key=value,key=value` string; values are kept as text until validated. */
@@ -163,4 +163,165 @@ export function formatSpec(id: string, values: Record<string, SettingValue>, ord
     return `${k}=${typeof v === 'number' ? formatNumber(v) : v}`;
   });
   return parts.length ? `${id}:${parts.join(',')}` : id;
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// Estimator declarations: checked once, when the registry takes an estimator (built-in, registered by code, or
+// loaded from a user's module), so settings, grids and default sets can be trusted everywhere after.
+
+export const QUANTITIES = ['entropy', 'mutual-information', 'divergence'] as const;
+const SETTING_KINDS = ['integer', 'number', 'choice', 'choice-or-integer', 'choice-or-number'] as const;
+/** Ids and setting names end up inside `id:key=value,...` specs, so they must not contain `:`, `,`, `=` or brackets. */
+const ID_PATTERN = /^[a-z][a-z0-9]*(-[a-z0-9]+)*$/;
+const SETTING_NAME_PATTERN = /^[a-z][a-z0-9_-]*$/i;
+const CHOICE_PATTERN = /^[^\s,=:[\];]+$/;
+
+/** A value as a one-line error message shows it. */
+export function showValue(value: unknown): string {
+  if (value === undefined) return 'nothing';
+  if (typeof value === 'function') return 'a function';
+  if (typeof value === 'string') return JSON.stringify(value);
+  if (typeof value === 'number') return String(value);
+  if (Array.isArray(value)) return `[${value.map(showValue).join(', ')}]`;
+  if (value === null) return 'null';
+  if (typeof value === 'object') return 'an object';
+  return String(value);
+}
+const show = showValue;
+
+function isRecord(value: unknown): value is Record<string, unknown> {
+  return value !== null && typeof value === 'object' && !Array.isArray(value);
+}
+
+function checkSettingSpec(where: string, raw: unknown, index: number): SettingSpec {
+  const at = `${where}: settings[${index}]`;
+  if (!isRecord(raw)) throw new UsageError(`${at} is ${show(raw)}; each setting is an object with name, meaning, default and kind`);
+  const spec = raw as Partial<SettingSpec> & Record<string, unknown>;
+  if (typeof spec.name !== 'string' || !SETTING_NAME_PATTERN.test(spec.name)) {
+    throw new UsageError(`${at}: name ${show(spec.name)} is not allowed; a setting name is letters, digits, '-' or '_', starting with a letter`);
+  }
+  const named = `${at} ("${spec.name}")`;
+  if (typeof spec.meaning !== 'string' || spec.meaning.trim() === '') throw new UsageError(`${named}: meaning is missing; give one line saying what the setting does`);
+  if (typeof spec.kind !== 'string' || !(SETTING_KINDS as readonly string[]).includes(spec.kind)) {
+    throw new UsageError(`${named}: kind ${show(spec.kind)} is not allowed; it must be one of ${SETTING_KINDS.join(', ')}`);
+  }
+  if (spec.kind.startsWith('choice')) {
+    if (!Array.isArray(spec.choices) || !spec.choices.length || !spec.choices.every((c) => typeof c === 'string' && CHOICE_PATTERN.test(c))) {
+      throw new UsageError(`${named}: kind "${spec.kind}" needs choices, a non-empty array of words without spaces, ',', '=', ':' or brackets; got ${show(spec.choices)}`);
+    }
+  }
+  for (const bound of ['min', 'max'] as const) {
+    const value = spec[bound];
+    if (value !== undefined && (typeof value !== 'number' || Number.isNaN(value))) throw new UsageError(`${named}: ${bound} is ${show(value)}; it must be a number when given`);
+  }
+  if (spec.min !== undefined && spec.max !== undefined && spec.min > spec.max) throw new UsageError(`${named}: min ${spec.min} is above max ${spec.max}`);
+  if (spec.minExclusive !== undefined && typeof spec.minExclusive !== 'boolean') throw new UsageError(`${named}: minExclusive is ${show(spec.minExclusive)}; it must be true or false`);
+  const checked = spec as SettingSpec;
+  if (!defaultAllowed(checked, spec.default)) {
+    throw new UsageError(`${named}: default ${show(spec.default)} is not allowed; ${spec.name} must be ${describeSetting(checked)}`);
+  }
+  return checked;
+}
+
+/** checkSetting's rules, except that a default keyword need not be a choice (it is resolved per sample). */
+function defaultAllowed(spec: SettingSpec, value: unknown): value is SettingValue {
+  if (typeof value === 'string') return spec.kind !== 'integer' && spec.kind !== 'number' && CHOICE_PATTERN.test(value);
+  if (typeof value !== 'number') return false;
+  try {
+    checkSetting('', spec, value);
+    return true;
+  } catch {
+    return false;
+  }
+}
+
+function isDims(dims: unknown): dims is readonly [number, number] {
+  return (
+    Array.isArray(dims) &&
+    dims.length === 2 &&
+    Number.isInteger(dims[0]) &&
+    (dims[0] as number) >= 1 &&
+    (Number.isInteger(dims[1]) || dims[1] === Infinity) &&
+    (dims[1] as number) >= (dims[0] as number)
+  );
+}
+
+function checkDims(where: string, dims: unknown): void {
+  if (!isDims(dims)) throw new UsageError(`${where}: dims must be [min, max], whole numbers with 1 ≤ min ≤ max (max may be Infinity); got ${show(dims)}`);
+}
+
+/** `defaultFor`: which default sets list the estimator; each entry's settings are validated like a user's. */
+function checkDefaultSets(at: string, value: unknown, estimator: Estimator): void {
+  if (value === undefined) return;
+  const shape = "defaultFor is an object { estimate?, bench? }, each true or an array of entries { order?, settings? } (estimate entries also dims?)";
+  if (!isRecord(value)) throw new UsageError(`${at}: defaultFor is ${show(value)}; ${shape}`);
+  for (const key of Object.keys(value)) {
+    if (key !== 'estimate' && key !== 'bench') throw new UsageError(`${at}: defaultFor.${key} is not a default set; ${shape}`);
+    const entries = value[key];
+    if (entries === true) continue;
+    if (!Array.isArray(entries) || !entries.length) throw new UsageError(`${at}: defaultFor.${key} is ${show(entries)}; ${shape}`);
+    entries.forEach((raw: unknown, i) => {
+      const where = `${at}: defaultFor.${key}[${i}]`;
+      if (!isRecord(raw)) throw new UsageError(`${where} is ${show(raw)}; ${shape}`);
+      const entry = raw as EstimateDefaultEntry & Record<string, unknown>;
+      for (const field of Object.keys(entry)) {
+        if (field !== 'order' && field !== 'settings' && !(field === 'dims' && key === 'estimate')) throw new UsageError(`${where}: "${field}" is not allowed; ${shape}`);
+      }
+      if (entry.order !== undefined && !(typeof entry.order === 'number' && Number.isFinite(entry.order))) throw new UsageError(`${where}: order is ${show(entry.order)}; it must be a number (lower comes first)`);
+      if (entry.dims !== undefined) {
+        checkDims(where, entry.dims);
+        const [low, high] = entry.dims;
+        if (low < estimator.dims[0] || high > estimator.dims[1]) throw new UsageError(`${where}: dims ${show(entry.dims)} reach beyond the estimator's own dims ${show(estimator.dims)}`);
+      }
+      if (entry.settings !== undefined) {
+        if (!isRecord(entry.settings)) throw new UsageError(`${where}: settings is ${show(entry.settings)}; give an object { name: value }`);
+        validateSettings(`${where}: ${estimator.id}`, estimator.settings, (entry as DefaultEntry).settings!);
+      }
+    });
+  }
+}
+
+/**
+ * Checks a value against the Estimator contract (src/contracts.ts) and returns it unchanged: every field, each
+ * setting's declaration and default, the tuning grid's form and the default-set entries. `where` names the
+ * estimator's origin (a module file and export, or the registry) for the one-line errors.
+ */
+export function checkEstimator(where: string, value: unknown): Estimator {
+  if (!isRecord(value)) {
+    throw new UsageError(`${where} is ${show(value)}; an estimator is an object with id, family, quantity, summary, settings, dims, reference and estimate`);
+  }
+  const e = value as Partial<Estimator> & Record<string, unknown>;
+  if (e.id === undefined) throw new UsageError(`${where} has no id; give a lowercase hyphenated name such as "my-method"`);
+  if (typeof e.id !== 'string' || !ID_PATTERN.test(e.id)) {
+    throw new UsageError(`${where}: id ${show(e.id)} is not allowed; an id is lowercase letters and digits in hyphenated words, e.g. "my-method"`);
+  }
+  const at = `${where} ("${e.id}")`;
+  if (typeof e.estimate !== 'function') throw new UsageError(`${at}: estimate is ${show(e.estimate)}, not a function; give estimate(sample, settings) returning nats`);
+  if (e.resolve !== undefined && typeof e.resolve !== 'function') throw new UsageError(`${at}: resolve is ${show(e.resolve)}; when given it must be a function (sample, settings) => settings`);
+  if (e.tuning !== undefined && typeof e.tuning !== 'function') {
+    throw new UsageError(`${at}: tuning is ${show(e.tuning)}; when given it must be a function (settings, n) => [{ setting, values: [...] }, ...]`);
+  }
+  if (typeof e.quantity !== 'string' || !(QUANTITIES as readonly string[]).includes(e.quantity)) {
+    throw new UsageError(`${at}: quantity ${show(e.quantity)} is not allowed; it must be one of ${QUANTITIES.join(', ')}`);
+  }
+  for (const [field, meaning] of [
+    ['family', 'a family name such as "nearest-neighbour"'],
+    ['summary', 'one line for catalogs'],
+    ['reference', 'the paper or book that defines the method (or where your lab describes it)'],
+  ] as const) {
+    const text = e[field];
+    if (typeof text !== 'string' || text.trim() === '') {
+      throw new UsageError(`${at}: ${field} is ${text === undefined ? 'missing' : show(text)}; give ${meaning} as a non-empty string`);
+    }
+  }
+  checkDims(at, e.dims);
+  if (!Array.isArray(e.settings)) throw new UsageError(`${at}: settings is ${show(e.settings)}; give an array of setting specs ([] for none)`);
+  const seen = new Set<string>();
+  e.settings.forEach((spec, i) => {
+    const checked = checkSettingSpec(at, spec, i);
+    if (seen.has(checked.name)) throw new UsageError(`${at}: settings[${i}]: the name "${checked.name}" is used twice`);
+    seen.add(checked.name);
+  });
+  checkDefaultSets(at, e.defaultFor, e as Estimator);
+  return e as Estimator;
 }

@@ -1,9 +1,9 @@
 /**
- * The built-in plan `hhat bench` runs with no arguments: every registered entropy estimator at its default
- * settings on a representative set of scenarios (light and heavy tails, bounded and half-bounded support,
+ * The built-in plan `hhat bench` runs with no arguments: the entropy estimators that declare themselves in the
+ * default plan (`defaultFor.bench`, all built-in ones at their default settings) on a representative set of scenarios (light and heavy tails, bounded and half-bounded support,
  * a bimodal law, d = 1, 2, 3, 5), sized to finish within a minute on two cores.
  */
-import { listEstimators } from '../../estimators/index.js';
+import { defaultSet } from '../../estimators/index.js';
 import type { Quantity } from '../core/contracts.js';
 import type { PlanInput } from './plan.js';
 import { DEFAULT_SEED } from '../core/rng.js';
@@ -23,9 +23,10 @@ export const DEFAULT_PLAN_SCENARIOS = [
 ];
 
 /**
- * The default plan of a quantity. Mutual information and divergence: every catalog scenario of that quantity
- * and every estimator of it at default settings, with robustness at n = 500 (MI: monotone maps of X and of Y,
- * where the true value must not move).
+ * The default plan of a quantity, with the estimators of its default set (estimators/index.ts, defaultSet) in
+ * their declared order. Mutual information and divergence: every catalog scenario of that quantity, with
+ * robustness at n = 500 (MI: 300; monotone maps of X and of Y, where the true value must not move) and no
+ * tuning grids.
  */
 export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
   if (quantity !== 'entropy') {
@@ -35,13 +36,7 @@ export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
       scenarios: catalog()
         .filter((s) => s.quantity === quantity)
         .map((s) => s.id),
-      estimators: [
-        ...listEstimators()
-          .filter((e) => e.quantity === quantity)
-          .map((e) => e.id),
-        // With Freedman–Diaconis bins most replicates leave P mass in bins Q never reaches; coarser bins run.
-        ...(quantity === 'divergence' ? ['histogram-divergence:bins=sturges'] : []),
-      ],
+      estimators: defaultSet('bench', quantity),
       // The kernel MI estimator is quadratic in n in several dimensions: 1000 keeps the plan within a minute.
       sampleSizes: quantity === 'mutual-information' ? [100, 300, 1000] : [100, 500, 2000],
       replicates: 30,
@@ -60,9 +55,7 @@ export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
     name: 'default',
     quantity: 'entropy',
     scenarios: DEFAULT_PLAN_SCENARIOS,
-    estimators: listEstimators()
-      .filter((e) => e.quantity === 'entropy')
-      .map((e) => e.id),
+    estimators: defaultSet('bench', 'entropy'),
     sampleSizes: [100, 500, 2000],
     replicates: 30,
     seed: DEFAULT_SEED,

@@ -1,9 +1,9 @@
 /**
  * Estimator modules: the user's own estimators, loaded from a JavaScript file and registered beside (or in
  * place of) the built-in ones. A module exports `estimators` (an array), a default array, or a single
- * default estimator, each following the Estimator contract of src/core/contracts.ts. Everything is checked here,
- * at the boundary, so a mistake is one line naming the file and the problem rather than a failure deep in a
- * run.
+ * default estimator, each following the Estimator contract of src/core/contracts.ts. Each is checked here, at the
+ * boundary, by the same declaration check every built-in passes at registration (src/core/spec.ts, checkEstimator),
+ * so a mistake is one line naming the file and the problem rather than a failure deep in a run.
  *
  *   const list = await loadEstimatorModules(['lab/estimators.mjs']);
  *   const { replaced, added } = registerUserEstimators(list, { replace: true });
@@ -11,37 +11,20 @@
 import { existsSync, statSync } from 'node:fs';
 import { extname, isAbsolute, resolve } from 'node:path';
 import { pathToFileURL } from 'node:url';
-import type { Estimator, SettingSpec, SettingValue } from '../core/contracts.js';
+import type { Estimator } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
-import { describeSetting } from '../core/spec.js';
+import { checkEstimator, showValue as show } from '../core/spec.js';
 import { listEstimators, replaceEstimator } from '../../estimators/index.js';
 
-export const QUANTITIES = ['entropy', 'mutual-information', 'divergence'] as const;
-const SETTING_KINDS = ['integer', 'number', 'choice', 'choice-or-integer', 'choice-or-number'] as const;
+export { checkEstimator, QUANTITIES } from '../core/spec.js';
 const JAVASCRIPT = new Set(['.js', '.mjs', '.cjs']);
 const TYPESCRIPT = new Set(['.ts', '.mts']);
-/** Ids and setting names end up inside `id:key=value,...` specs, so they must not contain `:`, `,`, `=` or brackets. */
-const ID_PATTERN = /^[a-z][a-z0-9]*(-[a-z0-9]+)*$/;
-const SETTING_NAME_PATTERN = /^[a-z][a-z0-9_-]*$/i;
-const CHOICE_PATTERN = /^[^\s,=:[\];]+$/;
 
 /** Resolves a module path as written by the user against a base folder (the working folder, or a plan file's). */
 export function resolveModulePath(path: string, baseDir = process.cwd()): string {
   return isAbsolute(path) ? path : resolve(baseDir, path);
 }
 
-/** A value as a one-line error message shows it. */
-function show(value: unknown): string {
-  if (value === undefined) return 'nothing';
-  if (typeof value === 'function') return 'a function';
-  if (typeof value === 'string') return JSON.stringify(value);
-  if (typeof value === 'number') return String(value);
-  if (Array.isArray(value)) return `[${value.map(show).join(', ')}]`;
-  if (value === null) return 'null';
-  if (typeof value === 'object') return 'an object';
-  // eslint-disable-next-line @typescript-eslint/no-base-to-string -- objects returned above; a boolean, bigint or symbol is left
-  return String(value);
-}
 
 function firstLine(text: string): string {
   return text.split('\n')[0].trim();
@@ -98,97 +81,6 @@ function exportedEstimators(path: string, namespace: Record<string, unknown>): {
   const items = list as unknown[];
   if (!items.length) throw new UsageError(`estimator module ${path}: "${label}" is an empty array; list at least one estimator`);
   return items.map((value, i) => ({ value, label: `${label}[${i}]` }));
-}
-
-function checkSettingSpec(where: string, raw: unknown, index: number): SettingSpec {
-  const at = `${where}: settings[${index}]`;
-  if (raw === null || typeof raw !== 'object' || Array.isArray(raw)) {
-    throw new UsageError(`${at} is ${show(raw)}; each setting is an object with name, meaning, default and kind`);
-  }
-  const spec = raw as Partial<SettingSpec> & Record<string, unknown>;
-  if (typeof spec.name !== 'string' || !SETTING_NAME_PATTERN.test(spec.name)) {
-    throw new UsageError(`${at}: name ${show(spec.name)} is not allowed; a setting name is letters, digits, '-' or '_', starting with a letter`);
-  }
-  const named = `${at} ("${spec.name}")`;
-  if (typeof spec.meaning !== 'string' || spec.meaning.trim() === '') throw new UsageError(`${named}: meaning is missing; give one line saying what the setting does`);
-  if (typeof spec.kind !== 'string' || !(SETTING_KINDS as readonly string[]).includes(spec.kind)) {
-    throw new UsageError(`${named}: kind ${show(spec.kind)} is not allowed; it must be one of ${SETTING_KINDS.join(', ')}`);
-  }
-  if (spec.kind.startsWith('choice')) {
-    if (!Array.isArray(spec.choices) || !spec.choices.length || !spec.choices.every((c) => typeof c === 'string' && CHOICE_PATTERN.test(c))) {
-      throw new UsageError(`${named}: kind "${spec.kind}" needs choices, a non-empty array of words without spaces, ',', '=', ':' or brackets; got ${show(spec.choices)}`);
-    }
-  }
-  for (const bound of ['min', 'max'] as const) {
-    const value = spec[bound];
-    if (value !== undefined && (typeof value !== 'number' || Number.isNaN(value))) throw new UsageError(`${named}: ${bound} is ${show(value)}; it must be a number when given`);
-  }
-  if (spec.min !== undefined && spec.max !== undefined && spec.min > spec.max) throw new UsageError(`${named}: min ${spec.min} is above max ${spec.max}`);
-  if (spec.minExclusive !== undefined && typeof spec.minExclusive !== 'boolean') throw new UsageError(`${named}: minExclusive is ${show(spec.minExclusive)}; it must be true or false`);
-  const checked = spec as SettingSpec;
-  if (!defaultAllowed(checked, spec.default)) {
-    throw new UsageError(`${named}: default ${show(spec.default)} is not allowed; ${spec.name} must be ${describeSetting(checked)}`);
-  }
-  return checked;
-}
-
-/** The same rules the registry applies to typed settings, except that a default keyword need not be a choice (it is resolved per sample). */
-function defaultAllowed(spec: SettingSpec, value: unknown): value is SettingValue {
-  const integer = spec.kind.endsWith('integer');
-  if (typeof value === 'string') return spec.kind !== 'integer' && spec.kind !== 'number' && CHOICE_PATTERN.test(value);
-  if (typeof value !== 'number' || !Number.isFinite(value) || spec.kind === 'choice') return false;
-  if (integer && !Number.isInteger(value)) return false;
-  if (spec.min !== undefined && (spec.minExclusive ? value <= spec.min : value < spec.min)) return false;
-  if (spec.max !== undefined && value > spec.max) return false;
-  return true;
-}
-
-function checkDims(where: string, dims: unknown): void {
-  const ok =
-    Array.isArray(dims) &&
-    dims.length === 2 &&
-    Number.isInteger(dims[0]) &&
-    (dims[0] as number) >= 1 &&
-    (Number.isInteger(dims[1]) || dims[1] === Infinity) &&
-    (dims[1] as number) >= (dims[0] as number);
-  if (!ok) throw new UsageError(`${where}: dims must be [min, max], whole numbers with 1 ≤ min ≤ max (max may be Infinity); got ${show(dims)}`);
-}
-
-/** Checks one exported value against the Estimator contract; `where` names the file and the export. */
-export function checkEstimator(where: string, value: unknown): Estimator {
-  if (value === null || typeof value !== 'object' || Array.isArray(value)) {
-    throw new UsageError(`${where} is ${show(value)}; an estimator is an object with id, family, quantity, summary, settings, dims, reference and estimate`);
-  }
-  const e = value as Partial<Estimator> & Record<string, unknown>;
-  if (e.id === undefined) throw new UsageError(`${where} has no id; give a lowercase hyphenated name such as "my-method"`);
-  if (typeof e.id !== 'string' || !ID_PATTERN.test(e.id)) {
-    throw new UsageError(`${where}: id ${show(e.id)} is not allowed; an id is lowercase letters and digits in hyphenated words, e.g. "my-method"`);
-  }
-  const at = `${where} ("${e.id}")`;
-  if (typeof e.estimate !== 'function') throw new UsageError(`${at}: estimate is ${show(e.estimate)}, not a function; give estimate(sample, settings) returning nats`);
-  if (e.resolve !== undefined && typeof e.resolve !== 'function') throw new UsageError(`${at}: resolve is ${show(e.resolve)}; when given it must be a function (sample, settings) => settings`);
-  if (typeof e.quantity !== 'string' || !(QUANTITIES as readonly string[]).includes(e.quantity)) {
-    throw new UsageError(`${at}: quantity ${show(e.quantity)} is not allowed; it must be one of ${QUANTITIES.join(', ')}`);
-  }
-  for (const [field, meaning] of [
-    ['family', 'a family name such as "nearest-neighbour"'],
-    ['summary', 'one line for catalogs'],
-    ['reference', 'the paper or book that defines the method (or where your lab describes it)'],
-  ] as const) {
-    const text = e[field];
-    if (typeof text !== 'string' || text.trim() === '') {
-      throw new UsageError(`${at}: ${field} is ${text === undefined ? 'missing' : show(text)}; give ${meaning} as a non-empty string`);
-    }
-  }
-  checkDims(at, e.dims);
-  if (!Array.isArray(e.settings)) throw new UsageError(`${at}: settings is ${show(e.settings)}; give an array of setting specs ([] for none)`);
-  const seen = new Set<string>();
-  e.settings.forEach((spec, i) => {
-    const checked = checkSettingSpec(at, spec, i);
-    if (seen.has(checked.name)) throw new UsageError(`${at}: settings[${i}]: the name "${checked.name}" is used twice`);
-    seen.add(checked.name);
-  });
-  return e as Estimator;
 }
 
 /**

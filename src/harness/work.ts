@@ -8,7 +8,7 @@
 import type { Sample, Scenario } from '../core/contracts.js';
 import { EstimateError } from '../core/errors.js';
 import type { ConfiguredEstimator } from '../../estimators/index.js';
-import { dimsRange, runEstimator } from '../../estimators/index.js';
+import { dimsRange, runEstimator, supportsDimension } from '../../estimators/index.js';
 import type { Plan } from './plan.js';
 import type { Perturbation, PreparedPerturbation } from './perturb.js';
 import { replicateRng } from '../core/rng.js';
@@ -66,8 +66,7 @@ export function replicatesPerUnit(n: number, dim: number, replicates: number): n
 
 /** Why an estimator cannot run on a scenario, or null when it can. */
 export function incompatibility(estimator: ConfiguredEstimator, scenario: Scenario): string | null {
-  const [minDim, maxDim] = estimator.estimator.dims;
-  if (scenario.dim < minDim || scenario.dim > maxDim) {
+  if (!supportsDimension(estimator.estimator, scenario.dim)) {
     return `${estimator.estimator.id} needs ${dimsRange(estimator.estimator.dims)}; the scenario has d = ${scenario.dim}`;
   }
   if (estimator.estimator.quantity !== scenario.quantity) {
