@@ -319,6 +319,10 @@ export const divergenceEstimators: Estimator[] = [
     dims: [1, Infinity],
     reference:
       'Wang, Q., Kulkarni, S. R. & Verdú, S. (2009). Divergence estimation for multidimensional densities via k-nearest-neighbor distances. IEEE Transactions on Information Theory 55(5), 2392–2405, eq. (5).',
+    lacks: {
+      // Ratios of Euclidean distances survive a common scale, shift or rotation, not a shear or unequal stretch.
+      affine: 'ratios of Euclidean distances are kept by a rescaling, shift or rotation, but not by a linear map that shears or stretches coordinates unequally',
+    },
     estimate(sample: Sample, settings: Settings): number {
       const id = 'knn-divergence';
       const k = settings.k ?? KNN_DEFAULT_K;
@@ -340,6 +344,11 @@ export const divergenceEstimators: Estimator[] = [
     reference:
       'Plug-in partition estimate of the divergence, as the equal-width baseline in Wang, Q., Kulkarni, S. R. & Verdú, S. (2005), Divergence estimation of continuous distributions based on data-dependent partitions, IEEE Trans. Inf. Theory 51(9), 3064–3074.',
     estimate: histogramDivergence,
+    lacks: {
+      // The cells are products of intervals along the axes: per-coordinate scales and shifts keep them, a
+      // shear or rotation does not.
+      affine: 'the cells are boxes along the coordinate axes, so a linear map that mixes coordinates moves points between cells',
+    },
   },
   {
     id: 'gaussian-divergence',

@@ -348,5 +348,10 @@ export const histogramEstimators: Estimator[] = [
       'Miller, G. A. (1955), Note on the bias of information estimates, in Information Theory in Psychology, 95–100; ' +
       'bin rules: Sturges (1926) JASA 21; Scott (1979) Biometrika 66; Freedman & Diaconis (1981) Z. Wahrsch. 57; Doane (1976) Am. Stat. 30.',
     estimate: histogramEntropy,
+    lacks: {
+      // A width in data units does not grow with the data: x → c·x keeps the width, so the bins and counts
+      // change and Ĥ does not shift by d·log|c|. Rules and counts are scale-free (see the top of this file).
+      scale: (settings) => (typeof settings.width === 'number' ? `width=${settings.width} is a bin width in data units, which does not change with the data's unit` : undefined),
+    },
   },
 ];

@@ -99,6 +99,12 @@ export const kernelEstimator: Estimator = {
     const data = prepareKernelData(sample);
     return kernelEntropy(data, usedBandwidth(sample, data, settings));
   },
+  lacks: {
+    // A numeric 1-D bandwidth is in data units (like a fixed histogram width); for d > 1 it is in whitened
+    // units, which follow the data, and the rules are equivariant.
+    scale: (settings, dim) =>
+      dim === 1 && typeof settings.bandwidth === 'number' ? `bandwidth=${settings.bandwidth} is in data units for d = 1, which do not change with the data's unit` : undefined,
+  },
 };
 
 export const kernelEstimators: Estimator[] = [kernelEstimator];

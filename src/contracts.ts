@@ -46,6 +46,26 @@ export interface SettingSpec {
   minExclusive?: boolean;
 }
 
+/**
+ * The invariances the conformance suite (src/conformance.ts) checks, as an estimator declares the ones its
+ * method lacks:
+ *   rowOrder       the estimate does not depend on the order of the rows;
+ *   scale          entropy: Ĥ(c·x) = Ĥ(x) + d·log|c|; mutual information and divergence: unchanged when every
+ *                  coordinate (of both samples) is multiplied by one factor c;
+ *   separateScale  mutual information: unchanged when X and Y are each multiplied by a factor of their own;
+ *   translation    unchanged by x → x + b (X and Y each shifted; P and Q shifted alike);
+ *   symmetry       mutual information: Î(X; Y) = Î(Y; X);
+ *   affine         divergence: unchanged when P and Q go through one invertible affine map x → Ax + b.
+ */
+export type InvarianceName = 'rowOrder' | 'scale' | 'separateScale' | 'translation' | 'symmetry' | 'affine';
+
+/**
+ * Why a method lacks an invariance: one line, or a function of the settings (validated, keywords unresolved)
+ * and the dimension that gives the line where the invariance fails and undefined where it holds (a histogram
+ * lacks scale equivariance only with a fixed bin width in data units).
+ */
+export type InvarianceException = string | ((settings: Settings, dim: number) => string | undefined);
+
 export interface Estimator {
   id: string;
   family: string;
@@ -64,6 +84,15 @@ export interface Estimator {
    * both must give the same value. Throws an EstimateError on input the method cannot handle.
    */
   estimate(sample: Sample, settings: Settings): number;
+  /**
+   * The invariances of the quantity that the method lacks by design, each with its reason: the conformance
+   * suite reports those checks as not applicable, with the reason, instead of failing them. Leave it out when
+   * the method has them all. Declare only what the method truly lacks; `hhat check` still measures the
+   * difference and shows it beside the reason.
+   *
+   *   lacks: { scale: (settings) => (typeof settings.width === 'number' ? 'a fixed bin width is in data units' : undefined) }
+   */
+  lacks?: Partial<Record<InvarianceName, InvarianceException>>;
 }
 
 export interface ParamSpec {

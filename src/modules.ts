@@ -12,7 +12,7 @@ import { createHash } from 'node:crypto';
 import { existsSync, readFileSync, statSync } from 'node:fs';
 import { extname, isAbsolute, resolve } from 'node:path';
 import { pathToFileURL } from 'node:url';
-import type { Estimator, SettingSpec, SettingValue } from './contracts.js';
+import type { Estimator, InvarianceName, SettingSpec, SettingValue } from './contracts.js';
 import { UsageError } from './errors.js';
 import { describeSetting } from './spec.js';
 import { listEstimators, replaceEstimator } from '../estimators/index.js';
@@ -148,6 +148,21 @@ function defaultAllowed(spec: SettingSpec, value: unknown): value is SettingValu
   return true;
 }
 
+/** Every invariance an estimator may declare it lacks (a Record, so a name added to the type must be listed). */
+const INVARIANCES: Record<InvarianceName, true> = { rowOrder: true, scale: true, separateScale: true, translation: true, symmetry: true, affine: true };
+
+function checkLacks(where: string, lacks: unknown): void {
+  const names = Object.keys(INVARIANCES).join(', ');
+  if (lacks === null || typeof lacks !== 'object' || Array.isArray(lacks)) {
+    throw new UsageError(`${where}: lacks is ${show(lacks)}; give an object naming the invariances the method lacks (${names}), each with its reason`);
+  }
+  for (const [name, reason] of Object.entries(lacks)) {
+    if (!(name in INVARIANCES)) throw new UsageError(`${where}: lacks.${name} is not an invariance hhat checks; the names are ${names}`);
+    if (typeof reason === 'function' || (typeof reason === 'string' && reason.trim() !== '')) continue;
+    throw new UsageError(`${where}: lacks.${name} is ${show(reason)}; give the reason as a non-empty string, or a function (settings, dim) returning it (undefined where the invariance holds)`);
+  }
+}
+
 function checkDims(where: string, dims: unknown): void {
   const ok =
     Array.isArray(dims) &&
@@ -193,6 +208,7 @@ export function checkEstimator(where: string, value: unknown): Estimator {
     if (seen.has(checked.name)) throw new UsageError(`${at}: settings[${i}]: the name "${checked.name}" is used twice`);
     seen.add(checked.name);
   });
+  if (e.lacks !== undefined) checkLacks(at, e.lacks);
   return e as Estimator;
 }
 
