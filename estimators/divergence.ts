@@ -160,7 +160,9 @@ function cellKeys(p: Float64Array, n: number, q: Float64Array, m: number, dim: n
 function histogramDivergence(sample: Sample, settings: Settings): number {
   const id = 'histogram-divergence';
   const { n, m, dim, p, q } = checkedPair(id, sample);
-  if (n < 1 || m < 1) throw new EstimateError('too-few-points', `${id}: both samples need at least one point; got ${n} from P and ${m} from Q`);
+  // One P point is a point mass on one cell: Σ p̂ log(p̂/q̂) is then −log q̂ of that cell, which says nothing of
+  // P's spread (the −h(P) part of the divergence), so at least two P points are needed, as for mi-histogram.
+  if (n < 2 || m < 1) throw new EstimateError('too-few-points', `${id}: needs at least 2 points from P and 1 from Q; got ${n} from P and ${m} from Q`);
   const pooled = new Float64Array((n + m) * dim);
   pooled.set(p, 0);
   pooled.set(q, n * dim);
