@@ -20,7 +20,7 @@ export type {
   Tails,
   UnivariateDensity,
 } from './contracts.js';
-export { EstimateError, UsageError } from './errors.js';
+export { EstimateError, UsageError, isEstimateError } from './errors.js';
 export { replicateRng, replicateSeed, rngFromSeed } from './rng.js';
 export { catalog, getFamily, listFamilies, parseScenario } from '../scenarios/index.js';
 export {
@@ -45,6 +45,7 @@ export { convertEntropy, unitFactor } from './units.js';
 export { readSample, findRepeats } from './data.js';
 export { KnnIndex } from './knn.js';
 export { loadEstimatorModules, registerUserEstimators } from './modules.js';
+export { runConformance, checksFor, type CheckResult, type ConformanceReport } from './conformance.js';
 export { renderReport, writeReport } from './report/report.js';
 export { adviseFile } from './advise/file.js';
 export { adviseSetting } from './advise/setting.js';
