@@ -142,7 +142,9 @@ function cellKeys(p: Float64Array, n: number, q: Float64Array, m: number, dim: n
 function histogramDivergence(sample: Sample, settings: { bins: BinRule | number; scale: number }): number {
   const id = 'histogram-divergence';
   const { n, m, dim, p, q } = checkedPair(id, sample);
-  if (n < 1 || m < 1) throw new EstimateError('too-few-points', `${id}: both samples need at least one point; got ${n} from P and ${m} from Q`);
+  // One P point is a point mass on one cell: Σ p̂ log(p̂/q̂) is then −log q̂ of that cell, which says nothing of
+  // P's spread (the −h(P) part of the divergence), so at least two P points are needed, as for mi-histogram.
+  if (n < 2 || m < 1) throw new EstimateError('too-few-points', `${id}: needs at least 2 points from P and 1 from Q; got ${n} from P and ${m} from Q`);
   const pooled = new Float64Array((n + m) * dim);
   pooled.set(p, 0);
   pooled.set(q, n * dim);
@@ -303,6 +305,10 @@ export const divergenceEstimators: Estimator[] = [
     dims: [1, Infinity],
     reference:
       'Wang, Q., Kulkarni, S. R. & Verdú, S. (2009). Divergence estimation for multidimensional densities via k-nearest-neighbor distances. IEEE Transactions on Information Theory 55(5), 2392–2405, eq. (5).',
+    lacks: {
+      // Ratios of Euclidean distances survive a common scale, shift or rotation, not a shear or unequal stretch.
+      affine: 'ratios of Euclidean distances are kept by a rescaling, shift or rotation, but not by a linear map that shears or stretches coordinates unequally',
+    },
     tuning: (_base, n) => [{ setting: 'k', values: KNN_TUNING_K.filter((k) => k < n) }],
     defaultFor: { estimate: true, bench: true },
     estimate(sample, { k }) {
@@ -328,6 +334,11 @@ export const divergenceEstimators: Estimator[] = [
     // leave P mass in bins Q never reaches.
     defaultFor: { estimate: true, bench: [{}, { order: 1, settings: { bins: 'sturges' } }] },
     estimate: histogramDivergence,
+    lacks: {
+      // The cells are products of intervals along the axes: per-coordinate scales and shifts keep them, a
+      // shear or rotation does not.
+      affine: 'the cells are boxes along the coordinate axes, so a linear map that mixes coordinates moves points between cells',
+    },
   }),
   defineEstimator({
     id: 'gaussian-divergence',

@@ -46,7 +46,7 @@
  * and run-length counted otherwise. When the grid has 2^53 cells or more, the keys of the leading
  * coordinates are first replaced by their ranks among the distinct keys, which keeps every key exact.
  */
-import { defineEstimator, type Estimator, type EstimatorFile, type Sample, SCALE_FACTORS, type SettingSpec, type TuningAxis } from '../src/core/contracts.js';
+import { defineEstimator, type Estimator, type EstimatorFile, type Sample, TUNING_SCALE_FACTORS, type SettingSpec, type TuningAxis } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { quantileOfSorted, squaredDeviations } from '../src/math/moments.js';
 import { checkFiniteValues, column } from '../src/core/sample.js';
@@ -99,12 +99,12 @@ export interface GridSettings {
 }
 
 /**
- * The tuning grid of a bin-rule estimator: every rule, and the count of the base's rule ×SCALE_FACTORS (a
+ * The tuning grid of a bin-rule estimator: every rule, and the count of the base's rule ×TUNING_SCALE_FACTORS (a
  * count or a width in data units is a choice of its own, not a rule to vary).
  */
 export function binGrid(base: { bins: BinRule | number }): TuningAxis<{ bins: BinRule | number; scale: number }>[] {
   const rules = { setting: 'bins', values: BIN_RULES } as const;
-  return typeof base.bins === 'string' ? [rules, { setting: 'scale', values: SCALE_FACTORS }] : [rules];
+  return typeof base.bins === 'string' ? [rules, { setting: 'scale', values: TUNING_SCALE_FACTORS }] : [rules];
 }
 
 const MAX_EXACT_INTEGER = 2 ** 53;
@@ -336,6 +336,11 @@ export const histogramEstimators: Estimator[] = [
     // Beyond d = 3 a product grid has far more cells than points at usual sample sizes.
     defaultFor: { estimate: [{ dims: [1, 3], order: 50 }], bench: true },
     estimate: histogramEntropy,
+    lacks: {
+      // A width in data units does not grow with the data: x → c·x keeps the width, so the bins and counts
+      // change and Ĥ does not shift by d·log|c|. Rules and counts are scale-free (see the top of this file).
+      scale: (settings) => (typeof settings.width === 'number' ? `width=${settings.width} is a bin width in data units, which does not change with the data's unit` : undefined),
+    },
   }),
 ];
 

@@ -30,7 +30,7 @@
  * point), not a refusal. The estimator fails ('numeric') only where that value does not fit in a double:
  * a point over ~1.3e154 bandwidths from its nearest neighbour, or data whose range overflows.
  */
-import { defineEstimator, type Estimator, type EstimatorFile, type Sample, SCALE_FACTORS, type SettingSpec, type TuningAxis } from '../src/core/contracts.js';
+import { defineEstimator, type Estimator, type EstimatorFile, type Sample, TUNING_SCALE_FACTORS, type SettingSpec, type TuningAxis } from '../src/core/contracts.js';
 import { SampleMemo } from './shared/sample-memo.js';
 import { type BandwidthSetting, chooseBandwidth, type KernelData, kernelEntropy, prepareKernelData, toDataUnits } from './kernel/resubstitution.js';
 
@@ -62,9 +62,9 @@ export interface KernelSettings {
   scale: number;
 }
 
-/** The tuning grid of a bandwidth rule: its bandwidth ×SCALE_FACTORS (a numeric bandwidth is a choice of its own). */
+/** The tuning grid of a bandwidth rule: its bandwidth ×TUNING_SCALE_FACTORS (a numeric bandwidth is a choice of its own). */
 export function bandwidthGrid(base: { bandwidth: BandwidthSetting }): TuningAxis<{ scale: number }>[] {
-  return typeof base.bandwidth === 'string' ? [{ setting: 'scale', values: SCALE_FACTORS }] : [];
+  return typeof base.bandwidth === 'string' ? [{ setting: 'scale', values: TUNING_SCALE_FACTORS }] : [];
 }
 
 const searchedBandwidths = new SampleMemo<number>();
@@ -99,6 +99,12 @@ export const kernelEstimator: Estimator = defineEstimator({
   estimate(sample, settings) {
     const data = prepareKernelData(sample);
     return kernelEntropy(data, usedBandwidth(sample, data, settings));
+  },
+  lacks: {
+    // A numeric 1-D bandwidth is in data units (like a fixed histogram width); for d > 1 it is in whitened
+    // units, which follow the data, and the rules are equivariant.
+    scale: (settings, dim) =>
+      dim === 1 && typeof settings.bandwidth === 'number' ? `bandwidth=${settings.bandwidth} is in data units for d = 1, which do not change with the data's unit` : undefined,
   },
 });
 

@@ -333,6 +333,26 @@ function ksgEstimator(variant: 1 | 2): Estimator {
       const { data, n, xDim, yDim } = prepared(id, sample, copula);
       return ksgMutualInformation(data, n, xDim, yDim, k, variant, id);
     },
+    lacks: {
+      // Variant 2 needs the k nearest points themselves; where several tie at the k-th distance it takes those
+      // of lowest row index (see ksgMutualInformation). Integer ranks tie often, so with copula=rank the order
+      // of the rows decides which tied points count (measured: 0.100 vs 0.112 nats at n = 200, rows permuted).
+      ...(variant === 2
+        ? {
+            rowOrder: (settings: Settings) =>
+              settings.copula === 'rank'
+                ? 'with copula=rank, max-norm distances between integer ranks tie often, and variant 2 takes tied neighbours by lowest row index, so the row order decides which of them count'
+                : undefined,
+          }
+        : {}),
+      // The joint distance max(‖x − x'‖, ‖y − y'‖) weighs X against Y, so rescaling one of them changes which
+      // points are the k nearest and the counts: the method is invariant to one factor for both (checked),
+      // and with copula=rank to any increasing map of each coordinate.
+      separateScale: (settings) =>
+        settings.copula === 'rank'
+          ? undefined
+          : 'the joint max-norm distance compares X distances with Y distances, so rescaling X alone changes the neighbours (standardise the columns, or use copula=rank)',
+    },
   });
 }
 
@@ -536,6 +556,13 @@ export const mutualInformationEstimators: Estimator[] = [
     tuning: bandwidthGrid,
     defaultFor: IN_DEFAULT_SETS,
     estimate: kernelMutualInformation,
+    lacks: {
+      // A numeric bandwidth of a one-dimensional part is in data units (with copula=rank, on the rank scale).
+      scale: (settings) =>
+        typeof settings.bandwidth === 'number' && settings.copula !== 'rank'
+          ? `bandwidth=${settings.bandwidth} is in data units for a one-dimensional X or Y, which do not change with the data's unit`
+          : undefined,
+    },
   }),
   defineEstimator({
     id: 'mi-gaussian',
@@ -579,6 +606,14 @@ export const mutualInformationEstimators: Estimator[] = [
     },
     defaultFor: IN_DEFAULT_SETS,
     estimate: fromEntropies,
+    lacks: {
+      // Ĥ(X, Y) by nearest neighbours uses distances that mix X's and Y's units; the histogram (per-coordinate
+      // bin rules), kernel (whitened) and Gaussian entropies of (X, Y) follow each coordinate's scale.
+      separateScale: (settings) =>
+        settings.copula !== 'rank' && nearestNeighbourEstimators.some((e) => e.id === (settings.entropy ?? ENTROPY_DEFAULT))
+          ? `entropy=${String(settings.entropy ?? ENTROPY_DEFAULT)} measures (X, Y) by distances that add X's and Y's units, so rescaling X alone changes Ĥ(X, Y) by more than log|c| (use copula=rank)`
+          : undefined,
+    },
   }),
 ];
 

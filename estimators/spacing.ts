@@ -13,7 +13,7 @@
  *
  *   const h = vasicekEntropy(sortAscending(Float64Array.of(...)), 3);   // sortAscending: src/math/sort.ts
  */
-import { defineEstimator, type DefaultSets, type Estimator, type EstimatorFile, type Sample, SCALE_FACTORS, type SettingSpec } from '../src/core/contracts.js';
+import { defineEstimator, type DefaultSets, type Estimator, type EstimatorFile, type Sample, TUNING_SCALE_FACTORS, type SettingSpec } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { checkFiniteValues } from '../src/core/sample.js';
 import { spreadUnitOfRange, toUnit } from './shared/scaling.js';
@@ -36,10 +36,10 @@ const WINDOW_SETTING = {
   min: 1,
 } as const satisfies SettingSpec;
 
-/** The tuning grid: the default window ×SCALE_FACTORS, rounded, each m once, 1 ≤ m < n/2. */
+/** The tuning grid: the default window ×TUNING_SCALE_FACTORS, rounded, each m once, 1 ≤ m < n/2. */
 function windowGrid(n: number): number[] {
   const m0 = defaultWindow(n);
-  return [...new Set(SCALE_FACTORS.map((f) => Math.max(1, Math.round(m0 * f))).filter((m) => m < n / 2))];
+  return [...new Set(TUNING_SCALE_FACTORS.map((f) => Math.max(1, Math.round(m0 * f))).filter((m) => m < n / 2))];
 }
 
 /** The window for n points: 'auto' resolved, and m < n/2 checked (the setting itself is already an integer ≥ 1). */

@@ -21,14 +21,31 @@
  *   dims       [min, max] supported dimensions (max may be Infinity)
  *   reference  the paper or book that defines the method, or where your lab describes it
  *   estimate(sample, settings)  the estimate in nats; sample is { n, dim, data: Float64Array } with point i
- *              at data[i*dim .. i*dim+dim-1], in recording order. Throw an Error on input the method cannot
- *              handle: hhat counts it as a failed replicate, keeps the message and goes on.
+ *              at data[i*dim .. i*dim+dim-1], in recording order. On input the method cannot handle (NaN,
+ *              too few points, a dimension outside dims), throw an Error named 'EstimateError' with a code
+ *              (the small class below): hhat counts it as a failed replicate, keeps the message and goes on.
  *   resolve(sample, settings)   optional: replace keywords such as 'auto' with the values actually used
  *   tuning(settings, n)         optional: the tuning grid a robustness run measures at sample size n,
  *              [{ setting: 'k', values: [...] }]; each value is validated like a typed one
  *   defaultFor optional: { estimate: true } joins the set `hhat estimate` runs without --estimator
  * Settings reach estimate() validated and complete: every declared name, numbers as numbers.
+ *   lacks      optional: the invariances the method lacks by design, each with its reason (here: the row
+ *              order, which carries the drift); `hhat check` reports those checks as not applicable
+ *
+ * `hhat check examples/drift-corrected-estimators.mjs` runs the conformance suite on this module.
  */
+
+/**
+ * A refusal hhat recognises without importing anything from it: an Error named 'EstimateError' whose code is
+ * one of 'too-few-points', 'ties', 'dimension', 'invalid-input', 'numeric'.
+ */
+class EstimateError extends Error {
+  constructor(code, message) {
+    super(message);
+    this.name = 'EstimateError';
+    this.code = code;
+  }
+}
 
 const EULER_GAMMA = 0.5772156649015329;
 
@@ -122,12 +139,24 @@ export const detrendedKozachenkoLeonenko = {
     'drift removal: least-squares polynomial in the sample index, as in the lab’s recording protocol.',
   // What a robustness run (--robustness) varies: k from 1 to 10, each below n; drift is a choice, not a tuning.
   tuning: (settings, n) => [{ setting: 'k', values: [1, 2, 3, 4, 5, 6, 7, 8, 9, 10].filter((k) => k < n) }],
+  // Detrending fits the drift along the recording order, so reordering the rows changes the estimate; with
+  // drift=none the order does not matter.
+  lacks: {
+    rowOrder: (settings) => (settings.drift === 'none' ? undefined : `drift=${settings.drift} removes a trend fitted in recording order, so the order of the rows is part of the data`),
+  },
   estimate(sample, settings) {
     const k = settings.k;
-    const { n, dim } = sample;
-    if (n <= k) throw new Error(`too-few-points: ${n} points; k = ${k} needs at least ${k + 1}`);
-    const data = detrend(sample, DRIFT_DEGREE[settings.drift]);
-    const distances = kthNeighbourDistances(data, n, dim, k);
+    const { n, dim, data } = sample;
+    const id = 'detrended-kozachenko-leonenko';
+    if (dim < 1 || dim > 8) throw new EstimateError('dimension', `${id} supports 1 ≤ d ≤ 8; the sample has d = ${dim}`);
+    if (n <= k) throw new EstimateError('too-few-points', `${id}: ${n} points; k = ${k} needs at least ${k + 1}`);
+    for (let p = 0; p < n * dim; p++) {
+      if (!Number.isFinite(data[p])) {
+        throw new EstimateError('invalid-input', `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`);
+      }
+    }
+    const detrended = detrend(sample, DRIFT_DEGREE[settings.drift]);
+    const distances = kthNeighbourDistances(detrended, n, dim, k);
     let sumLog = 0;
     let repeated = 0;
     for (let i = 0; i < n; i++) {
@@ -135,7 +164,7 @@ export const detrendedKozachenkoLeonenko = {
       else sumLog += Math.log(distances[i]);
     }
     if (repeated) {
-      throw new Error(`ties: ${repeated} of ${n} points have ${k} or more exact copies (after drift removal); add recording-resolution jitter or raise k`);
+      throw new EstimateError('ties', `${id}: ${repeated} of ${n} points have ${k} or more exact copies (after drift removal); add recording-resolution jitter or raise k`);
     }
     return digammaInteger(n) - digammaInteger(k) + logUnitBallVolume(dim) + (dim * sumLog) / n;
   },

@@ -16,6 +16,7 @@ const LOADERS: Record<CommandName, () => Promise<Register>> = {
   convert: async () => (await import('./commands/convert.js')).registerConvertCommand,
   report: async () => (await import('./commands/report.js')).registerReportCommand,
   compare: async () => (await import('./commands/compare.js')).registerCompareCommand,
+  check: async () => (await import('./commands/check.js')).registerCheckCommand,
   advise: async () => (await import('./commands/advise.js')).registerAdviseCommand,
 };
 

@@ -29,8 +29,7 @@ export type {
   TuningAxis,
   UnivariateDensity,
 } from './core/contracts.js';
-export { defineEstimator, SCALE_FACTORS } from './core/contracts.js';
-export { EstimateError, UsageError } from './core/errors.js';
+export { EstimateError, UsageError, isEstimateError } from './core/errors.js';
 export { replicateRng, replicateSeed, rngFromSeed } from './core/rng.js';
 export { catalog, getFamily, listFamilies, parseScenario } from '../scenarios/index.js';
 export {
@@ -57,6 +56,7 @@ export { convertEntropy, unitFactor } from './core/units.js';
 export { readSample, findRepeats } from './data/index.js';
 export { KnnIndex } from './math/knn.js';
 export { loadEstimatorModules, registerUserEstimators } from './harness/modules.js';
+export { runConformance, checksFor, type CheckResult, type ConformanceReport } from './analysis/conformance.js';
 export { renderReport, writeReport } from './views/report/report.js';
 export { adviseFile } from './analysis/advise/file.js';
 export { adviseSituation } from './analysis/advise/situation.js';

@@ -1,5 +1,5 @@
 import type { Command } from 'commander';
-import { UsageError, EstimateError, type EstimateErrorCode } from '../core/errors.js';
+import { UsageError, EstimateError, isEstimateError, type EstimateErrorCode } from '../core/errors.js';
 import { formatValue, renderTable, toBase, type Base } from '../core/format.js';
 import { readSample, findRepeats, describeRepeats } from '../data/index.js';
 import { selectionWidth, sharedSelection } from '../data/columns.js';
@@ -93,7 +93,8 @@ export function estimateAll(
       if (!Number.isFinite(value)) throw new EstimateError('numeric', `${c.estimator.id} gave ${value} on this sample`);
       return { estimator: c.estimator.id, settings, value: toBase(value, base), ...(subsample ? { subsample } : {}) };
     } catch (error) {
-      if (error instanceof EstimateError) {
+      // A user's module refuses with an error of EstimateError's shape (it imports nothing from hhat).
+      if (isEstimateError(error)) {
         return { estimator: c.estimator.id, settings: c.settings, value: null, error: error.message, code: error.code, ...(subsample ? { subsample } : {}) };
       }
       throw error;

@@ -12,6 +12,8 @@ export const COMMANDS = {
   convert: 'move a differential entropy to another unit of the data: h + d·log(old unit / new unit)',
   report: 'write a self-contained HTML report (charts and sortable tables) of a run file',
   compare: 'compare two run files cell by cell: paired on the same draws, so small changes in estimator code show',
+  check:
+    'run the estimator conformance suite on the estimators of a module (or the built-ins): determinism, row order, units, invariances, typed errors on bad input, a known value',
   advise:
     'which estimator to use: for a described situation (--n, --dim), or for a data file, with an estimate, a bootstrap interval and a look-alike bias correction',
 } as const;

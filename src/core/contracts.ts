@@ -92,6 +92,26 @@ export interface DefaultSets {
 }
 
 /**
+ * The invariances the conformance suite (src/conformance.ts) checks, as an estimator declares the ones its
+ * method lacks:
+ *   rowOrder       the estimate does not depend on the order of the rows;
+ *   scale          entropy: Ĥ(c·x) = Ĥ(x) + d·log|c|; mutual information and divergence: unchanged when every
+ *                  coordinate (of both samples) is multiplied by one factor c;
+ *   separateScale  mutual information: unchanged when X and Y are each multiplied by a factor of their own;
+ *   translation    unchanged by x → x + b (X and Y each shifted; P and Q shifted alike);
+ *   symmetry       mutual information: Î(X; Y) = Î(Y; X);
+ *   affine         divergence: unchanged when P and Q go through one invertible affine map x → Ax + b.
+ */
+export type InvarianceName = 'rowOrder' | 'scale' | 'separateScale' | 'translation' | 'symmetry' | 'affine';
+
+/**
+ * Why a method lacks an invariance: one line, or a function of the settings (validated, keywords unresolved)
+ * and the dimension that gives the line where the invariance fails and undefined where it holds (a histogram
+ * lacks scale equivariance only with a fixed bin width in data units).
+ */
+export type InvarianceException = string | ((settings: Settings, dim: number) => string | undefined);
+
+/**
  * An estimator. `S` types its validated settings; the registry holds them as `Estimator` (plain Settings), and
  * `defineEstimator` infers `S` from the `settings` declaration.
  */
@@ -122,6 +142,15 @@ export interface Estimator<S extends Settings = Settings> {
    * points for k, ties, ...); the settings themselves are already valid and the dimension within `dims`.
    */
   estimate(sample: Sample, settings: S): number;
+  /**
+   * The invariances of the quantity that the method lacks by design, each with its reason: the conformance
+   * suite reports those checks as not applicable, with the reason, instead of failing them. Leave it out when
+   * the method has them all. Declare only what the method truly lacks; `hhat check` still measures the
+   * difference and shows it beside the reason.
+   *
+   *   lacks: { scale: (settings) => (typeof settings.width === 'number' ? 'a fixed bin width is in data units' : undefined) }
+   */
+  lacks?: Partial<Record<InvarianceName, InvarianceException>>;
 }
 
 /** An estimator declaration whose settings' types are inferred from `settings`. */
@@ -149,7 +178,7 @@ export interface EstimatorFile {
 }
 
 /** Multipliers of a `scale` setting in tuning grids: a factor of 2 either way, in steps of about √2. */
-export const SCALE_FACTORS: readonly number[] = [0.5, 0.71, 1, 1.41, 2];
+export const TUNING_SCALE_FACTORS: readonly number[] = [0.5, 0.71, 1, 1.41, 2];
 
 export interface ParamSpec {
   name: string;

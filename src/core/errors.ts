@@ -3,7 +3,8 @@ export class UsageError extends Error {
   override name = 'UsageError';
 }
 
-export type EstimateErrorCode = 'too-few-points' | 'ties' | 'dimension' | 'invalid-input' | 'numeric';
+export const ESTIMATE_ERROR_CODES = ['too-few-points', 'ties', 'dimension', 'invalid-input', 'numeric'] as const;
+export type EstimateErrorCode = (typeof ESTIMATE_ERROR_CODES)[number];
 
 /**
  * An estimator could not produce a finite value from this sample. The harness counts it as a failure of
@@ -17,6 +18,17 @@ export class EstimateError extends Error {
   ) {
     super(message);
   }
+}
+
+/**
+ * An EstimateError, or an error of the same shape from a user's estimator module, which imports nothing from
+ * hhat: an Error whose name is 'EstimateError' and whose `code` is one of ESTIMATE_ERROR_CODES.
+ */
+export function isEstimateError(error: unknown): error is EstimateError {
+  if (error instanceof EstimateError) return true;
+  if (!(error instanceof Error) || error.name !== 'EstimateError') return false;
+  const code = (error as { code?: unknown }).code;
+  return typeof code === 'string' && (ESTIMATE_ERROR_CODES as readonly string[]).includes(code);
 }
 
 /**

@@ -1,4 +1,4 @@
-import type { DefaultEntry, Estimator, EstimateDefaultEntry, ParamSpec, SettingSpec, SettingValue, Settings } from './contracts.js';
+import type { DefaultEntry, Estimator, EstimateDefaultEntry, InvarianceName, ParamSpec, SettingSpec, SettingValue, Settings } from './contracts.js';
 import { UsageError } from './errors.js';
 
 /** A parsed `id:key=value,key=value` string; values are kept as text until validated. */
@@ -246,6 +246,21 @@ function isDims(dims: unknown): dims is readonly [number, number] {
   );
 }
 
+/** Every invariance an estimator may declare it lacks (a Record, so a name added to the type must be listed). */
+const INVARIANCES: Record<InvarianceName, true> = { rowOrder: true, scale: true, separateScale: true, translation: true, symmetry: true, affine: true };
+
+function checkLacks(where: string, lacks: unknown): void {
+  const names = Object.keys(INVARIANCES).join(', ');
+  if (lacks === null || typeof lacks !== 'object' || Array.isArray(lacks)) {
+    throw new UsageError(`${where}: lacks is ${show(lacks)}; give an object naming the invariances the method lacks (${names}), each with its reason`);
+  }
+  for (const [name, reason] of Object.entries(lacks)) {
+    if (!(name in INVARIANCES)) throw new UsageError(`${where}: lacks.${name} is not an invariance hhat checks; the names are ${names}`);
+    if (typeof reason === 'function' || (typeof reason === 'string' && reason.trim() !== '')) continue;
+    throw new UsageError(`${where}: lacks.${name} is ${show(reason)}; give the reason as a non-empty string, or a function (settings, dim) returning it (undefined where the invariance holds)`);
+  }
+}
+
 function checkDims(where: string, dims: unknown): void {
   if (!isDims(dims)) throw new UsageError(`${where}: dims must be [min, max], whole numbers with 1 ≤ min ≤ max (max may be Infinity); got ${show(dims)}`);
 }
@@ -323,5 +338,6 @@ export function checkEstimator(where: string, value: unknown): Estimator {
     seen.add(checked.name);
   });
   checkDefaultSets(at, e.defaultFor, e as Estimator);
+  if (e.lacks !== undefined) checkLacks(at, e.lacks);
   return e as Estimator;
 }
