@@ -170,9 +170,8 @@ interface CellList extends CellIndex {
   examinedPairs: number;
 }
 
-/** Builds the cell list, or returns undefined when the grid index would not fit in a double. */
-function buildCellList(z: Float64Array, n: number, dim: number, radius: number, cellsPerRadius: number): CellList | undefined {
-  const side = radius / cellsPerRadius;
+/** Each axis's smallest and largest coordinate over the points. */
+function pointBounds(z: Float64Array, n: number, dim: number): { lower: Float64Array; upper: Float64Array } {
   const lower = new Float64Array(dim).fill(Infinity);
   const upper = new Float64Array(dim).fill(-Infinity);
   for (let i = 0; i < n; i++) {
@@ -182,7 +181,11 @@ function buildCellList(z: Float64Array, n: number, dim: number, radius: number, 
       if (v > upper[k]) upper[k] = v;
     }
   }
-  // Cells are numbered in mixed radix (axis 0 fastest); the number must stay an exact integer in a double.
+  return { lower, upper };
+}
+
+/** Cells per axis and mixed-radix strides (axis 0 fastest); undefined when the cell count is not an exact integer in a double. */
+function gridShape(lower: Float64Array, upper: Float64Array, dim: number, side: number): { cellsPerAxis: Float64Array; stride: Float64Array } | undefined {
   const cellsPerAxis = new Float64Array(dim);
   const stride = new Float64Array(dim);
   let totalCells = 1;
@@ -191,8 +194,11 @@ function buildCellList(z: Float64Array, n: number, dim: number, radius: number, 
     stride[k] = totalCells;
     totalCells *= cellsPerAxis[k];
   }
-  if (!(totalCells < 2 ** 52)) return undefined;
+  return totalCells < 2 ** 52 ? { cellsPerAxis, stride } : undefined;
+}
 
+/** The key of each point's cell, each coordinate clamped to its axis's last cell. */
+function pointCellKeys(z: Float64Array, n: number, dim: number, side: number, lower: Float64Array, cellsPerAxis: Float64Array, stride: Float64Array): Float64Array {
   const keys = new Float64Array(n);
   for (let i = 0; i < n; i++) {
     let key = 0;
@@ -202,6 +208,11 @@ function buildCellList(z: Float64Array, n: number, dim: number, radius: number, 
     }
     keys[i] = key;
   }
+  return keys;
+}
+
+/** The points ordered by cell key (ties by index) and copied so each occupied cell's points are contiguous. */
+function groupByCell(z: Float64Array, n: number, dim: number, keys: Float64Array): Pick<CellIndex, 'order' | 'ordered' | 'cellStart' | 'cellKeys'> {
   const order = new Uint32Array(n);
   for (let i = 0; i < n; i++) order[i] = i;
   order.sort((a, b) => keys[a] - keys[b] || a - b);
@@ -221,8 +232,11 @@ function buildCellList(z: Float64Array, n: number, dim: number, radius: number, 
   const cellStart = new Int32Array(cellCount + 1);
   cellStart.set(startList);
   cellStart[cellCount] = n;
-  const cellKeys = Float64Array.from(cellKeyList);
+  return { order, ordered, cellStart, cellKeys: Float64Array.from(cellKeyList) };
+}
 
+/** The cell offsets that can hold points within r of each other, each unordered pair of cells once. */
+function neighbourOffsets(dim: number, cellsPerRadius: number, stride: Float64Array): number[][] {
   // Offsets in {−k..k}^d whose key difference is positive (each unordered neighbour pair once) and whose
   // cells can hold points within r of each other: nearest gap side·sqrt(Σ max(|o|−1, 0)²) ≤ r.
   const offsets: number[][] = [];
@@ -241,7 +255,19 @@ function buildCellList(z: Float64Array, n: number, dim: number, radius: number, 
     }
     if (delta > 0 && gapSquared <= cellsPerRadius * cellsPerRadius) offsets.push(offset);
   }
+  return offsets;
+}
 
+/** Occupied neighbour cells as flattened pairs (a, b), b after a, and the point pairs the sums will examine. */
+function neighbourCellPairs(
+  cellKeys: Float64Array,
+  cellStart: Int32Array,
+  dim: number,
+  cellsPerAxis: Float64Array,
+  stride: Float64Array,
+  offsets: number[][],
+): { neighbourPairs: Int32Array; examinedPairs: number } {
+  const cellCount = cellKeys.length;
   const pairs: number[] = [];
   let examinedPairs = 0;
   const cellCoordinate = new Float64Array(dim);
@@ -278,7 +304,21 @@ function buildCellList(z: Float64Array, n: number, dim: number, radius: number, 
       }
     }
   }
-  return { dim, side, lower, cellsPerAxis, stride, cellKeys, ordered, order, cellStart, neighbourPairs: Int32Array.from(pairs), examinedPairs };
+  return { neighbourPairs: Int32Array.from(pairs), examinedPairs };
+}
+
+/** Builds the cell list, or returns undefined when the grid index would not fit in a double. */
+function buildCellList(z: Float64Array, n: number, dim: number, radius: number, cellsPerRadius: number): CellList | undefined {
+  const side = radius / cellsPerRadius;
+  const { lower, upper } = pointBounds(z, n, dim);
+  const shape = gridShape(lower, upper, dim, side);
+  if (!shape) return undefined;
+  const { cellsPerAxis, stride } = shape;
+  const keys = pointCellKeys(z, n, dim, side, lower, cellsPerAxis, stride);
+  const { order, ordered, cellStart, cellKeys } = groupByCell(z, n, dim, keys);
+  const offsets = neighbourOffsets(dim, cellsPerRadius, stride);
+  const { neighbourPairs, examinedPairs } = neighbourCellPairs(cellKeys, cellStart, dim, cellsPerAxis, stride, offsets);
+  return { dim, side, lower, cellsPerAxis, stride, cellKeys, ordered, order, cellStart, neighbourPairs, examinedPairs };
 }
 
 /**

@@ -388,6 +388,159 @@ function testsPerCell(paired: boolean): number {
   return paired ? 3 : 2;
 }
 
+type ScoreChanges = { bias: ScoreChange; sd: ScoreChange; rmse: ScoreChange };
+
+/** What a cell's tests measured: the t test on squared errors, the score changes, and (paired) the sign test and shift. */
+interface CellTests {
+  test: TTest | null;
+  changes: ScoreChanges;
+  shift: ValueWithSe | null;
+  sign: SignTest | null;
+  medianChange: number | null;
+}
+
+/** The score changes with the two runs' SEs combined as independent. */
+function unpairedChanges(base: ComparedCell, next: ComparedCell): ScoreChanges {
+  return { bias: unpairedChange(base.scores.bias, next.scores.bias), sd: unpairedChange(base.scores.sd, next.scores.sd), rmse: unpairedChange(base.scores.rmse, next.scores.rmse) };
+}
+
+/** Different draws: Welch's t test on the two runs' squared errors, and the unpaired score changes. */
+function unpairedTests(base: ComparedCell, next: ComparedCell, truthBase: number, truthNext: number, intervalLevel: number): CellTests {
+  const test = welchTTest(squaredErrors(next, truthNext), squaredErrors(base, truthBase), intervalLevel);
+  return { test, changes: unpairedChanges(base, next), shift: null, sign: null, medianChange: null };
+}
+
+/** The same draws: paired t and sign tests and paired score changes over the replicates where both runs succeeded. */
+function pairedTests(base: ComparedCell, next: ComparedCell, truthBase: number, truthNext: number, intervalLevel: number, reasons: string[]): CellTests {
+  // Fewer than two common replicates leave the unpaired changes; leaving replicates out earns a note in `reasons`.
+  const nextValues: number[] = [];
+  const baseValues: number[] = [];
+  base.estimates.forEach((b, r) => {
+    const a = next.estimates[r];
+    if (a === null || b === null) return;
+    nextValues.push(a);
+    baseValues.push(b);
+  });
+  const common = nextValues.length;
+  const differences = nextValues.map((a, r) => (a - truthNext) ** 2 - (baseValues[r] - truthBase) ** 2);
+  const test = pairedTTest(differences, intervalLevel);
+  const sign = signTestOf(differences);
+  const errorChanges = Float64Array.from(nextValues, (a, r) => Math.abs(a - truthNext) - Math.abs(baseValues[r] - truthBase)).sort();
+  const medianChange = errorChanges.length ? quantileOfSorted(errorChanges, 0.5) : null;
+  let changes = unpairedChanges(base, next);
+  let shift: ValueWithSe | null = null;
+  const paired = pairedChanges(nextValues, baseValues, truthNext, truthBase, differences);
+  if (paired) {
+    changes = paired;
+    // The raw shift of the estimates is the bias change plus the change of the truth, with the same paired SE.
+    shift = { value: paired.bias.change + (truthNext - truthBase), se: paired.bias.changeSe };
+  }
+  if (common < Math.min(base.scores.successes, next.scores.successes)) reasons.push(`changes are over the ${common} replicates where both runs succeeded`);
+  return { test, changes, shift, sign, medianChange };
+}
+
+/** Everything a cell's verdict and its reasons are read from. */
+interface CellEvidence extends CellTests {
+  base: ComparedCell;
+  next: ComparedCell;
+  truthNext: number;
+  paired: boolean;
+  failures: FailureChange;
+  toleranceNats: number;
+  /** The level each of the cell's tests is held to. */
+  testLevel: number;
+}
+
+type Verdict = 'worse' | 'improved' | null;
+
+interface CellVerdicts {
+  mean: Verdict;
+  sign: Verdict;
+  failure: Verdict;
+  /** The t test's p is within the test level (whatever the tolerance says). */
+  significant: boolean;
+  /** The cell's p for Holm: the smallest p among the tests whose size condition holds, Bonferroni within the cell. */
+  cellP: number;
+}
+
+/** Each test's verdict: significant at the test level and, for the t and sign tests, a change beyond the tolerance. */
+function cellVerdicts(e: CellEvidence): CellVerdicts {
+  const { test, sign, medianChange, failures, toleranceNats, testLevel, paired, base, next } = e;
+  const significant = test !== null && test.p <= testLevel;
+  const beyondTolerance = exceeds(Math.abs(e.changes.rmse.change), toleranceNats);
+  const signBeyondTolerance = medianChange !== null && exceeds(Math.abs(medianChange), toleranceNats);
+  const mean = significant && beyondTolerance ? (test!.difference > 0 ? 'worse' : 'improved') : null;
+  const signVerdict = sign && sign.p <= testLevel && signBeyondTolerance ? (sign.above > sign.below ? 'worse' : 'improved') : null;
+  // Paired: which run failed on more of the same draws. Unpaired: which run's failure rate is higher (the runs may differ in size).
+  const failedMore = paired ? failures.onlyNext! > failures.onlyBase! : failures.next / next.estimates.length > failures.base / base.estimates.length;
+  const failure = failures.p !== null && failures.p <= testLevel ? (failedMore ? 'worse' : 'improved') : null;
+  const qualifying = [beyondTolerance && test ? test.p : 1, signBeyondTolerance && sign ? sign.p : 1, failures.p ?? 1];
+  const cellP = Math.min(1, testsPerCell(paired) * Math.min(...qualifying));
+  return { mean, sign: signVerdict, failure, significant, cellP };
+}
+
+/** What the t test compares, in words. */
+function squaredErrorTestName(paired: boolean): string {
+  return paired ? 'mean paired difference of squared errors' : 'difference of mean squared errors';
+}
+
+/** Why the t test decided: its p within the level and the RMSE change beyond the tolerance. */
+function meanReason(e: CellEvidence): string {
+  return `the t test on the ${squaredErrorTestName(e.paired)} gives p = ${formatNumber(e.test!.p)} ≤ ${formatNumber(e.testLevel)} and |ΔRMSE| = ${formatNumber(Math.abs(e.changes.rmse.change))} exceeds the tolerance ${formatNumber(e.toleranceNats)} nats`;
+}
+
+/** Why the sign test decided: how many replicates moved which way, its p and the median change of |error|. */
+function signReason(e: CellEvidence): string {
+  const sign = e.sign!;
+  return `${sign.above > sign.below ? sign.above : sign.below} of ${sign.above + sign.below} changed replicates got ${sign.above > sign.below ? 'worse' : 'better'} (sign test p = ${formatNumber(sign.p)} ≤ ${formatNumber(e.testLevel)}; median change of |error| ${formatNumber(e.medianChange!)} nats)`;
+}
+
+/** The failure counts and their exact test (McNemar paired, Fisher unpaired). */
+function failureReason(e: CellEvidence): string {
+  const { failures, base, next } = e;
+  return e.paired
+    ? `failures ${failures.base} → ${failures.next} of ${next.estimates.length}: ${failures.onlyNext} replicates fail only in the new run, ${failures.onlyBase} only in the base (exact McNemar p = ${formatNumber(failures.p!)})`
+    : `failures ${failures.base} of ${base.estimates.length} → ${failures.next} of ${next.estimates.length} (Fisher exact p = ${formatNumber(failures.p!)})`;
+}
+
+/** The first wild estimate and how far it lies beyond the base run's largest error. */
+function wildReason(wild: WildEstimate[], truthNext: number): string {
+  const w = wild[0];
+  const where = w.base === null ? 'where the base run failed' : `where the base gave ${formatNumber(w.base)}`;
+  return `${wild.length} wild estimate${wild.length === 1 ? '' : 's'}: replicate ${w.replicate} gave ${formatNumber(w.next)} ${where}, ${Number.isFinite(w.ratio) ? `${formatNumber(w.ratio)} times` : 'far beyond'} the base run's largest error in this cell${Number.isFinite((w.next - truthNext) ** 2) ? '' : ' (its squared error overflows)'}`;
+}
+
+/** Why estimates that moved are within noise: no test, a change within the tolerance, or no significant test. */
+function withinNoiseReasons(e: CellEvidence, v: CellVerdicts, reasons: string[]): void {
+  const { test, sign, failures, testLevel } = e;
+  if (failures.next !== failures.base) reasons.unshift(`${failureReason(e)}, not significant at ${formatNumber(testLevel)}`);
+  if (test === null) reasons.unshift('too few successful replicates for a test');
+  else if (v.significant) reasons.unshift(`significant (p = ${formatNumber(test.p)} ≤ ${formatNumber(testLevel)}) but |ΔRMSE| = ${formatNumber(Math.abs(e.changes.rmse.change))} is within the tolerance ${formatNumber(e.toleranceNats)} nats`);
+  else reasons.unshift(`the t test on the ${squaredErrorTestName(e.paired)} gives p = ${formatNumber(test.p)} > ${formatNumber(testLevel)}${sign ? `; sign test ${sign.above} worse, ${sign.below} better (p = ${formatNumber(sign.p)})` : ''}`);
+}
+
+/** Bit-identical, else wild, else worse or improved by any test (worse wins), else within noise; tested: in Holm's step-down. */
+function cellStatus(e: CellEvidence, wild: WildEstimate[], v: CellVerdicts, reasons: string[]): { status: CellStatus; tested: boolean } {
+  if (bitIdentical(e.base.estimates, e.next.estimates)) {
+    reasons.unshift('every estimate is bit-identical');
+    return { status: 'unchanged', tested: false };
+  }
+  if (wild.length) {
+    reasons.unshift(wildReason(wild, e.truthNext));
+    return { status: 'worse', tested: false };
+  }
+  for (const status of ['worse', 'improved'] as const) {
+    if (v.mean !== status && v.sign !== status && v.failure !== status) continue;
+    if (v.failure === status) reasons.unshift(failureReason(e));
+    if (v.sign === status) reasons.unshift(signReason(e));
+    if (v.mean === status) reasons.unshift(meanReason(e));
+    return { status, tested: true };
+  }
+  // Estimates moved (even if every squared error happens to be equal, e.g. reflected about the truth).
+  withinNoiseReasons(e, v, reasons);
+  return { status: 'changed-within-noise', tested: true };
+}
+
 /**
  * `holmDivisor` is the number of hypotheses Holm's step-down still holds when it reaches this cell (the
  * cell's share of α is α/holmDivisor, then split over its tests); 1 before the cells are ordered.
@@ -410,96 +563,14 @@ function compareCell(
   // Intervals are shown at the cell's Bonferroni level alone; the verdict also takes Holm's share.
   const intervalLevel = 1 - (1 - level) / tests;
   const testLevel = (1 - level) / (tests * holmDivisor);
+  const measured = paired ? pairedTests(base, next, truthBase, truthNext, intervalLevel, reasons) : unpairedTests(base, next, truthBase, truthNext, intervalLevel);
 
-  let test: TTest | null;
-  let shift: ValueWithSe | null = null;
-  let sign: SignTest | null = null;
-  let medianChange: number | null = null;
-  let changes = { bias: unpairedChange(base.scores.bias, next.scores.bias), sd: unpairedChange(base.scores.sd, next.scores.sd), rmse: unpairedChange(base.scores.rmse, next.scores.rmse) };
-  let common: number;
-  if (paired) {
-    const nextValues: number[] = [];
-    const baseValues: number[] = [];
-    base.estimates.forEach((b, r) => {
-      const a = next.estimates[r];
-      if (a === null || b === null) return;
-      nextValues.push(a);
-      baseValues.push(b);
-    });
-    common = nextValues.length;
-    const differences = nextValues.map((a, r) => (a - truthNext) ** 2 - (baseValues[r] - truthBase) ** 2);
-    test = pairedTTest(differences, intervalLevel);
-    sign = signTestOf(differences);
-    const errorChanges = Float64Array.from(nextValues, (a, r) => Math.abs(a - truthNext) - Math.abs(baseValues[r] - truthBase)).sort();
-    medianChange = errorChanges.length ? quantileOfSorted(errorChanges, 0.5) : null;
-    const paired = pairedChanges(nextValues, baseValues, truthNext, truthBase, differences);
-    if (paired) {
-      changes = paired;
-      // The raw shift of the estimates is the bias change plus the change of the truth, with the same paired SE.
-      shift = { value: paired.bias.change + (truthNext - truthBase), se: paired.bias.changeSe };
-    }
-    if (common < Math.min(base.scores.successes, next.scores.successes)) reasons.push(`changes are over the ${common} replicates where both runs succeeded`);
-  } else {
-    test = welchTTest(squaredErrors(next, truthNext), squaredErrors(base, truthBase), intervalLevel);
-  }
-
-  const rmse = changes.rmse;
   const toleranceNats = tolerance.kind === 'nats' ? tolerance.value : tolerance.value * base.scores.rmse.value;
   const wild = wildEstimates(base, next, truthBase, truthNext, toleranceNats);
   const failures = failureChange(base, next, paired);
-  const testName = paired ? 'mean paired difference of squared errors' : 'difference of mean squared errors';
-  const significant = test !== null && test.p <= testLevel;
-  const beyondTolerance = exceeds(Math.abs(rmse.change), toleranceNats);
-  const signBeyondTolerance = medianChange !== null && exceeds(Math.abs(medianChange), toleranceNats);
-  const meanVerdict = significant && beyondTolerance ? (test!.difference > 0 ? 'worse' : 'improved') : null;
-  const signVerdict = sign && sign.p <= testLevel && signBeyondTolerance ? (sign.above > sign.below ? 'worse' : 'improved') : null;
-  // Paired: which run failed on more of the same draws. Unpaired: which run's failure rate is higher (the runs may differ in size).
-  const failedMore = paired ? failures.onlyNext! > failures.onlyBase! : failures.next / next.estimates.length > failures.base / base.estimates.length;
-  const failureVerdict = failures.p !== null && failures.p <= testLevel ? (failedMore ? 'worse' : 'improved') : null;
-  // The cell's p for Holm: the smallest over the tests whose size condition holds, Bonferroni within the cell.
-  const qualifying = [beyondTolerance && test ? test.p : 1, signBeyondTolerance && sign ? sign.p : 1, failures.p ?? 1];
-  const cellP = Math.min(1, tests * Math.min(...qualifying));
-
-  const meanReason = () => `the t test on the ${testName} gives p = ${formatNumber(test!.p)} ≤ ${formatNumber(testLevel)} and |ΔRMSE| = ${formatNumber(Math.abs(rmse.change))} exceeds the tolerance ${formatNumber(toleranceNats)} nats`;
-  const signReason = () => `${sign!.above > sign!.below ? sign!.above : sign!.below} of ${sign!.above + sign!.below} changed replicates got ${sign!.above > sign!.below ? 'worse' : 'better'} (sign test p = ${formatNumber(sign!.p)} ≤ ${formatNumber(testLevel)}; median change of |error| ${formatNumber(medianChange!)} nats)`;
-  const failureReason = () =>
-    paired
-      ? `failures ${failures.base} → ${failures.next} of ${next.estimates.length}: ${failures.onlyNext} replicates fail only in the new run, ${failures.onlyBase} only in the base (exact McNemar p = ${formatNumber(failures.p!)})`
-      : `failures ${failures.base} of ${base.estimates.length} → ${failures.next} of ${next.estimates.length} (Fisher exact p = ${formatNumber(failures.p!)})`;
-
-  let status: CellStatus;
-  let tested = false;
-  if (bitIdentical(base.estimates, next.estimates)) {
-    status = 'unchanged';
-    reasons.unshift('every estimate is bit-identical');
-  } else if (wild.length) {
-    status = 'worse';
-    const w = wild[0];
-    const where = w.base === null ? 'where the base run failed' : `where the base gave ${formatNumber(w.base)}`;
-    reasons.unshift(
-      `${wild.length} wild estimate${wild.length === 1 ? '' : 's'}: replicate ${w.replicate} gave ${formatNumber(w.next)} ${where}, ${Number.isFinite(w.ratio) ? `${formatNumber(w.ratio)} times` : 'far beyond'} the base run's largest error in this cell${Number.isFinite((w.next - truthNext) ** 2) ? '' : ' (its squared error overflows)'}`,
-    );
-  } else if (meanVerdict === 'worse' || signVerdict === 'worse' || failureVerdict === 'worse') {
-    tested = true;
-    status = 'worse';
-    if (failureVerdict === 'worse') reasons.unshift(failureReason());
-    if (signVerdict === 'worse') reasons.unshift(signReason());
-    if (meanVerdict === 'worse') reasons.unshift(meanReason());
-  } else if (meanVerdict === 'improved' || signVerdict === 'improved' || failureVerdict === 'improved') {
-    tested = true;
-    status = 'improved';
-    if (failureVerdict === 'improved') reasons.unshift(failureReason());
-    if (signVerdict === 'improved') reasons.unshift(signReason());
-    if (meanVerdict === 'improved') reasons.unshift(meanReason());
-  } else {
-    // Estimates moved (even if every squared error happens to be equal, e.g. reflected about the truth).
-    tested = true;
-    status = 'changed-within-noise';
-    if (failures.next !== failures.base) reasons.unshift(`${failureReason()}, not significant at ${formatNumber(testLevel)}`);
-    if (test === null) reasons.unshift('too few successful replicates for a test');
-    else if (significant) reasons.unshift(`significant (p = ${formatNumber(test.p)} ≤ ${formatNumber(testLevel)}) but |ΔRMSE| = ${formatNumber(Math.abs(rmse.change))} is within the tolerance ${formatNumber(toleranceNats)} nats`);
-    else reasons.unshift(`the t test on the ${testName} gives p = ${formatNumber(test.p)} > ${formatNumber(testLevel)}${sign ? `; sign test ${sign.above} worse, ${sign.below} better (p = ${formatNumber(sign.p)})` : ''}`);
-  }
+  const evidence: CellEvidence = { ...measured, base, next, truthNext, paired, failures, toleranceNats, testLevel };
+  const verdicts = cellVerdicts(evidence);
+  const { status, tested } = cellStatus(evidence, wild, verdicts, reasons);
 
   return {
     scenario: base.scenario,
@@ -512,16 +583,16 @@ function compareCell(
     truth: { base: truthBase, next: truthNext },
     replicates: { base: base.estimates.length, next: next.estimates.length },
     failures,
-    bias: changes.bias,
-    sd: changes.sd,
-    rmse,
-    shift,
-    test,
-    sign,
-    medianChange,
+    bias: measured.changes.bias,
+    sd: measured.changes.sd,
+    rmse: measured.changes.rmse,
+    shift: measured.shift,
+    test: measured.test,
+    sign: measured.sign,
+    medianChange: measured.medianChange,
     wild,
     testLevel,
-    adjustedP: tested ? cellP : null,
+    adjustedP: tested ? verdicts.cellP : null,
     toleranceNats,
   };
 }

@@ -8,12 +8,12 @@ import type { Quantity } from '../core/contracts.js';
 import { parseScenario } from '../../scenarios/index.js';
 import type { Base } from '../core/format.js';
 import { defaultPlan } from '../harness/default-plan.js';
-import { collect, MAX_REPLICATES, parseFraction, planFingerprint, parseIntegerOption, parseLevel, parseSampleSizes, readPlanFile, resolvePlan, type PlanInput } from '../harness/plan.js';
+import { collect, MAX_REPLICATES, parseFraction, planFingerprint, parseIntegerOption, parseLevel, parseSampleSizes, readPlanFile, resolvePlan, type Plan, type PlanInput } from '../harness/plan.js';
 import { progressReporter } from '../views/progress.js';
 import { assembleRun, readRunFile, writeFileAtomic, writeRunFile, type RunFile } from '../analysis/results.js';
 import { acquireLock, ensureFolder, removeLeftoverTemporaries } from '../core/files.js';
 import { checkSampleMemory } from '../core/memory.js';
-import { checkpointStarted, defaultWorkers, runPlan, type Shard } from '../harness/runner.js';
+import { checkpointStarted, defaultWorkers, runPlan, type RunOptions, type RunOutcome, type Shard } from '../harness/runner.js';
 import { parseShard } from '../harness/shard.js';
 import { detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../views/tables.js';
 import { estimatorLabel } from '../../estimators/index.js';
@@ -172,10 +172,9 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
   print(`RMSE ± Monte-Carlo SE. ${rankLegend(run.plan.verdicts.level, run.plan.verdicts.maxFailureRate)}`);
 }
 
-export function registerBenchCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
-  program
-    .command('bench')
-    .description(COMMANDS.bench)
+/** Declares bench's options; their texts are what `hhat bench --help` shows. */
+function declareBenchOptions(command: Command): Command {
+  return command
     .option('--plan <file>', 'a JSON plan file (schema: src/schemas/plan.schema.json)')
     .option('--quantity <q>', 'entropy (default), mutual-information or divergence: the default plan of that quantity')
     .option('--scenario <spec>', 'a scenario to include (repeatable; see `hhat scenarios`)', collect)
@@ -202,102 +201,146 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
     .option('--report [file]', 'also write the HTML report (default: next to the run file, .html)')
     .option('--svg-dir <dir>', 'with --report: also write every chart as an SVG file')
     .option('--no-chart', 'leave out the text chart of |bias| against n')
-    .option('--quiet', 'print only the run file path')
-    .action(async (options: BenchOptions) => {
-      const base: Base = options.bits ? 'bits' : 'nats';
-      const shard: Shard | undefined = options.shard ? parseShard(options.shard) : undefined;
-      const workers = options.workers === undefined ? defaultWorkers() : parseIntegerOption('--workers', options.workers, 1, 256);
-      let out = options.out;
-      if (!out && options.resume) {
-        const checkpoint = latestCheckpoint('results');
-        if (!checkpoint) throw new UsageError('--resume found no interrupted run under results/; give its --out');
-        out = checkpoint.slice(0, -'.checkpoint.jsonl'.length);
-      }
-      out ??= join('results', `run-${timestamp()}${shard ? `.shard-${shard.index}-of-${shard.count}` : ''}.json`);
-      out = resolve(out);
-      const input = planInputFromOptions(options);
-      const registration = await useEstimatorModules(input.modules ?? []);
-      const note = describeRegistration(registration);
-      if (note && !options.quiet) printErr(note);
-      // Errors name where the plan came from: the plan file, or the flags.
-      const { plan, scenarios } = resolvePlan(input, options.plan ?? 'command line');
-      // Refused before any work starts, with what it would need, rather than a crash part way.
-      const largestN = Math.max(...plan.sampleSizes);
-      checkSampleMemory(`n = ${largestN}`, largestN, Math.max(...scenarios.map((x) => x.dim)), { workers, workerMemoryMiB: plan.limits.workerMemoryMiB });
-      const checkpoint = checkpointFor(out);
-      const resumeHint = `the finished units are saved in ${checkpoint}; fix that and rerun with --resume --out ${out}`;
-      ensureFolder(dirname(out), 'choose another --out');
-      // Refused now rather than when the finished run is written.
-      if (existsSync(out) && statSync(out).isDirectory()) throw new UsageError(`--out ${out} is a folder; give the run file's path, e.g. --out ${join(out, 'run.json')}`);
-      const release = acquireLock(out, 'choose another --out');
-      try {
-        removeLeftoverTemporaries(out);
-        removeLeftoverTemporaries(checkpoint);
-        const finished = finishedRun(out);
-        if (finished && !checkpointStarted(checkpoint)) {
-          if (options.resume && finished.fingerprint === planFingerprint(plan)) {
-            print(`${out} is already a finished run of this plan; nothing to resume`);
-            return;
-          }
-          if (!options.force) {
-            throw new UsageError(
-              `${out} already holds a finished run (${finished.plan.name}, ${finished.createdAt.slice(0, 16).replace('T', ' ')}${options.resume ? ', of another plan' : ''}); add --force to replace it, or choose another --out`,
-            );
-          }
-        }
-        const controller = new AbortController();
-        let stoppedBy: NodeJS.Signals | null = null;
-        const onSignal = (signal: NodeJS.Signals) => {
-          stoppedBy = signal;
-          controller.abort();
-        };
-        process.once('SIGINT', onSignal);
-        process.once('SIGTERM', onSignal);
-        const progress = options.quiet ? undefined : progressReporter(process.stderr);
-        let outcome;
-        try {
-          outcome = await runPlan(plan, {
-            workers,
-            shard,
-            checkpointPath: checkpoint,
-            checkpointHint: resumeHint,
-            resume: options.resume,
-            onProgress: progress?.update,
-            onWarning: (text) => printErr(`hhat: ${text}`),
-            signal: controller.signal,
-          });
-        } finally {
-          progress?.done();
-          process.off('SIGINT', onSignal);
-          process.off('SIGTERM', onSignal);
-        }
-        if (outcome.interrupted) {
-          printErr(`interrupted: ${outcome.results.size} of ${outcome.owned.length} units are saved in ${checkpoint}`);
-          printErr(`continue with the same command plus: --resume --out ${out}`);
-          // 128 + the signal's number, as shells report a process stopped by it.
-          process.exitCode = stoppedBy === 'SIGTERM' ? 143 : 130;
-          return;
-        }
-        const run = assembleRun(outcome, shard ?? null);
-        writeRunFile(out, run, `every estimate is saved in ${checkpoint}; fix that and rerun with --resume --out ${out} (nothing is computed again)`);
-        rmSync(checkpoint, { force: true });
-        if (options.csv) writeFileAtomic(options.csv, scoresCsv(run, base));
-        if (!options.quiet && !shard) {
-          printRun(run, base, print, Boolean(options.detail));
-          if (options.chart !== false) print(biasTextChart(run, base));
-        }
-        if (options.report && !shard) {
-          const reportPath = resolve(typeof options.report === 'string' ? options.report : out.replace(/\.json$/, '') + '.html');
-          await writeReport(run, { base, out: reportPath, svgDir: options.svgDir });
-          print(`report: ${reportPath}`);
-        }
-        const resumed = outcome.resumedUnits ? `, ${outcome.resumedUnits} units from the checkpoint` : '';
-        print(`${shard ? `shard ${shard.index}/${shard.count}: ` : ''}${run.cells.length} cells in ${run.wallSeconds.toFixed(1)} s on ${run.workers} worker${run.workers === 1 ? '' : 's'}${resumed}`);
-        print(`run file: ${out}`);
-      } finally {
-        release();
-      }
-    });
+    .option('--quiet', 'print only the run file path');
+}
+
+/** The run file's absolute path: --out, else with --resume the newest interrupted run under results/, else a new timestamped name. */
+function benchOutPath(options: BenchOptions, shard: Shard | undefined): string {
+  let out = options.out;
+  if (!out && options.resume) {
+    const checkpoint = latestCheckpoint('results');
+    if (!checkpoint) throw new UsageError('--resume found no interrupted run under results/; give its --out');
+    out = checkpoint.slice(0, -'.checkpoint.jsonl'.length);
+  }
+  out ??= join('results', `run-${timestamp()}${shard ? `.shard-${shard.index}-of-${shard.count}` : ''}.json`);
+  return resolve(out);
+}
+
+/** The plan of the flags or plan file, with its estimator modules loaded; refused before any work when its largest n would not fit in memory. */
+async function benchPlan(options: BenchOptions, workers: number, printErr: (text: string) => void): Promise<Plan> {
+  const input = planInputFromOptions(options);
+  const registration = await useEstimatorModules(input.modules ?? []);
+  const note = describeRegistration(registration);
+  if (note && !options.quiet) printErr(note);
+  // Errors name where the plan came from: the plan file, or the flags.
+  const { plan, scenarios } = resolvePlan(input, options.plan ?? 'command line');
+  // Refused before any work starts, with what it would need, rather than a crash part way.
+  const largestN = Math.max(...plan.sampleSizes);
+  checkSampleMemory(`n = ${largestN}`, largestN, Math.max(...scenarios.map((x) => x.dim)), { workers, workerMemoryMiB: plan.limits.workerMemoryMiB });
+  return plan;
+}
+
+/** Makes --out's folder, and refuses an --out that is itself a folder now rather than when the finished run is written. */
+function prepareOutFolder(out: string): void {
+  ensureFolder(dirname(out), 'choose another --out');
+  if (existsSync(out) && statSync(out).isDirectory()) throw new UsageError(`--out ${out} is a folder; give the run file's path, e.g. --out ${join(out, 'run.json')}`);
+}
+
+/** True when --out holds a finished run of this plan and --resume has nothing to do; refuses to replace another without --force. */
+function alreadyFinished(out: string, checkpoint: string, plan: Plan, options: BenchOptions): boolean {
+  const finished = finishedRun(out);
+  if (!finished || checkpointStarted(checkpoint)) return false;
+  if (options.resume && finished.fingerprint === planFingerprint(plan)) return true;
+  if (!options.force) {
+    throw new UsageError(
+      `${out} already holds a finished run (${finished.plan.name}, ${finished.createdAt.slice(0, 16).replace('T', ' ')}${options.resume ? ', of another plan' : ''}); add --force to replace it, or choose another --out`,
+    );
+  }
+  return false;
+}
+
+/** Runs the plan with progress on stderr (unless quiet); SIGINT or SIGTERM stop it cleanly, and the one that did is returned. */
+async function runWithSignals(plan: Plan, runOptions: RunOptions, quiet: boolean | undefined): Promise<{ outcome: RunOutcome; stoppedBy: NodeJS.Signals | null }> {
+  const controller = new AbortController();
+  let stoppedBy: NodeJS.Signals | null = null;
+  const onSignal = (signal: NodeJS.Signals) => {
+    stoppedBy = signal;
+    controller.abort();
+  };
+  process.once('SIGINT', onSignal);
+  process.once('SIGTERM', onSignal);
+  const progress = quiet ? undefined : progressReporter(process.stderr);
+  try {
+    const outcome = await runPlan(plan, { ...runOptions, onProgress: progress?.update, signal: controller.signal });
+    return { outcome, stoppedBy };
+  } finally {
+    progress?.done();
+    process.off('SIGINT', onSignal);
+    process.off('SIGTERM', onSignal);
+  }
+}
+
+/** Says what an interrupted run saved and how to continue it, and exits as shells report a process stopped by the signal. */
+function reportInterrupted(outcome: RunOutcome, checkpoint: string, out: string, stoppedBy: NodeJS.Signals | null, printErr: (text: string) => void): void {
+  printErr(`interrupted: ${outcome.results.size} of ${outcome.owned.length} units are saved in ${checkpoint}`);
+  printErr(`continue with the same command plus: --resume --out ${out}`);
+  // 128 + the signal's number, as shells report a process stopped by it.
+  process.exitCode = stoppedBy === 'SIGTERM' ? 143 : 130;
+}
+
+/** Writes the run file, then drops the checkpoint it made redundant, and writes the CSV when asked. */
+function writeRunFiles(run: RunFile, out: string, checkpoint: string, options: BenchOptions, base: Base): void {
+  writeRunFile(out, run, `every estimate is saved in ${checkpoint}; fix that and rerun with --resume --out ${out} (nothing is computed again)`);
+  rmSync(checkpoint, { force: true });
+  if (options.csv) writeFileAtomic(options.csv, scoresCsv(run, base));
+}
+
+/** A whole run's tables and text chart (unless quiet) and its HTML report (when asked); a shard shows neither. */
+async function presentRun(run: RunFile, out: string, options: BenchOptions, base: Base, shard: Shard | undefined, print: (text: string) => void): Promise<void> {
+  if (!options.quiet && !shard) {
+    printRun(run, base, print, Boolean(options.detail));
+    if (options.chart !== false) print(biasTextChart(run, base));
+  }
+  if (options.report && !shard) {
+    const reportPath = resolve(typeof options.report === 'string' ? options.report : out.replace(/\.json$/, '') + '.html');
+    await writeReport(run, { base, out: reportPath, svgDir: options.svgDir });
+    print(`report: ${reportPath}`);
+  }
+}
+
+/** The closing lines: what ran, how long it took on how many workers, and where the run file is. */
+function printRunSummary(run: RunFile, outcome: RunOutcome, out: string, shard: Shard | undefined, print: (text: string) => void): void {
+  const resumed = outcome.resumedUnits ? `, ${outcome.resumedUnits} units from the checkpoint` : '';
+  print(`${shard ? `shard ${shard.index}/${shard.count}: ` : ''}${run.cells.length} cells in ${run.wallSeconds.toFixed(1)} s on ${run.workers} worker${run.workers === 1 ? '' : 's'}${resumed}`);
+  print(`run file: ${out}`);
+}
+
+/** `hhat bench`: builds the plan, runs it under the --out lock with a checkpoint, then writes and shows the run. */
+async function runBench(options: BenchOptions, print: (text: string) => void, printErr: (text: string) => void): Promise<void> {
+  const base: Base = options.bits ? 'bits' : 'nats';
+  const shard: Shard | undefined = options.shard ? parseShard(options.shard) : undefined;
+  const workers = options.workers === undefined ? defaultWorkers() : parseIntegerOption('--workers', options.workers, 1, 256);
+  const out = benchOutPath(options, shard);
+  const plan = await benchPlan(options, workers, printErr);
+  const checkpoint = checkpointFor(out);
+  const resumeHint = `the finished units are saved in ${checkpoint}; fix that and rerun with --resume --out ${out}`;
+  prepareOutFolder(out);
+  const release = acquireLock(out, 'choose another --out');
+  try {
+    removeLeftoverTemporaries(out);
+    removeLeftoverTemporaries(checkpoint);
+    if (alreadyFinished(out, checkpoint, plan, options)) {
+      print(`${out} is already a finished run of this plan; nothing to resume`);
+      return;
+    }
+    const { outcome, stoppedBy } = await runWithSignals(
+      plan,
+      { workers, shard, checkpointPath: checkpoint, checkpointHint: resumeHint, resume: options.resume, onWarning: (text) => printErr(`hhat: ${text}`) },
+      options.quiet,
+    );
+    if (outcome.interrupted) return reportInterrupted(outcome, checkpoint, out, stoppedBy, printErr);
+    const run = assembleRun(outcome, shard ?? null);
+    writeRunFiles(run, out, checkpoint, options, base);
+    await presentRun(run, out, options, base, shard, print);
+    printRunSummary(run, outcome, out, shard, print);
+  } finally {
+    release();
+  }
+}
+
+/** Adds `hhat bench` and `hhat merge` to the program. */
+export function registerBenchCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
+  declareBenchOptions(program.command('bench').description(COMMANDS.bench)).action((options: BenchOptions) => runBench(options, print, printErr));
 
   program
     .command('merge')

@@ -49,159 +49,201 @@ interface Slot {
   dead: boolean;
 }
 
+/** The supervisor's state: the jobs not yet handed out, the live workers, and how the run ends. */
+interface Supervisor {
+  plan: Plan;
+  options: PoolOptions;
+  pending: Job[];
+  workers: Set<Slot>;
+  finished: boolean;
+  /** Whether any worker has started: a worker that fails to start after that fails on the machine, not the input. */
+  everReady: boolean;
+  watchdog: ReturnType<typeof setInterval> | undefined;
+  resolve: (interrupted: boolean) => void;
+  reject: (error: unknown) => void;
+}
+
+/** Ends the run once: stops the watchdog and every worker, then settles with `interrupted` or the error. */
+function finish(run: Supervisor, interrupted: boolean, error?: unknown): void {
+  if (run.finished) return;
+  run.finished = true;
+  if (run.watchdog) clearInterval(run.watchdog);
+  for (const w of run.workers) void w.thread.terminate();
+  if (error) run.reject(error);
+  else run.resolve(interrupted);
+}
+
+/** Hands a free worker the next job; ends the run when interrupted, or when no job is left and every worker is idle. */
+function dispatch(run: Supervisor, slot: Slot): void {
+  if (run.finished) return;
+  if (run.options.signal?.aborted) return finish(run, true);
+  const job = run.pending.shift();
+  if (job) {
+    slot.job = job;
+    const message: WorkerJob = { unit: job.unit, from: job.from, skip: job.skip };
+    slot.thread.postMessage(message);
+  } else if ([...run.workers].every((w) => w.job === null)) {
+    finish(run, false);
+  }
+}
+
+/**
+ * The estimate a dead worker was running, else the one blamed for a callback it scheduled, else the last
+ * one it started; 'other unit' when the blame falls on a unit already finished (a late callback).
+ */
+function culprit(slot: Slot, unit: Unit): { series: number; replicate: number } | 'other unit' | null {
+  if (slot.slots[0] >= 0) return { series: slot.slots[0], replicate: slot.slots[1] };
+  if (slot.slots[2] >= 0) return slot.slots[4] === unit.index ? { series: slot.slots[2], replicate: slot.slots[3] } : 'other unit';
+  return null;
+}
+
+/** The estimates a worker's death is charged to: the culprit, or, when nothing was running, every estimate of the replicate in flight. */
+function failedEstimates(run: Supervisor, slot: Slot, job: Job, reason: string): { series: number; replicate: number }[] {
+  const blamed = culprit(slot, job.unit);
+  if (blamed === 'other unit') {
+    // A late callback of a unit already recorded cannot be charged any more; this unit runs on, unharmed.
+    run.options.onWarning?.(`an error from an estimate of an earlier unit arrived late and stopped a worker: ${reason}`);
+    return [];
+  }
+  if (blamed) return [blamed];
+  // Nothing was running (the sample itself, say): every estimate of the replicate in flight fails.
+  return job.unit.series.map((_s, series) => ({ series, replicate: job.from }));
+}
+
+/** Records each failed estimate once, with its reason, and has the job's next worker skip it. */
+function chargeFailures(job: Job, failed: { series: number; replicate: number }[], reason: string): void {
+  for (const f of failed) {
+    if (job.skip.some((s) => s.series === f.series && s.replicate === f.replicate)) continue;
+    job.skip.push(f);
+    job.result.estimates[f.series][f.replicate - job.unit.repStart] = NaN;
+    job.result.failures.push({ series: f.series, replicate: f.replicate, message: reason });
+  }
+}
+
+/** A worker died: at start-up that ends the run; else its culprit fails, its job goes back first, and a fresh worker replaces it. */
+function onDeath(run: Supervisor, slot: Slot, reason: string): void {
+  if (slot.dead || run.finished) return;
+  slot.dead = true;
+  run.workers.delete(slot);
+  if (!slot.ready) {
+    // The first workers fail to start on what the user gave (a module that does not load); a replacement
+    // for a worker that died, after others started fine, fails on the machine (memory, threads).
+    finish(run, false, run.everReady ? new EnvironmentError(`a replacement worker thread could not start: ${reason}`) : new UsageError(`a worker thread could not start: ${reason}`));
+    return;
+  }
+  const job = slot.job;
+  if (job) {
+    job.deaths++;
+    const unit = job.unit;
+    chargeFailures(job, failedEstimates(run, slot, job, reason), reason);
+    if (job.deaths > unit.series.length * (unit.repEnd - unit.repStart) + 1) {
+      finish(run, false, new EnvironmentError(`worker threads kept dying on the draws of ${run.plan.scenarios[unit.scenario]} at n = ${unit.n} (last: ${reason}); the finished units are kept in the checkpoint`));
+      return;
+    }
+    run.pending.unshift(job);
+  }
+  startWorker(run);
+}
+
+/** Follows a worker's messages: ready (give it work), a replicate (keep it), its unit done (report it, give it more). */
+function onMessage(run: Supervisor, slot: Slot, message: WorkerMessage): void {
+  if (run.finished || slot.dead) return;
+  if (message.kind === 'ready') {
+    slot.ready = true;
+    run.everReady = true;
+    dispatch(run, slot);
+  } else if (message.kind === 'replicate') {
+    const job = slot.job!;
+    const result = message.result;
+    // Estimates recorded as failures here stay failures (the worker skipped them and reports NaN).
+    addReplicate(job.unit, job.result, result);
+    job.from = result.replicate + 1;
+  } else {
+    const job = slot.job!;
+    slot.job = null;
+    job.result.failures.sort((a, b) => a.replicate - b.replicate || a.series - b.series);
+    try {
+      run.options.onResult(job.result);
+    } catch (error) {
+      finish(run, false, error);
+      return;
+    }
+    dispatch(run, slot);
+  }
+}
+
+/** The failure reason of a worker's 'error' event: its heap limit, or an error that escaped the estimator. */
+function errorReason(plan: Plan, error: Error & { code?: string }): string {
+  return error.code === 'ERR_WORKER_OUT_OF_MEMORY'
+    ? `out of memory: the worker's heap passed its limit of ${plan.limits.workerMemoryMiB} MiB (plan limits.workerMemoryMiB)`
+    : `an error escaped the estimator (thrown asynchronously or while loading): ${error.message.split('\n')[0]}`;
+}
+
+/** Starts a worker thread with its marker and heap limit, and supervises it until it dies. */
+function startWorker(run: Supervisor): void {
+  if (run.finished) return;
+  const { plan } = run;
+  const marker = newMarker();
+  const { slots, clock } = markerViews(marker);
+  const thread = new Worker(run.options.entry, {
+    workerData: { plan, marker },
+    resourceLimits: { maxOldGenerationSizeMb: plan.limits.workerMemoryMiB },
+  });
+  const slot: Slot = { thread, slots, clock, ready: false, job: null, stopReason: null, dead: false };
+  run.workers.add(slot);
+  thread.on('message', (message: WorkerMessage) => onMessage(run, slot, message));
+  thread.on('error', (error: Error & { code?: string }) => onDeath(run, slot, errorReason(plan, error)));
+  thread.on('exit', (code) => {
+    onDeath(run, slot, slot.stopReason ?? `the estimator ended its worker thread (exit code ${code})`);
+  });
+}
+
+/** When the process passes its memory limit, stops the estimate running longest: the likeliest hoarder, whose thread's memory is freed. */
+function stopMemoryHoarder(run: Supervisor, processLimitBytes: number): void {
+  if (process.memoryUsage.rss() <= processLimitBytes) return;
+  const running = [...run.workers].filter((w) => w.job && w.slots[0] >= 0 && !w.stopReason).sort((a, b) => a.clock[0] - b.clock[0]);
+  if (running.length) {
+    running[0].stopReason = `out of memory: the process passed ${Math.round(processLimitBytes / 2 ** 20)} MiB while this estimate ran (plan limits.workerMemoryMiB per worker; typed arrays count here, outside the worker's heap)`;
+    void running[0].thread.terminate();
+  }
+}
+
+/** Stops every worker whose running estimate has passed its time limit at the unit's n. */
+function stopOverdue(run: Supervisor, now: number): void {
+  for (const slot of run.workers) {
+    if (!slot.job || slot.slots[0] < 0 || slot.stopReason) continue;
+    const limit = estimateTimeLimit(run.plan.limits, slot.job.unit.n);
+    if (now - slot.clock[0] > limit * 1000) {
+      slot.stopReason = `timed out after ${+limit.toPrecision(3)} s (the limit at n = ${slot.job.unit.n}: plan limits.estimateSeconds + estimateSecondsPerPoint × n)`;
+      void slot.thread.terminate();
+    }
+  }
+}
+
 /** Resolves to true when the run was interrupted (signal), false when every unit finished. */
 export function runOnPool(plan: Plan, units: Unit[], options: PoolOptions): Promise<boolean> {
   return new Promise((resolve, reject) => {
-    const pending: Job[] = units.map((unit) => ({ unit, from: unit.repStart, skip: [], result: emptyUnitResult(unit), deaths: 0 }));
-    const workers = new Set<Slot>();
-    let finished = false;
-    // eslint-disable-next-line prefer-const -- finish() below may run before the watchdog is started
-    let watchdog: ReturnType<typeof setInterval> | undefined;
-
-    const finish = (interrupted: boolean, error?: unknown) => {
-      if (finished) return;
-      finished = true;
-      if (watchdog) clearInterval(watchdog);
-      for (const w of workers) void w.thread.terminate();
-      // eslint-disable-next-line @typescript-eslint/prefer-promise-reject-errors -- a worker's error is passed on as it came
-      if (error) reject(error);
-      else resolve(interrupted);
+    const run: Supervisor = {
+      plan,
+      options,
+      pending: units.map((unit) => ({ unit, from: unit.repStart, skip: [], result: emptyUnitResult(unit), deaths: 0 })),
+      workers: new Set<Slot>(),
+      finished: false,
+      everReady: false,
+      watchdog: undefined,
+      resolve,
+      reject,
     };
-
-    let everReady = false;
-    const dispatch = (slot: Slot) => {
-      if (finished) return;
-      if (options.signal?.aborted) return finish(true);
-      const job = pending.shift();
-      if (job) {
-        slot.job = job;
-        const message: WorkerJob = { unit: job.unit, from: job.from, skip: job.skip };
-        slot.thread.postMessage(message);
-      } else if ([...workers].every((w) => w.job === null)) {
-        finish(false);
-      }
-    };
-
-    /**
-     * The estimate a dead worker was running, else the one blamed for a callback it scheduled, else the last
-     * one it started; 'other unit' when the blame falls on a unit already finished (a late callback).
-     */
-    const culprit = (slot: Slot, unit: Unit): { series: number; replicate: number } | 'other unit' | null => {
-      if (slot.slots[0] >= 0) return { series: slot.slots[0], replicate: slot.slots[1] };
-      if (slot.slots[2] >= 0) return slot.slots[4] === unit.index ? { series: slot.slots[2], replicate: slot.slots[3] } : 'other unit';
-      return null;
-    };
-
-    const onDeath = (slot: Slot, reason: string) => {
-      if (slot.dead || finished) return;
-      slot.dead = true;
-      workers.delete(slot);
-      if (!slot.ready) {
-        // The first workers fail to start on what the user gave (a module that does not load); a replacement
-        // for a worker that died, after others started fine, fails on the machine (memory, threads).
-        finish(false, everReady ? new EnvironmentError(`a replacement worker thread could not start: ${reason}`) : new UsageError(`a worker thread could not start: ${reason}`));
-        return;
-      }
-      const job = slot.job;
-      if (job) {
-        job.deaths++;
-        const unit = job.unit;
-        const blamed = culprit(slot, unit);
-        // A late callback of a unit already recorded cannot be charged any more; this unit runs on, unharmed.
-        if (blamed === 'other unit') options.onWarning?.(`an error from an estimate of an earlier unit arrived late and stopped a worker: ${reason}`);
-        const failed =
-          blamed === 'other unit'
-            ? []
-            : blamed
-              ? [blamed]
-              : // Nothing was running (the sample itself, say): every estimate of the replicate in flight fails.
-                unit.series.map((_s, series) => ({ series, replicate: job.from }));
-        for (const f of failed) {
-          if (job.skip.some((s) => s.series === f.series && s.replicate === f.replicate)) continue;
-          job.skip.push(f);
-          job.result.estimates[f.series][f.replicate - unit.repStart] = NaN;
-          job.result.failures.push({ series: f.series, replicate: f.replicate, message: reason });
-        }
-        if (job.deaths > unit.series.length * (unit.repEnd - unit.repStart) + 1) {
-          finish(false, new EnvironmentError(`worker threads kept dying on the draws of ${plan.scenarios[unit.scenario]} at n = ${unit.n} (last: ${reason}); the finished units are kept in the checkpoint`));
-          return;
-        }
-        pending.unshift(job);
-      }
-      start();
-    };
-
-    const start = () => {
-      if (finished) return;
-      const marker = newMarker();
-      const { slots, clock } = markerViews(marker);
-      const thread = new Worker(options.entry, {
-        workerData: { plan, marker },
-        resourceLimits: { maxOldGenerationSizeMb: plan.limits.workerMemoryMiB },
-      });
-      const slot: Slot = { thread, slots, clock, ready: false, job: null, stopReason: null, dead: false };
-      workers.add(slot);
-      thread.on('message', (message: WorkerMessage) => {
-        if (finished || slot.dead) return;
-        if (message.kind === 'ready') {
-          slot.ready = true;
-          everReady = true;
-          dispatch(slot);
-        } else if (message.kind === 'replicate') {
-          const job = slot.job!;
-          const result = message.result;
-          // Estimates recorded as failures here stay failures (the worker skipped them and reports NaN).
-          addReplicate(job.unit, job.result, result);
-          job.from = result.replicate + 1;
-        } else {
-          const job = slot.job!;
-          slot.job = null;
-          job.result.failures.sort((a, b) => a.replicate - b.replicate || a.series - b.series);
-          try {
-            options.onResult(job.result);
-          } catch (error) {
-            finish(false, error);
-            return;
-          }
-          dispatch(slot);
-        }
-      });
-      thread.on('error', (error: Error & { code?: string }) => {
-        const reason =
-          error.code === 'ERR_WORKER_OUT_OF_MEMORY'
-            ? `out of memory: the worker's heap passed its limit of ${plan.limits.workerMemoryMiB} MiB (plan limits.workerMemoryMiB)`
-            : `an error escaped the estimator (thrown asynchronously or while loading): ${error.message.split('\n')[0]}`;
-        onDeath(slot, reason);
-      });
-      thread.on('exit', (code) => {
-        onDeath(slot, slot.stopReason ?? `the estimator ended its worker thread (exit code ${code})`);
-      });
-    };
-
-    options.signal?.addEventListener('abort', () => finish(true), { once: true });
+    options.signal?.addEventListener('abort', () => finish(run, true), { once: true });
     // Typed arrays live outside a worker's heap, so its heap limit cannot stop an estimator that hoards them:
     // the process as a whole is held to the workers' limits plus room for the supervisor.
     const processLimitBytes = processMemoryLimitBytes(options.size, plan.limits.workerMemoryMiB);
-    watchdog = setInterval(() => {
+    run.watchdog = setInterval(() => {
       const now = Date.now();
-      if (process.memoryUsage.rss() > processLimitBytes) {
-        // The estimate running longest is the likeliest hoarder; stopping it frees its thread's memory.
-        const running = [...workers].filter((w) => w.job && w.slots[0] >= 0 && !w.stopReason).sort((a, b) => a.clock[0] - b.clock[0]);
-        if (running.length) {
-          running[0].stopReason = `out of memory: the process passed ${Math.round(processLimitBytes / 2 ** 20)} MiB while this estimate ran (plan limits.workerMemoryMiB per worker; typed arrays count here, outside the worker's heap)`;
-          void running[0].thread.terminate();
-        }
-      }
-      for (const slot of workers) {
-        if (!slot.job || slot.slots[0] < 0 || slot.stopReason) continue;
-        const limit = estimateTimeLimit(plan.limits, slot.job.unit.n);
-        if (now - slot.clock[0] > limit * 1000) {
-          slot.stopReason = `timed out after ${+limit.toPrecision(3)} s (the limit at n = ${slot.job.unit.n}: plan limits.estimateSeconds + estimateSecondsPerPoint × n)`;
-          void slot.thread.terminate();
-        }
-      }
+      stopMemoryHoarder(run, processLimitBytes);
+      stopOverdue(run, now);
     }, options.watchInterval ?? 200);
-    if (!pending.length) return finish(false);
-    for (let i = 0; i < Math.max(1, Math.min(options.size, pending.length)); i++) start();
+    if (!run.pending.length) return finish(run, false);
+    for (let i = 0; i < Math.max(1, Math.min(options.size, run.pending.length)); i++) startWorker(run);
   });
 }

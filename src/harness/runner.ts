@@ -8,7 +8,7 @@ import { EnvironmentError, UsageError } from '../core/errors.js';
 import { buildContext } from './context.js';
 import { codeDifference, planCode, planFingerprint, type Plan, type PlanCode } from './plan.js';
 import { describeFileError, openAppender, writeFileAtomic, type Appender } from '../core/files.js';
-import { executeUnit, planUnits, type Skip, type Unit, type UnitResult } from './work.js';
+import { executeUnit, planUnits, type Skip, type Unit, type UnitResult, type WorkContext } from './work.js';
 import { runOnPool } from './pool.js';
 import { inProcessOnlyIds } from '../../estimators/index.js';
 
@@ -194,59 +194,67 @@ function workerEntry(): URL {
   return import.meta.url.endsWith('.ts') ? new URL('./dev-worker.mjs', import.meta.url) : new URL('./worker.js', import.meta.url);
 }
 
-export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<RunOutcome> {
-  const started = performance.now();
-  const context = buildContext(plan);
-  if (options.isolation !== 'in-process') {
-    const unseen = inProcessOnlyIds(context.all.map((c) => c.estimator.id));
-    if (unseen.length) {
-      throw new UsageError(
-        `${unseen.map((id) => `"${id}"`).join(', ')} ${unseen.length === 1 ? 'was' : 'were'} registered in this process by code, which worker threads cannot see (they would fail, or run the built-in of that id); load ${unseen.length === 1 ? 'it' : 'them'} from a module file, or run with isolation 'in-process'`,
-      );
-    }
-  }
-  // Digesting the code reads every file of hhat and of the modules: once per run.
-  const code = planCode(context.plan);
-  const fingerprint = planFingerprint(context.plan, code);
-  const { units, skipped } = planUnits(context);
-  if (!units.length) {
-    // An empty run file would read as a finished benchmark; nothing was measured, so say why.
-    const first = skipped[0];
+/** Refuses estimators registered by code in this process when units run on worker threads, which cannot see them. */
+function refuseUnseenOnThreads(context: WorkContext, isolation: RunOptions['isolation']): void {
+  if (isolation === 'in-process') return;
+  const unseen = inProcessOnlyIds(context.all.map((c) => c.estimator.id));
+  if (unseen.length) {
     throw new UsageError(
-      `the plan has no cells to run: every estimator–scenario pair is skipped${first ? ` (on ${first.scenario}: ${first.reason})` : ''}; \`hhat scenarios\` and \`hhat estimators\` list dimensions`,
+      `${unseen.map((id) => `"${id}"`).join(', ')} ${unseen.length === 1 ? 'was' : 'were'} registered in this process by code, which worker threads cannot see (they would fail, or run the built-in of that id); load ${unseen.length === 1 ? 'it' : 'them'} from a module file, or run with isolation 'in-process'`,
     );
   }
-  const owned = shardUnits(units, options.shard);
-  const shard = options.shard ?? null;
+}
 
-  const results = new Map<number, UnitResult>();
-  let sessions: Session[] = [];
-  let appender: Appender | null = null;
+/** Refuses a plan with no units: an empty run file would read as a finished benchmark, so say why nothing runs. */
+function refuseEmptyPlan(units: Unit[], skipped: Skip[]): void {
+  if (units.length) return;
+  const first = skipped[0];
+  throw new UsageError(
+    `the plan has no cells to run: every estimator–scenario pair is skipped${first ? ` (on ${first.scenario}: ${first.reason})` : ''}; \`hhat scenarios\` and \`hhat estimators\` list dimensions`,
+  );
+}
+
+interface OpenedCheckpoint {
+  /** The owned units the checkpoint already holds (empty without --resume). */
+  restored: Map<number, UnitResult>;
+  /** Its earlier sessions. */
+  sessions: Session[];
+  appender: Appender | null;
+}
+
+/** Opens the checkpoint for appending: restores its owned units on resume, refuses a started one otherwise, writes a missing header. */
+function openCheckpoint(options: RunOptions, owned: number[], fingerprint: string, shard: Shard | null, code: PlanCode): OpenedCheckpoint {
+  const restored = new Map<number, UnitResult>();
+  if (!options.checkpointPath) return { restored, sessions: [], appender: null };
+  const path = options.checkpointPath;
   const hint = options.checkpointHint;
-  if (options.checkpointPath) {
-    const path = options.checkpointPath;
-    const started = checkpointStarted(path);
-    let needsHeader = true;
-    if (options.resume && started) {
-      const ownedSet = new Set(owned);
-      const loaded = loadCheckpoint(path, fingerprint, shard, code);
-      for (const [k, v] of loaded.done) if (ownedSet.has(k)) results.set(k, v);
-      sessions = loaded.sessions;
-      needsHeader = !loaded.hasHeader;
-    } else if (!options.resume && started) {
-      throw new UsageError(`${path} exists from an interrupted run; add --resume to continue it, or delete it to start over`);
-    }
-    if (needsHeader) {
-      // Written whole and renamed into place: a checkpoint is never empty or headless, even after a crash here.
-      const header: CheckpointHeader = { kind: 'hhat-checkpoint', version: 2, fingerprint, shard, code };
-      writeFileAtomic(path, `${JSON.stringify(header)}\n`, hint);
-    }
-    appender = openAppender(path, hint);
+  const started = checkpointStarted(path);
+  let sessions: Session[] = [];
+  let needsHeader = true;
+  if (options.resume && started) {
+    const ownedSet = new Set(owned);
+    const loaded = loadCheckpoint(path, fingerprint, shard, code);
+    for (const [k, v] of loaded.done) if (ownedSet.has(k)) restored.set(k, v);
+    sessions = loaded.sessions;
+    needsHeader = !loaded.hasHeader;
+  } else if (!options.resume && started) {
+    throw new UsageError(`${path} exists from an interrupted run; add --resume to continue it, or delete it to start over`);
   }
-  const resumedUnits = results.size;
+  if (needsHeader) {
+    // Written whole and renamed into place: a checkpoint is never empty or headless, even after a crash here.
+    const header: CheckpointHeader = { kind: 'hhat-checkpoint', version: 2, fingerprint, shard, code };
+    writeFileAtomic(path, `${JSON.stringify(header)}\n`, hint);
+  }
+  return { restored, sessions, appender: openAppender(path, hint) };
+}
 
-  // Cells are (scenario, n) groups × estimators; a group is done when all its owned units are.
-  const groupOf = (u: Unit) => `${u.scenario}|${u.n}`;
+/** The (scenario, n) group of a unit: its cells are the group's estimators, done when all its owned units are. */
+function groupOf(u: Unit): string {
+  return `${u.scenario}|${u.n}`;
+}
+
+/** Owned units per group and cells (estimators) per group, for counting finished cells. */
+function cellGroups(units: Unit[], owned: number[]): { groupUnits: Map<string, number>; groupEstimators: Map<string, number> } {
   const groupUnits = new Map<string, number>();
   const groupEstimators = new Map<string, number>();
   for (const i of owned) {
@@ -254,6 +262,31 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
     groupUnits.set(groupOf(u), (groupUnits.get(groupOf(u)) ?? 0) + 1);
     groupEstimators.set(groupOf(u), u.series.length);
   }
+  return { groupUnits, groupEstimators };
+}
+
+/** Failures of the plan's own estimators in a result; robustness variants fail by design (ties after rounding). */
+function planFailures(u: Unit, result: UnitResult, planEstimators: number): number {
+  return result.failures.filter((f) => u.series[f.series].variant === 0 && u.series[f.series].estimator < planEstimators).length;
+}
+
+interface Bookkeeping {
+  units: Unit[];
+  owned: number[];
+  /** How many of the context's estimators are the plan's own (the rest are tuning points). */
+  planEstimators: number;
+  /** Finished units, filled in as they are recorded. */
+  results: Map<number, UnitResult>;
+  appender: Appender | null;
+  /** performance.now() when the run started. */
+  started: number;
+  onProgress?: (progress: Progress) => void;
+}
+
+/** Records finished units: counts cells, failures and cost, appends fresh results to the checkpoint, reports progress. */
+function progressRecorder(book: Bookkeeping): (result: UnitResult, fresh: boolean) => void {
+  const { units, owned, results, started } = book;
+  const { groupUnits, groupEstimators } = cellGroups(units, owned);
   const groupDone = new Map<string, number>();
   let cellsDone = 0;
   let failures = 0;
@@ -261,22 +294,21 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   const costTotal = owned.reduce((s, i) => s + units[i].cost, 0);
   let costDoneThisRun = 0;
   const cellsTotal = [...groupEstimators.values()].reduce((a, b) => a + b, 0);
-  const record = (result: UnitResult, fresh: boolean) => {
+  return (result, fresh) => {
     results.set(result.unit, result);
     const u = units[result.unit];
     const g = groupOf(u);
     const count = (groupDone.get(g) ?? 0) + 1;
     groupDone.set(g, count);
     if (count === groupUnits.get(g)) cellsDone += groupEstimators.get(g)!;
-    // Progress counts failures of the plan's own estimators; robustness variants fail by design (ties after rounding).
-    failures += result.failures.filter((f) => u.series[f.series].variant === 0 && u.series[f.series].estimator < context.estimators.length).length;
+    failures += planFailures(u, result, book.planEstimators);
     costDone += u.cost;
     if (fresh) {
       costDoneThisRun += u.cost;
-      appender?.append(serialiseResult(result));
+      book.appender?.append(serialiseResult(result));
     }
     const elapsedMs = performance.now() - started;
-    options.onProgress?.({
+    book.onProgress?.({
       unitsDone: results.size,
       unitsTotal: owned.length,
       cellsDone,
@@ -286,41 +318,78 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
       remainingMs: costDoneThisRun > 0 ? (elapsedMs * (costTotal - costDone)) / costDoneThisRun : null,
     });
   };
-  for (const r of [...results.values()]) {
+}
+
+/** The owned units not yet finished, largest first, so the last units to finish are small ones and workers idle least. */
+function pendingUnits(units: Unit[], owned: number[], results: Map<number, UnitResult>): Unit[] {
+  const pending = owned.filter((i) => !results.has(i)).map((i) => units[i]);
+  pending.sort((a, b) => b.cost - a.cost || a.index - b.index);
+  return pending;
+}
+
+/** Runs units one by one on this thread, unsupervised; resolves to true when the signal stopped it. */
+async function runInProcess(pending: Unit[], context: WorkContext, record: (result: UnitResult) => void, signal?: AbortSignal): Promise<boolean> {
+  for (const unit of pending) {
+    if (signal?.aborted) return true;
+    record(executeUnit(unit, context));
+    // Yield so a signal handler can run between units.
+    await new Promise((resolve) => setImmediate(resolve));
+  }
+  return false;
+}
+
+/** Runs the pending units in process or on the supervised pool; resolves to true when the run was interrupted. */
+async function runPending(pending: Unit[], context: WorkContext, workers: number, options: RunOptions, record: (result: UnitResult) => void): Promise<boolean> {
+  if (options.isolation === 'in-process') return runInProcess(pending, context, record, options.signal);
+  if (!pending.length) return false;
+  return runOnPool(context.plan, pending, { size: workers, entry: workerEntry(), onResult: record, signal: options.signal, onWarning: options.onWarning });
+}
+
+/** Appends the session's line (workers, wall time, units) to the checkpoint and closes it. */
+function closeCheckpoint(appender: Appender | null, session: Session): void {
+  try {
+    appender?.append(JSON.stringify({ session }));
+  } catch {
+    // The units are saved; a lost session line only makes the reported wall time short.
+  }
+  appender?.close();
+}
+
+/** Runs the plan's owned units (after the checkpoint's, on resume) and returns their results with this session's record. */
+export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<RunOutcome> {
+  const started = performance.now();
+  const context = buildContext(plan);
+  refuseUnseenOnThreads(context, options.isolation);
+  // Digesting the code reads every file of hhat and of the modules: once per run.
+  const code = planCode(context.plan);
+  const fingerprint = planFingerprint(context.plan, code);
+  const { units, skipped } = planUnits(context);
+  refuseEmptyPlan(units, skipped);
+  const owned = shardUnits(units, options.shard);
+  const checkpoint = openCheckpoint(options, owned, fingerprint, options.shard ?? null, code);
+  const { appender } = checkpoint;
+  const resumedUnits = checkpoint.restored.size;
+
+  const results = new Map(checkpoint.restored);
+  const record = progressRecorder({ units, owned, planEstimators: context.estimators.length, results, appender, started, onProgress: options.onProgress });
+  // Restored units go through the recorder for the counts; the others stay in `results` meanwhile, so every
+  // progress report counts all of them as done.
+  for (const r of checkpoint.restored.values()) {
     results.delete(r.unit);
     record(r, false);
   }
 
-  const pending = owned.filter((i) => !results.has(i)).map((i) => units[i]);
-  // Largest first, so the last units to finish are small ones and workers idle least.
-  pending.sort((a, b) => b.cost - a.cost || a.index - b.index);
+  const pending = pendingUnits(units, owned, results);
   const workers = Math.max(1, Math.min(options.workers ?? defaultWorkers(), pending.length || 1));
   let interrupted = false;
-
   const freshBefore = results.size;
+  let sessions = checkpoint.sessions;
   try {
-    if (options.isolation === 'in-process') {
-      for (const unit of pending) {
-        if (options.signal?.aborted) {
-          interrupted = true;
-          break;
-        }
-        record(executeUnit(unit, context), true);
-        // Yield so a signal handler can run between units.
-        await new Promise((resolve) => setImmediate(resolve));
-      }
-    } else if (pending.length) {
-      interrupted = await runOnPool(context.plan, pending, { size: workers, entry: workerEntry(), onResult: (r) => record(r, true), signal: options.signal, onWarning: options.onWarning });
-    }
+    interrupted = await runPending(pending, context, workers, options, (r) => record(r, true));
   } finally {
     const session: Session = { workers, wallSeconds: (performance.now() - started) / 1000, units: results.size - freshBefore };
     sessions = [...sessions, session];
-    try {
-      appender?.append(JSON.stringify({ session }));
-    } catch {
-      // The units are saved; a lost session line only makes the reported wall time short.
-    }
-    appender?.close();
+    closeCheckpoint(appender, session);
   }
   return {
     plan: context.plan,

@@ -29,7 +29,7 @@ import { describeSeconds, largestRowsWhere, predictedReplicateSeconds, predicted
 import { defaultWorkers } from '../../harness/runner.js';
 import { seededRowSubsample } from '../../core/sample.js';
 import type { ValueWithSe } from '../score.js';
-import { applicableEstimators, DEFAULT_BUDGET_SECONDS, runTargeted } from './benchmark.js';
+import { applicableEstimators, DEFAULT_BUDGET_SECONDS, runTargeted, type TargetedBenchmark } from './benchmark.js';
 import { smoothedBootstrap, type BootstrapInterval } from './bootstrap.js';
 import { buildLookalike, type Lookalike } from './lookalike.js';
 import { COARSE_STEP, profileSample, type DataProfile } from './profile.js';
@@ -226,81 +226,88 @@ function allRowsEstimate(fileSample: Sample, chosen: ConfiguredEstimator, label:
   }
 }
 
-export async function adviseFile(fileSample: Sample, options: FileAdviceOptions = {}): Promise<FileAdvice> {
-  const started = performance.now() - 1000 * (options.elapsedBeforeSeconds ?? 0);
-  const elapsed = () => (performance.now() - started) / 1000;
-  const budget = options.budgetSeconds ?? DEFAULT_BUDGET_SECONDS;
-  const level = options.level === undefined ? 0.95 : options.level;
-  const seed = options.seed ?? DEFAULT_SEED;
-  const { dim } = fileSample;
-  const fileRows = fileSample.n;
+/** What the steps of one advice share: its settings, the clock and the stage reports. */
+interface AdviceContext {
+  options: FileAdviceOptions;
+  budget: number;
+  /** Interval coverage; null: no interval. */
+  level: number | null;
+  seed: number;
+  workers: number;
+  minimumReplicates: number;
+  stage: (text: string) => void;
+  /** Seconds since the advice started, reading the file included. */
+  elapsed: () => number;
+  /** Records the seconds since the previous lap under `name`. */
+  lap: (name: string) => void;
+}
+
+/** The estimator specs to compare, after refusing a file too small for advice or a dimension no estimator supports. */
+function adviceEstimators(fileSample: Sample, specs: string[] | undefined): string[] {
+  const { n: fileRows, dim } = fileSample;
   if (fileRows < 20) throw new UsageError(`the sample has ${fileRows} rows; advice needs at least 20 (a benchmark at smaller n says little)`);
   const degenerate = tooFewPoints(fileRows, dim);
   if (degenerate) throw new EstimateError('too-few-points', `no estimator is usable on this file: ${degenerate}`);
-  const names = options.columnNames ?? [];
-  const stage = options.onStage ?? (() => {});
-  const estimators = options.estimators?.map((s) => parseEstimatorSpec(s).spec) ?? applicableEstimators(dim);
+  const estimators = specs?.map((s) => parseEstimatorSpec(s).spec) ?? applicableEstimators(dim);
   if (!estimators.length) throw new UsageError(`no entropy estimator supports d = ${dim}`);
+  return estimators;
+}
 
-  // A file larger than the budget can benchmark is analysed on a seeded uniform subsample (see the file comment).
-  const workers = Math.max(1, options.workers ?? defaultWorkers());
-  const minimumReplicates = options.replicates ?? options.minReplicates ?? 20;
-  const rows = analysisRows(fileRows, dim, estimators, budget, workers, minimumReplicates, level === null ? 0 : options.resamples ?? options.minResamples ?? 100);
-  let subsample: AdviceSubsample | null = null;
-  let sample = fileSample;
-  if (rows < fileRows) {
-    const perReplicate = predictedReplicateSeconds(estimators.map((spec) => parseEstimatorSpec(spec)), fileRows, dim);
-    const cost = `one replicate of the ${estimators.length} estimators at n = ${fileRows} would take about ${describeSeconds(perReplicate)} by the cost model, and the benchmark needs ${minimumReplicates}; within the ${budget} s budget on ${workers} worker${workers === 1 ? '' : 's'}`;
-    if (rows < FEWEST_ANALYSIS_ROWS) {
-      // Within the rows that matter here the benchmark's cost grows at most like n² (a d ≥ 2 kernel sum).
-      const needed = Math.ceil(budget * Math.pow(FEWEST_ANALYSIS_ROWS / Math.max(rows, 1), 2));
-      const remedy = needed <= MAX_BUDGET_SECONDS ? `give --budget ${needed} or more` : `no --budget up to ${MAX_BUDGET_SECONDS} s covers it; select fewer columns`;
-      throw new UsageError(`--budget ${budget} is too small for this file: ${cost}, not even ${FEWEST_ANALYSIS_ROWS} rows fit; ${remedy}`);
-    }
-    const reason = `${cost}, they and the bootstrap's resamples fit at n = ${rows}`;
-    subsample = { rows, of: fileRows, seed, reason };
-    sample = seededRowSubsample(fileSample, rows, `hhat-advise\n${seed}`);
-  }
-  const { n } = sample;
-
+/** Seconds per stage, each lap the time since the previous one; the seconds spent reading the file count as 'read'. */
+function stageTimer(elapsed: () => number, elapsedBeforeSeconds: number | undefined): { timings: Record<string, number>; lap: (name: string) => void } {
   const timings: Record<string, number> = {};
   let mark = 0;
+  if (elapsedBeforeSeconds) {
+    timings.read = elapsedBeforeSeconds;
+    mark = elapsedBeforeSeconds;
+  }
   const lap = (name: string) => {
     timings[name] = elapsed() - mark;
     mark = elapsed();
   };
-  if (options.elapsedBeforeSeconds) {
-    timings.read = options.elapsedBeforeSeconds;
-    mark = options.elapsedBeforeSeconds;
-  }
-  if (subsample) lap('subsample');
-  stage('profiling the sample');
-  const profile = profileSample(sample, names);
-  lap('profile');
-  stage('fitting the look-alike (EM, K chosen by BIC)');
-  const lookalike = buildLookalike(sample, { seed: `${seed}`, maxComponents: options.maxComponents, columnNames: profile.columns.map((c) => c.name) });
-  lap('lookalike');
+  return { timings, lap };
+}
 
-  stage('benchmarking estimators on look-alike draws');
-  const bench = await runTargeted({
+/** The file's rows, or a seeded subsample of as many as the budget can benchmark; refuses fewer than FEWEST_ANALYSIS_ROWS. */
+function analysedSample(ctx: AdviceContext, fileSample: Sample, estimators: string[]): { sample: Sample; subsample: AdviceSubsample | null } {
+  const { budget, workers, minimumReplicates, seed, options } = ctx;
+  const { n: fileRows, dim } = fileSample;
+  const rows = analysisRows(fileRows, dim, estimators, budget, workers, minimumReplicates, ctx.level === null ? 0 : options.resamples ?? options.minResamples ?? 100);
+  if (rows >= fileRows) return { sample: fileSample, subsample: null };
+  const perReplicate = predictedReplicateSeconds(estimators.map((spec) => parseEstimatorSpec(spec)), fileRows, dim);
+  const cost = `one replicate of the ${estimators.length} estimators at n = ${fileRows} would take about ${describeSeconds(perReplicate)} by the cost model, and the benchmark needs ${minimumReplicates}; within the ${budget} s budget on ${workers} worker${workers === 1 ? '' : 's'}`;
+  if (rows < FEWEST_ANALYSIS_ROWS) {
+    // Within the rows that matter here the benchmark's cost grows at most like n² (a d ≥ 2 kernel sum).
+    const needed = Math.ceil(budget * Math.pow(FEWEST_ANALYSIS_ROWS / Math.max(rows, 1), 2));
+    const remedy = needed <= MAX_BUDGET_SECONDS ? `give --budget ${needed} or more` : `no --budget up to ${MAX_BUDGET_SECONDS} s covers it; select fewer columns`;
+    throw new UsageError(`--budget ${budget} is too small for this file: ${cost}, not even ${FEWEST_ANALYSIS_ROWS} rows fit; ${remedy}`);
+  }
+  const reason = `${cost}, they and the bootstrap's resamples fit at n = ${rows}`;
+  return { sample: seededRowSubsample(fileSample, rows, `hhat-advise\n${seed}`), subsample: { rows, of: fileRows, seed, reason } };
+}
+
+/** The targeted benchmark on look-alike draws at the analysed n, within the benchmark's share of what is left of the budget. */
+async function benchmarkLookalike(ctx: AdviceContext, lookalike: Lookalike, estimators: string[], n: number, dim: number): Promise<TargetedBenchmark> {
+  const { budget, level, elapsed } = ctx;
+  ctx.stage('benchmarking estimators on look-alike draws');
+  return runTargeted({
     scenarios: [lookalike.spec],
     estimators,
     n,
     budgetSeconds: Math.max(0, budget - elapsed()) * (level === null ? 0.9 : BENCHMARK_SHARE),
-    seed,
-    workers,
-    isolation: options.isolation,
-    minReplicates: minimumReplicates,
-    maxReplicates: options.replicates,
+    seed: ctx.seed,
+    workers: ctx.workers,
+    isolation: ctx.options.isolation,
+    minReplicates: ctx.minimumReplicates,
+    maxReplicates: ctx.options.replicates,
     budget: { total: budget, spent: elapsed() },
     dim,
   });
-  const summaries = summarise(bench.run);
-  const recommendation = recommend(bench.run, summaries, 'look-alike');
-  lap('benchmark');
+}
 
-  stage('estimating your data');
-  const userEstimates: UserEstimate[] = summaries.map((s) => {
+/** Every benchmarked estimator on the analysed sample; a failure or a non-finite value is kept as null with its reason. */
+function estimateSample(summaries: EstimatorSummary[], sample: Sample): UserEstimate[] {
+  return summaries.map((s) => {
     try {
       const value = runEstimator(parseEstimatorSpec(s.estimator), sample).value;
       if (!Number.isFinite(value)) return { estimator: s.estimator, label: s.label, value: null, error: `the estimate is ${value}` };
@@ -309,12 +316,16 @@ export async function adviseFile(fileSample: Sample, options: FileAdviceOptions 
       return { estimator: s.estimator, label: s.label, value: null, error: error instanceof Error ? error.message : String(error) };
     }
   });
-  lap('estimates');
-  const command = `hhat advise --n ${n} --dim ${dim}`;
+}
+
+/** Notes on the analysis: what the look-alike cannot imitate, the subsample, and what the budget cut from the benchmark. */
+function analysisWarnings(ctx: AdviceContext, profile: DataProfile, lookalike: Lookalike, bench: TargetedBenchmark, subsample: AdviceSubsample | null, n: number): string[] {
+  const { budget, minimumReplicates } = ctx;
+  const command = `hhat advise --n ${n} --dim ${profile.dim}`;
   const warnings = profileWarnings(profile, lookalike, command);
   if (subsample) {
     warnings.unshift(
-      `your file has ${fileRows} rows; the advice above works on a seeded uniform subsample of ${rows} of them (seed ${seed}): ${subsample.reason}. The profile, look-alike, benchmark, estimates, interval and bias correction are all at n = ${rows}; raise --budget (or --workers) for a larger subsample.`,
+      `your file has ${subsample.of} rows; the advice above works on a seeded uniform subsample of ${subsample.rows} of them (seed ${ctx.seed}): ${subsample.reason}. The profile, look-alike, benchmark, estimates, interval and bias correction are all at n = ${subsample.rows}; raise --budget (or --workers) for a larger subsample.`,
     );
   }
   for (const cut of bench.cuts) warnings.push(`to fit the ${budget} s budget, left out ${cut}. Raise --budget to include them.`);
@@ -323,66 +334,140 @@ export async function adviseFile(fileSample: Sample, options: FileAdviceOptions 
     warnings.push(`the time budget covered fewer look-alike replicates than advice wants; ${bench.replicates} ran (${bench.wallSeconds.toFixed(1)} s), so the Monte-Carlo errors are large. Raise --budget for smaller ones.`);
   }
   if (lookalike.fittedPoints < n) warnings.push(`the look-alike was fitted on a random ${lookalike.fittedPoints} of the ${n} rows (EM time grows with n); the benchmark still runs at n = ${n}.`);
+  return warnings;
+}
 
-  // The recommended estimator, or the next by look-alike RMSE that works on these data; none when nothing is usable.
-  const recommended = recommendation.recommended;
+/** The recommended estimator, or the next by look-alike RMSE that works on these data; undefined when nothing is usable. */
+function usableEstimator(recommended: EstimatorSummary | null, summaries: EstimatorSummary[], userEstimates: UserEstimate[]): EstimatorSummary | undefined {
   const order = recommended ? [recommended, ...summaries.filter((s) => s !== recommended)] : [];
-  const usable = order.find((s) => userEstimates.find((u) => u.estimator === s.estimator)?.value !== null && s.failedScenarios === 0);
-  let estimate: FileAdvice['estimate'] = null;
-  let allRows: AllRowsEstimate | null = null;
+  return order.find((s) => userEstimates.find((u) => u.estimator === s.estimator)?.value !== null && s.failedScenarios === 0);
+}
+
+/** The note for a chosen estimator that ran on fewer than all of the file's rows; null when it ran on all (or has no cost model). */
+function allRowsNote(allRows: AllRowsEstimate, chosen: ConfiguredEstimator, fileSample: Sample): string | null {
+  const cost = predictedSeconds(chosen, fileSample.n, fileSample.dim);
+  if (allRows.rows >= fileSample.n || cost === null) return null;
+  return `${allRows.label} on all ${fileSample.n} rows would take about ${describeSeconds(cost)} by its cost model; within ${ALL_ROWS_SHARE * 100}% of the budget it ran on a seeded uniform subsample of ${allRows.rows} rows. Raise --budget for more.`;
+}
+
+/** The bootstrap interval within the rest of the budget; null, with a note, when even its minimum resamples would overrun it. */
+function bootstrapInterval(ctx: AdviceContext, level: number, sample: Sample, chosen: ConfiguredEstimator, label: string, value: number, warnings: string[]): BootstrapInterval | null {
+  const { options, budget, elapsed } = ctx;
+  const { n, dim } = sample;
+  const minResamples = options.resamples ?? options.minResamples ?? 100;
+  const bootstrapCost = predictedSeconds(chosen, n, dim);
+  const remaining = Math.max(0, budget - elapsed());
+  if (options.resamples === undefined && bootstrapCost !== null && minResamples * bootstrapCost > remaining * (1 + BOOTSTRAP_SLACK)) {
+    const needed = Math.ceil(elapsed() + minResamples * bootstrapCost * 1.3);
+    warnings.push(
+      `no interval: ${minResamples} bootstrap resamples of ${label} at n = ${n} would take about ${describeSeconds(minResamples * bootstrapCost)}, and ${describeSeconds(remaining)} of the budget is left; give --budget ${needed} or more for one.`,
+    );
+    return null;
+  }
+  ctx.stage('bootstrapping the interval');
+  // As many resamples as the rest of the budget allows, measured as they run: 100 at least, 2000 at most.
+  const remainingMs = Math.max(0, (budget - elapsed()) * 1000);
+  const interval = smoothedBootstrap(sample, chosen, value, {
+    resamples: options.resamples ?? Math.max(minResamples, MAX_RESAMPLES),
+    level,
+    seed: `${ctx.seed}`,
+    minResamples,
+    deadlineMs: options.resamples === undefined ? remainingMs : undefined,
+  });
+  ctx.lap('bootstrap');
+  if (interval.failures > 0.05 * (interval.resamples + interval.failures)) {
+    warnings.push(`${interval.failures} of ${interval.resamples + interval.failures} bootstrap resamples failed; the interval rests on the rest.`);
+  }
+  return interval;
+}
+
+/** The usable estimator's value, interval and bias correction, and with a subsample its value on more rows; null when none is usable. */
+function chosenEstimate(
+  ctx: AdviceContext,
+  fileSample: Sample,
+  sample: Sample,
+  subsample: AdviceSubsample | null,
+  recommended: EstimatorSummary | null,
+  summaries: EstimatorSummary[],
+  userEstimates: UserEstimate[],
+  warnings: string[],
+): { estimate: FileAdvice['estimate']; allRows: AllRowsEstimate | null } {
+  const usable = usableEstimator(recommended, summaries, userEstimates);
   if (!usable) {
     if (recommended) warnings.push('no estimator that works on the look-alike works on your data; see the errors beside each estimate.');
-  } else {
-    if (recommended && usable !== recommended) {
-      const failed = userEstimates.find((u) => u.estimator === recommended.estimator);
-      warnings.push(`${recommended.label} fails on your data (${failed?.error ?? 'no value'}); the estimate below uses ${usable.label}, next by look-alike RMSE.`);
-    }
-    const value = userEstimates.find((u) => u.estimator === usable.estimator)!.value!;
-    const bias = usable.scenarios[0].bias;
-    const chosen = parseEstimatorSpec(usable.estimator);
-    if (subsample) {
-      allRows = allRowsEstimate(fileSample, chosen, usable.label, budget, `hhat-advise-all\n${seed}`, stage);
-      lap('all rows');
-      const cost = predictedSeconds(chosen, fileRows, dim);
-      if (allRows.rows < fileRows && cost !== null) {
-        warnings.push(`${usable.label} on all ${fileRows} rows would take about ${describeSeconds(cost)} by its cost model; within ${ALL_ROWS_SHARE * 100}% of the budget it ran on a seeded uniform subsample of ${allRows.rows} rows. Raise --budget for more.`);
-      }
-    }
-    let interval: BootstrapInterval | null = null;
-    const minResamples = options.resamples ?? options.minResamples ?? 100;
-    const bootstrapCost = predictedSeconds(chosen, n, dim);
-    const remaining = Math.max(0, budget - elapsed());
-    if (level !== null && options.resamples === undefined && bootstrapCost !== null && minResamples * bootstrapCost > remaining * (1 + BOOTSTRAP_SLACK)) {
-      const needed = Math.ceil(elapsed() + minResamples * bootstrapCost * 1.3);
-      warnings.push(
-        `no interval: ${minResamples} bootstrap resamples of ${usable.label} at n = ${n} would take about ${describeSeconds(minResamples * bootstrapCost)}, and ${describeSeconds(remaining)} of the budget is left; give --budget ${needed} or more for one.`,
-      );
-    } else if (level !== null) {
-      stage('bootstrapping the interval');
-      // As many resamples as the rest of the budget allows, measured as they run: 100 at least, 2000 at most.
-      const remainingMs = Math.max(0, (budget - elapsed()) * 1000);
-      interval = smoothedBootstrap(sample, chosen, value, {
-        resamples: options.resamples ?? Math.max(minResamples, MAX_RESAMPLES),
-        level,
-        seed: `${seed}`,
-        minResamples,
-        deadlineMs: options.resamples === undefined ? remainingMs : undefined,
-      });
-      lap('bootstrap');
-      if (interval.failures > 0.05 * (interval.resamples + interval.failures)) {
-        warnings.push(`${interval.failures} of ${interval.resamples + interval.failures} bootstrap resamples failed; the interval rests on the rest.`);
-      }
-    }
-    estimate = {
-      estimator: usable.estimator,
-      label: usable.label,
-      value,
-      interval,
-      bias,
-      corrected: value - bias.value,
-      correctedInterval: interval ? { lower: interval.lower - bias.value, upper: interval.upper - bias.value } : null,
-    };
+    return { estimate: null, allRows: null };
   }
+  if (recommended && usable !== recommended) {
+    const failed = userEstimates.find((u) => u.estimator === recommended.estimator);
+    warnings.push(`${recommended.label} fails on your data (${failed?.error ?? 'no value'}); the estimate below uses ${usable.label}, next by look-alike RMSE.`);
+  }
+  const value = userEstimates.find((u) => u.estimator === usable.estimator)!.value!;
+  const bias = usable.scenarios[0].bias;
+  const chosen = parseEstimatorSpec(usable.estimator);
+  let allRows: AllRowsEstimate | null = null;
+  if (subsample) {
+    allRows = allRowsEstimate(fileSample, chosen, usable.label, ctx.budget, `hhat-advise-all\n${ctx.seed}`, ctx.stage);
+    ctx.lap('all rows');
+    const note = allRowsNote(allRows, chosen, fileSample);
+    if (note) warnings.push(note);
+  }
+  const interval = ctx.level === null ? null : bootstrapInterval(ctx, ctx.level, sample, chosen, usable.label, value, warnings);
+  const estimate = {
+    estimator: usable.estimator,
+    label: usable.label,
+    value,
+    interval,
+    bias,
+    corrected: value - bias.value,
+    correctedInterval: interval ? { lower: interval.lower - bias.value, upper: interval.upper - bias.value } : null,
+  };
+  return { estimate, allRows };
+}
+
+/** The advice on a file's sample, each step within its share of the budget (see the file comment). */
+export async function adviseFile(fileSample: Sample, options: FileAdviceOptions = {}): Promise<FileAdvice> {
+  const started = performance.now() - 1000 * (options.elapsedBeforeSeconds ?? 0);
+  const elapsed = () => (performance.now() - started) / 1000;
+  const budget = options.budgetSeconds ?? DEFAULT_BUDGET_SECONDS;
+  const level = options.level === undefined ? 0.95 : options.level;
+  const seed = options.seed ?? DEFAULT_SEED;
+  const { dim } = fileSample;
+  const fileRows = fileSample.n;
+  const estimators = adviceEstimators(fileSample, options.estimators);
+  const { timings, lap } = stageTimer(elapsed, options.elapsedBeforeSeconds);
+  const ctx: AdviceContext = {
+    options,
+    budget,
+    level,
+    seed,
+    workers: Math.max(1, options.workers ?? defaultWorkers()),
+    minimumReplicates: options.replicates ?? options.minReplicates ?? 20,
+    stage: options.onStage ?? (() => {}),
+    elapsed,
+    lap,
+  };
+
+  // A file larger than the budget can benchmark is analysed on a seeded uniform subsample (see the file comment).
+  const { sample, subsample } = analysedSample(ctx, fileSample, estimators);
+  const { n } = sample;
+  if (subsample) lap('subsample');
+  ctx.stage('profiling the sample');
+  const profile = profileSample(sample, options.columnNames ?? []);
+  lap('profile');
+  ctx.stage('fitting the look-alike (EM, K chosen by BIC)');
+  const lookalike = buildLookalike(sample, { seed: `${seed}`, maxComponents: options.maxComponents, columnNames: profile.columns.map((c) => c.name) });
+  lap('lookalike');
+
+  const bench = await benchmarkLookalike(ctx, lookalike, estimators, n, dim);
+  const summaries = summarise(bench.run);
+  const recommendation = recommend(bench.run, summaries, 'look-alike');
+  lap('benchmark');
+
+  ctx.stage('estimating your data');
+  const userEstimates = estimateSample(summaries, sample);
+  lap('estimates');
+  const warnings = analysisWarnings(ctx, profile, lookalike, bench, subsample, n);
+  const { estimate, allRows } = chosenEstimate(ctx, fileSample, sample, subsample, recommendation.recommended, summaries, userEstimates, warnings);
   return {
     n,
     dim,
