@@ -171,7 +171,7 @@ export function histogramGrid(sample: Sample, { bins, scale, width }: GridSettin
       throw new EstimateError('numeric', `${id}: the range of coordinate ${k + 1} overflows the double range; rescale the data`);
     }
     // A scaled rule keeps its scale-free count ratio, so rescaling the data still shifts by exactly d·log c.
-    const binCount = isRule ? Math.max(1, Math.round(ruleBinCount(bins as BinRule, values, range, dim, k) * scale)) : (bins as number);
+    const binCount = isRule ? Math.max(1, Math.round(ruleBinCount(bins, values, range, dim, k) * scale)) : (bins);
     if (!(binCount < MAX_EXACT_INTEGER)) {
       throw new EstimateError('numeric', `${id}: coordinate ${k + 1} would need 2^53 or more bins; use a bin count or width=W`);
     }

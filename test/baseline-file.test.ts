@@ -116,7 +116,7 @@ describe('compact baseline file', () => {
     expect(changed).toHaveLength(1);
     expect(changed[0]).toMatchObject({ scenario: cell.scenario, estimator: cell.estimator, n: cell.n, perturbation: null });
     // One replicate up by one ulp: the paired mean shift is that ulp over the replicate count (up to rounding of the mean).
-    const ulp = cell.estimates[3]! - before;
+    const ulp = cell.estimates[3] - before;
     expect(ulp).toBe(2 ** -52 * 2 ** Math.floor(Math.log2(before)));
     expect(Math.abs(changed[0].shift!.value - ulp / cell.estimates.length)).toBeLessThan(1e-9 * (ulp / cell.estimates.length));
     // One ulp is far within noise: not worse.

@@ -460,7 +460,7 @@ describe('each check fails, alone, on an estimator broken in that way', () => {
         try {
           return vasicek.estimate(sample, settings);
         } catch (error) {
-          throw new Error((error as Error).message);
+          throw new Error((error as Error).message, { cause: error });
         }
       },
     });

@@ -469,7 +469,7 @@ function cellVerdicts(e: CellEvidence): CellVerdicts {
   const significant = test !== null && test.p <= testLevel;
   const beyondTolerance = exceeds(Math.abs(e.changes.rmse.change), toleranceNats);
   const signBeyondTolerance = medianChange !== null && exceeds(Math.abs(medianChange), toleranceNats);
-  const mean = significant && beyondTolerance ? (test!.difference > 0 ? 'worse' : 'improved') : null;
+  const mean = significant && beyondTolerance ? (test.difference > 0 ? 'worse' : 'improved') : null;
   const signVerdict = sign && sign.p <= testLevel && signBeyondTolerance ? (sign.above > sign.below ? 'worse' : 'improved') : null;
   // Paired: which run failed on more of the same draws. Unpaired: which run's failure rate is higher (the runs may differ in size).
   const failedMore = paired ? failures.onlyNext! > failures.onlyBase! : failures.next / next.estimates.length > failures.base / base.estimates.length;

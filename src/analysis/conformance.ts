@@ -258,7 +258,7 @@ function measure(context: Context, base: Sample, cases: Case[], relative: number
 function invariance(context: Context, name: InvarianceName, dim: number, run: () => Measured): Omit<CheckResult, 'check'> {
   const reason = declaredException(context, name, dim);
   if (reason !== undefined) {
-    let measured = '';
+    let measured: string;
     let compared: Comparison | undefined;
     try {
       const result = run();
@@ -314,7 +314,7 @@ const configuredResolved: Body = (context) => {
   try {
     const given = estimator.resolve(cloneSample(context.base), { ...settings });
     if (given === null || typeof given !== 'object') throw new CheckFailed(`resolve ${describeReturned(given)}, not settings`);
-    resolved = validateSettings(estimator.id, estimator.settings, given as Record<string, SettingValue>);
+    resolved = validateSettings(estimator.id, estimator.settings, given);
   } catch (error) {
     if (error instanceof CheckFailed) throw error;
     throw new CheckFailed(`resolve on the sample: ${describeThrown(error)} (resolved settings must be settings the estimator accepts)`);

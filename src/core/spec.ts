@@ -185,6 +185,7 @@ export function showValue(value: unknown): string {
   if (Array.isArray(value)) return `[${value.map(showValue).join(', ')}]`;
   if (value === null) return 'null';
   if (typeof value === 'object') return 'an object';
+  // eslint-disable-next-line @typescript-eslint/no-base-to-string -- objects returned above; a boolean, bigint or symbol is left
   return String(value);
 }
 const show = showValue;

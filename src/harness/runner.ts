@@ -381,7 +381,7 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
 
   const pending = pendingUnits(units, owned, results);
   const workers = Math.max(1, Math.min(options.workers ?? defaultWorkers(), pending.length || 1));
-  let interrupted = false;
+  let interrupted: boolean;
   const freshBefore = results.size;
   let sessions = checkpoint.sessions;
   try {
