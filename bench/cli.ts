@@ -52,7 +52,8 @@ const median = (xs: number[]) => quantileOfSorted(Float64Array.from(xs).sort(), 
 function pair(label: string, a: string[], b: string[], target: number, compareValues = false): void {
   if (compareValues) {
     const [va, vb] = [printedValue(a), printedValue(b)];
-    if (!(Math.abs(va - vb) <= 1e-6 * Math.max(1, Math.abs(vb)))) throw new Error(`${label}: hhat printed ${va}, the SciPy script ${vb}; they did not compute the same estimate`);
+    if (!(Math.abs(va - vb) <= 1e-6 * Math.max(1, Math.abs(vb))))
+      throw new Error(`${label}: hhat printed ${va}, the SciPy script ${vb}; they did not compute the same estimate`);
   }
   seconds(a);
   seconds(b);
@@ -68,7 +69,9 @@ function pair(label: string, a: string[], b: string[], target: number, compareVa
   }
   const ratio = median(ratios);
   const range = `${Math.min(...ratios).toFixed(2)}–${Math.max(...ratios).toFixed(2)}`;
-  console.log(`${label.padEnd(44)} A ${median(as).toFixed(3)} s  B ${median(bs).toFixed(3)} s  A/B ${ratio.toFixed(2)} (${range}; target ≤ ${target})${ratio <= target ? '' : '  ABOVE TARGET'}`);
+  console.log(
+    `${label.padEnd(44)} A ${median(as).toFixed(3)} s  B ${median(bs).toFixed(3)} s  A/B ${ratio.toFixed(2)} (${range}; target ≤ ${target})${ratio <= target ? '' : '  ABOVE TARGET'}`,
+  );
 }
 
 const small = join(dir, 'small.csv');
@@ -77,10 +80,28 @@ const cloud = writeNpy('cloud-3d.npy', 200_000, 3);
 const line = writeNpy('line-1d.npy', 1_000_000, 1);
 const node = [process.execPath, '-e', '0'];
 
-console.log(`whole processes, ${runs} pairs each after a warm-up; medians (and the range of the ratios); Node ${process.version}; load ${loadavg()[0].toFixed(2)}`);
+console.log(
+  `whole processes, ${runs} pairs each after a warm-up; medians (and the range of the ratios); Node ${process.version}; load ${loadavg()[0].toFixed(2)}`,
+);
 pair('hhat --version vs node -e 0', [process.execPath, bin, '--version'], node, 2.5);
 pair('hhat --help vs node -e 0', [process.execPath, bin, '--help'], node, 2.5);
 pair('hhat estimate (100 values) vs node -e 0', [process.execPath, bin, 'estimate', small, '--estimator', 'kozachenko-leonenko'], node, 4);
-pair('k-NN k=5, n=2e5, d=3: hhat vs SciPy script', [process.execPath, bin, 'estimate', cloud, '--estimator', 'kozachenko-leonenko:k=5'], ['python3', 'bench/scipy_cli.py', 'knn', cloud, '5'], 1.2, true);
-pair('Vasicek, n=1e6: hhat vs SciPy script', [process.execPath, bin, 'estimate', line, '--estimator', 'vasicek'], ['python3', 'bench/scipy_cli.py', 'vasicek', line], 1.0, true);
-console.log(`load while measuring: ${loadavg().map((x) => x.toFixed(2)).join(', ')} (1, 5, 15 min); figures taken above a load of 1 are worth taking again`);
+pair(
+  'k-NN k=5, n=2e5, d=3: hhat vs SciPy script',
+  [process.execPath, bin, 'estimate', cloud, '--estimator', 'kozachenko-leonenko:k=5'],
+  ['python3', 'bench/scipy_cli.py', 'knn', cloud, '5'],
+  1.2,
+  true,
+);
+pair(
+  'Vasicek, n=1e6: hhat vs SciPy script',
+  [process.execPath, bin, 'estimate', line, '--estimator', 'vasicek'],
+  ['python3', 'bench/scipy_cli.py', 'vasicek', line],
+  1.0,
+  true,
+);
+console.log(
+  `load while measuring: ${loadavg()
+    .map((x) => x.toFixed(2))
+    .join(', ')} (1, 5, 15 min); figures taken above a load of 1 are worth taking again`,
+);

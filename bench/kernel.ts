@@ -96,7 +96,9 @@ function multivariateGrowth(dim: number): string[] {
     const time = medianTime(() => kernelEstimator.estimate(sample, { bandwidth: 'silverman' }), n >= 5e4 ? 3 : 5);
     walls.push(time.wall);
     cpus.push(time.cpu);
-    lines.push(`kernel d = ${dim} (silverman, normal) n = ${n.toExponential(0)}: ${time.wall.toFixed(0)} ms wall, ${time.cpu.toFixed(0)} ms CPU (${path} path; ${grid}; ${load()})`);
+    lines.push(
+      `kernel d = ${dim} (silverman, normal) n = ${n.toExponential(0)}: ${time.wall.toFixed(0)} ms wall, ${time.cpu.toFixed(0)} ms CPU (${path} path; ${grid}; ${load()})`,
+    );
   }
   const logSizes = sizes.map(Math.log);
   lines.push(
@@ -127,7 +129,11 @@ function fastVersusExact(n: number): string[] {
       const data = prepareKernelData(sample);
       const rule = ruleBandwidth(data, 'silverman');
       const errors: string[] = [];
-      for (const [label, h] of [['h', rule], ['h/4', rule / 4], ['4h', 4 * rule]] as const) {
+      for (const [label, h] of [
+        ['h', rule],
+        ['h/4', rule / 4],
+        ['4h', 4 * rule],
+      ] as const) {
         const error = Math.abs(kernelEntropy(data, h, { multivariate: 'grid' }) - kernelEntropy(data, h, { multivariate: 'cells' }));
         worst = Math.max(worst, error);
         errors.push(`${label} ${error.toExponential(1)}`);

@@ -56,7 +56,10 @@ export function bestOf3<T>(run: () => T): { seconds: number; result: T } {
 }
 
 /** The 1-, 5- and 15-minute load averages, as `uptime` shows them. */
-const load = (): string => loadavg().map((value) => value.toFixed(2)).join(', ');
+const load = (): string =>
+  loadavg()
+    .map((value) => value.toFixed(2))
+    .join(', ');
 
 const ms = (seconds: number): string => `${(seconds * 1000).toFixed(1)} ms`;
 
@@ -105,7 +108,10 @@ function agreement(ours: Float64Array, theirs: Float64Array): string {
 function highDims(): number[] {
   const at = process.argv.indexOf('--dims');
   if (at < 0) return [5, 8, 10, 16];
-  return (process.argv[at + 1] ?? '').split(',').map(Number).filter((dim) => Number.isInteger(dim) && dim >= 1);
+  return (process.argv[at + 1] ?? '')
+    .split(',')
+    .map(Number)
+    .filter((dim) => Number.isInteger(dim) && dim >= 1);
 }
 
 interface KnnRow {
@@ -127,7 +133,13 @@ function compareKnn(shape: Shape, dim: number, norm: KnnNorm, runs: number): Knn
   if (typeof scipy !== 'string') {
     agreementText = agreement(ours.result, new Float64Array(scipy.output.buffer, scipy.output.byteOffset, scipy.output.byteLength / 8));
   }
-  return { label: `${shape} n = ${TARGET_N}, d = ${dim}, ${norm}, ${K}-NN of every point`, ours: ours.seconds, build: build.seconds, scipy, agreement: agreementText };
+  return {
+    label: `${shape} n = ${TARGET_N}, d = ${dim}, ${norm}, ${K}-NN of every point`,
+    ours: ours.seconds,
+    build: build.seconds,
+    scipy,
+    agreement: agreementText,
+  };
 }
 
 export async function benchKnn(): Promise<string[]> {
@@ -212,7 +224,8 @@ export async function benchKnn(): Promise<string[]> {
     // SciPy compares squared distances with r² rounded, which can fall an ulp below the squared distance
     // of the point at exactly distance r; ours count exactly what Math.sqrt(squared) <= r says (and match
     // a brute-force count in test/knn.test.ts).
-    const explanation = oneLower > 0 ? `; ${oneLower} are one lower in SciPy, which drops the point at exactly distance r (it compares d² with a rounded r²)` : '';
+    const explanation =
+      oneLower > 0 ? `; ${oneLower} are one lower in SciPy, which drops the point at exactly distance r (it compares d² with a rounded r²)` : '';
     const other = TARGET_N - same - oneLower;
     lines.push(
       `${label}: ours ${ms(ours.seconds)}, SciPy query_ball_point ${ms(scipy.seconds)}, ours/SciPy ${(ours.seconds / scipy.seconds).toFixed(2)}×; ` +

@@ -75,7 +75,14 @@ function measure(args: string[]): Measured {
   const child = spawnSync(process.execPath, ['--input-type=module', '-e', wrapper, bin, ...args], { cwd: root, encoding: 'utf8', maxBuffer: 1 << 28 });
   const wallSeconds = Number(process.hrtime.bigint() - started) / 1e9;
   const rss = /maxRSS (\d+)/.exec(child.stderr);
-  return { command, exitCode: child.status, wallSeconds, maxRssMb: rss ? Number(rss[1]) / 1024 : NaN, stdout: child.stdout, stderr: child.stderr.replace(/\nmaxRSS \d+\n$/, '') };
+  return {
+    command,
+    exitCode: child.status,
+    wallSeconds,
+    maxRssMb: rss ? Number(rss[1]) / 1024 : NaN,
+    stdout: child.stdout,
+    stderr: child.stderr.replace(/\nmaxRSS \d+\n$/, ''),
+  };
 }
 
 /**
@@ -101,7 +108,9 @@ async function calibrate(): Promise<void> {
         const started = process.hrtime.bigint();
         configured.estimator.estimate({ n, dim, data }, configured.settings);
         const measured = Number(process.hrtime.bigint() - started) / 1e9;
-        console.log(`${dim}  ${id.padEnd(29)}  ${String(n).padEnd(8)}  ${predicted.toPrecision(3).padStart(11)}  ${measured.toPrecision(3).padStart(10)}  ${(measured / predicted).toFixed(2).padStart(18)}`);
+        console.log(
+          `${dim}  ${id.padEnd(29)}  ${String(n).padEnd(8)}  ${predicted.toPrecision(3).padStart(11)}  ${measured.toPrecision(3).padStart(10)}  ${(measured / predicted).toFixed(2).padStart(18)}`,
+        );
       }
     }
   }
@@ -118,7 +127,9 @@ async function main(): Promise<void> {
     if (!given || !existsSync(path)) {
       const started = process.hrtime.bigint();
       writeGaugeCsv(path, rows);
-      console.log(`wrote ${path}: ${rows} rows × 3, ${(statSync(path).size / 1e6).toFixed(0)} MB in ${(Number(process.hrtime.bigint() - started) / 1e9).toFixed(1)} s`);
+      console.log(
+        `wrote ${path}: ${rows} rows × 3, ${(statSync(path).size / 1e6).toFixed(0)} MB in ${(Number(process.hrtime.bigint() - started) / 1e9).toFixed(1)} s`,
+      );
     }
     const runs: string[][] = [];
     if (only === undefined || only === 'estimate') runs.push(['estimate', path], ['estimate', path, '--json']);

@@ -20,7 +20,11 @@ import { join } from 'node:path';
 import { Worker } from 'node:worker_threads';
 
 const ROUNDS = Number(process.env.ROUNDS ?? 3);
-const load = () => execSync('uptime').toString().trim().replace(/.*load average: /, '');
+const load = () =>
+  execSync('uptime')
+    .toString()
+    .trim()
+    .replace(/.*load average: /, '');
 const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
 const bin = new URL('../bin/hhat.js', import.meta.url).pathname;
 const folder = mkdtempSync(join(tmpdir(), 'hhat-parallel-'));
@@ -39,7 +43,9 @@ function bench(workers: number): { seconds: number; estimates: string } {
   const started = performance.now();
   execFileSync(process.execPath, [bin, 'bench', '--workers', String(workers), '--out', out, '--force', '--quiet'], { stdio: 'ignore' });
   const seconds = (performance.now() - started) / 1000;
-  const run = JSON.parse(readFileSync(out, 'utf8')) as { cells: { scenario: string; estimator: string; n: number; role: string; perturbation: unknown; tuning: unknown; estimates: unknown[] }[] };
+  const run = JSON.parse(readFileSync(out, 'utf8')) as {
+    cells: { scenario: string; estimator: string; n: number; role: string; perturbation: unknown; tuning: unknown; estimates: unknown[] }[];
+  };
   const estimates = JSON.stringify(run.cells.map((c) => [c.scenario, c.estimator, c.n, c.role, c.perturbation, c.tuning, c.estimates]));
   return { seconds, estimates };
 }
@@ -59,12 +65,18 @@ try {
       if (estimates !== reference) console.log('ESTIMATES DIFFER between runs');
       (workers === 1 ? spin1 : spin2).push(await spin(workers));
     }
-    console.log(`round ${round + 1}: hhat bench ${plan1.at(-1)!.toFixed(2)} s with 1 worker, ${plan2.at(-1)!.toFixed(2)} s with 2; fixed loop ${spin1.at(-1)!.toFixed(2)} s on 1 thread, ${spin2.at(-1)!.toFixed(2)} s on 2 (load ${load()})`);
+    console.log(
+      `round ${round + 1}: hhat bench ${plan1.at(-1)!.toFixed(2)} s with 1 worker, ${plan2.at(-1)!.toFixed(2)} s with 2; fixed loop ${spin1.at(-1)!.toFixed(2)} s on 1 thread, ${spin2.at(-1)!.toFixed(2)} s on 2 (load ${load()})`,
+    );
   }
 } finally {
   rmSync(folder, { recursive: true, force: true });
 }
 const ratios = plan1.map((t, i) => t / plan2[i]);
 const ceilings = spin1.map((t, i) => (2 * t) / spin2[i]);
-console.log(`speed-up with 2 workers (whole process): ${median(ratios).toFixed(2)}x median (${Math.min(...ratios).toFixed(2)}–${Math.max(...ratios).toFixed(2)}) over ${ROUNDS} rounds`);
-console.log(`the machine's ceiling (twice the work on 2 threads in the time of once on 1): ${median(ceilings).toFixed(2)}x median (${Math.min(...ceilings).toFixed(2)}–${Math.max(...ceilings).toFixed(2)})`);
+console.log(
+  `speed-up with 2 workers (whole process): ${median(ratios).toFixed(2)}x median (${Math.min(...ratios).toFixed(2)}–${Math.max(...ratios).toFixed(2)}) over ${ROUNDS} rounds`,
+);
+console.log(
+  `the machine's ceiling (twice the work on 2 threads in the time of once on 1): ${median(ceilings).toFixed(2)}x median (${Math.min(...ceilings).toFixed(2)}–${Math.max(...ceilings).toFixed(2)})`,
+);

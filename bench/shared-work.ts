@@ -30,9 +30,19 @@ function allEstimates(data: Float64Array, n: number, dim: number, fresh: boolean
 
 const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
 
-console.log(`load: ${execSync('uptime').toString().trim().replace(/.*load average: /, '')}`);
+console.log(
+  `load: ${execSync('uptime')
+    .toString()
+    .trim()
+    .replace(/.*load average: /, '')}`,
+);
 console.log('n      d  shared ms  separate ms  ratio  identical');
-for (const [n, dim] of [[500, 1], [500, 3], [2000, 3], [20000, 3]]) {
+for (const [n, dim] of [
+  [500, 1],
+  [500, 3],
+  [2000, 3],
+  [20000, 3],
+]) {
   const shared: number[] = [];
   const separate: number[] = [];
   let identical = true;

@@ -87,7 +87,7 @@ export async function benchSpacing(): Promise<string[]> {
     lines.push(
       `${estimator.id}: n = ${reference.n} ours ${ms(oursSmall.seconds)}, SciPy ${ms(reference.seconds)}, ` +
         `SciPy/ours ${(reference.seconds / oursSmall.seconds).toFixed(1)}×, values agree to ${agreement.toExponential(1)} relative; ` +
-        `n = ${N} ours ${ms(ours.seconds)} (SciPy's index arrays would need ~${((2 * Math.floor(Math.sqrt(N) + 0.5) + 1) * N * 8 / 1e9).toFixed(0)} GB each)`,
+        `n = ${N} ours ${ms(ours.seconds)} (SciPy's index arrays would need ~${(((2 * Math.floor(Math.sqrt(N) + 0.5) + 1) * N * 8) / 1e9).toFixed(0)} GB each)`,
     );
   }
   return lines;

@@ -47,12 +47,17 @@ function changeLine(cell: CellComparison): string {
 
 function report(quantity: Quantity, comparison: Comparison, seconds: string): number {
   const { counts } = comparison;
-  console.log(`${quantity}: default plan rerun in ${seconds} s; compared with ${baselinePath(quantity)} (${comparison.pairing.paired ? 'paired' : `unpaired: ${comparison.pairing.reason}`})`);
+  console.log(
+    `${quantity}: default plan rerun in ${seconds} s; compared with ${baselinePath(quantity)} (${comparison.pairing.paired ? 'paired' : `unpaired: ${comparison.pairing.reason}`})`,
+  );
   console.log(
     `${quantity} cells: ${counts.unchanged} unchanged, ${counts['changed-within-noise']} changed within noise or the tolerance (${comparison.tolerance.text}), ${counts.improved} improved, ${counts.worse} worse, ${counts.added} added, ${counts.removed} removed`,
   );
   // Worse first, so the cells that fail the run are never cut off the screen.
-  const changed = [...comparison.cells.filter((c) => c.status === 'worse'), ...comparison.cells.filter((c) => c.status !== 'worse' && c.status !== 'unchanged')];
+  const changed = [
+    ...comparison.cells.filter((c) => c.status === 'worse'),
+    ...comparison.cells.filter((c) => c.status !== 'worse' && c.status !== 'unchanged'),
+  ];
   for (const cell of changed.slice(0, SHOWN)) console.log(`  ${changeLine(cell)}`);
   if (changed.length > SHOWN) console.log(`  … ${changed.length - SHOWN} more changed cells in ${comparisonPath(quantity)}`);
   for (const cell of comparison.removed) console.log(`  missing: ${describeBaselineCell(cell)}`);
@@ -62,7 +67,8 @@ function report(quantity: Quantity, comparison: Comparison, seconds: string): nu
 
 function quantitiesAsked(args: string[]): Quantity[] {
   for (const a of args) {
-    if (!(QUANTITIES as readonly string[]).includes(a)) throw new UsageError(`${a} is not a plan to track; use ${QUANTITIES.join(', ')} (or none for all three)`);
+    if (!(QUANTITIES as readonly string[]).includes(a))
+      throw new UsageError(`${a} is not a plan to track; use ${QUANTITIES.join(', ')} (or none for all three)`);
   }
   return args.length ? QUANTITIES.filter((q) => args.includes(q)) : [...QUANTITIES];
 }
@@ -92,7 +98,9 @@ async function main(): Promise<number> {
     writeRunFile(resolve(runPath(quantity)), run);
     if (refresh) {
       const baseline = writeBaseline(resolve(baselinePath(quantity)), run);
-      console.log(`${quantity}: baseline refreshed: ${baseline.cells.length} cells in ${seconds} s → ${baselinePath(quantity)} (full run: ${runPath(quantity)})`);
+      console.log(
+        `${quantity}: baseline refreshed: ${baseline.cells.length} cells in ${seconds} s → ${baselinePath(quantity)} (full run: ${runPath(quantity)})`,
+      );
       continue;
     }
     const comparison = compareRuns(baselines!.get(quantity)!, run, { tolerance }, { base: baselinePath(quantity), next: 'this checkout' });

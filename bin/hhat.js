@@ -8,6 +8,11 @@ process.stdout.on('error', (error) => {
 });
 
 main(process.argv.slice(2)).then(
-  (code) => { process.exitCode = code; },
-  (err) => { console.error(err); process.exitCode = 1; },
+  (code) => {
+    process.exitCode = code;
+  },
+  (err) => {
+    console.error(err);
+    process.exitCode = 1;
+  },
 );

@@ -21,17 +21,26 @@ export function checkedPair(id: string, sample: Sample): { n: number; m: number;
   const { n, dim } = sample;
   const other = sample.q;
   if (!other) {
-    throw new EstimateError('invalid-input', `${id}: the sample has no Q sample (sample.q is missing); a divergence D(P ‖ Q) needs a sample from P and one from Q`);
+    throw new EstimateError(
+      'invalid-input',
+      `${id}: the sample has no Q sample (sample.q is missing); a divergence D(P ‖ Q) needs a sample from P and one from Q`,
+    );
   }
   if (other.dim !== dim) {
     throw new EstimateError('dimension', `${id}: the P sample has d = ${dim} but the Q sample has d = ${other.dim}; both must have the same dimension`);
   }
   const p = sample.data.subarray(0, n * dim);
   const q = other.data.subarray(0, other.n * dim);
-  for (const [name, values] of [['P', p], ['Q', q]] as const) {
+  for (const [name, values] of [
+    ['P', p],
+    ['Q', q],
+  ] as const) {
     for (let i = 0; i < values.length; i++) {
       if (!Number.isFinite(values[i])) {
-        throw new EstimateError('invalid-input', `${id}: value ${values[i]} in the ${name} sample at row ${Math.floor(i / dim) + 1}, column ${(i % dim) + 1}; only finite numbers are allowed`);
+        throw new EstimateError(
+          'invalid-input',
+          `${id}: value ${values[i]} in the ${name} sample at row ${Math.floor(i / dim) + 1}, column ${(i % dim) + 1}; only finite numbers are allowed`,
+        );
       }
     }
   }
@@ -44,7 +53,10 @@ export function checkNotConstant(id: string, data: Float64Array, n: number, dim:
     let constant = true;
     for (let p = j + dim; p < n * dim && constant; p += dim) constant = data[p] === data[j];
     if (constant && n > 0) {
-      throw new EstimateError('ties', `${id}: all ${n} values of coordinate ${j + 1} of ${what} are equal (${data[j]}), so bins spanning it have zero width; drop that coordinate (it carries no information)`);
+      throw new EstimateError(
+        'ties',
+        `${id}: all ${n} values of coordinate ${j + 1} of ${what} are equal (${data[j]}), so bins spanning it have zero width; drop that coordinate (it carries no information)`,
+      );
     }
   }
 }
@@ -153,7 +165,14 @@ function histogramDivergence(sample: Sample, settings: { bins: BinRule | number;
   try {
     grid = histogramGrid({ n: n + m, dim, data: pooled }, { bins: settings.bins, scale: settings.scale, width: 'none' });
   } catch (error) {
-    if (error instanceof EstimateError) throw new EstimateError(error.code, error.message.replace(/^histogram/, `${id} (pooled P and Q)`).replace(', a bin count, or width=W', ' or a bin count').replace(', or width=W', ''));
+    if (error instanceof EstimateError)
+      throw new EstimateError(
+        error.code,
+        error.message
+          .replace(/^histogram/, `${id} (pooled P and Q)`)
+          .replace(', a bin count, or width=W', ' or a bin count')
+          .replace(', or width=W', ''),
+      );
     throw error;
   }
   const keys = cellKeys(p, n, q, m, dim, grid);
@@ -163,7 +182,7 @@ function histogramDivergence(sample: Sample, settings: { bins: BinRule | number;
   let emptyCells = 0;
   let strandedPoints = 0;
   let j = 0;
-  for (let i = 0; i < n; ) {
+  for (let i = 0; i < n;) {
     const key = keysP[i];
     let countP = 0;
     while (i < n && keysP[i] === key) {
@@ -223,12 +242,18 @@ function choleskyOf(id: string, which: string, covariance: Float64Array, dim: nu
   for (let j = 0; j < dim; j++) {
     const diagonal = covariance[j * dim + j];
     if (!(diagonal > 0)) {
-      throw new EstimateError('ties', `${id}: coordinate ${j + 1} of the ${which} sample has zero variance, so its fitted covariance is singular; drop that coordinate or add noise`);
+      throw new EstimateError(
+        'ties',
+        `${id}: coordinate ${j + 1} of the ${which} sample has zero variance, so its fitted covariance is singular; drop that coordinate or add noise`,
+      );
     }
     let pivot = diagonal;
     for (let t = 0; t < j; t++) pivot -= lower[j * dim + t] ** 2;
     if (!(pivot > singularRatio * diagonal)) {
-      throw new EstimateError('numeric', `${id}: the fitted covariance of the ${which} sample is singular (coordinate ${j + 1} is, to rounding, a linear combination of coordinates 1..${j}); drop a redundant coordinate`);
+      throw new EstimateError(
+        'numeric',
+        `${id}: the fitted covariance of the ${which} sample is singular (coordinate ${j + 1} is, to rounding, a linear combination of coordinates 1..${j}); drop a redundant coordinate`,
+      );
     }
     const ljj = Math.sqrt(pivot);
     lower[j * dim + j] = ljj;
@@ -251,7 +276,10 @@ function gaussianDivergenceEstimate(sample: Sample): number {
   const checked = checkedPair(id, sample);
   const { n, m, dim } = checked;
   if (n <= dim || m <= dim) {
-    throw new EstimateError('too-few-points', `${id}: a ${dim}-dimensional covariance needs at least ${dim + 1} points in each sample; got ${n} from P and ${m} from Q`);
+    throw new EstimateError(
+      'too-few-points',
+      `${id}: a ${dim}-dimensional covariance needs at least ${dim + 1} points in each sample; got ${n} from P and ${m} from Q`,
+    );
   }
   // A subnormal or huge spread is first brought near 1 per coordinate, for both samples alike (exact,
   // estimators/shared/scaling.ts; the divergence does not move), so the squares below neither underflow nor overflow.
@@ -307,7 +335,8 @@ export const divergenceEstimators: Estimator[] = [
       'Wang, Q., Kulkarni, S. R. & Verdú, S. (2009). Divergence estimation for multidimensional densities via k-nearest-neighbor distances. IEEE Transactions on Information Theory 55(5), 2392–2405, eq. (5).',
     lacks: {
       // Ratios of Euclidean distances survive a common scale, shift or rotation, not a shear or unequal stretch.
-      affine: 'ratios of Euclidean distances are kept by a rescaling, shift or rotation, but not by a linear map that shears or stretches coordinates unequally',
+      affine:
+        'ratios of Euclidean distances are kept by a rescaling, shift or rotation, but not by a linear map that shears or stretches coordinates unequally',
     },
     tuning: (_base, n) => [{ setting: 'k', values: KNN_TUNING_K.filter((k) => k < n) }],
     defaultFor: { estimate: true, bench: true },
@@ -323,8 +352,22 @@ export const divergenceEstimators: Estimator[] = [
     quantity: 'divergence',
     summary: 'plug-in Σ p̂ log(p̂/q̂) on one grid of equal-width bins over both samples; empty Q bins under P mass are an error',
     settings: [
-      { name: 'bins', meaning: 'bin rule (applied to the pooled P and Q points), or a number of bins per coordinate', default: 'freedman-diaconis', kind: 'choice-or-integer', choices: BIN_RULES, min: 1 },
-      { name: 'scale', meaning: 'multiplies the bin count a rule gives (rounded, at least 1); ignored with a numeric bins', default: 1, kind: 'number', min: 0, minExclusive: true },
+      {
+        name: 'bins',
+        meaning: 'bin rule (applied to the pooled P and Q points), or a number of bins per coordinate',
+        default: 'freedman-diaconis',
+        kind: 'choice-or-integer',
+        choices: BIN_RULES,
+        min: 1,
+      },
+      {
+        name: 'scale',
+        meaning: 'multiplies the bin count a rule gives (rounded, at least 1); ignored with a numeric bins',
+        default: 1,
+        kind: 'number',
+        min: 0,
+        minExclusive: true,
+      },
     ],
     dims: [1, Infinity],
     reference:
@@ -347,7 +390,8 @@ export const divergenceEstimators: Estimator[] = [
     summary: 'divergence between the normal laws fitted to P and to Q (sample means and covariances)',
     settings: [],
     dims: [1, Infinity],
-    reference: 'Kullback, S. (1959). Information Theory and Statistics, Wiley (divergence between normal laws), with the fitted means and covariances plugged in.',
+    reference:
+      'Kullback, S. (1959). Information Theory and Statistics, Wiley (divergence between normal laws), with the fitted means and covariances plugged in.',
     defaultFor: { estimate: true, bench: true },
     estimate: (sample) => gaussianDivergenceEstimate(sample),
   }),

@@ -46,7 +46,15 @@
  * and run-length counted otherwise. When the grid has 2^53 cells or more, the keys of the leading
  * coordinates are first replaced by their ranks among the distinct keys, which keeps every key exact.
  */
-import { defineEstimator, type Estimator, type EstimatorFile, type Sample, TUNING_SCALE_FACTORS, type SettingSpec, type TuningAxis } from '../src/core/contracts.js';
+import {
+  defineEstimator,
+  type Estimator,
+  type EstimatorFile,
+  type Sample,
+  TUNING_SCALE_FACTORS,
+  type SettingSpec,
+  type TuningAxis,
+} from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { quantileOfSorted, squaredDeviations } from '../src/math/moments.js';
 import { checkFiniteValues, column } from '../src/core/sample.js';
@@ -67,7 +75,7 @@ const HISTOGRAM_SETTINGS = [
   },
   {
     name: 'scale',
-    meaning: "multiplies the bin count a rule gives (rounded, at least 1); ignored with a numeric bins or a width",
+    meaning: 'multiplies the bin count a rule gives (rounded, at least 1); ignored with a numeric bins or a width',
     default: 1,
     kind: 'number',
     min: 0,
@@ -156,29 +164,41 @@ export function histogramGrid(sample: Sample, { bins, scale, width }: GridSettin
       const binCount = Math.floor(range / gridWidth) + 1;
       if (!(binCount < MAX_EXACT_INTEGER)) {
         const dataRange = timesPowerOfTwo(range, unitExponent);
-        throw new EstimateError('invalid-input', `${id}: width=${width} cuts coordinate ${k + 1} (range ${Number.isFinite(dataRange) ? dataRange : `${dataMinimum} .. ${dataMaximum}`}) into 2^53 or more bins; use a larger width`);
+        throw new EstimateError(
+          'invalid-input',
+          `${id}: width=${width} cuts coordinate ${k + 1} (range ${Number.isFinite(dataRange) ? dataRange : `${dataMinimum} .. ${dataMaximum}`}) into 2^53 or more bins; use a larger width`,
+        );
       }
       if (!(minimum + gridWidth > minimum)) {
-        throw new EstimateError('numeric', `${id}: width=${width} is below the resolution of the values of coordinate ${k + 1} (near ${dataMinimum}); use a larger width`);
+        throw new EstimateError(
+          'numeric',
+          `${id}: width=${width} is below the resolution of the values of coordinate ${k + 1} (near ${dataMinimum}); use a larger width`,
+        );
       }
       grid.push({ origin: minimum, binWidth: gridWidth, binCount, lastEdge: minimum + binCount * gridWidth, unitExponent, unitOffset });
       continue;
     }
     if (!(range > 0)) {
-      throw new EstimateError('ties', `${id}: all ${n} values of coordinate ${k + 1} are equal (${dataMinimum}), so bins spanning the data have zero width; give width=W instead`);
+      throw new EstimateError(
+        'ties',
+        `${id}: all ${n} values of coordinate ${k + 1} are equal (${dataMinimum}), so bins spanning the data have zero width; give width=W instead`,
+      );
     }
     if (!Number.isFinite(range)) {
       throw new EstimateError('numeric', `${id}: the range of coordinate ${k + 1} overflows the double range; rescale the data`);
     }
     // A scaled rule keeps its scale-free count ratio, so rescaling the data still shifts by exactly d·log c.
-    const binCount = isRule ? Math.max(1, Math.round(ruleBinCount(bins, values, range, dim, k) * scale)) : (bins);
+    const binCount = isRule ? Math.max(1, Math.round(ruleBinCount(bins, values, range, dim, k) * scale)) : bins;
     if (!(binCount < MAX_EXACT_INTEGER)) {
       throw new EstimateError('numeric', `${id}: coordinate ${k + 1} would need 2^53 or more bins; use a bin count or width=W`);
     }
     const binWidth = range / binCount;
     // As numpy does, refuse bins so narrow that neighbouring edges cannot be told apart.
     if (!(minimum + binWidth > minimum && maximum - binWidth < maximum)) {
-      throw new EstimateError('numeric', `${id}: ${binCount} bins are too many for the range of coordinate ${k + 1} (${dataMinimum} .. ${dataMaximum}); use fewer bins`);
+      throw new EstimateError(
+        'numeric',
+        `${id}: ${binCount} bins are too many for the range of coordinate ${k + 1} (${dataMinimum} .. ${dataMaximum}); use fewer bins`,
+      );
     }
     grid.push({ origin: minimum, binWidth, binCount, lastEdge: maximum, unitExponent, unitOffset });
   }
@@ -210,7 +230,10 @@ export function ruleBinCount(rule: BinRule, values: Float64Array, range: number,
       const sorted = sortAscending(values);
       const iqr = quantileOfSorted(sorted, 0.75) - quantileOfSorted(sorted, 0.25);
       if (!(iqr > 0)) {
-        throw new EstimateError('ties', `${id}: coordinate ${coordinate + 1} has interquartile range 0 (at least half of its ${n} values are equal); use bins=scott, a bin count, or width=W`);
+        throw new EstimateError(
+          'ties',
+          `${id}: coordinate ${coordinate + 1} has interquartile range 0 (at least half of its ${n} values are equal); use bins=scott, a bin count, or width=W`,
+        );
       }
       return Math.max(1, Math.ceil(range / iqr / (2 * Math.pow(n, -1 / (dim + 2)))));
     }
@@ -339,7 +362,8 @@ export const histogramEstimators: Estimator[] = [
     lacks: {
       // A width in data units does not grow with the data: x → c·x keeps the width, so the bins and counts
       // change and Ĥ does not shift by d·log|c|. Rules and counts are scale-free (see the top of this file).
-      scale: (settings) => (typeof settings.width === 'number' ? `width=${settings.width} is a bin width in data units, which does not change with the data's unit` : undefined),
+      scale: (settings) =>
+        typeof settings.width === 'number' ? `width=${settings.width} is a bin width in data units, which does not change with the data's unit` : undefined,
     },
   }),
 ];

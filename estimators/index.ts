@@ -10,7 +10,17 @@
 import { readdirSync } from 'node:fs';
 import { basename, dirname, extname, join } from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
-import type { DefaultEntry, DefaultSets, Estimator, EstimateDefaultEntry, EstimatorFile, Quantity, Sample, Settings, SettingValue } from '../src/core/contracts.js';
+import type {
+  DefaultEntry,
+  DefaultSets,
+  Estimator,
+  EstimateDefaultEntry,
+  EstimatorFile,
+  Quantity,
+  Sample,
+  Settings,
+  SettingValue,
+} from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { checkEstimator, formatSpec, parseSpec, validateSettings } from '../src/core/spec.js';
 
@@ -50,7 +60,9 @@ async function importEstimatorFiles(): Promise<{ file: string; registration: Est
 }
 
 const files = await importEstimatorFiles();
-const builtIn: { file: string; estimator: Estimator }[] = files.flatMap(({ file, registration }) => registration.estimators.map((estimator) => ({ file, estimator })));
+const builtIn: { file: string; estimator: Estimator }[] = files.flatMap(({ file, registration }) =>
+  registration.estimators.map((estimator) => ({ file, estimator })),
+);
 
 const registry = new Map<string, Estimator>();
 const builtInById = new Map(builtIn.map(({ estimator }) => [estimator.id, estimator]));
@@ -127,7 +139,15 @@ export interface ConfiguredEstimator {
 export function configureEstimator(id: string, given: Record<string, SettingValue> = {}): ConfiguredEstimator {
   const estimator = getEstimator(id);
   const settings = validateSettings(estimator.id, estimator.settings, given);
-  return { estimator, settings, spec: formatSpec(estimator.id, settings, estimator.settings.map((s) => s.name)) };
+  return {
+    estimator,
+    settings,
+    spec: formatSpec(
+      estimator.id,
+      settings,
+      estimator.settings.map((s) => s.name),
+    ),
+  };
 }
 
 /** Parses `id:key=value,...` as typed on the command line. */

@@ -30,7 +30,15 @@
  * point), not a refusal. The estimator fails ('numeric') only where that value does not fit in a double:
  * a point over ~1.3e154 bandwidths from its nearest neighbour, or data whose range overflows.
  */
-import { defineEstimator, type Estimator, type EstimatorFile, type Sample, TUNING_SCALE_FACTORS, type SettingSpec, type TuningAxis } from '../src/core/contracts.js';
+import {
+  defineEstimator,
+  type Estimator,
+  type EstimatorFile,
+  type Sample,
+  TUNING_SCALE_FACTORS,
+  type SettingSpec,
+  type TuningAxis,
+} from '../src/core/contracts.js';
 import { SampleMemo } from './shared/sample-memo.js';
 import { type BandwidthSetting, chooseBandwidth, type KernelData, kernelEntropy, prepareKernelData, toDataUnits } from './kernel/resubstitution.js';
 
@@ -76,7 +84,10 @@ const searchedBandwidths = new SampleMemo<number>();
 function usedBandwidth(sample: Sample, data: KernelData, settings: KernelSettings): number {
   const setting = settings.bandwidth;
   // The search is the costly part, and `hhat estimate` asks for the value and then the bandwidth it used.
-  const chosen = setting === 'likelihood-cv' ? searchedBandwidths.get(sample.data.subarray(0, sample.n * sample.dim), `${sample.dim}`, () => chooseBandwidth(data, setting)) : chooseBandwidth(data, setting);
+  const chosen =
+    setting === 'likelihood-cv'
+      ? searchedBandwidths.get(sample.data.subarray(0, sample.n * sample.dim), `${sample.dim}`, () => chooseBandwidth(data, setting))
+      : chooseBandwidth(data, setting);
   return typeof setting === 'number' ? chosen : chosen * settings.scale;
 }
 
@@ -104,7 +115,9 @@ export const kernelEstimator: Estimator = defineEstimator({
     // A numeric 1-D bandwidth is in data units (like a fixed histogram width); for d > 1 it is in whitened
     // units, which follow the data, and the rules are equivariant.
     scale: (settings, dim) =>
-      dim === 1 && typeof settings.bandwidth === 'number' ? `bandwidth=${settings.bandwidth} is in data units for d = 1, which do not change with the data's unit` : undefined,
+      dim === 1 && typeof settings.bandwidth === 'number'
+        ? `bandwidth=${settings.bandwidth} is in data units for d = 1, which do not change with the data's unit`
+        : undefined,
   },
 });
 

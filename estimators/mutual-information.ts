@@ -62,14 +62,23 @@ const IN_DEFAULT_SETS = { estimate: true, bench: true } as const;
 export function checkedSplit(id: string, sample: Sample): { n: number; xDim: number; yDim: number } {
   const { n, dim, data, xDim } = sample;
   if (xDim === undefined) {
-    throw new EstimateError('invalid-input', `${id}: the sample does not say which columns are X (xDim is missing); mutual information needs xDim between 1 and dim − 1 = ${dim - 1}`);
+    throw new EstimateError(
+      'invalid-input',
+      `${id}: the sample does not say which columns are X (xDim is missing); mutual information needs xDim between 1 and dim − 1 = ${dim - 1}`,
+    );
   }
   if (!Number.isInteger(xDim) || xDim < 1 || xDim > dim - 1) {
-    throw new EstimateError('dimension', `${id}: xDim = ${xDim} is not allowed for d = ${dim}; X takes the first xDim columns and Y the rest, so 1 ≤ xDim ≤ ${dim - 1}`);
+    throw new EstimateError(
+      'dimension',
+      `${id}: xDim = ${xDim} is not allowed for d = ${dim}; X takes the first xDim columns and Y the rest, so 1 ≤ xDim ≤ ${dim - 1}`,
+    );
   }
   for (let p = 0; p < n * dim; p++) {
     if (!Number.isFinite(data[p])) {
-      throw new EstimateError('invalid-input', `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`);
+      throw new EstimateError(
+        'invalid-input',
+        `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`,
+      );
     }
   }
   return { n, xDim, yDim: dim - xDim };
@@ -122,7 +131,9 @@ function prepared(id: string, sample: Sample, copula: Copula): { data: Float64Ar
 /** Rethrows a histogram/kernel error under this estimator's id, without advice on settings it does not have. */
 function renamed(id: string, from: string, error: unknown): never {
   if (error instanceof EstimateError) {
-    const message = (error.message.startsWith(from) ? id + error.message.slice(from.length) : `${id}: ${error.message}`).replace(', a bin count, or width=W', ' or a bin count').replace(', or width=W', '');
+    const message = (error.message.startsWith(from) ? id + error.message.slice(from.length) : `${id}: ${error.message}`)
+      .replace(', a bin count, or width=W', ' or a bin count')
+      .replace(', or width=W', '');
     throw new EstimateError(error.code, message);
   }
   throw error;
@@ -288,7 +299,16 @@ function neighbourExtents(
 }
 
 /** Largest X- and Y-distances from point i to the k points in `members`. */
-function extentsOver(data: Float64Array, dim: number, xDim: number, i: number, members: Int32Array, k: number, radiusX: Float64Array, radiusY: Float64Array): void {
+function extentsOver(
+  data: Float64Array,
+  dim: number,
+  xDim: number,
+  i: number,
+  members: Int32Array,
+  k: number,
+  radiusX: Float64Array,
+  radiusY: Float64Array,
+): void {
   const row = i * dim;
   let largestX = 0;
   let largestY = 0;
@@ -321,10 +341,7 @@ function ksgEstimator(variant: 1 | 2): Estimator {
       variant === 1
         ? 'Kraskov–Stögbauer–Grassberger estimator (8): k-th joint neighbour distance, strict marginal counts, max norm'
         : 'Kraskov–Stögbauer–Grassberger estimator (9): per-space neighbour extents, inclusive marginal counts, max norm',
-    settings: [
-      { name: 'k', meaning: 'neighbour order in the joint (X, Y) space', default: KSG_DEFAULT_K, kind: 'integer', min: 1 },
-      COPULA_SETTING,
-    ],
+    settings: [{ name: 'k', meaning: 'neighbour order in the joint (X, Y) space', default: KSG_DEFAULT_K, kind: 'integer', min: 1 }, COPULA_SETTING],
     dims: [2, Infinity],
     reference: `${KSG_REFERENCE}, estimator (${variant === 1 ? 8 : 9}).`,
     tuning: (_base, n) => [{ setting: 'k', values: KSG_TUNING_K.filter((k) => k < n) }],
@@ -459,9 +476,13 @@ const ENTROPY_DEFAULT = 'kozachenko-leonenko';
  * module's estimators, and importing it here would make an import cycle that fails whenever this file is
  * loaded first. So estimators added at run time (user modules) are not offered here.
  */
-const entropyEstimatorList: readonly Estimator[] = [...histogramEstimators, ...spacingEstimators, ...nearestNeighbourEstimators, ...kernelEstimators, ...parametricEstimators].filter(
-  (e) => e.quantity === 'entropy',
-);
+const entropyEstimatorList: readonly Estimator[] = [
+  ...histogramEstimators,
+  ...spacingEstimators,
+  ...nearestNeighbourEstimators,
+  ...kernelEstimators,
+  ...parametricEstimators,
+].filter((e) => e.quantity === 'entropy');
 
 function entropyEstimatorIds(): string[] {
   return entropyEstimatorList.map((e) => e.id);
@@ -487,10 +508,17 @@ function fromEntropies(sample: Sample, { entropy, k, copula }: { entropy: string
   const { data, n, xDim, yDim } = prepared(id, sample, copula);
   const dim = xDim + yDim;
   const [minDim, maxDim] = inner.dims;
-  for (const [part, d] of [['X', xDim], ['Y', yDim], ['(X, Y)', dim]] as const) {
+  for (const [part, d] of [
+    ['X', xDim],
+    ['Y', yDim],
+    ['(X, Y)', dim],
+  ] as const) {
     if (d < minDim || d > maxDim) {
       const range = maxDim === Infinity ? `d ≥ ${minDim}` : minDim === maxDim ? `d = ${minDim}` : `${minDim} ≤ d ≤ ${maxDim}`;
-      throw new EstimateError('dimension', `${id}: entropy=${inner.id} supports ${range}, but ${part} has d = ${d}; choose an entropy estimator for any dimension`);
+      throw new EstimateError(
+        'dimension',
+        `${id}: entropy=${inner.id} supports ${range}, but ${part} has d = ${d}; choose an entropy estimator for any dimension`,
+      );
     }
   }
   const entropyOf = (part: Sample): number => inner.estimate(part, settings);
@@ -519,8 +547,21 @@ export const mutualInformationEstimators: Estimator[] = [
         choices: BIN_RULES,
         min: 1,
       },
-      { name: 'scale', meaning: 'multiplies the bin count a rule gives (rounded, at least 1); ignored with a numeric bins', default: 1, kind: 'number', min: 0, minExclusive: true },
-      { name: 'correction', meaning: 'none, or miller-madow: add (occupied bins − 1)/(2n) to each of the three entropies', default: 'none', kind: 'choice', choices: ['none', 'miller-madow'] },
+      {
+        name: 'scale',
+        meaning: 'multiplies the bin count a rule gives (rounded, at least 1); ignored with a numeric bins',
+        default: 1,
+        kind: 'number',
+        min: 0,
+        minExclusive: true,
+      },
+      {
+        name: 'correction',
+        meaning: 'none, or miller-madow: add (occupied bins − 1)/(2n) to each of the three entropies',
+        default: 'none',
+        kind: 'choice',
+        choices: ['none', 'miller-madow'],
+      },
       COPULA_SETTING,
     ],
     dims: [2, Infinity],
@@ -539,14 +580,22 @@ export const mutualInformationEstimators: Estimator[] = [
     settings: [
       {
         name: 'bandwidth',
-        meaning: 'bandwidth rule for each of the three kernel estimates, or a number (data units for a 1-D part, on the (0, 1) scale rank/(n+1) with copula=rank; whitened units otherwise)',
+        meaning:
+          'bandwidth rule for each of the three kernel estimates, or a number (data units for a 1-D part, on the (0, 1) scale rank/(n+1) with copula=rank; whitened units otherwise)',
         default: 'silverman',
         kind: 'choice-or-number',
         choices: BANDWIDTH_RULES,
         min: 0,
         minExclusive: true,
       },
-      { name: 'scale', meaning: 'multiplies each bandwidth a rule gives; ignored with a numeric bandwidth', default: 1, kind: 'number', min: 0, minExclusive: true },
+      {
+        name: 'scale',
+        meaning: 'multiplies each bandwidth a rule gives; ignored with a numeric bandwidth',
+        default: 1,
+        kind: 'number',
+        min: 0,
+        minExclusive: true,
+      },
       COPULA_SETTING,
     ],
     dims: [2, Infinity],

@@ -205,13 +205,7 @@ function minimumNormSolver(matrix: Float64Array, rows: number, cols: number): (r
  * with the weights of `neighbourOrderWeights`. Note the paper's single-j estimator Ĥ_j uses log(n − 1)
  * where the Kraskov form uses ψ(n); the two differ by O(1/n).
  */
-export function weightedKozachenkoLeonenkoEntropy(
-  data: Float64Array,
-  dim: number,
-  k: number,
-  norm: KnnNorm,
-  id = 'kozachenko-leonenko-weighted',
-): number {
+export function weightedKozachenkoLeonenkoEntropy(data: Float64Array, dim: number, k: number, norm: KnnNorm, id = 'kozachenko-leonenko-weighted'): number {
   const n = checkedPointCount(id, data, dim, k);
   let orderWeights: NeighbourOrderWeights;
   try {
@@ -324,7 +318,15 @@ function tiesError(
  * change merged them, because the data span more than double precision resolves. Not ties, so not the
  * ties advice: an error saying so, or null when every zero distance is between identical rows.
  */
-function underflowedNeighbours(id: string, index: KnnIndex, data: Float64Array, distances: Float64Array, stride: number, n: number, order: number): EstimateError | null {
+function underflowedNeighbours(
+  id: string,
+  index: KnnIndex,
+  data: Float64Array,
+  distances: Float64Array,
+  stride: number,
+  n: number,
+  order: number,
+): EstimateError | null {
   const dim = index.dim;
   const neighbours = index.nearestOthers(order, { indices: true }).indices!;
   const rows = new Int32Array(n * order);

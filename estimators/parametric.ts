@@ -115,7 +115,10 @@ function gaussianEntropy(sample: Sample, correction: 'ahmed-gokhale' | 'none'): 
     let equal = true;
     for (let p = j + dim; p < n * dim && equal; p += dim) equal = data[p] === data[j];
     if (equal) {
-      throw new EstimateError('ties', `${id}: all ${n} values of coordinate ${j + 1} are equal (${data[j]}), so the covariance is singular; drop that coordinate or add noise`);
+      throw new EstimateError(
+        'ties',
+        `${id}: all ${n} values of coordinate ${j + 1} are equal (${data[j]}), so the covariance is singular; drop that coordinate or add noise`,
+      );
     }
   }
   const logColumnScale = new Float64Array(dim);

@@ -13,7 +13,15 @@
  *
  *   const h = vasicekEntropy(sortAscending(Float64Array.of(...)), 3);   // sortAscending: src/math/sort.ts
  */
-import { defineEstimator, type DefaultSets, type Estimator, type EstimatorFile, type Sample, TUNING_SCALE_FACTORS, type SettingSpec } from '../src/core/contracts.js';
+import {
+  defineEstimator,
+  type DefaultSets,
+  type Estimator,
+  type EstimatorFile,
+  type Sample,
+  TUNING_SCALE_FACTORS,
+  type SettingSpec,
+} from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { checkFiniteValues } from '../src/core/sample.js';
 import { spreadUnitOfRange, toUnit } from './shared/scaling.js';
@@ -65,7 +73,10 @@ function sortedFiniteValues(id: string, sample: Sample): Float64Array {
  */
 function spacingFailure(id: string, sorted: Float64Array, m: number, zeroSpacings: number, spacingCount: number, spacingName: string): EstimateError {
   if (zeroSpacings === 0) {
-    return new EstimateError('numeric', `${id}: a spacing overflows the double range (data span ${sorted[0]} .. ${sorted[sorted.length - 1]}); rescale the data`);
+    return new EstimateError(
+      'numeric',
+      `${id}: a spacing overflows the double range (data span ${sorted[0]} .. ${sorted[sorted.length - 1]}); rescale the data`,
+    );
   }
   let repeatedValues = 0;
   let longestRun = 1;

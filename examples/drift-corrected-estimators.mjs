@@ -131,7 +131,13 @@ export const detrendedKozachenkoLeonenko = {
   summary: 'Kozachenko–Leonenko k-NN estimator after removing a polynomial baseline drift in recording order',
   settings: [
     { name: 'k', meaning: 'neighbour order: each point uses the distance to its k-th nearest other point', default: 3, kind: 'integer', min: 1 },
-    { name: 'drift', meaning: 'baseline trend removed from each column before estimating, as a polynomial in the row index', default: 'linear', kind: 'choice', choices: ['none', 'linear', 'quadratic'] },
+    {
+      name: 'drift',
+      meaning: 'baseline trend removed from each column before estimating, as a polynomial in the row index',
+      default: 'linear',
+      kind: 'choice',
+      choices: ['none', 'linear', 'quadratic'],
+    },
   ],
   dims: [1, 8],
   reference:
@@ -142,7 +148,8 @@ export const detrendedKozachenkoLeonenko = {
   // Detrending fits the drift along the recording order, so reordering the rows changes the estimate; with
   // drift=none the order does not matter.
   lacks: {
-    rowOrder: (settings) => (settings.drift === 'none' ? undefined : `drift=${settings.drift} removes a trend fitted in recording order, so the order of the rows is part of the data`),
+    rowOrder: (settings) =>
+      settings.drift === 'none' ? undefined : `drift=${settings.drift} removes a trend fitted in recording order, so the order of the rows is part of the data`,
   },
   estimate(sample, settings) {
     const k = settings.k;
@@ -152,7 +159,10 @@ export const detrendedKozachenkoLeonenko = {
     if (n <= k) throw new EstimateError('too-few-points', `${id}: ${n} points; k = ${k} needs at least ${k + 1}`);
     for (let p = 0; p < n * dim; p++) {
       if (!Number.isFinite(data[p])) {
-        throw new EstimateError('invalid-input', `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`);
+        throw new EstimateError(
+          'invalid-input',
+          `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`,
+        );
       }
     }
     const detrended = detrend(sample, DRIFT_DEGREE[settings.drift]);
@@ -164,7 +174,10 @@ export const detrendedKozachenkoLeonenko = {
       else sumLog += Math.log(distances[i]);
     }
     if (repeated) {
-      throw new EstimateError('ties', `${id}: ${repeated} of ${n} points have ${k} or more exact copies (after drift removal); add recording-resolution jitter or raise k`);
+      throw new EstimateError(
+        'ties',
+        `${id}: ${repeated} of ${n} points have ${k} or more exact copies (after drift removal); add recording-resolution jitter or raise k`,
+      );
     }
     return digammaInteger(n) - digammaInteger(k) + logUnitBallVolume(dim) + (dim * sumLog) / n;
   },

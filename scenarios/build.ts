@@ -9,7 +9,11 @@ import { lowerTimes, type CholeskyFactor } from '../src/math/linalg.js';
 import { formatSpec } from '../src/core/spec.js';
 
 export function scenarioId(family: string, params: Record<string, number>, specs: readonly ParamSpec[]): string {
-  return formatSpec(family, params, specs.map((s) => s.name));
+  return formatSpec(
+    family,
+    params,
+    specs.map((s) => s.name),
+  );
 }
 
 /** Quadrature tolerances used for every numeric truth; the achieved error is reported in truthSource. */

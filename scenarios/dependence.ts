@@ -110,7 +110,9 @@ export interface SplitFactors {
 }
 
 export function splitFactors(owner: string, covariance: number[][], xDim: number, params: Record<string, number>): SplitFactors {
-  const shown = Object.entries(params).map(([k, v]) => `${k}=${formatNumber(v)}`).join(', ');
+  const shown = Object.entries(params)
+    .map(([k, v]) => `${k}=${formatNumber(v)}`)
+    .join(', ');
   const joint = factorOrFail(owner, covariance, `the covariance for ${shown}`);
   // Principal submatrices of a positive-definite matrix are positive definite.
   const x = factorOrFail(owner, subMatrix(covariance, 0, xDim), 'the X covariance');
@@ -154,7 +156,10 @@ function gaussianGroupLaw(owner: string, p: Record<string, number>) {
   const variance =
     p.within === 0
       ? { value: pairs * p.rho * p.rho, source: 'exact: m·ρ² (½ tr((I − D⁻¹Σ)²) for m independent correlated pairs)' }
-      : { value: gaussianInformationDensityVariance(covariance, p.dimX, factors), source: 'exact: tr(Σx⁻¹ Σxy Σy⁻¹ Σyx), the sum of squared canonical correlations' };
+      : {
+          value: gaussianInformationDensityVariance(covariance, p.dimX, factors),
+          source: 'exact: tr(Σx⁻¹ Σxy Σy⁻¹ Σyx), the sum of squared canonical correlations',
+        };
   return { covariance, factors, truth, variance };
 }
 
@@ -265,9 +270,7 @@ export function studentScaleInformation(nu: number, xDim: number, yDim: number):
   const hy = (nu + yDim) / 2;
   const hd = (nu + d) / 2;
   const h0 = nu / 2;
-  return (
-    logGamma(h0) + logGamma(hd) - logGamma(hx) - logGamma(hy) + hx * digamma(hx) + hy * digamma(hy) - hd * digamma(hd) - h0 * digamma(h0)
-  );
+  return logGamma(h0) + logGamma(hd) - logGamma(hx) - logGamma(hy) + hx * digamma(hx) + hy * digamma(hy) - hd * digamma(hd) - h0 * digamma(h0);
 }
 
 const miStudentT: ScenarioFamily = {
@@ -313,7 +316,9 @@ const miStudentT: ScenarioFamily = {
   ],
 };
 
-const uniformNoiseSpecs: ParamSpec[] = [{ name: 'a', meaning: 'width of the uniform noise W ~ U(0, a) added to X ~ U(0, 1)', default: 0.5, min: 0, minExclusive: true }];
+const uniformNoiseSpecs: ParamSpec[] = [
+  { name: 'a', meaning: 'width of the uniform noise W ~ U(0, a) added to X ~ U(0, 1)', default: 0.5, min: 0, minExclusive: true },
+];
 
 /**
  * I(X; X + W) for X ~ U(0,1), W ~ U(0,a). I = h(Y) − h(Y|X) = h(Y) − log a. The density of Y is the
@@ -386,7 +391,13 @@ const miUniformNoise: ScenarioFamily = {
       },
       informationDensityVariance: { value: variance, source: 'exact: s/2 − s²/4 with s = min(a, 1/a) (derived in scenarios/dependence.ts)' },
       // Var X = 1/12, Var Y = (1 + a²)/12, cov(X, Y) = Var X.
-      moments: { mean: [0.5, (1 + p.a) / 2], covariance: [[1 / 12, 1 / 12], [1 / 12, (1 + p.a * p.a) / 12]] },
+      moments: {
+        mean: [0.5, (1 + p.a) / 2],
+        covariance: [
+          [1 / 12, 1 / 12],
+          [1 / 12, (1 + p.a * p.a) / 12],
+        ],
+      },
       marginals: [univariateDensity('uniform', { a: 0, b: 1 }), trapezoidDensity(p.a)],
     });
   },

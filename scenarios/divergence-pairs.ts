@@ -18,7 +18,8 @@ import { gaussianRows, scenarioFromFacts, type ScenarioFacts } from './build.js'
 import { equicorrelated } from './multivariate.js';
 import { univariateDensity } from './univariate.js';
 
-const PENNY = 'Penny, KL-divergences of Normal, Gamma, Dirichlet and Wishart densities, tech. report, Wellcome Department of Cognitive Neurology, University College London (2001)';
+const PENNY =
+  'Penny, KL-divergences of Normal, Gamma, Dirichlet and Wishart densities, tech. report, Wellcome Department of Cognitive Neurology, University College London (2001)';
 
 export interface DivergenceDefinition extends ScenarioFacts {
   dim: number;
@@ -73,7 +74,15 @@ const gaussianPairSpecs: ParamSpec[] = [
   { name: 'dim', meaning: 'dimension d', default: 1, min: 1, max: 1000, integer: true },
   location('shift', 'mean of every coordinate of Q (P has mean 0)', 1),
   positive('sigma', 'standard deviation of every coordinate of Q (Q has independent coordinates)', 1),
-  { name: 'rho', meaning: 'correlation between every pair of coordinates of P (unit variances)', default: 0, min: -1, max: 1, minExclusive: true, maxExclusive: true },
+  {
+    name: 'rho',
+    meaning: 'correlation between every pair of coordinates of P (unit variances)',
+    default: 0,
+    min: -1,
+    max: 1,
+    minExclusive: true,
+    maxExclusive: true,
+  },
 ];
 
 const gaussianSource = `½[tr(Σq⁻¹Σp) + (μq−μp)ᵀΣq⁻¹(μq−μp) − d + log(det Σq/det Σp)]; Kullback, Information Theory and Statistics (1959); ${PENNY}`;
@@ -250,7 +259,8 @@ const klLaplace: ScenarioFamily = {
       params: p,
       dim: 1,
       truth: laplaceDivergence(p.muP, p.bP, p.muQ, p.bQ),
-      truthSource: 'log(bq/bp) − 1 + (δ + bp e^{−δ/bp})/bq with δ = |μp − μq|: E_P[log p − log q] using E_P|X − c| = δ + bp e^{−δ/bp} (derived in scenarios/divergence-pairs.ts)',
+      truthSource:
+        'log(bq/bp) − 1 + (δ + bp e^{−δ/bp})/bq with δ = |μp − μq|: E_P[log p − log q] using E_P|X − c| = δ + bp e^{−δ/bp} (derived in scenarios/divergence-pairs.ts)',
       support: 'unbounded',
       tails: 'exponential',
       drawP: (rng, n) => draws(laplaceRandom.factory(p.muP, p.bP, { prng: rng }), n),

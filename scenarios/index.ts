@@ -10,12 +10,7 @@
 import type { Scenario, ScenarioFamily } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { parseSpec, validateParams } from '../src/core/spec.js';
-import {
-  gaussianMixtureFamily,
-  monotoneMaps,
-  transformedExamples,
-  transformedScenario,
-} from './mixtures-and-transforms.js';
+import { gaussianMixtureFamily, monotoneMaps, transformedExamples, transformedScenario } from './mixtures-and-transforms.js';
 import { gaussianCovarianceScenario, multivariateFamilies, parseCovarianceArgument, productScenario } from './multivariate.js';
 import { univariateFamilies } from './univariate.js';
 import { LOOKALIKE_FAMILY, LOOKALIKE_SUMMARY, LOOKALIKE_USAGE, lookalikeScenario, parseLookalikeArgument } from './lookalike.js';
@@ -28,7 +23,11 @@ for (const f of [...univariateFamilies, ...multivariateFamilies, gaussianMixture
 /** Families written with a bracketed argument rather than key=value parameters. */
 export const bracketFamilies = [
   { id: 'product', usage: 'product[SPEC;SPEC;...]', summary: 'independent product of scenarios; entropies add' },
-  { id: 'transformed', usage: `transformed[MAP;SPEC], MAP one of ${monotoneMaps.map((m) => m.id).join(', ')}`, summary: 'monotone map of a 1-D scenario; numeric truth h + E[log|g′|]' },
+  {
+    id: 'transformed',
+    usage: `transformed[MAP;SPEC], MAP one of ${monotoneMaps.map((m) => m.id).join(', ')}`,
+    summary: 'monotone map of a 1-D scenario; numeric truth h + E[log|g′|]',
+  },
   { id: 'gaussian-covariance', usage: 'gaussian-covariance[ROW;ROW;...], entries comma-separated', summary: 'Gaussian with any covariance' },
   { id: LOOKALIKE_FAMILY, usage: LOOKALIKE_USAGE, summary: LOOKALIKE_SUMMARY },
 ] as const;

@@ -52,7 +52,9 @@ export interface MixtureComponent {
 
 /** The canonical spec of a mixture; numbers are written in their shortest round-trip form. */
 export function lookalikeSpec(components: readonly MixtureComponent[]): string {
-  const parts = components.map((c) => `${formatNumber(c.weight)}:${c.mean.map(formatNumber).join(',')}:${c.covariance.flatMap((row) => row.map(formatNumber)).join(',')}`);
+  const parts = components.map(
+    (c) => `${formatNumber(c.weight)}:${c.mean.map(formatNumber).join(',')}:${c.covariance.flatMap((row) => row.map(formatNumber)).join(',')}`,
+  );
   return `${LOOKALIKE_FAMILY}[${parts.join(';')}]`;
 }
 
@@ -66,22 +68,29 @@ function numbers(text: string, what: string): number[] {
 
 /** Parses the bracket argument (the ';'-separated components) into components, checking every rule. */
 export function parseLookalikeArgument(parts: readonly string[]): MixtureComponent[] {
-  if (!parts.length || (parts.length === 1 && parts[0] === '')) throw new UsageError(`${LOOKALIKE_FAMILY}[...] needs at least one component: ${LOOKALIKE_USAGE}`);
+  if (!parts.length || (parts.length === 1 && parts[0] === ''))
+    throw new UsageError(`${LOOKALIKE_FAMILY}[...] needs at least one component: ${LOOKALIKE_USAGE}`);
   let dim = -1;
   const components = parts.map((part, k) => {
     const fields = part.split(':');
-    if (fields.length !== 3) throw new UsageError(`${LOOKALIKE_FAMILY}: component ${k + 1} "${part}" must be WEIGHT:MEAN:COVARIANCE (three ':'-separated fields)`);
+    if (fields.length !== 3)
+      throw new UsageError(`${LOOKALIKE_FAMILY}: component ${k + 1} "${part}" must be WEIGHT:MEAN:COVARIANCE (three ':'-separated fields)`);
     const [weight] = numbers(fields[0], `component ${k + 1}'s weight`);
-    if (!(weight > 0 && weight <= 1)) throw new UsageError(`${LOOKALIKE_FAMILY}: component ${k + 1} has weight ${formatNumber(weight)}; weights must be in (0, 1]`);
+    if (!(weight > 0 && weight <= 1))
+      throw new UsageError(`${LOOKALIKE_FAMILY}: component ${k + 1} has weight ${formatNumber(weight)}; weights must be in (0, 1]`);
     const mean = numbers(fields[1], `component ${k + 1}'s mean`);
     if (dim < 0) dim = mean.length;
     if (mean.length !== dim) throw new UsageError(`${LOOKALIKE_FAMILY}: component ${k + 1} has a mean of length ${mean.length}; component 1 has ${dim}`);
     const flat = numbers(fields[2], `component ${k + 1}'s covariance`);
-    if (flat.length !== dim * dim) throw new UsageError(`${LOOKALIKE_FAMILY}: component ${k + 1}'s covariance has ${flat.length} entries; a ${dim}×${dim} matrix needs ${dim * dim}`);
+    if (flat.length !== dim * dim)
+      throw new UsageError(`${LOOKALIKE_FAMILY}: component ${k + 1}'s covariance has ${flat.length} entries; a ${dim}×${dim} matrix needs ${dim * dim}`);
     const covariance = Array.from({ length: dim }, (_, i) => flat.slice(i * dim, i * dim + dim));
     for (let i = 0; i < dim; i++) {
       for (let j = 0; j < i; j++) {
-        if (covariance[i][j] !== covariance[j][i]) throw new UsageError(`${LOOKALIKE_FAMILY}: component ${k + 1}'s covariance differs at (${i + 1},${j + 1}) and (${j + 1},${i + 1}); it must be symmetric`);
+        if (covariance[i][j] !== covariance[j][i])
+          throw new UsageError(
+            `${LOOKALIKE_FAMILY}: component ${k + 1}'s covariance differs at (${i + 1},${j + 1}) and (${j + 1},${i + 1}); it must be symmetric`,
+          );
       }
     }
     return { weight, mean, covariance };
@@ -333,7 +342,10 @@ export function lookalikeScenario(components: readonly MixtureComponent[]): Scen
   const marginals = Array.from({ length: dim }, (_, j) => marginalDensity(components, prepared.weights, j));
   const overallMean = Array.from({ length: dim }, (_, j) => components.reduce((s, c, k) => s + prepared.weights[k] * c.mean[j], 0));
   const covariance = Array.from({ length: dim }, (_, i) =>
-    Array.from({ length: dim }, (_, j) => components.reduce((s, c, k) => s + prepared.weights[k] * (c.covariance[i][j] + c.mean[i] * c.mean[j]), 0) - overallMean[i] * overallMean[j]),
+    Array.from(
+      { length: dim },
+      (_, j) => components.reduce((s, c, k) => s + prepared.weights[k] * (c.covariance[i][j] + c.mean[i] * c.mean[j]), 0) - overallMean[i] * overallMean[j],
+    ),
   );
   let truth: NumericTruth | undefined;
   const ensureTruth = () => (truth ??= computeTruth(id, prepared, marginals));

@@ -15,7 +15,9 @@ export const NUMERIC_TRUTH_BOUND = 1e-8;
 
 function checkBound(owner: string, error: number): void {
   if (!(error < NUMERIC_TRUTH_BOUND)) {
-    throw new UsageError(`${owner}: the quadrature error estimate ${formatError(error)} exceeds ${NUMERIC_TRUTH_BOUND}; this parameter set is too extreme for a trustworthy numeric truth`);
+    throw new UsageError(
+      `${owner}: the quadrature error estimate ${formatError(error)} exceeds ${NUMERIC_TRUTH_BOUND}; this parameter set is too extreme for a trustworthy numeric truth`,
+    );
   }
 }
 
@@ -71,7 +73,11 @@ export function gaussianMixtureScenario(weights: number[], means: number[], sds:
     params[`mu${j + 1}`] = means[j];
     params[`sigma${j + 1}`] = sds[j];
   }
-  const id = formatSpec('gaussian-mixture', params, mixtureSpecs(k).map((s) => s.name));
+  const id = formatSpec(
+    'gaussian-mixture',
+    params,
+    mixtureSpecs(k).map((s) => s.name),
+  );
   const entropy = entropyByQuadrature(density);
   checkBound(id, entropy.error);
   const mean = weights.reduce((s, w, j) => s + w * means[j], 0);
@@ -132,7 +138,26 @@ export const gaussianMixtureFamily: ScenarioFamily & { parse(values: Record<stri
   },
   examples: [
     // Marron & Wand's "claw" density (Ann. Statist. 20(2), 1992): ½N(0,1) + Σ_{l=0..4} ⅒N(l/2 − 1, 0.1²).
-    { w1: 0.5, mu1: 0, sigma1: 1, w2: 0.1, mu2: -1, sigma2: 0.1, w3: 0.1, mu3: -0.5, sigma3: 0.1, w4: 0.1, mu4: 0, sigma4: 0.1, w5: 0.1, mu5: 0.5, sigma5: 0.1, w6: 0.1, mu6: 1, sigma6: 0.1 },
+    {
+      w1: 0.5,
+      mu1: 0,
+      sigma1: 1,
+      w2: 0.1,
+      mu2: -1,
+      sigma2: 0.1,
+      w3: 0.1,
+      mu3: -0.5,
+      sigma3: 0.1,
+      w4: 0.1,
+      mu4: 0,
+      sigma4: 0.1,
+      w5: 0.1,
+      mu5: 0.5,
+      sigma5: 0.1,
+      w6: 0.1,
+      mu6: 1,
+      sigma6: 0.1,
+    },
     // Two well separated, unequal components: a gap in the support that bins and bandwidths must bridge.
     { w1: 0.7, mu1: 0, sigma1: 1, w2: 0.3, mu2: 6, sigma2: 0.5 },
   ],
@@ -146,7 +171,8 @@ function fromParams(p: Record<string, number>): Scenario {
     components = Math.max(components, Number(match[2]));
   }
   if (components === 0) components = 2;
-  if (components > MAX_MIXTURE_COMPONENTS) throw new UsageError(`gaussian-mixture: ${components} components given; at most ${MAX_MIXTURE_COMPONENTS} are allowed`);
+  if (components > MAX_MIXTURE_COMPONENTS)
+    throw new UsageError(`gaussian-mixture: ${components} components given; at most ${MAX_MIXTURE_COMPONENTS} are allowed`);
   const weights: number[] = [];
   const means: number[] = [];
   const sds: number[] = [];
@@ -157,7 +183,8 @@ function fromParams(p: Record<string, number>): Scenario {
     const sigma = p[`sigma${j}`] ?? 1;
     if (w === undefined || mu === undefined) throw new UsageError(`gaussian-mixture: component ${j} needs w${j} and mu${j}`);
     if (!(w > 0 && w <= 1)) throw new UsageError(`gaussian-mixture: w${j}=${formatNumber(w)} is not allowed; weights must be in (0, 1]`);
-    if (!(sigma > 0) || !Number.isFinite(sigma)) throw new UsageError(`gaussian-mixture: sigma${j}=${formatNumber(sigma)} is not allowed; it must be a number > 0`);
+    if (!(sigma > 0) || !Number.isFinite(sigma))
+      throw new UsageError(`gaussian-mixture: sigma${j}=${formatNumber(sigma)} is not allowed; it must be a number > 0`);
     if (!Number.isFinite(mu)) throw new UsageError(`gaussian-mixture: mu${j}=${formatNumber(mu)} is not a finite number`);
     weights.push(w);
     means.push(mu);
@@ -172,7 +199,10 @@ interface MonotoneMap {
   summary: string;
   params: ParamSpec[];
   /** Builds the map for validated params; `base` lets maps check their domain. */
-  build(p: Record<string, number>, base: Scenario): {
+  build(
+    p: Record<string, number>,
+    base: Scenario,
+  ): {
     apply: (x: number) => number;
     logAbsDerivative: (x: number) => number;
     support: Scenario['support'];
@@ -202,7 +232,8 @@ export const monotoneMaps: MonotoneMap[] = [
     summary: 'eˣ: makes any base positive and right-skewed; log g′ = x',
     params: [],
     build: (_p, base) => {
-      if (base.tails === 'heavy') throw new UsageError(`transformed[exp;${base.id}]: exp of a heavy-tailed base has no finite entropy shift; use a light or exponential-tailed base`);
+      if (base.tails === 'heavy')
+        throw new UsageError(`transformed[exp;${base.id}]: exp of a heavy-tailed base has no finite entropy shift; use a light or exponential-tailed base`);
       return { apply: Math.exp, logAbsDerivative: (x) => x, support: base.support === 'bounded' ? 'bounded' : 'half', tails: 'heavy' };
     },
   },
@@ -292,7 +323,11 @@ export function transformedScenario(mapId: string, mapValues: Record<string, str
     ...baseDensity,
     breakpoints: [...(baseDensity.breakpoints ?? []), ...(g.breakpoints ?? [])],
   };
-  const mapSpec = formatSpec(mapId, mapParams, map.params.map((s) => s.name));
+  const mapSpec = formatSpec(
+    mapId,
+    mapParams,
+    map.params.map((s) => s.name),
+  );
   const id = `transformed[${mapSpec};${base.id}]`;
   const shift = expectation(shiftDensity, (x) => g.logAbsDerivative(x));
   checkBound(id, shift.error);

@@ -15,7 +15,15 @@ const LOG_2PI_E = Math.log(2 * Math.PI * Math.E);
 const CT = 'Cover & Thomas, Elements of Information Theory, 2nd ed. (2006)';
 
 const dimSpec = (def: number): ParamSpec => ({ name: 'dim', meaning: 'dimension d', default: def, min: 1, max: 1000, integer: true });
-const rhoSpec: ParamSpec = { name: 'rho', meaning: 'correlation between every pair of coordinates', default: 0.5, min: -1, max: 1, minExclusive: true, maxExclusive: true };
+const rhoSpec: ParamSpec = {
+  name: 'rho',
+  meaning: 'correlation between every pair of coordinates',
+  default: 0.5,
+  min: -1,
+  max: 1,
+  minExclusive: true,
+  maxExclusive: true,
+};
 const positive = (name: string, meaning: string, def: number): ParamSpec => ({ name, meaning, default: def, min: 0, minExclusive: true });
 
 /** Standard deviations σ·spread^{i/(d−1)}, i = 0..d−1: log-spaced so `spread` is the largest/smallest ratio. */
@@ -126,7 +134,8 @@ export function parseCovarianceArgument(text: string): number[][] {
   });
   for (let i = 0; i < dim; i++) {
     for (let j = 0; j < i; j++) {
-      if (rows[i][j] !== rows[j][i]) throw new UsageError(`gaussian-covariance: entries (${i + 1},${j + 1}) and (${j + 1},${i + 1}) differ; the matrix must be symmetric`);
+      if (rows[i][j] !== rows[j][i])
+        throw new UsageError(`gaussian-covariance: entries (${i + 1},${j + 1}) and (${j + 1},${i + 1}) differ; the matrix must be symmetric`);
     }
   }
   return rows;
@@ -225,13 +234,14 @@ const uniformBall: ScenarioFamily = {
       },
       moments: {
         mean: new Array<number>(p.dim).fill(0),
-        covariance: Array.from({ length: p.dim }, (_, i) =>
-          Array.from({ length: p.dim }, (_, j) => (i === j ? (p.radius * p.radius) / (p.dim + 2) : 0)),
-        ),
+        covariance: Array.from({ length: p.dim }, (_, i) => Array.from({ length: p.dim }, (_, j) => (i === j ? (p.radius * p.radius) / (p.dim + 2) : 0))),
       },
     };
   },
-  examples: [{ dim: 2, radius: 1 }, { dim: 5, radius: 1 }],
+  examples: [
+    { dim: 2, radius: 1 },
+    { dim: 5, radius: 1 },
+  ],
 };
 
 const tSpecs: ParamSpec[] = [dimSpec(2), positive('nu', 'degrees of freedom', 4), { ...rhoSpec, default: 0 }, positive('sigma', 'scale of each coordinate', 1)];
@@ -277,10 +287,7 @@ const studentTMv: ScenarioFamily = {
         return logNormaliser - half * Math.log1p(q / nu);
       },
       marginals: Array.from({ length: d }, () => univariateDensity('student-t', { nu, mu: 0, sigma: p.sigma })),
-      moments:
-        nu > 2
-          ? { mean: new Array<number>(d).fill(0), covariance: shape.map((row) => row.map((v) => (v * nu) / (nu - 2))) }
-          : undefined,
+      moments: nu > 2 ? { mean: new Array<number>(d).fill(0), covariance: shape.map((row) => row.map((v) => (v * nu) / (nu - 2))) } : undefined,
     };
   },
   examples: [{ dim: 3, nu: 3, rho: 0.3, sigma: 1 }],
@@ -315,7 +322,7 @@ const lognormalMv: ScenarioFamily = {
       truth: 0.5 * (d * LOG_2PI_E + chol.logDeterminant) + d * p.mu,
       truthSource: `½ log((2πe)^d det Σ) + Σ μᵢ: the Gaussian entropy (${CT}) plus the mean log-Jacobian of exp`,
       logDensityVariance: d / 2 + oneSigmaOne,
-      logDensityVarianceSource: "exact: Var(Q/2 + 1ᵀX) = d/2 + 1ᵀΣ1, Q ~ χ²_d uncorrelated with 1ᵀX",
+      logDensityVarianceSource: 'exact: Var(Q/2 + 1ᵀX) = d/2 + 1ᵀΣ1, Q ~ χ²_d uncorrelated with 1ᵀX',
       support: 'half',
       tails: 'heavy',
       sample: (rng, n) =>
@@ -390,7 +397,7 @@ export function productScenario(components: Scenario[]): Scenario {
       }
       return total;
     },
-    logDensityVarianceSource: 'sum of the components\' Var(log f) (independence)',
+    logDensityVarianceSource: "sum of the components' Var(log f) (independence)",
   };
   if (components.every((c) => c.logDensity)) {
     scenario.logDensity = (x) => components.reduce((s, c, k) => s + c.logDensity!(Array.from({ length: c.dim }, (_, j) => x[offsets[k] + j])), 0);

@@ -6,21 +6,33 @@
  * distributions", IEEE Trans. Inf. Theory 24(1), 1978 ("Lazo–Rathie 1978"). Draws come from the
  * @stdlib/random-base-* samplers fed with the replicate's stream.
  */
-import { arcsineRandom, betaRandom, cauchyRandom, chiRandom, chisquareRandom, exponentialRandom, frechetRandom, gammaRandom, gumbelRandom, invgammaRandom, kumaraswamyRandom, laplaceRandom, levyRandom, logisticRandom, lognormalRandom, normalRandom, paretoRandom, rayleighRandom, tRandom, triangularRandom, uniformRandom, weibullRandom } from '../src/math/random.js';
+import {
+  arcsineRandom,
+  betaRandom,
+  cauchyRandom,
+  chiRandom,
+  chisquareRandom,
+  exponentialRandom,
+  frechetRandom,
+  gammaRandom,
+  gumbelRandom,
+  invgammaRandom,
+  kumaraswamyRandom,
+  laplaceRandom,
+  levyRandom,
+  logisticRandom,
+  lognormalRandom,
+  normalRandom,
+  paretoRandom,
+  rayleighRandom,
+  tRandom,
+  triangularRandom,
+  uniformRandom,
+  weibullRandom,
+} from '../src/math/random.js';
 import type { ParamSpec, ScenarioFamily, UnivariateDensity } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
-import {
-  EULER_GAMMA,
-  digamma,
-  erf,
-  erfc,
-  logBeta,
-  logGamma,
-  normalCdf,
-  regularizedBeta,
-  regularizedGammaP,
-  trigamma,
-} from '../src/math/special.js';
+import { EULER_GAMMA, digamma, erf, erfc, logBeta, logGamma, normalCdf, regularizedBeta, regularizedGammaP, trigamma } from '../src/math/special.js';
 import { family, univariateScenario } from './build.js';
 
 const LOG_2PI = Math.log(2 * Math.PI);
@@ -42,55 +54,70 @@ function requireOrder(familyId: string, lowName: string, low: number, highName: 
 }
 
 const uniformSpecs = [location('a', 'lower end'), location('b', 'upper end', 1)];
-const uniform = family('uniform', 'uniform on [a, b]; bounded, flat', uniformSpecs, (p) => {
-  requireOrder('uniform', 'a', p.a, 'b', p.b);
-  const width = p.b - p.a;
-  return univariateScenario({
-    family: 'uniform',
-    specs: uniformSpecs,
-    params: p,
-    truth: Math.log(width),
-    truthSource: `log(b − a); ${CT}`,
-    support: 'bounded',
-    tails: 'light',
-    density: {
-      lower: p.a,
-      upper: p.b,
-      logDensity: (x) => (x >= p.a && x <= p.b ? -Math.log(width) : -Infinity),
-      cdf: (x) => Math.min(1, Math.max(0, (x - p.a) / width)),
-    },
-    sampler: (rng) => uniformRandom.factory(p.a, p.b, { prng: rng }),
-    logDensityVariance: { value: 0, source: 'exact: log f is constant on the support' },
-    mean: (p.a + p.b) / 2,
-    variance: (width * width) / 12,
-  });
-}, [{ a: -0.5, b: 0.5 }]);
+const uniform = family(
+  'uniform',
+  'uniform on [a, b]; bounded, flat',
+  uniformSpecs,
+  (p) => {
+    requireOrder('uniform', 'a', p.a, 'b', p.b);
+    const width = p.b - p.a;
+    return univariateScenario({
+      family: 'uniform',
+      specs: uniformSpecs,
+      params: p,
+      truth: Math.log(width),
+      truthSource: `log(b − a); ${CT}`,
+      support: 'bounded',
+      tails: 'light',
+      density: {
+        lower: p.a,
+        upper: p.b,
+        logDensity: (x) => (x >= p.a && x <= p.b ? -Math.log(width) : -Infinity),
+        cdf: (x) => Math.min(1, Math.max(0, (x - p.a) / width)),
+      },
+      sampler: (rng) => uniformRandom.factory(p.a, p.b, { prng: rng }),
+      logDensityVariance: { value: 0, source: 'exact: log f is constant on the support' },
+      mean: (p.a + p.b) / 2,
+      variance: (width * width) / 12,
+    });
+  },
+  [{ a: -0.5, b: 0.5 }],
+);
 
 const normalSpecs = [location('mu', 'mean'), positive('sigma', 'standard deviation', 1)];
-const normal = family('normal', 'Gaussian; the maximum-entropy law for a given variance', normalSpecs, (p) =>
-  univariateScenario({
-    family: 'normal',
-    specs: normalSpecs,
-    params: p,
-    truth: 0.5 * Math.log(2 * Math.PI * Math.E * p.sigma * p.sigma),
-    truthSource: `½ log(2πeσ²); ${CT}`,
-    support: 'unbounded',
-    tails: 'light',
-    density: {
-      lower: -Infinity,
-      upper: Infinity,
-      logDensity: (x) => {
-        const z = (x - p.mu) / p.sigma;
-        return -0.5 * z * z - Math.log(p.sigma) - 0.5 * LOG_2PI;
+const normal = family(
+  'normal',
+  'Gaussian; the maximum-entropy law for a given variance',
+  normalSpecs,
+  (p) =>
+    univariateScenario({
+      family: 'normal',
+      specs: normalSpecs,
+      params: p,
+      truth: 0.5 * Math.log(2 * Math.PI * Math.E * p.sigma * p.sigma),
+      truthSource: `½ log(2πeσ²); ${CT}`,
+      support: 'unbounded',
+      tails: 'light',
+      density: {
+        lower: -Infinity,
+        upper: Infinity,
+        logDensity: (x) => {
+          const z = (x - p.mu) / p.sigma;
+          return -0.5 * z * z - Math.log(p.sigma) - 0.5 * LOG_2PI;
+        },
+        cdf: (x) => normalCdf((x - p.mu) / p.sigma),
+        breakpoints: [p.mu],
       },
-      cdf: (x) => normalCdf((x - p.mu) / p.sigma),
-      breakpoints: [p.mu],
-    },
-    sampler: (rng) => normalRandom.factory(p.mu, p.sigma, { prng: rng }),
-    logDensityVariance: { value: 0.5, source: 'exact: log f = c − Z²/2 with Z² ~ χ²₁, Var = 2/4' },
-    mean: p.mu,
-    variance: p.sigma * p.sigma,
-  }), [{ mu: 0, sigma: 0.01 }, { mu: 0, sigma: 100 }]);
+      sampler: (rng) => normalRandom.factory(p.mu, p.sigma, { prng: rng }),
+      logDensityVariance: { value: 0.5, source: 'exact: log f = c − Z²/2 with Z² ~ χ²₁, Var = 2/4' },
+      mean: p.mu,
+      variance: p.sigma * p.sigma,
+    }),
+  [
+    { mu: 0, sigma: 0.01 },
+    { mu: 0, sigma: 100 },
+  ],
+);
 
 const exponentialSpecs = [positive('rate', 'rate λ (1/mean)', 1)];
 const exponential = family('exponential', 'exponential; half-bounded, exponential tail', exponentialSpecs, (p) =>
@@ -113,7 +140,8 @@ const exponential = family('exponential', 'exponential; half-bounded, exponentia
     logDensityVariance: { value: 1, source: 'exact: log f = log λ − λX, Var(λX) = 1' },
     mean: 1 / p.rate,
     variance: 1 / (p.rate * p.rate),
-  }));
+  }),
+);
 
 const laplaceSpecs = [location('mu', 'centre'), positive('b', 'scale', 1)];
 const laplace = family('laplace', 'Laplace (double exponential); a kink at the centre', laplaceSpecs, (p) =>
@@ -136,7 +164,8 @@ const laplace = family('laplace', 'Laplace (double exponential); a kink at the c
     logDensityVariance: { value: 1, source: 'exact: |X − μ|/b is exponential(1)' },
     mean: p.mu,
     variance: 2 * p.b * p.b,
-  }));
+  }),
+);
 
 const logisticSpecs = [location('mu', 'centre'), positive('s', 'scale', 1)];
 const logistic = family('logistic', 'logistic; Gaussian-like centre, exponential tails', logisticSpecs, (p) =>
@@ -161,7 +190,8 @@ const logistic = family('logistic', 'logistic; Gaussian-like centre, exponential
     sampler: (rng) => logisticRandom.factory(p.mu, p.s, { prng: rng }),
     mean: p.mu,
     variance: (p.s * p.s * Math.PI * Math.PI) / 3,
-  }));
+  }),
+);
 
 const cauchySpecs = [location('x0', 'centre (median)'), positive('gamma', 'half width at half maximum', 1)];
 const cauchy = family('cauchy', 'Cauchy; very heavy tails, no mean', cauchySpecs, (p) =>
@@ -185,7 +215,8 @@ const cauchy = family('cauchy', 'Cauchy; very heavy tails, no mean', cauchySpecs
     },
     sampler: (rng) => cauchyRandom.factory(p.x0, p.gamma, { prng: rng }),
     logDensityVariance: { value: (Math.PI * Math.PI) / 3, source: 'exact: Var(log(1 + Z²)) = ψ′(½) − ψ′(1) = π²/3 for Z Cauchy' },
-  }));
+  }),
+);
 
 /** Var(log f) of the Student t: ((ν+1)/2)²(ψ′(ν/2) − ψ′((ν+1)/2)), since 1/(1 + T²/ν) ~ Beta(ν/2, ½). */
 export function studentLogDensityVariance(nu: number, dim: number): number {
@@ -194,69 +225,80 @@ export function studentLogDensityVariance(nu: number, dim: number): number {
 }
 
 const studentSpecs = [positive('nu', 'degrees of freedom', 3), location('mu', 'centre'), positive('sigma', 'scale', 1)];
-const student = family('student-t', 'Student t; heavy tails whose weight ν sets', studentSpecs, (p) =>
-  univariateScenario({
-    family: 'student-t',
-    specs: studentSpecs,
-    params: p,
-    truth:
-      ((p.nu + 1) / 2) * (digamma((p.nu + 1) / 2) - digamma(p.nu / 2)) +
-      0.5 * Math.log(p.nu) +
-      logBeta(p.nu / 2, 0.5) +
-      Math.log(p.sigma),
-    truthSource: `((ν+1)/2)(ψ((ν+1)/2) − ψ(ν/2)) + log(√ν B(ν/2, ½)) + log σ; ${LR}`,
-    support: 'unbounded',
-    tails: 'heavy',
-    density: {
-      lower: -Infinity,
-      upper: Infinity,
-      logDensity: (x) => {
-        const z = (x - p.mu) / p.sigma;
-        return -0.5 * Math.log(p.nu) - logBeta(p.nu / 2, 0.5) - Math.log(p.sigma) - ((p.nu + 1) / 2) * Math.log1p((z * z) / p.nu);
+const student = family(
+  'student-t',
+  'Student t; heavy tails whose weight ν sets',
+  studentSpecs,
+  (p) =>
+    univariateScenario({
+      family: 'student-t',
+      specs: studentSpecs,
+      params: p,
+      truth: ((p.nu + 1) / 2) * (digamma((p.nu + 1) / 2) - digamma(p.nu / 2)) + 0.5 * Math.log(p.nu) + logBeta(p.nu / 2, 0.5) + Math.log(p.sigma),
+      truthSource: `((ν+1)/2)(ψ((ν+1)/2) − ψ(ν/2)) + log(√ν B(ν/2, ½)) + log σ; ${LR}`,
+      support: 'unbounded',
+      tails: 'heavy',
+      density: {
+        lower: -Infinity,
+        upper: Infinity,
+        logDensity: (x) => {
+          const z = (x - p.mu) / p.sigma;
+          return -0.5 * Math.log(p.nu) - logBeta(p.nu / 2, 0.5) - Math.log(p.sigma) - ((p.nu + 1) / 2) * Math.log1p((z * z) / p.nu);
+        },
+        cdf: (x) => {
+          const z = (x - p.mu) / p.sigma;
+          const tail = 0.5 * regularizedBeta(p.nu / (p.nu + z * z), p.nu / 2, 0.5);
+          return z < 0 ? tail : 1 - tail;
+        },
+        breakpoints: [p.mu],
       },
-      cdf: (x) => {
-        const z = (x - p.mu) / p.sigma;
-        const tail = 0.5 * regularizedBeta(p.nu / (p.nu + z * z), p.nu / 2, 0.5);
-        return z < 0 ? tail : 1 - tail;
+      sampler: (rng) => {
+        const draw = tRandom.factory(p.nu, { prng: rng });
+        return () => p.mu + p.sigma * draw();
       },
-      breakpoints: [p.mu],
-    },
-    sampler: (rng) => {
-      const draw = tRandom.factory(p.nu, { prng: rng });
-      return () => p.mu + p.sigma * draw();
-    },
-    logDensityVariance: { value: studentLogDensityVariance(p.nu, 1), source: 'exact: ((ν+1)/2)²(ψ′(ν/2) − ψ′((ν+1)/2))' },
-    mean: p.nu > 1 ? p.mu : undefined,
-    variance: p.nu > 2 ? (p.sigma * p.sigma * p.nu) / (p.nu - 2) : undefined,
-  }), [{ nu: 1.5, mu: 0, sigma: 1 }, { nu: 10, mu: 0, sigma: 1 }]);
+      logDensityVariance: { value: studentLogDensityVariance(p.nu, 1), source: 'exact: ((ν+1)/2)²(ψ′(ν/2) − ψ′((ν+1)/2))' },
+      mean: p.nu > 1 ? p.mu : undefined,
+      variance: p.nu > 2 ? (p.sigma * p.sigma * p.nu) / (p.nu - 2) : undefined,
+    }),
+  [
+    { nu: 1.5, mu: 0, sigma: 1 },
+    { nu: 10, mu: 0, sigma: 1 },
+  ],
+);
 
 const gammaSpecs = [positive('shape', 'shape k', 2), positive('scale', 'scale θ', 1)];
-const gamma = family('gamma', 'gamma; skewed, half-bounded (shape < 1 has a pole at 0)', gammaSpecs, (p) => {
-  const k = p.shape;
-  return univariateScenario({
-    family: 'gamma',
-    specs: gammaSpecs,
-    params: p,
-    truth: k + Math.log(p.scale) + logGamma(k) + (1 - k) * digamma(k),
-    truthSource: `k + log θ + log Γ(k) + (1 − k)ψ(k); ${LR}`,
-    support: 'half',
-    tails: 'exponential',
-    density: {
-      lower: 0,
-      upper: Infinity,
-      logDensity: (x) => (x > 0 ? (k - 1) * Math.log(x) - x / p.scale - logGamma(k) - k * Math.log(p.scale) : -Infinity),
-      cdf: (x) => (x <= 0 ? 0 : regularizedGammaP(k, x / p.scale)),
-      breakpoints: [Math.max(k - 1, 0.5) * p.scale, k * p.scale],
-    },
-    sampler: (rng) => gammaRandom.factory(k, 1 / p.scale, { prng: rng }),
-    logDensityVariance: {
-      value: (k - 1) * (k - 1) * trigamma(k) + k - 2 * (k - 1),
-      source: 'exact: (k−1)²ψ′(k) + k − 2(k−1), using Cov(log Y, Y) = 1 for Y ~ Gamma(k, 1)',
-    },
-    mean: k * p.scale,
-    variance: k * p.scale * p.scale,
-  });
-}, [{ shape: 0.5, scale: 1 }]);
+const gamma = family(
+  'gamma',
+  'gamma; skewed, half-bounded (shape < 1 has a pole at 0)',
+  gammaSpecs,
+  (p) => {
+    const k = p.shape;
+    return univariateScenario({
+      family: 'gamma',
+      specs: gammaSpecs,
+      params: p,
+      truth: k + Math.log(p.scale) + logGamma(k) + (1 - k) * digamma(k),
+      truthSource: `k + log θ + log Γ(k) + (1 − k)ψ(k); ${LR}`,
+      support: 'half',
+      tails: 'exponential',
+      density: {
+        lower: 0,
+        upper: Infinity,
+        logDensity: (x) => (x > 0 ? (k - 1) * Math.log(x) - x / p.scale - logGamma(k) - k * Math.log(p.scale) : -Infinity),
+        cdf: (x) => (x <= 0 ? 0 : regularizedGammaP(k, x / p.scale)),
+        breakpoints: [Math.max(k - 1, 0.5) * p.scale, k * p.scale],
+      },
+      sampler: (rng) => gammaRandom.factory(k, 1 / p.scale, { prng: rng }),
+      logDensityVariance: {
+        value: (k - 1) * (k - 1) * trigamma(k) + k - 2 * (k - 1),
+        source: 'exact: (k−1)²ψ′(k) + k − 2(k−1), using Cov(log Y, Y) = 1 for Y ~ Gamma(k, 1)',
+      },
+      mean: k * p.scale,
+      variance: k * p.scale * p.scale,
+    });
+  },
+  [{ shape: 0.5, scale: 1 }],
+);
 
 /**
  * Var(log f) of Beta(a, b): log f = (a−1) log U + (b−1) log(1−U) + c, with Var(log U) = ψ′(a) − ψ′(a+b),
@@ -269,28 +311,34 @@ function betaLogDensityVariance(a: number, b: number): number {
 const BETA_VARIANCE_SOURCE = 'exact: (a−1)²(ψ′(a) − ψ′(a+b)) + (b−1)²(ψ′(b) − ψ′(a+b)) − 2(a−1)(b−1)ψ′(a+b)';
 
 const betaSpecs = [positive('a', 'first shape α', 2), positive('b', 'second shape β', 5)];
-const beta = family('beta', 'beta on [0, 1]; bounded, skewed or U-shaped', betaSpecs, (p) =>
-  univariateScenario({
-    family: 'beta',
-    specs: betaSpecs,
-    params: p,
-    truth: logBeta(p.a, p.b) - (p.a - 1) * digamma(p.a) - (p.b - 1) * digamma(p.b) + (p.a + p.b - 2) * digamma(p.a + p.b),
-    truthSource: `log B(α,β) − (α−1)ψ(α) − (β−1)ψ(β) + (α+β−2)ψ(α+β); ${CT}`,
-    support: 'bounded',
-    tails: 'light',
-    density: {
-      lower: 0,
-      upper: 1,
-      logDensity: (x) => (x > 0 && x < 1 ? (p.a - 1) * Math.log(x) + (p.b - 1) * Math.log1p(-x) - logBeta(p.a, p.b) : -Infinity),
-      logDensityNearUpper: (u) => (u > 0 && u < 1 ? (p.a - 1) * Math.log1p(-u) + (p.b - 1) * Math.log(u) - logBeta(p.a, p.b) : -Infinity),
-      cdf: (x) => (x <= 0 ? 0 : x >= 1 ? 1 : regularizedBeta(x, p.a, p.b)),
-      breakpoints: [0.5],
-    },
-    sampler: (rng) => betaRandom.factory(p.a, p.b, { prng: rng }),
-    logDensityVariance: { value: betaLogDensityVariance(p.a, p.b), source: BETA_VARIANCE_SOURCE },
-    mean: p.a / (p.a + p.b),
-    variance: (p.a * p.b) / ((p.a + p.b) ** 2 * (p.a + p.b + 1)),
-  }), [{ a: 0.5, b: 0.5 }]);
+const beta = family(
+  'beta',
+  'beta on [0, 1]; bounded, skewed or U-shaped',
+  betaSpecs,
+  (p) =>
+    univariateScenario({
+      family: 'beta',
+      specs: betaSpecs,
+      params: p,
+      truth: logBeta(p.a, p.b) - (p.a - 1) * digamma(p.a) - (p.b - 1) * digamma(p.b) + (p.a + p.b - 2) * digamma(p.a + p.b),
+      truthSource: `log B(α,β) − (α−1)ψ(α) − (β−1)ψ(β) + (α+β−2)ψ(α+β); ${CT}`,
+      support: 'bounded',
+      tails: 'light',
+      density: {
+        lower: 0,
+        upper: 1,
+        logDensity: (x) => (x > 0 && x < 1 ? (p.a - 1) * Math.log(x) + (p.b - 1) * Math.log1p(-x) - logBeta(p.a, p.b) : -Infinity),
+        logDensityNearUpper: (u) => (u > 0 && u < 1 ? (p.a - 1) * Math.log1p(-u) + (p.b - 1) * Math.log(u) - logBeta(p.a, p.b) : -Infinity),
+        cdf: (x) => (x <= 0 ? 0 : x >= 1 ? 1 : regularizedBeta(x, p.a, p.b)),
+        breakpoints: [0.5],
+      },
+      sampler: (rng) => betaRandom.factory(p.a, p.b, { prng: rng }),
+      logDensityVariance: { value: betaLogDensityVariance(p.a, p.b), source: BETA_VARIANCE_SOURCE },
+      mean: p.a / (p.a + p.b),
+      variance: (p.a * p.b) / ((p.a + p.b) ** 2 * (p.a + p.b + 1)),
+    }),
+  [{ a: 0.5, b: 0.5 }],
+);
 
 const lognormalSpecs = [location('mu', 'mean of log X'), positive('sigma', 'SD of log X', 1)];
 const lognormal = family('lognormal', 'lognormal; skewed with a long right tail', lognormalSpecs, (p) =>
@@ -318,33 +366,40 @@ const lognormal = family('lognormal', 'lognormal; skewed with a long right tail'
     logDensityVariance: { value: p.sigma * p.sigma + 0.5, source: 'exact: Var(σZ + Z²/2) = σ² + ½' },
     mean: Math.exp(p.mu + (p.sigma * p.sigma) / 2),
     variance: Math.expm1(p.sigma * p.sigma) * Math.exp(2 * p.mu + p.sigma * p.sigma),
-  }));
+  }),
+);
 
 const weibullSpecs = [positive('k', 'shape', 1.5), positive('lambda', 'scale', 1)];
-const weibull = family('weibull', 'Weibull; shape k < 1 has a pole at 0 and a heavier tail', weibullSpecs, (p) =>
-  univariateScenario({
-    family: 'weibull',
-    specs: weibullSpecs,
-    params: p,
-    truth: EULER_GAMMA * (1 - 1 / p.k) + Math.log(p.lambda / p.k) + 1,
-    truthSource: `γ(1 − 1/k) + log(λ/k) + 1; ${LR}`,
-    support: 'half',
-    tails: p.k < 1 ? 'heavy' : p.k < 2 ? 'exponential' : 'light',
-    density: {
-      lower: 0,
-      upper: Infinity,
-      logDensity: (x) => {
-        if (!(x > 0)) return -Infinity;
-        const z = x / p.lambda;
-        return Math.log(p.k / p.lambda) + (p.k - 1) * Math.log(z) - Math.pow(z, p.k);
+const weibull = family(
+  'weibull',
+  'Weibull; shape k < 1 has a pole at 0 and a heavier tail',
+  weibullSpecs,
+  (p) =>
+    univariateScenario({
+      family: 'weibull',
+      specs: weibullSpecs,
+      params: p,
+      truth: EULER_GAMMA * (1 - 1 / p.k) + Math.log(p.lambda / p.k) + 1,
+      truthSource: `γ(1 − 1/k) + log(λ/k) + 1; ${LR}`,
+      support: 'half',
+      tails: p.k < 1 ? 'heavy' : p.k < 2 ? 'exponential' : 'light',
+      density: {
+        lower: 0,
+        upper: Infinity,
+        logDensity: (x) => {
+          if (!(x > 0)) return -Infinity;
+          const z = x / p.lambda;
+          return Math.log(p.k / p.lambda) + (p.k - 1) * Math.log(z) - Math.pow(z, p.k);
+        },
+        cdf: (x) => (x <= 0 ? 0 : -Math.expm1(-Math.pow(x / p.lambda, p.k))),
+        breakpoints: [p.lambda],
       },
-      cdf: (x) => (x <= 0 ? 0 : -Math.expm1(-Math.pow(x / p.lambda, p.k))),
-      breakpoints: [p.lambda],
-    },
-    sampler: (rng) => weibullRandom.factory(p.k, p.lambda, { prng: rng }),
-    mean: p.lambda * Math.exp(logGamma(1 + 1 / p.k)),
-    variance: p.lambda * p.lambda * (Math.exp(logGamma(1 + 2 / p.k)) - Math.exp(2 * logGamma(1 + 1 / p.k))),
-  }), [{ k: 0.7, lambda: 1 }]);
+      sampler: (rng) => weibullRandom.factory(p.k, p.lambda, { prng: rng }),
+      mean: p.lambda * Math.exp(logGamma(1 + 1 / p.k)),
+      variance: p.lambda * p.lambda * (Math.exp(logGamma(1 + 2 / p.k)) - Math.exp(2 * logGamma(1 + 1 / p.k))),
+    }),
+  [{ k: 0.7, lambda: 1 }],
+);
 
 const gumbelSpecs = [location('mu', 'mode'), positive('beta', 'scale', 1)];
 const gumbel = family('gumbel', 'Gumbel (largest extreme value); skewed right', gumbelSpecs, (p) =>
@@ -369,31 +424,38 @@ const gumbel = family('gumbel', 'Gumbel (largest extreme value); skewed right', 
     sampler: (rng) => gumbelRandom.factory(p.mu, p.beta, { prng: rng }),
     mean: p.mu + EULER_GAMMA * p.beta,
     variance: (Math.PI * Math.PI * p.beta * p.beta) / 6,
-  }));
+  }),
+);
 
 const paretoSpecs = [positive('alpha', 'tail index', 3), positive('xm', 'minimum value (scale)', 1)];
-const pareto = family('pareto', 'Pareto (type I); power-law tail with index α', paretoSpecs, (p) =>
-  univariateScenario({
-    family: 'pareto',
-    specs: paretoSpecs,
-    params: p,
-    truth: Math.log(p.xm / p.alpha) + 1 / p.alpha + 1,
-    truthSource: `log(x_m/α) + 1/α + 1; ${LR}`,
-    support: 'half',
-    tails: 'heavy',
-    density: {
-      lower: p.xm,
-      upper: Infinity,
-      logDensity: (x) => (x >= p.xm ? Math.log(p.alpha) + p.alpha * Math.log(p.xm) - (p.alpha + 1) * Math.log(x) : -Infinity),
-      cdf: (x) => (x <= p.xm ? 0 : -Math.expm1(p.alpha * Math.log(p.xm / x))),
-      breakpoints: [2 * p.xm],
-    },
-    sampler: (rng) => paretoRandom.factory(p.alpha, p.xm, { prng: rng }),
-    // log f = c − (α+1) log X with α log(X/x_m) ~ exponential(1): Var = ((α+1)/α)².
-    logDensityVariance: { value: ((p.alpha + 1) / p.alpha) ** 2, source: 'exact: α log(X/x_m) is exponential(1)' },
-    mean: p.alpha > 1 ? (p.alpha * p.xm) / (p.alpha - 1) : undefined,
-    variance: p.alpha > 2 ? (p.xm * p.xm * p.alpha) / ((p.alpha - 1) ** 2 * (p.alpha - 2)) : undefined,
-  }), [{ alpha: 1.5, xm: 1 }]);
+const pareto = family(
+  'pareto',
+  'Pareto (type I); power-law tail with index α',
+  paretoSpecs,
+  (p) =>
+    univariateScenario({
+      family: 'pareto',
+      specs: paretoSpecs,
+      params: p,
+      truth: Math.log(p.xm / p.alpha) + 1 / p.alpha + 1,
+      truthSource: `log(x_m/α) + 1/α + 1; ${LR}`,
+      support: 'half',
+      tails: 'heavy',
+      density: {
+        lower: p.xm,
+        upper: Infinity,
+        logDensity: (x) => (x >= p.xm ? Math.log(p.alpha) + p.alpha * Math.log(p.xm) - (p.alpha + 1) * Math.log(x) : -Infinity),
+        cdf: (x) => (x <= p.xm ? 0 : -Math.expm1(p.alpha * Math.log(p.xm / x))),
+        breakpoints: [2 * p.xm],
+      },
+      sampler: (rng) => paretoRandom.factory(p.alpha, p.xm, { prng: rng }),
+      // log f = c − (α+1) log X with α log(X/x_m) ~ exponential(1): Var = ((α+1)/α)².
+      logDensityVariance: { value: ((p.alpha + 1) / p.alpha) ** 2, source: 'exact: α log(X/x_m) is exponential(1)' },
+      mean: p.alpha > 1 ? (p.alpha * p.xm) / (p.alpha - 1) : undefined,
+      variance: p.alpha > 2 ? (p.xm * p.xm * p.alpha) / ((p.alpha - 1) ** 2 * (p.alpha - 2)) : undefined,
+    }),
+  [{ alpha: 1.5, xm: 1 }],
+);
 
 const triangularSpecs = [location('a', 'lower end'), location('b', 'upper end', 1), location('c', 'mode', 0.5)];
 const triangular = family('triangular', 'triangular on [a, b] with mode c; bounded, kinked', triangularSpecs, (p) => {
@@ -452,7 +514,8 @@ const rayleigh = family('rayleigh', 'Rayleigh: the length of a 2-D Gaussian vect
     sampler: (rng) => rayleighRandom.factory(p.sigma, { prng: rng }),
     mean: p.sigma * Math.sqrt(Math.PI / 2),
     variance: ((4 - Math.PI) / 2) * p.sigma * p.sigma,
-  }));
+  }),
+);
 
 /** Chi with k degrees of freedom, scaled by `scale`; shared by chi and Maxwell–Boltzmann. */
 function chiLike(k: number, scale: number) {
@@ -510,33 +573,39 @@ const chi = family('chi', 'chi: the length of a k-dimensional standard Gaussian 
 });
 
 const chisqSpecs = [positive('k', 'degrees of freedom', 4)];
-const chiSquared = family('chi-squared', 'chi-squared: a sum of k squared standard Gaussians', chisqSpecs, (p) => {
-  const halfK = p.k / 2;
-  return univariateScenario({
-    family: 'chi-squared',
-    specs: chisqSpecs,
-    params: p,
-    truth: halfK + Math.log(2) + logGamma(halfK) + (1 - halfK) * digamma(halfK),
-    truthSource: `k/2 + log(2Γ(k/2)) + (1 − k/2)ψ(k/2); ${LR}`,
-    support: 'half',
-    tails: 'exponential',
-    density: {
-      lower: 0,
-      upper: Infinity,
-      logDensity: (x) => (x > 0 ? (halfK - 1) * Math.log(x) - x / 2 - halfK * Math.LN2 - logGamma(halfK) : -Infinity),
-      cdf: (x) => (x <= 0 ? 0 : regularizedGammaP(halfK, x / 2)),
-      breakpoints: [Math.max(p.k - 2, 1), p.k],
-    },
-    sampler: (rng) => chisquareRandom.factory(p.k, { prng: rng }),
-    // Gamma(k/2, scale 2): the gamma formula with shape k/2.
-    logDensityVariance: {
-      value: (halfK - 1) * (halfK - 1) * trigamma(halfK) + halfK - 2 * (halfK - 1),
-      source: 'exact: gamma with shape k/2, (k/2−1)²ψ′(k/2) + k/2 − 2(k/2−1)',
-    },
-    mean: p.k,
-    variance: 2 * p.k,
-  });
-}, [{ k: 1 }]);
+const chiSquared = family(
+  'chi-squared',
+  'chi-squared: a sum of k squared standard Gaussians',
+  chisqSpecs,
+  (p) => {
+    const halfK = p.k / 2;
+    return univariateScenario({
+      family: 'chi-squared',
+      specs: chisqSpecs,
+      params: p,
+      truth: halfK + Math.log(2) + logGamma(halfK) + (1 - halfK) * digamma(halfK),
+      truthSource: `k/2 + log(2Γ(k/2)) + (1 − k/2)ψ(k/2); ${LR}`,
+      support: 'half',
+      tails: 'exponential',
+      density: {
+        lower: 0,
+        upper: Infinity,
+        logDensity: (x) => (x > 0 ? (halfK - 1) * Math.log(x) - x / 2 - halfK * Math.LN2 - logGamma(halfK) : -Infinity),
+        cdf: (x) => (x <= 0 ? 0 : regularizedGammaP(halfK, x / 2)),
+        breakpoints: [Math.max(p.k - 2, 1), p.k],
+      },
+      sampler: (rng) => chisquareRandom.factory(p.k, { prng: rng }),
+      // Gamma(k/2, scale 2): the gamma formula with shape k/2.
+      logDensityVariance: {
+        value: (halfK - 1) * (halfK - 1) * trigamma(halfK) + halfK - 2 * (halfK - 1),
+        source: 'exact: gamma with shape k/2, (k/2−1)²ψ′(k/2) + k/2 − 2(k/2−1)',
+      },
+      mean: p.k,
+      variance: 2 * p.k,
+    });
+  },
+  [{ k: 1 }],
+);
 
 const halfNormalSpecs = [positive('sigma', 'scale (SD of the folded Gaussian)', 1)];
 const halfNormal = family('half-normal', 'half-normal: |Z|σ; half-bounded with the density maximal at 0', halfNormalSpecs, (p) =>
@@ -562,43 +631,50 @@ const halfNormal = family('half-normal', 'half-normal: |Z|σ; half-bounded with 
     logDensityVariance: { value: 0.5, source: 'exact: log f = c − Z²/2 as for the Gaussian' },
     mean: p.sigma * Math.sqrt(2 / Math.PI),
     variance: p.sigma * p.sigma * (1 - 2 / Math.PI),
-  }));
+  }),
+);
 
 const genNormalSpecs = [location('mu', 'centre'), positive('alpha', 'scale', 1), positive('beta', 'shape (2: Gaussian, 1: Laplace, large: near-uniform)', 4)];
-const generalizedNormal = family('generalized-normal', 'generalized normal (exponential power); flat-topped for β > 2', genNormalSpecs, (p) => {
-  const invBeta = 1 / p.beta;
-  return univariateScenario({
-    family: 'generalized-normal',
-    specs: genNormalSpecs,
-    params: p,
-    truth: invBeta - Math.log(p.beta / (2 * p.alpha)) + logGamma(invBeta),
-    truthSource: '1/β − log(β/(2αΓ(1/β))); Nadarajah, J. Appl. Statist. 32(7) (2005)',
-    support: 'unbounded',
-    tails: p.beta >= 2 ? 'light' : 'exponential',
-    density: {
-      lower: -Infinity,
-      upper: Infinity,
-      logDensity: (x) => Math.log(p.beta / (2 * p.alpha)) - logGamma(invBeta) - Math.pow(Math.abs(x - p.mu) / p.alpha, p.beta),
-      cdf: (x) => {
-        const half = 0.5 * regularizedGammaP(invBeta, Math.pow(Math.abs(x - p.mu) / p.alpha, p.beta));
-        return x < p.mu ? 0.5 - half : 0.5 + half;
+const generalizedNormal = family(
+  'generalized-normal',
+  'generalized normal (exponential power); flat-topped for β > 2',
+  genNormalSpecs,
+  (p) => {
+    const invBeta = 1 / p.beta;
+    return univariateScenario({
+      family: 'generalized-normal',
+      specs: genNormalSpecs,
+      params: p,
+      truth: invBeta - Math.log(p.beta / (2 * p.alpha)) + logGamma(invBeta),
+      truthSource: '1/β − log(β/(2αΓ(1/β))); Nadarajah, J. Appl. Statist. 32(7) (2005)',
+      support: 'unbounded',
+      tails: p.beta >= 2 ? 'light' : 'exponential',
+      density: {
+        lower: -Infinity,
+        upper: Infinity,
+        logDensity: (x) => Math.log(p.beta / (2 * p.alpha)) - logGamma(invBeta) - Math.pow(Math.abs(x - p.mu) / p.alpha, p.beta),
+        cdf: (x) => {
+          const half = 0.5 * regularizedGammaP(invBeta, Math.pow(Math.abs(x - p.mu) / p.alpha, p.beta));
+          return x < p.mu ? 0.5 - half : 0.5 + half;
+        },
+        breakpoints: [p.mu - p.alpha, p.mu, p.mu + p.alpha],
       },
-      breakpoints: [p.mu - p.alpha, p.mu, p.mu + p.alpha],
-    },
-    sampler: (rng) => {
-      // |X − μ|/α = G^{1/β} with G ~ Gamma(1/β, 1), and a fair random sign.
-      const drawGamma = gammaRandom.factory(invBeta, 1, { prng: rng });
-      return () => {
-        const magnitude = p.alpha * Math.pow(drawGamma(), invBeta);
-        return rng() < 0.5 ? p.mu - magnitude : p.mu + magnitude;
-      };
-    },
-    // log f = c − G with G ~ Gamma(1/β, 1): Var = 1/β.
-    logDensityVariance: { value: invBeta, source: 'exact: (|X−μ|/α)^β ~ Gamma(1/β, 1)' },
-    mean: p.mu,
-    variance: p.alpha * p.alpha * Math.exp(logGamma(3 * invBeta) - logGamma(invBeta)),
-  });
-}, [{ mu: 0, alpha: 1, beta: 1.5 }]);
+      sampler: (rng) => {
+        // |X − μ|/α = G^{1/β} with G ~ Gamma(1/β, 1), and a fair random sign.
+        const drawGamma = gammaRandom.factory(invBeta, 1, { prng: rng });
+        return () => {
+          const magnitude = p.alpha * Math.pow(drawGamma(), invBeta);
+          return rng() < 0.5 ? p.mu - magnitude : p.mu + magnitude;
+        };
+      },
+      // log f = c − G with G ~ Gamma(1/β, 1): Var = 1/β.
+      logDensityVariance: { value: invBeta, source: 'exact: (|X−μ|/α)^β ~ Gamma(1/β, 1)' },
+      mean: p.mu,
+      variance: p.alpha * p.alpha * Math.exp(logGamma(3 * invBeta) - logGamma(invBeta)),
+    });
+  },
+  [{ mu: 0, alpha: 1, beta: 1.5 }],
+);
 
 const arcsineSpecs = [location('a', 'lower end'), location('b', 'upper end', 1)];
 const arcsine = family('arcsine', 'arcsine on [a, b]; poles at both ends', arcsineSpecs, (p) => {
@@ -650,7 +726,8 @@ const levy = family('levy', 'Lévy: a stable law with tail index ½; no mean', l
     sampler: (rng) => levyRandom.factory(p.mu, p.c, { prng: rng }),
     // X − μ = c/Z²: log f = const + 3 log|Z| − Z²/2, Var = 9·π²/8 + ½ − 3·Cov(log|Z|, Z²) with the covariance 1.
     logDensityVariance: { value: (9 * Math.PI * Math.PI) / 8 - 2.5, source: 'exact: X − μ = c/Z², Var(3 log|Z| − Z²/2) = 9π²/8 − 5/2' },
-  }));
+  }),
+);
 
 const frechetSpecs = [positive('alpha', 'tail index', 3), positive('s', 'scale', 1), location('m', 'lower end of the support')];
 const frechet = family('frechet', 'Fréchet (type II extreme value); power-law right tail', frechetSpecs, (p) =>
@@ -674,7 +751,8 @@ const frechet = family('frechet', 'Fréchet (type II extreme value); power-law r
       breakpoints: [p.m + p.s],
     },
     sampler: (rng) => frechetRandom.factory(p.alpha, p.s, p.m, { prng: rng }),
-  }));
+  }),
+);
 
 const invGammaSpecs = [positive('alpha', 'shape', 3), positive('beta', 'scale', 1)];
 const inverseGamma = family('inverse-gamma', 'inverse gamma: 1/Gamma; power-law right tail', invGammaSpecs, (p) =>
@@ -694,7 +772,8 @@ const inverseGamma = family('inverse-gamma', 'inverse gamma: 1/Gamma; power-law 
       breakpoints: [p.beta / (p.alpha + 1), p.beta],
     },
     sampler: (rng) => invgammaRandom.factory(p.alpha, p.beta, { prng: rng }),
-  }));
+  }),
+);
 
 const kumaraswamySpecs = [positive('a', 'first shape', 2), positive('b', 'second shape', 5)];
 const kumaraswamy = family('kumaraswamy', 'Kumaraswamy on [0, 1]; a beta-like law with a closed-form CDF', kumaraswamySpecs, (p) => {
@@ -710,8 +789,7 @@ const kumaraswamy = family('kumaraswamy', 'Kumaraswamy on [0, 1]; a beta-like la
     density: {
       lower: 0,
       upper: 1,
-      logDensity: (x) =>
-        x > 0 && x < 1 ? Math.log(p.a * p.b) + (p.a - 1) * Math.log(x) + (p.b - 1) * Math.log1p(-Math.pow(x, p.a)) : -Infinity,
+      logDensity: (x) => (x > 0 && x < 1 ? Math.log(p.a * p.b) + (p.a - 1) * Math.log(x) + (p.b - 1) * Math.log1p(-Math.pow(x, p.a)) : -Infinity),
       // 1 − (1 − u)^a = −expm1(a·log1p(−u)) keeps the distance u to the upper end.
       logDensityNearUpper: (u) =>
         u > 0 && u < 1 ? Math.log(p.a * p.b) + (p.a - 1) * Math.log1p(-u) + (p.b - 1) * Math.log(-Math.expm1(p.a * Math.log1p(-u))) : -Infinity,

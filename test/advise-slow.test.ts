@@ -24,23 +24,29 @@ const cases: { spec: string; n: number; trials: number }[] = [
 
 describe('bootstrap intervals of hhat advise FILE', () => {
   for (const { spec, n, trials } of cases) {
-    it.skipIf(!process.env.HHAT_SLOW)(`cover the truth at 95% within 3 Monte-Carlo SE: ${spec}, n = ${n}, ${trials} samples`, async () => {
-      const scenario = parseScenario(spec);
-      let covered = 0;
-      let coveredRaw = 0;
-      for (let t = 0; t < trials; t++) {
-        const sample = scenario.sample(rngFromSeed(`coverage ${spec} ${t}`), n);
-        // In-process: 550 advices would otherwise start 550 worker threads, and the estimators are built-ins.
-        const advice = await adviseFile(sample, { workers: 1, isolation: 'in-process', replicates: 40, resamples: 200, seed: 1000 + t });
-        const { interval, correctedInterval } = advice.estimate!;
-        if (correctedInterval!.lower <= scenario.truth && scenario.truth <= correctedInterval!.upper) covered++;
-        if (interval!.lower <= scenario.truth && scenario.truth <= interval!.upper) coveredRaw++;
-      }
-      const coverage = covered / trials;
-      const se = Math.sqrt((0.95 * 0.05) / trials);
-      console.log(`${spec} n=${n}: bias-corrected interval covers ${coverage.toFixed(3)}, raw interval ${(coveredRaw / trials).toFixed(3)} (M = ${trials}, 3 SE = ${(3 * se).toFixed(3)})`);
-      expect(Math.abs(coverage - 0.95)).toBeLessThanOrEqual(3 * se);
-    }, 1_800_000);
+    it.skipIf(!process.env.HHAT_SLOW)(
+      `cover the truth at 95% within 3 Monte-Carlo SE: ${spec}, n = ${n}, ${trials} samples`,
+      async () => {
+        const scenario = parseScenario(spec);
+        let covered = 0;
+        let coveredRaw = 0;
+        for (let t = 0; t < trials; t++) {
+          const sample = scenario.sample(rngFromSeed(`coverage ${spec} ${t}`), n);
+          // In-process: 550 advices would otherwise start 550 worker threads, and the estimators are built-ins.
+          const advice = await adviseFile(sample, { workers: 1, isolation: 'in-process', replicates: 40, resamples: 200, seed: 1000 + t });
+          const { interval, correctedInterval } = advice.estimate!;
+          if (correctedInterval!.lower <= scenario.truth && scenario.truth <= correctedInterval!.upper) covered++;
+          if (interval!.lower <= scenario.truth && scenario.truth <= interval!.upper) coveredRaw++;
+        }
+        const coverage = covered / trials;
+        const se = Math.sqrt((0.95 * 0.05) / trials);
+        console.log(
+          `${spec} n=${n}: bias-corrected interval covers ${coverage.toFixed(3)}, raw interval ${(coveredRaw / trials).toFixed(3)} (M = ${trials}, 3 SE = ${(3 * se).toFixed(3)})`,
+        );
+        expect(Math.abs(coverage - 0.95)).toBeLessThanOrEqual(3 * se);
+      },
+      1_800_000,
+    );
   }
 });
 
@@ -54,18 +60,25 @@ describe('hhat advise keeps to its time budget', () => {
     { n: 600, dim: 500, budget: 15 },
   ];
   for (const { n, dim, budget } of settings) {
-    it.skipIf(!process.env.HHAT_SLOW)(`--n ${n} --dim ${dim} --budget ${budget}`, async () => {
-      const started = performance.now();
-      try {
-        const advice = await adviseSituation({ n, dim, budgetSeconds: budget });
-        console.log(`advise --n ${n} --dim ${dim} --budget ${budget}: ${advice.seconds.toFixed(1)} s, ${advice.benchmark.replicates} replicates, warnings: ${advice.warnings.length}`);
-      } catch (error) {
-        expect(error).toBeInstanceOf(UsageError);
-        expect((error as Error).message).toMatch(new RegExp(`^--budget ${budget} is too small here: .* give --budget \\d+ or more(, or a smaller --n)?$`));
-        console.log(`advise --n ${n} --dim ${dim} --budget ${budget}: refused after ${((performance.now() - started) / 1000).toFixed(1)} s: ${(error as Error).message}`);
-      }
-      expect((performance.now() - started) / 1000).toBeLessThanOrEqual(budget * 1.2);
-    }, 120_000);
+    it.skipIf(!process.env.HHAT_SLOW)(
+      `--n ${n} --dim ${dim} --budget ${budget}`,
+      async () => {
+        const started = performance.now();
+        try {
+          const advice = await adviseSituation({ n, dim, budgetSeconds: budget });
+          console.log(
+            `advise --n ${n} --dim ${dim} --budget ${budget}: ${advice.seconds.toFixed(1)} s, ${advice.benchmark.replicates} replicates, warnings: ${advice.warnings.length}`,
+          );
+        } catch (error) {
+          expect(error).toBeInstanceOf(UsageError);
+          expect((error as Error).message).toMatch(new RegExp(`^--budget ${budget} is too small here: .* give --budget \\d+ or more(, or a smaller --n)?$`));
+          console.log(
+            `advise --n ${n} --dim ${dim} --budget ${budget}: refused after ${((performance.now() - started) / 1000).toFixed(1)} s: ${(error as Error).message}`,
+          );
+        }
+        expect((performance.now() - started) / 1000).toBeLessThanOrEqual(budget * 1.2);
+      },
+      120_000,
+    );
   }
 });
-

@@ -32,7 +32,15 @@ import { runCli as run } from './helpers/cli.js';
 
 interface Fixture {
   versions: Record<string, string>;
-  profiles: Record<string, { dim: number; data: number[]; correlation?: number[][]; columns: { skewness: number; hillK: number; hillXi: number; edgeM: number; upperRatio: number; lowerRatio: number }[] }>;
+  profiles: Record<
+    string,
+    {
+      dim: number;
+      data: number[];
+      correlation?: number[][];
+      columns: { skewness: number; hillK: number; hillXi: number; edgeM: number; upperRatio: number; lowerRatio: number }[];
+    }
+  >;
   quantiles: { values: number[]; probabilities: number[]; quantiles: number[] };
   mixtures: { weights: number[]; means: number[][]; covariances: number[][][]; entropy: number; error: number; method: string }[];
 }
@@ -236,8 +244,24 @@ describe('the look-alike scenario gaussian-mixture-mv[...]', () => {
 
   it('its draws have the mixture mean and covariance Σ w_k(Σ_k + μ_k μ_kᵀ) − μμᵀ', () => {
     const components = [
-      { weight: 0.4, mean: [0, 1, 2], covariance: [[1, 0.3, 0], [0.3, 1, 0.2], [0, 0.2, 0.5]] },
-      { weight: 0.6, mean: [2, -1, 0], covariance: [[0.5, 0, 0], [0, 2, -0.4], [0, -0.4, 1]] },
+      {
+        weight: 0.4,
+        mean: [0, 1, 2],
+        covariance: [
+          [1, 0.3, 0],
+          [0.3, 1, 0.2],
+          [0, 0.2, 0.5],
+        ],
+      },
+      {
+        weight: 0.6,
+        mean: [2, -1, 0],
+        covariance: [
+          [0.5, 0, 0],
+          [0, 2, -0.4],
+          [0, -0.4, 1],
+        ],
+      },
     ];
     const scenario = parseScenario(lookalikeSpec(components));
     const n = 100000;
@@ -382,19 +406,37 @@ describe('advice that no estimator is usable', () => {
     // 0.004975 nats. At n = 50 every estimator's RMSE is far above it.
     const { runTargeted } = await import('../src/analysis/advise/benchmark.js');
     const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');
-    const bench = await runTargeted({ scenarios: ['normal', 'normal:sigma=1.01'], estimators: applicableEstimators(1), n: 50, budgetSeconds: 30, minReplicates: 10, maxReplicates: 10, workers: 1 });
+    const bench = await runTargeted({
+      scenarios: ['normal', 'normal:sigma=1.01'],
+      estimators: applicableEstimators(1),
+      n: 50,
+      budgetSeconds: 30,
+      minReplicates: 10,
+      maxReplicates: 10,
+      workers: 1,
+    });
     const summaries = summarise(bench.run);
     const recommendation = recommend(bench.run, summaries);
     expect(recommendation.recommended).toBeNull();
     const spread = (normalEntropy(0, 1.01) - normalEntropy(0, 1)) / 2;
-    expect(recommendation.reason).toMatch(new RegExp(`larger than the spread of the true values over the matching scenarios \\(SD ${spread.toPrecision(2)} nats\\)`));
+    expect(recommendation.reason).toMatch(
+      new RegExp(`larger than the spread of the true values over the matching scenarios \\(SD ${spread.toPrecision(2)} nats\\)`),
+    );
     expect(Math.min(...summaries.map((x) => x.meanRmse.value).filter(Number.isFinite))).toBeGreaterThan(spread);
   });
 
   it('the runner-up is never an estimator that fails on some draws (constructed: the lowest RMSE marked failing)', async () => {
     const { runTargeted } = await import('../src/analysis/advise/benchmark.js');
     const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');
-    const bench = await runTargeted({ scenarios: ['normal'], estimators: applicableEstimators(1), n: 200, budgetSeconds: 30, minReplicates: 10, maxReplicates: 10, workers: 1 });
+    const bench = await runTargeted({
+      scenarios: ['normal'],
+      estimators: applicableEstimators(1),
+      n: 200,
+      budgetSeconds: 30,
+      minReplicates: 10,
+      maxReplicates: 10,
+      workers: 1,
+    });
     const ran = summarise(bench.run).filter((s) => Number.isFinite(s.meanRmse.value) && s.failedScenarios === 0);
     expect(ran.length).toBeGreaterThanOrEqual(3);
     // The best one now fails a draw of its only scenario: the recommendation and the runner-up skip it.
@@ -402,7 +444,9 @@ describe('advice that no estimator is usable', () => {
     const recommendation = recommend(bench.run, summaries);
     expect(recommendation.recommended).toBe(summaries[1]);
     expect(recommendation.runnerUp).toBe(summaries[2]);
-    expect(recommendation.reason).toMatch(new RegExp(`\\(${summaries[0].label.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')} has a lower RMSE but fails on 10\\.0% of draws\\)`));
+    expect(recommendation.reason).toMatch(
+      new RegExp(`\\(${summaries[0].label.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')} has a lower RMSE but fails on 10\\.0% of draws\\)`),
+    );
   });
 
   it('advise FILE with n ≤ d: one line, exit 1, no look-alike attempted', async () => {
@@ -443,7 +487,8 @@ describe('hhat advise on the command line', () => {
     const advice = JSON.parse(out);
     // With the counts fixed the advice is reproducible: a second run (on two threads again) gives the same numbers.
     const again = JSON.parse((await run(args)).out);
-    const scores = (x: { estimators: { estimator: string; meanRmse: number; meanBias: number }[] }) => x.estimators.map((e) => [e.estimator, e.meanRmse, e.meanBias]);
+    const scores = (x: { estimators: { estimator: string; meanRmse: number; meanBias: number }[] }) =>
+      x.estimators.map((e) => [e.estimator, e.meanRmse, e.meanBias]);
     expect(scores(again)).toEqual(scores(advice));
     expect(again.estimate).toEqual(advice.estimate);
     expect(advice.replicates).toBe(30);

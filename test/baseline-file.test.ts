@@ -139,7 +139,10 @@ describe('compact baseline file', () => {
     expectError([lines[0], lines[1].replace('"seed":11', '"seed":12'), ...lines.slice(2)].join('\n'), /line 2: the plan line does not match/);
     expectError(lines.slice(0, -1).join('\n'), /announces .* cell lines/);
     const last = lines.length - 1;
-    expectError([...lines.slice(0, last), lines[last].replace(/"estimates":\[[^,]*,/, '"estimates":[')].join('\n'), new RegExp(`line ${last + 1}: the cell's "estimates" must hold 6`));
+    expectError(
+      [...lines.slice(0, last), lines[last].replace(/"estimates":\[[^,]*,/, '"estimates":[')].join('\n'),
+      new RegExp(`line ${last + 1}: the cell's "estimates" must hold 6`),
+    );
     expectError([...lines.slice(0, last), '{"scenario":'].join('\n'), new RegExp(`line ${last + 1}: not valid JSON`));
   });
 });

@@ -47,7 +47,15 @@ describe.skipIf(!available)('the HTML report in headless Chromium', () => {
       executablePath: CHROMIUM,
       headless: true,
       viewport: { width: 1280, height: 900 },
-      args: ['--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'],
+      args: [
+        '--no-sandbox',
+        '--disable-gpu',
+        '--disable-quic',
+        '--no-first-run',
+        '--disable-background-networking',
+        '--disable-component-update',
+        '--disable-sync',
+      ],
     });
     page = context.pages()[0] ?? (await context.newPage());
     page.on('console', (message) => {

@@ -36,7 +36,8 @@ describe('hhat estimators', () => {
   it('--json gives settings, defaults, dimensions and a reference for every estimator', async () => {
     const list = JSON.parse((await run(['estimators', '--json'])).out) as { id: string; reference: string; settings: unknown[]; dims: unknown[] }[];
     const ids = list.map((e) => e.id);
-    for (const id of ['histogram', 'vasicek', 'van-es', 'ebrahimi', 'correa', 'kozachenko-leonenko', 'kozachenko-leonenko-weighted', 'kernel', 'gaussian']) expect(ids).toContain(id);
+    for (const id of ['histogram', 'vasicek', 'van-es', 'ebrahimi', 'correa', 'kozachenko-leonenko', 'kozachenko-leonenko-weighted', 'kernel', 'gaussian'])
+      expect(ids).toContain(id);
     for (const e of list) expect(e.reference.length).toBeGreaterThan(20);
   });
 });
@@ -103,7 +104,11 @@ describe('the installed command', () => {
 
   it('runs a small bench end to end and writes a run file', () => {
     const out = join(dir, 'cli-run.json');
-    const res = spawnSync('node', [bin, 'bench', '--scenario', 'uniform', '--estimator', 'vasicek', '--n', '200', '--replicates', '5', '--out', out, '--workers', '1'], { encoding: 'utf8' });
+    const res = spawnSync(
+      'node',
+      [bin, 'bench', '--scenario', 'uniform', '--estimator', 'vasicek', '--n', '200', '--replicates', '5', '--out', out, '--workers', '1'],
+      { encoding: 'utf8' },
+    );
     expect(res.status, res.stderr).toBe(0);
     expect(res.stdout).toMatch(/run file: /);
     const runFile = JSON.parse(readFileSync(out, 'utf8'));
@@ -131,7 +136,9 @@ describe('sizes the machine cannot hold', () => {
     const big = await run(['bench', '--scenario', 'gaussian:dim=50', '--n', '100000000', '--replicates', '2', '--workers', '1', '--quiet']);
     expect(big.code).toBe(2);
     expect(big.err.trim().split('\n')).toHaveLength(1);
-    expect(big.err).toMatch(/n = 100000000 asks for 100000000 points in d = 50, 5000000000 values in one array, beyond the 4294967296 a JavaScript typed array can hold/);
+    expect(big.err).toMatch(
+      /n = 100000000 asks for 100000000 points in d = 50, 5000000000 values in one array, beyond the 4294967296 a JavaScript typed array can hold/,
+    );
     const beyond = await run(['bench', '--scenario', 'normal', '--n', '1e12']);
     expect(beyond.code).toBe(2);
     expect(beyond.err).toMatch(/--n: "1e12" is not allowed; sample sizes must be integers from 2 to 100000000/);
@@ -140,7 +147,9 @@ describe('sizes the machine cannot hold', () => {
   it('the memory check names what a size needs against the memory given (a 16 GB machine here)', () => {
     // 1e8 points in d = 5 on 2 workers: 150 MB + 2 × 1e8 × 8 × (6·5 + 28) bytes = 92.95 GB (src/core/memory.ts's
     // formula, worked out here by hand).
-    expect(() => checkSampleMemory('n = 100000000', 1e8, 5, { workers: 2, totalBytes: 16e9 })).toThrow(/needs about 93 GB of memory .*more than this machine's 16 GB/);
+    expect(() => checkSampleMemory('n = 100000000', 1e8, 5, { workers: 2, totalBytes: 16e9 })).toThrow(
+      /needs about 93 GB of memory .*more than this machine's 16 GB/,
+    );
     expect(() => checkSampleMemory('n = 1000', 1000, 5, { workers: 2, totalBytes: 16e9 })).not.toThrow();
   });
 

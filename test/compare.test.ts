@@ -104,7 +104,9 @@ describe('--tolerance', () => {
     expect(parseTolerance('5%')).toEqual({ kind: 'ratio', value: 0.05 });
     for (const bad of ['-0.1', 'five', '5%%', '']) {
       expect(() => parseTolerance(bad)).toThrow(UsageError);
-      expect(() => parseTolerance(bad)).toThrow(/^--tolerance .* is not allowed; give a change in RMSE in nats \(e\.g\. 0\.01\) or a percentage of the base RMSE \(e\.g\. 5%\)/);
+      expect(() => parseTolerance(bad)).toThrow(
+        /^--tolerance .* is not allowed; give a change in RMSE in nats \(e\.g\. 0\.01\) or a percentage of the base RMSE \(e\.g\. 5%\)/,
+      );
     }
   });
 });
@@ -168,7 +170,10 @@ describe('comparing runs', () => {
     const worse = comparison.cells.filter((c) => c.status === 'worse');
     const others = comparison.cells.filter((c) => c.status !== 'worse');
     expect(worse.map((c) => `${c.scenario} ${c.estimator} ${c.n}`).sort()).toEqual(
-      comparison.cells.filter((c) => c.estimator.startsWith('kozachenko-leonenko:')).map((c) => `${c.scenario} ${c.estimator} ${c.n}`).sort(),
+      comparison.cells
+        .filter((c) => c.estimator.startsWith('kozachenko-leonenko:'))
+        .map((c) => `${c.scenario} ${c.estimator} ${c.n}`)
+        .sort(),
     );
     expect(worse).toHaveLength(12);
     expect(others.every((c) => c.status === 'unchanged')).toBe(true);
@@ -192,7 +197,9 @@ describe('comparing runs', () => {
     expect(cli.out).toContain('<details><summary>12 unchanged cells</summary>');
 
     // JUnit: read back with an XML parser; one testcase per cell, a <failure> for each worse cell.
-    const xml = new XMLParser({ ignoreAttributes: false, attributeNamePrefix: '', isArray: (name) => name === 'testcase' || name === 'failure' }).parse(readFileSync(join(dir, 'junit.xml'), 'utf8'));
+    const xml = new XMLParser({ ignoreAttributes: false, attributeNamePrefix: '', isArray: (name) => name === 'testcase' || name === 'failure' }).parse(
+      readFileSync(join(dir, 'junit.xml'), 'utf8'),
+    );
     const suite = xml.testsuites.testsuite;
     const cases = suite.testcase as { classname: string; name: string; failure?: { type: string; '#text': string }[] }[];
     expect(cases).toHaveLength(24);
@@ -220,7 +227,11 @@ describe('comparing runs', () => {
         cell.estimates[r] = null;
         cell.failures.push({ replicate: r, message: 'numeric: test' });
       }
-      cell.scores = scoreCell(cell.estimates.map((v) => (v === null ? NaN : v)), truth, cell.n);
+      cell.scores = scoreCell(
+        cell.estimates.map((v) => (v === null ? NaN : v)),
+        truth,
+        cell.n,
+      );
       return { next, cell };
     };
     // One new failure in 200: exact McNemar p = 1 (1 discordant pair), so not evidence of a higher failure rate.
@@ -236,7 +247,13 @@ describe('comparing runs', () => {
     const comparison = compareRuns(base, next, { tolerance: parseTolerance('1000%') });
     const changed = comparison.cells.filter((c) => c.status !== 'unchanged');
     expect(changed).toHaveLength(1);
-    expect(changed[0]).toMatchObject({ scenario: eight.cell.scenario, estimator: eight.cell.estimator, n: 200, status: 'worse', failures: { base: 0, next: 8, onlyNext: 8, onlyBase: 0 } });
+    expect(changed[0]).toMatchObject({
+      scenario: eight.cell.scenario,
+      estimator: eight.cell.estimator,
+      n: 200,
+      status: 'worse',
+      failures: { base: 0, next: 8, onlyNext: 8, onlyBase: 0 },
+    });
     expect(changed[0].failures.p).toBeCloseTo(2 * 2 ** -8, 12);
     expect(changed[0].reasons[0]).toMatch(/^failures 0 → 8 of 200: 8 replicates fail only in the new run, 0 only in the base \(exact McNemar p = 0.00781\)$/);
     expect(comparison.removed).toEqual([{ scenario: removed.scenario, estimator: removed.estimator, n: removed.n, perturbation: null }]);
@@ -290,7 +307,15 @@ describe('comparing runs', () => {
     const truth = edited.scenarios.find((s) => s.id === cell.scenario)!.truth;
     cell.estimates[0] = truth + 50;
     newCell.estimates = newCell.estimates.map((v, r) => (r === 0 ? v : v! + Math.sign(v! - truth) * 0.02));
-    for (const [c, t] of [[cell, truth], [newCell, truth]] as const) c.scores = scoreCell(c.estimates.map((v) => (v === null ? NaN : v)), t, c.n);
+    for (const [c, t] of [
+      [cell, truth],
+      [newCell, truth],
+    ] as const)
+      c.scores = scoreCell(
+        c.estimates.map((v) => (v === null ? NaN : v)),
+        t,
+        c.n,
+      );
     const [comparison] = compareRuns(edited, next).cells.filter((c) => c.status !== 'unchanged');
     // Direct check of the premise: the t test alone does not separate (its interval at α/3 includes 0).
     expect(comparison.test!.interval[0]).toBeLessThan(0);
@@ -310,7 +335,11 @@ describe('comparing runs', () => {
       const cell = next.cells[i];
       const truth = next.scenarios.find((s) => s.id === cell.scenario)!.truth;
       cell.estimates = cell.estimates.map((v, r) => truth + (v! - truth) * (r % 2 === 0 ? 1.25 : 0.8));
-      cell.scores = scoreCell(cell.estimates.map((v) => v ?? NaN), truth, cell.n);
+      cell.scores = scoreCell(
+        cell.estimates.map((v) => v ?? NaN),
+        truth,
+        cell.n,
+      );
     }
     const alone = changed.map((i) => {
       const one = structuredClone(base);
@@ -346,10 +375,18 @@ describe('comparing runs', () => {
     const cell = before.cells[index];
     before.scenarios.find((s) => s.id === cell.scenario)!.truth = 0;
     cell.estimates = cell.estimates.map((_, r) => ((r % 7) - 3) / 8);
-    cell.scores = scoreCell(cell.estimates.map((v) => v ?? NaN), 0, cell.n);
+    cell.scores = scoreCell(
+      cell.estimates.map((v) => v ?? NaN),
+      0,
+      cell.n,
+    );
     const next = structuredClone(before);
     next.cells[index].estimates = cell.estimates.map((v) => -v!);
-    next.cells[index].scores = scoreCell(next.cells[index].estimates.map((v) => v ?? NaN), 0, cell.n);
+    next.cells[index].scores = scoreCell(
+      next.cells[index].estimates.map((v) => v ?? NaN),
+      0,
+      cell.n,
+    );
     const comparison = compareRuns(before, next);
     const [moved] = comparison.cells.filter((c) => c.status !== 'unchanged');
     expect(moved).toMatchObject({ estimator: cell.estimator, status: 'changed-within-noise' });
@@ -376,7 +413,9 @@ describe('comparing runs', () => {
     expect(c.rmse.change).toBeCloseTo(rmse(0.05) - rmse(0), 10);
     expect(c.rmse.changeSe).toBeCloseTo(sd / Math.sqrt(d.length) / (rmse(0.05) + rmse(0)), 10);
     // Every output format carries them.
-    const row = formatComparisonMarkdown(comparison).split('\n').find((l) => l.includes(`| ${c.n} |`) && l.includes(c.scenario))!;
+    const row = formatComparisonMarkdown(comparison)
+      .split('\n')
+      .find((l) => l.includes(`| ${c.n} |`) && l.includes(c.scenario))!;
     expect(row).toMatch(/\| \+0\.0500 ± [0-9.e-]+ \|/);
     expect(formatComparisonJunit(comparison)).toMatch(/bias [^\n]* \(\+0\.0500 ± [0-9.e-]+\)/);
     const parsed = JSON.parse(formatComparisonJson(comparison)) as Comparison;
@@ -386,7 +425,9 @@ describe('comparing runs', () => {
 
   it('shard files are refused with one line', () => {
     const shard = { ...structuredClone(base), shard: { index: 1, count: 2 }, complete: false };
-    expect(() => compareRuns(shard, base, {}, { base: 'a.json', next: 'b.json' })).toThrow('a.json is shard 1/2 of a run; merge the shards (hhat merge) and compare the merged file');
+    expect(() => compareRuns(shard, base, {}, { base: 'a.json', next: 'b.json' })).toThrow(
+      'a.json is shard 1/2 of a run; merge the shards (hhat merge) and compare the merged file',
+    );
   });
 
   it('a change of 0.005 nats at 200 replicates: the paired test finds it, an unpaired comparison cannot', async () => {
@@ -418,7 +459,9 @@ describe('comparing runs', () => {
     const other = await runInProcess({ ...planB, seed: 100 });
     const comparison = compareRuns(b, other);
     expect(comparison.pairing.paired).toBe(false);
-    expect(comparison.pairing.reason).toBe("the runs drew different samples (seed 99 vs 100); Welch's t test on the squared errors, Fisher's exact test on failures");
+    expect(comparison.pairing.reason).toBe(
+      "the runs drew different samples (seed 99 vs 100); Welch's t test on the squared errors, Fisher's exact test on failures",
+    );
     expect(comparison.cells[0].test!.kind).toBe('welch-t');
     expect(comparison.cells[0].status).not.toBe('unchanged');
     expect(formatComparisonMarkdown(comparison).split('\n')[0]).toMatch(/\(unpaired, tolerance 0 nats\)$/);
@@ -434,9 +477,16 @@ describe('comparing runs', () => {
         cell.estimates[r] = null;
         cell.failures.push({ replicate: r, message: 'numeric: test' });
       }
-      cell.scores = scoreCell(cell.estimates.map((v) => (v === null ? NaN : v)), truth, cell.n);
+      cell.scores = scoreCell(
+        cell.estimates.map((v) => (v === null ? NaN : v)),
+        truth,
+        cell.n,
+      );
     };
-    fail(b, Array.from({ length: 10 }, (_, i) => i * 20));
+    fail(
+      b,
+      Array.from({ length: 10 }, (_, i) => i * 20),
+    );
     fail(next, [0, 2, 4, 6, 8, 10, 12, 14]);
     const [cell] = compareRuns(b, next, { tolerance: parseTolerance('1000%') }).cells;
     // Fisher's exact test on [[8, 12], [10, 190]]: scipy.stats.fisher_exact(...).pvalue = 2.7254076011028743e-05
@@ -474,7 +524,9 @@ describe('output details', () => {
     expect(bad.err.trim()).toBe(`hhat: ${path} is not an hhat run file (no "kind": "hhat-run")`);
     const failOn = await run(['compare', path, path, '--fail-on', 'slower']);
     expect(failOn.code).toBe(2);
-    expect(failOn.err.trim()).toBe('hhat: --fail-on slower is not allowed; it must be worse (a cell got worse beyond the tolerance) or changed (any cell differs)');
+    expect(failOn.err.trim()).toBe(
+      'hhat: --fail-on slower is not allowed; it must be worse (a cell got worse beyond the tolerance) or changed (any cell differs)',
+    );
     expect((await run(['compare', path, path, '--markdown', '--json'])).code).toBe(2);
   });
 });

@@ -72,7 +72,12 @@ const DECLARED: [string, Record<string, string | number>, CheckName][] = [
 function expectDeclaredExceptionsMeasured(report: ConformanceReport): void {
   for (const c of report.checks.filter((r) => r.declared)) {
     const compared = c.declared!.compared;
-    if (compared === undefined && DECLARED.some(([id, , check]) => id === report.estimator && check === c.check) && /measured anyway: the sample as drawn: EstimateError/.test(c.evidence)) continue;
+    if (
+      compared === undefined &&
+      DECLARED.some(([id, , check]) => id === report.estimator && check === c.check) &&
+      /measured anyway: the sample as drawn: EstimateError/.test(c.evidence)
+    )
+      continue;
     expect(compared, `${report.spec}: ${c.check}: the declared exception could not be measured: ${c.evidence}`).toBeDefined();
     expect(compared!.difference, `${report.spec}: ${c.check}: declared lacking, yet it holds: ${c.evidence}`).toBeGreaterThan(compared!.tolerance);
   }
@@ -303,7 +308,9 @@ const brokenEstimators: [CheckName, string, () => Promise<Estimator> | Estimator
     () =>
       broken(vasicek, 'finite-only-vasicek', {
         estimate: (sample, settings) =>
-          sample.dim === 1 ? vasicek.estimate(oneDimensional(sample.data.subarray(0, sample.n).filter(Number.isFinite)), settings) : vasicek.estimate(sample, settings),
+          sample.dim === 1
+            ? vasicek.estimate(oneDimensional(sample.data.subarray(0, sample.n).filter(Number.isFinite)), settings)
+            : vasicek.estimate(sample, settings),
       }),
   ],
   [
@@ -311,7 +318,11 @@ const brokenEstimators: [CheckName, string, () => Promise<Estimator> | Estimator
     'returns 0 for fewer than 3 points',
     () => broken(vasicek, 'zero-for-few-vasicek', { estimate: (sample, settings) => (sample.n < 3 ? 0 : vasicek.estimate(sample, settings)) }),
   ],
-  ['scale', 'ksg1 without its declared exception: rescaling X alone changes its neighbours (mutual information)', () => broken(ksg1, 'undeclared-ksg1', { lacks: undefined })],
+  [
+    'scale',
+    'ksg1 without its declared exception: rescaling X alone changes its neighbours (mutual information)',
+    () => broken(ksg1, 'undeclared-ksg1', { lacks: undefined }),
+  ],
   [
     'scale',
     'adds a term in the data’s unit, with per-variable scaling declared lacking (mutual information, one common factor)',
@@ -320,7 +331,8 @@ const brokenEstimators: [CheckName, string, () => Promise<Estimator> | Estimator
         estimate(sample, settings) {
           // The product of the column variances: unchanged by shifts and by swapping X and Y, not by a unit.
           let spread = 1;
-          for (let j = 0; j < sample.dim; j++) spread *= meanAndVariance(Float64Array.from({ length: sample.n }, (_, i) => sample.data[i * sample.dim + j])).variance;
+          for (let j = 0; j < sample.dim; j++)
+            spread *= meanAndVariance(Float64Array.from({ length: sample.n }, (_, i) => sample.data[i * sample.dim + j])).variance;
           return ksg1.estimate(sample, settings) + 1e-3 * Math.log(spread);
         },
       }),
@@ -349,7 +361,11 @@ const brokenEstimators: [CheckName, string, () => Promise<Estimator> | Estimator
         },
       }),
   ],
-  ['known-value', 'drops the minus sign of −½ log(1 − ρ²) (mutual information)', () => broken(miGaussian, 'sign-flipped-mi', { estimate: (sample, settings) => -miGaussian.estimate(sample, settings) })],
+  [
+    'known-value',
+    'drops the minus sign of −½ log(1 − ρ²) (mutual information)',
+    () => broken(miGaussian, 'sign-flipped-mi', { estimate: (sample, settings) => -miGaussian.estimate(sample, settings) }),
+  ],
   [
     'scale',
     'adds a ridge of 1e-3 data units² to both variances (divergence)',
@@ -491,7 +507,9 @@ describe('Estimator.lacks in a module', () => {
     expect(() => checkEstimator('m', { ...valid, lacks: { rowOrder: 'fits a trend in recording order', scale: () => undefined } })).not.toThrow();
   });
   it('refuses an unknown invariance, an empty reason or a non-object, in one line', () => {
-    expect(() => checkEstimator('m', { ...valid, lacks: { scales: 'x' } })).toThrow(/^m \("my-method"\): lacks\.scales is not an invariance hhat checks; the names are rowOrder, scale, separateScale, translation, symmetry, affine$/);
+    expect(() => checkEstimator('m', { ...valid, lacks: { scales: 'x' } })).toThrow(
+      /^m \("my-method"\): lacks\.scales is not an invariance hhat checks; the names are rowOrder, scale, separateScale, translation, symmetry, affine$/,
+    );
     expect(() => checkEstimator('m', { ...valid, lacks: { scale: '' } })).toThrow(/lacks\.scale is "".*non-empty string/);
     expect(() => checkEstimator('m', { ...valid, lacks: ['scale'] })).toThrow(/lacks is \["scale"\]; give an object/);
   });
@@ -521,7 +539,12 @@ describe('hhat check', () => {
   it('--json gives every check with its status, evidence and numbers, and the suite tolerances', async () => {
     const { code, out } = await runCli(['check', firstHalfModule, '--json']);
     expect(code).toBe(1);
-    const parsed = JSON.parse(out) as { module: string; passed: boolean; suite: { knownValueTolerancePerDimension: Record<string, number> }; estimators: ConformanceReport[] };
+    const parsed = JSON.parse(out) as {
+      module: string;
+      passed: boolean;
+      suite: { knownValueTolerancePerDimension: Record<string, number> };
+      estimators: ConformanceReport[];
+    };
     expect(parsed.passed).toBe(false);
     expect(parsed.suite.knownValueTolerancePerDimension.entropy).toBe(0.15);
     const rowOrder = parsed.estimators[0].checks.find((c) => c.check === 'row-order')!;

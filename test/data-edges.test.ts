@@ -232,6 +232,8 @@ describe('what cannot be brought to a safe range, and constant columns', () => {
     const sample = { n: values.length, dim: 1, data: Float64Array.from(values) };
     const error = caught(() => estimate('van-es', sample, { m: 1 }));
     expect(error.code).toBe('numeric');
-    expect(error.message).toMatch(/^van-es: the values span more than double precision can resolve \(range -9\.75e\+299 \.\. 9\.75e\+299, yet \d+ neighbouring values .*transform the data/);
+    expect(error.message).toMatch(
+      /^van-es: the values span more than double precision can resolve \(range -9\.75e\+299 \.\. 9\.75e\+299, yet \d+ neighbouring values .*transform the data/,
+    );
   });
 });

@@ -58,10 +58,36 @@ describe('decimal fields', () => {
   it('reads every decimal exactly as ECMAScript Number() does', () => {
     // Reference: ECMAScript StringToNumber, which V8 rounds correctly; both fast and slow paths are covered
     // (<= 15 significant digits with small exponents, and 16-20 digits or exponents beyond ±22).
-    const fixed = ['0', '-0', '+0', '1', '-1.5', '.5', '5.', '0.1', '1e22', '1e23', '9007199254740993', '1.7976931348623157e308',
-      '2e308', '4.9e-324', '2.2250738585072011e-308', '123456789012345', '1234567890123456', '0.30000000000000004',
-      '000123.4500', '1E-7', '1e+5', '  42  ', '\t-3.25', '9007199254740992', '9007199254740991', '0.9007199254740993',
-      '1234567890123456e-5', '-0.0000000000000001234567890123456'];
+    const fixed = [
+      '0',
+      '-0',
+      '+0',
+      '1',
+      '-1.5',
+      '.5',
+      '5.',
+      '0.1',
+      '1e22',
+      '1e23',
+      '9007199254740993',
+      '1.7976931348623157e308',
+      '2e308',
+      '4.9e-324',
+      '2.2250738585072011e-308',
+      '123456789012345',
+      '1234567890123456',
+      '0.30000000000000004',
+      '000123.4500',
+      '1E-7',
+      '1e+5',
+      '  42  ',
+      '\t-3.25',
+      '9007199254740992',
+      '9007199254740991',
+      '0.9007199254740993',
+      '1234567890123456e-5',
+      '-0.0000000000000001234567890123456',
+    ];
     for (const text of fixed) expect(Object.is(read(text), Number(text)), text).toBe(true);
     const rng = rngFromSeed('decimal-fields');
     for (let trial = 0; trial < 20000; trial++) {
@@ -92,14 +118,21 @@ describe('parseDelimited', () => {
     expect(table.columnNames).toEqual(['x', 'y', 'z']);
     expect(table.namedColumns).toBe(true);
     expect(table.headerLine).toBe(1);
-    expect(rows(table)).toEqual([[1, 2.5, -3], [400, 0.125, 6]]);
+    expect(rows(table)).toEqual([
+      [1, 2.5, -3],
+      [400, 0.125, 6],
+    ]);
   });
 
   it('reads a file without a header, naming columns by position', () => {
     const table = parseDelimited('1,2\n3,4\n5,6\n', { delimiter: 'comma' });
     expect(table.namedColumns).toBe(false);
     expect(table.columnNames).toEqual(['column 1', 'column 2']);
-    expect(rows(table)).toEqual([[1, 2], [3, 4], [5, 6]]);
+    expect(rows(table)).toEqual([
+      [1, 2],
+      [3, 4],
+      [5, 6],
+    ]);
   });
 
   it('accepts quoted header fields per RFC 4180 (delimiters, doubled quotes and line breaks inside quotes)', () => {
@@ -115,7 +148,10 @@ describe('parseDelimited', () => {
   });
 
   it('reads quoted numbers as numbers (RFC 4180 allows any field to be quoted)', () => {
-    expect(rows(parseDelimited('"1.5","2"\n"3",4\n', { delimiter: 'comma' }))).toEqual([[1.5, 2], [3, 4]]);
+    expect(rows(parseDelimited('"1.5","2"\n"3",4\n', { delimiter: 'comma' }))).toEqual([
+      [1.5, 2],
+      [3, 4],
+    ]);
   });
 
   it('accepts a UTF-8 byte order mark, CRLF line ends, comment lines and trailing blank lines', () => {
@@ -123,25 +159,40 @@ describe('parseDelimited', () => {
     const text = '\uFEFF# exported\r\nx,y\r\n# a note\r\n1,2\r\n3,4\r\n\r\n  \r\n\r\n';
     const table = parseDelimited(text, { delimiter: 'comma' });
     expect(table.columnNames).toEqual(['x', 'y']);
-    expect(rows(table)).toEqual([[1, 2], [3, 4]]);
+    expect(rows(table)).toEqual([
+      [1, 2],
+      [3, 4],
+    ]);
     // Same from bytes rather than a string.
-    expect(rows(parseDelimited(Buffer.from(text, 'utf8'), { delimiter: 'comma' }))).toEqual([[1, 2], [3, 4]]);
+    expect(rows(parseDelimited(Buffer.from(text, 'utf8'), { delimiter: 'comma' }))).toEqual([
+      [1, 2],
+      [3, 4],
+    ]);
   });
 
   it('accepts old Mac CR line ends, and skips a header written as a comment as numpy.savetxt does', () => {
-    expect(rows(parseDelimited('1,2\r3,4\r', { delimiter: 'comma' }))).toEqual([[1, 2], [3, 4]]);
+    expect(rows(parseDelimited('1,2\r3,4\r', { delimiter: 'comma' }))).toEqual([
+      [1, 2],
+      [3, 4],
+    ]);
     const savetxt = parseDelimited('# x y\n1.000000000000000000e+00 2.500000000000000000e-01\n');
     expect(savetxt.namedColumns).toBe(false);
     expect(rows(savetxt)).toEqual([[1, 0.25]]);
   });
 
   it('reads a last line without a line end, and spaces around fields', () => {
-    expect(rows(parseDelimited('a, b\n 1 , 2\n3,4', { delimiter: 'comma' }))).toEqual([[1, 2], [3, 4]]);
+    expect(rows(parseDelimited('a, b\n 1 , 2\n3,4', { delimiter: 'comma' }))).toEqual([
+      [1, 2],
+      [3, 4],
+    ]);
   });
 
   it('guesses tab, semicolon, comma or runs of spaces when no delimiter is given', () => {
     // Hand-made: one file per delimiter; the guess must split each into the same numbers.
-    const expected = [[1, 2, 3], [4, 5, 6]];
+    const expected = [
+      [1, 2, 3],
+      [4, 5, 6],
+    ];
     const cases: Array<[string, string]> = [
       ['tab', 'a\tb\tc\n1\t2\t3\n4\t5\t6\n'],
       ['semicolon', 'a;b;c\n1;2;3\n4;5;6\n'],
@@ -169,7 +220,10 @@ describe('parseDelimited', () => {
   it('recognises a header with an empty name, as pandas writes for an unnamed index', () => {
     const table = parseDelimited(',x\n0,1.5\n1,2.5\n', { delimiter: 'comma' });
     expect(table.columnNames).toEqual(['column 1', 'x']);
-    expect(rows(table)).toEqual([[0, 1.5], [1, 2.5]]);
+    expect(rows(table)).toEqual([
+      [0, 1.5],
+      [1, 2.5],
+    ]);
   });
 
   it('selects columns by name, position and range before reading, so text columns may be left out', () => {
@@ -177,14 +231,22 @@ describe('parseDelimited', () => {
     const byName = parseDelimited(text, { delimiter: 'comma', columns: 'z,x' });
     expect(byName.columnNames).toEqual(['z', 'x']);
     expect(byName.columnNumbers).toEqual([4, 2]);
-    expect(rows(byName)).toEqual([[3, 1], [6, 4]]);
-    expect(rows(parseDelimited(text, { delimiter: 'comma', columns: '2-3' }))).toEqual([[1, 2], [4, 5]]);
-    expect(rows(parseDelimited(text, { delimiter: 'comma', columns: '4, y' }))).toEqual([[3, 2], [6, 5]]);
+    expect(rows(byName)).toEqual([
+      [3, 1],
+      [6, 4],
+    ]);
+    expect(rows(parseDelimited(text, { delimiter: 'comma', columns: '2-3' }))).toEqual([
+      [1, 2],
+      [4, 5],
+    ]);
+    expect(rows(parseDelimited(text, { delimiter: 'comma', columns: '4, y' }))).toEqual([
+      [3, 2],
+      [6, 5],
+    ]);
   });
 
   describe('errors name the line, the column and what is allowed', () => {
-    const csv = (text: string, columns?: string): string =>
-      usageMessage(() => parseDelimited(text, { source: 'data.csv', delimiter: 'comma', columns }));
+    const csv = (text: string, columns?: string): string => usageMessage(() => parseDelimited(text, { source: 'data.csv', delimiter: 'comma', columns }));
 
     it('non-finite values and missing-value markers', () => {
       // The brief's example message: data.csv line 17, column 2: "NaN" is not a finite number.
@@ -208,9 +270,7 @@ describe('parseDelimited', () => {
       expect(message).toMatch(/^data\.csv line 2, column 1 \("name"\): "alpha" is not a number; expected a decimal/);
       expect(message).toContain('--columns 2');
       expect(csv('x\n1.5\n2,5\n', undefined)).toContain('line 3 has 2 fields');
-      expect(usageMessage(() => parseDelimited('x;y\n1,5;2\n', { source: 'eu.txt' }))).toContain(
-        'decimal commas are not read',
-      );
+      expect(usageMessage(() => parseDelimited('x;y\n1,5;2\n', { source: 'eu.txt' }))).toContain('decimal commas are not read');
     });
 
     it('ragged rows', () => {
@@ -245,9 +305,7 @@ describe('parseDelimited', () => {
       expect(usageMessage(() => parseDelimited(Buffer.from('\uFEFF1,2\n', 'utf16le'), { source: 'w.csv' }))).toBe(
         'w.csv is UTF-16 text; save it as UTF-8 (or plain ASCII) text',
       );
-      expect(usageMessage(() => parseDelimited(new Uint8Array([0x93, 0x4e, 0, 1, 2]), { source: 'a.csv' }))).toContain(
-        'a.csv contains zero bytes',
-      );
+      expect(usageMessage(() => parseDelimited(new Uint8Array([0x93, 0x4e, 0, 1, 2]), { source: 'a.csv' }))).toContain('a.csv contains zero bytes');
     });
   });
 });
@@ -277,7 +335,11 @@ describe('resolveColumns', () => {
 describe('parseJson', () => {
   it('reads the accepted shapes to the same sample', () => {
     // Hand-made: one 3 × 2 table written four ways.
-    const expected = [[1, 2], [3.5, -4], [5e-3, 6]];
+    const expected = [
+      [1, 2],
+      [3.5, -4],
+      [5e-3, 6],
+    ];
     const rowsForm = parseJson('[[1,2],[3.5,-4],[5e-3,6]]');
     expect(rows(rowsForm)).toEqual(expected);
     expect(rowsForm.namedColumns).toBe(false);
@@ -336,15 +398,17 @@ const npyExpected = JSON.parse(readFileSync(join(fixtureDir, 'expected.json'), '
 };
 
 describe('parseNpy on files written by NumPy', () => {
-  const load = (name: string, columns?: string) =>
-    parseNpy(readFileSync(join(fixtureDir, `${name}.npy`)), { source: `${name}.npy`, columns });
+  const load = (name: string, columns?: string) => parseNpy(readFileSync(join(fixtureDir, `${name}.npy`)), { source: `${name}.npy`, columns });
 
   it('covers the header versions, orders and dtypes the brief lists', () => {
     const cases = Object.values(npyExpected.readable);
     expect(new Set(cases.map((c) => c.version))).toEqual(new Set(['1.0', '2.0', '3.0']));
     expect(cases.some((c) => c.fortran_order)).toBe(true);
     for (const dtype of ['<f8', '>f8', '<f4', '>f4', '<i4', '<i8', '|u1']) {
-      expect(cases.map((c) => c.dtype), dtype).toContain(dtype);
+      expect(
+        cases.map((c) => c.dtype),
+        dtype,
+      ).toContain(dtype);
     }
   });
 
@@ -405,9 +469,7 @@ describe('parseNpy on files written by NumPy', () => {
     const version9 = Buffer.from(good);
     version9[6] = 9;
     expect(npy(version9)).toBe('a.npy: .npy format version 9.0 is not supported; versions 1.0, 2.0 and 3.0 are');
-    expect(npy(good.subarray(0, good.length - 8))).toBe(
-      'a.npy is cut short: shape (4, 3) of >f8 needs 96 data bytes, the file has 88',
-    );
+    expect(npy(good.subarray(0, good.length - 8))).toBe('a.npy is cut short: shape (4, 3) of >f8 needs 96 data bytes, the file has 88');
     expect(npy(good.subarray(0, 40))).toContain('ends inside its header');
     const damaged = Buffer.from(good.toString('latin1').replace("'shape'", "'shope'"), 'latin1');
     expect(npy(damaged)).toContain("the .npy header has no 'shape' tuple");
@@ -421,7 +483,10 @@ describe('parseNpy on files written by NumPy', () => {
 describe('readSample', () => {
   it('reads each format from a file, choosing the parser by extension', () => {
     // Hand-made: the same 2 × 2 table in every format; the .npy copy is NumPy's f8_column_2d fixture.
-    const expected = [[1, 2], [3, 4]];
+    const expected = [
+      [1, 2],
+      [3, 4],
+    ];
     const csv = readSample(writeTemp('t.csv', 'a,b\n1,2\n3,4\n'));
     expect(csv.format).toBe('csv');
     expect(csv.source).toBe(join(tempDir, 't.csv'));
@@ -455,9 +520,7 @@ describe('readSample', () => {
     mkdirSync(directory, { recursive: true });
     expect(usageMessage(() => readSample(directory))).toBe(`cannot read data file ${directory}: it is a directory`);
     expect(usageMessage(() => readSample(tempDir))).toBe(`cannot read data file ${tempDir}: it is a directory`);
-    expect(usageMessage(() => readSample('data.xlsx'))).toBe(
-      'data.xlsx has extension ".xlsx"; allowed: .csv, .tsv, .tab, .txt, .dat, .json, .npy',
-    );
+    expect(usageMessage(() => readSample('data.xlsx'))).toBe('data.xlsx has extension ".xlsx"; allowed: .csv, .tsv, .tab, .txt, .dat, .json, .npy');
     expect(usageMessage(() => formatOf('data'))).toContain('data has no extension; allowed: .csv');
   });
 
@@ -472,7 +535,10 @@ describe('selectTableColumns', () => {
     const table = parseJson('{"x":[1,2],"y":[3,4],"z":[5,6]}');
     const selected = selectTableColumns(table, 'z,1', 'd.json');
     expect(selected.columnNames).toEqual(['z', 'x']);
-    expect(rows(selected)).toEqual([[5, 1], [6, 2]]);
+    expect(rows(selected)).toEqual([
+      [5, 1],
+      [6, 2],
+    ]);
   });
 });
 
@@ -500,9 +566,7 @@ describe('findRepeats', () => {
     // Reference: %TypedArray%.prototype.sort without a comparator (numeric order, -0 before +0).
     const rng = rngFromSeed('sorted-order');
     const special = [0, -0, 5e-324, -5e-324, 1.7976931348623157e308, -1.7976931348623157e308, 1, -1, 2.5, 2.5];
-    const values = Float64Array.from({ length: 5000 }, (_, i) =>
-      i < special.length ? special[i] : (rng() - 0.5) * 10 ** Math.floor(rng() * 40 - 20),
-    );
+    const values = Float64Array.from({ length: 5000 }, (_, i) => (i < special.length ? special[i] : (rng() - 0.5) * 10 ** Math.floor(rng() * 40 - 20)));
     const expected = Float64Array.from(values).sort();
     const order = sortedOrder(values);
     const reordered = Float64Array.from(order, (index) => values[index]);

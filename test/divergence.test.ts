@@ -77,7 +77,11 @@ function meanAndSe(values: number[]): { mean: number; se: number } {
 
 describe('knn-divergence', () => {
   it('agrees with an O(n(n+m)) brute force to 1e-12 relative (d = 1, 2, 4; n ≠ m; k = 1, 2, 5)', () => {
-    for (const [dim, n, m] of [[1, 200, 400], [2, 300, 250], [4, 250, 300]]) {
+    for (const [dim, n, m] of [
+      [1, 200, 400],
+      [2, 300, 250],
+      [4, 250, 300],
+    ]) {
       const sample = pair(`wkv-${dim}`, n, m, dim);
       for (const k of [1, 2, 5]) {
         expect(relativeError(estimate('knn-divergence', sample, { k }), bruteKnnDivergence(sample, k)), `d=${dim} k=${k}`).toBeLessThan(1e-12);
@@ -110,7 +114,9 @@ describe('knn-divergence', () => {
   it('reports zero distances within P or between P and Q as ties, naming which', () => {
     const sample = pair('ties', 100, 100, 2);
     sample.data.copyWithin(20, 0, 2); // P row 10 repeats P row 0
-    expect(() => estimate('knn-divergence', sample)).toThrow(/^knn-divergence: 2 of 100 P points have their k-th \(k = 1\) nearest other P point at distance 0/);
+    expect(() => estimate('knn-divergence', sample)).toThrow(
+      /^knn-divergence: 2 of 100 P points have their k-th \(k = 1\) nearest other P point at distance 0/,
+    );
     expect(Number.isFinite(estimate('knn-divergence', sample, { k: 2 }))).toBe(true);
     const shared = pair('shared', 100, 100, 2);
     shared.q!.data.set(shared.data.subarray(0, 2), 6); // Q row 3 equals P row 0
@@ -158,7 +164,9 @@ describe('histogram-divergence', () => {
       expect.unreachable();
     } catch (error) {
       expect(error).toBeInstanceOf(EstimateError);
-      expect((error as Error).message).toMatch(/^histogram-divergence: 1 bin holding 1 of the 200 P points has no Q point, so the plug-in divergence is \+Infinity; use fewer bins/);
+      expect((error as Error).message).toMatch(
+        /^histogram-divergence: 1 bin holding 1 of the 200 P points has no Q point, so the plug-in divergence is \+Infinity; use fewer bins/,
+      );
     }
     const constant = pair('constant', 20, 20, 2);
     for (let i = 0; i < 20; i++) constant.data[2 * i] = constant.q!.data[2 * i] = 3;
@@ -244,23 +252,24 @@ describe('divergence scenarios', () => {
     }
   });
 
-  it.each(catalog().filter((s) => s.quantity === 'divergence' && s.moments).map((s) => [s.id, s] as const))(
-    '%s: the P sample matches the stated moments of P within 5 SE (n = 20000)',
-    (_id, s) => {
-      const n = 20000;
-      const d = s.dim;
-      const { data } = s.sample(replicateRng(99, s.id, n, 0), n);
-      const { mean: trueMean, covariance: trueCov } = s.moments!;
-      for (let j = 0; j < d; j++) {
-        const m = meanAndSe(Array.from({ length: n }, (_, i) => data[i * d + j]));
-        expect(Math.abs(m.mean - trueMean[j]), `mean[${j}]`).toBeLessThan(5 * m.se);
-        for (let k = 0; k <= j; k++) {
-          const p = meanAndSe(Array.from({ length: n }, (_, i) => (data[i * d + j] - trueMean[j]) * (data[i * d + k] - trueMean[k])));
-          expect(Math.abs(p.mean - trueCov[j][k]), `cov[${j}][${k}]`).toBeLessThan(5 * p.se);
-        }
+  it.each(
+    catalog()
+      .filter((s) => s.quantity === 'divergence' && s.moments)
+      .map((s) => [s.id, s] as const),
+  )('%s: the P sample matches the stated moments of P within 5 SE (n = 20000)', (_id, s) => {
+    const n = 20000;
+    const d = s.dim;
+    const { data } = s.sample(replicateRng(99, s.id, n, 0), n);
+    const { mean: trueMean, covariance: trueCov } = s.moments!;
+    for (let j = 0; j < d; j++) {
+      const m = meanAndSe(Array.from({ length: n }, (_, i) => data[i * d + j]));
+      expect(Math.abs(m.mean - trueMean[j]), `mean[${j}]`).toBeLessThan(5 * m.se);
+      for (let k = 0; k <= j; k++) {
+        const p = meanAndSe(Array.from({ length: n }, (_, i) => (data[i * d + j] - trueMean[j]) * (data[i * d + k] - trueMean[k])));
+        expect(Math.abs(p.mean - trueCov[j][k]), `cov[${j}][${k}]`).toBeLessThan(5 * p.se);
       }
-    },
-  );
+    }
+  });
 
   it('rejects parameters that give no finite divergence or no valid law, in one line', () => {
     expect(() => parseScenario('kl-uniform:a=0,b=1,c=0.2,d=2')).toThrow(/^kl-uniform: Q = U\(c, d\) must contain P = U\(a, b\)/);

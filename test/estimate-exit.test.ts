@@ -108,7 +108,9 @@ describe('hhat estimate with named estimators', () => {
     expect(code).toBe(1);
     expect(out).toMatch(/failed \(ties\)/);
     const reasons = lines(err).filter((line) => !line.startsWith('  '));
-    expect(reasons).toEqual([expect.stringMatching(new RegExp(`^hhat: kozachenko-leonenko: ${zeroThirdNeighbour} of ${n} points have their 3rd nearest neighbour at distance 0`))]);
+    expect(reasons).toEqual([
+      expect.stringMatching(new RegExp(`^hhat: kozachenko-leonenko: ${zeroThirdNeighbour} of ${n} points have their 3rd nearest neighbour at distance 0`)),
+    ]);
     expect(err).toContain(`  ${repeatedRows} of ${n} rows repeat an earlier row exactly`);
   });
 
@@ -158,7 +160,10 @@ describe('hhat estimate usage mistakes', () => {
     writeFileSync(twoColumns, Array.from({ length: 50 }, (_, i) => `${i},${(i * 7) % 13}`).join('\n'));
     const cases: [string[], RegExp][] = [
       [['estimate', times, '--estimator', 'kozachenko-leonenko', '--estimator', 'no-such-method'], /^hhat: unknown estimator "no-such-method"; known: /],
-      [['estimate', times, '--estimator', 'kernel:bandwidth=-1'], /^hhat: kernel: bandwidth=-1 is not allowed; bandwidth must be one of silverman \| scott \| likelihood-cv, or a number > 0\n$/],
+      [
+        ['estimate', times, '--estimator', 'kernel:bandwidth=-1'],
+        /^hhat: kernel: bandwidth=-1 is not allowed; bandwidth must be one of silverman \| scott \| likelihood-cv, or a number > 0\n$/,
+      ],
       [['estimate', times, '--estimator', 'ksg1'], /^hhat: ksg1 estimates mutual-information, but this call asks for entropy\n$/],
       [['estimate', twoColumns, '--estimator', 'vasicek'], /^hhat: vasicek does not support d = 2; it needs d = 1\n$/],
       [['estimate', join(dir, 'no-such-file.csv')], /^hhat: cannot read data file .*no-such-file\.csv/],
@@ -193,6 +198,8 @@ describe('the installed command', () => {
   it('documents the exit codes in its help', () => {
     const help = spawnSync(process.execPath, [bin, 'estimate', '--help'], { encoding: 'utf8' });
     expect(help.status).toBe(0);
-    expect(help.stdout).toMatch(/Exit codes:\n {2}0 .*\n(.*\n)* {2}1 {2}an estimator named with --estimator could not run(.*\n)* {2}2 {2}a mistake in the command/);
+    expect(help.stdout).toMatch(
+      /Exit codes:\n {2}0 .*\n(.*\n)* {2}1 {2}an estimator named with --estimator could not run(.*\n)* {2}2 {2}a mistake in the command/,
+    );
   });
 });

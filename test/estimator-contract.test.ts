@@ -68,7 +68,12 @@ describe('default sets, as the estimators declare them', () => {
       'gaussian',
     ]);
     expect(defaultPlan('mutual-information').estimators).toEqual(['ksg1', 'ksg2', 'mi-histogram', 'mi-kernel', 'mi-gaussian', 'mi-from-entropies']);
-    expect(defaultPlan('divergence').estimators).toEqual(['knn-divergence', 'histogram-divergence', 'gaussian-divergence', 'histogram-divergence:bins=sturges']);
+    expect(defaultPlan('divergence').estimators).toEqual([
+      'knn-divergence',
+      'histogram-divergence',
+      'gaussian-divergence',
+      'histogram-divergence:bins=sturges',
+    ]);
   });
 
   it('the MI and divergence default plans measure no tuning grid, so their new grids add no cell to them', () => {
@@ -143,7 +148,12 @@ describe('tuning grids, as the estimators declare them', () => {
   });
 
   it('a grid value the declaration does not allow is an error naming the estimator and the grid, not a silent gap', () => {
-    const broken: Estimator = { ...getEstimator('kozachenko-leonenko'), id: 'grid-with-zero', defaultFor: undefined, tuning: () => [{ setting: 'k', values: [0, 1] }] };
+    const broken: Estimator = {
+      ...getEstimator('kozachenko-leonenko'),
+      id: 'grid-with-zero',
+      defaultFor: undefined,
+      tuning: () => [{ setting: 'k', values: [0, 1] }],
+    };
     registerEstimator(broken);
     expect(() => tuningGrid(parseEstimatorSpec('grid-with-zero'), 0, 100)).toThrow(
       'grid-with-zero: its tuning grid at n = 100 (from grid-with-zero:k=3,norm=euclidean) has a value that is not allowed: grid-with-zero: k=0 is not allowed; k must be an integer ≥ 1',
@@ -155,7 +165,12 @@ describe('one validation, at the boundary', () => {
   it('estimators receive validated, typed settings with every default filled in', () => {
     const seen: Settings[] = [];
     const original = getEstimator('kozachenko-leonenko');
-    registerEstimator({ ...original, id: 'settings-spy', defaultFor: undefined, estimate: (sample, settings) => (seen.push(settings), original.estimate(sample, settings)) });
+    registerEstimator({
+      ...original,
+      id: 'settings-spy',
+      defaultFor: undefined,
+      estimate: (sample, settings) => (seen.push(settings), original.estimate(sample, settings)),
+    });
     const sample = sampleOf('normal', 200);
     runEstimator(parseEstimatorSpec('settings-spy:k=5'), sample);
     runEstimator(parseEstimatorSpec('settings-spy'), sample);
@@ -219,7 +234,9 @@ describe('one validation, at the boundary', () => {
     expect(bad({ defaultFor: { estimate: [{ order: 'first' }] } })).toThrow(/order is "first"; it must be a number/);
     expect(bad({ defaultFor: { estimate: [{ dims: [0, 2] }] } })).toThrow(/dims must be \[min, max\]/);
     expect(bad({ dims: [1, 3], defaultFor: { estimate: [{ dims: [2, 5] }] } })).toThrow(/dims \[2, 5\] reach beyond the estimator's own dims \[1, 3\]/);
-    expect(bad({ defaultFor: { bench: [{ settings: { bins: 'weekly' } }] } })).toThrow(/defaultFor\.bench\[0\]: bad: bins=weekly is not allowed; bins must be one of/);
+    expect(bad({ defaultFor: { bench: [{ settings: { bins: 'weekly' } }] } })).toThrow(
+      /defaultFor\.bench\[0\]: bad: bins=weekly is not allowed; bins must be one of/,
+    );
     expect(() => registerEstimator({ ...base, id: 'No Spaces' })).toThrow(/id "No Spaces" is not allowed/);
   });
 });
@@ -228,10 +245,18 @@ describe('the registry finds estimator files by itself', () => {
   it('lists the files of estimators/ by catalogOrder, each file its estimators in order; helpers live in subfolders', async () => {
     const folder = join(root, 'estimators');
     const files = readdirSync(folder, { withFileTypes: true }).filter((e) => e.isFile() && e.name.endsWith('.ts') && e.name !== 'index.ts');
-    const modules = await Promise.all(files.map(async (e) => (await import(join(folder, e.name))) as { registration: { catalogOrder: number; estimators: Estimator[] } }));
-    const expected = modules.sort((a, b) => a.registration.catalogOrder - b.registration.catalogOrder).flatMap((m) => m.registration.estimators.map((e) => e.id));
+    const modules = await Promise.all(
+      files.map(async (e) => (await import(join(folder, e.name))) as { registration: { catalogOrder: number; estimators: Estimator[] } }),
+    );
+    const expected = modules
+      .sort((a, b) => a.registration.catalogOrder - b.registration.catalogOrder)
+      .flatMap((m) => m.registration.estimators.map((e) => e.id));
     // (Estimators this file registers by code come after the built-ins.)
-    expect(listEstimators().map((e) => e.id).slice(0, expected.length)).toEqual(expected);
+    expect(
+      listEstimators()
+        .map((e) => e.id)
+        .slice(0, expected.length),
+    ).toEqual(expected);
     expect(new Set(modules.map((m) => m.registration.catalogOrder)).size).toBe(modules.length);
   });
 });
@@ -251,13 +276,24 @@ describe('an estimator added from a single file', () => {
     expect(Math.abs(value - builtIn) / Math.abs(builtIn)).toBeLessThan(1e-12);
     expect(seen.at(-1)).toEqual({ k: 4 });
 
-    const { plan } = resolvePlan({ scenarios: ['normal'], estimators: ['sorted-neighbour'], sampleSizes: [80], replicates: 3, robustness: { perturbations: ['rescale:c=1000'] } });
+    const { plan } = resolvePlan({
+      scenarios: ['normal'],
+      estimators: ['sorted-neighbour'],
+      sampleSizes: [80],
+      replicates: 3,
+      robustness: { perturbations: ['rescale:c=1000'] },
+    });
     const run = assembleRun(await runPlan(plan, { workers: 1, isolation: 'in-process' }), null);
     const [curve] = run.robustness!.tuning;
     expect(curve.estimator).toBe('sorted-neighbour:k=2');
     expect(curve.setting).toBe('k');
     expect(curve.points.map((p) => p.value)).toEqual([1, 2, 3, 4, 5]);
-    expect(run.cells.filter((c) => c.role === 'tuning').map((c) => c.estimator)).toEqual(['sorted-neighbour:k=1', 'sorted-neighbour:k=3', 'sorted-neighbour:k=4', 'sorted-neighbour:k=5']);
+    expect(run.cells.filter((c) => c.role === 'tuning').map((c) => c.estimator)).toEqual([
+      'sorted-neighbour:k=1',
+      'sorted-neighbour:k=3',
+      'sorted-neighbour:k=4',
+      'sorted-neighbour:k=5',
+    ]);
     // Every value the estimator saw was a validated number, never text from a spec.
     expect(new Set(seen.map((s) => typeof s.k))).toEqual(new Set(['number']));
   });
@@ -271,7 +307,8 @@ describe('an estimator added from a single file', () => {
     copyFileSync(join(root, 'package.json'), join(copy, 'package.json'));
     symlinkSync(realpathSync(join(root, 'node_modules')), join(copy, 'node_modules'));
     copyFileSync(fixtureFile, join(copy, 'dist', 'estimators', 'sorted-neighbour.js'));
-    const hhat = (...args: string[]) => spawnSync(process.execPath, [join(copy, 'bin', 'hhat.js'), ...args], { encoding: 'utf8', cwd: copy, env: { ...process.env, NODE_OPTIONS: '' } });
+    const hhat = (...args: string[]) =>
+      spawnSync(process.execPath, [join(copy, 'bin', 'hhat.js'), ...args], { encoding: 'utf8', cwd: copy, env: { ...process.env, NODE_OPTIONS: '' } });
 
     const catalog = hhat('estimators', '--json');
     expect(catalog.stderr).toBe('');
@@ -293,7 +330,24 @@ describe('an estimator added from a single file', () => {
     expect(Math.abs(mine - reference) / Math.abs(reference)).toBeLessThan(1e-12);
 
     // On worker threads, which rebuild the registry from the same folder.
-    const bench = hhat('bench', '--scenario', 'normal', '--estimator', 'sorted-neighbour', '--n', '60', '--replicates', '3', '--robustness', '--perturb', 'rescale:c=1000', '--out', 'run.json', '--workers', '2');
+    const bench = hhat(
+      'bench',
+      '--scenario',
+      'normal',
+      '--estimator',
+      'sorted-neighbour',
+      '--n',
+      '60',
+      '--replicates',
+      '3',
+      '--robustness',
+      '--perturb',
+      'rescale:c=1000',
+      '--out',
+      'run.json',
+      '--workers',
+      '2',
+    );
     expect(bench.status, bench.stderr).toBe(0);
     const run = JSON.parse(readFileSync(join(copy, 'run.json'), 'utf8')) as { robustness: { tuning: { setting: string; points: { value: number }[] }[] } };
     expect(run.robustness.tuning.map((c) => [c.setting, c.points.map((p) => p.value)])).toEqual([['k', [1, 2, 3, 4, 5]]]);

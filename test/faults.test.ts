@@ -72,20 +72,24 @@ describe('faulty estimator modules beside built-ins', () => {
     expect(bad.filter((b) => !b).length).toBeGreaterThan(0);
   });
 
-  it.each(cases)('%s: the run finishes, its faults are failures with the reason, everything else is unchanged', async (file, id, reason, seconds) => {
-    const result = await run([join(faults, file)], [id], seconds);
-    const faulty = result.cells.find((c) => c.estimatorId === id)!;
-    faulty.estimates.forEach((value, r) => {
-      if (bad[r]) {
-        expect(value, `replicate ${r}`).toBeNull();
-        expect(faulty.failures.find((f) => f.replicate === r)?.message).toMatch(reason);
-      } else {
-        expect(value, `replicate ${r}`).toBe(mean[r]);
-      }
-    });
-    const others = (x: RunFile) => x.cells.filter((c) => c.estimatorId !== id).map((c) => [c.estimator, c.estimates]);
-    expect(others(result)).toEqual(others(await builtIns()));
-  }, 60_000);
+  it.each(cases)(
+    '%s: the run finishes, its faults are failures with the reason, everything else is unchanged',
+    async (file, id, reason, seconds) => {
+      const result = await run([join(faults, file)], [id], seconds);
+      const faulty = result.cells.find((c) => c.estimatorId === id)!;
+      faulty.estimates.forEach((value, r) => {
+        if (bad[r]) {
+          expect(value, `replicate ${r}`).toBeNull();
+          expect(faulty.failures.find((f) => f.replicate === r)?.message).toMatch(reason);
+        } else {
+          expect(value, `replicate ${r}`).toBe(mean[r]);
+        }
+      });
+      const others = (x: RunFile) => x.cells.filter((c) => c.estimatorId !== id).map((c) => [c.estimator, c.estimates]);
+      expect(others(result)).toEqual(others(await builtIns()));
+    },
+    60_000,
+  );
 
   it('a plan file that names modules is refused without --allow-plan-modules, in one line', async () => {
     const plan = join(dir, 'modules-plan.json');
@@ -97,30 +101,39 @@ describe('faulty estimator modules beside built-ins', () => {
     expect(err).toMatch(/names estimator modules .*exit\.mjs.*runs with your rights; read them, then add --allow-plan-modules/);
   });
 
-  it.each(['SIGINT', 'SIGTERM'] as const)('%s stops a run with one worker stuck in a hung estimate within seconds, saving what finished', async (signal) => {
-    ensureBuilt(['src/harness/pool.ts', 'src/harness/runner.ts', 'src/commands/bench.ts', 'src/harness/worker.ts']);
-    const out = join(dir, `signal-${signal}.json`);
-    const plan = join(dir, `signal-${signal}-plan.json`);
-    // Two scenarios: on the first, all values are negative, so the fixture never hangs (it does for a first
-    // value above 0.674) and that unit finishes; it must survive the stop of the second, hung one.
-    writeFileSync(plan, JSON.stringify({ ...input([], ['faulty-hang'], 600), scenarios: ['uniform:a=-1,b=0', 'normal'], modules: [join(faults, 'hang.mjs')] }));
-    const child = spawn(process.execPath, [bin, 'bench', '--plan', plan, '--allow-plan-modules', '--workers', '1', '--out', out, '--quiet'], { stdio: ['ignore', 'ignore', 'pipe'] });
-    let stderr = '';
-    child.stderr.on('data', (d) => (stderr += d));
-    const exited = new Promise<number | null>((resolve) => child.once('exit', (code) => resolve(code)));
-    // Wait for the first finished unit in the checkpoint, then stop the run.
-    const checkpoint = `${out}.checkpoint.jsonl`;
-    const saved = () => existsSync(checkpoint) && readFileSync(checkpoint, 'utf8').split('\n').length > 2;
-    for (let i = 0; i < 2400 && !saved(); i++) await new Promise((r) => setTimeout(r, 25));
-    expect(saved(), 'the first unit was never saved').toBe(true);
-    const stopped = Date.now();
-    child.kill(signal);
-    const code = await exited;
-    expect((Date.now() - stopped) / 1000).toBeLessThan(3);
-    // 128 + the signal's number, the shells' convention: SIGINT 2, SIGTERM 15.
-    expect(code).toBe(signal === 'SIGINT' ? 130 : 143);
-    expect(stderr).toMatch(/interrupted: 1 of 2 units are saved in .*\ncontinue with the same command plus: --resume --out /);
-  }, 60_000);
+  it.each(['SIGINT', 'SIGTERM'] as const)(
+    '%s stops a run with one worker stuck in a hung estimate within seconds, saving what finished',
+    async (signal) => {
+      ensureBuilt(['src/harness/pool.ts', 'src/harness/runner.ts', 'src/commands/bench.ts', 'src/harness/worker.ts']);
+      const out = join(dir, `signal-${signal}.json`);
+      const plan = join(dir, `signal-${signal}-plan.json`);
+      // Two scenarios: on the first, all values are negative, so the fixture never hangs (it does for a first
+      // value above 0.674) and that unit finishes; it must survive the stop of the second, hung one.
+      writeFileSync(
+        plan,
+        JSON.stringify({ ...input([], ['faulty-hang'], 600), scenarios: ['uniform:a=-1,b=0', 'normal'], modules: [join(faults, 'hang.mjs')] }),
+      );
+      const child = spawn(process.execPath, [bin, 'bench', '--plan', plan, '--allow-plan-modules', '--workers', '1', '--out', out, '--quiet'], {
+        stdio: ['ignore', 'ignore', 'pipe'],
+      });
+      let stderr = '';
+      child.stderr.on('data', (d) => (stderr += d));
+      const exited = new Promise<number | null>((resolve) => child.once('exit', (code) => resolve(code)));
+      // Wait for the first finished unit in the checkpoint, then stop the run.
+      const checkpoint = `${out}.checkpoint.jsonl`;
+      const saved = () => existsSync(checkpoint) && readFileSync(checkpoint, 'utf8').split('\n').length > 2;
+      for (let i = 0; i < 2400 && !saved(); i++) await new Promise((r) => setTimeout(r, 25));
+      expect(saved(), 'the first unit was never saved').toBe(true);
+      const stopped = Date.now();
+      child.kill(signal);
+      const code = await exited;
+      expect((Date.now() - stopped) / 1000).toBeLessThan(3);
+      // 128 + the signal's number, the shells' convention: SIGINT 2, SIGTERM 15.
+      expect(code).toBe(signal === 'SIGINT' ? 130 : 143);
+      expect(stderr).toMatch(/interrupted: 1 of 2 units are saved in .*\ncontinue with the same command plus: --resume --out /);
+    },
+    60_000,
+  );
 
   it('hhat bench with the module that ends its process: exit 0, the failures in the run file', async () => {
     const out = join(dir, 'exit.json');
@@ -128,7 +141,10 @@ describe('faulty estimator modules beside built-ins', () => {
     writeFileSync(plan, JSON.stringify({ ...input([], ['faulty-exit']), modules: [join(faults, 'exit.mjs')] }));
     let err = '';
     let printed = '';
-    const code = await main(['bench', '--plan', plan, '--allow-plan-modules', '--out', out, '--no-chart'], { out: (t) => (printed += `${t}\n`), err: (t) => (err += t) });
+    const code = await main(['bench', '--plan', plan, '--allow-plan-modules', '--out', out, '--no-chart'], {
+      out: (t) => (printed += `${t}\n`),
+      err: (t) => (err += t),
+    });
     // At most the note that the module's estimator was added (not when an earlier test added it already).
     expect(err).toMatch(/^(estimator modules: added faulty-exit)?$/);
     expect(code).toBe(0);
@@ -136,6 +152,8 @@ describe('faulty estimator modules beside built-ins', () => {
     const expected = bad.flatMap((b, r) => (b ? [r] : []));
     expect(cell.failures.map((f) => f.replicate)).toEqual(expected);
     // The tables say why, with the count, not only the run file.
-    expect(printed).toContain(`  faulty-exit: the estimator ended its worker thread (exit code 3)${expected.length > 1 ? ` (${expected.length} times)` : ''}\n`);
+    expect(printed).toContain(
+      `  faulty-exit: the estimator ended its worker thread (exit code 3)${expected.length > 1 ? ` (${expected.length} times)` : ''}\n`,
+    );
   }, 60_000);
 });

@@ -21,7 +21,20 @@ import { hhatVersion } from '../src/core/provenance.js';
 const root = join(__dirname, '..');
 const bin = join(root, 'bin', 'hhat.js');
 const dir = mkdtempSync(join(tmpdir(), 'hhat-files-'));
-const PLAN = ['--scenario', 'normal', '--scenario', 'uniform', '--n', '100,1000', '--replicates', '40', '--estimator', 'kozachenko-leonenko', '--estimator', 'vasicek'];
+const PLAN = [
+  '--scenario',
+  'normal',
+  '--scenario',
+  'uniform',
+  '--n',
+  '100,1000',
+  '--replicates',
+  '40',
+  '--estimator',
+  'kozachenko-leonenko',
+  '--estimator',
+  'vasicek',
+];
 
 const estimates = (path: string) => readRunFile(path).cells.map((c) => [c.scenario, c.estimator, c.n, c.estimates]);
 
@@ -54,12 +67,18 @@ describe('where results go', () => {
   it('bench from an empty folder writes results/ there; a missing --out folder is created', () => {
     ensureBuilt(['src/commands/bench.ts', 'src/core/files.ts', 'src/harness/runner.ts', 'src/harness/pool.ts']);
     const empty = mkdtempSync(join(tmpdir(), 'hhat-empty-'));
-    const first = spawnSync(process.execPath, [bin, 'bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--quiet'], { cwd: empty, encoding: 'utf8' });
+    const first = spawnSync(process.execPath, [bin, 'bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--quiet'], {
+      cwd: empty,
+      encoding: 'utf8',
+    });
     expect(first.stderr).toBe('');
     expect(first.status).toBe(0);
     expect(readdirSync(join(empty, 'results')).filter((f) => f.endsWith('.json'))).toHaveLength(1);
     const nested = join(empty, 'a', 'b', 'run.json');
-    const second = spawnSync(process.execPath, [bin, 'bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--out', nested, '--quiet'], { cwd: empty, encoding: 'utf8' });
+    const second = spawnSync(process.execPath, [bin, 'bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--out', nested, '--quiet'], {
+      cwd: empty,
+      encoding: 'utf8',
+    });
     expect(second.status).toBe(0);
     expect(existsSync(nested)).toBe(true);
     // Nothing but the run file is left: no lock, no checkpoint, no temporary.
@@ -85,24 +104,28 @@ describe('where results go', () => {
 });
 
 describe('full and read-only disks (tmpfs)', () => {
-  it.skipIf(!canMount)('a disk that fills up: one line, exit 1, the checkpoint kept; resumed after space is freed, the same estimates', async () => {
-    const disk = join(dir, 'small-disk');
-    expect(tryMount(disk, 'size=16k')).toBe(true);
-    mounts.push(disk);
-    const out = join(disk, 'run.json');
-    const full = await cli(['bench', ...PLAN, '--out', out, '--quiet']);
-    expect(full.code).toBe(1);
-    expect(full.err.trim().split('\n')).toHaveLength(1);
-    expect(full.err).toMatch(/^hhat: the disk is full: cannot (write|append to) .*; .*rerun with --resume --out /);
-    expect(full.err).not.toMatch(/internal error/);
-    // No partial run file, no temporary, no lock: only the checkpoint, with its header.
-    expect(readdirSync(disk)).toEqual(['run.json.checkpoint.jsonl']);
-    expect(JSON.parse(readFileSync(join(disk, 'run.json.checkpoint.jsonl'), 'utf8').split('\n')[0]).kind).toBe('hhat-checkpoint');
-    execFileSync('mount', ['-o', 'remount,size=4m', disk]);
-    const resumed = await cli(['bench', ...PLAN, '--out', out, '--quiet', '--resume']);
-    expect(resumed.code).toBe(0);
-    expect(estimates(out)).toEqual(estimates(await referenceRun()));
-  }, 60_000);
+  it.skipIf(!canMount)(
+    'a disk that fills up: one line, exit 1, the checkpoint kept; resumed after space is freed, the same estimates',
+    async () => {
+      const disk = join(dir, 'small-disk');
+      expect(tryMount(disk, 'size=16k')).toBe(true);
+      mounts.push(disk);
+      const out = join(disk, 'run.json');
+      const full = await cli(['bench', ...PLAN, '--out', out, '--quiet']);
+      expect(full.code).toBe(1);
+      expect(full.err.trim().split('\n')).toHaveLength(1);
+      expect(full.err).toMatch(/^hhat: the disk is full: cannot (write|append to) .*; .*rerun with --resume --out /);
+      expect(full.err).not.toMatch(/internal error/);
+      // No partial run file, no temporary, no lock: only the checkpoint, with its header.
+      expect(readdirSync(disk)).toEqual(['run.json.checkpoint.jsonl']);
+      expect(JSON.parse(readFileSync(join(disk, 'run.json.checkpoint.jsonl'), 'utf8').split('\n')[0]).kind).toBe('hhat-checkpoint');
+      execFileSync('mount', ['-o', 'remount,size=4m', disk]);
+      const resumed = await cli(['bench', ...PLAN, '--out', out, '--quiet', '--resume']);
+      expect(resumed.code).toBe(0);
+      expect(estimates(out)).toEqual(estimates(await referenceRun()));
+    },
+    60_000,
+  );
 
   it.skipIf(!canMount)('a read-only folder: one line naming it, exit 1', async () => {
     const disk = join(dir, 'read-only');
@@ -119,13 +142,31 @@ describe('one output, one process', () => {
   it('a second run on the same --out is refused while the first lives; a stale lock is taken over', async () => {
     ensureBuilt(['src/commands/bench.ts', 'src/core/files.ts']);
     const out = join(dir, 'shared.json');
-    const first = spawn(process.execPath, [bin, 'bench', '--scenario', 'normal', '--n', '20000', '--replicates', '200', '--estimator', 'kozachenko-leonenko', '--out', out, '--quiet'], { stdio: 'ignore' });
+    const first = spawn(
+      process.execPath,
+      [bin, 'bench', '--scenario', 'normal', '--n', '20000', '--replicates', '200', '--estimator', 'kozachenko-leonenko', '--out', out, '--quiet'],
+      { stdio: 'ignore' },
+    );
     // Wait until the first run holds the lock.
     for (let i = 0; i < 1200 && !existsSync(`${out}.lock`); i++) await new Promise((r) => setTimeout(r, 25));
     expect(existsSync(`${out}.lock`)).toBe(true);
     // Linked into place whole: the moment it exists it names its holder (never an empty file to take over).
     expect(JSON.parse(readFileSync(`${out}.lock`, 'utf8'))).toMatchObject({ pid: first.pid });
-    const second = await cli(['bench', '--scenario', 'normal', '--n', '20000', '--replicates', '200', '--estimator', 'kozachenko-leonenko', '--out', out, '--quiet', '--resume']);
+    const second = await cli([
+      'bench',
+      '--scenario',
+      'normal',
+      '--n',
+      '20000',
+      '--replicates',
+      '200',
+      '--estimator',
+      'kozachenko-leonenko',
+      '--out',
+      out,
+      '--quiet',
+      '--resume',
+    ]);
     expect(second.code).toBe(1);
     expect(second.err).toMatch(new RegExp(`is being written by process ${first.pid} on .*; wait for it to finish, or choose another --out`));
     first.kill('SIGKILL');
@@ -175,14 +216,22 @@ describe('code versions are never mixed', () => {
     await runPlan(plan, { workers: 1, checkpointPath: `${out}.checkpoint.jsonl`, signal: controller.signal, onProgress: () => controller.abort() });
     const lines = readFileSync(`${out}.checkpoint.jsonl`, 'utf8').split('\n');
     const header = JSON.parse(lines[0]);
-    const write = (hhat: object) => writeFileSync(`${out}.checkpoint.jsonl`, [JSON.stringify({ ...header, fingerprint: '0'.repeat(64), code: { ...header.code, hhat } }), ...lines.slice(1)].join('\n'));
+    const write = (hhat: object) =>
+      writeFileSync(
+        `${out}.checkpoint.jsonl`,
+        [JSON.stringify({ ...header, fingerprint: '0'.repeat(64), code: { ...header.code, hhat } }), ...lines.slice(1)].join('\n'),
+      );
     const version = hhatVersion().replace(/\./g, '\\.');
     write({ ...header.code.hhat, version: '0.0.9', build: 'f'.repeat(64) });
     await expect(runPlan(plan, { workers: 1, checkpointPath: `${out}.checkpoint.jsonl`, resume: true })).rejects.toThrow(
-      new RegExp(`cannot be resumed: it was made by hhat 0\\.0\\.9 \\(build ffffffffffff\\) and this is hhat ${version} \\(build [0-9a-f]{12}\\); resuming would mix estimates of two versions of the code`),
+      new RegExp(
+        `cannot be resumed: it was made by hhat 0\\.0\\.9 \\(build ffffffffffff\\) and this is hhat ${version} \\(build [0-9a-f]{12}\\); resuming would mix estimates of two versions of the code`,
+      ),
     );
     // The same build with another version of a package it draws from (the samplers come from @stdlib).
-    const dependencies = header.code.hhat.dependencies.map((d: string) => (d.startsWith('@stdlib/random-base-normal@') ? '@stdlib/random-base-normal@0.0.1' : d));
+    const dependencies = header.code.hhat.dependencies.map((d: string) =>
+      d.startsWith('@stdlib/random-base-normal@') ? '@stdlib/random-base-normal@0.0.1' : d,
+    );
     write({ ...header.code.hhat, dependencies });
     await expect(runPlan(plan, { workers: 1, checkpointPath: `${out}.checkpoint.jsonl`, resume: true })).rejects.toThrow(
       /cannot be resumed: the packages hhat uses differ \(@stdlib\/random-base-normal@0\.0\.1 then, @stdlib\/random-base-normal@\d+\.\d+\.\d+ now\)/,
@@ -204,7 +253,22 @@ describe('code versions are never mixed', () => {
       ].join('\n'),
     );
     const out = join(dir, 'module-run.json');
-    const args = ['bench', '--scenario', 'normal', '--n', '100,1000', '--replicates', '40', '--estimator', 'lab-mean', '--estimator-module', estimatorModule, '--out', out, '--quiet'];
+    const args = [
+      'bench',
+      '--scenario',
+      'normal',
+      '--n',
+      '100,1000',
+      '--replicates',
+      '40',
+      '--estimator',
+      'lab-mean',
+      '--estimator-module',
+      estimatorModule,
+      '--out',
+      out,
+      '--quiet',
+    ];
     // A checkpoint of the same plan, as an interrupted run leaves it: made here by running one shard and
     // keeping its checkpoint would need a kill; instead, write the header the runner writes and no units.
     const { resolvePlan, planCode, planFingerprint } = await import('../src/harness/plan.js');
@@ -212,7 +276,10 @@ describe('code versions are never mixed', () => {
     await useEstimatorModules([estimatorModule]);
     const { plan } = resolvePlan({ scenarios: ['normal'], estimators: ['lab-mean'], sampleSizes: [100, 1000], replicates: 40, modules: [estimatorModule] });
     const code = planCode(plan);
-    writeFileSync(`${out}.checkpoint.jsonl`, `${JSON.stringify({ kind: 'hhat-checkpoint', version: 2, fingerprint: planFingerprint(plan, code), shard: null, code })}\n`);
+    writeFileSync(
+      `${out}.checkpoint.jsonl`,
+      `${JSON.stringify({ kind: 'hhat-checkpoint', version: 2, fingerprint: planFingerprint(plan, code), shard: null, code })}\n`,
+    );
     writeFileSync(helper, 'export const offset = 0.5;\n');
     const refused = await cli([...args, '--resume']);
     expect(refused.code).toBe(2);
@@ -224,6 +291,8 @@ describe('code versions are never mixed', () => {
     expect((await cli([...args.slice(0, -3), '--shard', '1/2', '--out', shard(1), '--quiet'])).code).toBe(0);
     writeFileSync(helper, 'export const offset = 0.25;\n');
     expect((await cli([...args.slice(0, -3), '--shard', '2/2', '--out', shard(2), '--quiet'])).code).toBe(0);
-    expect(() => mergeShards([1, 2].map((i) => ({ path: shard(i), run: readRunFile(shard(i)) })))).toThrow(/were computed by different code: .*module .*estimator\.mjs or a file it imports changed since/);
+    expect(() => mergeShards([1, 2].map((i) => ({ path: shard(i), run: readRunFile(shard(i)) })))).toThrow(
+      /were computed by different code: .*module .*estimator\.mjs or a file it imports changed since/,
+    );
   }, 60_000);
 });

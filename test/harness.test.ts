@@ -107,11 +107,16 @@ describe('determinism', () => {
     const plan = smallPlan();
     const folder = join(dir, 'is-a-folder.checkpoint.jsonl');
     mkdirSync(folder);
-    await expect(runPlan(plan, { workers: 1, checkpointPath: folder, resume: true })).rejects.toThrow(/is a folder, where hhat keeps this run's checkpoint; move it away or choose another --out/);
+    await expect(runPlan(plan, { workers: 1, checkpointPath: folder, resume: true })).rejects.toThrow(
+      /is a folder, where hhat keeps this run's checkpoint; move it away or choose another --out/,
+    );
     const out = join(dir, 'out-folder');
     mkdirSync(out);
     let err = '';
-    const code = await main(['bench', '--scenario', 'normal', '--estimator', 'vasicek', '--n', '100', '--replicates', '4', '--out', out], { out: () => {}, err: (t) => (err += `${t}\n`) });
+    const code = await main(['bench', '--scenario', 'normal', '--estimator', 'vasicek', '--n', '100', '--replicates', '4', '--out', out], {
+      out: () => {},
+      err: (t) => (err += `${t}\n`),
+    });
     expect(code).toBe(2);
     expect(err.trim().split('\n')).toEqual([`hhat: --out ${out} is a folder; give the run file's path, e.g. --out ${join(out, 'run.json')}`]);
     expect(existsSync(`${out}.checkpoint.jsonl`)).toBe(false);
@@ -120,7 +125,12 @@ describe('determinism', () => {
   it('a replicate whose every estimate already failed is not drawn again (a worker that died drawing it would die again)', () => {
     const context = buildContext(smallPlan());
     const [unit] = planUnits(context).units;
-    context.scenarios[unit.scenario] = { ...context.scenarios[unit.scenario], sample: () => { throw new Error('drawn'); } };
+    context.scenarios[unit.scenario] = {
+      ...context.scenarios[unit.scenario],
+      sample: () => {
+        throw new Error('drawn');
+      },
+    };
     const result = executeReplicate(unit, context, unit.repStart, { skip: () => true });
     expect(Array.from(result.values).every(Number.isNaN)).toBe(true);
     expect(result.failures).toEqual([]);
@@ -133,7 +143,12 @@ describe('determinism', () => {
     writeRunFile(path1, assembleRun(await runPlan(plan, { workers: 1, shard: { index: 1, count: 2 } }), { index: 1, count: 2 }));
     const run1 = readRunFile(path1);
     expect(() => mergeShards([{ path: path1, run: run1 }])).toThrow(/shard 2\/2 missing/);
-    expect(() => mergeShards([{ path: path1, run: run1 }, { path: path1, run: run1 }])).toThrow(/given twice/);
+    expect(() =>
+      mergeShards([
+        { path: path1, run: run1 },
+        { path: path1, run: run1 },
+      ]),
+    ).toThrow(/given twice/);
   });
 });
 
@@ -213,7 +228,11 @@ describe('scores', () => {
     // (the delta method is first-order; at m = 50 its error is a few percent).
     expect(reported.bias / spread(bias)).toBeGreaterThan(0.95);
     expect(reported.bias / spread(bias)).toBeLessThan(1.05);
-    for (const [name, xs] of [['sd', sd], ['rmse', rmse], ['mae', mae]] as const) {
+    for (const [name, xs] of [
+      ['sd', sd],
+      ['rmse', rmse],
+      ['mae', mae],
+    ] as const) {
       const ratio = reported[name] / spread(xs);
       expect(ratio, name).toBeGreaterThan(0.9);
       expect(ratio, name).toBeLessThan(1.1);
@@ -245,13 +264,19 @@ describe('bad input', () => {
   it('a plan whose every estimator–scenario pair is skipped is refused, not written as an empty run', async () => {
     const plan = resolvePlan({ scenarios: ['gaussian:dim=2'], estimators: ['vasicek'], sampleSizes: [50], replicates: 2, seed: 1 }).plan;
     await expect(runPlan(plan, { workers: 1 })).rejects.toThrow(
-      new UsageError('the plan has no cells to run: every estimator–scenario pair is skipped (on gaussian:dim=2,rho=0.5,spread=1,sigma=1: vasicek needs d = 1; the scenario has d = 2); `hhat scenarios` and `hhat estimators` list dimensions'),
+      new UsageError(
+        'the plan has no cells to run: every estimator–scenario pair is skipped (on gaussian:dim=2,rho=0.5,spread=1,sigma=1: vasicek needs d = 1; the scenario has d = 2); `hhat scenarios` and `hhat estimators` list dimensions',
+      ),
     );
   });
 
   it('plan files: unknown keys and bad values name the path', () => {
-    expect(() => checkPlanShape({ scenarios: ['normal'], estimators: ['gaussian'], colour: 1 }, 'p.json')).toThrow(/^p\.json: colour: unknown key \(allowed: name, .*scenarios, .*sampleSizes, .*\)$/);
-    expect(() => checkPlanShape({ scenarios: ['normal'], estimators: ['gaussian'], replicates: 1.5 }, 'p.json')).toThrow('p.json: replicates: must be an integer');
+    expect(() => checkPlanShape({ scenarios: ['normal'], estimators: ['gaussian'], colour: 1 }, 'p.json')).toThrow(
+      /^p\.json: colour: unknown key \(allowed: name, .*scenarios, .*sampleSizes, .*\)$/,
+    );
+    expect(() => checkPlanShape({ scenarios: ['normal'], estimators: ['gaussian'], replicates: 1.5 }, 'p.json')).toThrow(
+      'p.json: replicates: must be an integer',
+    );
     expect(() => checkPlanShape({ scenarios: [], estimators: ['gaussian'] }, 'p.json')).toThrow('p.json: scenarios: must list at least 1 item(s)');
     // A misspelt key inside an estimator object: the object branch's complaint, not "must be a string".
     expect(() => checkPlanShape({ scenarios: ['normal'], estimators: [{ id: 'vasicek', setings: {} }] }, 'p.json')).toThrow(
@@ -287,10 +312,18 @@ describe('bad input', () => {
         return 1;
       },
     });
-    const plan = resolvePlan({ scenarios: ['normal'], estimators: ['test-fails-on-negative-first-point', 'gaussian'], sampleSizes: [20], replicates: 20, seed: 9 }).plan;
+    const plan = resolvePlan({
+      scenarios: ['normal'],
+      estimators: ['test-fails-on-negative-first-point', 'gaussian'],
+      sampleSizes: [20],
+      replicates: 20,
+      seed: 9,
+    }).plan;
     // Registered in this process only, so it runs in-process (worker threads know module estimators only);
     // on threads the run is refused before any work.
-    await expect(runPlan(plan, { workers: 1 })).rejects.toThrow(/^"test-fails-on-negative-first-point" was registered in this process by code, which worker threads cannot see/);
+    await expect(runPlan(plan, { workers: 1 })).rejects.toThrow(
+      /^"test-fails-on-negative-first-point" was registered in this process by code, which worker threads cannot see/,
+    );
     const run = assembleRun(await runPlan(plan, { workers: 1, isolation: 'in-process' }), null);
     const failing = run.cells.find((c) => c.estimatorId === 'test-fails-on-negative-first-point')!;
     expect(failing.scores.failures).toBeGreaterThan(0);

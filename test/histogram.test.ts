@@ -149,7 +149,10 @@ describe('histogram against a brute-force computation', () => {
       const columns = Array.from({ length: dim }, (_, k) => points(sample).map((r) => r[k]));
       for (const rule of BIN_RULES) {
         const counts = columns.map((c) => bruteForceBinCount(rule, c, dim));
-        expect(gridOf(sample, { bins: rule }).map((a) => a.binCount), `${rule} d=${dim}`).toEqual(counts);
+        expect(
+          gridOf(sample, { bins: rule }).map((a) => a.binCount),
+          `${rule} d=${dim}`,
+        ).toEqual(counts);
         close(histogram.estimate(sample, { bins: rule }), bruteForceEntropy(sample, counts, null));
         close(histogram.estimate(sample, { bins: rule, correction: 'miller-madow' }), bruteForceEntropy(sample, counts, null, true));
       }

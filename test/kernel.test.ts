@@ -368,7 +368,12 @@ describe('kernel sums: every fast path against the direct O(n²) sum', () => {
     const ours = leaveOneOutLogDensities(prepareKernelData(sample), h);
     const { logSums, logDetCovariance } = bruteLogSumsMd(sample, h);
     const normaliser = Math.log(sample.n - 1) + 3 * Math.log(h) + 1.5 * Math.log(2 * Math.PI) + 0.5 * logDetCovariance;
-    expect(maxAbsDifference(ours, logSums.map((s) => s - normaliser))).toBeLessThan(1e-10);
+    expect(
+      maxAbsDifference(
+        ours,
+        logSums.map((s) => s - normaliser),
+      ),
+    ).toBeLessThan(1e-10);
   });
 });
 
@@ -408,7 +413,19 @@ describe('d = 2, 3 grid path (split Gaussian) against the direct O(n²) sum and 
   }
   const heavy = (seed: string, n: number): Sample => fromScenario('student-t-mv:dim=3,nu=3', seed, n);
   const cases: Array<[string, () => Sample]> = [
-    ['normal d = 2', () => correlatedGaussian('grid-normal-2d', 1000, [[1.5, 0], [0.7, 0.5]], [3, -1])],
+    [
+      'normal d = 2',
+      () =>
+        correlatedGaussian(
+          'grid-normal-2d',
+          1000,
+          [
+            [1.5, 0],
+            [0.7, 0.5],
+          ],
+          [3, -1],
+        ),
+    ],
     ['normal d = 3', () => correlatedGaussian('grid-normal-3d', 1000, lower3, [1, -2, 0.5])],
     ['lognormal (σ = 1, skewed) d = 3', () => fromScenario('lognormal-mv:dim=3,sigma=1', 'grid-skewed-3d', 1000)],
     ['Student t (ν = 3) d = 3', () => heavy('grid-heavy-3d', 1000)],
@@ -440,7 +457,8 @@ describe('d = 2, 3 grid path (split Gaussian) against the direct O(n²) sum and 
     expect(grid.fallbackPoints).toBeGreaterThanOrEqual(1);
     const { logSums: reference } = bruteLogSumsMd(sample, h);
     expect(reference[999]).toBeLessThan(-1000); // far below exp's range
-    for (let i = 0; i < sample.n; i++) expect(Math.abs(grid.logSums[i] - reference[i]), `point ${i}`).toBeLessThanOrEqual(GRID_POINT_BOUND * Math.max(1, Math.abs(reference[i]) * 1e-3));
+    for (let i = 0; i < sample.n; i++)
+      expect(Math.abs(grid.logSums[i] - reference[i]), `point ${i}`).toBeLessThanOrEqual(GRID_POINT_BOUND * Math.max(1, Math.abs(reference[i]) * 1e-3));
   });
 
   it('auto takes the grid for d = 3 at n = 8000 and agrees with the cell list (the exact path) on Ĥ and every log S_i', () => {
@@ -616,7 +634,19 @@ describe('units: rules are equivariant, a numeric 1-D bandwidth is not', () => {
   const cases: [string, Sample][] = [
     ['1-D exact path', sample1d(normalDraws('units-small', 600))],
     ['1-D binned path', sample1d(normalDraws('units-large', 6000))],
-    ['d = 3', correlatedGaussian('units-3d', 400, [[1, 0, 0], [0.5, 1, 0], [0.2, -0.4, 1]], [1, 2, 3])],
+    [
+      'd = 3',
+      correlatedGaussian(
+        'units-3d',
+        400,
+        [
+          [1, 0, 0],
+          [0.5, 1, 0],
+          [0.2, -0.4, 1],
+        ],
+        [1, 2, 3],
+      ),
+    ],
   ];
   for (const [label, sample] of cases) {
     for (const rule of ['silverman', 'scott', 'likelihood-cv'] as const) {
@@ -639,7 +669,16 @@ describe('units: rules are equivariant, a numeric 1-D bandwidth is not', () => {
   });
 
   it('a numeric bandwidth for d > 1 is in whitened units, so it is equivariant', () => {
-    const sample = correlatedGaussian('units-numeric-3d', 300, [[1, 0, 0], [0.5, 1, 0], [0.2, -0.4, 1]], [0, 0, 0]);
+    const sample = correlatedGaussian(
+      'units-numeric-3d',
+      300,
+      [
+        [1, 0, 0],
+        [0.5, 1, 0],
+        [0.2, -0.4, 1],
+      ],
+      [0, 0, 0],
+    );
     const base = kernelEstimator.estimate(sample, { bandwidth: 0.4 });
     const moved = kernelEstimator.estimate(rescaled(sample, 1000), { bandwidth: 0.4 });
     expect(Math.abs(moved - base - 3 * Math.log(1000))).toBeLessThan(1e-9);
@@ -789,9 +828,22 @@ describe('bad input and numeric trouble', () => {
   it('the one refusal left: a log density that overflows double precision (numeric, one line)', () => {
     // 1e160 is ~1e161 bandwidths from the rest, so −(gap/h)²/2 is below every double: d = 1, rule bandwidth.
     const far = sample1d(Float64Array.of(...normalDraws('overflow', 99), 1e160));
-    expectEstimateError(() => kernelEstimator.estimate(far, {}), 'numeric', /^kernel: the estimate overflows double precision \(Infinity\) with bandwidth .* \(data units\): .*; rescale the data or use a larger bandwidth$/);
+    expectEstimateError(
+      () => kernelEstimator.estimate(far, {}),
+      'numeric',
+      /^kernel: the estimate overflows double precision \(Infinity\) with bandwidth .* \(data units\): .*; rescale the data or use a larger bandwidth$/,
+    );
     // d = 3: whitened distances are O(1), so only a bandwidth of 1e-160 whitened units puts points that far apart.
-    const cloud = correlatedGaussian('overflow-3d', 100, [[1, 0, 0], [0.5, 1, 0], [0.2, -0.4, 1]], [0, 0, 0]);
+    const cloud = correlatedGaussian(
+      'overflow-3d',
+      100,
+      [
+        [1, 0, 0],
+        [0.5, 1, 0],
+        [0.2, -0.4, 1],
+      ],
+      [0, 0, 0],
+    );
     expectEstimateError(() => kernelEstimator.estimate(cloud, { bandwidth: 1e-160 }), 'numeric', /overflows double precision.*\(whitened units\)/);
   });
 
@@ -799,7 +851,16 @@ describe('bad input and numeric trouble', () => {
     // Each row twice: at h = 1e-200 (h² underflows to 0) a point's only non-negligible term is its twin,
     // so log S_i = 0 exactly; at h = 1e200 (h² overflows) every term is 1, log S_i = log(n − 1). Compared
     // with the plain O(n²) sum above, whose terms −u²/2 are then −∞ or 0 as the doubles give.
-    const base = correlatedGaussian('tiny-h', 60, [[1, 0, 0], [0.5, 1, 0], [0.2, -0.4, 1]], [0, 0, 0]);
+    const base = correlatedGaussian(
+      'tiny-h',
+      60,
+      [
+        [1, 0, 0],
+        [0.5, 1, 0],
+        [0.2, -0.4, 1],
+      ],
+      [0, 0, 0],
+    );
     const twice: Sample = { n: 120, dim: 3, data: Float64Array.of(...base.data, ...base.data) };
     for (const h of [1e-200, 1e200]) {
       const estimate = kernelEstimator.estimate(twice, { bandwidth: h });
@@ -832,14 +893,20 @@ describe('bad input and numeric trouble', () => {
     expectEstimateError(() => kernelEstimator.estimate({ n: 100, dim: 2, data: constant }, { bandwidth: 'scott' }), 'invalid-input', /column 2 is constant/);
     expectEstimateError(() => kernelEstimator.estimate(sample1d(Float64Array.of(1, 2)), {}), 'too-few-points', /at least 3/);
     expectEstimateError(() => kernelEstimator.estimate({ n: 4, dim: 3, data: normalDraws('few', 12) }, {}), 'too-few-points', /at least 5/);
-    expectEstimateError(() => kernelEstimator.estimate(sample1d(Float64Array.of(1, NaN, 3, 4)), {}), 'invalid-input', /value NaN at row 2, column 1; only finite/);
+    expectEstimateError(
+      () => kernelEstimator.estimate(sample1d(Float64Array.of(1, NaN, 3, 4)), {}),
+      'invalid-input',
+      /value NaN at row 2, column 1; only finite/,
+    );
     expectEstimateError(() => kernelEstimator.estimate(sample1d(new Float64Array(50).fill(2)), {}), 'ties', /equal/);
   });
 
   it('bad bandwidth settings are refused', () => {
     const sample = sample1d(normalDraws('bad-setting', 50));
     // By the declaration, before the estimator runs: the estimator itself never sees them.
-    expect(() => kernelEstimator.estimate(sample, { bandwidth: 'wide' })).toThrow(/bandwidth=wide is not allowed; bandwidth must be one of silverman \| scott \| likelihood-cv, or a number > 0/);
+    expect(() => kernelEstimator.estimate(sample, { bandwidth: 'wide' })).toThrow(
+      /bandwidth=wide is not allowed; bandwidth must be one of silverman \| scott \| likelihood-cv, or a number > 0/,
+    );
     expect(() => kernelEstimator.estimate(sample, { bandwidth: -1 })).toThrow(UsageError);
     expect(() => parseEstimatorSpec('kernel:bandwidth=0')).toThrow(UsageError);
     expect(() => parseEstimatorSpec('kernel:bandwidth=narrow')).toThrow(UsageError);

@@ -49,7 +49,15 @@ function bruteNearest(points: Float64Array, queries: Float64Array, dim: number, 
   return out;
 }
 
-function bruteCount(points: Float64Array, queries: Float64Array, dim: number, norm: KnnNorm, radii: Float64Array, inclusive: boolean, selfIsQuery: boolean): Int32Array {
+function bruteCount(
+  points: Float64Array,
+  queries: Float64Array,
+  dim: number,
+  norm: KnnNorm,
+  radii: Float64Array,
+  inclusive: boolean,
+  selfIsQuery: boolean,
+): Int32Array {
   const n = points.length / dim;
   const m = queries.length / dim;
   const out = new Int32Array(m);

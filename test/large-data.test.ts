@@ -66,7 +66,11 @@ describe('delimited files read through a window', () => {
   const lf = writeTemp('gauges-lf.csv', `${lines.join('\n')}`);
   const cr = writeTemp('gauges-cr.txt', `${lines.join('\r')}\r`);
 
-  for (const [label, path] of [['CRLF', crlf], ['LF, no final line end', lf], ['CR', cr]] as const) {
+  for (const [label, path] of [
+    ['CRLF', crlf],
+    ['LF, no final line end', lf],
+    ['CR', cr],
+  ] as const) {
     it(`gives the same values for every window size (${label})`, () => {
       for (const windowBytes of [1, 2, 3, 5, 8, 13, 64, 1000, 1 << 20]) {
         const table = readWithWindow(path, windowBytes);
@@ -85,7 +89,8 @@ describe('delimited files read through a window', () => {
     expect(whole).toMatch(/line 201, column 3/);
     for (const windowBytes of [1, 7, 64]) expect(usageMessage(() => readWithWindow(path, windowBytes))).toBe(whole);
     const unclosed = writeTemp('unclosed.csv', `x,y\n1,2\n3,"4\n5,6\n`);
-    for (const windowBytes of [1, 3, 100]) expect(usageMessage(() => readWithWindow(unclosed, windowBytes))).toMatch(/line 3, column 2: a quoted field is never closed/);
+    for (const windowBytes of [1, 3, 100])
+      expect(usageMessage(() => readWithWindow(unclosed, windowBytes))).toMatch(/line 3, column 2: a quoted field is never closed/);
     const blank = writeTemp('blank.csv', `x,y\n1,2\n\n3,4\n`);
     for (const windowBytes of [1, 4]) expect(usageMessage(() => readWithWindow(blank, windowBytes))).toMatch(/line 3 is blank/);
     const comments = writeTemp('comments.csv', `# only\n# comments\n`);
@@ -196,7 +201,10 @@ describe('hhat estimate on more rows than its time limit allows', () => {
   it('runs a slow default estimator on a stated seeded subsample, the rest on all rows', async () => {
     const { code, out } = await run(['estimate', path, '--json', '--max-seconds', '0.3']);
     expect(code).toBe(0);
-    const json = JSON.parse(out) as { maxSeconds: number; estimates: { estimator: string; value: number | null; subsample?: { rows: number; of: number; seed: number; reason: string } }[] };
+    const json = JSON.parse(out) as {
+      maxSeconds: number;
+      estimates: { estimator: string; value: number | null; subsample?: { rows: number; of: number; seed: number; reason: string } }[];
+    };
     expect(json.maxSeconds).toBe(0.3);
     const kernel = json.estimates.find((e) => e.estimator === 'kernel')!;
     const rows = roundRowsDown(rowsWithin(parseEstimatorSpec('kernel'), 20000, 3, 0.3));
@@ -215,7 +223,9 @@ describe('hhat estimate on more rows than its time limit allows', () => {
     expect(err).toBe('');
     expect(out).toMatch(/kernel .*│ +– │ +skipped \(time\) │/);
     expect(out).toMatch(/^skipped: kernel: all 20000 rows would take about .*, and even 1000 rows would not fit$/m);
-    const json = JSON.parse((await run(['estimate', path, '--max-seconds', '0.002', '--estimator', 'kernel', '--json'])).out) as { estimates: { value: null; skipped: string }[] };
+    const json = JSON.parse((await run(['estimate', path, '--max-seconds', '0.002', '--estimator', 'kernel', '--json'])).out) as {
+      estimates: { value: null; skipped: string }[];
+    };
     expect(json.estimates[0].value).toBeNull();
     expect(json.estimates[0].skipped).toMatch(/even 1000 rows would not fit/);
     const none = await run(['estimate', path, '--max-seconds', '0.002', '--estimator', 'kernel']);
@@ -224,7 +234,10 @@ describe('hhat estimate on more rows than its time limit allows', () => {
   });
 
   it('runs named estimators on all rows unless --max-seconds is given', async () => {
-    const json = JSON.parse((await run(['estimate', path, '--estimator', 'histogram', '--json'])).out) as { maxSeconds: null; estimates: { subsample?: unknown }[] };
+    const json = JSON.parse((await run(['estimate', path, '--estimator', 'histogram', '--json'])).out) as {
+      maxSeconds: null;
+      estimates: { subsample?: unknown }[];
+    };
     expect(json.maxSeconds).toBeNull();
     expect(json.estimates[0].subsample).toBeUndefined();
     expect((await run(['estimate', path, '--max-seconds', '0'])).code).toBe(2);
@@ -272,7 +285,9 @@ describe('sample sizes the machine cannot hold', () => {
     // With 32 GB one worker would not fit either (32.15 GB), so only a smaller n is offered.
     expect(() => checkSampleMemory('--n 100000000', 1e8, 2, { workers: 2, totalBytes: 32e9 })).toThrow(/more than this machine's 32 GB; use n ≤ 49765625$/);
     expect(() => checkSampleMemory('--n 1000', 1000, 2, { workers: 2, totalBytes: 32e9 })).not.toThrow();
-    expect(() => checkSampleMemory('--n 5000000000', 5e9, 1, { totalBytes: 1e15 })).toThrow(new RegExp(`beyond the ${MAX_TYPED_ARRAY_LENGTH} a JavaScript typed array can hold`));
+    expect(() => checkSampleMemory('--n 5000000000', 5e9, 1, { totalBytes: 1e15 })).toThrow(
+      new RegExp(`beyond the ${MAX_TYPED_ARRAY_LENGTH} a JavaScript typed array can hold`),
+    );
   });
 
   it('advise --n: the plan schema ranges, the memory check and the predicted budget, all before any work', async () => {
@@ -287,6 +302,8 @@ describe('sample sizes the machine cannot hold', () => {
     // more than 4 (the model's margin) times a 5 s budget.
     const slow = await run(['advise', '--n', '300000', '--dim', '3', '--budget', '5']);
     expect(slow.code).toBe(2);
-    expect(slow.err).toMatch(/^hhat: --budget 5 is too small here: one replicate of one matching scenario at n = 300000 is predicted to take about .*; give --budget \d+ or more, or a smaller --n\n$/);
+    expect(slow.err).toMatch(
+      /^hhat: --budget 5 is too small here: one replicate of one matching scenario at n = 300000 is predicted to take about .*; give --budget \d+ or more, or a smaller --n\n$/,
+    );
   });
 });

@@ -111,7 +111,9 @@ describe('source layers', () => {
   });
 
   it('resolves every relative import to a file that exists', () => {
-    const missing = [...graph].flatMap(([file, targets]) => targets.filter((t) => !statSync(join(root, t), { throwIfNoEntry: false })).map((t) => `${file} → ${relative(root, join(root, t))}`));
+    const missing = [...graph].flatMap(([file, targets]) =>
+      targets.filter((t) => !statSync(join(root, t), { throwIfNoEntry: false })).map((t) => `${file} → ${relative(root, join(root, t))}`),
+    );
     expect(missing).toEqual([]);
   });
 

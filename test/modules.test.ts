@@ -81,7 +81,13 @@ describe('the worked example module (examples/drift-corrected-estimators.mjs)', 
 
   it('runs in a plan in-process beside the built-ins', async () => {
     await useEstimatorModules([example]);
-    const { plan } = resolvePlan({ scenarios: ['normal'], estimators: ['kozachenko-leonenko', 'detrended-kozachenko-leonenko:drift=none'], sampleSizes: [100], replicates: 4, seed: 3 });
+    const { plan } = resolvePlan({
+      scenarios: ['normal'],
+      estimators: ['kozachenko-leonenko', 'detrended-kozachenko-leonenko:drift=none'],
+      sampleSizes: [100],
+      replicates: 4,
+      seed: 3,
+    });
     const run = assembleRun(await runPlan(plan, { workers: 1, isolation: 'in-process' }), null);
     // On supervised worker threads the module must be named in the plan, which every worker loads.
     const threaded = assembleRun(await runPlan({ ...plan, modules: [example] }, { workers: 2 }), null);
@@ -136,12 +142,27 @@ describe('bad modules: one line naming the file and the problem', () => {
     ['dims-reversed', 'mjs', withField('dims: [3, 1]'), /dims must be \[min, max\].*got \[3, 1\]/],
     ['dims-scalar', 'mjs', withField('dims: 2'), /dims must be \[min, max\].*got 2$/],
     ['settings-object', 'mjs', withField(`settings: { k: 3 }`), /settings is an object; give an array of setting specs/],
-    ['setting-kind', 'mjs', withField(`settings: [{ name: 'k', meaning: 'm', default: 3, kind: 'int' }]`), /settings\[0\] \("k"\): kind "int" is not allowed; it must be one of integer, number/],
-    ['setting-default', 'mjs', withField(`settings: [{ name: 'k', meaning: 'm', default: 0, kind: 'integer', min: 1 }]`), /settings\[0\] \("k"\): default 0 is not allowed; k must be an integer ≥ 1/],
+    [
+      'setting-kind',
+      'mjs',
+      withField(`settings: [{ name: 'k', meaning: 'm', default: 3, kind: 'int' }]`),
+      /settings\[0\] \("k"\): kind "int" is not allowed; it must be one of integer, number/,
+    ],
+    [
+      'setting-default',
+      'mjs',
+      withField(`settings: [{ name: 'k', meaning: 'm', default: 0, kind: 'integer', min: 1 }]`),
+      /settings\[0\] \("k"\): default 0 is not allowed; k must be an integer ≥ 1/,
+    ],
     ['setting-choices', 'mjs', withField(`settings: [{ name: 'rule', meaning: 'm', default: 'a', kind: 'choice' }]`), /kind "choice" needs choices/],
     ['setting-name', 'mjs', withField(`settings: [{ name: 'k=1', meaning: 'm', default: 1, kind: 'integer' }]`), /settings\[0\]: name "k=1" is not allowed/],
     ['setting-meaning', 'mjs', withField(`settings: [{ name: 'k', default: 1, kind: 'integer' }]`), /settings\[0\] \("k"\): meaning is missing/],
-    ['setting-twice', 'mjs', withField(`settings: [{ name: 'k', meaning: 'm', default: 1, kind: 'integer' }, { name: 'k', meaning: 'm', default: 1, kind: 'integer' }]`), /settings\[1\]: the name "k" is used twice/],
+    [
+      'setting-twice',
+      'mjs',
+      withField(`settings: [{ name: 'k', meaning: 'm', default: 1, kind: 'integer' }, { name: 'k', meaning: 'm', default: 1, kind: 'integer' }]`),
+      /settings\[1\]: the name "k" is used twice/,
+    ],
     ['setting-bounds', 'mjs', withField(`settings: [{ name: 'h', meaning: 'm', default: 1, kind: 'number', min: 2, max: 1 }]`), /min 2 is above max 1/],
     ['same-id-twice', 'mjs', `const e = ${valid}; export const estimators = [e, { ...e }];`, /the id "ok-method" is also defined earlier in the same file/],
     // Node says "Unexpected token"; under vitest the module runner's parser words it differently.
@@ -184,10 +205,15 @@ describe('bad modules: one line naming the file and the problem', () => {
       for (const path of process.argv.slice(1)) {
         await loadEstimatorModules([path]).then(() => console.log('loaded'), (e) => console.log(e.message));
       }`;
-    const result = spawnSync(process.execPath, ['--input-type=module', '-e', script, shiftedFixture, broken], { encoding: 'utf8', env: { ...process.env, NODE_OPTIONS: '' } });
+    const result = spawnSync(process.execPath, ['--input-type=module', '-e', script, shiftedFixture, broken], {
+      encoding: 'utf8',
+      env: { ...process.env, NODE_OPTIONS: '' },
+    });
     const [typescript, syntax, ...rest] = result.stdout.trim().split('\n');
     expect(rest).toEqual([]);
-    expect(typescript).toBe(`estimator module ${shiftedFixture}: TypeScript modules load only under a TypeScript loader (NODE_OPTIONS="--import tsx" npx hhat ...); compile it to .mjs, or run hhat that way`);
+    expect(typescript).toBe(
+      `estimator module ${shiftedFixture}: TypeScript modules load only under a TypeScript loader (NODE_OPTIONS="--import tsx" npx hhat ...); compile it to .mjs, or run hhat that way`,
+    );
     expect(syntax).toBe(`estimator module ${broken} could not be loaded: Unexpected token ';'`);
   });
 });

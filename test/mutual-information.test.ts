@@ -128,7 +128,10 @@ function replicates(scenario: Scenario, n: number, count: number, seed: number, 
   return Array.from({ length: count }, (_, r) => run(scenario.sample(replicateRng(seed, scenario.id, n, r), n)));
 }
 
-const fixtureSamples = fixture.mi_samples.map((c) => ({ ...c, sample: { n: c.n, dim: c.dim, xDim: c.xDim, data: Float64Array.from(c.data) } satisfies Sample }));
+const fixtureSamples = fixture.mi_samples.map((c) => ({
+  ...c,
+  sample: { n: c.n, dim: c.dim, xDim: c.xDim, data: Float64Array.from(c.data) } satisfies Sample,
+}));
 
 describe('ksg1 and ksg2', () => {
   it('agree with an O(n²) brute force (max-norm distances, @stdlib digamma) to 1e-12 relative, d = 1+1 and 2+3', () => {
@@ -137,7 +140,9 @@ describe('ksg1 and ksg2', () => {
       for (const k of [1, 3, 6]) {
         for (const variant of [1, 2] as const) {
           const ours = estimate(`ksg${variant}`, sample, { k });
-          expect(relativeError(ours, bruteKsg(sample, k, variant)), `ksg${variant}, d = ${sample.xDim}+${sample.dim - sample.xDim!}, k = ${k}`).toBeLessThan(1e-12);
+          expect(relativeError(ours, bruteKsg(sample, k, variant)), `ksg${variant}, d = ${sample.xDim}+${sample.dim - sample.xDim!}, k = ${k}`).toBeLessThan(
+            1e-12,
+          );
         }
       }
     }
@@ -164,7 +169,9 @@ describe('ksg1 and ksg2', () => {
       for (const variant of [1, 2] as const) {
         const values = replicates(scenario, 5000, 20, 2004, (s) => estimate(`ksg${variant}`, s, { k: 3 }));
         const { mean, se } = meanAndSe(values);
-        recorded.push(`rho=${rho} ksg${variant}: truth ${scenario.truth.toFixed(5)}, mean ${mean.toFixed(5)}, bias ${(mean - scenario.truth).toFixed(5)} ± ${se.toFixed(5)}`);
+        recorded.push(
+          `rho=${rho} ksg${variant}: truth ${scenario.truth.toFixed(5)}, mean ${mean.toFixed(5)}, bias ${(mean - scenario.truth).toFixed(5)} ± ${se.toFixed(5)}`,
+        );
         expect(Math.abs(mean - scenario.truth), `ksg${variant} rho=${rho}`).toBeLessThan(3 * se + publishedBias);
       }
     }
@@ -203,7 +210,9 @@ describe('every MI estimator reads the X/Y split', () => {
   it('fails with one line naming xDim when the sample has none, or an impossible one', () => {
     const sample = dependentSample('split', 50, 1, 2);
     for (const id of ids) {
-      expect(() => estimate(id, { ...sample, xDim: undefined }), id).toThrow(new RegExp(`^${id}: the sample does not say which columns are X \\(xDim is missing\\)`));
+      expect(() => estimate(id, { ...sample, xDim: undefined }), id).toThrow(
+        new RegExp(`^${id}: the sample does not say which columns are X \\(xDim is missing\\)`),
+      );
       for (const bad of [0, 3]) {
         try {
           estimate(id, { ...sample, xDim: bad });
@@ -371,7 +380,11 @@ describe('copula=rank', () => {
       const plain = estimate(id, base);
       moves[id] = [estimate(id, expX) - plain, estimate(id, cubeY) - plain];
     }
-    console.log(`moves without copula on mi-gaussian:rho=0.6, n = 1000 (exp on X, cube on Y):\n${Object.entries(moves).map(([id, [x, y]]) => `${id}: ${x.toFixed(4)}, ${y.toFixed(4)}`).join('\n')}`);
+    console.log(
+      `moves without copula on mi-gaussian:rho=0.6, n = 1000 (exp on X, cube on Y):\n${Object.entries(moves)
+        .map(([id, [x, y]]) => `${id}: ${x.toFixed(4)}, ${y.toFixed(4)}`)
+        .join('\n')}`,
+    );
     // Recorded: ksg1 −0.0026, −0.0230; ksg2 0.0159, −0.0251; mi-histogram 0.0180, 0.2601; mi-gaussian −0.0742, −0.1009.
     const size = (id: string) => Math.max(Math.abs(moves[id][0]), Math.abs(moves[id][1]));
     for (const ksg of ['ksg1', 'ksg2']) {
@@ -400,7 +413,9 @@ describe('mi-histogram', () => {
   it('names itself in grid errors and gives only advice it can take', () => {
     const sample = dependentSample('flat', 50, 1, 1);
     for (let i = 0; i < 40; i++) sample.data[2 * i] = 1;
-    expect(() => estimate('mi-histogram', sample)).toThrow(/^mi-histogram \(bins=freedman-diaconis\): coordinate 1 has interquartile range 0 .*; use bins=scott or a bin count$/);
+    expect(() => estimate('mi-histogram', sample)).toThrow(
+      /^mi-histogram \(bins=freedman-diaconis\): coordinate 1 has interquartile range 0 .*; use bins=scott or a bin count$/,
+    );
     for (let i = 40; i < 50; i++) sample.data[2 * i] = 1;
     expect(() => estimate('mi-histogram', sample)).toThrow(/^mi-histogram: all 50 values of coordinate 1 of the sample are equal \(1\).*drop that coordinate/);
   });
@@ -444,13 +459,17 @@ describe('mi-kernel and mi-from-entropies', () => {
   it('mi-kernel is kernel(X) + kernel(Y) − kernel(X,Y) on the split columns', () => {
     const { x, y } = parts(sample);
     const settings = { bandwidth: 'scott', scale: 1.3 };
-    const expected = kernelEstimator.estimate(x, settings) + kernelEstimator.estimate(y, settings) - kernelEstimator.estimate({ ...sample, xDim: undefined }, settings);
+    const expected =
+      kernelEstimator.estimate(x, settings) + kernelEstimator.estimate(y, settings) - kernelEstimator.estimate({ ...sample, xDim: undefined }, settings);
     expect(estimate('mi-kernel', sample, settings)).toBe(expected);
   });
 
   it('mi-from-entropies passes k to Kozachenko–Leonenko and sums the three entropies', () => {
     const { x, y } = parts(sample);
-    const expected = kozachenkoLeonenkoEntropy(x.data, 2, 5, 'euclidean') + kozachenkoLeonenkoEntropy(y.data, 1, 5, 'euclidean') - kozachenkoLeonenkoEntropy(sample.data, 3, 5, 'euclidean');
+    const expected =
+      kozachenkoLeonenkoEntropy(x.data, 2, 5, 'euclidean') +
+      kozachenkoLeonenkoEntropy(y.data, 1, 5, 'euclidean') -
+      kozachenkoLeonenkoEntropy(sample.data, 3, 5, 'euclidean');
     expect(relativeError(estimate('mi-from-entropies', sample, { k: 5 }), expected)).toBeLessThan(1e-14);
   });
 
@@ -466,7 +485,9 @@ describe('mi-kernel and mi-from-entropies', () => {
     expect(choices).not.toContain('ksg1');
     expect(() => configureEstimator('mi-from-entropies', { entropy: 'ksg1' })).toThrow(UsageError);
     const pair = dependentSample('pair', 100, 1, 1);
-    expect(() => estimate('mi-from-entropies', pair, { entropy: 'vasicek' })).toThrow(/^mi-from-entropies: entropy=vasicek supports d = 1, but \(X, Y\) has d = 2/);
+    expect(() => estimate('mi-from-entropies', pair, { entropy: 'vasicek' })).toThrow(
+      /^mi-from-entropies: entropy=vasicek supports d = 1, but \(X, Y\) has d = 2/,
+    );
   });
 });
 
@@ -547,10 +568,15 @@ describe('mutual-information scenarios', () => {
     for (const spec of ['mi-student-t:dimX=1,dimY=1,nu=4,rho=0.5', 'mi-student-t:dimX=1,dimY=1,nu=3,rho=0']) {
       const s = parseScenario(spec);
       const { nu, rho } = s.params;
-      const logT1 = (x: number) => gammalnStdlib((nu + 1) / 2) - gammalnStdlib(nu / 2) - 0.5 * Math.log(nu * Math.PI) - ((nu + 1) / 2) * Math.log1p((x * x) / nu);
+      const logT1 = (x: number) =>
+        gammalnStdlib((nu + 1) / 2) - gammalnStdlib(nu / 2) - 0.5 * Math.log(nu * Math.PI) - ((nu + 1) / 2) * Math.log1p((x * x) / nu);
       const det = 1 - rho * rho;
       const logT2 = (x: number, y: number) =>
-        gammalnStdlib((nu + 2) / 2) - gammalnStdlib(nu / 2) - Math.log(nu * Math.PI) - 0.5 * Math.log(det) - ((nu + 2) / 2) * Math.log1p((x * x - 2 * rho * x * y + y * y) / (det * nu));
+        gammalnStdlib((nu + 2) / 2) -
+        gammalnStdlib(nu / 2) -
+        Math.log(nu * Math.PI) -
+        0.5 * Math.log(det) -
+        ((nu + 2) / 2) * Math.log1p((x * x - 2 * rho * x * y + y * y) / (det * nu));
       const m = informationDensityMoments(s, 100000, (z) => logT2(z[0], z[1]) - logT1(z[0]) - logT1(z[1]));
       expect(Math.abs(m.mean - s.truth), spec).toBeLessThan(4 * m.se);
     }
@@ -575,26 +601,27 @@ describe('mutual-information scenarios', () => {
     }
   });
 
-  it.each(catalog().filter((s) => s.quantity === 'mutual-information' && s.moments).map((s) => [s.id, s] as const))(
-    '%s: sample mean and covariance match the stated moments within 5 SE (n = 50000)',
-    (_id, s: Scenario) => {
-      const n = 50000;
-      const d = s.dim;
-      const { data } = s.sample(replicateRng(99, s.id, n, 0), n);
-      const { mean: trueMean, covariance: trueCov } = s.moments!;
-      for (let j = 0; j < d; j++) {
-        const column = Array.from({ length: n }, (_, i) => data[i * d + j]);
-        const { mean, se } = meanAndSe(column);
-        expect(Math.abs(mean - trueMean[j]), `mean[${j}]`).toBeLessThan(5 * se);
-        for (let k = 0; k <= j; k++) {
-          // Centred at the true means: E[(x_j − μ_j)(x_k − μ_k)] = Σ_jk exactly, SE from the sample of products.
-          const products = Array.from({ length: n }, (_, i) => (data[i * d + j] - trueMean[j]) * (data[i * d + k] - trueMean[k]));
-          const p = meanAndSe(products);
-          expect(Math.abs(p.mean - trueCov[j][k]), `cov[${j}][${k}]`).toBeLessThan(5 * p.se);
-        }
+  it.each(
+    catalog()
+      .filter((s) => s.quantity === 'mutual-information' && s.moments)
+      .map((s) => [s.id, s] as const),
+  )('%s: sample mean and covariance match the stated moments within 5 SE (n = 50000)', (_id, s: Scenario) => {
+    const n = 50000;
+    const d = s.dim;
+    const { data } = s.sample(replicateRng(99, s.id, n, 0), n);
+    const { mean: trueMean, covariance: trueCov } = s.moments!;
+    for (let j = 0; j < d; j++) {
+      const column = Array.from({ length: n }, (_, i) => data[i * d + j]);
+      const { mean, se } = meanAndSe(column);
+      expect(Math.abs(mean - trueMean[j]), `mean[${j}]`).toBeLessThan(5 * se);
+      for (let k = 0; k <= j; k++) {
+        // Centred at the true means: E[(x_j − μ_j)(x_k − μ_k)] = Σ_jk exactly, SE from the sample of products.
+        const products = Array.from({ length: n }, (_, i) => (data[i * d + j] - trueMean[j]) * (data[i * d + k] - trueMean[k]));
+        const p = meanAndSe(products);
+        expect(Math.abs(p.mean - trueCov[j][k]), `cov[${j}][${k}]`).toBeLessThan(5 * p.se);
       }
-    },
-  );
+    }
+  });
 
   it('mi-uniform-noise states its marginals: U(0,1) and the trapezoid, whose density and CDF match the sample (KS)', () => {
     for (const a of [0.1, 2]) {
@@ -652,7 +679,10 @@ describe('hhat estimate FILE --x-columns --y-columns', () => {
   });
 
   it('X and Y naming the same column (by name, or by overlapping ranges) is one line, exit code 2', async () => {
-    for (const [x, y, shown] of [['x', 'x,y', '"x"'], ['2-3', '3-4', '"3"']]) {
+    for (const [x, y, shown] of [
+      ['x', 'x,y', '"x"'],
+      ['2-3', '3-4', '"3"'],
+    ]) {
       const { code, err } = await run(['estimate', file, '--x-columns', x, '--y-columns', y]);
       expect(code).toBe(2);
       expect(err.trim()).toBe(`hhat: --x-columns and --y-columns both name column ${shown}; X and Y must be different columns`);

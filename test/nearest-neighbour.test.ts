@@ -97,7 +97,8 @@ describe('one neighbour search per draw, shared by every k (a tuning grid) and b
     klEstimator.estimate(sample, { k: 3, norm: 'euclidean' });
     klEstimator.estimate(sample, { k: 4, norm: 'euclidean' });
     sample.data.set(other.data);
-    for (const k of [3, 4, 6]) expect(relativeError(klEstimator.estimate(sample, { k, norm: 'euclidean' }), bruteKozachenkoLeonenko(other, k, 'euclidean'))).toBeLessThan(1e-12);
+    for (const k of [3, 4, 6])
+      expect(relativeError(klEstimator.estimate(sample, { k, norm: 'euclidean' }), bruteKozachenkoLeonenko(other, k, 'euclidean'))).toBeLessThan(1e-12);
   });
 });
 

@@ -49,7 +49,11 @@ function cell(estimator: string, estimates: (number | null)[], truth: number): R
     n: 100,
     perturbation: null,
     estimates,
-    scores: scoreCell(estimates.map((v) => (v === null ? NaN : v)), truth, 100),
+    scores: scoreCell(
+      estimates.map((v) => (v === null ? NaN : v)),
+      truth,
+      100,
+    ),
   };
 }
 
@@ -127,7 +131,20 @@ describe('best set verdicts on constructed cases', () => {
     const truth = 1;
     const good = [1.1, 0.9, 1.05, 0.95, 1.02, 0.97];
     const ranking = rankCell(
-      [cell('flaky', [1, 1, null, 1, 1, 1], truth), cell('good', good, truth), cell('wild', good.map((v, r) => (r === 2 ? 1e200 : v)), truth), cell('fine', good.map((v) => v + 0.01), truth)],
+      [
+        cell('flaky', [1, 1, null, 1, 1, 1], truth),
+        cell('good', good, truth),
+        cell(
+          'wild',
+          good.map((v, r) => (r === 2 ? 1e200 : v)),
+          truth,
+        ),
+        cell(
+          'fine',
+          good.map((v) => v + 0.01),
+          truth,
+        ),
+      ],
       truth,
       { level: 0.95, maxFailureRate: 0 },
       'x',
@@ -147,7 +164,18 @@ describe('best set verdicts on constructed cases', () => {
   });
 
   it('average ranks run over the same cells for everyone, failed cells last, cells it cannot run by design left out', () => {
-    const entry = (estimator: string, rank: number, status: 'ranked' | 'failed' = 'ranked') => ({ estimator, rank, status, best: rank === 1, pValue: null, signP: null, rmse: 0, rmseSe: 0, failures: 0, replicates: 10 });
+    const entry = (estimator: string, rank: number, status: 'ranked' | 'failed' = 'ranked') => ({
+      estimator,
+      rank,
+      status,
+      best: rank === 1,
+      pValue: null,
+      signP: null,
+      rmse: 0,
+      rmseSe: 0,
+      failures: 0,
+      replicates: 10,
+    });
     const rankings: Ranking[] = [
       { scenario: 'a', n: 10, perturbation: null, level: 0.95, comparedReplicates: 10, entries: [entry('x', 1), entry('y', 2)] },
       { scenario: 'b', n: 10, perturbation: null, level: 0.95, comparedReplicates: 10, entries: [entry('x', 1), entry('y', 2, 'failed')] },

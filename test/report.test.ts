@@ -155,8 +155,32 @@ function withRobustness(base: RunFile): RunFile {
     replicates: 8,
     perturbations: ['rescale:c=1000', 'quantize:step=0.1'],
     measures: [
-      { scenario: 'normal:mu=0,sigma=1', estimator: knn, perturbation: 'rescale:c=1000', kind: 'rescale', level: null, shift: Math.log(1000), drift: estimate(1e-12), change: estimate(1e-13), discreteEntropy: null, sd: 0.1, failures: 0 },
-      { scenario: 'normal:mu=0,sigma=1', estimator: gaussian, perturbation: 'quantize:step=0.1', kind: 'quantize', level: 0.1, shift: null, drift: estimate(null), change: estimate(0.02), discreteEntropy: 3.7, sd: 0.05, failures: 1 },
+      {
+        scenario: 'normal:mu=0,sigma=1',
+        estimator: knn,
+        perturbation: 'rescale:c=1000',
+        kind: 'rescale',
+        level: null,
+        shift: Math.log(1000),
+        drift: estimate(1e-12),
+        change: estimate(1e-13),
+        discreteEntropy: null,
+        sd: 0.1,
+        failures: 0,
+      },
+      {
+        scenario: 'normal:mu=0,sigma=1',
+        estimator: gaussian,
+        perturbation: 'quantize:step=0.1',
+        kind: 'quantize',
+        level: 0.1,
+        shift: null,
+        drift: estimate(null),
+        change: estimate(0.02),
+        discreteEntropy: 3.7,
+        sd: 0.05,
+        failures: 1,
+      },
     ],
     tuning: [
       {
@@ -171,13 +195,21 @@ function withRobustness(base: RunFile): RunFile {
         scenario: 'normal:mu=0,sigma=1',
         estimator: histogram,
         setting: 'bins',
-        points: ['sturges', 'scott', 'freedman-diaconis'].map((rule, i) => ({ value: rule, spec: `histogram:bins=${rule}`, mean: estimate(1.38 + i / 100), sd: 0.06, failures: 0 })),
+        points: ['sturges', 'scott', 'freedman-diaconis'].map((rule, i) => ({
+          value: rule,
+          spec: `histogram:bins=${rule}`,
+          mean: estimate(1.38 + i / 100),
+          sd: 0.06,
+          failures: 0,
+        })),
         spread: 0.4,
       },
     ],
     table: [knn, gaussian].map((estimator, row) => ({
       estimator,
-      columns: Object.fromEntries(columns.map((c, i) => [c, { value: i === 3 ? null : i / 10, verdict: verdicts[(i + row) % verdicts.length], detail: `${c} detail` }])),
+      columns: Object.fromEntries(
+        columns.map((c, i) => [c, { value: i === 3 ? null : i / 10, verdict: verdicts[(i + row) % verdicts.length], detail: `${c} detail` }]),
+      ),
     })),
   } as unknown as RobustnessSection;
   return { ...base, robustness: section };
@@ -210,7 +242,10 @@ describe('the robustness section', () => {
     const report = await renderReport(synthetic);
     const terminal = robustnessTable(synthetic);
     // Every verdict text the terminal prints (e.g. "warn 0.1 SD", "pass 0.4 nats") appears as a cell of the page.
-    const shown = terminal.split('\n').flatMap((line) => line.split('│').map((cell) => cell.trim())).filter((cell) => /^(pass|warn|fail)\b/.test(cell));
+    const shown = terminal
+      .split('\n')
+      .flatMap((line) => line.split('│').map((cell) => cell.trim()))
+      .filter((cell) => /^(pass|warn|fail)\b/.test(cell));
     expect(shown.length).toBeGreaterThan(4);
     for (const cell of shown) expect(report.html).toContain(`>${cell}</td>`);
     // Each carries its unit: nats for drift and outliers, SD for bias changes and tuning, SD for recording steps.
@@ -225,7 +260,10 @@ describe('the robustness section', () => {
         .split('\n')
         .filter((line) => line.startsWith('│') && !line.includes('estimator'))
         .map((line) => {
-          const cells = line.split('│').slice(1, -1).map((c) => c.trim());
+          const cells = line
+            .split('│')
+            .slice(1, -1)
+            .map((c) => c.trim());
           return [cells[0], ...cells.slice(1, 1 + sizes).map((c) => c.split(/ {2}/).pop()!)];
         });
       const table = report.html.split('<table').find((t) => t.includes(`<caption>${info.id}: RMSE`))!;
@@ -251,7 +289,8 @@ describe('biasTextChart', () => {
   /** Two estimators with |bias| chosen by hand: A falls two decades over 100 → 10000, B stays at 0.01. */
   function handMade(): RunFile {
     const scores = (bias: number, se: number) => ({ bias: { value: bias, se } }) as unknown as Cell['scores'];
-    const cell = (estimator: string, n: number, bias: number, se: number) => ({ scenario: 's', estimator, n, role: 'main', perturbation: null, scores: scores(bias, se) }) as unknown as Cell;
+    const cell = (estimator: string, n: number, bias: number, se: number) =>
+      ({ scenario: 's', estimator, n, role: 'main', perturbation: null, scores: scores(bias, se) }) as unknown as Cell;
     return {
       scenarios: [{ id: 's' }],
       cells: [cell('gaussian', 100, 0.1, 0.001), cell('gaussian', 10000, -0.001, 0.0001), cell('kernel', 100, 0.01, 0.001), cell('kernel', 10000, 0.01, 0.02)],

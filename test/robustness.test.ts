@@ -75,7 +75,7 @@ describe('exact shifts of the true value', () => {
     expect(() => parsePerturbation('blur')).toThrow(/unknown perturbation "blur"/);
   });
 
-  it('mutual information: part=y touches only the columns after the scenario\'s xDim, and the truth stays', () => {
+  it("mutual information: part=y touches only the columns after the scenario's xDim, and the truth stays", () => {
     const p = prepared('rescale:c=10,part=y', 'mi-gaussian:dimX=2,dimY=1');
     expect(p.shift).toBe(0);
     const data = new Float64Array([1, 2, 3, 4, 5, 6]);
@@ -89,7 +89,17 @@ describe('unit drift under rescale', () => {
   it('is 0 to rounding for Kozachenko–Leonenko, the spacing estimators and data-driven histograms; a fixed-width histogram drifts and the table says so', async () => {
     const result = await run({
       scenarios: ['normal', 'exponential', 'gaussian:dim=2,rho=0.5'],
-      estimators: ['kozachenko-leonenko', 'kozachenko-leonenko:norm=max', 'vasicek', 'van-es', 'ebrahimi', 'correa', 'histogram', 'histogram:bins=sturges', 'histogram:width=0.25'],
+      estimators: [
+        'kozachenko-leonenko',
+        'kozachenko-leonenko:norm=max',
+        'vasicek',
+        'van-es',
+        'ebrahimi',
+        'correa',
+        'histogram',
+        'histogram:bins=sturges',
+        'histogram:width=0.25',
+      ],
       sampleSizes: [300],
       replicates: 6,
       seed: 11,
@@ -137,7 +147,17 @@ describe('monotone and affine perturbations in the table', () => {
 
 describe('quantization and tuning', () => {
   it('the quantization threshold is the largest step before the bias leaves 2 Monte-Carlo errors or an estimate fails', () => {
-    const base = { scenario: 's', estimator: 'e', perturbation: 'q', kind: 'quantize' as const, shift: null, drift: { value: 0, se: 0 }, discreteEntropy: null, sd: 0.1, biasSe: 0.01 };
+    const base = {
+      scenario: 's',
+      estimator: 'e',
+      perturbation: 'q',
+      kind: 'quantize' as const,
+      shift: null,
+      drift: { value: 0, se: 0 },
+      discreteEntropy: null,
+      sd: 0.1,
+      biasSe: 0.01,
+    };
     const levels = [
       { ...base, level: 0.001, change: { value: 0.001, se: 1e-4 }, failures: 0 },
       { ...base, level: 0.01, change: { value: 0.015, se: 1e-3 }, failures: 0 },
@@ -165,7 +185,9 @@ describe('quantization and tuning', () => {
     const sd = result.cells.find((c) => c.role === 'main' && c.estimator.startsWith('kozachenko-leonenko'))!.scores.sd.value;
     expect(kl.spread).toBeCloseTo((Math.max(...means) - Math.min(...means)) / sd, 12);
     // The k = 3 point is the plan's own cell: identical estimates, not a second run.
-    expect(kl.points.find((p) => p.value === 3)!.mean.value).toBe(result.cells.find((c) => c.role === 'main' && c.estimator.startsWith('kozachenko-leonenko'))!.scores.mean.value);
+    expect(kl.points.find((p) => p.value === 3)!.mean.value).toBe(
+      result.cells.find((c) => c.role === 'main' && c.estimator.startsWith('kozachenko-leonenko'))!.scores.mean.value,
+    );
     expect(curves.some((c) => c.estimator.startsWith('histogram') && c.setting === 'bins')).toBe(true);
     expect(curves.some((c) => c.estimator.startsWith('histogram') && c.setting === 'scale')).toBe(true);
     expect(curves.some((c) => c.estimator.startsWith('kernel') && c.setting === 'scale')).toBe(true);
@@ -211,13 +233,18 @@ describe('entropy relative to a reference density', () => {
     const gammaLog = (x: number) => 2 * Math.log(x) - x - Math.log(2);
     const expLog = (x: number) => -x;
     const inX = integrate((x) => (x > 0 ? Math.exp(gammaLog(x)) * (expLog(x) - gammaLog(x)) : 0), 0, Infinity, { absTol: 1e-13 });
-    const inY = integrate((y) => {
-      const x = Math.exp(y);
-      if (x === 0 || x === Infinity) return 0;
-      const rhoY = gammaLog(x) + y;
-      const mY = expLog(x) + y;
-      return Math.exp(rhoY) * (mY - rhoY);
-    }, -Infinity, Infinity, { absTol: 1e-13 });
+    const inY = integrate(
+      (y) => {
+        const x = Math.exp(y);
+        if (x === 0 || x === Infinity) return 0;
+        const rhoY = gammaLog(x) + y;
+        const mY = expLog(x) + y;
+        return Math.exp(rhoY) * (mY - rhoY);
+      },
+      -Infinity,
+      Infinity,
+      { absTol: 1e-13 },
+    );
     expect(inY.value).toBeCloseTo(inX.value, 10);
     const hX = integrate((x) => (x > 0 ? -Math.exp(gammaLog(x)) * gammaLog(x) : 0), 0, Infinity, { absTol: 1e-13 }).value;
     const hY = integrate(

@@ -350,7 +350,11 @@ describe('numeric truths', () => {
   });
 
   it('a transform with a constant Jacobian equals the closed-form shift log|a|', () => {
-    for (const [a, base] of [[3, 'gamma:shape=2,scale=1'], [-0.001, 'normal'], [1000, 'beta:a=2,b=5']] as const) {
+    for (const [a, base] of [
+      [3, 'gamma:shape=2,scale=1'],
+      [-0.001, 'normal'],
+      [1000, 'beta:a=2,b=5'],
+    ] as const) {
       const t = parseScenario(`transformed[affine:a=${a},b=1;${base}]`);
       expect(Math.abs(t.truth - (parseScenario(base).truth + Math.log(Math.abs(a))))).toBeLessThan(1e-12);
     }

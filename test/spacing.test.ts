@@ -181,7 +181,10 @@ describe('sortAscending', () => {
       specials.forEach((x, i) => (values[i * 7] = x));
       const expected = Float64Array.from(values).sort();
       const sorted = sortAscending(Float64Array.from(values));
-      expect(sorted.every((x, i) => Object.is(x, expected[i])), `n=${n}`).toBe(true);
+      expect(
+        sorted.every((x, i) => Object.is(x, expected[i])),
+        `n=${n}`,
+      ).toBe(true);
     }
     // Only positive and only negative values take the other branches of the final reordering.
     for (const sign of [1, -1]) {

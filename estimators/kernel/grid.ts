@@ -107,7 +107,12 @@ function solveDecreasing(tail: (z: number) => number, target: number): number {
 }
 
 /** Grid step, widths and window sizes for n points at bandwidth h (no box yet). */
-function gridWidths(n: number, dim: number, bandwidth: number, tolerance: number): Omit<GridPlan, 'origin' | 'nodes' | 'totalNodes' | 'lower' | 'upper' | 'insideCount'> {
+function gridWidths(
+  n: number,
+  dim: number,
+  bandwidth: number,
+  tolerance: number,
+): Omit<GridPlan, 'origin' | 'nodes' | 'totalNodes' | 'lower' | 'upper' | 'insideCount'> {
   const alpha = SPREAD_FRACTION;
   const a = alpha;
   const b = Math.sqrt(1 - 2 * alpha * alpha);
@@ -336,7 +341,18 @@ function rowDot(grid: Float64Array, base: number, w0: Float64Array, window: numb
 }
 
 /** Adds the outer product of the weight tables to the grid at the window's corner (d = 3). */
-function spread3(grid: Float64Array, n0: number, n1: number, first0: number, first1: number, first2: number, w0: Float64Array, w1: Float64Array, w2: Float64Array, window: number): void {
+function spread3(
+  grid: Float64Array,
+  n0: number,
+  n1: number,
+  first0: number,
+  first1: number,
+  first2: number,
+  w0: Float64Array,
+  w1: Float64Array,
+  w2: Float64Array,
+  window: number,
+): void {
   for (let m2 = 0; m2 < window; m2++) {
     const weight2 = w2[m2];
     let base = ((first2 + m2) * n1 + first1) * n0 + first0;
@@ -345,7 +361,18 @@ function spread3(grid: Float64Array, n0: number, n1: number, first0: number, fir
 }
 
 /** The grid's values in the window weighted by the outer product of the weight tables (d = 3). */
-function gather3(grid: Float64Array, n0: number, n1: number, first0: number, first1: number, first2: number, w0: Float64Array, w1: Float64Array, w2: Float64Array, window: number): number {
+function gather3(
+  grid: Float64Array,
+  n0: number,
+  n1: number,
+  first0: number,
+  first1: number,
+  first2: number,
+  w0: Float64Array,
+  w1: Float64Array,
+  w2: Float64Array,
+  window: number,
+): number {
   let total = 0;
   for (let m2 = 0; m2 < window; m2++) {
     let plane = 0;
@@ -373,14 +400,7 @@ function gather2(grid: Float64Array, n0: number, first0: number, first1: number,
  * inside points whose grid sum is below 1, for the caller to do exactly). `extra` (may be undefined) holds
  * exact contributions from points outside the box, added before the threshold.
  */
-export function gridLogKernelSums(
-  z: Float64Array,
-  n: number,
-  bandwidth: number,
-  plan: GridPlan,
-  extra: Float64Array | undefined,
-  logSums: Float64Array,
-): void {
+export function gridLogKernelSums(z: Float64Array, n: number, bandwidth: number, plan: GridPlan, extra: Float64Array | undefined, logSums: Float64Array): void {
   const { dim, window, taps, convolutionWeights, origin, nodes, totalNodes, lower, upper, step } = plan;
   const a = plan.spreadWidth;
   const b = plan.convolutionWidth;

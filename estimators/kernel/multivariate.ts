@@ -198,7 +198,15 @@ function gridShape(lower: Float64Array, upper: Float64Array, dim: number, side: 
 }
 
 /** The key of each point's cell, each coordinate clamped to its axis's last cell. */
-function pointCellKeys(z: Float64Array, n: number, dim: number, side: number, lower: Float64Array, cellsPerAxis: Float64Array, stride: Float64Array): Float64Array {
+function pointCellKeys(
+  z: Float64Array,
+  n: number,
+  dim: number,
+  side: number,
+  lower: Float64Array,
+  cellsPerAxis: Float64Array,
+  stride: Float64Array,
+): Float64Array {
   const keys = new Float64Array(n);
   for (let i = 0; i < n; i++) {
     let key = 0;
@@ -413,13 +421,7 @@ function gridSeconds(plan: GridPlan, n: number, examinedPairs: number): number {
 const FULL_PASS_MAX_TERMS = 2 ** 23;
 
 /** log S_i for every whitened point (see the file comment). */
-export function multivariateLogKernelSums(
-  z: Float64Array,
-  n: number,
-  dim: number,
-  bandwidth: number,
-  path: MultivariatePath = 'auto',
-): MultivariateKernelSums {
+export function multivariateLogKernelSums(z: Float64Array, n: number, dim: number, bandwidth: number, path: MultivariatePath = 'auto'): MultivariateKernelSums {
   const radius = kernelCutoff(n) * bandwidth;
   const exponentScale = -0.5 / (bandwidth * bandwidth);
   const sums = new Float64Array(n);
@@ -438,7 +440,9 @@ export function multivariateLogKernelSums(
   // The cell list also serves the exact neighbourhoods of isolated and outside points (neighbourhood.ts).
   const tryCells = path === 'cells' || ((path === 'auto' || path === 'grid') && dim <= MAX_CELL_LIST_DIM);
   const cells = tryCells ? buildCellList(z, n, dim, radius, cellsPerRadius(dim)) : undefined;
-  const useGrid = plan !== undefined && (path === 'grid' || (cells !== undefined && gridSeconds(plan, n, cells.examinedPairs) < cells.examinedPairs * SECONDS_PER_EXAMINED_PAIR));
+  const useGrid =
+    plan !== undefined &&
+    (path === 'grid' || (cells !== undefined && gridSeconds(plan, n, cells.examinedPairs) < cells.examinedPairs * SECONDS_PER_EXAMINED_PAIR));
 
   let tree: KnnIndex | undefined;
   let used: MultivariateKernelSums['path'];

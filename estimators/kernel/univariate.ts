@@ -95,14 +95,7 @@ export function exactLogKernelSum(sorted: Float64Array, i: number, bandwidth: nu
  * also receives every other point within c·h of the run, so runs split for length lose nothing. Points left
  * with a sum below ISOLATED_SUM get NaN, for the caller to redo exactly.
  */
-export function binnedLogKernelSums(
-  sorted: Float64Array,
-  from: number,
-  to: number,
-  bandwidth: number,
-  cutoff: number,
-  logSums: Float64Array,
-): void {
+export function binnedLogKernelSums(sorted: Float64Array, from: number, to: number, bandwidth: number, cutoff: number, logSums: Float64Array): void {
   const n = sorted.length;
   const spacing = bandwidth / GRID_POINTS_PER_BANDWIDTH;
   const kernelHalfWidth = Math.ceil(cutoff * GRID_POINTS_PER_BANDWIDTH);

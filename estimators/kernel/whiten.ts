@@ -37,7 +37,10 @@ export function whiten(sample: Sample): Whitened {
   for (let k = 0; k < dim; k++) {
     const variance = covariance[k * dim + k];
     if (!(variance > 0)) {
-      throw new EstimateError('invalid-input', `kernel: column ${k + 1} is constant, so the sample covariance is singular; drop the column (the entropy of a point mass is −∞)`);
+      throw new EstimateError(
+        'invalid-input',
+        `kernel: column ${k + 1} is constant, so the sample covariance is singular; drop the column (the entropy of a point mass is −∞)`,
+      );
     }
     if (!Number.isFinite(variance)) {
       throw new EstimateError('numeric', `kernel: the variance of column ${k + 1} overflows; rescale the data`);

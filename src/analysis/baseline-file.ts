@@ -100,7 +100,8 @@ export function baselineOf(run: RunFile): Baseline {
     }))
     .sort(compareCells);
   for (let i = 1; i < cells.length; i++) {
-    if (compareCells(cells[i - 1], cells[i]) === 0) throw new UsageError(`the run holds the cell ${describeBaselineCell(cells[i])} twice; a baseline needs each cell once`);
+    if (compareCells(cells[i - 1], cells[i]) === 0)
+      throw new UsageError(`the run holds the cell ${describeBaselineCell(cells[i])} twice; a baseline needs each cell once`);
   }
   const truths = run.scenarios.map((s) => ({ scenario: s.id, truth: s.truth })).sort((a, b) => byCodeUnits(a.scenario, b.scenario));
   const planLine = formatPlanLine(run.plan);
@@ -137,7 +138,12 @@ function formatNumber(x: number): string {
 }
 
 function formatCell(cell: BaselineCell): string {
-  const parts = [`"scenario":${JSON.stringify(cell.scenario)}`, `"estimator":${JSON.stringify(cell.estimator)}`, `"n":${cell.n}`, `"role":${JSON.stringify(cell.role)}`];
+  const parts = [
+    `"scenario":${JSON.stringify(cell.scenario)}`,
+    `"estimator":${JSON.stringify(cell.estimator)}`,
+    `"n":${cell.n}`,
+    `"role":${JSON.stringify(cell.role)}`,
+  ];
   if (cell.perturbation !== null) parts.push(`"perturbation":${JSON.stringify(cell.perturbation)}`);
   if (cell.shift !== null) parts.push(`"shift":${formatNumber(cell.shift)}`);
   if (cell.tuning !== null) parts.push(`"tuning":${JSON.stringify(cell.tuning)}`);
@@ -184,14 +190,21 @@ export function parseBaseline(text: string, label: string): Baseline {
   const header = record(0);
   if (header.format !== BASELINE_FORMAT) bad(0, `not an hhat baseline (the header's "format" must be "${BASELINE_FORMAT}")`);
   if (header.version !== BASELINE_VERSION) bad(0, `format version ${String(header.version)}; this hhat reads version ${BASELINE_VERSION}`);
-  for (const key of ['hhat', 'plan', 'quantity', 'planDigest', 'drawsFingerprint'] as const) if (typeof header[key] !== 'string') bad(0, `the header has no "${key}" string`);
-  for (const key of ['scenarios', 'cells'] as const) if (!Number.isInteger(header[key]) || (header[key] as number) < 0) bad(0, `the header's "${key}" must be a count`);
+  for (const key of ['hhat', 'plan', 'quantity', 'planDigest', 'drawsFingerprint'] as const)
+    if (typeof header[key] !== 'string') bad(0, `the header has no "${key}" string`);
+  for (const key of ['scenarios', 'cells'] as const)
+    if (!Number.isInteger(header[key]) || (header[key] as number) < 0) bad(0, `the header's "${key}" must be a count`);
   const counts = { scenarios: header.scenarios as number, cells: header.cells as number };
-  if (lines.length !== 2 + counts.scenarios + counts.cells) bad(Math.min(lines.length, 2 + counts.scenarios + counts.cells), `the header announces ${counts.scenarios} scenario and ${counts.cells} cell lines after the plan, and the file has ${lines.length - 2}`);
+  if (lines.length !== 2 + counts.scenarios + counts.cells)
+    bad(
+      Math.min(lines.length, 2 + counts.scenarios + counts.cells),
+      `the header announces ${counts.scenarios} scenario and ${counts.cells} cell lines after the plan, and the file has ${lines.length - 2}`,
+    );
 
-  if (sha256(lines[1]) !== header.planDigest) bad(1, 'the plan line does not match the header\'s planDigest (edited by hand?)');
+  if (sha256(lines[1]) !== header.planDigest) bad(1, "the plan line does not match the header's planDigest (edited by hand?)");
   const plan = record(1).plan as Plan;
-  if (typeof plan !== 'object' || plan === null || !Array.isArray(plan.scenarios) || !Number.isInteger(plan.replicates)) bad(1, 'no "plan" object with scenarios and replicates');
+  if (typeof plan !== 'object' || plan === null || !Array.isArray(plan.scenarios) || !Number.isInteger(plan.replicates))
+    bad(1, 'no "plan" object with scenarios and replicates');
   if (drawsFingerprint(plan) !== header.drawsFingerprint) bad(0, "the header's drawsFingerprint does not match the plan");
 
   const truths: Baseline['truths'] = [];

@@ -67,7 +67,9 @@ export function parseTolerance(text: string): Tolerance {
   if (percent) return { kind: 'ratio', value: Number(percent[1]) / 100 };
   const nats = /^(\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?$/.test(trimmed) ? Number(trimmed) : NaN;
   if (Number.isFinite(nats)) return { kind: 'nats', value: nats };
-  throw new UsageError(`--tolerance ${text} is not allowed; give a change in RMSE in nats (e.g. 0.01) or a percentage of the base RMSE (e.g. 5%), not negative`);
+  throw new UsageError(
+    `--tolerance ${text} is not allowed; give a change in RMSE in nats (e.g. 0.01) or a percentage of the base RMSE (e.g. 5%), not negative`,
+  );
 }
 
 export function describeTolerance(tolerance: Tolerance): string {
@@ -227,7 +229,8 @@ function drawsDifference(base: ComparableRun, next: ComparableRun): string {
   const differences: string[] = [];
   if (base.plan.seed !== next.plan.seed) differences.push(`seed ${base.plan.seed} vs ${next.plan.seed}`);
   if (base.plan.replicates !== next.plan.replicates) differences.push(`replicates ${base.plan.replicates} vs ${next.plan.replicates}`);
-  if (base.plan.sampleSizes.join() !== next.plan.sampleSizes.join()) differences.push(`sample sizes ${base.plan.sampleSizes.join(',')} vs ${next.plan.sampleSizes.join(',')}`);
+  if (base.plan.sampleSizes.join() !== next.plan.sampleSizes.join())
+    differences.push(`sample sizes ${base.plan.sampleSizes.join(',')} vs ${next.plan.sampleSizes.join(',')}`);
   if (JSON.stringify(base.plan.scenarios) !== JSON.stringify(next.plan.scenarios)) differences.push('different scenario lists');
   return differences.length ? differences.join(', ') : 'different draws fingerprints';
 }
@@ -235,15 +238,31 @@ function drawsDifference(base: ComparableRun, next: ComparableRun): string {
 function decidePairing(base: ComparableRun, next: ComparableRun, pairing: CompareOptions['pairing']): { paired: boolean; reason: string } {
   if (pairing === 'unpaired') return { paired: false, reason: "unpaired on request; Welch's t test on the squared errors, Fisher's exact test on failures" };
   if (base.drawsFingerprint === next.drawsFingerprint) {
-    return { paired: true, reason: `both runs drew the same samples (draws fingerprint ${base.drawsFingerprint.slice(0, 12)}); paired tests on per-replicate differences of squared errors and on failures` };
+    return {
+      paired: true,
+      reason: `both runs drew the same samples (draws fingerprint ${base.drawsFingerprint.slice(0, 12)}); paired tests on per-replicate differences of squared errors and on failures`,
+    };
   }
-  return { paired: false, reason: `the runs drew different samples (${drawsDifference(base, next)}); Welch's t test on the squared errors, Fisher's exact test on failures` };
+  return {
+    paired: false,
+    reason: `the runs drew different samples (${drawsDifference(base, next)}); Welch's t test on the squared errors, Fisher's exact test on failures`,
+  };
 }
 
 function finishTest(kind: TTest['kind'], difference: number, se: number, df: number, level: number, count: TTest['count']): TTest {
   if (se === 0) {
     // Every difference equal: no spread to test against, so the sign alone decides (p 0), or nothing changed (p 1).
-    return { kind, difference, se, df, t: difference === 0 ? 0 : Math.sign(difference) * Infinity, p: difference === 0 ? 1 : 0, interval: [difference, difference], level, count };
+    return {
+      kind,
+      difference,
+      se,
+      df,
+      t: difference === 0 ? 0 : Math.sign(difference) * Infinity,
+      p: difference === 0 ? 1 : 0,
+      interval: [difference, difference],
+      level,
+      count,
+    };
   }
   const t = difference / se;
   const p = Math.min(1, 2 * tCdf(-Math.abs(t), df));
@@ -295,7 +314,13 @@ function meanAndVariance(values: number[]): { mean: number; variance: number } {
  *   ΔRMSE = ΔMSE/(RMSE_new + RMSE_base) with ΔMSE = mean d_r, SE = SD(d)/√m / (RMSE_new + RMSE_base),
  * where d holds the squared-error differences d_r the caller already has.
  */
-function pairedChanges(next: number[], base: number[], truthNext: number, truthBase: number, d: number[]): { bias: ScoreChange; sd: ScoreChange; rmse: ScoreChange } | null {
+function pairedChanges(
+  next: number[],
+  base: number[],
+  truthNext: number,
+  truthBase: number,
+  d: number[],
+): { bias: ScoreChange; sd: ScoreChange; rmse: ScoreChange } | null {
   const m = next.length;
   if (m < 2) return null;
   const shifts = next.map((v, r) => v - truthNext - (base[r] - truthBase));
@@ -315,7 +340,13 @@ function pairedChanges(next: number[], base: number[], truthNext: number, truthB
   const rmseSum = Math.sqrt(mseNext) + Math.sqrt(mseBase);
   const withSe = (value: number, se: number): ValueWithSe => ({ value, se });
   return {
-    bias: { base: withSe(biasBase, Math.sqrt(b.variance / m)), next: withSe(biasNext, Math.sqrt(a.variance / m)), change: shift.mean, changeSe: Math.sqrt(shift.variance / m), paired: true },
+    bias: {
+      base: withSe(biasBase, Math.sqrt(b.variance / m)),
+      next: withSe(biasNext, Math.sqrt(a.variance / m)),
+      change: shift.mean,
+      changeSe: Math.sqrt(shift.variance / m),
+      paired: true,
+    },
     sd: {
       base: withSe(sdBase, NaN),
       next: withSe(sdNext, NaN),
@@ -370,7 +401,8 @@ function failureChange(base: ComparedCell, next: ComparedCell, paired: boolean):
   const failedBase = base.scores.failures;
   const failedNext = next.scores.failures;
   if (!paired) {
-    const p = failedBase + failedNext === 0 ? null : fisherExact(failedNext, next.estimates.length - failedNext, failedBase, base.estimates.length - failedBase);
+    const p =
+      failedBase + failedNext === 0 ? null : fisherExact(failedNext, next.estimates.length - failedNext, failedBase, base.estimates.length - failedBase);
     return { base: failedBase, next: failedNext, onlyNext: null, onlyBase: null, p };
   }
   let onlyNext = 0;
@@ -401,7 +433,11 @@ interface CellTests {
 
 /** The score changes with the two runs' SEs combined as independent. */
 function unpairedChanges(base: ComparedCell, next: ComparedCell): ScoreChanges {
-  return { bias: unpairedChange(base.scores.bias, next.scores.bias), sd: unpairedChange(base.scores.sd, next.scores.sd), rmse: unpairedChange(base.scores.rmse, next.scores.rmse) };
+  return {
+    bias: unpairedChange(base.scores.bias, next.scores.bias),
+    sd: unpairedChange(base.scores.sd, next.scores.sd),
+    rmse: unpairedChange(base.scores.rmse, next.scores.rmse),
+  };
 }
 
 /** Different draws: Welch's t test on the two runs' squared errors, and the unpaired score changes. */
@@ -515,8 +551,14 @@ function withinNoiseReasons(e: CellEvidence, v: CellVerdicts, reasons: string[])
   const { test, sign, failures, testLevel } = e;
   if (failures.next !== failures.base) reasons.unshift(`${failureReason(e)}, not significant at ${formatNumber(testLevel)}`);
   if (test === null) reasons.unshift('too few successful replicates for a test');
-  else if (v.significant) reasons.unshift(`significant (p = ${formatNumber(test.p)} ≤ ${formatNumber(testLevel)}) but |ΔRMSE| = ${formatNumber(Math.abs(e.changes.rmse.change))} is within the tolerance ${formatNumber(e.toleranceNats)} nats`);
-  else reasons.unshift(`the t test on the ${squaredErrorTestName(e.paired)} gives p = ${formatNumber(test.p)} > ${formatNumber(testLevel)}${sign ? `; sign test ${sign.above} worse, ${sign.below} better (p = ${formatNumber(sign.p)})` : ''}`);
+  else if (v.significant)
+    reasons.unshift(
+      `significant (p = ${formatNumber(test.p)} ≤ ${formatNumber(testLevel)}) but |ΔRMSE| = ${formatNumber(Math.abs(e.changes.rmse.change))} is within the tolerance ${formatNumber(e.toleranceNats)} nats`,
+    );
+  else
+    reasons.unshift(
+      `the t test on the ${squaredErrorTestName(e.paired)} gives p = ${formatNumber(test.p)} > ${formatNumber(testLevel)}${sign ? `; sign test ${sign.above} worse, ${sign.below} better (p = ${formatNumber(sign.p)})` : ''}`,
+    );
 }
 
 /** Bit-identical, else wild, else worse or improved by any test (worse wins), else within noise; tested: in Holm's step-down. */
@@ -563,7 +605,9 @@ function compareCell(
   // Intervals are shown at the cell's Bonferroni level alone; the verdict also takes Holm's share.
   const intervalLevel = 1 - (1 - level) / tests;
   const testLevel = (1 - level) / (tests * holmDivisor);
-  const measured = paired ? pairedTests(base, next, truthBase, truthNext, intervalLevel, reasons) : unpairedTests(base, next, truthBase, truthNext, intervalLevel);
+  const measured = paired
+    ? pairedTests(base, next, truthBase, truthNext, intervalLevel, reasons)
+    : unpairedTests(base, next, truthBase, truthNext, intervalLevel);
 
   const toleranceNats = tolerance.kind === 'nats' ? tolerance.value : tolerance.value * base.scores.rmse.value;
   const wild = wildEstimates(base, next, truthBase, truthNext, toleranceNats);
@@ -633,8 +677,12 @@ function truthOf(run: ComparableRun): Map<string, number> {
  * missing replicates would look like failures.
  */
 export function compareRuns(base: ComparableRun, next: ComparableRun, options: CompareOptions = {}, labels = { base: 'BASE', next: 'NEW' }): Comparison {
-  for (const [run, label] of [[base, labels.base], [next, labels.next]] as const) {
-    if (run.shard) throw new UsageError(`${label} is shard ${run.shard.index}/${run.shard.count} of a run; merge the shards (hhat merge) and compare the merged file`);
+  for (const [run, label] of [
+    [base, labels.base],
+    [next, labels.next],
+  ] as const) {
+    if (run.shard)
+      throw new UsageError(`${label} is shard ${run.shard.index}/${run.shard.count} of a run; merge the shards (hhat merge) and compare the merged file`);
     if (!run.complete) throw new UsageError(`${label} is an incomplete run; finish it (bench --resume) before comparing`);
   }
   const tolerance = options.tolerance ?? { kind: 'nats', value: 0 };

@@ -146,7 +146,6 @@ export const CHECKED_RESCALINGS = [8, -1 / 16] as const;
 /** Shifts of the translation check, by column: several SDs of the suite's laws, alternating in sign. */
 const SHIFTS = [5, -3.25] as const;
 
-
 interface Context {
   estimator: Estimator;
   settings: Settings;
@@ -205,7 +204,9 @@ function attempt(context: Context, sample: Sample, settings: Settings = context.
 function estimateOn(context: Context, sample: Sample, what: string, settings?: Settings): number {
   const outcome = attempt(context, sample, settings);
   if (outcome.kind === 'value') return outcome.value;
-  throw new CheckFailed(`${what}: ${outcome.kind === 'thrown' ? describeThrown(outcome.error) : `${describeReturned(outcome.value)} instead of a finite number`}`);
+  throw new CheckFailed(
+    `${what}: ${outcome.kind === 'thrown' ? describeThrown(outcome.error) : `${describeReturned(outcome.value)} instead of a finite number`}`,
+  );
 }
 
 /** The reason the estimator declares for lacking an invariance with these settings in dimension `dim`, if any. */
@@ -268,7 +269,11 @@ function invariance(context: Context, name: InvarianceName, dim: number, run: ()
       if (!(error instanceof CheckFailed)) throw error;
       measured = `; measured anyway: ${error.message}`;
     }
-    return { status: 'not-applicable', evidence: `declared lacking (lacks.${name}): ${reason}${measured}`, declared: { invariance: name, reason, ...(compared ? { compared } : {}) } };
+    return {
+      status: 'not-applicable',
+      evidence: `declared lacking (lacks.${name}): ${reason}${measured}`,
+      declared: { invariance: name, reason, ...(compared ? { compared } : {}) },
+    };
   }
   const result = run();
   return { status: result.ok ? 'pass' : 'fail', evidence: result.line, compared: result.compared };
@@ -287,8 +292,15 @@ const deterministic: Body = (context) => {
   const values = `${first}, ${again} (same array again), ${copy} (a copy)`;
   return {
     status: same ? 'pass' : 'fail',
-    evidence: same ? `three estimates of the same values are bit-identical: ${first}` : `the same values gave ${values}; an estimate must depend on the values alone`,
-    compared: { expected: first, got: Object.is(first, again) ? copy : again, difference: Math.max(Math.abs(first - again), Math.abs(first - copy)), tolerance: 0 },
+    evidence: same
+      ? `three estimates of the same values are bit-identical: ${first}`
+      : `the same values gave ${values}; an estimate must depend on the values alone`,
+    compared: {
+      expected: first,
+      got: Object.is(first, again) ? copy : again,
+      difference: Math.max(Math.abs(first - again), Math.abs(first - copy)),
+      tolerance: 0,
+    },
   };
 };
 
@@ -304,7 +316,12 @@ const leavesSampleUnchanged: Body = (context) => {
 
 const rowOrder: Body = (context) =>
   invariance(context, 'rowOrder', context.base.dim, () =>
-    measure(context, context.base, [{ label: context.base.q ? 'rows of P and Q permuted' : 'rows permuted', sample: permuteRows(context.base), shift: 0 }], ROUNDING_TOLERANCE),
+    measure(
+      context,
+      context.base,
+      [{ label: context.base.q ? 'rows of P and Q permuted' : 'rows permuted', sample: permuteRows(context.base), shift: 0 }],
+      ROUNDING_TOLERANCE,
+    ),
   );
 
 const configuredResolved: Body = (context) => {
@@ -365,7 +382,11 @@ const scale: Body = (context) => {
         [b, a],
       ].map(([fx, fy]) => ({
         label: `X ×${factorLabel(fx)}, Y ×${factorLabel(fy)}`,
-        sample: mapColumns(base, Array.from({ length: dim }, (_, j) => (j < xDim ? fx : fy)), new Array<number>(dim).fill(0)),
+        sample: mapColumns(
+          base,
+          Array.from({ length: dim }, (_, j) => (j < xDim ? fx : fy)),
+          new Array<number>(dim).fill(0),
+        ),
         shift: 0,
       })),
       ROUNDING_TOLERANCE,
@@ -389,16 +410,30 @@ const translation: Body = (context) => {
 };
 
 const symmetry: Body = (context) =>
-  invariance(context, 'symmetry', context.base.dim, () => measure(context, context.base, [{ label: 'Î(Y; X)', sample: swapParts(context.base), shift: 0 }], ROUNDING_TOLERANCE, 'Î(X; Y)'));
+  invariance(context, 'symmetry', context.base.dim, () =>
+    measure(context, context.base, [{ label: 'Î(Y; X)', sample: swapParts(context.base), shift: 0 }], ROUNDING_TOLERANCE, 'Î(X; Y)'),
+  );
 
 const affine: Body = (context) => {
   const [minDim, maxDim] = context.estimator.dims;
   const dim = Math.max(2, minDim);
-  if (dim > maxDim) return { status: 'not-applicable', evidence: 'd = 1 only: there an affine map is a rescaling and a shift, checked by scale and translation' };
+  if (dim > maxDim)
+    return { status: 'not-applicable', evidence: 'd = 1 only: there an affine map is a rescaling and a shift, checked by scale and translation' };
   const { sample } = draw(affineLaw(dim), INVARIANCE_N);
   const { matrix, shift } = affineMap(dim);
   return invariance(context, 'affine', dim, () =>
-    measure(context, sample, [{ label: `P and Q through x → Ax + b (d = ${dim}, det A = ${show(diagonalProduct(matrix, dim))})`, sample: applyAffine(sample, matrix, shift), shift: 0 }], MAPPED_DATA_TOLERANCE),
+    measure(
+      context,
+      sample,
+      [
+        {
+          label: `P and Q through x → Ax + b (d = ${dim}, det A = ${show(diagonalProduct(matrix, dim))})`,
+          sample: applyAffine(sample, matrix, shift),
+          shift: 0,
+        },
+      ],
+      MAPPED_DATA_TOLERANCE,
+    ),
   );
 };
 
@@ -451,7 +486,10 @@ function refusals(context: Context, cases: { label: string; sample: Sample }[]):
       continue;
     }
     ok = false;
-    if (outcome.kind === 'thrown') parts.push(`${label}: ${describeThrown(outcome.error)}, which is not an EstimateError (an Error named 'EstimateError' with a code such as 'invalid-input')`);
+    if (outcome.kind === 'thrown')
+      parts.push(
+        `${label}: ${describeThrown(outcome.error)}, which is not an EstimateError (an Error named 'EstimateError' with a code such as 'invalid-input')`,
+      );
     else parts.push(`${label}: ${describeReturned(outcome.value)} instead of an EstimateError`);
   }
   return { status: ok ? 'pass' : 'fail', evidence: parts.join('; ') };
@@ -503,7 +541,9 @@ const rejectsWrongDimension: Body = (context) => {
     if (!outside.length) return { status: 'not-applicable', evidence: `dims [${minDim}, ∞): every dimension is supported` };
     return { status: declared.every((d) => d.includes('refused before')) ? 'pass' : 'fail', evidence: declared.join('; ') };
   }
-  const q = refusals(context, [{ label: `P with d = ${base.dim}, Q with d = ${base.dim + 1}`, sample: { ...cloneSample(base), q: withDimension(base.q, base.dim + 1) } }]);
+  const q = refusals(context, [
+    { label: `P with d = ${base.dim}, Q with d = ${base.dim + 1}`, sample: { ...cloneSample(base), q: withDimension(base.q, base.dim + 1) } },
+  ]);
   return { status: q.status, evidence: [...declared, q.evidence].join('; ') };
 };
 
@@ -554,7 +594,11 @@ export function runConformance(estimator: Estimator, options: ConformanceOptions
     estimator: estimator.id,
     quantity: estimator.quantity,
     settings,
-    spec: formatSpec(estimator.id, settings, estimator.settings.map((s) => s.name)),
+    spec: formatSpec(
+      estimator.id,
+      settings,
+      estimator.settings.map((s) => s.name),
+    ),
     checks,
     passed: checks.every((c) => c.status !== 'fail'),
     milliseconds: performance.now() - started,

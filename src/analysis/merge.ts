@@ -12,7 +12,10 @@ export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
   for (const f of files) {
     if (f.run.fingerprint !== first.run.fingerprint) {
       const difference = codeDifference(first.run.code, f.run.code);
-      if (difference) throw new UsageError(`${f.path} and ${first.path} were computed by different code: comparing ${first.path} with ${f.path}, ${difference}; rerun the shards with one version`);
+      if (difference)
+        throw new UsageError(
+          `${f.path} and ${first.path} were computed by different code: comparing ${first.path} with ${f.path}, ${difference}; rerun the shards with one version`,
+        );
       throw new UsageError(`${f.path} comes from a different plan than ${first.path} (fingerprints differ); merge only shards of one plan`);
     }
     if (!f.run.shard) throw new UsageError(`${f.path} is a complete run, not a shard; nothing to merge`);
@@ -26,7 +29,8 @@ export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
     seen.set(shard.index, f.path);
   }
   const missing = Array.from({ length: count }, (_, i) => i + 1).filter((i) => !seen.has(i));
-  if (missing.length) throw new UsageError(`shard${missing.length > 1 ? 's' : ''} ${missing.map((i) => `${i}/${count}`).join(', ')} missing; merge needs all ${count}`);
+  if (missing.length)
+    throw new UsageError(`shard${missing.length > 1 ? 's' : ''} ${missing.map((i) => `${i}/${count}`).join(', ')} missing; merge needs all ${count}`);
 
   const { plan } = first.run;
   const cells = new Map<string, Cell>();
@@ -45,7 +49,8 @@ export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
       const failed = new Set(cell.failures.map((x) => x.replicate));
       cell.estimates.forEach((v, r) => {
         if (v === null && !failed.has(r)) return;
-        if (have.has(r)) throw new UsageError(`${f.path}: replicate ${r} of ${k} is also in another shard; were the shards made with different --shard counts?`);
+        if (have.has(r))
+          throw new UsageError(`${f.path}: replicate ${r} of ${k} is also in another shard; were the shards made with different --shard counts?`);
         have.add(r);
         target.estimates[r] = v;
       });

@@ -34,7 +34,6 @@ export interface RankableCell {
   scores: CellScores;
 }
 
-
 export type RankStatus = 'ranked' | 'unbounded-error' | 'failed';
 
 export interface RankEntry {
@@ -144,7 +143,12 @@ export function rankCell(group: RankableCell[], truth: number, settings: Verdict
  * cannot separate an estimator whose squared errors are dominated by a few far-off draws (the same draws
  * inflate the mean's SE), however often it loses; the sign test counts every draw once.
  */
-function signGuard(members: RankableCell[], comparable: RankableCell[], losses: number[][], level: number): { p: Map<RankableCell, number>; dropped: Set<RankableCell> } {
+function signGuard(
+  members: RankableCell[],
+  comparable: RankableCell[],
+  losses: number[][],
+  level: number,
+): { p: Map<RankableCell, number>; dropped: Set<RankableCell> } {
   const p = new Map<RankableCell, number>();
   const dropped = new Set<RankableCell>();
   if (members.length < 2) return { p, dropped };
@@ -169,9 +173,13 @@ function signGuard(members: RankableCell[], comparable: RankableCell[], losses: 
   return { p, dropped };
 }
 
-
 /** Rankings of every (scenario, n, perturbation) group of cells; `seedOf` names each group's bootstrap seed. */
-export function rankCells(cells: RankableCell[], truthOf: (scenario: string) => number, settings: VerdictSettings, seedOf: (scenario: string, n: number) => string): Ranking[] {
+export function rankCells(
+  cells: RankableCell[],
+  truthOf: (scenario: string) => number,
+  settings: VerdictSettings,
+  seedOf: (scenario: string, n: number) => string,
+): Ranking[] {
   const groups = new Map<string, RankableCell[]>();
   for (const c of cells) {
     const k = `${c.scenario}|${c.n}|${c.perturbation ?? ''}`;

@@ -23,10 +23,17 @@ export function parseReference(text: string): Reference {
   if (trimmed === 'gaussian') return { kind: 'gaussian' };
   const colon = trimmed.indexOf(':');
   const kind = colon < 0 ? trimmed : trimmed.slice(0, colon);
-  const args = colon < 0 ? [] : trimmed.slice(colon + 1).split(',').map((a) => a.trim());
+  const args =
+    colon < 0
+      ? []
+      : trimmed
+          .slice(colon + 1)
+          .split(',')
+          .map((a) => a.trim());
   if (kind === 'unit') {
     const width = args.length === 1 ? parseNumber(args[0]) : undefined;
-    if (width === undefined || !(width > 0) || !Number.isFinite(width)) throw new UsageError(`--reference ${text}: write unit:W with a bin width W > 0 in data units`);
+    if (width === undefined || !(width > 0) || !Number.isFinite(width))
+      throw new UsageError(`--reference ${text}: write unit:W with a bin width W > 0 in data units`);
     return { kind: 'unit', width };
   }
   if (kind === 'uniform') {
@@ -64,7 +71,10 @@ export function gaussianLogNormaliser(sample: Sample): number {
   }
   for (let j = 0; j < dim; j++) for (let k = 0; k < j; k++) covariance[k][j] = covariance[j][k];
   const factor = cholesky(covariance);
-  if (!factor) throw new UsageError('--reference gaussian: the sample covariance is singular (a constant or collinear column); this reference needs a full-rank covariance');
+  if (!factor)
+    throw new UsageError(
+      '--reference gaussian: the sample covariance is singular (a constant or collinear column); this reference needs a full-rank covariance',
+    );
   return 0.5 * (dim * Math.log(2 * Math.PI * Math.E) + factor.logDeterminant);
 }
 

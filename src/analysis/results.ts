@@ -154,7 +154,9 @@ export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
 }
 
 /** Scores, rates and rankings from cells; shared by fresh runs and merges. */
-export function finishRun(base: Omit<RunFile, 'schemaVersion' | 'kind' | 'createdAt' | 'environment' | 'drawsFingerprint' | 'rates' | 'rankings' | 'overall' | 'robustness'>): RunFile {
+export function finishRun(
+  base: Omit<RunFile, 'schemaVersion' | 'kind' | 'createdAt' | 'environment' | 'drawsFingerprint' | 'rates' | 'rankings' | 'overall' | 'robustness'>,
+): RunFile {
   const truth = new Map(base.scenarios.map((s) => [s.id, s]));
   for (const cell of base.cells) {
     const info = truth.get(cell.scenario)!;
@@ -166,7 +168,12 @@ export function finishRun(base: Omit<RunFile, 'schemaVersion' | 'kind' | 'create
   }
   const main = base.cells.filter((c) => c.role === 'main');
   const rankings = base.complete
-    ? rankCells(main, (id) => truth.get(id)!.truth, base.plan.verdicts, (scenario, n) => `seed=${base.plan.seed}\nscenario=${scenario}\nn=${n}`)
+    ? rankCells(
+        main,
+        (id) => truth.get(id)!.truth,
+        base.plan.verdicts,
+        (scenario, n) => `seed=${base.plan.seed}\nscenario=${scenario}\nn=${n}`,
+      )
     : [];
   return {
     schemaVersion: SCHEMA_VERSION,
@@ -245,7 +252,9 @@ export function readRunFile(path: string): RunFile {
   }
   if (typeof value !== 'object' || value === null || value.kind !== 'hhat-run') throw new UsageError(`${path} is not an hhat run file (no "kind": "hhat-run")`);
   if (value.schemaVersion !== SCHEMA_VERSION) {
-    throw new UsageError(`${path} has schemaVersion ${String(value.schemaVersion)}; this hhat reads version ${SCHEMA_VERSION}; rerun its plan with this version`);
+    throw new UsageError(
+      `${path} has schemaVersion ${String(value.schemaVersion)}; this hhat reads version ${SCHEMA_VERSION}; rerun its plan with this version`,
+    );
   }
   const problem = runFileErrors(value);
   if (problem) throw new UsageError(`${path} does not match the run file schema: ${problem}`);

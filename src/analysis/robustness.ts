@@ -149,7 +149,11 @@ function columnFor(kind: string, measures: RobustnessMeasure[], curves: TuningCu
       const failed = mine.some((m) => m.failures > 0);
       const verdict: Verdict = failed ? 'fail' : drift <= EXACT_DRIFT ? 'pass' : ratio < 0.1 ? 'warn' : 'fail';
       const broken = mine.reduce((sum, m) => sum + m.failures, 0);
-      return { value: drift, verdict, detail: `max unit drift ${fmt(drift)} nats (${fmt(ratio)} SD)${broken ? `; ${broken} estimates fail only after rescaling` : ''}` };
+      return {
+        value: drift,
+        verdict,
+        detail: `max unit drift ${fmt(drift)} nats (${fmt(ratio)} SD)${broken ? `; ${broken} estimates fail only after rescaling` : ''}`,
+      };
     }
     case 'monotone':
     case 'affine': {
@@ -169,7 +173,11 @@ function columnFor(kind: string, measures: RobustnessMeasure[], curves: TuningCu
       const thresholds = [...byScenario.values()].map(quantizationThreshold);
       const threshold = Math.min(...thresholds);
       const verdict: Verdict = threshold >= 0.1 ? 'pass' : threshold >= 0.01 ? 'warn' : 'fail';
-      return { value: threshold, verdict, detail: threshold > 0 ? `bias holds up to δ = ${fmt(threshold)} σ` : 'bias moves (or estimates fail) at the finest step tried' };
+      return {
+        value: threshold,
+        verdict,
+        detail: threshold > 0 ? `bias holds up to δ = ${fmt(threshold)} σ` : 'bias moves (or estimates fail) at the finest step tried',
+      };
     }
     case 'contaminate': {
       const perPercent = mine.map((m) => m.change.value / (100 * (m.level ?? 0.01)));
@@ -208,7 +216,9 @@ export function robustnessSection(plan: Plan, cells: Cell[], scenarios: Map<stri
             .filter((g) => g.setting === setting)
             .flatMap((g) => {
               const cell = bySpec.get(`${scenario}|${g.configured.spec}`);
-              return cell ? [{ value: g.value, spec: g.configured.spec, mean: cell.scores.mean, sd: cell.scores.sd.value, failures: cell.scores.failures }] : [];
+              return cell
+                ? [{ value: g.value, spec: g.configured.spec, mean: cell.scores.mean, sd: cell.scores.sd.value, failures: cell.scores.failures }]
+                : [];
             });
           if (points.length < 2) continue;
           const means = points.map((p) => p.mean.value).filter(Number.isFinite);
@@ -224,7 +234,14 @@ export function robustnessSection(plan: Plan, cells: Cell[], scenarios: Map<stri
     .map((spec) => ({
       estimator: spec,
       columns: Object.fromEntries(
-        ROBUSTNESS_COLUMNS.map((kind) => [kind, columnFor(kind, measures.filter((m) => m.estimator === spec), curves.filter((c) => c.estimator === spec))]),
+        ROBUSTNESS_COLUMNS.map((kind) => [
+          kind,
+          columnFor(
+            kind,
+            measures.filter((m) => m.estimator === spec),
+            curves.filter((c) => c.estimator === spec),
+          ),
+        ]),
       ),
     }));
   return { sampleSize: n, replicates: plan.replicates, perturbations: robustness.perturbations, measures, tuning: curves, table };

@@ -35,7 +35,8 @@ const SUPPORTS: readonly Support[] = ['bounded', 'half', 'unbounded'];
 function parseBudget(text: string | undefined): number {
   if (text === undefined) return DEFAULT_BUDGET_SECONDS;
   const value = parseNumber(text);
-  if (value === undefined || !(value > 0) || value > MAX_BUDGET_SECONDS) throw new UsageError(`--budget ${text} is not allowed; it must be a number of seconds > 0 and ≤ ${MAX_BUDGET_SECONDS}`);
+  if (value === undefined || !(value > 0) || value > MAX_BUDGET_SECONDS)
+    throw new UsageError(`--budget ${text} is not allowed; it must be a number of seconds > 0 and ≤ ${MAX_BUDGET_SECONDS}`);
   return value;
 }
 
@@ -43,7 +44,8 @@ function parseLevel(text: string | undefined): number | null {
   if (text === undefined) return 0.95;
   if (text === 'none') return null;
   const value = parseNumber(text);
-  if (value === undefined || !(value > 0 && value < 1)) throw new UsageError(`--interval ${text} is not allowed; it must be a coverage between 0 and 1 (e.g. 0.95), or none`);
+  if (value === undefined || !(value > 0 && value < 1))
+    throw new UsageError(`--interval ${text} is not allowed; it must be a coverage between 0 and 1 (e.g. 0.95), or none`);
   return value;
 }
 
@@ -56,7 +58,9 @@ function choice<T extends string>(flag: string, text: string | undefined, allowe
 export function registerAdviseCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
   program
     .command('advise')
-    .description('which estimator to use: for a described situation (--n, --dim), or for a data file, with an estimate, a bootstrap interval and a look-alike bias correction')
+    .description(
+      'which estimator to use: for a described situation (--n, --dim), or for a data file, with an estimate, a bootstrap interval and a look-alike bias correction',
+    )
     .argument('[file]', 'a data file (CSV/TSV/TXT, JSON, NumPy .npy); rows are points, columns are coordinates')
     .option('--n <n>', 'sample size of the setting (without a file)')
     .option('--dim <d>', 'dimension of the setting (without a file)')
@@ -95,13 +99,18 @@ Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICAT
       if (file !== undefined) {
         const setting = (['n', 'dim', 'tails', 'support'] as const).filter((k) => options[k] !== undefined);
         if (setting.length) {
-          throw new UsageError(`--${setting[0]} describes a situation; with a data file the data describe themselves (drop --${setting[0]}, or drop the file for advice on the described situation)`);
+          throw new UsageError(
+            `--${setting[0]} describes a situation; with a data file the data describe themselves (drop --${setting[0]}, or drop the file for advice on the described situation)`,
+          );
         }
         const readStarted = performance.now();
         const status = statusLine(process.stderr, 'hhat advise');
         let loaded;
         try {
-          loaded = readSample(file, { columns: options.columns, onProgress: (done, total) => status.show(`reading ${file}: ${describeReadProgress(done, total)}`) });
+          loaded = readSample(file, {
+            columns: options.columns,
+            onProgress: (done, total) => status.show(`reading ${file}: ${describeReadProgress(done, total)}`),
+          });
         } finally {
           status.clear();
         }
@@ -121,9 +130,14 @@ Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICAT
         return;
       }
       const fileOnly = (['columns', 'interval', 'resamples'] as const).find((k) => options[k] !== undefined);
-      if (fileOnly) throw new UsageError(`--${fileOnly} applies to a data file: hhat advise FILE --${fileOnly} ${fileOnly === 'columns' ? 'LIST' : fileOnly === 'interval' ? '0.95' : 'B'}`);
+      if (fileOnly)
+        throw new UsageError(
+          `--${fileOnly} applies to a data file: hhat advise FILE --${fileOnly} ${fileOnly === 'columns' ? 'LIST' : fileOnly === 'interval' ? '0.95' : 'B'}`,
+        );
       if (options.n === undefined || options.dim === undefined) {
-        throw new UsageError('give a data file (hhat advise data.csv) or describe the setting with --n and --dim (hhat advise --n 500 --dim 2 [--tails heavy] [--support bounded])');
+        throw new UsageError(
+          'give a data file (hhat advise data.csv) or describe the setting with --n and --dim (hhat advise --n 500 --dim 2 [--tails heavy] [--support bounded])',
+        );
       }
       // At least 10 points, not the schema's 2: advice on fewer says nothing (adviseSituation refuses them too).
       const n = parseIntegerOption('--n', options.n, 10, MAX_SAMPLE_SIZE);

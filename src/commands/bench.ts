@@ -8,7 +8,19 @@ import type { Quantity } from '../core/contracts.js';
 import { parseScenario } from '../../scenarios/index.js';
 import type { Base } from '../core/format.js';
 import { defaultPlan } from '../harness/default-plan.js';
-import { collect, MAX_REPLICATES, parseFraction, planFingerprint, parseIntegerOption, parseLevel, parseSampleSizes, readPlanFile, resolvePlan, type Plan, type PlanInput } from '../harness/plan.js';
+import {
+  collect,
+  MAX_REPLICATES,
+  parseFraction,
+  planFingerprint,
+  parseIntegerOption,
+  parseLevel,
+  parseSampleSizes,
+  readPlanFile,
+  resolvePlan,
+  type Plan,
+  type PlanInput,
+} from '../harness/plan.js';
 import { progressReporter } from '../views/progress.js';
 import { assembleRun, readRunFile, writeFileAtomic, writeRunFile, type RunFile } from '../analysis/results.js';
 import { acquireLock, ensureFolder, removeLeftoverTemporaries } from '../core/files.js';
@@ -165,10 +177,19 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
   const failedMain = run.cells.filter((c) => c.role === 'main').reduce((s, c) => s + c.scores.failures, 0);
   const failedOther = run.cells.filter((c) => c.role !== 'main').reduce((s, c) => s + c.scores.failures, 0);
   if (failedMain) {
-    print(`${failedMain} estimate${failedMain === 1 ? '' : 's'} failed in the benchmark cells; the run file lists each with its reason (cells[].failures). The reasons:`);
-    for (const line of failureReasons(run.cells.filter((c) => c.role === 'main'), MAX_REASON_LINES)) print(`  ${line}`);
+    print(
+      `${failedMain} estimate${failedMain === 1 ? '' : 's'} failed in the benchmark cells; the run file lists each with its reason (cells[].failures). The reasons:`,
+    );
+    for (const line of failureReasons(
+      run.cells.filter((c) => c.role === 'main'),
+      MAX_REASON_LINES,
+    ))
+      print(`  ${line}`);
   }
-  if (failedOther) print(`${failedOther} estimate${failedOther === 1 ? '' : 's'} failed on perturbed samples or tuning variants (ties after rounding, mostly); the robustness table counts them.`);
+  if (failedOther)
+    print(
+      `${failedOther} estimate${failedOther === 1 ? '' : 's'} failed on perturbed samples or tuning variants (ties after rounding, mostly); the robustness table counts them.`,
+    );
   print(`RMSE ± Monte-Carlo SE. ${rankLegend(run.plan.verdicts.level, run.plan.verdicts.maxFailureRate)}`);
 }
 
@@ -181,20 +202,24 @@ function declareBenchOptions(command: Command): Command {
     .option('--estimator <spec>', 'an estimator with settings, ID[:key=value,...] (repeatable; see `hhat estimators`)', collect)
     .option('--n <sizes>', 'sample sizes, comma-separated (e.g. 100,1000,10000)')
     .option('--replicates <r>', 'independent draws per cell')
-    .option('--seed <s>', 'base seed; a replicate\'s sample depends only on it, the scenario, n and the replicate index')
+    .option('--seed <s>', "base seed; a replicate's sample depends only on it, the scenario, n and the replicate index")
     .option('--workers <w>', `worker threads (default: ${defaultWorkers()}, the number of cores)`)
     .option('--shard <i/N|auto>', 'run only slice i of N (1-based), or read it from a batch scheduler (auto)')
     .option('--out <file>', 'run file to write (default: results/run-TIMESTAMP.json)')
     .option('--resume', 'continue an interrupted run from its checkpoint (the same --out, or the newest under results/)')
     .option('--force', 'replace a finished run file at --out')
     .option('--robustness', 'also measure perturbations and tuning grids at one sample size (the default plan does)')
-    .option('--perturb <spec>', 'a perturbation for the robustness section (repeatable): rescale:c=1000, monotone:map=asinh, affine:condition=10, quantize:step=0.1, contaminate:fraction=0.01', collect)
+    .option(
+      '--perturb <spec>',
+      'a perturbation for the robustness section (repeatable): rescale:c=1000, monotone:map=asinh, affine:condition=10, quantize:step=0.1, contaminate:fraction=0.01',
+      collect,
+    )
     .option('--robustness-n <n>', 'the sample size of the robustness section (one of --n; default: the largest up to 1000)')
     .option('--no-tuning', 'leave the tuning grids out of the robustness section')
     .option('--estimator-module <file>', 'load estimators from a JavaScript module (repeatable); an id matching a built-in replaces it', collect)
     .option('--allow-plan-modules', 'load the estimator modules a --plan file names (they are code that runs with your rights)')
     .option('--level <c>', 'confidence level of each cell\'s best set (default 0.95; README, "Ranks and the best set")')
-    .option('--max-failure-rate <p>', 'an estimator failing on a larger share of a cell\'s replicates is ranked last there (default 0: any failure)')
+    .option('--max-failure-rate <p>', "an estimator failing on a larger share of a cell's replicates is ranked last there (default 0: any failure)")
     .option('--csv <file>', 'also write the score table as CSV')
     .option('--bits', 'print values in bits instead of nats (the run file is always in nats)')
     .option('--detail', 'also print every score of every cell')
@@ -233,7 +258,8 @@ async function benchPlan(options: BenchOptions, workers: number, printErr: (text
 /** Makes --out's folder, and refuses an --out that is itself a folder now rather than when the finished run is written. */
 function prepareOutFolder(out: string): void {
   ensureFolder(dirname(out), 'choose another --out');
-  if (existsSync(out) && statSync(out).isDirectory()) throw new UsageError(`--out ${out} is a folder; give the run file's path, e.g. --out ${join(out, 'run.json')}`);
+  if (existsSync(out) && statSync(out).isDirectory())
+    throw new UsageError(`--out ${out} is a folder; give the run file's path, e.g. --out ${join(out, 'run.json')}`);
 }
 
 /** True when --out holds a finished run of this plan and --resume has nothing to do; refuses to replace another without --force. */
@@ -250,7 +276,11 @@ function alreadyFinished(out: string, checkpoint: string, plan: Plan, options: B
 }
 
 /** Runs the plan with progress on stderr (unless quiet); SIGINT or SIGTERM stop it cleanly, and the one that did is returned. */
-async function runWithSignals(plan: Plan, runOptions: RunOptions, quiet: boolean | undefined): Promise<{ outcome: RunOutcome; stoppedBy: NodeJS.Signals | null }> {
+async function runWithSignals(
+  plan: Plan,
+  runOptions: RunOptions,
+  quiet: boolean | undefined,
+): Promise<{ outcome: RunOutcome; stoppedBy: NodeJS.Signals | null }> {
   const controller = new AbortController();
   let stoppedBy: NodeJS.Signals | null = null;
   const onSignal = (signal: NodeJS.Signals) => {
@@ -286,7 +316,14 @@ function writeRunFiles(run: RunFile, out: string, checkpoint: string, options: B
 }
 
 /** A whole run's tables and text chart (unless quiet) and its HTML report (when asked); a shard shows neither. */
-async function presentRun(run: RunFile, out: string, options: BenchOptions, base: Base, shard: Shard | undefined, print: (text: string) => void): Promise<void> {
+async function presentRun(
+  run: RunFile,
+  out: string,
+  options: BenchOptions,
+  base: Base,
+  shard: Shard | undefined,
+  print: (text: string) => void,
+): Promise<void> {
   if (!options.quiet && !shard) {
     printRun(run, base, print, Boolean(options.detail));
     if (options.chart !== false) print(biasTextChart(run, base));
@@ -301,7 +338,9 @@ async function presentRun(run: RunFile, out: string, options: BenchOptions, base
 /** The closing lines: what ran, how long it took on how many workers, and where the run file is. */
 function printRunSummary(run: RunFile, outcome: RunOutcome, out: string, shard: Shard | undefined, print: (text: string) => void): void {
   const resumed = outcome.resumedUnits ? `, ${outcome.resumedUnits} units from the checkpoint` : '';
-  print(`${shard ? `shard ${shard.index}/${shard.count}: ` : ''}${run.cells.length} cells in ${run.wallSeconds.toFixed(1)} s on ${run.workers} worker${run.workers === 1 ? '' : 's'}${resumed}`);
+  print(
+    `${shard ? `shard ${shard.index}/${shard.count}: ` : ''}${run.cells.length} cells in ${run.wallSeconds.toFixed(1)} s on ${run.workers} worker${run.workers === 1 ? '' : 's'}${resumed}`,
+  );
   print(`run file: ${out}`);
 }
 

@@ -30,7 +30,11 @@ export function registerCheckCommand(program: Command, print: (text: string) => 
     .command('check')
     .description(COMMANDS.check)
     .argument('[module]', 'a JavaScript module of estimators, as for --estimator-module; without it, the built-in estimators')
-    .option('--estimator <spec>', 'ID[:key=value,...]: check only this estimator, with these settings (repeatable; default: every one, default settings)', collect)
+    .option(
+      '--estimator <spec>',
+      'ID[:key=value,...]: check only this estimator, with these settings (repeatable; default: every one, default settings)',
+      collect,
+    )
     .option('--json', 'print the reports as JSON, with the suite sizes and tolerances')
     .addHelpText('after', exitCodesHelp)
     .action(async (module: string | undefined, options: { estimator?: string[]; json?: boolean }) => {

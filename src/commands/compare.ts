@@ -36,7 +36,12 @@ export function registerCompareCommand(program: Command, print: (text: string) =
       const failOn: FailOn | undefined = options.failOn === undefined ? undefined : parseFailOn(options.failOn);
       const tolerance = parseTolerance(options.tolerance ?? '0');
       const level = parseLevel(options.level ?? '0.95');
-      const comparison = compareRuns(readRunFile(basePath), readRunFile(nextPath), { tolerance, level, pairing: options.unpaired ? 'unpaired' : 'auto' }, { base: basePath, next: nextPath });
+      const comparison = compareRuns(
+        readRunFile(basePath),
+        readRunFile(nextPath),
+        { tolerance, level, pairing: options.unpaired ? 'unpaired' : 'auto' },
+        { base: basePath, next: nextPath },
+      );
       if (options.json) print(formatComparisonJson(comparison));
       else if (options.markdown) print(formatComparisonMarkdown(comparison));
       else print(formatComparisonText(comparison, { base: basePath, next: nextPath }));
@@ -45,9 +50,14 @@ export function registerCompareCommand(program: Command, print: (text: string) =
       if (failOn && failsPolicy(comparison, failOn, allowMissing)) {
         const failing = failingCells(comparison, failOn).length;
         const parts: string[] = [];
-        if (failing) parts.push(failOn === 'worse' ? `${failing} cell${failing === 1 ? ' is' : 's are'} worse` : `${failing} cell${failing === 1 ? '' : 's'} changed`);
-        if (!allowMissing && comparison.removed.length) parts.push(`${comparison.removed.length} cell${comparison.removed.length === 1 ? ' of the base run is' : 's of the base run are'} missing from the new run (--allow-missing to accept)`);
-        if (failOn === 'changed' && comparison.added.length) parts.push(`${comparison.added.length} cell${comparison.added.length === 1 ? ' is' : 's are'} only in the new run`);
+        if (failing)
+          parts.push(failOn === 'worse' ? `${failing} cell${failing === 1 ? ' is' : 's are'} worse` : `${failing} cell${failing === 1 ? '' : 's'} changed`);
+        if (!allowMissing && comparison.removed.length)
+          parts.push(
+            `${comparison.removed.length} cell${comparison.removed.length === 1 ? ' of the base run is' : 's of the base run are'} missing from the new run (--allow-missing to accept)`,
+          );
+        if (failOn === 'changed' && comparison.added.length)
+          parts.push(`${comparison.added.length} cell${comparison.added.length === 1 ? ' is' : 's are'} only in the new run`);
         printErr(`hhat compare: ${parts.join('; ')} (--fail-on ${failOn})`);
         process.exitCode = 1;
       }

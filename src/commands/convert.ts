@@ -34,6 +34,8 @@ export function registerConvertCommand(program: Command, print: (text: string) =
       const converted = convertEntropy(value * scale, dim, factor) / scale;
       const unit = options.bits ? 'bits' : 'nats';
       const what = options.factor !== undefined ? `data × ${options.factor}` : `${options.from} → ${options.to}`;
-      print(`${formatValue(converted, 10)} ${unit}  (${what}, d = ${dim}: ${value} ${converted >= value ? '+' : '−'} ${formatValue(Math.abs(converted - value), 10)})`);
+      print(
+        `${formatValue(converted, 10)} ${unit}  (${what}, d = ${dim}: ${value} ${converted >= value ? '+' : '−'} ${formatValue(Math.abs(converted - value), 10)})`,
+      );
     });
 }

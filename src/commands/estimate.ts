@@ -106,7 +106,8 @@ export function estimateAll(
 function parseMaxSeconds(text: string): number | null {
   if (text === 'none') return null;
   const value = parseNumber(text);
-  if (value === undefined || !(value > 0) || !Number.isFinite(value)) throw new UsageError(`--max-seconds ${text} is not allowed; it must be a number of seconds > 0, or none`);
+  if (value === undefined || !(value > 0) || !Number.isFinite(value))
+    throw new UsageError(`--max-seconds ${text} is not allowed; it must be a number of seconds > 0, or none`);
   return value;
 }
 
@@ -143,7 +144,9 @@ Exit codes:
 export function registerEstimateCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
   program
     .command('estimate')
-    .description('estimate the differential entropy of a data file (CSV/TSV/TXT, JSON, NumPy .npy) with one or more estimators; the mutual information with --x-columns and --y-columns, a divergence with --against')
+    .description(
+      'estimate the differential entropy of a data file (CSV/TSV/TXT, JSON, NumPy .npy) with one or more estimators; the mutual information with --x-columns and --y-columns, a divergence with --against',
+    )
     .argument('<file>', 'rows are points, columns are coordinates')
     .option('--columns <list>', 'columns to use: positions from 1 ("1,3", "2-4") or header names ("x,y")')
     .option('--estimator <spec>', 'ID[:key=value,...] (repeatable; default: a set suited to the dimension)', collect)
@@ -154,158 +157,192 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     .option('--x-columns <list>', 'mutual information between these columns (X) ...')
     .option('--y-columns <list>', '... and these (Y)')
     .option('--against <file>', 'a divergence D(P || Q): FILE holds the sample from P, this file the sample from Q')
-    .option('--json', 'print {"n", "dim", "base", "estimates": [...]} with the settings actually used; an estimate that failed has value null, its error and its code')
-    .option('--max-seconds <s>', `limit on each estimator's predicted seconds: over it, a seeded uniform subsample of rows (default ${DEFAULT_MAX_SECONDS} for the default set, none for estimators named with --estimator; "none": no limit)`)
+    .option(
+      '--json',
+      'print {"n", "dim", "base", "estimates": [...]} with the settings actually used; an estimate that failed has value null, its error and its code',
+    )
+    .option(
+      '--max-seconds <s>',
+      `limit on each estimator's predicted seconds: over it, a seeded uniform subsample of rows (default ${DEFAULT_MAX_SECONDS} for the default set, none for estimators named with --estimator; "none": no limit)`,
+    )
     .option('--seed <s>', `seed of the row subsamples that --max-seconds may call for (default ${DEFAULT_SUBSAMPLE_SEED})`)
     .addHelpText('after', exitCodesHelp)
-    .action(async (file: string, options: { columns?: string; estimator?: string[]; bits?: boolean; json?: boolean; unit?: string; reference?: string; estimatorModule?: string[]; xColumns?: string; yColumns?: string; against?: string; maxSeconds?: string; seed?: string }) => {
-      const base: Base = options.bits ? 'bits' : 'nats';
-      const reference = options.reference === undefined ? undefined : parseReference(options.reference);
-      const givenLimit = options.maxSeconds === undefined ? undefined : parseMaxSeconds(options.maxSeconds);
-      const seed = options.seed === undefined ? DEFAULT_SUBSAMPLE_SEED : parseIntegerOption('--seed', options.seed, 0);
-      const status = statusLine(process.stderr, 'hhat estimate');
-      const load = (columns: string | undefined, path = file) => {
+    .action(
+      async (
+        file: string,
+        options: {
+          columns?: string;
+          estimator?: string[];
+          bits?: boolean;
+          json?: boolean;
+          unit?: string;
+          reference?: string;
+          estimatorModule?: string[];
+          xColumns?: string;
+          yColumns?: string;
+          against?: string;
+          maxSeconds?: string;
+          seed?: string;
+        },
+      ) => {
+        const base: Base = options.bits ? 'bits' : 'nats';
+        const reference = options.reference === undefined ? undefined : parseReference(options.reference);
+        const givenLimit = options.maxSeconds === undefined ? undefined : parseMaxSeconds(options.maxSeconds);
+        const seed = options.seed === undefined ? DEFAULT_SUBSAMPLE_SEED : parseIntegerOption('--seed', options.seed, 0);
+        const status = statusLine(process.stderr, 'hhat estimate');
+        const load = (columns: string | undefined, path = file) => {
+          try {
+            return readSample(path, { columns, onProgress: (done, total) => status.show(`reading ${path}: ${describeReadProgress(done, total)}`) });
+          } finally {
+            status.clear();
+          }
+        };
+        if (options.estimatorModule?.length) {
+          const note = describeRegistration(await useEstimatorModules(options.estimatorModule.map((m) => resolveModulePath(m))));
+          if (note && !options.json) printErr(note);
+        }
+        let quantity: Quantity = 'entropy';
+        const mutualInformation = options.xColumns !== undefined || options.yColumns !== undefined;
+        if (mutualInformation) {
+          if (options.xColumns === undefined || options.yColumns === undefined)
+            throw new UsageError('mutual information needs both --x-columns and --y-columns');
+          if (options.columns !== undefined) throw new UsageError('--columns cannot be combined with --x-columns/--y-columns');
+          if (options.against !== undefined)
+            throw new UsageError('--against (a divergence) cannot be combined with --x-columns/--y-columns (mutual information)');
+          const shared = sharedSelection(options.xColumns, options.yColumns);
+          if (shared !== undefined) throw new UsageError(`--x-columns and --y-columns both name column ${showText(shared)}; X and Y must be different columns`);
+        }
+        // For mutual information only X's and Y's columns are read, in that order (other columns may hold text).
+        let loaded = load(mutualInformation ? `${options.xColumns},${options.yColumns}` : options.columns);
+        let sample = loaded.sample;
+        if (mutualInformation) {
+          sample = { ...sample, xDim: selectionWidth(options.xColumns!) };
+          loaded = { ...loaded, sample };
+          quantity = 'mutual-information';
+        } else if (options.against !== undefined) {
+          const q = load(options.columns, options.against);
+          if (q.sample.dim !== sample.dim)
+            throw new UsageError(
+              `${options.against} has ${q.sample.dim} columns and ${file} has ${sample.dim}; a divergence compares samples of the same dimension`,
+            );
+          sample = { ...sample, q: q.sample };
+          quantity = 'divergence';
+        }
+        if (reference && quantity !== 'entropy')
+          throw new UsageError('--reference applies to entropy; mutual information and divergences are already unit-free');
+        const offset = reference ? meanLogReference(reference, sample) : 0;
+        const named = Boolean(options.estimator?.length);
+        const specs = named ? options.estimator! : defaultEstimatorsFor(sample.dim, quantity);
+        if (!specs.length) throw new UsageError(`no ${quantity} estimator supports d = ${sample.dim}; see hhat estimators`);
+        const configured = specs.map(parseEstimatorSpec);
+        for (const c of configured) {
+          if (c.estimator.quantity !== quantity) {
+            throw new UsageError(
+              `${c.estimator.id} estimates ${c.estimator.quantity}, but this call asks for ${quantity}${quantity === 'entropy' ? '' : ` (given by ${quantity === 'divergence' ? '--against' : '--x-columns/--y-columns'})`}`,
+            );
+          }
+          // Checked before estimating, so that asking for the wrong dimension stops the command before any estimate
+          // is made; the default set only holds estimators that support the dimension.
+          checkDimension(c.estimator, sample.dim);
+        }
+        // The limit applies to the default set; to named estimators only when the user gives it.
+        const limitSeconds = givenLimit !== undefined ? givenLimit : named ? null : DEFAULT_MAX_SECONDS;
+        const plans = planRows(configured, sample, limitSeconds);
+        let estimated: EstimateRecord[];
         try {
-          return readSample(path, { columns, onProgress: (done, total) => status.show(`reading ${path}: ${describeReadProgress(done, total)}`) });
+          estimated = estimateAll(sample, configured, base, plans, {
+            seed,
+            onStart: (c, rows) => status.show(`${c.estimator.id} on ${rows === sample.n ? 'all' : rows} of ${sample.n} rows`, true),
+          });
         } finally {
           status.clear();
         }
-      };
-      if (options.estimatorModule?.length) {
-        const note = describeRegistration(await useEstimatorModules(options.estimatorModule.map((m) => resolveModulePath(m))));
-        if (note && !options.json) printErr(note);
-      }
-      let quantity: Quantity = 'entropy';
-      const mutualInformation = options.xColumns !== undefined || options.yColumns !== undefined;
-      if (mutualInformation) {
-        if (options.xColumns === undefined || options.yColumns === undefined) throw new UsageError('mutual information needs both --x-columns and --y-columns');
-        if (options.columns !== undefined) throw new UsageError('--columns cannot be combined with --x-columns/--y-columns');
-        if (options.against !== undefined) throw new UsageError('--against (a divergence) cannot be combined with --x-columns/--y-columns (mutual information)');
-        const shared = sharedSelection(options.xColumns, options.yColumns);
-        if (shared !== undefined) throw new UsageError(`--x-columns and --y-columns both name column ${showText(shared)}; X and Y must be different columns`);
-      }
-      // For mutual information only X's and Y's columns are read, in that order (other columns may hold text).
-      let loaded = load(mutualInformation ? `${options.xColumns},${options.yColumns}` : options.columns);
-      let sample = loaded.sample;
-      if (mutualInformation) {
-        sample = { ...sample, xDim: selectionWidth(options.xColumns!) };
-        loaded = { ...loaded, sample };
-        quantity = 'mutual-information';
-      } else if (options.against !== undefined) {
-        const q = load(options.columns, options.against);
-        if (q.sample.dim !== sample.dim) throw new UsageError(`${options.against} has ${q.sample.dim} columns and ${file} has ${sample.dim}; a divergence compares samples of the same dimension`);
-        sample = { ...sample, q: q.sample };
-        quantity = 'divergence';
-      }
-      if (reference && quantity !== 'entropy') throw new UsageError('--reference applies to entropy; mutual information and divergences are already unit-free');
-      const offset = reference ? meanLogReference(reference, sample) : 0;
-      const named = Boolean(options.estimator?.length);
-      const specs = named ? options.estimator! : defaultEstimatorsFor(sample.dim, quantity);
-      if (!specs.length) throw new UsageError(`no ${quantity} estimator supports d = ${sample.dim}; see hhat estimators`);
-      const configured = specs.map(parseEstimatorSpec);
-      for (const c of configured) {
-        if (c.estimator.quantity !== quantity) {
-          throw new UsageError(`${c.estimator.id} estimates ${c.estimator.quantity}, but this call asks for ${quantity}${quantity === 'entropy' ? '' : ` (given by ${quantity === 'divergence' ? '--against' : '--x-columns/--y-columns'})`}`);
-        }
-        // Checked before estimating, so that asking for the wrong dimension stops the command before any estimate
-        // is made; the default set only holds estimators that support the dimension.
-        checkDimension(c.estimator, sample.dim);
-      }
-      // The limit applies to the default set; to named estimators only when the user gives it.
-      const limitSeconds = givenLimit !== undefined ? givenLimit : named ? null : DEFAULT_MAX_SECONDS;
-      const plans = planRows(configured, sample, limitSeconds);
-      let estimated: EstimateRecord[];
-      try {
-        estimated = estimateAll(sample, configured, base, plans, {
-          seed,
-          onStart: (c, rows) => status.show(`${c.estimator.id} on ${rows === sample.n ? 'all' : rows} of ${sample.n} rows`, true),
-        });
-      } finally {
-        status.clear();
-      }
-      const records = estimated.map((r) => ({
-        ...r,
-        ...(reference ? { relative: r.value === null ? null : r.value + toBase(offset, base) } : {}),
-      }));
-      const label = unitLabel(base, options.unit, sample.dim);
-      const failed = records.filter((r) => r.error);
-      const skipped = records.filter((r) => r.skipped);
-      const cutNotes = records.flatMap((r) =>
-        r.skipped
-          ? [`skipped: ${r.estimator}: ${r.skipped}`]
-          : r.subsample
-            ? [`subsample: ${r.estimator} ran on a seeded uniform subsample of ${r.subsample.rows} of the ${r.subsample.of} rows (seed ${r.subsample.seed}): ${r.subsample.reason}`]
-            : [],
-      );
-      const hints = failed.some((r) => r.code === 'ties') ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
-      // A default-set estimator that cannot run on these data is information about the data, not an error the
-      // user made or asked to hear about; one the user named, or a default set with no value at all, is.
-      const failedAsError = failed.length > 0 && (named || failed.length + skipped.length === records.length);
-      if (options.json) {
-        print(
-          JSON.stringify(
-            {
-              n: sample.n,
-              dim: sample.dim,
-              ...(quantity !== 'entropy' ? { quantity } : {}),
-              ...(sample.xDim !== undefined ? { xDim: sample.xDim } : {}),
-              ...(sample.q ? { qN: sample.q.n } : {}),
-              base,
-              ...(options.unit ? { unit: options.unit, label } : {}),
-              ...(reference ? { reference: describeReference(reference), meanLogReference: toBase(offset, base) } : {}),
-              columns: loaded.columnNames,
-              maxSeconds: limitSeconds,
-              estimates: records,
-              ...(hints.length ? { repeats: hints } : {}),
-            },
-            null,
-            2,
-          ),
+        const records = estimated.map((r) => ({
+          ...r,
+          ...(reference ? { relative: r.value === null ? null : r.value + toBase(offset, base) } : {}),
+        }));
+        const label = unitLabel(base, options.unit, sample.dim);
+        const failed = records.filter((r) => r.error);
+        const skipped = records.filter((r) => r.skipped);
+        const cutNotes = records.flatMap((r) =>
+          r.skipped
+            ? [`skipped: ${r.estimator}: ${r.skipped}`]
+            : r.subsample
+              ? [
+                  `subsample: ${r.estimator} ran on a seeded uniform subsample of ${r.subsample.rows} of the ${r.subsample.of} rows (seed ${r.subsample.seed}): ${r.subsample.reason}`,
+                ]
+              : [],
         );
-      } else {
-        print(`${file}: n = ${sample.n}, d = ${sample.dim}${loaded.columnNames.length ? ` (columns ${loaded.columnNames.join(', ')})` : ''}`);
-        const cut = cutNotes.length > 0;
-        const rows = records.map((r) => [
-          r.estimator,
-          Object.entries(r.settings)
-            .map(([k, v]) => `${k}=${v}`)
-            .join(', ') || '–',
-          ...(cut ? [r.skipped ? '–' : r.subsample ? `${r.subsample.rows} (subsample)` : `${sample.n} (all)`] : []),
-          r.skipped ? 'skipped (time)' : r.value === null ? `failed (${r.code})` : formatValue(r.value, 7),
-          ...(reference ? [r.relative === null || r.relative === undefined ? (r.skipped ? 'skipped' : 'failed') : formatValue(r.relative, 7)] : []),
-        ]);
-        const head = [
-          'estimator',
-          'settings used',
-          ...(cut ? ['rows'] : []),
-          `${quantity === 'entropy' ? 'entropy' : quantity} (${quantity === 'entropy' ? label : base})`,
-          ...(reference ? [`relative to ${describeReference(reference)} (${base})`] : []),
-        ];
-        print(renderTable(head, rows, { align: ['left', 'left', ...(cut ? ['right' as const] : []), 'right', 'right'] }));
-        for (const note of cutNotes) print(note);
-        // Failures that are not errors go with the table, so saved output explains its own "failed" rows;
-        // errors go to stderr alone, so a terminal does not show each reason twice.
-        if (!failedAsError) {
-          for (const r of failed) print(`failed: ${failureLine(r)}`);
-          if (hints.length) print(['repeated values in the data:', ...hints.map((h) => `  ${h}`)].join('\n'));
+        const hints = failed.some((r) => r.code === 'ties') ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
+        // A default-set estimator that cannot run on these data is information about the data, not an error the
+        // user made or asked to hear about; one the user named, or a default set with no value at all, is.
+        const failedAsError = failed.length > 0 && (named || failed.length + skipped.length === records.length);
+        if (options.json) {
+          print(
+            JSON.stringify(
+              {
+                n: sample.n,
+                dim: sample.dim,
+                ...(quantity !== 'entropy' ? { quantity } : {}),
+                ...(sample.xDim !== undefined ? { xDim: sample.xDim } : {}),
+                ...(sample.q ? { qN: sample.q.n } : {}),
+                base,
+                ...(options.unit ? { unit: options.unit, label } : {}),
+                ...(reference ? { reference: describeReference(reference), meanLogReference: toBase(offset, base) } : {}),
+                columns: loaded.columnNames,
+                maxSeconds: limitSeconds,
+                estimates: records,
+                ...(hints.length ? { repeats: hints } : {}),
+              },
+              null,
+              2,
+            ),
+          );
+        } else {
+          print(`${file}: n = ${sample.n}, d = ${sample.dim}${loaded.columnNames.length ? ` (columns ${loaded.columnNames.join(', ')})` : ''}`);
+          const cut = cutNotes.length > 0;
+          const rows = records.map((r) => [
+            r.estimator,
+            Object.entries(r.settings)
+              .map(([k, v]) => `${k}=${v}`)
+              .join(', ') || '–',
+            ...(cut ? [r.skipped ? '–' : r.subsample ? `${r.subsample.rows} (subsample)` : `${sample.n} (all)`] : []),
+            r.skipped ? 'skipped (time)' : r.value === null ? `failed (${r.code})` : formatValue(r.value, 7),
+            ...(reference ? [r.relative === null || r.relative === undefined ? (r.skipped ? 'skipped' : 'failed') : formatValue(r.relative, 7)] : []),
+          ]);
+          const head = [
+            'estimator',
+            'settings used',
+            ...(cut ? ['rows'] : []),
+            `${quantity === 'entropy' ? 'entropy' : quantity} (${quantity === 'entropy' ? label : base})`,
+            ...(reference ? [`relative to ${describeReference(reference)} (${base})`] : []),
+          ];
+          print(renderTable(head, rows, { align: ['left', 'left', ...(cut ? ['right' as const] : []), 'right', 'right'] }));
+          for (const note of cutNotes) print(note);
+          // Failures that are not errors go with the table, so saved output explains its own "failed" rows;
+          // errors go to stderr alone, so a terminal does not show each reason twice.
+          if (!failedAsError) {
+            for (const r of failed) print(`failed: ${failureLine(r)}`);
+            if (hints.length) print(['repeated values in the data:', ...hints.map((h) => `  ${h}`)].join('\n'));
+          }
         }
-      }
-      if (skipped.length === records.length) {
-        printErr(`hhat: no estimate was made: every estimator was skipped under the ${limitSeconds} s limit; raise --max-seconds or give --max-seconds none`);
-        process.exitCode = 1;
-        return;
-      }
-      if (!failed.length) return;
-      if (failedAsError) {
-        for (const r of failed) printErr(`hhat: ${failureLine(r)}`);
-        for (const h of hints) printErr(`  ${h}`);
-        if (!named) printErr(`hhat: none of the ${records.length} default estimators could run on this data`);
-        process.exitCode = 1;
-      } else {
-        printErr(
-          `hhat: note: ${failed.length} of the ${records.length} default estimators could not run on this data (${failed.map((r) => r.estimator).join(', ')}), ` +
-            'which leaves the exit code at 0; name an estimator with --estimator to make its failure an error',
-        );
-      }
-    });
+        if (skipped.length === records.length) {
+          printErr(`hhat: no estimate was made: every estimator was skipped under the ${limitSeconds} s limit; raise --max-seconds or give --max-seconds none`);
+          process.exitCode = 1;
+          return;
+        }
+        if (!failed.length) return;
+        if (failedAsError) {
+          for (const r of failed) printErr(`hhat: ${failureLine(r)}`);
+          for (const h of hints) printErr(`  ${h}`);
+          if (!named) printErr(`hhat: none of the ${records.length} default estimators could run on this data`);
+          process.exitCode = 1;
+        } else {
+          printErr(
+            `hhat: note: ${failed.length} of the ${records.length} default estimators could not run on this data (${failed.map((r) => r.estimator).join(', ')}), ` +
+              'which leaves the exit code at 0; name an estimator with --estimator to make its failure an error',
+          );
+        }
+      },
+    );
 }

@@ -89,15 +89,12 @@ Quote specs with brackets or semicolons in the shell.`,
         print(JSON.stringify(records, null, 2));
         return;
       }
-      const rows = records.map((r) => [
-        shorten(r.id, 52),
-        r.dim,
-        formatValue(r.truth, 7),
-        r.support,
-        r.tails,
-        shorten(r.truthSource, 48),
-      ]);
-      print(renderTable(['scenario', 'd', `truth (${base})`, 'support', 'tails', 'source of the truth'], rows, { align: ['left', 'right', 'right', 'left', 'left', 'left'] }));
+      const rows = records.map((r) => [shorten(r.id, 52), r.dim, formatValue(r.truth, 7), r.support, r.tails, shorten(r.truthSource, 48)]);
+      print(
+        renderTable(['scenario', 'd', `truth (${base})`, 'support', 'tails', 'source of the truth'], rows, {
+          align: ['left', 'right', 'right', 'left', 'left', 'left'],
+        }),
+      );
       print(`${records.length} scenarios. Details of one: hhat scenarios --json SPEC`);
     });
 }

@@ -48,10 +48,15 @@ export interface SettingSpec {
 }
 
 /** The keywords a setting accepts: its choices, and its default when that is a keyword. */
-type KeywordOf<S extends SettingSpec> = (S extends { choices: readonly (infer C extends string)[] } ? C : never) | (S['default'] extends string ? S['default'] : never);
+type KeywordOf<S extends SettingSpec> =
+  (S extends { choices: readonly (infer C extends string)[] } ? C : never) | (S['default'] extends string ? S['default'] : never);
 
 /** The type of a validated value of setting S: a number, one of its keywords, or either, as its kind says. */
-export type SettingValueOf<S extends SettingSpec> = S['kind'] extends 'integer' | 'number' ? number : S['kind'] extends 'choice' ? KeywordOf<S> : KeywordOf<S> | number;
+export type SettingValueOf<S extends SettingSpec> = S['kind'] extends 'integer' | 'number'
+  ? number
+  : S['kind'] extends 'choice'
+    ? KeywordOf<S>
+    : KeywordOf<S> | number;
 
 /** Validated settings of a declaration: every declared name present, each with its value's type. */
 export type SettingsOf<L extends readonly SettingSpec[]> = { [S in L[number] as S['name']]: SettingValueOf<S> };

@@ -14,7 +14,9 @@ export function parseSampleSizes(text: string): number[] {
   const sizes = text.split(',').map((part) => {
     const value = Number(part.trim());
     if (part.trim() === '' || !Number.isInteger(value) || value < 2 || value > MAX_SAMPLE_SIZE) {
-      throw new UsageError(`--n: "${part.trim()}" is not allowed; sample sizes must be integers from 2 to ${MAX_SAMPLE_SIZE}, comma-separated (e.g. 100,1000,10000)`);
+      throw new UsageError(
+        `--n: "${part.trim()}" is not allowed; sample sizes must be integers from 2 to ${MAX_SAMPLE_SIZE}, comma-separated (e.g. 100,1000,10000)`,
+      );
     }
     return value;
   });
@@ -33,14 +35,16 @@ export function parseIntegerOption(flag: string, text: string, min: number, max 
 /** A confidence level strictly between 0 and 1 (e.g. 0.95), for --level. */
 export function parseLevel(text: string, flag = '--level'): number {
   const value = Number(text);
-  if (text.trim() === '' || !(value > 0 && value < 1)) throw new UsageError(`${flag} ${text} is not allowed; the confidence level is a number between 0 and 1 (e.g. 0.95)`);
+  if (text.trim() === '' || !(value > 0 && value < 1))
+    throw new UsageError(`${flag} ${text} is not allowed; the confidence level is a number between 0 and 1 (e.g. 0.95)`);
   return value;
 }
 
 /** A share from 0 to 1 inclusive (e.g. 0.05). */
 export function parseFraction(flag: string, text: string): number {
   const value = Number(text);
-  if (text.trim() === '' || !(value >= 0 && value <= 1)) throw new UsageError(`${flag} ${text} is not allowed; it must be a number from 0 to 1 (e.g. 0.05 for 5%)`);
+  if (text.trim() === '' || !(value >= 0 && value <= 1))
+    throw new UsageError(`${flag} ${text} is not allowed; it must be a number from 0 to 1 (e.g. 0.05 for 5%)`);
   return value;
 }
 

@@ -30,7 +30,10 @@ export function checkFiniteValues(id: string, sample: Sample): void {
   const { data, n, dim } = sample;
   for (let p = 0; p < n * dim; p++) {
     if (!Number.isFinite(data[p])) {
-      throw new EstimateError('invalid-input', `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`);
+      throw new EstimateError(
+        'invalid-input',
+        `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`,
+      );
     }
   }
 }

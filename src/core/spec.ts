@@ -69,11 +69,7 @@ function inRange(x: number, spec: { min?: number; max?: number; minExclusive?: b
 }
 
 /** Validates scenario parameters; unknown names and out-of-range values are usage errors naming the range. */
-export function validateParams(
-  owner: string,
-  specs: readonly ParamSpec[],
-  given: Record<string, number | string>,
-): Record<string, number> {
+export function validateParams(owner: string, specs: readonly ParamSpec[], given: Record<string, number | string>): Record<string, number> {
   const known = new Set(specs.map((s) => s.name));
   for (const key of Object.keys(given)) {
     if (!known.has(key)) {
@@ -115,11 +111,7 @@ export function describeSetting(spec: SettingSpec): string {
 }
 
 /** Validates estimator settings given as text or values; fills defaults (keywords are resolved later, per sample). */
-export function validateSettings(
-  owner: string,
-  specs: readonly SettingSpec[],
-  given: Record<string, SettingValue>,
-): Settings {
+export function validateSettings(owner: string, specs: readonly SettingSpec[], given: Record<string, SettingValue>): Settings {
   const known = new Map(specs.map((s) => [s.name, s]));
   for (const key of Object.keys(given)) {
     if (!known.has(key)) {
@@ -158,10 +150,12 @@ export function checkSetting(owner: string, spec: SettingSpec, raw: SettingValue
 /** Canonical `id:key=value,...` text for an id and its values, in the given key order. */
 export function formatSpec(id: string, values: Record<string, SettingValue>, order?: readonly string[]): string {
   const keys = order ?? Object.keys(values);
-  const parts = keys.filter((k) => values[k] !== undefined).map((k) => {
-    const v = values[k];
-    return `${k}=${typeof v === 'number' ? formatNumber(v) : v}`;
-  });
+  const parts = keys
+    .filter((k) => values[k] !== undefined)
+    .map((k) => {
+      const v = values[k];
+      return `${k}=${typeof v === 'number' ? formatNumber(v) : v}`;
+    });
   return parts.length ? `${id}:${parts.join(',')}` : id;
 }
 
@@ -202,21 +196,26 @@ function checkSettingSpec(where: string, raw: unknown, index: number): SettingSp
     throw new UsageError(`${at}: name ${show(spec.name)} is not allowed; a setting name is letters, digits, '-' or '_', starting with a letter`);
   }
   const named = `${at} ("${spec.name}")`;
-  if (typeof spec.meaning !== 'string' || spec.meaning.trim() === '') throw new UsageError(`${named}: meaning is missing; give one line saying what the setting does`);
+  if (typeof spec.meaning !== 'string' || spec.meaning.trim() === '')
+    throw new UsageError(`${named}: meaning is missing; give one line saying what the setting does`);
   if (typeof spec.kind !== 'string' || !(SETTING_KINDS as readonly string[]).includes(spec.kind)) {
     throw new UsageError(`${named}: kind ${show(spec.kind)} is not allowed; it must be one of ${SETTING_KINDS.join(', ')}`);
   }
   if (spec.kind.startsWith('choice')) {
     if (!Array.isArray(spec.choices) || !spec.choices.length || !spec.choices.every((c) => typeof c === 'string' && CHOICE_PATTERN.test(c))) {
-      throw new UsageError(`${named}: kind "${spec.kind}" needs choices, a non-empty array of words without spaces, ',', '=', ':' or brackets; got ${show(spec.choices)}`);
+      throw new UsageError(
+        `${named}: kind "${spec.kind}" needs choices, a non-empty array of words without spaces, ',', '=', ':' or brackets; got ${show(spec.choices)}`,
+      );
     }
   }
   for (const bound of ['min', 'max'] as const) {
     const value = spec[bound];
-    if (value !== undefined && (typeof value !== 'number' || Number.isNaN(value))) throw new UsageError(`${named}: ${bound} is ${show(value)}; it must be a number when given`);
+    if (value !== undefined && (typeof value !== 'number' || Number.isNaN(value)))
+      throw new UsageError(`${named}: ${bound} is ${show(value)}; it must be a number when given`);
   }
   if (spec.min !== undefined && spec.max !== undefined && spec.min > spec.max) throw new UsageError(`${named}: min ${spec.min} is above max ${spec.max}`);
-  if (spec.minExclusive !== undefined && typeof spec.minExclusive !== 'boolean') throw new UsageError(`${named}: minExclusive is ${show(spec.minExclusive)}; it must be true or false`);
+  if (spec.minExclusive !== undefined && typeof spec.minExclusive !== 'boolean')
+    throw new UsageError(`${named}: minExclusive is ${show(spec.minExclusive)}; it must be true or false`);
   const checked = spec as SettingSpec;
   if (!defaultAllowed(checked, spec.default)) {
     throw new UsageError(`${named}: default ${show(spec.default)} is not allowed; ${spec.name} must be ${describeSetting(checked)}`);
@@ -258,7 +257,9 @@ function checkLacks(where: string, lacks: unknown): void {
   for (const [name, reason] of Object.entries(lacks)) {
     if (!(name in INVARIANCES)) throw new UsageError(`${where}: lacks.${name} is not an invariance hhat checks; the names are ${names}`);
     if (typeof reason === 'function' || (typeof reason === 'string' && reason.trim() !== '')) continue;
-    throw new UsageError(`${where}: lacks.${name} is ${show(reason)}; give the reason as a non-empty string, or a function (settings, dim) returning it (undefined where the invariance holds)`);
+    throw new UsageError(
+      `${where}: lacks.${name} is ${show(reason)}; give the reason as a non-empty string, or a function (settings, dim) returning it (undefined where the invariance holds)`,
+    );
   }
 }
 
@@ -269,7 +270,7 @@ function checkDims(where: string, dims: unknown): void {
 /** `defaultFor`: which default sets list the estimator; each entry's settings are validated like a user's. */
 function checkDefaultSets(at: string, value: unknown, estimator: Estimator): void {
   if (value === undefined) return;
-  const shape = "defaultFor is an object { estimate?, bench? }, each true or an array of entries { order?, settings? } (estimate entries also dims?)";
+  const shape = 'defaultFor is an object { estimate?, bench? }, each true or an array of entries { order?, settings? } (estimate entries also dims?)';
   if (!isRecord(value)) throw new UsageError(`${at}: defaultFor is ${show(value)}; ${shape}`);
   for (const key of Object.keys(value)) {
     if (key !== 'estimate' && key !== 'bench') throw new UsageError(`${at}: defaultFor.${key} is not a default set; ${shape}`);
@@ -281,13 +282,16 @@ function checkDefaultSets(at: string, value: unknown, estimator: Estimator): voi
       if (!isRecord(raw)) throw new UsageError(`${where} is ${show(raw)}; ${shape}`);
       const entry = raw as EstimateDefaultEntry & Record<string, unknown>;
       for (const field of Object.keys(entry)) {
-        if (field !== 'order' && field !== 'settings' && !(field === 'dims' && key === 'estimate')) throw new UsageError(`${where}: "${field}" is not allowed; ${shape}`);
+        if (field !== 'order' && field !== 'settings' && !(field === 'dims' && key === 'estimate'))
+          throw new UsageError(`${where}: "${field}" is not allowed; ${shape}`);
       }
-      if (entry.order !== undefined && !(typeof entry.order === 'number' && Number.isFinite(entry.order))) throw new UsageError(`${where}: order is ${show(entry.order)}; it must be a number (lower comes first)`);
+      if (entry.order !== undefined && !(typeof entry.order === 'number' && Number.isFinite(entry.order)))
+        throw new UsageError(`${where}: order is ${show(entry.order)}; it must be a number (lower comes first)`);
       if (entry.dims !== undefined) {
         checkDims(where, entry.dims);
         const [low, high] = entry.dims;
-        if (low < estimator.dims[0] || high > estimator.dims[1]) throw new UsageError(`${where}: dims ${show(entry.dims)} reach beyond the estimator's own dims ${show(estimator.dims)}`);
+        if (low < estimator.dims[0] || high > estimator.dims[1])
+          throw new UsageError(`${where}: dims ${show(entry.dims)} reach beyond the estimator's own dims ${show(estimator.dims)}`);
       }
       if (entry.settings !== undefined) {
         if (!isRecord(entry.settings)) throw new UsageError(`${where}: settings is ${show(entry.settings)}; give an object { name: value }`);
@@ -312,8 +316,10 @@ export function checkEstimator(where: string, value: unknown): Estimator {
     throw new UsageError(`${where}: id ${show(e.id)} is not allowed; an id is lowercase letters and digits in hyphenated words, e.g. "my-method"`);
   }
   const at = `${where} ("${e.id}")`;
-  if (typeof e.estimate !== 'function') throw new UsageError(`${at}: estimate is ${show(e.estimate)}, not a function; give estimate(sample, settings) returning nats`);
-  if (e.resolve !== undefined && typeof e.resolve !== 'function') throw new UsageError(`${at}: resolve is ${show(e.resolve)}; when given it must be a function (sample, settings) => settings`);
+  if (typeof e.estimate !== 'function')
+    throw new UsageError(`${at}: estimate is ${show(e.estimate)}, not a function; give estimate(sample, settings) returning nats`);
+  if (e.resolve !== undefined && typeof e.resolve !== 'function')
+    throw new UsageError(`${at}: resolve is ${show(e.resolve)}; when given it must be a function (sample, settings) => settings`);
   if (e.tuning !== undefined && typeof e.tuning !== 'function') {
     throw new UsageError(`${at}: tuning is ${show(e.tuning)}; when given it must be a function (settings, n) => [{ setting, values: [...] }, ...]`);
   }

@@ -45,7 +45,10 @@ export const KNOWN_UNITS = Object.keys(UNITS);
 export function unitFactor(from: string, to: string): number {
   const a = UNITS[from];
   const b = UNITS[to];
-  for (const [name, unit] of [[from, a], [to, b]] as const) {
+  for (const [name, unit] of [
+    [from, a],
+    [to, b],
+  ] as const) {
     if (!unit) throw new UsageError(`unknown unit "${name}"; known: ${KNOWN_UNITS.join(', ')} (or give --factor c)`);
   }
   if (a.kind !== b.kind) throw new UsageError(`cannot convert ${from} (${a.kind}) to ${to} (${b.kind}); both units must measure the same kind of quantity`);

@@ -36,9 +36,7 @@ export function resolveColumns(spec: string, names: readonly string[] | null, co
   const checkPosition = (position: number): void => {
     if (position < 1) throw new UsageError(`${source}: column 0 does not exist; columns are numbered from 1`);
     if (position > columnCount) {
-      throw new UsageError(
-        `${source}: column ${position} does not exist; the file has ${columnCount} column${columnCount === 1 ? '' : 's'}`,
-      );
+      throw new UsageError(`${source}: column ${position} does not exist; the file has ${columnCount} column${columnCount === 1 ? '' : 's'}`);
     }
   };
   for (const part of parts) {

@@ -137,9 +137,7 @@ class DelimitedReader {
       for (let k = 0; k < scanner.fieldCount; k++) this.names.push(scanner.fieldText(k).trim());
       kind = this.skipBlanks();
       if (kind === 'end') {
-        throw new UsageError(
-          `${this.source} has a header row (line ${this.headerLine}) but no data rows; expected rows of numbers below it`,
-        );
+        throw new UsageError(`${this.source} has a header row (line ${this.headerLine}) but no data rows; expected rows of numbers below it`);
       }
     }
     this.startData();
@@ -188,9 +186,7 @@ class DelimitedReader {
 
   private fieldValue(k: number): number {
     const scanner = this.scanner;
-    return scanner.fieldQuoting[k] === UNQUOTED
-      ? this.decimals.read(scanner.fieldStart[k], scanner.fieldEnd[k])
-      : parseDecimalText(scanner.fieldText(k));
+    return scanner.fieldQuoting[k] === UNQUOTED ? this.decimals.read(scanner.fieldStart[k], scanner.fieldEnd[k]) : parseDecimalText(scanner.fieldText(k));
   }
 
   /** Fixes the row width from the first data row and resolves the column selection. */
@@ -247,8 +243,7 @@ class DelimitedReader {
     for (let k = 0; k < fieldCount; k++) {
       const slot = slots[k];
       if (slot < 0) continue;
-      const value =
-        quoting[k] === UNQUOTED ? decimals.read(starts[k], ends[k]) : parseDecimalText(scanner.fieldText(k));
+      const value = quoting[k] === UNQUOTED ? decimals.read(starts[k], ends[k]) : parseDecimalText(scanner.fieldText(k));
       // NaN and ±Infinity both fail this test; finite values pass.
       if (value - value !== 0) throw this.badField(k);
       values[base + slot] = value;
@@ -272,9 +267,7 @@ class DelimitedReader {
         }
       }
     }
-    return new UsageError(
-      `${this.source} line ${scanner.recordLine}, ${describeColumn(k + 1, name)}: ${describeBadNumber(text)}${hint}`,
-    );
+    return new UsageError(`${this.source} line ${scanner.recordLine}, ${describeColumn(k + 1, name)}: ${describeBadNumber(text)}${hint}`);
   }
 
   /** When the wrong delimiter is likely, says what the fields were split at and what they contain. */
@@ -316,7 +309,7 @@ class DelimitedReader {
 /** 0-based indices as a 1-based selection spec with ranges: [0, 2, 3, 4] -> "1,3-5". */
 function formatPositions(indices: readonly number[]): string {
   const parts: string[] = [];
-  for (let a = 0; a < indices.length; ) {
+  for (let a = 0; a < indices.length;) {
     let b = a;
     while (b + 1 < indices.length && indices[b + 1] === indices[b] + 1) b++;
     parts.push(b > a ? `${indices[a] + 1}-${indices[b] + 1}` : `${indices[a] + 1}`);

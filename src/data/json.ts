@@ -70,9 +70,7 @@ class JsonReader {
   ) {}
 
   private select(names: string[] | null, count: number): number[] {
-    return this.columns === undefined
-      ? Array.from({ length: count }, (_, j) => j)
-      : resolveColumns(this.columns, names, count, this.source);
+    return this.columns === undefined ? Array.from({ length: count }, (_, j) => j) : resolveColumns(this.columns, names, count, this.source);
   }
 
   private table(data: Float64Array, n: number, names: string[] | null, count: number, selected: number[]): DataTable {
@@ -110,17 +108,13 @@ class JsonReader {
       const row = rows[i];
       if (!Array.isArray(row)) throw this.mixed(i, row, 'an array');
       if (row.length !== width) {
-        throw new UsageError(
-          `${this.source} row ${i + 1} (index [${i}]) has ${row.length} value${row.length === 1 ? '' : 's'}; the first row has ${width}`,
-        );
+        throw new UsageError(`${this.source} row ${i + 1} (index [${i}]) has ${row.length} value${row.length === 1 ? '' : 's'}; the first row has ${width}`);
       }
       for (let slot = 0; slot < dim; slot++) {
         const j = selected[slot];
         const value: unknown = row[j];
         if (typeof value !== 'number' || !Number.isFinite(value)) {
-          throw new UsageError(
-            `${this.source} row ${i + 1}, column ${j + 1} (index [${i}][${j}]): ${describeJsonValue(value)}`,
-          );
+          throw new UsageError(`${this.source} row ${i + 1}, column ${j + 1} (index [${i}][${j}]): ${describeJsonValue(value)}`);
         }
         data[i * dim + slot] = value;
       }
@@ -179,9 +173,7 @@ class JsonReader {
         n = column.length;
         firstName = names[j];
       } else if (column.length !== n) {
-        throw new UsageError(
-          `${this.source} column ${showText(names[j])} has ${column.length} values; column ${showText(firstName)} has ${n}`,
-        );
+        throw new UsageError(`${this.source} column ${showText(names[j])} has ${column.length} values; column ${showText(firstName)} has ${n}`);
       }
     }
     if (n === 0) throw new UsageError(`${this.source}: the columns are empty arrays; expected numbers`);

@@ -22,8 +22,7 @@ export interface NpyTable extends DataTable {
 
 const magic = [0x93, 0x4e, 0x55, 0x4d, 0x50, 0x59]; // \x93NUMPY
 
-const allowedDtypes =
-  'floats <f8 >f8 <f4 >f4 <f2 >f2, signed integers i1 i2 i4 i8 and unsigned u1 u2 u4 u8 (either byte order)';
+const allowedDtypes = 'floats <f8 >f8 <f4 >f4 <f2 >f2, signed integers i1 i2 i4 i8 and unsigned u1 u2 u4 u8 (either byte order)';
 
 type Reader = (view: DataView, offset: number) => number;
 
@@ -76,16 +75,13 @@ interface NpyHeader {
 
 /** Reads the header dict literal; NumPy writes keys in a fixed form, but any order and spacing is accepted. */
 function parseHeader(text: string, source: string): NpyHeader {
-  const bad = (what: string): UsageError =>
-    new UsageError(`${source}: the .npy header ${what}; header text: ${JSON.stringify(text.trim().slice(0, 120))}`);
+  const bad = (what: string): UsageError => new UsageError(`${source}: the .npy header ${what}; header text: ${JSON.stringify(text.trim().slice(0, 120))}`);
   const trimmed = text.trim();
   if (!trimmed.startsWith('{') || !trimmed.endsWith('}')) throw bad('is not a dict literal');
   const descrMatch = /['"]descr['"]\s*:\s*(['"])([^'"]*)\1/.exec(trimmed);
   if (!descrMatch) {
     if (/['"]descr['"]\s*:\s*\[/.test(trimmed)) {
-      throw new UsageError(
-        `${source} holds a structured array (fields with names); only plain numeric arrays are read: ${allowedDtypes}`,
-      );
+      throw new UsageError(`${source} holds a structured array (fields with names); only plain numeric arrays are read: ${allowedDtypes}`);
     }
     throw bad("has no 'descr' string");
   }
@@ -107,9 +103,7 @@ export function parseNpy(input: Uint8Array, options: ParseOptions = {}): NpyTabl
   const source = options.source ?? defaultSource;
   const bytes = input;
   if (bytes.length < 10 || magic.some((byte, i) => bytes[i] !== byte)) {
-    throw new UsageError(
-      `${source} is not a NumPy .npy file: it does not start with the bytes \\x93NUMPY (write it with numpy.save)`,
-    );
+    throw new UsageError(`${source} is not a NumPy .npy file: it does not start with the bytes \\x93NUMPY (write it with numpy.save)`);
   }
   const major = bytes[6];
   const minor = bytes[7];
@@ -129,9 +123,7 @@ export function parseNpy(input: Uint8Array, options: ParseOptions = {}): NpyTabl
   }
   const dataStart = headerStart + headerLength;
   if (dataStart > bytes.length) throw new UsageError(`${source}: the .npy file ends inside its header`);
-  const headerText = Buffer.from(bytes.buffer, bytes.byteOffset + headerStart, headerLength).toString(
-    major === 3 ? 'utf8' : 'latin1',
-  );
+  const headerText = Buffer.from(bytes.buffer, bytes.byteOffset + headerStart, headerLength).toString(major === 3 ? 'utf8' : 'latin1');
   const header = parseHeader(headerText, source);
 
   const dtypeMatch = /^([<>|=])([a-zA-Z])(\d+)$/.exec(header.descr);
@@ -162,14 +154,17 @@ export function parseNpy(input: Uint8Array, options: ParseOptions = {}): NpyTabl
     );
   }
 
-  const selected =
-    options.columns === undefined
-      ? Array.from({ length: columns }, (_, j) => j)
-      : resolveColumns(options.columns, null, columns, source);
+  const selected = options.columns === undefined ? Array.from({ length: columns }, (_, j) => j) : resolveColumns(options.columns, null, columns, source);
   const dim = selected.length;
   // NumPy's default, little-endian float64 in C order, every column: one copy of the bytes, then a finiteness scan.
   const wholeNative =
-    dtypeMatch[2] === 'f' && itemSize === 8 && isHostLittleEndian() && (dtypeMatch[1] === '<' || dtypeMatch[1] === '=') && !header.fortranOrder && selected.every((j, slot) => j === slot) && dim === columns;
+    dtypeMatch[2] === 'f' &&
+    itemSize === 8 &&
+    isHostLittleEndian() &&
+    (dtypeMatch[1] === '<' || dtypeMatch[1] === '=') &&
+    !header.fortranOrder &&
+    selected.every((j, slot) => j === slot) &&
+    dim === columns;
   const notFinite = (i: number, j: number, value: number): UsageError => {
     const index = shape.length === 2 ? `[${i}, ${j}]` : `[${i}]`;
     return new UsageError(

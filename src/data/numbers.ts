@@ -153,9 +153,7 @@ export function parseDecimalText(text: string): number {
 }
 
 /** Words people and programs write for missing or non-finite values. */
-const nonFiniteWords = new Set([
-  'nan', 'inf', 'infinity', 'na', 'n/a', 'nd', 'null', 'none', 'missing', '?', '-', '.', '1.#inf', '1.#qnan', '-1.#inf',
-]);
+const nonFiniteWords = new Set(['nan', 'inf', 'infinity', 'na', 'n/a', 'nd', 'null', 'none', 'missing', '?', '-', '.', '1.#inf', '1.#qnan', '-1.#inf']);
 
 /**
  * Why a field that `parseDecimal*` rejected (or read as ±Infinity) is not usable, as the tail of a message:

@@ -109,7 +109,7 @@ export function findRepeats(sample: Sample): RepeatReport {
     let tiedValues = 0;
     let largestGroup = 0;
     let smallestGap = NaN;
-    for (let start = 0; start < n; ) {
+    for (let start = 0; start < n;) {
       const value = column[order[start]];
       let stop = start;
       while (stop < n && column[order[stop]] === value) rank[order[stop++]] = distinct;
@@ -132,7 +132,7 @@ export function findRepeats(sample: Sample): RepeatReport {
       for (let i = 0; i < n; i++) rowCode[i] = rowCode[i] * distinct + rank[i];
       const codeOrder = sortedOrder(rowCode);
       rowCodes = 0;
-      for (let start = 0; start < n; ) {
+      for (let start = 0; start < n;) {
         const code = rowCode[codeOrder[start]];
         let stop = start;
         while (stop < n && rowCode[codeOrder[stop]] === code) rank[codeOrder[stop++]] = rowCodes;
@@ -151,17 +151,10 @@ export function findRepeats(sample: Sample): RepeatReport {
  */
 export function describeRepeats(report: RepeatReport, columnNames?: readonly string[]): string[] {
   const lines: string[] = [];
-  lines.push(
-    report.repeatedRows === 0
-      ? `no repeated rows among ${report.n}`
-      : `${report.repeatedRows} of ${report.n} rows repeat an earlier row exactly`,
-  );
+  lines.push(report.repeatedRows === 0 ? `no repeated rows among ${report.n}` : `${report.repeatedRows} of ${report.n} rows repeat an earlier row exactly`);
   report.columns.forEach((c, j) => {
     const name = columnNames?.[j] ?? `column ${j + 1}`;
-    const ties =
-      c.tiedValues === 0
-        ? 'no tied values'
-        : `${c.tiedValues} of ${report.n} values are tied (largest group ${c.largestGroup})`;
+    const ties = c.tiedValues === 0 ? 'no tied values' : `${c.tiedValues} of ${report.n} values are tied (largest group ${c.largestGroup})`;
     const gap = Number.isNaN(c.smallestGap) ? 'no gap (one distinct value)' : `smallest gap ${c.smallestGap.toPrecision(3)}`;
     lines.push(`${JSON.stringify(name)}: ${ties}; ${c.distinct} distinct; ${gap}`);
   });

@@ -52,7 +52,9 @@ export function codeIdentity(): CodeIdentity {
   if (identity) return identity;
   const root = packageRoot();
   const hash = createHash('sha256');
-  for (const file of codeFolders().flatMap((f) => listFiles(f)).sort()) {
+  for (const file of codeFolders()
+    .flatMap((f) => listFiles(f))
+    .sort()) {
     hash.update(relative(root, file)).update('\0').update(readFileSync(file)).update('\0');
   }
   const manifest = JSON.parse(readFileSync(join(root, 'package.json'), 'utf8')) as { dependencies?: Record<string, string> };
@@ -143,6 +145,8 @@ export function moduleGraph(path: string): ModuleGraph {
   visit(resolve(path));
   const list = [...files.entries()].map(([p, sha256]) => ({ path: p, sha256 })).sort((a, b) => a.path.localeCompare(b.path));
   const sortedPackages = [...packages].sort();
-  const digest = createHash('sha256').update(JSON.stringify({ files: list, packages: sortedPackages })).digest('hex');
+  const digest = createHash('sha256')
+    .update(JSON.stringify({ files: list, packages: sortedPackages }))
+    .digest('hex');
   return { digest, files: list, packages: sortedPackages };
 }

@@ -17,7 +17,9 @@ export function buildContext(plan: Plan): WorkContext {
   const seen = new Set(estimators.map((e) => e.spec));
   const tuning =
     robustness?.tuning === true
-      ? estimators.flatMap((e, i) => tuningGrid(e, i, robustness.sampleSize)).filter((t) => !seen.has(t.configured.spec) && Boolean(seen.add(t.configured.spec)))
+      ? estimators
+          .flatMap((e, i) => tuningGrid(e, i, robustness.sampleSize))
+          .filter((t) => !seen.has(t.configured.spec) && Boolean(seen.add(t.configured.spec)))
       : [];
   const perturbations = (robustness?.perturbations ?? []).map(parsePerturbation);
   return {

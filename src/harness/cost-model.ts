@@ -158,7 +158,8 @@ export function largestRowsWhere(n: number, fits: (m: number) => boolean): numbe
  * their ratio is kept.
  */
 export function rowsWithin(configured: ConfiguredEstimator, n: number, dim: number, seconds: number, context: CostContext = {}): number {
-  const at = (m: number): number | null => predictedSeconds(configured, m, dim, context.qN === undefined ? context : { ...context, qN: Math.round((context.qN * m) / n) });
+  const at = (m: number): number | null =>
+    predictedSeconds(configured, m, dim, context.qN === undefined ? context : { ...context, qN: Math.round((context.qN * m) / n) });
   if (at(n) === null) return n;
   return largestRowsWhere(n, (m) => (at(m) ?? 0) <= seconds);
 }

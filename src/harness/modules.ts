@@ -25,7 +25,6 @@ export function resolveModulePath(path: string, baseDir = process.cwd()): string
   return isAbsolute(path) ? path : resolve(baseDir, path);
 }
 
-
 function firstLine(text: string): string {
   return text.split('\n')[0].trim();
 }
@@ -33,7 +32,9 @@ function firstLine(text: string): string {
 async function importModule(path: string): Promise<Record<string, unknown>> {
   const extension = extname(path).toLowerCase();
   if (!JAVASCRIPT.has(extension) && !TYPESCRIPT.has(extension)) {
-    throw new UsageError(`estimator module ${path}: "${extension || '(no extension)'}" files cannot be loaded; use .js or .mjs (or .ts when hhat runs under tsx)`);
+    throw new UsageError(
+      `estimator module ${path}: "${extension || '(no extension)'}" files cannot be loaded; use .js or .mjs (or .ts when hhat runs under tsx)`,
+    );
   }
   if (!existsSync(path)) throw new UsageError(`estimator module ${path}: no such file`);
   if (!statSync(path).isFile()) throw new UsageError(`estimator module ${path}: is a folder, not a file`);
@@ -42,11 +43,15 @@ async function importModule(path: string): Promise<Record<string, unknown>> {
   } catch (error) {
     const code = (error as NodeJS.ErrnoException).code;
     if (TYPESCRIPT.has(extension) && code === 'ERR_UNKNOWN_FILE_EXTENSION') {
-      throw new UsageError(`estimator module ${path}: TypeScript modules load only under a TypeScript loader (NODE_OPTIONS="--import tsx" npx hhat ...); compile it to .mjs, or run hhat that way`);
+      throw new UsageError(
+        `estimator module ${path}: TypeScript modules load only under a TypeScript loader (NODE_OPTIONS="--import tsx" npx hhat ...); compile it to .mjs, or run hhat that way`,
+      );
     }
     const message = firstLine(error instanceof Error ? error.message : String(error));
     if (error instanceof SyntaxError && /export|import/.test(message) && extension === '.js') {
-      throw new UsageError(`estimator module ${path}: ${message}; a .js file is an ES module only under a package.json with "type": "module", so rename it to .mjs`);
+      throw new UsageError(
+        `estimator module ${path}: ${message}; a .js file is an ES module only under a package.json with "type": "module", so rename it to .mjs`,
+      );
     }
     throw new UsageError(`estimator module ${path} could not be loaded: ${message}`);
   }
@@ -97,7 +102,9 @@ export async function loadEstimatorModules(paths: string[]): Promise<Estimator[]
       const estimator = checkEstimator(`estimator module ${given}: ${label}`, value);
       const other = origin.get(estimator.id);
       if (other !== undefined) {
-        throw new UsageError(`estimator module ${given}: the id "${estimator.id}" is also defined ${other === given ? 'earlier in the same file' : `in ${other}`}; each id may be defined once`);
+        throw new UsageError(
+          `estimator module ${given}: the id "${estimator.id}" is also defined ${other === given ? 'earlier in the same file' : `in ${other}`}; each id may be defined once`,
+        );
       }
       origin.set(estimator.id, given);
       out.push(estimator);

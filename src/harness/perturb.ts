@@ -94,7 +94,9 @@ function quantile(density: UnivariateDensity, p: number): number {
 }
 
 function hashSeed(...parts: (string | number)[]): string {
-  return createHash('sha256').update(`hhat-perturb-v1\n${parts.join('\n')}`).digest('hex');
+  return createHash('sha256')
+    .update(`hhat-perturb-v1\n${parts.join('\n')}`)
+    .digest('hex');
 }
 
 /** x → c·x: the truth moves by exactly d·log|c|. */
@@ -127,7 +129,8 @@ function monotonePerturbation(text: string, values: Record<string, string>): Per
     level: null,
     prepare: (scenario, options = {}) => {
       const needShift = options.shiftNeeded !== false;
-      if (!scenario.marginals && needShift) return { skip: `monotone:map=${mapId} needs the coordinates' marginal laws, which ${scenario.family} does not state` };
+      if (!scenario.marginals && needShift)
+        return { skip: `monotone:map=${mapId} needs the coordinates' marginal laws, which ${scenario.family} does not state` };
       let shift = 0;
       let error = 0;
       const appliers: ((x: number) => number)[] = [];
@@ -202,7 +205,7 @@ function affinePerturbation(text: string, values: Record<string, string>): Pertu
 /** Rounding each coordinate to a grid of step·σ_j: the truth does not move; ties appear. */
 function quantizePerturbation(text: string, values: Record<string, string>): Perturbation {
   onlyKeys(text, values, ['step']);
-  const step = numberParam(text, values, 'step', 0.1, (x) => x > 0, 'a number > 0 (the resolution in units of each coordinate\'s SD)');
+  const step = numberParam(text, values, 'step', 0.1, (x) => x > 0, "a number > 0 (the resolution in units of each coordinate's SD)");
   return {
     spec: formatSpec('quantize', { step }),
     kind: 'quantize',
@@ -245,7 +248,8 @@ function contaminatePerturbation(text: string, values: Record<string, string>): 
       for (let j = 0; j < scenario.dim; j++) {
         const sigma = coordinateScale(scenario, j);
         const centre = coordinateCentre(scenario, j);
-        if (sigma === undefined || centre === undefined) return { skip: `contaminate needs each coordinate's centre and scale, which ${scenario.family} does not state` };
+        if (sigma === undefined || centre === undefined)
+          return { skip: `contaminate needs each coordinate's centre and scale, which ${scenario.family} does not state` };
         centres.push(centre);
         scales.push(sigma);
       }
@@ -298,10 +302,12 @@ function randomRotation(dim: number, seed: string): Float64Array {
 
 function parseEntropyPerturbation(text: string, id: string, values: Record<string, string>): Perturbation {
   const build = Object.hasOwn(ENTROPY_PERTURBATIONS, id) ? ENTROPY_PERTURBATIONS[id] : undefined;
-  if (!build) throw new UsageError(`unknown perturbation "${id}"; known: ${PERTURBATION_KINDS.join(', ')} (e.g. rescale:c=1000, monotone:map=asinh, affine:condition=10, quantize:step=0.1, contaminate:fraction=0.01)`);
+  if (!build)
+    throw new UsageError(
+      `unknown perturbation "${id}"; known: ${PERTURBATION_KINDS.join(', ')} (e.g. rescale:c=1000, monotone:map=asinh, affine:condition=10, quantize:step=0.1, contaminate:fraction=0.01)`,
+    );
   return build(text, values);
 }
-
 
 /** Which columns a perturbation touches in a mutual-information sample. */
 export type Part = 'x' | 'y' | 'all';
@@ -341,7 +347,9 @@ export function parsePerturbation(text: string): Perturbation {
         if ('skip' in prepared) return prepared;
         return {
           shift: invariant ? 0 : null,
-          shiftSource: invariant ? `exact: MI is invariant under invertible maps of ${chosen === 'all' ? 'each variable' : chosen.toUpperCase()}` : prepared.shiftSource,
+          shiftSource: invariant
+            ? `exact: MI is invariant under invertible maps of ${chosen === 'all' ? 'each variable' : chosen.toUpperCase()}`
+            : prepared.shiftSource,
           apply: (sample, replicate, seed) => applyToColumns(prepared, sample, columns, replicate, seed),
         };
       }

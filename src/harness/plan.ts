@@ -176,7 +176,14 @@ export function readTextFile(path: string, what: string): string {
     return readFileSync(path, 'utf8');
   } catch (error) {
     const code = (error as NodeJS.ErrnoException).code;
-    const why = code === 'ENOENT' ? 'no such file' : code === 'EISDIR' ? 'it is a directory' : code === 'EACCES' || code === 'EPERM' ? 'permission denied' : (code ?? String(error));
+    const why =
+      code === 'ENOENT'
+        ? 'no such file'
+        : code === 'EISDIR'
+          ? 'it is a directory'
+          : code === 'EACCES' || code === 'EPERM'
+            ? 'permission denied'
+            : (code ?? String(error));
     throw new UsageError(`cannot read ${what} ${path}: ${why}`);
   }
 }
@@ -214,8 +221,14 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
       throw new UsageError(`${source}: estimators[${i}]${detail}`);
     }
   });
-  const mismatched = [...scenarios.filter((s) => s.quantity !== quantity).map((s) => s.id), ...estimators.filter((e) => e.estimator.quantity !== quantity).map((e) => e.spec)];
-  if (mismatched.length) throw new UsageError(`${source}: ${mismatched[0]} is not a ${quantity} ${scenarios.some((s) => s.id === mismatched[0]) ? 'scenario' : 'estimator'}; the plan's quantity is ${quantity}`);
+  const mismatched = [
+    ...scenarios.filter((s) => s.quantity !== quantity).map((s) => s.id),
+    ...estimators.filter((e) => e.estimator.quantity !== quantity).map((e) => e.spec),
+  ];
+  if (mismatched.length)
+    throw new UsageError(
+      `${source}: ${mismatched[0]} is not a ${quantity} ${scenarios.some((s) => s.id === mismatched[0]) ? 'scenario' : 'estimator'}; the plan's quantity is ${quantity}`,
+    );
   const sampleSizes = [...new Set(input.sampleSizes ?? DEFAULT_SAMPLE_SIZES)].sort((a, b) => a - b);
   let robustness: RobustnessPlan | null = null;
   if (input.robustness) {
@@ -294,7 +307,9 @@ export function planFingerprint(plan: Plan, code: PlanCode = planCode(plan)): st
 export function codeDifference(made: PlanCode, now: PlanCode): string | null {
   const reasons: string[] = [];
   if (made.hhat.version !== now.hhat.version || made.hhat.build !== now.hhat.build) {
-    reasons.push(`it was made by hhat ${made.hhat.version} (build ${made.hhat.build.slice(0, 12)}) and this is hhat ${now.hhat.version} (build ${now.hhat.build.slice(0, 12)})`);
+    reasons.push(
+      `it was made by hhat ${made.hhat.version} (build ${made.hhat.build.slice(0, 12)}) and this is hhat ${now.hhat.version} (build ${now.hhat.build.slice(0, 12)})`,
+    );
   }
   // Checkpoints written before dependencies were recorded have none: that is a difference too.
   const then = made.hhat.dependencies ?? [];
@@ -307,7 +322,8 @@ export function codeDifference(made: PlanCode, now: PlanCode): string | null {
   for (const m of now.modules) {
     const was = before.get(m.path);
     if (was === undefined) reasons.push(`module ${m.path} was not in it`);
-    else if (was !== m.digest) reasons.push(`module ${m.path} or a file it imports changed since (digest ${was.slice(0, 12)} then, ${m.digest.slice(0, 12)} now)`);
+    else if (was !== m.digest)
+      reasons.push(`module ${m.path} or a file it imports changed since (digest ${was.slice(0, 12)} then, ${m.digest.slice(0, 12)} now)`);
   }
   for (const path of before.keys()) if (!now.modules.some((m) => m.path === path)) reasons.push(`it used module ${path}, which this run does not`);
   return reasons.length ? reasons.join('; ') : null;

@@ -11,10 +11,7 @@ export interface WorkerJob {
   skip: { series: number; replicate: number }[];
 }
 
-export type WorkerMessage =
-  | { kind: 'ready' }
-  | { kind: 'replicate'; unit: number; result: ReplicateResult }
-  | { kind: 'unit-done'; unit: number };
+export type WorkerMessage = { kind: 'ready' } | { kind: 'replicate'; unit: number; result: ReplicateResult } | { kind: 'unit-done'; unit: number };
 
 /**
  * slots: [running series or −1, its replicate, blamed series or −1, its replicate, its unit];

@@ -128,7 +128,13 @@ function onDeath(run: Supervisor, slot: Slot, reason: string): void {
   if (!slot.ready) {
     // The first workers fail to start on what the user gave (a module that does not load); a replacement
     // for a worker that died, after others started fine, fails on the machine (memory, threads).
-    finish(run, false, run.everReady ? new EnvironmentError(`a replacement worker thread could not start: ${reason}`) : new UsageError(`a worker thread could not start: ${reason}`));
+    finish(
+      run,
+      false,
+      run.everReady
+        ? new EnvironmentError(`a replacement worker thread could not start: ${reason}`)
+        : new UsageError(`a worker thread could not start: ${reason}`),
+    );
     return;
   }
   const job = slot.job;
@@ -137,7 +143,13 @@ function onDeath(run: Supervisor, slot: Slot, reason: string): void {
     const unit = job.unit;
     chargeFailures(job, failedEstimates(run, slot, job, reason), reason);
     if (job.deaths > unit.series.length * (unit.repEnd - unit.repStart) + 1) {
-      finish(run, false, new EnvironmentError(`worker threads kept dying on the draws of ${run.plan.scenarios[unit.scenario]} at n = ${unit.n} (last: ${reason}); the finished units are kept in the checkpoint`));
+      finish(
+        run,
+        false,
+        new EnvironmentError(
+          `worker threads kept dying on the draws of ${run.plan.scenarios[unit.scenario]} at n = ${unit.n} (last: ${reason}); the finished units are kept in the checkpoint`,
+        ),
+      );
       return;
     }
     run.pending.unshift(job);

@@ -75,7 +75,10 @@ export function shardUnits(units: Unit[], shard?: Shard): number[] {
   const all = units.map((u) => u.index);
   if (!shard) return all;
   const byCost = [...units].sort((a, b) => b.cost - a.cost || a.index - b.index);
-  return byCost.filter((_, i) => i % shard.count === shard.index - 1).map((u) => u.index).sort((a, b) => a - b);
+  return byCost
+    .filter((_, i) => i % shard.count === shard.index - 1)
+    .map((u) => u.index)
+    .sort((a, b) => a - b);
 }
 
 /** Version 2 names the code that wrote the checkpoint, so a resume can say why it refuses to mix. */
@@ -140,7 +143,11 @@ function readCheckpointLines(path: string): string[] {
     const bytes = readFileSync(path);
     const end = bytes.lastIndexOf(0x0a) + 1;
     if (end < bytes.length) truncateSync(path, end);
-    return bytes.subarray(0, end).toString('utf8').split('\n').filter((l) => l.trim() !== '');
+    return bytes
+      .subarray(0, end)
+      .toString('utf8')
+      .split('\n')
+      .filter((l) => l.trim() !== '');
   } catch (error) {
     throw new EnvironmentError(describeFileError(error, 'read the checkpoint', path));
   }
@@ -160,12 +167,16 @@ function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null, 
   }
   if (header.kind !== 'hhat-checkpoint') throw new UsageError(`${path} is not an hhat checkpoint; delete it or choose another --out`);
   if (header.version !== 2) {
-    throw new UsageError(`${path} was written by an older hhat (checkpoint version ${String(header.version)}), whose estimates must not be mixed with this version's; delete it to start over`);
+    throw new UsageError(
+      `${path} was written by an older hhat (checkpoint version ${String(header.version)}), whose estimates must not be mixed with this version's; delete it to start over`,
+    );
   }
   if (header.fingerprint !== fingerprint || !sameShard(header.shard, shard)) {
     const difference = codeDifference(header.code, code);
     if (difference) {
-      throw new UsageError(`${path} cannot be resumed: ${difference}; resuming would mix estimates of two versions of the code. Delete it to start over with this code, or resume with the code that made it`);
+      throw new UsageError(
+        `${path} cannot be resumed: ${difference}; resuming would mix estimates of two versions of the code. Delete it to start over with this code, or resume with the code that made it`,
+      );
     }
     throw new UsageError(`${path} belongs to a different plan or shard; run without --resume after deleting it, or resume with the plan that made it`);
   }

@@ -32,7 +32,10 @@ export function shardFromEnvironment(env: NodeJS.ProcessEnv, explicitCount?: num
   const k8sIndex = integer('JOB_COMPLETION_INDEX', env.JOB_COMPLETION_INDEX);
   if (k8sIndex !== undefined) {
     const count = explicitCount ?? integer('HHAT_SHARD_COUNT', env.HHAT_SHARD_COUNT);
-    if (count === undefined) throw new UsageError('--shard auto: JOB_COMPLETION_INDEX is set but the count is not; set HHAT_SHARD_COUNT to the Job\'s completions, or use --shard auto/N');
+    if (count === undefined)
+      throw new UsageError(
+        "--shard auto: JOB_COMPLETION_INDEX is set but the count is not; set HHAT_SHARD_COUNT to the Job's completions, or use --shard auto/N",
+      );
     return checked(k8sIndex + 1, count, 'from JOB_COMPLETION_INDEX + 1');
   }
   const index = integer('HHAT_SHARD_INDEX', env.HHAT_SHARD_INDEX);

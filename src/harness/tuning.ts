@@ -35,7 +35,8 @@ export function tuningGrid(base: ConfiguredEstimator, baseIndex: number, n: numb
         return { base: baseIndex, setting, value, configured: configureEstimator(estimator.id, { ...base.settings, [setting]: value }) };
       } catch (error) {
         // A grid is part of the estimator's declaration: a value it does not accept is the declaration's mistake.
-        if (error instanceof UsageError) throw new UsageError(`${estimator.id}: its tuning grid at n = ${n} (from ${base.spec}) has a value that is not allowed: ${error.message}`);
+        if (error instanceof UsageError)
+          throw new UsageError(`${estimator.id}: its tuning grid at n = ${n} (from ${base.spec}) has a value that is not allowed: ${error.message}`);
         throw error;
       }
     }),

@@ -88,7 +88,10 @@ export function planUnits(context: WorkContext): { units: Unit[]; skipped: Skip[
       else runnable.push(e);
     });
     if (!runnable.length) return;
-    const tuned = tuning.map((t, i) => ({ t, i })).filter(({ t }) => runnable.includes(t.base)).map(({ i }) => estimators.length + i);
+    const tuned = tuning
+      .map((t, i) => ({ t, i }))
+      .filter(({ t }) => runnable.includes(t.base))
+      .map(({ i }) => estimators.length + i);
     const perturbed: Series[] = [];
     context.perturbations.forEach((p, k) => {
       const prepared = context.prepared[s][k];
@@ -164,7 +167,11 @@ export function executeReplicate(unit: Unit, context: WorkContext, replicate: nu
     let sample: Sample = original;
     if (v > 0) {
       // Perturb a deep copy: the Q sample of a divergence is perturbed too, and the original must stay intact.
-      sample = { ...original, data: Float64Array.from(original.data), ...(original.q ? { q: { ...original.q, data: Float64Array.from(original.q.data) } } : {}) };
+      sample = {
+        ...original,
+        data: Float64Array.from(original.data),
+        ...(original.q ? { q: { ...original.q, data: Float64Array.from(original.q.data) } } : {}),
+      };
       (context.prepared[unit.scenario][v - 1] as PreparedPerturbation).apply(sample, replicate, plan.seed);
     }
     unit.series.forEach((series, k) => {

@@ -20,7 +20,7 @@ const SIXTY_FOUR_OVER_LN2 = 64 / Math.LN2;
  * which keeps r accurate even at k ≈ 65 000; the double nearest ln 2 / 64 alone would not (k times its error
  * reaches 5e-14).
  */
-const LN2_64_HIGH = 6.93147180369123816490e-1 / 64;
+const LN2_64_HIGH = 6.9314718036912381649e-1 / 64;
 const LN2_64_LOW = 1.90821492927058770002e-10 / 64;
 /** 2^(j/64), j = 0..63. */
 const TABLE = Float64Array.from({ length: 64 }, (_, j) => 2 ** (j / 64));

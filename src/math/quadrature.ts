@@ -158,15 +158,44 @@ export function integrate(f: (x: number) => number, a: number, b: number, option
     const mid = a + (b - a) / 2;
     const upper = options.upperDistance;
     const lowerPart = adaptive(f, refine([a, ...inside.filter((x) => x < mid), mid], 4), options);
-    const upperCuts = [0, ...inside.filter((x) => x > mid).map((x) => b - x).reverse(), b - mid];
+    const upperCuts = [
+      0,
+      ...inside
+        .filter((x) => x > mid)
+        .map((x) => b - x)
+        .reverse(),
+      b - mid,
+    ];
     const upperPart = adaptive(upper, refine(upperCuts, 4), options);
     return combine(lowerPart, upperPart);
   }
-  if (Number.isFinite(a)) return halfLine(f, a, 1, inside.map((x) => x - a), options);
+  if (Number.isFinite(a))
+    return halfLine(
+      f,
+      a,
+      1,
+      inside.map((x) => x - a),
+      options,
+    );
   if (Number.isFinite(b)) return halfLine(f, b, -1, inside.map((x) => b - x).reverse(), options);
   const centre = inside.length ? inside[Math.floor(inside.length / 2)] : 0;
-  const right = halfLine(f, centre, 1, inside.filter((x) => x > centre).map((x) => x - centre), options);
-  const left = halfLine(f, centre, -1, inside.filter((x) => x < centre).map((x) => centre - x).reverse(), options);
+  const right = halfLine(
+    f,
+    centre,
+    1,
+    inside.filter((x) => x > centre).map((x) => x - centre),
+    options,
+  );
+  const left = halfLine(
+    f,
+    centre,
+    -1,
+    inside
+      .filter((x) => x < centre)
+      .map((x) => centre - x)
+      .reverse(),
+    options,
+  );
   return combine(left, right);
 }
 

@@ -41,15 +41,21 @@ function failureCell(s: EstimatorSummary): string {
 
 export function renderSituationAdvice(advice: SituationAdvice): string {
   const lines: string[] = [];
-  const described = [advice.tails ? `${advice.tails} tails` : 'any tails', advice.support ? `${advice.support === 'half' ? 'half-bounded' : advice.support} support` : 'any support'];
+  const described = [
+    advice.tails ? `${advice.tails} tails` : 'any tails',
+    advice.support ? `${advice.support === 'half' ? 'half-bounded' : advice.support} support` : 'any support',
+  ];
   lines.push(`Advice for n = ${advice.n}, d = ${advice.dim} (${described.join(', ')})`);
   if (!advice.estimators.length) {
     lines.push(advice.recommendation.reason, `Done in ${seconds(advice.seconds)} (budget ${advice.budgetSeconds} s).`);
     return lines.join('\n');
   }
   lines.push(advice.match.note);
-  for (const s of advice.match.scenarios) lines.push(`  ${s.id}  (d = ${s.dim}, ${s.tails} tails, ${s.support === 'half' ? 'half-bounded' : s.support} support)`);
-  lines.push(`${advice.benchmark.replicates} replicates per scenario at n = ${advice.n}, ${seconds(advice.benchmark.seconds)} on ${advice.benchmark.workers} worker${advice.benchmark.workers === 1 ? '' : 's'}.`);
+  for (const s of advice.match.scenarios)
+    lines.push(`  ${s.id}  (d = ${s.dim}, ${s.tails} tails, ${s.support === 'half' ? 'half-bounded' : s.support} support)`);
+  lines.push(
+    `${advice.benchmark.replicates} replicates per scenario at n = ${advice.n}, ${seconds(advice.benchmark.seconds)} on ${advice.benchmark.workers} worker${advice.benchmark.workers === 1 ? '' : 's'}.`,
+  );
   lines.push('');
   const count = advice.match.scenarios.length;
   const rows = advice.estimators.map((s, i) => [
@@ -66,7 +72,18 @@ export function renderSituationAdvice(advice: SituationAdvice): string {
   ]);
   lines.push(
     renderTable(
-      ['#', 'estimator', 'mean RMSE ± SE (nats)', count > 1 ? 'RMSE range' : 'RMSE', 'best on', 'failures', 'ms/estimate', 'rescale', 'quantize', 'outliers 1%'],
+      [
+        '#',
+        'estimator',
+        'mean RMSE ± SE (nats)',
+        count > 1 ? 'RMSE range' : 'RMSE',
+        'best on',
+        'failures',
+        'ms/estimate',
+        'rescale',
+        'quantize',
+        'outliers 1%',
+      ],
       rows,
       { align: ['right', 'left', 'right', 'right', 'right', 'right', 'right', 'right', 'right', 'right'] },
     ),
@@ -102,14 +119,25 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
   const names = profile.columns.map((c) => c.name);
   lines.push(`${file}: n = ${advice.fileRows}, d = ${advice.dim}${names.length ? ` (${names.join(', ')})` : ''}`);
   if (advice.subsample) {
-    lines.push(`Advice on a seeded uniform subsample of ${advice.subsample.rows} of the ${advice.subsample.of} rows (seed ${advice.subsample.seed}): a benchmark at n = ${advice.subsample.of} does not fit the budget (see the first note).`);
+    lines.push(
+      `Advice on a seeded uniform subsample of ${advice.subsample.rows} of the ${advice.subsample.of} rows (seed ${advice.subsample.seed}): a benchmark at n = ${advice.subsample.of} does not fit the budget (see the first note).`,
+    );
   }
   lines.push('');
   lines.push('Profile');
   lines.push(
     renderTable(
       ['column', 'mean', 'SD', 'skewness', 'tails (Hill)', 'lower end', 'upper end', 'ties'],
-      profile.columns.map((c) => [c.name, num(c.mean, 4), num(c.sd, 3), num(c.skewness, 2), tailCell(c), endCell(c.edges?.lower), endCell(c.edges?.upper), tiesCell(c)]),
+      profile.columns.map((c) => [
+        c.name,
+        num(c.mean, 4),
+        num(c.sd, 3),
+        num(c.skewness, 2),
+        tailCell(c),
+        endCell(c.edges?.lower),
+        endCell(c.edges?.upper),
+        tiesCell(c),
+      ]),
       { align: ['left', 'right', 'right', 'right', 'left', 'left', 'left', 'left'] },
     ),
   );
@@ -124,7 +152,9 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
     for (let a = 0; a < profile.dim; a++) for (let b = a + 1; b < profile.dim; b++) pairs.push(`${names[a]}–${names[b]} ${num(profile.correlation[a][b], 2)}`);
     lines.push(`Correlation: ${pairs.join(', ')}`);
   }
-  lines.push(`Reads as: ${profile.tails} tails, ${profile.support === 'half' ? 'half-bounded' : profile.support} support, ${profile.discreteLooking ? 'many ties (discrete-looking)' : profile.repeats.repeatedRows ? `${profile.repeats.repeatedRows} repeated rows` : 'no repeated rows'}.`);
+  lines.push(
+    `Reads as: ${profile.tails} tails, ${profile.support === 'half' ? 'half-bounded' : profile.support} support, ${profile.discreteLooking ? 'many ties (discrete-looking)' : profile.repeats.repeatedRows ? `${profile.repeats.repeatedRows} repeated rows` : 'no repeated rows'}.`,
+  );
   lines.push('');
   const bicList = lookalike.bic.map((b) => `${b.components === lookalike.chosen ? '*' : ''}${b.components}: ${num(b.bic, 6)}`).join(', ');
   lines.push(
@@ -132,14 +162,24 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
   );
   lines.push(`  its entropy: ${num(lookalike.truth.value, 6)} nats (${lookalike.truth.source})`);
   lines.push('');
-  lines.push(`Expected error at n = ${advice.n}, from ${advice.benchmark.replicates} look-alike samples of that size (${seconds(advice.benchmark.seconds)} on ${advice.benchmark.workers} worker${advice.benchmark.workers === 1 ? '' : 's'}):`);
+  lines.push(
+    `Expected error at n = ${advice.n}, from ${advice.benchmark.replicates} look-alike samples of that size (${seconds(advice.benchmark.seconds)} on ${advice.benchmark.workers} worker${advice.benchmark.workers === 1 ? '' : 's'}):`,
+  );
   const user = new Map(advice.userEstimates.map((u) => [u.estimator, u]));
   lines.push(
     renderTable(
       ['#', 'estimator', 'bias ± SE', 'RMSE ± SE', 'failures', 'ms/estimate', 'your data (nats)'],
       advice.benchmark.estimators.map((s, i) => {
         const u = user.get(s.estimator);
-        return [String(i + 1), s.label, pm(s.meanBias.value, s.meanBias.se), pm(s.meanRmse.value, s.meanRmse.se), failureCell(s), msCell(s.msPerEstimate), u?.value === null || u === undefined ? 'fails' : num(u.value, 5)];
+        return [
+          String(i + 1),
+          s.label,
+          pm(s.meanBias.value, s.meanBias.se),
+          pm(s.meanRmse.value, s.meanRmse.se),
+          failureCell(s),
+          msCell(s.msPerEstimate),
+          u?.value === null || u === undefined ? 'fails' : num(u.value, 5),
+        ];
       }),
       { align: ['right', 'left', 'right', 'right', 'right', 'right', 'right'] },
     ),
@@ -162,7 +202,9 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
     );
     lines.push(`Bias-corrected = estimate − the look-alike bias (${pm(e.bias.value, e.bias.se)} nats); it is only as good as the look-alike's likeness.`);
     if (e.interval) {
-      lines.push(`Interval: ${e.interval.method}; ${e.interval.resamples} resamples, whose median estimate sat ${num(e.interval.shift, 2)} nats from the estimate (the shift removed).`);
+      lines.push(
+        `Interval: ${e.interval.method}; ${e.interval.resamples} resamples, whose median estimate sat ${num(e.interval.shift, 2)} nats from the estimate (the shift removed).`,
+      );
     }
   }
   const all = advice.allRows;
@@ -175,7 +217,9 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
     );
   }
   for (const w of advice.warnings) lines.push(`Note: ${w}`);
-  const stages = Object.entries(advice.timings).map(([k, v]) => `${k} ${v.toFixed(1)}`).join(', ');
+  const stages = Object.entries(advice.timings)
+    .map(([k, v]) => `${k} ${v.toFixed(1)}`)
+    .join(', ');
   lines.push(`Done in ${seconds(advice.seconds)} (budget ${advice.budgetSeconds} s; ${stages}).`);
   return lines.join('\n');
 }

@@ -4,7 +4,17 @@
  */
 import { formatValue, renderTable } from '../core/format.js';
 import { toJson } from '../analysis/results.js';
-import { failingCells, STATUS_ORDER, WILD_FACTOR, type CellComparison, type CellRef, type CellStatus, type Comparison, type FailOn, type RunSummary } from '../analysis/compare.js';
+import {
+  failingCells,
+  STATUS_ORDER,
+  WILD_FACTOR,
+  type CellComparison,
+  type CellRef,
+  type CellStatus,
+  type Comparison,
+  type FailOn,
+  type RunSummary,
+} from '../analysis/compare.js';
 
 const STATUS_LABEL: Record<CellStatus, string> = {
   worse: 'worse',
@@ -76,12 +86,26 @@ function ordered(cells: CellComparison[]): CellComparison[] {
   );
 }
 
-const HEAD = ['status', 'scenario', 'estimator', 'n', 'RMSE base → new', 'ΔRMSE ± SE', 'Δbias ± SE', 'ΔSD ± SE', 'Δ squared error [CI]', 'p', 'draws worse/better', 'failures'];
+const HEAD = [
+  'status',
+  'scenario',
+  'estimator',
+  'n',
+  'RMSE base → new',
+  'ΔRMSE ± SE',
+  'Δbias ± SE',
+  'ΔSD ± SE',
+  'Δ squared error [CI]',
+  'p',
+  'draws worse/better',
+  'failures',
+];
 
 function failuresText(c: CellComparison): string {
   const f = c.failures;
   if (f.base === f.next && !f.onlyNext) return String(f.next);
-  const detail = f.onlyNext !== null ? ` (${f.onlyNext} new, ${f.onlyBase} fixed${f.p !== null ? `, p ${formatP(f.p)}` : ''})` : f.p !== null ? ` (p ${formatP(f.p)})` : '';
+  const detail =
+    f.onlyNext !== null ? ` (${f.onlyNext} new, ${f.onlyBase} fixed${f.p !== null ? `, p ${formatP(f.p)}` : ''})` : f.p !== null ? ` (p ${formatP(f.p)})` : '';
   return `${f.base} → ${f.next}${detail}`;
 }
 
@@ -144,12 +168,7 @@ function refLines(title: string, refs: CellRef[]): string[] {
 
 /** The terminal report: what was compared, whether paired, the counts, then a table of the changed cells. */
 export function formatComparisonText(comparison: Comparison, labels = { base: 'base', next: 'new' }): string {
-  const lines = [
-    `${labels.base}: ${runLine(comparison.base)}`,
-    `${labels.next}: ${runLine(comparison.next)}`,
-    pairingLine(comparison),
-    countsLine(comparison),
-  ];
+  const lines = [`${labels.base}: ${runLine(comparison.base)}`, `${labels.next}: ${runLine(comparison.next)}`, pairingLine(comparison), countsLine(comparison)];
   const changed = ordered(comparison.cells).filter((c) => c.status !== 'unchanged');
   if (changed.length) {
     const pct = intervalLevel(comparison);
@@ -187,7 +206,10 @@ function markdownTable(head: string[], rows: string[][]): string[] {
 /** Markdown for a pull-request comment: a summary line, the changed cells in a table, the unchanged folded away. */
 export function formatComparisonMarkdown(comparison: Comparison): string {
   const { counts } = comparison;
-  const lines = [`**hhat compare: ${countsLine(comparison)}** (${comparison.pairing.paired ? 'paired' : 'unpaired'}, tolerance ${comparison.tolerance.text})`, ''];
+  const lines = [
+    `**hhat compare: ${countsLine(comparison)}** (${comparison.pairing.paired ? 'paired' : 'unpaired'}, tolerance ${comparison.tolerance.text})`,
+    '',
+  ];
   lines.push(`${pairingLine(comparison)} Base: ${md(runLine(comparison.base))}. New: ${md(runLine(comparison.next))}.`, '');
   const sorted = ordered(comparison.cells);
   const changed = sorted.filter((c) => c.status !== 'unchanged');
@@ -208,10 +230,18 @@ export function formatComparisonMarkdown(comparison: Comparison): string {
   const unchanged = sorted.filter((c) => c.status === 'unchanged');
   if (unchanged.length) {
     lines.push(`<details><summary>${counts.unchanged} unchanged cell${counts.unchanged === 1 ? '' : 's'}</summary>`, '');
-    lines.push(...markdownTable(['scenario', 'estimator', 'n', 'RMSE'], unchanged.map((c) => [code(cellLabel(c)), code(c.estimator), String(c.n), md(formatValue(c.rmse.next.value, 4))])));
+    lines.push(
+      ...markdownTable(
+        ['scenario', 'estimator', 'n', 'RMSE'],
+        unchanged.map((c) => [code(cellLabel(c)), code(c.estimator), String(c.n), md(formatValue(c.rmse.next.value, 4))]),
+      ),
+    );
     lines.push('', '</details>', '');
   }
-  for (const [title, refs] of [['Only in the base run', comparison.removed], ['Only in the new run', comparison.added]] as const) {
+  for (const [title, refs] of [
+    ['Only in the base run', comparison.removed],
+    ['Only in the new run', comparison.added],
+  ] as const) {
     if (refs.length) lines.push(`${title}: ${refs.map((r) => `${code(cellLabel(r))} ${code(r.estimator)} n=${r.n}`).join(', ')}`, '');
   }
   lines.push(`<sub>${md(policyLine(comparison))}</sub>`);
@@ -226,13 +256,7 @@ export function formatComparisonJson(comparison: Comparison): string {
 const XML_INVALID = /[^\t\n\r\u0020-\uD7FF\uE000-\uFFFD\u{10000}-\u{10FFFF}]/gu;
 
 export function escapeXml(text: string): string {
-  return text
-    .replace(XML_INVALID, '')
-    .replace(/&/g, '&amp;')
-    .replace(/</g, '&lt;')
-    .replace(/>/g, '&gt;')
-    .replace(/"/g, '&quot;')
-    .replace(/'/g, '&apos;');
+  return text.replace(XML_INVALID, '').replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/"/g, '&quot;').replace(/'/g, '&apos;');
 }
 
 function attributes(values: Record<string, string | number>): string {
@@ -254,9 +278,13 @@ function cellDetails(c: CellComparison): string {
     `SD ${formatValue(c.sd.base.value)} → ${formatValue(c.sd.next.value)} (${plusMinus(c.sd.change, c.sd.changeSe)})`,
     `failures ${failuresText(c)} of ${c.replicates.next}`,
   ];
-  if (c.sign) lines.push(`sign test on squared-error differences: ${c.sign.above} replicates worse, ${c.sign.below} better, ${c.sign.ties} equal, p = ${formatP(c.sign.p)}; median change of |error| ${signed(c.medianChange ?? NaN, 3)} nats`);
+  if (c.sign)
+    lines.push(
+      `sign test on squared-error differences: ${c.sign.above} replicates worse, ${c.sign.below} better, ${c.sign.ties} equal, p = ${formatP(c.sign.p)}; median change of |error| ${signed(c.medianChange ?? NaN, 3)} nats`,
+    );
   for (const w of c.wild) lines.push(`wild estimate at replicate ${w.replicate}: ${w.next} (base ${w.base ?? 'failed'})`);
-  if (c.adjustedP !== null) lines.push(`cell p adjusted (Bonferroni over its tests, Holm over the changed cells): ${formatP(c.adjustedP)}; each test held to ${formatP(c.testLevel)}`);
+  if (c.adjustedP !== null)
+    lines.push(`cell p adjusted (Bonferroni over its tests, Holm over the changed cells): ${formatP(c.adjustedP)}; each test held to ${formatP(c.testLevel)}`);
   if (t) {
     lines.push(
       `${t.kind === 'paired-t' ? 'paired t test' : "Welch's t test"} on squared errors: difference ${signed(t.difference, 4)}, SE ${formatValue(t.se, 3)}, ` +
@@ -298,7 +326,11 @@ export function formatComparisonJunit(comparison: Comparison, failOn: FailOn = '
     const open = `    <testcase${attributes({ classname: cellLabel(c), name: testcaseName(c), time: 0 })}>`;
     const details = escapeXml(cellDetails(c));
     if (failing.has(c)) {
-      out.push(open, `      <failure${attributes({ type: c.status, message: `${STATUS_LABEL[c.status]}: ${c.reasons[0]}` })}>${details}</failure>`, '    </testcase>');
+      out.push(
+        open,
+        `      <failure${attributes({ type: c.status, message: `${STATUS_LABEL[c.status]}: ${c.reasons[0]}` })}>${details}</failure>`,
+        '    </testcase>',
+      );
     } else {
       out.push(open, `      <system-out>${STATUS_LABEL[c.status]}: ${details}</system-out>`, '    </testcase>');
     }

@@ -25,7 +25,11 @@ export function formatConformanceText(reports: readonly ConformanceReport[]): st
   const width = Math.max(...reports.flatMap((r) => r.checks.map((c) => c.check.length)));
   const blocks = reports.map((report) => {
     const failed = count(report, 'fail');
-    const tally = [`${count(report, 'pass')} pass`, ...(failed ? [`${failed} FAIL`] : []), ...(count(report, 'not-applicable') ? [`${count(report, 'not-applicable')} not applicable`] : [])];
+    const tally = [
+      `${count(report, 'pass')} pass`,
+      ...(failed ? [`${failed} FAIL`] : []),
+      ...(count(report, 'not-applicable') ? [`${count(report, 'not-applicable')} not applicable`] : []),
+    ];
     const heading = `${report.spec} (${report.quantity}): ${failed ? 'fails' : 'passes'}: ${tally.join(', ')} (${(report.milliseconds / 1000).toFixed(1)} s)`;
     const lines = report.checks.map((c) => `  ${STATUS_WORD[c.status].padEnd(4)}  ${c.check.padEnd(width)}  ${c.evidence}`);
     return [heading, ...lines].join('\n');
@@ -35,7 +39,15 @@ export function formatConformanceText(reports: readonly ConformanceReport[]): st
 
 /** Estimator ids with the checks they failed, e.g. "my-knn: row-order, known-value". */
 export function failedChecks(reports: readonly ConformanceReport[]): string[] {
-  return reports.filter((r) => !r.passed).map((r) => `${r.estimator}: ${r.checks.filter((c) => c.status === 'fail').map((c) => c.check).join(', ')}`);
+  return reports
+    .filter((r) => !r.passed)
+    .map(
+      (r) =>
+        `${r.estimator}: ${r.checks
+          .filter((c) => c.status === 'fail')
+          .map((c) => c.check)
+          .join(', ')}`,
+    );
 }
 
 export function formatConformanceJson(reports: readonly ConformanceReport[], module: string | null): string {

@@ -10,7 +10,10 @@ function duration(ms: number): string {
 /**
  * A redrawn bar on a terminal; plain lines every `intervalMs` otherwise (CI logs, files), so logs stay short.
  */
-export function progressReporter(stream: NodeJS.WriteStream | { isTTY?: boolean; write(text: string): unknown }, intervalMs = 10000): {
+export function progressReporter(
+  stream: NodeJS.WriteStream | { isTTY?: boolean; write(text: string): unknown },
+  intervalMs = 10000,
+): {
   update(p: Progress): void;
   done(): void;
 } {

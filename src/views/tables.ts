@@ -47,11 +47,9 @@ export function scenarioTables(run: RunFile, base: Base): string {
     const heading = `${info.id}  (d=${info.dim}, ${info.support} support, ${info.tails} tails; truth ${formatValue(toBase(info.truth, base), 7)} ${base})`;
     out.push(heading);
     out.push(
-      renderTable(
-        ['estimator', ...sizes.map((n) => `RMSE ± SE  rank, n=${n}`), `bias ± SE, n=${largest}`, 'RMSE slope vs n'],
-        rows,
-        { align: ['left', ...sizes.map(() => 'right' as const), 'right', 'right'] },
-      ),
+      renderTable(['estimator', ...sizes.map((n) => `RMSE ± SE  rank, n=${n}`), `bias ± SE, n=${largest}`, 'RMSE slope vs n'], rows, {
+        align: ['left', ...sizes.map(() => 'right' as const), 'right', 'right'],
+      }),
     );
     const note = wideBestSetNote(
       run.rankings.filter((r) => r.scenario === info.id && r.perturbation === null),
@@ -78,9 +76,13 @@ export function overallTable(run: RunFile): string {
   rows.sort((a, b) => a.mean - b.mean || a.label.localeCompare(b.label));
   return [
     'Average rank (1 = best) per dimension and tail class, over scenarios and sample sizes; in brackets the cells averaged and how many of them it failed (ranked last). n/a: cannot run there by design.',
-    renderTable(['estimator', ...groups, 'all'], rows.map((r) => [r.label, ...r.cells, r.all]), {
-      align: ['left', ...groups.map(() => 'right' as const), 'right'],
-    }),
+    renderTable(
+      ['estimator', ...groups, 'all'],
+      rows.map((r) => [r.label, ...r.cells, r.all]),
+      {
+        align: ['left', ...groups.map(() => 'right' as const), 'right'],
+      },
+    ),
   ].join('\n');
 }
 
@@ -104,10 +106,34 @@ export function detailTable(run: RunFile, base: Base): string {
 
 /** The score table as CSV (nats or bits), one row per cell. */
 export function scoresCsv(run: RunFile, base: Base): string {
-  const header = ['scenario', 'estimator', 'n', 'role', 'perturbation', 'truth', 'replicates', 'failures', 'mean', 'mean_se', 'bias', 'bias_se', 'sd', 'sd_se', 'rmse', 'rmse_se', 'mae', 'mae_se', 'efficiency', 'efficiency_se', 'ms_per_estimate', 'unit'];
+  const header = [
+    'scenario',
+    'estimator',
+    'n',
+    'role',
+    'perturbation',
+    'truth',
+    'replicates',
+    'failures',
+    'mean',
+    'mean_se',
+    'bias',
+    'bias_se',
+    'sd',
+    'sd_se',
+    'rmse',
+    'rmse_se',
+    'mae',
+    'mae_se',
+    'efficiency',
+    'efficiency_se',
+    'ms_per_estimate',
+    'unit',
+  ];
   const truth = new Map(run.scenarios.map((s) => [s.id, s.truth]));
   const q = (s: string) => (/[",\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s);
-  const num = (x: number | undefined | null, convert = true) => (x === undefined || x === null || !Number.isFinite(x) ? '' : String(convert ? toBase(x, base) : x));
+  const num = (x: number | undefined | null, convert = true) =>
+    x === undefined || x === null || !Number.isFinite(x) ? '' : String(convert ? toBase(x, base) : x);
   const lines = run.cells.map((c) =>
     [
       q(c.scenario),
@@ -141,7 +167,9 @@ export function scoresCsv(run: RunFile, base: Base): string {
 export function robustnessTable(run: RunFile): string {
   const section = run.robustness;
   if (!section) return '';
-  const columns = ['rescale', 'monotone', 'affine', 'quantize', 'contaminate', 'tuning'].filter((c) => section.table.some((r) => r.columns[c]?.verdict !== 'n/a'));
+  const columns = ['rescale', 'monotone', 'affine', 'quantize', 'contaminate', 'tuning'].filter((c) =>
+    section.table.some((r) => r.columns[c]?.verdict !== 'n/a'),
+  );
   const finest = smallestQuantizeStep(section);
   const rows = section.table.map((row) => [
     estimatorLabel(row.estimator),

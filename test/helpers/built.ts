@@ -23,7 +23,9 @@ export function ensureBuilt(sources: string[]): void {
   if (sources.every(isFresh)) return;
   // tsc writes its output even when other files of the tree fail to type-check (the type check is a
   // separate step of npm test), so the outcome is judged by the files this test needs, not by tsc's status.
-  const tsc = spawnSync(process.execPath, [join(root, 'node_modules', 'typescript', 'bin', 'tsc'), '-p', join(root, 'tsconfig.build.json')], { encoding: 'utf8' });
+  const tsc = spawnSync(process.execPath, [join(root, 'node_modules', 'typescript', 'bin', 'tsc'), '-p', join(root, 'tsconfig.build.json')], {
+    encoding: 'utf8',
+  });
   const stale = sources.filter((s) => !isFresh(s));
   if (stale.length) throw new Error(`dist/ is stale for ${stale.join(', ')} and the build did not refresh it:\n${tsc.stdout}${tsc.stderr}`);
 }

@@ -23,7 +23,27 @@ const wanted = option('--interruptions', 24);
 const random = rngFromSeed(`kill-test ${option('--seed', 7)}`);
 const bin = resolve('bin/hhat.js');
 const dir = mkdtempSync(join(tmpdir(), 'hhat-kill-'));
-const plan = ['--scenario', 'normal', '--scenario', 'exponential', '--scenario', 'gaussian:dim=2', '--estimator', 'kozachenko-leonenko', '--estimator', 'histogram', '--estimator', 'kernel', '--estimator', 'gaussian', '--n', '200,2000', '--replicates', '60', '--quiet'];
+const plan = [
+  '--scenario',
+  'normal',
+  '--scenario',
+  'exponential',
+  '--scenario',
+  'gaussian:dim=2',
+  '--estimator',
+  'kozachenko-leonenko',
+  '--estimator',
+  'histogram',
+  '--estimator',
+  'kernel',
+  '--estimator',
+  'gaussian',
+  '--n',
+  '200,2000',
+  '--replicates',
+  '60',
+  '--quiet',
+];
 
 function estimates(path: string): string {
   const run = JSON.parse(readFileSync(path, 'utf8')) as { cells: { scenario: string; estimator: string; n: number; estimates: unknown }[] };
@@ -36,9 +56,18 @@ function fail(message: string): never {
 }
 
 /** Starts a run; resolves with its exit status, after `signal` at `afterMs` (if it is still running then). */
-function runAndInterrupt(out: string, resume: boolean, signal: NodeJS.Signals | null, afterMs: number, env: NodeJS.ProcessEnv = {}): Promise<{ code: number | null; signal: NodeJS.Signals | null; interrupted: boolean }> {
+function runAndInterrupt(
+  out: string,
+  resume: boolean,
+  signal: NodeJS.Signals | null,
+  afterMs: number,
+  env: NodeJS.ProcessEnv = {},
+): Promise<{ code: number | null; signal: NodeJS.Signals | null; interrupted: boolean }> {
   return new Promise((done) => {
-    const child = spawn(process.execPath, [bin, 'bench', ...plan, '--out', out, ...(resume ? ['--resume'] : [])], { stdio: ['ignore', 'ignore', 'pipe'], env: { ...process.env, ...env } });
+    const child = spawn(process.execPath, [bin, 'bench', ...plan, '--out', out, ...(resume ? ['--resume'] : [])], {
+      stdio: ['ignore', 'ignore', 'pipe'],
+      env: { ...process.env, ...env },
+    });
     let stderr = '';
     child.stderr.on('data', (d) => (stderr += d));
     let interrupted = false;
@@ -90,7 +119,10 @@ while (interruptions < wanted) {
 // A kill inside the final write: hold it between the flushed temporary and the rename, kill it there.
 const out = join(dir, 'final-write.json');
 const runTemporary = /^final-write\.json\.[0-9a-f]{16}\.tmp$/;
-const child = spawn(process.execPath, [bin, 'bench', ...plan, '--out', out], { stdio: 'ignore', env: { ...process.env, HHAT_PAUSE_BEFORE_RENAME_MS: '30000' } });
+const child = spawn(process.execPath, [bin, 'bench', ...plan, '--out', out], {
+  stdio: 'ignore',
+  env: { ...process.env, HHAT_PAUSE_BEFORE_RENAME_MS: '30000' },
+});
 const exited = new Promise((r) => child.once('exit', r));
 const deadline = Date.now() + 180_000;
 // The checkpoint's header is written the same way: wait for the run file's own temporary.
@@ -106,5 +138,7 @@ const resumed = await runAndInterrupt(out, true, null, 0);
 if (resumed.code !== 0 || estimates(out) !== expected) fail('the resume after a kill inside the final write differs from the uninterrupted run');
 if (readdirSync(dir).some((f) => f.endsWith('.tmp'))) fail('the leftover temporary was not removed');
 console.log('kill inside the final write: the resume finished from the checkpoint, identical, no temporary left');
-console.log(`kill test passed: ${interruptions} interruptions (${kills} SIGKILL, ${interruptions - kills} SIGINT) over ${runs} runs, each resumed to the uninterrupted estimates`);
+console.log(
+  `kill test passed: ${interruptions} interruptions (${kills} SIGKILL, ${interruptions - kills} SIGINT) over ${runs} runs, each resumed to the uninterrupted estimates`,
+);
 rmSync(dir, { recursive: true, force: true });

@@ -158,22 +158,30 @@ export async function runTargeted(options: TargetedOptions): Promise<TargetedBen
       perScenario.push((performance.now() - pilotStarted) / 1000);
     }
     if (perScenario.length < scenarios.length) {
-      cuts.push(`${scenarios.length - perScenario.length} of ${scenarios.length} scenarios (${scenarios.slice(perScenario.length).join(', ')}): one replicate of the first ${perScenario.length} already took ${perScenario.reduce((a, b) => a + b, 0).toFixed(1)} s`);
+      cuts.push(
+        `${scenarios.length - perScenario.length} of ${scenarios.length} scenarios (${scenarios.slice(perScenario.length).join(', ')}): one replicate of the first ${perScenario.length} already took ${perScenario.reduce((a, b) => a + b, 0).toFixed(1)} s`,
+      );
       scenarios = scenarios.slice(0, perScenario.length);
     }
     const cost = (count: number, withPerturbations: boolean) =>
       perScenario.slice(0, count).reduce((a, b) => a + b, 0) * OVERHEAD_FACTOR * (1 + (withPerturbations ? perturbations.length : 0));
     // Units are blocks of replicates per scenario; fewer units than workers leave workers idle.
-    const parallel = (count: number, replicates: number) => Math.max(1, Math.min(workers, count * Math.ceil(replicates / replicatesPerUnit(options.n, options.dim ?? 1, replicates))));
-    const fits = (count: number, withPerturbations: boolean, replicates: number) => (replicates * cost(count, withPerturbations)) / parallel(count, replicates) <= remaining() * FIRST_ROUND_SHARE;
+    const parallel = (count: number, replicates: number) =>
+      Math.max(1, Math.min(workers, count * Math.ceil(replicates / replicatesPerUnit(options.n, options.dim ?? 1, replicates))));
+    const fits = (count: number, withPerturbations: boolean, replicates: number) =>
+      (replicates * cost(count, withPerturbations)) / parallel(count, replicates) <= remaining() * FIRST_ROUND_SHARE;
     if (perturbations.length && !fits(scenarios.length, true, minReplicates)) {
-      cuts.push(`the robustness section (${perturbations.join(', ')}): with it, ${minReplicates} replicates would take about ${((minReplicates * cost(scenarios.length, true)) / workers).toFixed(0)} s`);
+      cuts.push(
+        `the robustness section (${perturbations.join(', ')}): with it, ${minReplicates} replicates would take about ${((minReplicates * cost(scenarios.length, true)) / workers).toFixed(0)} s`,
+      );
       perturbations = [];
     }
     let count = scenarios.length;
     while (count > 1 && !fits(count, false, minReplicates)) count--;
     if (count < scenarios.length) {
-      cuts.push(`${scenarios.length - count} more scenario${scenarios.length - count === 1 ? '' : 's'} (${scenarios.slice(count).join(', ')}), to run ${minReplicates} replicates of the rest`);
+      cuts.push(
+        `${scenarios.length - count} more scenario${scenarios.length - count === 1 ? '' : 's'} (${scenarios.slice(count).join(', ')}), to run ${minReplicates} replicates of the rest`,
+      );
       scenarios = scenarios.slice(0, count);
     }
     secondsPerReplicate = cost(scenarios.length, perturbations.length > 0);

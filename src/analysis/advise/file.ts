@@ -151,7 +151,15 @@ const BOOTSTRAP_SLACK = 0.2;
  * more than it gives, so when one of them is chosen its interval may be left out instead, with a note. A
  * fixed function of its arguments, so the same command picks the same rows.
  */
-export function analysisRows(n: number, dim: number, estimators: readonly string[], budgetSeconds: number, workers: number, replicates: number, resamples = 100): number {
+export function analysisRows(
+  n: number,
+  dim: number,
+  estimators: readonly string[],
+  budgetSeconds: number,
+  workers: number,
+  replicates: number,
+  resamples = 100,
+): number {
   const configured = estimators.map((spec) => parseEstimatorSpec(spec));
   const cost = (c: ConfiguredEstimator, m: number): number => predictedSeconds(c, m, dim) ?? 0;
   // Superlinear: doubling the rows more than (say) 2.5-folds the predicted time, at the sizes that matter here.
@@ -197,7 +205,9 @@ function profileWarnings(profile: DataProfile, lookalike: Lookalike, command: st
   }
   const edged = profile.columns.filter((c) => c.edges && (c.edges.lower.edge || c.edges.upper.edge));
   if (edged.length) {
-    const where = edged.map((c) => `${c.name} (${[c.edges!.lower.edge ? 'lower' : '', c.edges!.upper.edge ? 'upper' : ''].filter(Boolean).join(' and ')} end)`).join(', ');
+    const where = edged
+      .map((c) => `${c.name} (${[c.edges!.lower.edge ? 'lower' : '', c.edges!.upper.edge ? 'upper' : ''].filter(Boolean).join(' and ')} end)`)
+      .join(', ');
     warnings.push(
       `${where} seem${edged.length === 1 ? 's' : ''} to stop at a hard edge: the outermost gaps are no wider than the ones inside them. The look-alike spills past edges, so boundary bias (largest for nearest-neighbour and kernel estimators) is understated; compare with ${command} --support ${profile.support === 'bounded' ? 'bounded' : 'half'}.`,
     );
@@ -209,7 +219,14 @@ function profileWarnings(profile: DataProfile, lookalike: Lookalike, command: st
  * The chosen estimator on as many of the file's rows as ALL_ROWS_SHARE of the budget is predicted to allow
  * (all when they fit): a seeded uniform subsample otherwise.
  */
-function allRowsEstimate(fileSample: Sample, chosen: ConfiguredEstimator, label: string, budget: number, seed: string, stage: (text: string) => void): AllRowsEstimate {
+function allRowsEstimate(
+  fileSample: Sample,
+  chosen: ConfiguredEstimator,
+  label: string,
+  budget: number,
+  seed: string,
+  stage: (text: string) => void,
+): AllRowsEstimate {
   const { n, dim } = fileSample;
   const used = rowsWithin(chosen, n, dim, ALL_ROWS_SHARE * budget);
   stage(`${label} on ${used === n ? 'all' : used} of your ${n} rows`);
@@ -272,14 +289,27 @@ function stageTimer(elapsed: () => number, elapsedBeforeSeconds: number | undefi
 function analysedSample(ctx: AdviceContext, fileSample: Sample, estimators: string[]): { sample: Sample; subsample: AdviceSubsample | null } {
   const { budget, workers, minimumReplicates, seed, options } = ctx;
   const { n: fileRows, dim } = fileSample;
-  const rows = analysisRows(fileRows, dim, estimators, budget, workers, minimumReplicates, ctx.level === null ? 0 : options.resamples ?? options.minResamples ?? 100);
+  const rows = analysisRows(
+    fileRows,
+    dim,
+    estimators,
+    budget,
+    workers,
+    minimumReplicates,
+    ctx.level === null ? 0 : (options.resamples ?? options.minResamples ?? 100),
+  );
   if (rows >= fileRows) return { sample: fileSample, subsample: null };
-  const perReplicate = predictedReplicateSeconds(estimators.map((spec) => parseEstimatorSpec(spec)), fileRows, dim);
+  const perReplicate = predictedReplicateSeconds(
+    estimators.map((spec) => parseEstimatorSpec(spec)),
+    fileRows,
+    dim,
+  );
   const cost = `one replicate of the ${estimators.length} estimators at n = ${fileRows} would take about ${describeSeconds(perReplicate)} by the cost model, and the benchmark needs ${minimumReplicates}; within the ${budget} s budget on ${workers} worker${workers === 1 ? '' : 's'}`;
   if (rows < FEWEST_ANALYSIS_ROWS) {
     // Within the rows that matter here the benchmark's cost grows at most like n² (a d ≥ 2 kernel sum).
     const needed = Math.ceil(budget * Math.pow(FEWEST_ANALYSIS_ROWS / Math.max(rows, 1), 2));
-    const remedy = needed <= MAX_BUDGET_SECONDS ? `give --budget ${needed} or more` : `no --budget up to ${MAX_BUDGET_SECONDS} s covers it; select fewer columns`;
+    const remedy =
+      needed <= MAX_BUDGET_SECONDS ? `give --budget ${needed} or more` : `no --budget up to ${MAX_BUDGET_SECONDS} s covers it; select fewer columns`;
     throw new UsageError(`--budget ${budget} is too small for this file: ${cost}, not even ${FEWEST_ANALYSIS_ROWS} rows fit; ${remedy}`);
   }
   const reason = `${cost}, they and the bootstrap's resamples fit at n = ${rows}`;
@@ -319,7 +349,14 @@ function estimateSample(summaries: EstimatorSummary[], sample: Sample): UserEsti
 }
 
 /** Notes on the analysis: what the look-alike cannot imitate, the subsample, and what the budget cut from the benchmark. */
-function analysisWarnings(ctx: AdviceContext, profile: DataProfile, lookalike: Lookalike, bench: TargetedBenchmark, subsample: AdviceSubsample | null, n: number): string[] {
+function analysisWarnings(
+  ctx: AdviceContext,
+  profile: DataProfile,
+  lookalike: Lookalike,
+  bench: TargetedBenchmark,
+  subsample: AdviceSubsample | null,
+  n: number,
+): string[] {
   const { budget, minimumReplicates } = ctx;
   const command = `hhat advise --n ${n} --dim ${profile.dim}`;
   const warnings = profileWarnings(profile, lookalike, command);
@@ -331,9 +368,14 @@ function analysisWarnings(ctx: AdviceContext, profile: DataProfile, lookalike: L
   for (const cut of bench.cuts) warnings.push(`to fit the ${budget} s budget, left out ${cut}. Raise --budget to include them.`);
   // A first round short of the minimum that a second round made up for has cut nothing worth a note.
   if (bench.minimumForced && bench.replicates < minimumReplicates) {
-    warnings.push(`the time budget covered fewer look-alike replicates than advice wants; ${bench.replicates} ran (${bench.wallSeconds.toFixed(1)} s), so the Monte-Carlo errors are large. Raise --budget for smaller ones.`);
+    warnings.push(
+      `the time budget covered fewer look-alike replicates than advice wants; ${bench.replicates} ran (${bench.wallSeconds.toFixed(1)} s), so the Monte-Carlo errors are large. Raise --budget for smaller ones.`,
+    );
   }
-  if (lookalike.fittedPoints < n) warnings.push(`the look-alike was fitted on a random ${lookalike.fittedPoints} of the ${n} rows (EM time grows with n); the benchmark still runs at n = ${n}.`);
+  if (lookalike.fittedPoints < n)
+    warnings.push(
+      `the look-alike was fitted on a random ${lookalike.fittedPoints} of the ${n} rows (EM time grows with n); the benchmark still runs at n = ${n}.`,
+    );
   return warnings;
 }
 
@@ -351,7 +393,15 @@ function allRowsNote(allRows: AllRowsEstimate, chosen: ConfiguredEstimator, file
 }
 
 /** The bootstrap interval within the rest of the budget; null, with a note, when even its minimum resamples would overrun it. */
-function bootstrapInterval(ctx: AdviceContext, level: number, sample: Sample, chosen: ConfiguredEstimator, label: string, value: number, warnings: string[]): BootstrapInterval | null {
+function bootstrapInterval(
+  ctx: AdviceContext,
+  level: number,
+  sample: Sample,
+  chosen: ConfiguredEstimator,
+  label: string,
+  value: number,
+  warnings: string[],
+): BootstrapInterval | null {
   const { options, budget, elapsed } = ctx;
   const { n, dim } = sample;
   const minResamples = options.resamples ?? options.minResamples ?? 100;
@@ -399,7 +449,9 @@ function chosenEstimate(
   }
   if (recommended && usable !== recommended) {
     const failed = userEstimates.find((u) => u.estimator === recommended.estimator);
-    warnings.push(`${recommended.label} fails on your data (${failed?.error ?? 'no value'}); the estimate below uses ${usable.label}, next by look-alike RMSE.`);
+    warnings.push(
+      `${recommended.label} fails on your data (${failed?.error ?? 'no value'}); the estimate below uses ${usable.label}, next by look-alike RMSE.`,
+    );
   }
   const value = userEstimates.find((u) => u.estimator === usable.estimator)!.value!;
   const bias = usable.scenarios[0].bias;

@@ -53,7 +53,11 @@ function round(x: number): number {
 }
 
 /** Centred, SD-scaled copy of (a subset of) the sample, with the centres and scales. */
-function standardise(sample: Sample, rows: Uint32Array | null, names: readonly string[]): { data: Float64Array; n: number; centres: Float64Array; scales: Float64Array } {
+function standardise(
+  sample: Sample,
+  rows: Uint32Array | null,
+  names: readonly string[],
+): { data: Float64Array; n: number; centres: Float64Array; scales: Float64Array } {
   const { dim, data } = sample;
   const n = rows ? rows.length : sample.n;
   const out = new Float64Array(n * dim);
@@ -121,7 +125,9 @@ export function buildLookalike(sample: Sample, options: LookalikeOptions): Looka
     restarts: options.restarts,
   });
   if (!Number.isFinite(best.logLikelihood)) {
-    throw new UsageError('no Gaussian mixture could be fitted to these data (every EM start collapsed); the data may be nearly discrete or lie on a lower-dimensional set');
+    throw new UsageError(
+      'no Gaussian mixture could be fitted to these data (every EM start collapsed); the data may be nearly discrete or lie on a lower-dimensional set',
+    );
   }
   const dim = sample.dim;
   let smallestVariance = Infinity;

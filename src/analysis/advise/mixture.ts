@@ -186,7 +186,16 @@ function maximise(data: Float64Array, n: number, dim: number, k: number, resp: F
 }
 
 /** E-step: responsibilities into `resp`, returns the log-likelihood (−Infinity when a covariance is not SPD). */
-function expectation(data: Float64Array, n: number, dim: number, k: number, fit: MixtureFit, resp: Float64Array, lowers: Float64Array, logNorms: Float64Array): number {
+function expectation(
+  data: Float64Array,
+  n: number,
+  dim: number,
+  k: number,
+  fit: MixtureFit,
+  resp: Float64Array,
+  lowers: Float64Array,
+  logNorms: Float64Array,
+): number {
   for (let c = 0; c < k; c++) {
     if (!choleskyInPlace(fit.covariances, c * dim * dim, dim, lowers, c * dim * dim)) return -Infinity;
     let logDet = 0;
@@ -237,7 +246,15 @@ function emptyFit(dim: number, k: number, restart: number): MixtureFit {
 }
 
 /** One EM run from a k-means++ start. A start that collapses a component returns logLikelihood −Infinity. */
-function emFromStart(data: Float64Array, n: number, dim: number, k: number, rng: Rng, restart: number, options: Required<Omit<MixtureOptions, 'seed' | 'restarts'>>): MixtureFit {
+function emFromStart(
+  data: Float64Array,
+  n: number,
+  dim: number,
+  k: number,
+  rng: Rng,
+  restart: number,
+  options: Required<Omit<MixtureOptions, 'seed' | 'restarts'>>,
+): MixtureFit {
   const fit = emptyFit(dim, k, restart);
   const centres = kmeansPlusPlus(data, n, dim, k, rng);
   const labels = lloyd(data, n, dim, k, centres, 10);
@@ -304,7 +321,12 @@ export function componentLimit(n: number, dim: number, maxComponents: number): n
  * beyond the best have a higher BIC: past the right K the criterion rises by about p·log n per component
  * while the likelihood barely moves, and those redundant fits are the slow ones for EM.
  */
-export function selectMixture(data: Float64Array, n: number, dim: number, options: MixtureOptions & { maxComponents?: number }): { best: MixtureFit; fits: MixtureFit[]; limit: number } {
+export function selectMixture(
+  data: Float64Array,
+  n: number,
+  dim: number,
+  options: MixtureOptions & { maxComponents?: number },
+): { best: MixtureFit; fits: MixtureFit[]; limit: number } {
   const limit = componentLimit(n, dim, options.maxComponents ?? 6);
   const fits: MixtureFit[] = [];
   let best: MixtureFit | undefined;

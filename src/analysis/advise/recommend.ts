@@ -134,7 +134,14 @@ export function summarise(run: RunFile): EstimatorSummary[] {
       msPerEstimate: scenarios.reduce((s, c) => s + c.meanMs, 0) / Math.max(1, scenarios.length),
       wins: scenarios.filter((s) => s.best).length,
       failedScenarios: scenarios.filter((s) => s.failed).length,
-      robustness: row ? Object.fromEntries(ROBUSTNESS_FLAGS.map((k) => [k, { verdict: row.columns[k]?.verdict ?? 'n/a', value: row.columns[k]?.value ?? null, detail: row.columns[k]?.detail ?? '' }])) : null,
+      robustness: row
+        ? Object.fromEntries(
+            ROBUSTNESS_FLAGS.map((k) => [
+              k,
+              { verdict: row.columns[k]?.verdict ?? 'n/a', value: row.columns[k]?.value ?? null, detail: row.columns[k]?.detail ?? '' },
+            ]),
+          )
+        : null,
     };
   });
   return summaries.sort((a, b) => {
@@ -193,10 +200,17 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 
   const eligible = summaries.filter((s) => Number.isFinite(s.meanRmse.value) && s.failedScenarios === 0);
   const scenarios = run.scenarios;
   const count = scenarios.length;
-  const none = (reason: string): Recommendation => ({ recommended: null, runnerUp: null, runnerUpTiedOn: [], reason: `No estimator is usable here: ${reason}` });
+  const none = (reason: string): Recommendation => ({
+    recommended: null,
+    runnerUp: null,
+    runnerUpTiedOn: [],
+    reason: `No estimator is usable here: ${reason}`,
+  });
   if (!eligible.length) {
     const fewest = [...summaries].sort((a, b) => a.failedScenarios - b.failedScenarios || a.failures - b.failures)[0];
-    return none(`every one failed on some draws of ${count === 1 ? `the ${subject === 'look-alike' ? 'look-alike' : 'matching scenario'}` : 'the matching scenarios'} (the fewest failures: ${fewest.label}, ${fewest.failures} of ${fewest.replicates} draws).`);
+    return none(
+      `every one failed on some draws of ${count === 1 ? `the ${subject === 'look-alike' ? 'look-alike' : 'matching scenario'}` : 'the matching scenarios'} (the fewest failures: ${fewest.label}, ${fewest.failures} of ${fewest.replicates} draws).`,
+    );
   }
   const spread = truthSpread(scenarios);
   if (Number.isFinite(spread) && eligible.every((s) => s.meanRmse.value > spread)) {
@@ -208,7 +222,9 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 
   // From the eligible ones only: a runner-up that fails on some draws would be offered as an equal choice.
   const runnerUp = eligible[1] ?? null;
   const failurePart =
-    recommended.failures === 0 ? 'never fails' : `fails on ${recommended.failures} of ${recommended.replicates} draws (${(100 * recommended.failureRate).toFixed(1)}%)`;
+    recommended.failures === 0
+      ? 'never fails'
+      : `fails on ${recommended.failures} of ${recommended.replicates} draws (${(100 * recommended.failureRate).toFixed(1)}%)`;
   const lead =
     count === 1
       ? `${recommended.label} has the lowest RMSE on the ${subject === 'look-alike' ? 'look-alike' : 'matching scenario'} (${formatNats(recommended.meanRmse.value)} ± ${formatNats(recommended.meanRmse.se)} nats) and ${failurePart}`
@@ -229,6 +245,9 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 
         : `; the runner-up ${runnerUp.label} is outside the best set on every scenario`;
     }
   }
-  const skipped = eligible[0] && eligible[0] !== summaries[0] ? ` (${summaries[0].label} has a lower RMSE but fails on ${(100 * summaries[0].failureRate).toFixed(1)}% of draws)` : '';
+  const skipped =
+    eligible[0] && eligible[0] !== summaries[0]
+      ? ` (${summaries[0].label} has a lower RMSE but fails on ${(100 * summaries[0].failureRate).toFixed(1)}% of draws)`
+      : '';
   return { recommended, runnerUp, runnerUpTiedOn, reason: `${lead}${tail}.${skipped}` };
 }

@@ -152,7 +152,9 @@ export function matchScenarios(dim: number, tails: Tails | undefined, support: S
   if (best > 0) {
     exact = false;
     const have = [...new Set(matched.map((s) => `${s.tails} tails, ${s.support === 'half' ? 'half-bounded' : s.support} support`))].join('; ');
-    notes.push(`no scenario${rebuilt ? '' : ' in the catalog'} at d = ${dim} has${describe(tails, support).replace(/^ with/, '')}; the nearest differ in ${best === 2 ? 'both' : 'one'} of them (${have})`);
+    notes.push(
+      `no scenario${rebuilt ? '' : ' in the catalog'} at d = ${dim} has${describe(tails, support).replace(/^ with/, '')}; the nearest differ in ${best === 2 ? 'both' : 'one'} of them (${have})`,
+    );
   }
   const chosen = thinScenarios(matched, max);
   const count = `${chosen.length === matched.length ? `all ${matched.length}` : `${chosen.length} of ${matched.length}`} matching scenario${matched.length === 1 ? '' : 's'}`;
@@ -195,12 +197,19 @@ export const MAX_BUDGET_SECONDS = 86400;
  * calls go to the pilot, which measures (src/analysis/advise/benchmark.ts).
  */
 function refuseUnaffordableBudget(n: number, dim: number, estimators: readonly string[], budget: number, workers: number, fewest: number): void {
-  const perReplicate = predictedReplicateSeconds(estimators.map((spec) => parseEstimatorSpec(spec)), n, dim);
+  const perReplicate = predictedReplicateSeconds(
+    estimators.map((spec) => parseEstimatorSpec(spec)),
+    n,
+    dim,
+  );
   // The pilot runs one replicate on one thread; the rounds share the rest over the workers.
   const needed = perReplicate + (fewest * perReplicate) / Math.max(1, workers);
   if (needed <= budget * MODEL_MARGIN) return;
   const suggested = Math.ceil(needed * 1.3);
-  const remedy = suggested <= MAX_BUDGET_SECONDS ? `give --budget ${suggested} or more, or a smaller --n` : `no --budget up to ${MAX_BUDGET_SECONDS} s covers that; give a smaller --n`;
+  const remedy =
+    suggested <= MAX_BUDGET_SECONDS
+      ? `give --budget ${suggested} or more, or a smaller --n`
+      : `no --budget up to ${MAX_BUDGET_SECONDS} s covers that; give a smaller --n`;
   throw new UsageError(
     `--budget ${budget} is too small here: one replicate of one matching scenario at n = ${n} is predicted to take about ${describeSeconds(perReplicate)} (the cost model in src/harness/cost-model.ts), and advice needs at least ${fewest} replicates (about ${describeSeconds(needed)} in all on ${workers} worker${workers === 1 ? '' : 's'}); ${remedy}`,
   );
@@ -233,7 +242,8 @@ export async function adviseSituation(options: SituationAdviceOptions): Promise<
   const match = matchScenarios(dim, options.tails, options.support, options.maxScenarios ?? DEFAULT_MAX_SCENARIOS);
   const estimators = applicableEstimators(dim);
   if (!estimators.length) throw new UsageError(`no entropy estimator supports d = ${dim}`);
-  if (options.replicates === undefined) refuseUnaffordableBudget(n, dim, estimators, budget, options.workers ?? defaultWorkers(), Math.min(options.minReplicates ?? 10, FEWEST_USEFUL_REPLICATES));
+  if (options.replicates === undefined)
+    refuseUnaffordableBudget(n, dim, estimators, budget, options.workers ?? defaultWorkers(), Math.min(options.minReplicates ?? 10, FEWEST_USEFUL_REPLICATES));
   stage('benchmarking');
   const bench = await runTargeted({
     scenarios: match.scenarios.map((s) => s.id),
@@ -253,9 +263,13 @@ export async function adviseSituation(options: SituationAdviceOptions): Promise<
   const warnings: string[] = [];
   if (!match.exact) warnings.push(match.note);
   for (const cut of bench.cuts) warnings.push(`to fit the ${budget} s budget, left out ${cut}. Raise --budget to include them.`);
-  if (bench.minimumForced) warnings.push(`the time budget covered fewer replicates than advice wants; ${bench.replicates} ran (${bench.wallSeconds.toFixed(1)} s), so the Monte-Carlo errors are large. Raise --budget for smaller ones.`);
+  if (bench.minimumForced)
+    warnings.push(
+      `the time budget covered fewer replicates than advice wants; ${bench.replicates} ran (${bench.wallSeconds.toFixed(1)} s), so the Monte-Carlo errors are large. Raise --budget for smaller ones.`,
+    );
   const skippedPerturbations = bench.run.skipped.filter((s) => s.estimator.startsWith('(all, under'));
-  if (skippedPerturbations.length) warnings.push(`some perturbations could not be applied: ${[...new Set(skippedPerturbations.map((s) => s.reason))].join('; ')}.`);
+  if (skippedPerturbations.length)
+    warnings.push(`some perturbations could not be applied: ${[...new Set(skippedPerturbations.map((s) => s.reason))].join('; ')}.`);
   return {
     n,
     dim,
@@ -263,7 +277,13 @@ export async function adviseSituation(options: SituationAdviceOptions): Promise<
     support: options.support ?? null,
     budgetSeconds: budget,
     match: { ...match, scenarios: match.scenarios.filter((m) => bench.scenarios.includes(m.id)) },
-    benchmark: { replicates: bench.replicates, seconds: bench.wallSeconds, minimumForced: bench.minimumForced, workers: bench.workers, perturbations: bench.perturbed ? ADVICE_PERTURBATIONS : [] },
+    benchmark: {
+      replicates: bench.replicates,
+      seconds: bench.wallSeconds,
+      minimumForced: bench.minimumForced,
+      workers: bench.workers,
+      perturbations: bench.perturbed ? ADVICE_PERTURBATIONS : [],
+    },
     estimators: summaries,
     recommendation,
     warnings,

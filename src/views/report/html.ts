@@ -40,7 +40,9 @@ export function sortableTable(caption: string, head: string[], rows: CellInput[]
       const cells = row.map((input) => {
         const cell = cellOf(input);
         const attrs = [
-          cell.sort !== undefined ? ` data-sort="${cell.sort === null || (typeof cell.sort === 'number' && !Number.isFinite(cell.sort)) ? '' : escapeHtml(String(cell.sort))}"` : '',
+          cell.sort !== undefined
+            ? ` data-sort="${cell.sort === null || (typeof cell.sort === 'number' && !Number.isFinite(cell.sort)) ? '' : escapeHtml(String(cell.sort))}"`
+            : '',
           cell.title ? ` title="${escapeHtml(cell.title)}"` : '',
           cell.className ? ` class="${escapeHtml(cell.className)}"` : '',
         ].join('');

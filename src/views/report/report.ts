@@ -95,13 +95,21 @@ function provenance(run: RunFile, data: ReportData): string {
     ['sample sizes n', plan.sampleSizes.join(', ')],
     ['replicates per cell', String(plan.replicates)],
     ['seed', String(plan.seed)],
-    ['robustness', plan.robustness ? `at n = ${plan.robustness.sampleSize}: ${plan.robustness.perturbations.length} perturbations${plan.robustness.tuning ? ', tuning grids' : ''}` : 'not measured'],
+    [
+      'robustness',
+      plan.robustness
+        ? `at n = ${plan.robustness.sampleSize}: ${plan.robustness.perturbations.length} perturbations${plan.robustness.tuning ? ', tuning grids' : ''}`
+        : 'not measured',
+    ],
     ['hhat version', env.hhatVersion],
     ['git commit', git],
     ['run created', run.createdAt.replace('T', ' ').replace(/\.\d+Z$/, ' UTC')],
     ['Node', env.node],
     ['machine', `${env.platform} ${env.arch}, ${env.cpus} × ${env.cpuModel}, ${env.memoryGiB} GiB`],
-    ['run', `${run.cells.length} cells, ${run.wallSeconds.toFixed(1)} s on ${run.workers} worker${run.workers === 1 ? '' : 's'}${run.complete ? '' : ', incomplete'}${run.shard ? `, shard ${run.shard.index}/${run.shard.count}` : ''}`],
+    [
+      'run',
+      `${run.cells.length} cells, ${run.wallSeconds.toFixed(1)} s on ${run.workers} worker${run.workers === 1 ? '' : 's'}${run.complete ? '' : ', incomplete'}${run.shard ? `, shard ${run.shard.index}/${run.shard.count}` : ''}`,
+    ],
     ['draws fingerprint', run.drawsFingerprint.slice(0, 16)],
     ['unit', data.base === 'bits' ? 'bits (run file: nats)' : 'nats'],
   ];
@@ -136,7 +144,8 @@ function overallSection(page: Page): string {
     charts.push(page.chart('average-rank', rankHeatmapSpec(grid), 'Average rank by RMSE per dimension and tail class', description));
   }
   if (efficiency.rows.length) {
-    const description = 'Efficiency ratio n·Var(Ĥ)/Var(log f) of each estimator per scenario at the largest sample size n, on a log axis, with the asymptotic bound 1.';
+    const description =
+      'Efficiency ratio n·Var(Ĥ)/Var(log f) of each estimator per scenario at the largest sample size n, on a log axis, with the asymptotic bound 1.';
     charts.push(page.chart('efficiency', efficiencySpec(efficiency), 'Efficiency n·Var(Ĥ)/Var(log f) against the bound 1', description));
   }
   return `<section id="overall"><h2>Overall</h2><div class="charts">${charts.join('\n')}</div>${grid ? rankTable(grid) : ''}</section>`;
@@ -158,7 +167,9 @@ function scenarioSection(page: Page, info: ScenarioInfo): string {
     charts.push(page.chart(`${metric}-${slug(info.id)}`, convergenceSpec(chart, base), `${what} (${base}) against sample size n: ${info.id}`, description));
   }
   const description = `Box plots of the replicate estimates in ${base} per estimator at n = ${distribution.n}, with the true value as a dashed line.`;
-  charts.push(page.chart(`estimates-${slug(info.id)}`, distributionSpec(distribution, base), `Estimates (${base}) at n = ${distribution.n}: ${info.id}`, description));
+  charts.push(
+    page.chart(`estimates-${slug(info.id)}`, distributionSpec(distribution, base), `Estimates (${base}) at n = ${distribution.n}: ${info.id}`, description),
+  );
   const facts = `d = ${info.dim}, ${escapeHtml(info.support)} support, ${escapeHtml(info.tails)} tails; true value ${escapeHtml(formatValue(toBase(info.truth, base), 7))} ${base} (${escapeHtml(info.truthSource)})`;
   return `<section class="scenario" id="${id}"><h3>${escapeHtml(info.id)}</h3><p class="lead">${facts}</p><div class="charts">${charts.join('\n')}</div>${scenarioTable(data, info)}</section>`;
 }
@@ -189,7 +200,9 @@ function robustnessSection(page: Page): string {
   const verdicts = robustnessGrid(data, section);
   if (verdicts) {
     const description = `Grid of ${verdicts.estimators.length} estimators by ${verdicts.columns.length} checks, each cell a verdict.`;
-    parts.push(`<div class="charts">${page.chart('robustness', robustnessGridSpec(verdicts), 'Robustness checks: pass / warn / fail per estimator', description)}</div>`);
+    parts.push(
+      `<div class="charts">${page.chart('robustness', robustnessGridSpec(verdicts), 'Robustness checks: pass / warn / fail per estimator', description)}</div>`,
+    );
     parts.push(robustnessTable(data, section, verdicts.columns));
   }
   if (section.measures.length) parts.push(measuresTable(data, section));
@@ -199,7 +212,12 @@ function robustnessSection(page: Page): string {
       .filter((p) => p.family === family)
       .map((panel) => {
         const description = `Mean estimate in ${base} ±1 Monte-Carlo SE against each varied setting of the ${family} estimators on ${panel.scenario}.`;
-        return page.chart(`tuning-${slug(family)}-${slug(panel.scenario)}`, tuningSpec(panel, base), `Tuning of ${family} estimators (${base}): ${panel.scenario}`, description);
+        return page.chart(
+          `tuning-${slug(family)}-${slug(panel.scenario)}`,
+          tuningSpec(panel, base),
+          `Tuning of ${family} estimators (${base}): ${panel.scenario}`,
+          description,
+        );
       });
     parts.push(`<h3>Tuning: ${escapeHtml(family)} estimators</h3><div class="charts">${charts.join('\n')}</div>`);
   }

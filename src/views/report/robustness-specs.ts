@@ -48,7 +48,10 @@ export function tuningSpec(panel: TuningPanel, base: Base): TopLevelSpec {
   return {
     title: {
       text: panel.scenario,
-      subtitle: [`${panel.family} estimators: mean ±1 Monte-Carlo SE per setting`, ...(panel.truth === null ? [] : [`dashed line: true value ${formatValue(panel.truth, 6)} ${base}`])],
+      subtitle: [
+        `${panel.family} estimators: mean ±1 Monte-Carlo SE per setting`,
+        ...(panel.truth === null ? [] : [`dashed line: true value ${formatValue(panel.truth, 6)} ${base}`]),
+      ],
     },
     hconcat: charts,
     resolve: { scale: { color: 'independent', shape: 'independent', y: 'shared' } },

@@ -72,11 +72,13 @@ export function convergenceSpec(chart: ConvergenceData, base: Base): TopLevelSpe
       { mark: { type: 'line', strokeWidth: 1.4, opacity: 0.85 }, encoding: { x, y, color: colour } },
       // Two point layers rather than a conditional fill, which would need a second legend to be silenced;
       // an empty layer would make vega warn about an empty extent, so only those with points are drawn.
-      ...[false, true].filter((clear) => chart.points.some((p) => p.clear === clear)).map((clear) => ({
-        transform: [{ filter: clear ? 'datum.clear' : '!datum.clear' }],
-        mark: { type: 'point' as const, size: 55, strokeWidth: 1.6, opacity: 1, filled: !clear, ...(clear ? { fill: 'white' } : {}) },
-        encoding: { x, y, color: colour, shape: { field: 'series', type: 'nominal' as const, scale: shapeScale(series), legend } },
-      })),
+      ...[false, true]
+        .filter((clear) => chart.points.some((p) => p.clear === clear))
+        .map((clear) => ({
+          transform: [{ filter: clear ? 'datum.clear' : '!datum.clear' }],
+          mark: { type: 'point' as const, size: 55, strokeWidth: 1.6, opacity: 1, filled: !clear, ...(clear ? { fill: 'white' } : {}) },
+          encoding: { x, y, color: colour, shape: { field: 'series', type: 'nominal' as const, scale: shapeScale(series), legend } },
+        })),
     ],
     config: CHART_CONFIG,
   };
@@ -90,7 +92,11 @@ export function distributionSpec(chart: DistributionData, base: Base): TopLevelS
   return {
     title: {
       text: `Estimates at n = ${chart.n}`,
-      subtitle: [chart.scenario.id, 'boxes: quartiles, whiskers: extremes; ticks: replicates', `dashed line: true value ${formatValue(chart.truth, 6)} ${base}`],
+      subtitle: [
+        chart.scenario.id,
+        'boxes: quartiles, whiskers: extremes; ticks: replicates',
+        `dashed line: true value ${formatValue(chart.truth, 6)} ${base}`,
+      ],
     },
     width: WIDTH,
     height: { step: 26 },

@@ -52,9 +52,20 @@ export function scenarioTable(data: ReportData, info: ScenarioInfo): string {
     row.push(failed);
     return row;
   });
-  const head = ['estimator', ...sizes.flatMap((n) => [`RMSE (${base}), n=${n}`, 'rank']), `bias (${base}), n=${largest}`, '|bias| slope', 'RMSE slope', 'failed'];
+  const head = [
+    'estimator',
+    ...sizes.flatMap((n) => [`RMSE (${base}), n=${n}`, 'rank']),
+    `bias (${base}), n=${largest}`,
+    '|bias| slope',
+    'RMSE slope',
+    'failed',
+  ];
   const note = rankings.length ? wideBestSetNote(rankings, data.label) : null;
-  const table = sortableTable(`${info.id}: RMSE ± Monte-Carlo SE and rank ("1=": in the best set at level ${run.plan.verdicts.level}; failed cells rank last)`, head, rows);
+  const table = sortableTable(
+    `${info.id}: RMSE ± Monte-Carlo SE and rank ("1=": in the best set at level ${run.plan.verdicts.level}; failed cells rank last)`,
+    head,
+    rows,
+  );
   return note ? `${table}<p class="note">${escapeHtml(note)}</p>` : table;
 }
 
@@ -64,7 +75,11 @@ export function rankTable(grid: RankGrid): string {
     ...grid.groups.map((g): CellInput => {
       const cell = grid.rows.find((r) => r.estimator === estimator && r.group === g);
       return cell
-        ? { text: `${cell.meanRank.toFixed(1)} (${cell.cells})`, sort: cell.meanRank, title: `average over ${cell.cells} cells${cell.failedCells ? `, ${cell.failedCells} of them failed and ranked last` : ''}` }
+        ? {
+            text: `${cell.meanRank.toFixed(1)} (${cell.cells})`,
+            sort: cell.meanRank,
+            title: `average over ${cell.cells} cells${cell.failedCells ? `, ${cell.failedCells} of them failed and ranked last` : ''}`,
+          }
         : { text: 'n/a', sort: null, title: 'cannot run in this group by design' };
     }),
   ]);
@@ -84,10 +99,30 @@ export function scoresTable(data: ReportData): string {
     pm(c.scores.rmse.value, c.scores.rmse.se, base),
     pm(c.scores.mae.value, c.scores.mae.se, base),
     c.scores.efficiency ? pm(c.scores.efficiency.value, c.scores.efficiency.se, null) : { text: '–', sort: null },
-    { text: `${c.scores.failures}/${c.scores.replicates}`, sort: c.scores.failures, title: c.failures.slice(0, 3).map((f) => `#${f.replicate}: ${f.message}`).join('\n') },
+    {
+      text: `${c.scores.failures}/${c.scores.replicates}`,
+      sort: c.scores.failures,
+      title: c.failures
+        .slice(0, 3)
+        .map((f) => `#${f.replicate}: ${f.message}`)
+        .join('\n'),
+    },
     { text: formatValue(c.timing.meanMs, 3), sort: c.timing.meanMs },
   ]);
-  const head = ['scenario', 'estimator', 'n', 'variant', `mean (${base})`, `bias (${base})`, `SD (${base})`, `RMSE (${base})`, `MAE (${base})`, 'efficiency', 'failed', 'ms / estimate'];
+  const head = [
+    'scenario',
+    'estimator',
+    'n',
+    'variant',
+    `mean (${base})`,
+    `bias (${base})`,
+    `SD (${base})`,
+    `RMSE (${base})`,
+    `MAE (${base})`,
+    'efficiency',
+    'failed',
+    'ms / estimate',
+  ];
   return sortableTable(`Every cell: score ± Monte-Carlo SE (${run.cells.length} cells)`, head, rows, { textColumns: 2, tall: true });
 }
 
@@ -98,7 +133,12 @@ export function robustnessTable(data: ReportData, section: RobustnessSection, co
     ...columns.map((column): CellInput => {
       const cell = row.columns[column];
       if (!cell) return { text: '–', sort: null };
-      return { text: robustnessText(column, cell.verdict, cell.value, finest), sort: finite(cell.value) ? cell.value : null, title: cell.detail, className: cell.verdict === 'n/a' ? undefined : cell.verdict };
+      return {
+        text: robustnessText(column, cell.verdict, cell.value, finest),
+        sort: finite(cell.value) ? cell.value : null,
+        title: cell.detail,
+        className: cell.verdict === 'n/a' ? undefined : cell.verdict,
+      };
     }),
   ]);
   return sortableTable('Robustness verdicts (hover a cell for its detail)', ['estimator', ...columns], rows);

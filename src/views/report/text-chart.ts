@@ -78,7 +78,9 @@ function scenarioChart(run: RunFile, scenario: string, base: Base, options: Requ
   lines.push(`${' '.repeat(labelWidth)} └${axis.join('')}`);
   lines.push(`${' '.repeat(labelWidth)}  ${ticks.join('').trimEnd()}   n`);
   const legend = chosen.map((spec, i) => `${LETTERS[i]} ${estimatorLabel(spec)}`).join('  ');
-  return [`${scenario}: |bias| (${base}) against n, log–log, best ${chosen.length} at n=${largest}`, ...lines, `${' '.repeat(labelWidth)}  ${legend}`].join('\n');
+  return [`${scenario}: |bias| (${base}) against n, log–log, best ${chosen.length} at n=${largest}`, ...lines, `${' '.repeat(labelWidth)}  ${legend}`].join(
+    '\n',
+  );
 }
 
 /** |bias| against n for the best estimators of every scenario, as text for the end of `hhat bench`. */
