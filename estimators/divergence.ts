@@ -326,7 +326,7 @@ const KNN_TUNING_K = [1, 2, 3, 4, 5, 6, 7, 8, 9, 10];
 export const divergenceEstimators: Estimator[] = [
   defineEstimator({
     id: 'knn-divergence',
-    family: 'divergence',
+    family: 'nearest-neighbour',
     quantity: 'divergence',
     summary: 'Wang–Kulkarni–Verdú k-th nearest-neighbour distances within P and from P to Q, Euclidean',
     settings: [{ name: 'k', meaning: 'neighbour order, the same within P and from P to Q', default: KNN_DEFAULT_K, kind: 'integer', min: 1 }],
@@ -348,7 +348,7 @@ export const divergenceEstimators: Estimator[] = [
   }),
   defineEstimator({
     id: 'histogram-divergence',
-    family: 'divergence',
+    family: 'histogram',
     quantity: 'divergence',
     summary: 'plug-in Σ p̂ log(p̂/q̂) on one grid of equal-width bins over both samples; empty Q bins under P mass are an error',
     settings: [
@@ -385,7 +385,7 @@ export const divergenceEstimators: Estimator[] = [
   }),
   defineEstimator({
     id: 'gaussian-divergence',
-    family: 'divergence',
+    family: 'parametric',
     quantity: 'divergence',
     summary: 'divergence between the normal laws fitted to P and to Q (sample means and covariances)',
     settings: [],

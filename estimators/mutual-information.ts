@@ -335,7 +335,7 @@ function ksgEstimator(variant: 1 | 2): Estimator {
   const id = `ksg${variant}`;
   return defineEstimator({
     id,
-    family: 'mutual-information',
+    family: 'nearest-neighbour',
     quantity: 'mutual-information',
     summary:
       variant === 1
@@ -535,7 +535,7 @@ export const mutualInformationEstimators: Estimator[] = [
   ksgEstimator(2),
   defineEstimator({
     id: 'mi-histogram',
-    family: 'mutual-information',
+    family: 'histogram',
     quantity: 'mutual-information',
     summary: 'plug-in H(X) + H(Y) − H(X,Y) on one product grid of equal-width bins, optional Miller–Madow terms',
     settings: [
@@ -574,7 +574,7 @@ export const mutualInformationEstimators: Estimator[] = [
   }),
   defineEstimator({
     id: 'mi-kernel',
-    family: 'mutual-information',
+    family: 'kernel',
     quantity: 'mutual-information',
     summary: 'Ĥ(X) + Ĥ(Y) − Ĥ(X,Y) with the leave-one-out Gaussian-kernel entropy estimator',
     settings: [
@@ -615,7 +615,7 @@ export const mutualInformationEstimators: Estimator[] = [
   }),
   defineEstimator({
     id: 'mi-gaussian',
-    family: 'mutual-information',
+    family: 'parametric',
     quantity: 'mutual-information',
     summary: 'MI of the fitted normal law, ½ log(det Σ̂x det Σ̂y / det Σ̂), unbiased under normality by default',
     settings: [
@@ -637,7 +637,7 @@ export const mutualInformationEstimators: Estimator[] = [
   }),
   defineEstimator({
     id: 'mi-from-entropies',
-    family: 'mutual-information',
+    family: 'entropy-combination',
     quantity: 'mutual-information',
     summary: 'Ĥ(X) + Ĥ(Y) − Ĥ(X,Y) with any built-in entropy estimator (default Kozachenko–Leonenko)',
     settings: [

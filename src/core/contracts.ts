@@ -122,6 +122,10 @@ export type InvarianceException = string | ((settings: Settings, dim: number) =>
  */
 export interface Estimator<S extends Settings = Settings> {
   id: string;
+  /**
+   * The method, whatever the quantity: 'histogram', 'spacing', 'nearest-neighbour', 'kernel', 'parametric',
+   * 'entropy-combination' (a quantity from entropy estimates). The quantity is `quantity`, never the family.
+   */
   family: string;
   quantity: Quantity;
   /** One line for catalogs. */
