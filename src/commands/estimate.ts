@@ -1,10 +1,10 @@
 import type { Command } from 'commander';
 import { UsageError, EstimateError, isEstimateError, type EstimateErrorCode } from '../core/errors.js';
 import { formatValue, renderTable, toBase, type Base } from '../core/format.js';
-import { readSample, findRepeats, describeRepeats } from '../data/index.js';
+import { readSample, findRepeats, describeRepeats, type LoadedSample } from '../data/index.js';
 import { selectionWidth, sharedSelection } from '../data/columns.js';
 import { showText } from '../data/table.js';
-import { describeReference, meanLogReference, parseReference } from '../analysis/reference.js';
+import { describeReference, meanLogReference, parseReference, type Reference } from '../analysis/reference.js';
 import { unitLabel } from '../core/units.js';
 import { describeRegistration, resolveModulePath, useEstimatorModules } from '../harness/modules.js';
 import type { Quantity, Sample, Settings } from '../core/contracts.js';
@@ -141,6 +141,21 @@ Exit codes:
      value that is not allowed, a file that cannot be read, an estimator for
      another quantity or dimension; nothing is estimated`;
 
+type EstimateOptions = {
+  columns?: string;
+  estimator?: string[];
+  bits?: boolean;
+  json?: boolean;
+  unit?: string;
+  reference?: string;
+  estimatorModule?: string[];
+  xColumns?: string;
+  yColumns?: string;
+  against?: string;
+  maxSeconds?: string;
+  seed?: string;
+};
+
 export function registerEstimateCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
   program
     .command('estimate')
@@ -167,182 +182,230 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     )
     .option('--seed <s>', `seed of the row subsamples that --max-seconds may call for (default ${DEFAULT_SUBSAMPLE_SEED})`)
     .addHelpText('after', exitCodesHelp)
-    .action(
-      async (
-        file: string,
-        options: {
-          columns?: string;
-          estimator?: string[];
-          bits?: boolean;
-          json?: boolean;
-          unit?: string;
-          reference?: string;
-          estimatorModule?: string[];
-          xColumns?: string;
-          yColumns?: string;
-          against?: string;
-          maxSeconds?: string;
-          seed?: string;
-        },
-      ) => {
-        const base: Base = options.bits ? 'bits' : 'nats';
-        const reference = options.reference === undefined ? undefined : parseReference(options.reference);
-        const givenLimit = options.maxSeconds === undefined ? undefined : parseMaxSeconds(options.maxSeconds);
-        const seed = options.seed === undefined ? DEFAULT_SUBSAMPLE_SEED : parseIntegerOption('--seed', options.seed, 0);
-        const status = statusLine(process.stderr, 'hhat estimate');
-        const load = (columns: string | undefined, path = file) => {
-          try {
-            return readSample(path, { columns, onProgress: (done, total) => status.show(`reading ${path}: ${describeReadProgress(done, total)}`) });
-          } finally {
-            status.clear();
-          }
-        };
-        if (options.estimatorModule?.length) {
-          const note = describeRegistration(await useEstimatorModules(options.estimatorModule.map((m) => resolveModulePath(m))));
-          if (note && !options.json) printErr(note);
-        }
-        let quantity: Quantity = 'entropy';
-        const mutualInformation = options.xColumns !== undefined || options.yColumns !== undefined;
-        if (mutualInformation) {
-          if (options.xColumns === undefined || options.yColumns === undefined)
-            throw new UsageError('mutual information needs both --x-columns and --y-columns');
-          if (options.columns !== undefined) throw new UsageError('--columns cannot be combined with --x-columns/--y-columns');
-          if (options.against !== undefined)
-            throw new UsageError('--against (a divergence) cannot be combined with --x-columns/--y-columns (mutual information)');
-          const shared = sharedSelection(options.xColumns, options.yColumns);
-          if (shared !== undefined) throw new UsageError(`--x-columns and --y-columns both name column ${showText(shared)}; X and Y must be different columns`);
-        }
-        // For mutual information only X's and Y's columns are read, in that order (other columns may hold text).
-        let loaded = load(mutualInformation ? `${options.xColumns},${options.yColumns}` : options.columns);
-        let sample = loaded.sample;
-        if (mutualInformation) {
-          sample = { ...sample, xDim: selectionWidth(options.xColumns!) };
-          loaded = { ...loaded, sample };
-          quantity = 'mutual-information';
-        } else if (options.against !== undefined) {
-          const q = load(options.columns, options.against);
-          if (q.sample.dim !== sample.dim)
-            throw new UsageError(
-              `${options.against} has ${q.sample.dim} columns and ${file} has ${sample.dim}; a divergence compares samples of the same dimension`,
-            );
-          sample = { ...sample, q: q.sample };
-          quantity = 'divergence';
-        }
-        if (reference && quantity !== 'entropy')
-          throw new UsageError('--reference applies to entropy; mutual information and divergences are already unit-free');
-        const offset = reference ? meanLogReference(reference, sample) : 0;
-        const named = Boolean(options.estimator?.length);
-        const specs = named ? options.estimator! : defaultEstimatorsFor(sample.dim, quantity);
-        if (!specs.length) throw new UsageError(`no ${quantity} estimator supports d = ${sample.dim}; see hhat estimators`);
-        const configured = specs.map(parseEstimatorSpec);
-        for (const c of configured) {
-          if (c.estimator.quantity !== quantity) {
-            throw new UsageError(
-              `${c.estimator.id} estimates ${c.estimator.quantity}, but this call asks for ${quantity}${quantity === 'entropy' ? '' : ` (given by ${quantity === 'divergence' ? '--against' : '--x-columns/--y-columns'})`}`,
-            );
-          }
-          // Checked before estimating, so that asking for the wrong dimension stops the command before any estimate
-          // is made; the default set only holds estimators that support the dimension.
-          checkDimension(c.estimator, sample.dim);
-        }
-        // The limit applies to the default set; to named estimators only when the user gives it.
-        const limitSeconds = givenLimit !== undefined ? givenLimit : named ? null : DEFAULT_MAX_SECONDS;
-        const plans = planRows(configured, sample, limitSeconds);
-        let estimated: EstimateRecord[];
-        try {
-          estimated = estimateAll(sample, configured, base, plans, {
-            seed,
-            onStart: (c, rows) => status.show(`${c.estimator.id} on ${rows === sample.n ? 'all' : rows} of ${sample.n} rows`, true),
-          });
-        } finally {
-          status.clear();
-        }
-        const records = estimated.map((r) => ({
-          ...r,
-          ...(reference ? { relative: r.value === null ? null : r.value + toBase(offset, base) } : {}),
-        }));
-        const label = unitLabel(base, options.unit, sample.dim);
-        const failed = records.filter((r) => r.error);
-        const skipped = records.filter((r) => r.skipped);
-        const cutNotes = records.flatMap((r) =>
-          r.skipped
-            ? [`skipped: ${r.estimator}: ${r.skipped}`]
-            : r.subsample
-              ? [
-                  `subsample: ${r.estimator} ran on a seeded uniform subsample of ${r.subsample.rows} of the ${r.subsample.of} rows (seed ${r.subsample.seed}): ${r.subsample.reason}`,
-                ]
-              : [],
-        );
-        const hints = failed.some((r) => r.code === 'ties') ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
-        // A default-set estimator that cannot run on these data is information about the data, not an error the
-        // user made or asked to hear about; one the user named, or a default set with no value at all, is.
-        const failedAsError = failed.length > 0 && (named || failed.length + skipped.length === records.length);
-        if (options.json) {
-          print(
-            JSON.stringify(
-              {
-                n: sample.n,
-                dim: sample.dim,
-                ...(quantity !== 'entropy' ? { quantity } : {}),
-                ...(sample.xDim !== undefined ? { xDim: sample.xDim } : {}),
-                ...(sample.q ? { qN: sample.q.n } : {}),
-                base,
-                ...(options.unit ? { unit: options.unit, label } : {}),
-                ...(reference ? { reference: describeReference(reference), meanLogReference: toBase(offset, base) } : {}),
-                columns: loaded.columnNames,
-                maxSeconds: limitSeconds,
-                estimates: records,
-                ...(hints.length ? { repeats: hints } : {}),
-              },
-              null,
-              2,
-            ),
-          );
-        } else {
-          print(`${file}: n = ${sample.n}, d = ${sample.dim}${loaded.columnNames.length ? ` (columns ${loaded.columnNames.join(', ')})` : ''}`);
-          const cut = cutNotes.length > 0;
-          const rows = records.map((r) => [
-            r.estimator,
-            Object.entries(r.settings)
-              .map(([k, v]) => `${k}=${v}`)
-              .join(', ') || '–',
-            ...(cut ? [r.skipped ? '–' : r.subsample ? `${r.subsample.rows} (subsample)` : `${sample.n} (all)`] : []),
-            r.skipped ? 'skipped (time)' : r.value === null ? `failed (${r.code})` : formatValue(r.value, 7),
-            ...(reference ? [r.relative === null || r.relative === undefined ? (r.skipped ? 'skipped' : 'failed') : formatValue(r.relative, 7)] : []),
-          ]);
-          const head = [
-            'estimator',
-            'settings used',
-            ...(cut ? ['rows'] : []),
-            `${quantity === 'entropy' ? 'entropy' : quantity} (${quantity === 'entropy' ? label : base})`,
-            ...(reference ? [`relative to ${describeReference(reference)} (${base})`] : []),
-          ];
-          print(renderTable(head, rows, { align: ['left', 'left', ...(cut ? ['right' as const] : []), 'right', 'right'] }));
-          for (const note of cutNotes) print(note);
-          // Failures that are not errors go with the table, so saved output explains its own "failed" rows;
-          // errors go to stderr alone, so a terminal does not show each reason twice.
-          if (!failedAsError) {
-            for (const r of failed) print(`failed: ${failureLine(r)}`);
-            if (hints.length) print(['repeated values in the data:', ...hints.map((h) => `  ${h}`)].join('\n'));
-          }
-        }
-        if (skipped.length === records.length) {
-          printErr(`hhat: no estimate was made: every estimator was skipped under the ${limitSeconds} s limit; raise --max-seconds or give --max-seconds none`);
-          process.exitCode = 1;
-          return;
-        }
-        if (!failed.length) return;
-        if (failedAsError) {
-          for (const r of failed) printErr(`hhat: ${failureLine(r)}`);
-          for (const h of hints) printErr(`  ${h}`);
-          if (!named) printErr(`hhat: none of the ${records.length} default estimators could run on this data`);
-          process.exitCode = 1;
-        } else {
-          printErr(
-            `hhat: note: ${failed.length} of the ${records.length} default estimators could not run on this data (${failed.map((r) => r.estimator).join(', ')}), ` +
-              'which leaves the exit code at 0; name an estimator with --estimator to make its failure an error',
-          );
-        }
-      },
+    .action((file: string, options: EstimateOptions) => runEstimate(file, options, print, printErr));
+}
+
+/** `hhat estimate FILE`: read the sample, choose the estimators, estimate, print, and set the exit code. */
+async function runEstimate(file: string, options: EstimateOptions, print: (text: string) => void, printErr: (text: string) => void): Promise<void> {
+  const base: Base = options.bits ? 'bits' : 'nats';
+  const reference = options.reference === undefined ? undefined : parseReference(options.reference);
+  const givenLimit = options.maxSeconds === undefined ? undefined : parseMaxSeconds(options.maxSeconds);
+  const seed = options.seed === undefined ? DEFAULT_SUBSAMPLE_SEED : parseIntegerOption('--seed', options.seed, 0);
+  const status = statusLine(process.stderr, 'hhat estimate');
+  const load = (columns: string | undefined, path = file) => {
+    try {
+      return readSample(path, { columns, onProgress: (done, total) => status.show(`reading ${path}: ${describeReadProgress(done, total)}`) });
+    } finally {
+      status.clear();
+    }
+  };
+  if (options.estimatorModule?.length) {
+    const note = describeRegistration(await useEstimatorModules(options.estimatorModule.map((m) => resolveModulePath(m))));
+    if (note && !options.json) printErr(note);
+  }
+  const { loaded, sample, quantity } = readEstimateSample(file, options, load);
+  if (reference && quantity !== 'entropy') throw new UsageError('--reference applies to entropy; mutual information and divergences are already unit-free');
+  const offset = reference ? meanLogReference(reference, sample) : 0;
+  const named = Boolean(options.estimator?.length);
+  const specs = named ? options.estimator! : defaultEstimatorsFor(sample.dim, quantity);
+  if (!specs.length) throw new UsageError(`no ${quantity} estimator supports d = ${sample.dim}; see hhat estimators`);
+  const configured = specs.map(parseEstimatorSpec);
+  for (const c of configured) {
+    if (c.estimator.quantity !== quantity) {
+      throw new UsageError(
+        `${c.estimator.id} estimates ${c.estimator.quantity}, but this call asks for ${quantity}${quantity === 'entropy' ? '' : ` (given by ${quantity === 'divergence' ? '--against' : '--x-columns/--y-columns'})`}`,
+      );
+    }
+    // Checked before estimating, so that asking for the wrong dimension stops the command before any estimate
+    // is made; the default set only holds estimators that support the dimension.
+    checkDimension(c.estimator, sample.dim);
+  }
+  // The limit applies to the default set; to named estimators only when the user gives it.
+  const limitSeconds = givenLimit !== undefined ? givenLimit : named ? null : DEFAULT_MAX_SECONDS;
+  const plans = planRows(configured, sample, limitSeconds);
+  let estimated: EstimateRecord[];
+  try {
+    estimated = estimateAll(sample, configured, base, plans, {
+      seed,
+      onStart: (c, rows) => status.show(`${c.estimator.id} on ${rows === sample.n ? 'all' : rows} of ${sample.n} rows`, true),
+    });
+  } finally {
+    status.clear();
+  }
+  const records = estimated.map((r) => ({
+    ...r,
+    ...(reference ? { relative: r.value === null ? null : r.value + toBase(offset, base) } : {}),
+  }));
+  const label = unitLabel(base, options.unit, sample.dim);
+  const failed = records.filter((r) => r.error);
+  const skipped = records.filter((r) => r.skipped);
+  const cutNotes = records.flatMap((r) =>
+    r.skipped
+      ? [`skipped: ${r.estimator}: ${r.skipped}`]
+      : r.subsample
+        ? [
+            `subsample: ${r.estimator} ran on a seeded uniform subsample of ${r.subsample.rows} of the ${r.subsample.of} rows (seed ${r.subsample.seed}): ${r.subsample.reason}`,
+          ]
+        : [],
+  );
+  const hints = failed.some((r) => r.code === 'ties') ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
+  // A default-set estimator that cannot run on these data is information about the data, not an error the
+  // user made or asked to hear about; one the user named, or a default set with no value at all, is.
+  const failedAsError = failed.length > 0 && (named || failed.length + skipped.length === records.length);
+  if (options.json) printEstimateJson(print, { sample, quantity, base, options, label, reference, offset, loaded, limitSeconds, records, hints });
+  else printEstimateTable(print, { file, sample, quantity, base, label, reference, loaded, records, cutNotes, failed, failedAsError, hints });
+  if (skipped.length === records.length) {
+    printErr(`hhat: no estimate was made: every estimator was skipped under the ${limitSeconds} s limit; raise --max-seconds or give --max-seconds none`);
+    process.exitCode = 1;
+    return;
+  }
+  if (!failed.length) return;
+  if (failedAsError) {
+    for (const r of failed) printErr(`hhat: ${failureLine(r)}`);
+    for (const h of hints) printErr(`  ${h}`);
+    if (!named) printErr(`hhat: none of the ${records.length} default estimators could run on this data`);
+    process.exitCode = 1;
+  } else {
+    printErr(
+      `hhat: note: ${failed.length} of the ${records.length} default estimators could not run on this data (${failed.map((r) => r.estimator).join(', ')}), ` +
+        'which leaves the exit code at 0; name an estimator with --estimator to make its failure an error',
     );
+  }
+}
+
+/** The sample as the options ask: all or some columns; X and Y for mutual information; P and Q for a divergence. */
+function readEstimateSample(
+  file: string,
+  options: EstimateOptions,
+  load: (columns: string | undefined, path?: string) => LoadedSample,
+): { loaded: LoadedSample; sample: Sample; quantity: Quantity } {
+  let quantity: Quantity = 'entropy';
+  const mutualInformation = options.xColumns !== undefined || options.yColumns !== undefined;
+  if (mutualInformation) {
+    if (options.xColumns === undefined || options.yColumns === undefined) throw new UsageError('mutual information needs both --x-columns and --y-columns');
+    if (options.columns !== undefined) throw new UsageError('--columns cannot be combined with --x-columns/--y-columns');
+    if (options.against !== undefined) throw new UsageError('--against (a divergence) cannot be combined with --x-columns/--y-columns (mutual information)');
+    const shared = sharedSelection(options.xColumns, options.yColumns);
+    if (shared !== undefined) throw new UsageError(`--x-columns and --y-columns both name column ${showText(shared)}; X and Y must be different columns`);
+  }
+  // For mutual information only X's and Y's columns are read, in that order (other columns may hold text).
+  let loaded = load(mutualInformation ? `${options.xColumns},${options.yColumns}` : options.columns);
+  let sample = loaded.sample;
+  if (mutualInformation) {
+    sample = { ...sample, xDim: selectionWidth(options.xColumns!) };
+    loaded = { ...loaded, sample };
+    quantity = 'mutual-information';
+  } else if (options.against !== undefined) {
+    const q = load(options.columns, options.against);
+    if (q.sample.dim !== sample.dim)
+      throw new UsageError(`${options.against} has ${q.sample.dim} columns and ${file} has ${sample.dim}; a divergence compares samples of the same dimension`);
+    sample = { ...sample, q: q.sample };
+    quantity = 'divergence';
+  }
+  return { loaded, sample, quantity };
+}
+
+interface EstimateOutput {
+  sample: Sample;
+  quantity: Quantity;
+  base: Base;
+  label: string;
+  reference: Reference | undefined;
+  loaded: LoadedSample;
+  records: (EstimateRecord & { relative?: number | null })[];
+  hints: string[];
+}
+
+/** `--json`: the sample's shape, the unit, and every estimate with the settings it used. */
+function printEstimateJson(
+  print: (text: string) => void,
+  {
+    sample,
+    quantity,
+    base,
+    options,
+    label,
+    reference,
+    offset,
+    loaded,
+    limitSeconds,
+    records,
+    hints,
+  }: EstimateOutput & {
+    options: EstimateOptions;
+    offset: number;
+    limitSeconds: number | null;
+  },
+): void {
+  print(
+    JSON.stringify(
+      {
+        n: sample.n,
+        dim: sample.dim,
+        ...(quantity !== 'entropy' ? { quantity } : {}),
+        ...(sample.xDim !== undefined ? { xDim: sample.xDim } : {}),
+        ...(sample.q ? { qN: sample.q.n } : {}),
+        base,
+        ...(options.unit ? { unit: options.unit, label } : {}),
+        ...(reference ? { reference: describeReference(reference), meanLogReference: toBase(offset, base) } : {}),
+        columns: loaded.columnNames,
+        maxSeconds: limitSeconds,
+        estimates: records,
+        ...(hints.length ? { repeats: hints } : {}),
+      },
+      null,
+      2,
+    ),
+  );
+}
+
+/** The table of estimates, with the rows each used when some ran on a subsample, and the failures that are not errors. */
+function printEstimateTable(
+  print: (text: string) => void,
+  {
+    file,
+    sample,
+    quantity,
+    base,
+    label,
+    reference,
+    loaded,
+    records,
+    cutNotes,
+    failed,
+    failedAsError,
+    hints,
+  }: EstimateOutput & {
+    file: string;
+    cutNotes: string[];
+    failed: EstimateRecord[];
+    failedAsError: boolean;
+  },
+): void {
+  print(`${file}: n = ${sample.n}, d = ${sample.dim}${loaded.columnNames.length ? ` (columns ${loaded.columnNames.join(', ')})` : ''}`);
+  const cut = cutNotes.length > 0;
+  const rows = records.map((r) => [
+    r.estimator,
+    Object.entries(r.settings)
+      .map(([k, v]) => `${k}=${v}`)
+      .join(', ') || '–',
+    ...(cut ? [r.skipped ? '–' : r.subsample ? `${r.subsample.rows} (subsample)` : `${sample.n} (all)`] : []),
+    r.skipped ? 'skipped (time)' : r.value === null ? `failed (${r.code})` : formatValue(r.value, 7),
+    ...(reference ? [r.relative === null || r.relative === undefined ? (r.skipped ? 'skipped' : 'failed') : formatValue(r.relative, 7)] : []),
+  ]);
+  const head = [
+    'estimator',
+    'settings used',
+    ...(cut ? ['rows'] : []),
+    `${quantity === 'entropy' ? 'entropy' : quantity} (${quantity === 'entropy' ? label : base})`,
+    ...(reference ? [`relative to ${describeReference(reference)} (${base})`] : []),
+  ];
+  print(renderTable(head, rows, { align: ['left', 'left', ...(cut ? ['right' as const] : []), 'right', 'right'] }));
+  for (const note of cutNotes) print(note);
+  // Failures that are not errors go with the table, so saved output explains its own "failed" rows;
+  // errors go to stderr alone, so a terminal does not show each reason twice.
+  if (!failedAsError) {
+    for (const r of failed) print(`failed: ${failureLine(r)}`);
+    if (hints.length) print(['repeated values in the data:', ...hints.map((h) => `  ${h}`)].join('\n'));
+  }
 }
