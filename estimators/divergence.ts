@@ -15,6 +15,7 @@ import { solveLower } from '../src/math/linalg.js';
 import { type AxisBins, BIN_RULES, type BinRule, axisIndices, binGrid, histogramGrid } from './histogram.js';
 import { columnExtremes, type SpreadUnit, spreadUnitOfExtremes, toUnit } from './shared/scaling.js';
 import { rankKeys, sortAscending } from '../src/math/sort.js';
+import { orderGrid } from './shared/order-grid.js';
 
 /** The P and Q samples after checking both; returns their sizes. */
 export function checkedPair(id: string, sample: Sample): { n: number; m: number; dim: number; p: Float64Array; q: Float64Array } {
@@ -320,8 +321,6 @@ function gaussianDivergenceEstimate(sample: Sample): number {
 }
 
 const KNN_DEFAULT_K = 1;
-/** k = 1..10 (k < n), as for the entropy estimator the method extends. */
-const KNN_TUNING_K = [1, 2, 3, 4, 5, 6, 7, 8, 9, 10];
 
 export const divergenceEstimators: Estimator[] = [
   defineEstimator({
@@ -338,7 +337,7 @@ export const divergenceEstimators: Estimator[] = [
       affine:
         'ratios of Euclidean distances are kept by a rescaling, shift or rotation, but not by a linear map that shears or stretches coordinates unequally',
     },
-    tuning: (_base, n) => [{ setting: 'k', values: KNN_TUNING_K.filter((k) => k < n) }],
+    tuning: orderGrid(),
     defaultFor: { estimate: true, bench: true },
     estimate(sample, { k }) {
       const id = 'knn-divergence';

@@ -38,6 +38,7 @@ import { nearestNeighbourEstimators } from './nearest-neighbour.js';
 import { logDeterminantSpd, parametricEstimators, scatterMatrix, wishartLogDetShift } from './parametric.js';
 import { inSpreadUnit } from './shared/scaling.js';
 import { spacingEstimators } from './spacing.js';
+import { orderGrid } from './shared/order-grid.js';
 
 const KSG_REFERENCE = 'Kraskov, A., Stögbauer, H. & Grassberger, P. (2004). Estimating mutual information. Physical Review E 69, 066138';
 
@@ -328,8 +329,6 @@ function extentsOver(
 }
 
 const KSG_DEFAULT_K = 3;
-/** k = 1..10 (k < n): Kraskov et al. (2004) use k = 2..4 and show the bias and variance trade over this range. */
-const KSG_TUNING_K = [1, 2, 3, 4, 5, 6, 7, 8, 9, 10];
 
 function ksgEstimator(variant: 1 | 2): Estimator {
   const id = `ksg${variant}`;
@@ -344,7 +343,7 @@ function ksgEstimator(variant: 1 | 2): Estimator {
     settings: [{ name: 'k', meaning: 'neighbour order in the joint (X, Y) space', default: KSG_DEFAULT_K, kind: 'integer', min: 1 }, COPULA_SETTING],
     dims: [2, Infinity],
     reference: `${KSG_REFERENCE}, estimator (${variant === 1 ? 8 : 9}).`,
-    tuning: (_base, n) => [{ setting: 'k', values: KSG_TUNING_K.filter((k) => k < n) }],
+    tuning: orderGrid(),
     defaultFor: IN_DEFAULT_SETS,
     estimate(sample, { k, copula }) {
       const { data, n, xDim, yDim } = prepared(id, sample, copula);

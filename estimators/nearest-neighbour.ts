@@ -16,6 +16,7 @@ import { SampleMemo } from './shared/sample-memo.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { checkFiniteValues } from '../src/core/sample.js';
 import { inSpreadUnit, rowsDifferingFromPartners } from './shared/scaling.js';
+import { orderGrid } from './shared/order-grid.js';
 
 const NORMS = ['euclidean', 'max'] as const;
 
@@ -366,8 +367,6 @@ const KL_DEFAULT_K = 3;
  */
 const WEIGHTED_DEFAULT_K = 12;
 
-/** k = 1..10 (k < n): from the least-biased, noisiest order to a smooth one. */
-const KL_TUNING_K = [1, 2, 3, 4, 5, 6, 7, 8, 9, 10];
 /** The weighted estimator's largest order: 2..20, enough orders ⌊ℓk/d⌋ for the weights in the plans' dimensions. */
 const WEIGHTED_TUNING_K = [2, 4, 6, 8, 12, 16, 20];
 
@@ -391,7 +390,7 @@ export const nearestNeighbourEstimators: Estimator[] = [
     reference:
       'Kozachenko, L. F. & Leonenko, N. N. (1987). Sample estimate of the entropy of a random vector. Problems of Information Transmission 23(2), 95–101; ' +
       'general k as in Kraskov, A., Stögbauer, H. & Grassberger, P. (2004). Estimating mutual information. Physical Review E 69, 066138, eq. (20).',
-    tuning: (_base, n) => [{ setting: 'k', values: KL_TUNING_K.filter((k) => k < n) }],
+    tuning: orderGrid(),
     defaultFor: { estimate: [{ order: 10 }], bench: true },
     estimate(sample, { k, norm }) {
       return kozachenkoLeonenkoEntropy(sample.data.subarray(0, sample.n * sample.dim), sample.dim, k, norm, 'kozachenko-leonenko');
@@ -415,7 +414,7 @@ export const nearestNeighbourEstimators: Estimator[] = [
     dims: [1, Infinity],
     reference:
       'Berrett, T. B., Samworth, R. J. & Yuan, M. (2019). Efficient multivariate entropy estimation via k-nearest neighbour distances. The Annals of Statistics 47(1), 288–318.',
-    tuning: (_base, n) => [{ setting: 'k', values: WEIGHTED_TUNING_K.filter((k) => k < n) }],
+    tuning: orderGrid(WEIGHTED_TUNING_K),
     // In d = 1 it is the plain estimator at k = 12 (one order); from d = 4 its bias cancellation makes it the first choice.
     defaultFor: {
       estimate: [
