@@ -35,6 +35,15 @@ export function describeFileError(error: unknown, action: string, path: string):
   }
 }
 
+/** Why a file could not be read, in words (a data file, a plan): no such file, a folder, no permission, or the system's first line. */
+export function readFailureReason(error: unknown): string {
+  const code = (error as NodeJS.ErrnoException).code;
+  if (code === 'ENOENT') return 'no such file';
+  if (code === 'EISDIR') return 'it is a directory';
+  if (code === 'EACCES' || code === 'EPERM') return 'permission denied';
+  return (error as Error).message?.split('\n')[0] ?? String(error);
+}
+
 function fail(error: unknown, action: string, path: string, hint?: string): never {
   throw new EnvironmentError(`${describeFileError(error, action, path)}${hint ? `; ${hint}` : ''}`);
 }

@@ -10,6 +10,7 @@
 import { closeSync, fstatSync, openSync, readFileSync, statSync } from 'node:fs';
 import { extname } from 'node:path';
 import { UsageError } from '../core/errors.js';
+import { readFailureReason } from '../core/files.js';
 import { readDelimitedFile, type Delimiter } from './delimited.js';
 import { parseJson } from './json.js';
 import { parseNpy } from './npy.js';
@@ -122,14 +123,5 @@ function readBytes(path: string): Buffer {
 }
 
 function readError(path: string, error: unknown): UsageError {
-  const code = (error as NodeJS.ErrnoException).code;
-  const reason =
-    code === 'ENOENT'
-      ? 'no such file'
-      : code === 'EISDIR'
-        ? 'it is a directory'
-        : code === 'EACCES' || code === 'EPERM'
-          ? 'permission denied'
-          : ((error as Error).message.split('\n')[0] ?? 'unknown error');
-  return new UsageError(`cannot read data file ${path}: ${reason}`);
+  return new UsageError(`cannot read data file ${path}: ${readFailureReason(error)}`);
 }

@@ -9,6 +9,7 @@ import type { ErrorObject, ValidateFunction } from 'ajv/dist/2020.js';
 import { loadAjv } from '../core/schema-validator.js';
 import type { Quantity, Scenario } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
+import { readFailureReason } from '../core/files.js';
 import { DEFAULT_SEED } from '../core/rng.js';
 import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from '../../estimators/index.js';
 import { parseScenario } from '../../scenarios/index.js';
@@ -175,16 +176,7 @@ export function readTextFile(path: string, what: string): string {
   try {
     return readFileSync(path, 'utf8');
   } catch (error) {
-    const code = (error as NodeJS.ErrnoException).code;
-    const why =
-      code === 'ENOENT'
-        ? 'no such file'
-        : code === 'EISDIR'
-          ? 'it is a directory'
-          : code === 'EACCES' || code === 'EPERM'
-            ? 'permission denied'
-            : (code ?? String(error));
-    throw new UsageError(`cannot read ${what} ${path}: ${why}`);
+    throw new UsageError(`cannot read ${what} ${path}: ${readFailureReason(error)}`);
   }
 }
 
