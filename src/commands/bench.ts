@@ -2,6 +2,8 @@ import { existsSync, readdirSync, readFileSync, rmSync, statSync } from 'node:fs
 import { COMMANDS } from './summaries.js';
 import { dirname, join, resolve } from 'node:path';
 import { describeRegistration, QUANTITIES, resolveModulePath, useEstimatorModules } from '../harness/modules.js';
+import { normalizeCommand, parseCommandOption, type CommandInput } from '../harness/external/declaration.js';
+import { useEstimatorCommands } from '../harness/external/client.js';
 import type { Command } from 'commander';
 import { UsageError } from '../core/errors.js';
 import type { Quantity } from '../core/contracts.js';
@@ -10,6 +12,7 @@ import type { Base } from '../core/format.js';
 import { defaultPlan } from '../harness/default-plan.js';
 import {
   collect,
+  DEFAULT_LIMITS,
   MAX_REPLICATES,
   parseFraction,
   planFingerprint,
@@ -52,6 +55,7 @@ interface BenchOptions {
   robustnessN?: string;
   tuning?: boolean;
   estimatorModule?: string[];
+  estimatorCommand?: string[];
   bits?: boolean;
   detail?: boolean;
   quiet?: boolean;
@@ -109,6 +113,16 @@ export function planInputFromOptions(options: BenchOptions): PlanInput {
     }
     // Module paths in a plan file are relative to the file.
     if (input.modules) input.modules = input.modules.map((m) => resolveModulePath(m, dirname(resolve(options.plan!))));
+    if (input.commands?.length) {
+      if (!options.allowPlanModules) {
+        throw new UsageError(
+          `${options.plan} names estimator commands (${input.commands.map((c) => c.id).join(', ')}), which are programs that run with your rights; read them, then add --allow-plan-modules to start them (or pass them with --estimator-command)`,
+        );
+      }
+      // A plan file's entries are raw (a command line as a string, settings by name); commands run in the file's folder by default.
+      const raw = input.commands as unknown as CommandInput[];
+      input.commands = raw.map((c, i) => normalizeCommand(c, input.quantity ?? 'entropy', dirname(resolve(options.plan!)), `${options.plan}: commands[${i}]`));
+    }
   } else {
     if (options.quantity !== undefined && !(QUANTITIES as readonly string[]).includes(options.quantity)) {
       throw new UsageError(`--quantity ${options.quantity} is not allowed; use one of ${QUANTITIES.join(', ')}`);
@@ -134,6 +148,15 @@ export function planInputFromOptions(options: BenchOptions): PlanInput {
   if (options.level !== undefined) input.verdicts = { ...input.verdicts, level: parseLevel(options.level) };
   if (options.maxFailureRate !== undefined) input.verdicts = { ...input.verdicts, maxFailureRate: parseFraction('--max-failure-rate', options.maxFailureRate) };
   if (options.estimatorModule?.length) input.modules = [...(input.modules ?? []), ...options.estimatorModule.map((m) => resolveModulePath(m))];
+  if (options.estimatorCommand?.length) {
+    const declared = options.estimatorCommand.map((text) =>
+      normalizeCommand(parseCommandOption(text), input.quantity ?? 'entropy', process.cwd(), `--estimator-command ${text}`),
+    );
+    input.commands = [...(input.commands ?? []), ...declared];
+  }
+  const ids = (input.commands ?? []).map((c) => c.id);
+  const twice = ids.find((id, i) => ids.indexOf(id) !== i);
+  if (twice) throw new UsageError(`estimator command "${twice}" is declared twice; each id may be declared once`);
   const wantsRobustness = options.robustness || options.perturb?.length || options.robustnessN !== undefined || options.tuning === false;
   if (wantsRobustness) {
     input.robustness = {
@@ -217,7 +240,15 @@ function declareBenchOptions(command: Command): Command {
     .option('--robustness-n <n>', 'the sample size of the robustness section (one of --n; default: the largest up to 1000)')
     .option('--no-tuning', 'leave the tuning grids out of the robustness section')
     .option('--estimator-module <file>', 'load estimators from a JavaScript module (repeatable); an id matching a built-in replaces it', collect)
-    .option('--allow-plan-modules', 'load the estimator modules a --plan file names (they are code that runs with your rights)')
+    .option(
+      '--estimator-command <id=command>',
+      'run an estimator written in any language: ID=PROGRAM [ARG...] speaking hhat\'s estimator protocol (repeatable; README, "Estimators in other languages"); it joins the plan\'s estimators',
+      collect,
+    )
+    .option(
+      '--allow-plan-modules',
+      'load the estimator modules and start the estimator commands a --plan file names (they are code that runs with your rights)',
+    )
     .option('--level <c>', 'confidence level of each cell\'s best set (default 0.95; README, "Ranks and the best set")')
     .option('--max-failure-rate <p>', "an estimator failing on a larger share of a cell's replicates is ranked last there (default 0: any failure)")
     .option('--csv <file>', 'also write the score table as CSV')
@@ -245,6 +276,7 @@ function benchOutPath(options: BenchOptions, shard: Shard | undefined): string {
 async function benchPlan(options: BenchOptions, workers: number, printErr: (text: string) => void): Promise<Plan> {
   const input = planInputFromOptions(options);
   const registration = await useEstimatorModules(input.modules ?? []);
+  useEstimatorCommands(input.commands, { ...DEFAULT_LIMITS, ...input.limits });
   const note = describeRegistration(registration);
   if (note && !options.quiet) printErr(note);
   // Errors name where the plan came from: the plan file, or the flags.

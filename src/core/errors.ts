@@ -38,3 +38,12 @@ export function isEstimateError(error: unknown): error is EstimateError {
 export class EnvironmentError extends Error {
   override name = 'EnvironmentError';
 }
+
+/**
+ * An estimator command (an external program, src/harness/external/) gave no value for this estimate: it could
+ * not be started, exited, timed out, or broke the protocol. The run records it as the estimate's failure (its
+ * name is the failure's prefix); the CLI prints it as one line and exits 1.
+ */
+export class CommandError extends EnvironmentError {
+  override name = 'command';
+}

@@ -15,6 +15,7 @@ import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from
 import { parseScenario } from '../../scenarios/index.js';
 import { parsePerturbation } from './perturb.js';
 import { codeIdentity, moduleGraph, type CodeIdentity } from './code-identity.js';
+import { commandDigest, type CommandDeclaration } from './external/declaration.js';
 import planSchema from '../schemas/plan.schema.json' with { type: 'json' };
 
 /** How verdicts are reached (README, "Ranks and the best set"): part of a plan, so a run file states them. */
@@ -41,6 +42,11 @@ export interface Plan {
   robustness: RobustnessPlan | null;
   /** Absolute paths of the user's estimator modules, loaded before the plan resolves (and in every worker). */
   modules: string[];
+  /**
+   * Estimator commands (external programs, src/harness/external/), registered before the plan resolves (and in
+   * every worker). Absent in run files written before commands existed.
+   */
+  commands?: CommandDeclaration[];
   /** How ranks and best sets are decided; not part of the fingerprint, since they change no estimate. */
   verdicts: VerdictSettings;
   /** Per-estimate time and per-worker memory limits; an estimate that exceeds one is a failure with its reason. */
@@ -108,6 +114,8 @@ export interface PlanInput {
   seed?: number;
   robustness?: { sampleSize?: number; perturbations?: string[]; tuning?: boolean } | null;
   modules?: string[];
+  /** Normalised declarations (see normalizeCommand); a plan file's raw entries are normalised by the bench command. */
+  commands?: CommandDeclaration[];
   verdicts?: Partial<VerdictSettings>;
   limits?: Partial<Limits>;
 }
@@ -202,7 +210,10 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
       throw error;
     }
   });
-  const estimators = input.estimators.map((entry, i) => {
+  // A declared command that no estimator entry names runs with its default settings: declaring it is asking for it.
+  const named = new Set(input.estimators.map((e) => (typeof e === 'string' ? e.split(':')[0] : e.id)));
+  const entries = [...input.estimators, ...(input.commands ?? []).filter((c) => !named.has(c.id)).map((c) => c.id)];
+  const estimators = entries.map((entry, i) => {
     try {
       return typeof entry === 'string' ? parseEstimatorSpec(entry) : configureEstimator(entry.id, entry.settings ?? {});
     } catch (error) {
@@ -250,6 +261,7 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
     seed: input.seed ?? DEFAULT_SEED,
     robustness,
     modules: input.modules ?? [],
+    ...(input.commands?.length ? { commands: input.commands } : {}),
     verdicts: { ...DEFAULT_VERDICTS, ...input.verdicts },
     limits: { ...DEFAULT_LIMITS, ...input.limits },
   };
@@ -268,10 +280,14 @@ function dedupe(list: string[]): string[] {
 export interface PlanCode {
   hhat: CodeIdentity;
   modules: { path: string; digest: string }[];
+  /** Each estimator command: its declaration and the files it names (absent when the plan has none). */
+  commands?: { id: string; digest: string }[];
 }
 
 export function planCode(plan: Plan): PlanCode {
-  return { hhat: codeIdentity(), modules: plan.modules.map((path) => ({ path, digest: moduleGraph(path).digest })) };
+  const code: PlanCode = { hhat: codeIdentity(), modules: plan.modules.map((path) => ({ path, digest: moduleGraph(path).digest })) };
+  if (plan.commands?.length) code.commands = plan.commands.map((c) => ({ id: c.id, digest: commandDigest(c) }));
+  return code;
 }
 
 /**
@@ -318,6 +334,14 @@ export function codeDifference(made: PlanCode, now: PlanCode): string | null {
       reasons.push(`module ${m.path} or a file it imports changed since (digest ${was.slice(0, 12)} then, ${m.digest.slice(0, 12)} now)`);
   }
   for (const path of before.keys()) if (!now.modules.some((m) => m.path === path)) reasons.push(`it used module ${path}, which this run does not`);
+  const commandsThen = new Map((made.commands ?? []).map((c) => [c.id, c.digest]));
+  for (const c of now.commands ?? []) {
+    const was = commandsThen.get(c.id);
+    if (was === undefined) reasons.push(`estimator command ${c.id} was not in it`);
+    else if (was !== c.digest) reasons.push(`estimator command ${c.id} (its command line, folder, settings or a file it names) changed since`);
+  }
+  for (const id of commandsThen.keys())
+    if (!(now.commands ?? []).some((c) => c.id === id)) reasons.push(`it used estimator command ${id}, which this run does not`);
   return reasons.length ? reasons.join('; ') : null;
 }
 

@@ -11,7 +11,12 @@ export interface WorkerJob {
   skip: { series: number; replicate: number }[];
 }
 
-export type WorkerMessage = { kind: 'ready' } | { kind: 'replicate'; unit: number; result: ReplicateResult } | { kind: 'unit-done'; unit: number };
+export type WorkerMessage =
+  | { kind: 'ready' }
+  | { kind: 'replicate'; unit: number; result: ReplicateResult }
+  | { kind: 'unit-done'; unit: number }
+  /** The worker started an estimator command's process, whose temporary files are in `folder`. */
+  | { kind: 'command'; pid: number; folder: string };
 
 /**
  * slots: [running series or −1, its replicate, blamed series or −1, its replicate, its unit];

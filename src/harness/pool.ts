@@ -11,6 +11,7 @@
  *
  *   const interrupted = await runOnPool(plan, units, { size: 2, entry, onResult, signal });
  */
+import { rmSync } from 'node:fs';
 import { Worker } from 'node:worker_threads';
 import { EnvironmentError, UsageError } from '../core/errors.js';
 import { estimateTimeLimit, type Plan } from './plan.js';
@@ -47,6 +48,8 @@ interface Slot {
   /** Why the supervisor stopped it (a time-out), so its exit is reported with that reason. */
   stopReason: string | null;
   dead: boolean;
+  /** Estimator-command processes the worker started, and their temporary folders: stopped and removed when it ends. */
+  commands: { pid: number; folder: string }[];
 }
 
 /** The supervisor's state: the jobs not yet handed out, the live workers, and how the run ends. */
@@ -159,6 +162,10 @@ function onDeath(run: Supervisor, slot: Slot, reason: string): void {
 
 /** Follows a worker's messages: ready (give it work), a replicate (keep it), its unit done (report it, give it more). */
 function onMessage(run: Supervisor, slot: Slot, message: WorkerMessage): void {
+  if (message.kind === 'command') {
+    slot.commands.push({ pid: message.pid, folder: message.folder });
+    return;
+  }
   if (run.finished || slot.dead) return;
   if (message.kind === 'ready') {
     slot.ready = true;
@@ -191,6 +198,19 @@ function errorReason(plan: Plan, error: Error & { code?: string }): string {
     : `an error escaped the estimator (thrown asynchronously or while loading): ${error.message.split('\n')[0]}`;
 }
 
+/** Kills the estimator-command processes a worker started (a stopped worker cannot) and removes their temporary files. */
+function stopCommands(slot: Slot): void {
+  for (const { pid, folder } of slot.commands) {
+    try {
+      process.kill(pid, 'SIGKILL');
+    } catch {
+      // Already gone.
+    }
+    rmSync(folder, { recursive: true, force: true });
+  }
+  slot.commands = [];
+}
+
 /** Starts a worker thread with its marker and heap limit, and supervises it until it dies. */
 function startWorker(run: Supervisor): void {
   if (run.finished) return;
@@ -201,11 +221,12 @@ function startWorker(run: Supervisor): void {
     workerData: { plan, marker },
     resourceLimits: { maxOldGenerationSizeMb: plan.limits.workerMemoryMiB },
   });
-  const slot: Slot = { thread, slots, clock, ready: false, job: null, stopReason: null, dead: false };
+  const slot: Slot = { thread, slots, clock, ready: false, job: null, stopReason: null, dead: false, commands: [] };
   run.workers.add(slot);
   thread.on('message', (message: WorkerMessage) => onMessage(run, slot, message));
   thread.on('error', (error: Error & { code?: string }) => onDeath(run, slot, errorReason(plan, error)));
   thread.on('exit', (code) => {
+    stopCommands(slot);
     onDeath(run, slot, slot.stopReason ?? `the estimator ended its worker thread (exit code ${code})`);
   });
 }

@@ -15,6 +15,7 @@ import { buildContext } from './context.js';
 import type { Plan } from './plan.js';
 import { executeReplicate, type Unit } from './work.js';
 import { useEstimatorModules } from './modules.js';
+import { onCommandStarted, useEstimatorCommands } from './external/client.js';
 import { markerViews, type WorkerJob, type WorkerMessage } from './pool-protocol.js';
 
 const { plan, marker } = workerData as { plan: Plan; marker: SharedArrayBuffer };
@@ -75,11 +76,16 @@ process.nextTick = wrapScheduler(process.nextTick);
 
 // The user's estimators must be registered here too before the plan's estimator specs resolve.
 await useEstimatorModules(plan.modules);
+useEstimatorCommands(plan.commands, plan.limits);
 const context = buildContext(plan);
 
 function post(message: WorkerMessage, transfer: ArrayBuffer[] = []): void {
   parentPort!.postMessage(message, transfer);
 }
+
+// A stopped thread cannot stop the command processes it started (a sleeping one never reads its closed stdin):
+// the supervisor kills them and removes their folder when this thread ends.
+onCommandStarted((pid, folder) => post({ kind: 'command', pid, folder }));
 
 /**
  * Lets what the replicate's estimates left behind run, and fail, before the replicate is reported: one
