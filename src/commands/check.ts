@@ -1,12 +1,12 @@
 import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
-import type { Estimator, SettingValue } from '../core/contracts.js';
+import type { Estimator, Quantity, SettingValue } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
 import { runConformance } from '../analysis/conformance.js';
 import { failedChecks, formatConformanceJson, formatConformanceText } from '../views/conformance.js';
 import { loadEstimatorModules } from '../harness/modules.js';
 import { collect } from '../core/options.js';
-import { parseSpec } from '../core/spec.js';
+import { parseSpec, QUANTITIES } from '../core/spec.js';
 import { listEstimators } from '../../estimators/index.js';
 
 const exitCodesHelp = `
@@ -25,6 +25,19 @@ function chosen(candidates: Estimator[], specs: string[] | undefined, where: str
   });
 }
 
+/** The --estimator-command estimators, registered (loaded only when given). */
+async function commandEstimators(texts: string[], quantity: string): Promise<Estimator[]> {
+  if (!(QUANTITIES as readonly string[]).includes(quantity)) throw new UsageError(`--quantity ${quantity} is not allowed; use one of ${QUANTITIES.join(', ')}`);
+  const [{ normalizeCommand, parseCommandOption }, { useEstimatorCommands }] = await Promise.all([
+    import('../harness/external/declaration.js'),
+    import('../harness/external/client.js'),
+  ]);
+  const ids = useEstimatorCommands(
+    texts.map((text) => normalizeCommand(parseCommandOption(text), quantity as Quantity, process.cwd(), `--estimator-command ${text}`)),
+  );
+  return listEstimators().filter((e) => ids.includes(e.id));
+}
+
 export function registerCheckCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
   program
     .command('check')
@@ -35,11 +48,22 @@ export function registerCheckCommand(program: Command, print: (text: string) => 
       'ID[:key=value,...]: check only this estimator, with these settings (repeatable; default: every one, default settings)',
       collect,
     )
-    .option('--json', 'print the reports as JSON, with the suite sizes and tolerances')
+    .option(
+      '--estimator-command <id=command>',
+      "check an estimator written in any language: ID=PROGRAM [ARG...] speaking hhat's estimator protocol (repeatable; instead of MODULE)",
+      collect,
+    )
+    .option('--quantity <q>', 'what the --estimator-command estimators measure: entropy, mutual-information or divergence', 'entropy')
     .addHelpText('after', exitCodesHelp)
-    .action(async (module: string | undefined, options: { estimator?: string[]; json?: boolean }) => {
-      const candidates = module === undefined ? listEstimators() : await loadEstimatorModules([module]);
-      const targets = chosen(candidates, options.estimator, module === undefined ? 'hhat' : `estimator module ${module}`);
+    .action(async (module: string | undefined, options: { estimator?: string[]; json?: boolean; estimatorCommand?: string[]; quantity: string }) => {
+      if (module !== undefined && options.estimatorCommand?.length) throw new UsageError('give an estimator MODULE or --estimator-command, not both');
+      const candidates = options.estimatorCommand?.length
+        ? await commandEstimators(options.estimatorCommand, options.quantity)
+        : module === undefined
+          ? listEstimators()
+          : await loadEstimatorModules([module]);
+      const where = options.estimatorCommand?.length ? '--estimator-command' : module === undefined ? 'hhat' : `estimator module ${module}`;
+      const targets = chosen(candidates, options.estimator, where);
       const reports = targets.map(({ estimator, settings }) => runConformance(estimator, { settings }));
       print(options.json ? formatConformanceJson(reports, module ?? null) : formatConformanceText(reports));
       const failed = failedChecks(reports);

@@ -8,6 +8,7 @@ import { describeReference, meanLogReference, parseReference, type Reference } f
 import { unitLabel } from '../core/units.js';
 import { describeRegistration, resolveModulePath, useEstimatorModules } from '../harness/modules.js';
 import type { Quantity, Sample, Settings } from '../core/contracts.js';
+import type { CommandDeclaration } from '../harness/external/declaration.js';
 import { collect, parseIntegerOption } from '../core/options.js';
 import { checkDimension, defaultSet, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
 import { describeSeconds, predictedSeconds, rowsWithin } from '../harness/cost-model.js';
@@ -149,6 +150,7 @@ type EstimateOptions = {
   unit?: string;
   reference?: string;
   estimatorModule?: string[];
+  estimatorCommand?: string[];
   xColumns?: string;
   yColumns?: string;
   against?: string;
@@ -169,6 +171,11 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     .option('--unit <name>', 'the unit the data are recorded in, for labelling: values are relative to 1 unit^d (see hhat convert)')
     .option('--reference <m>', 'also give the entropy relative to a reference density m: unit:W, uniform:a,b or gaussian (minus the negentropy)')
     .option('--estimator-module <file>', 'load estimators from a JavaScript module (repeatable)', collect)
+    .option(
+      '--estimator-command <id=command>',
+      "an estimator written in any language: ID=PROGRAM [ARG...] speaking hhat's estimator protocol (repeatable); it joins the estimators",
+      collect,
+    )
     .option('--x-columns <list>', 'mutual information between these columns (X) ...')
     .option('--y-columns <list>', '... and these (Y)')
     .option('--against <file>', 'a divergence D(P || Q): FILE holds the sample from P, this file the sample from Q')
@@ -183,6 +190,17 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     .option('--seed <s>', `seed of the row subsamples that --max-seconds may call for (default ${DEFAULT_SUBSAMPLE_SEED})`)
     .addHelpText('after', exitCodesHelp)
     .action((file: string, options: EstimateOptions) => runEstimate(file, options, print, printErr));
+}
+
+/** Registers the --estimator-command estimators (loaded only when given: most calls have none) and returns their declarations. */
+async function declareCommands(texts: string[], quantity: Quantity): Promise<CommandDeclaration[]> {
+  const [{ normalizeCommand, parseCommandOption }, { useEstimatorCommands }] = await Promise.all([
+    import('../harness/external/declaration.js'),
+    import('../harness/external/client.js'),
+  ]);
+  const declarations = texts.map((text) => normalizeCommand(parseCommandOption(text), quantity, process.cwd(), `--estimator-command ${text}`));
+  useEstimatorCommands(declarations);
+  return declarations;
 }
 
 /** `hhat estimate FILE`: read the sample, choose the estimators, estimate, print, and set the exit code. */
@@ -206,8 +224,11 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   const { loaded, sample, quantity } = readEstimateSample(file, options, load);
   if (reference && quantity !== 'entropy') throw new UsageError('--reference applies to entropy; mutual information and divergences are already unit-free');
   const offset = reference ? meanLogReference(reference, sample) : 0;
+  const commands = options.estimatorCommand?.length ? await declareCommands(options.estimatorCommand, quantity) : [];
   const named = Boolean(options.estimator?.length);
-  const specs = named ? options.estimator! : defaultEstimatorsFor(sample.dim, quantity);
+  const listed = named ? options.estimator! : defaultEstimatorsFor(sample.dim, quantity);
+  // A command the user declared runs, with its defaults, unless --estimator already names it.
+  const specs = [...listed, ...commands.map((c) => c.id).filter((id) => !listed.some((spec) => spec.split(':')[0] === id))];
   if (!specs.length) throw new UsageError(`no ${quantity} estimator supports d = ${sample.dim}; see hhat estimators`);
   const configured = specs.map(parseEstimatorSpec);
   for (const c of configured) {

@@ -3,7 +3,8 @@ export class UsageError extends Error {
   override name = 'UsageError';
 }
 
-export const ESTIMATE_ERROR_CODES = ['too-few-points', 'ties', 'dimension', 'invalid-input', 'numeric'] as const;
+/** 'command': an estimator command (an external program) gave no value (see CommandError). */
+export const ESTIMATE_ERROR_CODES = ['too-few-points', 'ties', 'dimension', 'invalid-input', 'numeric', 'command'] as const;
 export type EstimateErrorCode = (typeof ESTIMATE_ERROR_CODES)[number];
 
 /**
@@ -41,9 +42,11 @@ export class EnvironmentError extends Error {
 
 /**
  * An estimator command (an external program, src/harness/external/) gave no value for this estimate: it could
- * not be started, exited, timed out, or broke the protocol. The run records it as the estimate's failure (its
- * name is the failure's prefix); the CLI prints it as one line and exits 1.
+ * not be started, exited, timed out, broke the protocol, or reported an error of its own. A run records it as
+ * the estimate's failure ("command: ..."); `hhat estimate` shows it in the estimator's row.
  */
-export class CommandError extends EnvironmentError {
-  override name = 'command';
+export class CommandError extends EstimateError {
+  constructor(message: string) {
+    super('command', message);
+  }
 }
