@@ -272,7 +272,8 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   const hints = failed.some((r) => r.code === 'ties') ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
   // A default-set estimator that cannot run on these data is information about the data, not an error the
   // user made or asked to hear about; one the user named, or a default set with no value at all, is.
-  const failedAsError = failed.length > 0 && (named || failed.length + skipped.length === records.length);
+  const declared = new Set(commands.map((c) => c.id));
+  const failedAsError = failed.length > 0 && (named || failed.some((r) => declared.has(r.estimator)) || failed.length + skipped.length === records.length);
   if (options.json) printEstimateJson(print, { sample, quantity, base, options, label, reference, offset, loaded, limitSeconds, records, hints });
   else printEstimateTable(print, { file, sample, quantity, base, label, reference, loaded, records, cutNotes, failed, failedAsError, hints });
   if (skipped.length === records.length) {

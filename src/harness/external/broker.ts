@@ -75,7 +75,7 @@ function start(declaration: CommandDeclaration): Running {
   child.stdin.on('error', () => undefined);
   child.on('error', (error: NodeJS.ErrnoException) => {
     const hint = error.code === 'ENOENT' ? ' (no such program, or its working folder is gone)' : error.code === 'EACCES' ? ' (not executable)' : '';
-    proc.ended ??= `could not be started: ${error.message}${hint}; the command is ${quoteCommand(declaration)} in ${declaration.cwd}`;
+    proc.ended ??= `could not be started: ${error.message}${hint}; the command is \`${quoteCommand(declaration)}\` in ${declaration.cwd}`;
     wake();
   });
   child.on('exit', (code, killedBy) => {
@@ -146,7 +146,7 @@ async function started(ask: BrokerAsk): Promise<Running> {
     throw new Failure(`${declaration.id} ${why}${tail}`);
   };
   if (timedOut) fail(`did not answer hhat's hello within ${ask.limitText}`);
-  if (line === null) fail(`${proc.ended} before answering hhat's hello`);
+  if (line === null) fail(proc.ended!.startsWith('could not be started') ? proc.ended! : `${proc.ended} before answering hhat's hello`);
   const reply = parse(line!);
   if (!reply) fail(`answered hhat's hello with a line that is not a JSON object: ${shown(line!)}`);
   if (typeof reply!.error === 'string') fail(`refused to start: ${reply!.error}`);
@@ -194,6 +194,9 @@ port.on('message', (ask: BrokerAsk | { close: true }) => {
     return;
   }
   estimate(ask).then(answer, (error: unknown) =>
-    answer({ ok: false, reason: error instanceof Failure ? `${error.message}; it restarts for the next estimate` : `the broker failed: ${String(error)}` }),
+    answer({
+      ok: false,
+      reason: error instanceof Failure ? `${error.message}; hhat starts it again for the next estimate` : `the broker failed: ${String(error)}`,
+    }),
   );
 });

@@ -53,14 +53,17 @@ function cleanUp(): void {
   if (folder) rmSync(folder, { recursive: true, force: true });
 }
 
+let cleanUpRegistered = false;
+
 function openBridge(): Bridge {
+  if (!cleanUpRegistered) process.once('exit', cleanUp);
+  cleanUpRegistered = true;
   const channel = new MessageChannel();
   const flag = new SharedArrayBuffer(4);
   const broker = new Worker(brokerEntry(), { workerData: { port: channel.port2, flag }, transferList: [channel.port2] });
   // Neither the broker nor its port may keep a finished command alive.
   broker.unref();
   channel.port1.unref();
-  if (!bridge && !folder) process.once('exit', cleanUp);
   return { broker, port: channel.port1, signal: new Int32Array(flag) };
 }
 

@@ -1,0 +1,216 @@
+/**
+ * Estimator commands (src/harness/external/): declarations, the protocol's faults as failures with their reasons
+ * (the rest of the run intact), no process or temporary file left behind, and the consent and fingerprint rules.
+ */
+import { spawnSync } from 'node:child_process';
+import { copyFileSync, existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { beforeAll, describe, expect, it } from 'vitest';
+import { ensureBuilt } from './helpers/built.js';
+import { commandDigest, normalizeCommand, parseCommandOption, splitCommandLine } from '../src/harness/external/declaration.js';
+import { codeDifference, type PlanCode } from '../src/harness/plan.js';
+import type { RunFile } from '../src/analysis/results.js';
+
+const root = join(__dirname, '..');
+const bin = join(root, 'bin', 'hhat.js');
+const faulty = join(root, 'test', 'fixtures', 'faulty_command.py');
+const dir = mkdtempSync(join(tmpdir(), 'hhat-commands-test-'));
+
+function hhat(args: string[], env: Record<string, string> = {}): { code: number; out: string; err: string } {
+  const result = spawnSync(process.execPath, [bin, ...args], { cwd: dir, encoding: 'utf8', env: { ...process.env, ...env }, timeout: 120_000 });
+  return { code: result.status ?? -1, out: result.stdout, err: result.stderr };
+}
+
+beforeAll(() => ensureBuilt(['src/harness/external/client.ts', 'src/harness/external/broker.ts', 'src/commands/bench.ts', 'src/commands/estimate.ts']));
+
+describe('declarations', () => {
+  it('splits a command line as a shell would for words, quotes and backslashes (no shell runs it)', () => {
+    expect(splitCommandLine(`python3 my_kl.py --k 3`, 'x')).toEqual(['python3', 'my_kl.py', '--k', '3']);
+    expect(splitCommandLine(`python3 "my estimators/kl.py" 'a b' c\\ d ""`, 'x')).toEqual(['python3', 'my estimators/kl.py', 'a b', 'c d', '']);
+    expect(splitCommandLine(`Rscript -e "cat(\\"hi\\")"`, 'x')).toEqual(['Rscript', '-e', 'cat("hi")']);
+    expect(() => splitCommandLine(`python3 'oops`, '--estimator-command x')).toThrow(
+      `--estimator-command x: the single quote opened in "python3 'oops" is never closed`,
+    );
+  });
+
+  it('reads ID=PROGRAM ARG... and refuses anything else with an example', () => {
+    expect(parseCommandOption('my-kl=python3 my_kl.py')).toEqual({ id: 'my-kl', command: 'python3 my_kl.py' });
+    expect(() => parseCommandOption('python3 my_kl.py')).toThrow(
+      `--estimator-command "python3 my_kl.py" is not ID=PROGRAM [ARG...]; e.g. --estimator-command 'my-kl=python3 my_kl.py'`,
+    );
+  });
+
+  it('normalises settings, dims and the working folder, and refuses what cannot work', () => {
+    const d = normalizeCommand(
+      { id: 'kl', command: ['python3', 'x.py'], settings: { k: 3, h: 0.5, rule: 'auto', m: { default: 2, min: 1, max: 9 } }, dims: [1, 4] },
+      'entropy',
+      dir,
+      'plan',
+    );
+    expect(d.settings.map((s) => [s.name, s.kind, s.default])).toEqual([
+      ['k', 'integer', 3],
+      ['h', 'number', 0.5],
+      ['rule', 'choice', 'auto'],
+      ['m', 'integer', 2],
+    ]);
+    expect(d).toMatchObject({ cwd: dir, quantity: 'entropy', dims: [1, 4], family: 'external' });
+    expect(() => normalizeCommand({ id: 'kl', command: 'python3 x.py', dims: [3, 2] }, 'entropy', dir, 'plan')).toThrow(
+      'plan: estimator command "kl": dims [3, 2] is not allowed; give [min, max] with 1 ≤ min ≤ max, or [min, null] for any dimension above min',
+    );
+    expect(() => normalizeCommand({ id: 'kl', command: 'python3 x.py', cwd: 'nowhere' }, 'entropy', dir, 'plan')).toThrow(
+      `plan: estimator command "kl": its working folder ${join(dir, 'nowhere')} does not exist`,
+    );
+  });
+
+  it('digests the files a command names: an edited script is different code, and says so', () => {
+    const folder = join(dir, 'digest');
+    mkdirSync(folder);
+    copyFileSync(faulty, join(folder, 'kl.py'));
+    const declaration = normalizeCommand({ id: 'kl', command: 'python3 kl.py good' }, 'entropy', folder, 'plan');
+    const before = commandDigest(declaration);
+    expect(commandDigest(declaration)).toBe(before);
+    writeFileSync(join(folder, 'kl.py'), `${readFileSync(join(folder, 'kl.py'), 'utf8')}\n# edited\n`);
+    const after = commandDigest(declaration);
+    expect(after).not.toBe(before);
+    const hhatCode = { version: '1', build: 'b', dependencies: [] };
+    const then: PlanCode = { hhat: hhatCode, modules: [], commands: [{ id: 'kl', digest: before }] };
+    const now: PlanCode = { hhat: hhatCode, modules: [], commands: [{ id: 'kl', digest: after }] };
+    expect(codeDifference(then, now)).toBe('estimator command kl (its command line, folder, settings or a file it names) changed since');
+    expect(codeDifference(then, { ...now, commands: [] })).toBe('it used estimator command kl, which this run does not');
+  });
+});
+
+describe('faults: each a failure with its reason, the rest of the run intact', () => {
+  const modes = ['good', 'garbage', 'wrong', 'sleep', 'exit', 'refuse', 'nan'] as const;
+  // A private temporary folder for the run, so the test can see that hhat leaves nothing in it.
+  const scratch = join(dir, 'tmp');
+  let run: RunFile;
+  let result: ReturnType<typeof hhat>;
+  const marker = `hhat-fault-test-${process.pid}`;
+
+  beforeAll(() => {
+    mkdirSync(scratch);
+    const plan = {
+      quantity: 'entropy',
+      scenarios: ['normal'],
+      estimators: ['kozachenko-leonenko'],
+      sampleSizes: [50],
+      replicates: 6,
+      limits: { estimateSeconds: 1, estimateSecondsPerPoint: 0 },
+      commands: [
+        ...modes.map((mode) => ({ id: mode, command: ['python3', faulty, mode, marker] })),
+        { id: 'missing', command: ['no-such-program-for-hhat', 'x.py'] },
+      ],
+    };
+    writeFileSync(join(dir, 'faults.json'), JSON.stringify(plan));
+    result = hhat(['bench', '--plan', 'faults.json', '--allow-plan-modules', '--workers', '2', '--out', 'faults-run.json'], { TMPDIR: scratch });
+    run = JSON.parse(readFileSync(join(dir, 'faults-run.json'), 'utf8')) as RunFile;
+  }, 120_000);
+
+  const cell = (id: string) => run.cells.find((c) => c.estimatorId === id)!;
+  const restart = 'it was stopped and restarts for the next estimate';
+
+  it('finishes the run (exit 0) with every estimator ranked', () => {
+    expect(result.code).toBe(0);
+    expect(run.cells.map((c) => c.estimatorId).sort()).toEqual(['kozachenko-leonenko', 'missing', ...modes].sort());
+  });
+
+  it('leaves the built-in and the well-behaved command untouched', () => {
+    expect(cell('kozachenko-leonenko').failures).toEqual([]);
+    expect(cell('good').failures).toEqual([]);
+    expect(cell('good').estimates.every((v) => Number.isFinite(v))).toBe(true);
+  });
+
+  it('fails only the broken request, with its reason, and restarts the command for the next (replicates 1, 3, 5 are request 2 of a process)', () => {
+    const reasons: Record<string, string> = {
+      garbage: `command: garbage answered request 2 with a line that is not a JSON object: "estimating... done" (print diagnostics to stderr, not stdout); ${restart}`,
+      wrong: `command: wrong answered request 9 while request 2 was asked; ${restart}`,
+      sleep: `command: sleep timed out after 1 s (the limit at n = 50: plan limits.estimateSeconds + estimateSecondsPerPoint × n) on request 2; ${restart}`,
+      exit: `command: exit exited with code 3 before answering request 2 (stderr: faulty_command: giving up on request 2); ${restart}`,
+      nan: `command: nan answered request 2 with value null, not a finite number; ${restart}`,
+    };
+    const good = cell('good').estimates;
+    for (const [id, reason] of Object.entries(reasons)) {
+      const c = cell(id);
+      expect(c.failures, id).toEqual([1, 3, 5].map((replicate) => ({ replicate, message: reason })));
+      // The other replicates answered as the good command did (the same draws, the same rule).
+      expect(
+        [0, 2, 4].map((r) => c.estimates[r]),
+        id,
+      ).toEqual([0, 2, 4].map((r) => good[r]));
+    }
+  });
+
+  it('keeps a command that reports its own error alive (only that estimate fails)', () => {
+    expect(cell('refuse').failures).toEqual([{ replicate: 1, message: 'command: refuse reported: refusing request 2 on purpose' }]);
+    expect(cell('refuse').estimates.filter((v) => v === null)).toHaveLength(1);
+  });
+
+  it('fails every estimate of a command that cannot be started, saying why and what it tried', () => {
+    const c = cell('missing');
+    expect(c.failures).toHaveLength(6);
+    expect(c.failures[0].message).toBe(
+      `command: missing could not be started: spawn no-such-program-for-hhat ENOENT (no such program, or its working folder is gone); the command is \`no-such-program-for-hhat x.py\` in ${dir}; hhat starts it again for the next estimate`,
+    );
+  });
+
+  it('leaves no command process and no temporary file behind', () => {
+    const left = spawnSync('pgrep', ['-f', marker], { encoding: 'utf8' }).stdout.trim();
+    expect(left).toBe('');
+    expect(readdirSync(scratch)).toEqual([]);
+  });
+});
+
+describe('on the command line', () => {
+  beforeAll(() => {
+    writeFileSync(
+      join(dir, 'plan-with-command.json'),
+      JSON.stringify({ scenarios: ['normal'], estimators: ['histogram'], commands: [{ id: 'x', command: 'python3 x.py' }] }),
+    );
+    writeFileSync(join(dir, 'points.csv'), 'x,y\n1,2\n3,4.5\n2,1\n5,5\n0.3,2\n4,1\n');
+  });
+
+  it("starts a plan file's commands only with consent", () => {
+    const r = hhat(['bench', '--plan', 'plan-with-command.json']);
+    expect(r.code).toBe(2);
+    expect(r.err.trim()).toBe(
+      'hhat: plan-with-command.json names estimator commands (x), which are programs that run with your rights; read them, then add --allow-plan-modules to start them (or pass them with --estimator-command)',
+    );
+  });
+
+  it("estimate: a command joins the estimators; one that fails is its row's failure and exit 1", () => {
+    const ok = hhat(['estimate', 'points.csv', '--estimator', 'kozachenko-leonenko', '--estimator-command', `first=python3 ${faulty} good`, '--json']);
+    expect(ok.code).toBe(0);
+    const records = (JSON.parse(ok.out) as { estimates: { estimator: string; value: number }[] }).estimates;
+    // The fixture answers the first value plus 1: 1 + 1.
+    expect(records.map((r) => [r.estimator, r.estimator === 'first' ? r.value : 'any'])).toEqual([
+      ['kozachenko-leonenko', 'any'],
+      ['first', 2],
+    ]);
+    const bad = hhat(['estimate', 'points.csv', '--estimator-command', 'gone=no-such-program-for-hhat']);
+    expect(bad.code).toBe(1);
+    expect(bad.out).toMatch(/gone\s+│.*failed/);
+    expect(bad.err).toContain('gone could not be started: spawn no-such-program-for-hhat ENOENT');
+  });
+
+  it('check: a command passes the conformance suite like any estimator', () => {
+    const r = hhat(['check', '--estimator-command', `kl=python3 ${join(root, 'examples', 'knn_entropy.py')}`]);
+    expect(r.err).toBe('');
+    expect(r.code).toBe(0);
+    expect(r.out.split('\n')[0]).toMatch(/^kl \(entropy\): passes: 8 pass, 2 not applicable/);
+  });
+
+  it('refuses a command declared twice', () => {
+    const r = hhat(['bench', '--estimator-command', 'a=python3 x.py', '--estimator-command', 'a=python3 y.py', '--scenario', 'normal']);
+    expect(r.code).toBe(2);
+    expect(r.err.trim()).toBe('hhat: estimator command "a" is declared twice; each id may be declared once');
+  });
+
+  it('leaves no temporary folder after estimate or check', () => {
+    const scratch = join(dir, 'tmp-estimate');
+    mkdirSync(scratch);
+    hhat(['estimate', 'points.csv', '--estimator-command', `first=python3 ${faulty} good`], { TMPDIR: scratch });
+    expect(existsSync(scratch) && readdirSync(scratch)).toEqual([]);
+  });
+});
