@@ -2,7 +2,8 @@ import type { Command } from 'commander';
 import type { Support, Tails } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
 import { readSample } from '../data/index.js';
-import { MAX_REPLICATES, MAX_SAMPLE_SIZE, parseIntegerOption } from '../core/options.js';
+import { collect, MAX_REPLICATES, MAX_SAMPLE_SIZE, parseIntegerOption } from '../core/options.js';
+import { declareCommandOptions } from '../harness/external/options.js';
 import { toJson } from '../analysis/results.js';
 import { parseNumber } from '../core/spec.js';
 import { adviseFile } from '../analysis/advise/file.js';
@@ -26,6 +27,7 @@ interface AdviseOptions {
   workers?: string;
   replicates?: string;
   resamples?: string;
+  estimatorCommand?: string[];
   json?: boolean;
 }
 
@@ -73,6 +75,11 @@ export function registerAdviseCommand(program: Command, print: (text: string) =>
     .option('--workers <w>', 'worker threads for the benchmark (default: the number of cores)')
     .option('--replicates <r>', 'exactly this many benchmark replicates instead of as many as the budget allows (reproducible advice)')
     .option('--resamples <b>', 'with a file: exactly this many bootstrap resamples instead of as many as the budget allows')
+    .option(
+      '--estimator-command <id=command>',
+      "an entropy estimator written in any language: ID=PROGRAM [ARG...] speaking hhat's estimator protocol (repeatable); it is compared with the built-ins",
+      collect,
+    )
     .option('--json', 'print the advice as JSON (values in nats)')
     .addHelpText(
       'after',
@@ -95,6 +102,7 @@ Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICAT
       const workers = options.workers === undefined ? undefined : parseIntegerOption('--workers', options.workers, 1, 256);
       // The plan schema's ranges (src/schemas/plan.schema.json), so a setting that a plan accepts is accepted here.
       const replicates = options.replicates === undefined ? undefined : parseIntegerOption('--replicates', options.replicates, 2, MAX_REPLICATES);
+      const commands = options.estimatorCommand?.length ? await declareCommandOptions(options.estimatorCommand, 'entropy') : undefined;
       const stage = !options.json && process.stderr.isTTY ? (text: string) => printErr(`hhat advise: ${text}…`) : undefined;
       if (file !== undefined) {
         const setting = (['n', 'dim', 'tails', 'support'] as const).filter((k) => options[k] !== undefined);
@@ -124,6 +132,7 @@ Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICAT
           replicates,
           resamples: options.resamples === undefined ? undefined : parseIntegerOption('--resamples', options.resamples, 20, 1_000_000),
           columnNames: loaded.columnNames,
+          commands,
           onStage: stage,
         });
         print(options.json ? toJson(fileAdviceJson(advice, file)) : renderFileAdvice(advice, file));
@@ -153,6 +162,7 @@ Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICAT
         seed,
         workers,
         replicates,
+        commands,
         onStage: stage,
       });
       print(options.json ? toJson(situationAdviceJson(advice)) : renderSituationAdvice(advice));

@@ -6,6 +6,7 @@ import { runConformance } from '../analysis/conformance.js';
 import { failedChecks, formatConformanceJson, formatConformanceText } from '../views/conformance.js';
 import { loadEstimatorModules } from '../harness/modules.js';
 import { collect } from '../core/options.js';
+import { declareCommandOptions } from '../harness/external/options.js';
 import { parseSpec, QUANTITIES } from '../core/spec.js';
 import { listEstimators } from '../../estimators/index.js';
 
@@ -28,13 +29,7 @@ function chosen(candidates: Estimator[], specs: string[] | undefined, where: str
 /** The --estimator-command estimators, registered (loaded only when given). */
 async function commandEstimators(texts: string[], quantity: string): Promise<Estimator[]> {
   if (!(QUANTITIES as readonly string[]).includes(quantity)) throw new UsageError(`--quantity ${quantity} is not allowed; use one of ${QUANTITIES.join(', ')}`);
-  const [{ normalizeCommand, parseCommandOption }, { useEstimatorCommands }] = await Promise.all([
-    import('../harness/external/declaration.js'),
-    import('../harness/external/client.js'),
-  ]);
-  const ids = useEstimatorCommands(
-    texts.map((text) => normalizeCommand(parseCommandOption(text), quantity as Quantity, process.cwd(), `--estimator-command ${text}`)),
-  );
+  const ids = (await declareCommandOptions(texts, quantity as Quantity)).map((d) => d.id);
   return listEstimators().filter((e) => ids.includes(e.id));
 }
 

@@ -8,7 +8,7 @@ import { describeReference, meanLogReference, parseReference, type Reference } f
 import { unitLabel } from '../core/units.js';
 import { describeRegistration, resolveModulePath, useEstimatorModules } from '../harness/modules.js';
 import type { Quantity, Sample, Settings } from '../core/contracts.js';
-import type { CommandDeclaration } from '../harness/external/declaration.js';
+import { declareCommandOptions } from '../harness/external/options.js';
 import { collect, parseIntegerOption } from '../core/options.js';
 import { checkDimension, defaultSet, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
 import { describeSeconds, predictedSeconds, rowsWithin } from '../harness/cost-model.js';
@@ -192,17 +192,6 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     .action((file: string, options: EstimateOptions) => runEstimate(file, options, print, printErr));
 }
 
-/** Registers the --estimator-command estimators (loaded only when given: most calls have none) and returns their declarations. */
-async function declareCommands(texts: string[], quantity: Quantity): Promise<CommandDeclaration[]> {
-  const [{ normalizeCommand, parseCommandOption }, { useEstimatorCommands }] = await Promise.all([
-    import('../harness/external/declaration.js'),
-    import('../harness/external/client.js'),
-  ]);
-  const declarations = texts.map((text) => normalizeCommand(parseCommandOption(text), quantity, process.cwd(), `--estimator-command ${text}`));
-  useEstimatorCommands(declarations);
-  return declarations;
-}
-
 /** `hhat estimate FILE`: read the sample, choose the estimators, estimate, print, and set the exit code. */
 async function runEstimate(file: string, options: EstimateOptions, print: (text: string) => void, printErr: (text: string) => void): Promise<void> {
   const base: Base = options.bits ? 'bits' : 'nats';
@@ -224,7 +213,7 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   const { loaded, sample, quantity } = readEstimateSample(file, options, load);
   if (reference && quantity !== 'entropy') throw new UsageError('--reference applies to entropy; mutual information and divergences are already unit-free');
   const offset = reference ? meanLogReference(reference, sample) : 0;
-  const commands = options.estimatorCommand?.length ? await declareCommands(options.estimatorCommand, quantity) : [];
+  const commands = options.estimatorCommand?.length ? await declareCommandOptions(options.estimatorCommand, quantity) : [];
   const named = Boolean(options.estimator?.length);
   const listed = named ? options.estimator! : defaultEstimatorsFor(sample.dim, quantity);
   // A command the user declared runs, with its defaults, unless --estimator already names it.

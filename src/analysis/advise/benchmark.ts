@@ -26,6 +26,7 @@ import { assembleRun, cellKey, finishRun, type Cell, type RunFile } from '../res
 import { defaultWorkers, runPlan } from '../../harness/runner.js';
 import { replicatesPerUnit } from '../../harness/work.js';
 import { UsageError } from '../../core/errors.js';
+import type { CommandDeclaration } from '../../harness/external/declaration.js';
 import { DEFAULT_SEED } from '../../core/rng.js';
 
 export interface TargetedOptions {
@@ -46,6 +47,8 @@ export interface TargetedOptions {
   budget?: { total: number; spent: number };
   /** Dimension of the scenarios, to size the units that spread over the workers. */
   dim?: number;
+  /** Estimator commands among `estimators`, registered in this thread already; the plan carries them to the workers. */
+  commands?: CommandDeclaration[];
 }
 
 export interface TargetedBenchmark {
@@ -144,6 +147,7 @@ export async function runTargeted(options: TargetedOptions): Promise<TargetedBen
       replicates,
       seed: roundSeed,
       robustness: withRobustness && perturbations.length ? { sampleSize: options.n, perturbations, tuning: false } : null,
+      commands: options.commands,
     }).plan;
 
   const workers = Math.max(1, options.workers ?? defaultWorkers());

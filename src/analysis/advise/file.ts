@@ -25,6 +25,7 @@ import { EstimateError, UsageError } from '../../core/errors.js';
 import { DEFAULT_SEED } from '../../core/rng.js';
 import { MAX_BUDGET_SECONDS, tooFewPoints } from './situation.js';
 import { parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../../estimators/index.js';
+import type { CommandDeclaration } from '../../harness/external/declaration.js';
 import { describeSeconds, largestRowsWhere, predictedReplicateSeconds, predictedSeconds, rowsWithin } from '../../harness/cost-model.js';
 import { defaultWorkers } from '../../harness/runner.js';
 import { seededRowSubsample } from '../../core/sample.js';
@@ -46,6 +47,8 @@ export interface FileAdviceOptions {
   isolation?: 'threads' | 'in-process';
   /** Estimator specs to compare (default: every entropy estimator that supports the dimension, default settings). */
   estimators?: string[];
+  /** Estimator commands, registered in this thread already; they join the estimators compared. */
+  commands?: CommandDeclaration[];
   columnNames?: readonly string[];
   maxComponents?: number;
   /** Least look-alike replicates, whatever the budget (default 20). */
@@ -260,12 +263,13 @@ interface AdviceContext {
 }
 
 /** The estimator specs to compare, after refusing a file too small for advice or a dimension no estimator supports. */
-function adviceEstimators(fileSample: Sample, specs: string[] | undefined): string[] {
+function adviceEstimators(fileSample: Sample, specs: string[] | undefined, commands: readonly CommandDeclaration[] = []): string[] {
   const { n: fileRows, dim } = fileSample;
   if (fileRows < 20) throw new UsageError(`the sample has ${fileRows} rows; advice needs at least 20 (a benchmark at smaller n says little)`);
   const degenerate = tooFewPoints(fileRows, dim);
   if (degenerate) throw new EstimateError('too-few-points', `no estimator is usable on this file: ${degenerate}`);
-  const estimators = specs?.map((s) => parseEstimatorSpec(s).spec) ?? applicableEstimators(dim);
+  const listed = specs?.map((s) => parseEstimatorSpec(s).spec) ?? applicableEstimators(dim);
+  const estimators = [...listed, ...commands.filter((c) => !listed.some((spec) => spec.split(':')[0] === c.id)).map((c) => parseEstimatorSpec(c.id).spec)];
   if (!estimators.length) throw new UsageError(`no entropy estimator supports d = ${dim}`);
   return estimators;
 }
@@ -332,6 +336,7 @@ async function benchmarkLookalike(ctx: AdviceContext, lookalike: Lookalike, esti
     maxReplicates: ctx.options.replicates,
     budget: { total: budget, spent: elapsed() },
     dim,
+    commands: ctx.options.commands,
   });
 }
 
@@ -485,7 +490,7 @@ export async function adviseFile(fileSample: Sample, options: FileAdviceOptions 
   const seed = options.seed ?? DEFAULT_SEED;
   const { dim } = fileSample;
   const fileRows = fileSample.n;
-  const estimators = adviceEstimators(fileSample, options.estimators);
+  const estimators = adviceEstimators(fileSample, options.estimators, options.commands);
   const { timings, lap } = stageTimer(elapsed, options.elapsedBeforeSeconds);
   const ctx: AdviceContext = {
     options,

@@ -19,6 +19,7 @@ import { UsageError } from '../../core/errors.js';
 import { catalog, listFamilies, parseScenario } from '../../../scenarios/index.js';
 import { applicableEstimators, DEFAULT_BUDGET_SECONDS, FEWEST_USEFUL_REPLICATES, runTargeted } from './benchmark.js';
 import { parseEstimatorSpec } from '../../../estimators/index.js';
+import type { CommandDeclaration } from '../../harness/external/declaration.js';
 import { describeSeconds, predictedReplicateSeconds } from '../../harness/cost-model.js';
 import { defaultWorkers } from '../../harness/runner.js';
 import { recommend, summarise, type EstimatorSummary, type Recommendation } from './recommend.js';
@@ -35,6 +36,8 @@ export interface SituationAdviceOptions {
   minReplicates?: number;
   /** Exactly this many replicates per scenario (the budget no longer sizes them). */
   replicates?: number;
+  /** Estimator commands, registered in this thread already; they join the estimators compared where their dims allow. */
+  commands?: CommandDeclaration[];
   onStage?: (stage: string) => void;
 }
 
@@ -240,7 +243,8 @@ export async function adviseSituation(options: SituationAdviceOptions): Promise<
   }
   stage('choosing scenarios');
   const match = matchScenarios(dim, options.tails, options.support, options.maxScenarios ?? DEFAULT_MAX_SCENARIOS);
-  const estimators = applicableEstimators(dim);
+  const commands = (options.commands ?? []).filter((c) => c.quantity === 'entropy' && c.dims[0] <= dim && (c.dims[1] === null || dim <= c.dims[1]));
+  const estimators = [...applicableEstimators(dim), ...commands.map((c) => parseEstimatorSpec(c.id).spec)];
   if (!estimators.length) throw new UsageError(`no entropy estimator supports d = ${dim}`);
   if (options.replicates === undefined)
     refuseUnaffordableBudget(n, dim, estimators, budget, options.workers ?? defaultWorkers(), Math.min(options.minReplicates ?? 10, FEWEST_USEFUL_REPLICATES));
@@ -257,6 +261,7 @@ export async function adviseSituation(options: SituationAdviceOptions): Promise<
     maxReplicates: options.replicates,
     budget: { total: budget, spent: (performance.now() - started) / 1000 },
     dim,
+    commands,
   });
   const summaries = summarise(bench.run);
   const recommendation = recommend(bench.run, summaries);
