@@ -103,7 +103,12 @@ describe('an interrupted run and its resume', () => {
     const child = spawn(process.execPath, [bin, ...plan], { cwd: dir, stdio: ['ignore', 'ignore', 'pipe'] });
     child.stderr.on('data', (d) => (stderr += d));
     const exited = new Promise<number | null>((resolve) => child.once('exit', (code) => resolve(code)));
-    const units = () => (existsSync(checkpoint) ? readFileSync(checkpoint, 'utf8').split('\n').filter((l) => l.startsWith('{"unit"')).length : 0);
+    const units = () =>
+      existsSync(checkpoint)
+        ? readFileSync(checkpoint, 'utf8')
+            .split('\n')
+            .filter((l) => l.startsWith('{"unit"')).length
+        : 0;
     for (let i = 0; i < 2400 && units() < 5; i++) await new Promise((r) => setTimeout(r, 25));
     expect(units(), 'five units were never saved').toBeGreaterThanOrEqual(5);
     child.kill('SIGINT');

@@ -433,7 +433,15 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   const resumedUnits = checkpoint.restored.size;
 
   const results = new Map(checkpoint.restored);
-  const { record, report } = progressRecorder({ units, owned, planEstimators: context.estimators.length, results, appender, started, onProgress: options.onProgress });
+  const { record, report } = progressRecorder({
+    units,
+    owned,
+    planEstimators: context.estimators.length,
+    results,
+    appender,
+    started,
+    onProgress: options.onProgress,
+  });
   for (const r of checkpoint.restored.values()) record(r, false);
   if (checkpoint.restored.size) report();
 
