@@ -145,6 +145,21 @@ describe('an interrupted run and its resume', () => {
     expect(result.stderr).toContain(`continue it with the command that started it (in ${dir}): \`hhat bench --scenario normal --scenario exponential`);
   });
 
+  it('started by this same command but another plan now (a --plan file edited since): says so', () => {
+    const edited = join(dir, 'edited.json');
+    const other = ['bench', '--plan', 'plan.json', '--out', 'edited.json', '--resume'];
+    const [head, ...rest] = readFileSync(checkpoint, 'utf8').split('\n');
+    // The header of a run started by `hhat bench --plan plan.json --out edited.json`, whose plan file then changed.
+    const header = { ...(JSON.parse(head) as Record<string, unknown>), command: { args: other.slice(0, -1), cwd: dir } };
+    writeFileSync(`${edited}.checkpoint.jsonl`, [JSON.stringify(header), ...rest].join('\n'));
+    writeFileSync(join(dir, 'plan.json'), JSON.stringify({ scenarios: ['normal'], estimators: ['kernel'], sampleSizes: [100], replicates: 10 }));
+    const result = spawnSync(process.execPath, [bin, ...other], { cwd: dir, encoding: 'utf8' });
+    expect(result.status).toBe(2);
+    expect(result.stderr).toBe(
+      `hhat: ${edited}.checkpoint.jsonl was started by this same command, but the plan or shard it gives differs now (a --plan file changed, or --shard auto read another slice); restore that to resume, or delete the checkpoint to start over\n`,
+    );
+  });
+
   it('still reads a checkpoint written before the header named its command', () => {
     const old = join(dir, 'old.json');
     copyFileSync(checkpoint, `${old}.checkpoint.jsonl`);
