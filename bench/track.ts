@@ -11,7 +11,8 @@
  *
  *   npm run track                    # all three plans
  *   npm run track -- divergence      # one or more plans by quantity
- *   npm run baseline                 # refresh all three baselines on purpose (after a deliberate change)
+ *   npm run baseline                 # refresh all three baselines on purpose (after a deliberate change), from a
+ *                                    # clean tree only: the commit that adds them must hold the code that made them
  */
 import { existsSync } from 'node:fs';
 import { resolve } from 'node:path';
@@ -25,6 +26,7 @@ import { comparableBaseline, describeBaselineCell, readBaseline, writeBaseline }
 import { QUANTITIES } from '../src/harness/modules.js';
 import { EnvironmentError, UsageError } from '../src/core/errors.js';
 import type { Quantity } from '../src/core/contracts.js';
+import { dirtyTreeRefusal } from './clean-tree.js';
 
 const WORKERS = 2;
 /** Changed cells listed per plan on screen; the Markdown comparison under results/track/ lists them all. */
@@ -78,6 +80,9 @@ async function main(): Promise<number> {
   const refresh = args.includes('--refresh');
   const quantities = quantitiesAsked(args.filter((a) => a !== '--refresh'));
   const tolerance = parseTolerance(process.env.HHAT_TRACK_TOLERANCE ?? '0');
+  // Refused before any work: the baseline's origin is the commit it is made from (bench/clean-tree.ts).
+  const refusal = refresh ? dirtyTreeRefusal(process.cwd()) : null;
+  if (refusal) throw new UsageError(refusal);
   // Read every baseline before the first plan runs: a missing or broken file should not cost a minute first.
   const baselines = refresh
     ? null
@@ -99,7 +104,7 @@ async function main(): Promise<number> {
     if (refresh) {
       const baseline = writeBaseline(resolve(baselinePath(quantity)), run);
       console.log(
-        `${quantity}: baseline refreshed: ${baseline.cells.length} cells in ${seconds} s → ${baselinePath(quantity)} (full run: ${runPath(quantity)})`,
+        `${quantity}: baseline refreshed from commit ${run.environment.git?.commit.slice(0, 12) ?? '?'}: ${baseline.cells.length} cells in ${seconds} s → ${baselinePath(quantity)} (full run: ${runPath(quantity)})`,
       );
       continue;
     }

@@ -1,7 +1,8 @@
 /**
  * The HTML report in a real browser (Debian's Chromium, driven by playwright-core): it loads from a file:
  * URL with no console error and no request beyond the file itself, paints a non-blank page, holds its
- * charts, sorts a table on a header click, fits a phone's width and hides the navigation in print.
+ * charts, sorts a table on a header click, fits a phone's width, scrolls the wide score table under its fixed
+ * scenario and estimator columns and hides the navigation in print.
  *
  * CI installs Chromium (.ci/run); a machine without /usr/bin/chromium skips this file with a message.
  */
@@ -126,6 +127,48 @@ describe.skipIf(!available)('the HTML report in headless Chromium', () => {
     // Evaluated as text in the page: this file is type-checked without the DOM library.
     const scrollWidth = await page.evaluate<number>('document.documentElement.scrollWidth');
     expect(scrollWidth).toBeLessThanOrEqual(390);
+    await page.setViewportSize({ width: 1280, height: 900 });
+  });
+
+  it('scrolls the "All scores" table sideways inside its box, the scenario and estimator columns staying in place', async () => {
+    await page.setViewportSize({ width: 700, height: 800 });
+    // Evaluated as text in the page: this file is type-checked without the DOM library.
+    const layout = await page.evaluate<{
+      overflowX: string;
+      positions: string[];
+      scrollable: number;
+      before: number[];
+      after: number[];
+      scrolled: number;
+    }>(`(() => {
+      const wrap = document.querySelector('#scores .table-wrap');
+      const row = wrap.querySelector('tbody tr');
+      const lefts = () => Array.from(row.cells).slice(0, 3).map((c) => c.getBoundingClientRect().left - wrap.getBoundingClientRect().left);
+      const before = lefts();
+      wrap.scrollLeft = 300;
+      const after = lefts();
+      const result = {
+        overflowX: getComputedStyle(wrap).overflowX,
+        positions: Array.from(row.cells).slice(0, 3).map((c) => getComputedStyle(c).position),
+        scrollable: wrap.scrollWidth - wrap.clientWidth,
+        before,
+        after,
+        scrolled: wrap.scrollLeft,
+      };
+      wrap.scrollLeft = 0;
+      return result;
+    })()`);
+    expect(layout.overflowX).toBe('auto');
+    expect(layout.positions).toEqual(['sticky', 'sticky', 'static']);
+    // The table is wider than its box at this width, so it scrolls (and the page does not).
+    expect(layout.scrollable).toBeGreaterThan(300);
+    expect(layout.scrolled).toBe(300);
+    // Scenario and estimator stay where they were, side by side; the third column (n) moved left by the scroll.
+    expect(layout.after.slice(0, 2)).toEqual(layout.before.slice(0, 2));
+    expect(layout.before[1]).toBeGreaterThan(layout.before[0]);
+    expect(layout.after[2]).toBeCloseTo(layout.before[2] - 300, 0);
+    const pageWidth = await page.evaluate<number>('document.documentElement.scrollWidth');
+    expect(pageWidth).toBeLessThanOrEqual(700);
     await page.setViewportSize({ width: 1280, height: 900 });
   });
 

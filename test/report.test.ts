@@ -15,7 +15,7 @@ import { assembleRun, readRunFile, writeRunFile, type Cell, type RunFile } from 
 import type { RobustnessSection } from '../src/analysis/robustness.js';
 import { UsageError } from '../src/core/errors.js';
 import { formatValue } from '../src/core/format.js';
-import { renderReport, writeReport } from '../src/views/report/report.js';
+import { renderReport, slug, SLUG_LIMIT, writeReport } from '../src/views/report/report.js';
 import { biasTextChart } from '../src/views/report/text-chart.js';
 import { robustnessTable, scenarioTables } from '../src/views/tables.js';
 import { runCli as cli } from './helpers/cli.js';
@@ -222,11 +222,16 @@ describe('the robustness section', () => {
     expect(report.warnings).toEqual([]);
     const names = report.svgs.map((c) => c.name);
     expect(names).toContain('robustness');
-    expect(names.filter((n) => n.startsWith('tuning-'))).toEqual(['tuning-nearest-neighbour-normal-mu-0-sigma-1', 'tuning-histogram-normal-mu-0-sigma-1']);
+    const tuningNames = names.filter((n) => n.startsWith('tuning-'));
+    expect(tuningNames).toHaveLength(2);
+    expect(tuningNames[0]).toMatch(/^tuning-nearest-neighbour-normal-mu-0-sigma-1-[0-9a-f]{8}$/);
+    expect(tuningNames[1]).toMatch(/^tuning-histogram-normal-mu-0-sigma-1-[0-9a-f]{8}$/);
     const grid = parseSvg(report.svgs.find((c) => c.name === 'robustness')!.svg).strings;
-    // Counted from the section above: each verdict's cells, plus its legend entry.
+    // Counted from the section above: each verdict's cells (with value and unit), plus its legend entry.
     const table = synthetic.robustness!.table.flatMap((r) => Object.values(r.columns).map((c) => c.verdict));
-    for (const verdict of ['pass', 'warn', 'fail']) expect(grid.filter((t) => t === verdict).length).toBe(table.filter((v) => v === verdict).length + 1);
+    for (const verdict of ['pass', 'warn', 'fail']) {
+      expect(grid.filter((t) => t === verdict || t.startsWith(`${verdict} `)).length).toBe(table.filter((v) => v === verdict).length + 1);
+    }
     const tuning = parseSvg(report.svgs.find((c) => c.name.startsWith('tuning-nearest'))!.svg).strings;
     const ticks = tuning.filter((t) => ['1', '3', '10'].includes(t));
     expect(ticks).toEqual(['1', '3', '10']);
@@ -283,6 +288,78 @@ describe('the robustness section', () => {
     expect(existsSync(out)).toBe(false);
     expect(existsSync(join(dir, 'broken-svg'))).toBe(false);
   });
+});
+
+describe('what the report names and labels', () => {
+  /** A section whose verdicts and values are set by hand: 11 SD of bias change, no safe recording step, 3e-15 nats of drift. */
+  function verdicts(base: RunFile): RunFile {
+    const [knn] = base.plan.estimators;
+    const cell = (value: number | null, verdict: string) => ({ value, verdict, detail: '' });
+    const section = {
+      sampleSize: 240,
+      replicates: 8,
+      perturbations: [],
+      measures: [],
+      tuning: [],
+      table: [{ estimator: knn, columns: { rescale: cell(3e-15, 'pass'), affine: cell(11, 'fail'), quantize: cell(0, 'fail'), tuning: cell(null, 'n/a') } }],
+    } as unknown as RobustnessSection;
+    return { ...base, robustness: section };
+  }
+
+  it('the verdict grid keeps each verdict\'s unit, as the tables do: "fail 11 SD", "fail <min"', async () => {
+    const report = await renderReport(verdicts(run));
+    const grid = parseSvg(report.svgs.find((c) => c.name === 'robustness')!.svg).strings;
+    for (const text of ['pass 3e-15 nats', 'fail 11 SD', 'fail <min', '–']) expect(grid, `the grid shows "${text}"`).toContain(text);
+    for (const text of ['pass 3e-15 nats', 'fail 11 SD', 'fail &lt;min']) expect(report.html).toContain(`>${text}</td>`);
+  });
+
+  it("names specs that differ only in sign apart, and keeps a long spec's name short", () => {
+    expect(slug('normal')).toBe('normal');
+    const plus = slug('normal:mu=2');
+    const minus = slug('normal:mu=-2');
+    expect(plus).toMatch(/^normal-mu-2-[0-9a-f]{8}$/);
+    expect(minus).toMatch(/^normal-mu-2-[0-9a-f]{8}$/);
+    expect(plus).not.toBe(minus);
+    const covariance = Array.from({ length: 9 }, (_, i) => Array.from({ length: 9 }, (_, j) => (i === j ? 1.25 : 0.125)).join(',')).join(';');
+    const long = slug(`gaussian-covariance[${covariance}]`);
+    expect(long).toBe(
+      `${`gaussian-covariance-${covariance}`
+        .replace(/[^a-z0-9.]+/g, '-')
+        .slice(0, SLUG_LIMIT)
+        .replace(/-+$/, '')}-${long.slice(-8)}`,
+    );
+    expect(long.length).toBeLessThanOrEqual(SLUG_LIMIT + 9);
+  });
+
+  it('writes the page and every SVG for a 9-D covariance spec and for two specs that differ only in sign', async () => {
+    const covariance = Array.from({ length: 9 }, (_, i) => Array.from({ length: 9 }, (_, j) => (i === j ? 1.25 : 0.125)).join(',')).join(';');
+    const { plan } = resolvePlan({
+      name: 'long names',
+      scenarios: [`gaussian-covariance[${covariance}]`, 'normal:mu=2', 'normal:mu=-2'],
+      estimators: ['gaussian'],
+      sampleSizes: [40, 80],
+      replicates: 4,
+      seed: 2,
+    });
+    const longRun = assembleRun(await runPlan(plan, { workers: 1 }), null);
+    const svgDir = join(dir, 'long-svg');
+    const out = join(dir, 'long.html');
+    const written = await writeReport(longRun, { out, svgDir });
+    expect(existsSync(out)).toBe(true);
+    const files = readdirSync(svgDir);
+    // 3 scenarios × (|bias|, RMSE, estimates) + efficiency; one gaussian estimator gives no rank heat map.
+    expect(files).toHaveLength(written.svgs.length);
+    // ext4 and most file systems allow 255 bytes per name.
+    for (const file of files) expect(Buffer.byteLength(file)).toBeLessThanOrEqual(255);
+    const estimates = files.filter((f) => f.startsWith('estimates-normal-mu-2-'));
+    expect(estimates).toHaveLength(2);
+    // Each is the chart of its own scenario, not a numbered duplicate.
+    const titles = estimates.map((f) => String(parseSvg(readFileSync(join(svgDir, f), 'utf8')).root.title));
+    expect(titles.sort()).toEqual(['Estimates (nats) at n = 80: normal:mu=-2,sigma=1', 'Estimates (nats) at n = 80: normal:mu=2,sigma=1']);
+    const html = readFileSync(out, 'utf8');
+    const sectionIds = [...html.matchAll(/<section class="scenario" id="([^"]+)"/g)].map((m) => m[1]);
+    expect(new Set(sectionIds).size).toBe(3);
+  }, 60_000);
 });
 
 describe('biasTextChart', () => {

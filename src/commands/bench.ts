@@ -6,6 +6,7 @@ import { normalizeCommand, parseCommandOption, type CommandInput } from '../harn
 import { useEstimatorCommands } from '../harness/external/client.js';
 import type { Command } from 'commander';
 import { UsageError } from '../core/errors.js';
+import { hasOption, hhatCommand } from '../core/shell.js';
 import type { Quantity } from '../core/contracts.js';
 import { parseScenario } from '../../scenarios/index.js';
 import type { Base } from '../core/format.js';
@@ -333,9 +334,18 @@ async function runWithSignals(
 }
 
 /** Says what an interrupted run saved and how to continue it, and exits as shells report a process stopped by the signal. */
-function reportInterrupted(outcome: RunOutcome, checkpoint: string, out: string, stoppedBy: NodeJS.Signals | null, printErr: (text: string) => void): void {
+function reportInterrupted(
+  outcome: RunOutcome,
+  checkpoint: string,
+  out: string,
+  stoppedBy: NodeJS.Signals | null,
+  args: string[],
+  printErr: (text: string) => void,
+): void {
+  // The count the progress line ended on (finished units, restored ones included) and the checkpoint's unit lines.
   printErr(`interrupted: ${outcome.results.size} of ${outcome.owned.length} units are saved in ${checkpoint}`);
-  printErr(`continue with the same command plus: --resume --out ${out}`);
+  const resume = [...args, ...(hasOption(args, '--resume') ? [] : ['--resume']), ...(hasOption(args, '--out') ? [] : ['--out', out])];
+  printErr(`continue with: ${hhatCommand(resume)}`);
   // 128 + the signal's number, as shells report a process stopped by it.
   process.exitCode = stoppedBy === 'SIGTERM' ? 143 : 130;
 }
@@ -377,7 +387,7 @@ function printRunSummary(run: RunFile, outcome: RunOutcome, out: string, shard: 
 }
 
 /** `hhat bench`: builds the plan, runs it under the --out lock with a checkpoint, then writes and shows the run. */
-async function runBench(options: BenchOptions, print: (text: string) => void, printErr: (text: string) => void): Promise<void> {
+async function runBench(options: BenchOptions, args: string[], print: (text: string) => void, printErr: (text: string) => void): Promise<void> {
   const base: Base = options.bits ? 'bits' : 'nats';
   const shard: Shard | undefined = options.shard ? parseShard(options.shard) : undefined;
   const workers = options.workers === undefined ? defaultWorkers() : parseIntegerOption('--workers', options.workers, 1, 256);
@@ -396,10 +406,18 @@ async function runBench(options: BenchOptions, print: (text: string) => void, pr
     }
     const { outcome, stoppedBy } = await runWithSignals(
       plan,
-      { workers, shard, checkpointPath: checkpoint, checkpointHint: resumeHint, resume: options.resume, onWarning: (text) => printErr(`hhat: ${text}`) },
+      {
+        workers,
+        shard,
+        checkpointPath: checkpoint,
+        checkpointHint: resumeHint,
+        resume: options.resume,
+        onWarning: (text) => printErr(`hhat: ${text}`),
+        command: args,
+      },
       options.quiet,
     );
-    if (outcome.interrupted) return reportInterrupted(outcome, checkpoint, out, stoppedBy, printErr);
+    if (outcome.interrupted) return reportInterrupted(outcome, checkpoint, out, stoppedBy, args, printErr);
     const run = assembleRun(outcome, shard ?? null);
     writeRunFiles(run, out, checkpoint, options, base);
     await presentRun(run, out, options, base, shard, print);
@@ -411,7 +429,11 @@ async function runBench(options: BenchOptions, print: (text: string) => void, pr
 
 /** Adds `hhat bench` and `hhat merge` to the program. */
 export function registerBenchCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
-  declareBenchOptions(program.command('bench').description(COMMANDS.bench)).action((options: BenchOptions) => runBench(options, print, printErr));
+  // The program's raw arguments (commander keeps them, untyped) are the command line after `hhat`: kept in the
+  // checkpoint and printed to resume.
+  declareBenchOptions(program.command('bench').description(COMMANDS.bench)).action((options: BenchOptions, command: Command) =>
+    runBench(options, (command.parent as unknown as { rawArgs?: string[] } | null)?.rawArgs ?? [], print, printErr),
+  );
 
   program
     .command('merge')

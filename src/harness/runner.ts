@@ -11,6 +11,7 @@ import { describeFileError, openAppender, writeFileAtomic, type Appender } from 
 import { executeUnit, planUnits, type Skip, type Unit, type UnitResult, type WorkContext } from './work.js';
 import { runOnPool } from './pool.js';
 import { inProcessOnlyIds } from '../../estimators/index.js';
+import { hasOption, hhatCommand } from '../core/shell.js';
 
 export interface Shard {
   /** 1-based. */
@@ -25,8 +26,23 @@ export interface Progress {
   cellsTotal: number;
   failures: number;
   elapsedMs: number;
-  /** Estimated from the cost of the units done so far; null until something has finished. */
+  /** Estimated from the cost of the units done so far; null until that says something (see timeLeftMs). */
   remainingMs: number | null;
+}
+
+/** The share of this session's predicted work, and the count of its units, that must finish before a time left is given. */
+export const TIME_LEFT_MIN_SHARE = 0.05;
+export const TIME_LEFT_MIN_UNITS = 2;
+
+/**
+ * Time left, extrapolated from this session's rate, or null while that rate says little. The first units
+ * carry the start-up (workers loading, the code digest) and one unit's cost prediction can be far off, so the
+ * guess waits until at least 5% of the session's predicted work and 2 of its units have finished: earlier it
+ * swings by factors and reads as a promise it cannot keep.
+ */
+export function timeLeftMs(elapsedMs: number, costDoneThisRun: number, costThisRun: number, unitsThisRun: number, costLeft: number): number | null {
+  if (unitsThisRun < TIME_LEFT_MIN_UNITS || costDoneThisRun <= 0 || costDoneThisRun < TIME_LEFT_MIN_SHARE * costThisRun) return null;
+  return (elapsedMs * costLeft) / costDoneThisRun;
 }
 
 export interface RunOptions {
@@ -46,6 +62,11 @@ export interface RunOptions {
   /** Added to file-system error messages: how to resume after fixing the problem. */
   checkpointHint?: string;
   onWarning?: (text: string) => void;
+  /**
+   * The command line that started the run (its arguments after `hhat`), kept in the checkpoint's header so a
+   * resume with another plan can say which command made it.
+   */
+  command?: string[];
 }
 
 export interface RunOutcome {
@@ -81,13 +102,33 @@ export function shardUnits(units: Unit[], shard?: Shard): number[] {
     .sort((a, b) => a - b);
 }
 
-/** Version 2 names the code that wrote the checkpoint, so a resume can say why it refuses to mix. */
+/**
+ * Version 2 names the code that wrote the checkpoint, so a resume can say why it refuses to mix. `command`
+ * (optional, so checkpoints written before it still resume) is the command line that started the run and
+ * the folder it ran in.
+ */
 interface CheckpointHeader {
   kind: 'hhat-checkpoint';
   version: 2;
   fingerprint: string;
   shard: Shard | null;
   code: PlanCode;
+  command?: { args: string[]; cwd: string };
+}
+
+/** Why a checkpoint of another plan or shard cannot be resumed, and the command that can resume it when the header names one. */
+function otherPlanMessage(path: string, header: CheckpointHeader, command: string[] | undefined): string {
+  const started = header.command;
+  if (!started || !Array.isArray(started.args)) {
+    return `${path} belongs to a different plan or shard; run without --resume after deleting it, or resume with the plan that made it`;
+  }
+  const where = started.cwd && started.cwd !== process.cwd() ? ` (in ${started.cwd})` : '';
+  const withoutResume = (args: string[]) => hhatCommand(args.filter((a) => a !== '--resume'));
+  if (command && withoutResume(command) === withoutResume(started.args)) {
+    return `${path} was started by this same command${where}, but the plan or shard it gives differs now (a --plan file changed, or --shard auto read another slice); restore that to resume, or delete the checkpoint to start over`;
+  }
+  const resume = hhatCommand(hasOption(started.args, '--resume') ? started.args : [...started.args, '--resume']);
+  return `${path} belongs to another plan or shard; continue it with the command that started it${where}: \`${resume}\`, or delete the checkpoint to start this plan over`;
 }
 
 /** One stretch of work on a run: a fresh start or a resume. Runs record them all, so resumed runs report true totals. */
@@ -154,7 +195,7 @@ function readCheckpointLines(path: string): string[] {
 }
 
 /** Loads finished units from a checkpoint. */
-function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null, code: PlanCode): LoadedCheckpoint {
+function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null, code: PlanCode, command: string[] | undefined): LoadedCheckpoint {
   const lines = readCheckpointLines(path);
   const done = new Map<number, UnitResult>();
   const sessions: Session[] = [];
@@ -178,7 +219,7 @@ function loadCheckpoint(path: string, fingerprint: string, shard: Shard | null, 
         `${path} cannot be resumed: ${difference}; resuming would mix estimates of two versions of the code. Delete it to start over with this code, or resume with the code that made it`,
       );
     }
-    throw new UsageError(`${path} belongs to a different plan or shard; run without --resume after deleting it, or resume with the plan that made it`);
+    throw new UsageError(otherPlanMessage(path, header, command));
   }
   for (const line of lines.slice(1)) {
     try {
@@ -244,7 +285,7 @@ function openCheckpoint(options: RunOptions, owned: number[], fingerprint: strin
   let needsHeader = true;
   if (options.resume && started) {
     const ownedSet = new Set(owned);
-    const loaded = loadCheckpoint(path, fingerprint, shard, code);
+    const loaded = loadCheckpoint(path, fingerprint, shard, code, options.command);
     for (const [k, v] of loaded.done) if (ownedSet.has(k)) restored.set(k, v);
     sessions = loaded.sessions;
     needsHeader = !loaded.hasHeader;
@@ -254,6 +295,7 @@ function openCheckpoint(options: RunOptions, owned: number[], fingerprint: strin
   if (needsHeader) {
     // Written whole and renamed into place: a checkpoint is never empty or headless, even after a crash here.
     const header: CheckpointHeader = { kind: 'hhat-checkpoint', version: 2, fingerprint, shard, code };
+    if (options.command) header.command = { args: options.command, cwd: process.cwd() };
     writeFileAtomic(path, `${JSON.stringify(header)}\n`, hint);
   }
   return { restored, sessions, appender: openAppender(path, hint) };
@@ -294,8 +336,11 @@ interface Bookkeeping {
   onProgress?: (progress: Progress) => void;
 }
 
-/** Records finished units: counts cells, failures and cost, appends fresh results to the checkpoint, reports progress. */
-function progressRecorder(book: Bookkeeping): (result: UnitResult, fresh: boolean) => void {
+/**
+ * Records finished units: counts cells, failures and cost, appends fresh results to the checkpoint. Fresh units
+ * report progress as they finish; restored ones are counted silently, and `report` then shows them at once.
+ */
+function progressRecorder(book: Bookkeeping): { record: (result: UnitResult, fresh: boolean) => void; report: () => void } {
   const { units, owned, results, started } = book;
   const { groupUnits, groupEstimators } = cellGroups(units, owned);
   const groupDone = new Map<string, number>();
@@ -303,21 +348,11 @@ function progressRecorder(book: Bookkeeping): (result: UnitResult, fresh: boolea
   let failures = 0;
   let costDone = 0;
   const costTotal = owned.reduce((s, i) => s + units[i].cost, 0);
+  // This session's predicted work is what the checkpoint did not hold: costTotal less the restored units' cost.
   let costDoneThisRun = 0;
+  let unitsThisRun = 0;
   const cellsTotal = [...groupEstimators.values()].reduce((a, b) => a + b, 0);
-  return (result, fresh) => {
-    results.set(result.unit, result);
-    const u = units[result.unit];
-    const g = groupOf(u);
-    const count = (groupDone.get(g) ?? 0) + 1;
-    groupDone.set(g, count);
-    if (count === groupUnits.get(g)) cellsDone += groupEstimators.get(g)!;
-    failures += planFailures(u, result, book.planEstimators);
-    costDone += u.cost;
-    if (fresh) {
-      costDoneThisRun += u.cost;
-      book.appender?.append(serialiseResult(result));
-    }
+  const report = () => {
     const elapsedMs = performance.now() - started;
     book.onProgress?.({
       unitsDone: results.size,
@@ -326,9 +361,25 @@ function progressRecorder(book: Bookkeeping): (result: UnitResult, fresh: boolea
       cellsTotal,
       failures,
       elapsedMs,
-      remainingMs: costDoneThisRun > 0 ? (elapsedMs * (costTotal - costDone)) / costDoneThisRun : null,
+      remainingMs: timeLeftMs(elapsedMs, costDoneThisRun, costTotal - costDone + costDoneThisRun, unitsThisRun, costTotal - costDone),
     });
   };
+  const record = (result: UnitResult, fresh: boolean) => {
+    results.set(result.unit, result);
+    const u = units[result.unit];
+    const g = groupOf(u);
+    const count = (groupDone.get(g) ?? 0) + 1;
+    groupDone.set(g, count);
+    if (count === groupUnits.get(g)) cellsDone += groupEstimators.get(g)!;
+    failures += planFailures(u, result, book.planEstimators);
+    costDone += u.cost;
+    if (!fresh) return;
+    costDoneThisRun += u.cost;
+    unitsThisRun++;
+    book.appender?.append(serialiseResult(result));
+    report();
+  };
+  return { record, report };
 }
 
 /** The owned units not yet finished, largest first, so the last units to finish are small ones and workers idle least. */
@@ -382,13 +433,17 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   const resumedUnits = checkpoint.restored.size;
 
   const results = new Map(checkpoint.restored);
-  const record = progressRecorder({ units, owned, planEstimators: context.estimators.length, results, appender, started, onProgress: options.onProgress });
-  // Restored units go through the recorder for the counts; the others stay in `results` meanwhile, so every
-  // progress report counts all of them as done.
-  for (const r of checkpoint.restored.values()) {
-    results.delete(r.unit);
-    record(r, false);
-  }
+  const { record, report } = progressRecorder({
+    units,
+    owned,
+    planEstimators: context.estimators.length,
+    results,
+    appender,
+    started,
+    onProgress: options.onProgress,
+  });
+  for (const r of checkpoint.restored.values()) record(r, false);
+  if (checkpoint.restored.size) report();
 
   const pending = pendingUnits(units, owned, results);
   const workers = Math.max(1, Math.min(options.workers ?? defaultWorkers(), pending.length || 1));

@@ -29,6 +29,11 @@ export interface TableOptions {
   textColumns?: number;
   /** A long table: scrolls inside a box of at most 75% of the screen height. */
   tall?: boolean;
+  /**
+   * A wide table whose first two columns name each row (scenario, estimator): they keep their place, at a fixed
+   * width with long names wrapped, while the numbers scroll sideways under them.
+   */
+  stickyNames?: boolean;
 }
 
 /** A table sortable by clicking its headers (the inline script below). */
@@ -51,7 +56,7 @@ export function sortableTable(caption: string, head: string[], rows: CellInput[]
       return `<tr>${cells.join('')}</tr>`;
     })
     .join('\n');
-  return `<div class="table-wrap${options.tall ? ' tall' : ''}"><table class="sortable text-${textColumns}"><caption>${escapeHtml(caption)}</caption><thead><tr>${th}</tr></thead><tbody>\n${body}\n</tbody></table></div>`;
+  return `<div class="table-wrap${options.tall ? ' tall' : ''}${options.stickyNames ? ' sticky-names' : ''}"><table class="sortable text-${textColumns}"><caption>${escapeHtml(caption)}</caption><thead><tr>${th}</tr></thead><tbody>\n${body}\n</tbody></table></div>`;
 }
 
 /** Charts wider than this keep their size on a phone and scroll sideways; shrunk to fit, their text would be too small to read. */
@@ -95,7 +100,12 @@ table { border-collapse: collapse; font-size: 0.85rem; font-variant-numeric: tab
 caption { text-align: left; font-weight: 600; padding: 0.3rem 0; caption-side: top; }
 th, td { padding: 0.25rem 0.6rem; border-bottom: 1px solid var(--line); text-align: right; white-space: nowrap; }
 th:first-child, td:first-child, .text-2 :is(th, td):nth-child(-n+2), .text-3 :is(th, td):nth-child(-n+3) { text-align: left; }
-thead th { background: var(--head); position: sticky; top: 0; }
+thead th { background: var(--head); position: sticky; top: 0; z-index: 2; }
+.sticky-names { --name-1: min(15rem, 36vw); --name-2: min(12rem, 28vw); }
+.sticky-names :is(th, td):nth-child(-n+2) { position: sticky; z-index: 1; background: #fff; white-space: normal; overflow-wrap: anywhere; }
+.sticky-names :is(th, td):nth-child(1) { left: 0; width: var(--name-1); min-width: var(--name-1); max-width: var(--name-1); }
+.sticky-names :is(th, td):nth-child(2) { left: var(--name-1); width: var(--name-2); min-width: var(--name-2); max-width: var(--name-2); box-shadow: inset -1px 0 var(--line); }
+.sticky-names thead th:nth-child(-n+2) { z-index: 3; background: var(--head); }
 th button { all: inherit; cursor: pointer; padding: 0; }
 th button::after { content: " ↕"; color: #999; }
 th[aria-sort="ascending"] button::after { content: " ↑"; color: var(--fg); }
@@ -111,7 +121,7 @@ td.pass { background: #d8f0e7; } td.warn { background: #fbebc6; } td.fail { back
   nav, .noprint { display: none; }
   main { max-width: none; padding: 0; }
   .table-wrap, .table-wrap.tall { overflow: visible; max-height: none; }
-  thead th { position: static; }
+  thead th, .sticky-names :is(th, td):nth-child(-n+2) { position: static; }
   table { font-size: 7.5pt; }
   th, td { padding: 1px 4px; white-space: normal; }
   th button::after { content: ""; }

@@ -3,6 +3,7 @@
  * as its own SVG file. Everything is rendered in memory first; files are written (atomically) only after all
  * of it succeeded, so a failure never leaves a half report.
  */
+import { createHash } from 'node:crypto';
 import { join } from 'node:path';
 import { mkdirSync } from 'node:fs';
 import type { TopLevelSpec } from 'vega-lite';
@@ -39,14 +40,24 @@ export interface WriteReportOptions extends ReportOptions {
   svgDir?: string;
 }
 
-/** Lowercase letters, digits, dots and hyphens: safe as a file name and an HTML id on every system. */
+/** The readable part of a slug keeps at most this many characters: with a prefix and a hash, a name stays far below the 255 bytes file systems allow. */
+export const SLUG_LIMIT = 80;
+
+/**
+ * Lowercase letters, digits, dots and hyphens: safe as a file name and an HTML id on every system. A text that
+ * does not come through unchanged (a sign, '=', ',', capitals, or more than SLUG_LIMIT characters) gets the
+ * first 8 hex digits of its SHA-256 appended, so `normal:mu=2` and `normal:mu=-2` get different names and a 9-D
+ * covariance spec a short one.
+ */
 export function slug(text: string): string {
-  return (
+  const plain =
     text
       .toLowerCase()
       .replace(/[^a-z0-9.]+/g, '-')
-      .replace(/^-+|-+$/g, '') || 'chart'
-  );
+      .replace(/^-+|-+$/g, '') || 'chart';
+  if (plain === text && plain.length <= SLUG_LIMIT) return plain;
+  const hash = createHash('sha256').update(text).digest('hex').slice(0, 8);
+  return `${plain.slice(0, SLUG_LIMIT).replace(/-+$/, '')}-${hash}`;
 }
 
 function familyOf(run: RunFile, spec: string): string {

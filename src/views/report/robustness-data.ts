@@ -7,6 +7,7 @@ import { toBase } from '../../core/format.js';
 import type { RunFile } from '../../analysis/results.js';
 import { ROBUSTNESS_COLUMNS, type RobustnessSection, type Verdict } from '../../analysis/robustness.js';
 import { finite, type ReportData, type Series } from './data.js';
+import { robustnessText, smallestQuantizeStep } from '../verdict-text.js';
 
 export type { RobustnessSection };
 
@@ -24,18 +25,20 @@ export interface RobustnessGrid {
   columns: string[];
 }
 
-/** Columns named in the table, known ones first in their usual order. */
+/** Columns named in the table, known ones first in their usual order; each cell's text is its verdict with value and unit, as in the tables ("fail 11 SD"). */
 export function robustnessGrid(data: ReportData, section: RobustnessSection): RobustnessGrid | null {
   if (!section.table.length) return null;
   const seen = new Set(section.table.flatMap((r) => Object.keys(r.columns)));
   const columns = [...KNOWN_COLUMNS.filter((c) => seen.has(c)), ...[...seen].filter((c) => !KNOWN_COLUMNS.includes(c))];
   const rows: RobustnessGrid['rows'] = [];
+  const finest = smallestQuantizeStep(section);
   for (const row of section.table) {
     const estimator = data.label(row.estimator);
     for (const column of columns) {
       const cell = row.columns[column];
       const verdict: Verdict = cell?.verdict ?? 'n/a';
-      rows.push({ estimator, column, verdict, text: verdict === 'n/a' ? '–' : verdict, detail: cell?.detail ?? '' });
+      const text = cell ? robustnessText(column, verdict, cell.value, finest) : '–';
+      rows.push({ estimator, column, verdict, text, detail: cell?.detail ?? '' });
     }
   }
   return { rows, estimators: section.table.map((r) => data.label(r.estimator)), columns };

@@ -7,6 +7,7 @@ import { formatValue, type Base } from '../../core/format.js';
 import type { RobustnessGrid, TuningPanel } from './robustness-data.js';
 import { CHART_CONFIG, estimatorHeatmapSpec } from './specs.js';
 import { REFERENCE_COLOUR, VERDICT_COLOURS } from './palette.js';
+import { textWidth } from './text-metrics.js';
 
 export function tuningSpec(panel: TuningPanel, base: Base): TopLevelSpec {
   const charts = panel.settings.map((group) => {
@@ -64,7 +65,8 @@ export function robustnessGridSpec(grid: RobustnessGrid): TopLevelSpec {
   return estimatorHeatmapSpec({
     title: 'Robustness checks',
     subtitle: ['unit drift per perturbation and tuning spread', 'details in the table below'],
-    columnStep: 84,
+    // Wide enough for the longest label with its unit, measured ("pass 7e-16 nats", "fail <0.001 SD"), plus padding.
+    columnStep: Math.max(84, Math.ceil(Math.max(...grid.rows.map((r) => textWidth(r.text, 12)))) + 16),
     x: { field: 'column', type: 'nominal', sort: grid.columns, title: 'check', axis: { orient: 'top', labelAngle: 0 } },
     estimators: grid.estimators,
     rows: grid.rows,

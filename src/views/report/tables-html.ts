@@ -123,7 +123,7 @@ export function scoresTable(data: ReportData): string {
     'failed',
     'ms / estimate',
   ];
-  return sortableTable(`Every cell: score ± Monte-Carlo SE (${run.cells.length} cells)`, head, rows, { textColumns: 2, tall: true });
+  return sortableTable(`Every cell: score ± Monte-Carlo SE (${run.cells.length} cells)`, head, rows, { textColumns: 2, tall: true, stickyNames: true });
 }
 
 export function robustnessTable(data: ReportData, section: RobustnessSection, columns: string[]): string {
