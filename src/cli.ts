@@ -18,6 +18,7 @@ const LOADERS: Record<CommandName, () => Promise<Register>> = {
   compare: async () => (await import('./commands/compare.js')).registerCompareCommand,
   check: async () => (await import('./commands/check.js')).registerCheckCommand,
   advise: async () => (await import('./commands/advise.js')).registerAdviseCommand,
+  draw: async () => (await import('./commands/draw.js')).registerDrawCommand,
 };
 
 /** The command the arguments name (after global options, or after `help`), if it is one of ours. */

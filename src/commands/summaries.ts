@@ -16,6 +16,7 @@ export const COMMANDS = {
     'run the estimator conformance suite on the estimators of a module (or the built-ins): determinism, row order, units, invariances, typed errors on bad input, a known value',
   advise:
     'which estimator to use: for a described situation (--n, --dim), or for a data file, with an estimate, a bootstrap interval and a look-alike bias correction',
+  draw: "write the exact samples a bench cell's estimators see (scenario, n, replicate, seed) as .npy, CSV or JSON, with the true value and its source",
 } as const;
 
 export type CommandName = keyof typeof COMMANDS;

@@ -77,8 +77,8 @@ const TEMPORARY = /\.[0-9a-f]{16}\.tmp$/;
  * Writes all of `text`: a write may store fewer bytes than asked (a disk filling up does that, without an
  * error), so it repeats until everything is written or the file system reports why it cannot.
  */
-function writeAll(fd: number, text: string): void {
-  const bytes = Buffer.from(text, 'utf8');
+function writeAll(fd: number, content: string | Uint8Array): void {
+  const bytes = typeof content === 'string' ? Buffer.from(content, 'utf8') : content;
   let offset = 0;
   while (offset < bytes.length) {
     const written = writeSync(fd, bytes, offset, bytes.length - offset);
@@ -87,17 +87,26 @@ function writeAll(fd: number, text: string): void {
   }
 }
 
+/** A file system's refusal (ENOSPC, EACCES, ...), as opposed to an error of the code producing the content. */
+function isSystemError(error: unknown): boolean {
+  const code = (error as NodeJS.ErrnoException | null)?.code;
+  return typeof code === 'string' && /^E[A-Z0-9]+$/.test(code);
+}
+
 /**
- * Writes `text` to `path` atomically: a temporary file created exclusively (O_EXCL, random name, so no
+ * Writes `content` to `path` atomically: a temporary file created exclusively (O_EXCL, random name, so no
  * existing file or link is followed), flushed to disk, renamed over `path`. On failure nothing is left behind.
+ * Content given as chunks (text or bytes, possibly produced lazily) is written one chunk at a time, so a large
+ * file is never held whole; an error thrown while producing a chunk is passed on as it is.
  */
-export function writeFileAtomic(path: string, text: string, hint?: string): void {
+export function writeFileAtomic(path: string, content: string | Uint8Array | Iterable<string | Uint8Array>, hint?: string): void {
   ensureFolder(dirname(path), hint);
   const temporary = `${path}.${randomBytes(8).toString('hex')}.tmp`;
   let fd: number | undefined;
   try {
     fd = openSync(temporary, constants.O_WRONLY | constants.O_CREAT | constants.O_EXCL, 0o644);
-    writeAll(fd, text);
+    if (typeof content === 'string' || content instanceof Uint8Array) writeAll(fd, content);
+    else for (const chunk of content) writeAll(fd, chunk);
     fsyncSync(fd);
     closeSync(fd);
     fd = undefined;
@@ -106,6 +115,7 @@ export function writeFileAtomic(path: string, text: string, hint?: string): void
   } catch (error) {
     if (fd !== undefined) closeSync(fd);
     rmSync(temporary, { force: true });
+    if (!isSystemError(error) && typeof content !== 'string') throw error;
     fail(error, 'write', path, hint);
   }
   fsyncFolder(dirname(path));

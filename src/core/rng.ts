@@ -1,6 +1,6 @@
 import { createHash } from 'node:crypto';
 import seedrandom from 'seedrandom';
-import type { Rng } from './contracts.js';
+import type { Rng, Sample, Scenario } from './contracts.js';
 
 /** The base seed when none is given: plans without one, the default plans and the advice's benchmarks. */
 export const DEFAULT_SEED = 20261201;
@@ -26,4 +26,12 @@ export function rngFromSeed(seed: string): Rng {
 
 export function replicateRng(baseSeed: number, scenarioId: string, n: number, replicate: number): Rng {
   return rngFromSeed(replicateSeed(baseSeed, scenarioId, n, replicate));
+}
+
+/**
+ * The sample replicate `replicate` of a cell sees (its Q sample too, for a divergence): the runner draws every
+ * cell's samples here, and `hhat draw` writes them out, so both see the same bytes.
+ */
+export function drawReplicate(scenario: Scenario, baseSeed: number, n: number, replicate: number): Sample {
+  return scenario.sample(replicateRng(baseSeed, scenario.id, n, replicate), n);
 }

@@ -391,3 +391,18 @@ function applyToColumns(prepared: PreparedPerturbation, sample: Sample, columns:
   prepared.apply({ n, dim: width, data: part }, replicate, seed);
   for (let i = 0; i < n; i++) for (let k = 0; k < width; k++) data[i * dim + columns[k]] = part[i * width + k];
 }
+
+/**
+ * The perturbed sample of a replicate: a deep copy, since the Q sample of a divergence is perturbed too and the
+ * drawn sample must stay intact for the other series of the same replicate. The runner and `hhat draw` both
+ * perturb through here, so a written perturbed draw is the one the estimators saw.
+ */
+export function perturbedCopy(original: Sample, prepared: PreparedPerturbation, replicate: number, seed: number): Sample {
+  const sample: Sample = {
+    ...original,
+    data: Float64Array.from(original.data),
+    ...(original.q ? { q: { ...original.q, data: Float64Array.from(original.q.data) } } : {}),
+  };
+  prepared.apply(sample, replicate, seed);
+  return sample;
+}

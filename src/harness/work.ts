@@ -10,8 +10,8 @@ import { EstimateError } from '../core/errors.js';
 import type { ConfiguredEstimator } from '../../estimators/index.js';
 import { dimsRange, runEstimator, supportsDimension } from '../../estimators/index.js';
 import type { Plan } from './plan.js';
-import type { Perturbation, PreparedPerturbation } from './perturb.js';
-import { replicateRng } from '../core/rng.js';
+import { perturbedCopy, type Perturbation, type PreparedPerturbation } from './perturb.js';
+import { drawReplicate } from '../core/rng.js';
 import type { TuningPoint } from './tuning.js';
 
 /** A series of estimates: one estimator (index into the context's `all` list) on one variant of the sample. */
@@ -162,18 +162,9 @@ export function executeReplicate(unit: Unit, context: WorkContext, replicate: nu
   // Every estimate already failed elsewhere (a worker died drawing this sample, say): do not draw it again.
   if (hooks.skip && unit.series.every((_, k) => hooks.skip!(k))) return { replicate, values, timeMs, failures };
   const variants = [...new Set(unit.series.map((s) => s.variant))];
-  const original = scenario.sample(replicateRng(plan.seed, scenario.id, unit.n, replicate), unit.n);
+  const original = drawReplicate(scenario, plan.seed, unit.n, replicate);
   for (const v of variants) {
-    let sample: Sample = original;
-    if (v > 0) {
-      // Perturb a deep copy: the Q sample of a divergence is perturbed too, and the original must stay intact.
-      sample = {
-        ...original,
-        data: Float64Array.from(original.data),
-        ...(original.q ? { q: { ...original.q, data: Float64Array.from(original.q.data) } } : {}),
-      };
-      (context.prepared[unit.scenario][v - 1] as PreparedPerturbation).apply(sample, replicate, plan.seed);
-    }
+    const sample: Sample = v > 0 ? perturbedCopy(original, context.prepared[unit.scenario][v - 1] as PreparedPerturbation, replicate, plan.seed) : original;
     unit.series.forEach((series, k) => {
       if (series.variant !== v || hooks.skip?.(k)) return;
       hooks.onStart?.(k, replicate);
