@@ -30,7 +30,7 @@ export type {
   UnivariateDensity,
 } from './core/contracts.js';
 export { EstimateError, UsageError, isEstimateError } from './core/errors.js';
-export { replicateRng, replicateSeed, rngFromSeed } from './core/rng.js';
+export { drawReplicate, replicateRng, replicateSeed, rngFromSeed } from './core/rng.js';
 export { catalog, getFamily, listFamilies, parseScenario } from '../scenarios/index.js';
 export {
   checkDimension,

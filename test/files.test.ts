@@ -136,6 +136,18 @@ describe('full and read-only disks (tmpfs)', () => {
     expect(result.err.trim().split('\n')).toHaveLength(1);
     expect(result.err).toMatch(/is on a read-only file system: cannot .*; choose another --out/);
   });
+
+  it.skipIf(!canMount)('hhat draw on a disk that fills up: one line, exit 1, no file or temporary left', async () => {
+    const disk = join(dir, 'small-draw-disk');
+    expect(tryMount(disk, 'size=16k')).toBe(true);
+    mounts.push(disk);
+    // 3 × 1000 × 2 doubles = 48 kB of data: the disk fills up part way through the stack.
+    const result = await cli(['draw', 'gaussian:dim=2', '--n', '1000', '--replicates', '3', '--out', join(disk, 'draws.npy')]);
+    expect(result.code).toBe(1);
+    expect(result.err.trim().split('\n')).toHaveLength(1);
+    expect(result.err).toMatch(/^hhat: the disk is full: cannot write .*draws\.npy/);
+    expect(readdirSync(disk)).toEqual([]);
+  });
 });
 
 describe('one output, one process', () => {
@@ -202,6 +214,23 @@ describe('atomic writes', () => {
     writeFileSync(`${target}.0123456789abcdef.tmp`, 'torn');
     expect(removeLeftoverTemporaries(target)).toBe(1);
     expect(readdirSync(join(dir, 'atomic'))).toEqual(['file.txt']);
+  });
+
+  it('write content given as chunks (text and bytes) one after another', () => {
+    const target = join(dir, 'atomic', 'chunks.bin');
+    writeFileAtomic(target, ['ab', Uint8Array.from([0, 255]), 'c']);
+    expect([...readFileSync(target)]).toEqual([0x61, 0x62, 0, 255, 0x63]);
+  });
+
+  it('pass on an error thrown while producing a chunk, leaving the old file and no temporary', () => {
+    const target = join(dir, 'atomic', 'chunks.bin');
+    const failing = function* () {
+      yield 'partial';
+      throw new RangeError('the producer broke');
+    };
+    expect(() => writeFileAtomic(target, failing())).toThrow(RangeError);
+    expect([...readFileSync(target)]).toEqual([0x61, 0x62, 0, 255, 0x63]);
+    expect(readdirSync(join(dir, 'atomic')).sort()).toEqual(['chunks.bin', 'file.txt']);
   });
 });
 

@@ -184,6 +184,8 @@ function drawRecord(draw: Draw): Record<string, unknown> {
   };
 }
 
+const MAX_LISTED_FILES = 8;
+
 function printSummary(draw: Draw, replicates: number[], files: WrittenFile[], format: Format, print: (text: string) => void): void {
   const { scenario } = draw;
   const layout =
@@ -201,7 +203,10 @@ function printSummary(draw: Draw, replicates: number[], files: WrittenFile[], fo
   print(
     `draws       n = ${draw.n}, seed ${draw.seed}, replicate${replicates.length === 1 ? '' : 's'} ${describeReplicates(replicates)} (numbered from 0, as in run files)`,
   );
-  for (const file of files) {
+  // Thousands of split files: the first few and the last stand for the rest (--json lists every one).
+  const shown = files.length > MAX_LISTED_FILES ? [...files.slice(0, MAX_LISTED_FILES - 1), files[files.length - 1]] : files;
+  for (const file of shown) {
+    if (file === files[files.length - 1] && shown.length < files.length) print(`            … ${files.length - shown.length} more files`);
     const what = file.contents === 'sample' ? '' : file.contents === 'p+q' ? ' P and Q' : ` ${file.contents.toUpperCase()}`;
     const shape =
       format === 'csv' ? `${file.shape[0]} row${file.shape[0] === 1 ? '' : 's'}` : `(${file.shape.join(', ')})${format === 'npy' ? ' float64' : ''}`;
