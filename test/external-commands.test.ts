@@ -162,6 +162,49 @@ describe('faults: each a failure with its reason, the rest of the run intact', (
   });
 });
 
+describe('the Python example (examples/knn_entropy.py) in a bench, against an independent computation on the draws hhat draw exports', () => {
+  const scenarios = ['normal', 'gaussian:dim=3,rho=0.5'];
+  const sizes = [100, 400];
+  let run: RunFile;
+
+  beforeAll(() => {
+    const example = `soil-kl=python3 ${join(root, 'examples', 'knn_entropy.py')}`;
+    const args = ['bench', '--estimator-command', example, '--estimator', 'kozachenko-leonenko', '--estimator', 'vasicek', '--estimator', 'gaussian'];
+    for (const s of scenarios) args.push('--scenario', s);
+    const r = hhat([...args, '--n', sizes.join(','), '--replicates', '10', '--out', 'example-run.json', '--quiet']);
+    expect(r.code, r.err).toBe(0);
+    run = JSON.parse(readFileSync(join(dir, 'example-run.json'), 'utf8')) as RunFile;
+  }, 120_000);
+
+  it('gives, replicate by replicate, the estimates SciPy computes from the exported draws (to 1e-12)', () => {
+    let compared = 0;
+    for (const cell of run.cells.filter((c) => c.estimatorId === 'soil-kl')) {
+      // The same scenario, n, replicates (0..9) and the run's seed: the draws the command received.
+      const file = join(dir, `draws-${compared}.npy`);
+      const drawn = hhat(['draw', cell.scenario, '--n', String(cell.n), '--replicates', '10', '--seed', String(run.plan.seed), '--out', file]);
+      expect(drawn.code, drawn.err).toBe(0);
+      // The independent computation: all-pairs distances (scipy.spatial.distance.cdist), digamma and gammaln from SciPy.
+      const reference = spawnSync('python3', [join(root, 'test', 'fixtures', 'kl_reference.py'), file, '3'], { encoding: 'utf8' });
+      expect(reference.status, reference.stderr).toBe(0);
+      const expected = JSON.parse(reference.stdout) as number[];
+      expect(cell.estimates).toHaveLength(10);
+      cell.estimates.forEach((value, r) => expect(Math.abs((value as number) - expected[r]), `${cell.scenario} n=${cell.n} r=${r}`).toBeLessThan(1e-12));
+      compared++;
+    }
+    expect(compared).toBe(scenarios.length * sizes.length);
+  });
+
+  it('is ranked beside the built-ins in every cell, and in the overall table', () => {
+    expect(run.rankings).toHaveLength(scenarios.length * sizes.length);
+    for (const ranking of run.rankings) {
+      const ids = ranking.entries.map((e) => e.estimator.split(':')[0]).sort();
+      expect(ids).toEqual(['gaussian', 'kozachenko-leonenko', 'soil-kl', 'vasicek'].filter((id) => id !== 'vasicek' || ranking.scenario.startsWith('normal')));
+      expect(ranking.entries.find((e) => e.estimator === 'soil-kl')!.status).toBe('ranked');
+    }
+    expect(run.overall.map((o) => o.estimator)).toContain('soil-kl');
+  });
+});
+
 describe('on the command line', () => {
   beforeAll(() => {
     writeFileSync(
