@@ -123,12 +123,12 @@ export function jsonPath(pointer: string): string {
     .reduce((path, part) => (/^\d+$/.test(part) ? `${path}[${part}]` : path ? `${path}.${part}` : part), '');
 }
 
-/** "an object", "an integer", "an array", "a string": a JSON type with its article. */
+/** "an object", "an integer", "an array", "a string", "null": a JSON type with its article. */
 function withArticle(type: string): string {
-  return `${/^[aeiou]/.test(type) ? 'an' : 'a'} ${type}`;
+  return type === 'null' ? type : `${/^[aeiou]/.test(type) ? 'an' : 'a'} ${type}`;
 }
 
-function describeSchemaError(error: ErrorObject): string {
+function describeSchemaError(error: ErrorObject, types: string[] = [String((error.params as { type?: unknown }).type)]): string {
   const path = jsonPath(error.instancePath);
   switch (error.keyword) {
     case 'additionalProperties': {
@@ -147,7 +147,10 @@ function describeSchemaError(error: ErrorObject): string {
     case 'maximum':
       return `${path}: must be ≤ ${(error.params as { limit: number }).limit}`;
     case 'type':
-      return `${path === '(plan)' ? 'the plan' : `${path}:`} must be ${String((error.params as { type: string | string[] }).type).split(',').map(withArticle).join(' or ')}`;
+      return `${path === '(plan)' ? 'the plan' : `${path}:`} must be ${[...new Set(types)]
+        .sort((a, b) => Number(a === 'null') - Number(b === 'null'))
+        .map(withArticle)
+        .join(' or ')}`;
     case 'minItems':
       // Not countOf from core/format.ts: that module loads the table library, which plan reading does not need.
       return `${path}: must list at least ${(error.params as { limit: number }).limit} item${(error.params as { limit: number }).limit === 1 ? '' : 's'}`;
@@ -174,7 +177,11 @@ export function checkPlanShape(value: unknown, source: string): PlanInput {
     // type mismatch or the oneOf summary only says that another branch's shape was meant: any other error says more.
     const vague = (e: ErrorObject) => Number(e.keyword === 'type' || e.keyword === 'oneOf');
     const deepest = [...errors].sort((a, b) => b.instancePath.length - a.instancePath.length || vague(a) - vague(b))[0];
-    throw new UsageError(`${source}: ${deepest ? describeSchemaError(deepest) : 'is not a valid plan'}`);
+    // A value of the wrong type where several are allowed (an object or null) fails once per branch: name them all.
+    const types = errors
+      .filter((e) => e.keyword === 'type' && deepest && e.instancePath === deepest.instancePath)
+      .flatMap((e) => String((e.params as { type: unknown }).type).split(','));
+    throw new UsageError(`${source}: ${deepest ? describeSchemaError(deepest, types.length ? types : undefined) : 'is not a valid plan'}`);
   }
   return value as PlanInput;
 }
