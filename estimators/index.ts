@@ -197,7 +197,8 @@ export function runEstimator(configured: ConfiguredEstimator, sample: Sample, op
   checkDimension(configured.estimator, sample.dim);
   const value: unknown = configured.estimator.estimate(sample, configured.settings);
   // A user's module is plain JavaScript: a string such as "1.5" must not pass for an estimate.
-  if (typeof value !== 'number') throw new EstimateError('numeric', `${configured.estimator.id}: estimate must return a number (nats); it returned ${describeValue(value)}`);
+  if (typeof value !== 'number')
+    throw new EstimateError('numeric', `${configured.estimator.id}: estimate must return a number (nats); it returned ${describeValue(value)}`);
   return { value, settings: options.report ? resolveSettings(configured, sample) : configured.settings };
 }
 

@@ -58,7 +58,12 @@ describe('item 1: tables never cut an id, a spec or a family; counts in the righ
     const firstCells = out
       .split('\n')
       .filter((line) => /^│ \S/.test(line))
-      .map((line) => line.split('│').slice(1, 3).map((cell) => cell.trim()));
+      .map((line) =>
+        line
+          .split('│')
+          .slice(1, 3)
+          .map((cell) => cell.trim()),
+      );
     expect(firstCells.slice(1)).toEqual(list.map((e) => [e.id, e.family]));
     expect(out).toContain('│ mi-from-entropies            │ entropy-combination │');
   });
@@ -84,7 +89,9 @@ describe('item 2: every spec id that `hhat scenarios` prints can be copied back'
   it('each id of the default listing (in its cell or under the table) resolves to the same scenario', async () => {
     const { out } = await run(['scenarios']);
     const lines = out.split('\n');
-    const notes = new Map(lines.flatMap((line) => (/^\[(\d+)\] (.+)$/.exec(line) ? [[/^\[(\d+)\] (.+)$/.exec(line)![1], /^\[(\d+)\] (.+)$/.exec(line)![2]]] : [])));
+    const notes = new Map(
+      lines.flatMap((line) => (/^\[(\d+)\] (.+)$/.exec(line) ? [[/^\[(\d+)\] (.+)$/.exec(line)![1], /^\[(\d+)\] (.+)$/.exec(line)![2]]] : [])),
+    );
     const printed = lines
       .filter((line) => line.startsWith('│ '))
       .slice(1)
@@ -109,29 +116,22 @@ describe('item 2: every spec id that `hhat scenarios` prints can be copied back'
 
 describe('item 3: --quiet prints only the run file path', () => {
   beforeAll(() => ensureBuilt(['src/commands/bench.ts', 'src/core/format.ts']));
+  /** One cell: two replicates of the kernel estimator on 50 normal points. */
+  const oneCell = ['bench', '--scenario', 'normal', '--estimator', 'kernel', '--n', '50', '--replicates', '2', '--workers', '1'];
 
   it('bench --quiet: stdout is the absolute path and a newline, stderr is empty', () => {
     const out = join(dir, 'quiet', 'run.json');
-    const result = hhat(['bench', '--scenario', 'normal', '--estimator', 'kernel', '--n', '50', '--replicates', '2', '--workers', '1', '--out', out, '--quiet']);
-    expect(result).toEqual({ code: 0, out: `${resolve(out)}\n`, err: '' });
+    expect(hhat([...oneCell, '--out', out, '--quiet'])).toEqual({ code: 0, out: `${resolve(out)}\n`, err: '' });
     expect(JSON.parse(readFileSync(out, 'utf8')).cells).toHaveLength(1);
     // Without --quiet the closing count says "1 cell ... 1 worker".
-    const loud = hhat(['bench', '--scenario', 'normal', '--estimator', 'kernel', '--n', '50', '--replicates', '2', '--workers', '1', '--out', out, '--force']);
-    expect(loud.out).toMatch(/\n1 cell in \d+\.\d s on 1 worker\nrun file: .*run\.json\n$/);
+    expect(hhat([...oneCell, '--out', out, '--force']).out).toMatch(/\n1 cell in \d+\.\d s on 1 worker\nrun file: .*run\.json\n$/);
     // Resuming a finished run under --quiet prints the path too, and only it.
-    expect(hhat(['bench', '--scenario', 'normal', '--estimator', 'kernel', '--n', '50', '--replicates', '2', '--workers', '1', '--out', out, '--resume', '--quiet'])).toEqual({
-      code: 0,
-      out: `${resolve(out)}\n`,
-      err: '',
-    });
+    expect(hhat([...oneCell, '--out', out, '--resume', '--quiet'])).toEqual({ code: 0, out: `${resolve(out)}\n`, err: '' });
   });
 
   it('merge --quiet prints only the merged path', async () => {
     const shards = [1, 2].map((i) => join(dir, 'quiet', `shard-${i}.json`));
-    for (const [i, shard] of shards.entries()) {
-      const done = await run(['bench', '--scenario', 'normal', '--estimator', 'kernel', '--n', '50', '--replicates', '2', '--workers', '1', '--shard', `${i + 1}/2`, '--out', shard, '--quiet']);
-      expect(done.code).toBe(0);
-    }
+    for (const [i, shard] of shards.entries()) expect((await run([...oneCell, '--shard', `${i + 1}/2`, '--out', shard, '--quiet'])).code).toBe(0);
     const merged = join(dir, 'quiet', 'merged.json');
     expect(await run(['merge', ...shards, '--out', merged, '--quiet'])).toEqual({ code: 0, out: `${resolve(merged)}\n`, err: '' });
   });
@@ -140,7 +140,9 @@ describe('item 3: --quiet prints only the run file path', () => {
 describe('item 4: a divergence names both files', () => {
   it('--help says which file is P and which is Q', async () => {
     const { out } = await run(['estimate', '--help']);
-    expect(out).toContain('  --against <q-file>         estimate the divergence D(P‖Q) with P = <file>, Q =\n                             <q-file>: the sample from Q, read like <file>\n');
+    expect(out).toContain(
+      '  --against <q-file>         estimate the divergence D(P‖Q) with P = <file>, Q =\n                             <q-file>: the sample from Q, read like <file>\n',
+    );
     expect(out).toContain('with --against, the sample from P');
   });
 
@@ -238,7 +240,13 @@ describe('item 6: standard input as the data file', () => {
     // A version 1.0 .npy header (NumPy's format description, numpy.lib.format), little-endian float64, C order.
     const header = "{'descr': '<f8', 'fortran_order': False, 'shape': (200, 2), }";
     const padded = header.padEnd(118 - 1, ' ') + '\n';
-    const preamble = Buffer.concat([Buffer.from([0x93]), Buffer.from('NUMPY'), Buffer.from([1, 0]), Buffer.from([padded.length, 0]), Buffer.from(padded, 'latin1')]);
+    const preamble = Buffer.concat([
+      Buffer.from([0x93]),
+      Buffer.from('NUMPY'),
+      Buffer.from([1, 0]),
+      Buffer.from([padded.length, 0]),
+      Buffer.from(padded, 'latin1'),
+    ]);
     const npy = Buffer.concat([preamble, Buffer.from(Float64Array.from(p.rows.flat()).buffer)]);
     const npyOut = JSON.parse(hhat(['estimate', '-', '--json', '--estimator', 'gaussian'], npy).out);
     const csvOut = JSON.parse(fromCsv);
@@ -256,7 +264,11 @@ describe('item 6: standard input as the data file', () => {
   });
 
   it('empty input and both samples from one pipe are refused in one line', () => {
-    expect(hhat(['estimate', '-'], '')).toEqual({ code: 2, out: '', err: 'hhat: standard input is empty; pipe a sample in (CSV/TSV/TXT, JSON or NumPy .npy)\n' });
+    expect(hhat(['estimate', '-'], '')).toEqual({
+      code: 2,
+      out: '',
+      err: 'hhat: standard input is empty; pipe a sample in (CSV/TSV/TXT, JSON or NumPy .npy)\n',
+    });
     expect(hhat(['estimate', '-', '--against', '-'], p.csv).err).toBe(
       'hhat: FILE and --against cannot both be - (standard input holds one sample); name a file for one of them\n',
     );

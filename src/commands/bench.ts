@@ -343,7 +343,14 @@ async function presentRun(
 }
 
 /** The closing lines: what ran, how long it took on how many workers, and where the run file is. */
-function printRunSummary(run: RunFile, outcome: RunOutcome, out: string, shard: Shard | undefined, quiet: boolean | undefined, print: (text: string) => void): void {
+function printRunSummary(
+  run: RunFile,
+  outcome: RunOutcome,
+  out: string,
+  shard: Shard | undefined,
+  quiet: boolean | undefined,
+  print: (text: string) => void,
+): void {
   if (quiet) {
     print(out);
     return;

@@ -162,7 +162,10 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     .description(
       'estimate the differential entropy of a data file (CSV/TSV/TXT, JSON, NumPy .npy) with one or more estimators; the mutual information with --x-columns and --y-columns, a divergence with --against',
     )
-    .argument('<file>', 'the sample: rows are points, columns are coordinates; "-" reads standard input (format from its first bytes); with --against, the sample from P')
+    .argument(
+      '<file>',
+      'the sample: rows are points, columns are coordinates; "-" reads standard input (format from its first bytes); with --against, the sample from P',
+    )
     .option('--columns <list>', 'columns to use: positions from 1 ("1,3", "2-4") or header names ("x,y")')
     .option('--estimator <spec>', 'ID[:key=value,...] (repeatable; default: a set suited to the dimension)', collect)
     .option('--bits', 'values in bits instead of nats')
@@ -260,7 +263,22 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   // user made or asked to hear about; one the user named, or a default set with no value at all, is.
   const failedAsError = failed.length > 0 && (named || failed.length + skipped.length === records.length);
   if (options.json) printEstimateJson(print, { file, sample, quantity, base, options, label, reference, offset, loaded, limitSeconds, records, hints });
-  else printEstimateTable(print, { file, against: options.against, sample, quantity, base, label, reference, loaded, records, cutNotes, failed, failedAsError, hints });
+  else
+    printEstimateTable(print, {
+      file,
+      against: options.against,
+      sample,
+      quantity,
+      base,
+      label,
+      reference,
+      loaded,
+      records,
+      cutNotes,
+      failed,
+      failedAsError,
+      hints,
+    });
   if (skipped.length === records.length) {
     printErr(`hhat: no estimate was made: every estimator was skipped under the ${limitSeconds} s limit; raise --max-seconds or give --max-seconds none`);
     process.exitCode = 1;
@@ -308,7 +326,8 @@ function readEstimateSample(
     loaded = { ...loaded, sample };
     quantity = 'mutual-information';
   } else if (options.against !== undefined) {
-    if (options.against === STDIN_PATH && file === STDIN_PATH) throw new UsageError('FILE and --against cannot both be - (standard input holds one sample); name a file for one of them');
+    if (options.against === STDIN_PATH && file === STDIN_PATH)
+      throw new UsageError('FILE and --against cannot both be - (standard input holds one sample); name a file for one of them');
     const q = load(options.columns, options.against);
     if (q.sample.dim !== sample.dim)
       throw new UsageError(

@@ -96,7 +96,8 @@ export function sniffFormat(bytes: Uint8Array): DataFormat {
 
 /** All of standard input; a terminal is refused, since the command would wait for typing nobody meant to do. */
 function readStandardInput(): Buffer {
-  if (isatty(0)) throw new UsageError(`${STDIN_PATH} reads the sample from standard input, which is a terminal here; pipe the data in, e.g. cat data.csv | hhat estimate -`);
+  if (isatty(0))
+    throw new UsageError(`${STDIN_PATH} reads the sample from standard input, which is a terminal here; pipe the data in, e.g. cat data.csv | hhat estimate -`);
   const chunks: Buffer[] = [];
   const chunk = Buffer.allocUnsafe(1 << 20);
   for (;;) {
