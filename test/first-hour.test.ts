@@ -80,6 +80,15 @@ describe('item 1: tables never cut an id, a spec or a family; counts in the righ
     ]);
   });
 
+  it('bench --detail prints a scenario spec wider than its column whole under the table', async () => {
+    const out = join(dir, 'detail.json');
+    const args = ['bench', '--scenario', 'mi-transformed-gaussian', '--estimator', 'ksg1', '--n', '50', '--replicates', '2', '--workers', '1', '--detail'];
+    const printed = (await run([...args, '--no-chart', '--out', out, '--quiet'])).out;
+    expect(printed).toBe(`${resolve(out)}\n`);
+    const { out: shown } = await run([...args, '--no-chart', '--out', out, '--force']);
+    expect(shown).toMatch(/\n│ see \[1\] below │ ksg1 {6}│ 50 │ .*\n└[─┴]+┘\n\[1\] mi-transformed-gaussian:dimX=1,dimY=1,rho=0\.5,within=0\n/);
+  });
+
   it('counts', () => {
     expect([countOf(1, 'scenario'), countOf(0, 'cell'), countOf(3, 'entry', 'entries')]).toEqual(['1 scenario', '0 cells', '3 entries']);
   });
