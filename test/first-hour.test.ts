@@ -134,8 +134,12 @@ describe('item 3: --quiet prints only the run file path', () => {
     expect(JSON.parse(readFileSync(out, 'utf8')).cells).toHaveLength(1);
     // Without --quiet the closing count says "1 cell ... 1 worker".
     expect(hhat([...oneCell, '--out', out, '--force']).out).toMatch(/\n1 cell in \d+\.\d s on 1 worker\nrun file: .*run\.json\n$/);
-    // Resuming a finished run under --quiet prints the path too, and only it.
-    expect(hhat([...oneCell, '--out', out, '--resume', '--quiet'])).toEqual({ code: 0, out: `${resolve(out)}\n`, err: '' });
+    // Resuming a finished run under --quiet prints the path too, and only it; that nothing ran is said on stderr.
+    expect(hhat([...oneCell, '--out', out, '--resume', '--quiet'])).toEqual({
+      code: 0,
+      out: `${resolve(out)}\n`,
+      err: `hhat: ${resolve(out)} is already a finished run of this plan; nothing to resume\n`,
+    });
   });
 
   it('merge --quiet prints only the merged path', async () => {

@@ -232,9 +232,9 @@ function declareBenchOptions(command: Command): Command {
 /**
  * --quiet: stdout is the run file's absolute path and nothing else, so `out=$(hhat bench ... --quiet)` works;
  * no tables, chart, progress or closing counts. What needs attention still goes to stderr: errors, warnings
- * (a worker replaced, a checkpoint problem) and an interruption's resume hint.
+ * (a worker replaced, a checkpoint problem), an interruption's resume hint, and that a --resume found the run finished.
  */
-const QUIET_HELP = "print only the run file's path on stdout (no tables, chart, progress or counts); errors and warnings still go to stderr";
+const QUIET_HELP = "print only the run file's path on stdout (no tables, chart, progress or counts); errors, warnings and notes still go to stderr";
 
 /** The run file's absolute path: --out, else with --resume the newest interrupted run under results/, else a new timestamped name. */
 function benchOutPath(options: BenchOptions, shard: Shard | undefined): string {
@@ -377,7 +377,11 @@ async function runBench(options: BenchOptions, print: (text: string) => void, pr
     removeLeftoverTemporaries(out);
     removeLeftoverTemporaries(checkpoint);
     if (alreadyFinished(out, checkpoint, plan, options)) {
-      print(options.quiet ? out : `${out} is already a finished run of this plan; nothing to resume`);
+      // Under --quiet stdout stays the path alone; that nothing ran is still said, on stderr.
+      if (options.quiet) {
+        print(out);
+        printErr(`hhat: ${out} is already a finished run of this plan; nothing to resume`);
+      } else print(`${out} is already a finished run of this plan; nothing to resume`);
       return;
     }
     const { outcome, stoppedBy } = await runWithSignals(
