@@ -21,7 +21,7 @@ import type {
   Settings,
   SettingValue,
 } from '../src/core/contracts.js';
-import { UsageError } from '../src/core/errors.js';
+import { EstimateError, UsageError } from '../src/core/errors.js';
 import { checkEstimator, formatSpec, parseSpec, validateSettings } from '../src/core/spec.js';
 
 /**
@@ -179,6 +179,15 @@ export function checkDimension(estimator: Estimator, dim: number): void {
   if (!supportsDimension(estimator, dim)) throw new UsageError(`${estimator.id} does not support d = ${dim}; it needs ${dimsRange(estimator.dims)}`);
 }
 
+/** A returned value as a user would write it: the string "1.5", nothing, an object. */
+function describeValue(value: unknown): string {
+  if (value === undefined) return 'nothing';
+  if (value === null) return 'null';
+  if (typeof value === 'string') return `the string ${JSON.stringify(value.length > 40 ? `${value.slice(0, 40)}…` : value)}`;
+  if (typeof value === 'bigint') return `the bigint ${value}n`;
+  return Array.isArray(value) ? 'an array' : `${typeof value === 'object' ? 'an' : 'a'} ${typeof value}`;
+}
+
 /**
  * Runs an estimator on a sample after checking the dimension. Estimators take their settings as configured
  * (keywords such as 'auto' included); with `report`, the settings actually used are resolved too, which costs
@@ -186,7 +195,10 @@ export function checkDimension(estimator: Estimator, dim: number): void {
  */
 export function runEstimator(configured: ConfiguredEstimator, sample: Sample, options: { report?: boolean } = {}): { value: number; settings: Settings } {
   checkDimension(configured.estimator, sample.dim);
-  const value = configured.estimator.estimate(sample, configured.settings);
+  const value: unknown = configured.estimator.estimate(sample, configured.settings);
+  // A user's module is plain JavaScript: a string such as "1.5" must not pass for an estimate.
+  if (typeof value !== 'number')
+    throw new EstimateError('numeric', `${configured.estimator.id}: estimate must return a number (nats); it returned ${describeValue(value)}`);
   return { value, settings: options.report ? resolveSettings(configured, sample) : configured.settings };
 }
 

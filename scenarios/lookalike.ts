@@ -83,7 +83,9 @@ export function parseLookalikeArgument(parts: readonly string[]): MixtureCompone
     if (mean.length !== dim) throw new UsageError(`${LOOKALIKE_FAMILY}: component ${k + 1} has a mean of length ${mean.length}; component 1 has ${dim}`);
     const flat = numbers(fields[2], `component ${k + 1}'s covariance`);
     if (flat.length !== dim * dim)
-      throw new UsageError(`${LOOKALIKE_FAMILY}: component ${k + 1}'s covariance has ${flat.length} entries; a ${dim}×${dim} matrix needs ${dim * dim}`);
+      throw new UsageError(
+        `${LOOKALIKE_FAMILY}: component ${k + 1}'s covariance has ${flat.length} ${flat.length === 1 ? 'entry' : 'entries'}; a ${dim}×${dim} matrix needs ${dim * dim}`,
+      );
     const covariance = Array.from({ length: dim }, (_, i) => flat.slice(i * dim, i * dim + dim));
     for (let i = 0; i < dim; i++) {
       for (let j = 0; j < i; j++) {

@@ -130,7 +130,10 @@ export function parseCovarianceArgument(text: string): number[][] {
   );
   const dim = rows.length;
   rows.forEach((row, i) => {
-    if (row.length !== dim) throw new UsageError(`gaussian-covariance: row ${i + 1} has ${row.length} entries; a ${dim}×${dim} matrix needs ${dim}`);
+    if (row.length !== dim)
+      throw new UsageError(
+        `gaussian-covariance: row ${i + 1} has ${row.length} ${row.length === 1 ? 'entry' : 'entries'}; a ${dim}×${dim} matrix needs ${dim}`,
+      );
   });
   for (let i = 0; i < dim; i++) {
     for (let j = 0; j < i; j++) {

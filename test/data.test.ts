@@ -373,7 +373,7 @@ describe('parseJson', () => {
     expect(json('[1, null, 3]')).toBe('d.json row 2 (index [1]): null is not a finite number; remove or impute missing values');
     expect(json('[[1,2],[3,"4"]]')).toBe('d.json row 2, column 2 (index [1][1]): "4" is a string; values must be JSON numbers, without quotes');
     expect(json('[[1,2],[3,4],[5]]')).toBe('d.json row 3 (index [2]) has 1 value; the first row has 2');
-    expect(json('{"x":[1,2],"y":[1]}')).toBe('d.json column "y" has 1 values; column "x" has 2');
+    expect(json('{"x":[1,2],"y":[1]}')).toBe('d.json column "y" has 1 value; column "x" has 2');
     expect(json('{"x":[1,null]}')).toBe('d.json column 1 ("x"), row 2 (index ["x"][1]): null is not a finite number; remove or impute missing values');
     expect(json('[1e999]')).toContain('not a finite number (it overflows a double)');
     expect(json('[]')).toContain('d.json holds an empty array; expected an array of numbers, an array of equal-length rows');
@@ -552,7 +552,7 @@ describe('findRepeats', () => {
     expect(report.columns[0]).toEqual({ distinct: 3, tiedValues: 5, largestGroup: 3, smallestGap: 1 });
     expect(report.columns[1]).toEqual({ distinct: 3, tiedValues: 4, largestGroup: 4, smallestGap: 0.25 });
     const lines = describeRepeats(report, ['x', 'y']);
-    expect(lines[0]).toBe('1 of 6 rows repeat an earlier row exactly');
+    expect(lines[0]).toBe('1 of 6 rows repeats an earlier row exactly');
     expect(lines[1]).toBe('"x": 5 of 6 values are tied (largest group 3); 3 distinct; smallest gap 1.00');
   });
 

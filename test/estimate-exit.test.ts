@@ -164,7 +164,10 @@ describe('hhat estimate usage mistakes', () => {
         ['estimate', times, '--estimator', 'kernel:bandwidth=-1'],
         /^hhat: kernel: bandwidth=-1 is not allowed; bandwidth must be one of silverman \| scott \| likelihood-cv, or a number > 0\n$/,
       ],
-      [['estimate', times, '--estimator', 'ksg1'], /^hhat: ksg1 estimates mutual-information, but this call asks for entropy\n$/],
+      [
+        ['estimate', times, '--estimator', 'ksg1'],
+        /^hhat: ksg1 estimates mutual-information, but this call asks for entropy; for mutual-information, give --x-columns and --y-columns to choose X and Y among the columns \(e\.g\. --x-columns 1 --y-columns 2\)\n$/,
+      ],
       [['estimate', twoColumns, '--estimator', 'vasicek'], /^hhat: vasicek does not support d = 2; it needs d = 1\n$/],
       [['estimate', join(dir, 'no-such-file.csv')], /^hhat: cannot read data file .*no-such-file\.csv/],
     ];

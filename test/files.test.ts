@@ -95,7 +95,9 @@ describe('where results go', () => {
     expect(readFileSync(out, 'utf8')).toBe(before);
     const resumed = await cli(['bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--out', out, '--quiet', '--resume']);
     expect(resumed.code).toBe(0);
-    expect(resumed.out).toMatch(/is already a finished run of this plan; nothing to resume/);
+    // --quiet: the path alone on stdout; the note that nothing ran on stderr.
+    expect(resumed.out).toBe(`${out}\n`);
+    expect(resumed.err).toBe(`hhat: ${out} is already a finished run of this plan; nothing to resume\n`);
     expect(readFileSync(out, 'utf8')).toBe(before);
     const forced = await cli(['bench', '--scenario', 'normal', '--n', '100', '--replicates', '5', '--out', out, '--quiet', '--force']);
     expect(forced.code).toBe(0);

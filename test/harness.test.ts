@@ -277,7 +277,7 @@ describe('bad input', () => {
     expect(() => checkPlanShape({ scenarios: ['normal'], estimators: ['gaussian'], replicates: 1.5 }, 'p.json')).toThrow(
       'p.json: replicates: must be an integer',
     );
-    expect(() => checkPlanShape({ scenarios: [], estimators: ['gaussian'] }, 'p.json')).toThrow('p.json: scenarios: must list at least 1 item(s)');
+    expect(() => checkPlanShape({ scenarios: [], estimators: ['gaussian'] }, 'p.json')).toThrow('p.json: scenarios: must list at least 1 item');
     // A misspelt key inside an estimator object: the object branch's complaint, not "must be a string".
     expect(() => checkPlanShape({ scenarios: ['normal'], estimators: [{ id: 'vasicek', setings: {} }] }, 'p.json')).toThrow(
       'p.json: estimators[0].setings: unknown key (allowed: id, settings)',

@@ -1,7 +1,7 @@
 import type { Command } from 'commander';
 import type { Support, Tails } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
-import { readSample } from '../data/index.js';
+import { readSample, STDIN_PATH } from '../data/index.js';
 import { collect, MAX_REPLICATES, MAX_SAMPLE_SIZE, parseIntegerOption } from '../core/options.js';
 import { declareCommandOptions } from '../harness/external/options.js';
 import { toJson } from '../analysis/results.js';
@@ -63,7 +63,7 @@ export function registerAdviseCommand(program: Command, print: (text: string) =>
     .description(
       'which estimator to use: for a described situation (--n, --dim), or for a data file, with an estimate, a bootstrap interval and a look-alike bias correction',
     )
-    .argument('[file]', 'a data file (CSV/TSV/TXT, JSON, NumPy .npy); rows are points, columns are coordinates')
+    .argument('[file]', 'a data file (CSV/TSV/TXT, JSON, NumPy .npy; "-": standard input); rows are points, columns are coordinates')
     .option('--n <n>', 'sample size of the setting (without a file)')
     .option('--dim <d>', 'dimension of the setting (without a file)')
     .option('--tails <class>', `tail class of the setting: ${TAILS.join(', ')}`)
@@ -135,7 +135,7 @@ Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICAT
           commands,
           onStage: stage,
         });
-        print(options.json ? toJson(fileAdviceJson(advice, file)) : renderFileAdvice(advice, file));
+        print(options.json ? toJson(fileAdviceJson(advice, file)) : renderFileAdvice(advice, file === STDIN_PATH ? 'standard input' : file));
         return;
       }
       const fileOnly = (['columns', 'interval', 'resamples'] as const).find((k) => options[k] !== undefined);

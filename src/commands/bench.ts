@@ -9,7 +9,7 @@ import { UsageError } from '../core/errors.js';
 import { hasOption, hhatCommand } from '../core/shell.js';
 import type { Quantity } from '../core/contracts.js';
 import { parseScenario } from '../../scenarios/index.js';
-import type { Base } from '../core/format.js';
+import { countOf, type Base } from '../core/format.js';
 import { defaultPlan } from '../harness/default-plan.js';
 import {
   collect,
@@ -258,8 +258,15 @@ function declareBenchOptions(command: Command): Command {
     .option('--report [file]', 'also write the HTML report (default: next to the run file, .html)')
     .option('--svg-dir <dir>', 'with --report: also write every chart as an SVG file')
     .option('--no-chart', 'leave out the text chart of |bias| against n')
-    .option('--quiet', 'print only the run file path');
+    .option('--quiet', QUIET_HELP);
 }
+
+/**
+ * --quiet: stdout is the run file's absolute path and nothing else, so `out=$(hhat bench ... --quiet)` works;
+ * no tables, chart, progress or closing counts. What needs attention still goes to stderr: errors, warnings
+ * (a worker replaced, a checkpoint problem), an interruption's resume hint, and that a --resume found the run finished.
+ */
+const QUIET_HELP = "print only the run file's path on stdout (no tables, chart, progress or counts); errors, warnings and notes still go to stderr";
 
 /** The run file's absolute path: --out, else with --resume the newest interrupted run under results/, else a new timestamped name. */
 function benchOutPath(options: BenchOptions, shard: Shard | undefined): string {
@@ -373,15 +380,26 @@ async function presentRun(
   if (options.report && !shard) {
     const reportPath = resolve(typeof options.report === 'string' ? options.report : out.replace(/\.json$/, '') + '.html');
     await writeReport(run, { base, out: reportPath, svgDir: options.svgDir });
-    print(`report: ${reportPath}`);
+    if (!options.quiet) print(`report: ${reportPath}`);
   }
 }
 
 /** The closing lines: what ran, how long it took on how many workers, and where the run file is. */
-function printRunSummary(run: RunFile, outcome: RunOutcome, out: string, shard: Shard | undefined, print: (text: string) => void): void {
-  const resumed = outcome.resumedUnits ? `, ${outcome.resumedUnits} units from the checkpoint` : '';
+function printRunSummary(
+  run: RunFile,
+  outcome: RunOutcome,
+  out: string,
+  shard: Shard | undefined,
+  quiet: boolean | undefined,
+  print: (text: string) => void,
+): void {
+  if (quiet) {
+    print(out);
+    return;
+  }
+  const resumed = outcome.resumedUnits ? `, ${countOf(outcome.resumedUnits, 'unit')} from the checkpoint` : '';
   print(
-    `${shard ? `shard ${shard.index}/${shard.count}: ` : ''}${run.cells.length} cells in ${run.wallSeconds.toFixed(1)} s on ${run.workers} worker${run.workers === 1 ? '' : 's'}${resumed}`,
+    `${shard ? `shard ${shard.index}/${shard.count}: ` : ''}${countOf(run.cells.length, 'cell')} in ${run.wallSeconds.toFixed(1)} s on ${countOf(run.workers, 'worker')}${resumed}`,
   );
   print(`run file: ${out}`);
 }
@@ -401,7 +419,11 @@ async function runBench(options: BenchOptions, args: string[], print: (text: str
     removeLeftoverTemporaries(out);
     removeLeftoverTemporaries(checkpoint);
     if (alreadyFinished(out, checkpoint, plan, options)) {
-      print(`${out} is already a finished run of this plan; nothing to resume`);
+      // Under --quiet stdout stays the path alone; that nothing ran is still said, on stderr.
+      if (options.quiet) {
+        print(out);
+        printErr(`hhat: ${out} is already a finished run of this plan; nothing to resume`);
+      } else print(`${out} is already a finished run of this plan; nothing to resume`);
       return;
     }
     const { outcome, stoppedBy } = await runWithSignals(
@@ -421,7 +443,7 @@ async function runBench(options: BenchOptions, args: string[], print: (text: str
     const run = assembleRun(outcome, shard ?? null);
     writeRunFiles(run, out, checkpoint, options, base);
     await presentRun(run, out, options, base, shard, print);
-    printRunSummary(run, outcome, out, shard, print);
+    printRunSummary(run, outcome, out, shard, options.quiet, print);
   } finally {
     release();
   }
@@ -441,12 +463,13 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
     .argument('<shards...>', 'shard run files (all N of them)')
     .requiredOption('--out <file>', 'the merged run file')
     .option('--bits', 'print values in bits instead of nats')
-    .option('--quiet', 'print only the run file path')
+    .option('--quiet', "print only the merged run file's path on stdout")
     .action((files: string[], options: { out: string; bits?: boolean; quiet?: boolean }) => {
       const run = mergeShards(files.map((path) => ({ path, run: readRunFile(path) })));
       writeRunFile(options.out, run);
-      if (!options.quiet) printRun(run, options.bits ? 'bits' : 'nats', print, false);
-      print(`merged ${files.length} shards: ${run.cells.length} cells`);
+      if (options.quiet) return print(resolve(options.out));
+      printRun(run, options.bits ? 'bits' : 'nats', print, false);
+      print(`merged ${countOf(files.length, 'shard')}: ${countOf(run.cells.length, 'cell')}`);
       print(`run file: ${resolve(options.out)}`);
     });
 }

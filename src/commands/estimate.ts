@@ -1,7 +1,7 @@
 import type { Command } from 'commander';
 import { UsageError, EstimateError, isEstimateError, type EstimateErrorCode } from '../core/errors.js';
-import { formatValue, renderTable, toBase, type Base } from '../core/format.js';
-import { readSample, findRepeats, describeRepeats, type LoadedSample } from '../data/index.js';
+import { countOf, formatSetting, formatValue, renderTable, SETTING_DIGITS, toBase, type Base } from '../core/format.js';
+import { readSample, findRepeats, describeRepeats, STDIN_PATH, type LoadedSample } from '../data/index.js';
 import { selectionWidth, sharedSelection } from '../data/columns.js';
 import { showText } from '../data/table.js';
 import { describeReference, meanLogReference, parseReference, type Reference } from '../analysis/reference.js';
@@ -164,7 +164,10 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     .description(
       'estimate the differential entropy of a data file (CSV/TSV/TXT, JSON, NumPy .npy) with one or more estimators; the mutual information with --x-columns and --y-columns, a divergence with --against',
     )
-    .argument('<file>', 'rows are points, columns are coordinates')
+    .argument(
+      '<file>',
+      'the sample: rows are points, columns are coordinates; "-" reads standard input (format from its first bytes); with --against, the sample from P',
+    )
     .option('--columns <list>', 'columns to use: positions from 1 ("1,3", "2-4") or header names ("x,y")')
     .option('--estimator <spec>', 'ID[:key=value,...] (repeatable; default: a set suited to the dimension)', collect)
     .option('--bits', 'values in bits instead of nats')
@@ -178,10 +181,10 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     )
     .option('--x-columns <list>', 'mutual information between these columns (X) ...')
     .option('--y-columns <list>', '... and these (Y)')
-    .option('--against <file>', 'a divergence D(P || Q): FILE holds the sample from P, this file the sample from Q')
+    .option('--against <q-file>', 'estimate the divergence D(P‖Q) with P = <file>, Q = <q-file>: the sample from Q, read like <file>')
     .option(
       '--json',
-      'print {"n", "dim", "base", "estimates": [...]} with the settings actually used; an estimate that failed has value null, its error and its code',
+      'print {"n", "dim", "base", "estimates": [...]} with the settings actually used (a divergence adds "pFile", "qFile" and "qN"); an estimate that failed has value null, its error and its code',
     )
     .option(
       '--max-seconds <s>',
@@ -190,6 +193,17 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     .option('--seed <s>', `seed of the row subsamples that --max-seconds may call for (default ${DEFAULT_SUBSAMPLE_SEED})`)
     .addHelpText('after', exitCodesHelp)
     .action((file: string, options: EstimateOptions) => runEstimate(file, options, print, printErr));
+}
+
+/** What to change when an estimator of another quantity is named: the options that ask for its quantity. */
+function quantityMismatch(id: string, estimates: Quantity, asked: Quantity): string {
+  const how: Record<Quantity, string> = {
+    entropy: 'leave out --x-columns/--y-columns and --against',
+    'mutual-information': `give --x-columns and --y-columns to choose X and Y among the columns (e.g. --x-columns 1 --y-columns 2)`,
+    divergence: 'give --against Q-FILE, the sample from Q',
+  };
+  const given = asked === 'entropy' ? '' : ` (given by ${asked === 'divergence' ? '--against' : '--x-columns/--y-columns'})`;
+  return `${id} estimates ${estimates}, but this call asks for ${asked}${given}; for ${estimates}, ${how[estimates]}`;
 }
 
 /** `hhat estimate FILE`: read the sample, choose the estimators, estimate, print, and set the exit code. */
@@ -201,7 +215,7 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   const status = statusLine(process.stderr, 'hhat estimate');
   const load = (columns: string | undefined, path = file) => {
     try {
-      return readSample(path, { columns, onProgress: (done, total) => status.show(`reading ${path}: ${describeReadProgress(done, total)}`) });
+      return readSample(path, { columns, onProgress: (done, total) => status.show(`reading ${sampleName(path)}: ${describeReadProgress(done, total)}`) });
     } finally {
       status.clear();
     }
@@ -221,11 +235,7 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   if (!specs.length) throw new UsageError(`no ${quantity} estimator supports d = ${sample.dim}; see hhat estimators`);
   const configured = specs.map(parseEstimatorSpec);
   for (const c of configured) {
-    if (c.estimator.quantity !== quantity) {
-      throw new UsageError(
-        `${c.estimator.id} estimates ${c.estimator.quantity}, but this call asks for ${quantity}${quantity === 'entropy' ? '' : ` (given by ${quantity === 'divergence' ? '--against' : '--x-columns/--y-columns'})`}`,
-      );
-    }
+    if (c.estimator.quantity !== quantity) throw new UsageError(quantityMismatch(c.estimator.id, c.estimator.quantity, quantity));
     // Checked before estimating, so that asking for the wrong dimension stops the command before any estimate
     // is made; the default set only holds estimators that support the dimension.
     checkDimension(c.estimator, sample.dim);
@@ -263,8 +273,23 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   // user made or asked to hear about; one the user named, or a default set with no value at all, is.
   const declared = new Set(commands.map((c) => c.id));
   const failedAsError = failed.length > 0 && (named || failed.some((r) => declared.has(r.estimator)) || failed.length + skipped.length === records.length);
-  if (options.json) printEstimateJson(print, { sample, quantity, base, options, label, reference, offset, loaded, limitSeconds, records, hints });
-  else printEstimateTable(print, { file, sample, quantity, base, label, reference, loaded, records, cutNotes, failed, failedAsError, hints });
+  if (options.json) printEstimateJson(print, { file, sample, quantity, base, options, label, reference, offset, loaded, limitSeconds, records, hints });
+  else
+    printEstimateTable(print, {
+      file,
+      against: options.against,
+      sample,
+      quantity,
+      base,
+      label,
+      reference,
+      loaded,
+      records,
+      cutNotes,
+      failed,
+      failedAsError,
+      hints,
+    });
   if (skipped.length === records.length) {
     printErr(`hhat: no estimate was made: every estimator was skipped under the ${limitSeconds} s limit; raise --max-seconds or give --max-seconds none`);
     process.exitCode = 1;
@@ -282,6 +307,11 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
         'which leaves the exit code at 0; name an estimator with --estimator to make its failure an error',
     );
   }
+}
+
+/** How the table and messages name a sample's file: standard input by that name, a file by its path as given. */
+function sampleName(file: string): string {
+  return file === STDIN_PATH ? 'standard input' : file;
 }
 
 /** The sample as the options ask: all or some columns; X and Y for mutual information; P and Q for a divergence. */
@@ -307,9 +337,13 @@ function readEstimateSample(
     loaded = { ...loaded, sample };
     quantity = 'mutual-information';
   } else if (options.against !== undefined) {
+    if (options.against === STDIN_PATH && file === STDIN_PATH)
+      throw new UsageError('FILE and --against cannot both be - (standard input holds one sample); name a file for one of them');
     const q = load(options.columns, options.against);
     if (q.sample.dim !== sample.dim)
-      throw new UsageError(`${options.against} has ${q.sample.dim} columns and ${file} has ${sample.dim}; a divergence compares samples of the same dimension`);
+      throw new UsageError(
+        `${sampleName(options.against)} (Q) has ${countOf(q.sample.dim, 'column')} and ${sampleName(file)} (P) has ${sample.dim}; a divergence compares samples of the same dimension`,
+      );
     sample = { ...sample, q: q.sample };
     quantity = 'divergence';
   }
@@ -331,6 +365,7 @@ interface EstimateOutput {
 function printEstimateJson(
   print: (text: string) => void,
   {
+    file,
     sample,
     quantity,
     base,
@@ -343,6 +378,7 @@ function printEstimateJson(
     records,
     hints,
   }: EstimateOutput & {
+    file: string;
     options: EstimateOptions;
     offset: number;
     limitSeconds: number | null;
@@ -355,7 +391,8 @@ function printEstimateJson(
         dim: sample.dim,
         ...(quantity !== 'entropy' ? { quantity } : {}),
         ...(sample.xDim !== undefined ? { xDim: sample.xDim } : {}),
-        ...(sample.q ? { qN: sample.q.n } : {}),
+        // Both samples named: a divergence is not symmetric, so which file was P matters.
+        ...(sample.q ? { divergence: 'D(P‖Q)', pFile: file, qFile: options.against, qN: sample.q.n } : {}),
         base,
         ...(options.unit ? { unit: options.unit, label } : {}),
         ...(reference ? { reference: describeReference(reference), meanLogReference: toBase(offset, base) } : {}),
@@ -375,6 +412,7 @@ function printEstimateTable(
   print: (text: string) => void,
   {
     file,
+    against,
     sample,
     quantity,
     base,
@@ -388,17 +426,23 @@ function printEstimateTable(
     hints,
   }: EstimateOutput & {
     file: string;
+    against: string | undefined;
     cutNotes: string[];
     failed: EstimateRecord[];
     failedAsError: boolean;
   },
 ): void {
-  print(`${file}: n = ${sample.n}, d = ${sample.dim}${loaded.columnNames.length ? ` (columns ${loaded.columnNames.join(', ')})` : ''}`);
+  const columns = loaded.columnNames.length ? ` (columns ${loaded.columnNames.join(', ')})` : '';
+  if (sample.q && against !== undefined) {
+    print(`D(P‖Q) with P = ${sampleName(file)} (n = ${sample.n}), Q = ${sampleName(against)} (n = ${sample.q.n}); d = ${sample.dim}${columns}`);
+  } else {
+    print(`${sampleName(file)}: n = ${sample.n}, d = ${sample.dim}${columns}`);
+  }
   const cut = cutNotes.length > 0;
   const rows = records.map((r) => [
     r.estimator,
     Object.entries(r.settings)
-      .map(([k, v]) => `${k}=${v}`)
+      .map(([k, v]) => `${k}=${formatSetting(v)}`)
       .join(', ') || '–',
     ...(cut ? [r.skipped ? '–' : r.subsample ? `${r.subsample.rows} (subsample)` : `${sample.n} (all)`] : []),
     r.skipped ? 'skipped (time)' : r.value === null ? `failed (${r.code})` : formatValue(r.value, 7),
@@ -408,10 +452,12 @@ function printEstimateTable(
     'estimator',
     'settings used',
     ...(cut ? ['rows'] : []),
-    `${quantity === 'entropy' ? 'entropy' : quantity} (${quantity === 'entropy' ? label : base})`,
+    `${quantity === 'divergence' ? 'D(P‖Q)' : quantity} (${quantity === 'entropy' ? label : base})`,
     ...(reference ? [`relative to ${describeReference(reference)} (${base})`] : []),
   ];
   print(renderTable(head, rows, { align: ['left', 'left', ...(cut ? ['right' as const] : []), 'right', 'right'] }));
+  const rounded = records.some((r) => Object.values(r.settings).some((v) => formatSetting(v) !== String(v)));
+  if (rounded) print(`settings used: to ${SETTING_DIGITS} significant digits; --json gives every digit`);
   for (const note of cutNotes) print(note);
   // Failures that are not errors go with the table, so saved output explains its own "failed" rows;
   // errors go to stderr alone, so a terminal does not show each reason twice.

@@ -45,7 +45,7 @@ export function registerEstimatorsCommand(program: Command, print: (text: string
         e.settings.length ? e.settings.map((s) => `${s.name}=${s.default}: ${describeSetting(s)}`).join('\n') : '(none)',
         e.reference,
       ]);
-      print(renderTable(['estimator', 'family', 'd', 'settings (default: allowed)', 'reference'], rows, { wrap: [30, 19, 5, 52, 46] }));
+      print(renderTable(['estimator', 'family', 'd', 'settings (default: allowed)', 'reference'], rows, { wrap: [0, 0, 5, 52, 46] }));
       print('Use an estimator with settings as ID:key=value,... e.g. kozachenko-leonenko:k=5,norm=max');
     });
 }

@@ -3,7 +3,7 @@ import { COMMANDS } from './summaries.js';
 import type { Scenario } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
 import { parseIntegerOption } from '../core/options.js';
-import { formatValue, renderTable, shorten, toBase, type Base } from '../core/format.js';
+import { countOf, formatValue, fullIds, renderTable, shorten, toBase, type Base } from '../core/format.js';
 import { catalog, parseScenario } from '../../scenarios/index.js';
 
 export interface ScenarioRecord {
@@ -41,6 +41,9 @@ export function scenarioRecord(s: Scenario, base: Base): ScenarioRecord {
     logDensityVarianceSource: s.logDensityVarianceSource ?? null,
   };
 }
+
+/** Specs up to this length sit in the table; longer ones are printed whole under it (a 9-D covariance runs to hundreds of characters). */
+const SPEC_COLUMN_WIDTH = 64;
 
 const TAILS = ['light', 'exponential', 'heavy'];
 const SUPPORTS = ['bounded', 'half', 'unbounded'];
@@ -89,12 +92,18 @@ Quote specs with brackets or semicolons in the shell.`,
         print(JSON.stringify(records, null, 2));
         return;
       }
-      const rows = records.map((r) => [shorten(r.id, 52), r.dim, formatValue(r.truth, 7), r.support, r.tails, shorten(r.truthSource, 48)]);
+      const ids = fullIds(
+        records.map((r) => r.id),
+        SPEC_COLUMN_WIDTH,
+        (_, number) => `see [${number}] below`,
+      );
+      const rows = records.map((r, i) => [ids.cells[i], r.dim, formatValue(r.truth, 7), r.support, r.tails, shorten(r.truthSource, 48)]);
       print(
         renderTable(['scenario', 'd', `truth (${base})`, 'support', 'tails', 'source of the truth'], rows, {
           align: ['left', 'right', 'right', 'left', 'left', 'left'],
         }),
       );
-      print(`${records.length} scenarios. Details of one: hhat scenarios --json SPEC`);
+      for (const note of ids.notes) print(note);
+      print(`${countOf(records.length, 'scenario')}. Details of one: hhat scenarios --json SPEC`);
     });
 }

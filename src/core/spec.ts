@@ -28,6 +28,11 @@ export function parseSpec(text: string, what: string): ParsedSpec {
   if (colon >= 0) {
     const rest = trimmed.slice(colon + 1);
     if (rest.trim() === '') throw new UsageError(`${what} "${text}" has ':' but no key=value after it`);
+    // A semicolon between pairs (as in some other syntaxes) would otherwise read as part of a value.
+    if (/^[^[\]]*;\s*[A-Za-z_][\w-]*\s*=/.test(rest)) {
+      const fixed = `${id}:${rest.split(/\s*;\s*/).join(',')}`;
+      throw new UsageError(`${what} "${text}": separate its ${what === 'estimator' ? 'settings' : 'parameters'} with commas, not semicolons: ${fixed}`);
+    }
     for (const part of rest.split(',')) {
       const eq = part.indexOf('=');
       if (eq <= 0) throw new UsageError(`${what} "${text}": "${part}" is not key=value`);

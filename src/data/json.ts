@@ -173,7 +173,9 @@ class JsonReader {
         n = column.length;
         firstName = names[j];
       } else if (column.length !== n) {
-        throw new UsageError(`${this.source} column ${showText(names[j])} has ${column.length} values; column ${showText(firstName)} has ${n}`);
+        throw new UsageError(
+          `${this.source} column ${showText(names[j])} has ${column.length} value${column.length === 1 ? '' : 's'}; column ${showText(firstName)} has ${n}`,
+        );
       }
     }
     if (n === 0) throw new UsageError(`${this.source}: the columns are empty arrays; expected numbers`);

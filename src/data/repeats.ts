@@ -151,7 +151,11 @@ export function findRepeats(sample: Sample): RepeatReport {
  */
 export function describeRepeats(report: RepeatReport, columnNames?: readonly string[]): string[] {
   const lines: string[] = [];
-  lines.push(report.repeatedRows === 0 ? `no repeated rows among ${report.n}` : `${report.repeatedRows} of ${report.n} rows repeat an earlier row exactly`);
+  lines.push(
+    report.repeatedRows === 0
+      ? `no repeated rows among ${report.n}`
+      : `${report.repeatedRows} of ${report.n} rows ${report.repeatedRows === 1 ? 'repeats' : 'repeat'} an earlier row exactly`,
+  );
   report.columns.forEach((c, j) => {
     const name = columnNames?.[j] ?? `column ${j + 1}`;
     const ties = c.tiedValues === 0 ? 'no tied values' : `${c.tiedValues} of ${report.n} values are tied (largest group ${c.largestGroup})`;

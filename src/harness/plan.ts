@@ -9,6 +9,7 @@ import type { ErrorObject, ValidateFunction } from 'ajv/dist/2020.js';
 import { loadAjv } from '../core/schema-validator.js';
 import type { Quantity, Scenario } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
+import { locateJsonError } from '../data/json-syntax.js';
 import { readFailureReason } from '../core/files.js';
 import { DEFAULT_SEED } from '../core/rng.js';
 import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from '../../estimators/index.js';
@@ -130,14 +131,20 @@ export function jsonPath(pointer: string): string {
     .reduce((path, part) => (/^\d+$/.test(part) ? `${path}[${part}]` : path ? `${path}.${part}` : part), '');
 }
 
-function describeSchemaError(error: ErrorObject): string {
+/** "an object", "an integer", "an array", "a string", "null": a JSON type with its article. */
+function withArticle(type: string): string {
+  return type === 'null' ? type : `${/^[aeiou]/.test(type) ? 'an' : 'a'} ${type}`;
+}
+
+function describeSchemaError(error: ErrorObject, types: string[] = [String((error.params as { type?: unknown }).type)]): string {
   const path = jsonPath(error.instancePath);
   switch (error.keyword) {
     case 'additionalProperties': {
       // parentSchema (ajv's verbose mode) holds the object's schema, so the message can list what is allowed.
       const known = Object.keys((error.parentSchema as { properties?: object } | undefined)?.properties ?? {});
       const key = (error.params as { additionalProperty: string }).additionalProperty;
-      return `${path === '(plan)' ? '' : `${path}.`}${key}: unknown key${known.length ? ` (allowed: ${known.join(', ')})` : ''}`;
+      const meant = known.find((k) => k.toLowerCase().includes(key.toLowerCase()) || key.toLowerCase().includes(k.toLowerCase()));
+      return `${path === '(plan)' ? '' : `${path}.`}${key}: unknown key${meant ? `, did you mean ${meant}?` : ''}${known.length ? ` (allowed: ${known.join(', ')})` : ''}`;
     }
     case 'required':
       return `${path === '(plan)' ? '' : `${path}.`}${(error.params as { missingProperty: string }).missingProperty}: is required`;
@@ -148,9 +155,13 @@ function describeSchemaError(error: ErrorObject): string {
     case 'maximum':
       return `${path}: must be ≤ ${(error.params as { limit: number }).limit}`;
     case 'type':
-      return `${path}: must be ${(error.params as { type: string }).type === 'integer' ? 'an integer' : `a ${(error.params as { type: string }).type}`}`;
+      return `${path === '(plan)' ? 'the plan' : `${path}:`} must be ${[...new Set(types)]
+        .sort((a, b) => Number(a === 'null') - Number(b === 'null'))
+        .map(withArticle)
+        .join(' or ')}`;
     case 'minItems':
-      return `${path}: must list at least ${(error.params as { limit: number }).limit} item(s)`;
+      // Not countOf from core/format.ts: that module loads the table library, which plan reading does not need.
+      return `${path}: must list at least ${(error.params as { limit: number }).limit} item${(error.params as { limit: number }).limit === 1 ? '' : 's'}`;
     default:
       return `${path}: ${error.message ?? 'is not valid'}`;
   }
@@ -174,7 +185,11 @@ export function checkPlanShape(value: unknown, source: string): PlanInput {
     // type mismatch or the oneOf summary only says that another branch's shape was meant: any other error says more.
     const vague = (e: ErrorObject) => Number(e.keyword === 'type' || e.keyword === 'oneOf');
     const deepest = [...errors].sort((a, b) => b.instancePath.length - a.instancePath.length || vague(a) - vague(b))[0];
-    throw new UsageError(`${source}: ${deepest ? describeSchemaError(deepest) : 'is not a valid plan'}`);
+    // A value of the wrong type where several are allowed (an object or null) fails once per branch: name them all.
+    const types = errors
+      .filter((e) => e.keyword === 'type' && deepest && e.instancePath === deepest.instancePath)
+      .flatMap((e) => String((e.params as { type: unknown }).type).split(','));
+    throw new UsageError(`${source}: ${deepest ? describeSchemaError(deepest, types.length ? types : undefined) : 'is not a valid plan'}`);
   }
   return value as PlanInput;
 }
@@ -194,6 +209,9 @@ export function readPlanFile(path: string): PlanInput {
   try {
     value = JSON.parse(text);
   } catch (error) {
+    // V8's message gives a character offset at best; the line and column are what an editor shows.
+    const problem = locateJsonError(text);
+    if (problem) throw new UsageError(`${path} line ${problem.line}, column ${problem.column}: invalid JSON: ${problem.problem}`);
     throw new UsageError(`${path} is not valid JSON: ${(error as Error).message}`);
   }
   return checkPlanShape(value, path);

@@ -1,7 +1,7 @@
 /**
  * Advice for people (tables and sentences) and for scripts (plain JSON objects, nats throughout).
  */
-import { formatValue, renderTable } from '../core/format.js';
+import { countOf, formatValue, renderTable } from '../core/format.js';
 import type { FileAdvice } from '../analysis/advise/file.js';
 import type { ColumnProfile } from '../analysis/advise/profile.js';
 import type { EstimatorSummary, Recommendation, RobustnessFlag } from '../analysis/advise/recommend.js';
@@ -153,7 +153,7 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
     lines.push(`Correlation: ${pairs.join(', ')}`);
   }
   lines.push(
-    `Reads as: ${profile.tails} tails, ${profile.support === 'half' ? 'half-bounded' : profile.support} support, ${profile.discreteLooking ? 'many ties (discrete-looking)' : profile.repeats.repeatedRows ? `${profile.repeats.repeatedRows} repeated rows` : 'no repeated rows'}.`,
+    `Reads as: ${profile.tails} tails, ${profile.support === 'half' ? 'half-bounded' : profile.support} support, ${profile.discreteLooking ? 'many ties (discrete-looking)' : profile.repeats.repeatedRows ? countOf(profile.repeats.repeatedRows, 'repeated row') : 'no repeated rows'}.`,
   );
   lines.push('');
   const bicList = lookalike.bic.map((b) => `${b.components === lookalike.chosen ? '*' : ''}${b.components}: ${num(b.bic, 6)}`).join(', ');

@@ -2,7 +2,7 @@
  * A comparison of two runs as a terminal table, Markdown for a pull-request comment, JSON, or JUnit XML for
  * CI systems (one testcase per cell; cells failing the policy are <failure>s).
  */
-import { formatValue, renderTable } from '../core/format.js';
+import { countOf, formatValue, renderTable } from '../core/format.js';
 import { toJson } from '../analysis/results.js';
 import {
   failingCells,
@@ -141,7 +141,7 @@ function countsLine(comparison: Comparison): string {
 
 function runLine(run: RunSummary): string {
   // A committed baseline keeps no date.
-  return `${run.createdAt ? `${run.createdAt.slice(0, 16).replace('T', ' ')}, ` : ''}hhat ${run.hhatVersion}${run.commit ? `, commit ${run.commit.slice(0, 10)}${run.commit.length > 40 ? run.commit.slice(40) : ''}` : ''}, seed ${run.seed}, ${run.replicates} replicates`;
+  return `${run.createdAt ? `${run.createdAt.slice(0, 16).replace('T', ' ')}, ` : ''}hhat ${run.hhatVersion}${run.commit ? `, commit ${run.commit.slice(0, 10)}${run.commit.length > 40 ? run.commit.slice(40) : ''}` : ''}, seed ${run.seed}, ${countOf(run.replicates, 'replicate')}`;
 }
 
 function pairingLine(comparison: Comparison): string {
@@ -157,7 +157,7 @@ function policyLine(comparison: Comparison): string {
   const m = comparison.testedCells;
   const sharing =
     m > 1
-      ? `The tests share α = ${alpha} over the ${m} changed cells by Holm's step-down (the cell with the smallest p is held to α/${m}, the next to α/${m - 1}, …), then by Bonferroni over a cell's ${k} tests (the first cell's tests at ${+comparison.testLevel.toPrecision(3)} / ${m} each), so the chance that any cell whose estimates did not change in distribution is called worse or improved is at most α.`
+      ? `The tests share α = ${alpha} over the ${countOf(m, 'changed cell')} by Holm's step-down (the cell with the smallest p is held to α/${m}, the next to α/${m - 1}, …), then by Bonferroni over a cell's ${k} tests (the first cell's tests at ${+comparison.testLevel.toPrecision(3)} / ${m} each), so the chance that any cell whose estimates did not change in distribution is called worse or improved is at most α.`
       : `The tests share α = ${alpha} by Bonferroni (${+comparison.testLevel.toPrecision(3)} each), so a cell whose estimates did not change in distribution is called worse or improved with probability at most α.`;
   return `A cell is worse (or improved) when ${tests}; worse wins over improved. ${sharing} A new estimate more than ${WILD_FACTOR} times the base run's largest error away from the truth makes a cell worse on its own. Changes ± SE are ${comparison.pairing.paired ? 'paired, over the replicates where both runs succeeded' : 'unpaired'}.`;
 }
@@ -280,7 +280,7 @@ function cellDetails(c: CellComparison): string {
   ];
   if (c.sign)
     lines.push(
-      `sign test on squared-error differences: ${c.sign.above} replicates worse, ${c.sign.below} better, ${c.sign.ties} equal, p = ${formatP(c.sign.p)}; median change of |error| ${signed(c.medianChange ?? NaN, 3)} nats`,
+      `sign test on squared-error differences: ${countOf(c.sign.above, 'replicate')} worse, ${c.sign.below} better, ${c.sign.ties} equal, p = ${formatP(c.sign.p)}; median change of |error| ${signed(c.medianChange ?? NaN, 3)} nats`,
     );
   for (const w of c.wild) lines.push(`wild estimate at replicate ${w.replicate}: ${w.next} (base ${w.base ?? 'failed'})`);
   if (c.adjustedP !== null)

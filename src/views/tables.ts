@@ -2,7 +2,7 @@
  * Terminal tables of a run: per scenario, RMSE ± Monte-Carlo SE and rank at each n; the overall average
  * ranks by dimension and tail class; optionally every score of every cell.
  */
-import { formatValue, renderTable, shorten, toBase, type Base } from '../core/format.js';
+import { formatValue, fullIds, renderTable, toBase, type Base } from '../core/format.js';
 import { estimatorLabel } from '../../estimators/index.js';
 import { rankedGroups, type Cell, type RunFile } from '../analysis/results.js';
 import { COLUMN_TITLES, rankText, robustnessText, smallestQuantizeStep, wideBestSetNote } from './verdict-text.js';
@@ -87,8 +87,14 @@ export function overallTable(run: RunFile): string {
 }
 
 export function detailTable(run: RunFile, base: Base): string {
-  const rows = run.cells.map((c: Cell) => [
-    shorten(c.scenario, 40),
+  // Scenario specs stay whole: a long one is printed on its own line under the table.
+  const ids = fullIds(
+    run.cells.map((c) => c.scenario),
+    40,
+    (_, number) => `see [${number}] below`,
+  );
+  const rows = run.cells.map((c: Cell, i) => [
+    ids.cells[i],
     `${estimatorLabel(c.estimator)}${c.perturbation ? ` after ${c.perturbation}` : ''}`,
     c.n,
     pm(c.scores.bias.value, c.scores.bias.se, base),
@@ -99,9 +105,10 @@ export function detailTable(run: RunFile, base: Base): string {
     `${c.scores.failures}/${c.scores.replicates}`,
     formatValue(c.timing.meanMs, 3),
   ]);
-  return renderTable(['scenario', 'estimator', 'n', 'bias', 'SD', 'RMSE', 'MAE', 'efficiency', 'failed', 'ms/estimate'], rows, {
+  const table = renderTable(['scenario', 'estimator', 'n', 'bias', 'SD', 'RMSE', 'MAE', 'efficiency', 'failed', 'ms/estimate'], rows, {
     align: ['left', 'left', 'right', 'right', 'right', 'right', 'right', 'right', 'right', 'right'],
   });
+  return [table, ...ids.notes].join('\n');
 }
 
 /** The score table as CSV (nats or bits), one row per cell. */
