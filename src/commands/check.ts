@@ -49,6 +49,7 @@ export function registerCheckCommand(program: Command, print: (text: string) => 
       collect,
     )
     .option('--quantity <q>', 'what the --estimator-command estimators measure: entropy, mutual-information or divergence', 'entropy')
+    .option('--json', 'print the reports as JSON, with the suite sizes and tolerances')
     .addHelpText('after', exitCodesHelp)
     .action(async (module: string | undefined, options: { estimator?: string[]; json?: boolean; estimatorCommand?: string[]; quantity: string }) => {
       if (module !== undefined && options.estimatorCommand?.length) throw new UsageError('give an estimator MODULE or --estimator-command, not both');
