@@ -16,9 +16,10 @@ import { univariateFamilies } from './univariate.js';
 import { LOOKALIKE_FAMILY, LOOKALIKE_SUMMARY, LOOKALIKE_USAGE, lookalikeScenario, parseLookalikeArgument } from './lookalike.js';
 import { dependenceFamilies } from './dependence.js';
 import { divergenceFamilies } from './divergence-pairs.js';
+import { conditionalFamilies } from './conditional.js';
 
 const families = new Map<string, ScenarioFamily>();
-for (const f of [...univariateFamilies, ...multivariateFamilies, gaussianMixtureFamily, ...dependenceFamilies, ...divergenceFamilies]) families.set(f.id, f);
+for (const f of [...univariateFamilies, ...multivariateFamilies, gaussianMixtureFamily, ...dependenceFamilies, ...conditionalFamilies, ...divergenceFamilies]) families.set(f.id, f);
 
 /** Families written with a bracketed argument rather than key=value parameters. */
 export const bracketFamilies = [
