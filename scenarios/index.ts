@@ -19,7 +19,8 @@ import { divergenceFamilies } from './divergence-pairs.js';
 import { conditionalFamilies } from './conditional.js';
 
 const families = new Map<string, ScenarioFamily>();
-for (const f of [...univariateFamilies, ...multivariateFamilies, gaussianMixtureFamily, ...dependenceFamilies, ...conditionalFamilies, ...divergenceFamilies]) families.set(f.id, f);
+for (const f of [...univariateFamilies, ...multivariateFamilies, gaussianMixtureFamily, ...dependenceFamilies, ...conditionalFamilies, ...divergenceFamilies])
+  families.set(f.id, f);
 
 /** Families written with a bracketed argument rather than key=value parameters. */
 export const bracketFamilies = [

@@ -135,9 +135,10 @@ export const MAPPED_DATA_TOLERANCE = 1e-8;
  * divergence: per coordinate; mutual information: per X/Y coordinate pair). Measured over 20 seeds at
  * n = 4000 (d = 1, or one X and one Y coordinate): the largest |error| of any built-in was 0.080 nats for
  * entropy (van-es, whose bias is −0.05 there), 0.047 for mutual information (mi-histogram, bias +0.03) and
- * 0.066 for divergence (knn-divergence with k = 1, SD 0.033). The tolerances are about twice those, while a
- * broken estimator (a constant off, the wrong log base, a missing Jacobian, D(Q ‖ P) for D(P ‖ Q)) misses
- * by more: an efficient estimator's SD here is sqrt(Var log f / n) ≈ 0.011 nats, so 0.15 is over 10 SDs.
+ * 0.066 for divergence (knn-divergence with k = 1, SD 0.033); for conditional mutual information (per X/Y/Z
+ * coordinate triple) 0.028 on the default cmi-gaussian (cmi-gaussian; cmi-ksg 0.023). The tolerances are about
+ * twice those or more, while a broken estimator (a constant off, the wrong log base, a missing Jacobian,
+ * D(Q ‖ P) for D(P ‖ Q)) misses by more: an efficient estimator's SD here is sqrt(Var log f / n) ≈ 0.011 nats, so 0.15 is over 10 SDs.
  */
 export const KNOWN_VALUE_TOLERANCE: Record<Quantity, number> = {
   entropy: 0.15,

@@ -333,11 +333,14 @@ function readEstimateSample(
   const conditional = options.zColumns !== undefined;
   const mutualInformation = options.xColumns !== undefined || options.yColumns !== undefined || conditional;
   if (mutualInformation) {
-    const what = conditional ? 'conditional mutual information needs --x-columns, --y-columns and --z-columns' : 'mutual information needs both --x-columns and --y-columns';
+    const what = conditional
+      ? 'conditional mutual information needs --x-columns, --y-columns and --z-columns'
+      : 'mutual information needs both --x-columns and --y-columns';
     if (options.xColumns === undefined || options.yColumns === undefined) throw new UsageError(what);
     const flags = conditional ? '--x-columns/--y-columns/--z-columns' : '--x-columns/--y-columns';
     if (options.columns !== undefined) throw new UsageError(`--columns cannot be combined with ${flags}`);
-    if (options.against !== undefined) throw new UsageError(`--against (a divergence) cannot be combined with ${flags} (${conditional ? 'conditional ' : ''}mutual information)`);
+    if (options.against !== undefined)
+      throw new UsageError(`--against (a divergence) cannot be combined with ${flags} (${conditional ? 'conditional ' : ''}mutual information)`);
     const parts: [string, string][] = [
       ['--x-columns', options.xColumns],
       ['--y-columns', options.yColumns],
@@ -347,7 +350,9 @@ function readEstimateSample(
       for (let b = a + 1; b < parts.length; b++) {
         const shared = sharedSelection(parts[a][1], parts[b][1]);
         if (shared !== undefined) {
-          throw new UsageError(`${parts[a][0]} and ${parts[b][0]} both name column ${showText(shared)}; X, Y${conditional ? ' and Z' : ''} must be different columns`);
+          throw new UsageError(
+            `${parts[a][0]} and ${parts[b][0]} both name column ${showText(shared)}; X, Y${conditional ? ' and Z' : ''} must be different columns`,
+          );
         }
       }
     }
