@@ -351,7 +351,7 @@ function readEstimateSample(
         const shared = sharedSelection(parts[a][1], parts[b][1]);
         if (shared !== undefined) {
           throw new UsageError(
-            `${parts[a][0]} and ${parts[b][0]} both name column ${showText(shared)}; X, Y${conditional ? ' and Z' : ''} must be different columns`,
+            `${parts[a][0]} and ${parts[b][0]} both name column ${showText(shared)}; ${conditional ? 'X, Y and Z' : 'X and Y'} must be different columns`,
           );
         }
       }
