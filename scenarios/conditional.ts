@@ -18,6 +18,7 @@ import { UsageError } from '../src/core/errors.js';
 import { cholesky, type CholeskyFactor } from '../src/math/linalg.js';
 import { formatNumber } from '../src/core/spec.js';
 import { gaussianRows, scenarioFromFacts, type ScenarioFacts } from './build.js';
+import { parseCovarianceArgument } from './multivariate.js';
 import { univariateDensity } from './univariate.js';
 
 const CT = 'Cover & Thomas, Elements of Information Theory, 2nd ed. (2006)';
@@ -206,3 +207,62 @@ const cmiTransformedGaussian: ScenarioFamily = {
 };
 
 export const conditionalFamilies: ScenarioFamily[] = [cmiGaussian, cmiTransformedGaussian];
+
+export const CMI_COVARIANCE_FAMILY = 'cmi-gaussian-covariance';
+export const CMI_COVARIANCE_USAGE = `${CMI_COVARIANCE_FAMILY}[DIMX,DIMY;ROW;ROW;...], X the first DIMX coordinates, Y the next DIMY, Z the rest`;
+
+/**
+ * `cmi-gaussian-covariance[1,1;1,0.5,0.3;0.5,1,0.4;0.3,0.4,1]`: a Gaussian (X, Y, Z) with any positive-definite
+ * covariance; the first argument gives dimX and dimY, the rows the covariance (Z takes the coordinates after
+ * X's and Y's, at least one).
+ */
+export function parseConditionalCovarianceArgument(args: readonly string[]): { xDim: number; yDim: number; covariance: number[][] } {
+  const owner = CMI_COVARIANCE_FAMILY;
+  if (args.length < 2) throw new UsageError(`${owner} takes dimensions and rows: ${CMI_COVARIANCE_USAGE}`);
+  const dims = args[0].split(',').map((t) => Number(t.trim()));
+  if (dims.length !== 2 || !dims.every((d) => Number.isInteger(d) && d >= 1)) {
+    throw new UsageError(`${owner}: "${args[0]}" is not allowed as DIMX,DIMY; give two whole numbers ≥ 1, e.g. ${owner}[1,1;1,0.5,0.3;0.5,1,0.4;0.3,0.4,1]`);
+  }
+  let covariance: number[][];
+  try {
+    covariance = parseCovarianceArgument(args.slice(1).join(';'));
+  } catch (error) {
+    if (error instanceof UsageError) throw new UsageError(error.message.replace(/^gaussian-covariance:/, `${owner}:`));
+    throw error;
+  }
+  const [xDim, yDim] = dims;
+  if (xDim + yDim >= covariance.length) {
+    throw new UsageError(
+      `${owner}: dimX + dimY = ${xDim + yDim} leaves no Z coordinate in a ${covariance.length}×${covariance.length} covariance; Z needs at least one`,
+    );
+  }
+  return { xDim, yDim, covariance };
+}
+
+export function conditionalCovarianceScenario({ xDim, yDim, covariance }: { xDim: number; yDim: number; covariance: number[][] }): Scenario {
+  const owner = CMI_COVARIANCE_FAMILY;
+  const factor = cholesky(covariance);
+  const truth = gaussianConditionalInformation(covariance, xDim, yDim);
+  if (!factor || truth === undefined) throw new UsageError(`${owner}: the covariance is not positive definite; give a symmetric positive-definite matrix`);
+  const dim = covariance.length;
+  const rows = covariance.map((row) => row.map(formatNumber).join(',')).join(';');
+  const specs: ParamSpec[] = ['dimX', 'dimY', 'dimZ'].map((name) => dimSpec(name, name));
+  const scenario = conditionalScenario({
+    family: owner,
+    specs,
+    params: { dimX: xDim, dimY: yDim, dimZ: dim - xDim - yDim },
+    xDim,
+    yDim,
+    zDim: dim - xDim - yDim,
+    truth,
+    truthSource: gaussianTruthSource,
+    support: 'unbounded',
+    tails: 'light',
+    draw: (rng, n) => gaussianRows(rng, n, factor),
+    marginals: covariance.map((row, j) => univariateDensity('normal', { mu: 0, sigma: Math.sqrt(row[j]) })),
+    moments: { mean: covariance.map(() => 0), covariance },
+  });
+  // The canonical spec is the bracketed form, with every number as String(x) writes it.
+  scenario.id = `${owner}[${xDim},${yDim};${rows}]`;
+  return scenario;
+}

@@ -8,7 +8,7 @@
  * max-norm distances, explicit strict counts, scipy.special.digamma); the Gaussian estimator by numpy.cov and
  * slogdet. The command-line check computes the sample partial correlation by hand in this file.
  */
-import { mkdtempSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import normalRandom from '@stdlib/random-base-normal';
@@ -52,6 +52,25 @@ describe('cmi-gaussian truth: ½ log(det Σ_XZ det Σ_YZ / (det Σ_Z det Σ)) ag
       expect(transformed.truth).toBe(scenario.truth);
     });
   }
+
+  for (const entry of fixture.covarianceScenarios) {
+    it(`${entry.spec.slice(0, 60)}…: any covariance, against numpy.linalg.slogdet to 1e-12`, () => {
+      const scenario = parseScenario(entry.spec);
+      expect(scenario.id).toBe(entry.spec);
+      expect(scenario.quantity).toBe('conditional-mutual-information');
+      expect(Math.abs(scenario.truth - entry.truth)).toBeLessThan(1e-12);
+      expect(Math.abs(scenario.truth - entry.truthByEntropies)).toBeLessThan(1e-12);
+    });
+  }
+
+  it('cmi-gaussian-covariance: a matrix that is not positive definite, or no Z column, is one line', () => {
+    expect(() => parseScenario('cmi-gaussian-covariance[1,1;1,0.99,0.99;0.99,1,0;0.99,0,1]')).toThrow(
+      /^cmi-gaussian-covariance: the covariance is not positive definite; give a symmetric positive-definite matrix$/,
+    );
+    expect(() => parseScenario('cmi-gaussian-covariance[1,2;1,0.5,0.3;0.5,1,0.4;0.3,0.4,1]')).toThrow(
+      /^cmi-gaussian-covariance: dimX \+ dimY = 3 leaves no Z coordinate in a 3×3 covariance; Z needs at least one$/,
+    );
+  });
 
   it('X and Y independent given Z (rhoXY = rhoXZ·rhoYZ): the truth is exactly 0', () => {
     expect(parseScenario('cmi-gaussian:rhoXY=0.25,rhoXZ=0.5,rhoYZ=0.5').truth).toBe(0);
@@ -183,6 +202,16 @@ describe('perturbations and the default plan', () => {
     expect(plan.scenarios.every((s) => s.startsWith('cmi-'))).toBe(true);
     expect(plan.scenarios).toContain(parseScenario('cmi-transformed-gaussian').id);
     expect(plan.robustness).toMatchObject({ tuning: false });
+  });
+});
+
+describe('hhat draw of a conditional-MI scenario', () => {
+  it('names the columns x1, y1, z1, z2 and says which are X, Y and Z', async () => {
+    const out = join(mkdtempSync(join(tmpdir(), 'hhat-cmi-draw-')), 'triple.csv');
+    const result = await run(['draw', 'cmi-gaussian:dimZ=2', '--n', '5', '--out', out]);
+    expect(result.code).toBe(0);
+    expect(result.out).toMatch(/\(conditional-mutual-information, d = 4: X = x1, Y = y1, Z = z1\.\.z2\)/);
+    expect(readFileSync(out, 'utf8').split('\n')[0]).toBe('x1,y1,z1,z2');
   });
 });
 
