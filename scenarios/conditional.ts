@@ -10,9 +10,11 @@
  *                             rhoXZ, rhoYZ) for every index i the groups share, every other pair uncorrelated:
  *                             I = ½ log(det Σ_XZ · det Σ_YZ / (det Σ_Z · det Σ_XYZ)). For 1 + 1 + 1 that is
  *                             −½ log(1 − r²) with r the partial correlation of X and Y given Z.
+ *   cmi-gaussian-covariance[DIMX,DIMY;ROW;...]  any positive-definite covariance, the same formula.
  *   cmi-transformed-gaussian  the same law after exp on every X coordinate, a cube on every Y coordinate and
  *                             x ↦ x + x³ on every Z coordinate: exactly the same I.
  */
+import { inverse, Matrix } from 'ml-matrix';
 import type { ParamSpec, Rng, Scenario, ScenarioFamily } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { cholesky, type CholeskyFactor } from '../src/math/linalg.js';
@@ -50,6 +52,7 @@ export interface ConditionalDefinition extends ScenarioFacts {
   zDim: number;
   /** Writes n rows of xDim + yDim + zDim values (X, Y, Z), row-major, consuming only `rng`. */
   draw(rng: Rng, n: number): Float64Array;
+  informationDensityVariance?: { value: number; source: string };
 }
 
 export function conditionalScenario(def: ConditionalDefinition): Scenario {
@@ -63,8 +66,40 @@ export function conditionalScenario(def: ConditionalDefinition): Scenario {
   }));
   scenario.xDim = def.xDim;
   scenario.yDim = def.yDim;
+  if (def.informationDensityVariance) {
+    scenario.logDensityVariance = def.informationDensityVariance.value;
+    scenario.logDensityVarianceSource = `Var of the conditional information density log f(x,y,z)f(z)/(f(x,z)f(y,z)) (the bound for CMI): ${def.informationDensityVariance.source}`;
+  }
   return scenario;
 }
+
+/**
+ * Var(i) of the conditional information density i = log f(x,y,z) + log f(z) − log f(x,z) − log f(y,z) of a
+ * centred Gaussian: i = c − ½ wᵀAw with A = Σ⁻¹ + P_Z − P_XZ − P_YZ (P_S: the inverse of Σ_S placed in the rows
+ * and columns of S, zero elsewhere), and Var(wᵀAw) = 2 tr((AΣ)²) for w ~ N(0, Σ), so Var(i) = ½ tr((AΣ)²).
+ * It is 0 exactly when X and Y are independent given Z (A = 0). Unchanged by invertible maps of each variable.
+ */
+export function gaussianConditionalDensityVariance(covariance: readonly (readonly number[])[], xDim: number, yDim: number): number {
+  const dim = covariance.length;
+  const sigma = new Matrix(covariance.map((row) => [...row]));
+  const a = inverse(sigma);
+  const range = (from: number, to: number) => Array.from({ length: to - from }, (_, j) => from + j);
+  const z = range(xDim + yDim, dim);
+  const place = (keep: number[], sign: number) => {
+    const part = inverse(new Matrix(principal(covariance, keep)));
+    keep.forEach((r, i) => keep.forEach((c, j) => a.set(r, c, a.get(r, c) + sign * part.get(i, j))));
+  };
+  place(z, 1);
+  place([...range(0, xDim), ...z], -1);
+  place(range(xDim, dim), -1);
+  const product = a.mmul(sigma);
+  const variance = 0.5 * product.mmul(product).trace();
+  // Where X and Y are independent given Z, A is 0 up to rounding (1e-32 here), which would make the efficiency
+  // bound Var(i)/n absurdly small: below 1e-12 it is that rounding, not a variance.
+  return variance < 1e-12 ? 0 : variance;
+}
+
+const densityVarianceSource = 'exact: ½ tr((AΣ)²), A = Σ⁻¹ + P_Z − P_XZ − P_YZ (derived in scenarios/conditional.ts)';
 
 /**
  * The correlation matrix of (X, Y, Z) with unit diagonal, `rhoXY` between X_i and Y_i, `rhoXZ` between X_i and
@@ -113,7 +148,7 @@ export function gaussianConditionalInformation(covariance: readonly (readonly nu
   return 0.5 * (logDet([...x, ...z])! + logDet([...y, ...z])! - logDet(z)! - joint);
 }
 
-function gaussianTripleLaw(owner: string, p: Record<string, number>): { covariance: number[][]; factor: CholeskyFactor; truth: number } {
+function gaussianTripleLaw(owner: string, p: Record<string, number>): { covariance: number[][]; factor: CholeskyFactor; truth: number; variance: number } {
   const covariance = tripleCorrelation(p);
   const factor = cholesky(covariance);
   let truth = gaussianConditionalInformation(covariance, p.dimX, p.dimY);
@@ -129,7 +164,7 @@ function gaussianTripleLaw(owner: string, p: Record<string, number>): { covarian
     const r = (p.rhoXY - p.rhoXZ * p.rhoYZ) / Math.sqrt((1 - p.rhoXZ * p.rhoXZ) * (1 - p.rhoYZ * p.rhoYZ));
     truth = -0.5 * Math.log1p(-r * r);
   }
-  return { covariance, factor, truth };
+  return { covariance, factor, truth, variance: gaussianConditionalDensityVariance(covariance, p.dimX, p.dimY) };
 }
 
 const gaussianTruthSource =
@@ -155,6 +190,7 @@ const cmiGaussian: ScenarioFamily = {
       support: 'unbounded',
       tails: 'light',
       draw: (rng, n) => gaussianRows(rng, n, law.factor),
+      informationDensityVariance: { value: law.variance, source: densityVarianceSource },
       marginals: law.covariance.map(() => univariateDensity('normal', { mu: 0, sigma: 1 })),
       moments: { mean: law.covariance.map(() => 0), covariance: law.covariance },
     });
@@ -189,6 +225,7 @@ const cmiTransformedGaussian: ScenarioFamily = {
         `by an invertible map of each argument (the Jacobians cancel in the density ratio; Kraskov, Stögbauer & Grassberger, Phys. Rev. E 69, 066138 (2004), Sec. II); ${gaussianTruthSource}`,
       support: 'unbounded',
       tails: 'heavy',
+      informationDensityVariance: { value: law.variance, source: `unchanged by the maps; ${densityVarianceSource}` },
       draw: (rng, n) =>
         gaussianRows(rng, n, law.factor, (data, offset) => {
           for (let j = 0; j < xEnd; j++) data[offset + j] = Math.exp(data[offset + j]);
@@ -259,6 +296,7 @@ export function conditionalCovarianceScenario({ xDim, yDim, covariance }: { xDim
     support: 'unbounded',
     tails: 'light',
     draw: (rng, n) => gaussianRows(rng, n, factor),
+    informationDensityVariance: { value: gaussianConditionalDensityVariance(covariance, xDim, yDim), source: densityVarianceSource },
     marginals: covariance.map((row, j) => univariateDensity('normal', { mu: 0, sigma: Math.sqrt(row[j]) })),
     moments: { mean: covariance.map(() => 0), covariance },
   });

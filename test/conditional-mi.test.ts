@@ -41,15 +41,23 @@ function settingsOf(key: string): Record<string, string | number> {
   );
 }
 
-describe('cmi-gaussian truth: ½ log(det Σ_XZ det Σ_YZ / (det Σ_Z det Σ)) against NumPy (make_cmi_fixture.py)', () => {
+describe('cmi-gaussian truth: ½ log(det Σ_XZ det Σ_YZ / (det Σ_Z det Σ)) and Var(i) against NumPy and SciPy (make_cmi_fixture.py)', () => {
   for (const entry of fixture.scenarios) {
-    it(`${entry.spec}: numpy.linalg.slogdet and scipy.stats.multivariate_normal entropies agree with the truth to 1e-12`, () => {
+    it(`${entry.spec}: numpy.linalg.slogdet and scipy.stats.multivariate_normal entropies agree with the truth to 1e-12; Var(i) too`, () => {
       const scenario = parseScenario(entry.spec);
       expect(scenario.id).toBe(entry.spec);
       expect(Math.abs(scenario.truth - entry.truth)).toBeLessThan(1e-12);
       expect(Math.abs(scenario.truth - entry.truthByEntropies)).toBeLessThan(1e-12);
       const transformed = parseScenario(entry.spec.replace('cmi-gaussian', 'cmi-transformed-gaussian'));
       expect(transformed.truth).toBe(scenario.truth);
+      // Var of the conditional information density: NumPy's ½ tr((AΣ)²), and scipy logpdf Monte Carlo within 4 SE.
+      const variance = scenario.logDensityVariance!;
+      expect(transformed.logDensityVariance).toBe(variance);
+      if (entry.densityVariance < 1e-12) expect(variance).toBe(0);
+      else {
+        expect(Math.abs(variance - entry.densityVariance)).toBeLessThan(1e-10);
+        expect(Math.abs(variance - entry.densityVarianceMonteCarlo)).toBeLessThan(4 * entry.densityVarianceMonteCarloSE);
+      }
     });
   }
 
