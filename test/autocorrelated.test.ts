@@ -1,7 +1,9 @@
 /**
- * autocorrelated[phi=φ;SPEC]: every row has exactly the base law (Kolmogorov–Smirnov against @stdlib's CDFs, or
+ * Serial dependence. autocorrelated[phi=φ;SPEC]: every row has exactly the base law (Kolmogorov–Smirnov against @stdlib's CDFs, or
  * the family's own SciPy-checked CDF where @stdlib has none), and the normal scores Φ⁻¹(F(x)) are an AR(1)
- * series with lag-1 autocorrelation φ (Bartlett's formula for the standard error).
+ * series with lag-1 autocorrelation φ (Bartlett's formula for the standard error). thin=t gives an estimator rows
+ * 0, t, 2t, …; a plan's phi list wraps each scenario; the harness's variance inflation of the sample mean matches
+ * the exact variance of the mean of a stationary AR(1) series, computed here term by term.
  */
 import { describe, expect, it } from 'vitest';
 import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
@@ -9,6 +11,11 @@ import type { Scenario } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { DEFAULT_SEED, replicateRng } from '../src/core/rng.js';
 import { listFamilies, parseScenario } from '../scenarios/index.js';
+import { configureEstimator, registerEstimator, runEstimator } from '../estimators/index.js';
+import { checkPlanShape, parsePhiList, resolvePlan } from '../src/harness/plan.js';
+import { runPlan } from '../src/harness/runner.js';
+import { assembleRun } from '../src/analysis/results.js';
+import { tuningGrid } from '../src/harness/tuning.js';
 import { kolmogorovQ, ksStatistic } from './helpers/ks.js';
 import { stdlibCdf } from './helpers/stdlib-cdf.js';
 
@@ -122,5 +129,104 @@ describe('autocorrelated[...] serial dependence', () => {
     expect(() => parseScenario('autocorrelated[rho=0.5;normal]')).toThrow(/phi=φ with −1 < φ < 1/);
     expect(() => parseScenario('autocorrelated[phi=0.5;student-t-mv]')).toThrow(/cannot wrap student-t-mv.*a one-dimensional entropy scenario/);
     expect(() => parseScenario('autocorrelated[phi=0.5;autocorrelated[phi=0.5;normal]]')).toThrow(/already autocorrelated/);
+  });
+});
+
+describe('thin=t: every estimator, applied once by the registry', () => {
+  const seen: Float64Array[] = [];
+  registerEstimator({
+    id: 'test-records-rows',
+    family: 'test',
+    quantity: 'entropy',
+    summary: 'records the rows it is given',
+    settings: [{ name: 'k', kind: 'integer', min: 1, default: 1, meaning: 'unused' }],
+    tuning: () => [{ setting: 'k', values: [1, 2] }],
+    dims: [1, 3],
+    reference: 'a test double',
+    estimate: (sample) => {
+      seen.push(Float64Array.from(sample.data));
+      return sample.n;
+    },
+  });
+
+  it('uses rows 0, t, 2t, … in their order, dimension and Q sample alike; thin = 1 is the sample itself', () => {
+    const data = Float64Array.from({ length: 20 }, (_, i) => i); // 10 rows of 2 coordinates: row r is (2r, 2r + 1)
+    const q = { n: 5, dim: 2, data: Float64Array.from({ length: 10 }, (_, i) => 100 + i) };
+    const thinned = configureEstimator('test-records-rows', { thin: '3' });
+    expect(runEstimator(thinned, { n: 10, dim: 2, data, q }).value).toBe(4);
+    expect([...seen[seen.length - 1]]).toEqual([0, 1, 6, 7, 12, 13, 18, 19]);
+    expect(runEstimator(configureEstimator('test-records-rows'), { n: 10, dim: 2, data }).value).toBe(10);
+    expect([...seen[seen.length - 1]]).toEqual([...data]);
+  });
+
+  it('names thin in the spec only when t ≠ 1, keeps it across a tuning grid, and refuses bad values in one line', () => {
+    expect(configureEstimator('kozachenko-leonenko').spec).toBe(configureEstimator('kozachenko-leonenko', { thin: 1 }).spec);
+    expect(configureEstimator('kozachenko-leonenko', { thin: '10' }).spec).toBe(`${configureEstimator('kozachenko-leonenko').spec},thin=10`);
+    expect(configureEstimator('gaussian', { thin: 2 }).spec).toMatch(/^gaussian[:,].*thin=2$|^gaussian:thin=2$/);
+    const grid = tuningGrid(configureEstimator('test-records-rows', { thin: 4 }), 0, 100);
+    expect(grid.map((g) => g.configured.thin)).toEqual([4, 4]);
+    expect(() => configureEstimator('kozachenko-leonenko', { thin: '0' })).toThrow(/thin=0 is not allowed; thin must be an integer ≥ 1/);
+    expect(() => configureEstimator('kozachenko-leonenko', { thin: '2.5' })).toThrow(UsageError);
+    expect(() =>
+      registerEstimator({
+        id: 'test-declares-thin',
+        family: 'test',
+        quantity: 'entropy',
+        summary: 'declares a setting the harness owns',
+        settings: [{ name: 'thin', kind: 'integer', min: 1, default: 1, meaning: 'clash' }],
+        dims: [1, 1],
+        reference: 'a test double',
+        estimate: () => 0,
+      }),
+    ).toThrow(/"thin" is the harness's own setting/);
+  });
+});
+
+describe('the phi list of a plan', () => {
+  it('runs each scenario at each φ, φ = 0 as the scenario itself, from a plan file or --phi', () => {
+    const input = checkPlanShape({ scenarios: ['normal', 'gamma:shape=2'], estimators: ['gaussian'], phi: [0, 0.5, 0.9] }, 'plan.json');
+    expect(resolvePlan(input).plan.scenarios).toEqual([
+      'normal:mu=0,sigma=1',
+      'autocorrelated[phi=0.5;normal:mu=0,sigma=1]',
+      'autocorrelated[phi=0.9;normal:mu=0,sigma=1]',
+      'gamma:shape=2,scale=1',
+      'autocorrelated[phi=0.5;gamma:shape=2,scale=1]',
+      'autocorrelated[phi=0.9;gamma:shape=2,scale=1]',
+    ]);
+    expect(parsePhiList('0, 0.5,-0.3')).toEqual([0, 0.5, -0.3]);
+    expect(() => parsePhiList('0,1')).toThrow(/--phi: "1" is not allowed; each φ must be a number with −1 < φ < 1/);
+    expect(() => checkPlanShape({ scenarios: ['normal'], estimators: ['gaussian'], phi: [1.5] }, 'plan.json')).toThrow(/phi\[0\]/);
+  });
+});
+
+describe('variance inflation in the run file', () => {
+  it('of the sample mean of the latent series equals the exact AR(1) value within its 95% interval', async () => {
+    registerEstimator({
+      id: 'test-sample-mean',
+      family: 'test',
+      quantity: 'entropy',
+      summary: 'the sample mean (its variance under AR(1) rows is known exactly)',
+      settings: [],
+      dims: [1, 1],
+      reference: 'a test double',
+      estimate: (sample) => sample.data.reduce((a, b) => a + b, 0) / sample.n,
+    });
+    const n = 400;
+    const phi = 0.9;
+    const plan = resolvePlan({ scenarios: ['normal'], phi: [0, phi], estimators: ['test-sample-mean'], sampleSizes: [n], replicates: 1000, seed: 5 }).plan;
+    const run = assembleRun(await runPlan(plan, { workers: 1, isolation: 'in-process' }), null);
+    const [inflation] = run.dependence!.varianceInflation;
+    expect(inflation).toMatchObject({ base: 'normal:mu=0,sigma=1', phi, n, estimator: 'test-sample-mean' });
+    expect(inflation.latentTau).toBeCloseTo(19, 12);
+    // Var(x̄) of a stationary AR(1) with unit variance: (1/n)[1 + 2 Σ_{k<n} (1 − k/n) φ^k] (Box, Jenkins & Reinsel,
+    // §2.1.5), summed term by term; at φ = 0 it is 1/n, so the ratio is n·Var(x̄). For large n it tends to τ = 19.
+    let sum = 1;
+    for (let k = 1; k < n; k++) sum += 2 * (1 - k / n) * phi ** k;
+    // The same sum in closed form, τ − 2φ(1 − φⁿ)/(n(1 − φ)²) = 18.55 here.
+    expect(sum).toBeCloseTo(19 - (2 * phi * (1 - phi ** n)) / (n * (1 - phi) ** 2), 10);
+    expect(inflation.ratio.lower).toBeLessThan(sum);
+    expect(inflation.ratio.upper).toBeGreaterThan(sum);
+    // The interval is informative: its relative half-width is about 1.96·√(4/999) ≈ 0.12 for normal estimates.
+    expect(inflation.ratio.upper / inflation.ratio.lower).toBeLessThan(1.4);
   });
 });

@@ -365,7 +365,9 @@ export function checkEstimator(where: string, value: unknown): Estimator {
     const checked = checkSettingSpec(at, spec, i);
     if (seen.has(checked.name)) throw new UsageError(`${at}: settings[${i}]: the name "${checked.name}" is used twice`);
     if (checked.name === THIN_SETTING)
-      throw new UsageError(`${at}: settings[${i}]: "${THIN_SETTING}" is the harness's own setting of every estimator (use every t-th row); choose another name`);
+      throw new UsageError(
+        `${at}: settings[${i}]: "${THIN_SETTING}" is the harness's own setting of every estimator (use every t-th row); choose another name`,
+      );
     seen.add(checked.name);
   });
   checkDefaultSets(at, e.defaultFor, e as Estimator);
