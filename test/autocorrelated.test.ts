@@ -7,9 +7,12 @@
  */
 import { describe, expect, it } from 'vitest';
 import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
+import normalRandom from '@stdlib/random-base-normal';
 import type { Scenario } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
-import { DEFAULT_SEED, replicateRng } from '../src/core/rng.js';
+import { DEFAULT_SEED, replicateRng, rngFromSeed } from '../src/core/rng.js';
+import { dependenceSection, varianceRatio } from '../src/analysis/dependence.js';
+import type { Cell, ScenarioInfo } from '../src/analysis/cells.js';
 import { listFamilies, parseScenario } from '../scenarios/index.js';
 import { configureEstimator, registerEstimator, runEstimator } from '../estimators/index.js';
 import { checkPlanShape, parsePhiList, resolvePlan } from '../src/harness/plan.js';
@@ -228,5 +231,48 @@ describe('variance inflation in the run file', () => {
     expect(inflation.ratio.upper).toBeGreaterThan(sum);
     // The interval is informative: its relative half-width is about 1.96·√(4/999) ≈ 0.12 for normal estimates.
     expect(inflation.ratio.upper / inflation.ratio.lower).toBeLessThan(1.4);
+  });
+});
+
+describe('the dependence section: its interval and its verdict', () => {
+  it('the 95% interval of a variance ratio covers the true ratio about 95% of the time (simulation, m = 50 per side)', () => {
+    // Independent normal replicates with variances 4 and 1: the true ratio is 4. 2000 simulated pairs give the
+    // coverage to ±0.01 (binomial SE); the delta method is asymptotic, so allow 0.92–0.98.
+    const draw = normalRandom.factory(0, 1, { prng: rngFromSeed('variance-ratio-coverage') });
+    let covered = 0;
+    const trials = 2000;
+    for (let t = 0; t < trials; t++) {
+      const a = Array.from({ length: 50 }, () => 2 * draw());
+      const b = Array.from({ length: 50 }, () => draw());
+      const r = varianceRatio(a, b)!;
+      if (r.lower < 4 && r.upper > 4) covered++;
+    }
+    expect(covered / trials).toBeGreaterThan(0.92);
+    expect(covered / trials).toBeLessThan(0.98);
+  });
+
+  it('thinned against all rows: the verdict follows the paired squared errors', () => {
+    const cell = (scenario: string, estimator: string, errors: number[]): Cell =>
+      ({
+        scenario,
+        estimator,
+        n: 100,
+        role: 'main',
+        estimates: errors.map((e) => 1 + e),
+        scores: { rmse: { value: Math.sqrt(errors.reduce((s, e) => s + e * e, 0) / errors.length), se: 0 } },
+      }) as unknown as Cell;
+    const small = Array.from({ length: 40 }, (_, i) => (i % 2 ? 0.01 : -0.01) * (1 + i / 40));
+    const large = small.map((e) => e * 10);
+    const info = [{ id: 's', truth: 1 }] as ScenarioInfo[];
+    const verdict = (thinned: number[], all: number[]) =>
+      dependenceSection([cell('s', 'kozachenko-leonenko:k=3,thin=5', thinned), cell('s', 'kozachenko-leonenko:k=3', all)], info)!.thinning[0].verdict;
+    expect(verdict(large, small)).toBe('all rows better');
+    expect(verdict(small, large)).toBe('thinning better');
+    expect(
+      verdict(
+        small,
+        small.map((e, i) => (i % 4 < 2 ? e * 1.01 : e * 0.99)),
+      ),
+    ).toBe('cannot tell');
   });
 });
