@@ -22,7 +22,7 @@ export const AUTOCORRELATED_SUMMARY =
 
 /** What can be wrapped, for the refusal. */
 const WRAPPABLE =
-  'a one-dimensional entropy scenario, a Gaussian (gaussian, gaussian-covariance), lognormal-mv, a transformed[...] of a wrappable base, or a product[...] of such';
+  'a one-dimensional entropy scenario, a Gaussian (gaussian, gaussian-covariance, mi-gaussian), lognormal-mv, a transformed[...] of a wrappable base, or a product[...] of such';
 
 /** Reads `phi=0.9` (the first argument of autocorrelated[...]). */
 export function parseAutocorrelatedArgument(args: string[], text: string): { phi: number; base: string } {
@@ -54,7 +54,7 @@ export function serialDependence(phi: number): SerialDependence {
 export function autocorrelatedScenario(phi: number, base: Scenario): Scenario {
   if (base.dependence) throw new UsageError(`autocorrelated[...]: the base ${base.id} is already autocorrelated; wrap ${WRAPPABLE}`);
   const representation = normalRepresentation(base);
-  if (!representation || base.quantity !== 'entropy') {
+  if (!representation || base.quantity === 'divergence') {
     throw new UsageError(`autocorrelated[...] cannot wrap ${base.id}: it needs ${WRAPPABLE}`);
   }
   const { width } = representation;
@@ -67,7 +67,10 @@ export function autocorrelatedScenario(phi: number, base: Scenario): Scenario {
       const row = t * width;
       for (let j = 0; j < width; j++) normals[row + j] = phi * normals[row - width + j] + innovationScale * draw();
     }
-    return representation.map(normals, n);
+    const drawn = representation.map(normals, n);
+    // Mutual information: the first xDim columns are X, as on the base's own samples.
+    if (base.xDim !== undefined) drawn.xDim = base.xDim;
+    return drawn;
   };
   // Everything that describes one row is the base's: the marginal law is unchanged. (Not a spread: that would
   // evaluate the base's lazy Var(log f) now.)
@@ -94,5 +97,6 @@ export function autocorrelatedScenario(phi: number, base: Scenario): Scenario {
   if (base.marginals) scenario.marginals = base.marginals;
   if (base.logDensity) scenario.logDensity = base.logDensity;
   if (base.moments) scenario.moments = base.moments;
+  if (base.xDim !== undefined) scenario.xDim = base.xDim;
   return scenario;
 }

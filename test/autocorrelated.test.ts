@@ -121,6 +121,15 @@ describe('autocorrelated[...] serial dependence', () => {
     });
   }
 
+  it(`mi-gaussian, φ = 0.9: X and Y columns each AR(1), xDim kept, the truth (I) the base's`, () => {
+    const { scenario, data } = draw('autocorrelated[phi=0.9;mi-gaussian:dimX=1,dimY=1,rho=0.9,within=0]');
+    const base = parseScenario('mi-gaussian:dimX=1,dimY=1,rho=0.9,within=0');
+    expect([scenario.quantity, scenario.xDim, scenario.truth]).toEqual(['mutual-information', 1, base.truth]);
+    const se = Math.sqrt((1 - 0.81) / N);
+    for (let j = 0; j < 2; j++) expect(Math.abs(lag1(Float64Array.from({ length: N }, (_, i) => data[i * 2 + j])) - 0.9)).toBeLessThan(3 * se);
+    expect(scenario.sample(replicateRng(DEFAULT_SEED, scenario.id, 10, 0), 10).xDim).toBe(1);
+  });
+
   it('rows are in time order: a negative φ alternates', () => {
     const { data } = draw('autocorrelated[phi=-0.8;normal]');
     expect(Math.abs(lag1(data) + 0.8)).toBeLessThan(3 * Math.sqrt((1 - 0.64) / N));
