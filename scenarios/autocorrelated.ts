@@ -68,8 +68,9 @@ export function autocorrelatedScenario(phi: number, base: Scenario): Scenario {
       for (let j = 0; j < width; j++) normals[row + j] = phi * normals[row - width + j] + innovationScale * draw();
     }
     const drawn = representation.map(normals, n);
-    // Mutual information: the first xDim columns are X, as on the base's own samples.
+    // Mutual information: the first xDim columns are X (then yDim of Y, for a conditional one), as on the base's samples.
     if (base.xDim !== undefined) drawn.xDim = base.xDim;
+    if (base.yDim !== undefined) drawn.yDim = base.yDim;
     return drawn;
   };
   // Everything that describes one row is the base's: the marginal law is unchanged. (Not a spread: that would
@@ -98,5 +99,6 @@ export function autocorrelatedScenario(phi: number, base: Scenario): Scenario {
   if (base.logDensity) scenario.logDensity = base.logDensity;
   if (base.moments) scenario.moments = base.moments;
   if (base.xDim !== undefined) scenario.xDim = base.xDim;
+  if (base.yDim !== undefined) scenario.yDim = base.yDim;
   return scenario;
 }

@@ -7,6 +7,7 @@
  *   transformed[MAP;SPEC]             a monotone map of a 1-D base, e.g. transformed[sinh;normal]
  *   gaussian-covariance[ROW;ROW;...]  any covariance, e.g. gaussian-covariance[1,0.5;0.5,2]
  *   autocorrelated[phi=φ;SPEC]        rows as a stationary AR(1) series with SPEC's law, e.g. autocorrelated[phi=0.9;gamma]
+ *   cmi-gaussian-covariance[DX,DY;ROW;...]  conditional MI of a Gaussian (X, Y, Z) with any covariance
  */
 import type { Scenario, ScenarioFamily } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
@@ -18,9 +19,17 @@ import { LOOKALIKE_FAMILY, LOOKALIKE_SUMMARY, LOOKALIKE_USAGE, lookalikeScenario
 import { dependenceFamilies } from './dependence.js';
 import { divergenceFamilies } from './divergence-pairs.js';
 import { AUTOCORRELATED_FAMILY, AUTOCORRELATED_SUMMARY, AUTOCORRELATED_USAGE, autocorrelatedScenario, parseAutocorrelatedArgument } from './autocorrelated.js';
+import {
+  CMI_COVARIANCE_FAMILY,
+  CMI_COVARIANCE_USAGE,
+  conditionalCovarianceScenario,
+  conditionalFamilies,
+  parseConditionalCovarianceArgument,
+} from './conditional.js';
 
 const families = new Map<string, ScenarioFamily>();
-for (const f of [...univariateFamilies, ...multivariateFamilies, gaussianMixtureFamily, ...dependenceFamilies, ...divergenceFamilies]) families.set(f.id, f);
+for (const f of [...univariateFamilies, ...multivariateFamilies, gaussianMixtureFamily, ...dependenceFamilies, ...conditionalFamilies, ...divergenceFamilies])
+  families.set(f.id, f);
 
 /** Families written with a bracketed argument rather than key=value parameters. */
 export const bracketFamilies = [
@@ -33,6 +42,7 @@ export const bracketFamilies = [
   { id: 'gaussian-covariance', usage: 'gaussian-covariance[ROW;ROW;...], entries comma-separated', summary: 'Gaussian with any covariance' },
   { id: LOOKALIKE_FAMILY, usage: LOOKALIKE_USAGE, summary: LOOKALIKE_SUMMARY },
   { id: AUTOCORRELATED_FAMILY, usage: AUTOCORRELATED_USAGE, summary: AUTOCORRELATED_SUMMARY },
+  { id: CMI_COVARIANCE_FAMILY, usage: CMI_COVARIANCE_USAGE, summary: 'conditional MI I(X;Y|Z) of a Gaussian with any covariance' },
 ] as const;
 
 export function listFamilies(): ScenarioFamily[] {
@@ -102,6 +112,8 @@ function buildScenario(text: string): Scenario {
         const { phi, base } = parseAutocorrelatedArgument(args, text);
         return autocorrelatedScenario(phi, parseScenario(base));
       }
+      case CMI_COVARIANCE_FAMILY:
+        return conditionalCovarianceScenario(parseConditionalCovarianceArgument(args));
       default:
         throw unknownScenario(name);
     }
@@ -125,6 +137,7 @@ export function catalog(): Scenario[] {
     'product[normal;exponential]',
     'product[uniform;cauchy;gamma:shape=3,scale=1]',
     'gaussian-covariance[2,0.9,0;0.9,1,-0.3;0,-0.3,0.5]',
+    'cmi-gaussian-covariance[1,1;2,0.9,0.3;0.9,1,-0.3;0.3,-0.3,0.5]',
     ...transformedExamples,
   );
   const seen = new Set<string>();

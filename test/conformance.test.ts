@@ -127,6 +127,8 @@ describe('declared exceptions follow the settings', () => {
     ['mi-gaussian', { correction: 'none', copula: 'rank' }],
     ['mi-from-entropies', { entropy: 'kernel' }],
     ['mi-from-entropies', { entropy: 'histogram' }],
+    ['cmi-ksg', { copula: 'rank', k: 2 }],
+    ['cmi-gaussian', { correction: 'none', copula: 'rank' }],
   ];
   for (const [id, settings] of holding) {
     it(`${id} with ${JSON.stringify(settings)} passes every applicable check`, () => {

@@ -135,7 +135,12 @@ describe('bad modules: one line naming the file and the problem', () => {
     ['no-estimate', 'mjs', withField('estimate: undefined'), /\("ok-method"\): estimate is nothing, not a function/],
     ['estimate-number', 'mjs', withField('estimate: 1.5'), /estimate is 1\.5, not a function/],
     ['resolve', 'mjs', withField(`resolve: 'auto'`), /resolve is "auto"; when given it must be a function/],
-    ['quantity', 'mjs', withField(`quantity: 'entropie'`), /quantity "entropie" is not allowed; it must be one of entropy, mutual-information, divergence/],
+    [
+      'quantity',
+      'mjs',
+      withField(`quantity: 'entropie'`),
+      /quantity "entropie" is not allowed; it must be one of entropy, mutual-information, conditional-mutual-information, divergence/,
+    ],
     ['no-reference', 'mjs', withField('reference: undefined'), /reference is missing; give the paper or book/],
     ['empty-family', 'mjs', withField(`family: ' '`), /family is " "; give a family name/],
     ['dims-zero', 'mjs', withField('dims: [0, 3]'), /dims must be \[min, max\], whole numbers with 1 ≤ min ≤ max \(max may be Infinity\); got \[0, 3\]/],

@@ -28,6 +28,12 @@ export function lawFor(quantity: Quantity, dim: number): string {
       const dimX = Math.ceil(dim / 2);
       return `mi-gaussian:dimX=${dimX},dimY=${dim - dimX},rho=0.6,within=0`;
     }
+    case 'conditional-mutual-information': {
+      // X and Y share Z's influence (rhoXZ, rhoYZ) and keep some of their own (partial correlation 0.6).
+      const dimX = Math.ceil(dim / 3);
+      const dimY = Math.ceil((dim - dimX) / 2);
+      return `cmi-gaussian:dimX=${dimX},dimY=${dimY},dimZ=${dim - dimX - dimY},rhoXY=0.7,rhoXZ=0.5,rhoYZ=0.5`;
+    }
     case 'divergence':
       // Q wider than P, so every region holding P points holds Q points too (a plug-in stays finite).
       return `kl-gaussian:dim=${dim},shift=0,sigma=2,rho=0`;
@@ -116,18 +122,23 @@ export function applyAffine(sample: Sample, matrix: Float64Array, shift: Float64
   return mapped;
 }
 
-/** Y's columns first, then X's: the sample of (Y, X), with xDim the old Y dimension. */
+/**
+ * Y's columns first, then X's: the sample of (Y, X), with xDim the old Y dimension. A conditional-MI sample
+ * (yDim given) keeps its Z columns last: the sample of (Y, X, Z).
+ */
 export function swapParts(sample: Sample): Sample {
   const { n, dim, data } = sample;
   const xDim = sample.xDim ?? 1;
-  const yDim = dim - xDim;
+  const yDim = sample.yDim ?? dim - xDim;
+  const end = xDim + yDim;
   const out = new Float64Array(n * dim);
   for (let i = 0; i < n; i++) {
     const row = i * dim;
-    out.set(data.subarray(row + xDim, row + dim), row);
+    out.set(data.subarray(row + xDim, row + end), row);
     out.set(data.subarray(row, row + xDim), row + yDim);
+    out.set(data.subarray(row + end, row + dim), row + end);
   }
-  return { ...sample, data: out, xDim: yDim };
+  return { ...sample, data: out, xDim: yDim, ...(sample.yDim !== undefined ? { yDim: xDim } : {}) };
 }
 
 /** A copy with one value replaced (row and column from 0). */
@@ -150,14 +161,15 @@ export function withDimension(sample: Sample, dim: number): Sample {
   for (let i = 0; i < n; i++) for (let j = 0; j < dim; j++) out[i * dim + j] = j < sample.dim ? sample.data[i * sample.dim + j] : rng();
   const reshaped: Sample = { n, dim, data: out };
   if (sample.xDim !== undefined) reshaped.xDim = Math.min(sample.xDim, dim);
+  if (sample.yDim !== undefined) reshaped.yDim = sample.yDim;
   if (sample.q) reshaped.q = withDimension(sample.q, dim);
   return reshaped;
 }
 
 /** Where two samples differ in any value, shape or split, as one line; null when they are bit-for-bit the same. */
 export function firstDifference(before: Sample, after: Sample, which = ''): string | null {
-  if (before.n !== after.n || before.dim !== after.dim || before.xDim !== after.xDim) {
-    return `${which}sample shape changed: n ${before.n} → ${after.n}, d ${before.dim} → ${after.dim}, xDim ${before.xDim} → ${after.xDim}`;
+  if (before.n !== after.n || before.dim !== after.dim || before.xDim !== after.xDim || before.yDim !== after.yDim) {
+    return `${which}sample shape changed: n ${before.n} → ${after.n}, d ${before.dim} → ${after.dim}, xDim ${before.xDim} → ${after.xDim}, yDim ${before.yDim} → ${after.yDim}`;
   }
   for (let p = 0; p < before.n * before.dim; p++) {
     if (!Object.is(before.data[p], after.data[p])) {

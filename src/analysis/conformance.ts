@@ -58,6 +58,7 @@ export type CheckName = (typeof CHECKS)[number];
 const QUANTITY_CHECKS: Record<Quantity, ReadonlySet<CheckName>> = {
   entropy: new Set(CHECKS.filter((c) => c !== 'symmetry' && c !== 'affine' && c !== 'self-divergence')),
   'mutual-information': new Set(CHECKS.filter((c) => c !== 'affine' && c !== 'self-divergence')),
+  'conditional-mutual-information': new Set(CHECKS.filter((c) => c !== 'affine' && c !== 'self-divergence')),
   divergence: new Set(CHECKS.filter((c) => c !== 'symmetry')),
 };
 
@@ -134,11 +135,17 @@ export const MAPPED_DATA_TOLERANCE = 1e-8;
  * divergence: per coordinate; mutual information: per X/Y coordinate pair). Measured over 20 seeds at
  * n = 4000 (d = 1, or one X and one Y coordinate): the largest |error| of any built-in was 0.080 nats for
  * entropy (van-es, whose bias is −0.05 there), 0.047 for mutual information (mi-histogram, bias +0.03) and
- * 0.066 for divergence (knn-divergence with k = 1, SD 0.033). The tolerances are about twice those, while a
- * broken estimator (a constant off, the wrong log base, a missing Jacobian, D(Q ‖ P) for D(P ‖ Q)) misses
- * by more: an efficient estimator's SD here is sqrt(Var log f / n) ≈ 0.011 nats, so 0.15 is over 10 SDs.
+ * 0.066 for divergence (knn-divergence with k = 1, SD 0.033); for conditional mutual information (per X/Y/Z
+ * coordinate triple) 0.028 on the default cmi-gaussian (cmi-gaussian; cmi-ksg 0.023). The tolerances are about
+ * twice those or more, while a broken estimator (a constant off, the wrong log base, a missing Jacobian,
+ * D(Q ‖ P) for D(P ‖ Q)) misses by more: an efficient estimator's SD here is sqrt(Var log f / n) ≈ 0.011 nats, so 0.15 is over 10 SDs.
  */
-export const KNOWN_VALUE_TOLERANCE: Record<Quantity, number> = { entropy: 0.15, 'mutual-information': 0.1, divergence: 0.15 };
+export const KNOWN_VALUE_TOLERANCE: Record<Quantity, number> = {
+  entropy: 0.15,
+  'mutual-information': 0.1,
+  'conditional-mutual-information': 0.1,
+  divergence: 0.15,
+};
 /** |D̂(P ‖ P)| allowed per dimension, at KNOWN_VALUE_N points each: the built-ins measured at most 0.049 over 20 seeds (knn-divergence). */
 export const SELF_DIVERGENCE_TOLERANCE = 0.1;
 /** Powers of two, so the rescaled data are exact and only the estimator's own rounding remains; one negative (a reflection). */
@@ -279,8 +286,19 @@ function invariance(context: Context, name: InvarianceName, dim: number, run: ()
   return { status: result.ok ? 'pass' : 'fail', evidence: result.line, compared: result.compared };
 }
 
-function columnsOf(sample: Sample): { xDim: number; dim: number } {
-  return { xDim: sample.xDim ?? sample.dim, dim: sample.dim };
+function columnsOf(sample: Sample): { xDim: number; yDim: number; dim: number } {
+  const xDim = sample.xDim ?? sample.dim;
+  return { xDim, yDim: sample.yDim ?? sample.dim - xDim, dim: sample.dim };
+}
+
+/** The mutual-information quantities, whose variables (X, Y and for conditional MI Z) each keep their own scale. */
+function isInformation(quantity: Quantity): boolean {
+  return quantity === 'mutual-information' || quantity === 'conditional-mutual-information';
+}
+
+/** The smallest dimension the suite draws for a quantity: X and Y (and Z) need a column each. */
+function baseDimension(quantity: Quantity, minDim: number): number {
+  return quantity === 'mutual-information' ? Math.max(2, minDim) : quantity === 'conditional-mutual-information' ? Math.max(3, minDim) : minDim;
 }
 
 const deterministic: Body = (context) => {
@@ -358,7 +376,7 @@ function factorLabel(c: number): string {
 
 const scale: Body = (context) => {
   const { base } = context;
-  const { dim, xDim } = columnsOf(base);
+  const { dim, xDim, yDim } = columnsOf(base);
   const common = (): Measured =>
     measure(
       context,
@@ -371,20 +389,28 @@ const scale: Body = (context) => {
       })),
       ROUNDING_TOLERANCE,
     );
-  if (context.estimator.quantity !== 'mutual-information') return invariance(context, 'scale', dim, common);
+  if (!isInformation(context.estimator.quantity)) return invariance(context, 'scale', dim, common);
   const [a, b] = CHECKED_RESCALINGS;
+  // Conditional MI: Z gets a factor of its own too, unlike X in one case and unlike Y in the other.
+  const conditional = context.estimator.quantity === 'conditional-mutual-information';
   const separate = (): Measured =>
     measure(
       context,
       base,
-      [
-        [a, b],
-        [b, a],
-      ].map(([fx, fy]) => ({
-        label: `X ×${factorLabel(fx)}, Y ×${factorLabel(fy)}`,
+      (conditional
+        ? [
+            [a, b, a],
+            [a, a, b],
+          ]
+        : [
+            [a, b],
+            [b, a],
+          ]
+      ).map(([fx, fy, fz]) => ({
+        label: `X ×${factorLabel(fx)}, Y ×${factorLabel(fy)}${conditional ? `, Z ×${factorLabel(fz)}` : ''}`,
         sample: mapColumns(
           base,
-          Array.from({ length: dim }, (_, j) => (j < xDim ? fx : fy)),
+          Array.from({ length: dim }, (_, j) => (j < xDim ? fx : j < xDim + yDim ? fy : fz)),
           new Array<number>(dim).fill(0),
         ),
         shift: 0,
@@ -411,7 +437,9 @@ const translation: Body = (context) => {
 
 const symmetry: Body = (context) =>
   invariance(context, 'symmetry', context.base.dim, () =>
-    measure(context, context.base, [{ label: 'Î(Y; X)', sample: swapParts(context.base), shift: 0 }], ROUNDING_TOLERANCE, 'Î(X; Y)'),
+    context.base.yDim !== undefined
+      ? measure(context, context.base, [{ label: 'Î(Y; X | Z)', sample: swapParts(context.base), shift: 0 }], ROUNDING_TOLERANCE, 'Î(X; Y | Z)')
+      : measure(context, context.base, [{ label: 'Î(Y; X)', sample: swapParts(context.base), shift: 0 }], ROUNDING_TOLERANCE, 'Î(X; Y)'),
   );
 
 const affine: Body = (context) => {
@@ -458,12 +486,12 @@ const selfDivergence: Body = (context) => {
 
 /** The tolerance of the known-value check for a quantity in dimension d (see KNOWN_VALUE_TOLERANCE). */
 export function knownValueTolerance(quantity: Quantity, dim: number): number {
-  return KNOWN_VALUE_TOLERANCE[quantity] * (quantity === 'mutual-information' ? dim / 2 : dim);
+  return KNOWN_VALUE_TOLERANCE[quantity] * (quantity === 'mutual-information' ? dim / 2 : quantity === 'conditional-mutual-information' ? dim / 3 : dim);
 }
 
 const knownValue: Body = (context) => {
   const { quantity, dims } = context.estimator;
-  const dim = quantity === 'mutual-information' ? Math.max(2, dims[0]) : dims[0];
+  const dim = baseDimension(quantity, dims[0]);
   const { sample, truth, id } = draw(lawFor(quantity, dim), KNOWN_VALUE_N);
   const got = estimateOn(context, sample, id);
   const difference = Math.abs(got - truth);
@@ -579,7 +607,7 @@ export interface ConformanceOptions {
 export function runConformance(estimator: Estimator, options: ConformanceOptions = {}): ConformanceReport {
   const started = performance.now();
   const settings = validateSettings(estimator.id, estimator.settings, options.settings ?? {});
-  const baseDim = estimator.quantity === 'mutual-information' ? Math.max(2, estimator.dims[0]) : estimator.dims[0];
+  const baseDim = baseDimension(estimator.quantity, estimator.dims[0]);
   const context: Context = { estimator, settings, base: draw(lawFor(estimator.quantity, baseDim), INVARIANCE_N).sample };
   const checks = checksFor(estimator.quantity)
     .filter((check) => !options.only || options.only.includes(check))

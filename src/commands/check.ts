@@ -48,7 +48,11 @@ export function registerCheckCommand(program: Command, print: (text: string) => 
       "check an estimator written in any language: ID=PROGRAM [ARG...] speaking hhat's estimator protocol (repeatable; instead of MODULE)",
       collect,
     )
-    .option('--quantity <q>', 'what the --estimator-command estimators measure: entropy, mutual-information or divergence', 'entropy')
+    .option(
+      '--quantity <q>',
+      'what the --estimator-command estimators measure: entropy, mutual-information, conditional-mutual-information or divergence',
+      'entropy',
+    )
     .option('--json', 'print the reports as JSON, with the suite sizes and tolerances')
     .addHelpText('after', exitCodesHelp)
     .action(async (module: string | undefined, options: { estimator?: string[]; json?: boolean; estimatorCommand?: string[]; quantity: string }) => {

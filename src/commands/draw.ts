@@ -109,7 +109,8 @@ interface FilePlan extends WrittenFile {
 function planFiles(draw: Draw, out: string, format: Format, replicates: number[], stacked: boolean, split: boolean, head: Record<string, unknown>): FilePlan[] {
   const { scenario, n } = draw;
   const divergence = scenario.quantity === 'divergence';
-  const names = sampleColumnNames(scenario.dim, scenario.quantity === 'mutual-information' ? scenario.xDim : undefined);
+  const information = scenario.quantity === 'mutual-information' || scenario.quantity === 'conditional-mutual-information';
+  const names = sampleColumnNames(scenario.dim, information ? scenario.xDim : undefined, scenario.yDim);
   const groups: { path: string; replicates: number[]; stacked: boolean }[] = split
     ? replicates.map((r) => ({ path: withSuffix(out, `-${r}`), replicates: [r], stacked: false }))
     : [{ path: out, replicates, stacked }];
@@ -176,6 +177,7 @@ function drawRecord(draw: Draw): Record<string, unknown> {
     n: draw.n,
     dim: scenario.dim,
     ...(scenario.quantity === 'mutual-information' ? { xDim: scenario.xDim } : {}),
+    ...(scenario.quantity === 'conditional-mutual-information' ? { xDim: scenario.xDim, yDim: scenario.yDim } : {}),
     seed: draw.seed,
     truth: draw.truth,
     unit: 'nats',
@@ -188,12 +190,15 @@ const MAX_LISTED_FILES = 8;
 
 function printSummary(draw: Draw, replicates: number[], files: WrittenFile[], format: Format, print: (text: string) => void): void {
   const { scenario } = draw;
+  const group = (letter: string, width: number): string => (width === 1 ? `${letter}1` : `${letter}1..${letter}${width}`);
   const layout =
-    scenario.quantity === 'mutual-information'
-      ? `: X = ${scenario.xDim === 1 ? 'x1' : `x1..x${scenario.xDim}`}, Y = ${scenario.dim - scenario.xDim! === 1 ? 'y1' : `y1..y${scenario.dim - scenario.xDim!}`}`
-      : scenario.quantity === 'divergence'
-        ? ', samples from P and from Q'
-        : '';
+    scenario.quantity === 'conditional-mutual-information'
+      ? `: X = ${group('x', scenario.xDim!)}, Y = ${group('y', scenario.yDim!)}, Z = ${group('z', scenario.dim - scenario.xDim! - scenario.yDim!)}`
+      : scenario.quantity === 'mutual-information'
+        ? `: X = ${scenario.xDim === 1 ? 'x1' : `x1..x${scenario.xDim}`}, Y = ${scenario.dim - scenario.xDim! === 1 ? 'y1' : `y1..y${scenario.dim - scenario.xDim!}`}`
+        : scenario.quantity === 'divergence'
+          ? ', samples from P and from Q'
+          : '';
   print(`scenario    ${scenario.id} (${scenario.quantity}, d = ${scenario.dim}${layout})`);
   if (draw.perturbation) {
     const p = draw.perturbation;
@@ -257,7 +262,7 @@ Files:
   .npy   float64, little-endian, C order: shape (n, d) for one replicate, (R, n, d) for --replicates R or a list
   .csv   header x1..xd (mutual information: X's columns x1.., then Y's y1..); several replicates in one file
          get a first column "replicate"; numbers in the shortest form that reads back to the same double
-  .json  {"kind": "hhat-draw", scenario, truth, truthSource, n, dim, xDim (mutual information), seed, columns,
+  .json  {"kind": "hhat-draw", scenario, truth, truthSource, n, dim, xDim (mutual information; and yDim, conditional), seed, columns,
          "samples": [{"replicate": R, "data": [[...], ...], "q": [[...], ...] (divergence)}]}
 A divergence D(P || Q) writes its sample from Q beside the one from P: FILE-q.npy (or -q.csv); JSON holds both.
 With --split, replicate R goes to FILE-R.npy (and FILE-R-q.npy).

@@ -153,6 +153,7 @@ type EstimateOptions = {
   estimatorCommand?: string[];
   xColumns?: string;
   yColumns?: string;
+  zColumns?: string;
   against?: string;
   maxSeconds?: string;
   seed?: string;
@@ -181,6 +182,7 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     )
     .option('--x-columns <list>', 'mutual information between these columns (X) ...')
     .option('--y-columns <list>', '... and these (Y)')
+    .option('--z-columns <list>', 'with --x-columns and --y-columns: the conditional mutual information I(X; Y | Z) given these columns (Z)')
     .option('--against <q-file>', 'estimate the divergence D(P‖Q) with P = <file>, Q = <q-file>: the sample from Q, read like <file>')
     .option(
       '--json',
@@ -200,9 +202,16 @@ function quantityMismatch(id: string, estimates: Quantity, asked: Quantity): str
   const how: Record<Quantity, string> = {
     entropy: 'leave out --x-columns/--y-columns and --against',
     'mutual-information': `give --x-columns and --y-columns to choose X and Y among the columns (e.g. --x-columns 1 --y-columns 2)`,
+    'conditional-mutual-information': 'give --x-columns, --y-columns and --z-columns to choose X, Y and Z (e.g. --x-columns 1 --y-columns 2 --z-columns 3)',
     divergence: 'give --against Q-FILE, the sample from Q',
   };
-  const given = asked === 'entropy' ? '' : ` (given by ${asked === 'divergence' ? '--against' : '--x-columns/--y-columns'})`;
+  const options: Record<Quantity, string> = {
+    entropy: '',
+    'mutual-information': '--x-columns/--y-columns',
+    'conditional-mutual-information': '--x-columns/--y-columns/--z-columns',
+    divergence: '--against',
+  };
+  const given = asked === 'entropy' ? '' : ` (given by ${options[asked]})`;
   return `${id} estimates ${estimates}, but this call asks for ${asked}${given}; for ${estimates}, ${how[estimates]}`;
 }
 
@@ -321,21 +330,46 @@ function readEstimateSample(
   load: (columns: string | undefined, path?: string) => LoadedSample,
 ): { loaded: LoadedSample; sample: Sample; quantity: Quantity } {
   let quantity: Quantity = 'entropy';
-  const mutualInformation = options.xColumns !== undefined || options.yColumns !== undefined;
+  const conditional = options.zColumns !== undefined;
+  const mutualInformation = options.xColumns !== undefined || options.yColumns !== undefined || conditional;
   if (mutualInformation) {
-    if (options.xColumns === undefined || options.yColumns === undefined) throw new UsageError('mutual information needs both --x-columns and --y-columns');
-    if (options.columns !== undefined) throw new UsageError('--columns cannot be combined with --x-columns/--y-columns');
-    if (options.against !== undefined) throw new UsageError('--against (a divergence) cannot be combined with --x-columns/--y-columns (mutual information)');
-    const shared = sharedSelection(options.xColumns, options.yColumns);
-    if (shared !== undefined) throw new UsageError(`--x-columns and --y-columns both name column ${showText(shared)}; X and Y must be different columns`);
+    const what = conditional
+      ? 'conditional mutual information needs --x-columns, --y-columns and --z-columns'
+      : 'mutual information needs both --x-columns and --y-columns';
+    if (options.xColumns === undefined || options.yColumns === undefined) throw new UsageError(what);
+    const flags = conditional ? '--x-columns/--y-columns/--z-columns' : '--x-columns/--y-columns';
+    if (options.columns !== undefined) throw new UsageError(`--columns cannot be combined with ${flags}`);
+    if (options.against !== undefined)
+      throw new UsageError(`--against (a divergence) cannot be combined with ${flags} (${conditional ? 'conditional ' : ''}mutual information)`);
+    const parts: [string, string][] = [
+      ['--x-columns', options.xColumns],
+      ['--y-columns', options.yColumns],
+      ...(conditional ? [['--z-columns', options.zColumns!] as [string, string]] : []),
+    ];
+    for (let a = 0; a < parts.length; a++) {
+      for (let b = a + 1; b < parts.length; b++) {
+        const shared = sharedSelection(parts[a][1], parts[b][1]);
+        if (shared !== undefined) {
+          throw new UsageError(
+            `${parts[a][0]} and ${parts[b][0]} both name column ${showText(shared)}; ${conditional ? 'X, Y and Z' : 'X and Y'} must be different columns`,
+          );
+        }
+      }
+    }
   }
-  // For mutual information only X's and Y's columns are read, in that order (other columns may hold text).
-  let loaded = load(mutualInformation ? `${options.xColumns},${options.yColumns}` : options.columns);
+  // For (conditional) mutual information only X's, Y's (and Z's) columns are read, in that order (other
+  // columns may hold text).
+  const informationColumns = conditional ? `${options.xColumns},${options.yColumns},${options.zColumns}` : `${options.xColumns},${options.yColumns}`;
+  let loaded = load(mutualInformation ? informationColumns : options.columns);
   let sample = loaded.sample;
   if (mutualInformation) {
-    sample = { ...sample, xDim: selectionWidth(options.xColumns!) };
+    sample = {
+      ...sample,
+      xDim: selectionWidth(options.xColumns!),
+      ...(conditional ? { yDim: selectionWidth(options.yColumns!) } : {}),
+    };
     loaded = { ...loaded, sample };
-    quantity = 'mutual-information';
+    quantity = conditional ? 'conditional-mutual-information' : 'mutual-information';
   } else if (options.against !== undefined) {
     if (options.against === STDIN_PATH && file === STDIN_PATH)
       throw new UsageError('FILE and --against cannot both be - (standard input holds one sample); name a file for one of them');
@@ -391,6 +425,7 @@ function printEstimateJson(
         dim: sample.dim,
         ...(quantity !== 'entropy' ? { quantity } : {}),
         ...(sample.xDim !== undefined ? { xDim: sample.xDim } : {}),
+        ...(sample.yDim !== undefined ? { yDim: sample.yDim } : {}),
         // Both samples named: a divergence is not symmetric, so which file was P matters.
         ...(sample.q ? { divergence: 'D(P‖Q)', pFile: file, qFile: options.against, qN: sample.q.n } : {}),
         base,

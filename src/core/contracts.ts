@@ -3,7 +3,7 @@
  * this file and the math helpers; the harness reaches them only through their registries.
  */
 
-export type Quantity = 'entropy' | 'mutual-information' | 'divergence';
+export type Quantity = 'entropy' | 'mutual-information' | 'conditional-mutual-information' | 'divergence';
 export type Support = 'bounded' | 'half' | 'unbounded';
 export type Tails = 'light' | 'exponential' | 'heavy';
 
@@ -12,8 +12,13 @@ export interface Sample {
   n: number;
   dim: number;
   data: Float64Array;
-  /** For mutual information: the first `xDim` columns are X, the rest are Y. */
+  /**
+   * For mutual information: the first `xDim` columns are X, the rest are Y. For conditional mutual information
+   * I(X; Y | Z): the first `xDim` columns are X, the next `yDim` are Y and the remaining dim − xDim − yDim are Z.
+   */
   xDim?: number;
+  /** For conditional mutual information only: the number of Y columns (after X's); Z takes the rest. */
+  yDim?: number;
   /** For a divergence D(P || Q): this sample is from P and `q` is the sample from Q (same dim, own size). */
   q?: Sample;
 }
@@ -102,9 +107,10 @@ export interface DefaultSets {
  *   rowOrder       the estimate does not depend on the order of the rows;
  *   scale          entropy: Ĥ(c·x) = Ĥ(x) + d·log|c|; mutual information and divergence: unchanged when every
  *                  coordinate (of both samples) is multiplied by one factor c;
- *   separateScale  mutual information: unchanged when X and Y are each multiplied by a factor of their own;
+ *   separateScale  mutual information: unchanged when X and Y (and Z, conditional MI) are each multiplied by a
+ *                  factor of their own;
  *   translation    unchanged by x → x + b (X and Y each shifted; P and Q shifted alike);
- *   symmetry       mutual information: Î(X; Y) = Î(Y; X);
+ *   symmetry       mutual information: Î(X; Y) = Î(Y; X); conditional: Î(X; Y | Z) = Î(Y; X | Z);
  *   affine         divergence: unchanged when P and Q go through one invertible affine map x → Ax + b.
  */
 export type InvarianceName = 'rowOrder' | 'scale' | 'separateScale' | 'translation' | 'symmetry' | 'affine';
@@ -230,6 +236,8 @@ export interface Scenario {
   params: Record<string, number>;
   /** For mutual information: the first `xDim` columns are X, the rest are Y (as on each drawn sample). */
   xDim?: number;
+  /** For conditional mutual information: X, then `yDim` columns of Y, then Z (as on each drawn sample). */
+  yDim?: number;
   /** Draws n independent points. Consumes `rng` only. */
   sample(rng: Rng, n: number): Sample;
   /** The true value in nats. */

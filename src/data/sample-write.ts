@@ -8,10 +8,14 @@
  */
 import { float64Bytes, npyFloat64Header } from './npy-write.js';
 
-/** Column names of a sample: x1..xd, or for mutual information X's x1..x_xDim then Y's y1..y_(d−xDim). */
-export function sampleColumnNames(dim: number, xDim?: number): string[] {
+/**
+ * Column names of a sample: x1..xd, or for mutual information X's x1..x_xDim then Y's y1..y_(d−xDim), or for
+ * conditional mutual information (yDim given) x1..x_xDim, y1..y_yDim, then Z's z1..z_(d−xDim−yDim).
+ */
+export function sampleColumnNames(dim: number, xDim?: number, yDim?: number): string[] {
   if (xDim === undefined) return Array.from({ length: dim }, (_, j) => `x${j + 1}`);
-  return Array.from({ length: dim }, (_, j) => (j < xDim ? `x${j + 1}` : `y${j - xDim + 1}`));
+  const yEnd = yDim === undefined ? dim : xDim + yDim;
+  return Array.from({ length: dim }, (_, j) => (j < xDim ? `x${j + 1}` : j < yEnd ? `y${j - xDim + 1}` : `z${j - yEnd + 1}`));
 }
 
 /**

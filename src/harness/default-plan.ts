@@ -29,6 +29,27 @@ export const DEFAULT_PLAN_SCENARIOS = [
  * tuning grids.
  */
 export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
+  if (quantity === 'conditional-mutual-information') {
+    // Every catalog scenario (Gaussian triples and their monotone transforms): the k-NN and Gaussian estimators
+    // are O(n log n) and O(n), so two sizes and 30 replicates take seconds; rescale and monotone maps of X and
+    // of Z must leave I(X; Y | Z) where it is.
+    return {
+      name: `default ${quantity}`,
+      quantity,
+      scenarios: catalog()
+        .filter((s) => s.quantity === quantity)
+        .map((s) => s.id),
+      estimators: defaultSet('bench', quantity),
+      sampleSizes: [100, 1000],
+      replicates: 30,
+      seed: DEFAULT_SEED,
+      robustness: {
+        sampleSize: 1000,
+        perturbations: ['rescale:c=1000', 'monotone:map=asinh,part=x', 'monotone:map=cubic,part=z', 'quantize:step=0.1'],
+        tuning: false,
+      },
+    };
+  }
   if (quantity !== 'entropy') {
     return {
       name: `default ${quantity}`,

@@ -310,20 +310,25 @@ function parseEntropyPerturbation(text: string, id: string, values: Record<strin
   return build(text, values);
 }
 
-/** Which columns a perturbation touches in a mutual-information sample. */
-export type Part = 'x' | 'y' | 'all';
+/** Which columns a perturbation touches in a mutual-information sample (z: conditional MI only). */
+export type Part = 'x' | 'y' | 'z' | 'all';
 
 /**
  * Perturbations of mutual-information and divergence samples. MI is unchanged by an invertible map of X alone
  * or of Y alone, and a divergence by one invertible map applied to both samples, so for these quantities the
  * true value does not move (shift 0) under rescale and monotone maps (and affine maps for divergences);
  * `part=x` / `part=y` picks the variable an MI perturbation touches (monotone maps default to X).
+ * Conditional MI I(X; Y | Z) is likewise unchanged by an invertible map of X, of Y or of Z alone (the chain
+ * rule writes it as I(X; (Y, Z)) − I(X; Z)), so rescale and coordinate-wise monotone maps keep it, on any part
+ * (`part=z` too); affine maps mix the variables and are skipped, quantize and contaminate leave it unknown.
  */
 export function parsePerturbation(text: string): Perturbation {
   const { id, values } = parseSpec(text, 'perturbation');
   const { part: partText, ...rest } = values;
-  if (partText !== undefined && !['x', 'y', 'all'].includes(partText)) {
-    throw new UsageError(`perturbation ${text}: part=${partText} is not allowed; part must be x, y or all (mutual-information samples only)`);
+  if (partText !== undefined && !['x', 'y', 'z', 'all'].includes(partText)) {
+    throw new UsageError(
+      `perturbation ${text}: part=${partText} is not allowed; part must be x, y or all (mutual-information samples), or z (conditional mutual information)`,
+    );
   }
   const inner = parseEntropyPerturbation(text, id, rest);
   const part = partText as Part | undefined;
@@ -338,6 +343,8 @@ export function parsePerturbation(text: string): Perturbation {
         return inner.prepare(scenario, options);
       }
       const invariant = inner.kind === 'rescale' || inner.kind === 'monotone' || inner.kind === 'affine';
+      if (scenario.quantity === 'conditional-mutual-information') return prepareConditional(scenario, spec, inner, part);
+      if (part === 'z') return { skip: `${spec}: part=z applies to conditional mutual-information samples` };
       if (scenario.quantity === 'mutual-information') {
         if (inner.kind === 'affine') return { skip: `${spec}: an affine map mixes X and Y, and MI is invariant only under maps of each variable` };
         const { xDim } = scenario;
@@ -369,12 +376,33 @@ export function parsePerturbation(text: string): Perturbation {
   };
 }
 
+/** A perturbation of a conditional-MI sample (X, then yDim columns of Y, then Z): see parsePerturbation. */
+function prepareConditional(scenario: Scenario, spec: string, inner: Perturbation, part: Part | undefined): PreparedPerturbation | { skip: string } {
+  if (inner.kind === 'affine') return { skip: `${spec}: an affine map mixes X, Y and Z, and conditional MI is invariant only under maps of each variable` };
+  const { xDim, yDim } = scenario;
+  if (xDim === undefined || yDim === undefined) return { skip: `${spec}: the scenario does not say which columns are X, Y and Z` };
+  const chosen: Part = part ?? (inner.kind === 'monotone' ? 'x' : 'all');
+  const partOf = (j: number): Part => (j < xDim ? 'x' : j < xDim + yDim ? 'y' : 'z');
+  const columns = Array.from({ length: scenario.dim }, (_, j) => j).filter((j) => chosen === 'all' || partOf(j) === chosen);
+  const prepared = inner.prepare(subScenario(scenario, columns), { shiftNeeded: false });
+  if ('skip' in prepared) return prepared;
+  const invariant = inner.kind === 'rescale' || inner.kind === 'monotone';
+  return {
+    shift: invariant ? 0 : null,
+    shiftSource: invariant
+      ? `exact: I(X; Y | Z) = I(X; (Y, Z)) − I(X; Z) is invariant under invertible maps of ${chosen === 'all' ? 'each variable' : chosen.toUpperCase()}`
+      : prepared.shiftSource,
+    apply: (sample, replicate, seed) => applyToColumns(prepared, sample, columns, replicate, seed),
+  };
+}
+
 function subScenario(scenario: Scenario, columns: number[]): Scenario {
   return {
     ...scenario,
     quantity: 'entropy',
     dim: columns.length,
     xDim: undefined,
+    yDim: undefined,
     marginals: scenario.marginals && columns.map((j) => scenario.marginals![j]),
     moments: scenario.moments && {
       mean: columns.map((j) => scenario.moments!.mean[j]),

@@ -106,7 +106,9 @@ function prepareRequest(sample: Sample, settings: Settings): EstimateRequest {
   writeNpy(request.npy, sample);
   if (sample.xDim !== undefined) {
     request.xDim = sample.xDim;
-    request.yDim = sample.dim - sample.xDim;
+    request.yDim = sample.yDim ?? sample.dim - sample.xDim;
+    // Conditional mutual information: Z takes the columns after X's and Y's.
+    if (sample.yDim !== undefined) request.zDim = sample.dim - sample.xDim - sample.yDim;
   }
   if (sample.q) {
     request.npyQ = join(folder, 'q.npy');

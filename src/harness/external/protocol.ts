@@ -5,6 +5,7 @@
  *   command → hhat   {"ready": true}                      (or {"error": "why it cannot start"})
  *   hhat → command   {"request": 1, "npy": "/tmp/hhat-command-x/p.npy", "n": 1000, "dim": 3, "settings": {"k": 3}}
  *                    mutual information adds "xDim" and "yDim" (X is the first xDim columns);
+ *                    conditional mutual information adds "xDim", "yDim" and "zDim" (X, then Y, then Z);
  *                    a divergence D(P‖Q) adds "npyQ" and "nQ" (P's sample is "npy")
  *   command → hhat   {"request": 1, "value": 1.2345}        (nats)  or  {"request": 1, "error": "too few points"}
  *
@@ -27,6 +28,7 @@ export interface EstimateRequest {
   settings: Record<string, SettingValue>;
   xDim?: number;
   yDim?: number;
+  zDim?: number;
   npyQ?: string;
   nQ?: number;
 }

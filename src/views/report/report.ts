@@ -130,6 +130,7 @@ function provenance(run: RunFile, data: ReportData): string {
 const QUANTITY_NAMES: Record<string, string> = {
   entropy: 'Differential-entropy',
   'mutual-information': 'Mutual-information',
+  'conditional-mutual-information': 'Conditional-mutual-information',
   divergence: 'Divergence',
 };
 
