@@ -15,6 +15,7 @@ import { dependenceSection, varianceRatio } from '../src/analysis/dependence.js'
 import type { Cell, ScenarioInfo } from '../src/analysis/cells.js';
 import { listFamilies, parseScenario } from '../scenarios/index.js';
 import { configureEstimator, registerEstimator, runEstimator } from '../estimators/index.js';
+import { thinRows } from '../src/core/sample.js';
 import { checkPlanShape, parsePhiList, resolvePlan } from '../src/harness/plan.js';
 import { runPlan } from '../src/harness/runner.js';
 import { assembleRun } from '../src/analysis/results.js';
@@ -167,6 +168,12 @@ describe('thin=t: every estimator, applied once by the registry', () => {
     const thinned = configureEstimator('test-records-rows', { thin: '3' });
     expect(runEstimator(thinned, { n: 10, dim: 2, data, q }).value).toBe(4);
     expect([...seen[seen.length - 1]]).toEqual([0, 1, 6, 7, 12, 13, 18, 19]);
+    expect(thinRows({ n: 10, dim: 2, data, xDim: 1, yDim: 1, q }, 3)).toMatchObject({
+      n: 4,
+      xDim: 1,
+      yDim: 1,
+      q: { n: 2, data: Float64Array.from([100, 101, 106, 107]) },
+    });
     expect(runEstimator(configureEstimator('test-records-rows'), { n: 10, dim: 2, data }).value).toBe(10);
     expect([...seen[seen.length - 1]]).toEqual([...data]);
   });

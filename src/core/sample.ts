@@ -76,7 +76,7 @@ export function seededRowSubsample(sample: Sample, rows: number, seed: string): 
 }
 
 /**
- * Rows 0, t, 2t, … of a sample (`xDim` kept; a divergence's Q sample thinned alike): the rows of a serial
+ * Rows 0, t, 2t, … of a sample (`xDim` and `yDim` kept; a divergence's Q sample thinned alike): the rows of a serial
  * sample that are t steps apart in time. The same sample comes back when t = 1.
  */
 export function thinRows(sample: Sample, t: number): Sample {
@@ -85,8 +85,8 @@ export function thinRows(sample: Sample, t: number): Sample {
   const n = Math.ceil(sample.n / t);
   const data = new Float64Array(n * dim);
   for (let i = 0; i < n; i++) for (let j = 0; j < dim; j++) data[i * dim + j] = sample.data[i * t * dim + j];
-  const thinned: Sample = { n, dim, data };
-  if (sample.xDim !== undefined) thinned.xDim = sample.xDim;
+  // Every field but the rows themselves carries over (xDim, yDim; q is thinned below).
+  const thinned: Sample = { ...sample, n, dim, data };
   if (sample.q) thinned.q = thinRows(sample.q, t);
   return thinned;
 }
