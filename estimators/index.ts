@@ -22,7 +22,8 @@ import type {
   SettingValue,
 } from '../src/core/contracts.js';
 import { EstimateError, UsageError } from '../src/core/errors.js';
-import { checkEstimator, formatSpec, parseSpec, validateSettings } from '../src/core/spec.js';
+import { checkEstimator, formatSpec, parseSpec, parseThin, THIN_SETTING, validateSettings } from '../src/core/spec.js';
+import { thinRows } from '../src/core/sample.js';
 
 /**
  * The estimator files of this folder, imported: `.ts` under a TypeScript loader (tests, tsx), `.js` when built
@@ -131,23 +132,24 @@ export function getEstimator(id: string): Estimator {
 export interface ConfiguredEstimator {
   estimator: Estimator;
   settings: Settings;
-  /** Canonical `id:key=value,...` with every setting spelled out. */
+  /** Canonical `id:key=value,...` with every setting spelled out (and thin=t last, only when t ≠ 1). */
   spec: string;
+  /** The harness's thinning: the estimator sees rows 0, t, 2t, … (src/core/spec.ts, THIN_SETTING). */
+  thin: number;
 }
 
 /** The one place settings are validated: every declared setting present and valid, defaults filled in. */
 export function configureEstimator(id: string, given: Record<string, SettingValue> = {}): ConfiguredEstimator {
   const estimator = getEstimator(id);
-  const settings = validateSettings(estimator.id, estimator.settings, given);
-  return {
-    estimator,
+  const { [THIN_SETTING]: thinGiven, ...declared } = given;
+  const thin = parseThin(estimator.id, thinGiven);
+  const settings = validateSettings(estimator.id, estimator.settings, declared);
+  const spec = formatSpec(
+    estimator.id,
     settings,
-    spec: formatSpec(
-      estimator.id,
-      settings,
-      estimator.settings.map((s) => s.name),
-    ),
-  };
+    estimator.settings.map((s) => s.name),
+  );
+  return { estimator, settings, spec: thin === 1 ? spec : `${spec}${spec === estimator.id ? ':' : ','}${THIN_SETTING}=${thin}`, thin };
 }
 
 /** Parses `id:key=value,...` as typed on the command line. */
@@ -195,11 +197,13 @@ function describeValue(value: unknown): string {
  */
 export function runEstimator(configured: ConfiguredEstimator, sample: Sample, options: { report?: boolean } = {}): { value: number; settings: Settings } {
   checkDimension(configured.estimator, sample.dim);
-  const value: unknown = configured.estimator.estimate(sample, configured.settings);
+  // Thinning is the harness's, so every estimator (built-in, module or command) has it without a line of its own.
+  const used = thinRows(sample, configured.thin ?? 1);
+  const value: unknown = configured.estimator.estimate(used, configured.settings);
   // A user's module is plain JavaScript: a string such as "1.5" must not pass for an estimate.
   if (typeof value !== 'number')
     throw new EstimateError('numeric', `${configured.estimator.id}: estimate must return a number (nats); it returned ${describeValue(value)}`);
-  return { value, settings: options.report ? resolveSettings(configured, sample) : configured.settings };
+  return { value, settings: options.report ? resolveSettings(configured, used) : configured.settings };
 }
 
 /** The estimator's id plus only the settings that differ from their defaults (the spec itself for an unknown id). */

@@ -2,11 +2,23 @@
  * Shared construction of scenarios: canonical ids, lazily computed Var(log f), the univariate builder, and the
  * common part of the mutual-information and divergence builders.
  */
-import type { ParamSpec, Quantity, Rng, Sample, Scenario, ScenarioFamily, Support, Tails, UnivariateDensity } from '../src/core/contracts.js';
+import type {
+  NormalRepresentation,
+  ParamSpec,
+  Quantity,
+  Rng,
+  Sample,
+  Scenario,
+  ScenarioFamily,
+  Support,
+  Tails,
+  UnivariateDensity,
+} from '../src/core/contracts.js';
 import normalRandom from '@stdlib/random-base-normal';
 import { integrate } from '../src/math/quadrature.js';
 import { lowerTimes, type CholeskyFactor } from '../src/math/linalg.js';
 import { formatSpec } from '../src/core/spec.js';
+import { normalCdf } from '../src/math/special.js';
 
 export function scenarioId(family: string, params: Record<string, number>, specs: readonly ParamSpec[]): string {
   return formatSpec(
@@ -155,4 +167,92 @@ export function gaussianRows(rng: Rng, n: number, chol: CholeskyFactor, eachRow?
     if (eachRow) eachRow(data, i * dim);
   }
   return data;
+}
+
+/**
+ * The largest double below 1 and the smallest above 0: Φ(z) rounds to 1 for z > 8.3 (probability 5e-17), where
+ * an unbounded quantile would be infinite; clamping moves that much probability to the largest finite value.
+ */
+const P_MAX = 1 - 2 ** -53;
+const P_MIN = Number.MIN_VALUE;
+
+/**
+ * The inverse of a univariate CDF: the closed form when the density declares one, otherwise the CDF inverted
+ * by Newton steps kept inside a bisection bracket (rtsafe; Press et al., Numerical Recipes, 3rd ed., §9.4),
+ * to a relative width of 4e-16 or an exact hit.
+ */
+export function quantileOf(density: UnivariateDensity): (p: number) => number {
+  if (density.quantile) return density.quantile.bind(density);
+  return (p) => invertCdf(density, p);
+}
+
+function invertCdf(density: UnivariateDensity, p: number): number {
+  const { cdf } = density;
+  let lo = density.lower;
+  let hi = density.upper;
+  // Unbounded ends: step out from a finite point by doubling until the bracket holds p.
+  if (!Number.isFinite(lo)) {
+    let step = 1;
+    lo = Number.isFinite(hi) ? hi - step : -step;
+    while (cdf(lo) > p && Number.isFinite(lo)) lo -= step *= 2;
+  }
+  if (!Number.isFinite(hi)) {
+    let step = 1;
+    hi = lo + step;
+    while (cdf(hi) < p && Number.isFinite(hi)) hi += step *= 2;
+  }
+  let x = 0.5 * (lo + hi);
+  for (let iteration = 0; iteration < 400; iteration++) {
+    const miss = cdf(x) - p;
+    if (miss === 0) return x;
+    if (miss < 0) lo = x;
+    else hi = x;
+    if (hi - lo <= 4e-16 * Math.max(Math.abs(lo), Math.abs(hi)) || hi - lo < Number.MIN_VALUE * 4) return x;
+    const f = Math.exp(density.logDensity(x));
+    const newton = f > 0 && Number.isFinite(f) ? x - miss / f : NaN;
+    // A Newton step that leaves the bracket (or a flat or infinite density) falls back to bisection.
+    x = newton > lo && newton < hi ? newton : 0.5 * (lo + hi);
+    if (x === lo || x === hi) return x;
+  }
+  return x;
+}
+
+/**
+ * How a scenario's rows come from independent standard normals: its own declaration, or for a one-dimensional
+ * entropy scenario the quantile of Φ(z) (probability integral transform: if Z ~ N(0,1), F⁻¹(Φ(Z)) has CDF F).
+ * Undefined when the law has neither (heavy-tailed mixtures of scales, divergence pairs, ...).
+ */
+export function normalRepresentation(scenario: Scenario): NormalRepresentation | undefined {
+  if (scenario.fromNormals) return scenario.fromNormals;
+  if (scenario.dim !== 1 || scenario.quantity !== 'entropy' || !scenario.univariate) return undefined;
+  const quantile = quantileOf(scenario.univariate);
+  return {
+    width: 1,
+    map(normals, n) {
+      const data = new Float64Array(n);
+      for (let i = 0; i < n; i++) data[i] = quantile(Math.min(P_MAX, Math.max(P_MIN, normalCdf(normals[i]))));
+      return { n, dim: 1, data };
+    },
+  };
+}
+
+/** Rows mean + L·z for rows z of independent standard normals: N(mean, LLᵀ) in law. */
+export function gaussianFromNormals(
+  chol: CholeskyFactor,
+  mean: readonly number[],
+  eachRow?: (data: Float64Array, offset: number) => void,
+): NormalRepresentation {
+  const dim = chol.dim;
+  return {
+    width: dim,
+    map(normals, n) {
+      const data = new Float64Array(n * dim);
+      for (let i = 0; i < n; i++) {
+        lowerTimes(chol.lower, dim, normals.subarray(i * dim, i * dim + dim), data, i * dim);
+        for (let j = 0; j < dim; j++) data[i * dim + j] += mean[j];
+        if (eachRow) eachRow(data, i * dim);
+      }
+      return { n, dim, data };
+    },
+  };
 }

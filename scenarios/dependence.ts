@@ -26,7 +26,7 @@ import { UsageError } from '../src/core/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
 import { digamma, logGamma } from '../src/math/special.js';
 import { formatNumber } from '../src/core/spec.js';
-import { gaussianRows, scenarioFromFacts, type ScenarioFacts } from './build.js';
+import { gaussianFromNormals, gaussianRows, scenarioFromFacts, type ScenarioFacts } from './build.js';
 import { univariateDensity } from './univariate.js';
 
 const CT = 'Cover & Thomas, Elements of Information Theory, 2nd ed. (2006)';
@@ -172,7 +172,7 @@ const miGaussian: ScenarioFamily = {
   params: groupSpecs,
   create: (p) => {
     const law = gaussianGroupLaw('mi-gaussian', p);
-    return mutualInformationScenario({
+    const scenario = mutualInformationScenario({
       family: 'mi-gaussian',
       specs: groupSpecs,
       params: p,
@@ -187,6 +187,12 @@ const miGaussian: ScenarioFamily = {
       marginals: law.covariance.map(() => univariateDensity('normal', { mu: 0, sigma: 1 })),
       moments: { mean: law.covariance.map(() => 0), covariance: law.covariance },
     });
+    // A map of independent normals, so autocorrelated[...] can make its rows a series (each row keeps the joint law and I).
+    scenario.fromNormals = gaussianFromNormals(
+      law.factors.joint,
+      law.covariance.map(() => 0),
+    );
+    return scenario;
   },
   examples: [
     { dimX: 1, dimY: 1, rho: 0.9, within: 0 },

@@ -6,6 +6,7 @@
  *   product[SPEC;SPEC;...]            independent coordinates, e.g. product[normal;exponential:rate=2]
  *   transformed[MAP;SPEC]             a monotone map of a 1-D base, e.g. transformed[sinh;normal]
  *   gaussian-covariance[ROW;ROW;...]  any covariance, e.g. gaussian-covariance[1,0.5;0.5,2]
+ *   autocorrelated[phi=φ;SPEC]        rows as a stationary AR(1) series with SPEC's law, e.g. autocorrelated[phi=0.9;gamma]
  *   cmi-gaussian-covariance[DX,DY;ROW;...]  conditional MI of a Gaussian (X, Y, Z) with any covariance
  */
 import type { Scenario, ScenarioFamily } from '../src/core/contracts.js';
@@ -17,6 +18,7 @@ import { univariateFamilies } from './univariate.js';
 import { LOOKALIKE_FAMILY, LOOKALIKE_SUMMARY, LOOKALIKE_USAGE, lookalikeScenario, parseLookalikeArgument } from './lookalike.js';
 import { dependenceFamilies } from './dependence.js';
 import { divergenceFamilies } from './divergence-pairs.js';
+import { AUTOCORRELATED_FAMILY, AUTOCORRELATED_SUMMARY, AUTOCORRELATED_USAGE, autocorrelatedScenario, parseAutocorrelatedArgument } from './autocorrelated.js';
 import {
   CMI_COVARIANCE_FAMILY,
   CMI_COVARIANCE_USAGE,
@@ -39,6 +41,7 @@ export const bracketFamilies = [
   },
   { id: 'gaussian-covariance', usage: 'gaussian-covariance[ROW;ROW;...], entries comma-separated', summary: 'Gaussian with any covariance' },
   { id: LOOKALIKE_FAMILY, usage: LOOKALIKE_USAGE, summary: LOOKALIKE_SUMMARY },
+  { id: AUTOCORRELATED_FAMILY, usage: AUTOCORRELATED_USAGE, summary: AUTOCORRELATED_SUMMARY },
   { id: CMI_COVARIANCE_FAMILY, usage: CMI_COVARIANCE_USAGE, summary: 'conditional MI I(X;Y|Z) of a Gaussian with any covariance' },
 ] as const;
 
@@ -105,6 +108,10 @@ function buildScenario(text: string): Scenario {
         return gaussianCovarianceScenario(parseCovarianceArgument(inner));
       case LOOKALIKE_FAMILY:
         return lookalikeScenario(parseLookalikeArgument(args));
+      case AUTOCORRELATED_FAMILY: {
+        const { phi, base } = parseAutocorrelatedArgument(args, text);
+        return autocorrelatedScenario(phi, parseScenario(base));
+      }
       case CMI_COVARIANCE_FAMILY:
         return conditionalCovarianceScenario(parseConditionalCovarianceArgument(args));
       default:

@@ -8,7 +8,7 @@ import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily, Tails, Univariat
 import { UsageError } from '../src/core/errors.js';
 import { normalCdf } from '../src/math/special.js';
 import { formatNumber, formatSpec, parseNumber, validateParams } from '../src/core/spec.js';
-import { entropyByQuadrature, expectation, formatError, logDensityVarianceByQuadrature } from './build.js';
+import { entropyByQuadrature, expectation, formatError, logDensityVarianceByQuadrature, normalRepresentation } from './build.js';
 
 /** The largest quadrature error estimate accepted for a numeric truth. */
 export const NUMERIC_TRUTH_BOUND = 1e-8;
@@ -341,7 +341,18 @@ export function transformedScenario(mapId: string, mapValues: Record<string, str
     });
     return varianceCache;
   };
+  const baseRepresentation = normalRepresentation(base);
   return {
+    ...(baseRepresentation && {
+      fromNormals: {
+        width: 1,
+        map: (normals: Float64Array, n: number) => {
+          const s = baseRepresentation.map(normals, n);
+          for (let i = 0; i < n; i++) s.data[i] = g.apply(s.data[i]);
+          return s;
+        },
+      },
+    }),
     id,
     family: 'transformed',
     quantity: 'entropy',

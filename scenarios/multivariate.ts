@@ -8,7 +8,7 @@ import { UsageError } from '../src/core/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { formatNumber } from '../src/core/spec.js';
-import { gaussianRows, scenarioId } from './build.js';
+import { gaussianFromNormals, gaussianRows, normalRepresentation, scenarioId } from './build.js';
 import { studentLogDensityVariance, univariateDensity } from './univariate.js';
 
 const LOG_2PI_E = Math.log(2 * Math.PI * Math.E);
@@ -89,6 +89,7 @@ export function gaussianScenario(
     support: 'unbounded',
     tails: 'light',
     sample: (rng, n) => gaussianDraws(rng, n, mean, chol),
+    fromNormals: gaussianFromNormals(chol, mean),
     logDensity: (x) => gaussianLogDensity(chol, mean, x),
     moments: { mean: [...mean], covariance: covariance.map((r) => [...r]) },
     marginals: mean.map((m, j) => univariateDensity('normal', { mu: m, sigma: Math.sqrt(covariance[j][j]) })),
@@ -315,6 +316,9 @@ const lognormalMv: ScenarioFamily = {
     let oneSigmaOne = 0;
     for (const row of covariance) for (const v of row) oneSigmaOne += v;
     const m = Math.exp(p.mu + (p.sigma * p.sigma) / 2);
+    const exponentiate = (data: Float64Array, offset: number) => {
+      for (let j = 0; j < d; j++) data[offset + j] = Math.exp(data[offset + j]);
+    };
     return {
       id: scenarioId('lognormal-mv', p, lognormalSpecs),
       family: 'lognormal-mv',
@@ -328,10 +332,8 @@ const lognormalMv: ScenarioFamily = {
       logDensityVarianceSource: 'exact: Var(Q/2 + 1ᵀX) = d/2 + 1ᵀΣ1, Q ~ χ²_d uncorrelated with 1ᵀX',
       support: 'half',
       tails: 'heavy',
-      sample: (rng, n) =>
-        gaussianDraws(rng, n, mean, chol, (data, offset) => {
-          for (let j = 0; j < d; j++) data[offset + j] = Math.exp(data[offset + j]);
-        }),
+      sample: (rng, n) => gaussianDraws(rng, n, mean, chol, exponentiate),
+      fromNormals: gaussianFromNormals(chol, mean, exponentiate),
       logDensity: (y) => {
         let sumLog = 0;
         const x = new Float64Array(d);
@@ -404,6 +406,29 @@ export function productScenario(components: Scenario[]): Scenario {
   };
   if (components.every((c) => c.logDensity)) {
     scenario.logDensity = (x) => components.reduce((s, c, k) => s + c.logDensity!(Array.from({ length: c.dim }, (_, j) => x[offsets[k] + j])), 0);
+  }
+  const representations = components.map(normalRepresentation);
+  if (representations.every((r) => r !== undefined)) {
+    const widthOffsets: number[] = [];
+    let width = 0;
+    for (const r of representations) {
+      widthOffsets.push(width);
+      width += r.width;
+    }
+    scenario.fromNormals = {
+      width,
+      map(normals, n) {
+        const data = new Float64Array(n * dim);
+        representations.forEach((r, k) => {
+          const own = new Float64Array(n * r.width);
+          for (let i = 0; i < n; i++) for (let j = 0; j < r.width; j++) own[i * r.width + j] = normals[i * width + widthOffsets[k] + j];
+          const part = r.map(own, n);
+          const c = components[k];
+          for (let i = 0; i < n; i++) for (let j = 0; j < c.dim; j++) data[i * dim + offsets[k] + j] = part.data[i * c.dim + j];
+        });
+        return { n, dim, data };
+      },
+    };
   }
   if (components.every((c) => c.marginals)) scenario.marginals = components.flatMap((c) => c.marginals!);
   if (components.every((c) => c.moments)) {

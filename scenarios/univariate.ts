@@ -30,12 +30,28 @@ import {
   uniformRandom,
   weibullRandom,
 } from '../src/math/random.js';
-import type { ParamSpec, ScenarioFamily, UnivariateDensity } from '../src/core/contracts.js';
+import type { ParamSpec, Scenario, ScenarioFamily, UnivariateDensity } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { EULER_GAMMA, digamma, erf, erfc, logBeta, logGamma, normalCdf, regularizedBeta, regularizedGammaP, trigamma } from '../src/math/special.js';
 import { family, univariateScenario } from './build.js';
 
 const LOG_2PI = Math.log(2 * Math.PI);
+
+/**
+ * Laws that are a monotone function of one standard normal map it directly (exact, and faster than the quantile
+ * of Φ(z), which loses the upper tail's digits to rounding of Φ near 1).
+ */
+function withNormalMap(scenario: Scenario, ofNormal: (z: number) => number): Scenario {
+  scenario.fromNormals = {
+    width: 1,
+    map(normals, n) {
+      const data = new Float64Array(n);
+      for (let i = 0; i < n; i++) data[i] = ofNormal(normals[i]);
+      return { n, dim: 1, data };
+    },
+  };
+  return scenario;
+}
 const CT = 'Cover & Thomas, Elements of Information Theory, 2nd ed. (2006), Table 17.1';
 const LR = 'Lazo & Rathie, IEEE Trans. Inf. Theory 24(1) (1978)';
 
@@ -74,6 +90,7 @@ const uniform = family(
         upper: p.b,
         logDensity: (x) => (x >= p.a && x <= p.b ? -Math.log(width) : -Infinity),
         cdf: (x) => Math.min(1, Math.max(0, (x - p.a) / width)),
+        quantile: (u) => p.a + u * width,
       },
       sampler: (rng) => uniformRandom.factory(p.a, p.b, { prng: rng }),
       logDensityVariance: { value: 0, source: 'exact: log f is constant on the support' },
@@ -90,29 +107,32 @@ const normal = family(
   'Gaussian; the maximum-entropy law for a given variance',
   normalSpecs,
   (p) =>
-    univariateScenario({
-      family: 'normal',
-      specs: normalSpecs,
-      params: p,
-      truth: 0.5 * Math.log(2 * Math.PI * Math.E * p.sigma * p.sigma),
-      truthSource: `½ log(2πeσ²); ${CT}`,
-      support: 'unbounded',
-      tails: 'light',
-      density: {
-        lower: -Infinity,
-        upper: Infinity,
-        logDensity: (x) => {
-          const z = (x - p.mu) / p.sigma;
-          return -0.5 * z * z - Math.log(p.sigma) - 0.5 * LOG_2PI;
+    withNormalMap(
+      univariateScenario({
+        family: 'normal',
+        specs: normalSpecs,
+        params: p,
+        truth: 0.5 * Math.log(2 * Math.PI * Math.E * p.sigma * p.sigma),
+        truthSource: `½ log(2πeσ²); ${CT}`,
+        support: 'unbounded',
+        tails: 'light',
+        density: {
+          lower: -Infinity,
+          upper: Infinity,
+          logDensity: (x) => {
+            const z = (x - p.mu) / p.sigma;
+            return -0.5 * z * z - Math.log(p.sigma) - 0.5 * LOG_2PI;
+          },
+          cdf: (x) => normalCdf((x - p.mu) / p.sigma),
+          breakpoints: [p.mu],
         },
-        cdf: (x) => normalCdf((x - p.mu) / p.sigma),
-        breakpoints: [p.mu],
-      },
-      sampler: (rng) => normalRandom.factory(p.mu, p.sigma, { prng: rng }),
-      logDensityVariance: { value: 0.5, source: 'exact: log f = c − Z²/2 with Z² ~ χ²₁, Var = 2/4' },
-      mean: p.mu,
-      variance: p.sigma * p.sigma,
-    }),
+        sampler: (rng) => normalRandom.factory(p.mu, p.sigma, { prng: rng }),
+        logDensityVariance: { value: 0.5, source: 'exact: log f = c − Z²/2 with Z² ~ χ²₁, Var = 2/4' },
+        mean: p.mu,
+        variance: p.sigma * p.sigma,
+      }),
+      (z) => p.mu + p.sigma * z,
+    ),
   [
     { mu: 0, sigma: 0.01 },
     { mu: 0, sigma: 100 },
@@ -134,6 +154,7 @@ const exponential = family('exponential', 'exponential; half-bounded, exponentia
       upper: Infinity,
       logDensity: (x) => (x >= 0 ? Math.log(p.rate) - p.rate * x : -Infinity),
       cdf: (x) => (x <= 0 ? 0 : -Math.expm1(-p.rate * x)),
+      quantile: (u) => -Math.log1p(-u) / p.rate,
       breakpoints: [1 / p.rate],
     },
     sampler: (rng) => exponentialRandom.factory(p.rate, { prng: rng }),
@@ -158,6 +179,7 @@ const laplace = family('laplace', 'Laplace (double exponential); a kink at the c
       upper: Infinity,
       logDensity: (x) => -Math.abs(x - p.mu) / p.b - Math.log(2 * p.b),
       cdf: (x) => (x < p.mu ? 0.5 * Math.exp((x - p.mu) / p.b) : 1 - 0.5 * Math.exp(-(x - p.mu) / p.b)),
+      quantile: (u) => (u < 0.5 ? p.mu + p.b * Math.log(2 * u) : p.mu - p.b * Math.log(2 * (1 - u))),
       breakpoints: [p.mu],
     },
     sampler: (rng) => laplaceRandom.factory(p.mu, p.b, { prng: rng }),
@@ -185,6 +207,7 @@ const logistic = family('logistic', 'logistic; Gaussian-like centre, exponential
         return -a - 2 * Math.log1p(Math.exp(-a)) - Math.log(p.s);
       },
       cdf: (x) => 1 / (1 + Math.exp(-(x - p.mu) / p.s)),
+      quantile: (u) => p.mu + p.s * (Math.log(u) - Math.log1p(-u)),
       breakpoints: [p.mu],
     },
     sampler: (rng) => logisticRandom.factory(p.mu, p.s, { prng: rng }),
@@ -211,6 +234,7 @@ const cauchy = family('cauchy', 'Cauchy; very heavy tails, no mean', cauchySpecs
         return -Math.log(Math.PI * p.gamma) - Math.log1p(z * z);
       },
       cdf: (x) => 0.5 + Math.atan((x - p.x0) / p.gamma) / Math.PI,
+      quantile: (u) => p.x0 + p.gamma * Math.tan(Math.PI * (u - 0.5)),
       breakpoints: [p.x0],
     },
     sampler: (rng) => cauchyRandom.factory(p.x0, p.gamma, { prng: rng }),
@@ -342,31 +366,34 @@ const beta = family(
 
 const lognormalSpecs = [location('mu', 'mean of log X'), positive('sigma', 'SD of log X', 1)];
 const lognormal = family('lognormal', 'lognormal; skewed with a long right tail', lognormalSpecs, (p) =>
-  univariateScenario({
-    family: 'lognormal',
-    specs: lognormalSpecs,
-    params: p,
-    truth: p.mu + 0.5 * Math.log(2 * Math.PI * Math.E * p.sigma * p.sigma),
-    truthSource: `μ + ½ log(2πeσ²); ${CT}`,
-    support: 'half',
-    tails: 'heavy',
-    density: {
-      lower: 0,
-      upper: Infinity,
-      logDensity: (x) => {
-        if (!(x > 0)) return -Infinity;
-        const z = (Math.log(x) - p.mu) / p.sigma;
-        return -Math.log(x) - Math.log(p.sigma) - 0.5 * LOG_2PI - 0.5 * z * z;
+  withNormalMap(
+    univariateScenario({
+      family: 'lognormal',
+      specs: lognormalSpecs,
+      params: p,
+      truth: p.mu + 0.5 * Math.log(2 * Math.PI * Math.E * p.sigma * p.sigma),
+      truthSource: `μ + ½ log(2πeσ²); ${CT}`,
+      support: 'half',
+      tails: 'heavy',
+      density: {
+        lower: 0,
+        upper: Infinity,
+        logDensity: (x) => {
+          if (!(x > 0)) return -Infinity;
+          const z = (Math.log(x) - p.mu) / p.sigma;
+          return -Math.log(x) - Math.log(p.sigma) - 0.5 * LOG_2PI - 0.5 * z * z;
+        },
+        cdf: (x) => (x <= 0 ? 0 : normalCdf((Math.log(x) - p.mu) / p.sigma)),
+        breakpoints: [Math.exp(p.mu - p.sigma * p.sigma), Math.exp(p.mu)],
       },
-      cdf: (x) => (x <= 0 ? 0 : normalCdf((Math.log(x) - p.mu) / p.sigma)),
-      breakpoints: [Math.exp(p.mu - p.sigma * p.sigma), Math.exp(p.mu)],
-    },
-    sampler: (rng) => lognormalRandom.factory(p.mu, p.sigma, { prng: rng }),
-    // log f(X) = −log X − Z²/2 + c with log X = μ + σZ: Var = σ² + ½ (Cov(Z, Z²) = 0).
-    logDensityVariance: { value: p.sigma * p.sigma + 0.5, source: 'exact: Var(σZ + Z²/2) = σ² + ½' },
-    mean: Math.exp(p.mu + (p.sigma * p.sigma) / 2),
-    variance: Math.expm1(p.sigma * p.sigma) * Math.exp(2 * p.mu + p.sigma * p.sigma),
-  }),
+      sampler: (rng) => lognormalRandom.factory(p.mu, p.sigma, { prng: rng }),
+      // log f(X) = −log X − Z²/2 + c with log X = μ + σZ: Var = σ² + ½ (Cov(Z, Z²) = 0).
+      logDensityVariance: { value: p.sigma * p.sigma + 0.5, source: 'exact: Var(σZ + Z²/2) = σ² + ½' },
+      mean: Math.exp(p.mu + (p.sigma * p.sigma) / 2),
+      variance: Math.expm1(p.sigma * p.sigma) * Math.exp(2 * p.mu + p.sigma * p.sigma),
+    }),
+    (z) => Math.exp(p.mu + p.sigma * z),
+  ),
 );
 
 const weibullSpecs = [positive('k', 'shape', 1.5), positive('lambda', 'scale', 1)];
@@ -392,6 +419,7 @@ const weibull = family(
           return Math.log(p.k / p.lambda) + (p.k - 1) * Math.log(z) - Math.pow(z, p.k);
         },
         cdf: (x) => (x <= 0 ? 0 : -Math.expm1(-Math.pow(x / p.lambda, p.k))),
+        quantile: (u) => p.lambda * Math.pow(-Math.log1p(-u), 1 / p.k),
         breakpoints: [p.lambda],
       },
       sampler: (rng) => weibullRandom.factory(p.k, p.lambda, { prng: rng }),
@@ -419,6 +447,7 @@ const gumbel = family('gumbel', 'Gumbel (largest extreme value); skewed right', 
         return -Math.log(p.beta) - z - Math.exp(-z);
       },
       cdf: (x) => Math.exp(-Math.exp(-(x - p.mu) / p.beta)),
+      quantile: (u) => p.mu - p.beta * Math.log(-Math.log(u)),
       breakpoints: [p.mu],
     },
     sampler: (rng) => gumbelRandom.factory(p.mu, p.beta, { prng: rng }),
@@ -446,6 +475,7 @@ const pareto = family(
         upper: Infinity,
         logDensity: (x) => (x >= p.xm ? Math.log(p.alpha) + p.alpha * Math.log(p.xm) - (p.alpha + 1) * Math.log(x) : -Infinity),
         cdf: (x) => (x <= p.xm ? 0 : -Math.expm1(p.alpha * Math.log(p.xm / x))),
+        quantile: (u) => p.xm * Math.exp(-Math.log1p(-u) / p.alpha),
         breakpoints: [2 * p.xm],
       },
       sampler: (rng) => paretoRandom.factory(p.alpha, p.xm, { prng: rng }),
@@ -484,6 +514,7 @@ const triangular = family('triangular', 'triangular on [a, b] with mode c; bound
         if (x <= p.c) return ((x - p.a) * (x - p.a)) / (width * (p.c - p.a));
         return 1 - ((p.b - x) * (p.b - x)) / (width * (p.b - p.c));
       },
+      quantile: (u) => (u * width < p.c - p.a ? p.a + Math.sqrt(u * width * (p.c - p.a)) : p.b - Math.sqrt((1 - u) * width * (p.b - p.c))),
       breakpoints: [p.c],
     },
     sampler: (rng) => triangularRandom.factory(p.a, p.b, p.c, { prng: rng }),
@@ -509,6 +540,7 @@ const rayleigh = family('rayleigh', 'Rayleigh: the length of a 2-D Gaussian vect
       upper: Infinity,
       logDensity: (x) => (x > 0 ? Math.log(x / (p.sigma * p.sigma)) - (x * x) / (2 * p.sigma * p.sigma) : -Infinity),
       cdf: (x) => (x <= 0 ? 0 : -Math.expm1(-(x * x) / (2 * p.sigma * p.sigma))),
+      quantile: (u) => p.sigma * Math.sqrt(-2 * Math.log1p(-u)),
       breakpoints: [p.sigma],
     },
     sampler: (rng) => rayleighRandom.factory(p.sigma, { prng: rng }),
@@ -694,6 +726,7 @@ const arcsine = family('arcsine', 'arcsine on [a, b]; poles at both ends', arcsi
       logDensity: (x) => (x > p.a && x < p.b ? -Math.log(Math.PI) - 0.5 * Math.log((x - p.a) * (p.b - x)) : -Infinity),
       logDensityNearUpper: (u) => (u > 0 && u < width ? -Math.log(Math.PI) - 0.5 * Math.log((width - u) * u) : -Infinity),
       cdf: (x) => (x <= p.a ? 0 : x >= p.b ? 1 : (2 / Math.PI) * Math.asin(Math.sqrt((x - p.a) / width))),
+      quantile: (u) => p.a + width * Math.sin((Math.PI / 2) * u) ** 2,
       breakpoints: [(p.a + p.b) / 2],
     },
     sampler: (rng) => arcsineRandom.factory(p.a, p.b, { prng: rng }),
@@ -748,6 +781,7 @@ const frechet = family('frechet', 'Fréchet (type II extreme value); power-law r
         return Math.log(p.alpha / p.s) - (1 + p.alpha) * Math.log(z) - Math.pow(z, -p.alpha);
       },
       cdf: (x) => (x <= p.m ? 0 : Math.exp(-Math.pow((x - p.m) / p.s, -p.alpha))),
+      quantile: (u) => p.m + p.s * Math.pow(-Math.log(u), -1 / p.alpha),
       breakpoints: [p.m + p.s],
     },
     sampler: (rng) => frechetRandom.factory(p.alpha, p.s, p.m, { prng: rng }),
@@ -794,6 +828,7 @@ const kumaraswamy = family('kumaraswamy', 'Kumaraswamy on [0, 1]; a beta-like la
       logDensityNearUpper: (u) =>
         u > 0 && u < 1 ? Math.log(p.a * p.b) + (p.a - 1) * Math.log1p(-u) + (p.b - 1) * Math.log(-Math.expm1(p.a * Math.log1p(-u))) : -Infinity,
       cdf: (x) => (x <= 0 ? 0 : x >= 1 ? 1 : -Math.expm1(p.b * Math.log1p(-Math.pow(x, p.a)))),
+      quantile: (u) => Math.pow(-Math.expm1(Math.log1p(-u) / p.b), 1 / p.a),
       breakpoints: [0.5],
     },
     sampler: (rng) => kumaraswamyRandom.factory(p.a, p.b, { prng: rng }),

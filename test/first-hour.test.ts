@@ -220,7 +220,7 @@ describe('item 5: messages say what to do', () => {
     };
     const unknown = plan('unknown.json', '{"scenarios": ["normal"], "estimators": ["kernel"], "sizes": [100]}');
     expect((await run(['bench', '--plan', unknown])).err).toBe(
-      `hhat: ${unknown}: sizes: unknown key, did you mean sampleSizes? (allowed: name, quantity, scenarios, estimators, sampleSizes, replicates, seed, robustness, modules, commands, verdicts, limits)\n`,
+      `hhat: ${unknown}: sizes: unknown key, did you mean sampleSizes? (allowed: name, quantity, scenarios, estimators, sampleSizes, phi, replicates, seed, robustness, modules, commands, verdicts, limits)\n`,
     );
     const broken = plan('broken.json', '{\n  "scenarios": ["normal"],\n  "estimators": ["kernel"]\n  "sampleSizes": [100]\n}\n');
     expect(await run(['bench', '--plan', broken])).toEqual({

@@ -18,6 +18,7 @@ import { buildContext } from '../harness/context.js';
 import runSchema from '../schemas/run.schema.json' with { type: 'json' };
 import { robustnessSection, type RobustnessSection } from './robustness.js';
 import type { Cell, CellFailure, ScenarioInfo } from './cells.js';
+import { dependenceSection, type DependenceSection } from './dependence.js';
 
 export const SCHEMA_VERSION = 2;
 
@@ -64,6 +65,8 @@ export interface RunFile {
   rankings: Ranking[];
   overall: OverallRank[];
   robustness: RobustnessSection | null;
+  /** Variance inflation under autocorrelation and thinning comparisons (src/analysis/dependence.ts); absent when the plan has neither. */
+  dependence?: DependenceSection;
 }
 
 function scenarioInfo(s: Scenario): ScenarioInfo {
@@ -186,7 +189,12 @@ export function finishRun(
     rankings,
     overall: overallRanks(rankings, (id) => groupName(truth.get(id)!)),
     robustness: base.complete && base.plan.robustness ? robustnessSection(base.plan, base.cells, truth) : null,
+    ...withDependence(base.complete ? dependenceSection(base.cells, base.scenarios) : null),
   };
+}
+
+function withDependence(section: DependenceSection | null): { dependence?: DependenceSection } {
+  return section ? { dependence: section } : {};
 }
 
 function rates(cells: Cell[]): Rate[] {

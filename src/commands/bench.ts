@@ -20,6 +20,7 @@ import {
   parseIntegerOption,
   parseLevel,
   parseSampleSizes,
+  parsePhiList,
   readPlanFile,
   resolvePlan,
   type Plan,
@@ -31,7 +32,7 @@ import { acquireLock, ensureFolder, removeLeftoverTemporaries } from '../core/fi
 import { checkSampleMemory } from '../core/memory.js';
 import { checkpointStarted, defaultWorkers, runPlan, type RunOptions, type RunOutcome, type Shard } from '../harness/runner.js';
 import { parseShard } from '../harness/shard.js';
-import { detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../views/tables.js';
+import { dependenceTables, detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../views/tables.js';
 import { estimatorLabel } from '../../estimators/index.js';
 import { rankLegend } from '../views/verdict-text.js';
 import { mergeShards } from '../analysis/merge.js';
@@ -44,6 +45,7 @@ interface BenchOptions {
   scenario?: string[];
   estimator?: string[];
   n?: string;
+  phi?: string;
   replicates?: string;
   seed?: string;
   workers?: string;
@@ -144,6 +146,7 @@ export function planInputFromOptions(options: BenchOptions): PlanInput {
   // New sample sizes: let the robustness size be chosen among them again.
   if (options.n !== undefined && input.robustness) input.robustness = { ...input.robustness, sampleSize: undefined };
   if (options.n !== undefined) input.sampleSizes = parseSampleSizes(options.n);
+  if (options.phi !== undefined) input.phi = parsePhiList(options.phi);
   if (options.replicates !== undefined) input.replicates = parseIntegerOption('--replicates', options.replicates, 2, MAX_REPLICATES);
   if (options.seed !== undefined) input.seed = parseIntegerOption('--seed', options.seed, 0);
   if (options.level !== undefined) input.verdicts = { ...input.verdicts, level: parseLevel(options.level) };
@@ -191,6 +194,8 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
   if (overall) print(overall);
   const robustness = robustnessTable(run);
   if (robustness) print(robustness);
+  const dependence = dependenceTables(run, base);
+  if (dependence) print(dependence);
   if (detail) print(detailTable(run, base));
   if (run.skipped.length) {
     print(`Skipped ${run.skipped.length} estimator–scenario pair${run.skipped.length === 1 ? '' : 's'}:`);
@@ -225,6 +230,7 @@ function declareBenchOptions(command: Command): Command {
     .option('--scenario <spec>', 'a scenario to include (repeatable; see `hhat scenarios`)', collect)
     .option('--estimator <spec>', 'an estimator with settings, ID[:key=value,...] (repeatable; see `hhat estimators`)', collect)
     .option('--n <sizes>', 'sample sizes, comma-separated (e.g. 100,1000,10000)')
+    .option('--phi <list>', 'also run each scenario with autocorrelated rows, one AR(1) coefficient each, comma-separated (e.g. 0,0.5,0.9; 0 = as drawn)')
     .option('--replicates <r>', 'independent draws per cell')
     .option('--seed <s>', "base seed; a replicate's sample depends only on it, the scenario, n and the replicate index")
     .option('--workers <w>', `worker threads (default: ${defaultWorkers()}, the number of cores)`)

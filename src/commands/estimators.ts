@@ -47,5 +47,6 @@ export function registerEstimatorsCommand(program: Command, print: (text: string
       ]);
       print(renderTable(['estimator', 'family', 'd', 'settings (default: allowed)', 'reference'], rows, { wrap: [0, 0, 5, 52, 46] }));
       print('Use an estimator with settings as ID:key=value,... e.g. kozachenko-leonenko:k=5,norm=max');
+      print('Every estimator also takes thin=t (an integer ≥ 1, default 1): it sees rows 0, t, 2t, … only, e.g. kozachenko-leonenko:thin=10');
     });
 }

@@ -1,6 +1,6 @@
 import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
-import type { Scenario } from '../core/contracts.js';
+import type { Scenario, SerialDependence } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
 import { parseIntegerOption } from '../core/options.js';
 import { countOf, formatValue, fullIds, renderTable, shorten, toBase, type Base } from '../core/format.js';
@@ -20,6 +20,8 @@ export interface ScenarioRecord {
   tails: string;
   logDensityVariance: number | null;
   logDensityVarianceSource: string | null;
+  /** Only on autocorrelated[...] scenarios: the serial dependence of the rows. */
+  dependence?: SerialDependence;
 }
 
 export function scenarioRecord(s: Scenario, base: Base): ScenarioRecord {
@@ -39,6 +41,7 @@ export function scenarioRecord(s: Scenario, base: Base): ScenarioRecord {
     // Var(log f) scales with the base squared.
     logDensityVariance: variance === undefined ? null : base === 'bits' ? variance / (Math.LN2 * Math.LN2) : variance,
     logDensityVarianceSource: s.logDensityVarianceSource ?? null,
+    ...(s.dependence && { dependence: s.dependence }),
   };
 }
 
@@ -67,6 +70,9 @@ Spec syntax:
   product[SPEC;SPEC;...]            independent coordinates, e.g. "product[normal;exponential:rate=2]"
   transformed[MAP;SPEC]             monotone map of a 1-D scenario, e.g. "transformed[sinh;normal]"
   gaussian-covariance[ROW;ROW;...]  any covariance, e.g. "gaussian-covariance[1,0.5;0.5,2]"
+  autocorrelated[phi=φ;SPEC]        rows as a stationary Gaussian AR(1) series (−1 < φ < 1) mapped to SPEC's
+                                    law: same marginals and truth, rows in time order, e.g.
+                                    "autocorrelated[phi=0.9;gamma:shape=2]"
   gaussian-mixture-mv[W:MEAN:COV;...] a d-dimensional Gaussian mixture (what hhat advise fits), e.g.
                                     "gaussian-mixture-mv[0.4:0,0:1,0.5,0.5,1;0.6:3,3:1,0,0,2]"
 Quote specs with brackets or semicolons in the shell.`,
@@ -104,6 +110,12 @@ Quote specs with brackets or semicolons in the shell.`,
         }),
       );
       for (const note of ids.notes) print(note);
+      for (const r of records) {
+        if (r.dependence)
+          print(
+            `${r.id}: rows are serially dependent: lag-1 autocorrelation φ = ${r.dependence.phi}, integrated autocorrelation time τ = ${formatValue(r.dependence.integratedAutocorrelationTime, 4)}, effective sample size n/τ (of the latent normal scores)`,
+          );
+      }
       print(`${countOf(records.length, 'scenario')}. Details of one: hhat scenarios --json SPEC`);
     });
 }

@@ -213,6 +213,11 @@ export interface UnivariateDensity {
   upper: number;
   logDensity(x: number): number;
   cdf(x: number): number;
+  /**
+   * The inverse CDF in closed form, where one exists (absent: scenarios/build.ts, quantileOf, inverts `cdf`
+   * numerically). autocorrelated[...] maps normal scores through it.
+   */
+  quantile?(p: number): number;
   /** Points where the density has kinks or peaks, to help quadrature. */
   breakpoints?: readonly number[];
   /**
@@ -253,6 +258,33 @@ export interface Scenario {
   logDensity?(x: ArrayLike<number>): number;
   /** Exact mean and covariance when finite, for sampler checks. */
   moments?: { mean: number[]; covariance: number[][] };
+  /**
+   * The law as a map of independent standard normals, `width` of them per row: `map` turns n rows of them
+   * (row-major, n × width) into n rows each of the scenario's law. autocorrelated[...] feeds it AR(1) series in
+   * place of independent normals. One-dimensional scenarios get it from their quantile (scenarios/build.ts,
+   * normalRepresentation); Gaussian laws, their monotone maps and products of such declare it.
+   */
+  fromNormals?: NormalRepresentation;
+  /** Serial dependence between rows (autocorrelated[...]); absent: rows are independent. */
+  dependence?: SerialDependence;
+}
+
+export interface NormalRepresentation {
+  width: number;
+  map(normals: Float64Array, n: number): Sample;
+}
+
+/** What autocorrelated[...] states about its rows, for `hhat scenarios --json` and reports. */
+export interface SerialDependence {
+  kind: 'gaussian-ar1';
+  phi: number;
+  /** Lag-1 autocorrelation of the latent normal scores (= φ). */
+  lag1Autocorrelation: number;
+  /** τ = 1 + 2 Σ_k φ^k = (1 + φ)/(1 − φ), of the latent normal scores. */
+  integratedAutocorrelationTime: number;
+  /** 1/τ: the effective sample size of the latent series is n/τ. */
+  effectiveSampleSizeFraction: number;
+  note: string;
 }
 
 export interface ScenarioFamily {

@@ -23,6 +23,17 @@ export function parseSampleSizes(text: string): number[] {
   return sizes;
 }
 
+/** --phi 0,0.5,0.9: AR(1) coefficients, each with −1 < φ < 1. */
+export function parsePhiList(text: string): number[] {
+  return text.split(',').map((part) => {
+    const value = Number(part.trim());
+    if (part.trim() === '' || !Number.isFinite(value) || !(value > -1 && value < 1)) {
+      throw new UsageError(`--phi: "${part.trim()}" is not allowed; each φ must be a number with −1 < φ < 1, comma-separated (e.g. 0,0.5,0.9)`);
+    }
+    return value;
+  });
+}
+
 export function parseIntegerOption(flag: string, text: string, min: number, max = Number.MAX_SAFE_INTEGER): number {
   const value = Number(text);
   if (text.trim() === '' || !Number.isInteger(value) || value < min || value > max) {

@@ -74,3 +74,19 @@ export function seededRowSubsample(sample: Sample, rows: number, seed: string): 
   const qRows = Math.min(sample.q.n, Math.max(1, Math.round((sample.q.n * rows) / sample.n)));
   return { ...cut, q: uniformRowSubsample(sample.q, qRows, rngFromSeed(`hhat-row-subsample\n${seed}\nq`)) };
 }
+
+/**
+ * Rows 0, t, 2t, … of a sample (`xDim` and `yDim` kept; a divergence's Q sample thinned alike): the rows of a serial
+ * sample that are t steps apart in time. The same sample comes back when t = 1.
+ */
+export function thinRows(sample: Sample, t: number): Sample {
+  if (t === 1) return sample;
+  const { dim } = sample;
+  const n = Math.ceil(sample.n / t);
+  const data = new Float64Array(n * dim);
+  for (let i = 0; i < n; i++) for (let j = 0; j < dim; j++) data[i * dim + j] = sample.data[i * t * dim + j];
+  // Every field but the rows themselves carries over (xDim, yDim; q is thinned below).
+  const thinned: Sample = { ...sample, n, dim, data };
+  if (sample.q) thinned.q = thinRows(sample.q, t);
+  return thinned;
+}

@@ -116,6 +116,23 @@ export function describeSetting(spec: SettingSpec): string {
 }
 
 /** Validates estimator settings given as text or values; fills defaults (keywords are resolved later, per sample). */
+/**
+ * The one setting every estimator has without declaring it: thin=t runs the estimator on rows 0, t, 2t, … (a
+ * serially dependent sample thinned to fewer, less dependent rows). The registry applies it before `estimate`
+ * (estimators/index.ts, runEstimator), and a spec names it only when t ≠ 1, so cell names without it are unchanged.
+ */
+export const THIN_SETTING = 'thin';
+
+/** Reads thin=t: an integer ≥ 1 (absent: 1). */
+export function parseThin(owner: string, raw: SettingValue | undefined): number {
+  if (raw === undefined) return 1;
+  const value = typeof raw === 'number' ? raw : parseNumber(raw);
+  if (value === undefined || !Number.isInteger(value) || value < 1) {
+    throw new UsageError(`${owner}: ${THIN_SETTING}=${raw} is not allowed; ${THIN_SETTING} must be an integer ≥ 1 (use every t-th row; 1 = all rows)`);
+  }
+  return value;
+}
+
 export function validateSettings(owner: string, specs: readonly SettingSpec[], given: Record<string, SettingValue>): Settings {
   const known = new Map(specs.map((s) => [s.name, s]));
   for (const key of Object.keys(given)) {
@@ -347,6 +364,10 @@ export function checkEstimator(where: string, value: unknown): Estimator {
   e.settings.forEach((spec, i) => {
     const checked = checkSettingSpec(at, spec, i);
     if (seen.has(checked.name)) throw new UsageError(`${at}: settings[${i}]: the name "${checked.name}" is used twice`);
+    if (checked.name === THIN_SETTING)
+      throw new UsageError(
+        `${at}: settings[${i}]: "${THIN_SETTING}" is the harness's own setting of every estimator (use every t-th row); choose another name`,
+      );
     seen.add(checked.name);
   });
   checkDefaultSets(at, e.defaultFor, e as Estimator);

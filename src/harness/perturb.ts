@@ -260,7 +260,8 @@ function contaminatePerturbation(text: string, values: Record<string, string>): 
           const { n, dim, data } = sample;
           const count = Math.max(1, Math.round(fraction * n));
           const rng = rngFromSeed(hashSeed(spec, seed, scenario.id, n, replicate));
-          // The sample is i.i.d., so replacing its first points is replacing a random subset.
+          // With independent rows, replacing the first points is replacing a random subset; with autocorrelated rows
+          // (autocorrelated[...], rows in time order) it is a burst of outliers at the start of the series.
           for (let i = 0; i < count; i++) {
             for (let j = 0; j < dim; j++) {
               const distance = scales[j] * (25 + 25 * rng());

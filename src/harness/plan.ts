@@ -12,6 +12,7 @@ import { UsageError } from '../core/errors.js';
 import { locateJsonError } from '../data/json-syntax.js';
 import { readFailureReason } from '../core/files.js';
 import { DEFAULT_SEED } from '../core/rng.js';
+import { formatNumber } from '../core/spec.js';
 import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from '../../estimators/index.js';
 import { parseScenario } from '../../scenarios/index.js';
 import { parsePerturbation } from './perturb.js';
@@ -111,6 +112,8 @@ export interface PlanInput {
   scenarios: string[];
   estimators: (string | { id: string; settings?: Record<string, number | string> })[];
   sampleSizes?: number[];
+  /** AR(1) coefficients: every scenario also runs autocorrelated (phiScenarios); 0 keeps the scenario itself. */
+  phi?: number[];
   replicates?: number;
   seed?: number;
   robustness?: { sampleSize?: number; perturbations?: string[]; tuning?: boolean } | null;
@@ -220,7 +223,8 @@ export function readPlanFile(path: string): PlanInput {
 /** Normalises a plan input: canonical ids, settings validated with their paths, sizes sorted. */
 export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
   const quantity = input.quantity ?? 'entropy';
-  const scenarios = input.scenarios.map((spec, i) => {
+  const specs = input.phi ? phiScenarios(input.scenarios, input.phi, source) : input.scenarios;
+  const scenarios = specs.map((spec, i) => {
     try {
       return parseScenario(spec);
     } catch (error) {
@@ -288,6 +292,18 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
     scenarios: plan.scenarios.map((id) => parseScenario(id)),
     estimators: plan.estimators.map((spec) => parseEstimatorSpec(spec)),
   };
+}
+
+/**
+ * A plan's `phi` list: each scenario once per φ, as autocorrelated[phi=φ;SCENARIO] (scenarios/autocorrelated.ts),
+ * φ = 0 as the scenario itself, so one table shows the error against autocorrelation on paired base draws.
+ */
+export function phiScenarios(scenarios: readonly string[], phi: readonly number[], source = 'plan'): string[] {
+  phi.forEach((value, i) => {
+    if (!(typeof value === 'number' && value > -1 && value < 1))
+      throw new UsageError(`${source}: phi[${i}]: ${value} is not allowed; each φ must be a number with −1 < φ < 1`);
+  });
+  return scenarios.flatMap((spec) => phi.map((value) => (value === 0 ? spec : `autocorrelated[phi=${formatNumber(value)};${spec}]`)));
 }
 
 function dedupe(list: string[]): string[] {
@@ -372,4 +388,4 @@ export function drawsFingerprint(plan: Plan): string {
   return createHash('sha256').update(canonical).digest('hex');
 }
 
-export { collect, MAX_REPLICATES, parseFraction, parseIntegerOption, parseLevel, parseSampleSizes } from '../core/options.js';
+export { collect, MAX_REPLICATES, parseFraction, parseIntegerOption, parseLevel, parsePhiList, parseSampleSizes } from '../core/options.js';

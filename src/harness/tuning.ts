@@ -32,7 +32,12 @@ export function tuningGrid(base: ConfiguredEstimator, baseIndex: number, n: numb
   return axes.flatMap(({ setting, values }) =>
     values.map((value) => {
       try {
-        return { base: baseIndex, setting, value, configured: configureEstimator(estimator.id, { ...base.settings, [setting]: value }) };
+        return {
+          base: baseIndex,
+          setting,
+          value,
+          configured: configureEstimator(estimator.id, { ...base.settings, [setting]: value, ...(base.thin !== 1 && { thin: base.thin }) }),
+        };
       } catch (error) {
         // A grid is part of the estimator's declaration: a value it does not accept is the declaration's mistake.
         if (error instanceof UsageError)

@@ -191,3 +191,77 @@ export function robustnessTable(run: RunFile): string {
     'How to read it: README, "Reading the robustness table". Per-scenario values: the run file\'s robustness.measures and robustness.tuning.',
   ].join('\n');
 }
+
+/**
+ * Error against autocorrelation (a plan's `phi` list): per base scenario and n, one row per estimator, RMSE ± SE
+ * at each φ and the variance inflation Var(φ)/Var(0) with its 95% interval; then each thinned estimator against
+ * all rows on the same draws. Empty when the run has neither (src/analysis/dependence.ts).
+ */
+export function dependenceTables(run: RunFile, base: Base): string {
+  const section = run.dependence;
+  if (!section) return '';
+  const out: string[] = [];
+  const groups = new Map<string, typeof section.varianceInflation>();
+  for (const v of section.varianceInflation) {
+    const key = `${v.base}|${v.n}`;
+    if (!groups.has(key)) groups.set(key, []);
+    groups.get(key)!.push(v);
+  }
+  for (const [key, inflations] of groups) {
+    const [scenario, nText] = [key.slice(0, key.lastIndexOf('|')), key.slice(key.lastIndexOf('|') + 1)];
+    const n = Number(nText);
+    const phis = [...new Set(inflations.map((v) => v.phi))].sort((a, b) => a - b);
+    const estimators = [...new Set(inflations.map((v) => v.estimator))];
+    const rmse = (scenarioId: string, spec: string) => {
+      const cell = run.cells.find((c) => c.role === 'main' && c.scenario === scenarioId && c.estimator === spec && c.n === n);
+      return cell ? pm(cell.scores.rmse.value, cell.scores.rmse.se, base) : '–';
+    };
+    const rows = estimators.map((spec) => [
+      estimatorLabel(spec),
+      rmse(scenario, spec),
+      ...phis.flatMap((phi) => {
+        const v = inflations.find((x) => x.estimator === spec && x.phi === phi);
+        if (!v) return ['–', '–'];
+        return [rmse(v.scenario, spec), `${formatValue(v.ratio.value, 3)} [${formatValue(v.ratio.lower, 2)}, ${formatValue(v.ratio.upper, 2)}]`];
+      }),
+    ]);
+    out.push(`${scenario} at n = ${n}: RMSE against the lag-1 autocorrelation φ of the rows, and Var(φ)/Var(0) [95% interval]`);
+    out.push(
+      renderTable(
+        ['estimator', 'RMSE, φ=0', ...phis.flatMap((phi) => [`RMSE, φ=${phi}`, `Var ×, φ=${phi} (τ=${formatValue((1 + phi) / (1 - phi), 3)})`])],
+        rows,
+        { align: ['left', 'right', ...phis.flatMap(() => ['right' as const, 'right' as const])] },
+      ),
+    );
+  }
+  if (groups.size) {
+    out.push(
+      'Var ×: variance of the estimates at φ over that at φ = 0 (same base, estimator and n; independent draws), 95% interval from the delta method on log s² (kurtosis-aware). τ = (1+φ)/(1−φ) is what the variance of the mean of the latent normal scores grows by.',
+    );
+  }
+  if (section.thinning.length) {
+    const rows = section.thinning.map((t) => [
+      t.scenario,
+      t.n,
+      estimatorLabel(t.estimator),
+      pm(t.rmseThinned, NaN, base).replace(' ± ?', ''),
+      pm(t.rmseAllRows, NaN, base).replace(' ± ?', ''),
+      `${formatValue(toBase(t.mseDifference.value, base) * (base === 'bits' ? 1 / Math.LN2 : 1), 2)} ± ${formatValue(toBase(t.mseDifference.se, base) * (base === 'bits' ? 1 / Math.LN2 : 1), 2)}`,
+      t.verdict,
+    ]);
+    const ids = fullIds(
+      rows.map((r) => String(r[0])),
+      56,
+      (_, number) => `see [${number}] below`,
+    );
+    rows.forEach((r, i) => (r[0] = ids.cells[i]));
+    out.push(`Thinning: every t-th row against all rows, on the same draws (paired squared errors; 95%, Diebold–Mariano)`);
+    out.push(
+      renderTable(['scenario', 'n', 'estimator', 'RMSE thinned', 'RMSE all rows', 'MSE thinned − all ± SE', 'verdict'], rows, {
+        align: ['left', 'right', 'left', 'right', 'right', 'right', 'left'],
+      }),
+    );
+    out.push(...ids.notes);
+  }
+  return out.join('\n');
+}
