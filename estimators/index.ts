@@ -143,6 +143,12 @@ export function configureEstimator(id: string, given: Record<string, SettingValu
   const estimator = getEstimator(id);
   const { [THIN_SETTING]: thinGiven, ...declared } = given;
   const thin = parseThin(estimator.id, thinGiven);
+  if (thin !== 1 && estimator.quantity === 'transfer-entropy') {
+    // Every t-th row of a series is another process, whose transfer entropy (lag t) is not the scenario's truth.
+    throw new UsageError(
+      `${estimator.id}: ${THIN_SETTING}=${thin} is not allowed for transfer entropy: every ${thin}-th row of a series is another process with another transfer entropy; only ${THIN_SETTING}=1`,
+    );
+  }
   const settings = validateSettings(estimator.id, estimator.settings, declared);
   const spec = formatSpec(
     estimator.id,

@@ -34,6 +34,9 @@ export function lawFor(quantity: Quantity, dim: number): string {
       const dimY = Math.ceil((dim - dimX) / 2);
       return `cmi-gaussian:dimX=${dimX},dimY=${dimY},dimZ=${dim - dimX - dimY},rhoXY=0.7,rhoXZ=0.5,rhoYZ=0.5`;
     }
+    case 'transfer-entropy':
+      // Coupling X → Y only, both series with memory: TE(X → Y) = 0.0921 nats (k = l = 1), TE(Y → X) = 0.
+      return 'te-var1:a=0.5,b=0.5,cXY=0.4,cYX=0';
     case 'divergence':
       // Q wider than P, so every region holding P points holds Q points too (a plug-in stays finite).
       return `kl-gaussian:dim=${dim},shift=0,sigma=2,rho=0`;

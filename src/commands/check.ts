@@ -50,7 +50,7 @@ export function registerCheckCommand(program: Command, print: (text: string) => 
     )
     .option(
       '--quantity <q>',
-      'what the --estimator-command estimators measure: entropy, mutual-information, conditional-mutual-information or divergence',
+      'what the --estimator-command estimators measure: entropy, mutual-information, conditional-mutual-information, transfer-entropy or divergence',
       'entropy',
     )
     .option('--json', 'print the reports as JSON, with the suite sizes and tolerances')

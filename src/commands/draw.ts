@@ -109,7 +109,8 @@ interface FilePlan extends WrittenFile {
 function planFiles(draw: Draw, out: string, format: Format, replicates: number[], stacked: boolean, split: boolean, head: Record<string, unknown>): FilePlan[] {
   const { scenario, n } = draw;
   const divergence = scenario.quantity === 'divergence';
-  const information = scenario.quantity === 'mutual-information' || scenario.quantity === 'conditional-mutual-information';
+  const information =
+    scenario.quantity === 'mutual-information' || scenario.quantity === 'conditional-mutual-information' || scenario.quantity === 'transfer-entropy';
   const names = sampleColumnNames(scenario.dim, information ? scenario.xDim : undefined, scenario.yDim);
   const groups: { path: string; replicates: number[]; stacked: boolean }[] = split
     ? replicates.map((r) => ({ path: withSuffix(out, `-${r}`), replicates: [r], stacked: false }))
@@ -176,7 +177,7 @@ function drawRecord(draw: Draw): Record<string, unknown> {
     quantity: scenario.quantity,
     n: draw.n,
     dim: scenario.dim,
-    ...(scenario.quantity === 'mutual-information' ? { xDim: scenario.xDim } : {}),
+    ...(scenario.quantity === 'mutual-information' || scenario.quantity === 'transfer-entropy' ? { xDim: scenario.xDim } : {}),
     ...(scenario.quantity === 'conditional-mutual-information' ? { xDim: scenario.xDim, yDim: scenario.yDim } : {}),
     seed: draw.seed,
     truth: draw.truth,
@@ -194,6 +195,8 @@ function printSummary(draw: Draw, replicates: number[], files: WrittenFile[], fo
   const layout =
     scenario.quantity === 'conditional-mutual-information'
       ? `: X = ${group('x', scenario.xDim!)}, Y = ${group('y', scenario.yDim!)}, Z = ${group('z', scenario.dim - scenario.xDim! - scenario.yDim!)}`
+      : scenario.quantity === 'transfer-entropy'
+        ? ': a time series, rows in time order; source x1, target y1'
       : scenario.quantity === 'mutual-information'
         ? `: X = ${scenario.xDim === 1 ? 'x1' : `x1..x${scenario.xDim}`}, Y = ${scenario.dim - scenario.xDim! === 1 ? 'y1' : `y1..y${scenario.dim - scenario.xDim!}`}`
         : scenario.quantity === 'divergence'

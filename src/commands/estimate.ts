@@ -35,6 +35,8 @@ interface EstimateRecord {
   subsample?: { rows: number; of: number; seed: number; reason: string };
   /** Why the estimator was not run at all (predicted time over the limit even on a small subsample). */
   skipped?: string;
+  /** Transfer entropy: which direction, e.g. "TE(heater → plant)". */
+  direction?: string;
 }
 
 /** Rows every estimate in the default set may be cut to fit: below this a subsample says too little, so the estimator is skipped. */
@@ -154,6 +156,9 @@ type EstimateOptions = {
   xColumns?: string;
   yColumns?: string;
   zColumns?: string;
+  sourceColumn?: string;
+  targetColumn?: string;
+  history?: string;
   against?: string;
   maxSeconds?: string;
   seed?: string;
@@ -183,6 +188,9 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     .option('--x-columns <list>', 'mutual information between these columns (X) ...')
     .option('--y-columns <list>', '... and these (Y)')
     .option('--z-columns <list>', 'with --x-columns and --y-columns: the conditional mutual information I(X; Y | Z) given these columns (Z)')
+    .option('--source-column <col>', 'transfer entropy between two series, rows in time order: this column (position or name) ...')
+    .option('--target-column <col>', '... and this one; both directions are estimated, TE(source → target) and TE(target → source)')
+    .option('--history <k[,l]>', 'with --source-column/--target-column: k past values of the target (and l of the source; default l = k) (default 1)')
     .option('--against <q-file>', 'estimate the divergence D(P‖Q) with P = <file>, Q = <q-file>: the sample from Q, read like <file>')
     .option(
       '--json',
@@ -203,12 +211,14 @@ function quantityMismatch(id: string, estimates: Quantity, asked: Quantity): str
     entropy: 'leave out --x-columns/--y-columns and --against',
     'mutual-information': `give --x-columns and --y-columns to choose X and Y among the columns (e.g. --x-columns 1 --y-columns 2)`,
     'conditional-mutual-information': 'give --x-columns, --y-columns and --z-columns to choose X, Y and Z (e.g. --x-columns 1 --y-columns 2 --z-columns 3)',
+    'transfer-entropy': 'give --source-column and --target-column, two series in time order (e.g. --source-column 1 --target-column 2)',
     divergence: 'give --against Q-FILE, the sample from Q',
   };
   const options: Record<Quantity, string> = {
     entropy: '',
     'mutual-information': '--x-columns/--y-columns',
     'conditional-mutual-information': '--x-columns/--y-columns/--z-columns',
+    'transfer-entropy': '--source-column/--target-column',
     divergence: '--against',
   };
   const given = asked === 'entropy' ? '' : ` (given by ${options[asked]})`;
@@ -240,7 +250,8 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   const named = Boolean(options.estimator?.length);
   const listed = named ? options.estimator! : defaultEstimatorsFor(sample.dim, quantity);
   // A command the user declared runs, with its defaults, unless --estimator already names it.
-  const specs = [...listed, ...commands.map((c) => c.id).filter((id) => !listed.some((spec) => spec.split(':')[0] === id))];
+  const given = [...listed, ...commands.map((c) => c.id).filter((id) => !listed.some((spec) => spec.split(':')[0] === id))];
+  const specs = quantity === 'transfer-entropy' ? withHistory(given, options.history) : given;
   if (!specs.length) throw new UsageError(`no ${quantity} estimator supports d = ${sample.dim}; see hhat estimators`);
   const configured = specs.map(parseEstimatorSpec);
   for (const c of configured) {
@@ -250,14 +261,26 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
     checkDimension(c.estimator, sample.dim);
   }
   // The limit applies to the default set; to named estimators only when the user gives it.
-  const limitSeconds = givenLimit !== undefined ? givenLimit : named ? null : DEFAULT_MAX_SECONDS;
+  // A subsample of rows would break a time series apart, so transfer entropy always uses every row.
+  if (quantity === 'transfer-entropy' && givenLimit !== undefined && givenLimit !== null)
+    throw new UsageError('--max-seconds cannot be used with --source-column/--target-column: a row subsample would break the time order; give --max-seconds none or leave it out');
+  const limitSeconds = quantity === 'transfer-entropy' ? null : givenLimit !== undefined ? givenLimit : named ? null : DEFAULT_MAX_SECONDS;
   const plans = planRows(configured, sample, limitSeconds);
   let estimated: EstimateRecord[];
   try {
-    estimated = estimateAll(sample, configured, base, plans, {
-      seed,
-      onStart: (c, rows) => status.show(`${c.estimator.id} on ${rows === sample.n ? 'all' : rows} of ${sample.n} rows`, true),
-    });
+    const run = (on: Sample) =>
+      estimateAll(on, configured, base, plans, {
+        seed,
+        onStart: (c, rows) => status.show(`${c.estimator.id} on ${rows === on.n ? 'all' : rows} of ${on.n} rows`, true),
+      });
+    if (quantity === 'transfer-entropy') {
+      // Both directions: the same estimators on the series with source and target swapped.
+      const [source, target] = directionNames(loaded.columnNames, options.sourceColumn!, options.targetColumn!);
+      estimated = [
+        ...run(sample).map((r) => ({ ...r, direction: `TE(${source} → ${target})` })),
+        ...run(swapSeries(sample)).map((r) => ({ ...r, direction: `TE(${target} → ${source})` })),
+      ];
+    } else estimated = run(sample);
   } finally {
     status.clear();
   }
@@ -318,6 +341,42 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   }
 }
 
+/** The series with its two columns swapped: the target becomes the source. */
+function swapSeries(sample: Sample): Sample {
+  const data = new Float64Array(2 * sample.n);
+  for (let i = 0; i < sample.n; i++) {
+    data[2 * i] = sample.data[2 * i + 1];
+    data[2 * i + 1] = sample.data[2 * i];
+  }
+  return { ...sample, data };
+}
+
+/** How the directions are named: by the header's column names when there is one, else by the options as given. */
+function directionNames(columnNames: readonly string[], source: string, target: string): [string, string] {
+  return columnNames.length === 2 ? [columnNames[0], columnNames[1]] : [`column ${source}`, `column ${target}`];
+}
+
+/**
+ * `--history k[,l]` as settings of every transfer-entropy estimator (history = k, sourceHistory = l, l = k when
+ * omitted); a spec that sets them itself keeps its own, unless --history is given too, which is a conflict.
+ */
+export function withHistory(specs: readonly string[], history: string | undefined): string[] {
+  if (history === undefined) return [...specs];
+  const parts = history.split(',').map((t) => t.trim());
+  const values = parts.map((t) => (/^\d+$/.test(t) ? Number(t) : Number.NaN));
+  if (parts.length > 2 || !values.every((v) => Number.isInteger(v) && v >= 1 && v <= 50)) {
+    throw new UsageError(`--history ${history} is not allowed; give k or k,l, whole numbers from 1 to 50 (k past values of the target, l of the source)`);
+  }
+  const [k, l = k] = values;
+  return specs.map((spec) => {
+    const [id, rest] = spec.split(/:(.*)/s);
+    if (rest !== undefined && /(^|,)\s*(history|sourceHistory)\s*=/.test(rest)) {
+      throw new UsageError(`--history ${history} and the estimator spec ${spec} both set the history; give it in one place`);
+    }
+    return `${id}:${rest ? `${rest},` : ''}history=${k},sourceHistory=${l}`;
+  });
+}
+
 /** How the table and messages name a sample's file: standard input by that name, a file by its path as given. */
 function sampleName(file: string): string {
   return file === STDIN_PATH ? 'standard input' : file;
@@ -330,6 +389,30 @@ function readEstimateSample(
   load: (columns: string | undefined, path?: string) => LoadedSample,
 ): { loaded: LoadedSample; sample: Sample; quantity: Quantity } {
   let quantity: Quantity = 'entropy';
+  const transfer = options.sourceColumn !== undefined || options.targetColumn !== undefined;
+  if (!transfer && options.history !== undefined) throw new UsageError('--history applies to transfer entropy; give --source-column and --target-column too');
+  if (transfer) {
+    if (options.sourceColumn === undefined || options.targetColumn === undefined) throw new UsageError('transfer entropy needs both --source-column and --target-column');
+    const other = [
+      ['--columns', options.columns],
+      ['--x-columns', options.xColumns],
+      ['--y-columns', options.yColumns],
+      ['--z-columns', options.zColumns],
+      ['--against', options.against],
+    ].find(([, value]) => value !== undefined);
+    if (other) throw new UsageError(`${other[0]} cannot be combined with --source-column/--target-column (transfer entropy)`);
+    for (const [flag, value] of [
+      ['--source-column', options.sourceColumn],
+      ['--target-column', options.targetColumn],
+    ]) {
+      if (selectionWidth(value) !== 1 || value.includes(',')) throw new UsageError(`${flag} ${value} is not allowed; give one column (a position from 1 or a header name)`);
+    }
+    const shared = sharedSelection(options.sourceColumn, options.targetColumn);
+    if (shared !== undefined) throw new UsageError(`--source-column and --target-column both name column ${showText(shared)}; source and target must be different columns`);
+    const loaded = load(`${options.sourceColumn},${options.targetColumn}`);
+    const sample: Sample = { ...loaded.sample, xDim: 1 };
+    return { loaded: { ...loaded, sample }, sample, quantity: 'transfer-entropy' };
+  }
   const conditional = options.zColumns !== undefined;
   const mutualInformation = options.xColumns !== undefined || options.yColumns !== undefined || conditional;
   if (mutualInformation) {
@@ -471,11 +554,13 @@ function printEstimateTable(
   if (sample.q && against !== undefined) {
     print(`D(P‖Q) with P = ${sampleName(file)} (n = ${sample.n}), Q = ${sampleName(against)} (n = ${sample.q.n}); d = ${sample.dim}${columns}`);
   } else {
-    print(`${sampleName(file)}: n = ${sample.n}, d = ${sample.dim}${columns}`);
+    print(`${sampleName(file)}: n = ${sample.n}, d = ${sample.dim}${columns}${quantity === 'transfer-entropy' ? '; rows read as a time series, in file order' : ''}`);
   }
   const cut = cutNotes.length > 0;
+  const transfer = quantity === 'transfer-entropy';
   const rows = records.map((r) => [
     r.estimator,
+    ...(transfer ? [r.direction ?? ''] : []),
     Object.entries(r.settings)
       .map(([k, v]) => `${k}=${formatSetting(v)}`)
       .join(', ') || '–',
@@ -485,12 +570,13 @@ function printEstimateTable(
   ]);
   const head = [
     'estimator',
+    ...(transfer ? ['direction'] : []),
     'settings used',
     ...(cut ? ['rows'] : []),
     `${quantity === 'divergence' ? 'D(P‖Q)' : quantity} (${quantity === 'entropy' ? label : base})`,
     ...(reference ? [`relative to ${describeReference(reference)} (${base})`] : []),
   ];
-  print(renderTable(head, rows, { align: ['left', 'left', ...(cut ? ['right' as const] : []), 'right', 'right'] }));
+  print(renderTable(head, rows, { align: ['left', 'left', ...(transfer ? ['left' as const] : []), ...(cut ? ['right' as const] : []), 'right', 'right'] }));
   const rounded = records.some((r) => Object.values(r.settings).some((v) => formatSetting(v) !== String(v)));
   if (rounded) print(`settings used: to ${SETTING_DIGITS} significant digits; --json gives every digit`);
   for (const note of cutNotes) print(note);

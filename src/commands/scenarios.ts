@@ -1,6 +1,6 @@
 import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
-import type { Scenario, SerialDependence } from '../core/contracts.js';
+import type { Scenario, SerialDependence, TransferFacts } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
 import { parseIntegerOption } from '../core/options.js';
 import { countOf, formatValue, fullIds, renderTable, shorten, toBase, type Base } from '../core/format.js';
@@ -22,6 +22,8 @@ export interface ScenarioRecord {
   logDensityVarianceSource: string | null;
   /** Only on autocorrelated[...] scenarios: the serial dependence of the rows. */
   dependence?: SerialDependence;
+  /** Only on transfer-entropy scenarios: the other direction's value, the spectral radius and covariances. */
+  transfer?: TransferFacts;
 }
 
 export function scenarioRecord(s: Scenario, base: Base): ScenarioRecord {
@@ -42,6 +44,7 @@ export function scenarioRecord(s: Scenario, base: Base): ScenarioRecord {
     logDensityVariance: variance === undefined ? null : base === 'bits' ? variance / (Math.LN2 * Math.LN2) : variance,
     logDensityVarianceSource: s.logDensityVarianceSource ?? null,
     ...(s.dependence && { dependence: s.dependence }),
+    ...(s.transfer && { transfer: { ...s.transfer, forward: toBase(s.transfer.forward, base), reverse: toBase(s.transfer.reverse, base) } }),
   };
 }
 
@@ -114,6 +117,12 @@ Quote specs with brackets or semicolons in the shell.`,
         if (r.dependence)
           print(
             `${r.id}: rows are serially dependent: lag-1 autocorrelation φ = ${r.dependence.phi}, integrated autocorrelation time τ = ${formatValue(r.dependence.integratedAutocorrelationTime, 4)}, effective sample size n/τ (of the latent normal scores)`,
+          );
+      }
+      for (const r of records) {
+        if (r.transfer)
+          print(
+            `${r.id}: a time series (row order matters); the other direction's transfer entropy is ${formatValue(r.transfer.reverse, 7)} ${base} (k = l = 1), spectral radius ${formatValue(r.transfer.spectralRadius, 4)}`,
           );
       }
       print(`${countOf(records.length, 'scenario')}. Details of one: hhat scenarios --json SPEC`);

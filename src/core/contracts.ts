@@ -3,7 +3,7 @@
  * this file and the math helpers; the harness reaches them only through their registries.
  */
 
-export type Quantity = 'entropy' | 'mutual-information' | 'conditional-mutual-information' | 'divergence';
+export type Quantity = 'entropy' | 'mutual-information' | 'conditional-mutual-information' | 'transfer-entropy' | 'divergence';
 export type Support = 'bounded' | 'half' | 'unbounded';
 export type Tails = 'light' | 'exponential' | 'heavy';
 
@@ -19,6 +19,10 @@ export interface Sample {
   xDim?: number;
   /** For conditional mutual information only: the number of Y columns (after X's); Z takes the rest. */
   yDim?: number;
+  /*
+   * For transfer entropy TE(X → Y): a bivariate time series, rows in time order, column 0 the source X and
+   * column 1 the target Y (dim = 2, xDim = 1).
+   */
   /** For a divergence D(P || Q): this sample is from P and `q` is the sample from Q (same dim, own size). */
   q?: Sample;
 }
@@ -267,6 +271,21 @@ export interface Scenario {
   fromNormals?: NormalRepresentation;
   /** Serial dependence between rows (autocorrelated[...]); absent: rows are independent. */
   dependence?: SerialDependence;
+  /** Transfer-entropy scenarios: the process facts, including the other direction's value. */
+  transfer?: TransferFacts;
+}
+
+/** What a transfer-entropy scenario (te-var1) states besides its truth (`hhat scenarios --json`). */
+export interface TransferFacts {
+  /** TE(source → target) of the columns as drawn, history lengths k = l = 1 (the scenario's truth). */
+  forward: number;
+  /** TE(target → source), k = l = 1. */
+  reverse: number;
+  spectralRadius: number;
+  /** Stationary lag-0 covariance of (X, Y) and lag-1 covariance Cov(s_{t+1}, s_t) = AΣ, in process order (X, Y). */
+  stationaryCovariance: number[][];
+  lag1Covariance: number[][];
+  note: string;
 }
 
 export interface NormalRepresentation {

@@ -185,7 +185,7 @@ export function formatSpec(id: string, values: Record<string, SettingValue>, ord
 // Estimator declarations: checked once, when the registry takes an estimator (built-in, registered by code, or
 // loaded from a user's module), so settings, grids and default sets can be trusted everywhere after.
 
-export const QUANTITIES = ['entropy', 'mutual-information', 'conditional-mutual-information', 'divergence'] as const;
+export const QUANTITIES = ['entropy', 'mutual-information', 'conditional-mutual-information', 'transfer-entropy', 'divergence'] as const;
 const SETTING_KINDS = ['integer', 'number', 'choice', 'choice-or-integer', 'choice-or-number'] as const;
 /** Ids and setting names end up inside `id:key=value,...` specs, so they must not contain `:`, `,`, `=` or brackets. */
 const ID_PATTERN = /^[a-z][a-z0-9]*(-[a-z0-9]+)*$/;

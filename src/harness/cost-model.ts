@@ -111,6 +111,15 @@ export function predictedSeconds(configured: ConfiguredEstimator, n: number, dim
     case 'cmi-gaussian':
       // One covariance, four small log-determinants.
       return gaussianSeconds(n, dim) + 4e-9 * dim ** 3;
+    case 'te-ksg': {
+      // cmi-ksg on the embedding: 1 + history + sourceHistory columns.
+      const width = 1 + numberSetting(settings, 'history', 1) + numberSetting(settings, 'sourceHistory', 1);
+      return 4 * knnSearchSeconds(n, width, numberSetting(settings, 'k', 4)) + (settings.copula === 'rank' ? histogramSeconds(n, 2) : 0);
+    }
+    case 'te-gaussian': {
+      const width = 1 + numberSetting(settings, 'history', 1) + numberSetting(settings, 'sourceHistory', 1);
+      return gaussianSeconds(n, width) + 4e-9 * width ** 3;
+    }
     case 'mi-histogram':
       return 2 * histogramSeconds(n, dim);
     case 'mi-kernel': {

@@ -321,6 +321,10 @@ export type Part = 'x' | 'y' | 'z' | 'all';
  * Conditional MI I(X; Y | Z) is likewise unchanged by an invertible map of X, of Y or of Z alone (the chain
  * rule writes it as I(X; (Y, Z)) − I(X; Z)), so rescale and coordinate-wise monotone maps keep it, on any part
  * (`part=z` too); affine maps mix the variables and are skipped, quantize and contaminate leave it unknown.
+ * Transfer entropy (column 0 the source series, column 1 the target) is handled like MI with X the source and Y
+ * the target: one invertible map of a whole series (the same at every time) leaves it unchanged, so rescale and
+ * monotone maps keep the truth on either part; affine maps mix the two series and are skipped; quantize and
+ * contaminate (outliers at random times) leave it unknown.
  */
 export function parsePerturbation(text: string): Perturbation {
   const { id, values } = parseSpec(text, 'perturbation');
@@ -345,8 +349,15 @@ export function parsePerturbation(text: string): Perturbation {
       const invariant = inner.kind === 'rescale' || inner.kind === 'monotone' || inner.kind === 'affine';
       if (scenario.quantity === 'conditional-mutual-information') return prepareConditional(scenario, spec, inner, part);
       if (part === 'z') return { skip: `${spec}: part=z applies to conditional mutual-information samples` };
-      if (scenario.quantity === 'mutual-information') {
-        if (inner.kind === 'affine') return { skip: `${spec}: an affine map mixes X and Y, and MI is invariant only under maps of each variable` };
+      if (scenario.quantity === 'mutual-information' || scenario.quantity === 'transfer-entropy') {
+        const transfer = scenario.quantity === 'transfer-entropy';
+        if (inner.kind === 'affine') {
+          return {
+            skip: transfer
+              ? `${spec}: an affine map mixes the source and target series, and transfer entropy is invariant only under maps of each series`
+              : `${spec}: an affine map mixes X and Y, and MI is invariant only under maps of each variable`,
+          };
+        }
         const { xDim } = scenario;
         if (xDim === undefined) return { skip: `${spec}: the scenario does not say which columns are X` };
         const chosen: Part = part ?? (inner.kind === 'monotone' ? 'x' : 'all');
@@ -356,7 +367,9 @@ export function parsePerturbation(text: string): Perturbation {
         return {
           shift: invariant ? 0 : null,
           shiftSource: invariant
-            ? `exact: MI is invariant under invertible maps of ${chosen === 'all' ? 'each variable' : chosen.toUpperCase()}`
+            ? transfer
+              ? `exact: TE(X → Y) = I(Y_{t+1}; X_t | Y_t) is invariant under one invertible map of ${chosen === 'all' ? 'each series' : `the ${chosen === 'x' ? 'source' : 'target'} series`} at every time (Schreiber 2000; the Jacobians cancel as for MI)`
+              : `exact: MI is invariant under invertible maps of ${chosen === 'all' ? 'each variable' : chosen.toUpperCase()}`
             : prepared.shiftSource,
           apply: (sample, replicate, seed) => applyToColumns(prepared, sample, columns, replicate, seed),
         };

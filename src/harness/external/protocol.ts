@@ -6,6 +6,7 @@
  *   hhat → command   {"request": 1, "npy": "/tmp/hhat-command-x/p.npy", "n": 1000, "dim": 3, "settings": {"k": 3}}
  *                    mutual information adds "xDim" and "yDim" (X is the first xDim columns);
  *                    conditional mutual information adds "xDim", "yDim" and "zDim" (X, then Y, then Z);
+ *                    transfer entropy adds "xDim": 1 and "yDim": 1 (column 0 the source series, 1 the target; rows in time order);
  *                    a divergence D(P‖Q) adds "npyQ" and "nQ" (P's sample is "npy")
  *   command → hhat   {"request": 1, "value": 1.2345}        (nats)  or  {"request": 1, "error": "too few points"}
  *

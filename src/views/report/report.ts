@@ -131,6 +131,7 @@ const QUANTITY_NAMES: Record<string, string> = {
   entropy: 'Differential-entropy',
   'mutual-information': 'Mutual-information',
   'conditional-mutual-information': 'Conditional-mutual-information',
+  'transfer-entropy': 'Transfer-entropy',
   divergence: 'Divergence',
 };
 
