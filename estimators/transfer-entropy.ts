@@ -38,7 +38,10 @@ function checkedSeries(id: string, sample: Sample): void {
   }
   for (let p = 0; p < n * dim; p++) {
     if (!Number.isFinite(data[p])) {
-      throw new EstimateError('invalid-input', `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`);
+      throw new EstimateError(
+        'invalid-input',
+        `${id}: value ${data[p]} at row ${Math.floor(p / dim) + 1}, column ${(p % dim) + 1}; only finite numbers are allowed`,
+      );
     }
   }
 }
@@ -119,7 +122,11 @@ export const transferEntropyEstimators: Estimator[] = [
     family: 'nearest-neighbour',
     quantity: 'transfer-entropy',
     summary: 'Frenzel–Pompe conditional k-NN on the embedding (Y_{t+1} | X_t^(l) | Y_t^(k)), max norm',
-    settings: [{ name: 'k', meaning: 'neighbour order in the joint embedded space', default: TE_KSG_DEFAULT_K, kind: 'integer', min: 1 }, ...HISTORY_SETTINGS, COPULA_SETTING],
+    settings: [
+      { name: 'k', meaning: 'neighbour order in the joint embedded space', default: TE_KSG_DEFAULT_K, kind: 'integer', min: 1 },
+      ...HISTORY_SETTINGS,
+      COPULA_SETTING,
+    ],
     dims: [2, 2],
     reference:
       'Schreiber, T. (2000). Measuring information transfer. Physical Review Letters 85, 461–464; ' +

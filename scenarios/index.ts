@@ -29,7 +29,15 @@ import {
 import { transferFamilies } from './transfer-entropy.js';
 
 const families = new Map<string, ScenarioFamily>();
-for (const f of [...univariateFamilies, ...multivariateFamilies, gaussianMixtureFamily, ...dependenceFamilies, ...conditionalFamilies, ...transferFamilies, ...divergenceFamilies])
+for (const f of [
+  ...univariateFamilies,
+  ...multivariateFamilies,
+  gaussianMixtureFamily,
+  ...dependenceFamilies,
+  ...conditionalFamilies,
+  ...transferFamilies,
+  ...divergenceFamilies,
+])
   families.set(f.id, f);
 
 /** Families written with a bracketed argument rather than key=value parameters. */

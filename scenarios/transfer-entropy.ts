@@ -100,7 +100,9 @@ export function var1Law(owner: string, p: { a: number; b: number; cXY: number; c
   const lagX = p.a * sxx + p.cYX * sxy;
   const xToY = 0.5 * Math.log(syy - (lagY * lagY) / syy);
   const yToX = 0.5 * Math.log(sxx - (lagX * lagX) / sxx);
-  return { matrix, spectralRadius: radius, covariance, xToY: Math.max(0, xToY), yToX: Math.max(0, yToX) };
+  // Without coupling into a series it is an autonomous AR(1): its next value is independent of the other's past
+  // given its own, so that direction's TE is exactly 0 (the formula would leave rounding of order 1e-16).
+  return { matrix, spectralRadius: radius, covariance, xToY: p.cXY === 0 ? 0 : Math.max(0, xToY), yToX: p.cYX === 0 ? 0 : Math.max(0, yToX) };
 }
 
 /** n rows of the stationary process, in time order, columns (X, Y) or, `swap`, (Y, X). */

@@ -129,6 +129,8 @@ describe('declared exceptions follow the settings', () => {
     ['mi-from-entropies', { entropy: 'histogram' }],
     ['cmi-ksg', { copula: 'rank', k: 2 }],
     ['cmi-gaussian', { correction: 'none', copula: 'rank' }],
+    ['te-ksg', { copula: 'rank', k: 3, history: 2 }],
+    ['te-gaussian', { correction: 'none', copula: 'rank', sourceHistory: 2 }],
   ];
   for (const [id, settings] of holding) {
     it(`${id} with ${JSON.stringify(settings)} passes every applicable check`, () => {
@@ -138,6 +140,15 @@ describe('declared exceptions follow the settings', () => {
       expectNotApplicableOnlyForAReason(report, estimator);
     });
   }
+
+  it('transfer entropy lacks row order by definition, for every estimator of it: declared once for the quantity, and measurably so', () => {
+    for (const id of ['te-ksg', 'te-gaussian']) {
+      const result = runConformance(getEstimator(id), { only: ['row-order'] }).checks[0];
+      expect(result.status).toBe('not-applicable');
+      expect(result.evidence).toMatch(/^declared lacking \(lacks\.rowOrder\): transfer entropy is defined by the time order of the rows/);
+      expect(result.declared!.compared!.difference).toBeGreaterThan(0.05);
+    }
+  });
 
   it('ksg1 and ksg2 lack per-variable scaling with copula=none, so scale checks one factor for X and Y; with copula=rank they have it', () => {
     const plain = runConformance(getEstimator('ksg1'), { only: ['scale'] }).checks[0];

@@ -139,7 +139,7 @@ describe('bad modules: one line naming the file and the problem', () => {
       'quantity',
       'mjs',
       withField(`quantity: 'entropie'`),
-      /quantity "entropie" is not allowed; it must be one of entropy, mutual-information, conditional-mutual-information, divergence/,
+      /quantity "entropie" is not allowed; it must be one of entropy, mutual-information, conditional-mutual-information, transfer-entropy, divergence/,
     ],
     ['no-reference', 'mjs', withField('reference: undefined'), /reference is missing; give the paper or book/],
     ['empty-family', 'mjs', withField(`family: ' '`), /family is " "; give a family name/],

@@ -229,7 +229,8 @@ function estimateOn(context: Context, sample: Sample, what: string, settings?: S
  */
 const QUANTITY_LACKS: Partial<Record<Quantity, Partial<Record<InvarianceName, string>>>> = {
   'transfer-entropy': {
-    rowOrder: 'transfer entropy is defined by the time order of the rows (the past of one series predicting the next value of the other); permuting rows destroys it',
+    rowOrder:
+      'transfer entropy is defined by the time order of the rows (the past of one series predicting the next value of the other); permuting rows destroys it',
   },
 };
 

@@ -226,7 +226,10 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
 function declareBenchOptions(command: Command): Command {
   return command
     .option('--plan <file>', 'a JSON plan file (schema: src/schemas/plan.schema.json)')
-    .option('--quantity <q>', 'entropy (default), mutual-information, conditional-mutual-information, transfer-entropy or divergence: the default plan of that quantity')
+    .option(
+      '--quantity <q>',
+      'entropy (default), mutual-information, conditional-mutual-information, transfer-entropy or divergence: the default plan of that quantity',
+    )
     .option('--scenario <spec>', 'a scenario to include (repeatable; see `hhat scenarios`)', collect)
     .option('--estimator <spec>', 'an estimator with settings, ID[:key=value,...] (repeatable; see `hhat estimators`)', collect)
     .option('--n <sizes>', 'sample sizes, comma-separated (e.g. 100,1000,10000)')

@@ -197,11 +197,11 @@ function printSummary(draw: Draw, replicates: number[], files: WrittenFile[], fo
       ? `: X = ${group('x', scenario.xDim!)}, Y = ${group('y', scenario.yDim!)}, Z = ${group('z', scenario.dim - scenario.xDim! - scenario.yDim!)}`
       : scenario.quantity === 'transfer-entropy'
         ? ': a time series, rows in time order; source x1, target y1'
-      : scenario.quantity === 'mutual-information'
-        ? `: X = ${scenario.xDim === 1 ? 'x1' : `x1..x${scenario.xDim}`}, Y = ${scenario.dim - scenario.xDim! === 1 ? 'y1' : `y1..y${scenario.dim - scenario.xDim!}`}`
-        : scenario.quantity === 'divergence'
-          ? ', samples from P and from Q'
-          : '';
+        : scenario.quantity === 'mutual-information'
+          ? `: X = ${scenario.xDim === 1 ? 'x1' : `x1..x${scenario.xDim}`}, Y = ${scenario.dim - scenario.xDim! === 1 ? 'y1' : `y1..y${scenario.dim - scenario.xDim!}`}`
+          : scenario.quantity === 'divergence'
+            ? ', samples from P and from Q'
+            : '';
   print(`scenario    ${scenario.id} (${scenario.quantity}, d = ${scenario.dim}${layout})`);
   if (draw.perturbation) {
     const p = draw.perturbation;

@@ -263,7 +263,9 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   // The limit applies to the default set; to named estimators only when the user gives it.
   // A subsample of rows would break a time series apart, so transfer entropy always uses every row.
   if (quantity === 'transfer-entropy' && givenLimit !== undefined && givenLimit !== null)
-    throw new UsageError('--max-seconds cannot be used with --source-column/--target-column: a row subsample would break the time order; give --max-seconds none or leave it out');
+    throw new UsageError(
+      '--max-seconds cannot be used with --source-column/--target-column: a row subsample would break the time order; give --max-seconds none or leave it out',
+    );
   const limitSeconds = quantity === 'transfer-entropy' ? null : givenLimit !== undefined ? givenLimit : named ? null : DEFAULT_MAX_SECONDS;
   const plans = planRows(configured, sample, limitSeconds);
   let estimated: EstimateRecord[];
@@ -392,7 +394,8 @@ function readEstimateSample(
   const transfer = options.sourceColumn !== undefined || options.targetColumn !== undefined;
   if (!transfer && options.history !== undefined) throw new UsageError('--history applies to transfer entropy; give --source-column and --target-column too');
   if (transfer) {
-    if (options.sourceColumn === undefined || options.targetColumn === undefined) throw new UsageError('transfer entropy needs both --source-column and --target-column');
+    if (options.sourceColumn === undefined || options.targetColumn === undefined)
+      throw new UsageError('transfer entropy needs both --source-column and --target-column');
     const other = [
       ['--columns', options.columns],
       ['--x-columns', options.xColumns],
@@ -405,10 +408,12 @@ function readEstimateSample(
       ['--source-column', options.sourceColumn],
       ['--target-column', options.targetColumn],
     ]) {
-      if (selectionWidth(value) !== 1 || value.includes(',')) throw new UsageError(`${flag} ${value} is not allowed; give one column (a position from 1 or a header name)`);
+      if (selectionWidth(value) !== 1 || value.includes(','))
+        throw new UsageError(`${flag} ${value} is not allowed; give one column (a position from 1 or a header name)`);
     }
     const shared = sharedSelection(options.sourceColumn, options.targetColumn);
-    if (shared !== undefined) throw new UsageError(`--source-column and --target-column both name column ${showText(shared)}; source and target must be different columns`);
+    if (shared !== undefined)
+      throw new UsageError(`--source-column and --target-column both name column ${showText(shared)}; source and target must be different columns`);
     const loaded = load(`${options.sourceColumn},${options.targetColumn}`);
     const sample: Sample = { ...loaded.sample, xDim: 1 };
     return { loaded: { ...loaded, sample }, sample, quantity: 'transfer-entropy' };
@@ -554,7 +559,9 @@ function printEstimateTable(
   if (sample.q && against !== undefined) {
     print(`D(P‖Q) with P = ${sampleName(file)} (n = ${sample.n}), Q = ${sampleName(against)} (n = ${sample.q.n}); d = ${sample.dim}${columns}`);
   } else {
-    print(`${sampleName(file)}: n = ${sample.n}, d = ${sample.dim}${columns}${quantity === 'transfer-entropy' ? '; rows read as a time series, in file order' : ''}`);
+    print(
+      `${sampleName(file)}: n = ${sample.n}, d = ${sample.dim}${columns}${quantity === 'transfer-entropy' ? '; rows read as a time series, in file order' : ''}`,
+    );
   }
   const cut = cutNotes.length > 0;
   const transfer = quantity === 'transfer-entropy';

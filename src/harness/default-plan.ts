@@ -66,7 +66,7 @@ export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
       ],
       estimators: defaultSet('bench', quantity),
       sampleSizes: [500, 5000],
-      replicates: 20,
+      replicates: 30,
       seed: DEFAULT_SEED,
       robustness: {
         sampleSize: 500,
