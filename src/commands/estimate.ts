@@ -168,7 +168,7 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
   program
     .command('estimate')
     .description(
-      'estimate the differential entropy of a data file (CSV/TSV/TXT, JSON, NumPy .npy) with one or more estimators; the mutual information with --x-columns and --y-columns, a divergence with --against',
+      'estimate the differential entropy of a data file (CSV/TSV/TXT, JSON, NumPy .npy) with one or more estimators; the mutual information with --x-columns and --y-columns (conditional: and --z-columns), the transfer entropy both ways with --source-column and --target-column, a divergence with --against',
     )
     .argument(
       '<file>',
@@ -208,7 +208,7 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
 /** What to change when an estimator of another quantity is named: the options that ask for its quantity. */
 function quantityMismatch(id: string, estimates: Quantity, asked: Quantity): string {
   const how: Record<Quantity, string> = {
-    entropy: 'leave out --x-columns/--y-columns and --against',
+    entropy: 'leave out --x-columns/--y-columns, --source-column/--target-column and --against',
     'mutual-information': `give --x-columns and --y-columns to choose X and Y among the columns (e.g. --x-columns 1 --y-columns 2)`,
     'conditional-mutual-information': 'give --x-columns, --y-columns and --z-columns to choose X, Y and Z (e.g. --x-columns 1 --y-columns 2 --z-columns 3)',
     'transfer-entropy': 'give --source-column and --target-column, two series in time order (e.g. --source-column 1 --target-column 2)',
