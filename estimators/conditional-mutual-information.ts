@@ -22,7 +22,7 @@ import { defineEstimator, type Estimator, type EstimatorFile, type Sample } from
 import { EstimateError } from '../src/core/errors.js';
 import { KnnIndex } from '../src/math/knn.js';
 import { digamma } from '../src/math/special.js';
-import { COPULA_SETTING, rankTransform } from './mutual-information.js';
+import { COPULA_SETTING, GAUSSIAN_CORRECTION_SETTING, rankTransform } from './mutual-information.js';
 import { logDeterminantSpd, scatterMatrix, wishartLogDetShift } from './parametric.js';
 import { inSpreadUnit } from './shared/scaling.js';
 import { orderGrid } from './shared/order-grid.js';
@@ -194,16 +194,7 @@ export const conditionalMutualInformationEstimators: Estimator[] = [
     family: 'parametric',
     quantity: 'conditional-mutual-information',
     summary: 'conditional MI of the fitted normal law, ½ log(det Σ̂_XZ det Σ̂_YZ / (det Σ̂_Z det Σ̂)), unbiased under normality by default',
-    settings: [
-      {
-        name: 'correction',
-        meaning: 'ahmed-gokhale: subtract the exact Gaussian bias (unbiased for normal data); none: the plug-in',
-        default: 'ahmed-gokhale',
-        kind: 'choice',
-        choices: ['ahmed-gokhale', 'none'],
-      },
-      COPULA_SETTING,
-    ],
+    settings: [GAUSSIAN_CORRECTION_SETTING, COPULA_SETTING],
     dims: [3, Infinity],
     reference:
       'Cover, T. M. & Thomas, J. A. (2006). Elements of Information Theory, 2nd ed., Secs. 2.5, 8.4–8.6 (chain rule, Gaussian entropy); ' +

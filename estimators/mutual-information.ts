@@ -53,6 +53,15 @@ export const COPULA_SETTING = {
 
 type Copula = (typeof COPULA_SETTING.choices)[number];
 
+/** The bias correction of the Gaussian (log-determinant) estimators of MI and conditional MI. */
+export const GAUSSIAN_CORRECTION_SETTING = {
+  name: 'correction',
+  meaning: 'ahmed-gokhale: subtract the exact Gaussian bias (unbiased for normal data); none: the plug-in',
+  default: 'ahmed-gokhale',
+  kind: 'choice',
+  choices: ['ahmed-gokhale', 'none'],
+} as const satisfies SettingSpec;
+
 /** Every MI estimator is in both default sets of mutual information, at order 0: registry order. */
 const IN_DEFAULT_SETS = { estimate: true, bench: true } as const;
 
@@ -617,16 +626,7 @@ export const mutualInformationEstimators: Estimator[] = [
     family: 'parametric',
     quantity: 'mutual-information',
     summary: 'MI of the fitted normal law, ½ log(det Σ̂x det Σ̂y / det Σ̂), unbiased under normality by default',
-    settings: [
-      {
-        name: 'correction',
-        meaning: 'ahmed-gokhale: subtract the exact Gaussian bias (unbiased for normal data); none: the plug-in',
-        default: 'ahmed-gokhale',
-        kind: 'choice',
-        choices: ['ahmed-gokhale', 'none'],
-      },
-      COPULA_SETTING,
-    ],
+    settings: [GAUSSIAN_CORRECTION_SETTING, COPULA_SETTING],
     dims: [2, Infinity],
     reference:
       'Cover, T. M. & Thomas, J. A. (2006). Elements of Information Theory, 2nd ed., Sec. 8.5 (Gaussian MI); bias term from Ahmed, N. A. & Gokhale, D. V. (1989), IEEE Trans. Inf. Theory 35(3), 688–692.',
