@@ -107,7 +107,7 @@ export function ksgConditionalMutualInformation(data: Float64Array, n: number, x
     throw new EstimateError(
       'ties',
       `${id}: ${zeroCount} of ${n} points have their k-th (k = ${k}) nearest neighbour in (X, Y, Z) at distance 0 (repeated rows); ` +
-        'add jitter below the recording resolution, use copula=rank (ties broken by row order), or a larger k if the repeats are genuine',
+        'add dequantize=auto (jitter within the recording step), use copula=rank (ties broken by row order), or a larger k if the repeats are genuine',
     );
   }
   const zColumns = span(xDim + yDim, dim);

@@ -106,14 +106,14 @@ export function knnDivergence(p: Float64Array, n: number, q: Float64Array, m: nu
     throw new EstimateError(
       'ties',
       `${id}: ${zeroWithin} of ${n} P points have their k-th (k = ${k}) nearest other P point at distance 0 (repeated values), so log-distances would be -Infinity; ` +
-        'add jitter below the recording resolution or use a larger k',
+        'add dequantize=auto (jitter within the recording step) or use a larger k',
     );
   }
   if (zeroAcross > 0) {
     throw new EstimateError(
       'ties',
       `${id}: ${zeroAcross} of ${n} P points have their k-th (k = ${k}) nearest Q point at distance 0 (values repeated in both samples), so log-distances would be -Infinity; ` +
-        'add jitter below the recording resolution or use a larger k',
+        'add dequantize=auto (jitter within the recording step) or use a larger k',
     );
   }
   return (dim * sumLogRatio) / n + Math.log(m / (n - 1));

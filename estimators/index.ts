@@ -22,8 +22,22 @@ import type {
   SettingValue,
 } from '../src/core/contracts.js';
 import { EstimateError, UsageError } from '../src/core/errors.js';
-import { checkEstimator, formatSpec, parseSpec, parseThin, THIN_SETTING, validateSettings } from '../src/core/spec.js';
+import {
+  checkEstimator,
+  DEQUANTIZE_FAMILIES,
+  DEQUANTIZE_SETTING,
+  formatSpec,
+  parseDequantize,
+  parseSpec,
+  parseThin,
+  THIN_SETTING,
+  validateSettings,
+  type Dequantize,
+} from '../src/core/spec.js';
 import { thinRows } from '../src/core/sample.js';
+import { dequantizeSample, type EstimateResolution } from './shared/dequantize.js';
+
+export type { EstimateResolution };
 
 /**
  * The estimator files of this folder, imported: `.ts` under a TypeScript loader (tests, tsx), `.js` when built
@@ -136,12 +150,25 @@ export interface ConfiguredEstimator {
   spec: string;
   /** The harness's thinning: the estimator sees rows 0, t, 2t, … (src/core/spec.ts, THIN_SETTING). */
   thin: number;
+  /** The harness's jitter within the recording step (src/core/spec.ts, DEQUANTIZE_SETTING); absent: none. */
+  dequantize?: Dequantize;
+}
+
+/** Whether the estimator takes dequantize (the families that take logs of distances between points). */
+export function takesDequantize(estimator: Estimator): boolean {
+  return DEQUANTIZE_FAMILIES.includes(estimator.family);
+}
+
+/** The same estimator, settings and thinning with dequantize=auto; null when it does not take the setting or sets it already. */
+export function dequantizedVariant(configured: ConfiguredEstimator): ConfiguredEstimator | null {
+  if (!takesDequantize(configured.estimator) || (configured.dequantize ?? 'none') !== 'none') return null;
+  return configureEstimator(configured.estimator.id, { ...configured.settings, [DEQUANTIZE_SETTING]: 'auto', [THIN_SETTING]: configured.thin ?? 1 });
 }
 
 /** The one place settings are validated: every declared setting present and valid, defaults filled in. */
 export function configureEstimator(id: string, given: Record<string, SettingValue> = {}): ConfiguredEstimator {
   const estimator = getEstimator(id);
-  const { [THIN_SETTING]: thinGiven, ...declared } = given;
+  const { [THIN_SETTING]: thinGiven, [DEQUANTIZE_SETTING]: dequantizeGiven, ...declared } = given;
   const thin = parseThin(estimator.id, thinGiven);
   if (thin !== 1 && estimator.quantity === 'transfer-entropy') {
     // Every t-th row of a series is another process, whose transfer entropy (lag t) is not the scenario's truth.
@@ -149,13 +176,17 @@ export function configureEstimator(id: string, given: Record<string, SettingValu
       `${estimator.id}: ${THIN_SETTING}=${thin} is not allowed for transfer entropy: every ${thin}-th row of a series is another process with another transfer entropy; only ${THIN_SETTING}=1`,
     );
   }
+  const dequantize = parseDequantize(estimator.id, estimator.family, dequantizeGiven);
   const settings = validateSettings(estimator.id, estimator.settings, declared);
-  const spec = formatSpec(
+  let spec = formatSpec(
     estimator.id,
     settings,
     estimator.settings.map((s) => s.name),
   );
-  return { estimator, settings, spec: thin === 1 ? spec : `${spec}${spec === estimator.id ? ':' : ','}${THIN_SETTING}=${thin}`, thin };
+  // The harness's settings go last, each only when it does something, so every other spec is unchanged.
+  const extra = [...(dequantize !== 'none' ? [`${DEQUANTIZE_SETTING}=${dequantize}`] : []), ...(thin !== 1 ? [`${THIN_SETTING}=${thin}`] : [])];
+  if (extra.length) spec = `${spec}${spec === estimator.id ? ':' : ','}${extra.join(',')}`;
+  return { estimator, settings, spec, thin, ...(dequantize !== 'none' ? { dequantize } : {}) };
 }
 
 /** Parses `id:key=value,...` as typed on the command line. */
@@ -201,15 +232,19 @@ function describeValue(value: unknown): string {
  * (keywords such as 'auto' included); with `report`, the settings actually used are resolved too, which costs
  * a second look at the sample, so the harness's hot path leaves it off.
  */
-export function runEstimator(configured: ConfiguredEstimator, sample: Sample, options: { report?: boolean } = {}): { value: number; settings: Settings } {
+export function runEstimator(
+  configured: ConfiguredEstimator,
+  sample: Sample,
+  options: { report?: boolean } = {},
+): { value: number; settings: Settings; resolution?: EstimateResolution } {
   checkDimension(configured.estimator, sample.dim);
   // Thinning is the harness's, so every estimator (built-in, module or command) has it without a line of its own.
-  const used = thinRows(sample, configured.thin ?? 1);
+  const { sample: used, resolution } = dequantizeSample(thinRows(sample, configured.thin ?? 1), configured.dequantize ?? 'none');
   const value: unknown = configured.estimator.estimate(used, configured.settings);
   // A user's module is plain JavaScript: a string such as "1.5" must not pass for an estimate.
   if (typeof value !== 'number')
     throw new EstimateError('numeric', `${configured.estimator.id}: estimate must return a number (nats); it returned ${describeValue(value)}`);
-  return { value, settings: options.report ? resolveSettings(configured, used) : configured.settings };
+  return { value, settings: options.report ? resolveSettings(configured, used) : configured.settings, ...(options.report && resolution ? { resolution } : {}) };
 }
 
 /** The estimator's id plus only the settings that differ from their defaults (the spec itself for an unknown id). */

@@ -206,7 +206,7 @@ export function ksgMutualInformation(data: Float64Array, n: number, xDim: number
     throw new EstimateError(
       'ties',
       `${id}: ${zeroCount} of ${n} points have their k-th (k = ${k}) nearest neighbour in (X, Y) at distance 0 (repeated rows; the largest group is ${mostCopies + 1} identical rows); ` +
-        `add jitter below the recording resolution, use copula=rank (ties broken by row order), or k ≥ ${mostCopies + 1} if the repeats are genuine`,
+        `add dequantize=auto (jitter within the recording step), use copula=rank (ties broken by row order), or k ≥ ${mostCopies + 1} if the repeats are genuine`,
     );
   }
   const xData = columns(data, n, dim, 0, xDim);

@@ -310,7 +310,7 @@ function tiesError(
     'ties',
     `${id}: ${zeroCount} of ${n} points have their ${ordinal(order)} nearest neighbour at distance 0 (repeated values; ` +
       `the largest group is ${mostCopies + 1} identical points), so log-distances would be -Infinity; ` +
-      `add jitter below the recording resolution, use k ≥ ${kFor(mostCopies + 1)} if the repeats are genuine, or use a histogram estimator`,
+      `add dequantize=auto (jitter within the recording step), use k ≥ ${kFor(mostCopies + 1)} if the repeats are genuine, or use a histogram estimator`,
   );
 }
 

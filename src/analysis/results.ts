@@ -8,6 +8,7 @@ import type { ErrorObject, ValidateFunction } from 'ajv/dist/2020.js';
 import { loadAjv } from '../core/schema-validator.js';
 import type { Scenario } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
+import { DEQUANTIZE_SETTING } from '../core/spec.js';
 import { drawsFingerprint, readTextFile, type Plan, type PlanCode } from '../harness/plan.js';
 import { environment, type Environment } from '../core/provenance.js';
 import type { RunOutcome, Session, Shard } from '../harness/runner.js';
@@ -89,8 +90,14 @@ export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
   const cellIndex = new Map<string, Cell>();
   const cells: Cell[] = [];
   const key = (s: number, e: number, n: number, v: number) => `${s}|${e}|${n}|${v}`;
+  const twinsFrom = context.estimators.length + context.tuning.length;
   const tuningOf = (e: number): Cell['tuning'] => {
     if (e < context.estimators.length) return null;
+    // A dequantized twin is its plan estimator with one setting changed, as a tuning point is.
+    if (e >= twinsFrom) {
+      const twin = context.dequantized[e - twinsFrom];
+      return { base: context.estimators[twin.base].spec, setting: DEQUANTIZE_SETTING, value: 'auto' };
+    }
     const point = context.tuning[e - context.estimators.length];
     return { base: context.estimators[point.base].spec, setting: point.setting, value: point.value };
   };

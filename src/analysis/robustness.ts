@@ -21,6 +21,7 @@ import type { Cell, ScenarioInfo } from './cells.js';
 import { parseScenario } from '../../scenarios/index.js';
 import { parseEstimatorSpec } from '../../estimators/index.js';
 import { tuningGrid } from '../harness/tuning.js';
+import { resolutionSection, type ResolutionMeasure, type ResolutionRow } from './resolution.js';
 
 export type Verdict = 'pass' | 'warn' | 'fail' | 'n/a';
 
@@ -64,6 +65,11 @@ export interface RobustnessSection {
   measures: RobustnessMeasure[];
   tuning: TuningCurve[];
   table: RobustnessRow[];
+  /**
+   * With quantize perturbations: per plan estimator, the recording step at which its RMSE doubles, raw and with
+   * dequantize=auto (resolution.ts). Absent from run files of plans without quantize perturbations.
+   */
+  resolution?: { measures: ResolutionMeasure[]; rows: ResolutionRow[] };
 }
 
 export const ROBUSTNESS_COLUMNS = ['rescale', 'monotone', 'affine', 'quantize', 'contaminate', 'tuning'] as const;
@@ -197,7 +203,7 @@ export function robustnessSection(plan: Plan, cells: Cell[], scenarios: Map<stri
   const n = robustness.sampleSize;
   const main = new Map(cells.filter((c) => c.role === 'main' && c.n === n).map((c) => [`${c.scenario}|${c.estimator}`, c]));
   const measures = cells
-    .filter((c) => c.role === 'perturbed' && c.n === n)
+    .filter((c) => c.role === 'perturbed' && c.n === n && c.tuning === null)
     .flatMap((c) => {
       const original = main.get(`${c.scenario}|${c.estimator}`);
       return original ? [pairedMeasure(c, original, scenarios.get(c.scenario)!)] : [];
@@ -244,5 +250,18 @@ export function robustnessSection(plan: Plan, cells: Cell[], scenarios: Map<stri
         ]),
       ),
     }));
-  return { sampleSize: n, replicates: plan.replicates, perturbations: robustness.perturbations, measures, tuning: curves, table };
+  const resolution = resolutionSection(
+    plan.estimators,
+    main,
+    cells.filter((c) => c.role === 'perturbed' && c.n === n),
+  );
+  return {
+    sampleSize: n,
+    replicates: plan.replicates,
+    perturbations: robustness.perturbations,
+    measures,
+    tuning: curves,
+    table,
+    ...(resolution.measures.length ? { resolution } : {}),
+  };
 }

@@ -10,7 +10,16 @@ import { describeRegistration, resolveModulePath, useEstimatorModules } from '..
 import type { Quantity, Sample, Settings } from '../core/contracts.js';
 import { declareCommandOptions } from '../harness/external/options.js';
 import { collect, parseIntegerOption } from '../core/options.js';
-import { checkDimension, defaultSet, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
+import {
+  checkDimension,
+  defaultSet,
+  estimatorLabel,
+  parseEstimatorSpec,
+  runEstimator,
+  type ConfiguredEstimator,
+  type EstimateResolution,
+} from '../../estimators/index.js';
+import { describeRecorded, recordedChoices, recordedData, type RecordedData } from './recorded-choices.js';
 import { describeSeconds, predictedSeconds, rowsWithin } from '../harness/cost-model.js';
 import { seededRowSubsample } from '../core/sample.js';
 import { parseNumber } from '../core/spec.js';
@@ -37,6 +46,8 @@ interface EstimateRecord {
   skipped?: string;
   /** Transfer entropy: which direction, e.g. "TE(heater → plant)". */
   direction?: string;
+  /** With dequantize: the step jittered within, per column, and how it was found. */
+  resolution?: EstimateResolution;
 }
 
 /** Rows every estimate in the default set may be cut to fit: below this a subsample says too little, so the estimator is skipped. */
@@ -92,9 +103,9 @@ export function estimateAll(
     const subsample = rows < sample.n ? { rows, of: sample.n, seed, reason: plan?.reason ?? '' } : undefined;
     try {
       options.onStart?.(c, rows);
-      const { value, settings } = runEstimator(c, seededRowSubsample(sample, rows, String(seed)), { report: true });
+      const { value, settings, resolution } = runEstimator(c, seededRowSubsample(sample, rows, String(seed)), { report: true });
       if (!Number.isFinite(value)) throw new EstimateError('numeric', `${c.estimator.id} gave ${value} on this sample`);
-      return { estimator: c.estimator.id, settings, value: toBase(value, base), ...(subsample ? { subsample } : {}) };
+      return { estimator: c.estimator.id, settings, value: toBase(value, base), ...(resolution ? { resolution } : {}), ...(subsample ? { subsample } : {}) };
     } catch (error) {
       // A user's module refuses with an error of EstimateError's shape (it imports nothing from hhat).
       if (isEstimateError(error)) {
@@ -267,22 +278,35 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
       '--max-seconds cannot be used with --source-column/--target-column: a row subsample would break the time order; give --max-seconds none or leave it out',
     );
   const limitSeconds = quantity === 'transfer-entropy' ? null : givenLimit !== undefined ? givenLimit : named ? null : DEFAULT_MAX_SECONDS;
-  const plans = planRows(configured, sample, limitSeconds);
-  let estimated: EstimateRecord[];
-  try {
+  const estimateEach = (list: ConfiguredEstimator[]): EstimateRecord[] => {
+    const plans = planRows(list, sample, limitSeconds);
     const run = (on: Sample) =>
-      estimateAll(on, configured, base, plans, {
+      estimateAll(on, list, base, plans, {
         seed,
         onStart: (c, rows) => status.show(`${c.estimator.id} on ${rows === on.n ? 'all' : rows} of ${on.n} rows`, true),
       });
-    if (quantity === 'transfer-entropy') {
-      // Both directions: the same estimators on the series with source and target swapped.
-      const [source, target] = directionNames(loaded.columnNames, options.sourceColumn!, options.targetColumn!);
-      estimated = [
-        ...run(sample).map((r) => ({ ...r, direction: `TE(${source} → ${target})` })),
-        ...run(swapSeries(sample)).map((r) => ({ ...r, direction: `TE(${target} → ${source})` })),
-      ];
-    } else estimated = run(sample);
+    if (quantity !== 'transfer-entropy') return run(sample);
+    // Both directions: the same estimators on the series with source and target swapped.
+    const [source, target] = directionNames(loaded.columnNames, options.sourceColumn!, options.targetColumn!);
+    return [
+      ...run(sample).map((r) => ({ ...r, direction: `TE(${source} → ${target})` })),
+      ...run(swapSeries(sample)).map((r) => ({ ...r, direction: `TE(${target} → ${source})` })),
+    ];
+  };
+  let estimated: EstimateRecord[];
+  // Recorded data (values repeated on a lattice): the estimators built for them, beside the ones asked for.
+  const recorded = recordedData(sample, loaded.columnNames);
+  const choices = recorded ? recordedChoices(sample, quantity, recorded, configured) : [];
+  let chosen: (EstimateRecord & { how: string })[] = [];
+  try {
+    estimated = estimateEach(configured);
+    // A transfer entropy's records come direction by direction, each in the order of `choices`.
+    if (choices.length)
+      chosen = estimateEach(choices.map((c) => c.configured)).map((r, i) => ({
+        ...r,
+        estimator: choices[i % choices.length].configured.spec,
+        how: choices[i % choices.length].how,
+      }));
   } finally {
     status.clear();
   }
@@ -302,12 +326,31 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
           ]
         : [],
   );
-  const hints = failed.some((r) => r.code === 'ties') ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
+  // On recorded data the step report and the choices replace the bare repeat counts.
+  const hints = !recorded && failed.some((r) => r.code === 'ties') ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
+  const recordedOutput = recorded
+    ? { data: recorded, estimates: chosen.map((r) => (r.value === null ? r : { ...r, ...(reference ? { relative: r.value + toBase(offset, base) } : {}) })) }
+    : null;
   // A default-set estimator that cannot run on these data is information about the data, not an error the
   // user made or asked to hear about; one the user named, or a default set with no value at all, is.
   const declared = new Set(commands.map((c) => c.id));
   const failedAsError = failed.length > 0 && (named || failed.some((r) => declared.has(r.estimator)) || failed.length + skipped.length === records.length);
-  if (options.json) printEstimateJson(print, { file, sample, quantity, base, options, label, reference, offset, loaded, limitSeconds, records, hints });
+  if (options.json)
+    printEstimateJson(print, {
+      file,
+      sample,
+      quantity,
+      base,
+      options,
+      label,
+      reference,
+      offset,
+      loaded,
+      limitSeconds,
+      records,
+      hints,
+      recorded: recordedOutput,
+    });
   else
     printEstimateTable(print, {
       file,
@@ -323,6 +366,7 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
       failed,
       failedAsError,
       hints,
+      recorded: recordedOutput,
     });
   if (skipped.length === records.length) {
     printErr(`hhat: no estimate was made: every estimator was skipped under the ${limitSeconds} s limit; raise --max-seconds or give --max-seconds none`);
@@ -481,6 +525,8 @@ interface EstimateOutput {
   loaded: LoadedSample;
   records: (EstimateRecord & { relative?: number | null })[];
   hints: string[];
+  /** Recorded data: each column's step and the estimators offered for them (recorded-choices.ts). */
+  recorded: { data: RecordedData; estimates: (EstimateRecord & { how: string; relative?: number | null })[] } | null;
 }
 
 /** `--json`: the sample's shape, the unit, and every estimate with the settings it used. */
@@ -499,6 +545,7 @@ function printEstimateJson(
     limitSeconds,
     records,
     hints,
+    recorded,
   }: EstimateOutput & {
     file: string;
     options: EstimateOptions;
@@ -523,6 +570,7 @@ function printEstimateJson(
         maxSeconds: limitSeconds,
         estimates: records,
         ...(hints.length ? { repeats: hints } : {}),
+        ...(recorded ? { recorded: { repeatedRows: recorded.data.repeatedRows, columns: recorded.data.columns, estimates: recorded.estimates } } : {}),
       },
       null,
       2,
@@ -547,6 +595,7 @@ function printEstimateTable(
     failed,
     failedAsError,
     hints,
+    recorded,
   }: EstimateOutput & {
     file: string;
     against: string | undefined;
@@ -593,4 +642,35 @@ function printEstimateTable(
     for (const r of failed) print(`failed: ${failureLine(r)}`);
     if (hints.length) print(['repeated values in the data:', ...hints.map((h) => `  ${h}`)].join('\n'));
   }
+  if (recorded) printRecorded(print, file, sample, quantity, recorded, head[head.length - (reference ? 2 : 1)], reference !== undefined);
+}
+
+/** The recording step of each column and the estimators for recorded data, each saying how it treats the step. */
+function printRecorded(
+  print: (text: string) => void,
+  file: string,
+  sample: Sample,
+  quantity: Quantity,
+  recorded: NonNullable<EstimateOutput['recorded']>,
+  valueHead: string,
+  relative: boolean,
+): void {
+  print(['recorded data, values repeated on a lattice:', ...describeRecorded(recorded.data, sample.n).map((l) => `  ${l}`)].join('\n'));
+  if (!recorded.estimates.length) return;
+  const advice = quantity === 'entropy' ? `; which is least biased at this n and step: hhat advise ${file === STDIN_PATH ? 'FILE' : file}` : '';
+  print(`estimators for recorded data${advice}`);
+  const transfer = quantity === 'transfer-entropy';
+  const rows = recorded.estimates.map((r) => [
+    estimatorLabel(r.estimator),
+    ...(transfer ? [r.direction ?? ''] : []),
+    r.how,
+    r.skipped ? 'skipped (time)' : r.value === null ? `failed (${r.code})` : formatValue(r.value, 7),
+    ...(relative ? [r.relative === null || r.relative === undefined ? '' : formatValue(r.relative, 7)] : []),
+  ]);
+  print(
+    renderTable(['estimator', ...(transfer ? ['direction'] : []), 'how it treats the recording step', valueHead, ...(relative ? ['relative'] : [])], rows, {
+      align: ['left', ...(transfer ? ['left' as const] : []), 'left', 'right', 'right'],
+    }),
+  );
+  for (const r of recorded.estimates) if (r.error) print(`failed: ${failureLine(r)}`);
 }

@@ -133,6 +133,34 @@ export function parseThin(owner: string, raw: SettingValue | undefined): number 
   return value;
 }
 
+/**
+ * The harness's other setting: dequantize=auto|STEP on the estimators that take logs of distances between points
+ * (DEQUANTIZE_FAMILIES), which recorded data with repeated values break. It adds uniform noise within each
+ * column's recording step (auto: the step src/math/lattice.ts detects; a number: that step for every column),
+ * seeded by the data themselves (estimators/index.ts, runEstimator). A spec names it only when it is not none.
+ */
+export const DEQUANTIZE_SETTING = 'dequantize';
+export const DEQUANTIZE_FAMILIES: readonly string[] = ['nearest-neighbour', 'kernel', 'spacing'];
+export type Dequantize = 'none' | 'auto' | number;
+
+/** Reads dequantize=none|auto|STEP (absent: none); `family` must be one that takes it. */
+export function parseDequantize(owner: string, family: string, raw: SettingValue | undefined): Dequantize {
+  if (raw === undefined || raw === 'none') return 'none';
+  if (!DEQUANTIZE_FAMILIES.includes(family)) {
+    throw new UsageError(
+      `${owner}: ${DEQUANTIZE_SETTING} is not a setting of the ${family} family; it applies to ${DEQUANTIZE_FAMILIES.join(', ')} estimators (the ones that take logs of distances between points)`,
+    );
+  }
+  if (raw === 'auto') return 'auto';
+  const value = typeof raw === 'number' ? raw : parseNumber(raw);
+  if (value === undefined || !(value > 0) || !Number.isFinite(value)) {
+    throw new UsageError(
+      `${owner}: ${DEQUANTIZE_SETTING}=${raw} is not allowed; give none, auto (the recording step of each column, detected) or a step > 0 in data units`,
+    );
+  }
+  return value;
+}
+
 export function validateSettings(owner: string, specs: readonly SettingSpec[], given: Record<string, SettingValue>): Settings {
   const known = new Map(specs.map((s) => [s.name, s]));
   for (const key of Object.keys(given)) {
@@ -364,9 +392,9 @@ export function checkEstimator(where: string, value: unknown): Estimator {
   e.settings.forEach((spec, i) => {
     const checked = checkSettingSpec(at, spec, i);
     if (seen.has(checked.name)) throw new UsageError(`${at}: settings[${i}]: the name "${checked.name}" is used twice`);
-    if (checked.name === THIN_SETTING)
+    if (checked.name === THIN_SETTING || checked.name === DEQUANTIZE_SETTING)
       throw new UsageError(
-        `${at}: settings[${i}]: "${THIN_SETTING}" is the harness's own setting of every estimator (use every t-th row); choose another name`,
+        `${at}: settings[${i}]: "${checked.name}" is the harness's own setting (${checked.name === THIN_SETTING ? 'use every t-th row' : 'jitter within the recording step'}); choose another name`,
       );
     seen.add(checked.name);
   });

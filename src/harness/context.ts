@@ -6,7 +6,24 @@ import type { Plan } from './plan.js';
 import { resolvePlan } from './plan.js';
 import { parsePerturbation } from './perturb.js';
 import { tuningGrid } from './tuning.js';
-import type { WorkContext } from './work.js';
+import type { DequantizedTwin, WorkContext } from './work.js';
+import { dequantizedVariant, type ConfiguredEstimator } from '../../estimators/index.js';
+
+/**
+ * With quantize perturbations, each plan estimator that takes `dequantize` and does not set it also runs with
+ * dequantize=auto on the quantized copies (never on the sample as drawn, where it would repeat the plain
+ * estimate): the robustness section then says at which recording step each one's error doubles, with and
+ * without jitter within the step. Appended after the tuning points, so no other index moves.
+ */
+function dequantizedTwins(estimators: ConfiguredEstimator[], taken: Set<string>, quantized: boolean): DequantizedTwin[] {
+  if (!quantized) return [];
+  return estimators.flatMap((e, base) => {
+    const configured = dequantizedVariant(e);
+    if (!configured || taken.has(configured.spec)) return [];
+    taken.add(configured.spec);
+    return [{ base, configured }];
+  });
+}
 
 export function buildContext(plan: Plan): WorkContext {
   // A Plan is a valid PlanInput: resolving it again yields the same plan, with its scenarios and estimators.
@@ -22,12 +39,18 @@ export function buildContext(plan: Plan): WorkContext {
           .filter((t) => !seen.has(t.configured.spec) && Boolean(seen.add(t.configured.spec)))
       : [];
   const perturbations = (robustness?.perturbations ?? []).map(parsePerturbation);
+  const dequantized = dequantizedTwins(
+    estimators,
+    seen,
+    perturbations.some((p) => p.kind === 'quantize'),
+  );
   return {
     plan: resolved.plan,
     scenarios,
     estimators,
     tuning,
-    all: [...estimators, ...tuning.map((t) => t.configured)],
+    dequantized,
+    all: [...estimators, ...tuning.map((t) => t.configured), ...dequantized.map((t) => t.configured)],
     perturbations,
     prepared: scenarios.map((s) => perturbations.map((p) => p.prepare(s))),
   };

@@ -21,6 +21,12 @@ export interface Series {
   estimator: number;
 }
 
+/** A plan estimator (index `base`) run with dequantize=auto on quantized copies of the sample. */
+export interface DequantizedTwin {
+  base: number;
+  configured: ConfiguredEstimator;
+}
+
 export interface Unit {
   index: number;
   scenario: number;
@@ -45,7 +51,9 @@ export interface WorkContext {
   estimators: ConfiguredEstimator[];
   /** Tuning points that are not already a plan estimator (run at the robustness size only). */
   tuning: TuningPoint[];
-  /** Plan estimators followed by the tuning points' estimators: what Series.estimator indexes. */
+  /** Plan estimators with dequantize=auto, run on the quantize perturbations only (context.ts, dequantizedTwins). */
+  dequantized: DequantizedTwin[];
+  /** Plan estimators, then the tuning points' estimators, then the dequantized twins: what Series.estimator indexes. */
   all: ConfiguredEstimator[];
   perturbations: Perturbation[];
   /** Per scenario and perturbation: the prepared perturbation, or why it does not apply. */
@@ -100,6 +108,11 @@ export function planUnits(context: WorkContext): { units: Unit[]; skipped: Skip[
         return;
       }
       for (const e of runnable) perturbed.push({ variant: k + 1, estimator: e });
+      if (p.kind !== 'quantize') return;
+      const twinsFrom = estimators.length + tuning.length;
+      context.dequantized.forEach((twin, t) => {
+        if (runnable.includes(twin.base)) perturbed.push({ variant: k + 1, estimator: twinsFrom + t });
+      });
     });
     for (const n of plan.sampleSizes) {
       const series: Series[] = runnable.map((e) => ({ variant: 0, estimator: e }));

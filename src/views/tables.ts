@@ -5,6 +5,7 @@
 import { formatValue, fullIds, renderTable, toBase, type Base } from '../core/format.js';
 import { estimatorLabel } from '../../estimators/index.js';
 import { rankedGroups, type Cell, type RunFile } from '../analysis/results.js';
+import { doublingText } from '../analysis/resolution.js';
 import { COLUMN_TITLES, rankText, robustnessText, smallestQuantizeStep, wideBestSetNote } from './verdict-text.js';
 
 function pm(value: number, se: number, base: Base, digits = 3): string {
@@ -189,7 +190,28 @@ export function robustnessTable(run: RunFile): string {
     `Robustness at n = ${section.sampleSize} (${section.replicates} paired replicates; worst scenario per column):`,
     renderTable(['estimator', ...columns.map((c) => COLUMN_TITLES[c])], rows, { align: ['left', ...columns.map(() => 'right' as const)] }),
     'How to read it: README, "Reading the robustness table". Per-scenario values: the run file\'s robustness.measures and robustness.tuning.',
+    ...resolutionTable(section),
   ].join('\n');
+}
+
+/**
+ * The recording step at which each estimator's RMSE doubles, raw and with dequantize=auto (src/analysis/resolution.ts);
+ * nothing when the plan has no quantize perturbation.
+ */
+function resolutionTable(section: NonNullable<RunFile['robustness']>): string[] {
+  const rows = section.resolution?.rows ?? [];
+  if (!rows.length) return [];
+  const steps = [...new Set(section.resolution!.measures.flatMap((m) => m.raw.points.map((p) => p.step)))].sort((a, b) => a - b);
+  return [
+    '',
+    `Recording resolution at n = ${section.sampleSize}: the step δ (in SDs of each coordinate) at which the RMSE doubles against the unrounded data's, worst scenario (steps tried: ${steps.join(', ')}):`,
+    renderTable(
+      ['estimator', 'as recorded', 'dequantize=auto'],
+      rows.map((r) => [estimatorLabel(r.estimator), doublingText(r.raw), r.dequantized ? doublingText(r.dequantized) : 'n/a']),
+      { align: ['left', 'right', 'right'] },
+    ),
+    '"≤ δ": doubled, or some estimate failed, at δ (the smallest step tried, or the first where estimates fail); "> δ": not doubled up to the largest step tried; otherwise interpolated between the two steps around it, in log step against log RMSE.',
+  ];
 }
 
 /**

@@ -1,0 +1,147 @@
+/**
+ * The recording step of a column: whether its values lie on a lattice {o + kΔ}, and Δ. Data recorded to a
+ * finite resolution (a logger's 0.01 °C, six decimals of seconds, integer counts) lie on one; data drawn or
+ * computed in double precision do not.
+ *
+ * Two ways, tried in turn:
+ *   decimal places  every value times 10^p is an integer (to within a millionth of the step, far above the
+ *                   rounding of decimal text read into doubles and far below the chance of a continuous value
+ *                   landing there), for the smallest such p; Δ is then 10^-p times the exact integer gcd of the
+ *                   differences between the scaled values, so values recorded to 0.1 but only ever at
+ *                   halves have Δ = 0.5.
+ *   common gap      every gap between sorted distinct values is a whole multiple of the smallest gap, or of a
+ *                   common divisor found by Euclid's algorithm with a tolerance of a few units in the last place
+ *                   (values such as δ·round(x/δ) for an irrational δ); refused when that divisor is under a
+ *                   hundredth of the smallest gap, which continuous data reach at once.
+ *
+ * Cost: one sort, O(n log n); then linear passes over the distinct values.
+ */
+import type { Sample } from '../core/contracts.js';
+import { sortAscending } from './sort.js';
+
+export interface StepReport {
+  /** The lattice step; null when the values are not on a lattice (or all equal). */
+  step: number | null;
+  method: 'decimal places' | 'common gap' | 'none';
+  /** One line a user reads: "recorded to 6 decimal places, on a lattice of step 1e-6". */
+  detail: string;
+  distinct: number;
+}
+
+/** Most decimal places tried; scaled values must also stay below MAX_SCALED so doubles hold them to far better than TOLERANCE. */
+const MAX_PLACES = 15;
+const MAX_SCALED = 1e9;
+/** How close to an integer a scaled value must be, in steps. */
+const TOLERANCE = 1e-6;
+/** A common divisor below this share of the smallest gap is no lattice: continuous data. */
+const SMALLEST_SHARE = 0.01;
+const ULPS = 8 * Number.EPSILON;
+
+function distinctSorted(column: Float64Array): Float64Array {
+  const sorted = sortAscending(Float64Array.from(column));
+  let m = 0;
+  for (let i = 0; i < sorted.length; i++) if (i === 0 || sorted[i] !== sorted[i - 1]) sorted[m++] = sorted[i];
+  return sorted.subarray(0, m);
+}
+
+function gcd(a: number, b: number): number {
+  while (b) [a, b] = [b, a % b];
+  return a;
+}
+
+/** Shortest readable form of a step: 1e-6, 0.25, 0.1702. */
+export function formatStep(step: number): string {
+  const short = Number(step.toPrecision(10));
+  return short < 1e-3 ? short.toExponential().replace(/\.?0+e/, 'e') : String(short);
+}
+
+function decimalStep(values: Float64Array): { step: number; places: number } | null {
+  let largest = 0;
+  for (const v of values) largest = Math.max(largest, Math.abs(v));
+  for (let places = 0; places <= MAX_PLACES; places++) {
+    const scale = 10 ** places;
+    if (largest * scale > MAX_SCALED) return null;
+    let on = true;
+    for (let i = 0; i < values.length && on; i++) {
+      const x = values[i] * scale;
+      on = Math.abs(x - Math.round(x)) <= TOLERANCE;
+    }
+    if (!on) continue;
+    let g = 0;
+    for (let i = 1; i < values.length; i++) g = gcd(Math.round(values[i] * scale) - Math.round(values[i - 1] * scale), g);
+    return { step: g / scale, places };
+  }
+  return null;
+}
+
+function commonGapStep(values: Float64Array): number | null {
+  const m = values.length;
+  let largest = 0;
+  let smallest = Infinity;
+  for (let i = 0; i < m; i++) largest = Math.max(largest, Math.abs(values[i]));
+  for (let i = 1; i < m; i++) smallest = Math.min(smallest, values[i] - values[i - 1]);
+  const ulps = ULPS * largest;
+  // Rounding of each value is a few units in its last place, so a gap's error is about twice that.
+  if (!(smallest > 100 * ulps)) return null;
+  let step = smallest;
+  const multipleOf = (gap: number, s: number) => {
+    const k = Math.round(gap / s);
+    return k >= 1 && Math.abs(gap - k * s) <= 2 * ulps + k * ULPS * s;
+  };
+  for (let i = 1; i < m; i++) {
+    const gap = values[i] - values[i - 1];
+    if (multipleOf(gap, step)) continue;
+    // Euclid's algorithm, a remainder within the rounding counting as zero.
+    let a = gap;
+    let b = step;
+    while (b > 2 * ulps && b >= SMALLEST_SHARE * smallest) {
+      let r = a % b;
+      if (b - r <= 2 * ulps) r = 0;
+      a = b;
+      b = r <= 2 * ulps ? 0 : r;
+    }
+    step = a;
+    if (step < SMALLEST_SHARE * smallest || b !== 0) return null;
+  }
+  // Refine Δ by least squares over the gaps (each gap ≈ k·Δ), then check every gap against it.
+  let num = 0;
+  let den = 0;
+  for (let i = 1; i < m; i++) {
+    const gap = values[i] - values[i - 1];
+    const k = Math.round(gap / step);
+    num += k * gap;
+    den += k * k;
+  }
+  const refined = num / den;
+  for (let i = 1; i < m; i++) if (!multipleOf(values[i] - values[i - 1], refined)) return null;
+  return refined;
+}
+
+/** The lattice step of one column of finite values. */
+export function detectStep(column: Float64Array): StepReport {
+  const values = distinctSorted(column);
+  const distinct = values.length;
+  if (distinct < 2) return { step: null, method: 'none', detail: distinct ? 'all values are equal: no step to find' : 'no values', distinct };
+  const decimal = decimalStep(values);
+  if (decimal) {
+    const places = decimal.places === 0 ? 'whole numbers' : decimal.places === 1 ? '1 decimal place' : `${decimal.places} decimal places`;
+    return { step: decimal.step, method: 'decimal places', detail: `recorded to ${places}, on a lattice of step ${formatStep(decimal.step)}`, distinct };
+  }
+  const common = commonGapStep(values);
+  if (common !== null) {
+    return { step: common, method: 'common gap', detail: `values are on a lattice of step ${formatStep(common)} (every gap a whole multiple of it)`, distinct };
+  }
+  return { step: null, method: 'none', detail: 'no common step: the values are not on a lattice', distinct };
+}
+
+/** detectStep for every column of a sample (a divergence's Q sample separately). */
+export function detectSteps(sample: Sample): StepReport[] {
+  const { n, dim, data } = sample;
+  const column = new Float64Array(n);
+  const reports: StepReport[] = [];
+  for (let j = 0; j < dim; j++) {
+    for (let i = 0; i < n; i++) column[i] = data[i * dim + j];
+    reports.push(detectStep(column));
+  }
+  return reports;
+}
