@@ -7,6 +7,7 @@
  *   transformed[MAP;SPEC]             a monotone map of a 1-D base, e.g. transformed[sinh;normal]
  *   gaussian-covariance[ROW;ROW;...]  any covariance, e.g. gaussian-covariance[1,0.5;0.5,2]
  *   autocorrelated[phi=φ;SPEC]        rows as a stationary AR(1) series with SPEC's law, e.g. autocorrelated[phi=0.9;gamma]
+ *   recorded[step=Δ;SPEC]             SPEC rounded to a lattice of step Δ when recorded, e.g. recorded[step=0.01;normal]
  *   cmi-gaussian-covariance[DX,DY;ROW;...]  conditional MI of a Gaussian (X, Y, Z) with any covariance
  */
 import type { Scenario, ScenarioFamily } from '../src/core/contracts.js';
@@ -18,6 +19,7 @@ import { univariateFamilies } from './univariate.js';
 import { LOOKALIKE_FAMILY, LOOKALIKE_SUMMARY, LOOKALIKE_USAGE, lookalikeScenario, parseLookalikeArgument } from './lookalike.js';
 import { dependenceFamilies } from './dependence.js';
 import { divergenceFamilies } from './divergence-pairs.js';
+import { parseRecordedArgument, RECORDED_FAMILY, RECORDED_SUMMARY, RECORDED_USAGE, recordedScenario } from './recorded.js';
 import { AUTOCORRELATED_FAMILY, AUTOCORRELATED_SUMMARY, AUTOCORRELATED_USAGE, autocorrelatedScenario, parseAutocorrelatedArgument } from './autocorrelated.js';
 import {
   CMI_COVARIANCE_FAMILY,
@@ -51,6 +53,7 @@ export const bracketFamilies = [
   { id: 'gaussian-covariance', usage: 'gaussian-covariance[ROW;ROW;...], entries comma-separated', summary: 'Gaussian with any covariance' },
   { id: LOOKALIKE_FAMILY, usage: LOOKALIKE_USAGE, summary: LOOKALIKE_SUMMARY },
   { id: AUTOCORRELATED_FAMILY, usage: AUTOCORRELATED_USAGE, summary: AUTOCORRELATED_SUMMARY },
+  { id: RECORDED_FAMILY, usage: RECORDED_USAGE, summary: RECORDED_SUMMARY },
   { id: CMI_COVARIANCE_FAMILY, usage: CMI_COVARIANCE_USAGE, summary: 'conditional MI I(X;Y|Z) of a Gaussian with any covariance' },
 ] as const;
 
@@ -120,6 +123,10 @@ function buildScenario(text: string): Scenario {
       case AUTOCORRELATED_FAMILY: {
         const { phi, base } = parseAutocorrelatedArgument(args, text);
         return autocorrelatedScenario(phi, parseScenario(base));
+      }
+      case RECORDED_FAMILY: {
+        const { steps, base } = parseRecordedArgument(args, text);
+        return recordedScenario(steps, parseScenario(base));
       }
       case CMI_COVARIANCE_FAMILY:
         return conditionalCovarianceScenario(parseConditionalCovarianceArgument(args));

@@ -273,6 +273,20 @@ export interface Scenario {
   dependence?: SerialDependence;
   /** Transfer-entropy scenarios: the process facts, including the other direction's value. */
   transfer?: TransferFacts;
+  /** recorded[...]: the lattice the values are rounded to, and the lattice estimator's own target. */
+  recorded?: RecordedFacts;
+}
+
+/** What a recorded[...] scenario states besides its truth (the underlying law's). */
+export interface RecordedFacts {
+  /** The step of each coordinate (0: left as drawn). */
+  steps: number[];
+  base: string;
+  /** Exact Shannon entropy of the recorded values (1-D entropy laws; null otherwise). */
+  discreteEntropy: number | null;
+  /** discreteEntropy + log Δ: what the lattice estimator estimates. */
+  latticeEntropy: number | null;
+  source: string;
 }
 
 /** What a transfer-entropy scenario (te-var1) states besides its truth (`hhat scenarios --json`). */
