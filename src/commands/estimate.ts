@@ -326,8 +326,7 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
           ]
         : [],
   );
-  // On recorded data the step report and the choices replace the bare repeat counts.
-  const hints = !recorded && failed.some((r) => r.code === 'ties') ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
+  const hints = failed.some((r) => r.code === 'ties') ? describeRepeats(findRepeats(sample), loaded.columnNames) : [];
   const recordedOutput = recorded
     ? { data: recorded, estimates: chosen.map((r) => (r.value === null ? r : { ...r, ...(reference ? { relative: r.value + toBase(offset, base) } : {}) })) }
     : null;
@@ -640,7 +639,8 @@ function printEstimateTable(
   // errors go to stderr alone, so a terminal does not show each reason twice.
   if (!failedAsError) {
     for (const r of failed) print(`failed: ${failureLine(r)}`);
-    if (hints.length) print(['repeated values in the data:', ...hints.map((h) => `  ${h}`)].join('\n'));
+    // On recorded data the step report below says the same and more.
+    if (hints.length && !recorded) print(['repeated values in the data:', ...hints.map((h) => `  ${h}`)].join('\n'));
   }
   if (recorded) printRecorded(print, file, sample, quantity, recorded, head[head.length - (reference ? 2 : 1)], reference !== undefined);
 }

@@ -75,9 +75,12 @@ export const DEFAULT_BUDGET_SECONDS = 20;
 
 /** Every registered entropy estimator that supports d, at default settings. */
 export function applicableEstimators(dim: number): string[] {
-  return listEstimators()
-    .filter((e) => e.quantity === 'entropy' && e.dims[0] <= dim && dim <= e.dims[1])
-    .map((e) => parseEstimatorSpec(e.id).spec);
+  return (
+    listEstimators()
+      // The lattice estimator refuses data on no lattice: advice offers it for recorded data only (file.ts).
+      .filter((e) => e.quantity === 'entropy' && e.family !== 'lattice' && e.dims[0] <= dim && dim <= e.dims[1])
+      .map((e) => parseEstimatorSpec(e.id).spec)
+  );
 }
 
 /** The pilot stops starting new scenarios once it has used this share of the budget. */

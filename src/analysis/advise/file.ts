@@ -24,7 +24,8 @@ import type { Sample } from '../../core/contracts.js';
 import { EstimateError, UsageError } from '../../core/errors.js';
 import { DEFAULT_SEED } from '../../core/rng.js';
 import { MAX_BUDGET_SECONDS, tooFewPoints } from './situation.js';
-import { parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../../estimators/index.js';
+import { dequantizedVariant, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../../estimators/index.js';
+import { detectSteps } from '../../math/lattice.js';
 import type { CommandDeclaration } from '../../harness/external/declaration.js';
 import { describeSeconds, largestRowsWhere, predictedReplicateSeconds, predictedSeconds, rowsWithin } from '../../harness/cost-model.js';
 import { defaultWorkers } from '../../harness/runner.js';
@@ -262,6 +263,42 @@ interface AdviceContext {
   lap: (name: string) => void;
 }
 
+/**
+ * Recorded data (some column has tied values and every such column is on a lattice, src/math/lattice.ts): the
+ * look-alike is benchmarked as recorded[step=…;LOOK-ALIKE], rounded to the data's own steps, against the
+ * continuous look-alike's entropy, and the estimators built for recorded data join the comparison: each
+ * estimator that takes dequantize, with dequantize=auto, and the lattice estimator when every column is on a
+ * lattice. Null for data with no ties, or ties off any lattice (pasted rows), which the profile's notes cover.
+ */
+function recordedAdvice(
+  sample: Sample,
+  profile: DataProfile,
+  estimators: string[],
+): { scenario: (lookalike: string) => string; estimators: string[]; note: string } | null {
+  const tied = profile.repeats.columns.map((c) => c.tiedValues > 0);
+  if (!tied.some(Boolean)) return null;
+  const steps = detectSteps(sample);
+  if (steps.some((s, j) => tied[j] && s.step === null)) return null;
+  const configured = estimators.map((spec) => parseEstimatorSpec(spec));
+  const added = [
+    ...configured.flatMap((c) => {
+      const variant = dequantizedVariant(c);
+      return variant && !estimators.includes(variant.spec) ? [variant.spec] : [];
+    }),
+    ...(steps.every((s) => s.step !== null) && !estimators.some((e) => e.startsWith('lattice')) ? [parseEstimatorSpec('lattice').spec] : []),
+  ];
+  const stepText = steps.map((s) => (s.step === null ? 0 : Number(s.step.toPrecision(12)))).join('/');
+  const where = steps
+    .map((s, j) => (s.step === null ? null : `${profile.columns[j].name}: ${s.detail}`))
+    .filter(Boolean)
+    .join('; ');
+  return {
+    scenario: (lookalike) => `recorded[step=${stepText};${lookalike}]`,
+    estimators: [...estimators, ...added],
+    note: `your data are recorded data (${where}; ${profile.repeats.repeatedRows} of ${profile.n} rows repeat an earlier row). The look-alike was recorded at the same steps, its truth the continuous look-alike's, and the benchmark compared ${added.length} estimators built for such data (dequantize=auto: jitter within the step; lattice: discrete entropy plus the log of the step) with the others.`,
+  };
+}
+
 /** The estimator specs to compare, after refusing a file too small for advice or a dimension no estimator supports. */
 function adviceEstimators(fileSample: Sample, specs: string[] | undefined, commands: readonly CommandDeclaration[] = []): string[] {
   const { n: fileRows, dim } = fileSample;
@@ -321,11 +358,11 @@ function analysedSample(ctx: AdviceContext, fileSample: Sample, estimators: stri
 }
 
 /** The targeted benchmark on look-alike draws at the analysed n, within the benchmark's share of what is left of the budget. */
-async function benchmarkLookalike(ctx: AdviceContext, lookalike: Lookalike, estimators: string[], n: number, dim: number): Promise<TargetedBenchmark> {
+async function benchmarkLookalike(ctx: AdviceContext, scenario: string, estimators: string[], n: number, dim: number): Promise<TargetedBenchmark> {
   const { budget, level, elapsed } = ctx;
   ctx.stage('benchmarking estimators on look-alike draws');
   return runTargeted({
-    scenarios: [lookalike.spec],
+    scenarios: [scenario],
     estimators,
     n,
     budgetSeconds: Math.max(0, budget - elapsed()) * (level === null ? 0.9 : BENCHMARK_SHARE),
@@ -361,10 +398,11 @@ function analysisWarnings(
   bench: TargetedBenchmark,
   subsample: AdviceSubsample | null,
   n: number,
+  recorded: boolean,
 ): string[] {
   const { budget, minimumReplicates } = ctx;
   const command = `hhat advise --n ${n} --dim ${profile.dim}`;
-  const warnings = profileWarnings(profile, lookalike, command);
+  const warnings = recorded ? [] : profileWarnings(profile, lookalike, command);
   if (subsample) {
     warnings.unshift(
       `your file has ${subsample.of} rows; the advice above works on a seeded uniform subsample of ${subsample.rows} of them (seed ${ctx.seed}): ${subsample.reason}. The profile, look-alike, benchmark, estimates, interval and bias correction are all at n = ${subsample.rows}; raise --budget (or --workers) for a larger subsample.`,
@@ -515,7 +553,9 @@ export async function adviseFile(fileSample: Sample, options: FileAdviceOptions 
   const lookalike = buildLookalike(sample, { seed: `${seed}`, maxComponents: options.maxComponents, columnNames: profile.columns.map((c) => c.name) });
   lap('lookalike');
 
-  const bench = await benchmarkLookalike(ctx, lookalike, estimators, n, dim);
+  // Recorded data: the look-alike recorded at the data's own steps, and the estimators built for such data join.
+  const recording = recordedAdvice(sample, profile, estimators);
+  const bench = await benchmarkLookalike(ctx, recording ? recording.scenario(lookalike.spec) : lookalike.spec, recording?.estimators ?? estimators, n, dim);
   const summaries = summarise(bench.run);
   const recommendation = recommend(bench.run, summaries, 'look-alike');
   lap('benchmark');
@@ -523,7 +563,8 @@ export async function adviseFile(fileSample: Sample, options: FileAdviceOptions 
   ctx.stage('estimating your data');
   const userEstimates = estimateSample(summaries, sample);
   lap('estimates');
-  const warnings = analysisWarnings(ctx, profile, lookalike, bench, subsample, n);
+  const warnings = analysisWarnings(ctx, profile, lookalike, bench, subsample, n, recording !== null);
+  if (recording) warnings.unshift(recording.note);
   const { estimate, allRows } = chosenEstimate(ctx, fileSample, sample, subsample, recommendation.recommended, summaries, userEstimates, warnings);
   return {
     n,
