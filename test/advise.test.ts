@@ -340,8 +340,11 @@ describe('advise FILE on data a Gaussian mixture cannot imitate', () => {
     const z = normals('advise test: coarse grid', 300);
     const data = Float64Array.from(z, (v) => Math.round(v * 4) / 4);
     const advice = await adviseFile({ n: 300, dim: 1, data }, { replicates: 30, resamples: 40, columnNames: ['reading'] });
-    expect(advice.warnings.some((w) => /reading looks recorded in steps of 0\.25 .* add uniform noise one recording step wide/.test(w))).toBe(true);
-    expect(advice.warnings.some((w) => /rows repeat an earlier row exactly/.test(w))).toBe(true);
+    // Recorded data: the look-alike is benchmarked recorded at the same step, with the estimators built for such data.
+    expect(advice.warnings.some((w) => /^your data are recorded data \(reading: recorded to 2 decimal places, on a lattice of step 0\.25; \d+ of 300 rows repeat/.test(w))).toBe(true);
+    const compared = advice.benchmark.estimators.map((e) => e.estimator);
+    expect(compared).toContain('lattice:step=auto,correction=none');
+    expect(compared).toContain('kozachenko-leonenko:k=3,norm=euclidean,dequantize=auto');
     // Whatever is recommended, the value reported is one that the chosen estimator really gave on these data.
     const used = advice.userEstimates.find((u) => u.estimator === advice.estimate!.estimator)!;
     expect(used.value).toBe(advice.estimate!.value);
