@@ -43,6 +43,11 @@ describe('detectStep', () => {
     const report = detectStep(x.map((v) => delta * Math.round(v / delta)));
     expect(report.method).toBe('common gap');
     expect(report.step! / delta).toBeCloseTo(1, 12);
+    // Sparse: 500 lognormal values on a lattice of 0.001 SD leave most cells empty, so the smallest gap is several steps.
+    const fine = 0.001 * Math.sqrt((Math.E - 1) * Math.E);
+    const sparse = detectStep(x.subarray(0, 500).map((v) => fine * Math.round(Math.exp(v) / fine)));
+    expect(sparse.method).toBe('common gap');
+    expect(sparse.step! / fine).toBeCloseTo(1, 9);
   });
 
   it('says continuous draws and constant columns are on no lattice', () => {

@@ -91,14 +91,15 @@ function commonGapStep(values: Float64Array): number | null {
   for (let i = 1; i < m; i++) {
     const gap = values[i] - values[i - 1];
     if (multipleOf(gap, step)) continue;
-    // Euclid's algorithm, a remainder within the rounding counting as zero.
+    // Euclid's algorithm, a remainder within the rounding (grown by the repeated remainders) counting as zero.
+    const tolerance = Math.max(16 * ulps, 1e-9 * smallest);
     let a = gap;
     let b = step;
-    while (b > 2 * ulps && b >= SMALLEST_SHARE * smallest) {
+    while (b > tolerance && b >= SMALLEST_SHARE * smallest) {
       let r = a % b;
-      if (b - r <= 2 * ulps) r = 0;
+      if (b - r <= tolerance) r = 0;
       a = b;
-      b = r <= 2 * ulps ? 0 : r;
+      b = r <= tolerance ? 0 : r;
     }
     step = a;
     if (step < SMALLEST_SHARE * smallest || b !== 0) return null;
