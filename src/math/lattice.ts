@@ -84,13 +84,15 @@ function commonGapStep(values: Float64Array): number | null {
   // Rounding of each value is a few units in its last place, so a gap's error is about twice that.
   if (!(smallest > 100 * ulps)) return null;
   let step = smallest;
-  const multipleOf = (gap: number, s: number) => {
+  // While searching, the step is a gap itself, off by a few units in the last place of the values, which k
+  // multiples of it grow k-fold; the refined step is checked tightly at the end, which continuous data fail.
+  const multipleOf = (gap: number, s: number, searching: boolean) => {
     const k = Math.round(gap / s);
-    return k >= 1 && Math.abs(gap - k * s) <= 2 * ulps + k * ULPS * s;
+    return k >= 1 && Math.abs(gap - k * s) <= (searching ? 2 * (k + 1) * ulps : 4 * ulps) + k * ULPS * s;
   };
   for (let i = 1; i < m; i++) {
     const gap = values[i] - values[i - 1];
-    if (multipleOf(gap, step)) continue;
+    if (multipleOf(gap, step, true)) continue;
     // Euclid's algorithm, a remainder within the rounding (grown by the repeated remainders) counting as zero.
     const tolerance = Math.max(16 * ulps, 1e-9 * smallest);
     let a = gap;
@@ -114,7 +116,7 @@ function commonGapStep(values: Float64Array): number | null {
     den += k * k;
   }
   const refined = num / den;
-  for (let i = 1; i < m; i++) if (!multipleOf(values[i] - values[i - 1], refined)) return null;
+  for (let i = 1; i < m; i++) if (!multipleOf(values[i] - values[i - 1], refined, false)) return null;
   return refined;
 }
 
