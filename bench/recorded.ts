@@ -48,12 +48,11 @@ console.log(`n = ${n}, ${replicates} replicates, seed ${DEFAULT_SEED}; ${((perfo
 const short = (spec: string) => spec.replace('kozachenko-leonenko', 'KL').replace(':dequantize=auto', ' +jitter').replace(':correction=miller-madow', ' (MM)');
 for (const law of laws) {
   console.log(`\n${law.label}: RMSE against the continuous h, nats (failed replicates in brackets)`);
-  console.log(['| δ / SD | δ', ...estimators.map(short), 'lattice bias vs own target |'].join(' | '));
+  console.log(['| δ / SD | δ', ...estimators.map(short), 'lattice: bias against its own target |'].join(' | '));
   console.log(`|${' --- |'.repeat(estimators.length + 3)}`);
   for (const f of fractions) {
     const id = parseScenario(`recorded[step=${step(f, law.sd)};${law.base}]`).id;
     const cells = run.cells.filter((c) => c.scenario === id && c.role === 'main');
-    const info = run.scenarios.find((s) => s.id === id)!;
     const values = estimators.map((spec) => {
       const cell = cells.find((c) => c.estimator === parseSpecOf(spec, cells));
       if (!cell) return '–';
@@ -63,7 +62,7 @@ for (const law of laws) {
       return failed ? `${rmse} [${failed}]` : rmse;
     });
     const lattice = cells.find((c) => c.estimatorId === 'lattice' && !c.estimator.includes('miller'));
-    const target = (info as { recorded?: { latticeEntropy: number | null } }).recorded?.latticeEntropy ?? null;
+    const target = parseScenario(id).recorded?.latticeEntropy ?? null;
     const own = lattice && target !== null ? (lattice.scores.mean.value - target).toExponential(1) : '–';
     console.log(`| ${f} | ${step(f, law.sd)} | ${values.join(' | ')} | ${own} |`);
   }

@@ -341,7 +341,11 @@ describe('advise FILE on data a Gaussian mixture cannot imitate', () => {
     const data = Float64Array.from(z, (v) => Math.round(v * 4) / 4);
     const advice = await adviseFile({ n: 300, dim: 1, data }, { replicates: 30, resamples: 40, columnNames: ['reading'] });
     // Recorded data: the look-alike is benchmarked recorded at the same step, with the estimators built for such data.
-    expect(advice.warnings.some((w) => /^your data are recorded data \(reading: recorded to 2 decimal places, on a lattice of step 0\.25; \d+ of 300 rows repeat/.test(w))).toBe(true);
+    expect(
+      advice.warnings.some((w) =>
+        /^your data are recorded data \(reading: recorded to 2 decimal places, on a lattice of step 0\.25; \d+ of 300 rows repeat/.test(w),
+      ),
+    ).toBe(true);
     const compared = advice.benchmark.estimators.map((e) => e.estimator);
     expect(compared).toContain('lattice:step=auto,correction=none');
     expect(compared).toContain('kozachenko-leonenko:k=3,norm=euclidean,dequantize=auto');

@@ -83,8 +83,8 @@ export function predictedSeconds(configured: ConfiguredEstimator, n: number, dim
   const { settings } = configured;
   const id = configured.estimator.id;
   switch (id) {
-    case 'histogram':
     // The lattice estimator does what a histogram does: per column a sort (step detection) and a cell code, then one sort.
+    case 'histogram':
     case 'lattice':
       return histogramSeconds(n, dim);
     case 'vasicek':
