@@ -29,6 +29,7 @@ import {
   parseConditionalCovarianceArgument,
 } from './conditional.js';
 import { transferFamilies } from './transfer-entropy.js';
+import { mixedFamilies } from './mixed.js';
 
 const families = new Map<string, ScenarioFamily>();
 for (const f of [
@@ -36,6 +37,7 @@ for (const f of [
   ...multivariateFamilies,
   gaussianMixtureFamily,
   ...dependenceFamilies,
+  ...mixedFamilies,
   ...conditionalFamilies,
   ...transferFamilies,
   ...divergenceFamilies,
