@@ -102,6 +102,10 @@ export function predictedSeconds(configured: ConfiguredEstimator, n: number, dim
     case 'gaussian':
     case 'mi-gaussian':
       return gaussianSeconds(n, dim);
+    // mi-mixed: a joint search and counts in X and Y, as KSG; mi-discrete-continuous: per-label searches and one count in Y.
+    case 'mi-mixed':
+    case 'mi-discrete-continuous':
+      return 2 * knnSearchSeconds(n, dim, numberSetting(settings, 'k', 5));
     case 'ksg1':
     case 'ksg2':
       // The joint search, then radius counts in the X and Y spaces.
