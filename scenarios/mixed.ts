@@ -8,10 +8,15 @@
  *   mi-zero-inflated    X ~ N(0, 1); with probability p, independent of X, Y = 0, else Y = X + σε, ε ~ N(0, 1). The
  *                       indicator Z of Y = 0 is a function of Y almost surely and independent of X, so
  *                       I(X; Y) = I(X; Y, Z) = I(X; Z) + I(X; Y | Z) = 0 + (1 − p) · ½ log(1 + 1/σ²).
+ *   mi-label-gaussian   X uniform on {0, …, m−1} (a class label), Y | X ~ N(X·gap, 1): I = h(Y) − ½ log(2πe), h of
+ *                       the equal-weight Gaussian mixture by adaptive quadrature (error stated in truthSource).
  */
 import { normalRandom } from '../src/math/random.js';
 import type { ParamSpec, ScenarioFamily } from '../src/core/contracts.js';
 import { mutualInformationScenario } from './dependence.js';
+import { entropyByQuadrature, formatError } from './build.js';
+import type { UnivariateDensity } from '../src/core/contracts.js';
+import { normalCdf } from '../src/math/special.js';
 
 const windowSpecs: ParamSpec[] = [{ name: 'm', meaning: 'number of values of X (0, …, m − 1)', default: 4, min: 1, max: 1000, integer: true }];
 
@@ -81,4 +86,66 @@ const miZeroInflated: ScenarioFamily = {
   examples: [{ p: 0.5, sigma: 0.5 }],
 };
 
-export const mixedFamilies: ScenarioFamily[] = [miUniformWindow, miZeroInflated];
+const labelSpecs: ParamSpec[] = [
+  { name: 'm', meaning: 'number of classes (X = 0, …, m − 1)', default: 3, min: 2, max: 50, integer: true },
+  { name: 'gap', meaning: 'distance between neighbouring class means of Y (in SDs)', default: 1, min: 0, minExclusive: true, max: 20 },
+];
+
+/**
+ * Y's law for the quadrature: the equal-weight mixture of N(j·gap, 1), j = 0..m−1, on [−40, (m − 1)·gap + 40]
+ * (the mass outside is below e^−800: nothing in double precision).
+ */
+function labelMixture(m: number, gap: number): UnivariateDensity {
+  const logNorm = -0.5 * Math.log(2 * Math.PI) - Math.log(m);
+  return {
+    lower: -40,
+    upper: (m - 1) * gap + 40,
+    breakpoints: Array.from({ length: m }, (_, j) => j * gap),
+    logDensity: (y) => {
+      let top = -Infinity;
+      for (let j = 0; j < m; j++) top = Math.max(top, -0.5 * (y - j * gap) ** 2);
+      let sum = 0;
+      for (let j = 0; j < m; j++) sum += Math.exp(-0.5 * (y - j * gap) ** 2 - top);
+      return logNorm + top + Math.log(sum);
+    },
+    cdf: (y) => {
+      let sum = 0;
+      for (let j = 0; j < m; j++) sum += normalCdf(y - j * gap);
+      return sum / m;
+    },
+  };
+}
+
+const miLabelGaussian: ScenarioFamily = {
+  id: 'mi-label-gaussian',
+  quantity: 'mutual-information',
+  summary: 'X a class label uniform on {0, …, m−1}, Y | X ~ N(X·gap, 1): I = h(Y) − ½ log(2πe), h by quadrature',
+  params: labelSpecs,
+  create: (p) => {
+    const entropy = entropyByQuadrature(labelMixture(p.m, p.gap));
+    return mutualInformationScenario({
+      family: 'mi-label-gaussian',
+      specs: labelSpecs,
+      params: p,
+      xDim: 1,
+      yDim: 1,
+      truth: entropy.value - 0.5 * Math.log(2 * Math.PI * Math.E),
+      truthSource: `numeric: h(Y) − ½ log(2πe), h of the class mixture by adaptive Gauss–Legendre quadrature on [−40, (m − 1)·gap + 40], error estimate ${formatError(entropy.error)}`,
+      support: 'unbounded',
+      tails: 'light',
+      draw: (rng, n) => {
+        const normal = normalRandom.factory(0, 1, { prng: rng });
+        const data = new Float64Array(2 * n);
+        for (let i = 0; i < n; i++) {
+          const x = Math.min(p.m - 1, Math.floor(rng() * p.m));
+          data[2 * i] = x;
+          data[2 * i + 1] = x * p.gap + normal();
+        }
+        return data;
+      },
+    });
+  },
+  examples: [{ m: 2, gap: 2 }],
+};
+
+export const mixedFamilies: ScenarioFamily[] = [miUniformWindow, miZeroInflated, miLabelGaussian];

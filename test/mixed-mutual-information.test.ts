@@ -22,7 +22,11 @@ interface MixedCase {
 }
 const fixture = JSON.parse(readFileSync(new URL('./fixtures/mixed-mi.json', import.meta.url), 'utf8')) as {
   cases: MixedCase[];
-  truths: { 'mi-uniform-window': { m: number; quadrature: number }[]; 'mi-zero-inflated': { p: number; sigma: number; quadrature: number }[] };
+  truths: {
+    'mi-label-gaussian': { m: number; gap: number; quadrature: number }[];
+    'mi-uniform-window': { m: number; quadrature: number }[];
+    'mi-zero-inflated': { p: number; sigma: number; quadrature: number }[];
+  };
 };
 
 const sampleOf = (c: MixedCase): Sample => ({ n: c.data.length / (c.xDim + c.yDim), dim: c.xDim + c.yDim, data: Float64Array.from(c.data), xDim: c.xDim });
@@ -52,6 +56,12 @@ describe('the mixed scenarios', () => {
   it('mi-zero-inflated: the closed form equals SciPy quadrature to 1e-9', () => {
     for (const t of fixture.truths['mi-zero-inflated']) {
       expect(Math.abs(parseScenario(`mi-zero-inflated:p=${t.p},sigma=${t.sigma}`).truth - t.quadrature)).toBeLessThan(1e-9);
+    }
+  });
+
+  it('mi-label-gaussian: the quadrature truth equals SciPy quadrature to 1e-9', () => {
+    for (const t of fixture.truths['mi-label-gaussian']) {
+      expect(Math.abs(parseScenario(`mi-label-gaussian:m=${t.m},gap=${t.gap}`).truth - t.quadrature)).toBeLessThan(1e-9);
     }
   });
 
