@@ -8,6 +8,7 @@ import { describe, expect, it } from 'vitest';
 import { parseScenario } from '../scenarios/index.js';
 import { drawReplicate } from '../src/core/rng.js';
 import { parseDelimited } from '../src/data/index.js';
+import { runCli } from './helpers/cli.js';
 
 const fixture = JSON.parse(readFileSync(new URL('./fixtures/recorded.json', import.meta.url), 'utf8')) as {
   cases: { base: string; step: number; discreteEntropy: number; latticeEntropy: number }[];
@@ -22,6 +23,18 @@ describe('recorded[...] discrete entropy against SciPy (cell sums of scipy.stats
       expect(scenario.truth).toBe(parseScenario(c.base).truth);
     });
   }
+});
+
+describe('hhat scenarios on recorded[...]', () => {
+  it('--json states the lattice and the recorded values\' own entropy, in the unit asked for', async () => {
+    const { code, out } = await runCli(['scenarios', '--json', '--bits', 'recorded[step=0.1;normal]']);
+    expect(code).toBe(0);
+    const [record] = JSON.parse(out) as { recorded: { steps: number[]; discreteEntropy: number; latticeEntropy: number } }[];
+    const c = fixture.cases.find((x) => x.base === 'normal:mu=0,sigma=1' && x.step === 0.1)!;
+    expect(record.recorded.steps).toEqual([0.1]);
+    expect(Math.abs(record.recorded.discreteEntropy - c.discreteEntropy / Math.LN2)).toBeLessThan(1e-10);
+    expect(Math.abs(record.recorded.latticeEntropy - c.latticeEntropy / Math.LN2)).toBeLessThan(1e-10);
+  });
 });
 
 describe('recorded[...] draws', () => {

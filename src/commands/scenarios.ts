@@ -1,6 +1,6 @@
 import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
-import type { Scenario, SerialDependence, TransferFacts } from '../core/contracts.js';
+import type { RecordedFacts, Scenario, SerialDependence, TransferFacts } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
 import { parseIntegerOption } from '../core/options.js';
 import { countOf, formatValue, fullIds, renderTable, shorten, toBase, type Base } from '../core/format.js';
@@ -24,6 +24,8 @@ export interface ScenarioRecord {
   dependence?: SerialDependence;
   /** Only on transfer-entropy scenarios: the other direction's value, the spectral radius and covariances. */
   transfer?: TransferFacts;
+  /** Only on recorded[...] scenarios: the lattice and, for 1-D laws, the exact entropy of the recorded values. */
+  recorded?: RecordedFacts;
 }
 
 export function scenarioRecord(s: Scenario, base: Base): ScenarioRecord {
@@ -44,6 +46,15 @@ export function scenarioRecord(s: Scenario, base: Base): ScenarioRecord {
     logDensityVariance: variance === undefined ? null : base === 'bits' ? variance / (Math.LN2 * Math.LN2) : variance,
     logDensityVarianceSource: s.logDensityVarianceSource ?? null,
     ...(s.dependence && { dependence: s.dependence }),
+    ...(s.recorded && {
+      recorded: {
+        steps: s.recorded.steps,
+        base: s.recorded.base,
+        discreteEntropy: s.recorded.discreteEntropy === null ? null : toBase(s.recorded.discreteEntropy, base),
+        latticeEntropy: s.recorded.latticeEntropy === null ? null : toBase(s.recorded.latticeEntropy, base),
+        source: s.recorded.source,
+      },
+    }),
     ...(s.transfer && { transfer: { ...s.transfer, forward: toBase(s.transfer.forward, base), reverse: toBase(s.transfer.reverse, base) } }),
   };
 }
@@ -123,6 +134,12 @@ Quote specs with brackets or semicolons in the shell.`,
         if (r.transfer)
           print(
             `${r.id}: a time series (row order matters); the other direction's transfer entropy is ${formatValue(r.transfer.reverse, 7)} ${base} (k = l = 1), spectral radius ${formatValue(r.transfer.spectralRadius, 4)}`,
+          );
+      }
+      for (const r of records) {
+        if (r.recorded?.latticeEntropy !== null && r.recorded?.latticeEntropy !== undefined)
+          print(
+            `${r.id}: the recorded values' own Shannon entropy is ${formatValue(r.recorded.discreteEntropy!, 7)} ${base}; plus log Δ, what the lattice estimator estimates: ${formatValue(r.recorded.latticeEntropy, 7)} ${base}`,
           );
       }
       print(`${countOf(records.length, 'scenario')}. Details of one: hhat scenarios --json SPEC`);
