@@ -6,7 +6,7 @@
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import type { Sample } from '../src/core/contracts.js';
-import { parseScenario } from '../scenarios/index.js';
+import { catalog, parseScenario } from '../scenarios/index.js';
 import { drawReplicate } from '../src/core/rng.js';
 import { parseEstimatorSpec, runEstimator } from '../estimators/index.js';
 
@@ -63,6 +63,17 @@ describe('the mixed scenarios', () => {
     for (const t of fixture.truths['mi-label-gaussian']) {
       expect(Math.abs(parseScenario(`mi-label-gaussian:m=${t.m},gap=${t.gap}`).truth - t.quadrature)).toBeLessThan(1e-9);
     }
+  });
+
+  it('every catalog instance of the three families is in the SciPy fixture', () => {
+    const inFixture = new Set([
+      ...fixture.truths['mi-uniform-window'].map((t) => parseScenario(`mi-uniform-window:m=${t.m}`).id),
+      ...fixture.truths['mi-zero-inflated'].map((t) => parseScenario(`mi-zero-inflated:p=${t.p},sigma=${t.sigma}`).id),
+      ...fixture.truths['mi-label-gaussian'].map((t) => parseScenario(`mi-label-gaussian:m=${t.m},gap=${t.gap}`).id),
+    ]);
+    const listed = catalog().filter((s) => ['mi-uniform-window', 'mi-zero-inflated', 'mi-label-gaussian'].includes(s.family));
+    expect(listed.length).toBe(7);
+    for (const s of listed) expect(inFixture.has(s.id), s.id).toBe(true);
   });
 
   it('at n = 5000 mi-mixed and mi-discrete-continuous are within 0.05 nats of the uniform window’s I, where ksg2 is far off', () => {

@@ -26,7 +26,7 @@ describe('recorded[...] discrete entropy against SciPy (cell sums of scipy.stats
 });
 
 describe('hhat scenarios on recorded[...]', () => {
-  it('--json states the lattice and the recorded values\' own entropy, in the unit asked for', async () => {
+  it("--json states the lattice and the recorded values' own entropy, in the unit asked for", async () => {
     const { code, out } = await runCli(['scenarios', '--json', '--bits', 'recorded[step=0.1;normal]']);
     expect(code).toBe(0);
     const [record] = JSON.parse(out) as { recorded: { steps: number[]; discreteEntropy: number; latticeEntropy: number } }[];
