@@ -102,7 +102,8 @@ export function predictedSeconds(configured: ConfiguredEstimator, n: number, dim
     case 'gaussian':
     case 'mi-gaussian':
       return gaussianSeconds(n, dim);
-    // mi-mixed: a joint search and counts in X and Y, as KSG; mi-discrete-continuous: per-label searches and one count in Y.
+    // mi-mixed: a joint search and counts in X and Y, as KSG; mi-discrete-continuous: per-label searches and two counts in Y
+    // (inclusive, and strict for its tie check).
     case 'mi-mixed':
     case 'mi-discrete-continuous':
       return 2 * knnSearchSeconds(n, dim, numberSetting(settings, 'k', 5));
