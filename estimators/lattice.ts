@@ -12,7 +12,7 @@
 import { defineEstimator, type Estimator, type EstimatorFile, type Sample } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { checkFiniteValues } from '../src/core/sample.js';
-import { sortAscending } from '../src/math/sort.js';
+import { rankKeys, sortAscending } from '../src/math/sort.js';
 import { detectStep } from '../src/math/lattice.js';
 
 function columnSteps(sample: Sample, step: 'auto' | number): number[] {
@@ -46,38 +46,12 @@ function cellCounts(sample: Sample, steps: readonly number[]): { sumCountLogCoun
   const key = new Float64Array(n);
   for (let j = 0; j < dim; j++) {
     for (let i = 0; i < n; i++) key[i] = Math.round(data[i * dim + j] / steps[j]);
-    const distinct = sortAscending(Float64Array.from(key));
-    let m = 0;
-    for (let i = 0; i < n; i++) if (i === 0 || distinct[i] !== distinct[i - 1]) distinct[m++] = distinct[i];
-    for (let i = 0; i < n; i++) {
-      let lo = 0;
-      let hi = m - 1;
-      while (lo < hi) {
-        const mid = (lo + hi) >>> 1;
-        if (distinct[mid] < key[i]) lo = mid + 1;
-        else hi = mid;
-      }
-      // codes · m stays below n², far under 2^53 for any n a machine holds.
-      code[i] = code[i] * m + lo;
-    }
+    const m = rankKeys(key);
+    // codes · m stays below n², far under 2^53 for any n a machine holds.
+    for (let i = 0; i < n; i++) code[i] = code[i] * m + key[i];
     codes *= m;
-    if (codes > n) {
-      // Re-rank the codes so they stay below n.
-      const sorted = sortAscending(Float64Array.from(code));
-      let u = 0;
-      for (let i = 0; i < n; i++) if (i === 0 || sorted[i] !== sorted[i - 1]) sorted[u++] = sorted[i];
-      for (let i = 0; i < n; i++) {
-        let lo = 0;
-        let hi = u - 1;
-        while (lo < hi) {
-          const mid = (lo + hi) >>> 1;
-          if (sorted[mid] < code[i]) lo = mid + 1;
-          else hi = mid;
-        }
-        code[i] = lo;
-      }
-      codes = u;
-    }
+    // Re-rank the codes so they stay below n.
+    if (codes > n) codes = rankKeys(code);
   }
   const sorted = sortAscending(code);
   let sumCountLogCount = 0;
