@@ -282,7 +282,7 @@ export function axisIndices(values: Float64Array, count: number, dim: number, ax
 }
 
 /** Σ c log c over occupied cells and the number of occupied cells, for integer keys in [0, keySpace). */
-function occupiedCellSums(keys: Float64Array, keySpace: number): { sumCountLogCount: number; occupied: number } {
+export function occupiedCellSums(keys: Float64Array, keySpace: number): { sumCountLogCount: number; occupied: number } {
   const n = keys.length;
   let sumCountLogCount = 0;
   let occupied = 0;

@@ -12,7 +12,8 @@
 import { defineEstimator, type Estimator, type EstimatorFile, type Sample } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { checkFiniteValues } from '../src/core/sample.js';
-import { rankKeys, sortAscending } from '../src/math/sort.js';
+import { rankKeys } from '../src/math/sort.js';
+import { occupiedCellSums } from './histogram.js';
 import { detectStep } from '../src/math/lattice.js';
 
 function columnSteps(sample: Sample, step: 'auto' | number): number[] {
@@ -53,19 +54,7 @@ function cellCounts(sample: Sample, steps: readonly number[]): { sumCountLogCoun
     // Re-rank the codes so they stay below n.
     if (codes > n) codes = rankKeys(code);
   }
-  const sorted = sortAscending(code);
-  let sumCountLogCount = 0;
-  let occupied = 0;
-  let run = 1;
-  for (let i = 1; i <= n; i++) {
-    if (i < n && sorted[i] === sorted[i - 1]) run++;
-    else {
-      occupied++;
-      sumCountLogCount += run * Math.log(run);
-      run = 1;
-    }
-  }
-  return { sumCountLogCount, occupied };
+  return occupiedCellSums(code, codes);
 }
 
 export const latticeEstimators: Estimator[] = [
