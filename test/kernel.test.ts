@@ -326,19 +326,22 @@ describe('kernel sums: every fast path against the direct O(n²) sum', () => {
     }
   });
 
-  it('d = 3 with a small bandwidth: auto uses the cell list, with far-point fallback, and agrees', () => {
-    // The cell list prunes once the cutoff radius c·h is small against the whitened spread; with the rules
-    // that needs very large n (h ∝ n^(−1/7)), so here a small numeric bandwidth, as likelihood-cv may pick.
-    // One far outlier has no neighbour within the radius, so its sum takes the full log-space fallback.
+  it('d = 3 with a small bandwidth: the cell list (forced) and auto (blocked at this n) agree, with far-point fallback', () => {
+    // The cell list prunes once the cutoff radius c·h is small against the whitened spread, as here with a
+    // small numeric bandwidth (as likelihood-cv may pick); 'auto' keeps blocked brute force below 4097 points,
+    // where it was measured faster. One far outlier has no neighbour within the radius, and its untruncated sum
+    // is below the double range, so both paths take the log-space fallback for it.
     const base = correlatedGaussian('cells-small-h', 1500, lower3, [0, 0, 0]);
     const data = Float64Array.of(...base.data, 40, 40, -40);
     const sample: Sample = { n: 1501, dim: 3, data };
     const h = 0.06;
-    const result = multivariateLogKernelSums(prepareKernelData(sample).points, sample.n, 3, h);
-    expect(result.path).toBe('cells');
-    expect(result.fallbackPoints).toBeGreaterThanOrEqual(1);
     const { logSums: brute } = bruteLogSumsMd(sample, h);
-    for (let i = 0; i < sample.n; i++) expect(Math.abs(result.logSums[i] - brute[i])).toBeLessThanOrEqual(EXACT_TOLERANCE * Math.max(1, Math.abs(brute[i])));
+    for (const path of ['cells', 'auto'] as const) {
+      const result = multivariateLogKernelSums(prepareKernelData(sample).points, sample.n, 3, h, path);
+      expect(result.path).toBe(path === 'auto' ? 'blocked' : 'cells');
+      expect(result.fallbackPoints).toBeGreaterThanOrEqual(1);
+      for (let i = 0; i < sample.n; i++) expect(Math.abs(result.logSums[i] - brute[i])).toBeLessThanOrEqual(EXACT_TOLERANCE * Math.max(1, Math.abs(brute[i])));
+    }
   });
 
   it('d = 2 (cell list) and d = 6 (blocked brute force) agree to 1e-10', () => {
@@ -461,8 +464,8 @@ describe('d = 2, 3 grid path (split Gaussian) against the direct O(n²) sum and 
       expect(Math.abs(grid.logSums[i] - reference[i]), `point ${i}`).toBeLessThanOrEqual(GRID_POINT_BOUND * Math.max(1, Math.abs(reference[i]) * 1e-3));
   });
 
-  it('auto takes the grid for d = 3 at n = 8000 and agrees with the cell list (the exact path) on Ĥ and every log S_i', () => {
-    const sample = correlatedGaussian('grid-auto-3d', 8000, lower3, [0, 0, 0]);
+  it('auto takes the grid for d = 3 at n = 12000 and agrees with the cell list (the exact path) on Ĥ and every log S_i', () => {
+    const sample = correlatedGaussian('grid-auto-3d', 12000, lower3, [0, 0, 0]);
     const data = prepareKernelData(sample);
     const h = whitenedRuleBandwidth('silverman', sample.n, 3);
     const auto = multivariateLogKernelSums(data.points, sample.n, 3, h);

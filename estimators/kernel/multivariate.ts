@@ -2,23 +2,25 @@
  * Leave-one-out spherical Gaussian kernel sums on whitened points z (row-major n × d):
  *   log S_i, S_i = Σ_{j≠i} exp(−|z_i − z_j|²/(2h²)).
  *
- * Three ways. Exact: pairs farther apart than r = c·h (c from truncation.ts) are skipped, found either with
- * a cell list (a uniform grid of cells of side r/k; a pair within r lies in cells at most k apart along every
- * axis) or by blocked brute force when cells would not prune (large d, or data spanning few cells). Each
- * unordered pair is visited once and added to both points. With the rules' bandwidths, which shrink only
- * like n^(−1/(d+4)), r keeps 40–50% of all pairs at n = 10⁴–10⁵ in d = 3, so this is close to O(n²).
+ * Three ways. Blocked: every pair, in blocks that stay in cache, with no cutoff, so its sums leave nothing out.
+ * Cell list: pairs farther apart than r = c·h (c from truncation.ts) are skipped, by a uniform grid of cells of
+ * side r/k (a pair within r lies in cells at most k apart along every axis); 'auto' takes it only for large n
+ * where it prunes at least half of the pairs (small bandwidths). Each unordered pair is visited once and added
+ * to both points. With the rules' bandwidths, which shrink only like n^(−1/(d+4)), r keeps 40–50% of all
+ * pairs at n = 10⁴–10⁵ in d = 3, so the exact paths are close to O(n²).
  * Grid (d = 2, 3; grid.ts): the Gaussian split into three narrower ones, spread onto a grid, convolved and
  * read back, linear in n with a derived relative error bound of 2e-6 per log S_i; 'auto' takes it where its
- * estimated cost is lower (from about n = 8000 at the rule's h in d = 3).
+ * estimated cost is lower (from about n = 10⁴ at the rule's h in d = 3).
  *
- * A point whose kept or grid sum is below 1 (including 0: nothing within r) is summed exactly, in log space
- * relative to its nearest neighbour: over all n points while few points are involved (FULL_PASS_MAX_TERMS),
- * else from its neighbourhood (neighbourhood.ts: the cell list, or the kd-tree for far points). That keeps the truncation bound n·exp(−c²/2) valid for it and gives a far outlier
- * its exact log S_i however far below the double range S_i lies. Whitened coordinates are at most about
- * √n, so squared distances cannot overflow; only a bandwidth so small that (distance/h)² overflows leaves no
- * double, and log S_i is then −∞. When h² is not a normal double (h < 1.5e-154 or h > 1.3e154) the
- * truncated pass's radius and exponent scale would be rounded to 0 or ∞, so every point takes the full
- * log-space sum over all n instead.
+ * A point whose cell-list or grid sum is below 1 (including 0: nothing within r), or whose blocked sum is
+ * below MIN_UNTRUNCATED_SUM, is summed again without truncation: over all n points while few points are
+ * involved (FULL_PASS_MAX_TERMS), else from its neighbourhood (neighbourhood.ts: the cell list, or the kd-tree
+ * for far points); in log space relative to its nearest neighbour where the plain sum is below the double
+ * range. That keeps the truncation bound n·exp(−c²/2) valid for it and gives a far outlier its exact log S_i
+ * however far below the double range S_i lies. Whitened coordinates are at most about √n, so squared
+ * distances cannot overflow; only a bandwidth so small that (distance/h)² overflows leaves no double, and
+ * log S_i is then −∞. When h² is not a normal double (h < 1.5e-154 or h > 1.3e154) the exponent scale would
+ * be rounded to 0 or ∞, so every point takes the log-space sum over all n instead.
  */
 import { KnnIndex } from '../../src/math/knn.js';
 import { type GridPlan, gridLogKernelSums, isInside, planGrid } from './grid.js';
@@ -34,12 +36,16 @@ export const GRID_MAX_DIM = 3;
 
 /**
  * Below these sizes 'auto' does not even plan the grid (sorting every column costs about 5% of a small
- * estimate): the grid wins from about n = 500 in d = 2 and 5000–8000 in d = 3 at the rules' bandwidths.
+ * estimate): the grid wins from about n = 1200 in d = 2 and 10⁴ in d = 3 at the rules' bandwidths.
  */
 const GRID_MIN_POINTS: Record<number, number> = { 2: 256, 3: 2048 };
 
-/** Above this dimension the 3^d − 1 neighbouring cells cost more than they prune. */
-export const MAX_CELL_LIST_DIM = 5;
+/**
+ * Above this dimension 'auto' builds no cell list: its 3^d − 1 neighbouring cells prune little, and the points
+ * it leaves with a sum below 1 cost a log-space pass each, so at d = 5 blocked brute force was faster at every
+ * size and bandwidth measured (n = 500–20000, the rule's h and h/2: 1.3–5× faster).
+ */
+export const MAX_CELL_LIST_DIM = 3;
 
 /**
  * Cells per cutoff radius along an axis: finer cells fit the ball of radius r more closely (fewer distance
@@ -51,13 +57,24 @@ function cellsPerRadius(dim: number): number {
 }
 
 /**
- * The cell list is used when it visits at most this fraction of the n(n−1)/2 pairs: both paths evaluate
- * the same exponentials, the cell list saves only distance evaluations and pays for its index.
+ * The cell list is used when it examines at most this fraction of the n(n−1)/2 pairs and n is above
+ * CELL_LIST_MIN_POINTS. Its pair loop costs what the blocked one does, but it pays for its index and for a
+ * log-space pass over all points for each point whose kept sum is below 1, which small bandwidths make
+ * common. Measured (d = 3, normal data, rule's h × 0.25…1): blocked was faster at every n ≤ 5000
+ * (n = 2000, h/4: 21 against 84 ms), the cell list from n = 10⁴ at h/2 (150 against 447 ms).
  */
-const CELL_LIST_MAX_PAIR_FRACTION = 0.9;
+const CELL_LIST_MAX_PAIR_FRACTION = 0.5;
+const CELL_LIST_MIN_POINTS = 4096;
 
 /** Points per block in the brute-force loop: two blocks of coordinates stay in L1/L2 cache. */
 const BLOCK_SIZE = 256;
+
+/**
+ * The smallest blocked (untruncated) sum taken as it is. Terms that underflow are off by at most 2^−1074 each
+ * (exp.ts), so n of them move a sum of at least 2^−1000 by a relative n·2^−74 (5e-12 at n = 10^11, beyond any
+ * n the pair loops see); below it the sum is taken again in log space relative to the nearest neighbour.
+ */
+const MIN_UNTRUNCATED_SUM = 2 ** -1000;
 
 /** The smallest normal double, 2^−1022: below it h² has lost precision. */
 const MIN_NORMAL = 2 ** -1022;
@@ -70,18 +87,18 @@ export interface MultivariateKernelSums {
   fallbackPoints: number;
 }
 
-/** Adds exp(−|z_i − z_j|²/(2h²)) for pairs of points in [fromA, toA) × [fromB, toB), j > i when the ranges coincide. */
-function accumulatePairs(
-  z: Float64Array,
-  dim: number,
-  fromA: number,
-  toA: number,
-  fromB: number,
-  toB: number,
-  radiusSquared: number,
-  exponentScale: number,
-  sums: Float64Array,
-): void {
+/*
+ * The pair loops add exp(−|z_i − z_j|²/(2h²)) for every pair of points in [fromA, toA) × [fromB, toB) (j > i
+ * when the ranges coincide), each term to both points. They test no radius: an exponential costs less than
+ * the mispredicted branch a radius test takes on about half the pairs (d = 3, n = 2000: 6.0 against 8.5 ns a
+ * pair; test at the end of this file's history in the closing notes), and a term left in is never an error.
+ * A term below the double range rounds to 0 or a subnormal (absolute error ≤ 2^−1074), see exp.ts.
+ * One loop per common dimension, unrolled, taking two rows p, p + 1 against each q: at d = 5 unrolling is 1.5×
+ * the speed of the loop over axes, and two rows at once another 1.5× at d = 3 (6.8 against 4.5 ns a pair,
+ * n = 2000), the two exponentials being independent work. The squared distance is summed in axis order as
+ * in the loop over axes; q receives its two terms added together.
+ */
+function pairTerms(z: Float64Array, dim: number, fromA: number, toA: number, fromB: number, toB: number, exponentScale: number, sums: Float64Array): void {
   const same = fromA === fromB;
   for (let p = fromA; p < toA; p++) {
     const rowP = p * dim;
@@ -93,52 +110,251 @@ function accumulatePairs(
         const difference = z[rowP + k] - z[rowQ + k];
         distanceSquared += difference * difference;
       }
-      if (distanceSquared <= radiusSquared) {
-        const term = expNonPositive(exponentScale * distanceSquared);
-        sumP += term;
-        sums[q] += term;
-      }
+      const term = expNonPositive(exponentScale * distanceSquared);
+      sumP += term;
+      sums[q] += term;
     }
     sums[p] += sumP;
   }
 }
 
-/**
- * Same as accumulatePairs for d = 3, unrolled: the common case and the benchmark target (about 20% faster
- * than the loop on 8000 whitened normal points, cell list and blocked paths alike).
- */
-function accumulatePairs3(
-  z: Float64Array,
-  fromA: number,
-  toA: number,
-  fromB: number,
-  toB: number,
-  radiusSquared: number,
-  exponentScale: number,
-  sums: Float64Array,
-): void {
+function pairTerms2(z: Float64Array, fromA: number, toA: number, fromB: number, toB: number, exponentScale: number, sums: Float64Array): void {
   const same = fromA === fromB;
-  for (let p = fromA; p < toA; p++) {
-    const x0 = z[3 * p];
+  let p = fromA;
+  for (; p + 1 < toA; p += 2) {
+    const x0 = z[2 * p + 0];
+    const x1 = z[2 * p + 1];
+    const y0 = z[2 * p + 2];
+    const y1 = z[2 * p + 3];
+    let sumX = 0;
+    let sumY = 0;
+    let q = fromB;
+    if (same) {
+      const term = expNonPositive(exponentScale * ((x0 - y0) * (x0 - y0) + (x1 - y1) * (x1 - y1)));
+      sumX += term;
+      sumY += term;
+      q = p + 2;
+    }
+    for (; q < toB; q++) {
+      const w0 = z[2 * q + 0];
+      const w1 = z[2 * q + 1];
+      const a0 = x0 - w0;
+      const a1 = x1 - w1;
+      const b0 = y0 - w0;
+      const b1 = y1 - w1;
+      const termX = expNonPositive(exponentScale * (a0 * a0 + a1 * a1));
+      const termY = expNonPositive(exponentScale * (b0 * b0 + b1 * b1));
+      sumX += termX;
+      sumY += termY;
+      sums[q] += termX + termY;
+    }
+    sums[p] += sumX;
+    sums[p + 1] += sumY;
+  }
+  if (p < toA) {
+    const x0 = z[2 * p + 0];
+    const x1 = z[2 * p + 1];
+    let sumX = 0;
+    for (let q = same ? p + 1 : fromB; q < toB; q++) {
+      const a0 = x0 - z[2 * q + 0];
+      const a1 = x1 - z[2 * q + 1];
+      const term = expNonPositive(exponentScale * (a0 * a0 + a1 * a1));
+      sumX += term;
+      sums[q] += term;
+    }
+    sums[p] += sumX;
+  }
+}
+
+function pairTerms3(z: Float64Array, fromA: number, toA: number, fromB: number, toB: number, exponentScale: number, sums: Float64Array): void {
+  const same = fromA === fromB;
+  let p = fromA;
+  for (; p + 1 < toA; p += 2) {
+    const x0 = z[3 * p + 0];
     const x1 = z[3 * p + 1];
     const x2 = z[3 * p + 2];
-    let sumP = 0;
-    for (let q = same ? p + 1 : fromB; q < toB; q++) {
-      const d0 = x0 - z[3 * q];
-      const d1 = x1 - z[3 * q + 1];
-      const d2 = x2 - z[3 * q + 2];
-      const distanceSquared = d0 * d0 + d1 * d1 + d2 * d2;
-      if (distanceSquared <= radiusSquared) {
-        const term = expNonPositive(exponentScale * distanceSquared);
-        sumP += term;
-        sums[q] += term;
-      }
+    const y0 = z[3 * p + 3];
+    const y1 = z[3 * p + 4];
+    const y2 = z[3 * p + 5];
+    let sumX = 0;
+    let sumY = 0;
+    let q = fromB;
+    if (same) {
+      const term = expNonPositive(exponentScale * ((x0 - y0) * (x0 - y0) + (x1 - y1) * (x1 - y1) + (x2 - y2) * (x2 - y2)));
+      sumX += term;
+      sumY += term;
+      q = p + 2;
     }
-    sums[p] += sumP;
+    for (; q < toB; q++) {
+      const w0 = z[3 * q + 0];
+      const w1 = z[3 * q + 1];
+      const w2 = z[3 * q + 2];
+      const a0 = x0 - w0;
+      const a1 = x1 - w1;
+      const a2 = x2 - w2;
+      const b0 = y0 - w0;
+      const b1 = y1 - w1;
+      const b2 = y2 - w2;
+      const termX = expNonPositive(exponentScale * (a0 * a0 + a1 * a1 + a2 * a2));
+      const termY = expNonPositive(exponentScale * (b0 * b0 + b1 * b1 + b2 * b2));
+      sumX += termX;
+      sumY += termY;
+      sums[q] += termX + termY;
+    }
+    sums[p] += sumX;
+    sums[p + 1] += sumY;
+  }
+  if (p < toA) {
+    const x0 = z[3 * p + 0];
+    const x1 = z[3 * p + 1];
+    const x2 = z[3 * p + 2];
+    let sumX = 0;
+    for (let q = same ? p + 1 : fromB; q < toB; q++) {
+      const a0 = x0 - z[3 * q + 0];
+      const a1 = x1 - z[3 * q + 1];
+      const a2 = x2 - z[3 * q + 2];
+      const term = expNonPositive(exponentScale * (a0 * a0 + a1 * a1 + a2 * a2));
+      sumX += term;
+      sums[q] += term;
+    }
+    sums[p] += sumX;
   }
 }
 
-/** Pairs between two ranges of points (or within one), with the d = 3 loop when it applies. */
+function pairTerms4(z: Float64Array, fromA: number, toA: number, fromB: number, toB: number, exponentScale: number, sums: Float64Array): void {
+  const same = fromA === fromB;
+  let p = fromA;
+  for (; p + 1 < toA; p += 2) {
+    const x0 = z[4 * p + 0];
+    const x1 = z[4 * p + 1];
+    const x2 = z[4 * p + 2];
+    const x3 = z[4 * p + 3];
+    const y0 = z[4 * p + 4];
+    const y1 = z[4 * p + 5];
+    const y2 = z[4 * p + 6];
+    const y3 = z[4 * p + 7];
+    let sumX = 0;
+    let sumY = 0;
+    let q = fromB;
+    if (same) {
+      const term = expNonPositive(exponentScale * ((x0 - y0) * (x0 - y0) + (x1 - y1) * (x1 - y1) + (x2 - y2) * (x2 - y2) + (x3 - y3) * (x3 - y3)));
+      sumX += term;
+      sumY += term;
+      q = p + 2;
+    }
+    for (; q < toB; q++) {
+      const w0 = z[4 * q + 0];
+      const w1 = z[4 * q + 1];
+      const w2 = z[4 * q + 2];
+      const w3 = z[4 * q + 3];
+      const a0 = x0 - w0;
+      const a1 = x1 - w1;
+      const a2 = x2 - w2;
+      const a3 = x3 - w3;
+      const b0 = y0 - w0;
+      const b1 = y1 - w1;
+      const b2 = y2 - w2;
+      const b3 = y3 - w3;
+      const termX = expNonPositive(exponentScale * (a0 * a0 + a1 * a1 + a2 * a2 + a3 * a3));
+      const termY = expNonPositive(exponentScale * (b0 * b0 + b1 * b1 + b2 * b2 + b3 * b3));
+      sumX += termX;
+      sumY += termY;
+      sums[q] += termX + termY;
+    }
+    sums[p] += sumX;
+    sums[p + 1] += sumY;
+  }
+  if (p < toA) {
+    const x0 = z[4 * p + 0];
+    const x1 = z[4 * p + 1];
+    const x2 = z[4 * p + 2];
+    const x3 = z[4 * p + 3];
+    let sumX = 0;
+    for (let q = same ? p + 1 : fromB; q < toB; q++) {
+      const a0 = x0 - z[4 * q + 0];
+      const a1 = x1 - z[4 * q + 1];
+      const a2 = x2 - z[4 * q + 2];
+      const a3 = x3 - z[4 * q + 3];
+      const term = expNonPositive(exponentScale * (a0 * a0 + a1 * a1 + a2 * a2 + a3 * a3));
+      sumX += term;
+      sums[q] += term;
+    }
+    sums[p] += sumX;
+  }
+}
+
+function pairTerms5(z: Float64Array, fromA: number, toA: number, fromB: number, toB: number, exponentScale: number, sums: Float64Array): void {
+  const same = fromA === fromB;
+  let p = fromA;
+  for (; p + 1 < toA; p += 2) {
+    const x0 = z[5 * p + 0];
+    const x1 = z[5 * p + 1];
+    const x2 = z[5 * p + 2];
+    const x3 = z[5 * p + 3];
+    const x4 = z[5 * p + 4];
+    const y0 = z[5 * p + 5];
+    const y1 = z[5 * p + 6];
+    const y2 = z[5 * p + 7];
+    const y3 = z[5 * p + 8];
+    const y4 = z[5 * p + 9];
+    let sumX = 0;
+    let sumY = 0;
+    let q = fromB;
+    if (same) {
+      const term = expNonPositive(
+        exponentScale * ((x0 - y0) * (x0 - y0) + (x1 - y1) * (x1 - y1) + (x2 - y2) * (x2 - y2) + (x3 - y3) * (x3 - y3) + (x4 - y4) * (x4 - y4)),
+      );
+      sumX += term;
+      sumY += term;
+      q = p + 2;
+    }
+    for (; q < toB; q++) {
+      const w0 = z[5 * q + 0];
+      const w1 = z[5 * q + 1];
+      const w2 = z[5 * q + 2];
+      const w3 = z[5 * q + 3];
+      const w4 = z[5 * q + 4];
+      const a0 = x0 - w0;
+      const a1 = x1 - w1;
+      const a2 = x2 - w2;
+      const a3 = x3 - w3;
+      const a4 = x4 - w4;
+      const b0 = y0 - w0;
+      const b1 = y1 - w1;
+      const b2 = y2 - w2;
+      const b3 = y3 - w3;
+      const b4 = y4 - w4;
+      const termX = expNonPositive(exponentScale * (a0 * a0 + a1 * a1 + a2 * a2 + a3 * a3 + a4 * a4));
+      const termY = expNonPositive(exponentScale * (b0 * b0 + b1 * b1 + b2 * b2 + b3 * b3 + b4 * b4));
+      sumX += termX;
+      sumY += termY;
+      sums[q] += termX + termY;
+    }
+    sums[p] += sumX;
+    sums[p + 1] += sumY;
+  }
+  if (p < toA) {
+    const x0 = z[5 * p + 0];
+    const x1 = z[5 * p + 1];
+    const x2 = z[5 * p + 2];
+    const x3 = z[5 * p + 3];
+    const x4 = z[5 * p + 4];
+    let sumX = 0;
+    for (let q = same ? p + 1 : fromB; q < toB; q++) {
+      const a0 = x0 - z[5 * q + 0];
+      const a1 = x1 - z[5 * q + 1];
+      const a2 = x2 - z[5 * q + 2];
+      const a3 = x3 - z[5 * q + 3];
+      const a4 = x4 - z[5 * q + 4];
+      const term = expNonPositive(exponentScale * (a0 * a0 + a1 * a1 + a2 * a2 + a3 * a3 + a4 * a4));
+      sumX += term;
+      sums[q] += term;
+    }
+    sums[p] += sumX;
+  }
+}
+
+/** Pairs between two ranges of points (or within one), with the dimension's unrolled loop where there is one. */
 function accumulateRanges(
   z: Float64Array,
   dim: number,
@@ -146,19 +362,21 @@ function accumulateRanges(
   toA: number,
   fromB: number,
   toB: number,
-  radiusSquared: number,
   exponentScale: number,
   sums: Float64Array,
 ): void {
-  if (dim === 3) accumulatePairs3(z, fromA, toA, fromB, toB, radiusSquared, exponentScale, sums);
-  else accumulatePairs(z, dim, fromA, toA, fromB, toB, radiusSquared, exponentScale, sums);
+  if (dim === 3) pairTerms3(z, fromA, toA, fromB, toB, exponentScale, sums);
+  else if (dim === 2) pairTerms2(z, fromA, toA, fromB, toB, exponentScale, sums);
+  else if (dim === 5) pairTerms5(z, fromA, toA, fromB, toB, exponentScale, sums);
+  else if (dim === 4) pairTerms4(z, fromA, toA, fromB, toB, exponentScale, sums);
+  else pairTerms(z, dim, fromA, toA, fromB, toB, exponentScale, sums);
 }
 
-function blockedSums(z: Float64Array, n: number, dim: number, radiusSquared: number, exponentScale: number, sums: Float64Array): void {
+function blockedSums(z: Float64Array, n: number, dim: number, exponentScale: number, sums: Float64Array): void {
   for (let fromA = 0; fromA < n; fromA += BLOCK_SIZE) {
     const toA = Math.min(fromA + BLOCK_SIZE, n);
     for (let fromB = fromA; fromB < n; fromB += BLOCK_SIZE) {
-      accumulateRanges(z, dim, fromA, toA, fromB, Math.min(fromB + BLOCK_SIZE, n), radiusSquared, exponentScale, sums);
+      accumulateRanges(z, dim, fromA, toA, fromB, Math.min(fromB + BLOCK_SIZE, n), exponentScale, sums);
     }
   }
 }
@@ -330,12 +548,15 @@ function buildCellList(z: Float64Array, n: number, dim: number, radius: number, 
 }
 
 /**
- * log S_i over all j ≠ i, without truncation, relative to the nearest neighbour (scratch: length n). In
- * bandwidths, u_j = |z_i − z_j|/h, log S_i = −u_min²/2 + log Σ_j exp(−(u_j − u_min)(u_j + u_min)/2): the
- * nearest term is exactly 1, so the sum is ≥ 1, and no h² is formed, so any h > 0 works.
+ * log S_i over all j ≠ i, without truncation (scratch: length n). First the plain sum Σ_j exp(s·|z_i − z_j|²),
+ * s = −1/(2h²) (`exponentScale`, NaN when h² is not a normal double): taken when it is at least
+ * MIN_UNTRUNCATED_SUM, as for the blocked sums. Otherwise relative to the nearest neighbour: in bandwidths,
+ * u_j = |z_i − z_j|/h, log S_i = −u_min²/2 + log Σ_j exp(−(u_j − u_min)(u_j + u_min)/2): the nearest term is
+ * exactly 1, so the sum is ≥ 1, and no h² is formed, so any h > 0 works.
  */
-export function fullLogKernelSum(z: Float64Array, n: number, dim: number, i: number, bandwidth: number, scratch: Float64Array): number {
+export function fullLogKernelSum(z: Float64Array, n: number, dim: number, i: number, bandwidth: number, exponentScale: number, scratch: Float64Array): number {
   let nearestSquared = Infinity;
+  let direct = 0;
   const rowI = i * dim;
   for (let j = 0; j < n; j++) {
     if (j === i) continue;
@@ -345,8 +566,10 @@ export function fullLogKernelSum(z: Float64Array, n: number, dim: number, i: num
       distanceSquared += difference * difference;
     }
     scratch[j] = distanceSquared;
+    direct += expNonPositive(exponentScale * distanceSquared);
     if (distanceSquared < nearestSquared) nearestSquared = distanceSquared;
   }
+  if (direct >= MIN_UNTRUNCATED_SUM) return Math.log(direct);
   const nearest = Math.sqrt(nearestSquared) / bandwidth;
   // −u_min²/2 is below every double: nothing finite to return, and ∞ − ∞ below would make NaN.
   if (nearest * nearest === Infinity) return -Infinity;
@@ -359,22 +582,22 @@ export function fullLogKernelSum(z: Float64Array, n: number, dim: number, i: num
   return Math.log(sum) - 0.5 * nearest * nearest;
 }
 
-/** Exact pair sums within the radius, by the cell list when it prunes enough, else blocked brute force. */
+/**
+ * Exact pair sums: by the cell list when it prunes enough (every pair in neighbouring cells, which holds
+ * every pair within the radius), else every pair by blocked brute force.
+ */
 function exactPairSums(
   z: Float64Array,
   n: number,
   dim: number,
-  radius: number,
   exponentScale: number,
   path: MultivariatePath,
   cells: CellList | undefined,
   sums: Float64Array,
 ): 'cells' | 'blocked' {
-  const radiusSquared = radius * radius;
-  const allPairs = (n * (n - 1)) / 2;
-  const worthIt = cells !== undefined && (path === 'cells' || cells.examinedPairs <= CELL_LIST_MAX_PAIR_FRACTION * allPairs);
+  const worthIt = cells !== undefined && (path === 'cells' || cellListPays(n, cells.examinedPairs));
   if (!cells || !worthIt) {
-    blockedSums(z, n, dim, radiusSquared, exponentScale, sums);
+    blockedSums(z, n, dim, exponentScale, sums);
     return 'blocked';
   }
   const { ordered, order, cellStart, neighbourPairs } = cells;
@@ -383,25 +606,38 @@ function exactPairSums(
   for (let c = 0; c < cellCount; c++) {
     const from = cellStart[c];
     const to = cellStart[c + 1];
-    accumulateRanges(ordered, dim, from, to, from, to, radiusSquared, exponentScale, orderedSums);
+    accumulateRanges(ordered, dim, from, to, from, to, exponentScale, orderedSums);
   }
   for (let e = 0; e < neighbourPairs.length; e += 2) {
     const a = neighbourPairs[e];
     const b = neighbourPairs[e + 1];
-    accumulateRanges(ordered, dim, cellStart[a], cellStart[a + 1], cellStart[b], cellStart[b + 1], radiusSquared, exponentScale, orderedSums);
+    accumulateRanges(ordered, dim, cellStart[a], cellStart[a + 1], cellStart[b], cellStart[b + 1], exponentScale, orderedSums);
   }
   for (let p = 0; p < n; p++) sums[order[p]] = orderedSums[p];
   return 'cells';
 }
 
+function cellListPays(n: number, examinedPairs: number): boolean {
+  return n > CELL_LIST_MIN_POINTS && examinedPairs <= CELL_LIST_MAX_PAIR_FRACTION * ((n * (n - 1)) / 2);
+}
+
 /**
- * Costs in CPU seconds (Node 20, this project's 2-core machine under a load of about 3.5; normal samples,
- * d = 2 and 3, n = 5000 and 20000, the rule's h and 4h): a pair the cell list examines (measured 12–29 ns)
- * and a grid node a point's window touches (about 2.5 ns; d = 2 runs up to twice its estimate, from fixed
- * costs, and is far cheaper than its cell list anyway). The grid is chosen where its estimated cost is lower.
+ * Costs in CPU seconds (Node 20, this project's 2-core machine): a pair of the exact loops (6.4–7 ns at
+ * d = 2, 3, n = 2000, quiet machine; 9–11 ns at n = 5000–10⁴), a pair an outside point's neighbourhood search
+ * examines (12–29 ns, measured under a load of about 3.5 when the neighbourhood searches were written), and a
+ * grid node a point's window touches (d = 2: about 2.5 ns, its fixed costs included; d = 3: 1.5 ns, fitted to
+ * the grid's times at n = 3000–10⁴). The grid is chosen where its estimated cost is lower than the exact path's:
+ * in d = 3 from about n = 10⁴, in d = 2 from about 1200 (quiet machine, after the two-row pair loops).
  */
+const SECONDS_PER_PAIR = 5e-9;
 const SECONDS_PER_EXAMINED_PAIR = 1.5e-8;
-const SECONDS_PER_WINDOW_NODE = 2.5e-9;
+const SECONDS_PER_WINDOW_NODE: Record<number, number> = { 2: 2.5e-9, 3: 1.5e-9 };
+
+/** Estimated seconds of the exact path 'auto' would take: the cell list where it pays, else every pair. */
+function exactSeconds(n: number, cells: CellList | undefined): number {
+  const pairs = cells && cellListPays(n, cells.examinedPairs) ? cells.examinedPairs : (n * (n - 1)) / 2;
+  return pairs * SECONDS_PER_PAIR;
+}
 
 /** Estimated seconds of the grid path: windows, convolution passes, and the outside points' neighbourhoods. */
 function gridSeconds(plan: GridPlan, n: number, examinedPairs: number): number {
@@ -410,7 +646,7 @@ function gridSeconds(plan: GridPlan, n: number, examinedPairs: number): number {
   const convolution = totalNodes * dim * (2 * taps + 1);
   // An outside point's neighbourhood: about twice the pairs per point the cell list examines, at k-NN cost.
   const outside = (n - insideCount) * 4 * (examinedPairs / n);
-  return (windows + convolution) * SECONDS_PER_WINDOW_NODE + outside * SECONDS_PER_EXAMINED_PAIR;
+  return (windows + convolution) * SECONDS_PER_WINDOW_NODE[dim] + outside * SECONDS_PER_EXAMINED_PAIR;
 }
 
 /**
@@ -430,7 +666,7 @@ export function multivariateLogKernelSums(z: Float64Array, n: number, dim: numbe
   if (!(bandwidthSquared >= MIN_NORMAL && bandwidthSquared < Infinity)) {
     // Every point: the truncated pass cannot be formed (see the file comment), and so neither can the grid.
     const scratch = new Float64Array(n);
-    for (let i = 0; i < n; i++) logSums[i] = fullLogKernelSum(z, n, dim, i, bandwidth, scratch);
+    for (let i = 0; i < n; i++) logSums[i] = fullLogKernelSum(z, n, dim, i, bandwidth, NaN, scratch);
     return { logSums, path: 'blocked', fallbackPoints: n };
   }
 
@@ -438,11 +674,9 @@ export function multivariateLogKernelSums(z: Float64Array, n: number, dim: numbe
   const worthPlanning = path === 'grid' || (path === 'auto' && n >= GRID_MIN_POINTS[dim]);
   const plan = worthPlanning && gridDims ? planGrid(z, n, dim, bandwidth) : undefined;
   // The cell list also serves the exact neighbourhoods of isolated and outside points (neighbourhood.ts).
-  const tryCells = path === 'cells' || ((path === 'auto' || path === 'grid') && dim <= MAX_CELL_LIST_DIM);
+  const tryCells = path === 'cells' || ((path === 'auto' || path === 'grid') && dim <= MAX_CELL_LIST_DIM && n > CELL_LIST_MIN_POINTS);
   const cells = tryCells ? buildCellList(z, n, dim, radius, cellsPerRadius(dim)) : undefined;
-  const useGrid =
-    plan !== undefined &&
-    (path === 'grid' || (cells !== undefined && gridSeconds(plan, n, cells.examinedPairs) < cells.examinedPairs * SECONDS_PER_EXAMINED_PAIR));
+  const useGrid = plan !== undefined && (path === 'grid' || gridSeconds(plan, n, cells?.examinedPairs ?? (n * (n - 1)) / 2) < exactSeconds(n, cells));
 
   let tree: KnnIndex | undefined;
   let used: MultivariateKernelSums['path'];
@@ -466,15 +700,18 @@ export function multivariateLogKernelSums(z: Float64Array, n: number, dim: numbe
     // Outside points: their exact truncated sums; inside points whose grid sum fell below 1 stay NaN.
     for (const i of outsideList) logSums[i] = sums[i] >= 1 ? Math.log(sums[i]) : NaN;
   } else {
-    used = exactPairSums(z, n, dim, radius, exponentScale, path, cells, sums);
-    for (let i = 0; i < n; i++) logSums[i] = sums[i] >= 1 ? Math.log(sums[i]) : NaN;
+    used = exactPairSums(z, n, dim, exponentScale, path, cells, sums);
+    // The blocked sums leave nothing out, so only a sum near the bottom of the double range needs the log-space
+    // pass; the cell list's leave out pairs beyond the radius, whose bound needs S_i ≥ 1 (truncation.ts).
+    const smallest = used === 'blocked' ? MIN_UNTRUNCATED_SUM : 1;
+    for (let i = 0; i < n; i++) logSums[i] = sums[i] >= smallest ? Math.log(sums[i]) : NaN;
   }
 
   const isolated: number[] = [];
   for (let i = 0; i < n; i++) if (Number.isNaN(logSums[i])) isolated.push(i);
   if (isolated.length > 0 && isolated.length * n <= FULL_PASS_MAX_TERMS) {
     const scratch = new Float64Array(n);
-    for (const i of isolated) logSums[i] = fullLogKernelSum(z, n, dim, i, bandwidth, scratch);
+    for (const i of isolated) logSums[i] = fullLogKernelSum(z, n, dim, i, bandwidth, exponentScale, scratch);
   } else if (isolated.length > 0) {
     tree ??= new KnnIndex(z, dim);
     isolatedLogKernelSums({ tree, cells }, z, bandwidth, kernelCutoff(n), Int32Array.from(isolated), logSums);
