@@ -12,6 +12,7 @@
 import { defineEstimator, type Estimator, type EstimatorFile, type SettingSpec } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
 import { KnnIndex, type KnnNorm } from '../src/math/knn.js';
+import { sortedNearestOthers } from '../src/math/knn-sorted.js';
 import { SampleMemo } from './shared/sample-memo.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { checkFiniteValues } from '../src/core/sample.js';
@@ -52,7 +53,7 @@ export function kozachenkoLeonenkoEntropy(data: Float64Array, dim: number, k: nu
     if (kthDistance === 0) zeroCount++;
     else sumLogDistance += Math.log(kthDistance);
   }
-  if (zeroCount > 0) throw tiesError(id, index, data, distances, stride, zeroCount, n, k, (order) => order);
+  if (zeroCount > 0) throw tiesError(id, index(), data, distances, stride, zeroCount, n, k, (order) => order);
   return digamma(n) - digamma(k) + logUnitBallVolumeOf(norm, dim) + (dim * sumLogDistance) / n + logJacobian;
 }
 
@@ -220,7 +221,7 @@ export function weightedKozachenkoLeonenkoEntropy(data: Float64Array, dim: numbe
   let zeroCount = 0;
   for (let i = 0; i < n; i++) if (distances[i * stride + firstOrder - 1] === 0) zeroCount++;
   // The smallest order used is ⌊k/d⌋ (when ≥ 1), so it exceeds m - 1 once k ≥ d·m.
-  if (zeroCount > 0) throw tiesError(id, index, data, distances, stride, zeroCount, n, firstOrder, (order) => dim * order);
+  if (zeroCount > 0) throw tiesError(id, index(), data, distances, stride, zeroCount, n, firstOrder, (order) => dim * order);
   let weightedLogDistance = 0;
   let weightedDigamma = 0;
   for (const j of orders) {
@@ -235,19 +236,27 @@ export function weightedKozachenkoLeonenkoEntropy(data: Float64Array, dim: numbe
 /**
  * All-points neighbour distances of one sample, kept while the sample's data array lives, so that every k of
  * a tuning grid and both Kozachenko–Leonenko estimators on the same draw share one tree and few searches.
- * Each search is for the k asked until the same draw has been searched twice (the two estimators' defaults,
- * which is all a draw without a tuning grid sees); a third search, which only a tuning grid asks for, fetches
- * SHARED_NEIGHBOURS at once. So the defaults never pay for neighbours they do not use.
+ * A draw's first search fetches the largest k the previous draw of the same dimension and norm was asked
+ * for in this thread (the default plan's two estimators: k = 3 and 12, one search), at least the k asked; a
+ * draw searched twice already (a tuning grid) fetches SHARED_NEIGHBOURS at once. So a run that only ever asks
+ * for one k never pays for neighbours it does not use.
  * The j-th distance does not depend on how many neighbours were searched: the estimates are bit-identical.
+ * In one dimension the distances come from the sorted values (src/math/knn-sorted.ts) and the kd-tree is built
+ * only if a ties report needs it.
  */
 interface NeighbourSearch {
-  index: KnnIndex;
+  /** The sample's points in the common spread unit. */
+  points: Float64Array;
+  /** Their kd-tree, built on first use. */
+  index: () => KnnIndex;
   distances: Float64Array;
   /** Neighbours per point in `distances`. */
   stride: number;
   logJacobian: number;
   /** Searches made on this draw so far. */
   searches: number;
+  /** The largest k asked of this draw so far. */
+  largestAsked: number;
 }
 
 /** The largest k of the built-in tuning grids (the weighted estimator's 2..20). */
@@ -255,24 +264,36 @@ const SHARED_NEIGHBOURS = 20;
 /** Distances kept per sample at most (8 bytes each): beyond this each request searches again instead. */
 const SHARED_DISTANCES_MAX = 2 ** 22;
 const searches = new SampleMemo<NeighbourSearch>();
+/** Per dimension and norm, the largest k asked of the most recent draw in this thread. */
+const recentLargestAsked = new Map<string, number>();
+
+function lazyIndex(points: Float64Array, dim: number, norm: KnnNorm): () => KnnIndex {
+  let index: KnnIndex | undefined;
+  return () => (index ??= new KnnIndex(points, dim, { norm }));
+}
 
 function neighbourDistances(data: Float64Array, n: number, dim: number, norm: KnnNorm, k: number): NeighbourSearch {
   const key = `${dim}|${norm}`;
   const kept = searches.peek(data, key);
+  const largestAsked = Math.max(kept?.largestAsked ?? 0, k);
+  if (kept) kept.largestAsked = largestAsked;
+  const previousDraw = recentLargestAsked.get(key) ?? k;
+  recentLargestAsked.set(key, largestAsked);
   if (kept && kept.stride >= k) return kept;
-  let index: KnnIndex;
-  let logJacobian: number;
-  let stride = k;
+
+  let stride: number;
+  let base: Pick<NeighbourSearch, 'points' | 'index' | 'logJacobian'>;
   if (kept) {
-    ({ index, logJacobian } = kept);
-    if (kept.searches >= 2) stride = Math.min(n - 1, Math.max(k, SHARED_NEIGHBOURS));
+    base = kept;
+    stride = kept.searches >= 2 ? Math.min(n - 1, Math.max(k, SHARED_NEIGHBOURS)) : k;
   } else {
     // Distances compare coordinates, so one power of two for all columns (estimators/shared/scaling.ts).
     const scaled = inSpreadUnit(data, n, dim, 'common');
-    logJacobian = scaled.logJacobian;
-    index = new KnnIndex(scaled.data, dim, { norm });
+    base = { points: scaled.data, index: lazyIndex(scaled.data, dim, norm), logJacobian: scaled.logJacobian };
+    stride = Math.min(n - 1, Math.max(k, Math.min(previousDraw, SHARED_NEIGHBOURS)));
   }
-  const search: NeighbourSearch = { index, distances: index.nearestOthers(stride).distances, stride, logJacobian, searches: (kept?.searches ?? 0) + 1 };
+  const distances = dim === 1 ? sortedNearestOthers(base.points, stride, norm) : base.index().nearestOthers(stride).distances;
+  const search: NeighbourSearch = { ...base, distances, stride, searches: (kept?.searches ?? 0) + 1, largestAsked };
   if (n * stride <= SHARED_DISTANCES_MAX) searches.set(data, key, search);
   return search;
 }

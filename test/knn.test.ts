@@ -2,6 +2,7 @@ import { createRequire } from 'node:module';
 import { describe, expect, it } from 'vitest';
 import normalRandom from '@stdlib/random-base-normal';
 import { KnnIndex, nextDown, squaredThreshold, type KnnNorm } from '../src/math/knn.js';
+import { sortedNearestOthers } from '../src/math/knn-sorted.js';
 import { rngFromSeed } from '../src/core/rng.js';
 
 /*
@@ -186,6 +187,31 @@ describe('KnnIndex.nearestOthers equals brute force exactly', () => {
     const { distances } = index.nearestOthers(4);
     expect(distances).toEqual(bruteNearestOthers(points, 2, 4, 'euclidean'));
     expect(Array.from(distances.subarray(0, 4))).toEqual([0, 0, 1, 5]);
+  });
+});
+
+describe('sortedNearestOthers (1-D, from the sorted values) equals brute force and the kd-tree exactly', () => {
+  it('continuous, lattice and repeated values, both norms, k = 1..20', () => {
+    const rng = normalRandom.factory(0, 1, { prng: rngFromSeed('sorted-1d') });
+    const continuous = Float64Array.from({ length: 400 }, () => 3 * rng() + 1e3);
+    // A lattice with many repeats (values recorded to 0.25), a value repeated 30 times, and signed zeros.
+    const lattice = Float64Array.from({ length: 400 }, () => Math.round(4 * rng()) / 4);
+    const repeated = Float64Array.from({ length: 200 }, (_, i) => (i < 30 ? 0.1 : i === 30 ? -0 : i === 31 ? 0 : rng()));
+    for (const values of [continuous, lattice, repeated]) {
+      for (const norm of ['euclidean', 'max'] as const) {
+        for (const k of [1, 3, 12, 20]) {
+          const sorted = sortedNearestOthers(values, k, norm);
+          expect(sorted).toEqual(bruteNearestOthers(values, 1, k, norm));
+          expect(sorted).toEqual(new KnnIndex(values, 1, { norm }).nearestOthers(k).distances);
+        }
+      }
+    }
+  });
+
+  it('k = n − 1 reaches every other value; a larger k is refused', () => {
+    const values = Float64Array.of(5, -1, 2, 2, 9);
+    expect(sortedNearestOthers(values, 4, 'euclidean')).toEqual(bruteNearestOthers(values, 1, 4, 'euclidean'));
+    expect(() => sortedNearestOthers(values, 5, 'euclidean')).toThrow(/exceeds/);
   });
 });
 

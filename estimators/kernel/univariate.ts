@@ -20,6 +20,7 @@
  *   point is done exactly.
  */
 import { circularConvolveReal, nextPowerOfTwo } from '../../src/math/fft.js';
+import { expNonPositive } from '../../src/math/exp.js';
 import { kernelCutoff } from './truncation.js';
 
 /**
@@ -88,6 +89,32 @@ export function exactLogKernelSum(sorted: Float64Array, i: number, bandwidth: nu
     sum += Math.exp(-0.5 * (uSquared - nearestSquared));
   }
   return Math.log(sum) - 0.5 * nearestSquared;
+}
+
+/**
+ * Exact log S_i for every point of a sorted array, each pair within c·h taken once and added to both points
+ * (twice as fast as walking out from each point, and with the table exponential of exp.ts). A sum of at least
+ * 1 is within the truncation bound as it is; a point whose sum is below 1 is redone by exactLogKernelSum,
+ * relative to its nearest neighbour.
+ */
+export function exactLogKernelSums(sorted: Float64Array, bandwidth: number, cutoff: number, logSums: Float64Array): void {
+  const n = sorted.length;
+  const reach = cutoff * bandwidth;
+  const exponentScale = -0.5 / (bandwidth * bandwidth);
+  const sums = new Float64Array(n);
+  for (let i = 0; i < n; i++) {
+    const xi = sorted[i];
+    let sumI = 0;
+    for (let j = i + 1; j < n; j++) {
+      const gap = sorted[j] - xi;
+      if (gap > reach) break;
+      const term = expNonPositive(exponentScale * gap * gap);
+      sumI += term;
+      sums[j] += term;
+    }
+    sums[i] += sumI;
+  }
+  for (let i = 0; i < n; i++) logSums[i] = sums[i] >= 1 ? Math.log(sums[i]) : exactLogKernelSum(sorted, i, bandwidth, cutoff);
 }
 
 /**
@@ -174,7 +201,14 @@ export function univariateLogKernelSums(
   const gridMargin = maxRunSpan + 2 * (kernelHalfWidth + 1) * spacing;
   const gridFits = spacing > 0 && Number.isFinite(Math.max(Math.abs(sorted[0]), Math.abs(sorted[n - 1])) + gridMargin);
 
-  if (path === 'exact' || !gridFits || (path === 'auto' && totalWork <= EXACT_WORK_BUDGET)) {
+  const wholeExact = path === 'exact' || !gridFits || (path === 'auto' && totalWork <= EXACT_WORK_BUDGET);
+  // The pair pass needs h² and the reach as normal doubles; otherwise each point walks out on its own.
+  const squared = bandwidth * bandwidth;
+  if (wholeExact && squared >= 2 ** -1022 && squared < Infinity && reach < Infinity) {
+    exactLogKernelSums(sorted, bandwidth, cutoff, logSums);
+    return { logSums, exactPoints: n, binnedPoints: 0 };
+  }
+  if (wholeExact) {
     for (let i = 0; i < n; i++) logSums[i] = exactLogKernelSum(sorted, i, bandwidth, cutoff);
     return { logSums, exactPoints: n, binnedPoints: 0 };
   }

@@ -13,6 +13,7 @@ import type { Sample } from '../../src/core/contracts.js';
 import { rngFromSeed } from '../../src/core/rng.js';
 import type { Dequantize } from '../../src/core/spec.js';
 import { detectSteps, formatStep } from '../../src/math/lattice.js';
+import { SampleMemo } from './sample-memo.js';
 
 /** What dequantize did, per column: the step jittered within (null: left as recorded) and how it was found. */
 export interface EstimateResolution {
@@ -53,11 +54,25 @@ function jitterOne(sample: Sample, how: Exclude<Dequantize, 'none'>): { sample: 
   return { sample: { ...sample, data }, resolution };
 }
 
+/**
+ * One jittered copy per sample and setting, kept while the sample lives: every estimator that dequantizes the
+ * same draw gets the same array, so the work kept per draw (the k-NN estimators' shared neighbour search) is
+ * shared too, and the content hash is taken once.
+ */
+const jittered = new SampleMemo<{ sample: Sample; resolution: EstimateResolution }>();
+
+function jitterOnce(sample: Sample, how: Exclude<Dequantize, 'none'>): { sample: Sample; resolution: EstimateResolution } {
+  const data = sample.data.subarray(0, sample.n * sample.dim);
+  const done = jittered.get(data, `${how}|${sample.n}|${sample.dim}`, () => jitterOne({ n: sample.n, dim: sample.dim, data }, how));
+  // The sample's other fields (X's and Y's widths, a divergence's Q) are the caller's; the kept array is shared.
+  return { sample: { ...sample, data: done.sample.data }, resolution: done.resolution };
+}
+
 /** The sample jittered within its recording steps (and its Q sample within Q's), with what was done. */
 export function dequantizeSample(sample: Sample, how: Dequantize): { sample: Sample; resolution: EstimateResolution | undefined } {
   if (how === 'none') return { sample, resolution: undefined };
-  const p = jitterOne(sample, how);
+  const p = jitterOnce(sample, how);
   if (!sample.q) return p;
-  const q = jitterOne(sample.q, how);
+  const q = jitterOnce(sample.q, how);
   return { sample: { ...p.sample, q: q.sample }, resolution: p.resolution };
 }
