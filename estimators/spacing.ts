@@ -23,9 +23,9 @@ import {
   type SettingSpec,
 } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
+import { sharedSortedValues } from './shared/sorted-values.js';
 import { checkFiniteValues } from '../src/core/sample.js';
 import { spreadUnitOfRange, toUnit } from './shared/scaling.js';
-import { sortAscending } from '../src/math/sort.js';
 
 /**
  * Default window m = floor(sqrt(n) + 0.5): the heuristic of Grzegorzewski & Wieczorkowski (1999, Commun.
@@ -61,10 +61,10 @@ function windowFor(id: string, n: number, given: number | 'auto'): number {
   return m;
 }
 
-/** The sample's values (one-dimensional, as `dims` declares), checked finite, sorted ascending, in a new array. */
+/** The sample's values (one-dimensional, as `dims` declares), checked finite, sorted ascending; shared, read-only. */
 function sortedFiniteValues(id: string, sample: Sample): Float64Array {
   checkFiniteValues(id, sample);
-  return sortAscending(Float64Array.from(sample.data.subarray(0, sample.n)));
+  return sharedSortedValues(sample.data.subarray(0, sample.n));
 }
 
 /**

@@ -19,6 +19,7 @@ import { minimizeBounded } from './minimize.js';
 import { type MultivariatePath, multivariateLogKernelSums } from './multivariate.js';
 import { type UnivariatePath, univariateLogKernelSums } from './univariate.js';
 import { whiten } from './whiten.js';
+import { sharedSortedValues } from '../shared/sorted-values.js';
 import { columnExtremes, spreadUnitOfExtremes, timesPowerOfTwo, toUnit } from '../shared/scaling.js';
 
 export type BandwidthSetting = BandwidthRule | 'likelihood-cv' | number;
@@ -91,7 +92,8 @@ export function prepareKernelData(sample: Sample): KernelData {
   const unit = spreadUnitOfExtremes(minimum, maximum, 'column');
   if (dim === 1) {
     // The unit is an increasing map, so sorting after it gives the same order.
-    const sorted = sortedValues(unit ? { n, dim, data: toUnit(data, n, dim, unit) } : sample);
+    // Shared with the other estimators of the draw (read-only); a unit change sorts its own copy.
+    const sorted = unit ? sortedValues({ n, dim, data: toUnit(data, n, dim, unit) }) : sharedSortedValues(data);
     const unitExponent = unit ? unit.exponents[0] : 0;
     return { n, dim, points: sorted, halfLogDet: unit ? unit.logJacobian : 0, unitExponent };
   }
