@@ -15,7 +15,6 @@ import type { RunOutcome, Session, Shard } from '../harness/runner.js';
 import { fitRate, scoreCell, type CellScores, type RateFit } from './score.js';
 import { overallRanks, rankCells, type OverallRank, type Ranking } from './ranking.js';
 import type { Skip } from '../harness/work.js';
-import { buildContext } from '../harness/context.js';
 import runSchema from '../schemas/run.schema.json' with { type: 'json' };
 import { robustnessSection, type RobustnessSection } from './robustness.js';
 import type { Cell, CellFailure, ScenarioInfo } from './cells.js';
@@ -85,8 +84,7 @@ function scenarioInfo(s: Scenario): ScenarioInfo {
 
 /** Assembles cells from unit results (a shard holds only its own replicates; the rest stay null). */
 export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
-  const { plan } = outcome;
-  const context = buildContext(plan);
+  const { plan, context } = outcome;
   const cellIndex = new Map<string, Cell>();
   const cells: Cell[] = [];
   const key = (s: number, e: number, n: number, v: number) => `${s}|${e}|${n}|${v}`;

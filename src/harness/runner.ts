@@ -71,6 +71,8 @@ export interface RunOptions {
 
 export interface RunOutcome {
   plan: Plan;
+  /** The plan's work context, as the run built it (assembling the run file reuses it). */
+  context: WorkContext;
   fingerprint: string;
   /** The code that ran it (what the fingerprint digests). */
   code: PlanCode;
@@ -459,6 +461,7 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   }
   return {
     plan: context.plan,
+    context,
     fingerprint,
     code,
     units,
