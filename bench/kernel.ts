@@ -93,7 +93,7 @@ function multivariateGrowth(dim: number): string[] {
     const path = multivariateLogKernelSums(data.points, n, dim, h).path;
     const plan = planGrid(data.points, n, dim, h);
     const grid = plan ? `grid ${plan.nodes.join('×')} = ${((plan.totalNodes * 8) / 2 ** 20).toFixed(1)} MiB` : 'no grid';
-    const time = medianTime(() => kernelEstimator.estimate(sample, { bandwidth: 'silverman' }), n >= 5e4 ? 3 : 5);
+    const time = medianTime(() => kernelEstimator.estimate(sample, { bandwidth: 'silverman', scale: 1 }), n >= 5e4 ? 3 : 5);
     walls.push(time.wall);
     cpus.push(time.cpu);
     lines.push(
@@ -152,7 +152,7 @@ export async function benchKernel(): Promise<string[]> {
   const cpus: number[] = [];
   for (const n of sizes) {
     const sample = normalSample(`bench-kernel-1d-${n}`, n, 1);
-    const time = medianTime(() => kernelEstimator.estimate(sample, { bandwidth: 'silverman' }), n >= 1e6 ? 5 : n >= 1e5 ? 9 : 21);
+    const time = medianTime(() => kernelEstimator.estimate(sample, { bandwidth: 'silverman', scale: 1 }), n >= 1e6 ? 5 : n >= 1e5 ? 9 : 21);
     walls.push(time.wall);
     cpus.push(time.cpu);
     lines.push(`kernel 1-D (silverman, normal) n = ${n.toExponential(0)}: ${time.wall.toFixed(1)} ms wall, ${time.cpu.toFixed(1)} ms CPU`);
