@@ -49,7 +49,8 @@ function roundTo(sample: Sample, steps: readonly number[]): void {
     const step = steps[j];
     if (step === 0) continue;
     const m = inverse[j];
-    data[i] = m ? Math.round(data[i] * m) / m : step * Math.round(data[i] / step);
+    // + 0: a value rounded to zero from below is +0, not −0, as a recorded file would hold it.
+    data[i] = (m ? Math.round(data[i] * m) / m : step * Math.round(data[i] / step)) + 0;
   }
 }
 

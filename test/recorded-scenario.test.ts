@@ -44,6 +44,8 @@ describe('recorded[...] draws', () => {
     const n = 20000;
     const { data } = drawReplicate(scenario, 7, n, 0);
     expect(data.every((v) => Number.isInteger(v / step))).toBe(true);
+    // Values rounded to zero from below are +0, as the decimal text "0.00" reads back.
+    expect(data.some((v) => Object.is(v, -0))).toBe(false);
     const hundredths = parseScenario('recorded[step=0.01;gamma:shape=2,scale=1]');
     const drawn = drawReplicate(hundredths, 7, 500, 0).data;
     const text = Array.from(drawn, (v) => v.toFixed(2)).join('\n');

@@ -67,6 +67,13 @@ describe('exact shifts of the true value', () => {
     expect(p.shift).toBeCloseTo(3 * Math.log(2), 12);
   });
 
+  it('quantize writes a value rounded to zero from below as +0, never −0 (as recorded data would hold it)', () => {
+    const data = Float64Array.of(-0.04, 0.04, -0.06, -0, 0.26);
+    prepared('quantize:step=0.1', 'normal').apply({ n: 5, dim: 1, data }, 0, 0);
+    expect(Array.from(data, (v) => Object.is(v, -0))).toEqual([false, false, false, false, false]);
+    expect(Array.from(data)).toEqual([0, 0, -0.1, 0, 0.30000000000000004]);
+  });
+
   it('quantize and contaminate leave the truth in place; perturbations that cannot apply say why', () => {
     expect(prepared('quantize:step=0.1', 'normal').shift).toBeNull();
     expect(prepared('contaminate:fraction=0.05', 'normal').shift).toBeNull();

@@ -225,7 +225,8 @@ function quantizePerturbation(text: string, values: Record<string, string>): Per
           const { dim, data } = sample;
           for (let i = 0; i < data.length; i++) {
             const delta = deltas[i % dim];
-            data[i] = delta * Math.round(data[i] / delta);
+            // + 0: a value rounded to zero from below is +0, not −0, as recorded data would write it.
+            data[i] = delta * Math.round(data[i] / delta) + 0;
           }
         },
       };
