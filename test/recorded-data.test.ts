@@ -50,6 +50,26 @@ describe('detectStep', () => {
     expect(sparse.step! / fine).toBeCloseTo(1, 9);
   });
 
+  it('keeps the recording step of a sparse 0.01 lattice and of a decimal δ = 0.1·1.7 rounding', () => {
+    // Few occupied cells far apart: the gaps (5.36, 94.65, 150.97) share no divisor above 0.01.
+    expect(detectStep(Float64Array.from([0.01, 5.37, 100.02, 250.99]))).toMatchObject({ step: 0.01, method: 'decimal places', distinct: 4 });
+    // δ·round(x/δ) with δ = 0.17, offset 3.3: the products carry floating error, the step is still 0.17.
+    const delta = 0.1 * 1.7;
+    const rounded = detectStep(x.map((v) => 3.3 + delta * Math.round(v / delta)));
+    expect(rounded.method).toBe('decimal places');
+    expect(rounded.step).toBeCloseTo(0.17, 15);
+  });
+
+  it('finds no step of 0 on values far below one unit, and none in two values off any decimal grid', () => {
+    // Six-decimal values times 1e-12 all round to 0 at p = 0; their step is 1e-18, found from the gaps.
+    const tiny = detectStep(x.map((v) => (Math.round(v * 1e6) / 1e6) * 1e-12));
+    expect(tiny.method).toBe('common gap');
+    expect(tiny.step! / 1e-18).toBeCloseTo(1, 9);
+    expect(detectStep(x.map((v) => v * 1e-9))).toMatchObject({ step: null, method: 'none' });
+    expect(detectStep(Float64Array.from([0, 0.1 * Math.SQRT2]))).toMatchObject({ step: null, method: 'none', distinct: 2 });
+    expect(detectStep(Float64Array.from([0, 0.1 * Math.SQRT2])).detail).toMatch(/two distinct values/);
+  });
+
   it('says continuous draws and constant columns are on no lattice', () => {
     expect(detectStep(x)).toMatchObject({ step: null, method: 'none' });
     expect(detectStep(x.map((v) => Math.exp(v)))).toMatchObject({ step: null, method: 'none' });
@@ -72,6 +92,9 @@ describe('the lattice estimator against NumPy (test/fixtures/make_lattice_fixtur
   it('refuses data on no lattice with step=auto, naming the coordinate', () => {
     const sample: Sample = { n: 500, dim: 1, data: normals(500, 'lattice-refuse') };
     expect(() => runEstimator(parseEstimatorSpec('lattice'), sample)).toThrow(/coordinate 1 is not on a lattice.*give step=/);
+    // Values far below one unit are no whole numbers (they once gave a step of 0, and a NaN estimate).
+    const tiny: Sample = { ...sample, data: sample.data.map((v) => v * 1e-9) };
+    expect(() => runEstimator(parseEstimatorSpec('lattice'), tiny)).toThrow(/coordinate 1 is not on a lattice/);
   });
 });
 
