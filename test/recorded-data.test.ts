@@ -89,6 +89,26 @@ describe('the lattice estimator against NumPy (test/fixtures/make_lattice_fixtur
     });
   }
 
+  // The conformance suite's invariances for step=auto, on data that are on a lattice (its own samples are
+  // continuous, which step=auto refuses): H(c·X) = H(X) + d·log|c| holds exactly for the recorded values, whose
+  // counts do not change while the detected steps scale by |c|; a shift or a permutation changes no count.
+  it('with step=auto, shifts by d·log|c| under x → c·x and is unchanged by translation and row order (2-D, steps 0.01 and 1)', () => {
+    const n = 600;
+    const z = normals(2 * n, 'lattice-invariance');
+    const data = z.map((v, i) => (i % 2 === 0 ? Math.round(v * 100) / 100 : Math.round(3 * v)));
+    const base: Sample = { n, dim: 2, data };
+    const spec = parseEstimatorSpec('lattice:correction=miller-madow');
+    const h = runEstimator(spec, base).value;
+    for (const c of [8, -1 / 16]) {
+      const scaled = runEstimator(spec, { ...base, data: data.map((v) => c * v) }).value;
+      expect(Math.abs(scaled - (h + 2 * Math.log(Math.abs(c))))).toBeLessThan(1e-9);
+    }
+    expect(Math.abs(runEstimator(spec, { ...base, data: data.map((v, i) => v + (i % 2 === 0 ? 5 : -3.25)) }).value - h)).toBeLessThan(1e-9);
+    const reversed = new Float64Array(2 * n);
+    for (let i = 0; i < n; i++) reversed.set(data.subarray(2 * (n - 1 - i), 2 * (n - i)), 2 * i);
+    expect(runEstimator(spec, { ...base, data: reversed }).value).toBe(h);
+  });
+
   it('refuses data on no lattice with step=auto, naming the coordinate', () => {
     const sample: Sample = { n: 500, dim: 1, data: normals(500, 'lattice-refuse') };
     expect(() => runEstimator(parseEstimatorSpec('lattice'), sample)).toThrow(/coordinate 1 is not on a lattice.*give step=/);
