@@ -8,7 +8,8 @@ import type { Sample } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { rngFromSeed } from '../src/core/rng.js';
 import { detectStep } from '../src/math/lattice.js';
-import { dequantizedVariant, parseEstimatorSpec, runEstimator } from '../estimators/index.js';
+import { dequantizedVariant, getEstimator, parseEstimatorSpec, runEstimator, takesDequantize } from '../estimators/index.js';
+import { tuningGrid } from '../src/harness/tuning.js';
 import { runCli } from './helpers/cli.js';
 
 interface LatticeCase {
@@ -146,11 +147,34 @@ describe('dequantize', () => {
     expect(parseEstimatorSpec('kernel:dequantize=none').spec).toBe(parseEstimatorSpec('kernel').spec);
     expect(dequantizedVariant(parseEstimatorSpec('ksg1:k=4'))!.spec).toBe('ksg1:k=4,copula=none,dequantize=auto');
     expect(dequantizedVariant(parseEstimatorSpec('histogram'))).toBeNull();
+    expect(dequantizedVariant(parseEstimatorSpec('vasicek:dequantize=0.5'))).toBeNull();
+    expect([
+      parseEstimatorSpec('vasicek').dequantize,
+      parseEstimatorSpec('vasicek:dequantize=auto').dequantize,
+      parseEstimatorSpec('vasicek:dequantize=0.5').dequantize,
+    ]).toEqual(['none', 'auto', 0.5]);
+    expect(
+      ['kozachenko-leonenko', 'kernel', 'vasicek', 'ksg1', 'knn-divergence', 'cmi-ksg', 'te-ksg', 'mi-kernel', 'lattice', 'gaussian'].map((id) =>
+        takesDequantize(getEstimator(id)),
+      ),
+    ).toEqual([true, true, true, true, true, true, true, true, false, false]);
     expect(() => parseEstimatorSpec('histogram:dequantize=auto')).toThrow(UsageError);
     expect(() => parseEstimatorSpec('histogram:dequantize=auto')).toThrow(
       /not a setting of the histogram family; it applies to nearest-neighbour, kernel, spacing/,
     );
     expect(() => parseEstimatorSpec('kozachenko-leonenko:dequantize=-1')).toThrow(/dequantize=-1 is not allowed; give none, auto/);
+  });
+});
+
+describe('a tuning grid keeps the harness settings of its base', () => {
+  it('every point of kozachenko-leonenko:dequantize=auto,thin=2 is dequantized and thinned too', () => {
+    const grid = tuningGrid(parseEstimatorSpec('kozachenko-leonenko:dequantize=auto,thin=2'), 0, 1000);
+    expect(grid.length).toBeGreaterThan(1);
+    for (const point of grid) {
+      expect(point.configured.dequantize).toBe('auto');
+      expect(point.configured.thin).toBe(2);
+      expect(point.configured.spec).toMatch(/,dequantize=auto,thin=2$/);
+    }
   });
 });
 
