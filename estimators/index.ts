@@ -146,12 +146,12 @@ export function getEstimator(id: string): Estimator {
 export interface ConfiguredEstimator {
   estimator: Estimator;
   settings: Settings;
-  /** Canonical `id:key=value,...` with every setting spelled out (and thin=t last, only when t ≠ 1). */
+  /** Canonical `id:key=value,...` with every setting spelled out (then dequantize and thin=t, each only when it does something). */
   spec: string;
   /** The harness's thinning: the estimator sees rows 0, t, 2t, … (src/core/spec.ts, THIN_SETTING). */
   thin: number;
-  /** The harness's jitter within the recording step (src/core/spec.ts, DEQUANTIZE_SETTING); absent: none. */
-  dequantize?: Dequantize;
+  /** The harness's jitter within the recording step (src/core/spec.ts, DEQUANTIZE_SETTING): none, auto or a step. */
+  dequantize: Dequantize;
 }
 
 /** Whether the estimator takes dequantize (the families that take logs of distances between points). */
@@ -161,7 +161,7 @@ export function takesDequantize(estimator: Estimator): boolean {
 
 /** The same estimator, settings and thinning with dequantize=auto; null when it does not take the setting or sets it already. */
 export function dequantizedVariant(configured: ConfiguredEstimator): ConfiguredEstimator | null {
-  if (!takesDequantize(configured.estimator) || (configured.dequantize ?? 'none') !== 'none') return null;
+  if (!takesDequantize(configured.estimator) || configured.dequantize !== 'none') return null;
   return configureEstimator(configured.estimator.id, { ...configured.settings, [DEQUANTIZE_SETTING]: 'auto', [THIN_SETTING]: configured.thin ?? 1 });
 }
 
@@ -186,7 +186,7 @@ export function configureEstimator(id: string, given: Record<string, SettingValu
   // The harness's settings go last, each only when it does something, so every other spec is unchanged.
   const extra = [...(dequantize !== 'none' ? [`${DEQUANTIZE_SETTING}=${dequantize}`] : []), ...(thin !== 1 ? [`${THIN_SETTING}=${thin}`] : [])];
   if (extra.length) spec = `${spec}${spec === estimator.id ? ':' : ','}${extra.join(',')}`;
-  return { estimator, settings, spec, thin, ...(dequantize !== 'none' ? { dequantize } : {}) };
+  return { estimator, settings, spec, thin, dequantize };
 }
 
 /** Parses `id:key=value,...` as typed on the command line. */
@@ -239,7 +239,7 @@ export function runEstimator(
 ): { value: number; settings: Settings; resolution?: EstimateResolution } {
   checkDimension(configured.estimator, sample.dim);
   // Thinning is the harness's, so every estimator (built-in, module or command) has it without a line of its own.
-  const { sample: used, resolution } = dequantizeSample(thinRows(sample, configured.thin ?? 1), configured.dequantize ?? 'none');
+  const { sample: used, resolution } = dequantizeSample(thinRows(sample, configured.thin ?? 1), configured.dequantize);
   const value: unknown = configured.estimator.estimate(used, configured.settings);
   // A user's module is plain JavaScript: a string such as "1.5" must not pass for an estimate.
   if (typeof value !== 'number')

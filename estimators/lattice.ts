@@ -85,8 +85,17 @@ export const latticeEstimators: Estimator[] = [
     reference:
       'Cover, T. M. & Thomas, J. A. (2006). Elements of Information Theory, 2nd ed., Theorem 8.3.1 (discrete entropy of a quantized variable plus log Δ); ' +
       'Miller, G. A. (1955), Note on the bias of information estimates, in Information Theory in Psychology, 95–100.',
+    // With step=auto the detected step follows the data (scaled by c, shifted by anything) and both invariances
+    // hold exactly, on data that are on a lattice: test/recorded-data.test.ts checks them there, since the
+    // conformance samples are continuous and step=auto rightly refuses them.
     lacks: {
       scale: (settings) => (typeof settings.step === 'number' ? `step=${settings.step} is in data units, which do not change with the data's unit` : undefined),
+      // Cells are centred on the multiples of a given step, so a shift that is not a whole multiple of it moves
+      // values across cell edges.
+      translation: (settings) =>
+        typeof settings.step === 'number'
+          ? `step=${settings.step} centres the cells on its multiples; a shift by a non-multiple moves values between cells`
+          : undefined,
     },
     // The step used when one serves every coordinate; 'auto' stays when the coordinates' steps differ (estimate reports them).
     resolve: (sample, settings) => {

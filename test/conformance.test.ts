@@ -67,6 +67,8 @@ const DECLARED: [string, Record<string, string | number>, CheckName][] = [
   ['mi-from-entropies', { entropy: 'kozachenko-leonenko-weighted' }, 'scale'],
   ['histogram-divergence', { bins: 'sturges' }, 'affine'],
   ['knn-divergence', { k: 3 }, 'affine'],
+  ['lattice', { step: 0.3 }, 'scale'],
+  ['lattice', { step: 0.3 }, 'translation'],
 ];
 
 /** A declared exception must be needed: the difference measured anyway is beyond what the check allows. */
@@ -92,8 +94,26 @@ describe('every registered estimator passes the conformance suite', () => {
   });
 
   // The conformance samples are continuous draws, which the lattice estimator's step=auto rightly refuses (they
-  // are on no lattice); with a given step it bins them, and its declared exceptions (scale, translation) apply.
-  const settingsFor: Record<string, Record<string, string | number>> = { lattice: { step: 0.05 } };
+  // are on no lattice: checked below, and its step=auto invariances on lattice data in test/recorded-data.test.ts);
+  // with a given step it bins them, and its declared exceptions (scale, translation) apply. 0.3 divides neither of
+  // the suite's shifts (5, −3.25), so the translation exception is measured, not hidden by a lucky step.
+  const settingsFor: Record<string, Record<string, string | number>> = { lattice: { step: 0.3 } };
+  it('lattice: with step=auto every failing check fails only because the continuous samples are on no lattice', () => {
+    const report = runConformance(getEstimator('lattice'));
+    const failed = report.checks.filter((r) => r.status === 'fail');
+    // Every value-giving check fails; the refusals of bad input (non-finite, too few points) still pass.
+    expect(failed.map((c) => c.check)).toEqual([
+      'deterministic',
+      'leaves-sample-unchanged',
+      'row-order',
+      'configured-resolved',
+      'scale',
+      'translation',
+      'known-value',
+    ]);
+    for (const c of failed) expect(c.evidence).toMatch(/is not on a lattice \(no common step: the values are not on a lattice\); give step=Δ to bin it/);
+    expect(report.checks.find((c) => c.check === 'rejects-non-finite')!.status).toBe('pass');
+  });
   // The conformance samples' X is continuous, which the discrete-continuous estimator rightly refuses (X must be a
   // label); its invariances are checked on labelled data in test/mixed-mutual-information.test.ts. Here: the refusal
   // is the only reason any check fails.

@@ -66,6 +66,9 @@ describe('item 1: tables never cut an id, a spec or a family; counts in the righ
       );
     expect(firstCells.slice(1)).toEqual(list.map((e) => [e.id, e.family]));
     expect(out).toContain('│ mi-from-entropies            │ entropy-combination │');
+    // The harness's settings, which no estimator declares: thin for all, dequantize for the families that take it.
+    expect(out).toContain('Every estimator also takes thin=t');
+    expect(out).toContain('The nearest-neighbour, kernel and spacing estimators also take dequantize=none|auto|STEP (default none)');
   });
 
   it('a wrapped column widens to its longest word instead of cutting it', () => {

@@ -8,7 +8,8 @@ import type { Sample } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { rngFromSeed } from '../src/core/rng.js';
 import { detectStep } from '../src/math/lattice.js';
-import { dequantizedVariant, parseEstimatorSpec, runEstimator } from '../estimators/index.js';
+import { dequantizedVariant, getEstimator, parseEstimatorSpec, runEstimator, takesDequantize } from '../estimators/index.js';
+import { tuningGrid } from '../src/harness/tuning.js';
 import { runCli } from './helpers/cli.js';
 
 interface LatticeCase {
@@ -50,6 +51,26 @@ describe('detectStep', () => {
     expect(sparse.step! / fine).toBeCloseTo(1, 9);
   });
 
+  it('keeps the recording step of a sparse 0.01 lattice and of a decimal δ = 0.1·1.7 rounding', () => {
+    // Few occupied cells far apart: the gaps (5.36, 94.65, 150.97) share no divisor above 0.01.
+    expect(detectStep(Float64Array.from([0.01, 5.37, 100.02, 250.99]))).toMatchObject({ step: 0.01, method: 'decimal places', distinct: 4 });
+    // δ·round(x/δ) with δ = 0.17, offset 3.3: the products carry floating error, the step is still 0.17.
+    const delta = 0.1 * 1.7;
+    const rounded = detectStep(x.map((v) => 3.3 + delta * Math.round(v / delta)));
+    expect(rounded.method).toBe('decimal places');
+    expect(rounded.step).toBeCloseTo(0.17, 15);
+  });
+
+  it('finds no step of 0 on values far below one unit, and none in two values off any decimal grid', () => {
+    // Six-decimal values times 1e-12 all round to 0 at p = 0; their step is 1e-18, found from the gaps.
+    const tiny = detectStep(x.map((v) => (Math.round(v * 1e6) / 1e6) * 1e-12));
+    expect(tiny.method).toBe('common gap');
+    expect(tiny.step! / 1e-18).toBeCloseTo(1, 9);
+    expect(detectStep(x.map((v) => v * 1e-9))).toMatchObject({ step: null, method: 'none' });
+    expect(detectStep(Float64Array.from([0, 0.1 * Math.SQRT2]))).toMatchObject({ step: null, method: 'none', distinct: 2 });
+    expect(detectStep(Float64Array.from([0, 0.1 * Math.SQRT2])).detail).toMatch(/two distinct values/);
+  });
+
   it('says continuous draws and constant columns are on no lattice', () => {
     expect(detectStep(x)).toMatchObject({ step: null, method: 'none' });
     expect(detectStep(x.map((v) => Math.exp(v)))).toMatchObject({ step: null, method: 'none' });
@@ -69,9 +90,32 @@ describe('the lattice estimator against NumPy (test/fixtures/make_lattice_fixtur
     });
   }
 
+  // The conformance suite's invariances for step=auto, on data that are on a lattice (its own samples are
+  // continuous, which step=auto refuses): H(c·X) = H(X) + d·log|c| holds exactly for the recorded values, whose
+  // counts do not change while the detected steps scale by |c|; a shift or a permutation changes no count.
+  it('with step=auto, shifts by d·log|c| under x → c·x and is unchanged by translation and row order (2-D, steps 0.01 and 1)', () => {
+    const n = 600;
+    const z = normals(2 * n, 'lattice-invariance');
+    const data = z.map((v, i) => (i % 2 === 0 ? Math.round(v * 100) / 100 : Math.round(3 * v)));
+    const base: Sample = { n, dim: 2, data };
+    const spec = parseEstimatorSpec('lattice:correction=miller-madow');
+    const h = runEstimator(spec, base).value;
+    for (const c of [8, -1 / 16]) {
+      const scaled = runEstimator(spec, { ...base, data: data.map((v) => c * v) }).value;
+      expect(Math.abs(scaled - (h + 2 * Math.log(Math.abs(c))))).toBeLessThan(1e-9);
+    }
+    expect(Math.abs(runEstimator(spec, { ...base, data: data.map((v, i) => v + (i % 2 === 0 ? 5 : -3.25)) }).value - h)).toBeLessThan(1e-9);
+    const reversed = new Float64Array(2 * n);
+    for (let i = 0; i < n; i++) reversed.set(data.subarray(2 * (n - 1 - i), 2 * (n - i)), 2 * i);
+    expect(runEstimator(spec, { ...base, data: reversed }).value).toBe(h);
+  });
+
   it('refuses data on no lattice with step=auto, naming the coordinate', () => {
     const sample: Sample = { n: 500, dim: 1, data: normals(500, 'lattice-refuse') };
     expect(() => runEstimator(parseEstimatorSpec('lattice'), sample)).toThrow(/coordinate 1 is not on a lattice.*give step=/);
+    // Values far below one unit are no whole numbers (they once gave a step of 0, and a NaN estimate).
+    const tiny: Sample = { ...sample, data: sample.data.map((v) => v * 1e-9) };
+    expect(() => runEstimator(parseEstimatorSpec('lattice'), tiny)).toThrow(/coordinate 1 is not on a lattice/);
   });
 });
 
@@ -103,11 +147,34 @@ describe('dequantize', () => {
     expect(parseEstimatorSpec('kernel:dequantize=none').spec).toBe(parseEstimatorSpec('kernel').spec);
     expect(dequantizedVariant(parseEstimatorSpec('ksg1:k=4'))!.spec).toBe('ksg1:k=4,copula=none,dequantize=auto');
     expect(dequantizedVariant(parseEstimatorSpec('histogram'))).toBeNull();
+    expect(dequantizedVariant(parseEstimatorSpec('vasicek:dequantize=0.5'))).toBeNull();
+    expect([
+      parseEstimatorSpec('vasicek').dequantize,
+      parseEstimatorSpec('vasicek:dequantize=auto').dequantize,
+      parseEstimatorSpec('vasicek:dequantize=0.5').dequantize,
+    ]).toEqual(['none', 'auto', 0.5]);
+    expect(
+      ['kozachenko-leonenko', 'kernel', 'vasicek', 'ksg1', 'knn-divergence', 'cmi-ksg', 'te-ksg', 'mi-kernel', 'lattice', 'gaussian'].map((id) =>
+        takesDequantize(getEstimator(id)),
+      ),
+    ).toEqual([true, true, true, true, true, true, true, true, false, false]);
     expect(() => parseEstimatorSpec('histogram:dequantize=auto')).toThrow(UsageError);
     expect(() => parseEstimatorSpec('histogram:dequantize=auto')).toThrow(
       /not a setting of the histogram family; it applies to nearest-neighbour, kernel, spacing/,
     );
     expect(() => parseEstimatorSpec('kozachenko-leonenko:dequantize=-1')).toThrow(/dequantize=-1 is not allowed; give none, auto/);
+  });
+});
+
+describe('a tuning grid keeps the harness settings of its base', () => {
+  it('every point of kozachenko-leonenko:dequantize=auto,thin=2 is dequantized and thinned too', () => {
+    const grid = tuningGrid(parseEstimatorSpec('kozachenko-leonenko:dequantize=auto,thin=2'), 0, 1000);
+    expect(grid.length).toBeGreaterThan(1);
+    for (const point of grid) {
+      expect(point.configured.dequantize).toBe('auto');
+      expect(point.configured.thin).toBe(2);
+      expect(point.configured.spec).toMatch(/,dequantize=auto,thin=2$/);
+    }
   });
 });
 

@@ -2,7 +2,7 @@ import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
 import type { Estimator } from '../core/contracts.js';
 import { renderTable } from '../core/format.js';
-import { describeSetting } from '../core/spec.js';
+import { DEQUANTIZE_FAMILIES, DEQUANTIZE_SETTING, describeSetting } from '../core/spec.js';
 import { listEstimators } from '../../estimators/index.js';
 
 export function estimatorRecord(e: Estimator) {
@@ -48,5 +48,8 @@ export function registerEstimatorsCommand(program: Command, print: (text: string
       print(renderTable(['estimator', 'family', 'd', 'settings (default: allowed)', 'reference'], rows, { wrap: [0, 0, 5, 52, 46] }));
       print('Use an estimator with settings as ID:key=value,... e.g. kozachenko-leonenko:k=5,norm=max');
       print('Every estimator also takes thin=t (an integer ≥ 1, default 1): it sees rows 0, t, 2t, … only, e.g. kozachenko-leonenko:thin=10');
+      print(
+        `The ${DEQUANTIZE_FAMILIES.slice(0, -1).join(', ')} and ${DEQUANTIZE_FAMILIES[DEQUANTIZE_FAMILIES.length - 1]} estimators also take ${DEQUANTIZE_SETTING}=none|auto|STEP (default none): uniform noise within each column's recording step (auto: detected) for data with repeated values, e.g. kozachenko-leonenko:${DEQUANTIZE_SETTING}=auto`,
+      );
     });
 }

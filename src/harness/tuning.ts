@@ -14,6 +14,7 @@
  */
 import type { SettingValue } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
+import { DEQUANTIZE_SETTING, THIN_SETTING } from '../core/spec.js';
 import { configureEstimator, type ConfiguredEstimator } from '../../estimators/index.js';
 
 export interface TuningPoint {
@@ -36,7 +37,13 @@ export function tuningGrid(base: ConfiguredEstimator, baseIndex: number, n: numb
           base: baseIndex,
           setting,
           value,
-          configured: configureEstimator(estimator.id, { ...base.settings, [setting]: value, ...(base.thin !== 1 && { thin: base.thin }) }),
+          // The harness's settings stay as the base has them: a dequantized estimator's grid is dequantized too.
+          configured: configureEstimator(estimator.id, {
+            ...base.settings,
+            [setting]: value,
+            ...(base.thin !== 1 && { [THIN_SETTING]: base.thin }),
+            ...(base.dequantize !== 'none' && { [DEQUANTIZE_SETTING]: base.dequantize }),
+          }),
         };
       } catch (error) {
         // A grid is part of the estimator's declaration: a value it does not accept is the declaration's mistake.

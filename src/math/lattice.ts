@@ -12,7 +12,14 @@
  *   common gap      every gap between sorted distinct values is a whole multiple of the smallest gap, or of a
  *                   common divisor found by Euclid's algorithm with a tolerance of a few units in the last place
  *                   (values such as δ·round(x/δ) for an irrational δ); refused when that divisor is under a
- *                   hundredth of the smallest gap, which continuous data reach at once.
+ *                   hundredth of the smallest gap, which continuous data reach at once, and for fewer than three
+ *                   distinct values (two are always on the lattice of their gap).
+ *
+ * Why a tolerance in steps (absolute on the scaled values) rather than one relative to each value: scaled values
+ * stay below MAX_SCALED = 1e9, where a double's rounding of decimal text (half a unit in the last place, times
+ * the scaling) is under 2.3e-7, so 1e-6 of a step accepts every value read from text with room to spare, while a
+ * continuous value lands that close to an integer with probability 2e-6: all of even 3 distinct values about
+ * 1e-17 per p tried. Values larger than that in steps (6 decimals of numbers above 1000) go to the common gap.
  *
  * Cost: one sort, O(n log n); then linear passes over the distinct values.
  */
@@ -36,6 +43,8 @@ const TOLERANCE = 1e-6;
 /** A common divisor below this share of the smallest gap is no lattice: continuous data. */
 const SMALLEST_SHARE = 0.01;
 const ULPS = 8 * Number.EPSILON;
+/** Distinct values the common-gap search needs (see commonGapStep). */
+const MIN_COMMON_GAP_VALUES = 3;
 
 function distinctSorted(column: Float64Array): Float64Array {
   const sorted = sortAscending(Float64Array.from(column));
@@ -61,10 +70,18 @@ function decimalStep(values: Float64Array): { step: number; places: number } | n
   for (let places = 0; places <= MAX_PLACES; places++) {
     const scale = 10 ** places;
     if (largest * scale > MAX_SCALED) return null;
+    // Two distinct values on one integer must differ by floating noise only (0.1 + 0.2 beside 0.3): values far
+    // below 10^-p all round to 0 without being recorded to p places (1e-12 times six-decimal data would give a
+    // step of 0 at p = 0).
     let on = true;
     for (let i = 0; i < values.length && on; i++) {
       const x = values[i] * scale;
-      on = Math.abs(x - Math.round(x)) <= TOLERANCE;
+      const whole = Math.round(x);
+      on =
+        Math.abs(x - whole) <= TOLERANCE &&
+        (i === 0 ||
+          whole !== Math.round(values[i - 1] * scale) ||
+          values[i] - values[i - 1] <= 2 * ULPS * Math.max(Math.abs(values[i]), Math.abs(values[i - 1])));
     }
     if (!on) continue;
     let g = 0;
@@ -76,6 +93,8 @@ function decimalStep(values: Float64Array): { step: number; places: number } | n
 
 function commonGapStep(values: Float64Array): number | null {
   const m = values.length;
+  // Any two values are on the lattice of their gap: without a third the gap is no evidence of a step.
+  if (m < MIN_COMMON_GAP_VALUES) return null;
   let largest = 0;
   let smallest = Infinity;
   for (let i = 0; i < m; i++) largest = Math.max(largest, Math.abs(values[i]));
@@ -134,7 +153,11 @@ export function detectStep(column: Float64Array): StepReport {
   if (common !== null) {
     return { step: common, method: 'common gap', detail: `values are on a lattice of step ${formatStep(common)} (every gap a whole multiple of it)`, distinct };
   }
-  return { step: null, method: 'none', detail: 'no common step: the values are not on a lattice', distinct };
+  const detail =
+    distinct < MIN_COMMON_GAP_VALUES
+      ? 'no common step: two distinct values off any decimal grid show none (any two lie on the lattice of their gap)'
+      : 'no common step: the values are not on a lattice';
+  return { step: null, method: 'none', detail, distinct };
 }
 
 /** detectStep for every column of a sample (a divergence's Q sample separately). */
