@@ -7,7 +7,7 @@
 import { describe, expect, it } from 'vitest';
 import normalRandom from '@stdlib/random-base-normal';
 import type { Estimator, Sample, Settings } from '../src/core/contracts.js';
-import { EstimateError } from '../src/core/errors.js';
+import { estimateErrorOf } from './helpers/estimate-error.js';
 import { rngFromSeed } from '../src/core/rng.js';
 import { configureEstimator, getEstimator } from '../estimators/index.js';
 
@@ -41,16 +41,6 @@ function times(data: Float64Array, c: number): Float64Array {
 function estimate(id: string, sample: Sample, settings: Settings = {}): number {
   const configured = configureEstimator(id, settings);
   return configured.estimator.estimate(sample, configured.settings);
-}
-
-function caught(run: () => unknown): EstimateError {
-  try {
-    run();
-  } catch (error) {
-    if (error instanceof EstimateError) return error;
-    throw error;
-  }
-  throw new Error('expected an EstimateError');
 }
 
 const ENTROPY_CASES: { id: string; settings?: Settings; dims: number[] }[] = [
@@ -195,12 +185,12 @@ describe('what cannot be brought to a safe range, and constant columns', () => {
     for (const value of [SUBNORMAL, 2.5, HUGE]) {
       const oneD = new Float64Array(n).fill(value);
       for (const id of ['histogram', 'vasicek', 'van-es', 'ebrahimi', 'correa', 'kozachenko-leonenko', 'kozachenko-leonenko-weighted', 'kernel', 'gaussian']) {
-        expect(caught(() => estimate(id, { n, dim: 1, data: oneD })).code, `${id} at ${value}`).toBe('ties');
+        expect(estimateErrorOf(() => estimate(id, { n, dim: 1, data: oneD })).code, `${id} at ${value}`).toBe('ties');
       }
       const threeD = spread.map((x, p) => (p % 3 === 0 ? value : x));
-      expect(caught(() => estimate('histogram', { n, dim: 3, data: threeD })).code).toBe('ties');
-      expect(caught(() => estimate('gaussian', { n, dim: 3, data: threeD })).code).toBe('ties');
-      expect(caught(() => estimate('kernel', { n, dim: 3, data: threeD })).message).toMatch(/column 1 is constant/);
+      expect(estimateErrorOf(() => estimate('histogram', { n, dim: 3, data: threeD })).code).toBe('ties');
+      expect(estimateErrorOf(() => estimate('gaussian', { n, dim: 3, data: threeD })).code).toBe('ties');
+      expect(estimateErrorOf(() => estimate('kernel', { n, dim: 3, data: threeD })).message).toMatch(/column 1 is constant/);
       // Nearest-neighbour distances never see a constant coordinate: the value is that of the other two.
       const twoColumns = { n, dim: 3, data: spread.map((x, p) => (p % 3 === 0 ? 0 : x)) };
       expect(estimate('kozachenko-leonenko', { n, dim: 3, data: threeD })).toBe(estimate('kozachenko-leonenko', twoColumns));
@@ -216,21 +206,21 @@ describe('what cannot be brought to a safe range, and constant columns', () => {
       data[2 * i] = Math.floor(i / 4);
       data[2 * i + 1] = (i % 4) * 1e-170;
     }
-    const error = caught(() => estimate('kozachenko-leonenko', { n, dim: 2, data }));
+    const error = estimateErrorOf(() => estimate('kozachenko-leonenko', { n, dim: 2, data }));
     expect(error.code).toBe('numeric');
     expect(error.message).toMatch(/^kozachenko-leonenko: \d+ pairs of distinct points are at a distance that rounds to 0 .*use norm=max$/);
     // The max norm squares nothing, so the same data work there.
     expect(Number.isFinite(estimate('kozachenko-leonenko', { n, dim: 2, data }, { norm: 'max' }))).toBe(true);
     // Genuine repeats still get the ties advice.
     const repeated = data.map((x, p) => (p % 2 === 1 ? 0 : x));
-    expect(caught(() => estimate('kozachenko-leonenko', { n, dim: 2, data: repeated })).code).toBe('ties');
+    expect(estimateErrorOf(() => estimate('kozachenko-leonenko', { n, dim: 2, data: repeated })).code).toBe('ties');
   });
 
   it('spacings below 2^-1074 of the range are a numeric error naming the range', () => {
     // 40 values spread over ±1e300 and 30 distinct values within 3e-299 of 0: no double unit holds both.
     const values = [...Array.from({ length: 40 }, (_, i) => (i - 19.5) * 5e298), ...Array.from({ length: 30 }, (_, i) => (i + 1) * 1e-300)];
     const sample = { n: values.length, dim: 1, data: Float64Array.from(values) };
-    const error = caught(() => estimate('van-es', sample, { m: 1 }));
+    const error = estimateErrorOf(() => estimate('van-es', sample, { m: 1 }));
     expect(error.code).toBe('numeric');
     expect(error.message).toMatch(
       /^van-es: the values span more than double precision can resolve \(range -9\.75e\+299 \.\. 9\.75e\+299, yet \d+ neighbouring values .*transform the data/,

@@ -8,7 +8,7 @@ import { describe, expect, it } from 'vitest';
 import type { Sample } from '../src/core/contracts.js';
 import { catalog, parseScenario } from '../scenarios/index.js';
 import { drawReplicate } from '../src/core/rng.js';
-import { EstimateError } from '../src/core/errors.js';
+import { estimateErrorOf } from './helpers/estimate-error.js';
 import { parseEstimatorSpec, runEstimator } from '../estimators/index.js';
 
 interface MixedCase {
@@ -43,7 +43,7 @@ describe('against the brute force (Gao et al. 2017, Algorithm 1; Ross 2014, eq. 
       }
       if (c.rossRefusal) {
         const r = c.rossRefusal;
-        const refusal = refusalOf(() => runEstimator(parseEstimatorSpec(`mi-discrete-continuous:k=${c.kRoss}`), sampleOf(c)));
+        const refusal = estimateErrorOf(() => runEstimator(parseEstimatorSpec(`mi-discrete-continuous:k=${c.kRoss}`), sampleOf(c)));
         expect(refusal.code).toBe('ties');
         if (r.refused === 'zero')
           expect(refusal.message).toContain(`${r.points} of ${r.of} points have their k-th (k = ${c.kRoss}) same-label neighbour in Y at distance 0`);
@@ -60,16 +60,6 @@ describe('against the brute force (Gao et al. 2017, Algorithm 1; Ross 2014, eq. 
     expect(() => runEstimator(parseEstimatorSpec('mi-discrete-continuous'), sampleOf(c))).toThrow(/not a label; for a continuous X use ksg1 or mi-mixed/);
   });
 });
-
-function refusalOf(run: () => unknown): EstimateError {
-  try {
-    run();
-  } catch (error) {
-    if (error instanceof EstimateError) return error;
-    throw error;
-  }
-  throw new Error('expected an EstimateError');
-}
 
 // The conformance suite's samples have a continuous X, which mi-discrete-continuous refuses (test/conformance.test.ts),
 // so its invariances are checked here on labelled data: the estimate depends on X only through which rows share a
@@ -149,7 +139,7 @@ describe('the mixed scenarios', () => {
     // m_i gave 0.1227 here before the check, counting only the k-th neighbour on the boundary more than the truth.
     const recorded = Float64Array.from(sample.data);
     for (let i = 0; i < sample.n; i++) recorded[2 * i + 1] = Math.round(recorded[2 * i + 1] / 0.001) * 0.001;
-    const refusal = refusalOf(() => runEstimator(parseEstimatorSpec('mi-discrete-continuous'), { ...sample, data: recorded }));
+    const refusal = estimateErrorOf(() => runEstimator(parseEstimatorSpec('mi-discrete-continuous'), { ...sample, data: recorded }));
     expect(refusal.code).toBe('ties');
     expect(refusal.message).toMatch(/same-label neighbour .*; Ross's estimator needs a continuous Y; for a Y with atoms \(repeated values\) use mi-mixed$/);
   });

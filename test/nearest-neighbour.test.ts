@@ -4,6 +4,7 @@ import gammaStdlib from '@stdlib/math-base-special-gamma';
 import normalRandom from '@stdlib/random-base-normal';
 import type { Sample } from '../src/core/contracts.js';
 import { EstimateError } from '../src/core/errors.js';
+import { estimateErrorOf } from './helpers/estimate-error.js';
 import { rngFromSeed } from '../src/core/rng.js';
 import {
   kozachenkoLeonenkoEntropy,
@@ -273,16 +274,6 @@ describe('units: rescaling the data by c shifts the estimate by exactly d·log c
 });
 
 describe('bad input', () => {
-  function errorOf(f: () => unknown): EstimateError {
-    try {
-      f();
-    } catch (error) {
-      if (error instanceof EstimateError) return error;
-      throw error;
-    }
-    throw new Error('expected an EstimateError');
-  }
-
   it('repeated points give EstimateError("ties") with the count and a way forward, never -Infinity', () => {
     // 100 distinct points, then the first 10 of them repeated three more times: those 40 points each have
     // 3 copies at distance 0, so their 1st..3rd neighbour distances are 0.
@@ -292,7 +283,7 @@ describe('bad input', () => {
     for (let r = 0; r < 3; r++) data.set(base.data.subarray(0, 20), 200 + r * 20);
     const sample: Sample = { n: 130, dim: 2, data };
     for (const estimator of [klEstimator, weightedEstimator]) {
-      const error = errorOf(() => estimator.estimate(sample, { k: 3, norm: 'euclidean' }));
+      const error = estimateErrorOf(() => estimator.estimate(sample, { k: 3, norm: 'euclidean' }));
       expect(error.code).toBe('ties');
       expect(error.message).toContain('40 of 130 points');
       expect(error.message).toContain('4 identical points');
@@ -306,16 +297,16 @@ describe('bad input', () => {
 
   it('n ≤ k gives EstimateError("too-few-points") naming n and k', () => {
     const sample = gaussianSample('few', 3, 2);
-    const error = errorOf(() => klEstimator.estimate(sample, { k: 3, norm: 'euclidean' }));
+    const error = estimateErrorOf(() => klEstimator.estimate(sample, { k: 3, norm: 'euclidean' }));
     expect(error.code).toBe('too-few-points');
     expect(error.message).toBe('kozachenko-leonenko needs n > k; got n = 3 with k = 3');
-    expect(errorOf(() => weightedEstimator.estimate(sample, { k: 3, norm: 'euclidean' })).code).toBe('too-few-points');
+    expect(estimateErrorOf(() => weightedEstimator.estimate(sample, { k: 3, norm: 'euclidean' })).code).toBe('too-few-points');
   });
 
   it('non-finite values are invalid input', () => {
     const sample = gaussianSample('nan', 20, 2);
     sample.data[7] = NaN;
-    const error = errorOf(() => klEstimator.estimate(sample, { k: 3, norm: 'euclidean' }));
+    const error = estimateErrorOf(() => klEstimator.estimate(sample, { k: 3, norm: 'euclidean' }));
     expect(error.code).toBe('invalid-input');
     expect(error.message).toBe('kozachenko-leonenko: value NaN at row 4, column 2; only finite numbers are allowed');
   });
