@@ -12,11 +12,15 @@
  *                       the equal-weight Gaussian mixture by adaptive quadrature (error stated in truthSource).
  */
 import { normalRandom } from '../src/math/random.js';
-import type { ParamSpec, ScenarioFamily } from '../src/core/contracts.js';
+import type { ParamSpec, ScenarioFamily, UnivariateDensity } from '../src/core/contracts.js';
 import { mutualInformationScenario } from './dependence.js';
 import { entropyByQuadrature, formatError } from './build.js';
-import type { UnivariateDensity } from '../src/core/contracts.js';
 import { normalCdf } from '../src/math/special.js';
+
+/** A class label uniform on {0, …, m − 1} from one uniform draw (the min guards u·m rounding up to m). */
+function drawLabel(rng: () => number, m: number): number {
+  return Math.min(m - 1, Math.floor(rng() * m));
+}
 
 const windowSpecs: ParamSpec[] = [{ name: 'm', meaning: 'number of values of X (0, …, m − 1)', default: 4, min: 1, max: 1000, integer: true }];
 
@@ -39,7 +43,7 @@ const miUniformWindow: ScenarioFamily = {
       draw: (rng, n) => {
         const data = new Float64Array(2 * n);
         for (let i = 0; i < n; i++) {
-          const x = Math.min(p.m - 1, Math.floor(rng() * p.m));
+          const x = drawLabel(rng, p.m);
           data[2 * i] = x;
           data[2 * i + 1] = x + 2 * rng();
         }
@@ -137,7 +141,7 @@ const miLabelGaussian: ScenarioFamily = {
         const normal = normalRandom.factory(0, 1, { prng: rng });
         const data = new Float64Array(2 * n);
         for (let i = 0; i < n; i++) {
-          const x = Math.min(p.m - 1, Math.floor(rng() * p.m));
+          const x = drawLabel(rng, p.m);
           data[2 * i] = x;
           data[2 * i + 1] = x * p.gap + normal();
         }
