@@ -134,6 +134,11 @@ export function listEstimators(): Estimator[] {
   return [...registry.values()];
 }
 
+/** Whether an estimator of this id is registered (built in, or from a module or command). */
+export function hasEstimator(id: string): boolean {
+  return registry.has(id);
+}
+
 export function getEstimator(id: string): Estimator {
   const estimator = registry.get(id);
   if (!estimator) {

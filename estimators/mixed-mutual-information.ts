@@ -33,19 +33,8 @@ import { KnnIndex } from '../src/math/knn.js';
 import { digamma } from '../src/math/special.js';
 import { checkedSplit, columns } from './mutual-information.js';
 import { inSpreadUnit } from './shared/scaling.js';
-
-/** Labels of X rows as dense integer codes 0..L−1 (rows equal in every X coordinate share a code). */
-function labelCodes(x: Float64Array, n: number, xDim: number): { codes: Int32Array; count: number } {
-  const seen = new Map<string, number>();
-  const codes = new Int32Array(n);
-  for (let i = 0; i < n; i++) {
-    const key = xDim === 1 ? String(x[i] === 0 ? 0 : x[i]) : Array.from(x.subarray(i * xDim, (i + 1) * xDim), (v) => (v === 0 ? 0 : v)).join(',');
-    let code = seen.get(key);
-    if (code === undefined) seen.set(key, (code = seen.size));
-    codes[i] = code;
-  }
-  return { codes, count: seen.size };
-}
+import { labelCodes } from '../src/core/sample.js';
+import { orderGrid } from './shared/order-grid.js';
 
 export function mixedMutualInformation(data: Float64Array, n: number, xDim: number, yDim: number, k: number, id = 'mi-mixed'): number {
   const dim = xDim + yDim;
@@ -161,6 +150,8 @@ function checkContinuousY(id: string, t: { m: number; k: number; zero: number; t
 
 const MIXED_K = 5;
 const ROSS_K = 3;
+/** The tuning grid's neighbour orders for both estimators. */
+const MIXED_ORDERS = [1, 2, 3, 5, 8, 10];
 
 export const mixedMutualInformationEstimators: Estimator[] = [
   defineEstimator({
@@ -173,7 +164,7 @@ export const mixedMutualInformationEstimators: Estimator[] = [
     dims: [2, Infinity],
     reference:
       'Gao, W., Kannan, S., Oh, S. & Viswanath, P. (2017). Estimating mutual information for discrete-continuous mixtures. Advances in Neural Information Processing Systems 30, Algorithm 1.',
-    tuning: (_base, n) => [{ setting: 'k', values: [1, 2, 3, 5, 8, 10].filter((k) => k < n) }],
+    tuning: orderGrid(MIXED_ORDERS),
     lacks: {
       separateScale: 'the joint max-norm distance compares X distances with Y distances, so rescaling X alone changes the neighbours (standardise the columns)',
     },
@@ -190,7 +181,8 @@ export const mixedMutualInformationEstimators: Estimator[] = [
     settings: [{ name: 'k', meaning: 'neighbour order among points with the same X', default: ROSS_K, kind: 'integer', min: 1 }],
     dims: [2, Infinity],
     reference: 'Ross, B. C. (2014). Mutual information between discrete and continuous data sets. PLoS ONE 9(2), e87357, eq. (2).',
-    tuning: (_base, n) => [{ setting: 'k', values: [1, 2, 3, 5, 8, 10].filter((k) => k < n / 4) }],
+    // Below n/4: each label needs more than k points for its k-th same-label neighbour.
+    tuning: (_base, n) => [{ setting: 'k', values: MIXED_ORDERS.filter((k) => k < n / 4) }],
     lacks: {
       // The estimate compares distances within Y only; X enters as labels, so it is unchanged by any map of X
       // that keeps the labels apart, but the conformance samples' continuous X is no label.

@@ -9,8 +9,9 @@
  */
 import type { Quantity, Sample } from '../core/contracts.js';
 import { findRepeats } from '../data/index.js';
+import { labelCodes, selectColumns } from '../core/sample.js';
 import { detectSteps, type StepReport } from '../math/lattice.js';
-import { dequantizedVariant, getEstimator, parseEstimatorSpec, supportsDimension, type ConfiguredEstimator } from '../../estimators/index.js';
+import { dequantizedVariant, hasEstimator, parseEstimatorSpec, supportsDimension, type ConfiguredEstimator } from '../../estimators/index.js';
 
 export interface RecordedColumn {
   name: string;
@@ -53,15 +54,6 @@ export function recordedData(sample: Sample, columnNames: readonly string[]): Re
   };
 }
 
-function known(id: string): boolean {
-  try {
-    getEstimator(id);
-    return true;
-  } catch {
-    return false;
-  }
-}
-
 /**
  * The estimators to offer on recorded data: every given estimator that takes dequantize (once, with
  * dequantize=auto), then the lattice estimator when every column is on a lattice (entropy), or the mixed-data
@@ -76,18 +68,22 @@ export function recordedChoices(sample: Sample, quantity: Quantity, data: Record
     choices.push({ configured, how });
   };
   for (const c of given) add(dequantizedVariant(c), JITTER);
-  if (quantity === 'entropy' && data.columns.every((c) => c.step !== null) && known('lattice')) {
+  if (quantity === 'entropy' && data.columns.every((c) => c.step !== null) && hasEstimator('lattice')) {
     add(parseEstimatorSpec('lattice'), 'counts: discrete entropy of the recorded values plus the log of the step');
   }
   if (quantity === 'mutual-information') {
-    if (known('mi-mixed')) add(parseEstimatorSpec('mi-mixed'), 'ties as point masses: zero distances counted, not jittered (Gao et al. 2017)');
+    if (hasEstimator('mi-mixed')) add(parseEstimatorSpec('mi-mixed'), 'ties as point masses: zero distances counted, not jittered (Gao et al. 2017)');
     const xDim = sample.xDim ?? 1;
-    const label = new Set<string>();
-    for (let i = 0; i < sample.n && label.size <= LABEL_SHARE * sample.n; i++) {
-      label.add(Array.from(sample.data.subarray(i * sample.dim, i * sample.dim + xDim)).join(','));
-    }
-    if (label.size <= LABEL_SHARE * sample.n && known('mi-discrete-continuous')) {
-      add(parseEstimatorSpec('mi-discrete-continuous'), `X as a label (${label.size} values), Y continuous (Ross 2014)`);
+    const labels = labelCodes(
+      selectColumns(
+        sample,
+        Array.from({ length: xDim }, (_, j) => j),
+      ).data,
+      sample.n,
+      xDim,
+    ).count;
+    if (labels <= LABEL_SHARE * sample.n && hasEstimator('mi-discrete-continuous')) {
+      add(parseEstimatorSpec('mi-discrete-continuous'), `X as a label (${labels} values), Y continuous (Ross 2014)`);
     }
   }
   return choices;

@@ -90,3 +90,19 @@ export function thinRows(sample: Sample, t: number): Sample {
   if (sample.q) thinned.q = thinRows(sample.q, t);
   return thinned;
 }
+
+/**
+ * The rows of an n × xDim array (X's columns) as dense label codes 0..L−1 in order of first appearance: rows equal
+ * in every coordinate share a code, −0 and +0 alike (a Map's number keys already treat them as one).
+ */
+export function labelCodes(x: Float64Array, n: number, xDim: number): { codes: Int32Array; count: number } {
+  const seen = new Map<number | string, number>();
+  const codes = new Int32Array(n);
+  for (let i = 0; i < n; i++) {
+    const key = xDim === 1 ? x[i] : Array.from(x.subarray(i * xDim, (i + 1) * xDim), (v) => (v === 0 ? 0 : v)).join(',');
+    let code = seen.get(key);
+    if (code === undefined) seen.set(key, (code = seen.size));
+    codes[i] = code;
+  }
+  return { codes, count: seen.size };
+}
