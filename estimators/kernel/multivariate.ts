@@ -91,7 +91,7 @@ export interface MultivariateKernelSums {
  * The pair loops add exp(−|z_i − z_j|²/(2h²)) for every pair of points in [fromA, toA) × [fromB, toB) (j > i
  * when the ranges coincide), each term to both points. They test no radius: an exponential costs less than
  * the mispredicted branch a radius test takes on about half the pairs (d = 3, n = 2000: 6.0 against 8.5 ns a
- * pair; test at the end of this file's history in the closing notes), and a term left in is never an error.
+ * pair, one row at a time), and a term left in is never an error.
  * A term below the double range rounds to 0 or a subnormal (absolute error ≤ 2^−1074), see exp.ts.
  * One loop per common dimension, unrolled, taking two rows p, p + 1 against each q: at d = 5 unrolling is 1.5×
  * the speed of the loop over axes, and two rows at once another 1.5× at d = 3 (6.8 against 4.5 ns a pair,
