@@ -13,6 +13,7 @@ import { defineEstimator, type Estimator, type EstimatorFile, type SettingSpec }
 import { EstimateError } from '../src/core/errors.js';
 import { KnnIndex, type KnnNorm } from '../src/math/knn.js';
 import { sortedNearestOthers } from '../src/math/knn-sorted.js';
+import { sharedSortedValues } from './shared/sorted-values.js';
 import { SampleMemo } from './shared/sample-memo.js';
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { checkFiniteValues } from '../src/core/sample.js';
@@ -292,7 +293,8 @@ function neighbourDistances(data: Float64Array, n: number, dim: number, norm: Kn
     base = { points: scaled.data, index: lazyIndex(scaled.data, dim, norm), logJacobian: scaled.logJacobian };
     stride = Math.min(n - 1, Math.max(k, Math.min(previousDraw, SHARED_NEIGHBOURS)));
   }
-  const distances = dim === 1 ? sortedNearestOthers(base.points, stride, norm) : base.index().nearestOthers(stride).distances;
+  // In 1-D the sorted copy is the one the spacing and kernel estimators of the draw share (unless a unit change made a new array).
+  const distances = dim === 1 ? sortedNearestOthers(base.points, sharedSortedValues(base.points), stride, norm) : base.index().nearestOthers(stride).distances;
   const search: NeighbourSearch = { ...base, distances, stride, searches: (kept?.searches ?? 0) + 1, largestAsked };
   if (n * stride <= SHARED_DISTANCES_MAX) searches.set(data, key, search);
   return search;

@@ -9,14 +9,16 @@
  * as neighbours at distance 0, exactly as the tree excludes a point by index only.
  */
 import type { KnnNorm } from './knn.js';
-import { sortAscending } from './sort.js';
 
-/** The k nearest OTHER values of each value, ascending, row-major n × k in the input order. */
-export function sortedNearestOthers(values: Float64Array, k: number, norm: KnnNorm): Float64Array {
+/**
+ * The k nearest OTHER values of each value, ascending, row-major n × k in the input order. `sorted` is the values
+ * sorted ascending (Float64Array.prototype.sort's order), passed in so a caller that already has them sorts once.
+ */
+export function sortedNearestOthers(values: Float64Array, sorted: Float64Array, k: number, norm: KnnNorm): Float64Array {
   const n = values.length;
   if (!Number.isInteger(k) || k < 1) throw new RangeError(`k must be a positive integer, got ${k}`);
   if (k > n - 1) throw new RangeError(`k = ${k} exceeds the number of other points (${n - 1})`);
-  const sorted = sortAscending(Float64Array.from(values));
+  if (sorted.length !== n) throw new RangeError(`sorted has ${sorted.length} values; expected ${n}, the values sorted`);
   const euclidean = norm === 'euclidean';
   const distances = new Float64Array(n * k);
   for (let i = 0; i < n; i++) {
