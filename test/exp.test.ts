@@ -31,6 +31,12 @@ describe('expNonPositive', () => {
   it('underflows as Math.exp does: subnormal results within a few 2^−1074, 0 below −745.2, NaN for NaN', () => {
     for (let x = -708.5; x > -745.2; x -= 0.37) expect(Math.abs(expNonPositive(x) - Math.exp(x))).toBeLessThanOrEqual(4 * 2 ** -1074);
     expect(expNonPositive(-745.3)).toBe(0);
+    // Every x below −745.2 is +0 (the clamp at −800 and the zero powers of two below 2^−1075), on a fine grid
+    // through the clamp; Math.exp is 0 there too.
+    for (let x = -745.2; x > -900; x -= 0.013) {
+      expect(Object.is(expNonPositive(x), 0)).toBe(true);
+      expect(Math.exp(x)).toBe(0);
+    }
     expect(expNonPositive(-1e300)).toBe(0);
     expect(expNonPositive(-Infinity)).toBe(0);
     expect(expNonPositive(NaN)).toBeNaN();
