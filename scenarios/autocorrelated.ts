@@ -9,11 +9,13 @@
  * §3.2.4), and maps row t through the base's own map. Each row therefore has exactly the base law (its truth,
  * support and tails are the base's); only the rows are no longer independent: row order is time order.
  */
-import normalRandom from '@stdlib/random-base-normal';
 import type { Rng, Sample, Scenario, SerialDependence } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { formatNumber, parseNumber } from '../src/core/spec.js';
 import { normalRepresentation } from './build.js';
+import { loadPackage } from '../src/core/vendor.js';
+
+const normalRandom = loadPackage<typeof import('@stdlib/random-base-normal')>('@stdlib/random-base-normal');
 
 export const AUTOCORRELATED_FAMILY = 'autocorrelated';
 export const AUTOCORRELATED_USAGE = 'autocorrelated[phi=φ;SPEC], −1 < φ < 1';

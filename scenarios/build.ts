@@ -14,11 +14,13 @@ import type {
   Tails,
   UnivariateDensity,
 } from '../src/core/contracts.js';
-import normalRandom from '@stdlib/random-base-normal';
 import { integrate } from '../src/math/quadrature.js';
 import { lowerTimes, type CholeskyFactor } from '../src/math/linalg.js';
 import { formatSpec } from '../src/core/spec.js';
 import { normalCdf } from '../src/math/special.js';
+import { loadPackage } from '../src/core/vendor.js';
+
+const normalRandom = loadPackage<typeof import('@stdlib/random-base-normal')>('@stdlib/random-base-normal');
 
 export function scenarioId(family: string, params: Record<string, number>, specs: readonly ParamSpec[]): string {
   return formatSpec(

@@ -17,8 +17,6 @@
  *   d ≥ 3  the Monte-Carlo mean of −log f over 10^6 draws seeded from the spec, with its standard error.
  */
 import { createHash } from 'node:crypto';
-import normalRandom from '@stdlib/random-base-normal';
-import seedrandom from 'seedrandom';
 import type { Rng, Sample, Scenario, UnivariateDensity } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { cholesky, type CholeskyFactor } from '../src/math/linalg.js';
@@ -26,6 +24,10 @@ import { integrate } from '../src/math/quadrature.js';
 import { normalCdf } from '../src/math/special.js';
 import { formatNumber, parseNumber } from '../src/core/spec.js';
 import { entropyByQuadrature, formatError, logDensityVarianceByQuadrature } from './build.js';
+import { loadPackage } from '../src/core/vendor.js';
+
+const normalRandom = loadPackage<typeof import('@stdlib/random-base-normal')>('@stdlib/random-base-normal');
+const seedrandom = loadPackage<typeof import('seedrandom')>('seedrandom');
 
 export const LOOKALIKE_FAMILY = 'gaussian-mixture-mv';
 export const LOOKALIKE_USAGE = `${LOOKALIKE_FAMILY}[W:MEAN:COV;...], MEAN d comma-separated values, COV d×d row-major`;

@@ -1,8 +1,6 @@
 /**
  * Multivariate scenarios with closed-form differential entropy.
  */
-import chisquareRandom from '@stdlib/random-base-chisquare';
-import normalRandom from '@stdlib/random-base-normal';
 import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
@@ -10,6 +8,10 @@ import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { formatNumber } from '../src/core/spec.js';
 import { gaussianFromNormals, gaussianRows, normalRepresentation, scenarioId } from './build.js';
 import { studentLogDensityVariance, univariateDensity } from './univariate.js';
+import { loadPackage } from '../src/core/vendor.js';
+
+const chisquareRandom = loadPackage<typeof import('@stdlib/random-base-chisquare')>('@stdlib/random-base-chisquare');
+const normalRandom = loadPackage<typeof import('@stdlib/random-base-normal')>('@stdlib/random-base-normal');
 
 const LOG_2PI_E = Math.log(2 * Math.PI * Math.E);
 const CT = 'Cover & Thomas, Elements of Information Theory, 2nd ed. (2006)';

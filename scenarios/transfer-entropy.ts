@@ -20,9 +20,11 @@ import type { ParamSpec, Rng, Scenario, ScenarioFamily } from '../src/core/contr
 import { UsageError } from '../src/core/errors.js';
 import { formatNumber } from '../src/core/spec.js';
 import { cholesky } from '../src/math/linalg.js';
-import normalRandom from '@stdlib/random-base-normal';
 import { scenarioFromFacts } from './build.js';
 import { univariateDensity } from './univariate.js';
+import { loadPackage } from '../src/core/vendor.js';
+
+const normalRandom = loadPackage<typeof import('@stdlib/random-base-normal')>('@stdlib/random-base-normal');
 
 const SCHREIBER = 'Schreiber, T. (2000). Measuring information transfer. Physical Review Letters 85, 461–464';
 

@@ -21,8 +21,6 @@
  *
  *   const comparison = compareRuns(readRunFile('base.json'), readRunFile('new.json'), { tolerance: parseTolerance('5%') });
  */
-import tCdf from '@stdlib/stats-base-dists-t-cdf';
-import tQuantile from '@stdlib/stats-base-dists-t-quantile';
 import { UsageError } from '../core/errors.js';
 import { cellKey, type Cell, type RunFile, type ScenarioInfo } from './results.js';
 import type { Plan } from '../harness/plan.js';
@@ -30,6 +28,10 @@ import type { Environment } from '../core/provenance.js';
 import type { ValueWithSe } from './score.js';
 import { fisherExact, signTest, signTestOf, type SignTest } from './exact-tests.js';
 import { quantileOfSorted, squaredDeviations } from '../math/moments.js';
+import { loadPackage } from '../core/vendor.js';
+
+const tCdf = loadPackage<typeof import('@stdlib/stats-base-dists-t-cdf')>('@stdlib/stats-base-dists-t-cdf');
+const tQuantile = loadPackage<typeof import('@stdlib/stats-base-dists-t-quantile')>('@stdlib/stats-base-dists-t-quantile');
 
 /** What a comparison reads of a cell. */
 export type ComparedCell = Pick<Cell, 'scenario' | 'estimator' | 'n' | 'perturbation' | 'estimates' | 'scores'>;

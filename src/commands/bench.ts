@@ -36,7 +36,6 @@ import { dependenceTables, detailTable, overallTable, robustnessTable, scenarioT
 import { estimatorLabel } from '../../estimators/index.js';
 import { rankLegend } from '../views/verdict-text.js';
 import { mergeShards } from '../analysis/merge.js';
-import { writeReport } from '../views/report/report.js';
 import { biasTextChart } from '../views/report/text-chart.js';
 
 interface BenchOptions {
@@ -388,6 +387,8 @@ async function presentRun(
   }
   if (options.report && !shard) {
     const reportPath = resolve(typeof options.report === 'string' ? options.report : out.replace(/\.json$/, '') + '.html');
+    // The charting stack (about a quarter of a second to load) only when a report is asked for.
+    const { writeReport } = await import('../views/report/report.js');
     await writeReport(run, { base, out: reportPath, svgDir: options.svgDir });
     if (!options.quiet) print(`report: ${reportPath}`);
   }

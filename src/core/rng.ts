@@ -1,6 +1,8 @@
 import { createHash } from 'node:crypto';
-import seedrandom from 'seedrandom';
 import type { Rng, Sample, Scenario } from './contracts.js';
+import { loadPackage } from './vendor.js';
+
+const seedrandom = loadPackage<typeof import('seedrandom')>('seedrandom');
 
 /** The base seed when none is given: plans without one, the default plans and the advice's benchmarks. */
 export const DEFAULT_SEED = 20261201;

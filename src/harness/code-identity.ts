@@ -36,14 +36,15 @@ function codeFolders(): string[] {
   const root = packageRoot();
   const running = fileURLToPath(import.meta.url);
   const base = running.endsWith('.ts') ? root : join(root, 'dist');
-  return ['src', 'estimators', 'scenarios'].map((f) => join(base, f)).filter((f) => existsSync(f));
+  // vendor/: the single-file copies of dependencies a built hhat loads (src/core/vendor.ts).
+  return ['src', 'estimators', 'scenarios', 'vendor'].map((f) => join(base, f)).filter((f) => existsSync(f));
 }
 
 function listFiles(folder: string, out: string[] = []): string[] {
   for (const entry of readdirSync(folder, { withFileTypes: true })) {
     const path = join(folder, entry.name);
     if (entry.isDirectory()) listFiles(path, out);
-    else if (/\.(js|mjs|ts|json)$/.test(entry.name) && !entry.name.endsWith('.d.ts') && !entry.name.endsWith('.map')) out.push(path);
+    else if (/\.(js|mjs|cjs|ts|json)$/.test(entry.name) && !entry.name.endsWith('.d.ts') && !entry.name.endsWith('.map')) out.push(path);
   }
   return out;
 }

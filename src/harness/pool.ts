@@ -181,13 +181,16 @@ function onMessage(run: Supervisor, slot: Slot, message: WorkerMessage): void {
     const job = slot.job!;
     slot.job = null;
     job.result.failures.sort((a, b) => a.replicate - b.replicate || a.series - b.series);
+    // The worker gets its next unit before this one is saved (an fsync of the checkpoint), so it does not wait
+    // for the disk; the last unit is saved before the run can end.
+    if (run.pending.length) dispatch(run, slot);
     try {
       run.options.onResult(job.result);
     } catch (error) {
       finish(run, false, error);
       return;
     }
-    dispatch(run, slot);
+    if (!slot.job) dispatch(run, slot);
   }
 }
 

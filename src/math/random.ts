@@ -4,9 +4,7 @@
  *
  *   const draw = normalRandom.factory(0, 1, { prng: rng });   // as the @stdlib package's own factory
  */
-import { createRequire } from 'node:module';
-
-const require = createRequire(import.meta.url);
+import { loadPackage } from '../core/vendor.js';
 
 type Argument = number | { prng: () => number };
 export interface RandomFactory {
@@ -15,7 +13,7 @@ export interface RandomFactory {
 
 function lazy(name: string): RandomFactory {
   let loaded: RandomFactory | undefined;
-  return { factory: (...args) => (loaded ??= require(name) as RandomFactory).factory(...args) };
+  return { factory: (...args) => (loaded ??= loadPackage<RandomFactory>(name)).factory(...args) };
 }
 
 export const arcsineRandom = lazy('@stdlib/random-base-arcsine');

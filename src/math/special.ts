@@ -1,9 +1,11 @@
 /** Special functions, from the @stdlib/math-base-special-* packages, behind one import. */
-import digammaImpl from '@stdlib/math-base-special-digamma';
-import trigammaImpl from '@stdlib/math-base-special-trigamma';
-import gammalnImpl from '@stdlib/math-base-special-gammaln';
-import betalnImpl from '@stdlib/math-base-special-betaln';
-import gammaincImpl from '@stdlib/math-base-special-gammainc';
+import { loadPackage } from '../core/vendor.js';
+
+const digammaImpl = loadPackage<typeof import('@stdlib/math-base-special-digamma')>('@stdlib/math-base-special-digamma');
+const trigammaImpl = loadPackage<typeof import('@stdlib/math-base-special-trigamma')>('@stdlib/math-base-special-trigamma');
+const gammalnImpl = loadPackage<typeof import('@stdlib/math-base-special-gammaln')>('@stdlib/math-base-special-gammaln');
+const betalnImpl = loadPackage<typeof import('@stdlib/math-base-special-betaln')>('@stdlib/math-base-special-betaln');
+const gammaincImpl = loadPackage<typeof import('@stdlib/math-base-special-gammainc')>('@stdlib/math-base-special-gammainc');
 
 export const digamma: (x: number) => number = digammaImpl;
 export const trigamma: (x: number) => number = trigammaImpl;
@@ -20,9 +22,9 @@ export function logUnitBallVolume(d: number): number {
   return (d / 2) * Math.log(Math.PI) - logGamma(d / 2 + 1);
 }
 
-import erfImpl from '@stdlib/math-base-special-erf';
-import erfcImpl from '@stdlib/math-base-special-erfc';
-import betaincImpl from '@stdlib/math-base-special-betainc';
+const erfImpl = loadPackage<typeof import('@stdlib/math-base-special-erf')>('@stdlib/math-base-special-erf');
+const erfcImpl = loadPackage<typeof import('@stdlib/math-base-special-erfc')>('@stdlib/math-base-special-erfc');
+const betaincImpl = loadPackage<typeof import('@stdlib/math-base-special-betainc')>('@stdlib/math-base-special-betainc');
 
 export const erf: (x: number) => number = erfImpl;
 export const erfc: (x: number) => number = erfcImpl;
