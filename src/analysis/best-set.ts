@@ -81,43 +81,12 @@ export function modelConfidenceSet(losses: ArrayLike<number>[], options: BestSet
   const indices = options.indices ?? bootstrapIndices(options.seed, replicates, resamples);
   if (indices.length !== resamples * replicates) throw new Error('modelConfidenceSet: indices must hold resamples × replicates entries');
 
-  const mean = new Float64Array(models);
-  for (let i = 0; i < models; i++) {
-    let sum = 0;
-    for (let r = 0; r < replicates; r++) sum += losses[i][r];
-    mean[i] = sum / replicates;
-  }
-  // zeta[b·models + i]: resample b's mean loss of estimator i minus the full-sample mean, computed once and
-  // reused by every elimination step (HLN use the same resamples throughout).
-  const zeta = new Float64Array(resamples * models);
-  for (let b = 0; b < resamples; b++) {
-    const row = b * replicates;
-    for (let i = 0; i < models; i++) {
-      const l = losses[i];
-      let sum = 0;
-      for (let r = 0; r < replicates; r++) sum += l[indices[row + r]];
-      zeta[b * models + i] = sum / replicates - mean[i];
-    }
-  }
-
-  // v̂_ij does not depend on M: one pass over the resamples serves every elimination step.
-  const pairScale = new Float64Array(models * models);
-  for (let b = 0; b < resamples; b++) {
-    const row = b * models;
-    for (let i = 0; i < models; i++) {
-      for (let j = i + 1; j < models; j++) {
-        const difference = zeta[row + i] - zeta[row + j];
-        pairScale[i * models + j] += difference * difference;
-      }
-    }
-  }
-  for (let i = 0; i < models; i++) {
-    for (let j = i + 1; j < models; j++) {
-      const sd = Math.sqrt(pairScale[i * models + j] / resamples);
-      pairScale[i * models + j] = sd;
-      pairScale[j * models + i] = sd;
-    }
-  }
+  // Each step is its own function over typed rows: one function holding every loop was recompiled by V8
+  // again and again (each call reached a loop whose feedback the optimised code did not have).
+  const rows = losses.map((l) => Float64Array.from(l));
+  const mean = meanLosses(rows, replicates);
+  const zeta = bootstrapDeviations(rows, mean, indices, resamples, replicates);
+  const pairScale = pairSpreads(zeta, models, resamples);
   const t = (i: number, j: number) => studentised(mean[i] - mean[j], pairScale[i * models + j]);
 
   const alive: number[] = [...Array(models).keys()];
@@ -138,20 +107,7 @@ export function modelConfidenceSet(losses: ArrayLike<number>[], options: BestSet
         worst = i;
       }
     }
-    let atLeast = 0;
-    for (let b = 0; b < resamples; b++) {
-      const row = b * models;
-      let largest = 0;
-      for (let a = 0; a < alive.length && largest < statistic; a++) {
-        const i = alive[a];
-        for (let c = a + 1; c < alive.length; c++) {
-          const j = alive[c];
-          const value = Math.abs(studentised(zeta[row + i] - zeta[row + j], pairScale[i * models + j]));
-          if (value > largest) largest = value;
-        }
-      }
-      if (largest >= statistic) atLeast++;
-    }
+    const atLeast = resamplesAtLeast(zeta, pairScale, Int32Array.from(alive), models, resamples, statistic);
     runningP = Math.max(runningP, atLeast / resamples);
     pValues[worst] = runningP;
     eliminationOrder.push(worst);
@@ -160,6 +116,78 @@ export function modelConfidenceSet(losses: ArrayLike<number>[], options: BestSet
   pValues[alive[0]] = 1;
   eliminationOrder.push(alive[0]);
   return { pValues, inSet: pValues.map((p) => p >= alpha), eliminationOrder, resamples };
+}
+
+/** Each estimator's mean loss. */
+function meanLosses(rows: Float64Array[], replicates: number): Float64Array {
+  const mean = new Float64Array(rows.length);
+  for (let i = 0; i < rows.length; i++) {
+    const l = rows[i];
+    let sum = 0;
+    for (let r = 0; r < replicates; r++) sum += l[r];
+    mean[i] = sum / replicates;
+  }
+  return mean;
+}
+
+/**
+ * zeta[b·models + i]: resample b's mean loss of estimator i minus the full-sample mean, computed once and reused
+ * by every elimination step (HLN use the same resamples throughout).
+ */
+function bootstrapDeviations(rows: Float64Array[], mean: Float64Array, indices: Uint32Array, resamples: number, replicates: number): Float64Array {
+  const models = rows.length;
+  const zeta = new Float64Array(resamples * models);
+  for (let b = 0; b < resamples; b++) {
+    const row = b * replicates;
+    for (let i = 0; i < models; i++) {
+      const l = rows[i];
+      let sum = 0;
+      for (let r = 0; r < replicates; r++) sum += l[indices[row + r]];
+      zeta[b * models + i] = sum / replicates - mean[i];
+    }
+  }
+  return zeta;
+}
+
+/** √v̂_ij for every pair, symmetric (v̂_ij does not depend on M: one pass over the resamples serves every step). */
+function pairSpreads(zeta: Float64Array, models: number, resamples: number): Float64Array {
+  const pairScale = new Float64Array(models * models);
+  for (let b = 0; b < resamples; b++) {
+    const row = b * models;
+    for (let i = 0; i < models; i++) {
+      for (let j = i + 1; j < models; j++) {
+        const difference = zeta[row + i] - zeta[row + j];
+        pairScale[i * models + j] += difference * difference;
+      }
+    }
+  }
+  for (let i = 0; i < models; i++) {
+    for (let j = i + 1; j < models; j++) {
+      const sd = Math.sqrt(pairScale[i * models + j] / resamples);
+      pairScale[i * models + j] = sd;
+      pairScale[j * models + i] = sd;
+    }
+  }
+  return pairScale;
+}
+
+/** #{b : T*_b ≥ T} over the estimators still in M (a resample stops counting once it reaches T). */
+function resamplesAtLeast(zeta: Float64Array, pairScale: Float64Array, alive: Int32Array, models: number, resamples: number, statistic: number): number {
+  let atLeast = 0;
+  for (let b = 0; b < resamples; b++) {
+    const row = b * models;
+    let largest = 0;
+    for (let a = 0; a < alive.length && largest < statistic; a++) {
+      const i = alive[a];
+      for (let c = a + 1; c < alive.length; c++) {
+        const j = alive[c];
+        const value = Math.abs(studentised(zeta[row + i] - zeta[row + j], pairScale[i * models + j]));
+        if (value > largest) largest = value;
+      }
+    }
+    if (largest >= statistic) atLeast++;
+  }
+  return atLeast;
 }
 
 /** d/s, with a zero spread read as certainty: the sign of d decides, and 0/0 is 0. */
