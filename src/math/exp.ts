@@ -28,10 +28,10 @@ const SIXTY_FOUR_OVER_LN2 = 64 / Math.LN2;
  */
 const LN2_64_HIGH = 6.9314718036912381649e-1 / 64;
 const LN2_64_LOW = 1.90821492927058770002e-10 / 64;
-/** 2^(j/64), j = 0..63. */
-const TABLE = Float64Array.from({ length: 64 }, (_, j) => 2 ** (j / 64));
+/** 2^(j/64), j = 0..63 (also the WebAssembly pair loops' table, src/math/pair-sums.ts: do not write to it). */
+export const TABLE = Float64Array.from({ length: 64 }, (_, j) => 2 ** (j / 64));
 /** 2^(m − 1200) for m = 0..1200: every power the clamped range [−800, 0] reaches (those below 2^−1075 are 0). */
-const POWERS = Float64Array.from({ length: 1201 }, (_, m) => 2 ** (m - 1200));
+export const POWERS = Float64Array.from({ length: 1201 }, (_, m) => 2 ** (m - 1200));
 /** Far enough below −745.2 (where exp underflows to 0) that the clamp changes no result. */
 const CLAMP = -800;
 

@@ -1,0 +1,117 @@
+/**
+ * The WebAssembly pair loops (src/math/pair-sums.ts) against plain JavaScript loops written here from the
+ * definition, two rows at a time in the same order, with expNonPositive (src/math/exp.ts, itself checked against
+ * Math.exp in test/exp.test.ts): the sums must be the same doubles, on every dimension the module has, for equal
+ * and different ranges, odd and even ranges, and bandwidths from wide to so narrow that terms underflow.
+ * The generated files must be what tools/pair-sums-wasm.mjs makes now.
+ */
+import { readFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { describe, expect, it } from 'vitest';
+import { expNonPositive } from '../src/math/exp.js';
+import { PAIR_SUMS_DIMS, pairSums } from '../src/math/pair-sums.js';
+import { PAIR_SUMS_WASM } from '../src/math/pair-sums-wasm.js';
+
+/** Reference: rows p, p + 1 against each q; squared distances in axis order; q gets the two terms added together. */
+function referencePairs(z: Float64Array, dim: number, fromA: number, toA: number, fromB: number, toB: number, scale: number, sums: Float64Array): void {
+  const same = fromA === fromB;
+  const squared = (i: number, j: number) => {
+    let s = 0;
+    for (let a = 0; a < dim; a++) {
+      const d = z[i * dim + a] - z[j * dim + a];
+      s = a === 0 ? d * d : s + d * d;
+    }
+    return s;
+  };
+  let p = fromA;
+  for (; p + 1 < toA; p += 2) {
+    let sumX = 0;
+    let sumY = 0;
+    let q = fromB;
+    if (same) {
+      const term = expNonPositive(scale * squared(p, p + 1));
+      sumX += term;
+      sumY += term;
+      q = p + 2;
+    }
+    for (; q < toB; q++) {
+      const termX = expNonPositive(scale * squared(p, q));
+      const termY = expNonPositive(scale * squared(p + 1, q));
+      sumX += termX;
+      sumY += termY;
+      sums[q] += termX + termY;
+    }
+    sums[p] += sumX;
+    sums[p + 1] += sumY;
+  }
+  if (p < toA) {
+    let sumX = 0;
+    for (let q = same ? p + 1 : fromB; q < toB; q++) {
+      const term = expNonPositive(scale * squared(p, q));
+      sumX += term;
+      sums[q] += term;
+    }
+    sums[p] += sumX;
+  }
+}
+
+function points(n: number, dim: number, seed: number): Float64Array {
+  let state = seed;
+  const z = new Float64Array(n * dim);
+  for (let i = 0; i < z.length; i++) {
+    state = (state * 48271) % 2147483647;
+    // Mostly a unit cloud, every seventh coordinate far out (terms far below 1 and underflowing ones).
+    z[i] = (state / 2147483647 - 0.5) * (i % 7 === 0 ? 40 : 2);
+  }
+  return z;
+}
+
+describe('WebAssembly pair sums (src/math/pair-sums.ts)', () => {
+  it('add the same doubles as plain two-row loops with expNonPositive, bit for bit', () => {
+    let compared = 0;
+    let underflowed = 0;
+    for (const dim of PAIR_SUMS_DIMS) {
+      for (const n of [2, 3, 57, 300]) {
+        const z = points(n, dim, 1000 * dim + n);
+        for (const h of [3, 0.4, 0.02]) {
+          const scale = -0.5 / (h * h);
+          // Ranges as the blocked pass (blocks of 64) and as the cell list (a range against a later one) take them.
+          const ranges: [number, number, number, number][] = [];
+          for (let a = 0; a < n; a += 64) for (let b = a; b < n; b += 64) ranges.push([a, Math.min(a + 64, n), b, Math.min(b + 64, n)]);
+          if (n > 10) ranges.push([1, 6, 6, n], [0, 5, 7, 9]);
+          const expected = new Float64Array(n);
+          const got = new Float64Array(n);
+          const pairs = pairSums(z, n, dim);
+          for (const [fromA, toA, fromB, toB] of ranges) {
+            referencePairs(z, dim, fromA, toA, fromB, toB, scale, expected);
+            pairs.add(fromA, toA, fromB, toB, scale);
+          }
+          pairs.addTo(got);
+          for (let i = 0; i < n; i++) {
+            expect(Object.is(got[i], expected[i]), `d = ${dim}, n = ${n}, h = ${h}, point ${i}: ${got[i]} against ${expected[i]}`).toBe(true);
+            compared++;
+            if (expected[i] < 1e-300) underflowed++;
+          }
+        }
+      }
+    }
+    expect(compared).toBeGreaterThan(4000);
+    // The narrow bandwidth leaves far points with sums at or below the double range, the case the clamp is for.
+    expect(underflowed).toBeGreaterThan(10);
+  });
+
+  it('refuses a PairSums used after a later pairSums call in the same thread', () => {
+    const first = pairSums(points(10, 3, 1), 10, 3);
+    pairSums(points(10, 2, 2), 10, 2);
+    expect(() => first.add(0, 10, 0, 10, -0.5)).toThrow(/replaced by a later pairSums call/);
+    expect(() => pairSums(points(10, 6, 3), 10, 6)).toThrow(/no WebAssembly loop for d = 6/);
+  });
+
+  it('are what tools/pair-sums-wasm.mjs generates now (the .wat text and the assembled bytes)', async () => {
+    const generator = '../tools/pair-sums-wasm.mjs';
+    const { pairSumsWat, assemble } = (await import(generator)) as { pairSumsWat: () => string; assemble: (text: string) => Promise<Buffer> };
+    const text = pairSumsWat();
+    expect(readFileSync(join(import.meta.dirname, '..', 'src', 'math', 'pair-sums.wat'), 'utf8')).toBe(text);
+    expect((await assemble(text)).toString('base64')).toBe(PAIR_SUMS_WASM);
+  });
+});

@@ -1,0 +1,157 @@
+/**
+ * Writes src/math/pair-sums.wat and src/math/pair-sums-wasm.ts (the assembled module, base64): the kernel
+ * estimator's pair loops for d = 2..5 in WebAssembly with two-lane SIMD (src/math/pair-sums.ts says what they
+ * compute and why). Both files are generated and committed; test/pair-sums.test.ts generates them again and fails
+ * if they differ, and checks the module bit for bit against plain loops.
+ *
+ *   node tools/pair-sums-wasm.mjs          # after editing this generator
+ *
+ * Every operation mirrors src/math/exp.ts (expNonPositive) and a two-row pair loop in the same order, so that
+ * the results are the same doubles: WebAssembly rounds every operation to double as JavaScript does and has no
+ * fused multiply-add. Two liberties, both exact here: the clamp uses pmax (x < −800 ? −800 : x; x is never NaN,
+ * and −800 is not a zero), and k is read from the low 32 bits of x·64/ln2 + 1.5·2^52, which hold it in two's
+ * complement (the same integer as (that − 1.5·2^52) | 0).
+ */
+import wabtInit from 'wabt';
+import { writeFileSync } from 'node:fs';
+import { dirname, join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+
+export const DIMS = [2, 3, 4, 5];
+/** Byte offsets of the tables in the module's memory (src/math/pair-sums.ts writes them and places data after). */
+export const TABLE_OFFSET = 0;
+export const POWERS_OFFSET = 64 * 8;
+
+const C = {
+  ROUND: 6755399441055744,
+  SIXTY_FOUR_OVER_LN2: 64 / Math.LN2,
+  LN2_64_HIGH: 6.9314718036912381649e-1 / 64,
+  LN2_64_LOW: 1.90821492927058770002e-10 / 64,
+};
+/** A double as WAT reads it back exactly (shortest round-trip decimal, as JavaScript prints it). */
+const f64 = (x) => {
+  const s = String(x);
+  return /[.e]/.test(s) ? s : `${s}.0`;
+};
+const splat = (x) => `(f64x2.splat (f64.const ${f64(x)}))`;
+const polynomial = (r, op, one) =>
+  `(${op}.add ${one(1)} (${op}.mul ${r} (${op}.add ${one(1)} (${op}.mul ${r} (${op}.add ${one(0.5)} (${op}.mul ${r} (${op}.add ${one(1 / 6)} (${op}.mul ${r} (${op}.add ${one(1 / 24)} (${op}.mul ${r} ${one(1 / 120)}))))))))))`;
+const scalar = (x) => `(f64.const ${f64(x)})`;
+const tableLoad = (k) => `(f64.load offset=${TABLE_OFFSET} (i32.shl (i32.and ${k} (i32.const 63)) (i32.const 3)))`;
+const powerLoad = (k) => `(f64.load offset=${POWERS_OFFSET} (i32.shl (i32.add (i32.shr_s ${k} (i32.const 6)) (i32.const 1200)) (i32.const 3)))`;
+
+/** expNonPositive for one double. */
+const scalarExp = `
+  (func $exp (param $x f64) (result f64) (local $y f64) (local $kf f64) (local $r f64) (local $k i32)
+    (local.set $y (f64.max (local.get $x) (f64.const -800.0)))
+    (local.set $kf (f64.sub (f64.add (f64.mul (local.get $y) ${scalar(C.SIXTY_FOUR_OVER_LN2)}) ${scalar(C.ROUND)}) ${scalar(C.ROUND)}))
+    (local.set $r (f64.sub (f64.sub (local.get $y) (f64.mul (local.get $kf) ${scalar(C.LN2_64_HIGH)})) (f64.mul (local.get $kf) ${scalar(C.LN2_64_LOW)})))
+    (local.set $k (i32.trunc_sat_f64_s (local.get $kf)))
+    (f64.mul (f64.mul ${tableLoad('(local.get $k)')} ${powerLoad('(local.get $k)')}) ${polynomial('(local.get $r)', 'f64', scalar)}))`;
+
+/** expNonPositive in both lanes of $arg, into $term (inline: a call per pair costs a quarter of the loop). */
+const vectorExp = (arg) => `
+        (local.set $ey (f64x2.pmax ${arg} ${splat(-800)}))
+        (local.set $ek (f64x2.add (f64x2.mul (local.get $ey) ${splat(C.SIXTY_FOUR_OVER_LN2)}) ${splat(C.ROUND)}))
+        (local.set $ekf (f64x2.sub (local.get $ek) ${splat(C.ROUND)}))
+        (local.set $er (f64x2.sub (f64x2.sub (local.get $ey) (f64x2.mul (local.get $ekf) ${splat(C.LN2_64_HIGH)})) (f64x2.mul (local.get $ekf) ${splat(C.LN2_64_LOW)})))
+        (local.set $ek0 (i32x4.extract_lane 0 (local.get $ek)))
+        (local.set $ek1 (i32x4.extract_lane 2 (local.get $ek)))
+        (local.set $term (f64x2.mul (f64x2.mul
+          (f64x2.replace_lane 1 (f64x2.splat ${tableLoad('(local.get $ek0)')}) ${tableLoad('(local.get $ek1)')})
+          (f64x2.replace_lane 1 (f64x2.splat ${powerLoad('(local.get $ek0)')}) ${powerLoad('(local.get $ek1)')}))
+          ${polynomial('(local.get $er)', 'f64x2', splat)}))`;
+
+/** Squared distance summed in axis order: a0·a0 + a1·a1 + … */
+const squaredSum = (op, term) =>
+  DIMS_AXES.current.slice(1).reduce((acc, a) => `(${op}.add ${acc} (${op}.mul ${term(a)} ${term(a)}))`, `(${op}.mul ${term(0)} ${term(0)})`);
+const DIMS_AXES = { current: [] };
+
+function pairLoop(d) {
+  const axes = [...Array(d).keys()];
+  DIMS_AXES.current = axes;
+  const at = (point, axis) =>
+    `(f64.load (i32.add (local.get $z) (i32.shl (i32.add (i32.mul (local.get ${point}) (i32.const ${d})) (i32.const ${axis})) (i32.const 3))))`;
+  const sumsAt = (point, offset = 0) => `(i32.add (local.get $sums) (i32.shl (i32.add (local.get ${point}) (i32.const ${offset})) (i32.const 3)))`;
+  const addTo = (point, value, offset = 0) => `(f64.store ${sumsAt(point, offset)} (f64.add (f64.load ${sumsAt(point, offset)}) ${value}))`;
+  return `
+  ;; pairs${d}(z, fromA, toA, fromB, toB, scale, sums): every pair of [fromA, toA) × [fromB, toB) (q > p when the
+  ;; ranges are the same), exp(scale·|z_p − z_q|²) added to sums[p] and sums[q]; rows p and p + 1 in the two lanes.
+  (func (export "pairs${d}") (param $z i32) (param $fromA i32) (param $toA i32) (param $fromB i32) (param $toB i32) (param $scale f64) (param $sums i32)
+    (local $same i32) (local $p i32) (local $q i32) (local $acc v128) (local $term v128) (local $scales v128)
+    (local $ey v128) (local $ek v128) (local $ekf v128) (local $er v128) (local $ek0 i32) (local $ek1 i32)
+    (local $t f64) (local $s f64) (local $sumX f64)
+    ${axes.map((a) => `(local $v${a} v128) (local $w${a} v128) (local $x${a} f64)`).join(' ')}
+    (local.set $same (i32.eq (local.get $fromA) (local.get $fromB)))
+    (local.set $scales (f64x2.splat (local.get $scale)))
+    (local.set $p (local.get $fromA))
+    (block $rowsDone (loop $rows
+      (br_if $rowsDone (i32.ge_s (i32.add (local.get $p) (i32.const 1)) (local.get $toA)))
+      ${axes.map((a) => `(local.set $v${a} (f64x2.replace_lane 1 (f64x2.splat ${at('$p', a)}) ${at('$p', a + d)}))`).join('\n      ')}
+      (local.set $acc (f64x2.splat (f64.const 0.0)))
+      (local.set $q (local.get $fromB))
+      (if (local.get $same) (then
+        ;; the pair (p, p + 1) itself, to both rows
+        ${axes.map((a) => `(local.set $x${a} (f64.sub ${at('$p', a)} ${at('$p', a + d)}))`).join(' ')}
+        (local.set $acc (f64x2.splat (call $exp (f64.mul (local.get $scale) ${squaredSum('f64', (a) => `(local.get $x${a})`)}))))
+        (local.set $q (i32.add (local.get $p) (i32.const 2)))))
+      (block $columnsDone (loop $columns
+        (br_if $columnsDone (i32.ge_s (local.get $q) (local.get $toB)))
+        ${axes.map((a) => `(local.set $w${a} (f64x2.sub (local.get $v${a}) (f64x2.splat ${at('$q', a)})))`).join('\n        ')}
+        ${vectorExp(`(f64x2.mul (local.get $scales) ${squaredSum('f64x2', (a) => `(local.get $w${a})`)})`)}
+        (local.set $acc (f64x2.add (local.get $acc) (local.get $term)))
+        ${addTo('$q', '(f64.add (f64x2.extract_lane 0 (local.get $term)) (f64x2.extract_lane 1 (local.get $term)))')}
+        (local.set $q (i32.add (local.get $q) (i32.const 1)))
+        (br $columns)))
+      ${addTo('$p', '(f64x2.extract_lane 0 (local.get $acc))')}
+      ${addTo('$p', '(f64x2.extract_lane 1 (local.get $acc))', 1)}
+      (local.set $p (i32.add (local.get $p) (i32.const 2)))
+      (br $rows)))
+    ;; the last row of an odd range, alone
+    (if (i32.lt_s (local.get $p) (local.get $toA)) (then
+      ${axes.map((a) => `(local.set $x${a} ${at('$p', a)})`).join(' ')}
+      (local.set $sumX (f64.const 0.0))
+      (local.set $q (if (result i32) (local.get $same) (then (i32.add (local.get $p) (i32.const 1))) (else (local.get $fromB))))
+      (block $tailDone (loop $tail
+        (br_if $tailDone (i32.ge_s (local.get $q) (local.get $toB)))
+        (local.set $t (call $exp (f64.mul (local.get $scale) ${squaredSum('f64', (a) => `(f64.sub (local.get $x${a}) ${at('$q', a)})`)})))
+        (local.set $sumX (f64.add (local.get $sumX) (local.get $t)))
+        ${addTo('$q', '(local.get $t)')}
+        (local.set $q (i32.add (local.get $q) (i32.const 1)))
+        (br $tail)))
+      ${addTo('$p', '(local.get $sumX)')})))`;
+}
+
+export function pairSumsWat() {
+  return `;; Generated by tools/pair-sums-wasm.mjs; do not edit.
+(module
+  (memory (export "memory") 1)
+  ${scalarExp}
+  ${DIMS.map(pairLoop).join('\n')}
+)
+`;
+}
+
+export async function assemble(text) {
+  const wabt = await wabtInit();
+  const module = wabt.parseWat('pair-sums.wat', text, { simd: true, sat_float_to_int: true });
+  module.validate();
+  const { buffer } = module.toBinary({});
+  module.destroy();
+  return Buffer.from(buffer);
+}
+
+export function moduleSource(bytes) {
+  return `// Generated by tools/pair-sums-wasm.mjs from src/math/pair-sums.wat; do not edit.
+export const PAIR_SUMS_WASM = '${bytes.toString('base64')}';
+`;
+}
+
+if (process.argv[1] === fileURLToPath(import.meta.url)) {
+  const folder = join(dirname(fileURLToPath(import.meta.url)), '..', 'src', 'math');
+  const text = pairSumsWat();
+  const bytes = await assemble(text);
+  writeFileSync(join(folder, 'pair-sums.wat'), text);
+  writeFileSync(join(folder, 'pair-sums-wasm.ts'), moduleSource(bytes));
+  console.log(`pair-sums: ${bytes.length} bytes of WebAssembly for d = ${DIMS.join(', ')}`);
+}
