@@ -63,13 +63,11 @@ const vectorExp = (arg) => `
           ${polynomial('(local.get $er)', 'f64x2', splat)}))`;
 
 /** Squared distance summed in axis order: a0·a0 + a1·a1 + … */
-const squaredSum = (op, term) =>
-  DIMS_AXES.current.slice(1).reduce((acc, a) => `(${op}.add ${acc} (${op}.mul ${term(a)} ${term(a)}))`, `(${op}.mul ${term(0)} ${term(0)})`);
-const DIMS_AXES = { current: [] };
+const squaredSum = (axes, op, term) =>
+  axes.slice(1).reduce((acc, a) => `(${op}.add ${acc} (${op}.mul ${term(a)} ${term(a)}))`, `(${op}.mul ${term(0)} ${term(0)})`);
 
 function pairLoop(d) {
   const axes = [...Array(d).keys()];
-  DIMS_AXES.current = axes;
   const at = (point, axis) =>
     `(f64.load (i32.add (local.get $z) (i32.shl (i32.add (i32.mul (local.get ${point}) (i32.const ${d})) (i32.const ${axis})) (i32.const 3))))`;
   const sumsAt = (point, offset = 0) => `(i32.add (local.get $sums) (i32.shl (i32.add (local.get ${point}) (i32.const ${offset})) (i32.const 3)))`;
@@ -93,12 +91,12 @@ function pairLoop(d) {
       (if (local.get $same) (then
         ;; the pair (p, p + 1) itself, to both rows
         ${axes.map((a) => `(local.set $x${a} (f64.sub ${at('$p', a)} ${at('$p', a + d)}))`).join(' ')}
-        (local.set $acc (f64x2.splat (call $exp (f64.mul (local.get $scale) ${squaredSum('f64', (a) => `(local.get $x${a})`)}))))
+        (local.set $acc (f64x2.splat (call $exp (f64.mul (local.get $scale) ${squaredSum(axes, 'f64', (a) => `(local.get $x${a})`)}))))
         (local.set $q (i32.add (local.get $p) (i32.const 2)))))
       (block $columnsDone (loop $columns
         (br_if $columnsDone (i32.ge_s (local.get $q) (local.get $toB)))
         ${axes.map((a) => `(local.set $w${a} (f64x2.sub (local.get $v${a}) (f64x2.splat ${at('$q', a)})))`).join('\n        ')}
-        ${vectorExp(`(f64x2.mul (local.get $scales) ${squaredSum('f64x2', (a) => `(local.get $w${a})`)})`)}
+        ${vectorExp(`(f64x2.mul (local.get $scales) ${squaredSum(axes, 'f64x2', (a) => `(local.get $w${a})`)})`)}
         (local.set $acc (f64x2.add (local.get $acc) (local.get $term)))
         ${addTo('$q', '(f64.add (f64x2.extract_lane 0 (local.get $term)) (f64x2.extract_lane 1 (local.get $term)))')}
         (local.set $q (i32.add (local.get $q) (i32.const 1)))
@@ -114,7 +112,7 @@ function pairLoop(d) {
       (local.set $q (if (result i32) (local.get $same) (then (i32.add (local.get $p) (i32.const 1))) (else (local.get $fromB))))
       (block $tailDone (loop $tail
         (br_if $tailDone (i32.ge_s (local.get $q) (local.get $toB)))
-        (local.set $t (call $exp (f64.mul (local.get $scale) ${squaredSum('f64', (a) => `(f64.sub (local.get $x${a}) ${at('$q', a)})`)})))
+        (local.set $t (call $exp (f64.mul (local.get $scale) ${squaredSum(axes, 'f64', (a) => `(f64.sub (local.get $x${a}) ${at('$q', a)})`)})))
         (local.set $sumX (f64.add (local.get $sumX) (local.get $t)))
         ${addTo('$q', '(local.get $t)')}
         (local.set $q (i32.add (local.get $q) (i32.const 1)))
