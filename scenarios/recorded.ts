@@ -94,10 +94,11 @@ function cellCount(lattice: Lattice): number {
   return lattice.last - lattice.first + 1;
 }
 
-function tooManyCells(base: Scenario, lattice: Lattice): string {
+/** Why a lattice is refused, in one line (without the scenario's id). */
+function tooManyCells(lattice: Lattice): string {
   const cells = cellCount(lattice);
   const least = (lattice.step * cells) / MAX_CELLS;
-  return `recorded[step=${formatNumber(lattice.step)};${base.id}]: the lattice would need ${Number.isFinite(cells) ? cells : 'infinitely many'} cells to hold the law between its ${TAIL} and 1 − ${TAIL} quantiles, more than ${MAX_CELLS}; the discrete entropy needs a step of at least ${formatNumber(Number(least.toPrecision(2)))}`;
+  return `the lattice would need ${Number.isFinite(cells) ? cells : 'infinitely many'} cells to hold the law between its ${TAIL} and 1 − ${TAIL} quantiles, more than ${MAX_CELLS}; the discrete entropy needs a step of at least ${formatNumber(Number(least.toPrecision(2)))}`;
 }
 
 /**
@@ -160,7 +161,7 @@ export function discreteEntropy(base: Scenario, step: number): number {
   const density = base.univariate;
   if (!density) throw new UsageError(`recorded[step=${formatNumber(step)};${base.id}]: the discrete entropy needs a one-dimensional law with a CDF`);
   const lattice = latticeOf(density, step);
-  if (!(cellCount(lattice) <= MAX_CELLS)) throw new UsageError(tooManyCells(base, lattice));
+  if (!(cellCount(lattice) <= MAX_CELLS)) throw new UsageError(`recorded[step=${formatNumber(step)};${base.id}]: ${tooManyCells(lattice)}`);
   return latticeSum(density, lattice);
 }
 
@@ -220,7 +221,7 @@ function recordedFacts(base: Scenario, steps: number[]): RecordedFacts {
   if (!density) return unstated(`not stated: ${base.id} states no CDF`);
   const step = steps[0];
   const lattice = latticeOf(density, step);
-  if (!(cellCount(lattice) <= MAX_CELLS)) return unstated(`not computed: ${tooManyCells(base, lattice)}`);
+  if (!(cellCount(lattice) <= MAX_CELLS)) return unstated(`not computed: ${tooManyCells(lattice)}`);
   const bound = tailBound(lattice, base.moments);
   const boundText =
     bound === undefined

@@ -3,7 +3,10 @@
  * the upper tail against SciPy (test/fixtures/make_recorded_fixture.py), the drawn values on the lattice and at the
  * cell frequencies of the base CDF.
  */
-import { readFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { Ajv2020 } from 'ajv/dist/2020.js';
 import chisquareCdf from '@stdlib/stats-base-dists-chisquare-cdf';
 import { describe, expect, it } from 'vitest';
 import { parseScenario } from '../scenarios/index.js';
@@ -13,6 +16,10 @@ import { UsageError } from '../src/core/errors.js';
 import { drawReplicate, replicateRng } from '../src/core/rng.js';
 import { parseDelimited } from '../src/data/index.js';
 import { runCli } from './helpers/cli.js';
+import { resolvePlan } from '../src/harness/plan.js';
+import { runPlan } from '../src/harness/runner.js';
+import { assembleRun, writeRunFile, type RunFile } from '../src/analysis/results.js';
+import runSchema from '../src/schemas/run.schema.json' with { type: 'json' };
 
 const fixture = JSON.parse(readFileSync(new URL('./fixtures/recorded.json', import.meta.url), 'utf8')) as {
   cases: { base: string; step: number; discreteEntropy: number; latticeEntropy: number }[];
@@ -155,5 +162,33 @@ describe('recorded[...] determinism and composition', () => {
     expect(scenario.moments).toEqual(parseScenario('normal').moments);
     expect(scenario.recorded!.source).toMatch(/survival function above.*error from the tails at most \d\.\de-1[5-7] nats/);
     expect(parseScenario('recorded[step=0.1;transformed[sinh;normal]]').recorded!.source).toMatch(/states no CDF/);
+  });
+});
+
+describe('recorded[...] in a run file', () => {
+  it('carries the recorded facts in its scenario info (valid against run.schema.json), and a density-needing perturbation skips with a reason', async () => {
+    const plan = resolvePlan({
+      scenarios: ['recorded[step=0.1;normal]', 'recorded[step=0.5/0;gaussian:dim=2]', 'normal'],
+      estimators: ['kozachenko-leonenko'],
+      robustness: { perturbations: ['monotone:map=asinh'], tuning: false },
+      sampleSizes: [60],
+      replicates: 2,
+      seed: 5,
+    }).plan;
+    const run = assembleRun(await runPlan(plan, { workers: 1 }), null);
+    const path = join(mkdtempSync(join(tmpdir(), 'hhat-recorded-')), 'run.json');
+    writeRunFile(path, run);
+    const parsed = JSON.parse(readFileSync(path, 'utf8')) as RunFile;
+    const validate = new Ajv2020({ strict: false }).compile(runSchema);
+    expect(validate(parsed), JSON.stringify(validate.errors)).toBe(true);
+    const info = new Map(parsed.scenarios.map((s) => [s.id, s]));
+    const c = fixture.cases.find((x) => x.base === 'normal:mu=0,sigma=1' && x.step === 0.1)!;
+    const one = info.get('recorded[step=0.1;normal:mu=0,sigma=1]')!;
+    expect(one.recorded!.steps).toEqual([0.1]);
+    expect(Math.abs(one.recorded!.discreteEntropy! - c.discreteEntropy)).toBeLessThanOrEqual(1e-10);
+    expect(one.logDensityVariance).toBeNull();
+    expect(info.get(parseScenario('recorded[step=0.5/0;gaussian:dim=2]').id)!.recorded!.steps).toEqual([0.5, 0]);
+    expect(info.get('normal:mu=0,sigma=1')!.recorded).toBeUndefined();
+    expect(parsed.skipped.map((s) => JSON.stringify(s)).join('\n')).toMatch(/recorded\[step=0\.1.*monotone:map=asinh needs the coordinates' marginal laws/);
   });
 });
