@@ -102,12 +102,14 @@ function tooManyCells(lattice: Lattice): string {
 }
 
 /**
- * The neglected tails. Merging the mass T beyond the cut into the end cell (mass p) changes −p log p by
- * φ(p + T) − φ(p) ∈ [0, φ(T)], φ(t) = −t log t (φ is concave with φ(0) = 0, hence subadditive, and increasing
- * below 1/e), and drops the entropy of the cells beyond, Σ φ(q_j) = φ(T) + T·H(Q), with Q the conditional law of
- * the cell index j = 1, 2, … counted outward from the cut. On {1, 2, …} with mean μ the geometric law has the
- * largest entropy, at most 1 + log μ, and μ ≤ 2 + E[|X − c|; tail]/(TΔ) ≤ 2 + (E|X| + |c|)/(TΔ). So each side
- * is off by at most T(log(1/T) + 1 + log(2 + (E|X| + |c|)/(TΔ))), increasing in T; E|X| ≤ √(E X²).
+ * The neglected tails, on each side: the mass T beyond the cut c (the end cell's outer edge) is merged into the end
+ * cell (mass p). With φ(t) = −t log t, concave with φ(0) = 0 and so subadditive, the merge changes φ(p) by
+ * φ(p + T) − φ(p) ∈ [−T, φ(T)] (the slope −log t − 1 is above −1 once t ≤ 1), and it drops the cells beyond,
+ * Σ φ(q_j) = φ(T) + T·H(Q), Q the conditional law of the cell index j = 1, 2, … counted outward from c. The
+ * error is therefore between −(T + φ(T) + T·H(Q)) and 0. On {1, 2, …} with mean μ the geometric law has the
+ * largest entropy, below 1 + log μ, and j ≤ 1 + |X − c|/Δ gives μ ≤ 1 + E[|X − c|; tail]/(TΔ) ≤
+ * 1 + (E|X| + |c|)/(TΔ). So each side is off by at most T(log(1/T) + 2 + log(1 + (E|X| + |c|)/(TΔ))), which
+ * increases with T (so the computed T, itself at most about 1e-17, may stand for the true one); E|X| ≤ √(E X²).
  * Undefined when the law has no finite variance.
  */
 function tailBound(lattice: Lattice, moments: Scenario['moments']): number | undefined {
@@ -115,7 +117,7 @@ function tailBound(lattice: Lattice, moments: Scenario['moments']): number | und
   const variance = moments?.covariance[0][0];
   if (mean === undefined || variance === undefined || !Number.isFinite(variance)) return undefined;
   const absMean = Math.sqrt(mean * mean + variance);
-  const side = (t: number, cut: number) => (t > 0 ? t * (Math.log(1 / t) + 1 + Math.log(2 + (absMean + Math.abs(cut)) / (t * lattice.step))) : 0);
+  const side = (t: number, cut: number) => (t > 0 ? t * (Math.log(1 / t) + 2 + Math.log(1 + (absMean + Math.abs(cut)) / (t * lattice.step))) : 0);
   return side(lattice.lowerTail, (lattice.first - 0.5) * lattice.step) + side(lattice.upperTail, (lattice.last + 0.5) * lattice.step);
 }
 
