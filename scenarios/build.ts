@@ -220,6 +220,31 @@ function invertCdf(density: UnivariateDensity, p: number): number {
 }
 
 /**
+ * The survival function S(x) = 1 − F(x): the density's own, accurate far in the upper tail, or 1 − cdf with
+ * `stable: false` (then S is only good to about 1e-16 absolute, and nowhere below that).
+ */
+export function survivalOf(density: UnivariateDensity): { survival: (x: number) => number; stable: boolean } {
+  if (density.survival) return { survival: density.survival.bind(density), stable: true };
+  return { survival: (x) => 1 - density.cdf(x), stable: false };
+}
+
+/**
+ * The upper quantile x with S(x) = q for small q, where F⁻¹(1 − q) cannot be asked (1 − q rounds to 1 once
+ * q < 1.1e-16): the survival function inverted as invertCdf inverts the CDF. Without a stable survival
+ * function the answer is F⁻¹(largest double below 1), i.e. q is raised to about 1.1e-16.
+ */
+export function upperQuantileOf(density: UnivariateDensity): (q: number) => number {
+  const { survival, stable } = survivalOf(density);
+  if (!stable) {
+    const quantile = quantileOf(density);
+    return (q) => quantile(Math.min(P_MAX, 1 - q));
+  }
+  // x ↦ −S(x) is increasing, with derivative f: the CDF inversion applies to it as is.
+  const flipped: UnivariateDensity = { ...density, cdf: (x) => -survival(x), quantile: undefined };
+  return (q) => invertCdf(flipped, -q);
+}
+
+/**
  * How a scenario's rows come from independent standard normals: its own declaration, or for a one-dimensional
  * entropy scenario the quantile of Φ(z) (probability integral transform: if Z ~ N(0,1), F⁻¹(Φ(Z)) has CDF F).
  * Undefined when the law has neither (heavy-tailed mixtures of scales, divergence pairs, ...).

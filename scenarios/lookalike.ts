@@ -21,7 +21,7 @@ import type { Rng, Sample, Scenario, UnivariateDensity } from '../src/core/contr
 import { UsageError } from '../src/core/errors.js';
 import { cholesky, type CholeskyFactor } from '../src/math/linalg.js';
 import { integrate } from '../src/math/quadrature.js';
-import { normalCdf } from '../src/math/special.js';
+import { normalCdf, normalSurvival } from '../src/math/special.js';
 import { formatNumber, parseNumber } from '../src/core/spec.js';
 import { entropyByQuadrature, formatError, logDensityVarianceByQuadrature } from './build.js';
 import { loadPackage } from '../src/core/vendor.js';
@@ -211,6 +211,7 @@ function marginalDensity(components: readonly MixtureComponent[], weights: Float
     upper: Math.max(...means.map((m, k) => m + RANGE_SDS * sds[k])),
     logDensity,
     cdf: (x) => means.reduce((s, m, k) => s + weights[k] * normalCdf((x - m) / sds[k]), 0),
+    survival: (x) => means.reduce((s, m, k) => s + weights[k] * normalSurvival((x - m) / sds[k]), 0),
     breakpoints: means.flatMap((m, k) => [m - 3 * sds[k], m - sds[k], m, m + sds[k], m + 3 * sds[k]]),
   };
 }

@@ -6,7 +6,7 @@
 import { normalRandom } from '../src/math/random.js';
 import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily, Tails, UnivariateDensity } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
-import { normalCdf } from '../src/math/special.js';
+import { normalCdf, normalSurvival } from '../src/math/special.js';
 import { formatNumber, formatSpec, parseNumber, validateParams } from '../src/core/spec.js';
 import { entropyByQuadrature, expectation, formatError, logDensityVarianceByQuadrature, normalRepresentation } from './build.js';
 
@@ -65,6 +65,7 @@ export function gaussianMixtureScenario(weights: number[], means: number[], sds:
     upper,
     logDensity,
     cdf: (x) => weights.reduce((s, w, j) => s + w * normalCdf((x - means[j]) / sds[j]), 0),
+    survival: (x) => weights.reduce((s, w, j) => s + w * normalSurvival((x - means[j]) / sds[j]), 0),
     breakpoints,
   };
   const params: Record<string, number> = {};

@@ -32,7 +32,21 @@ import {
 } from '../src/math/random.js';
 import type { ParamSpec, Scenario, ScenarioFamily, UnivariateDensity } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
-import { EULER_GAMMA, digamma, erf, erfc, logBeta, logGamma, normalCdf, regularizedBeta, regularizedGammaP, trigamma } from '../src/math/special.js';
+import {
+  EULER_GAMMA,
+  digamma,
+  erf,
+  erfc,
+  logBeta,
+  logGamma,
+  normalCdf,
+  normalSurvival,
+  regularizedBeta,
+  regularizedBetaUpper,
+  regularizedGammaP,
+  regularizedGammaQ,
+  trigamma,
+} from '../src/math/special.js';
 import { family, univariateScenario } from './build.js';
 
 const LOG_2PI = Math.log(2 * Math.PI);
@@ -90,6 +104,7 @@ const uniform = family(
         upper: p.b,
         logDensity: (x) => (x >= p.a && x <= p.b ? -Math.log(width) : -Infinity),
         cdf: (x) => Math.min(1, Math.max(0, (x - p.a) / width)),
+        survival: (x) => Math.min(1, Math.max(0, (p.b - x) / width)),
         quantile: (u) => p.a + u * width,
       },
       sampler: (rng) => uniformRandom.factory(p.a, p.b, { prng: rng }),
@@ -124,6 +139,7 @@ const normal = family(
             return -0.5 * z * z - Math.log(p.sigma) - 0.5 * LOG_2PI;
           },
           cdf: (x) => normalCdf((x - p.mu) / p.sigma),
+          survival: (x) => normalSurvival((x - p.mu) / p.sigma),
           breakpoints: [p.mu],
         },
         sampler: (rng) => normalRandom.factory(p.mu, p.sigma, { prng: rng }),
@@ -154,6 +170,7 @@ const exponential = family('exponential', 'exponential; half-bounded, exponentia
       upper: Infinity,
       logDensity: (x) => (x >= 0 ? Math.log(p.rate) - p.rate * x : -Infinity),
       cdf: (x) => (x <= 0 ? 0 : -Math.expm1(-p.rate * x)),
+      survival: (x) => (x <= 0 ? 1 : Math.exp(-p.rate * x)),
       quantile: (u) => -Math.log1p(-u) / p.rate,
       breakpoints: [1 / p.rate],
     },
@@ -179,6 +196,7 @@ const laplace = family('laplace', 'Laplace (double exponential); a kink at the c
       upper: Infinity,
       logDensity: (x) => -Math.abs(x - p.mu) / p.b - Math.log(2 * p.b),
       cdf: (x) => (x < p.mu ? 0.5 * Math.exp((x - p.mu) / p.b) : 1 - 0.5 * Math.exp(-(x - p.mu) / p.b)),
+      survival: (x) => (x < p.mu ? 1 - 0.5 * Math.exp((x - p.mu) / p.b) : 0.5 * Math.exp(-(x - p.mu) / p.b)),
       quantile: (u) => (u < 0.5 ? p.mu + p.b * Math.log(2 * u) : p.mu - p.b * Math.log(2 * (1 - u))),
       breakpoints: [p.mu],
     },
@@ -207,6 +225,7 @@ const logistic = family('logistic', 'logistic; Gaussian-like centre, exponential
         return -a - 2 * Math.log1p(Math.exp(-a)) - Math.log(p.s);
       },
       cdf: (x) => 1 / (1 + Math.exp(-(x - p.mu) / p.s)),
+      survival: (x) => 1 / (1 + Math.exp((x - p.mu) / p.s)),
       quantile: (u) => p.mu + p.s * (Math.log(u) - Math.log1p(-u)),
       breakpoints: [p.mu],
     },
@@ -234,6 +253,8 @@ const cauchy = family('cauchy', 'Cauchy; very heavy tails, no mean', cauchySpecs
         return -Math.log(Math.PI * p.gamma) - Math.log1p(z * z);
       },
       cdf: (x) => 0.5 + Math.atan((x - p.x0) / p.gamma) / Math.PI,
+      // ½ − atan(z)/π = atan(1/z)/π for z > 0, without the cancellation.
+      survival: (x) => (x > p.x0 ? Math.atan(p.gamma / (x - p.x0)) / Math.PI : 0.5 - Math.atan((x - p.x0) / p.gamma) / Math.PI),
       quantile: (u) => p.x0 + p.gamma * Math.tan(Math.PI * (u - 0.5)),
       breakpoints: [p.x0],
     },
@@ -274,6 +295,11 @@ const student = family(
           const tail = 0.5 * regularizedBeta(p.nu / (p.nu + z * z), p.nu / 2, 0.5);
           return z < 0 ? tail : 1 - tail;
         },
+        survival: (x) => {
+          const z = (x - p.mu) / p.sigma;
+          const tail = 0.5 * regularizedBeta(p.nu / (p.nu + z * z), p.nu / 2, 0.5);
+          return z > 0 ? tail : 1 - tail;
+        },
         breakpoints: [p.mu],
       },
       sampler: (rng) => {
@@ -310,6 +336,7 @@ const gamma = family(
         upper: Infinity,
         logDensity: (x) => (x > 0 ? (k - 1) * Math.log(x) - x / p.scale - logGamma(k) - k * Math.log(p.scale) : -Infinity),
         cdf: (x) => (x <= 0 ? 0 : regularizedGammaP(k, x / p.scale)),
+        survival: (x) => (x <= 0 ? 1 : regularizedGammaQ(k, x / p.scale)),
         breakpoints: [Math.max(k - 1, 0.5) * p.scale, k * p.scale],
       },
       sampler: (rng) => gammaRandom.factory(k, 1 / p.scale, { prng: rng }),
@@ -354,6 +381,7 @@ const beta = family(
         logDensity: (x) => (x > 0 && x < 1 ? (p.a - 1) * Math.log(x) + (p.b - 1) * Math.log1p(-x) - logBeta(p.a, p.b) : -Infinity),
         logDensityNearUpper: (u) => (u > 0 && u < 1 ? (p.a - 1) * Math.log1p(-u) + (p.b - 1) * Math.log(u) - logBeta(p.a, p.b) : -Infinity),
         cdf: (x) => (x <= 0 ? 0 : x >= 1 ? 1 : regularizedBeta(x, p.a, p.b)),
+        survival: (x) => (x <= 0 ? 1 : x >= 1 ? 0 : regularizedBetaUpper(x, p.a, p.b)),
         breakpoints: [0.5],
       },
       sampler: (rng) => betaRandom.factory(p.a, p.b, { prng: rng }),
@@ -384,6 +412,7 @@ const lognormal = family('lognormal', 'lognormal; skewed with a long right tail'
           return -Math.log(x) - Math.log(p.sigma) - 0.5 * LOG_2PI - 0.5 * z * z;
         },
         cdf: (x) => (x <= 0 ? 0 : normalCdf((Math.log(x) - p.mu) / p.sigma)),
+        survival: (x) => (x <= 0 ? 1 : normalSurvival((Math.log(x) - p.mu) / p.sigma)),
         breakpoints: [Math.exp(p.mu - p.sigma * p.sigma), Math.exp(p.mu)],
       },
       sampler: (rng) => lognormalRandom.factory(p.mu, p.sigma, { prng: rng }),
@@ -419,6 +448,7 @@ const weibull = family(
           return Math.log(p.k / p.lambda) + (p.k - 1) * Math.log(z) - Math.pow(z, p.k);
         },
         cdf: (x) => (x <= 0 ? 0 : -Math.expm1(-Math.pow(x / p.lambda, p.k))),
+        survival: (x) => (x <= 0 ? 1 : Math.exp(-Math.pow(x / p.lambda, p.k))),
         quantile: (u) => p.lambda * Math.pow(-Math.log1p(-u), 1 / p.k),
         breakpoints: [p.lambda],
       },
@@ -447,6 +477,7 @@ const gumbel = family('gumbel', 'Gumbel (largest extreme value); skewed right', 
         return -Math.log(p.beta) - z - Math.exp(-z);
       },
       cdf: (x) => Math.exp(-Math.exp(-(x - p.mu) / p.beta)),
+      survival: (x) => -Math.expm1(-Math.exp(-(x - p.mu) / p.beta)),
       quantile: (u) => p.mu - p.beta * Math.log(-Math.log(u)),
       breakpoints: [p.mu],
     },
@@ -475,6 +506,7 @@ const pareto = family(
         upper: Infinity,
         logDensity: (x) => (x >= p.xm ? Math.log(p.alpha) + p.alpha * Math.log(p.xm) - (p.alpha + 1) * Math.log(x) : -Infinity),
         cdf: (x) => (x <= p.xm ? 0 : -Math.expm1(p.alpha * Math.log(p.xm / x))),
+        survival: (x) => (x <= p.xm ? 1 : Math.exp(p.alpha * Math.log(p.xm / x))),
         quantile: (u) => p.xm * Math.exp(-Math.log1p(-u) / p.alpha),
         breakpoints: [2 * p.xm],
       },
@@ -514,6 +546,12 @@ const triangular = family('triangular', 'triangular on [a, b] with mode c; bound
         if (x <= p.c) return ((x - p.a) * (x - p.a)) / (width * (p.c - p.a));
         return 1 - ((p.b - x) * (p.b - x)) / (width * (p.b - p.c));
       },
+      survival: (x) => {
+        if (x <= p.a) return 1;
+        if (x >= p.b) return 0;
+        if (x >= p.c) return ((p.b - x) * (p.b - x)) / (width * (p.b - p.c));
+        return 1 - ((x - p.a) * (x - p.a)) / (width * (p.c - p.a));
+      },
       quantile: (u) => (u * width < p.c - p.a ? p.a + Math.sqrt(u * width * (p.c - p.a)) : p.b - Math.sqrt((1 - u) * width * (p.b - p.c))),
       breakpoints: [p.c],
     },
@@ -540,6 +578,7 @@ const rayleigh = family('rayleigh', 'Rayleigh: the length of a 2-D Gaussian vect
       upper: Infinity,
       logDensity: (x) => (x > 0 ? Math.log(x / (p.sigma * p.sigma)) - (x * x) / (2 * p.sigma * p.sigma) : -Infinity),
       cdf: (x) => (x <= 0 ? 0 : -Math.expm1(-(x * x) / (2 * p.sigma * p.sigma))),
+      survival: (x) => (x <= 0 ? 1 : Math.exp(-(x * x) / (2 * p.sigma * p.sigma))),
       quantile: (u) => p.sigma * Math.sqrt(-2 * Math.log1p(-u)),
       breakpoints: [p.sigma],
     },
@@ -560,6 +599,7 @@ function chiLike(k: number, scale: number) {
       return (k - 1) * Math.log(z) - 0.5 * z * z - (halfK - 1) * Math.LN2 - logGamma(halfK) - Math.log(scale);
     },
     cdf: (x: number) => (x <= 0 ? 0 : regularizedGammaP(halfK, (x * x) / (2 * scale * scale))),
+    survival: (x: number) => (x <= 0 ? 1 : regularizedGammaQ(halfK, (x * x) / (2 * scale * scale))),
     mean: scale * Math.SQRT2 * Math.exp(logGamma((k + 1) / 2) - logGamma(halfK)),
     secondMoment: scale * scale * k,
   };
@@ -576,7 +616,7 @@ const maxwell = family('maxwell-boltzmann', 'Maxwell–Boltzmann speed: chi with
     truthSource: `log(a√(2π)) + γ − ½; ${LR} (chi, 3 degrees of freedom)`,
     support: 'half',
     tails: 'light',
-    density: { lower: 0, upper: Infinity, logDensity: chi3.logDensity, cdf: chi3.cdf, breakpoints: [Math.SQRT2 * p.a] },
+    density: { lower: 0, upper: Infinity, logDensity: chi3.logDensity, cdf: chi3.cdf, survival: chi3.survival, breakpoints: [Math.SQRT2 * p.a] },
     sampler: (rng) => {
       const draw = chiRandom.factory(3, { prng: rng });
       return () => p.a * draw();
@@ -597,7 +637,7 @@ const chi = family('chi', 'chi: the length of a k-dimensional standard Gaussian 
     truthSource: `log Γ(k/2) + ½(k − log 2 − (k − 1)ψ(k/2)); ${LR}`,
     support: 'half',
     tails: 'light',
-    density: { lower: 0, upper: Infinity, logDensity: c.logDensity, cdf: c.cdf, breakpoints: [Math.sqrt(Math.max(p.k - 1, 0.5))] },
+    density: { lower: 0, upper: Infinity, logDensity: c.logDensity, cdf: c.cdf, survival: c.survival, breakpoints: [Math.sqrt(Math.max(p.k - 1, 0.5))] },
     sampler: (rng) => chiRandom.factory(p.k, { prng: rng }),
     mean: c.mean,
     variance: c.secondMoment - c.mean * c.mean,
@@ -624,6 +664,7 @@ const chiSquared = family(
         upper: Infinity,
         logDensity: (x) => (x > 0 ? (halfK - 1) * Math.log(x) - x / 2 - halfK * Math.LN2 - logGamma(halfK) : -Infinity),
         cdf: (x) => (x <= 0 ? 0 : regularizedGammaP(halfK, x / 2)),
+        survival: (x) => (x <= 0 ? 1 : regularizedGammaQ(halfK, x / 2)),
         breakpoints: [Math.max(p.k - 2, 1), p.k],
       },
       sampler: (rng) => chisquareRandom.factory(p.k, { prng: rng }),
@@ -654,6 +695,7 @@ const halfNormal = family('half-normal', 'half-normal: |Z|σ; half-bounded with 
       upper: Infinity,
       logDensity: (x) => (x >= 0 ? 0.5 * Math.log(2 / Math.PI) - Math.log(p.sigma) - (x * x) / (2 * p.sigma * p.sigma) : -Infinity),
       cdf: (x) => (x <= 0 ? 0 : erf(x / (p.sigma * Math.SQRT2))),
+      survival: (x) => (x <= 0 ? 1 : erfc(x / (p.sigma * Math.SQRT2))),
       breakpoints: [p.sigma],
     },
     sampler: (rng) => {
@@ -688,6 +730,10 @@ const generalizedNormal = family(
         cdf: (x) => {
           const half = 0.5 * regularizedGammaP(invBeta, Math.pow(Math.abs(x - p.mu) / p.alpha, p.beta));
           return x < p.mu ? 0.5 - half : 0.5 + half;
+        },
+        survival: (x) => {
+          const half = 0.5 * regularizedGammaQ(invBeta, Math.pow(Math.abs(x - p.mu) / p.alpha, p.beta));
+          return x > p.mu ? half : 1 - half;
         },
         breakpoints: [p.mu - p.alpha, p.mu, p.mu + p.alpha],
       },
@@ -726,6 +772,7 @@ const arcsine = family('arcsine', 'arcsine on [a, b]; poles at both ends', arcsi
       logDensity: (x) => (x > p.a && x < p.b ? -Math.log(Math.PI) - 0.5 * Math.log((x - p.a) * (p.b - x)) : -Infinity),
       logDensityNearUpper: (u) => (u > 0 && u < width ? -Math.log(Math.PI) - 0.5 * Math.log((width - u) * u) : -Infinity),
       cdf: (x) => (x <= p.a ? 0 : x >= p.b ? 1 : (2 / Math.PI) * Math.asin(Math.sqrt((x - p.a) / width))),
+      survival: (x) => (x <= p.a ? 1 : x >= p.b ? 0 : (2 / Math.PI) * Math.asin(Math.sqrt((p.b - x) / width))),
       quantile: (u) => p.a + width * Math.sin((Math.PI / 2) * u) ** 2,
       breakpoints: [(p.a + p.b) / 2],
     },
@@ -754,6 +801,7 @@ const levy = family('levy', 'Lévy: a stable law with tail index ½; no mean', l
         return y > 0 ? 0.5 * Math.log(p.c / (2 * Math.PI)) - 1.5 * Math.log(y) - p.c / (2 * y) : -Infinity;
       },
       cdf: (x) => (x <= p.mu ? 0 : erfc(Math.sqrt(p.c / (2 * (x - p.mu))))),
+      survival: (x) => (x <= p.mu ? 1 : erf(Math.sqrt(p.c / (2 * (x - p.mu))))),
       breakpoints: [p.mu + p.c / 3, p.mu + p.c],
     },
     sampler: (rng) => levyRandom.factory(p.mu, p.c, { prng: rng }),
@@ -781,6 +829,7 @@ const frechet = family('frechet', 'Fréchet (type II extreme value); power-law r
         return Math.log(p.alpha / p.s) - (1 + p.alpha) * Math.log(z) - Math.pow(z, -p.alpha);
       },
       cdf: (x) => (x <= p.m ? 0 : Math.exp(-Math.pow((x - p.m) / p.s, -p.alpha))),
+      survival: (x) => (x <= p.m ? 1 : -Math.expm1(-Math.pow((x - p.m) / p.s, -p.alpha))),
       quantile: (u) => p.m + p.s * Math.pow(-Math.log(u), -1 / p.alpha),
       breakpoints: [p.m + p.s],
     },
@@ -803,6 +852,7 @@ const inverseGamma = family('inverse-gamma', 'inverse gamma: 1/Gamma; power-law 
       upper: Infinity,
       logDensity: (x) => (x > 0 ? p.alpha * Math.log(p.beta) - logGamma(p.alpha) - (p.alpha + 1) * Math.log(x) - p.beta / x : -Infinity),
       cdf: (x) => (x <= 0 ? 0 : 1 - regularizedGammaP(p.alpha, p.beta / x)),
+      survival: (x) => (x <= 0 ? 1 : regularizedGammaP(p.alpha, p.beta / x)),
       breakpoints: [p.beta / (p.alpha + 1), p.beta],
     },
     sampler: (rng) => invgammaRandom.factory(p.alpha, p.beta, { prng: rng }),
@@ -828,6 +878,7 @@ const kumaraswamy = family('kumaraswamy', 'Kumaraswamy on [0, 1]; a beta-like la
       logDensityNearUpper: (u) =>
         u > 0 && u < 1 ? Math.log(p.a * p.b) + (p.a - 1) * Math.log1p(-u) + (p.b - 1) * Math.log(-Math.expm1(p.a * Math.log1p(-u))) : -Infinity,
       cdf: (x) => (x <= 0 ? 0 : x >= 1 ? 1 : -Math.expm1(p.b * Math.log1p(-Math.pow(x, p.a)))),
+      survival: (x) => (x <= 0 ? 1 : x >= 1 ? 0 : Math.exp(p.b * Math.log1p(-Math.pow(x, p.a)))),
       quantile: (u) => Math.pow(-Math.expm1(Math.log1p(-u) / p.b), 1 / p.a),
       breakpoints: [0.5],
     },

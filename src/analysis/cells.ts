@@ -3,6 +3,7 @@
  * its estimates and scores. Kept apart from results.ts, which assembles run files, so the analyses that read
  * cells (robustness, advice) need not import the assembly that calls them.
  */
+import type { RecordedFacts } from '../core/contracts.js';
 import type { CellScores } from './score.js';
 
 export interface ScenarioInfo {
@@ -14,6 +15,8 @@ export interface ScenarioInfo {
   support: string;
   tails: string;
   logDensityVariance: number | null;
+  /** recorded[...] scenarios: the lattice and the recorded values' own entropy (absent on other scenarios and in older run files). */
+  recorded?: RecordedFacts;
 }
 
 export interface CellFailure {

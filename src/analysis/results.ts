@@ -79,6 +79,8 @@ function scenarioInfo(s: Scenario): ScenarioInfo {
     support: s.support,
     tails: s.tails,
     logDensityVariance: s.logDensityVariance ?? null,
+    // A plain copy: the discrete entropy is a getter computed on first read.
+    ...(s.recorded && { recorded: { ...s.recorded } }),
   };
 }
 

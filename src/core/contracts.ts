@@ -218,6 +218,12 @@ export interface UnivariateDensity {
   logDensity(x: number): number;
   cdf(x: number): number;
   /**
+   * The survival function 1 − F(x) computed without forming 1 − F, where it is known: F rounds to 1 far in the
+   * upper tail, so 1 − F loses every digit there (recorded[...] sums cell masses in the upper tail with it).
+   * Absent: scenarios/build.ts, survivalOf, falls back to 1 − cdf and says so.
+   */
+  survival?(x: number): number;
+  /**
    * The inverse CDF in closed form, where one exists (absent: scenarios/build.ts, quantileOf, inverts `cdf`
    * numerically). autocorrelated[...] maps normal scores through it.
    */
@@ -281,11 +287,13 @@ export interface Scenario {
 export interface RecordedFacts {
   /** The step of each coordinate (0: left as drawn). */
   steps: number[];
+  /** The base scenario's id (the underlying continuous law). */
   base: string;
-  /** Exact Shannon entropy of the recorded values (1-D entropy laws; null otherwise). */
+  /** Exact Shannon entropy −Σ p_k log p_k of the recorded values in nats (1-D entropy laws with a CDF; null otherwise, `source` says why). */
   discreteEntropy: number | null;
-  /** discreteEntropy + log Δ: what the lattice estimator estimates. */
+  /** discreteEntropy + log Δ: what the lattice estimator estimates (tends to the base's truth as Δ → 0). */
   latticeEntropy: number | null;
+  /** How the two were computed and their error bound, or why they are null. */
   source: string;
 }
 

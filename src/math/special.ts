@@ -13,6 +13,8 @@ export const logGamma: (x: number) => number = gammalnImpl;
 export const logBeta: (a: number, b: number) => number = betalnImpl;
 /** Regularized lower incomplete gamma P(a, x). */
 export const regularizedGammaP = (a: number, x: number): number => gammaincImpl(x, a);
+/** Regularized upper incomplete gamma Q(a, x) = 1 − P(a, x), accurate where P rounds to 1. */
+export const regularizedGammaQ = (a: number, x: number): number => gammaincImpl(x, a, true, true);
 
 /** The Euler–Mascheroni constant. */
 export const EULER_GAMMA = 0.5772156649015329;
@@ -30,6 +32,13 @@ export const erf: (x: number) => number = erfImpl;
 export const erfc: (x: number) => number = erfcImpl;
 /** Regularized incomplete beta I_x(a, b). */
 export const regularizedBeta = (x: number, a: number, b: number): number => betaincImpl(x, a, b);
+/** 1 − I_x(a, b), accurate where I_x rounds to 1. */
+export const regularizedBetaUpper = (x: number, a: number, b: number): number => betaincImpl(x, a, b, true, true);
+
+/** Standard normal survival function 1 − Φ(z), accurate in the upper tail. */
+export function normalSurvival(z: number): number {
+  return 0.5 * erfc(z / Math.SQRT2);
+}
 
 /** Standard normal CDF Φ(z), accurate in both tails. */
 export function normalCdf(z: number): number {
