@@ -109,9 +109,17 @@ describe('WebAssembly pair sums (src/math/pair-sums.ts)', () => {
 
   it('are what tools/pair-sums-wasm.mjs generates now (the .wat text and the assembled bytes)', async () => {
     const generator = '../tools/pair-sums-wasm.mjs';
-    const { pairSumsWat, assemble } = (await import(generator)) as { pairSumsWat: () => string; assemble: (text: string) => Promise<Buffer> };
+    const { pairSumsWat, assemble, moduleSource } = (await import(generator)) as {
+      pairSumsWat: () => string;
+      assemble: (text: string) => Promise<Buffer>;
+      moduleSource: (bytes: Buffer) => string;
+    };
     const text = pairSumsWat();
-    expect(readFileSync(join(import.meta.dirname, '..', 'src', 'math', 'pair-sums.wat'), 'utf8')).toBe(text);
-    expect((await assemble(text)).toString('base64')).toBe(PAIR_SUMS_WASM);
+    const folder = join(import.meta.dirname, '..', 'src', 'math');
+    expect(readFileSync(join(folder, 'pair-sums.wat'), 'utf8')).toBe(text);
+    const bytes = await assemble(text);
+    expect(bytes.toString('base64')).toBe(PAIR_SUMS_WASM);
+    // The whole module: the bytes and the layout and dimensions they were made for.
+    expect(readFileSync(join(folder, 'pair-sums-wasm.ts'), 'utf8')).toBe(moduleSource(bytes));
   });
 });

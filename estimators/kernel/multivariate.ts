@@ -128,7 +128,7 @@ function pairAccumulator(
 ): { add(fromA: number, toA: number, fromB: number, toB: number, exponentScale: number): void; finish(): void } {
   if (PAIR_SUMS_DIMS.includes(dim)) {
     const pairs = pairSums(z, n, dim);
-    return { add: (fromA, toA, fromB, toB, exponentScale) => pairs.add(fromA, toA, fromB, toB, exponentScale), finish: () => pairs.addTo(sums) };
+    return { add: pairs.add, finish: () => pairs.addTo(sums) };
   }
   return { add: (fromA, toA, fromB, toB, exponentScale) => pairTerms(z, dim, fromA, toA, fromB, toB, exponentScale, sums), finish: () => undefined };
 }

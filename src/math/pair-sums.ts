@@ -15,15 +15,12 @@
  * One thread has one module and one memory: a `PairSums` is valid until the next `pairSums` call in the thread
  * (the kernel estimator is synchronous, and uses one at a time); using a stale one throws.
  */
-import { PAIR_SUMS_WASM } from './pair-sums-wasm.js';
+import { PAIR_SUMS_DIMS, PAIR_SUMS_WASM, POWERS_OFFSET, TABLE_OFFSET } from './pair-sums-wasm.js';
 import { POWERS, TABLE } from './exp.js';
 
-/** Dimensions with a WebAssembly loop. */
-export const PAIR_SUMS_DIMS: readonly number[] = [2, 3, 4, 5];
+export { PAIR_SUMS_DIMS };
 
-/** Byte offsets, as in tools/pair-sums-wasm.mjs: the two tables, then the points and the sums (16-byte aligned). */
-const TABLE_OFFSET = 0;
-const POWERS_OFFSET = 64 * 8;
+/** After the two tables: the points, then the sums (16-byte aligned). */
 const DATA_OFFSET = Math.ceil((POWERS_OFFSET + POWERS.length * 8) / 16) * 16;
 
 type PairLoop = (z: number, fromA: number, toA: number, fromB: number, toB: number, scale: number, sums: number) => void;
