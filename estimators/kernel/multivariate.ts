@@ -96,7 +96,7 @@ export interface MultivariateKernelSums {
  * A term below the double range rounds to 0 or a subnormal (absolute error ≤ 2^−1074), see exp.ts.
  * For d = 2..5 the loops are WebAssembly (src/math/pair-sums.ts), two rows p, p + 1 against each q in the two
  * lanes of a SIMD register: two rows at once was 1.5× the speed of one at d = 3 in JavaScript already, the two
- * exponentials being independent work, and the SIMD loop is another 1.3–1.5×. The squared distance is summed
+ * exponentials being independent work, and the SIMD loop is another 1.2–1.5×. The squared distance is summed
  * in axis order as in the loop over axes below (other dimensions); q receives its two terms added together.
  */
 function pairTerms(z: Float64Array, dim: number, fromA: number, toA: number, fromB: number, toB: number, exponentScale: number, sums: Float64Array): void {

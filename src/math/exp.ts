@@ -14,7 +14,7 @@
  * entries below 2^−1075 are 0, so every x below −745.2 comes out 0 (and NaN stays NaN through the clamp). A branch
  * that returned 0 was never taken on most samples; the first sample that took it (heavy tails, an outlying point)
  * made V8 recompile every pair loop this is inlined into with the branch inside, and those loops then ran about
- * 1.6× slower for the rest of the run (d = 3, n = 2000: 9.4 → 15.3 ms an estimate).
+ * 1.6× slower for the rest of the run (d = 3, n = 2000: 9.6 → 15.4 ms an estimate).
  */
 
 /** Rounds a double to the nearest integer by adding and removing 1.5·2^52 (exact for |v| < 2^51). */
