@@ -3,7 +3,7 @@
  * (the reference): every special function and distribution bit for bit on a spread of arguments, every sampler's
  * first draws from the same seeded stream, and seedrandom's stream. `npm test` builds dist/ first.
  */
-import { existsSync, readFileSync } from 'node:fs';
+import { existsSync, readdirSync, readFileSync } from 'node:fs';
 import { createRequire } from 'node:module';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
@@ -33,6 +33,15 @@ describe('dist/vendor copies (src/core/vendor.ts)', () => {
   it('exist for every vendored dependency', () => {
     expect(vendored.length).toBeGreaterThan(30);
     for (const name of vendored) expect(existsSync(join(root, 'dist/vendor', vendorFile(name)!)), name).toBe(true);
+  });
+
+  it('are what the code loads: no source file imports a vendored package by name (it would bypass the copy)', () => {
+    const files = ['src', 'estimators', 'scenarios'].flatMap((folder) =>
+      (readdirSync(join(root, folder), { recursive: true }) as string[]).filter((f) => f.endsWith('.ts')).map((f) => join(root, folder, f)),
+    );
+    expect(files.length).toBeGreaterThan(100);
+    const offenders = files.filter((file) => /^import (?!type )[^;]*from '(@stdlib\/[^']+|seedrandom)'/m.test(readFileSync(file, 'utf8')));
+    expect(offenders).toEqual([]);
   });
 
   it('compute what the installed special functions and distributions compute, bit for bit', () => {
