@@ -156,18 +156,6 @@ function latticeSum(density: UnivariateDensity, lattice: Lattice): number {
   return h + compensation;
 }
 
-/**
- * The exact discrete entropy (nats) of a 1-D law rounded to step Δ. Refuses (UsageError) a lattice of more than
- * 1e7 cells between the law's 1e-17 tail quantiles.
- */
-export function discreteEntropy(base: Scenario, step: number): number {
-  const density = base.univariate;
-  if (!density) throw new UsageError(`recorded[step=${formatNumber(step)};${base.id}]: the discrete entropy needs a one-dimensional law with a CDF`);
-  const lattice = latticeOf(density, step);
-  if (!(cellCount(lattice) <= MAX_CELLS)) throw new UsageError(`recorded[step=${formatNumber(step)};${base.id}]: ${tooManyCells(lattice)}`);
-  return latticeSum(density, lattice);
-}
-
 export function recordedScenario(steps: number[], base: Scenario): Scenario {
   if (base.quantity === 'divergence' || base.quantity === 'transfer-entropy') {
     throw new UsageError(`recorded[...] cannot wrap ${base.id}: it rounds the rows of an entropy, mutual-information or conditional-MI scenario`);
