@@ -1,8 +1,12 @@
+import { readFileSync } from 'node:fs';
 import { createRequire } from 'node:module';
+import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import normalRandom from '@stdlib/random-base-normal';
 import { KnnIndex, nextDown, squaredThreshold, type KnnNorm } from '../src/math/knn.js';
 import { sortedNearestOthers } from '../src/math/knn-sorted.js';
+import { MAX_SEARCH_BYTES, searchBytes, wasmNearestOthers } from '../src/math/knn-search.js';
+import { KNN_SEARCH_WASM } from '../src/math/knn-search-wasm.js';
 import { rngFromSeed } from '../src/core/rng.js';
 
 /*
@@ -187,6 +191,48 @@ describe('KnnIndex.nearestOthers equals brute force exactly', () => {
     const { distances } = index.nearestOthers(4);
     expect(distances).toEqual(bruteNearestOthers(points, 2, 4, 'euclidean'));
     expect(Array.from(distances.subarray(0, 4))).toEqual([0, 0, 1, 5]);
+  });
+});
+
+describe('nearestOthers in WebAssembly (src/math/knn-search.ts) is the JavaScript search, ties included', () => {
+  // The module must walk the tree as NeighbourSearch does, so even which of several equidistant points is
+  // reported agrees; the distances are also checked against brute force above (the default engine).
+  const wasmDims = [1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 12, 16];
+  it.each(Object.keys(generators))('%s points, every unrolled dimension and the generic loop', (name) => {
+    const rng = rngFromSeed(`knn-wasm-${name}`);
+    for (const dim of wasmDims) {
+      for (const leafSize of [2, undefined]) {
+        const n = 40 + Math.floor(rng() * 60);
+        const index = new KnnIndex(generators[name](rng, n, dim), dim, { leafSize });
+        for (const k of [1, 4, 13, n - 1]) {
+          const fast = index.nearestOthers(k, { indices: true });
+          const plain = index.nearestOthers(k, { indices: true, engine: 'javascript' });
+          expect(fast.distances, `${name} d=${dim} leaf=${leafSize} k=${k}`).toEqual(plain.distances);
+          expect(fast.indices, `${name} d=${dim} leaf=${leafSize} k=${k}`).toEqual(plain.indices);
+        }
+      }
+    }
+  });
+
+  it('leaves a tree too large for its memory to the JavaScript search', () => {
+    expect(searchBytes(2e8, 3, 4e7, 2e7, 5, false)).toBeGreaterThan(MAX_SEARCH_BYTES);
+    const empty = new Int32Array(0);
+    const tree = { n: 2e8, dim: 3, coords: new Float64Array(0), order: empty, nodeCount: 4e7, nodeStart: empty, nodeEnd: empty, nodeLeft: empty };
+    const arrays = { nodeRight: empty, nodeParent: empty, nodeSplitAxis: empty, nodeSplitValue: new Float64Array(0), leaves: new Int32Array(2e7) };
+    expect(wasmNearestOthers({ ...tree, ...arrays }, 5, false)).toBeNull();
+  });
+
+  it('is what tools/knn-search-wasm.mjs generates now (the .wat text and the assembled module)', async () => {
+    const generator = '../tools/knn-search-wasm.mjs';
+    const { knnSearchWat, moduleSource } = (await import(generator)) as { knnSearchWat: () => string; moduleSource: (bytes: Buffer) => string };
+    const assembler = '../tools/wasm-assemble.mjs';
+    const { assemble } = (await import(assembler)) as { assemble: (name: string, text: string) => Promise<Buffer> };
+    const text = knnSearchWat();
+    const folder = join(import.meta.dirname, '..', 'src', 'math');
+    expect(readFileSync(join(folder, 'knn-search.wat'), 'utf8')).toBe(text);
+    const bytes = await assemble('knn-search.wat', text);
+    expect(bytes.toString('base64')).toBe(KNN_SEARCH_WASM);
+    expect(readFileSync(join(folder, 'knn-search-wasm.ts'), 'utf8')).toBe(moduleSource(bytes));
   });
 });
 

@@ -12,10 +12,10 @@
  * and −800 is not a zero), and k is read from the low 32 bits of x·64/ln2 + 1.5·2^52, which hold it in two's
  * complement (the same integer as (that − 1.5·2^52) | 0).
  */
-import wabtInit from 'wabt';
 import { writeFileSync } from 'node:fs';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { assemble as assembleNamed } from './wasm-assemble.mjs';
 
 export const DIMS = [2, 3, 4, 5];
 /** Byte offsets of the tables in the module's memory (written into the generated module for src/math/pair-sums.ts). */
@@ -130,13 +130,8 @@ export function pairSumsWat() {
 `;
 }
 
-export async function assemble(text) {
-  const wabt = await wabtInit();
-  const module = wabt.parseWat('pair-sums.wat', text, { simd: true, sat_float_to_int: true });
-  module.validate();
-  const { buffer } = module.toBinary({});
-  module.destroy();
-  return Buffer.from(buffer);
+export function assemble(text) {
+  return assembleNamed('pair-sums.wat', text);
 }
 
 /** The TypeScript module src/math/pair-sums.ts loads: the bytes, and the layout and dimensions they were made for. */

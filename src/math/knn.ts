@@ -30,6 +30,7 @@
  * Ties: duplicates of a point are other points at distance 0; which of several equidistant points is
  * reported in `indices` is unspecified, the distances are not.
  */
+import { wasmNearestOthers, type TreeArrays } from './knn-search.js';
 
 export type KnnNorm = 'euclidean' | 'max';
 
@@ -43,6 +44,12 @@ export interface KnnIndexOptions {
 export interface NeighbourOptions {
   /** Also return the (original) indices of the neighbours. Default false. */
   indices?: boolean;
+  /**
+   * nearestOthers with the Euclidean norm: 'auto' (default) searches in WebAssembly (src/math/knn-search.ts),
+   * 'javascript' with the search below. Both give the same distances and indices; the choice is for tests and
+   * comparisons.
+   */
+  engine?: 'auto' | 'javascript';
 }
 
 export interface NeighbourResult {
@@ -248,12 +255,18 @@ export class KnnIndex {
   nearestOthers(k: number, options: NeighbourOptions = {}): NeighbourResult {
     checkK(k, this.n - 1, 'other points');
     const withIndices = options.indices ?? false;
+    const euclidean = this.norm === 'euclidean';
+    if (euclidean && options.engine !== 'javascript') {
+      const { n, dim, coords, order, nodeCount, nodeStart, nodeEnd, nodeLeft, nodeRight, nodeParent, nodeSplitAxis, nodeSplitValue, leaves } = this;
+      const tree = { n, dim, coords, order, nodeCount, nodeStart, nodeEnd, nodeLeft, nodeRight, nodeParent, nodeSplitAxis, nodeSplitValue, leaves };
+      const found = wasmNearestOthers(tree, k, withIndices);
+      if (found) return { k, ...found };
+    }
     const { n, dim, coords, order, leaves, nodeStart, nodeEnd } = this;
     const distances = new Float64Array(n * k);
     const indices = withIndices ? new Int32Array(n * k) : undefined;
     const search = this.makeSearch(k);
     const query = search.query;
-    const euclidean = this.norm === 'euclidean';
     for (let l = 0; l < leaves.length; l++) {
       const leaf = leaves[l];
       const start = nodeStart[leaf];
@@ -453,18 +466,6 @@ export class KnnIndex {
       nodeSplitValue: this.nodeSplitValue,
     };
   }
-}
-
-interface TreeArrays {
-  dim: number;
-  coords: Float64Array;
-  nodeStart: Int32Array;
-  nodeEnd: Int32Array;
-  nodeLeft: Int32Array;
-  nodeRight: Int32Array;
-  nodeParent: Int32Array;
-  nodeSplitAxis: Int32Array;
-  nodeSplitValue: Float64Array;
 }
 
 /**

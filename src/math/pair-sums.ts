@@ -18,6 +18,7 @@
  */
 import { PAIR_SUMS_DIMS, PAIR_SUMS_WASM, POWERS_OFFSET, TABLE_OFFSET } from './pair-sums-wasm.js';
 import { POWERS, TABLE } from './exp.js';
+import { instantiate, reserve, type WasmMemory } from './wasm.js';
 
 export { PAIR_SUMS_DIMS };
 
@@ -25,15 +26,6 @@ export { PAIR_SUMS_DIMS };
 const DATA_OFFSET = Math.ceil((POWERS_OFFSET + POWERS.length * 8) / 16) * 16;
 
 type PairLoop = (z: number, fromA: number, toA: number, fromB: number, toB: number, scale: number, sums: number) => void;
-
-/** What this file uses of the WebAssembly API (the project's TypeScript library settings leave it undeclared). */
-interface WasmMemory {
-  buffer: ArrayBuffer;
-  grow(pages: number): number;
-}
-const { WebAssembly: wasm } = globalThis as unknown as {
-  WebAssembly: { Module: new (bytes: Uint8Array) => object; Instance: new (module: object) => { exports: Record<string, unknown> } };
-};
 
 interface Loaded {
   memory: WasmMemory;
@@ -45,8 +37,7 @@ let loaded: Loaded | undefined;
 
 function load(): Loaded {
   if (loaded) return loaded;
-  const { exports } = new wasm.Instance(new wasm.Module(Buffer.from(PAIR_SUMS_WASM, 'base64')));
-  const memory = exports.memory as WasmMemory;
+  const { exports, memory } = instantiate(PAIR_SUMS_WASM);
   new Float64Array(memory.buffer, TABLE_OFFSET, TABLE.length).set(TABLE);
   new Float64Array(memory.buffer, POWERS_OFFSET, POWERS.length).set(POWERS);
   const loops = new Map(PAIR_SUMS_DIMS.map((d) => [d, exports[`pairs${d}`] as PairLoop]));
@@ -68,7 +59,7 @@ export function pairSums(points: Float64Array, n: number, dim: number): PairSums
   const zBytes = n * dim * 8;
   const sumsOffset = DATA_OFFSET + zBytes;
   const needed = sumsOffset + n * 8;
-  if (module.memory.buffer.byteLength < needed) module.memory.grow(Math.ceil((needed - module.memory.buffer.byteLength) / 65536));
+  reserve(module.memory, needed);
   new Float64Array(module.memory.buffer, DATA_OFFSET, n * dim).set(points.subarray(0, n * dim));
   new Float64Array(module.memory.buffer, sumsOffset, n).fill(0);
   const generation = ++module.generation;
