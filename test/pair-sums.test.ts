@@ -71,14 +71,15 @@ describe('WebAssembly pair sums (src/math/pair-sums.ts)', () => {
     let compared = 0;
     let underflowed = 0;
     for (const dim of PAIR_SUMS_DIMS) {
-      for (const n of [2, 3, 57, 300]) {
+      for (const n of [2, 3, 6, 7, 57, 300]) {
         const z = points(n, dim, 1000 * dim + n);
         for (const h of [3, 0.4, 0.02]) {
           const scale = -0.5 / (h * h);
           // Ranges as the blocked pass (blocks of 64) and as the cell list (a range against a later one) take them.
           const ranges: [number, number, number, number][] = [];
           for (let a = 0; a < n; a += 64) for (let b = a; b < n; b += 64) ranges.push([a, Math.min(a + 64, n), b, Math.min(b + 64, n)]);
-          if (n > 10) ranges.push([1, 6, 6, n], [0, 5, 7, 9]);
+          // Row ranges of every length mod 4 (the module takes four rows at a time, then two, then one).
+          if (n > 10) ranges.push([1, 6, 6, n], [0, 5, 7, 9], [1, 8, 8, n], [2, 8, 9, 12], [3, 10, 10, 11]);
           const expected = new Float64Array(n);
           const got = new Float64Array(n);
           const pairs = pairSums(z, n, dim);

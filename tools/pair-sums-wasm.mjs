@@ -1,7 +1,7 @@
 /**
  * Writes src/math/pair-sums.wat and src/math/pair-sums-wasm.ts (the assembled module, base64): the kernel
- * estimator's pair loops for d = 2..5 in WebAssembly with two-lane SIMD (src/math/pair-sums.ts says what they
- * compute and why). Both files are generated and committed; test/pair-sums.test.ts generates them again and fails
+ * estimator's pair loops for d = 2..5 in WebAssembly with two-lane SIMD, four rows at a time (src/math/pair-sums.ts
+ * says what they compute and why). Both files are generated and committed; test/pair-sums.test.ts generates them again and fails
  * if they differ, and checks the module bit for bit against plain loops.
  *
  *   node tools/pair-sums-wasm.mjs          # after editing this generator
@@ -49,18 +49,24 @@ const scalarExp = `
     (local.set $k (i32.trunc_sat_f64_s (local.get $kf)))
     (f64.mul (f64.mul ${tableLoad('(local.get $k)')} ${powerLoad('(local.get $k)')}) ${polynomial('(local.get $r)', 'f64', scalar)}))`;
 
-/** expNonPositive in both lanes of $arg, into $term (inline: a call per pair costs a quarter of the loop). */
-const vectorExp = (arg) => `
-        (local.set $ey (f64x2.pmax ${arg} ${splat(-800)}))
-        (local.set $ek (f64x2.add (f64x2.mul (local.get $ey) ${splat(C.SIXTY_FOUR_OVER_LN2)}) ${splat(C.ROUND)}))
-        (local.set $ekf (f64x2.sub (local.get $ek) ${splat(C.ROUND)}))
-        (local.set $er (f64x2.sub (f64x2.sub (local.get $ey) (f64x2.mul (local.get $ekf) ${splat(C.LN2_64_HIGH)})) (f64x2.mul (local.get $ekf) ${splat(C.LN2_64_LOW)})))
-        (local.set $ek0 (i32x4.extract_lane 0 (local.get $ek)))
-        (local.set $ek1 (i32x4.extract_lane 2 (local.get $ek)))
-        (local.set $term (f64x2.mul (f64x2.mul
-          (f64x2.replace_lane 1 (f64x2.splat ${tableLoad('(local.get $ek0)')}) ${tableLoad('(local.get $ek1)')})
-          (f64x2.replace_lane 1 (f64x2.splat ${powerLoad('(local.get $ek0)')}) ${powerLoad('(local.get $ek1)')}))
-          ${polynomial('(local.get $er)', 'f64x2', splat)}))`;
+/**
+ * expNonPositive in both lanes of $arg, into $out (inline: a call per pair costs a quarter of the loop); `tag`
+ * names this copy's temporaries, so that two copies in one loop body are independent chains.
+ */
+const vectorExp = (arg, out = '$term', tag = '') => `
+        (local.set $ey${tag} (f64x2.pmax ${arg} ${splat(-800)}))
+        (local.set $ek${tag} (f64x2.add (f64x2.mul (local.get $ey${tag}) ${splat(C.SIXTY_FOUR_OVER_LN2)}) ${splat(C.ROUND)}))
+        (local.set $ekf${tag} (f64x2.sub (local.get $ek${tag}) ${splat(C.ROUND)}))
+        (local.set $er${tag} (f64x2.sub (f64x2.sub (local.get $ey${tag}) (f64x2.mul (local.get $ekf${tag}) ${splat(C.LN2_64_HIGH)})) (f64x2.mul (local.get $ekf${tag}) ${splat(C.LN2_64_LOW)})))
+        (local.set $ek0${tag} (i32x4.extract_lane 0 (local.get $ek${tag})))
+        (local.set $ek1${tag} (i32x4.extract_lane 2 (local.get $ek${tag})))
+        (local.set ${out} (f64x2.mul (f64x2.mul
+          (f64x2.replace_lane 1 (f64x2.splat ${tableLoad(`(local.get $ek0${tag})`)}) ${tableLoad(`(local.get $ek1${tag})`)})
+          (f64x2.replace_lane 1 (f64x2.splat ${powerLoad(`(local.get $ek0${tag})`)}) ${powerLoad(`(local.get $ek1${tag})`)}))
+          ${polynomial(`(local.get $er${tag})`, 'f64x2', splat)}))`;
+
+const expLocals = (tag) =>
+  `(local $ey${tag} v128) (local $ek${tag} v128) (local $ekf${tag} v128) (local $er${tag} v128) (local $ek0${tag} i32) (local $ek1${tag} i32)`;
 
 /** Squared distance summed in axis order: a0·a0 + a1·a1 + … */
 const squaredSum = (axes, op, term) =>
@@ -77,12 +83,59 @@ function pairLoop(d) {
   ;; ranges are the same), exp(scale·|z_p − z_q|²) added to sums[p] and sums[q]; rows p and p + 1 in the two lanes.
   (func (export "pairs${d}") (param $z i32) (param $fromA i32) (param $toA i32) (param $fromB i32) (param $toB i32) (param $scale f64) (param $sums i32)
     (local $same i32) (local $p i32) (local $q i32) (local $acc v128) (local $term v128) (local $scales v128)
-    (local $ey v128) (local $ek v128) (local $ekf v128) (local $er v128) (local $ek0 i32) (local $ek1 i32)
+    ${expLocals('')} ${expLocals('B')} (local $accB v128) (local $termB v128)
     (local $t f64) (local $s f64) (local $sumX f64)
-    ${axes.map((a) => `(local $v${a} v128) (local $w${a} v128) (local $x${a} f64)`).join(' ')}
+    ${axes.map((a) => `(local $v${a} v128) (local $w${a} v128) (local $x${a} f64) (local $u${a} v128) (local $y${a} v128) (local $c${a} v128)`).join(' ')}
     (local.set $same (i32.eq (local.get $fromA) (local.get $fromB)))
     (local.set $scales (f64x2.splat (local.get $scale)))
     (local.set $p (local.get $fromA))
+    ;; Four rows at a time: rows p, p + 1 in $acc and rows p + 2, p + 3 in $accB, against each q. Every sum gets the
+    ;; same terms in the same order as two row pairs one after the other would give it: sums[q] gets rows p, p + 1's
+    ;; two terms added together, then rows p + 2, p + 3's, and nothing else touches it in between.
+    (block $blocksDone (loop $blocks
+      (br_if $blocksDone (i32.ge_s (i32.add (local.get $p) (i32.const 3)) (local.get $toA)))
+      ${axes.map((a) => `(local.set $v${a} (f64x2.replace_lane 1 (f64x2.splat ${at('$p', a)}) ${at('$p', a + d)}))`).join('\n      ')}
+      ${axes.map((a) => `(local.set $u${a} (f64x2.replace_lane 1 (f64x2.splat ${at('$p', a + 2 * d)}) ${at('$p', a + 3 * d)}))`).join('\n      ')}
+      (local.set $acc (f64x2.splat (f64.const 0.0)))
+      (local.set $accB (f64x2.splat (f64.const 0.0)))
+      (local.set $q (local.get $fromB))
+      (if (local.get $same) (then
+        ;; the pair (p, p + 1) itself, to both rows; then rows p, p + 1 against p + 2 and p + 3, as the two-row loop
+        ${axes.map((a) => `(local.set $x${a} (f64.sub ${at('$p', a)} ${at('$p', a + d)}))`).join(' ')}
+        (local.set $acc (f64x2.splat (call $exp (f64.mul (local.get $scale) ${squaredSum(axes, 'f64', (a) => `(local.get $x${a})`)}))))
+        (local.set $q (i32.add (local.get $p) (i32.const 2)))
+        (block $headDone (loop $head
+          (br_if $headDone (i32.ge_s (local.get $q) (i32.add (local.get $p) (i32.const 4))))
+          ${axes.map((a) => `(local.set $w${a} (f64x2.sub (local.get $v${a}) (f64x2.splat ${at('$q', a)})))`).join('\n          ')}
+          ${vectorExp(`(f64x2.mul (local.get $scales) ${squaredSum(axes, 'f64x2', (a) => `(local.get $w${a})`)})`)}
+          (local.set $acc (f64x2.add (local.get $acc) (local.get $term)))
+          ${addTo('$q', '(f64.add (f64x2.extract_lane 0 (local.get $term)) (f64x2.extract_lane 1 (local.get $term)))')}
+          (local.set $q (i32.add (local.get $q) (i32.const 1)))
+          (br $head)))
+        ;; the pair (p + 2, p + 3) itself, to both of those rows
+        ${axes.map((a) => `(local.set $x${a} (f64.sub ${at('$p', a + 2 * d)} ${at('$p', a + 3 * d)}))`).join(' ')}
+        (local.set $accB (f64x2.splat (call $exp (f64.mul (local.get $scale) ${squaredSum(axes, 'f64', (a) => `(local.get $x${a})`)}))))))
+      (block $pairsDone (loop $pairs
+        (br_if $pairsDone (i32.ge_s (local.get $q) (local.get $toB)))
+        ${axes.map((a) => `(local.set $c${a} (f64x2.splat ${at('$q', a)}))`).join('\n        ')}
+        ${axes.map((a) => `(local.set $w${a} (f64x2.sub (local.get $v${a}) (local.get $c${a})))`).join('\n        ')}
+        ${axes.map((a) => `(local.set $y${a} (f64x2.sub (local.get $u${a}) (local.get $c${a})))`).join('\n        ')}
+        ${vectorExp(`(f64x2.mul (local.get $scales) ${squaredSum(axes, 'f64x2', (a) => `(local.get $w${a})`)})`)}
+        ${vectorExp(`(f64x2.mul (local.get $scales) ${squaredSum(axes, 'f64x2', (a) => `(local.get $y${a})`)})`, '$termB', 'B')}
+        (local.set $acc (f64x2.add (local.get $acc) (local.get $term)))
+        (local.set $accB (f64x2.add (local.get $accB) (local.get $termB)))
+        (f64.store ${sumsAt('$q')} (f64.add (f64.add (f64.load ${sumsAt('$q')})
+          (f64.add (f64x2.extract_lane 0 (local.get $term)) (f64x2.extract_lane 1 (local.get $term))))
+          (f64.add (f64x2.extract_lane 0 (local.get $termB)) (f64x2.extract_lane 1 (local.get $termB)))))
+        (local.set $q (i32.add (local.get $q) (i32.const 1)))
+        (br $pairs)))
+      ${addTo('$p', '(f64x2.extract_lane 0 (local.get $acc))')}
+      ${addTo('$p', '(f64x2.extract_lane 1 (local.get $acc))', 1)}
+      ${addTo('$p', '(f64x2.extract_lane 0 (local.get $accB))', 2)}
+      ${addTo('$p', '(f64x2.extract_lane 1 (local.get $accB))', 3)}
+      (local.set $p (i32.add (local.get $p) (i32.const 4)))
+      (br $blocks)))
+    ;; at most one row pair left, then at most one row
     (block $rowsDone (loop $rows
       (br_if $rowsDone (i32.ge_s (i32.add (local.get $p) (i32.const 1)) (local.get $toA)))
       ${axes.map((a) => `(local.set $v${a} (f64x2.replace_lane 1 (f64x2.splat ${at('$p', a)}) ${at('$p', a + d)}))`).join('\n      ')}

@@ -4,9 +4,12 @@
  * SIMD for d = 2..5: rows p and p + 1 sit in the two lanes against each q, which is the order the scalar loops
  * used, so the sums are the same doubles bit for bit (WebAssembly rounds every operation to double as
  * JavaScript does, and has no fused multiply-add; test/pair-sums.test.ts checks against plain loops). The
- * exponential is expNonPositive (src/math/exp.ts) on both lanes at once. All log-sums of n = 2000 points by the
- * blocked path, against the unrolled JavaScript loops they replaced (same process, medians of 15, load 0.6):
- * d = 2 6.6 against 8.1 ms, d = 3 7.2 against 9.2 ms, d = 5 7.9 against 12.0 ms.
+ * exponential is expNonPositive (src/math/exp.ts) on both lanes at once. Two row pairs go against each q
+ * together (two independent exponentials per step, and q's coordinates and sum read once), adding to sums[q] in
+ * the order the pairs one after the other would. All log-sums of n = 2000 points by the blocked path, against
+ * the unrolled JavaScript loops the module replaced (same process, medians of 15, load 0.6): d = 2 6.6 against
+ * 8.1 ms, d = 3 7.2 against 9.2 ms, d = 5 7.9 against 12.0 ms, with one row pair at a time; two at a time took
+ * 0.75–0.82 of that (n = 500 and 2000, d = 2, 3, 5, medians of 5 alternating, load 2.7).
  * The module is generated (tools/pair-sums-wasm.mjs → pair-sums.wat, pair-sums-wasm.ts).
  *
  *   const pairs = pairSums(points, n, 3);        // copies the points into the module's memory
