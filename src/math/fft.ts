@@ -232,27 +232,52 @@ function lastStage(re: Float64Array, im: Float64Array, wrs: Float64Array, wis: F
 export function circularConvolveReal(a: Float64Array, b: Float64Array): Float64Array {
   const size = a.length;
   if (b.length !== size) throw new RangeError('circularConvolveReal: a and b must have the same length');
-  const re = Float64Array.from(a);
-  const im = Float64Array.from(b);
+  const re = a.slice();
+  const im = b.slice();
   fftInPlace(re, im);
-  const productRe = new Float64Array(size);
-  const productIm = new Float64Array(size);
-  for (let k = 0; k < size; k++) {
+  spectralProductInPlace(re, im);
+  fftInPlace(re, im, true);
+  return re;
+}
+
+/**
+ * Overwrites the packed spectrum Z with A·B. Entries k and m = N − k each need the other's Z, so both
+ * products are computed before either is written (spectralProductRe, spectralProductIm).
+ */
+function spectralProductInPlace(re: Float64Array, im: Float64Array): void {
+  const size = re.length;
+  const half = size >>> 1;
+  for (let k = 0; k <= half; k++) {
     const m = (size - k) & (size - 1);
-    const zr = re[k];
-    const zi = im[k];
-    const cr = re[m];
-    const ci = -im[m];
-    // A = (Z + conj Z_m)/2, B = (Z − conj Z_m)/(2i)
-    const ar = (zr + cr) / 2;
-    const ai = (zi + ci) / 2;
-    const dr = zr - cr;
-    const di = zi - ci;
-    const brr = di / 2;
-    const bii = -dr / 2;
-    productRe[k] = ar * brr - ai * bii;
-    productIm[k] = ar * bii + ai * brr;
+    const zkr = re[k];
+    const zki = im[k];
+    const zmr = re[m];
+    const zmi = im[m];
+    const pkr = spectralProductRe(zkr, zki, zmr, -zmi);
+    const pki = spectralProductIm(zkr, zki, zmr, -zmi);
+    const pmr = spectralProductRe(zmr, zmi, zkr, -zki);
+    const pmi = spectralProductIm(zmr, zmi, zkr, -zki);
+    re[k] = pkr;
+    im[k] = pki;
+    re[m] = pmr;
+    im[m] = pmi;
   }
-  fftInPlace(productRe, productIm, true);
-  return productRe;
+}
+
+// A = (Z + C)/2, B = (Z − C)/(2i), with Z = Z_k and C = conj Z_{N−k}: the real and imaginary parts of A·B.
+
+function spectralProductRe(zr: number, zi: number, cr: number, ci: number): number {
+  const ar = (zr + cr) / 2;
+  const ai = (zi + ci) / 2;
+  const brr = (zi - ci) / 2;
+  const bii = -(zr - cr) / 2;
+  return ar * brr - ai * bii;
+}
+
+function spectralProductIm(zr: number, zi: number, cr: number, ci: number): number {
+  const ar = (zr + cr) / 2;
+  const ai = (zi + ci) / 2;
+  const brr = (zi - ci) / 2;
+  const bii = -(zr - cr) / 2;
+  return ar * bii + ai * brr;
 }
