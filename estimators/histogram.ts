@@ -60,6 +60,8 @@ import { quantileOfSorted, squaredDeviations } from '../src/math/moments.js';
 import { checkFiniteValues, column } from '../src/core/sample.js';
 import { spreadUnitOfRange, timesPowerOfTwo, toUnit } from './shared/scaling.js';
 import { rankKeys, sortAscending } from '../src/math/sort.js';
+import { SampleMemo } from './shared/sample-memo.js';
+import { sharedSortedValues } from './shared/sorted-values.js';
 
 export const BIN_RULES = ['sturges', 'scott', 'freedman-diaconis', 'doane', 'sqrt'] as const;
 export type BinRule = (typeof BIN_RULES)[number];
@@ -188,7 +190,8 @@ export function histogramGrid(sample: Sample, { bins, scale, width }: GridSettin
       throw new EstimateError('numeric', `${id}: the range of coordinate ${k + 1} overflows the double range; rescale the data`);
     }
     // A scaled rule keeps its scale-free count ratio, so rescaling the data still shifts by exactly d·log c.
-    const binCount = isRule ? Math.max(1, Math.round(ruleBinCount(bins, values, range, dim, k) * scale)) : bins;
+    const interquartileRange = () => sampleInterquartileRange(sample, k, values, unit === null);
+    const binCount = isRule ? Math.max(1, Math.round(ruleBinCount(bins, values, range, dim, k, interquartileRange) * scale)) : bins;
     if (!(binCount < MAX_EXACT_INTEGER)) {
       throw new EstimateError('numeric', `${id}: coordinate ${k + 1} would need 2^53 or more bins; use a bin count or width=W`);
     }
@@ -205,8 +208,41 @@ export function histogramGrid(sample: Sample, { bins, scale, width }: GridSettin
   return grid;
 }
 
-/** Number of bins along one coordinate for a rule; `values` is that coordinate's column (reordered here). */
-export function ruleBinCount(rule: BinRule, values: Float64Array, range: number, dim: number, coordinate = 0): number {
+/**
+ * Interquartile ranges of a draw's coordinates in grid units, NaN until asked for. The tuning grid asks for the
+ * Freedman–Diaconis count of the same draw at every scale, and each ask sorted the column again.
+ */
+const interquartileRanges = new SampleMemo<Float64Array>();
+
+/**
+ * IQR of coordinate k of the sample, `values` being that column in grid units (reordered here when a sort is
+ * needed); `inDataUnits` when the grid unit is the data's own, so `values` equals the column as given.
+ */
+function sampleInterquartileRange(sample: Sample, k: number, values: Float64Array, inDataUnits: boolean): number {
+  const { n, dim, data } = sample;
+  // In one dimension the column as given is the draw itself, which spacing and kernel estimators sort too.
+  if (dim === 1 && inDataUnits) return interquartileRangeOfSorted(sharedSortedValues(data.subarray(0, n)));
+  const kept = interquartileRanges.get(data, `iqr|${data.byteOffset}|${n}|${dim}`, () => new Float64Array(dim).fill(Number.NaN));
+  if (Number.isNaN(kept[k])) kept[k] = interquartileRangeOfSorted(sortAscending(values));
+  return kept[k];
+}
+
+function interquartileRangeOfSorted(sorted: Float64Array): number {
+  return quantileOfSorted(sorted, 0.75) - quantileOfSorted(sorted, 0.25);
+}
+
+/**
+ * Number of bins along one coordinate for a rule; `values` is that coordinate's column (reordered here).
+ * `interquartileRange` gives the column's IQR, for callers that keep it between calls.
+ */
+export function ruleBinCount(
+  rule: BinRule,
+  values: Float64Array,
+  range: number,
+  dim: number,
+  coordinate = 0,
+  interquartileRange = () => interquartileRangeOfSorted(sortAscending(values)),
+): number {
   const n = values.length;
   const id = `histogram (bins=${rule})`;
   const countPerCoordinate = (total: number): number => Math.max(1, Math.ceil(dim === 1 ? total : Math.pow(total, 1 / dim)));
@@ -227,8 +263,7 @@ export function ruleBinCount(rule: BinRule, values: Float64Array, range: number,
       return Math.max(1, Math.ceil(range / sd / (constant * Math.pow(n, -1 / (dim + 2)))));
     }
     case 'freedman-diaconis': {
-      const sorted = sortAscending(values);
-      const iqr = quantileOfSorted(sorted, 0.75) - quantileOfSorted(sorted, 0.25);
+      const iqr = interquartileRange();
       if (!(iqr > 0)) {
         throw new EstimateError(
           'ties',

@@ -2,7 +2,7 @@ import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import normalRandom from '@stdlib/random-base-normal';
 import exponentialRandom from '@stdlib/random-base-exponential';
-import type { Sample, Settings } from '../src/core/contracts.js';
+import { type Sample, type Settings, TUNING_SCALE_FACTORS } from '../src/core/contracts.js';
 import { EstimateError, UsageError } from '../src/core/errors.js';
 import { rngFromSeed } from '../src/core/rng.js';
 import { BIN_RULES, type BinRule, type GridSettings, histogramCells, histogramEstimators, histogramGrid } from '../estimators/histogram.js';
@@ -182,6 +182,46 @@ describe('histogram against a brute-force computation', () => {
       close(histogram.estimate(sample, { bins, correction: 'miller-madow' }), expected);
       const occupied = histogramCells(sample, gridOf(sample, { bins })).occupied;
       expect(occupied).toBeLessThanOrEqual(150);
+    }
+  });
+});
+
+describe("Freedman–Diaconis counts when a draw is reused (the rule keeps each draw's IQRs)", () => {
+  // Source for every count: bruteForceBinCount above (plain-array sort and percentile), times the scale
+  // and rounded as the setting states.
+  const expectedCounts = (sample: Sample, scale: number): number[] =>
+    Array.from({ length: sample.dim }, (_, k) => {
+      const column = points(sample).map((r) => r[k]);
+      return Math.max(1, Math.round(bruteForceBinCount('freedman-diaconis', column, sample.dim) * scale));
+    });
+  const countsOf = (sample: Sample, scale: number): number[] => gridOf(sample, { bins: 'freedman-diaconis', scale }).map((a) => a.binCount);
+
+  it('d = 3: every tuning scale, then the same buffer refilled with another draw', () => {
+    const sample = normalSample('histogram-reuse-3', 500, 3);
+    // Columns of very different spread and shape, so one column's IQR used for another changes the count.
+    for (let i = 0; i < sample.n; i++) {
+      sample.data[3 * i + 1] *= 100;
+      sample.data[3 * i + 2] = Math.exp(sample.data[3 * i + 2]);
+    }
+    for (const scale of TUNING_SCALE_FACTORS) expect(countsOf(sample, scale), `scale ${scale}`).toEqual(expectedCounts(sample, scale));
+    const other = normalSample('histogram-reuse-3-other', 500, 3);
+    sample.data.set(other.data);
+    for (const scale of TUNING_SCALE_FACTORS) expect(countsOf(sample, scale), `refilled, scale ${scale}`).toEqual(expectedCounts(sample, scale));
+  });
+
+  it('d = 1: as given, in a power-of-two unit (values near 2^200), and as views of one buffer', () => {
+    const sample = normalSample('histogram-reuse-1', 400, 1);
+    const huge: Sample = { ...sample, data: sample.data.map((x) => x * 2 ** 200) };
+    const shared = new Float64Array(900);
+    shared.set(normalSample('histogram-reuse-1-a', 450, 1).data, 0);
+    shared.set(
+      normalSample('histogram-reuse-1-b', 450, 1).data.map((x) => 3 * x),
+      450,
+    );
+    const first: Sample = { n: 450, dim: 1, data: shared.subarray(0, 450) };
+    const second: Sample = { n: 450, dim: 1, data: shared.subarray(450) };
+    for (const each of [sample, huge, first, second]) {
+      for (const scale of [1, 2, 1]) expect(countsOf(each, scale)).toEqual(expectedCounts(each, scale));
     }
   });
 });
