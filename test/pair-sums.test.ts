@@ -9,7 +9,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { expNonPositive } from '../src/math/exp.js';
-import { PAIR_SUMS_DIMS, pairSums } from '../src/math/pair-sums.js';
+import { PAIR_SUMS_DIMS, pairSums, sortedPairSums } from '../src/math/pair-sums.js';
 import { PAIR_SUMS_WASM } from '../src/math/pair-sums-wasm.js';
 
 /** Reference: rows p, p + 1 against each q; squared distances in axis order; q gets the two terms added together. */
@@ -99,6 +99,45 @@ describe('WebAssembly pair sums (src/math/pair-sums.ts)', () => {
     expect(compared).toBeGreaterThan(4000);
     // The narrow bandwidth leaves far points with sums at or below the double range, the case the clamp is for.
     expect(underflowed).toBeGreaterThan(10);
+  });
+
+  it('in one dimension (sortedPairSums) add the same doubles as the row-by-row pass over sorted values', () => {
+    // Reference: row i walks j = i + 1, … while the gap is within reach, its own sum kept apart (the pass
+    // estimators/kernel/univariate.ts made in JavaScript before it moved to the module).
+    const reference = (sorted: Float64Array, reach: number, scale: number): Float64Array => {
+      const sums = new Float64Array(sorted.length);
+      for (let i = 0; i < sorted.length; i++) {
+        let sumI = 0;
+        for (let j = i + 1; j < sorted.length; j++) {
+          const gap = sorted[j] - sorted[i];
+          if (gap > reach) break;
+          const term = expNonPositive(scale * gap * gap);
+          sumI += term;
+          sums[j] += term;
+        }
+        sums[i] += sumI;
+      }
+      return sums;
+    };
+    let compared = 0;
+    for (const n of [0, 1, 2, 3, 4, 5, 40, 301]) {
+      const values = points(n, 1, 7 + n);
+      // Repeated values (gaps of 0) and a tight run among the spread ones.
+      for (let i = 5; i < n; i += 9) values[i] = values[i - 1];
+      const sorted = values.sort();
+      for (const h of [5, 0.3, 0.01]) {
+        for (const cutoff of [8, 1e-3, 0]) {
+          const reach = cutoff * h;
+          const want = reference(sorted, reach, -0.5 / (h * h));
+          const got = sortedPairSums(sorted, reach, -0.5 / (h * h));
+          for (let i = 0; i < n; i++) {
+            expect(Object.is(got[i], want[i]), `n = ${n}, h = ${h}, reach = ${reach}, point ${i}: ${got[i]} against ${want[i]}`).toBe(true);
+            compared++;
+          }
+        }
+      }
+    }
+    expect(compared).toBeGreaterThan(3000);
   });
 
   it('refuses a PairSums used after a later pairSums call in the same thread', () => {

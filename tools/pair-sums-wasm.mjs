@@ -1,7 +1,7 @@
 /**
  * Writes src/math/pair-sums.wat and src/math/pair-sums-wasm.ts (the assembled module, base64): the kernel
- * estimator's pair loops for d = 2..5 in WebAssembly with two-lane SIMD, four rows at a time (src/math/pair-sums.ts
- * says what they compute and why). Both files are generated and committed; test/pair-sums.test.ts generates them again and fails
+ * estimator's pair loops for d = 2..5 in WebAssembly with two-lane SIMD, four rows at a time, and its pass over
+ * sorted values in one dimension (src/math/pair-sums.ts says what they compute and why). Both files are generated and committed; test/pair-sums.test.ts generates them again and fails
  * if they differ, and checks the module bit for bit against plain loops.
  *
  *   node tools/pair-sums-wasm.mjs          # after editing this generator
@@ -71,6 +71,11 @@ const expLocals = (tag) =>
 /** Squared distance summed in axis order: a0·a0 + a1·a1 + … */
 const squaredSum = (axes, op, term) =>
   axes.slice(1).reduce((acc, a) => `(${op}.add ${acc} (${op}.mul ${term(a)} ${term(a)}))`, `(${op}.mul ${term(0)} ${term(0)})`);
+
+/** Value i (+ offset) of the sorted array at $z, and an addition to sums[index] at $sums (one dimension). */
+const at1 = (i, offset = 0) => `(f64.load offset=${8 * offset} (i32.add (local.get $z) (i32.shl (local.get ${i}) (i32.const 3))))`;
+const sumAt1 = (index) => `(i32.add (local.get $sums) (i32.shl ${index} (i32.const 3)))`;
+const addTo1 = (index, value) => `(f64.store ${sumAt1(index)} (f64.add (f64.load ${sumAt1(index)}) ${value}))`;
 
 function pairLoop(d) {
   const axes = [...Array(d).keys()];
@@ -173,12 +178,69 @@ function pairLoop(d) {
       ${addTo('$p', '(local.get $sumX)')})))`;
 }
 
+/**
+ * sorted1(z, n, reach, scale, sums): for sorted values z, every pair i < j with z_j − z_i ≤ reach, the term
+ * exp((scale·gap)·gap) added to sums[i] and sums[j], as the kernel estimator's one-dimensional pair pass adds them
+ * (estimators/kernel/univariate.ts, exactLogKernelSums): row i walks j = i + 1, … until the gap passes reach,
+ * keeping its own sum apart and adding it to sums[i] at the end. Rows i and i + 1 run in the two lanes while both
+ * are within reach (row i always stops first), then row i + 1 alone; sums[j] gets row i's term, then row i + 1's,
+ * the order of the rows one after the other.
+ */
+const sortedLoop = `
+  (func (export "sorted1") (param $z i32) (param $n i32) (param $reach f64) (param $scale f64) (param $sums i32)
+    (local $i i32) (local $j i32) (local $xi f64) (local $xi1 f64) (local $gap f64) (local $t f64) (local $sumI f64) (local $sumI1 f64)
+    (local $pair v128) (local $gaps v128) (local $acc v128) (local $term v128) (local $scales v128) ${expLocals('')}
+    (local.set $scales (f64x2.splat (local.get $scale)))
+    (local.set $i (i32.const 0))
+    (block $rowsDone (loop $rows
+      (br_if $rowsDone (i32.ge_s (i32.add (local.get $i) (i32.const 1)) (local.get $n)))
+      (local.set $xi ${at1('$i')})
+      (local.set $xi1 ${at1('$i', 1)})
+      (local.set $pair (f64x2.replace_lane 1 (f64x2.splat (local.get $xi)) (local.get $xi1)))
+      (local.set $acc (f64x2.splat (f64.const 0.0)))
+      (local.set $j (i32.add (local.get $i) (i32.const 1)))
+      ;; row i against i + 1
+      (local.set $gap (f64.sub (local.get $xi1) (local.get $xi)))
+      (if (i32.eqz (f64.gt (local.get $gap) (local.get $reach))) (then
+        (local.set $t (call $exp (f64.mul (f64.mul (local.get $scale) (local.get $gap)) (local.get $gap))))
+        (local.set $acc (f64x2.replace_lane 0 (local.get $acc) (f64.add (f64.const 0.0) (local.get $t))))
+        ${addTo1('(local.get $j)', '(local.get $t)')}
+        (local.set $j (i32.add (local.get $j) (i32.const 1)))
+        ;; both rows, while row i is within reach
+        (block $bothDone (loop $both
+          (br_if $bothDone (i32.ge_s (local.get $j) (local.get $n)))
+          (br_if $bothDone (f64.gt (f64.sub ${at1('$j')} (local.get $xi)) (local.get $reach)))
+          (local.set $gaps (f64x2.sub (f64x2.splat ${at1('$j')}) (local.get $pair)))
+          ${vectorExp('(f64x2.mul (f64x2.mul (local.get $scales) (local.get $gaps)) (local.get $gaps))')}
+          (local.set $acc (f64x2.add (local.get $acc) (local.get $term)))
+          ${addTo1('(local.get $j)', '(f64x2.extract_lane 0 (local.get $term))')}
+          ${addTo1('(local.get $j)', '(f64x2.extract_lane 1 (local.get $term))')}
+          (local.set $j (i32.add (local.get $j) (i32.const 1)))
+          (br $both)))))
+      ;; row i + 1 alone, from where row i stopped
+      (if (i32.eq (local.get $j) (i32.add (local.get $i) (i32.const 1))) (then (local.set $j (i32.add (local.get $i) (i32.const 2)))))
+      (local.set $sumI1 (f64x2.extract_lane 1 (local.get $acc)))
+      (block $aloneDone (loop $alone
+        (br_if $aloneDone (i32.ge_s (local.get $j) (local.get $n)))
+        (local.set $gap (f64.sub ${at1('$j')} (local.get $xi1)))
+        (br_if $aloneDone (f64.gt (local.get $gap) (local.get $reach)))
+        (local.set $t (call $exp (f64.mul (f64.mul (local.get $scale) (local.get $gap)) (local.get $gap))))
+        (local.set $sumI1 (f64.add (local.get $sumI1) (local.get $t)))
+        ${addTo1('(local.get $j)', '(local.get $t)')}
+        (local.set $j (i32.add (local.get $j) (i32.const 1)))
+        (br $alone)))
+      ${addTo1('(local.get $i)', '(f64x2.extract_lane 0 (local.get $acc))')}
+      ${addTo1('(i32.add (local.get $i) (i32.const 1))', '(local.get $sumI1)')}
+      (local.set $i (i32.add (local.get $i) (i32.const 2)))
+      (br $rows))))`;
+
 export function pairSumsWat() {
   return `;; Generated by tools/pair-sums-wasm.mjs; do not edit.
 (module
   (memory (export "memory") 1)
   ${scalarExp}
   ${DIMS.map(pairLoop).join('\n')}
+  ${sortedLoop}
 )
 `;
 }

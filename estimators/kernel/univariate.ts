@@ -20,7 +20,7 @@
  *   point is done exactly.
  */
 import { circularConvolveReal, nextPowerOfTwo } from '../../src/math/fft.js';
-import { expNonPositive } from '../../src/math/exp.js';
+import { sortedPairSums } from '../../src/math/pair-sums.js';
 import { kernelCutoff } from './truncation.js';
 
 /**
@@ -98,27 +98,13 @@ export function exactLogKernelSum(sorted: Float64Array, i: number, bandwidth: nu
 
 /**
  * Exact log S_i for every point of a sorted array, each pair within c·h taken once and added to both points
- * (twice as fast as walking out from each point, and with the table exponential of exp.ts). A sum of at least
- * 1 is within the truncation bound as it is; a point whose sum is below 1 is redone by exactLogKernelSum,
- * relative to its nearest neighbour.
+ * (twice as fast as walking out from each point, and with the table exponential of exp.ts; the pass runs in
+ * WebAssembly, src/math/pair-sums.ts, sortedPairSums). A sum of at least 1 is within the truncation bound as
+ * it is; a point whose sum is below 1 is redone by exactLogKernelSum, relative to its nearest neighbour.
  */
 export function exactLogKernelSums(sorted: Float64Array, bandwidth: number, cutoff: number, logSums: Float64Array): void {
   const n = sorted.length;
-  const reach = cutoff * bandwidth;
-  const exponentScale = -0.5 / (bandwidth * bandwidth);
-  const sums = new Float64Array(n);
-  for (let i = 0; i < n; i++) {
-    const xi = sorted[i];
-    let sumI = 0;
-    for (let j = i + 1; j < n; j++) {
-      const gap = sorted[j] - xi;
-      if (gap > reach) break;
-      const term = expNonPositive(exponentScale * gap * gap);
-      sumI += term;
-      sums[j] += term;
-    }
-    sums[i] += sumI;
-  }
+  const sums = sortedPairSums(sorted, cutoff * bandwidth, -0.5 / (bandwidth * bandwidth));
   for (let i = 0; i < n; i++) logSums[i] = sums[i] >= 1 ? Math.log(sums[i]) : exactLogKernelSum(sorted, i, bandwidth, cutoff);
 }
 
