@@ -30,6 +30,7 @@ import { progressReporter } from '../views/progress.js';
 import { assembleRun, readRunFile, writeFileAtomic, writeRunFile, type RunFile } from '../analysis/results.js';
 import { acquireLock, ensureFolder, removeLeftoverTemporaries } from '../core/files.js';
 import { checkSampleMemory } from '../core/memory.js';
+import { prefetchProvenance } from '../core/provenance.js';
 import { checkpointStarted, defaultWorkers, runPlan, type RunOptions, type RunOutcome, type Shard } from '../harness/runner.js';
 import { parseShard } from '../harness/shard.js';
 import { dependenceTables, detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../views/tables.js';
@@ -338,6 +339,8 @@ async function runWithSignals(
   process.once('SIGINT', onSignal);
   process.once('SIGTERM', onSignal);
   const progress = quiet ? undefined : progressReporter(process.stderr);
+  // The run file names hhat's commit; git answers while the estimators run instead of after them.
+  void prefetchProvenance();
   try {
     const outcome = await runPlan(plan, { ...runOptions, onProgress: progress?.update, signal: controller.signal });
     return { outcome, stoppedBy };

@@ -1,4 +1,4 @@
-import { execFileSync } from 'node:child_process';
+import { execFile, execFileSync } from 'node:child_process';
 import { existsSync, readFileSync, realpathSync } from 'node:fs';
 import { cpus, platform, arch, totalmem } from 'node:os';
 import { dirname, join } from 'node:path';
@@ -35,22 +35,60 @@ export interface Environment {
   memoryGiB: number;
 }
 
+/** hhat's commit and whether its checkout is dirty, from `git rev-parse` and `git status` output; null when not hhat's own checkout. */
+function gitAnswer(cwd: string, revParse: string, status: string): Environment['git'] {
+  const [top, commit] = revParse.trim().split('\n');
+  return realpathSync(top) === realpathSync(cwd) ? { commit, dirty: status.trim() !== '' } : null;
+}
+
+const REV_PARSE = ['rev-parse', '--show-toplevel', 'HEAD'];
+const STATUS = ['status', '--porcelain', '--untracked-files=no'];
+
+/** Found ahead of time by prefetchProvenance, so that a long run does not wait for git at its end. */
+let prefetched: Environment['git'] | undefined;
+
 function gitInfo(): Environment['git'] {
+  if (prefetched !== undefined) return prefetched;
   try {
     const cwd = packageRoot();
     // Only hhat's own checkout counts: installed inside another repository (a user's project), git would
     // otherwise report that repository's commit as hhat's.
     // One process for both answers (each git start costs about 15 ms).
-    const [top, commit] = execFileSync('git', ['rev-parse', '--show-toplevel', 'HEAD'], { cwd, stdio: ['ignore', 'pipe', 'ignore'] })
-      .toString()
-      .trim()
-      .split('\n');
+    const revParse = execFileSync('git', REV_PARSE, { cwd, stdio: ['ignore', 'pipe', 'ignore'] }).toString();
+    const [top] = revParse.trim().split('\n');
     if (realpathSync(top) !== realpathSync(cwd)) return null;
-    const status = execFileSync('git', ['status', '--porcelain', '--untracked-files=no'], { cwd, stdio: ['ignore', 'pipe', 'ignore'] }).toString();
-    return { commit, dirty: status.trim() !== '' };
+    return gitAnswer(cwd, revParse, execFileSync('git', STATUS, { cwd, stdio: ['ignore', 'pipe', 'ignore'] }).toString());
   } catch {
     return null;
   }
+}
+
+/**
+ * Asks git in the background now (a benchmark run calls this as it starts, with its code already fixed); a later
+ * environment() uses the answer if it has come, and otherwise asks again itself.
+ */
+export function prefetchProvenance(): Promise<void> {
+  let cwd: string;
+  try {
+    cwd = packageRoot();
+  } catch {
+    return Promise.resolve();
+  }
+  const options = { cwd, windowsHide: true };
+  return new Promise((resolve) => {
+    const settle = (answer: () => Environment['git']) => {
+      try {
+        prefetched = answer();
+      } catch {
+        prefetched = null;
+      }
+      resolve();
+    };
+    execFile('git', REV_PARSE, options, (error, revParse) => {
+      if (error) return settle(() => null);
+      execFile('git', STATUS, options, (statusError, status) => settle(() => (statusError ? null : gitAnswer(cwd, revParse, status))));
+    });
+  });
 }
 
 export function environment(): Environment {

@@ -25,7 +25,12 @@ function dequantizedTwins(estimators: ConfiguredEstimator[], taken: Set<string>,
   });
 }
 
-export function buildContext(plan: Plan): WorkContext {
+/**
+ * `shifts: false` (a worker) skips what only the scores need: the truth's shift under each perturbation, which
+ * for a monotone map is a quadrature per coordinate; a worker only applies the perturbations, and the main thread
+ * (which decides which ones apply) keeps the shifts.
+ */
+export function buildContext(plan: Plan, { shifts = true }: { shifts?: boolean } = {}): WorkContext {
   // A Plan is a valid PlanInput: resolving it again yields the same plan, with its scenarios and estimators.
   const resolved = resolvePlan(plan);
   const { scenarios, estimators } = resolved;
@@ -52,6 +57,6 @@ export function buildContext(plan: Plan): WorkContext {
     dequantized,
     all: [...estimators, ...tuning.map((t) => t.configured), ...dequantized.map((t) => t.configured)],
     perturbations,
-    prepared: scenarios.map((s) => perturbations.map((p) => p.prepare(s))),
+    prepared: scenarios.map((s) => perturbations.map((p) => p.prepare(s, { shiftNeeded: shifts }))),
   };
 }

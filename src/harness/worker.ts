@@ -77,7 +77,8 @@ process.nextTick = wrapScheduler(process.nextTick);
 // The user's estimators must be registered here too before the plan's estimator specs resolve.
 await useEstimatorModules(plan.modules);
 useEstimatorCommands(plan.commands, plan.limits);
-const context = buildContext(plan);
+// The main thread planned the units (and skipped the perturbations that do not apply) and scores them.
+const context = buildContext(plan, { shifts: false });
 
 function post(message: WorkerMessage, transfer: ArrayBuffer[] = []): void {
   parentPort!.postMessage(message, transfer);
