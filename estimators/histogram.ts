@@ -59,7 +59,7 @@ import { EstimateError } from '../src/core/errors.js';
 import { quantileOfSorted, squaredDeviations } from '../src/math/moments.js';
 import { checkFiniteValues, column } from '../src/core/sample.js';
 import { spreadUnitOfRange, timesPowerOfTwo, toUnit } from './shared/scaling.js';
-import { rankKeys, sortAscending } from '../src/math/sort.js';
+import { quantilePairInPlace, rankKeys, sortAscending } from '../src/math/sort.js';
 import { SampleMemo } from './shared/sample-memo.js';
 import { sharedSortedValues } from './shared/sorted-values.js';
 
@@ -223,12 +223,18 @@ function sampleInterquartileRange(sample: Sample, k: number, values: Float64Arra
   // In one dimension the column as given is the draw itself, which spacing and kernel estimators sort too.
   if (dim === 1 && inDataUnits) return interquartileRangeOfSorted(sharedSortedValues(data.subarray(0, n)));
   const kept = interquartileRanges.get(data, `iqr|${data.byteOffset}|${n}|${dim}`, () => new Float64Array(dim).fill(Number.NaN));
-  if (Number.isNaN(kept[k])) kept[k] = interquartileRangeOfSorted(sortAscending(values));
+  if (Number.isNaN(kept[k])) kept[k] = interquartileRangeInPlace(values);
   return kept[k];
 }
 
 function interquartileRangeOfSorted(sorted: Float64Array): number {
   return quantileOfSorted(sorted, 0.75) - quantileOfSorted(sorted, 0.25);
+}
+
+/** The same from unsorted values (reordered), by selection: the two quartiles without sorting the column. */
+function interquartileRangeInPlace(values: Float64Array): number {
+  const [lower, upper] = quantilePairInPlace(values, 0.25, 0.75);
+  return upper - lower;
 }
 
 /**
@@ -241,7 +247,7 @@ export function ruleBinCount(
   range: number,
   dim: number,
   coordinate = 0,
-  interquartileRange = () => interquartileRangeOfSorted(sortAscending(values)),
+  interquartileRange = () => interquartileRangeInPlace(values),
 ): number {
   const n = values.length;
   const id = `histogram (bins=${rule})`;

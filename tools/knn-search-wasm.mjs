@@ -48,10 +48,17 @@ const layoutGlobals = [
   .map((g) => `(global ${g} (mut i32) (i32.const 0))`)
   .join('\n  ');
 
-/** Inserts a squared distance below the k-th into the sorted k best (NeighbourSearch.insert). */
+/**
+ * Inserts a squared distance below the k-th into the sorted k best (NeighbourSearch.insert). While fewer than k
+ * are held, the shift starts at the first empty slot instead of the last: moving empty slots (∞, −1) onto empty
+ * slots changes nothing, so the list ends the same, without the k²/2 moves of filling it.
+ */
 const insert = `
   (func $insert (param $distance f64) (param $pos i32) (local $slot i32) (local $previous f64)
     (local.set $slot (i32.sub (global.get $k) (i32.const 1)))
+    (if (i32.lt_s (global.get $held) (global.get $k)) (then
+      (local.set $slot (global.get $held))
+      (global.set $held (i32.add (global.get $held) (i32.const 1)))))
     (block $placed (loop $shift
       (br_if $placed (i32.le_s (local.get $slot) (i32.const 0)))
       (local.set $previous ${f64At('$best', '(i32.sub (local.get $slot) (i32.const 1))')})
@@ -166,6 +173,7 @@ function searchFunctions(d) {
       (local.set $j (i32.add (local.get $j) (i32.const 1)))
       (br $fill)))
     (global.set $worst (f64.const inf))
+    (global.set $held (i32.const 0))
     (call $scan${suffix} (local.get $leaf))
     (local.set $node (local.get $leaf))
     (local.set $up ${i32At('$parent', '(local.get $node)')})
@@ -239,6 +247,8 @@ export function knnSearchWat() {
   (memory (export "memory") 1)
   ${layoutGlobals}
   (global $worst (mut f64) (f64.const 0))
+  ;; How many of the k best slots hold a point.
+  (global $held (mut i32) (i32.const 0))
   ${setLayout}
   ${insert}
   ${[...UNROLLED_DIMS, null].map(searchFunctions).join('\n')}

@@ -86,3 +86,62 @@ function radixSortFloat64(values: Float64Array): Float64Array {
   sorted.set(source.subarray(0, n - negativeCount), negativeCount);
   return sorted;
 }
+
+/**
+ * Reorders values[lo..hi] (inclusive) so that values[kth] is the value sorting would put there, those before it
+ * ≤ and those after it ≥ (Hoare partitions around a median of three). O(n) on average: for a few order
+ * statistics of a column, where a full sort would cost n·log n.
+ */
+export function selectInPlace(values: Float64Array, kth: number, lo = 0, hi = values.length - 1): void {
+  while (hi > lo) {
+    const a = values[lo];
+    const b = values[(lo + hi) >> 1];
+    const c = values[hi];
+    const pivot = a < b ? (b < c ? b : a < c ? c : a) : a < c ? a : b < c ? c : b;
+    let i = lo;
+    let j = hi;
+    while (i <= j) {
+      while (values[i] < pivot) i++;
+      while (values[j] > pivot) j--;
+      if (i <= j) {
+        const held = values[i];
+        values[i++] = values[j];
+        values[j--] = held;
+      }
+    }
+    if (kth <= j) hi = j;
+    else if (kth >= i) lo = i;
+    else return;
+  }
+}
+
+/** The smallest of values[from..to] (inclusive). */
+function smallest(values: Float64Array, from: number, to: number): number {
+  let least = values[from];
+  for (let i = from + 1; i <= to; i++) if (values[i] < least) least = values[i];
+  return least;
+}
+
+/**
+ * Quantiles p ≤ q of finite values by linear interpolation between order statistics at position p·(n − 1)
+ * (Hyndman & Fan 1996, type 7, as quantileOfSorted), found by selection; `values` is reordered.
+ */
+export function quantilePairInPlace(values: Float64Array, p: number, q: number): [number, number] {
+  const n = values.length;
+  const at = (position: number, below: number, to: number): number => {
+    const fraction = position - below;
+    if (fraction === 0) return values[below];
+    // Everything after `below` up to `to` is ≥ values[below]: the next order statistic is their smallest.
+    return values[below] + (smallest(values, below + 1, to) - values[below]) * fraction;
+  };
+  const upperPosition = q * (n - 1);
+  const upperBelow = Math.floor(upperPosition);
+  selectInPlace(values, upperBelow, 0, n - 1);
+  const upper = at(upperPosition, upperBelow, n - 1);
+  const lowerPosition = p * (n - 1);
+  const lowerBelow = Math.floor(lowerPosition);
+  // Everything before upperBelow is ≤ values[upperBelow], so the lower order statistics lie there (or are it).
+  if (lowerBelow < upperBelow) selectInPlace(values, lowerBelow, 0, upperBelow - 1);
+  const lower = at(lowerPosition, lowerBelow, lowerBelow < upperBelow ? upperBelow : n - 1);
+  return [lower, upper];
+}
