@@ -27,6 +27,8 @@
  * current k-th distance. The k best so far sit in a short sorted typed array. Other point sets are first
  * bucketed by the leaf they fall in, for the same locality. Radius counts prune with tight bounding boxes
  * instead, which also tell when a whole box lies inside the radius.
+ * nearestOthers with the Euclidean norm runs this search in WebAssembly (knn-search.ts), the same walk and the
+ * same sums, so the same results (0.54–0.76 of the JavaScript search's time at d = 2..5, 0.40 at d = 8).
  * Ties: duplicates of a point are other points at distance 0; which of several equidistant points is
  * reported in `indices` is unspecified, the distances are not.
  */
