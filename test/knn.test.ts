@@ -198,21 +198,24 @@ describe('nearestOthers in WebAssembly (src/math/knn-search.ts) is the JavaScrip
   // The module must walk the tree as NeighbourSearch does, so even which of several equidistant points is
   // reported agrees; the distances are also checked against brute force above (the default engine).
   const wasmDims = [1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 12, 16];
-  it.each(Object.keys(generators))('%s points, every unrolled dimension and the generic loop', (name) => {
-    const rng = rngFromSeed(`knn-wasm-${name}`);
-    for (const dim of wasmDims) {
-      for (const leafSize of [2, undefined]) {
-        const n = 40 + Math.floor(rng() * 60);
-        const index = new KnnIndex(generators[name](rng, n, dim), dim, { leafSize });
-        for (const k of [1, 4, 13, n - 1]) {
-          const fast = index.nearestOthers(k, { indices: true });
-          const plain = index.nearestOthers(k, { indices: true, engine: 'javascript' });
-          expect(fast.distances, `${name} d=${dim} leaf=${leafSize} k=${k}`).toEqual(plain.distances);
-          expect(fast.indices, `${name} d=${dim} leaf=${leafSize} k=${k}`).toEqual(plain.indices);
+  it.each(Object.keys(generators).flatMap((name) => norms.map((norm) => [name, norm] as const)))(
+    '%s points, %s norm, every unrolled dimension and the generic loop',
+    (name, norm) => {
+      const rng = rngFromSeed(`knn-wasm-${name}-${norm}`);
+      for (const dim of wasmDims) {
+        for (const leafSize of [2, undefined]) {
+          const n = 40 + Math.floor(rng() * 60);
+          const index = new KnnIndex(generators[name](rng, n, dim), dim, { leafSize, norm });
+          for (const k of [1, 4, 13, n - 1]) {
+            const fast = index.nearestOthers(k, { indices: true });
+            const plain = index.nearestOthers(k, { indices: true, engine: 'javascript' });
+            expect(fast.distances, `${name} d=${dim} leaf=${leafSize} k=${k}`).toEqual(plain.distances);
+            expect(fast.indices, `${name} d=${dim} leaf=${leafSize} k=${k}`).toEqual(plain.indices);
+          }
         }
       }
-    }
-  });
+    },
+  );
 
   it('leaves a tree too large for its memory to the JavaScript search', () => {
     expect(searchBytes(2e8, 3, 4e7, 2e7, 5, false)).toBeGreaterThan(MAX_SEARCH_BYTES);

@@ -1,5 +1,5 @@
 /**
- * The kd-tree's all-points k-nearest-others search for the Euclidean norm (src/math/knn.ts, nearestOthers) in
+ * The kd-tree's all-points k-nearest-others search (src/math/knn.ts, nearestOthers), Euclidean and max norm, in
  * WebAssembly. It walks the tree exactly as the JavaScript search does and sums squared distances in the same
  * order, so distances and neighbour indices are the same, ties included (test/knn-search.test.ts checks it
  * against the JavaScript search). It is faster, and its code is compiled once per process, where a worker
@@ -40,8 +40,8 @@ type SetLayout = (...offsets: number[]) => void;
 interface Loaded {
   memory: WasmMemory;
   setLayout: SetLayout;
-  searches: Map<number, Search>;
-  generic: Search;
+  /** Per norm ('' Euclidean, 'Max'): the unrolled searches by dimension, and the generic one. */
+  searches: Map<string, Search>;
 }
 
 let loaded: Loaded | undefined;
@@ -52,8 +52,11 @@ function load(): Loaded {
   return (loaded = {
     memory,
     setLayout: exports.setLayout as SetLayout,
-    searches: new Map(UNROLLED_DIMS.map((d) => [d, exports[`nearestOthers${d}`] as Search])),
-    generic: exports.nearestOthers as Search,
+    searches: new Map(
+      Object.entries(exports)
+        .filter(([name]) => name.startsWith('nearestOthers'))
+        .map(([name, search]) => [name.slice('nearestOthers'.length), search as Search]),
+    ),
   });
 }
 
@@ -66,10 +69,15 @@ export function searchBytes(n: number, dim: number, nodeCount: number, leafCount
 }
 
 /**
- * The k nearest other points of every point, rows in the original point order: distances (and original
- * indices), as NeighbourSearch gives them; null when the tree is too large for the module's memory.
+ * The k nearest other points of every point in the norm, rows in the original point order: distances (and
+ * original indices), as NeighbourSearch gives them; null when the tree is too large for the module's memory.
  */
-export function wasmNearestOthers(tree: SearchTree, k: number, withIndices: boolean): { distances: Float64Array; indices: Int32Array | undefined } | null {
+export function wasmNearestOthers(
+  tree: SearchTree,
+  k: number,
+  withIndices: boolean,
+  norm: 'euclidean' | 'max' = 'euclidean',
+): { distances: Float64Array; indices: Int32Array | undefined } | null {
   const { n, dim, nodeCount, leaves } = tree;
   const bytes = searchBytes(n, dim, nodeCount, leaves.length, k, withIndices);
   if (bytes > MAX_SEARCH_BYTES) return null;
@@ -105,7 +113,9 @@ export function wasmNearestOthers(tree: SearchTree, k: number, withIndices: bool
   const out = block(8 * n * k);
   const indicesAt = withIndices ? block(4 * n * k) : 0;
   module.setLayout(coords, split, left, right, parent, axis, start, end, side, best, bestPos, k, dim);
-  (module.searches.get(dim) ?? module.generic)(leavesAt, leaves.length, order, out, indicesAt);
+  const prefix = norm === 'max' ? 'Max' : '';
+  const search = module.searches.get(`${prefix}${UNROLLED_DIMS.includes(dim) ? dim : ''}`)!;
+  search(leavesAt, leaves.length, order, out, indicesAt);
   return {
     distances: new Float64Array(buffer, out, n * k).slice(),
     indices: withIndices ? new Int32Array(buffer, indicesAt, n * k).slice() : undefined,

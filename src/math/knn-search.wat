@@ -78,7 +78,6 @@
     (if (f64.lt (local.get $far) (global.get $worst)) (then
       (call $visit2 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far))))
     (f64.store (local.get $sideAt) (local.get $previous)))
-
   ;; run2(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
   (func $run2 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
     (local.set $j (i32.const 0))
@@ -111,7 +110,8 @@
       (br $climb))))
 
   ;; nearestOthers2(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
-  ;; original order (order[pos]); distances are square roots of the squared sums; indices (0: none) original indices.
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
   (func (export "nearestOthers2") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
     (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
     (local.set $a (i32.const 0))
@@ -180,7 +180,6 @@
     (if (f64.lt (local.get $far) (global.get $worst)) (then
       (call $visit3 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far))))
     (f64.store (local.get $sideAt) (local.get $previous)))
-
   ;; run3(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
   (func $run3 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
     (local.set $j (i32.const 0))
@@ -213,7 +212,8 @@
       (br $climb))))
 
   ;; nearestOthers3(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
-  ;; original order (order[pos]); distances are square roots of the squared sums; indices (0: none) original indices.
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
   (func (export "nearestOthers3") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
     (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
     (local.set $a (i32.const 0))
@@ -283,7 +283,6 @@
     (if (f64.lt (local.get $far) (global.get $worst)) (then
       (call $visit4 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far))))
     (f64.store (local.get $sideAt) (local.get $previous)))
-
   ;; run4(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
   (func $run4 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
     (local.set $j (i32.const 0))
@@ -316,7 +315,8 @@
       (br $climb))))
 
   ;; nearestOthers4(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
-  ;; original order (order[pos]); distances are square roots of the squared sums; indices (0: none) original indices.
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
   (func (export "nearestOthers4") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
     (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
     (local.set $a (i32.const 0))
@@ -387,7 +387,6 @@
     (if (f64.lt (local.get $far) (global.get $worst)) (then
       (call $visit5 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far))))
     (f64.store (local.get $sideAt) (local.get $previous)))
-
   ;; run5(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
   (func $run5 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
     (local.set $j (i32.const 0))
@@ -420,7 +419,8 @@
       (br $climb))))
 
   ;; nearestOthers5(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
-  ;; original order (order[pos]); distances are square roots of the squared sums; indices (0: none) original indices.
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
   (func (export "nearestOthers5") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
     (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
     (local.set $a (i32.const 0))
@@ -492,7 +492,6 @@
     (if (f64.lt (local.get $far) (global.get $worst)) (then
       (call $visit6 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far))))
     (f64.store (local.get $sideAt) (local.get $previous)))
-
   ;; run6(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
   (func $run6 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
     (local.set $j (i32.const 0))
@@ -525,7 +524,8 @@
       (br $climb))))
 
   ;; nearestOthers6(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
-  ;; original order (order[pos]); distances are square roots of the squared sums; indices (0: none) original indices.
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
   (func (export "nearestOthers6") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
     (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
     (local.set $a (i32.const 0))
@@ -598,7 +598,6 @@
     (if (f64.lt (local.get $far) (global.get $worst)) (then
       (call $visit7 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far))))
     (f64.store (local.get $sideAt) (local.get $previous)))
-
   ;; run7(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
   (func $run7 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
     (local.set $j (i32.const 0))
@@ -631,7 +630,8 @@
       (br $climb))))
 
   ;; nearestOthers7(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
-  ;; original order (order[pos]); distances are square roots of the squared sums; indices (0: none) original indices.
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
   (func (export "nearestOthers7") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
     (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
     (local.set $a (i32.const 0))
@@ -705,7 +705,6 @@
     (if (f64.lt (local.get $far) (global.get $worst)) (then
       (call $visit8 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far))))
     (f64.store (local.get $sideAt) (local.get $previous)))
-
   ;; run8(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
   (func $run8 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
     (local.set $j (i32.const 0))
@@ -738,7 +737,8 @@
       (br $climb))))
 
   ;; nearestOthers8(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
-  ;; original order (order[pos]); distances are square roots of the squared sums; indices (0: none) original indices.
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
   (func (export "nearestOthers8") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
     (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
     (local.set $a (i32.const 0))
@@ -839,7 +839,6 @@
     (if (f64.lt (local.get $far) (global.get $worst)) (then
       (call $visit (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far))))
     (f64.store (local.get $sideAt) (local.get $previous)))
-
   ;; run(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
   (func $run (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
     (local.set $j (i32.const 0))
@@ -872,7 +871,8 @@
       (br $climb))))
 
   ;; nearestOthers(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
-  ;; original order (order[pos]); distances are square roots of the squared sums; indices (0: none) original indices.
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
   (func (export "nearestOthers") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
     (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
     (local.set $a (i32.const 0))
@@ -897,6 +897,875 @@
         (block $written (loop $write
           (br_if $written (i32.ge_s (local.get $j) (global.get $k)))
           (f64.store (i32.add (local.get $out) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 3))) (f64.sqrt (f64.load (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3))))))
+          (if (local.get $indices) (then
+            (i32.store (i32.add (local.get $indices) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 2)))
+              (i32.load (i32.add (local.get $order) (i32.shl (i32.load (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2)))) (i32.const 2)))))))
+          (local.set $j (i32.add (local.get $j) (i32.const 1)))
+          (br $write)))
+        (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+        (br $points)))
+      (local.set $l (i32.add (local.get $l) (i32.const 1)))
+      (br $leavesLoop))))
+
+  ;; scanMax2(leaf): every point of the leaf but the query itself, inserted when nearer than the k-th.
+  (func $scanMax2 (param $node i32) (local $pos i32) (local $stop i32) (local $row i32) (local $distance f64) (local $t f64) (local $a i32) (local $q i32) (local $p i32) (local $q0 f64) (local $q1 f64)
+    (local.set $q0 (f64.load offset=0 (global.get $query))) (local.set $q1 (f64.load offset=8 (global.get $query)))
+    (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $row (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 16))))
+    (block $done (loop $points
+      (br_if $done (i32.ge_s (local.get $pos) (local.get $stop)))
+      (if (i32.ne (local.get $pos) (global.get $self)) (then
+          (local.set $distance (f64.const 0))
+          (block $stopped
+          (local.set $t (f64.abs (f64.sub (local.get $q0) (f64.load offset=0 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q1) (f64.load offset=8 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst)))))
+          (if (f64.lt (local.get $distance) (global.get $worst)) (then (call $insert (local.get $distance) (local.get $pos))))))
+      (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+      (local.set $row (i32.add (local.get $row) (i32.const 16)))
+      (br $points))))
+
+
+  ;; visitMax2(node, bound): a subtree whose cell is bound (< worst) away in the max norm; nearer child first.
+  (func $visitMax2 (param $node i32) (param $bound f64) (local $left i32) (local $right i32) (local $gap f64) (local $far f64)
+    (local.set $left (i32.load (i32.add (global.get $left) (i32.shl (local.get $node) (i32.const 2)))))
+    (if (i32.lt_s (local.get $left) (i32.const 0)) (then (call $scanMax2 (local.get $node)) (return)))
+    (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $node) (i32.const 2)))) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $node) (i32.const 3))))))
+    (local.set $right (i32.load (i32.add (global.get $right) (i32.shl (local.get $node) (i32.const 2)))))
+    (call $visitMax2 (select (local.get $left) (local.get $right) (f64.lt (local.get $gap) (f64.const 0))) (local.get $bound))
+    ;; The farther child's cell: the split plane's gap on this axis, or the bound already reached.
+    (local.set $far (f64.abs (local.get $gap)))
+    (if (i32.eqz (f64.gt (local.get $far) (local.get $bound))) (then (local.set $far (local.get $bound))))
+    (if (f64.lt (local.get $far) (global.get $worst)) (then
+      (call $visitMax2 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far)))))
+  ;; runMax2(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
+  (func $runMax2 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
+    (local.set $j (i32.const 0))
+    (block $filled (loop $fill
+      (br_if $filled (i32.ge_s (local.get $j) (global.get $k)))
+      (f64.store (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3))) (f64.const inf))
+      (i32.store (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2))) (i32.const -1))
+      (local.set $j (i32.add (local.get $j) (i32.const 1)))
+      (br $fill)))
+    (global.set $worst (f64.const inf))
+    (global.set $held (i32.const 0))
+    (call $scanMax2 (local.get $leaf))
+    (local.set $node (local.get $leaf))
+    (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+    (block $top (loop $climb
+      (br_if $top (i32.lt_s (local.get $up) (i32.const 0)))
+      (local.set $sibling
+        (if (result i32) (i32.eq (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))) (local.get $node))
+          (then (i32.load (i32.add (global.get $right) (i32.shl (local.get $up) (i32.const 2)))))
+          (else (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))))))
+      (local.set $axis (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $up) (i32.const 2)))))
+      (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (local.get $axis) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $up) (i32.const 3))))))
+      (local.set $bound (f64.abs (local.get $gap)))
+      (if (f64.lt (local.get $bound) (global.get $worst)) (then (call $visitMax2 (local.get $sibling) (local.get $bound))))
+      (local.set $node (local.get $up))
+      (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+      (br $climb))))
+
+  ;; nearestOthersMax2(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
+  (func (export "nearestOthersMax2") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
+    (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
+    (local.set $a (i32.const 0))
+    (block $cleared (loop $clear
+      (br_if $cleared (i32.ge_s (local.get $a) (global.get $dim)))
+      (f64.store (i32.add (global.get $side) (i32.shl (local.get $a) (i32.const 3))) (f64.const 0))
+      (local.set $a (i32.add (local.get $a) (i32.const 1)))
+      (br $clear)))
+    (local.set $l (i32.const 0))
+    (block $leavesDone (loop $leavesLoop
+      (br_if $leavesDone (i32.ge_s (local.get $l) (local.get $leafCount)))
+      (local.set $leaf (i32.load (i32.add (local.get $leaves) (i32.shl (local.get $l) (i32.const 2)))))
+      (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (block $pointsDone (loop $points
+        (br_if $pointsDone (i32.ge_s (local.get $pos) (local.get $stop)))
+        (global.set $query (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 16))))
+        (global.set $self (local.get $pos))
+        (call $runMax2 (local.get $leaf))
+        (local.set $row (i32.mul (i32.load (i32.add (local.get $order) (i32.shl (local.get $pos) (i32.const 2)))) (global.get $k)))
+        (local.set $j (i32.const 0))
+        (block $written (loop $write
+          (br_if $written (i32.ge_s (local.get $j) (global.get $k)))
+          (f64.store (i32.add (local.get $out) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 3))) (f64.load (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3)))))
+          (if (local.get $indices) (then
+            (i32.store (i32.add (local.get $indices) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 2)))
+              (i32.load (i32.add (local.get $order) (i32.shl (i32.load (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2)))) (i32.const 2)))))))
+          (local.set $j (i32.add (local.get $j) (i32.const 1)))
+          (br $write)))
+        (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+        (br $points)))
+      (local.set $l (i32.add (local.get $l) (i32.const 1)))
+      (br $leavesLoop))))
+
+  ;; scanMax3(leaf): every point of the leaf but the query itself, inserted when nearer than the k-th.
+  (func $scanMax3 (param $node i32) (local $pos i32) (local $stop i32) (local $row i32) (local $distance f64) (local $t f64) (local $a i32) (local $q i32) (local $p i32) (local $q0 f64) (local $q1 f64) (local $q2 f64)
+    (local.set $q0 (f64.load offset=0 (global.get $query))) (local.set $q1 (f64.load offset=8 (global.get $query))) (local.set $q2 (f64.load offset=16 (global.get $query)))
+    (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $row (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 24))))
+    (block $done (loop $points
+      (br_if $done (i32.ge_s (local.get $pos) (local.get $stop)))
+      (if (i32.ne (local.get $pos) (global.get $self)) (then
+          (local.set $distance (f64.const 0))
+          (block $stopped
+          (local.set $t (f64.abs (f64.sub (local.get $q0) (f64.load offset=0 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q1) (f64.load offset=8 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q2) (f64.load offset=16 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst)))))
+          (if (f64.lt (local.get $distance) (global.get $worst)) (then (call $insert (local.get $distance) (local.get $pos))))))
+      (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+      (local.set $row (i32.add (local.get $row) (i32.const 24)))
+      (br $points))))
+
+
+  ;; visitMax3(node, bound): a subtree whose cell is bound (< worst) away in the max norm; nearer child first.
+  (func $visitMax3 (param $node i32) (param $bound f64) (local $left i32) (local $right i32) (local $gap f64) (local $far f64)
+    (local.set $left (i32.load (i32.add (global.get $left) (i32.shl (local.get $node) (i32.const 2)))))
+    (if (i32.lt_s (local.get $left) (i32.const 0)) (then (call $scanMax3 (local.get $node)) (return)))
+    (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $node) (i32.const 2)))) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $node) (i32.const 3))))))
+    (local.set $right (i32.load (i32.add (global.get $right) (i32.shl (local.get $node) (i32.const 2)))))
+    (call $visitMax3 (select (local.get $left) (local.get $right) (f64.lt (local.get $gap) (f64.const 0))) (local.get $bound))
+    ;; The farther child's cell: the split plane's gap on this axis, or the bound already reached.
+    (local.set $far (f64.abs (local.get $gap)))
+    (if (i32.eqz (f64.gt (local.get $far) (local.get $bound))) (then (local.set $far (local.get $bound))))
+    (if (f64.lt (local.get $far) (global.get $worst)) (then
+      (call $visitMax3 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far)))))
+  ;; runMax3(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
+  (func $runMax3 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
+    (local.set $j (i32.const 0))
+    (block $filled (loop $fill
+      (br_if $filled (i32.ge_s (local.get $j) (global.get $k)))
+      (f64.store (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3))) (f64.const inf))
+      (i32.store (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2))) (i32.const -1))
+      (local.set $j (i32.add (local.get $j) (i32.const 1)))
+      (br $fill)))
+    (global.set $worst (f64.const inf))
+    (global.set $held (i32.const 0))
+    (call $scanMax3 (local.get $leaf))
+    (local.set $node (local.get $leaf))
+    (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+    (block $top (loop $climb
+      (br_if $top (i32.lt_s (local.get $up) (i32.const 0)))
+      (local.set $sibling
+        (if (result i32) (i32.eq (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))) (local.get $node))
+          (then (i32.load (i32.add (global.get $right) (i32.shl (local.get $up) (i32.const 2)))))
+          (else (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))))))
+      (local.set $axis (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $up) (i32.const 2)))))
+      (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (local.get $axis) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $up) (i32.const 3))))))
+      (local.set $bound (f64.abs (local.get $gap)))
+      (if (f64.lt (local.get $bound) (global.get $worst)) (then (call $visitMax3 (local.get $sibling) (local.get $bound))))
+      (local.set $node (local.get $up))
+      (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+      (br $climb))))
+
+  ;; nearestOthersMax3(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
+  (func (export "nearestOthersMax3") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
+    (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
+    (local.set $a (i32.const 0))
+    (block $cleared (loop $clear
+      (br_if $cleared (i32.ge_s (local.get $a) (global.get $dim)))
+      (f64.store (i32.add (global.get $side) (i32.shl (local.get $a) (i32.const 3))) (f64.const 0))
+      (local.set $a (i32.add (local.get $a) (i32.const 1)))
+      (br $clear)))
+    (local.set $l (i32.const 0))
+    (block $leavesDone (loop $leavesLoop
+      (br_if $leavesDone (i32.ge_s (local.get $l) (local.get $leafCount)))
+      (local.set $leaf (i32.load (i32.add (local.get $leaves) (i32.shl (local.get $l) (i32.const 2)))))
+      (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (block $pointsDone (loop $points
+        (br_if $pointsDone (i32.ge_s (local.get $pos) (local.get $stop)))
+        (global.set $query (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 24))))
+        (global.set $self (local.get $pos))
+        (call $runMax3 (local.get $leaf))
+        (local.set $row (i32.mul (i32.load (i32.add (local.get $order) (i32.shl (local.get $pos) (i32.const 2)))) (global.get $k)))
+        (local.set $j (i32.const 0))
+        (block $written (loop $write
+          (br_if $written (i32.ge_s (local.get $j) (global.get $k)))
+          (f64.store (i32.add (local.get $out) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 3))) (f64.load (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3)))))
+          (if (local.get $indices) (then
+            (i32.store (i32.add (local.get $indices) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 2)))
+              (i32.load (i32.add (local.get $order) (i32.shl (i32.load (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2)))) (i32.const 2)))))))
+          (local.set $j (i32.add (local.get $j) (i32.const 1)))
+          (br $write)))
+        (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+        (br $points)))
+      (local.set $l (i32.add (local.get $l) (i32.const 1)))
+      (br $leavesLoop))))
+
+  ;; scanMax4(leaf): every point of the leaf but the query itself, inserted when nearer than the k-th.
+  (func $scanMax4 (param $node i32) (local $pos i32) (local $stop i32) (local $row i32) (local $distance f64) (local $t f64) (local $a i32) (local $q i32) (local $p i32) (local $q0 f64) (local $q1 f64) (local $q2 f64) (local $q3 f64)
+    (local.set $q0 (f64.load offset=0 (global.get $query))) (local.set $q1 (f64.load offset=8 (global.get $query))) (local.set $q2 (f64.load offset=16 (global.get $query))) (local.set $q3 (f64.load offset=24 (global.get $query)))
+    (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $row (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 32))))
+    (block $done (loop $points
+      (br_if $done (i32.ge_s (local.get $pos) (local.get $stop)))
+      (if (i32.ne (local.get $pos) (global.get $self)) (then
+          (local.set $distance (f64.const 0))
+          (block $stopped
+          (local.set $t (f64.abs (f64.sub (local.get $q0) (f64.load offset=0 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q1) (f64.load offset=8 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q2) (f64.load offset=16 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q3) (f64.load offset=24 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst)))))
+          (if (f64.lt (local.get $distance) (global.get $worst)) (then (call $insert (local.get $distance) (local.get $pos))))))
+      (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+      (local.set $row (i32.add (local.get $row) (i32.const 32)))
+      (br $points))))
+
+
+  ;; visitMax4(node, bound): a subtree whose cell is bound (< worst) away in the max norm; nearer child first.
+  (func $visitMax4 (param $node i32) (param $bound f64) (local $left i32) (local $right i32) (local $gap f64) (local $far f64)
+    (local.set $left (i32.load (i32.add (global.get $left) (i32.shl (local.get $node) (i32.const 2)))))
+    (if (i32.lt_s (local.get $left) (i32.const 0)) (then (call $scanMax4 (local.get $node)) (return)))
+    (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $node) (i32.const 2)))) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $node) (i32.const 3))))))
+    (local.set $right (i32.load (i32.add (global.get $right) (i32.shl (local.get $node) (i32.const 2)))))
+    (call $visitMax4 (select (local.get $left) (local.get $right) (f64.lt (local.get $gap) (f64.const 0))) (local.get $bound))
+    ;; The farther child's cell: the split plane's gap on this axis, or the bound already reached.
+    (local.set $far (f64.abs (local.get $gap)))
+    (if (i32.eqz (f64.gt (local.get $far) (local.get $bound))) (then (local.set $far (local.get $bound))))
+    (if (f64.lt (local.get $far) (global.get $worst)) (then
+      (call $visitMax4 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far)))))
+  ;; runMax4(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
+  (func $runMax4 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
+    (local.set $j (i32.const 0))
+    (block $filled (loop $fill
+      (br_if $filled (i32.ge_s (local.get $j) (global.get $k)))
+      (f64.store (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3))) (f64.const inf))
+      (i32.store (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2))) (i32.const -1))
+      (local.set $j (i32.add (local.get $j) (i32.const 1)))
+      (br $fill)))
+    (global.set $worst (f64.const inf))
+    (global.set $held (i32.const 0))
+    (call $scanMax4 (local.get $leaf))
+    (local.set $node (local.get $leaf))
+    (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+    (block $top (loop $climb
+      (br_if $top (i32.lt_s (local.get $up) (i32.const 0)))
+      (local.set $sibling
+        (if (result i32) (i32.eq (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))) (local.get $node))
+          (then (i32.load (i32.add (global.get $right) (i32.shl (local.get $up) (i32.const 2)))))
+          (else (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))))))
+      (local.set $axis (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $up) (i32.const 2)))))
+      (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (local.get $axis) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $up) (i32.const 3))))))
+      (local.set $bound (f64.abs (local.get $gap)))
+      (if (f64.lt (local.get $bound) (global.get $worst)) (then (call $visitMax4 (local.get $sibling) (local.get $bound))))
+      (local.set $node (local.get $up))
+      (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+      (br $climb))))
+
+  ;; nearestOthersMax4(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
+  (func (export "nearestOthersMax4") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
+    (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
+    (local.set $a (i32.const 0))
+    (block $cleared (loop $clear
+      (br_if $cleared (i32.ge_s (local.get $a) (global.get $dim)))
+      (f64.store (i32.add (global.get $side) (i32.shl (local.get $a) (i32.const 3))) (f64.const 0))
+      (local.set $a (i32.add (local.get $a) (i32.const 1)))
+      (br $clear)))
+    (local.set $l (i32.const 0))
+    (block $leavesDone (loop $leavesLoop
+      (br_if $leavesDone (i32.ge_s (local.get $l) (local.get $leafCount)))
+      (local.set $leaf (i32.load (i32.add (local.get $leaves) (i32.shl (local.get $l) (i32.const 2)))))
+      (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (block $pointsDone (loop $points
+        (br_if $pointsDone (i32.ge_s (local.get $pos) (local.get $stop)))
+        (global.set $query (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 32))))
+        (global.set $self (local.get $pos))
+        (call $runMax4 (local.get $leaf))
+        (local.set $row (i32.mul (i32.load (i32.add (local.get $order) (i32.shl (local.get $pos) (i32.const 2)))) (global.get $k)))
+        (local.set $j (i32.const 0))
+        (block $written (loop $write
+          (br_if $written (i32.ge_s (local.get $j) (global.get $k)))
+          (f64.store (i32.add (local.get $out) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 3))) (f64.load (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3)))))
+          (if (local.get $indices) (then
+            (i32.store (i32.add (local.get $indices) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 2)))
+              (i32.load (i32.add (local.get $order) (i32.shl (i32.load (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2)))) (i32.const 2)))))))
+          (local.set $j (i32.add (local.get $j) (i32.const 1)))
+          (br $write)))
+        (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+        (br $points)))
+      (local.set $l (i32.add (local.get $l) (i32.const 1)))
+      (br $leavesLoop))))
+
+  ;; scanMax5(leaf): every point of the leaf but the query itself, inserted when nearer than the k-th.
+  (func $scanMax5 (param $node i32) (local $pos i32) (local $stop i32) (local $row i32) (local $distance f64) (local $t f64) (local $a i32) (local $q i32) (local $p i32) (local $q0 f64) (local $q1 f64) (local $q2 f64) (local $q3 f64) (local $q4 f64)
+    (local.set $q0 (f64.load offset=0 (global.get $query))) (local.set $q1 (f64.load offset=8 (global.get $query))) (local.set $q2 (f64.load offset=16 (global.get $query))) (local.set $q3 (f64.load offset=24 (global.get $query))) (local.set $q4 (f64.load offset=32 (global.get $query)))
+    (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $row (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 40))))
+    (block $done (loop $points
+      (br_if $done (i32.ge_s (local.get $pos) (local.get $stop)))
+      (if (i32.ne (local.get $pos) (global.get $self)) (then
+          (local.set $distance (f64.const 0))
+          (block $stopped
+          (local.set $t (f64.abs (f64.sub (local.get $q0) (f64.load offset=0 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q1) (f64.load offset=8 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q2) (f64.load offset=16 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q3) (f64.load offset=24 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q4) (f64.load offset=32 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst)))))
+          (if (f64.lt (local.get $distance) (global.get $worst)) (then (call $insert (local.get $distance) (local.get $pos))))))
+      (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+      (local.set $row (i32.add (local.get $row) (i32.const 40)))
+      (br $points))))
+
+
+  ;; visitMax5(node, bound): a subtree whose cell is bound (< worst) away in the max norm; nearer child first.
+  (func $visitMax5 (param $node i32) (param $bound f64) (local $left i32) (local $right i32) (local $gap f64) (local $far f64)
+    (local.set $left (i32.load (i32.add (global.get $left) (i32.shl (local.get $node) (i32.const 2)))))
+    (if (i32.lt_s (local.get $left) (i32.const 0)) (then (call $scanMax5 (local.get $node)) (return)))
+    (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $node) (i32.const 2)))) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $node) (i32.const 3))))))
+    (local.set $right (i32.load (i32.add (global.get $right) (i32.shl (local.get $node) (i32.const 2)))))
+    (call $visitMax5 (select (local.get $left) (local.get $right) (f64.lt (local.get $gap) (f64.const 0))) (local.get $bound))
+    ;; The farther child's cell: the split plane's gap on this axis, or the bound already reached.
+    (local.set $far (f64.abs (local.get $gap)))
+    (if (i32.eqz (f64.gt (local.get $far) (local.get $bound))) (then (local.set $far (local.get $bound))))
+    (if (f64.lt (local.get $far) (global.get $worst)) (then
+      (call $visitMax5 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far)))))
+  ;; runMax5(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
+  (func $runMax5 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
+    (local.set $j (i32.const 0))
+    (block $filled (loop $fill
+      (br_if $filled (i32.ge_s (local.get $j) (global.get $k)))
+      (f64.store (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3))) (f64.const inf))
+      (i32.store (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2))) (i32.const -1))
+      (local.set $j (i32.add (local.get $j) (i32.const 1)))
+      (br $fill)))
+    (global.set $worst (f64.const inf))
+    (global.set $held (i32.const 0))
+    (call $scanMax5 (local.get $leaf))
+    (local.set $node (local.get $leaf))
+    (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+    (block $top (loop $climb
+      (br_if $top (i32.lt_s (local.get $up) (i32.const 0)))
+      (local.set $sibling
+        (if (result i32) (i32.eq (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))) (local.get $node))
+          (then (i32.load (i32.add (global.get $right) (i32.shl (local.get $up) (i32.const 2)))))
+          (else (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))))))
+      (local.set $axis (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $up) (i32.const 2)))))
+      (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (local.get $axis) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $up) (i32.const 3))))))
+      (local.set $bound (f64.abs (local.get $gap)))
+      (if (f64.lt (local.get $bound) (global.get $worst)) (then (call $visitMax5 (local.get $sibling) (local.get $bound))))
+      (local.set $node (local.get $up))
+      (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+      (br $climb))))
+
+  ;; nearestOthersMax5(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
+  (func (export "nearestOthersMax5") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
+    (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
+    (local.set $a (i32.const 0))
+    (block $cleared (loop $clear
+      (br_if $cleared (i32.ge_s (local.get $a) (global.get $dim)))
+      (f64.store (i32.add (global.get $side) (i32.shl (local.get $a) (i32.const 3))) (f64.const 0))
+      (local.set $a (i32.add (local.get $a) (i32.const 1)))
+      (br $clear)))
+    (local.set $l (i32.const 0))
+    (block $leavesDone (loop $leavesLoop
+      (br_if $leavesDone (i32.ge_s (local.get $l) (local.get $leafCount)))
+      (local.set $leaf (i32.load (i32.add (local.get $leaves) (i32.shl (local.get $l) (i32.const 2)))))
+      (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (block $pointsDone (loop $points
+        (br_if $pointsDone (i32.ge_s (local.get $pos) (local.get $stop)))
+        (global.set $query (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 40))))
+        (global.set $self (local.get $pos))
+        (call $runMax5 (local.get $leaf))
+        (local.set $row (i32.mul (i32.load (i32.add (local.get $order) (i32.shl (local.get $pos) (i32.const 2)))) (global.get $k)))
+        (local.set $j (i32.const 0))
+        (block $written (loop $write
+          (br_if $written (i32.ge_s (local.get $j) (global.get $k)))
+          (f64.store (i32.add (local.get $out) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 3))) (f64.load (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3)))))
+          (if (local.get $indices) (then
+            (i32.store (i32.add (local.get $indices) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 2)))
+              (i32.load (i32.add (local.get $order) (i32.shl (i32.load (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2)))) (i32.const 2)))))))
+          (local.set $j (i32.add (local.get $j) (i32.const 1)))
+          (br $write)))
+        (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+        (br $points)))
+      (local.set $l (i32.add (local.get $l) (i32.const 1)))
+      (br $leavesLoop))))
+
+  ;; scanMax6(leaf): every point of the leaf but the query itself, inserted when nearer than the k-th.
+  (func $scanMax6 (param $node i32) (local $pos i32) (local $stop i32) (local $row i32) (local $distance f64) (local $t f64) (local $a i32) (local $q i32) (local $p i32) (local $q0 f64) (local $q1 f64) (local $q2 f64) (local $q3 f64) (local $q4 f64) (local $q5 f64)
+    (local.set $q0 (f64.load offset=0 (global.get $query))) (local.set $q1 (f64.load offset=8 (global.get $query))) (local.set $q2 (f64.load offset=16 (global.get $query))) (local.set $q3 (f64.load offset=24 (global.get $query))) (local.set $q4 (f64.load offset=32 (global.get $query))) (local.set $q5 (f64.load offset=40 (global.get $query)))
+    (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $row (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 48))))
+    (block $done (loop $points
+      (br_if $done (i32.ge_s (local.get $pos) (local.get $stop)))
+      (if (i32.ne (local.get $pos) (global.get $self)) (then
+          (local.set $distance (f64.const 0))
+          (block $stopped
+          (local.set $t (f64.abs (f64.sub (local.get $q0) (f64.load offset=0 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q1) (f64.load offset=8 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q2) (f64.load offset=16 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q3) (f64.load offset=24 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q4) (f64.load offset=32 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q5) (f64.load offset=40 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst)))))
+          (if (f64.lt (local.get $distance) (global.get $worst)) (then (call $insert (local.get $distance) (local.get $pos))))))
+      (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+      (local.set $row (i32.add (local.get $row) (i32.const 48)))
+      (br $points))))
+
+
+  ;; visitMax6(node, bound): a subtree whose cell is bound (< worst) away in the max norm; nearer child first.
+  (func $visitMax6 (param $node i32) (param $bound f64) (local $left i32) (local $right i32) (local $gap f64) (local $far f64)
+    (local.set $left (i32.load (i32.add (global.get $left) (i32.shl (local.get $node) (i32.const 2)))))
+    (if (i32.lt_s (local.get $left) (i32.const 0)) (then (call $scanMax6 (local.get $node)) (return)))
+    (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $node) (i32.const 2)))) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $node) (i32.const 3))))))
+    (local.set $right (i32.load (i32.add (global.get $right) (i32.shl (local.get $node) (i32.const 2)))))
+    (call $visitMax6 (select (local.get $left) (local.get $right) (f64.lt (local.get $gap) (f64.const 0))) (local.get $bound))
+    ;; The farther child's cell: the split plane's gap on this axis, or the bound already reached.
+    (local.set $far (f64.abs (local.get $gap)))
+    (if (i32.eqz (f64.gt (local.get $far) (local.get $bound))) (then (local.set $far (local.get $bound))))
+    (if (f64.lt (local.get $far) (global.get $worst)) (then
+      (call $visitMax6 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far)))))
+  ;; runMax6(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
+  (func $runMax6 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
+    (local.set $j (i32.const 0))
+    (block $filled (loop $fill
+      (br_if $filled (i32.ge_s (local.get $j) (global.get $k)))
+      (f64.store (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3))) (f64.const inf))
+      (i32.store (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2))) (i32.const -1))
+      (local.set $j (i32.add (local.get $j) (i32.const 1)))
+      (br $fill)))
+    (global.set $worst (f64.const inf))
+    (global.set $held (i32.const 0))
+    (call $scanMax6 (local.get $leaf))
+    (local.set $node (local.get $leaf))
+    (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+    (block $top (loop $climb
+      (br_if $top (i32.lt_s (local.get $up) (i32.const 0)))
+      (local.set $sibling
+        (if (result i32) (i32.eq (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))) (local.get $node))
+          (then (i32.load (i32.add (global.get $right) (i32.shl (local.get $up) (i32.const 2)))))
+          (else (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))))))
+      (local.set $axis (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $up) (i32.const 2)))))
+      (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (local.get $axis) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $up) (i32.const 3))))))
+      (local.set $bound (f64.abs (local.get $gap)))
+      (if (f64.lt (local.get $bound) (global.get $worst)) (then (call $visitMax6 (local.get $sibling) (local.get $bound))))
+      (local.set $node (local.get $up))
+      (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+      (br $climb))))
+
+  ;; nearestOthersMax6(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
+  (func (export "nearestOthersMax6") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
+    (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
+    (local.set $a (i32.const 0))
+    (block $cleared (loop $clear
+      (br_if $cleared (i32.ge_s (local.get $a) (global.get $dim)))
+      (f64.store (i32.add (global.get $side) (i32.shl (local.get $a) (i32.const 3))) (f64.const 0))
+      (local.set $a (i32.add (local.get $a) (i32.const 1)))
+      (br $clear)))
+    (local.set $l (i32.const 0))
+    (block $leavesDone (loop $leavesLoop
+      (br_if $leavesDone (i32.ge_s (local.get $l) (local.get $leafCount)))
+      (local.set $leaf (i32.load (i32.add (local.get $leaves) (i32.shl (local.get $l) (i32.const 2)))))
+      (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (block $pointsDone (loop $points
+        (br_if $pointsDone (i32.ge_s (local.get $pos) (local.get $stop)))
+        (global.set $query (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 48))))
+        (global.set $self (local.get $pos))
+        (call $runMax6 (local.get $leaf))
+        (local.set $row (i32.mul (i32.load (i32.add (local.get $order) (i32.shl (local.get $pos) (i32.const 2)))) (global.get $k)))
+        (local.set $j (i32.const 0))
+        (block $written (loop $write
+          (br_if $written (i32.ge_s (local.get $j) (global.get $k)))
+          (f64.store (i32.add (local.get $out) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 3))) (f64.load (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3)))))
+          (if (local.get $indices) (then
+            (i32.store (i32.add (local.get $indices) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 2)))
+              (i32.load (i32.add (local.get $order) (i32.shl (i32.load (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2)))) (i32.const 2)))))))
+          (local.set $j (i32.add (local.get $j) (i32.const 1)))
+          (br $write)))
+        (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+        (br $points)))
+      (local.set $l (i32.add (local.get $l) (i32.const 1)))
+      (br $leavesLoop))))
+
+  ;; scanMax7(leaf): every point of the leaf but the query itself, inserted when nearer than the k-th.
+  (func $scanMax7 (param $node i32) (local $pos i32) (local $stop i32) (local $row i32) (local $distance f64) (local $t f64) (local $a i32) (local $q i32) (local $p i32) (local $q0 f64) (local $q1 f64) (local $q2 f64) (local $q3 f64) (local $q4 f64) (local $q5 f64) (local $q6 f64)
+    (local.set $q0 (f64.load offset=0 (global.get $query))) (local.set $q1 (f64.load offset=8 (global.get $query))) (local.set $q2 (f64.load offset=16 (global.get $query))) (local.set $q3 (f64.load offset=24 (global.get $query))) (local.set $q4 (f64.load offset=32 (global.get $query))) (local.set $q5 (f64.load offset=40 (global.get $query))) (local.set $q6 (f64.load offset=48 (global.get $query)))
+    (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $row (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 56))))
+    (block $done (loop $points
+      (br_if $done (i32.ge_s (local.get $pos) (local.get $stop)))
+      (if (i32.ne (local.get $pos) (global.get $self)) (then
+          (local.set $distance (f64.const 0))
+          (block $stopped
+          (local.set $t (f64.abs (f64.sub (local.get $q0) (f64.load offset=0 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q1) (f64.load offset=8 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q2) (f64.load offset=16 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q3) (f64.load offset=24 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q4) (f64.load offset=32 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q5) (f64.load offset=40 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q6) (f64.load offset=48 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst)))))
+          (if (f64.lt (local.get $distance) (global.get $worst)) (then (call $insert (local.get $distance) (local.get $pos))))))
+      (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+      (local.set $row (i32.add (local.get $row) (i32.const 56)))
+      (br $points))))
+
+
+  ;; visitMax7(node, bound): a subtree whose cell is bound (< worst) away in the max norm; nearer child first.
+  (func $visitMax7 (param $node i32) (param $bound f64) (local $left i32) (local $right i32) (local $gap f64) (local $far f64)
+    (local.set $left (i32.load (i32.add (global.get $left) (i32.shl (local.get $node) (i32.const 2)))))
+    (if (i32.lt_s (local.get $left) (i32.const 0)) (then (call $scanMax7 (local.get $node)) (return)))
+    (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $node) (i32.const 2)))) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $node) (i32.const 3))))))
+    (local.set $right (i32.load (i32.add (global.get $right) (i32.shl (local.get $node) (i32.const 2)))))
+    (call $visitMax7 (select (local.get $left) (local.get $right) (f64.lt (local.get $gap) (f64.const 0))) (local.get $bound))
+    ;; The farther child's cell: the split plane's gap on this axis, or the bound already reached.
+    (local.set $far (f64.abs (local.get $gap)))
+    (if (i32.eqz (f64.gt (local.get $far) (local.get $bound))) (then (local.set $far (local.get $bound))))
+    (if (f64.lt (local.get $far) (global.get $worst)) (then
+      (call $visitMax7 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far)))))
+  ;; runMax7(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
+  (func $runMax7 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
+    (local.set $j (i32.const 0))
+    (block $filled (loop $fill
+      (br_if $filled (i32.ge_s (local.get $j) (global.get $k)))
+      (f64.store (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3))) (f64.const inf))
+      (i32.store (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2))) (i32.const -1))
+      (local.set $j (i32.add (local.get $j) (i32.const 1)))
+      (br $fill)))
+    (global.set $worst (f64.const inf))
+    (global.set $held (i32.const 0))
+    (call $scanMax7 (local.get $leaf))
+    (local.set $node (local.get $leaf))
+    (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+    (block $top (loop $climb
+      (br_if $top (i32.lt_s (local.get $up) (i32.const 0)))
+      (local.set $sibling
+        (if (result i32) (i32.eq (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))) (local.get $node))
+          (then (i32.load (i32.add (global.get $right) (i32.shl (local.get $up) (i32.const 2)))))
+          (else (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))))))
+      (local.set $axis (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $up) (i32.const 2)))))
+      (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (local.get $axis) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $up) (i32.const 3))))))
+      (local.set $bound (f64.abs (local.get $gap)))
+      (if (f64.lt (local.get $bound) (global.get $worst)) (then (call $visitMax7 (local.get $sibling) (local.get $bound))))
+      (local.set $node (local.get $up))
+      (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+      (br $climb))))
+
+  ;; nearestOthersMax7(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
+  (func (export "nearestOthersMax7") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
+    (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
+    (local.set $a (i32.const 0))
+    (block $cleared (loop $clear
+      (br_if $cleared (i32.ge_s (local.get $a) (global.get $dim)))
+      (f64.store (i32.add (global.get $side) (i32.shl (local.get $a) (i32.const 3))) (f64.const 0))
+      (local.set $a (i32.add (local.get $a) (i32.const 1)))
+      (br $clear)))
+    (local.set $l (i32.const 0))
+    (block $leavesDone (loop $leavesLoop
+      (br_if $leavesDone (i32.ge_s (local.get $l) (local.get $leafCount)))
+      (local.set $leaf (i32.load (i32.add (local.get $leaves) (i32.shl (local.get $l) (i32.const 2)))))
+      (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (block $pointsDone (loop $points
+        (br_if $pointsDone (i32.ge_s (local.get $pos) (local.get $stop)))
+        (global.set $query (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 56))))
+        (global.set $self (local.get $pos))
+        (call $runMax7 (local.get $leaf))
+        (local.set $row (i32.mul (i32.load (i32.add (local.get $order) (i32.shl (local.get $pos) (i32.const 2)))) (global.get $k)))
+        (local.set $j (i32.const 0))
+        (block $written (loop $write
+          (br_if $written (i32.ge_s (local.get $j) (global.get $k)))
+          (f64.store (i32.add (local.get $out) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 3))) (f64.load (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3)))))
+          (if (local.get $indices) (then
+            (i32.store (i32.add (local.get $indices) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 2)))
+              (i32.load (i32.add (local.get $order) (i32.shl (i32.load (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2)))) (i32.const 2)))))))
+          (local.set $j (i32.add (local.get $j) (i32.const 1)))
+          (br $write)))
+        (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+        (br $points)))
+      (local.set $l (i32.add (local.get $l) (i32.const 1)))
+      (br $leavesLoop))))
+
+  ;; scanMax8(leaf): every point of the leaf but the query itself, inserted when nearer than the k-th.
+  (func $scanMax8 (param $node i32) (local $pos i32) (local $stop i32) (local $row i32) (local $distance f64) (local $t f64) (local $a i32) (local $q i32) (local $p i32) (local $q0 f64) (local $q1 f64) (local $q2 f64) (local $q3 f64) (local $q4 f64) (local $q5 f64) (local $q6 f64) (local $q7 f64)
+    (local.set $q0 (f64.load offset=0 (global.get $query))) (local.set $q1 (f64.load offset=8 (global.get $query))) (local.set $q2 (f64.load offset=16 (global.get $query))) (local.set $q3 (f64.load offset=24 (global.get $query))) (local.set $q4 (f64.load offset=32 (global.get $query))) (local.set $q5 (f64.load offset=40 (global.get $query))) (local.set $q6 (f64.load offset=48 (global.get $query))) (local.set $q7 (f64.load offset=56 (global.get $query)))
+    (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $row (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 64))))
+    (block $done (loop $points
+      (br_if $done (i32.ge_s (local.get $pos) (local.get $stop)))
+      (if (i32.ne (local.get $pos) (global.get $self)) (then
+          (local.set $distance (f64.const 0))
+          (block $stopped
+          (local.set $t (f64.abs (f64.sub (local.get $q0) (f64.load offset=0 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q1) (f64.load offset=8 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q2) (f64.load offset=16 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q3) (f64.load offset=24 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q4) (f64.load offset=32 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q5) (f64.load offset=40 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q6) (f64.load offset=48 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (local.get $q7) (f64.load offset=56 (local.get $row)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (br_if $stopped (i32.eqz (f64.lt (local.get $distance) (global.get $worst)))))
+          (if (f64.lt (local.get $distance) (global.get $worst)) (then (call $insert (local.get $distance) (local.get $pos))))))
+      (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+      (local.set $row (i32.add (local.get $row) (i32.const 64)))
+      (br $points))))
+
+
+  ;; visitMax8(node, bound): a subtree whose cell is bound (< worst) away in the max norm; nearer child first.
+  (func $visitMax8 (param $node i32) (param $bound f64) (local $left i32) (local $right i32) (local $gap f64) (local $far f64)
+    (local.set $left (i32.load (i32.add (global.get $left) (i32.shl (local.get $node) (i32.const 2)))))
+    (if (i32.lt_s (local.get $left) (i32.const 0)) (then (call $scanMax8 (local.get $node)) (return)))
+    (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $node) (i32.const 2)))) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $node) (i32.const 3))))))
+    (local.set $right (i32.load (i32.add (global.get $right) (i32.shl (local.get $node) (i32.const 2)))))
+    (call $visitMax8 (select (local.get $left) (local.get $right) (f64.lt (local.get $gap) (f64.const 0))) (local.get $bound))
+    ;; The farther child's cell: the split plane's gap on this axis, or the bound already reached.
+    (local.set $far (f64.abs (local.get $gap)))
+    (if (i32.eqz (f64.gt (local.get $far) (local.get $bound))) (then (local.set $far (local.get $bound))))
+    (if (f64.lt (local.get $far) (global.get $worst)) (then
+      (call $visitMax8 (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far)))))
+  ;; runMax8(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
+  (func $runMax8 (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
+    (local.set $j (i32.const 0))
+    (block $filled (loop $fill
+      (br_if $filled (i32.ge_s (local.get $j) (global.get $k)))
+      (f64.store (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3))) (f64.const inf))
+      (i32.store (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2))) (i32.const -1))
+      (local.set $j (i32.add (local.get $j) (i32.const 1)))
+      (br $fill)))
+    (global.set $worst (f64.const inf))
+    (global.set $held (i32.const 0))
+    (call $scanMax8 (local.get $leaf))
+    (local.set $node (local.get $leaf))
+    (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+    (block $top (loop $climb
+      (br_if $top (i32.lt_s (local.get $up) (i32.const 0)))
+      (local.set $sibling
+        (if (result i32) (i32.eq (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))) (local.get $node))
+          (then (i32.load (i32.add (global.get $right) (i32.shl (local.get $up) (i32.const 2)))))
+          (else (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))))))
+      (local.set $axis (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $up) (i32.const 2)))))
+      (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (local.get $axis) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $up) (i32.const 3))))))
+      (local.set $bound (f64.abs (local.get $gap)))
+      (if (f64.lt (local.get $bound) (global.get $worst)) (then (call $visitMax8 (local.get $sibling) (local.get $bound))))
+      (local.set $node (local.get $up))
+      (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+      (br $climb))))
+
+  ;; nearestOthersMax8(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
+  (func (export "nearestOthersMax8") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
+    (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
+    (local.set $a (i32.const 0))
+    (block $cleared (loop $clear
+      (br_if $cleared (i32.ge_s (local.get $a) (global.get $dim)))
+      (f64.store (i32.add (global.get $side) (i32.shl (local.get $a) (i32.const 3))) (f64.const 0))
+      (local.set $a (i32.add (local.get $a) (i32.const 1)))
+      (br $clear)))
+    (local.set $l (i32.const 0))
+    (block $leavesDone (loop $leavesLoop
+      (br_if $leavesDone (i32.ge_s (local.get $l) (local.get $leafCount)))
+      (local.set $leaf (i32.load (i32.add (local.get $leaves) (i32.shl (local.get $l) (i32.const 2)))))
+      (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (block $pointsDone (loop $points
+        (br_if $pointsDone (i32.ge_s (local.get $pos) (local.get $stop)))
+        (global.set $query (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.const 64))))
+        (global.set $self (local.get $pos))
+        (call $runMax8 (local.get $leaf))
+        (local.set $row (i32.mul (i32.load (i32.add (local.get $order) (i32.shl (local.get $pos) (i32.const 2)))) (global.get $k)))
+        (local.set $j (i32.const 0))
+        (block $written (loop $write
+          (br_if $written (i32.ge_s (local.get $j) (global.get $k)))
+          (f64.store (i32.add (local.get $out) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 3))) (f64.load (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3)))))
+          (if (local.get $indices) (then
+            (i32.store (i32.add (local.get $indices) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 2)))
+              (i32.load (i32.add (local.get $order) (i32.shl (i32.load (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2)))) (i32.const 2)))))))
+          (local.set $j (i32.add (local.get $j) (i32.const 1)))
+          (br $write)))
+        (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+        (br $points)))
+      (local.set $l (i32.add (local.get $l) (i32.const 1)))
+      (br $leavesLoop))))
+
+  ;; scanMax(leaf): every point of the leaf but the query itself, inserted when nearer than the k-th.
+  (func $scanMax (param $node i32) (local $pos i32) (local $stop i32) (local $row i32) (local $distance f64) (local $t f64) (local $a i32) (local $q i32) (local $p i32) 
+    
+    (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $node) (i32.const 2)))))
+    (local.set $row (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.shl (global.get $dim) (i32.const 3)))))
+    (block $done (loop $points
+      (br_if $done (i32.ge_s (local.get $pos) (local.get $stop)))
+      (if (i32.ne (local.get $pos) (global.get $self)) (then
+          (local.set $distance (f64.const 0))
+          
+          (local.set $a (i32.const 0))
+          (local.set $q (global.get $query))
+          (local.set $p (local.get $row))
+          (block $summed (loop $axes
+            (br_if $summed (i32.ge_s (local.get $a) (global.get $dim)))
+            (br_if $summed (i32.eqz (f64.lt (local.get $distance) (global.get $worst))))
+            (local.set $t (f64.abs (f64.sub (f64.load (local.get $q)) (f64.load (local.get $p)))))
+            (if (f64.gt (local.get $t) (local.get $distance)) (then (local.set $distance (local.get $t))))
+            (local.set $a (i32.add (local.get $a) (i32.const 1)))
+            (local.set $q (i32.add (local.get $q) (i32.const 8)))
+            (local.set $p (i32.add (local.get $p) (i32.const 8)))
+            (br $axes)))
+          (if (f64.lt (local.get $distance) (global.get $worst)) (then (call $insert (local.get $distance) (local.get $pos))))))
+      (local.set $pos (i32.add (local.get $pos) (i32.const 1)))
+      (local.set $row (i32.add (local.get $row) (i32.shl (global.get $dim) (i32.const 3))))
+      (br $points))))
+
+
+  ;; visitMax(node, bound): a subtree whose cell is bound (< worst) away in the max norm; nearer child first.
+  (func $visitMax (param $node i32) (param $bound f64) (local $left i32) (local $right i32) (local $gap f64) (local $far f64)
+    (local.set $left (i32.load (i32.add (global.get $left) (i32.shl (local.get $node) (i32.const 2)))))
+    (if (i32.lt_s (local.get $left) (i32.const 0)) (then (call $scanMax (local.get $node)) (return)))
+    (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $node) (i32.const 2)))) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $node) (i32.const 3))))))
+    (local.set $right (i32.load (i32.add (global.get $right) (i32.shl (local.get $node) (i32.const 2)))))
+    (call $visitMax (select (local.get $left) (local.get $right) (f64.lt (local.get $gap) (f64.const 0))) (local.get $bound))
+    ;; The farther child's cell: the split plane's gap on this axis, or the bound already reached.
+    (local.set $far (f64.abs (local.get $gap)))
+    (if (i32.eqz (f64.gt (local.get $far) (local.get $bound))) (then (local.set $far (local.get $bound))))
+    (if (f64.lt (local.get $far) (global.get $worst)) (then
+      (call $visitMax (select (local.get $right) (local.get $left) (f64.lt (local.get $gap) (f64.const 0))) (local.get $far)))))
+  ;; runMax(leaf): the k nearest others of the query, from its own leaf upwards (NeighbourSearch.run).
+  (func $runMax (param $leaf i32) (local $node i32) (local $up i32) (local $sibling i32) (local $axis i32) (local $gap f64) (local $bound f64) (local $j i32)
+    (local.set $j (i32.const 0))
+    (block $filled (loop $fill
+      (br_if $filled (i32.ge_s (local.get $j) (global.get $k)))
+      (f64.store (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3))) (f64.const inf))
+      (i32.store (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2))) (i32.const -1))
+      (local.set $j (i32.add (local.get $j) (i32.const 1)))
+      (br $fill)))
+    (global.set $worst (f64.const inf))
+    (global.set $held (i32.const 0))
+    (call $scanMax (local.get $leaf))
+    (local.set $node (local.get $leaf))
+    (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+    (block $top (loop $climb
+      (br_if $top (i32.lt_s (local.get $up) (i32.const 0)))
+      (local.set $sibling
+        (if (result i32) (i32.eq (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))) (local.get $node))
+          (then (i32.load (i32.add (global.get $right) (i32.shl (local.get $up) (i32.const 2)))))
+          (else (i32.load (i32.add (global.get $left) (i32.shl (local.get $up) (i32.const 2)))))))
+      (local.set $axis (i32.load (i32.add (global.get $axisOf) (i32.shl (local.get $up) (i32.const 2)))))
+      (local.set $gap (f64.sub (f64.load (i32.add (global.get $query) (i32.shl (local.get $axis) (i32.const 3)))) (f64.load (i32.add (global.get $split) (i32.shl (local.get $up) (i32.const 3))))))
+      (local.set $bound (f64.abs (local.get $gap)))
+      (if (f64.lt (local.get $bound) (global.get $worst)) (then (call $visitMax (local.get $sibling) (local.get $bound))))
+      (local.set $node (local.get $up))
+      (local.set $up (i32.load (i32.add (global.get $parent) (i32.shl (local.get $node) (i32.const 2)))))
+      (br $climb))))
+
+  ;; nearestOthersMax(leaves, leafCount, order, distances, indices): every point's k nearest others, rows in the
+  ;; original order (order[pos]); distances (square roots of the squared sums for the Euclidean norm); indices (0: none)
+  ;; original indices.
+  (func (export "nearestOthersMax") (param $leaves i32) (param $leafCount i32) (param $order i32) (param $out i32) (param $indices i32)
+    (local $l i32) (local $leaf i32) (local $pos i32) (local $stop i32) (local $row i32) (local $j i32) (local $a i32)
+    (local.set $a (i32.const 0))
+    (block $cleared (loop $clear
+      (br_if $cleared (i32.ge_s (local.get $a) (global.get $dim)))
+      (f64.store (i32.add (global.get $side) (i32.shl (local.get $a) (i32.const 3))) (f64.const 0))
+      (local.set $a (i32.add (local.get $a) (i32.const 1)))
+      (br $clear)))
+    (local.set $l (i32.const 0))
+    (block $leavesDone (loop $leavesLoop
+      (br_if $leavesDone (i32.ge_s (local.get $l) (local.get $leafCount)))
+      (local.set $leaf (i32.load (i32.add (local.get $leaves) (i32.shl (local.get $l) (i32.const 2)))))
+      (local.set $pos (i32.load (i32.add (global.get $start) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (local.set $stop (i32.load (i32.add (global.get $end) (i32.shl (local.get $leaf) (i32.const 2)))))
+      (block $pointsDone (loop $points
+        (br_if $pointsDone (i32.ge_s (local.get $pos) (local.get $stop)))
+        (global.set $query (i32.add (global.get $coords) (i32.mul (local.get $pos) (i32.shl (global.get $dim) (i32.const 3)))))
+        (global.set $self (local.get $pos))
+        (call $runMax (local.get $leaf))
+        (local.set $row (i32.mul (i32.load (i32.add (local.get $order) (i32.shl (local.get $pos) (i32.const 2)))) (global.get $k)))
+        (local.set $j (i32.const 0))
+        (block $written (loop $write
+          (br_if $written (i32.ge_s (local.get $j) (global.get $k)))
+          (f64.store (i32.add (local.get $out) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 3))) (f64.load (i32.add (global.get $best) (i32.shl (local.get $j) (i32.const 3)))))
           (if (local.get $indices) (then
             (i32.store (i32.add (local.get $indices) (i32.shl (i32.add (local.get $row) (local.get $j)) (i32.const 2)))
               (i32.load (i32.add (local.get $order) (i32.shl (i32.load (i32.add (global.get $bestPos) (i32.shl (local.get $j) (i32.const 2)))) (i32.const 2)))))))

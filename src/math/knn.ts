@@ -27,8 +27,8 @@
  * current k-th distance. The k best so far sit in a short sorted typed array. Other point sets are first
  * bucketed by the leaf they fall in, for the same locality. Radius counts prune with tight bounding boxes
  * instead, which also tell when a whole box lies inside the radius.
- * nearestOthers with the Euclidean norm runs this search in WebAssembly (knn-search.ts), the same walk and the
- * same sums, so the same results (0.54–0.76 of the JavaScript search's time at d = 2..5, 0.40 at d = 8).
+ * nearestOthers runs this search in WebAssembly (knn-search.ts), the same walk and the same sums, so the same
+ * results (Euclidean: 0.54–0.76 of the JavaScript search's time at d = 2..5, 0.40 at d = 8).
  * Ties: duplicates of a point are other points at distance 0; which of several equidistant points is
  * reported in `indices` is unspecified, the distances are not.
  */
@@ -47,9 +47,8 @@ export interface NeighbourOptions {
   /** Also return the (original) indices of the neighbours. Default false. */
   indices?: boolean;
   /**
-   * nearestOthers with the Euclidean norm: 'auto' (default) searches in WebAssembly (src/math/knn-search.ts),
-   * 'javascript' with the search below. Both give the same distances and indices; the choice is for tests and
-   * comparisons.
+   * nearestOthers: 'auto' (default) searches in WebAssembly (src/math/knn-search.ts), 'javascript' with the
+   * search below. Both give the same distances and indices; the choice is for tests and comparisons.
    */
   engine?: 'auto' | 'javascript';
 }
@@ -258,10 +257,10 @@ export class KnnIndex {
     checkK(k, this.n - 1, 'other points');
     const withIndices = options.indices ?? false;
     const euclidean = this.norm === 'euclidean';
-    if (euclidean && options.engine !== 'javascript') {
+    if (options.engine !== 'javascript') {
       const { n, dim, coords, order, nodeCount, nodeStart, nodeEnd, nodeLeft, nodeRight, nodeParent, nodeSplitAxis, nodeSplitValue, leaves } = this;
       const tree = { n, dim, coords, order, nodeCount, nodeStart, nodeEnd, nodeLeft, nodeRight, nodeParent, nodeSplitAxis, nodeSplitValue, leaves };
-      const found = wasmNearestOthers(tree, k, withIndices);
+      const found = wasmNearestOthers(tree, k, withIndices, this.norm);
       if (found) return { k, ...found };
     }
     const { n, dim, coords, order, leaves, nodeStart, nodeEnd } = this;
