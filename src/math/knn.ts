@@ -96,6 +96,7 @@ export class KnnIndex {
   /** Tight bounding boxes, node-major: boxLower[node*dim + axis]. */
   private readonly boxLower: Float64Array;
   private readonly boxUpper: Float64Array;
+  private boxesBuilt = false;
   /** Leaf node ids in tree order. */
   private readonly leaves: Int32Array;
   private readonly nodeCount: number;
@@ -144,7 +145,7 @@ export class KnnIndex {
    * Builds the tree iteratively: median split on the widest axis, node ids in pre-order (children after
    * their parent). The axis is chosen from the node's cell (the data's bounding box for the root, the
    * parent's cell cut at the split value below it), so no level rescans the points; the tight boxes that
-   * the searches prune with are computed bottom-up at the end, in one pass over the points.
+   * the radius counts prune with are computed bottom-up on the first count (ensureBoxes).
    */
   private build(leafIds: number[]): { nodeCount: number; depth: number } {
     const { n, dim, coords, order, leafSize } = this;
@@ -221,31 +222,6 @@ export class KnnIndex {
       cellLower.push(rightLower, lower);
       cellUpper.push(upper, leftUpper);
     }
-    // Tight boxes, children before parents (reverse pre-order).
-    for (let node = nodeCount - 1; node >= 0; node--) {
-      const offset = node * dim;
-      if (nodeLeft[node] < 0) {
-        for (let axis = 0; axis < dim; axis++) {
-          boxLower[offset + axis] = Infinity;
-          boxUpper[offset + axis] = -Infinity;
-        }
-        for (let pos = nodeStart[node]; pos < nodeEnd[node]; pos++) {
-          const rowOffset = pos * dim;
-          for (let axis = 0; axis < dim; axis++) {
-            const value = coords[rowOffset + axis];
-            if (value < boxLower[offset + axis]) boxLower[offset + axis] = value;
-            if (value > boxUpper[offset + axis]) boxUpper[offset + axis] = value;
-          }
-        }
-      } else {
-        const left = nodeLeft[node] * dim;
-        const right = nodeRight[node] * dim;
-        for (let axis = 0; axis < dim; axis++) {
-          boxLower[offset + axis] = Math.min(boxLower[left + axis], boxLower[right + axis]);
-          boxUpper[offset + axis] = Math.max(boxUpper[left + axis], boxUpper[right + axis]);
-        }
-      }
-    }
     return { nodeCount, depth };
   }
 
@@ -308,6 +284,7 @@ export class KnnIndex {
    * `inclusive`). radii is in the original point order; a negative radius counts nothing.
    */
   countOthersWithin(radii: Float64Array, options: CountOptions = {}): Int32Array {
+    this.ensureBoxes();
     const { n, dim, coords, order } = this;
     if (radii.length !== n) throw new RangeError(`radii has length ${radii.length}; expected one per point (${n})`);
     const inclusive = options.inclusive ?? false;
@@ -327,6 +304,7 @@ export class KnnIndex {
 
   /** For each query point i, the number of indexed points at distance < radii[i] (or <= with `inclusive`). */
   countWithin(queries: Float64Array, radii: Float64Array, options: CountOptions = {}): Int32Array {
+    this.ensureBoxes();
     const queryCount = this.checkQueries(queries);
     if (radii.length !== queryCount) throw new RangeError(`radii has length ${radii.length}; expected one per query (${queryCount})`);
     const { dim } = this;
@@ -387,6 +365,40 @@ export class KnnIndex {
       queryLeaf[slot] = leafOf[q];
     }
     return { queryOrder, queryLeaf };
+  }
+
+  /**
+   * The tight boxes the radius counts prune with, children before parents (reverse pre-order); built on the
+   * first count, since the k-NN searches prune with cells and most indexes never count.
+   */
+  private ensureBoxes(): void {
+    if (this.boxesBuilt) return;
+    this.boxesBuilt = true;
+    const { dim, coords, nodeCount, nodeStart, nodeEnd, nodeLeft, nodeRight, boxLower, boxUpper } = this;
+    for (let node = nodeCount - 1; node >= 0; node--) {
+      const offset = node * dim;
+      if (nodeLeft[node] < 0) {
+        for (let axis = 0; axis < dim; axis++) {
+          boxLower[offset + axis] = Infinity;
+          boxUpper[offset + axis] = -Infinity;
+        }
+        for (let pos = nodeStart[node]; pos < nodeEnd[node]; pos++) {
+          const rowOffset = pos * dim;
+          for (let axis = 0; axis < dim; axis++) {
+            const value = coords[rowOffset + axis];
+            if (value < boxLower[offset + axis]) boxLower[offset + axis] = value;
+            if (value > boxUpper[offset + axis]) boxUpper[offset + axis] = value;
+          }
+        }
+      } else {
+        const left = nodeLeft[node] * dim;
+        const right = nodeRight[node] * dim;
+        for (let axis = 0; axis < dim; axis++) {
+          boxLower[offset + axis] = Math.min(boxLower[left + axis], boxLower[right + axis]);
+          boxUpper[offset + axis] = Math.max(boxUpper[left + axis], boxUpper[right + axis]);
+        }
+      }
+    }
   }
 
   /** Number of indexed points whose distance value (squared for Euclidean) to `query` is < threshold. */
