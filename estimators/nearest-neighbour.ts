@@ -265,6 +265,8 @@ const SHARED_NEIGHBOURS = 20;
 /** Distances kept per sample at most (8 bytes each): beyond this each request searches again instead. */
 const SHARED_DISTANCES_MAX = 2 ** 22;
 const searches = new SampleMemo<NeighbourSearch>();
+/** Per draw, dimension and norm: the most other copies any point has (the ties error's advice). */
+const largestCopyGroups = new SampleMemo<number>();
 /** Per dimension and norm, the largest k asked of the most recent draw in this thread. */
 const recentLargestAsked = new Map<string, number>();
 
@@ -325,10 +327,14 @@ function tiesError(
 ): EstimateError {
   const artefact = underflowedNeighbours(id, index, data, distances, stride, n, order);
   if (artefact) return artefact;
-  // Exact copies of each point (other points at distance 0): the largest group decides the k that works.
-  const copies = index.countOthersWithin(new Float64Array(n), { inclusive: true });
-  let mostCopies = 0;
-  for (let i = 0; i < n; i++) if (copies[i] > mostCopies) mostCopies = copies[i];
+  // Exact copies of each point (other points at distance 0): the largest group decides the k that works. Both
+  // estimators (and every k of a grid) report ties on the same draw, so it is counted once per draw.
+  const mostCopies = largestCopyGroups.get(data, `${index.dim}|${index.norm}`, () => {
+    const copies = index.countOthersWithin(new Float64Array(n), { inclusive: true });
+    let most = 0;
+    for (let i = 0; i < n; i++) if (copies[i] > most) most = copies[i];
+    return most;
+  });
   return new EstimateError(
     'ties',
     `${id}: ${zeroCount} of ${n} points have their ${ordinal(order)} nearest neighbour at distance 0 (repeated values; ` +

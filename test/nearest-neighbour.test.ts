@@ -293,6 +293,11 @@ describe('bad input', () => {
     // With k beyond the largest group of copies the k-th distances are positive and the estimate is finite.
     expect(Number.isFinite(klEstimator.estimate(sample, { k: 4, norm: 'euclidean' }))).toBe(true);
     expect(Number.isFinite(klEstimator.estimate(sample, { k: 4, norm: 'max' }))).toBe(true);
+    // The same buffer refilled: the largest group is counted again (it is kept per draw), now 31 copies of point 0.
+    for (let r = 100; r < 130; r++) data.set(base.data.subarray(0, 2), 2 * r);
+    for (const estimator of [klEstimator, weightedEstimator]) {
+      expect(estimateErrorOf(() => estimator.estimate(sample, { k: 3, norm: 'euclidean' })).message).toContain('31 identical points');
+    }
   });
 
   it('n ≤ k gives EstimateError("too-few-points") naming n and k', () => {
