@@ -35,10 +35,17 @@ export interface Environment {
   memoryGiB: number;
 }
 
-/** hhat's commit and whether its checkout is dirty, from `git rev-parse` and `git status` output; null when not hhat's own checkout. */
-function gitAnswer(cwd: string, revParse: string, status: string): Environment['git'] {
+/**
+ * hhat's commit from `git rev-parse` output, or null when the checkout found is not hhat's own: installed inside
+ * another repository (a user's project), git would otherwise report that repository's commit as hhat's.
+ */
+function ownCommit(cwd: string, revParse: string): string | null {
   const [top, commit] = revParse.trim().split('\n');
-  return realpathSync(top) === realpathSync(cwd) ? { commit, dirty: status.trim() !== '' } : null;
+  try {
+    return realpathSync(top) === realpathSync(cwd) ? commit : null;
+  } catch {
+    return null;
+  }
 }
 
 const REV_PARSE = ['rev-parse', '--show-toplevel', 'HEAD'];
@@ -51,13 +58,16 @@ function gitInfo(): Environment['git'] {
   if (prefetched !== undefined) return prefetched;
   try {
     const cwd = packageRoot();
-    // Only hhat's own checkout counts: installed inside another repository (a user's project), git would
-    // otherwise report that repository's commit as hhat's.
-    // One process for both answers (each git start costs about 15 ms).
-    const revParse = execFileSync('git', REV_PARSE, { cwd, stdio: ['ignore', 'pipe', 'ignore'] }).toString();
-    const [top] = revParse.trim().split('\n');
-    if (realpathSync(top) !== realpathSync(cwd)) return null;
-    return gitAnswer(cwd, revParse, execFileSync('git', STATUS, { cwd, stdio: ['ignore', 'pipe', 'ignore'] }).toString());
+    // One process for both answers of rev-parse (each git start costs about 15 ms).
+    const commit = ownCommit(cwd, execFileSync('git', REV_PARSE, { cwd, stdio: ['ignore', 'pipe', 'ignore'] }).toString());
+    if (commit === null) return null;
+    return {
+      commit,
+      dirty:
+        execFileSync('git', STATUS, { cwd, stdio: ['ignore', 'pipe', 'ignore'] })
+          .toString()
+          .trim() !== '',
+    };
   } catch {
     return null;
   }
@@ -76,17 +86,14 @@ export function prefetchProvenance(): Promise<void> {
   }
   const options = { cwd, windowsHide: true };
   return new Promise((resolve) => {
-    const settle = (answer: () => Environment['git']) => {
-      try {
-        prefetched = answer();
-      } catch {
-        prefetched = null;
-      }
+    const settle = (answer: Environment['git']) => {
+      prefetched = answer;
       resolve();
     };
     execFile('git', REV_PARSE, options, (error, revParse) => {
-      if (error) return settle(() => null);
-      execFile('git', STATUS, options, (statusError, status) => settle(() => (statusError ? null : gitAnswer(cwd, revParse, status))));
+      const commit = error ? null : ownCommit(cwd, revParse);
+      if (commit === null) return settle(null);
+      execFile('git', STATUS, options, (statusError, status) => settle(statusError ? null : { commit, dirty: status.trim() !== '' }));
     });
   });
 }
