@@ -5,7 +5,7 @@ import { describe, expect, it } from 'vitest';
 import normalRandom from '@stdlib/random-base-normal';
 import { KnnIndex, nextDown, squaredThreshold, type KnnNorm } from '../src/math/knn.js';
 import { sortedNearestOthers } from '../src/math/knn-sorted.js';
-import { MAX_SEARCH_BYTES, searchBytes, wasmNearestOthers } from '../src/math/knn-search.js';
+import { MAX_SEARCH_BYTES, searchLayout, wasmNearestOthers } from '../src/math/knn-search.js';
 import { KNN_SEARCH_WASM } from '../src/math/knn-search-wasm.js';
 import { rngFromSeed } from '../src/core/rng.js';
 
@@ -218,7 +218,7 @@ describe('nearestOthers in WebAssembly (src/math/knn-search.ts) is the JavaScrip
   );
 
   it('leaves a tree too large for its memory to the JavaScript search', () => {
-    expect(searchBytes(2e8, 3, 4e7, 2e7, 5, false)).toBeGreaterThan(MAX_SEARCH_BYTES);
+    expect(searchLayout(2e8, 3, 4e7, 2e7, 5, false).bytes).toBeGreaterThan(MAX_SEARCH_BYTES);
     const empty = new Int32Array(0);
     const tree = { n: 2e8, dim: 3, coords: new Float64Array(0), order: empty, nodeCount: 4e7, nodeStart: empty, nodeEnd: empty, nodeLeft: empty };
     const arrays = { nodeRight: empty, nodeParent: empty, nodeSplitAxis: empty, nodeSplitValue: new Float64Array(0), leaves: new Int32Array(2e7) };

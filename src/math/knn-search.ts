@@ -63,9 +63,54 @@ function load(): Loaded {
 /** Above this many bytes of tree and rows the JavaScript search runs instead (a 32-bit memory holds 4 GiB). */
 export const MAX_SEARCH_BYTES = 2 ** 31;
 
-/** Bytes the module's memory needs for this tree and k (8-byte aligned blocks). */
-export function searchBytes(n: number, dim: number, nodeCount: number, leafCount: number, k: number, withIndices: boolean): number {
-  return 8 * (n * dim + nodeCount + dim + k + n * k) + 4 * (6 * nodeCount + leafCount + n + k + (withIndices ? n * k : 0)) + 8 * 16;
+/** Where each array lies in the module's memory (byte offsets, 8-byte aligned), and the bytes in all. */
+interface Layout {
+  coords: number;
+  split: number;
+  left: number;
+  right: number;
+  parent: number;
+  axis: number;
+  start: number;
+  end: number;
+  leaves: number;
+  order: number;
+  side: number;
+  best: number;
+  bestPos: number;
+  out: number;
+  indices: number;
+  bytes: number;
+}
+
+/** The memory layout for this tree and k; `indices` is 0 without indices. */
+export function searchLayout(n: number, dim: number, nodeCount: number, leafCount: number, k: number, withIndices: boolean): Layout {
+  let offset = 0;
+  // Each block starts on an 8-byte boundary, so the doubles are aligned whatever the counts.
+  const block = (bytes: number): number => {
+    const at = offset;
+    offset += Math.ceil(bytes / 8) * 8;
+    return at;
+  };
+  const nodes = (bytesEach: number) => block(bytesEach * nodeCount);
+  const layout = {
+    coords: block(8 * n * dim),
+    split: nodes(8),
+    left: nodes(4),
+    right: nodes(4),
+    parent: nodes(4),
+    axis: nodes(4),
+    start: nodes(4),
+    end: nodes(4),
+    leaves: block(4 * leafCount),
+    order: block(4 * n),
+    side: block(8 * dim),
+    best: block(8 * k),
+    bestPos: block(4 * k),
+    out: block(8 * n * k),
+    indices: withIndices ? block(4 * n * k) : 0,
+  };
+  return { ...layout, bytes: offset };
 }
 
 /**
@@ -79,45 +124,31 @@ export function wasmNearestOthers(
   norm: 'euclidean' | 'max' = 'euclidean',
 ): { distances: Float64Array; indices: Int32Array | undefined } | null {
   const { n, dim, nodeCount, leaves } = tree;
-  const bytes = searchBytes(n, dim, nodeCount, leaves.length, k, withIndices);
-  if (bytes > MAX_SEARCH_BYTES) return null;
+  const at = searchLayout(n, dim, nodeCount, leaves.length, k, withIndices);
+  if (at.bytes > MAX_SEARCH_BYTES) return null;
   const module = load();
-  reserve(module.memory, bytes);
+  reserve(module.memory, at.bytes);
   const buffer = module.memory.buffer;
-  let offset = 0;
-  // Each block starts on an 8-byte boundary, so the doubles are aligned whatever the counts.
-  const block = (size: number): number => {
-    const at = offset;
-    offset += Math.ceil(size / 8) * 8;
-    return at;
+  const put = (values: Float64Array | Int32Array, offset: number, count: number): void => {
+    if (values instanceof Float64Array) new Float64Array(buffer, offset, count).set(values.subarray(0, count));
+    else new Int32Array(buffer, offset, count).set(values.subarray(0, count));
   };
-  const put = (values: Float64Array | Int32Array, count: number): number => {
-    const at = block(values.BYTES_PER_ELEMENT * count);
-    if (values instanceof Float64Array) new Float64Array(buffer, at, count).set(values.subarray(0, count));
-    else new Int32Array(buffer, at, count).set(values.subarray(0, count));
-    return at;
-  };
-  const coords = put(tree.coords, n * dim);
-  const split = put(tree.nodeSplitValue, nodeCount);
-  const left = put(tree.nodeLeft, nodeCount);
-  const right = put(tree.nodeRight, nodeCount);
-  const parent = put(tree.nodeParent, nodeCount);
-  const axis = put(tree.nodeSplitAxis, nodeCount);
-  const start = put(tree.nodeStart, nodeCount);
-  const end = put(tree.nodeEnd, nodeCount);
-  const leavesAt = put(leaves, leaves.length);
-  const order = put(tree.order, n);
-  const side = block(8 * dim);
-  const best = block(8 * k);
-  const bestPos = block(4 * k);
-  const out = block(8 * n * k);
-  const indicesAt = withIndices ? block(4 * n * k) : 0;
-  module.setLayout(coords, split, left, right, parent, axis, start, end, side, best, bestPos, k, dim);
+  put(tree.coords, at.coords, n * dim);
+  put(tree.nodeSplitValue, at.split, nodeCount);
+  put(tree.nodeLeft, at.left, nodeCount);
+  put(tree.nodeRight, at.right, nodeCount);
+  put(tree.nodeParent, at.parent, nodeCount);
+  put(tree.nodeSplitAxis, at.axis, nodeCount);
+  put(tree.nodeStart, at.start, nodeCount);
+  put(tree.nodeEnd, at.end, nodeCount);
+  put(leaves, at.leaves, leaves.length);
+  put(tree.order, at.order, n);
+  module.setLayout(at.coords, at.split, at.left, at.right, at.parent, at.axis, at.start, at.end, at.side, at.best, at.bestPos, k, dim);
   const prefix = norm === 'max' ? 'Max' : '';
   const search = module.searches.get(`${prefix}${UNROLLED_DIMS.includes(dim) ? dim : ''}`)!;
-  search(leavesAt, leaves.length, order, out, indicesAt);
+  search(at.leaves, leaves.length, at.order, at.out, at.indices);
   return {
-    distances: new Float64Array(buffer, out, n * k).slice(),
-    indices: withIndices ? new Int32Array(buffer, indicesAt, n * k).slice() : undefined,
+    distances: new Float64Array(buffer, at.out, n * k).slice(),
+    indices: withIndices ? new Int32Array(buffer, at.indices, n * k).slice() : undefined,
   };
 }
