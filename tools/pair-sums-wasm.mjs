@@ -83,6 +83,16 @@ function pairLoop(d) {
     `(f64.load (i32.add (local.get $z) (i32.shl (i32.add (i32.mul (local.get ${point}) (i32.const ${d})) (i32.const ${axis})) (i32.const 3))))`;
   const sumsAt = (point, offset = 0) => `(i32.add (local.get $sums) (i32.shl (i32.add (local.get ${point}) (i32.const ${offset})) (i32.const 3)))`;
   const addTo = (point, value, offset = 0) => `(f64.store ${sumsAt(point, offset)} (f64.add (f64.load ${sumsAt(point, offset)}) ${value}))`;
+  // exp(scale·|z_{p+row} − z_{p+row+1}|²), the pair of two neighbouring rows, splatted into both lanes of `into`.
+  const selfPair = (row, into) =>
+    `${axes.map((a) => `(local.set $x${a} (f64.sub ${at('$p', a + row * d)} ${at('$p', a + (row + 1) * d)}))`).join(' ')}
+        (local.set ${into} (f64x2.splat (call $exp (f64.mul (local.get $scale) ${squaredSum(axes, 'f64', (a) => `(local.get $x${a})`)}))))`;
+  // Rows p, p + 1 (lanes of $v) against q: the term to $acc and both terms together to sums[q].
+  const twoRowStep = `${axes.map((a) => `(local.set $w${a} (f64x2.sub (local.get $v${a}) (f64x2.splat ${at('$q', a)})))`).join('\n          ')}
+          ${vectorExp(`(f64x2.mul (local.get $scales) ${squaredSum(axes, 'f64x2', (a) => `(local.get $w${a})`)})`)}
+          (local.set $acc (f64x2.add (local.get $acc) (local.get $term)))
+          ${addTo('$q', '(f64.add (f64x2.extract_lane 0 (local.get $term)) (f64x2.extract_lane 1 (local.get $term)))')}
+          (local.set $q (i32.add (local.get $q) (i32.const 1)))`;
   return `
   ;; pairs${d}(z, fromA, toA, fromB, toB, scale, sums): every pair of [fromA, toA) × [fromB, toB) (q > p when the
   ;; ranges are the same), exp(scale·|z_p − z_q|²) added to sums[p] and sums[q]; rows p and p + 1 in the two lanes.
@@ -106,20 +116,14 @@ function pairLoop(d) {
       (local.set $q (local.get $fromB))
       (if (local.get $same) (then
         ;; the pair (p, p + 1) itself, to both rows; then rows p, p + 1 against p + 2 and p + 3, as the two-row loop
-        ${axes.map((a) => `(local.set $x${a} (f64.sub ${at('$p', a)} ${at('$p', a + d)}))`).join(' ')}
-        (local.set $acc (f64x2.splat (call $exp (f64.mul (local.get $scale) ${squaredSum(axes, 'f64', (a) => `(local.get $x${a})`)}))))
+        ${selfPair(0, '$acc')}
         (local.set $q (i32.add (local.get $p) (i32.const 2)))
         (block $headDone (loop $head
           (br_if $headDone (i32.ge_s (local.get $q) (i32.add (local.get $p) (i32.const 4))))
-          ${axes.map((a) => `(local.set $w${a} (f64x2.sub (local.get $v${a}) (f64x2.splat ${at('$q', a)})))`).join('\n          ')}
-          ${vectorExp(`(f64x2.mul (local.get $scales) ${squaredSum(axes, 'f64x2', (a) => `(local.get $w${a})`)})`)}
-          (local.set $acc (f64x2.add (local.get $acc) (local.get $term)))
-          ${addTo('$q', '(f64.add (f64x2.extract_lane 0 (local.get $term)) (f64x2.extract_lane 1 (local.get $term)))')}
-          (local.set $q (i32.add (local.get $q) (i32.const 1)))
+          ${twoRowStep}
           (br $head)))
         ;; the pair (p + 2, p + 3) itself, to both of those rows
-        ${axes.map((a) => `(local.set $x${a} (f64.sub ${at('$p', a + 2 * d)} ${at('$p', a + 3 * d)}))`).join(' ')}
-        (local.set $accB (f64x2.splat (call $exp (f64.mul (local.get $scale) ${squaredSum(axes, 'f64', (a) => `(local.get $x${a})`)}))))))
+        ${selfPair(2, '$accB')}))
       (block $pairsDone (loop $pairs
         (br_if $pairsDone (i32.ge_s (local.get $q) (local.get $toB)))
         ${axes.map((a) => `(local.set $c${a} (f64x2.splat ${at('$q', a)}))`).join('\n        ')}
@@ -148,16 +152,11 @@ function pairLoop(d) {
       (local.set $q (local.get $fromB))
       (if (local.get $same) (then
         ;; the pair (p, p + 1) itself, to both rows
-        ${axes.map((a) => `(local.set $x${a} (f64.sub ${at('$p', a)} ${at('$p', a + d)}))`).join(' ')}
-        (local.set $acc (f64x2.splat (call $exp (f64.mul (local.get $scale) ${squaredSum(axes, 'f64', (a) => `(local.get $x${a})`)}))))
+        ${selfPair(0, '$acc')}
         (local.set $q (i32.add (local.get $p) (i32.const 2)))))
       (block $columnsDone (loop $columns
         (br_if $columnsDone (i32.ge_s (local.get $q) (local.get $toB)))
-        ${axes.map((a) => `(local.set $w${a} (f64x2.sub (local.get $v${a}) (f64x2.splat ${at('$q', a)})))`).join('\n        ')}
-        ${vectorExp(`(f64x2.mul (local.get $scales) ${squaredSum(axes, 'f64x2', (a) => `(local.get $w${a})`)})`)}
-        (local.set $acc (f64x2.add (local.get $acc) (local.get $term)))
-        ${addTo('$q', '(f64.add (f64x2.extract_lane 0 (local.get $term)) (f64x2.extract_lane 1 (local.get $term)))')}
-        (local.set $q (i32.add (local.get $q) (i32.const 1)))
+        ${twoRowStep}
         (br $columns)))
       ${addTo('$p', '(f64x2.extract_lane 0 (local.get $acc))')}
       ${addTo('$p', '(f64x2.extract_lane 1 (local.get $acc))', 1)}
