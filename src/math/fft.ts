@@ -154,7 +154,11 @@ function stagePairBlockOuter(re: Float64Array, im: Float64Array, wrs: Float64Arr
   }
 }
 
-/** (wr, wi): twiddle of stage span; (wr0, wi0), (wr1, wi1): those of stage 2·span for (i0, i2) and (i1, i3). */
+/**
+ * (wr, wi): twiddle of stage span; (wr0, wi0), (wr1, wi1): those of stage 2·span for (i0, i2) and (i1, i3). The
+ * four butterflies are written out, not called, so that the first stage's results stay in locals for the second
+ * (a butterfly helper would have to return two numbers, or write them back to the arrays).
+ */
 function stagePairAt(
   re: Float64Array,
   im: Float64Array,
