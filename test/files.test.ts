@@ -8,8 +8,8 @@
  */
 import { execFileSync, spawn, spawnSync } from 'node:child_process';
 import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
-import { join } from 'node:path';
+import { hostname, tmpdir } from 'node:os';
+import { dirname, join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { readRunFile } from '../src/analysis/results.js';
 import { mergeShards } from '../src/analysis/merge.js';
@@ -216,6 +216,20 @@ describe('atomic writes', () => {
     writeFileSync(`${target}.0123456789abcdef.tmp`, 'torn');
     expect(removeLeftoverTemporaries(target)).toBe(1);
     expect(readdirSync(join(dir, 'atomic'))).toEqual(['file.txt']);
+  });
+
+  it("remove a lock's draft left by a killed process of this machine, and keep a live one's and another machine's", () => {
+    const target = join(dir, 'drafts', 'run.json');
+    mkdirSync(dirname(target), { recursive: true });
+    const host = hostname().replace(/[^A-Za-z0-9-]/g, '-');
+    // A process that has exited: its pid is free (reused pids are possible, and then the draft stays, which is safe).
+    const gone = spawnSync(process.execPath, ['-e', 'process.stdout.write(String(process.pid))']).stdout.toString();
+    const dead = `run.json.lock.${host}.${gone}.0123abcd.tmp`;
+    const live = `run.json.lock.${host}.${process.pid}.4567cdef.tmp`;
+    const remote = `run.json.lock.${host}x.${gone}.89abcdef.tmp`;
+    for (const name of [dead, live, remote]) writeFileSync(join(dirname(target), name), '{}');
+    expect(removeLeftoverTemporaries(target)).toBe(1);
+    expect(readdirSync(dirname(target)).sort()).toEqual([live, remote].sort());
   });
 
   it('write content given as chunks (text and bytes) one after another', () => {

@@ -72,6 +72,13 @@ function fsyncFolder(folder: string): void {
 }
 
 const TEMPORARY = /\.[0-9a-f]{16}\.tmp$/;
+/** A lock's draft, after the locked file's name: `.lock.<host>.<pid>.<8 hex>.tmp`. */
+const LOCK_DRAFT = /^\.lock\.([A-Za-z0-9-]*)\.(\d+)\.[0-9a-f]{8}\.tmp$/;
+
+/** This machine's name as it can stand in a file name. */
+function lockHostTag(): string {
+  return hostname().replace(/[^A-Za-z0-9-]/g, '-');
+}
 
 /**
  * Writes all of `text`: a write may store fewer bytes than asked (a disk filling up does that, without an
@@ -130,12 +137,20 @@ function pauseForKillTest(path: string): void {
   if (ms > 0 && path.endsWith('.json')) Atomics.wait(new Int32Array(new SharedArrayBuffer(4)), 0, 0, ms);
 }
 
-/** Removes temporaries that an earlier crash left beside `path`. */
+/**
+ * Removes temporaries that an earlier crash left beside `path`: those of its atomic writes, and drafts of its
+ * lock whose process is gone (a draft lives for microseconds, but a kill can land inside them). Called with the
+ * lock held, so no live writer of `path` has a temporary of its own to lose.
+ */
 export function removeLeftoverTemporaries(path: string): number {
   let removed = 0;
   try {
     for (const name of readdirSync(dirname(path))) {
-      if (name.startsWith(`${basename(path)}.`) && TEMPORARY.test(name)) {
+      if (!name.startsWith(`${basename(path)}.`)) continue;
+      const draft = LOCK_DRAFT.exec(name.slice(basename(path).length));
+      // A draft of another machine's process (a shared folder) cannot be checked, so it is left alone.
+      const leftover = TEMPORARY.test(name) || (draft !== null && draft[1] === lockHostTag() && !alive(Number(draft[2])));
+      if (leftover) {
         rmSync(join(dirname(path), name), { force: true });
         removed++;
       }
@@ -222,7 +237,7 @@ export function acquireLock(path: string, hint?: string): () => void {
   for (let attempt = 0; attempt < 2; attempt++) {
     // Written whole under a private name, then linked into place (which fails if the lock exists): another
     // process never sees an empty lock, which it would take for a crashed writer's and take over.
-    const draft = `${lock}.${process.pid}.${randomBytes(4).toString('hex')}.tmp`;
+    const draft = `${lock}.${lockHostTag()}.${process.pid}.${randomBytes(4).toString('hex')}.tmp`;
     try {
       const fd = openSync(draft, constants.O_WRONLY | constants.O_CREAT | constants.O_EXCL, 0o644);
       try {

@@ -136,7 +136,8 @@ if (existsSync(out)) fail('a run killed inside its final write left a run file')
 if (!existsSync(`${out}.checkpoint.jsonl`)) fail('a run killed inside its final write lost its checkpoint');
 const resumed = await runAndInterrupt(out, true, null, 0);
 if (resumed.code !== 0 || estimates(out) !== expected) fail('the resume after a kill inside the final write differs from the uninterrupted run');
-if (readdirSync(dir).some((f) => f.endsWith('.tmp'))) fail('the leftover temporary was not removed');
+const leftovers = readdirSync(dir).filter((f) => f.endsWith('.tmp'));
+if (leftovers.length > 0) fail(`temporaries were left behind: ${leftovers.join(', ')}`);
 console.log('kill inside the final write: the resume finished from the checkpoint, identical, no temporary left');
 console.log(
   `kill test passed: ${interruptions} interruptions (${kills} SIGKILL, ${interruptions - kills} SIGINT) over ${runs} runs, each resumed to the uninterrupted estimates`,
