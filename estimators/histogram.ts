@@ -339,7 +339,7 @@ export function occupiedCellSums(keys: Float64Array, keySpace: number): { sumCou
     }
     return { sumCountLogCount, occupied };
   }
-  const sorted = sortAscending(Float64Array.from(keys));
+  const sorted = sortAscending(keys.slice());
   let run = 1;
   for (let i = 1; i <= n; i++) {
     if (i < n && sorted[i] === sorted[i - 1]) run++;

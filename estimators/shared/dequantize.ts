@@ -42,7 +42,7 @@ function jitterOne(sample: Sample, how: Exclude<Dequantize, 'none'>): { sample: 
   if (!resolution.steps.some((s) => s !== null)) return { sample, resolution };
   const { n, dim } = sample;
   const rng = rngFromSeed(contentSeed(sample));
-  const data = Float64Array.from(sample.data);
+  const data = sample.data.slice();
   const steps = resolution.steps;
   for (let i = 0; i < n; i++) {
     for (let j = 0; j < dim; j++) {

@@ -34,6 +34,6 @@ export class SampleMemo<T> {
     if (!byKey) this.kept.set(data.buffer, (byKey = new Map<string, { values: Float64Array; result: T }>()));
     const kept = byKey.get(key);
     // A replacement for the same values reuses their copy.
-    byKey.set(key, { values: kept && sameValues(kept.values, data) ? kept.values : Float64Array.from(data), result });
+    byKey.set(key, { values: kept && sameValues(kept.values, data) ? kept.values : data.slice(), result });
   }
 }

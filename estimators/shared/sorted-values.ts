@@ -11,5 +11,5 @@ const kept = new SampleMemo<Float64Array>();
 
 /** `values` sorted ascending (as Float64Array.prototype.sort orders them), computed once per draw; read-only. */
 export function sharedSortedValues(values: Float64Array): Float64Array {
-  return kept.get(values, `sorted|${values.byteOffset}|${values.length}`, () => sortAscending(Float64Array.from(values)));
+  return kept.get(values, `sorted|${values.byteOffset}|${values.length}`, () => sortAscending(values.slice()));
 }

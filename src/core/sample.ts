@@ -12,7 +12,7 @@ export function column(sample: Sample, j: number): Float64Array {
 /** Sorted copy of a one-dimensional sample's values. */
 export function sortedValues(sample: Sample): Float64Array {
   if (sample.dim !== 1) throw new RangeError('sortedValues needs a one-dimensional sample');
-  return Float64Array.from(sample.data).sort();
+  return sample.data.slice().sort();
 }
 
 /** Columns [from, to) of a sample as a new sample. */

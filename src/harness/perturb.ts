@@ -443,8 +443,8 @@ function applyToColumns(prepared: PreparedPerturbation, sample: Sample, columns:
 export function perturbedCopy(original: Sample, prepared: PreparedPerturbation, replicate: number, seed: number): Sample {
   const sample: Sample = {
     ...original,
-    data: Float64Array.from(original.data),
-    ...(original.q ? { q: { ...original.q, data: Float64Array.from(original.q.data) } } : {}),
+    data: original.data.slice(),
+    ...(original.q ? { q: { ...original.q, data: original.q.data.slice() } } : {}),
   };
   prepared.apply(sample, replicate, seed);
   return sample;

@@ -118,7 +118,7 @@ export class KnnIndex {
     this.dim = dim;
     this.norm = norm;
     this.leafSize = leafSize;
-    this.coords = Float64Array.from(points);
+    this.coords = points.slice();
     this.order = new Int32Array(this.n);
     for (let i = 0; i < this.n; i++) this.order[i] = i;
 

@@ -17,7 +17,7 @@ export function sortAscending(values: Float64Array): Float64Array {
 
 /** Replaces each key by its rank among the distinct keys; returns the number of distinct keys. */
 export function rankKeys(keys: Float64Array): number {
-  const distinct = sortAscending(Float64Array.from(keys));
+  const distinct = sortAscending(keys.slice());
   let unique = 0;
   for (let i = 0; i < distinct.length; i++) if (i === 0 || distinct[i] !== distinct[i - 1]) distinct[unique++] = distinct[i];
   for (let i = 0; i < keys.length; i++) {
