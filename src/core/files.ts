@@ -72,8 +72,8 @@ function fsyncFolder(folder: string): void {
 }
 
 const TEMPORARY = /\.[0-9a-f]{16}\.tmp$/;
-/** A lock's draft, after the locked file's name: `.lock.<host>.<pid>.<8 hex>.tmp`. */
-const LOCK_DRAFT = /^\.lock\.([A-Za-z0-9-]*)\.(\d+)\.[0-9a-f]{8}\.tmp$/;
+/** A lock's draft, after the lock's own name: `.<host>.<pid>.<8 hex>.tmp`. */
+const LOCK_DRAFT = /^\.([A-Za-z0-9-]*)\.(\d+)\.[0-9a-f]{8}\.tmp$/;
 
 /** This machine's name as it can stand in a file name. */
 function lockHostTag(): string {
@@ -137,20 +137,12 @@ function pauseForKillTest(path: string): void {
   if (ms > 0 && path.endsWith('.json')) Atomics.wait(new Int32Array(new SharedArrayBuffer(4)), 0, 0, ms);
 }
 
-/**
- * Removes temporaries that an earlier crash left beside `path`: those of its atomic writes, and drafts of its
- * lock whose process is gone (a draft lives for microseconds, but a kill can land inside them). Called with the
- * lock held, so no live writer of `path` has a temporary of its own to lose.
- */
+/** Removes temporaries that an earlier crash left beside `path`. */
 export function removeLeftoverTemporaries(path: string): number {
   let removed = 0;
   try {
     for (const name of readdirSync(dirname(path))) {
-      if (!name.startsWith(`${basename(path)}.`)) continue;
-      const draft = LOCK_DRAFT.exec(name.slice(basename(path).length));
-      // A draft of another machine's process (a shared folder) cannot be checked, so it is left alone.
-      const leftover = TEMPORARY.test(name) || (draft !== null && draft[1] === lockHostTag() && !alive(Number(draft[2])));
-      if (leftover) {
+      if (name.startsWith(`${basename(path)}.`) && TEMPORARY.test(name)) {
         rmSync(join(dirname(path), name), { force: true });
         removed++;
       }
@@ -226,6 +218,24 @@ function linkLock(draft: string, lock: string, me: LockHolder): void {
 }
 
 /**
+ * Removes drafts of `lock` that processes of this machine left when they were killed while taking it (a draft
+ * lives for microseconds, but a kill can land inside them). A draft of a live process, or of another machine's
+ * (a shared folder), whose process cannot be checked, is left alone.
+ */
+function removeDeadDrafts(lock: string): void {
+  const folder = dirname(lock);
+  const prefix = basename(lock);
+  try {
+    for (const name of readdirSync(folder)) {
+      const draft = name.startsWith(prefix) ? LOCK_DRAFT.exec(name.slice(prefix.length)) : null;
+      if (draft && draft[1] === lockHostTag() && !alive(Number(draft[2]))) rmSync(join(folder, name), { force: true });
+    }
+  } catch {
+    /* a draft left behind is untidy, not harmful */
+  }
+}
+
+/**
  * Takes `<path>.lock` for this process, or refuses while another live process on this machine holds it.
  * A lock whose process is gone (a crash, a kill) is stale and taken over; a lock from another machine (a
  * shared folder) is respected, since its process cannot be checked. Returns the release function.
@@ -246,6 +256,7 @@ export function acquireLock(path: string, hint?: string): () => void {
         closeSync(fd);
       }
       linkLock(draft, lock, me);
+      removeDeadDrafts(lock);
       return () => rmSync(lock, { force: true });
     } catch (error) {
       if ((error as NodeJS.ErrnoException).code !== 'EEXIST') fail(error, 'create the lock', lock, hint);
