@@ -225,10 +225,11 @@ function linkLock(draft: string, lock: string, me: LockHolder): void {
 function removeDeadDrafts(lock: string): void {
   const folder = dirname(lock);
   const prefix = basename(lock);
+  const host = lockHostTag();
   try {
     for (const name of readdirSync(folder)) {
       const draft = name.startsWith(prefix) ? LOCK_DRAFT.exec(name.slice(prefix.length)) : null;
-      if (draft && draft[1] === lockHostTag() && !alive(Number(draft[2]))) rmSync(join(folder, name), { force: true });
+      if (draft && draft[1] === host && !alive(Number(draft[2]))) rmSync(join(folder, name), { force: true });
     }
   } catch {
     /* a draft left behind is untidy, not harmful */
