@@ -284,7 +284,7 @@ describe('bad input', () => {
     );
     expect(() =>
       resolvePlan({ scenarios: ['normal'], estimators: ['gaussian', 'vasicek', { id: 'kozachenko-leonenko', settings: { k: 0 } }] }, 'p.json'),
-    ).toThrow('p.json: estimators[2].settings.k: must be an integer ≥ 1');
+    ).toThrow('p.json: estimators[2].settings.k: 0 is not allowed; it must be an integer ≥ 1');
     expect(() => resolvePlan({ scenarios: ['normal', 'nope'], estimators: ['gaussian'] }, 'p.json')).toThrow(/p.json: scenarios\[1\]: unknown scenario "nope"/);
   });
 

@@ -240,9 +240,9 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
       return typeof entry === 'string' ? parseEstimatorSpec(entry) : configureEstimator(entry.id, entry.settings ?? {});
     } catch (error) {
       if (!(error instanceof UsageError)) throw error;
-      // "kozachenko-leonenko: k=0 is not allowed; ..." → "estimators[2].settings.k: must be ..."
-      const match = /^[^:]+: (\w+)=.* is not allowed; \1 (must be .*)$/.exec(error.message);
-      const detail = match ? `.settings.${match[1]}: ${match[2]}` : `: ${error.message}`;
+      // "kozachenko-leonenko: k=0 is not allowed; ..." → "estimators[2].settings.k: 0 is not allowed; it must be ..."
+      const match = /^[^:]+: (\w+)=(.*) is not allowed; \1 (must be .*)$/.exec(error.message);
+      const detail = match ? `.settings.${match[1]}: ${match[2]} is not allowed; it ${match[3]}` : `: ${error.message}`;
       throw new UsageError(`${source}: estimators[${i}]${detail}`);
     }
   });
