@@ -17,6 +17,10 @@ import { executeReplicate, type Unit } from './work.js';
 import { useEstimatorModules } from './modules.js';
 import { onCommandStarted, useEstimatorCommands } from './external/client.js';
 import { markerViews, type WorkerJob, type WorkerMessage } from './pool-protocol.js';
+import { detachOnce } from '../math/wasm.js';
+
+// First, before any estimator code is compiled (see detachOnce).
+detachOnce();
 
 const { plan, marker } = workerData as { plan: Plan; marker: SharedArrayBuffer };
 const { slots, clock } = markerViews(marker);

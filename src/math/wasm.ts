@@ -20,6 +20,23 @@ export function instantiate(base64: string): { exports: Record<string, unknown>;
   return { exports, memory: exports.memory as WasmMemory };
 }
 
+/**
+ * Detaches one throwaway ArrayBuffer, once per thread. V8 compiles typed-array code on the assumption that no
+ * buffer has ever been detached in this thread, and throws away all code built on it at the first detach. Growing
+ * a WebAssembly memory detaches its old buffer, and so does a worker's transfer of its results; both first happen
+ * after the hot loops were compiled, and about 30 of them were then compiled again (`--trace-deopt`: "marking
+ * dependent code ... code dependencies"). Done before anything is compiled, the code is built without the
+ * assumption from the start; it is what that code runs as after the first detach anyway.
+ */
+export function detachOnce(): void {
+  if (detached) return;
+  detached = true;
+  const buffer = new ArrayBuffer(8);
+  structuredClone(buffer, { transfer: [buffer] });
+}
+let detached = false;
+detachOnce();
+
 /** Grows `memory` to at least `bytes` (64 KiB pages). */
 export function reserve(memory: WasmMemory, bytes: number): void {
   if (memory.buffer.byteLength < bytes) memory.grow(Math.ceil((bytes - memory.buffer.byteLength) / 65536));
