@@ -297,7 +297,9 @@ function neighbourDistances(data: Float64Array, n: number, dim: number, norm: Kn
   }
   // In 1-D the sorted copy is the one the spacing and kernel estimators of the draw share (unless a unit change made a new array).
   const distances = dim === 1 ? sortedNearestOthers(base.points, sharedSortedValues(base.points), stride, norm) : base.index().nearestOthers(stride).distances;
-  const search: NeighbourSearch = { ...base, distances, stride, searches: (kept?.searches ?? 0) + 1, largestAsked };
+  // Field by field, not spread from `base` (a kept search or a new one): one map for every search (see withRows).
+  const { points, index, logJacobian } = base;
+  const search: NeighbourSearch = { points, index, distances, stride, logJacobian, searches: (kept?.searches ?? 0) + 1, largestAsked };
   if (n * stride <= SHARED_DISTANCES_MAX) searches.set(data, key, search);
   return search;
 }

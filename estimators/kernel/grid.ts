@@ -201,7 +201,10 @@ export function planGrid(
   for (let k = 0; k < dim; k++) origin[k] = lower[k] - (widths.window / 2) * widths.step;
   let insideCount = 0;
   for (let i = 0; i < n; i++) if (isInside(z, i, dim, lower, upper)) insideCount++;
-  return { ...widths, origin, nodes, totalNodes, lower, upper, insideCount };
+  // Written out, not spread from `widths`: V8 gave each spread copy a map of its own, so every plan was a new
+  // shape to the functions that read it, and they were compiled again and again.
+  const { spreadWidth, convolutionWidth, step, window, taps, convolutionWeights } = widths;
+  return { dim, spreadWidth, convolutionWidth, step, window, taps, convolutionWeights, origin, nodes, totalNodes, lower, upper, insideCount };
 }
 
 export function isInside(z: Float64Array, i: number, dim: number, lower: Float64Array, upper: Float64Array): boolean {

@@ -10,6 +10,7 @@
  */
 import { createHash } from 'node:crypto';
 import type { Sample } from '../../src/core/contracts.js';
+import { withRows } from '../../src/core/sample.js';
 import { rngFromSeed } from '../../src/core/rng.js';
 import type { Dequantize } from '../../src/core/spec.js';
 import { detectSteps, formatStep } from '../../src/math/lattice.js';
@@ -51,7 +52,7 @@ function jitterOne(sample: Sample, how: Exclude<Dequantize, 'none'>): { sample: 
       if (step !== null) data[i * dim + j] += (u - 0.5) * step;
     }
   }
-  return { sample: { ...sample, data }, resolution };
+  return { sample: withRows(sample, sample.n, data), resolution };
 }
 
 /**
@@ -65,7 +66,7 @@ function jitterOnce(sample: Sample, how: Exclude<Dequantize, 'none'>): { sample:
   const data = sample.data.subarray(0, sample.n * sample.dim);
   const done = jittered.get(data, `${how}|${sample.n}|${sample.dim}`, () => jitterOne({ n: sample.n, dim: sample.dim, data }, how));
   // The sample's other fields (X's and Y's widths, a divergence's Q) are the caller's; the kept array is shared.
-  return { sample: { ...sample, data: done.sample.data }, resolution: done.resolution };
+  return { sample: withRows(sample, sample.n, done.sample.data), resolution: done.resolution };
 }
 
 /** The sample jittered within its recording steps (and its Q sample within Q's), with what was done. */
@@ -74,5 +75,5 @@ export function dequantizeSample(sample: Sample, how: Dequantize): { sample: Sam
   const p = jitterOnce(sample, how);
   if (!sample.q) return p;
   const q = jitterOnce(sample.q, how);
-  return { sample: { ...p.sample, q: q.sample }, resolution: p.resolution };
+  return { sample: withRows(p.sample, p.sample.n, p.sample.data, q.sample), resolution: p.resolution };
 }

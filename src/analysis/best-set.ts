@@ -151,6 +151,21 @@ function bootstrapDeviations(rows: Float64Array[], mean: Float64Array, indices: 
 
 /** √v̂_ij for every pair, symmetric (v̂_ij does not depend on M: one pass over the resamples serves every step). */
 function pairSpreads(zeta: Float64Array, models: number, resamples: number): Float64Array {
+  // Two functions, one loop nest each: V8 compiled the first loop while it ran, without type information for
+  // the second, and threw that code away on reaching it, again for every cell (30 times in a default run).
+  const pairScale = pairSquareSums(zeta, models, resamples);
+  for (let i = 0; i < models; i++) {
+    for (let j = i + 1; j < models; j++) {
+      const sd = Math.sqrt(pairScale[i * models + j] / resamples);
+      pairScale[i * models + j] = sd;
+      pairScale[j * models + i] = sd;
+    }
+  }
+  return pairScale;
+}
+
+/** Σ_b (ζ_bi − ζ_bj)² for every pair i < j, at [i·models + j]. */
+function pairSquareSums(zeta: Float64Array, models: number, resamples: number): Float64Array {
   const pairScale = new Float64Array(models * models);
   for (let b = 0; b < resamples; b++) {
     const row = b * models;
@@ -159,13 +174,6 @@ function pairSpreads(zeta: Float64Array, models: number, resamples: number): Flo
         const difference = zeta[row + i] - zeta[row + j];
         pairScale[i * models + j] += difference * difference;
       }
-    }
-  }
-  for (let i = 0; i < models; i++) {
-    for (let j = i + 1; j < models; j++) {
-      const sd = Math.sqrt(pairScale[i * models + j] / resamples);
-      pairScale[i * models + j] = sd;
-      pairScale[j * models + i] = sd;
     }
   }
   return pairScale;
@@ -185,7 +193,9 @@ function resamplesAtLeast(zeta: Float64Array, pairScale: Float64Array, alive: In
         if (value > largest) largest = value;
       }
     }
-    if (largest >= statistic) atLeast++;
+    // Added on every resample, not incremented in a branch: code compiled before the first resample reached T
+    // had no type information for the increment, and was thrown away when one did.
+    atLeast += largest >= statistic ? 1 : 0;
   }
   return atLeast;
 }

@@ -2,6 +2,19 @@ import type { Sample } from './contracts.js';
 import { EstimateError } from './errors.js';
 import { rngFromSeed } from './rng.js';
 
+/**
+ * A sample with the fields of `sample` (xDim, yDim, Q) and these rows. Built field by field, not by spreading
+ * `sample`: V8 gave spread copies maps of their own, and each new map made the estimators that read samples
+ * compile again. Plain samples get the map of the scenarios' own `{ n, dim, data }`.
+ */
+export function withRows(sample: Sample, n: number, data: Float64Array, q: Sample | undefined = sample.q): Sample {
+  const out: Sample = { n, dim: sample.dim, data };
+  if (sample.xDim !== undefined) out.xDim = sample.xDim;
+  if (sample.yDim !== undefined) out.yDim = sample.yDim;
+  if (q !== undefined) out.q = q;
+  return out;
+}
+
 /** Copy of column j. */
 export function column(sample: Sample, j: number): Float64Array {
   const out = new Float64Array(sample.n);
@@ -59,7 +72,7 @@ export function uniformRowSubsample(sample: Sample, m: number, rng: () => number
       kept++;
     }
   }
-  return { ...sample, n: m, data: out };
+  return withRows(sample, m, out);
 }
 
 /**
@@ -72,7 +85,7 @@ export function seededRowSubsample(sample: Sample, rows: number, seed: string): 
   const cut = uniformRowSubsample(sample, rows, rngFromSeed(`hhat-row-subsample\n${seed}`));
   if (!sample.q) return cut;
   const qRows = Math.min(sample.q.n, Math.max(1, Math.round((sample.q.n * rows) / sample.n)));
-  return { ...cut, q: uniformRowSubsample(sample.q, qRows, rngFromSeed(`hhat-row-subsample\n${seed}\nq`)) };
+  return withRows(cut, cut.n, cut.data, uniformRowSubsample(sample.q, qRows, rngFromSeed(`hhat-row-subsample\n${seed}\nq`)));
 }
 
 /**
@@ -85,10 +98,8 @@ export function thinRows(sample: Sample, t: number): Sample {
   const n = Math.ceil(sample.n / t);
   const data = new Float64Array(n * dim);
   for (let i = 0; i < n; i++) for (let j = 0; j < dim; j++) data[i * dim + j] = sample.data[i * t * dim + j];
-  // Every field but the rows themselves carries over (xDim, yDim; q is thinned below).
-  const thinned: Sample = { ...sample, n, dim, data };
-  if (sample.q) thinned.q = thinRows(sample.q, t);
-  return thinned;
+  // Every field but the rows themselves carries over (xDim, yDim; Q is thinned alike).
+  return withRows(sample, n, data, sample.q ? thinRows(sample.q, t) : undefined);
 }
 
 /**

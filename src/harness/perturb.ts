@@ -17,6 +17,7 @@
 import { normalRandom } from '../math/random.js';
 import { createHash } from 'node:crypto';
 import type { Sample, Scenario, UnivariateDensity } from '../core/contracts.js';
+import { withRows } from '../core/sample.js';
 import { UsageError } from '../core/errors.js';
 import { rngFromSeed } from '../core/rng.js';
 import { formatSpec, parseNumber, parseSpec } from '../core/spec.js';
@@ -441,11 +442,8 @@ function applyToColumns(prepared: PreparedPerturbation, sample: Sample, columns:
  * perturb through here, so a written perturbed draw is the one the estimators saw.
  */
 export function perturbedCopy(original: Sample, prepared: PreparedPerturbation, replicate: number, seed: number): Sample {
-  const sample: Sample = {
-    ...original,
-    data: original.data.slice(),
-    ...(original.q ? { q: { ...original.q, data: original.q.data.slice() } } : {}),
-  };
+  const q = original.q ? withRows(original.q, original.q.n, original.q.data.slice()) : undefined;
+  const sample = withRows(original, original.n, original.data.slice(), q);
   prepared.apply(sample, replicate, seed);
   return sample;
 }

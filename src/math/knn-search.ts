@@ -109,8 +109,10 @@ export function searchLayout(n: number, dim: number, nodeCount: number, leafCoun
     bestPos: block(4 * k),
     out: block(8 * n * k),
     indices: withIndices ? block(4 * n * k) : 0,
+    // Last: the blocks above are laid out in this order, so offset is their end here.
+    bytes: offset,
   };
-  return { ...layout, bytes: offset };
+  return layout;
 }
 
 /**
