@@ -1,9 +1,11 @@
 /**
- * The objects that hot code reads on every estimate keep one shape (V8 "map") from call to call. A new shape
+ * What keeps a worker from compiling the same code twice. The objects that hot code reads on every estimate
+ * keep one shape (V8 "map") from call to call. A new shape
  * at a site that was compiled for the old ones throws the compiled code away, and each worker thread then
  * compiles it again: measured with `node --trace-deopt` on the default plan, copies made by object spread
  * (`{ ...sample, data }`) got maps of their own. Checked in a child process with V8's test intrinsics
- * (`--allow-natives-syntax`, %HaveSameMap), on the built code that workers run.
+ * (`--allow-natives-syntax`, %HaveSameMap), on the built code that workers run. And the first detached buffer
+ * of a thread is a throwaway one, detached before any code is compiled (src/math/wasm.ts, detachOnce).
  */
 import { spawnSync } from 'node:child_process';
 import { join } from 'node:path';
@@ -51,5 +53,28 @@ describe('shapes of the objects hot code reads', () => {
     `);
     expect(result.count).toEqual([true]);
     expect(result.plans.every(Boolean)).toBe(true);
+  });
+
+  it('loading the WebAssembly helpers detaches a buffer first, so a later transfer does not throw compiled typed-array code away', () => {
+    // The control (same loop, helpers not loaded) shows what is avoided: V8's --trace-deopt reports the loop's
+    // code "marked for deoptimization" at the first detached buffer.
+    const script = (load: boolean) => `
+      ${load ? `await import('${dist}/src/math/wasm.js');` : ''}
+      function total(a) { let s = 0; for (let i = 0; i < a.length; i++) s += a[i]; return s; }
+      const a = new Float64Array(1000).fill(1);
+      let t = 0;
+      for (let r = 0; r < 20000; r++) t += total(a);
+      const b = new ArrayBuffer(8);
+      structuredClone(b, { transfer: [b] });
+      for (let r = 0; r < 10; r++) t += total(a);
+      console.log(t);
+    `;
+    const marked = (load: boolean) => {
+      const res = spawnSync(process.execPath, ['--trace-deopt', '--input-type=module', '-e', script(load)], { encoding: 'utf8' });
+      expect(res.status, res.stderr).toBe(0);
+      return res.stdout.split('\n').filter((line) => /marking dependent code.*total/.test(line)).length;
+    };
+    expect(marked(false)).toBeGreaterThan(0);
+    expect(marked(true)).toBe(0);
   });
 });
