@@ -19,7 +19,8 @@ export type WorkerMessage =
   | { kind: 'command'; pid: number; folder: string };
 
 /**
- * slots: [running series or −1, its replicate, blamed series or −1, its replicate, its unit];
+ * slots: [running series or −1, its replicate, blamed series or −1, its replicate, its unit, 1 when the running
+ * estimate is an estimator command's (else 0)];
  * clock: [when the running estimate started, ms since the epoch].
  * "Blamed" is the last estimate started, or, while a timer or other callback that an estimate scheduled runs,
  * that estimate: an error thrown asynchronously is then charged to the estimator that caused it.

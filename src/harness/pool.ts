@@ -258,12 +258,21 @@ function stopMemoryHoarder(run: Supervisor, processLimitBytes: number): void {
   }
 }
 
-/** Stops every worker whose running estimate has passed its time limit at the unit's n. */
+/**
+ * Extra time the watchdog gives an estimator command's estimate. The broker holds the command to the limit itself,
+ * from when it sends the request, and then stops only the command; the watchdog, counting from the estimate's
+ * start, is the backstop for a broker that fails to. Without the margin a loaded machine let the watchdog win the
+ * race now and then, and the whole worker was stopped instead of the command.
+ */
+export const COMMAND_GRACE_SECONDS = 2;
+
+/** Stops every worker whose running estimate has passed its time limit at the unit's n (a command's: plus COMMAND_GRACE_SECONDS). */
 function stopOverdue(run: Supervisor, now: number): void {
   for (const slot of run.workers) {
     if (!slot.job || slot.slots[0] < 0 || slot.stopReason) continue;
     const limit = estimateTimeLimit(run.plan.limits, slot.job.unit.n);
-    if (now - slot.clock[0] > limit * 1000) {
+    const grace = slot.slots[5] === 1 ? COMMAND_GRACE_SECONDS : 0;
+    if (now - slot.clock[0] > (limit + grace) * 1000) {
       slot.stopReason = `timed out after ${+limit.toPrecision(3)} s (the limit at n = ${slot.job.unit.n}: plan limits.estimateSeconds + estimateSecondsPerPoint × n)`;
       void slot.thread.terminate();
     }

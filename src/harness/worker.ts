@@ -15,7 +15,7 @@ import { buildContext } from './context.js';
 import type { Plan } from './plan.js';
 import { executeReplicate, type Unit } from './work.js';
 import { useEstimatorModules } from './modules.js';
-import { onCommandStarted, useEstimatorCommands } from './external/client.js';
+import { isCommandEstimator, onCommandStarted, useEstimatorCommands } from './external/client.js';
 import { markerViews, type WorkerJob, type WorkerMessage } from './pool-protocol.js';
 import { detachOnce } from '../math/wasm.js';
 
@@ -118,6 +118,7 @@ parentPort!.on('message', async (job: WorkerJob) => {
         // The start time first: the watchdog reads the running slot, then the clock, and must never pair a
         // new estimate with the previous one's start.
         clock[0] = Date.now();
+        Atomics.store(slots, 5, isCommandEstimator(context.all[unit.series[series].estimator].estimator) ? 1 : 0);
         Atomics.store(slots, 1, r);
         Atomics.store(slots, 0, series);
         blame(running);

@@ -134,10 +134,18 @@ function estimateWith(declaration: CommandDeclaration, sample: Sample, settings:
   return reply.value;
 }
 
+/** The Estimators made by commandEstimator in this thread. */
+const commandEstimators = new WeakSet<Estimator>();
+
+/** Whether `estimator` runs a declared command (its time limit is then enforced by the broker). */
+export function isCommandEstimator(estimator: Estimator): boolean {
+  return commandEstimators.has(estimator);
+}
+
 /** The Estimator that runs a declared command. */
 export function commandEstimator(declaration: CommandDeclaration): Estimator {
   const grid = Object.entries(declaration.tuning).map(([setting, values]) => ({ setting, values }));
-  return {
+  const estimator: Estimator = {
     id: declaration.id,
     family: declaration.family,
     quantity: declaration.quantity,
@@ -148,6 +156,8 @@ export function commandEstimator(declaration: CommandDeclaration): Estimator {
     ...(grid.length ? { tuning: () => grid } : {}),
     estimate: (sample, settings) => estimateWith(declaration, sample, settings),
   };
+  commandEstimators.add(estimator);
+  return estimator;
 }
 
 /**
