@@ -20,6 +20,7 @@ import { registerEstimator } from '../estimators/index.js';
 import { EstimateError, UsageError } from '../src/core/errors.js';
 import { rngFromSeed } from '../src/core/rng.js';
 import { parseShard } from '../src/harness/shard.js';
+import { pickJob } from '../src/harness/pool.js';
 import runSchema from '../src/schemas/run.schema.json' with { type: 'json' };
 
 const dir = mkdtempSync(join(tmpdir(), 'hhat-harness-'));
@@ -149,6 +150,63 @@ describe('determinism', () => {
         { path: path1, run: run1 },
       ]),
     ).toThrow(/given twice/);
+  });
+});
+
+describe('scheduling', () => {
+  const jobs = (families: string): { unit: { codeFamily: string } }[] => [...families].map((f) => ({ unit: { codeFamily: f } }));
+
+  it('units of one-dimensional and multivariate scenarios belong to different code families', () => {
+    const context = buildContext(smallPlan());
+    const units = planUnits(context).units;
+    const family = (scenario: number) => new Set(units.filter((u) => u.scenario === scenario).map((u) => u.codeFamily));
+    expect(context.scenarios.map((s) => s.dim)).toEqual([1, 1, 2]);
+    expect(family(0)).toEqual(family(1));
+    expect([...family(0)]).toHaveLength(1);
+    expect([...family(2)]).toHaveLength(1);
+    expect(family(0)).not.toEqual(family(2));
+  });
+
+  it('a worker keeps to its code family while it has units, and a new worker starts on a family nobody runs', () => {
+    // Pending jobs costliest first; m = multivariate, u = univariate.
+    const pending = jobs('mmumu');
+    expect(pickJob(pending, null, [])).toBe(0);
+    expect(pickJob(pending, null, [null])).toBe(0);
+    expect(pickJob(pending, null, ['m'])).toBe(2);
+    expect(pickJob(pending, 'u', ['m'])).toBe(2);
+    expect(pickJob(pending, 'm', ['u'])).toBe(0);
+    // Its family done, a worker takes the costliest unit left; with one family only, cost order alone decides.
+    expect(pickJob(jobs('mmm'), 'u', ['m'])).toBe(0);
+    expect(pickJob(jobs('mmm'), null, ['m'])).toBe(0);
+  });
+
+  it('two workers with unequal families both stay busy: the one whose family runs out helps with the other', () => {
+    // A simulation of the pool with durations equal to cost: 10 multivariate units of cost 3, 6 univariate of cost 1.
+    const pending = [
+      ...Array.from({ length: 10 }, () => ({ unit: { codeFamily: 'm' }, cost: 3 })),
+      ...Array.from({ length: 6 }, () => ({ unit: { codeFamily: 'u' }, cost: 1 })),
+    ];
+    const workers = [
+      { family: null as string | null, free: 0, ran: '' },
+      { family: null as string | null, free: 0, ran: '' },
+    ];
+    while (pending.length) {
+      const w = workers[0].free <= workers[1].free ? workers[0] : workers[1];
+      const [job] = pending.splice(
+        pickJob(
+          pending,
+          w.family,
+          workers.filter((o) => o !== w).map((o) => o.family),
+        ),
+        1,
+      );
+      w.family = job.unit.codeFamily;
+      w.free += job.cost;
+      w.ran += job.unit.codeFamily;
+    }
+    expect(workers.map((w) => w.ran)).toEqual(['mmmmmm', 'uuuuuummmm']);
+    // Total cost 36 on two workers: both end at 18, as cost order alone would.
+    expect(workers.map((w) => w.free)).toEqual([18, 18]);
   });
 });
 

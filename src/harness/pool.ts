@@ -49,6 +49,8 @@ interface Slot {
   /** Why the supervisor stopped it (a time-out), so its exit is reported with that reason. */
   stopReason: string | null;
   dead: boolean;
+  /** The code family of the last unit it ran (work.ts, Unit.codeFamily), or null before its first. */
+  codeFamily: string | null;
   /** Estimator-command processes the worker started, and their temporary folders: stopped and removed when it ends. */
   commands: { pid: number; folder: string }[];
 }
@@ -81,14 +83,31 @@ function finish(run: Supervisor, interrupted: boolean, error?: unknown): void {
 function dispatch(run: Supervisor, slot: Slot): void {
   if (run.finished) return;
   if (run.options.signal?.aborted) return finish(run, true);
-  const job = run.pending.shift();
+  const job = run.pending.length ? run.pending.splice(nextJob(run, slot), 1)[0] : undefined;
   if (job) {
     slot.job = job;
+    slot.codeFamily = job.unit.codeFamily;
     const message: WorkerJob = { unit: job.unit, from: job.from, skip: job.skip };
     slot.thread.postMessage(message);
   } else if ([...run.workers].every((w) => w.job === null)) {
     finish(run, false);
   }
+}
+
+/**
+ * Which pending job a free worker gets (an index into `pending`, ordered by cost): the costliest of the code family
+ * it ran last, or, for its first, the costliest of a family no other worker runs; else the costliest of all.
+ * Every worker compiles and warms up its own copy of the code it runs, so keeping the families apart spares the
+ * second worker much of that; since each family is taken costliest first, both workers still end on small units.
+ */
+export function pickJob(pending: readonly { unit: Pick<Unit, 'codeFamily'> }[], own: string | null, others: readonly (string | null)[]): number {
+  const i = own === null ? pending.findIndex((j) => !others.includes(j.unit.codeFamily)) : pending.findIndex((j) => j.unit.codeFamily === own);
+  return i < 0 ? 0 : i;
+}
+
+function nextJob(run: Supervisor, slot: Slot): number {
+  const others = [...run.workers].filter((w) => w !== slot).map((w) => w.codeFamily);
+  return pickJob(run.pending, slot.codeFamily, others);
 }
 
 /**
@@ -238,7 +257,7 @@ function startWorker(run: Supervisor): void {
     workerData: { plan, marker },
     resourceLimits: { maxOldGenerationSizeMb: plan.limits.workerMemoryMiB },
   });
-  const slot: Slot = { thread, slots, clock, ready: false, job: null, stopReason: null, dead: false, commands: [] };
+  const slot: Slot = { thread, slots, clock, ready: false, job: null, stopReason: null, dead: false, commands: [], codeFamily: null };
   run.workers.add(slot);
   thread.on('message', (message: WorkerMessage) => onMessage(run, slot, message));
   thread.on('error', (error: Error & { code?: string }) => onDeath(run, slot, errorReason(plan, error)));

@@ -36,6 +36,12 @@ export interface Unit {
   series: Series[];
   /** Relative cost, for scheduling the largest units first. */
   cost: number;
+  /**
+   * Which code the unit's estimators run: one-dimensional samples take other paths (spacings, binned kernel sums,
+   * FFT) than samples in several dimensions (k-d trees, whitening, grid kernel sums). The pool keeps a worker on
+   * one code family while it can, so each worker compiles and warms up only the code it runs (pool.ts, nextJob).
+   */
+  codeFamily: string;
 }
 
 export interface Skip {
@@ -114,13 +120,23 @@ export function planUnits(context: WorkContext): { units: Unit[]; skipped: Skip[
         if (runnable.includes(twin.base)) perturbed.push({ variant: k + 1, estimator: twinsFrom + t });
       });
     });
+    const codeFamily = `${scenario.quantity}:${scenario.dim === 1 ? 'univariate' : 'multivariate'}`;
     for (const n of plan.sampleSizes) {
       const series: Series[] = runnable.map((e) => ({ variant: 0, estimator: e }));
       if (n === robustnessN) series.push(...tuned.map((e) => ({ variant: 0, estimator: e })), ...perturbed);
       const block = replicatesPerUnit(n, scenario.dim, plan.replicates);
       for (let start = 0; start < plan.replicates; start += block) {
         const end = Math.min(plan.replicates, start + block);
-        units.push({ index: units.length, scenario: s, n, repStart: start, repEnd: end, series, cost: (end - start) * n * scenario.dim * series.length });
+        units.push({
+          index: units.length,
+          scenario: s,
+          n,
+          repStart: start,
+          repEnd: end,
+          series,
+          cost: (end - start) * n * scenario.dim * series.length,
+          codeFamily,
+        });
       }
     }
   });
