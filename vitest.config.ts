@@ -7,11 +7,28 @@ import { configDefaults, defineConfig } from 'vitest/config';
  */
 const SLOW_FILES = ['test/faults.test.ts', 'test/external-commands.test.ts'];
 
+/**
+ * Files whose checks depend on the machine's pace: advice measures it and fits its work to a budget, fault runs
+ * hold estimates to one-second limits, and the clean-tree check times a whole build. They run one at a time,
+ * after the rest, so no other test file competes with them for the two cores; every other file runs two at a time.
+ */
+const PACED_FILES = ['test/advise.test.ts', 'test/advise-slow.test.ts', 'test/large-data.test.ts', 'test/clean-tree.test.ts', ...SLOW_FILES];
+
+const excluded = process.env.HHAT_SLOW ? configDefaults.exclude : [...configDefaults.exclude, ...SLOW_FILES];
+
 export default defineConfig({
   test: {
-    include: ['test/**/*.test.ts'],
-    exclude: process.env.HHAT_SLOW ? configDefaults.exclude : [...configDefaults.exclude, ...SLOW_FILES],
     testTimeout: 120_000,
     hookTimeout: 120_000,
+    projects: [
+      {
+        extends: true,
+        test: { name: 'parallel', include: ['test/**/*.test.ts'], exclude: [...excluded, ...PACED_FILES], maxWorkers: 2, sequence: { groupOrder: 0 } },
+      },
+      {
+        extends: true,
+        test: { name: 'paced', include: PACED_FILES, exclude: excluded, fileParallelism: false, sequence: { groupOrder: 1 } },
+      },
+    ],
   },
 });
