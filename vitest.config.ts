@@ -1,3 +1,4 @@
+import { availableParallelism } from 'node:os';
 import { configDefaults, defineConfig } from 'vitest/config';
 
 /**
@@ -10,7 +11,8 @@ const SLOW_FILES = ['test/faults.test.ts', 'test/external-commands.test.ts'];
 /**
  * Files whose checks depend on the machine's pace: advice measures it and fits its work to a budget, fault runs
  * hold estimates to one-second limits, and the clean-tree check times a whole build. They run one at a time,
- * after the rest, so no other test file competes with them for the two cores; every other file runs two at a time.
+ * after the rest, so no other test file competes with them for the cores; every other file runs one per core (vitest's
+ * own default leaves a core free, which on two cores meant one file at a time).
  */
 const PACED_FILES = ['test/advise.test.ts', 'test/advise-slow.test.ts', 'test/large-data.test.ts', 'test/clean-tree.test.ts', ...SLOW_FILES];
 
@@ -23,7 +25,13 @@ export default defineConfig({
     projects: [
       {
         extends: true,
-        test: { name: 'parallel', include: ['test/**/*.test.ts'], exclude: [...excluded, ...PACED_FILES], maxWorkers: 2, sequence: { groupOrder: 0 } },
+        test: {
+          name: 'parallel',
+          include: ['test/**/*.test.ts'],
+          exclude: [...excluded, ...PACED_FILES],
+          maxWorkers: availableParallelism(),
+          sequence: { groupOrder: 0 },
+        },
       },
       {
         extends: true,

@@ -83,7 +83,7 @@ function finish(run: Supervisor, interrupted: boolean, error?: unknown): void {
 function dispatch(run: Supervisor, slot: Slot): void {
   if (run.finished) return;
   if (run.options.signal?.aborted) return finish(run, true);
-  const job = run.pending.length ? run.pending.splice(nextJob(run, slot), 1)[0] : undefined;
+  const job = run.pending.splice(nextJob(run, slot), 1)[0] as Job | undefined;
   if (job) {
     slot.job = job;
     slot.codeFamily = job.unit.codeFamily;
