@@ -31,6 +31,7 @@ import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { Worker } from 'node:worker_threads';
+import { quantileOfSorted } from '../src/math/moments.js';
 
 const ROUNDS = Number(process.env.ROUNDS ?? 3);
 const load = () =>
@@ -38,27 +39,38 @@ const load = () =>
     .toString()
     .trim()
     .replace(/.*load average: /, '');
-const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
+const median = (xs: number[]) => quantileOfSorted(Float64Array.from(xs).sort(), 0.5);
+/** Median and range of `xs`, as every figure below is printed. */
+const spread = (xs: number[], digits = 2) => `${median(xs).toFixed(digits)} (${Math.min(...xs).toFixed(digits)}–${Math.max(...xs).toFixed(digits)})`;
 const bin = new URL('../bin/hhat.js', import.meta.url).pathname;
 const folder = mkdtempSync(join(tmpdir(), 'hhat-parallel-'));
 
-/** Wall seconds of `threads` threads each running the same fixed loop (about 1 s of arithmetic on one core). */
+/** Wall seconds of `threads` threads each running the same fixed loop (2–3 s of arithmetic on one core here). */
 async function spin(threads: number): Promise<number> {
-  const source = `let x = 0; for (let i = 0; i < 4e8; i++) x = (x + i * 1e-9) % 1.7; require('node:worker_threads').parentPort.postMessage(x);`;
+  const source = `let x = 0; for (let i = 0; i < 1e8; i++) x = (x + i * 1e-9) % 1.7; require('node:worker_threads').parentPort.postMessage(x);`;
   const started = performance.now();
   await Promise.all(Array.from({ length: threads }, () => new Promise((resolve) => new Worker(source, { eval: true }).once('message', resolve))));
   return (performance.now() - started) / 1000;
 }
 
+/** Clock ticks per second of /proc's CPU times (getconf CLK_TCK); NaN where it cannot be read. */
+const ticks = (() => {
+  try {
+    return Number(execSync('getconf CLK_TCK', { stdio: ['ignore', 'pipe', 'ignore'] }).toString());
+  } catch {
+    return NaN;
+  }
+})();
+
 /**
  * CPU seconds of this process's finished children so far (user + system, every thread), from /proc/self/stat
- * (fields 16 and 17, in clock ticks of 1/100 s on Linux); NaN where there is no /proc.
+ * (fields 16 and 17, cutime and cstime); NaN where there is no /proc.
  */
 function childrenCpu(): number {
   try {
     const stat = readFileSync('/proc/self/stat', 'utf8');
     const fields = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
-    return (Number(fields[13]) + Number(fields[14])) / 100;
+    return (Number(fields[13]) + Number(fields[14])) / ticks;
   } catch {
     return NaN;
   }
@@ -112,12 +124,9 @@ try {
 } finally {
   rmSync(folder, { recursive: true, force: true });
 }
-const spread = (xs: number[], digits = 2) => `${median(xs).toFixed(digits)} (${Math.min(...xs).toFixed(digits)}–${Math.max(...xs).toFixed(digits)})`;
 const ratios = plan1.map((t, i) => t.seconds / plan2[i].seconds);
 const ceilings = spin1.map((t, i) => (2 * t) / spin2[i]);
-console.log(
-  `speed-up with 2 workers (whole process): ${median(ratios).toFixed(2)}x median (${Math.min(...ratios).toFixed(2)}–${Math.max(...ratios).toFixed(2)}) over ${ROUNDS} rounds`,
-);
+console.log(`speed-up with 2 workers (whole process), median (range): ${spread(ratios)}x over ${ROUNDS} rounds`);
 if (plan1.every((t) => Number.isFinite(t.cpu))) {
   const extra = plan1.map((t, i) => plan2[i].cpu - t.cpu);
   const free = plan1.map((t, i) => t.seconds / (plan2[i].serial + (t.cpu - plan2[i].serial) / 2));
@@ -130,6 +139,4 @@ if (plan1.every((t) => Number.isFinite(t.cpu))) {
   );
   console.log(`speed-up if the second worker cost no extra CPU (see the header): ${spread(free)}x`);
 }
-console.log(
-  `the machine's ceiling (twice the work on 2 threads in the time of once on 1): ${median(ceilings).toFixed(2)}x median (${Math.min(...ceilings).toFixed(2)}–${Math.max(...ceilings).toFixed(2)})`,
-);
+console.log(`the machine's ceiling (twice the work on 2 threads in the time of once on 1), median (range): ${spread(ceilings)}x`);
