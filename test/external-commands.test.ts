@@ -126,7 +126,7 @@ describe('faults: each a failure with its reason, the rest of the run intact', (
     const reasons: Record<string, string> = {
       garbage: `command: garbage answered request 2 with a line that is not a JSON object: "estimating... done" (print diagnostics to stderr, not stdout); ${restart}`,
       wrong: `command: wrong answered request 9 while request 2 was asked; ${restart}`,
-      sleep: `command: sleep timed out after 1 s (the limit at n = 50: plan limits.estimateSeconds + estimateSecondsPerPoint × n) on request 2; ${restart}`,
+      sleep: `command: sleep timed out after 1 s (the limit at every n: --time-limit, or plan limits.estimateSeconds) on request 2; ${restart}`,
       exit: `command: exit exited with code 3 before answering request 2 (stderr: faulty_command: giving up on request 2); ${restart}`,
       nan: `command: nan answered request 2 with value null, not a finite number; ${restart}`,
     };

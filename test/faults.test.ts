@@ -57,7 +57,7 @@ async function builtIns(): Promise<RunFile> {
 
 // The fourth entry, when given, is the time limit: memory hoarding must meet the memory limit first.
 const cases: [string, string, RegExp, number?][] = [
-  ['hang.mjs', 'faulty-hang', /^timed out after 1 s \(the limit at n = 50/],
+  ['hang.mjs', 'faulty-hang', /^timed out after 1 s \(the limit at every n: --time-limit, or plan limits\.estimateSeconds\)$/],
   ['loop.mjs', 'faulty-loop', /^timed out after 1 s/],
   // A generous time limit: filling 256 MiB takes over a second when the suite's other files share the cores.
   ['memory.mjs', 'faulty-memory', /^out of memory: the worker's heap passed its limit of 256 MiB/, 30],
@@ -135,6 +135,29 @@ describe('faulty estimator modules beside built-ins', () => {
     },
     60_000,
   );
+
+  it('hhat bench --time-limit: a hung estimate named on the command line is stopped at that limit, not the default 60 s', async () => {
+    const out = join(dir, 'time-limit.json');
+    const args = ['--scenario', 'normal', '--estimator', 'faulty-hang', '--estimator', 'gaussian', '--estimator-module', join(faults, 'hang.mjs')];
+    const started = Date.now();
+    const code = await main(
+      ['bench', ...args, '--n', String(N), '--replicates', String(REPLICATES), '--seed', '5', '--time-limit', '0.5', '--out', out, '--quiet'],
+      {
+        out: () => {},
+        err: () => {},
+      },
+    );
+    expect(code).toBe(0);
+    const hung = bad.filter(Boolean).length;
+    // Each hang costs its 0.5 s and a new worker; the default limit would have cost a minute each.
+    expect((Date.now() - started) / 1000).toBeLessThan(20);
+    const cell = readRunFile(out).cells.find((c) => c.estimatorId === 'faulty-hang')!;
+    expect(cell.failures.map((f) => f.replicate)).toEqual(bad.flatMap((b, r) => (b ? [r] : [])));
+    expect(cell.failures.map((f) => f.message)).toEqual(
+      Array(hung).fill('timed out after 0.5 s (the limit at every n: --time-limit, or plan limits.estimateSeconds)'),
+    );
+    expect(readRunFile(out).plan.limits).toEqual({ estimateSeconds: 0.5, estimateSecondsPerPoint: 0, workerMemoryMiB: 4096 });
+  }, 60_000);
 
   it('hhat bench with the module that ends its process: exit 0, the failures in the run file', async () => {
     const out = join(dir, 'exit.json');

@@ -2,7 +2,7 @@
  * The benchmark harness: determinism across workers, shards and resumes; scores against independent
  * computations; plan validation; failures counted without stopping the run.
  */
-import { appendFileSync, existsSync, mkdirSync, mkdtempSync, readFileSync } from 'node:fs';
+import { appendFileSync, existsSync, mkdirSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
@@ -11,6 +11,7 @@ import normalRandom from '@stdlib/random-base-normal';
 import { checkPlanShape, planFingerprint, resolvePlan, type Plan } from '../src/harness/plan.js';
 import { runPlan } from '../src/harness/runner.js';
 import { main } from '../src/cli.js';
+import { planInputFromOptions } from '../src/commands/bench.js';
 import { buildContext } from '../src/harness/context.js';
 import { executeReplicate, planUnits } from '../src/harness/work.js';
 import { assembleRun, readRunFile, writeRunFile, type RunFile } from '../src/analysis/results.js';
@@ -344,6 +345,42 @@ describe('bad input', () => {
       resolvePlan({ scenarios: ['normal'], estimators: ['gaussian', 'vasicek', { id: 'kozachenko-leonenko', settings: { k: 0 } }] }, 'p.json'),
     ).toThrow('p.json: estimators[2].settings.k: 0 is not allowed; it must be an integer ≥ 1');
     expect(() => resolvePlan({ scenarios: ['normal', 'nope'], estimators: ['gaussian'] }, 'p.json')).toThrow(/p.json: scenarios\[1\]: unknown scenario "nope"/);
+  });
+
+  it("--time-limit and --memory-limit set the plan limits (over a plan file's), fingerprinted; bad values are one line", async () => {
+    const dir = mkdtempSync(join(tmpdir(), 'hhat-limits-'));
+    const file = join(dir, 'plan.json');
+    writeFileSync(
+      file,
+      JSON.stringify({
+        scenarios: ['normal'],
+        estimators: ['gaussian'],
+        limits: { estimateSeconds: 30, estimateSecondsPerPoint: 0.01, workerMemoryMiB: 2048 },
+      }),
+    );
+    expect(planInputFromOptions({ plan: file }).limits).toEqual({ estimateSeconds: 30, estimateSecondsPerPoint: 0.01, workerMemoryMiB: 2048 });
+    // A number of seconds on the command line is the limit at every n: the per-point term goes.
+    const flagged = planInputFromOptions({ plan: file, timeLimit: '2.5', memoryLimit: '512' });
+    expect(flagged.limits).toEqual({ estimateSeconds: 2.5, estimateSecondsPerPoint: 0, workerMemoryMiB: 512 });
+    expect(planInputFromOptions({ timeLimit: '1' }).limits).toEqual({ estimateSeconds: 1, estimateSecondsPerPoint: 0 });
+    const plain = resolvePlan(planInputFromOptions({ plan: file })).plan;
+    const limited = resolvePlan(flagged).plan;
+    expect(limited.limits).toEqual({ estimateSeconds: 2.5, estimateSecondsPerPoint: 0, workerMemoryMiB: 512 });
+    // A limit decides which estimates fail, so a run cannot be resumed under another one.
+    expect(planFingerprint(limited)).not.toBe(planFingerprint(plain));
+    for (const [flag, value, message] of [
+      ['--time-limit', '0', /^hhat: --time-limit 0 is not allowed; it must be a number of seconds above 0 and at most 86400 \(e\.g\. 5 or 0\.5\)$/],
+      ['--time-limit', 'soon', /^hhat: --time-limit soon is not allowed; it must be a number of seconds above 0/],
+      ['--time-limit', '86401', /at most 86400/],
+      ['--memory-limit', '63', /^hhat: --memory-limit 63 is not allowed; it must be an integer from 64 to 1048576$/],
+      ['--memory-limit', '1000.5', /must be an integer from 64/],
+    ] as const) {
+      let err = '';
+      const code = await main(['bench', flag, value, '--out', join(dir, 'never.json')], { out: () => {}, err: (t) => (err += t) });
+      expect(code).toBe(2);
+      expect(err.trim()).toMatch(message);
+    }
+    expect(existsSync(join(dir, 'never.json'))).toBe(false);
   });
 
   it('shards: i/N, auto from Slurm, Kubernetes indexed Jobs and CI variables; bad values are errors', () => {

@@ -14,8 +14,11 @@ import { defaultPlan } from '../harness/default-plan.js';
 import {
   collect,
   DEFAULT_LIMITS,
+  MAX_ESTIMATE_SECONDS,
   MAX_REPLICATES,
   parseFraction,
+  parseSeconds,
+  WORKER_MEMORY_MIB,
   planFingerprint,
   parseIntegerOption,
   parseLevel,
@@ -67,6 +70,8 @@ interface BenchOptions {
   chart?: boolean;
   level?: string;
   maxFailureRate?: string;
+  timeLimit?: string;
+  memoryLimit?: string;
   allowPlanModules?: boolean;
   force?: boolean;
 }
@@ -151,6 +156,15 @@ export function planInputFromOptions(options: BenchOptions): PlanInput {
   if (options.seed !== undefined) input.seed = parseIntegerOption('--seed', options.seed, 0);
   if (options.level !== undefined) input.verdicts = { ...input.verdicts, level: parseLevel(options.level) };
   if (options.maxFailureRate !== undefined) input.verdicts = { ...input.verdicts, maxFailureRate: parseFraction('--max-failure-rate', options.maxFailureRate) };
+  // One limit whatever n: what a user who types a number of seconds expects (the plan's per-point term is for plans).
+  if (options.timeLimit !== undefined)
+    input.limits = { ...input.limits, estimateSeconds: parseSeconds('--time-limit', options.timeLimit, MAX_ESTIMATE_SECONDS), estimateSecondsPerPoint: 0 };
+  if (options.memoryLimit !== undefined) {
+    input.limits = {
+      ...input.limits,
+      workerMemoryMiB: parseIntegerOption('--memory-limit', options.memoryLimit, WORKER_MEMORY_MIB.minimum, WORKER_MEMORY_MIB.maximum),
+    };
+  }
   if (options.estimatorModule?.length) input.modules = [...(input.modules ?? []), ...options.estimatorModule.map((m) => resolveModulePath(m))];
   if (options.estimatorCommand?.length) {
     const declared = options.estimatorCommand.map((text) =>
@@ -261,6 +275,11 @@ function declareBenchOptions(command: Command): Command {
     )
     .option('--level <c>', 'confidence level of each cell\'s best set (default 0.95; README, "Ranks and the best set")')
     .option('--max-failure-rate <p>', "an estimator failing on a larger share of a cell's replicates is ranked last there (default 0: any failure)")
+    .option(
+      '--time-limit <s>',
+      'seconds an estimate may run before it is stopped and counted as a failure, whatever n (default: 60 + 0.001 × n; README, "Estimators that misbehave")',
+    )
+    .option('--memory-limit <MiB>', 'heap limit of each worker thread in MiB; an estimate that passes it is counted as a failure (default 4096)')
     .option('--csv <file>', 'also write the score table as CSV')
     .option('--bits', 'print values in bits instead of nats (the run file is always in nats)')
     .option('--detail', 'also print every score of every cell')

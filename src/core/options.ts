@@ -8,6 +8,8 @@ import planSchema from '../schemas/plan.schema.json' with { type: 'json' };
 /** The plan schema's ranges, which the command line shares. */
 export const MAX_SAMPLE_SIZE = planSchema.properties.sampleSizes.items.maximum;
 export const MAX_REPLICATES = planSchema.properties.replicates.maximum;
+export const MAX_ESTIMATE_SECONDS = planSchema.properties.limits.properties.estimateSeconds.maximum;
+export const WORKER_MEMORY_MIB = planSchema.properties.limits.properties.workerMemoryMiB;
 
 /** Parses "100,1000,1e4" for --n. */
 export function parseSampleSizes(text: string): number[] {
@@ -56,6 +58,14 @@ export function parseFraction(flag: string, text: string): number {
   const value = Number(text);
   if (text.trim() === '' || !(value >= 0 && value <= 1))
     throw new UsageError(`${flag} ${text} is not allowed; it must be a number from 0 to 1 (e.g. 0.05 for 5%)`);
+  return value;
+}
+
+/** Seconds, more than 0 and at most `max` (e.g. 5 or 0.5). */
+export function parseSeconds(flag: string, text: string, max: number): number {
+  const value = Number(text);
+  if (text.trim() === '' || !(value > 0 && value <= max))
+    throw new UsageError(`${flag} ${text} is not allowed; it must be a number of seconds above 0 and at most ${max} (e.g. 5 or 0.5)`);
   return value;
 }
 

@@ -74,6 +74,14 @@ export function estimateTimeLimit(limits: Limits, n: number): number {
   return limits.estimateSeconds + limits.estimateSecondsPerPoint * n;
 }
 
+/** "5 s (the limit ...)": the time limit at sample size n and where it was set, for a failure's reason. */
+export function timeLimitText(limits: Limits, n: number): string {
+  const seconds = +estimateTimeLimit(limits, n).toPrecision(3);
+  return limits.estimateSecondsPerPoint === 0
+    ? `${seconds} s (the limit at every n: --time-limit, or plan limits.estimateSeconds)`
+    : `${seconds} s (the limit at n = ${n}: plan limits.estimateSeconds + estimateSecondsPerPoint × n)`;
+}
+
 export interface RobustnessPlan {
   /** One of the plan's sample sizes. */
   sampleSize: number;
@@ -388,4 +396,15 @@ export function drawsFingerprint(plan: Plan): string {
   return createHash('sha256').update(canonical).digest('hex');
 }
 
-export { collect, MAX_REPLICATES, parseFraction, parseIntegerOption, parseLevel, parsePhiList, parseSampleSizes } from '../core/options.js';
+export {
+  collect,
+  MAX_ESTIMATE_SECONDS,
+  MAX_REPLICATES,
+  parseFraction,
+  parseIntegerOption,
+  parseLevel,
+  parsePhiList,
+  parseSampleSizes,
+  parseSeconds,
+  WORKER_MEMORY_MIB,
+} from '../core/options.js';

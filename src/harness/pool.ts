@@ -15,7 +15,7 @@ import { rmSync } from 'node:fs';
 import { setFlagsFromString } from 'node:v8';
 import { Worker } from 'node:worker_threads';
 import { EnvironmentError, UsageError } from '../core/errors.js';
-import { estimateTimeLimit, type Plan } from './plan.js';
+import { estimateTimeLimit, timeLimitText, type Plan } from './plan.js';
 import { processMemoryLimitBytes } from '../core/memory.js';
 import { markerViews, newMarker, type WorkerJob, type WorkerMessage } from './pool-protocol.js';
 import { addReplicate, emptyUnitResult, type Unit, type UnitResult } from './work.js';
@@ -292,7 +292,7 @@ function stopOverdue(run: Supervisor, now: number): void {
     const limit = estimateTimeLimit(run.plan.limits, slot.job.unit.n);
     const grace = slot.slots[5] === 1 ? COMMAND_GRACE_SECONDS : 0;
     if (now - slot.clock[0] > (limit + grace) * 1000) {
-      slot.stopReason = `timed out after ${+limit.toPrecision(3)} s (the limit at n = ${slot.job.unit.n}: plan limits.estimateSeconds + estimateSecondsPerPoint × n)`;
+      slot.stopReason = `timed out after ${timeLimitText(run.plan.limits, slot.job.unit.n)}`;
       void slot.thread.terminate();
     }
   }

@@ -15,7 +15,7 @@ import type { Estimator, Sample, Settings } from '../../core/contracts.js';
 import { CommandError } from '../../core/errors.js';
 import { float64Bytes, npyFloat64Header } from '../../data/npy-write.js';
 import { replaceEstimator } from '../../../estimators/index.js';
-import { DEFAULT_LIMITS, estimateTimeLimit, type Limits } from '../plan.js';
+import { DEFAULT_LIMITS, estimateTimeLimit, timeLimitText, type Limits } from '../plan.js';
 import type { CommandDeclaration } from './declaration.js';
 import type { BrokerAsk, BrokerReply, EstimateRequest } from './protocol.js';
 
@@ -124,7 +124,7 @@ function estimateWith(declaration: CommandDeclaration, sample: Sample, settings:
     declaration,
     request: prepareRequest(sample, settings),
     timeoutMs: limit * 1000,
-    limitText: `${+limit.toPrecision(3)} s (the limit at n = ${sample.n}: plan limits.estimateSeconds + estimateSecondsPerPoint × n)`,
+    limitText: timeLimitText(limits, sample.n),
   });
   if (reply.started !== undefined) {
     startedPids.add(reply.started);
