@@ -159,8 +159,19 @@ describe('sizes the machine cannot hold', () => {
     // what fits is (3 GiB − 150 MB)/(2 × 368 bytes) = 4172860 points (one worker's 2 GiB would not hold 1e7 either).
     const machine = 24e9;
     expect(() => checkSampleMemory('n = 10000000', 1e7, 3, { workers: 2, totalBytes: machine })).not.toThrow();
-    expect(() => checkSampleMemory('n = 10000000', 1e7, 3, { workers: 2, totalBytes: machine, workerMemoryMiB: 1024 })).toThrow(
-      /needs about 7\.5 GB of memory .*more than the run's limit of 3\.2 GB \(2 × limits\.workerMemoryMiB 1024 MiB \+ 1024 MiB; a plan may raise limits\.workerMemoryMiB up to 85% of this machine's 24 GB\); use n ≤ 4172860$/,
+    expect(() =>
+      checkSampleMemory('n = 10000000', 1e7, 3, {
+        workers: 2,
+        totalBytes: machine,
+        workerMemoryMiB: 1024,
+        raise: "--memory-limit or a plan's limits.workerMemoryMiB",
+      }),
+    ).toThrow(
+      /needs about 7\.5 GB of memory .*more than the run's limit of 3\.2 GB \(2 × limits\.workerMemoryMiB 1024 MiB \+ 1024 MiB; --memory-limit or a plan's limits\.workerMemoryMiB may raise it up to 85% of this machine's 24 GB\); use n ≤ 4172860$/,
+    );
+    // Where no option raises the limit (advise), the message names none (and one worker would not hold it either).
+    expect(() => checkSampleMemory('--n 10000000', 1e7, 3, { workers: 2, totalBytes: machine, workerMemoryMiB: 1024 })).toThrow(
+      /the run's limit of 3\.2 GB \(2 × limits\.workerMemoryMiB 1024 MiB \+ 1024 MiB\); use n ≤ 4172860$/,
     );
     // With the default 4096 MiB per worker the limit is 9 GiB = 9.66 GB: it fits.
     expect(() => checkSampleMemory('n = 10000000', 1e7, 3, { workers: 2, totalBytes: machine, workerMemoryMiB: 4096 })).not.toThrow();

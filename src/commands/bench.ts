@@ -319,7 +319,11 @@ async function benchPlan(options: BenchOptions, workers: number, printErr: (text
   const { plan, scenarios } = resolvePlan(input, options.plan ?? 'command line');
   // Refused before any work starts, with what it would need, rather than a crash part way.
   const largestN = Math.max(...plan.sampleSizes);
-  checkSampleMemory(`n = ${largestN}`, largestN, Math.max(...scenarios.map((x) => x.dim)), { workers, workerMemoryMiB: plan.limits.workerMemoryMiB });
+  checkSampleMemory(`n = ${largestN}`, largestN, Math.max(...scenarios.map((x) => x.dim)), {
+    workers,
+    workerMemoryMiB: plan.limits.workerMemoryMiB,
+    raise: "--memory-limit or a plan's limits.workerMemoryMiB",
+  });
   return plan;
 }
 

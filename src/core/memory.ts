@@ -75,6 +75,8 @@ export interface MemoryCheckOptions {
    * process limit (processMemoryLimitBytes), which the pool's watchdog enforces, not just the machine.
    */
   workerMemoryMiB?: number;
+  /** How the user can raise workerMemoryMiB from where they are (e.g. "--memory-limit"), named in the message. */
+  raise?: string;
 }
 
 /**
@@ -102,7 +104,7 @@ export function checkSampleMemory(what: string, n: number, dim: number, options:
   const against =
     mib === undefined || limit >= MACHINE_FRACTION * total
       ? `this machine's ${formatBytes(total)}${mib === undefined ? '' : ` (a run may use ${Math.round(MACHINE_FRACTION * 100)}% of it)`}`
-      : `the run's limit of ${formatBytes(limit)} (${workers} × limits.workerMemoryMiB ${mib} MiB + ${SUPERVISOR_MIB} MiB; a plan may raise limits.workerMemoryMiB up to ${Math.round(MACHINE_FRACTION * 100)}% of this machine's ${formatBytes(total)})`;
+      : `the run's limit of ${formatBytes(limit)} (${workers} × limits.workerMemoryMiB ${mib} MiB + ${SUPERVISOR_MIB} MiB${options.raise ? `; ${options.raise} may raise it up to ${Math.round(MACHINE_FRACTION * 100)}% of this machine's ${formatBytes(total)}` : ''})`;
   throw new UsageError(
     `${what} needs about ${formatBytes(needed)} of memory (${workers} worker${workers === 1 ? '' : 's'} × ${n} points in d = ${dim}, about ${bytesPerWorker(1, dim)} bytes per point for the sample and the estimators' working copies), more than ${against}; use n ≤ ${Math.max(0, fitting)}${fewerWorkers}`,
   );

@@ -217,7 +217,7 @@ function onMessage(run: Supervisor, slot: Slot, message: WorkerMessage): void {
 /** The failure reason of a worker's 'error' event: its heap limit, or an error that escaped the estimator. */
 function errorReason(plan: Plan, error: Error & { code?: string }): string {
   return error.code === 'ERR_WORKER_OUT_OF_MEMORY'
-    ? `out of memory: the worker's heap passed its limit of ${plan.limits.workerMemoryMiB} MiB (plan limits.workerMemoryMiB)`
+    ? `out of memory: the worker's heap passed its limit of ${plan.limits.workerMemoryMiB} MiB (--memory-limit, or plan limits.workerMemoryMiB)`
     : `an error escaped the estimator (thrown asynchronously or while loading): ${error.message.split('\n')[0]}`;
 }
 
@@ -272,7 +272,7 @@ function stopMemoryHoarder(run: Supervisor, processLimitBytes: number): void {
   if (process.memoryUsage.rss() <= processLimitBytes) return;
   const running = [...run.workers].filter((w) => w.job && w.slots[0] >= 0 && !w.stopReason).sort((a, b) => a.clock[0] - b.clock[0]);
   if (running.length) {
-    running[0].stopReason = `out of memory: the process passed ${Math.round(processLimitBytes / 2 ** 20)} MiB while this estimate ran (plan limits.workerMemoryMiB per worker; typed arrays count here, outside the worker's heap)`;
+    running[0].stopReason = `out of memory: the process passed ${Math.round(processLimitBytes / 2 ** 20)} MiB while this estimate ran (--memory-limit, or plan limits.workerMemoryMiB, per worker; typed arrays count here, outside the worker's heap)`;
     void running[0].thread.terminate();
   }
 }
