@@ -2,7 +2,7 @@
  * The command line as a user meets it: catalogs as JSON, estimates of files, one-line errors with exit 2.
  */
 import { execFileSync, spawnSync } from 'node:child_process';
-import { mkdtempSync, writeFileSync, readFileSync } from 'node:fs';
+import { copyFileSync, mkdirSync, mkdtempSync, writeFileSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
@@ -100,6 +100,23 @@ describe('the installed command', () => {
     const bad = spawnSync('node', [bin, 'bench', '--frobnicate']);
     expect(bad.status).toBe(2);
     expect(bad.stderr.toString()).toMatch(/unknown option '--frobnicate'/);
+  });
+
+  it('a full disk on standard output is one line and exit 1, not a stack trace', () => {
+    // /dev/full: every write fails with ENOSPC (Linux).
+    const full = spawnSync('sh', ['-c', `node ${JSON.stringify(bin)} scenarios > /dev/full`], { encoding: 'utf8' });
+    expect(full.status).toBe(1);
+    expect(full.stderr).toBe('hhat: cannot write to standard output: the disk is full\n');
+  });
+
+  it('a copy that was never built (or whose build was stopped) says what to run', () => {
+    const copy = mkdtempSync(join(tmpdir(), 'hhat-unbuilt-'));
+    mkdirSync(join(copy, 'bin'));
+    copyFileSync(bin, join(copy, 'bin', 'hhat.js'));
+    writeFileSync(join(copy, 'package.json'), JSON.stringify({ type: 'module' }));
+    const res = spawnSync('node', [join(copy, 'bin', 'hhat.js'), '--version'], { encoding: 'utf8' });
+    expect(res.status).toBe(1);
+    expect(res.stderr).toMatch(/^hhat: the program is not built \(Cannot find module '.*\/dist\/src\/cli\.js' .*\); run `npm run build` in .*\n$/);
   });
 
   it('runs a small bench end to end and writes a run file', () => {

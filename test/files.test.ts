@@ -7,7 +7,7 @@
  * tests say so and are skipped.
  */
 import { execFileSync, spawn, spawnSync } from 'node:child_process';
-import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { existsSync, lstatSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, statSync, symlinkSync, writeFileSync } from 'node:fs';
 import { hostname, tmpdir } from 'node:os';
 import { dirname, join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
@@ -237,6 +237,38 @@ describe('atomic writes', () => {
     const target = join(dir, 'atomic', 'chunks.bin');
     writeFileAtomic(target, ['ab', Uint8Array.from([0, 255]), 'c']);
     expect([...readFileSync(target)]).toEqual([0x61, 0x62, 0, 255, 0x63]);
+  });
+
+  it('through a symbolic link write the file it points to and keep the link', () => {
+    const real = join(dir, 'atomic', 'linked-target.csv');
+    const link = join(dir, 'atomic', 'link.csv');
+    writeFileSync(real, 'old');
+    symlinkSync(real, link);
+    writeFileAtomic(link, 'new');
+    expect(lstatSync(link).isSymbolicLink()).toBe(true);
+    expect(readFileSync(real, 'utf8')).toBe('new');
+    rmSync(link);
+    rmSync(real);
+  });
+
+  it('to a pipe write into it, and leave it a pipe (a device such as /dev/null likewise is never replaced)', async () => {
+    const fifo = join(dir, 'atomic', 'fifo');
+    execFileSync('mkfifo', [fifo]);
+    const reader = spawn('cat', [fifo]);
+    let received = '';
+    reader.stdout.on('data', (d) => (received += d));
+    const closed = new Promise((resolve) => reader.once('close', resolve));
+    writeFileAtomic(fifo, 'through the pipe');
+    await closed;
+    expect(received).toBe('through the pipe');
+    expect(statSync(fifo).isFIFO()).toBe(true);
+    // bench's run file needs a real file beside its checkpoint and lock: refused before any work.
+    const { code, err } = await cli(['bench', '--scenario', 'normal', '--estimator', 'gaussian', '--n', '20', '--replicates', '2', '--out', fifo]);
+    expect(code).toBe(2);
+    expect(err).toBe(
+      `hhat: --out ${fifo} is a device, pipe or socket; a run file must be a file, with its checkpoint and lock beside it (write the tables with --csv, or the path with --quiet)\n`,
+    );
+    rmSync(fifo);
   });
 
   it('pass on an error thrown while producing a chunk, leaving the old file and no temporary', () => {

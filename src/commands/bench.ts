@@ -31,7 +31,7 @@ import {
 } from '../harness/plan.js';
 import { progressReporter } from '../views/progress.js';
 import { assembleRun, readRunFile, writeFileAtomic, writeRunFile, type RunFile } from '../analysis/results.js';
-import { acquireLock, ensureFolder, removeLeftoverTemporaries } from '../core/files.js';
+import { acquireLock, ensureFolder, isSpecialFile, removeLeftoverTemporaries } from '../core/files.js';
 import { checkSampleMemory } from '../core/memory.js';
 import { prefetchProvenance } from '../core/provenance.js';
 import { checkpointStarted, defaultWorkers, runPlan, type RunOptions, type RunOutcome, type Shard } from '../harness/runner.js';
@@ -305,6 +305,11 @@ function benchOutPath(options: BenchOptions, shard: Shard | undefined): string {
     out = checkpoint.slice(0, -'.checkpoint.jsonl'.length);
   }
   out ??= join('results', `run-${timestamp()}${shard ? `.shard-${shard.index}-of-${shard.count}` : ''}.json`);
+  if (isSpecialFile(out)) {
+    throw new UsageError(
+      `--out ${out} is a device, pipe or socket; a run file must be a file, with its checkpoint and lock beside it (write the tables with --csv, or the path with --quiet)`,
+    );
+  }
   return resolve(out);
 }
 

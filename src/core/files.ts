@@ -7,7 +7,23 @@
  *   const release = acquireLock('results/run.json');   // throws if another live process holds it
  */
 import { randomBytes } from 'node:crypto';
-import { closeSync, constants, fsyncSync, linkSync, mkdirSync, openSync, readdirSync, readFileSync, renameSync, rmSync, unlinkSync, writeSync } from 'node:fs';
+import {
+  closeSync,
+  constants,
+  fsyncSync,
+  linkSync,
+  lstatSync,
+  mkdirSync,
+  openSync,
+  readdirSync,
+  readFileSync,
+  realpathSync,
+  renameSync,
+  rmSync,
+  statSync,
+  unlinkSync,
+  writeSync,
+} from 'node:fs';
 import { hostname } from 'node:os';
 import { basename, dirname, join } from 'node:path';
 import { EnvironmentError } from './errors.js';
@@ -106,7 +122,9 @@ function isSystemError(error: unknown): boolean {
  * Content given as chunks (text or bytes, possibly produced lazily) is written one chunk at a time, so a large
  * file is never held whole; an error thrown while producing a chunk is passed on as it is.
  */
-export function writeFileAtomic(path: string, content: string | Uint8Array | Iterable<string | Uint8Array>, hint?: string): void {
+export function writeFileAtomic(given: string, content: string | Uint8Array | Iterable<string | Uint8Array>, hint?: string): void {
+  if (isSpecialFile(given)) return writeSpecial(given, content, hint);
+  const path = followLink(given);
   ensureFolder(dirname(path), hint);
   const temporary = `${path}.${randomBytes(8).toString('hex')}.tmp`;
   let fd: number | undefined;
@@ -121,11 +139,49 @@ export function writeFileAtomic(path: string, content: string | Uint8Array | Ite
     renameSync(temporary, path);
   } catch (error) {
     if (fd !== undefined) closeSync(fd);
-    rmSync(temporary, { force: true });
+    // A folder that refuses the write may refuse the clean-up too; the write's own error is the one to report.
+    try {
+      rmSync(temporary, { force: true });
+    } catch {
+      /* nothing was created, or nothing can be removed */
+    }
     if (!isSystemError(error) && typeof content !== 'string') throw error;
-    fail(error, 'write', path, hint);
+    fail(error, 'write', given, hint);
   }
   fsyncFolder(dirname(path));
+}
+
+/** Where a write to `path` lands: the file a symbolic link points to (replacing the link would cut it), else `path`. */
+function followLink(path: string): string {
+  try {
+    return lstatSync(path).isSymbolicLink() ? realpathSync(path) : path;
+  } catch {
+    return path; // missing, or a dangling link: written as a new file
+  }
+}
+
+/** A device, pipe or socket (/dev/null, /dev/stdout, a FIFO): written in place, never replaced by a file. */
+export function isSpecialFile(path: string): boolean {
+  try {
+    const stat = statSync(path);
+    return !stat.isFile() && !stat.isDirectory();
+  } catch {
+    return false;
+  }
+}
+
+function writeSpecial(path: string, content: string | Uint8Array | Iterable<string | Uint8Array>, hint?: string): void {
+  let fd: number | undefined;
+  try {
+    fd = openSync(path, 'w');
+    if (typeof content === 'string' || content instanceof Uint8Array) writeAll(fd, content);
+    else for (const chunk of content) writeAll(fd, chunk);
+  } catch (error) {
+    if (!isSystemError(error) && typeof content !== 'string') throw error;
+    fail(error, 'write', path, hint);
+  } finally {
+    if (fd !== undefined) closeSync(fd);
+  }
 }
 
 /**
