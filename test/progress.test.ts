@@ -5,13 +5,13 @@
  * and the command a resume with another plan prints.
  */
 import { spawn, spawnSync } from 'node:child_process';
-import { copyFileSync, existsSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { copyFileSync, existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync, symlinkSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
-import { join } from 'node:path';
+import { delimiter, join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { describeProgress, progressBar, progressReporter } from '../src/views/progress.js';
 import { timeLeftMs, type Progress } from '../src/harness/runner.js';
-import { hhatCommand, shellQuote } from '../src/core/shell.js';
+import { hhatCommand, invokedAs, shellQuote } from '../src/core/shell.js';
 import { ensureBuilt } from './helpers/built.js';
 
 const bin = join(__dirname, '..', 'bin', 'hhat.js');
@@ -64,9 +64,25 @@ describe('the progress line', () => {
 });
 
 describe('quoting a command line to copy', () => {
+  it('names hhat as it was called: npx hhat under npm, node PATH when run by path and not on PATH, else hhat', () => {
+    const home = mkdtempSync(join(tmpdir(), 'hhat-invoked-'));
+    mkdirSync(join(home, 'pkg', 'bin'), { recursive: true });
+    const script = join(home, 'pkg', 'bin', 'hhat.js');
+    writeFileSync(script, '');
+    expect(invokedAs({ npm_command: 'exec', PATH: '' }, script)).toBe('npx hhat');
+    expect(invokedAs({ PATH: '' }, script)).toBe(`node ${script}`);
+    expect(invokedAs({ PATH: '' }, '/usr/lib/node_modules/vitest/vitest.mjs')).toBe('hhat');
+    // A global or linked install: the shell's hhat is a link to this very script.
+    mkdirSync(join(home, 'on-path'));
+    symlinkSync(script, join(home, 'on-path', 'hhat'));
+    expect(invokedAs({ PATH: ['/nonexistent', join(home, 'on-path')].join(delimiter) }, script)).toBe('hhat');
+    // Another hhat on PATH is not this one.
+    expect(invokedAs({ PATH: join(home, 'on-path') }, join(home, 'other', 'bin', 'hhat.js'))).toBe(`node ${join(home, 'other', 'bin', 'hhat.js')}`);
+  });
+
   it('quotes only what a POSIX shell would split or expand (checked by running it through sh)', () => {
     const args = ['bench', '--scenario', 'gaussian:dim=2,rho=0.5', '--out', 'my run.json', "it's", '$HOME', ''];
-    expect(hhatCommand(args)).toBe(`hhat bench --scenario gaussian:dim=2,rho=0.5 --out 'my run.json' 'it'\\''s' '$HOME' ''`);
+    expect(hhatCommand(args)).toBe(`${invokedAs()} bench --scenario gaussian:dim=2,rho=0.5 --out 'my run.json' 'it'\\''s' '$HOME' ''`);
     // The shell itself (outside the project) gives the words back unchanged.
     const echoed = spawnSync('sh', ['-c', `printf '%s\\n' ${args.map(shellQuote).join(' ')}`], { encoding: 'utf8' }).stdout;
     expect(echoed).toBe(args.map((a) => `${a}\n`).join(''));
@@ -126,7 +142,8 @@ describe('an interrupted run and its resume', () => {
     expect(Number(last![2])).toBe(total);
     expect(saved).toBeLessThan(total);
     expect(lines.at(-2)).toBe(`interrupted: ${saved} of ${total} units are saved in ${checkpoint}`);
-    expect(lines.at(-1)).toBe(`continue with: ${hhatCommand([...plan, '--resume'])}`);
+    // The child was started as `node PATH/bin/hhat.js`, and the hint says so (unless npm's launcher ran the tests).
+    expect(lines.at(-1)).toBe(`continue with: ${[invokedAs(process.env, bin), ...plan, '--resume'].map((a, i) => (i ? shellQuote(a) : a)).join(' ')}`);
   }, 60_000);
 
   it('resumed with another command line, prints the command that started it', () => {
@@ -134,7 +151,7 @@ describe('an interrupted run and its resume', () => {
     const result = spawnSync(process.execPath, [bin, ...other], { cwd: dir, encoding: 'utf8' });
     expect(result.status).toBe(2);
     expect(result.stderr).toBe(
-      `hhat: ${checkpoint} belongs to another plan or shard; continue it with the command that started it: \`hhat bench --scenario normal --scenario exponential --estimator kozachenko-leonenko --estimator kernel --n 20000,50000 --replicates 200 --workers 2 --out run.json --no-chart --resume\`, or delete the checkpoint to start this plan over\n`,
+      `hhat: ${checkpoint} belongs to another plan or shard; continue it with the command that started it: \`${invokedAs(process.env, bin)} bench --scenario normal --scenario exponential --estimator kozachenko-leonenko --estimator kernel --n 20000,50000 --replicates 200 --workers 2 --out run.json --no-chart --resume\`, or delete the checkpoint to start this plan over\n`,
     );
   });
 
@@ -142,7 +159,9 @@ describe('an interrupted run and its resume', () => {
     const other = ['bench', '--scenario', 'normal', '--estimator', 'kernel', '--n', '100', '--replicates', '10', '--out', out, '--resume'];
     const result = spawnSync(process.execPath, [bin, ...other], { cwd: tmpdir(), encoding: 'utf8' });
     expect(result.status).toBe(2);
-    expect(result.stderr).toContain(`continue it with the command that started it (in ${dir}): \`hhat bench --scenario normal --scenario exponential`);
+    expect(result.stderr).toContain(
+      `continue it with the command that started it (in ${dir}): \`${invokedAs(process.env, bin)} bench --scenario normal --scenario exponential`,
+    );
   });
 
   it('started by this same command but another plan now (a --plan file edited since): says so', () => {

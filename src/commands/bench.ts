@@ -360,12 +360,14 @@ async function runWithSignals(
 ): Promise<{ outcome: RunOutcome; stoppedBy: NodeJS.Signals | null }> {
   const controller = new AbortController();
   let stoppedBy: NodeJS.Signals | null = null;
+  // Kept until the run has stopped, not once: a second signal (`timeout` and some terminals send two) would
+  // otherwise take the default action and kill the process before it says what it saved.
   const onSignal = (signal: NodeJS.Signals) => {
-    stoppedBy = signal;
+    stoppedBy ??= signal;
     controller.abort();
   };
-  process.once('SIGINT', onSignal);
-  process.once('SIGTERM', onSignal);
+  process.on('SIGINT', onSignal);
+  process.on('SIGTERM', onSignal);
   const progress = quiet ? undefined : progressReporter(process.stderr);
   // The run file names hhat's commit; git answers while the estimators run instead of after them.
   void prefetchProvenance();
