@@ -200,10 +200,34 @@ describe('checkpoints', () => {
     const out = join(dir, 'empty-checkpoint.json');
     writeFileSync(`${out}.checkpoint.jsonl`, '');
     const resumed = await cli(['bench', ...PLAN, '--out', out, '--quiet', '--resume']);
-    expect(resumed.err).toBe('');
+    expect(resumed.err).toBe(
+      `hhat: nothing to resume at ${out} (its checkpoint ${out}.checkpoint.jsonl is empty, from a crash before the first unit); starting the run afresh\n`,
+    );
     expect(resumed.code).toBe(0);
     expect(estimates(out)).toEqual(estimates(await referenceRun()));
   }, 60_000);
+
+  it('--resume with nothing to resume (a mistyped --out) runs afresh, and says so', async () => {
+    const out = join(dir, 'never-started.json');
+    const resumed = await cli([
+      'bench',
+      '--scenario',
+      'normal',
+      '--estimator',
+      'gaussian',
+      '--n',
+      '20',
+      '--replicates',
+      '2',
+      '--out',
+      out,
+      '--quiet',
+      '--resume',
+    ]);
+    expect(resumed.code).toBe(0);
+    expect(resumed.err).toBe(`hhat: nothing to resume at ${out} (no checkpoint ${out}.checkpoint.jsonl); starting the run afresh\n`);
+    expect(existsSync(out)).toBe(true);
+  });
 });
 
 describe('atomic writes', () => {

@@ -4,10 +4,11 @@
  * file, and resolved settings to four significant digits. Each check compares the characters printed.
  */
 import { spawnSync } from 'node:child_process';
-import { mkdirSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, readFileSync, symlinkSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
+import { readRunFile } from '../src/analysis/results.js';
 import { countOf, formatSetting, renderTable } from '../src/core/format.js';
 import { sniffFormat } from '../src/data/index.js';
 import { runCli as run } from './helpers/cli.js';
@@ -150,6 +151,15 @@ describe('item 3: --quiet prints only the run file path', () => {
     for (const [i, shard] of shards.entries()) expect((await run([...oneCell, '--shard', `${i + 1}/2`, '--out', shard, '--quiet'])).code).toBe(0);
     const merged = join(dir, 'quiet', 'merged.json');
     expect(await run(['merge', ...shards, '--out', merged, '--quiet'])).toEqual({ code: 0, out: `${resolve(merged)}\n`, err: '' });
+    // Never over one of its own shards, under another name for the same file included.
+    const alias = join(dir, 'quiet', 'link-to-shard-1.json');
+    symlinkSync(shards[0], alias);
+    expect(await run(['merge', ...shards, '--out', alias, '--quiet'])).toEqual({
+      code: 2,
+      out: '',
+      err: `hhat: --out ${alias} is one of the shards being merged (${shards[0]}); choose another --out\n`,
+    });
+    expect(readRunFile(shards[0]).shard).toEqual({ index: 1, count: 2 });
   });
 });
 

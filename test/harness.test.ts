@@ -347,7 +347,7 @@ describe('bad input', () => {
     expect(() => resolvePlan({ scenarios: ['normal', 'nope'], estimators: ['gaussian'] }, 'p.json')).toThrow(/p.json: scenarios\[1\]: unknown scenario "nope"/);
   });
 
-  it("--time-limit and --memory-limit set the plan limits (over a plan file's), fingerprinted; bad values are one line", async () => {
+  it("--time-limit and --memory-limit set the plan limits (over a plan file's), fingerprinted; bad or empty values are one line", async () => {
     const dir = mkdtempSync(join(tmpdir(), 'hhat-limits-'));
     const file = join(dir, 'plan.json');
     writeFileSync(
@@ -374,6 +374,10 @@ describe('bad input', () => {
       ['--time-limit', '86401', /at most 86400/],
       ['--memory-limit', '63', /^hhat: --memory-limit 63 is not allowed; it must be an integer from 64 to 1048576$/],
       ['--memory-limit', '1000.5', /must be an integer from 64/],
+      // An unset shell variable gives '': never a silent fall-back to the default plan or output.
+      ['--plan', '', /^hhat: --plan was given an empty value; it needs a file name$/],
+      ['--shard', ' ', /^hhat: --shard was given an empty value; it needs a slice, i\/N or auto$/],
+      ['--svg-dir', '', /^hhat: --svg-dir was given an empty value; it needs a folder name$/],
     ] as const) {
       let err = '';
       const code = await main(['bench', flag, value, '--out', join(dir, 'never.json')], { out: () => {}, err: (t) => (err += t) });

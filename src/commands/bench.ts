@@ -448,8 +448,27 @@ function printRunSummary(
 }
 
 /** `hhat bench`: builds the plan, runs it under the --out lock with a checkpoint, then writes and shows the run. */
+/** An empty file name or shard ('' from an unset shell variable) would otherwise fall back to a default unsaid. */
+function refuseEmptyValues(options: BenchOptions): void {
+  const given: [string, unknown][] = [
+    ['--plan', options.plan],
+    ['--out', options.out],
+    ['--csv', options.csv],
+    ['--report', options.report],
+    ['--svg-dir', options.svgDir],
+    ['--shard', options.shard],
+  ];
+  for (const [flag, value] of given) {
+    if (typeof value === 'string' && value.trim() === '')
+      throw new UsageError(
+        `${flag} was given an empty value; it needs ${flag === '--shard' ? 'a slice, i/N or auto' : flag === '--svg-dir' ? 'a folder name' : 'a file name'}`,
+      );
+  }
+}
+
 async function runBench(options: BenchOptions, args: string[], print: (text: string) => void, printErr: (text: string) => void): Promise<void> {
   const base: Base = options.bits ? 'bits' : 'nats';
+  refuseEmptyValues(options);
   const shard: Shard | undefined = options.shard ? parseShard(options.shard) : undefined;
   const workers = options.workers === undefined ? defaultWorkers() : parseIntegerOption('--workers', options.workers, 1, 256);
   const out = benchOutPath(options, shard);
@@ -468,6 +487,11 @@ async function runBench(options: BenchOptions, args: string[], print: (text: str
         printErr(`hhat: ${out} is already a finished run of this plan; nothing to resume`);
       } else print(`${out} is already a finished run of this plan; nothing to resume`);
       return;
+    }
+    // Not refused, so that a script may always pass --resume; but a mistyped --out must not start afresh unsaid.
+    if (options.resume && !checkpointStarted(checkpoint)) {
+      const why = existsSync(checkpoint) ? `its checkpoint ${checkpoint} is empty, from a crash before the first unit` : `no checkpoint ${checkpoint}`;
+      printErr(`hhat: nothing to resume at ${out} (${why}); starting the run afresh`);
     }
     const { outcome, stoppedBy } = await runWithSignals(
       plan,
@@ -492,6 +516,17 @@ async function runBench(options: BenchOptions, args: string[], print: (text: str
   }
 }
 
+/** Whether two paths name one file (the same path, or links to one), as far as the file system says. */
+function sameFile(a: string, b: string): boolean {
+  if (resolve(a) === resolve(b)) return true;
+  try {
+    const [x, y] = [statSync(a), statSync(b)];
+    return x.dev === y.dev && x.ino === y.ino;
+  } catch {
+    return false;
+  }
+}
+
 /** Adds `hhat bench` and `hhat merge` to the program. */
 export function registerBenchCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
   // The program's raw arguments (commander keeps them, untyped) are the command line after `hhat`: kept in the
@@ -508,6 +543,10 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
     .option('--bits', 'print values in bits instead of nats')
     .option('--quiet', "print only the merged run file's path on stdout")
     .action((files: string[], options: { out: string; bits?: boolean; quiet?: boolean }) => {
+      if (options.out.trim() === '') throw new UsageError('--out was given an empty value; it needs a file name');
+      // Writing over a shard would lose it if anything went wrong later; the merged file is a new one.
+      const input = files.find((f) => sameFile(f, options.out));
+      if (input) throw new UsageError(`--out ${options.out} is one of the shards being merged (${input}); choose another --out`);
       const run = mergeShards(files.map((path) => ({ path, run: readRunFile(path) })));
       writeRunFile(options.out, run);
       if (options.quiet) return print(resolve(options.out));
