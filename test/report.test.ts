@@ -98,6 +98,14 @@ describe('hhat report on a small run', () => {
     expect(html).toContain(String(run.plan.seed));
   });
 
+  it('an --svg-dir that cannot be a folder is one line, exit 1, not an internal error', async () => {
+    const inTheWay = join(dir, 'not-a-folder');
+    writeFileSync(inTheWay, 'a file');
+    const { code, err } = await cli(['report', runPath, '--out', join(dir, 'blocked.html'), '--svg-dir', inTheWay]);
+    expect(code).toBe(1);
+    expect(err).toBe(`hhat: cannot create the folder ${inTheWay}: a file of that name is in the way\n`);
+  });
+
   it('--bits converts every entropy axis and the true value (normal truth from @stdlib)', async () => {
     const report = await renderReport(run, { base: 'bits' });
     expect(report.warnings).toEqual([]);

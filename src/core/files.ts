@@ -46,6 +46,8 @@ export function describeFileError(error: unknown, action: string, path: string):
       return `cannot ${action} ${path}: a part of that path is a file, not a folder`;
     case 'EISDIR':
       return `cannot ${action} ${path}: it is a folder`;
+    case 'EEXIST':
+      return `cannot ${action} ${path}: a file of that name is in the way`;
     default:
       return `cannot ${action} ${path}: ${(error as Error).message}`;
   }

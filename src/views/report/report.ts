@@ -5,7 +5,7 @@
  */
 import { createHash } from 'node:crypto';
 import { join } from 'node:path';
-import { mkdirSync } from 'node:fs';
+import { ensureFolder } from '../../core/files.js';
 import type { TopLevelSpec } from 'vega-lite';
 import { formatValue, toBase, type Base } from '../../core/format.js';
 import { writeFileAtomic, type RunFile, type ScenarioInfo } from '../../analysis/results.js';
@@ -272,7 +272,7 @@ export async function writeReport(run: RunFile, options: WriteReportOptions): Pr
   const report = await renderReport(run, options);
   const files: string[] = [];
   if (options.svgDir) {
-    mkdirSync(options.svgDir, { recursive: true });
+    ensureFolder(options.svgDir);
     for (const chart of report.svgs) {
       const path = join(options.svgDir, `${chart.name}.svg`);
       writeFileAtomic(path, `<?xml version="1.0" encoding="UTF-8"?>\n${chart.svg}\n`);
