@@ -345,6 +345,10 @@ describe('bad input', () => {
       resolvePlan({ scenarios: ['normal'], estimators: ['gaussian', 'vasicek', { id: 'kozachenko-leonenko', settings: { k: 0 } }] }, 'p.json'),
     ).toThrow('p.json: estimators[2].settings.k: 0 is not allowed; it must be an integer ≥ 1');
     expect(() => resolvePlan({ scenarios: ['normal', 'nope'], estimators: ['gaussian'] }, 'p.json')).toThrow(/p.json: scenarios\[1\]: unknown scenario "nope"/);
+    // ψ(1e-320) ≈ −1e320 overflows: the entropy of so peaked a law is −∞ in doubles; no error can be measured against it.
+    expect(() => resolvePlan({ scenarios: ['normal', 'gamma:shape=1e-320'], estimators: ['gaussian'] }, 'p.json')).toThrow(
+      "p.json: scenarios[1]: gamma:shape=1e-320,scale=1 has a true entropy of −∞ nats; a benchmark needs a finite true value, so choose parameters that give one (`hhat scenarios` lists each family's)",
+    );
   });
 
   it("--time-limit and --memory-limit set the plan limits (over a plan file's), fingerprinted; bad or empty values are one line", async () => {

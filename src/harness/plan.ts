@@ -233,12 +233,21 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
   const quantity = input.quantity ?? 'entropy';
   const specs = input.phi ? phiScenarios(input.scenarios, input.phi, source) : input.scenarios;
   const scenarios = specs.map((spec, i) => {
+    let scenario;
     try {
-      return parseScenario(spec);
+      scenario = parseScenario(spec);
     } catch (error) {
       if (error instanceof UsageError) throw new UsageError(`${source}: scenarios[${i}]: ${error.message}`);
       throw error;
     }
+    // Errors are measured against the true value; an infinite one (a law squeezed to a point) leaves none to measure.
+    if (!Number.isFinite(scenario.truth)) {
+      const value = Number.isNaN(scenario.truth) ? 'not a number' : scenario.truth > 0 ? '+∞ nats' : '−∞ nats';
+      throw new UsageError(
+        `${source}: scenarios[${i}]: ${scenario.id} has a true ${scenario.quantity.replace(/-/g, ' ')} of ${value}; a benchmark needs a finite true value, so choose parameters that give one (\`hhat scenarios\` lists each family's)`,
+      );
+    }
+    return scenario;
   });
   // A declared command that no estimator entry names runs with its default settings: declaring it is asking for it.
   const named = new Set(input.estimators.map((e) => (typeof e === 'string' ? e.split(':')[0] : e.id)));
