@@ -376,7 +376,8 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   if (failedAsError) {
     for (const r of failed) printErr(`hhat: ${failureLine(r)}`);
     for (const h of hints) printErr(`  ${h}`);
-    if (!named) printErr(`hhat: none of the ${records.length} default estimators could run on this data`);
+    // Only when that is so: a failed --estimator-command beside defaults that ran is said by its own line above.
+    if (!named && failed.length + skipped.length === records.length) printErr(`hhat: none of the ${records.length} default estimators could run on this data`);
     process.exitCode = 1;
   } else {
     printErr(
