@@ -54,8 +54,7 @@ export async function buildProgram(io: CliIo, chosen?: CommandName): Promise<Com
     .helpOption('-h, --help', 'show this help')
     .helpCommand('help [command]', 'show the help of a command')
     .option('--debug', 'print stack traces on errors')
-    .showHelpAfterError('(run with --help for usage)')
-    .configureOutput({ writeOut: io.out, writeErr: io.err })
+    .configureOutput(outputFor(io, 'hhat', 'the commands and options'))
     .exitOverride();
   // bench.ts defines bench and merge together; every other module one command.
   const group = chosen === 'bench' || chosen === 'merge' ? ['bench', 'merge'] : chosen ? [chosen] : [];
@@ -68,8 +67,26 @@ export async function buildProgram(io: CliIo, chosen?: CommandName): Promise<Com
       program.command(name).description(COMMANDS[name]).allowUnknownOption().allowExcessArguments();
     }
   }
-  for (const command of program.commands) command.exitOverride().configureOutput({ writeOut: io.out, writeErr: io.err });
+  for (const command of program.commands) command.exitOverride().configureOutput(outputFor(io, `hhat ${command.name()}`));
   return program;
+}
+
+/**
+ * Where commander writes, and its complaints about the command line as one line like every other usage error:
+ * "hhat: unknown option '--bogus' (hhat bench --help lists the options)"; a suggestion it adds joins that line.
+ */
+function outputFor(io: CliIo, command: string, lists = 'the options') {
+  const oneLine = (text: string) =>
+    text
+      .replace(/^error: /, '')
+      .trim()
+      .replace(/\s*\n\s*\(Did you mean (.*)\)$/, '; did you mean $1')
+      .replace(/\s*\n\s*/g, ' ');
+  return {
+    writeOut: io.out,
+    writeErr: io.err,
+    outputError: (text: string, write: (text: string) => void) => write(`hhat: ${oneLine(text)} (${command} --help lists ${lists})\n`),
+  };
 }
 
 /**

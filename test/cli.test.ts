@@ -99,7 +99,14 @@ describe('the installed command', () => {
     expect(help).toMatch(/Usage: hhat/);
     const bad = spawnSync('node', [bin, 'bench', '--frobnicate']);
     expect(bad.status).toBe(2);
-    expect(bad.stderr.toString()).toMatch(/unknown option '--frobnicate'/);
+    expect(bad.stderr.toString()).toBe("hhat: unknown option '--frobnicate' (hhat bench --help lists the options)\n");
+    // Commander's own complaints are one line like every other usage error, its suggestion included.
+    const typo = spawnSync('node', [bin, 'bnch'], { encoding: 'utf8' });
+    expect(typo.status).toBe(2);
+    expect(typo.stderr).toBe("hhat: unknown command 'bnch'; did you mean bench? (hhat --help lists the commands and options)\n");
+    const missing = spawnSync('node', [bin, 'bench', '--n'], { encoding: 'utf8' });
+    expect(missing.status).toBe(2);
+    expect(missing.stderr).toBe("hhat: option '--n <sizes>' argument missing (hhat bench --help lists the options)\n");
   });
 
   it('a full disk on standard output is one line and exit 1, not a stack trace', () => {
