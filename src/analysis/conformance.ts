@@ -526,8 +526,17 @@ const knownValue: Body = (context) => {
   };
 };
 
-/** Each case must end in an EstimateError (or an error of its shape); a number, or any other error, fails. */
+/**
+ * Each case must end in an EstimateError (or an error of its shape); a number, or any other error, fails. So must
+ * the valid sample give a number: an estimator that refuses it too (a program that never starts, data it cannot
+ * take) would pass any refusal check without ever looking at the bad value.
+ */
 function refusals(context: Context, cases: { label: string; sample: Sample }[]): Omit<CheckResult, 'check'> {
+  const valid = attempt(context, context.base);
+  if (valid.kind !== 'value') {
+    const what = valid.kind === 'thrown' ? describeThrown(valid.error) : `${describeReturned(valid.value)} instead of a finite number`;
+    return { status: 'fail', evidence: `the valid sample is refused too (${what}), so a refusal of the bad cases shows nothing` };
+  }
   const parts: string[] = [];
   let ok = true;
   for (const { label, sample } of cases) {
