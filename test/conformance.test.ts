@@ -115,7 +115,9 @@ describe('every registered estimator passes the conformance suite', () => {
       'rejects-too-few',
     ]);
     for (const c of failed) expect(c.evidence).toMatch(/is not on a lattice \(no common step: the values are not on a lattice\); give step=Δ to bin it/);
-    expect(report.checks.find((c) => c.check === 'rejects-non-finite')!.evidence).toMatch(/^the valid sample is refused too \(EstimateError\(invalid-input\): lattice: /);
+    expect(report.checks.find((c) => c.check === 'rejects-non-finite')!.evidence).toMatch(
+      /^the valid sample is refused too \(EstimateError\(invalid-input\): lattice: /,
+    );
   });
   // The conformance samples' X is continuous, which the discrete-continuous estimator rightly refuses (X must be a
   // label); its invariances are checked on labelled data in test/mixed-mutual-information.test.ts. Here: the refusal
