@@ -11,7 +11,7 @@
  *
  *   npm run track                    # every plan with a baseline (entropy, MI and divergence must have one)
  *   npm run track -- divergence      # one or more plans by quantity
- *   npm run baseline                 # refresh all three baselines on purpose (after a deliberate change), from a
+ *   npm run baseline                 # refresh every committed baseline on purpose (after a deliberate change), from a
  *                                    # clean tree only: the commit that adds them must hold the code that made them
  */
 import { existsSync } from 'node:fs';

@@ -140,7 +140,8 @@ export interface AxisBins {
 export function histogramGrid(sample: Sample, { bins, scale, width }: GridSettings): AxisBins[] {
   const { n, dim } = sample;
   const id = 'histogram';
-  if (n < 1) throw new EstimateError('too-few-points', `${id}: the sample is empty`);
+  // One point says nothing of spread: its estimate would be log(width) whatever the data.
+  if (n < 2) throw new EstimateError('too-few-points', `${id}: needs at least 2 points, got ${n}`);
   checkFiniteValues(id, sample);
   const isRule = typeof bins === 'string';
   const grid: AxisBins[] = [];

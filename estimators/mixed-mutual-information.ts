@@ -183,9 +183,11 @@ export const mixedMutualInformationEstimators: Estimator[] = [
     reference: 'Ross, B. C. (2014). Mutual information between discrete and continuous data sets. PLoS ONE 9(2), e87357, eq. (2).',
     // Below n/4: each label needs more than k points for its k-th same-label neighbour.
     tuning: (_base, n) => [{ setting: 'k', values: MIXED_ORDERS.filter((k) => k < n / 4) }],
+    // X must be a label: the suite draws three labelled classes with Gaussian Y, whose I(X; Y) is known.
+    conformanceLaw: 'mi-label-gaussian:m=3,gap=1',
     lacks: {
       // The estimate compares distances within Y only; X enters as labels, so it is unchanged by any map of X
-      // that keeps the labels apart, but the conformance samples' continuous X is no label.
+      // that keeps the labels apart (a rescaling, a shift).
       symmetry: 'X is a label and Y a continuous variable: the two roles are not interchangeable',
     },
     estimate(sample, { k }) {

@@ -17,10 +17,11 @@
  * Samples are seeded draws from the project's scenarios (src/conformance-samples.ts), so a report is the same
  * on every run. The suite runs in the calling thread and has no time limit: an estimator that hangs hangs it.
  */
-import type { Estimator, InvarianceName, Quantity, Sample, Settings, SettingValue } from '../core/contracts.js';
-import { isEstimateError } from '../core/errors.js';
+import type { Estimator, InvarianceName, Quantity, Sample, Scenario, Settings, SettingValue } from '../core/contracts.js';
+import { UsageError, isEstimateError } from '../core/errors.js';
 import { formatSpec, validateSettings } from '../core/spec.js';
 import { checkDimension } from '../../estimators/index.js';
+import { parseScenario } from '../../scenarios/index.js';
 import {
   affineLaw,
   affineMap,
@@ -106,6 +107,8 @@ export interface ConformanceReport {
   /** The settings checked (validated, keywords unresolved) and their spec. */
   settings: Settings;
   spec: string;
+  /** The scenario whose draws the checks use (a divergence's pair and affine checks have their own). */
+  law: string;
   checks: CheckResult[];
   /** True when no check failed. */
   passed: boolean;
@@ -162,6 +165,9 @@ const SHIFTS = [5, -3.25] as const;
 interface Context {
   estimator: Estimator;
   settings: Settings;
+  /** The scenario the base and known-value samples are drawn from, and its dimension. */
+  law: string;
+  lawDim: number;
   /** The sample of the invariance and bad-input checks: INVARIANCE_N points at the smallest dimension supported. */
   base: Sample;
 }
@@ -320,6 +326,31 @@ function baseDimension(quantity: Quantity, minDim: number): number {
     : quantity === 'conditional-mutual-information'
       ? Math.max(3, minDim)
       : minDim;
+}
+
+/**
+ * The law the checks draw from: the estimator's own `conformanceLaw` when it declares one (a method for data of a
+ * kind, such as labels or values on a lattice), else the suite's law for the quantity at the smallest dimension.
+ * A declared law that is no scenario, or one of another quantity or a dimension outside `dims`, is a UsageError.
+ */
+function lawOf(estimator: Estimator): { law: string; dim: number } {
+  if (estimator.conformanceLaw === undefined) {
+    const dim = baseDimension(estimator.quantity, estimator.dims[0]);
+    return { law: lawFor(estimator.quantity, dim), dim };
+  }
+  const at = `${estimator.id}: conformanceLaw "${estimator.conformanceLaw}"`;
+  let scenario: Scenario;
+  try {
+    scenario = parseScenario(estimator.conformanceLaw);
+  } catch (error) {
+    throw new UsageError(`${at} is no scenario: ${error instanceof Error ? firstLine(error.message) : String(error)}`);
+  }
+  if (scenario.quantity !== estimator.quantity)
+    throw new UsageError(`${at} is a ${scenario.quantity} scenario; the estimator's quantity is ${estimator.quantity}`);
+  const [minDim, maxDim] = estimator.dims;
+  if (scenario.dim < minDim || scenario.dim > maxDim)
+    throw new UsageError(`${at} has d = ${scenario.dim}, outside the estimator's dims [${minDim}, ${maxDim === Infinity ? '∞' : maxDim}]`);
+  return { law: estimator.conformanceLaw, dim: scenario.dim };
 }
 
 const deterministic: Body = (context) => {
@@ -513,9 +544,9 @@ export function knownValueTolerance(quantity: Quantity, dim: number): number {
 }
 
 const knownValue: Body = (context) => {
-  const { quantity, dims } = context.estimator;
-  const dim = baseDimension(quantity, dims[0]);
-  const { sample, truth, id } = draw(lawFor(quantity, dim), KNOWN_VALUE_N);
+  const { quantity } = context.estimator;
+  const dim = context.lawDim;
+  const { sample, truth, id } = draw(context.law, KNOWN_VALUE_N);
   const got = estimateOn(context, sample, id);
   const difference = Math.abs(got - truth);
   const tolerance = knownValueTolerance(quantity, dim);
@@ -639,8 +670,8 @@ export interface ConformanceOptions {
 export function runConformance(estimator: Estimator, options: ConformanceOptions = {}): ConformanceReport {
   const started = performance.now();
   const settings = validateSettings(estimator.id, estimator.settings, options.settings ?? {});
-  const baseDim = baseDimension(estimator.quantity, estimator.dims[0]);
-  const context: Context = { estimator, settings, base: draw(lawFor(estimator.quantity, baseDim), INVARIANCE_N).sample };
+  const { law, dim: lawDim } = lawOf(estimator);
+  const context: Context = { estimator, settings, law, lawDim, base: draw(law, INVARIANCE_N).sample };
   const checks = checksFor(estimator.quantity)
     .filter((check) => !options.only || options.only.includes(check))
     .map((check): CheckResult => {
@@ -660,6 +691,7 @@ export function runConformance(estimator: Estimator, options: ConformanceOptions
       settings,
       estimator.settings.map((s) => s.name),
     ),
+    law,
     checks,
     passed: checks.every((c) => c.status !== 'fail'),
     milliseconds: performance.now() - started,

@@ -170,6 +170,14 @@ export interface Estimator<S extends Settings = Settings> {
    *   lacks: { scale: (settings) => (typeof settings.width === 'number' ? 'a fixed bin width is in data units' : undefined) }
    */
   lacks?: Partial<Record<InvarianceName, InvarianceException>>;
+  /**
+   * The scenario the conformance suite draws from (a spec in the estimator's smallest dimension, with a known
+   * truth of its quantity), for a method that takes data of a kind the quantity's usual draws are not: values on
+   * a lattice, an X of labels. Leave it out otherwise: the suite's own law for the quantity is used.
+   *
+   *   conformanceLaw: 'recorded[step=0.1;normal:mu=0,sigma=1]'
+   */
+  conformanceLaw?: string;
 }
 
 /** An estimator declaration whose settings' types are inferred from `settings`. */

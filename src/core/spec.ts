@@ -400,5 +400,7 @@ export function checkEstimator(where: string, value: unknown): Estimator {
   });
   checkDefaultSets(at, e.defaultFor, e as Estimator);
   if (e.lacks !== undefined) checkLacks(at, e.lacks);
+  if (e.conformanceLaw !== undefined && (typeof e.conformanceLaw !== 'string' || e.conformanceLaw.trim() === ''))
+    throw new UsageError(`${at}: conformanceLaw is ${show(e.conformanceLaw)}; when given it must be a scenario spec such as "recorded[step=0.1;normal]"`);
   return e as Estimator;
 }

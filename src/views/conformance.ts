@@ -30,7 +30,7 @@ export function formatConformanceText(reports: readonly ConformanceReport[]): st
       ...(failed ? [`${failed} FAIL`] : []),
       ...(count(report, 'not-applicable') ? [`${count(report, 'not-applicable')} not applicable`] : []),
     ];
-    const heading = `${report.spec} (${report.quantity}): ${failed ? 'fails' : 'passes'}: ${tally.join(', ')} (${(report.milliseconds / 1000).toFixed(1)} s)`;
+    const heading = `${report.spec} (${report.quantity}, samples from ${report.law}): ${failed ? 'fails' : 'passes'}: ${tally.join(', ')} (${(report.milliseconds / 1000).toFixed(1)} s)`;
     const lines = report.checks.map((c) => `  ${STATUS_WORD[c.status].padEnd(4)}  ${c.check.padEnd(width)}  ${c.evidence}`);
     return [heading, ...lines].join('\n');
   });
