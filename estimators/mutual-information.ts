@@ -490,7 +490,8 @@ const entropyEstimatorList: readonly Estimator[] = [
   ...nearestNeighbourEstimators,
   ...kernelEstimators,
   ...parametricEstimators,
-].filter((e) => e.quantity === 'entropy');
+  // The joint (X, Y) has d ≥ 2: a 1-D-only method (the spacing estimators) could never give H(X,Y).
+].filter((e) => e.quantity === 'entropy' && e.dims[1] >= 2);
 
 function entropyEstimatorIds(): string[] {
   return entropyEstimatorList.map((e) => e.id);
@@ -498,7 +499,7 @@ function entropyEstimatorIds(): string[] {
 
 const entropySetting = {
   name: 'entropy',
-  meaning: 'the entropy estimator used for H(X), H(Y) and H(X,Y): any built-in entropy estimator id, with its default settings',
+  meaning: 'the entropy estimator used for H(X), H(Y) and H(X,Y): a built-in entropy estimator for d ≥ 2, with its default settings',
   default: ENTROPY_DEFAULT,
   kind: 'choice',
   choices: entropyEstimatorIds(),

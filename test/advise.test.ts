@@ -432,6 +432,15 @@ describe('advice that no estimator is usable', () => {
     expect(Math.min(...summaries.map((x) => x.meanRmse.value).filter(Number.isFinite))).toBeGreaterThan(spread);
   });
 
+  it('the runner-up sentence prints the two RMSEs with the digits that tell them apart', async () => {
+    const { distinguishable } = await import('../src/analysis/advise/recommend.js');
+    // The oven-probe case: 0.0698 and 0.0703 both read 0.070 at three decimals.
+    expect(distinguishable(0.06981, 0.07032)).toEqual(['0.0698', '0.0703']);
+    expect(distinguishable(0.0666, 0.0741)).toEqual(['0.067', '0.074']);
+    expect(distinguishable(1.5, 1.5)).toEqual(['1.50000', '1.50000']);
+    expect(distinguishable(0.0012, 0.00131)).toEqual(['0.0012', '0.0013']);
+  });
+
   it('the runner-up is never an estimator that fails on some draws (constructed: the lowest RMSE marked failing)', async () => {
     const { runTargeted } = await import('../src/analysis/advise/benchmark.js');
     const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');

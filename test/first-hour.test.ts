@@ -323,6 +323,8 @@ describe('item 7: resolved settings to 4 significant digits in tables, every dig
 
   it('formatSetting', () => {
     expect([0.41351855420001377, 1234.5678, 5, 'auto', 1e-7 / 3, 2.5].map(formatSetting)).toEqual(['0.4135', '1235', '5', 'auto', '3.333e-8', '2.5']);
+    // A bandwidth on data near 1e300 is a double with no fraction, yet no count: it is rounded like the rest.
+    expect([2.370793044575606e299, 2 ** 53 - 1, 2 ** 53 + 2].map(formatSetting)).toEqual(['2.371e+299', '9007199254740991', '9.007e+15']);
   });
 });
 

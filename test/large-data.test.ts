@@ -267,6 +267,15 @@ describe('hhat advise FILE with more rows than the budget can analyse', () => {
     expect(advice.allRows!.value).not.toBeNull();
   });
 
+  it('a fixed replicate count sizes the rows by the whole benchmark share (60%), not the budgeted minimum’s 15%', () => {
+    const estimators = applicableEstimators(3);
+    const perReplicate = (m: number) => estimators.reduce((sum, e) => sum + predictedSeconds(parseEstimatorSpec(e), m, 3)!, 0) * 1.1;
+    const fixed = analysisRows(30000, 3, estimators, 20, 2, 1000, 0, 0.6);
+    expect(perReplicate(fixed) * 1000).toBeLessThanOrEqual(0.6 * 20 * 2 + 1e-9);
+    expect(perReplicate(fixed * 1.1) * 1000).toBeGreaterThan(0.6 * 20 * 2);
+    expect(fixed).toBeGreaterThan(analysisRows(30000, 3, estimators, 20, 2, 1000, 0));
+  });
+
   it('refuses a budget under which not even 200 rows fit, before any work, with the budget that would', async () => {
     const { values } = gaugeFile('advise-tiny', 3000);
     await expect(adviseFile({ n: 3000, dim: 3, data: values }, { budgetSeconds: 0.01, workers: 1 })).rejects.toThrow(

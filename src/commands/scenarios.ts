@@ -89,6 +89,11 @@ Spec syntax:
                                     "autocorrelated[phi=0.9;gamma:shape=2]"
   gaussian-mixture-mv[W:MEAN:COV;...] a d-dimensional Gaussian mixture (what hhat advise fits), e.g.
                                     "gaussian-mixture-mv[0.4:0,0:1,0.5,0.5,1;0.6:3,3:1,0,0,2]"
+  recorded[step=Δ;SPEC]             SPEC rounded to a lattice of step Δ (one per coordinate: Δ1/Δ2/…, 0 leaves
+                                    one as drawn); truth: the unrounded law's, e.g. "recorded[step=0.01;normal]"
+  cmi-gaussian-covariance[DX,DY;ROW;...]  conditional MI of a Gaussian (X, Y, Z) with any covariance: X the
+                                    first DX coordinates, Y the next DY, Z the rest, e.g.
+                                    "cmi-gaussian-covariance[1,1;1,0.5,0.3;0.5,1,0.4;0.3,0.4,1]"
 Quote specs with brackets or semicolons in the shell.`,
     )
     .action((specs: string[], options: { json?: boolean; bits?: boolean; dim?: string; tails?: string; support?: string; family?: string }) => {

@@ -60,8 +60,11 @@ export const SETTING_DIGITS = 4;
  * digits (a bandwidth of 0.41351855420001377 reads 0.4135), without trailing zeros.
  */
 export function formatSetting(value: unknown): string {
-  if (typeof value !== 'number' || Number.isInteger(value) || !Number.isFinite(value)) return String(value);
-  return String(Number(value.toPrecision(SETTING_DIGITS)));
+  // Safe integers only: every double beyond 2^53 is an integer, and 2.370793044575606e+299 is a bandwidth.
+  if (typeof value !== 'number' || Number.isSafeInteger(value) || !Number.isFinite(value)) return String(value);
+  const rounded = value.toPrecision(SETTING_DIGITS);
+  // Beyond 2^53, Number() would print 9.007e15 as 9007000000000000, a count it is not.
+  return Math.abs(value) >= 2 ** 53 ? rounded : String(Number(rounded));
 }
 
 /**

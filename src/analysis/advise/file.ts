@@ -148,7 +148,9 @@ const BOOTSTRAP_SLACK = 0.2;
 
 /**
  * The most rows advice can analyse within the budget: the largest m ≤ n at which (1) the predicted cost of
- * `replicates` benchmark replicates on `workers` threads is within ANALYSIS_SHARE of the budget, and (2)
+ * `replicates` benchmark replicates on `workers` threads is within `benchmarkShare` of the budget (ANALYSIS_SHARE
+ * for the minimum of a budgeted benchmark; BENCHMARK_SHARE for a fixed count, which has no pilot and no second
+ * round to make room for), and (2)
  * `resamples` bootstrap resamples (on one thread) of the slowest estimator whose cost grows no faster than
  * about n log n are within BOOTSTRAP_SHARE of it; rounded down to two digits. Estimators whose cost grows
  * like n² (a d ≥ 2 kernel) are left out of (2): shrinking every analysis to fit their interval would cost
@@ -163,13 +165,14 @@ export function analysisRows(
   workers: number,
   replicates: number,
   resamples = 100,
+  benchmarkShare = ANALYSIS_SHARE,
 ): number {
   const configured = estimators.map((spec) => parseEstimatorSpec(spec));
   const cost = (c: ConfiguredEstimator, m: number): number => predictedSeconds(c, m, dim) ?? 0;
   // Superlinear: doubling the rows more than (say) 2.5-folds the predicted time, at the sizes that matter here.
   const nearLinear = configured.filter((c) => cost(c, 20000) <= 2.5 * cost(c, 10000));
   const fits = (m: number): boolean =>
-    predictedReplicateSeconds(configured, m, dim) * PREDICTION_OVERHEAD * replicates <= ANALYSIS_SHARE * budgetSeconds * workers &&
+    predictedReplicateSeconds(configured, m, dim) * PREDICTION_OVERHEAD * replicates <= benchmarkShare * budgetSeconds * workers &&
     nearLinear.reduce((most, c) => Math.max(most, cost(c, m)), 0) * resamples <= BOOTSTRAP_SHARE * budgetSeconds;
   return largestRowsWhere(n, fits);
 }
@@ -338,6 +341,7 @@ function analysedSample(ctx: AdviceContext, fileSample: Sample, estimators: stri
     workers,
     minimumReplicates,
     ctx.level === null ? 0 : (options.resamples ?? options.minResamples ?? 100),
+    options.replicates === undefined ? ANALYSIS_SHARE : BENCHMARK_SHARE,
   );
   if (rows >= fileRows) return { sample: fileSample, subsample: null };
   const perReplicate = predictedReplicateSeconds(

@@ -165,6 +165,16 @@ function formatNats(x: number): string {
   return Math.abs(x) >= 0.01 ? x.toFixed(3) : x.toPrecision(2);
 }
 
+/** Two values in nats with the fewest significant digits (at least formatNats's, at most 6) that tell them apart. */
+export function distinguishable(a: number, b: number): [string, string] {
+  if (!Number.isFinite(a) || !Number.isFinite(b)) return [formatNats(a), formatNats(b)];
+  // formatNats shows 3 decimals from 0.01 up, else 2 significant digits.
+  const shown = (x: number) => (Math.abs(x) >= 0.01 ? Math.max(1, 3 + Math.floor(Math.log10(Math.abs(x))) + 1) : 2);
+  let digits = Math.min(shown(a), shown(b));
+  while (digits < 6 && a.toPrecision(digits) === b.toPrecision(digits)) digits++;
+  return [a.toPrecision(digits), b.toPrecision(digits)];
+}
+
 /** "the light-tailed ones", "every one", or "2 of 5" for a subset of the scenarios. */
 function describeSubset(subset: string[], all: ScenarioInfo[]): string {
   if (subset.length === all.length) return all.length === 1 ? 'it' : 'every one';
@@ -236,9 +246,11 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 
     const recommendedBest = new Set(bestSetScenarios(run, recommended.estimator));
     runnerUpTiedOn = bestSetScenarios(run, runnerUp.estimator).filter((s) => recommendedBest.has(s));
     if (count === 1) {
+      // Enough digits that the two RMSEs differ in print: "0.070 is worse than 0.070" reads as a contradiction.
+      const [mine, theirs] = distinguishable(recommended.meanRmse.value, runnerUp.meanRmse.value);
       tail = runnerUpTiedOn.length
-        ? `; the runner-up ${runnerUp.label} (${formatNats(runnerUp.meanRmse.value)}) cannot be told apart from it on the same draws`
-        : `; the runner-up ${runnerUp.label} (${formatNats(runnerUp.meanRmse.value)}) is clearly worse on the same draws`;
+        ? `; the runner-up ${runnerUp.label} (${theirs}) cannot be told apart from it on the same draws`
+        : `; the runner-up ${runnerUp.label} (${theirs} against ${mine}) is outside the 95% best set on the same draws`;
     } else {
       tail = runnerUpTiedOn.length
         ? `; the runner-up ${runnerUp.label} is in the best set too on ${describeSubset(runnerUpTiedOn, scenarios)}`
