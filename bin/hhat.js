@@ -20,6 +20,10 @@ process.stdout.on('error', (error) => {
   process.exit(1);
 });
 
+// Standard error carries progress and diagnostics; when it cannot be written (a full disk, a closed pipe) there
+// is no one left to tell, and the run must go on to write its results.
+process.stderr.on('error', () => {});
+
 main(process.argv.slice(2)).then(
   (code) => {
     process.exitCode = code;

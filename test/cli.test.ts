@@ -2,7 +2,7 @@
  * The command line as a user meets it: catalogs as JSON, estimates of files, one-line errors with exit 2.
  */
 import { execFileSync, spawnSync } from 'node:child_process';
-import { copyFileSync, mkdirSync, mkdtempSync, writeFileSync, readFileSync } from 'node:fs';
+import { copyFileSync, mkdirSync, mkdtempSync, readdirSync, writeFileSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
@@ -114,6 +114,16 @@ describe('the installed command', () => {
     const full = spawnSync('sh', ['-c', `node ${JSON.stringify(bin)} scenarios > /dev/full`], { encoding: 'utf8' });
     expect(full.status).toBe(1);
     expect(full.stderr).toBe('hhat: cannot write to standard output: the disk is full\n');
+  });
+
+  it('a standard error that cannot be written costs nothing: the run completes, its run file written, exit 0', () => {
+    const folder = mkdtempSync(join(tmpdir(), 'hhat-full-stderr-'));
+    const out = join(folder, 'run.json');
+    const args = ['bench', '--scenario', 'normal', '--estimator', 'vasicek', '--n', '100', '--replicates', '3', '--out', out];
+    const run = spawnSync('sh', ['-c', `node ${[bin, ...args].map((a) => JSON.stringify(a)).join(' ')} 2> /dev/full`], { encoding: 'utf8' });
+    expect(run.status).toBe(0);
+    expect(run.stdout).toContain(`run file: ${out}`);
+    expect(readdirSync(folder)).toEqual(['run.json']);
   });
 
   it('a copy that was never built (or whose build was stopped) says what to run', () => {

@@ -643,6 +643,11 @@ describe('hhat check', () => {
       [['check', empty], /exports no estimators/],
       [['check', example, '--estimator', 'kozachenko-leonenko'], /defines no estimator "kozachenko-leonenko"; it defines detrended-kozachenko-leonenko$/],
       [['check', example, '--estimator', 'detrended-kozachenko-leonenko:k=0'], /k=0 is not allowed/],
+      // Echoed as typed: 1e400 is read as Infinity, which the user never wrote.
+      [['check', '--estimator', 'histogram:width=1e400'], /^hhat: histogram: width=1e400 is not allowed; width must be one of none, or a number > 0$/],
+      // --quantity says what an --estimator-command measures; for built-ins or a module it would be ignored.
+      [['check', '--quantity', 'bogus'], /^hhat: --quantity bogus applies only to --estimator-command; the built-ins declare each estimator's quantity$/],
+      [['check', example, '--quantity', 'divergence'], /--quantity divergence applies only to --estimator-command; a module declares/],
     ];
     for (const [args, message] of cases) {
       const { code, err } = await runCli(args);

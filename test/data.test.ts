@@ -1,4 +1,5 @@
-import { mkdtempSync, readFileSync, rmSync, writeFileSync, mkdirSync } from 'node:fs';
+import { execFileSync, spawn } from 'node:child_process';
+import { mkdtempSync, readFileSync, rmSync, symlinkSync, writeFileSync, mkdirSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
@@ -522,6 +523,31 @@ describe('readSample', () => {
     expect(usageMessage(() => readSample(tempDir))).toBe(`cannot read data file ${tempDir}: it is a directory`);
     expect(usageMessage(() => readSample('data.xlsx'))).toBe('data.xlsx has extension ".xlsx"; allowed: .csv, .tsv, .tab, .txt, .dat, .json, .npy');
     expect(usageMessage(() => formatOf('data'))).toContain('data has no extension; allowed: .csv');
+  });
+
+  it('a device or pipe is read only as far as its bytes can be the format: /dev/zero is refused, not read forever', () => {
+    for (const [name, message] of [
+      ['zero.npy', 'is not a NumPy .npy file: it does not start with the bytes \\x93NUMPY'],
+      ['zero.json', 'line 1, column 1: invalid JSON'],
+      ['zero.csv', 'contains zero bytes: it looks like a binary file, not delimited text'],
+    ]) {
+      const link = join(tempDir, name);
+      symlinkSync('/dev/zero', link);
+      expect(usageMessage(() => readSample(link))).toContain(message);
+    }
+  });
+
+  it('a .npy on a pipe followed by endless bytes is read to where its header says the array ends', () => {
+    const fifo = join(tempDir, 'endless.npy');
+    execFileSync('mkfifo', [fifo]);
+    const npy = join(fixtureDir, 'f8_column_2d.npy');
+    // The writer adds zeros after the array until the reader closes the pipe (then it dies of SIGPIPE).
+    const writer = spawn('sh', ['-c', `cat "${npy}" /dev/zero > "${fifo}"`], { stdio: 'ignore' });
+    try {
+      expect(rows(readSample(fifo))).toEqual(rows(readSample(writeTemp('plain.npy', readFileSync(npy)))));
+    } finally {
+      writer.kill();
+    }
   });
 
   it('passes the path into parse errors', () => {

@@ -2,7 +2,7 @@
  * Estimator commands (src/harness/external/): declarations, the protocol's faults as failures with their reasons
  * (the rest of the run intact), no process or temporary file left behind, and the consent and fingerprint rules.
  */
-import { spawnSync } from 'node:child_process';
+import { spawn, spawnSync } from 'node:child_process';
 import { copyFileSync, existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -160,6 +160,27 @@ describe('faults: each a failure with its reason, the rest of the run intact', (
     expect(left).toBe('');
     expect(readdirSync(scratch)).toEqual([]);
   });
+});
+
+describe('a run stopped by a signal stops its commands, and what they started', () => {
+  it('SIGTERM to hhat alone, while a command behind a launcher sleeps in an estimate: no process is left', async () => {
+    const marker = `hhat-signal-test-${process.pid}`;
+    // A launcher that runs the program as its child (as a version manager's shim does), not with exec.
+    const launcher = join(dir, 'launcher.sh');
+    writeFileSync(launcher, `#!/bin/sh\npython3 "${faulty}" sleep ${marker}\n`, { mode: 0o755 });
+    const alive = () => spawnSync('pgrep', ['-f', `python3 ${faulty} sleep ${marker}`], { encoding: 'utf8' }).stdout.trim();
+    const args = [bin, 'bench', '--scenario', 'normal', '--estimator-command', `sleepy=${launcher}`, '--n', '50', '--replicates', '3'];
+    const child = spawn(process.execPath, [...args, '--time-limit', '600', '--out', 'signal-run.json'], { cwd: dir, stdio: 'ignore' });
+    const exited = new Promise<number | null>((done) => child.on('exit', (code) => done(code)));
+    // The second request sleeps: wait until the program is in it.
+    for (let i = 0; i < 300 && !alive(); i++) await new Promise((wait) => setTimeout(wait, 100));
+    expect(alive()).not.toBe('');
+    await new Promise((wait) => setTimeout(wait, 500));
+    child.kill('SIGTERM');
+    expect(await exited).toBe(143);
+    for (let i = 0; i < 20 && alive(); i++) await new Promise((wait) => setTimeout(wait, 100));
+    expect(alive()).toBe('');
+  }, 60_000);
 });
 
 describe('the Python example (examples/knn_entropy.py) in a bench, against an independent computation on the draws hhat draw exports', () => {

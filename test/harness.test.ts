@@ -124,6 +124,33 @@ describe('determinism', () => {
     expect(existsSync(`${out}.checkpoint.jsonl`)).toBe(false);
   });
 
+  it('every other output that is a folder is a usage mistake too, refused before any work (bench --csv/--report, report and merge --out)', async () => {
+    const folder = join(dir, 'outputs-folder');
+    mkdirSync(folder);
+    const run = join(dir, 'for-outputs.json');
+    const bench = ['bench', '--scenario', 'normal', '--estimator', 'vasicek', '--n', '100', '--replicates', '4'];
+    const cases: [string[], string][] = [
+      [
+        [...bench, '--out', join(dir, 'csv-run.json'), '--csv', folder],
+        `hhat: --csv ${folder} is a folder; give a file's path, e.g. --csv ${join(folder, 'scores.csv')}`,
+      ],
+      [
+        [...bench, '--out', join(dir, 'report-run.json'), '--report', folder],
+        `hhat: --report ${folder} is a folder; give a file's path, e.g. --report ${join(folder, 'report.html')}`,
+      ],
+      [[...bench, '--out', join(dir, 'svg-run.json'), '--svg-dir', folder], "hhat: --svg-dir writes the report's charts; give --report too"],
+      [['report', run, '--out', folder], `hhat: --out ${folder} is a folder; give a file's path, e.g. --out ${join(folder, 'report.html')}`],
+      [['merge', run, '--out', folder], `hhat: --out ${folder} is a folder; give a file's path, e.g. --out ${join(folder, 'run.json')}`],
+    ];
+    expect(await main([...bench, '--out', run, '--quiet'], { out: () => {}, err: () => {} })).toBe(0);
+    for (const [args, line] of cases) {
+      let err = '';
+      const code = await main(args, { out: () => {}, err: (t) => (err += `${t}\n`) });
+      expect({ args, code, err: err.trim().split('\n') }).toEqual({ args, code: 2, err: [line] });
+    }
+    for (const name of ['csv-run.json', 'report-run.json', 'svg-run.json']) expect(existsSync(join(dir, name))).toBe(false);
+  });
+
   it('a replicate whose every estimate already failed is not drawn again (a worker that died drawing it would die again)', () => {
     const context = buildContext(smallPlan());
     const [unit] = planUnits(context).units;

@@ -281,4 +281,18 @@ describe('units', () => {
     expect(convertEntropy(1.5, 3, unitFactor('mm', 'm'))).toBeCloseTo(1.5 - 3 * Math.log(1000), 12);
     expect(() => unitFactor('mm', 's')).toThrow(/same kind/);
   });
+
+  it('hhat convert: a value or factor beyond the double range is named as typed, exit 2', async () => {
+    const { runCli } = await import('./helpers/cli.js');
+    for (const [args, line] of [
+      [['convert', '1e400', '--factor', '2'], 'hhat: 1e400 is beyond the range of a double (about ±1.8e308); give the entropy value to convert'],
+      [['convert', '1', '--factor', '1e400'], 'hhat: --factor 1e400 is beyond the range of a double (about ±1.8e308)'],
+    ] as const) {
+      const { code, err } = await runCli([...args]);
+      expect({ code, err: err.trim() }).toEqual({ code: 2, err: line });
+    }
+    // A large factor is exact: 1 + log(1e20) nats.
+    const { out } = await runCli(['convert', '1', '--factor', '1e20']);
+    expect(out).toMatch(/^47\.05170186 nats/);
+  });
 });

@@ -31,7 +31,7 @@ import {
 } from '../harness/plan.js';
 import { progressReporter } from '../views/progress.js';
 import { assembleRun, readRunFile, writeFileAtomic, writeRunFile, type RunFile } from '../analysis/results.js';
-import { acquireLock, ensureFolder, isSpecialFile, removeLeftoverTemporaries } from '../core/files.js';
+import { acquireLock, ensureFolder, isSpecialFile, refuseFolderOutput, removeLeftoverTemporaries } from '../core/files.js';
 import { checkSampleMemory } from '../core/memory.js';
 import { prefetchProvenance } from '../core/provenance.js';
 import { checkpointStarted, defaultWorkers, runPlan, type RunOptions, type RunOutcome, type Shard } from '../harness/runner.js';
@@ -464,6 +464,10 @@ function refuseEmptyValues(options: BenchOptions): void {
         `${flag} was given an empty value; it needs ${flag === '--shard' ? 'a slice, i/N or auto' : flag === '--svg-dir' ? 'a folder name' : 'a file name'}`,
       );
   }
+  // Refused now, not after the run: the charts come with the report, and a folder cannot take a file's place.
+  if (options.svgDir !== undefined && !options.report) throw new UsageError("--svg-dir writes the report's charts; give --report too");
+  if (options.csv) refuseFolderOutput('--csv', options.csv, 'scores.csv');
+  if (typeof options.report === 'string') refuseFolderOutput('--report', options.report, 'report.html');
 }
 
 async function runBench(options: BenchOptions, args: string[], print: (text: string) => void, printErr: (text: string) => void): Promise<void> {
@@ -547,6 +551,7 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
       // Writing over a shard would lose it if anything went wrong later; the merged file is a new one.
       const input = files.find((f) => sameFile(f, options.out));
       if (input) throw new UsageError(`--out ${options.out} is one of the shards being merged (${input}); choose another --out`);
+      refuseFolderOutput('--out', options.out, 'run.json');
       const run = mergeShards(files.map((path) => ({ path, run: readRunFile(path) })));
       writeRunFile(options.out, run);
       if (options.quiet) return print(resolve(options.out));

@@ -55,21 +55,32 @@ export function registerCheckCommand(program: Command, print: (text: string) => 
     )
     .option('--json', 'print the reports as JSON, with the suite sizes and tolerances')
     .addHelpText('after', exitCodesHelp)
-    .action(async (module: string | undefined, options: { estimator?: string[]; json?: boolean; estimatorCommand?: string[]; quantity: string }) => {
-      if (module !== undefined && options.estimatorCommand?.length) throw new UsageError('give an estimator MODULE or --estimator-command, not both');
-      const candidates = options.estimatorCommand?.length
-        ? await commandEstimators(options.estimatorCommand, options.quantity)
-        : module === undefined
-          ? listEstimators()
-          : await loadEstimatorModules([module]);
-      const where = options.estimatorCommand?.length ? '--estimator-command' : module === undefined ? 'hhat' : `estimator module ${module}`;
-      const targets = chosen(candidates, options.estimator, where);
-      const reports = targets.map(({ estimator, settings }) => runConformance(estimator, { settings }));
-      print(options.json ? formatConformanceJson(reports, module ?? null) : formatConformanceText(reports));
-      const failed = failedChecks(reports);
-      if (failed.length) {
-        printErr(`hhat check: ${failed.length} of ${reports.length} estimator${reports.length === 1 ? '' : 's'} failed: ${failed.join('; ')}`);
-        process.exitCode = 1;
-      }
-    });
+    .action(
+      async (
+        module: string | undefined,
+        options: { estimator?: string[]; json?: boolean; estimatorCommand?: string[]; quantity: string },
+        command: Command,
+      ) => {
+        if (module !== undefined && options.estimatorCommand?.length) throw new UsageError('give an estimator MODULE or --estimator-command, not both');
+        // Modules and built-ins declare their quantity; a --quantity for them would be silently ignored.
+        if (!options.estimatorCommand?.length && command.getOptionValueSource('quantity') === 'cli')
+          throw new UsageError(
+            `--quantity ${options.quantity} applies only to --estimator-command; ${module === undefined ? 'the built-ins' : 'a module'} declare${module === undefined ? '' : 's'} each estimator's quantity`,
+          );
+        const candidates = options.estimatorCommand?.length
+          ? await commandEstimators(options.estimatorCommand, options.quantity)
+          : module === undefined
+            ? listEstimators()
+            : await loadEstimatorModules([module]);
+        const where = options.estimatorCommand?.length ? '--estimator-command' : module === undefined ? 'hhat' : `estimator module ${module}`;
+        const targets = chosen(candidates, options.estimator, where);
+        const reports = targets.map(({ estimator, settings }) => runConformance(estimator, { settings }));
+        print(options.json ? formatConformanceJson(reports, module ?? null) : formatConformanceText(reports));
+        const failed = failedChecks(reports);
+        if (failed.length) {
+          printErr(`hhat check: ${failed.length} of ${reports.length} estimator${reports.length === 1 ? '' : 's'} failed: ${failed.join('; ')}`);
+          process.exitCode = 1;
+        }
+      },
+    );
 }

@@ -18,13 +18,15 @@ export function registerConvertCommand(program: Command, print: (text: string) =
     .option('--bits', 'the value is in bits (and so is the answer)')
     .action((valueText: string, options: { from?: string; to?: string; factor?: string; dim: string; bits?: boolean }) => {
       const value = parseNumber(valueText);
-      if (value === undefined || !Number.isFinite(value)) throw new UsageError(`${valueText} is not a number; give the entropy value to convert`);
+      if (value === undefined) throw new UsageError(`${valueText} is not a number; give the entropy value to convert`);
+      if (!Number.isFinite(value)) throw new UsageError(`${valueText} is beyond the range of a double (about ±1.8e308); give the entropy value to convert`);
       const dim = parseIntegerOption('--dim', options.dim, 1);
       let factor: number;
       if (options.factor !== undefined) {
         if (options.from || options.to) throw new UsageError('give either --factor or --from and --to, not both');
         const c = parseNumber(options.factor);
         if (c === undefined) throw new UsageError(`--factor ${options.factor} is not a number`);
+        if (!Number.isFinite(c)) throw new UsageError(`--factor ${options.factor} is beyond the range of a double (about ±1.8e308)`);
         factor = c;
       } else {
         if (!options.from || !options.to) throw new UsageError('give --from and --to units (e.g. --from mm --to m), or --factor c');

@@ -4,6 +4,7 @@ import type { Command } from 'commander';
 import type { Base } from '../core/format.js';
 import { readRunFile } from '../analysis/results.js';
 import { writeReport } from '../views/report/report.js';
+import { refuseFolderOutput } from '../core/files.js';
 
 interface ReportCommandOptions {
   out?: string;
@@ -29,6 +30,7 @@ export function registerReportCommand(program: Command, print: (text: string) =>
       const run = readRunFile(runPath);
       const base: Base = options.bits ? 'bits' : 'nats';
       const out = options.out ? resolve(options.out) : defaultReportPath(runPath);
+      if (options.out) refuseFolderOutput('--out', options.out, 'report.html');
       const report = await writeReport(run, { base, out, svgDir: options.svgDir ? resolve(options.svgDir) : undefined });
       // None are expected: a warning from the chart compiler means a chart may be missing a mark.
       for (const warning of report.warnings) print(`warning: chart ${warning}`);

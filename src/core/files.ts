@@ -26,7 +26,21 @@ import {
 } from 'node:fs';
 import { hostname } from 'node:os';
 import { basename, dirname, join } from 'node:path';
-import { EnvironmentError } from './errors.js';
+import { EnvironmentError, UsageError } from './errors.js';
+
+/**
+ * Refuses an output path that is an existing folder, as a usage mistake (exit 2) before any work, naming a file
+ * inside it as an example; writing would otherwise fail at the end, as a failure of the machine.
+ */
+export function refuseFolderOutput(flag: string, path: string, exampleName: string): void {
+  let folder: boolean;
+  try {
+    folder = statSync(path).isDirectory();
+  } catch {
+    return;
+  }
+  if (folder) throw new UsageError(`${flag} ${path} is a folder; give a file's path, e.g. ${flag} ${join(path, exampleName)}`);
+}
 
 /** What a failed file operation means for the user, in words. */
 export function describeFileError(error: unknown, action: string, path: string): string {

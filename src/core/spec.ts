@@ -94,7 +94,9 @@ export function validateParams(owner: string, specs: readonly ParamSpec[], given
       value = parsed;
     }
     if (!inRange(value, spec)) {
-      throw new UsageError(`${owner}: ${spec.name}=${formatNumber(value)} is not allowed; ${spec.name} must be ${describeRange(spec)}`);
+      throw new UsageError(
+        `${owner}: ${spec.name}=${typeof raw === 'string' ? raw : formatNumber(value)} is not allowed; ${spec.name} must be ${describeRange(spec)}`,
+      );
     }
     out[spec.name] = value;
   }
@@ -193,7 +195,9 @@ export function checkSetting(owner: string, spec: SettingSpec, raw: SettingValue
   if (!allowsNumber) return fail(String(raw));
   const value = typeof raw === 'number' ? raw : parseNumber(raw);
   if (value === undefined) return fail(String(raw));
-  if (!inRange(value, { min: spec.min, max: spec.max, minExclusive: spec.minExclusive, integer })) return fail(formatNumber(value));
+  // As typed: 1e400 reads as Infinity, which the user never wrote.
+  if (!inRange(value, { min: spec.min, max: spec.max, minExclusive: spec.minExclusive, integer }))
+    return fail(typeof raw === 'string' ? raw : formatNumber(value));
   return value;
 }
 

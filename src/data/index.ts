@@ -15,7 +15,7 @@ import { UsageError } from '../core/errors.js';
 import { readFailureReason } from '../core/files.js';
 import { parseDelimited, readDelimitedFile, type Delimiter } from './delimited.js';
 import { parseJson } from './json.js';
-import { parseNpy } from './npy.js';
+import { npyByteLength, parseNpy } from './npy.js';
 import type { DataTable } from './table.js';
 
 export { parseDelimited, readDelimitedFile, type Delimiter } from './delimited.js';
@@ -95,15 +95,28 @@ export function sniffFormat(bytes: Uint8Array): DataFormat {
 }
 
 /** All of standard input; a terminal is refused, since the command would wait for typing nobody meant to do. */
-function readStandardInput(): Buffer {
+function readStandardInput(format: DataFormat | undefined): Buffer {
   if (isatty(0))
     throw new UsageError(`${STDIN_PATH} reads the sample from standard input, which is a terminal here; pipe the data in, e.g. cat data.csv | hhat estimate -`);
+  return readStream(0, format, (error) => new UsageError(`cannot read the sample from ${STDIN_NAME}: ${readFailureReason(error)}`));
+}
+
+/**
+ * A pipe's or a device's bytes, read in chunks until its end, or sooner where the bytes say no more are needed: a
+ * .npy ends where its header says the array does, and bytes that cannot be the format (no \x93NUMPY where a .npy
+ * is expected, a zero byte in text or JSON) stop the read at once, for the parser to name. Without that, a
+ * device such as /dev/zero, which never ends, would be read until memory ran out.
+ */
+function readStream(fd: number, format: DataFormat | undefined, failure: (error: unknown) => UsageError): Buffer {
   const chunks: Buffer[] = [];
   const chunk = Buffer.allocUnsafe(1 << 20);
-  for (;;) {
+  let total = 0;
+  let expected = Infinity;
+  let decided = false;
+  while (total < expected) {
     let read: number;
     try {
-      read = readSync(0, chunk, 0, chunk.length, null);
+      read = readSync(fd, chunk, 0, chunk.length, null);
     } catch (error) {
       const code = (error as NodeJS.ErrnoException).code;
       // A non-blocking pipe with nothing yet: wait a moment for the writer.
@@ -112,17 +125,33 @@ function readStandardInput(): Buffer {
         continue;
       }
       if (code === 'EOF') break;
-      throw new UsageError(`cannot read the sample from ${STDIN_NAME}: ${readFailureReason(error)}`);
+      throw failure(error);
     }
     if (read === 0) break;
     chunks.push(Buffer.from(chunk.subarray(0, read)));
+    total += read;
+    if (!decided && total >= 12) {
+      const head = Buffer.concat(chunks);
+      const kind = format ?? sniffFormat(head);
+      if (kind === 'npy') {
+        if (!NPY_MAGIC.every((b, i) => head[i] === b)) break;
+        const length = npyByteLength(head);
+        if (length !== null) [expected, decided] = [length, true];
+        // A header longer than what has come yet: decide on a later chunk (a v2 header may be up to 4 GiB).
+        else if (total > 1 << 24) decided = true;
+      } else {
+        if (head.includes(0)) break;
+        decided = true;
+      }
+    }
   }
-  return Buffer.concat(chunks);
+  const bytes = Buffer.concat(chunks);
+  return total > expected ? bytes.subarray(0, expected) : bytes;
 }
 
 /** Standard input as a sample: held in memory whole (a pipe cannot be read twice), its format sniffed unless given. */
 function readStandardInputSample(options: ReadOptions): LoadedSample {
-  const bytes = readStandardInput();
+  const bytes = readStandardInput(options.format);
   if (bytes.length === 0) throw new UsageError(`${STDIN_NAME} is empty; pipe a sample in (CSV/TSV/TXT, JSON or NumPy .npy)`);
   const format = options.format ?? sniffFormat(bytes);
   const parseOptions = { source: STDIN_NAME, columns: options.columns };
@@ -148,9 +177,9 @@ export function readSample(path: string, options: ReadOptions = {}): LoadedSampl
   const parseOptions = { source: path, columns: options.columns };
   switch (format) {
     case 'json':
-      return { ...parseJson(readBytes(path), parseOptions), format, source: path };
+      return { ...parseJson(readBytes(path, format), parseOptions), format, source: path };
     case 'npy':
-      return { ...parseNpy(readBytes(path), parseOptions), format, source: path };
+      return { ...parseNpy(readBytes(path, format), parseOptions), format, source: path };
     default: {
       // Delimited text is read through a window straight into the typed array of values, so a file of
       // hundreds of megabytes is never held as bytes or text in full.
@@ -182,11 +211,16 @@ function openFile(path: string): number {
   }
 }
 
-function readBytes(path: string): Buffer {
+function readBytes(path: string, format: DataFormat): Buffer {
+  let fd: number | undefined;
   try {
-    return readFileSync(path);
+    fd = openFile(path);
+    // A regular file is read whole; a pipe or a device only as far as its bytes can be the format.
+    return fstatSync(fd).isFile() ? readFileSync(fd) : readStream(fd, format, (error) => readError(path, error));
   } catch (error) {
-    throw readError(path, error);
+    throw error instanceof UsageError ? error : readError(path, error);
+  } finally {
+    if (fd !== undefined) closeSync(fd);
   }
 }
 

@@ -99,6 +99,30 @@ function parseHeader(text: string, source: string): NpyHeader {
   return { descr: descrMatch[2], fortranOrder: orderMatch[1] === 'True', shape };
 }
 
+/**
+ * The whole file's length in bytes as its header states it, from a prefix: null while the prefix ends inside the
+ * header, or when it is no .npy or its header cannot say (parseNpy then names the problem). Lets a reader of a
+ * pipe or device stop where the array ends instead of reading to an end that may never come.
+ */
+export function npyByteLength(prefix: Uint8Array): number | null {
+  if (prefix.length < 12 || magic.some((byte, i) => prefix[i] !== byte)) return null;
+  const major = prefix[6];
+  if (major !== 1 && major !== 2 && major !== 3) return null;
+  const view = new DataView(prefix.buffer, prefix.byteOffset, prefix.byteLength);
+  const headerStart = major === 1 ? 10 : 12;
+  const headerLength = major === 1 ? view.getUint16(8, true) : view.getUint32(8, true);
+  if (prefix.length < headerStart + headerLength) return null;
+  try {
+    const text = Buffer.from(prefix.buffer, prefix.byteOffset + headerStart, headerLength).toString(major === 3 ? 'utf8' : 'latin1');
+    const header = parseHeader(text, '');
+    const size = /^[<>|=][a-zA-Z](\d+)$/.exec(header.descr);
+    if (!size) return null;
+    return headerStart + headerLength + header.shape.reduce((a, b) => a * b, 1) * Number(size[1]);
+  } catch {
+    return null;
+  }
+}
+
 export function parseNpy(input: Uint8Array, options: ParseOptions = {}): NpyTable {
   const source = options.source ?? defaultSource;
   const bytes = input;

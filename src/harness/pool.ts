@@ -19,6 +19,7 @@ import { estimateTimeLimit, timeLimitText, type Plan } from './plan.js';
 import { processMemoryLimitBytes } from '../core/memory.js';
 import { markerViews, newMarker, type WorkerJob, type WorkerMessage } from './pool-protocol.js';
 import { addReplicate, emptyUnitResult, type Unit, type UnitResult } from './work.js';
+import { killCommandProcess } from './external/kill.js';
 
 export interface PoolOptions {
   size: number;
@@ -51,8 +52,10 @@ interface Slot {
   dead: boolean;
   /** The code family of the last unit it ran (work.ts, Unit.codeFamily), or null before its first. */
   codeFamily: string | null;
-  /** Estimator-command processes the worker started, and their temporary folders: stopped and removed when it ends. */
-  commands: { pid: number; folder: string }[];
+  /** The pids of its running estimator-command processes (shared with its broker thread; 0: none there). */
+  commandPids: Int32Array;
+  /** The temporary folders its estimator commands read from: removed when it ends. */
+  commandFolders: string[];
 }
 
 /** The supervisor's state: the jobs not yet handed out, the live workers, and how the run ends. */
@@ -74,6 +77,9 @@ function finish(run: Supervisor, interrupted: boolean, error?: unknown): void {
   if (run.finished) return;
   run.finished = true;
   if (run.watchdog) clearInterval(run.watchdog);
+  // Now, not on each thread's exit event: a run stopped by a signal may end the process before those come, and
+  // a command sleeping in an estimate never reads the end of its input.
+  for (const w of run.workers) stopCommands(w);
   for (const w of run.workers) void w.thread.terminate();
   if (error) run.reject(error);
   else run.resolve(interrupted);
@@ -182,8 +188,8 @@ function onDeath(run: Supervisor, slot: Slot, reason: string): void {
 
 /** Follows a worker's messages: ready (give it work), a replicate (keep it), its unit done (report it, give it more). */
 function onMessage(run: Supervisor, slot: Slot, message: WorkerMessage): void {
-  if (message.kind === 'command') {
-    slot.commands.push({ pid: message.pid, folder: message.folder });
+  if (message.kind === 'command-folder') {
+    slot.commandFolders.push(message.folder);
     return;
   }
   if (run.finished || slot.dead) return;
@@ -223,15 +229,12 @@ function errorReason(plan: Plan, error: Error & { code?: string }): string {
 
 /** Kills the estimator-command processes a worker started (a stopped worker cannot) and removes their temporary files. */
 function stopCommands(slot: Slot): void {
-  for (const { pid, folder } of slot.commands) {
-    try {
-      process.kill(pid, 'SIGKILL');
-    } catch {
-      // Already gone.
-    }
-    rmSync(folder, { recursive: true, force: true });
+  for (let i = 0; i < slot.commandPids.length; i++) {
+    const pid = Atomics.exchange(slot.commandPids, i, 0);
+    if (pid > 0) killCommandProcess(pid);
   }
-  slot.commands = [];
+  for (const folder of slot.commandFolders) rmSync(folder, { recursive: true, force: true });
+  slot.commandFolders = [];
 }
 
 /**
@@ -252,12 +255,12 @@ function startWorker(run: Supervisor): void {
   const { plan } = run;
   setWorkerHeapStart(plan.limits.workerMemoryMiB);
   const marker = newMarker();
-  const { slots, clock } = markerViews(marker);
+  const { slots, clock, commandPids } = markerViews(marker);
   const thread = new Worker(run.options.entry, {
     workerData: { plan, marker },
     resourceLimits: { maxOldGenerationSizeMb: plan.limits.workerMemoryMiB },
   });
-  const slot: Slot = { thread, slots, clock, ready: false, job: null, stopReason: null, dead: false, commands: [], codeFamily: null };
+  const slot: Slot = { thread, slots, clock, commandPids, ready: false, job: null, stopReason: null, dead: false, commandFolders: [], codeFamily: null };
   run.workers.add(slot);
   thread.on('message', (message: WorkerMessage) => onMessage(run, slot, message));
   thread.on('error', (error: Error & { code?: string }) => onDeath(run, slot, errorReason(plan, error)));

@@ -15,7 +15,7 @@ import { buildContext } from './context.js';
 import type { Plan } from './plan.js';
 import { executeReplicate, type Unit } from './work.js';
 import { useEstimatorModules } from './modules.js';
-import { isCommandEstimator, onCommandStarted, useEstimatorCommands } from './external/client.js';
+import { isCommandEstimator, onCommandFolder, shareCommandPids, useEstimatorCommands } from './external/client.js';
 import { markerViews, type WorkerJob, type WorkerMessage } from './pool-protocol.js';
 import { detachOnce } from '../math/wasm.js';
 
@@ -23,7 +23,7 @@ import { detachOnce } from '../math/wasm.js';
 detachOnce();
 
 const { plan, marker } = workerData as { plan: Plan; marker: SharedArrayBuffer };
-const { slots, clock } = markerViews(marker);
+const { slots, clock, commandPids } = markerViews(marker);
 
 /** The estimate running now (series, replicate, unit), or null. */
 let running: [number, number, number] | null = null;
@@ -89,8 +89,9 @@ function post(message: WorkerMessage, transfer: ArrayBuffer[] = []): void {
 }
 
 // A stopped thread cannot stop the command processes it started (a sleeping one never reads its closed stdin):
-// the supervisor kills them and removes their folder when this thread ends.
-onCommandStarted((pid, folder) => post({ kind: 'command', pid, folder }));
+// the supervisor kills them, by the pids the broker keeps in shared memory, and removes their folder.
+shareCommandPids(commandPids);
+onCommandFolder((folder) => post({ kind: 'command-folder', folder }));
 
 /**
  * Lets what the replicate's estimates left behind run, and fail, before the replicate is reported: one

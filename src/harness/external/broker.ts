@@ -9,9 +9,24 @@ import { spawn, type ChildProcess } from 'node:child_process';
 import { workerData, type MessagePort } from 'node:worker_threads';
 import { PROTOCOL_VERSION, type BrokerAsk, type BrokerReply } from './protocol.js';
 import type { CommandDeclaration } from './declaration.js';
+import { killCommandProcess } from './kill.js';
 
-const { port, flag } = workerData as { port: MessagePort; flag: SharedArrayBuffer };
+/**
+ * ownGroup: start each command in a process group of its own, so that stopping it stops what it started too (a
+ * launcher's child). Only under a supervisor (a worker thread's broker), which stops the groups itself: from the
+ * main thread a command stays in hhat's group, where a terminal's Ctrl-C reaches it as it reaches hhat.
+ */
+const { port, flag, pids, ownGroup } = workerData as { port: MessagePort; flag: SharedArrayBuffer; pids: Int32Array; ownGroup: boolean };
 const signal = new Int32Array(flag);
+
+/** Marks a started process in the shared pid slots (client.ts), where whoever stops the calling thread finds it. */
+function recordPid(pid: number): void {
+  for (let i = 0; i < pids.length; i++) if (Atomics.compareExchange(pids, i, 0, pid) === 0) return;
+}
+
+function forgetPid(pid: number): void {
+  for (let i = 0; i < pids.length; i++) if (Atomics.compareExchange(pids, i, pid, 0) === pid) return;
+}
 
 /** stderr kept per process, for failure reasons. */
 const STDERR_KEEP = 4096;
@@ -53,8 +68,9 @@ function stderrTail(proc: Running): string {
 
 function start(declaration: CommandDeclaration): Running {
   const [program, ...args] = declaration.command;
-  const child = spawn(program, args, { cwd: declaration.cwd, stdio: ['pipe', 'pipe', 'pipe'], windowsHide: true });
+  const child = spawn(program, args, { cwd: declaration.cwd, stdio: ['pipe', 'pipe', 'pipe'], windowsHide: true, detached: ownGroup });
   const proc: Running = { child, lines: [], partial: '', stderr: '', ended: null, wake: null, nextRequest: 1 };
+  if (child.pid !== undefined) recordPid(child.pid);
   const wake = () => {
     const w = proc.wake;
     proc.wake = null;
@@ -79,6 +95,7 @@ function start(declaration: CommandDeclaration): Running {
     wake();
   });
   child.on('exit', (code, killedBy) => {
+    if (child.pid !== undefined) forgetPid(child.pid);
     proc.ended ??= killedBy ? `was stopped by signal ${killedBy}` : `exited with code ${code}`;
     wake();
   });
@@ -88,7 +105,7 @@ function start(declaration: CommandDeclaration): Running {
 function stop(id: string, proc: Running): void {
   if (running.get(id) === proc) running.delete(id);
   if (proc.ended === null) proc.ended = 'was stopped';
-  proc.child.kill('SIGKILL');
+  if (proc.child.pid !== undefined) killCommandProcess(proc.child.pid);
 }
 
 /** The next line the process prints, or null when it ended or `timeoutMs` passed (then `timedOut` is true). */
@@ -157,12 +174,7 @@ async function started(ask: BrokerAsk): Promise<Running> {
 async function estimate(ask: BrokerAsk): Promise<BrokerReply> {
   const { declaration } = ask;
   let proc = running.get(declaration.id);
-  let startedPid: number | undefined;
-  if (!proc || proc.ended !== null) {
-    proc = await started(ask);
-    startedPid = proc.child.pid;
-  }
-  const withPid = (reply: BrokerReply): BrokerReply => (startedPid === undefined ? reply : { ...reply, started: startedPid });
+  if (!proc || proc.ended !== null) proc = await started(ask);
   const number = proc.nextRequest++;
   proc.stderr = '';
   send(proc, { request: number, ...ask.request });
@@ -170,18 +182,18 @@ async function estimate(ask: BrokerAsk): Promise<BrokerReply> {
   const failed = (why: string): BrokerReply => {
     const tail = stderrTail(proc);
     stop(declaration.id, proc);
-    return withPid({ ok: false, reason: `${declaration.id} ${why}${tail}; it was stopped and restarts for the next estimate` });
+    return { ok: false, reason: `${declaration.id} ${why}${tail}; it was stopped and restarts for the next estimate` };
   };
   if (timedOut) return failed(`timed out after ${ask.limitText} on request ${number}`);
   if (line === null) return failed(`${proc.ended} before answering request ${number}`);
   const reply = parse(line);
   if (!reply) return failed(`answered request ${number} with a line that is not a JSON object: ${shown(line)} (print diagnostics to stderr, not stdout)`);
   if (reply.request !== number) return failed(`answered request ${JSON.stringify(reply.request ?? null)} while request ${number} was asked`);
-  if (typeof reply.error === 'string') return withPid({ ok: false, reason: `${declaration.id} reported: ${reply.error}` });
+  if (typeof reply.error === 'string') return { ok: false, reason: `${declaration.id} reported: ${reply.error}` };
   if (typeof reply.value !== 'number' || !Number.isFinite(reply.value)) {
     return failed(`answered request ${number} with value ${JSON.stringify(reply.value ?? null)}, not a finite number`);
   }
-  return withPid({ ok: true, value: reply.value });
+  return { ok: true, value: reply.value };
 }
 
 port.on('message', (ask: BrokerAsk | { close: true }) => {

@@ -10,7 +10,7 @@
 import { closeSync, mkdtempSync, openSync, rmSync, writeSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { MessageChannel, receiveMessageOnPort, Worker, type MessagePort } from 'node:worker_threads';
+import { isMainThread, MessageChannel, receiveMessageOnPort, Worker, type MessagePort } from 'node:worker_threads';
 import type { Estimator, Sample, Settings } from '../../core/contracts.js';
 import { CommandError } from '../../core/errors.js';
 import { float64Bytes, npyFloat64Header } from '../../data/npy-write.js';
@@ -18,6 +18,8 @@ import { replaceEstimator } from '../../../estimators/index.js';
 import { DEFAULT_LIMITS, estimateTimeLimit, timeLimitText, type Limits } from '../plan.js';
 import type { CommandDeclaration } from './declaration.js';
 import type { BrokerAsk, BrokerReply, EstimateRequest } from './protocol.js';
+import { COMMAND_PID_SLOTS } from './protocol.js';
+import { killCommandProcess } from './kill.js';
 
 interface Bridge {
   broker: Worker;
@@ -28,13 +30,22 @@ interface Bridge {
 let bridge: Bridge | null = null;
 let folder: string | null = null;
 let limits: Limits = DEFAULT_LIMITS;
-/** Processes started from this thread, killed when the thread's process exits (a sleeping command never reads EOF). */
-const startedPids = new Set<number>();
-const startListeners: ((pid: number, folder: string) => void)[] = [];
+/**
+ * The pids of the command processes running for this thread, written by its broker the moment each starts (this
+ * thread is then blocked in an estimate that may never return): killed when the process exits, and, in a worker,
+ * shared with the supervisor, which stops them when it stops the worker.
+ */
+let commandPids: Int32Array = new Int32Array(new SharedArrayBuffer(4 * COMMAND_PID_SLOTS));
+const folderListeners: ((folder: string) => void)[] = [];
 
-/** Called with each command process this thread starts and its temporary folder (a worker tells its supervisor). */
-export function onCommandStarted(listener: (pid: number, folder: string) => void): void {
-  startListeners.push(listener);
+/** Makes the broker keep its pids in `slots` (a worker's shared marker), before any command starts. */
+export function shareCommandPids(slots: Int32Array): void {
+  commandPids = slots;
+}
+
+/** Called with the temporary folder this thread's commands read their samples from, when it is made. */
+export function onCommandFolder(listener: (folder: string) => void): void {
+  folderListeners.push(listener);
 }
 
 function brokerEntry(): URL {
@@ -43,12 +54,9 @@ function brokerEntry(): URL {
 }
 
 function cleanUp(): void {
-  for (const pid of startedPids) {
-    try {
-      process.kill(pid, 'SIGKILL');
-    } catch {
-      // Already gone.
-    }
+  for (let i = 0; i < commandPids.length; i++) {
+    const pid = Atomics.exchange(commandPids, i, 0);
+    if (pid > 0) killCommandProcess(pid);
   }
   if (folder) rmSync(folder, { recursive: true, force: true });
 }
@@ -60,7 +68,10 @@ function openBridge(): Bridge {
   cleanUpRegistered = true;
   const channel = new MessageChannel();
   const flag = new SharedArrayBuffer(4);
-  const broker = new Worker(brokerEntry(), { workerData: { port: channel.port2, flag }, transferList: [channel.port2] });
+  const broker = new Worker(brokerEntry(), {
+    workerData: { port: channel.port2, flag, pids: commandPids, ownGroup: !isMainThread },
+    transferList: [channel.port2],
+  });
   // Neither the broker nor its port may keep a finished command alive.
   broker.unref();
   channel.port1.unref();
@@ -101,7 +112,10 @@ function writeNpy(path: string, sample: Sample): void {
 
 /** The request for one sample: P's (or the only) .npy, and Q's for a divergence, written to this thread's folder. */
 function prepareRequest(sample: Sample, settings: Settings): EstimateRequest {
-  folder ??= mkdtempSync(join(tmpdir(), 'hhat-command-'));
+  if (folder === null) {
+    folder = mkdtempSync(join(tmpdir(), 'hhat-command-'));
+    for (const listener of folderListeners) listener(folder);
+  }
   const request: EstimateRequest = { npy: join(folder, 'p.npy'), n: sample.n, dim: sample.dim, settings };
   writeNpy(request.npy, sample);
   if (sample.xDim !== undefined) {
@@ -126,10 +140,6 @@ function estimateWith(declaration: CommandDeclaration, sample: Sample, settings:
     timeoutMs: limit * 1000,
     limitText: timeLimitText(limits, sample.n),
   });
-  if (reply.started !== undefined) {
-    startedPids.add(reply.started);
-    for (const listener of startListeners) listener(reply.started, folder!);
-  }
   if (!reply.ok) throw new CommandError(reply.reason);
   return reply.value;
 }
@@ -177,6 +187,5 @@ export function closeEstimatorCommands(): void {
     bridge = null;
   }
   cleanUp();
-  startedPids.clear();
   folder = null;
 }

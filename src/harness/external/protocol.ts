@@ -43,5 +43,8 @@ export interface BrokerAsk {
   limitText: string;
 }
 
-/** Broker → calling thread: the value, or why there is none; `started` names a process started for this ask. */
-export type BrokerReply = ({ ok: true; value: number } | { ok: false; reason: string }) & { started?: number };
+/** Broker → calling thread: the value, or why there is none. */
+export type BrokerReply = { ok: true; value: number } | { ok: false; reason: string };
+
+/** Room for the pids of one thread's running estimator commands (one process per command id). */
+export const COMMAND_PID_SLOTS = 8;
