@@ -22,6 +22,7 @@ import type {
   SettingValue,
 } from '../src/core/contracts.js';
 import { EstimateError, UsageError } from '../src/core/errors.js';
+import { didYouMean } from '../src/core/suggest.js';
 import {
   checkEstimator,
   DEQUANTIZE_FAMILIES,
@@ -142,7 +143,7 @@ export function hasEstimator(id: string): boolean {
 export function getEstimator(id: string): Estimator {
   const estimator = registry.get(id);
   if (!estimator) {
-    throw new UsageError(`unknown estimator "${id}"; known: ${[...registry.keys()].join(', ')}`);
+    throw new UsageError(`unknown estimator "${id}"${didYouMean(id, [...registry.keys()])}; known: ${[...registry.keys()].join(', ')}`);
   }
   return estimator;
 }

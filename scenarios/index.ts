@@ -12,6 +12,7 @@
  */
 import type { Scenario, ScenarioFamily } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
+import { didYouMean } from '../src/core/suggest.js';
 import { parseSpec, validateParams } from '../src/core/spec.js';
 import { gaussianMixtureFamily, monotoneMaps, transformedExamples, transformedScenario } from './mixtures-and-transforms.js';
 import { gaussianCovarianceScenario, multivariateFamilies, parseCovarianceArgument, productScenario } from './multivariate.js';
@@ -70,8 +71,8 @@ export function getFamily(id: string): ScenarioFamily {
 }
 
 function unknownScenario(id: string): UsageError {
-  const known = [...families.keys(), ...bracketFamilies.map((b) => b.id)].join(', ');
-  return new UsageError(`unknown scenario "${id}"; known families: ${known} (see \`hhat scenarios\`)`);
+  const names = [...families.keys(), ...bracketFamilies.map((b) => b.id)];
+  return new UsageError(`unknown scenario "${id}"${didYouMean(id, names)}; known families: ${names.join(', ')} (see \`hhat scenarios\`)`);
 }
 
 /** Splits on ';' outside nested brackets. */

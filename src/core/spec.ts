@@ -1,5 +1,6 @@
 import type { DefaultEntry, Estimator, EstimateDefaultEntry, InvarianceName, ParamSpec, SettingSpec, SettingValue, Settings } from './contracts.js';
 import { UsageError } from './errors.js';
+import { didYouMean } from './suggest.js';
 
 /** A parsed `id:key=value,key=value` string; values are kept as text until validated. */
 export interface ParsedSpec {
@@ -168,7 +169,7 @@ export function validateSettings(owner: string, specs: readonly SettingSpec[], g
   for (const key of Object.keys(given)) {
     if (!known.has(key)) {
       const allowed = specs.length ? specs.map((s) => s.name).join(', ') : 'none';
-      throw new UsageError(`${owner}: unknown setting "${key}"; allowed: ${allowed}`);
+      throw new UsageError(`${owner}: unknown setting "${key}"${didYouMean(key, [...known.keys()])}; allowed: ${allowed}`);
     }
   }
   const out: Settings = {};

@@ -4,6 +4,7 @@
  * c = (size of the old unit)/(size of the new unit).
  */
 import { UsageError } from './errors.js';
+import { didYouMean } from './suggest.js';
 
 /** Unit sizes in the SI base unit of their kind. */
 const UNITS: Record<string, { kind: string; size: number }> = {
@@ -49,7 +50,7 @@ export function unitFactor(from: string, to: string): number {
     [from, a],
     [to, b],
   ] as const) {
-    if (!unit) throw new UsageError(`unknown unit "${name}"; known: ${KNOWN_UNITS.join(', ')} (or give --factor c)`);
+    if (!unit) throw new UsageError(`unknown unit "${name}"${didYouMean(name, KNOWN_UNITS)}; known: ${KNOWN_UNITS.join(', ')} (or give --factor c)`);
   }
   if (a.kind !== b.kind) throw new UsageError(`cannot convert ${from} (${a.kind}) to ${to} (${b.kind}); both units must measure the same kind of quantity`);
   return a.size / b.size;

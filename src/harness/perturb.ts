@@ -19,6 +19,7 @@ import { createHash } from 'node:crypto';
 import type { Sample, Scenario, UnivariateDensity } from '../core/contracts.js';
 import { withRows } from '../core/sample.js';
 import { UsageError } from '../core/errors.js';
+import { didYouMean } from '../core/suggest.js';
 import { rngFromSeed } from '../core/rng.js';
 import { formatSpec, parseNumber, parseSpec } from '../core/spec.js';
 import { expectation } from '../../scenarios/build.js';
@@ -307,7 +308,7 @@ function parseEntropyPerturbation(text: string, id: string, values: Record<strin
   const build = Object.hasOwn(ENTROPY_PERTURBATIONS, id) ? ENTROPY_PERTURBATIONS[id] : undefined;
   if (!build)
     throw new UsageError(
-      `unknown perturbation "${id}"; known: ${PERTURBATION_KINDS.join(', ')} (e.g. rescale:c=1000, monotone:map=asinh, affine:condition=10, quantize:step=0.1, contaminate:fraction=0.01)`,
+      `unknown perturbation "${id}"${didYouMean(id, PERTURBATION_KINDS)}; known: ${PERTURBATION_KINDS.join(', ')} (e.g. rescale:c=1000, monotone:map=asinh, affine:condition=10, quantize:step=0.1, contaminate:fraction=0.01)`,
     );
   return build(text, values);
 }
