@@ -432,6 +432,17 @@ describe('advice that no estimator is usable', () => {
     expect(Math.min(...summaries.map((x) => x.meanRmse.value).filter(Number.isFinite))).toBeGreaterThan(spread);
   });
 
+  it('a budgeted benchmark in two rounds draws what --replicates R draws: the same estimates, cell by cell', async () => {
+    const { runTargeted } = await import('../src/analysis/advise/benchmark.js');
+    const base = { scenarios: ['normal', 'laplace'], estimators: ['kozachenko-leonenko', 'vasicek', 'gaussian'], n: 200, workers: 2 };
+    const budgeted = await runTargeted({ ...base, budgetSeconds: 4, minReplicates: 10, maxReplicates: 400 });
+    expect(budgeted.rounds).toHaveLength(2);
+    const fixed = await runTargeted({ ...base, budgetSeconds: 60, minReplicates: budgeted.replicates, maxReplicates: budgeted.replicates });
+    expect(fixed.rounds).toHaveLength(1);
+    const estimates = (run: typeof fixed.run) => run.cells.map((c) => `${c.scenario}|${c.estimator}|${c.role}|${JSON.stringify(c.estimates)}`);
+    expect(estimates(budgeted.run)).toEqual(estimates(fixed.run));
+  });
+
   it('the runner-up sentence prints the two RMSEs with the digits that tell them apart', async () => {
     const { distinguishable } = await import('../src/analysis/advise/recommend.js');
     // The oven-probe case: 0.0698 and 0.0703 both read 0.070 at three decimals.

@@ -79,6 +79,19 @@ describe('determinism', () => {
     expect(merged.rankings).toEqual(one.rankings);
   });
 
+  it('a run with replicateOffset k continues the draws: its replicates are replicates k.. of the full run, on threads and in-process', async () => {
+    const plan = smallPlan();
+    const full = assembleRun(await runPlan(plan, { workers: 1, isolation: 'in-process' }), null);
+    const tail = resolvePlan({ ...plan, replicates: 5 }).plan;
+    for (const isolation of ['threads', 'in-process'] as const) {
+      const continued = assembleRun(await runPlan(tail, { workers: 2, isolation, replicateOffset: 7 }), null);
+      expect(continued.cells.map((c) => `${c.scenario}|${c.estimator}|${c.n}|${JSON.stringify(c.estimates)}`)).toEqual(
+        full.cells.map((c) => `${c.scenario}|${c.estimator}|${c.n}|${JSON.stringify(c.estimates.slice(7, 12))}`),
+      );
+    }
+    await expect(runPlan(tail, { replicateOffset: 7, checkpointPath: join(dir, 'offset.checkpoint.jsonl') })).rejects.toThrow(/keeps no checkpoint/);
+  });
+
   it('a checkpoint from another plan is refused on resume, and an existing one is never overwritten silently', async () => {
     const plan = smallPlan();
     const checkpointPath = join(dir, 'other.checkpoint.jsonl');

@@ -30,7 +30,7 @@ function dequantizedTwins(estimators: ConfiguredEstimator[], taken: Set<string>,
  * for a monotone map is a quadrature per coordinate; a worker only applies the perturbations, and the main thread
  * (which decides which ones apply) keeps the shifts.
  */
-export function buildContext(plan: Plan, { shifts = true }: { shifts?: boolean } = {}): WorkContext {
+export function buildContext(plan: Plan, { shifts = true, replicateOffset = 0 }: { shifts?: boolean; replicateOffset?: number } = {}): WorkContext {
   // A Plan is a valid PlanInput: resolving it again yields the same plan, with its scenarios and estimators.
   const resolved = resolvePlan(plan);
   const { scenarios, estimators } = resolved;
@@ -58,5 +58,6 @@ export function buildContext(plan: Plan, { shifts = true }: { shifts?: boolean }
     all: [...estimators, ...tuning.map((t) => t.configured), ...dequantized.map((t) => t.configured)],
     perturbations,
     prepared: scenarios.map((s) => perturbations.map((p) => p.prepare(s, { shiftNeeded: shifts }))),
+    replicateOffset,
   };
 }

@@ -30,6 +30,8 @@ export interface PoolOptions {
   /** How often the watchdog looks at the running estimates, ms. */
   watchInterval?: number;
   onWarning?: (text: string) => void;
+  /** Passed to each worker's context (work.ts, WorkContext.replicateOffset). */
+  replicateOffset?: number;
 }
 
 interface Job {
@@ -257,7 +259,7 @@ function startWorker(run: Supervisor): void {
   const marker = newMarker();
   const { slots, clock, commandPids } = markerViews(marker);
   const thread = new Worker(run.options.entry, {
-    workerData: { plan, marker },
+    workerData: { plan, marker, replicateOffset: run.options.replicateOffset ?? 0 },
     resourceLimits: { maxOldGenerationSizeMb: plan.limits.workerMemoryMiB },
   });
   const slot: Slot = { thread, slots, clock, commandPids, ready: false, job: null, stopReason: null, dead: false, commandFolders: [], codeFamily: null };

@@ -67,6 +67,11 @@ export interface RunOptions {
    * resume with another plan can say which command made it.
    */
   command?: string[];
+  /**
+   * Replicate r draws the seed's replicate r + replicateOffset (work.ts, WorkContext): a run that continues an
+   * earlier one's draws. Only for runs kept in memory: a checkpoint records replicates by their own number.
+   */
+  replicateOffset?: number;
 }
 
 export interface RunOutcome {
@@ -406,7 +411,14 @@ async function runInProcess(pending: Unit[], context: WorkContext, record: (resu
 async function runPending(pending: Unit[], context: WorkContext, workers: number, options: RunOptions, record: (result: UnitResult) => void): Promise<boolean> {
   if (options.isolation === 'in-process') return runInProcess(pending, context, record, options.signal);
   if (!pending.length) return false;
-  return runOnPool(context.plan, pending, { size: workers, entry: workerEntry(), onResult: record, signal: options.signal, onWarning: options.onWarning });
+  return runOnPool(context.plan, pending, {
+    size: workers,
+    entry: workerEntry(),
+    onResult: record,
+    signal: options.signal,
+    onWarning: options.onWarning,
+    replicateOffset: context.replicateOffset,
+  });
 }
 
 /** Appends the session's line (workers, wall time, units) to the checkpoint and closes it. */
@@ -422,7 +434,9 @@ function closeCheckpoint(appender: Appender | null, session: Session): void {
 /** Runs the plan's owned units (after the checkpoint's, on resume) and returns their results with this session's record. */
 export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<RunOutcome> {
   const started = performance.now();
-  const context = buildContext(plan);
+  const replicateOffset = options.replicateOffset ?? 0;
+  if (replicateOffset !== 0 && options.checkpointPath) throw new Error("a run that continues another run's draws keeps no checkpoint");
+  const context = buildContext(plan, { replicateOffset });
   refuseUnseenOnThreads(context, options.isolation);
   // Digesting the code reads every file of hhat and of the modules: once per run.
   const code = planCode(context.plan);

@@ -64,6 +64,11 @@ export interface WorkContext {
   perturbations: Perturbation[];
   /** Per scenario and perturbation: the prepared perturbation, or why it does not apply. */
   prepared: (PreparedPerturbation | { skip: string })[][];
+  /**
+   * Replicate r of this run draws the seed's replicate r + replicateOffset: a second run of the same plan that
+   * continues the first's draws instead of starting over (advice's second round). 0 for every saved run.
+   */
+  replicateOffset: number;
 }
 
 /**
@@ -191,9 +196,10 @@ export function executeReplicate(unit: Unit, context: WorkContext, replicate: nu
   // Every estimate already failed elsewhere (a worker died drawing this sample, say): do not draw it again.
   if (hooks.skip && unit.series.every((_, k) => hooks.skip!(k))) return { replicate, values, timeMs, failures };
   const variants = [...new Set(unit.series.map((s) => s.variant))];
-  const original = drawReplicate(scenario, plan.seed, unit.n, replicate);
+  const drawn = replicate + context.replicateOffset;
+  const original = drawReplicate(scenario, plan.seed, unit.n, drawn);
   for (const v of variants) {
-    const sample: Sample = v > 0 ? perturbedCopy(original, context.prepared[unit.scenario][v - 1] as PreparedPerturbation, replicate, plan.seed) : original;
+    const sample: Sample = v > 0 ? perturbedCopy(original, context.prepared[unit.scenario][v - 1] as PreparedPerturbation, drawn, plan.seed) : original;
     unit.series.forEach((series, k) => {
       if (series.variant !== v || hooks.skip?.(k)) return;
       hooks.onStart?.(k, replicate);

@@ -22,7 +22,7 @@ import { detachOnce } from '../math/wasm.js';
 // First, before any estimator code is compiled (see detachOnce).
 detachOnce();
 
-const { plan, marker } = workerData as { plan: Plan; marker: SharedArrayBuffer };
+const { plan, marker, replicateOffset } = workerData as { plan: Plan; marker: SharedArrayBuffer; replicateOffset: number };
 const { slots, clock, commandPids } = markerViews(marker);
 
 /** The estimate running now (series, replicate, unit), or null. */
@@ -82,7 +82,7 @@ process.nextTick = wrapScheduler(process.nextTick);
 await useEstimatorModules(plan.modules);
 useEstimatorCommands(plan.commands, plan.limits);
 // The main thread planned the units (and skipped the perturbations that do not apply) and scores them.
-const context = buildContext(plan, { shifts: false });
+const context = buildContext(plan, { shifts: false, replicateOffset });
 
 function post(message: WorkerMessage, transfer: ArrayBuffer[] = []): void {
   parentPort!.postMessage(message, transfer);

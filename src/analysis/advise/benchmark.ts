@@ -10,14 +10,16 @@
  *      take (a usage error naming --budget), rather than overrun;
  *   3. round one gets the replicates that fill about half of what is left on the worker threads;
  *   4. round two gets what the rest of the budget allows at the throughput round one achieved (the machine
- *      may be shared, so measured wall time is the better guide), with the next base seed so its draws are
- *      new; the two rounds' estimates are joined cell by cell and scored as one run.
+ *      may be shared, so measured wall time is the better guide), on the same seed's next replicates, so that
+ *      R replicates in all are the same draws however the rounds split them, and the same as `--replicates R`;
+ *      the two rounds' estimates are joined cell by cell and scored as one run.
  * Every cut is listed in `cuts`, in words, for the advice to say.
  *
  *   const bench = await runTargeted({ scenarios, estimators, n: 800, budgetSeconds: 12 });
  *   bench.run        // a RunFile: cells, scores with Monte-Carlo SEs, rankings, robustness section
  *
- * The joined run is for advice only: its plan names round one's seed, and its fingerprints describe round one.
+ * The joined run is for advice only: its plan is round one's with the joined replicate count, and its
+ * fingerprints describe round one.
  */
 import { listEstimators, parseEstimatorSpec } from '../../../estimators/index.js';
 import type { Plan } from '../../harness/plan.js';
@@ -101,7 +103,7 @@ const RUN_START_SECONDS = 1;
 /** Round two aims a little short of the deadline: its throughput is an estimate too. */
 const SECOND_ROUND_SHARE = 0.85;
 
-/** Joins the cells of two runs of the same plan with different seeds: estimates and failures concatenated. */
+/** Joins the cells of two runs of the same plan, the second continuing the first's draws: estimates and failures concatenated. */
 function joinRuns(first: RunFile, second: RunFile): RunFile {
   const later = new Map(second.cells.map((c) => [cellKey(c), c]));
   const offset = first.plan.replicates;
@@ -228,8 +230,8 @@ export async function runTargeted(options: TargetedOptions): Promise<TargetedBen
   // A second round smaller than a fifth of the first would add little precision for its start-up cost.
   if (more >= Math.max(5, Math.ceil(firstReplicates / 5))) {
     const secondStarted = performance.now();
-    const secondOutcome = await runPlan(planFor(more, seed + 1, true), { workers, isolation: options.isolation });
-    rounds.push({ seed: seed + 1, replicates: more, wallSeconds: (performance.now() - secondStarted) / 1000 });
+    const secondOutcome = await runPlan(planFor(more, seed, true), { workers, isolation: options.isolation, replicateOffset: firstReplicates });
+    rounds.push({ seed, replicates: more, wallSeconds: (performance.now() - secondStarted) / 1000 });
     run = joinRuns(run, assembleRun(secondOutcome, null));
     usedWorkers = Math.max(usedWorkers, secondOutcome.workers);
   }
