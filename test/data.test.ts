@@ -550,6 +550,49 @@ describe('readSample', () => {
     }
   });
 
+  it('a name without an extension has its format read from its first bytes, as standard input does', () => {
+    // Hand-made: the same 2 × 2 table as above; the .npy bytes are NumPy's f8_column_2d fixture.
+    const expected = [
+      [1, 2],
+      [3, 4],
+    ];
+    const text = readSample(writeTemp('samples', '# x y\n1 2\n3 4\n'));
+    expect([text.format, text.delimiter]).toEqual(['text', 'spaces']);
+    expect(rows(text)).toEqual(expected);
+    const commas = readSample(writeTemp('samples-commas', 'a,b\n1,2\n3,4\n'));
+    expect([commas.format, commas.delimiter, commas.columnNames]).toEqual(['text', 'comma', ['a', 'b']]);
+    expect(readSample(writeTemp('samples-json', ' \n[[1,2],[3,4]]')).format).toBe('json');
+    const npy = readSample(writeTemp('samples-npy', readFileSync(join(fixtureDir, 'f8_column_2d.npy'))), { columns: '1' });
+    expect(npy.format).toBe('npy');
+    expect(Array.from(npy.sample.data)).toEqual(npyExpected.readable.f8_column_2d.values);
+  });
+
+  it('a named pipe, with or without an extension, is read once and parsed whole (a positioned read would fail on it)', () => {
+    for (const name of ['piped.csv', 'piped']) {
+      const fifo = join(tempDir, name);
+      execFileSync('mkfifo', [fifo]);
+      const writer = spawn('sh', ['-c', `printf 'a,b\\n1,2\\n3,4\\n' > "${fifo}"`], { stdio: 'ignore' });
+      try {
+        const loaded = readSample(fifo);
+        expect(rows(loaded)).toEqual([
+          [1, 2],
+          [3, 4],
+        ]);
+        expect(loaded.format).toBe(name === 'piped' ? 'text' : 'csv');
+      } finally {
+        writer.kill();
+      }
+    }
+    const empty = join(tempDir, 'empty-pipe');
+    execFileSync('mkfifo', [empty]);
+    const writer = spawn('sh', ['-c', `: > "${empty}"`], { stdio: 'ignore' });
+    try {
+      expect(usageMessage(() => readSample(empty))).toBe(`${empty} is empty; it holds no sample (CSV/TSV/TXT, JSON or NumPy .npy)`);
+    } finally {
+      writer.kill();
+    }
+  });
+
   it('passes the path into parse errors', () => {
     const path = writeTemp('bad.json', '[1, 2,, 3]');
     expect(usageMessage(() => readSample(path))).toBe(`${path} line 1, column 7: invalid JSON: unexpected "," where a value was expected`);

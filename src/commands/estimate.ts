@@ -183,7 +183,7 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
     )
     .argument(
       '<file>',
-      'the sample: rows are points, columns are coordinates; "-" reads standard input (format from its first bytes); with --against, the sample from P',
+      'the sample: rows are points, columns are coordinates; "-" reads standard input; its format, and that of a name without an extension, comes from its first bytes; with --against, the sample from P',
     )
     .option('--columns <list>', 'columns to use: positions from 1 ("1,3", "2-4") or header names ("x,y")')
     .option('--estimator <spec>', 'ID[:key=value,...] (repeatable; default: a set suited to the dimension)', collect)

@@ -4,8 +4,9 @@
  *   const { sample, columnNames } = readSample('trial.csv', { columns: 'x,y' });
  *
  * The format comes from the extension: .csv (commas), .tsv (tabs), .txt and .dat (delimiter guessed from
- * the first lines: tab, semicolon, comma, else runs of spaces), .json, and .npy. The path `-` is standard
- * input, whose format is read from its first bytes (sniffFormat). The parsers also work on strings and bytes:
+ * the first lines: tab, semicolon, comma, else runs of spaces), .json, and .npy. The path `-` (standard input)
+ * and a name without an extension (`samples`, a shell's `/dev/fd/63`) have their format read from their first
+ * bytes (sniffFormat). The parsers also work on strings and bytes:
  * `parseDelimited`, `parseJson`, `parseNpy`. See each module for the accepted forms.
  */
 import { closeSync, fstatSync, openSync, readFileSync, readSync, statSync } from 'node:fs';
@@ -153,48 +154,75 @@ function readStream(fd: number, format: DataFormat | undefined, failure: (error:
 function readStandardInputSample(options: ReadOptions): LoadedSample {
   const bytes = readStandardInput(options.format);
   if (bytes.length === 0) throw new UsageError(`${STDIN_NAME} is empty; pipe a sample in (CSV/TSV/TXT, JSON or NumPy .npy)`);
-  const format = options.format ?? sniffFormat(bytes);
-  const parseOptions = { source: STDIN_NAME, columns: options.columns };
+  return parseBytes(bytes, options.format ?? sniffFormat(bytes), STDIN_NAME, STDIN_PATH, options);
+}
+
+/** A sample from bytes held whole, in `format`; messages name `name`, the result's source is `path`. */
+function parseBytes(bytes: Buffer, format: DataFormat, name: string, path: string, options: ReadOptions): LoadedSample {
+  const parseOptions = { source: name, columns: options.columns };
   options.onProgress?.(bytes.length, bytes.length);
   switch (format) {
     case 'json':
-      return { ...parseJson(bytes, parseOptions), format, source: STDIN_PATH };
+      return { ...parseJson(bytes, parseOptions), format, source: path };
     case 'npy':
-      return { ...parseNpy(bytes, parseOptions), format, source: STDIN_PATH };
+      return { ...parseNpy(bytes, parseOptions), format, source: path };
     default: {
       const delimiter: Delimiter | undefined = format === 'csv' ? 'comma' : format === 'tsv' ? 'tab' : undefined;
-      return { ...parseDelimited(bytes, { ...parseOptions, delimiter }), format, source: STDIN_PATH };
+      return { ...parseDelimited(bytes, { ...parseOptions, delimiter }), format, source: path };
     }
   }
 }
 
-/** Reads a data file (or standard input, `-`) into a sample; every problem is a UsageError naming the file and the place. */
+/** How many first bytes decide the format of a file named without an extension. */
+const SNIFF_HEAD_BYTES = 4096;
+
+/**
+ * The format of an open regular file named without an extension, from its first bytes (sniffFormat), as for
+ * standard input: a name such as `samples` or a shell's temporary `/dev/fd/63` carries no format of its own.
+ */
+function sniffFile(fd: number): DataFormat {
+  const head = Buffer.alloc(SNIFF_HEAD_BYTES);
+  const read = readSync(fd, head, 0, head.length, 0);
+  return sniffFormat(head.subarray(0, read));
+}
+
+/**
+ * Reads a data file (or standard input, `-`) into a sample; every problem is a UsageError naming the file and the place.
+ * The format is `options.format`, else the extension's, else, for a name without one, sniffed from the first bytes.
+ * A pipe or a device (a named FIFO, a shell's `<(...)`) is read once, as far as its format needs, and parsed whole.
+ */
 export function readSample(path: string, options: ReadOptions = {}): LoadedSample {
   if (path === STDIN_PATH) return readStandardInputSample(options);
   // Before the extension: a folder named without one is a folder, not a file of an unknown format.
   if (isFolder(path)) throw new UsageError(`cannot read data file ${path}: it is a directory`);
-  const format = options.format ?? formatOf(path);
-  const parseOptions = { source: path, columns: options.columns };
-  switch (format) {
-    case 'json':
-      return { ...parseJson(readBytes(path, format), parseOptions), format, source: path };
-    case 'npy':
-      return { ...parseNpy(readBytes(path, format), parseOptions), format, source: path };
-    default: {
-      // Delimited text is read through a window straight into the typed array of values, so a file of
-      // hundreds of megabytes is never held as bytes or text in full.
-      const delimiter: Delimiter | undefined = format === 'csv' ? 'comma' : format === 'tsv' ? 'tab' : undefined;
-      const fd = openFile(path);
-      try {
+  const named = options.format ?? (extname(path) === '' ? undefined : formatOf(path));
+  const fd = openFile(path);
+  try {
+    if (!fstatSync(fd).isFile()) {
+      const bytes = readStream(fd, named, (error) => readError(path, error));
+      if (bytes.length === 0) throw new UsageError(`${path} is empty; it holds no sample (CSV/TSV/TXT, JSON or NumPy .npy)`);
+      return parseBytes(bytes, named ?? sniffFormat(bytes), path, path, options);
+    }
+    const format = named ?? sniffFile(fd);
+    const parseOptions = { source: path, columns: options.columns };
+    switch (format) {
+      case 'json':
+        return { ...parseJson(readFileSync(fd), parseOptions), format, source: path };
+      case 'npy':
+        return { ...parseNpy(readFileSync(fd), parseOptions), format, source: path };
+      default: {
+        // Delimited text is read through a window straight into the typed array of values, so a file of
+        // hundreds of megabytes is never held as bytes or text in full.
+        const delimiter: Delimiter | undefined = format === 'csv' ? 'comma' : format === 'tsv' ? 'tab' : undefined;
         const table = readDelimitedFile(fd, fstatSync(fd).size, { ...parseOptions, delimiter, onProgress: options.onProgress });
         return { ...table, format, source: path };
-      } catch (error) {
-        // A read that fails part way (a device error, a file truncated under us) is about the file.
-        throw error instanceof UsageError || !(error as NodeJS.ErrnoException).code ? error : readError(path, error);
-      } finally {
-        closeSync(fd);
       }
     }
+  } catch (error) {
+    // A read that fails part way (a device error, a file truncated under us) is about the file.
+    throw error instanceof UsageError || !(error as NodeJS.ErrnoException).code ? error : readError(path, error);
+  } finally {
+    closeSync(fd);
   }
 }
 
@@ -208,19 +236,6 @@ function openFile(path: string): number {
     return fd;
   } catch (error) {
     throw readError(path, error);
-  }
-}
-
-function readBytes(path: string, format: DataFormat): Buffer {
-  let fd: number | undefined;
-  try {
-    fd = openFile(path);
-    // A regular file is read whole; a pipe or a device only as far as its bytes can be the format.
-    return fstatSync(fd).isFile() ? readFileSync(fd) : readStream(fd, format, (error) => readError(path, error));
-  } catch (error) {
-    throw error instanceof UsageError ? error : readError(path, error);
-  } finally {
-    if (fd !== undefined) closeSync(fd);
   }
 }
 
