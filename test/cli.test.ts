@@ -70,6 +70,12 @@ describe('hhat estimate', () => {
       [['bench', '--n', '10,x'], /--n: "x" is not allowed/],
       [['bench', '--workers', '0'], /--workers 0 is not allowed/],
       [['bench', '--shard', '4/3'], /shard 4 of 3/],
+      // A flag's error quotes the flag as typed, not the plan's internal path (estimators[0].settings.k).
+      [
+        ['bench', '--scenario', 'normal', '--estimator', 'kozachenko-leonenko:k=0'],
+        /^hhat: --estimator kozachenko-leonenko:k=0: k=0 is not allowed; k must be an integer ≥ 1$/m,
+      ],
+      [['bench', '--scenario', 'normal', '--estimator', 'vasicek:mm=3'], /^hhat: --estimator vasicek:mm=3: unknown setting "mm"/m],
     ];
     for (const [args, message] of cases) {
       const { code, err } = await run(args);

@@ -26,6 +26,7 @@ import {
   parsePhiList,
   readPlanFile,
   resolvePlan,
+  COMMAND_LINE,
   type Plan,
   type PlanInput,
 } from '../harness/plan.js';
@@ -321,7 +322,7 @@ async function benchPlan(options: BenchOptions, workers: number, printErr: (text
   const note = describeRegistration(registration);
   if (note && !options.quiet) printErr(note);
   // Errors name where the plan came from: the plan file, or the flags.
-  const { plan, scenarios } = resolvePlan(input, options.plan ?? 'command line');
+  const { plan, scenarios } = resolvePlan(input, options.plan ?? COMMAND_LINE);
   // Refused before any work starts, with what it would need, rather than a crash part way.
   const largestN = Math.max(...plan.sampleSizes);
   checkSampleMemory(`n = ${largestN}`, largestN, Math.max(...scenarios.map((x) => x.dim)), {

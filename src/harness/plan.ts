@@ -229,6 +229,9 @@ export function readPlanFile(path: string): PlanInput {
 }
 
 /** Normalises a plan input: canonical ids, settings validated with their paths, sizes sorted. */
+/** The source `resolvePlan` names for a plan built from flags: its messages then quote the flag as typed. */
+export const COMMAND_LINE = 'command line';
+
 export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
   const quantity = input.quantity ?? 'entropy';
   const specs = input.phi ? phiScenarios(input.scenarios, input.phi, source) : input.scenarios;
@@ -257,6 +260,8 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
       return typeof entry === 'string' ? parseEstimatorSpec(entry) : configureEstimator(entry.id, entry.settings ?? {});
     } catch (error) {
       if (!(error instanceof UsageError)) throw error;
+      // From the flags, the entry as typed: "--estimator kozachenko-leonenko:k=0: k=0 is not allowed; k must be ...".
+      if (source === COMMAND_LINE && typeof entry === 'string') throw new UsageError(`--estimator ${entry}: ${error.message.replace(/^[^:\s]+: /, '')}`);
       // "kozachenko-leonenko: k=0 is not allowed; ..." → "estimators[2].settings.k: 0 is not allowed; it must be ..."
       const match = /^[^:]+: (\w+)=(.*) is not allowed; \1 (must be .*)$/.exec(error.message);
       const detail = match ? `.settings.${match[1]}: ${match[2]} is not allowed; it ${match[3]}` : `: ${error.message}`;
