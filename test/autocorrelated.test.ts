@@ -291,4 +291,41 @@ describe('the dependence section: its interval and its verdict', () => {
       ),
     ).toBe('cannot tell');
   });
+
+  it("uses the run's level: the interval's z is the normal quantile (SciPy norm.ppf), and thinning verdicts are Holm-adjusted as one family", () => {
+    const draw = normalRandom.factory(0, 1, { prng: rngFromSeed('level') });
+    const a = Array.from({ length: 50 }, () => 2 * draw());
+    const b = Array.from({ length: 50 }, () => draw());
+    const at95 = varianceRatio(a, b)!;
+    const at99 = varianceRatio(a, b, 0.99)!;
+    const seLog = at95.se / at95.value;
+    // scipy.stats.norm.ppf(0.975) = 1.959963984540054 and norm.ppf(0.995) = 2.5758293035489004 (SciPy 1.17.1).
+    expect(Math.log(at95.upper / at95.value) / seLog).toBeCloseTo(1.959963984540054, 12);
+    expect(Math.log(at99.upper / at99.value) / seLog).toBeCloseTo(2.5758293035489004, 12);
+    // Thinned specs whose paired differences d have mean/SE = z, so the raw two-sided p is 2(1 − Φ(z)). Holm over
+    // m comparisons: the smallest p times m, the next times m − 1, each at least the one before. z = 2.1 passes
+    // alone at 95%; two at z = 2.1 are each held to α/2 and both fail; beside one at z = 5 it is held to α alone.
+    const cell = (estimator: string, errors: number[]): Cell =>
+      ({ scenario: 's', estimator, n: 100, role: 'main', estimates: errors.map((e) => 1 + e), scores: { rmse: { value: 0, se: 0 } } }) as unknown as Cell;
+    const info = [{ id: 's', truth: 1 }] as ScenarioInfo[];
+    // Squared errors of the thinned spec exceed the all-rows spec's by d_r = μ + (−1)^r·s, r < 40: mean μ, SE s/√40·√(40/39).
+    const errorsFor = (z: number) => {
+      const s = 1;
+      const mu = (z * s * Math.sqrt(40 / 39)) / Math.sqrt(40);
+      return Array.from({ length: 40 }, (_, r) => Math.sqrt(1 + mu + (r % 2 ? s : -s)));
+    };
+    const ones = Array.from({ length: 40 }, () => 1);
+    const section = (zs: number[]) =>
+      dependenceSection([cell('kozachenko-leonenko', ones), ...zs.map((z, i) => cell(`kozachenko-leonenko:thin=${i + 2}`, errorsFor(z)))], info)!.thinning;
+    const alone = section([2.1]);
+    // Two-sided normal p at z = 2.1: 0.035728 (scipy.stats.norm.sf(2.1)·2).
+    expect(alone[0].adjustedP).toBeCloseTo(0.0357288, 6);
+    expect(alone[0].verdict).toBe('all rows better');
+    const pair = section([2.1, 2.1]);
+    expect(pair.map((t) => t.adjustedP)).toEqual([pair[0].adjustedP, pair[0].adjustedP]);
+    expect(pair[0].adjustedP).toBeCloseTo(2 * 0.0357288, 6);
+    expect(pair.map((t) => t.verdict)).toEqual(['cannot tell', 'cannot tell']);
+    // Holm's step-down: a strong one first (p = 5.7e-7, held to α/2) lets the weaker be held to α alone.
+    expect(section([5, 2.1]).map((t) => t.verdict)).toEqual(['all rows better', 'all rows better']);
+  });
 });

@@ -357,6 +357,22 @@ describe('scores', () => {
     const spacing = Math.log(10);
     expect(fit.se).toBeCloseTo(0.05 / Math.sqrt(2 * spacing * spacing), 12);
   });
+
+  it('scales the slope SE by √(χ²/ν) when the points do not follow a power law (SciPy curve_fit reference)', () => {
+    // A metric that falls then rises, as gaussian's RMSE on Student t data (0.320, 0.147, 0.224 at n = 100, 500,
+    // 2000; SEs 0.062, 0.013, 0.020). Reference, scipy.optimize.curve_fit(lambda x, a, b: a + b*x, ln n,
+    // ln value, sigma=SE/value) with its default absolute_sigma=False, which scales the covariance by χ²/ν
+    // (SciPy 1.17.1, run on this machine): slope 0.0219837, SE 0.2758347. Without scaling (absolute_sigma=True)
+    // the SE is 0.0634041.
+    const fit = fitRate([
+      { n: 100, value: 0.32, se: 0.062 },
+      { n: 500, value: 0.147, se: 0.013 },
+      { n: 2000, value: 0.224, se: 0.02 },
+    ])!;
+    expect(fit.slope).toBeCloseTo(0.0219837, 6);
+    expect(fit.se).toBeCloseTo(0.2758347, 6);
+    // Points that fit better than their errors allow (χ²/ν < 1) keep the unscaled SE: the exact power law above.
+  });
 });
 
 describe('bad input', () => {

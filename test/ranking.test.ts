@@ -106,6 +106,37 @@ describe('best set verdicts on constructed cases', () => {
     expect(entry.rank).toBe(2);
   });
 
+  it('of two estimators of equal mean squared error, keeps the one closer on most draws and drops the other only when the closer one leads (400 simulations)', () => {
+    // A is 1 off on every draw; B is √0.5 off on 80% of draws and √3 off on the rest: E[loss] = 1 for both
+    // (0.8·0.5 + 0.2·3 = 1, by hand). The set aims at the estimators of smallest mean squared error that no other
+    // beats on more than half of the draws: B, not A (B beats A on 80% of draws). B should be in the set in at
+    // least 95% of simulations; A is dropped by the sign-test guard, but only when B leads (has the smaller
+    // sample RMSE), since the guard tests members against the leader.
+    const uniform = rngFromSeed('equal mse');
+    const R = 100;
+    const simulations = 400;
+    let missedB = 0;
+    let droppedA = 0;
+    let droppedAWhileLeading = 0;
+    for (let s = 0; s < simulations; s++) {
+      const a = Array.from({ length: R }, () => 1);
+      const b = Array.from({ length: R }, () => (uniform() < 0.8 ? Math.sqrt(0.5) : Math.sqrt(3)));
+      const ranking = rankCell([cell('A', a, 0), cell('B', b, 0)], 0, { level: 0.95, maxFailureRate: 0 }, `equal mse ${s}`);
+      const [entryA, entryB] = ['A', 'B'].map((id) => ranking.entries.find((e) => e.estimator === id)!);
+      if (!entryB.best) missedB++;
+      if (!entryA.best) {
+        droppedA++;
+        if (entryA.rmse < entryB.rmse) droppedAWhileLeading++;
+      }
+    }
+    // Binomial 99.9% bound for 400 draws at 5%: 8.4%, allowed as 8.5% (as in the next test). Measured when
+    // written: B missed in 2 of 400, A dropped in 188 of 400 (47%), never while it led.
+    expect(missedB / simulations).toBeLessThan(0.085);
+    expect(droppedAWhileLeading).toBe(0);
+    expect(droppedA / simulations).toBeGreaterThan(0.3);
+    expect(droppedA / simulations).toBeLessThan(0.7);
+  });
+
   it('misses a best estimator in at most about 5% of simulated benchmarks (two equally good, three worse; 400 simulations)', () => {
     // Under the null for the two best, the set should miss either of them in at most 5% of simulations; the
     // binomial 99.9% bound for 400 draws at 5% is 5% + 3.1·√(0.05·0.95/400) ≈ 8.4%, allowed here as 8.5%.

@@ -7,19 +7,24 @@
  * standard error of log R is the delta method on each sample variance,
  *   Var(log s²) ≈ Var(s²)/σ⁴,  Var(s²) ≈ (μ₄ − σ⁴(m−3)/(m−1))/m   (kurtosis-aware, as in score.ts),
  * so SE(log R)² = Var(s²_φ)/s⁴_φ + Var(s²_0)/s⁴_0 (delta method: Casella & Berger, Statistical Inference, 2nd ed.,
- * §5.5.4); the 95% interval is exp(log R ± 1.96·SE) and the SE of R itself is R·SE(log R). Under independent
- * rows R is 1; for the sample mean of the latent AR(1) series it tends to τ = (1 + φ)/(1 − φ).
+ * §5.5.4); the interval at the run's level L is exp(log R ± z·SE), z the normal quantile at (1 + L)/2 (1.96 at
+ * 95%), one interval per ratio (pointwise, not simultaneous), and the SE of R itself is R·SE(log R). Under
+ * independent rows R is 1; for the sample mean of the latent AR(1) series it tends to τ = (1 + φ)/(1 − φ).
  *
  * Thinning: for every cell of an estimator with thin = t and its all-rows counterpart (the same spec without
  * thin) on the same scenario and n, hence the same draws, the paired difference of squared errors
- * d_r = (Ĥ_thin − H)² − (Ĥ_all − H)², its mean ± SE, and a verdict at 95% by a normal test on the mean of d
- * (Diebold & Mariano, J. Bus. Econ. Stat. 13, 1995): "thinning better" when the MSE drops, "all rows better"
- * when it grows, "cannot tell" otherwise.
+ * d_r = (Ĥ_thin − H)² − (Ĥ_all − H)², its mean ± SE, and a two-sided normal test on the mean of d (Diebold &
+ * Mariano, J. Bus. Econ. Stat. 13, 1995). The run's comparisons are one family: their p-values are adjusted
+ * by Holm's step-down (src/analysis/holm.ts), and a verdict is "thinning better" when the MSE drops, "all rows
+ * better" when it grows, with an adjusted p at most 1 − L; "cannot tell" otherwise.
  */
+import { loadPackage } from '../core/vendor.js';
+import { normalSurvival } from '../math/special.js';
 import type { Cell, ScenarioInfo } from './cells.js';
+import { holmAdjusted } from './holm.js';
 import type { ValueWithSe } from './score.js';
 
-const Z95 = 1.959963984540054;
+const normalQuantile = loadPackage<typeof import('@stdlib/stats-base-dists-normal-quantile')>('@stdlib/stats-base-dists-normal-quantile');
 
 export interface VarianceInflation {
   /** The autocorrelated scenario and its base (the φ = 0 scenario of the same plan). */
@@ -28,7 +33,7 @@ export interface VarianceInflation {
   phi: number;
   estimator: string;
   n: number;
-  /** Var(Ĥ) at φ over Var(Ĥ) at φ = 0, with the delta-method SE and 95% interval (see the file comment). */
+  /** Var(Ĥ) at φ over Var(Ĥ) at φ = 0, with the delta-method SE and an interval at the run's level (see the file comment). */
   ratio: ValueWithSe & { lower: number; upper: number };
   /** (1 + φ)/(1 − φ): the inflation of the variance of the latent series' mean, for scale. */
   latentTau: number;
@@ -46,6 +51,8 @@ export interface ThinningComparison {
   /** Mean paired difference of squared errors (thinned − all rows), with its SE; replicates where both ran. */
   mseDifference: ValueWithSe;
   pairs: number;
+  /** Two-sided p of the normal test on the mean of d, Holm-adjusted over the run's thinning comparisons. */
+  adjustedP: number;
   verdict: 'thinning better' | 'all rows better' | 'cannot tell';
 }
 
@@ -87,17 +94,18 @@ function varianceWithItsVariance(values: number[]): { s2: number; varS2: number 
   return { s2, varS2: Math.max(0, (mu4 - (s2 * s2 * (m - 3)) / (m - 1)) / m) };
 }
 
-/** The variance ratio of two independent sets of replicate estimates, R = s²_a / s²_b, with SE and 95% interval. */
-export function varianceRatio(a: number[], b: number[]): (ValueWithSe & { lower: number; upper: number }) | null {
+/** The variance ratio of two independent sets of replicate estimates, R = s²_a / s²_b, with SE and an interval at `level`. */
+export function varianceRatio(a: number[], b: number[], level = 0.95): (ValueWithSe & { lower: number; upper: number }) | null {
   const va = varianceWithItsVariance(a);
   const vb = varianceWithItsVariance(b);
   if (!va || !vb || !(va.s2 > 0) || !(vb.s2 > 0)) return null;
   const ratio = va.s2 / vb.s2;
   const seLog = Math.sqrt(va.varS2 / (va.s2 * va.s2) + vb.varS2 / (vb.s2 * vb.s2));
-  return { value: ratio, se: ratio * seLog, lower: ratio * Math.exp(-Z95 * seLog), upper: ratio * Math.exp(Z95 * seLog) };
+  const z = normalQuantile((1 + level) / 2, 0, 1);
+  return { value: ratio, se: ratio * seLog, lower: ratio * Math.exp(-z * seLog), upper: ratio * Math.exp(z * seLog) };
 }
 
-export function dependenceSection(cells: readonly Cell[], scenarios: readonly ScenarioInfo[]): DependenceSection | null {
+export function dependenceSection(cells: readonly Cell[], scenarios: readonly ScenarioInfo[], level = 0.95): DependenceSection | null {
   const main = cells.filter((c) => c.role === 'main');
   const byKey = new Map(main.map((c) => [`${c.scenario}|${c.estimator}|${c.n}`, c]));
   const planned = new Set(scenarios.map((s) => s.id));
@@ -107,7 +115,7 @@ export function dependenceSection(cells: readonly Cell[], scenarios: readonly Sc
     if (!parts || !planned.has(parts.base)) continue;
     const reference = byKey.get(`${parts.base}|${cell.estimator}|${cell.n}`);
     if (!reference) continue;
-    const ratio = varianceRatio(finite(cell), finite(reference));
+    const ratio = varianceRatio(finite(cell), finite(reference), level);
     if (!ratio) continue;
     varianceInflation.push({
       scenario: cell.scenario,
@@ -121,6 +129,7 @@ export function dependenceSection(cells: readonly Cell[], scenarios: readonly Sc
   }
   const truth = new Map(scenarios.map((s) => [s.id, s.truth]));
   const thinning: ThinningComparison[] = [];
+  const rawP: number[] = [];
   for (const cell of main) {
     const parts = thinnedParts(cell.estimator);
     if (!parts) continue;
@@ -146,8 +155,16 @@ export function dependenceSection(cells: readonly Cell[], scenarios: readonly Sc
       rmseAllRows: reference.scores.rmse.value,
       mseDifference: { value: mean, se },
       pairs: m,
-      verdict: mean + Z95 * se < 0 ? 'thinning better' : mean - Z95 * se > 0 ? 'all rows better' : 'cannot tell',
+      adjustedP: NaN,
+      verdict: 'cannot tell',
     });
+    // Identical estimates on every draw (se = 0, mean 0) are no evidence either way.
+    rawP.push(se > 0 ? 2 * normalSurvival(Math.abs(mean) / se) : mean === 0 ? 1 : 0);
   }
+  const adjusted = holmAdjusted(rawP);
+  thinning.forEach((t, i) => {
+    t.adjustedP = adjusted[i];
+    if (adjusted[i] <= 1 - level) t.verdict = t.mseDifference.value < 0 ? 'thinning better' : 'all rows better';
+  });
   return varianceInflation.length || thinning.length ? { varianceInflation, thinning } : null;
 }

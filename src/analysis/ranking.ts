@@ -12,8 +12,11 @@
  * 3. The rest are compared on their squared errors over the replicates where all of them succeeded (every
  *    replicate when maxFailureRate is 0). The best set is their Model Confidence Set (src/analysis/best-set.ts), less
  *    any member that is worse than the leader on significantly more of those draws than it is better (the
- *    sign-test guard below); the two checks share α = 1 − level by Bonferroni, α/2 each. Best-set members
- *    share rank 1; the others follow by RMSE with ordinal ranks.
+ *    sign-test guard below); the two checks share α = 1 − level by Bonferroni, α/2 each. What the set aims to
+ *    hold is therefore not every estimator of smallest mean squared error, but every such estimator that no
+ *    other one beats on more than half of the draws: an estimator of equal mean squared error that loses on
+ *    most draws is left out on purpose. Best-set members share rank 1; the others follow by RMSE with ordinal
+ *    ranks.
  *
  * Average ranks per dimension/tail group run over the same cells for every estimator: all the group's cells
  * it could run by design (a cell exists for it), failed ones counted as last. Cells it cannot run by design
@@ -21,6 +24,7 @@
  */
 import { modelConfidenceSet } from './best-set.js';
 import { signTestAbove } from './exact-tests.js';
+import { holmAdjusted } from './holm.js';
 import type { CellScores } from './score.js';
 import type { VerdictSettings } from '../harness/plan.js';
 
@@ -141,7 +145,10 @@ export function rankCell(group: RankableCell[], truth: number, settings: Verdict
  * significantly more draws than it is better is dropped. One-sided exact sign tests on the paired squared
  * errors, Holm's step-down over the members (Holm, Scand. J. Statist. 6:65–70, 1979) at `level`. A mean
  * cannot separate an estimator whose squared errors are dominated by a few far-off draws (the same draws
- * inflate the mean's SE), however often it loses; the sign test counts every draw once.
+ * inflate the mean's SE), however often it loses; the sign test counts every draw once. (The confidence set's
+ * bootstrap also assumes loss differences with finite variance, which such errors may not have.) The guard
+ * changes what the set claims to cover, as the file comment says: when two estimators tie in mean squared error
+ * and one is closer on most draws, the other is dropped whenever the closer one leads.
  */
 function signGuard(
   members: RankableCell[],
@@ -165,11 +172,11 @@ function signGuard(
     }
     p.set(c, signTestAbove(worse, better));
   }
-  const ordered = [...p.entries()].sort((a, b) => a[1] - b[1]);
-  for (let i = 0; i < ordered.length; i++) {
-    if (ordered[i][1] > level / (ordered.length - i)) break;
-    dropped.add(ordered[i][0]);
-  }
+  const tested = [...p.keys()];
+  const adjusted = holmAdjusted(tested.map((c) => p.get(c)!));
+  tested.forEach((c, i) => {
+    if (adjusted[i] <= level) dropped.add(c);
+  });
   return { p, dropped };
 }
 

@@ -196,7 +196,7 @@ export function finishRun(
     rankings,
     overall: overallRanks(rankings, (id) => groupName(truth.get(id)!)),
     robustness: base.complete && base.plan.robustness ? robustnessSection(base.plan, base.cells, truth) : null,
-    ...withDependence(base.complete ? dependenceSection(base.cells, base.scenarios) : null),
+    ...withDependence(base.complete ? dependenceSection(base.cells, base.scenarios, base.plan.verdicts.level) : null),
   };
 }
 

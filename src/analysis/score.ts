@@ -110,7 +110,10 @@ export function scoreCell(estimates: ArrayLike<number>, truth: number, n: number
 export interface RateFit {
   /** Slope of log(metric) on log n: −½ is the parametric rate. */
   slope: number;
-  /** Standard error from the metric's own Monte-Carlo errors (weighted least squares with known variances). */
+  /**
+   * Standard error from the metric's own Monte-Carlo errors (weighted least squares with known variances),
+   * scaled up by √(χ²/ν) when the points scatter about the line more than those errors allow (ν = points − 2).
+   */
   se: number;
   sizes: number;
 }
@@ -119,6 +122,12 @@ export interface RateFit {
  * Fits log(metric) = a + slope·log n by weighted least squares, with weights 1/Var(log metric) from the delta
  * method (Var(log x) ≈ (SE/x)²). Points whose metric is not clearly above zero (value < 2·SE) are left out,
  * since their logarithm is noise; null when fewer than two points remain.
+ *
+ * With known variances the slope's SE is 1/√Sxx, which assumes the power law holds. Where it does not (a metric
+ * that falls and then rises), the residuals show it: χ² = Σ w·(y − ŷ)² on ν = points − 2 degrees of freedom. When
+ * χ²/ν > 1 the SE is multiplied by √(χ²/ν), the scale factor of weighted averages and fits with known errors
+ * (common practice; e.g. the Particle Data Group's averaging procedure, recalled from memory). Two points fit any
+ * line (ν = 0), so their SE stays unscaled.
  */
 export function fitRate(points: { n: number; value: number; se: number }[]): RateFit | null {
   const usable = points.filter((p) => p.value > 0 && Number.isFinite(p.se) && p.value > 2 * p.se);
@@ -139,5 +148,10 @@ export function fitRate(points: { n: number; value: number; se: number }[]): Rat
     sxy += ws[i] * (xs[i] - mx) * (ys[i] - my);
   }
   if (sxx === 0) return null;
-  return { slope: sxy / sxx, se: Math.sqrt(1 / sxx), sizes: usable.length };
+  const slope = sxy / sxx;
+  const dof = xs.length - 2;
+  let chi2 = 0;
+  for (let i = 0; i < xs.length; i++) chi2 += ws[i] * (ys[i] - my - slope * (xs[i] - mx)) ** 2;
+  const scale = dof > 0 ? Math.max(1, Math.sqrt(chi2 / dof)) : 1;
+  return { slope, se: scale * Math.sqrt(1 / sxx), sizes: usable.length };
 }

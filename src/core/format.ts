@@ -87,3 +87,10 @@ export function fullIds(ids: string[], width: number, marker: (id: string, numbe
   });
   return { cells, notes };
 }
+
+/** p-values: three decimals, or two significant digits below 0.001 (a paired test can reach 1e-40). */
+export function formatP(p: number): string {
+  if (!Number.isFinite(p)) return '–';
+  if (p === 0) return '0';
+  return p >= 0.001 ? p.toFixed(3) : p.toExponential(1);
+}

@@ -2,7 +2,9 @@
  * A comparison of two runs as a terminal table, Markdown for a pull-request comment, JSON, or JUnit XML for
  * CI systems (one testcase per cell; cells failing the policy are <failure>s).
  */
-import { countOf, formatValue, renderTable } from '../core/format.js';
+import { countOf, formatP, formatValue, renderTable } from '../core/format.js';
+
+export { formatP } from '../core/format.js';
 import { toJson } from '../analysis/results.js';
 import {
   failingCells,
@@ -26,13 +28,6 @@ const STATUS_LABEL: Record<CellStatus, string> = {
 function signed(x: number, digits = 3): string {
   if (!Number.isFinite(x)) return formatValue(x, digits);
   return x > 0 ? `+${formatValue(x, digits)}` : formatValue(x, digits);
-}
-
-/** p-values: three decimals, or two significant digits below 0.001 (a paired test can reach 1e-40). */
-export function formatP(p: number): string {
-  if (!Number.isFinite(p)) return '–';
-  if (p === 0) return '0';
-  return p >= 0.001 ? p.toFixed(3) : p.toExponential(1);
 }
 
 /**

@@ -2,7 +2,7 @@
  * Terminal tables of a run: per scenario, RMSE ± Monte-Carlo SE and rank at each n; the overall average
  * ranks by dimension and tail class; optionally every score of every cell.
  */
-import { formatValue, fullIds, renderTable, toBase, type Base } from '../core/format.js';
+import { formatP, formatValue, fullIds, renderTable, toBase, type Base } from '../core/format.js';
 import { estimatorLabel } from '../../estimators/index.js';
 import { rankedGroups, type Cell, type RunFile } from '../analysis/results.js';
 import { doublingText } from '../analysis/resolution.js';
@@ -216,13 +216,14 @@ function resolutionTable(section: NonNullable<RunFile['robustness']>): string[] 
 
 /**
  * Error against autocorrelation (a plan's `phi` list): per base scenario and n, one row per estimator, RMSE ± SE
- * at each φ and the variance inflation Var(φ)/Var(0) with its 95% interval; then each thinned estimator against
+ * at each φ and the variance inflation Var(φ)/Var(0) with its interval at the plan's level; then each thinned estimator against
  * all rows on the same draws. Empty when the run has neither (src/analysis/dependence.ts).
  */
 export function dependenceTables(run: RunFile, base: Base): string {
   const section = run.dependence;
   if (!section) return '';
   const out: string[] = [];
+  const level = `${+(run.plan.verdicts.level * 100).toPrecision(6)}%`;
   const groups = new Map<string, typeof section.varianceInflation>();
   for (const v of section.varianceInflation) {
     const key = `${v.base}|${v.n}`;
@@ -247,7 +248,7 @@ export function dependenceTables(run: RunFile, base: Base): string {
         return [rmse(v.scenario, spec), `${formatValue(v.ratio.value, 3)} [${formatValue(v.ratio.lower, 2)}, ${formatValue(v.ratio.upper, 2)}]`];
       }),
     ]);
-    out.push(`${scenario} at n = ${n}: RMSE against the lag-1 autocorrelation φ of the rows, and Var(φ)/Var(0) [95% interval]`);
+    out.push(`${scenario} at n = ${n}: RMSE against the lag-1 autocorrelation φ of the rows, and Var(φ)/Var(0) [${level} interval]`);
     out.push(
       renderTable(
         ['estimator', 'RMSE, φ=0', ...phis.flatMap((phi) => [`RMSE, φ=${phi}`, `Var ×, φ=${phi} (τ=${formatValue((1 + phi) / (1 - phi), 3)})`])],
@@ -258,7 +259,7 @@ export function dependenceTables(run: RunFile, base: Base): string {
   }
   if (groups.size) {
     out.push(
-      'Var ×: variance of the estimates at φ over that at φ = 0 (same base, estimator and n; independent draws), 95% interval from the delta method on log s² (kurtosis-aware). τ = (1+φ)/(1−φ) is what the variance of the mean of the latent normal scores grows by.',
+      `Var ×: variance of the estimates at φ over that at φ = 0 (same base, estimator and n; independent draws), ${level} interval from the delta method on log s² (kurtosis-aware), one per ratio, not simultaneous. τ = (1+φ)/(1−φ) is what the variance of the mean of the latent normal scores grows by.`,
     );
   }
   if (section.thinning.length) {
@@ -269,6 +270,7 @@ export function dependenceTables(run: RunFile, base: Base): string {
       pm(t.rmseThinned, NaN, base).replace(' ± ?', ''),
       pm(t.rmseAllRows, NaN, base).replace(' ± ?', ''),
       `${formatValue(toBase(t.mseDifference.value, base) * (base === 'bits' ? 1 / Math.LN2 : 1), 2)} ± ${formatValue(toBase(t.mseDifference.se, base) * (base === 'bits' ? 1 / Math.LN2 : 1), 2)}`,
+      t.adjustedP === undefined ? '–' : formatP(t.adjustedP),
       t.verdict,
     ]);
     const ids = fullIds(
@@ -277,10 +279,12 @@ export function dependenceTables(run: RunFile, base: Base): string {
       (_, number) => `see [${number}] below`,
     );
     rows.forEach((r, i) => (r[0] = ids.cells[i]));
-    out.push(`Thinning: every t-th row against all rows, on the same draws (paired squared errors; 95%, Diebold–Mariano)`);
     out.push(
-      renderTable(['scenario', 'n', 'estimator', 'RMSE thinned', 'RMSE all rows', 'MSE thinned − all ± SE', 'verdict'], rows, {
-        align: ['left', 'right', 'left', 'right', 'right', 'right', 'left'],
+      `Thinning: every t-th row against all rows, on the same draws (paired squared errors; normal test on their mean, Diebold–Mariano; p Holm-adjusted over these ${section.thinning.length} comparisons, verdict at level ${level})`,
+    );
+    out.push(
+      renderTable(['scenario', 'n', 'estimator', 'RMSE thinned', 'RMSE all rows', 'MSE thinned − all ± SE', 'Holm p', 'verdict'], rows, {
+        align: ['left', 'right', 'left', 'right', 'right', 'right', 'right', 'left'],
       }),
     );
     out.push(...ids.notes);

@@ -53,7 +53,7 @@ export function wideBestSetNote(rankings: Ranking[], label: (spec: string) => st
 export function rankLegend(level: number, maxFailureRate: number): string {
   const pct = `${+(level * 100).toPrecision(6)}%`;
   const failures = maxFailureRate === 0 ? 'fails on any replicate' : `fails on more than ${+(maxFailureRate * 100).toPrecision(6)}% of replicates`;
-  return `Rank "1=": in the best set, the estimators that cannot be told apart from the best at level ${pct} (model confidence set on paired squared errors, Hansen, Lunde & Nason 2011, less members the leader beats on most draws by a sign test). An estimator that ${failures} of a cell is ranked last there.`;
+  return `Rank "1=": in the best set at level ${pct}: mean squared error not shown to be above the best's (model confidence set on paired squared errors, Hansen, Lunde & Nason 2011) and not beaten by the leader on most draws (sign test). An estimator that ${failures} of a cell is ranked last there.`;
 }
 
 export const COLUMN_TITLES: Record<string, string> = {

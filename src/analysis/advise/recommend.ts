@@ -250,7 +250,7 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 
       const [mine, theirs] = distinguishable(recommended.meanRmse.value, runnerUp.meanRmse.value);
       tail = runnerUpTiedOn.length
         ? `; the runner-up ${runnerUp.label} (${theirs}) cannot be told apart from it on the same draws`
-        : `; the runner-up ${runnerUp.label} (${theirs} against ${mine}) is outside the 95% best set on the same draws`;
+        : `; the runner-up ${runnerUp.label} (${theirs} against ${mine}) is outside the ${+(run.plan.verdicts.level * 100).toPrecision(6)}% best set on the same draws`;
     } else {
       tail = runnerUpTiedOn.length
         ? `; the runner-up ${runnerUp.label} is in the best set too on ${describeSubset(runnerUpTiedOn, scenarios)}`

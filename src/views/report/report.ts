@@ -158,8 +158,8 @@ function overallSection(page: Page): string {
   }
   if (efficiency.rows.length) {
     const description =
-      'Efficiency ratio n·Var(Ĥ)/Var(log f) of each estimator per scenario at the largest sample size n, on a log axis, with the asymptotic bound 1.';
-    charts.push(page.chart('efficiency', efficiencySpec(efficiency), 'Efficiency n·Var(Ĥ)/Var(log f) against the bound 1', description));
+      'Efficiency ratio n·Var(Ĥ)/Var(log f) of each estimator per scenario at the largest sample size n, on a log axis, with the line at 1: the asymptotic variance of an efficient estimator. It is a large-sample benchmark, not a bound at finite n: a biased or shrunk estimator can fall below it.';
+    charts.push(page.chart('efficiency', efficiencySpec(efficiency), 'Efficiency n·Var(Ĥ)/Var(log f) against the asymptotic 1', description));
   }
   return `<section id="overall"><h2>Overall</h2><div class="charts">${charts.join('\n')}</div>${grid ? rankTable(grid) : ''}</section>`;
 }

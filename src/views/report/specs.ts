@@ -133,7 +133,11 @@ export function efficiencySpec(chart: EfficiencyData): TopLevelSpec {
   return {
     title: {
       text: `Efficiency at the largest n (${sizes.join(', ')})`,
-      subtitle: ['dashed line at 1: the asymptotic bound Var(log f)/n', 'for the variance of an unbiased estimator', 'bars: ±1 Monte-Carlo SE'],
+      subtitle: [
+        'dashed line at 1: n·Var(Ĥ) = Var(log f), the large-sample variance',
+        'of an efficient estimator (not a finite-n bound)',
+        'bars: ±1 Monte-Carlo SE',
+      ],
     },
     width: 460,
     height: chart.scenarios.length * band,
