@@ -24,7 +24,11 @@ export function registerCompareCommand(program: Command, print: (text: string) =
     .argument('<base>', 'the run file to compare against (e.g. results/before.json)')
     .argument('<new>', 'the run file with the changed code')
     .option('--tolerance <t>', 'smallest |ΔRMSE| that counts as worse or improved: nats (0.01) or a percentage of the base RMSE (5%)', '0')
-    .option('--level <c>', 'per cell, 1 − the chance of calling an unchanged cell worse or improved (split over the paired tests by Bonferroni)', '0.95')
+    .option(
+      '--level <c>',
+      '1 − the chance that any unchanged cell is called worse or improved (over all changed cells by Holm, within a cell over its tests by Bonferroni)',
+      '0.95',
+    )
     .option('--fail-on <what>', 'exit 1 when a cell is worse beyond the tolerance (worse), or when any cell differs at all (changed)')
     .option('--allow-missing', 'with --fail-on: do not fail because cells of the base run are missing from the new one')
     .option('--unpaired', "compare with Welch's t test even when both runs drew the same samples")

@@ -21,9 +21,20 @@ import {
 const STATUS_LABEL: Record<CellStatus, string> = {
   worse: 'worse',
   improved: 'improved',
-  'changed-within-noise': 'changed within noise',
+  'changed-within-noise': 'changed within noise or tolerance',
   unchanged: 'unchanged',
 };
+
+/**
+ * A cell's status as shown. A changed cell that is neither worse nor improved says which: "within tolerance"
+ * when a test found the change (p within the cell's test level) but the estimated change is within the
+ * tolerance, "within noise" otherwise. The JSON keeps the one status `changed-within-noise` for both.
+ */
+function cellStatusLabel(c: CellComparison): string {
+  if (c.status !== 'changed-within-noise') return STATUS_LABEL[c.status];
+  const found = (c.test !== null && c.test.p <= c.testLevel) || (c.sign !== null && c.sign.p <= c.testLevel);
+  return found ? 'changed within tolerance' : 'changed within noise';
+}
 
 function signed(x: number, digits = 3): string {
   if (!Number.isFinite(x)) return formatValue(x, digits);
@@ -93,6 +104,7 @@ const HEAD = [
   'Δ squared error [CI]',
   'p',
   'draws worse/better',
+  'cell p (Holm)',
   'failures',
 ];
 
@@ -107,7 +119,7 @@ function failuresText(c: CellComparison): string {
 function row(c: CellComparison): string[] {
   const t = c.test;
   return [
-    STATUS_LABEL[c.status],
+    cellStatusLabel(c),
     cellLabel(c),
     c.estimator,
     String(c.n),
@@ -118,6 +130,7 @@ function row(c: CellComparison): string[] {
     t ? `${toSePrecision(t.difference, t.se)} [${toSePrecision(t.interval[0], t.se)}, ${toSePrecision(t.interval[1], t.se)}]` : '–',
     t ? formatP(t.p) : '–',
     c.sign ? `${c.sign.above}/${c.sign.below} (p ${formatP(c.sign.p)})` : '–',
+    c.adjustedP === null ? '–' : formatP(c.adjustedP),
     failuresText(c),
   ];
 }
@@ -154,7 +167,7 @@ function policyLine(comparison: Comparison): string {
     m > 1
       ? `The tests share α = ${alpha} over the ${countOf(m, 'changed cell')} by Holm's step-down (the cell with the smallest p is held to α/${m}, the next to α/${m - 1}, …), then by Bonferroni over a cell's ${k} tests (the first cell's tests at ${+comparison.testLevel.toPrecision(3)} / ${m} each), so the chance that any cell whose estimates did not change in distribution is called worse or improved is at most α.`
       : `The tests share α = ${alpha} by Bonferroni (${+comparison.testLevel.toPrecision(3)} each), so a cell whose estimates did not change in distribution is called worse or improved with probability at most α.`;
-  return `A cell is worse (or improved) when ${tests}; worse wins over improved. ${sharing} A new estimate more than ${WILD_FACTOR} times the base run's largest error away from the truth makes a cell worse on its own. Changes ± SE are ${comparison.pairing.paired ? 'paired, over the replicates where both runs succeeded' : 'unpaired'}.`;
+  return `A cell is worse (or improved) when ${tests}; worse wins over improved. The tests are of no change; the tolerance applies to the estimated change, so a cell found to change by less is "within tolerance", and "worse" does not claim that the true change exceeds the tolerance. "cell p (Holm)" decides: worse or improved when it is at most α; the p column is the t test's own p, unadjusted, and the interval is at the level of the first cell's tests. ${sharing} A new estimate more than ${WILD_FACTOR} times the base run's largest error away from the truth makes a cell worse on its own. Changes ± SE are ${comparison.pairing.paired ? 'paired, over the replicates where both runs succeeded' : 'unpaired'}.`;
 }
 
 function refLines(title: string, refs: CellRef[]): string[] {
@@ -323,11 +336,11 @@ export function formatComparisonJunit(comparison: Comparison, failOn: FailOn = '
     if (failing.has(c)) {
       out.push(
         open,
-        `      <failure${attributes({ type: c.status, message: `${STATUS_LABEL[c.status]}: ${c.reasons[0]}` })}>${details}</failure>`,
+        `      <failure${attributes({ type: c.status, message: `${cellStatusLabel(c)}: ${c.reasons[0]}` })}>${details}</failure>`,
         '    </testcase>',
       );
     } else {
-      out.push(open, `      <system-out>${STATUS_LABEL[c.status]}: ${details}</system-out>`, '    </testcase>');
+      out.push(open, `      <system-out>${cellStatusLabel(c)}: ${details}</system-out>`, '    </testcase>');
     }
   }
   for (const { r, type, where, fails } of refsOnly) {
