@@ -453,6 +453,31 @@ describe('advice that no estimator is usable', () => {
     expect(distinguishable(0.0012, 0.00131)).toEqual(['0.0012', '0.0013']);
   });
 
+  it('a runner-up whose mean RMSE is within twice the combined SE is called about equally good, not beaten (constructed)', async () => {
+    const { runTargeted } = await import('../src/analysis/advise/benchmark.js');
+    const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');
+    const bench = await runTargeted({
+      scenarios: ['normal', 'laplace'],
+      estimators: ['vasicek', 'ebrahimi'],
+      n: 100,
+      budgetSeconds: 30,
+      minReplicates: 10,
+      maxReplicates: 10,
+      workers: 1,
+    });
+    const [first, second] = summarise(bench.run);
+    const withRmse = (value: number, se: number) => [
+      { ...first, meanRmse: { value: 0.1, se: 0.01 } },
+      { ...second, meanRmse: { value, se } },
+    ];
+    // 0.11 − 0.10 = 0.01 ≤ 2·√(0.01² + 0.01²) = 0.0283 (by hand): a tie in all but name.
+    expect(recommend(bench.run, withRmse(0.11, 0.01)).reason).toContain(
+      `its mean RMSE (0.110 ± 0.010 against 0.100) is within twice their combined SE: the two are about equally good here, and the pick follows the lower mean.`,
+    );
+    // 0.2 − 0.1 = 0.1 > 0.0283: no such clause.
+    expect(recommend(bench.run, withRmse(0.2, 0.01)).reason).not.toContain('about equally good');
+  });
+
   it('the runner-up is never an estimator that fails on some draws (constructed: the lowest RMSE marked failing)', async () => {
     const { runTargeted } = await import('../src/analysis/advise/benchmark.js');
     const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');
@@ -527,6 +552,13 @@ describe('hhat advise on the command line', () => {
     expect(e.interval.lower).toBeLessThan(e.value);
     expect(e.interval.upper).toBeGreaterThan(e.value);
     expect(e.corrected).toBeCloseTo(e.value - e.bias, 12);
+    // The bias-corrected interval is the spread of the estimate and the uncertainty of the bias, added in
+    // quadrature on each side: z·√(SE(bias)² + SE(truth)²), z = scipy.stats.norm.ppf(0.975) = 1.959963984540054.
+    // The look-alike's truth is a Monte-Carlo mean here (d = 3), so its SE is positive.
+    expect(e.truthSe).toBeGreaterThan(0);
+    const spread = 1.959963984540054 * Math.hypot(e.biasSe, e.truthSe);
+    expect(e.correctedInterval.lower).toBeCloseTo(e.corrected - Math.hypot(e.value - e.interval.lower, spread), 12);
+    expect(e.correctedInterval.upper).toBeCloseTo(e.corrected + Math.hypot(e.interval.upper - e.value, spread), 12);
     expect(advice.lookalike.spec.startsWith('gaussian-mixture-mv[')).toBe(true);
   });
 });

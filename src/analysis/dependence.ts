@@ -18,13 +18,10 @@
  * by Holm's step-down (src/analysis/holm.ts), and a verdict is "thinning better" when the MSE drops, "all rows
  * better" when it grows, with an adjusted p at most 1 − L; "cannot tell" otherwise.
  */
-import { loadPackage } from '../core/vendor.js';
-import { normalSurvival } from '../math/special.js';
+import { normalQuantile, normalSurvival } from '../math/special.js';
 import type { Cell, ScenarioInfo } from './cells.js';
 import { holmAdjusted } from './holm.js';
 import type { ValueWithSe } from './score.js';
-
-const normalQuantile = loadPackage<typeof import('@stdlib/stats-base-dists-normal-quantile')>('@stdlib/stats-base-dists-normal-quantile');
 
 export interface VarianceInflation {
   /** The autocorrelated scenario and its base (the φ = 0 scenario of the same plan). */
@@ -101,7 +98,7 @@ export function varianceRatio(a: number[], b: number[], level = 0.95): (ValueWit
   if (!va || !vb || !(va.s2 > 0) || !(vb.s2 > 0)) return null;
   const ratio = va.s2 / vb.s2;
   const seLog = Math.sqrt(va.varS2 / (va.s2 * va.s2) + vb.varS2 / (vb.s2 * vb.s2));
-  const z = normalQuantile((1 + level) / 2, 0, 1);
+  const z = normalQuantile((1 + level) / 2);
   return { value: ratio, se: ratio * seLog, lower: ratio * Math.exp(-z * seLog), upper: ratio * Math.exp(z * seLog) };
 }
 

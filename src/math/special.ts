@@ -35,6 +35,11 @@ export const regularizedBeta = (x: number, a: number, b: number): number => beta
 /** 1 − I_x(a, b), accurate where I_x rounds to 1. */
 export const regularizedBetaUpper = (x: number, a: number, b: number): number => betaincImpl(x, a, b, true, true);
 
+const normalQuantileImpl = loadPackage<typeof import('@stdlib/stats-base-dists-normal-quantile')>('@stdlib/stats-base-dists-normal-quantile');
+
+/** Standard normal quantile Φ⁻¹(p): 1.959963984540054 at 0.975. */
+export const normalQuantile = (p: number): number => normalQuantileImpl(p, 0, 1);
+
 /** Standard normal survival function 1 − Φ(z), accurate in the upper tail. */
 export function normalSurvival(z: number): number {
   return 0.5 * erfc(z / Math.SQRT2);

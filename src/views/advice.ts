@@ -203,7 +203,8 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
     lines.push(`Bias-corrected = estimate − the look-alike bias (${pm(e.bias.value, e.bias.se)} nats); it is only as good as the look-alike's likeness.`);
     if (e.interval) {
       lines.push(
-        `Interval: ${e.interval.method}; ${e.interval.resamples} resamples, whose median estimate sat ${num(e.interval.shift, 2)} nats from the estimate (the shift removed).`,
+        `Interval: ${e.interval.method}; ${e.interval.resamples} resamples, whose median estimate sat ${num(e.interval.shift, 2)} nats from the estimate (the shift removed). ` +
+          `The estimate's interval shows its sampling spread only, not its bias; the bias-corrected one also carries the bias's uncertainty (its SE${e.truthSe > 0 ? ` and the look-alike truth's, ${num(e.truthSe, 2)}` : ''}, added in quadrature on each side).`,
       );
     }
   }
@@ -342,6 +343,7 @@ export function fileAdviceJson(advice: FileAdvice, file: string) {
       biasSe: advice.estimate.bias.se,
       corrected: advice.estimate.corrected,
       correctedInterval: advice.estimate.correctedInterval,
+      truthSe: advice.estimate.truthSe,
     },
     warnings: advice.warnings,
     seconds: advice.seconds,

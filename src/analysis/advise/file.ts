@@ -26,6 +26,7 @@ import { DEFAULT_SEED } from '../../core/rng.js';
 import { MAX_BUDGET_SECONDS, tooFewPoints } from './situation.js';
 import { dequantizedVariant, parseEstimatorSpec, runEstimator, type ConfiguredEstimator } from '../../../estimators/index.js';
 import { detectSteps } from '../../math/lattice.js';
+import { normalQuantile } from '../../math/special.js';
 import type { CommandDeclaration } from '../../harness/external/declaration.js';
 import { describeSeconds, largestRowsWhere, predictedReplicateSeconds, predictedSeconds, rowsWithin } from '../../harness/cost-model.js';
 import { defaultWorkers } from '../../harness/runner.js';
@@ -117,7 +118,14 @@ export interface FileAdvice {
     bias: ValueWithSe;
     /** value − bias */
     corrected: number;
+    /**
+     * The interval shifted by −bias and widened, on each side, for the bias's own uncertainty: √(h² + (z·s)²), h
+     * the side's half-width, s² = SE(bias)² + the look-alike truth's SE², z the normal quantile of the level
+     * (independent errors added in quadrature; a large-sample combination, common practice).
+     */
     correctedInterval: { lower: number; upper: number } | null;
+    /** The look-alike truth's Monte-Carlo SE (0 when it comes from quadrature), part of the bias's uncertainty. */
+    truthSe: number;
   } | null;
   warnings: string[];
   seconds: number;
@@ -488,6 +496,7 @@ function chosenEstimate(
   summaries: EstimatorSummary[],
   userEstimates: UserEstimate[],
   warnings: string[],
+  truthSe: number,
 ): { estimate: FileAdvice['estimate']; allRows: AllRowsEstimate | null } {
   const usable = usableEstimator(recommended, summaries, userEstimates);
   if (!usable) {
@@ -511,15 +520,14 @@ function chosenEstimate(
     if (note) warnings.push(note);
   }
   const interval = ctx.level === null ? null : bootstrapInterval(ctx, ctx.level, sample, chosen, usable.label, value, warnings);
-  const estimate = {
-    estimator: usable.estimator,
-    label: usable.label,
-    value,
-    interval,
-    bias,
-    corrected: value - bias.value,
-    correctedInterval: interval ? { lower: interval.lower - bias.value, upper: interval.upper - bias.value } : null,
-  };
+  const corrected = value - bias.value;
+  let correctedInterval: { lower: number; upper: number } | null = null;
+  if (interval) {
+    const z = normalQuantile((1 + interval.level) / 2);
+    const spread = z * Math.hypot(bias.se, truthSe);
+    correctedInterval = { lower: corrected - Math.hypot(value - interval.lower, spread), upper: corrected + Math.hypot(interval.upper - value, spread) };
+  }
+  const estimate = { estimator: usable.estimator, label: usable.label, value, interval, bias, corrected, correctedInterval, truthSe };
   return { estimate, allRows };
 }
 
@@ -569,7 +577,10 @@ export async function adviseFile(fileSample: Sample, options: FileAdviceOptions 
   lap('estimates');
   const warnings = analysisWarnings(ctx, profile, lookalike, bench, subsample, n, recording !== null);
   if (recording) warnings.unshift(recording.note);
-  const { estimate, allRows } = chosenEstimate(ctx, fileSample, sample, subsample, recommendation.recommended, summaries, userEstimates, warnings);
+  // The bias is measured against the look-alike's truth (recorded[...] keeps its base's), so that truth's
+  // Monte-Carlo error is part of it; a quadrature's error estimate is not a standard error, and is far smaller.
+  const truthSe = lookalike.truth.method === 'monte-carlo' ? lookalike.truth.error : 0;
+  const { estimate, allRows } = chosenEstimate(ctx, fileSample, sample, subsample, recommendation.recommended, summaries, userEstimates, warnings, truthSe);
   return {
     n,
     dim,

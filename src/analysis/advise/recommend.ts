@@ -255,6 +255,13 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 
       tail = runnerUpTiedOn.length
         ? `; the runner-up ${runnerUp.label} is in the best set too on ${describeSubset(runnerUpTiedOn, scenarios)}`
         : `; the runner-up ${runnerUp.label} is outside the best set on every scenario`;
+      // The mean RMSEs' SEs are taken as independent (conservative for estimators run on the same draws): a gap
+      // within twice their combined SE does not rank the two, and the sentence must not read as if it did.
+      const gap = runnerUp.meanRmse.value - recommended.meanRmse.value;
+      if (gap <= 2 * Math.hypot(recommended.meanRmse.se, runnerUp.meanRmse.se)) {
+        const [mine, theirs] = distinguishable(recommended.meanRmse.value, runnerUp.meanRmse.value);
+        tail += `, and its mean RMSE (${theirs} ± ${formatNats(runnerUp.meanRmse.se)} against ${mine}) is within twice their combined SE: the two are about equally good here, and the pick follows the lower mean`;
+      }
     }
   }
   const skipped =
