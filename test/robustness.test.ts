@@ -17,6 +17,7 @@ import { meanLogReference, parseReference, rescaleReference } from '../src/analy
 import { integrate } from '../src/math/quadrature.js';
 import { convertEntropy, unitFactor } from '../src/core/units.js';
 import { quantizationThreshold } from '../src/analysis/robustness.js';
+import { robustnessText } from '../src/views/verdict-text.js';
 import { robustnessTable } from '../src/views/tables.js';
 
 function prepared(spec: string, scenario: string): PreparedPerturbation {
@@ -153,7 +154,17 @@ describe('monotone and affine perturbations in the table', () => {
 });
 
 describe('quantization and tuning', () => {
-  it('the quantization threshold is the largest step before the bias leaves 2 Monte-Carlo errors or an estimate fails', () => {
+  it('values in nats follow --bits, and show the SDs their verdict is judged in', () => {
+    // 0.29 nats = 0.29/ln 2 = 0.418 bits; 4.37 nats = 6.30 bits (by hand).
+    expect(robustnessText('contaminate', 'fail', 0.29, undefined, { base: 'bits', sd: 10.2 })).toBe('fail 0.42 bits (10 SD)');
+    expect(robustnessText('contaminate', 'warn', 0.056, undefined, { sd: 2.04 })).toBe('warn 0.056 nats (2.0 SD)');
+    expect(robustnessText('rescale', 'fail', 4.37, undefined, { base: 'bits', sd: 190 })).toBe('fail 6.3 bits (190 SD)');
+    // A passing drift is judged in nats (exact to rounding): no SDs.
+    expect(robustnessText('rescale', 'pass', 7e-16, undefined, { sd: 1e-14 })).toBe('pass 7e-16 nats');
+    expect(robustnessText('monotone', 'warn', 0.46, undefined, { base: 'bits' })).toBe('warn 0.46 SD');
+  });
+
+  it('the quantization threshold is the largest step before the bias moves by 0.25 SD or an estimate fails, whatever the replicate count', () => {
     const base = {
       scenario: 's',
       estimator: 'e',
@@ -170,8 +181,12 @@ describe('quantization and tuning', () => {
       { ...base, level: 0.01, change: { value: 0.015, se: 1e-3 }, failures: 0 },
       { ...base, level: 0.1, change: { value: 0.05, se: 1e-3 }, failures: 0 },
     ];
+    // 0.25 × SD 0.1 = 0.025 (by hand): 0.015 is below it, 0.05 is not.
     expect(quantizationThreshold(levels)).toBe(0.01);
     expect(quantizationThreshold([{ ...levels[0], failures: 2 }, levels[1]])).toBe(0);
+    // Few replicates (a bias SE of 0.05) make no change look small: 0.05 is still twice the threshold. A rule
+    // "within 2 Monte-Carlo SE" would have passed it, and passed more the fewer the replicates.
+    expect(quantizationThreshold(levels.map((m) => ({ ...m, biasSe: 0.05 })))).toBe(0.01);
   });
 
   it('tuning grids run on the same draws, and the spread is (max − min of the means)/SD', async () => {

@@ -207,7 +207,7 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
   print(scenarioTables(run, base));
   const overall = overallTable(run);
   if (overall) print(overall);
-  const robustness = robustnessTable(run);
+  const robustness = robustnessTable(run, base);
   if (robustness) print(robustness);
   const dependence = dependenceTables(run, base);
   if (dependence) print(dependence);

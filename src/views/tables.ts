@@ -172,7 +172,7 @@ export function scoresCsv(run: RunFile, base: Base): string {
 }
 
 /** One row per estimator, one column per perturbation kind and tuning: verdict and the worst value. */
-export function robustnessTable(run: RunFile): string {
+export function robustnessTable(run: RunFile, base: Base = 'nats'): string {
   const section = run.robustness;
   if (!section) return '';
   const columns = ['rescale', 'monotone', 'affine', 'quantize', 'contaminate', 'tuning'].filter((c) =>
@@ -183,7 +183,7 @@ export function robustnessTable(run: RunFile): string {
     estimatorLabel(row.estimator),
     ...columns.map((c) => {
       const cell = row.columns[c];
-      return robustnessText(c, cell.verdict, cell.value, finest);
+      return robustnessText(c, cell.verdict, cell.value, finest, { base, sd: cell.sd });
     }),
   ]);
   return [

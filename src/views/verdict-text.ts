@@ -3,7 +3,7 @@
  * everywhere: ranks ("1=" for a member of a best set of more than one, the ordinal rank below it, and the
  * reason for a rank not earned by comparison) and robustness verdicts with the unit of their value.
  */
-import { formatValue } from '../core/format.js';
+import { formatValue, toBase, type Base } from '../core/format.js';
 import type { RankEntry, Ranking } from '../analysis/ranking.js';
 import type { RobustnessSection } from '../analysis/robustness.js';
 
@@ -70,23 +70,36 @@ export const COLUMN_TITLES: Record<string, string> = {
  * step, in SDs), "0.29 nats". A quantize value of 0 means no step was safe: "<0.001 SD" when the smallest
  * step tried is known.
  */
-export function robustnessValue(column: string, value: number | null, smallestStep?: number): string {
+export function robustnessValue(column: string, value: number | null, smallestStep?: number, options: ValueOptions = {}): string {
   if (value === null || !Number.isFinite(value)) return '';
+  const base = options.base ?? 'nats';
+  const inSd = (verdict: boolean) => (verdict && options.sd !== undefined && Number.isFinite(options.sd) ? ` (${formatValue(options.sd, 2)} SD)` : '');
   switch (column) {
-    case 'rescale':
-      return value === 0 ? '0 nats' : `${value.toExponential(0)} nats`;
+    case 'rescale': {
+      const drift = toBase(value, base);
+      // Judged in nats when it passes (exact to rounding), in SDs otherwise: show the SDs where they decide.
+      const shown = drift === 0 ? '0' : Math.abs(drift) >= 1e-3 ? formatValue(drift, 2) : drift.toExponential(0);
+      return `${shown} ${base}${inSd(options.verdict !== undefined && options.verdict !== 'pass')}`;
+    }
     case 'quantize':
       return value === 0 ? (smallestStep === undefined ? '<min' : `<${smallestStep} SD`) : `${value} SD`;
     case 'contaminate':
-      return `${formatValue(value, 2)} nats`;
+      return `${formatValue(toBase(value, base), 2)} ${base}${inSd(true)}`;
     default:
       return `${formatValue(value, 2)} SD`;
   }
 }
 
-/** A robustness verdict with its value and unit, e.g. "fail 11 SD"; "–" where it does not apply. */
-export function robustnessText(column: string, verdict: string, value: number | null, smallestStep?: number): string {
-  return verdict === 'n/a' ? '–' : `${verdict} ${robustnessValue(column, value, smallestStep)}`.trim();
+/** How a robustness value is shown: the unit of entropies, the value in SDs (which the verdict is judged in), the verdict. */
+export interface ValueOptions {
+  base?: Base;
+  sd?: number;
+  verdict?: string;
+}
+
+/** A robustness verdict with its value and unit, e.g. "fail 11 SD", "fail 0.29 nats (3.1 SD)"; "–" where it does not apply. */
+export function robustnessText(column: string, verdict: string, value: number | null, smallestStep?: number, options: ValueOptions = {}): string {
+  return verdict === 'n/a' ? '–' : `${verdict} ${robustnessValue(column, value, smallestStep, { ...options, verdict })}`.trim();
 }
 
 /** The finest recording step a robustness section tried, in SDs (undefined when it tried none). */

@@ -39,6 +39,8 @@ export interface RobustnessFlag {
   /** rescale: unit drift in nats; quantize: the largest safe step in SDs; contaminate: nats per 1% of outliers. */
   value: number | null;
   detail: string;
+  /** rescale and contaminate: the value in the estimator's SDs, the unit their verdicts are judged in. */
+  sd?: number;
 }
 
 export interface EstimatorSummary {
@@ -138,7 +140,7 @@ export function summarise(run: RunFile): EstimatorSummary[] {
         ? Object.fromEntries(
             ROBUSTNESS_FLAGS.map((k) => [
               k,
-              { verdict: row.columns[k]?.verdict ?? 'n/a', value: row.columns[k]?.value ?? null, detail: row.columns[k]?.detail ?? '' },
+              { verdict: row.columns[k]?.verdict ?? 'n/a', value: row.columns[k]?.value ?? null, detail: row.columns[k]?.detail ?? '', sd: row.columns[k]?.sd },
             ]),
           )
         : null,

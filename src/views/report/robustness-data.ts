@@ -37,7 +37,7 @@ export function robustnessGrid(data: ReportData, section: RobustnessSection): Ro
     for (const column of columns) {
       const cell = row.columns[column];
       const verdict: Verdict = cell?.verdict ?? 'n/a';
-      const text = cell ? robustnessText(column, verdict, cell.value, finest) : '–';
+      const text = cell ? robustnessText(column, verdict, cell.value, finest, { base: data.base, sd: cell.sd }) : '–';
       rows.push({ estimator, column, verdict, text, detail: cell?.detail ?? '' });
     }
   }

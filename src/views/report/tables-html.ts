@@ -134,7 +134,7 @@ export function robustnessTable(data: ReportData, section: RobustnessSection, co
       const cell = row.columns[column];
       if (!cell) return { text: '–', sort: null };
       return {
-        text: robustnessText(column, cell.verdict, cell.value, finest),
+        text: robustnessText(column, cell.verdict, cell.value, finest, { base: data.base, sd: cell.sd }),
         sort: finite(cell.value) ? cell.value : null,
         title: cell.detail,
         className: cell.verdict === 'n/a' ? undefined : cell.verdict,
