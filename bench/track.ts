@@ -19,7 +19,7 @@ import { resolve } from 'node:path';
 import { defaultPlan } from '../src/harness/default-plan.js';
 import { resolvePlan } from '../src/harness/plan.js';
 import { runPlan } from '../src/harness/runner.js';
-import { assembleRun, writeFileAtomic, writeRunFile } from '../src/analysis/results.js';
+import { assembleRun, readRunFile, writeFileAtomic, writeRunFile } from '../src/analysis/results.js';
 import { compareRuns, describeTolerance, parseTolerance, type CellComparison, type Comparison } from '../src/analysis/compare.js';
 import { formatComparisonMarkdown } from '../src/views/compare-format.js';
 import { comparableBaseline, describeBaselineCell, readBaseline, writeBaseline } from '../src/analysis/baseline-file.js';
@@ -110,6 +110,9 @@ async function main(): Promise<number> {
     const run = assembleRun(await runPlan(plan, { workers: WORKERS }), null);
     const seconds = ((performance.now() - started) / 1000).toFixed(1);
     writeRunFile(resolve(runPath(quantity)), run);
+    // The default plans exercise every column of the run file; one that `report` or `compare` could not read
+    // back is a failure of this checkout even when every estimate is unchanged.
+    readRunFile(resolve(runPath(quantity)));
     if (refresh) {
       const baseline = writeBaseline(resolve(baselinePath(quantity)), run);
       console.log(

@@ -400,6 +400,27 @@ const brokenEstimators: [CheckName, string, () => Promise<Estimator> | Estimator
   ],
   [
     'known-value',
+    'reports bits for nats (mutual information)',
+    () => broken(miGaussian, 'bits-mi', { estimate: (sample, settings) => miGaussian.estimate(sample, settings) / Math.LN2 }),
+  ],
+  [
+    'known-value',
+    'reports bits for nats (conditional mutual information)',
+    () =>
+      broken(getEstimator('cmi-gaussian'), 'bits-cmi', { estimate: (sample, settings) => getEstimator('cmi-gaussian').estimate(sample, settings) / Math.LN2 }),
+  ],
+  [
+    'known-value',
+    'reports bits for nats (transfer entropy)',
+    () => broken(getEstimator('te-gaussian'), 'bits-te', { estimate: (sample, settings) => getEstimator('te-gaussian').estimate(sample, settings) / Math.LN2 }),
+  ],
+  [
+    'known-value',
+    'reports bits for nats (divergence)',
+    () => broken(gaussianDivergence, 'bits-divergence', { estimate: (sample, settings) => gaussianDivergence.estimate(sample, settings) / Math.LN2 }),
+  ],
+  [
+    'known-value',
     'drops the minus sign of −½ log(1 − ρ²) (mutual information)',
     () => broken(miGaussian, 'sign-flipped-mi', { estimate: (sample, settings) => -miGaussian.estimate(sample, settings) }),
   ],
@@ -631,7 +652,7 @@ describe('hhat check', () => {
   it('checks the built-ins without a module, and one estimator with settings', async () => {
     const { code, out } = await runCli(['check', '--estimator', 'ksg1:copula=rank']);
     expect(code).toBe(0);
-    expect(out).toMatch(/^ksg1:k=3,copula=rank \(mutual-information, samples from mi-gaussian:dimX=1,dimY=1,rho=0.6,within=0\): passes/);
+    expect(out).toMatch(/^ksg1:k=3,copula=rank \(mutual-information, samples from mi-gaussian:dimX=1,dimY=1,rho=0.9,within=0\): passes/);
   });
 
   it('usage mistakes exit 2 with one line: no such file, not a module, no estimators, an unknown id, a refused setting', async () => {

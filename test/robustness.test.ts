@@ -8,7 +8,7 @@ import { Matrix, determinant } from 'ml-matrix';
 import digamma from '@stdlib/math-base-special-digamma';
 import { resolvePlan } from '../src/harness/plan.js';
 import { runPlan } from '../src/harness/runner.js';
-import { assembleRun, cellKey, type RunFile } from '../src/analysis/results.js';
+import { assembleRun, cellKey, runFileErrors, toJson, type RunFile } from '../src/analysis/results.js';
 import { parsePerturbation, type PreparedPerturbation } from '../src/harness/perturb.js';
 import { parseScenario } from '../scenarios/index.js';
 import { replicateRng } from '../src/core/rng.js';
@@ -309,5 +309,29 @@ describe('units', () => {
     // A large factor is exact: 1 + log(1e20) nats.
     const { out } = await runCli(['convert', '1', '--factor', '1e20']);
     expect(out).toMatch(/^47\.05170186 nats/);
+  });
+});
+
+describe('an estimator that fails on every unperturbed draw of a scenario', () => {
+  it('leaves that scenario out of its verdicts and the run file still reads back (a regression: the SD was written as null)', async () => {
+    // mi-from-entropies fails on mi-uniform-window (X takes a few values: tied points have no neighbour distance)
+    // and succeeds on mi-gaussian; the rescale verdict is judged on mi-gaussian alone.
+    const result = await run({
+      quantity: 'mutual-information',
+      scenarios: ['mi-gaussian:rho=0.5', 'mi-uniform-window:m=2'],
+      estimators: ['mi-from-entropies', 'ksg1'],
+      sampleSizes: [100],
+      replicates: 4,
+      seed: 3,
+      robustness: { perturbations: ['rescale:c=1000', 'monotone:map=asinh,part=x'], tuning: false },
+    });
+    const row = result.robustness!.table.find((r) => r.estimator.startsWith('mi-from-entropies'))!;
+    const unperturbed = result.cells.find((c) => c.role === 'main' && c.estimator === row.estimator && c.scenario.startsWith('mi-uniform-window'))!;
+    expect(unperturbed.estimates.every((v) => v === null)).toBe(true);
+    expect(row.columns.rescale.verdict).toBe('pass');
+    expect(row.columns.rescale.detail).toMatch(/1 scenario not judged \(the estimator failed unperturbed\)/);
+    expect(Number.isFinite(row.columns.rescale.sd)).toBe(true);
+    const reread = JSON.parse(toJson(result)) as unknown;
+    expect(runFileErrors(reread)).toBeNull();
   });
 });

@@ -149,8 +149,21 @@ function columnFor(kind: string, measures: RobustnessMeasure[], curves: TuningCu
     const top = curves.find((c) => c.spread === spread)!;
     return { value: spread, verdict, detail: `spread ${fmt(spread)} SD over ${top.setting} on ${top.scenario}` };
   }
-  const mine = measures.filter((m) => m.kind === kind);
-  if (!mine.length) return { value: null, verdict: 'n/a', detail: 'not run' };
+  const tried = measures.filter((m) => m.kind === kind);
+  if (!tried.length) return { value: null, verdict: 'n/a', detail: 'not run' };
+  // A perturbation is judged against the unperturbed estimates' spread; where the estimator failed on (nearly)
+  // every unperturbed draw there is no spread and nothing to compare, so that scenario is left out, not failed.
+  const mine = tried.filter((m) => Number.isFinite(m.sd));
+  if (!mine.length) return { value: null, verdict: 'n/a', detail: 'the estimator failed on the unperturbed draws' };
+  const skipped = new Set(tried.filter((m) => !Number.isFinite(m.sd)).map((m) => m.scenario)).size;
+  const column = judge(kind, mine);
+  const withSd = column.sd !== undefined && !Number.isFinite(column.sd) ? { ...column, sd: undefined } : column;
+  return skipped
+    ? { ...withSd, detail: `${withSd.detail}; ${skipped} scenario${skipped > 1 ? 's' : ''} not judged (the estimator failed unperturbed)` }
+    : withSd;
+}
+
+function judge(kind: string, mine: RobustnessMeasure[]): RobustnessRow['columns'][string] {
   switch (kind) {
     case 'rescale': {
       const drift = Math.max(...mine.map((m) => m.drift.value));
@@ -182,6 +195,7 @@ function columnFor(kind: string, measures: RobustnessMeasure[], curves: TuningCu
       for (const m of mine) byScenario.set(m.scenario, [...(byScenario.get(m.scenario) ?? []), m]);
       const thresholds = [...byScenario.values()].map(quantizationThreshold);
       const threshold = Math.min(...thresholds);
+      const finest = Math.min(...mine.map((m) => m.level ?? Infinity));
       const verdict: Verdict = threshold >= 0.1 ? 'pass' : threshold >= 0.01 ? 'warn' : 'fail';
       return {
         value: threshold,
@@ -189,7 +203,8 @@ function columnFor(kind: string, measures: RobustnessMeasure[], curves: TuningCu
         detail:
           threshold > 0
             ? `bias moves by less than ${NEGLIGIBLE_BIAS_SD} SD up to δ = ${fmt(threshold)} σ`
-            : `bias moves by ${NEGLIGIBLE_BIAS_SD} SD or more (or estimates fail) at the finest step tried`,
+            : `bias moves by ${NEGLIGIBLE_BIAS_SD} SD or more (or estimates fail) at the finest step tried, δ = ${fmt(finest)} σ` +
+              (finest > 0.01 ? '; no finer step was tried, so the safe step may lie anywhere below it' : ''),
       };
     }
     case 'contaminate': {

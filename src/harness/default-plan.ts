@@ -45,7 +45,7 @@ export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
       seed: DEFAULT_SEED,
       robustness: {
         sampleSize: 1000,
-        perturbations: ['rescale:c=1000', 'monotone:map=asinh,part=x', 'monotone:map=cubic,part=z', 'quantize:step=0.1'],
+        perturbations: ['rescale:c=1000', 'monotone:map=asinh,part=x', 'monotone:map=cubic,part=z', 'quantize:step=0.01', 'quantize:step=0.1'],
         tuning: false,
       },
     };
@@ -70,7 +70,7 @@ export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
       seed: DEFAULT_SEED,
       robustness: {
         sampleSize: 500,
-        perturbations: ['rescale:c=1000', 'monotone:map=asinh,part=x', 'monotone:map=cubic,part=y', 'quantize:step=0.1'],
+        perturbations: ['rescale:c=1000', 'monotone:map=asinh,part=x', 'monotone:map=cubic,part=y', 'quantize:step=0.01', 'quantize:step=0.1'],
         tuning: false,
       },
     };
