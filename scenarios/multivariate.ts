@@ -367,6 +367,8 @@ export function productScenario(components: Scenario[]): Scenario {
   const dim = components.reduce((s, c) => s + c.dim, 0);
   const supportRank = { bounded: 0, half: 1, unbounded: 2 } as const;
   const tailRank = { light: 0, exponential: 1, heavy: 2 } as const;
+  // How far the law extends, as for a data file's columns in advise (profile.ts): the least bounded factor's
+  // class, so a bounded factor's hard edges do not show in it (README, "Scenarios").
   const support = components.reduce((worst, c) => (supportRank[c.support] > supportRank[worst] ? c.support : worst), components[0].support);
   const tails = components.reduce((worst, c) => (tailRank[c.tails] > tailRank[worst] ? c.tails : worst), components[0].tails);
   const offsets: number[] = [];

@@ -689,3 +689,24 @@ describe('hhat estimate FILE --x-columns --y-columns', () => {
     }
   });
 });
+
+describe('hhat estimate notes a negative estimate of a quantity that cannot be negative', () => {
+  // Two soil-moisture probes in separate fields: independent readings, so I(X; Y) = 0 and some estimates fall below it.
+  const draw = normalRandom.factory(0, 1, { prng: rngFromSeed('negative-mi-note') });
+  const file = join(mkdtempSync(join(tmpdir(), 'hhat-negative-mi-')), 'probes.csv');
+  writeFileSync(file, ['north,south', ...Array.from({ length: 300 }, () => `${draw()},${draw()}`)].join('\n'));
+
+  it('names exactly the estimators whose value (from --json) is below 0, and reads them as about 0', async () => {
+    const json = await run(['estimate', file, '--x-columns', 'north', '--y-columns', 'south', '--json']);
+    expect(json.code).toBe(0);
+    const values = (JSON.parse(json.out) as { estimates: { estimator: string; value: number }[] }).estimates;
+    const below = values.filter((e) => e.value < 0).map((e) => e.estimator.split(':')[0]);
+    expect(below.length).toBeGreaterThan(0); // the draw was chosen so that the note has something to say
+    const { code, out } = await run(['estimate', file, '--x-columns', 'north', '--y-columns', 'south']);
+    expect(code).toBe(0);
+    const note = out.split('\n').find((l) => l.startsWith('note: mutual information is never negative'))!;
+    expect(note).toBeDefined();
+    for (const e of values) expect(note.includes(`${e.estimator.split(':')[0]} -`)).toBe(e.value < 0);
+    expect(note).toMatch(/read (it|them) as "about 0"/);
+  });
+});

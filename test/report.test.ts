@@ -403,3 +403,22 @@ describe('biasTextChart', () => {
     for (const info of run.scenarios) expect(text).toContain(`${info.id}: |bias|`);
   });
 });
+
+describe('the efficiency chart names the variance it divides by', () => {
+  it('for mutual information the information density, not log f; for entropy log f', async () => {
+    const { plan } = resolvePlan({
+      quantity: 'mutual-information',
+      scenarios: ['mi-gaussian:rho=0.6'],
+      estimators: ['mi-gaussian', 'ksg1'],
+      sampleSizes: [100, 200],
+      replicates: 6,
+      seed: 4,
+    });
+    const mi = await renderReport(assembleRun(await runPlan(plan, { workers: 1 }), null));
+    expect(mi.html).toContain('Efficiency n·Var(Î)/Var(i(X; Y)) against the asymptotic 1');
+    expect(mi.html).toContain('the information density');
+    expect(mi.html).not.toContain('Var(log f');
+    const entropy = await renderReport(run);
+    expect(entropy.html).toContain('Efficiency n·Var(Ĥ)/Var(log f(X)) against the asymptotic 1');
+  });
+});

@@ -636,6 +636,8 @@ function printEstimateTable(
   const rounded = records.some((r) => Object.values(r.settings).some((v) => formatSetting(v) !== String(v)));
   if (rounded) print(`settings used: to ${SETTING_DIGITS} significant digits; --json gives every digit`);
   for (const note of cutNotes) print(note);
+  const negative = quantity === 'entropy' ? [] : records.filter((r) => r.value !== null && r.value < 0);
+  if (negative.length) print(negativeNote(quantity, negative));
   // Failures that are not errors go with the table, so saved output explains its own "failed" rows;
   // errors go to stderr alone, so a terminal does not show each reason twice.
   if (!failedAsError) {
@@ -644,6 +646,17 @@ function printEstimateTable(
     if (hints.length && !recorded) print(['repeated values in the data:', ...hints.map((h) => `  ${h}`)].join('\n'));
   }
   if (recorded) printRecorded(print, file, sample, quantity, recorded, head[head.length - (reference ? 2 : 1)], reference !== undefined);
+}
+
+/**
+ * Mutual information, its conditional form, transfer entropy and divergence are never below 0, so a negative
+ * estimate is the estimator's own error (bias or noise) where the true value is small; saying so keeps a reader
+ * from taking it for a finding.
+ */
+export function negativeNote(quantity: Quantity, negative: Pick<EstimateRecord, 'estimator' | 'value' | 'direction'>[]): string {
+  const what = quantity === 'divergence' ? 'a divergence' : quantity === 'transfer-entropy' ? 'transfer entropy' : `${quantity.replace(/-/g, ' ')}`;
+  const list = negative.map((r) => `${r.estimator}${r.direction ? ` ${r.direction}` : ''} ${formatValue(r.value!, 2)}`).join(', ');
+  return `note: ${what} is never negative; ${list} ${negative.length > 1 ? 'are' : 'is'} below 0 by the estimator's own error (bias and noise where the true value is near 0), so read ${negative.length > 1 ? 'them' : 'it'} as "about 0"; hhat bench --quantity ${quantity} shows each estimator's spread where the truth is small`;
 }
 
 /** The recording step of each column and the estimators for recorded data, each saying how it treats the step. */

@@ -4,6 +4,7 @@
  * charts: their position in the plan picks both.
  */
 import { toBase, type Base } from '../../core/format.js';
+import type { Quantity } from '../../core/contracts.js';
 import { rankedGroups, type Cell, type RunFile, type ScenarioInfo } from '../../analysis/results.js';
 import { estimatorLabel } from '../../../estimators/index.js';
 import { estimatorColour, estimatorShape } from './palette.js';
@@ -156,9 +157,38 @@ export interface EfficiencyData {
   rows: { scenario: string; series: string; n: number; value: number; lower: number; upper: number }[];
   scenarios: string[];
   series: Series[];
+  /** The ratio and the variance it divides by, in the run's quantity (efficiencyFormula). */
+  formula: EfficiencyFormula;
 }
 
-/** n·Var(Ĥ)/Var(log f) at each scenario's largest n; a ratio, so the same in nats and bits. */
+export interface EfficiencyFormula {
+  /** e.g. "n·Var(Î)/Var(i(X; Y))" */
+  ratio: string;
+  /** The variance in the denominator, e.g. "Var(i(X; Y))", and what it is where the symbol needs saying. */
+  variance: string;
+  meaning: string;
+}
+
+/**
+ * What the efficiency ratio divides by: the variance of the log-density for entropy, of the information
+ * density for mutual information (the scenarios' logDensityVariance holds whichever the quantity needs).
+ */
+export function efficiencyFormula(quantity: Quantity): EfficiencyFormula {
+  switch (quantity) {
+    case 'mutual-information':
+      return { ratio: 'n·Var(Î)/Var(i(X; Y))', variance: 'Var(i(X; Y))', meaning: 'i = log f(x, y)/(f(x) f(y)), the information density' };
+    case 'conditional-mutual-information':
+      return {
+        ratio: 'n·Var(Î)/Var(i(X; Y | Z))',
+        variance: 'Var(i(X; Y | Z))',
+        meaning: 'i = log f(x, y, z) f(z)/(f(x, z) f(y, z)), the conditional information density',
+      };
+    default:
+      return { ratio: 'n·Var(Ĥ)/Var(log f(X))', variance: 'Var(log f(X))', meaning: 'f the density' };
+  }
+}
+
+/** The efficiency ratio at each scenario's largest n; a ratio, so the same in nats and bits. */
 export function efficiencyData(data: ReportData): EfficiencyData {
   const rows: EfficiencyData['rows'] = [];
   const specs = new Set<string>();
@@ -175,7 +205,7 @@ export function efficiencyData(data: ReportData): EfficiencyData {
     }
   }
   const series = data.estimators.filter((e) => specs.has(e)).map((e) => data.series(e));
-  return { rows, scenarios: [...new Set(rows.map((r) => r.scenario))], series };
+  return { rows, scenarios: [...new Set(rows.map((r) => r.scenario))], series, formula: efficiencyFormula(data.run.plan.quantity) };
 }
 
 export interface RankGrid {

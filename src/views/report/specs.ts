@@ -125,7 +125,7 @@ export function distributionSpec(chart: DistributionData, base: Base): TopLevelS
 export function efficiencySpec(chart: EfficiencyData): TopLevelSpec {
   const names = chart.series.map((s) => s.name);
   const band = Math.max(36, names.length * 9);
-  const x = { field: 'value', type: 'quantitative' as const, scale: { type: 'log' as const }, title: 'efficiency n·Var(Ĥ)/Var(log f(X)) (ratio, no unit)' };
+  const x = { field: 'value', type: 'quantitative' as const, scale: { type: 'log' as const }, title: `efficiency ${chart.formula.ratio} (ratio, no unit)` };
   const y = { field: 'scenario', type: 'nominal' as const, sort: chart.scenarios, title: null, axis: { labelLimit: 320 } };
   const yOffset = { field: 'series', type: 'nominal' as const, sort: names };
   const colour = { field: 'series', type: 'nominal' as const, scale: colourScale(chart.series), legend: bottomLegend() };
@@ -134,8 +134,9 @@ export function efficiencySpec(chart: EfficiencyData): TopLevelSpec {
     title: {
       text: `Efficiency at the largest n (${sizes.join(', ')})`,
       subtitle: [
-        'dashed line at 1: n·Var(Ĥ) = Var(log f), the large-sample variance',
+        `dashed line at 1: n·Var = ${chart.formula.variance}, the large-sample variance`,
         'of an efficient estimator (not a finite-n bound)',
+        `(${chart.formula.meaning})`,
         'bars: ±1 Monte-Carlo SE',
       ],
     },
