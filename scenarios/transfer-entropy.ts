@@ -1,6 +1,7 @@
 /**
  * Transfer-entropy scenarios: stationary bivariate Gaussian VAR(1) processes whose transfer entropy
- * TE(X → Y) = I(Y_{t+1}; X_t | Y_t) (history lengths k = l = 1; Schreiber 2000) is exact. A sample is one
+ * TE(X → Y) = I(Y_{t+1}; X_t..X_{t−l+1} | Y_t..Y_{t−k+1}) (Schreiber 2000) is exact, for the history lengths
+ * k = `history` and l = `sourceHistory` the scenario names (default 1, left out of the id). A sample is one
  * stretch of the process: n rows in time order, column 0 the source, column 1 the target (`xDim` = 1).
  *
  *   const s = parseScenario('te-var1:a=0.5,b=0.5,cXY=0.4,cYX=0');
@@ -30,12 +31,18 @@ const SCHREIBER = 'Schreiber, T. (2000). Measuring information transfer. Physica
 
 const coefficient = (name: string, meaning: string, def: number): ParamSpec => ({ name, meaning, default: def, min: -5, max: 5 });
 
-const var1Specs: ParamSpec[] = [
+const coefficientSpecs: ParamSpec[] = [
   coefficient('a', 'X_{t+1} on X_t (source memory)', 0.5),
   coefficient('b', 'Y_{t+1} on Y_t (target memory)', 0.5),
   coefficient('cXY', 'coupling X → Y: Y_{t+1} on X_t', 0.4),
   coefficient('cYX', 'coupling Y → X: X_{t+1} on Y_t', 0),
 ];
+/** The histories the truth is stated for, as an estimator's `history` and `sourceHistory` settings name them. */
+const historySpecs: ParamSpec[] = [
+  { name: 'history', meaning: 'k: past values of the target the truth conditions on', default: 1, min: 1, max: 50, integer: true },
+  { name: 'sourceHistory', meaning: 'l: past values of the source the truth conditions on', default: 1, min: 1, max: 50, integer: true },
+];
+const var1Specs: ParamSpec[] = [...coefficientSpecs, ...historySpecs];
 
 /** The coefficient matrix A of s_{t+1} = A s_t + e, row-major [[a, cYX], [cXY, b]]. */
 export function var1Matrix(p: { a: number; b: number; cXY: number; cYX: number }): [number, number, number, number] {
@@ -135,12 +142,49 @@ export function drawVar1(rng: Rng, n: number, law: Var1Law, swap: boolean): Floa
   return out;
 }
 
+/**
+ * TE(source → target) with k past values of the target and l ≥ 1 of the source. The denominator
+ * Var(T_{t+1} | T_t..T_{t−k+1}, S_t..S_{t−l+1}) is 1 for every k, l ≥ 1: T_{t+1} minus its regression on (T_t, S_t)
+ * is the unit innovation, independent of the whole past. The numerator is the k-step linear prediction error of
+ * the target alone, from its autocovariances γ(h) = (A^h Σ)_TT by the Durbin–Levinson recursion (Brockwell &
+ * Davis, Time Series: Theory and Methods, 2nd ed. (1991), Proposition 5.2.1). So l does not change the value,
+ * and k does unless the target is autonomous (no coupling into it: TE = 0 for every k).
+ */
+export function var1TransferEntropy(law: Var1Law, intoY: boolean, history: number): number {
+  const coupling = intoY ? law.matrix[2] : law.matrix[1];
+  if (coupling === 0) return 0;
+  if (history === 1) return intoY ? law.xToY : law.yToX;
+  const [a, c, d, b] = law.matrix;
+  const [sxx, sxy, syy] = law.covariance;
+  // M = A^h Σ, advanced one lag at a time; γ(h) is its target-target entry.
+  let m = [sxx, sxy, sxy, syy];
+  const gamma: number[] = [];
+  for (let h = 0; h <= history; h++) {
+    gamma.push(intoY ? m[3] : m[0]);
+    m = [a * m[0] + c * m[2], a * m[1] + c * m[3], d * m[0] + b * m[2], d * m[1] + b * m[3]];
+  }
+  let phi: number[] = [];
+  let v = gamma[0];
+  for (let j = 1; j <= history; j++) {
+    let num = gamma[j];
+    for (let i = 0; i < j - 1; i++) num -= phi[i] * gamma[j - 1 - i];
+    const reflection = num / v;
+    phi = [...phi.map((p, i) => p - reflection * phi[j - 2 - i]), reflection];
+    v *= 1 - reflection * reflection;
+  }
+  return Math.max(0, 0.5 * Math.log(v));
+}
+
 function var1Scenario(family: string, p: Record<string, number>, swap: boolean): Scenario {
   const law = var1Law(family, { a: p.a, b: p.b, cXY: p.cXY, cYX: p.cYX });
+  const history = p.history ?? 1;
+  const sourceHistory = p.sourceHistory ?? 1;
   const [sxx, sxy, syy] = law.covariance;
   const [a, c, d, b] = law.matrix;
-  const forward = swap ? law.yToX : law.xToY;
-  const reverse = swap ? law.xToY : law.yToX;
+  const forward = var1TransferEntropy(law, !swap, history);
+  const reverse = var1TransferEntropy(law, swap, history);
+  const histories = `k = ${history}, l = ${sourceHistory}`;
+  const defaultHistories = history === 1 && sourceHistory === 1;
   const direction = swap ? 'TE(Y → X): source column 1 is the process’s Y, target column 2 its X' : 'TE(X → Y): source column 1 is X, target column 2 is Y';
   const rowCovariance = swap
     ? [
@@ -154,13 +198,18 @@ function var1Scenario(family: string, p: Record<string, number>, swap: boolean):
   const scenario = scenarioFromFacts(
     {
       family,
-      specs: var1Specs,
-      params: p,
+      // The histories join the id only where they differ from 1, so the k = l = 1 scenarios keep their ids.
+      specs: var1Specs.filter((s) => !((s.name === 'history' || s.name === 'sourceHistory') && (p[s.name] ?? 1) === 1)),
+      params: { ...p, history, sourceHistory },
       truth: forward,
-      truthSource:
-        `exact for history lengths k = l = 1 only: ${direction} = ½ log(Var(target_{t+1} | target_t) / Var(target_{t+1} | target_t, source_t)) ` +
-        `(${SCHREIBER}; Gaussian conditioning), the numerator from the stationary lag-0 and lag-1 covariances (Σ = AΣAᵀ + I, the discrete Lyapunov equation, ` +
-        'solved exactly; lag 1 = AΣ), the denominator 1 (the unit innovation). Longer histories give other values (the target alone is not Markov)',
+      truthSource: defaultHistories
+        ? `exact for history lengths k = l = 1 only: ${direction} = ½ log(Var(target_{t+1} | target_t) / Var(target_{t+1} | target_t, source_t)) ` +
+          `(${SCHREIBER}; Gaussian conditioning), the numerator from the stationary lag-0 and lag-1 covariances (Σ = AΣAᵀ + I, the discrete Lyapunov equation, ` +
+          'solved exactly; lag 1 = AΣ), the denominator 1 (the unit innovation). Longer histories give other values (the target alone is not Markov): ' +
+          'set history and sourceHistory to match an estimator that uses them'
+        : `exact for history lengths ${histories}: ${direction} = ½ log(Var(target_{t+1} | its last ${history}) / Var(target_{t+1} | its last ${history}, the source's last ${sourceHistory})) ` +
+          `(${SCHREIBER}; Gaussian conditioning), the numerator the ${history}-step linear prediction error of the target by the Durbin–Levinson recursion ` +
+          '(Brockwell & Davis 1991, Proposition 5.2.1) on its autocovariances (A^h Σ, Σ = AΣAᵀ + I solved exactly), the denominator 1 (the unit innovation)',
       support: 'unbounded',
       tails: 'light',
       marginals: rowCovariance.map((row, j) => univariateDensity('normal', { mu: 0, sigma: Math.sqrt(row[j]) })),
@@ -183,7 +232,7 @@ function var1Scenario(family: string, p: Record<string, number>, swap: boolean):
       [a * sxx + c * sxy, a * sxy + c * syy],
       [d * sxx + b * sxy, d * sxy + b * syy],
     ],
-    note: `rows are a time series (order matters); truth ${swap ? 'TE(Y → X)' : 'TE(X → Y)'} and reverse ${swap ? 'TE(X → Y)' : 'TE(Y → X)'} for k = l = 1; covariances in process order (X, Y)`,
+    note: `rows are a time series (order matters); truth ${swap ? 'TE(Y → X)' : 'TE(X → Y)'} and reverse ${swap ? 'TE(X → Y)' : 'TE(Y → X)'} for ${defaultHistories ? 'k = l = 1' : histories}; covariances in process order (X, Y)`,
   };
   return scenario;
 }
@@ -191,7 +240,8 @@ function var1Scenario(family: string, p: Record<string, number>, swap: boolean):
 const teVar1: ScenarioFamily = {
   id: 'te-var1',
   quantity: 'transfer-entropy',
-  summary: 'bivariate Gaussian VAR(1), stationary start; truth TE(X→Y) for k = l = 1 from the Lyapunov covariance',
+  summary:
+    'bivariate Gaussian VAR(1), stationary start; truth TE(X→Y) for histories k = history, l = sourceHistory (default 1), exact from the Lyapunov covariance',
   params: var1Specs,
   create: (p) => var1Scenario('te-var1', p, false),
   examples: [
@@ -205,7 +255,7 @@ const teVar1: ScenarioFamily = {
 const teVar1Reverse: ScenarioFamily = {
   id: 'te-var1-reverse',
   quantity: 'transfer-entropy',
-  summary: 'te-var1 with its columns swapped (Y first): truth TE(Y→X) for k = l = 1, the other direction of the same process',
+  summary: 'te-var1 with its columns swapped (Y first): truth TE(Y→X) for k = history, l = sourceHistory, the other direction of the same process',
   params: var1Specs,
   create: (p) => var1Scenario('te-var1-reverse', p, true),
 };

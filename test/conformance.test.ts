@@ -23,6 +23,7 @@ import { checkedPair } from '../estimators/divergence.js';
 import { checkedSplit } from '../estimators/mutual-information.js';
 import { defaultWindow } from '../estimators/spacing.js';
 import { runCli } from './helpers/cli.js';
+import teHistory from './fixtures/te-history.json' with { type: 'json' };
 
 const root = join(__dirname, '..');
 const example = join(root, 'examples', 'drift-corrected-estimators.mjs');
@@ -647,6 +648,17 @@ describe('hhat check', () => {
     const rowOrder = parsed.estimators[0].checks.find((c) => c.check === 'row-order')!;
     expect(rowOrder.status).toBe('fail');
     expect(rowOrder.compared!.difference).toBeGreaterThan(rowOrder.compared!.tolerance);
+  });
+
+  it('checks a transfer-entropy estimator with other histories against the truth at its own k and l, with a tolerance per three embedding columns', () => {
+    const report = runConformance(getEstimator('te-gaussian'), { settings: { history: 3 } });
+    const known = report.checks.find((c) => c.check === 'known-value')!;
+    expect(known.status).toBe('pass');
+    expect(known.evidence).toMatch(/^te-var1:a=0\.5,b=0\.5,cXY=1,cYX=0,history=3, n = 4000: /);
+    // TE at k = 3, l = 1 by NumPy (test/fixtures/te-history.json, from make_te_history_fixture.py).
+    const k3 = teHistory.cases.find((c) => c.cXY === 1 && c.history === 3 && c.sourceHistory === 1)!;
+    expect(Math.abs(known.compared!.expected - k3.xToY)).toBeLessThan(1e-12);
+    expect(known.compared!.tolerance).toBe(0.133); // 0.08 · (1 + 3 + 1)/3, to 3 digits
   });
 
   it('checks the built-ins without a module, and one estimator with settings', async () => {

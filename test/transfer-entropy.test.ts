@@ -8,12 +8,15 @@
  * (numpy.linalg.lstsq) with a batch-means standard error; te-gaussian on fixed series by numpy.cov and
  * numpy.linalg.slogdet of the embedding's blocks (scipy.special.digamma for the bias term). This file also
  * simulates 10^6 steps with hhat's own sampler and regresses by hand (normal equations), to check the sampler.
+ * test/fixtures/te-history.json, written by test/fixtures/make_te_history_fixture.py (NumPy and SciPy only): TE for
+ * history lengths k and l from the lag covariances A^h Σ by Gaussian conditioning (numpy.linalg.solve).
  */
 import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
-import { configureEstimator, getEstimator } from '../estimators/index.js';
+import { configureEstimator, getEstimator, parseEstimatorSpec } from '../estimators/index.js';
+import { historyNotes } from '../src/harness/target-notes.js';
 import { embedTransfer } from '../estimators/transfer-entropy.js';
 import type { Sample } from '../src/core/contracts.js';
 import { EstimateError, UsageError } from '../src/core/errors.js';
@@ -23,6 +26,7 @@ import { parsePerturbation } from '../src/harness/perturb.js';
 import { parseScenario } from '../scenarios/index.js';
 import { discreteLyapunov2, spectralRadius2, var1Matrix } from '../scenarios/transfer-entropy.js';
 import fixture from './fixtures/transfer-entropy.json' with { type: 'json' };
+import historyFixture from './fixtures/te-history.json' with { type: 'json' };
 import { runCli as run } from './helpers/cli.js';
 import { validated } from './helpers/settings.js';
 
@@ -107,6 +111,25 @@ describe('te-var1: the stationary covariance and the exact transfer entropy', ()
       expect(reverse.truth).toBe(scenario.transfer!.reverse);
       expect(reverse.transfer!.reverse).toBe(scenario.truth);
     }
+  });
+
+  it('with history lengths k and l the truth equals a NumPy conditional-variance computation (fixture te-history.json) to 1e-12, both directions', () => {
+    for (const c of historyFixture.cases) {
+      const spec = (family: string) => `${family}:a=${c.a},b=${c.b},cXY=${c.cXY},cYX=${c.cYX},history=${c.history},sourceHistory=${c.sourceHistory}`;
+      const forward = parseScenario(spec('te-var1'));
+      const backward = parseScenario(spec('te-var1-reverse'));
+      expect(Math.abs(forward.truth - c.xToY), `${forward.id}: ${forward.truth} vs ${c.xToY}`).toBeLessThan(1e-12);
+      expect(Math.abs(forward.transfer!.reverse - c.yToX), `${forward.id} reverse`).toBeLessThan(1e-12);
+      expect(Math.abs(backward.truth - c.yToX), `${backward.id}`).toBeLessThan(1e-12);
+    }
+  });
+
+  it('histories of 1 stay out of the id, so k = l = 1 scenarios keep theirs; others are part of it', () => {
+    expect(parseScenario('te-var1:a=0.5,b=0.5,cXY=0.4,cYX=0,history=1,sourceHistory=1').id).toBe('te-var1:a=0.5,b=0.5,cXY=0.4,cYX=0');
+    expect(parseScenario('te-var1:a=0.5,b=0.5,cXY=0.4,cYX=0,history=3').id).toBe('te-var1:a=0.5,b=0.5,cXY=0.4,cYX=0,history=3');
+    expect(parseScenario('te-var1:sourceHistory=2').id).toBe('te-var1:a=0.5,b=0.5,cXY=0.4,cYX=0,sourceHistory=2');
+    expect(() => parseScenario('te-var1:history=0')).toThrow(UsageError);
+    expect(() => parseScenario('te-var1:history=1.5')).toThrow(UsageError);
   });
 
   it("hhat's own sampler: 10^6 steps of te-var1 give regression TE within 3 SE of the truth, both directions", () => {
@@ -288,5 +311,26 @@ describe('hhat estimate SERIES --source-column --target-column [--history k[,l]]
     expect(result.code).toBe(0);
     expect(result.out).toMatch(/\(transfer-entropy, d = 2: a time series, rows in time order; source x1, target y1\)/);
     expect(readFileSync(out, 'utf8').split('\n')[0]).toBe('x1,y1');
+  });
+});
+
+describe('a plan whose transfer-entropy estimator aims at other histories than a scenario states', () => {
+  const scenarios = ['te-var1:a=0.3,b=0.6,cXY=0.5,cYX=0.2', 'te-var1:a=0.5,b=0.5,cXY=0,cYX=0', 'te-var1:a=0.3,b=0.6,cXY=0.5,cYX=0.2,history=3'].map((s) =>
+    parseScenario(s),
+  );
+  const notesFor = (spec: string, on = scenarios) => historyNotes(on, [parseEstimatorSpec(spec)]);
+
+  it("gets a note naming the estimator's own target (NumPy fixture value at k = 3) and the spec that states it", () => {
+    const [note, ...rest] = notesFor('te-gaussian:history=3,sourceHistory=3');
+    expect(rest).toEqual([]);
+    const k3 = historyFixture.cases.find((c) => c.a === 0.3 && c.cYX === 0.2 && c.history === 3 && c.sourceHistory === 3)!;
+    expect(note).toContain(`against ${Number(k3.xToY.toPrecision(5))} at the estimator's histories`);
+    expect(note).toContain('te-var1:a=0.3,b=0.6,cXY=0.5,cYX=0.2 states its truth for k = 1, l = 1');
+    expect(note).toMatch(/benchmark te-var1:a=0\.3,b=0\.6,cXY=0\.5,cYX=0\.2,history=3,sourceHistory=3$/);
+  });
+  it('gets none where the target does not change: only the source history differs, an uncoupled target, or the scenario states the same k', () => {
+    expect(notesFor('te-ksg:sourceHistory=4', [scenarios[0], scenarios[1]])).toEqual([]);
+    expect(notesFor('te-gaussian:history=3', [scenarios[1], scenarios[2]])).toEqual([]);
+    expect(notesFor('te-gaussian')).toHaveLength(1); // k = 1 against the scenario stated for k = 3
   });
 });

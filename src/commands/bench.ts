@@ -4,6 +4,7 @@ import { dirname, join, resolve } from 'node:path';
 import { describeRegistration, QUANTITIES, resolveModulePath, useEstimatorModules } from '../harness/modules.js';
 import { normalizeCommand, parseCommandOption, type CommandInput } from '../harness/external/declaration.js';
 import { useEstimatorCommands } from '../harness/external/client.js';
+import { historyNotes } from '../harness/target-notes.js';
 import type { Command } from 'commander';
 import { UsageError } from '../core/errors.js';
 import { hasOption, hhatCommand } from '../core/shell.js';
@@ -322,7 +323,8 @@ async function benchPlan(options: BenchOptions, workers: number, printErr: (text
   const note = describeRegistration(registration);
   if (note && !options.quiet) printErr(note);
   // Errors name where the plan came from: the plan file, or the flags.
-  const { plan, scenarios } = resolvePlan(input, options.plan ?? COMMAND_LINE);
+  const { plan, scenarios, estimators } = resolvePlan(input, options.plan ?? COMMAND_LINE);
+  for (const text of historyNotes(scenarios, estimators)) printErr(`hhat: note: ${text}`);
   // Refused before any work starts, with what it would need, rather than a crash part way.
   const largestN = Math.max(...plan.sampleSizes);
   checkSampleMemory(`n = ${largestN}`, largestN, Math.max(...scenarios.map((x) => x.dim)), {

@@ -138,7 +138,7 @@ Quote specs with brackets or semicolons in the shell.`,
       for (const r of records) {
         if (r.transfer)
           print(
-            `${r.id}: a time series (row order matters); the other direction's transfer entropy is ${formatValue(r.transfer.reverse, 7)} ${base} (k = l = 1), spectral radius ${formatValue(r.transfer.spectralRadius, 4)}`,
+            `${r.id}: a time series (row order matters); the other direction's transfer entropy is ${formatValue(r.transfer.reverse, 7)} ${base} (k = ${r.params.history ?? 1}, l = ${r.params.sourceHistory ?? 1}), spectral radius ${formatValue(r.transfer.spectralRadius, 4)}`,
           );
       }
       for (const r of records) {

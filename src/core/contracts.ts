@@ -307,9 +307,9 @@ export interface RecordedFacts {
 
 /** What a transfer-entropy scenario (te-var1) states besides its truth (`hhat scenarios --json`). */
 export interface TransferFacts {
-  /** TE(source → target) of the columns as drawn, history lengths k = l = 1 (the scenario's truth). */
+  /** TE(source → target) of the columns as drawn, at the scenario's history lengths (its truth). */
   forward: number;
-  /** TE(target → source), k = l = 1. */
+  /** TE(target → source), at the same history lengths. */
   reverse: number;
   spectralRadius: number;
   /** Stationary lag-0 covariance of (X, Y) and lag-1 covariance Cov(s_{t+1}, s_t) = AΣ, in process order (X, Y). */

@@ -52,7 +52,7 @@ export function defaultPlan(quantity: Quantity = 'entropy'): PlanInput {
   }
   if (quantity === 'transfer-entropy') {
     // Four VAR(1) settings: coupling X → Y only (and its zero reverse direction, the test a user most needs),
-    // no coupling at all, and both directions coupled; the histories stay at k = l = 1, where the truth is exact.
+    // no coupling at all, and both directions coupled; estimators and scenarios both at histories k = l = 1.
     // n = 5000 is where te-ksg's bias falls below 0.03 nats; rescale and monotone maps of either series must
     // leave the truth where it is.
     return {
