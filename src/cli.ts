@@ -47,7 +47,7 @@ export async function buildProgram(io: CliIo, chosen?: CommandName): Promise<Com
   program
     .name('hhat')
     .description(
-      'Benchmark estimators of differential entropy, mutual information and divergence on seeded samples whose true value is known.\nValues are in nats unless --bits is given.',
+      'Benchmark estimators of differential entropy, mutual information (also conditional), transfer entropy and divergence on seeded samples whose true value is known.\nValues are in nats unless --bits is given.',
     )
     .version(hhatVersion(), '-V, --version', 'print the hhat version')
     // Set before the commands are added, so every command inherits the wording.

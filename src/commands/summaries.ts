@@ -8,7 +8,7 @@ export const COMMANDS = {
   scenarios: 'list scenarios: distributions with a known true value, their sources and facts',
   estimators: 'list estimators: settings with defaults and allowed values, supported dimensions, references',
   estimate:
-    'estimate the differential entropy of a data file (CSV/TSV/TXT, JSON, NumPy .npy) with one or more estimators; the mutual information with --x-columns and --y-columns, a divergence with --against',
+    'estimate the differential entropy of a data file (CSV/TSV/TXT, JSON, NumPy .npy) with one or more estimators; the mutual information with --x-columns and --y-columns (conditional: and --z-columns), the transfer entropy with --source-column and --target-column, a divergence with --against',
   convert: 'move a differential entropy to another unit of the data: h + d·log(old unit / new unit)',
   report: 'write a self-contained HTML report (charts and sortable tables) of a run file',
   compare: 'compare two run files cell by cell: paired on the same draws, so small changes in estimator code show',

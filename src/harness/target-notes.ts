@@ -39,7 +39,7 @@ export function historyNotes(scenarios: readonly Scenario[], estimators: readonl
     const { scenario, own } = largest;
     const others = differing.length > 1 ? ` (and ${differing.length - 1} more scenario${differing.length > 2 ? 's' : ''} of the plan)` : '';
     notes.push(
-      `${estimator.spec} conditions on k = ${k} past values of the target and l = ${l ?? 1} of the source, but ${scenario.id}${others} ` +
+      `${estimator.spec} conditions on k = ${k} past ${k === 1 ? 'value' : 'values'} of the target and l = ${l ?? 1} of the source, but ${scenario.id}${others} ` +
         `states its truth for k = ${scenario.params.history}, l = ${scenario.params.sourceHistory}: ${show(scenario.truth)} nats, against ${show(own.truth)} at the estimator's histories, ` +
         `so its bias there includes a difference of ${show(own.truth - scenario.truth)} nats that is not its error; ` +
         `to score it against its own target, benchmark ${own.id}`,
