@@ -6,9 +6,17 @@ import { mkdtempSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { rngFromSeed } from '../src/core/rng.js';
 import { XMLParser } from 'fast-xml-parser';
-import { compareRuns, failsPolicy, pairedTTest, parseTolerance, welchTTest, type Comparison } from '../src/analysis/compare.js';
-import { escapeXml, formatComparisonJson, formatComparisonJunit, formatComparisonMarkdown, formatP } from '../src/views/compare-format.js';
+import { changeFound, compareRuns, failsPolicy, pairedTTest, parseTolerance, welchTTest, type Comparison } from '../src/analysis/compare.js';
+import {
+  escapeXml,
+  formatComparisonJson,
+  formatComparisonJunit,
+  formatComparisonMarkdown,
+  formatComparisonText,
+  formatP,
+} from '../src/views/compare-format.js';
 import { resolvePlan, type PlanInput } from '../src/harness/plan.js';
 import { runPlan } from '../src/harness/runner.js';
 import { assembleRun, writeRunFile, type RunFile } from '../src/analysis/results.js';
@@ -218,8 +226,9 @@ describe('comparing runs', () => {
     const statuses = lenient.out.split('\n').filter((l) => l.startsWith('│ changed'));
     expect(statuses).toHaveLength(12);
     expect(statuses.every((l) => l.startsWith('│ changed within tolerance'))).toBe(true);
-    // The decisive p is shown: each cell's Holm-adjusted p, here far below α though the cell is not worse.
+    // The decisive column says why these cells are not worse: the tests found the change, its size is within the tolerance.
     expect(lenient.out).toContain('cell p (Holm)');
+    expect(statuses.every((l) => l.includes('│ size ≤ tolerance │'))).toBe(true);
     // --fail-on changed fails on the same cells.
     expect((await run(['compare', basePath, shiftedPath, '--fail-on', 'changed', '--tolerance', '0.05'])).code).toBe(1);
   });
@@ -409,15 +418,28 @@ describe('comparing runs', () => {
     expect(c.bias.changeSe).toBeLessThan(1e-12);
     expect(Math.abs(c.sd.change)).toBeLessThan(1e-12);
     expect(c.sd.changeSe).toBeLessThan(1e-12);
-    // ΔRMSE = ΔMSE/(RMSE_new + RMSE_base), with the paired SE scaled the same way: recomputed here from the estimates.
+    // ΔRMSE and its SE, recomputed here from the estimates two ways: the delta method's per-replicate terms
+    // w_r = e_new,r²/(2 RMSE_new) − e_base,r²/(2 RMSE_base), and a brute-force paired bootstrap of the replicates.
     const baseCell = base.cells.find((x) => x.scenario === c.scenario && x.estimator === c.estimator && x.n === c.n)!;
     const truth = base.scenarios.find((s) => s.id === c.scenario)!.truth;
-    const d = baseCell.estimates.map((v) => (v! + 0.05 - truth) ** 2 - (v! - truth) ** 2);
-    const mean = d.reduce((s, x) => s + x, 0) / d.length;
-    const sd = Math.sqrt(d.reduce((s, x) => s + (x - mean) ** 2, 0) / (d.length - 1));
-    const rmse = (shift: number) => Math.sqrt(baseCell.estimates.reduce((sum: number, v) => sum + (v! + shift - truth) ** 2, 0) / d.length);
-    expect(c.rmse.change).toBeCloseTo(rmse(0.05) - rmse(0), 10);
-    expect(c.rmse.changeSe).toBeCloseTo(sd / Math.sqrt(d.length) / (rmse(0.05) + rmse(0)), 10);
+    const errors = (shift: number) => baseCell.estimates.map((v) => v! + shift - truth);
+    const rmseOf = (e: number[]) => Math.sqrt(e.reduce((sum, x) => sum + x * x, 0) / e.length);
+    const [eNew, eBase] = [errors(0.05), errors(0)];
+    const w = eNew.map((x, r) => (x * x) / (2 * rmseOf(eNew)) - (eBase[r] * eBase[r]) / (2 * rmseOf(eBase)));
+    const wMean = w.reduce((sum, x) => sum + x, 0) / w.length;
+    const deltaSe = Math.sqrt(w.reduce((sum, x) => sum + (x - wMean) ** 2, 0) / (w.length - 1) / w.length);
+    expect(c.rmse.change).toBeCloseTo(rmseOf(eNew) - rmseOf(eBase), 10);
+    expect(c.rmse.changeSe).toBeCloseTo(deltaSe, 12);
+    const draw = rngFromSeed('compare-rmse-bootstrap');
+    const resampled = Array.from({ length: 4000 }, () => {
+      const picks = eNew.map(() => Math.floor(draw() * eNew.length));
+      return rmseOf(picks.map((r) => eNew[r])) - rmseOf(picks.map((r) => eBase[r]));
+    });
+    const bMean = resampled.reduce((sum, x) => sum + x, 0) / resampled.length;
+    const bootstrapSe = Math.sqrt(resampled.reduce((sum, x) => sum + (x - bMean) ** 2, 0) / (resampled.length - 1));
+    // The bootstrap SE of 4000 resamples has about 1% Monte-Carlo error; the delta method is first-order.
+    expect(c.rmse.changeSe / bootstrapSe).toBeGreaterThan(0.9);
+    expect(c.rmse.changeSe / bootstrapSe).toBeLessThan(1.1);
     // Every output format carries them.
     const row = formatComparisonMarkdown(comparison)
       .split('\n')
@@ -471,6 +493,11 @@ describe('comparing runs', () => {
     expect(comparison.cells[0].test!.kind).toBe('welch-t');
     expect(comparison.cells[0].status).not.toBe('unchanged');
     expect(formatComparisonMarkdown(comparison).split('\n')[0]).toMatch(/\(unpaired, tolerance 0 nats\)$/);
+    // Every estimate differs on other draws; nothing was found, so the cell is not "changed" and --fail-on changed passes.
+    const found = comparison.cells.filter((c) => changeFound(c));
+    expect(found).toEqual([]);
+    expect(failsPolicy(comparison, 'changed')).toBe(false);
+    expect(formatComparisonText(comparison)).toContain('│ no change found');
   });
 
   it('unpaired failures compare rates, not counts: 10 of 200 → 8 of 20 is worse', async () => {
@@ -531,7 +558,7 @@ describe('output details', () => {
     const failOn = await run(['compare', path, path, '--fail-on', 'slower']);
     expect(failOn.code).toBe(2);
     expect(failOn.err.trim()).toBe(
-      'hhat: --fail-on slower is not allowed; it must be worse (a cell got worse beyond the tolerance) or changed (any cell differs)',
+      'hhat: --fail-on slower is not allowed; it must be worse (a cell got worse beyond the tolerance) or changed (any cell differs; on different draws, any change the tests find)',
     );
     expect((await run(['compare', path, path, '--markdown', '--json'])).code).toBe(2);
   });

@@ -311,18 +311,15 @@ function meanAndVariance(values: number[]): { mean: number; variance: number } {
  * Changes of bias, SD and RMSE on the replicates where both runs succeeded, with SEs from the paired
  * per-replicate quantities (delta method):
  *   Δbias = mean(new − base), SE = SD(new − base)/√m;
- *   ΔSD   = Δ(s²)/(s_new + s_base) with Δ(s²) = Σ u_r/(m − 1), u_r = (new_r − mean new)² − (base_r − mean base)²,
- *           SE = SD(u)/√m · m/(m − 1) / (s_new + s_base);
- *   ΔRMSE = ΔMSE/(RMSE_new + RMSE_base) with ΔMSE = mean d_r, SE = SD(d)/√m / (RMSE_new + RMSE_base),
- * where d holds the squared-error differences d_r the caller already has.
+ *   ΔSD   = s_new − s_base, s² = Σ (x_r − mean x)²/(m − 1); SE = SD(w)/√m · m/(m − 1) with
+ *           w_r = (new_r − mean new)²/(2 s_new) − (base_r − mean base)²/(2 s_base);
+ *   ΔRMSE = RMSE_new − RMSE_base, RMSE² = mean e_r²; SE = SD(w)/√m with w_r = e_new,r²/(2 RMSE_new) − e_base,r²/(2 RMSE_base).
+ * The w are the per-replicate terms of the delta method: the gradient of √a − √b is (1/(2√a), −1/(2√b)), taken
+ * at each run's own value, so the SE holds however large the change (a common denominator √a + √b, exact for
+ * the difference itself, gives an SE that is right only when the two are close). A run whose RMSE (or SD) is 0
+ * has every error 0, and its term is 0.
  */
-function pairedChanges(
-  next: number[],
-  base: number[],
-  truthNext: number,
-  truthBase: number,
-  d: number[],
-): { bias: ScoreChange; sd: ScoreChange; rmse: ScoreChange } | null {
+function pairedChanges(next: number[], base: number[], truthNext: number, truthBase: number): { bias: ScoreChange; sd: ScoreChange; rmse: ScoreChange } | null {
   const m = next.length;
   if (m < 2) return null;
   const shifts = next.map((v, r) => v - truthNext - (base[r] - truthBase));
@@ -331,15 +328,15 @@ function pairedChanges(
   const b = meanAndVariance(base);
   const biasNext = a.mean - truthNext;
   const biasBase = b.mean - truthBase;
-  const u = next.map((v, r) => (v - a.mean) ** 2 - (base[r] - b.mean) ** 2);
-  const uStats = meanAndVariance(u);
   const sdNext = Math.sqrt(a.variance);
   const sdBase = Math.sqrt(b.variance);
-  const sdSum = sdNext + sdBase;
-  const dStats = meanAndVariance(d);
   const mseNext = next.reduce((s, v) => s + (v - truthNext) ** 2, 0) / m;
   const mseBase = base.reduce((s, v) => s + (v - truthBase) ** 2, 0) / m;
-  const rmseSum = Math.sqrt(mseNext) + Math.sqrt(mseBase);
+  const rmseNext = Math.sqrt(mseNext);
+  const rmseBase = Math.sqrt(mseBase);
+  const half = (square: number, root: number) => (root > 0 ? square / (2 * root) : 0);
+  const sdTerms = meanAndVariance(next.map((v, r) => half((v - a.mean) ** 2, sdNext) - half((base[r] - b.mean) ** 2, sdBase)));
+  const rmseTerms = meanAndVariance(next.map((v, r) => half((v - truthNext) ** 2, rmseNext) - half((base[r] - truthBase) ** 2, rmseBase)));
   const withSe = (value: number, se: number): ValueWithSe => ({ value, se });
   return {
     bias: {
@@ -353,14 +350,14 @@ function pairedChanges(
       base: withSe(sdBase, NaN),
       next: withSe(sdNext, NaN),
       change: sdNext - sdBase,
-      changeSe: sdSum > 0 ? (Math.sqrt(uStats.variance / m) * (m / (m - 1))) / sdSum : 0,
+      changeSe: Math.sqrt(sdTerms.variance / m) * (m / (m - 1)),
       paired: true,
     },
     rmse: {
-      base: withSe(Math.sqrt(mseBase), NaN),
-      next: withSe(Math.sqrt(mseNext), NaN),
-      change: Math.sqrt(mseNext) - Math.sqrt(mseBase),
-      changeSe: rmseSum > 0 ? Math.sqrt(dStats.variance / m) / rmseSum : 0,
+      base: withSe(rmseBase, NaN),
+      next: withSe(rmseNext, NaN),
+      change: rmseNext - rmseBase,
+      changeSe: Math.sqrt(rmseTerms.variance / m),
       paired: true,
     },
   };
@@ -467,7 +464,7 @@ function pairedTests(base: ComparedCell, next: ComparedCell, truthBase: number, 
   const medianChange = errorChanges.length ? quantileOfSorted(errorChanges, 0.5) : null;
   let changes = unpairedChanges(base, next);
   let shift: ValueWithSe | null = null;
-  const paired = pairedChanges(nextValues, baseValues, truthNext, truthBase, differences);
+  const paired = pairedChanges(nextValues, baseValues, truthNext, truthBase);
   if (paired) {
     changes = paired;
     // The raw shift of the estimates is the bias change plus the change of the truth, with the same paired SE.
@@ -740,8 +737,19 @@ export function compareRuns(base: ComparableRun, next: ComparableRun, options: C
  * rule); 'changed' fails every cell that is not bit-identical, which guards refactorings that should not move
  * any number.
  */
+/** Whether a test found a change in the cell (p within the cell's test level), whatever its size against the tolerance. */
+export function changeFound(c: CellComparison): boolean {
+  return (c.test !== null && c.test.p <= c.testLevel) || (c.sign !== null && c.sign.p <= c.testLevel);
+}
+
+/**
+ * The cells that fail a policy. 'changed' on the same draws: any cell whose estimates differ at all (a code
+ * change shows even where accuracy does not move). On different draws every estimate differs, so there it
+ * means a change the tests found: worse, improved, or found and within the tolerance.
+ */
 export function failingCells(comparison: Comparison, failOn: FailOn): CellComparison[] {
-  return comparison.cells.filter((c) => (failOn === 'worse' ? c.status === 'worse' : c.status !== 'unchanged'));
+  if (failOn === 'worse') return comparison.cells.filter((c) => c.status === 'worse');
+  return comparison.cells.filter((c) => c.status !== 'unchanged' && (comparison.pairing.paired || c.status !== 'changed-within-noise' || changeFound(c)));
 }
 
 /**
@@ -757,5 +765,7 @@ export function failsPolicy(comparison: Comparison, failOn: FailOn, allowMissing
 
 export function parseFailOn(text: string): FailOn {
   if (text === 'worse' || text === 'changed') return text;
-  throw new UsageError(`--fail-on ${text} is not allowed; it must be worse (a cell got worse beyond the tolerance) or changed (any cell differs)`);
+  throw new UsageError(
+    `--fail-on ${text} is not allowed; it must be worse (a cell got worse beyond the tolerance) or changed (any cell differs; on different draws, any change the tests find)`,
+  );
 }

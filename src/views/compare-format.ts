@@ -7,6 +7,7 @@ import { countOf, formatP, formatValue, renderTable } from '../core/format.js';
 export { formatP } from '../core/format.js';
 import { toJson } from '../analysis/results.js';
 import {
+  changeFound,
   failingCells,
   STATUS_ORDER,
   WILD_FACTOR,
@@ -28,12 +29,15 @@ const STATUS_LABEL: Record<CellStatus, string> = {
 /**
  * A cell's status as shown. A changed cell that is neither worse nor improved says which: "within tolerance"
  * when a test found the change (p within the cell's test level) but the estimated change is within the
- * tolerance, "within noise" otherwise. The JSON keeps the one status `changed-within-noise` for both.
+ * tolerance; otherwise, on the same draws, "accuracy within noise" (the estimates did change), and on different
+ * draws "no change found". The JSON keeps the one status `changed-within-noise` for all three.
  */
 function cellStatusLabel(c: CellComparison): string {
   if (c.status !== 'changed-within-noise') return STATUS_LABEL[c.status];
-  const found = (c.test !== null && c.test.p <= c.testLevel) || (c.sign !== null && c.sign.p <= c.testLevel);
-  return found ? 'changed within tolerance' : 'changed within noise';
+  if (changeFound(c)) return 'changed within tolerance';
+  // On the same draws the estimates did change (they are not bit-identical); only the change in accuracy is
+  // within noise. On different draws every estimate differs, and nothing was found.
+  return c.paired ? 'changed, accuracy within noise' : 'no change found';
 }
 
 function signed(x: number, digits = 3): string {
@@ -47,7 +51,9 @@ function signed(x: number, digits = 3): string {
  */
 function toSePrecision(value: number, se: number): string {
   if (!Number.isFinite(value) || !Number.isFinite(se) || se <= 0) return signed(value);
-  const decimals = Math.min(12, Math.max(0, 1 - Math.floor(Math.log10(se))));
+  // At most six significant digits of the value: an SE at rounding level (a constant shift) would ask for more.
+  const cap = value !== 0 ? Math.max(0, 5 - Math.floor(Math.log10(Math.abs(value)))) : 12;
+  const decimals = Math.min(12, cap, Math.max(0, 1 - Math.floor(Math.log10(se))));
   const text = value.toFixed(decimals);
   if (Number(text) === 0) return '0';
   return value > 0 ? `+${text}` : text;
@@ -130,7 +136,8 @@ function row(c: CellComparison): string[] {
     t ? `${toSePrecision(t.difference, t.se)} [${toSePrecision(t.interval[0], t.se)}, ${toSePrecision(t.interval[1], t.se)}]` : '–',
     t ? formatP(t.p) : '–',
     c.sign ? `${c.sign.above}/${c.sign.below} (p ${formatP(c.sign.p)})` : '–',
-    c.adjustedP === null ? '–' : formatP(c.adjustedP),
+    // A change found but estimated within the tolerance fails the size condition, so its adjusted p is 1: say why.
+    c.adjustedP === null ? '–' : c.status === 'changed-within-noise' && changeFound(c) ? 'size ≤ tolerance' : formatP(c.adjustedP),
     failuresText(c),
   ];
 }
@@ -165,9 +172,9 @@ function policyLine(comparison: Comparison): string {
   const m = comparison.testedCells;
   const sharing =
     m > 1
-      ? `The tests share α = ${alpha} over the ${countOf(m, 'changed cell')} by Holm's step-down (the cell with the smallest p is held to α/${m}, the next to α/${m - 1}, …), then by Bonferroni over a cell's ${k} tests (the first cell's tests at ${+comparison.testLevel.toPrecision(3)} / ${m} each), so the chance that any cell whose estimates did not change in distribution is called worse or improved is at most α (approximately: the t test is a large-sample test; the sign, McNemar and Fisher tests are exact).`
+      ? `The tests share α = ${alpha} over the ${countOf(m, 'changed cell')} by Holm's step-down (the cell with the smallest p is held to α/${m}, the next to α/${m - 1}, …), then by Bonferroni over a cell's ${k} tests (the first cell's each at α/(${k}·${m}) = ${+(comparison.testLevel / m).toPrecision(3)}), so the chance that any cell whose estimates did not change in distribution is called worse or improved is at most α (approximately: the t test is a large-sample test; the sign, McNemar and Fisher tests are exact).`
       : `The tests share α = ${alpha} by Bonferroni (${+comparison.testLevel.toPrecision(3)} each), so a cell whose estimates did not change in distribution is called worse or improved with probability at most α (approximately: the t test is a large-sample test; the sign, McNemar and Fisher tests are exact).`;
-  return `A cell is worse (or improved) when ${tests}; worse wins over improved. The tests are of no change; the tolerance applies to the estimated change, so a cell found to change by less is "within tolerance", and "worse" does not claim that the true change exceeds the tolerance. "cell p (Holm)" decides: worse or improved when it is at most α; the p column is the t test's own p, unadjusted, and the interval is at the level of the first cell's tests. ${sharing} A new estimate more than ${WILD_FACTOR} times the base run's largest error away from the truth makes a cell worse on its own. Changes ± SE are ${comparison.pairing.paired ? 'paired, over the replicates where both runs succeeded' : 'unpaired'}.`;
+  return `A cell is worse (or improved) when ${tests}; worse wins over improved. The tests are of no change; the tolerance applies to the estimated change, so a cell found to change by less is "within tolerance", and "worse" does not claim that the true change exceeds the tolerance. "cell p (Holm)" decides: worse or improved when it is at most α; the p column is the t test's own p, unadjusted, and the interval is at 1 − α/${k} = ${intervalLevel(comparison)}, Bonferroni over the cell's own tests without Holm's share over cells, so it can exclude 0 in a cell the tests leave unchanged within noise. ${sharing} A new estimate more than ${WILD_FACTOR} times the base run's largest error away from the truth makes a cell worse on its own. Changes ± SE are ${comparison.pairing.paired ? 'paired, over the replicates where both runs succeeded' : 'unpaired'}.`;
 }
 
 function refLines(title: string, refs: CellRef[]): string[] {
