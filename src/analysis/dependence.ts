@@ -4,11 +4,10 @@
  *
  * Variance inflation: Var(Ĥ) at φ over Var(Ĥ) at φ = 0, for the same base, estimator and n. The two cells are
  * drawn from different seeds (a scenario's id enters its seed), so the sample variances are independent; the
- * standard error of log R is the delta method on each sample variance,
- *   Var(log s²) ≈ Var(s²)/σ⁴,  Var(s²) ≈ (μ₄ − σ⁴(m−3)/(m−1))/m   (kurtosis-aware, as in score.ts),
- * so SE(log R)² = Var(s²_φ)/s⁴_φ + Var(s²_0)/s⁴_0 (delta method: Casella & Berger, Statistical Inference, 2nd ed.,
- * §5.5.4); the interval at the run's level L is exp(log R ± z·SE), z the normal quantile at (1 + L)/2 (1.96 at
- * 95%), one interval per ratio (pointwise, not simultaneous), and the SE of R itself is R·SE(log R). Under
+ * standard error of log R is the delta method on each sample variance with a small-sample kurtosis estimate
+ * (varianceWithItsLogVariance), SE(log R)² = Var(log s²_φ) + Var(log s²_0); the interval at the run's level L is
+ * exp(log R ± q·SE), q the t quantile at (1 + L)/2, one interval per ratio (pointwise, not simultaneous), and the
+ * SE of R itself is R·SE(log R). Under
  * independent rows R is 1; for the sample mean of the latent AR(1) series it tends to τ = (1 + φ)/(1 − φ).
  *
  * Thinning: for every cell of an estimator with thin = t and its all-rows counterpart (the same spec without
@@ -18,10 +17,13 @@
  * by Holm's step-down (src/analysis/holm.ts), and a verdict is "thinning better" when the MSE drops, "all rows
  * better" when it grows, with an adjusted p at most 1 − L; "cannot tell" otherwise.
  */
-import { normalQuantile, normalSurvival } from '../math/special.js';
+import { normalSurvival } from '../math/special.js';
+import { loadPackage } from '../core/vendor.js';
 import type { Cell, ScenarioInfo } from './cells.js';
 import { holmAdjusted } from './holm.js';
 import type { ValueWithSe } from './score.js';
+
+const tQuantile = loadPackage<typeof import('@stdlib/stats-base-dists-t-quantile')>('@stdlib/stats-base-dists-t-quantile');
 
 export interface VarianceInflation {
   /** The autocorrelated scenario and its base (the φ = 0 scenario of the same plan). */
@@ -74,32 +76,47 @@ function finite(cell: Cell): number[] {
   return cell.estimates.filter((v): v is number => v !== null && Number.isFinite(v));
 }
 
-/** Sample variance and the delta-method variance of it (kurtosis-aware). */
-function varianceWithItsVariance(values: number[]): { s2: number; varS2: number } | null {
+/**
+ * Sample variance and the variance of its log, Var(log s²) ≈ (γ₄ − (m − 3)/m)/(m − 1), with the kurtosis
+ * γ₄ = m Σ(x − trimmed mean)⁴ / (Σ(x − mean)²)², the mean trimmed by 1/(2√(m − 4)) at each end (Bonett, Comput.
+ * Stat. Data Anal. 50:775–782, 2006, from memory). The plain moment form, (μ₄ − σ⁴(m − 3)/(m − 1))/m, under-
+ * estimates the kurtosis at small m, and its intervals covered 83–93% at m = 30–50 (varianceRatio).
+ */
+function varianceWithItsLogVariance(values: number[]): { s2: number; varLog: number } | null {
   const m = values.length;
-  if (m < 4) return null;
+  if (m < 5) return null;
   const mean = values.reduce((a, b) => a + b, 0) / m;
+  const sorted = [...values].sort((a, b) => a - b);
+  const cut = Math.floor(m / (2 * Math.sqrt(m - 4)));
+  let trimmed = 0;
+  for (let i = cut; i < m - cut; i++) trimmed += sorted[i];
+  trimmed /= m - 2 * cut;
   let m2 = 0;
   let m4 = 0;
   for (const v of values) {
-    const c = v - mean;
-    m2 += c * c;
-    m4 += c * c * c * c;
+    m2 += (v - mean) ** 2;
+    m4 += (v - trimmed) ** 4;
   }
   const s2 = m2 / (m - 1);
-  const mu4 = m4 / m;
-  return { s2, varS2: Math.max(0, (mu4 - (s2 * s2 * (m - 3)) / (m - 1)) / m) };
+  const kurtosis = m2 > 0 ? (m * m4) / (m2 * m2) : 0;
+  return { s2, varLog: Math.max(0, kurtosis - (m - 3) / m) / (m - 1) };
 }
 
-/** The variance ratio of two independent sets of replicate estimates, R = s²_a / s²_b, with SE and an interval at `level`. */
+/**
+ * The variance ratio of two independent sets of replicate estimates, R = s²_a / s²_b, with SE and an interval at
+ * `level`: exp(log R ± q·SE(log R)), q the t quantile with min(m_a, m_b) − 1 degrees of freedom. Simulated
+ * coverage of the 95% interval (test/fixtures/variance_ratio_coverage.py: 20,000 pairs of independent samples with
+ * equal variances; normal, Student t₅, lognormal(0, 0.5) and exponential estimates): 90.5–94.6% at m = 30,
+ * 91.6–94.6% at m = 50; the moment form with the normal quantile covered 83.3–90.9% and 87.3–92.5%.
+ */
 export function varianceRatio(a: number[], b: number[], level = 0.95): (ValueWithSe & { lower: number; upper: number }) | null {
-  const va = varianceWithItsVariance(a);
-  const vb = varianceWithItsVariance(b);
+  const va = varianceWithItsLogVariance(a);
+  const vb = varianceWithItsLogVariance(b);
   if (!va || !vb || !(va.s2 > 0) || !(vb.s2 > 0)) return null;
   const ratio = va.s2 / vb.s2;
-  const seLog = Math.sqrt(va.varS2 / (va.s2 * va.s2) + vb.varS2 / (vb.s2 * vb.s2));
-  const z = normalQuantile((1 + level) / 2);
-  return { value: ratio, se: ratio * seLog, lower: ratio * Math.exp(-z * seLog), upper: ratio * Math.exp(z * seLog) };
+  const seLog = Math.sqrt(va.varLog + vb.varLog);
+  const q = tQuantile((1 + level) / 2, Math.min(a.length, b.length) - 1);
+  return { value: ratio, se: ratio * seLog, lower: ratio * Math.exp(-q * seLog), upper: ratio * Math.exp(q * seLog) };
 }
 
 export function dependenceSection(cells: readonly Cell[], scenarios: readonly ScenarioInfo[], level = 0.95): DependenceSection | null {

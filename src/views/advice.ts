@@ -113,6 +113,16 @@ function tiesCell(c: ColumnProfile): string {
   return c.repeats.tiedValues === 0 ? `none (gap ${gap})` : `${(100 * c.tiedFraction).toFixed(1)}% (gap ${gap})`;
 }
 
+/**
+ * What the end test read, in words: it detects hard edges (a density that stays up to where the values stop),
+ * not whether the law extends forever, so a positive variable whose density falls to 0 at 0 reads as no edge.
+ */
+const EDGE_TEXT: Record<ColumnProfile['support'], string> = {
+  bounded: 'hard edges at both ends',
+  half: 'a hard edge at one end',
+  unbounded: 'no hard edge detected',
+};
+
 export function renderFileAdvice(advice: FileAdvice, file: string): string {
   const { profile, lookalike } = advice;
   const lines: string[] = [];
@@ -153,7 +163,7 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
     lines.push(`Correlation: ${pairs.join(', ')}`);
   }
   lines.push(
-    `Reads as: ${profile.tails} tails, ${profile.support === 'half' ? 'half-bounded' : profile.support} support, ${profile.discreteLooking ? 'many ties (discrete-looking)' : profile.repeats.repeatedRows ? countOf(profile.repeats.repeatedRows, 'repeated row') : 'no repeated rows'}.`,
+    `Reads as: ${profile.tails} tails, ${EDGE_TEXT[profile.support]}, ${profile.discreteLooking ? 'many ties (discrete-looking)' : profile.repeats.repeatedRows ? countOf(profile.repeats.repeatedRows, 'repeated row') : 'no repeated rows'}.`,
   );
   lines.push('');
   const bicList = lookalike.bic.map((b) => `${b.components === lookalike.chosen ? '*' : ''}${b.components}: ${num(b.bic, 6)}`).join(', ');
@@ -204,7 +214,11 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
     if (e.interval) {
       lines.push(
         `Interval: ${e.interval.method}; ${e.interval.resamples} resamples, whose median estimate sat ${num(e.interval.shift, 2)} nats from the estimate (the shift removed). ` +
-          `The estimate's interval shows its sampling spread only, not its bias; the bias-corrected one also carries the bias's uncertainty (its SE${e.truthSe > 0 ? ` and the look-alike truth's, ${num(e.truthSe, 2)}` : ''}, added in quadrature on each side).`,
+          `The estimate's interval shows its sampling spread only, not its bias; the bias-corrected one also carries the bias's uncertainty (its SE${e.truthSe > 0 ? ` and the look-alike truth's, ${num(e.truthSe, 2)}` : ''}, added in quadrature on each side).` +
+          // Measured coverage (README, "Advice"): the smoothed bootstrap of 1-D spacing and histogram estimates runs narrow.
+          (profile.dim === 1
+            ? ` In one dimension such intervals covered about 92% at a nominal 95% (gamma samples, n = 400; README, "Advice"): read them as a little narrow.`
+            : ''),
       );
     }
   }

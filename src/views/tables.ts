@@ -259,7 +259,7 @@ export function dependenceTables(run: RunFile, base: Base): string {
   }
   if (groups.size) {
     out.push(
-      `Var ×: variance of the estimates at φ over that at φ = 0 (same base, estimator and n; independent draws), ${level} interval from the delta method on log s² (kurtosis-aware), one per ratio, not simultaneous. τ = (1+φ)/(1−φ) is what the variance of the mean of the latent normal scores grows by.`,
+      `Var ×: variance of the estimates at φ over that at φ = 0 (same base, estimator and n; independent draws), ${level} interval from the delta method on log s² (small-sample kurtosis, t quantile), one per ratio, not simultaneous. τ = (1+φ)/(1−φ) is what the variance of the mean of the latent normal scores grows by.`,
     );
   }
   if (section.thinning.length) {

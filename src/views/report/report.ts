@@ -194,7 +194,7 @@ function scenariosSection(page: Page): string {
   page.nav.push(`<li><a href="#scenarios">Scenarios</a><ol>${entries.join('')}</ol></li>`);
   return [
     '<section id="scenarios"><h2>Scenarios</h2>',
-    '<p>Per scenario: |bias| and RMSE against n on log–log axes, every replicate estimate at the largest n, and the scores with their ranks. At the parametric rate the RMSE falls with slope −0.5 and the |bias| of a smooth plug-in with slope −1; where the truth is 0 (independent data, no flow) the information density is constant, the n<sup>−1/2</sup> term vanishes, and the RMSE may fall with slope down to −1.</p>',
+    '<p>Per scenario: |bias| and RMSE against n on log–log axes, every replicate estimate at the largest n, and the scores with their ranks. At the parametric rate the RMSE falls with slope −0.5 and the |bias| of a parametric plug-in with slope −1; where the truth is 0 (independent data, no flow) the information density is constant, the n<sup>−1/2</sup> term vanishes, and the RMSE may fall with slope down to −1.</p>',
     sections,
     '</section>',
   ].join('\n');
