@@ -215,8 +215,29 @@ describe('best set verdicts on constructed cases', () => {
     const overall = overallRanks(rankings, (s) => (s === 'c' ? 'd=3' : 'd=1'));
     const y = overall.find((o) => o.estimator === 'y')!;
     expect(y.groups['d=3']).toBeUndefined();
-    expect(y.groups['d=1']).toEqual({ meanRank: 2, cells: 2, failedCells: 1 });
-    expect(overall.find((o) => o.estimator === 'x')!.all).toEqual({ meanRank: 1, cells: 3, failedCells: 0 });
+    expect(y.groups['d=1']).toEqual({ meanRank: 2, meanRelativeRank: 1, cells: 2, failedCells: 1 });
+    expect(overall.find((o) => o.estimator === 'x')!.all).toEqual({ meanRank: 1, meanRelativeRank: 0, cells: 3, failedCells: 0 });
+  });
+
+  it('"all" puts estimators that meet different numbers of competitors on one scale: (rank − 1)/(K − 1)', () => {
+    const entry = (estimator: string, rank: number) =>
+      ({ estimator, rank, status: 'ranked', best: rank === 1, pValue: null, signP: null, rmse: 0, rmseSe: 0, failures: 0, replicates: 10 }) as const;
+    const cell = (scenario: string, entries: ReturnType<typeof entry>[]): Ranking => ({
+      scenario,
+      n: 10,
+      perturbation: null,
+      level: 0.95,
+      comparedReplicates: 10,
+      entries,
+    });
+    // A one-dimensional specialist s is 2nd of 9 in one cell; a generalist g is 1st of 9 there and 3rd of 3 in a
+    // 3-D cell. Plain mean ranks, 2 against 2, tie; relative ranks, 1/8 against (0 + 1)/2, do not.
+    const nine = ['g', 's', 'a', 'b', 'c', 'd', 'e', 'f', 'h'].map((e, i) => entry(e, i + 1));
+    const overall = overallRanks([cell('one', nine), cell('three', [entry('x', 1), entry('y', 2), entry('g', 3)])], (s) => s);
+    const of = (e: string) => overall.find((o) => o.estimator === e)!.all;
+    expect(of('s').meanRank).toBe(of('g').meanRank);
+    expect(of('s').meanRelativeRank).toBe(1 / 8);
+    expect(of('g').meanRelativeRank).toBe(0.5);
   });
 });
 

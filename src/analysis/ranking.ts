@@ -70,6 +70,13 @@ export interface Ranking {
 
 export interface GroupRank {
   meanRank: number;
+  /**
+   * Mean of (rank − 1)/(K − 1) over the cells, K the estimators ranked in each: 0 = best, 1 = last. Within a
+   * dimension/tail group every estimator meets the same competitors, but over all cells an estimator for one
+   * dimension meets fewer than one for any (9 against 5 in the default plan's higher dimensions), so only this
+   * puts their "all" averages on one scale.
+   */
+  meanRelativeRank?: number;
   /** Cells averaged (scenario × n). */
   cells: number;
   /** Of those, cells it failed (ranked last). */
@@ -198,12 +205,14 @@ export function rankCells(
 
 interface Tally {
   sum: number;
+  relative: number;
   cells: number;
   failed: number;
 }
 
-function tally(into: Tally, entry: RankEntry): void {
+function tally(into: Tally, entry: RankEntry, competitors: number): void {
   into.sum += entry.rank;
+  into.relative += competitors > 1 ? (entry.rank - 1) / (competitors - 1) : 0;
   into.cells += 1;
   if (entry.status === 'failed') into.failed += 1;
 }
@@ -216,13 +225,18 @@ export function overallRanks(rankings: Ranking[], groupOf: (scenario: string) =>
     const group = groupOf(ranking.scenario);
     for (const entry of ranking.entries) {
       let row = rows.get(entry.estimator);
-      if (!row) rows.set(entry.estimator, (row = { groups: new Map(), all: { sum: 0, cells: 0, failed: 0 } }));
-      if (!row.groups.has(group)) row.groups.set(group, { sum: 0, cells: 0, failed: 0 });
-      tally(row.groups.get(group)!, entry);
-      tally(row.all, entry);
+      if (!row) rows.set(entry.estimator, (row = { groups: new Map(), all: { sum: 0, relative: 0, cells: 0, failed: 0 } }));
+      if (!row.groups.has(group)) row.groups.set(group, { sum: 0, relative: 0, cells: 0, failed: 0 });
+      tally(row.groups.get(group)!, entry, ranking.entries.length);
+      tally(row.all, entry, ranking.entries.length);
     }
   }
-  const summary = ({ sum, cells, failed }: Tally): GroupRank => ({ meanRank: sum / cells, cells, failedCells: failed });
+  const summary = ({ sum, relative, cells, failed }: Tally): GroupRank => ({
+    meanRank: sum / cells,
+    meanRelativeRank: relative / cells,
+    cells,
+    failedCells: failed,
+  });
   return [...rows.entries()].map(([estimator, row]) => ({
     estimator,
     groups: Object.fromEntries([...row.groups.entries()].map(([g, v]) => [g, summary(v)])),

@@ -65,20 +65,24 @@ export function scenarioTables(run: RunFile, base: Base): string {
 export function overallTable(run: RunFile): string {
   if (!run.overall.length) return '';
   const groups = rankedGroups(run);
+  // A run file written before relative ranks existed has only the plain mean; it then sorts and shows that.
+  const relative = run.overall.every((o) => o.all.meanRelativeRank !== undefined);
   const rows = run.overall.map((o) => ({
     label: estimatorLabel(o.estimator),
-    mean: o.all.meanRank,
+    mean: relative ? o.all.meanRelativeRank! : o.all.meanRank,
     cells: groups.map((g) => {
       const r = o.groups[g];
       return r ? `${r.meanRank.toFixed(1)} (${r.cells}${r.failedCells ? `, ${r.failedCells} failed` : ''})` : 'n/a';
     }),
-    all: `${o.all.meanRank.toFixed(1)} (${o.all.cells}${o.all.failedCells ? `, ${o.all.failedCells} failed` : ''})`,
+    all: `${relative ? o.all.meanRelativeRank!.toFixed(2) : o.all.meanRank.toFixed(1)} (${o.all.cells}${o.all.failedCells ? `, ${o.all.failedCells} failed` : ''})`,
   }));
   rows.sort((a, b) => a.mean - b.mean || a.label.localeCompare(b.label));
   return [
-    'Average rank (1 = best) per dimension and tail class, over scenarios and sample sizes; in brackets the cells averaged and how many of them it failed (ranked last). n/a: cannot run there by design.',
+    relative
+      ? 'Average rank (1 = best) per dimension and tail class, over scenarios and sample sizes; in brackets the cells averaged and how many of them it failed (ranked last). n/a: cannot run there by design. "all": the mean relative rank over every cell it ran, (rank − 1)/(estimators in the cell − 1), 0 = best, 1 = last, since estimators for fewer dimensions meet fewer competitors; rows are in its order.'
+      : 'Average rank (1 = best) per dimension and tail class, over scenarios and sample sizes; in brackets the cells averaged and how many of them it failed (ranked last). n/a: cannot run there by design.',
     renderTable(
-      ['estimator', ...groups, 'all'],
+      ['estimator', ...groups, relative ? 'all (0–1)' : 'all'],
       rows.map((r) => [r.label, ...r.cells, r.all]),
       {
         align: ['left', ...groups.map(() => 'right' as const), 'right'],

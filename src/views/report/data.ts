@@ -209,7 +209,8 @@ export function efficiencyData(data: ReportData): EfficiencyData {
 }
 
 export interface RankGrid {
-  rows: { estimator: string; group: string; meanRank: number; cells: number; failedCells: number }[];
+  /** The 'all' row also carries the mean relative rank (src/analysis/ranking.ts), which orders the estimators. */
+  rows: { estimator: string; group: string; meanRank: number; cells: number; failedCells: number; relative?: number }[];
   estimators: string[];
   groups: string[];
   maxRank: number;
@@ -229,8 +230,16 @@ export function rankGrid(data: ReportData): RankGrid | null {
       if (!cell || !finite(cell.meanRank)) continue;
       rows.push({ estimator, group: g, meanRank: cell.meanRank, cells: cell.cells, failedCells: cell.failedCells });
     }
-    rows.push({ estimator, group: 'all', meanRank: o.all.meanRank, cells: o.all.cells, failedCells: o.all.failedCells });
-    totals.push({ estimator, mean: o.all.meanRank });
+    const relative = o.all.meanRelativeRank;
+    rows.push({
+      estimator,
+      group: 'all',
+      meanRank: o.all.meanRank,
+      cells: o.all.cells,
+      failedCells: o.all.failedCells,
+      ...(relative !== undefined ? { relative } : {}),
+    });
+    totals.push({ estimator, mean: relative ?? o.all.meanRank });
   }
   totals.sort((a, b) => a.mean - b.mean || a.estimator.localeCompare(b.estimator));
   const maxRank = Math.max(2, ...run.rankings.map((r) => r.entries.length));

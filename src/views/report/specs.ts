@@ -197,7 +197,7 @@ export function rankHeatmapSpec(grid: RankGrid): TopLevelSpec {
   const middle = (1 + grid.maxRank) / 2;
   return estimatorHeatmapSpec({
     title: 'Average rank by RMSE (1 = best)',
-    subtitle: ['over the scenarios and sample sizes of each group', 'rows sorted by the average over all groups'],
+    subtitle: ['over the scenarios and sample sizes of each group', 'rows sorted by the mean relative rank over all cells (0 = best, 1 = last)'],
     columnStep: 76,
     // "d=1/exponential" on two lines keeps the columns narrow enough for a phone.
     x: { field: 'group', type: 'nominal', sort: grid.groups, title: 'dimension / tail class', axis: { labelAngle: 0, labelExpr: "split(datum.label, '/')" } },

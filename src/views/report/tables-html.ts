@@ -74,6 +74,12 @@ export function rankTable(grid: RankGrid): string {
     estimator,
     ...grid.groups.map((g): CellInput => {
       const cell = grid.rows.find((r) => r.estimator === estimator && r.group === g);
+      if (cell?.relative !== undefined)
+        return {
+          text: `${cell.relative.toFixed(2)} relative (${cell.cells})`,
+          sort: cell.relative,
+          title: `mean of (rank − 1)/(estimators in the cell − 1) over ${cell.cells} cells, 0 = best, 1 = last (plain mean rank ${cell.meanRank.toFixed(1)}, not comparable across estimators that run in different dimensions)`,
+        };
       return cell
         ? {
             text: `${cell.meanRank.toFixed(1)} (${cell.cells})`,
