@@ -235,7 +235,10 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
     print(
       `${failedOther} estimate${failedOther === 1 ? '' : 's'} failed on perturbed samples or tuning variants (ties after rounding, mostly); the robustness table counts them.`,
     );
-  print(`RMSE ± Monte-Carlo SE. ${rankLegend(run.plan.verdicts.level, run.plan.verdicts.maxFailureRate)}`);
+  print(
+    `RMSE ± Monte-Carlo SE (${countOf(run.plan.replicates, 'replicate')} per cell). ${rankLegend(run.plan.verdicts.level, run.plan.verdicts.maxFailureRate)} ` +
+      'RMSE slope vs n: the weighted least-squares slope of log RMSE on log n ± its SE (−0.5 is the parametric rate); sizes whose RMSE is below 2 SE are left out, and "[k of K n]" says when some were.',
+  );
 }
 
 /** Declares bench's options; their texts are what `hhat bench --help` shows. */

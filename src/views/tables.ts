@@ -42,7 +42,8 @@ export function scenarioTables(run: RunFile, base: Base): string {
       const atLargest = cells.find((c) => c.estimator === spec && c.n === largest);
       row.push(atLargest ? pm(atLargest.scores.bias.value, atLargest.scores.bias.se, base) : '');
       const rate = run.rates.find((r) => r.scenario === info.id && r.estimator === spec)?.rmse;
-      row.push(rate ? `${rate.slope.toFixed(2)} ± ${rate.se.toFixed(2)}` : '–');
+      // Sizes whose RMSE is not clearly above 0 (< 2 SE) are left out of the fit (score.ts, fitRate): say how many remain.
+      row.push(rate ? `${rate.slope.toFixed(2)} ± ${rate.se.toFixed(2)}${rate.sizes < sizes.length ? ` [${rate.sizes} of ${sizes.length} n]` : ''}` : '–');
       return row;
     });
     const heading = `${info.id}  (d=${info.dim}, ${info.support} support, ${info.tails} tails; truth ${formatValue(toBase(info.truth, base), 7)} ${base})`;
