@@ -478,6 +478,38 @@ describe('advice that no estimator is usable', () => {
     expect(recommend(bench.run, withRmse(0.2, 0.01)).reason).not.toContain('about equally good');
   });
 
+  it('a runner-up in the best set where the recommended one is not is named there (constructed best sets)', async () => {
+    const { runTargeted } = await import('../src/analysis/advise/benchmark.js');
+    const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');
+    const bench = await runTargeted({
+      scenarios: ['normal', 'laplace'],
+      estimators: ['vasicek', 'ebrahimi'],
+      n: 100,
+      budgetSeconds: 30,
+      minReplicates: 10,
+      maxReplicates: 10,
+      workers: 1,
+    });
+    const [first, second] = summarise(bench.run).map((s, i) => ({ ...s, meanRmse: { value: 0.1 * (i + 1), se: 0.001 } }));
+    // Best sets set by hand: both on the normal law, only the runner-up on the Laplace law.
+    const run = structuredClone(bench.run);
+    for (const ranking of run.rankings) {
+      for (const entry of ranking.entries) {
+        entry.best = entry.estimator === second.estimator || !ranking.scenario.startsWith('laplace');
+      }
+    }
+    const reason = recommend(run, [first, second]).reason;
+    expect(reason).toContain(
+      `the runner-up ${second.label} is in the best set too on the light-tailed one, and in the best set without ${first.label} on the exponential-tailed one`,
+    );
+    // And it is never said to be outside the best set everywhere when it is alone in it somewhere.
+    for (const ranking of run.rankings)
+      for (const entry of ranking.entries) entry.best = entry.estimator === (ranking.scenario.startsWith('laplace') ? second.estimator : first.estimator);
+    expect(recommend(run, [first, second]).reason).toContain(
+      `the runner-up ${second.label} is in the best set without ${first.label} on the exponential-tailed one`,
+    );
+  });
+
   it('the runner-up is never an estimator that fails on some draws (constructed: the lowest RMSE marked failing)', async () => {
     const { runTargeted } = await import('../src/analysis/advise/benchmark.js');
     const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');

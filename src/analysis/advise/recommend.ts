@@ -254,9 +254,14 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 
         ? `; the runner-up ${runnerUp.label} (${theirs}) cannot be told apart from it on the same draws`
         : `; the runner-up ${runnerUp.label} (${theirs} against ${mine}) is outside the ${+(run.plan.verdicts.level * 100).toPrecision(6)}% best set on the same draws`;
     } else {
+      // Where the runner-up is in the best set and the recommended one is not, it is the better choice: say so.
+      const runnerUpAlone = bestSetScenarios(run, runnerUp.estimator).filter((s) => !recommendedBest.has(s));
+      const alone = runnerUpAlone.length ? `in the best set without ${recommended.label} on ${describeSubset(runnerUpAlone, scenarios)}` : '';
       tail = runnerUpTiedOn.length
-        ? `; the runner-up ${runnerUp.label} is in the best set too on ${describeSubset(runnerUpTiedOn, scenarios)}`
-        : `; the runner-up ${runnerUp.label} is outside the best set on every scenario`;
+        ? `; the runner-up ${runnerUp.label} is in the best set too on ${describeSubset(runnerUpTiedOn, scenarios)}${alone ? `, and ${alone}` : ''}`
+        : alone
+          ? `; the runner-up ${runnerUp.label} is ${alone}`
+          : `; the runner-up ${runnerUp.label} is outside the best set on every scenario`;
       // The mean RMSEs' SEs are taken as independent (conservative for estimators run on the same draws): a gap
       // within twice their combined SE does not rank the two, and the sentence must not read as if it did.
       const gap = runnerUp.meanRmse.value - recommended.meanRmse.value;
