@@ -329,7 +329,7 @@ describe('the dependence section: its interval and its verdict', () => {
     // t.ppf(0.995, 49) = 2.679951973631552 (SciPy 1.17.1).
     expect(Math.log(at95.upper / at95.value) / seLog).toBeCloseTo(2.0095752371292392, 12);
     expect(Math.log(at99.upper / at99.value) / seLog).toBeCloseTo(2.679951973631552, 12);
-    // Thinned specs whose paired differences d have mean/SE = z, so the raw two-sided p is 2(1 − Φ(z)). Holm over
+    // Thinned specs whose paired differences d have mean/SE = z, so the raw two-sided p is 2·(1 − T₃₉(z)), Student t with 39 degrees of freedom. Holm over
     // m comparisons: the smallest p times m, the next times m − 1, each at least the one before. z = 2.1 passes
     // alone at 95%; two at z = 2.1 are each held to α/2 and both fail; beside one at z = 5 it is held to α alone.
     const cell = (estimator: string, errors: number[]): Cell =>
@@ -345,14 +345,14 @@ describe('the dependence section: its interval and its verdict', () => {
     const section = (zs: number[]) =>
       dependenceSection([cell('kozachenko-leonenko', ones), ...zs.map((z, i) => cell(`kozachenko-leonenko:thin=${i + 2}`, errorsFor(z)))], info)!.thinning;
     const alone = section([2.1]);
-    // Two-sided normal p at z = 2.1: 0.035728 (scipy.stats.norm.sf(2.1)·2).
-    expect(alone[0].adjustedP).toBeCloseTo(0.0357288, 6);
+    // Two-sided t p at 2.1 with 39 degrees of freedom: 0.04224751177463835 (2·scipy.stats.t.sf(2.1, 39), SciPy 1.17.1).
+    expect(alone[0].adjustedP).toBeCloseTo(0.04224751177463835, 12);
     expect(alone[0].verdict).toBe('all rows better');
     const pair = section([2.1, 2.1]);
     expect(pair.map((t) => t.adjustedP)).toEqual([pair[0].adjustedP, pair[0].adjustedP]);
-    expect(pair[0].adjustedP).toBeCloseTo(2 * 0.0357288, 6);
+    expect(pair[0].adjustedP).toBeCloseTo(2 * 0.04224751177463835, 12);
     expect(pair.map((t) => t.verdict)).toEqual(['cannot tell', 'cannot tell']);
-    // Holm's step-down: a strong one first (p = 5.7e-7, held to α/2) lets the weaker be held to α alone.
+    // Holm's step-down: a strong one first (p = 1.25e-5, 2·t.sf(5, 39); held to α/2) lets the weaker be held to α alone.
     expect(section([5, 2.1]).map((t) => t.verdict)).toEqual(['all rows better', 'all rows better']);
   });
 });

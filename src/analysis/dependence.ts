@@ -12,18 +12,19 @@
  *
  * Thinning: for every cell of an estimator with thin = t and its all-rows counterpart (the same spec without
  * thin) on the same scenario and n, hence the same draws, the paired difference of squared errors
- * d_r = (Ĥ_thin − H)² − (Ĥ_all − H)², its mean ± SE, and a two-sided normal test on the mean of d (Diebold &
- * Mariano, J. Bus. Econ. Stat. 13, 1995). The run's comparisons are one family: their p-values are adjusted
+ * d_r = (Ĥ_thin − H)² − (Ĥ_all − H)², its mean ± SE, and a two-sided test on the mean of d (Diebold & Mariano,
+ * J. Bus. Econ. Stat. 13, 1995) against Student's t with m − 1 degrees of freedom rather than the normal, as
+ * Harvey, Leybourne & Newbold (Int. J. Forecasting 13, 1997; from memory) advise for few pairs (30–50 here). The run's comparisons are one family: their p-values are adjusted
  * by Holm's step-down (src/analysis/holm.ts), and a verdict is "thinning better" when the MSE drops, "all rows
  * better" when it grows, with an adjusted p at most 1 − L; "cannot tell" otherwise.
  */
-import { normalSurvival } from '../math/special.js';
 import { loadPackage } from '../core/vendor.js';
 import type { Cell, ScenarioInfo } from './cells.js';
 import { holmAdjusted } from './holm.js';
 import type { ValueWithSe } from './score.js';
 
 const tQuantile = loadPackage<typeof import('@stdlib/stats-base-dists-t-quantile')>('@stdlib/stats-base-dists-t-quantile');
+const tCdf = loadPackage<typeof import('@stdlib/stats-base-dists-t-cdf')>('@stdlib/stats-base-dists-t-cdf');
 
 export interface VarianceInflation {
   /** The autocorrelated scenario and its base (the φ = 0 scenario of the same plan). */
@@ -173,7 +174,7 @@ export function dependenceSection(cells: readonly Cell[], scenarios: readonly Sc
       verdict: 'cannot tell',
     });
     // Identical estimates on every draw (se = 0, mean 0) are no evidence either way.
-    rawP.push(se > 0 ? 2 * normalSurvival(Math.abs(mean) / se) : mean === 0 ? 1 : 0);
+    rawP.push(se > 0 ? Math.min(1, 2 * tCdf(-Math.abs(mean) / se, m - 1)) : mean === 0 ? 1 : 0);
   }
   const adjusted = holmAdjusted(rawP);
   thinning.forEach((t, i) => {

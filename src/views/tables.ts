@@ -285,7 +285,7 @@ export function dependenceTables(run: RunFile, base: Base): string {
     );
     rows.forEach((r, i) => (r[0] = ids.cells[i]));
     out.push(
-      `Thinning: every t-th row against all rows, on the same draws (paired squared errors; normal test on their mean, Diebold–Mariano; p Holm-adjusted over these ${section.thinning.length} comparisons, verdict at level ${level})`,
+      `Thinning: every t-th row against all rows, on the same draws (paired squared errors; t test on their mean, Diebold–Mariano with m − 1 degrees of freedom; p Holm-adjusted over these ${section.thinning.length} comparisons, verdict at level ${level})`,
     );
     out.push(
       renderTable(['scenario', 'n', 'estimator', 'RMSE thinned', 'RMSE all rows', 'MSE thinned − all ± SE', 'Holm p', 'verdict'], rows, {
