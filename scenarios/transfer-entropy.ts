@@ -19,7 +19,7 @@
  */
 import type { ParamSpec, Rng, Scenario, ScenarioFamily } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
-import { formatNumber } from '../src/core/spec.js';
+import { formatNumber, formatSpec } from '../src/core/spec.js';
 import { cholesky } from '../src/math/linalg.js';
 import { scenarioFromFacts } from './build.js';
 import { univariateDensity } from './univariate.js';
@@ -175,6 +175,15 @@ export function var1TransferEntropy(law: Var1Law, intoY: boolean, history: numbe
   return Math.max(0, 0.5 * Math.log(v));
 }
 
+/**
+ * The spec of the same process with the truth stated at other history lengths, or null for a scenario that is
+ * not a te-var1 one. The plan notes (src/harness/target-notes.ts) and the conformance suite's known value use it.
+ */
+export function atHistories(scenario: Scenario, history: number, sourceHistory = 1): string | null {
+  if (!scenario.transfer || scenario.params.history === undefined) return null;
+  return formatSpec(scenario.family, { ...scenario.params, history, sourceHistory });
+}
+
 function var1Scenario(family: string, p: Record<string, number>, swap: boolean): Scenario {
   const law = var1Law(family, { a: p.a, b: p.b, cXY: p.cXY, cYX: p.cYX });
   const history = p.history ?? 1;
@@ -184,7 +193,6 @@ function var1Scenario(family: string, p: Record<string, number>, swap: boolean):
   const forward = var1TransferEntropy(law, !swap, history);
   const reverse = var1TransferEntropy(law, swap, history);
   const histories = `k = ${history}, l = ${sourceHistory}`;
-  const defaultHistories = history === 1 && sourceHistory === 1;
   const direction = swap ? 'TE(Y → X): source column 1 is the process’s Y, target column 2 its X' : 'TE(X → Y): source column 1 is X, target column 2 is Y';
   const rowCovariance = swap
     ? [
@@ -202,14 +210,11 @@ function var1Scenario(family: string, p: Record<string, number>, swap: boolean):
       specs: var1Specs.filter((s) => !((s.name === 'history' || s.name === 'sourceHistory') && (p[s.name] ?? 1) === 1)),
       params: { ...p, history, sourceHistory },
       truth: forward,
-      truthSource: defaultHistories
-        ? `exact for history lengths k = l = 1 only: ${direction} = ½ log(Var(target_{t+1} | target_t) / Var(target_{t+1} | target_t, source_t)) ` +
-          `(${SCHREIBER}; Gaussian conditioning), the numerator from the stationary lag-0 and lag-1 covariances (Σ = AΣAᵀ + I, the discrete Lyapunov equation, ` +
-          'solved exactly; lag 1 = AΣ), the denominator 1 (the unit innovation). Longer histories give other values (the target alone is not Markov): ' +
-          'set history and sourceHistory to match an estimator that uses them'
-        : `exact for history lengths ${histories}: ${direction} = ½ log(Var(target_{t+1} | its last ${history}) / Var(target_{t+1} | its last ${history}, the source's last ${sourceHistory})) ` +
-          `(${SCHREIBER}; Gaussian conditioning), the numerator the ${history}-step linear prediction error of the target by the Durbin–Levinson recursion ` +
-          '(Brockwell & Davis 1991, Proposition 5.2.1) on its autocovariances (A^h Σ, Σ = AΣAᵀ + I solved exactly), the denominator 1 (the unit innovation)',
+      truthSource:
+        `exact for history lengths ${histories}: ${direction} = ½ log(Var(target_{t+1} | its last ${history}) / Var(target_{t+1} | its last ${history}, the source's last ${sourceHistory})) ` +
+        `(${SCHREIBER}; Gaussian conditioning). The numerator is the target's ${history}-step linear prediction error from its autocovariances A^h Σ ` +
+        '(Σ = AΣAᵀ + I, the discrete Lyapunov equation, solved exactly; for k > 1 by the Durbin–Levinson recursion, Brockwell & Davis 1991, Proposition 5.2.1), ' +
+        'the denominator 1 (the unit innovation). Other histories give other values (the target alone is not Markov): set history and sourceHistory to match the estimator',
       support: 'unbounded',
       tails: 'light',
       marginals: rowCovariance.map((row, j) => univariateDensity('normal', { mu: 0, sigma: Math.sqrt(row[j]) })),
@@ -232,7 +237,7 @@ function var1Scenario(family: string, p: Record<string, number>, swap: boolean):
       [a * sxx + c * sxy, a * sxy + c * syy],
       [d * sxx + b * sxy, d * sxy + b * syy],
     ],
-    note: `rows are a time series (order matters); truth ${swap ? 'TE(Y → X)' : 'TE(X → Y)'} and reverse ${swap ? 'TE(X → Y)' : 'TE(Y → X)'} for ${defaultHistories ? 'k = l = 1' : histories}; covariances in process order (X, Y)`,
+    note: `rows are a time series (order matters); truth ${swap ? 'TE(Y → X)' : 'TE(X → Y)'} and reverse ${swap ? 'TE(X → Y)' : 'TE(Y → X)'} for ${histories}; covariances in process order (X, Y)`,
   };
   return scenario;
 }

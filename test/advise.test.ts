@@ -453,10 +453,10 @@ describe('advice that no estimator is usable', () => {
     expect(distinguishable(0.0012, 0.00131)).toEqual(['0.0012', '0.0013']);
   });
 
-  it('a runner-up whose mean RMSE is within twice the combined SE is called about equally good, not beaten (constructed)', async () => {
+  /** Two estimators on a light- and an exponential-tailed law, 10 replicates: the run the constructed cases edit. */
+  const twoLawBench = async () => {
     const { runTargeted } = await import('../src/analysis/advise/benchmark.js');
-    const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');
-    const bench = await runTargeted({
+    return runTargeted({
       scenarios: ['normal', 'laplace'],
       estimators: ['vasicek', 'ebrahimi'],
       n: 100,
@@ -465,6 +465,11 @@ describe('advice that no estimator is usable', () => {
       maxReplicates: 10,
       workers: 1,
     });
+  };
+
+  it('a runner-up whose mean RMSE is within twice the combined SE is called about equally good, not beaten (constructed)', async () => {
+    const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');
+    const bench = await twoLawBench();
     const [first, second] = summarise(bench.run);
     const withRmse = (value: number, se: number) => [
       { ...first, meanRmse: { value: 0.1, se: 0.01 } },
@@ -479,17 +484,8 @@ describe('advice that no estimator is usable', () => {
   });
 
   it('a runner-up in the best set where the recommended one is not is named there (constructed best sets)', async () => {
-    const { runTargeted } = await import('../src/analysis/advise/benchmark.js');
     const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');
-    const bench = await runTargeted({
-      scenarios: ['normal', 'laplace'],
-      estimators: ['vasicek', 'ebrahimi'],
-      n: 100,
-      budgetSeconds: 30,
-      minReplicates: 10,
-      maxReplicates: 10,
-      workers: 1,
-    });
+    const bench = await twoLawBench();
     const [first, second] = summarise(bench.run).map((s, i) => ({ ...s, meanRmse: { value: 0.1 * (i + 1), se: 0.001 } }));
     // Best sets set by hand: both on the normal law, only the runner-up on the Laplace law.
     const run = structuredClone(bench.run);

@@ -22,6 +22,7 @@ import { UsageError, isEstimateError } from '../core/errors.js';
 import { formatSpec, validateSettings } from '../core/spec.js';
 import { checkDimension } from '../../estimators/index.js';
 import { parseScenario } from '../../scenarios/index.js';
+import { atHistories } from '../../scenarios/transfer-entropy.js';
 import {
   affineLaw,
   affineMap,
@@ -561,9 +562,7 @@ export function knownValueTolerance(quantity: Quantity, dim: number, settings: S
 function knownValueLaw(context: Context): string {
   const { history, sourceHistory } = context.settings;
   if (context.estimator.quantity !== 'transfer-entropy' || typeof history !== 'number') return context.law;
-  const scenario = parseScenario(context.law);
-  if (!scenario.transfer || scenario.params.history === undefined) return context.law;
-  return formatSpec(scenario.family, { ...scenario.params, history, sourceHistory: typeof sourceHistory === 'number' ? sourceHistory : 1 });
+  return atHistories(parseScenario(context.law), history, typeof sourceHistory === 'number' ? sourceHistory : 1) ?? context.law;
 }
 
 const knownValue: Body = (context) => {

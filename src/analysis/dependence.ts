@@ -18,13 +18,10 @@
  * by Holm's step-down (src/analysis/holm.ts), and a verdict is "thinning better" when the MSE drops, "all rows
  * better" when it grows, with an adjusted p at most 1 − L; "cannot tell" otherwise.
  */
-import { loadPackage } from '../core/vendor.js';
 import type { Cell, ScenarioInfo } from './cells.js';
 import { holmAdjusted } from './holm.js';
+import { pairedTTest, studentQuantile } from './t-tests.js';
 import type { ValueWithSe } from './score.js';
-
-const tQuantile = loadPackage<typeof import('@stdlib/stats-base-dists-t-quantile')>('@stdlib/stats-base-dists-t-quantile');
-const tCdf = loadPackage<typeof import('@stdlib/stats-base-dists-t-cdf')>('@stdlib/stats-base-dists-t-cdf');
 
 export interface VarianceInflation {
   /** The autocorrelated scenario and its base (the φ = 0 scenario of the same plan). */
@@ -87,7 +84,7 @@ function varianceWithItsLogVariance(values: number[]): { s2: number; varLog: num
   const m = values.length;
   if (m < 5) return null;
   const mean = values.reduce((a, b) => a + b, 0) / m;
-  const sorted = [...values].sort((a, b) => a - b);
+  const sorted = Float64Array.from(values).sort();
   const cut = Math.floor(m / (2 * Math.sqrt(m - 4)));
   let trimmed = 0;
   for (let i = cut; i < m - cut; i++) trimmed += sorted[i];
@@ -116,7 +113,7 @@ export function varianceRatio(a: number[], b: number[], level = 0.95): (ValueWit
   if (!va || !vb || !(va.s2 > 0) || !(vb.s2 > 0)) return null;
   const ratio = va.s2 / vb.s2;
   const seLog = Math.sqrt(va.varLog + vb.varLog);
-  const q = tQuantile((1 + level) / 2, Math.min(a.length, b.length) - 1);
+  const q = studentQuantile((1 + level) / 2, Math.min(a.length, b.length) - 1);
   return { value: ratio, se: ratio * seLog, lower: ratio * Math.exp(-q * seLog), upper: ratio * Math.exp(q * seLog) };
 }
 
@@ -156,10 +153,9 @@ export function dependenceSection(cells: readonly Cell[], scenarios: readonly Sc
       const w = reference.estimates[r];
       if (v !== null && w !== null && Number.isFinite(v) && Number.isFinite(w)) differences.push((v - h) ** 2 - (w - h) ** 2);
     });
-    const m = differences.length;
-    if (m < 2) continue;
-    const mean = differences.reduce((a, b) => a + b, 0) / m;
-    const se = Math.sqrt(differences.reduce((a, d) => a + (d - mean) ** 2, 0) / (m - 1) / m);
+    // The paired t test of compare: equal estimates on every draw (se 0, mean 0) give p = 1, no evidence either way.
+    const test = pairedTTest(differences);
+    if (!test) continue;
     thinning.push({
       scenario: cell.scenario,
       n: cell.n,
@@ -168,13 +164,12 @@ export function dependenceSection(cells: readonly Cell[], scenarios: readonly Sc
       thin: parts.thin,
       rmseThinned: cell.scores.rmse.value,
       rmseAllRows: reference.scores.rmse.value,
-      mseDifference: { value: mean, se },
-      pairs: m,
+      mseDifference: { value: test.difference, se: test.se },
+      pairs: differences.length,
       adjustedP: NaN,
       verdict: 'cannot tell',
     });
-    // Identical estimates on every draw (se = 0, mean 0) are no evidence either way.
-    rawP.push(se > 0 ? Math.min(1, 2 * tCdf(-Math.abs(mean) / se, m - 1)) : mean === 0 ? 1 : 0);
+    rawP.push(test.p);
   }
   const adjusted = holmAdjusted(rawP);
   thinning.forEach((t, i) => {

@@ -74,7 +74,7 @@ export interface GroupRank {
    * Mean of (rank − 1)/(K − 1) over the cells, K the estimators ranked in each: 0 = best, 1 = last. Within a
    * dimension/tail group every estimator meets the same competitors, but over all cells an estimator for one
    * dimension meets fewer than one for any (9 against 5 in the default plan's higher dimensions), so only this
-   * puts their "all" averages on one scale.
+   * puts their "all" averages on one scale. Set on `all` only.
    */
   meanRelativeRank?: number;
   /** Cells averaged (scenario × n). */
@@ -231,15 +231,11 @@ export function overallRanks(rankings: Ranking[], groupOf: (scenario: string) =>
       tally(row.all, entry, ranking.entries.length);
     }
   }
-  const summary = ({ sum, relative, cells, failed }: Tally): GroupRank => ({
-    meanRank: sum / cells,
-    meanRelativeRank: relative / cells,
-    cells,
-    failedCells: failed,
-  });
+  const summary = ({ sum, cells, failed }: Tally): GroupRank => ({ meanRank: sum / cells, cells, failedCells: failed });
   return [...rows.entries()].map(([estimator, row]) => ({
     estimator,
     groups: Object.fromEntries([...row.groups.entries()].map(([g, v]) => [g, summary(v)])),
-    all: summary(row.all),
+    // Only "all" mixes cells with different numbers of competitors; within a group the plain mean compares.
+    all: { ...summary(row.all), meanRelativeRank: row.all.relative / row.all.cells },
   }));
 }

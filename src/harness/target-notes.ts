@@ -7,9 +7,10 @@
  * spec that states it.
  */
 import type { Scenario } from '../core/contracts.js';
-import { formatNumber, formatSpec } from '../core/spec.js';
+import { formatNumber } from '../core/spec.js';
 import type { ConfiguredEstimator } from '../../estimators/index.js';
 import { parseScenario } from '../../scenarios/index.js';
+import { atHistories } from '../../scenarios/transfer-entropy.js';
 
 /** Differences below this are rounding, not another target. */
 const SAME_TARGET = 1e-12;
@@ -27,9 +28,9 @@ export function historyNotes(scenarios: readonly Scenario[], estimators: readonl
     const l = setting(estimator, 'sourceHistory');
     if (estimator.estimator.quantity !== 'transfer-entropy' || k === undefined) continue;
     const differing = scenarios.flatMap((scenario) => {
-      if (!scenario.transfer || scenario.params.history === undefined) return [];
       if (scenario.params.history === k && scenario.params.sourceHistory === (l ?? 1)) return [];
-      const matched = formatSpec(scenario.family, { ...scenario.params, history: k, sourceHistory: l ?? 1 });
+      const matched = atHistories(scenario, k, l);
+      if (matched === null) return [];
       const own = parseScenario(matched);
       return Math.abs(own.truth - scenario.truth) > SAME_TARGET ? [{ scenario, own }] : [];
     });
