@@ -29,7 +29,10 @@ export function registerCompareCommand(program: Command, print: (text: string) =
       '1 − the chance that any unchanged cell is called worse or improved (over all changed cells by Holm, within a cell over its tests by Bonferroni)',
       '0.95',
     )
-    .option('--fail-on <what>', 'exit 1 when a cell is worse beyond the tolerance (worse), or when any cell differs at all (changed)')
+    .option(
+      '--fail-on <what>',
+      'exit 1 when a cell is worse beyond the tolerance (worse), or when any cell differs at all (changed; on different draws, when the tests find a change)',
+    )
     .option('--allow-missing', 'with --fail-on: do not fail because cells of the base run are missing from the new one')
     .option('--unpaired', "compare with Welch's t test even when both runs drew the same samples")
     .option('--markdown', 'print Markdown for a pull-request comment')
