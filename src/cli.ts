@@ -89,6 +89,37 @@ function outputFor(io: CliIo, command: string, lists = 'the options') {
   };
 }
 
+/** The value of `--flag V` or `--flag=V` in `argv` (the last one given), else undefined. */
+function flagValue(argv: string[], flag: string): string | undefined {
+  let value: string | undefined;
+  argv.forEach((a, i) => {
+    if (a === flag) value = argv[i + 1];
+    else if (a.startsWith(`${flag}=`)) value = a.slice(flag.length + 1);
+  });
+  return value;
+}
+
+/**
+ * `hhat bench` runs its units on worker threads, and each spends about 0.3 s loading its modules: they are started
+ * now, from the command line alone, so that their loading overlaps this thread's (src/harness/threads.ts). Values
+ * the command will refuse start none; a plan file that sets another heap limit gets fresh workers. Returns the
+ * function that stops any the run did not adopt.
+ */
+async function startBenchWorkers(argv: string[]): Promise<() => void> {
+  const none = () => undefined;
+  if (argv.includes('--help') || argv.includes('-h') || argv.find((a) => !a.startsWith('-')) === 'help') return none;
+  const { defaultWorkers, releaseEarlyWorkers, startWorkersEarly } = await import('./harness/threads.js');
+  const { DEFAULT_WORKER_MEMORY_MIB } = await import('./core/memory.js');
+  const workers = flagValue(argv, '--workers');
+  const memory = flagValue(argv, '--memory-limit');
+  const count = workers === undefined ? defaultWorkers() : Number(workers);
+  const mib = memory === undefined ? DEFAULT_WORKER_MEMORY_MIB : Number(memory);
+  // The bounds of --workers and of a plan's limits.workerMemoryMiB.
+  if (!Number.isInteger(count) || count < 1 || count > 256 || !Number.isInteger(mib) || mib < 64 || mib > 1048576) return none;
+  startWorkersEarly(count, mib);
+  return releaseEarlyWorkers;
+}
+
 /**
  * Runs the CLI; returns the exit code: 0 ok, 1 a computation that failed (an estimate that could not be made,
  * a comparison that found a regression) or an internal error, 2 a usage mistake.
@@ -98,8 +129,11 @@ export async function main(argv: string[], io: CliIo = defaultIo): Promise<numbe
   // Commands that finish but report a problem (an estimate that failed beside others) set process.exitCode;
   // it is read here and cleared, so the caller (bin/hhat.js, or a test calling main again) owns the code.
   process.exitCode = undefined;
+  const chosen = chosenCommand(argv);
+  let releaseWorkers = () => {};
   try {
-    const program = await buildProgram(io, chosenCommand(argv));
+    if (chosen === 'bench') releaseWorkers = await startBenchWorkers(argv);
+    const program = await buildProgram(io, chosen);
     await program.parseAsync(argv, { from: 'user' });
     return typeof process.exitCode === 'number' ? process.exitCode : 0;
   } catch (error) {
@@ -117,6 +151,7 @@ export async function main(argv: string[], io: CliIo = defaultIo): Promise<numbe
     io.err(debug && error instanceof Error ? String(error.stack) : 'run again with --debug for the stack trace, and please report it');
     return 1;
   } finally {
+    releaseWorkers();
     process.exitCode = undefined;
   }
 }

@@ -103,6 +103,23 @@ describe('where results go', () => {
     expect(forced.code).toBe(0);
     expect(readRunFile(out).plan.replicates).toBe(5);
   });
+
+  // Node 20's recursive mkdirSync loops for ever on /proc/x (ENOENT under a folder that exists); found by hand.
+  it.runIf(existsSync('/proc/self'))('an --out under a folder that cannot hold folders is one line and exit 1, not a hang', async () => {
+    for (const out of ['/proc/hhat-test/run.json', '/proc/hhat-test/a/run.json']) {
+      const result = await cli(['bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--out', out, '--quiet']);
+      expect(result.code).toBe(1);
+      expect(result.err).toBe(
+        `hhat: cannot create the folder ${dirname(out)}: /proc does not allow a folder there (no such file or directory); choose another --out\n`,
+      );
+    }
+    // A file in the way keeps its own wording.
+    const file = join(dir, 'a-file');
+    writeFileSync(file, '');
+    const blocked = await cli(['bench', '--scenario', 'normal', '--n', '100', '--replicates', '4', '--out', join(file, 'run.json'), '--quiet']);
+    expect(blocked.code).toBe(1);
+    expect(blocked.err).toMatch(/cannot create the folder .*a-file: a file of that name is in the way/);
+  });
 });
 
 describe('full and read-only disks (tmpfs)', () => {

@@ -9,6 +9,7 @@
 import { randomBytes } from 'node:crypto';
 import {
   closeSync,
+  existsSync,
   constants,
   fsyncSync,
   linkSync,
@@ -25,7 +26,7 @@ import {
   writeSync,
 } from 'node:fs';
 import { hostname } from 'node:os';
-import { basename, dirname, join } from 'node:path';
+import { basename, dirname, join, resolve } from 'node:path';
 import { EnvironmentError, UsageError } from './errors.js';
 
 /**
@@ -83,9 +84,37 @@ function fail(error: unknown, action: string, path: string, hint?: string): neve
 /** Creates a folder and its parents, as one line on failure. */
 export function ensureFolder(folder: string, hint?: string): void {
   try {
-    mkdirSync(folder, { recursive: true });
+    makeFolders(folder);
   } catch (error) {
     fail(error, 'create the folder', folder, hint);
+  }
+}
+
+/**
+ * mkdir -p, one level at a time from the nearest folder that exists. Node 20's recursive mkdirSync never returns
+ * where the file system answers "no such file" for a child of a folder that exists (/proc/x): it tries again for ever.
+ */
+function makeFolders(folder: string): void {
+  const missing: string[] = [];
+  for (let at = resolve(folder); !existsSync(at);) {
+    missing.push(at);
+    const parent = dirname(at);
+    if (parent === at) break;
+    at = parent;
+  }
+  // An existing path: the recursive form returns at once for a folder and fails (EEXIST) for a file.
+  if (!missing.length) mkdirSync(folder, { recursive: true });
+  for (const path of missing.reverse()) {
+    try {
+      mkdirSync(path);
+    } catch (error) {
+      const code = (error as NodeJS.ErrnoException).code;
+      // Made meanwhile by another process: as good as made here.
+      if (code === 'EEXIST' && statSync(path).isDirectory()) continue;
+      // Its parent exists (made just before, or found): a folder that cannot hold folders (/proc, /sys).
+      if (code === 'ENOENT') throw new Error(`${dirname(path)} does not allow a folder there (no such file or directory)`, { cause: error });
+      throw error;
+    }
   }
 }
 

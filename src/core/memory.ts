@@ -17,6 +17,9 @@ import { UsageError } from './errors.js';
 
 /** Copies of the n·d sample values one estimate may hold at once. */
 export const SAMPLE_COPIES = 6;
+
+/** Heap limit of a worker thread, MiB, unless the plan or --memory-limit says otherwise. */
+export const DEFAULT_WORKER_MEMORY_MIB = 4096;
 /** Doubles per point in arrays whose size does not depend on d. */
 export const PER_POINT_DOUBLES = 28;
 /** The process itself: Node, the code, the catalog, result tables. */

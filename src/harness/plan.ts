@@ -16,6 +16,7 @@ import { formatNumber } from '../core/spec.js';
 import { configureEstimator, parseEstimatorSpec, type ConfiguredEstimator } from '../../estimators/index.js';
 import { parseScenario } from '../../scenarios/index.js';
 import { parsePerturbation } from './perturb.js';
+import { DEFAULT_WORKER_MEMORY_MIB } from '../core/memory.js';
 import { codeIdentity, moduleGraph, type CodeIdentity } from './code-identity.js';
 import { commandDigest, type CommandDeclaration } from './external/declaration.js';
 import planSchema from '../schemas/plan.schema.json' with { type: 'json' };
@@ -67,7 +68,7 @@ export interface Limits {
  * A minute plus a millisecond per point: generous for every built-in estimator (the slowest, the kernel
  * estimator in 3-D, takes about 1 ms per point at n = 1e5), tight enough that a hung estimator costs little.
  */
-export const DEFAULT_LIMITS: Limits = { estimateSeconds: 60, estimateSecondsPerPoint: 0.001, workerMemoryMiB: 4096 };
+export const DEFAULT_LIMITS: Limits = { estimateSeconds: 60, estimateSecondsPerPoint: 0.001, workerMemoryMiB: DEFAULT_WORKER_MEMORY_MIB };
 
 /** The time limit of one estimate at sample size n, in seconds. */
 export function estimateTimeLimit(limits: Limits, n: number): number {

@@ -2,8 +2,16 @@
  * What the supervisor (src/harness/pool.ts) and its worker threads (src/harness/worker.ts) say to each other, and the shared
  * memory in which a worker marks the estimate it is running.
  */
+import type { Plan } from './plan.js';
 import type { ReplicateResult, Unit } from './work.js';
 import { COMMAND_PID_SLOTS } from './external/protocol.js';
+
+/** A worker's first message: the plan its units come from (the worker loads its modules before it is sent). */
+export interface WorkerSetup {
+  plan: Plan;
+  /** work.ts, WorkContext.replicateOffset. */
+  replicateOffset: number;
+}
 
 /** Run `unit` from replicate `from` on, leaving out estimates already recorded as failures. */
 export interface WorkerJob {

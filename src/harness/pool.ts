@@ -9,22 +9,20 @@
  * it the rest of the unit without that estimate. Replicates already reported are kept; the one in flight runs
  * again from its seed, so estimates are the same as in a run without the fault.
  *
- *   const interrupted = await runOnPool(plan, units, { size: 2, entry, onResult, signal });
+ *   const interrupted = await runOnPool(plan, units, { size: 2, onResult, signal });
  */
 import { rmSync } from 'node:fs';
-import { setFlagsFromString } from 'node:v8';
-import { Worker } from 'node:worker_threads';
+import type { Worker } from 'node:worker_threads';
 import { EnvironmentError, UsageError } from '../core/errors.js';
 import { estimateTimeLimit, timeLimitText, type Plan } from './plan.js';
 import { processMemoryLimitBytes } from '../core/memory.js';
-import { markerViews, newMarker, type WorkerJob, type WorkerMessage } from './pool-protocol.js';
+import { markerViews, type WorkerJob, type WorkerMessage, type WorkerSetup } from './pool-protocol.js';
+import { releaseEarlyWorkers, spawnWorker, takeEarlyWorker } from './threads.js';
 import { addReplicate, emptyUnitResult, type Unit, type UnitResult } from './work.js';
 import { killCommandProcess } from './external/kill.js';
 
 export interface PoolOptions {
   size: number;
-  /** The worker script. */
-  entry: URL;
   onResult: (result: UnitResult) => void;
   signal?: AbortSignal;
   /** How often the watchdog looks at the running estimates, ms. */
@@ -240,28 +238,16 @@ function stopCommands(slot: Slot): void {
 }
 
 /**
- * A worker holds little that lives long (about 12 MiB) and allocates fast. From that small live size V8 sets a
- * small limit for the old generation, and starts a full marking whenever the room left under it is less than
- * the young generation: about 60 full collections in one worker's pass over the default plan, each marked on
- * V8's helper threads, which then take a core's time from the other worker. A larger first limit (V8 reads it
- * when it creates an isolate, so it is set before each worker starts) leaves about 15; the memory it lets a
- * worker use is within the plan's limit.
+ * Starts a worker thread with its marker and heap limit (or adopts one the command started early), sends it the
+ * plan, and supervises it until it dies.
  */
-function setWorkerHeapStart(workerMemoryMiB: number): void {
-  setFlagsFromString(`--initial-old-space-size=${Math.max(1, Math.min(64, Math.floor(workerMemoryMiB / 2)))}`);
-}
-
-/** Starts a worker thread with its marker and heap limit, and supervises it until it dies. */
 function startWorker(run: Supervisor): void {
   if (run.finished) return;
   const { plan } = run;
-  setWorkerHeapStart(plan.limits.workerMemoryMiB);
-  const marker = newMarker();
+  const { thread, marker } = takeEarlyWorker(plan.limits.workerMemoryMiB) ?? spawnWorker(plan.limits.workerMemoryMiB);
   const { slots, clock, commandPids } = markerViews(marker);
-  const thread = new Worker(run.options.entry, {
-    workerData: { plan, marker, replicateOffset: run.options.replicateOffset ?? 0 },
-    resourceLimits: { maxOldGenerationSizeMb: plan.limits.workerMemoryMiB },
-  });
+  const setup: WorkerSetup = { plan, replicateOffset: run.options.replicateOffset ?? 0 };
+  thread.postMessage(setup);
   const slot: Slot = { thread, slots, clock, commandPids, ready: false, job: null, stopReason: null, dead: false, commandFolders: [], codeFamily: null };
   run.workers.add(slot);
   thread.on('message', (message: WorkerMessage) => onMessage(run, slot, message));
@@ -326,7 +312,12 @@ export function runOnPool(plan: Plan, units: Unit[], options: PoolOptions): Prom
       stopMemoryHoarder(run, processLimitBytes);
       stopOverdue(run, now);
     }, options.watchInterval ?? 200);
-    if (!run.pending.length) return finish(run, false);
+    if (!run.pending.length) {
+      releaseEarlyWorkers();
+      return finish(run, false);
+    }
     for (let i = 0; i < Math.max(1, Math.min(options.size, run.pending.length)); i++) startWorker(run);
+    // Replacements are started fresh; early workers this run did not need would only hold memory.
+    releaseEarlyWorkers();
   });
 }

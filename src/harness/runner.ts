@@ -3,13 +3,15 @@
  * resumes without recomputing anything, and reporting progress as it goes.
  */
 import { existsSync, readFileSync, statSync, truncateSync } from 'node:fs';
-import { availableParallelism } from 'node:os';
 import { EnvironmentError, UsageError } from '../core/errors.js';
 import { buildContext } from './context.js';
 import { codeDifference, planCode, planFingerprint, type Plan, type PlanCode } from './plan.js';
 import { describeFileError, openAppender, writeFileAtomic, type Appender } from '../core/files.js';
 import { executeUnit, planUnits, type Skip, type Unit, type UnitResult, type WorkContext } from './work.js';
 import { runOnPool } from './pool.js';
+import { defaultWorkers } from './threads.js';
+
+export { defaultWorkers };
 import { inProcessOnlyIds } from '../../estimators/index.js';
 import { hasOption, hhatCommand } from '../core/shell.js';
 
@@ -92,10 +94,6 @@ export interface RunOutcome {
   interrupted: boolean;
   /** Earlier sessions (from the checkpoint) and this one. */
   sessions: Session[];
-}
-
-export function defaultWorkers(): number {
-  return Math.max(1, availableParallelism());
 }
 
 /** Units owned by shard i of N: round-robin over the plan's units ordered by cost, so shards balance. */
@@ -246,11 +244,6 @@ export function checkpointStarted(path: string): boolean {
   const stat = statSync(path);
   if (stat.isDirectory()) throw new UsageError(`${path} is a folder, where hhat keeps this run's checkpoint; move it away or choose another --out`);
   return stat.size > 0;
-}
-
-function workerEntry(): URL {
-  // From the TypeScript sources (tests, tsx) the worker needs the TypeScript loader; built code runs as is.
-  return import.meta.url.endsWith('.ts') ? new URL('./dev-worker.mjs', import.meta.url) : new URL('./worker.js', import.meta.url);
 }
 
 /** Refuses estimators registered by code in this process when units run on worker threads, which cannot see them. */
@@ -413,7 +406,6 @@ async function runPending(pending: Unit[], context: WorkContext, workers: number
   if (!pending.length) return false;
   return runOnPool(context.plan, pending, {
     size: workers,
-    entry: workerEntry(),
     onResult: record,
     signal: options.signal,
     onWarning: options.onWarning,

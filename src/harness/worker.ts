@@ -12,18 +12,23 @@
 import { createHook } from 'node:async_hooks';
 import { parentPort, workerData } from 'node:worker_threads';
 import { buildContext } from './context.js';
-import type { Plan } from './plan.js';
 import { executeReplicate, type Unit } from './work.js';
 import { useEstimatorModules } from './modules.js';
 import { isCommandEstimator, onCommandFolder, shareCommandPids, useEstimatorCommands } from './external/client.js';
-import { markerViews, type WorkerJob, type WorkerMessage } from './pool-protocol.js';
+import { markerViews, type WorkerJob, type WorkerMessage, type WorkerSetup } from './pool-protocol.js';
 import { detachOnce } from '../math/wasm.js';
 
 // First, before any estimator code is compiled (see detachOnce).
 detachOnce();
 
-const { plan, marker, replicateOffset } = workerData as { plan: Plan; marker: SharedArrayBuffer; replicateOffset: number };
-const { slots, clock, commandPids } = markerViews(marker);
+const { slots, clock, commandPids } = markerViews((workerData as { marker: SharedArrayBuffer }).marker);
+
+// One listener for the thread's whole life: the first message is the setup, every later one a unit. (Removing
+// the last listener would let the thread's loop end while it loads the plan's estimator modules.)
+let onJob: ((job: WorkerJob) => void) | null = null;
+const { plan, replicateOffset } = await new Promise<WorkerSetup>((resolve) => {
+  parentPort!.on('message', (message: WorkerSetup | WorkerJob) => (onJob ? onJob(message as WorkerJob) : resolve(message as WorkerSetup)));
+});
 
 /** The estimate running now (series, replicate, unit), or null. */
 let running: [number, number, number] | null = null;
@@ -105,7 +110,7 @@ async function settle(): Promise<void> {
 
 // A rejection here reaches the unhandledRejection handler above, which blames the running estimate.
 // eslint-disable-next-line @typescript-eslint/no-misused-promises
-parentPort!.on('message', async (job: WorkerJob) => {
+onJob = async (job: WorkerJob) => {
   const unit: Unit = job.unit;
   const skipped = new Set(job.skip.map((s) => `${s.series}|${s.replicate}`));
   for (let replicate = job.from; replicate < unit.repEnd; replicate++) {
@@ -133,5 +138,5 @@ parentPort!.on('message', async (job: WorkerJob) => {
     post({ kind: 'replicate', unit: unit.index, result }, [result.values.buffer as ArrayBuffer, result.timeMs.buffer as ArrayBuffer]);
   }
   post({ kind: 'unit-done', unit: unit.index });
-});
+};
 post({ kind: 'ready' });
