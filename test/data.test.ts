@@ -1,5 +1,5 @@
 import { execFileSync, spawn } from 'node:child_process';
-import { mkdtempSync, readFileSync, rmSync, symlinkSync, writeFileSync, mkdirSync } from 'node:fs';
+import { existsSync, mkdtempSync, readFileSync, rmSync, symlinkSync, writeFileSync, mkdirSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
@@ -482,6 +482,15 @@ describe('parseNpy on files written by NumPy', () => {
 });
 
 describe('readSample', () => {
+  // Found by hand: such a file was read as its first byte alone ("32768" as 3), its size being 0.
+  it.runIf(existsSync('/proc/sys/kernel/pid_max'))('reads a file whose size says 0 but which has bytes (/proc) to its end', () => {
+    const text = readFileSync('/proc/sys/kernel/pid_max', 'utf8');
+    const sample = readSample('/proc/sys/kernel/pid_max', { format: 'text' });
+    expect(rows(sample)).toEqual([[Number(text.trim())]]);
+    // A truly empty file keeps its format's own line.
+    expect(() => readSample(writeTemp('empty.csv', ''))).toThrow(/empty\.csv is empty; expected rows of numbers/);
+  });
+
   it('reads each format from a file, choosing the parser by extension', () => {
     // Hand-made: the same 2 × 2 table in every format; the .npy copy is NumPy's f8_column_2d fixture.
     const expected = [

@@ -198,10 +198,13 @@ export function readSample(path: string, options: ReadOptions = {}): LoadedSampl
   const named = options.format ?? (extname(path) === '' ? undefined : formatOf(path));
   const fd = openFile(path);
   try {
-    if (!fstatSync(fd).isFile()) {
+    const stat = fstatSync(fd);
+    // A file that says it is empty may not be (/proc, /sys: its size is 0, its bytes are made as they are read):
+    // it is read to its end as a pipe is; one that is truly empty goes on to its format's own "empty" line.
+    if (!stat.isFile() || stat.size === 0) {
       const bytes = readStream(fd, named, (error) => readError(path, error));
-      if (bytes.length === 0) throw new UsageError(`${path} is empty; it holds no sample (CSV/TSV/TXT, JSON or NumPy .npy)`);
-      return parseBytes(bytes, named ?? sniffFormat(bytes), path, path, options);
+      if (bytes.length > 0) return parseBytes(bytes, named ?? sniffFormat(bytes), path, path, options);
+      if (!stat.isFile()) throw new UsageError(`${path} is empty; it holds no sample (CSV/TSV/TXT, JSON or NumPy .npy)`);
     }
     const format = named ?? sniffFile(fd);
     const parseOptions = { source: path, columns: options.columns };
@@ -214,7 +217,7 @@ export function readSample(path: string, options: ReadOptions = {}): LoadedSampl
         // Delimited text is read through a window straight into the typed array of values, so a file of
         // hundreds of megabytes is never held as bytes or text in full.
         const delimiter: Delimiter | undefined = format === 'csv' ? 'comma' : format === 'tsv' ? 'tab' : undefined;
-        const table = readDelimitedFile(fd, fstatSync(fd).size, { ...parseOptions, delimiter, onProgress: options.onProgress });
+        const table = readDelimitedFile(fd, stat.size, { ...parseOptions, delimiter, onProgress: options.onProgress });
         return { ...table, format, source: path };
       }
     }
