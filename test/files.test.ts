@@ -104,6 +104,51 @@ describe('where results go', () => {
     expect(readRunFile(out).plan.replicates).toBe(5);
   });
 
+  // Found by a tester: each of these replaced the file and exited 0.
+  it('an output never replaces another output of the run, nor, without --force, a file hhat did not write', async () => {
+    const at = mkdtempSync(join(dir, 'clash-'));
+    const bench = ['bench', '--scenario', 'normal', '--estimator', 'gaussian', '--n', '50', '--replicates', '3', '--quiet'];
+    const data = join(at, 'data.csv');
+    writeFileSync(data, '1\n2\n3\n');
+    const run = join(at, 'run.json');
+    for (const [args, message] of [
+      [['--out', run, '--report', run], `--report ${run} is the same file as --out; give it another name`],
+      [['--out', run, '--csv', run], `--csv ${run} is the same file as --out; give it another name`],
+      [['--out', run, '--report', join(at, 'r.html'), '--csv', join(at, 'r.html')], `--csv ${join(at, 'r.html')} is the same file as --report`],
+      [['--out', data], `--out ${data} is an existing file that is not an hhat run file; add --force to replace it, or choose another --out`],
+      [['--out', run, '--csv', data], `--csv ${data} is an existing file that is not hhat's score table; add --force`],
+      [['--out', run, '--report', data], `--report ${data} is an existing file that is not an HTML page; add --force`],
+    ] as const) {
+      const result = await cli([...bench, ...args]);
+      expect(result.code, args.join(' ')).toBe(2);
+      expect(result.err).toContain(message);
+      expect(readFileSync(data, 'utf8')).toBe('1\n2\n3\n');
+      expect(existsSync(run)).toBe(false);
+    }
+    // What hhat wrote is replaced as before; an empty file (mktemp's) is free to take.
+    const csv = join(at, 'scores.csv');
+    expect((await cli([...bench, '--out', run, '--csv', csv])).code).toBe(0);
+    expect((await cli([...bench, '--out', run, '--csv', csv, '--force'])).code).toBe(0);
+    const empty = join(at, 'empty.json');
+    writeFileSync(empty, '');
+    expect((await cli([...bench, '--out', empty])).code).toBe(0);
+    // The report and merge commands: never over their input, nor over a file that is not theirs.
+    for (const [args, message] of [
+      [['report', run, '--out', run], `--out ${run} is the same file as the run file`],
+      [['report', run, '--out', data], `--out ${data} is an existing file that is not an HTML page`],
+      [['merge', run, '--out', data], `--out ${data} is an existing file that is not an hhat run file`],
+    ] as const) {
+      const result = await cli([...args]);
+      expect(result.code, args.join(' ')).toBe(2);
+      expect(result.err).toContain(message);
+    }
+    expect(readFileSync(data, 'utf8')).toBe('1\n2\n3\n');
+    readRunFile(run);
+    // With --force, the user's word stands.
+    expect((await cli([...bench, '--out', data, '--force'])).code).toBe(0);
+    readRunFile(data);
+  });
+
   // Node 20's recursive mkdirSync loops for ever on /proc/x (ENOENT under a folder that exists); found by hand.
   it.runIf(existsSync('/proc/self'))('an --out under a folder that cannot hold folders is one line and exit 1, not a hang', async () => {
     for (const out of ['/proc/hhat-test/run.json', '/proc/hhat-test/a/run.json']) {

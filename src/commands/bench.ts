@@ -33,7 +33,16 @@ import {
 } from '../harness/plan.js';
 import { progressReporter } from '../views/progress.js';
 import { assembleRun, readRunFile, writeFileAtomic, writeRunFile, type RunFile } from '../analysis/results.js';
-import { acquireLock, ensureFolder, isSpecialFile, refuseFolderOutput, removeLeftoverTemporaries } from '../core/files.js';
+import {
+  acquireLock,
+  ensureFolder,
+  isSpecialFile,
+  refuseFolderOutput,
+  refuseForeignOutput,
+  refuseSameFile,
+  removeLeftoverTemporaries,
+  sameFile,
+} from '../core/files.js';
 import { checkSampleMemory } from '../core/memory.js';
 import { prefetchProvenance } from '../core/provenance.js';
 import { checkpointStarted, defaultWorkers, runPlan, type RunOptions, type RunOutcome, type Shard } from '../harness/runner.js';
@@ -259,7 +268,7 @@ function declareBenchOptions(command: Command): Command {
     .option('--shard <i/N|auto>', 'run only slice i of N (1-based), or read it from a batch scheduler (auto)')
     .option('--out <file>', 'run file to write (default: results/run-TIMESTAMP.json)')
     .option('--resume', 'continue an interrupted run from its checkpoint (the same --out, or the newest under results/)')
-    .option('--force', 'replace a finished run file at --out')
+    .option('--force', 'replace a finished run at --out, or an existing file at --out, --csv or --report that hhat did not write')
     .option('--robustness', 'also measure perturbations and tuning grids at one sample size (the default plan does)')
     .option(
       '--perturb <spec>',
@@ -411,6 +420,37 @@ function writeRunFiles(run: RunFile, out: string, checkpoint: string, options: B
   if (options.csv) writeFileAtomic(options.csv, scoresCsv(run, base));
 }
 
+/** Where `hhat bench --report` writes: its value, else the run file's name with .html; none for a shard. */
+function benchReportPath(out: string, options: BenchOptions, shard: Shard | undefined): string | undefined {
+  if (!options.report || shard) return undefined;
+  return resolve(typeof options.report === 'string' ? options.report : out.replace(/\.json$/, '') + '.html');
+}
+
+/**
+ * Refused before the run: outputs that would replace one another (a report written over its own run file), and,
+ * without --force, an existing file that is not what hhat writes there (a data file named by mistake).
+ */
+function refuseOutputClashes(out: string, checkpoint: string, options: BenchOptions, shard: Shard | undefined): void {
+  const written: [string, string][] = [
+    ['--out', out],
+    ["--out's checkpoint", checkpoint],
+  ];
+  const reportPath = benchReportPath(out, options, shard);
+  for (const [flag, path] of [
+    ['--report', reportPath],
+    ['--csv', options.csv],
+  ] as const) {
+    if (!path) continue;
+    for (const earlier of written) refuseSameFile(earlier, [flag, path]);
+    written.push([flag, path]);
+  }
+  if (options.force) return;
+  const hint = (flag: string) => `add --force to replace it, or choose another ${flag}`;
+  refuseForeignOutput('--out', out, 'run', hint('--out'));
+  if (reportPath) refuseForeignOutput('--report', reportPath, 'report', hint('--report'));
+  if (options.csv) refuseForeignOutput('--csv', options.csv, 'scores', hint('--csv'));
+}
+
 /** A whole run's tables and text chart (unless quiet) and its HTML report (when asked); a shard shows neither. */
 async function presentRun(
   run: RunFile,
@@ -424,8 +464,8 @@ async function presentRun(
     printRun(run, base, print, Boolean(options.detail));
     if (options.chart !== false) print(biasTextChart(run, base));
   }
-  if (options.report && !shard) {
-    const reportPath = resolve(typeof options.report === 'string' ? options.report : out.replace(/\.json$/, '') + '.html');
+  const reportPath = benchReportPath(out, options, shard);
+  if (reportPath) {
     // The charting stack (about a quarter of a second to load) only when a report is asked for.
     const { writeReport } = await import('../views/report/report.js');
     await writeReport(run, { base, out: reportPath, svgDir: options.svgDir });
@@ -453,7 +493,6 @@ function printRunSummary(
   print(`run file: ${out}`);
 }
 
-/** `hhat bench`: builds the plan, runs it under the --out lock with a checkpoint, then writes and shows the run. */
 /** An empty file name or shard ('' from an unset shell variable) would otherwise fall back to a default unsaid. */
 function refuseEmptyValues(options: BenchOptions): void {
   const given: [string, unknown][] = [
@@ -476,12 +515,14 @@ function refuseEmptyValues(options: BenchOptions): void {
   if (typeof options.report === 'string') refuseFolderOutput('--report', options.report, 'report.html');
 }
 
+/** `hhat bench`: builds the plan, runs it under the --out lock with a checkpoint, then writes and shows the run. */
 async function runBench(options: BenchOptions, args: string[], print: (text: string) => void, printErr: (text: string) => void): Promise<void> {
   const base: Base = options.bits ? 'bits' : 'nats';
   refuseEmptyValues(options);
   const shard: Shard | undefined = options.shard ? parseShard(options.shard) : undefined;
   const workers = options.workers === undefined ? defaultWorkers() : parseIntegerOption('--workers', options.workers, 1, 256);
   const out = benchOutPath(options, shard);
+  refuseOutputClashes(out, checkpointFor(out), options, shard);
   const plan = await benchPlan(options, workers, printErr);
   const checkpoint = checkpointFor(out);
   const resumeHint = `the finished units are saved in ${checkpoint}; fix that and rerun with --resume --out ${out}`;
@@ -526,17 +567,6 @@ async function runBench(options: BenchOptions, args: string[], print: (text: str
   }
 }
 
-/** Whether two paths name one file (the same path, or links to one), as far as the file system says. */
-function sameFile(a: string, b: string): boolean {
-  if (resolve(a) === resolve(b)) return true;
-  try {
-    const [x, y] = [statSync(a), statSync(b)];
-    return x.dev === y.dev && x.ino === y.ino;
-  } catch {
-    return false;
-  }
-}
-
 /** Adds `hhat bench` and `hhat merge` to the program. */
 export function registerBenchCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
   // The program's raw arguments (commander keeps them, untyped) are the command line after `hhat`: kept in the
@@ -558,6 +588,7 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
       const input = files.find((f) => sameFile(f, options.out));
       if (input) throw new UsageError(`--out ${options.out} is one of the shards being merged (${input}); choose another --out`);
       refuseFolderOutput('--out', options.out, 'run.json');
+      refuseForeignOutput('--out', options.out, 'run', 'choose another --out (merge replaces only a run file)');
       const run = mergeShards(files.map((path) => ({ path, run: readRunFile(path) })));
       writeRunFile(options.out, run);
       if (options.quiet) return print(resolve(options.out));

@@ -17,6 +17,7 @@ import {
   mkdirSync,
   openSync,
   readdirSync,
+  readSync,
   readFileSync,
   realpathSync,
   renameSync,
@@ -41,6 +42,53 @@ export function refuseFolderOutput(flag: string, path: string, exampleName: stri
     return;
   }
   if (folder) throw new UsageError(`${flag} ${path} is a folder; give a file's path, e.g. ${flag} ${join(path, exampleName)}`);
+}
+
+/** Whether two paths name one file (the same path, or links to one), as far as the file system says. */
+export function sameFile(a: string, b: string): boolean {
+  if (resolve(a) === resolve(b)) return true;
+  try {
+    const [x, y] = [statSync(a), statSync(b)];
+    return x.dev === y.dev && x.ino === y.ino;
+  } catch {
+    return false;
+  }
+}
+
+/** What hhat writes at an output path, recognised by the file's first bytes. */
+export const OUTPUT_KINDS = {
+  run: { what: 'an hhat run file', isOurs: (head: string) => /^\s*\{\s*"schemaVersion":\s*\d+,\s*"kind":\s*"hhat-run"/.test(head) },
+  report: { what: 'an HTML page', isOurs: (head: string) => /^\s*<!doctype html/i.test(head) },
+  scores: { what: "hhat's score table", isOurs: (head: string) => head.startsWith('scenario,estimator,n,') },
+} as const;
+
+/**
+ * Refuses to write `path` over an existing, non-empty regular file that is not what hhat writes there: an output
+ * flag given a data file's name by mistake would replace the data. An empty file (made by mktemp) is free to take;
+ * devices and pipes are left to the writer's own checks.
+ */
+export function refuseForeignOutput(flag: string, path: string, kind: keyof typeof OUTPUT_KINDS, hint: string): void {
+  let head: string;
+  try {
+    const stat = statSync(path);
+    if (!stat.isFile() || stat.size === 0) return;
+    const fd = openSync(path, 'r');
+    try {
+      const bytes = Buffer.alloc(256);
+      head = bytes.subarray(0, readSync(fd, bytes, 0, bytes.length, 0)).toString('utf8');
+    } finally {
+      closeSync(fd);
+    }
+  } catch {
+    return;
+  }
+  const { what, isOurs } = OUTPUT_KINDS[kind];
+  if (!isOurs(head)) throw new UsageError(`${flag} ${path} is an existing file that is not ${what}; ${hint}`);
+}
+
+/** Refuses two outputs (or an output and an input) of one command that name the same file: the later write would replace the earlier. */
+export function refuseSameFile(first: [flag: string, path: string], second: [flag: string, path: string]): void {
+  if (sameFile(first[1], second[1])) throw new UsageError(`${second[0]} ${second[1]} is the same file as ${first[0]}; give it another name`);
 }
 
 /** What a failed file operation means for the user, in words. */
