@@ -8,6 +8,7 @@ import type { ErrorObject, ValidateFunction } from 'ajv/dist/2020.js';
 import { loadAjv } from '../core/schema-validator.js';
 import type { Scenario } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
+import { locateJsonError } from '../data/json-syntax.js';
 import { DEQUANTIZE_SETTING } from '../core/spec.js';
 import { drawsFingerprint, readTextFile, type Plan, type PlanCode } from '../harness/plan.js';
 import { environment, type Environment } from '../core/provenance.js';
@@ -263,7 +264,10 @@ export function readRunFile(path: string): RunFile {
   try {
     value = JSON.parse(text) as typeof value;
   } catch (error) {
-    throw new UsageError(`${path} is not valid JSON (${(error as Error).message}); is it a complete hhat run file?`);
+    // The line and column, as an editor shows them; V8's message quotes the file, newlines and all.
+    const problem = locateJsonError(text);
+    const where = problem ? `line ${problem.line}, column ${problem.column}: ${problem.problem}` : (error as Error).message.replace(/\s+/g, ' ');
+    throw new UsageError(`${path} is not valid JSON (${where}); is it a complete hhat run file?`);
   }
   if (typeof value !== 'object' || value === null || value.kind !== 'hhat-run') throw new UsageError(`${path} is not an hhat run file (no "kind": "hhat-run")`);
   if (value.schemaVersion !== SCHEMA_VERSION) {

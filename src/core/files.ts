@@ -104,7 +104,10 @@ export function describeFileError(error: unknown, action: string, path: string):
     case 'EPERM':
       return `permission denied: cannot ${action} ${path}`;
     case 'ENOENT':
-      return `cannot ${action} ${path}: its folder does not exist`;
+      // Writing where the folder exists but takes no new files (/proc, /sys) fails the same way.
+      return !action.startsWith('read') && existsSync(dirname(path))
+        ? `cannot ${action} ${path}: ${dirname(path)} does not take new files (no such file or directory)`
+        : `cannot ${action} ${path}: its folder does not exist`;
     case 'ENOTDIR':
       return `cannot ${action} ${path}: a part of that path is a file, not a folder`;
     case 'EISDIR':

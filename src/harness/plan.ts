@@ -224,7 +224,7 @@ export function readPlanFile(path: string): PlanInput {
     // V8's message gives a character offset at best; the line and column are what an editor shows.
     const problem = locateJsonError(text);
     if (problem) throw new UsageError(`${path} line ${problem.line}, column ${problem.column}: invalid JSON: ${problem.problem}`);
-    throw new UsageError(`${path} is not valid JSON: ${(error as Error).message}`);
+    throw new UsageError(`${path} is not valid JSON: ${(error as Error).message.replace(/\s+/g, ' ')}`);
   }
   return checkPlanShape(value, path);
 }
