@@ -3,8 +3,143 @@
  * per-replicate estimates, scores recomputed over all replicates.
  */
 import { UsageError } from '../core/errors.js';
-import { codeDifference } from '../harness/plan.js';
+import { countOf } from '../core/format.js';
+import { DEQUANTIZE_SETTING } from '../core/spec.js';
+import { buildContext } from '../harness/context.js';
+import { parsePerturbation } from '../harness/perturb.js';
+import { codeDifference, planCode } from '../harness/plan.js';
+import { shardUnits, type Shard } from '../harness/runner.js';
+import { planUnits } from '../harness/work.js';
 import { cellKey, finishRun, type Cell, type RunFile } from './results.js';
+
+/** A cell as a refusal names it: what it is, without its results. */
+type CellId = Pick<Cell, 'scenario' | 'estimator' | 'n' | 'role' | 'perturbation' | 'tuning'>;
+
+/** Cells a merge would otherwise leave out: of one shard file, or (path null) of none that could be named. */
+interface MissingCells {
+  path: string | null;
+  shard: Shard | null;
+  cells: CellId[];
+  /** Whence the cells are known to belong there, for the refusal. */
+  basis: string;
+}
+
+function describeCell(c: CellId): string {
+  const parts = [`scenario ${c.scenario}`, `estimator ${c.estimator}`, `n=${c.n}`];
+  if (c.role !== 'main') parts.push(`role ${c.role}`);
+  if (c.perturbation !== null) parts.push(`perturbation ${c.perturbation}`);
+  if (c.tuning) parts.push(`tuning ${c.tuning.setting}=${c.tuning.value} of ${c.tuning.base}`);
+  return parts.join(', ');
+}
+
+const LISTED = 4;
+
+function refusal(m: MissingCells): string {
+  const shown = m.cells.slice(0, LISTED).map(describeCell).join('; ');
+  const more = m.cells.length > LISTED ? `; and ${m.cells.length - LISTED} more` : '';
+  const cells = `${countOf(m.cells.length, 'cell')} ${m.basis}: ${shown}${more}`;
+  if (m.path === null)
+    return `none of the shards holds ${cells}; was a shard file edited, or a shard interrupted? rerun or resume the shard that runs them, then merge`;
+  return `${m.path} (shard ${m.shard!.index}/${m.shard!.count}) lacks ${cells}; was the file edited, or the shard interrupted? rerun or resume that shard, then merge`;
+}
+
+/**
+ * The cells each shard's units give it, split as the shards were (index i − 1 for shard i/N). Null when this hhat
+ * cannot rebuild that split: merge loads no estimator modules or commands, and other code may plan other tuning
+ * points or skips; the merge then falls back to impliedMissing.
+ */
+function plannedShardCells(run: RunFile): CellId[][] | null {
+  const { plan } = run;
+  if (plan.modules.length || plan.commands?.length || codeDifference(run.code, planCode(plan)) !== null) return null;
+  // With shifts, as the run itself built it: whether a perturbation applies can depend on its shift being known.
+  const context = buildContext(plan);
+  const { units } = planUnits(context);
+  const planned = context.estimators.length;
+  const twinsFrom = planned + context.tuning.length;
+  const tuningOf = (e: number): Cell['tuning'] => {
+    if (e < planned) return null;
+    if (e >= twinsFrom) return { base: context.estimators[context.dequantized[e - twinsFrom].base].spec, setting: DEQUANTIZE_SETTING, value: 'auto' };
+    const point = context.tuning[e - planned];
+    return { base: context.estimators[point.base].spec, setting: point.setting, value: point.value };
+  };
+  const { count } = run.shard!;
+  return Array.from({ length: count }, (_, i) => {
+    const cells = new Map<string, CellId>();
+    for (const u of shardUnits(units, { index: i + 1, count })) {
+      const unit = units[u];
+      for (const series of unit.series) {
+        const cell: CellId = {
+          scenario: context.scenarios[unit.scenario].id,
+          estimator: context.all[series.estimator].spec,
+          n: unit.n,
+          role: series.variant > 0 ? 'perturbed' : series.estimator < planned ? 'main' : 'tuning',
+          perturbation: series.variant > 0 ? context.perturbations[series.variant - 1].spec : null,
+          tuning: tuningOf(series.estimator),
+        };
+        cells.set(cellKey(cell), cell);
+      }
+    }
+    return [...cells.values()];
+  });
+}
+
+/**
+ * Without the split, what a shard must hold follows from what it does hold: a unit runs every series of its
+ * scenario and n, so a shard with one cell of a scenario at an n has every cell the plan runs there. Tuning points
+ * and dequantized twins are as any shard lists them (they depend on code, not on the plan alone). A scenario and n
+ * of which no shard holds a cell cannot be laid at one shard's door.
+ */
+function impliedMissing(files: { path: string; run: RunFile }[]): MissingCells | null {
+  const { plan, skipped } = files[0].run;
+  const skips = new Set(skipped.map((s) => `${s.scenario}|${s.estimator}`));
+  const variants = new Map<string, CellId>();
+  for (const f of files) for (const c of f.run.cells) if (c.tuning) variants.set(`${c.role}|${c.estimator}`, c);
+  const robustness = plan.robustness;
+  const expected = (scenario: string, n: number): CellId[] => {
+    const runnable = plan.estimators.filter((e) => !skips.has(`${scenario}|${e}`));
+    const cell = (estimator: string, role: Cell['role'], perturbation: string | null, tuning: Cell['tuning'] = null): CellId => ({
+      scenario,
+      estimator,
+      n,
+      role,
+      perturbation,
+      tuning,
+    });
+    const cells = runnable.map((e) => cell(e, 'main', null));
+    if (!robustness || n !== robustness.sampleSize || !runnable.length) return cells;
+    const of = (role: Cell['role']) => [...variants.values()].filter((v) => v.role === role && runnable.includes(v.tuning!.base));
+    cells.push(...of('tuning').map((v) => cell(v.estimator, 'tuning', null, v.tuning)));
+    for (const p of robustness.perturbations) {
+      if (skips.has(`${scenario}|(all, under ${p})`)) continue;
+      cells.push(...runnable.map((e) => cell(e, 'perturbed', p)));
+      if (parsePerturbation(p).kind === 'quantize') cells.push(...of('perturbed').map((v) => cell(v.estimator, 'perturbed', p, v.tuning)));
+    }
+    return cells;
+  };
+  const group = (c: { scenario: string; n: number }) => JSON.stringify([c.scenario, c.n]);
+  const heldSomewhere = new Set<string>();
+  for (const f of files) {
+    const held = new Set(f.run.cells.map(cellKey));
+    const groups = new Map(f.run.cells.map((c) => [group(c), c]));
+    const cells = [...groups.values()].flatMap((c) => expected(c.scenario, c.n)).filter((c) => !held.has(cellKey(c)));
+    if (cells.length) return { path: f.path, shard: f.run.shard, cells, basis: 'that the plan runs beside the cells it holds at the same scenario and n' };
+    for (const g of groups.keys()) heldSomewhere.add(g);
+  }
+  const cells = plan.scenarios.flatMap((s) => plan.sampleSizes.flatMap((n) => (heldSomewhere.has(group({ scenario: s, n })) ? [] : expected(s, n))));
+  return cells.length ? { path: null, shard: null, cells, basis: 'that the plan runs' } : null;
+}
+
+/** Cells the plan gives a shard that its file does not hold: a cell deleted from the file is otherwise merged away unseen. */
+function missingCells(files: { path: string; run: RunFile }[]): MissingCells | null {
+  const planned = plannedShardCells(files[0].run);
+  if (!planned) return impliedMissing(files);
+  for (const f of files) {
+    const held = new Set(f.run.cells.map(cellKey));
+    const cells = planned[f.run.shard!.index - 1].filter((c) => !held.has(cellKey(c)));
+    if (cells.length) return { path: f.path, shard: f.run.shard, cells, basis: 'that the plan gives that shard' };
+  }
+  return null;
+}
 
 export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
   if (!files.length) throw new UsageError('merge needs at least one shard file');
@@ -31,6 +166,9 @@ export function mergeShards(files: { path: string; run: RunFile }[]): RunFile {
   const missing = Array.from({ length: count }, (_, i) => i + 1).filter((i) => !seen.has(i));
   if (missing.length)
     throw new UsageError(`shard${missing.length > 1 ? 's' : ''} ${missing.map((i) => `${i}/${count}`).join(', ')} missing; merge needs all ${count}`);
+
+  const missingCell = missingCells(files);
+  if (missingCell) throw new UsageError(refusal(missingCell));
 
   const { plan } = first.run;
   const cells = new Map<string, Cell>();
