@@ -482,6 +482,15 @@ describe('parseNpy on files written by NumPy', () => {
 });
 
 describe('readSample', () => {
+  // Found by a tester: a stacked draw was read as one 2-D sample, its replicate index a coordinate.
+  it("refuses hhat draw's stacked replicates as one sample, unless the columns are named", () => {
+    const path = writeTemp('stacked.csv', 'replicate,x1\n0,0.5\n0,1.5\n1,-0.25\n1,2\n');
+    expect(() => readSample(path)).toThrow(/its first column is "replicate".*name the data columns with --columns/);
+    expect(rows(readSample(path, { columns: 'x1' }))).toEqual([[0.5], [1.5], [-0.25], [2]]);
+    // A lone column of that name is data like any other.
+    expect(rows(readSample(writeTemp('lone.csv', 'replicate\n1\n2\n')))).toEqual([[1], [2]]);
+  });
+
   // Found by hand: such a file was read as its first byte alone ("32768" as 3), its size being 0.
   it.runIf(existsSync('/proc/sys/kernel/pid_max'))('reads a file whose size says 0 but which has bytes (/proc) to its end', () => {
     const text = readFileSync('/proc/sys/kernel/pid_max', 'utf8');

@@ -204,7 +204,7 @@ describe('formats and layouts', () => {
     ).toEqual(['split-0.npy', 'split-2.npy', 'split-7.npy']);
     const parts = [2, 0, 7].map((r) => Buffer.from(npyDataBase64(join(dir, `split-${r}.npy`)), 'base64'));
     expect(Buffer.from(npyDataBase64(join(dir, 'stack.npy')), 'base64').equals(Buffer.concat(parts))).toBe(true);
-    const csv = readSample(join(dir, 'stack.csv'));
+    const csv = readSample(join(dir, 'stack.csv'), { columns: 'replicate,x1,x2' });
     expect(csv.columnNames).toEqual(['replicate', 'x1', 'x2']);
     for (let i = 0; i < 60; i++) expect(csv.sample.data[i * 3]).toBe([2, 0, 7][Math.floor(i / 20)]);
     const values = Float64Array.from({ length: 120 }, (_, k) => csv.sample.data[Math.floor(k / 2) * 3 + 1 + (k % 2)]);

@@ -192,6 +192,23 @@ function sniffFile(fd: number): DataFormat {
  * A pipe or a device (a named FIFO, a shell's `<(...)`) is read once, as far as its format needs, and parsed whole.
  */
 export function readSample(path: string, options: ReadOptions = {}): LoadedSample {
+  return refuseStackedReplicates(readAnySample(path, options), options);
+}
+
+/**
+ * `hhat draw --replicates R` stacks R samples in one CSV under a first column "replicate": read as one sample,
+ * the index would become a coordinate and R draws one cloud. Columns the user chose are taken as chosen.
+ */
+function refuseStackedReplicates(loaded: LoadedSample, options: ReadOptions): LoadedSample {
+  if (options.columns === undefined && loaded.namedColumns && loaded.columnNames[0] === 'replicate' && loaded.columnNames.length > 1) {
+    throw new UsageError(
+      `${loaded.source}: its first column is "replicate", as in the stacked replicates \`hhat draw --replicates\` writes, which are not one sample; estimate one replicate (hhat draw --replicate I, or --split), or name the data columns with --columns`,
+    );
+  }
+  return loaded;
+}
+
+function readAnySample(path: string, options: ReadOptions): LoadedSample {
   if (path === STDIN_PATH) return readStandardInputSample(options);
   // Before the extension: a folder named without one is a folder, not a file of an unknown format.
   if (isFolder(path)) throw new UsageError(`cannot read data file ${path}: it is a directory`);
