@@ -336,6 +336,19 @@ describe('advise FILE on held-out scenarios', () => {
 });
 
 describe('advise FILE on data a Gaussian mixture cannot imitate', () => {
+  // Found by a tester: at 1e-170 a column was called constant, at 1e200 the look-alike's mean was NaN.
+  it('refuses a column beyond the scales a look-alike can be written in, with its SD, and calls only an equal-valued column constant', async () => {
+    const z = normals('advise test: extreme scales', 200);
+    const scaled = (c: number) => ({ n: 200, dim: 1, data: Float64Array.from(z, (v) => v * c) });
+    for (const c of [1e-170, 1e200]) {
+      await expect(adviseFile(scaled(c), { replicates: 10, resamples: 10, columnNames: ['dose'] })).rejects.toThrow(
+        new RegExp(`^dose has SD \\d\\.\\d\\de${c < 1 ? '-170' : '\\+200'} and centre .*: advise's look-alike needs an SD from 1e-150 to 1e\\+150`),
+      );
+    }
+    const flat = { n: 50, dim: 1, data: new Float64Array(50).fill(1e-170) };
+    await expect(adviseFile(flat, { replicates: 10, resamples: 10, columnNames: ['dose'] })).rejects.toThrow(/^dose is constant/);
+  });
+
   it('says so plainly for values on a coarse grid, and estimates with an estimator that works on them', async () => {
     const z = normals('advise test: coarse grid', 300);
     const data = Float64Array.from(z, (v) => Math.round(v * 4) / 4);

@@ -52,6 +52,35 @@ function round(x: number): number {
   return Number(x.toPrecision(SIGNIFICANT_DIGITS));
 }
 
+/**
+ * The SDs and centres a look-alike can be written with: its covariances are products of two SDs, and the
+ * look-alike's own estimators square and sum its values, so both must stay far inside the double range.
+ */
+export const LOOKALIKE_SD_RANGE = [1e-150, 1e150] as const;
+const LOOKALIKE_MAX_CENTRE = 1e300;
+
+/**
+ * Why column j cannot be standardised: it is constant (every value equal), or its scale is beyond what a
+ * look-alike can be written with. The SD is found from values divided by their largest deviation first, since
+ * squares of deviations near 1e-170 vanish and near 1e200 overflow.
+ */
+function refuseScale(out: Float64Array, n: number, dim: number, j: number, name: string): never {
+  let largest = 0;
+  for (let i = 0; i < n; i++) largest = Math.max(largest, Math.abs(out[i * dim + j]));
+  let mean = 0;
+  for (let i = 0; i < n; i++) mean += out[i * dim + j] / largest;
+  mean /= n;
+  let sum = 0;
+  let deviation = 0;
+  for (let i = 0; i < n; i++) deviation = Math.max(deviation, Math.abs(out[i * dim + j] / largest - mean));
+  if (!(deviation > 0)) throw new UsageError(`${name} is constant: its differential entropy is −∞ and no estimator applies; drop the column`);
+  for (let i = 0; i < n; i++) sum += ((out[i * dim + j] / largest - mean) / deviation) ** 2;
+  const sd = Math.sqrt(sum / (n - 1)) * deviation * largest;
+  throw new UsageError(
+    `${name} has SD ${sd.toPrecision(3)} and centre ${(mean * largest).toPrecision(3)}: advise's look-alike needs an SD from ${LOOKALIKE_SD_RANGE[0]} to ${LOOKALIKE_SD_RANGE[1]} and a centre within ±${LOOKALIKE_MAX_CENTRE}; rescale the column by a power of ten c (its entropy then moves by exactly log c) and run advise again, or use hhat estimate, which takes any scale`,
+  );
+}
+
 /** Centred, SD-scaled copy of (a subset of) the sample, with the centres and scales. */
 function standardise(
   sample: Sample,
@@ -74,9 +103,8 @@ function standardise(
     let sum = 0;
     for (let i = 0; i < n; i++) sum += (out[i * dim + j] - mean) ** 2;
     const sd = Math.sqrt(sum / (n - 1));
-    if (!(sd > 0)) {
-      throw new UsageError(`${names[j] ?? `column ${j + 1}`} is constant: its differential entropy is −∞ and no estimator applies; drop the column`);
-    }
+    if (!(sd >= LOOKALIKE_SD_RANGE[0] && sd <= LOOKALIKE_SD_RANGE[1] && Math.abs(mean) <= LOOKALIKE_MAX_CENTRE))
+      refuseScale(out, n, dim, j, names[j] ?? `column ${j + 1}`);
     centres[j] = mean;
     scales[j] = sd;
     for (let i = 0; i < n; i++) out[i * dim + j] = (out[i * dim + j] - mean) / sd;
