@@ -25,6 +25,7 @@ import type { ParamSpec, Rng, Scenario, ScenarioFamily, UnivariateDensity } from
 import { UsageError } from '../src/core/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
 import { digamma, logGamma } from '../src/math/special.js';
+import { STIRLING_SERIES_MIN, logGammaMinusXDigammaPlusX, stirlingSecondDifference } from '../src/math/stirling.js';
 import { formatNumber } from '../src/core/spec.js';
 import { gaussianFromNormals, gaussianRows, scenarioFromFacts, type ScenarioFacts } from './build.js';
 import { univariateDensity } from './univariate.js';
@@ -276,6 +277,13 @@ export function studentScaleInformation(nu: number, xDim: number, yDim: number):
   const hy = (nu + yDim) / 2;
   const hd = (nu + d) / 2;
   const h0 = nu / 2;
+  // With F(x) = log Γ(x) − xψ(x) + x the x terms cancel in c = F(h0) + F(hd) − F(hx) − F(hy), and Stirling's
+  // series gives F(x) = −½ log x + ½ log 2π + ½ + u(x): c = ½ log1p(dX·dY/(ν(ν + d))) + the second difference of
+  // u, both computed without the terms of size ν log ν that cancel in the form below.
+  if (h0 >= STIRLING_SERIES_MIN) return 0.5 * Math.log1p((xDim * yDim) / nu / (nu + d)) + stirlingSecondDifference(h0, xDim / 2, yDim / 2);
+  if (hd >= STIRLING_SERIES_MIN) {
+    return logGammaMinusXDigammaPlusX(h0) + logGammaMinusXDigammaPlusX(hd) - logGammaMinusXDigammaPlusX(hx) - logGammaMinusXDigammaPlusX(hy);
+  }
   return logGamma(h0) + logGamma(hd) - logGamma(hx) - logGamma(hy) + hx * digamma(hx) + hy * digamma(hy) - hd * digamma(hd) - h0 * digamma(h0);
 }
 

@@ -12,7 +12,8 @@ import { exponentialRandom, gammaRandom, laplaceRandom, normalRandom } from '../
 import type { ParamSpec, Rng, Scenario, ScenarioFamily } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
-import { digamma, logGamma } from '../src/math/special.js';
+import { digamma, logGamma, logQuotient, logWidth } from '../src/math/special.js';
+import { STIRLING_SERIES_MIN, digammaStirlingRemainder, log1pMinusIdentity, logGammaStirlingRemainder } from '../src/math/stirling.js';
 import { formatNumber } from '../src/core/spec.js';
 import { gaussianRows, scenarioFromFacts, type ScenarioFacts } from './build.js';
 import { equicorrelated } from './multivariate.js';
@@ -179,7 +180,7 @@ const klExponential: ScenarioFamily = {
       params: p,
       dim: 1,
       // E_P[log λp − λp X − log λq + λq X] with E_P X = 1/λp.
-      truth: Math.log(p.rateP / p.rateQ) + p.rateQ / p.rateP - 1,
+      truth: logQuotient(p.rateP, p.rateQ) + p.rateQ / p.rateP - 1,
       truthSource: `log(λp/λq) + λq/λp − 1: E_P[log p − log q] with E_P X = 1/λp; the gamma case of ${PENNY}`,
       support: 'half',
       tails: 'exponential',
@@ -204,7 +205,43 @@ const gammaSpecs: ParamSpec[] = [
  * (Penny 2001, in rate form): E_P log X = ψ(kp) + log θp and E_P X = kp θp.
  */
 export function gammaDivergence(kp: number, thetaP: number, kq: number, thetaQ: number): number {
-  return (kp - kq) * digamma(kp) - logGamma(kp) + logGamma(kq) + kq * (Math.log(thetaQ) - Math.log(thetaP)) + (kp * (thetaP - thetaQ)) / thetaQ;
+  if (kp >= STIRLING_SERIES_MIN && kq >= STIRLING_SERIES_MIN) return gammaDivergenceLargeShapes(kp, thetaP, kq, thetaQ);
+  const shapePart = kp < STIRLING_SERIES_MIN && kq < STIRLING_SERIES_MIN ? (kp - kq) * digamma(kp) - logGamma(kp) + logGamma(kq) : gammaShapeBregman(kp, kq);
+  // e = θp/θq − 1; near e = 0 the scale part kq(e − log1p e) + (kp − kq)e is formed without its cancelling logs.
+  const e = (thetaP - thetaQ) / thetaQ;
+  if (Math.abs(e) < 0.25) return shapePart - kq * log1pMinusIdentity(e) + (kp - kq) * e;
+  return shapePart + kq * (Math.log(thetaQ) - Math.log(thetaP)) + (kp * (thetaP - thetaQ)) / thetaQ;
+}
+
+/**
+ * Both shapes past the series threshold: with t = kq/kp − 1, e = θp/θq − 1 and w = (e − t)/(1 + t) = μp/μq − 1
+ * (the ratio of the means less 1), the terms of size k in the shape and scale parts combine into
+ * −kq(log1p w − w), leaving D = −kq(log1p w − w) − ½(log1p t − t) + r(kq) − r(kp) − kp·t·s(kp): laws with nearly
+ * equal means no longer subtract two numbers of size k.
+ */
+function gammaDivergenceLargeShapes(kp: number, thetaP: number, kq: number, thetaQ: number): number {
+  const t = (kq - kp) / kp;
+  const e = (thetaP - thetaQ) / thetaQ;
+  const w = Number.isFinite(e) ? (e - t) / (1 + t) : (kp / kq) * (thetaP / thetaQ) - 1;
+  return (
+    -kq * log1pMinusIdentity(w) -
+    0.5 * log1pMinusIdentity(t) +
+    logGammaStirlingRemainder(kq) -
+    logGammaStirlingRemainder(kp) -
+    kp * t * digammaStirlingRemainder(kp)
+  );
+}
+
+/**
+ * log Γ(kq) − log Γ(kp) − (kq − kp)ψ(kp) ≥ 0, the gap of log Γ under its tangent at kp. With t = kq/kp − 1 and
+ * Stirling remainders r, s it is kp((1 + t) log1p t − t) − ½(log1p t − t) + r(kq) − r(kp) − kp·t·s(kp): every
+ * term is of the size of the result (kp t²/2 for small t), where log Γ(kq) and log Γ(kp) are of size kp log kp.
+ */
+function gammaShapeBregman(kp: number, kq: number): number {
+  const t = (kq - kp) / kp;
+  const log1pT = Math.log1p(t);
+  const tangentGap = log1pMinusIdentity(t) + t * log1pT;
+  return kp * tangentGap - 0.5 * log1pMinusIdentity(t) + logGammaStirlingRemainder(kq) - logGammaStirlingRemainder(kp) - kp * t * digammaStirlingRemainder(kp);
 }
 
 const klGamma: ScenarioFamily = {
@@ -292,12 +329,14 @@ const klUniform: ScenarioFamily = {
     }
     const widthP = p.b - p.a;
     const widthQ = p.d - p.c;
+    // Widths past the largest double are compared as half-widths, which b/2 − a/2 forms without overflow.
+    const ratio = Number.isFinite(widthQ) ? widthQ / widthP : (p.d / 2 - p.c / 2) / (p.b / 2 - p.a / 2);
     return divergenceScenario({
       family: 'kl-uniform',
       specs: uniformSpecs,
       params: p,
       dim: 1,
-      truth: Math.log(widthQ / widthP),
+      truth: Number.isFinite(ratio) && ratio > 0 ? Math.log(ratio) : logWidth(p.c, p.d) - logWidth(p.a, p.b),
       truthSource: 'log((d − c)/(b − a)): log p − log q is constant on the support of P',
       support: 'bounded',
       tails: 'light',

@@ -7,7 +7,7 @@ import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js
 import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { formatNumber } from '../src/core/spec.js';
 import { gaussianFromNormals, gaussianRows, normalRepresentation, scenarioId } from './build.js';
-import { studentLogDensityVariance, univariateDensity } from './univariate.js';
+import { studentEntropyLargeNu, studentLogDensityVariance, studentUsesSeries, univariateDensity } from './univariate.js';
 import { loadPackage } from '../src/core/vendor.js';
 
 const chisquareRandom = loadPackage<typeof import('@stdlib/random-base-chisquare')>('@stdlib/random-base-chisquare');
@@ -269,7 +269,9 @@ const studentTMv: ScenarioFamily = {
       quantity: 'entropy',
       dim: d,
       params: p,
-      truth: 0.5 * chol.logDeterminant + (d / 2) * Math.log(nu * Math.PI) + logGamma(nu / 2) - logGamma(half) + half * (digamma(half) - digamma(nu / 2)),
+      truth: studentUsesSeries(nu)
+        ? 0.5 * chol.logDeterminant + studentEntropyLargeNu(nu, d)
+        : 0.5 * chol.logDeterminant + (d / 2) * Math.log(nu * Math.PI) + logGamma(nu / 2) - logGamma(half) + half * (digamma(half) - digamma(nu / 2)),
       truthSource:
         '½ log det Σ + log((νπ)^{d/2} Γ(ν/2)/Γ((ν+d)/2)) + ((ν+d)/2)(ψ((ν+d)/2) − ψ(ν/2)); Kotz & Nadarajah, Multivariate t Distributions and Their Applications (2004)',
       logDensityVariance: studentLogDensityVariance(nu, d),

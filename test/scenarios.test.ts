@@ -35,6 +35,7 @@ import { NUMERIC_TRUTH_BOUND } from '../scenarios/mixtures-and-transforms.js';
 import { entropyByQuadrature } from '../scenarios/build.js';
 import { integrate } from '../src/math/quadrature.js';
 import fixture from './fixtures/scenarios.json' with { type: 'json' };
+import extremeTruths from './fixtures/extreme-truths.json' with { type: 'json' };
 import { kolmogorovQ, ksPValue } from './helpers/ks.js';
 import { stdlibCdf } from './helpers/stdlib-cdf.js';
 import normalCdf from '@stdlib/stats-base-dists-normal-cdf';
@@ -374,4 +375,22 @@ describe('parameters', () => {
     expect(digamma(1)).toBeCloseTo(-0.5772156649015329, 15);
     expect(logGamma(5)).toBeCloseTo(Math.log(24), 14);
   });
+});
+
+describe('closed-form truths at small, moderate and huge parameters', () => {
+  // Reference: mpmath at 400 digits (the textbook forms cancel about 300 digits at 1e300), test/fixtures/make_extreme_truth_fixture.py (test/fixtures/extreme-truths.json).
+  // Stirling-series and log-of-scale forms must hold 1e-12 relative (absolute below 1) where the textbook
+  // formulas lose every digit, e.g. gamma:shape=1e15 or normal:sigma=1e200.
+  const cases = extremeTruths.cases as { spec: string; truth: string }[];
+  it('has cases (the fixture was read)', () => {
+    expect(cases.length).toBeGreaterThan(100);
+  });
+  for (const c of cases) {
+    it(`${c.spec} matches mpmath`, () => {
+      const expected = Number(c.truth);
+      const actual = parseScenario(c.spec).truth;
+      expect(Number.isFinite(actual), `${c.spec}: truth ${actual}`).toBe(true);
+      expect(relativeError(actual, expected), `${c.spec}: ${actual} vs ${c.truth}`).toBeLessThan(1e-12);
+    });
+  }
 });

@@ -49,3 +49,31 @@ export function normalSurvival(z: number): number {
 export function normalCdf(z: number): number {
   return 0.5 * erfc(-z / Math.SQRT2);
 }
+
+const MIN_NORMAL = 2.2250738585072014e-308;
+
+/** Whether v is finite, non-zero and not subnormal, i.e. carries a full 53-bit significand. */
+export function fullPrecision(v: number): boolean {
+  return Number.isFinite(v) && Math.abs(v) >= MIN_NORMAL;
+}
+
+/**
+ * log(x·y) for x, y > 0: the product's log where the product is an ordinary double (so a formula that always
+ * formed it keeps its value), the sum of logs where the product would overflow or lose digits as a subnormal.
+ */
+export function logProduct(x: number, y: number): number {
+  const v = x * y;
+  return fullPrecision(v) ? Math.log(v) : Math.log(x) + Math.log(y);
+}
+
+/** log(x/y) for x, y > 0, falling back on log x − log y as logProduct does. */
+export function logQuotient(x: number, y: number): number {
+  const v = x / y;
+  return fullPrecision(v) ? Math.log(v) : Math.log(x) - Math.log(y);
+}
+
+/** log(b − a) for a < b, through the half-width where b − a overflows (b/2 − a/2 cannot). */
+export function logWidth(a: number, b: number): number {
+  const width = b - a;
+  return Number.isFinite(width) ? Math.log(width) : Math.log(b / 2 - a / 2) + Math.LN2;
+}
