@@ -4,7 +4,7 @@
 import type { ParamSpec, Rng, Sample, Scenario, ScenarioFamily } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { cholesky, solveLower, type CholeskyFactor } from '../src/math/linalg.js';
-import { digamma, logGamma, logUnitBallVolume } from '../src/math/special.js';
+import { digamma, fullPrecision, logGamma, logUnitBallVolume } from '../src/math/special.js';
 import { formatNumber } from '../src/core/spec.js';
 import { gaussianFromNormals, gaussianRows, normalRepresentation, scenarioId } from './build.js';
 import { studentEntropyLargeNu, studentLogDensityVariance, studentUsesSeries, univariateDensity } from './univariate.js';
@@ -37,6 +37,13 @@ function spreadScales(dim: number, sigma: number, spread: number): number[] {
 export function equicorrelated(owner: string, dim: number, rho: number, scales: number[]): number[][] {
   if (dim > 1 && !(rho > -1 / (dim - 1))) {
     throw new UsageError(`${owner}: rho=${formatNumber(rho)} is not allowed for dim=${dim}; rho must be > ${formatNumber(-1 / (dim - 1))} and < 1`);
+  }
+  // The covariance holds products of two SDs: an SD near 1e200 or 1e-170 would make it infinite or lose its digits.
+  const [smallest, largest] = [Math.min(...scales), Math.max(...scales)];
+  if (!fullPrecision(smallest * smallest) || !fullPrecision(largest * largest)) {
+    throw new UsageError(
+      `${owner}: standard deviations from ${formatNumber(smallest)} to ${formatNumber(largest)} are not allowed: a covariance needs their squares within the double range; keep every SD between 1e-150 and 1e150`,
+    );
   }
   return scales.map((si, i) => scales.map((sj, j) => si * sj * (i === j ? 1 : rho)));
 }

@@ -378,6 +378,15 @@ describe('parameters', () => {
 });
 
 describe('closed-form truths at small, moderate and huge parameters', () => {
+  // Found by a tester: σ = 1e200 overflowed the covariance and was refused as "not positive definite".
+  it('refuses multivariate SDs whose squares leave the double range, naming them', () => {
+    for (const spec of ['gaussian:dim=2,sigma=1e200', 'gaussian:dim=3,sigma=1e-170', 'student-t-mv:dim=2,sigma=1e200']) {
+      expect(() => parseScenario(spec), spec).toThrow(/standard deviations from 1e[-+]\d+ to 1e[-+]\d+ are not allowed: .*between 1e-150 and 1e150/);
+    }
+    // Within the range the truth is the closed form: d/2·log(2πe) + d·log σ for independent coordinates.
+    expect(parseScenario('gaussian:dim=2,sigma=1e100,rho=0').truth).toBeCloseTo(Math.log(2 * Math.PI * Math.E) + 2 * Math.log(1e100), 10);
+  });
+
   // Reference: mpmath at 400 digits (the textbook forms cancel about 300 digits at 1e300), test/fixtures/make_extreme_truth_fixture.py (test/fixtures/extreme-truths.json).
   // Stirling-series and log-of-scale forms must hold 1e-12 relative (absolute below 1) where the textbook
   // formulas lose every digit, e.g. gamma:shape=1e15 or normal:sigma=1e200.
