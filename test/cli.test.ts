@@ -76,6 +76,11 @@ describe('hhat estimate', () => {
         /^hhat: --estimator kozachenko-leonenko:k=0: k=0 is not allowed; k must be an integer ≥ 1$/m,
       ],
       [['bench', '--scenario', 'normal', '--estimator', 'vasicek:mm=3'], /^hhat: --estimator vasicek:mm=3: unknown setting "mm"/m],
+      // Found by a tester: each was accepted, or named the wrong bound or reason.
+      [['bench', '--seed', '9007199254740992'], /--seed 9007199254740992 is not allowed; it must be an integer from 0 to 9007199254740991$/m],
+      [['scenarios', '--family', 'nope'], /^hhat: --family nope is not allowed; use one of arcsine, beta, /m],
+      [['estimate', csv, '--reference', 'uniform:-1e400,1'], /--reference uniform:-1e400,1: write uniform:a,b with finite a < b/],
+      [['bench', '--report', '--svg-dir', csv], /--svg-dir .* is a file, not a folder/],
     ];
     for (const [args, message] of cases) {
       const { code, err } = await run(args);
@@ -83,6 +88,13 @@ describe('hhat estimate', () => {
       expect(err.trim().split('\n')).toHaveLength(1);
       expect(err, args.join(' ')).toMatch(message);
     }
+  });
+
+  it('convert prints the shift d·log|c| itself, also beside a value it cannot change in double precision', async () => {
+    // Found by a tester: 1e20 + log 2 rounds to 1e20, and the shift was printed as their difference, 0.
+    const { code, out } = await run(['convert', '1e20', '--factor', '2']);
+    expect(code).toBe(0);
+    expect(out).toContain(`: 100000000000000000000 + ${Math.LN2.toFixed(10)})`);
   });
 
   it('ties are reported with the repeats found, never as -Infinity', async () => {

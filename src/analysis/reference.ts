@@ -38,8 +38,8 @@ export function parseReference(text: string): Reference {
   }
   if (kind === 'uniform') {
     const [low, high] = args.map(parseNumber);
-    if (args.length !== 2 || low === undefined || high === undefined || !(low < high)) {
-      throw new UsageError(`--reference ${text}: write uniform:a,b with a < b (the box [a, b] in every coordinate)`);
+    if (args.length !== 2 || low === undefined || high === undefined || !(low < high) || !Number.isFinite(low) || !Number.isFinite(high)) {
+      throw new UsageError(`--reference ${text}: write uniform:a,b with finite a < b (the box [a, b] in every coordinate)`);
     }
     return { kind: 'uniform', low, high };
   }

@@ -39,6 +39,7 @@ import {
   isSpecialFile,
   refuseFolderOutput,
   refuseForeignOutput,
+  refuseNonFolder,
   refuseSameFile,
   removeLeftoverTemporaries,
   sameFile,
@@ -513,6 +514,7 @@ function refuseEmptyValues(options: BenchOptions): void {
   if (options.svgDir !== undefined && !options.report) throw new UsageError("--svg-dir writes the report's charts; give --report too");
   if (options.csv) refuseFolderOutput('--csv', options.csv, 'scores.csv');
   if (typeof options.report === 'string') refuseFolderOutput('--report', options.report, 'report.html');
+  if (options.svgDir) refuseNonFolder('--svg-dir', options.svgDir);
 }
 
 /** `hhat bench`: builds the plan, runs it under the --out lock with a checkpoint, then writes and shows the run. */

@@ -37,7 +37,7 @@ export function registerCheckCommand(program: Command, print: (text: string) => 
   program
     .command('check')
     .description(COMMANDS.check)
-    .argument('[module]', 'a JavaScript module of estimators, as for --estimator-module; without it, the built-in estimators')
+    .argument('[module]', 'a JavaScript module of estimators, as `hhat bench --estimator-module` loads it; without it, the built-in estimators')
     .option(
       '--estimator <spec>',
       'ID[:key=value,...]: check only this estimator, with these settings (repeatable; default: every one, default settings)',

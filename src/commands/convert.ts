@@ -34,10 +34,10 @@ export function registerConvertCommand(program: Command, print: (text: string) =
       }
       const scale = options.bits ? Math.LN2 : 1;
       const converted = convertEntropy(value * scale, dim, factor) / scale;
+      // The shift d·log|c| itself, not converted − value: beside a value near 1e20 that difference rounds to 0.
+      const shift = convertEntropy(0, dim, factor) / scale;
       const unit = options.bits ? 'bits' : 'nats';
       const what = options.factor !== undefined ? `data × ${options.factor}` : `${options.from} → ${options.to}`;
-      print(
-        `${formatValue(converted, 10)} ${unit}  (${what}, d = ${dim}: ${value} ${converted >= value ? '+' : '−'} ${formatValue(Math.abs(converted - value), 10)})`,
-      );
+      print(`${formatValue(converted, 10)} ${unit}  (${what}, d = ${dim}: ${value} ${shift >= 0 ? '+' : '−'} ${formatValue(Math.abs(shift), 10)})`);
     });
 }

@@ -4,7 +4,7 @@ import type { Command } from 'commander';
 import type { Base } from '../core/format.js';
 import { readRunFile } from '../analysis/results.js';
 import { writeReport } from '../views/report/report.js';
-import { refuseFolderOutput, refuseForeignOutput, refuseSameFile } from '../core/files.js';
+import { refuseFolderOutput, refuseForeignOutput, refuseNonFolder, refuseSameFile } from '../core/files.js';
 
 interface ReportCommandOptions {
   out?: string;
@@ -31,6 +31,7 @@ export function registerReportCommand(program: Command, print: (text: string) =>
       const base: Base = options.bits ? 'bits' : 'nats';
       const out = options.out ? resolve(options.out) : defaultReportPath(runPath);
       if (options.out) refuseFolderOutput('--out', options.out, 'report.html');
+      if (options.svgDir) refuseNonFolder('--svg-dir', options.svgDir);
       // A report written over its own run file (or over a data file named by mistake) would lose it.
       refuseSameFile(['the run file', runPath], ['--out', out]);
       refuseForeignOutput('--out', out, 'report', 'choose another --out (a report replaces only an HTML page)');

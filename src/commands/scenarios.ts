@@ -111,7 +111,11 @@ Quote specs with brackets or semicolons in the shell.`,
         if (!SUPPORTS.includes(options.support)) throw new UsageError(`--support ${options.support} is not allowed; use one of ${SUPPORTS.join(', ')}`);
         list = list.filter((s) => s.support === options.support);
       }
-      if (options.family !== undefined) list = list.filter((s) => s.family === options.family);
+      if (options.family !== undefined) {
+        const families = [...new Set(catalog().map((s) => s.family))].sort();
+        if (!families.includes(options.family)) throw new UsageError(`--family ${options.family} is not allowed; use one of ${families.join(', ')}`);
+        list = list.filter((s) => s.family === options.family);
+      }
       const records = list.map((s) => scenarioRecord(s, base));
       if (options.json) {
         print(JSON.stringify(records, null, 2));

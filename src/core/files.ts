@@ -44,6 +44,17 @@ export function refuseFolderOutput(flag: string, path: string, exampleName: stri
   if (folder) throw new UsageError(`${flag} ${path} is a folder; give a file's path, e.g. ${flag} ${join(path, exampleName)}`);
 }
 
+/** Refuses a folder option (--svg-dir) that names something other than a folder: a usage mistake, found before any work. */
+export function refuseNonFolder(flag: string, path: string): void {
+  let folder: boolean;
+  try {
+    folder = statSync(path).isDirectory();
+  } catch {
+    return;
+  }
+  if (!folder) throw new UsageError(`${flag} ${path} is a file, not a folder; give a folder's name (it is created if missing)`);
+}
+
 /** Whether two paths name one file (the same path, or links to one), as far as the file system says. */
 export function sameFile(a: string, b: string): boolean {
   if (resolve(a) === resolve(b)) return true;

@@ -39,7 +39,8 @@ export function parsePhiList(text: string): number[] {
 export function parseIntegerOption(flag: string, text: string, min: number, max = Number.MAX_SAFE_INTEGER): number {
   const value = Number(text);
   if (text.trim() === '' || !Number.isInteger(value) || value < min || value > max) {
-    const range = max === Number.MAX_SAFE_INTEGER ? `≥ ${min}` : `from ${min} to ${max}`;
+    // Above MAX_SAFE_INTEGER (2^53 − 1) integers are no longer exact as doubles: that bound is named when it is the one passed.
+    const range = max === Number.MAX_SAFE_INTEGER && !(value > max) ? `≥ ${min}` : `from ${min} to ${max}`;
     throw new UsageError(`${flag} ${text} is not allowed; it must be an integer ${range}`);
   }
   return value;

@@ -209,7 +209,8 @@ export function checkPlanShape(value: unknown, source: string): PlanInput {
 /** Reads a user-named text file; failing that, a usage error "cannot read <what> <path>: <why>". */
 export function readTextFile(path: string, what: string): string {
   try {
-    return readFileSync(path, 'utf8');
+    // Editors on some systems start UTF-8 files with a byte-order mark; JSON.parse would call it an invalid character.
+    return readFileSync(path, 'utf8').replace(/^\uFEFF/, '');
   } catch (error) {
     throw new UsageError(`cannot read ${what} ${path}: ${readFailureReason(error)}`);
   }
