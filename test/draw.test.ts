@@ -4,7 +4,7 @@
  * files as float64 C-order arrays equal to the CSV's numbers; usage mistakes are one line with exit 2.
  */
 import { spawnSync } from 'node:child_process';
-import { mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync } from 'node:fs';
+import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, utimesSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
@@ -338,5 +338,35 @@ describe('usage mistakes: one line, exit 2, nothing written', () => {
     const res = await runCli(['draw', 'normal', '--out', join(dir, 'e.npy')]);
     expect(res.code).toBe(2);
     expect(res.err).toContain("required option '--n <n>' not specified");
+  });
+});
+
+describe('files next to the output', () => {
+  // Found by a tester: an interrupted draw left its 74 MB temporary; --split beside /dev/null made /dev/null-0.
+  it('a temporary an interrupted draw left is removed by the next draw to that file; one being written now is spared', async () => {
+    const out = join(dir, 'again.csv');
+    const stale = `${out}.0123456789abcdef.tmp`;
+    const live = `${out}.fedcba9876543210.tmp`;
+    writeFileSync(stale, 'half a file');
+    writeFileSync(live, 'being written');
+    const minutesAgo = new Date(Date.now() - 5 * 60_000);
+    utimesSync(stale, minutesAgo, minutesAgo);
+    expect((await runCli(['draw', 'normal', '--n', '5', '--out', out])).code).toBe(0);
+    expect(existsSync(stale)).toBe(false);
+    expect(existsSync(live)).toBe(true);
+    expect(readSample(out).sample.n).toBe(5);
+  });
+
+  it.runIf(existsSync('/dev/null'))('refuses a device as --out when the draw writes files named after it', async () => {
+    for (const args of [
+      ['normal', '--replicates', '2', '--split', '--format', 'npy'],
+      ['kl-gaussian:dim=1,shift=0.5', '--format', 'csv'],
+    ]) {
+      const res = await runCli(['draw', ...args, '--n', '5', '--out', '/dev/null']);
+      expect(res.code, args.join(' ')).toBe(2);
+      expect(res.err).toMatch(
+        /^hhat: --out \/dev\/null is a device or pipe, and this draw writes files named after it \(\/dev\/null-[0q]\); give a file's name\n$/,
+      );
+    }
   });
 });

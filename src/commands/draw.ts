@@ -4,7 +4,10 @@ import type { Command } from 'commander';
 import { COMMANDS } from './summaries.js';
 import type { Sample } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
-import { writeFileAtomic } from '../core/files.js';
+import { isSpecialFile, removeLeftoverTemporaries, writeFileAtomic } from '../core/files.js';
+
+/** A temporary untouched this long belongs to no live write. */
+const STALE_TEMPORARY_MS = 60_000;
 import { formatValue } from '../core/format.js';
 import { checkSampleMemory } from '../core/memory.js';
 import { MAX_REPLICATES, MAX_SAMPLE_SIZE, parseIntegerOption } from '../core/options.js';
@@ -233,7 +236,17 @@ function runDraw(spec: string, options: DrawOptions, print: (text: string) => vo
   checkSampleMemory(`--n ${n}`, n, draw.scenario.dim);
   const head = { kind: 'hhat-draw', version: 1, ...drawRecord(draw) };
   const files = planFiles(draw, out, format, replicates, stacked, Boolean(options.split), head);
-  for (const file of files) writeFileAtomic(file.path, file.chunks());
+  if (isSpecialFile(out) && files.some((f) => f.path !== out)) {
+    throw new UsageError(
+      `--out ${out} is a device or pipe, and this draw writes files named after it (${files.find((f) => f.path !== out)!.path}); give a file's name`,
+    );
+  }
+  for (const file of files) {
+    // An interrupted draw leaves its temporary (a write of millions of rows can be stopped part way); the next
+    // draw to the same file removes it, sparing one another process is writing now.
+    removeLeftoverTemporaries(file.path, STALE_TEMPORARY_MS);
+    writeFileAtomic(file.path, file.chunks());
+  }
   const written: WrittenFile[] = files.map(({ path, contents, replicates: r, shape }) => ({ path, contents, replicates: r, shape }));
   if (options.json) print(JSON.stringify({ ...drawRecord(draw), replicates, format, files: written }, null, 2));
   else printSummary(draw, replicates, written, format, print);

@@ -300,13 +300,18 @@ function pauseForKillTest(path: string): void {
   if (ms > 0 && path.endsWith('.json')) Atomics.wait(new Int32Array(new SharedArrayBuffer(4)), 0, 0, ms);
 }
 
-/** Removes temporaries that an earlier crash left beside `path`. */
-export function removeLeftoverTemporaries(path: string): number {
+/**
+ * Removes temporaries that an earlier crash (or an interrupt) left beside `path`. Without a lock on `path`, pass
+ * `idleMs`: only temporaries not written to for that long go, so another process's write in progress is spared.
+ */
+export function removeLeftoverTemporaries(path: string, idleMs = 0): number {
   let removed = 0;
   try {
     for (const name of readdirSync(dirname(path))) {
       if (name.startsWith(`${basename(path)}.`) && TEMPORARY.test(name)) {
-        rmSync(join(dirname(path), name), { force: true });
+        const temporary = join(dirname(path), name);
+        if (idleMs > 0 && Date.now() - statSync(temporary).mtimeMs < idleMs) continue;
+        rmSync(temporary, { force: true });
         removed++;
       }
     }
