@@ -482,6 +482,14 @@ describe('parseNpy on files written by NumPy', () => {
 });
 
 describe('readSample', () => {
+  // Found by a tester: a Latin-1 header ("été") was read as "\uFFFDt\uFFFD" without a word.
+  it('refuses a header that is not valid UTF-8, and reads the same names in UTF-8', () => {
+    const latin = join(tempDir, 'latin.csv');
+    writeFileSync(latin, Buffer.from([0xe9, 0x74, 0xe9, 0x2c, 0x79, 0x0a, 0x31, 0x2c, 0x32, 0x0a]));
+    expect(() => readSample(latin)).toThrow(/latin\.csv line 1: the header name ".t." is not valid UTF-8/);
+    expect(readSample(writeTemp('utf8.csv', 'été,y\n1,2\n')).columnNames).toEqual(['été', 'y']);
+  });
+
   // Found by a tester: a stacked draw was read as one 2-D sample, its replicate index a coordinate.
   it("refuses hhat draw's stacked replicates as one sample, unless the columns are named", () => {
     const path = writeTemp('stacked.csv', 'replicate,x1\n0,0.5\n0,1.5\n1,-0.25\n1,2\n');

@@ -135,6 +135,13 @@ class DelimitedReader {
       this.headerLine = scanner.recordLine;
       this.names = [];
       for (let k = 0; k < scanner.fieldCount; k++) this.names.push(scanner.fieldText(k).trim());
+      // A header saved in Latin-1 (été) decodes to replacement characters: names nobody could type back.
+      const garbled = this.names.find((name) => name.includes('\uFFFD'));
+      if (garbled !== undefined) {
+        throw new UsageError(
+          `${this.source} line ${this.headerLine}: the header name "${garbled}" is not valid UTF-8 (Latin-1 or another older encoding?); save the file as UTF-8`,
+        );
+      }
       kind = this.skipBlanks();
       if (kind === 'end') {
         throw new UsageError(`${this.source} has a header row (line ${this.headerLine}) but no data rows; expected rows of numbers below it`);
