@@ -122,6 +122,22 @@ describe('replacing a built-in', () => {
 });
 
 describe('bad modules: one line naming the file and the problem', () => {
+  // Found by a tester: a module whose top level never ends hung `hhat check` with no output.
+  it('a module whose loading never ends is refused after the load limit, and the process goes on', async () => {
+    const path = join(dir, 'endless.mjs');
+    writeFileSync(path, 'while (true) {}\n');
+    const before = process.env.HHAT_MODULE_LOAD_SECONDS;
+    process.env.HHAT_MODULE_LOAD_SECONDS = '1';
+    try {
+      await expect(loadEstimatorModules([path])).rejects.toThrow(
+        `estimator module ${path} did not finish loading in 1 s: code at its top level runs when it loads, and some of it never ends`,
+      );
+    } finally {
+      if (before === undefined) delete process.env.HHAT_MODULE_LOAD_SECONDS;
+      else process.env.HHAT_MODULE_LOAD_SECONDS = before;
+    }
+  });
+
   const valid = `{ id: 'ok-method', family: 'test', quantity: 'entropy', summary: 's', settings: [], dims: [1, 1], reference: 'r', estimate: () => 0 }`;
   const withField = (field: string) => `export default { ...${valid}, ${field} };`;
   const cases: [string, string, string, RegExp][] = [

@@ -11,6 +11,7 @@
 import { existsSync, statSync } from 'node:fs';
 import { extname, isAbsolute, resolve } from 'node:path';
 import { pathToFileURL } from 'node:url';
+import { isMainThread, Worker } from 'node:worker_threads';
 import type { Estimator } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
 import { checkEstimator, showValue as show } from '../core/spec.js';
@@ -38,6 +39,7 @@ async function importModule(path: string): Promise<Record<string, unknown>> {
   }
   if (!existsSync(path)) throw new UsageError(`estimator module ${path}: no such file`);
   if (!statSync(path).isFile()) throw new UsageError(`estimator module ${path}: is a folder, not a file`);
+  await refuseEndlessLoad(path);
   try {
     return (await import(pathToFileURL(path).href)) as Record<string, unknown>;
   } catch (error) {
@@ -54,6 +56,42 @@ async function importModule(path: string): Promise<Record<string, unknown>> {
       );
     }
     throw new UsageError(`estimator module ${path} could not be loaded: ${message}`);
+  }
+}
+
+/** How long a module may take to load before it is taken for one whose top-level code never ends. */
+export const MODULE_LOAD_SECONDS = 60;
+
+/**
+ * Code at a module's top level runs when it is imported, and a loop there that never ends would hang this
+ * thread with no way to stop it. So the main thread first loads the module on a throwaway worker thread,
+ * which can be stopped, and refuses it when that load does not finish in time. A load that fails there is left
+ * for the real import to report in its own words; workers load only modules the main thread has loaded.
+ */
+async function refuseEndlessLoad(path: string): Promise<void> {
+  if (!isMainThread) return;
+  // The tests' shorter limit.
+  const seconds = Number(process.env.HHAT_MODULE_LOAD_SECONDS) || MODULE_LOAD_SECONDS;
+  const url = pathToFileURL(path).href;
+  const probe = new Worker(
+    `const { parentPort } = require('node:worker_threads'); import(${JSON.stringify(url)}).then(() => parentPort.postMessage('loaded'), () => parentPort.postMessage('failed'));`,
+    { eval: true, stdout: true, stderr: true },
+  );
+  let timer: ReturnType<typeof setTimeout> | undefined;
+  const finished = await Promise.race([
+    new Promise<boolean>((done) => {
+      probe.once('message', () => done(true));
+      probe.once('error', () => done(true));
+      probe.once('exit', () => done(true));
+    }),
+    new Promise<boolean>((done) => (timer = setTimeout(() => done(false), seconds * 1000))),
+  ]);
+  clearTimeout(timer);
+  await probe.terminate();
+  if (!finished) {
+    throw new UsageError(
+      `estimator module ${path} did not finish loading in ${seconds} s: code at its top level runs when it loads, and some of it never ends`,
+    );
   }
 }
 
