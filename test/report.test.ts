@@ -98,12 +98,16 @@ describe('hhat report on a small run', () => {
     expect(html).toContain(String(run.plan.seed));
   });
 
-  it('an --svg-dir that cannot be a folder is one line, exit 1, not an internal error', async () => {
+  it('an --svg-dir that cannot be a folder is one line, not an internal error: exit 2 for a file named, 1 for a folder the system refuses', async () => {
     const inTheWay = join(dir, 'not-a-folder');
     writeFileSync(inTheWay, 'a file');
-    const { code, err } = await cli(['report', runPath, '--out', join(dir, 'blocked.html'), '--svg-dir', inTheWay]);
-    expect(code).toBe(1);
-    expect(err).toBe(`hhat: cannot create the folder ${inTheWay}: a file of that name is in the way\n`);
+    const named = await cli(['report', runPath, '--out', join(dir, 'blocked.html'), '--svg-dir', inTheWay]);
+    expect(named.code).toBe(2);
+    expect(named.err).toBe(`hhat: --svg-dir ${inTheWay} is a file, not a folder; give a folder's name (it is created if missing)\n`);
+    const below = join(inTheWay, 'charts');
+    const refused = await cli(['report', runPath, '--out', join(dir, 'blocked.html'), '--svg-dir', below]);
+    expect(refused.code).toBe(1);
+    expect(refused.err).toMatch(/^hhat: cannot create the folder .*not-a-folder\/charts: a part of that path is a file, not a folder\n$/);
   });
 
   it('--bits converts every entropy axis and the true value (normal truth from @stdlib)', async () => {
