@@ -260,6 +260,29 @@ describe('on the command line', () => {
     expect(bad.err).not.toContain('none of the');
   });
 
+  // Found by a tester: under --quiet a command that could not be started passed unseen (exit 0, stderr empty).
+  it('bench --quiet still says, in one line on stderr, that estimates failed', () => {
+    const r = hhat([
+      'bench',
+      '--scenario',
+      'normal',
+      '--estimator',
+      'gaussian',
+      '--n',
+      '50',
+      '--replicates',
+      '3',
+      '--out',
+      'quiet-fail.json',
+      '--quiet',
+      '--estimator-command',
+      'gone=no-such-program-for-hhat',
+    ]);
+    expect(r.code).toBe(0);
+    expect(r.out).toBe(`${join(dir, 'quiet-fail.json')}\n`);
+    expect(r.err).toBe('hhat: 3 estimates failed in the benchmark cells (gone 3); the run file lists each with its reason (cells[].failures)\n');
+  });
+
   it('check: a command passes the conformance suite like any estimator', () => {
     const r = hhat(['check', '--estimator-command', `kl=python3 ${join(root, 'examples', 'knn_entropy.py')}`]);
     expect(r.err).toBe('');

@@ -494,6 +494,19 @@ function printRunSummary(
   print(`run file: ${out}`);
 }
 
+/**
+ * Under --quiet the tables are not printed, and with them the failures: an estimator that failed (a command that
+ * could not be started, say) would pass unseen. One line on stderr counts them by estimator.
+ */
+function printQuietFailures(run: RunFile, printErr: (text: string) => void): void {
+  const byEstimator = new Map<string, number>();
+  for (const c of run.cells) if (c.role === 'main' && c.scores.failures) byEstimator.set(c.estimator, (byEstimator.get(c.estimator) ?? 0) + c.scores.failures);
+  if (!byEstimator.size) return;
+  const total = [...byEstimator.values()].reduce((a, b) => a + b, 0);
+  const each = [...byEstimator].map(([estimator, count]) => `${estimator} ${count}`).join(', ');
+  printErr(`hhat: ${countOf(total, 'estimate')} failed in the benchmark cells (${each}); the run file lists each with its reason (cells[].failures)`);
+}
+
 /** An empty file name or shard ('' from an unset shell variable) would otherwise fall back to a default unsaid. */
 function refuseEmptyValues(options: BenchOptions): void {
   const given: [string, unknown][] = [
@@ -564,6 +577,7 @@ async function runBench(options: BenchOptions, args: string[], print: (text: str
     writeRunFiles(run, out, checkpoint, options, base);
     await presentRun(run, out, options, base, shard, print);
     printRunSummary(run, outcome, out, shard, options.quiet, print);
+    if (options.quiet) printQuietFailures(run, printErr);
   } finally {
     release();
   }
