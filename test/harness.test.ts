@@ -8,7 +8,7 @@ import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { Ajv2020 } from 'ajv/dist/2020.js';
 import normalRandom from '@stdlib/random-base-normal';
-import { checkPlanShape, planFingerprint, resolvePlan, type Plan } from '../src/harness/plan.js';
+import { checkPlanShape, planFingerprint, readPlanFile, resolvePlan, type Plan } from '../src/harness/plan.js';
 import { runPlan } from '../src/harness/runner.js';
 import { main } from '../src/cli.js';
 import { planInputFromOptions } from '../src/commands/bench.js';
@@ -445,6 +445,24 @@ describe('bad input', () => {
       expect(err.trim()).toMatch(message);
     }
     expect(existsSync(join(dir, 'never.json'))).toBe(false);
+  });
+
+  // Found by a tester: a plan with "scenarios" twice ran the second list only, unsaid; one with a byte-order mark was refused.
+  it('a plan file with a key given twice in one object is refused with its place; a byte-order mark is allowed', async () => {
+    const twice = join(dir, 'twice.json');
+    writeFileSync(twice, '{"scenarios": ["normal"],\n "estimators": ["gaussian"],\n "scenarios": ["gamma"], "sampleSizes": [50], "replicates": 3}');
+    let err = '';
+    expect(await main(['bench', '--plan', twice, '--out', join(dir, 'never.json')], { out: () => {}, err: (t) => (err += t) })).toBe(2);
+    expect(err).toBe(`hhat: ${twice} line 3, column 2: "scenarios" is given twice in one object; keep one (JSON readers keep only the last)`);
+    // The same key in two objects, or an escaped quote in a value, is no duplicate.
+    const fine = join(dir, 'bom.json');
+    writeFileSync(
+      fine,
+      '\uFEFF{"scenarios": ["normal"], "estimators": ["gaussian:norm=\\"x\\""], "sampleSizes": [50], "replicates": 3, "limits": {"estimateSeconds": 5}}',
+    );
+    expect(readPlanFile(fine).estimators).toEqual(['gaussian:norm="x"']);
+    writeFileSync(fine, '\uFEFF{"scenarios": ["normal"], "estimators": ["gaussian"], "sampleSizes": [50], "replicates": 3, "limits": {"estimateSeconds": 5}}');
+    expect(readPlanFile(fine).scenarios).toEqual(['normal']);
   });
 
   it('shards: i/N, auto from Slurm, Kubernetes indexed Jobs and CI variables; bad values are errors', () => {

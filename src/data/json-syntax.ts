@@ -144,3 +144,43 @@ export function locateJsonError(text: string): JsonSyntaxProblem | null {
     }
   }
 }
+
+/**
+ * The first key that appears twice in one object of valid JSON text, with where its second copy starts. JSON.parse
+ * keeps the last copy silently; in a plan file that drops a whole list of estimators or scenarios unsaid.
+ */
+export function findDuplicateKey(text: string): { key: string; line: number; column: number } | null {
+  // One entry per open container: the keys seen so far for an object, null for an array.
+  const open: (Set<string> | null)[] = [];
+  let expectKey = false;
+  let line = 1;
+  let lineStart = 0;
+  for (let i = 0; i < text.length; i++) {
+    const c = text.charCodeAt(i);
+    if (c === 10) {
+      line++;
+      lineStart = i + 1;
+    } else if (c === 123 /* { */) {
+      open.push(new Set());
+      expectKey = true;
+    } else if (c === 91 /* [ */) {
+      open.push(null);
+      expectKey = false;
+    } else if (c === 125 /* } */ || c === 93 /* ] */) {
+      open.pop();
+      expectKey = false;
+    } else if (c === 44 /* , */) {
+      expectKey = open.at(-1) instanceof Set;
+    } else if (c === 34 /* " */) {
+      const start = i;
+      for (i++; text.charCodeAt(i) !== 34; i++) if (text.charCodeAt(i) === 92) i++;
+      if (!expectKey) continue;
+      const keys = open.at(-1) as Set<string>;
+      const key = JSON.parse(text.slice(start, i + 1)) as string;
+      if (keys.has(key)) return { key, line, column: start - lineStart + 1 };
+      keys.add(key);
+      expectKey = false;
+    }
+  }
+  return null;
+}

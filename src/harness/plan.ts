@@ -9,7 +9,7 @@ import type { ErrorObject, ValidateFunction } from 'ajv/dist/2020.js';
 import { loadAjv } from '../core/schema-validator.js';
 import type { Quantity, Scenario } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
-import { locateJsonError } from '../data/json-syntax.js';
+import { findDuplicateKey, locateJsonError } from '../data/json-syntax.js';
 import { readFailureReason } from '../core/files.js';
 import { DEFAULT_SEED } from '../core/rng.js';
 import { formatNumber } from '../core/spec.js';
@@ -226,6 +226,12 @@ export function readPlanFile(path: string): PlanInput {
     const problem = locateJsonError(text);
     if (problem) throw new UsageError(`${path} line ${problem.line}, column ${problem.column}: invalid JSON: ${problem.problem}`);
     throw new UsageError(`${path} is not valid JSON: ${(error as Error).message.replace(/\s+/g, ' ')}`);
+  }
+  const duplicate = findDuplicateKey(text);
+  if (duplicate) {
+    throw new UsageError(
+      `${path} line ${duplicate.line}, column ${duplicate.column}: "${duplicate.key}" is given twice in one object; keep one (JSON readers keep only the last)`,
+    );
   }
   return checkPlanShape(value, path);
 }
