@@ -183,6 +183,27 @@ describe('item 4: a divergence names both files', () => {
   });
 });
 
+describe("a divergence matches Q's columns to P's by name", () => {
+  // Found by a tester: P (temp, pressure) against Q (pressure, temp) compared temperatures with pressures, exit 0.
+  it('reorders Q when both files name the same columns in another order, and refuses names that differ', async () => {
+    const q = twoColumns(300, 0.5);
+    const swapped = join(dir, 'q-swapped.csv');
+    writeFileSync(swapped, `b,a\n${q.rows.map(([a, b]) => `${b},${a}`).join('\n')}\n`);
+    const value = async (qFile: string) =>
+      (
+        JSON.parse((await run(['estimate', pCsv, '--against', qFile, '--estimator', 'gaussian-divergence', '--json'])).out) as {
+          estimates: { value: number }[];
+        }
+      ).estimates[0].value;
+    expect(await value(swapped)).toBe(await value(qCsv));
+    const renamed = join(dir, 'q-renamed.csv');
+    writeFileSync(renamed, q.csv.replace(/^a,b/, 'x,y'));
+    const refused = await run(['estimate', pCsv, '--against', renamed]);
+    expect(refused.code).toBe(2);
+    expect(refused.err).toMatch(/\(P\) has columns a, b and .*q-renamed\.csv \(Q\) has x, y; a divergence compares the same coordinates/);
+  });
+});
+
 describe('item 5: messages say what to do', () => {
   const cases: [string, string[], number, string][] = [
     [

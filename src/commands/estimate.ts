@@ -510,10 +510,28 @@ function readEstimateSample(
       throw new UsageError(
         `${sampleName(options.against)} (Q) has ${countOf(q.sample.dim, 'column')} and ${sampleName(file)} (P) has ${sample.dim}; a divergence compares samples of the same dimension`,
       );
-    sample = { ...sample, q: q.sample };
+    sample = { ...sample, q: matchColumns(loaded, q, file, options.against) };
     quantity = 'divergence';
   }
   return { loaded, sample, quantity };
+}
+
+/**
+ * Q's sample with its columns in P's order. Where both files name their columns, the names decide, not the
+ * positions: P (temp, pressure) against Q (pressure, temp) would otherwise compare temperatures with pressures.
+ */
+function matchColumns(p: LoadedSample, q: LoadedSample, pFile: string, qFile: string): Sample {
+  if (!p.namedColumns || !q.namedColumns || p.columnNames.every((name, j) => q.columnNames[j] === name)) return q.sample;
+  const order = p.columnNames.map((name) => q.columnNames.indexOf(name));
+  if (order.some((j) => j < 0) || new Set(q.columnNames).size !== q.columnNames.length) {
+    throw new UsageError(
+      `${sampleName(pFile)} (P) has columns ${p.columnNames.join(', ')} and ${sampleName(qFile)} (Q) has ${q.columnNames.join(', ')}; a divergence compares the same coordinates, so give both files the same column names (or choose them with --columns)`,
+    );
+  }
+  const { n, dim, data } = q.sample;
+  const reordered = new Float64Array(n * dim);
+  for (let i = 0; i < n; i++) for (let j = 0; j < dim; j++) reordered[i * dim + j] = data[i * dim + order[j]];
+  return { ...q.sample, data: reordered };
 }
 
 interface EstimateOutput {
