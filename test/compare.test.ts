@@ -173,6 +173,14 @@ describe('comparing runs', () => {
     expect(new Set(parsed.cells.map((c) => c.status))).toEqual(new Set(['unchanged']));
   });
 
+  // Found by a tester: an MI run against a divergence run passed `--fail-on worse --allow-missing` with "0 worse".
+  it('runs with no cell in common are refused, not passed', async () => {
+    const other = save('no-common.json', { ...base, cells: base.cells.map((c) => ({ ...c, scenario: `${c.scenario}-elsewhere` })) });
+    const result = await run(['compare', basePath, other, '--fail-on', 'worse', '--allow-missing']);
+    expect(result.code).toBe(2);
+    expect(result.err).toMatch(/have no cell in common \(same scenario, estimator, n and role\)/);
+  });
+
   it('a module adding 0.05 nats to kozachenko-leonenko: exactly its cells are worse, and every output says so', async () => {
     const comparison = compareRuns(base, shifted);
     const worse = comparison.cells.filter((c) => c.status === 'worse');

@@ -634,6 +634,13 @@ export function compareRuns(base: ComparableRun, next: ComparableRun, options: C
     if (other) pairs.push([cell, other]);
     else removed.push(ref(cell));
   }
+  // Nothing compared is no evidence of anything: a run of one quantity against another (MI against divergence)
+  // would otherwise pass `--fail-on worse --allow-missing` with "0 worse".
+  if (!pairs.length) {
+    throw new UsageError(
+      `${labels.base} and ${labels.next} have no cell in common (same scenario, estimator, n and role); compare runs of the same plan, or of plans that share cells`,
+    );
+  }
   const compare = ([cell, other]: [ComparedCell, ComparedCell], holmDivisor?: number) =>
     compareCell(cell, other, truthBase.get(cell.scenario)!, truthNext.get(other.scenario)!, pairing.paired, tolerance, level, holmDivisor);
   // First each cell alone, for its p; then again at its place in Holm's step-down over the tested cells.
