@@ -490,6 +490,14 @@ describe('readSample', () => {
     expect(readSample(writeTemp('utf8.csv', 'été,y\n1,2\n')).columnNames).toEqual(['été', 'y']);
   });
 
+  // Found by a tester: hhat's own draw JSON was rejected key by key ("kind" holds a string).
+  it("names hhat's own JSON records (a draw, a run) as not samples", () => {
+    expect(() => readSample(writeTemp('draw.json', '{"kind": "hhat-draw", "version": 1, "samples": []}'))).toThrow(
+      /is a record written by hhat draw; .*--out FILE\.csv/,
+    );
+    expect(() => readSample(writeTemp('run.json', '{"schemaVersion": 2, "kind": "hhat-run"}'))).toThrow(/is an hhat run file, not a sample/);
+  });
+
   // Found by a tester: a stacked draw was read as one 2-D sample, its replicate index a coordinate.
   it("refuses hhat draw's stacked replicates as one sample, unless the columns are named", () => {
     const path = writeTemp('stacked.csv', 'replicate,x1\n0,0.5\n0,1.5\n1,-0.25\n1,2\n');

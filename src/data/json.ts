@@ -38,7 +38,16 @@ export function parseJson(input: string | Uint8Array, options: ParseOptions = {}
     if (isObject(first)) return reader.records(root);
     throw new UsageError(`${source} row 1 (index [0]): ${describeJsonValue(first)}; expected ${shapes}`);
   }
-  if (isObject(root)) return reader.columnsByName(root);
+  if (isObject(root)) {
+    // hhat's own records are not samples: say which file to give rather than reject their keys one by one.
+    if (root.kind === 'hhat-draw') {
+      throw new UsageError(
+        `${source} is a record written by hhat draw; its samples are read from the CSV or .npy form: draw again with --out FILE.csv (or .npy)`,
+      );
+    }
+    if (root.kind === 'hhat-run') throw new UsageError(`${source} is an hhat run file, not a sample; give a data file (CSV/TSV/TXT, JSON or .npy)`);
+    return reader.columnsByName(root);
+  }
   throw new UsageError(`${source} holds ${kindOf(root)} at the top level; expected ${shapes}`);
 }
 
