@@ -1,4 +1,14 @@
-import type { Command } from 'commander';
+import { Option, type Command } from 'commander';
+
+/** estimate's options for the quantities advise does not cover: option key, flag, quantity. */
+const OTHER_QUANTITY_OPTIONS = [
+  ['xColumns', '--x-columns', 'mutual information'],
+  ['yColumns', '--y-columns', 'mutual information'],
+  ['zColumns', '--z-columns', 'conditional mutual information'],
+  ['sourceColumn', '--source-column', 'transfer entropy'],
+  ['targetColumn', '--target-column', 'transfer entropy'],
+  ['against', '--against', 'a divergence'],
+] as const;
 import type { Support, Tails } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
 import { readSample, STDIN_PATH } from '../data/index.js';
@@ -81,6 +91,14 @@ export function registerAdviseCommand(program: Command, print: (text: string) =>
       collect,
     )
     .option('--json', 'print the advice as JSON (values in nats)')
+    // estimate's options for the other quantities, accepted only to say that advise covers entropy alone
+    // (commander would suggest --columns, which gives advice on a different quantity, the joint entropy).
+    .addOption(new Option('--x-columns <list>').hideHelp())
+    .addOption(new Option('--y-columns <list>').hideHelp())
+    .addOption(new Option('--z-columns <list>').hideHelp())
+    .addOption(new Option('--source-column <c>').hideHelp())
+    .addOption(new Option('--target-column <c>').hideHelp())
+    .addOption(new Option('--against <q-file>').hideHelp())
     .addHelpText(
       'after',
       `
@@ -97,6 +115,12 @@ Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICAT
   anything runs, with what it would need.`,
     )
     .action(async (file: string | undefined, options: AdviseOptions) => {
+      const other = OTHER_QUANTITY_OPTIONS.find(([key]) => (options as Record<string, unknown>)[key] !== undefined);
+      if (other) {
+        throw new UsageError(
+          `${other[1]}: advise covers differential entropy only; for ${other[2]}, compare estimators with hhat bench on a scenario like your data (hhat scenarios lists them) and estimate with hhat estimate`,
+        );
+      }
       const budgetSeconds = parseBudget(options.budget);
       const seed = options.seed === undefined ? undefined : parseIntegerOption('--seed', options.seed, 0);
       const workers = options.workers === undefined ? undefined : parseIntegerOption('--workers', options.workers, 1, 256);
