@@ -23,6 +23,7 @@ import type {
 } from '../src/core/contracts.js';
 import { EstimateError, UsageError } from '../src/core/errors.js';
 import { didYouMean } from '../src/core/suggest.js';
+import { ordinal } from '../src/core/format.js';
 import {
   checkEstimator,
   DEQUANTIZE_FAMILIES,
@@ -179,7 +180,7 @@ export function configureEstimator(id: string, given: Record<string, SettingValu
   if (thin !== 1 && estimator.quantity === 'transfer-entropy') {
     // Every t-th row of a series is another process, whose transfer entropy (lag t) is not the scenario's truth.
     throw new UsageError(
-      `${estimator.id}: ${THIN_SETTING}=${thin} is not allowed for transfer entropy: every ${thin}-th row of a series is another process with another transfer entropy; only ${THIN_SETTING}=1`,
+      `${estimator.id}: ${THIN_SETTING}=${thin} is not allowed for transfer entropy: every ${ordinal(thin)} row of a series is another process with another transfer entropy; only ${THIN_SETTING}=1`,
     );
   }
   const dequantize = parseDequantize(estimator.id, estimator.family, dequantizeGiven);

@@ -227,7 +227,9 @@ describe('te-ksg and te-gaussian', () => {
   });
 
   it('thin=t is refused for transfer entropy (every t-th row is another process)', () => {
-    expect(() => configureEstimator('te-ksg', { thin: 2 })).toThrow(/thin=2 is not allowed for transfer entropy/);
+    expect(() => configureEstimator('te-ksg', { thin: 2 })).toThrow(/thin=2 is not allowed for transfer entropy: every 2nd row of a series/);
+    expect(() => configureEstimator('te-ksg', { thin: 11 })).toThrow(/every 11th row/);
+    expect(() => configureEstimator('te-ksg', { thin: 23 })).toThrow(/every 23rd row/);
     expect(configureEstimator('te-ksg', { thin: 1 }).thin).toBe(1);
   });
 });

@@ -25,7 +25,7 @@ export function lawFor(quantity: Quantity, dim: number): string {
       // Correlated coordinates for d > 1, so an estimator that assumes independent coordinates shows it.
       return dim === 1 ? 'normal:mu=0,sigma=1' : `gaussian:dim=${dim},rho=0.5`;
     // The dependent quantities' laws hold about 0.4–0.9 nats per coordinate pair (or triple, or dimension), so
-    // an estimate reported in bits (0.69 times the nats) misses the known value by 0.12–0.27 nats, beyond its
+    // an estimate reported in bits (1.443 times the nats) misses the known value by 0.17–0.39 nats, beyond its
     // tolerance plus the largest error a built-in makes there (src/analysis/conformance.ts).
     case 'mutual-information': {
       const dimX = Math.ceil(dim / 2);

@@ -94,3 +94,10 @@ export function formatP(p: number): string {
   if (p === 0) return '0';
   return p >= 0.001 ? p.toFixed(3) : p.toExponential(1);
 }
+
+/** 1st, 2nd, 3rd, 4th, …, 11th, 12th, 13th, 21st, … */
+export function ordinal(n: number): string {
+  const tens = n % 100;
+  const suffix = tens >= 11 && tens <= 13 ? 'th' : (['th', 'st', 'nd', 'rd'][n % 10] ?? 'th');
+  return `${n}${suffix}`;
+}

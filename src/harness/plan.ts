@@ -282,7 +282,7 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
   ];
   if (mismatched.length)
     throw new UsageError(
-      `${source}: ${mismatched[0]} is not a ${quantity} ${scenarios.some((s) => s.id === mismatched[0]) ? 'scenario' : 'estimator'}; the plan's quantity is ${quantity}`,
+      `${source}: ${mismatched[0]} is not ${quantity === 'entropy' ? 'an' : 'a'} ${quantity} ${scenarios.some((s) => s.id === mismatched[0]) ? 'scenario' : 'estimator'}; the plan's quantity is ${quantity}`,
     );
   const sampleSizes = [...new Set(input.sampleSizes ?? DEFAULT_SAMPLE_SIZES)].sort((a, b) => a - b);
   let robustness: RobustnessPlan | null = null;
