@@ -336,6 +336,18 @@ describe('advise FILE on held-out scenarios', () => {
 });
 
 describe('advise FILE on data a Gaussian mixture cannot imitate', () => {
+  // Found by a tester: a "99.9%" interval was read off 20 resamples.
+  it('says when the resamples are too few for the interval asked for (5 beyond each end, common practice)', async () => {
+    const z = normals('advise test: resamples for the level', 200);
+    const sample = { n: 200, dim: 1, data: Float64Array.from(z) };
+    const rough = await adviseFile(sample, { replicates: 10, resamples: 20, level: 0.999 });
+    expect(rough.warnings).toContain(
+      '--resamples gave 20 bootstrap resamples, fewer than the 10000 that put 5 beyond each end of a 99.9% interval: its ends are rough; give --resamples 10000 or more, or ask for a lower --interval.',
+    );
+    const enough = await adviseFile(sample, { replicates: 10, resamples: 20, level: 0.5 });
+    expect(enough.warnings.some((w) => w.includes('bootstrap resamples, fewer than'))).toBe(false);
+  });
+
   // Found by a tester: at 1e-170 a column was called constant, at 1e200 the look-alike's mean was NaN.
   it('refuses a column beyond the scales a look-alike can be written in, with its SD, and calls only an equal-valued column constant', async () => {
     const z = normals('advise test: extreme scales', 200);

@@ -146,15 +146,17 @@ Ranges: --n from 10 to ${MAX_SAMPLE_SIZE}, --replicates from 2 to ${MAX_REPLICAT
         } finally {
           status.clear();
         }
+        const level = parseLevel(options.interval);
+        const resamples = options.resamples === undefined ? undefined : parseIntegerOption('--resamples', options.resamples, 20, 1_000_000);
         const advice = await adviseFile(loaded.sample, {
           // Reading a large file takes seconds of the budget too.
           elapsedBeforeSeconds: (performance.now() - readStarted) / 1000,
           budgetSeconds,
-          level: parseLevel(options.interval),
+          level,
           seed,
           workers,
           replicates,
-          resamples: options.resamples === undefined ? undefined : parseIntegerOption('--resamples', options.resamples, 20, 1_000_000),
+          resamples,
           columnNames: loaded.columnNames,
           commands,
           onStage: stage,

@@ -447,6 +447,18 @@ function allRowsNote(allRows: AllRowsEstimate, chosen: ConfiguredEstimator, file
   return `${allRows.label} on all ${fileSample.n} rows would take about ${describeSeconds(cost)} by its cost model; within ${ALL_ROWS_SHARE * 100}% of the budget it ran on a seeded uniform subsample of ${allRows.rows} rows. Raise --budget for more.`;
 }
 
+/**
+ * Resamples a percentile interval at `level` needs for at least 5 of them beyond each end (common practice for
+ * percentile intervals, which read their ends off the order statistics): 200 at 95%, 1000 at 99%, 10 000 at 99.9%.
+ */
+export function resamplesForLevel(level: number): number {
+  return Math.ceil(10 / (1 - level) - 1e-9);
+}
+
+function formatLevel(level: number): string {
+  return `${Number((level * 100).toPrecision(6))}%`;
+}
+
 /** The bootstrap interval within the rest of the budget; null, with a note, when even its minimum resamples would overrun it. */
 function bootstrapInterval(
   ctx: AdviceContext,
@@ -482,6 +494,14 @@ function bootstrapInterval(
   ctx.lap('bootstrap');
   if (interval.failures > 0.05 * (interval.resamples + interval.failures)) {
     warnings.push(`${interval.failures} of ${interval.resamples + interval.failures} bootstrap resamples failed; the interval rests on the rest.`);
+  }
+  const needed = resamplesForLevel(level);
+  if (interval.resamples < needed) {
+    const cause = options.resamples === undefined ? 'the budget allowed' : '--resamples gave';
+    const remedy = options.resamples === undefined ? 'raise --budget' : `give --resamples ${needed} or more`;
+    warnings.push(
+      `${cause} ${interval.resamples} bootstrap resamples, fewer than the ${needed} that put 5 beyond each end of a ${formatLevel(level)} interval: its ends are rough; ${remedy}, or ask for a lower --interval.`,
+    );
   }
   return interval;
 }
