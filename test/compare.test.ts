@@ -173,6 +173,43 @@ describe('comparing runs', () => {
     expect(new Set(parsed.cells.map((c) => c.status))).toEqual(new Set(['unchanged']));
   });
 
+  // Found by a tester: a cell whose replicates all failed on one side read "0.07697 → −∞", "ΔRMSE -0.0770 ± 0",
+  // and one failed on both sides "every estimate is bit-identical" although the draws differed.
+  it('cells with no estimates show "–", not −∞ or ± 0, and two all-failed cells are not called bit-identical', async () => {
+    const bench = (seed: string, name: string) =>
+      run([
+        'bench',
+        '--quantity',
+        'divergence',
+        '--scenario',
+        'kl-gaussian:dim=1,shift=1,sigma=1',
+        '--estimator',
+        'histogram-divergence:bins=freedman-diaconis',
+        '--estimator',
+        'histogram-divergence:bins=sturges',
+        '--n',
+        '300,1000',
+        '--replicates',
+        '6',
+        '--seed',
+        seed,
+        '--out',
+        join(dir, name),
+        '--quiet',
+      ]);
+    await bench('20261201', 'fail-a.json');
+    await bench('9', 'fail-b.json');
+    const text = await run(['compare', join(dir, 'fail-a.json'), join(dir, 'fail-b.json')]);
+    expect(text.code).toBe(0);
+    expect(text.out).not.toMatch(/−∞|± 0 /);
+    const json = JSON.parse((await run(['compare', join(dir, 'fail-a.json'), join(dir, 'fail-b.json'), '--json'])).out) as Comparison;
+    const allFailedNext = json.cells.find((c) => c.rmse.base.value !== null && c.rmse.next.value === null)!;
+    expect(allFailedNext.rmse.change).toBeNull();
+    const bothFailed = json.cells.filter((c) => c.rmse.base.value === null && c.rmse.next.value === null);
+    expect(bothFailed.length).toBeGreaterThan(0);
+    for (const c of bothFailed) expect(c.reasons[0]).toBe('no estimates in either run: every replicate failed in both');
+  });
+
   // Found by a tester: an MI run against a divergence run passed `--fail-on worse --allow-missing` with "0 worse".
   it('runs with no cell in common are refused, not passed', async () => {
     const other = save('no-common.json', { ...base, cells: base.cells.map((c) => ({ ...c, scenario: `${c.scenario}-elsewhere` })) });

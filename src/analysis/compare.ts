@@ -233,8 +233,13 @@ function decidePairing(base: ComparableRun, next: ComparableRun, pairing: Compar
   };
 }
 
+/** A run file holds null where a score had no replicates to come from (all failed; an SE from one value). */
+const known = (x: number | null): x is number => typeof x === 'number' && Number.isFinite(x);
+
 function unpairedChange(base: ValueWithSe, next: ValueWithSe): ScoreChange {
-  return { base, next, change: next.value - base.value, changeSe: Math.hypot(base.se, next.se), paired: false };
+  const change = known(next.value) && known(base.value) ? next.value - base.value : NaN;
+  const changeSe = known(base.se) && known(next.se) ? Math.hypot(base.se, next.se) : NaN;
+  return { base, next, change, changeSe, paired: false };
 }
 
 function meanAndVariance(values: number[]): { mean: number; variance: number } {
@@ -498,7 +503,9 @@ function withinNoiseReasons(e: CellEvidence, v: CellVerdicts, reasons: string[])
 /** Bit-identical, else wild, else worse or improved by any test (worse wins), else within noise; tested: in Holm's step-down. */
 function cellStatus(e: CellEvidence, wild: WildEstimate[], v: CellVerdicts, reasons: string[]): { status: CellStatus; tested: boolean } {
   if (bitIdentical(e.base.estimates, e.next.estimates)) {
-    reasons.unshift('every estimate is bit-identical');
+    // Two runs whose every replicate failed hold the same nulls, but on other draws nothing is known to match.
+    const none = e.base.estimates.every((x) => x === null);
+    reasons.unshift(none ? 'no estimates in either run: every replicate failed in both' : 'every estimate is bit-identical');
     return { status: 'unchanged', tested: false };
   }
   if (wild.length) {

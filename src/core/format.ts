@@ -8,8 +8,9 @@ export function toBase(nats: number, base: Base): number {
 }
 
 /** Fixed significant digits without exponent noise for everyday magnitudes. */
-export function formatValue(x: number | undefined, digits = 6): string {
-  if (x === undefined || Number.isNaN(x)) return '–';
+export function formatValue(x: number | null | undefined, digits = 6): string {
+  // null: a score no replicate could give (a run file writes NaN so), never −∞.
+  if (x === undefined || x === null || Number.isNaN(x)) return '–';
   if (!Number.isFinite(x)) return x > 0 ? '∞' : '−∞';
   if (x === 0) return '0';
   const magnitude = Math.abs(x);

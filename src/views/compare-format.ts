@@ -60,6 +60,9 @@ function toSePrecision(value: number, se: number): string {
 }
 
 function plusMinus(value: number, se: number): string {
+  // A change no estimate measures (a side with every replicate failed) is no number, and an SE from one value none.
+  if (!Number.isFinite(value)) return '–';
+  if (!Number.isFinite(se)) return `${formatValue(value, 4)} ± –`;
   return `${toSePrecision(value, se)} ± ${formatValue(se, 2)}`;
 }
 
