@@ -185,6 +185,18 @@ function digammaTable(size: number): (m: number) => number {
  * Radius counts come from kd-trees on X and on Y (exact: src/math/knn.ts). Points whose k-th joint neighbour is
  * at distance 0 (repeated rows) are a 'ties' error.
  */
+/**
+ * A variable whose every row is the same point carries no information, but the k-NN counts do not see that: with
+ * Y constant every count in Y is n − 1 and KSG 2 returns −1/k. Refused as the other estimators refuse such ties.
+ */
+function refuseConstantBlock(data: Float64Array, n: number, dim: number, from: number, to: number, name: string, id: string): void {
+  for (let i = 1; i < n; i++) for (let j = from; j < to; j++) if (data[i * dim + j] !== data[j]) return;
+  throw new EstimateError(
+    'ties',
+    `${id}: ${name} is constant (all ${n} rows hold the same ${to - from === 1 ? 'value' : 'point'}), so its mutual information with anything is 0 and the neighbour counts cannot estimate it; drop that variable`,
+  );
+}
+
 export function ksgMutualInformation(data: Float64Array, n: number, xDim: number, yDim: number, k: number, variant: 1 | 2, id = `ksg${variant}`): number {
   const dim = xDim + yDim;
   if (n <= k) throw new EstimateError('too-few-points', `${id} needs n > k; got n = ${n} with k = ${k}`);
@@ -209,6 +221,8 @@ export function ksgMutualInformation(data: Float64Array, n: number, xDim: number
         `add dequantize=auto (jitter within the recording step), use copula=rank (ties broken by row order), or k ≥ ${mostCopies + 1} if the repeats are genuine`,
     );
   }
+  refuseConstantBlock(data, n, dim, 0, xDim, 'X', id);
+  refuseConstantBlock(data, n, dim, xDim, dim, 'Y', id);
   const xData = columns(data, n, dim, 0, xDim);
   const yData = columns(data, n, dim, xDim, dim);
   const radiusX = new Float64Array(n);

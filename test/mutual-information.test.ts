@@ -134,6 +134,27 @@ const fixtureSamples = fixture.mi_samples.map((c) => ({
 }));
 
 describe('ksg1 and ksg2', () => {
+  // Found by a tester: with Y constant, ksg2 returned −1/k (−0.333 at k = 3) and bench ranked it second.
+  it('refuse a constant X or Y as ties, naming it', () => {
+    const n = 200;
+    const data = new Float64Array(2 * n);
+    const rng = rngFromSeed('constant y');
+    for (let i = 0; i < n; i++) {
+      data[2 * i] = rng();
+      data[2 * i + 1] = 5;
+    }
+    for (const id of ['ksg1', 'ksg2']) {
+      let error: unknown;
+      try {
+        estimate(id, { n, dim: 2, xDim: 1, data }, {});
+      } catch (e) {
+        error = e;
+      }
+      expect(error, id).toBeInstanceOf(EstimateError);
+      expect((error as EstimateError).message).toMatch(new RegExp(`^${id}: Y is constant \\(all 200 rows hold the same value\\)`));
+    }
+  });
+
   it('agree with an O(n²) brute force (max-norm distances, @stdlib digamma) to 1e-12 relative, d = 1+1 and 2+3', () => {
     const cases = [dependentSample('ksg-brute-1+1', 400, 1, 1), dependentSample('ksg-brute-2+3', 300, 2, 3)];
     for (const sample of cases) {
