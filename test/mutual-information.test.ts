@@ -717,7 +717,7 @@ describe('hhat estimate notes a negative estimate of a quantity that cannot be n
   const file = join(mkdtempSync(join(tmpdir(), 'hhat-negative-mi-')), 'probes.csv');
   writeFileSync(file, ['north,south', ...Array.from({ length: 300 }, () => `${draw()},${draw()}`)].join('\n'));
 
-  it('names exactly the estimators whose value (from --json) is below 0, and reads them as about 0', async () => {
+  it('names exactly the estimators whose value (from --json) is below 0, and says how to read them', async () => {
     const json = await run(['estimate', file, '--x-columns', 'north', '--y-columns', 'south', '--json']);
     expect(json.code).toBe(0);
     const values = (JSON.parse(json.out) as { estimates: { estimator: string; value: number }[] }).estimates;
@@ -728,6 +728,7 @@ describe('hhat estimate notes a negative estimate of a quantity that cannot be n
     const note = out.split('\n').find((l) => l.startsWith('note: mutual information is never negative'))!;
     expect(note).toBeDefined();
     for (const e of values) expect(note.includes(`${e.estimator.split(':')[0]} -`)).toBe(e.value < 0);
-    expect(note).toMatch(/read (it|them) as "about 0"/);
+    // Both readings: within the estimator's spread "about 0", beyond it a failure (a tester's −1.7 on 25 rows of 30 columns).
+    expect(note).toMatch(/read a value within its spread as "about 0", and one beyond it as the estimator failing on these data/);
   });
 });

@@ -673,8 +673,9 @@ function printEstimateTable(
  */
 export function negativeNote(quantity: Quantity, negative: Pick<EstimateRecord, 'estimator' | 'value' | 'direction'>[]): string {
   const what = quantity === 'divergence' ? 'a divergence' : quantity === 'transfer-entropy' ? 'transfer entropy' : `${quantity.replace(/-/g, ' ')}`;
-  const list = negative.map((r) => `${r.estimator}${r.direction ? ` ${r.direction}` : ''} ${formatValue(r.value!, 2)}`).join(', ');
-  return `note: ${what} is never negative; ${list} ${negative.length > 1 ? 'are' : 'is'} below 0 by the estimator's own error (bias and noise where the true value is near 0), so read ${negative.length > 1 ? 'them' : 'it'} as "about 0"; hhat bench --quantity ${quantity} shows each estimator's spread where the truth is small`;
+  const list = negative.map((r) => `${r.estimator}${r.direction ? ` ${r.direction}` : ''} ${formatValue(r.value, 2)}`).join(', ');
+  // Whether a value is "small" is the estimator's spread at this n, which only a benchmark measures: both readings are given.
+  return `note: ${what} is never negative; ${list} ${negative.length > 1 ? 'are' : 'is'} below 0 by the estimator's bias and noise: read a value within its spread as "about 0", and one beyond it as the estimator failing on these data (too few rows for the columns, say); hhat bench --quantity ${quantity} shows each estimator's spread where the truth is small`;
 }
 
 /** The recording step of each column and the estimators for recorded data, each saying how it treats the step. */

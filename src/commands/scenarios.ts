@@ -149,7 +149,7 @@ Quote specs with brackets or semicolons in the shell.`,
         if (!r.recorded) continue;
         if (r.recorded.latticeEntropy !== null)
           print(
-            `${r.id}: the recorded values' own Shannon entropy is ${formatValue(r.recorded.discreteEntropy!, 7)} ${base}; plus log Δ, what the lattice estimator estimates: ${formatValue(r.recorded.latticeEntropy, 7)} ${base}`,
+            `${r.id}: the recorded values' own Shannon entropy is ${formatValue(r.recorded.discreteEntropy, 7)} ${base}; plus log Δ, what the lattice estimator estimates: ${formatValue(r.recorded.latticeEntropy, 7)} ${base}`,
           );
         else print(`${r.id}: the recorded values' own Shannon entropy is ${r.recorded.source}`);
       }
