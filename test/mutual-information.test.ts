@@ -717,6 +717,14 @@ describe('hhat estimate notes a negative estimate of a quantity that cannot be n
   const file = join(mkdtempSync(join(tmpdir(), 'hhat-negative-mi-')), 'probes.csv');
   writeFileSync(file, ['north,south', ...Array.from({ length: 300 }, () => `${draw()},${draw()}`)].join('\n'));
 
+  // Found by a tester: ksg1:thin=2 and ksg1 printed the same "settings used".
+  it('shows thin=t among the settings used, in the table and in --json', async () => {
+    const args = ['estimate', file, '--x-columns', 'north', '--y-columns', 'south', '--estimator', 'ksg1:thin=2', '--estimator', 'ksg1'];
+    const json = JSON.parse((await run([...args, '--json'])).out) as { estimates: { settings: Record<string, unknown> }[] };
+    expect(json.estimates.map((e) => e.settings.thin)).toEqual([2, undefined]);
+    expect((await run(args)).out).toMatch(/│ ksg1 +│ k=3, copula=none, thin=2 │/);
+  });
+
   it('names exactly the estimators whose value (from --json) is below 0, and says how to read them', async () => {
     const json = await run(['estimate', file, '--x-columns', 'north', '--y-columns', 'south', '--json']);
     expect(json.code).toBe(0);

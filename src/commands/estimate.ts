@@ -22,7 +22,7 @@ import {
 import { describeRecorded, recordedChoices, recordedData, type RecordedData } from './recorded-choices.js';
 import { describeSeconds, predictedSeconds, rowsWithin } from '../harness/cost-model.js';
 import { seededRowSubsample } from '../core/sample.js';
-import { parseNumber } from '../core/spec.js';
+import { parseNumber, THIN_SETTING } from '../core/spec.js';
 import { describeReadProgress, statusLine } from '../views/status-line.js';
 
 /**
@@ -96,20 +96,35 @@ export function estimateAll(
   options: { seed?: number; onStart?: (configured: ConfiguredEstimator, rows: number) => void } = {},
 ): EstimateRecord[] {
   const seed = options.seed ?? DEFAULT_SUBSAMPLE_SEED;
+  // The harness's thinning is not among the estimator's own settings, but it changes what the estimate used.
+  const used = (c: ConfiguredEstimator, settings: Settings): Settings => ((c.thin ?? 1) > 1 ? { ...settings, [THIN_SETTING]: c.thin } : settings);
   return configured.map((c, index) => {
     const plan = plans?.[index];
-    if (plan?.skipped) return { estimator: c.estimator.id, settings: c.settings, value: null, skipped: plan.skipped };
+    if (plan?.skipped) return { estimator: c.estimator.id, settings: used(c, c.settings), value: null, skipped: plan.skipped };
     const rows = plan ? plan.rows : sample.n;
     const subsample = rows < sample.n ? { rows, of: sample.n, seed, reason: plan?.reason ?? '' } : undefined;
     try {
       options.onStart?.(c, rows);
       const { value, settings, resolution } = runEstimator(c, seededRowSubsample(sample, rows, String(seed)), { report: true });
       if (!Number.isFinite(value)) throw new EstimateError('numeric', `${c.estimator.id} gave ${value} on this sample`);
-      return { estimator: c.estimator.id, settings, value: toBase(value, base), ...(resolution ? { resolution } : {}), ...(subsample ? { subsample } : {}) };
+      return {
+        estimator: c.estimator.id,
+        settings: used(c, settings),
+        value: toBase(value, base),
+        ...(resolution ? { resolution } : {}),
+        ...(subsample ? { subsample } : {}),
+      };
     } catch (error) {
       // A user's module refuses with an error of EstimateError's shape (it imports nothing from hhat).
       if (isEstimateError(error)) {
-        return { estimator: c.estimator.id, settings: c.settings, value: null, error: error.message, code: error.code, ...(subsample ? { subsample } : {}) };
+        return {
+          estimator: c.estimator.id,
+          settings: used(c, c.settings),
+          value: null,
+          error: error.message,
+          code: error.code,
+          ...(subsample ? { subsample } : {}),
+        };
       }
       throw error;
     }
