@@ -341,6 +341,19 @@ describe('usage mistakes: one line, exit 2, nothing written', () => {
   });
 });
 
+describe('the stated truth of a perturbed draw', () => {
+  // Found by a tester: a quantized TE draw explained its unmoved truth by the entropy of a discretised variable.
+  it('quantize keeps the continuous target, in words for the quantity drawn', async () => {
+    const te = await runCli(['draw', 'te-var1:a=0.5,b=0.5,cXY=0.4,cYX=0', '--n', '50', '--perturb', 'quantize:step=0.1', '--out', join(dir, 'q-te.csv')]);
+    expect(te.out).toContain(
+      "the target stays the continuous truth, which the rounded values are a recording of (the rounded variables' own information is another value)",
+    );
+    expect(te.out).not.toContain('H ≈ h');
+    const entropy = await runCli(['draw', 'normal', '--n', '50', '--perturb', 'quantize:step=0.1', '--out', join(dir, 'q-normal.csv')]);
+    expect(entropy.out).toContain('the rounded variable itself has H ≈ h − Σ log δ_j');
+  });
+});
+
 describe('files next to the output', () => {
   // Found by a tester: an interrupted draw left its 74 MB temporary; --split beside /dev/null made /dev/null-0.
   it('a temporary an interrupted draw left is removed by the next draw to that file; one being written now is spared', async () => {

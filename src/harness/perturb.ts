@@ -221,7 +221,9 @@ function quantizePerturbation(text: string, values: Record<string, string>): Per
       }
       return {
         shift: null,
-        shiftSource: 'the truth does not move; a discretised variable has H ≈ h − Σ log δ_j',
+        // The rounded sample stands for a recording of the continuous one: its target stays the continuous value,
+        // which is not the entropy of the rounded values themselves.
+        shiftSource: 'the target stays the continuous truth h, which the rounded values are a recording of (the rounded variable itself has H ≈ h − Σ log δ_j)',
         logCellVolume: deltas.reduce((s, v) => s + Math.log(v), 0),
         apply: (sample) => {
           const { dim, data } = sample;
@@ -373,7 +375,7 @@ export function parsePerturbation(text: string): Perturbation {
             ? transfer
               ? `exact: TE(X → Y) = I(Y_{t+1}; X_t | Y_t) is invariant under one invertible map of ${chosen === 'all' ? 'each series' : `the ${chosen === 'x' ? 'source' : 'target'} series`} at every time (Schreiber 2000; the Jacobians cancel as for MI)`
               : `exact: MI is invariant under invertible maps of ${chosen === 'all' ? 'each variable' : chosen.toUpperCase()}`
-            : prepared.shiftSource,
+            : dependentShiftSource(inner, prepared),
           apply: (sample, replicate, seed) => applyToColumns(prepared, sample, columns, replicate, seed),
         };
       }
@@ -382,7 +384,7 @@ export function parsePerturbation(text: string): Perturbation {
       if ('skip' in prepared) return prepared;
       return {
         shift: invariant ? 0 : null,
-        shiftSource: invariant ? 'exact: a divergence is invariant under one invertible map of both samples' : prepared.shiftSource,
+        shiftSource: invariant ? 'exact: a divergence is invariant under one invertible map of both samples' : dependentShiftSource(inner, prepared),
         apply: (sample, replicate, seed) => {
           prepared.apply(sample, replicate, seed);
           if (sample.q && inner.kind !== 'contaminate') prepared.apply(sample.q, replicate, seed);
@@ -390,6 +392,16 @@ export function parsePerturbation(text: string): Perturbation {
       };
     },
   };
+}
+
+/**
+ * Where a perturbation does not keep an information measure exactly, the source of its (unmoved) target as the
+ * dependent quantities read it: the entropy wording of quantize would speak of H and h.
+ */
+function dependentShiftSource(inner: Perturbation, prepared: PreparedPerturbation): string {
+  return inner.kind === 'quantize'
+    ? "the target stays the continuous truth, which the rounded values are a recording of (the rounded variables' own information is another value)"
+    : prepared.shiftSource;
 }
 
 /** A perturbation of a conditional-MI sample (X, then yDim columns of Y, then Z): see parsePerturbation. */
@@ -407,7 +419,7 @@ function prepareConditional(scenario: Scenario, spec: string, inner: Perturbatio
     shift: invariant ? 0 : null,
     shiftSource: invariant
       ? `exact: I(X; Y | Z) = I(X; (Y, Z)) − I(X; Z) is invariant under invertible maps of ${chosen === 'all' ? 'each variable' : chosen.toUpperCase()}`
-      : prepared.shiftSource,
+      : dependentShiftSource(inner, prepared),
     apply: (sample, replicate, seed) => applyToColumns(prepared, sample, columns, replicate, seed),
   };
 }
