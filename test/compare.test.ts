@@ -210,6 +210,21 @@ describe('comparing runs', () => {
     for (const c of bothFailed) expect(c.reasons[0]).toBe('no estimates in either run: every replicate failed in both');
   });
 
+  // Found by a tester: runs of the same seed whose plans differed only in their scenario lists were called
+  // "different samples" and compared by Welch's test, although every shared cell drew the same samples.
+  it('pairs the cells of runs with the same seed and replicate count, whatever else their plans hold', () => {
+    const wider = { ...base, drawsFingerprint: 'another plan', plan: { ...base.plan, sampleSizes: [...base.plan.sampleSizes, 99999] } };
+    const comparison = compareRuns(base, wider);
+    expect(comparison.pairing.paired).toBe(true);
+    expect(comparison.pairing.reason).toMatch(
+      /^the cells both runs hold drew the same samples \(seed \d+, \d+ replicates; the plans differ otherwise: sample sizes/,
+    );
+    const fewer = { ...base, drawsFingerprint: 'another plan', plan: { ...base.plan, replicates: base.plan.replicates + 4 } };
+    const unpaired = compareRuns(base, fewer);
+    expect(unpaired.pairing.paired).toBe(false);
+    expect(unpaired.pairing.reason).toMatch(/their first \d+ replicates are the same draws, which Welch's test treats as independent/);
+  });
+
   // Found by a tester: an MI run against a divergence run passed `--fail-on worse --allow-missing` with "0 worse".
   it('runs with no cell in common are refused, not passed', async () => {
     const other = save('no-common.json', { ...base, cells: base.cells.map((c) => ({ ...c, scenario: `${c.scenario}-elsewhere` })) });

@@ -227,9 +227,21 @@ function decidePairing(base: ComparableRun, next: ComparableRun, pairing: Compar
       reason: `both runs drew the same samples (draws fingerprint ${base.drawsFingerprint.slice(0, 12)}); paired tests on per-replicate differences of squared errors and on failures`,
     };
   }
+  // A replicate's sample depends only on the seed, the scenario, n and the replicate index: plans that differ in
+  // their scenario lists or sizes draw the cells they share alike.
+  if (base.plan.seed === next.plan.seed && base.plan.replicates === next.plan.replicates) {
+    return {
+      paired: true,
+      reason: `the cells both runs hold drew the same samples (seed ${base.plan.seed}, ${base.plan.replicates} replicates; the plans differ otherwise: ${drawsDifference(base, next)}); paired tests on per-replicate differences of squared errors and on failures`,
+    };
+  }
+  const overlap =
+    base.plan.seed === next.plan.seed
+      ? `; their first ${Math.min(base.plan.replicates, next.plan.replicates)} replicates are the same draws, which Welch's test treats as independent (conservative where their errors move together, as on the same draws)`
+      : '';
   return {
     paired: false,
-    reason: `the runs drew different samples (${drawsDifference(base, next)}); Welch's t test on the squared errors, Fisher's exact test on failures`,
+    reason: `the runs drew different samples (${drawsDifference(base, next)})${overlap}; Welch's t test on the squared errors, Fisher's exact test on failures`,
   };
 }
 
