@@ -134,7 +134,11 @@ export const transferEntropyEstimators: Estimator[] = [
     tuning: orderGrid(),
     defaultFor: IN_DEFAULT_SETS,
     estimate(sample, { k, history, sourceHistory, copula }) {
-      const { data, rows } = embedded('te-ksg', sample, history, sourceHistory, copula, k + 1, `k = ${k} neighbours`);
+      // Fewer embedded points than embedding dimensions leave the neighbour distances no room to mean anything.
+      const width = 1 + history + sourceHistory;
+      const needed = Math.max(k + 1, width + 1);
+      const why = needed === k + 1 ? `k = ${k} neighbours` : `a ${width}-dimensional embedding (more points than dimensions)`;
+      const { data, rows } = embedded('te-ksg', sample, history, sourceHistory, copula, needed, why);
       return ksgConditionalMutualInformation(data, rows, 1, sourceHistory, history, k, 'te-ksg');
     },
     lacks: {

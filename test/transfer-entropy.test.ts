@@ -15,7 +15,7 @@ import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
-import { configureEstimator, getEstimator, parseEstimatorSpec } from '../estimators/index.js';
+import { configureEstimator, getEstimator, parseEstimatorSpec, runEstimator } from '../estimators/index.js';
 import { historyNotes } from '../src/harness/target-notes.js';
 import { embedTransfer } from '../estimators/transfer-entropy.js';
 import type { Sample } from '../src/core/contracts.js';
@@ -224,6 +224,17 @@ describe('te-ksg and te-gaussian', () => {
     expect(() => teKsg.estimate(sample, validated(teKsg, { k: 4, history: 2 }))).toThrow(/at least 7 rows/);
     expect(() => teGaussian.estimate(sample, validated(teGaussian, { history: 3, sourceHistory: 2 }))).toThrow(/at least 10 rows/);
     expect(() => teGaussian.estimate({ ...sample, n: 0 }, validated(teGaussian))).toThrow(EstimateError);
+  });
+
+  // Found by a tester: te-ksg answered from 19 embedded points in 41 dimensions.
+  it('te-ksg needs more embedded points than embedding dimensions', () => {
+    const n = 39;
+    const data = new Float64Array(2 * n);
+    const rng = rngFromSeed('short te series');
+    for (let i = 0; i < 2 * n; i++) data[i] = rng();
+    expect(() => runEstimator(configureEstimator('te-ksg', { history: 20, sourceHistory: 20 }), { n, dim: 2, xDim: 1, data })).toThrow(
+      /te-ksg: a series of 39 rows gives 19 embedded rows .*a 41-dimensional embedding \(more points than dimensions\) needs at least 42, so at least 62 rows/,
+    );
   });
 
   it('thin=t is refused for transfer entropy (every t-th row is another process)', () => {
