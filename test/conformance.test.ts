@@ -19,6 +19,7 @@ import { type CheckName, type ConformanceReport, checksFor, runConformance } fro
 import { EstimateError, UsageError } from '../src/core/errors.js';
 import { checkEstimator } from '../src/harness/modules.js';
 import { getEstimator, listEstimators } from '../estimators/index.js';
+import { parseScenario } from '../scenarios/index.js';
 import { checkedPair } from '../estimators/divergence.js';
 import { checkedSplit } from '../estimators/mutual-information.js';
 import { defaultWindow } from '../estimators/spacing.js';
@@ -420,6 +421,24 @@ const brokenEstimators: [CheckName, string, () => Promise<Estimator> | Estimator
     'reports bits for nats (divergence)',
     () => broken(gaussianDivergence, 'bits-divergence', { estimate: (sample, settings) => gaussianDivergence.estimate(sample, settings) / Math.LN2 }),
   ],
+  // Found by a tester: these checked their input and returned the suite's own truth, and passed every other check.
+  ...(
+    [
+      ['mi-gaussian', 'mutual information', 'mi-gaussian:dimX=1,dimY=1,rho=0.9'],
+      ['cmi-gaussian', 'conditional mutual information', 'cmi-gaussian:dimX=1,dimY=1,dimZ=1,rhoXY=0.9,rhoXZ=0.5,rhoYZ=0.5'],
+      ['te-gaussian', 'transfer entropy', 'te-var1:a=0.5,b=0.5,cXY=1,cYX=0'],
+    ] as const
+  ).map(([id, quantity, law]): [CheckName, string, () => Estimator] => [
+    'independence',
+    `checks its input, then returns the known value whatever the data (${quantity})`,
+    () =>
+      broken(getEstimator(id), `constant-${id}`, {
+        estimate: (sample, settings) => {
+          getEstimator(id).estimate(sample, settings);
+          return parseScenario(law).truth;
+        },
+      }),
+  ]),
   [
     'known-value',
     'drops the minus sign of −½ log(1 − ρ²) (mutual information)',

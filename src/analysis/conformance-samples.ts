@@ -86,6 +86,22 @@ export function permuteRows(sample: Sample, seed = 'rows'): Sample {
 }
 
 /**
+ * The sample with the rows of its first `columns` columns (X; a transfer-entropy sample's source series)
+ * permuted by a seeded shuffle and the rest left in place: whatever tied X to the other columns is gone, so
+ * every information measure of X with them (MI, conditional MI, transfer entropy from X) is 0.
+ */
+export function shuffleLeadingColumns(sample: Sample, columns: number, seed = 'independence'): Sample {
+  const { n, dim, data } = sample;
+  const shuffled = permuteRows(
+    { n, dim: columns, data: Float64Array.from({ length: n * columns }, (_, p) => data[Math.floor(p / columns) * dim + (p % columns)]) },
+    seed,
+  );
+  const out = Float64Array.from(data);
+  for (let i = 0; i < n; i++) for (let j = 0; j < columns; j++) out[i * dim + j] = shuffled.data[i * columns + j];
+  return { ...sample, data: out };
+}
+
+/**
  * Every value of column j times factors[j] and plus shifts[j] (both samples of a divergence alike). With
  * powers of two as factors and no shift the new values are exact.
  */

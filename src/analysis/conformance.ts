@@ -34,6 +34,7 @@ import {
   lawFor,
   mapColumns,
   permuteRows,
+  shuffleLeadingColumns,
   sameLawPair,
   swapParts,
   withDimension,
@@ -51,6 +52,7 @@ export const CHECKS = [
   'affine',
   'self-divergence',
   'known-value',
+  'independence',
   'rejects-non-finite',
   'rejects-too-few',
   'rejects-wrong-dimension',
@@ -58,12 +60,12 @@ export const CHECKS = [
 export type CheckName = (typeof CHECKS)[number];
 
 const QUANTITY_CHECKS: Record<Quantity, ReadonlySet<CheckName>> = {
-  entropy: new Set(CHECKS.filter((c) => c !== 'symmetry' && c !== 'affine' && c !== 'self-divergence')),
+  entropy: new Set(CHECKS.filter((c) => c !== 'symmetry' && c !== 'affine' && c !== 'self-divergence' && c !== 'independence')),
   'mutual-information': new Set(CHECKS.filter((c) => c !== 'affine' && c !== 'self-divergence')),
   'conditional-mutual-information': new Set(CHECKS.filter((c) => c !== 'affine' && c !== 'self-divergence')),
   // TE(X → Y) ≠ TE(Y → X) by design: no symmetry check.
   'transfer-entropy': new Set(CHECKS.filter((c) => c !== 'symmetry' && c !== 'affine' && c !== 'self-divergence')),
-  divergence: new Set(CHECKS.filter((c) => c !== 'symmetry')),
+  divergence: new Set(CHECKS.filter((c) => c !== 'symmetry' && c !== 'independence')),
 };
 
 /** The checks that apply to a quantity, in suite order. */
@@ -580,6 +582,25 @@ const knownValue: Body = (context) => {
 };
 
 /**
+ * The known value's sample with X's rows shuffled (a transfer-entropy sample: the source series): the true value
+ * is then 0, and an estimate must come within the known-value tolerance of it. A constant answer, or one that
+ * never looks at how X goes with the rest, passes the known value and fails here (found by a tester: an MI
+ * "estimator" returning the suite's truth passed every other check).
+ */
+const independence: Body = (context) => {
+  const { quantity } = context.estimator;
+  const { sample, id } = draw(knownValueLaw(context), KNOWN_VALUE_N);
+  const leading = quantity === 'transfer-entropy' ? 1 : (sample.xDim ?? 1);
+  const got = estimateOn(context, shuffleLeadingColumns(sample, leading), `${id} with X's rows shuffled`);
+  const tolerance = knownValueTolerance(quantity, context.lawDim, context.settings);
+  return {
+    status: Math.abs(got) <= tolerance ? 'pass' : 'fail',
+    evidence: `${id}, n = ${KNOWN_VALUE_N}, ${quantity === 'transfer-entropy' ? "the source's" : "X's"} rows shuffled: ${showRough(got)} vs truth 0 (allowed ${show(tolerance)})`,
+    compared: { expected: 0, got, difference: Math.abs(got), tolerance },
+  };
+};
+
+/**
  * Each case must end in an EstimateError (or an error of its shape); a number, or any other error, fails. So must
  * the valid sample give a number: an estimator that refuses it too (a program that never starts, data it cannot
  * take) would pass any refusal check without ever looking at the bad value.
@@ -672,6 +693,7 @@ const BODIES: Record<CheckName, Body> = {
   affine,
   'self-divergence': selfDivergence,
   'known-value': knownValue,
+  independence,
   'rejects-non-finite': rejectsNonFinite,
   'rejects-too-few': rejectsTooFew,
   'rejects-wrong-dimension': rejectsWrongDimension,
