@@ -81,6 +81,10 @@ describe('hhat estimate', () => {
       [['scenarios', '--family', 'nope'], /^hhat: --family nope is not allowed; use one of arcsine, beta, /m],
       [['estimate', csv, '--reference', 'uniform:-1e400,1'], /--reference uniform:-1e400,1: write uniform:a,b with finite a < b/],
       [['bench', '--report', '--svg-dir', csv], /--svg-dir .* is a file, not a folder/],
+      [
+        ['estimate', csv, '--against', csv, '--unit', 'mV'],
+        /^hhat: --unit mV applies to entropy; mutual information, transfer entropy and divergences do not depend/m,
+      ],
       [['advise', csv, '--x-columns', '1', '--y-columns', '2'], /^hhat: --x-columns: advise covers differential entropy only; for mutual information/m],
     ];
     for (const [args, message] of cases) {

@@ -271,6 +271,9 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   }
   const { loaded, sample, quantity } = readEstimateSample(file, options, load);
   if (reference && quantity !== 'entropy') throw new UsageError('--reference applies to entropy; mutual information and divergences are already unit-free');
+  // A unit labels an entropy ("nats relative to 1 mV"); accepted silently elsewhere it would suggest the value depends on it.
+  if (options.unit !== undefined && quantity !== 'entropy')
+    throw new UsageError(`--unit ${options.unit} applies to entropy; mutual information, transfer entropy and divergences do not depend on the data's unit`);
   const offset = reference ? meanLogReference(reference, sample) : 0;
   const commands = options.estimatorCommand?.length ? await declareCommandOptions(options.estimatorCommand, quantity) : [];
   const named = Boolean(options.estimator?.length);
