@@ -75,7 +75,8 @@ export function sampleSizes(cells: Cell[]): number[] {
 
 /** A fitted rate as legend text; the fit leaves out points within 2 SE of zero, so it may have none. */
 export function slopeText(fit: { slope: number; se: number | null } | null | undefined, metric: 'bias' | 'rmse' = 'rmse'): string {
-  if (!fit || !finite(fit.slope)) return metric === 'bias' ? 'no slope (|bias| < 2 SE)' : 'no slope';
+  // The fit needs two sample sizes whose value clears 2 SE (score.ts, fitRate); fewer, and there is no slope.
+  if (!fit || !finite(fit.slope)) return metric === 'bias' ? 'no slope (fewer than two n with |bias| > 2 SE)' : 'no slope (fewer than two n with RMSE > 2 SE)';
   return `slope ${fit.slope.toFixed(2).replace('-', '−')}${finite(fit.se) ? ` ± ${fit.se.toFixed(2)}` : ''}`;
 }
 
