@@ -76,13 +76,14 @@ export function rankTable(grid: RankGrid): string {
       const cell = grid.rows.find((r) => r.estimator === estimator && r.group === g);
       if (cell?.relative !== undefined)
         return {
-          text: `${cell.relative.toFixed(2)} relative (${cell.cells})`,
+          text: `${cell.relative.toFixed(2)} relative (${cell.cells}${cell.failedCells ? `, ${cell.failedCells} failed` : ''})`,
           sort: cell.relative,
           title: `mean of (rank − 1)/(estimators in the cell − 1) over ${cell.cells} cells, 0 = best, 1 = last (plain mean rank ${cell.meanRank.toFixed(1)}, not comparable across estimators that run in different dimensions)`,
         };
       return cell
         ? {
-            text: `${cell.meanRank.toFixed(1)} (${cell.cells})`,
+            // As the terminal's table has it: a rank that failures pushed to last says so in the cell itself.
+            text: `${cell.meanRank.toFixed(1)} (${cell.cells}${cell.failedCells ? `, ${cell.failedCells} failed` : ''})`,
             sort: cell.meanRank,
             title: `average over ${cell.cells} cells${cell.failedCells ? `, ${cell.failedCells} of them failed and ranked last` : ''}`,
           }
