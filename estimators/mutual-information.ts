@@ -34,6 +34,7 @@ import { validateSettings } from '../src/core/spec.js';
 import { checkNotConstant } from './divergence.js';
 import { type AxisBins, BIN_RULES, type BinRule, binGrid, histogramCells, histogramEstimators, histogramGrid } from './histogram.js';
 import { BANDWIDTH_RULES, bandwidthGrid, kernelEstimator, kernelEstimators, type KernelSettings } from './kernel.js';
+import { minimumSampleSize } from './kernel/resubstitution.js';
 import { nearestNeighbourEstimators } from './nearest-neighbour.js';
 import { logDeterminantSpd, parametricEstimators, scatterMatrix, wishartLogDetShift } from './parametric.js';
 import { inSpreadUnit } from './shared/scaling.js';
@@ -442,6 +443,9 @@ function kernelMutualInformation(sample: Sample, { bandwidth, scale, copula }: K
   const id = 'mi-kernel';
   const { data, n, xDim, yDim } = prepared(id, sample, copula);
   const dim = xDim + yDim;
+  // Checked here for the joint sample, the largest of the three: a marginal's refusal would speak of its own dimension.
+  const needed = minimumSampleSize(dim);
+  if (n < needed) throw new EstimateError('too-few-points', `${id} needs at least ${needed} points for (X, Y) in ${dim} dimensions, got ${n}`);
   const rankUnit = copula === 'rank' ? n + 1 : 1;
   const entropyOf = (part: Sample): number => {
     const partBandwidth = typeof bandwidth === 'number' && part.dim === 1 ? bandwidth * rankUnit : bandwidth;

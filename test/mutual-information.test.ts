@@ -134,6 +134,13 @@ const fixtureSamples = fixture.mi_samples.map((c) => ({
 }));
 
 describe('ksg1 and ksg2', () => {
+  // Found by a tester: mi-kernel on 2 rows of (X, Y) spoke of "3 points in 1 dimension" (its marginal's need).
+  it('mi-kernel names the joint sample in its too-few-points refusal', () => {
+    expect(() => estimate('mi-kernel', { n: 2, dim: 2, xDim: 1, data: Float64Array.from([1, 2, 3, 5]) })).toThrow(
+      'mi-kernel needs at least 4 points for (X, Y) in 2 dimensions, got 2',
+    );
+  });
+
   // Found by a tester: with Y constant, ksg2 returned −1/k (−0.333 at k = 3) and bench ranked it second.
   it('refuse a constant X or Y as ties, naming it', () => {
     const n = 200;
