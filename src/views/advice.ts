@@ -130,7 +130,7 @@ export function renderFileAdvice(advice: FileAdvice, file: string): string {
   lines.push(`${file}: n = ${advice.fileRows}, d = ${advice.dim}${names.length ? ` (${names.join(', ')})` : ''}`);
   if (advice.subsample) {
     lines.push(
-      `Advice on a seeded uniform subsample of ${advice.subsample.rows} of the ${advice.subsample.of} rows (seed ${advice.subsample.seed}): a benchmark at n = ${advice.subsample.of} does not fit the budget (see the first note).`,
+      `Advice on a seeded uniform subsample of ${advice.subsample.rows} of the ${advice.subsample.of} rows (seed ${advice.subsample.seed}): the benchmark (with the bootstrap, when an interval is asked for) at n = ${advice.subsample.of} does not fit the budget (see the first note).`,
     );
   }
   lines.push('');

@@ -365,7 +365,8 @@ function analysedSample(ctx: AdviceContext, fileSample: Sample, estimators: stri
       needed <= MAX_BUDGET_SECONDS ? `give --budget ${needed} or more` : `no --budget up to ${MAX_BUDGET_SECONDS} s covers it; select fewer columns`;
     throw new UsageError(`--budget ${budget} is too small for this file: ${cost}, not even ${FEWEST_ANALYSIS_ROWS} rows fit; ${remedy}`);
   }
-  const reason = `${cost}, they and the bootstrap's resamples fit at n = ${rows}`;
+  const resamples = ctx.level === null ? 0 : (options.resamples ?? options.minResamples ?? 100);
+  const reason = resamples > 0 ? `${cost}, they and the bootstrap's ${resamples} resamples fit at n = ${rows}` : `${cost}, they fit at n = ${rows}`;
   return { sample: seededRowSubsample(fileSample, rows, `hhat-advise\n${seed}`), subsample: { rows, of: fileRows, seed, reason } };
 }
 
