@@ -4,27 +4,23 @@
  */
 import { UsageError } from '../core/errors.js';
 import { countOf } from '../core/format.js';
-import { DEQUANTIZE_SETTING } from '../core/spec.js';
 import { buildContext } from '../harness/context.js';
 import { parsePerturbation } from '../harness/perturb.js';
 import { codeDifference, planCode } from '../harness/plan.js';
 import { shardUnits, type Shard } from '../harness/runner.js';
 import { planUnits } from '../harness/work.js';
-import { cellKey, finishRun, type Cell, type RunFile } from './results.js';
-
-/** A cell as a refusal names it: what it is, without its results. */
-type CellId = Pick<Cell, 'scenario' | 'estimator' | 'n' | 'role' | 'perturbation' | 'tuning'>;
+import { cellIdentity, cellKey, finishRun, type Cell, type CellIdentity, type RunFile } from './results.js';
 
 /** Cells a merge would otherwise leave out: of one shard file, or (path null) of none that could be named. */
 interface MissingCells {
   path: string | null;
   shard: Shard | null;
-  cells: CellId[];
+  cells: CellIdentity[];
   /** Whence the cells are known to belong there, for the refusal. */
   basis: string;
 }
 
-function describeCell(c: CellId): string {
+function describeCell(c: CellIdentity): string {
   const parts = [`scenario ${c.scenario}`, `estimator ${c.estimator}`, `n=${c.n}`];
   if (c.role !== 'main') parts.push(`role ${c.role}`);
   if (c.perturbation !== null) parts.push(`perturbation ${c.perturbation}`);
@@ -48,34 +44,19 @@ function refusal(m: MissingCells): string {
  * cannot rebuild that split: merge loads no estimator modules or commands, and other code may plan other tuning
  * points or skips; the merge then falls back to impliedMissing.
  */
-function plannedShardCells(run: RunFile): CellId[][] | null {
+function plannedShardCells(run: RunFile): CellIdentity[][] | null {
   const { plan } = run;
   if (plan.modules.length || plan.commands?.length || codeDifference(run.code, planCode(plan)) !== null) return null;
   // With shifts, as the run itself built it: whether a perturbation applies can depend on its shift being known.
   const context = buildContext(plan);
   const { units } = planUnits(context);
-  const planned = context.estimators.length;
-  const twinsFrom = planned + context.tuning.length;
-  const tuningOf = (e: number): Cell['tuning'] => {
-    if (e < planned) return null;
-    if (e >= twinsFrom) return { base: context.estimators[context.dequantized[e - twinsFrom].base].spec, setting: DEQUANTIZE_SETTING, value: 'auto' };
-    const point = context.tuning[e - planned];
-    return { base: context.estimators[point.base].spec, setting: point.setting, value: point.value };
-  };
   const { count } = run.shard!;
   return Array.from({ length: count }, (_, i) => {
-    const cells = new Map<string, CellId>();
+    const cells = new Map<string, CellIdentity>();
     for (const u of shardUnits(units, { index: i + 1, count })) {
       const unit = units[u];
       for (const series of unit.series) {
-        const cell: CellId = {
-          scenario: context.scenarios[unit.scenario].id,
-          estimator: context.all[series.estimator].spec,
-          n: unit.n,
-          role: series.variant > 0 ? 'perturbed' : series.estimator < planned ? 'main' : 'tuning',
-          perturbation: series.variant > 0 ? context.perturbations[series.variant - 1].spec : null,
-          tuning: tuningOf(series.estimator),
-        };
+        const cell = cellIdentity(context, unit, series);
         cells.set(cellKey(cell), cell);
       }
     }
@@ -92,12 +73,12 @@ function plannedShardCells(run: RunFile): CellId[][] | null {
 function impliedMissing(files: { path: string; run: RunFile }[]): MissingCells | null {
   const { plan, skipped } = files[0].run;
   const skips = new Set(skipped.map((s) => `${s.scenario}|${s.estimator}`));
-  const variants = new Map<string, CellId>();
+  const variants = new Map<string, CellIdentity>();
   for (const f of files) for (const c of f.run.cells) if (c.tuning) variants.set(`${c.role}|${c.estimator}`, c);
   const robustness = plan.robustness;
-  const expected = (scenario: string, n: number): CellId[] => {
+  const expected = (scenario: string, n: number): CellIdentity[] => {
     const runnable = plan.estimators.filter((e) => !skips.has(`${scenario}|${e}`));
-    const cell = (estimator: string, role: Cell['role'], perturbation: string | null, tuning: Cell['tuning'] = null): CellId => ({
+    const cell = (estimator: string, role: Cell['role'], perturbation: string | null, tuning: Cell['tuning'] = null): CellIdentity => ({
       scenario,
       estimator,
       n,

@@ -15,7 +15,7 @@ import { environment, type Environment } from '../core/provenance.js';
 import type { RunOutcome, Session, Shard } from '../harness/runner.js';
 import { fitRate, scoreCell, type CellScores, type RateFit } from './score.js';
 import { overallRanks, rankCells, type OverallRank, type Ranking } from './ranking.js';
-import type { Skip } from '../harness/work.js';
+import type { Skip, Unit, WorkContext } from '../harness/work.js';
 import runSchema from '../schemas/run.schema.json' with { type: 'json' };
 import { robustnessSection, type RobustnessSection } from './robustness.js';
 import type { Cell, CellFailure, ScenarioInfo } from './cells.js';
@@ -85,39 +85,55 @@ function scenarioInfo(s: Scenario): ScenarioInfo {
   };
 }
 
+/** What names a cell: its scenario, estimator, n, role, perturbation and tuning, without its results. */
+export type CellIdentity = Pick<Cell, 'scenario' | 'estimator' | 'n' | 'role' | 'perturbation' | 'tuning'>;
+
+/** The cell a series of a unit fills (assembleRun; merge, to know which cells a shard owes). */
+export function cellIdentity(context: WorkContext, unit: Unit, series: Unit['series'][number]): CellIdentity {
+  const planned = context.estimators.length;
+  const twinsFrom = planned + context.tuning.length;
+  const e = series.estimator;
+  let tuning: Cell['tuning'] = null;
+  if (e >= twinsFrom) {
+    // A dequantized twin is its plan estimator with one setting changed, as a tuning point is.
+    tuning = { base: context.estimators[context.dequantized[e - twinsFrom].base].spec, setting: DEQUANTIZE_SETTING, value: 'auto' };
+  } else if (e >= planned) {
+    const point = context.tuning[e - planned];
+    tuning = { base: context.estimators[point.base].spec, setting: point.setting, value: point.value };
+  }
+  return {
+    scenario: context.scenarios[unit.scenario].id,
+    estimator: context.all[e].spec,
+    n: unit.n,
+    role: series.variant > 0 ? 'perturbed' : e < planned ? 'main' : 'tuning',
+    perturbation: series.variant > 0 ? context.perturbations[series.variant - 1].spec : null,
+    tuning,
+  };
+}
+
 /** Assembles cells from unit results (a shard holds only its own replicates; the rest stay null). */
 export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
   const { plan, context } = outcome;
   const cellIndex = new Map<string, Cell>();
   const cells: Cell[] = [];
   const key = (s: number, e: number, n: number, v: number) => `${s}|${e}|${n}|${v}`;
-  const twinsFrom = context.estimators.length + context.tuning.length;
-  const tuningOf = (e: number): Cell['tuning'] => {
-    if (e < context.estimators.length) return null;
-    // A dequantized twin is its plan estimator with one setting changed, as a tuning point is.
-    if (e >= twinsFrom) {
-      const twin = context.dequantized[e - twinsFrom];
-      return { base: context.estimators[twin.base].spec, setting: DEQUANTIZE_SETTING, value: 'auto' };
-    }
-    const point = context.tuning[e - context.estimators.length];
-    return { base: context.estimators[point.base].spec, setting: point.setting, value: point.value };
-  };
   for (const unit of outcome.units) {
     for (const series of unit.series) {
       const k = key(unit.scenario, series.estimator, unit.n, series.variant);
       if (cellIndex.has(k)) continue;
       const configured = context.all[series.estimator];
       const prepared = series.variant > 0 ? context.prepared[unit.scenario][series.variant - 1] : null;
+      const { scenario, estimator, n, role, perturbation, tuning } = cellIdentity(context, unit, series);
       const cell: Cell = {
-        scenario: context.scenarios[unit.scenario].id,
-        estimator: configured.spec,
+        scenario,
+        estimator,
         estimatorId: configured.estimator.id,
         family: configured.estimator.family,
-        n: unit.n,
-        role: series.variant > 0 ? 'perturbed' : series.estimator < context.estimators.length ? 'main' : 'tuning',
-        perturbation: series.variant > 0 ? context.perturbations[series.variant - 1].spec : null,
+        n,
+        role,
+        perturbation,
         shift: prepared && 'shift' in prepared ? prepared.shift : null,
-        tuning: tuningOf(series.estimator),
+        tuning,
         estimates: new Array<number | null>(plan.replicates).fill(null),
         failures: [],
         scores: undefined as unknown as CellScores,
