@@ -8,7 +8,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { ensureBuilt } from './helpers/built.js';
-import { commandDigest, normalizeCommand, parseCommandOption, splitCommandLine } from '../src/harness/external/declaration.js';
+import { commandDigest, normalizeCommand, parseCommandOption, programProblem, splitCommandLine } from '../src/harness/external/declaration.js';
 import { codeDifference, type PlanCode } from '../src/harness/plan.js';
 import type { RunFile } from '../src/analysis/results.js';
 
@@ -16,6 +16,10 @@ const root = join(__dirname, '..');
 const bin = join(root, 'bin', 'hhat.js');
 const faulty = join(root, 'test', 'fixtures', 'faulty_command.py');
 const dir = mkdtempSync(join(tmpdir(), 'hhat-commands-test-'));
+// A program that is there and executable, so it passes the check before a run, but cannot be started: its
+// interpreter is missing (spawn reports ENOENT). It stands for every failure to start that only starting shows.
+const noInterpreter = join(dir, 'no-interpreter.sh');
+writeFileSync(noInterpreter, '#!/no/such/interpreter-for-hhat\n', { mode: 0o755 });
 
 function hhat(args: string[], env: Record<string, string> = {}): { code: number; out: string; err: string } {
   const result = spawnSync(process.execPath, [bin, ...args], { cwd: dir, encoding: 'utf8', env: { ...process.env, ...env }, timeout: 120_000 });
@@ -63,6 +67,30 @@ describe('declarations', () => {
     );
   });
 
+  it('refuses, before anything runs, a program that is not there or not executable (it would fail every estimate)', () => {
+    const where = 'plan: estimator command "kl"';
+    expect(() => normalizeCommand({ id: 'kl', command: 'no-such-program-for-hhat x.py' }, 'entropy', dir, 'plan')).toThrow(
+      `${where}: its program no-such-program-for-hhat is not found on PATH; give its path, or install it`,
+    );
+    expect(() => normalizeCommand({ id: 'kl', command: './kl.sh' }, 'entropy', dir, 'plan')).toThrow(
+      `${where}: its program ./kl.sh (${join(dir, 'kl.sh')}) does not exist`,
+    );
+    writeFileSync(join(dir, 'plain.sh'), '#!/bin/sh\n', { mode: 0o644 });
+    expect(() => normalizeCommand({ id: 'kl', command: './plain.sh' }, 'entropy', dir, 'plan')).toThrow(
+      `${where}: its program ${join(dir, 'plain.sh')} is not executable (chmod +x ${join(dir, 'plain.sh')})`,
+    );
+    // A bare name is looked up on PATH as spawn does, relative entries from the working folder.
+    expect(programProblem('plain.sh', dir, `/nowhere:.`)).toBe(
+      `its program plain.sh is found on PATH only as ${join(dir, 'plain.sh')}, which is not executable`,
+    );
+    expect(programProblem('no-interpreter.sh', dir, `/nowhere:.`)).toBeNull();
+    expect(programProblem('sh', dir)).toBeNull();
+    expect(programProblem('sh', dir, '/nowhere')).toBe('its program sh is not found on PATH; give its path, or install it');
+    expect(programProblem(noInterpreter, '/')).toBeNull();
+    // A folder is not a program.
+    expect(programProblem('./', dir)).toBe(`its program ./ (${dir}) is not a file`);
+  });
+
   it('digests the files a command names: an edited script is different code, and says so', () => {
     const folder = join(dir, 'digest');
     mkdirSync(folder);
@@ -98,10 +126,7 @@ describe('faults: each a failure with its reason, the rest of the run intact', (
       sampleSizes: [50],
       replicates: 6,
       limits: { estimateSeconds: 1, estimateSecondsPerPoint: 0 },
-      commands: [
-        ...modes.map((mode) => ({ id: mode, command: ['python3', faulty, mode, marker] })),
-        { id: 'missing', command: ['no-such-program-for-hhat', 'x.py'] },
-      ],
+      commands: [...modes.map((mode) => ({ id: mode, command: ['python3', faulty, mode, marker] })), { id: 'missing', command: [noInterpreter, 'x.py'] }],
     };
     writeFileSync(join(dir, 'faults.json'), JSON.stringify(plan));
     result = hhat(['bench', '--plan', 'faults.json', '--allow-plan-modules', '--workers', '2', '--out', 'faults-run.json'], { TMPDIR: scratch });
@@ -151,7 +176,7 @@ describe('faults: each a failure with its reason, the rest of the run intact', (
     const c = cell('missing');
     expect(c.failures).toHaveLength(6);
     expect(c.failures[0].message).toBe(
-      `command: missing could not be started: spawn no-such-program-for-hhat ENOENT (no such program, or its working folder is gone); the command is \`no-such-program-for-hhat x.py\` in ${dir}; hhat starts it again for the next estimate`,
+      `command: missing could not be started: spawn ${noInterpreter} ENOENT (no such program, or its working folder is gone); the command is \`${noInterpreter} x.py\` in ${dir}; hhat starts it again for the next estimate`,
     );
   });
 
@@ -252,10 +277,10 @@ describe('on the command line', () => {
       ['kozachenko-leonenko', 'any'],
       ['first', 2],
     ]);
-    const bad = hhat(['estimate', 'points.csv', '--estimator-command', 'gone=no-such-program-for-hhat']);
+    const bad = hhat(['estimate', 'points.csv', '--estimator-command', `gone=${noInterpreter}`]);
     expect(bad.code).toBe(1);
     expect(bad.out).toMatch(/gone\s+│.*failed/);
-    expect(bad.err).toContain('gone could not be started: spawn no-such-program-for-hhat ENOENT');
+    expect(bad.err).toContain(`gone could not be started: spawn ${noInterpreter} ENOENT`);
     // The default estimators beside it ran: no line may say that none did.
     expect(bad.err).not.toContain('none of the');
   });
@@ -276,11 +301,26 @@ describe('on the command line', () => {
       'quiet-fail.json',
       '--quiet',
       '--estimator-command',
-      'gone=no-such-program-for-hhat',
+      `gone=${noInterpreter}`,
     ]);
     expect(r.code).toBe(0);
     expect(r.out).toBe(`${join(dir, 'quiet-fail.json')}\n`);
     expect(r.err).toBe('hhat: 3 estimates failed in the benchmark cells (gone 3); the run file lists each with its reason (cells[].failures)\n');
+  });
+
+  it('a program that is not there is a usage mistake of bench, estimate, advise and check (exit 2, one line)', () => {
+    const line = `--estimator-command gone=no-such-program-for-hhat: estimator command "gone": its program no-such-program-for-hhat is not found on PATH; give its path, or install it`;
+    for (const args of [
+      ['bench', '--scenario', 'normal', '--n', '50', '--out', 'never.json'],
+      ['estimate', 'points.csv'],
+      ['advise', 'points.csv'],
+      ['check'],
+    ]) {
+      const r = hhat([...args, '--estimator-command', 'gone=no-such-program-for-hhat']);
+      expect(r.err, args[0]).toBe(`hhat: ${line}\n`);
+      expect(r.code, args[0]).toBe(2);
+    }
+    expect(existsSync(join(dir, 'never.json'))).toBe(false);
   });
 
   it('check: a command passes the conformance suite like any estimator', () => {

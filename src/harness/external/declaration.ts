@@ -7,8 +7,8 @@
  *   parseCommandOption('my-kl=python3 my_kl.py --fast')  // { id: 'my-kl', command: ['python3', 'my_kl.py', '--fast'] }
  */
 import { createHash } from 'node:crypto';
-import { existsSync, readFileSync, statSync } from 'node:fs';
-import { isAbsolute, resolve } from 'node:path';
+import { accessSync, constants, existsSync, readFileSync, statSync } from 'node:fs';
+import { delimiter, isAbsolute, resolve } from 'node:path';
 import type { Quantity, SettingSpec, SettingValue } from '../../core/contracts.js';
 import { UsageError } from '../../core/errors.js';
 import { showValue } from '../../core/spec.js';
@@ -128,6 +128,8 @@ export function normalizeCommand(input: CommandInput, quantity: Quantity, baseDi
   }
   const cwd = input.cwd === undefined ? baseDir : isAbsolute(input.cwd) ? input.cwd : resolve(baseDir, input.cwd);
   if (!existsSync(cwd) || !statSync(cwd).isDirectory()) throw new UsageError(`${owner}: its working folder ${cwd} does not exist`);
+  const missing = programProblem(command[0], cwd);
+  if (missing) throw new UsageError(`${owner}: ${missing}`);
   const dims = input.dims ?? [1, null];
   if (!Number.isInteger(dims[0]) || dims[0] < 1 || (dims[1] !== null && (!Number.isInteger(dims[1]) || dims[1] < dims[0]))) {
     throw new UsageError(`${owner}: dims ${showValue(dims)} is not allowed; give [min, max] with 1 ≤ min ≤ max, or [min, null] for any dimension above min`);
@@ -145,6 +147,46 @@ export function normalizeCommand(input: CommandInput, quantity: Quantity, baseDi
     reference: input.reference ?? 'declared by the command (an external program)',
     family: input.family ?? 'external',
   };
+}
+
+/**
+ * Why `program` cannot be started from `cwd`, or null when it can: a program that is missing or not executable
+ * would fail every estimate of the run, so a typo is a usage mistake, said before anything runs. This looks where
+ * spawn looks: a name with a slash from the working folder, a bare name on PATH. It cannot see every failure (a
+ * script whose interpreter is missing is found here and fails when started; that stays a failure of each
+ * estimate, with its reason).
+ */
+export function programProblem(program: string, cwd: string, path = process.env.PATH ?? ''): string | null {
+  if (process.platform === 'win32') return null; // PATHEXT and the like: left to spawn
+  const usable = (file: string): 'yes' | 'not executable' | 'no' => {
+    try {
+      if (!statSync(file).isFile()) return 'no';
+    } catch {
+      return 'no';
+    }
+    try {
+      accessSync(file, constants.X_OK);
+      return 'yes';
+    } catch {
+      return 'not executable';
+    }
+  };
+  if (program.includes('/')) {
+    const file = resolve(cwd, program);
+    const found = usable(file);
+    if (found === 'yes') return null;
+    if (found === 'not executable') return `its program ${file} is not executable (chmod +x ${file})`;
+    return existsSync(file) ? `its program ${program} (${file}) is not a file` : `its program ${program} (${file}) does not exist`;
+  }
+  let nonExecutable: string | null = null;
+  for (const folder of path.split(delimiter)) {
+    const file = resolve(cwd, folder || '.', program);
+    const found = usable(file);
+    if (found === 'yes') return null;
+    if (found === 'not executable') nonExecutable ??= file;
+  }
+  if (nonExecutable) return `its program ${program} is found on PATH only as ${nonExecutable}, which is not executable`;
+  return `its program ${program} is not found on PATH; give its path, or install it`;
 }
 
 /**
