@@ -49,9 +49,14 @@ import {
   regularizedBetaUpper,
   regularizedGammaP,
   regularizedGammaQ,
-  trigamma,
 } from '../src/math/special.js';
-import { STIRLING_SERIES_MIN, digammaStirlingRemainder, gammaEntropyUnitScale, logGammaStirlingRemainder } from '../src/math/stirling.js';
+import {
+  STIRLING_SERIES_MIN,
+  digammaStirlingRemainder,
+  gammaEntropyUnitScale,
+  logGammaStirlingRemainder,
+  trigammaStirlingRemainderScaled,
+} from '../src/math/stirling.js';
 import { family, univariateScenario } from './build.js';
 
 const LOG_2PI = Math.log(2 * Math.PI);
@@ -296,10 +301,26 @@ const cauchy = family('cauchy', 'Cauchy; very heavy tails, no mean', cauchySpecs
   }),
 );
 
-/** Var(log f) of the Student t: ((ν+1)/2)²(ψ′(ν/2) − ψ′((ν+1)/2)), since 1/(1 + T²/ν) ~ Beta(ν/2, ½). */
+/**
+ * Var(log f) of the Student t in `dim` dimensions: ((ν+d)/2)²(ψ′(ν/2) − ψ′((ν+d)/2)), since 1/(1 + Q/ν) ~
+ * Beta(ν/2, d/2). With x = ν/2, h = d/2 and ψ′(y) = 1/y + 1/(2y²) + t(y) (src/math/stirling.ts) this is
+ * h(x+h)/x + h(2x+h)/(2x²) + (x+h)²(t(x) − t(x+h)), written with x²t(x) so that nothing overflows: the difference of two nearly equal trigammas, which lost
+ * digits in proportion to ν (1e-8 relative at ν = 1e8), is formed in closed form.
+ */
 export function studentLogDensityVariance(nu: number, dim: number): number {
-  const half = (nu + dim) / 2;
-  return half * half * (trigamma(nu / 2) - trigamma(half));
+  const x = nu / 2;
+  const h = dim / 2;
+  const half = x + h;
+  const ratio = h / x;
+  return h + h * ratio + ratio + (ratio * ratio) / 2 + (half / x) ** 2 * trigammaStirlingRemainderScaled(x) - trigammaStirlingRemainderScaled(half);
+}
+
+/**
+ * Var(log f) of Gamma(k, θ): (k−1)²ψ′(k) + k − 2(k−1), using Cov(log Y, Y) = 1 for Y ~ Gamma(k, 1). Its terms of
+ * size k cancel to about ½; with ψ′(k) = 1/k + 1/(2k²) + t(k) it is ½ + 1/(2k²) + (k−1)² t(k), term by term.
+ */
+export function gammaLogDensityVariance(k: number): number {
+  return 0.5 + 0.5 / (k * k) + ((k - 1) / k) ** 2 * trigammaStirlingRemainderScaled(k);
 }
 
 const studentSpecs = [positive('nu', 'degrees of freedom', 3), location('mu', 'centre'), positive('sigma', 'scale', 1)];
@@ -377,7 +398,7 @@ const gamma = family(
       },
       sampler: (rng) => gammaRandom.factory(k, 1 / p.scale, { prng: rng }),
       logDensityVariance: {
-        value: (k - 1) * (k - 1) * trigamma(k) + k - 2 * (k - 1),
+        value: gammaLogDensityVariance(k),
         source: 'exact: (k−1)²ψ′(k) + k − 2(k−1), using Cov(log Y, Y) = 1 for Y ~ Gamma(k, 1)',
       },
       mean: k * p.scale,
@@ -392,8 +413,13 @@ const gamma = family(
  * Var(log(1−U)) = ψ′(b) − ψ′(a+b) and Cov(log U, log(1−U)) = −ψ′(a+b).
  */
 function betaLogDensityVariance(a: number, b: number): number {
-  const shared = trigamma(a + b);
-  return (a - 1) ** 2 * (trigamma(a) - shared) + (b - 1) ** 2 * (trigamma(b) - shared) - 2 * (a - 1) * (b - 1) * shared;
+  // With s = a + b and ψ′(y) = 1/y + 1/(2y²) + t(y), the terms of size a and b cancel analytically (the sum tends
+  // to ½, a normal's value, as a and b grow): ½ − 2/s + (1/a² + 1/b² − 4/s²)/2 + (a−1)²t(a) + (b−1)²t(b) − (s−2)²t(s).
+  const s = a + b;
+  const squares = 1 / (a * a) + 1 / (b * b) - 4 / (s * s);
+  const remainder = (y: number, shift: number) => ((y - shift) / y) ** 2 * trigammaStirlingRemainderScaled(y);
+  const remainders = remainder(a, 1) + remainder(b, 1) - remainder(s, 2);
+  return 0.5 - 2 / s + squares / 2 + remainders;
 }
 const BETA_VARIANCE_SOURCE = 'exact: (a−1)²(ψ′(a) − ψ′(a+b)) + (b−1)²(ψ′(b) − ψ′(a+b)) − 2(a−1)(b−1)ψ′(a+b)';
 
@@ -719,7 +745,7 @@ const chiSquared = family(
       sampler: (rng) => chisquareRandom.factory(p.k, { prng: rng }),
       // Gamma(k/2, scale 2): the gamma formula with shape k/2.
       logDensityVariance: {
-        value: (halfK - 1) * (halfK - 1) * trigamma(halfK) + halfK - 2 * (halfK - 1),
+        value: gammaLogDensityVariance(halfK),
         source: 'exact: gamma with shape k/2, (k/2−1)²ψ′(k/2) + k/2 − 2(k/2−1)',
       },
       mean: p.k,

@@ -394,6 +394,19 @@ describe('closed-form truths at small, moderate and huge parameters', () => {
   it('has cases (the fixture was read)', () => {
     expect(cases.length).toBeGreaterThan(100);
   });
+  // Var(log f) (the report's efficiency bound), same reference: the trigamma forms cancel terms of size ν, k or
+  // a + b down to about ½ and lost digits in proportion (1e-8 relative at ν = 1e8; at 1e15 no digit survived).
+  const variances = extremeTruths.variances as { spec: string; variance: string }[];
+  it('has variance cases (the fixture was read)', () => {
+    expect(variances.length).toBeGreaterThan(50);
+  });
+  for (const c of variances) {
+    it(`${c.spec}: Var(log f) matches mpmath`, () => {
+      const expected = Number(c.variance);
+      const actual = parseScenario(c.spec).logDensityVariance!;
+      expect(relativeError(actual, expected), `${c.spec}: ${actual} vs ${c.variance}`).toBeLessThan(1e-12);
+    });
+  }
   for (const c of cases) {
     it(`${c.spec} matches mpmath`, () => {
       const expected = Number(c.truth);

@@ -141,3 +141,22 @@ export function stirlingSecondDifference(a: number, p: number, q: number): numbe
   };
   return leading + (rest(a) - rest(ap) - rest(aq) + rest(apq));
 }
+
+/** t(y) − t(y+1) = 1/y² − 1/y + 1/(y+1) − 1/(2y²) + 1/(2(y+1)²) = ½(1/y − 1/(y+1))², a positive step. */
+function trigammaRemainderStep(y: number): number {
+  const gap = 1 / (y * (y + 1));
+  return 0.5 * gap * gap;
+}
+
+/**
+ * x² t(x), where t(x) = ψ′(x) − 1/x − 1/(2x²) for x > 0 (its series is Σ B₂ₙ/x^{2n+1}), computed as
+ * logGammaStirlingRemainder computes r. Variances of log densities built from ψ′ cancel their 1/x and 1/x² parts
+ * analytically with it; it is scaled by x² so that x up to the largest double neither overflows nor underflows.
+ */
+export function trigammaStirlingRemainderScaled(x: number): number {
+  if (!(x > 0)) return NaN;
+  const [steps, shifted] = stepsUp(x, trigammaRemainderStep);
+  const series = seriesInInverseSquare(BERNOULLI_EVEN, 1 / (shifted * shifted)) / shifted;
+  // Above the series' threshold there are no steps and shifted = x: the series is already x² t(x).
+  return shifted === x ? series : x * x * (steps + series / (shifted * shifted));
+}
