@@ -15,7 +15,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import type { Estimator, Sample } from '../src/core/contracts.js';
-import { type CheckName, type ConformanceReport, checksFor, runConformance } from '../src/analysis/conformance.js';
+import { type CheckName, type ConformanceReport, checksFor, INVARIANCE_N, runConformance } from '../src/analysis/conformance.js';
 import { EstimateError, UsageError } from '../src/core/errors.js';
 import { checkEstimator } from '../src/harness/modules.js';
 import { getEstimator, listEstimators } from '../estimators/index.js';
@@ -50,7 +50,9 @@ function expectNotApplicableOnlyForAReason(report: ConformanceReport, estimator:
       (c.check === 'configured-resolved' && !estimator.resolve) ||
       // Outside a divergence's Q sample, a wrong dimension is refused by the registry before estimate runs.
       (c.check === 'rejects-wrong-dimension' && estimator.quantity !== 'divergence') ||
-      (c.check === 'affine' && estimator.dims[1] === 1);
+      (c.check === 'affine' && estimator.dims[1] === 1) ||
+      // No tuning grid at these settings (a fixed bandwidth or width, a parametric method): nothing to vary.
+      (c.check === 'tuning-responds' && !estimator.tuning?.(report.settings, INVARIANCE_N).length);
     expect(structural || c.declared !== undefined, `${report.estimator}: ${c.check} is not applicable without a declared reason: ${c.evidence}`).toBe(true);
   }
 }
@@ -306,6 +308,19 @@ const brokenEstimators: [CheckName, string, () => Promise<Estimator> | Estimator
       broken(vasicek, 'misreporting-vasicek', {
         resolve: (sample, settings) => ({ ...settings, m: settings.m === 'auto' ? defaultWindow(sample.n) + 1 : settings.m }),
       }),
+  ],
+  [
+    'tuning-responds',
+    'reads its window under a misspelt name, so every m of the tuning grid runs the default',
+    () =>
+      broken(vasicek, 'deaf-vasicek', {
+        estimate: (sample, settings) => vasicek.estimate(sample, { ...settings, m: (settings as Record<string, unknown>).window ?? 'auto' }),
+      }),
+  ],
+  [
+    'tuning-responds',
+    'fixes k = 3 in its code whatever the setting says (mutual information)',
+    () => broken(getEstimator('ksg1'), 'fixed-k-ksg1', { estimate: (sample, settings) => getEstimator('ksg1').estimate(sample, { ...settings, k: 3 }) }),
   ],
   [
     'scale',
@@ -639,7 +654,7 @@ describe('hhat check', () => {
     const { code, out, err } = await runCli(['check', example]);
     expect(err).toBe('');
     expect(code).toBe(0);
-    expect(out).toMatch(/^detrended-kozachenko-leonenko:k=3,drift=linear \(entropy, samples from normal:mu=0,sigma=1\): passes: 7 pass, 3 not applicable/);
+    expect(out).toMatch(/^detrended-kozachenko-leonenko:k=3,drift=linear \(entropy, samples from normal:mu=0,sigma=1\): passes: 8 pass, 3 not applicable/);
     for (const check of checksFor('entropy')) expect(out).toMatch(new RegExp(`^  (pass|n/a )  ${check} +\\S`, 'm'));
     expect(out).toMatch(/^ {2}n\/a {3}row-order +declared lacking \(lacks\.rowOrder\): drift=linear removes a trend fitted in recording order/m);
     expect(out).toMatch(/^ {2}pass {2}known-value +normal:mu=0,sigma=1, n = 4000: .* allowed 0\.15\)$/m);

@@ -46,6 +46,7 @@ export const CHECKS = [
   'leaves-sample-unchanged',
   'row-order',
   'configured-resolved',
+  'tuning-responds',
   'scale',
   'translation',
   'symmetry',
@@ -427,6 +428,63 @@ const configuredResolved: Body = (context) => {
   };
 };
 
+/** A grid's values for evidence: all of them when few, else the first and last. */
+function gridLabel(values: readonly SettingValue[]): string {
+  return values.length <= 4 ? values.map(String).join(', ') : `${String(values[0])}, …, ${String(values[values.length - 1])}`;
+}
+
+/**
+ * Along each axis of its tuning grid (at the suite's n), the estimate must move. A robustness run reports the
+ * spread of the estimates over the grid as the estimator's sensitivity to its tuning; an estimator that ignores
+ * the setting (a misspelt name read, a value fixed in its code) shows a spread of 0 there and would be called
+ * perfectly robust. Grid values whose estimate fails here are left out; with fewer than two estimates an axis says
+ * nothing, and the check fails only on an axis whose estimates are all bit-identical.
+ */
+const tuningResponds: Body = (context) => {
+  const { estimator, settings, base } = context;
+  const axes = estimator.tuning?.(settings, base.n) ?? [];
+  if (!axes.length) return { status: 'not-applicable', evidence: 'no tuning grid' };
+  const parts: string[] = [];
+  const ignored: string[] = [];
+  for (const axis of axes) {
+    const values = axis.values;
+    const estimates: number[] = [];
+    for (const value of values) {
+      let given: Settings;
+      try {
+        given = validateSettings(estimator.id, estimator.settings, { ...settings, [axis.setting]: value });
+      } catch {
+        continue;
+      }
+      const outcome = attempt(context, cloneSample(base), given);
+      if (outcome.kind === 'value') estimates.push(outcome.value);
+    }
+    const grid = `${axis.setting} = ${gridLabel(values)}`;
+    if (estimates.length < 2) {
+      parts.push(`${grid}: ${estimates.length} of ${values.length} values gave an estimate at n = ${base.n}, too few to compare`);
+      continue;
+    }
+    const distinct = new Set(estimates).size;
+    const low = Math.min(...estimates);
+    const high = Math.max(...estimates);
+    if (distinct === 1) {
+      ignored.push(axis.setting);
+      parts.push(`${grid}: all ${estimates.length} estimates are ${show(low)}, bit for bit`);
+    } else {
+      parts.push(`${grid}: ${distinct} distinct estimates of ${estimates.length}, ${show(low)} to ${show(high)}`);
+    }
+  }
+  const evidence = parts.join('; ');
+  if (ignored.length) {
+    const names = ignored.join(' and ');
+    return {
+      status: 'fail',
+      evidence: `${evidence}: the estimate does not depend on ${names}, so a robustness run would report no tuning spread for ${ignored.length === 1 ? 'it' : 'them'}`,
+    };
+  }
+  return { status: 'pass', evidence };
+};
+
 function factorLabel(c: number): string {
   if (Number.isInteger(c)) return `${c}`;
   return `${c < 0 ? '−' : ''}1/${Math.round(1 / Math.abs(c))}`;
@@ -687,6 +745,7 @@ const BODIES: Record<CheckName, Body> = {
   'leaves-sample-unchanged': leavesSampleUnchanged,
   'row-order': rowOrder,
   'configured-resolved': configuredResolved,
+  'tuning-responds': tuningResponds,
   scale,
   translation,
   symmetry,
