@@ -314,7 +314,7 @@ const brokenEstimators: [CheckName, string, () => Promise<Estimator> | Estimator
     'reads its window under a misspelt name, so every m of the tuning grid runs the default',
     () =>
       broken(vasicek, 'deaf-vasicek', {
-        estimate: (sample, settings) => vasicek.estimate(sample, { ...settings, m: (settings as Record<string, unknown>).window ?? 'auto' }),
+        estimate: (sample, settings) => vasicek.estimate(sample, { ...settings, m: settings.window ?? 'auto' }),
       }),
   ],
   [
