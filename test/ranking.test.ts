@@ -32,6 +32,28 @@ describe('model confidence set (reference: NumPy implementation of Hansen, Lunde
     expect(modelConfidenceSet(losses, { level: 0.9, seed: 's' })).toEqual(modelConfidenceSet(losses, { level: 0.9, seed: 's' }));
   });
 
+  it('gives the same p-values to losses near the top of the double range as to the same losses scaled down', () => {
+    // The statistic is a ratio, so a common scale cannot change it. Squared bootstrap deviations of losses near
+    // 1e200 (an estimate 1e100 off) overflowed to +∞: the spread was +∞, t = 0, and the worst estimator's p-value
+    // was 1 (found by a statistician's review: such an estimator ranked "1=").
+    for (const c of reference.cases) {
+      const options = { level: 0.95, seed: 'unused', resamples: c.resamples, indices: Uint32Array.from(c.indices) };
+      const scaled = modelConfidenceSet(
+        c.losses.map((l) => l.map((x) => x * 2 ** 700)),
+        options,
+      );
+      expect(scaled.pValues, c.name).toEqual(modelConfidenceSet(c.losses, options).pValues);
+    }
+    // An exact estimator against one that is 30 off on 3 of 30 draws and exact elsewhere, and the same with the
+    // far-off losses 2^600 times larger (errors near 1e92): the same p-value, not 1.
+    const exact = new Array<number>(30).fill(0);
+    const ordinary = exact.map((_x, r) => (r % 10 === 3 ? 900 : 0));
+    const wild = ordinary.map((x) => x * 2 ** 600);
+    const [pOrdinary, pWild] = [ordinary, wild].map((l) => modelConfidenceSet([exact, l], { level: 0.95, seed: 'wild' }).pValues[1]);
+    expect(pOrdinary).toBeLessThan(1);
+    expect(pWild).toBe(pOrdinary);
+  });
+
   it('keeps one estimator, or identical ones, without a test', () => {
     expect(modelConfidenceSet([[1, 2, 3]], { level: 0.95, seed: 's' }).inSet).toEqual([true]);
     const same = [0.3, 0.1, 0.7, 0.2];
@@ -106,12 +128,12 @@ describe('best set verdicts on constructed cases', () => {
     expect(entry.rank).toBe(2);
   });
 
-  it('of two estimators of equal mean squared error, keeps the one closer on most draws and drops the other only when the closer one leads (400 simulations)', () => {
+  it('of two estimators of equal mean squared error, keeps the one closer on most draws and drops the other, whichever leads (400 simulations)', () => {
     // A is 1 off on every draw; B is √0.5 off on 80% of draws and √3 off on the rest: E[loss] = 1 for both
     // (0.8·0.5 + 0.2·3 = 1, by hand). The set aims at the estimators of smallest mean squared error that no other
     // beats on more than half of the draws: B, not A (B beats A on 80% of draws). B should be in the set in at
-    // least 95% of simulations; A is dropped by the sign-test guard, but only when B leads (has the smaller
-    // sample RMSE), since the guard tests members against the leader.
+    // least 95% of simulations; A is dropped by the sign-test guard, also when its sample RMSE is the smaller
+    // (every pair of members is tested, not members against a leader).
     const uniform = rngFromSeed('equal mse');
     const R = 100;
     const simulations = 400;
@@ -130,11 +152,37 @@ describe('best set verdicts on constructed cases', () => {
       }
     }
     // Binomial 99.9% bound for 400 draws at 5%: 8.4%, allowed as 8.5% (as in the next test). Measured when
-    // written: B missed in 2 of 400, A dropped in 188 of 400 (47%), never while it led.
+    // written: B missed in 2 of 400; A dropped in 398 of 400, 169 of them while its RMSE was the smaller (the
+    // guard against the leader dropped A in 188, never while A led).
     expect(missedB / simulations).toBeLessThan(0.085);
-    expect(droppedAWhileLeading).toBe(0);
-    expect(droppedA / simulations).toBeGreaterThan(0.3);
-    expect(droppedA / simulations).toBeLessThan(0.7);
+    expect(droppedA / simulations).toBeGreaterThan(0.95);
+    expect(droppedAWhileLeading).toBeGreaterThan(0);
+  });
+
+  it('keeps every one of eight equally good estimators in at least about 95% of simulated benchmarks (400 simulations)', () => {
+    // Exchangeable estimators (errors share the draw's component, plus noise of their own of one law): each is a
+    // target of the set, and each beats each other on half of the draws. Testing members against the leader (the
+    // member of smallest RMSE, chosen from the same draws) dropped one in 9% of these simulations, at a nominal
+    // 5% (found by a statistician's review); every pair tested, with Holm, holds the level.
+    const normal = normalRandom.factory({ prng: rngFromSeed('exchangeable') });
+    const R = 30;
+    const simulations = 400;
+    let missed = 0;
+    for (let s = 0; s < simulations; s++) {
+      const shared = Array.from({ length: R }, () => normal(0, 0.1));
+      const cells = Array.from({ length: 8 }, (_, i) =>
+        cell(
+          `E${i}`,
+          shared.map((x) => x + normal(0, 0.05)),
+          0,
+        ),
+      );
+      const ranking = rankCell(cells, 0, { level: 0.95, maxFailureRate: 0 }, `exchangeable ${s}`);
+      if (ranking.entries.some((e) => !e.best)) missed++;
+    }
+    // Binomial 99.9% bound for 400 draws at 5%: 8.4%, allowed as 8.5%. Measured when written: 20 of 400 (5.0%;
+    // the confidence set and the guard spend 2.5% each). The guard against the leader: 36 of 400 (9%).
+    expect(missed / simulations).toBeLessThan(0.085);
   });
 
   it('misses a best estimator in at most about 5% of simulated benchmarks (two equally good, three worse; 400 simulations)', () => {

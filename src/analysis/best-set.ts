@@ -149,14 +149,21 @@ function bootstrapDeviations(rows: Float64Array[], mean: Float64Array, indices: 
   return zeta;
 }
 
-/** √v̂_ij for every pair, symmetric (v̂_ij does not depend on M: one pass over the resamples serves every step). */
+/**
+ * √v̂_ij for every pair, symmetric (v̂_ij does not depend on M: one pass over the resamples serves every step).
+ * Each pair's sum of squares is taken in units of s_ij = max_b |ζ_bi| + max_b |ζ_bj| ≥ |ζ_bi − ζ_bj|, so that no
+ * square overflows: an estimator 1e100 off on a few draws has deviations near 1e200, whose squares are +∞ in
+ * double precision; v̂ was then +∞, its t statistics 0 and its p-value 1, the set's highest.
+ */
 function pairSpreads(zeta: Float64Array, models: number, resamples: number): Float64Array {
   // Two functions, one loop nest each: V8 compiled the first loop while it ran, without type information for
   // the second, and threw that code away on reaching it, again for every cell (30 times in a default run).
-  const pairScale = pairSquareSums(zeta, models, resamples);
+  const largest = largestDeviations(zeta, models, resamples);
+  const pairScale = pairSquareSums(zeta, largest, models, resamples);
   for (let i = 0; i < models; i++) {
     for (let j = i + 1; j < models; j++) {
-      const sd = Math.sqrt(pairScale[i * models + j] / resamples);
+      const unit = largest[i] + largest[j];
+      const sd = unit > 0 ? unit * Math.sqrt(pairScale[i * models + j] / resamples) : 0;
       pairScale[i * models + j] = sd;
       pairScale[j * models + i] = sd;
     }
@@ -164,14 +171,27 @@ function pairSpreads(zeta: Float64Array, models: number, resamples: number): Flo
   return pairScale;
 }
 
-/** Σ_b (ζ_bi − ζ_bj)² for every pair i < j, at [i·models + j]. */
-function pairSquareSums(zeta: Float64Array, models: number, resamples: number): Float64Array {
+/** max_b |ζ_bi| for each estimator i. */
+function largestDeviations(zeta: Float64Array, models: number, resamples: number): Float64Array {
+  const largest = new Float64Array(models);
+  for (let b = 0; b < resamples; b++) {
+    const row = b * models;
+    for (let i = 0; i < models; i++) largest[i] = Math.max(largest[i], Math.abs(zeta[row + i]));
+  }
+  return largest;
+}
+
+/** Σ_b ((ζ_bi − ζ_bj)/s_ij)² for every pair i < j, at [i·models + j] (s_ij as in pairSpreads; 0 where s_ij is 0). */
+function pairSquareSums(zeta: Float64Array, largest: Float64Array, models: number, resamples: number): Float64Array {
   const pairScale = new Float64Array(models * models);
   for (let b = 0; b < resamples; b++) {
     const row = b * models;
     for (let i = 0; i < models; i++) {
       for (let j = i + 1; j < models; j++) {
-        const difference = zeta[row + i] - zeta[row + j];
+        // A division, not a product with 1/s: 1/s overflows where s is subnormal. |ζ_bi − ζ_bj| ≤ s, so 0/0
+        // (both deviations 0 in every resample) is the only non-finite case, and it is skipped.
+        const unit = largest[i] + largest[j];
+        const difference = unit > 0 ? (zeta[row + i] - zeta[row + j]) / unit : 0;
         pairScale[i * models + j] += difference * difference;
       }
     }

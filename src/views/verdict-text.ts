@@ -46,14 +46,14 @@ export function wideBestSetNote(rankings: Ranking[], label: (spec: string) => st
   const high = Math.max(...counts);
   const replicates = low === high ? `${low}` : `${low}–${high}`;
   const list = [...where.entries()].map(([spec, sizes]) => `${label(spec)} (n = ${sizes.join(', ')})`).join('; ');
-  return `In the best set with at least twice the leader's RMSE: ${list}. Over ${replicates} replicates their squared errors vary too much to be told apart from the best, and the leader is not shown (sign test, Holm) to beat them on most draws; more replicates would separate them if they are worse.`;
+  return `In the best set with at least twice the leader's RMSE: ${list}. Over ${replicates} replicates their squared errors vary too much to be told apart from the best, and no other member is shown (sign tests over every pair, Holm) to beat them on most of the draws where the two differ; more replicates would separate them if they are worse.`;
 }
 
 /** One line under a ranked table: the procedure, its level and the failure rule, as in the README. */
 export function rankLegend(level: number, maxFailureRate: number): string {
   const pct = `${+(level * 100).toPrecision(6)}%`;
   const failures = maxFailureRate === 0 ? 'fails on any replicate' : `fails on more than ${+(maxFailureRate * 100).toPrecision(6)}% of replicates`;
-  return `Rank "1=": in the best set at level ${pct}: mean squared error not shown to be above the best's (model confidence set on paired squared errors, Hansen, Lunde & Nason 2011) and the leader not shown to beat it on most draws (one-sided sign test, Holm). An estimator that ${failures} of a cell is ranked last there.`;
+  return `Rank "1=": in the best set at level ${pct}: mean squared error not shown to be above the best's (model confidence set on paired squared errors, Hansen, Lunde & Nason 2011) and no other member shown to beat it on most of the draws where the two differ (one-sided sign tests over every pair of members, Holm). An estimator that ${failures} of a cell is ranked last there.`;
 }
 
 export const COLUMN_TITLES: Record<string, string> = {
