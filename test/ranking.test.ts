@@ -206,6 +206,26 @@ describe('best set verdicts on constructed cases', () => {
     expect(excludedWorst / simulations).toBeGreaterThan(0.95);
   });
 
+  it('with failures allowed, an estimator that fails on the draws it would get wrong loses those draws in the sign test', () => {
+    // C answers exactly as B where B is within 0.03 of the truth and fails elsewhere (about half the draws), so on
+    // the draws both answered the two tie, and C's RMSE over its own answers is the smaller. Found by a
+    // statistician's review: C led the set. Counting each failure as a loss to B's estimate, C loses about 30
+    // draws and wins none.
+    const normal = normalRandom.factory({ prng: rngFromSeed('selective failures') });
+    const b = Array.from({ length: 60 }, () => normal(0, 0.05));
+    const c = b.map((e) => (Math.abs(e) <= 0.03 ? e : null));
+    const failures = c.filter((e) => e === null).length;
+    expect(failures).toBeGreaterThan(20);
+    const ranking = rankCell([cell('C', c, 0), cell('B', b, 0)], 0, { level: 0.95, maxFailureRate: 0.8 }, 'selective');
+    expect(ranking.entries.map((e) => [e.estimator, e.rank, e.best, e.status])).toEqual([
+      ['B', 1, true, 'ranked'],
+      ['C', 2, false, 'ranked'],
+    ]);
+    // One-sided sign test: C worse on every draw it failed, better on none: p = 2^-failures (by hand).
+    expect(ranking.entries[1].signP).toBeCloseTo(2 ** -failures, 20);
+    expect(ranking.entries[1].rmse).toBeLessThan(ranking.entries[0].rmse);
+  });
+
   it('a failing estimator is listed after every one that ran and takes the last rank; an overflowing error comes before it', () => {
     const truth = 1;
     const good = [1.1, 0.9, 1.05, 0.95, 1.02, 0.97];

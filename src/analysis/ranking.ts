@@ -11,12 +11,12 @@
  *    mean loss either; it comes after the comparable ones, before the failed ones.
  * 3. The rest are compared on their squared errors over the replicates where all of them succeeded (every
  *    replicate when maxFailureRate is 0). The best set is their Model Confidence Set (src/analysis/best-set.ts), less
- *    any member that another member beats on significantly more of those draws than it loses to it (the
- *    sign-test guard below); the two checks share α = 1 − level by Bonferroni, α/2 each. What the set aims to
+ *    any member that another member beats on significantly more draws than it loses to it, a failure losing to
+ *    an estimate (the sign-test guard below); the two checks share α = 1 − level by Bonferroni, α/2 each. What the set aims to
  *    hold is therefore not every estimator of smallest mean squared error, but every such estimator that no
  *    other one beats on more than half of the draws: an estimator of equal mean squared error that loses on
  *    most draws is left out on purpose. Best-set members share rank 1; the others follow by RMSE with ordinal
- *    ranks.
+ *    ranks; within each part, estimators with (allowed) failures come after those without.
  *
  * Average ranks per dimension/tail group run over the same cells for every estimator: all the group's cells
  * it could run by design (a cell exists for it), failed ones counted as last. Cells it cannot run by design
@@ -124,11 +124,14 @@ export function rankCell(group: RankableCell[], truth: number, settings: Verdict
   const result = usable ? modelConfidenceSet(losses, { level: 1 - alpha / 2, seed }) : null;
   const pOf = new Map(comparable.map((c, i) => [c, result ? result.pValues[i] : 1]));
   const members = comparable.filter((_c, i) => (result ? result.inSet[i] : true));
-  const guard = signGuard(members, comparable, losses, alpha / 2);
+  const guard = signGuard(members, truth, alpha / 2);
   const inSet = (c: RankableCell) => members.includes(c) && !guard.dropped.has(c);
 
-  const best = comparable.filter(inSet).sort(byRmse);
-  const rest = comparable.filter((c) => !inSet(c)).sort(byRmse);
+  // Within the set and below it, an estimator with failures (allowed by maxFailureRate) comes after those without:
+  // its RMSE is over the draws it answered, which may be the easy ones, so it cannot head the list by that RMSE.
+  const byFailuresThenRmse = (a: RankableCell, b: RankableCell) => Number(a.scores.failures > 0) - Number(b.scores.failures > 0) || byRmse(a, b);
+  const best = comparable.filter(inSet).sort(byFailuresThenRmse);
+  const rest = comparable.filter((c) => !inSet(c)).sort(byFailuresThenRmse);
   const entry = (c: RankableCell, rank: number, status: RankStatus): RankEntry => ({
     estimator: c.estimator,
     rank,
@@ -153,7 +156,8 @@ export function rankCell(group: RankableCell[], truth: number, settings: Verdict
 /**
  * The second check on the best set: a member that another member beats on significantly more draws than it loses
  * to it is dropped. For every ordered pair of members (c, d), a one-sided exact sign test on the paired squared
- * errors that c is worse than d on more draws than better (ties dropped); Holm's step-down over all K(K − 1) of
+ * errors over all the cell's draws, a failure losing to an estimate (drawsWorseAndBetter), that c is worse than d
+ * on more draws than better (ties dropped); Holm's step-down over all K(K − 1) of
  * them (Holm, Scand. J. Statist. 6:65–70, 1979) at `level`. A mean cannot separate an estimator whose squared
  * errors are dominated by a few far-off draws (the same draws inflate the mean's SE), however often it loses; the
  * sign test counts every draw once. (The confidence set's bootstrap also assumes loss differences with finite
@@ -166,27 +170,15 @@ export function rankCell(group: RankableCell[], truth: number, settings: Verdict
  * holds its level, and Holm holds the family's. Should every member be beaten by another (a cycle, which sign
  * tests allow), the guard drops none: it cannot say which of them is best.
  */
-function signGuard(
-  members: RankableCell[],
-  comparable: RankableCell[],
-  losses: number[][],
-  level: number,
-): { p: Map<RankableCell, number>; dropped: Set<RankableCell> } {
+function signGuard(members: RankableCell[], truth: number, level: number): { p: Map<RankableCell, number>; dropped: Set<RankableCell> } {
   const p = new Map<RankableCell, number>();
   const dropped = new Set<RankableCell>();
   if (members.length < 2) return { p, dropped };
   const tests: { loser: RankableCell; p: number }[] = [];
   for (const c of members) {
-    const loss = losses[comparable.indexOf(c)];
     for (const d of members) {
       if (d === c) continue;
-      const other = losses[comparable.indexOf(d)];
-      let worse = 0;
-      let better = 0;
-      for (let r = 0; r < loss.length; r++) {
-        if (loss[r] > other[r]) worse++;
-        else if (loss[r] < other[r]) better++;
-      }
+      const { worse, better } = drawsWorseAndBetter(c.estimates, d.estimates, truth);
       const pValue = signTestAbove(worse, better);
       tests.push({ loser: c, p: pValue });
       p.set(c, Math.min(p.get(c) ?? 1, pValue));
@@ -198,6 +190,30 @@ function signGuard(
   });
   if (dropped.size === members.length) dropped.clear();
   return { p, dropped };
+}
+
+/**
+ * On how many draws `mine` is further from the truth than `theirs`, and on how many closer. A failure (null) loses
+ * to an estimate and ties with a failure: failures count against the estimator that failed, also where the plan
+ * allows some, so an estimator that fails on the draws it would get wrong is not judged on the others alone.
+ */
+function drawsWorseAndBetter(mine: (number | null)[], theirs: (number | null)[], truth: number): { worse: number; better: number } {
+  let worse = 0;
+  let better = 0;
+  for (let r = 0; r < mine.length; r++) {
+    const a = mine[r];
+    const b = theirs[r];
+    if (a === null || b === null) {
+      if (a === null && b !== null) worse++;
+      else if (a !== null && b === null) better++;
+      continue;
+    }
+    const lossA = (a - truth) ** 2;
+    const lossB = (b - truth) ** 2;
+    if (lossA > lossB) worse++;
+    else if (lossA < lossB) better++;
+  }
+  return { worse, better };
 }
 
 /** Rankings of every (scenario, n, perturbation) group of cells; `seedOf` names each group's bootstrap seed. */

@@ -32,7 +32,9 @@ export function rankText(entry: RankEntry, ranking: Ranking): string {
  */
 export function wideBestSetMembers(ranking: Ranking): RankEntry[] {
   const best = ranking.entries.filter((e) => e.best);
-  const leader = Math.min(...best.map((e) => e.rmse));
+  // The leader by RMSE among members without failures: an RMSE over the draws an estimator chose to answer is no yardstick.
+  const whole = best.filter((e) => e.failures === 0);
+  const leader = Math.min(...(whole.length ? whole : best).map((e) => e.rmse));
   return best.filter((e) => Number.isFinite(e.rmse) && e.rmse >= 2 * leader);
 }
 
