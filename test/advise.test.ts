@@ -492,7 +492,7 @@ describe('advice that no estimator is usable', () => {
     });
   };
 
-  it('a runner-up whose mean RMSE is within twice the combined SE is called about equally good, not beaten (constructed)', async () => {
+  it('a runner-up whose mean RMSE is within twice the combined SE is called not separated by the data, not beaten (constructed)', async () => {
     const { summarise, recommend } = await import('../src/analysis/advise/recommend.js');
     const bench = await twoLawBench();
     const [first, second] = summarise(bench.run);
@@ -502,10 +502,10 @@ describe('advice that no estimator is usable', () => {
     ];
     // 0.11 − 0.10 = 0.01 ≤ 2·√(0.01² + 0.01²) = 0.0283 (by hand): a tie in all but name.
     expect(recommend(bench.run, withRmse(0.11, 0.01)).reason).toContain(
-      `its mean RMSE (0.110 ± 0.010 against 0.100) is within twice their combined SE: the two are about equally good here, and the pick follows the lower mean.`,
+      `its mean RMSE (0.110 ± 0.010 against 0.100) is within twice their combined SE: the data do not separate the two, and the pick follows the lower mean.`,
     );
     // 0.2 − 0.1 = 0.1 > 0.0283: no such clause.
-    expect(recommend(bench.run, withRmse(0.2, 0.01)).reason).not.toContain('about equally good');
+    expect(recommend(bench.run, withRmse(0.2, 0.01)).reason).not.toContain('do not separate');
   });
 
   it('a runner-up in the best set where the recommended one is not is named there (constructed best sets)', async () => {

@@ -165,7 +165,7 @@ describe('comparing runs', () => {
     const text = await run(['compare', basePath, basePath, '--fail-on', 'changed']);
     expect(text.code).toBe(0);
     expect(text.out).toMatch(/^Paired: both runs drew the same samples/m);
-    expect(text.out).toContain('0 worse, 0 improved, 0 changed within noise or tolerance, 24 unchanged');
+    expect(text.out).toContain('0 worse, 0 improved, 0 changed, not significantly or within tolerance, 24 unchanged');
     const json = await run(['compare', basePath, basePath, '--json']);
     expect(json.code).toBe(0);
     const parsed = JSON.parse(json.out) as Comparison;
@@ -258,7 +258,7 @@ describe('comparing runs', () => {
 
     // Markdown: the summary line first, then the changed cells, all of them KL and all worse.
     const lines = cli.out.split('\n');
-    expect(lines[0]).toBe('**hhat compare: 12 worse, 0 improved, 0 changed within noise or tolerance, 12 unchanged** (paired, tolerance 0 nats)');
+    expect(lines[0]).toBe('**hhat compare: 12 worse, 0 improved, 0 changed, not significantly or within tolerance, 12 unchanged** (paired, tolerance 0 nats)');
     const changedRows = lines.filter((l) => l.startsWith('| **worse**'));
     expect(changedRows).toHaveLength(12);
     expect(changedRows.every((l) => l.includes('`kozachenko-leonenko:'))).toBe(true);
@@ -282,7 +282,7 @@ describe('comparing runs', () => {
     // (the tests find the shift; its estimated size is within the tolerance), and CI passes.
     const lenient = await run(['compare', basePath, shiftedPath, '--fail-on', 'worse', '--tolerance', '0.05']);
     expect(lenient.code).toBe(0);
-    expect(lenient.out).toContain('0 worse, 0 improved, 12 changed within noise or tolerance, 12 unchanged');
+    expect(lenient.out).toContain('0 worse, 0 improved, 12 changed, not significantly or within tolerance, 12 unchanged');
     const statuses = lenient.out.split('\n').filter((l) => l.startsWith('│ changed'));
     expect(statuses).toHaveLength(12);
     expect(statuses.every((l) => l.startsWith('│ changed within tolerance'))).toBe(true);
@@ -557,7 +557,7 @@ describe('comparing runs', () => {
     const found = comparison.cells.filter((c) => changeFound(c));
     expect(found).toEqual([]);
     expect(failsPolicy(comparison, 'changed')).toBe(false);
-    expect(formatComparisonText(comparison)).toContain('│ no change found');
+    expect(formatComparisonText(comparison)).toContain('│ no significant change');
   });
 
   it('unpaired failures compare rates, not counts: 10 of 200 → 8 of 20 is worse', async () => {

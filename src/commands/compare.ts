@@ -26,7 +26,7 @@ export function registerCompareCommand(program: Command, print: (text: string) =
     .option('--tolerance <t>', 'smallest |ΔRMSE| that counts as worse or improved: nats (0.01) or a percentage of the base RMSE (5%)', '0')
     .option(
       '--level <c>',
-      '1 − the chance that any unchanged cell is called worse or improved (over all changed cells by Holm, within a cell over its tests by Bonferroni)',
+      '1 − the chance that any cell whose estimates did not change in distribution is called worse or improved (over all changed cells by Holm, within a cell over its tests by Bonferroni)',
       '0.95',
     )
     .option(

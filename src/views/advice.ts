@@ -77,7 +77,7 @@ export function renderSituationAdvice(advice: SituationAdvice): string {
         'estimator',
         'mean RMSE ± SE (nats)',
         count > 1 ? 'RMSE range' : 'RMSE',
-        'best on',
+        'in best set',
         'failures',
         'ms/estimate',
         'rescale',
@@ -91,7 +91,7 @@ export function renderSituationAdvice(advice: SituationAdvice): string {
   lines.push(recommendationLine(advice.recommendation));
   lines.push('');
   lines.push(
-    `Mean RMSE: the average over the scenarios, its SE from their Monte-Carlo errors; "best on": scenarios where it is in the best set (README, "Ranks and the best set"). Robustness at n = ${advice.n}, worst scenario: rescale = unit drift beyond the exact d·log c shift (pass: exact to rounding); quantize = the coarsest recording step, in SDs, that moves the bias by less than 0.25 SD (pass ≥ 0.1, warn ≥ 0.01); outliers = shift per 1% of far outliers (pass < 1 SD, warn < 5 SD). See README, "Reading the robustness table".`,
+    `Mean RMSE: the average over the scenarios, its SE from their Monte-Carlo errors; "in best set": the scenarios where it is in the best set (README, "Ranks and the best set"). Robustness at n = ${advice.n}, worst scenario: rescale = unit drift beyond the exact d·log c shift (pass: exact to rounding); quantize = the coarsest recording step, in SDs, that moves the bias by less than 0.25 SD (pass ≥ 0.1, warn ≥ 0.01); outliers = shift per 1% of far outliers (pass < 1 SD, warn < 5 SD). See README, "Reading the robustness table".`,
   );
   for (const w of advice.warnings) lines.push(`Note: ${w}`);
   lines.push(`Done in ${seconds(advice.seconds)} (budget ${advice.budgetSeconds} s).`);

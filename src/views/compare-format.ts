@@ -22,22 +22,22 @@ import {
 const STATUS_LABEL: Record<CellStatus, string> = {
   worse: 'worse',
   improved: 'improved',
-  'changed-within-noise': 'changed within noise or tolerance',
+  'changed-within-noise': 'changed, not significantly or within tolerance',
   unchanged: 'unchanged',
 };
 
 /**
  * A cell's status as shown. A changed cell that is neither worse nor improved says which: "within tolerance"
  * when a test found the change (p within the cell's test level) but the estimated change is within the
- * tolerance; otherwise, on the same draws, "accuracy within noise" (the estimates did change), and on different
- * draws "no change found". The JSON keeps the one status `changed-within-noise` for all three.
+ * tolerance; otherwise, on the same draws, "accuracy change not significant" (the estimates did change), and on
+ * different draws "no significant change". The JSON keeps the one status `changed-within-noise` for all three.
  */
 function cellStatusLabel(c: CellComparison): string {
   if (c.status !== 'changed-within-noise') return STATUS_LABEL[c.status];
   if (changeFound(c)) return 'changed within tolerance';
-  // On the same draws the estimates did change (they are not bit-identical); only the change in accuracy is
-  // within noise. On different draws every estimate differs, and nothing was found.
-  return c.paired ? 'changed, accuracy within noise' : 'no change found';
+  // On the same draws the estimates did change (they are not bit-identical); the tests did not find their accuracy
+  // changed, which is not a finding that it is the same. On different draws every estimate differs, and nothing was found.
+  return c.paired ? 'changed, accuracy change not significant' : 'no significant change';
 }
 
 function signed(x: number, digits = 3): string {
@@ -178,7 +178,7 @@ function policyLine(comparison: Comparison): string {
     m > 1
       ? `The tests share α = ${alpha} over the ${countOf(m, 'changed cell')} by Holm's step-down (the cell with the smallest p is held to α/${m}, the next to α/${m - 1}, …), then by Bonferroni over a cell's ${k} tests (the first cell's each at α/(${k}·${m}) = ${+(comparison.testLevel / m).toPrecision(3)}), so the chance that any cell whose estimates did not change in distribution is called worse or improved is at most α (approximately: the t test is a large-sample test; ${exact} exact).`
       : `The tests share α = ${alpha} by Bonferroni (${+comparison.testLevel.toPrecision(3)} each), so a cell whose estimates did not change in distribution is called worse or improved with probability at most α (approximately: the t test is a large-sample test; ${exact} exact).`;
-  return `A cell is worse (or improved) when ${tests}; worse wins over improved. The tests are of no change; the tolerance applies to the estimated change, so a cell found to change by less is "within tolerance", and "worse" does not claim that the true change exceeds the tolerance. "cell p (Holm)" decides: worse or improved when it is at most α; the p column is the t test's own p, unadjusted, and the interval is at 1 − α/${k} = ${intervalLevel(comparison)}, Bonferroni over the cell's own tests without Holm's share over cells, so it can exclude 0 in a cell the tests leave unchanged within noise. ${sharing} A new estimate more than ${WILD_FACTOR} times the base run's largest error away from the truth makes a cell worse on its own. Changes ± SE are ${comparison.pairing.paired ? 'paired, over the replicates where both runs succeeded' : 'unpaired'}.`;
+  return `A cell is worse (or improved) when ${tests}; worse wins over improved. The tests are of no change; the tolerance applies to the estimated change, so a cell found to change by less is "within tolerance", and "worse" does not claim that the true change exceeds the tolerance. "cell p (Holm)" decides: worse or improved when it is at most α; the p column is the t test's own p, unadjusted, and the interval is at 1 − α/${k} = ${intervalLevel(comparison)}, Bonferroni over the cell's own tests without Holm's share over cells, so it can exclude 0 in a cell where the tests find no significant change. ${sharing} A new estimate more than ${WILD_FACTOR} times the base run's largest error away from the truth makes a cell worse on its own. ${comparison.pairing.paired ? 'RMSEs and changes ± SE are paired, over the replicates where both runs succeeded' : 'Changes ± SE are unpaired'}.`;
 }
 
 function refLines(title: string, refs: CellRef[]): string[] {

@@ -7,7 +7,7 @@
  *   const choice = recommend(run, summaries);  // { recommended, runnerUp, reason }
  *
  * The recommended estimator is the first by mean RMSE among those that did not fail any scenario (the run's
- * failure rule: README, "Ranks and the best set"); "best on" counts the scenarios where it is in the best set
+ * failure rule: README, "Ranks and the best set"); "in best set" counts the scenarios where it is in the best set
  * (the model confidence set at the run's level).
  */
 import type { ValueWithSe } from '../score.js';
@@ -240,7 +240,7 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 
   const lead =
     count === 1
       ? `${recommended.label} has the lowest RMSE on the ${subject === 'look-alike' ? 'look-alike' : 'matching scenario'} (${formatNats(recommended.meanRmse.value)} ± ${formatNats(recommended.meanRmse.se)} nats) and ${failurePart}`
-      : `${recommended.label} has the lowest mean RMSE (${formatNats(recommended.meanRmse.value)} ± ${formatNats(recommended.meanRmse.se)} nats), is best on ${recommended.wins} of ${plural(count, 'matching scenario')} and ${failurePart}`;
+      : `${recommended.label} has the lowest mean RMSE (${formatNats(recommended.meanRmse.value)} ± ${formatNats(recommended.meanRmse.se)} nats), is in the best set on ${recommended.wins} of ${plural(count, 'matching scenario')} and ${failurePart}`;
   let tail = '';
   let runnerUpTiedOn: string[] = [];
   if (runnerUp) {
@@ -267,7 +267,7 @@ export function recommend(run: RunFile, summaries: EstimatorSummary[], subject: 
       const gap = runnerUp.meanRmse.value - recommended.meanRmse.value;
       if (gap <= 2 * Math.hypot(recommended.meanRmse.se, runnerUp.meanRmse.se)) {
         const [mine, theirs] = distinguishable(recommended.meanRmse.value, runnerUp.meanRmse.value);
-        tail += `, and its mean RMSE (${theirs} ± ${formatNats(runnerUp.meanRmse.se)} against ${mine}) is within twice their combined SE: the two are about equally good here, and the pick follows the lower mean`;
+        tail += `, and its mean RMSE (${theirs} ± ${formatNats(runnerUp.meanRmse.se)} against ${mine}) is within twice their combined SE: the data do not separate the two, and the pick follows the lower mean`;
       }
     }
   }
