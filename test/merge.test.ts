@@ -108,6 +108,22 @@ describe('merge', () => {
     expect(existsSync(out)).toBe(false);
   });
 
+  // Found by a tester: merge replaced an unrelated finished run at --out (hours of another plan's work), where bench
+  // asks for --force.
+  it('does not replace a run file at --out without --force, and does with it', async () => {
+    const files = [1, 2, 3].map(shardPath);
+    const out = join(dir, 'kept.json');
+    writeRunFile(out, unsharded);
+    const before = readFileSync(out, 'utf8');
+    let err = '';
+    const io = { out: () => {}, err: (t: string) => (err += `${t}\n`) };
+    expect(await main(['merge', ...files, '--out', out, '--quiet'], io)).toBe(2);
+    expect(err).toBe(`hhat: --out ${out} already holds a run file; add --force to replace it, or choose another --out\n`);
+    expect(readFileSync(out, 'utf8')).toBe(before);
+    expect(await main(['merge', ...files, '--out', out, '--quiet', '--force'], io)).toBe(0);
+    expect(estimatesOf(readRunFile(out))).toEqual(estimatesOf(unsharded));
+  });
+
   it('names the role, perturbation and tuning of a missing cell, and every cell of a scenario and n deleted whole', () => {
     const twin = `${VASICEK},dequantize=auto`;
     expect(

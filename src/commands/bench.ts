@@ -40,6 +40,7 @@ import {
   refuseFolderOutput,
   refuseForeignOutput,
   refuseNonFolder,
+  nonEmptyFile,
   refuseSameFile,
   removeLeftoverTemporaries,
   sameFile,
@@ -598,13 +599,19 @@ export function registerBenchCommand(program: Command, print: (text: string) => 
     .requiredOption('--out <file>', 'the merged run file')
     .option('--bits', 'print values in bits instead of nats')
     .option('--quiet', "print only the merged run file's path on stdout")
-    .action((files: string[], options: { out: string; bits?: boolean; quiet?: boolean }) => {
+    .option('--force', 'replace an existing file at --out')
+    .action((files: string[], options: { out: string; bits?: boolean; quiet?: boolean; force?: boolean }) => {
       if (options.out.trim() === '') throw new UsageError('--out was given an empty value; it needs a file name');
       // Writing over a shard would lose it if anything went wrong later; the merged file is a new one.
       const input = files.find((f) => sameFile(f, options.out));
       if (input) throw new UsageError(`--out ${options.out} is one of the shards being merged (${input}); choose another --out`);
       refuseFolderOutput('--out', options.out, 'run.json');
-      refuseForeignOutput('--out', options.out, 'run', 'choose another --out (merge replaces only a run file)');
+      // A finished run at --out may be another plan's hours of work: replaced only on request, as bench does.
+      if (!options.force) {
+        refuseForeignOutput('--out', options.out, 'run', 'choose another --out, or add --force to replace it');
+        if (nonEmptyFile(options.out))
+          throw new UsageError(`--out ${options.out} already holds a run file; add --force to replace it, or choose another --out`);
+      }
       const run = mergeShards(files.map((path) => ({ path, run: readRunFile(path) })));
       writeRunFile(options.out, run);
       if (options.quiet) return print(resolve(options.out));

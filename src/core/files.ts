@@ -97,6 +97,16 @@ export function refuseForeignOutput(flag: string, path: string, kind: keyof type
   if (!isOurs(head)) throw new UsageError(`${flag} ${path} is an existing file that is not ${what}; ${hint}`);
 }
 
+/** Whether `path` is a file holding at least one byte (an empty file, as a shell's `> out` leaves, may be taken). */
+export function nonEmptyFile(path: string): boolean {
+  try {
+    const stat = statSync(path);
+    return stat.isFile() && stat.size > 0;
+  } catch {
+    return false;
+  }
+}
+
 /** Refuses two outputs (or an output and an input) of one command that name the same file: the later write would replace the earlier. */
 export function refuseSameFile(first: [flag: string, path: string], second: [flag: string, path: string]): void {
   if (sameFile(first[1], second[1])) throw new UsageError(`${second[0]} ${second[1]} is the same file as ${first[0]}; give it another name`);
