@@ -36,7 +36,7 @@ import {
   validateSettings,
   type Dequantize,
 } from '../src/core/spec.js';
-import { thinRows } from '../src/core/sample.js';
+import { copyOfSample, thinRows } from '../src/core/sample.js';
 import { dequantizeSample, type EstimateResolution } from './shared/dequantize.js';
 
 export type { EstimateResolution };
@@ -247,7 +247,11 @@ export function runEstimator(
   checkDimension(configured.estimator, sample.dim);
   // Thinning is the harness's, so every estimator (built-in, module or command) has it without a line of its own.
   const { sample: used, resolution } = dequantizeSample(thinRows(sample, configured.thin ?? 1), configured.dequantize);
-  const value: unknown = configured.estimator.estimate(used, configured.settings);
+  // A user's estimator (a module, a command) gets a copy: one that writes into its input would change what every
+  // later estimator of the replicate sees, and the failures would land on them. Built-ins are held to leaving their
+  // input unchanged by the conformance suite (leaves-sample-unchanged) and share the one array.
+  const given = builtInById.get(configured.estimator.id) === configured.estimator ? used : copyOfSample(used);
+  const value: unknown = configured.estimator.estimate(given, configured.settings);
   // A user's module is plain JavaScript: a string such as "1.5" must not pass for an estimate.
   if (typeof value !== 'number')
     throw new EstimateError('numeric', `${configured.estimator.id}: estimate must return a number (nats); it returned ${describeValue(value)}`);

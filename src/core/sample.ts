@@ -16,6 +16,11 @@ export function withRows(sample: Sample, n: number, data: Float64Array, q: Sampl
 }
 
 /** Copy of column j. */
+/** A copy of the sample's values (and of its Q sample), sharing nothing that could be written. */
+export function copyOfSample(sample: Sample): Sample {
+  return withRows(sample, sample.n, sample.data.slice(0, sample.n * sample.dim), sample.q && copyOfSample(sample.q));
+}
+
 export function column(sample: Sample, j: number): Float64Array {
   const out = new Float64Array(sample.n);
   for (let i = 0, p = j; i < sample.n; i++, p += sample.dim) out[i] = sample.data[p];
