@@ -323,6 +323,47 @@ describe('on the command line', () => {
     expect(existsSync(join(dir, 'never.json'))).toBe(false);
   });
 
+  // Found by a tester: a script that crashed on NaN or on too few points passed rejects-non-finite and
+  // rejects-too-few, as if its crash were a refusal.
+  it('check: only a command\'s own {"error": ...} reply counts as refusing bad data, not a crash', () => {
+    const script = join(dir, 'strict.py');
+    writeFileSync(
+      script,
+      [
+        'import json, math, struct, sys',
+        'crash = sys.argv[1] == "crash"',
+        'for line in sys.stdin:',
+        '    m = json.loads(line)',
+        '    if "hhat" in m:',
+        '        print(json.dumps({"ready": True}), flush=True)',
+        '        continue',
+        '    raw = open(m["npy"], "rb").read()',
+        '    start = 10 + struct.unpack("<H", raw[8:10])[0]',
+        '    values = struct.unpack("<%dd" % (m["n"] * m["dim"]), raw[start:start + 8 * m["n"] * m["dim"]])',
+        '    if m["n"] < 2 or not all(math.isfinite(v) for v in values):',
+        '        if crash:',
+        '            sys.exit(1)',
+        '        print(json.dumps({"request": m["request"], "error": "needs 2 or more finite values"}), flush=True)',
+        '        continue',
+        '    print(json.dumps({"request": m["request"], "value": sum(values) / len(values)}), flush=True)',
+        '',
+      ].join('\n'),
+    );
+    const status = (mode: string) => {
+      const r = hhat(['check', '--estimator-command', `strict=python3 ${script} ${mode}`, '--json']);
+      const report = (JSON.parse(r.out) as { estimators: { checks: { check: string; status: string; evidence: string }[] }[] }).estimators[0];
+      return Object.fromEntries(report.checks.filter((c) => c.check.startsWith('rejects-')).map((c) => [c.check, [c.status, c.evidence]]));
+    };
+    const polite = status('polite');
+    expect(polite['rejects-non-finite'][0]).toBe('pass');
+    expect(polite['rejects-too-few'][0]).toBe('pass');
+    const crashing = status('crash');
+    for (const check of ['rejects-non-finite', 'rejects-too-few']) {
+      expect(crashing[check][0], check).toBe('fail');
+      expect(crashing[check][1], check).toContain('the command gave no answer (strict exited with code 1 before answering request');
+    }
+  });
+
   it('check: a command passes the conformance suite like any estimator', () => {
     const r = hhat(['check', '--estimator-command', `kl=python3 ${join(root, 'examples', 'knn_entropy.py')}`]);
     expect(r.err).toBe('');

@@ -18,7 +18,7 @@
  * on every run. The suite runs in the calling thread and has no time limit: an estimator that hangs hangs it.
  */
 import type { Estimator, InvarianceName, Quantity, Sample, Scenario, Settings, SettingValue } from '../core/contracts.js';
-import { UsageError, isEstimateError } from '../core/errors.js';
+import { CommandError, UsageError, isEstimateError } from '../core/errors.js';
 import { formatSpec, validateSettings } from '../core/spec.js';
 import { checkDimension } from '../../estimators/index.js';
 import { parseScenario } from '../../scenarios/index.js';
@@ -673,6 +673,15 @@ function refusals(context: Context, cases: { label: string; sample: Sample }[]):
   let ok = true;
   for (const { label, sample } of cases) {
     const outcome = attempt(context, sample);
+    // A command that crashed, timed out or broke the protocol gave no answer; only its own {"error": ...} reply is a
+    // refusal (found by a tester: a script that died on log(0) passed as refusing the bad data).
+    if (outcome.kind === 'thrown' && outcome.error instanceof CommandError && !outcome.error.reported) {
+      ok = false;
+      parts.push(
+        `${label}: the command gave no answer (${firstLine(outcome.error.message)}), which is not a refusal; a command refuses with {"request": n, "error": "why"}`,
+      );
+      continue;
+    }
     if (outcome.kind === 'thrown' && isEstimateError(outcome.error)) {
       parts.push(`${label}: EstimateError(${outcome.error.code})`);
       continue;

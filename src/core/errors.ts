@@ -46,7 +46,10 @@ export class EnvironmentError extends Error {
  * the estimate's failure ("command: ..."); `hhat estimate` shows it in the estimator's row.
  */
 export class CommandError extends EstimateError {
-  constructor(message: string) {
+  /** True when the command answered with an error of its own (a refusal); false when it gave no answer at all. */
+  readonly reported: boolean;
+  constructor(message: string, reported = false) {
     super('command', message);
+    this.reported = reported;
   }
 }

@@ -189,9 +189,11 @@ async function estimate(ask: BrokerAsk): Promise<BrokerReply> {
   const reply = parse(line);
   if (!reply) return failed(`answered request ${number} with a line that is not a JSON object: ${shown(line)} (print diagnostics to stderr, not stdout)`);
   if (reply.request !== number) return failed(`answered request ${JSON.stringify(reply.request ?? null)} while request ${number} was asked`);
-  if (typeof reply.error === 'string') return { ok: false, reason: `${declaration.id} reported: ${reply.error}` };
+  if (typeof reply.error === 'string') return { ok: false, reason: `${declaration.id} reported: ${reply.error}`, reported: true };
   if (typeof reply.value !== 'number' || !Number.isFinite(reply.value)) {
-    return failed(`answered request ${number} with value ${JSON.stringify(reply.value ?? null)}, not a finite number`);
+    // JSON.parse reads 1e400 as Infinity, which JSON.stringify would print as null.
+    const shownValue = typeof reply.value === 'number' ? String(reply.value) : JSON.stringify(reply.value ?? null);
+    return failed(`answered request ${number} with value ${shownValue}, not a finite number`);
   }
   return { ok: true, value: reply.value };
 }

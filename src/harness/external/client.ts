@@ -140,7 +140,7 @@ function estimateWith(declaration: CommandDeclaration, sample: Sample, settings:
     timeoutMs: limit * 1000,
     limitText: timeLimitText(limits, sample.n),
   });
-  if (!reply.ok) throw new CommandError(reply.reason);
+  if (!reply.ok) throw new CommandError(reply.reason, reply.reported === true);
   return reply.value;
 }
 

@@ -44,7 +44,8 @@ export interface BrokerAsk {
 }
 
 /** Broker → calling thread: the value, or why there is none. */
-export type BrokerReply = { ok: true; value: number } | { ok: false; reason: string };
+/** `reported`: the command answered with an error of its own (a refusal), rather than failing to answer. */
+export type BrokerReply = { ok: true; value: number } | { ok: false; reason: string; reported?: boolean };
 
 /** Room for the pids of one thread's running estimator commands (one process per command id). */
 export const COMMAND_PID_SLOTS = 8;
