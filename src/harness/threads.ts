@@ -46,7 +46,10 @@ export interface StartedWorker {
 export function spawnWorker(workerMemoryMiB: number): StartedWorker {
   setWorkerHeapStart(workerMemoryMiB);
   const marker = newMarker();
-  const thread = new Worker(workerEntry(), { workerData: { marker }, resourceLimits: { maxOldGenerationSizeMb: workerMemoryMiB } });
+  const thread = new Worker(workerEntry(), { workerData: { marker }, resourceLimits: { maxOldGenerationSizeMb: workerMemoryMiB }, stdout: true });
+  // Standard output is hhat's own (tables, --quiet's one path, --json): what an estimator module prints goes to
+  // standard error, as the estimator protocol asks of commands (found by a tester: console.log broke --quiet).
+  thread.stdout.pipe(process.stderr, { end: false });
   return { thread, marker };
 }
 
