@@ -120,10 +120,10 @@ export function registerEstimator(estimator: Estimator): void {
  * id is new). Replacing keeps a built-in's cell names, so an edited copy can be compared with the original;
  * passing the returned estimator back restores it.
  */
-export function replaceEstimator(estimator: Estimator, origin: 'code' | 'module' = 'code'): Estimator | undefined {
-  checkEstimator(origin === 'module' ? 'module estimator' : 'registered estimator', estimator);
+export function replaceEstimator(estimator: Estimator, origin: 'code' | 'module' | 'command' = 'code'): Estimator | undefined {
+  checkEstimator(origin === 'module' ? 'module estimator' : origin === 'command' ? 'estimator command' : 'registered estimator', estimator);
   const previous = registry.get(estimator.id);
-  record(estimator, origin === 'module');
+  record(estimator, origin !== 'code');
   return previous;
 }
 

@@ -260,6 +260,21 @@ describe('on the command line', () => {
     writeFileSync(join(dir, 'points.csv'), 'x,y\n1,2\n3,4.5\n2,1\n5,5\n0.3,2\n4,1\n');
   });
 
+  // Found by a tester: this said "module estimator".
+  it("names a plan's command as an estimator command when its declaration is refused", () => {
+    const plan = {
+      scenarios: ['normal'],
+      estimators: ['x'],
+      sampleSizes: [50],
+      replicates: 2,
+      commands: [{ id: 'x', command: ['python3', 'x.py'], settings: { k: { default: 3, min: 5 } } }],
+    };
+    writeFileSync(join(dir, 'plan-bad-setting.json'), JSON.stringify(plan));
+    const r = hhat(['bench', '--plan', 'plan-bad-setting.json', '--allow-plan-modules', '--out', 'never-bad.json']);
+    expect(r.code).toBe(2);
+    expect(r.err).toBe('hhat: estimator command ("x"): settings[0] ("k"): default 3 is not allowed; k must be an integer ≥ 5\n');
+  });
+
   it("starts a plan file's commands only with consent", () => {
     const r = hhat(['bench', '--plan', 'plan-with-command.json']);
     expect(r.code).toBe(2);

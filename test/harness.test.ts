@@ -472,6 +472,10 @@ describe('bad input', () => {
     expect(parseShard('auto/6', { HHAT_SHARD_INDEX: '6' })).toEqual({ index: 6, count: 6 });
     expect(() => parseShard('0/3')).toThrow(/out of range/);
     expect(() => parseShard('auto', {})).toThrow(/found no array-job variables/);
+    // Found by a tester: an index without a count was reported as no variables at all.
+    expect(() => parseShard('auto', { HHAT_SHARD_INDEX: '1' })).toThrow(
+      '--shard auto: HHAT_SHARD_INDEX is set but HHAT_SHARD_COUNT is not; set it to the number of shards, or use --shard auto/N',
+    );
     expect(() => parseShard('half')).toThrow(/write i\/N/);
   });
 

@@ -302,6 +302,12 @@ describe('units', () => {
     for (const [args, line] of [
       [['convert', '1e400', '--factor', '2'], 'hhat: 1e400 is beyond the range of a double (about ±1.8e308); give the entropy value to convert'],
       [['convert', '1', '--factor', '1e400'], 'hhat: --factor 1e400 is beyond the range of a double (about ±1.8e308)'],
+      // Found by a tester: this read "the factor 0 is not allowed".
+      [
+        ['convert', '2.31', '--factor', '1e-400'],
+        'hhat: --factor 1e-400 is below the smallest double (about 5e-324) and reads as 0; it must be a finite nonzero number',
+      ],
+      [['convert', '2.31', '--factor', '0.0'], 'hhat: the factor 0 is not allowed; it must be a finite nonzero number'],
     ] as const) {
       const { code, err } = await runCli([...args]);
       expect({ code, err: err.trim() }).toEqual({ code: 2, err: line });

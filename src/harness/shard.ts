@@ -41,6 +41,8 @@ export function shardFromEnvironment(env: NodeJS.ProcessEnv, explicitCount?: num
   const index = integer('HHAT_SHARD_INDEX', env.HHAT_SHARD_INDEX);
   const count = explicitCount ?? integer('HHAT_SHARD_COUNT', env.HHAT_SHARD_COUNT);
   if (index !== undefined && count !== undefined) return checked(index, count, 'from HHAT_SHARD_INDEX/HHAT_SHARD_COUNT');
+  if (index !== undefined)
+    throw new UsageError('--shard auto: HHAT_SHARD_INDEX is set but HHAT_SHARD_COUNT is not; set it to the number of shards, or use --shard auto/N');
   throw new UsageError(
     '--shard auto found no array-job variables; it reads SLURM_ARRAY_TASK_ID (Slurm), JOB_COMPLETION_INDEX (Kubernetes) or HHAT_SHARD_INDEX and HHAT_SHARD_COUNT',
   );

@@ -176,7 +176,7 @@ export function commandEstimator(declaration: CommandDeclaration): Estimator {
  */
 export function useEstimatorCommands(declarations: readonly CommandDeclaration[] | undefined, planLimits: Limits = DEFAULT_LIMITS): string[] {
   limits = planLimits;
-  for (const declaration of declarations ?? []) replaceEstimator(commandEstimator(declaration), 'module');
+  for (const declaration of declarations ?? []) replaceEstimator(commandEstimator(declaration), 'command');
   return (declarations ?? []).map((d) => d.id);
 }
 
