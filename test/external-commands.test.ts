@@ -40,6 +40,11 @@ describe('declarations', () => {
 
   it('reads ID=PROGRAM ARG... and refuses anything else with an example', () => {
     expect(parseCommandOption('my-kl=python3 my_kl.py')).toEqual({ id: 'my-kl', command: 'python3 my_kl.py' });
+    // Found by a tester: the plan schema allowed ids such as "Py.1" that every estimator id refuses.
+    expect(() => parseCommandOption('Py.1=python3 my_kl.py')).toThrow(
+      `--estimator-command "Py.1=python3 my_kl.py": id "Py.1" is not allowed; an id is lowercase letters and digits in hyphenated words, e.g. "my-kl"`,
+    );
+    expect(() => normalizeCommand({ id: 'my_kl', command: 'python3 x.py' }, 'entropy', dir, 'plan')).toThrow('estimator command id "my_kl" is not allowed');
     expect(() => parseCommandOption('python3 my_kl.py')).toThrow(
       `--estimator-command "python3 my_kl.py" is not ID=PROGRAM [ARG...]; e.g. --estimator-command 'my-kl=python3 my_kl.py'`,
     );

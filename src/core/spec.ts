@@ -221,7 +221,8 @@ export function formatSpec(id: string, values: Record<string, SettingValue>, ord
 export const QUANTITIES = ['entropy', 'mutual-information', 'conditional-mutual-information', 'transfer-entropy', 'divergence'] as const;
 const SETTING_KINDS = ['integer', 'number', 'choice', 'choice-or-integer', 'choice-or-number'] as const;
 /** Ids and setting names end up inside `id:key=value,...` specs, so they must not contain `:`, `,`, `=` or brackets. */
-const ID_PATTERN = /^[a-z][a-z0-9]*(-[a-z0-9]+)*$/;
+/** An estimator's id (built-in, module or command): lowercase letters and digits in hyphenated words. */
+export const ID_PATTERN = /^[a-z][a-z0-9]*(-[a-z0-9]+)*$/;
 const SETTING_NAME_PATTERN = /^[a-z][a-z0-9_-]*$/i;
 const CHOICE_PATTERN = /^[^\s,=:[\];]+$/;
 

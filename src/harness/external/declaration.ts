@@ -11,7 +11,7 @@ import { accessSync, constants, existsSync, readFileSync, statSync } from 'node:
 import { delimiter, isAbsolute, resolve } from 'node:path';
 import type { Quantity, SettingSpec, SettingValue } from '../../core/contracts.js';
 import { UsageError } from '../../core/errors.js';
-import { showValue } from '../../core/spec.js';
+import { ID_PATTERN, showValue } from '../../core/spec.js';
 
 /** A setting as a command declares it: its default alone, or the fields of a SettingSpec. */
 export type CommandSettingInput = number | string | (Partial<Omit<SettingSpec, 'name'>> & { default: SettingValue });
@@ -49,8 +49,6 @@ export interface CommandDeclaration {
   reference: string;
   family: string;
 }
-
-const ID = /^[a-z0-9][a-z0-9._-]*$/i;
 
 /**
  * Splits a command line into words as a POSIX shell would for plain words, quotes and backslashes, and
@@ -94,7 +92,10 @@ export function splitCommandLine(text: string, where: string): string[] {
 export function parseCommandOption(text: string): CommandInput {
   const eq = text.indexOf('=');
   const id = eq < 0 ? '' : text.slice(0, eq).trim();
-  if (eq <= 0 || !ID.test(id)) {
+  if (eq > 0 && id !== '' && !/\s/.test(id) && !ID_PATTERN.test(id)) {
+    throw new UsageError(`--estimator-command "${text}": id "${id}" is not allowed; an id is lowercase letters and digits in hyphenated words, e.g. "my-kl"`);
+  }
+  if (eq <= 0 || !ID_PATTERN.test(id)) {
     throw new UsageError(`--estimator-command "${text}" is not ID=PROGRAM [ARG...]; e.g. --estimator-command 'my-kl=python3 my_kl.py'`);
   }
   return { id, command: text.slice(eq + 1) };
@@ -119,8 +120,10 @@ function settingSpec(owner: string, name: string, input: CommandSettingInput): S
 /** Normalises one declaration; `baseDir` resolves a relative cwd, `quantity` is the plan's. */
 export function normalizeCommand(input: CommandInput, quantity: Quantity, baseDir: string, where: string): CommandDeclaration {
   const owner = `${where}: estimator command "${input.id}"`;
-  if (typeof input.id !== 'string' || !ID.test(input.id)) {
-    throw new UsageError(`${where}: estimator command id ${showValue(input.id)} is not allowed; use letters, digits, '.', '_' and '-'`);
+  if (typeof input.id !== 'string' || !ID_PATTERN.test(input.id)) {
+    throw new UsageError(
+      `${where}: estimator command id ${showValue(input.id)} is not allowed; an id is lowercase letters and digits in hyphenated words, e.g. "my-method"`,
+    );
   }
   const command = typeof input.command === 'string' ? splitCommandLine(input.command, owner) : input.command;
   if (!Array.isArray(command) || !command.length || command.some((w) => typeof w !== 'string') || command[0] === '') {
