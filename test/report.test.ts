@@ -302,6 +302,34 @@ describe('the robustness section', () => {
   });
 });
 
+// Found by a tester: `hhat bench --phi` printed these tables, and the report left them out.
+describe('the serial dependence section', () => {
+  it('holds the variance-inflation and thinning rows of a run with phi, and is left out without', async () => {
+    const { plan } = resolvePlan({
+      scenarios: ['normal'],
+      phi: [0, 0.5],
+      estimators: ['gaussian', 'kozachenko-leonenko', 'kozachenko-leonenko:thin=2'],
+      sampleSizes: [200],
+      replicates: 8,
+      seed: 3,
+    });
+    const dependent = assembleRun(await runPlan(plan, { workers: 1, isolation: 'in-process' }), null);
+    const section = dependent.dependence!;
+    expect(section.varianceInflation.length).toBeGreaterThan(0);
+    expect(section.thinning.length).toBeGreaterThan(0);
+    const { html } = await renderReport(dependent);
+    expect(html).toContain('<section id="dependence"><h2>Serial dependence</h2>');
+    expect(html).toContain('<a href="#dependence">Serial dependence</a>');
+    const part = html.slice(html.indexOf('<section id="dependence">'), html.indexOf('</section>', html.indexOf('<section id="dependence">')));
+    // One table row per ratio and per thinning comparison, each with its figures as the run file holds them.
+    expect(part.match(/<tr><td/g)).toHaveLength(section.varianceInflation.length + section.thinning.length);
+    for (const v of section.varianceInflation)
+      expect(part).toContain(`>${formatValue(v.ratio.value, 3)} [${formatValue(v.ratio.lower, 2)}, ${formatValue(v.ratio.upper, 2)}]<`);
+    for (const t of section.thinning) expect(part).toContain(`>${t.verdict}<`);
+    expect((await renderReport(run)).html).not.toContain('id="dependence"');
+  });
+});
+
 describe('what the report names and labels', () => {
   /** A section whose verdicts and values are set by hand: 11 SD of bias change, no safe recording step, 3e-15 nats of drift. */
   function verdicts(base: RunFile): RunFile {

@@ -17,7 +17,7 @@ import { robustnessGrid, robustnessOf, tuningPanels } from './robustness-data.js
 import { robustnessGridSpec, tuningSpec } from './robustness-specs.js';
 import { convergenceSpec, distributionSpec, efficiencySpec, rankHeatmapSpec } from './specs.js';
 import { renderChart, type RenderedChart } from './svg.js';
-import { measuresTable, rankTable, robustnessTable, scenarioTable, scoresTable } from './tables-html.js';
+import { dependenceTables, measuresTable, rankTable, robustnessTable, scenarioTable, scoresTable } from './tables-html.js';
 
 export interface ReportOptions {
   /** Output unit of entropy values (the run file is always nats). */
@@ -238,6 +238,14 @@ function robustnessSection(page: Page): string {
   return parts.join('\n');
 }
 
+/** Error against autocorrelated rows (a plan's `phi` list): the tables `hhat bench` prints, sortable (found missing by a tester). */
+function dependenceSection(page: Page): string {
+  const tables = dependenceTables(page.data);
+  if (!tables) return '';
+  page.nav.push('<li><a href="#dependence">Serial dependence</a></li>');
+  return `<section id="dependence"><h2>Serial dependence</h2>\n${tables}\n</section>`;
+}
+
 function scoresSection(page: Page): string {
   const { run } = page.data;
   page.nav.push('<li><a href="#scores">All scores</a></li>');
@@ -255,7 +263,7 @@ export async function renderReport(run: RunFile, options: ReportOptions = {}): P
   const started = performance.now();
   const data = reportData(run, options.base ?? 'nats');
   const page = new Page(data);
-  const sections = [overallSection(page), scenariosSection(page), robustnessSection(page), scoresSection(page)];
+  const sections = [overallSection(page), scenariosSection(page), robustnessSection(page), dependenceSection(page), scoresSection(page)];
   const warnings: string[] = [];
   const svgs: RenderedChart[] = [];
   for (const p of page.pending) svgs.push(await renderChart(p.name, p.spec, p.title, p.description, warnings));

@@ -2,7 +2,7 @@
  * The report's tables: per-scenario RMSE and ranks, average ranks, every cell's scores, and the robustness
  * verdicts and measures. Shown values are in the output unit; sort keys are the plain numbers.
  */
-import { formatValue, toBase, type Base } from '../../core/format.js';
+import { formatP, formatValue, toBase, type Base } from '../../core/format.js';
 import type { RunFile, ScenarioInfo } from '../../analysis/results.js';
 import { finite, sampleSizes, scenarioCells, slopeText, type RankGrid, type ReportData } from './data.js';
 import { escapeHtml, sortableTable, type CellInput, type TableCell } from './html.js';
@@ -168,4 +168,60 @@ export function measuresTable(data: ReportData, section: RobustnessSection): str
     textColumns: 3,
     tall: true,
   });
+}
+
+/**
+ * The serial-dependence tables of a plan with a `phi` list (src/analysis/dependence.ts), as `hhat bench` prints them:
+ * the variance of the estimates at each φ over that at φ = 0, and each thinned estimator against all rows.
+ */
+export function dependenceTables(data: ReportData): string {
+  const { run, base } = data;
+  const section = run.dependence;
+  if (!section) return '';
+  const level = `${+(run.plan.verdicts.level * 100).toPrecision(6)}%`;
+  const parts: string[] = [];
+  if (section.varianceInflation.length) {
+    const rows = section.varianceInflation.map((v): CellInput[] => [
+      v.base,
+      data.label(v.estimator),
+      v.n,
+      v.phi,
+      { text: formatValue((1 + v.phi) / (1 - v.phi), 3), sort: (1 + v.phi) / (1 - v.phi) },
+      { text: `${formatValue(v.ratio.value, 3)} [${formatValue(v.ratio.lower, 2)}, ${formatValue(v.ratio.upper, 2)}]`, sort: v.ratio.value },
+    ]);
+    parts.push(
+      sortableTable(
+        `Variance of the estimates at φ over that at φ = 0 (same base scenario, estimator and n; independent draws), ${level} interval from the delta method on log s², one per ratio, not simultaneous. τ = (1+φ)/(1−φ) is what the variance of the mean of the latent normal scores grows by.`,
+        ['base scenario', 'estimator', 'n', 'φ', 'τ', `Var(φ)/Var(0) [${level}]`],
+        rows,
+        { textColumns: 2, tall: true },
+      ),
+    );
+  }
+  if (section.thinning.length) {
+    // A mean squared error in bits² is the nats² figure over (ln 2)².
+    const squared = (x: number) => (base === 'bits' ? x / (Math.LN2 * Math.LN2) : x);
+    const rows = section.thinning.map((t): CellInput[] => [
+      t.scenario,
+      data.label(t.estimator),
+      t.n,
+      { text: formatValue(toBase(t.rmseThinned, base), 3), sort: toBase(t.rmseThinned, base) },
+      { text: formatValue(toBase(t.rmseAllRows, base), 3), sort: toBase(t.rmseAllRows, base) },
+      {
+        text: `${formatValue(squared(t.mseDifference.value), 2)} ± ${formatValue(squared(t.mseDifference.se), 2)}`,
+        sort: squared(t.mseDifference.value),
+      },
+      { text: formatP(t.adjustedP), sort: t.adjustedP },
+      t.verdict,
+    ]);
+    parts.push(
+      sortableTable(
+        `Thinning: every t-th row against all rows, on the same draws (paired squared errors; t test on their mean, Diebold–Mariano with m − 1 degrees of freedom; p Holm-adjusted over these ${section.thinning.length} comparisons, verdict at level ${level})`,
+        ['scenario', 'estimator', 'n', `RMSE thinned (${base})`, `RMSE all rows (${base})`, `MSE thinned − all ± SE (${base}²)`, 'Holm p', 'verdict'],
+        rows,
+        { textColumns: 2, tall: true },
+      ),
+    );
+  }
+  return parts.join('\n');
 }
