@@ -15,7 +15,8 @@
  * applicable, and their evidence gives the reason beside the difference measured anyway.
  *
  * Samples are seeded draws from the project's scenarios (src/conformance-samples.ts), so a report is the same
- * on every run. The suite runs in the calling thread and has no time limit: an estimator that hangs hangs it.
+ * on every run. The suite runs in the calling thread and has no time limit: an estimator that hangs hangs it, so
+ * `hhat check` runs a module's estimators check by check on a supervised thread (conformance-job.ts).
  */
 import type { Estimator, InvarianceName, Quantity, Sample, Scenario, Settings, SettingValue } from '../core/contracts.js';
 import { CommandError, UsageError, isEstimateError } from '../core/errors.js';

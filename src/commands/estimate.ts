@@ -6,8 +6,9 @@ import { selectionWidth, sharedSelection } from '../data/columns.js';
 import { showText } from '../data/table.js';
 import { describeReference, meanLogReference, parseReference, type Reference } from '../analysis/reference.js';
 import { unitLabel } from '../core/units.js';
-import { describeRegistration, resolveModulePath, useEstimatorModules } from '../harness/modules.js';
-import type { Quantity, Sample, Settings } from '../core/contracts.js';
+import { describeRegistration, loadEstimatorModules, registerUserEstimators, resolveModulePath } from '../harness/modules.js';
+import type { Limits } from '../harness/plan.js';
+import type { Estimator, Quantity, Sample, Settings } from '../core/contracts.js';
 import { declareCommandOptions } from '../harness/external/options.js';
 import { collect, parseIntegerOption } from '../core/options.js';
 import {
@@ -50,6 +51,12 @@ interface EstimateRecord {
   resolution?: EstimateResolution;
 }
 
+/** The estimators of the user's modules, whose code runs only on their supervised thread (module-thread.ts, estimateOnThread). */
+export interface ModuleEstimators {
+  owns: ReadonlySet<Estimator>;
+  estimate: (configured: ConfiguredEstimator, sample: Sample) => Promise<{ value: number; settings: Settings; resolution?: EstimateResolution }>;
+}
+
 /** Rows every estimate in the default set may be cut to fit: below this a subsample says too little, so the estimator is skipped. */
 export const MIN_SUBSAMPLE_ROWS = 1000;
 /** Predicted seconds per estimator allowed for the default set, unless --max-seconds says otherwise. */
@@ -88,24 +95,30 @@ export function planRows(configured: ConfiguredEstimator[], sample: Sample, limi
  * of stopping the others. Usage mistakes still throw: they are checked before any estimate is made. With
  * `plans` (from planRows), an estimator runs on its seeded subsample or is skipped, and the record says so.
  */
-export function estimateAll(
+export async function estimateAll(
   sample: Sample,
   configured: ConfiguredEstimator[],
   base: Base,
   plans?: RowPlan[],
-  options: { seed?: number; onStart?: (configured: ConfiguredEstimator, rows: number) => void } = {},
-): EstimateRecord[] {
+  options: { seed?: number; onStart?: (configured: ConfiguredEstimator, rows: number) => void; modules?: ModuleEstimators } = {},
+): Promise<EstimateRecord[]> {
   const seed = options.seed ?? DEFAULT_SUBSAMPLE_SEED;
   // The harness's thinning is not among the estimator's own settings, but it changes what the estimate used.
   const used = (c: ConfiguredEstimator, settings: Settings): Settings => ((c.thin ?? 1) > 1 ? { ...settings, [THIN_SETTING]: c.thin } : settings);
-  return configured.map((c, index) => {
-    const plan = plans?.[index];
+  const records: EstimateRecord[] = [];
+  for (const [index, c] of configured.entries()) records.push(await estimateOne(c, plans?.[index]));
+  return records;
+
+  async function estimateOne(c: ConfiguredEstimator, plan: RowPlan | undefined): Promise<EstimateRecord> {
     if (plan?.skipped) return { estimator: c.estimator.id, settings: used(c, c.settings), value: null, skipped: plan.skipped };
     const rows = plan ? plan.rows : sample.n;
     const subsample = rows < sample.n ? { rows, of: sample.n, seed, reason: plan?.reason ?? '' } : undefined;
     try {
       options.onStart?.(c, rows);
-      const { value, settings, resolution } = runEstimator(c, seededRowSubsample(sample, rows, String(seed)), { report: true });
+      const on = seededRowSubsample(sample, rows, String(seed));
+      const { value, settings, resolution } = options.modules?.owns.has(c.estimator)
+        ? await options.modules.estimate(c, on)
+        : runEstimator(c, on, { report: true });
       if (!Number.isFinite(value)) throw new EstimateError('numeric', `${c.estimator.id} gave ${value} on this sample`);
       return {
         estimator: c.estimator.id,
@@ -128,7 +141,7 @@ export function estimateAll(
       }
       throw error;
     }
-  });
+  }
 }
 
 /** --max-seconds: a positive number of seconds, or none. */
@@ -165,7 +178,9 @@ Exit codes:
   1  an estimator named with --estimator could not run on these data (its
      reason is on stderr; the other values are still printed), or no
      estimator of the default set could, or every estimator was skipped
-     under --max-seconds
+     under --max-seconds; an --estimator-module estimator runs on a
+     supervised thread, and one that passes --time-limit or --memory-limit
+     or calls process.exit could not run ("failed (module)")
   2  a mistake in the command: an unknown option, estimator or setting, a
      value that is not allowed, a file that cannot be read, an estimator for
      another quantity or dimension; nothing is estimated`;
@@ -188,6 +203,8 @@ type EstimateOptions = {
   against?: string;
   maxSeconds?: string;
   seed?: string;
+  timeLimit?: string;
+  memoryLimit?: string;
 };
 
 export function registerEstimateCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
@@ -227,6 +244,14 @@ export function registerEstimateCommand(program: Command, print: (text: string) 
       `limit on each estimator's predicted seconds: over it, a seeded uniform subsample of rows (default ${DEFAULT_MAX_SECONDS} for the default set, none for estimators named with --estimator; "none": no limit)`,
     )
     .option('--seed <s>', `seed of the row subsamples that --max-seconds may call for (default ${DEFAULT_SUBSAMPLE_SEED})`)
+    .option(
+      '--time-limit <s>',
+      'seconds an estimate of an --estimator-module estimator (or an --estimator-command) may run before it is stopped and counted as failed (default: 60 + 0.001 × n, as hhat bench)',
+    )
+    .option(
+      '--memory-limit <MiB>',
+      'heap limit in MiB of the thread that runs the --estimator-module estimators; an estimate that passes it fails (default 4096)',
+    )
     .addHelpText('after', exitCodesHelp)
     .action((file: string, options: EstimateOptions) => runEstimate(file, options, print, printErr));
 }
@@ -253,6 +278,43 @@ function quantityMismatch(id: string, estimates: Quantity, asked: Quantity): str
 
 /** `hhat estimate FILE`: read the sample, choose the estimators, estimate, print, and set the exit code. */
 async function runEstimate(file: string, options: EstimateOptions, print: (text: string) => void, printErr: (text: string) => void): Promise<void> {
+  // Built-ins run unsupervised in this thread, so a limit given for them alone would be silently ignored.
+  if (options.timeLimit !== undefined && !options.estimatorModule?.length && !options.estimatorCommand?.length)
+    throw new UsageError(
+      `--time-limit ${options.timeLimit} applies to the estimators of --estimator-module and --estimator-command; the built-ins have none (--max-seconds subsamples their rows)`,
+    );
+  if (options.memoryLimit !== undefined && !options.estimatorModule?.length)
+    throw new UsageError(`--memory-limit ${options.memoryLimit} applies to the estimators of --estimator-module, which run on a thread of their own`);
+  const supervision = options.estimatorModule?.length || options.timeLimit !== undefined ? await import('../harness/module-thread.js') : null;
+  const limits = supervision?.parseLimits(options);
+  let modules: (ModuleEstimators & { close: () => void }) | undefined;
+  if (options.estimatorModule?.length) {
+    const paths = options.estimatorModule.map((m) => resolveModulePath(m));
+    const list = await loadEstimatorModules(paths);
+    const note = describeRegistration(registerUserEstimators(list, { replace: true }));
+    if (note && !options.json) printErr(note);
+    // Their code runs only there, so that an estimate cannot end or hang this command; it loads them while this
+    // thread reads the data.
+    const thread = new supervision!.ModuleThread(paths, limits!);
+    thread.start();
+    modules = { owns: new Set(list), estimate: (c, on) => supervision!.estimateOnThread(thread, c, on), close: () => thread.close() };
+  }
+  try {
+    await estimateWith(file, options, print, printErr, modules, options.timeLimit !== undefined ? limits : undefined);
+  } finally {
+    modules?.close();
+  }
+}
+
+/** runEstimate once the modules are loaded: `limits` for the estimator commands, when --time-limit gives them. */
+async function estimateWith(
+  file: string,
+  options: EstimateOptions,
+  print: (text: string) => void,
+  printErr: (text: string) => void,
+  modules: ModuleEstimators | undefined,
+  limits: Limits | undefined,
+): Promise<void> {
   const base: Base = options.bits ? 'bits' : 'nats';
   const reference = options.reference === undefined ? undefined : parseReference(options.reference);
   const givenLimit = options.maxSeconds === undefined ? undefined : parseMaxSeconds(options.maxSeconds);
@@ -265,17 +327,13 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
       status.clear();
     }
   };
-  if (options.estimatorModule?.length) {
-    const note = describeRegistration(await useEstimatorModules(options.estimatorModule.map((m) => resolveModulePath(m))));
-    if (note && !options.json) printErr(note);
-  }
   const { loaded, sample, quantity } = readEstimateSample(file, options, load);
   if (reference && quantity !== 'entropy') throw new UsageError('--reference applies to entropy; mutual information and divergences are already unit-free');
   // A unit labels an entropy ("nats relative to 1 mV"); accepted silently elsewhere it would suggest the value depends on it.
   if (options.unit !== undefined && quantity !== 'entropy')
     throw new UsageError(`--unit ${options.unit} applies to entropy; mutual information, transfer entropy and divergences do not depend on the data's unit`);
   const offset = reference ? meanLogReference(reference, sample) : 0;
-  const commands = options.estimatorCommand?.length ? await declareCommandOptions(options.estimatorCommand, quantity) : [];
+  const commands = options.estimatorCommand?.length ? await declareCommandOptions(options.estimatorCommand, quantity, limits) : [];
   const named = Boolean(options.estimator?.length);
   const listed = named ? options.estimator! : defaultEstimatorsFor(sample.dim, quantity);
   // A command the user declared runs, with its defaults, unless --estimator already names it.
@@ -296,19 +354,20 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
       '--max-seconds cannot be used with --source-column/--target-column: a row subsample would break the time order; give --max-seconds none or leave it out',
     );
   const limitSeconds = quantity === 'transfer-entropy' ? null : givenLimit !== undefined ? givenLimit : named ? null : DEFAULT_MAX_SECONDS;
-  const estimateEach = (list: ConfiguredEstimator[]): EstimateRecord[] => {
+  const estimateEach = async (list: ConfiguredEstimator[]): Promise<EstimateRecord[]> => {
     const plans = planRows(list, sample, limitSeconds);
     const run = (on: Sample) =>
       estimateAll(on, list, base, plans, {
         seed,
         onStart: (c, rows) => status.show(`${c.estimator.id} on ${rows === on.n ? 'all' : rows} of ${on.n} rows`, true),
+        modules,
       });
     if (quantity !== 'transfer-entropy') return run(sample);
     // Both directions: the same estimators on the series with source and target swapped.
     const [source, target] = directionNames(loaded.columnNames, options.sourceColumn!, options.targetColumn!);
     return [
-      ...run(sample).map((r) => ({ ...r, direction: `TE(${source} → ${target})` })),
-      ...run(swapSeries(sample)).map((r) => ({ ...r, direction: `TE(${target} → ${source})` })),
+      ...(await run(sample)).map((r) => ({ ...r, direction: `TE(${source} → ${target})` })),
+      ...(await run(swapSeries(sample))).map((r) => ({ ...r, direction: `TE(${target} → ${source})` })),
     ];
   };
   let estimated: EstimateRecord[];
@@ -317,10 +376,10 @@ async function runEstimate(file: string, options: EstimateOptions, print: (text:
   const choices = recorded ? recordedChoices(sample, quantity, recorded, configured) : [];
   let chosen: (EstimateRecord & { how: string })[] = [];
   try {
-    estimated = estimateEach(configured);
+    estimated = await estimateEach(configured);
     // A transfer entropy's records come direction by direction, each in the order of `choices`.
     if (choices.length)
-      chosen = estimateEach(choices.map((c) => c.configured)).map((r, i) => ({
+      chosen = (await estimateEach(choices.map((c) => c.configured))).map((r, i) => ({
         ...r,
         estimator: choices[i % choices.length].configured.spec,
         how: choices[i % choices.length].how,

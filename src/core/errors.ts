@@ -3,8 +3,11 @@ export class UsageError extends Error {
   override name = 'UsageError';
 }
 
-/** 'command': an estimator command (an external program) gave no value (see CommandError). */
-export const ESTIMATE_ERROR_CODES = ['too-few-points', 'ties', 'dimension', 'invalid-input', 'numeric', 'command'] as const;
+/**
+ * 'command': an estimator command (an external program) gave no value (see CommandError); 'module': an estimator
+ * from a user's module was stopped or threw something other than an EstimateError (see ModuleError).
+ */
+export const ESTIMATE_ERROR_CODES = ['too-few-points', 'ties', 'dimension', 'invalid-input', 'numeric', 'command', 'module'] as const;
 export type EstimateErrorCode = (typeof ESTIMATE_ERROR_CODES)[number];
 
 /**
@@ -51,5 +54,16 @@ export class CommandError extends EstimateError {
   constructor(message: string, reported = false) {
     super('command', message);
     this.reported = reported;
+  }
+}
+
+/**
+ * An estimator from a user's module gave no value for this estimate, and not by an EstimateError of its own: it
+ * passed its time or memory limit, ended its thread (process.exit), or threw another error. `hhat estimate` shows
+ * it in the estimator's row, as a run records any failed estimate.
+ */
+export class ModuleError extends EstimateError {
+  constructor(message: string) {
+    super('module', message);
   }
 }

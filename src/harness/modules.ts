@@ -63,36 +63,46 @@ async function importModule(path: string): Promise<Record<string, unknown>> {
 export const MODULE_LOAD_SECONDS = 60;
 
 /**
- * Code at a module's top level runs when it is imported, and a loop there that never ends would hang this
- * thread with no way to stop it. So the main thread first loads the module on a throwaway worker thread,
- * which can be stopped, and refuses it when that load does not finish in time. A load that fails there is left
- * for the real import to report in its own words; workers load only modules the main thread has loaded.
+ * Code at a module's top level runs when it is imported: a loop there that never ends would hang this thread
+ * with no way to stop it, and a `process.exit` there would end hhat at once, silently and with the module's exit
+ * code (0 passed a CI gate). So the main thread first loads the module on a throwaway worker thread, which can be
+ * stopped and whose `process.exit` ends only that thread, and refuses the module when that load does not finish
+ * in time or ends the thread before it reports. A load that fails there is left for the real import to report
+ * in its own words; workers load only modules the main thread has loaded.
  */
 async function refuseEndlessLoad(path: string): Promise<void> {
   if (!isMainThread) return;
   // The tests' shorter limit.
   const seconds = Number(process.env.HHAT_MODULE_LOAD_SECONDS) || MODULE_LOAD_SECONDS;
   const url = pathToFileURL(path).href;
+  // Only import(): the thread inherits this process's options, and under --input-type=module `require` is not defined.
   const probe = new Worker(
-    `const { parentPort } = require('node:worker_threads'); import(${JSON.stringify(url)}).then(() => parentPort.postMessage('loaded'), () => parentPort.postMessage('failed'));`,
+    `import('node:worker_threads').then(({ parentPort }) => import(${JSON.stringify(url)}).then(() => parentPort.postMessage('loaded'), () => parentPort.postMessage('failed')));`,
     { eval: true, stdout: true, stderr: true },
   );
   let timer: ReturnType<typeof setTimeout> | undefined;
-  const finished = await Promise.race([
-    new Promise<boolean>((done) => {
-      probe.once('message', () => done(true));
-      probe.once('error', () => done(true));
-      probe.once('exit', () => done(true));
+  // null: loaded, or failed to load (the real import says how); else why the module is refused.
+  const refusal = await Promise.race([
+    new Promise<string | null>((done) => {
+      probe.once('message', () => done(null));
+      probe.once('error', () => done(null));
+      probe.once('exit', (code) =>
+        done(
+          `ended the thread loading it (exit code ${code}) before it finished loading: code at its top level calls process.exit (or awaits something that never settles), which would end hhat too`,
+        ),
+      );
     }),
-    new Promise<boolean>((done) => (timer = setTimeout(() => done(false), seconds * 1000))),
+    new Promise<string>(
+      (done) =>
+        (timer = setTimeout(
+          () => done(`did not finish loading in ${seconds} s: code at its top level runs when it loads, and some of it never ends`),
+          seconds * 1000,
+        )),
+    ),
   ]);
   clearTimeout(timer);
   await probe.terminate();
-  if (!finished) {
-    throw new UsageError(
-      `estimator module ${path} did not finish loading in ${seconds} s: code at its top level runs when it loads, and some of it never ends`,
-    );
-  }
+  if (refusal !== null) throw new UsageError(`estimator module ${path} ${refusal}`);
 }
 
 /** What the module exports as its estimators, with a label for each for error messages. */

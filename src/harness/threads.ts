@@ -42,11 +42,14 @@ export interface StartedWorker {
   marker: SharedArrayBuffer;
 }
 
-/** A new worker thread with a heap limit of `workerMemoryMiB`; it waits for its setup message. */
-export function spawnWorker(workerMemoryMiB: number): StartedWorker {
+/**
+ * A new worker thread with a heap limit of `workerMemoryMiB`; it waits for its setup message. `entry`: a bench
+ * worker, or the thread on which estimate and check run a module's estimators (module-thread.ts).
+ */
+export function spawnWorker(workerMemoryMiB: number, entry: URL = workerEntry()): StartedWorker {
   setWorkerHeapStart(workerMemoryMiB);
   const marker = newMarker();
-  const thread = new Worker(workerEntry(), { workerData: { marker }, resourceLimits: { maxOldGenerationSizeMb: workerMemoryMiB }, stdout: true });
+  const thread = new Worker(entry, { workerData: { marker }, resourceLimits: { maxOldGenerationSizeMb: workerMemoryMiB }, stdout: true });
   // Standard output is hhat's own (tables, --quiet's one path, --json): what an estimator module prints goes to
   // standard error, as the estimator protocol asks of commands (found by a tester: console.log broke --quiet).
   thread.stdout.pipe(process.stderr, { end: false });

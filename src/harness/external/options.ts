@@ -6,13 +6,15 @@
 import type { Quantity } from '../../core/contracts.js';
 import { UsageError } from '../../core/errors.js';
 import { normalizeCommand, parseCommandOption, type CommandDeclaration } from './declaration.js';
+import type { Limits } from '../plan.js';
 
-export async function declareCommandOptions(texts: readonly string[], quantity: Quantity): Promise<CommandDeclaration[]> {
+/** `limits`: from --time-limit; without them a benchmark's defaults (plan.ts, DEFAULT_LIMITS). */
+export async function declareCommandOptions(texts: readonly string[], quantity: Quantity, limits?: Limits): Promise<CommandDeclaration[]> {
   const declarations = texts.map((text) => normalizeCommand(parseCommandOption(text), quantity, process.cwd(), `--estimator-command ${text}`));
   const ids = declarations.map((d) => d.id);
   const twice = ids.find((id, i) => ids.indexOf(id) !== i);
   if (twice) throw new UsageError(`estimator command "${twice}" is declared twice; each id may be declared once`);
   const { useEstimatorCommands } = await import('./client.js');
-  useEstimatorCommands(declarations);
+  useEstimatorCommands(declarations, limits);
   return declarations;
 }
