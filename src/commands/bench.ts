@@ -26,8 +26,9 @@ import {
   parseSampleSizes,
   parsePhiList,
   readPlanFile,
-  resolvePlan,
+  resolveCheckedPlan,
   COMMAND_LINE,
+  MAX_WORKERS,
   type Plan,
   type PlanInput,
 } from '../harness/plan.js';
@@ -44,9 +45,8 @@ import {
   removeLeftoverTemporaries,
   sameFile,
 } from '../core/files.js';
-import { checkSampleMemory } from '../core/memory.js';
 import { prefetchProvenance } from '../core/provenance.js';
-import { checkpointStarted, defaultWorkers, runPlan, type RunOptions, type RunOutcome, type Shard } from '../harness/runner.js';
+import { checkPlanMemory, checkpointStarted, defaultWorkers, runPlan, type RunOptions, type RunOutcome, type Shard } from '../harness/runner.js';
 import { parseShard } from '../harness/shard.js';
 import { dependenceTables, detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../views/tables.js';
 import { estimatorLabel } from '../../estimators/index.js';
@@ -336,15 +336,11 @@ async function benchPlan(options: BenchOptions, workers: number, printErr: (text
   const note = describeRegistration(registration);
   if (note && !options.quiet) printErr(note);
   // Errors name where the plan came from: the plan file, or the flags.
-  const { plan, scenarios, estimators } = resolvePlan(input, options.plan ?? COMMAND_LINE);
+  // planInputFromOptions checked every part: the plan file against the schema, each flag as it was parsed.
+  const { plan, scenarios, estimators } = resolveCheckedPlan(input, options.plan ?? COMMAND_LINE);
   for (const text of historyNotes(scenarios, estimators)) printErr(`hhat: note: ${text}`);
-  // Refused before any work starts, with what it would need, rather than a crash part way.
-  const largestN = Math.max(...plan.sampleSizes);
-  checkSampleMemory(`n = ${largestN}`, largestN, Math.max(...scenarios.map((x) => x.dim)), {
-    workers,
-    workerMemoryMiB: plan.limits.workerMemoryMiB,
-    raise: "--memory-limit or a plan's limits.workerMemoryMiB",
-  });
+  // Refused before any work starts (runPlan checks again, for library callers), with what it would need, rather than a crash part way.
+  checkPlanMemory(plan, scenarios, workers, 'threads', "--memory-limit or a plan's limits.workerMemoryMiB");
   return plan;
 }
 
@@ -535,7 +531,7 @@ async function runBench(options: BenchOptions, args: string[], print: (text: str
   const base: Base = options.bits ? 'bits' : 'nats';
   refuseEmptyValues(options);
   const shard: Shard | undefined = options.shard ? parseShard(options.shard) : undefined;
-  const workers = options.workers === undefined ? defaultWorkers() : parseIntegerOption('--workers', options.workers, 1, 256);
+  const workers = options.workers === undefined ? defaultWorkers() : parseIntegerOption('--workers', options.workers, 1, MAX_WORKERS);
   const out = benchOutPath(options, shard);
   refuseOutputClashes(out, checkpointFor(out), options, shard);
   const plan = await benchPlan(options, workers, printErr);
