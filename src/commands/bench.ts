@@ -46,6 +46,7 @@ import {
   sameFile,
 } from '../core/files.js';
 import { prefetchProvenance } from '../core/provenance.js';
+import { OUT_OF_RANGE } from '../harness/draw-range.js';
 import { checkPlanMemory, checkpointStarted, defaultWorkers, runPlan, type RunOptions, type RunOutcome, type Shard } from '../harness/runner.js';
 import { parseShard } from '../harness/shard.js';
 import { dependenceTables, detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../views/tables.js';
@@ -201,17 +202,40 @@ export function planInputFromOptions(options: BenchOptions): PlanInput {
 
 const MAX_REASON_LINES = 6;
 
-/** "estimator: reason (count)" for each distinct failure reason, the most frequent first, at most `limit` lines. */
+/** Whether a failure is a draw's that left the double range (src/harness/draw-range.ts), not the estimator's. */
+function outOfRange(message: string): boolean {
+  return message.startsWith(`${OUT_OF_RANGE}: `);
+}
+
+/**
+ * "estimator: reason (count)" for each distinct failure reason, the most frequent first, at most `limit` lines;
+ * a draw that left the double range is named once for all the estimators it failed, as the scenario's or perturbation's.
+ */
 function failureReasons(cells: RunFile['cells'], limit: number): string[] {
   const counts = new Map<string, number>();
   for (const cell of cells) {
     for (const f of cell.failures) {
-      const key = `${estimatorLabel(cell.estimator)}: ${f.message}`;
+      const key = outOfRange(f.message) ? f.message.slice(OUT_OF_RANGE.length + 2) : `${estimatorLabel(cell.estimator)}: ${f.message}`;
       counts.set(key, (counts.get(key) ?? 0) + 1);
     }
   }
   const lines = [...counts.entries()].sort((a, b) => b[1] - a[1]).map(([key, count]) => `${key}${count > 1 ? ` (${count} times)` : ''}`);
   return lines.length > limit ? [...lines.slice(0, limit), `… and ${lines.length - limit} other reasons`] : lines;
+}
+
+/** "41 ties, 3 out-of-range draw": failures counted by the code their messages start with, the most frequent first. */
+function failureCauses(cells: RunFile['cells']): string {
+  const counts = new Map<string, number>();
+  for (const cell of cells) {
+    for (const f of cell.failures) {
+      const code = outOfRange(f.message) ? OUT_OF_RANGE : (/^([a-z-]+): /.exec(f.message)?.[1] ?? 'other');
+      counts.set(code, (counts.get(code) ?? 0) + 1);
+    }
+  }
+  return [...counts.entries()]
+    .sort((a, b) => b[1] - a[1])
+    .map(([code, count]) => `${count} ${code}`)
+    .join(', ');
 }
 
 export function printRun(run: RunFile, base: Base, print: (text: string) => void, detail: boolean): void {
@@ -241,10 +265,15 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
     ))
       print(`  ${line}`);
   }
-  if (failedOther)
+  if (failedOther) {
+    const other = run.cells.filter((c) => c.role !== 'main');
     print(
-      `${failedOther} estimate${failedOther === 1 ? '' : 's'} failed on perturbed samples or tuning variants (ties after rounding, mostly); the robustness table counts them.`,
+      `${failedOther} estimate${failedOther === 1 ? '' : 's'} failed on perturbed samples or tuning variants (${failureCauses(other)}); the robustness table counts them.`,
     );
+    // Ties after rounding are expected there; a draw carried beyond the double range is not, and is named.
+    const ranged = other.map((c) => ({ ...c, failures: c.failures.filter((f) => outOfRange(f.message)) })).filter((c) => c.failures.length);
+    for (const line of failureReasons(ranged, MAX_REASON_LINES)) print(`  ${line}`);
+  }
   print(
     `RMSE ± Monte-Carlo SE (${countOf(run.plan.replicates, 'replicate')} per cell). ${rankLegend(run.plan.verdicts.level, run.plan.verdicts.maxFailureRate)} ` +
       'RMSE slope vs n: the weighted least-squares slope of log RMSE on log n ± its SE (−0.5 is the parametric rate); sizes whose RMSE is below 2 SE are left out, and "[k of K n]" says when some were.',

@@ -9,10 +9,13 @@ import { checkPlanInput, codeDifference, isResolvedPlan, MAX_WORKERS, planCode, 
 import { checkSampleMemory } from '../core/memory.js';
 import { checkIntegerArgument } from '../core/options.js';
 import { describeValue } from '../core/spec.js';
-import type { Scenario } from '../core/contracts.js';
+import type { Sample, Scenario } from '../core/contracts.js';
 import { describeFileError, openAppender, writeFileAtomic, type Appender } from '../core/files.js';
 import { executeUnit, planUnits, type Skip, type Unit, type UnitResult, type WorkContext } from './work.js';
 import { runOnPool } from './pool.js';
+import { perturbationRangeProblem, pilotRangeProblem, scenarioRangeProblem } from './draw-range.js';
+import { drawReplicate } from '../core/rng.js';
+import { perturbedCopy } from './perturb.js';
 import { defaultWorkers } from './threads.js';
 
 export { defaultWorkers };
@@ -467,6 +470,38 @@ function checkRunArguments(plan: Plan, options: RunOptions): void {
     );
 }
 
+/**
+ * Refuses a plan whose draws would leave the double range (src/harness/draw-range.ts): a scenario whose law puts
+ * too much mass beyond ±1.8e308 for the values the plan draws of it, or a perturbation that carries those draws
+ * there. The failures would otherwise be every estimator's, on every replicate.
+ */
+function refuseOutOfRangeDraws(context: WorkContext): void {
+  const { plan, scenarios, perturbations, prepared } = context;
+  const refuse = (problem: string | null) => {
+    if (problem) throw new UsageError(problem);
+  };
+  // The pilot is the run's own first replicate (after any offset), so it costs one replicate's draws per cell.
+  const pilot = context.replicateOffset;
+  scenarios.forEach((scenario, s) => {
+    refuse(scenarioRangeProblem(scenario, plan.replicates * plan.sampleSizes.reduce((a, b) => a + b, 0)));
+    let original: Sample | undefined;
+    for (const n of plan.sampleSizes) {
+      const sample = drawReplicate(scenario, plan.seed, n, pilot);
+      refuse(pilotRangeProblem(scenario, null, sample, pilot));
+      if (n === plan.robustness?.sampleSize) original = sample;
+    }
+    if (!plan.robustness || !original) return;
+    const values = plan.replicates * plan.robustness.sampleSize;
+    const robustnessDraw = original;
+    perturbations.forEach((perturbation, k) => {
+      const ready = prepared[s][k];
+      if ('skip' in ready) return;
+      refuse(perturbationRangeProblem(scenario, perturbation.spec, ready, values));
+      refuse(pilotRangeProblem(scenario, perturbation.spec, perturbedCopy(robustnessDraw, ready, pilot, plan.seed), pilot));
+    });
+  });
+}
+
 /** Runs the plan's owned units (after the checkpoint's, on resume) and returns their results with this session's record. */
 export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<RunOutcome> {
   const started = performance.now();
@@ -487,6 +522,7 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
     options.isolation,
     "the plan's limits.workerMemoryMiB",
   );
+  refuseOutOfRangeDraws(context);
   const checkpoint = openCheckpoint(options, owned, fingerprint, options.shard ?? null, code);
   const { appender } = checkpoint;
   const resumedUnits = checkpoint.restored.size;
