@@ -26,6 +26,8 @@ import { didYouMean } from '../src/core/suggest.js';
 import { ordinal } from '../src/core/format.js';
 import {
   checkEstimator,
+  checkSpecText,
+  describeValue,
   DEQUANTIZE_FAMILIES,
   DEQUANTIZE_SETTING,
   formatSpec,
@@ -174,7 +176,10 @@ export function dequantizedVariant(configured: ConfiguredEstimator): ConfiguredE
 
 /** The one place settings are validated: every declared setting present and valid, defaults filled in. */
 export function configureEstimator(id: string, given: Record<string, SettingValue> = {}): ConfiguredEstimator {
+  checkSpecText(id, 'estimator');
   const estimator = getEstimator(id);
+  if (typeof given !== 'object' || given === null || Array.isArray(given))
+    throw new UsageError(`${estimator.id}: settings must be an object of name: value pairs (e.g. { k: 5 }); got ${describeValue(given)}`);
   const { [THIN_SETTING]: thinGiven, [DEQUANTIZE_SETTING]: dequantizeGiven, ...declared } = given;
   const thin = parseThin(estimator.id, thinGiven);
   if (thin !== 1 && estimator.quantity === 'transfer-entropy') {
@@ -223,15 +228,6 @@ export function supportsDimension(estimator: Estimator, dim: number): boolean {
  */
 export function checkDimension(estimator: Estimator, dim: number): void {
   if (!supportsDimension(estimator, dim)) throw new UsageError(`${estimator.id} does not support d = ${dim}; it needs ${dimsRange(estimator.dims)}`);
-}
-
-/** A returned value as a user would write it: the string "1.5", nothing, an object. */
-function describeValue(value: unknown): string {
-  if (value === undefined) return 'nothing';
-  if (value === null) return 'null';
-  if (typeof value === 'string') return `the string ${JSON.stringify(value.length > 40 ? `${value.slice(0, 40)}…` : value)}`;
-  if (typeof value === 'bigint') return `the bigint ${value}n`;
-  return Array.isArray(value) ? 'an array' : `${typeof value === 'object' ? 'an' : 'a'} ${typeof value}`;
 }
 
 /**

@@ -13,7 +13,7 @@
 import type { Scenario, ScenarioFamily } from '../src/core/contracts.js';
 import { UsageError } from '../src/core/errors.js';
 import { didYouMean } from '../src/core/suggest.js';
-import { parseSpec, validateParams } from '../src/core/spec.js';
+import { checkSpecText, parseSpec, validateParams } from '../src/core/spec.js';
 import { gaussianMixtureFamily, monotoneMaps, transformedExamples, transformedScenario } from './mixtures-and-transforms.js';
 import { gaussianCovarianceScenario, multivariateFamilies, parseCovarianceArgument, productScenario } from './multivariate.js';
 import { univariateFamilies } from './univariate.js';
@@ -97,6 +97,7 @@ const cache = new Map<string, Scenario>();
 
 /** Builds the scenario a spec names. Results are cached: numeric truths are computed once per process. */
 export function parseScenario(spec: string): Scenario {
+  checkSpecText(spec, 'scenario');
   const key = spec.trim();
   const hit = cache.get(key);
   if (hit) return hit;

@@ -323,6 +323,19 @@ export function gammaLogDensityVariance(k: number): number {
   return 0.5 + 0.5 / (k * k) + ((k - 1) / k) ** 2 * trigammaStirlingRemainderScaled(k);
 }
 
+/**
+ * P(T > |z|) for Student's t with ν degrees of freedom: ½ I_x(ν/2, ½) with x = ν/(ν + z²). Past |z| ≈ 1.3e154, z²
+ * overflows and x would read 0, a tail of 0 where small ν still leaves most of the mass (ν = 0.001: 0.34 beyond
+ * 1.8e308, which the range check of src/harness/draw-range.ts reads); there x < 1e-308 and I_x(a, ½) =
+ * x^a/(a B(a, ½)) to a relative O(x), taken through log x = log ν − 2 log|z|.
+ */
+function studentTail(z: number, nu: number): number {
+  const squared = z * z;
+  if (Number.isFinite(squared)) return 0.5 * regularizedBeta(nu / (nu + squared), nu / 2, 0.5);
+  const a = nu / 2;
+  return 0.5 * Math.exp(a * (Math.log(nu) - 2 * Math.log(Math.abs(z))) - Math.log(a) - logBeta(a, 0.5));
+}
+
 const studentSpecs = [positive('nu', 'degrees of freedom', 3), location('mu', 'centre'), positive('sigma', 'scale', 1)];
 const student = family(
   'student-t',
@@ -348,12 +361,12 @@ const student = family(
         },
         cdf: (x) => {
           const z = (x - p.mu) / p.sigma;
-          const tail = 0.5 * regularizedBeta(p.nu / (p.nu + z * z), p.nu / 2, 0.5);
+          const tail = studentTail(z, p.nu);
           return z < 0 ? tail : 1 - tail;
         },
         survival: (x) => {
           const z = (x - p.mu) / p.sigma;
-          const tail = 0.5 * regularizedBeta(p.nu / (p.nu + z * z), p.nu / 2, 0.5);
+          const tail = studentTail(z, p.nu);
           return z > 0 ? tail : 1 - tail;
         },
         breakpoints: [p.mu],

@@ -1,5 +1,7 @@
 /**
- * hhat as a library: the same pieces the command line uses.
+ * hhat as a library: the same pieces the command line uses, checked as it checks its flags and plan files (a
+ * mistake is a UsageError with the command line's one-line message). README, "hhat as a library", documents the
+ * main functions; test/library.test.ts runs its examples.
  *
  *   import { resolvePlan, runPlan, assembleRun, parseScenario, replicateRng } from 'hhat';
  *   const { plan } = resolvePlan({ scenarios: ['gamma:shape=2'], estimators: ['kozachenko-leonenko'], sampleSizes: [1000] });
@@ -29,7 +31,7 @@ export type {
   TuningAxis,
   UnivariateDensity,
 } from './core/contracts.js';
-export { EstimateError, UsageError, isEstimateError } from './core/errors.js';
+export { EnvironmentError, EstimateError, UsageError, isEstimateError } from './core/errors.js';
 export { drawReplicate, replicateRng, replicateSeed, rngFromSeed } from './core/rng.js';
 export { catalog, getFamily, listFamilies, parseScenario } from '../scenarios/index.js';
 export {
@@ -49,7 +51,7 @@ export { runPlan, type RunOptions, type RunOutcome, type Shard } from './harness
 export { assembleRun, readRunFile, writeRunFile, type Cell, type RunFile } from './analysis/results.js';
 export { mergeShards } from './analysis/merge.js';
 export { scoreCell, type CellScores } from './analysis/score.js';
-export { compareRuns, type Comparison } from './analysis/compare.js';
+export { compareRuns, parseTolerance, type Comparison, type CompareOptions } from './analysis/compare.js';
 export { parsePerturbation, type Perturbation } from './harness/perturb.js';
 export { meanLogReference, parseReference, type Reference } from './analysis/reference.js';
 export { convertEntropy, unitFactor } from './core/units.js';

@@ -22,6 +22,7 @@
  *   const comparison = compareRuns(readRunFile('base.json'), readRunFile('new.json'), { tolerance: parseTolerance('5%') });
  */
 import { UsageError } from '../core/errors.js';
+import { describeValue } from '../core/spec.js';
 import { cellKey, type Cell, type RunFile, type ScenarioInfo } from './results.js';
 import type { Plan } from '../harness/plan.js';
 import type { Environment } from '../core/provenance.js';
@@ -629,7 +630,40 @@ function truthOf(run: ComparableRun): Map<string, number> {
  * Cells in only one run are listed as added or removed. Shard files (incomplete runs) are refused: their
  * missing replicates would look like failures.
  */
+/** Refuses, as one line, what a library caller may pass that no run file read by `hhat compare` can be. */
+function checkCompareArguments(base: unknown, next: unknown, options: unknown, labels: { base: string; next: string }): void {
+  for (const [run, label] of [
+    [base, labels.base],
+    [next, labels.next],
+  ] as const) {
+    const r = run as Partial<ComparableRun> | null;
+    if (typeof r !== 'object' || r === null || !Array.isArray(r.cells) || !Array.isArray(r.scenarios) || typeof r.plan !== 'object')
+      throw new UsageError(`${label} is not a run (${describeValue(run)}); pass a run file as readRunFile reads it, or a run from assembleRun`);
+  }
+  if (typeof options !== 'object' || options === null)
+    throw new UsageError(`compareRuns: options must be an object (CompareOptions); got ${describeValue(options)}`);
+  const { level, tolerance, pairing } = options as CompareOptions;
+  if (level !== undefined && !(typeof level === 'number' && level > 0 && level < 1))
+    throw new UsageError(`compareRuns: options.level ${String(level)} is not allowed; the confidence level is a number between 0 and 1 (e.g. 0.95)`);
+  if (
+    tolerance !== undefined &&
+    !(
+      typeof tolerance === 'object' &&
+      tolerance !== null &&
+      (tolerance.kind === 'nats' || tolerance.kind === 'ratio') &&
+      Number.isFinite(tolerance.value) &&
+      tolerance.value >= 0
+    )
+  )
+    throw new UsageError(
+      `compareRuns: options.tolerance ${JSON.stringify(tolerance) ?? describeValue(tolerance)} is not allowed; give { kind: 'nats' | 'ratio', value } with a value ≥ 0 (parseTolerance reads '0.01' or '5%')`,
+    );
+  if (pairing !== undefined && pairing !== 'auto' && pairing !== 'unpaired')
+    throw new UsageError(`compareRuns: options.pairing ${String(pairing)} is not allowed; it must be 'auto' or 'unpaired'`);
+}
+
 export function compareRuns(base: ComparableRun, next: ComparableRun, options: CompareOptions = {}, labels = { base: 'BASE', next: 'NEW' }): Comparison {
+  checkCompareArguments(base, next, options, labels);
   for (const [run, label] of [
     [base, labels.base],
     [next, labels.next],

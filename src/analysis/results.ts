@@ -9,7 +9,7 @@ import { loadAjv } from '../core/schema-validator.js';
 import type { Scenario } from '../core/contracts.js';
 import { UsageError } from '../core/errors.js';
 import { locateJsonError } from '../data/json-syntax.js';
-import { DEQUANTIZE_SETTING } from '../core/spec.js';
+import { DEQUANTIZE_SETTING, describeValue } from '../core/spec.js';
 import { drawsFingerprint, readTextFile, type Plan, type PlanCode } from '../harness/plan.js';
 import { environment, type Environment } from '../core/provenance.js';
 import type { RunOutcome, Session, Shard } from '../harness/runner.js';
@@ -113,6 +113,10 @@ export function cellIdentity(context: WorkContext, unit: Unit, series: Unit['ser
 
 /** Assembles cells from unit results (a shard holds only its own replicates; the rest stay null). */
 export function assembleRun(outcome: RunOutcome, shard: Shard | null): RunFile {
+  if (typeof outcome !== 'object' || outcome === null || !(outcome.results instanceof Map) || typeof outcome.context !== 'object')
+    throw new UsageError(`assembleRun: the outcome must be what runPlan resolves to; got ${describeValue(outcome)}`);
+  if (shard !== null && !(typeof shard === 'object' && Number.isInteger(shard.index) && Number.isInteger(shard.count)))
+    throw new UsageError(`assembleRun: the shard must be null (a whole run) or the { index, count } given to runPlan; got ${describeValue(shard)}`);
   const { plan, context } = outcome;
   const cellIndex = new Map<string, Cell>();
   const cells: Cell[] = [];
@@ -254,6 +258,7 @@ export function toJson(value: unknown): string {
 }
 
 export function writeRunFile(path: string, run: RunFile, hint?: string): void {
+  if (typeof path !== 'string' || path.trim() === '') throw new UsageError(`writeRunFile: the path must be a file name; got ${describeValue(path)}`);
   writeFileAtomic(path, `${toJson(run)}\n`, hint);
 }
 

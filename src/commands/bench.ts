@@ -26,8 +26,9 @@ import {
   parseSampleSizes,
   parsePhiList,
   readPlanFile,
-  resolvePlan,
+  resolveCheckedPlan,
   COMMAND_LINE,
+  MAX_WORKERS,
   type Plan,
   type PlanInput,
 } from '../harness/plan.js';
@@ -45,9 +46,9 @@ import {
   removeLeftoverTemporaries,
   sameFile,
 } from '../core/files.js';
-import { checkSampleMemory } from '../core/memory.js';
 import { prefetchProvenance } from '../core/provenance.js';
-import { checkpointStarted, defaultWorkers, runPlan, type RunOptions, type RunOutcome, type Shard } from '../harness/runner.js';
+import { OUT_OF_RANGE } from '../harness/draw-range.js';
+import { checkPlanMemory, checkpointStarted, defaultWorkers, runPlan, type RunOptions, type RunOutcome, type Shard } from '../harness/runner.js';
 import { parseShard } from '../harness/shard.js';
 import { dependenceTables, detailTable, overallTable, robustnessTable, scenarioTables, scoresCsv } from '../views/tables.js';
 import { estimatorLabel } from '../../estimators/index.js';
@@ -202,17 +203,40 @@ export function planInputFromOptions(options: BenchOptions): PlanInput {
 
 const MAX_REASON_LINES = 6;
 
-/** "estimator: reason (count)" for each distinct failure reason, the most frequent first, at most `limit` lines. */
+/** Whether a failure is a draw's that left the double range (src/harness/draw-range.ts), not the estimator's. */
+function outOfRange(message: string): boolean {
+  return message.startsWith(`${OUT_OF_RANGE}: `);
+}
+
+/**
+ * "estimator: reason (count)" for each distinct failure reason, the most frequent first, at most `limit` lines;
+ * a draw that left the double range is named once for all the estimators it failed, as the scenario's or perturbation's.
+ */
 function failureReasons(cells: RunFile['cells'], limit: number): string[] {
   const counts = new Map<string, number>();
   for (const cell of cells) {
     for (const f of cell.failures) {
-      const key = `${estimatorLabel(cell.estimator)}: ${f.message}`;
+      const key = outOfRange(f.message) ? f.message.slice(OUT_OF_RANGE.length + 2) : `${estimatorLabel(cell.estimator)}: ${f.message}`;
       counts.set(key, (counts.get(key) ?? 0) + 1);
     }
   }
   const lines = [...counts.entries()].sort((a, b) => b[1] - a[1]).map(([key, count]) => `${key}${count > 1 ? ` (${count} times)` : ''}`);
   return lines.length > limit ? [...lines.slice(0, limit), `… and ${lines.length - limit} other reasons`] : lines;
+}
+
+/** "41 ties, 3 out-of-range draw": failures counted by the code their messages start with, the most frequent first. */
+function failureCauses(cells: RunFile['cells']): string {
+  const counts = new Map<string, number>();
+  for (const cell of cells) {
+    for (const f of cell.failures) {
+      const code = outOfRange(f.message) ? OUT_OF_RANGE : (/^([a-z-]+): /.exec(f.message)?.[1] ?? 'other');
+      counts.set(code, (counts.get(code) ?? 0) + 1);
+    }
+  }
+  return [...counts.entries()]
+    .sort((a, b) => b[1] - a[1])
+    .map(([code, count]) => `${count} ${code}`)
+    .join(', ');
 }
 
 export function printRun(run: RunFile, base: Base, print: (text: string) => void, detail: boolean): void {
@@ -242,10 +266,15 @@ export function printRun(run: RunFile, base: Base, print: (text: string) => void
     ))
       print(`  ${line}`);
   }
-  if (failedOther)
+  if (failedOther) {
+    const other = run.cells.filter((c) => c.role !== 'main');
     print(
-      `${failedOther} estimate${failedOther === 1 ? '' : 's'} failed on perturbed samples or tuning variants (ties after rounding, mostly); the robustness table counts them.`,
+      `${failedOther} estimate${failedOther === 1 ? '' : 's'} failed on perturbed samples or tuning variants (${failureCauses(other)}); the robustness table counts them.`,
     );
+    // Ties after rounding are expected there; a draw carried beyond the double range is not, and is named.
+    const ranged = other.map((c) => ({ ...c, failures: c.failures.filter((f) => outOfRange(f.message)) })).filter((c) => c.failures.length);
+    for (const line of failureReasons(ranged, MAX_REASON_LINES)) print(`  ${line}`);
+  }
   print(
     `RMSE ± Monte-Carlo SE (${countOf(run.plan.replicates, 'replicate')} per cell). ${rankLegend(run.plan.verdicts.level, run.plan.verdicts.maxFailureRate)} ` +
       'RMSE slope vs n: the weighted least-squares slope of log RMSE on log n ± its SE (−0.5 is the parametric rate); sizes whose RMSE is below 2 SE are left out, and "[k of K n]" says when some were.',
@@ -337,15 +366,11 @@ async function benchPlan(options: BenchOptions, workers: number, printErr: (text
   const note = describeRegistration(registration);
   if (note && !options.quiet) printErr(note);
   // Errors name where the plan came from: the plan file, or the flags.
-  const { plan, scenarios, estimators } = resolvePlan(input, options.plan ?? COMMAND_LINE);
+  // planInputFromOptions checked every part: the plan file against the schema, each flag as it was parsed.
+  const { plan, scenarios, estimators } = resolveCheckedPlan(input, options.plan ?? COMMAND_LINE);
   for (const text of historyNotes(scenarios, estimators)) printErr(`hhat: note: ${text}`);
-  // Refused before any work starts, with what it would need, rather than a crash part way.
-  const largestN = Math.max(...plan.sampleSizes);
-  checkSampleMemory(`n = ${largestN}`, largestN, Math.max(...scenarios.map((x) => x.dim)), {
-    workers,
-    workerMemoryMiB: plan.limits.workerMemoryMiB,
-    raise: "--memory-limit or a plan's limits.workerMemoryMiB",
-  });
+  // Refused before any work starts (runPlan checks again, for library callers), with what it would need, rather than a crash part way.
+  checkPlanMemory(plan, scenarios, workers, 'threads', "--memory-limit or a plan's limits.workerMemoryMiB");
   return plan;
 }
 
@@ -536,7 +561,7 @@ async function runBench(options: BenchOptions, args: string[], print: (text: str
   const base: Base = options.bits ? 'bits' : 'nats';
   refuseEmptyValues(options);
   const shard: Shard | undefined = options.shard ? parseShard(options.shard) : undefined;
-  const workers = options.workers === undefined ? defaultWorkers() : parseIntegerOption('--workers', options.workers, 1, 256);
+  const workers = options.workers === undefined ? defaultWorkers() : parseIntegerOption('--workers', options.workers, 1, MAX_WORKERS);
   const out = benchOutPath(options, shard);
   refuseOutputClashes(out, checkpointFor(out), options, shard);
   const plan = await benchPlan(options, workers, printErr);

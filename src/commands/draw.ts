@@ -14,6 +14,8 @@ import { MAX_REPLICATES, MAX_SAMPLE_SIZE, parseIntegerOption } from '../core/opt
 import { DEFAULT_SEED } from '../core/rng.js';
 import { csvChunks, jsonChunks, npyChunks, sampleColumnNames } from '../data/sample-write.js';
 import { prepareDraw, type Draw } from '../harness/draw.js';
+import { nonFiniteCount } from '../harness/draw-range.js';
+import { parseScenario } from '../../scenarios/index.js';
 
 type Format = 'npy' | 'csv' | 'json';
 const FORMATS: readonly Format[] = ['npy', 'csv', 'json'];
@@ -226,14 +228,25 @@ function printSummary(draw: Draw, replicates: number[], files: WrittenFile[], fo
 }
 
 /** `hhat draw`: the samples a plan's cell sees, written to files. */
-function runDraw(spec: string, options: DrawOptions, print: (text: string) => void): void {
+function runDraw(spec: string, options: DrawOptions, print: (text: string) => void, printErr: (text: string) => void): void {
   const n = parseIntegerOption('--n', options.n, 1, MAX_SAMPLE_SIZE);
   const seed = options.seed === undefined ? DEFAULT_SEED : parseIntegerOption('--seed', options.seed, 0);
   const { replicates, stacked } = chosenReplicates(options);
   const out = checkedOut(options.out);
   const format = chosenFormat(options.out, options.format);
-  const draw = prepareDraw({ scenario: spec, n, seed, perturbation: options.perturb });
-  checkSampleMemory(`--n ${n}`, n, draw.scenario.dim);
+  // Before prepareDraw, which draws a first replicate to check its range.
+  checkSampleMemory(`--n ${n}`, n, parseScenario(spec).dim);
+  const prepared = prepareDraw({ scenario: spec, n, seed, perturbation: options.perturb, replicates: replicates.length, pilot: replicates[0] });
+  // A law hhat cannot check in advance may still draw beyond the double range: said, not written silently.
+  const outOfRange = new Set<number>();
+  const draw: Draw = {
+    ...prepared,
+    sample: (r) => {
+      const sample = prepared.sample(r);
+      if (nonFiniteCount(sample) > 0) outOfRange.add(r);
+      return sample;
+    },
+  };
   const head = { kind: 'hhat-draw', version: 1, ...drawRecord(draw) };
   const files = planFiles(draw, out, format, replicates, stacked, Boolean(options.split), head);
   if (isSpecialFile(out) && files.some((f) => f.path !== out)) {
@@ -250,9 +263,15 @@ function runDraw(spec: string, options: DrawOptions, print: (text: string) => vo
   const written: WrittenFile[] = files.map(({ path, contents, replicates: r, shape }) => ({ path, contents, replicates: r, shape }));
   if (options.json) print(JSON.stringify({ ...drawRecord(draw), replicates, format, files: written }, null, 2));
   else printSummary(draw, replicates, written, format, print);
+  if (outOfRange.size) {
+    const which = [...outOfRange].sort((a, b) => a - b);
+    printErr(
+      `hhat: warning: replicate${which.length === 1 ? '' : 's'} ${describeReplicates(which)} hold${which.length === 1 ? 's' : ''} values beyond ±1.8e308, written as ±Infinity: ${draw.perturbation ? `${draw.scenario.id} under ${draw.perturbation.spec}` : draw.scenario.id} leaves the double range there, and no estimator can take such a sample (README, "Draws beyond the double range")`,
+    );
+  }
 }
 
-export function registerDrawCommand(program: Command, print: (text: string) => void): void {
+export function registerDrawCommand(program: Command, print: (text: string) => void, printErr: (text: string) => void): void {
   program
     .command('draw')
     .description(COMMANDS.draw)
@@ -288,5 +307,5 @@ Examples:
   hhat draw "mi-gaussian:dimX=2,dimY=3,rho=0.6" --n 200 --replicate 4 --out mi.csv --json
   hhat draw "kl-gaussian:dim=3,shift=0.5" --n 1000 --replicate 0-9 --split --out kl.npy`,
     )
-    .action((spec: string, options: DrawOptions) => runDraw(spec, options, print));
+    .action((spec: string, options: DrawOptions) => runDraw(spec, options, print, printErr));
 }

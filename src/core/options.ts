@@ -10,6 +10,8 @@ export const MAX_SAMPLE_SIZE = planSchema.properties.sampleSizes.items.maximum;
 export const MAX_REPLICATES = planSchema.properties.replicates.maximum;
 export const MAX_ESTIMATE_SECONDS = planSchema.properties.limits.properties.estimateSeconds.maximum;
 export const WORKER_MEMORY_MIB = planSchema.properties.limits.properties.workerMemoryMiB;
+/** The most worker threads a run may ask for (--workers, runPlan's options.workers). */
+export const MAX_WORKERS = 256;
 
 /** Parses "100,1000,1e4" for --n. */
 export function parseSampleSizes(text: string): number[] {
@@ -38,12 +40,21 @@ export function parsePhiList(text: string): number[] {
 
 export function parseIntegerOption(flag: string, text: string, min: number, max = Number.MAX_SAFE_INTEGER): number {
   const value = Number(text);
-  if (text.trim() === '' || !Number.isInteger(value) || value < min || value > max) {
-    // Above MAX_SAFE_INTEGER (2^53 − 1) integers are no longer exact as doubles: that bound is named when it is the one passed.
-    const range = max === Number.MAX_SAFE_INTEGER && !(value > max) ? `≥ ${min}` : `from ${min} to ${max}`;
-    throw new UsageError(`${flag} ${text} is not allowed; it must be an integer ${range}`);
-  }
+  if (text.trim() === '' || !Number.isInteger(value) || value < min || value > max) throw integerRangeError(flag, text, value, min, max);
   return value;
+}
+
+function integerRangeError(name: string, shown: string, value: number, min: number, max: number): UsageError {
+  // Above MAX_SAFE_INTEGER (2^53 − 1) integers are no longer exact as doubles: that bound is named when it is the one passed.
+  const range = max === Number.MAX_SAFE_INTEGER && !(value > max) ? `≥ ${min}` : `from ${min} to ${max}`;
+  return new UsageError(`${name} ${shown} is not allowed; it must be an integer ${range}`);
+}
+
+/** An integer argument from code (a library call), held to the range its flag has: "drawReplicate: n 1.5 is not allowed; ...". */
+export function checkIntegerArgument(name: string, value: unknown, min: number, max = Number.MAX_SAFE_INTEGER): number {
+  if (typeof value === 'number' && Number.isInteger(value) && value >= min && value <= max) return value;
+  const shown = typeof value === 'string' ? `the string ${JSON.stringify(value)}` : String(value);
+  throw integerRangeError(name, shown, typeof value === 'number' ? value : NaN, min, max);
 }
 
 /** A confidence level strictly between 0 and 1 (e.g. 0.95), for --level. */

@@ -1,6 +1,10 @@
 import { createHash } from 'node:crypto';
 import type { Rng, Sample, Scenario } from './contracts.js';
 import { loadPackage } from './vendor.js';
+import { UsageError } from './errors.js';
+import { describeValue } from './spec.js';
+import { checkIntegerArgument, MAX_REPLICATES, MAX_SAMPLE_SIZE } from './options.js';
+import { checkSampleMemory } from './memory.js';
 
 const seedrandom = loadPackage<typeof import('seedrandom')>('seedrandom');
 
@@ -35,5 +39,12 @@ export function replicateRng(baseSeed: number, scenarioId: string, n: number, re
  * cell's samples here, and `hhat draw` writes them out, so both see the same bytes.
  */
 export function drawReplicate(scenario: Scenario, baseSeed: number, n: number, replicate: number): Sample {
+  // A library call is held to what `hhat draw` allows; a fractional n would otherwise be a RangeError in the sampler.
+  if (typeof scenario !== 'object' || scenario === null || typeof scenario.sample !== 'function')
+    throw new UsageError(`drawReplicate: the scenario must be one parseScenario returns; got ${describeValue(scenario)}`);
+  checkIntegerArgument('drawReplicate: seed', baseSeed, 0);
+  checkIntegerArgument('drawReplicate: n', n, 1, MAX_SAMPLE_SIZE);
+  checkIntegerArgument('drawReplicate: replicate', replicate, 0, MAX_REPLICATES - 1);
+  checkSampleMemory(`drawReplicate: n = ${n}`, n, scenario.dim);
   return scenario.sample(replicateRng(baseSeed, scenario.id, n, replicate), n);
 }

@@ -8,8 +8,25 @@ export interface ParsedSpec {
   values: Record<string, string>;
 }
 
+/** A value of the wrong type as a message names it: nothing, null, the number 3, an array, an object. */
+export function describeValue(value: unknown): string {
+  if (value === undefined) return 'nothing';
+  if (value === null) return 'null';
+  if (typeof value === 'string') return `the string ${JSON.stringify(value.length > 40 ? `${value.slice(0, 40)}…` : value)}`;
+  if (typeof value === 'number' || typeof value === 'boolean') return `the ${typeof value} ${String(value)}`;
+  if (typeof value === 'bigint') return `the bigint ${value}n`;
+  return Array.isArray(value) ? 'an array' : `${typeof value === 'object' ? 'an' : 'a'} ${typeof value}`;
+}
+
+/** Library callers pass specs from code: anything but a string is refused as the text a user might have typed is. */
+export function checkSpecText(text: unknown, what: string): asserts text is string {
+  if (typeof text !== 'string')
+    throw new UsageError(`${/^[aeiou]/.test(what) ? 'an' : 'a'} ${what} spec must be a string, ID or ID:key=value,...; got ${describeValue(text)}`);
+}
+
 /** Splits `id:key=value,...`. Brackets may hold nested specs (`product[normal;exponential:rate=2]`). */
 export function parseSpec(text: string, what: string): ParsedSpec {
+  checkSpecText(text, what);
   const trimmed = text.trim();
   if (trimmed === '') throw new UsageError(`empty ${what}; expected ID or ID:key=value,...`);
   let depth = 0;
@@ -54,6 +71,8 @@ export function formatNumber(x: number): string {
 }
 
 export function parseNumber(text: string): number | undefined {
+  // A setting or parameter from code may be any value (true, null); it is then no number, as "abc" is not.
+  if (typeof text !== 'string') return undefined;
   if (!/^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/.test(text.trim())) return undefined;
   return Number(text);
 }

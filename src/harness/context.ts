@@ -3,7 +3,7 @@
  * same context from the same plan, so they compute the same estimates.
  */
 import type { Plan } from './plan.js';
-import { resolvePlan } from './plan.js';
+import { resolveCheckedPlan } from './plan.js';
 import { parsePerturbation } from './perturb.js';
 import { tuningGrid } from './tuning.js';
 import type { DequantizedTwin, WorkContext } from './work.js';
@@ -31,8 +31,9 @@ function dequantizedTwins(estimators: ConfiguredEstimator[], taken: Set<string>,
  * (which decides which ones apply) keeps the shifts.
  */
 export function buildContext(plan: Plan, { shifts = true, replicateOffset = 0 }: { shifts?: boolean; replicateOffset?: number } = {}): WorkContext {
-  // A Plan is a valid PlanInput: resolving it again yields the same plan, with its scenarios and estimators.
-  const resolved = resolvePlan(plan);
+  // A Plan is a valid PlanInput: resolving it again yields the same plan, with its scenarios and estimators. runPlan
+  // checked a plan it did not resolve itself, and a run file's plan was checked with the file.
+  const resolved = resolveCheckedPlan(plan);
   const { scenarios, estimators } = resolved;
   const robustness = resolved.plan.robustness;
   // Tuning points that are not a plan estimator, each spec once (the first grid that reaches it keeps it).

@@ -11,6 +11,7 @@ import { UsageError } from '../core/errors.js';
 import { drawReplicate } from '../core/rng.js';
 import { parseScenario } from '../../scenarios/index.js';
 import { parsePerturbation, perturbedCopy, type PreparedPerturbation } from './perturb.js';
+import { perturbationRangeProblem, pilotRangeProblem, scenarioRangeProblem } from './draw-range.js';
 
 export interface DrawRequest {
   /** A scenario spec as bench takes it (`hhat scenarios`). */
@@ -19,6 +20,10 @@ export interface DrawRequest {
   seed: number;
   /** A perturbation spec as bench's --perturb takes it. */
   perturbation?: string;
+  /** How many replicates will be drawn (default 1): the range check counts n × this many values of each coordinate. */
+  replicates?: number;
+  /** The replicate drawn in advance to see that the draws stay within the double range (default 0). */
+  pilot?: number;
 }
 
 export interface DrawnPerturbation {
@@ -47,6 +52,14 @@ export interface Draw {
 export function prepareDraw(request: DrawRequest): Draw {
   const scenario = parseScenario(request.scenario);
   const { n, seed } = request;
+  // Refused as bench refuses them (src/harness/draw-range.ts): values beyond the double range would be written as ±inf.
+  const values = n * (request.replicates ?? 1);
+  const problem = scenarioRangeProblem(scenario, values);
+  if (problem) throw new UsageError(problem);
+  const pilot = request.pilot ?? 0;
+  const original = drawReplicate(scenario, seed, n, pilot);
+  const pilotProblem = pilotRangeProblem(scenario, null, original, pilot);
+  if (pilotProblem) throw new UsageError(pilotProblem);
   if (request.perturbation === undefined) {
     return {
       scenario,
@@ -63,6 +76,10 @@ export function prepareDraw(request: DrawRequest): Draw {
   const prepared = perturbation.prepare(scenario);
   if ('skip' in prepared) throw new UsageError(`--perturb ${request.perturbation} does not apply to ${scenario.id}: ${prepared.skip}`);
   const ready: PreparedPerturbation = prepared;
+  const perturbationProblem =
+    perturbationRangeProblem(scenario, perturbation.spec, ready, values) ??
+    pilotRangeProblem(scenario, perturbation.spec, perturbedCopy(original, ready, pilot, seed), pilot);
+  if (perturbationProblem) throw new UsageError(`--perturb ${request.perturbation}: ${perturbationProblem}`);
   const shift = ready.shift ?? 0;
   return {
     scenario,

@@ -236,11 +236,51 @@ export function readPlanFile(path: string): PlanInput {
   return checkPlanShape(value, path);
 }
 
-/** Normalises a plan input: canonical ids, settings validated with their paths, sizes sorted. */
 /** The source `resolvePlan` names for a plan built from flags: its messages then quote the flag as typed. */
 export const COMMAND_LINE = 'command line';
 
+/**
+ * A plan given in code checked as a plan file is: the same schema and the same one-line messages, so a library
+ * call with `sampleSizes: [1.5]` or `replicates: 0` is refused as `--plan` would refuse it, not run into cells
+ * that all fail. `commands` hold declarations already normalised (normalizeCommand), which the schema's raw
+ * form does not describe; only their shape is checked.
+ */
+export function checkPlanInput(input: unknown, source: string): PlanInput {
+  if (typeof input !== 'object' || input === null || Array.isArray(input)) return checkPlanShape(input, source);
+  const { commands, ...rest } = input as Record<string, unknown>;
+  checkPlanShape(rest, source);
+  if (commands === undefined) return input as PlanInput;
+  if (!Array.isArray(commands)) throw new UsageError(`${source}: commands: must be an array`);
+  commands.forEach((entry: unknown, i) => {
+    const c = entry as Partial<CommandDeclaration> | null;
+    if (typeof c !== 'object' || c === null || typeof c.id !== 'string' || !Array.isArray(c.command) || typeof c.cwd !== 'string')
+      throw new UsageError(`${source}: commands[${i}]: must be an estimator command declaration as hhat normalises it (id, command as an array, cwd, ...)`);
+  });
+  return input as PlanInput;
+}
+
+/** Plans this process resolved: runPlan checks any other plan it is given against the schema first. */
+const resolvedPlans = new WeakSet<Plan>();
+
+/** Whether `plan` came from resolvePlan (or resolveCheckedPlan) in this process. */
+export function isResolvedPlan(plan: Plan): boolean {
+  return resolvedPlans.has(plan);
+}
+
+/**
+ * Normalises a plan input: canonical ids, settings validated with their paths, sizes sorted. The input is first
+ * checked against the plan schema (checkPlanInput); a mistake is a UsageError naming `source` and the path.
+ */
 export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
+  return resolveCheckedPlan(checkPlanInput(input, source), source);
+}
+
+/**
+ * resolvePlan for an input already checked: a plan file read by readPlanFile and changed only by parsed flags
+ * (bench), a plan this process resolved (the run's context), or one built by hhat's own code (advise). It spares
+ * the command line loading the schema validator, about 75 ms.
+ */
+export function resolveCheckedPlan(input: PlanInput, source = 'plan'): ResolvedPlan {
   const quantity = input.quantity ?? 'entropy';
   const specs = input.phi ? phiScenarios(input.scenarios, input.phi, source) : input.scenarios;
   const scenarios = specs.map((spec, i) => {
@@ -317,6 +357,7 @@ export function resolvePlan(input: PlanInput, source = 'plan'): ResolvedPlan {
     verdicts: { ...DEFAULT_VERDICTS, ...input.verdicts },
     limits: { ...DEFAULT_LIMITS, ...input.limits },
   };
+  resolvedPlans.add(plan);
   return {
     plan,
     scenarios: plan.scenarios.map((id) => parseScenario(id)),
@@ -422,6 +463,7 @@ export {
   collect,
   MAX_ESTIMATE_SECONDS,
   MAX_REPLICATES,
+  MAX_WORKERS,
   parseFraction,
   parseIntegerOption,
   parseLevel,

@@ -5,10 +5,17 @@
 import { existsSync, readFileSync, statSync, truncateSync } from 'node:fs';
 import { EnvironmentError, UsageError } from '../core/errors.js';
 import { buildContext } from './context.js';
-import { codeDifference, planCode, planFingerprint, type Plan, type PlanCode } from './plan.js';
+import { checkPlanInput, codeDifference, isResolvedPlan, MAX_WORKERS, planCode, planFingerprint, type Plan, type PlanCode } from './plan.js';
+import { checkSampleMemory } from '../core/memory.js';
+import { checkIntegerArgument } from '../core/options.js';
+import { describeValue } from '../core/spec.js';
+import type { Sample, Scenario } from '../core/contracts.js';
 import { describeFileError, openAppender, writeFileAtomic, type Appender } from '../core/files.js';
 import { executeUnit, planUnits, type Skip, type Unit, type UnitResult, type WorkContext } from './work.js';
 import { runOnPool } from './pool.js';
+import { perturbationRangeProblem, pilotRangeProblem, scenarioRangeProblem } from './draw-range.js';
+import { drawReplicate } from '../core/rng.js';
+import { perturbedCopy } from './perturb.js';
 import { defaultWorkers } from './threads.js';
 
 export { defaultWorkers };
@@ -423,11 +430,83 @@ function closeCheckpoint(appender: Appender | null, session: Session): void {
   appender?.close();
 }
 
+/**
+ * Refuses, before any work, a plan whose largest sample would not fit in memory on `workers` threads (each under
+ * the plan's limits.workerMemoryMiB), or on this thread for an in-process run; `raise` says how to raise the limit.
+ */
+export function checkPlanMemory(plan: Plan, scenarios: readonly Scenario[], workers: number, isolation: RunOptions['isolation'], raise: string): void {
+  const largestN = Math.max(...plan.sampleSizes);
+  const dim = Math.max(...scenarios.map((x) => x.dim));
+  checkSampleMemory(`n = ${largestN}`, largestN, dim, isolation === 'in-process' ? {} : { workers, workerMemoryMiB: plan.limits.workerMemoryMiB, raise });
+}
+
+/**
+ * Checks runPlan's arguments from code as the command line checks its flags: a plan this process did not
+ * resolve against the plan schema, and each option against the range its flag allows (--workers, --shard).
+ */
+function checkRunArguments(plan: Plan, options: RunOptions): void {
+  if (typeof plan !== 'object' || plan === null || !isResolvedPlan(plan)) checkPlanInput(plan, 'runPlan: plan');
+  if (typeof options !== 'object' || options === null) throw new UsageError(`runPlan: options must be an object (RunOptions); got ${describeValue(options)}`);
+  const { workers, isolation, shard, replicateOffset } = options;
+  if (workers !== undefined) checkIntegerArgument('runPlan: options.workers', workers, 1, MAX_WORKERS);
+  if (isolation !== undefined && isolation !== 'threads' && isolation !== 'in-process')
+    throw new UsageError(`runPlan: options.isolation ${JSON.stringify(isolation)} is not allowed; it must be 'threads' or 'in-process'`);
+  if (
+    shard !== undefined &&
+    !(
+      typeof shard === 'object' &&
+      shard !== null &&
+      Number.isInteger(shard.count) &&
+      Number.isInteger(shard.index) &&
+      shard.index >= 1 &&
+      shard.index <= shard.count
+    )
+  )
+    throw new UsageError(`runPlan: options.shard ${JSON.stringify(shard)} is not allowed; it must be { index, count }, integers with 1 ≤ index ≤ count`);
+  if (replicateOffset !== undefined) checkIntegerArgument('runPlan: options.replicateOffset', replicateOffset, 0);
+  if (replicateOffset && options.checkpointPath)
+    throw new UsageError(
+      "runPlan: options.replicateOffset cannot be combined with options.checkpointPath: a run that continues another run's draws keeps no checkpoint",
+    );
+}
+
+/**
+ * Refuses a plan whose draws would leave the double range (src/harness/draw-range.ts): a scenario whose law puts
+ * too much mass beyond ±1.8e308 for the values the plan draws of it, or a perturbation that carries those draws
+ * there. The failures would otherwise be every estimator's, on every replicate.
+ */
+function refuseOutOfRangeDraws(context: WorkContext): void {
+  const { plan, scenarios, perturbations, prepared } = context;
+  const refuse = (problem: string | null) => {
+    if (problem) throw new UsageError(problem);
+  };
+  // The pilot is the run's own first replicate (after any offset), so it costs one replicate's draws per cell.
+  const pilot = context.replicateOffset;
+  scenarios.forEach((scenario, s) => {
+    refuse(scenarioRangeProblem(scenario, plan.replicates * plan.sampleSizes.reduce((a, b) => a + b, 0)));
+    let original: Sample | undefined;
+    for (const n of plan.sampleSizes) {
+      const sample = drawReplicate(scenario, plan.seed, n, pilot);
+      refuse(pilotRangeProblem(scenario, null, sample, pilot));
+      if (n === plan.robustness?.sampleSize) original = sample;
+    }
+    if (!plan.robustness || !original) return;
+    const values = plan.replicates * plan.robustness.sampleSize;
+    const robustnessDraw = original;
+    perturbations.forEach((perturbation, k) => {
+      const ready = prepared[s][k];
+      if ('skip' in ready) return;
+      refuse(perturbationRangeProblem(scenario, perturbation.spec, ready, values));
+      refuse(pilotRangeProblem(scenario, perturbation.spec, perturbedCopy(robustnessDraw, ready, pilot, plan.seed), pilot));
+    });
+  });
+}
+
 /** Runs the plan's owned units (after the checkpoint's, on resume) and returns their results with this session's record. */
 export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<RunOutcome> {
   const started = performance.now();
+  checkRunArguments(plan, options);
   const replicateOffset = options.replicateOffset ?? 0;
-  if (replicateOffset !== 0 && options.checkpointPath) throw new Error("a run that continues another run's draws keeps no checkpoint");
   const context = buildContext(plan, { replicateOffset });
   refuseUnseenOnThreads(context, options.isolation);
   // Digesting the code reads every file of hhat and of the modules: once per run.
@@ -436,6 +515,14 @@ export async function runPlan(plan: Plan, options: RunOptions = {}): Promise<Run
   const { units, skipped } = planUnits(context);
   refuseEmptyPlan(units, skipped);
   const owned = shardUnits(units, options.shard);
+  checkPlanMemory(
+    context.plan,
+    context.scenarios,
+    Math.max(1, Math.min(options.workers ?? defaultWorkers(), owned.length)),
+    options.isolation,
+    "the plan's limits.workerMemoryMiB",
+  );
+  refuseOutOfRangeDraws(context);
   const checkpoint = openCheckpoint(options, owned, fingerprint, options.shard ?? null, code);
   const { appender } = checkpoint;
   const resumedUnits = checkpoint.restored.size;

@@ -12,6 +12,7 @@ import { dimsRange, runEstimator, supportsDimension } from '../../estimators/ind
 import type { Plan } from './plan.js';
 import { perturbedCopy, type Perturbation, type PreparedPerturbation } from './perturb.js';
 import { drawReplicate } from '../core/rng.js';
+import { nonFiniteCount, outOfRangeMessage } from './draw-range.js';
 import type { TuningPoint } from './tuning.js';
 
 /** A series of estimates: one estimator (index into the context's `all` list) on one variant of the sample. */
@@ -198,10 +199,23 @@ export function executeReplicate(unit: Unit, context: WorkContext, replicate: nu
   const variants = [...new Set(unit.series.map((s) => s.variant))];
   const drawn = replicate + context.replicateOffset;
   const original = drawReplicate(scenario, plan.seed, unit.n, drawn);
+  // A draw beyond the double range (a law hhat could not check in advance: src/harness/draw-range.ts) is the
+  // scenario's failure on this replicate, and a perturbed copy taken there the perturbation's: no estimator runs on it.
+  const drawnOutOfRange = nonFiniteCount(original) > 0;
   for (const v of variants) {
-    const sample: Sample = v > 0 ? perturbedCopy(original, context.prepared[unit.scenario][v - 1] as PreparedPerturbation, drawn, plan.seed) : original;
+    const sample: Sample =
+      v > 0 && !drawnOutOfRange ? perturbedCopy(original, context.prepared[unit.scenario][v - 1] as PreparedPerturbation, drawn, plan.seed) : original;
+    const outOfRange = drawnOutOfRange
+      ? outOfRangeMessage(scenario, null)
+      : v > 0 && nonFiniteCount(sample) > 0
+        ? outOfRangeMessage(scenario, context.perturbations[v - 1].spec)
+        : null;
     unit.series.forEach((series, k) => {
       if (series.variant !== v || hooks.skip?.(k)) return;
+      if (outOfRange !== null) {
+        failures.push({ series: k, replicate, message: outOfRange });
+        return;
+      }
       hooks.onStart?.(k, replicate);
       const started = performance.now();
       let value: number;

@@ -23,7 +23,7 @@
  */
 import { listEstimators, parseEstimatorSpec } from '../../../estimators/index.js';
 import type { Plan } from '../../harness/plan.js';
-import { resolvePlan } from '../../harness/plan.js';
+import { resolveCheckedPlan } from '../../harness/plan.js';
 import { assembleRun, cellKey, finishRun, type Cell, type RunFile } from '../results.js';
 import { defaultWorkers, runPlan } from '../../harness/runner.js';
 import { replicatesPerUnit } from '../../harness/work.js';
@@ -143,8 +143,9 @@ export async function runTargeted(options: TargetedOptions): Promise<TargetedBen
   const maxReplicates = options.maxReplicates ?? 1000;
   let perturbations = options.perturbations ?? [];
   let scenarios = options.scenarios;
+  // Built here, not given by a caller: its pilot's single replicate is below what a plan file may ask for.
   const planFor = (replicates: number, roundSeed: number, withRobustness: boolean, only = scenarios) =>
-    resolvePlan({
+    resolveCheckedPlan({
       name: 'advise',
       scenarios: only,
       estimators: options.estimators,
