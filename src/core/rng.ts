@@ -46,5 +46,13 @@ export function drawReplicate(scenario: Scenario, baseSeed: number, n: number, r
   checkIntegerArgument('drawReplicate: n', n, 1, MAX_SAMPLE_SIZE);
   checkIntegerArgument('drawReplicate: replicate', replicate, 0, MAX_REPLICATES - 1);
   checkSampleMemory(`drawReplicate: n = ${n}`, n, scenario.dim);
+  return drawCheckedReplicate(scenario, baseSeed, n, replicate);
+}
+
+/**
+ * drawReplicate without its argument checks, for the harness, whose plan was checked once before the run: the
+ * checks (and a memory probe of the machine) would otherwise run on every replicate of every cell.
+ */
+export function drawCheckedReplicate(scenario: Scenario, baseSeed: number, n: number, replicate: number): Sample {
   return scenario.sample(replicateRng(baseSeed, scenario.id, n, replicate), n);
 }

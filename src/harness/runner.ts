@@ -14,7 +14,7 @@ import { describeFileError, openAppender, writeFileAtomic, type Appender } from 
 import { executeUnit, planUnits, type Skip, type Unit, type UnitResult, type WorkContext } from './work.js';
 import { runOnPool } from './pool.js';
 import { perturbationRangeProblem, pilotRangeProblem, scenarioRangeProblem } from './draw-range.js';
-import { drawReplicate } from '../core/rng.js';
+import { drawCheckedReplicate } from '../core/rng.js';
 import { perturbedCopy } from './perturb.js';
 import { defaultWorkers } from './threads.js';
 
@@ -486,7 +486,7 @@ function refuseOutOfRangeDraws(context: WorkContext): void {
     refuse(scenarioRangeProblem(scenario, plan.replicates * plan.sampleSizes.reduce((a, b) => a + b, 0)));
     let original: Sample | undefined;
     for (const n of plan.sampleSizes) {
-      const sample = drawReplicate(scenario, plan.seed, n, pilot);
+      const sample = drawCheckedReplicate(scenario, plan.seed, n, pilot);
       refuse(pilotRangeProblem(scenario, null, sample, pilot));
       if (n === plan.robustness?.sampleSize) original = sample;
     }

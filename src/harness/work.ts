@@ -11,7 +11,7 @@ import type { ConfiguredEstimator } from '../../estimators/index.js';
 import { dimsRange, runEstimator, supportsDimension } from '../../estimators/index.js';
 import type { Plan } from './plan.js';
 import { perturbedCopy, type Perturbation, type PreparedPerturbation } from './perturb.js';
-import { drawReplicate } from '../core/rng.js';
+import { drawCheckedReplicate } from '../core/rng.js';
 import { nonFiniteCount, outOfRangeMessage } from './draw-range.js';
 import type { TuningPoint } from './tuning.js';
 
@@ -198,7 +198,7 @@ export function executeReplicate(unit: Unit, context: WorkContext, replicate: nu
   if (hooks.skip && unit.series.every((_, k) => hooks.skip!(k))) return { replicate, values, timeMs, failures };
   const variants = [...new Set(unit.series.map((s) => s.variant))];
   const drawn = replicate + context.replicateOffset;
-  const original = drawReplicate(scenario, plan.seed, unit.n, drawn);
+  const original = drawCheckedReplicate(scenario, plan.seed, unit.n, drawn);
   // A draw beyond the double range (a law hhat could not check in advance: src/harness/draw-range.ts) is the
   // scenario's failure on this replicate, and a perturbed copy taken there the perturbation's: no estimator runs on it.
   const drawnOutOfRange = nonFiniteCount(original) > 0;
