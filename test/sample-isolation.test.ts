@@ -50,6 +50,10 @@ describe('an estimator module that prints', () => {
     writeFileSync(join(dir, 'talker.mjs'), moduleWith('talker', "console.log('estimating now'); return 1.4;"));
     const { stdout, stderr } = bench('talker.mjs', 'talker.json', ['talker']);
     expect(stdout).toBe(`${join(dir, 'talker.json')}\n`);
-    expect(stderr.split('\n').filter((line) => line === 'estimating now')).toHaveLength(3);
+    // Lines a worker prints just before the run stops it may not arrive (Node hands them over asynchronously, and CI
+    // saw 2 of 3), so the test asks that they arrive on standard error, not that every one does.
+    const arrived = stderr.split('\n').filter((line) => line === 'estimating now').length;
+    expect(arrived).toBeGreaterThanOrEqual(1);
+    expect(arrived).toBeLessThanOrEqual(3);
   });
 });
