@@ -16,8 +16,8 @@ import {
   selectTableColumns,
 } from '../src/data/index.js';
 import { parseDecimalBytes } from '../src/data/numbers.js';
-import { UsageError } from '../src/core/errors.js';
 import { rngFromSeed } from '../src/core/rng.js';
+import { usageMessage } from './helpers/usage-error.js';
 
 const fixtureDir = join(import.meta.dirname, 'fixtures', 'npy');
 const tempDir = mkdtempSync(join(tmpdir(), 'hhat-data-'));
@@ -27,19 +27,6 @@ function writeTemp(name: string, content: string | Uint8Array): string {
   const path = join(tempDir, name);
   writeFileSync(path, content);
   return path;
-}
-
-/** The UsageError message a call throws (fails the test if it throws anything else or nothing). */
-function usageMessage(call: () => unknown): string {
-  try {
-    call();
-  } catch (error) {
-    expect(error).toBeInstanceOf(UsageError);
-    const message = (error as Error).message;
-    expect(message).not.toContain('\n');
-    return message;
-  }
-  throw new Error('expected a UsageError, but the call returned');
 }
 
 const rows = (table: { sample: { n: number; dim: number; data: Float64Array } }): number[][] => {

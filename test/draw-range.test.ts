@@ -8,7 +8,6 @@ import { existsSync, mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
-import { UsageError } from '../src/core/errors.js';
 import { drawReplicate } from '../src/core/rng.js';
 import { catalog, parseScenario } from '../scenarios/index.js';
 import { prepareDraw } from '../src/harness/draw.js';
@@ -21,6 +20,7 @@ import { executeReplicate, planUnits } from '../src/harness/work.js';
 import { assembleRun } from '../src/analysis/results.js';
 import { printRun } from '../src/commands/bench.js';
 import { runCli } from './helpers/cli.js';
+import { usageMessage } from './helpers/usage-error.js';
 
 const dir = mkdtempSync(join(tmpdir(), 'hhat-range-'));
 afterAll(() => rmSync(dir, { recursive: true, force: true }));
@@ -32,16 +32,6 @@ function quotedMass(message: string): number {
   const match = /P\(\|?X\|? [<>] −?1\.8e308\) = ([\d.e+-]+)/.exec(message);
   if (!match) throw new Error(`no mass in: ${message}`);
   return Number(match[1]);
-}
-
-function refusal(call: () => unknown): string {
-  try {
-    call();
-  } catch (error) {
-    if (error instanceof UsageError) return error.message;
-    throw error;
-  }
-  throw new Error('expected a UsageError');
 }
 
 function prepared(spec: string, scenario: string): PreparedPerturbation {
@@ -75,7 +65,7 @@ describe('scenarios whose draws leave the double range', () => {
   });
 
   it("quotes each law's own mass beyond 1.8e308 (closed forms), which the samplers' share of ±Infinity matches", () => {
-    const quoted = (spec: string) => quotedMass(refusal(() => prepareDraw({ scenario: spec, n: 1000, seed: 1 })));
+    const quoted = (spec: string) => quotedMass(usageMessage(() => prepareDraw({ scenario: spec, n: 1000, seed: 1 })));
     // Pareto: (x_m/x)^α; Weibull: exp(−(x/λ)^k); Fréchet: 1 − exp(−(x/s)^−α); inverse gamma: P(G < β/x) for
     // G ~ Gamma(α), which is (β/x)^α/Γ(α + 1) to a relative O(β/x), with Γ(1.001) = 0.999424 (Abramowitz & Stegun 6.1).
     const cases: [string, number][] = [
@@ -109,7 +99,7 @@ describe('scenarios whose draws leave the double range', () => {
   });
 
   it('a sampler that overflows where its law does not is refused by the pilot draw (the triangular law squares its width)', () => {
-    expect(refusal(() => prepareDraw({ scenario: 'triangular:a=-1e300', n: 100, seed: 1 }))).toMatch(
+    expect(usageMessage(() => prepareDraw({ scenario: 'triangular:a=-1e300', n: 100, seed: 1 }))).toMatch(
       /^scenario triangular:a=-1e\+300,b=1,c=0\.5: its draws leave the double range: replicate 0 at n = 100 holds 100 values beyond ±1\.8e308 .*its sampler overflows/,
     );
   });

@@ -8,7 +8,6 @@ import { join } from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import chisquareCdf from '@stdlib/stats-base-dists-chisquare-cdf';
 import { parseDelimited, readDelimitedFile, readSample } from '../src/data/index.js';
-import { UsageError } from '../src/core/errors.js';
 import { rngFromSeed } from '../src/core/rng.js';
 import { predictedSeconds, roundRowsDown, rowsWithin } from '../src/harness/cost-model.js';
 import { checkSampleMemory, MAX_TYPED_ARRAY_LENGTH } from '../src/core/memory.js';
@@ -17,6 +16,7 @@ import { adviseFile, analysisRows } from '../src/analysis/advise/file.js';
 import { applicableEstimators } from '../src/analysis/advise/benchmark.js';
 import { listEstimators, parseEstimatorSpec } from '../estimators/index.js';
 import { runCli as run } from './helpers/cli.js';
+import { usageMessage } from './helpers/usage-error.js';
 
 const tempDir = mkdtempSync(join(tmpdir(), 'hhat-large-data-'));
 afterAll(() => rmSync(tempDir, { recursive: true, force: true }));
@@ -34,16 +34,6 @@ function readWithWindow(path: string, windowBytes: number, delimiter: 'comma' | 
   } finally {
     closeSync(fd);
   }
-}
-
-function usageMessage(run: () => unknown): string {
-  try {
-    run();
-  } catch (error) {
-    expect(error).toBeInstanceOf(UsageError);
-    return (error as Error).message;
-  }
-  throw new Error('expected a UsageError');
 }
 
 describe('delimited files read through a window', () => {

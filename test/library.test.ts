@@ -10,7 +10,6 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import * as library from '../src/index.js';
-import { UsageError } from '../src/core/errors.js';
 import { readPlanFile, resolvePlan, type PlanInput } from '../src/harness/plan.js';
 import { runPlan } from '../src/harness/runner.js';
 import { assembleRun, writeRunFile } from '../src/analysis/results.js';
@@ -19,6 +18,7 @@ import { parseScenario } from '../scenarios/index.js';
 import { configureEstimator, parseEstimatorSpec } from '../estimators/index.js';
 import { drawReplicate } from '../src/core/rng.js';
 import { ensureBuilt } from './helpers/built.js';
+import { asyncUsageMessage, usageMessage } from './helpers/usage-error.js';
 
 const root = join(__dirname, '..');
 const dir = mkdtempSync(join(tmpdir(), 'hhat-library-'));
@@ -91,27 +91,6 @@ describe("the README's library section", () => {
 
 const base: PlanInput = { scenarios: ['normal'], estimators: ['gaussian'], sampleSizes: [100], replicates: 2 };
 
-/** The UsageError a call throws; a TypeError, any other error or none fails the test. */
-function usageError(call: () => unknown): string {
-  try {
-    call();
-  } catch (error) {
-    if (error instanceof UsageError) return error.message;
-    throw error;
-  }
-  throw new Error('expected a UsageError');
-}
-
-async function asyncUsageError(call: () => Promise<unknown>): Promise<string> {
-  try {
-    await call();
-  } catch (error) {
-    if (error instanceof UsageError) return error.message;
-    throw error;
-  }
-  throw new Error('expected a UsageError');
-}
-
 describe('resolvePlan checks a plan given in code as --plan checks a plan file', () => {
   // Each as a plan file would hold it: the library's message is the command line's, with "plan" for the file's name.
   const cases: [string, Record<string, unknown>][] = [
@@ -131,17 +110,17 @@ describe('resolvePlan checks a plan given in code as --plan checks a plan file',
     it(`refuses ${what} with the plan file's message`, () => {
       const file = join(dir, `plan-${what.replace(/\W+/g, '-')}.json`);
       writeFileSync(file, JSON.stringify(input));
-      const fromFile = usageError(() => readPlanFile(file));
-      expect(usageError(() => resolvePlan(input as unknown as PlanInput))).toBe(fromFile.replace(file, 'plan'));
+      const fromFile = usageMessage(() => readPlanFile(file));
+      expect(usageMessage(() => resolvePlan(input as unknown as PlanInput))).toBe(fromFile.replace(file, 'plan'));
     });
   }
 
   it('refuses what JSON cannot hold (NaN, Infinity) and no plan at all', () => {
-    expect(usageError(() => resolvePlan({ ...base, sampleSizes: [NaN] }))).toBe('plan: sampleSizes[0]: must be an integer');
-    expect(usageError(() => resolvePlan({ ...base, replicates: Infinity }))).toBe('plan: replicates: must be an integer');
-    expect(usageError(() => resolvePlan({ ...base, seed: NaN }))).toBe('plan: seed: must be an integer');
-    expect(usageError(() => (resolvePlan as (input?: unknown) => unknown)())).toBe('plan: the plan must be an object');
-    expect(usageError(() => resolvePlan({} as PlanInput))).toBe('plan: scenarios: is required');
+    expect(usageMessage(() => resolvePlan({ ...base, sampleSizes: [NaN] }))).toBe('plan: sampleSizes[0]: must be an integer');
+    expect(usageMessage(() => resolvePlan({ ...base, replicates: Infinity }))).toBe('plan: replicates: must be an integer');
+    expect(usageMessage(() => resolvePlan({ ...base, seed: NaN }))).toBe('plan: seed: must be an integer');
+    expect(usageMessage(() => (resolvePlan as (input?: unknown) => unknown)())).toBe('plan: the plan must be an object');
+    expect(usageMessage(() => resolvePlan({} as PlanInput))).toBe('plan: scenarios: is required');
   });
 
   it('accepts a plan the command line accepts, unchanged', () => {
@@ -153,40 +132,44 @@ describe('resolvePlan checks a plan given in code as --plan checks a plan file',
 describe('runPlan, compareRuns and the spec parsers refuse what the command line refuses', () => {
   it('checks a plan it did not resolve, and its options as the flags are checked', async () => {
     const { plan } = resolvePlan(base);
-    expect(await asyncUsageError(() => runPlan({ ...plan, replicates: 2.5 }, { isolation: 'in-process' }))).toBe(
+    expect(await asyncUsageMessage(() => runPlan({ ...plan, replicates: 2.5 }, { isolation: 'in-process' }))).toBe(
       'runPlan: plan: replicates: must be an integer',
     );
-    expect(await asyncUsageError(() => runPlan({ ...plan, sampleSizes: [0] }, { isolation: 'in-process' }))).toBe('runPlan: plan: sampleSizes[0]: must be ≥ 2');
-    expect(await asyncUsageError(() => runPlan(plan, { workers: 0 }))).toBe('runPlan: options.workers 0 is not allowed; it must be an integer from 1 to 256');
-    expect(await asyncUsageError(() => runPlan(plan, { shard: { index: 3, count: 2 } }))).toMatch(/^runPlan: options\.shard .* 1 ≤ index ≤ count$/);
+    expect(await asyncUsageMessage(() => runPlan({ ...plan, sampleSizes: [0] }, { isolation: 'in-process' }))).toBe(
+      'runPlan: plan: sampleSizes[0]: must be ≥ 2',
+    );
+    expect(await asyncUsageMessage(() => runPlan(plan, { workers: 0 }))).toBe('runPlan: options.workers 0 is not allowed; it must be an integer from 1 to 256');
+    expect(await asyncUsageMessage(() => runPlan(plan, { shard: { index: 3, count: 2 } }))).toMatch(/^runPlan: options\.shard .* 1 ≤ index ≤ count$/);
   });
 
   it('refuses a sample too large for memory before any work, as bench does', async () => {
     const { plan } = resolvePlan({ ...base, sampleSizes: [100_000_000], limits: { workerMemoryMiB: 64 } });
-    expect(await asyncUsageError(() => runPlan(plan, { workers: 1 }))).toMatch(/^n = 100000000 needs about .* of memory .*; use n ≤ \d+/);
+    expect(await asyncUsageMessage(() => runPlan(plan, { workers: 1 }))).toMatch(/^n = 100000000 needs about .* of memory .*; use n ≤ \d+/);
   });
 
   it('parseScenario, parseEstimatorSpec, configureEstimator and drawReplicate refuse values of the wrong type', () => {
-    expect(usageError(() => parseScenario(undefined as unknown as string))).toBe('a scenario spec must be a string, ID or ID:key=value,...; got nothing');
-    expect(usageError(() => parseEstimatorSpec(42 as unknown as string))).toBe('an estimator spec must be a string, ID or ID:key=value,...; got the number 42');
-    expect(usageError(() => configureEstimator('kozachenko-leonenko', { k: true } as unknown as Record<string, number>))).toBe(
+    expect(usageMessage(() => parseScenario(undefined as unknown as string))).toBe('a scenario spec must be a string, ID or ID:key=value,...; got nothing');
+    expect(usageMessage(() => parseEstimatorSpec(42 as unknown as string))).toBe(
+      'an estimator spec must be a string, ID or ID:key=value,...; got the number 42',
+    );
+    expect(usageMessage(() => configureEstimator('kozachenko-leonenko', { k: true } as unknown as Record<string, number>))).toBe(
       'kozachenko-leonenko: k=true is not allowed; k must be an integer ≥ 1',
     );
-    expect(usageError(() => configureEstimator('gaussian', null as unknown as Record<string, number>))).toMatch(/^gaussian: settings must be an object/);
+    expect(usageMessage(() => configureEstimator('gaussian', null as unknown as Record<string, number>))).toMatch(/^gaussian: settings must be an object/);
     const normal = parseScenario('normal');
-    expect(usageError(() => drawReplicate(normal, 1, 1.5, 0))).toBe('drawReplicate: n 1.5 is not allowed; it must be an integer from 1 to 100000000');
-    expect(usageError(() => drawReplicate(normal, -1, 10, 0))).toBe('drawReplicate: seed -1 is not allowed; it must be an integer ≥ 0');
+    expect(usageMessage(() => drawReplicate(normal, 1, 1.5, 0))).toBe('drawReplicate: n 1.5 is not allowed; it must be an integer from 1 to 100000000');
+    expect(usageMessage(() => drawReplicate(normal, -1, 10, 0))).toBe('drawReplicate: seed -1 is not allowed; it must be an integer ≥ 0');
   });
 
   it('compareRuns refuses what is not a run, and options outside their ranges', async () => {
     const { plan } = resolvePlan(base);
     const run = assembleRun(await runPlan(plan, { isolation: 'in-process' }), null);
-    expect(usageError(() => compareRuns(run, null as never))).toMatch(/^NEW is not a run \(null\); pass a run file/);
-    expect(usageError(() => compareRuns(run, run, { level: 1.5 }))).toBe(
+    expect(usageMessage(() => compareRuns(run, null as never))).toMatch(/^NEW is not a run \(null\); pass a run file/);
+    expect(usageMessage(() => compareRuns(run, run, { level: 1.5 }))).toBe(
       'compareRuns: options.level 1.5 is not allowed; the confidence level is a number between 0 and 1 (e.g. 0.95)',
     );
     expect(compareRuns(run, run).counts.unchanged).toBe(1);
-    expect(usageError(() => assembleRun(null as never, null))).toMatch(/^assembleRun: the outcome must be what runPlan resolves to/);
-    expect(usageError(() => writeRunFile(undefined as never, run))).toBe('writeRunFile: the path must be a file name; got nothing');
+    expect(usageMessage(() => assembleRun(null as never, null))).toMatch(/^assembleRun: the outcome must be what runPlan resolves to/);
+    expect(usageMessage(() => writeRunFile(undefined as never, run))).toBe('writeRunFile: the path must be a file name; got nothing');
   });
 });
