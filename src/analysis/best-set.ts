@@ -183,15 +183,17 @@ function largestDeviations(zeta: Float64Array, models: number, resamples: number
 
 /** Σ_b ((ζ_bi − ζ_bj)/s_ij)² for every pair i < j, at [i·models + j] (s_ij as in pairSpreads; 0 where s_ij is 0). */
 function pairSquareSums(zeta: Float64Array, largest: Float64Array, models: number, resamples: number): Float64Array {
+  // Each pair's unit once, not once per resample. A division below, not a product with 1/s: 1/s overflows where s
+  // is subnormal. |ζ_bi − ζ_bj| ≤ s, so a unit of 0 (both deviations 0 in every resample) is the only case skipped.
+  const unit = new Float64Array(models * models);
+  for (let i = 0; i < models; i++) for (let j = i + 1; j < models; j++) unit[i * models + j] = largest[i] + largest[j];
   const pairScale = new Float64Array(models * models);
   for (let b = 0; b < resamples; b++) {
     const row = b * models;
     for (let i = 0; i < models; i++) {
       for (let j = i + 1; j < models; j++) {
-        // A division, not a product with 1/s: 1/s overflows where s is subnormal. |ζ_bi − ζ_bj| ≤ s, so 0/0
-        // (both deviations 0 in every resample) is the only non-finite case, and it is skipped.
-        const unit = largest[i] + largest[j];
-        const difference = unit > 0 ? (zeta[row + i] - zeta[row + j]) / unit : 0;
+        const s = unit[i * models + j];
+        const difference = s > 0 ? (zeta[row + i] - zeta[row + j]) / s : 0;
         pairScale[i * models + j] += difference * difference;
       }
     }
