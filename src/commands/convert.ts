@@ -27,7 +27,8 @@ export function registerConvertCommand(program: Command, print: (text: string) =
         const c = parseNumber(options.factor);
         if (c === undefined) throw new UsageError(`--factor ${options.factor} is not a number`);
         if (!Number.isFinite(c)) throw new UsageError(`--factor ${options.factor} is beyond the range of a double (about ±1.8e308)`);
-        if (c === 0 && !/^[\s+-]*0*\.?0*(e[+-]?\d+)?\s*$/i.test(options.factor))
+        // A nonzero digit before the exponent that still reads as 0: the value underflowed.
+        if (c === 0 && /[1-9]/.test(options.factor.split(/e/i)[0]))
           throw new UsageError(`--factor ${options.factor} is below the smallest double (about 5e-324) and reads as 0; it must be a finite nonzero number`);
         factor = c;
       } else {
